@@ -1,0 +1,36 @@
+"""JSON encoding that refuses non-finite numbers and drops private (``_``) keys."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import orjson
+from starlette.responses import Response
+
+
+def to_jsonable(obj):
+    """Plain Python containers; raises ValueError on NaN/Infinity (a bug, never shipped)."""
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items() if not str(k).startswith("_")}
+    if isinstance(obj, (list, tuple)):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [to_jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        f = float(obj)
+        if not math.isfinite(f):
+            raise ValueError("non-finite number in a response body")
+        return f
+    return obj
+
+
+class JSONBody(Response):
+    media_type = "application/json"
+
+    def render(self, content) -> bytes:
+        return orjson.dumps(to_jsonable(content))

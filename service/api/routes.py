@@ -1,0 +1,83 @@
+"""HTTP routes: validate, convert to core types, call the core, serialise."""
+
+from __future__ import annotations
+
+from fastapi import APIRouter
+
+from ..core import transforms as tr
+from ..core.cautions import selection_cautions
+from ..core.data import prepare
+from ..core.errors import InputError
+from ..core.search import SearchOptions, run_selection
+from ..settings import get_settings
+from ..version import __version__
+from .encode import JSONBody
+from .routing import StrictRoute
+from .schemas import SelectionRequest, transform_items
+
+router = APIRouter(route_class=StrictRoute)
+
+
+def _check_size(req_rows: int, n_columns: int) -> None:
+    s = get_settings()
+    if req_rows > s.max_rows:
+        raise InputError.at("/data", f"the table has {req_rows} rows; this service accepts at "
+                            f"most {s.max_rows} (setting BESTSCALE_MAX_ROWS)")
+    if n_columns > s.max_columns:
+        raise InputError.at("/predictors", f"{n_columns} columns requested; at most "
+                            f"{s.max_columns} are accepted (setting BESTSCALE_MAX_COLUMNS)")
+
+
+def selection_options(req: SelectionRequest) -> SearchOptions:
+    s = get_settings()
+    max_c = req.limits.max_candidates or s.default_max_candidates
+    if max_c > s.max_candidates:
+        raise InputError.at("/limits/max_candidates", f"max_candidates {max_c} exceeds the "
+                            f"service limit of {s.max_candidates}")
+    tl = req.limits.time_limit_s or s.default_time_limit_s
+    if tl > s.max_time_limit_s:
+        raise InputError.at("/limits/time_limit_s", f"time_limit_s {tl:g} exceeds the service "
+                            f"limit of {s.max_time_limit_s:g} s")
+    return SearchOptions(
+        response_transforms=transform_items(req.transforms.response),
+        predictor_transforms=transform_items(req.transforms.predictors),
+        folds=req.validation.folds, repeats=req.validation.repeats, seed=req.validation.seed,
+        metric=req.validation.metric, alpha=req.alpha, top=req.top, max_candidates=max_c,
+        time_limit_s=tl, intercept=req.intercept)
+
+
+def run_selection_request(req: SelectionRequest) -> dict:
+    data = req.data.as_dict()
+    n_rows = len(data["records"]) if data["records"] is not None else (
+        max((len(v) for v in data["columns"].values()), default=0) if data["columns"] is not None
+        else data["csv"].count("\n"))
+    _check_size(n_rows, 1 + len(req.predictors))
+    if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
+        for col in req.transforms.predictors:
+            if col not in req.predictors:
+                raise InputError.at(f"/transforms/predictors/{col}",
+                                    f"'{col}' is not one of the predictors")
+    prep = prepare(data, req.response, list(req.predictors), list(req.categorical), req.order)
+    opts = selection_options(req)
+    body = run_selection(prep, opts, __version__)
+    any_tr = any(not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
+                 for e in body["ranking"])
+    return {"service_version": __version__, **body,
+            "cautions": selection_cautions(opts.metric, any_tr)}
+
+
+@router.post("/v1/selections", response_class=JSONBody, tags=["selection"],
+             summary="Search transformations, score every candidate, return a ranking")
+def post_selections(req: SelectionRequest):
+    return JSONBody(run_selection_request(req))
+
+
+@router.get("/v1/transforms", response_class=JSONBody, tags=["reference"],
+            summary="The transform catalogue")
+def get_transforms():
+    return JSONBody({"transforms": tr.CATALOGUE, "ladder": list(tr.LADDER)})
+
+
+@router.get("/healthz", response_class=JSONBody, tags=["operations"], summary="Liveness")
+async def healthz():
+    return JSONBody({"status": "ok", "service_version": __version__})

@@ -1,0 +1,402 @@
+"""Intake: turn the caller's table (columns, records or CSV) into typed arrays.
+
+Only the columns a request uses are parsed.  Numbers stay numbers; a column
+of strings is categorical; a numeric column holding a stray string is an
+error that points at the cell, because guessing would silently change the
+model.  Rows with a missing value in a used column are dropped and listed.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import FieldProblem, InputError, pointer
+
+DROPPED_LIST_CAP = 100
+_MISSING_KEY = object()
+_NON_FINITE_WORDS = {"nan", "+nan", "-nan", "inf", "+inf", "-inf", "infinity", "+infinity",
+                     "-infinity"}
+
+
+@dataclass
+class RawColumn:
+    """One column as received: Python values with ``None`` for missing."""
+
+    name: str
+    values: list
+    cell_pointer: "callable"  # row index -> JSON pointer (or a description for CSV)
+    from_csv: bool = False
+
+
+@dataclass
+class RawTable:
+    n_rows: int
+    names: list[str]
+    get: "callable"  # name -> RawColumn
+    source: str
+
+
+def read_table(data: dict) -> RawTable:
+    """``data`` is the contract's Data object, already a dict with exactly one key."""
+    if "columns" in data and data["columns"] is not None:
+        return _from_columns(data["columns"])
+    if "records" in data and data["records"] is not None:
+        return _from_records(data["records"])
+    if "csv" in data and data["csv"] is not None:
+        return _from_csv(data["csv"])
+    raise InputError.at("/data", "data needs exactly one of 'columns', 'records' or 'csv'")
+
+
+def _from_columns(cols: dict) -> RawTable:
+    if not cols:
+        raise InputError.at("/data/columns", "data.columns is empty; send at least the response "
+                            "and one predictor column")
+    lengths = {k: len(v) for k, v in cols.items()}
+    n = max(lengths.values())
+    bad = [k for k, ln in lengths.items() if ln != n]
+    if bad:
+        first = next(iter(lengths))
+        problems = [FieldProblem(pointer("data", "columns", k),
+                                 f"column '{k}' has {lengths[k]} values but column "
+                                 f"'{max(lengths, key=lengths.get)}' has {n}")
+                    for k in bad]
+        raise InputError(f"columns have unequal lengths ({', '.join(f'{k}: {v}' for k, v in lengths.items())}); "
+                         f"every column needs one value per row (first column '{first}')", problems)
+
+    def get(name: str) -> RawColumn:
+        return RawColumn(name, cols[name], lambda i, _n=name: pointer("data", "columns", _n, i))
+
+    return RawTable(n, list(cols), get, "columns")
+
+
+def _from_records(recs: list) -> RawTable:
+    names: list[str] = []
+    seen: set[str] = set()
+    for i, r in enumerate(recs):
+        if not isinstance(r, dict):
+            raise InputError.at(pointer("data", "records", i),
+                                f"record {i} is not an object of column: value pairs")
+        for k in r:
+            if k not in seen:
+                seen.add(k)
+                names.append(k)
+
+    def get(name: str) -> RawColumn:
+        vals = [r.get(name, _MISSING_KEY) for r in recs]
+        for i, v in enumerate(vals):
+            if v is _MISSING_KEY:
+                raise InputError.at(pointer("data", "records", i),
+                                    f"record {i} has no field '{name}'; send null for a missing value")
+        return RawColumn(name, vals, lambda i, _n=name: pointer("data", "records", i, _n))
+
+    return RawTable(len(recs), names, get, "records")
+
+
+def _from_csv(text: str) -> RawTable:
+    if not text.strip():
+        raise InputError.at("/data/csv", "data.csv is empty; it needs a header row and data rows")
+    try:
+        dialect_rows = list(csv.reader(io.StringIO(text)))
+    except csv.Error as exc:
+        raise InputError.at("/data/csv", f"data.csv cannot be read as CSV: {exc}") from None
+    rows = [r for r in dialect_rows if r]  # blank lines carry no row
+    header = [h.strip() for h in rows[0]]
+    if len(set(header)) != len(header):
+        dup = sorted({h for h in header if header.count(h) > 1})
+        raise InputError.at("/data/csv", f"data.csv header repeats column name(s) {dup}; names must be unique")
+    if any(h == "" for h in header):
+        raise InputError.at("/data/csv", "data.csv header has an empty column name")
+    body = rows[1:]
+    for i, r in enumerate(body):
+        if len(r) != len(header):
+            raise InputError.at("/data/csv", f"data.csv data row {i} (line {i + 2}) has {len(r)} "
+                                f"fields but the header has {len(header)}")
+    idx = {h: j for j, h in enumerate(header)}
+
+    def get(name: str) -> RawColumn:
+        j = idx[name]
+        vals = [(r[j].strip() or None) for r in body]
+        return RawColumn(name, vals, lambda i, _n=name: "/data/csv", from_csv=True)
+
+    return RawTable(len(body), header, get, "csv")
+
+
+# ------------------------------------------------------------------ typing
+@dataclass
+class TypedColumn:
+    name: str
+    kind: str  # "numeric" | "categorical"
+    values: np.ndarray  # float64 (nan = missing) or object array of str (None = missing)
+    missing: np.ndarray  # bool
+
+
+def _csv_where(col: RawColumn, i: int) -> str:
+    return f"data row {i} (line {i + 2}), column '{col.name}'"
+
+
+def _bad_numeric(col: RawColumn, i: int, v, role: str) -> InputError:
+    where = _csv_where(col, i) if col.from_csv else f"row {i}"
+    hint = "send null (or an empty CSV cell) for a missing value"
+    if role == "predictor":
+        hint += f", or list '{col.name}' in 'categorical' if it is a grouping"
+    return InputError.at(col.cell_pointer(i),
+                         f"{role} column '{col.name}' is numeric but {where} holds {v!r}; {hint}")
+
+
+def _to_float(v) -> float | None:
+    """A JSON or CSV value as a finite float, ``None`` when it is not one."""
+    if isinstance(v, bool):
+        return None
+    if isinstance(v, (int, float)):
+        try:
+            f = float(v)
+        except OverflowError:
+            return None
+        return f if math.isfinite(f) else None
+    if isinstance(v, str):
+        s = v.strip()
+        if s.lower() in _NON_FINITE_WORDS:
+            return None
+        try:
+            f = float(s)
+        except ValueError:
+            return None
+        return f if math.isfinite(f) else None
+    return None
+
+
+def _is_number_like(v, from_csv: bool) -> bool:
+    if v is None:
+        return True
+    if from_csv:
+        return _to_float(v) is not None
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def as_numeric(col: RawColumn, role: str) -> TypedColumn:
+    vals = col.values
+    if not col.from_csv:
+        kinds = set(map(type, vals))
+        if kinds <= {int, float, type(None)}:
+            try:
+                arr = np.array(vals, dtype=float)
+            except OverflowError:
+                arr = None
+            if arr is not None and not np.any(np.isinf(arr)):
+                missing = np.isnan(arr)
+                return TypedColumn(col.name, "numeric", arr, missing)
+    out = np.empty(len(vals))
+    missing = np.zeros(len(vals), dtype=bool)
+    for i, v in enumerate(vals):
+        if v is None:
+            out[i] = np.nan
+            missing[i] = True
+            continue
+        if not col.from_csv and not _is_number_like(v, False):
+            raise _bad_numeric(col, i, v, role)
+        f = _to_float(v)
+        if f is None:
+            raise _bad_numeric(col, i, v, role)
+        out[i] = f
+    return TypedColumn(col.name, "numeric", out, missing)
+
+
+def _level_text(v) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, float) and v.is_integer():
+        return str(int(v))
+    return str(v)
+
+
+def as_categorical(col: RawColumn) -> TypedColumn:
+    vals = np.empty(len(col.values), dtype=object)
+    missing = np.zeros(len(col.values), dtype=bool)
+    for i, v in enumerate(col.values):
+        if v is None:
+            missing[i] = True
+            vals[i] = None
+        elif isinstance(v, (dict, list)):
+            raise InputError.at(col.cell_pointer(i), f"column '{col.name}' row {i} holds a "
+                                "nested object; cells must be numbers, strings, booleans or null")
+        else:
+            vals[i] = _level_text(v)
+    return TypedColumn(col.name, "categorical", vals, missing)
+
+
+def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
+    if forced_categorical:
+        return as_categorical(col)
+    numbers = strings = 0
+    first_string = first_number = None
+    for i, v in enumerate(col.values):
+        if v is None:
+            continue
+        if _is_number_like(v, col.from_csv):
+            numbers += 1
+            if first_number is None:
+                first_number = i
+        else:
+            strings += 1
+            if first_string is None:
+                first_string = i
+    if strings and numbers:
+        i = first_string if strings <= numbers else first_number
+        where = _csv_where(col, i) if col.from_csv else f"row {i}"
+        raise InputError.at(col.cell_pointer(i), (
+            f"predictor column '{col.name}' mixes numbers ({numbers}) and text ({strings}); "
+            f"{where} holds {col.values[i]!r}. Send null for a missing value, or list "
+            f"'{col.name}' in 'categorical' to treat every value as a level"))
+    if strings:
+        return as_categorical(col)
+    return as_numeric(col, "predictor")
+
+
+# ------------------------------------------------------------------ prepare
+@dataclass
+class Prepared:
+    """The rows a request uses, after missing values are dropped."""
+
+    response: str
+    y: np.ndarray
+    predictors: list[str]
+    numeric: dict[str, np.ndarray]
+    categorical: dict[str, np.ndarray]  # object arrays of level strings
+    row_ids: np.ndarray  # caller's input row numbers of the used rows
+    order: np.ndarray | None  # permutation putting used rows in the order column's order
+    rows_received: int
+    dropped: list[dict] = field(default_factory=list)
+    rows_dropped: int = 0
+
+    @property
+    def n(self) -> int:
+        return int(self.y.size)
+
+    def fingerprint(self) -> str:
+        h = hashlib.sha256()
+        h.update(self.y.tobytes())
+        for name in self.predictors:
+            if name in self.numeric:
+                h.update(name.encode() + b"\0" + self.numeric[name].tobytes())
+            else:
+                h.update(name.encode() + b"\0" + "\x1f".join(self.categorical[name]).encode())
+        return h.hexdigest()
+
+    def data_summary(self) -> dict:
+        return {"rows_received": self.rows_received, "rows_used": self.n,
+                "rows_dropped": self.rows_dropped, "dropped": self.dropped,
+                "dropped_listed": len(self.dropped)}
+
+
+def prepare(data: dict, response: str, predictors: list[str], categorical: list[str] | None = None,
+            order: str | None = None) -> Prepared:
+    """Parse, type and clean the columns a request uses.
+
+    Raises :class:`InputError` with a JSON Pointer for every problem a caller
+    can fix: unknown or repeated columns, unequal lengths, non-numeric values in
+    a numeric column, a constant response, too few rows.
+    """
+    categorical = list(categorical or [])
+    table = read_table(data)
+    known = set(table.names)
+    problems = []
+    if response not in known:
+        problems.append(FieldProblem("/response", f"response column '{response}' is not in the "
+                                     f"data (columns: {_names(table.names)})"))
+    if not predictors:
+        problems.append(FieldProblem("/predictors", "predictors needs at least one column"))
+    seen = set()
+    for i, p in enumerate(predictors):
+        if p not in known:
+            problems.append(FieldProblem(pointer("predictors", i), f"predictor column '{p}' is not "
+                                         f"in the data (columns: {_names(table.names)})"))
+        if p == response:
+            problems.append(FieldProblem(pointer("predictors", i), f"'{p}' is the response; it "
+                                         "cannot also be a predictor"))
+        if p in seen:
+            problems.append(FieldProblem(pointer("predictors", i), f"predictor '{p}' is listed twice"))
+        seen.add(p)
+    for i, c in enumerate(categorical):
+        if c not in predictors:
+            problems.append(FieldProblem(pointer("categorical", i), f"categorical column '{c}' is "
+                                         "not one of the predictors"))
+    if order is not None:
+        if order not in known:
+            problems.append(FieldProblem("/order", f"order column '{order}' is not in the data"))
+        elif order == response or order in predictors:
+            problems.append(FieldProblem("/order", f"order column '{order}' is also used in the "
+                                         "model; give a separate time or sequence column"))
+    if problems:
+        raise InputError(problems[0].detail if len(problems) == 1 else
+                         f"{len(problems)} problems with the requested columns", problems)
+
+    ycol = as_numeric(table.get(response), "response")
+    typed = [infer_predictor(table.get(p), p in categorical) for p in predictors]
+    ocol = None
+    if order is not None:
+        raw = table.get(order)
+        try:
+            ocol = as_numeric(raw, "order")
+        except InputError:
+            ocol = as_categorical(raw)
+
+    n = table.n_rows
+    missing = ycol.missing.copy()
+    for t in typed:
+        missing |= t.missing
+    if ocol is not None:
+        missing |= ocol.missing
+    dropped = []
+    n_dropped = int(missing.sum())
+    if n_dropped:
+        cols = [ycol] + typed + ([ocol] if ocol is not None else [])
+        for i in np.flatnonzero(missing)[:DROPPED_LIST_CAP]:
+            which = [c.name for c in cols if c.missing[i]]
+            dropped.append({"row": int(i), "reason": "missing value in " +
+                            ", ".join(f"'{w}'" for w in which)})
+    keep = ~missing
+    row_ids = np.flatnonzero(keep)
+    y = ycol.values[keep]
+    numeric = {t.name: t.values[keep] for t in typed if t.kind == "numeric"}
+    cats = {t.name: t.values[keep] for t in typed if t.kind == "categorical"}
+    perm = None
+    if ocol is not None:
+        ov = ocol.values[keep]
+        perm = np.argsort(ov, kind="stable") if ocol.kind == "numeric" else \
+            np.array(sorted(range(ov.size), key=lambda i: ov[i]), dtype=int)
+
+    prep = Prepared(response, y, list(predictors), numeric, cats, row_ids, perm, n, dropped, n_dropped)
+    _check_content(prep)
+    return prep
+
+
+def _names(names: list[str]) -> str:
+    shown = ", ".join(f"'{n}'" for n in names[:20])
+    return shown + (f", ... ({len(names)} in all)" if len(names) > 20 else "")
+
+
+def _check_content(p: Prepared) -> None:
+    if p.n == 0:
+        raise InputError.at("/data", f"no row is complete: all {p.rows_received} rows have a "
+                            "missing value in a used column")
+    if np.ptp(p.y) <= 1e-12 * max(1.0, float(np.max(np.abs(p.y)))):
+        raise InputError.at("/response", f"response '{p.response}' is constant ({p.y[0]:.6g}) on "
+                            "the used rows; there is nothing to model")
+    for i, name in enumerate(p.predictors):
+        if name in p.numeric:
+            x = p.numeric[name]
+            if np.ptp(x) <= 1e-12 * max(1.0, float(np.max(np.abs(x)))):
+                raise InputError.at(pointer("predictors", i), f"predictor '{name}' is constant "
+                                    f"({x[0]:.6g}) on the used rows; it cannot be estimated "
+                                    "beside the intercept")
+        else:
+            levels = set(p.categorical[name])
+            if len(levels) < 2:
+                raise InputError.at(pointer("predictors", i), f"categorical predictor '{name}' "
+                                    "has a single level on the used rows")

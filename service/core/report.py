@@ -1,0 +1,139 @@
+"""One ranking entry: the full-data fit of a specification, in the contract's layout."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from . import retransform
+from . import transforms as tr
+from .crossval import CVPlan, CVResult
+from .data import Prepared
+from .errors import CandidateFailure
+from .fitting import OLSFit, ols
+from .likelihood import estimate_lambda
+from .model import build_model
+from .spec import Design, Specification, build_design
+
+
+def finite_or_none(v) -> float | None:
+    if v is None:
+        return None
+    v = float(v)
+    return v if math.isfinite(v) else None
+
+
+def _num(v: float) -> str:
+    return f"{v:.4g}"
+
+
+def equation(spec: Specification, design: Design, coef: np.ndarray) -> str:
+    """Readable equation, e.g. ``log(cost) = 2.1 + 0.48·log(area) - 0.03·age``."""
+    parts = []
+    for name, b in zip(design.names, coef):
+        if name == "intercept":
+            parts.append(_num(b))
+            continue
+        term = f"[{name}]" if "[" in name else name
+        if not parts:
+            parts.append(f"{_num(b)}·{term}")
+        else:
+            sign = "-" if b < 0 else "+"
+            parts.append(f"{sign} {_num(abs(b))}·{term}")
+    rhs = " ".join(parts) if parts else "0"
+    return f"{spec.response_label()} = {rhs}"
+
+
+def fitted_model(spec: Specification, prep: Prepared):
+    """Fit ``spec`` on all used rows: (concrete spec, design, fit, lambda estimate or None)."""
+    design = build_design(spec, prep)
+    t = spec.response_transform
+    lam_est = None
+    if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+        lam_est = estimate_lambda(t.name, prep.y, design.X)
+        t = tr.Transform(t.name, lam=lam_est.lam, estimated=True)
+    else:
+        t = tr.fit_transform(t, prep.y)
+    msg = t.domain_problem(prep.y, prep.response, "response")
+    if msg:
+        raise CandidateFailure(msg)
+    z = t.forward(prep.y)
+    if not np.all(np.isfinite(z)):
+        raise CandidateFailure(f"{t.label(prep.response)} overflows on the data")
+    fit = ols(design.X, z, design.names, spec.intercept)
+    concrete = Specification(spec.response, t, spec.predictors, spec.intercept)
+    return concrete, design, fit, lam_est
+
+
+def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict:
+    t = concrete.response_transform
+    llf_y = fit.llf + t.log_jacobian(prep.y)
+    k = fit.coef.size + 1 + t.n_estimated
+    n = fit.n
+    aic = -2.0 * llf_y + 2.0 * k
+    bic = -2.0 * llf_y + k * math.log(n)
+    mean_fit = retransform.smeared_mean(t, fit.fitted, fit.resid)
+    ok = np.isfinite(mean_fit)
+    r2o = None
+    if np.all(ok):
+        tss = float(np.sum((prep.y - prep.y.mean()) ** 2))
+        r2o = 1.0 - float(np.sum((prep.y - mean_fit) ** 2)) / tss
+    return {
+        "n": n,
+        "r_squared": finite_or_none(fit.r_squared),
+        "adj_r_squared": finite_or_none(fit.adj_r_squared),
+        "r_squared_scale": "model" if not t.is_identity else "original",
+        "r_squared_original_scale": finite_or_none(r2o),
+        "sigma": finite_or_none(fit.sigma),
+        "df_residual": fit.df_resid,
+        "log_likelihood_original_scale": finite_or_none(llf_y),
+        "aic_original_scale": finite_or_none(aic),
+        "bic_original_scale": finite_or_none(bic),
+        "parameters_counted": k,
+        "condition_number": finite_or_none(fit.condition_number),
+    }
+
+
+def entry_for(spec: Specification, cv: CVResult, plan: CVPlan, prep: Prepared, parts: dict,
+              opts, service_version: str) -> dict:
+    concrete, design, fit, lam_est = fitted_model(spec, prep)
+    warnings: list[str] = []
+    estimates = {}
+    if lam_est is not None:
+        estimates["response_lambda"] = lam_est.to_dict()
+        if lam_est.at_bound:
+            warnings.append(f"The {concrete.response_transform.name} lambda sits at the search "
+                            "bound (-3 or 3); the scale is poorly determined.")
+        if cv.fold_lambdas:
+            estimates["response_lambda"]["per_fold"] = cv.fold_lambdas
+    t = concrete.response_transform
+    if t.name == "log" and t.shift:
+        warnings.append(f"'{prep.response}' has zeros, so the log uses a shift of {t.shift:.6g} "
+                        "(half the smallest positive value); the shift changes the results.")
+    for p in concrete.predictors:
+        if p.transform.name == "log" and p.transform.shift:
+            warnings.append(f"'{p.column}' has zeros, so its log uses a shift of "
+                            f"{p.transform.shift:.6g} (half the smallest positive value).")
+    if fit.condition_number > 1e4 and len(design.names) > 2:
+        warnings.append(f"The design is ill-conditioned (condition number of the column-scaled "
+                        f"design {fit.condition_number:.3g}); coefficients are unstable.")
+    entry = {
+        "specification": concrete.to_dict(),
+        "equation": equation(concrete, design, fit.coef),
+        "cv": cv.to_dict(plan),
+        "fit": fit_block(concrete, fit, prep),
+        "coefficients": [{k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
+                         for row in fit.table()],
+        "score": {"value": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
+                  "parts": parts},
+        "model": build_model(concrete, design, fit, prep, service_version,
+                             {"folds": plan.folds, "repeats": plan.repeats, "seed": plan.seed,
+                              "metric": plan.metric}),
+        "warnings": warnings,
+    }
+    if estimates:
+        entry["estimates"] = estimates
+    entry["_design"] = design
+    entry["_fit"] = fit
+    return entry

@@ -1,0 +1,310 @@
+"""Search response and predictor transformations, score each candidate, rank them.
+
+Ranking (documented in DEVELOPERS.md): the primary criterion is the
+cross-validated error on the original response scale.  Among the candidates
+whose error is within one standard error of the lowest (the one-standard-error
+rule: Breiman, Friedman, Olshen & Stone 1984, p. 80; Hastie, Tibshirani &
+Friedman 2009, pp. 61 and 244) the simplest ranks first (simplicity order in
+:meth:`Specification.simplicity`); the others follow by their error.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import transforms as tr
+from .crossval import CVPlan, CVResult, cross_validate, make_plan
+from .data import Prepared
+from .errors import BudgetError, CandidateFailure, InputError, ModelFailure, pointer
+from .likelihood import estimate_lambda
+from .report import entry_for
+from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
+
+DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
+DEFAULT_PREDICTOR = ("identity", "log", "sqrt", "reciprocal", "square")
+MAX_FAILURES_LISTED = 10
+
+
+@dataclass
+class SearchOptions:
+    response_transforms: list | None = None  # names or contract Transform dicts
+    predictor_transforms: list | dict | None = None
+    folds: int = 5
+    repeats: int = 1
+    seed: int = 0
+    metric: str = "rmse"
+    alpha: float = 0.05
+    top: int = 5
+    max_candidates: int = 5000
+    time_limit_s: float = 60.0
+    intercept: bool = True
+    units: dict = field(default_factory=dict)
+
+
+@dataclass
+class Scored:
+    spec: Specification
+    cv: CVResult
+
+
+def _as_transform(item) -> tr.Transform:
+    if isinstance(item, str):
+        return tr.from_dict({"name": item})
+    return tr.from_dict(item)
+
+
+def _expand_name(item) -> list[tr.Transform]:
+    """A bare name 'power' means the ladder rungs not covered by other names."""
+    if isinstance(item, str) and item == "power":
+        return [tr.Transform("power", exponent=-0.5), tr.Transform("power", exponent=1.0 / 3.0)]
+    return [_as_transform(item)]
+
+
+def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
+    y = prep.y
+    explicit = opts.response_transforms is not None
+    items = opts.response_transforms if explicit else list(DEFAULT_RESPONSE)
+    out: list[tr.Transform] = []
+    for i, item in enumerate(items):
+        for t in _expand_name(item):
+            if t.name == "categorical":
+                raise InputError.at(pointer("transforms", "response", i),
+                                    "the response cannot be categorical")
+            msg = t.domain_problem(y, prep.response, "response")
+            if msg:
+                if explicit:
+                    raise InputError.at(pointer("transforms", "response", i), msg)
+                continue
+            if t not in out:
+                out.append(t)
+    return out
+
+
+def predictor_candidates(prep: Prepared, opts: SearchOptions) -> list[list[tr.Transform]]:
+    spec = opts.predictor_transforms
+    per: list[list[tr.Transform]] = []
+    for j, col in enumerate(prep.predictors):
+        if col in prep.categorical:
+            per.append([tr.Transform("categorical")])
+            continue
+        x = prep.numeric[col]
+        if isinstance(spec, dict) and col in spec:
+            items, explicit, base = spec[col], True, pointer("transforms", "predictors", col)
+        elif isinstance(spec, list):
+            items, explicit, base = spec, False, "/transforms/predictors"
+        else:
+            items, explicit, base = list(DEFAULT_PREDICTOR), False, ""
+        lst: list[tr.Transform] = []
+        for i, item in enumerate(items):
+            for t in _expand_name(item):
+                if t.name in ("box_cox", "yeo_johnson") and t.lam is None:
+                    raise InputError.at(f"{base}/{i}", f"{t.name} of a predictor needs an explicit "
+                                        "'lambda' (predictor powers are not estimated here)")
+                if t.name == "categorical":
+                    raise InputError.at(f"{base}/{i}", f"'{col}' is numeric; list it in "
+                                        "'categorical' to treat it as levels")
+                msg = t.domain_problem(x, col, "predictor")
+                if msg:
+                    if explicit:
+                        raise InputError.at(f"{base}/{i}", msg)
+                    continue
+                if t.name == "log" and t.shift is None:
+                    t = tr.fit_transform(t, x)
+                if t not in lst:
+                    lst.append(t)
+        if not lst:
+            raise InputError.at(pointer("predictors", j), f"no requested transform applies to "
+                                f"predictor '{col}'")
+        per.append(lst)
+    return per
+
+
+def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
+    return sorted(cands, key=lambda s: s.simplicity())
+
+
+def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
+                  entry_hook=None) -> dict:
+    """Search, score and rank; returns the contract's selection body (without service_version).
+
+    ``entry_hook(entry, context)`` lets later stages (conditions, interpretation)
+    enrich each returned ranking entry.
+    """
+    t0 = time.perf_counter()
+    deadline = t0 + opts.time_limit_s
+    resp = response_candidates(prep, opts)
+    if not resp:
+        raise InputError.at("/transforms/response", "no response transform applies to "
+                            f"'{prep.response}'")
+    preds = predictor_candidates(prep, opts)
+    n_params = 1 + sum(1 if p[0].name != "categorical" else
+                       len(set(prep.categorical[c].tolist())) - 1
+                       for p, c in zip(preds, prep.predictors))
+    _check_rows(prep, opts, n_params)
+    plan = make_plan(prep.n, opts.folds, opts.repeats, opts.seed, opts.metric)
+    _check_levels(prep, plan)
+    shift_needed = tr.needs_shift(prep.y)
+    warnings: list[str] = []
+
+    # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
+    box_cox_info = None
+    if any(t.name == "box_cox" for t in resp):
+        base = Specification(prep.response, tr.Transform("identity"),
+                             tuple(PredictorSpec(c, tr.Transform("categorical") if c in prep.categorical
+                                                 else tr.Transform("identity")) for c in prep.predictors),
+                             opts.intercept)
+        try:
+            d0 = build_design(base, prep)
+            est = estimate_lambda("box_cox", prep.y, d0.X)
+            box_cox_info = {"design": "untransformed predictors", **est.to_dict()}
+            if est.ladder is not None:
+                rung = tr.ladder_transform(est.ladder)
+                if rung not in resp and rung.domain_problem(prep.y, prep.response, "response") is None:
+                    resp.append(rung)
+            if est.ci_low is None or est.ci_high is None or (est.ci_high - est.ci_low) > 2.0:
+                warnings.append("The data do not pin down a Box-Cox lambda for the response "
+                                f"(estimate {est.lam:.3g}, 95% interval "
+                                f"{_fmt_ci(est.ci_low, est.ci_high)}); prefer a simple scale.")
+        except (CandidateFailure, ValueError):
+            box_cox_info = None
+
+    combos = itertools.product(resp, *preds)
+    total = len(resp) * math.prod(len(p) for p in preds)
+    cands = []
+    for combo in combos:
+        cands.append(Specification(prep.response, combo[0],
+                                   tuple(PredictorSpec(c, t) for c, t in zip(prep.predictors, combo[1:])),
+                                   opts.intercept))
+        if len(cands) >= max(opts.max_candidates * 4, 20000):
+            break
+    cands = _simplicity_sorted(cands)[: opts.max_candidates]
+
+    cache: dict = {}
+    scored: list[Scored] = []
+    failures: list[dict] = []
+    n_fail = 0
+    complete = len(cands) == total
+    for spec in cands:
+        if time.perf_counter() > deadline:
+            complete = False
+            break
+        try:
+            design = build_design(spec, prep, cache)
+            res = cross_validate(design.X, prep.y, spec.response_transform, plan, shift_needed,
+                                 design.names)
+            scored.append(Scored(spec, res))
+        except CandidateFailure as exc:
+            n_fail += 1
+            if len(failures) < MAX_FAILURES_LISTED:
+                failures.append({"specification": spec.to_dict(), "reason": exc.reason})
+    considered = len(scored) + n_fail
+    if not scored:
+        if considered == 0:
+            raise BudgetError(f"no candidate finished within the time limit of "
+                              f"{opts.time_limit_s:g} s; raise limits.time_limit_s or send fewer rows")
+        reasons = sorted({f["reason"] for f in failures})
+        raise ModelFailure("no candidate could be fitted: " + "; ".join(reasons[:3]))
+    if n_fail:
+        warnings.append(f"{n_fail} candidate(s) could not be scored (see search.failures); "
+                        "they are left out of the ranking.")
+
+    ranked, threshold = rank(scored)
+    best = min(scored, key=lambda s: s.cv.value)
+    entries = []
+    for i, (s, parts) in enumerate(ranked[: opts.top]):
+        entry = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
+        entry["rank"] = i + 1
+        if entry_hook is not None:
+            entry_hook(entry, {"spec": s.spec, "prep": prep, "opts": opts})
+        entries.append({"rank": i + 1, **{k: v for k, v in entry.items() if k != "rank"}})
+    elapsed = time.perf_counter() - t0
+    search = {
+        "candidates_considered": int(total),
+        "candidates_scored": len(scored),
+        "candidates_failed": n_fail,
+        "complete": bool(complete and len(scored) + n_fail == total),
+        "elapsed_s": round(elapsed, 4),
+        "response_transforms": [t.to_dict() for t in resp],
+        "predictor_transforms": {c: [t.to_dict() for t in p] for c, p in zip(prep.predictors, preds)},
+        "best_cv": {"value": best.cv.value, "std_error": best.cv.std_error,
+                    "specification": best.spec.to_dict()},
+        "one_se_threshold": threshold,
+        "failures": failures,
+    }
+    if box_cox_info is not None:
+        search["box_cox"] = box_cox_info
+    if not search["complete"]:
+        warnings.append(f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
+                        "scored within the limits); the ranking is the best found so far.")
+    return {"data": prep.data_summary(), "search": search, "ranking": entries,
+            "warnings": warnings, "_scored": scored, "_plan": plan}
+
+
+def rank(scored: list[Scored]) -> tuple[list[tuple[Scored, dict]], float]:
+    """Order by the one-standard-error rule; returns (scored, score parts) pairs and the cut."""
+    best = min(scored, key=lambda s: s.cv.value)
+    cut = best.cv.value + best.cv.std_error
+    inside = [s for s in scored if s.cv.value <= cut]
+    outside = [s for s in scored if s.cv.value > cut]
+    inside.sort(key=lambda s: (s.spec.simplicity(), s.cv.value))
+    outside.sort(key=lambda s: s.cv.value)
+    out = []
+    for s in inside + outside:
+        within = s.cv.value <= cut
+        parts = {
+            "cv_value": s.cv.value,
+            "cv_std_error": s.cv.std_error,
+            "best_cv_value": best.cv.value,
+            "one_se_threshold": cut,
+            "within_one_se": within,
+            "simplicity": list(s.spec.simplicity()),
+            "rule": ("within one standard error of the lowest CV error; ranked among those by "
+                     "simplicity (estimated parameters, transform readability, transformed columns)"
+                     if within else "more than one standard error above the lowest CV error; "
+                     "ranked by CV error"),
+        }
+        out.append((s, parts))
+    return out, cut
+
+
+def _fmt_ci(lo, hi) -> str:
+    a = "below -5" if lo is None else f"{lo:.3g}"
+    b = "above 5" if hi is None else f"{hi:.3g}"
+    return f"[{a}, {b}]"
+
+
+def _check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
+    n = prep.n
+    if opts.folds > n:
+        raise InputError.at("/validation/folds", f"folds = {opts.folds} exceeds the {n} usable rows")
+    n_train = n - math.ceil(n / opts.folds)
+    if n_train < p + 2:
+        need = math.ceil((p + 2) * opts.folds / (opts.folds - 1))
+        raise InputError.at("/data", f"{n} usable rows are too few for {opts.folds}-fold "
+                            f"cross-validation of a model with {p} coefficients; it needs at "
+                            f"least {need} rows (or fewer folds/predictors)")
+    if opts.metric == "mape" and np.any(prep.y == 0):
+        raise InputError.at("/validation/metric", f"mape divides by the response and "
+                            f"'{prep.response}' has zeros; use rmse or mae")
+
+
+def _check_levels(prep: Prepared, plan: CVPlan) -> None:
+    for j, col in enumerate(prep.predictors):
+        if col not in prep.categorical:
+            continue
+        vals = prep.categorical[col]
+        for a in plan.assignments:
+            for k in range(plan.folds):
+                train_levels = set(vals[a != k].tolist())
+                missing = set(vals.tolist()) - train_levels
+                if missing:
+                    lv = sorted(missing)[0]
+                    cnt = int(np.sum(vals == lv))
+                    raise InputError.at(pointer("predictors", j), (
+                        f"level '{lv}' of '{col}' has {cnt} row(s), so some cross-validation "
+                        "training fold never sees it; merge rare levels or use fewer folds"))

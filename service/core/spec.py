@@ -1,0 +1,165 @@
+"""Specifications (which column, on which scale) and the design matrices they imply."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import transforms as tr
+from .data import Prepared
+from .errors import CandidateFailure, InputError, pointer
+
+
+@dataclass(frozen=True)
+class PredictorSpec:
+    column: str
+    transform: tr.Transform
+
+
+@dataclass(frozen=True)
+class Specification:
+    response: str
+    response_transform: tr.Transform
+    predictors: tuple[PredictorSpec, ...]
+    intercept: bool = True
+
+    def to_dict(self) -> dict:
+        return {
+            "response": {"column": self.response, "transform": self.response_transform.to_dict()},
+            "predictors": [{"column": p.column, "transform": p.transform.to_dict()}
+                           for p in self.predictors],
+            "intercept": self.intercept,
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Specification":
+        return cls(
+            d["response"]["column"],
+            tr.from_dict(d["response"].get("transform") or {"name": "identity"}),
+            tuple(PredictorSpec(p["column"], tr.from_dict(p.get("transform") or {"name": "identity"}))
+                  for p in d["predictors"]),
+            bool(d.get("intercept", True)),
+        )
+
+    @property
+    def key(self) -> tuple:
+        return (self.response_transform, tuple(p.transform for p in self.predictors), self.intercept)
+
+    def simplicity(self) -> tuple[int, int, int]:
+        """Sort key, smaller = simpler (design choice documented in DEVELOPERS.md).
+
+        Fewer parameters estimated from the response first, then the summed
+        readability cost of the transforms (identity < log < sqrt/reciprocal/square/
+        power < estimated Box-Cox/Yeo-Johnson < shifted log), then fewer
+        transformed columns.
+        """
+        ts = [self.response_transform] + [p.transform for p in self.predictors]
+        n_est = sum(1 for t in ts if t.name in ("box_cox", "yeo_johnson") and
+                    (t.lam is None or t.estimated))
+        cost = sum(t.simplicity for t in ts if t.name != "categorical")
+        n_tr = sum(1 for t in ts if t.name not in ("identity", "categorical"))
+        return (n_est, cost, n_tr)
+
+    def response_label(self) -> str:
+        return self.response_transform.label(self.response)
+
+
+@dataclass
+class TermInfo:
+    column: str
+    kind: str  # numeric | categorical
+    indices: tuple[int, ...]
+    raw: np.ndarray | None
+    label: str
+
+
+@dataclass
+class Design:
+    X: np.ndarray
+    names: list[str]
+    terms: list[TermInfo]
+    levels: dict[str, dict] = field(default_factory=dict)  # column -> {levels, reference}
+
+
+def categorical_levels(values: np.ndarray, reference: str | None, column: str,
+                       where: str) -> tuple[list[str], str]:
+    levels = sorted(set(values.tolist()))
+    if reference is None:
+        reference = levels[0]
+    elif reference not in levels:
+        raise InputError.at(where, f"reference level '{reference}' of '{column}' does not occur "
+                            f"in the data (levels: {levels[:20]})")
+    return levels, reference
+
+
+def build_design(spec: Specification, prep: Prepared, cache: dict | None = None,
+                 ptr_prefix: str = "/specification") -> Design:
+    """Design matrix (n, p) for ``spec`` on the prepared rows.
+
+    Numeric predictors enter through their transform (domain checked: a
+    violation is a :class:`CandidateFailure`); categorical ones as treatment
+    dummies against the reference level.  ``cache`` maps (column, transform) to
+    already transformed columns so a search computes each column once.
+    """
+    cols: list[np.ndarray] = []
+    names: list[str] = []
+    terms: list[TermInfo] = []
+    levels: dict[str, dict] = {}
+    n = prep.n
+    if spec.intercept:
+        cols.append(np.ones(n))
+        names.append("intercept")
+    for j, p in enumerate(spec.predictors):
+        t = p.transform
+        if p.column in prep.categorical:
+            vals = prep.categorical[p.column]
+            ref = t.reference if t.name == "categorical" else None
+            lv, ref = categorical_levels(vals, ref, p.column,
+                                         pointer(*ptr_prefix.strip("/").split("/"), "predictors", j,
+                                                 "transform", "reference") if ptr_prefix else "")
+            start = len(cols)
+            for level in lv:
+                if level == ref:
+                    continue
+                cols.append((vals == level).astype(float))
+                names.append(f"{p.column}[{level}]")
+            levels[p.column] = {"levels": lv, "reference": ref}
+            terms.append(TermInfo(p.column, "categorical", tuple(range(start, len(cols))), None,
+                                  p.column))
+            continue
+        x = prep.numeric[p.column]
+        key = (p.column, t)
+        if cache is not None and key in cache:
+            w = cache[key]
+        else:
+            msg = t.domain_problem(x, p.column, "predictor")
+            if msg:
+                raise CandidateFailure(msg)
+            w = t.forward(x)
+            if not np.all(np.isfinite(w)):
+                raise CandidateFailure(f"{t.label(p.column)} is not finite for every row")
+            if cache is not None:
+                cache[key] = w
+        terms.append(TermInfo(p.column, "numeric", (len(cols),), x, t.label(p.column)))
+        cols.append(w)
+        names.append(t.label(p.column))
+    X = np.column_stack(cols) if cols else np.empty((n, 0))
+    return Design(X, names, terms, levels)
+
+
+def resolve_predictor_transforms(spec: Specification, prep: Prepared) -> Specification:
+    """Fix data-chosen predictor parameters (the shift of a log of a column with zeros).
+
+    These depend only on the predictor column, never on the response, so they
+    are chosen once on all used rows.
+    """
+    new = []
+    for p in spec.predictors:
+        t = p.transform
+        if p.column in prep.numeric and not t.is_fitted and t.name == "log":
+            t = tr.fit_transform(t, prep.numeric[p.column])
+        elif p.column in prep.numeric and not t.is_fitted:
+            raise CandidateFailure(f"{t.name} of a predictor needs an explicit lambda")
+        new.append(PredictorSpec(p.column, t))
+    return Specification(spec.response, spec.response_transform, tuple(new), spec.intercept)

@@ -1,0 +1,490 @@
+"""Transformations of a response or a numeric predictor.
+
+Each family provides ``forward``, ``inverse`` (``nan`` where the inverse is
+undefined, the caller decides what that means), a domain check with a message
+that names the fix, the summed log-Jacobian ``sum log|g'(y)|`` used to put
+likelihoods of different response scales on the original scale, and a label.
+
+Families whose parameter is estimated from data (Box-Cox and Yeo-Johnson
+``lambda`` of a response; the shift of a log when the column holds zeros) are
+first created *unfitted* and turned into a concrete transform by
+:func:`fit_transform` on the rows at hand, so that cross-validation can
+re-estimate them inside every training fold.
+
+References: Box & Cox (1964) JRSS B 26:211-252; Yeo & Johnson (2000)
+Biometrika 87:954-959; Tukey (1977) *Exploratory Data Analysis* (ladder of
+powers).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+LADDER = (-1.0, -0.5, 0.0, 0.5, 1.0, 2.0)
+_EPS = float(np.spacing(1.0)) * 64
+
+
+def _fmt_param(v: float) -> str:
+    return f"{v:.4g}"
+
+
+@dataclass(frozen=True)
+class Transform:
+    """A transformation ``g``.  ``lam``/``shift`` of ``None`` mean "estimate from data"."""
+
+    name: str
+    exponent: float | None = None
+    lam: float | None = None
+    shift: float | None = None
+    estimated: bool = False  # True when lam/shift came from the data
+    reference: str | None = None  # categorical only
+
+    # ------------------------------------------------------------------ facts
+    @property
+    def is_fitted(self) -> bool:
+        if self.name in ("box_cox", "yeo_johnson"):
+            return self.lam is not None
+        if self.name == "log":
+            return self.shift is not None
+        return True
+
+    @property
+    def is_identity(self) -> bool:
+        return self.name == "identity" or (self.name == "power" and self.exponent == 1.0)
+
+    @property
+    def increasing(self) -> bool:
+        if self.name == "reciprocal":
+            return False
+        if self.name == "power":
+            return bool(self.exponent and self.exponent > 0)
+        return True
+
+    @property
+    def n_estimated(self) -> int:
+        """Parameters estimated from the response (count in AIC/BIC)."""
+        return 1 if (self.estimated and self.name in ("box_cox", "yeo_johnson")) else 0
+
+    @property
+    def simplicity(self) -> int:
+        """Readability cost (design choice, see DEVELOPERS.md): lower reads easier."""
+        if self.name == "identity":
+            return 0
+        if self.name == "log":
+            return 4 if (self.shift or 0.0) != 0.0 else 1
+        if self.name in ("sqrt", "reciprocal", "square", "power"):
+            return 2
+        if self.name in ("box_cox", "yeo_johnson"):
+            return 3
+        return 2
+
+    def label(self, column: str) -> str:
+        n = self.name
+        if n == "identity" or n == "categorical":
+            return column
+        if n == "log":
+            if self.shift:
+                return f"log({column} + {_fmt_param(self.shift)})"
+            return f"log({column})"
+        if n == "sqrt":
+            return f"sqrt({column})"
+        if n == "reciprocal":
+            return f"1/{column}"
+        if n == "square":
+            return f"{column}^2"
+        if n == "power":
+            return f"{column}^{_fmt_param(self.exponent)}"
+        if n == "box_cox":
+            lam = "λ" if self.lam is None else _fmt_param(self.lam)
+            return f"boxcox({column}, {lam})"
+        if n == "yeo_johnson":
+            lam = "λ" if self.lam is None else _fmt_param(self.lam)
+            return f"yeojohnson({column}, {lam})"
+        return f"{n}({column})"
+
+    def to_dict(self) -> dict:
+        d: dict = {"name": self.name}
+        if self.name == "power":
+            d["exponent"] = self.exponent
+        if self.name in ("box_cox", "yeo_johnson") and self.lam is not None:
+            d["lambda"] = self.lam
+        if self.name == "log" and self.shift:
+            d["shift"] = self.shift
+        if self.name == "categorical" and self.reference is not None:
+            d["reference"] = self.reference
+        if self.estimated:
+            d["estimated"] = True
+        return d
+
+    # --------------------------------------------------------------- domains
+    def domain_problem(self, x: np.ndarray, column: str, role: str) -> str | None:
+        """``None`` if ``g`` can be applied to every value of ``x``, else a message with the fix."""
+        n = self.name
+        lo = float(np.min(x)) if x.size else 0.0
+        if n in ("identity", "categorical", "yeo_johnson"):
+            return None
+        if n == "log":
+            if self.shift is None:  # shift chosen from data when there are zeros
+                if lo < 0:
+                    return (f"{role} '{column}' has negative values (minimum {lo:.6g}); log needs "
+                            "values >= 0 (zeros get a shift); use yeo_johnson or give log an "
+                            "explicit 'shift'")
+                return None
+            if lo + self.shift <= 0:
+                return (f"{role} '{column}' plus shift {self.shift:.6g} is not positive "
+                        f"everywhere (minimum {lo:.6g}); log needs values > 0; use a larger "
+                        "shift or yeo_johnson")
+            return None
+        if n in ("sqrt", "square"):
+            if lo < 0:
+                return (f"{role} '{column}' has negative values (minimum {lo:.6g}); {n} needs "
+                        "values >= 0; use yeo_johnson")
+            return None
+        if n == "power":
+            if self.exponent is not None and self.exponent > 0:
+                if lo < 0:
+                    return (f"{role} '{column}' has negative values (minimum {lo:.6g}); power "
+                            "needs values >= 0; use yeo_johnson")
+                return None
+        if n in ("reciprocal", "power", "box_cox"):
+            if lo <= 0:
+                return (f"{role} '{column}' has values <= 0 (minimum {lo:.6g}); {n} needs "
+                        "values > 0; use a shifted log or yeo_johnson")
+            return None
+        return None
+
+    # ---------------------------------------------------------- forward/back
+    def forward(self, x: np.ndarray) -> np.ndarray:
+        n = self.name
+        x = np.asarray(x, dtype=float)
+        if n == "identity":
+            return x.copy()
+        if n == "log":
+            return np.log(x + (self.shift or 0.0))
+        if n == "sqrt":
+            return np.sqrt(x)
+        if n == "reciprocal":
+            return 1.0 / x
+        if n == "square":
+            return x * x
+        if n == "power":
+            return np.power(x, self.exponent)
+        if n == "box_cox":
+            return _box_cox(x, self.lam)
+        if n == "yeo_johnson":
+            return _yeo_johnson(x, self.lam)
+        raise ValueError(f"transform {n!r} has no numeric forward map")
+
+    def inverse(self, z: np.ndarray) -> np.ndarray:
+        """Back to the original scale; ``nan`` where the inverse does not exist.
+
+        Values too large for a float come back as ``inf`` (callers treat any
+        non-finite value as a failed back-transform).
+
+        Clipping rules (as in Duan 1983 smearing practice): a square root or an
+        increasing power whose argument falls below 0 maps to 0; Box-Cox with
+        lambda > 0 clips its base at 0.  Where the original value would be
+        unbounded (reciprocal of z <= 0, Box-Cox lambda < 0 with 1 + lambda z <= 0)
+        the result is ``nan``.
+        """
+        n = self.name
+        z = np.asarray(z, dtype=float)
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            if n == "identity":
+                out = z.copy()
+            elif n == "log":
+                out = np.exp(z) - (self.shift or 0.0)
+            elif n == "sqrt":
+                zc = np.maximum(z, 0.0)
+                out = zc * zc
+            elif n == "square":
+                out = np.sqrt(np.maximum(z, 0.0))
+            elif n == "power" and self.exponent > 0:
+                out = np.power(np.maximum(z, 0.0), 1.0 / self.exponent)
+            elif n == "reciprocal":
+                out = np.where(z > 0, 1.0 / np.where(z > 0, z, 1.0), np.nan)
+            elif n == "power":
+                q = self.exponent
+                if q > 0:
+                    out = np.power(np.maximum(z, 0.0), 1.0 / q)
+                else:
+                    out = np.where(z > 0, np.power(np.where(z > 0, z, 1.0), 1.0 / q), np.nan)
+            elif n == "box_cox":
+                out = _inv_box_cox(z, self.lam)
+            elif n == "yeo_johnson":
+                out = _inv_yeo_johnson(z, self.lam)
+            else:
+                raise ValueError(f"transform {n!r} has no inverse")
+        out = np.where(np.isfinite(out), out, np.nan)
+        return out
+
+    def inverse_singularity(self) -> float | None:
+        """The one point where g^-1 is not analytic (a pole, clip or branch), if any."""
+        n = self.name
+        if n in ("identity", "log"):
+            return None
+        if n == "box_cox":
+            return None if abs(self.lam) < 1e-12 else -1.0 / self.lam
+        if n == "yeo_johnson" and abs(self.lam - 1.0) < 1e-12:
+            return None
+        return 0.0
+
+    def inverse_derivative(self, z: np.ndarray) -> np.ndarray:
+        """d g^-1(z) / dz, with the same clipping as :meth:`inverse` (0 where clipped)."""
+        n = self.name
+        z = np.asarray(z, dtype=float)
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            if n == "identity":
+                out = np.ones_like(z)
+            elif n == "log" or (n == "box_cox" and abs(self.lam) < 1e-12):
+                out = np.exp(z)
+            elif n == "sqrt":
+                out = 2.0 * np.maximum(z, 0.0)
+            elif n == "square":
+                out = np.where(z > 0, 0.5 / np.sqrt(np.where(z > 0, z, 1.0)), 0.0)
+            elif n == "reciprocal":
+                out = np.where(z > 0, -1.0 / (z * z), np.nan)
+            elif n in ("power", "box_cox"):
+                if n == "power":
+                    a, base = 1.0 / self.exponent, z
+                else:
+                    a, base = 1.0 / self.lam, 1.0 + self.lam * z
+                ok = base > 0
+                val = np.power(np.where(ok, base, 1.0), a - 1.0) * (a if n == "power" else 1.0)
+                out = np.where(ok, val, 0.0 if a > 0 else np.nan)
+            elif n == "yeo_johnson":
+                lam = self.lam
+                out = np.empty_like(z)
+                pos = z >= 0
+                zp, zn = z[pos], z[~pos]
+                if abs(lam) < 1e-12:
+                    out[pos] = np.exp(zp)
+                else:
+                    b = 1.0 + lam * zp
+                    out[pos] = np.where(b > 0, np.power(np.where(b > 0, b, 1.0), 1.0 / lam - 1.0),
+                                        np.nan)
+                if abs(lam - 2.0) < 1e-12:
+                    out[~pos] = np.exp(-zn)
+                else:
+                    c = 2.0 - lam
+                    b = 1.0 - c * zn
+                    out[~pos] = np.where(b > 0, np.power(np.where(b > 0, b, 1.0), 1.0 / c - 1.0),
+                                         np.nan)
+            else:
+                raise ValueError(n)
+        return np.where(np.isfinite(out), out, np.nan)
+
+    def derivative(self, y: np.ndarray) -> np.ndarray:
+        """g'(y)."""
+        n = self.name
+        y = np.asarray(y, dtype=float)
+        if n == "identity":
+            return np.ones_like(y)
+        if n == "log":
+            return 1.0 / (y + (self.shift or 0.0))
+        if n == "sqrt":
+            return 0.5 / np.sqrt(y)
+        if n == "reciprocal":
+            return -1.0 / (y * y)
+        if n == "square":
+            return 2.0 * y
+        if n == "power":
+            return self.exponent * np.power(y, self.exponent - 1.0)
+        if n == "box_cox":
+            return np.power(y, self.lam - 1.0)
+        if n == "yeo_johnson":
+            return np.power(np.abs(y) + 1.0, np.sign(y) * (self.lam - 1.0))
+        raise ValueError(n)
+
+    def log_jacobian(self, y: np.ndarray) -> float:
+        """sum_i log|g'(y_i)|: add to a z-scale log-likelihood to get the y-scale one."""
+        n = self.name
+        y = np.asarray(y, dtype=float)
+        if n == "identity":
+            return 0.0
+        if n == "log":
+            return float(-np.sum(np.log(y + (self.shift or 0.0))))
+        if n == "sqrt":
+            return float(-y.size * math.log(2.0) - 0.5 * np.sum(np.log(y)))
+        if n == "reciprocal":
+            return float(-2.0 * np.sum(np.log(y)))
+        if n == "square":
+            return float(y.size * math.log(2.0) + np.sum(np.log(y)))
+        if n == "power":
+            q = self.exponent
+            return float(y.size * math.log(abs(q)) + (q - 1.0) * np.sum(np.log(y)))
+        if n == "box_cox":
+            return float((self.lam - 1.0) * np.sum(np.log(y)))
+        if n == "yeo_johnson":
+            return float((self.lam - 1.0) * np.sum(np.sign(y) * np.log1p(np.abs(y))))
+        raise ValueError(n)
+
+
+# ---------------------------------------------------------------- families
+def _box_cox(y: np.ndarray, lam: float) -> np.ndarray:
+    ly = np.log(y)
+    if abs(lam) < 1e-12:
+        return ly
+    with np.errstate(over="ignore"):
+        return np.expm1(lam * ly) / lam
+
+
+def _inv_box_cox(z: np.ndarray, lam: float) -> np.ndarray:
+    if abs(lam) < 1e-12:
+        return np.exp(z)
+    base = 1.0 + lam * z
+    if lam > 0:
+        return np.power(np.maximum(base, 0.0), 1.0 / lam)
+    return np.where(base > 0, np.power(np.where(base > 0, base, 1.0), 1.0 / lam), np.nan)
+
+
+def _yeo_johnson(y: np.ndarray, lam: float) -> np.ndarray:
+    out = np.empty_like(y, dtype=float)
+    pos = y >= 0
+    yp, yn = y[pos], y[~pos]
+    with np.errstate(over="ignore"):
+        if abs(lam) < 1e-12:
+            out[pos] = np.log1p(yp)
+        else:
+            out[pos] = np.expm1(lam * np.log1p(yp)) / lam
+        if abs(lam - 2.0) < 1e-12:
+            out[~pos] = -np.log1p(-yn)
+        else:
+            out[~pos] = -np.expm1((2.0 - lam) * np.log1p(-yn)) / (2.0 - lam)
+    return out
+
+
+def _inv_yeo_johnson(z: np.ndarray, lam: float) -> np.ndarray:
+    out = np.empty_like(z, dtype=float)
+    pos = z >= 0
+    zp, zn = z[pos], z[~pos]
+    if abs(lam) < 1e-12:
+        out[pos] = np.expm1(zp)
+    else:
+        base = 1.0 + lam * zp
+        ok = base > 0
+        out[pos] = np.where(ok, np.expm1(np.log(np.where(ok, base, 1.0)) / lam), np.nan)
+    if abs(lam - 2.0) < 1e-12:
+        out[~pos] = -np.expm1(-zn)
+    else:
+        b = 1.0 - (2.0 - lam) * zn
+        ok = b > 0
+        out[~pos] = np.where(ok, -np.expm1(np.log(np.where(ok, b, 1.0)) / (2.0 - lam)), np.nan)
+    return out
+
+
+# ------------------------------------------------------------- constructors
+NUMERIC_NAMES = ("identity", "log", "sqrt", "reciprocal", "square", "power", "box_cox",
+                 "yeo_johnson")
+ALL_NAMES = NUMERIC_NAMES + ("categorical",)
+
+
+def from_dict(d: dict) -> Transform:
+    """Build from a contract Transform object (already type-checked by the caller)."""
+    name = d["name"]
+    if name == "power":
+        return Transform("power", exponent=float(d["exponent"]))
+    if name in ("box_cox", "yeo_johnson"):
+        lam = d.get("lambda")
+        return Transform(name, lam=None if lam is None else float(lam),
+                         estimated=bool(d.get("estimated", False)))
+    if name == "log":
+        shift = d.get("shift")
+        return Transform("log", shift=None if shift is None else float(shift),
+                         estimated=bool(d.get("estimated", False)))
+    if name == "categorical":
+        return Transform("categorical", reference=d.get("reference"))
+    return Transform(name)
+
+
+def chosen_shift(x: np.ndarray) -> float:
+    """Shift for log(x + c) when x has zeros: half the smallest positive value (common practice)."""
+    pos = x[x > 0]
+    if pos.size == 0:
+        return 1.0
+    return float(0.5 * np.min(pos))
+
+
+def needs_shift(x: np.ndarray) -> bool:
+    return bool(np.min(x) <= 0)
+
+
+def fit_transform(t: Transform, y: np.ndarray, X: np.ndarray | None = None,
+                  shift_needed: bool | None = None) -> Transform:
+    """Return a concrete transform, estimating what ``t`` leaves open from ``y`` (and design ``X``).
+
+    ``shift_needed`` says whether a log needs a shift (decided on the whole
+    column, so every fold agrees on the family); the value comes from ``y``.
+    """
+    if t.is_fitted:
+        return t
+    if t.name == "log":
+        need = needs_shift(y) if shift_needed is None else shift_needed
+        if not need:
+            return replace(t, shift=0.0)
+        return replace(t, shift=chosen_shift(y), estimated=True)
+    if t.name in ("box_cox", "yeo_johnson"):
+        from .likelihood import estimate_lambda  # local import: avoids a cycle
+
+        est = estimate_lambda(t.name, y, X)
+        return replace(t, lam=est.lam, estimated=True)
+    return t
+
+
+def ladder_transform(power: float) -> Transform:
+    """The named transform for a rung of the ladder of powers (Tukey 1977)."""
+    if abs(power) < _EPS:
+        return Transform("log", shift=0.0)
+    if abs(power - 1.0) < _EPS:
+        return Transform("identity")
+    if abs(power - 0.5) < _EPS:
+        return Transform("sqrt")
+    if abs(power + 1.0) < _EPS:
+        return Transform("reciprocal")
+    if abs(power - 2.0) < _EPS:
+        return Transform("square")
+    return Transform("power", exponent=float(power))
+
+
+CATALOGUE = [
+    {"name": "identity", "parameters": [], "domain": "any real value",
+     "applies_to": ["response", "predictor"],
+     "reading": "a slope is the change in the response (or in the model scale) per unit of x"},
+    {"name": "log", "parameters": [{"name": "shift", "required": False,
+                                    "meaning": "added before the log; chosen as half the smallest "
+                                               "positive value when the column has zeros"}],
+     "domain": "x + shift > 0 (zeros get a data-chosen shift; negatives need an explicit shift)",
+     "applies_to": ["response", "predictor"],
+     "reading": "log response: one unit of x multiplies the median response by exp(b), i.e. "
+                "100(exp(b)-1)% ; log predictor: a 1% increase in x changes the model scale by "
+                "b·ln(1.01); log-log: b is an elasticity"},
+    {"name": "sqrt", "parameters": [], "domain": "x >= 0", "applies_to": ["response", "predictor"],
+     "reading": "no constant-rate reading; effects are reported as back-transformed predictions "
+                "at two values of x"},
+    {"name": "reciprocal", "parameters": [], "domain": "x > 0", "applies_to": ["response", "predictor"],
+     "reading": "1/x reverses order: a positive slope on 1/y means y falls as x rises"},
+    {"name": "square", "parameters": [], "domain": "x >= 0", "applies_to": ["response", "predictor"],
+     "reading": "no constant-rate reading; effects are reported at two values of x"},
+    {"name": "power", "parameters": [{"name": "exponent", "required": True,
+                                      "meaning": "non-zero exponent q in x^q"}],
+     "domain": "x >= 0 for q > 0, x > 0 for q < 0", "applies_to": ["response", "predictor"],
+     "reading": "no constant-rate reading; q < 0 reverses order"},
+    {"name": "box_cox", "parameters": [{"name": "lambda", "required": False,
+                                        "meaning": "omit on the response to estimate it by the "
+                                                   "profile likelihood of the whole model"}],
+     "domain": "x > 0", "applies_to": ["response", "predictor (with a fixed lambda)"],
+     "reading": "(x^λ - 1)/λ, log at λ = 0; no constant-rate reading"},
+    {"name": "yeo_johnson", "parameters": [{"name": "lambda", "required": False,
+                                            "meaning": "omit on the response to estimate it"}],
+     "domain": "any real value (not scale invariant)",
+     "applies_to": ["response", "predictor (with a fixed lambda)"],
+     "reading": "Box-Cox-like power of x + 1 (and of 1 - x for negatives); no constant-rate reading"},
+    {"name": "categorical", "parameters": [{"name": "reference", "required": False,
+                                            "meaning": "baseline level (default: first in sorted order)"}],
+     "domain": "any values, read as levels", "applies_to": ["predictor"],
+     "reading": "treatment dummies: each level's coefficient is its difference from the reference "
+                "level on the model scale (a percent difference under a log response)"},
+]

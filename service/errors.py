@@ -1,0 +1,125 @@
+"""RFC 9457 problem details: one place that maps every known error to a response."""
+
+from __future__ import annotations
+
+import logging
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.responses import JSONResponse
+
+from .core.errors import BestscaleError, BudgetError, InputError, ModelFailure
+
+log = logging.getLogger("bestscale")
+PROBLEM = "application/problem+json"
+
+
+class ProblemError(Exception):
+    """An HTTP-level problem raised by the web layer itself (size, media type, auth)."""
+
+    def __init__(self, status: int, kind: str, title: str, detail: str,
+                 errors: list[dict] | None = None, headers: dict | None = None):
+        super().__init__(detail)
+        self.status, self.kind, self.title, self.detail = status, kind, title, detail
+        self.errors = errors or []
+        self.headers = headers or {}
+
+
+def problem(status: int, kind: str, title: str, detail: str, errors: list[dict] | None = None,
+            headers: dict | None = None, request: Request | None = None) -> JSONResponse:
+    body = {"type": f"urn:bestscale:problem:{kind}", "title": title, "status": status,
+            "detail": detail, "errors": errors or []}
+    if request is not None:
+        rid = getattr(request.state, "request_id", None)
+        if rid:
+            body["request_id"] = rid
+        body["instance"] = request.url.path
+    return JSONResponse(body, status_code=status, media_type=PROBLEM, headers=headers)
+
+
+def _pointer_from_loc(loc: tuple, body) -> str:
+    """JSON Pointer for a pydantic error location, skipping union/type tags."""
+    parts: list[str] = []
+    node = body
+    for item in loc:
+        if item == "body" and not parts and node is body:
+            continue
+        if isinstance(node, dict) and isinstance(item, str) and item in node:
+            node = node[item]
+            parts.append(item)
+        elif isinstance(node, list) and isinstance(item, int) and 0 <= item < len(node):
+            node = node[item]
+            parts.append(str(item))
+        elif isinstance(node, dict) and isinstance(item, str) and "[" not in item and "," not in item \
+                and not item.startswith("function-"):
+            parts.append(item)  # a missing field: point where it belongs
+            node = None
+        # otherwise a union member tag such as "str" or "TransformIn": not part of the path
+    return "/" + "/".join(p.replace("~", "~0").replace("/", "~1") for p in parts) if parts else ""
+
+
+def _message(err: dict) -> str:
+    msg = err.get("msg", "invalid value")
+    if msg.startswith("Value error, "):
+        msg = msg[len("Value error, "):]
+    if err.get("type") == "extra_forbidden":
+        return f"unknown field '{err['loc'][-1]}'"
+    if err.get("type") == "missing":
+        return f"field '{err['loc'][-1]}' is required"
+    return msg
+
+
+def install(app: FastAPI) -> None:
+    @app.exception_handler(RequestValidationError)
+    async def _validation(request: Request, exc: RequestValidationError):
+        errs = exc.errors()
+        if errs and errs[0].get("type") == "json_invalid":
+            pos = errs[0].get("loc", ("body", 0))[-1]
+            return problem(400, "malformed-body", "Malformed JSON body",
+                           f"the body is not valid JSON (near byte {pos}); NaN and Infinity are "
+                           "not JSON: send null for a missing value", request=request)
+        body = exc.body if hasattr(exc, "body") else None
+        items = []
+        seen = set()
+        for e in errs:
+            ptr = _pointer_from_loc(tuple(e.get("loc", ())), body)
+            text = _message(e)
+            if (ptr, text) in seen:
+                continue
+            seen.add((ptr, text))
+            items.append({"pointer": ptr, "detail": text})
+        if body is None or not isinstance(body, dict):
+            return problem(400, "malformed-body", "Malformed request body",
+                           "the body must be a JSON object", items, request=request)
+        detail = items[0]["detail"] if len(items) == 1 else f"{len(items)} fields are invalid"
+        if len(items) == 1 and items[0]["pointer"]:
+            detail = f"{items[0]['pointer']}: {items[0]['detail']}"
+        return problem(422, "invalid-input", "Invalid request content", detail, items,
+                       request=request)
+
+    @app.exception_handler(ProblemError)
+    async def _problem(request: Request, exc: ProblemError):
+        return problem(exc.status, exc.kind, exc.title, exc.detail, exc.errors, exc.headers,
+                       request=request)
+
+    @app.exception_handler(BestscaleError)
+    async def _domain(request: Request, exc: BestscaleError):
+        status = 503 if isinstance(exc, BudgetError) else 422
+        headers = {"Retry-After": "5"} if isinstance(exc, BudgetError) else None
+        errors = [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems]
+        kind = exc.kind if isinstance(exc, (InputError, ModelFailure, BudgetError)) else "error"
+        return problem(status, kind, exc.title, exc.detail, errors, headers, request=request)
+
+    @app.exception_handler(StarletteHTTPException)
+    async def _http(request: Request, exc: StarletteHTTPException):
+        titles = {404: "Not found", 405: "Method not allowed"}
+        return problem(exc.status_code, "http", titles.get(exc.status_code, "HTTP error"),
+                       str(exc.detail), headers=getattr(exc, "headers", None), request=request)
+
+    @app.exception_handler(Exception)
+    async def _unexpected(request: Request, exc: Exception):
+        log.exception("unhandled error on %s", request.url.path)
+        return problem(500, "internal", "Internal error",
+                       "the service failed on this request; quote the request id when reporting it",
+                       request=request)
