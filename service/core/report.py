@@ -35,7 +35,7 @@ def equation(spec: Specification, design: Design, coef: np.ndarray) -> str:
         if name == "intercept":
             parts.append(_num(b))
             continue
-        term = f"[{name}]" if "[" in name else name
+        term = name
         if not parts:
             parts.append(f"{_num(b)}·{term}")
         else:
