@@ -147,8 +147,10 @@ def cross_validate(X: np.ndarray, y: np.ndarray, response_transform: tr.Transfor
             e = ztr - Xtr @ coef
             eta = X[test] @ coef
             med = retransform.naive(t, eta)
-            mean = retransform.smeared_mean(t, eta, e)
-            bad = ~(np.isfinite(med) & np.isfinite(mean))
+            bad = ~np.isfinite(med)
+            if not np.any(bad):
+                mean = retransform.smeared_mean(t, eta, e)
+                bad = ~np.isfinite(mean)
             if np.any(bad):
                 raise CandidateFailure(
                     f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or "

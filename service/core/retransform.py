@@ -119,26 +119,42 @@ def gauss_rule(e: np.ndarray, q: int) -> tuple[np.ndarray, np.ndarray]:
 def _smear_gauss(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray | None:
     """Smearing by Gauss quadrature over the residual distribution, verified before use.
 
-    Used only when the inverse is analytic over every eta + e_i (its single
-    pole/clip/branch point lies outside that range).  The rule is exact for
-    polynomial inverses of degree < 2q; otherwise its error grows towards the
-    singular point, so it is checked against the exact mean at the smallest,
-    median and largest eta and used only when every check agrees to SMEAR_RTOL.  ``None`` means: use another method.
+    Used for the etas whose whole range eta + e_i keeps clear of every point
+    where the inverse is not analytic (pole, clip, branch change); the others
+    are computed exactly.  The rule is exact for polynomial inverses of degree
+    < 2q; otherwise its error grows towards the nearest singular point, so it is
+    checked against the exact mean at the safe etas closest to each singular
+    point and at the median, and the safe margin is widened until every check
+    agrees to SMEAR_RTOL.  ``None`` means: no eta could use the rule.
     """
-    sing = t.inverse_singularity()
-    if sing is not None and eta.min() + e.min() <= sing <= eta.max() + e.max():
-        return None  # a kink or pole inside the range: no polynomial rule is accurate
-    check = np.array([eta.min(), np.median(eta), eta.max()])
-    exact = _exact(t, check, e)
-    if not np.all(np.isfinite(exact)):
-        return None
-    for q in GAUSS_NODES:
-        nodes, w = gauss_rule(e, q)
-        approx = t.inverse(check[:, None] + nodes[None, :]) @ w
-        err = np.abs(approx - exact) / np.maximum(np.abs(exact), 1e-300)
-        if np.all(np.isfinite(err)) and np.max(err) <= SMEAR_RTOL:
-            out = t.inverse(eta[:, None] + nodes[None, :]) @ w
-            return out if np.all(np.isfinite(out)) else None
+    sing = np.asarray(t.inverse_singularities(), dtype=float)
+    lo_e, hi_e = float(e.min()), float(e.max())
+    spread = max(hi_e - lo_e, 1e-12)
+    out = np.full(eta.size, np.nan)
+    rules = [gauss_rule(e, q) for q in GAUSS_NODES]
+    margin = 0.0
+    for _ in range(6):
+        safe = np.ones(eta.size, dtype=bool)
+        for s in sing:
+            safe &= (eta + lo_e > s + margin) | (eta + hi_e < s - margin)
+        if not np.any(safe):
+            return None
+        es = eta[safe]
+        check = np.unique(np.array([es.min(), np.median(es), es.max()]))
+        exact = _exact(t, check, e)
+        if not np.all(np.isfinite(exact)):
+            return None
+        for nodes, w in rules:
+            approx = t.inverse(check[:, None] + nodes[None, :]) @ w
+            err = np.abs(approx - exact) / np.maximum(np.abs(exact), 1e-300)
+            if np.all(np.isfinite(err)) and np.max(err) <= SMEAR_RTOL:
+                out[safe] = t.inverse(es[:, None] + nodes[None, :]) @ w
+                if np.any(~safe):
+                    out[~safe] = _exact(t, eta[~safe], e)
+                return out if np.all(np.isfinite(out[safe])) else None
+        if sing.size == 0:
+            return None
+        margin = 2.0 * margin + 0.1 * spread
     return None
 
 

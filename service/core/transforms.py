@@ -221,16 +221,22 @@ class Transform:
         out = np.where(np.isfinite(out), out, np.nan)
         return out
 
-    def inverse_singularity(self) -> float | None:
-        """The one point where g^-1 is not analytic (a pole, clip or branch), if any."""
+    def inverse_singularities(self) -> tuple[float, ...]:
+        """Points where g^-1 is not analytic (a pole, a clip or a branch change)."""
         n = self.name
         if n in ("identity", "log"):
-            return None
+            return ()
         if n == "box_cox":
-            return None if abs(self.lam) < 1e-12 else -1.0 / self.lam
-        if n == "yeo_johnson" and abs(self.lam - 1.0) < 1e-12:
-            return None
-        return 0.0
+            return () if abs(self.lam) < 1e-12 else (-1.0 / self.lam,)
+        if n == "yeo_johnson":
+            lam = self.lam
+            pts = [] if abs(lam - 1.0) < 1e-12 else [0.0]
+            if lam < -1e-12:
+                pts.append(-1.0 / lam)
+            if lam > 2.0 + 1e-12:
+                pts.append(-1.0 / (lam - 2.0))
+            return tuple(pts)
+        return (0.0,)
 
     def inverse_derivative(self, z: np.ndarray) -> np.ndarray:
         """d g^-1(z) / dz, with the same clipping as :meth:`inverse` (0 where clipped)."""

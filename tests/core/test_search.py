@@ -1,0 +1,97 @@
+"""Search and ranking rules (the one-standard-error rule, budgets, failures)."""
+
+import numpy as np
+import pytest
+
+from service.core import transforms as tr
+from service.core.crossval import CVResult
+from service.core.data import prepare
+from service.core.errors import BudgetError, InputError
+from service.core.search import Scored, SearchOptions, rank, run_selection
+from service.core.spec import PredictorSpec, Specification
+
+
+def _scored(resp: str, pred: str, value: float, se: float) -> Scored:
+    spec = Specification("y", tr.from_dict({"name": resp}),
+                         (PredictorSpec("x", tr.from_dict({"name": pred})),))
+    return Scored(spec, CVResult("rmse", value, se, np.array([value]), {"rmse": value}))
+
+
+def test_one_se_rule_prefers_the_simplest_inside_the_band():
+    # source: Breiman et al. (1984) p. 80; Hastie, Tibshirani & Friedman (2009) p. 61
+    best = _scored("box_cox", "log", 10.0, 1.0)
+    simple = _scored("identity", "identity", 10.9, 1.0)   # inside best + 1 SE
+    middle = _scored("log", "log", 10.5, 1.0)              # inside, less simple
+    outside = _scored("identity", "sqrt", 11.5, 1.0)       # outside the band
+    ranked, cut = rank([best, simple, middle, outside])
+    assert cut == pytest.approx(11.0)
+    order = [s for s, _ in ranked]
+    assert order[0] is simple and order[1] is middle and order[2] is best and order[3] is outside
+    parts = [p for _, p in ranked]
+    assert [p["within_one_se"] for p in parts] == [True, True, True, False]
+
+
+def test_outside_the_band_is_ordered_by_error():
+    a = _scored("identity", "identity", 1.0, 0.01)
+    b = _scored("log", "identity", 3.0, 0.01)
+    c = _scored("sqrt", "identity", 2.0, 0.01)
+    ranked, _ = rank([b, c, a])
+    assert [s for s, _ in ranked] == [a, c, b]
+
+
+def _linear_prep(n=120, seed=3):
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(1, 10, n)
+    y = 2.0 + 0.5 * x + rng.normal(0, 0.3, n)
+    return prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
+
+
+def test_max_candidates_stops_the_search_incomplete():
+    out = run_selection(_linear_prep(), SearchOptions(max_candidates=3), "t")
+    assert out["search"]["candidates_scored"] + out["search"]["candidates_failed"] == 3
+    assert out["search"]["complete"] is False
+    assert any("stopped early" in w for w in out["warnings"])
+
+
+def test_time_limit_with_nothing_done_is_a_budget_error():
+    with pytest.raises(BudgetError):
+        run_selection(_linear_prep(), SearchOptions(time_limit_s=1e-9), "t")
+
+
+def test_failed_candidates_do_not_stop_the_search():
+    # y near zero with a reciprocal response: some back-transforms are undefined
+    rng = np.random.default_rng(0)
+    x = rng.uniform(0, 5, 80)
+    y = np.exp(0.3 * x + rng.normal(0, 1.0, 80))
+    prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
+    out = run_selection(prep, SearchOptions(response_transforms=["identity", "reciprocal"],
+                                            predictor_transforms=["identity"]), "t")
+    assert out["search"]["candidates_scored"] >= 1
+    for f in out["search"]["failures"]:
+        assert f["reason"]
+
+
+def test_explicit_inapplicable_transform_is_an_input_error():
+    rng = np.random.default_rng(0)
+    x = rng.uniform(0, 5, 50)
+    y = x - 2 + rng.normal(0, 0.1, 50)  # has negatives
+    prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
+    with pytest.raises(InputError) as exc:
+        run_selection(prep, SearchOptions(response_transforms=["identity", "log"]), "t")
+    assert exc.value.problems[0].pointer == "/transforms/response/1"
+    assert "yeo_johnson" in exc.value.problems[0].detail
+
+
+def test_same_request_gives_identical_numbers():
+    a = run_selection(_linear_prep(), SearchOptions(), "t")
+    b = run_selection(_linear_prep(), SearchOptions(), "t")
+    ka = [(e["equation"], e["cv"]["value"]) for e in a["ranking"]]
+    kb = [(e["equation"], e["cv"]["value"]) for e in b["ranking"]]
+    assert ka == kb
+
+
+def test_linear_data_keep_the_identity_scale():
+    out = run_selection(_linear_prep(n=400), SearchOptions(), "t")
+    spec = out["ranking"][0]["specification"]
+    assert spec["response"]["transform"]["name"] == "identity"
+    assert spec["predictors"][0]["transform"]["name"] == "identity"
