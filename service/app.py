@@ -8,10 +8,20 @@ from fastapi import FastAPI
 
 from . import errors
 from .api.routes import router
+from .settings import get_settings
 from .version import __version__
 
 
+def limit_blas_threads(n: int) -> None:
+    """Small dense problems run fastest single-threaded; request-level parallelism comes
+    from the worker pool, so BLAS threads are pinned process-wide (setting blas_threads)."""
+    from threadpoolctl import threadpool_limits
+
+    threadpool_limits(limits=n)
+
+
 def create_app() -> FastAPI:
+    limit_blas_threads(get_settings().blas_threads)
     app = FastAPI(
         title="Bestscale",
         version=__version__,

@@ -122,6 +122,12 @@ def cross_validate(X: np.ndarray, y: np.ndarray, response_transform: tr.Transfor
     lambdas: list[float] = []
     estimate_lam = response_transform.name in ("box_cox", "yeo_johnson") and \
         not response_transform.is_fitted
+    near = None
+    if estimate_lam:
+        try:
+            near = tr.fit_transform(response_transform, y, X).lam
+        except ValueError as exc:
+            raise CandidateFailure(str(exc)) from None
     j = 0
     for r, assign in enumerate(plan.assignments):
         sq = np.empty(y.size)
@@ -132,7 +138,8 @@ def cross_validate(X: np.ndarray, y: np.ndarray, response_transform: tr.Transfor
             train = ~test
             Xtr, ytr = X[train], y[train]
             try:
-                t = tr.fit_transform(response_transform, ytr, Xtr, shift_needed=shift_needed)
+                t = tr.fit_transform(response_transform, ytr, Xtr, shift_needed=shift_needed,
+                                     near=near)
             except ValueError as exc:
                 raise CandidateFailure(f"fold {k + 1}: {exc}") from None
             if estimate_lam:

@@ -120,18 +120,31 @@ def profile_loglik(family: str, y: np.ndarray, X: np.ndarray | None, lam: float)
 
 
 def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
-                    level: float = 0.95, with_interval: bool = True) -> LambdaEstimate:
+                    level: float = 0.95, with_interval: bool = True,
+                    near: float | None = None) -> LambdaEstimate:
     """Maximum-likelihood lambda of a Box-Cox or Yeo-Johnson response in the model y(lambda) ~ X.
 
     ``y``: (n,) response (> 0 for Box-Cox); ``X``: (n, p) design or ``None`` for a
     constant only.  Grid over [-3, 3] then bounded Brent refinement; the
-    likelihood-ratio interval end points by ``brentq`` out to +-5.
+    likelihood-ratio interval end points by ``brentq`` out to +-5.  ``near``
+    (e.g. the estimate on all rows, when re-estimating inside a fold) starts
+    with a finer grid of +-1 around it; if the best grid point falls on that
+    grid's edge the whole range is searched.
     """
     y = np.asarray(y, dtype=float)
     proj = _Projector(X, y.size)
     f = _profile(family, y, proj)
-    grid = np.linspace(LAMBDA_BOUNDS[0], LAMBDA_BOUNDS[1], 25)
-    vals = np.array([f(g) for g in grid])
+    grid = vals = None
+    if near is not None and math.isfinite(near):
+        grid = np.clip(np.linspace(near - 1.0, near + 1.0, 9), *LAMBDA_BOUNDS)
+        vals = np.array([f(g) for g in grid])
+        i = int(np.argmax(np.where(np.isfinite(vals), vals, -np.inf)))
+        if not np.isfinite(vals[i]) or (i in (0, grid.size - 1) and
+                                        LAMBDA_BOUNDS[0] < grid[i] < LAMBDA_BOUNDS[1]):
+            grid = None
+    if grid is None:
+        grid = np.linspace(LAMBDA_BOUNDS[0], LAMBDA_BOUNDS[1], 25)
+        vals = np.array([f(g) for g in grid])
     if not np.any(np.isfinite(vals)):
         raise ValueError("the profile likelihood is not finite anywhere on [-3, 3]")
     i = int(np.nanargmax(np.where(np.isfinite(vals), vals, -np.inf)))

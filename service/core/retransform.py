@@ -131,7 +131,7 @@ def _smear_gauss(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray | N
     lo_e, hi_e = float(e.min()), float(e.max())
     spread = max(hi_e - lo_e, 1e-12)
     out = np.full(eta.size, np.nan)
-    rules = [gauss_rule(e, q) for q in GAUSS_NODES]
+    rules: dict[int, tuple[np.ndarray, np.ndarray]] = {}
     margin = 0.0
     for _ in range(6):
         safe = np.ones(eta.size, dtype=bool)
@@ -144,7 +144,10 @@ def _smear_gauss(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray | N
         exact = _exact(t, check, e)
         if not np.all(np.isfinite(exact)):
             return None
-        for nodes, w in rules:
+        for q in GAUSS_NODES:
+            if q not in rules:
+                rules[q] = gauss_rule(e, q)
+            nodes, w = rules[q]
             approx = t.inverse(check[:, None] + nodes[None, :]) @ w
             err = np.abs(approx - exact) / np.maximum(np.abs(exact), 1e-300)
             if np.all(np.isfinite(err)) and np.max(err) <= SMEAR_RTOL:

@@ -419,7 +419,7 @@ def needs_shift(x: np.ndarray) -> bool:
 
 
 def fit_transform(t: Transform, y: np.ndarray, X: np.ndarray | None = None,
-                  shift_needed: bool | None = None) -> Transform:
+                  shift_needed: bool | None = None, near: float | None = None) -> Transform:
     """Return a concrete transform, estimating what ``t`` leaves open from ``y`` (and design ``X``).
 
     ``shift_needed`` says whether a log needs a shift (decided on the whole
@@ -435,7 +435,7 @@ def fit_transform(t: Transform, y: np.ndarray, X: np.ndarray | None = None,
     if t.name in ("box_cox", "yeo_johnson"):
         from .likelihood import estimate_lambda  # local import: avoids a cycle
 
-        est = estimate_lambda(t.name, y, X)
+        est = estimate_lambda(t.name, y, X, with_interval=False, near=near)
         return replace(t, lam=est.lam, estimated=True)
     return t
 

@@ -1,0 +1,525 @@
+"""Predictions on the original response scale from a fitted-model artifact.
+
+The artifact (built by :func:`service.core.model.build_model`) carries the
+specification, the coefficients b, (X'X)^-1, s^2, the residual degrees of
+freedom, the categorical level encodings, the z-scale residuals and the
+training ranges.  For a new row x0 with linear predictor eta0 = x0'b on the
+model scale z = g(y):
+
+* ``median`` = g^-1(eta0): a monotone g maps the median of z to the median of y
+  when the z-scale errors are symmetric;
+* ``mean``   = (1/n) sum_i g^-1(eta0 + e_i), the smearing estimate of Duan
+  (1983) "Smearing estimate: a nonparametric retransformation method", JASA
+  78:605-610, over the stored residuals;
+* ``lower``/``upper``: the prediction interval on the model scale,
+  eta0 -/+ t_{df, (1+level)/2} s sqrt(1 + x0'(X'X)^-1 x0), mapped through g^-1
+  at its end points (swapped when g decreases).  Because g is strictly
+  monotone the back-transformed interval has exactly the z-scale coverage; it
+  brackets the median, not the mean.
+
+A row is an extrapolation when a numeric predictor lies outside its training
+range or its leverage x0'(X'X)^-1 x0 exceeds the largest training leverage.
+"""
+
+from __future__ import annotations
+
+import hmac
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from . import retransform
+from . import transforms as tr
+from .data import RawColumn, as_categorical, as_numeric, read_table
+from .errors import FieldProblem, InputError, pointer
+from .model import FORMAT_VERSION, checksum
+from .spec import PredictorSpec, Specification
+
+KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
+MAX_PROBLEMS = 20
+ROWS_LISTED = 5
+LEVERAGE_RTOL = 1e-9  # a training row recomputed may exceed the stored maximum by rounding
+
+
+@dataclass(frozen=True)
+class LoadedModel:
+    """A validated artifact in array form.  ``coef``: (p,); ``xtx_inverse``: (p, p)."""
+
+    spec: Specification
+    terms: tuple[str, ...]
+    coef: np.ndarray
+    xtx_inverse: np.ndarray
+    residual_variance: float
+    df_residual: int
+    levels: dict[str, dict]
+    residuals: np.ndarray
+    residual_kind: str
+    training_range: dict[str, tuple[float, float]]
+    max_leverage: float
+    format_version: int
+
+    @property
+    def response_transform(self) -> tr.Transform:
+        return self.spec.response_transform
+
+    def is_categorical(self, column: str) -> bool:
+        return column in self.levels
+
+
+# ------------------------------------------------------------------ loading
+def _is_number(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def _first_non_finite(d) -> str | None:
+    """Pointer (inside the artifact) of the first NaN/Infinity, walking iteratively."""
+    stack: list[tuple[object, tuple]] = [(d, ())]
+    while stack:
+        node, path = stack.pop()
+        if isinstance(node, dict):
+            stack.extend((v, path + (k,)) for k, v in node.items())
+        elif isinstance(node, (list, tuple)):
+            stack.extend((v, path + (i,)) for i, v in enumerate(node))
+        elif isinstance(node, float) and not math.isfinite(node):
+            return pointer("model", *path)
+    return None
+
+
+def _need(d: dict, key: str, ptr: str):
+    if key not in d:
+        raise InputError.at(ptr, f"the model has no '{key}'; send the model object exactly as "
+                            "the service issued it")
+    return d[key]
+
+
+def _number(v, ptr: str, what: str) -> float:
+    if not _is_number(v):
+        raise InputError.at(ptr, f"{what} must be a number, not {type(v).__name__}")
+    return float(v)
+
+
+def _transform(d, ptr: str, role: str) -> tr.Transform:
+    if not isinstance(d, dict) or not isinstance(d.get("name"), str):
+        raise InputError.at(ptr, f"the {role} transform must be an object with a 'name'")
+    name = d["name"]
+    if name not in tr.ALL_NAMES or (role == "response" and name == "categorical"):
+        raise InputError.at(pointer(*ptr.strip("/").split("/"), "name"),
+                            f"'{name}' is not a {role} transform this service fits")
+    if name == "power":
+        q = d.get("exponent")
+        if not _is_number(q) or q == 0:
+            raise InputError.at(ptr, "a power transform needs a non-zero numeric 'exponent'")
+    if name in ("box_cox", "yeo_johnson") and not _is_number(d.get("lambda")):
+        raise InputError.at(ptr, f"the model's {name} transform has no numeric 'lambda'")
+    if name == "log" and "shift" in d and not _is_number(d["shift"]):
+        raise InputError.at(pointer(*ptr.strip("/").split("/"), "shift"),
+                            "the log 'shift' must be a number")
+    t = tr.from_dict(d)
+    if t.name == "log" and t.shift is None:
+        # issued artifacts omit a zero shift; a fitted log without one is log(x + 0)
+        t = tr.Transform("log", shift=0.0, estimated=t.estimated)
+    return t
+
+
+def _specification(d) -> Specification:
+    ptr = "/model/specification"
+    if not isinstance(d, dict):
+        raise InputError.at(ptr, "the model's specification must be an object")
+    resp = _need(d, "response", ptr)
+    if not isinstance(resp, dict) or not isinstance(resp.get("column"), str):
+        raise InputError.at(ptr + "/response", "the response must be an object with a 'column'")
+    rt = _transform(resp.get("transform", {"name": "identity"}), ptr + "/response/transform",
+                    "response")
+    preds = _need(d, "predictors", ptr)
+    if not isinstance(preds, list) or not preds:
+        raise InputError.at(ptr + "/predictors", "the model needs a non-empty predictor list")
+    out = []
+    seen = set()
+    for j, p in enumerate(preds):
+        pp = pointer("model", "specification", "predictors", j)
+        if not isinstance(p, dict) or not isinstance(p.get("column"), str):
+            raise InputError.at(pp, "each predictor must be an object with a 'column'")
+        if p["column"] in seen:
+            raise InputError.at(pp, f"predictor '{p['column']}' appears twice")
+        seen.add(p["column"])
+        out.append(PredictorSpec(p["column"], _transform(p.get("transform", {"name": "identity"}),
+                                                         pp + "/transform", "predictor")))
+    intercept = d.get("intercept", True)
+    if not isinstance(intercept, bool):
+        raise InputError.at(ptr + "/intercept", "intercept must be true or false")
+    return Specification(resp["column"], rt, tuple(out), intercept)
+
+
+def _levels(d, spec: Specification) -> dict[str, dict]:
+    if not isinstance(d, dict):
+        raise InputError.at("/model/levels", "the model's levels must be an object")
+    cols = {p.column for p in spec.predictors}
+    out = {}
+    for col, info in d.items():
+        ptr = pointer("model", "levels", col)
+        if col not in cols:
+            raise InputError.at(ptr, f"levels are given for '{col}', which is not a predictor")
+        lv = info.get("levels") if isinstance(info, dict) else None
+        ref = info.get("reference") if isinstance(info, dict) else None
+        if not isinstance(lv, list) or len(lv) < 2 or not all(isinstance(v, str) for v in lv) \
+                or len(set(lv)) != len(lv):
+            raise InputError.at(ptr + "/levels", f"'{col}' needs a list of two or more distinct "
+                                "level names")
+        if ref not in lv:
+            raise InputError.at(ptr + "/reference", f"the reference level of '{col}' is not one "
+                                "of its levels")
+        out[col] = {"levels": list(lv), "reference": ref}
+    for p in spec.predictors:
+        if p.transform.name == "categorical" and p.column not in out:
+            raise InputError.at("/model/levels", f"categorical predictor '{p.column}' has no "
+                                "level list")
+    return out
+
+
+def expected_terms(spec: Specification, levels: dict[str, dict]) -> list[str]:
+    """Design column names in the order :func:`service.core.spec.build_design` makes them."""
+    names = ["intercept"] if spec.intercept else []
+    for p in spec.predictors:
+        if p.column in levels:
+            ref = levels[p.column]["reference"]
+            names.extend(f"{p.column}[{lv}]" for lv in levels[p.column]["levels"] if lv != ref)
+        else:
+            names.append(p.transform.label(p.column))
+    return names
+
+
+def load_model(d: dict) -> LoadedModel:
+    """Validate an artifact and return it in array form.
+
+    Checks, in order: ``format_version`` is one this service reads; every
+    number is finite; the SHA-256 checksum matches (a mismatch means the model
+    was modified after it was issued); the specification, levels, terms and
+    array shapes agree with each other.  Every failure is an
+    :class:`InputError` pointing into ``/model``.
+    """
+    if not isinstance(d, dict):
+        raise InputError.at("/model", "the model must be a JSON object as issued by the service")
+    fv = d.get("format_version")
+    if not _is_number(fv) or fv not in KNOWN_FORMAT_VERSIONS:
+        known = ", ".join(str(v) for v in KNOWN_FORMAT_VERSIONS)
+        raise InputError.at("/model/format_version", f"model format_version {fv!r} is not one "
+                            f"this service reads ({known}); refit the model with this service")
+    bad = _first_non_finite(d)
+    if bad:
+        raise InputError.at(bad, "the model holds a non-finite number")
+    given = d.get("checksum")
+    if not isinstance(given, str):
+        raise InputError.at("/model/checksum", "the model has no checksum; send the model "
+                            "object exactly as the service issued it")
+    try:
+        actual = checksum(d)
+    except (TypeError, ValueError):
+        raise InputError.at("/model", "the model holds values that are not plain JSON") from None
+    if not hmac.compare_digest(given, actual):
+        raise InputError.at("/model/checksum", "the model was modified after it was issued "
+                            "(its checksum does not match its content); send it back unchanged")
+
+    spec = _specification(_need(d, "specification", "/model"))
+    levels = _levels(d.get("levels", {}), spec)
+    terms = _need(d, "terms", "/model")
+    want = expected_terms(spec, levels)
+    if terms != want:
+        raise InputError.at("/model/terms", f"the model's terms {terms!r} do not match its "
+                            f"specification (expected {want!r})")
+    p = len(want)
+    coef = _need(d, "coefficients", "/model")
+    if not isinstance(coef, list) or len(coef) != p or not all(map(_is_number, coef)):
+        raise InputError.at("/model/coefficients", f"coefficients must be {p} numbers, one per "
+                            "term")
+    V = _need(d, "xtx_inverse", "/model")
+    if not isinstance(V, list) or len(V) != p or not all(
+            isinstance(r, list) and len(r) == p and all(map(_is_number, r)) for r in V):
+        raise InputError.at("/model/xtx_inverse", f"xtx_inverse must be a {p} x {p} matrix of "
+                            "numbers")
+    s2 = _number(_need(d, "residual_variance", "/model"), "/model/residual_variance",
+                 "residual_variance")
+    if s2 < 0:
+        raise InputError.at("/model/residual_variance", "residual_variance must not be negative")
+    df = _need(d, "df_residual", "/model")
+    if not isinstance(df, int) or isinstance(df, bool) or df < 1:
+        raise InputError.at("/model/df_residual", "df_residual must be a positive integer")
+    res = _need(d, "residuals", "/model")
+    if not isinstance(res, dict) or res.get("kind") not in ("all", "quantiles") or \
+            not isinstance(res.get("values"), list) or not res["values"] or \
+            not all(map(_is_number, res["values"])):
+        raise InputError.at("/model/residuals", "residuals must be {kind: 'all' | 'quantiles', "
+                            "values: [numbers]} with at least one value")
+    rng_in = _need(d, "training_range", "/model")
+    if not isinstance(rng_in, dict):
+        raise InputError.at("/model/training_range", "training_range must be an object")
+    ranges = {}
+    for pr in spec.predictors:
+        if pr.column in levels:
+            continue
+        r = rng_in.get(pr.column)
+        ptr = pointer("model", "training_range", pr.column)
+        if not isinstance(r, dict) or not _is_number(r.get("min")) or not _is_number(r.get("max")) \
+                or r["min"] > r["max"]:
+            raise InputError.at(ptr, f"the training range of '{pr.column}' must be {{min, max}} "
+                                "numbers with min <= max")
+        ranges[pr.column] = (float(r["min"]), float(r["max"]))
+    hmax = _number(_need(d, "max_leverage", "/model"), "/model/max_leverage", "max_leverage")
+    if not 0.0 <= hmax <= 1.0 + 1e-9:
+        raise InputError.at("/model/max_leverage", "max_leverage must lie in [0, 1]")
+    return LoadedModel(spec, tuple(want), np.array(coef, dtype=float), np.array(V, dtype=float),
+                       s2, df, levels, np.array(res["values"], dtype=float), res["kind"], ranges,
+                       hmax, int(fv))
+
+
+# -------------------------------------------------------------- new design
+def _missing_column(source: str, col: str) -> str:
+    if source == "columns":
+        return pointer("data", "columns", col)
+    if source == "records":
+        return pointer("data", "records", 0, col)
+    return "/data/csv"
+
+
+def _bad_domain(t: tr.Transform, x: np.ndarray, column: str) -> np.ndarray:
+    """Mask of values where the model's transform of a predictor is not defined.
+
+    Every family's domain is an upper half-line (x >= a or x > a), so the bad
+    values form a lower tail: the largest bad value is found by bisection over
+    the sorted distinct values with the transform's own domain check.
+    """
+    with np.errstate(all="ignore"):
+        bad = ~np.isfinite(t.forward(x))
+    if t.domain_problem(x, column, "predictor") is None:
+        return bad
+    u = np.unique(x)
+    lo, hi = 0, u.size - 1  # u[0] is bad; find the last bad index
+    while lo < hi:
+        mid = (lo + hi + 1) // 2
+        if t.domain_problem(u[mid:mid + 1], column, "predictor") is not None:
+            lo = mid
+        else:
+            hi = mid - 1
+    return bad | (x <= u[lo])
+
+
+def _domain_text(t: tr.Transform) -> str:
+    n = t.name
+    if n == "log":
+        c = t.shift or 0.0
+        return "values > 0" if c == 0 else f"values > {-c:.6g}"
+    if n in ("sqrt", "square") or (n == "power" and (t.exponent or 0) > 0):
+        return "values >= 0"
+    if n in ("reciprocal", "power", "box_cox"):
+        return "values > 0"
+    return "values where it is finite"
+
+
+def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np.ndarray], int]:
+    """Design matrix (m, p) for the rows of ``data`` in input order.
+
+    Returns ``(X, numeric raw values by column, m)``.  Raises one
+    :class:`InputError` listing (up to MAX_PROBLEMS) cells that cannot be used:
+    a missing predictor column, a missing value, a non-numeric value in a
+    numeric column, a value outside the transform's domain, or a level the
+    model never saw.
+    """
+    table = read_table(data)
+    m = table.n_rows
+    if m == 0:
+        raise InputError.at("/data", "the data have no rows to predict")
+    spec = model.spec
+    problems: list[FieldProblem] = []
+    known = set(table.names)
+    for p in spec.predictors:
+        if p.column not in known:
+            problems.append(FieldProblem(_missing_column(table.source, p.column),
+                                         f"predictor column '{p.column}' is missing from the data; "
+                                         "the model needs " +
+                                         ", ".join(f"'{q.column}'" for q in spec.predictors)))
+    if problems:
+        raise InputError(problems[0].detail if len(problems) == 1 else
+                         f"{len(problems)} predictor columns are missing from the data", problems)
+
+    cols: list[np.ndarray] = [np.ones(m)] if spec.intercept else []
+    raw_numeric: dict[str, np.ndarray] = {}
+
+    def add(ptr: str, detail: str) -> None:
+        if len(problems) < MAX_PROBLEMS:
+            problems.append(FieldProblem(ptr, detail))
+
+    n_bad = 0
+    for p in spec.predictors:
+        try:
+            raw: RawColumn = table.get(p.column)
+        except InputError as exc:  # a record without the field
+            ptr = exc.problems[0].pointer if exc.problems else "/data"
+            add(pointer(*ptr.strip("/").split("/"), p.column) if table.source == "records" else ptr,
+                f"a row has no value for predictor '{p.column}'; every row needs one")
+            n_bad += 1
+            continue
+        if model.is_categorical(p.column):
+            typed = as_categorical(raw)
+            info = model.levels[p.column]
+            allowed = set(info["levels"])
+            for i in np.flatnonzero(typed.missing):
+                n_bad += 1
+                add(raw.cell_pointer(int(i)), f"predictor '{p.column}' is missing (null) in row "
+                    f"{int(i)}; a prediction needs every predictor value")
+            for i, v in enumerate(typed.values):
+                if v is not None and v not in allowed:
+                    n_bad += 1
+                    add(raw.cell_pointer(i), f"level '{v}' of '{p.column}' in row {i} did not occur "
+                        f"in the training data (levels: {', '.join(info['levels'][:20])}); the "
+                        "model cannot predict for it")
+            for lv in info["levels"]:
+                if lv != info["reference"]:
+                    cols.append((typed.values == lv).astype(float))
+            continue
+        try:
+            typed = as_numeric(raw, "predictor")
+        except InputError as exc:
+            for fp in exc.problems:
+                add(fp.pointer, fp.detail)
+            n_bad += 1
+            cols.append(np.zeros(m))
+            continue
+        x = typed.values
+        for i in np.flatnonzero(typed.missing):
+            n_bad += 1
+            add(raw.cell_pointer(int(i)), f"predictor '{p.column}' is missing (null) in row "
+                f"{int(i)}; a prediction needs every predictor value")
+        t = p.transform
+        ok = ~typed.missing
+        bad = np.zeros(m, dtype=bool)
+        if np.any(ok):
+            bad[ok] = _bad_domain(t, x[ok], p.column)
+        label = t.label(p.column)
+        for i in np.flatnonzero(bad):
+            n_bad += 1
+            add(raw.cell_pointer(int(i)), f"predictor '{p.column}' is {x[i]:.6g} in row {int(i)}, "
+                f"where {label} (the model's scale for '{p.column}') is not defined; it needs "
+                f"{_domain_text(t)}")
+        raw_numeric[p.column] = x
+        with np.errstate(all="ignore"):
+            w = t.forward(np.where(ok & ~bad, x, 1.0))
+        cols.append(w)
+    if problems:
+        detail = problems[0].detail if n_bad == 1 else (
+            f"{n_bad} cells cannot be used for prediction; the first: {problems[0].detail}")
+        raise InputError(detail, problems)
+    X = np.column_stack(cols)
+    return X, raw_numeric, m
+
+
+# ------------------------------------------------------------------ numbers
+def model_scale_interval(model: LoadedModel, X: np.ndarray, interval: float = 0.95) -> dict:
+    """Linear predictor and prediction interval on the model (z) scale.
+
+    ``X``: (m, p).  Returns arrays ``fit`` = X b, ``leverage`` h0 =
+    x0'(X'X)^-1 x0, and ``lower``/``upper`` = fit -/+ t s sqrt(1 + h0) with
+    t the (1 + interval)/2 quantile of Student's t on ``df_residual`` degrees
+    of freedom (the textbook OLS prediction interval; statsmodels calls it
+    ``obs_ci_lower``/``obs_ci_upper``).
+    """
+    with np.errstate(all="ignore"):
+        fit = X @ model.coef
+        h0 = np.einsum("ij,jk,ik->i", X, model.xtx_inverse, X)
+        tq = float(stats.t.ppf(0.5 + interval / 2.0, model.df_residual))
+        half = tq * np.sqrt(model.residual_variance * (1.0 + np.maximum(h0, 0.0)))
+    return {"fit": fit, "leverage": h0, "lower": fit - half, "upper": fit + half}
+
+
+def _rows_text(idx: np.ndarray) -> str:
+    shown = ", ".join(str(int(i)) for i in idx[:ROWS_LISTED])
+    more = f" and {idx.size - ROWS_LISTED} more" if idx.size > ROWS_LISTED else ""
+    return ("row " if idx.size == 1 else "rows ") + shown + more
+
+
+def _num(v: float) -> str:
+    return f"{v:.4g}"
+
+
+def _finite_list(a: np.ndarray) -> list:
+    return [float(v) if math.isfinite(v) else None for v in a.tolist()]
+
+
+def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
+    """Predictions for every row of ``data`` (contract Data object), in input order.
+
+    Returns ``{"predictions": [{mean, median, lower, upper, extrapolation,
+    extrapolation_reasons, leverage, model_scale}], "interval": level,
+    "warnings": [...]}``; every number is on the ORIGINAL response scale except
+    ``model_scale`` (fit and interval on the model scale) and ``leverage``.  A
+    value that cannot be computed (an inverse that does not exist or
+    overflows) is ``None`` and explained in ``warnings``, never NaN.
+    """
+    if not (_is_number(interval) and 0.0 < interval < 1.0):
+        raise InputError.at("/interval", f"interval must lie strictly between 0 and 1 (got "
+                            f"{interval!r}); 0.95 gives a 95% prediction interval")
+    X, raw, m = new_design(model, data)
+    t = model.response_transform
+    zs = model_scale_interval(model, X, interval)
+    eta = zs["fit"]
+    ok_eta = np.isfinite(eta)
+    safe = np.where(ok_eta, eta, 0.0)
+    with np.errstate(all="ignore"):
+        median = np.where(ok_eta, retransform.naive(t, safe), np.nan)
+        mean = np.where(ok_eta, retransform.smeared_mean(t, safe, model.residuals), np.nan)
+        lo = t.inverse(zs["lower"])
+        hi = t.inverse(zs["upper"])
+        # the undefined part of every inverse is a half-line, so the extreme residuals tell
+        # whether any smearing term is undefined
+        e_lo, e_hi = float(model.residuals.min()), float(model.residuals.max())
+        partial = np.isnan(t.inverse(safe + e_lo)) | np.isnan(t.inverse(safe + e_hi))
+    if not t.increasing:
+        lo, hi = hi, lo
+    label = t.label(model.spec.response)
+    warnings: list[str] = []
+
+    # extrapolation
+    reasons: list[list[str]] = [[] for _ in range(m)]
+    for col, (a, b) in model.training_range.items():
+        x = raw[col]
+        for i in np.flatnonzero((x < a) | (x > b)):
+            reasons[i].append(f"'{col}' = {_num(x[i])} is outside the training range "
+                              f"[{_num(a)}, {_num(b)}]")
+    h0 = zs["leverage"]
+    over = h0 > model.max_leverage * (1.0 + LEVERAGE_RTOL) + 1e-12
+    for i in np.flatnonzero(over):
+        reasons[i].append(f"leverage {_num(h0[i])} exceeds the largest training leverage "
+                          f"{_num(model.max_leverage)}")
+    extrap = np.array([bool(r) for r in reasons], dtype=bool)
+    if np.any(extrap):
+        warnings.append(f"{int(extrap.sum())} of {m} rows are extrapolations ("
+                        f"{_rows_text(np.flatnonzero(extrap))}): outside the training range of a "
+                        "predictor or beyond the largest training leverage; the fit does not "
+                        "support them and back-transforms magnify their error.")
+
+    def report(mask: np.ndarray, text: str) -> None:
+        if np.any(mask):
+            warnings.append(f"For {_rows_text(np.flatnonzero(mask))} {text}")
+
+    report(~np.isfinite(eta), "the linear predictor overflows; every number is null.")
+    report(ok_eta & ~np.isfinite(median), f"the median is null: the inverse of {label} does not "
+           "exist at the fitted value or overflows.")
+    report(ok_eta & ~np.isfinite(mean), "the mean is null: no smearing term has a finite inverse.")
+    report(ok_eta & np.isfinite(mean) & partial,
+           "some smearing terms have no finite inverse (the response would be unbounded) and are "
+           "left out of the mean, which is therefore only indicative.")
+    report(ok_eta & ~np.isfinite(lo), f"the lower prediction limit is null: the interval on the "
+           f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).")
+    report(ok_eta & ~np.isfinite(hi), f"the upper prediction limit is null: the interval on the "
+           f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).")
+
+    rows = []
+    cols = [_finite_list(a) for a in (mean, median, lo, hi, h0, eta, zs["lower"], zs["upper"])]
+    for i in range(m):
+        rows.append({
+            "mean": cols[0][i], "median": cols[1][i], "lower": cols[2][i], "upper": cols[3][i],
+            "extrapolation": bool(extrap[i]), "extrapolation_reasons": reasons[i],
+            "leverage": cols[4][i],
+            "model_scale": {"fit": cols[5][i], "lower": cols[6][i], "upper": cols[7][i]},
+        })
+    return {"predictions": rows, "interval": float(interval), "warnings": warnings}
