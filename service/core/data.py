@@ -273,6 +273,7 @@ class Prepared:
     rows_received: int
     dropped: list[dict] = field(default_factory=list)
     rows_dropped: int = 0
+    table_columns: tuple[str, ...] = ()
 
     @property
     def n(self) -> int:
@@ -371,7 +372,8 @@ def prepare(data: dict, response: str, predictors: list[str], categorical: list[
         perm = np.argsort(ov, kind="stable") if ocol.kind == "numeric" else \
             np.array(sorted(range(ov.size), key=lambda i: ov[i]), dtype=int)
 
-    prep = Prepared(response, y, list(predictors), numeric, cats, row_ids, perm, n, dropped, n_dropped)
+    prep = Prepared(response, y, list(predictors), numeric, cats, row_ids, perm, n, dropped, n_dropped,
+                    tuple(table.names))
     _check_content(prep)
     return prep
 

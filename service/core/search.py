@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import incumbent
 from . import transforms as tr
 from .crossval import CVPlan, CVResult, cross_validate, make_plan
 from .data import Prepared
@@ -44,6 +45,7 @@ class SearchOptions:
     time_limit_s: float = 60.0
     intercept: bool = True
     units: dict = field(default_factory=dict)
+    incumbent: dict | None = None  # contract Specification in use
 
 
 @dataclass
@@ -222,6 +224,10 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
         if entry_hook is not None:
             entry_hook(entry, {"spec": s.spec, "prep": prep, "opts": opts})
         entries.append({"rank": i + 1, **{k: v for k, v in entry.items() if k != "rank"}})
+    incumbent_block = None
+    if opts.incumbent is not None:
+        incumbent_block = _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries,
+                                     entry_hook)
     elapsed = time.perf_counter() - t0
     search = {
         "candidates_considered": int(total),
@@ -241,8 +247,42 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
     if not search["complete"]:
         warnings.append(f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
                         "scored within the limits); the ranking is the best found so far.")
-    return {"data": prep.data_summary(), "search": search, "ranking": entries,
-            "warnings": warnings, "_scored": scored, "_plan": plan}
+    body = {"data": prep.data_summary(), "search": search, "ranking": entries}
+    if incumbent_block is not None:
+        body["incumbent"] = incumbent_block
+    body.update(warnings=warnings, _scored=scored, _plan=plan)
+    return body
+
+
+def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook) -> dict:
+    spec, why = incumbent.incumbent_spec(opts.incumbent, prep, prep.predictors,
+                                         set(prep.table_columns))
+    inc_cv = None
+    conditions = None
+    if spec is not None:
+        try:
+            inc_cv = incumbent.score(spec, prep, plan, shift_needed)
+        except CandidateFailure as exc:
+            why = exc.reason
+    position = None
+    if inc_cv is not None:
+        for i, (s, _) in enumerate(ranked):
+            if s.spec.key == spec.key:
+                position = i + 1
+                break
+        if position is None:
+            again, _ = rank(scored + [Scored(spec, inc_cv)])
+            position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
+        if entry_hook is not None:
+            try:
+                probe = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "")
+                entry_hook(probe, {"spec": spec, "prep": prep, "opts": opts})
+                conditions = probe.get("conditions")
+            except CandidateFailure:
+                conditions = None
+    winner = ranked[0][0]
+    return incumbent.decide(spec, inc_cv, why, position, entries[0], winner.cv.fold_values, plan,
+                            conditions, opts.incumbent)
 
 
 def rank(scored: list[Scored]) -> tuple[list[tuple[Scored, dict]], float]:

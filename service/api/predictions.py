@@ -1,0 +1,49 @@
+"""POST /v1/predictions: predictions on the original scale from a model the service issued."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter
+from pydantic import BaseModel, ConfigDict, Field
+
+from ..core.errors import InputError
+from ..core.predict import load_model, predict
+from ..settings import get_settings
+from .encode import JSONBody
+from .routing import StrictRoute
+from .schemas import DataIn
+
+router = APIRouter(route_class=StrictRoute)
+
+
+class PredictionRequest(BaseModel):
+    """A model artifact exactly as issued (``ranking[i].model``), rows to predict, a level."""
+
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
+
+    model: dict[str, Any] = Field(..., description="a ranking entry's 'model', sent back unchanged")
+    data: DataIn = Field(..., description="rows to predict: every predictor column of the model")
+    interval: float = Field(0.95, gt=0, lt=1, description="coverage of the prediction interval")
+
+
+def run_prediction_request(req: PredictionRequest) -> dict:
+    data = req.data.as_dict()
+    if data["columns"] is not None:
+        n_rows = max((len(v) for v in data["columns"].values()), default=0)
+    elif data["records"] is not None:
+        n_rows = len(data["records"])
+    else:
+        n_rows = data["csv"].count("\n")
+    limit = get_settings().max_rows
+    if n_rows > limit:
+        raise InputError.at("/data", f"the table has {n_rows} rows; this service accepts at most "
+                            f"{limit} (setting BESTSCALE_MAX_ROWS)")
+    model = load_model(req.model)
+    return predict(model, data, req.interval)
+
+
+@router.post("/v1/predictions", response_class=JSONBody, tags=["prediction"],
+             summary="Mean, median and prediction interval on the original scale from a model")
+def post_predictions(req: PredictionRequest):
+    return JSONBody(run_prediction_request(req))

@@ -1,0 +1,113 @@
+"""Compare the specification in use (the incumbent) with this run's winner.
+
+The incumbent is scored on exactly the same cross-validation folds as every
+candidate, so the fold errors pair up.  The paired difference (winner minus
+incumbent, per fold) has mean d and standard error sd(d)/sqrt(K) (the same
+convention as the CV standard error).  Decision rule (documented design
+choice): ``switch`` when the winner's error is lower by more than one paired
+standard error (d < -SE), or when the incumbent fails a regression condition
+that the winner passes, or when the incumbent cannot be fitted on the new
+data; otherwise ``keep``, since replacing a production model has a cost.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from . import transforms as tr
+from .crossval import CVPlan, cross_validate
+from .data import Prepared
+from .errors import CandidateFailure, InputError, pointer
+from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
+
+CONDITIONS = ("linearity", "normality", "equal_variance", "independence", "multicollinearity",
+              "influence")
+
+
+def incumbent_spec(d: dict, prep: Prepared, request_predictors: list[str],
+                   table_columns: set[str] | None = None) -> tuple[Specification | None, str | None]:
+    """Build the incumbent on this run's rows: (spec, None) or (None, why it cannot be fitted)."""
+    if d["response"]["column"] != prep.response:
+        raise InputError.at("/incumbent/response/column",
+                            f"the incumbent models '{d['response']['column']}' but this request's "
+                            f"response is '{prep.response}'")
+    preds = []
+    for i, p in enumerate(d["predictors"]):
+        col = p["column"]
+        if col not in request_predictors:
+            if table_columns is not None and col not in table_columns:
+                return None, f"the incumbent uses '{col}', which is not in this data"
+            raise InputError.at(pointer("incumbent", "predictors", i, "column"),
+                                f"the incumbent uses '{col}'; add it to 'predictors' so both are "
+                                "scored on the same rows")
+        t = tr.from_dict(p.get("transform") or {"name": "identity"})
+        if col in prep.categorical and t.name != "categorical":
+            t = tr.Transform("categorical")
+        elif col in prep.numeric and t.name == "categorical":
+            return None, f"the incumbent treats '{col}' as categorical but it is numeric here"
+        preds.append(PredictorSpec(col, t))
+    rt = tr.from_dict(d["response"].get("transform") or {"name": "identity"})
+    spec = Specification(prep.response, rt, tuple(preds), bool(d.get("intercept", True)))
+    msg = rt.domain_problem(prep.y, prep.response, "response")
+    if msg:
+        return None, msg
+    try:
+        spec = resolve_predictor_transforms(spec, prep)
+    except CandidateFailure as exc:
+        return None, exc.reason
+    return spec, None
+
+
+def score(spec: Specification, prep: Prepared, plan: CVPlan, shift_needed: bool):
+    design = build_design(spec, prep, ptr_prefix="/incumbent")
+    return cross_validate(design.X, prep.y, spec.response_transform, plan, shift_needed,
+                          design.names)
+
+
+def _failed_conditions(conditions: dict | None) -> set[str]:
+    if not conditions:
+        return set()
+    return {c for c in CONDITIONS if isinstance(conditions.get(c), dict)
+            and conditions[c].get("holds") is False}
+
+
+def decide(inc_spec: Specification | None, inc_cv, reason: str | None, rank: int | None,
+           winner_entry: dict, winner_folds: np.ndarray, plan: CVPlan,
+           inc_conditions: dict | None = None, request_spec: dict | None = None) -> dict:
+    """The contract's ``incumbent`` block."""
+    out = {"specification": inc_spec.to_dict() if inc_spec is not None else request_spec,
+           "rank": rank, "cv": None, "difference": None}
+    if inc_spec is None or inc_cv is None:
+        out.update(decision="switch", reason=f"The incumbent cannot be fitted on this data: "
+                   f"{reason}; switch to rank 1 ({winner_entry['equation']}).")
+        return out
+    out["cv"] = inc_cv.to_dict(plan)
+    d = winner_folds - inc_cv.fold_values
+    se = float(np.std(d, ddof=1) / math.sqrt(plan.folds)) if d.size > 1 else 0.0
+    diff = float(np.mean(d))
+    out["difference"] = {"value": diff, "std_error": se,
+                         "meaning": "winner minus incumbent, mean over the same folds; "
+                                    "negative means the winner predicts better"}
+    metric = plan.metric
+    same = winner_entry["specification"] == inc_spec.to_dict() or rank == 1
+    inc_fail = _failed_conditions(inc_conditions)
+    win_fail = _failed_conditions(winner_entry.get("conditions"))
+    only_inc = sorted(inc_fail - win_fail)
+    if same:
+        out.update(decision="keep", reason="The incumbent is this run's rank-1 specification.")
+    elif diff < -se:
+        out.update(decision="switch", reason=(
+            f"Rank 1 ({winner_entry['equation']}) has a lower cross-validated {metric} by "
+            f"{-diff:.4g} (paired standard error {se:.4g}), more than one standard error."))
+    elif only_inc:
+        out.update(decision="switch", reason=(
+            "The incumbent fails " + ", ".join(c.replace('_', ' ') for c in only_inc) +
+            f", which rank 1 ({winner_entry['equation']}) passes; their {metric} differ by "
+            f"{diff:.4g} (paired standard error {se:.4g})."))
+    else:
+        out.update(decision="keep", reason=(
+            f"Rank 1 differs from the incumbent by {diff:.4g} in cross-validated {metric} "
+            f"(paired standard error {se:.4g}), within one standard error; keep the incumbent."))
+    return out
