@@ -20,6 +20,7 @@ class Settings(BaseSettings):
     max_rows: int = Field(1_000_000, ge=10)
     max_columns: int = Field(200, ge=2)
     max_candidates: int = Field(20_000, ge=1)
+    max_groups: int = Field(1000, ge=1)
     default_max_candidates: int = Field(5_000, ge=1)
     default_time_limit_s: float = Field(60.0, gt=0)
     max_time_limit_s: float = Field(600.0, gt=0)

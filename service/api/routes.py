@@ -8,7 +8,7 @@ from ..core import transforms as tr
 from ..core.cautions import selection_cautions
 from ..core.data import prepare
 from ..core.errors import InputError
-from ..core.search import SearchOptions, run_selection
+from ..core.search import SearchOptions, run_grouped, run_selection
 from ..settings import get_settings
 from ..version import __version__
 from .encode import JSONBody
@@ -58,11 +58,24 @@ def run_selection_request(req: SelectionRequest) -> dict:
             if col not in req.predictors:
                 raise InputError.at(f"/transforms/predictors/{col}",
                                     f"'{col}' is not one of the predictors")
-    prep = prepare(data, req.response, list(req.predictors), list(req.categorical), req.order)
+    prep = prepare(data, req.response, list(req.predictors), list(req.categorical), req.order,
+                   req.group_by)
     opts = selection_options(req)
-    body = run_selection(prep, opts, __version__)
+    if req.group_by is not None:
+        n_groups = len(set(prep.groups.tolist()))
+        limit = get_settings().max_groups
+        if n_groups > limit:
+            raise InputError.at("/group_by", f"'{req.group_by}' has {n_groups} values; at most "
+                                f"{limit} groups are accepted per request (setting "
+                                "BESTSCALE_MAX_GROUPS); split the job over several requests")
+        body = run_grouped(prep, opts, __version__, finish=lambda b: _finish(b, opts))
+        return _finish(body, opts)
+    return _finish(run_selection(prep, opts, __version__), opts)
+
+
+def _finish(body: dict, opts: SearchOptions) -> dict:
     any_tr = any(not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
-                 for e in body["ranking"])
+                 for e in body.get("ranking", []))
     return {"service_version": __version__, **body,
             "cautions": selection_cautions(opts.metric, any_tr)}
 

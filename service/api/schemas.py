@@ -138,6 +138,7 @@ class SelectionRequest(_Strict):
     top: int = Field(5, ge=1, le=100, description="ranked specifications to return")
     limits: LimitsIn = Field(default_factory=LimitsIn)
     intercept: bool = Field(True, description="fit an intercept")
+    group_by: str | None = Field(None, description="run one selection per value of this column")
     incumbent: SpecificationIn | None = Field(
         None, description="the specification in use (e.g. last month's), scored on the same "
         "folds; the response tells whether to keep it")

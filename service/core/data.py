@@ -274,6 +274,8 @@ class Prepared:
     dropped: list[dict] = field(default_factory=list)
     rows_dropped: int = 0
     table_columns: tuple[str, ...] = ()
+    order_values: np.ndarray | None = None  # the order column on the used rows
+    groups: np.ndarray | None = None  # group_by labels on the used rows
 
     @property
     def n(self) -> int:
@@ -296,7 +298,7 @@ class Prepared:
 
 
 def prepare(data: dict, response: str, predictors: list[str], categorical: list[str] | None = None,
-            order: str | None = None) -> Prepared:
+            order: str | None = None, group_by: str | None = None) -> Prepared:
     """Parse, type and clean the columns a request uses.
 
     Raises :class:`InputError` with a JSON Pointer for every problem a caller
@@ -327,6 +329,12 @@ def prepare(data: dict, response: str, predictors: list[str], categorical: list[
         if c not in predictors:
             problems.append(FieldProblem(pointer("categorical", i), f"categorical column '{c}' is "
                                          "not one of the predictors"))
+    if group_by is not None:
+        if group_by not in known:
+            problems.append(FieldProblem("/group_by", f"group_by column '{group_by}' is not in the data"))
+        elif group_by == response or group_by in predictors or group_by == order:
+            problems.append(FieldProblem("/group_by", f"group_by column '{group_by}' is also used "
+                                         "in the model; give a separate segment column"))
     if order is not None:
         if order not in known:
             problems.append(FieldProblem("/order", f"order column '{order}' is not in the data"))
@@ -347,16 +355,19 @@ def prepare(data: dict, response: str, predictors: list[str], categorical: list[
         except InputError:
             ocol = as_categorical(raw)
 
+    gcol = as_categorical(table.get(group_by)) if group_by is not None else None
     n = table.n_rows
     missing = ycol.missing.copy()
     for t in typed:
         missing |= t.missing
     if ocol is not None:
         missing |= ocol.missing
+    if gcol is not None:
+        missing |= gcol.missing
     dropped = []
     n_dropped = int(missing.sum())
     if n_dropped:
-        cols = [ycol] + typed + ([ocol] if ocol is not None else [])
+        cols = [ycol] + typed + [c for c in (ocol, gcol) if c is not None]
         for i in np.flatnonzero(missing)[:DROPPED_LIST_CAP]:
             which = [c.name for c in cols if c.missing[i]]
             dropped.append({"row": int(i), "reason": "missing value in " +
@@ -366,16 +377,44 @@ def prepare(data: dict, response: str, predictors: list[str], categorical: list[
     y = ycol.values[keep]
     numeric = {t.name: t.values[keep] for t in typed if t.kind == "numeric"}
     cats = {t.name: t.values[keep] for t in typed if t.kind == "categorical"}
-    perm = None
-    if ocol is not None:
-        ov = ocol.values[keep]
-        perm = np.argsort(ov, kind="stable") if ocol.kind == "numeric" else \
-            np.array(sorted(range(ov.size), key=lambda i: ov[i]), dtype=int)
-
-    prep = Prepared(response, y, list(predictors), numeric, cats, row_ids, perm, n, dropped, n_dropped,
-                    tuple(table.names))
-    _check_content(prep)
+    ov = ocol.values[keep] if ocol is not None else None
+    prep = Prepared(response, y, list(predictors), numeric, cats, row_ids, _order_perm(ov), n,
+                    dropped, n_dropped, tuple(table.names), ov,
+                    gcol.values[keep] if gcol is not None else None)
+    if gcol is None:
+        _check_content(prep)
     return prep
+
+
+def _order_perm(ov: np.ndarray | None) -> np.ndarray | None:
+    if ov is None:
+        return None
+    if ov.dtype != object:
+        return np.argsort(ov, kind="stable")
+    return np.array(sorted(range(ov.size), key=lambda i: ov[i]), dtype=int)
+
+
+def split_groups(prep: Prepared) -> dict[str, "Prepared | InputError"]:
+    """One Prepared per value of the group column, in sorted order of the values.
+
+    A group whose rows cannot be modelled (constant response, too few rows)
+    maps to the :class:`InputError` that says why, so the other groups go on.
+    """
+    out: dict[str, Prepared | InputError] = {}
+    for g in sorted(set(prep.groups.tolist())):
+        mask = prep.groups == g
+        sub = Prepared(prep.response, prep.y[mask], list(prep.predictors),
+                       {k: v[mask] for k, v in prep.numeric.items()},
+                       {k: v[mask] for k, v in prep.categorical.items()},
+                       prep.row_ids[mask], None, int(mask.sum()), [], 0, prep.table_columns,
+                       prep.order_values[mask] if prep.order_values is not None else None, None)
+        sub.order = _order_perm(sub.order_values)
+        try:
+            _check_content(sub)
+            out[g] = sub
+        except InputError as exc:
+            out[g] = exc
+    return out
 
 
 def _names(names: list[str]) -> str:

@@ -67,9 +67,27 @@ def fmt(v: float | None, sig: int = 4) -> str:
     return f"{mant}e{int(exp)}"
 
 
-def exact_percent(b: float) -> float:
-    """Percent change of the median of y for one unit of x under a log response: 100(e^b - 1)."""
-    return 100.0 * math.expm1(b)
+def exact_percent(b: float | None) -> float | None:
+    """Percent change of the median of y for one unit of x under a log response: 100(e^b - 1).
+
+    ``None`` when ``b`` is ``None`` or the value overflows a float.
+    """
+    if b is None:
+        return None
+    try:
+        return 100.0 * math.expm1(b)
+    except OverflowError:
+        return None
+
+
+def percent_for_ratio(ratio: float, b: float | None) -> float | None:
+    """Percent change of y^b when x is multiplied by ``ratio``: 100(ratio^b - 1) (log-log)."""
+    if b is None:
+        return None
+    try:
+        return 100.0 * math.expm1(b * math.log(ratio))
+    except OverflowError:
+        return None
 
 
 def shortcut_applies(b: float) -> bool:
@@ -81,11 +99,16 @@ def shortcut_applies(b: float) -> bool:
     if abs(b) > SHORTCUT_MAX_ABS_B:
         return False
     exact = exact_percent(b)
+    if exact is None or exact == 0:
+        return False
     return abs(100.0 * b - exact) <= 0.1 * abs(exact)
 
 
-def _change(v: float, unit: str = "") -> str:
-    u = f" {unit}" if unit else ""
+def _change(v: float | None, unit: str = "") -> str:
+    """'higher by 3.2 dollars' / 'lower by 5%'; a '%' unit is written without a space."""
+    u = unit if unit == "%" else (f" {unit}" if unit else "")
+    if v is None:
+        return "by an amount too large to state (it overflows)"
     if v > 0:
         return f"higher by {fmt(v)}{u}"
     if v < 0:
@@ -93,10 +116,25 @@ def _change(v: float, unit: str = "") -> str:
     return "no different"
 
 
-def _ci_text(lo, hi, level: float, suffix: str = "", what: str = "change") -> str:
+def _comparative(v: float | None, unit: str = "") -> str:
+    """'3.2 dollars higher' / '3.2 dollars lower' (for comparisons between levels)."""
+    u = unit if unit == "%" else (f" {unit}" if unit else "")
+    if v is None:
+        return "different by an amount too large to state (it overflows)"
+    if v > 0:
+        return f"{fmt(v)}{u} higher"
+    if v < 0:
+        return f"{fmt(-v)}{u} lower"
+    return "no different"
+
+
+def _ci_text(lo, hi, level: float, suffix: str = "", what: str = "change", unit: str = "") -> str:
+    """' (95% CI for the change: lo to hi unit)'; ``suffix`` follows each number (e.g. '%')."""
     if lo is None or hi is None:
         return ""
-    return f" ({fmt(100 * level, 3)}% CI for the {what}: {fmt(lo)}{suffix} to {fmt(hi)}{suffix})"
+    u = f" {unit}" if unit else ""
+    return (f" ({fmt(100 * level, 3)}% CI for the {what}: {fmt(lo)}{suffix} to "
+            f"{fmt(hi)}{suffix}{u})")
 
 
 # ----------------------------------------------------------------- scales
@@ -196,12 +234,15 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
         return (f"; percent readings refer to the median (the geometric mean) of "
                 f"{_subject(response, rt)}")
 
-    def reverse_note(b: float) -> str:
+    def reverse_note(b: float, where: str) -> str:
         if rt.increasing:
             return ""
-        where = "lower" if b > 0 else "higher"
-        return (f"; {rt.label(response)} reverses order, so this {'positive' if b > 0 else 'negative'} "
-                f"coefficient goes with {where} {response}")
+        lab = rt.label(response)
+        if b > 0:
+            return (f"; {lab} reverses order: a positive coefficient goes with lower {response} "
+                    f"{where}")
+        return (f"; {lab} reverses order: a positive coefficient would go with lower {response}, "
+                f"so this negative one goes with higher {response} {where}")
 
     for p, term in zip(spec.predictors, design.terms):
         col = p.column
@@ -219,19 +260,16 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
                     item["reading"] = "categorical-level"
                     item["difference"] = b
                     item["sentence"] = (
-                        f"Rows with {col} = {lv} have {response} {_change(b, y_unit)} on average "
-                        f"than rows with {col} = {ref}"
-                        f"{_ci_text(lo, hi, level, ' ' + y_unit if y_unit else '', 'difference')}"
-                        f"{hold}.")
+                        f"Rows with {col} = {lv} have {response} {_comparative(b, y_unit)} on "
+                        f"average than rows with {col} = {ref}"
+                        f"{_ci_text(lo, hi, level, what='difference', unit=y_unit)}{hold}.")
                 elif rscale == "log":
-                    pct = exact_percent(b)
-                    plo = exact_percent(lo) if lo is not None else None
-                    phi = exact_percent(hi) if hi is not None else None
+                    pct, plo, phi = exact_percent(b), exact_percent(lo), exact_percent(hi)
                     item.update(reading="categorical-log", percent=pct, percent_ci_low=plo,
                                 percent_ci_high=phi)
                     item["sentence"] = (
                         f"Rows with {col} = {lv} have a median {_subject(response, rt)} "
-                        f"{_change(pct)}% than rows with {col} = {ref}"
+                        f"{_comparative(pct, '%')} than rows with {col} = {ref}"
                         f"{_ci_text(plo, phi, level, '%', 'difference')}{hold}{median_note()}.")
                 else:
                     at_level = dict(point, **{col: lv})
@@ -240,14 +278,15 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
                     diff, ratio = _diff_ratio(y_ref, y_lv)
                     item.update(reading="categorical-two-point", predicted_level=y_lv,
                                 predicted_reference=y_ref, difference=diff, ratio=ratio)
-                    others = (", with the other predictors at their medians (categorical ones at "
-                              "their reference levels)") if several else ""
+                    others = (", holding the other predictors fixed at their medians (categorical "
+                              "ones at their reference levels)") if several else ""
+                    yu = f" {y_unit}" if y_unit else ""
                     item["sentence"] = (
                         f"On the {rt.label(response)} scale rows with {col} = {lv} differ from rows "
-                        f"with {col} = {ref} by {fmt(b)}{_ci_text(lo, hi, level)}, which has no "
-                        f"constant-rate reading for {response}; the predicted median {response} is "
-                        f"{fmt(y_lv)} for {lv} and {fmt(y_ref)} for {ref}"
-                        f"{_diff_text(diff, ratio, y_unit)}{others}{reverse_note(b)}.")
+                        f"with {col} = {ref} by {fmt(b)}{_ci_text(lo, hi, level, what='difference')}"
+                        f", which has no constant-rate reading for {response}; the predicted median "
+                        f"{response} is {fmt(y_lv)}{yu} for {lv} and {fmt(y_ref)}{yu} for {ref}"
+                        f"{_diff_text(diff, ratio, y_unit)}{others}{reverse_note(b, f'for {col} = {lv}')}.")
                 out.append(item)
             continue
 
@@ -262,18 +301,16 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
             item.update(reading="level-level", change_per_unit=b)
             item["sentence"] = (
                 f"Each {per} of {col} goes with {response} {_change(b, y_unit)} on average"
-                f"{_ci_text(lo, hi, level, ' ' + y_unit if y_unit else '')}{hold}.")
+                f"{_ci_text(lo, hi, level, unit=y_unit)}{hold}.")
         elif rscale == "log" and pscale == "level":
-            pct = exact_percent(b)
-            plo = exact_percent(lo) if lo is not None else None
-            phi = exact_percent(hi) if hi is not None else None
+            pct, plo, phi = exact_percent(b), exact_percent(lo), exact_percent(hi)
             short = shortcut_applies(b)
             item.update(reading="log-level", percent=pct, percent_ci_low=plo, percent_ci_high=phi,
                         shortcut_percent=100.0 * b if short else None)
             shortcut = (f"; the quick reading 100·b = {fmt(100 * b)}% is close only because |b| is "
                         "small" if short else "")
             item["sentence"] = (
-                f"Each {per} of {col} goes with a median {_subject(response, rt)} {_change(pct)}%"
+                f"Each {per} of {col} goes with a median {_subject(response, rt)} {_change(pct, '%')}"
                 f"{_ci_text(plo, phi, level, '%')}{hold}{shortcut}{median_note()}.")
         elif rscale == "level" and pscale == "log":
             d1, d10 = b * LN_1_01, b * LN_1_1
@@ -285,15 +322,15 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
             xs = _subject(col, pt)
             item["sentence"] = (
                 f"A 1% higher {xs} goes with {response} {_change(d1, y_unit)} on average"
-                f"{_ci_text(item['change_per_1pct_ci_low'], item['change_per_1pct_ci_high'], level, ' ' + y_unit if y_unit else '')}"
+                f"{_ci_text(item['change_per_1pct_ci_low'], item['change_per_1pct_ci_high'], level, unit=y_unit)}"
                 f", and a 10% higher {xs} with {response} {_change(d10, y_unit)}{hold}.")
         elif rscale == "log" and pscale == "log":
-            p1, p10 = 100.0 * (1.01 ** b - 1.0), 100.0 * (1.1 ** b - 1.0)
+            p1, p10 = percent_for_ratio(1.01, b), percent_for_ratio(1.1, b)
             item.update(reading="log-log", elasticity=b, percent_per_1pct=p1, percent_per_10pct=p10,
-                        percent_per_1pct_ci_low=None if lo is None else 100.0 * (1.01 ** lo - 1.0),
-                        percent_per_1pct_ci_high=None if hi is None else 100.0 * (1.01 ** hi - 1.0),
-                        percent_per_10pct_ci_low=None if lo is None else 100.0 * (1.1 ** lo - 1.0),
-                        percent_per_10pct_ci_high=None if hi is None else 100.0 * (1.1 ** hi - 1.0))
+                        percent_per_1pct_ci_low=percent_for_ratio(1.01, lo),
+                        percent_per_1pct_ci_high=percent_for_ratio(1.01, hi),
+                        percent_per_10pct_ci_low=percent_for_ratio(1.1, lo),
+                        percent_per_10pct_ci_high=percent_for_ratio(1.1, hi))
             xs, ys = _subject(col, pt), _subject(response, rt)
             ci = "" if lo is None else f" ({fmt(100 * level, 3)}% CI {fmt(lo)} to {fmt(hi)})"
             prop = ""
@@ -305,9 +342,9 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
                         f"than {xs} (more than proportional)")
             item["sentence"] = (
                 f"The elasticity of the median {ys} with respect to {xs} is {fmt(b)}{ci}: a 1% "
-                f"higher {xs} goes with a median {ys} {_change(p1)}%"
+                f"higher {xs} goes with a median {ys} {_change(p1, '%')}"
                 f"{_ci_text(item['percent_per_1pct_ci_low'], item['percent_per_1pct_ci_high'], level, '%')}"
-                f", and a 10% higher {xs} with a median {ys} {_change(p10)}%{hold}{prop}"
+                f", and a 10% higher {xs} with a median {ys} {_change(p10, '%')}{hold}{prop}"
                 f"{median_note()}.")
         else:
             item.update(_two_point(spec, design, coef, prep, point, p))
@@ -328,14 +365,14 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
                       "their reference levels)") if several else ""
             item["sentence"] = (
                 f"{intro}; the predicted {stat} {response} is {fmt(item['predicted_median'])}{yu} "
-                f"at the median {col} ({fmt(item['at_median'])}{u}) and "
+                f"at the median {col} ({fmt(item['at_median'])}) and "
                 f"{fmt(item['predicted_median_plus_one'])}{yu} at one{u or ' unit'} more "
                 f"({fmt(item['at_median_plus_one'])}{beyond})"
                 f"{_diff_text(item['difference_plus_one'], None, y_unit)}, and "
                 f"{fmt(item['predicted_q1'])}{yu} at the first quartile ({fmt(item['at_q1'])}) "
                 f"against {fmt(item['predicted_q3'])}{yu} at the third quartile "
                 f"({fmt(item['at_q3'])}){_diff_text(item['difference_q1_q3'], item['ratio_q1_q3'], y_unit)}"
-                f"{others}{reverse_note(b)}.")
+                f"{others}{reverse_note(b, f'where {pt.label(col)} is higher')}.")
         out.append(item)
     return out
 

@@ -348,3 +348,52 @@ def _check_levels(prep: Prepared, plan: CVPlan) -> None:
                     raise InputError.at(pointer("predictors", j), (
                         f"level '{lv}' of '{col}' has {cnt} row(s), so some cross-validation "
                         "training fold never sees it; merge rare levels or use fewer folds"))
+
+
+def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry_hook=None,
+                finish=None, mapper=map) -> dict:
+    """One selection per value of the group column.
+
+    ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
+    pool's map to spread the groups over workers.  A group that cannot be modelled
+    gets a ``problem`` entry with its reason while the others go on.
+    """
+    from .data import split_groups
+    from .errors import BestscaleError
+
+    t0 = time.perf_counter()
+    parts = split_groups(prep)
+    names = list(parts)
+
+    def one(name: str) -> dict:
+        sub = parts[name]
+        if isinstance(sub, BestscaleError):
+            return {"problem": _problem_of(sub)}
+        try:
+            body = run_selection(sub, opts, service_version, entry_hook)
+        except BestscaleError as exc:
+            return {"problem": _problem_of(exc)}
+        body.pop("_scored", None)
+        body.pop("_plan", None)
+        return finish(body) if finish is not None else body
+
+    bodies = list(mapper(one, names))
+    failed = sum(1 for b in bodies if "problem" in b)
+    return {
+        "data": prep.data_summary(),
+        "search": {"groups": len(names), "groups_failed": failed,
+                   "elapsed_s": round(time.perf_counter() - t0, 4), "complete": all(
+                       b.get("search", {}).get("complete", True) for b in bodies)},
+        "ranking": [],
+        "groups": dict(zip(names, bodies)),
+        "warnings": [f"One selection per value of the group column ({len(names)} groups); each "
+                     "group's ranking is under 'groups'."] +
+                    ([f"{failed} group(s) could not be modelled; see their 'problem'."] if failed else []),
+    }
+
+
+def _problem_of(exc) -> dict:
+    status = 503 if isinstance(exc, BudgetError) else 422
+    return {"type": f"urn:bestscale:problem:{exc.kind}", "title": exc.title, "status": status,
+            "detail": exc.detail,
+            "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems]}
