@@ -19,7 +19,11 @@ def main(argv: list[str] | None = None) -> int:
     args = ap.parse_args(argv)
     for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ.setdefault(var, str(s.blas_threads))
+    import logging
+
     import uvicorn
+
+    logging.basicConfig(level=s.log_level.upper(), format="%(message)s")
 
     uvicorn.run("service.app:app", host=args.host, port=args.port, workers=args.workers,
                 log_level=s.log_level, server_header=False)

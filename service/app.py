@@ -8,6 +8,7 @@ from fastapi import FastAPI
 
 from . import errors
 from .api.routes import router
+from .middleware import ServiceMiddleware
 from .settings import get_settings
 from .version import __version__
 
@@ -31,6 +32,14 @@ def create_app() -> FastAPI:
     )
     errors.install(app)
     app.include_router(router)
+    s = get_settings()
+    if s.cors_origins:
+        from starlette.middleware.cors import CORSMiddleware
+
+        app.add_middleware(CORSMiddleware, allow_origins=s.cors_origins, allow_methods=["GET", "POST"],
+                           allow_headers=["Authorization", "Content-Type", "X-Request-ID"],
+                           expose_headers=["X-Request-ID", "Retry-After"])
+    app.add_middleware(ServiceMiddleware, max_body_bytes=s.max_body_bytes, api_token=s.api_token)
     return app
 
 

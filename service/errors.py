@@ -31,7 +31,7 @@ def problem(status: int, kind: str, title: str, detail: str, errors: list[dict] 
     body = {"type": f"urn:bestscale:problem:{kind}", "title": title, "status": status,
             "detail": detail, "errors": errors or []}
     if request is not None:
-        rid = getattr(request.state, "request_id", None)
+        rid = request.scope.get("state", {}).get("request_id")
         if rid:
             body["request_id"] = rid
         body["instance"] = request.url.path
@@ -113,8 +113,10 @@ def install(app: FastAPI) -> None:
 
     @app.exception_handler(StarletteHTTPException)
     async def _http(request: Request, exc: StarletteHTTPException):
-        titles = {404: "Not found", 405: "Method not allowed"}
-        return problem(exc.status_code, "http", titles.get(exc.status_code, "HTTP error"),
+        titles = {404: "Not found", 405: "Method not allowed", 413: "Request body too large"}
+        kinds = {404: "not-found", 405: "method-not-allowed", 413: "too-large"}
+        return problem(exc.status_code, kinds.get(exc.status_code, "http"),
+                       titles.get(exc.status_code, "HTTP error"),
                        str(exc.detail), headers=getattr(exc, "headers", None), request=request)
 
     @app.exception_handler(Exception)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from fastapi import APIRouter
+from starlette.responses import PlainTextResponse
 
 from ..core import transforms as tr
 from ..core.cautions import selection_cautions
@@ -95,3 +96,11 @@ def get_transforms():
 @router.get("/healthz", response_class=JSONBody, tags=["operations"], summary="Liveness")
 async def healthz():
     return JSONBody({"status": "ok", "service_version": __version__})
+
+
+@router.get("/metrics", tags=["operations"], summary="Prometheus metrics (text format)",
+            response_class=PlainTextResponse)
+def metrics():
+    from prometheus_client import CONTENT_TYPE_LATEST, generate_latest
+
+    return PlainTextResponse(generate_latest(), media_type=CONTENT_TYPE_LATEST)
