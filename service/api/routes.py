@@ -13,6 +13,7 @@ from ..core.search import SearchOptions, run_grouped, run_selection
 from ..settings import get_settings
 from ..version import __version__
 from .encode import JSONBody
+from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import SelectionRequest, transform_items
 
@@ -84,7 +85,8 @@ def _finish(body: dict, opts: SearchOptions) -> dict:
 @router.post("/v1/selections", response_class=JSONBody, tags=["selection"],
              summary="Search transformations, score every candidate, return a ranking")
 def post_selections(req: SelectionRequest):
-    return JSONBody(run_selection_request(req))
+    with compute_slot():
+        return JSONBody(run_selection_request(req))
 
 
 @router.get("/v1/transforms", response_class=JSONBody, tags=["reference"],

@@ -358,7 +358,7 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
                 intro = (f"{col} enters as {pt.label(col)}, with coefficient {fmt(b)}{ci}, which "
                          "has no constant-rate reading")
             u = f" {x_unit}" if x_unit else ""
-            beyond = (f" (beyond the largest observed {col})"
+            beyond = (f", beyond the largest observed {col}"
                       if item["at_median_plus_one"] > float(np.max(prep.numeric[col])) else "")
             yu = f" {y_unit}" if y_unit else ""
             others = (", holding the other predictors fixed at their medians (categorical ones at "

@@ -1,0 +1,526 @@
+"""Private helpers for :mod:`service.core.conditions` and :mod:`service.core.plots`.
+
+One ordinary-least-squares fit (:class:`Fit`) is shared by every check, and each published
+test has one guarded runner that returns a JSON-friendly entry
+``{"name", "statistic", "p_value", ...}``.  A test that cannot run (too few rows, a singular
+auxiliary regression, zero residuals) returns ``statistic``/``p_value`` ``None`` and a
+``reason``; it never raises and never returns NaN or infinity.
+
+The statistics themselves come from statsmodels and scipy.  Three quantities use a closed
+form instead of the library routine because the routine refits the model once per row, which
+is infeasible for large n; each closed form is an exact identity checked against statsmodels
+in the tests:
+
+* externally studentised residuals, t_i = r_i sqrt((n-p-1)/(n-p-r_i^2)), and
+  DFFITS_i = t_i sqrt(h_ii/(1-h_ii)) (Belsley, Kuh & Welsch 1980, ch. 2);
+* the added-variable t-test of one extra regressor (Frisch & Waugh 1933; Lovell 1963);
+* the Ljung & Box (1978) Q statistic above :data:`LJUNG_BOX_DIRECT_MAX_N` rows, from the
+  FFT autocorrelations of ``statsmodels.tsa.stattools.acf``.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Callable
+from contextlib import contextmanager
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+from statsmodels.regression.linear_model import OLS
+from statsmodels.stats import diagnostic as smd
+from statsmodels.stats import stattools as smt
+from statsmodels.tools.sm_exceptions import SingularMatrixWarning
+from statsmodels.tsa.stattools import acf
+
+#: residual norm below this fraction of the response's spread counts as an exact fit
+PERFECT_FIT_RTOL = 1e-8
+#: leverage this close to 1 means the fit passes through the row
+LEVERAGE_ONE_TOL = 1e-10
+#: scipy documents Shapiro-Wilk p-values as unreliable above 5000 rows
+SHAPIRO_MAX_N = 5000
+#: statsmodels' acorr_ljungbox computes autocorrelations in O(n^2); above this use the FFT form
+LJUNG_BOX_DIRECT_MAX_N = 20_000
+#: White's auxiliary design is n x q; skip it above this many cells (memory, ~200 MB)
+WHITE_MAX_CELLS = 25_000_000
+
+
+class NotApplicable(Exception):
+    """A test that cannot run on these data; the message is shown as the reason."""
+
+
+def num(value) -> float | None:
+    """``float(value)`` when finite, else ``None`` (JSON has no NaN or infinity)."""
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return None
+    return out if math.isfinite(out) else None
+
+
+def guarded(name: str, compute: Callable[[], dict], **meta) -> dict:
+    """Run one test; on failure return the entry with ``None`` numbers and a ``reason``."""
+    entry: dict = {"name": name, "statistic": None, "p_value": None, **meta}
+    try:
+        # Degenerate inputs give 0/0 inside numpy; such values are reported as None below.
+        with np.errstate(all="ignore"):
+            out = compute()
+    except NotApplicable as exc:
+        entry["reason"] = str(exc)
+        return entry
+    except Exception as exc:  # noqa: BLE001 - one failing test must not stop the assessment
+        entry["reason"] = f"could not be computed ({type(exc).__name__}: {exc})"
+        return entry
+    for key, value in out.items():
+        entry[key] = num(value) if isinstance(value, (float, np.floating, np.integer)) else value
+    if entry["statistic"] is None and "reason" not in entry:
+        entry["reason"] = "undefined for these data"
+    return entry
+
+
+@contextmanager
+def _rank_quiet():
+    """Silence statsmodels' rank-deficiency warning around one fit.
+
+    Used only where rank is handled explicitly: statsmodels counts degrees of freedom by
+    numerical rank, and rank deficiency itself is reported under multicollinearity.
+    """
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", SingularMatrixWarning)
+        yield
+
+
+def ols(z: np.ndarray, X: np.ndarray):
+    """statsmodels OLS (pinv) fit; a rank-deficient design is accepted (see _rank_quiet)."""
+    with _rank_quiet():
+        return OLS(z, X).fit()
+
+
+@dataclass(frozen=True, eq=False)
+class Influence:
+    """Per-row influence measures (Cook 1977; Belsley, Kuh & Welsch 1980)."""
+
+    leverage: np.ndarray  # h_ii
+    standardized: np.ndarray  # internally studentised residuals r_i (NaN where h_ii = 1)
+    studentized: np.ndarray  # externally studentised residuals t_i
+    cooks: np.ndarray  # Cook's distance D_i
+    dffits: np.ndarray  # DFFITS_i
+
+
+@dataclass(frozen=True, eq=False)
+class Fit:
+    """The OLS fit every condition check reads from."""
+
+    z: np.ndarray
+    X: np.ndarray
+    res: object  # statsmodels RegressionResultsWrapper
+    n: int
+    rank: int
+    df_resid: int
+    resid: np.ndarray
+    fitted: np.ndarray
+    rss: float
+    spans_constant: bool
+    n_predictor_columns: int  # non-constant columns of X
+    residual_reason: str | None  # why residual-based tests cannot run, or None
+    influence: Influence | None
+
+
+def fit_model(z: np.ndarray, X: np.ndarray, has_intercept: bool) -> Fit:
+    """Fit ``z`` on ``X`` by OLS and compute the influence measures once."""
+    res = ols(z, X)
+    n = int(z.shape[0])
+    rank = int(res.model.rank)
+    resid = np.asarray(res.resid, dtype=float)
+    fitted = np.asarray(res.fittedvalues, dtype=float)
+    rss = float(resid @ resid)
+    constant_cols = np.ptp(X, axis=0) == 0
+    spans_constant = bool(has_intercept or np.any(constant_cols & (X[0] != 0)))
+    if not spans_constant:
+        ones_hat = X @ res.model.pinv_wexog.sum(axis=1)
+        spans_constant = bool(np.linalg.norm(ones_hat - 1.0) < 1e-8 * math.sqrt(n))
+    spread = float(np.linalg.norm(z - z.mean())) if spans_constant else float(np.linalg.norm(z))
+    reason = None
+    if n - rank < 1:
+        reason = f"no residual degrees of freedom ({n} rows, {rank} estimated coefficients)"
+    elif math.sqrt(rss) <= PERFECT_FIT_RTOL * spread or spread == 0.0:
+        reason = "the residuals are all zero (the model fits the data exactly)"
+    infl = None if reason else _influence(res, n - rank)
+    return Fit(
+        z=z, X=X, res=res, n=n, rank=rank, df_resid=n - rank, resid=resid, fitted=fitted,
+        rss=rss, spans_constant=spans_constant,
+        n_predictor_columns=int(np.sum(~constant_cols)), residual_reason=reason, influence=infl,
+    )
+
+
+def _influence(res, df_resid: int) -> Influence:
+    # Rows with leverage 1 give 0/0 in statsmodels' formulas; they are set to NaN explicitly.
+    with np.errstate(all="ignore"):
+        infl = res.get_influence()
+        h = np.asarray(infl.hat_matrix_diag, dtype=float)
+        r = np.asarray(infl.resid_studentized_internal, dtype=float)
+        cooks = np.asarray(infl.cooks_distance[0], dtype=float)
+        if df_resid >= 2:
+            t = r * np.sqrt((df_resid - 1) / (df_resid - r**2))
+        else:
+            t = np.full_like(r, np.nan)
+        dffits = t * np.sqrt(h / (1 - h))
+    at_one = h >= 1 - LEVERAGE_ONE_TOL
+    for arr in (r, t, cooks, dffits):
+        arr[at_one | ~np.isfinite(arr)] = np.nan
+    return Influence(leverage=h, standardized=r, studentized=t, cooks=cooks, dffits=dffits)
+
+
+def _require_residuals(fit: Fit) -> None:
+    if fit.residual_reason:
+        raise NotApplicable(fit.residual_reason)
+
+
+def full_rank_columns(Z: np.ndarray, tol: float = 1e-9) -> np.ndarray:
+    """Columns of ``Z`` kept by a pivoted QR so the result has full column rank."""
+    from scipy.linalg import qr
+
+    scale = np.linalg.norm(Z, axis=0)
+    scale[scale == 0] = 1.0
+    _, R, piv = qr(Z / scale, mode="economic", pivoting=True)
+    diag = np.abs(np.diag(R))
+    keep = np.sort(piv[: int(np.sum(diag > tol * max(diag.max(initial=0.0), 1e-300)))])
+    return Z[:, keep]
+
+
+def standardized_regressors(fit: Fit) -> np.ndarray:
+    """[1, standardised non-constant columns of X], reduced to full rank.
+
+    Breusch-Pagan and White statistics are invariant to affine rescaling of the regressors, so
+    this changes nothing but the numerical accuracy (e.g. Longley's columns span 1e1..1e6).
+    """
+    X = fit.X
+    keep = np.ptp(X, axis=0) > 0
+    cols = X[:, keep]
+    cols = (cols - cols.mean(axis=0)) / cols.std(axis=0)
+    return np.column_stack([np.ones(fit.n), full_rank_columns(cols)]) if cols.size else np.ones(
+        (fit.n, 1)
+    )
+
+
+# ----------------------------------------------------------------------------- linearity
+def reset_test(fit: Fit) -> dict:
+    """Ramsey (1969) RESET: F test of adding fitted^2 and fitted^3.
+
+    The powers are taken of the standardised fitted values (centred when the model spans a
+    constant, scaled only otherwise): the same column space in exact arithmetic, far better
+    conditioned (statsmodels' ``linear_reset`` loses the answer on Longley).
+    """
+
+    def compute():
+        _require_residuals(fit)
+        f = fit.fitted
+        s = (f - f.mean()) if fit.spans_constant else f
+        scale = float(np.sqrt(np.mean(s**2)))
+        if scale == 0 or fit.n_predictor_columns == 0:
+            raise NotApplicable("the model has no predictors, so the fitted values are constant")
+        s = s / scale
+        powers = np.column_stack([s**2, s**3])
+        resid_part = powers - fit.X @ (fit.res.model.pinv_wexog @ powers)
+        rel = np.linalg.norm(resid_part, axis=0) / np.linalg.norm(powers, axis=0)
+        use = [k for k in range(2) if rel[k] > 1e-7]
+        if not use:
+            raise NotApplicable(
+                "fitted^2 and fitted^3 add nothing to this model (its fitted values take too "
+                "few distinct values, e.g. a saturated categorical model)"
+            )
+        if fit.df_resid - len(use) < 1:
+            raise NotApplicable(f"too few rows ({fit.n}) for the RESET auxiliary regression")
+        res_u = ols(fit.z, np.column_stack([fit.X, powers[:, use]]))
+        F, p, df_num = res_u.compare_f_test(fit.res)
+        return {
+            "statistic": F, "p_value": p, "df": [float(df_num), float(res_u.df_resid)],
+            "powers": [k + 2 for k in use],
+        }
+
+    return guarded(
+        "Ramsey RESET", compute, powers=[2, 3], form="F test of fitted^2 and fitted^3 "
+        "(standardised fitted values)", source="Ramsey (1969); statsmodels OLS.compare_f_test",
+    )
+
+
+def rainbow_test(fit: Fit) -> dict:
+    """Utts (1982) rainbow test, central half of the rows by Mahalanobis distance."""
+
+    def compute():
+        _require_residuals(fit)
+        if fit.n_predictor_columns == 0:
+            raise NotApplicable("the model has no predictors")
+        with _rank_quiet():  # a half-sample may lose a rare dummy level; df use its rank
+            F, p = smd.linear_rainbow(fit.res, frac=0.5, use_distance=True)
+        return {"statistic": F, "p_value": p}
+
+    return guarded(
+        "Rainbow (Utts)", compute, frac=0.5,
+        source="Utts (1982); statsmodels.stats.diagnostic.linear_rainbow(use_distance=True)",
+    )
+
+
+def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, int]:
+    """t-test of ``v`` added to the model: (coefficient, p-value, df).
+
+    Identical to refitting OLS with the extra column (Frisch-Waugh-Lovell theorem).
+    """
+    v_perp = v - fit.X @ (fit.res.model.pinv_wexog @ v)
+    vv = float(v_perp @ v_perp)
+    if vv <= 1e-20 * float(v @ v):
+        raise NotApplicable("the squared term is already in the model's column space")
+    df = fit.df_resid - 1
+    if df < 1:
+        raise NotApplicable(f"too few rows ({fit.n}) to test curvature")
+    ve = float(v_perp @ fit.resid)
+    coef = ve / vv
+    rss1 = max(fit.rss - ve * ve / vv, 0.0)
+    se = math.sqrt(rss1 / df / vv)
+    t = coef / se if se > 0 else math.inf
+    return coef, float(2 * stats.t.sf(abs(t), df)), df
+
+
+def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict:
+    """Curvature of a predictor's partial residuals (component plus residual).
+
+    The partial residual e + b_j w_j is regressed on the centred predictor u and u^2, where u
+    is the predictor on the model's scale, sign-flipped when that scale runs against the raw
+    values (Tukey's order-preserving convention).  The signs of the linear and quadratic
+    coefficients give the bulge; its p-value is the exact t-test of u^2 added to the full
+    model, whose coefficient has the same sign and numerator (partial-residual slopes are
+    attenuated; Mallows 1986).  ``monotone`` compares the mean partial residual in the thirds
+    of u: the bulging rule (Mosteller & Tukey 1977) applies only to monotone curves.
+    """
+    _require_residuals(fit)
+    w = fit.X[:, j]
+    if np.ptp(w) == 0:
+        raise NotApplicable("the predictor is constant")
+    if np.unique(w).size < 3:
+        raise NotApplicable("the predictor takes fewer than three distinct values")
+    b = float(np.asarray(fit.res.params)[j])
+    sign = 1.0
+    if raw is not None and np.ptp(raw) > 0 and np.corrcoef(raw, w)[0, 1] < 0:
+        sign = -1.0
+    u = sign * w
+    c = (u - u.mean()) / u.std()
+    partial = fit.resid + b * w
+    design = np.column_stack([np.ones_like(c), c, c**2])
+    coefs = np.linalg.lstsq(design, partial, rcond=None)[0]
+    _, p_value, df = added_variable_ttest(fit, c**2)
+    order = np.argsort(c, kind="stable")
+    thirds = [partial[idx].mean() for idx in np.array_split(order, 3)]
+    steps = np.sign(np.diff(thirds))
+    monotone = bool(steps[0] == steps[1] != 0 and steps[0] == np.sign(coefs[1]))
+    return {
+        "slope": float(coefs[1]), "curvature": float(coefs[2]), "p_value": p_value, "df": df,
+        "monotone": monotone, "flipped": sign < 0,
+    }
+
+
+# ----------------------------------------------------------------------------- normality
+def shapiro_test(fit: Fit) -> dict:
+    """Shapiro & Wilk (1965) W, scipy (Royston 1995 algorithm); 3 <= n <= 5000 only."""
+
+    def compute():
+        _require_residuals(fit)
+        if fit.n < 3:
+            raise NotApplicable("Shapiro-Wilk needs at least 3 rows")
+        if fit.n > SHAPIRO_MAX_N:
+            raise NotApplicable(
+                f"omitted: Shapiro-Wilk p-values are not reliable above {SHAPIRO_MAX_N} rows "
+                f"(n = {fit.n})"
+            )
+        out = stats.shapiro(fit.resid)
+        return {"statistic": out.statistic, "p_value": out.pvalue}
+
+    return guarded("Shapiro-Wilk", compute, source="Shapiro & Wilk (1965); scipy.stats.shapiro")
+
+
+def jarque_bera_test(fit: Fit) -> dict:
+    """Jarque & Bera (1980) skewness-kurtosis test, statsmodels."""
+
+    def compute():
+        _require_residuals(fit)
+        jb, p, skew, kurt = smt.jarque_bera(fit.resid)
+        return {"statistic": jb, "p_value": p, "df": 2.0, "skewness": skew, "kurtosis": kurt}
+
+    return guarded(
+        "Jarque-Bera", compute,
+        source="Jarque & Bera (1980); statsmodels.stats.stattools.jarque_bera",
+    )
+
+
+def anderson_darling_test(fit: Fit) -> dict:
+    """Anderson & Darling (1952) A^2 with estimated mean and sd (Stephens 1974), statsmodels."""
+
+    def compute():
+        _require_residuals(fit)
+        if fit.n < 8:
+            raise NotApplicable(
+                "Anderson-Darling p-values use an approximation meant for at least 8 rows"
+            )
+        a2, p = smd.normal_ad(fit.resid)
+        return {"statistic": a2, "p_value": p}
+
+    return guarded(
+        "Anderson-Darling", compute,
+        source="Anderson & Darling (1952); statsmodels.stats.diagnostic.normal_ad",
+    )
+
+
+# ------------------------------------------------------------------------ equal variance
+def breusch_pagan_test(fit: Fit) -> dict:
+    """Breusch & Pagan (1979) LM test in Koenker's (1981) studentised form (robust=True)."""
+
+    def compute():
+        _require_residuals(fit)
+        Z = standardized_regressors(fit)
+        if Z.shape[1] < 2:
+            raise NotApplicable("the model has no predictors to relate the spread to")
+        lm, p, fval, fp = smd.het_breuschpagan(fit.resid, Z, robust=True)
+        return {"statistic": lm, "p_value": p, "df": float(Z.shape[1] - 1),
+                "f_statistic": fval, "f_p_value": fp}
+
+    return guarded(
+        "Breusch-Pagan (Koenker studentised)", compute, robust=True,
+        form="Koenker (1981) studentised LM = n R^2 of e^2 on the model's regressors",
+        source="Breusch & Pagan (1979); Koenker (1981); "
+        "statsmodels.stats.diagnostic.het_breuschpagan(robust=True)",
+    )
+
+
+def white_test(fit: Fit) -> dict:
+    """White (1980) test: e^2 on the regressors, their squares and cross-products."""
+
+    def compute():
+        _require_residuals(fit)
+        Z = standardized_regressors(fit)
+        k = Z.shape[1]
+        q = k * (k + 1) // 2
+        if k < 2:
+            raise NotApplicable("the model has no predictors to relate the spread to")
+        if q > fit.n / 2:
+            raise NotApplicable(
+                f"omitted: White's auxiliary regression has {q} columns, too many for {fit.n} "
+                "rows (needs at most n/2)"
+            )
+        if q * fit.n > WHITE_MAX_CELLS:
+            raise NotApplicable(
+                f"omitted: White's auxiliary design ({fit.n} x {q}) exceeds the memory budget; "
+                "the Breusch-Pagan test covers the same alternative in linear form"
+            )
+        with _rank_quiet():  # squares of 0/1 dummies repeat them; statsmodels uses the rank
+            lm, p, fval, fp = smd.het_white(fit.resid, Z)
+        return {"statistic": lm, "p_value": p, "f_statistic": fval, "f_p_value": fp}
+
+    return guarded("White", compute, source="White (1980); statsmodels.stats.diagnostic.het_white")
+
+
+# -------------------------------------------------------------------------- independence
+def durbin_watson_test(resid_ordered: np.ndarray) -> dict:
+    """Durbin & Watson (1950, 1951) d on the ordered residuals; statsmodels gives no p-value."""
+
+    def compute():
+        d = smt.durbin_watson(resid_ordered)
+        return {"statistic": d, "p_value": None}
+
+    return guarded(
+        "Durbin-Watson", compute, common_practice_range=[1.5, 2.5],
+        rule="common practice: 1.5 <= d <= 2.5 is unremarkable; no p-value is computed",
+        source="Durbin & Watson (1950, 1951); statsmodels.stats.stattools.durbin_watson",
+    )
+
+
+def breusch_godfrey_lags(n: int) -> int:
+    """Lag order for Breusch-Godfrey: min(4, max(1, n // 25)) (design choice)."""
+    return min(4, max(1, n // 25))
+
+
+def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict:
+    """Breusch (1978) / Godfrey (1978) LM test on an OLS refit with rows in ``order``."""
+    nlags = breusch_godfrey_lags(fit.n)
+
+    def compute():
+        _require_residuals(fit)
+        if fit.df_resid - nlags < 1:
+            raise NotApplicable(f"too few rows ({fit.n}) for {nlags} lagged residuals")
+        res_o = ols(fit.z[order], fit.X[order])
+        with _rank_quiet():  # the lagged-residual design inherits any rank deficiency of X
+            out = smd.acorr_breusch_godfrey(res_o, nlags=nlags, result_object=True)
+        return {"statistic": out.lm, "p_value": out.lmpval, "df": float(nlags),
+                "f_statistic": out.fval, "f_p_value": out.fpval}
+
+    return guarded(
+        "Breusch-Godfrey", compute, lags=nlags,
+        source="Breusch (1978); Godfrey (1978); statsmodels.stats.diagnostic.acorr_breusch_godfrey",
+    )
+
+
+def ljung_box_test(resid_ordered: np.ndarray) -> dict:
+    """Ljung & Box (1978) Q at lag min(10, n // 5) on the ordered residuals."""
+    n = int(resid_ordered.shape[0])
+    lags = min(10, n // 5)
+
+    def compute():
+        if lags < 1:
+            raise NotApplicable("Ljung-Box needs at least 5 rows")
+        if np.ptp(resid_ordered) == 0:
+            raise NotApplicable("the residuals are constant")
+        if n <= LJUNG_BOX_DIRECT_MAX_N:
+            out = smd.acorr_ljungbox(resid_ordered, lags=lags)
+            return {"statistic": out["lb_stat"].iloc[-1], "p_value": out["lb_pvalue"].iloc[-1]}
+        r = acf(resid_ordered, nlags=lags, fft=True)[1:]
+        q = n * (n + 2) * float(np.sum(r**2 / (n - np.arange(1, lags + 1))))
+        return {"statistic": q, "p_value": stats.chi2.sf(q, lags)}
+
+    return guarded(
+        "Ljung-Box", compute, lags=lags, df=float(max(lags, 0)),
+        source="Ljung & Box (1978); statsmodels.stats.diagnostic.acorr_ljungbox",
+    )
+
+
+# --------------------------------------------------------------------- multicollinearity
+def generalized_vif(X: np.ndarray, groups: list[list[int]]) -> list[float | None]:
+    """Generalised VIF (Fox & Monette 1992) of each column group of ``X``.
+
+    GVIF = det(R_11) det(R_22) / det(R), R the correlation matrix of the non-constant
+    columns (the design with an intercept); for a single column it equals 1/(1 - R_j^2), the
+    ordinary VIF of statsmodels' ``variance_inflation_factor``.  ``None`` marks an exactly
+    collinear group.
+    """
+    cols = sorted({j for g in groups for j in g})
+    if len(groups) < 2:
+        return [1.0 for _ in groups]
+    pos = {j: k for k, j in enumerate(cols)}
+    C = X[:, cols] - X[:, cols].mean(axis=0)
+    C = C / np.linalg.norm(C, axis=0)
+    R = C.T @ C
+    sign, logdet = np.linalg.slogdet(R)
+    eig_min = float(np.linalg.eigvalsh(R).min())
+    out: list[float | None] = []
+    for g in groups:
+        if sign <= 0 or eig_min < 1e-12:
+            out.append(None)
+            continue
+        a = [pos[j] for j in g]
+        b = [pos[j] for j in cols if j not in g]
+        la = np.linalg.slogdet(R[np.ix_(a, a)])[1]
+        lb = np.linalg.slogdet(R[np.ix_(b, b)])[1]
+        out.append(num(math.exp(la + lb - logdet)))
+    return out
+
+
+def scaled_condition_number(X: np.ndarray) -> tuple[float | None, list[float]]:
+    """Belsley, Kuh & Welsch (1980) condition number: unit-length columns, no centring, SVD.
+
+    Returns (condition number, condition indices largest first).
+    """
+    norms = np.linalg.norm(X, axis=0)
+    if np.any(norms == 0):
+        return None, []
+    sv = np.linalg.svd(X / norms, compute_uv=False)
+    if sv[-1] <= sv[0] * np.finfo(float).eps:
+        return None, []
+    return float(sv[0] / sv[-1]), [float(sv[0] / s) for s in sv]
