@@ -1,4 +1,5 @@
-"""Command line: ``python -m service [--host H] [--port P]`` starts the API."""
+"""Command line: ``python -m service [--host H] [--port P]`` starts the API;
+``python -m service select --data FILE ...`` runs one selection in-process (see service/cli.py)."""
 
 from __future__ import annotations
 
@@ -9,6 +10,13 @@ import sys
 
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
+    if argv and argv[0] == "select":
+        from .app import limit_blas_threads
+        from .cli import select_main
+        from .settings import get_settings as _gs
+
+        limit_blas_threads(_gs().blas_threads)
+        return select_main(argv[1:])
     from .settings import get_settings
 
     s = get_settings()

@@ -49,7 +49,7 @@ def selection_options(req: SelectionRequest) -> SearchOptions:
         incumbent=req.incumbent.as_dict() if req.incumbent is not None else None)
 
 
-def run_selection_request(req: SelectionRequest) -> dict:
+def run_selection_request(req: SelectionRequest, progress=None) -> dict:
     data = req.data.as_dict()
     n_rows = len(data["records"]) if data["records"] is not None else (
         max((len(v) for v in data["columns"].values()), default=0) if data["columns"] is not None
@@ -70,7 +70,16 @@ def run_selection_request(req: SelectionRequest) -> dict:
             raise InputError.at("/group_by", f"'{req.group_by}' has {n_groups} values; at most "
                                 f"{limit} groups are accepted per request (setting "
                                 "BESTSCALE_MAX_GROUPS); split the job over several requests")
-        body = run_grouped(prep, opts, __version__, finish=lambda b: _finish(b, opts))
+        mapper = map
+        if progress is not None:
+            progress.total = n_groups
+
+            def mapper(fn, items):
+                for item in items:
+                    yield fn(item)
+                    progress.step()
+        body = run_grouped(prep, opts, __version__, finish=lambda b: _finish(b, opts),
+                           mapper=mapper)
         return _finish(body, opts)
     return _finish(run_selection(prep, opts, __version__), opts)
 
