@@ -23,12 +23,26 @@ def _write(name: str, body: dict) -> None:
 
 def main() -> None:
     client = TestClient(app)
-    requests = {"selections": ("/v1/selections", demo_request())}
-    for name, (path, body) in requests.items():
+    sel = demo_request()
+    sel["units"] = {"repair_cost": "currency units", "pipe_length_m": "metre",
+                    "pipe_age_years": "year"}
+    answers = {}
+    for name, path, body in [("selections", "/v1/selections", sel)]:
         _write(f"{name}.request.json", body)
         r = client.post(path, json=body)
         r.raise_for_status()
-        _write(f"{name}.response.json", r.json())
+        answers[name] = r.json()
+        _write(f"{name}.response.json", answers[name])
+    pred = {"model": answers["selections"]["ranking"][0]["model"],
+            "data": {"records": [
+                {"pipe_length_m": 35.0, "pipe_age_years": 12, "soil": "loam"},
+                {"pipe_length_m": 220.0, "pipe_age_years": 55, "soil": "clay"},
+                {"pipe_length_m": 900.0, "pipe_age_years": 30, "soil": "sand"}]},
+            "interval": 0.9}
+    _write("predictions.request.json", pred)
+    r = client.post("/v1/predictions", json=pred)
+    r.raise_for_status()
+    _write("predictions.response.json", r.json())
     _write("transforms.response.json", client.get("/v1/transforms").json())
 
 

@@ -7,6 +7,7 @@ import logging
 from fastapi import FastAPI
 
 from . import errors
+from .api.predictions import router as predictions_router
 from .api.routes import router
 from .middleware import ServiceMiddleware
 from .settings import get_settings
@@ -32,6 +33,7 @@ def create_app() -> FastAPI:
     )
     errors.install(app)
     app.include_router(router)
+    app.include_router(predictions_router)
     s = get_settings()
     if s.cors_origins:
         from starlette.middleware.cors import CORSMiddleware

@@ -11,6 +11,7 @@ from ..core.errors import InputError
 from ..core.predict import load_model, predict
 from ..settings import get_settings
 from .encode import JSONBody
+from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn
 
@@ -46,4 +47,5 @@ def run_prediction_request(req: PredictionRequest) -> dict:
 @router.post("/v1/predictions", response_class=JSONBody, tags=["prediction"],
              summary="Mean, median and prediction interval on the original scale from a model")
 def post_predictions(req: PredictionRequest):
-    return JSONBody(run_prediction_request(req))
+    with compute_slot():
+        return JSONBody(run_prediction_request(req))

@@ -139,6 +139,8 @@ class SelectionRequest(_Strict):
     limits: LimitsIn = Field(default_factory=LimitsIn)
     intercept: bool = Field(True, description="fit an intercept")
     group_by: str | None = Field(None, description="run one selection per value of this column")
+    units: dict[str, str] = Field(default_factory=dict, description="{column: unit text} used in "
+                                  "interpretation sentences, e.g. {'pipe_length_m': 'metre'}")
     incumbent: SpecificationIn | None = Field(
         None, description="the specification in use (e.g. last month's), scored on the same "
         "folds; the response tells whether to keep it")

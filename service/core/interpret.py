@@ -31,6 +31,7 @@ associations in the data ("goes with", "higher by"), never effects.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -187,7 +188,8 @@ def _row(spec: Specification, design: Design, point: dict) -> np.ndarray:
     return np.array(x)
 
 
-def _predict_median(spec: Specification, design: Design, coef: np.ndarray, point: dict) -> float | None:
+def _predict_median(spec: Specification, design: Design, coef: np.ndarray,
+                    point: dict) -> float | None:
     eta = float(_row(spec, design, point) @ coef)
     y = float(spec.response_transform.inverse(np.array([eta]))[0])
     return y if math.isfinite(y) else None
@@ -201,178 +203,253 @@ def _diff_ratio(a: float | None, b: float | None) -> tuple[float | None, float |
 
 
 # --------------------------------------------------------------- readings
+@dataclass
+class _Context:
+    spec: Specification
+    design: Design
+    prep: Prepared
+    coef: np.ndarray
+    table: dict[str, dict]
+    units: dict[str, str]
+    level: float
+    point: dict  # medians of numeric predictors, reference levels of categorical ones
+    median_noted: bool = False
+
+    @property
+    def rt(self) -> Transform:
+        return self.spec.response_transform
+
+    @property
+    def response(self) -> str:
+        return self.spec.response
+
+    @property
+    def y_unit(self) -> str:
+        return self.units.get(self.spec.response, "")
+
+    @property
+    def several(self) -> bool:
+        return len(self.spec.predictors) > 1
+
+    @property
+    def hold(self) -> str:
+        return ", holding the other predictors fixed" if self.several else ""
+
+    def hold_at_medians(self, column: str) -> str:
+        """Where the other predictors sit for a two-point reading."""
+        others = [p.column for p in self.spec.predictors if p.column != column]
+        if not others:
+            return ""
+        cats = [c for c in others if c in self.design.levels]
+        if len(cats) == len(others):
+            return ", holding the other predictors fixed at their reference levels"
+        tail = " (categorical ones at their reference levels)" if cats else ""
+        return f", holding the other predictors fixed at their medians{tail}"
+
+    def ci(self, lo, hi, suffix: str = "", what: str = "change", unit: str = "") -> str:
+        return _ci_text(lo, hi, self.level, suffix, what, unit)
+
+    def median_note(self) -> str:
+        """Said once per fit: percent readings under a log response are about the median."""
+        if self.median_noted:
+            return ""
+        self.median_noted = True
+        return (f"; percent readings refer to the median (the geometric mean) of "
+                f"{_subject(self.response, self.rt)}")
+
+    def reverse_note(self, b: float, where: str) -> str:
+        """For an order-reversing response scale (1/y, negative powers)."""
+        if self.rt.increasing:
+            return ""
+        lab, y = self.rt.label(self.response), self.response
+        if b > 0:
+            return f"; {lab} reverses order: a positive coefficient goes with lower {y} {where}"
+        return (f"; {lab} reverses order: a positive coefficient would go with lower {y}, so "
+                f"this negative one goes with higher {y} {where}")
+
+    def median_at(self, column: str, value) -> float | None:
+        """Naive back-transform with ``column`` at ``value``, the others at the reference point."""
+        return _predict_median(self.spec, self.design, self.coef, {**self.point, column: value})
+
+
+def _categorical_readings(ctx: _Context, column: str, indices: tuple[int, ...]) -> list[dict]:
+    info = ctx.design.levels[column]
+    ref = info["reference"]
+    others = [v for v in info["levels"] if v != ref]
+    rscale = _scale(ctx.rt)
+    y, yu = ctx.response, ctx.y_unit
+    out = []
+    for k, lv in zip(indices, others):
+        name = ctx.design.names[k]
+        row = ctx.table[name]
+        b, lo, hi = row["estimate"], row["ci_low"], row["ci_high"]
+        item = {"term": name, "column": column, "level": lv, "reference": ref, "estimate": b,
+                "ci_low": lo, "ci_high": hi}
+        if rscale == "level":
+            item.update(reading="categorical-level", difference=b)
+            item["sentence"] = (
+                f"Rows with {column} = {lv} have {y} {_comparative(b, yu)} on average than rows "
+                f"with {column} = {ref}{ctx.ci(lo, hi, what='difference', unit=yu)}{ctx.hold}.")
+        elif rscale == "log":
+            pct, plo, phi = exact_percent(b), exact_percent(lo), exact_percent(hi)
+            item.update(reading="categorical-log", percent=pct, percent_ci_low=plo,
+                        percent_ci_high=phi)
+            item["sentence"] = (
+                f"Rows with {column} = {lv} have a median {_subject(y, ctx.rt)} "
+                f"{_comparative(pct, '%')} than rows with {column} = {ref}"
+                f"{ctx.ci(plo, phi, '%', 'difference')}{ctx.hold}{ctx.median_note()}.")
+        else:
+            y_lv, y_ref = ctx.median_at(column, lv), ctx.median_at(column, ref)
+            diff, ratio = _diff_ratio(y_ref, y_lv)
+            item.update(reading="categorical-two-point", predicted_level=y_lv,
+                        predicted_reference=y_ref, difference=diff, ratio=ratio)
+            u = f" {yu}" if yu else ""
+            item["sentence"] = (
+                f"On the {ctx.rt.label(y)} scale rows with {column} = {lv} differ from rows with "
+                f"{column} = {ref} by {fmt(b)}{ctx.ci(lo, hi, what='difference')}, which has no "
+                f"constant-rate reading for {y}; the predicted median {y} is {fmt(y_lv)}{u} for "
+                f"{lv} and {fmt(y_ref)}{u} for {ref}{_diff_text(diff, ratio, yu)}"
+                f"{ctx.hold_at_medians(column)}{ctx.reverse_note(b, f'for {column} = {lv}')}.")
+        out.append(item)
+    return out
+
+
+def _level_level(ctx: _Context, item: dict, col: str, per: str) -> None:
+    b = item["estimate"]
+    item.update(reading="level-level", change_per_unit=b)
+    item["sentence"] = (
+        f"Each {per} of {col} goes with {ctx.response} {_change(b, ctx.y_unit)} on average"
+        f"{ctx.ci(item['ci_low'], item['ci_high'], unit=ctx.y_unit)}{ctx.hold}.")
+
+
+def _log_level(ctx: _Context, item: dict, col: str, per: str) -> None:
+    b = item["estimate"]
+    pct = exact_percent(b)
+    plo, phi = exact_percent(item["ci_low"]), exact_percent(item["ci_high"])
+    short = shortcut_applies(b)
+    item.update(reading="log-level", percent=pct, percent_ci_low=plo, percent_ci_high=phi,
+                shortcut_percent=100.0 * b if short else None)
+    shortcut = (f"; the quick reading 100·b = {fmt(100 * b)}% is close only because |b| is small"
+                if short else "")
+    item["sentence"] = (
+        f"Each {per} of {col} goes with a median {_subject(ctx.response, ctx.rt)} "
+        f"{_change(pct, '%')}{ctx.ci(plo, phi, '%')}{ctx.hold}{shortcut}{ctx.median_note()}.")
+
+
+def _level_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
+    b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
+    d1, d10 = b * LN_1_01, b * LN_1_1
+    item.update(reading="level-log", change_per_1pct=d1, change_per_10pct=d10,
+                change_per_1pct_ci_low=None if lo is None else lo * LN_1_01,
+                change_per_1pct_ci_high=None if hi is None else hi * LN_1_01,
+                change_per_10pct_ci_low=None if lo is None else lo * LN_1_1,
+                change_per_10pct_ci_high=None if hi is None else hi * LN_1_1)
+    xs, y, yu = _subject(col, pt), ctx.response, ctx.y_unit
+    ci = ctx.ci(item["change_per_1pct_ci_low"], item["change_per_1pct_ci_high"], unit=yu)
+    item["sentence"] = (
+        f"A 1% higher {xs} goes with {y} {_change(d1, yu)} on average{ci}, and a 10% higher {xs} "
+        f"with {y} {_change(d10, yu)}{ctx.hold}.")
+
+
+def _log_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
+    b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
+    p1, p10 = percent_for_ratio(1.01, b), percent_for_ratio(1.1, b)
+    item.update(reading="log-log", elasticity=b, percent_per_1pct=p1, percent_per_10pct=p10,
+                percent_per_1pct_ci_low=percent_for_ratio(1.01, lo),
+                percent_per_1pct_ci_high=percent_for_ratio(1.01, hi),
+                percent_per_10pct_ci_low=percent_for_ratio(1.1, lo),
+                percent_per_10pct_ci_high=percent_for_ratio(1.1, hi))
+    xs, ys = _subject(col, pt), _subject(ctx.response, ctx.rt)
+    ci = "" if lo is None else f" ({fmt(100 * ctx.level, 3)}% CI {fmt(lo)} to {fmt(hi)})"
+    prop = ""
+    if lo is not None and 0 < lo and hi < 1:
+        prop = (f"; the interval lies between 0 and 1, so {ys} is higher by a smaller percentage "
+                f"than {xs} (less than proportional)")
+    elif lo is not None and lo > 1:
+        prop = (f"; the interval lies above 1, so {ys} is higher by a larger percentage than {xs} "
+                "(more than proportional)")
+    ci1 = ctx.ci(item["percent_per_1pct_ci_low"], item["percent_per_1pct_ci_high"], "%")
+    item["sentence"] = (
+        f"The elasticity of the median {ys} with respect to {xs} is {fmt(b)}{ci}: a 1% higher "
+        f"{xs} goes with a median {ys} {_change(p1, '%')}{ci1}, and a 10% higher {xs} with a "
+        f"median {ys} {_change(p10, '%')}{ctx.hold}{prop}{ctx.median_note()}.")
+
+
+def _two_point(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
+    """No constant-rate reading: back-transformed predictions at chosen predictor values."""
+    b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
+    x = ctx.prep.numeric[col]
+    q1, med, q3 = (float(v) for v in np.percentile(x, [25, 50, 75]))
+    at = {"median": med, "median_plus_one": med + 1.0, "q1": q1, "q3": q3}
+    pred = {k: ctx.median_at(col, v) for k, v in at.items()}
+    d1, _ = _diff_ratio(pred["median"], pred["median_plus_one"])
+    dq, rq = _diff_ratio(pred["q1"], pred["q3"])
+    stat = "mean" if _scale(ctx.rt) == "level" else "median"
+    item.update({f"at_{k}": v for k, v in at.items()})
+    item.update({f"predicted_{k}": v for k, v in pred.items()})
+    item.update(reading="two-point", statistic=stat, difference_plus_one=d1, difference_q1_q3=dq,
+                ratio_q1_q3=rq)
+    y, yu = ctx.response, ctx.y_unit
+    ci = ctx.ci(lo, hi, what="coefficient")
+    if _scale(ctx.rt) == "other":
+        intro = (f"On the {ctx.rt.label(y)} scale {pt.label(col)} has coefficient {fmt(b)}{ci}, "
+                 f"which has no constant-rate reading for {y}")
+    else:
+        intro = (f"{col} enters as {pt.label(col)}, with coefficient {fmt(b)}{ci}, which has no "
+                 "constant-rate reading")
+    x_unit = ctx.units.get(col, "")
+    one = f"one {x_unit}" if x_unit else "one unit"
+    beyond = f", beyond the largest observed {col}" if med + 1.0 > float(np.max(x)) else ""
+    u = f" {yu}" if yu else ""
+    item["sentence"] = (
+        f"{intro}; the predicted {stat} {y} is {fmt(pred['median'])}{u} at the median {col} "
+        f"({fmt(med)}) and {fmt(pred['median_plus_one'])}{u} at {one} more ({fmt(med + 1.0)}"
+        f"{beyond}){_diff_text(d1, None, yu)}, and {fmt(pred['q1'])}{u} at the first quartile "
+        f"({fmt(q1)}) against {fmt(pred['q3'])}{u} at the third quartile ({fmt(q3)})"
+        f"{_diff_text(dq, rq, yu)}{ctx.hold_at_medians(col)}"
+        f"{ctx.reverse_note(b, f'where {pt.label(col)} is higher')}.")
+
+
 def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prepared,
                     units: dict[str, str] | None = None, level: float = 0.95) -> list[dict]:
     """One reading per slope and per categorical level, with its numbers and ``sentence``.
 
     ``spec`` is the concrete fitted specification (estimated parameters
     filled in), ``design`` and ``fit`` its full-data design and OLS fit,
-    ``prep`` the rows it was fitted on.  Each dict has ``term``, ``column``,
-    ``reading`` (level-level, log-level, level-log, log-log, categorical-level,
-    categorical-log, two-point, categorical-two-point), ``estimate``,
-    ``ci_low``/``ci_high`` (model scale, at ``level``), the derived numbers of
-    that reading and ``sentence``.
+    ``prep`` the rows it was fitted on; ``units`` maps column names to unit
+    text ("metre"); ``level`` is the confidence level of the intervals.
+    Each dict has ``term``, ``column``, ``reading`` (level-level, log-level,
+    level-log, log-log, categorical-level, categorical-log, two-point,
+    categorical-two-point), ``estimate``, ``ci_low``/``ci_high`` (model scale),
+    the derived numbers of that reading and ``sentence``.
     """
-    units = dict(units or {})
-    rt = spec.response_transform
-    rscale = _scale(rt)
-    response = spec.response
-    y_unit = units.get(response, "")
-    table = {row["term"]: row for row in fit.table(level)}
-    several = len(spec.predictors) > 1
-    hold = ", holding the other predictors fixed" if several else ""
-    coef = np.asarray(fit.coef, dtype=float)
-    point = _reference_point(spec, design, prep)
+    ctx = _Context(spec, design, prep, np.asarray(fit.coef, dtype=float),
+                   {row["term"]: row for row in fit.table(level)}, dict(units or {}), level,
+                   _reference_point(spec, design, prep))
+    rscale = _scale(spec.response_transform)
     out: list[dict] = []
-    median_note_done = False
-
-    def median_note() -> str:
-        nonlocal median_note_done
-        if median_note_done:
-            return ""
-        median_note_done = True
-        return (f"; percent readings refer to the median (the geometric mean) of "
-                f"{_subject(response, rt)}")
-
-    def reverse_note(b: float, where: str) -> str:
-        if rt.increasing:
-            return ""
-        lab = rt.label(response)
-        if b > 0:
-            return (f"; {lab} reverses order: a positive coefficient goes with lower {response} "
-                    f"{where}")
-        return (f"; {lab} reverses order: a positive coefficient would go with lower {response}, "
-                f"so this negative one goes with higher {response} {where}")
-
     for p, term in zip(spec.predictors, design.terms):
         col = p.column
-        x_unit = units.get(col, "")
         if term.kind == "categorical":
-            ref = design.levels[col]["reference"]
-            for k, lv in zip(term.indices,
-                             [v for v in design.levels[col]["levels"] if v != ref]):
-                name = design.names[k]
-                row = table[name]
-                b, lo, hi = row["estimate"], row["ci_low"], row["ci_high"]
-                item = {"term": name, "column": col, "level": lv, "reference": ref,
-                        "estimate": b, "ci_low": lo, "ci_high": hi}
-                if rscale == "level":
-                    item["reading"] = "categorical-level"
-                    item["difference"] = b
-                    item["sentence"] = (
-                        f"Rows with {col} = {lv} have {response} {_comparative(b, y_unit)} on "
-                        f"average than rows with {col} = {ref}"
-                        f"{_ci_text(lo, hi, level, what='difference', unit=y_unit)}{hold}.")
-                elif rscale == "log":
-                    pct, plo, phi = exact_percent(b), exact_percent(lo), exact_percent(hi)
-                    item.update(reading="categorical-log", percent=pct, percent_ci_low=plo,
-                                percent_ci_high=phi)
-                    item["sentence"] = (
-                        f"Rows with {col} = {lv} have a median {_subject(response, rt)} "
-                        f"{_comparative(pct, '%')} than rows with {col} = {ref}"
-                        f"{_ci_text(plo, phi, level, '%', 'difference')}{hold}{median_note()}.")
-                else:
-                    at_level = dict(point, **{col: lv})
-                    y_lv = _predict_median(spec, design, coef, at_level)
-                    y_ref = _predict_median(spec, design, coef, dict(point, **{col: ref}))
-                    diff, ratio = _diff_ratio(y_ref, y_lv)
-                    item.update(reading="categorical-two-point", predicted_level=y_lv,
-                                predicted_reference=y_ref, difference=diff, ratio=ratio)
-                    others = (", holding the other predictors fixed at their medians (categorical "
-                              "ones at their reference levels)") if several else ""
-                    yu = f" {y_unit}" if y_unit else ""
-                    item["sentence"] = (
-                        f"On the {rt.label(response)} scale rows with {col} = {lv} differ from rows "
-                        f"with {col} = {ref} by {fmt(b)}{_ci_text(lo, hi, level, what='difference')}"
-                        f", which has no constant-rate reading for {response}; the predicted median "
-                        f"{response} is {fmt(y_lv)}{yu} for {lv} and {fmt(y_ref)}{yu} for {ref}"
-                        f"{_diff_text(diff, ratio, y_unit)}{others}{reverse_note(b, f'for {col} = {lv}')}.")
-                out.append(item)
+            out.extend(_categorical_readings(ctx, col, term.indices))
             continue
-
         name = design.names[term.indices[0]]
-        row = table[name]
-        b, lo, hi = row["estimate"], row["ci_low"], row["ci_high"]
-        pt = p.transform
-        pscale = _scale(pt)
-        item = {"term": name, "column": col, "estimate": b, "ci_low": lo, "ci_high": hi}
+        row = ctx.table[name]
+        item = {"term": name, "column": col, "estimate": row["estimate"],
+                "ci_low": row["ci_low"], "ci_high": row["ci_high"]}
+        x_unit = ctx.units.get(col, "")
         per = f"extra {x_unit}" if x_unit else "extra unit"
-        if rscale == "level" and pscale == "level":
-            item.update(reading="level-level", change_per_unit=b)
-            item["sentence"] = (
-                f"Each {per} of {col} goes with {response} {_change(b, y_unit)} on average"
-                f"{_ci_text(lo, hi, level, unit=y_unit)}{hold}.")
-        elif rscale == "log" and pscale == "level":
-            pct, plo, phi = exact_percent(b), exact_percent(lo), exact_percent(hi)
-            short = shortcut_applies(b)
-            item.update(reading="log-level", percent=pct, percent_ci_low=plo, percent_ci_high=phi,
-                        shortcut_percent=100.0 * b if short else None)
-            shortcut = (f"; the quick reading 100·b = {fmt(100 * b)}% is close only because |b| is "
-                        "small" if short else "")
-            item["sentence"] = (
-                f"Each {per} of {col} goes with a median {_subject(response, rt)} {_change(pct, '%')}"
-                f"{_ci_text(plo, phi, level, '%')}{hold}{shortcut}{median_note()}.")
-        elif rscale == "level" and pscale == "log":
-            d1, d10 = b * LN_1_01, b * LN_1_1
-            item.update(reading="level-log", change_per_1pct=d1, change_per_10pct=d10,
-                        change_per_1pct_ci_low=None if lo is None else lo * LN_1_01,
-                        change_per_1pct_ci_high=None if hi is None else hi * LN_1_01,
-                        change_per_10pct_ci_low=None if lo is None else lo * LN_1_1,
-                        change_per_10pct_ci_high=None if hi is None else hi * LN_1_1)
-            xs = _subject(col, pt)
-            item["sentence"] = (
-                f"A 1% higher {xs} goes with {response} {_change(d1, y_unit)} on average"
-                f"{_ci_text(item['change_per_1pct_ci_low'], item['change_per_1pct_ci_high'], level, unit=y_unit)}"
-                f", and a 10% higher {xs} with {response} {_change(d10, y_unit)}{hold}.")
-        elif rscale == "log" and pscale == "log":
-            p1, p10 = percent_for_ratio(1.01, b), percent_for_ratio(1.1, b)
-            item.update(reading="log-log", elasticity=b, percent_per_1pct=p1, percent_per_10pct=p10,
-                        percent_per_1pct_ci_low=percent_for_ratio(1.01, lo),
-                        percent_per_1pct_ci_high=percent_for_ratio(1.01, hi),
-                        percent_per_10pct_ci_low=percent_for_ratio(1.1, lo),
-                        percent_per_10pct_ci_high=percent_for_ratio(1.1, hi))
-            xs, ys = _subject(col, pt), _subject(response, rt)
-            ci = "" if lo is None else f" ({fmt(100 * level, 3)}% CI {fmt(lo)} to {fmt(hi)})"
-            prop = ""
-            if lo is not None and 0 < lo and hi < 1:
-                prop = (f"; the interval lies between 0 and 1, so {ys} is higher by a smaller "
-                        f"percentage than {xs} (less than proportional)")
-            elif lo is not None and lo > 1:
-                prop = (f"; the interval lies above 1, so {ys} is higher by a larger percentage "
-                        f"than {xs} (more than proportional)")
-            item["sentence"] = (
-                f"The elasticity of the median {ys} with respect to {xs} is {fmt(b)}{ci}: a 1% "
-                f"higher {xs} goes with a median {ys} {_change(p1, '%')}"
-                f"{_ci_text(item['percent_per_1pct_ci_low'], item['percent_per_1pct_ci_high'], level, '%')}"
-                f", and a 10% higher {xs} with a median {ys} {_change(p10, '%')}{hold}{prop}"
-                f"{median_note()}.")
+        kind = (rscale, _scale(p.transform))
+        if kind == ("level", "level"):
+            _level_level(ctx, item, col, per)
+        elif kind == ("log", "level"):
+            _log_level(ctx, item, col, per)
+        elif kind == ("level", "log"):
+            _level_log(ctx, item, col, p.transform)
+        elif kind == ("log", "log"):
+            _log_log(ctx, item, col, p.transform)
         else:
-            item.update(_two_point(spec, design, coef, prep, point, p))
-            item["reading"] = "two-point"
-            stat = "mean" if rscale == "level" else "median"
-            ci = _ci_text(lo, hi, level, what="coefficient")
-            if rscale == "other":
-                intro = (f"On the {rt.label(response)} scale {pt.label(col)} has coefficient "
-                         f"{fmt(b)}{ci}, which has no constant-rate reading for {response}")
-            else:
-                intro = (f"{col} enters as {pt.label(col)}, with coefficient {fmt(b)}{ci}, which "
-                         "has no constant-rate reading")
-            u = f" {x_unit}" if x_unit else ""
-            beyond = (f", beyond the largest observed {col}"
-                      if item["at_median_plus_one"] > float(np.max(prep.numeric[col])) else "")
-            yu = f" {y_unit}" if y_unit else ""
-            others = (", holding the other predictors fixed at their medians (categorical ones at "
-                      "their reference levels)") if several else ""
-            item["sentence"] = (
-                f"{intro}; the predicted {stat} {response} is {fmt(item['predicted_median'])}{yu} "
-                f"at the median {col} ({fmt(item['at_median'])}) and "
-                f"{fmt(item['predicted_median_plus_one'])}{yu} at one{u or ' unit'} more "
-                f"({fmt(item['at_median_plus_one'])}{beyond})"
-                f"{_diff_text(item['difference_plus_one'], None, y_unit)}, and "
-                f"{fmt(item['predicted_q1'])}{yu} at the first quartile ({fmt(item['at_q1'])}) "
-                f"against {fmt(item['predicted_q3'])}{yu} at the third quartile "
-                f"({fmt(item['at_q3'])}){_diff_text(item['difference_q1_q3'], item['ratio_q1_q3'], y_unit)}"
-                f"{others}{reverse_note(b, f'where {pt.label(col)} is higher')}.")
+            _two_point(ctx, item, col, p.transform)
         out.append(item)
     return out
 
@@ -383,20 +460,6 @@ def _diff_text(diff: float | None, ratio: float | None, unit: str) -> str:
     u = f" {unit}" if unit else ""
     r = f", ratio {fmt(ratio)}" if ratio is not None else ""
     return f" (difference {fmt(diff)}{u}{r})"
-
-
-def _two_point(spec: Specification, design: Design, coef: np.ndarray, prep: Prepared,
-               point: dict, p) -> dict:
-    x = prep.numeric[p.column]
-    q1, med, q3 = (float(v) for v in np.percentile(x, [25, 50, 75]))
-    vals = {"at_median": med, "at_median_plus_one": med + 1.0, "at_q1": q1, "at_q3": q3}
-    pred = {k.replace("at_", "predicted_"): _predict_median(spec, design, coef,
-                                                             dict(point, **{p.column: v}))
-            for k, v in vals.items()}
-    d1, _ = _diff_ratio(pred["predicted_median"], pred["predicted_median_plus_one"])
-    dq, rq = _diff_ratio(pred["predicted_q1"], pred["predicted_q3"])
-    return {**vals, **pred, "difference_plus_one": d1, "difference_q1_q3": dq, "ratio_q1_q3": rq,
-            "statistic": "mean" if _scale(spec.response_transform) == "level" else "median"}
 
 
 def interpret_fit(spec: Specification, design: Design, fit: OLSFit, prep: Prepared,

@@ -28,9 +28,22 @@ def stored_residuals(resid: np.ndarray) -> tuple[str, list[float]]:
     return "quantiles", [float(v) for v in np.interp(pos - 0.5, np.arange(s.size), s)]
 
 
+def _canon(v):
+    """Numbers as floats, so a client that rewrites 63.0 as 63 (JavaScript) keeps the checksum."""
+    if isinstance(v, dict):
+        return {k: _canon(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_canon(x) for x in v]
+    if isinstance(v, bool) or v is None or isinstance(v, str):
+        return v
+    if isinstance(v, (int, float)):
+        return float(v)
+    return v
+
+
 def checksum(body: dict) -> str:
     """SHA-256 over the canonical JSON of the artifact without its checksum field."""
-    clean = {k: v for k, v in body.items() if k != "checksum"}
+    clean = _canon({k: v for k, v in body.items() if k != "checksum"})
     text = json.dumps(clean, sort_keys=True, separators=(",", ":"), allow_nan=False)
     return hashlib.sha256(text.encode()).hexdigest()
 

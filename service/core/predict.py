@@ -370,9 +370,9 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
             for i, v in enumerate(typed.values):
                 if v is not None and v not in allowed:
                     n_bad += 1
-                    add(raw.cell_pointer(i), f"level '{v}' of '{p.column}' in row {i} did not occur "
-                        f"in the training data (levels: {', '.join(info['levels'][:20])}); the "
-                        "model cannot predict for it")
+                    add(raw.cell_pointer(i), f"level '{v}' of '{p.column}' in row {i} did not "
+                        f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
+                        "the model cannot predict for it")
             for lv in info["levels"]:
                 if lv != info["reference"]:
                     cols.append((typed.values == lv).astype(float))
@@ -442,7 +442,14 @@ def _num(v: float) -> str:
 
 
 def _finite_list(a: np.ndarray) -> list:
-    return [float(v) if math.isfinite(v) else None for v in a.tolist()]
+    """Floats as a list, ``None`` where not finite."""
+    a = np.asarray(a, dtype=float)
+    bad = ~np.isfinite(a)
+    if not bad.any():
+        return a.tolist()
+    out = a.astype(object)
+    out[bad] = None
+    return out.tolist()
 
 
 def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
@@ -479,18 +486,19 @@ def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
     warnings: list[str] = []
 
     # extrapolation
-    reasons: list[list[str]] = [[] for _ in range(m)]
+    reasons: dict[int, list[str]] = {}
     for col, (a, b) in model.training_range.items():
         x = raw[col]
-        for i in np.flatnonzero((x < a) | (x > b)):
-            reasons[i].append(f"'{col}' = {_num(x[i])} is outside the training range "
-                              f"[{_num(a)}, {_num(b)}]")
+        for i in np.flatnonzero((x < a) | (x > b)).tolist():
+            reasons.setdefault(i, []).append(
+                f"'{col}' = {_num(x[i])} is outside the training range [{_num(a)}, {_num(b)}]")
     h0 = zs["leverage"]
     over = h0 > model.max_leverage * (1.0 + LEVERAGE_RTOL) + 1e-12
-    for i in np.flatnonzero(over):
-        reasons[i].append(f"leverage {_num(h0[i])} exceeds the largest training leverage "
-                          f"{_num(model.max_leverage)}")
-    extrap = np.array([bool(r) for r in reasons], dtype=bool)
+    for i in np.flatnonzero(over).tolist():
+        reasons.setdefault(i, []).append(f"leverage {_num(h0[i])} exceeds the largest training "
+                                         f"leverage {_num(model.max_leverage)}")
+    extrap = np.zeros(m, dtype=bool)
+    extrap[list(reasons)] = True
     if np.any(extrap):
         warnings.append(f"{int(extrap.sum())} of {m} rows are extrapolations ("
                         f"{_rows_text(np.flatnonzero(extrap))}): outside the training range of a "
@@ -504,7 +512,8 @@ def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
     report(~np.isfinite(eta), "the linear predictor overflows; every number is null.")
     report(ok_eta & ~np.isfinite(median), f"the median is null: the inverse of {label} does not "
            "exist at the fitted value or overflows.")
-    report(ok_eta & ~np.isfinite(mean), "the mean is null: no smearing term has a finite inverse.")
+    report(ok_eta & ~np.isfinite(mean), "the mean is null: the smearing terms have no finite "
+           "inverse or their average overflows.")
     report(ok_eta & np.isfinite(mean) & partial,
            "some smearing terms have no finite inverse (the response would be unbounded) and are "
            "left out of the mean, which is therefore only indicative.")
@@ -513,13 +522,9 @@ def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
     report(ok_eta & ~np.isfinite(hi), f"the upper prediction limit is null: the interval on the "
            f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).")
 
-    rows = []
     cols = [_finite_list(a) for a in (mean, median, lo, hi, h0, eta, zs["lower"], zs["upper"])]
-    for i in range(m):
-        rows.append({
-            "mean": cols[0][i], "median": cols[1][i], "lower": cols[2][i], "upper": cols[3][i],
-            "extrapolation": bool(extrap[i]), "extrapolation_reasons": reasons[i],
-            "leverage": cols[4][i],
-            "model_scale": {"fit": cols[5][i], "lower": cols[6][i], "upper": cols[7][i]},
-        })
+    rows = [{"mean": c0, "median": c1, "lower": c2, "upper": c3, "extrapolation": i in reasons,
+             "extrapolation_reasons": reasons.get(i, []), "leverage": c4,
+             "model_scale": {"fit": c5, "lower": c6, "upper": c7}}
+            for i, (c0, c1, c2, c3, c4, c5, c6, c7) in enumerate(zip(*cols))]
     return {"predictions": rows, "interval": float(interval), "warnings": warnings}

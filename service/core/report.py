@@ -12,6 +12,7 @@ from .crossval import CVPlan, CVResult
 from .data import Prepared
 from .errors import CandidateFailure
 from .fitting import OLSFit, ols
+from .interpret import interpret_fit
 from .likelihood import estimate_lambda
 from .model import build_model
 from .spec import Design, Specification, build_design
@@ -132,6 +133,7 @@ def entry_for(spec: Specification, cv: CVResult, plan: CVPlan, prep: Prepared, p
                               "metric": plan.metric}),
         "warnings": warnings,
     }
+    entry["interpretation"] = interpret_fit(concrete, design, fit, prep, getattr(opts, "units", None))
     if estimates:
         entry["estimates"] = estimates
     entry["_design"] = design
