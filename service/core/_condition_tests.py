@@ -6,14 +6,16 @@ test has one guarded runner that returns a JSON-friendly entry
 auxiliary regression, zero residuals) returns ``statistic``/``p_value`` ``None`` and a
 ``reason``; it never raises and never returns NaN or infinity.
 
-The statistics themselves come from statsmodels and scipy.  Three quantities use a closed
-form instead of the library routine because the routine refits the model once per row, which
-is infeasible for large n; each closed form is an exact identity checked against statsmodels
+The statistics themselves come from statsmodels and scipy.  A few quantities use an exact
+closed form instead of a library call, because the library route refits the model once per
+row or costs O(n^2) and so cannot serve a million rows; each is checked against statsmodels
 in the tests:
 
 * externally studentised residuals, t_i = r_i sqrt((n-p-1)/(n-p-r_i^2)), and
-  DFFITS_i = t_i sqrt(h_ii/(1-h_ii)) (Belsley, Kuh & Welsch 1980, ch. 2);
-* the added-variable t-test of one extra regressor (Frisch & Waugh 1933; Lovell 1963);
+  DFFITS_i = t_i sqrt(h_ii/(1-h_ii)) (Belsley, Kuh & Welsch 1980, ch. 2), where
+  ``OLSInfluence`` runs a leave-one-out loop;
+* the added-variable t-test of one extra regressor (Frisch & Waugh 1933; Lovell 1963),
+  instead of one more full OLS fit per predictor;
 * the Ljung & Box (1978) Q statistic above :data:`LJUNG_BOX_DIRECT_MAX_N` rows, from the
   FFT autocorrelations of ``statsmodels.tsa.stattools.acf``.
 """
@@ -28,7 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import stats
-from statsmodels.regression.linear_model import OLS
+from scipy.linalg import qr
+from statsmodels.regression.linear_model import OLS, OLSResults
 from statsmodels.stats import diagnostic as smd
 from statsmodels.stats import stattools as smt
 from statsmodels.tools.sm_exceptions import SingularMatrixWarning
@@ -42,8 +45,10 @@ LEVERAGE_ONE_TOL = 1e-10
 SHAPIRO_MAX_N = 5000
 #: statsmodels' acorr_ljungbox computes autocorrelations in O(n^2); above this use the FFT form
 LJUNG_BOX_DIRECT_MAX_N = 20_000
-#: White's auxiliary design is n x q; skip it above this many cells (memory, ~200 MB)
-WHITE_MAX_CELLS = 25_000_000
+#: White's auxiliary design is n x q; skip it above this many cells (time and memory budget)
+WHITE_MAX_CELLS = 5_000_000
+#: the rainbow test sorts all rows by Mahalanobis distance; skip it above this many rows
+RAINBOW_MAX_N = 200_000
 
 
 class NotApplicable(Exception):
@@ -84,7 +89,9 @@ def _rank_quiet():
     """Silence statsmodels' rank-deficiency warning around one fit.
 
     Used only where rank is handled explicitly: statsmodels counts degrees of freedom by
-    numerical rank, and rank deficiency itself is reported under multicollinearity.
+    numerical rank, and rank deficiency itself is reported under multicollinearity.  (On
+    Python 3.11 ``catch_warnings`` edits the process-wide filter list; the worst a concurrent
+    thread can see is this one warning category silenced for a moment.)
     """
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", SingularMatrixWarning)
@@ -141,10 +148,12 @@ def fit_model(z: np.ndarray, X: np.ndarray, has_intercept: bool) -> Fit:
         ones_hat = X @ res.model.pinv_wexog.sum(axis=1)
         spans_constant = bool(np.linalg.norm(ones_hat - 1.0) < 1e-8 * math.sqrt(n))
     spread = float(np.linalg.norm(z - z.mean())) if spans_constant else float(np.linalg.norm(z))
+    # the second term absorbs rounding when z itself is (nearly) constant
+    tol = PERFECT_FIT_RTOL * spread + 1e-12 * float(np.linalg.norm(z))
     reason = None
     if n - rank < 1:
         reason = f"no residual degrees of freedom ({n} rows, {rank} estimated coefficients)"
-    elif math.sqrt(rss) <= PERFECT_FIT_RTOL * spread or spread == 0.0:
+    elif math.sqrt(rss) <= tol:
         reason = "the residuals are all zero (the model fits the data exactly)"
     infl = None if reason else _influence(res, n - rank)
     return Fit(
@@ -177,16 +186,21 @@ def _require_residuals(fit: Fit) -> None:
         raise NotApplicable(fit.residual_reason)
 
 
-def full_rank_columns(Z: np.ndarray, tol: float = 1e-9) -> np.ndarray:
-    """Columns of ``Z`` kept by a pivoted QR so the result has full column rank."""
-    from scipy.linalg import qr
+def full_rank_columns(Z: np.ndarray, tol: float = 1e-6) -> np.ndarray:
+    """Columns of ``Z`` chosen by pivoted QR (Businger & Golub 1965) to have full rank.
 
-    scale = np.linalg.norm(Z, axis=0)
-    scale[scale == 0] = 1.0
-    _, R, piv = qr(Z / scale, mode="economic", pivoting=True)
+    The QR runs on a k x k square root of the unit-column Gram matrix, which has the same
+    column norms and inner products as ``Z``, so the cost is one O(n k^2) product.
+    """
+    norms = np.linalg.norm(Z, axis=0)
+    norms[norms == 0] = 1.0
+    G = (Z.T @ Z) / np.outer(norms, norms)
+    lam, V = np.linalg.eigh(G)
+    root = np.sqrt(np.clip(lam, 0.0, None))[:, None] * V.T  # root.T @ root == G
+    _, R, piv = qr(root, mode="economic", pivoting=True)
     diag = np.abs(np.diag(R))
-    keep = np.sort(piv[: int(np.sum(diag > tol * max(diag.max(initial=0.0), 1e-300)))])
-    return Z[:, keep]
+    rank = int(np.sum(diag > tol * max(float(diag.max(initial=0.0)), 1e-300)))
+    return Z[:, np.sort(piv[:rank])]
 
 
 def standardized_regressors(fit: Fit) -> np.ndarray:
@@ -197,11 +211,12 @@ def standardized_regressors(fit: Fit) -> np.ndarray:
     """
     X = fit.X
     keep = np.ptp(X, axis=0) > 0
+    if not keep.any():
+        return np.ones((fit.n, 1))
     cols = X[:, keep]
     cols = (cols - cols.mean(axis=0)) / cols.std(axis=0)
-    return np.column_stack([np.ones(fit.n), full_rank_columns(cols)]) if cols.size else np.ones(
-        (fit.n, 1)
-    )
+    # drop collinear columns (e.g. a full dummy set, whose centred columns sum to zero)
+    return np.column_stack([np.ones(fit.n), full_rank_columns(cols)])
 
 
 # ----------------------------------------------------------------------------- linearity
@@ -252,6 +267,15 @@ def rainbow_test(fit: Fit) -> dict:
         _require_residuals(fit)
         if fit.n_predictor_columns == 0:
             raise NotApplicable("the model has no predictors")
+        if fit.n > RAINBOW_MAX_N:
+            raise NotApplicable(
+                f"omitted above {RAINBOW_MAX_N} rows to keep within the computing budget "
+                f"(n = {fit.n}); RESET and the curvature checks still use every row"
+            )
+        low = math.ceil(0.25 * fit.n)
+        if math.floor(low + 0.5 * fit.n) - low <= fit.X.shape[1]:
+            raise NotApplicable(f"too few rows ({fit.n}) for a central half larger than the "
+                                "number of coefficients")
         with _rank_quiet():  # a half-sample may lose a rare dummy level; df use its rank
             F, p = smd.linear_rainbow(fit.res, frac=0.5, use_distance=True)
         return {"statistic": F, "p_value": p}
@@ -262,8 +286,8 @@ def rainbow_test(fit: Fit) -> dict:
     )
 
 
-def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, int]:
-    """t-test of ``v`` added to the model: (coefficient, p-value, df).
+def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, float, int]:
+    """t-test of ``v`` added to the model: (coefficient, t, p-value, df).
 
     Identical to refitting OLS with the extra column (Frisch-Waugh-Lovell theorem).
     """
@@ -279,7 +303,7 @@ def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, int]:
     rss1 = max(fit.rss - ve * ve / vv, 0.0)
     se = math.sqrt(rss1 / df / vv)
     t = coef / se if se > 0 else math.inf
-    return coef, float(2 * stats.t.sf(abs(t), df)), df
+    return coef, t, float(2 * stats.t.sf(abs(t), df)), df
 
 
 def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict:
@@ -297,7 +321,8 @@ def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict:
     w = fit.X[:, j]
     if np.ptp(w) == 0:
         raise NotApplicable("the predictor is constant")
-    if np.unique(w).size < 3:
+    lo, hi = w.min(), w.max()
+    if not np.any((w != lo) & (w != hi)):
         raise NotApplicable("the predictor takes fewer than three distinct values")
     b = float(np.asarray(fit.res.params)[j])
     sign = 1.0
@@ -308,14 +333,15 @@ def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict:
     partial = fit.resid + b * w
     design = np.column_stack([np.ones_like(c), c, c**2])
     coefs = np.linalg.lstsq(design, partial, rcond=None)[0]
-    _, p_value, df = added_variable_ttest(fit, c**2)
-    order = np.argsort(c, kind="stable")
-    thirds = [partial[idx].mean() for idx in np.array_split(order, 3)]
-    steps = np.sign(np.diff(thirds))
-    monotone = bool(steps[0] == steps[1] != 0 and steps[0] == np.sign(coefs[1]))
+    _, t_value, p_value, df = added_variable_ttest(fit, c**2)
+    c1, c2 = np.quantile(c, [1 / 3, 2 / 3])
+    groups = [c <= c1, (c > c1) & (c < c2), c >= c2]
+    means = [float(partial[g].mean()) for g in groups if g.any()]  # ties can empty the middle
+    steps = np.sign(np.diff(means))
+    monotone = bool(steps.size and np.all(steps == np.sign(coefs[1])) and coefs[1] != 0)
     return {
-        "slope": float(coefs[1]), "curvature": float(coefs[2]), "p_value": p_value, "df": df,
-        "monotone": monotone, "flipped": sign < 0,
+        "slope": float(coefs[1]), "curvature": float(coefs[2]), "t": t_value,
+        "p_value": p_value, "df": df, "monotone": monotone, "flipped": sign < 0,
     }
 
 
@@ -371,12 +397,14 @@ def anderson_darling_test(fit: Fit) -> dict:
 
 
 # ------------------------------------------------------------------------ equal variance
-def breusch_pagan_test(fit: Fit) -> dict:
-    """Breusch & Pagan (1979) LM test in Koenker's (1981) studentised form (robust=True)."""
+def breusch_pagan_test(fit: Fit, Z: np.ndarray) -> dict:
+    """Breusch & Pagan (1979) LM test in Koenker's (1981) studentised form (robust=True).
+
+    ``Z`` is :func:`standardized_regressors` of the fit.
+    """
 
     def compute():
         _require_residuals(fit)
-        Z = standardized_regressors(fit)
         if Z.shape[1] < 2:
             raise NotApplicable("the model has no predictors to relate the spread to")
         lm, p, fval, fp = smd.het_breuschpagan(fit.resid, Z, robust=True)
@@ -391,12 +419,11 @@ def breusch_pagan_test(fit: Fit) -> dict:
     )
 
 
-def white_test(fit: Fit) -> dict:
+def white_test(fit: Fit, Z: np.ndarray) -> dict:
     """White (1980) test: e^2 on the regressors, their squares and cross-products."""
 
     def compute():
         _require_residuals(fit)
-        Z = standardized_regressors(fit)
         k = Z.shape[1]
         q = k * (k + 1) // 2
         if k < 2:
@@ -408,8 +435,8 @@ def white_test(fit: Fit) -> dict:
             )
         if q * fit.n > WHITE_MAX_CELLS:
             raise NotApplicable(
-                f"omitted: White's auxiliary design ({fit.n} x {q}) exceeds the memory budget; "
-                "the Breusch-Pagan test covers the same alternative in linear form"
+                f"omitted: White's auxiliary design ({fit.n} x {q}) exceeds the computing "
+                "budget; the Breusch-Pagan test still uses every row"
             )
         with _rank_quiet():  # squares of 0/1 dummies repeat them; statsmodels uses the rank
             lm, p, fval, fp = smd.het_white(fit.resid, Z)
@@ -444,9 +471,13 @@ def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict:
 
     def compute():
         _require_residuals(fit)
-        if fit.df_resid - nlags < 1:
+        extra = 0 if fit.spans_constant else 1  # statsmodels adds a constant if X lacks one
+        if fit.df_resid - nlags - extra < 1:
             raise NotApplicable(f"too few rows ({fit.n}) for {nlags} lagged residuals")
-        res_o = ols(fit.z[order], fit.X[order])
+        # OLS is permutation-equivariant: the fit's coefficients are those of the reordered
+        # rows, so the reordered results object is built without refitting.
+        res_o = OLSResults(OLS(fit.z[order], fit.X[order]), np.asarray(fit.res.params),
+                           normalized_cov_params=fit.res.normalized_cov_params)
         with _rank_quiet():  # the lagged-residual design inherits any rank deficiency of X
             out = smd.acorr_breusch_godfrey(res_o, nlags=nlags, result_object=True)
         return {"statistic": out.lm, "p_value": out.lmpval, "df": float(nlags),

@@ -422,20 +422,34 @@ def _names(names: list[str]) -> str:
     return shown + (f", ... ({len(names)} in all)" if len(names) > 20 else "")
 
 
+_MIN_SPREAD = 1e-150  # below this, squared deviations underflow double precision
+
+
+def _tiny_spread(what: str, spread: float) -> str:
+    return (f"{what} varies by only {spread:.3g} on the used rows, too little for sums of "
+            "squares in double precision; rescale it (for example, change its unit)")
+
+
 def _check_content(p: Prepared) -> None:
     if p.n == 0:
         raise InputError.at("/data", f"no row is complete: all {p.rows_received} rows have a "
                             "missing value in a used column")
-    if np.ptp(p.y) <= 1e-12 * max(1.0, float(np.max(np.abs(p.y)))):
+    # relative to the values' size: data in small units (say 1e-13) still vary
+    if np.ptp(p.y) <= 1e-12 * float(np.max(np.abs(p.y))):
         raise InputError.at("/response", f"response '{p.response}' is constant ({p.y[0]:.6g}) on "
                             "the used rows; there is nothing to model")
+    if np.ptp(p.y) < _MIN_SPREAD:
+        raise InputError.at("/response", _tiny_spread(f"response '{p.response}'", np.ptp(p.y)))
     for i, name in enumerate(p.predictors):
         if name in p.numeric:
             x = p.numeric[name]
-            if np.ptp(x) <= 1e-12 * max(1.0, float(np.max(np.abs(x)))):
+            if np.ptp(x) <= 1e-12 * float(np.max(np.abs(x))):
                 raise InputError.at(pointer("predictors", i), f"predictor '{name}' is constant "
                                     f"({x[0]:.6g}) on the used rows; it cannot be estimated "
                                     "beside the intercept")
+            if np.ptp(x) < _MIN_SPREAD:
+                raise InputError.at(pointer("predictors", i),
+                                    _tiny_spread(f"predictor '{name}'", np.ptp(x)))
         else:
             levels = set(p.categorical[name])
             if len(levels) < 2:

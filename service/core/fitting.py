@@ -100,16 +100,19 @@ def ols(X: np.ndarray, z: np.ndarray, names: list[str], has_intercept: bool) -> 
     coef, cov, cond = qr_solve(X, z, names)
     fitted = X @ coef
     resid = z - fitted
-    rss = float(resid @ resid)
     df = n - p
-    s2 = rss / df
-    se = np.sqrt(np.maximum(np.diag(cov), 0.0) * s2)
-    if has_intercept:
-        tss = float(np.sum((z - z.mean()) ** 2))
-        df_tot = n - 1
-    else:
-        tss = float(z @ z)
-        df_tot = n
+    # Sums of squares of a response near the float limits (say the square of values ~1e150)
+    # overflow to inf; that is reported, not raised: callers reject non-finite fits.
+    with np.errstate(over="ignore", invalid="ignore"):
+        rss = float(resid @ resid)
+        s2 = rss / df
+        se = np.sqrt(np.maximum(np.diag(cov), 0.0) * s2)
+        if has_intercept:
+            tss = float(np.sum((z - z.mean()) ** 2))
+            df_tot = n - 1
+        else:
+            tss = float(z @ z)
+            df_tot = n
     r2 = 1.0 - rss / tss if tss > 0 else 0.0
     adj = 1.0 - (1.0 - r2) * df_tot / df
     llf = -0.5 * n * (math.log(2 * math.pi) + 1.0 + math.log(rss / n)) if rss > 0 else math.inf

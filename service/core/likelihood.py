@@ -73,30 +73,43 @@ class _Projector:
         return float(r @ r)
 
 
+def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> "callable":
+    """Box-Cox profile llf (Jacobian included) in the geometric-mean form, from log y."""
+    n = logy.size
+    lgm = float(np.mean(logy))
+    gm = math.exp(lgm)
+    w = logy - lgm
+
+    def llf(lam: float) -> float:
+        with np.errstate(over="ignore", invalid="ignore"):
+            if abs(lam) < 1e-12:
+                z = gm * w
+            else:
+                z = gm * np.expm1(lam * w) / lam
+                if not proj.has_const:
+                    z = z - gm * math.expm1(-lam * lgm) / lam
+        if not np.all(np.isfinite(z)):
+            return -math.inf
+        rss = proj.rss(z)
+        if not rss > 0:
+            return -math.inf
+        return -0.5 * n * (math.log(2 * math.pi) + 1 + math.log(rss / n))
+
+    return llf
+
+
 def _profile(family: str, y: np.ndarray, proj: _Projector) -> "callable":
     n = y.size
     if family == "box_cox":
-        logy = np.log(y)
-        lgm = float(np.mean(logy))
-        gm = math.exp(lgm)
-        w = logy - lgm
-
-        def llf(lam: float) -> float:
-            with np.errstate(over="ignore", invalid="ignore"):
-                if abs(lam) < 1e-12:
-                    z = gm * w
-                else:
-                    z = gm * np.expm1(lam * w) / lam
-                    if not proj.has_const:
-                        z = z - gm * math.expm1(-lam * lgm) / lam
-            if not np.all(np.isfinite(z)):
-                return -math.inf
-            rss = proj.rss(z)
-            if not rss > 0:
-                return -math.inf
-            return -0.5 * n * (math.log(2 * math.pi) + 1 + math.log(rss / n))
-
-        return llf
+        return _scaled_box_cox(np.log(y), proj)
+    if family == "yeo_johnson" and np.all(y >= 0):
+        # Yeo-Johnson of y >= 0 is Box-Cox of 1 + y (same Jacobian): the scaled form avoids
+        # the cancellation in ((1 + y)^lambda - 1)/lambda for large y and negative lambda.
+        return _scaled_box_cox(np.log1p(y), proj)
+    if family == "yeo_johnson" and np.all(y < 0):
+        # ... and of y < 0 it is minus Box-Cox of 1 - y at 2 - lambda (same RSS and Jacobian).
+        bc = _scaled_box_cox(np.log1p(-y), proj)
+        return lambda lam: bc(2.0 - lam)
     if family == "yeo_johnson":
         jac_base = float(np.sum(np.sign(y) * np.log1p(np.abs(y))))
 

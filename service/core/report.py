@@ -12,6 +12,7 @@ from .crossval import CVPlan, CVResult
 from .data import Prepared
 from .errors import CandidateFailure
 from .fitting import OLSFit, ols
+from .diagnose import conditions_for
 from .interpret import interpret_fit
 from .likelihood import estimate_lambda
 from .model import build_model
@@ -63,6 +64,9 @@ def fitted_model(spec: Specification, prep: Prepared):
     if not np.all(np.isfinite(z)):
         raise CandidateFailure(f"{t.label(prep.response)} overflows on the data")
     fit = ols(design.X, z, design.names, spec.intercept)
+    if not (np.isfinite(fit.rss) and np.all(np.isfinite(fit.coef)) and np.all(np.isfinite(fit.se))):
+        raise CandidateFailure(f"the fit on the {t.label(prep.response)} scale overflows "
+                               "(values too large for floating point)")
     concrete = Specification(spec.response, t, spec.predictors, spec.intercept)
     return concrete, design, fit, lam_est
 
@@ -133,6 +137,13 @@ def entry_for(spec: Specification, cv: CVResult, plan: CVPlan, prep: Prepared, p
                               "metric": plan.metric}),
         "warnings": warnings,
     }
+    conditions, hints = conditions_for(design, fit, prep, fit.fitted + fit.resid,
+                                       getattr(opts, "alpha", 0.05))
+    entry["conditions"] = conditions
+    entry["transform_hints"] = hints
+    for h in hints:
+        if h.get("bulge") and h.get("sentence"):
+            warnings.append(h["sentence"])
     entry["interpretation"] = interpret_fit(concrete, design, fit, prep, getattr(opts, "units", None))
     if estimates:
         entry["estimates"] = estimates

@@ -140,7 +140,12 @@ def _smear_gauss(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray | N
         if not np.any(safe):
             return None
         es = eta[safe]
-        check = np.unique(np.array([es.min(), np.median(es), es.max()]))
+        pts = [es.min(), np.median(es), es.max()]
+        for s in sing:  # the safe etas closest to each singular point, on either side
+            below, above = es[es + hi_e < s], es[es + lo_e > s]
+            pts += [below.max()] if below.size else []
+            pts += [above.min()] if above.size else []
+        check = np.unique(np.array(pts))
         exact = _exact(t, check, e)
         if not np.all(np.isfinite(exact)):
             return None
@@ -205,8 +210,10 @@ def _smear_interpolated(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndar
     """Adaptive piecewise-cubic Hermite interpolation of S(eta) with exact values and slopes.
 
     An interval is accepted when the Hermite cubic from its end points matches
-    the exact S at its midpoint to SMEAR_RTOL (relative); otherwise it is split.
-    Etas in intervals still unresolved after MAX_NODES nodes are computed exactly.
+    the exact S at its midpoint to SMEAR_RTOL (relative), and so does the error its
+    slope there implies half an interval away; that very cubic is then the one
+    used.  Otherwise the interval is split at the midpoint.  Etas in intervals still
+    unresolved after MAX_NODES nodes are computed exactly.
     """
     lo, hi = float(eta.min()), float(eta.max())
     if hi - lo <= 1e-12 * max(1.0, abs(lo)):
@@ -220,18 +227,24 @@ def _smear_interpolated(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndar
         m = 0.5 * (x[a] + x[b])
         Sm, Dm = _exact_pair(t, m, e)
         est = _hermite(x[a], x[b], S[a], S[b], D[a], D[b], m)
-        good = np.isfinite(est) & np.isfinite(Sm) & \
-            (np.abs(est - Sm) <= SMEAR_RTOL * np.maximum(np.abs(Sm), 1e-300))
-        # insert every midpoint; children of an accepted interval are accepted
-        order = np.argsort(np.concatenate([x, m]), kind="stable")
-        x = np.concatenate([x, m])[order]
-        S = np.concatenate([S, Sm])[order]
-        D = np.concatenate([D, Dm])[order]
+        h = x[b] - x[a]
+        slope = 1.5 * (S[b] - S[a]) / h - 0.25 * (D[a] + D[b])  # the cubic's slope at m
+        tol = SMEAR_RTOL * np.maximum(np.abs(Sm), 1e-300)
+        # the value at m and the slope there (times h/2, the error it implies half an
+        # interval away): a kink in S can leave the value right while the cubic is wrong
+        good = np.isfinite(est) & np.isfinite(Sm) & np.isfinite(slope) & \
+            (np.abs(est - Sm) <= tol) & (np.abs(slope - Dm) * 0.5 * h <= tol)
+        # An accepted interval keeps the cubic that was checked.  (Accepting the two halves
+        # instead would use cubics nobody checked: with kinks in S they can be far worse.)
+        ok_iv[a[good]] = True
+        split = ~good
+        xm, Smn, Dmn = m[split], Sm[split], Dm[split]
+        order = np.argsort(np.concatenate([x, xm]), kind="stable")
+        x = np.concatenate([x, xm])[order]
+        S = np.concatenate([S, Smn])[order]
+        D = np.concatenate([D, Dmn])[order]
         flag_nodes = np.concatenate([ok_iv, [False]])  # flag of the interval starting at node
-        mid_flag = good
-        left_flag = flag_nodes.copy()
-        left_flag[a] = good
-        new_flags = np.concatenate([left_flag, mid_flag])[order]
+        new_flags = np.concatenate([flag_nodes, np.zeros(xm.size, dtype=bool)])[order]
         ok_iv = new_flags[:-1]
         pending = np.flatnonzero(~ok_iv)
     out = np.empty(eta.size)

@@ -23,6 +23,7 @@ from .crossval import CVPlan, CVResult, cross_validate, make_plan
 from .data import Prepared
 from .errors import BudgetError, CandidateFailure, InputError, ModelFailure, pointer
 from .likelihood import estimate_lambda
+from .diagnose import CONDITION_NAMES, failed
 from .report import entry_for
 from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
 
@@ -216,14 +217,34 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
                         "they are left out of the ranking.")
 
     ranked, threshold = rank(scored)
+    cache: dict = {}
+
+    def full(s: Scored, parts: dict) -> dict:
+        key = s.spec.key
+        if key not in cache:
+            cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
+        return cache[key]
+
+    ranked = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
     entries = []
-    for i, (s, parts) in enumerate(ranked[: opts.top]):
-        entry = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
-        entry["rank"] = i + 1
+    for s, parts in ranked:
+        if len(entries) >= opts.top:
+            break
+        try:
+            entry = dict(full(s, parts))
+        except CandidateFailure as exc:
+            warnings.append(f"A specification that scored in cross-validation could not be "
+                            f"fitted on all rows and is left out: {exc.reason}")
+            continue
+        i = len(entries)
+        entry["score"] = {"value": entry["score"]["value"], "parts": parts}
         if entry_hook is not None:
             entry_hook(entry, {"spec": s.spec, "prep": prep, "opts": opts})
-        entries.append({"rank": i + 1, **{k: v for k, v in entry.items() if k != "rank"}})
+        entries.append({"rank": i + 1, **entry})
+    if not entries:
+        raise ModelFailure("no scored specification could be fitted on all rows; "
+                           "see the warnings of a smaller search")
     incumbent_block = None
     if opts.incumbent is not None:
         incumbent_block = _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries,
@@ -273,13 +294,10 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
         if position is None:
             again, _ = rank(scored + [Scored(spec, inc_cv)])
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
-        if entry_hook is not None:
-            try:
-                probe = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "")
-                entry_hook(probe, {"spec": spec, "prep": prep, "opts": opts})
-                conditions = probe.get("conditions")
-            except CandidateFailure:
-                conditions = None
+        try:
+            conditions = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "")["conditions"]
+        except CandidateFailure:
+            conditions = None
     winner = ranked[0][0]
     return incumbent.decide(spec, inc_cv, why, position, entries[0], winner.cv.fold_values, plan,
                             conditions, opts.incumbent)
@@ -310,6 +328,43 @@ def rank(scored: list[Scored]) -> tuple[list[tuple[Scored, dict]], float]:
         }
         out.append((s, parts))
     return out, cut
+
+
+def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str]):
+    """Re-order the leading band members by failed conditions (see diagnose.py)."""
+    band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]]
+    m = min(len(band), max(3 * opts.top, 15))
+    lead = []
+    for i in band[:m]:
+        s, parts = ranked[i]
+        try:
+            entry = full(s, parts)
+        except CandidateFailure as exc:
+            parts = {**parts, "conditions_failed": None, "conditions_note": exc.reason}
+            lead.append((len(CONDITION_NAMES) + 1, i, s, parts))
+            continue
+        bad = failed(entry.get("conditions"))
+        parts = {**parts, "conditions_failed": bad,
+                 "condition_rule": "within the one-standard-error band, fewer failed "
+                                   "conditions rank first; CV error decides outside it"}
+        lead.append((len(bad), i, s, parts))
+    lead.sort(key=lambda t: (t[0], t[1]))
+    rest = [(s, {**p, "conditions_failed": None} if "conditions_failed" not in p else p)
+            for j, (s, p) in enumerate(ranked) if j not in set(band[:m])]
+    out = [(s, p) for _, _, s, p in lead] + rest
+    lowest = min(ranked, key=lambda t: t[0].cv.value)[0]
+    if out and out[0][0] is not lowest:
+        low_parts = next(p for s, p in out if s is lowest)
+        if low_parts.get("conditions_failed"):
+            warnings.append(
+                "The specification with the lowest cross-validated error "
+                f"({lowest.spec.response_label()} on "
+                + ", ".join(p.transform.label(p.column) for p in lowest.spec.predictors)
+                + f", {lowest.cv.metric} {lowest.cv.value:.4g}) fails "
+                + ", ".join(c.replace("_", " ") for c in low_parts["conditions_failed"])
+                + "; it ranks below specifications within one standard error that pass more "
+                  "conditions.")
+    return out
 
 
 def _fmt_ci(lo, hi) -> str:

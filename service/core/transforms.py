@@ -255,11 +255,13 @@ class Transform:
                 out = np.where(z > 0, -1.0 / (z * z), np.nan)
             elif n in ("power", "box_cox"):
                 if n == "power":
-                    a, base = 1.0 / self.exponent, z
-                else:
-                    a, base = 1.0 / self.lam, 1.0 + self.lam * z
-                ok = base > 0
-                val = np.power(np.where(ok, base, 1.0), a - 1.0) * (a if n == "power" else 1.0)
+                    a = 1.0 / self.exponent
+                    ok = z > 0
+                    val = np.power(np.where(ok, z, 1.0), a - 1.0) * a
+                else:  # (1 + lam z)^(1/lam - 1) via log1p, accurate for small lam z
+                    a, u = 1.0 / self.lam, self.lam * z
+                    ok = u > -1.0
+                    val = np.exp((a - 1.0) * np.log1p(np.where(ok, u, 0.0)))
                 out = np.where(ok, val, 0.0 if a > 0 else np.nan)
             elif n == "yeo_johnson":
                 lam = self.lam
@@ -269,15 +271,17 @@ class Transform:
                 if abs(lam) < 1e-12:
                     out[pos] = np.exp(zp)
                 else:
-                    b = 1.0 + lam * zp
-                    out[pos] = np.where(b > 0, np.power(np.where(b > 0, b, 1.0), 1.0 / lam - 1.0),
+                    u = lam * zp
+                    ok = u > -1.0
+                    out[pos] = np.where(ok, np.exp((1.0 / lam - 1.0) * np.log1p(np.where(ok, u, 0.0))),
                                         np.nan)
                 if abs(lam - 2.0) < 1e-12:
                     out[~pos] = np.exp(-zn)
                 else:
                     c = 2.0 - lam
-                    b = 1.0 - c * zn
-                    out[~pos] = np.where(b > 0, np.power(np.where(b > 0, b, 1.0), 1.0 / c - 1.0),
+                    v = -c * zn
+                    ok = v > -1.0
+                    out[~pos] = np.where(ok, np.exp((1.0 / c - 1.0) * np.log1p(np.where(ok, v, 0.0))),
                                          np.nan)
             else:
                 raise ValueError(n)
@@ -341,10 +345,11 @@ def _box_cox(y: np.ndarray, lam: float) -> np.ndarray:
 def _inv_box_cox(z: np.ndarray, lam: float) -> np.ndarray:
     if abs(lam) < 1e-12:
         return np.exp(z)
-    base = 1.0 + lam * z
-    if lam > 0:
-        return np.power(np.maximum(base, 0.0), 1.0 / lam)
-    return np.where(base > 0, np.power(np.where(base > 0, base, 1.0), 1.0 / lam), np.nan)
+    # (1 + lam z)^(1/lam) as exp(log1p(lam z)/lam): keeps full precision when lam z is small
+    u = lam * z
+    ok = u > -1.0
+    val = np.exp(np.log1p(np.where(ok, u, 0.0)) / lam)
+    return np.where(ok, val, 0.0 if lam > 0 else np.nan)
 
 
 def _yeo_johnson(y: np.ndarray, lam: float) -> np.ndarray:
@@ -370,15 +375,15 @@ def _inv_yeo_johnson(z: np.ndarray, lam: float) -> np.ndarray:
     if abs(lam) < 1e-12:
         out[pos] = np.expm1(zp)
     else:
-        base = 1.0 + lam * zp
-        ok = base > 0
-        out[pos] = np.where(ok, np.expm1(np.log(np.where(ok, base, 1.0)) / lam), np.nan)
+        u = lam * zp  # log1p keeps full precision when lam z is small
+        ok = u > -1.0
+        out[pos] = np.where(ok, np.expm1(np.log1p(np.where(ok, u, 0.0)) / lam), np.nan)
     if abs(lam - 2.0) < 1e-12:
         out[~pos] = -np.expm1(-zn)
     else:
-        b = 1.0 - (2.0 - lam) * zn
-        ok = b > 0
-        out[~pos] = np.where(ok, -np.expm1(np.log(np.where(ok, b, 1.0)) / (2.0 - lam)), np.nan)
+        v = -(2.0 - lam) * zn
+        ok = v > -1.0
+        out[~pos] = np.where(ok, -np.expm1(np.log1p(np.where(ok, v, 0.0)) / (2.0 - lam)), np.nan)
     return out
 
 
@@ -443,7 +448,7 @@ def fit_transform(t: Transform, y: np.ndarray, X: np.ndarray | None = None,
 def ladder_transform(power: float) -> Transform:
     """The named transform for a rung of the ladder of powers (Tukey 1977)."""
     if abs(power) < _EPS:
-        return Transform("log", shift=0.0)
+        return Transform("log")  # shift decided from the data, like the default candidate
     if abs(power - 1.0) < _EPS:
         return Transform("identity")
     if abs(power - 0.5) < _EPS:

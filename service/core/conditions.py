@@ -1,0 +1,505 @@
+"""Checks of the conditions behind an ordinary-least-squares regression.
+
+:func:`assess_conditions` tests linearity, normality, equal variance, independence,
+multicollinearity and influence on one candidate's model-scale residuals;
+:func:`transform_hints` reads Tukey's bulging rule from each numeric predictor's partial
+residuals.  Every condition reports ``holds`` (``True``/``False``/``None``), its ``tests``, a
+one-sentence ``note`` and the ``rule`` that decided ``holds``.
+
+Multiplicity: each condition reports several tests, but ``holds`` is decided by one primary
+test per condition (RESET, Shapiro-Wilk or Jarque-Bera, Breusch-Pagan in Koenker's form,
+Breusch-Godfrey), so the chance of a false alarm per condition stays at ``alpha``.  The
+other tests are for reading, not deciding.  Cut-offs marked "common practice" are rules of
+thumb, not tests.
+
+References: Ramsey (1969); Utts (1982); Shapiro & Wilk (1965); Jarque & Bera (1980);
+Anderson & Darling (1952); Breusch & Pagan (1979); Koenker (1981); White (1980); Durbin &
+Watson (1950, 1951); Breusch (1978); Godfrey (1978); Ljung & Box (1978); Fox & Monette (1992);
+Belsley, Kuh & Welsch (1980); Cook (1977); Hoaglin & Welsch (1978); Tukey (1977);
+Mosteller & Tukey (1977).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from service.core import _condition_tests as ct
+
+#: common-practice VIF cut-offs (warn, fail)
+VIF_WARN, VIF_FAIL = 5.0, 10.0
+#: common-practice cut-off for the scaled condition number (Belsley, Kuh & Welsch 1980)
+CONDITION_WARN = 30.0
+#: at most this many flagged rows are listed
+MAX_FLAGGED_ROWS = 50
+#: above this many rows the normality note warns that trivial departures reach significance
+LARGE_N = 1000
+
+
+@dataclass(frozen=True, eq=False)
+class TermInfo:
+    """One predictor of the model and the columns of ``X`` that carry it."""
+
+    column: str  # predictor column name as the caller sent it
+    kind: str  # "numeric" or "categorical"
+    indices: tuple[int, ...]  # columns of X for this predictor
+    raw: np.ndarray | None  # (n,) untransformed values for numeric predictors
+    label: str  # how the term reads, e.g. "log(area)"
+
+
+@dataclass(frozen=True, eq=False)
+class ConditionInputs:
+    """A fitted candidate: model-scale response, design and row bookkeeping."""
+
+    z: np.ndarray  # (n,) response on the model scale
+    X: np.ndarray  # (n, p) design as fitted, with the intercept column if has_intercept
+    has_intercept: bool
+    terms: tuple[TermInfo, ...]
+    row_ids: np.ndarray  # (n,) caller's input row number of each used row
+    order: np.ndarray | None  # (n,) rows sorted by the caller's order column, or None
+    alpha: float = 0.05
+
+
+# ------------------------------------------------------------------------------ helpers
+def _g(x: float | None, digits: int = 4) -> str:
+    return "n/a" if x is None else f"{x:.{digits}g}"
+
+
+def _p(p: float | None) -> str:
+    return "n/a" if p is None else f"{p:.2g}"
+
+
+def validate(inp: ConditionInputs) -> tuple[np.ndarray, np.ndarray]:
+    """Check shapes and values; return (z, X) as float arrays.  Raises ValueError."""
+    z = np.asarray(inp.z, dtype=float)
+    X = np.asarray(inp.X, dtype=float)
+    if z.ndim != 1 or z.size == 0:
+        raise ValueError(f"z must be a non-empty 1-d array; got shape {z.shape}")
+    if X.ndim != 2 or X.shape[0] != z.shape[0] or X.shape[1] == 0:
+        raise ValueError(f"X must have shape ({z.shape[0]}, p) with p >= 1; got {X.shape}")
+    if not (np.all(np.isfinite(z)) and np.all(np.isfinite(X))):
+        raise ValueError("z and X must be finite; drop or impute missing values first")
+    if not 0 < inp.alpha < 1:
+        raise ValueError(f"alpha must lie strictly between 0 and 1; got {inp.alpha}")
+    if np.shape(inp.row_ids) != z.shape:
+        raise ValueError(f"row_ids must have shape {z.shape}; got {np.shape(inp.row_ids)}")
+    if inp.order is not None:
+        order = np.asarray(inp.order)
+        if order.shape != z.shape or not np.array_equal(np.sort(order), np.arange(z.size)):
+            raise ValueError(f"order must be a permutation of 0..{z.size - 1}")
+    for term in inp.terms:
+        if not term.indices or min(term.indices) < 0 or max(term.indices) >= X.shape[1]:
+            raise ValueError(f"term {term.label!r} has column indices {term.indices} outside X")
+        if term.raw is not None and np.shape(term.raw) != z.shape:
+            raise ValueError(f"term {term.label!r}: raw must have shape {z.shape}")
+    return z, X
+
+
+def _numeric_terms(inp: ConditionInputs) -> list[TermInfo]:
+    return [t for t in inp.terms if t.kind == "numeric" and len(t.indices) == 1]
+
+
+def _unavailable(reason: str, rule: str, **extra) -> dict:
+    return {"holds": None, "tests": [], "note": f"Not assessed: {reason}.", "rule": rule, **extra}
+
+
+def _decide(entry: dict, alpha: float) -> bool | None:
+    p = entry.get("p_value")
+    return None if p is None else bool(p >= alpha)
+
+
+# ---------------------------------------------------------------------------- linearity
+def _curvatures(fit: ct.Fit, inp: ConditionInputs) -> list[tuple[TermInfo, dict | Exception]]:
+    """The partial-residual curvature reading of each numeric term (shared by checks and hints)."""
+    out: list[tuple[TermInfo, dict | Exception]] = []
+    for term in _numeric_terms(inp):
+        raw = None if term.raw is None else np.asarray(term.raw, dtype=float)
+        try:
+            with np.errstate(all="ignore"):  # degenerate columns surface as NotApplicable
+                out.append((term, ct.curvature(fit, term.indices[0], raw)))
+        except Exception as exc:  # noqa: BLE001 - one unreadable term must not stop the rest
+            out.append((term, exc))
+    return out
+
+
+def _curvature_entries(curves: list[tuple[TermInfo, dict | Exception]]) -> list[dict]:
+    out = []
+    for term, c in curves:
+
+        def compute(c=c):
+            if isinstance(c, Exception):
+                raise c
+            return {"statistic": c["t"], "p_value": c["p_value"], "df": float(c["df"]),
+                    "curvature_sign": int(np.sign(c["curvature"]))}
+
+        out.append(ct.guarded(
+            f"Curvature of partial residuals: {term.label}", compute, column=term.column,
+            label=term.label, form="t-test of the squared (centred) predictor added to the model",
+            source="component-plus-residual curvature (Mallows 1986); Frisch-Waugh-Lovell t-test",
+        ))
+    return out
+
+
+def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list) -> dict:
+    a = inp.alpha
+    rule = (f"holds = false when Ramsey's RESET (fitted^2 and fitted^3) rejects at alpha = {a}; "
+            "the rainbow test and the per-predictor curvature checks are reported but do not "
+            "decide, which keeps the false-alarm rate of the decision at alpha")
+    reset = ct.reset_test(fit)
+    curves = _curvature_entries(curvatures)
+    tests = [reset, ct.rainbow_test(fit), *curves]
+    holds = _decide(reset, a)
+    bent = [c for c in curves if c["p_value"] is not None and c["p_value"] < a]
+    bent_txt = ", ".join(f"{c['label']} (p = {_p(c['p_value'])})" for c in bent[:3])
+    if holds is None:
+        note = f"Linearity could not be tested: {reset.get('reason', 'undefined')}."
+    elif holds:
+        note = ("No sign of a wrong functional form (RESET on fitted^2 and fitted^3, "
+                f"p = {_p(reset['p_value'])})")
+        note += f", though the partial residuals of {bent_txt} show curvature." if bent else "."
+    else:
+        note = ("The straight-line form looks wrong (RESET on fitted^2 and fitted^3, "
+                f"F = {_g(reset['statistic'])}, p = {_p(reset['p_value'])})")
+        note += f"; curvature shows in the partial residuals of {bent_txt}." if bent else "."
+    return {"holds": holds, "tests": tests, "note": note, "rule": rule}
+
+
+# ---------------------------------------------------------------------------- normality
+def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict:
+    a = inp.alpha
+    rule = (f"holds = false when the primary test rejects at alpha = {a}: Shapiro-Wilk for "
+            "3 <= n <= 5000, otherwise Jarque-Bera; Anderson-Darling is reported only. "
+            "Large samples flag departures too small to matter for OLS inference")
+    sw, jb, ad = ct.shapiro_test(fit), ct.jarque_bera_test(fit), ct.anderson_darling_test(fit)
+    primary = sw if sw["p_value"] is not None else jb
+    for entry in (sw, jb, ad):
+        entry["primary"] = entry is primary
+    holds = _decide(primary, a)
+    name = primary["name"]
+    if holds is None:
+        note = f"Normality could not be tested: {primary.get('reason', 'undefined')}."
+    elif holds:
+        note = ("Residuals are consistent with a normal distribution "
+                f"({name} p = {_p(primary['p_value'])}).")
+    else:
+        shape = ""
+        if jb.get("skewness") is not None and jb.get("kurtosis") is not None:
+            shape = f"; skewness {_g(jb['skewness'], 3)}, kurtosis {_g(jb['kurtosis'], 3)} vs 3"
+        note = ("Residuals depart from a normal distribution "
+                f"({name} p = {_p(primary['p_value'])}{shape})")
+        if fit.n > LARGE_N:
+            note += (f", but with n = {fit.n} even a trivial departure is significant, so "
+                     "judge its size from the Q-Q plot.")
+        else:
+            note += "."
+    return {"holds": holds, "tests": [sw, jb, ad], "note": note, "rule": rule}
+
+
+# ----------------------------------------------------------------------- equal variance
+def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict:
+    a = inp.alpha
+    rule = (f"holds = false when the Breusch-Pagan test in Koenker's studentised form rejects at "
+            f"alpha = {a}; White's test is reported only")
+    Z = None if fit.residual_reason else ct.standardized_regressors(fit)
+    bp, white = ct.breusch_pagan_test(fit, Z), ct.white_test(fit, Z)
+    bp["primary"], white["primary"] = True, False
+    holds = _decide(bp, a)
+    p = _p(bp["p_value"])
+    if holds is None:
+        note = f"Equal variance could not be tested: {bp.get('reason', 'undefined')}."
+    elif holds:
+        note = ("No evidence that the residual spread changes with the predictors "
+                f"(Breusch-Pagan, Koenker form, p = {p}).")
+    elif not _numeric_terms(inp):
+        note = f"Residual spread differs between groups (Breusch-Pagan, Koenker form, p = {p})."
+    else:
+        with np.errstate(all="ignore"):
+            rho = np.corrcoef(np.abs(fit.resid), fit.fitted)[0, 1]
+        trend = "grows with" if rho >= 0 else "shrinks as"
+        tail = "the fitted values" if rho >= 0 else "the fitted values grow"
+        note = f"Residual spread {trend} {tail} (Breusch-Pagan, Koenker form, p = {p})."
+    return {"holds": holds, "tests": [bp, white], "note": note, "rule": rule}
+
+
+# ------------------------------------------------------------------------- independence
+def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict:
+    a = inp.alpha
+    rule = (f"with an order: holds = false when the Breusch-Godfrey test rejects at alpha = {a}; "
+            "Durbin-Watson (common-practice range 1.5-2.5) and Ljung-Box are reported only. "
+            "Without an order: holds = null")
+    if inp.order is None:
+        return {"holds": None, "tests": [], "rule": rule, "note": (
+            "Independence is a matter of how the data were collected, and no test on unordered "
+            "rows can settle it; send an order column (e.g. time) to test serial correlation.")}
+    if fit.residual_reason:
+        return _unavailable(fit.residual_reason, rule)
+    order = np.asarray(inp.order, dtype=np.intp)
+    e = fit.resid[order]
+    dw, bg = ct.durbin_watson_test(e), ct.breusch_godfrey_test(fit, order)
+    lb = ct.ljung_box_test(e)
+    for entry in (dw, bg, lb):
+        entry["primary"] = entry is bg
+    holds = _decide(bg, a)
+    dw_txt = f", Durbin-Watson {_g(dw['statistic'], 3)}" if dw["statistic"] is not None else ""
+    if holds is None:
+        note = f"Independence could not be tested: {bg.get('reason', 'undefined')}."
+    elif holds:
+        note = ("No serial correlation in the given order "
+                f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt}).")
+    else:
+        note = ("Residuals close together in the given order are correlated "
+                f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt}).")
+    return {"holds": holds, "tests": [dw, bg, lb], "note": note, "rule": rule}
+
+
+# -------------------------------------------------------------------- multicollinearity
+def _vif_groups(X: np.ndarray, inp: ConditionInputs) -> list[tuple[str, str, list[int]]]:
+    """(label, column, X-columns) per predictor; full dummy sets lose one column."""
+    nonconst = set(np.flatnonzero(np.ptp(X, axis=0) > 0).tolist())
+    groups, seen = [], set()
+    for term in inp.terms:
+        cols = [j for j in term.indices if j in nonconst]
+        seen.update(term.indices)
+        if len(cols) > 1 and np.ptp(X[:, cols].sum(axis=1)) == 0:
+            cols = cols[:-1]  # a full set of dummies sums to a constant; GVIF is invariant
+        if cols:
+            groups.append((term.label, term.column, cols))
+    for j in sorted(nonconst - seen):
+        groups.append((f"column {j}", f"column {j}", [j]))
+    return groups
+
+
+def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict:
+    rule = (f"common practice: a VIF above {VIF_WARN:g} warns and above {VIF_FAIL:g} fails "
+            "(holds = false); for a predictor with several dummy columns GVIF^(1/df) is compared "
+            "(Fox & Monette 1992: GVIF^(1/(2 df)) against the square roots of the cut-offs). "
+            "Exactly collinear columns fail. The scaled condition number is reported (common "
+            f"practice: above {CONDITION_WARN:g} signals a near-dependence) but does not decide")
+    groups = _vif_groups(X, inp)
+    gvifs = ct.generalized_vif(X, [g[2] for g in groups]) if groups else []
+    vif_rows = []
+    for (label, column, cols), gvif in zip(groups, gvifs):
+        df = len(cols)
+        comparable = None if gvif is None else gvif ** (1.0 / df)
+        level = ("fail" if comparable is None or comparable > VIF_FAIL
+                 else "warn" if comparable > VIF_WARN else "ok")
+        vif_rows.append({
+            "term": label, "column": column, "df": df, "vif": comparable, "gvif": gvif,
+            "gvif_adjusted": None if gvif is None else gvif ** (1.0 / (2 * df)), "level": level,
+        })
+    cond, indices = ct.scaled_condition_number(X)
+    finite = [r for r in vif_rows if r["vif"] is not None]
+    worst = max(finite, key=lambda r: r["vif"], default=None)
+    rank_deficient = fit.rank < X.shape[1] or any(r["gvif"] is None for r in vif_rows)
+    tests = [
+        {"name": "Largest variance inflation factor",
+         "statistic": None if worst is None else worst["vif"], "p_value": None,
+         "term": None if worst is None else worst["term"],
+         "threshold": {"warn": VIF_WARN, "fail": VIF_FAIL}, "rule": "common practice",
+         "source": "Fox & Monette (1992) generalised VIF; equals "
+                   "statsmodels variance_inflation_factor for one column"},
+        {"name": "Condition number (unit-length columns, BKW)", "statistic": cond, "p_value": None,
+         "threshold": CONDITION_WARN, "rule": "common practice",
+         "condition_indices": indices, "source": "Belsley, Kuh & Welsch (1980); numpy SVD"},
+    ]
+    levels = {r["level"] for r in vif_rows}
+    holds = not (rank_deficient or "fail" in levels)
+    cond_txt = f"; scaled condition number {_g(cond, 4)}" if cond is not None else ""
+    if rank_deficient:
+        names = ", ".join(r["term"] for r in vif_rows if r["gvif"] is None) or "some columns"
+        note = (f"Predictor columns are exactly collinear ({names}; design rank {fit.rank} of "
+                f"{X.shape[1]} columns), so their separate effects cannot be estimated.")
+    elif not vif_rows:
+        note = "The model has no predictors, so multicollinearity cannot arise."
+    elif len(vif_rows) == 1:
+        note = "Only one predictor, so multicollinearity cannot arise (VIF 1)."
+    elif "fail" in levels:
+        bad = sorted((r for r in vif_rows if r["level"] == "fail"),
+                     key=lambda r: -(r["vif"] or math.inf))
+        names = ", ".join(r["term"] for r in bad[:4])
+        note = (f"Predictors overlap strongly: {names} have VIF above {VIF_FAIL:g} (common "
+                f"practice), largest {_g(worst['vif'] if worst else None, 5)} for "
+                f"{worst['term'] if worst else 'n/a'}{cond_txt}.")
+    elif "warn" in levels:
+        note = (f"Moderate overlap between predictors: largest VIF {_g(worst['vif'], 3)} for "
+                f"{worst['term']}, above the common-practice warning level {VIF_WARN:g}{cond_txt}.")
+    else:
+        note = f"Predictors are not strongly related (largest VIF {_g(worst['vif'], 3)}{cond_txt})."
+    level = "fail" if not holds else ("warn" if "warn" in levels else "ok")
+    return {"holds": holds, "tests": tests, "note": note, "rule": rule, "level": level,
+            "vif": vif_rows, "condition_number": cond}
+
+
+# ---------------------------------------------------------------------------- influence
+def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict]:
+    """Indices of flagged rows (largest Cook's distance first), reason masks and cut-offs."""
+    inf = fit.influence
+    n, p = fit.n, fit.rank
+    cut = {"cooks_flag": 4.0 / n, "cooks_fail": 1.0, "leverage": 2.0 * p / n,
+           "dffits": 2.0 * math.sqrt(p / n), "studentized": 3.0}
+    with np.errstate(invalid="ignore"):
+        masks = {
+            "Cook's distance > 1": inf.cooks > cut["cooks_fail"],
+            "Cook's distance > 4/n": inf.cooks > cut["cooks_flag"],
+            "leverage > 2p/n": inf.leverage > cut["leverage"],
+            "|DFFITS| > 2 sqrt(p/n)": np.abs(inf.dffits) > cut["dffits"],
+            "|studentised residual| > 3": np.abs(inf.studentized) > cut["studentized"],
+            "leverage 1 (the fit passes through this row)":
+                inf.leverage >= 1 - ct.LEVERAGE_ONE_TOL,
+        }
+    any_flag = np.zeros(n, dtype=bool)
+    for m in masks.values():
+        any_flag |= m
+    idx = np.flatnonzero(any_flag)
+    key = np.where(np.isnan(inf.cooks[idx]), np.inf, inf.cooks[idx])
+    return idx[np.argsort(-key, kind="stable")], masks, cut
+
+
+def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict:
+    rule = ("common practice: holds = false when any Cook's distance exceeds 1 (or a row has "
+            "leverage 1); rows are flagged for Cook's distance > 4/n, leverage > 2p/n, "
+            "|DFFITS| > 2 sqrt(p/n) or |externally studentised residual| > 3")
+    if fit.influence is None:
+        return _unavailable(fit.residual_reason or "influence undefined", rule,
+                            flagged_rows=[], n_flagged=0)
+    inf, n = fit.influence, fit.n
+    ids = np.asarray(inp.row_ids)
+    order, masks, cut = flag_rows(fit)
+    listed = []
+    for i in order[:MAX_FLAGGED_ROWS]:
+        listed.append({
+            "row": int(ids[i]), "reasons": [name for name, m in masks.items() if m[i]],
+            "cooks_distance": ct.num(inf.cooks[i]), "leverage": ct.num(inf.leverage[i]),
+            "dffits": ct.num(inf.dffits[i]), "studentized_residual": ct.num(inf.studentized[i]),
+        })
+
+    def largest(name: str, values: np.ndarray, threshold, source: str) -> tuple[dict, int | None]:
+        finite = np.isfinite(values)
+        i = int(np.argmax(np.where(finite, values, -np.inf))) if finite.any() else None
+        return {"name": name, "statistic": None if i is None else ct.num(values[i]),
+                "p_value": None, "row": None if i is None else int(ids[i]),
+                "threshold": threshold, "rule": "common practice", "source": source}, i
+
+    cook, i_d = largest("Cook's distance (largest)", inf.cooks,
+                        {"flag": cut["cooks_flag"], "fail": cut["cooks_fail"]},
+                        "Cook (1977); statsmodels OLSInfluence.cooks_distance")
+    lev, _ = largest("Leverage (largest hat value)", inf.leverage, cut["leverage"],
+                     "Hoaglin & Welsch (1978); statsmodels OLSInfluence.hat_matrix_diag")
+    dff, _ = largest("DFFITS (largest absolute value)", np.abs(inf.dffits), cut["dffits"],
+                     "Belsley, Kuh & Welsch (1980)")
+    out, i_t = largest("Outlier test (largest |externally studentised residual|, Bonferroni)",
+                       np.abs(inf.studentized), cut["studentized"],
+                       "Cook & Weisberg (1982) Bonferroni outlier test; scipy.stats.t")
+    if i_t is not None and fit.df_resid >= 2:
+        # Bonferroni: n times the two-sided t_{n-p-1} tail probability of the largest |t_i|
+        out["p_value"] = min(1.0, n * 2 * float(stats.t.sf(out["statistic"], fit.df_resid - 1)))
+    out["df"] = float(fit.df_resid - 1)
+    tests = [cook, lev, dff, out]
+    for entry in tests:
+        if entry["statistic"] is None:
+            entry["reason"] = (f"undefined: {fit.df_resid} residual degree(s) of freedom, or "
+                               "every row has leverage 1")
+    n_fail = int(np.sum(masks["Cook's distance > 1"]))
+    n_one = int(np.sum(masks["leverage 1 (the fit passes through this row)"]))
+    holds = n_fail == 0 and n_one == 0
+    d_max, d_row = cook["statistic"], cook["row"]
+    if n_one:
+        note = (f"{n_one} row(s) have leverage 1, so the fit passes through them exactly and "
+                "their influence cannot be measured.")
+    elif not holds:
+        note = (f"{n_fail} row(s) have Cook's distance above 1 (largest {_g(d_max, 4)} at row "
+                f"{d_row}); {order.size} row(s) flagged in all.")
+    else:
+        note = (f"No single row dominates the fit (largest Cook's distance {_g(d_max, 3)} at "
+                f"row {d_row}, below 1); {order.size} row(s) exceed a common-practice "
+                "screening cut-off.")
+    return {"holds": holds, "tests": tests, "note": note, "rule": rule, "flagged_rows": listed,
+            "n_flagged": int(order.size), "flagged_rows_truncated": bool(order.size > len(listed)),
+            "thresholds": cut}
+
+
+# --------------------------------------------------------------------------- public API
+def assess_conditions(inp: ConditionInputs) -> dict:
+    """Assess the conditions of the OLS fit of ``inp.z`` on ``inp.X``.
+
+    Returns ``{"linearity", "normality", "equal_variance", "independence",
+    "multicollinearity", "influence", "hints"}``; each condition is
+    ``{"holds": bool | None, "tests": [{"name", "statistic", "p_value", ...}], "note": str,
+    "rule": str, ...}`` and ``hints`` is :func:`transform_hints`' list.  Every number is a
+    finite float or ``None``.  Raises ``ValueError`` only for malformed inputs.
+    """
+    z, X = validate(inp)
+    fit = ct.fit_model(z, X, inp.has_intercept)
+    curvatures = _curvatures(fit, inp)
+    out = {"linearity": _linearity(fit, inp, curvatures)}
+    for key, build in (("normality", _normality), ("equal_variance", _equal_variance),
+                       ("independence", _independence), ("influence", _influence)):
+        out[key] = build(fit, inp)
+    out["multicollinearity"] = _multicollinearity(fit, X, inp)
+    out["hints"] = _hints(curvatures, inp.alpha)
+    keys = ("linearity", "normality", "equal_variance", "independence", "multicollinearity",
+            "influence", "hints")
+    return {k: out[k] for k in keys}
+
+
+#: Tukey's bulging rule: (slope sign, curvature sign) -> (bulge, x move, y move)
+BULGING_RULE = {
+    (1, -1): ("up-left", "down", "up"),  # increasing concave, e.g. y = sqrt(x)
+    (1, 1): ("down-right", "up", "down"),  # increasing convex, e.g. y = x^2
+    (-1, 1): ("down-left", "down", "down"),  # decreasing convex, e.g. y = 1/x
+    (-1, -1): ("up-right", "up", "up"),  # decreasing concave
+}
+
+
+def _hints(curvatures: list, alpha: float) -> list[dict]:
+    hints = []
+    for term, c in curvatures:
+        raw = None if term.raw is None else np.asarray(term.raw, dtype=float)
+        hint = {"column": term.column, "label": term.label, "slope_sign": None,
+                "curvature_sign": None, "bulge": None, "x_direction": None,
+                "y_direction": None, "p_value": None, "monotone": None}
+        if isinstance(c, Exception):
+            reason = str(c) if isinstance(c, ct.NotApplicable) else type(c).__name__
+            hint["sentence"] = f"No curvature reading for {term.label}: {reason}."
+            hints.append(hint)
+            continue
+        slope, curv = int(np.sign(c["slope"])), int(np.sign(c["curvature"]))
+        p = ct.num(c["p_value"])
+        hint.update(slope_sign=slope, curvature_sign=curv, p_value=p, monotone=c["monotone"])
+        if p is None or p >= alpha or curv == 0 or slope == 0:
+            hint["sentence"] = (f"The partial residuals of {term.label} show no significant "
+                                f"curvature (p = {_p(p)}); keep its current scale.")
+        elif not c["monotone"]:
+            hint["sentence"] = (f"The partial residuals of {term.label} bend but do not move in "
+                                f"one direction (p = {_p(p)}), so no power of {term.column} "
+                                "straightens them; consider a quadratic term instead.")
+        else:
+            bulge, xd, yd = BULGING_RULE[(slope, curv)]
+            hint.update(bulge=bulge, x_direction=xd, y_direction=yd)
+            sentence = (f"The partial residuals of {term.label} bulge {bulge} (curvature "
+                        f"p = {_p(p)}): by Tukey's bulging rule, move {term.column} one step "
+                        f"{xd} the ladder of powers from its current scale, or the response "
+                        f"one step {yd}")
+            if xd == "down" and raw is not None and np.min(raw) <= 0:
+                sentence += (f" ({term.column} has values <= 0, so shift it before a log or a "
+                             "negative power)")
+            hint["sentence"] = sentence + "."
+        hints.append(hint)
+    return hints
+
+
+def transform_hints(inp: ConditionInputs) -> list[dict]:
+    """Tukey's bulging-rule hint for each numeric predictor (Mosteller & Tukey 1977).
+
+    Each item is ``{"column", "label", "slope_sign", "curvature_sign", "bulge", "x_direction",
+    "y_direction", "p_value", "monotone", "sentence"}``.  The partial residual
+    e + b_j w_j is regressed on the centred predictor and its square, on the model's current
+    scale of the predictor (so an already-right log term gives no hint); directions are
+    ladder moves from that current scale.  ``bulge`` and the directions are ``None`` unless
+    the curvature is significant at ``alpha`` and the curve is monotone.
+    """
+    z, X = validate(inp)
+    return _hints(_curvatures(ct.fit_model(z, X, inp.has_intercept), inp), inp.alpha)

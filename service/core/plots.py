@@ -1,0 +1,276 @@
+"""Plot-ready data for the diagnostic panels of one OLS candidate.
+
+:func:`diagnostic_plots` returns named numeric series (lists of finite floats and row
+numbers) for five panels: residuals against fitted values, a normal quantile plot with a
+simulation envelope (Atkinson 1981), spread against fitted values (Cleveland's
+scale-location view), studentised residuals against leverage with Cook's distances
+(Cook 1977; Hoaglin & Welsch 1978), and one component-plus-residual series per numeric
+predictor (Ezekiel 1924; Larsen & McCleary 1972).  Smoothers are LOWESS (Cleveland 1979).
+
+Large data sets are thinned for drawing only: a seeded random subset of the rows, always
+including the flagged rows that are labelled.  The statistics behind every series use all
+rows; the LOWESS curves use all rows up to :data:`SMOOTHER_MAX_ROWS` and a seeded sample
+beyond that.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import stats
+from statsmodels.nonparametric.smoothers_lowess import lowess
+
+from service.core import _condition_tests as ct
+from service.core.conditions import MAX_FLAGGED_ROWS, ConditionInputs, flag_rows, validate
+
+#: LOWESS is fitted to at most this many rows (a seeded sample beyond it)
+SMOOTHER_MAX_ROWS = 20_000
+#: points returned per smoother or reference curve
+CURVE_POINTS = 200
+#: flagged rows labelled per panel (largest Cook's distance first)
+MAX_LABELS = 10
+#: simulated samples for the normal-quantile envelope
+ENVELOPE_SIMULATIONS = 199
+#: above this many rows the envelope uses exact order-statistic quantiles instead
+ENVELOPE_SIMULATION_MAX_N = 10_000
+
+
+def _floats(values) -> list[float]:
+    return [float(v) for v in np.asarray(values, dtype=float)]
+
+
+def _ints(values) -> list[int]:
+    return [int(v) for v in np.asarray(values)]
+
+
+def _even(k_total: int, k: int) -> np.ndarray:
+    """At most ``k`` evenly spaced indices into range(k_total), ends included."""
+    if k_total <= k:
+        return np.arange(k_total)
+    return np.unique(np.linspace(0, k_total - 1, k).round().astype(int))
+
+
+def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict | None:
+    """LOWESS curve of y on x (frac 2/3, 3 robustness steps), thinned to CURVE_POINTS."""
+    ok = np.isfinite(x) & np.isfinite(y)
+    x, y = x[ok], y[ok]
+    if x.size > SMOOTHER_MAX_ROWS:
+        pick = rng.choice(x.size, SMOOTHER_MAX_ROWS, replace=False)
+        x, y = x[pick], y[pick]
+    if np.unique(x).size < 5:
+        return None
+    try:
+        # Heavily tied x can give 0/0 in the local fits; such points are dropped below.
+        with np.errstate(all="ignore"):
+            curve = lowess(y, x, frac=2 / 3, it=3, delta=0.01 * float(np.ptp(x)))
+    except (ValueError, np.linalg.LinAlgError):
+        return None
+    curve = curve[np.all(np.isfinite(curve), axis=1)]
+    if curve.shape[0] < 2:
+        return None
+    curve = curve[_even(curve.shape[0], CURVE_POINTS)]
+    return {"x": _floats(curve[:, 0]), "y": _floats(curve[:, 1]),
+            "method": "LOWESS (Cleveland 1979), frac = 2/3, 3 robustness iterations"}
+
+
+def _scatter(x, y, ids, keep, **extra) -> dict:
+    ok = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
+    out = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
+    for name, values in extra.items():
+        out[name] = _floats(values[ok])
+    return out
+
+
+def _labels(x, y, ids, flagged) -> list[dict]:
+    out = []
+    for i in flagged[:MAX_LABELS]:
+        if np.isfinite(x[i]) and np.isfinite(y[i]):
+            out.append({"row": int(ids[i]), "x": float(x[i]), "y": float(y[i])})
+    return out
+
+
+def _thin(n: int, max_points: int, must: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    """Sorted row indices to draw: every row of ``must`` plus a seeded sample of the rest."""
+    if n <= max_points:
+        return np.arange(n)
+    room = max(max_points - must.size, 0)
+    free = np.ones(n, dtype=bool)
+    free[must] = False
+    pool = np.flatnonzero(free)
+    sample = rng.choice(pool, size=min(room, pool.size), replace=False)
+    return np.sort(np.concatenate([must, sample]).astype(np.intp))
+
+
+def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict:
+    f, e = fit.fitted, fit.resid
+    lo, hi = float(f.min()), float(f.max())
+    return {
+        "title": "Residuals vs fitted", "x_label": "Fitted value (model scale)",
+        "y_label": "Residual", "points": _scatter(f, e, ids, keep),
+        "smoother": _smoother(f, e, rng),
+        "reference_lines": [{"name": "zero", "x": [lo, hi], "y": [0.0, 0.0]}],
+        "labels": _labels(f, e, ids, flagged), "n_total": fit.n,
+    }
+
+
+def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict:
+    """Pointwise 2.5%/97.5% envelope of the ordered standardised residuals at ``ranks``."""
+    if fit.n <= ENVELOPE_SIMULATION_MAX_N:
+        # Atkinson (1981): simulate N(0, 1) responses on the same design and standardise
+        # their residuals exactly as the observed ones.
+        h = fit.influence.leverage
+        ok = h < 1 - ct.LEVERAGE_ONE_TOL
+        Y = rng.standard_normal((fit.n, ENVELOPE_SIMULATIONS))
+        E = Y - fit.X @ (fit.res.model.pinv_wexog @ Y)
+        s2 = np.sum(E**2, axis=0) / fit.df_resid
+        R = np.sort(E[ok] / np.sqrt(np.outer(1 - h[ok], s2)), axis=0)
+        lower, upper = np.percentile(R[ranks], [2.5, 97.5], axis=1)
+        method = f"simulation ({ENVELOPE_SIMULATIONS} samples, seeded; Atkinson 1981)"
+        sims = ENVELOPE_SIMULATIONS
+    else:
+        # The k-th of m ordered uniforms is Beta(k, m + 1 - k): exact quantiles of normal
+        # order statistics, accurate for standardised residuals when n is this large.
+        k = ranks + 1
+        lower = stats.norm.ppf(stats.beta.ppf(0.025, k, m + 1 - k))
+        upper = stats.norm.ppf(stats.beta.ppf(0.975, k, m + 1 - k))
+        method = "exact normal order-statistic quantiles (large n)"
+        sims = None
+    return {"lower": lower, "upper": upper, "method": method, "simulations": sims}
+
+
+def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
+    panel = {"title": "Normal Q-Q", "x_label": "Normal quantile",
+             "y_label": "Standardised residual", "n_total": fit.n}
+    r = None if fit.influence is None else fit.influence.standardized
+    rows = np.flatnonzero(np.isfinite(r)) if r is not None else np.array([], dtype=int)
+    if rows.size < 3:
+        panel.update(points={"x": [], "y": [], "row": []}, reference_line=None, envelope=None,
+                     labels=[], note=fit.residual_reason or "too few standardised residuals")
+        return panel
+    m = rows.size
+    order = rows[np.argsort(r[rows], kind="stable")]
+    theo_all = stats.norm.ppf((np.arange(1, m + 1) - 0.375) / (m + 0.25))  # Blom (1958)
+    if m <= max_points:
+        ranks = np.arange(m)
+    else:
+        tail = max(max_points // 10, 1)
+        rank_of = np.empty(fit.n, dtype=np.intp)
+        rank_of[order] = np.arange(m)
+        must = rank_of[np.intersect1d(flagged, rows)]
+        ranks = np.unique(np.concatenate([
+            np.arange(tail), np.arange(m - tail, m), _even(m, max_points - 2 * tail), must]))
+    env = _envelope(fit, ranks, m, rng)
+    y, theo = r[order[ranks]], theo_all[ranks]
+    q1, q3 = np.percentile(r[rows], [25, 75])
+    t1, t3 = stats.norm.ppf([0.25, 0.75])
+    slope = (q3 - q1) / (t3 - t1)
+    intercept = q1 - slope * t1
+    ends = np.array([theo_all[0], theo_all[-1]])
+    inside = float(np.mean((y >= env["lower"]) & (y <= env["upper"])))
+    rank_at = {int(order[k]): int(k) for k in ranks}
+    labels = [{"row": int(ids[i]), "x": float(theo_all[rank_at[i]]), "y": float(r[i])}
+              for i in flagged[:MAX_LABELS].tolist() if i in rank_at]  # priority order
+    panel.update(
+        points={"x": _floats(theo), "y": _floats(y), "row": _ints(ids[order[ranks]])},
+        reference_line={"x": _floats(ends), "y": _floats(intercept + slope * ends),
+                        "slope": float(slope), "intercept": float(intercept),
+                        "method": "line through the quartiles"},
+        envelope={"x": _floats(theo), "lower": _floats(env["lower"]),
+                  "upper": _floats(env["upper"]), "level": 0.95, "method": env["method"],
+                  "simulations": env["simulations"], "share_inside": inside},
+        labels=labels, plotting_positions="Blom (1958): (i - 0.375) / (n + 0.25)",
+    )
+    return panel
+
+
+def _spread_fitted(fit, ids, keep, flagged, rng) -> dict:
+    panel = {"title": "Spread vs fitted", "x_label": "Fitted value (model scale)",
+             "y_label": "sqrt(|standardised residual|)", "n_total": fit.n}
+    if fit.influence is None:
+        panel.update(points={"x": [], "y": [], "row": []}, smoother=None, labels=[],
+                     note=fit.residual_reason)
+        return panel
+    f, s = fit.fitted, np.sqrt(np.abs(fit.influence.standardized))
+    panel.update(points=_scatter(f, s, ids, keep), smoother=_smoother(f, s, rng),
+                 labels=_labels(f, s, ids, flagged))
+    return panel
+
+
+def _influence_panel(fit, ids, keep, flagged) -> dict:
+    panel = {"title": "Influence", "x_label": "Leverage (hat value)",
+             "y_label": "Externally studentised residual", "n_total": fit.n}
+    if fit.influence is None:
+        panel.update(points={"x": [], "y": [], "row": [], "size": []}, reference_lines=[],
+                     labels=[], note=fit.residual_reason)
+        return panel
+    inf = fit.influence
+    h, t = inf.leverage, inf.studentized
+    cut = 2.0 * fit.rank / fit.n
+    finite_t = t[np.isfinite(t)]
+    span = max(3.0, float(np.max(np.abs(finite_t)))) if finite_t.size else 3.0
+    h_hi = max(float(np.max(h)), cut) * 1.05
+    panel.update(
+        points=_scatter(h, t, ids, keep, size=np.nan_to_num(inf.cooks, nan=0.0)),
+        reference_lines=[
+            {"name": "leverage 2p/n (common practice)", "x": [cut, cut], "y": [-span, span]},
+            {"name": "+2 (common practice)", "x": [0.0, h_hi], "y": [2.0, 2.0]},
+            {"name": "-2 (common practice)", "x": [0.0, h_hi], "y": [-2.0, -2.0]},
+        ],
+        labels=_labels(h, t, ids, flagged), size_label="Cook's distance",
+    )
+    return panel
+
+
+def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict]:
+    out = []
+    params = np.asarray(fit.res.params, dtype=float)
+    for term in inp.terms:
+        if term.kind != "numeric" or len(term.indices) != 1:
+            continue
+        j = term.indices[0]
+        w = fit.X[:, j]
+        x = w if term.raw is None else np.asarray(term.raw, dtype=float)
+        comp = params[j] * w
+        y = comp + fit.resid
+        # the component b_j w_j is a curve in x: draw it through the shown rows and the ends
+        rows = np.union1d(keep, [int(np.argmin(x)), int(np.argmax(x))])
+        rows = rows[np.argsort(x[rows], kind="stable")]
+        srt = rows[_even(rows.size, CURVE_POINTS * 5)]
+        out.append({
+            "column": term.column, "label": term.label,
+            "title": f"Component + residual: {term.label}",
+            "x_label": f"{term.column} (raw value)",
+            "y_label": f"b * {term.label} + residual",
+            "points": _scatter(x, y, ids, keep),
+            "component": {"x": _floats(x[srt]), "y": _floats(comp[srt])},
+            "smoother": _smoother(x, y, rng), "coefficient": ct.num(params[j]),
+            "n_total": fit.n,
+        })
+    return out
+
+
+def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0) -> dict:
+    """Plot-ready data for the five diagnostic panels.
+
+    Returns ``{"residuals_fitted", "normal_quantiles", "spread_fitted", "influence",
+    "partial_residuals"}``.  Each panel holds ``title``, axis labels, ``points``
+    (``{"x", "y", "row"}`` lists; ``row`` is the caller's row number) and its reference
+    lines, smoother or envelope; ``partial_residuals`` is a list with one such panel per
+    numeric predictor.  At most about ``max_points`` points per panel are returned (flagged
+    rows are always kept); randomness comes only from ``seed``.  No NaN or infinity.
+    """
+    if max_points < 10:
+        raise ValueError(f"max_points must be at least 10; got {max_points}")
+    z, X = validate(inp)
+    fit = ct.fit_model(z, X, inp.has_intercept)
+    ids = np.asarray(inp.row_ids)
+    flagged = (flag_rows(fit)[0][:MAX_FLAGGED_ROWS] if fit.influence is not None
+               else np.array([], dtype=np.intp))
+    rng = np.random.default_rng(seed)
+    keep = _thin(fit.n, max_points, flagged.astype(np.intp), rng)
+    return {
+        "residuals_fitted": _residuals_fitted(fit, ids, keep, flagged, rng),
+        "normal_quantiles": _normal_quantiles(fit, ids, max_points, flagged, rng),
+        "spread_fitted": _spread_fitted(fit, ids, keep, flagged, rng),
+        "influence": _influence_panel(fit, ids, keep, flagged),
+        "partial_residuals": _partial_residuals(fit, inp, ids, keep, rng),
+    }
