@@ -39,6 +39,13 @@ def main() -> None:
                 {"pipe_length_m": 220.0, "pipe_age_years": 55, "soil": "clay"},
                 {"pipe_length_m": 900.0, "pipe_age_years": 30, "soil": "sand"}]},
             "interval": 0.9}
+    diag = {"data": sel["data"],
+            "specification": answers["selections"]["ranking"][0]["specification"],
+            "alpha": 0.05, "units": sel["units"], "max_points": 200}
+    _write("diagnostics.request.json", diag)
+    r = client.post("/v1/diagnostics", json=diag)
+    r.raise_for_status()
+    _write("diagnostics.response.json", r.json())
     _write("predictions.request.json", pred)
     r = client.post("/v1/predictions", json=pred)
     r.raise_for_status()

@@ -7,6 +7,7 @@ import logging
 from fastapi import FastAPI
 
 from . import errors
+from .api.diagnostics import router as diagnostics_router
 from .api.predictions import router as predictions_router
 from .api.routes import router
 from .middleware import ServiceMiddleware
@@ -34,6 +35,7 @@ def create_app() -> FastAPI:
     errors.install(app)
     app.include_router(router)
     app.include_router(predictions_router)
+    app.include_router(diagnostics_router)
     s = get_settings()
     if s.cors_origins:
         from starlette.middleware.cors import CORSMiddleware

@@ -43,3 +43,53 @@ def failed(conditions: dict | None) -> list[str]:
     if not conditions:
         return []
     return [c for c in CONDITION_NAMES if conditions.get(c, {}).get("holds") is False]
+
+
+def diagnose_specification(prep: Prepared, spec_dict: dict, opts, service_version: str,
+                           max_points: int = 2000) -> tuple[dict, dict]:
+    """One specification exactly as given: (ranking entry without rank, plot data).
+
+    Domain problems are :class:`InputError` pointing into ``/specification``; a
+    specification that cannot be fitted or cross-validated is a :class:`ModelFailure`.
+    """
+    from . import transforms as tr
+    from .crossval import cross_validate, make_plan
+    from .errors import CandidateFailure, InputError, ModelFailure, pointer
+    from .plots import diagnostic_plots
+    from .report import entry_for, fitted_model
+    from .spec import Specification, build_design, resolve_predictor_transforms
+
+    spec = Specification.from_dict(spec_dict)
+    rt = spec.response_transform
+    msg = rt.domain_problem(prep.y, prep.response, "response")
+    if msg:
+        raise InputError.at("/specification/response/transform", msg)
+    for i, p in enumerate(spec.predictors):
+        if p.column in prep.numeric:
+            if p.transform.name == "categorical":
+                raise InputError.at(pointer("specification", "predictors", i, "transform"),
+                                    f"'{p.column}' is numeric; list it in 'categorical' to treat "
+                                    "it as levels")
+            if p.transform.name in ("box_cox", "yeo_johnson") and p.transform.lam is None:
+                raise InputError.at(pointer("specification", "predictors", i, "transform", "lambda"),
+                                    f"{p.transform.name} of a predictor needs an explicit lambda")
+            msg = p.transform.domain_problem(prep.numeric[p.column], p.column, "predictor")
+            if msg:
+                raise InputError.at(pointer("specification", "predictors", i, "transform"), msg)
+    spec = resolve_predictor_transforms(spec, prep)
+    try:
+        design = build_design(spec, prep, ptr_prefix="/specification")
+        plan = make_plan(prep.n, opts.folds, opts.repeats, opts.seed, opts.metric)
+        cv = cross_validate(design.X, prep.y, rt, plan, tr.needs_shift(prep.y), design.names)
+        parts = {"cv_value": cv.value, "cv_std_error": cv.std_error,
+                 "best_cv_value": cv.value, "one_se_threshold": cv.value + cv.std_error,
+                 "within_one_se": True, "simplicity": list(spec.simplicity()),
+                 "rule": "a single specification as sent; nothing was ranked"}
+        entry = entry_for(spec, cv, plan, prep, parts, opts, service_version)
+        _, design, fit, _ = fitted_model(spec, prep)
+    except CandidateFailure as exc:
+        raise ModelFailure(f"the specification cannot be fitted: {exc.reason}") from None
+    entry["score"]["parts"]["conditions_failed"] = failed(entry["conditions"])
+    inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, opts.alpha)
+    plots = diagnostic_plots(inp, max_points=max_points, seed=opts.seed)
+    return entry, plots

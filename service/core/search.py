@@ -216,7 +216,7 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
         warnings.append(f"{n_fail} candidate(s) could not be scored (see search.failures); "
                         "they are left out of the ranking.")
 
-    ranked, threshold = rank(scored)
+    ranked, _ = rank(scored, plan.folds)
     cache: dict = {}
 
     def full(s: Scored, parts: dict) -> dict:
@@ -260,7 +260,6 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
         "predictor_transforms": {c: [t.to_dict() for t in p] for c, p in zip(prep.predictors, preds)},
         "best_cv": {"value": best.cv.value, "std_error": best.cv.std_error,
                     "specification": best.spec.to_dict()},
-        "one_se_threshold": threshold,
         "failures": failures,
     }
     if box_cox_info is not None:
@@ -292,7 +291,7 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
                 position = i + 1
                 break
         if position is None:
-            again, _ = rank(scored + [Scored(spec, inc_cv)])
+            again, _ = rank(scored + [Scored(spec, inc_cv)], plan.folds)
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
         try:
             conditions = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "")["conditions"]
@@ -303,31 +302,54 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
                             conditions, opts.incumbent)
 
 
-def rank(scored: list[Scored]) -> tuple[list[tuple[Scored, dict]], float]:
-    """Order by the one-standard-error rule; returns (scored, score parts) pairs and the cut."""
+def rank(scored: list[Scored], folds: int | None = None) -> tuple[list[tuple[Scored, dict]], float]:
+    """Order by the one-standard-error rule with paired fold differences.
+
+    A candidate is inside the band when its CV error exceeds the lowest by no
+    more than the standard error of its paired fold differences from the best
+    (sd(d)/sqrt(K), the same convention as the CV standard error).  Pairing
+    uses the shared folds: a candidate that loses on every fold is outside the
+    band even if the fold errors themselves vary a lot.  With a single fold
+    value the best candidate's own standard error is used.  Returns the
+    ordered (scored, score parts) pairs and the lowest CV error.
+    """
     best = min(scored, key=lambda s: s.cv.value)
-    cut = best.cv.value + best.cv.std_error
-    inside = [s for s in scored if s.cv.value <= cut]
-    outside = [s for s in scored if s.cv.value > cut]
+    k = folds or max(len(best.cv.fold_values), 1)
+
+    def paired(s: Scored) -> tuple[float, float]:
+        d = s.cv.fold_values - best.cv.fold_values
+        if s is best:
+            return 0.0, 0.0
+        if d.size < 2:
+            return s.cv.value - best.cv.value, best.cv.std_error
+        return s.cv.value - best.cv.value, float(np.std(d, ddof=1) / math.sqrt(k))
+
+    info = {id(s): paired(s) for s in scored}
+    inside = [s for s in scored if info[id(s)][0] <= info[id(s)][1]]
+    outside = [s for s in scored if info[id(s)][0] > info[id(s)][1]]
     inside.sort(key=lambda s: (s.spec.simplicity(), s.cv.value))
     outside.sort(key=lambda s: s.cv.value)
     out = []
     for s in inside + outside:
-        within = s.cv.value <= cut
+        diff, se = info[id(s)]
+        within = diff <= se
         parts = {
             "cv_value": s.cv.value,
             "cv_std_error": s.cv.std_error,
             "best_cv_value": best.cv.value,
-            "one_se_threshold": cut,
+            "difference_from_best": diff,
+            "paired_std_error": se,
+            "one_se_threshold": best.cv.value + se,
             "within_one_se": within,
             "simplicity": list(s.spec.simplicity()),
-            "rule": ("within one standard error of the lowest CV error; ranked among those by "
-                     "simplicity (estimated parameters, transform readability, transformed columns)"
-                     if within else "more than one standard error above the lowest CV error; "
+            "rule": ("within one paired standard error of the lowest CV error; ranked among "
+                     "those by simplicity (estimated parameters, transform readability, "
+                     "transformed columns)" if within else
+                     "more than one paired standard error above the lowest CV error; "
                      "ranked by CV error"),
         }
         out.append((s, parts))
-    return out, cut
+    return out, best.cv.value
 
 
 def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str]):

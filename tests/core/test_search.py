@@ -11,24 +11,41 @@ from service.core.search import Scored, SearchOptions, rank, run_selection
 from service.core.spec import PredictorSpec, Specification
 
 
-def _scored(resp: str, pred: str, value: float, se: float) -> Scored:
+def _scored(resp: str, pred: str, value: float, se: float, folds=None) -> Scored:
     spec = Specification("y", tr.from_dict({"name": resp}),
                          (PredictorSpec("x", tr.from_dict({"name": pred})),))
-    return Scored(spec, CVResult("rmse", value, se, np.array([value]), {"rmse": value}))
+    fv = np.array([value]) if folds is None else np.asarray(folds, float)
+    return Scored(spec, CVResult("rmse", value, se, fv, {"rmse": value}))
 
 
 def test_one_se_rule_prefers_the_simplest_inside_the_band():
     # source: Breiman et al. (1984) p. 80; Hastie, Tibshirani & Friedman (2009) p. 61
+    # (single fold values: the best candidate's own standard error sets the band)
     best = _scored("box_cox", "log", 10.0, 1.0)
     simple = _scored("identity", "identity", 10.9, 1.0)   # inside best + 1 SE
     middle = _scored("log", "log", 10.5, 1.0)              # inside, less simple
     outside = _scored("identity", "sqrt", 11.5, 1.0)       # outside the band
-    ranked, cut = rank([best, simple, middle, outside])
-    assert cut == pytest.approx(11.0)
+    ranked, lowest = rank([best, simple, middle, outside])
+    assert lowest == pytest.approx(10.0)
     order = [s for s, _ in ranked]
     assert order[0] is simple and order[1] is middle and order[2] is best and order[3] is outside
     parts = [p for _, p in ranked]
     assert [p["within_one_se"] for p in parts] == [True, True, True, False]
+
+
+def test_band_uses_paired_fold_differences():
+    # Fold errors vary a lot (unpaired SE 2.0), but the candidate loses on every fold by
+    # about 0.5: the paired SE is tiny, so it is outside the band.
+    best = _scored("log", "log", 10.0, 2.0, folds=[6, 8, 10, 12, 14])
+    worse = _scored("identity", "identity", 10.5, 2.0, folds=[6.5, 8.4, 10.6, 12.5, 14.5])
+    tie = _scored("identity", "log", 10.1, 2.0, folds=[8, 6, 12, 10, 14.5])
+    ranked, _ = rank([best, worse, tie], folds=5)
+    parts = {id(s): p for s, p in ranked}
+    assert parts[id(worse)]["within_one_se"] is False
+    d = np.array([0.5, 0.4, 0.6, 0.5, 0.5])
+    assert parts[id(worse)]["paired_std_error"] == pytest.approx(np.std(d, ddof=1) / np.sqrt(5))
+    assert parts[id(tie)]["within_one_se"] is True
+    assert ranked[0][0] is tie  # simpler than the best, inside the band
 
 
 def test_outside_the_band_is_ordered_by_error():
