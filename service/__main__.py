@@ -1,41 +1,92 @@
-"""Command line: ``python -m service [--host H] [--port P]`` starts the API;
-``python -m service select --data FILE ...`` runs one selection in-process (see service/cli.py)."""
+"""Command line: ``python -m service [--host H] [--port P] [--workers N]`` starts the API;
+``python -m service select --data FILE ...`` runs one selection in-process (see service/cli.py).
+
+Settings come from ``BESTSCALE_*`` variables (service/settings.py); the flags override the
+three listed.  With several workers, Prometheus metrics are shared through a fresh directory
+(``PROMETHEUS_MULTIPROC_DIR``) created here before the workers start and removed at exit.
+"""
 
 from __future__ import annotations
 
 import argparse
+import glob
 import os
+import shutil
 import sys
+import tempfile
+
+
+def _settings_or_exit():
+    from pydantic import ValidationError
+
+    from .settings import describe_error, get_settings
+
+    try:
+        return get_settings()
+    except ValidationError as exc:
+        print("invalid settings:\n" + describe_error(exc), file=sys.stderr)
+        raise SystemExit(2) from None
+
+
+def _pin_blas(n: int) -> None:
+    # before numpy is imported by anything: the libraries read these once at load time
+    for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(var, str(n))
+
+
+def metrics_dir(workers: int) -> tuple[str | None, bool]:
+    """The multiprocess metrics directory for ``workers`` processes, and whether it is ours
+    to remove.  One worker needs none; an operator's directory is emptied of stale files."""
+    if workers <= 1:
+        return None, False
+    given = os.environ.get("PROMETHEUS_MULTIPROC_DIR")
+    if given:
+        os.makedirs(given, exist_ok=True)
+        for path in glob.glob(os.path.join(given, "*.db")):
+            os.remove(path)  # values of an earlier run would be added to this one's
+        return given, False
+    path = tempfile.mkdtemp(prefix="bestscale-metrics-")
+    os.environ["PROMETHEUS_MULTIPROC_DIR"] = path
+    return path, True
+
+
+def serve(argv: list[str]) -> int:
+    s = _settings_or_exit()
+    ap = argparse.ArgumentParser(prog="python -m service", description="Run the Bestscale API.")
+    ap.add_argument("--host", default=s.host, help=f"address to listen on (default {s.host})")
+    ap.add_argument("--port", type=int, default=s.port, help=f"port (default {s.port})")
+    ap.add_argument("--workers", type=int, default=s.workers,
+                    help=f"server processes (default {s.workers})")
+    args = ap.parse_args(argv)
+    if not 1 <= args.workers <= 64:
+        ap.error("--workers must be between 1 and 64")
+    _pin_blas(s.blas_threads)
+    directory, ours = metrics_dir(args.workers)
+    import uvicorn
+
+    from .logs import logging_config
+
+    try:
+        uvicorn.run("service.app:app", host=args.host, port=args.port, workers=args.workers,
+                    log_level=s.log_level, log_config=logging_config(s.log_level),
+                    access_log=False, server_header=False, timeout_graceful_shutdown=30)
+    finally:
+        if ours and directory:
+            shutil.rmtree(directory, ignore_errors=True)
+    return 0
 
 
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     if argv and argv[0] == "select":
+        s = _settings_or_exit()
+        _pin_blas(s.blas_threads)
         from .app import limit_blas_threads
         from .cli import select_main
-        from .settings import get_settings as _gs
 
-        limit_blas_threads(_gs().blas_threads)
+        limit_blas_threads(s.blas_threads)
         return select_main(argv[1:])
-    from .settings import get_settings
-
-    s = get_settings()
-    ap = argparse.ArgumentParser(prog="python -m service", description="Run the Bestscale API.")
-    ap.add_argument("--host", default=s.host)
-    ap.add_argument("--port", type=int, default=s.port)
-    ap.add_argument("--workers", type=int, default=s.workers)
-    args = ap.parse_args(argv)
-    for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ.setdefault(var, str(s.blas_threads))
-    import logging
-
-    import uvicorn
-
-    logging.basicConfig(level=s.log_level.upper(), format="%(message)s")
-
-    uvicorn.run("service.app:app", host=args.host, port=args.port, workers=args.workers,
-                log_level=s.log_level, server_header=False)
-    return 0
+    return serve(argv)
 
 
 if __name__ == "__main__":

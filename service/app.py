@@ -3,14 +3,17 @@
 from __future__ import annotations
 
 import logging
+from contextlib import asynccontextmanager
 
 from fastapi import FastAPI
 
-from . import errors
+from . import errors, openapi
+from .api import pool
 from .api.diagnostics import router as diagnostics_router
 from .api.predictions import router as predictions_router
 from .api.routes import router
-from .middleware import ServiceMiddleware
+from .metrics import mark_this_process_dead
+from .middleware import GuardMiddleware, ServiceMiddleware
 from .settings import get_settings
 from .version import __version__
 
@@ -23,29 +26,56 @@ def limit_blas_threads(n: int) -> None:
     threadpool_limits(limits=n)
 
 
+def route_paths(routes) -> set[str]:
+    """Every route template, including those of included routers (metric labels)."""
+    out: set[str] = set()
+    for r in routes:
+        if getattr(r, "path", None):
+            out.add(r.path)
+        inner = getattr(getattr(r, "original_router", None), "routes", None) or getattr(r, "routes", None)
+        if inner:
+            out |= route_paths(inner)
+    return out
+
+
+@asynccontextmanager
+async def _lifespan(app: FastAPI):
+    yield
+    mark_this_process_dead()  # this worker's live gauges stop counting in /metrics
+
+
 def create_app() -> FastAPI:
-    limit_blas_threads(get_settings().blas_threads)
+    """The application as configured by the process's settings (read once, see settings.py)."""
+    s = get_settings()
+    limit_blas_threads(s.blas_threads)
     app = FastAPI(
         title="Bestscale",
         version=__version__,
-        description=("Chooses the scale (response and predictor transformations) on which to "
-                     "model a linear regression, scoring every candidate by cross-validated error "
-                     "on the original response scale."),
+        description=openapi.DESCRIPTION,
+        openapi_tags=openapi.TAGS,
+        lifespan=_lifespan,
     )
     errors.install(app)
     app.include_router(router)
     app.include_router(predictions_router)
     app.include_router(diagnostics_router)
-    s = get_settings()
+    from .api.reports import router as reports_router
+
+    app.include_router(reports_router)
+    # middleware: the last added is the outermost
+    app.add_middleware(GuardMiddleware, max_body_bytes=s.max_body_bytes, api_token=s.token())
     if s.cors_origins:
         from starlette.middleware.cors import CORSMiddleware
 
-        app.add_middleware(CORSMiddleware, allow_origins=s.cors_origins, allow_methods=["GET", "POST"],
-                           allow_headers=["Authorization", "Content-Type", "X-Request-ID"],
-                           expose_headers=["X-Request-ID", "Retry-After"])
-    app.add_middleware(ServiceMiddleware, max_body_bytes=s.max_body_bytes, api_token=s.api_token)
+        app.add_middleware(CORSMiddleware, allow_origins=s.cors_origins,
+                           allow_methods=["GET", "POST"], allow_credentials=False,
+                           allow_headers=["Authorization", "Content-Type", "Accept", "X-Request-ID"],
+                           expose_headers=["X-Request-ID", "Retry-After"], max_age=600)
+    app.add_middleware(ServiceMiddleware, route_paths=lambda: route_paths(app.routes))
+    openapi.install(app, s)
+    pool.capacity()  # publish the slot count before the first computation
     return app
 
 
-logging.getLogger("bestscale").setLevel(logging.INFO)
+logging.getLogger("bestscale").setLevel(get_settings().log_level.upper())
 app = create_app()

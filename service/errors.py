@@ -1,22 +1,34 @@
-"""RFC 9457 problem details: one place that maps every known error to a response."""
+"""RFC 9457 problem details: one place that maps every known error to a response.
+
+Layers: the outer middleware (service/middleware.py) turns anything unexpected into a bare
+500 problem carrying only the request id; the handlers installed here map the known error
+classes (validation, domain errors, HTTP errors, the web layer's own problems) to 4xx/503
+problems whose ``errors[].pointer`` is a JSON Pointer (RFC 6901) into the request.
+"""
 
 from __future__ import annotations
 
 import logging
 
+import orjson
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
-from starlette.responses import JSONResponse
+from starlette.responses import Response
 
 from .core.errors import BestscaleError, BudgetError, InputError, ModelFailure
+from .metrics import REJECTED
 
 log = logging.getLogger("bestscale")
 PROBLEM = "application/problem+json"
+TYPE_PREFIX = "urn:bestscale:problem:"
+MAX_ERRORS_LISTED = 50
+MAX_DETAIL_CHARS = 2000
+BUDGET_RETRY_AFTER_S = 5
 
 
 class ProblemError(Exception):
-    """An HTTP-level problem raised by the web layer itself (size, media type, auth)."""
+    """An HTTP-level problem raised by the web layer itself (size, media type, auth, busy)."""
 
     def __init__(self, status: int, kind: str, title: str, detail: str,
                  errors: list[dict] | None = None, headers: dict | None = None):
@@ -26,16 +38,49 @@ class ProblemError(Exception):
         self.headers = headers or {}
 
 
+def _clip(text: str) -> str:
+    text = str(text)
+    return text if len(text) <= MAX_DETAIL_CHARS else text[:MAX_DETAIL_CHARS - 1] + "…"
+
+
+def problem_body(status: int, kind: str, title: str, detail: str,
+                 errors: list[dict] | None = None, request_id: str | None = None,
+                 instance: str | None = None) -> dict:
+    """The problem object; long details are clipped and long error lists capped."""
+    items = [{"pointer": e["pointer"], "detail": _clip(e["detail"])} for e in (errors or [])]
+    body = {"type": TYPE_PREFIX + kind, "title": title, "status": status, "detail": _clip(detail),
+            "errors": items[:MAX_ERRORS_LISTED]}
+    if len(items) > MAX_ERRORS_LISTED:
+        body["errors_truncated"] = len(items) - MAX_ERRORS_LISTED
+    if request_id:
+        body["request_id"] = request_id
+    if instance:
+        body["instance"] = instance
+    if 400 <= status < 500 or status == 503:
+        REJECTED.labels(kind).inc()
+    return body
+
+
+def problem_bytes(status: int, kind: str, title: str, detail: str, request_id: str | None = None,
+                  errors: list[dict] | None = None, instance: str | None = None) -> bytes:
+    return orjson.dumps(problem_body(status, kind, title, detail, errors, request_id, instance))
+
+
+def internal_error_bytes(request_id: str, instance: str | None = None) -> bytes:
+    """The bare 500: no exception text, no traceback; the request id ties it to the log line."""
+    return problem_bytes(500, "internal", "Internal error",
+                         "the service failed on this request; quote the request id when "
+                         "reporting it", request_id, instance=instance)
+
+
 def problem(status: int, kind: str, title: str, detail: str, errors: list[dict] | None = None,
-            headers: dict | None = None, request: Request | None = None) -> JSONResponse:
-    body = {"type": f"urn:bestscale:problem:{kind}", "title": title, "status": status,
-            "detail": detail, "errors": errors or []}
+            headers: dict | None = None, request: Request | None = None) -> Response:
+    rid = instance = None
     if request is not None:
         rid = request.scope.get("state", {}).get("request_id")
-        if rid:
-            body["request_id"] = rid
-        body["instance"] = request.url.path
-    return JSONResponse(body, status_code=status, media_type=PROBLEM, headers=headers)
+        instance = request.url.path
+    return Response(problem_bytes(status, kind, title, detail, rid, errors, instance),
+                    status_code=status, media_type=PROBLEM, headers=headers)
 
 
 def _pointer_from_loc(loc: tuple, body) -> str:
@@ -67,6 +112,9 @@ def _message(err: dict) -> str:
         return f"unknown field '{err['loc'][-1]}'"
     if err.get("type") == "missing":
         return f"field '{err['loc'][-1]}' is required"
+    if err.get("type") == "finite_number":
+        return "must be a finite number (NaN and Infinity are not accepted; send null for a " \
+               "missing data value)"
     return msg
 
 
@@ -77,8 +125,8 @@ def install(app: FastAPI) -> None:
         if errs and errs[0].get("type") == "json_invalid":
             pos = errs[0].get("loc", ("body", 0))[-1]
             return problem(400, "malformed-body", "Malformed JSON body",
-                           f"the body is not valid JSON (near byte {pos}); NaN and Infinity are "
-                           "not JSON: send null for a missing value", request=request)
+                           f"the body is not valid JSON (near character {pos}); NaN and Infinity "
+                           "are not JSON: send null for a missing value", request=request)
         body = exc.body if hasattr(exc, "body") else None
         items = []
         seen = set()
@@ -106,7 +154,7 @@ def install(app: FastAPI) -> None:
     @app.exception_handler(BestscaleError)
     async def _domain(request: Request, exc: BestscaleError):
         status = 503 if isinstance(exc, BudgetError) else 422
-        headers = {"Retry-After": "5"} if isinstance(exc, BudgetError) else None
+        headers = {"Retry-After": str(BUDGET_RETRY_AFTER_S)} if isinstance(exc, BudgetError) else None
         errors = [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems]
         kind = exc.kind if isinstance(exc, (InputError, ModelFailure, BudgetError)) else "error"
         return problem(status, kind, exc.title, exc.detail, errors, headers, request=request)
@@ -121,7 +169,10 @@ def install(app: FastAPI) -> None:
 
     @app.exception_handler(Exception)
     async def _unexpected(request: Request, exc: Exception):
-        log.exception("unhandled error on %s", request.url.path)
-        return problem(500, "internal", "Internal error",
-                       "the service failed on this request; quote the request id when reporting it",
-                       request=request)
+        # Last resort only: service.middleware.ServiceMiddleware answers unexpected errors of
+        # the application; this catches a failure of the middleware itself.
+        log.error("unhandled error outside the service middleware", exc_info=exc,
+                  extra={"fields": {"path": request.url.path}})
+        rid = request.scope.get("state", {}).get("request_id") or ""
+        return Response(internal_error_bytes(rid, request.url.path), status_code=500,
+                        media_type=PROBLEM)

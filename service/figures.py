@@ -40,9 +40,11 @@ BAND = "#c9d6e8"  # envelope
 
 
 def _style(ax, panel: dict) -> None:
-    ax.set_title(panel.get("title", ""), loc="left", fontsize=11, fontweight="bold", color=INK)
-    ax.set_xlabel(panel.get("x_label", ""), fontsize=9, color=INK)
-    ax.set_ylabel(panel.get("y_label", ""), fontsize=9, color=INK)
+    # parse_math=False: caller-supplied column names are text, never mathtext markup
+    ax.set_title(panel.get("title", ""), loc="left", fontsize=11, fontweight="bold", color=INK,
+                 parse_math=False)
+    ax.set_xlabel(panel.get("x_label", ""), fontsize=9, color=INK, parse_math=False)
+    ax.set_ylabel(panel.get("y_label", ""), fontsize=9, color=INK, parse_math=False)
     ax.tick_params(labelsize=8, colors=INK)
     ax.grid(True, color="#e4e7eb", linewidth=0.6)
     ax.set_axisbelow(True)
@@ -94,7 +96,7 @@ def _caption(ax, panel: dict, shown: int) -> None:
 
 
 def _empty(ax, panel: dict) -> None:
-    ax.text(0.5, 0.5, panel.get("note") or "no data to show", transform=ax.transAxes,
+    ax.text(0.5, 0.5, panel.get("note") or "no data to show", transform=ax.transAxes, parse_math=False,
             ha="center", va="center", fontsize=9, color=REFERENCE, wrap=True)
 
 
@@ -205,7 +207,7 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
     for ax in axes[len(panels):]:
         ax.set_visible(False)
     if title:
-        fig.suptitle(title, fontsize=13, fontweight="bold", color=INK)
+        fig.suptitle(title, fontsize=13, fontweight="bold", color=INK, parse_math=False)
     buf = io.BytesIO()
     if fmt == "png":
         FigureCanvasAgg(fig).print_png(buf)

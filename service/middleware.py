@@ -1,40 +1,79 @@
-"""Pure ASGI middleware: request ids, access logs and metrics, body-size limit, bearer token."""
+"""Pure ASGI middleware, outermost first:
+
+``ServiceMiddleware``  request id (accepted or generated, echoed), one JSON access line and
+                       the request metrics per request, no ``Server`` header, and the outer
+                       guard that turns any unexpected exception into a bare 500 problem
+                       (request id only, no traceback) while logging the traceback.
+(CORS, when origins are configured, sits between the two so that preflights and the
+ problems below carry its headers.)
+``GuardMiddleware``    bearer token on ``/v1/*``, body-size limit (Content-Length checked
+                       before anything is read, streamed bytes counted as they arrive), and
+                       an early 503 for ``POST /v1/*`` while every compute slot is busy.
+"""
 
 from __future__ import annotations
 
+import contextvars
 import hmac
-import json
 import logging
 import re
 import time
 import uuid
+from collections.abc import Callable, Iterable
 
-from prometheus_client import Counter, Histogram
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
-log = logging.getLogger("bestscale.access")
+from .api import pool
+from .errors import PROBLEM, internal_error_bytes, problem_bytes
+from .logs import REQUEST_ID
+from .metrics import CANDIDATES, ERRORS, IN_FLIGHT, LATENCY, REQUESTS, ROWS
 
-REQUESTS = Counter("bestscale_requests_total", "HTTP requests", ["route", "status"])
-LATENCY = Histogram("bestscale_request_seconds", "request latency", ["route"],
-                    buckets=(0.01, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60, 120, 300))
-REJECTED = Counter("bestscale_rejected_total", "requests rejected before the core ran", ["reason"])
+log = logging.getLogger("bestscale.access")
+errlog = logging.getLogger("bestscale.error")
 
 _ID_OK = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
-_PROBLEM = b"application/problem+json"
+_RECORD: contextvars.ContextVar[dict | None] = contextvars.ContextVar("bestscale_request_record",
+                                                                      default=None)
+
+
+def note(**fields) -> None:
+    """Add fields (e.g. ``rows``, ``candidates``) to the current request's access-log line.
+
+    Safe to call from a ``def`` route: the framework copies the request's context into the
+    worker thread, and the record is one shared dict.  Outside a request it does nothing.
+    """
+    record = _RECORD.get()
+    if record is not None:
+        record.update({k: v for k, v in fields.items() if v is not None})
+
+
+def note_result(body: dict) -> None:
+    """Record the rows used and candidates scored of a response body (selection, grouped
+    selection, diagnostics or predictions) for the access log and the metrics."""
+    if not isinstance(body, dict):
+        return
+    data = body.get("data") if isinstance(body.get("data"), dict) else {}
+    rows = data.get("rows_used")
+    if rows is None and isinstance(body.get("predictions"), list):
+        rows = len(body["predictions"])
+    search = body.get("search") if isinstance(body.get("search"), dict) else {}
+    candidates = search.get("candidates_scored")
+    if candidates is None and isinstance(body.get("groups"), dict):
+        candidates = sum(int((g.get("search") or {}).get("candidates_scored") or 0)
+                         for g in body["groups"].values() if isinstance(g, dict))
+    note(rows=rows, candidates=candidates)
 
 
 async def _send_problem(send, status: int, kind: str, title: str, detail: str, rid: str,
-                        headers: list | None = None) -> None:
-    body = json.dumps({"type": f"urn:bestscale:problem:{kind}", "title": title, "status": status,
-                       "detail": detail, "errors": [], "request_id": rid}).encode()
-    hdrs = [(b"content-type", _PROBLEM), (b"content-length", str(len(body)).encode()),
-            (b"x-request-id", rid.encode())] + (headers or [])
-    await send({"type": "http.response.start", "status": status, "headers": hdrs})
+                        path: str, headers: list | None = None) -> None:
+    body = problem_bytes(status, kind, title, detail, rid, instance=path)
+    hdrs = [(b"content-type", PROBLEM.encode()), (b"content-length", str(len(body)).encode())]
+    await send({"type": "http.response.start", "status": status, "headers": hdrs + (headers or [])})
     await send({"type": "http.response.body", "body": body})
 
 
 class BodyTooLarge(StarletteHTTPException):
-    """Raised while the body streams in; an HTTPException so the framework passes it on."""
+    """Raised while the body streams in; an HTTPException so the framework maps it to 413."""
 
     def __init__(self, limit: int):
         super().__init__(413, f"the body exceeds the limit of {limit} bytes "
@@ -42,71 +81,135 @@ class BodyTooLarge(StarletteHTTPException):
 
 
 class ServiceMiddleware:
-    """Outermost layer: every response gets an X-Request-ID and one JSON log line."""
+    """Outermost layer: request id, access log, metrics, and the guard against the unexpected.
 
-    def __init__(self, app, max_body_bytes: int, api_token: str | None = None):
+    ``route_paths`` returns the application's route templates; it names the metric label of
+    requests refused before routing (a path that is no route is labelled ``unmatched``, so
+    callers cannot create label values).
+    """
+
+    def __init__(self, app, route_paths: Callable[[], Iterable[str]] | None = None):
         self.app = app
-        self.max_body = max_body_bytes
-        self.token = api_token
+        self._route_paths = route_paths
+        self._known: frozenset[str] | None = None
 
     async def __call__(self, scope, receive, send):
         if scope["type"] != "http":
             return await self.app(scope, receive, send)
-        headers = {k.decode("latin-1").lower(): v.decode("latin-1") for k, v in scope["headers"]}
-        rid = headers.get("x-request-id", "")
+        rid = ""
+        for k, v in scope["headers"]:
+            if k.lower() == b"x-request-id":
+                rid = v.decode("latin-1")
+                break
         if not _ID_OK.match(rid):
             rid = uuid.uuid4().hex
         scope.setdefault("state", {})["request_id"] = rid
-        path = scope.get("path", "")
+        record: dict = {}
+        tok_id, tok_rec = REQUEST_ID.set(rid), _RECORD.set(record)
         t0 = time.perf_counter()
-        status_box = {"status": 500}
+        state = {"status": 500, "started": False}
+        rid_header = rid.encode()
 
         async def send_wrapped(message):
             if message["type"] == "http.response.start":
-                status_box["status"] = message["status"]
-                hdrs = [(k, v) for k, v in message.get("headers", []) if k.lower() != b"server"]
-                hdrs.append((b"x-request-id", rid.encode()))
+                state["status"], state["started"] = message["status"], True
+                hdrs = [(k, v) for k, v in message.get("headers", [])
+                        if k.lower() not in (b"server", b"x-request-id")]
+                hdrs.append((b"x-request-id", rid_header))
                 message = {**message, "headers": hdrs}
             await send(message)
 
+        IN_FLIGHT.inc()
         try:
-            if self.token and path.startswith("/v1/"):
-                auth = headers.get("authorization", "")
-                given = auth[7:] if auth[:7].lower() == "bearer " else ""
-                if not hmac.compare_digest(given.encode(), self.token.encode()):
-                    REJECTED.labels("unauthorized").inc()
-                    return await _send_problem(send_wrapped, 401, "unauthorized", "Unauthorized",
-                                               "this endpoint needs 'Authorization: Bearer <token>'",
-                                               rid, [(b"www-authenticate", b"Bearer")])
-            length = headers.get("content-length")
-            if length is not None and length.isdigit() and int(length) > self.max_body:
-                REJECTED.labels("too_large").inc()
-                return await _send_problem(send_wrapped, 413, "too-large", "Request body too large",
-                                           f"the body has {int(length)} bytes; the limit is "
-                                           f"{self.max_body} (setting BESTSCALE_MAX_BODY_BYTES)", rid)
-            seen = {"n": 0}
-
-            async def receive_counted():
-                message = await receive()
-                if message["type"] == "http.request":
-                    seen["n"] += len(message.get("body", b""))
-                    if seen["n"] > self.max_body:
-                        REJECTED.labels("too_large").inc()
-                        raise BodyTooLarge(self.max_body)
-                return message
-
-            await self.app(scope, receive_counted, send_wrapped)
+            await self.app(scope, receive, send_wrapped)
+        except BodyTooLarge as exc:  # read outside a route (the route maps it itself)
+            if state["started"]:
+                raise
+            await _send_problem(send_wrapped, 413, "too-large", "Request body too large",
+                                str(exc.detail), rid, scope.get("path", ""))
+        except Exception as exc:
+            errlog.error("unhandled error", exc_info=exc,
+                         extra={"fields": {"method": scope.get("method"),
+                                           "route": self._label(scope)}})
+            ERRORS.labels(self._label(scope)).inc()
+            if state["started"]:
+                raise  # too late for a status: let the server drop the connection
+            body = internal_error_bytes(rid, scope.get("path", ""))
+            await send_wrapped({"type": "http.response.start", "status": 500,
+                                "headers": [(b"content-type", PROBLEM.encode()),
+                                            (b"content-length", str(len(body)).encode())]})
+            await send_wrapped({"type": "http.response.body", "body": body})
         finally:
-            route = _route_label(scope)
+            IN_FLIGHT.dec()
             dt = time.perf_counter() - t0
-            REQUESTS.labels(route, str(status_box["status"])).inc()
-            LATENCY.labels(route).observe(dt)
-            log.info(json.dumps({"request_id": rid, "method": scope.get("method"), "route": route,
-                                 "status": status_box["status"], "duration_s": round(dt, 4),
-                                 **scope["state"].get("log_fields", {})}))
+            route, status = self._label(scope), str(state["status"])
+            REQUESTS.labels(route, status).inc()
+            LATENCY.labels(route, status).observe(dt)
+            if isinstance(record.get("rows"), int):
+                ROWS.labels(route).inc(record["rows"])
+            if isinstance(record.get("candidates"), int):
+                CANDIDATES.inc(record["candidates"])
+            log.info("request", extra={"fields": {
+                "request_id": rid, "method": scope.get("method"), "route": route,
+                "status": state["status"], "duration_s": round(dt, 4), **record}})
+            _RECORD.reset(tok_rec)
+            REQUEST_ID.reset(tok_id)
+
+    def _label(self, scope) -> str:
+        path = getattr(scope.get("route"), "path", None)
+        if path:
+            return path
+        if self._known is None and self._route_paths is not None:
+            self._known = frozenset(self._route_paths())
+        p = scope.get("path", "")
+        return p if self._known and p in self._known else "unmatched"
 
 
-def _route_label(scope) -> str:
-    route = scope.get("route")
-    path = getattr(route, "path", None)
-    return path if path else "unmatched"
+class GuardMiddleware:
+    """Token, body size and early back-pressure, before any body byte is read."""
+
+    def __init__(self, app, max_body_bytes: int, api_token: str | None = None,
+                 protected_prefix: str = "/v1/"):
+        self.app = app
+        self.max_body = max_body_bytes
+        self.token = api_token.encode() if api_token else None
+        self.prefix = protected_prefix
+
+    async def __call__(self, scope, receive, send):
+        if scope["type"] != "http":
+            return await self.app(scope, receive, send)
+        path = scope.get("path", "")
+        rid = scope.get("state", {}).get("request_id", "")
+        headers = dict((k.lower(), v) for k, v in scope["headers"])
+        if self.token is not None and path.startswith(self.prefix):
+            auth = headers.get(b"authorization", b"")
+            given = auth[7:].strip() if auth[:7].lower() == b"bearer " else b""
+            if not hmac.compare_digest(given, self.token):
+                return await _send_problem(
+                    send, 401, "unauthorized", "Unauthorized",
+                    "this endpoint needs the header 'Authorization: Bearer <token>' with the "
+                    "service's API token", rid, path, [(b"www-authenticate", b'Bearer realm="bestscale"')])
+        length = headers.get(b"content-length")
+        if length is not None and length.strip().isdigit() and int(length) > self.max_body:
+            return await _send_problem(send, 413, "too-large", "Request body too large",
+                                       f"the body has {int(length)} bytes; the limit is "
+                                       f"{self.max_body} (setting BESTSCALE_MAX_BODY_BYTES)",
+                                       rid, path)
+        if scope.get("method") == "POST" and path.startswith(self.prefix) and pool.saturated():
+            exc = pool.busy_problem(pool.capacity())
+            return await _send_problem(send, 503, exc.kind, exc.title, exc.detail, rid, path,
+                                       [(k.lower().encode(), v.encode())
+                                        for k, v in exc.headers.items()])
+        seen = 0
+        limit = self.max_body
+
+        async def receive_counted():
+            nonlocal seen
+            message = await receive()
+            if message["type"] == "http.request":
+                seen += len(message.get("body", b""))
+                if seen > limit:
+                    raise BodyTooLarge(limit)
+            return message
+
+        await self.app(scope, receive_counted, send)

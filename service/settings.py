@@ -1,34 +1,121 @@
-"""Service settings, read once at start-up from ``BESTSCALE_*`` environment variables."""
+"""Service settings, read once at start-up from ``BESTSCALE_*`` environment variables.
+
+Every value is typed and range-checked; a bad value stops the service at start-up with
+one message per variable (see ``python -m service``), never at the first request.
+"""
 
 from __future__ import annotations
 
+import json
+import re
 from functools import lru_cache
+from typing import Annotated, Literal
 
-from pydantic import Field
-from pydantic_settings import BaseSettings, SettingsConfigDict
+from pydantic import Field, SecretStr, field_validator, model_validator
+from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
+
+# scheme://host[:port] exactly as a browser sends it in the Origin header (no path, no
+# trailing slash: CORS compares whole strings, so 'https://a.example/' would never match)
+_ORIGIN = re.compile(r"^https?://[A-Za-z0-9.\-\[\]:]+$")
+_TOKEN = re.compile(r"^[\x21-\x7e]+$")  # visible ASCII: it travels in an HTTP header
 
 
 class Settings(BaseSettings):
-    model_config = SettingsConfigDict(env_prefix="BESTSCALE_", extra="ignore")
+    model_config = SettingsConfigDict(env_prefix="BESTSCALE_", extra="ignore", frozen=True)
 
-    host: str = Field("127.0.0.1", description="address to listen on")
-    port: int = Field(8000, ge=1, le=65535)
+    host: str = Field("127.0.0.1", min_length=1, description="address to listen on")
+    port: int = Field(8000, ge=1, le=65535, description="port to listen on")
     workers: int = Field(1, ge=1, le=64, description="server processes")
-    pool_size: int = Field(2, ge=1, le=256, description="concurrent CPU-bound requests per process")
-    blas_threads: int = Field(1, ge=1, le=64, description="BLAS threads per worker")
-    max_body_bytes: int = Field(64 * 1024 * 1024, ge=1024)
-    max_rows: int = Field(1_000_000, ge=10)
-    max_columns: int = Field(200, ge=2)
-    max_candidates: int = Field(20_000, ge=1)
-    max_groups: int = Field(1000, ge=1)
-    default_max_candidates: int = Field(5_000, ge=1)
-    default_time_limit_s: float = Field(60.0, gt=0)
-    max_time_limit_s: float = Field(600.0, gt=0)
-    api_token: str | None = Field(None, description="if set, /v1/* requires 'Authorization: Bearer <token>'")
-    cors_origins: list[str] = Field(default_factory=list)
-    log_level: str = "info"
+    pool_size: int = Field(2, ge=1, le=256,
+                           description="compute-bound requests running at once per process; "
+                                       "more get 503 with Retry-After")
+    blas_threads: int = Field(1, ge=1, le=64, description="BLAS threads per process")
+    max_body_bytes: int = Field(64 * 1024 * 1024, ge=1024, le=2**34,
+                                description="larger request bodies get 413 before they are read")
+    max_rows: int = Field(1_000_000, ge=10, description="table rows accepted (422 past it)")
+    max_columns: int = Field(200, ge=2, description="columns a request may use (422 past it)")
+    max_candidates: int = Field(20_000, ge=1, description="largest limits.max_candidates accepted")
+    default_max_candidates: int = Field(5_000, ge=1, description="limits.max_candidates when omitted")
+    max_groups: int = Field(1000, ge=1, description="group_by values per request (422 past it)")
+    default_time_limit_s: float = Field(60.0, gt=0, le=86400,
+                                        description="limits.time_limit_s when omitted")
+    max_time_limit_s: float = Field(600.0, gt=0, le=86400,
+                                    description="largest limits.time_limit_s accepted")
+    api_token: SecretStr | None = Field(
+        None, description="if set, /v1/* requires 'Authorization: Bearer <token>'")
+    cors_origins: Annotated[list[str], NoDecode] = Field(
+        default_factory=list, description="browser origins allowed to call the API: a JSON list "
+        "or a comma-separated list of scheme://host[:port]; empty allows none")
+    log_level: Literal["critical", "error", "warning", "info", "debug"] = Field(
+        "info", description="level of the JSON log lines")
+
+    @field_validator("log_level", mode="before")
+    @classmethod
+    def _lower(cls, v):
+        return v.strip().lower() if isinstance(v, str) else v
+
+    @field_validator("api_token", mode="before")
+    @classmethod
+    def _token(cls, v):
+        if isinstance(v, str):
+            v = v.strip()
+            if not v:
+                return None  # an empty variable means "no token", as if it were unset
+            if len(v) < 16 or not _TOKEN.match(v):
+                raise ValueError("the API token must be at least 16 visible ASCII characters "
+                                 "without spaces")
+        return v
+
+    @field_validator("cors_origins", mode="before")
+    @classmethod
+    def _origins(cls, v):
+        if isinstance(v, str):
+            text = v.strip()
+            if text.startswith("["):
+                try:
+                    v = json.loads(text)
+                except ValueError:
+                    raise ValueError(f"CORS origins {text!r} are not a JSON list") from None
+            else:
+                v = [part.strip() for part in text.split(",") if part.strip()]
+        if isinstance(v, list):
+            for origin in v:
+                if not isinstance(origin, str) or not (origin == "*" or _ORIGIN.match(origin)):
+                    raise ValueError(f"CORS origin {origin!r} is not scheme://host[:port] "
+                                     "(no path, no trailing slash) or '*'")
+        return v
+
+    @model_validator(mode="after")
+    def _defaults_within_limits(self):
+        if self.default_max_candidates > self.max_candidates:
+            raise ValueError(f"default_max_candidates ({self.default_max_candidates}) exceeds "
+                             f"max_candidates ({self.max_candidates})")
+        if self.default_time_limit_s > self.max_time_limit_s:
+            raise ValueError(f"default_time_limit_s ({self.default_time_limit_s:g}) exceeds "
+                             f"max_time_limit_s ({self.max_time_limit_s:g})")
+        return self
+
+    def token(self) -> str | None:
+        """The API token in clear, or None when the API is open."""
+        return self.api_token.get_secret_value() if self.api_token is not None else None
 
 
 @lru_cache(maxsize=1)
 def get_settings() -> Settings:
+    """The process's settings, read from the environment on first use and then kept."""
     return Settings()
+
+
+def describe_error(exc: Exception) -> str:
+    """One line per invalid variable, naming it as it is set in the environment."""
+    errors = getattr(exc, "errors", None)
+    if not callable(errors):
+        return str(exc)
+    lines = []
+    for e in errors():
+        loc = e.get("loc") or ()
+        var = f"BESTSCALE_{str(loc[0]).upper()}" if loc else "settings"
+        msg = e.get("msg", "invalid value")
+        msg = msg[len("Value error, "):] if msg.startswith("Value error, ") else msg
+        lines.append(f"{var}: {msg}")
+    return "\n".join(lines)

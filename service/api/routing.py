@@ -1,6 +1,16 @@
-"""A route class that parses JSON strictly (no NaN/Infinity tokens) and checks the media type."""
+"""A route class that parses JSON strictly (no NaN/Infinity tokens) and checks the media type.
+
+Routes listed in ``UPLOAD_PATHS`` also take ``multipart/form-data``: a ``file`` part holding
+the table as CSV (with a header row) or Parquet, and an optional ``options`` part holding the
+rest of the request as a JSON object (everything but ``data``).  The file becomes the
+request's ``data`` -- CSV as ``data.csv`` (the same parsing and messages as CSV sent in JSON),
+Parquet as ``data.columns`` (typed columns; a null or NaN cell is a missing value) -- so
+validation, error pointers and results are those of the JSON request.
+"""
 
 from __future__ import annotations
+
+import io
 
 import orjson
 from fastapi import Request
@@ -9,6 +19,10 @@ from fastapi.routing import APIRoute
 from ..errors import ProblemError
 
 JSON_TYPES = ("application/json",)
+MULTIPART = "multipart/form-data"
+UPLOAD_PATHS = ("/v1/selections", "/v1/reports")
+FILE_PART, OPTIONS_PART = "file", "options"
+PARQUET_MAGIC = b"PAR1"
 
 
 class StrictJSONRequest(Request):
@@ -22,9 +36,116 @@ class StrictJSONRequest(Request):
         return self._json
 
 
+class _UploadedRequest(Request):
+    """A request whose JSON body was assembled from multipart parts."""
+
+    def __init__(self, scope, receive, body: dict):
+        headers = [(k, v) for k, v in scope["headers"] if k.lower() != b"content-type"]
+        headers.append((b"content-type", b"application/json"))
+        super().__init__({**scope, "headers": headers}, receive)
+        self._assembled = body
+
+    async def body(self) -> bytes:
+        return b"{}"  # non-empty, so the framework asks json() for the body
+
+    async def json(self):
+        return self._assembled
+
+
+def _main_type(content_type: str) -> str:
+    return content_type.split(";")[0].strip().lower()
+
+
 def _is_json(content_type: str) -> bool:
-    main = content_type.split(";")[0].strip().lower()
+    main = _main_type(content_type)
     return main in JSON_TYPES or main.endswith("+json")
+
+
+def _problem(status: int, kind: str, title: str, pointer: str, detail: str) -> ProblemError:
+    return ProblemError(status, kind, title, detail, [{"pointer": pointer, "detail": detail}])
+
+
+def table_from_file(raw: bytes, filename: str | None) -> dict:
+    """The contract's Data object for an uploaded CSV or Parquet file."""
+    name = (filename or "").lower()
+    if raw[:4] == PARQUET_MAGIC or name.endswith((".parquet", ".pq")):
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        try:
+            table = pq.read_table(io.BytesIO(raw))
+        except (pa.ArrowException, OSError) as exc:
+            raise _problem(422, "invalid-input", "Invalid request content", "/file",
+                           f"the uploaded file is not a readable Parquet file ({exc})") from None
+        cols = {}
+        for col in table.column_names:
+            arr = table.column(col)
+            if pa.types.is_floating(arr.type):
+                import pyarrow.compute as pc
+
+                # NaN in a Parquet float column is a missing value (the row is dropped, listed)
+                arr = pc.if_else(pc.is_nan(arr), pa.scalar(None, arr.type), arr)
+            elif not (pa.types.is_integer(arr.type) or pa.types.is_string(arr.type) or
+                      pa.types.is_large_string(arr.type) or pa.types.is_boolean(arr.type) or
+                      pa.types.is_dictionary(arr.type)):
+                raise _problem(422, "invalid-input", "Invalid request content", "/file",
+                               f"column '{col}' of the Parquet file has type {arr.type}; "
+                               "send numbers, text or booleans")
+            cols[str(col)] = arr.to_pylist()
+        return {"columns": cols}
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise _problem(422, "invalid-input", "Invalid request content", "/file",
+                       f"the uploaded file is neither Parquet nor UTF-8 CSV text (byte "
+                       f"{exc.start} is not UTF-8)") from None
+    return {"csv": text}
+
+
+async def assemble_upload(request: Request) -> dict:
+    """The JSON request body of a multipart upload: options plus ``data`` from the file."""
+    try:
+        form = await request.form(max_files=1, max_fields=4)
+    except Exception as exc:  # python-multipart's parse errors have no common public base
+        raise ProblemError(400, "malformed-body", "Malformed multipart body",
+                           f"the multipart/form-data body cannot be read ({exc})") from None
+    try:
+        extra = [k for k in form.keys() if k not in (FILE_PART, OPTIONS_PART)]
+        if extra:
+            raise _problem(422, "invalid-input", "Invalid request content", f"/{extra[0]}",
+                           f"unknown part '{extra[0]}'; send a '{FILE_PART}' part with the table "
+                           f"and an '{OPTIONS_PART}' part with the other request fields as JSON")
+        upload = form.get(FILE_PART)
+        if upload is None or isinstance(upload, str):
+            raise _problem(422, "invalid-input", "Invalid request content", f"/{FILE_PART}",
+                           f"a multipart request needs a '{FILE_PART}' part holding the table "
+                           "(CSV with a header row, or Parquet)")
+        raw = await upload.read()
+        opts = form.get(OPTIONS_PART)
+        if opts is None:
+            body: dict = {}
+        else:
+            text = await opts.read() if not isinstance(opts, str) else opts.encode()
+            try:
+                body = orjson.loads(text)
+            except orjson.JSONDecodeError as exc:
+                raise _problem(400, "malformed-body", "Malformed JSON body", f"/{OPTIONS_PART}",
+                               f"the '{OPTIONS_PART}' part is not valid JSON (near byte "
+                               f"{exc.pos}); NaN and Infinity are not JSON") from None
+            if not isinstance(body, dict):
+                raise _problem(400, "malformed-body", "Malformed JSON body", f"/{OPTIONS_PART}",
+                               f"the '{OPTIONS_PART}' part must be a JSON object")
+        if "data" in body:
+            raise _problem(422, "invalid-input", "Invalid request content",
+                           f"/{OPTIONS_PART}/data", f"the table comes from the '{FILE_PART}' "
+                           f"part; leave 'data' out of '{OPTIONS_PART}'")
+        if not raw:
+            raise _problem(422, "invalid-input", "Invalid request content", f"/{FILE_PART}",
+                           "the uploaded file is empty")
+        body["data"] = table_from_file(raw, getattr(upload, "filename", None))
+        return body
+    finally:
+        await form.close()
 
 
 class StrictRoute(APIRoute):
@@ -34,14 +155,20 @@ class StrictRoute(APIRoute):
         async def strict(request: Request):
             if request.method in ("POST", "PUT", "PATCH"):
                 ctype = request.headers.get("content-type", "")
-                if not _is_json(ctype) and not self._accepts_other(ctype):
+                if self._accepts_upload(ctype):
+                    body = await assemble_upload(request)
+                    return await handler(_UploadedRequest(request.scope, request.receive, body))
+                if not _is_json(ctype):
+                    also = (" or multipart/form-data (a 'file' part and an 'options' JSON part)"
+                            if self.path in UPLOAD_PATHS else "")
                     raise ProblemError(415, "unsupported-media-type", "Unsupported media type",
-                                       f"send the body as application/json (got "
+                                       f"send the body as application/json{also} (got "
                                        f"'{ctype or 'no content type'}')",
-                                       [{"pointer": "", "detail": "Content-Type must be application/json"}])
+                                       [{"pointer": "", "detail": "Content-Type must be "
+                                         f"application/json{also}"}])
             return await handler(StrictJSONRequest(request.scope, request.receive))
 
         return strict
 
-    def _accepts_other(self, ctype: str) -> bool:
-        return False
+    def _accepts_upload(self, ctype: str) -> bool:
+        return self.path in UPLOAD_PATHS and _main_type(ctype) == MULTIPART

@@ -1,28 +1,45 @@
-"""Request bodies of the HTTP contract (pydantic).  Responses are plain dicts built by the core."""
+"""Request bodies of the HTTP contract (pydantic).  Responses are plain dicts built by the core
+(their schemas for the OpenAPI document are in responses.py).
+
+Validation is strict: JSON types must match (``"5"`` is not an integer, ``"0.05"`` not a
+number, ``1`` not a boolean), numbers must be finite, unknown fields are refused.  Rules that
+need the table (a column exists, a value is positive) are the core's.
+"""
 
 from __future__ import annotations
 
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
 TransformName = Literal["identity", "log", "sqrt", "reciprocal", "square", "power", "box_cox",
                         "yeo_johnson", "categorical"]
+ColumnName = Annotated[str, StringConstraints(min_length=1, max_length=256)]
 
 
 class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, populate_by_name=True)
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, populate_by_name=True,
+                              strict=True)
 
 
 class DataIn(_Strict):
     """The table: exactly one of ``columns``, ``records`` or ``csv``; ``null`` marks a missing value."""
 
     columns: dict[str, list[Any]] | None = Field(
-        None, description="column-oriented: {name: [v, ...]}; the preferred, fastest layout",
-        examples=[{"cost": [120.5, 98.0], "length_m": [40, 25]}])
+        None, description="column-oriented: {name: [v, ...]} with one value per row in every "
+        "column; the preferred, fastest layout. Values are numbers, strings (categorical "
+        "levels) or null (missing)",
+        examples=[{"repair_cost": [1520.5, 980.0, 4310.2], "pipe_length_m": [40, 25, 120],
+                   "soil": ["clay", "loam", "clay"]}])
     records: list[dict[str, Any]] | None = Field(
-        None, description="row-oriented: [{name: v, ...}, ...]")
-    csv: str | None = Field(None, description="CSV text with a header row; empty cells are missing")
+        None, description="row-oriented: [{name: v, ...}, ...]; a key missing from a record "
+        "is an error, null is a missing value",
+        examples=[[{"repair_cost": 1520.5, "pipe_length_m": 40, "soil": "clay"},
+                   {"repair_cost": 980.0, "pipe_length_m": 25, "soil": "loam"}]])
+    csv: str | None = Field(
+        None, min_length=1, description="CSV text with a header row (comma-separated, RFC 4180 "
+        "quoting); empty cells are missing",
+        examples=["repair_cost,pipe_length_m,soil\n1520.5,40,clay\n980.0,25,loam\n"])
 
     @model_validator(mode="after")
     def _exactly_one(self):
@@ -37,14 +54,25 @@ class DataIn(_Strict):
 
 
 class TransformIn(_Strict):
-    """A transformation: ``{"name": NAME, ...parameters}``."""
+    """A transformation: ``{"name": NAME, ...parameters}``.  ``shift`` applies only to log,
+    ``exponent`` only to power (and is required there), ``lambda`` only to box_cox and
+    yeo_johnson, ``reference`` only to categorical."""
 
-    name: TransformName
-    shift: float | None = Field(None, description="log only: added before the log")
-    exponent: float | None = Field(None, description="power only: the exponent (not 0)")
+    name: TransformName = Field(..., description="transform name (GET /v1/transforms lists them)",
+                                examples=["log"])
+    shift: float | None = Field(None, ge=-1e15, le=1e15,
+                                description="log only: a constant added before the log "
+                                "(log(x + shift)); omit to let the service choose one when the "
+                                "column has zeros", examples=[0.5])
+    exponent: float | None = Field(None, ge=-10, le=10,
+                                   description="power only: the exponent, non-zero, in "
+                                   "[-10, 10] (use log for 0)", examples=[0.5])
     lambda_: float | None = Field(None, alias="lambda", ge=-5, le=5,
-                                  description="box_cox / yeo_johnson: fixed lambda; omit to estimate")
-    reference: str | None = Field(None, description="categorical only: the baseline level")
+                                  description="box_cox / yeo_johnson: a fixed lambda in [-5, 5]; "
+                                  "omit to estimate it from the data", examples=[0.25])
+    reference: str | None = Field(None, min_length=1, max_length=256,
+                                  description="categorical only: the baseline level",
+                                  examples=["clay"])
     estimated: bool | None = Field(None, description="set by the service when a parameter was "
                                    "estimated from data; ignored on input")
 
@@ -53,7 +81,7 @@ class TransformIn(_Strict):
         if self.name == "power":
             if self.exponent is None:
                 raise ValueError("power needs an 'exponent'")
-            if abs(self.exponent) < 1e-12 or abs(self.exponent) > 10:
+            if abs(self.exponent) < 1e-12:
                 raise ValueError("power 'exponent' must be non-zero and within [-10, 10] (use log for 0)")
         elif self.exponent is not None:
             raise ValueError(f"'exponent' applies only to power, not {self.name}")
@@ -79,21 +107,33 @@ class TransformIn(_Strict):
 
 
 class ResponseSpecIn(_Strict):
-    column: str
-    transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"))
+    column: ColumnName = Field(..., description="the response column", examples=["repair_cost"])
+    transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"),
+                                   description="its transform; default identity")
 
 
 class PredictorSpecIn(_Strict):
-    column: str
-    transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"))
+    column: ColumnName = Field(..., description="a predictor column", examples=["pipe_length_m"])
+    transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"),
+                                   description="its transform; default identity ('categorical' "
+                                   "for a grouping column)")
 
 
 class SpecificationIn(_Strict):
     """A structured model specification (no formula strings)."""
 
-    response: ResponseSpecIn
-    predictors: list[PredictorSpecIn] = Field(..., min_length=1)
-    intercept: bool = True
+    response: ResponseSpecIn = Field(..., description="the response and its transform")
+    predictors: list[PredictorSpecIn] = Field(..., min_length=1,
+                                              description="the predictors and their transforms")
+    intercept: bool = Field(True, description="fit an intercept")
+
+    model_config = ConfigDict(json_schema_extra={"examples": [{
+        "response": {"column": "repair_cost", "transform": {"name": "log"}},
+        "predictors": [{"column": "pipe_length_m", "transform": {"name": "log"}},
+                       {"column": "pipe_age_years", "transform": {"name": "identity"}},
+                       {"column": "soil", "transform": {"name": "categorical",
+                                                        "reference": "clay"}}],
+        "intercept": True}]})
 
     def as_dict(self) -> dict:
         return {"response": {"column": self.response.column,
@@ -104,43 +144,68 @@ class SpecificationIn(_Strict):
 
 
 class ValidationIn(_Strict):
-    folds: int = Field(5, ge=2, le=50, description="K in K-fold cross-validation")
-    repeats: int = Field(1, ge=1, le=50, description="repeated K-fold: number of partitions")
-    seed: int = Field(0, ge=0, le=2**32 - 1, description="seed of the partitions")
+    folds: int = Field(5, ge=2, le=50, description="K in K-fold cross-validation", examples=[5])
+    repeats: int = Field(1, ge=1, le=50, description="repeated K-fold: number of partitions",
+                         examples=[2])
+    seed: int = Field(0, ge=0, le=2**32 - 1, description="seed of the partitions (the same "
+                      "seed gives the same folds and so the same ranking)", examples=[0])
     metric: Literal["rmse", "mae", "mape"] = Field(
         "rmse", description="error on the original response scale: rmse scores the smeared mean, "
-        "mae and mape the median (naive inverse)")
+        "mae and mape the median (naive inverse)", examples=["rmse"])
+
+
+TransformChoice = TransformName | TransformIn
 
 
 class TransformsIn(_Strict):
-    response: list[TransformName | TransformIn] | None = Field(
+    response: list[TransformChoice] | None = Field(
         None, description="response transforms to search (names or full transforms); "
-        "default: every applicable one")
-    predictors: list[TransformName | TransformIn] | dict[str, list[TransformName | TransformIn]] | None = Field(
+        "default: every applicable one", examples=[["identity", "log", "sqrt", "box_cox"]])
+    predictors: list[TransformChoice] | dict[str, list[TransformChoice]] | None = Field(
         None, description="numeric predictor transforms to search: one list for all, or "
-        "{column: list}; default: identity, log, sqrt, reciprocal, square where applicable")
+        "{column: list}; default: identity, log, sqrt, reciprocal, square where applicable",
+        examples=[["identity", "log"], {"pipe_length_m": ["identity", "log"],
+                                        "pipe_age_years": ["identity"]}])
 
 
 class LimitsIn(_Strict):
-    max_candidates: int | None = Field(None, ge=1, description="most candidates to score")
-    time_limit_s: float | None = Field(None, gt=0, description="stop the search after this many seconds")
+    max_candidates: int | None = Field(None, ge=1, description="most candidates to score "
+                                       "(the service's limit applies; 422 past it)",
+                                       examples=[500])
+    time_limit_s: float | None = Field(None, gt=0, description="stop the search after this many "
+                                       "seconds and return the best ranking so far with "
+                                       "search.complete = false (503 if no candidate finished); "
+                                       "the service's limit applies", examples=[30])
 
 
 class SelectionRequest(_Strict):
-    data: DataIn
-    response: str = Field(..., description="response column")
-    predictors: list[str] = Field(..., min_length=1, description="predictor columns; non-numeric ones are categorical")
-    categorical: list[str] = Field(default_factory=list, description="predictors to treat as categorical even if numeric")
-    order: str | None = Field(None, description="column giving observation order; enables independence tests")
-    transforms: TransformsIn = Field(default_factory=TransformsIn)
-    validation: ValidationIn = Field(default_factory=ValidationIn)
-    alpha: float = Field(0.05, gt=0, lt=0.5, description="significance level of condition tests")
-    top: int = Field(5, ge=1, le=100, description="ranked specifications to return")
-    limits: LimitsIn = Field(default_factory=LimitsIn)
+    data: DataIn = Field(..., description="the table")
+    response: ColumnName = Field(..., description="response column", examples=["repair_cost"])
+    predictors: list[ColumnName] = Field(..., min_length=1,
+                                         description="predictor columns; non-numeric ones are "
+                                         "categorical",
+                                         examples=[["pipe_length_m", "pipe_age_years", "soil"]])
+    categorical: list[ColumnName] = Field(default_factory=list,
+                                          description="predictors to treat as categorical even "
+                                          "if numeric", examples=[["district"]])
+    order: ColumnName | None = Field(None, description="column giving observation order (time, "
+                                     "sequence); enables independence tests",
+                                     examples=["repair_date"])
+    transforms: TransformsIn = Field(default_factory=TransformsIn,
+                                     description="which transforms to search")
+    validation: ValidationIn = Field(default_factory=ValidationIn,
+                                     description="cross-validation settings")
+    alpha: float = Field(0.05, gt=0, lt=0.5, description="significance level of condition tests",
+                         examples=[0.05])
+    top: int = Field(5, ge=1, le=100, description="ranked specifications to return",
+                     examples=[5])
+    limits: LimitsIn = Field(default_factory=LimitsIn, description="search budget")
     intercept: bool = Field(True, description="fit an intercept")
-    group_by: str | None = Field(None, description="run one selection per value of this column")
-    units: dict[str, str] = Field(default_factory=dict, description="{column: unit text} used in "
-                                  "interpretation sentences, e.g. {'pipe_length_m': 'metre'}")
+    group_by: ColumnName | None = Field(None, description="run one selection per value of this "
+                                        "column", examples=["region"])
+    units: dict[str, Annotated[str, StringConstraints(max_length=100)]] = Field(
+        default_factory=dict, description="{column: unit text} used in interpretation sentences",
+        examples=[{"pipe_length_m": "metre", "repair_cost": "currency units"}])
     incumbent: SpecificationIn | None = Field(
         None, description="the specification in use (e.g. last month's), scored on the same "
         "folds; the response tells whether to keep it")
@@ -153,4 +218,3 @@ def transform_items(items) -> list | dict | None:
     if isinstance(items, dict):
         return {k: transform_items(v) for k, v in items.items()}
     return [i if isinstance(i, str) else i.as_dict() for i in items]
-

@@ -8,6 +8,9 @@ back-transformed: the smeared mean (Duan 1983) for squared error, the naive
 inverse (a median) for absolute and percentage errors, each the minimiser of
 its own loss.
 
+The per-fold least squares come from downdated cross-product matrices
+(:mod:`bank`, :mod:`fastcv`); :func:`cross_validate` scores one design that way.
+
 Fold assignment: repeat r uses the r-th permutation drawn from
 ``numpy.random.RandomState(seed)``; fold k takes the next ``n//K + (k < n%K)``
 entries.  Repeat 0 therefore equals ``sklearn.model_selection.KFold(K,
@@ -16,13 +19,11 @@ shuffle=True, random_state=seed)``.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 from scipy import linalg
 
-from . import retransform
 from . import transforms as tr
 from .errors import CandidateFailure
 from .fitting import qr_solve
@@ -67,6 +68,8 @@ class CVResult:
     fold_values: np.ndarray  # (repeats * folds,) metric per held-out fold
     summary: dict  # all metrics: {"rmse": v, "mae": v, "mape": v | None}
     fold_lambdas: list[float] | None = None
+    fold_powers: list[list[float]] | None = None  # per fold: estimated predictor powers
+    exact_refits: int = 0  # folds refitted by QR because their Gram matrix was ill-conditioned
 
     def to_dict(self, plan: CVPlan) -> dict:
         return {"metric": self.metric, "value": self.value, "std_error": self.std_error,
@@ -111,76 +114,22 @@ def cross_validate(X: np.ndarray, y: np.ndarray, response_transform: tr.Transfor
                    shift_needed: bool, names: list[str] | None = None) -> CVResult:
     """Score one candidate.  ``X``: (n, p) full design; ``y``: (n,) original response.
 
-    Raises :class:`CandidateFailure` when any fold cannot be fitted or its
+    Per-fold solutions come from downdated cross-product matrices with an exact
+    refit where they are ill-conditioned (see :mod:`fastcv`).  Raises
+    :class:`CandidateFailure` when any fold cannot be fitted or its
     back-transform is undefined for a held-out row (e.g. a reciprocal model
     predicting a non-positive 1/y).
     """
-    metric = plan.metric
-    want_mape = bool(np.all(y != 0))
-    fold_vals = np.empty(plan.n_splits)
-    pooled = {"rmse": [], "mae": [], "mape": []}
-    lambdas: list[float] = []
-    estimate_lam = response_transform.name in ("box_cox", "yeo_johnson") and \
-        not response_transform.is_fitted
-    near = None
-    if estimate_lam:
-        try:
-            near = tr.fit_transform(response_transform, y, X).lam
-        except ValueError as exc:
-            raise CandidateFailure(str(exc)) from None
-    j = 0
-    for r, assign in enumerate(plan.assignments):
-        sq = np.empty(y.size)
-        ab = np.empty(y.size)
-        pc = np.empty(y.size)
-        for k in range(plan.folds):
-            test = assign == k
-            train = ~test
-            Xtr, ytr = X[train], y[train]
-            try:
-                t = tr.fit_transform(response_transform, ytr, Xtr, shift_needed=shift_needed,
-                                     near=near)
-            except ValueError as exc:
-                raise CandidateFailure(f"fold {k + 1}: {exc}") from None
-            if estimate_lam:
-                lambdas.append(float(t.lam))
-            ztr = t.forward(ytr)
-            if not np.all(np.isfinite(ztr)):
-                raise CandidateFailure(f"fold {k + 1}: {t.label('y')} overflows on the training rows")
-            try:
-                coef = fold_solve(Xtr, ztr, names)
-            except CandidateFailure as exc:
-                raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
-            e = ztr - Xtr @ coef
-            eta = X[test] @ coef
-            med = retransform.naive(t, eta)
-            bad = ~np.isfinite(med)
-            if not np.any(bad):
-                mean = retransform.smeared_mean(t, eta, e)
-                bad = ~np.isfinite(mean)
-            if np.any(bad):
-                raise CandidateFailure(
-                    f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or "
-                    f"overflows for {int(bad.sum())} held-out row(s) (prediction outside the "
-                    "scale's range)")
-            yt = y[test]
-            sq[test] = (yt - mean) ** 2
-            ab[test] = np.abs(yt - med)
-            if want_mape:
-                pc[test] = np.abs((yt - med) / yt)
-            fold_vals[j] = _metric(metric, yt, mean, med) if (metric != "mape" or want_mape) else math.nan
-            j += 1
-        pooled["rmse"].append(math.sqrt(float(np.mean(sq))))
-        pooled["mae"].append(float(np.mean(ab)))
-        if want_mape:
-            pooled["mape"].append(100.0 * float(np.mean(pc)))
-    summary = {k: (float(np.mean(v)) if v else None) for k, v in pooled.items()}
-    value = summary[metric]
-    if value is None or not math.isfinite(value):
-        raise CandidateFailure(f"the {metric} is not defined for this response")
-    # SE over the R*K fold values, divided by sqrt(K): repeats do not add independent
-    # information (Bengio & Grandvalet 2004: no unbiased estimator exists; this one is naive).
-    se = float(np.std(fold_vals, ddof=1) / math.sqrt(plan.folds)) if fold_vals.size > 1 else 0.0
-    if not all(math.isfinite(v) for v in fold_vals):
-        raise CandidateFailure("a fold error is not finite")
-    return CVResult(metric, value, se, fold_vals, summary, lambdas or None)
+    from .bank import ColumnBank, FoldIndex
+    from .fastcv import Scorer
+
+    X = np.asarray(X, dtype=float)
+    bank = ColumnBank.of_matrix(X, FoldIndex.of(plan, X.shape[0]))
+    scorer = Scorer(bank, y, plan, shift_needed)
+    return from_score(scorer.score(response_transform, list(range(X.shape[1])), names))
+
+
+def from_score(s) -> CVResult:
+    """A :class:`fastcv.Score` as the public :class:`CVResult`."""
+    return CVResult(s.metric, s.value, s.std_error, s.fold_values, s.summary, s.fold_lambdas,
+                    s.fold_powers, s.exact_refits)

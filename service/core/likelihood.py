@@ -22,7 +22,7 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize, special
 
 from . import transforms as tr
 
@@ -149,6 +149,12 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
     f = _profile(family, y, proj)
     grid = vals = None
     if near is not None and math.isfinite(near):
+        # a bracket around the warm start first: three evaluations when it holds the maximum
+        trio = np.clip(np.array([near - 0.25, near, near + 0.25]), *LAMBDA_BOUNDS)
+        tv = np.array([f(g) for g in trio])
+        if np.all(np.isfinite(tv)) and tv[1] >= tv[0] and tv[1] >= tv[2] and trio[0] < trio[2]:
+            grid, vals = trio, tv
+    if grid is None and near is not None and math.isfinite(near):
         grid = np.clip(np.linspace(near - 1.0, near + 1.0, 9), *LAMBDA_BOUNDS)
         vals = np.array([f(g) for g in grid])
         i = int(np.argmax(np.where(np.isfinite(vals), vals, -np.inf)))
@@ -172,7 +178,7 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
     at_bound = bool(lam <= LAMBDA_BOUNDS[0] + 1e-6 or lam >= LAMBDA_BOUNDS[1] - 1e-6)
     ci_low = ci_high = None
     if with_interval:
-        cut = best - stats.chi2.ppf(level, 1) / 2.0
+        cut = best - _chi2_1_ppf(level) / 2.0
 
         def g(t: float) -> float:
             v = f(t)
@@ -183,13 +189,13 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
             warnings.simplefilter("ignore", RuntimeWarning)
             ci_low = _endpoint(g, lam, -CI_SEARCH)
             ci_high = _endpoint(g, lam, CI_SEARCH)
-    chi = stats.chi2(1)
-
     def lr_p(l0: float) -> float | None:
+        if not with_interval:  # a fold's warm-started estimate: only lambda is used
+            return None
         v = f(l0)
         if not math.isfinite(v):
             return None
-        return float(chi.sf(max(2.0 * (best - v), 0.0)))
+        return float(special.erfc(math.sqrt(max(2.0 * (best - v), 0.0) / 2.0)))
 
     ladder = None
     lo_b = -math.inf if ci_low is None else ci_low
@@ -199,6 +205,11 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
         ladder = min(inside, key=lambda p: (abs(p - lam), abs(p)))
     return LambdaEstimate(family, lam, best, ci_low, ci_high, level, ladder,
                           lr_p(1.0), lr_p(0.0), at_bound)
+
+
+def _chi2_1_ppf(level: float) -> float:
+    """chi-square(1) quantile: the square of the standard normal (1 + level)/2 quantile."""
+    return float(special.ndtri(0.5 + level / 2.0) ** 2)
 
 
 def _endpoint(g, lam: float, limit: float) -> float | None:

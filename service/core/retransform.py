@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import _smear_tree as _tree
 from .transforms import Transform
 
 SMEAR_RTOL = 1e-9
@@ -66,6 +67,9 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
         return np.where(np.isfinite(out), out, np.nan)
     if name == "sqrt":
         return _smear_sqrt(eta, e)
+    form = _tree.power_form(t)
+    if form is not None:
+        return _smear_power(eta, e, form)
     if eta.size * e.size <= EXACT_LIMIT:
         return _exact(t, eta, e)
     quick = _smear_gauss(t, eta, e)
@@ -74,6 +78,24 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
     if eta.size <= ADAPTIVE_MIN_ETAS:  # the adaptive nodes would cost about as much
         return _exact(t, eta, e)
     return _smear_interpolated(t, eta, e)
+
+
+TREE_MIN_WORK = 4_000_000  # below this m * n the exact double sum is cheaper than the tree
+
+
+def _smear_power(eta: np.ndarray, e: np.ndarray, form) -> np.ndarray:
+    """Power-form inverses (square, reciprocal, power, Box-Cox): the root series where every
+    term is defined and far enough from the singular point, the tree code (or, for small
+    problems, the exact sum) elsewhere; relative error <= _tree.TREE_RTOL (plus rounding)."""
+    beta, gamma, delta, p, zero = form
+    out, done = _tree.smear_power_root(eta, e, beta, gamma, delta, p)
+    rest = ~done
+    if np.any(rest):
+        if int(rest.sum()) * e.size > TREE_MIN_WORK:
+            out[rest] = _tree.smear_power(eta[rest], e, beta, gamma, delta, p, zero)
+        else:
+            out[rest] = _tree.exact_power(eta[rest], e, beta, gamma, delta, p, zero)
+    return np.where(np.isfinite(out), out, np.nan)
 
 
 GAUSS_NODES = (16, 32)

@@ -17,19 +17,26 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import boxtidwell as bt
+from . import candidates as cand
 from . import incumbent
 from . import transforms as tr
-from .crossval import CVPlan, CVResult, cross_validate, make_plan
+from .bank import FoldIndex
+from .crossval import CVPlan, CVResult, from_score, make_plan
 from .data import Prepared
-from .errors import BudgetError, CandidateFailure, InputError, ModelFailure, pointer
-from .likelihood import estimate_lambda
 from .diagnose import CONDITION_NAMES, failed
+from .errors import BudgetError, CandidateFailure, InputError, ModelFailure, pointer
+from .fastcv import Dynamic, Scorer
+from .likelihood import estimate_lambda
 from .report import entry_for
-from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
+from .spec import PredictorSpec, Specification, build_design
+from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
-DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
-DEFAULT_PREDICTOR = ("identity", "log", "sqrt", "reciprocal", "square")
+DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
+DEFAULT_PREDICTOR = cand.DEFAULT_PREDICTOR
+
 MAX_FAILURES_LISTED = 10
+STRATEGIES = ("auto", "exhaustive", "screened")
 
 
 @dataclass
@@ -47,88 +54,80 @@ class SearchOptions:
     intercept: bool = True
     units: dict = field(default_factory=dict)
     incumbent: dict | None = None  # contract Specification in use
+    strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
 
 
 @dataclass
 class Scored:
     spec: Specification
     cv: CVResult
+    open_spec: Specification | None = None  # as searched (estimated powers not yet fitted)
 
-
-def _as_transform(item) -> tr.Transform:
-    if isinstance(item, str):
-        return tr.from_dict({"name": item})
-    return tr.from_dict(item)
-
-
-def _expand_name(item) -> list[tr.Transform]:
-    """A bare name 'power' means the ladder rungs not covered by other names."""
-    if isinstance(item, str) and item == "power":
-        return [tr.Transform("power", exponent=-0.5), tr.Transform("power", exponent=1.0 / 3.0)]
-    return [_as_transform(item)]
+    def __post_init__(self):
+        if self.open_spec is None:
+            self.open_spec = self.spec
 
 
 def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
-    y = prep.y
-    explicit = opts.response_transforms is not None
-    items = opts.response_transforms if explicit else list(DEFAULT_RESPONSE)
-    out: list[tr.Transform] = []
-    for i, item in enumerate(items):
-        for t in _expand_name(item):
-            if t.name == "categorical":
-                raise InputError.at(pointer("transforms", "response", i),
-                                    "the response cannot be categorical")
-            msg = t.domain_problem(y, prep.response, "response")
-            if msg:
-                if explicit:
-                    raise InputError.at(pointer("transforms", "response", i), msg)
-                continue
-            if t not in out:
-                out.append(t)
-    return out
+    return cand.response_candidates(prep, opts.response_transforms)
 
 
 def predictor_candidates(prep: Prepared, opts: SearchOptions) -> list[list[tr.Transform]]:
-    spec = opts.predictor_transforms
-    per: list[list[tr.Transform]] = []
-    for j, col in enumerate(prep.predictors):
-        if col in prep.categorical:
-            per.append([tr.Transform("categorical")])
-            continue
-        x = prep.numeric[col]
-        if isinstance(spec, dict) and col in spec:
-            items, explicit, base = spec[col], True, pointer("transforms", "predictors", col)
-        elif isinstance(spec, list):
-            items, explicit, base = spec, False, "/transforms/predictors"
-        else:
-            items, explicit, base = list(DEFAULT_PREDICTOR), False, ""
-        lst: list[tr.Transform] = []
-        for i, item in enumerate(items):
-            for t in _expand_name(item):
-                if t.name in ("box_cox", "yeo_johnson") and t.lam is None:
-                    raise InputError.at(f"{base}/{i}", f"{t.name} of a predictor needs an explicit "
-                                        "'lambda' (predictor powers are not estimated here)")
-                if t.name == "categorical":
-                    raise InputError.at(f"{base}/{i}", f"'{col}' is numeric; list it in "
-                                        "'categorical' to treat it as levels")
-                msg = t.domain_problem(x, col, "predictor")
-                if msg:
-                    if explicit:
-                        raise InputError.at(f"{base}/{i}", msg)
-                    continue
-                if t.name == "log" and t.shift is None:
-                    t = tr.fit_transform(t, x)
-                if t not in lst:
-                    lst.append(t)
-        if not lst:
-            raise InputError.at(pointer("predictors", j), f"no requested transform applies to "
-                                f"predictor '{col}'")
-        per.append(lst)
-    return per
+    return cand.predictor_candidates(prep, opts.predictor_transforms)
 
 
 def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
     return sorted(cands, key=lambda s: s.simplicity())
+
+
+class _Evaluator:
+    """Exact original-scale scoring of specifications over one column bank."""
+
+    def __init__(self, prep: Prepared, space: cand.Space, scorer: Scorer, intercept: bool):
+        self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
+        self.scored: list[Scored] = []
+        self.failures: list[dict] = []
+        self.n_fail = 0
+        self.powers: dict = {}  # concrete spec key -> {column: estimate summary}
+
+    def __call__(self, spec: Specification) -> Scored | None:
+        try:
+            s = self._score(spec)
+        except CandidateFailure as exc:
+            self.n_fail += 1
+            if len(self.failures) < MAX_FAILURES_LISTED:
+                self.failures.append({"specification": spec.to_dict(), "reason": exc.reason})
+            return None
+        self.scored.append(s)
+        return s
+
+    def _score(self, spec: Specification) -> Scored:
+        cols, names, dyn = self.space.design_of(spec)
+        t = spec.response_transform
+        dynamic = None
+        fit = None
+        est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
+        if dyn:
+            t0 = tr.fit_transform(t, self.prep.y, shift_needed=self.scorer.shift_needed)
+            z = t0.forward(self.prep.y)
+            if not np.all(np.isfinite(z)):
+                raise CandidateFailure(f"{t0.label('y')} overflows on the data")
+            x = np.column_stack([self.prep.numeric[c] for c in est_cols])
+            fit = bt.estimate_powers(z, self.space.bank.columns(cols), x,
+                                     boxcox_form=self.intercept)
+            dynamic = Dynamic(dyn, x, fit.powers, self.intercept)
+        res = from_score(self.scorer.score(t, cols, names, dynamic))
+        if fit is None:
+            return Scored(spec, res)
+        a = iter(fit.powers)
+        concrete = Specification(spec.response, t, tuple(
+            PredictorSpec(p.column, bt.concrete_transform(next(a)) if bt.is_open(p.transform)
+                          else p.transform) for p in spec.predictors), spec.intercept)
+        per_fold = np.array(res.fold_powers)
+        self.powers[concrete.key] = {
+            c: {**fit.summary(j), "per_fold": per_fold[:, j].tolist()}
+            for j, c in enumerate(est_cols)}
+        return Scored(concrete, res, spec)
 
 
 def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
@@ -155,56 +154,32 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
     warnings: list[str] = []
 
     # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
-    box_cox_info = None
-    if any(t.name == "box_cox" for t in resp):
-        base = Specification(prep.response, tr.Transform("identity"),
-                             tuple(PredictorSpec(c, tr.Transform("categorical") if c in prep.categorical
-                                                 else tr.Transform("identity")) for c in prep.predictors),
-                             opts.intercept)
-        try:
-            d0 = build_design(base, prep)
-            est = estimate_lambda("box_cox", prep.y, d0.X)
-            box_cox_info = {"design": "untransformed predictors", **est.to_dict()}
-            if est.ladder is not None:
-                rung = tr.ladder_transform(est.ladder)
-                if rung not in resp and rung.domain_problem(prep.y, prep.response, "response") is None:
-                    resp.append(rung)
-            if est.ci_low is None or est.ci_high is None or (est.ci_high - est.ci_low) > 2.0:
-                warnings.append("The data do not pin down a Box-Cox lambda for the response "
-                                f"(estimate {est.lam:.3g}, 95% interval "
-                                f"{_fmt_ci(est.ci_low, est.ci_high)}); prefer a simple scale.")
-        except (CandidateFailure, ValueError):
-            box_cox_info = None
-
-    combos = itertools.product(resp, *preds)
-    total = len(resp) * math.prod(len(p) for p in preds)
-    cands = []
-    for combo in combos:
-        cands.append(Specification(prep.response, combo[0],
-                                   tuple(PredictorSpec(c, t) for c, t in zip(prep.predictors, combo[1:])),
-                                   opts.intercept))
-        if len(cands) >= max(opts.max_candidates * 4, 20000):
-            break
-    cands = _simplicity_sorted(cands)[: opts.max_candidates]
-
-    cache: dict = {}
-    scored: list[Scored] = []
-    failures: list[dict] = []
-    n_fail = 0
-    complete = len(cands) == total
-    for spec in cands:
-        if time.perf_counter() > deadline:
-            complete = False
-            break
-        try:
-            design = build_design(spec, prep, cache)
-            res = cross_validate(design.X, prep.y, spec.response_transform, plan, shift_needed,
-                                 design.names)
-            scored.append(Scored(spec, res))
-        except CandidateFailure as exc:
-            n_fail += 1
-            if len(failures) < MAX_FAILURES_LISTED:
-                failures.append({"specification": spec.to_dict(), "reason": exc.reason})
+    box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings)
+    # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
+    bt_info, bt_powers = cand.screening_powers(prep, preds, resp, opts.intercept, opts.seed)
+    preds = cand.add_ladder_rungs(prep, preds, bt_info)
+    total = cand.grid_size(resp, preds)
+    strategy = opts.strategy if opts.strategy != "auto" else (
+        "exhaustive" if total <= EXHAUSTIVE_LIMIT else "screened")
+    screen_scales = _screen_scales(prep, resp, screen_lams)
+    extra = {}
+    if strategy == "screened":
+        for (t, col), a in bt_powers.items():
+            extra[("bt", screen_scales.get(t, t), col)] = bt.concrete_transform(a).forward(
+                prep.numeric[col])
+    index = FoldIndex.of(plan, prep.n)
+    space = cand.build_space(prep, preds, index, opts.intercept, extra)
+    scorer = Scorer(space.bank, prep.y, plan, shift_needed)
+    ev = _Evaluator(prep, space, scorer, opts.intercept)
+    budget = Budget(opts.max_candidates, deadline)
+    counts = {"screened": 0}
+    if strategy == "exhaustive":
+        complete = _exhaustive(prep, resp, preds, opts, ev, budget, total)
+    else:
+        counts = screened_search(prep, resp, preds, space, ev, budget, screen_scales,
+                                 opts.intercept)
+        complete = False
+    scored, failures, n_fail = ev.scored, ev.failures, ev.n_fail
     considered = len(scored) + n_fail
     if not scored:
         if considered == 0:
@@ -223,6 +198,8 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
         key = s.spec.key
         if key not in cache:
             cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
+            if key in ev.powers:
+                cache[key].setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
         return cache[key]
 
     ranked = _order_by_conditions(ranked, full, opts, warnings)
@@ -254,17 +231,30 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
         "candidates_considered": int(total),
         "candidates_scored": len(scored),
         "candidates_failed": n_fail,
+        "candidates_screened": int(counts["screened"]),
         "complete": bool(complete and len(scored) + n_fail == total),
         "elapsed_s": round(elapsed, 4),
+        "strategy": _strategy_block(strategy, total, budget),
         "response_transforms": [t.to_dict() for t in resp],
         "predictor_transforms": {c: [t.to_dict() for t in p] for c, p in zip(prep.predictors, preds)},
         "best_cv": {"value": best.cv.value, "std_error": best.cv.std_error,
                     "specification": best.spec.to_dict()},
         "failures": failures,
+        "exact_refits": int(sum(s.cv.exact_refits for s in scored)),
     }
     if box_cox_info is not None:
         search["box_cox"] = box_cox_info
-    if not search["complete"]:
+    if bt_info:
+        search["predictor_powers"] = _powers_block(bt_info)
+    if strategy == "screened":
+        warnings.append(
+            f"The candidate space holds {total} specifications, too many to score each; a "
+            f"screened search scored {len(scored) + n_fail} of them on the original scale "
+            f"(after screening {counts['screened']} on the model scale, see search.strategy). "
+            "A specification it did not score may predict better; review the ranking.")
+        if budget.spent:
+            warnings.append(f"The screened search stopped at limits.{budget.spent}.")
+    elif not search["complete"]:
         warnings.append(f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
                         "scored within the limits); the ranking is the best found so far.")
     body = {"data": prep.data_summary(), "search": search, "ranking": entries}
@@ -386,6 +376,94 @@ def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str])
                 + ", ".join(c.replace("_", " ") for c in low_parts["conditions_failed"])
                 + "; it ranks below specifications within one standard error that pass more "
                   "conditions.")
+    return out
+
+
+def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int) -> bool:
+    """Score every candidate, simplest first, until a limit; True when nothing was left out."""
+    cands = []
+    for combo in itertools.product(resp, *preds):
+        spec = cand.make_spec(prep, combo[0], combo[1:], opts.intercept)
+        if not cand.allowed(spec):
+            continue
+        cands.append(spec)
+        if len(cands) >= max(opts.max_candidates * 4, 20000):
+            break
+    cands = _simplicity_sorted(cands)[: opts.max_candidates]
+    for spec in cands:
+        if time.perf_counter() > budget.deadline:
+            budget.spent = "time_limit_s"
+            return False
+        ev(spec)
+    if len(cands) < total:
+        budget.spent = "max_candidates"
+    return len(cands) == total
+
+
+def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings: list):
+    """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
+    base = Specification(prep.response, tr.Transform("identity"),
+                         tuple(PredictorSpec(c, tr.Transform("categorical") if c in prep.categorical
+                                             else tr.Transform("identity")) for c in prep.predictors),
+                         opts.intercept)
+    info = None
+    lams: dict = {}
+    families = [t for t in resp if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted]
+    if not families:
+        return None, lams
+    try:
+        X0 = build_design(base, prep).X
+    except CandidateFailure:
+        return None, lams
+    for t in families:
+        try:
+            est = estimate_lambda(t.name, prep.y, X0)
+        except (CandidateFailure, ValueError):
+            continue
+        lams[t] = est.lam
+        if t.name != "box_cox":
+            continue
+        info = {"design": "untransformed predictors", **est.to_dict()}
+        if est.ladder is not None:
+            rung = tr.ladder_transform(est.ladder)
+            if rung not in resp and rung.domain_problem(prep.y, prep.response, "response") is None:
+                resp.append(rung)
+        if est.ci_low is None or est.ci_high is None or (est.ci_high - est.ci_low) > 2.0:
+            warnings.append("The data do not pin down a Box-Cox lambda for the response "
+                            f"(estimate {est.lam:.3g}, 95% interval "
+                            f"{_fmt_ci(est.ci_low, est.ci_high)}); prefer a simple scale.")
+    return info, lams
+
+
+def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
+    """The fixed model scale each response transform is screened on."""
+    out = {}
+    for t in resp:
+        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+            if t in lams:
+                out[t] = tr.Transform(t.name, lam=lams[t])
+            continue
+        out[t] = tr.fit_transform(t, prep.y)
+    return out
+
+
+def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
+    if strategy == "exhaustive":
+        text = "every candidate scored, simplest first, until a limit"
+    else:
+        text = ("screen predictor scales per response scale by coordinate descent on the "
+                "model-scale cross-validated error (from Gram matrices), score the baselines "
+                "(all untransformed, all logged, every response scale) and the best screened "
+                "combinations on the original scale, then coordinate descent on the "
+                "original-scale error")
+    return {"name": strategy, "exhaustive_limit": EXHAUSTIVE_LIMIT, "description": text,
+            "stopped_by": budget.spent}
+
+
+def _powers_block(info: dict) -> dict:
+    out: dict = {}
+    for (t, col), summ in info.items():
+        out.setdefault(col, []).append({"response_transform": t.to_dict(), **summ})
     return out
 
 

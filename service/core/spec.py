@@ -51,18 +51,27 @@ class Specification:
 
         Fewer parameters estimated from the response first, then the summed
         readability cost of the transforms (identity < log < sqrt/reciprocal/square/
-        power < estimated Box-Cox/Yeo-Johnson < shifted log), then fewer
-        transformed columns.
+        power < estimated Box-Cox/Yeo-Johnson lambda or estimated predictor power <
+        shifted log), then fewer transformed columns.  An estimated predictor power
+        (Box-Tidwell, fitted by least squares on the response) counts as a
+        parameter estimated from the response.
         """
         ts = [self.response_transform] + [p.transform for p in self.predictors]
         n_est = sum(1 for t in ts if t.name in ("box_cox", "yeo_johnson") and
                     (t.lam is None or t.estimated))
-        cost = sum(t.simplicity for t in ts if t.name != "categorical")
+        n_est += sum(1 for p in self.predictors if _estimated_power(p.transform))
+        cost = sum(3 if _estimated_power(t) else t.simplicity
+                   for t in ts if t.name != "categorical")
         n_tr = sum(1 for t in ts if t.name not in ("identity", "categorical"))
         return (n_est, cost, n_tr)
 
     def response_label(self) -> str:
         return self.response_transform.label(self.response)
+
+
+def _estimated_power(t: tr.Transform) -> bool:
+    """A predictor power estimated from the data (open, or fitted and marked estimated)."""
+    return t.estimated and (t.name == "power" or (t.name == "log" and t.shift == 0.0))
 
 
 @dataclass

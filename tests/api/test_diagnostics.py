@@ -100,3 +100,16 @@ def test_unknown_column_in_specification(client):
     r = client.post(URL, json=body)
     assert r.status_code == 422
     assert r.json()["errors"][0]["pointer"] == "/specification/predictors/0/column"
+
+
+def test_column_names_with_markup_characters_are_drawn_as_text(client):
+    # a pair of '$' would be read as mathtext and crash the renderer
+    rng = np.random.default_rng(0)
+    x = rng.uniform(1, 5, 40)
+    y = 2 * x + rng.normal(0, 0.3, 40)
+    name = "x $^{$ & y"
+    body = {"data": {"columns": {"y": y.tolist(), name: x.tolist()}},
+            "specification": {"response": {"column": "y"}, "predictors": [{"column": name}]}}
+    r = client.post(URL, json=body, headers={"accept": "image/svg+xml"})
+    assert r.status_code == 200
+    ET.fromstring(r.content)

@@ -1,0 +1,76 @@
+"""POST /v1/reports: the selection of /v1/selections as one self-contained HTML page."""
+
+from __future__ import annotations
+
+from fastapi import APIRouter
+from starlette.responses import HTMLResponse
+
+from ..core.data import prepare
+from ..report_html import CSP, render_report, report_plots
+from .encode import to_jsonable
+from .pool import compute_slot
+from .routes import run_selection_request
+from .routing import StrictRoute
+from .schemas import SelectionRequest
+
+router = APIRouter(route_class=StrictRoute)
+
+HTML_TYPE = "text/html"
+
+
+def selection_report(req: SelectionRequest) -> str:
+    """Run the selection of ``req`` and return the report page (call inside a compute slot).
+
+    The page is drawn from the JSON-ready body (private keys dropped, non-finite numbers
+    refused, exactly as the JSON response), so every number on it is the response's.
+    """
+    body = to_jsonable(run_selection_request(req))
+    # The rows the selection used, again: the plot data needs them and the selection body
+    # does not carry them.  Every check already passed in the selection above.
+    prep = prepare(req.data.as_dict(), req.response, list(req.predictors),
+                   list(req.categorical), req.order, req.group_by)
+    plots = report_plots(body, prep, req.alpha, req.validation.seed)
+    context = {"response": req.response, "predictors": list(req.predictors),
+               "alpha": req.alpha, "order": req.order, "group_by": req.group_by}
+    return render_report(body, plots, context)
+
+
+def report_response(req: SelectionRequest) -> HTMLResponse:
+    """The report as an HTTP response: text/html that forbids every fetch and script."""
+    with compute_slot():
+        page = selection_report(req)
+    return HTMLResponse(page, headers={"Content-Security-Policy": CSP,
+                                       "X-Content-Type-Options": "nosniff"})
+
+
+def wants_html(accept: str) -> bool:
+    """True when an Accept header prefers ``text/html`` to JSON (q-values honoured; a tie,
+    ``*/*`` alone or no header keeps JSON, the default)."""
+    best = {"html": 0.0, "json": 0.0}
+    for part in accept.split(","):
+        fields = [f.strip() for f in part.split(";")]
+        kind = fields[0].lower()
+        q = 1.0
+        for f in fields[1:]:
+            if f.lower().startswith("q="):
+                try:
+                    q = float(f[2:])
+                except ValueError:
+                    q = 0.0
+        if kind == HTML_TYPE:
+            best["html"] = max(best["html"], q)
+        elif kind in ("application/json", "application/*", "*/*") or kind.endswith("+json"):
+            best["json"] = max(best["json"], q)
+    return best["html"] > 0 and best["html"] > best["json"]
+
+
+@router.post("/v1/reports", tags=["selection"], response_class=HTMLResponse,
+             summary="The selection as one self-contained HTML page for people",
+             description=("Takes the body of POST /v1/selections and returns text/html: job "
+                          "summary, ranking, diagnostic figures, coefficients, interpretation, "
+                          "incumbent decision and cautions, with inline CSS and SVG, no "
+                          "scripts and no external resources. Errors are problem+json as on "
+                          "every endpoint."),
+             responses={200: {"content": {HTML_TYPE: {}}}})
+def post_reports(req: SelectionRequest):
+    return report_response(req)

@@ -1,0 +1,222 @@
+"""Response bodies of the HTTP contract, as JSON Schema for the OpenAPI document.
+
+The core builds responses as plain dicts; these models only describe them (service/openapi.py
+puts their schemas in the document, and the fuzz tests check every response against them).
+Every object admits more fields than listed: the contract only ever adds fields.  Numbers are
+finite or ``null``.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field
+
+Num = float | None  # a finite number, or null where it cannot be computed
+
+
+class _Open(BaseModel):
+    model_config = ConfigDict(extra="allow")
+
+
+class ProblemItem(_Open):
+    pointer: str = Field(..., description="JSON Pointer (RFC 6901) into the request; '' is the "
+                         "whole body")
+    detail: str = Field(..., description="what is wrong there, in one sentence")
+
+
+class Problem(_Open):
+    """RFC 9457 problem details (media type application/problem+json)."""
+
+    type: str = Field(..., description="problem type URI, urn:bestscale:problem:<kind>")
+    title: str = Field(..., description="short summary of the problem type")
+    status: int = Field(..., ge=400, le=599, description="the HTTP status code")
+    detail: str = Field(..., description="what went wrong with this request, in one sentence")
+    errors: list[ProblemItem] = Field(..., description="one entry per offending field")
+    request_id: str | None = Field(None, description="the request's X-Request-ID")
+    instance: str | None = Field(None, description="the request path")
+
+
+class TransformOut(_Open):
+    name: str = Field(..., description="transform name (see GET /v1/transforms)")
+
+
+class ColumnSpecOut(_Open):
+    column: str
+    transform: TransformOut
+
+
+class SpecificationOut(_Open):
+    response: ColumnSpecOut
+    predictors: list[ColumnSpecOut]
+    intercept: bool
+
+
+class DataSummary(_Open):
+    rows_received: int = Field(..., ge=0)
+    rows_used: int = Field(..., ge=0)
+    rows_dropped: int = Field(..., ge=0)
+    dropped: list[dict[str, Any]] = Field(..., description="dropped rows and why (capped)")
+
+
+class SearchSummary(_Open):
+    complete: bool = Field(..., description="false when the search stopped at a limit before "
+                           "every candidate was scored; the ranking is the best so far")
+    elapsed_s: float = Field(..., ge=0)
+    candidates_considered: int | None = Field(None, ge=0)
+    candidates_scored: int | None = Field(None, ge=0)
+
+
+class CVOut(_Open):
+    metric: Literal["rmse", "mae", "mape"]
+    value: Num
+    std_error: Num
+    scale: Literal["original"]
+    folds: int
+    repeats: int
+
+
+class FitOut(_Open):
+    n: int
+    r_squared: Num
+    adj_r_squared: Num
+    sigma: Num
+    df_residual: int | float
+    log_likelihood_original_scale: Num
+    aic_original_scale: Num
+    bic_original_scale: Num
+
+
+class CoefficientOut(_Open):
+    term: str
+    estimate: Num
+    std_error: Num
+    t_statistic: Num
+    p_value: Num
+    ci_low: Num
+    ci_high: Num
+
+
+class ConditionTestOut(_Open):
+    name: str
+    statistic: Num
+    p_value: Num
+
+
+class ConditionOut(_Open):
+    holds: bool | None = Field(..., description="null where the condition cannot be tested")
+    tests: list[ConditionTestOut]
+    note: str
+
+
+class ConditionsOut(_Open):
+    linearity: ConditionOut
+    normality: ConditionOut
+    equal_variance: ConditionOut
+    independence: ConditionOut
+    multicollinearity: ConditionOut
+    influence: ConditionOut
+
+
+class ScoreOut(_Open):
+    value: Num
+    parts: dict[str, Any] = Field(..., description="the numbers and the rule that placed it")
+
+
+class EntryOut(_Open):
+    """One specification with its fit, diagnostics and model artifact."""
+
+    specification: SpecificationOut
+    equation: str
+    cv: CVOut
+    fit: FitOut
+    coefficients: list[CoefficientOut]
+    conditions: ConditionsOut
+    score: ScoreOut
+    interpretation: list[str]
+    model: dict[str, Any] = Field(..., description="self-contained fitted model; send it back "
+                                  "unchanged to POST /v1/predictions")
+    warnings: list[str]
+
+
+class RankedEntryOut(EntryOut):
+    rank: int = Field(..., ge=1, description="1 = best")
+
+
+class DifferenceOut(_Open):
+    value: Num
+    std_error: Num
+
+
+class IncumbentOut(_Open):
+    specification: dict[str, Any] | None
+    rank: int | None
+    cv: CVOut | None
+    difference: DifferenceOut | None
+    decision: Literal["keep", "switch"]
+    reason: str
+
+
+class SelectionResponse(_Open):
+    """The ranking (or, with group_by, one body per group under ``groups``)."""
+
+    service_version: str
+    data: DataSummary
+    search: SearchSummary
+    ranking: list[RankedEntryOut]
+    incumbent: IncumbentOut | None = None
+    groups: dict[str, dict[str, Any]] | None = Field(
+        None, description="with group_by: group value -> a selection body without groups, or "
+        "{'problem': Problem} for a group that could not be modelled")
+    trust: dict[str, Any] | None = None
+    cautions: list[str]
+    warnings: list[str]
+
+
+class PredictionOut(_Open):
+    mean: Num = Field(..., description="smeared mean on the original scale")
+    median: Num = Field(..., description="median (plain inverse) on the original scale")
+    lower: Num
+    upper: Num
+    extrapolation: bool = Field(..., description="true when the row lies outside the training "
+                                "range or has high leverage")
+
+
+class PredictionsResponse(_Open):
+    predictions: list[PredictionOut] = Field(..., description="one per input row, in order")
+    warnings: list[str]
+
+
+class PlotsOut(_Open):
+    residuals_fitted: dict[str, Any]
+    normal_quantiles: dict[str, Any]
+    spread_fitted: dict[str, Any]
+    influence: dict[str, Any]
+    partial_residuals: list[dict[str, Any]]
+
+
+class DiagnosticsResponse(EntryOut):
+    service_version: str
+    data: DataSummary
+    plots: PlotsOut
+
+
+class TransformInfo(_Open):
+    name: str
+    parameters: list[Any]
+    domain: str
+    reading: str
+
+
+class TransformsResponse(_Open):
+    transforms: list[TransformInfo]
+    ladder: list[float]
+
+
+class HealthResponse(_Open):
+    status: Literal["ok"]
+    service_version: str
+
+
+RESPONSE_MODELS = (Problem, SelectionResponse, PredictionsResponse, DiagnosticsResponse,
+                   TransformsResponse, HealthResponse)

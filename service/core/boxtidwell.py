@@ -1,0 +1,266 @@
+"""Powers of positive predictors estimated from the data (Box & Tidwell 1962).
+
+Model: z = X_f b_f + sum_j b_j w_j(a_j) + e, with ``X_f`` the fixed columns
+(intercept, other predictors), x_j > 0 and w_j(a) the power of x_j.  With an
+intercept the column is written in the Box-Cox form w(a) = (x^a - 1)/a (log x
+at a = 0), which spans the same space as x^a and stays well conditioned near
+a = 0; without one it is x^a itself.
+
+Box & Tidwell (1962) "Transformation of the independent variables",
+Technometrics 4:531-550: linearise w(a') ~ w(a) + (a' - a) dw/da, regress z on
+[X_f, w(a)] for b, then on [X_f, w(a), dw/da] for gamma, and update
+a <- a + gamma / b (a Gauss-Newton step for the least-squares problem in
+(b, a)).  Steps that raise the residual sum of squares are halved (damping),
+powers stay in [-3, 3], and the iteration stops when every step is below 1e-6.
+
+Standard error: at the estimate the coefficient on dw/da estimates b (a - a_hat),
+so se(a_hat) = se(gamma) / |b|, the usual nonlinear least-squares standard
+error with sigma^2 = RSS / (n - p_f - 2k) (the same as scipy's ``curve_fit``).
+The interval is the Wald interval a_hat +- z_{0.975} se.
+
+When the iteration does not converge (b near 0, narrow range of x, oscillation)
+the powers are found by minimising the profile RSS over a directly (bounded
+Brent per power, cycling over the powers, at most ``PROFILE_MAX_POWERS`` powers;
+more fail cleanly); ``method`` says which path was used.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize, stats
+
+from . import transforms as tr
+from .errors import CandidateFailure
+from .fitting import qr_solve
+
+POWER_BOUNDS = (-3.0, 3.0)
+TOL = 1e-6
+MAX_ITER = 30
+PROFILE_MAX_POWERS = 2  # the profile fallback searches at most this many powers at once
+_Z975 = 1.959963984540054  # standard normal 0.975 quantile
+
+
+@dataclass(frozen=True)
+class PowerFit:
+    powers: np.ndarray  # (k,)
+    std_errors: np.ndarray | None  # (k,) or None when the augmented design is singular
+    converged: bool
+    iterations: int
+    method: str  # "box_tidwell" | "profile"
+    rss: float
+
+    def summary(self, j: int, level: float = 0.95) -> dict:
+        """Power j as reported: estimate, standard error, Wald interval, nearest ladder power."""
+        a = float(self.powers[j])
+        se = None if self.std_errors is None else float(self.std_errors[j])
+        if se is not None and not math.isfinite(se):
+            se = None
+        lo = hi = None
+        ladder = None
+        if se is not None:
+            zq = _Z975 if abs(level - 0.95) < 1e-12 else float(stats.norm.ppf(0.5 + level / 2))
+            lo, hi = a - zq * se, a + zq * se
+            inside = [p for p in tr.LADDER if lo <= p <= hi]
+            if inside:
+                ladder = min(inside, key=lambda p: (abs(p - a), abs(p)))
+        at_bound = bool(a <= POWER_BOUNDS[0] + 1e-6 or a >= POWER_BOUNDS[1] - 1e-6)
+        return {"power": a, "std_error": se, "ci_low": lo, "ci_high": hi, "level": level,
+                "ladder": ladder, "converged": self.converged, "iterations": self.iterations,
+                "method": self.method, "at_search_bound": at_bound}
+
+
+def power_columns(logx: np.ndarray, a: np.ndarray, boxcox_form: bool) -> tuple[np.ndarray, np.ndarray]:
+    """w(a) and dw/da for every power: ``logx`` (n, k) holds log x_j, ``a`` (k,)."""
+    W = np.empty_like(logx)
+    D = np.empty_like(logx)
+    for j in range(logx.shape[1]):
+        L = logx[:, j]
+        aj = float(a[j])
+        if boxcox_form:
+            if abs(aj) < 1e-12:
+                W[:, j] = L
+                D[:, j] = 0.5 * L * L
+                continue
+            u = aj * L
+            W[:, j] = np.expm1(u) / aj
+            small = np.abs(u) < 1e-3
+            # (x^a log x - w)/a, by its series where the difference cancels
+            with np.errstate(over="ignore", invalid="ignore"):
+                direct = (np.exp(u) * L - W[:, j]) / aj
+            series = L * L * (0.5 + u / 3.0 + u * u / 8.0)
+            D[:, j] = np.where(small, series, direct)
+        else:
+            xa = np.exp(aj * L)
+            W[:, j] = xa
+            D[:, j] = xa * L
+    return W, D
+
+
+def _fit(A: np.ndarray, z: np.ndarray, with_cov: bool = False):
+    """Least squares (coef, (A'A)^-1 or None, RSS): normal equations of the column-scaled
+    matrix when its condition number is below 1e7, else pivoted QR."""
+    cov = None
+    coef = None
+    if not with_cov:
+        d = np.sqrt(np.einsum("ij,ij->j", A, A))
+        if np.all(d > 0) and np.all(np.isfinite(d)):
+            As = A / d
+            G = As.T @ As
+            ev = np.linalg.eigvalsh(G)
+            if ev[0] > ev[-1] * 1e-7:
+                L = np.linalg.cholesky(G)
+                coef = np.linalg.solve(L.T, np.linalg.solve(L, As.T @ z)) / d
+    if coef is None:
+        coef, cov, _ = qr_solve(A, z, with_condition=False)
+    r = z - A @ coef
+    return coef, cov, float(r @ r)
+
+
+def _rss_at(z, Xf, logx, a, boxcox_form):
+    W, _ = power_columns(logx, a, boxcox_form)
+    if not np.all(np.isfinite(W)):
+        return math.inf, None
+    try:
+        coef, _, rss = _fit(np.hstack([Xf, W]), z)
+    except CandidateFailure:
+        return math.inf, None
+    return rss, coef
+
+
+def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndarray | None = None,
+                    boxcox_form: bool = True) -> PowerFit:
+    """Box-Tidwell powers of the columns of ``x`` (n, k), all > 0, beside fixed columns ``Xf``.
+
+    ``z`` (n,) is the response on its model scale; ``start`` (k,) the first
+    powers (default 1: the untransformed predictors).  Raises
+    :class:`CandidateFailure` when neither the iteration nor the profile search
+    gives finite powers.
+    """
+    z = np.asarray(z, dtype=float)
+    x = np.asarray(x, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    if np.any(x <= 0):
+        raise CandidateFailure("an estimated power needs a predictor with values > 0")
+    logx = np.log(x)
+    k = logx.shape[1]
+    n = z.size
+    p = Xf.shape[1] + 2 * k
+    if n <= p + 1:
+        raise CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
+    a = np.ones(k) if start is None else np.clip(np.asarray(start, float).copy(), *POWER_BOUNDS)
+    rss, coef = _rss_at(z, Xf, logx, a, boxcox_form)
+    converged = False
+    it = 0
+    if math.isfinite(rss):
+        for it in range(1, MAX_ITER + 1):
+            W, D = power_columns(logx, a, boxcox_form)
+            b = coef[Xf.shape[1]:]
+            try:
+                g, _, _ = _fit(np.hstack([Xf, W, D]), z)
+            except CandidateFailure:
+                break
+            gamma = g[Xf.shape[1] + k:]
+            if np.any(np.abs(b) < 1e-300):
+                break
+            step = gamma / b
+            if not np.all(np.isfinite(step)):
+                break
+            step = np.clip(step, -1.0, 1.0)  # at most one rung of the ladder per step
+            accepted = False
+            for _ in range(30):
+                a_new = np.clip(a + step, *POWER_BOUNDS)
+                rss_new, coef_new = _rss_at(z, Xf, logx, a_new, boxcox_form)
+                if rss_new <= rss * (1.0 + 1e-12):
+                    accepted = True
+                    break
+                step = step / 2.0
+            if not accepted:
+                break
+            moved = float(np.max(np.abs(a_new - a)))
+            a, rss, coef = a_new, rss_new, coef_new
+            if moved < TOL:
+                converged = True
+                break
+    method = "box_tidwell"
+    if not converged and k > PROFILE_MAX_POWERS:
+        raise CandidateFailure(f"the Box-Tidwell iteration for {k} powers did not converge in "
+                               f"{it} steps; estimate fewer powers at once")
+    if not converged:
+        a, rss = _profile_search(z, Xf, logx, a if math.isfinite(rss) else np.ones(k), boxcox_form)
+        method = "profile"
+        if not math.isfinite(rss):
+            raise CandidateFailure("the predictor power could not be estimated (the residual sum "
+                                   "of squares is not finite for any power in [-3, 3])")
+    se = _std_errors(z, Xf, logx, a, boxcox_form, n, p)
+    return PowerFit(a, se, converged or method == "profile", it, method, rss)
+
+
+def _std_errors(z, Xf, logx, a, boxcox_form, n, p):
+    W, D = power_columns(logx, a, boxcox_form)
+    k = logx.shape[1]
+    try:
+        coef1, _, _ = _fit(np.hstack([Xf, W]), z)
+        coef2, cov2, rss2 = _fit(np.hstack([Xf, W, D]), z, with_cov=True)
+    except CandidateFailure:
+        return None
+    b = coef1[Xf.shape[1]:]
+    s2 = rss2 / (n - p)
+    var_g = np.diag(cov2)[Xf.shape[1] + k:] * s2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        se = np.sqrt(np.maximum(var_g, 0.0)) / np.abs(b)
+    return np.where(np.isfinite(se), se, np.nan)
+
+
+def _profile_search(z, Xf, logx, a0, boxcox_form):
+    """Minimise RSS over the powers: a grid then bounded Brent, cycling over the powers."""
+    a = np.asarray(a0, float).copy()
+    k = a.size
+    best = _rss_at(z, Xf, logx, a, boxcox_form)[0]
+    grid = np.linspace(POWER_BOUNDS[0], POWER_BOUNDS[1], 25)
+    for _sweep in range(4):
+        before = a.copy()
+        for j in range(k):
+            def f(v, j=j):
+                trial = a.copy()
+                trial[j] = v
+                return _rss_at(z, Xf, logx, trial, boxcox_form)[0]
+
+            vals = np.array([f(g) for g in grid])
+            if not np.any(np.isfinite(vals)):
+                continue
+            i = int(np.argmin(np.where(np.isfinite(vals), vals, np.inf)))
+            lo, hi = grid[max(i - 1, 0)], grid[min(i + 1, grid.size - 1)]
+            res = optimize.minimize_scalar(f, bounds=(lo, hi), method="bounded",
+                                           options={"xatol": 1e-8})
+            cand, val = (float(res.x), float(res.fun))
+            if vals[i] < val:
+                cand, val = float(grid[i]), float(vals[i])
+            if val <= best:
+                a[j], best = cand, val
+        if np.max(np.abs(a - before)) < TOL:
+            break
+    return a, best
+
+
+def concrete_transform(a: float) -> tr.Transform:
+    """The predictor transform for an estimated power (marked estimated)."""
+    if abs(a) < 1e-6:
+        return tr.Transform("log", shift=0.0, estimated=True)
+    return tr.Transform("power", exponent=float(a), estimated=True)
+
+
+ESTIMATED = tr.Transform("power", exponent=None, estimated=True)
+
+
+def is_open(t: tr.Transform) -> bool:
+    """The search's 'estimate this power' option (no exponent yet)."""
+    return t.name == "power" and t.exponent is None
+
+
+def is_estimated_power(t: tr.Transform) -> bool:
+    """True for the search's open 'estimate this power' option and its fitted values."""
+    return t.estimated and (t.name == "power" or (t.name == "log" and t.shift == 0.0))

@@ -1,0 +1,301 @@
+"""The candidate space of a search: response scales, predictor options, and their columns.
+
+Options per numeric predictor: the requested (or default) transforms that
+apply to its values, plus, for a predictor with values > 0, a power estimated
+from the data (Box & Tidwell 1962, see boxtidwell.py) and the ladder power
+nearest that estimate inside its 95% interval when it is not already an
+option.  The estimated power enters by default; in an explicit list the bare
+name ``power`` asks for it (with the ladder rungs -1/2 and 1/3), as does
+``{"name": "power", "estimated": true}``.  An estimated predictor power is
+combined with the fixed response scales only (a joint estimate with a
+response lambda is not offered), and a candidate estimates at most
+``MAX_ESTIMATED_POWERS`` powers (design choice: each is a parameter fitted to
+the response, and the joint iteration grows costly and fragile).
+
+Every transformed column is computed once into a :class:`bank.ColumnBank`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import boxtidwell as bt
+from . import transforms as tr
+from .bank import ColumnBank, FoldIndex
+from .data import Prepared
+from .errors import CandidateFailure, InputError, pointer
+from .spec import PredictorSpec, Specification, categorical_levels
+
+DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
+DEFAULT_PREDICTOR = ("identity", "log", "sqrt", "reciprocal", "square")
+MAX_ESTIMATED_POWERS = 2  # estimated predictor powers in one candidate (design choice)
+BT_SCREEN_ROWS = 50_000  # the screening power estimates use at most this many rows (seeded)
+MIN_DISTINCT_FOR_POWER = 5
+
+
+def _as_transform(item) -> tr.Transform:
+    if isinstance(item, str):
+        return tr.from_dict({"name": item})
+    if isinstance(item, dict) and item.get("name") == "power" and item.get("exponent") is None:
+        return bt.ESTIMATED
+    return tr.from_dict(item)
+
+
+def _expand_name(item, role: str) -> list[tr.Transform]:
+    """A bare name 'power' means the ladder rungs not covered by other names (and, for a
+    predictor, the power estimated from the data)."""
+    if isinstance(item, str) and item == "power":
+        rungs = [tr.Transform("power", exponent=-0.5), tr.Transform("power", exponent=1.0 / 3.0)]
+        return rungs + ([bt.ESTIMATED] if role == "predictor" else [])
+    return [_as_transform(item)]
+
+
+def response_candidates(prep: Prepared, response_transforms) -> list[tr.Transform]:
+    y = prep.y
+    explicit = response_transforms is not None
+    items = response_transforms if explicit else list(DEFAULT_RESPONSE)
+    out: list[tr.Transform] = []
+    for i, item in enumerate(items):
+        for t in _expand_name(item, "response"):
+            if t.name == "categorical":
+                raise InputError.at(pointer("transforms", "response", i),
+                                    "the response cannot be categorical")
+            if bt.is_open(t):
+                raise InputError.at(pointer("transforms", "response", i),
+                                    "a response power needs an 'exponent' (or use box_cox to "
+                                    "estimate one)")
+            msg = t.domain_problem(y, prep.response, "response")
+            if msg:
+                if explicit:
+                    raise InputError.at(pointer("transforms", "response", i), msg)
+                continue
+            if t not in out:
+                out.append(t)
+    return out
+
+
+def _power_applies(x: np.ndarray) -> bool:
+    return bool(np.min(x) > 0 and np.unique(x[: min(x.size, 100_000)]).size >= MIN_DISTINCT_FOR_POWER)
+
+
+def predictor_candidates(prep: Prepared, predictor_transforms) -> list[list[tr.Transform]]:
+    spec = predictor_transforms
+    per: list[list[tr.Transform]] = []
+    for j, col in enumerate(prep.predictors):
+        if col in prep.categorical:
+            per.append([tr.Transform("categorical")])
+            continue
+        x = prep.numeric[col]
+        if isinstance(spec, dict) and col in spec:
+            items, explicit, base = spec[col], True, pointer("transforms", "predictors", col)
+        elif isinstance(spec, list):
+            items, explicit, base = spec, False, "/transforms/predictors"
+        else:
+            items, explicit, base = list(DEFAULT_PREDICTOR), False, ""
+        lst: list[tr.Transform] = []
+        for i, item in enumerate(items):
+            for t in _expand_name(item, "predictor"):
+                if bt.is_open(t):
+                    if _power_applies(x):
+                        if not any(bt.is_open(u) for u in lst):
+                            lst.append(t)
+                    elif explicit and isinstance(item, dict):
+                        raise InputError.at(f"{base}/{i}", f"an estimated power of '{col}' needs "
+                                            "values > 0 with at least "
+                                            f"{MIN_DISTINCT_FOR_POWER} distinct values")
+                    continue
+                if t.name in ("box_cox", "yeo_johnson") and t.lam is None:
+                    raise InputError.at(f"{base}/{i}", f"{t.name} of a predictor needs an explicit "
+                                        "'lambda' (for an estimated predictor power use "
+                                        "'power')")
+                if t.name == "categorical":
+                    raise InputError.at(f"{base}/{i}", f"'{col}' is numeric; list it in "
+                                        "'categorical' to treat it as levels")
+                msg = t.domain_problem(x, col, "predictor")
+                if msg:
+                    if explicit:
+                        raise InputError.at(f"{base}/{i}", msg)
+                    continue
+                if t.name == "log" and t.shift is None:
+                    t = tr.fit_transform(t, x)
+                if t not in lst:
+                    lst.append(t)
+        if spec is None and _power_applies(x) and not any(bt.is_open(t) for t in lst):
+            lst.append(bt.ESTIMATED)
+        if not lst:
+            raise InputError.at(pointer("predictors", j), f"no requested transform applies to "
+                                f"predictor '{col}'")
+        per.append(lst)
+    return per
+
+
+# ----------------------------------------------------------------------------- the bank
+@dataclass
+class Space:
+    """Columns of every option in one bank, and how a specification maps onto them."""
+
+    prep: Prepared
+    bank: ColumnBank
+    intercept: bool
+    index: dict = field(default_factory=dict)  # (column, transform) -> bank indices (tuple)
+    bad: dict = field(default_factory=dict)  # (column, transform) -> reason it cannot be used
+    screen_powers: dict = field(default_factory=dict)  # (response key, column) -> power
+
+    def design_of(self, spec: Specification):
+        """(bank columns, names, positions of estimated powers) for ``spec``."""
+        cols: list[int] = []
+        names: list[str] = []
+        dyn: list[int] = []
+        pos = 0
+        if self.intercept:
+            cols.append(self.index[("", "intercept")][0])
+            names.append("intercept")
+            pos = 1
+        for p in spec.predictors:
+            t = p.transform
+            if bt.is_open(t):
+                dyn.append(pos)
+                names.append(f"{p.column}^a")
+                pos += 1
+                continue
+            key = (p.column, t)
+            if key in self.bad:
+                raise CandidateFailure(self.bad[key])
+            idx = self.index[key]
+            cols.extend(idx)
+            if t.name == "categorical":
+                names.extend(self._dummy_names(p.column))
+            else:
+                names.append(t.label(p.column))
+            pos += len(idx)
+        return cols, names, dyn
+
+    def _dummy_names(self, column: str) -> list[str]:
+        lv, ref = categorical_levels(self.prep.categorical[column], None, column, "")
+        return [f"{column}[{level}]" for level in lv if level != ref]
+
+
+def build_space(prep: Prepared, preds: list[list[tr.Transform]], index: FoldIndex,
+                intercept: bool, extra: dict | None = None) -> Space:
+    """Compute every option's column once; ``extra`` adds screening columns {key: values}."""
+    bank = ColumnBank(prep.n, index)
+    space = Space(prep, bank, intercept)
+    if intercept:
+        space.index[("", "intercept")] = (bank.add(("", "intercept"), np.ones(prep.n)),)
+    for col, opts in zip(prep.predictors, preds):
+        if col in prep.categorical:
+            vals = prep.categorical[col]
+            lv, ref = categorical_levels(vals, None, col, "")
+            idx = tuple(bank.add((col, "level", level), (vals == level).astype(float))
+                        for level in lv if level != ref)
+            space.index[(col, tr.Transform("categorical"))] = idx
+            continue
+        x = prep.numeric[col]
+        for t in opts:
+            if bt.is_open(t):
+                continue
+            msg = t.domain_problem(x, col, "predictor")
+            if msg:
+                space.bad[(col, t)] = msg
+                continue
+            with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+                w = t.forward(x)
+            if not np.all(np.isfinite(w)):
+                space.bad[(col, t)] = f"{t.label(col)} is not finite for every row"
+                continue
+            space.index[(col, t)] = (bank.add((col, t), w),)
+    for key, values in (extra or {}).items():
+        space.index[key] = (bank.add(key, values),)
+    bank.freeze()
+    return space
+
+
+def screening_powers(prep: Prepared, preds, responses: list[tr.Transform], intercept: bool,
+                     seed: int) -> tuple[dict, dict]:
+    """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
+
+    For each fixed response scale and each predictor offering an estimated power, the
+    power is estimated with the other predictors untransformed (one power at a time, so a
+    predictor without effect cannot stall the others).  Returns
+    ({(response, column): estimate summary}, {(response, column): power}).
+    """
+    cols = [c for c, o in zip(prep.predictors, preds) if any(bt.is_open(t) for t in o)]
+    if not cols:
+        return {}, {}
+    n = prep.n
+    rows = np.arange(n)
+    if n > BT_SCREEN_ROWS:
+        rows = np.sort(np.random.RandomState(seed).choice(n, BT_SCREEN_ROWS, replace=False))
+    base = {}
+    for c in prep.predictors:
+        if c in prep.categorical:
+            vals = prep.categorical[c][rows]
+            lv, ref = categorical_levels(prep.categorical[c], None, c, "")
+            base[c] = [(vals == level).astype(float) for level in lv if level != ref]
+        else:
+            base[c] = [prep.numeric[c][rows]]
+    info: dict = {}
+    powers: dict = {}
+    for t in responses:
+        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+            continue
+        t0 = tr.fit_transform(t, prep.y)
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            z = t0.forward(prep.y[rows])
+        if not np.all(np.isfinite(z)):
+            continue
+        for c in cols:
+            fixed = ([np.ones(rows.size)] if intercept else []) + \
+                [v for other in prep.predictors if other != c for v in base[other]]
+            Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))
+            try:
+                fit = bt.estimate_powers(z, Xf, prep.numeric[c][rows], boxcox_form=intercept)
+            except CandidateFailure:
+                continue
+            info[(t, c)] = fit.summary(0)
+            powers[(t, c)] = float(fit.powers[0])
+    return info, powers
+
+
+def add_ladder_rungs(prep: Prepared, preds, info: dict) -> list[list[tr.Transform]]:
+    out = [list(o) for o in preds]
+    for (t, col), summ in info.items():
+        lad = summ.get("ladder")
+        if lad is None:
+            continue
+        j = prep.predictors.index(col)
+        rung = tr.ladder_transform(lad)
+        if rung.name == "log":
+            rung = tr.fit_transform(rung, prep.numeric[col])
+        if rung.domain_problem(prep.numeric[col], col, "predictor") is None and rung not in out[j]:
+            out[j].insert(len(out[j]) - 1 if any(bt.is_open(t) for t in out[j]) else len(out[j]), rung)
+    return out
+
+
+def grid_size(resp: list[tr.Transform], preds) -> int:
+    """Candidates in the space: estimated powers only with fixed response scales, at most
+    MAX_ESTIMATED_POWERS of them per candidate."""
+    fixed = [t for t in resp if not (t.name in ("box_cox", "yeo_johnson") and not t.is_fitted)]
+    ways = [1] + [0] * MAX_ESTIMATED_POWERS  # ways[c]: combinations with c estimated powers
+    for o in preds:
+        n_open = sum(1 for t in o if bt.is_open(t))
+        n_fixed = len(o) - n_open
+        ways = [ways[c] * n_fixed + (ways[c - 1] * n_open if c else 0) for c in range(len(ways))]
+    no_est = math.prod(len([t for t in o if not bt.is_open(t)]) for o in preds)
+    return len(fixed) * sum(ways) + (len(resp) - len(fixed)) * no_est
+
+
+def allowed(spec: Specification) -> bool:
+    t = spec.response_transform
+    n_open = sum(1 for p in spec.predictors if bt.is_open(p.transform))
+    if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+        return n_open == 0
+    return n_open <= MAX_ESTIMATED_POWERS
+
+
+def make_spec(prep: Prepared, rt: tr.Transform, ts, intercept: bool) -> Specification:
+    return Specification(prep.response, rt,
+                         tuple(PredictorSpec(c, t) for c, t in zip(prep.predictors, ts)), intercept)

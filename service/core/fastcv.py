@@ -1,0 +1,333 @@
+"""Score one candidate from a column bank: per-fold solutions, back-transforms, original-scale errors.
+
+Per split (repeat r, fold k) the training least-squares solution comes from
+the bank's cross-product matrices (sub-block of G_r - G_rk, see bank.py): the
+columns are scaled to unit length, the scaled matrix's condition number is
+checked (below 1e7 Cholesky keeps about nine digits), and a split that fails
+the check is refitted exactly on its rows by pivoted QR (which also reports
+rank deficiency).  All K solutions of a repeat are solved at once and the
+fitted values of all rows for all folds come from one matrix product.
+
+Back-transforms on the held-out rows: the smeared mean (Duan 1983) for rmse,
+the naive inverse (a median) for mae and mape, by :func:`retransform.smeared_mean`:
+closed forms in O(n) for identity, log and square root; a binomial series with a
+stated error bound, or a tree code over the sorted residuals, for the power-type
+inverses (square, reciprocal, power, Box-Cox); a verified quadrature rule or the
+exact sum for Yeo-Johnson.
+
+Things estimated from the response are estimated inside every training fold:
+a Box-Cox / Yeo-Johnson lambda (profile likelihood on the fold's design,
+warm-started at the all-rows estimate), the shift of a log when the response
+has zeros, and estimated predictor powers (Box-Tidwell on the fold's rows,
+started at the all-rows estimate; the column then differs per fold).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import retransform
+from . import transforms as tr
+from .bank import ColumnBank
+from .boxtidwell import estimate_powers, power_columns
+from .errors import CandidateFailure
+from .fitting import qr_solve
+
+COND_LIMIT = 1e7  # scaled Gram matrices above this are refitted exactly (QR)
+
+
+@dataclass
+class Dynamic:
+    """Design columns whose power is estimated inside every training fold."""
+
+    positions: list[int]  # where they sit in the candidate's design
+    x: np.ndarray  # (n, k) positive predictor values
+    start: np.ndarray  # (k,) all-rows estimate (warm start)
+    boxcox_form: bool = True
+
+
+@dataclass
+class Score:
+    metric: str
+    value: float
+    std_error: float
+    fold_values: np.ndarray
+    summary: dict
+    fold_lambdas: list[float] | None
+    fold_powers: list[list[float]] | None
+    exact_refits: int
+
+
+def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Solve G_k b_k = c_k for a stack of SPD matrices (K, p, p), (K, p).
+
+    Returns (B (K, p), ok (K,)); ``ok`` is False where the column-scaled matrix
+    has a condition number above COND_LIMIT (or a zero column): those rows of B
+    are undefined and must be refitted exactly.
+    """
+    K, p, _ = G.shape
+    d2 = np.diagonal(G, axis1=1, axis2=2)
+    finite = np.all(np.isfinite(G), axis=(1, 2)) & np.all(np.isfinite(c), axis=1)
+    ok = np.all(d2 > 0, axis=1) & finite
+    G = np.where(finite[:, None, None], G, 1.0)
+    c = np.where(finite[:, None], c, 0.0)
+    d2 = np.where(finite[:, None], d2, 1.0)
+    d = np.sqrt(np.where(d2 > 0, d2, 1.0))
+    Gs = G / (d[:, :, None] * d[:, None, :])
+    cs = c / d
+    B = np.full((K, p), np.nan)
+    if not np.any(ok):
+        return B, ok
+    ev = np.linalg.eigvalsh(Gs[ok])
+    good = np.zeros(K, dtype=bool)
+    good[ok] = ev[:, 0] > ev[:, -1] / COND_LIMIT
+    if np.any(good):
+        try:
+            L = np.linalg.cholesky(Gs[good])
+        except np.linalg.LinAlgError:
+            return B, np.zeros(K, dtype=bool)
+        w = np.linalg.solve(L, cs[good][:, :, None])
+        b = np.linalg.solve(np.swapaxes(L, 1, 2), w)[:, :, 0]
+        B[good] = b / d[good]
+    return B, good
+
+
+def _exact_refit(X_tr, z_tr, names, k):
+    """Pivoted-QR refit of one fold (columns first divided by their largest magnitude, so
+    their sums of squares stay finite for values near the float limits)."""
+    m = np.max(np.abs(X_tr), axis=0)
+    m = np.where((m > 0) & np.isfinite(m), m, 1.0)
+    try:
+        coef, _, _ = qr_solve(X_tr / m, z_tr, names, with_condition=False)
+    except CandidateFailure as exc:
+        raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
+    except (np.linalg.LinAlgError, ValueError):
+        raise CandidateFailure(f"fold {k + 1}: the least-squares problem has no finite "
+                               "solution (values too large for floating point)") from None
+    return coef / m
+
+
+def _fold_metric(kind: str, y, mean_pred, median_pred) -> float:
+    """A fold's error; inf (a failed candidate) when it overflows double precision."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        return _fold_metric_raw(kind, y, mean_pred, median_pred)
+
+
+def _fold_metric_raw(kind: str, y, mean_pred, median_pred) -> float:
+    if kind == "rmse":
+        d = y - mean_pred
+        return float(np.sqrt(np.mean(d * d)))
+    if kind == "mae":
+        return float(np.mean(np.abs(y - median_pred)))
+    return float(100.0 * np.mean(np.abs((y - median_pred) / y)))
+
+
+def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
+    return CandidateFailure(
+        f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or overflows for "
+        f"{count} held-out row(s) (prediction outside the scale's range)")
+
+
+class Scorer:
+    """Scores candidates that share one bank, one plan and one response column."""
+
+    def __init__(self, bank: ColumnBank, y: np.ndarray, plan, shift_needed: bool):
+        self.bank = bank
+        self.y = np.asarray(y, dtype=float)
+        self.plan = plan
+        self.shift_needed = shift_needed
+        self._resp: dict = {}
+        self.want_mape = bool(np.all(self.y != 0))
+
+    # ------------------------------------------------------------ response side
+    def _fixed_response(self, t: tr.Transform):
+        """(concrete transform, z) for a response scale that does not change per fold."""
+        if t not in self._resp:
+            t0 = tr.fit_transform(t, self.y, shift_needed=self.shift_needed)
+            z = t0.forward(self.y)
+            self._resp[t] = (t0, z, bool(np.all(np.isfinite(z))))
+        return self._resp[t]
+
+    def per_fold_response(self, t: tr.Transform) -> bool:
+        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+            return True
+        return t.name == "log" and t.shift is None and self.shift_needed
+
+    # ---------------------------------------------------------------- scoring
+    def score(self, t: tr.Transform, cols: list[int], names: list[str] | None = None,
+              dynamic: Dynamic | None = None) -> Score:
+        # Values near the float limits overflow in squares and products; every result is
+        # checked for finiteness below and such a candidate fails with its reason.
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            return self._score(t, cols, names, dynamic)
+
+    def _score(self, t: tr.Transform, cols: list[int], names: list[str] | None,
+               dynamic: Dynamic | None) -> Score:
+        """Cross-validate the candidate (response scale ``t``, bank columns ``cols``).
+
+        With ``dynamic`` the design has extra columns (at ``dynamic.positions``)
+        whose powers are re-estimated on every training fold.  Raises
+        :class:`CandidateFailure` when a fold cannot be fitted or back-transformed.
+        """
+        bank, y, plan = self.bank, self.y, self.plan
+        index = bank.index
+        S = np.asarray(cols, dtype=int)
+        n = y.size
+        p = S.size + (len(dynamic.positions) if dynamic is not None else 0)
+        estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+        per_fold = self.per_fold_response(t)
+        XS = bank.columns(S)
+        near = None
+        if dynamic is not None and estimate_lam:
+            raise CandidateFailure("an estimated predictor power is not combined with an "
+                                   "estimated response lambda")
+        if estimate_lam:
+            try:
+                near = tr.fit_transform(t, y, XS).lam
+            except ValueError as exc:
+                raise CandidateFailure(str(exc)) from None
+        if not per_fold:
+            t0, z, finite = self._fixed_response(t)
+            if not finite:
+                raise CandidateFailure(f"fold 1: {t0.label('y')} overflows on the training rows")
+        fold_vals = np.empty(plan.n_splits)
+        pooled = {"rmse": [], "mae": [], "mape": []}
+        lambdas: list[float] = []
+        powers: list[list[float]] = []
+        refits = 0
+        j = 0
+        K = plan.folds
+        for r in range(plan.repeats):
+            train, test = index.train[r], index.test[r]
+            # ---- per-fold response scale and training solutions
+            ts: list[tr.Transform] = []
+            zs: list[np.ndarray] = []
+            B = np.empty((K, p))
+            designs: list[np.ndarray | None] = [None] * K
+            for k in range(K):
+                if train[k].size <= p:
+                    raise CandidateFailure(f"fold {k + 1}: {train[k].size} training rows cannot "
+                                           f"estimate {p} coefficients")
+            if not per_fold:
+                ts = [t0] * K
+                zs = [z] * K
+            else:
+                for k in range(K):
+                    ytr = y[train[k]]
+                    try:
+                        tk = tr.fit_transform(t, ytr, XS[train[k]], shift_needed=self.shift_needed,
+                                              near=near)
+                    except ValueError as exc:
+                        raise CandidateFailure(f"fold {k + 1}: {exc}") from None
+                    if estimate_lam:
+                        lambdas.append(float(tk.lam))
+                    zk = tk.forward(y)
+                    if not np.all(np.isfinite(zk[train[k]])):
+                        raise CandidateFailure(f"fold {k + 1}: {tk.label('y')} overflows on the "
+                                               "training rows")
+                    ts.append(tk)
+                    zs.append(zk)
+            if dynamic is None:
+                refits += self._solve_static(S, XS, r, zs, per_fold, t, names, B)
+            else:
+                refits += self._solve_dynamic(XS, dynamic, r, zs, names, B, designs, powers)
+            # ---- fitted values of every row under every fold's solution
+            if dynamic is None:
+                ETA = (B @ XS.T).T  # (n, K), each fold's column contiguous
+            else:
+                ETA = np.stack([designs[k] @ B[k] for k in range(K)], axis=1)
+            sq = np.empty(n)
+            ab = np.empty(n)
+            pc = np.empty(n)
+            for k in range(K):
+                te = test[k]
+                tk = ts[k]
+                eta = ETA[te, k]
+                med = retransform.naive(tk, eta)
+                bad = ~np.isfinite(med)
+                if np.any(bad):
+                    raise _undefined(tk, k, int(bad.sum()))
+                e = zs[k][train[k]] - ETA[train[k], k]
+                mean = retransform.smeared_mean(tk, eta, e)
+                bad = ~np.isfinite(mean)
+                if np.any(bad):
+                    raise _undefined(tk, k, int(bad.sum()))
+                yt = y[te]
+                with np.errstate(over="ignore", invalid="ignore"):
+                    sq[te] = (yt - mean) ** 2
+                    ab[te] = np.abs(yt - med)
+                    if self.want_mape:
+                        pc[te] = np.abs((yt - med) / yt)
+                fold_vals[j] = (_fold_metric(plan.metric, yt, mean, med)
+                                if (plan.metric != "mape" or self.want_mape) else math.nan)
+                j += 1
+            with np.errstate(over="ignore", invalid="ignore"):
+                pooled["rmse"].append(math.sqrt(float(np.mean(sq))))
+                pooled["mae"].append(float(np.mean(ab)))
+                if self.want_mape:
+                    pooled["mape"].append(100.0 * float(np.mean(pc)))
+        summary = {k: (float(np.mean(v)) if v else None) for k, v in pooled.items()}
+        value = summary[plan.metric]
+        if value is None or not math.isfinite(value):
+            raise CandidateFailure(f"the {plan.metric} is not defined for this response")
+        if not all(math.isfinite(v) for v in fold_vals):
+            raise CandidateFailure("a fold error is not finite")
+        # SE over the R*K fold values, divided by sqrt(K): repeats do not add independent
+        # information (Bengio & Grandvalet 2004: no unbiased estimator exists; this one is naive).
+        se = float(np.std(fold_vals, ddof=1) / math.sqrt(K)) if fold_vals.size > 1 else 0.0
+        return Score(plan.metric, value, se, fold_vals, summary, lambdas or None, powers or None,
+                     refits)
+
+    # ------------------------------------------------------------- solutions
+    def _solve_static(self, S, XS, r, zs, per_fold, t, names, B) -> int:
+        bank = self.bank
+        train = bank.index.train[r]
+        K = len(train)
+        G = bank.train_grams(S, r)
+        if not per_fold:
+            cf, ctot = bank.cross(t, zs[0])
+            c = ctot[r][S][None, :] - cf[r][:, S]
+        else:
+            c = np.stack([XS[train[k]].T @ zs[k][train[k]] for k in range(K)])
+        Bk, ok = solve_batch(G, c)
+        B[:] = Bk
+        refits = 0
+        for k in np.flatnonzero(~ok):
+            B[k] = _exact_refit(XS[train[k]], zs[k][train[k]], names, k)
+            refits += 1
+        return refits
+
+    def _solve_dynamic(self, XS, dyn: Dynamic, r, zs, names, B, designs, powers) -> int:
+        train = self.bank.index.train[r]
+        K = len(train)
+        p = B.shape[1]
+        fixed_pos = [i for i in range(p) if i not in dyn.positions]
+        logx = np.log(dyn.x)
+        refits = 0
+        for k in range(K):
+            tr_rows = train[k]
+            ztr = zs[k][tr_rows]
+            try:
+                fit = estimate_powers(ztr, XS[tr_rows], dyn.x[tr_rows], start=dyn.start,
+                                      boxcox_form=dyn.boxcox_form)
+            except CandidateFailure as exc:
+                raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
+            powers.append([float(a) for a in fit.powers])
+            W, _ = power_columns(logx, fit.powers, dyn.boxcox_form)
+            X = np.empty((XS.shape[0], p))
+            X[:, fixed_pos] = XS
+            X[:, dyn.positions] = W
+            designs[k] = X
+            Xtr = X[tr_rows]
+            G = (Xtr.T @ Xtr)[None]
+            c = (Xtr.T @ ztr)[None]
+            b, ok = solve_batch(G, c)
+            if ok[0]:
+                B[k] = b[0]
+            else:
+                B[k] = _exact_refit(Xtr, ztr, names, k)
+                refits += 1
+        return refits

@@ -1,0 +1,506 @@
+"""How far to trust a selection: how stable the choice is, and how much the search flatters it.
+
+**Stability.** Rows are resampled with replacement (the bootstrap, Efron 1979) and
+the ranking is decided again on every resample; ``stability`` is the share of
+usable resamples in which the returned rank-1 specification is still first, with
+a Wilson (1927) score interval for that share.  The specification first most
+often otherwise is the runner-up.  Each resample is cross-validated with grouped
+folds: the distinct drawn rows are split into K folds and every copy of a row
+stays in its row's fold, so a row is never trained on and predicted at once.
+To keep the cost bounded, resamples re-score the *contenders* only: the
+candidates whose cross-validated error on all rows is within
+``CONTENDER_SE`` paired standard errors of the lowest (at most
+``MAX_CONTENDERS``, in ranking order, always with the winner).  A candidate
+further away would need its paired difference to shrink by more than two of its
+standard errors to enter the one-standard-error band, so leaving it out changes
+the share by little (design choice, stated in the output).  Estimated predictor
+powers keep their all-rows values in resamples; response lambdas and shifts are
+estimated again inside every fold, as in the search.  Each
+resample applies the search's rule: the paired one-standard-error band with the
+simplicity order (:func:`search.rank`), then the leading band members re-ordered
+by failed regression conditions (the rule of ``diagnose.py``), with the condition
+verdicts assessed once on all rows.
+
+**Optimism.** Nested cross-validation (Stone 1974; Varma & Simon 2006, BMC
+Bioinformatics 7:91, from memory): the outer folds are the search's own
+partition (repeat 0 of its plan when the outer fold count equals the search's);
+inside every outer training part the whole search (:func:`search.run_selection`,
+with its Box-Cox rung, one-standard-error band and condition re-ordering) is run
+again, and the specification it selects is refitted on that training part and
+scored on the held-out outer fold on the original response scale.  The pooled
+held-out error estimates the error of the selection *procedure*; the winner's
+error on the same outer folds is what the search reports for it.  ``gap`` =
+nested minus winner: how much choosing among many candidates flatters the
+winner (Cawley & Talbot 2010, JMLR 11:2079-2107, from memory).  The inner
+search is reduced (``DEFAULT_INNER_FOLDS`` folds, one repeat) to keep the cost
+near two searches; the candidate space is never reduced, because a smaller
+space would understate the optimism.
+
+Cost (``tests/benchmarks/trust.py`` prints it as multiples of the search on the
+same data): stability takes ``resamples * contenders`` candidate scorings on n
+rows (defaults 20 x at most 12); optimism takes ``outer_folds`` searches on
+(K-1)/K of the rows with ``inner_folds`` instead of K folds (about
+``outer_folds * inner_folds / K * (K-1)/K`` searches, 2.4 with the defaults).
+Each part stops at its time limit and then says so (``complete``).
+
+Everything is seeded from the request's seed; the same request gives the same
+numbers whatever the number of worker processes (``mapper``).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from . import transforms as tr
+from .crossval import CVPlan, cross_validate, make_plan
+from .data import Prepared
+from .diagnose import CONDITION_NAMES, conditions_for, failed
+from .errors import BestscaleError, CandidateFailure, InputError
+from .report import fitted_model
+from .search import Scored, SearchOptions, rank, run_selection
+from .spec import Specification, build_design
+
+DEFAULT_RESAMPLES = 20
+MAX_RESAMPLES = 1000
+CONTENDER_SE = 3.0  # contenders: within this many paired standard errors of the lowest error
+MAX_CONTENDERS = 12
+DEFAULT_INNER_FOLDS = 3
+UNSTABLE_BELOW = 0.8  # design choice: below this share the warning says the choice is not settled
+OPTIMISM_WARN_RATIO = 1.05  # design choice: nested error 5% above the winner's gets a warning
+_STABILITY_STREAM = 1  # separates the bootstrap stream from any other use of the seed
+_WILSON_Z = 1.959963984540054  # standard normal 0.975 quantile
+
+
+# --------------------------------------------------------------------------- helpers
+def _open(t: dict, role: str) -> dict:
+    """A transform with what the search estimates from the response left open."""
+    if not t.get("estimated"):
+        return t
+    if role == "response":
+        return {k: v for k, v in t.items() if k not in ("lambda", "shift", "estimated")}
+    if t["name"] == "power" or (t["name"] == "log" and not t.get("shift")):
+        return {"name": "power", "estimated": True}  # an estimated predictor power
+    return t  # a predictor's log shift comes from the column alone
+
+
+def scale_key(spec: dict) -> str:
+    """A specification's scale with parameters estimated from the response left open.
+
+    ``box_cox`` with an estimated lambda, a log whose shift was chosen from the
+    response and an estimated predictor power are the same candidate whatever
+    values a fit produced, so a ranking entry (concrete values) matches the
+    candidate it came from.
+    """
+    resp = _open(dict(spec["response"].get("transform") or {"name": "identity"}), "response")
+    preds = [[p["column"], _open(dict(p.get("transform") or {"name": "identity"}), "predictor")]
+             for p in spec["predictors"]]
+    return json.dumps([spec["response"]["column"], resp, preds, bool(spec.get("intercept", True))],
+                      sort_keys=True)
+
+
+def label(spec: Specification) -> str:
+    """``log(cost) on log(length), age, soil``."""
+    return (spec.response_label() + " on " +
+            ", ".join(p.transform.label(p.column) for p in spec.predictors))
+
+
+def wilson_interval(wins: int, n: int, z: float = _WILSON_Z) -> list[float] | None:
+    """Wilson (1927, JASA 22:209-212) score interval for a binomial share."""
+    if n <= 0:
+        return None
+    p = wins / n
+    den = 1.0 + z * z / n
+    centre = (p + z * z / (2 * n)) / den
+    half = z / den * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n))
+    return [max(0.0, centre - half), min(1.0, centre + half)]
+
+
+def subset(prep: Prepared, rows: np.ndarray) -> Prepared:
+    """The prepared table restricted to ``rows`` (sorted distinct positions)."""
+    rows = np.asarray(rows)
+    order = None
+    if prep.order is not None:
+        keep = np.zeros(prep.n, dtype=bool)
+        keep[rows] = True
+        pos = np.full(prep.n, -1)
+        pos[rows] = np.arange(rows.size)
+        ordered = prep.order[keep[prep.order]]
+        order = pos[ordered]
+    return Prepared(prep.response, prep.y[rows], list(prep.predictors),
+                    {k: v[rows] for k, v in prep.numeric.items()},
+                    {k: v[rows] for k, v in prep.categorical.items()},
+                    prep.row_ids[rows], order, int(rows.size), [], 0, prep.table_columns,
+                    prep.order_values[rows] if prep.order_values is not None else None,
+                    prep.groups[rows] if prep.groups is not None else None)
+
+
+def _pooled(metric: str, values: np.ndarray, sizes: np.ndarray) -> float:
+    """Fold metrics pooled over rows the way :func:`cross_validate` pools them."""
+    w = sizes / sizes.sum()
+    if metric == "rmse":
+        return float(math.sqrt(float(np.sum(w * values * values))))
+    return float(np.sum(w * values))
+
+
+def _find(scored: list[Scored], key: str) -> Scored | None:
+    for s in scored:
+        if scale_key(s.spec.to_dict()) == key:
+            return s
+    return None
+
+
+# --------------------------------------------------------------------------- stability
+@dataclass
+class _StabilityJob:
+    """Everything a resample needs, picklable for worker processes."""
+
+    y: np.ndarray
+    designs: list[tuple[np.ndarray, list[str]]]  # per contender: (X on all rows, names)
+    specs: list[Specification]
+    folds: int
+    metric: str
+    seed: int
+    lead: int  # band members re-ordered by conditions (search: max(3 * top, 15))
+
+
+def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
+    """Band members (contender indices, ranking order) of resample ``b``, or why it failed."""
+    rng = np.random.default_rng([job.seed, _STABILITY_STREAM, b])
+    n = job.y.size
+    idx = rng.integers(0, n, size=n)
+    distinct = np.unique(idx)
+    if distinct.size < 2 * job.folds:
+        return f"only {distinct.size} distinct rows were drawn"
+    # grouped folds over the distinct rows: every copy of a row is held out together
+    fold_of = make_plan(distinct.size, job.folds, 1, int(rng.integers(0, 2**32)),
+                        job.metric).assignments[0]
+    plan = CVPlan(job.folds, 1, job.seed, job.metric, (fold_of[np.searchsorted(distinct, idx)],))
+    yb = job.y[idx]
+    shift = tr.needs_shift(yb)
+    scored: list[Scored] = []
+    where: dict[int, int] = {}
+    for i, (X, names) in enumerate(job.designs):
+        try:
+            cv = cross_validate(X[idx], yb, job.specs[i].response_transform, plan, shift, names)
+        except CandidateFailure:
+            continue
+        s = Scored(job.specs[i], cv)
+        where[id(s)] = i
+        scored.append(s)
+    if not scored:
+        return "no contender could be fitted on the resample"
+    ranked, _ = rank(scored, job.folds)
+    return [where[id(s)] for s, p in ranked if p["within_one_se"]][: job.lead]
+
+
+def _resample_chunk(task) -> list:
+    """Worker: ``(job, resample indices, wall-clock deadline)`` -> one result per index.
+
+    ``None`` marks a resample not run because the deadline passed (``time.time``
+    is shared by the processes of one machine).
+    """
+    job, indices, deadline = task
+    out: list = []
+    for b in indices:
+        if time.time() > deadline:
+            out.append(None)
+            continue
+        out.append(_one_resample(job, b))
+    return out
+
+
+def _chunks(items: list[int], parts: int) -> list[list[int]]:
+    parts = max(1, min(parts, len(items)))
+    size = math.ceil(len(items) / parts)
+    return [items[i:i + size] for i in range(0, len(items), size)]
+
+
+def _verdicts(prep: Prepared, alpha: float):
+    """Failed-condition counts on all rows, computed once per specification."""
+    cache: dict[tuple, int] = {}
+
+    def n_failed(spec: Specification) -> int:
+        if spec.key not in cache:
+            try:
+                _, design, fit, _ = fitted_model(spec, prep)
+                cond, _ = conditions_for(design, fit, prep, fit.fitted + fit.resid, alpha)
+                cache[spec.key] = len(failed(cond))
+            except CandidateFailure:  # the search puts these last as well
+                cache[spec.key] = len(CONDITION_NAMES) + 1
+        return cache[spec.key]
+
+    return n_failed
+
+
+def first_by_rule(band: list, n_failed) -> object:
+    """Rank 1 of a band in ranking order: fewest failed conditions, then band order (diagnose.py)."""
+    return min(band, key=lambda item: (n_failed(item[1]), item[0]))[1]
+
+
+def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner: Scored,
+               resamples: int, deadline: float, mapper, chunks: int) -> dict:
+    ranked, _ = rank(scored, opts.folds)
+    lead = max(3 * opts.top, 15)
+    n_failed = _verdicts(prep, opts.alpha)
+    band_all = [s.spec for s, p in ranked if p["within_one_se"]][:lead]
+    matches = first_by_rule(list(enumerate(band_all)), n_failed).key == winner.spec.key
+
+    contenders = [s for s, p in ranked
+                  if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]]
+    contenders = contenders[:MAX_CONTENDERS]
+    if winner not in contenders:
+        contenders = [winner] + contenders[: MAX_CONTENDERS - 1]
+    cache: dict = {}
+    designs = []
+    specs = [s.spec for s in contenders]
+    for spec in specs:
+        d = build_design(spec, prep, cache)
+        designs.append((d.X, d.names))
+    job = _StabilityJob(prep.y, designs, specs, opts.folds, opts.metric, opts.seed, lead)
+    tasks = [(job, part, deadline) for part in _chunks(list(range(resamples)), chunks)]
+    results = [r for chunk in mapper(_resample_chunk, tasks) for r in chunk]
+
+    firsts: list[int] = []
+    problems: dict[str, int] = {}
+    not_run = 0
+    for r in results:
+        if r is None:
+            not_run += 1
+        elif isinstance(r, str):
+            problems[r] = problems.get(r, 0) + 1
+        else:
+            chosen = first_by_rule([(pos, specs[i]) for pos, i in enumerate(r)], n_failed)
+            firsts.append(specs.index(chosen))
+    usable = len(firsts)
+    w = contenders.index(winner)
+    wins = sum(1 for f in firsts if f == w)
+    counts: dict[int, int] = {}
+    for f in firsts:
+        counts[f] = counts.get(f, 0) + 1
+    order = sorted(counts, key=lambda i: (-counts[i], i))
+    others = [i for i in order if i != w]
+    if others:
+        ru = others[0]
+        runner = {"specification": specs[ru].to_dict(), "label": label(specs[ru]),
+                  "first_share": counts[ru] / usable,
+                  "basis": "first most often among the resamples where rank 1 was not"}
+    else:
+        second = next((s for s, _ in ranked if s is not winner), None)
+        runner = None if second is None else {
+            "specification": second.spec.to_dict(), "label": label(second.spec),
+            "first_share": 0.0,
+            "basis": "never first in a resample; rank 2 of the cross-validated ranking on all rows"}
+    share = wins / usable if usable else None
+    details = {
+        "method": "bootstrap of rows (grouped folds: copies of a row are held out together)",
+        "requested": resamples,
+        "usable": usable,
+        "failed": sum(problems.values()),
+        "not_run": not_run,
+        "complete": not_run == 0,
+        "wins": wins,
+        "interval": wilson_interval(wins, usable),
+        "interval_level": 0.95,
+        "first": [{"label": label(specs[i]), "specification": specs[i].to_dict(),
+                   "share": counts[i] / usable} for i in order],
+        "contenders": len(contenders),
+        "contender_rule": (f"candidates within {CONTENDER_SE:g} paired standard errors of the "
+                           f"lowest cross-validated error on all rows (at most {MAX_CONTENDERS}); "
+                           "the others are taken never to be first"),
+        "folds": opts.folds,
+        "seed": opts.seed,
+        "conditions": "assessed once on all rows; resamples vary the cross-validated part",
+        "held_fixed": ("estimated predictor powers keep their all-rows values in resamples; "
+                       "response lambdas and shifts are estimated again in every fold"),
+        "rule_reproduces_rank_1": matches,
+        "problems": [{"reason": k, "resamples": v} for k, v in sorted(problems.items())],
+    }
+    return {"share": share, "runner_up": runner, "details": details}
+
+
+# --------------------------------------------------------------------------- optimism
+def _inner_search(task) -> dict:
+    """Worker: the whole search on one outer training part; the selected candidate or why not."""
+    sub, opts, service_version, deadline = task
+    left = deadline - time.time()
+    if left <= 0:
+        return {"problem": "not run: the time limit was reached", "not_run": True}
+    try:
+        body = run_selection(sub, replace(opts, time_limit_s=left), service_version)
+    except BestscaleError as exc:
+        return {"problem": exc.detail}
+    key = scale_key(body["ranking"][0]["specification"])
+    chosen = _find(body["_scored"], key)
+    if chosen is None:  # the ranking entry always comes from the scored list
+        return {"problem": "the selected specification was not among the scored candidates"}
+    return {"spec": chosen.spec, "complete": bool(body["search"]["complete"])}
+
+
+def _optimism(prep: Prepared, opts: SearchOptions, winner: Scored, service_version: str,
+              outer_folds: int, inner_folds: int, deadline: float, mapper) -> dict:
+    inner_folds = min(inner_folds, opts.folds)
+    outer = make_plan(prep.n, outer_folds, 1, opts.seed, opts.metric)
+    assign = outer.assignments[0]
+    sizes = np.bincount(assign, minlength=outer_folds).astype(float)
+    metric = opts.metric
+    base = {"metric": metric, "scale": "original", "outer_folds": outer_folds,
+            "inner_folds": inner_folds, "seed": opts.seed}
+    empty = {"selected_cv": None, "nested_cv": None, "gap": None, "gap_std_error": None,
+             "ratio": None, "complete": False}
+    if outer_folds == opts.folds:
+        # the search's own partition (repeat 0 of its plan): rank 1's fold errors as scored,
+        # with everything estimated from the response re-estimated in each training fold
+        win_folds = np.asarray(winner.cv.fold_values[:outer_folds], dtype=float)
+    else:
+        try:
+            d = build_design(winner.spec, prep)
+            win_folds = cross_validate(d.X, prep.y, winner.spec.response_transform, outer,
+                                       tr.needs_shift(prep.y), d.names).fold_values
+        except CandidateFailure as exc:
+            return {**base, **empty,
+                    "problem": f"rank 1 cannot be scored on the outer folds: {exc.reason}"}
+    inner = replace(opts, folds=inner_folds, repeats=1, top=1, incumbent=None)
+    tasks = [(subset(prep, np.flatnonzero(assign != k)), inner, service_version, deadline)
+             for k in range(outer_folds)]
+    picks = list(mapper(_inner_search, tasks))
+
+    evaluated: dict[tuple, np.ndarray | str] = {}
+    rows = []
+    nested = np.full(outer_folds, np.nan)
+    winner_key = scale_key(winner.spec.to_dict())
+    for k, pick in enumerate(picks):
+        entry = {"fold": k + 1, "rows_held_out": int(sizes[k])}
+        if "problem" in pick:
+            rows.append({**entry, "problem": pick["problem"]})
+            continue
+        spec = pick["spec"]
+        shift = tr.needs_shift(prep.y[assign != k])  # the family the inner search used
+        key = (scale_key(spec.to_dict()), shift)
+        if key not in evaluated:
+            try:
+                ds = build_design(spec, prep)
+                evaluated[key] = cross_validate(ds.X, prep.y, spec.response_transform, outer,
+                                                shift, ds.names).fold_values
+            except CandidateFailure as exc:
+                evaluated[key] = exc.reason
+        res = evaluated[key]
+        if isinstance(res, str):
+            rows.append({**entry, "selected": label(spec), "problem":
+                         f"the selected specification cannot predict the held-out fold: {res}"})
+            continue
+        nested[k] = res[k]
+        rows.append({**entry, "selected": label(spec), "selected_specification": spec.to_dict(),
+                     "same_as_winner": key[0] == winner_key, "inner_complete": pick["complete"],
+                     "nested_error": float(res[k]),
+                     "winner_error": float(win_folds[k])})
+    ok = np.isfinite(nested)
+    if not np.any(ok):
+        return {**base, **empty, "folds": rows,
+                "problem": "the search could not be repeated inside any outer training part"}
+    sel = _pooled(metric, win_folds[ok], sizes[ok])
+    nest = _pooled(metric, nested[ok], sizes[ok])
+    diff = nested[ok] - win_folds[ok]
+    gap_se = float(np.std(diff, ddof=1) / math.sqrt(diff.size)) if diff.size > 1 else None
+    return {
+        **base,
+        "selected_cv": sel,
+        "nested_cv": nest,
+        "gap": nest - sel,
+        "gap_std_error": gap_se,
+        "ratio": nest / sel if sel > 0 else None,
+        "outer_folds_used": int(ok.sum()),
+        "winner_selected": sum(1 for r in rows if r.get("same_as_winner")),
+        "complete": bool(np.all(ok)) and all(r.get("inner_complete", False) for r in rows),
+        "folds": rows,
+        "meaning": ("selected_cv is rank 1's error on the outer folds; nested_cv repeats the "
+                    "whole search inside each outer training part and scores what it selects on "
+                    "the held-out fold; gap = nested_cv - selected_cv, positive when the search "
+                    "flatters rank 1"),
+    }
+
+
+# --------------------------------------------------------------------------- entry point
+def assess_trust(prep: Prepared, opts: SearchOptions, winner_spec: dict, service_version: str,
+                 stability: bool, optimism: bool, resamples: int | None = None, *,
+                 selection: dict | None = None, outer_folds: int | None = None,
+                 inner_folds: int = DEFAULT_INNER_FOLDS, time_limit_s: float | None = None,
+                 mapper=map, chunks: int = 1) -> dict:
+    """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
+
+    ``selection`` is the body :func:`run_selection` returned for ``prep`` and
+    ``opts`` (its private ``_scored`` list is reused; without it the search is
+    run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
+    resamples measure stability; ``outer_folds`` (default: the search's folds)
+    and ``inner_folds`` shape the nested cross-validation.  ``time_limit_s``
+    (default: the request's ``opts.time_limit_s``) bounds the whole assessment,
+    shared equally when both parts are asked for.  ``mapper(fn, items)`` may
+    spread the resamples (in ``chunks`` parts) and the outer folds over worker
+    processes; results do not depend on it.
+    """
+    t0 = time.perf_counter()
+    if resamples is None:
+        resamples = DEFAULT_RESAMPLES
+    if not 1 <= resamples <= MAX_RESAMPLES:
+        raise InputError.at("/trust/resamples", f"resamples must be within [1, {MAX_RESAMPLES}], "
+                            f"got {resamples}")
+    if outer_folds is not None and not 2 <= outer_folds <= prep.n // 2:
+        raise InputError.at("/trust/outer_folds", f"outer_folds must be within [2, "
+                            f"{prep.n // 2}] for {prep.n} rows, got {outer_folds}")
+    k_out = opts.folds if outer_folds is None else int(outer_folds)
+    budget = opts.time_limit_s if time_limit_s is None else float(time_limit_s)
+    scored = selection.get("_scored") if selection is not None else None
+    if scored is None:
+        scored = run_selection(prep, replace(opts, top=1, incumbent=None), service_version)["_scored"]
+    winner = _find(scored, scale_key(winner_spec))
+    if winner is None:
+        raise ValueError("winner_spec is not one of the scored candidates")
+    out: dict = {"stability": None, "resamples": None, "runner_up": None, "optimism": None}
+    warnings: list[str] = []
+    name = label(winner.spec)
+    if stability:
+        st = _stability(prep, opts, scored, winner, resamples, time.time() + budget, mapper,
+                        chunks)
+        det = st["details"]
+        out.update(stability=st["share"], resamples=det["usable"], runner_up=st["runner_up"],
+                   stability_details=det)
+        if st["share"] is None:
+            warnings.append("Stability could not be measured: no resample could be ranked.")
+        elif st["share"] < UNSTABLE_BELOW:
+            ru = st["runner_up"]
+            warnings.append(
+                f"The choice is not settled: rank 1 ({name}) was first in {det['wins']} of "
+                f"{det['usable']} bootstrap resamples ({st['share']:.0%})"
+                + (f"; {ru['label']} was first in {ru['first_share']:.0%}" if ru else "")
+                + ". Weigh both before switching a production model.")
+        if not det["rule_reproduces_rank_1"]:
+            warnings.append("On all rows the resampled rule does not pick the returned rank 1 "
+                            "(the condition ordering differs); read the stability with care.")
+        if not det["complete"]:
+            warnings.append(f"Stability used {det['usable']} of {resamples} resamples before the "
+                            "time limit; its interval is wider than asked for.")
+    if optimism:
+        op = _optimism(prep, opts, winner, service_version, k_out, inner_folds,
+                      time.time() + budget, mapper)
+        out["optimism"] = op
+        if op.get("gap") is None:
+            warnings.append("The optimism of the search could not be measured: "
+                            + op.get("problem", "no outer fold could be assessed") + ".")
+        elif op["ratio"] is not None and op["ratio"] > OPTIMISM_WARN_RATIO:
+            warnings.append(
+                f"The search flatters rank 1: its cross-validated {op['metric']} is "
+                f"{op['selected_cv']:.4g}, but repeating the whole search inside each of "
+                f"{op['outer_folds_used']} outer folds gives {op['nested_cv']:.4g} "
+                f"({op['ratio'] - 1:.0%} higher); expect errors nearer the second figure on "
+                "new data.")
+        if op.get("gap") is not None and not op["complete"]:
+            warnings.append("The nested cross-validation is incomplete (an inner search stopped "
+                            "early or an outer fold failed); see trust.optimism.folds.")
+    out["time_limit_s"] = budget
+    out["warnings"] = warnings
+    out["elapsed_s"] = round(time.perf_counter() - t0, 4)
+    return out

@@ -1,0 +1,87 @@
+"""Benchmark (run by hand): time and peak memory of the default search, 100k vs 1M rows.
+
+5 numeric predictors of invented water-main data, default options (every applicable
+transform, estimated predictor powers, screened search past 1000 candidates).  Each size runs
+in a fresh process (so peak memory is that size's): intake from the contract's column lists
+(``prepare``) plus the whole selection in-process, as the batch command runs it.  Prints wall
+and CPU seconds, candidates scored, peak resident memory (``resource.getrusage``), peak traced
+Python allocations (``tracemalloc``), and the 1M/100k time ratio (target <= 12) and the 1M
+peak (target <= 3 GB).
+
+    python tests/benchmarks/rows.py [--sizes 100000,1000000] [--time-limit 600]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.join(HERE, "..", "..")
+
+
+def one(n: int, time_limit: float) -> dict:
+    sys.path.insert(0, ROOT)
+    from tests.benchmarks._common import Timer, pin_blas, water_mains
+
+    pin_blas(1)
+    import resource
+    import tracemalloc
+
+    from service.core.data import prepare
+    from service.core.search import SearchOptions, run_selection
+
+    cols = water_mains(n, 5, seed=1)
+    lists = {k: v.tolist() for k, v in cols.items()}
+    del cols
+    tracemalloc.start()
+    with Timer() as t:
+        prep = prepare({"columns": lists}, "repair_cost", [f"x{j}" for j in range(5)])
+        del lists
+        out = run_selection(prep, SearchOptions(time_limit_s=time_limit, top=3), "bench")
+    traced = tracemalloc.get_traced_memory()[1]
+    rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    s = out["search"]
+    return {"rows": n, "wall_s": t.wall, "cpu_s": t.cpu, "scored": s["candidates_scored"],
+            "failed": s["candidates_failed"], "screened": s["candidates_screened"],
+            "strategy": s["strategy"]["name"], "stopped_by": s["strategy"]["stopped_by"],
+            "peak_rss_gb": rss_kb / 1024 ** 2, "peak_traced_gb": traced / 1024 ** 3,
+            "best_cv": s["best_cv"]["value"], "top": out["ranking"][0]["equation"]}
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--sizes", default="100000,1000000")
+    ap.add_argument("--time-limit", type=float, default=600.0)
+    ap.add_argument("--one", type=int, default=None)
+    args = ap.parse_args()
+    if args.one is not None:
+        print(json.dumps(one(args.one, args.time_limit)))
+        return
+    sys.path.insert(0, ROOT)
+    from tests.benchmarks._common import machine
+
+    print(machine())
+    res = []
+    for n in [int(v) for v in args.sizes.split(",")]:
+        p = subprocess.run([sys.executable, __file__, "--one", str(n), "--time-limit",
+                            str(args.time_limit)], capture_output=True, text=True, check=True)
+        r = json.loads(p.stdout.strip().splitlines()[-1])
+        res.append(r)
+        print(f"{n:>8} rows: {r['wall_s']:.1f} s wall, {r['cpu_s']:.1f} s CPU, {r['scored']} scored "
+              f"({r['failed']} failed, {r['screened']} screened, {r['strategy']}, stopped by "
+              f"{r['stopped_by']}), {r['wall_s'] / max(r['scored'] + r['failed'], 1) * 1e3:.0f} ms "
+              f"per candidate, peak RSS {r['peak_rss_gb']:.2f} GB, peak traced "
+              f"{r['peak_traced_gb']:.2f} GB; best CV {r['best_cv']:.5g}; top {r['top']}")
+    if len(res) == 2:
+        a, b = res
+        print(f"time ratio {b['rows']}/{a['rows']} rows: {b['wall_s'] / a['wall_s']:.2f}x wall, "
+              f"{b['cpu_s'] / a['cpu_s']:.2f}x CPU (target <= 12x); peak at {b['rows']}: "
+              f"{b['peak_rss_gb']:.2f} GB (target <= 3 GB)")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,227 @@
+"""How far to trust a selection: stability under the bootstrap and optimism by nested CV.
+
+Every check is a seeded simulation whose answer is known from its construction;
+the tolerances are derived from binomial or sign-test arguments stated beside them.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from statsmodels.stats.proportion import proportion_confint
+
+from service.core.data import prepare
+from service.core.errors import InputError
+from service.core.search import SearchOptions, run_selection
+from service.core.trust import (OPTIMISM_WARN_RATIO, assess_trust, label, scale_key, subset,
+                                wilson_interval)
+
+
+def _select(prep, opts):
+    body = run_selection(prep, opts, "test")
+    return body, body["ranking"][0]["specification"]
+
+
+def _clear_log_log(n=150, seed=11):
+    """log(y) = 1 + 0.8 log(x) + N(0, 0.15^2), x log-uniform on [1, 100]: one right scale."""
+    rng = np.random.default_rng(seed)
+    x = np.exp(rng.uniform(0.0, math.log(100.0), n))
+    y = np.exp(1.0 + 0.8 * np.log(x) + rng.normal(0.0, 0.15, n))
+    return prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
+
+
+CLEAR_OPTS = SearchOptions(response_transforms=["identity", "log", "sqrt"],
+                           predictor_transforms=["identity", "log", "sqrt"], top=1)
+
+
+def _tied_scales(n=200, seed=5):
+    """y = 2 + (s + r)/2 + e with s, r the standardised sqrt(x) and -1/x of this sample, and
+    e orthogonal to (1, s, r): y on sqrt(x) and y on 1/x have identical fits on all rows."""
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(0.5, 4.0, n)
+    s = np.sqrt(x)
+    r = -1.0 / x
+    s = (s - s.mean()) / s.std()
+    r = (r - r.mean()) / r.std()
+    e = rng.normal(0.0, 0.6, n)
+    basis = np.column_stack([np.ones(n), s, r])
+    e -= basis @ np.linalg.lstsq(basis, e, rcond=None)[0]
+    y = 2.0 + 0.5 * (s + r) + e
+    return prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
+
+
+TIED_OPTS = SearchOptions(response_transforms=["identity"],
+                          predictor_transforms=["sqrt", "reciprocal"], top=1)
+
+
+@pytest.mark.parametrize("wins,n", [(0, 20), (19, 20), (20, 20), (7, 40), (1, 3)])
+def test_wilson_interval_matches_statsmodels(wins, n):
+    # source: Wilson (1927) JASA 22:209-212, as computed by
+    # statsmodels.stats.proportion.proportion_confint(method="wilson")
+    lo, hi = proportion_confint(wins, n, alpha=0.05, method="wilson")
+    assert wilson_interval(wins, n) == pytest.approx([lo, hi], abs=1e-12)
+
+
+def test_subset_keeps_rows_and_their_order():
+    rng = np.random.default_rng(0)
+    cols = {"y": rng.uniform(1, 2, 12).tolist(), "x": rng.uniform(1, 2, 12).tolist(),
+            "t": rng.permutation(12).tolist()}
+    prep = prepare({"columns": cols}, "y", ["x"], order="t")
+    rows = np.array([0, 2, 3, 7, 8, 11])
+    sub = subset(prep, rows)
+    assert sub.y.tolist() == [cols["y"][i] for i in rows]
+    # source: definition of an ordering: the subset's rows sorted by the order column
+    expected = np.argsort([cols["t"][i] for i in rows], kind="stable")
+    assert sub.order.tolist() == expected.tolist()
+
+
+def test_stability_near_one_when_one_scale_is_clearly_right():
+    prep = _clear_log_log()
+    body, winner = _select(prep, CLEAR_OPTS)
+    assert label_of(winner) == "log(y) on log(x)"  # source: the simulation's construction
+    out = assess_trust(prep, CLEAR_OPTS, winner, "test", True, False, resamples=40,
+                       selection=body)
+    # Tolerance: the other scales miss the curvature by many standard errors, so the true
+    # share is ~1; at least 36 of 40 (0.9) allows for the bootstrap's sampling noise (a
+    # true share of 0.99 gives fewer than 36 wins with probability 5e-5: binomial tail).
+    assert out["resamples"] == 40
+    assert out["stability"] >= 0.9
+    det = out["stability_details"]
+    assert det["rule_reproduces_rank_1"] is True
+    assert det["interval"][0] <= out["stability"] <= det["interval"][1]
+    assert out["runner_up"] is not None and out["runner_up"]["first_share"] <= 0.1
+    assert not any("not settled" in w for w in out["warnings"])
+
+
+def test_stability_clearly_below_one_when_two_scales_fit_equally_well():
+    prep = _tied_scales()
+    body, winner = _select(prep, TIED_OPTS)
+    out = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=60,
+                       selection=body)
+    # The two candidates have the same simplicity and identical fits on all rows, so each
+    # bootstrap resample is a near coin flip between them: the share is ~1/2.  Tolerance:
+    # 0.8 is far above it (Bin(60, 1/2) exceeds 48 wins with probability 4e-7, and the
+    # runner-up's 0.2 below 12 wins with the same probability).
+    assert out["stability"] <= 0.8
+    names = {label_of(winner), out["runner_up"]["label"]}
+    assert names == {"y on sqrt(x)", "y on 1/x"}
+    assert out["runner_up"]["first_share"] >= 0.2
+    assert out["runner_up"]["basis"].startswith("first most often")
+    assert math.isclose(out["stability"] + out["runner_up"]["first_share"], 1.0)
+    assert any("not settled" in w for w in out["warnings"])
+
+
+def test_optimism_is_zero_when_the_search_space_holds_one_candidate():
+    prep = _clear_log_log(seed=3)
+    opts = SearchOptions(response_transforms=["log"], predictor_transforms=["log"], top=1)
+    body, winner = _select(prep, opts)
+    out = assess_trust(prep, opts, winner, "test", False, True, selection=body)
+    op = out["optimism"]
+    # With one candidate every inner search selects it, so the nested estimate refits the
+    # same model on the same outer folds: the gap is zero up to rounding (source: the
+    # definition of nested cross-validation, Stone 1974).
+    assert op["outer_folds_used"] == op["outer_folds"] == opts.folds
+    assert op["winner_selected"] == opts.folds
+    assert abs(op["gap"]) <= 1e-12 * op["selected_cv"]
+    assert op["ratio"] == pytest.approx(1.0, abs=1e-12)
+    # the outer folds are the search's own partition: rank 1's error there is its CV error
+    assert op["selected_cv"] == pytest.approx(body["ranking"][0]["cv"]["value"], rel=1e-12)
+
+
+def test_optimism_near_zero_when_the_right_scale_always_wins_inside():
+    prep = _clear_log_log(seed=4)
+    body, winner = _select(prep, CLEAR_OPTS)
+    op = assess_trust(prep, CLEAR_OPTS, winner, "test", False, True, selection=body)["optimism"]
+    # source: the simulation's construction: the right scale is clear on 4/5 of the rows too,
+    # so every inner search picks it and nothing is flattered
+    assert op["winner_selected"] == op["outer_folds"]
+    assert abs(op["ratio"] - 1.0) <= 1e-12
+
+
+def _noise(seed, n=60):
+    """y independent of two heavy-tailed predictors: any fit chases noise."""
+    rng = np.random.default_rng(seed)
+    cols = {f"x{j}": np.exp(rng.normal(0.0, 0.8, n)).tolist() for j in range(2)}
+    cols["y"] = (10.0 + rng.normal(0.0, 1.0, n)).tolist()
+    return prepare({"columns": cols}, "y", ["x0", "x1"])
+
+
+def test_optimism_positive_when_many_candidates_chase_noise():
+    # Nine candidates of equal simplicity (sqrt, 1/x, x^2 of each predictor) and a response
+    # unrelated to them: the winner is the luckiest of nine noisy CV estimates, so its error
+    # understates that of the procedure (Varma & Simon 2006; Cawley & Talbot 2010).
+    opts = SearchOptions(response_transforms=["identity"],
+                         predictor_transforms=["sqrt", "reciprocal", "square"], top=1)
+    gaps = []
+    for seed in range(8):
+        prep = _noise(seed)
+        body, winner = _select(prep, opts)
+        out = assess_trust(prep, opts, winner, "test", False, True, selection=body)
+        op = out["optimism"]
+        assert op["complete"] is True
+        gaps.append(op["gap"])
+        # the warning appears exactly when the nested error is 5% above the winner's
+        flattered = [w for w in out["warnings"] if w.startswith("The search flatters rank 1")]
+        assert len(flattered) == (1 if op["ratio"] > OPTIMISM_WARN_RATIO else 0)
+        if flattered:
+            assert f"{op['nested_cv']:.4g}" in flattered[0]
+            assert f"{op['selected_cv']:.4g}" in flattered[0]
+    gaps = np.array(gaps)
+    # Tolerance: without optimism a gap is as likely negative as positive.  At least 7 of 8
+    # positive has probability 9/256 = 0.035 under that null (one-sided sign test), and the
+    # mean must exceed two of its standard errors (one-sided t, 7 df, p ~ 0.04).
+    assert np.sum(gaps > 0) >= 7
+    assert gaps.mean() > 2.0 * gaps.std(ddof=1) / math.sqrt(gaps.size)
+
+
+def test_trust_without_a_selection_runs_the_search_itself():
+    prep = _tied_scales(n=80)
+    body, winner = _select(prep, TIED_OPTS)
+    a = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=10, selection=body)
+    b = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=10)
+    a.pop("elapsed_s"), b.pop("elapsed_s")
+    assert a == b
+
+
+def test_time_limit_cuts_resamples_and_says_so():
+    prep = _tied_scales(n=80)
+    body, winner = _select(prep, TIED_OPTS)
+    out = assess_trust(prep, TIED_OPTS, winner, "test", True, True, resamples=10,
+                       selection=body, time_limit_s=1e-9)
+    det = out["stability_details"]
+    assert det["not_run"] == 10 and det["usable"] == 0 and det["complete"] is False
+    assert out["stability"] is None
+    assert out["optimism"]["gap"] is None
+    assert any("could not be measured" in w for w in out["warnings"])
+
+
+@pytest.mark.parametrize("kw,ptr", [
+    pytest.param({"resamples": 0}, "/trust/resamples", id="no-resamples"),
+    pytest.param({"resamples": 5000}, "/trust/resamples", id="too-many-resamples"),
+    pytest.param({"outer_folds": 1}, "/trust/outer_folds", id="one-outer-fold"),
+])
+def test_bad_settings_point_at_the_field(kw, ptr):
+    prep = _tied_scales(n=40)
+    body, winner = _select(prep, TIED_OPTS)
+    with pytest.raises(InputError) as err:
+        assess_trust(prep, TIED_OPTS, winner, "test", True, True, selection=body, **kw)
+    assert err.value.problems[0].pointer == ptr
+
+
+def test_scale_key_ignores_values_estimated_from_the_response():
+    concrete = {"response": {"column": "y", "transform": {"name": "box_cox", "lambda": 0.31,
+                                                          "estimated": True}},
+                "predictors": [{"column": "x", "transform": {"name": "log"}}], "intercept": True}
+    open_ = {"response": {"column": "y", "transform": {"name": "box_cox"}},
+             "predictors": [{"column": "x", "transform": {"name": "log"}}], "intercept": True}
+    fixed = {"response": {"column": "y", "transform": {"name": "box_cox", "lambda": 0.31}},
+             "predictors": [{"column": "x", "transform": {"name": "log"}}], "intercept": True}
+    assert scale_key(concrete) == scale_key(open_) != scale_key(fixed)
+
+
+def label_of(spec: dict) -> str:
+    from service.core.spec import Specification
+
+    return label(Specification.from_dict(spec))

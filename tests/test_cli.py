@@ -1,0 +1,130 @@
+"""``python -m service select`` writes the same JSON the API returns for the same input.
+
+The command runs in a subprocess (as a scheduled job runs it) on a CSV and on a Parquet
+file; the API gets the same table through the TestClient.  Invented data: repair costs of
+water mains in three districts, generated on the log scale.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.parquet as pq
+import pytest
+from fastapi.testclient import TestClient
+
+from service.app import app
+from service.cli import select_main
+
+ROOT = Path(__file__).resolve().parents[1]
+PREDICTORS = ["pipe_length_m", "pipe_age_years", "soil"]
+OPTIONS = {"transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+           "validation": {"folds": 4, "seed": 11}, "top": 2,
+           "units": {"pipe_length_m": "metre"}}
+INCUMBENT = {"response": {"column": "repair_cost", "transform": {"name": "identity"}},
+             "predictors": [{"column": "pipe_length_m"}, {"column": "pipe_age_years"},
+                            {"column": "soil"}]}
+_ELAPSED = re.compile(r'"elapsed_s":\s*[-0-9.eE+]+')
+
+
+def _table(n: int = 150) -> dict:
+    rng = np.random.default_rng(8)
+    length = np.round(np.exp(rng.uniform(math.log(5.0), math.log(400.0), n)), 1)
+    age = rng.integers(1, 70, n)
+    soil = rng.choice(["clay", "loam", "sand"], n)
+    district = rng.choice(["coast", "hills", "valley"], n)
+    cost = np.exp(4.2 + 0.7 * np.log(length) + 0.01 * age + np.where(soil == "clay", 0.2, 0.0)
+                  + rng.normal(0.0, 0.2, n))
+    return {"repair_cost": np.round(cost, 2).tolist(), "pipe_length_m": length.tolist(),
+            "pipe_age_years": [int(a) for a in age], "soil": soil.tolist(),
+            "district": district.tolist()}
+
+
+TABLE = _table()
+
+
+def _canonical(text: str) -> str:
+    """The JSON text with timing fields blanked, re-serialised in a fixed key order."""
+    return json.dumps(json.loads(_ELAPSED.sub('"elapsed_s": 0', text)), sort_keys=True)
+
+
+def _command(data: Path, out: Path, *extra: str) -> list[str]:
+    return [sys.executable, "-m", "service", "select", "--data", str(data),
+            "--response", "repair_cost", "--predictors", ",".join(PREDICTORS),
+            "--out", str(out), *extra]
+
+
+@pytest.fixture(scope="module")
+def client():
+    with TestClient(app, raise_server_exceptions=False) as c:
+        yield c
+
+
+def test_cli_output_equals_the_api_for_csv_and_parquet(tmp_path, client):
+    csv_path = tmp_path / "repairs.csv"
+    with csv_path.open("w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(list(TABLE))
+        w.writerows(zip(*TABLE.values()))
+    pq_path = tmp_path / "repairs.parquet"
+    pq.write_table(pa.table(TABLE), pq_path)
+    (tmp_path / "options.json").write_text(json.dumps(OPTIONS))
+    (tmp_path / "incumbent.json").write_text(json.dumps(INCUMBENT))
+    opts = ["--options", str(tmp_path / "options.json")]
+    # both jobs start at once (each pays the interpreter's start-up); the API runs meanwhile
+    job_csv = subprocess.Popen(
+        _command(csv_path, tmp_path / "csv.json", *opts, "--incumbent",
+                 str(tmp_path / "incumbent.json")),
+        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    job_pq = subprocess.Popen(
+        _command(pq_path, tmp_path / "pq.json", *opts, "--group-by", "district"),
+        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+
+    base = {"response": "repair_cost", "predictors": PREDICTORS, **OPTIONS}
+    api_csv = client.post("/v1/selections", json={
+        **base, "data": {"csv": csv_path.read_text()}, "incumbent": INCUMBENT})
+    api_pq = client.post("/v1/selections", json={
+        **base, "data": {"columns": pq.read_table(pq_path).to_pydict()}, "group_by": "district"})
+    assert api_csv.status_code == 200 and api_pq.status_code == 200
+
+    _, err_csv = job_csv.communicate(timeout=120)
+    _, err_pq = job_pq.communicate(timeout=120)
+    assert job_csv.returncode == 0, err_csv
+    assert job_pq.returncode == 0, err_pq
+    cli_csv = (tmp_path / "csv.json").read_text()
+    cli_pq = (tmp_path / "pq.json").read_text()
+    assert _canonical(cli_csv) == _canonical(api_csv.text)
+    assert _canonical(cli_pq) == _canonical(api_pq.text)
+    # the files hold what a job acts on
+    assert json.loads(cli_csv)["incumbent"]["decision"] == "switch"
+    assert sorted(json.loads(cli_pq)["groups"]) == ["coast", "hills", "valley"]
+    # progress for many groups goes to stderr, never into the JSON
+    assert "groups [" in err_pq and "3/3" in err_pq
+
+
+def test_cli_reports_a_bad_column_with_its_pointer(tmp_path, capsys):
+    path = tmp_path / "repairs.csv"
+    path.write_text("repair_cost,pipe_length_m\n10,2\n12,3\n")
+    code = select_main(["--data", str(path), "--response", "repair_cost",
+                        "--predictors", "pipe_length_m,diameter_mm"])
+    assert code == 2
+    err = capsys.readouterr().err
+    assert "/predictors/1" in err and "diameter_mm" in err
+
+
+def test_cli_rejects_an_invalid_option_file(tmp_path, capsys):
+    path = tmp_path / "repairs.csv"
+    path.write_text("repair_cost,pipe_length_m\n10,2\n12,3\n")
+    (tmp_path / "o.json").write_text(json.dumps({"validation": {"folds": 1}}))
+    code = select_main(["--data", str(path), "--response", "repair_cost",
+                        "--predictors", "pipe_length_m", "--options", str(tmp_path / "o.json")])
+    assert code == 2
+    assert "invalid request" in capsys.readouterr().err
