@@ -21,7 +21,7 @@ router = APIRouter(route_class=StrictRoute)
 class PredictionRequest(BaseModel):
     """A model artifact exactly as issued (``ranking[i].model``), rows to predict, a level."""
 
-    model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, strict=True)
 
     model: dict[str, Any] = Field(..., description="a ranking entry's 'model', sent back unchanged")
     data: DataIn = Field(..., description="rows to predict: every predictor column of the model")

@@ -79,6 +79,9 @@ def diagnose_specification(prep: Prepared, spec_dict: dict, opts, service_versio
     spec = resolve_predictor_transforms(spec, prep)
     try:
         design = build_design(spec, prep, ptr_prefix="/specification")
+        from .search import _check_rows
+
+        _check_rows(prep, opts, design.X.shape[1])
         plan = make_plan(prep.n, opts.folds, opts.repeats, opts.seed, opts.metric)
         cv = cross_validate(design.X, prep.y, rt, plan, tr.needs_shift(prep.y), design.names)
         parts = {"cv_value": cv.value, "cv_std_error": cv.std_error,

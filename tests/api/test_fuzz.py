@@ -100,32 +100,7 @@ def fuzz_schema(fuzz_app):
 schema = schemathesis.pytest.from_fixture("fuzz_schema")
 
 
-def _rows(data) -> int | None:
-    if not isinstance(data, dict):
-        return None
-    if isinstance(data.get("columns"), dict):
-        return max((len(v) for v in data["columns"].values() if isinstance(v, list)), default=0)
-    if isinstance(data.get("records"), list):
-        return len(data["records"])
-    if isinstance(data.get("csv"), str):
-        return data["csv"].count("\n")
-    return None
-
-
-def _known_core_bug(case) -> bool:
-    """Requests that hit a reported core bug, left out here and pinned by a strict xfail in
-    test_hostile.py (remove this filter when that test starts passing)."""
-    body = case.body if isinstance(case.body, dict) else {}
-    if case.operation.path == "/v1/diagnostics" and isinstance(body.get("validation"), dict):
-        folds, rows = body["validation"].get("folds"), _rows(body.get("data"))
-        # more folds than rows: an empty test fold reaches numpy (500)
-        return isinstance(folds, int) and rows is not None and folds > rows
-    return False
-
-
 def _fuzz(case) -> None:
-    if _known_core_bug(case):
-        return
     response = case.call(headers=AUTH)
     case.validate_response(response, checks=CHECKS, headers=AUTH)
 

@@ -421,8 +421,6 @@ def test_prediction_rows_with_extreme_values_stay_finite_or_refused(client, issu
 
 # ---------------------------------------------------------------- diagnostics
 
-@pytest.mark.xfail(strict=True, reason="POST /v1/diagnostics does not check folds against the "
-                   "usable rows (service/core/diagnose.py); reported with a fix")
 def test_diagnostics_with_more_folds_than_rows_is_422(client):
     spec = {"response": {"column": "repair_cost", "transform": {"name": "log"}},
             "predictors": [{"column": "pipe_length_m", "transform": {"name": "log"}}]}
