@@ -7,7 +7,6 @@ import json
 import re
 from pathlib import Path
 
-import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 from threadpoolctl import threadpool_limits
@@ -72,11 +71,13 @@ def test_same_request_twice_gives_bit_identical_json(client):
 
 
 @pytest.mark.parametrize("make", [_demo_request, _grouped_request], ids=["demo", "grouped"])
-def test_result_does_not_depend_on_the_pool_size(client, monkeypatch, make):
+def test_result_does_not_depend_on_pool_or_process_counts(client, monkeypatch, make):
+    # BESTSCALE_GROUP_PROCESSES (worker processes for group_by) is read once it is a setting
     body = make()
     out = []
     for size in ("1", "2"):
         monkeypatch.setenv("BESTSCALE_POOL_SIZE", size)
+        monkeypatch.setenv("BESTSCALE_GROUP_PROCESSES", size)
         get_settings.cache_clear()
         try:
             assert get_settings().pool_size == int(size)

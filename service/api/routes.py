@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Request
 from starlette.responses import PlainTextResponse
 
 from ..core import transforms as tr
@@ -92,8 +92,13 @@ def _finish(body: dict, opts: SearchOptions) -> dict:
 
 
 @router.post("/v1/selections", response_class=JSONBody, tags=["selection"],
-             summary="Search transformations, score every candidate, return a ranking")
-def post_selections(req: SelectionRequest):
+             summary="Search transformations, score every candidate, return a ranking",
+             responses={200: {"content": {"application/json": {}, "text/html": {}}}})
+def post_selections(req: SelectionRequest, request: Request):
+    from .reports import report_response, wants_html  # reports imports this module
+
+    if wants_html(request.headers.get("accept", "")):
+        return report_response(req)  # the page of POST /v1/reports
     with compute_slot():
         return JSONBody(run_selection_request(req))
 

@@ -74,7 +74,8 @@ def fitted_model(spec: Specification, prep: Prepared):
 def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict:
     t = concrete.response_transform
     llf_y = fit.llf + t.log_jacobian(prep.y)
-    k = fit.coef.size + 1 + t.n_estimated
+    # sigma, plus every parameter estimated from the response: a lambda, Box-Tidwell powers
+    k = fit.coef.size + 1 + t.n_estimated + sum(p.transform.n_estimated for p in concrete.predictors)
     n = fit.n
     aic = -2.0 * llf_y + 2.0 * k
     bic = -2.0 * llf_y + k * math.log(n)

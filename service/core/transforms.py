@@ -66,7 +66,7 @@ class Transform:
     @property
     def n_estimated(self) -> int:
         """Parameters estimated from the response (count in AIC/BIC)."""
-        return 1 if (self.estimated and self.name in ("box_cox", "yeo_johnson")) else 0
+        return 1 if (self.estimated and self.name in ("box_cox", "yeo_johnson", "power")) else 0
 
     @property
     def simplicity(self) -> int:

@@ -13,32 +13,36 @@ candidates whose cross-validated error on all rows is within
 ``MAX_CONTENDERS``, in ranking order, always with the winner).  A candidate
 further away would need its paired difference to shrink by more than two of its
 standard errors to enter the one-standard-error band, so leaving it out changes
-the share by little (design choice, stated in the output).  Estimated predictor
-powers keep their all-rows values in resamples; response lambdas and shifts are
-estimated again inside every fold, as in the search.  Each
+the share by little (design choice, stated in the output).  Response lambdas
+and shifts are estimated again inside every fold, as in the search; a candidate
+with an estimated predictor power is left out of the resamples unless it is
+rank 1 (the public cross-validation takes a fixed design, so its power would
+keep its all-rows value, which flatters it against its neighbours).  Each
 resample applies the search's rule: the paired one-standard-error band with the
 simplicity order (:func:`search.rank`), then the leading band members re-ordered
 by failed regression conditions (the rule of ``diagnose.py``), with the condition
 verdicts assessed once on all rows.
 
-**Optimism.** Nested cross-validation (Stone 1974; Varma & Simon 2006, BMC
-Bioinformatics 7:91, from memory): the outer folds are the search's own
-partition (repeat 0 of its plan when the outer fold count equals the search's);
-inside every outer training part the whole search (:func:`search.run_selection`,
-with its Box-Cox rung, one-standard-error band and condition re-ordering) is run
-again, and the specification it selects is refitted on that training part and
-scored on the held-out outer fold on the original response scale.  The pooled
-held-out error estimates the error of the selection *procedure*; the winner's
-error on the same outer folds is what the search reports for it.  ``gap`` =
-nested minus winner: how much choosing among many candidates flatters the
-winner (Cawley & Talbot 2010, JMLR 11:2079-2107, from memory).  The inner
-search is reduced (``DEFAULT_INNER_FOLDS`` folds, one repeat) to keep the cost
-near two searches; the candidate space is never reduced, because a smaller
-space would understate the optimism.
+**Optimism.** Nested cross-validation (Stone 1974; Varma & Simon 2006, "Bias in
+error estimation when using cross-validation for model selection", BMC
+Bioinformatics 7:91): the outer folds are the search's own partition (repeat 0 of
+its plan when the outer fold count equals the search's); inside every outer training
+part the whole search (:func:`search.run_selection`, with its Box-Cox rung,
+one-standard-error band and condition re-ordering) is run again, and the
+specification it selects is refitted on that training part and scored on the
+held-out outer fold on the original response scale. The pooled held-out error
+estimates the error of the selection *procedure*; the winner's error on the same
+outer folds is what the search reports for it. ``gap`` = nested minus winner: how
+much choosing among many candidates flatters the winner (Cawley & Talbot 2010, "On
+over-fitting in model selection and subsequent selection bias in performance
+evaluation", JMLR; volume and pages 11:2079-2107 from memory). The inner search is
+reduced (``DEFAULT_INNER_FOLDS`` folds, one repeat) to keep the cost near two
+searches; the candidate space is never reduced, because a smaller space would
+understate the optimism.
 
 Cost (``tests/benchmarks/trust.py`` prints it as multiples of the search on the
 same data): stability takes ``resamples * contenders`` candidate scorings on n
-rows (defaults 20 x at most 12); optimism takes ``outer_folds`` searches on
+rows (defaults 20 x at most 8); optimism takes ``outer_folds`` searches on
 (K-1)/K of the rows with ``inner_folds`` instead of K folds (about
 ``outer_folds * inner_folds / K * (K-1)/K`` searches, 2.4 with the defaults).
 Each part stops at its time limit and then says so (``complete``).
@@ -68,7 +72,7 @@ from .spec import Specification, build_design
 DEFAULT_RESAMPLES = 20
 MAX_RESAMPLES = 1000
 CONTENDER_SE = 3.0  # contenders: within this many paired standard errors of the lowest error
-MAX_CONTENDERS = 12
+MAX_CONTENDERS = 8
 DEFAULT_INNER_FOLDS = 3
 UNSTABLE_BELOW = 0.8  # design choice: below this share the warning says the choice is not settled
 OPTIMISM_WARN_RATIO = 1.05  # design choice: nested error 5% above the winner's gets a warning
@@ -101,6 +105,12 @@ def scale_key(spec: dict) -> str:
              for p in spec["predictors"]]
     return json.dumps([spec["response"]["column"], resp, preds, bool(spec.get("intercept", True))],
                       sort_keys=True)
+
+
+def has_estimated_power(spec: Specification) -> bool:
+    """True when a predictor's power was estimated from the response (Box-Tidwell)."""
+    return any(_open(p["transform"], "predictor") == {"name": "power", "estimated": True}
+               for p in spec.to_dict()["predictors"])
 
 
 def label(spec: Specification) -> str:
@@ -238,7 +248,8 @@ def _verdicts(prep: Prepared, alpha: float):
 
 
 def first_by_rule(band: list, n_failed) -> object:
-    """Rank 1 of a band in ranking order: fewest failed conditions, then band order (diagnose.py)."""
+    """Rank 1 of ``band`` ((position, spec) pairs in ranking order): fewest failed
+    conditions, then band order (the rule of diagnose.py)."""
     return min(band, key=lambda item: (n_failed(item[1]), item[0]))[1]
 
 
@@ -250,8 +261,15 @@ def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner
     band_all = [s.spec for s, p in ranked if p["within_one_se"]][:lead]
     matches = first_by_rule(list(enumerate(band_all)), n_failed).key == winner.spec.key
 
+    # A candidate with an estimated predictor power is re-scored with its all-rows power
+    # (cross_validate takes a fixed design), which flatters it against its neighbours; it
+    # stays out of the resamples unless it is rank 1 itself.
     contenders = [s for s, p in ranked
-                  if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]]
+                  if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
+                  and (s is winner or not has_estimated_power(s.spec))]
+    left_out = sum(1 for s, p in ranked
+                   if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
+                   and s is not winner and has_estimated_power(s.spec))
     contenders = contenders[:MAX_CONTENDERS]
     if winner not in contenders:
         contenders = [winner] + contenders[: MAX_CONTENDERS - 1]
@@ -294,7 +312,7 @@ def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner
         runner = None if second is None else {
             "specification": second.spec.to_dict(), "label": label(second.spec),
             "first_share": 0.0,
-            "basis": "never first in a resample; rank 2 of the cross-validated ranking on all rows"}
+            "basis": "never first in a resample; next in the cross-validated ranking on all rows"}
     share = wins / usable if usable else None
     details = {
         "method": "bootstrap of rows (grouped folds: copies of a row are held out together)",
@@ -315,8 +333,13 @@ def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner
         "folds": opts.folds,
         "seed": opts.seed,
         "conditions": "assessed once on all rows; resamples vary the cross-validated part",
-        "held_fixed": ("estimated predictor powers keep their all-rows values in resamples; "
-                       "response lambdas and shifts are estimated again in every fold"),
+        "estimated_powers_left_out": left_out,
+        "held_fixed": ("response lambdas and shifts are estimated again in every fold; "
+                       "candidates with an estimated predictor power are left out of the "
+                       "resamples (their power would be held at its all-rows value, which "
+                       "flatters them)" + (", except rank 1, whose power is held at its "
+                                           "all-rows value" if has_estimated_power(winner.spec)
+                                           else "")),
         "rule_reproduces_rank_1": matches,
         "problems": [{"reason": k, "resamples": v} for k, v in sorted(problems.items())],
     }
@@ -437,8 +460,8 @@ def assess_trust(prep: Prepared, opts: SearchOptions, winner_spec: dict, service
     run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
     resamples measure stability; ``outer_folds`` (default: the search's folds)
     and ``inner_folds`` shape the nested cross-validation.  ``time_limit_s``
-    (default: the request's ``opts.time_limit_s``) bounds the whole assessment,
-    shared equally when both parts are asked for.  ``mapper(fn, items)`` may
+    (default: the request's ``opts.time_limit_s``) bounds each part; what the
+    limit cut short is stated (``complete``) and warned about.  ``mapper(fn, items)`` may
     spread the resamples (in ``chunks`` parts) and the outer folds over worker
     processes; results do not depend on it.
     """
@@ -455,7 +478,8 @@ def assess_trust(prep: Prepared, opts: SearchOptions, winner_spec: dict, service
     budget = opts.time_limit_s if time_limit_s is None else float(time_limit_s)
     scored = selection.get("_scored") if selection is not None else None
     if scored is None:
-        scored = run_selection(prep, replace(opts, top=1, incumbent=None), service_version)["_scored"]
+        selection = run_selection(prep, replace(opts, top=1, incumbent=None), service_version)
+        scored = selection["_scored"]
     winner = _find(scored, scale_key(winner_spec))
     if winner is None:
         raise ValueError("winner_spec is not one of the scored candidates")

@@ -274,3 +274,23 @@ def test_number_format_keeps_four_significant_digits(v):
     assert float(text.replace(",", "")) == pytest.approx(v, rel=FOUR_DIGITS)
     digits = re.sub(r"e.*$", "", text).replace(",", "").replace("-", "").replace(".", "")
     assert len(digits.strip("0")) <= 4
+
+
+def test_selections_answer_html_when_asked(client):
+    import re
+
+    from service.demo import demo_request
+
+    req = demo_request()
+    req.update(top=1, transforms={"response": ["identity", "log"], "predictors": ["identity", "log"]})
+    page = client.post("/v1/selections", json=req, headers={"accept": "text/html"})
+    assert page.status_code == 200
+    assert page.headers["content-type"].startswith("text/html")
+    same = client.post("/v1/reports", json=req).text
+
+    def drop(t):
+        return re.sub(r"<dt>Search time</dt><dd>[^<]*</dd>", "", t)
+
+    assert drop(page.text) == drop(same)
+    plain = client.post("/v1/selections", json=req)
+    assert plain.headers["content-type"].startswith("application/json")

@@ -15,8 +15,8 @@ from statsmodels.stats.proportion import proportion_confint
 from service.core.data import prepare
 from service.core.errors import InputError
 from service.core.search import SearchOptions, run_selection
-from service.core.trust import (OPTIMISM_WARN_RATIO, assess_trust, label, scale_key, subset,
-                                wilson_interval)
+from service.core.trust import (OPTIMISM_WARN_RATIO, assess_trust, has_estimated_power, label,
+                                scale_key, subset, wilson_interval)
 
 
 def _select(prep, opts):
@@ -225,3 +225,20 @@ def label_of(spec: dict) -> str:
     from service.core.spec import Specification
 
     return label(Specification.from_dict(spec))
+
+
+def test_estimated_predictor_powers_match_their_open_candidate():
+    from service.core import transforms as tr
+    from service.core.spec import PredictorSpec, Specification
+
+    def spec(t: tr.Transform) -> Specification:
+        return Specification("y", tr.Transform("log"), (PredictorSpec("x", t),))
+
+    fitted = spec(tr.Transform("power", exponent=0.37, estimated=True))
+    at_zero = spec(tr.Transform("log", shift=0.0, estimated=True))  # an estimated power of 0
+    fixed = spec(tr.Transform("power", exponent=0.37))
+    shifted = spec(tr.Transform("log", shift=0.5, estimated=True))  # shift from the column
+    keys = [scale_key(s.to_dict()) for s in (fitted, at_zero, fixed, shifted)]
+    assert keys[0] == keys[1] and len(set(keys)) == 3
+    assert [has_estimated_power(s) for s in (fitted, at_zero, fixed, shifted)] == \
+        [True, True, False, False]
