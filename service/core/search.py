@@ -13,7 +13,7 @@ from __future__ import annotations
 import itertools
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -517,6 +517,7 @@ def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry
     from .errors import BestscaleError
 
     t0 = time.perf_counter()
+    deadline = t0 + opts.time_limit_s  # one budget for the whole request, not per group
     parts = split_groups(prep)
     names = list(parts)
 
@@ -524,8 +525,14 @@ def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry
         sub = parts[name]
         if isinstance(sub, BestscaleError):
             return {"problem": _problem_of(sub)}
+        remaining = deadline - time.perf_counter()
+        if remaining <= 0:
+            return {"problem": _problem_of(BudgetError(
+                f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
+                "group was reached; send fewer groups per request or raise limits.time_limit_s"))}
         try:
-            body = run_selection(sub, opts, service_version, entry_hook)
+            body = run_selection(sub, replace(opts, time_limit_s=remaining), service_version,
+                                 entry_hook)
         except BestscaleError as exc:
             return {"problem": _problem_of(exc)}
         body.pop("_scored", None)
@@ -538,6 +545,7 @@ def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry
         "data": prep.data_summary(),
         "search": {"groups": len(names), "groups_failed": failed,
                    "elapsed_s": round(time.perf_counter() - t0, 4), "complete": all(
+                       "problem" not in b or b["problem"]["status"] != 503 for b in bodies) and all(
                        b.get("search", {}).get("complete", True) for b in bodies)},
         "ranking": [],
         "groups": dict(zip(names, bodies)),

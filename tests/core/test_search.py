@@ -112,3 +112,20 @@ def test_linear_data_keep_the_identity_scale():
     spec = out["ranking"][0]["specification"]
     assert spec["response"]["transform"]["name"] == "identity"
     assert spec["predictors"][0]["transform"]["name"] == "identity"
+
+
+def test_grouped_selection_shares_one_time_budget():
+    from service.core.data import prepare as prep_fn
+    from service.core.search import run_grouped
+
+    rng = np.random.default_rng(5)
+    n = 240
+    x = rng.uniform(1, 10, n)
+    y = 2.0 + 0.5 * x + rng.normal(0, 0.3, n)
+    g = [f"g{i % 8}" for i in range(n)]
+    prep = prep_fn({"columns": {"y": y.tolist(), "x": x.tolist(), "g": g}}, "y", ["x"],
+                   group_by="g")
+    out = run_grouped(prep, SearchOptions(time_limit_s=1e-6), "t")
+    assert out["search"]["groups"] == 8
+    assert out["search"]["complete"] is False
+    assert all(b["problem"]["status"] == 503 for b in out["groups"].values())
