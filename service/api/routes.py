@@ -64,6 +64,9 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
                    req.group_by)
     opts = selection_options(req)
     if req.group_by is not None:
+        if req.trust.stability or req.trust.optimism:
+            raise InputError.at("/trust", "trust measures are computed for one selection; send "
+                                "each group as its own request to measure them")
         n_groups = len(set(prep.groups.tolist()))
         limit = get_settings().max_groups
         if n_groups > limit:
@@ -81,7 +84,14 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
         body = run_grouped(prep, opts, __version__, finish=lambda b: _finish(b, opts),
                            mapper=mapper)
         return _finish(body, opts)
-    return _finish(run_selection(prep, opts, __version__), opts)
+    body = run_selection(prep, opts, __version__)
+    if req.trust.stability or req.trust.optimism:
+        from ..core.trust import assess_trust
+
+        body["trust"] = assess_trust(prep, opts, body["ranking"][0]["specification"], __version__,
+                                     req.trust.stability, req.trust.optimism, req.trust.resamples,
+                                     selection=body)
+    return _finish(body, opts)
 
 
 def _finish(body: dict, opts: SearchOptions) -> dict:

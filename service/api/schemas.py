@@ -168,6 +168,17 @@ class TransformsIn(_Strict):
                                         "pipe_age_years": ["identity"]}])
 
 
+class TrustIn(_Strict):
+    """Optional (costly) measures of how much to trust the choice."""
+
+    stability: bool = Field(False, description="share of bootstrap resamples in which the "
+                            "returned rank-1 specification is still ranked first, with the runner-up")
+    optimism: bool = Field(False, description="gap between the winner's CV error and a nested "
+                           "cross-validation estimate of the whole selection procedure's error")
+    resamples: int | None = Field(None, ge=1, le=1000, description="bootstrap resamples for "
+                                  "stability (default 20)")
+
+
 class LimitsIn(_Strict):
     max_candidates: int | None = Field(None, ge=1, description="most candidates to score "
                                        "(the service's limit applies; 422 past it)",
@@ -200,6 +211,8 @@ class SelectionRequest(_Strict):
     top: int = Field(5, ge=1, le=100, description="ranked specifications to return",
                      examples=[5])
     limits: LimitsIn = Field(default_factory=LimitsIn, description="search budget")
+    trust: TrustIn = Field(default_factory=TrustIn, description="optional stability and "
+                           "optimism measures (they repeat the search, so they cost more)")
     intercept: bool = Field(True, description="fit an intercept")
     group_by: ColumnName | None = Field(None, description="run one selection per value of this "
                                         "column", examples=["region"])
