@@ -48,6 +48,15 @@ def checksum(body: dict) -> str:
     return hashlib.sha256(text.encode()).hexdigest()
 
 
+def library_versions() -> dict:
+    """Versions of the numerical libraries that produced the artifact."""
+    import scipy
+    import statsmodels
+
+    return {"numpy": np.__version__, "scipy": scipy.__version__,
+            "statsmodels": statsmodels.__version__}
+
+
 def build_model(spec: Specification, design: Design, fit: OLSFit, prep: Prepared,
                 service_version: str, options: dict | None = None) -> dict:
     kind, res = stored_residuals(fit.resid)
@@ -59,6 +68,7 @@ def build_model(spec: Specification, design: Design, fit: OLSFit, prep: Prepared
     body = {
         "format_version": FORMAT_VERSION,
         "service_version": service_version,
+        "library_versions": library_versions(),
         "specification": spec.to_dict(),
         "terms": list(design.names),
         "coefficients": [float(v) for v in fit.coef],
