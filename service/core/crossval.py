@@ -22,11 +22,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import linalg
 
 from . import transforms as tr
-from .errors import CandidateFailure
-from .fitting import qr_solve
 
 METRICS = ("rmse", "mae", "mape")
 
@@ -77,37 +74,6 @@ class CVResult:
                 "seed": plan.seed, "all_metrics": self.summary,
                 "back_transform": "smeared mean (Duan 1983)" if self.metric == "rmse"
                 else "median (naive inverse)"}
-
-
-def fold_solve(X: np.ndarray, z: np.ndarray, names: list[str] | None = None) -> np.ndarray:
-    """Least squares for one training fold: Cholesky of the column-scaled Gram matrix.
-
-    Falls back to the pivoted QR of :func:`fitting.qr_solve` (which also
-    detects rank deficiency) when the scaled Gram matrix is ill-conditioned,
-    so accuracy never drops below a QR solution's.
-    """
-    n, p = X.shape
-    if n <= p:
-        raise CandidateFailure(f"{n} training rows cannot estimate {p} coefficients")
-    scale = np.sqrt(np.einsum("ij,ij->j", X, X))
-    if np.all(scale > 0):
-        Xs = X / scale
-        G = Xs.T @ Xs
-        ev = np.linalg.eigvalsh(G)
-        if ev[0] > 1e-7 * ev[-1]:  # cond(G) < 1e7: Cholesky keeps ~9 digits
-            c = linalg.cho_factor(G, check_finite=False)
-            return linalg.cho_solve(c, Xs.T @ z, check_finite=False) / scale
-    coef, _, _ = qr_solve(X, z, names, with_condition=False)
-    return coef
-
-
-def _metric(kind: str, y: np.ndarray, mean_pred: np.ndarray, median_pred: np.ndarray) -> float:
-    if kind == "rmse":
-        d = y - mean_pred
-        return float(np.sqrt(np.mean(d * d)))
-    if kind == "mae":
-        return float(np.mean(np.abs(y - median_pred)))
-    return float(100.0 * np.mean(np.abs((y - median_pred) / y)))
 
 
 def cross_validate(X: np.ndarray, y: np.ndarray, response_transform: tr.Transform, plan: CVPlan,
