@@ -148,3 +148,16 @@ def test_a_group_worker_can_assess_trust_for_its_group():
     # source: the simulation's construction: log-log is clearly right in this district
     assert trust["stability"] >= 0.8
     assert "_scored" not in body and all(not k.startswith("_") for k in body["ranking"][0])
+
+
+def test_a_group_reached_after_the_deadline_gets_a_503_problem():
+    import time
+
+    prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
+    opts = SearchOptions(response_transforms=SEARCH["response"],
+                         predictor_transforms=SEARCH["predictors"], top=1)
+    north = split_groups(prep)["north"]
+    late = select_group((north, opts, "test", None, None, time.time() - 1.0))
+    assert late["problem"]["status"] == 503 and "ran out" in late["problem"]["detail"]
+    on_time = select_group((north, opts, "test", None, None, time.time() + 600.0))
+    assert on_time["ranking"][0]["rank"] == 1
