@@ -26,6 +26,9 @@ class Settings(BaseSettings):
     host: str = Field("127.0.0.1", min_length=1, description="address to listen on")
     port: int = Field(8000, ge=1, le=65535, description="port to listen on")
     workers: int = Field(1, ge=1, le=64, description="server processes")
+    group_processes: int = Field(1, ge=1, le=64,
+                                 description="processes that share the groups of one group_by "
+                                             "request (1: in the request's own process)")
     pool_size: int = Field(2, ge=1, le=256,
                            description="compute-bound requests running at once per process; "
                                        "more get 503 with Retry-After")

@@ -74,6 +74,10 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
                                 f"{limit} groups are accepted per request (setting "
                                 "BESTSCALE_MAX_GROUPS); split the job over several requests")
         mapper = map
+        if get_settings().group_processes > 1:
+            from ..core.workers import process_mapper
+
+            mapper = process_mapper(get_settings().group_processes, get_settings().blas_threads)
         if progress is not None:
             progress.total = n_groups
 

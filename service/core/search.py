@@ -516,30 +516,17 @@ def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry
     from .data import split_groups
     from .errors import BestscaleError
 
+    from .workers import select_group
+
     t0 = time.perf_counter()
-    deadline = t0 + opts.time_limit_s  # one budget for the whole request, not per group
+    # one budget for the whole request, not per group (wall clock: shared by worker processes)
+    deadline = time.time() + opts.time_limit_s
     parts = split_groups(prep)
     names = list(parts)
-
-    def one(name: str) -> dict:
-        sub = parts[name]
-        if isinstance(sub, BestscaleError):
-            return {"problem": _problem_of(sub)}
-        remaining = deadline - time.perf_counter()
-        if remaining <= 0:
-            return {"problem": _problem_of(BudgetError(
-                f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
-                "group was reached; send fewer groups per request or raise limits.time_limit_s"))}
-        try:
-            body = run_selection(sub, replace(opts, time_limit_s=remaining), service_version,
-                                 entry_hook)
-        except BestscaleError as exc:
-            return {"problem": _problem_of(exc)}
-        body.pop("_scored", None)
-        body.pop("_plan", None)
-        return finish(body) if finish is not None else body
-
-    bodies = list(mapper(one, names))
+    tasks = [({"problem": _problem_of(sub)} if isinstance(sub, BestscaleError) else sub,
+              opts, service_version, entry_hook, None, deadline) for sub in parts.values()]
+    bodies = [b if ("problem" in b or finish is None) else finish(b)
+              for b in mapper(select_group, tasks)]
     failed = sum(1 for b in bodies if "problem" in b)
     return {
         "data": prep.data_summary(),
