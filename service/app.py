@@ -63,11 +63,12 @@ def create_app() -> FastAPI:
 
     app.include_router(reports_router)
     # middleware: the last added is the outermost
-    app.add_middleware(GuardMiddleware, max_body_bytes=s.max_body_bytes, api_token=s.token())
+    app.add_middleware(GuardMiddleware, max_body_bytes=s.max_body_bytes, api_token=s.token(),
+                       body_timeout_s=s.body_timeout_s)
     if s.cors_origins:
-        from starlette.middleware.cors import CORSMiddleware
+        from .middleware import ProblemCORSMiddleware
 
-        app.add_middleware(CORSMiddleware, allow_origins=s.cors_origins,
+        app.add_middleware(ProblemCORSMiddleware, allow_origins=s.cors_origins,
                            allow_methods=["GET", "POST"], allow_credentials=False,
                            allow_headers=["Authorization", "Content-Type", "Accept", "X-Request-ID"],
                            expose_headers=["X-Request-ID", "Retry-After"], max_age=600)

@@ -21,7 +21,10 @@ import time
 import uuid
 from collections.abc import Callable, Iterable
 
+import anyio
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.middleware.cors import CORSMiddleware
+from starlette.responses import Response
 
 from .api import pool
 from .errors import PROBLEM, internal_error_bytes, problem_bytes
@@ -72,12 +75,26 @@ async def _send_problem(send, status: int, kind: str, title: str, detail: str, r
     await send({"type": "http.response.body", "body": body})
 
 
-class BodyTooLarge(StarletteHTTPException):
-    """Raised while the body streams in; an HTTPException so the framework maps it to 413."""
+class BodyProblem(StarletteHTTPException):
+    """Raised while the body streams in; an HTTPException so the framework maps it."""
+
+    kind, title = "http", "HTTP error"
+
+
+class BodyTooLarge(BodyProblem):
+    kind, title = "too-large", "Request body too large"
 
     def __init__(self, limit: int):
         super().__init__(413, f"the body exceeds the limit of {limit} bytes "
                               "(setting BESTSCALE_MAX_BODY_BYTES)")
+
+
+class BodyTooSlow(BodyProblem):
+    kind, title = "body-timeout", "Request body too slow"
+
+    def __init__(self, seconds: float):
+        super().__init__(408, f"the body did not arrive whole within {seconds:g} s "
+                              "(setting BESTSCALE_BODY_TIMEOUT_S)")
 
 
 class ServiceMiddleware:
@@ -122,10 +139,10 @@ class ServiceMiddleware:
         IN_FLIGHT.inc()
         try:
             await self.app(scope, receive, send_wrapped)
-        except BodyTooLarge as exc:  # read outside a route (the route maps it itself)
+        except BodyProblem as exc:  # read outside a route (the route maps it itself)
             if state["started"]:
                 raise
-            await _send_problem(send_wrapped, 413, "too-large", "Request body too large",
+            await _send_problem(send_wrapped, exc.status_code, exc.kind, exc.title,
                                 str(exc.detail), rid, scope.get("path", ""))
         except Exception as exc:
             errlog.error("unhandled error", exc_info=exc,
@@ -169,9 +186,10 @@ class GuardMiddleware:
     """Token, body size and early back-pressure, before any body byte is read."""
 
     def __init__(self, app, max_body_bytes: int, api_token: str | None = None,
-                 protected_prefix: str = "/v1/"):
+                 protected_prefix: str = "/v1/", body_timeout_s: float = 60.0):
         self.app = app
         self.max_body = max_body_bytes
+        self.body_timeout = body_timeout_s
         self.token = api_token.encode() if api_token else None
         self.prefix = protected_prefix
 
@@ -201,15 +219,58 @@ class GuardMiddleware:
                                        [(k.lower().encode(), v.encode())
                                         for k, v in exc.headers.items()])
         seen = 0
-        limit = self.max_body
+        limit, timeout = self.max_body, self.body_timeout
+        deadline = time.monotonic() + timeout
+        complete = False
 
         async def receive_counted():
-            nonlocal seen
-            message = await receive()
+            # Until the body is whole, each wait is bounded by the request's body deadline
+            # (a slow or stalled uploader gets 408 and frees the connection); afterwards
+            # receive() only waits for the disconnect and is left alone.
+            nonlocal seen, complete
+            if complete:
+                return await receive()
+            remaining = deadline - time.monotonic()
+            if remaining <= 0:
+                raise BodyTooSlow(timeout)
+            try:
+                with anyio.fail_after(remaining):
+                    message = await receive()
+            except TimeoutError:
+                raise BodyTooSlow(timeout) from None
             if message["type"] == "http.request":
                 seen += len(message.get("body", b""))
                 if seen > limit:
                     raise BodyTooLarge(limit)
+                complete = not message.get("more_body", False)
+            else:
+                complete = True
             return message
 
         await self.app(scope, receive_counted, send)
+
+
+class ProblemCORSMiddleware(CORSMiddleware):
+    """CORS for the configured origins; a refused preflight is a 400 problem+json naming
+    what was refused (origin, method or headers) instead of a plain-text line."""
+
+    def preflight_response(self, request_headers) -> Response:
+        response = super().preflight_response(request_headers)
+        if response.status_code != 400:
+            return response
+        refused = response.body.decode("utf-8", "replace").removeprefix("Disallowed CORS ")
+        asked = {"origin": request_headers.get("origin"),
+                 "method": request_headers.get("access-control-request-method"),
+                 "headers": request_headers.get("access-control-request-headers")}
+        parts = [p.strip() for p in refused.split(",") if p.strip()]
+        detail = ("cross-origin request refused: " +
+                  "; ".join(f"{p} {asked[p]!r} is not allowed" if asked.get(p) else
+                            f"{p} is not allowed" for p in parts) +
+                  " (allowed origins are set by BESTSCALE_CORS_ORIGINS)")
+        errors = [{"pointer": "", "detail": f"{p} not allowed"} for p in parts]
+        headers = {k: v for k, v in response.headers.items()
+                   if k.lower() not in ("content-type", "content-length")}
+        return Response(problem_bytes(400, "cors-refused", "Cross-origin request refused",
+                                      detail, REQUEST_ID.get(None), errors=errors),
+                        status_code=400,
+                        headers=headers, media_type=PROBLEM)

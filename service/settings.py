@@ -35,6 +35,9 @@ class Settings(BaseSettings):
     blas_threads: int = Field(1, ge=1, le=64, description="BLAS threads per process")
     max_body_bytes: int = Field(64 * 1024 * 1024, ge=1024, le=2**34,
                                 description="larger request bodies get 413 before they are read")
+    body_timeout_s: float = Field(60.0, gt=0, le=3600,
+                                  description="a request body must arrive whole within this many "
+                                              "seconds of the request's start (408 otherwise)")
     max_rows: int = Field(1_000_000, ge=10, description="table rows accepted (422 past it)")
     max_columns: int = Field(200, ge=2, description="columns a request may use (422 past it)")
     max_candidates: int = Field(20_000, ge=1, description="largest limits.max_candidates accepted")

@@ -12,6 +12,7 @@ from ..core.errors import InputError
 from ..core.search import SearchOptions
 from ..version import __version__
 from .encode import JSONBody
+from ..middleware import note_result
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn, SpecificationIn, ValidationIn, _Strict
@@ -70,6 +71,7 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
                     p.pointer = "/specification" + p.pointer + "/column"
             raise
         entry, plots = diagnose_specification(prep, spec, opts, __version__, req.max_points)
+        note_result({"data": prep.data_summary()})
         fmt = _wanted_image(request)
         if fmt is not None:
             from ..figures import render_figure

@@ -11,6 +11,7 @@ from ..core.errors import InputError
 from ..core.predict import load_model, predict
 from ..settings import get_settings
 from .encode import JSONBody
+from ..middleware import note_result
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn
@@ -48,4 +49,6 @@ def run_prediction_request(req: PredictionRequest) -> dict:
              summary="Mean, median and prediction interval on the original scale from a model")
 def post_predictions(req: PredictionRequest):
     with compute_slot():
-        return JSONBody(run_prediction_request(req))
+        body = run_prediction_request(req)
+    note_result(body)
+    return JSONBody(body)

@@ -8,6 +8,7 @@ from starlette.responses import HTMLResponse
 from ..core.data import prepare
 from ..report_html import CSP, render_report, report_plots
 from .encode import to_jsonable
+from ..middleware import note_result
 from .pool import compute_slot
 from .routes import run_selection_request
 from .routing import StrictRoute
@@ -25,6 +26,7 @@ def selection_report(req: SelectionRequest) -> str:
     refused, exactly as the JSON response), so every number on it is the response's.
     """
     body = to_jsonable(run_selection_request(req))
+    note_result(body)
     # The rows the selection used, again: the plot data needs them and the selection body
     # does not carry them.  Every check already passed in the selection above.
     prep = prepare(req.data.as_dict(), req.response, list(req.predictors),

@@ -10,6 +10,7 @@ from ..core.cautions import selection_cautions
 from ..core.data import prepare
 from ..core.errors import InputError
 from ..core.search import SearchOptions, run_grouped, run_selection
+from ..middleware import note_result
 from ..settings import get_settings
 from ..version import __version__
 from .encode import JSONBody
@@ -114,7 +115,9 @@ def post_selections(req: SelectionRequest, request: Request):
     if wants_html(request.headers.get("accept", "")):
         return report_response(req)  # the page of POST /v1/reports
     with compute_slot():
-        return JSONBody(run_selection_request(req))
+        body = run_selection_request(req)
+    note_result(body)
+    return JSONBody(body)
 
 
 @router.get("/v1/transforms", response_class=JSONBody, tags=["reference"],

@@ -12,28 +12,56 @@ from __future__ import annotations
 
 import io
 
+import anyio
 import orjson
 from fastapi import Request
 from fastapi.routing import APIRoute
+from starlette.requests import ClientDisconnect
 
 from ..errors import ProblemError
+from . import jsonbody
 
 JSON_TYPES = ("application/json",)
 MULTIPART = "multipart/form-data"
 UPLOAD_PATHS = ("/v1/selections", "/v1/reports")
 FILE_PART, OPTIONS_PART = "file", "options"
 PARQUET_MAGIC = b"PAR1"
+THREAD_PARSE_BYTES = 256 * 1024  # larger JSON bodies are parsed in a worker thread
 
 
 class StrictJSONRequest(Request):
+    """A request whose JSON body is parsed by :func:`jsonbody.parse` (strict, duplicate-aware).
+
+    ``StrictRoute`` parses the body before the framework asks for it (off the event loop
+    when it is large) and keeps a decode error to raise here: ``orjson.JSONDecodeError``
+    subclasses ``json.JSONDecodeError``, which the framework maps to a "json_invalid"
+    validation error (HTTP 400 in errors.py).
+    """
+
+    _decode_error: Exception | None = None
+
     async def json(self):
+        if self._decode_error is not None:
+            raise self._decode_error
         if not hasattr(self, "_json"):
-            body = await self.body()
-            # orjson rejects NaN, Infinity and numbers that overflow a double;
-            # orjson.JSONDecodeError subclasses json.JSONDecodeError, which FastAPI maps
-            # to a "json_invalid" validation error (HTTP 400 in errors.py).
-            self._json = orjson.loads(body)
+            self._json = jsonbody.parse(await self.body())
         return self._json
+
+    async def parse_body(self) -> None:
+        try:
+            body = await self.body()
+        except ClientDisconnect:
+            raise ProblemError(400, "malformed-body", "Incomplete request body",
+                               "the client disconnected before the body arrived whole") from None
+        if not body:
+            return
+        try:
+            if len(body) > THREAD_PARSE_BYTES:
+                self._json = await anyio.to_thread.run_sync(jsonbody.parse, body)
+            else:
+                self._json = jsonbody.parse(body)
+        except orjson.JSONDecodeError as exc:
+            self._decode_error = exc
 
 
 class _UploadedRequest(Request):
@@ -127,7 +155,7 @@ async def assemble_upload(request: Request) -> dict:
         else:
             text = await opts.read() if not isinstance(opts, str) else opts.encode()
             try:
-                body = orjson.loads(text)
+                body = jsonbody.parse(text)
             except orjson.JSONDecodeError as exc:
                 raise _problem(400, "malformed-body", "Malformed JSON body", f"/{OPTIONS_PART}",
                                f"the '{OPTIONS_PART}' part is not valid JSON (near byte "
@@ -166,6 +194,9 @@ class StrictRoute(APIRoute):
                                        f"'{ctype or 'no content type'}')",
                                        [{"pointer": "", "detail": "Content-Type must be "
                                          f"application/json{also}"}])
+                strict_request = StrictJSONRequest(request.scope, request.receive)
+                await strict_request.parse_body()
+                return await handler(strict_request)
             return await handler(StrictJSONRequest(request.scope, request.receive))
 
         return strict

@@ -275,6 +275,46 @@ def test_openapi_document_declares_the_bearer_scheme_when_configured(make_app):
     assert "security" not in doc["paths"]["/healthz"]["get"]
 
 
+def test_a_stalled_upload_gets_408_and_frees_the_connection(make_app):
+    app = make_app(body_timeout_s=0.3)
+    sent: list[dict] = []
+    calls = 0
+
+    async def receive():  # one chunk, then the client goes quiet for good
+        nonlocal calls
+        calls += 1
+        if calls == 1:
+            return {"type": "http.request", "body": b'{"response": ', "more_body": True}
+        await asyncio.sleep(3600)
+
+    async def send(message):
+        sent.append(message)
+
+    scope = {"type": "http", "asgi": {"version": "3.0"}, "http_version": "1.1",
+             "method": "POST", "scheme": "http", "path": SEL, "raw_path": SEL.encode(),
+             "query_string": b"", "root_path": "", "client": ("127.0.0.1", 50000),
+             "server": ("127.0.0.1", 8000), "state": {},
+             "headers": [(b"content-type", b"application/json")]}
+
+    async def run():
+        await asyncio.wait_for(app(scope, receive, send), timeout=10)
+
+    asyncio.run(run())
+    start = next(m for m in sent if m["type"] == "http.response.start")
+    body = json.loads(b"".join(m.get("body", b"") for m in sent
+                               if m["type"] == "http.response.body"))
+    # source: RFC 9110 section 15.5.9 (408 Request Timeout)
+    assert start["status"] == 408
+    assert body["type"].endswith(":body-timeout") and "BESTSCALE_BODY_TIMEOUT_S" in body["detail"]
+
+
+def test_a_body_that_arrives_in_time_is_unaffected_by_the_timeout(make_app):
+    app = make_app(body_timeout_s=5)
+    with TestClient(app) as c:
+        r = c.post(SEL, json=_sel())
+    assert r.status_code == 200, r.text[:300]
+
+
 # ---------------------------------------------------------------- CORS
 
 def _preflight(c, origin: str):
@@ -301,6 +341,19 @@ def test_cors_only_for_configured_origins(make_app):
     # a 401 carries CORS headers, so the browser lets the page read the problem
     assert refused.status_code == 401
     assert refused.headers["access-control-allow-origin"] == "https://ops.example"
+
+
+def test_refused_preflight_is_a_problem_naming_what_was_refused(make_app):
+    app = make_app(cors_origins='["https://ops.example"]')
+    with TestClient(app) as c:
+        bad = _preflight(c, "https://evil.example")
+        bad_method = c.options(SEL, headers={"Origin": "https://ops.example",
+                                             "Access-Control-Request-Method": "DELETE"})
+    body = _problem(bad, 400)
+    assert body["type"].endswith(":cors-refused") and "https://evil.example" in body["detail"]
+    assert "BESTSCALE_CORS_ORIGINS" in body["detail"]
+    assert bad.headers.get("x-request-id")
+    assert "'DELETE'" in _problem(bad_method, 400)["detail"]
 
 
 def test_no_cors_headers_without_configured_origins(make_app):
@@ -423,6 +476,31 @@ def test_metrics_count_requests_rejections_and_the_pool(make_app):
     assert "/no-such-path-123" not in text  # unknown paths do not become label values
 
 
+def test_real_routes_log_their_rows_and_candidates(make_app, caplog):
+    app = make_app()
+    with caplog.at_level(logging.INFO, logger="bestscale.access"):
+        with TestClient(app) as c:
+            before = c.get("/metrics").text
+            sel = c.post(SEL, json=_sel(n=40), headers={"X-Request-ID": "real-sel"}).json()
+            model = sel["ranking"][0]["model"]
+            c.post("/v1/predictions", json={"model": model, "data": {"columns": {
+                "x0": [2.0, 3.0, 4.0]}}}, headers={"X-Request-ID": "real-pred"})
+            c.post("/v1/diagnostics", json={"data": {"columns": _table(40)},
+                                            "specification": sel["ranking"][0]["specification"]},
+                   headers={"X-Request-ID": "real-diag"})
+            after = c.get("/metrics").text
+    lines = {rec.fields["request_id"]: rec.fields for rec in caplog.records
+             if rec.name == "bestscale.access"}
+    assert lines["real-sel"]["rows"] == 40
+    assert lines["real-sel"]["candidates"] == sel["search"]["candidates_scored"] == 4
+    assert lines["real-pred"]["rows"] == 3
+    assert lines["real-diag"]["rows"] == 40
+    assert _metric(after, "bestscale_candidates_scored_total") - \
+        _metric(before, "bestscale_candidates_scored_total") == 4
+    assert _metric(after, "bestscale_rows_total", route=SEL) - \
+        _metric(before, "bestscale_rows_total", route=SEL) == 40
+
+
 def test_rows_and_candidates_reach_the_access_line_and_the_metrics(make_app, caplog):
     from service.middleware import note_result
 
@@ -453,3 +531,32 @@ def test_rows_and_candidates_reach_the_access_line_and_the_metrics(make_app, cap
     assert _metric(after, "bestscale_candidates_scored_total") - \
         _metric(before, "bestscale_candidates_scored_total") == 7
     assert _metric(after, "bestscale_rows_total", route="/v1/test-computed") == 7
+
+
+def test_large_json_bodies_are_parsed_off_the_event_loop(make_app, monkeypatch):
+    from service.api import jsonbody, routing
+
+    seen: list[tuple[int, bool]] = []
+    real = jsonbody.parse
+
+    def spy(body):
+        try:
+            asyncio.get_running_loop()
+            on_loop = True
+        except RuntimeError:
+            on_loop = False
+        seen.append((len(body), on_loop))
+        return real(body)
+
+    monkeypatch.setattr(jsonbody, "parse", spy)
+    default_limit = routing.THREAD_PARSE_BYTES
+    app = make_app()
+    small = _sel(n=40)
+    large = _sel(n=40, units={"cost": "u" * 90}, categorical=[])
+    large["data"]["columns"]["pad"] = ["p" * 100] * 40
+    with TestClient(app) as c:
+        c.post(SEL, json=small)
+        monkeypatch.setattr(routing, "THREAD_PARSE_BYTES", 1024)
+        c.post(SEL, json=large)
+    assert seen[0][1] is True and seen[0][0] < default_limit  # small: inline
+    assert seen[1][1] is False and seen[1][0] > 1024  # large: in a worker thread
