@@ -29,7 +29,8 @@ DESCRIPTION = (
     "response scale and by tests of the regression conditions.\n\n"
     "Errors are RFC 9457 `application/problem+json` bodies whose `errors[].pointer` is a JSON "
     "Pointer into the request: 400 malformed JSON (NaN and Infinity are not JSON), 401 missing "
-    "or wrong bearer token (when the service has one), 413 body over the size limit, 415 wrong "
+    "or wrong bearer token (when the service has one), 408 body not arrived whole in time, "
+    "413 body over the size limit, 415 wrong "
     "content type, 422 content that cannot be used, 503 busy (all compute slots in use) or "
     "search budget exhausted, both with `Retry-After`. Every response carries `X-Request-ID` "
     "(the caller's, when it sent a valid one).\n\n"
@@ -61,10 +62,12 @@ _SAME_REQUEST = {"/v1/reports": "selections"}
 
 _PROBLEMS = {
     "400": "malformed body: not JSON, not an object, or NaN/Infinity tokens",
+    "408": "the body did not arrive whole in time (setting BESTSCALE_BODY_TIMEOUT_S)",
     "401": "missing or wrong 'Authorization: Bearer <token>'",
     "413": "the body is larger than the limit (setting BESTSCALE_MAX_BODY_BYTES)",
     "415": "the body is not application/json",
-    "422": "the content cannot be used; errors[].pointer says where",
+    "422": "the content cannot be used (including a key repeated in one JSON object); "
+           "errors[].pointer says where",
     "503": "all compute slots are busy, or no candidate finished within the time limit; "
            "retry after the Retry-After seconds",
     "500": "the service failed; the body carries only the request id (no internals)",
@@ -181,7 +184,7 @@ def _complete_operation(path: str, method: str, op: dict, protected: bool) -> No
         codes.append("401")
         op["security"] = [{"bearer": []}]
     if method in ("post", "put", "patch"):
-        codes += ["400", "413", "415", "422", "503"]
+        codes += ["400", "408", "413", "415", "422", "503"]
     codes.append("500")
     for code in codes:
         responses.setdefault(code, _problem_response(code))
