@@ -89,9 +89,12 @@ def power_columns(logx: np.ndarray, a: np.ndarray, boxcox_form: bool) -> tuple[n
             small = np.abs(u) < 1e-3
             # (x^a log x - w)/a, by its series where the difference cancels
             with np.errstate(over="ignore", invalid="ignore"):
-                direct = (np.exp(u) * L - W[:, j]) / aj
-            series = L * L * (0.5 + u / 3.0 + u * u / 8.0)
-            D[:, j] = np.where(small, series, direct)
+                np.multiply(np.exp(u), L, out=D[:, j])
+                D[:, j] -= W[:, j]
+                D[:, j] /= aj
+            if small.any():
+                us, Ls = u[small], L[small]
+                D[small, j] = Ls * Ls * (0.5 + us / 3.0 + us * us / 8.0)
         else:
             xa = np.exp(aj * L)
             W[:, j] = xa
@@ -119,23 +122,74 @@ def _fit(A: np.ndarray, z: np.ndarray, with_cov: bool = False):
     return coef, cov, float(r @ r)
 
 
-def _rss_at(z, Xf, logx, a, boxcox_form):
-    W, _ = power_columns(logx, a, boxcox_form)
-    if not np.all(np.isfinite(W)):
-        return math.inf, None
-    try:
-        coef, _, rss = _fit(np.hstack([Xf, W]), z)
-    except CandidateFailure:
-        return math.inf, None
-    return rss, coef
+class _Problem:
+    """One estimation problem with the cross-products of its fixed part computed once.
+
+    Every trial power needs the least-squares fit of z on [X_f, W(a)] (and, for the step, on
+    [X_f, W(a), D(a)]).  Their normal equations are assembled from X_f'X_f and X_f'z (once)
+    and X_f'[W D], [W D]'[W D], [W D]'z (per trial: O(n (p_f + 2k) 2k) work, no copy of
+    X_f), solved by Cholesky of the column-scaled matrix when its condition number is below
+    1e7, else by pivoted QR of the assembled design (``_fit``).  The RSS is always computed
+    from the residuals themselves, never from the normal equations.
+    """
+
+    def __init__(self, z, Xf, logx, boxcox_form):
+        self.z, self.Xf, self.logx, self.bc = z, Xf, logx, boxcox_form
+        self.pf, self.k = Xf.shape[1], logx.shape[1]
+        self.Gff = Xf.T @ Xf
+        self.cf = Xf.T @ z
+
+    def trial(self, a):
+        """State at powers ``a``: (rss, coef of [X_f, W]) plus the cross-products, or
+        (inf, None, None) when a column or the fit is not finite."""
+        W, D = power_columns(self.logx, a, self.bc)
+        if not np.all(np.isfinite(W)):
+            return math.inf, None, None
+        WD = np.concatenate([W, D], axis=1)
+        cache = (W, D, self.Xf.T @ WD, WD.T @ WD, WD.T @ self.z)
+        coef = self.solve(cache, with_d=False)
+        if coef is None:
+            return math.inf, None, None
+        r = self.z - self.Xf @ coef[: self.pf] - W @ coef[self.pf:]
+        return float(r @ r), coef, cache
+
+    def solve(self, cache, with_d: bool):
+        W, D, FWD, WDWD, wdz = cache
+        if with_d and not np.all(np.isfinite(D)):
+            return None
+        m = 2 * self.k if with_d else self.k
+        pf = self.pf
+        G = np.empty((pf + m, pf + m))
+        G[:pf, :pf] = self.Gff
+        G[:pf, pf:] = FWD[:, :m]
+        G[pf:, :pf] = FWD[:, :m].T
+        G[pf:, pf:] = WDWD[:m, :m]
+        c = np.concatenate([self.cf, wdz[:m]])
+        d = np.sqrt(np.diag(G))
+        if np.all(d > 0) and np.all(np.isfinite(d)):
+            Gs = G / np.outer(d, d)
+            ev = np.linalg.eigvalsh(Gs)
+            if ev[0] > ev[-1] * 1e-7:
+                try:
+                    L = np.linalg.cholesky(Gs)
+                    return np.linalg.solve(L.T, np.linalg.solve(L, c / d)) / d
+                except np.linalg.LinAlgError:
+                    pass
+        A = np.hstack([self.Xf, W, D] if with_d else [self.Xf, W])
+        try:
+            coef, _, _ = _fit(A, self.z)
+        except CandidateFailure:
+            return None
+        return coef if np.all(np.isfinite(coef)) else None
 
 
 def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndarray | None = None,
-                    boxcox_form: bool = True) -> PowerFit:
+                    boxcox_form: bool = True, with_se: bool = True) -> PowerFit:
     """Box-Tidwell powers of the columns of ``x`` (n, k), all > 0, beside fixed columns ``Xf``.
 
     ``z`` (n,) is the response on its model scale; ``start`` (k,) the first
-    powers (default 1: the untransformed predictors).  Raises
+    powers (default 1: the untransformed predictors).  ``with_se=False`` skips the
+    standard errors (the per-fold re-estimates need only the powers).  Raises
     :class:`CandidateFailure` when neither the iteration nor the profile search
     gives finite powers.
     """
@@ -151,19 +205,18 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
     p = Xf.shape[1] + 2 * k
     if n <= p + 1:
         raise CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
+    prob = _Problem(z, np.asarray(Xf, dtype=float), logx, boxcox_form)
     a = np.ones(k) if start is None else np.clip(np.asarray(start, float).copy(), *POWER_BOUNDS)
-    rss, coef = _rss_at(z, Xf, logx, a, boxcox_form)
+    rss, coef, cache = prob.trial(a)
     converged = False
     it = 0
     if math.isfinite(rss):
         for it in range(1, MAX_ITER + 1):
-            W, D = power_columns(logx, a, boxcox_form)
-            b = coef[Xf.shape[1]:]
-            try:
-                g, _, _ = _fit(np.hstack([Xf, W, D]), z)
-            except CandidateFailure:
+            b = coef[prob.pf:]
+            g = prob.solve(cache, with_d=True)
+            if g is None:
                 break
-            gamma = g[Xf.shape[1] + k:]
+            gamma = g[prob.pf + k:]
             if np.any(np.abs(b) < 1e-300):
                 break
             step = gamma / b
@@ -173,7 +226,7 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
             accepted = False
             for _ in range(30):
                 a_new = np.clip(a + step, *POWER_BOUNDS)
-                rss_new, coef_new = _rss_at(z, Xf, logx, a_new, boxcox_form)
+                rss_new, coef_new, cache_new = prob.trial(a_new)
                 if rss_new <= rss * (1.0 + 1e-12):
                     accepted = True
                     break
@@ -181,7 +234,7 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
             if not accepted:
                 break
             moved = float(np.max(np.abs(a_new - a)))
-            a, rss, coef = a_new, rss_new, coef_new
+            a, rss, coef, cache = a_new, rss_new, coef_new, cache_new
             if moved < TOL:
                 converged = True
                 break
@@ -190,12 +243,12 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
         raise CandidateFailure(f"the Box-Tidwell iteration for {k} powers did not converge in "
                                f"{it} steps; estimate fewer powers at once")
     if not converged:
-        a, rss = _profile_search(z, Xf, logx, a if math.isfinite(rss) else np.ones(k), boxcox_form)
+        a, rss = _profile_search(prob, a if math.isfinite(rss) else np.ones(k))
         method = "profile"
         if not math.isfinite(rss):
             raise CandidateFailure("the predictor power could not be estimated (the residual sum "
                                    "of squares is not finite for any power in [-3, 3])")
-    se = _std_errors(z, Xf, logx, a, boxcox_form, n, p)
+    se = _std_errors(z, Xf, logx, a, boxcox_form, n, p) if with_se else None
     return PowerFit(a, se, converged or method == "profile", it, method, rss)
 
 
@@ -215,11 +268,11 @@ def _std_errors(z, Xf, logx, a, boxcox_form, n, p):
     return np.where(np.isfinite(se), se, np.nan)
 
 
-def _profile_search(z, Xf, logx, a0, boxcox_form):
+def _profile_search(prob: _Problem, a0):
     """Minimise RSS over the powers: a grid then bounded Brent, cycling over the powers."""
     a = np.asarray(a0, float).copy()
     k = a.size
-    best = _rss_at(z, Xf, logx, a, boxcox_form)[0]
+    best = prob.trial(a)[0]
     grid = np.linspace(POWER_BOUNDS[0], POWER_BOUNDS[1], 25)
     for _sweep in range(4):
         before = a.copy()
@@ -227,7 +280,7 @@ def _profile_search(z, Xf, logx, a0, boxcox_form):
             def f(v, j=j):
                 trial = a.copy()
                 trial[j] = v
-                return _rss_at(z, Xf, logx, trial, boxcox_form)[0]
+                return prob.trial(trial)[0]
 
             vals = np.array([f(g) for g in grid])
             if not np.any(np.isfinite(vals)):

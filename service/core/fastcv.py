@@ -312,7 +312,7 @@ class Scorer:
             ztr = zs[k][tr_rows]
             try:
                 fit = estimate_powers(ztr, XS[tr_rows], dyn.x[tr_rows], start=dyn.start,
-                                      boxcox_form=dyn.boxcox_form)
+                                      boxcox_form=dyn.boxcox_form, with_se=False)
             except CandidateFailure as exc:
                 raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
             powers.append([float(a) for a in fit.powers])

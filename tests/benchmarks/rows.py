@@ -4,11 +4,12 @@
 transform, estimated predictor powers, screened search past 1000 candidates).  Each size runs
 in a fresh process (so peak memory is that size's): intake from the contract's column lists
 (``prepare``) plus the whole selection in-process, as the batch command runs it.  Prints wall
-and CPU seconds, candidates scored, peak resident memory (``resource.getrusage``), peak traced
-Python allocations (``tracemalloc``), and the 1M/100k time ratio (target <= 12) and the 1M
+and CPU seconds, candidates scored, peak resident memory (``resource.getrusage``), with ``--trace`` also the peak traced
+Python allocations (``tracemalloc``, which slows allocation-heavy steps, so the timing run
+leaves it off), and the 1M/100k time ratio (target <= 12) and the 1M
 peak (target <= 3 GB).
 
-    python tests/benchmarks/rows.py [--sizes 100000,1000000] [--time-limit 600]
+    python tests/benchmarks/rows.py [--sizes 100000,1000000] [--time-limit 600] [--trace]
 """
 
 from __future__ import annotations
@@ -23,7 +24,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.join(HERE, "..", "..")
 
 
-def one(n: int, time_limit: float) -> dict:
+def one(n: int, time_limit: float, trace: bool = False) -> dict:
     sys.path.insert(0, ROOT)
     from tests.benchmarks._common import Timer, pin_blas, water_mains
 
@@ -37,12 +38,13 @@ def one(n: int, time_limit: float) -> dict:
     cols = water_mains(n, 5, seed=1)
     lists = {k: v.tolist() for k, v in cols.items()}
     del cols
-    tracemalloc.start()
+    if trace:
+        tracemalloc.start()
     with Timer() as t:
         prep = prepare({"columns": lists}, "repair_cost", [f"x{j}" for j in range(5)])
         del lists
         out = run_selection(prep, SearchOptions(time_limit_s=time_limit, top=3), "bench")
-    traced = tracemalloc.get_traced_memory()[1]
+    traced = tracemalloc.get_traced_memory()[1] if trace else float("nan")
     rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     s = out["search"]
     return {"rows": n, "wall_s": t.wall, "cpu_s": t.cpu, "scored": s["candidates_scored"],
@@ -57,9 +59,10 @@ def main():
     ap.add_argument("--sizes", default="100000,1000000")
     ap.add_argument("--time-limit", type=float, default=600.0)
     ap.add_argument("--one", type=int, default=None)
+    ap.add_argument("--trace", action="store_true", help="also trace Python allocations")
     args = ap.parse_args()
     if args.one is not None:
-        print(json.dumps(one(args.one, args.time_limit)))
+        print(json.dumps(one(args.one, args.time_limit, args.trace)))
         return
     sys.path.insert(0, ROOT)
     from tests.benchmarks._common import machine
@@ -68,7 +71,8 @@ def main():
     res = []
     for n in [int(v) for v in args.sizes.split(",")]:
         p = subprocess.run([sys.executable, __file__, "--one", str(n), "--time-limit",
-                            str(args.time_limit)], capture_output=True, text=True, check=True)
+                            str(args.time_limit)] + (["--trace"] if args.trace else []),
+                           capture_output=True, text=True, check=True)
         r = json.loads(p.stdout.strip().splitlines()[-1])
         res.append(r)
         print(f"{n:>8} rows: {r['wall_s']:.1f} s wall, {r['cpu_s']:.1f} s CPU, {r['scored']} scored "
