@@ -46,7 +46,7 @@ def selection_options(req: SelectionRequest) -> SearchOptions:
         predictor_transforms=transform_items(req.transforms.predictors),
         folds=req.validation.folds, repeats=req.validation.repeats, seed=req.validation.seed,
         metric=req.validation.metric, alpha=req.alpha, top=req.top, max_candidates=max_c,
-        time_limit_s=tl, intercept=req.intercept, units=dict(req.units),
+        time_limit_s=tl, intercept=req.intercept, units=dict(req.units), strategy=req.strategy,
         incumbent=req.incumbent.as_dict() if req.incumbent is not None else None)
 
 

@@ -12,6 +12,8 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
+from ..core.strategy import EXHAUSTIVE_LIMIT
+
 TransformName = Literal["identity", "log", "sqrt", "reciprocal", "square", "power", "box_cox",
                         "yeo_johnson", "categorical"]
 ColumnName = Annotated[str, StringConstraints(min_length=1, max_length=256)]
@@ -66,21 +68,26 @@ class TransformIn(_Strict):
                                 "column has zeros", examples=[0.5])
     exponent: float | None = Field(None, ge=-10, le=10,
                                    description="power only: the exponent, non-zero, in "
-                                   "[-10, 10] (use log for 0)", examples=[0.5])
+                                   "[-10, 10] (use log for 0); required in a specification, "
+                                   "omitted in transforms.predictors to estimate the power",
+                                   examples=[0.5])
     lambda_: float | None = Field(None, alias="lambda", ge=-5, le=5,
                                   description="box_cox / yeo_johnson: a fixed lambda in [-5, 5]; "
                                   "omit to estimate it from the data", examples=[0.25])
     reference: str | None = Field(None, min_length=1, max_length=256,
                                   description="categorical only: the baseline level",
                                   examples=["clay"])
-    estimated: bool | None = Field(None, description="set by the service when a parameter was "
-                                   "estimated from data; ignored on input")
+    estimated: bool | None = Field(None, description="in a response: the service estimated "
+                                   "this parameter from the data. In transforms.predictors, "
+                                   "{'name': 'power', 'estimated': true} (no exponent) asks the "
+                                   "search to estimate the predictor's power (Box-Tidwell); "
+                                   "elsewhere it is informational")
 
     @model_validator(mode="after")
     def _params(self):
         if self.name == "power":
-            if self.exponent is None:
-                raise ValueError("power needs an 'exponent'")
+            if self.exponent is None:  # a search option: estimate the power (specifications
+                return self            # refuse it, see _FixedPower)
             if abs(self.exponent) < 1e-12:
                 raise ValueError("power 'exponent' must be non-zero and within [-10, 10] (use log for 0)")
         elif self.exponent is not None:
@@ -106,13 +113,25 @@ class TransformIn(_Strict):
         return d
 
 
-class ResponseSpecIn(_Strict):
+class _FixedPower(_Strict):
+    """A specification's transform must be complete: a power needs its exponent."""
+
+    @model_validator(mode="after")
+    def _fixed(self):
+        if self.transform.name == "power" and self.transform.exponent is None:
+            raise ValueError("a power in a specification needs its 'exponent' (to estimate one "
+                             "from the data, search with transforms.predictors: "
+                             "{'name': 'power', 'estimated': true})")
+        return self
+
+
+class ResponseSpecIn(_FixedPower):
     column: ColumnName = Field(..., description="the response column", examples=["repair_cost"])
     transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"),
                                    description="its transform; default identity")
 
 
-class PredictorSpecIn(_Strict):
+class PredictorSpecIn(_FixedPower):
     column: ColumnName = Field(..., description="a predictor column", examples=["pipe_length_m"])
     transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"),
                                    description="its transform; default identity ('categorical' "
@@ -219,6 +238,12 @@ class SelectionRequest(_Strict):
     units: dict[str, Annotated[str, StringConstraints(max_length=100)]] = Field(
         default_factory=dict, description="{column: unit text} used in interpretation sentences",
         examples=[{"pipe_length_m": "metre", "repair_cost": "currency units"}])
+    strategy: Literal["auto", "exhaustive", "screened"] = Field(
+        "auto", description="how the candidate space is searched: 'exhaustive' scores every "
+        "candidate, simplest first, until a limit; 'screened' screens each predictor's scale on "
+        "the model scale and descends over combinations (see search.strategy in the response); "
+        f"'auto' is exhaustive up to {EXHAUSTIVE_LIMIT} candidates and screened past that",
+        examples=["auto"])
     incumbent: SpecificationIn | None = Field(
         None, description="the specification in use (e.g. last month's), scored on the same "
         "folds; the response tells whether to keep it")

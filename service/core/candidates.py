@@ -18,6 +18,7 @@ Every transformed column is computed once into a :class:`bank.ColumnBank`.
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -214,12 +215,14 @@ def build_space(prep: Prepared, preds: list[list[tr.Transform]], index: FoldInde
 
 
 def screening_powers(prep: Prepared, preds, responses: list[tr.Transform], intercept: bool,
-                     seed: int) -> tuple[dict, dict]:
+                     seed: int, deadline: float | None = None) -> tuple[dict, dict]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
     For each fixed response scale and each predictor offering an estimated power, the
     power is estimated with the other predictors untransformed (one power at a time, so a
-    predictor without effect cannot stall the others).  Returns
+    predictor without effect cannot stall the others).  Past ``deadline`` (a
+    ``time.perf_counter`` value) no further power is estimated: the search then runs
+    without the missing estimates' ladder rungs.  Returns
     ({(response, column): estimate summary}, {(response, column): power}).
     """
     cols = [c for c, o in zip(prep.predictors, preds) if any(bt.is_open(t) for t in o)]
@@ -248,6 +251,8 @@ def screening_powers(prep: Prepared, preds, responses: list[tr.Transform], inter
         if not np.all(np.isfinite(z)):
             continue
         for c in cols:
+            if deadline is not None and time.perf_counter() > deadline:
+                return info, powers
             fixed = ([np.ones(rows.size)] if intercept else []) + \
                 [v for other in prep.predictors if other != c for v in base[other]]
             Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))

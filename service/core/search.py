@@ -156,7 +156,8 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
     # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
     box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings)
     # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
-    bt_info, bt_powers = cand.screening_powers(prep, preds, resp, opts.intercept, opts.seed)
+    bt_info, bt_powers = cand.screening_powers(prep, preds, resp, opts.intercept, opts.seed,
+                                               deadline)
     preds = cand.add_ladder_rungs(prep, preds, bt_info)
     total = cand.grid_size(resp, preds)
     strategy = opts.strategy if opts.strategy != "auto" else (

@@ -130,3 +130,24 @@ def test_power_is_estimated_again_in_every_training_fold():
     assert len({round(a[0], 8) for a in s.cv.fold_powers}) > 1
     rep = out["search"]["predictor_powers"]["x"][0]
     assert rep["power"] == pytest.approx(-0.3, abs=0.05)  # source: simulation truth
+
+
+def test_screening_powers_stop_at_the_deadline():
+    import time
+
+    from service.core import candidates as cand
+    from service.core import transforms as tr
+
+    rng = np.random.default_rng(9)
+    n = 300
+    cols = {f"x{j}": rng.uniform(1, 9, n) for j in range(3)}
+    y = 2.0 + sum(np.sqrt(v) for v in cols.values()) + rng.normal(0, 0.1, n)
+    prep = prepare({"columns": {"y": y.tolist(), **{k: v.tolist() for k, v in cols.items()}}},
+                   "y", list(cols))
+    preds = cand.predictor_candidates(prep, None)
+    resp = [tr.Transform("identity"), tr.Transform("log")]
+    info, powers = cand.screening_powers(prep, preds, resp, True, 0)
+    assert len(powers) == 6  # 2 response scales x 3 predictors, without a deadline
+    info, powers = cand.screening_powers(prep, preds, resp, True, 0,
+                                         deadline=time.perf_counter() - 1.0)
+    assert info == {} and powers == {}  # past the deadline nothing more is estimated
