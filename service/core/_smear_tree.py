@@ -88,9 +88,8 @@ def _binom_row(p: float) -> np.ndarray:
     return out
 
 
-_PASCAL = np.array([[math.comb(t, a) for a in range(J)] for t in range(J)], dtype=float)
-_TMA = np.maximum(np.arange(J)[:, None] - np.arange(J)[None, :], 0)
-_LOWER = (np.arange(J)[:, None] >= np.arange(J)[None, :]).astype(float)
+_FACT = np.array([float(math.factorial(t)) for t in range(J)])
+_INV_FACT = 1.0 / _FACT
 
 
 def _powers(x: np.ndarray, k: int) -> np.ndarray:
@@ -127,8 +126,11 @@ class _Tree:
         block = pad.reshape(size, LEAF)
         u = (block - c[:, None]) / rs[:, None]
         u = np.where(np.isnan(u), 0.0, u)
-        member = ~np.isnan(block)
-        M = np.einsum("blt,bl->bt", _powers(u, J), member.astype(float))
+        member = (~np.isnan(block)).astype(float)
+        M = np.empty((size, J))
+        for a in range(0, size, 2048):  # in chunks: the powers of 2048 leaves fit in cache
+            M[a:a + 2048] = np.einsum("blt,bl->bt", _powers(u[a:a + 2048], J),
+                                      member[a:a + 2048])
         self.cen, self.rad, self.cnt, self.mom = [c], [r], [cnt], [M]
         self.lo, self.hi = [lo], [hi]
         for _ in range(1, levels):
@@ -152,14 +154,20 @@ class _Tree:
 
     @staticmethod
     def _shift(M, c, r, c1, r1s, cnt):
-        """Scaled moments about a child's centre moved to the parent's centre and scale."""
+        """Scaled moments about a child's centre moved to the parent's centre and scale.
+
+        M1_t = sum_a C(t, a) d^(t-a) q^a M_a, computed as the truncated convolution
+        M1_t / t! = sum_k (d^k / k!) (q^(t-k) M_(t-k) / (t-k)!), one (blocks, J) update per
+        k, so no (blocks, J, J) array is formed.
+        """
         d = (c - c1) / r1s  # |d| + r/r1 <= 1
         q = np.where(r > 0, r / r1s, 0.0)
-        dp = _powers(d, J)
-        qp = _powers(q, J)
-        # M1_t = sum_a C(t, a) d^(t-a) q^a M_a
-        T = _PASCAL[None] * dp[:, _TMA] * _LOWER[None]
-        out = np.einsum("bta,ba->bt", T, M * qp)
+        N = M * _powers(q, J) * _INV_FACT[None, :]
+        dk = _powers(d, J) * _INV_FACT[None, :]
+        out = N * dk[:, :1]
+        for k in range(1, J):
+            out[:, k:] += dk[:, k:k + 1] * N[:, :J - k]
+        out *= _FACT[None, :]
         return np.where(cnt[:, None] > 0, out, 0.0)
 
 
