@@ -151,3 +151,16 @@ def test_screening_powers_stop_at_the_deadline():
     info, powers = cand.screening_powers(prep, preds, resp, True, 0,
                                          deadline=time.perf_counter() - 1.0)
     assert info == {} and powers == {}  # past the deadline nothing more is estimated
+
+
+def test_started_profile_fallback_finds_the_brute_force_argmin_near_the_start(monkeypatch):
+    x, w, z = _data(0.3, seed=21)
+    Xf = np.column_stack([np.ones(x.size), w])
+    monkeypatch.setattr(bt, "MAX_ITER", 0)  # force the fallback
+    fit = bt.estimate_powers(z, Xf, x, start=np.array([0.1]), with_se=False)
+    assert fit.method == "profile" and fit.std_errors is None
+    grid = np.round(np.arange(-0.4, 0.6 + 1e-9, 1e-3), 6)  # start +- LOCAL_HALF_WIDTH
+    rss = np.array([_rss(z, Xf, x, a) for a in grid])
+    # source: brute-force profile of the residual sum of squares over the exponent, step 1e-3
+    assert fit.powers[0] == pytest.approx(grid[int(np.argmin(rss))], abs=1e-3)
+    assert fit.rss <= rss.min() * (1 + 1e-12)
