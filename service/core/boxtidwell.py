@@ -44,6 +44,7 @@ POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
 MAX_ITER = 30
 PROFILE_MAX_POWERS = 2  # the profile fallback searches at most this many powers at once
+CHUNK_ROWS = 32_768  # rows per block of a trial's passes (cache-sized)
 LOCAL_HALF_WIDTH = 0.5  # a started (per-fold) profile fallback searches start +- this
 _Z975 = 1.959963984540054  # standard normal 0.975 quantile
 
@@ -148,17 +149,38 @@ class _Problem:
 
     def trial(self, a):
         """State at powers ``a``: (rss, coef of [X_f, W]) plus the cross-products, or
-        (inf, None, None) when a column or the fit is not finite."""
-        W, D = power_columns(self.logx, a, self.bc)
-        if not np.all(np.isfinite(W)):
-            return math.inf, None, None
-        WD = np.concatenate([W, D], axis=1)
-        cache = (W, D, self.Xf.T @ WD, WD.T @ WD, WD.T @ self.z)
+        (inf, None, None) when a column or the fit is not finite.
+
+        Rows are taken in blocks of ``CHUNK_ROWS`` so that a block's columns, cross-products
+        and residuals are computed while it is in cache (two passes over the data in all).
+        """
+        n, k, pf = self.z.size, self.k, self.pf
+        W = np.empty((n, k))
+        D = np.empty((n, k))
+        FWD = np.zeros((pf, 2 * k))
+        WDWD = np.zeros((2 * k, 2 * k))
+        wdz = np.zeros(2 * k)
+        for s in range(0, n, CHUNK_ROWS):
+            sl = slice(s, s + CHUNK_ROWS)
+            Wc, Dc = power_columns(self.logx[sl], a, self.bc)
+            if not np.all(np.isfinite(Wc)):
+                return math.inf, None, None
+            W[sl], D[sl] = Wc, Dc
+            WDc = np.concatenate([Wc, Dc], axis=1)
+            FWD += self.Xf[sl].T @ WDc
+            WDWD += WDc.T @ WDc
+            wdz += WDc.T @ self.z[sl]
+        cache = (W, D, FWD, WDWD, wdz)
         coef = self.solve(cache, with_d=False)
         if coef is None:
             return math.inf, None, None
-        r = self.z - self.Xf @ coef[: self.pf] - W @ coef[self.pf:]
-        return float(r @ r), coef, cache
+        cf, cw = coef[:pf], coef[pf:]
+        rss = 0.0
+        for s in range(0, n, CHUNK_ROWS):
+            sl = slice(s, s + CHUNK_ROWS)
+            r = self.z[sl] - self.Xf[sl] @ cf - W[sl] @ cw
+            rss += float(r @ r)
+        return rss, coef, cache
 
     def solve(self, cache, with_d: bool):
         W, D, FWD, WDWD, wdz = cache
