@@ -13,7 +13,9 @@ a <- a + gamma / b (a Gauss-Newton step for the least-squares problem in
 (b, a)).  Steps that raise the residual sum of squares are halved (damping),
 powers stay in [-3, 3], and the iteration stops when every step is below 1e-6 (also
 when halving the step below 1e-6 gives no decrease: the point is then stationary to
-that accuracy).
+that accuracy), or when two steps in a row lower the RSS by at most 1e-12 of itself (the
+relative-reduction test of nonlinear least squares, e.g. MINPACK's ftol, here far
+stricter; it ends the drift of a power the data barely determine).
 
 Standard error: at the estimate the coefficient on dw/da estimates b (a - a_hat),
 so se(a_hat) = se(gamma) / |b|, the usual nonlinear least-squares standard
@@ -44,6 +46,7 @@ from .fitting import qr_solve
 
 POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
+FTOL = 1e-12  # relative RSS decrease below which two steps in a row count as converged
 MAX_ITER = 30
 PROFILE_MAX_POWERS = 2  # the profile fallback searches at most this many powers at once
 CHUNK_ROWS = 32_768  # rows per block of a trial's passes (cache-sized)
@@ -241,6 +244,7 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
     rss, coef, cache = prob.trial(a)
     converged = False
     it = 0
+    flat = 0  # consecutive steps that lowered the RSS by at most FTOL (relative)
     if math.isfinite(rss):
         for it in range(1, MAX_ITER + 1):
             b = coef[prob.pf:]
@@ -268,8 +272,9 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
                 converged = bool(float(np.max(np.abs(step))) < TOL)
                 break
             moved = float(np.max(np.abs(a_new - a)))
+            flat = flat + 1 if rss - rss_new <= FTOL * rss else 0
             a, rss, coef, cache = a_new, rss_new, coef_new, cache_new
-            if moved < TOL:
+            if moved < TOL or flat >= 2:
                 converged = True
                 break
     method = "box_tidwell"
