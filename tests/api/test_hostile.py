@@ -15,20 +15,12 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from fastapi.testclient import TestClient
 
-from service.app import app
 
 EXAMPLES = Path(__file__).resolve().parents[2] / "openapi_examples"
 SEL, PRED, DIAG = "/v1/selections", "/v1/predictions", "/v1/diagnostics"
 PROBLEM = "application/problem+json"
 FAST = {"response": ["identity", "log"], "predictors": ["identity", "log"]}
-
-
-@pytest.fixture(scope="module")
-def client():
-    with TestClient(app, raise_server_exceptions=False) as c:
-        yield c
 
 
 def _strict_json(text: str):

@@ -5,17 +5,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from fastapi.testclient import TestClient
 
-from service.app import app
 
 SEL, DIAG = "/v1/selections", "/v1/diagnostics"
-
-
-@pytest.fixture(scope="module")
-def client():
-    with TestClient(app, raise_server_exceptions=False) as c:
-        yield c
 
 
 def _power_table(n: int = 300, seed: int = 11) -> dict:

@@ -28,12 +28,6 @@ URL = "/v1/selections"
 PROBLEM = "application/problem+json"
 
 
-@pytest.fixture(scope="module")
-def client():
-    with TestClient(app, raise_server_exceptions=False) as c:
-        yield c
-
-
 def _columns(n: int = 12, seed: int = 0) -> dict:
     rng = np.random.default_rng(seed)
     x = rng.uniform(1, 10, n)

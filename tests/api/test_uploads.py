@@ -13,19 +13,9 @@ import json
 import numpy as np
 import pyarrow as pa
 import pyarrow.parquet as pq
-import pytest
-from fastapi.testclient import TestClient
-
-from service.app import app
 
 URL = "/v1/selections"
 PROBLEM = "application/problem+json"
-
-
-@pytest.fixture(scope="module")
-def client():
-    with TestClient(app, raise_server_exceptions=False) as c:
-        yield c
 
 
 def _table(n: int = 60, seed: int = 4) -> dict:
