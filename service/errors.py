@@ -161,12 +161,12 @@ def install(app: FastAPI) -> None:
 
     @app.exception_handler(StarletteHTTPException)
     async def _http(request: Request, exc: StarletteHTTPException):
-        titles = {404: "Not found", 405: "Method not allowed", 408: "Request body too slow",
-                  413: "Request body too large"}
-        kinds = {404: "not-found", 405: "method-not-allowed", 408: "body-timeout",
-                 413: "too-large"}
-        return problem(exc.status_code, kinds.get(exc.status_code, "http"),
-                       titles.get(exc.status_code, "HTTP error"),
+        # the body problems of service.middleware carry their own kind and title
+        titles = {404: "Not found", 405: "Method not allowed", 413: "Request body too large"}
+        kinds = {404: "not-found", 405: "method-not-allowed", 413: "too-large"}
+        return problem(exc.status_code,
+                       getattr(exc, "kind", None) or kinds.get(exc.status_code, "http"),
+                       getattr(exc, "title", None) or titles.get(exc.status_code, "HTTP error"),
                        str(exc.detail), headers=getattr(exc, "headers", None), request=request)
 
     @app.exception_handler(Exception)

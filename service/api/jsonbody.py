@@ -99,15 +99,11 @@ def _find_repeated(value, path: str = "") -> tuple[str, str] | None:
     return None
 
 
-def _refuse_constant(name: str):  # not reached: orjson has refused these tokens already
-    raise ValueError(f"{name} is not JSON")
-
-
 def duplicate_key(body: bytes, value) -> tuple[str, str] | None:
     """(pointer of the object, repeated key) of the first object repeating a key, or None."""
     if _key_ends(body) == _kept_keys(value):
         return None
-    exact = json.loads(body, object_pairs_hook=_pairs, parse_constant=_refuse_constant)
+    exact = json.loads(body, object_pairs_hook=_pairs)  # orjson already refused NaN/Infinity
     return _find_repeated(exact)
 
 

@@ -42,7 +42,7 @@ from scipy import optimize, stats
 
 from . import transforms as tr
 from .errors import CandidateFailure
-from .fitting import qr_solve
+from .fitting import qr_solve, solve_batch
 
 POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
@@ -115,20 +115,18 @@ def power_columns(logx: np.ndarray, a: np.ndarray, boxcox_form: bool) -> tuple[n
     return W, D
 
 
+def _normal_solve(G: np.ndarray, c: np.ndarray) -> np.ndarray | None:
+    """The solution of G b = c from the column-scaled Cholesky factor, or None when the
+    scaled G is ill-conditioned (``fitting.solve_batch``, condition limit 1e7)."""
+    B, ok = solve_batch(G[None], c[None])
+    return B[0] if ok[0] else None
+
+
 def _fit(A: np.ndarray, z: np.ndarray, with_cov: bool = False):
     """Least squares (coef, (A'A)^-1 or None, RSS): normal equations of the column-scaled
     matrix when its condition number is below 1e7, else pivoted QR."""
     cov = None
-    coef = None
-    if not with_cov:
-        d = np.sqrt(np.einsum("ij,ij->j", A, A))
-        if np.all(d > 0) and np.all(np.isfinite(d)):
-            As = A / d
-            G = As.T @ As
-            ev = np.linalg.eigvalsh(G)
-            if ev[0] > ev[-1] * 1e-7:
-                L = np.linalg.cholesky(G)
-                coef = np.linalg.solve(L.T, np.linalg.solve(L, As.T @ z)) / d
+    coef = None if with_cov else _normal_solve(A.T @ A, A.T @ z)
     if coef is None:
         coef, cov, _ = qr_solve(A, z, with_condition=False)
     r = z - A @ coef
@@ -198,20 +196,12 @@ class _Problem:
         G[:pf, pf:] = FWD[:, :m]
         G[pf:, :pf] = FWD[:, :m].T
         G[pf:, pf:] = WDWD[:m, :m]
-        c = np.concatenate([self.cf, wdz[:m]])
-        d = np.sqrt(np.diag(G))
-        if np.all(d > 0) and np.all(np.isfinite(d)):
-            Gs = G / np.outer(d, d)
-            ev = np.linalg.eigvalsh(Gs)
-            if ev[0] > ev[-1] * 1e-7:
-                try:
-                    L = np.linalg.cholesky(Gs)
-                    return np.linalg.solve(L.T, np.linalg.solve(L, c / d)) / d
-                except np.linalg.LinAlgError:
-                    pass
+        coef = _normal_solve(G, np.concatenate([self.cf, wdz[:m]]))
+        if coef is not None:
+            return coef
         A = np.hstack([self.Xf, W, D] if with_d else [self.Xf, W])
         try:
-            coef, _, _ = _fit(A, self.z)
+            coef, _, _ = qr_solve(A, self.z, with_condition=False)
         except CandidateFailure:
             return None
         return coef if np.all(np.isfinite(coef)) else None

@@ -34,9 +34,7 @@ from . import transforms as tr
 from .bank import ColumnBank
 from .boxtidwell import estimate_powers, power_columns
 from .errors import CandidateFailure
-from .fitting import qr_solve
-
-COND_LIMIT = 1e7  # scaled Gram matrices above this are refitted exactly (QR)
+from .fitting import qr_solve, solve_batch
 
 
 @dataclass
@@ -59,40 +57,6 @@ class Score:
     fold_lambdas: list[float] | None
     fold_powers: list[list[float]] | None
     exact_refits: int
-
-
-def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Solve G_k b_k = c_k for a stack of SPD matrices (K, p, p), (K, p).
-
-    Returns (B (K, p), ok (K,)); ``ok`` is False where the column-scaled matrix
-    has a condition number above COND_LIMIT (or a zero column): those rows of B
-    are undefined and must be refitted exactly.
-    """
-    K, p, _ = G.shape
-    d2 = np.diagonal(G, axis1=1, axis2=2)
-    finite = np.all(np.isfinite(G), axis=(1, 2)) & np.all(np.isfinite(c), axis=1)
-    ok = np.all(d2 > 0, axis=1) & finite
-    G = np.where(finite[:, None, None], G, 1.0)
-    c = np.where(finite[:, None], c, 0.0)
-    d2 = np.where(finite[:, None], d2, 1.0)
-    d = np.sqrt(np.where(d2 > 0, d2, 1.0))
-    Gs = G / (d[:, :, None] * d[:, None, :])
-    cs = c / d
-    B = np.full((K, p), np.nan)
-    if not np.any(ok):
-        return B, ok
-    ev = np.linalg.eigvalsh(Gs[ok])
-    good = np.zeros(K, dtype=bool)
-    good[ok] = ev[:, 0] > ev[:, -1] / COND_LIMIT
-    if np.any(good):
-        try:
-            L = np.linalg.cholesky(Gs[good])
-        except np.linalg.LinAlgError:
-            return B, np.zeros(K, dtype=bool)
-        w = np.linalg.solve(L, cs[good][:, :, None])
-        b = np.linalg.solve(np.swapaxes(L, 1, 2), w)[:, :, 0]
-        B[good] = b / d[good]
-    return B, good
 
 
 def _exact_refit(X_tr, z_tr, names, k):

@@ -41,7 +41,7 @@ import numpy as np
 from . import boxtidwell as bt
 from . import transforms as tr
 from .candidates import MAX_ESTIMATED_POWERS, Space, allowed, make_spec
-from .fastcv import solve_batch
+from .fitting import solve_batch
 
 EXHAUSTIVE_LIMIT = 1000
 BEAM = 3
