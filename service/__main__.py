@@ -55,8 +55,9 @@ def serve(argv: list[str]) -> int:
     ap = argparse.ArgumentParser(prog="python -m service", description="Run the Bestscale API.")
     ap.add_argument("--host", default=s.host, help=f"address to listen on (default {s.host})")
     ap.add_argument("--port", type=int, default=s.port, help=f"port (default {s.port})")
-    ap.add_argument("--workers", type=int, default=s.workers,
-                    help=f"server processes (default {s.workers})")
+    ap.add_argument(
+        "--workers", type=int, default=s.workers, help=f"server processes (default {s.workers})"
+    )
     args = ap.parse_args(argv)
     if not 1 <= args.workers <= 64:
         ap.error("--workers must be between 1 and 64")
@@ -67,9 +68,17 @@ def serve(argv: list[str]) -> int:
     from .logs import logging_config
 
     try:
-        uvicorn.run("service.app:app", host=args.host, port=args.port, workers=args.workers,
-                    log_level=s.log_level, log_config=logging_config(s.log_level),
-                    access_log=False, server_header=False, timeout_graceful_shutdown=30)
+        uvicorn.run(
+            "service.app:app",
+            host=args.host,
+            port=args.port,
+            workers=args.workers,
+            log_level=s.log_level,
+            log_config=logging_config(s.log_level),
+            access_log=False,
+            server_header=False,
+            timeout_graceful_shutdown=30,
+        )
     finally:
         if ours and directory:
             shutil.rmtree(directory, ignore_errors=True)

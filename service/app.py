@@ -32,7 +32,9 @@ def route_paths(routes) -> set[str]:
     for r in routes:
         if getattr(r, "path", None):
             out.add(r.path)
-        inner = getattr(getattr(r, "original_router", None), "routes", None) or getattr(r, "routes", None)
+        inner = getattr(getattr(r, "original_router", None), "routes", None) or getattr(
+            r, "routes", None
+        )
         if inner:
             out |= route_paths(inner)
     return out
@@ -63,15 +65,24 @@ def create_app() -> FastAPI:
 
     app.include_router(reports_router)
     # middleware: the last added is the outermost
-    app.add_middleware(GuardMiddleware, max_body_bytes=s.max_body_bytes, api_token=s.token(),
-                       body_timeout_s=s.body_timeout_s)
+    app.add_middleware(
+        GuardMiddleware,
+        max_body_bytes=s.max_body_bytes,
+        api_token=s.token(),
+        body_timeout_s=s.body_timeout_s,
+    )
     if s.cors_origins:
         from .middleware import ProblemCORSMiddleware
 
-        app.add_middleware(ProblemCORSMiddleware, allow_origins=s.cors_origins,
-                           allow_methods=["GET", "POST"], allow_credentials=False,
-                           allow_headers=["Authorization", "Content-Type", "Accept", "X-Request-ID"],
-                           expose_headers=["X-Request-ID", "Retry-After"], max_age=600)
+        app.add_middleware(
+            ProblemCORSMiddleware,
+            allow_origins=s.cors_origins,
+            allow_methods=["GET", "POST"],
+            allow_credentials=False,
+            allow_headers=["Authorization", "Content-Type", "Accept", "X-Request-ID"],
+            expose_headers=["X-Request-ID", "Retry-After"],
+            max_age=600,
+        )
     app.add_middleware(ServiceMiddleware, route_paths=lambda: route_paths(app.routes))
     openapi.install(app, s)
     pool.capacity()  # publish the slot count before the first computation

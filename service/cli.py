@@ -29,20 +29,24 @@ class _Progress:
         self.done += 1
         width = 30
         filled = int(width * self.done / max(self.total, 1))
-        self.stream.write(f"\rgroups [{'#' * filled}{'.' * (width - filled)}] {self.done}/{self.total}")
+        self.stream.write(
+            f"\rgroups [{'#' * filled}{'.' * (width - filled)}] {self.done}/{self.total}"
+        )
         if self.done == self.total:
             self.stream.write("\n")
         self.stream.flush()
 
 
 def select_main(argv: list[str]) -> int:
+    from .api.encode import to_jsonable
     from .api.routes import run_selection_request
     from .api.schemas import SelectionRequest
-    from .api.encode import to_jsonable
     from .core.errors import BestscaleError
 
-    ap = argparse.ArgumentParser(prog="python -m service select",
-                                 description="Run a selection in-process and write the API's JSON.")
+    ap = argparse.ArgumentParser(
+        prog="python -m service select",
+        description="Run a selection in-process and write the API's JSON.",
+    )
     ap.add_argument("--data", required=True, help="CSV (with header) or Parquet file")
     ap.add_argument("--response", required=True)
     ap.add_argument("--predictors", required=True, help="comma-separated column names")
@@ -50,14 +54,20 @@ def select_main(argv: list[str]) -> int:
     ap.add_argument("--order", default=None)
     ap.add_argument("--group-by", default=None)
     ap.add_argument("--incumbent", default=None, help="JSON file holding a Specification")
-    ap.add_argument("--options", default=None,
-                    help="JSON file with further request fields (validation, limits, top, ...)")
+    ap.add_argument(
+        "--options",
+        default=None,
+        help="JSON file with further request fields (validation, limits, top, ...)",
+    )
     ap.add_argument("--out", default=None, help="output file (default: standard output)")
     args = ap.parse_args(argv)
 
     body = json.loads(Path(args.options).read_text()) if args.options else {}
-    body.update(data=read_data_file(args.data), response=args.response,
-                predictors=[c for c in args.predictors.split(",") if c])
+    body.update(
+        data=read_data_file(args.data),
+        response=args.response,
+        predictors=[c for c in args.predictors.split(",") if c],
+    )
     if args.categorical:
         body["categorical"] = [c for c in args.categorical.split(",") if c]
     if args.order:

@@ -30,8 +30,15 @@ BUDGET_RETRY_AFTER_S = 5
 class ProblemError(Exception):
     """An HTTP-level problem raised by the web layer itself (size, media type, auth, busy)."""
 
-    def __init__(self, status: int, kind: str, title: str, detail: str,
-                 errors: list[dict] | None = None, headers: dict | None = None):
+    def __init__(
+        self,
+        status: int,
+        kind: str,
+        title: str,
+        detail: str,
+        errors: list[dict] | None = None,
+        headers: dict | None = None,
+    ):
         super().__init__(detail)
         self.status, self.kind, self.title, self.detail = status, kind, title, detail
         self.errors = errors or []
@@ -40,16 +47,27 @@ class ProblemError(Exception):
 
 def _clip(text: str) -> str:
     text = str(text)
-    return text if len(text) <= MAX_DETAIL_CHARS else text[:MAX_DETAIL_CHARS - 1] + "…"
+    return text if len(text) <= MAX_DETAIL_CHARS else text[: MAX_DETAIL_CHARS - 1] + "…"
 
 
-def problem_body(status: int, kind: str, title: str, detail: str,
-                 errors: list[dict] | None = None, request_id: str | None = None,
-                 instance: str | None = None) -> dict:
+def problem_body(
+    status: int,
+    kind: str,
+    title: str,
+    detail: str,
+    errors: list[dict] | None = None,
+    request_id: str | None = None,
+    instance: str | None = None,
+) -> dict:
     """The problem object; long details are clipped and long error lists capped."""
     items = [{"pointer": e["pointer"], "detail": _clip(e["detail"])} for e in (errors or [])]
-    body = {"type": TYPE_PREFIX + kind, "title": title, "status": status, "detail": _clip(detail),
-            "errors": items[:MAX_ERRORS_LISTED]}
+    body = {
+        "type": TYPE_PREFIX + kind,
+        "title": title,
+        "status": status,
+        "detail": _clip(detail),
+        "errors": items[:MAX_ERRORS_LISTED],
+    }
     if len(items) > MAX_ERRORS_LISTED:
         body["errors_truncated"] = len(items) - MAX_ERRORS_LISTED
     if request_id:
@@ -61,26 +79,49 @@ def problem_body(status: int, kind: str, title: str, detail: str,
     return body
 
 
-def problem_bytes(status: int, kind: str, title: str, detail: str, request_id: str | None = None,
-                  errors: list[dict] | None = None, instance: str | None = None) -> bytes:
+def problem_bytes(
+    status: int,
+    kind: str,
+    title: str,
+    detail: str,
+    request_id: str | None = None,
+    errors: list[dict] | None = None,
+    instance: str | None = None,
+) -> bytes:
     return orjson.dumps(problem_body(status, kind, title, detail, errors, request_id, instance))
 
 
 def internal_error_bytes(request_id: str, instance: str | None = None) -> bytes:
     """The bare 500: no exception text, no traceback; the request id ties it to the log line."""
-    return problem_bytes(500, "internal", "Internal error",
-                         "the service failed on this request; quote the request id when "
-                         "reporting it", request_id, instance=instance)
+    return problem_bytes(
+        500,
+        "internal",
+        "Internal error",
+        "the service failed on this request; quote the request id when reporting it",
+        request_id,
+        instance=instance,
+    )
 
 
-def problem(status: int, kind: str, title: str, detail: str, errors: list[dict] | None = None,
-            headers: dict | None = None, request: Request | None = None) -> Response:
+def problem(
+    status: int,
+    kind: str,
+    title: str,
+    detail: str,
+    errors: list[dict] | None = None,
+    headers: dict | None = None,
+    request: Request | None = None,
+) -> Response:
     rid = instance = None
     if request is not None:
         rid = request.scope.get("state", {}).get("request_id")
         instance = request.url.path
-    return Response(problem_bytes(status, kind, title, detail, rid, errors, instance),
-                    status_code=status, media_type=PROBLEM, headers=headers)
+    return Response(
+        problem_bytes(status, kind, title, detail, rid, errors, instance),
+        status_code=status,
+        media_type=PROBLEM,
+        headers=headers,
+    )
 
 
 def _pointer_from_loc(loc: tuple, body) -> str:
@@ -96,8 +137,13 @@ def _pointer_from_loc(loc: tuple, body) -> str:
         elif isinstance(node, list) and isinstance(item, int) and 0 <= item < len(node):
             node = node[item]
             parts.append(str(item))
-        elif isinstance(node, dict) and isinstance(item, str) and "[" not in item and "," not in item \
-                and not item.startswith("function-"):
+        elif (
+            isinstance(node, dict)
+            and isinstance(item, str)
+            and "[" not in item
+            and "," not in item
+            and not item.startswith("function-")
+        ):
             parts.append(item)  # a missing field: point where it belongs
             node = None
         # otherwise a union member tag such as "str" or "TransformIn": not part of the path
@@ -107,14 +153,16 @@ def _pointer_from_loc(loc: tuple, body) -> str:
 def _message(err: dict) -> str:
     msg = err.get("msg", "invalid value")
     if msg.startswith("Value error, "):
-        msg = msg[len("Value error, "):]
+        msg = msg[len("Value error, ") :]
     if err.get("type") == "extra_forbidden":
         return f"unknown field '{err['loc'][-1]}'"
     if err.get("type") == "missing":
         return f"field '{err['loc'][-1]}' is required"
     if err.get("type") == "finite_number":
-        return "must be a finite number (NaN and Infinity are not accepted; send null for a " \
-               "missing data value)"
+        return (
+            "must be a finite number (NaN and Infinity are not accepted; send null for a "
+            "missing data value)"
+        )
     return msg
 
 
@@ -124,9 +172,14 @@ def install(app: FastAPI) -> None:
         errs = exc.errors()
         if errs and errs[0].get("type") == "json_invalid":
             pos = errs[0].get("loc", ("body", 0))[-1]
-            return problem(400, "malformed-body", "Malformed JSON body",
-                           f"the body is not valid JSON (near character {pos}); NaN and Infinity "
-                           "are not JSON: send null for a missing value", request=request)
+            return problem(
+                400,
+                "malformed-body",
+                "Malformed JSON body",
+                f"the body is not valid JSON (near character {pos}); NaN and Infinity "
+                "are not JSON: send null for a missing value",
+                request=request,
+            )
         body = exc.body if hasattr(exc, "body") else None
         items = []
         seen = set()
@@ -138,23 +191,33 @@ def install(app: FastAPI) -> None:
             seen.add((ptr, text))
             items.append({"pointer": ptr, "detail": text})
         if body is None or not isinstance(body, dict):
-            return problem(400, "malformed-body", "Malformed request body",
-                           "the body must be a JSON object", items, request=request)
+            return problem(
+                400,
+                "malformed-body",
+                "Malformed request body",
+                "the body must be a JSON object",
+                items,
+                request=request,
+            )
         detail = items[0]["detail"] if len(items) == 1 else f"{len(items)} fields are invalid"
         if len(items) == 1 and items[0]["pointer"]:
             detail = f"{items[0]['pointer']}: {items[0]['detail']}"
-        return problem(422, "invalid-input", "Invalid request content", detail, items,
-                       request=request)
+        return problem(
+            422, "invalid-input", "Invalid request content", detail, items, request=request
+        )
 
     @app.exception_handler(ProblemError)
     async def _problem(request: Request, exc: ProblemError):
-        return problem(exc.status, exc.kind, exc.title, exc.detail, exc.errors, exc.headers,
-                       request=request)
+        return problem(
+            exc.status, exc.kind, exc.title, exc.detail, exc.errors, exc.headers, request=request
+        )
 
     @app.exception_handler(BestscaleError)
     async def _domain(request: Request, exc: BestscaleError):
         status = 503 if isinstance(exc, BudgetError) else 422
-        headers = {"Retry-After": str(BUDGET_RETRY_AFTER_S)} if isinstance(exc, BudgetError) else None
+        headers = (
+            {"Retry-After": str(BUDGET_RETRY_AFTER_S)} if isinstance(exc, BudgetError) else None
+        )
         errors = [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems]
         kind = exc.kind if isinstance(exc, (InputError, ModelFailure, BudgetError)) else "error"
         return problem(status, kind, exc.title, exc.detail, errors, headers, request=request)
@@ -164,17 +227,25 @@ def install(app: FastAPI) -> None:
         # the body problems of service.middleware carry their own kind and title
         titles = {404: "Not found", 405: "Method not allowed", 413: "Request body too large"}
         kinds = {404: "not-found", 405: "method-not-allowed", 413: "too-large"}
-        return problem(exc.status_code,
-                       getattr(exc, "kind", None) or kinds.get(exc.status_code, "http"),
-                       getattr(exc, "title", None) or titles.get(exc.status_code, "HTTP error"),
-                       str(exc.detail), headers=getattr(exc, "headers", None), request=request)
+        return problem(
+            exc.status_code,
+            getattr(exc, "kind", None) or kinds.get(exc.status_code, "http"),
+            getattr(exc, "title", None) or titles.get(exc.status_code, "HTTP error"),
+            str(exc.detail),
+            headers=getattr(exc, "headers", None),
+            request=request,
+        )
 
     @app.exception_handler(Exception)
     async def _unexpected(request: Request, exc: Exception):
         # Last resort only: service.middleware.ServiceMiddleware answers unexpected errors of
         # the application; this catches a failure of the middleware itself.
-        log.error("unhandled error outside the service middleware", exc_info=exc,
-                  extra={"fields": {"path": request.url.path}})
+        log.error(
+            "unhandled error outside the service middleware",
+            exc_info=exc,
+            extra={"fields": {"path": request.url.path}},
+        )
         rid = request.scope.get("state", {}).get("request_id") or ""
-        return Response(internal_error_bytes(rid, request.url.path), status_code=500,
-                        media_type=PROBLEM)
+        return Response(
+            internal_error_bytes(rid, request.url.path), status_code=500, media_type=PROBLEM
+        )

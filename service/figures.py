@@ -41,8 +41,14 @@ BAND = "#c9d6e8"  # envelope
 
 def _style(ax, panel: dict) -> None:
     # parse_math=False: caller-supplied column names are text, never mathtext markup
-    ax.set_title(panel.get("title", ""), loc="left", fontsize=11, fontweight="bold", color=INK,
-                 parse_math=False)
+    ax.set_title(
+        panel.get("title", ""),
+        loc="left",
+        fontsize=11,
+        fontweight="bold",
+        color=INK,
+        parse_math=False,
+    )
     ax.set_xlabel(panel.get("x_label", ""), fontsize=9, color=INK, parse_math=False)
     ax.set_ylabel(panel.get("y_label", ""), fontsize=9, color=INK, parse_math=False)
     ax.tick_params(labelsize=8, colors=INK)
@@ -72,10 +78,24 @@ def _points(ax, points: dict, sizes=None) -> None:
 
 def _labels(ax, labels: list[dict]) -> None:
     for item in labels[:MAX_LABELS]:
-        ax.scatter([item["x"]], [item["y"]], s=40, facecolors="none", edgecolors=FLAG,
-                   linewidths=1.2, zorder=4)
-        ax.annotate(str(item["row"]), (item["x"], item["y"]), xytext=(4, 4),
-                    textcoords="offset points", fontsize=8, color=FLAG, zorder=5)
+        ax.scatter(
+            [item["x"]],
+            [item["y"]],
+            s=40,
+            facecolors="none",
+            edgecolors=FLAG,
+            linewidths=1.2,
+            zorder=4,
+        )
+        ax.annotate(
+            str(item["row"]),
+            (item["x"], item["y"]),
+            xytext=(4, 4),
+            textcoords="offset points",
+            fontsize=8,
+            color=FLAG,
+            zorder=5,
+        )
 
 
 def _smoother(ax, smoother: dict | None, label: str = "LOWESS") -> None:
@@ -91,13 +111,31 @@ def _reference_lines(ax, lines: list[dict]) -> None:
 def _caption(ax, panel: dict, shown: int) -> None:
     total = panel.get("n_total")
     if total and shown < total:
-        ax.text(0.99, 0.01, f"showing {shown} of {total} rows", transform=ax.transAxes,
-                ha="right", va="bottom", fontsize=7, color=REFERENCE)
+        ax.text(
+            0.99,
+            0.01,
+            f"showing {shown} of {total} rows",
+            transform=ax.transAxes,
+            ha="right",
+            va="bottom",
+            fontsize=7,
+            color=REFERENCE,
+        )
 
 
 def _empty(ax, panel: dict) -> None:
-    ax.text(0.5, 0.5, panel.get("note") or "no data to show", transform=ax.transAxes, parse_math=False,
-            ha="center", va="center", fontsize=9, color=REFERENCE, wrap=True)
+    ax.text(
+        0.5,
+        0.5,
+        panel.get("note") or "no data to show",
+        transform=ax.transAxes,
+        parse_math=False,
+        ha="center",
+        va="center",
+        fontsize=9,
+        color=REFERENCE,
+        wrap=True,
+    )
 
 
 def _draw_xy(ax, panel: dict, zero_line: bool = False) -> None:
@@ -121,12 +159,27 @@ def _draw_qq(ax, panel: dict) -> None:
         return
     env = panel.get("envelope")
     if env:
-        ax.fill_between(env["x"], env["lower"], env["upper"], color=BAND, alpha=0.7,
-                        linewidth=0, label="95% envelope", zorder=1)
+        ax.fill_between(
+            env["x"],
+            env["lower"],
+            env["upper"],
+            color=BAND,
+            alpha=0.7,
+            linewidth=0,
+            label="95% envelope",
+            zorder=1,
+        )
     line = panel.get("reference_line")
     if line:
-        ax.plot(line["x"], line["y"], color=REFERENCE, linestyle="--", linewidth=1.0,
-                label="quartile line", zorder=1)
+        ax.plot(
+            line["x"],
+            line["y"],
+            color=REFERENCE,
+            linestyle="--",
+            linewidth=1.0,
+            label="quartile line",
+            zorder=1,
+        )
     _points(ax, points)
     _labels(ax, panel.get("labels", []))
     _caption(ax, panel, len(points["x"]))
@@ -146,8 +199,16 @@ def _draw_influence(ax, panel: dict) -> None:
     _points(ax, points, sizes=sizes)
     _labels(ax, panel.get("labels", []))
     _caption(ax, panel, len(points["x"]))
-    ax.text(0.99, 0.99, "marker area ~ Cook's distance", transform=ax.transAxes, ha="right",
-            va="top", fontsize=7, color=REFERENCE)
+    ax.text(
+        0.99,
+        0.99,
+        "marker area ~ Cook's distance",
+        transform=ax.transAxes,
+        ha="right",
+        va="top",
+        fontsize=7,
+        color=REFERENCE,
+    )
 
 
 def _draw_partial(ax, panel: dict) -> None:
@@ -174,8 +235,11 @@ _DRAW = {
 
 
 def _panels(plots: dict) -> list[tuple[str, dict]]:
-    out = [(key, plots[key]) for key in ("residuals_fitted", "normal_quantiles",
-                                        "spread_fitted", "influence") if plots.get(key)]
+    out = [
+        (key, plots[key])
+        for key in ("residuals_fitted", "normal_quantiles", "spread_fitted", "influence")
+        if plots.get(key)
+    ]
     for panel in (plots.get("partial_residuals") or [])[:MAX_PARTIAL_PANELS]:
         out.append(("partial_residuals", panel))
     return out
@@ -192,19 +256,24 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
         raise ValueError(f"fmt must be 'svg' or 'png'; got {fmt!r}")
     if not isinstance(plots, dict):
         raise ValueError(
-            f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}")
+            f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}"
+        )
     panels = _panels(plots)
     if not panels:
         raise ValueError("plots holds no panel to draw")
     ncols = 2 if len(panels) <= 4 else 3
     nrows = math.ceil(len(panels) / ncols)
-    fig = Figure(figsize=(5.0 * ncols, 3.9 * nrows + (0.4 if title else 0.0)), dpi=100,
-                 layout="constrained", facecolor="white")
+    fig = Figure(
+        figsize=(5.0 * ncols, 3.9 * nrows + (0.4 if title else 0.0)),
+        dpi=100,
+        layout="constrained",
+        facecolor="white",
+    )
     axes = fig.subplots(nrows, ncols, squeeze=False).ravel()
-    for ax, (kind, panel) in zip(axes, panels):
+    for ax, (kind, panel) in zip(axes, panels, strict=False):  # spare axes stay empty
         _style(ax, panel)
         _DRAW[kind](ax, panel)
-    for ax in axes[len(panels):]:
+    for ax in axes[len(panels) :]:
         ax.set_visible(False)
     if title:
         fig.suptitle(title, fontsize=13, fontweight="bold", color=INK, parse_math=False)

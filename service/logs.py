@@ -12,8 +12,9 @@ import json
 import logging
 import time
 
-REQUEST_ID: contextvars.ContextVar[str | None] = contextvars.ContextVar("bestscale_request_id",
-                                                                        default=None)
+REQUEST_ID: contextvars.ContextVar[str | None] = contextvars.ContextVar(
+    "bestscale_request_id", default=None
+)
 
 
 class JsonFormatter(logging.Formatter):
@@ -23,10 +24,13 @@ class JsonFormatter(logging.Formatter):
     """
 
     def format(self, record: logging.LogRecord) -> str:
-        out = {"time": time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(record.created))
-                       + f".{int(record.msecs):03d}Z",
-               "level": record.levelname.lower(), "logger": record.name,
-               "message": record.getMessage()}
+        out = {
+            "time": time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(record.created))
+            + f".{int(record.msecs):03d}Z",
+            "level": record.levelname.lower(),
+            "logger": record.name,
+            "message": record.getMessage(),
+        }
         rid = REQUEST_ID.get()
         if rid is not None:
             out["request_id"] = rid

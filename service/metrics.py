@@ -10,6 +10,7 @@ died are dropped at the next scrape.
 
 from __future__ import annotations
 
+import contextlib
 import glob
 import os
 import re
@@ -20,26 +21,57 @@ MULTIPROCESS_DIR = os.environ.get("PROMETHEUS_MULTIPROC_DIR") or None
 
 _registry = None if MULTIPROCESS_DIR else REGISTRY
 
-REQUESTS = Counter("bestscale_requests_total", "HTTP requests answered, by route and status",
-                   ["route", "status"], registry=_registry)
-LATENCY = Histogram("bestscale_request_seconds", "time to answer a request, by route and status",
-                    ["route", "status"], registry=_registry,
-                    buckets=(0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60,
-                             120, 300, 600))
-REJECTED = Counter("bestscale_rejected_total", "requests answered with a problem (4xx or 503), "
-                   "by problem kind", ["reason"], registry=_registry)
-CANDIDATES = Counter("bestscale_candidates_scored_total", "candidate specifications scored "
-                     "by cross-validation", registry=_registry)
-ROWS = Counter("bestscale_rows_total", "table rows used by answered requests", ["route"],
-               registry=_registry)
-ERRORS = Counter("bestscale_internal_errors_total", "requests that failed inside the service "
-                 "(500)", ["route"], registry=_registry)
-BUSY = Gauge("bestscale_pool_busy", "compute slots in use now (all processes)",
-             registry=_registry, multiprocess_mode="livesum")
-CAPACITY = Gauge("bestscale_pool_capacity", "compute slots available (all processes)",
-                 registry=_registry, multiprocess_mode="livesum")
-IN_FLIGHT = Gauge("bestscale_requests_in_flight", "HTTP requests being answered now",
-                  registry=_registry, multiprocess_mode="livesum")
+REQUESTS = Counter(
+    "bestscale_requests_total",
+    "HTTP requests answered, by route and status",
+    ["route", "status"],
+    registry=_registry,
+)
+LATENCY = Histogram(
+    "bestscale_request_seconds",
+    "time to answer a request, by route and status",
+    ["route", "status"],
+    registry=_registry,
+    buckets=(0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60, 120, 300, 600),
+)
+REJECTED = Counter(
+    "bestscale_rejected_total",
+    "requests answered with a problem (4xx or 503), by problem kind",
+    ["reason"],
+    registry=_registry,
+)
+CANDIDATES = Counter(
+    "bestscale_candidates_scored_total",
+    "candidate specifications scored by cross-validation",
+    registry=_registry,
+)
+ROWS = Counter(
+    "bestscale_rows_total", "table rows used by answered requests", ["route"], registry=_registry
+)
+ERRORS = Counter(
+    "bestscale_internal_errors_total",
+    "requests that failed inside the service (500)",
+    ["route"],
+    registry=_registry,
+)
+BUSY = Gauge(
+    "bestscale_pool_busy",
+    "compute slots in use now (all processes)",
+    registry=_registry,
+    multiprocess_mode="livesum",
+)
+CAPACITY = Gauge(
+    "bestscale_pool_capacity",
+    "compute slots available (all processes)",
+    registry=_registry,
+    multiprocess_mode="livesum",
+)
+IN_FLIGHT = Gauge(
+    "bestscale_requests_in_flight",
+    "HTTP requests being answered now",
+    registry=_registry,
+    multiprocess_mode="livesum",
+)
 
 _LIVE_FILE = re.compile(r"gauge_live\w+?_(\d+)\.db$")
 
@@ -67,10 +99,9 @@ def _install_multiprocess_collector() -> None:
             return super().collect()
 
     for collector in (PROCESS_COLLECTOR, PLATFORM_COLLECTOR, GC_COLLECTOR):
-        try:  # per-process figures would describe whichever worker was scraped
+        # per-process figures would describe whichever worker was scraped
+        with contextlib.suppress(KeyError):
             REGISTRY.unregister(collector)
-        except KeyError:
-            pass
     _Collector(REGISTRY, MULTIPROCESS_DIR)
 
 

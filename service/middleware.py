@@ -35,8 +35,9 @@ log = logging.getLogger("bestscale.access")
 errlog = logging.getLogger("bestscale.error")
 
 _ID_OK = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
-_RECORD: contextvars.ContextVar[dict | None] = contextvars.ContextVar("bestscale_request_record",
-                                                                      default=None)
+_RECORD: contextvars.ContextVar[dict | None] = contextvars.ContextVar(
+    "bestscale_request_record", default=None
+)
 
 
 def note(**fields) -> None:
@@ -62,13 +63,24 @@ def note_result(body: dict) -> None:
     search = body.get("search") if isinstance(body.get("search"), dict) else {}
     candidates = search.get("candidates_scored")
     if candidates is None and isinstance(body.get("groups"), dict):
-        candidates = sum(int((g.get("search") or {}).get("candidates_scored") or 0)
-                         for g in body["groups"].values() if isinstance(g, dict))
+        candidates = sum(
+            int((g.get("search") or {}).get("candidates_scored") or 0)
+            for g in body["groups"].values()
+            if isinstance(g, dict)
+        )
     note(rows=rows, candidates=candidates)
 
 
-async def _send_problem(send, status: int, kind: str, title: str, detail: str, rid: str,
-                        path: str, headers: list | None = None) -> None:
+async def _send_problem(
+    send,
+    status: int,
+    kind: str,
+    title: str,
+    detail: str,
+    rid: str,
+    path: str,
+    headers: list | None = None,
+) -> None:
     body = problem_bytes(status, kind, title, detail, rid, instance=path)
     hdrs = [(b"content-type", PROBLEM.encode()), (b"content-length", str(len(body)).encode())]
     await send({"type": "http.response.start", "status": status, "headers": hdrs + (headers or [])})
@@ -85,16 +97,20 @@ class BodyTooLarge(BodyProblem):
     kind, title = "too-large", "Request body too large"
 
     def __init__(self, limit: int):
-        super().__init__(413, f"the body exceeds the limit of {limit} bytes "
-                              "(setting BESTSCALE_MAX_BODY_BYTES)")
+        super().__init__(
+            413, f"the body exceeds the limit of {limit} bytes (setting BESTSCALE_MAX_BODY_BYTES)"
+        )
 
 
 class BodyTooSlow(BodyProblem):
     kind, title = "body-timeout", "Request body too slow"
 
     def __init__(self, seconds: float):
-        super().__init__(408, f"the body did not arrive whole within {seconds:g} s "
-                              "(setting BESTSCALE_BODY_TIMEOUT_S)")
+        super().__init__(
+            408,
+            f"the body did not arrive whole within {seconds:g} s "
+            "(setting BESTSCALE_BODY_TIMEOUT_S)",
+        )
 
 
 class ServiceMiddleware:
@@ -130,8 +146,11 @@ class ServiceMiddleware:
         async def send_wrapped(message):
             if message["type"] == "http.response.start":
                 state["status"], state["started"] = message["status"], True
-                hdrs = [(k, v) for k, v in message.get("headers", [])
-                        if k.lower() not in (b"server", b"x-request-id")]
+                hdrs = [
+                    (k, v)
+                    for k, v in message.get("headers", [])
+                    if k.lower() not in (b"server", b"x-request-id")
+                ]
                 hdrs.append((b"x-request-id", rid_header))
                 message = {**message, "headers": hdrs}
             await send(message)
@@ -142,19 +161,35 @@ class ServiceMiddleware:
         except BodyProblem as exc:  # read outside a route (the route maps it itself)
             if state["started"]:
                 raise
-            await _send_problem(send_wrapped, exc.status_code, exc.kind, exc.title,
-                                str(exc.detail), rid, scope.get("path", ""))
+            await _send_problem(
+                send_wrapped,
+                exc.status_code,
+                exc.kind,
+                exc.title,
+                str(exc.detail),
+                rid,
+                scope.get("path", ""),
+            )
         except Exception as exc:
-            errlog.error("unhandled error", exc_info=exc,
-                         extra={"fields": {"method": scope.get("method"),
-                                           "route": self._label(scope)}})
+            errlog.error(
+                "unhandled error",
+                exc_info=exc,
+                extra={"fields": {"method": scope.get("method"), "route": self._label(scope)}},
+            )
             ERRORS.labels(self._label(scope)).inc()
             if state["started"]:
                 raise  # too late for a status: let the server drop the connection
             body = internal_error_bytes(rid, scope.get("path", ""))
-            await send_wrapped({"type": "http.response.start", "status": 500,
-                                "headers": [(b"content-type", PROBLEM.encode()),
-                                            (b"content-length", str(len(body)).encode())]})
+            await send_wrapped(
+                {
+                    "type": "http.response.start",
+                    "status": 500,
+                    "headers": [
+                        (b"content-type", PROBLEM.encode()),
+                        (b"content-length", str(len(body)).encode()),
+                    ],
+                }
+            )
             await send_wrapped({"type": "http.response.body", "body": body})
         finally:
             IN_FLIGHT.dec()
@@ -166,9 +201,19 @@ class ServiceMiddleware:
                 ROWS.labels(route).inc(record["rows"])
             if isinstance(record.get("candidates"), int):
                 CANDIDATES.inc(record["candidates"])
-            log.info("request", extra={"fields": {
-                "request_id": rid, "method": scope.get("method"), "route": route,
-                "status": state["status"], "duration_s": round(dt, 4), **record}})
+            log.info(
+                "request",
+                extra={
+                    "fields": {
+                        "request_id": rid,
+                        "method": scope.get("method"),
+                        "route": route,
+                        "status": state["status"],
+                        "duration_s": round(dt, 4),
+                        **record,
+                    }
+                },
+            )
             _RECORD.reset(tok_rec)
             REQUEST_ID.reset(tok_id)
 
@@ -185,8 +230,14 @@ class ServiceMiddleware:
 class GuardMiddleware:
     """Token, body size and early back-pressure, before any body byte is read."""
 
-    def __init__(self, app, max_body_bytes: int, api_token: str | None = None,
-                 protected_prefix: str = "/v1/", body_timeout_s: float = 60.0):
+    def __init__(
+        self,
+        app,
+        max_body_bytes: int,
+        api_token: str | None = None,
+        protected_prefix: str = "/v1/",
+        body_timeout_s: float = 60.0,
+    ):
         self.app = app
         self.max_body = max_body_bytes
         self.body_timeout = body_timeout_s
@@ -198,26 +249,46 @@ class GuardMiddleware:
             return await self.app(scope, receive, send)
         path = scope.get("path", "")
         rid = scope.get("state", {}).get("request_id", "")
-        headers = dict((k.lower(), v) for k, v in scope["headers"])
+        headers = {k.lower(): v for k, v in scope["headers"]}
         if self.token is not None and path.startswith(self.prefix):
             auth = headers.get(b"authorization", b"")
             given = auth[7:].strip() if auth[:7].lower() == b"bearer " else b""
             if not hmac.compare_digest(given, self.token):
                 return await _send_problem(
-                    send, 401, "unauthorized", "Unauthorized",
+                    send,
+                    401,
+                    "unauthorized",
+                    "Unauthorized",
                     "this endpoint needs the header 'Authorization: Bearer <token>' with the "
-                    "service's API token", rid, path, [(b"www-authenticate", b'Bearer realm="bestscale"')])
+                    "service's API token",
+                    rid,
+                    path,
+                    [(b"www-authenticate", b'Bearer realm="bestscale"')],
+                )
         length = headers.get(b"content-length")
         if length is not None and length.strip().isdigit() and int(length) > self.max_body:
-            return await _send_problem(send, 413, "too-large", "Request body too large",
-                                       f"the body has {int(length)} bytes; the limit is "
-                                       f"{self.max_body} (setting BESTSCALE_MAX_BODY_BYTES)",
-                                       rid, path)
+            return await _send_problem(
+                send,
+                413,
+                "too-large",
+                "Request body too large",
+                f"the body has {int(length)} bytes; the limit is "
+                f"{self.max_body} (setting BESTSCALE_MAX_BODY_BYTES)",
+                rid,
+                path,
+            )
         if scope.get("method") == "POST" and path.startswith(self.prefix) and pool.saturated():
             exc = pool.busy_problem(pool.capacity())
-            return await _send_problem(send, 503, exc.kind, exc.title, exc.detail, rid, path,
-                                       [(k.lower().encode(), v.encode())
-                                        for k, v in exc.headers.items()])
+            return await _send_problem(
+                send,
+                503,
+                exc.kind,
+                exc.title,
+                exc.detail,
+                rid,
+                path,
+                [(k.lower().encode(), v.encode()) for k, v in exc.headers.items()],
+            )
         seen = 0
         limit, timeout = self.max_body, self.body_timeout
         deadline = time.monotonic() + timeout
@@ -259,18 +330,36 @@ class ProblemCORSMiddleware(CORSMiddleware):
         if response.status_code != 400:
             return response
         refused = response.body.decode("utf-8", "replace").removeprefix("Disallowed CORS ")
-        asked = {"origin": request_headers.get("origin"),
-                 "method": request_headers.get("access-control-request-method"),
-                 "headers": request_headers.get("access-control-request-headers")}
+        asked = {
+            "origin": request_headers.get("origin"),
+            "method": request_headers.get("access-control-request-method"),
+            "headers": request_headers.get("access-control-request-headers"),
+        }
         parts = [p.strip() for p in refused.split(",") if p.strip()]
-        detail = ("cross-origin request refused: " +
-                  "; ".join(f"{p} {asked[p]!r} is not allowed" if asked.get(p) else
-                            f"{p} is not allowed" for p in parts) +
-                  " (allowed origins are set by BESTSCALE_CORS_ORIGINS)")
+        detail = (
+            "cross-origin request refused: "
+            + "; ".join(
+                f"{p} {asked[p]!r} is not allowed" if asked.get(p) else f"{p} is not allowed"
+                for p in parts
+            )
+            + " (allowed origins are set by BESTSCALE_CORS_ORIGINS)"
+        )
         errors = [{"pointer": "", "detail": f"{p} not allowed"} for p in parts]
-        headers = {k: v for k, v in response.headers.items()
-                   if k.lower() not in ("content-type", "content-length")}
-        return Response(problem_bytes(400, "cors-refused", "Cross-origin request refused",
-                                      detail, REQUEST_ID.get(None), errors=errors),
-                        status_code=400,
-                        headers=headers, media_type=PROBLEM)
+        headers = {
+            k: v
+            for k, v in response.headers.items()
+            if k.lower() not in ("content-type", "content-length")
+        }
+        return Response(
+            problem_bytes(
+                400,
+                "cors-refused",
+                "Cross-origin request refused",
+                detail,
+                REQUEST_ID.get(None),
+                errors=errors,
+            ),
+            status_code=400,
+            headers=headers,
+            media_type=PROBLEM,
+        )

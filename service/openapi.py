@@ -34,7 +34,8 @@ DESCRIPTION = (
     "content type, 422 content that cannot be used, 503 busy (all compute slots in use) or "
     "search budget exhausted, both with `Retry-After`. Every response carries `X-Request-ID` "
     "(the caller's, when it sent a valid one).\n\n"
-    "Examples use invented data: repair costs of a regional water utility's mains.")
+    "Examples use invented data: repair costs of a regional water utility's mains."
+)
 
 TAGS = [
     {"name": "selection", "description": "search transformations and rank specifications"},
@@ -46,13 +47,22 @@ TAGS = [
 
 # (method, path) -> (response model, example stem, description of the 200 answer)
 _OK = {
-    ("post", "/v1/selections"): (rs.SelectionResponse, "selections",
-                                 "the ranked specifications, best first"),
-    ("post", "/v1/predictions"): (rs.PredictionsResponse, "predictions",
-                                  "one prediction per row, on the original scale"),
-    ("post", "/v1/diagnostics"): (rs.DiagnosticsResponse, "diagnostics",
-                                  "the specification's entry and plot data (JSON), or a figure "
-                                  "when Accept asks for image/svg+xml or image/png"),
+    ("post", "/v1/selections"): (
+        rs.SelectionResponse,
+        "selections",
+        "the ranked specifications, best first",
+    ),
+    ("post", "/v1/predictions"): (
+        rs.PredictionsResponse,
+        "predictions",
+        "one prediction per row, on the original scale",
+    ),
+    ("post", "/v1/diagnostics"): (
+        rs.DiagnosticsResponse,
+        "diagnostics",
+        "the specification's entry and plot data (JSON), or a figure "
+        "when Accept asks for image/svg+xml or image/png",
+    ),
     ("get", "/v1/transforms"): (rs.TransformsResponse, "transforms", "the transform catalogue"),
     ("get", "/healthz"): (rs.HealthResponse, None, "the process is up"),
 }
@@ -67,16 +77,24 @@ _PROBLEMS = {
     "413": "the body is larger than the limit (setting BESTSCALE_MAX_BODY_BYTES)",
     "415": "the body is not application/json",
     "422": "the content cannot be used (including a key repeated in one JSON object); "
-           "errors[].pointer says where",
+    "errors[].pointer says where",
     "503": "all compute slots are busy, or no candidate finished within the time limit; "
-           "retry after the Retry-After seconds",
+    "retry after the Retry-After seconds",
     "500": "the service failed; the body carries only the request id (no internals)",
 }
 
-_RETRY_AFTER = {"Retry-After": {"description": "seconds to wait before retrying",
-                                "schema": {"type": "integer", "minimum": 0}}}
-_REQUEST_ID = {"X-Request-ID": {"description": "the request id (echoed or generated)",
-                                "schema": {"type": "string"}}}
+_RETRY_AFTER = {
+    "Retry-After": {
+        "description": "seconds to wait before retrying",
+        "schema": {"type": "integer", "minimum": 0},
+    }
+}
+_REQUEST_ID = {
+    "X-Request-ID": {
+        "description": "the request id (echoed or generated)",
+        "schema": {"type": "string"},
+    }
+}
 
 
 def install(app: FastAPI, settings: Settings) -> None:
@@ -108,8 +126,10 @@ def trim(value, rows: int = DATA_ROWS, items: int = LIST_ITEMS, _key: str | None
         return copy.deepcopy(value)
     if isinstance(value, dict):
         table = _key in ("columns",)
-        return {k: (trim_list(v, rows) if table and isinstance(v, list) else
-                    trim(v, rows, items, k)) for k, v in value.items()}
+        return {
+            k: (trim_list(v, rows) if table and isinstance(v, list) else trim(v, rows, items, k))
+            for k, v in value.items()
+        }
     if isinstance(value, list):
         keep = rows if _key == "records" else items
         return [trim(v, rows, items) for v in value[:keep]]
@@ -134,23 +154,36 @@ def _schema_components(doc: dict) -> None:
 
 
 def _problem_response(code: str) -> dict:
-    out = {"description": _PROBLEMS[code],
-           "content": {"application/problem+json": {"schema": {"$ref": "#/components/schemas/Problem"}}},
-           "headers": dict(_REQUEST_ID)}
+    out = {
+        "description": _PROBLEMS[code],
+        "content": {
+            "application/problem+json": {"schema": {"$ref": "#/components/schemas/Problem"}}
+        },
+        "headers": dict(_REQUEST_ID),
+    }
     if code == "503":
         out["headers"].update(_RETRY_AFTER)
     return out
 
 
 def build(app: FastAPI, settings: Settings) -> dict:
-    doc = get_openapi(title=app.title, version=app.version, description=app.description,
-                      routes=app.routes, tags=app.openapi_tags)
+    doc = get_openapi(
+        title=app.title,
+        version=app.version,
+        description=app.description,
+        routes=app.routes,
+        tags=app.openapi_tags,
+    )
     _schema_components(doc)
     protected = settings.token() is not None
     if protected:
         doc["components"]["securitySchemes"] = {
-            "bearer": {"type": "http", "scheme": "bearer",
-                       "description": "the service's API token (setting BESTSCALE_API_TOKEN)"}}
+            "bearer": {
+                "type": "http",
+                "scheme": "bearer",
+                "description": "the service's API token (setting BESTSCALE_API_TOKEN)",
+            }
+        }
     for path, item in doc.get("paths", {}).items():
         for method, op in item.items():
             if not isinstance(op, dict) or "responses" not in op:
@@ -175,10 +208,11 @@ def _complete_operation(path: str, method: str, op: dict, protected: bool) -> No
             media["image/png"] = {"schema": {"type": "string", "format": "binary"}}
         responses["200"] = {"description": text, "content": media, "headers": dict(_REQUEST_ID)}
     elif path == "/metrics":
-        responses["200"] = {"description": "Prometheus text exposition format (totals over "
-                                           "every worker process)",
-                            "content": {"text/plain": {"schema": {"type": "string"}}},
-                            "headers": dict(_REQUEST_ID)}
+        responses["200"] = {
+            "description": "Prometheus text exposition format (totals over every worker process)",
+            "content": {"text/plain": {"schema": {"type": "string"}}},
+            "headers": dict(_REQUEST_ID),
+        }
     codes = []
     if path.startswith("/v1/") and protected:
         codes.append("401")
@@ -193,6 +227,9 @@ def _complete_operation(path: str, method: str, op: dict, protected: bool) -> No
     if body is not None and stem is not None:
         example = _load(f"{stem}.request.json")
         if example is not None:
-            body["examples"] = {"water_mains": {
-                "summary": "invented water-utility data (trimmed to a few rows)",
-                "value": trim(example)}}
+            body["examples"] = {
+                "water_mains": {
+                    "summary": "invented water-utility data (trimmed to a few rows)",
+                    "value": trim(example),
+                }
+            }

@@ -44,8 +44,11 @@ CONDITIONS = (
     ("influence", "Influence", "Infl."),
 )
 
-_MARKS = {True: ("pass", "\u2713", "holds"), False: ("fail", "\u2717", "fails"),
-          None: ("none", "\u25cb", "not tested")}
+_MARKS = {
+    True: ("pass", "\u2713", "holds"),
+    False: ("fail", "\u2717", "fails"),
+    None: ("none", "\u25cb", "not tested"),
+}
 
 
 # ------------------------------------------------------------------ formatting
@@ -98,7 +101,7 @@ def transform_words(t: dict | None, column: str, reference: str | None = None) -
     """One column on its scale in words, e.g. ``log of pipe_length_m`` (escaped HTML)."""
     t = t or {"name": "identity"}
     name = t.get("name", "identity")
-    c = f"<span class=\"col\">{esc(column)}</span>"
+    c = f'<span class="col">{esc(column)}</span>'
     if name == "identity":
         return c
     if name == "log":
@@ -129,9 +132,12 @@ def spec_words(spec: dict, levels: dict | None = None) -> str:
     """A specification in words (escaped HTML): response scale, then the predictors."""
     levels = levels or {}
     resp = spec["response"]
-    preds = [transform_words(p.get("transform"), p["column"],
-                             (levels.get(p["column"]) or {}).get("reference"))
-             for p in spec.get("predictors", [])]
+    preds = [
+        transform_words(
+            p.get("transform"), p["column"], (levels.get(p["column"]) or {}).get("reference")
+        )
+        for p in spec.get("predictors", [])
+    ]
     text = f"{transform_words(resp.get('transform'), resp['column'])} on {_joined(preds)}"
     if not spec.get("intercept", True):
         text += ", without an intercept"
@@ -144,8 +150,10 @@ def _entry_words(entry: dict) -> str:
 
 def _mark(holds, label: str) -> str:
     kind, symbol, word = _MARKS.get(holds, _MARKS[None])
-    return (f"<span class=\"mark {kind}\" title=\"{esc(label)}: {word}\" aria-hidden=\"true\">"
-            f"{symbol}</span><span class=\"vh\">{esc(label)}: {word}</span>")
+    return (
+        f'<span class="mark {kind}" title="{esc(label)}: {word}" aria-hidden="true">'
+        f'{symbol}</span><span class="vh">{esc(label)}: {word}</span>'
+    )
 
 
 def _yes_no(flag) -> str:
@@ -177,20 +185,23 @@ def inline_svg(svg: bytes | str, prefix: str, label: str) -> str:
     if root is None:
         raise ValueError("not an SVG document")
     box = _VIEWBOX.search(root.group(0))
-    view = f" viewBox=\"{box.group(1)}\"" if box else ""
-    body = text[root.end():]
-    body = re.sub(r"(?<=\s)id=\"([^\"]+)\"", lambda m: f"id=\"{prefix}-{m.group(1)}\"", body)
+    view = f' viewBox="{box.group(1)}"' if box else ""
+    body = text[root.end() :]
+    body = re.sub(r"(?<=\s)id=\"([^\"]+)\"", lambda m: f'id="{prefix}-{m.group(1)}"', body)
     body = re.sub(r"url\(#([^)]+)\)", lambda m: f"url(#{prefix}-{m.group(1)})", body)
-    body = re.sub(r"xlink:href=\"#([^\"]+)\"", lambda m: f"href=\"#{prefix}-{m.group(1)}\"", body)
+    body = re.sub(r"xlink:href=\"#([^\"]+)\"", lambda m: f'href="#{prefix}-{m.group(1)}"', body)
     # no xmlns: the HTML parser places <svg> in the SVG namespace by itself
-    head = (f"<svg{view} role=\"img\" "
-            f"aria-labelledby=\"{prefix}-title\" preserveAspectRatio=\"xMidYMid meet\">"
-            f"<title id=\"{prefix}-title\">{esc(label)}</title>")
+    head = (
+        f'<svg{view} role="img" '
+        f'aria-labelledby="{prefix}-title" preserveAspectRatio="xMidYMid meet">'
+        f'<title id="{prefix}-title">{esc(label)}</title>'
+    )
     return head + body.strip()
 
 
-def report_plots(body: dict, prep, alpha: float, seed: int,
-                 max_points: int = PLOT_MAX_POINTS) -> dict:
+def report_plots(
+    body: dict, prep, alpha: float, seed: int, max_points: int = PLOT_MAX_POINTS
+) -> dict:
     """Plot data of the specifications shown in detail, keyed by ``(group, rank)``.
 
     ``body`` is a selection response; ``prep`` the :class:`~service.core.data.Prepared`
@@ -239,43 +250,48 @@ def _figure(plots, entry: dict, prefix: str) -> str:
     if plots is None:
         return ""
     if isinstance(plots, str):
-        return f"<p class=\"note\">No figure: {esc(plots)}.</p>"
+        return f'<p class="note">No figure: {esc(plots)}.</p>'
     try:
         svg = render_figure(plots, "svg", title=entry["equation"])
     except ValueError as exc:  # e.g. nothing to draw, or text matplotlib cannot lay out
         last = (str(exc).strip().splitlines() or ["unknown reason"])[-1]
-        return f"<p class=\"note\">No figure: it could not be drawn ({esc(last)}).</p>"
+        return f'<p class="note">No figure: it could not be drawn ({esc(last)}).</p>'
     n_partial = len(plots.get("partial_residuals") or [])
-    caption = ("Residuals against fitted values, normal quantile plot with a 95% simulation "
-               "envelope, spread against fitted values and influence (studentised residuals "
-               "against leverage, marker area proportional to Cook's distance)")
+    caption = (
+        "Residuals against fitted values, normal quantile plot with a 95% simulation "
+        "envelope, spread against fitted values and influence (studentised residuals "
+        "against leverage, marker area proportional to Cook's distance)"
+    )
     if n_partial:
         caption += f", then {n_partial} component-plus-residual panel(s), one per numeric predictor"
-    caption += ". Curves are LOWESS smoothers; circled points are flagged rows, labelled with " \
-               "their row number in the request."
-    return (f"<figure class=\"panels\" id=\"{prefix}\">{inline_svg(svg, prefix, label)}"
-            f"<figcaption>{caption}</figcaption></figure>")
+    caption += (
+        ". Curves are LOWESS smoothers; circled points are flagged rows, labelled with "
+        "their row number in the request."
+    )
+    return (
+        f'<figure class="panels" id="{prefix}">{inline_svg(svg, prefix, label)}'
+        f"<figcaption>{caption}</figcaption></figure>"
+    )
 
 
 # -------------------------------------------------------------------- sections
 def _facts(rows: list[tuple[str, str]]) -> str:
     items = "".join(f"<dt>{k}</dt><dd>{v}</dd>" for k, v in rows)
-    return f"<dl class=\"facts\">{items}</dl>"
+    return f'<dl class="facts">{items}</dl>'
 
 
 def _list(items, cls: str = "plain") -> str:
     items = list(items)
     if not items:
         return ""
-    return f"<ul class=\"{cls}\">" + "".join(f"<li>{esc(i)}</li>" for i in items) + "</ul>"
+    return f'<ul class="{cls}">' + "".join(f"<li>{esc(i)}</li>" for i in items) + "</ul>"
 
 
 def _cv_text(cv: dict | None) -> str:
     """``value ± SE``; a narrow table may break the line before the ``±``."""
     if not cv:
         return "\u2013"
-    return (f"{num(cv.get('value'))} <span class=\"se\">\u00b1\u00a0{num(cv.get('std_error'))}"
-            "</span>")
+    return f'{num(cv.get("value"))} <span class="se">\u00b1\u00a0{num(cv.get("std_error"))}</span>'
 
 
 def _summary(body: dict, context: dict) -> str:
@@ -284,59 +300,112 @@ def _summary(body: dict, context: dict) -> str:
     first = _first_entry(body)
     rows = []
     if context.get("response") is not None:
-        rows.append(("Response", f"<span class=\"col\">{esc(context['response'])}</span>"))
+        rows.append(("Response", f'<span class="col">{esc(context["response"])}</span>'))
     if context.get("predictors"):
-        rows.append(("Predictors", ", ".join(f"<span class=\"col\">{esc(p)}</span>"
-                                              for p in context["predictors"])))
-    rows.append(("Rows", f"{num(data.get('rows_received'))} received, "
-                         f"{num(data.get('rows_used'))} used, "
-                         f"{num(data.get('rows_dropped'))} dropped"))
+        rows.append(
+            (
+                "Predictors",
+                ", ".join(f'<span class="col">{esc(p)}</span>' for p in context["predictors"]),
+            )
+        )
+    rows.append(
+        (
+            "Rows",
+            f"{num(data.get('rows_received'))} received, "
+            f"{num(data.get('rows_used'))} used, "
+            f"{num(data.get('rows_dropped'))} dropped",
+        )
+    )
     if first is not None:
         cv = first["cv"]
         reps = cv.get("repeats", 1)
-        rows.append(("Validation", f"{cv.get('folds')}-fold cross-validation"
-                     + (f", repeated {reps} times" if reps and reps > 1 else "")
-                     + f" (seed {esc(cv.get('seed', 0))}); error: {esc(cv.get('metric'))} on the "
-                       f"{esc(cv.get('scale', 'original'))} scale of the response"
-                     + (f", scoring the {esc(cv['back_transform'])}" if cv.get("back_transform")
-                        else "")))
+        rows.append(
+            (
+                "Validation",
+                f"{cv.get('folds')}-fold cross-validation"
+                + (f", repeated {reps} times" if reps and reps > 1 else "")
+                + f" (seed {esc(cv.get('seed', 0))}); error: {esc(cv.get('metric'))} on the "
+                f"{esc(cv.get('scale', 'original'))} scale of the response"
+                + (
+                    f", scoring the {esc(cv['back_transform'])}" if cv.get("back_transform") else ""
+                ),
+            )
+        )
     if context.get("alpha") is not None:
-        rows.append(("Condition tests", f"significance level {num(context['alpha'])}"
-                     + ("; observation order from "
-                        f"<span class=\"col\">{esc(context['order'])}</span>"
-                        if context.get("order") else "; no order column, so independence is "
-                                                     "not tested")))
+        rows.append(
+            (
+                "Condition tests",
+                f"significance level {num(context['alpha'])}"
+                + (
+                    f'; observation order from <span class="col">{esc(context["order"])}</span>'
+                    if context.get("order")
+                    else "; no order column, so independence is not tested"
+                ),
+            )
+        )
     if "groups" in search:
-        rows.append(("Groups", f"{num(search['groups'])} values of "
-                     f"<span class=\"col\">{esc(context.get('group_by', ''))}</span>, "
-                     f"{num(search.get('groups_failed', 0))} could not be modelled"))
+        rows.append(
+            (
+                "Groups",
+                f"{num(search['groups'])} values of "
+                f'<span class="col">{esc(context.get("group_by", ""))}</span>, '
+                f"{num(search.get('groups_failed', 0))} could not be modelled",
+            )
+        )
     else:
-        rows.append(("Search", f"{num(search.get('candidates_considered'))} candidate "
-                     f"specifications, {num(search.get('candidates_scored'))} scored, "
-                     f"{num(search.get('candidates_failed', 0))} could not be scored"))
+        rows.append(
+            (
+                "Search",
+                f"{num(search.get('candidates_considered'))} candidate "
+                f"specifications, {num(search.get('candidates_scored'))} scored, "
+                f"{num(search.get('candidates_failed', 0))} could not be scored",
+            )
+        )
     complete = search.get("complete")
-    rows.append(("Completeness", "complete: every candidate was scored" if complete else
-                 "<strong>incomplete</strong>: the search stopped at its limits; the ranking "
-                 "is the best found so far"))
+    rows.append(
+        (
+            "Completeness",
+            "complete: every candidate was scored"
+            if complete
+            else "<strong>incomplete</strong>: the search stopped at its limits; the ranking "
+            "is the best found so far",
+        )
+    )
     if search.get("elapsed_s") is not None:
         rows.append(("Search time", f"{num(search['elapsed_s'])} s"))
     bc = search.get("box_cox")
     if bc:
-        rows.append(("Box-Cox \u03bb of the response", f"{num(bc.get('lambda'))} (95% interval "
-                     f"{num(bc.get('ci_low'))} to {num(bc.get('ci_high'))}"
-                     + (f"; nearest ladder power {num(bc['ladder'])}" if bc.get("ladder")
-                        is not None else "") + f"; {esc(bc.get('design', ''))})"))
-    out = ["<section id=\"summary\"><h2>Job summary</h2>", _facts(rows)]
+        rows.append(
+            (
+                "Box-Cox \u03bb of the response",
+                f"{num(bc.get('lambda'))} (95% interval "
+                f"{num(bc.get('ci_low'))} to {num(bc.get('ci_high'))}"
+                + (
+                    f"; nearest ladder power {num(bc['ladder'])}"
+                    if bc.get("ladder") is not None
+                    else ""
+                )
+                + f"; {esc(bc.get('design', ''))})",
+            )
+        )
+    out = ['<section id="summary"><h2>Job summary</h2>', _facts(rows)]
     dropped = data.get("dropped") or []
     if dropped:
         shown = dropped[:MAX_DROPPED_LISTED]
-        out.append(f"<h3>Dropped rows</h3><p>{num(data.get('rows_dropped'))} row(s) were left "
-                   f"out; the first {len(shown)} listed (row numbers count from 0 in the "
-                   "request).</p>")
-        out.append("<table class=\"compact\"><thead><tr><th class=\"n\">Row</th><th>Reason</th>"
-                   "</tr></thead><tbody>" + "".join(
-                       f"<tr><td class=\"n\">{esc(d.get('row'))}</td><td>{esc(d.get('reason'))}"
-                       "</td></tr>" for d in shown) + "</tbody></table>")
+        out.append(
+            f"<h3>Dropped rows</h3><p>{num(data.get('rows_dropped'))} row(s) were left "
+            f"out; the first {len(shown)} listed (row numbers count from 0 in the "
+            "request).</p>"
+        )
+        out.append(
+            '<table class="compact"><thead><tr><th class="n">Row</th><th>Reason</th>'
+            "</tr></thead><tbody>"
+            + "".join(
+                f'<tr><td class="n">{esc(d.get("row"))}</td><td>{esc(d.get("reason"))}</td></tr>'
+                for d in shown
+            )
+            + "</tbody></table>"
+        )
     failures = search.get("failures") or []
     if failures:
         kinds: dict[str, list] = {}
@@ -344,11 +413,12 @@ def _summary(body: dict, context: dict) -> str:
             reason = f.get("reason", "")
             kinds.setdefault(re.sub(r"\d+", "#", reason), []).append(reason)
         listed = sorted(kinds.values(), key=len, reverse=True)[:MAX_FAILURE_REASONS]
-        out.append(f"<h3>Candidates that could not be scored</h3><p>"
-                   f"{num(search.get('candidates_failed', len(failures)))} candidate(s) got no "
-                   f"score. The most common reasons among the {len(failures)} listed in the "
-                   "response:</p>" + _list(f"{len(r)} candidate(s), for example: {r[0]}"
-                                           for r in listed))
+        out.append(
+            f"<h3>Candidates that could not be scored</h3><p>"
+            f"{num(search.get('candidates_failed', len(failures)))} candidate(s) got no "
+            f"score. The most common reasons among the {len(failures)} listed in the "
+            "response:</p>" + _list(f"{len(r)} candidate(s), for example: {r[0]}" for r in listed)
+        )
     out.append("</section>")
     return "".join(out)
 
@@ -372,22 +442,33 @@ def _why(entry: dict) -> str:
     if best is not None and value is not None and value <= best:
         out.append(f"It has the lowest cross-validated {metric} ({num(cv.get('value'))}).")
     elif parts.get("within_one_se"):
-        out.append(f"Its cross-validated {metric} ({num(cv.get('value'))}) is within one paired "
-                   f"standard error ({num(parts.get('paired_std_error'))}) of the lowest "
-                   f"({num(best)}); among such specifications the simpler one ranks first.")
+        out.append(
+            f"Its cross-validated {metric} ({num(cv.get('value'))}) is within one paired "
+            f"standard error ({num(parts.get('paired_std_error'))}) of the lowest "
+            f"({num(best)}); among such specifications the simpler one ranks first."
+        )
     else:
-        out.append(f"Its cross-validated {metric} is {num(cv.get('value'))}; it is ranked by "
-                   "error.")
+        out.append(
+            f"Its cross-validated {metric} is {num(cv.get('value'))}; it is ranked by error."
+        )
     conds = entry.get("conditions") or {}
-    failed = [label.lower() for key, label, _ in CONDITIONS
-              if (conds.get(key) or {}).get("holds") is False]
-    untested = [label.lower() for key, label, _ in CONDITIONS
-                if key in conds and conds[key].get("holds") is None]
+    failed = [
+        label.lower()
+        for key, label, _ in CONDITIONS
+        if (conds.get(key) or {}).get("holds") is False
+    ]
+    untested = [
+        label.lower()
+        for key, label, _ in CONDITIONS
+        if key in conds and conds[key].get("holds") is None
+    ]
     if failed:
         out.append(f"It fails the check of {esc(_joined(failed))}.")
     else:
-        out.append("It passes every condition that was tested"
-                   + (f" ({esc(_joined(untested))} not tested)." if untested else "."))
+        out.append(
+            "It passes every condition that was tested"
+            + (f" ({esc(_joined(untested))} not tested)." if untested else ".")
+        )
     return " ".join(out)
 
 
@@ -399,12 +480,16 @@ def _recommendation(body: dict) -> str:
     verdict = ""
     if inc and inc.get("decision"):
         decision = esc(str(inc["decision"]).lower())
-        verdict = (f"<p>Incumbent: <span class=\"badge {decision}\">{decision.upper()}</span> "
-                   f"{esc(inc.get('reason', ''))} (<a href=\"#incumbent\">details</a>)</p>")
-    return ("<div class=\"callout\" id=\"recommendation\"><p class=\"kicker\">Rank 1</p>"
-            f"<p class=\"lead\">{_entry_words(entry)}</p>"
-            f"<p>{_why(entry)} See the <a href=\"#cautions\">cautions</a> before relying on "
-            f"it.</p>{verdict}</div>")
+        verdict = (
+            f'<p>Incumbent: <span class="badge {decision}">{decision.upper()}</span> '
+            f'{esc(inc.get("reason", ""))} (<a href="#incumbent">details</a>)</p>'
+        )
+    return (
+        '<div class="callout" id="recommendation"><p class="kicker">Rank 1</p>'
+        f'<p class="lead">{_entry_words(entry)}</p>'
+        f'<p>{_why(entry)} See the <a href="#cautions">cautions</a> before relying on '
+        f"it.</p>{verdict}</div>"
+    )
 
 
 def _incumbent(inc: dict | None, ident: str = "incumbent", level: int = 2) -> str:
@@ -412,72 +497,96 @@ def _incumbent(inc: dict | None, ident: str = "incumbent", level: int = 2) -> st
         return ""
     decision = str(inc.get("decision", "")).lower()
     spec = inc.get("specification")
-    rows = [("Decision", f"<span class=\"badge {esc(decision)}\">{esc(decision.upper())}</span>"),
-            ("Reason", esc(inc.get("reason", "")))]
+    rows = [
+        ("Decision", f'<span class="badge {esc(decision)}">{esc(decision.upper())}</span>'),
+        ("Reason", esc(inc.get("reason", ""))),
+    ]
     if spec:
         rows.append(("Incumbent", spec_words(spec)))
-    rows.append(("Its rank in this run", esc(inc["rank"]) if inc.get("rank") is not None
-                 else "not ranked"))
+    rows.append(
+        ("Its rank in this run", esc(inc["rank"]) if inc.get("rank") is not None else "not ranked")
+    )
     if inc.get("cv"):
         rows.append((f"Its CV {esc(inc['cv'].get('metric', ''))} \u00b1 SE", _cv_text(inc["cv"])))
     diff = inc.get("difference")
     if diff:
-        rows.append(("Rank 1 minus incumbent", f"{num(diff.get('value'))} (paired standard "
-                     f"error {num(diff.get('std_error'))}); negative means rank 1 predicts "
-                     "better"))
-    return (f"<section class=\"incumbent\" id=\"{ident}\"><h{level}>Incumbent specification"
-            f"</h{level}>" + _facts(rows) + "</section>")
+        rows.append(
+            (
+                "Rank 1 minus incumbent",
+                f"{num(diff.get('value'))} (paired standard "
+                f"error {num(diff.get('std_error'))}); negative means rank 1 predicts "
+                "better",
+            )
+        )
+    return (
+        f'<section class="incumbent" id="{ident}"><h{level}>Incumbent specification'
+        f"</h{level}>" + _facts(rows) + "</section>"
+    )
 
 
 def _ranking_table(entries: list[dict], detail_ids: dict) -> str:
     if not entries:
         return "<p>No specification was ranked.</p>"
     metric = esc(entries[0]["cv"].get("metric", "error"))
-    head = ("<thead><tr><th class=\"n\" scope=\"col\">Rank</th>"
-            "<th scope=\"col\">Specification</th>"
-            f"<th class=\"n\" scope=\"col\">CV {metric} \u00b1 SE</th>"
-            "<th class=\"n\" scope=\"col\">Above lowest</th>"
-            "<th scope=\"col\">Within 1 SE</th>"
-            + "".join(f"<th class=\"c\" scope=\"col\"><abbr title=\"{label}\">{short}</abbr></th>"
-                      for _, label, short in CONDITIONS) + "</tr></thead>")
+    head = (
+        '<thead><tr><th class="n" scope="col">Rank</th>'
+        '<th scope="col">Specification</th>'
+        f'<th class="n" scope="col">CV {metric} \u00b1 SE</th>'
+        '<th class="n" scope="col">Above lowest</th>'
+        '<th scope="col">Within 1 SE</th>'
+        + "".join(
+            f'<th class="c" scope="col"><abbr title="{label}">{short}</abbr></th>'
+            for _, label, short in CONDITIONS
+        )
+        + "</tr></thead>"
+    )
     rows = []
     for e in entries:
         parts = (e.get("score") or {}).get("parts") or {}
         conds = e.get("conditions") or {}
         cells = "".join(
-            f"<td class=\"c{' fail' if (conds.get(k) or {}).get('holds') is False else ''}\">"
-            f"{_mark((conds.get(k) or {}).get('holds'), label)}</td>" for k, label, _ in CONDITIONS)
+            f'<td class="c{" fail" if (conds.get(k) or {}).get("holds") is False else ""}">'
+            f"{_mark((conds.get(k) or {}).get('holds'), label)}</td>"
+            for k, label, _ in CONDITIONS
+        )
         anchor = detail_ids.get(e["rank"])
         words = _entry_words(e)
         if anchor:
-            words = f"<a href=\"#{anchor}\">{words}</a>"
+            words = f'<a href="#{anchor}">{words}</a>'
         rows.append(
-            f"<tr><td class=\"n\">{esc(e['rank'])}</td><td>{words}</td>"
-            f"<td class=\"n cv\">{_cv_text(e.get('cv'))}</td>"
-            f"<td class=\"n\">{num(parts.get('difference_from_best'))}</td>"
-            f"<td>{_yes_no(parts.get('within_one_se'))}</td>{cells}</tr>")
-    legend = ("<p class=\"legend\">Conditions: <span aria-hidden=\"true\">\u2713</span> holds, "
-              "<span aria-hidden=\"true\">\u2717</span> fails, "
-              "<span aria-hidden=\"true\">\u25cb</span> not tested. CV errors are on the original "
-              "scale of the response, so every row is comparable; \u201cabove lowest\u201d is the "
-              "difference from the lowest CV error of the whole search.</p>")
-    return (legend + f"<table class=\"ranking\">{head}<tbody>{''.join(rows)}</tbody></table>")
+            f'<tr><td class="n">{esc(e["rank"])}</td><td>{words}</td>'
+            f'<td class="n cv">{_cv_text(e.get("cv"))}</td>'
+            f'<td class="n">{num(parts.get("difference_from_best"))}</td>'
+            f"<td>{_yes_no(parts.get('within_one_se'))}</td>{cells}</tr>"
+        )
+    legend = (
+        '<p class="legend">Conditions: <span aria-hidden="true">\u2713</span> holds, '
+        '<span aria-hidden="true">\u2717</span> fails, '
+        '<span aria-hidden="true">\u25cb</span> not tested. CV errors are on the original '
+        "scale of the response, so every row is comparable; \u201cabove lowest\u201d is the "
+        "difference from the lowest CV error of the whole search.</p>"
+    )
+    return legend + f'<table class="ranking">{head}<tbody>{"".join(rows)}</tbody></table>'
 
 
 def _coefficients(entry: dict) -> str:
     rows = "".join(
-        f"<tr><td><code>{esc(c['term'])}</code></td><td class=\"n est\">{num(c.get('estimate'))}</td>"
-        f"<td class=\"n\">{num(c.get('std_error'))}</td><td class=\"n\">{num(c.get('t_statistic'))}</td>"
-        f"<td class=\"n\">{pval(c.get('p_value'))}</td>"
-        f"<td class=\"n\">{num(c.get('ci_low'))} to {num(c.get('ci_high'))}</td></tr>"
-        for c in entry.get("coefficients", []))
+        f'<tr><td><code>{esc(c["term"])}</code></td><td class="n est">{num(c.get("estimate"))}</td>'
+        f'<td class="n">{num(c.get("std_error"))}</td><td class="n">{num(c.get("t_statistic"))}</td>'
+        f'<td class="n">{pval(c.get("p_value"))}</td>'
+        f'<td class="n">{num(c.get("ci_low"))} to {num(c.get("ci_high"))}</td></tr>'
+        for c in entry.get("coefficients", [])
+    )
     scale = esc(entry["equation"].split(" = ")[0]) if " = " in entry.get("equation", "") else ""
-    return ("<table class=\"coefficients\"><caption>Coefficients on the model scale"
-            + (f" (<code>{scale}</code>)" if scale else "") + "</caption><thead><tr>"
-            "<th scope=\"col\">Term</th><th class=\"n\" scope=\"col\">Estimate</th>"
-            "<th class=\"n\" scope=\"col\">Std. error</th><th class=\"n\" scope=\"col\">t</th>"
-            "<th class=\"n\" scope=\"col\">p-value</th><th class=\"n\" scope=\"col\">95% CI</th>"
-            f"</tr></thead><tbody>{rows}</tbody></table>")
+    return (
+        '<table class="coefficients"><caption>Coefficients on the model scale'
+        + (f" (<code>{scale}</code>)" if scale else "")
+        + "</caption><thead><tr>"
+        '<th scope="col">Term</th><th class="n" scope="col">Estimate</th>'
+        '<th class="n" scope="col">Std. error</th><th class="n" scope="col">t</th>'
+        '<th class="n" scope="col">p-value</th><th class="n" scope="col">95% CI</th>'
+        f"</tr></thead><tbody>{rows}</tbody></table>"
+    )
 
 
 def _conditions(entry: dict) -> str:
@@ -488,20 +597,28 @@ def _conditions(entry: dict) -> str:
         if c is None:
             continue
         kind, symbol, word = _MARKS.get(c.get("holds"), _MARKS[None])
-        tests = "; ".join(f"{esc(t.get('name', ''))}: {num(t.get('statistic'))}"
-                          + (f", p = {pval(t['p_value'])}" if t.get("p_value") is not None else "")
-                          for t in c.get("tests", []))
-        rows.append(f"<tr><th scope=\"row\">{label}</th>"
-                    f"<td class=\"{'fail' if kind == 'fail' else ''}\"><span class=\"mark {kind}\" "
-                    f"aria-hidden=\"true\">{symbol}</span> {word}</td>"
-                    f"<td>{esc(c.get('note', ''))}"
-                    + (f"<div class=\"tests\">{tests}</div>" if tests else "") + "</td></tr>")
+        tests = "; ".join(
+            f"{esc(t.get('name', ''))}: {num(t.get('statistic'))}"
+            + (f", p = {pval(t['p_value'])}" if t.get("p_value") is not None else "")
+            for t in c.get("tests", [])
+        )
+        rows.append(
+            f'<tr><th scope="row">{label}</th>'
+            f'<td class="{"fail" if kind == "fail" else ""}"><span class="mark {kind}" '
+            f'aria-hidden="true">{symbol}</span> {word}</td>'
+            f"<td>{esc(c.get('note', ''))}"
+            + (f'<div class="tests">{tests}</div>' if tests else "")
+            + "</td></tr>"
+        )
     if not rows:
         return ""
-    return ("<table class=\"conditions\"><caption>Regression conditions</caption><thead><tr>"
-            "<th scope=\"col\">Condition</th><th scope=\"col\">Result</th>"
-            "<th scope=\"col\">What the tests say</th></tr></thead><tbody>"
-            + "".join(rows) + "</tbody></table>")
+    return (
+        '<table class="conditions"><caption>Regression conditions</caption><thead><tr>'
+        '<th scope="col">Condition</th><th scope="col">Result</th>'
+        '<th scope="col">What the tests say</th></tr></thead><tbody>'
+        + "".join(rows)
+        + "</tbody></table>"
+    )
 
 
 def _detail(entry: dict, plots, anchor: str, heading: str, level: int = 2) -> str:
@@ -509,22 +626,33 @@ def _detail(entry: dict, plots, anchor: str, heading: str, level: int = 2) -> st
     cv = entry.get("cv") or {}
     parts = (entry.get("score") or {}).get("parts") or {}
     r2_scale = "model scale" if fit.get("r_squared_scale") == "model" else "original scale"
-    facts = [("Equation", f"<code class=\"eq\">{esc(entry['equation'])}</code>"),
-             (f"CV {esc(cv.get('metric', ''))} \u00b1 SE", _cv_text(cv)),
-             ("Rows in the fit", num(fit.get("n"))),
-             (f"R\u00b2 ({r2_scale})", num(fit.get("r_squared"))
-              + (f"; on the original scale {num(fit['r_squared_original_scale'])}"
-                 if fit.get("r_squared_original_scale") is not None
-                 and fit.get("r_squared_scale") == "model" else "")),
-             ("Residual standard deviation", f"{num(fit.get('sigma'))} (model scale)"),
-             ("How it was ranked", esc(parts.get("rule", "")))]
+    facts = [
+        ("Equation", f'<code class="eq">{esc(entry["equation"])}</code>'),
+        (f"CV {esc(cv.get('metric', ''))} \u00b1 SE", _cv_text(cv)),
+        ("Rows in the fit", num(fit.get("n"))),
+        (
+            f"R\u00b2 ({r2_scale})",
+            num(fit.get("r_squared"))
+            + (
+                f"; on the original scale {num(fit['r_squared_original_scale'])}"
+                if fit.get("r_squared_original_scale") is not None
+                and fit.get("r_squared_scale") == "model"
+                else ""
+            ),
+        ),
+        ("Residual standard deviation", f"{num(fit.get('sigma'))} (model scale)"),
+        ("How it was ranked", esc(parts.get("rule", ""))),
+    ]
     sub = level + 1
-    out = [f"<section class=\"detail\" id=\"{anchor}\"><h{level}>{heading}</h{level}>",
-           f"<p class=\"lead\">{_entry_words(entry)}</p>", _facts(facts),
-           _figure(plots, entry, f"{anchor}-fig"), _coefficients(entry)]
+    out = [
+        f'<section class="detail" id="{anchor}"><h{level}>{heading}</h{level}>',
+        f'<p class="lead">{_entry_words(entry)}</p>',
+        _facts(facts),
+        _figure(plots, entry, f"{anchor}-fig"),
+        _coefficients(entry),
+    ]
     if entry.get("interpretation"):
-        out.append(f"<h{sub}>What the coefficients say</h{sub}>"
-                   + _list(entry["interpretation"]))
+        out.append(f"<h{sub}>What the coefficients say</h{sub}>" + _list(entry["interpretation"]))
     out.append(_conditions(entry))
     if entry.get("warnings"):
         out.append(f"<h{sub}>Warnings</h{sub}>" + _list(entry["warnings"], "plain warn"))
@@ -538,12 +666,21 @@ def _selection(body: dict, plots: dict, group, prefix: str, level: int = 2) -> s
     detail = [e for e in entries if (group, e["rank"]) in plots]
     ids = {e["rank"]: f"{prefix}rank-{e['rank']}" for e in detail}
     title = "Ranking" if group is None else "Ranking in this group"
-    out = [f"<section id=\"{prefix}ranking\"><h{level}>{title}</h{level}>",
-           _ranking_table(entries, ids), "</section>"]
+    out = [
+        f'<section id="{prefix}ranking"><h{level}>{title}</h{level}>',
+        _ranking_table(entries, ids),
+        "</section>",
+    ]
     for e in detail:
-        out.append(_detail(e, plots[(group, e["rank"])], ids[e["rank"]],
-                           f"Rank {esc(e['rank'])}"
-                           + (f" in group {esc(group)}" if group is not None else ""), level))
+        out.append(
+            _detail(
+                e,
+                plots[(group, e["rank"])],
+                ids[e["rank"]],
+                f"Rank {esc(e['rank'])}" + (f" in group {esc(group)}" if group is not None else ""),
+                level,
+            )
+        )
     return "".join(out)
 
 
@@ -551,24 +688,29 @@ def _groups(body: dict, plots: dict) -> str:
     out = []
     for i, (name, gbody) in enumerate((body.get("groups") or {}).items()):
         gid = f"g{i + 1}-"
-        out.append(f"<section class=\"group\" id=\"{gid}group\"><h2>Group {esc(name)}</h2>")
+        out.append(f'<section class="group" id="{gid}group"><h2>Group {esc(name)}</h2>')
         problem = gbody.get("problem")
         if problem:
-            out.append(f"<p class=\"problem\"><strong>Could not be modelled:</strong> "
-                       f"{esc(problem.get('detail', ''))}</p>")
+            out.append(
+                f'<p class="problem"><strong>Could not be modelled:</strong> '
+                f"{esc(problem.get('detail', ''))}</p>"
+            )
             out.append(_list([e.get("detail", "") for e in problem.get("errors", [])]))
             out.append("</section>")
             continue
         data = gbody.get("data") or {}
         search = gbody.get("search") or {}
-        out.append(f"<p>{num(data.get('rows_used'))} rows; "
-                   f"{num(search.get('candidates_scored'))} of "
-                   f"{num(search.get('candidates_considered'))} candidates scored"
-                   + ("" if search.get("complete", True) else "; <strong>incomplete</strong>")
-                   + ".</p>")
+        out.append(
+            f"<p>{num(data.get('rows_used'))} rows; "
+            f"{num(search.get('candidates_scored'))} of "
+            f"{num(search.get('candidates_considered'))} candidates scored"
+            + ("" if search.get("complete", True) else "; <strong>incomplete</strong>")
+            + ".</p>"
+        )
         if gbody.get("ranking"):
-            out.append(f"<p>Rank 1: {_entry_words(gbody['ranking'][0])}. "
-                       f"{_why(gbody['ranking'][0])}</p>")
+            out.append(
+                f"<p>Rank 1: {_entry_words(gbody['ranking'][0])}. {_why(gbody['ranking'][0])}</p>"
+            )
         out.append(_incumbent(gbody.get("incumbent"), f"{gid}incumbent", level=3))
         out.append(_selection(gbody, plots, name, gid, level=3))
         if gbody.get("warnings"):
@@ -589,12 +731,19 @@ def _trust(trust: dict | None) -> str:
             if said:
                 rows.append((label, esc(said)))
                 continue
-            rows.append((label, "; ".join(
-                f"{esc(str(k).replace('_', ' '))} {_scalar(v)}" for k, v in value.items()
-                if isinstance(v, (int, float, str)))))
+            rows.append(
+                (
+                    label,
+                    "; ".join(
+                        f"{esc(str(k).replace('_', ' '))} {_scalar(v)}"
+                        for k, v in value.items()
+                        if isinstance(v, (int, float, str))
+                    ),
+                )
+            )
         elif isinstance(value, (int, float, str)):
             rows.append((label, _scalar(value)))
-    return "<section id=\"trust\"><h2>How far to trust the choice</h2>" + _facts(rows) + "</section>"
+    return '<section id="trust"><h2>How far to trust the choice</h2>' + _facts(rows) + "</section>"
 
 
 def _scalar(value) -> str:
@@ -610,19 +759,25 @@ def _contents(body: dict, plots: dict) -> str:
     if body.get("incumbent"):
         links.append(("incumbent", "Incumbent specification"))
     if body.get("groups"):
-        links += [(f"g{i + 1}-group", f"Group {esc(name)}")
-                  for i, name in enumerate(body["groups"])]
+        links += [
+            (f"g{i + 1}-group", f"Group {esc(name)}") for i, name in enumerate(body["groups"])
+        ]
     else:
         links.append(("ranking", "Ranking"))
-        links += [(f"rank-{r}", f"Rank {r} in detail") for g, r in sorted(
-            (k for k in plots if k[0] is None), key=lambda k: k[1])]
+        links += [
+            (f"rank-{r}", f"Rank {r} in detail")
+            for g, r in sorted((k for k in plots if k[0] is None), key=lambda k: k[1])
+        ]
     if body.get("trust"):
         links.append(("trust", "How far to trust the choice"))
     if body.get("warnings"):
         links.append(("warnings", "Warnings"))
     links.append(("cautions", "Cautions"))
-    return ("<nav aria-label=\"Contents\"><ol>"
-            + "".join(f"<li><a href=\"#{a}\">{t}</a></li>" for a, t in links) + "</ol></nav>")
+    return (
+        '<nav aria-label="Contents"><ol>'
+        + "".join(f'<li><a href="#{a}">{t}</a></li>' for a, t in links)
+        + "</ol></nav>"
+    )
 
 
 # ------------------------------------------------------------------------ page
@@ -734,22 +889,24 @@ def render_report(body: dict, plots: dict | None = None, context: dict | None = 
     plots = plots or {}
     context = context or {}
     first = _first_entry(body)
-    response = context.get("response") or (first["specification"]["response"]["column"]
-                                           if first else "")
+    response = context.get("response") or (
+        first["specification"]["response"]["column"] if first else ""
+    )
     version = esc(body.get("service_version", ""))
     parts = [
-        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"/>",
-        "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"/>",
-        f"<meta http-equiv=\"Content-Security-Policy\" content=\"{CSP}\"/>",
-        f"<meta name=\"generator\" content=\"Bestscale {version}\"/>",
+        '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8"/>',
+        '<meta name="viewport" content="width=device-width, initial-scale=1"/>',
+        f'<meta http-equiv="Content-Security-Policy" content="{CSP}"/>',
+        f'<meta name="generator" content="Bestscale {version}"/>',
         f"<title>Scale selection for {esc(response)}</title>",
         f"<style>{CSS}</style></head><body><main>",
-        "<header><p class=\"kicker\">Bestscale scale selection report</p>",
-        f"<h1>On which scale to model <span class=\"col\">{esc(response)}</span></h1>",
-        "<p class=\"sub\">Every candidate specification was scored by cross-validated error on "
+        '<header><p class="kicker">Bestscale scale selection report</p>',
+        f'<h1>On which scale to model <span class="col">{esc(response)}</span></h1>',
+        '<p class="sub">Every candidate specification was scored by cross-validated error on '
         "the original scale of the response and checked against the regression conditions. "
         "This page shows the same numbers as the JSON response.</p>",
-        _contents(body, plots), "</header>",
+        _contents(body, plots),
+        "</header>",
         _recommendation(body),
         _summary(body, context),
         _incumbent(body.get("incumbent")),
@@ -760,14 +917,20 @@ def render_report(body: dict, plots: dict | None = None, context: dict | None = 
         parts.append(_selection(body, plots, None, ""))
     parts.append(_trust(body.get("trust")))
     if body.get("warnings"):
-        parts.append("<section id=\"warnings\"><h2>Warnings</h2>"
-                     + _list(body["warnings"], "plain warn") + "</section>")
-    parts.append("<section id=\"cautions\"><h2>Cautions</h2>"
-                 "<p>Read these before acting on the ranking; it supports your own review of "
-                 "the model and does not replace it.</p>"
-                 + _list(body.get("cautions") or []) + "</section>")
-    parts.append(f"<footer>Bestscale {version}. The same request always gives the same "
-                 "ranking; the machine-readable result is the JSON response of "
-                 "<code>POST /v1/selections</code> for this request.</footer>")
+        parts.append(
+            '<section id="warnings"><h2>Warnings</h2>'
+            + _list(body["warnings"], "plain warn")
+            + "</section>"
+        )
+    parts.append(
+        '<section id="cautions"><h2>Cautions</h2>'
+        "<p>Read these before acting on the ranking; it supports your own review of "
+        "the model and does not replace it.</p>" + _list(body.get("cautions") or []) + "</section>"
+    )
+    parts.append(
+        f"<footer>Bestscale {version}. The same request always gives the same "
+        "ranking; the machine-readable result is the JSON response of "
+        "<code>POST /v1/selections</code> for this request.</footer>"
+    )
     parts.append("</main></body></html>\n")
     return "".join(parts)

@@ -26,34 +26,58 @@ class Settings(BaseSettings):
     host: str = Field("127.0.0.1", min_length=1, description="address to listen on")
     port: int = Field(8000, ge=1, le=65535, description="port to listen on")
     workers: int = Field(1, ge=1, le=64, description="server processes")
-    group_processes: int = Field(1, ge=1, le=64,
-                                 description="processes that share the groups of one group_by "
-                                             "request (1: in the request's own process)")
-    pool_size: int = Field(2, ge=1, le=256,
-                           description="compute-bound requests running at once per process; "
-                                       "more get 503 with Retry-After")
+    group_processes: int = Field(
+        1,
+        ge=1,
+        le=64,
+        description="processes that share the groups of one group_by "
+        "request (1: in the request's own process)",
+    )
+    pool_size: int = Field(
+        2,
+        ge=1,
+        le=256,
+        description="compute-bound requests running at once per process; "
+        "more get 503 with Retry-After",
+    )
     blas_threads: int = Field(1, ge=1, le=64, description="BLAS threads per process")
-    max_body_bytes: int = Field(64 * 1024 * 1024, ge=1024, le=2**34,
-                                description="larger request bodies get 413 before they are read")
-    body_timeout_s: float = Field(60.0, gt=0, le=3600,
-                                  description="a request body must arrive whole within this many "
-                                              "seconds of the request's start (408 otherwise)")
+    max_body_bytes: int = Field(
+        64 * 1024 * 1024,
+        ge=1024,
+        le=2**34,
+        description="larger request bodies get 413 before they are read",
+    )
+    body_timeout_s: float = Field(
+        60.0,
+        gt=0,
+        le=3600,
+        description="a request body must arrive whole within this many "
+        "seconds of the request's start (408 otherwise)",
+    )
     max_rows: int = Field(1_000_000, ge=10, description="table rows accepted (422 past it)")
     max_columns: int = Field(200, ge=2, description="columns a request may use (422 past it)")
     max_candidates: int = Field(20_000, ge=1, description="largest limits.max_candidates accepted")
-    default_max_candidates: int = Field(5_000, ge=1, description="limits.max_candidates when omitted")
+    default_max_candidates: int = Field(
+        5_000, ge=1, description="limits.max_candidates when omitted"
+    )
     max_groups: int = Field(1000, ge=1, description="group_by values per request (422 past it)")
-    default_time_limit_s: float = Field(60.0, gt=0, le=86400,
-                                        description="limits.time_limit_s when omitted")
-    max_time_limit_s: float = Field(600.0, gt=0, le=86400,
-                                    description="largest limits.time_limit_s accepted")
+    default_time_limit_s: float = Field(
+        60.0, gt=0, le=86400, description="limits.time_limit_s when omitted"
+    )
+    max_time_limit_s: float = Field(
+        600.0, gt=0, le=86400, description="largest limits.time_limit_s accepted"
+    )
     api_token: SecretStr | None = Field(
-        None, description="if set, /v1/* requires 'Authorization: Bearer <token>'")
+        None, description="if set, /v1/* requires 'Authorization: Bearer <token>'"
+    )
     cors_origins: Annotated[list[str], NoDecode] = Field(
-        default_factory=list, description="browser origins allowed to call the API: a JSON list "
-        "or a comma-separated list of scheme://host[:port]; empty allows none")
+        default_factory=list,
+        description="browser origins allowed to call the API: a JSON list "
+        "or a comma-separated list of scheme://host[:port]; empty allows none",
+    )
     log_level: Literal["critical", "error", "warning", "info", "debug"] = Field(
-        "info", description="level of the JSON log lines")
+        "info", description="level of the JSON log lines"
+    )
 
     @field_validator("log_level", mode="before")
     @classmethod
@@ -68,8 +92,9 @@ class Settings(BaseSettings):
             if not v:
                 return None  # an empty variable means "no token", as if it were unset
             if len(v) < 16 or not _TOKEN.match(v):
-                raise ValueError("the API token must be at least 16 visible ASCII characters "
-                                 "without spaces")
+                raise ValueError(
+                    "the API token must be at least 16 visible ASCII characters without spaces"
+                )
         return v
 
     @field_validator("cors_origins", mode="before")
@@ -87,18 +112,24 @@ class Settings(BaseSettings):
         if isinstance(v, list):
             for origin in v:
                 if not isinstance(origin, str) or not (origin == "*" or _ORIGIN.match(origin)):
-                    raise ValueError(f"CORS origin {origin!r} is not scheme://host[:port] "
-                                     "(no path, no trailing slash) or '*'")
+                    raise ValueError(
+                        f"CORS origin {origin!r} is not scheme://host[:port] "
+                        "(no path, no trailing slash) or '*'"
+                    )
         return v
 
     @model_validator(mode="after")
     def _defaults_within_limits(self):
         if self.default_max_candidates > self.max_candidates:
-            raise ValueError(f"default_max_candidates ({self.default_max_candidates}) exceeds "
-                             f"max_candidates ({self.max_candidates})")
+            raise ValueError(
+                f"default_max_candidates ({self.default_max_candidates}) exceeds "
+                f"max_candidates ({self.max_candidates})"
+            )
         if self.default_time_limit_s > self.max_time_limit_s:
-            raise ValueError(f"default_time_limit_s ({self.default_time_limit_s:g}) exceeds "
-                             f"max_time_limit_s ({self.max_time_limit_s:g})")
+            raise ValueError(
+                f"default_time_limit_s ({self.default_time_limit_s:g}) exceeds "
+                f"max_time_limit_s ({self.max_time_limit_s:g})"
+            )
         return self
 
     def token(self) -> str | None:
@@ -122,6 +153,6 @@ def describe_error(exc: Exception) -> str:
         loc = e.get("loc") or ()
         var = f"BESTSCALE_{str(loc[0]).upper()}" if loc else "settings"
         msg = e.get("msg", "invalid value")
-        msg = msg[len("Value error, "):] if msg.startswith("Value error, ") else msg
+        msg = msg[len("Value error, ") :] if msg.startswith("Value error, ") else msg
         lines.append(f"{var}: {msg}")
     return "\n".join(lines)

@@ -20,18 +20,21 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 from fastapi.testclient import TestClient
-
 from service.app import app
 from service.cli import select_main
 
 ROOT = Path(__file__).resolve().parents[1]
 PREDICTORS = ["pipe_length_m", "pipe_age_years", "soil"]
-OPTIONS = {"transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
-           "validation": {"folds": 4, "seed": 11}, "top": 2,
-           "units": {"pipe_length_m": "metre"}}
-INCUMBENT = {"response": {"column": "repair_cost", "transform": {"name": "identity"}},
-             "predictors": [{"column": "pipe_length_m"}, {"column": "pipe_age_years"},
-                            {"column": "soil"}]}
+OPTIONS = {
+    "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+    "validation": {"folds": 4, "seed": 11},
+    "top": 2,
+    "units": {"pipe_length_m": "metre"},
+}
+INCUMBENT = {
+    "response": {"column": "repair_cost", "transform": {"name": "identity"}},
+    "predictors": [{"column": "pipe_length_m"}, {"column": "pipe_age_years"}, {"column": "soil"}],
+}
 _ELAPSED = re.compile(r'"elapsed_s":\s*[-0-9.eE+]+')
 
 
@@ -41,11 +44,20 @@ def _table(n: int = 150) -> dict:
     age = rng.integers(1, 70, n)
     soil = rng.choice(["clay", "loam", "sand"], n)
     district = rng.choice(["coast", "hills", "valley"], n)
-    cost = np.exp(4.2 + 0.7 * np.log(length) + 0.01 * age + np.where(soil == "clay", 0.2, 0.0)
-                  + rng.normal(0.0, 0.2, n))
-    return {"repair_cost": np.round(cost, 2).tolist(), "pipe_length_m": length.tolist(),
-            "pipe_age_years": [int(a) for a in age], "soil": soil.tolist(),
-            "district": district.tolist()}
+    cost = np.exp(
+        4.2
+        + 0.7 * np.log(length)
+        + 0.01 * age
+        + np.where(soil == "clay", 0.2, 0.0)
+        + rng.normal(0.0, 0.2, n)
+    )
+    return {
+        "repair_cost": np.round(cost, 2).tolist(),
+        "pipe_length_m": length.tolist(),
+        "pipe_age_years": [int(a) for a in age],
+        "soil": soil.tolist(),
+        "district": district.tolist(),
+    }
 
 
 TABLE = _table()
@@ -57,9 +69,21 @@ def _canonical(text: str) -> str:
 
 
 def _command(data: Path, out: Path, *extra: str) -> list[str]:
-    return [sys.executable, "-m", "service", "select", "--data", str(data),
-            "--response", "repair_cost", "--predictors", ",".join(PREDICTORS),
-            "--out", str(out), *extra]
+    return [
+        sys.executable,
+        "-m",
+        "service",
+        "select",
+        "--data",
+        str(data),
+        "--response",
+        "repair_cost",
+        "--predictors",
+        ",".join(PREDICTORS),
+        "--out",
+        str(out),
+        *extra,
+    ]
 
 
 @pytest.fixture(scope="module")
@@ -73,7 +97,7 @@ def test_cli_output_equals_the_api_for_csv_and_parquet(tmp_path, client):
     with csv_path.open("w", newline="") as f:
         w = csv.writer(f)
         w.writerow(list(TABLE))
-        w.writerows(zip(*TABLE.values()))
+        w.writerows(zip(*TABLE.values(), strict=True))
     pq_path = tmp_path / "repairs.parquet"
     pq.write_table(pa.table(TABLE), pq_path)
     (tmp_path / "options.json").write_text(json.dumps(OPTIONS))
@@ -81,18 +105,35 @@ def test_cli_output_equals_the_api_for_csv_and_parquet(tmp_path, client):
     opts = ["--options", str(tmp_path / "options.json")]
     # both jobs start at once (each pays the interpreter's start-up); the API runs meanwhile
     job_csv = subprocess.Popen(
-        _command(csv_path, tmp_path / "csv.json", *opts, "--incumbent",
-                 str(tmp_path / "incumbent.json")),
-        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        _command(
+            csv_path, tmp_path / "csv.json", *opts, "--incumbent", str(tmp_path / "incumbent.json")
+        ),
+        cwd=ROOT,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     job_pq = subprocess.Popen(
         _command(pq_path, tmp_path / "pq.json", *opts, "--group-by", "district"),
-        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        cwd=ROOT,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
 
     base = {"response": "repair_cost", "predictors": PREDICTORS, **OPTIONS}
-    api_csv = client.post("/v1/selections", json={
-        **base, "data": {"csv": csv_path.read_text()}, "incumbent": INCUMBENT})
-    api_pq = client.post("/v1/selections", json={
-        **base, "data": {"columns": pq.read_table(pq_path).to_pydict()}, "group_by": "district"})
+    api_csv = client.post(
+        "/v1/selections",
+        json={**base, "data": {"csv": csv_path.read_text()}, "incumbent": INCUMBENT},
+    )
+    api_pq = client.post(
+        "/v1/selections",
+        json={
+            **base,
+            "data": {"columns": pq.read_table(pq_path).to_pydict()},
+            "group_by": "district",
+        },
+    )
     assert api_csv.status_code == 200 and api_pq.status_code == 200
 
     _, err_csv = job_csv.communicate(timeout=120)
@@ -113,8 +154,16 @@ def test_cli_output_equals_the_api_for_csv_and_parquet(tmp_path, client):
 def test_cli_reports_a_bad_column_with_its_pointer(tmp_path, capsys):
     path = tmp_path / "repairs.csv"
     path.write_text("repair_cost,pipe_length_m\n10,2\n12,3\n")
-    code = select_main(["--data", str(path), "--response", "repair_cost",
-                        "--predictors", "pipe_length_m,diameter_mm"])
+    code = select_main(
+        [
+            "--data",
+            str(path),
+            "--response",
+            "repair_cost",
+            "--predictors",
+            "pipe_length_m,diameter_mm",
+        ]
+    )
     assert code == 2
     err = capsys.readouterr().err
     assert "/predictors/1" in err and "diameter_mm" in err
@@ -124,7 +173,17 @@ def test_cli_rejects_an_invalid_option_file(tmp_path, capsys):
     path = tmp_path / "repairs.csv"
     path.write_text("repair_cost,pipe_length_m\n10,2\n12,3\n")
     (tmp_path / "o.json").write_text(json.dumps({"validation": {"folds": 1}}))
-    code = select_main(["--data", str(path), "--response", "repair_cost",
-                        "--predictors", "pipe_length_m", "--options", str(tmp_path / "o.json")])
+    code = select_main(
+        [
+            "--data",
+            str(path),
+            "--response",
+            "repair_cost",
+            "--predictors",
+            "pipe_length_m",
+            "--options",
+            str(tmp_path / "o.json"),
+        ]
+    )
     assert code == 2
     assert "invalid request" in capsys.readouterr().err

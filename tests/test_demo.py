@@ -4,7 +4,6 @@ import json
 from pathlib import Path
 
 from fastapi.testclient import TestClient
-
 from service.app import app
 from service.demo import demo_request
 

@@ -9,8 +9,6 @@ from pathlib import Path
 
 import pytest
 from fastapi.testclient import TestClient
-from threadpoolctl import threadpool_limits
-
 from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare
@@ -19,6 +17,7 @@ from service.core.trust import assess_trust
 from service.core.workers import process_mapper
 from service.demo import demo_columns
 from service.settings import get_settings
+from threadpoolctl import threadpool_limits
 
 ROOT = Path(__file__).resolve().parents[1]
 URL = "/v1/selections"
@@ -30,25 +29,40 @@ def _demo_request() -> dict:
     body = json.loads((ROOT / "openapi_examples" / "selections.request.json").read_text())
     cols = body["data"]["columns"]
     body["data"]["columns"] = {k: v[:160] for k, v in cols.items()}
-    body["transforms"] = {"response": ["identity", "log", "box_cox", "yeo_johnson"],
-                          "predictors": ["identity", "log"]}
-    body["incumbent"] = {"response": {"column": "repair_cost", "transform": {"name": "sqrt"}},
-                         "predictors": [{"column": p} for p in body["predictors"]]}
+    body["transforms"] = {
+        "response": ["identity", "log", "box_cox", "yeo_johnson"],
+        "predictors": ["identity", "log"],
+    }
+    body["incumbent"] = {
+        "response": {"column": "repair_cost", "transform": {"name": "sqrt"}},
+        "predictors": [{"column": p} for p in body["predictors"]],
+    }
     return body
 
 
 def _grouped_request() -> dict:
     cols = demo_columns(180, seed=5)
-    cols["district"] = (["coast", "hills", "valley"] * 60)
-    return {"data": {"columns": cols}, "response": "repair_cost",
-            "predictors": ["pipe_length_m", "pipe_age_years", "soil"], "group_by": "district",
-            "transforms": {"response": ["identity", "log", "box_cox"],
-                           "predictors": ["identity", "log"]},
-            "validation": {"folds": 5, "repeats": 2, "seed": 17}, "top": 2,
-            "incumbent": {"response": {"column": "repair_cost", "transform": {"name": "log"}},
-                          "predictors": [{"column": "pipe_length_m",
-                                          "transform": {"name": "log"}},
-                                         {"column": "pipe_age_years"}, {"column": "soil"}]}}
+    cols["district"] = ["coast", "hills", "valley"] * 60
+    return {
+        "data": {"columns": cols},
+        "response": "repair_cost",
+        "predictors": ["pipe_length_m", "pipe_age_years", "soil"],
+        "group_by": "district",
+        "transforms": {
+            "response": ["identity", "log", "box_cox"],
+            "predictors": ["identity", "log"],
+        },
+        "validation": {"folds": 5, "repeats": 2, "seed": 17},
+        "top": 2,
+        "incumbent": {
+            "response": {"column": "repair_cost", "transform": {"name": "log"}},
+            "predictors": [
+                {"column": "pipe_length_m", "transform": {"name": "log"}},
+                {"column": "pipe_age_years"},
+                {"column": "soil"},
+            ],
+        },
+    }
 
 
 def _bytes(client, body) -> bytes:
@@ -89,10 +103,12 @@ def test_result_does_not_depend_on_pool_or_process_counts(client, monkeypatch, m
 
 def test_result_does_not_depend_on_blas_threads():
     # enough rows for multi-threaded BLAS kernels to split the work
-    prep = prepare({"columns": demo_columns(3000)}, "repair_cost",
-                   ["pipe_length_m", "pipe_age_years", "soil"])
-    opts = SearchOptions(response_transforms=["log", "box_cox"], predictor_transforms=["log"],
-                         top=2)
+    prep = prepare(
+        {"columns": demo_columns(3000)}, "repair_cost", ["pipe_length_m", "pipe_age_years", "soil"]
+    )
+    opts = SearchOptions(
+        response_transforms=["log", "box_cox"], predictor_transforms=["log"], top=2
+    )
     out = []
     for threads in (1, 2):
         with threadpool_limits(limits=threads):
@@ -115,15 +131,34 @@ def test_seed_is_echoed_and_used(client):
 
 
 def test_trust_is_the_same_in_one_process_and_in_two():
-    prep = prepare({"columns": demo_columns(150, seed=9)}, "repair_cost",
-                   ["pipe_length_m", "pipe_age_years", "soil"])
-    opts = SearchOptions(response_transforms=["identity", "log", "sqrt"],
-                         predictor_transforms=["identity", "log"], top=1, seed=4)
+    prep = prepare(
+        {"columns": demo_columns(150, seed=9)},
+        "repair_cost",
+        ["pipe_length_m", "pipe_age_years", "soil"],
+    )
+    opts = SearchOptions(
+        response_transforms=["identity", "log", "sqrt"],
+        predictor_transforms=["identity", "log"],
+        top=1,
+        seed=4,
+    )
     body = run_selection(prep, opts, "test")
     winner = body["ranking"][0]["specification"]
-    runs = [assess_trust(prep, opts, winner, "test", True, True, resamples=12, selection=body),
-            assess_trust(prep, opts, winner, "test", True, True, resamples=12, selection=body,
-                         mapper=process_mapper(2), chunks=2)]
+    runs = [
+        assess_trust(prep, opts, winner, "test", True, True, resamples=12, selection=body),
+        assess_trust(
+            prep,
+            opts,
+            winner,
+            "test",
+            True,
+            True,
+            resamples=12,
+            selection=body,
+            mapper=process_mapper(2),
+            chunks=2,
+        ),
+    ]
     for r in runs:
         r.pop("elapsed_s")
     assert runs[0]["stability_details"]["usable"] == 12

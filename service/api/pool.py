@@ -32,9 +32,13 @@ def capacity() -> int:
 
 
 def busy_problem(cap: int) -> ProblemError:
-    return ProblemError(503, "busy", "Service busy",
-                        f"all {cap} compute slots are in use; retry after {RETRY_AFTER_S} s",
-                        headers={"Retry-After": str(RETRY_AFTER_S)})
+    return ProblemError(
+        503,
+        "busy",
+        "Service busy",
+        f"all {cap} compute slots are in use; retry after {RETRY_AFTER_S} s",
+        headers={"Retry-After": str(RETRY_AFTER_S)},
+    )
 
 
 def busy() -> int:

@@ -9,9 +9,9 @@ from pydantic import BaseModel, ConfigDict, Field
 
 from ..core.errors import InputError
 from ..core.predict import load_model, predict
+from ..middleware import note_result
 from ..settings import get_settings
 from .encode import JSONBody
-from ..middleware import note_result
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn
@@ -39,14 +39,21 @@ def run_prediction_request(req: PredictionRequest) -> dict:
         n_rows = data["csv"].count("\n")
     limit = get_settings().max_rows
     if n_rows > limit:
-        raise InputError.at("/data", f"the table has {n_rows} rows; this service accepts at most "
-                            f"{limit} (setting BESTSCALE_MAX_ROWS)")
+        raise InputError.at(
+            "/data",
+            f"the table has {n_rows} rows; this service accepts at most "
+            f"{limit} (setting BESTSCALE_MAX_ROWS)",
+        )
     model = load_model(req.model)
     return predict(model, data, req.interval)
 
 
-@router.post("/v1/predictions", response_class=JSONBody, tags=["prediction"],
-             summary="Mean, median and prediction interval on the original scale from a model")
+@router.post(
+    "/v1/predictions",
+    response_class=JSONBody,
+    tags=["prediction"],
+    summary="Mean, median and prediction interval on the original scale from a model",
+)
 def post_predictions(req: PredictionRequest):
     with compute_slot():
         body = run_prediction_request(req)

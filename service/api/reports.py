@@ -6,9 +6,9 @@ from fastapi import APIRouter
 from starlette.responses import HTMLResponse
 
 from ..core.data import prepare
+from ..middleware import note_result
 from ..report_html import CSP, render_report, report_plots
 from .encode import to_jsonable
-from ..middleware import note_result
 from .pool import compute_slot
 from .routes import run_selection_request
 from .routing import StrictRoute
@@ -29,11 +29,22 @@ def selection_report(req: SelectionRequest) -> str:
     note_result(body)
     # The rows the selection used, again: the plot data needs them and the selection body
     # does not carry them.  Every check already passed in the selection above.
-    prep = prepare(req.data.as_dict(), req.response, list(req.predictors),
-                   list(req.categorical), req.order, req.group_by)
+    prep = prepare(
+        req.data.as_dict(),
+        req.response,
+        list(req.predictors),
+        list(req.categorical),
+        req.order,
+        req.group_by,
+    )
     plots = report_plots(body, prep, req.alpha, req.validation.seed)
-    context = {"response": req.response, "predictors": list(req.predictors),
-               "alpha": req.alpha, "order": req.order, "group_by": req.group_by}
+    context = {
+        "response": req.response,
+        "predictors": list(req.predictors),
+        "alpha": req.alpha,
+        "order": req.order,
+        "group_by": req.group_by,
+    }
     return render_report(body, plots, context)
 
 
@@ -41,8 +52,9 @@ def report_response(req: SelectionRequest) -> HTMLResponse:
     """The report as an HTTP response: text/html that forbids every fetch and script."""
     with compute_slot():
         page = selection_report(req)
-    return HTMLResponse(page, headers={"Content-Security-Policy": CSP,
-                                       "X-Content-Type-Options": "nosniff"})
+    return HTMLResponse(
+        page, headers={"Content-Security-Policy": CSP, "X-Content-Type-Options": "nosniff"}
+    )
 
 
 def wants_html(accept: str) -> bool:
@@ -66,13 +78,19 @@ def wants_html(accept: str) -> bool:
     return best["html"] > 0 and best["html"] > best["json"]
 
 
-@router.post("/v1/reports", tags=["selection"], response_class=HTMLResponse,
-             summary="The selection as one self-contained HTML page for people",
-             description=("Takes the body of POST /v1/selections and returns text/html: job "
-                          "summary, ranking, diagnostic figures, coefficients, interpretation, "
-                          "incumbent decision and cautions, with inline CSS and SVG, no "
-                          "scripts and no external resources. Errors are problem+json as on "
-                          "every endpoint."),
-             responses={200: {"content": {HTML_TYPE: {}}}})
+@router.post(
+    "/v1/reports",
+    tags=["selection"],
+    response_class=HTMLResponse,
+    summary="The selection as one self-contained HTML page for people",
+    description=(
+        "Takes the body of POST /v1/selections and returns text/html: job "
+        "summary, ranking, diagnostic figures, coefficients, interpretation, "
+        "incumbent decision and cautions, with inline CSS and SVG, no "
+        "scripts and no external resources. Errors are problem+json as on "
+        "every endpoint."
+    ),
+    responses={200: {"content": {HTML_TYPE: {}}}},
+)
 def post_reports(req: SelectionRequest):
     return report_response(req)

@@ -20,8 +20,9 @@ class _Open(BaseModel):
 
 
 class ProblemItem(_Open):
-    pointer: str = Field(..., description="JSON Pointer (RFC 6901) into the request; '' is the "
-                         "whole body")
+    pointer: str = Field(
+        ..., description="JSON Pointer (RFC 6901) into the request; '' is the whole body"
+    )
     detail: str = Field(..., description="what is wrong there, in one sentence")
 
 
@@ -60,8 +61,11 @@ class DataSummary(_Open):
 
 
 class SearchSummary(_Open):
-    complete: bool = Field(..., description="false when the search stopped at a limit before "
-                           "every candidate was scored; the ranking is the best so far")
+    complete: bool = Field(
+        ...,
+        description="false when the search stopped at a limit before "
+        "every candidate was scored; the ranking is the best so far",
+    )
     elapsed_s: float = Field(..., ge=0)
     candidates_considered: int | None = Field(None, ge=0)
     candidates_scored: int | None = Field(None, ge=0)
@@ -134,8 +138,10 @@ class EntryOut(_Open):
     conditions: ConditionsOut
     score: ScoreOut
     interpretation: list[str]
-    model: dict[str, Any] = Field(..., description="self-contained fitted model; send it back "
-                                  "unchanged to POST /v1/predictions")
+    model: dict[str, Any] = Field(
+        ...,
+        description="self-contained fitted model; send it back unchanged to POST /v1/predictions",
+    )
     warnings: list[str]
 
 
@@ -166,8 +172,10 @@ class SelectionResponse(_Open):
     ranking: list[RankedEntryOut]
     incumbent: IncumbentOut | None = None
     groups: dict[str, dict[str, Any]] | None = Field(
-        None, description="with group_by: group value -> a selection body without groups, or "
-        "{'problem': Problem} for a group that could not be modelled")
+        None,
+        description="with group_by: group value -> a selection body without groups, or "
+        "{'problem': Problem} for a group that could not be modelled",
+    )
     trust: dict[str, Any] | None = None
     cautions: list[str]
     warnings: list[str]
@@ -178,8 +186,9 @@ class PredictionOut(_Open):
     median: Num = Field(..., description="median (plain inverse) on the original scale")
     lower: Num
     upper: Num
-    extrapolation: bool = Field(..., description="true when the row lies outside the training "
-                                "range or has high leverage")
+    extrapolation: bool = Field(
+        ..., description="true when the row lies outside the training range or has high leverage"
+    )
 
 
 class PredictionsResponse(_Open):
@@ -218,5 +227,11 @@ class HealthResponse(_Open):
     service_version: str
 
 
-RESPONSE_MODELS = (Problem, SelectionResponse, PredictionsResponse, DiagnosticsResponse,
-                   TransformsResponse, HealthResponse)
+RESPONSE_MODELS = (
+    Problem,
+    SelectionResponse,
+    PredictionsResponse,
+    DiagnosticsResponse,
+    TransformsResponse,
+    HealthResponse,
+)

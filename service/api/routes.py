@@ -24,56 +24,89 @@ router = APIRouter(route_class=StrictRoute)
 def _check_size(req_rows: int, n_columns: int) -> None:
     s = get_settings()
     if req_rows > s.max_rows:
-        raise InputError.at("/data", f"the table has {req_rows} rows; this service accepts at "
-                            f"most {s.max_rows} (setting BESTSCALE_MAX_ROWS)")
+        raise InputError.at(
+            "/data",
+            f"the table has {req_rows} rows; this service accepts at "
+            f"most {s.max_rows} (setting BESTSCALE_MAX_ROWS)",
+        )
     if n_columns > s.max_columns:
-        raise InputError.at("/predictors", f"{n_columns} columns requested; at most "
-                            f"{s.max_columns} are accepted (setting BESTSCALE_MAX_COLUMNS)")
+        raise InputError.at(
+            "/predictors",
+            f"{n_columns} columns requested; at most "
+            f"{s.max_columns} are accepted (setting BESTSCALE_MAX_COLUMNS)",
+        )
 
 
 def selection_options(req: SelectionRequest) -> SearchOptions:
     s = get_settings()
     max_c = req.limits.max_candidates or s.default_max_candidates
     if max_c > s.max_candidates:
-        raise InputError.at("/limits/max_candidates", f"max_candidates {max_c} exceeds the "
-                            f"service limit of {s.max_candidates}")
+        raise InputError.at(
+            "/limits/max_candidates",
+            f"max_candidates {max_c} exceeds the service limit of {s.max_candidates}",
+        )
     tl = req.limits.time_limit_s or s.default_time_limit_s
     if tl > s.max_time_limit_s:
-        raise InputError.at("/limits/time_limit_s", f"time_limit_s {tl:g} exceeds the service "
-                            f"limit of {s.max_time_limit_s:g} s")
+        raise InputError.at(
+            "/limits/time_limit_s",
+            f"time_limit_s {tl:g} exceeds the service limit of {s.max_time_limit_s:g} s",
+        )
     return SearchOptions(
         response_transforms=transform_items(req.transforms.response),
         predictor_transforms=transform_items(req.transforms.predictors),
-        folds=req.validation.folds, repeats=req.validation.repeats, seed=req.validation.seed,
-        metric=req.validation.metric, alpha=req.alpha, top=req.top, max_candidates=max_c,
-        time_limit_s=tl, intercept=req.intercept, units=dict(req.units), strategy=req.strategy,
-        incumbent=req.incumbent.as_dict() if req.incumbent is not None else None)
+        folds=req.validation.folds,
+        repeats=req.validation.repeats,
+        seed=req.validation.seed,
+        metric=req.validation.metric,
+        alpha=req.alpha,
+        top=req.top,
+        max_candidates=max_c,
+        time_limit_s=tl,
+        intercept=req.intercept,
+        units=dict(req.units),
+        strategy=req.strategy,
+        incumbent=req.incumbent.as_dict() if req.incumbent is not None else None,
+    )
 
 
 def run_selection_request(req: SelectionRequest, progress=None) -> dict:
     data = req.data.as_dict()
-    n_rows = len(data["records"]) if data["records"] is not None else (
-        max((len(v) for v in data["columns"].values()), default=0) if data["columns"] is not None
-        else data["csv"].count("\n"))
+    n_rows = (
+        len(data["records"])
+        if data["records"] is not None
+        else (
+            max((len(v) for v in data["columns"].values()), default=0)
+            if data["columns"] is not None
+            else data["csv"].count("\n")
+        )
+    )
     _check_size(n_rows, 1 + len(req.predictors))
     if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
         for col in req.transforms.predictors:
             if col not in req.predictors:
-                raise InputError.at(f"/transforms/predictors/{col}",
-                                    f"'{col}' is not one of the predictors")
-    prep = prepare(data, req.response, list(req.predictors), list(req.categorical), req.order,
-                   req.group_by)
+                raise InputError.at(
+                    f"/transforms/predictors/{col}", f"'{col}' is not one of the predictors"
+                )
+    prep = prepare(
+        data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
+    )
     opts = selection_options(req)
     if req.group_by is not None:
         if req.trust.stability or req.trust.optimism:
-            raise InputError.at("/trust", "trust measures are computed for one selection; send "
-                                "each group as its own request to measure them")
+            raise InputError.at(
+                "/trust",
+                "trust measures are computed for one selection; send "
+                "each group as its own request to measure them",
+            )
         n_groups = len(set(prep.groups.tolist()))
         limit = get_settings().max_groups
         if n_groups > limit:
-            raise InputError.at("/group_by", f"'{req.group_by}' has {n_groups} values; at most "
-                                f"{limit} groups are accepted per request (setting "
-                                "BESTSCALE_MAX_GROUPS); split the job over several requests")
+            raise InputError.at(
+                "/group_by",
+                f"'{req.group_by}' has {n_groups} values; at most "
+                f"{limit} groups are accepted per request (setting "
+                "BESTSCALE_MAX_GROUPS); split the job over several requests",
+            )
         mapper = map
         if get_settings().group_processes > 1:
             from ..core.workers import process_mapper
@@ -86,29 +119,47 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
                 for item in items:
                     yield fn(item)
                     progress.step()
-        body = run_grouped(prep, opts, __version__, finish=lambda b: _finish(b, opts),
-                           mapper=mapper)
+
+        body = run_grouped(
+            prep, opts, __version__, finish=lambda b: _finish(b, opts), mapper=mapper
+        )
         return _finish(body, opts)
     body = run_selection(prep, opts, __version__)
     if req.trust.stability or req.trust.optimism:
         from ..core.trust import assess_trust
 
-        body["trust"] = assess_trust(prep, opts, body["ranking"][0]["specification"], __version__,
-                                     req.trust.stability, req.trust.optimism, req.trust.resamples,
-                                     selection=body)
+        body["trust"] = assess_trust(
+            prep,
+            opts,
+            body["ranking"][0]["specification"],
+            __version__,
+            req.trust.stability,
+            req.trust.optimism,
+            req.trust.resamples,
+            selection=body,
+        )
     return _finish(body, opts)
 
 
 def _finish(body: dict, opts: SearchOptions) -> dict:
-    any_tr = any(not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
-                 for e in body.get("ranking", []))
-    return {"service_version": __version__, **body,
-            "cautions": selection_cautions(opts.metric, any_tr)}
+    any_tr = any(
+        not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
+        for e in body.get("ranking", [])
+    )
+    return {
+        "service_version": __version__,
+        **body,
+        "cautions": selection_cautions(opts.metric, any_tr),
+    }
 
 
-@router.post("/v1/selections", response_class=JSONBody, tags=["selection"],
-             summary="Search transformations, score every candidate, return a ranking",
-             responses={200: {"content": {"application/json": {}, "text/html": {}}}})
+@router.post(
+    "/v1/selections",
+    response_class=JSONBody,
+    tags=["selection"],
+    summary="Search transformations, score every candidate, return a ranking",
+    responses={200: {"content": {"application/json": {}, "text/html": {}}}},
+)
 def post_selections(req: SelectionRequest, request: Request):
     from .reports import report_response, wants_html  # reports imports this module
 
@@ -120,8 +171,9 @@ def post_selections(req: SelectionRequest, request: Request):
     return JSONBody(body)
 
 
-@router.get("/v1/transforms", response_class=JSONBody, tags=["reference"],
-            summary="The transform catalogue")
+@router.get(
+    "/v1/transforms", response_class=JSONBody, tags=["reference"], summary="The transform catalogue"
+)
 def get_transforms():
     return JSONBody({"transforms": tr.CATALOGUE, "ladder": list(tr.LADDER)})
 
@@ -131,8 +183,12 @@ async def healthz():
     return JSONBody({"status": "ok", "service_version": __version__})
 
 
-@router.get("/metrics", tags=["operations"], summary="Prometheus metrics (text format)",
-            response_class=PlainTextResponse)
+@router.get(
+    "/metrics",
+    tags=["operations"],
+    summary="Prometheus metrics (text format)",
+    response_class=PlainTextResponse,
+)
 def metrics():
     from prometheus_client import CONTENT_TYPE_LATEST, generate_latest
 

@@ -51,8 +51,12 @@ class StrictJSONRequest(Request):
         try:
             body = await self.body()
         except ClientDisconnect:
-            raise ProblemError(400, "malformed-body", "Incomplete request body",
-                               "the client disconnected before the body arrived whole") from None
+            raise ProblemError(
+                400,
+                "malformed-body",
+                "Incomplete request body",
+                "the client disconnected before the body arrived whole",
+            ) from None
         if not body:
             return
         try:
@@ -103,8 +107,13 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
         try:
             table = pq.read_table(io.BytesIO(raw))
         except (pa.ArrowException, OSError) as exc:
-            raise _problem(422, "invalid-input", "Invalid request content", "/file",
-                           f"the uploaded file is not a readable Parquet file ({exc})") from None
+            raise _problem(
+                422,
+                "invalid-input",
+                "Invalid request content",
+                "/file",
+                f"the uploaded file is not a readable Parquet file ({exc})",
+            ) from None
         cols = {}
         for col in table.column_names:
             arr = table.column(col)
@@ -113,20 +122,34 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
 
                 # NaN in a Parquet float column is a missing value (the row is dropped, listed)
                 arr = pc.if_else(pc.is_nan(arr), pa.scalar(None, arr.type), arr)
-            elif not (pa.types.is_integer(arr.type) or pa.types.is_string(arr.type) or
-                      pa.types.is_large_string(arr.type) or pa.types.is_boolean(arr.type) or
-                      pa.types.is_dictionary(arr.type)):
-                raise _problem(422, "invalid-input", "Invalid request content", "/file",
-                               f"column '{col}' of the Parquet file has type {arr.type}; "
-                               "send numbers, text or booleans")
+            elif not (
+                pa.types.is_integer(arr.type)
+                or pa.types.is_string(arr.type)
+                or pa.types.is_large_string(arr.type)
+                or pa.types.is_boolean(arr.type)
+                or pa.types.is_dictionary(arr.type)
+            ):
+                raise _problem(
+                    422,
+                    "invalid-input",
+                    "Invalid request content",
+                    "/file",
+                    f"column '{col}' of the Parquet file has type {arr.type}; "
+                    "send numbers, text or booleans",
+                )
             cols[str(col)] = arr.to_pylist()
         return {"columns": cols}
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
-        raise _problem(422, "invalid-input", "Invalid request content", "/file",
-                       f"the uploaded file is neither Parquet nor UTF-8 CSV text (byte "
-                       f"{exc.start} is not UTF-8)") from None
+        raise _problem(
+            422,
+            "invalid-input",
+            "Invalid request content",
+            "/file",
+            f"the uploaded file is neither Parquet nor UTF-8 CSV text (byte "
+            f"{exc.start} is not UTF-8)",
+        ) from None
     return {"csv": text}
 
 
@@ -135,19 +158,33 @@ async def assemble_upload(request: Request) -> dict:
     try:
         form = await request.form(max_files=1, max_fields=4)
     except Exception as exc:  # python-multipart's parse errors have no common public base
-        raise ProblemError(400, "malformed-body", "Malformed multipart body",
-                           f"the multipart/form-data body cannot be read ({exc})") from None
+        raise ProblemError(
+            400,
+            "malformed-body",
+            "Malformed multipart body",
+            f"the multipart/form-data body cannot be read ({exc})",
+        ) from None
     try:
-        extra = [k for k in form.keys() if k not in (FILE_PART, OPTIONS_PART)]
+        extra = [k for k in form if k not in (FILE_PART, OPTIONS_PART)]
         if extra:
-            raise _problem(422, "invalid-input", "Invalid request content", f"/{extra[0]}",
-                           f"unknown part '{extra[0]}'; send a '{FILE_PART}' part with the table "
-                           f"and an '{OPTIONS_PART}' part with the other request fields as JSON")
+            raise _problem(
+                422,
+                "invalid-input",
+                "Invalid request content",
+                f"/{extra[0]}",
+                f"unknown part '{extra[0]}'; send a '{FILE_PART}' part with the table "
+                f"and an '{OPTIONS_PART}' part with the other request fields as JSON",
+            )
         upload = form.get(FILE_PART)
         if upload is None or isinstance(upload, str):
-            raise _problem(422, "invalid-input", "Invalid request content", f"/{FILE_PART}",
-                           f"a multipart request needs a '{FILE_PART}' part holding the table "
-                           "(CSV with a header row, or Parquet)")
+            raise _problem(
+                422,
+                "invalid-input",
+                "Invalid request content",
+                f"/{FILE_PART}",
+                f"a multipart request needs a '{FILE_PART}' part holding the table "
+                "(CSV with a header row, or Parquet)",
+            )
         raw = await upload.read()
         opts = form.get(OPTIONS_PART)
         if opts is None:
@@ -157,19 +194,39 @@ async def assemble_upload(request: Request) -> dict:
             try:
                 body = jsonbody.parse(text)
             except orjson.JSONDecodeError as exc:
-                raise _problem(400, "malformed-body", "Malformed JSON body", f"/{OPTIONS_PART}",
-                               f"the '{OPTIONS_PART}' part is not valid JSON (near byte "
-                               f"{exc.pos}); NaN and Infinity are not JSON") from None
+                raise _problem(
+                    400,
+                    "malformed-body",
+                    "Malformed JSON body",
+                    f"/{OPTIONS_PART}",
+                    f"the '{OPTIONS_PART}' part is not valid JSON (near byte "
+                    f"{exc.pos}); NaN and Infinity are not JSON",
+                ) from None
             if not isinstance(body, dict):
-                raise _problem(400, "malformed-body", "Malformed JSON body", f"/{OPTIONS_PART}",
-                               f"the '{OPTIONS_PART}' part must be a JSON object")
+                raise _problem(
+                    400,
+                    "malformed-body",
+                    "Malformed JSON body",
+                    f"/{OPTIONS_PART}",
+                    f"the '{OPTIONS_PART}' part must be a JSON object",
+                )
         if "data" in body:
-            raise _problem(422, "invalid-input", "Invalid request content",
-                           f"/{OPTIONS_PART}/data", f"the table comes from the '{FILE_PART}' "
-                           f"part; leave 'data' out of '{OPTIONS_PART}'")
+            raise _problem(
+                422,
+                "invalid-input",
+                "Invalid request content",
+                f"/{OPTIONS_PART}/data",
+                f"the table comes from the '{FILE_PART}' "
+                f"part; leave 'data' out of '{OPTIONS_PART}'",
+            )
         if not raw:
-            raise _problem(422, "invalid-input", "Invalid request content", f"/{FILE_PART}",
-                           "the uploaded file is empty")
+            raise _problem(
+                422,
+                "invalid-input",
+                "Invalid request content",
+                f"/{FILE_PART}",
+                "the uploaded file is empty",
+            )
         body["data"] = table_from_file(raw, getattr(upload, "filename", None))
         return body
     finally:
@@ -187,13 +244,19 @@ class StrictRoute(APIRoute):
                     body = await assemble_upload(request)
                     return await handler(_UploadedRequest(request.scope, request.receive, body))
                 if not _is_json(ctype):
-                    also = (" or multipart/form-data (a 'file' part and an 'options' JSON part)"
-                            if self.path in UPLOAD_PATHS else "")
-                    raise ProblemError(415, "unsupported-media-type", "Unsupported media type",
-                                       f"send the body as application/json{also} (got "
-                                       f"'{ctype or 'no content type'}')",
-                                       [{"pointer": "", "detail": "Content-Type must be "
-                                         f"application/json{also}"}])
+                    also = (
+                        " or multipart/form-data (a 'file' part and an 'options' JSON part)"
+                        if self.path in UPLOAD_PATHS
+                        else ""
+                    )
+                    raise ProblemError(
+                        415,
+                        "unsupported-media-type",
+                        "Unsupported media type",
+                        f"send the body as application/json{also} (got "
+                        f"'{ctype or 'no content type'}')",
+                        [{"pointer": "", "detail": f"Content-Type must be application/json{also}"}],
+                    )
                 strict_request = StrictJSONRequest(request.scope, request.receive)
                 await strict_request.parse_body()
                 return await handler(strict_request)

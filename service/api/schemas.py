@@ -14,41 +14,69 @@ from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_vali
 
 from ..core.strategy import EXHAUSTIVE_LIMIT
 
-TransformName = Literal["identity", "log", "sqrt", "reciprocal", "square", "power", "box_cox",
-                        "yeo_johnson", "categorical"]
+TransformName = Literal[
+    "identity",
+    "log",
+    "sqrt",
+    "reciprocal",
+    "square",
+    "power",
+    "box_cox",
+    "yeo_johnson",
+    "categorical",
+]
 ColumnName = Annotated[str, StringConstraints(min_length=1, max_length=256)]
 
 
 class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, populate_by_name=True,
-                              strict=True)
+    model_config = ConfigDict(
+        extra="forbid", allow_inf_nan=False, populate_by_name=True, strict=True
+    )
 
 
 class DataIn(_Strict):
     """The table: exactly one of ``columns``, ``records`` or ``csv``; ``null`` marks a missing value."""
 
     columns: dict[str, list[Any]] | None = Field(
-        None, description="column-oriented: {name: [v, ...]} with one value per row in every "
+        None,
+        description="column-oriented: {name: [v, ...]} with one value per row in every "
         "column; the preferred, fastest layout. Values are numbers, strings (categorical "
         "levels) or null (missing)",
-        examples=[{"repair_cost": [1520.5, 980.0, 4310.2], "pipe_length_m": [40, 25, 120],
-                   "soil": ["clay", "loam", "clay"]}])
+        examples=[
+            {
+                "repair_cost": [1520.5, 980.0, 4310.2],
+                "pipe_length_m": [40, 25, 120],
+                "soil": ["clay", "loam", "clay"],
+            }
+        ],
+    )
     records: list[dict[str, Any]] | None = Field(
-        None, description="row-oriented: [{name: v, ...}, ...]; a key missing from a record "
+        None,
+        description="row-oriented: [{name: v, ...}, ...]; a key missing from a record "
         "is an error, null is a missing value",
-        examples=[[{"repair_cost": 1520.5, "pipe_length_m": 40, "soil": "clay"},
-                   {"repair_cost": 980.0, "pipe_length_m": 25, "soil": "loam"}]])
+        examples=[
+            [
+                {"repair_cost": 1520.5, "pipe_length_m": 40, "soil": "clay"},
+                {"repair_cost": 980.0, "pipe_length_m": 25, "soil": "loam"},
+            ]
+        ],
+    )
     csv: str | None = Field(
-        None, min_length=1, description="CSV text with a header row (comma-separated, RFC 4180 "
+        None,
+        min_length=1,
+        description="CSV text with a header row (comma-separated, RFC 4180 "
         "quoting); empty cells are missing",
-        examples=["repair_cost,pipe_length_m,soil\n1520.5,40,clay\n980.0,25,loam\n"])
+        examples=["repair_cost,pipe_length_m,soil\n1520.5,40,clay\n980.0,25,loam\n"],
+    )
 
     @model_validator(mode="after")
     def _exactly_one(self):
         given = [k for k in ("columns", "records", "csv") if getattr(self, k) is not None]
         if len(given) != 1:
-            raise ValueError("data needs exactly one of 'columns', 'records' or 'csv' "
-                             f"(got {', '.join(given) if given else 'none'})")
+            raise ValueError(
+                "data needs exactly one of 'columns', 'records' or 'csv' "
+                f"(got {', '.join(given) if given else 'none'})"
+            )
         return self
 
     def as_dict(self) -> dict:
@@ -60,36 +88,61 @@ class TransformIn(_Strict):
     ``exponent`` only to power (and is required there), ``lambda`` only to box_cox and
     yeo_johnson, ``reference`` only to categorical."""
 
-    name: TransformName = Field(..., description="transform name (GET /v1/transforms lists them)",
-                                examples=["log"])
-    shift: float | None = Field(None, ge=-1e15, le=1e15,
-                                description="log only: a constant added before the log "
-                                "(log(x + shift)); omit to let the service choose one when the "
-                                "column has zeros", examples=[0.5])
-    exponent: float | None = Field(None, ge=-10, le=10,
-                                   description="power only: the exponent, non-zero, in "
-                                   "[-10, 10] (use log for 0); required in a specification, "
-                                   "omitted in transforms.predictors to estimate the power",
-                                   examples=[0.5])
-    lambda_: float | None = Field(None, alias="lambda", ge=-5, le=5,
-                                  description="box_cox / yeo_johnson: a fixed lambda in [-5, 5]; "
-                                  "omit to estimate it from the data", examples=[0.25])
-    reference: str | None = Field(None, min_length=1, max_length=256,
-                                  description="categorical only: the baseline level",
-                                  examples=["clay"])
-    estimated: bool | None = Field(None, description="in a response: the service estimated "
-                                   "this parameter from the data. In transforms.predictors, "
-                                   "{'name': 'power', 'estimated': true} (no exponent) asks the "
-                                   "search to estimate the predictor's power (Box-Tidwell); "
-                                   "elsewhere it is informational")
+    name: TransformName = Field(
+        ..., description="transform name (GET /v1/transforms lists them)", examples=["log"]
+    )
+    shift: float | None = Field(
+        None,
+        ge=-1e15,
+        le=1e15,
+        description="log only: a constant added before the log "
+        "(log(x + shift)); omit to let the service choose one when the "
+        "column has zeros",
+        examples=[0.5],
+    )
+    exponent: float | None = Field(
+        None,
+        ge=-10,
+        le=10,
+        description="power only: the exponent, non-zero, in "
+        "[-10, 10] (use log for 0); required in a specification, "
+        "omitted in transforms.predictors to estimate the power",
+        examples=[0.5],
+    )
+    lambda_: float | None = Field(
+        None,
+        alias="lambda",
+        ge=-5,
+        le=5,
+        description="box_cox / yeo_johnson: a fixed lambda in [-5, 5]; "
+        "omit to estimate it from the data",
+        examples=[0.25],
+    )
+    reference: str | None = Field(
+        None,
+        min_length=1,
+        max_length=256,
+        description="categorical only: the baseline level",
+        examples=["clay"],
+    )
+    estimated: bool | None = Field(
+        None,
+        description="in a response: the service estimated "
+        "this parameter from the data. In transforms.predictors, "
+        "{'name': 'power', 'estimated': true} (no exponent) asks the "
+        "search to estimate the predictor's power (Box-Tidwell); "
+        "elsewhere it is informational",
+    )
 
     @model_validator(mode="after")
     def _params(self):
         if self.name == "power":
             if self.exponent is None:  # a search option: estimate the power (specifications
-                return self            # refuse it, see _FixedPower)
+                return self  # refuse it, see _FixedPower)
             if abs(self.exponent) < 1e-12:
-                raise ValueError("power 'exponent' must be non-zero and within [-10, 10] (use log for 0)")
+                raise ValueError(
+                    "power 'exponent' must be non-zero and within [-10, 10] (use log for 0)"
+                )
         elif self.exponent is not None:
             raise ValueError(f"'exponent' applies only to power, not {self.name}")
         if self.shift is not None and self.name != "log":
@@ -119,58 +172,90 @@ class _FixedPower(_Strict):
     @model_validator(mode="after")
     def _fixed(self):
         if self.transform.name == "power" and self.transform.exponent is None:
-            raise ValueError("a power in a specification needs its 'exponent' (to estimate one "
-                             "from the data, search with transforms.predictors: "
-                             "{'name': 'power', 'estimated': true})")
+            raise ValueError(
+                "a power in a specification needs its 'exponent' (to estimate one "
+                "from the data, search with transforms.predictors: "
+                "{'name': 'power', 'estimated': true})"
+            )
         return self
 
 
 class ResponseSpecIn(_FixedPower):
     column: ColumnName = Field(..., description="the response column", examples=["repair_cost"])
-    transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"),
-                                   description="its transform; default identity")
+    transform: TransformIn = Field(
+        default_factory=lambda: TransformIn(name="identity"),
+        description="its transform; default identity",
+    )
 
 
 class PredictorSpecIn(_FixedPower):
     column: ColumnName = Field(..., description="a predictor column", examples=["pipe_length_m"])
-    transform: TransformIn = Field(default_factory=lambda: TransformIn(name="identity"),
-                                   description="its transform; default identity ('categorical' "
-                                   "for a grouping column)")
+    transform: TransformIn = Field(
+        default_factory=lambda: TransformIn(name="identity"),
+        description="its transform; default identity ('categorical' for a grouping column)",
+    )
 
 
 class SpecificationIn(_Strict):
     """A structured model specification (no formula strings)."""
 
     response: ResponseSpecIn = Field(..., description="the response and its transform")
-    predictors: list[PredictorSpecIn] = Field(..., min_length=1,
-                                              description="the predictors and their transforms")
+    predictors: list[PredictorSpecIn] = Field(
+        ..., min_length=1, description="the predictors and their transforms"
+    )
     intercept: bool = Field(True, description="fit an intercept")
 
-    model_config = ConfigDict(json_schema_extra={"examples": [{
-        "response": {"column": "repair_cost", "transform": {"name": "log"}},
-        "predictors": [{"column": "pipe_length_m", "transform": {"name": "log"}},
-                       {"column": "pipe_age_years", "transform": {"name": "identity"}},
-                       {"column": "soil", "transform": {"name": "categorical",
-                                                        "reference": "clay"}}],
-        "intercept": True}]})
+    model_config = ConfigDict(
+        json_schema_extra={
+            "examples": [
+                {
+                    "response": {"column": "repair_cost", "transform": {"name": "log"}},
+                    "predictors": [
+                        {"column": "pipe_length_m", "transform": {"name": "log"}},
+                        {"column": "pipe_age_years", "transform": {"name": "identity"}},
+                        {
+                            "column": "soil",
+                            "transform": {"name": "categorical", "reference": "clay"},
+                        },
+                    ],
+                    "intercept": True,
+                }
+            ]
+        }
+    )
 
     def as_dict(self) -> dict:
-        return {"response": {"column": self.response.column,
-                             "transform": self.response.transform.as_dict()},
-                "predictors": [{"column": p.column, "transform": p.transform.as_dict()}
-                               for p in self.predictors],
-                "intercept": self.intercept}
+        return {
+            "response": {
+                "column": self.response.column,
+                "transform": self.response.transform.as_dict(),
+            },
+            "predictors": [
+                {"column": p.column, "transform": p.transform.as_dict()} for p in self.predictors
+            ],
+            "intercept": self.intercept,
+        }
 
 
 class ValidationIn(_Strict):
     folds: int = Field(5, ge=2, le=50, description="K in K-fold cross-validation", examples=[5])
-    repeats: int = Field(1, ge=1, le=50, description="repeated K-fold: number of partitions",
-                         examples=[2])
-    seed: int = Field(0, ge=0, le=2**32 - 1, description="seed of the partitions (the same "
-                      "seed gives the same folds and so the same ranking)", examples=[0])
+    repeats: int = Field(
+        1, ge=1, le=50, description="repeated K-fold: number of partitions", examples=[2]
+    )
+    seed: int = Field(
+        0,
+        ge=0,
+        le=2**32 - 1,
+        description="seed of the partitions (the same "
+        "seed gives the same folds and so the same ranking)",
+        examples=[0],
+    )
     metric: Literal["rmse", "mae", "mape"] = Field(
-        "rmse", description="error on the original response scale: rmse scores the smeared mean, "
-        "mae and mape the median (naive inverse)", examples=["rmse"])
+        "rmse",
+        description="error on the original response scale: rmse scores the smeared mean, "
+        "mae and mape the median (naive inverse)",
+        examples=["rmse"],
+    )
 
 
 TransformChoice = TransformName | TransformIn
@@ -178,75 +263,115 @@ TransformChoice = TransformName | TransformIn
 
 class TransformsIn(_Strict):
     response: list[TransformChoice] | None = Field(
-        None, description="response transforms to search (names or full transforms); "
-        "default: every applicable one", examples=[["identity", "log", "sqrt", "box_cox"]])
+        None,
+        description="response transforms to search (names or full transforms); "
+        "default: every applicable one",
+        examples=[["identity", "log", "sqrt", "box_cox"]],
+    )
     predictors: list[TransformChoice] | dict[str, list[TransformChoice]] | None = Field(
-        None, description="numeric predictor transforms to search: one list for all, or "
+        None,
+        description="numeric predictor transforms to search: one list for all, or "
         "{column: list}; default: identity, log, sqrt, reciprocal, square where applicable",
-        examples=[["identity", "log"], {"pipe_length_m": ["identity", "log"],
-                                        "pipe_age_years": ["identity"]}])
+        examples=[
+            ["identity", "log"],
+            {"pipe_length_m": ["identity", "log"], "pipe_age_years": ["identity"]},
+        ],
+    )
 
 
 class TrustIn(_Strict):
     """Optional (costly) measures of how much to trust the choice."""
 
-    stability: bool = Field(False, description="share of bootstrap resamples in which the "
-                            "returned rank-1 specification is still ranked first, with the runner-up")
-    optimism: bool = Field(False, description="gap between the winner's CV error and a nested "
-                           "cross-validation estimate of the whole selection procedure's error")
-    resamples: int | None = Field(None, ge=1, le=1000, description="bootstrap resamples for "
-                                  "stability (default 20)")
+    stability: bool = Field(
+        False,
+        description="share of bootstrap resamples in which the "
+        "returned rank-1 specification is still ranked first, with the runner-up",
+    )
+    optimism: bool = Field(
+        False,
+        description="gap between the winner's CV error and a nested "
+        "cross-validation estimate of the whole selection procedure's error",
+    )
+    resamples: int | None = Field(
+        None, ge=1, le=1000, description="bootstrap resamples for stability (default 20)"
+    )
 
 
 class LimitsIn(_Strict):
-    max_candidates: int | None = Field(None, ge=1, description="most candidates to score "
-                                       "(the service's limit applies; 422 past it)",
-                                       examples=[500])
-    time_limit_s: float | None = Field(None, gt=0, description="stop the search after this many "
-                                       "seconds and return the best ranking so far with "
-                                       "search.complete = false (503 if no candidate finished); "
-                                       "the service's limit applies", examples=[30])
+    max_candidates: int | None = Field(
+        None,
+        ge=1,
+        description="most candidates to score (the service's limit applies; 422 past it)",
+        examples=[500],
+    )
+    time_limit_s: float | None = Field(
+        None,
+        gt=0,
+        description="stop the search after this many "
+        "seconds and return the best ranking so far with "
+        "search.complete = false (503 if no candidate finished); "
+        "the service's limit applies",
+        examples=[30],
+    )
 
 
 class SelectionRequest(_Strict):
     data: DataIn = Field(..., description="the table")
     response: ColumnName = Field(..., description="response column", examples=["repair_cost"])
-    predictors: list[ColumnName] = Field(..., min_length=1,
-                                         description="predictor columns; non-numeric ones are "
-                                         "categorical",
-                                         examples=[["pipe_length_m", "pipe_age_years", "soil"]])
-    categorical: list[ColumnName] = Field(default_factory=list,
-                                          description="predictors to treat as categorical even "
-                                          "if numeric", examples=[["district"]])
-    order: ColumnName | None = Field(None, description="column giving observation order (time, "
-                                     "sequence); enables independence tests",
-                                     examples=["repair_date"])
-    transforms: TransformsIn = Field(default_factory=TransformsIn,
-                                     description="which transforms to search")
-    validation: ValidationIn = Field(default_factory=ValidationIn,
-                                     description="cross-validation settings")
-    alpha: float = Field(0.05, gt=0, lt=0.5, description="significance level of condition tests",
-                         examples=[0.05])
-    top: int = Field(5, ge=1, le=100, description="ranked specifications to return",
-                     examples=[5])
+    predictors: list[ColumnName] = Field(
+        ...,
+        min_length=1,
+        description="predictor columns; non-numeric ones are categorical",
+        examples=[["pipe_length_m", "pipe_age_years", "soil"]],
+    )
+    categorical: list[ColumnName] = Field(
+        default_factory=list,
+        description="predictors to treat as categorical even if numeric",
+        examples=[["district"]],
+    )
+    order: ColumnName | None = Field(
+        None,
+        description="column giving observation order (time, sequence); enables independence tests",
+        examples=["repair_date"],
+    )
+    transforms: TransformsIn = Field(
+        default_factory=TransformsIn, description="which transforms to search"
+    )
+    validation: ValidationIn = Field(
+        default_factory=ValidationIn, description="cross-validation settings"
+    )
+    alpha: float = Field(
+        0.05, gt=0, lt=0.5, description="significance level of condition tests", examples=[0.05]
+    )
+    top: int = Field(5, ge=1, le=100, description="ranked specifications to return", examples=[5])
     limits: LimitsIn = Field(default_factory=LimitsIn, description="search budget")
-    trust: TrustIn = Field(default_factory=TrustIn, description="optional stability and "
-                           "optimism measures (they repeat the search, so they cost more)")
+    trust: TrustIn = Field(
+        default_factory=TrustIn,
+        description="optional stability and "
+        "optimism measures (they repeat the search, so they cost more)",
+    )
     intercept: bool = Field(True, description="fit an intercept")
-    group_by: ColumnName | None = Field(None, description="run one selection per value of this "
-                                        "column", examples=["region"])
+    group_by: ColumnName | None = Field(
+        None, description="run one selection per value of this column", examples=["region"]
+    )
     units: dict[str, Annotated[str, StringConstraints(max_length=100)]] = Field(
-        default_factory=dict, description="{column: unit text} used in interpretation sentences",
-        examples=[{"pipe_length_m": "metre", "repair_cost": "currency units"}])
+        default_factory=dict,
+        description="{column: unit text} used in interpretation sentences",
+        examples=[{"pipe_length_m": "metre", "repair_cost": "currency units"}],
+    )
     strategy: Literal["auto", "exhaustive", "screened"] = Field(
-        "auto", description="how the candidate space is searched: 'exhaustive' scores every "
+        "auto",
+        description="how the candidate space is searched: 'exhaustive' scores every "
         "candidate, simplest first, until a limit; 'screened' screens each predictor's scale on "
         "the model scale and descends over combinations (see search.strategy in the response); "
         f"'auto' is exhaustive up to {EXHAUSTIVE_LIMIT} candidates and screened past that",
-        examples=["auto"])
+        examples=["auto"],
+    )
     incumbent: SpecificationIn | None = Field(
-        None, description="the specification in use (e.g. last month's), scored on the same "
-        "folds; the response tells whether to keep it")
+        None,
+        description="the specification in use (e.g. last month's), scored on the same "
+        "folds; the response tells whether to keep it",
+    )
 
 
 def transform_items(items) -> list | dict | None:

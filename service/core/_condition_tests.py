@@ -74,7 +74,7 @@ def guarded(name: str, compute: Callable[[], dict], **meta) -> dict:
     except NotApplicable as exc:
         entry["reason"] = str(exc)
         return entry
-    except Exception as exc:  # noqa: BLE001 - one failing test must not stop the assessment
+    except Exception as exc:
         entry["reason"] = f"could not be computed ({type(exc).__name__}: {exc})"
         return entry
     for key, value in out.items():
@@ -157,9 +157,19 @@ def fit_model(z: np.ndarray, X: np.ndarray, has_intercept: bool) -> Fit:
         reason = "the residuals are all zero (the model fits the data exactly)"
     infl = None if reason else _influence(res, n - rank)
     return Fit(
-        z=z, X=X, res=res, n=n, rank=rank, df_resid=n - rank, resid=resid, fitted=fitted,
-        rss=rss, spans_constant=spans_constant,
-        n_predictor_columns=int(np.sum(~constant_cols)), residual_reason=reason, influence=infl,
+        z=z,
+        X=X,
+        res=res,
+        n=n,
+        rank=rank,
+        df_resid=n - rank,
+        resid=resid,
+        fitted=fitted,
+        rss=rss,
+        spans_constant=spans_constant,
+        n_predictor_columns=int(np.sum(~constant_cols)),
+        residual_reason=reason,
+        influence=infl,
     )
 
 
@@ -250,13 +260,18 @@ def reset_test(fit: Fit) -> dict:
         res_u = ols(fit.z, np.column_stack([fit.X, powers[:, use]]))
         F, p, df_num = res_u.compare_f_test(fit.res)
         return {
-            "statistic": F, "p_value": p, "df": [float(df_num), float(res_u.df_resid)],
+            "statistic": F,
+            "p_value": p,
+            "df": [float(df_num), float(res_u.df_resid)],
             "powers": [k + 2 for k in use],
         }
 
     return guarded(
-        "Ramsey RESET", compute, powers=[2, 3], form="F test of fitted^2 and fitted^3 "
-        "(standardised fitted values)", source="Ramsey (1969); statsmodels OLS.compare_f_test",
+        "Ramsey RESET",
+        compute,
+        powers=[2, 3],
+        form="F test of fitted^2 and fitted^3 (standardised fitted values)",
+        source="Ramsey (1969); statsmodels OLS.compare_f_test",
     )
 
 
@@ -274,14 +289,17 @@ def rainbow_test(fit: Fit) -> dict:
             )
         low = math.ceil(0.25 * fit.n)
         if math.floor(low + 0.5 * fit.n) - low <= fit.X.shape[1]:
-            raise NotApplicable(f"too few rows ({fit.n}) for a central half larger than the "
-                                "number of coefficients")
+            raise NotApplicable(
+                f"too few rows ({fit.n}) for a central half larger than the number of coefficients"
+            )
         with _rank_quiet():  # a half-sample may lose a rare dummy level; df use its rank
             F, p = smd.linear_rainbow(fit.res, frac=0.5, use_distance=True)
         return {"statistic": F, "p_value": p}
 
     return guarded(
-        "Rainbow (Utts)", compute, frac=0.5,
+        "Rainbow (Utts)",
+        compute,
+        frac=0.5,
         source="Utts (1982); statsmodels.stats.diagnostic.linear_rainbow(use_distance=True)",
     )
 
@@ -340,8 +358,13 @@ def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict:
     steps = np.sign(np.diff(means))
     monotone = bool(steps.size and np.all(steps == np.sign(coefs[1])) and coefs[1] != 0)
     return {
-        "slope": float(coefs[1]), "curvature": float(coefs[2]), "t": t_value,
-        "p_value": p_value, "df": df, "monotone": monotone, "flipped": sign < 0,
+        "slope": float(coefs[1]),
+        "curvature": float(coefs[2]),
+        "t": t_value,
+        "p_value": p_value,
+        "df": df,
+        "monotone": monotone,
+        "flipped": sign < 0,
     }
 
 
@@ -373,7 +396,8 @@ def jarque_bera_test(fit: Fit) -> dict:
         return {"statistic": jb, "p_value": p, "df": 2.0, "skewness": skew, "kurtosis": kurt}
 
     return guarded(
-        "Jarque-Bera", compute,
+        "Jarque-Bera",
+        compute,
         source="Jarque & Bera (1980); statsmodels.stats.stattools.jarque_bera",
     )
 
@@ -391,7 +415,8 @@ def anderson_darling_test(fit: Fit) -> dict:
         return {"statistic": a2, "p_value": p}
 
     return guarded(
-        "Anderson-Darling", compute,
+        "Anderson-Darling",
+        compute,
         source="Anderson & Darling (1952); statsmodels.stats.diagnostic.normal_ad",
     )
 
@@ -408,11 +433,18 @@ def breusch_pagan_test(fit: Fit, Z: np.ndarray) -> dict:
         if Z.shape[1] < 2:
             raise NotApplicable("the model has no predictors to relate the spread to")
         lm, p, fval, fp = smd.het_breuschpagan(fit.resid, Z, robust=True)
-        return {"statistic": lm, "p_value": p, "df": float(Z.shape[1] - 1),
-                "f_statistic": fval, "f_p_value": fp}
+        return {
+            "statistic": lm,
+            "p_value": p,
+            "df": float(Z.shape[1] - 1),
+            "f_statistic": fval,
+            "f_p_value": fp,
+        }
 
     return guarded(
-        "Breusch-Pagan (Koenker studentised)", compute, robust=True,
+        "Breusch-Pagan (Koenker studentised)",
+        compute,
+        robust=True,
         form="Koenker (1981) studentised LM = n R^2 of e^2 on the model's regressors",
         source="Breusch & Pagan (1979); Koenker (1981); "
         "statsmodels.stats.diagnostic.het_breuschpagan(robust=True)",
@@ -454,7 +486,9 @@ def durbin_watson_test(resid_ordered: np.ndarray) -> dict:
         return {"statistic": d, "p_value": None}
 
     return guarded(
-        "Durbin-Watson", compute, common_practice_range=[1.5, 2.5],
+        "Durbin-Watson",
+        compute,
+        common_practice_range=[1.5, 2.5],
         rule="common practice: 1.5 <= d <= 2.5 is unremarkable; no p-value is computed",
         source="Durbin & Watson (1950, 1951); statsmodels.stats.stattools.durbin_watson",
     )
@@ -476,15 +510,25 @@ def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict:
             raise NotApplicable(f"too few rows ({fit.n}) for {nlags} lagged residuals")
         # OLS is permutation-equivariant: the fit's coefficients are those of the reordered
         # rows, so the reordered results object is built without refitting.
-        res_o = OLSResults(OLS(fit.z[order], fit.X[order]), np.asarray(fit.res.params),
-                           normalized_cov_params=fit.res.normalized_cov_params)
+        res_o = OLSResults(
+            OLS(fit.z[order], fit.X[order]),
+            np.asarray(fit.res.params),
+            normalized_cov_params=fit.res.normalized_cov_params,
+        )
         with _rank_quiet():  # the lagged-residual design inherits any rank deficiency of X
             out = smd.acorr_breusch_godfrey(res_o, nlags=nlags, result_object=True)
-        return {"statistic": out.lm, "p_value": out.lmpval, "df": float(nlags),
-                "f_statistic": out.fval, "f_p_value": out.fpval}
+        return {
+            "statistic": out.lm,
+            "p_value": out.lmpval,
+            "df": float(nlags),
+            "f_statistic": out.fval,
+            "f_p_value": out.fpval,
+        }
 
     return guarded(
-        "Breusch-Godfrey", compute, lags=nlags,
+        "Breusch-Godfrey",
+        compute,
+        lags=nlags,
         source="Breusch (1978); Godfrey (1978); statsmodels.stats.diagnostic.acorr_breusch_godfrey",
     )
 
@@ -507,7 +551,10 @@ def ljung_box_test(resid_ordered: np.ndarray) -> dict:
         return {"statistic": q, "p_value": stats.chi2.sf(q, lags)}
 
     return guarded(
-        "Ljung-Box", compute, lags=lags, df=float(max(lags, 0)),
+        "Ljung-Box",
+        compute,
+        lags=lags,
+        df=float(max(lags, 0)),
         source="Ljung & Box (1978); statsmodels.stats.diagnostic.acorr_ljungbox",
     )
 

@@ -53,10 +53,10 @@ def _rho_ok_cached(p: float) -> float:
     if poly and round(p) < J:
         return 0.9  # a polynomial of degree < J: the series is exact
     # a polynomial of degree >= J: terms J..p, nothing after
-    t0 = int(round(p)) if poly else max(J, int(math.ceil(abs(p))) + 1)
+    t0 = round(p) if poly else max(J, math.ceil(abs(p)) + 1)
     j = np.arange(t0)
     acc = np.concatenate([[0.0], np.cumsum(np.log(np.maximum(np.abs(p - j), 1e-300) / (j + 1)))])
-    logs = acc[J:t0 + 1]  # log |C(p, t)| for t = J .. t0
+    logs = acc[J : t0 + 1]  # log |C(p, t)| for t = J .. t0
     q = max(1.0, (t0 - p) / (t0 + 1))
     rho = _RHO_GRID
     lr = np.log(rho)
@@ -94,7 +94,7 @@ _INV_FACT = 1.0 / _FACT
 
 def _powers(x: np.ndarray, k: int) -> np.ndarray:
     """x^0 .. x^(k-1) along a new last axis."""
-    out = np.empty(x.shape + (k,))
+    out = np.empty((*x.shape, k))
     out[..., 0] = 1.0
     out[..., 1:] = x[..., None]
     np.cumprod(out[..., 1:], axis=-1, out=out[..., 1:])
@@ -108,7 +108,7 @@ class _Tree:
         n = s.size
         self.s = s
         nl = max(1, -(-n // LEAF))
-        levels = max(1, int(math.ceil(math.log2(nl))) + 1)
+        levels = max(1, math.ceil(math.log2(nl)) + 1)
         size = 1 << (levels - 1)  # leaves, padded to a power of two
         self.levels = levels
         self.n = n
@@ -129,8 +129,9 @@ class _Tree:
         member = (~np.isnan(block)).astype(float)
         M = np.empty((size, J))
         for a in range(0, size, 2048):  # in chunks: the powers of 2048 leaves fit in cache
-            M[a:a + 2048] = np.einsum("blt,bl->bt", _powers(u[a:a + 2048], J),
-                                      member[a:a + 2048])
+            M[a : a + 2048] = np.einsum(
+                "blt,bl->bt", _powers(u[a : a + 2048], J), member[a : a + 2048]
+            )
         self.cen, self.rad, self.cnt, self.mom = [c], [r], [cnt], [M]
         self.lo, self.hi = [lo], [hi]
         for _ in range(1, levels):
@@ -143,8 +144,9 @@ class _Tree:
             c1 = 0.5 * (lo1 + hi1)
             r1 = 0.5 * (hi1 - lo1)
             r1s = np.where(r1 > 0, r1, 1.0)
-            M1 = self._shift(M0[a], c0[a], r0[a], c1, r1s, na) + \
-                self._shift(M0[b], c0[b], r0[b], c1, r1s, nb)
+            M1 = self._shift(M0[a], c0[a], r0[a], c1, r1s, na) + self._shift(
+                M0[b], c0[b], r0[b], c1, r1s, nb
+            )
             self.cen.append(c1)
             self.rad.append(r1)
             self.cnt.append(na + nb)
@@ -166,13 +168,20 @@ class _Tree:
         dk = _powers(d, J) * _INV_FACT[None, :]
         out = N * dk[:, :1]
         for k in range(1, J):
-            out[:, k:] += dk[:, k:k + 1] * N[:, :J - k]
+            out[:, k:] += dk[:, k : k + 1] * N[:, : J - k]
         out *= _FACT[None, :]
         return np.where(cnt[:, None] > 0, out, 0.0)
 
 
-def smear_power(eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, delta: float,
-                p: float, outside_zero: bool) -> np.ndarray:
+def smear_power(
+    eta: np.ndarray,
+    e: np.ndarray,
+    beta: float,
+    gamma: float,
+    delta: float,
+    p: float,
+    outside_zero: bool,
+) -> np.ndarray:
     """mean_i of beta (gamma + delta (eta + e_i))^p over the defined terms (base > 0).
 
     Terms with base <= 0 count as 0 when ``outside_zero`` (a clip) and are left
@@ -248,8 +257,9 @@ def smear_power(eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, delta
             good = (base > 0) & (rho <= rho_ok)
             if np.any(good):
                 g = good
-                series = np.einsum("bt,bt->b", _powers(rho[g], J) * cp[None, :],
-                                   tree.mom[lev][b_[g]])
+                series = np.einsum(
+                    "bt,bt->b", _powers(rho[g], J) * cp[None, :], tree.mom[lev][b_[g]]
+                )
                 val = beta * np.power(base[g], p) * series
                 total[:] += np.bincount(e_[g], weights=val, minlength=m)
             bad = ~good
@@ -290,8 +300,9 @@ def power_form(t) -> tuple[float, float, float, float, bool] | None:
     return None
 
 
-def smear_power_root(eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, delta: float,
-                     p: float) -> tuple[np.ndarray, np.ndarray]:
+def smear_power_root(
+    eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, delta: float, p: float
+) -> tuple[np.ndarray, np.ndarray]:
     """The tree's root block alone: (means, done) for the etas whose every term is defined and
     whose relative distance to the singular point is at most ``rho_ok`` (same error bound)."""
     eta = np.asarray(eta, dtype=float)
@@ -317,8 +328,15 @@ def smear_power_root(eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, 
 _CHUNK = 1 << 15  # elements per block of the double sum (fits in cache)
 
 
-def exact_power(eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, delta: float,
-                p: float, outside_zero: bool) -> np.ndarray:
+def exact_power(
+    eta: np.ndarray,
+    e: np.ndarray,
+    beta: float,
+    gamma: float,
+    delta: float,
+    p: float,
+    outside_zero: bool,
+) -> np.ndarray:
     """The exact double sum for a power-form inverse (same semantics as smear_power)."""
     eta = np.asarray(eta, dtype=float)
     e = np.asarray(e, dtype=float)
@@ -327,7 +345,7 @@ def exact_power(eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, delta
     step = max(1, _CHUNK // max(n, 1))
     de = delta * e
     for a in range(0, eta.size, step):
-        A = gamma + delta * eta[a:a + step]
+        A = gamma + delta * eta[a : a + step]
         buf = np.add.outer(A, de)
         if outside_zero:
             np.maximum(buf, 0.0, out=buf)
@@ -349,5 +367,5 @@ def exact_power(eta: np.ndarray, e: np.ndarray, beta: float, gamma: float, delta
             buf[~ok] = 0.0
         tot = buf.sum(axis=1) * beta
         with np.errstate(invalid="ignore", divide="ignore"):
-            out[a:a + step] = np.where(np.asarray(cnt) > 0, tot / np.maximum(cnt, 1.0), np.nan)
+            out[a : a + step] = np.where(np.asarray(cnt) > 0, tot / np.maximum(cnt, 1.0), np.nan)
     return out

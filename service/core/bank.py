@@ -38,12 +38,12 @@ class FoldIndex:
     train: list[list[np.ndarray]]
 
     @classmethod
-    def of(cls, plan: "CVPlan", n: int) -> "FoldIndex":
+    def of(cls, plan: CVPlan, n: int) -> FoldIndex:
         test, train = [], []
         for a in plan.assignments:
             order = np.argsort(a, kind="stable")
             bounds = np.concatenate([[0], np.cumsum(np.bincount(a, minlength=plan.folds))])
-            te = [np.sort(order[bounds[k]:bounds[k + 1]]) for k in range(plan.folds)]
+            te = [np.sort(order[bounds[k] : bounds[k + 1]]) for k in range(plan.folds)]
             test.append(te)
             train.append([np.flatnonzero(a != k) for k in range(plan.folds)])
         return cls(n, plan.folds, plan.repeats, plan.assignments, test, train)
@@ -63,7 +63,7 @@ class ColumnBank:
         self._cross: dict = {}
 
     @classmethod
-    def of_matrix(cls, X: np.ndarray, index: FoldIndex) -> "ColumnBank":
+    def of_matrix(cls, X: np.ndarray, index: FoldIndex) -> ColumnBank:
         bank = cls(X.shape[0], index)
         for j in range(X.shape[1]):
             bank.add(("column", j), X[:, j])
@@ -127,10 +127,7 @@ class ColumnBank:
     def train_grams(self, S: np.ndarray, r: int) -> np.ndarray:
         """(K, p, p) training cross-products of columns S in repeat r: G_r[S,S] - G_rk[S,S]."""
         Gk = self.fold_grams(S, r)
-        if self.G_total is not None:
-            tot = self.G_total[r][np.ix_(S, S)]
-        else:
-            tot = Gk.sum(axis=0)
+        tot = self.G_total[r][np.ix_(S, S)] if self.G_total is not None else Gk.sum(axis=0)
         return tot[None, :, :] - Gk
 
     def cross(self, key, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -78,12 +78,23 @@ class PowerFit:
             if inside:
                 ladder = min(inside, key=lambda p: (abs(p - a), abs(p)))
         at_bound = bool(a <= POWER_BOUNDS[0] + 1e-6 or a >= POWER_BOUNDS[1] - 1e-6)
-        return {"power": a, "std_error": se, "ci_low": lo, "ci_high": hi, "level": level,
-                "ladder": ladder, "converged": self.converged, "iterations": self.iterations,
-                "method": self.method, "at_search_bound": at_bound}
+        return {
+            "power": a,
+            "std_error": se,
+            "ci_low": lo,
+            "ci_high": hi,
+            "level": level,
+            "ladder": ladder,
+            "converged": self.converged,
+            "iterations": self.iterations,
+            "method": self.method,
+            "at_search_bound": at_bound,
+        }
 
 
-def power_columns(logx: np.ndarray, a: np.ndarray, boxcox_form: bool) -> tuple[np.ndarray, np.ndarray]:
+def power_columns(
+    logx: np.ndarray, a: np.ndarray, boxcox_form: bool
+) -> tuple[np.ndarray, np.ndarray]:
     """w(a) and dw/da for every power: ``logx`` (n, k) holds log x_j, ``a`` (k,)."""
     W = np.empty_like(logx)
     D = np.empty_like(logx)
@@ -207,8 +218,14 @@ class _Problem:
         return coef if np.all(np.isfinite(coef)) else None
 
 
-def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndarray | None = None,
-                    boxcox_form: bool = True, with_se: bool = True) -> PowerFit:
+def estimate_powers(
+    z: np.ndarray,
+    Xf: np.ndarray,
+    x: np.ndarray,
+    start: np.ndarray | None = None,
+    boxcox_form: bool = True,
+    with_se: bool = True,
+) -> PowerFit:
     """Box-Tidwell powers of the columns of ``x`` (n, k), all > 0, beside fixed columns ``Xf``.
 
     ``z`` (n,) is the response on its model scale; ``start`` (k,) the first
@@ -236,12 +253,12 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
     it = 0
     flat = 0  # consecutive steps that lowered the RSS by at most FTOL (relative)
     if math.isfinite(rss):
-        for it in range(1, MAX_ITER + 1):
-            b = coef[prob.pf:]
+        for it in range(1, MAX_ITER + 1):  # noqa: B007  (the count is reported after the loop)
+            b = coef[prob.pf :]
             g = prob.solve(cache, with_d=True)
             if g is None:
                 break
-            gamma = g[prob.pf + k:]
+            gamma = g[prob.pf + k :]
             if np.any(np.abs(b) < 1e-300):
                 break
             step = gamma / b
@@ -269,8 +286,10 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
                 break
     method = "box_tidwell"
     if not converged and k > PROFILE_MAX_POWERS:
-        raise CandidateFailure(f"the Box-Tidwell iteration for {k} powers did not converge in "
-                               f"{it} steps; estimate fewer powers at once")
+        raise CandidateFailure(
+            f"the Box-Tidwell iteration for {k} powers did not converge in "
+            f"{it} steps; estimate fewer powers at once"
+        )
     if not converged:
         if start is not None and math.isfinite(rss):
             a, rss = _profile_search(prob, a, local=LOCAL_HALF_WIDTH)
@@ -278,8 +297,10 @@ def estimate_powers(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, start: np.ndar
             a, rss = _profile_search(prob, a if math.isfinite(rss) else np.ones(k))
         method = "profile"
         if not math.isfinite(rss):
-            raise CandidateFailure("the predictor power could not be estimated (the residual sum "
-                                   "of squares is not finite for any power in [-3, 3])")
+            raise CandidateFailure(
+                "the predictor power could not be estimated (the residual sum "
+                "of squares is not finite for any power in [-3, 3])"
+            )
     se = _std_errors(z, Xf, logx, a, boxcox_form, n, p) if with_se else None
     return PowerFit(a, se, converged or method == "profile", it, method, rss)
 
@@ -289,12 +310,12 @@ def _std_errors(z, Xf, logx, a, boxcox_form, n, p):
     k = logx.shape[1]
     try:
         coef1, _, _ = _fit(np.hstack([Xf, W]), z)
-        coef2, cov2, rss2 = _fit(np.hstack([Xf, W, D]), z, with_cov=True)
+        _coef2, cov2, rss2 = _fit(np.hstack([Xf, W, D]), z, with_cov=True)
     except CandidateFailure:
         return None
-    b = coef1[Xf.shape[1]:]
+    b = coef1[Xf.shape[1] :]
     s2 = rss2 / (n - p)
-    var_g = np.diag(cov2)[Xf.shape[1] + k:] * s2
+    var_g = np.diag(cov2)[Xf.shape[1] + k :] * s2
     with np.errstate(divide="ignore", invalid="ignore"):
         se = np.sqrt(np.maximum(var_g, 0.0)) / np.abs(b)
     return np.where(np.isfinite(se), se, np.nan)
@@ -311,6 +332,7 @@ def _profile_search(prob: _Problem, a0, local: float | None = None):
     for _sweep in range(4):
         before = a.copy()
         for j in range(k):
+
             def f(v, j=j):
                 trial = a.copy()
                 trial[j] = v
@@ -325,8 +347,9 @@ def _profile_search(prob: _Problem, a0, local: float | None = None):
                     continue
                 i = int(np.argmin(np.where(np.isfinite(vals), vals, np.inf)))
                 lo, hi = grid[max(i - 1, 0)], grid[min(i + 1, grid.size - 1)]
-            res = optimize.minimize_scalar(f, bounds=(lo, hi), method="bounded",
-                                           options={"xatol": 1e-8})
+            res = optimize.minimize_scalar(
+                f, bounds=(lo, hi), method="bounded", options={"xatol": 1e-8}
+            )
             cand, val = (float(res.x), float(res.fun))
             if vals is not None and vals[i] < val:
                 cand, val = float(grid[i]), float(vals[i])

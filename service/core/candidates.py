@@ -62,12 +62,14 @@ def response_candidates(prep: Prepared, response_transforms) -> list[tr.Transfor
     for i, item in enumerate(items):
         for t in _expand_name(item, "response"):
             if t.name == "categorical":
-                raise InputError.at(pointer("transforms", "response", i),
-                                    "the response cannot be categorical")
+                raise InputError.at(
+                    pointer("transforms", "response", i), "the response cannot be categorical"
+                )
             if bt.is_open(t):
-                raise InputError.at(pointer("transforms", "response", i),
-                                    "a response power needs an 'exponent' (or use box_cox to "
-                                    "estimate one)")
+                raise InputError.at(
+                    pointer("transforms", "response", i),
+                    "a response power needs an 'exponent' (or use box_cox to estimate one)",
+                )
             msg = t.domain_problem(y, prep.response, "response")
             if msg:
                 if explicit:
@@ -79,7 +81,9 @@ def response_candidates(prep: Prepared, response_transforms) -> list[tr.Transfor
 
 
 def _power_applies(x: np.ndarray) -> bool:
-    return bool(np.min(x) > 0 and np.unique(x[: min(x.size, 100_000)]).size >= MIN_DISTINCT_FOR_POWER)
+    return bool(
+        np.min(x) > 0 and np.unique(x[: min(x.size, 100_000)]).size >= MIN_DISTINCT_FOR_POWER
+    )
 
 
 def predictor_candidates(prep: Prepared, predictor_transforms) -> list[list[tr.Transform]]:
@@ -104,17 +108,25 @@ def predictor_candidates(prep: Prepared, predictor_transforms) -> list[list[tr.T
                         if not any(bt.is_open(u) for u in lst):
                             lst.append(t)
                     elif explicit and isinstance(item, dict):
-                        raise InputError.at(f"{base}/{i}", f"an estimated power of '{col}' needs "
-                                            "values > 0 with at least "
-                                            f"{MIN_DISTINCT_FOR_POWER} distinct values")
+                        raise InputError.at(
+                            f"{base}/{i}",
+                            f"an estimated power of '{col}' needs "
+                            "values > 0 with at least "
+                            f"{MIN_DISTINCT_FOR_POWER} distinct values",
+                        )
                     continue
                 if t.name in ("box_cox", "yeo_johnson") and t.lam is None:
-                    raise InputError.at(f"{base}/{i}", f"{t.name} of a predictor needs an explicit "
-                                        "'lambda' (for an estimated predictor power use "
-                                        "'power')")
+                    raise InputError.at(
+                        f"{base}/{i}",
+                        f"{t.name} of a predictor needs an explicit "
+                        "'lambda' (for an estimated predictor power use "
+                        "'power')",
+                    )
                 if t.name == "categorical":
-                    raise InputError.at(f"{base}/{i}", f"'{col}' is numeric; list it in "
-                                        "'categorical' to treat it as levels")
+                    raise InputError.at(
+                        f"{base}/{i}",
+                        f"'{col}' is numeric; list it in 'categorical' to treat it as levels",
+                    )
                 msg = t.domain_problem(x, col, "predictor")
                 if msg:
                     if explicit:
@@ -127,8 +139,9 @@ def predictor_candidates(prep: Prepared, predictor_transforms) -> list[list[tr.T
         if spec is None and _power_applies(x) and not any(bt.is_open(t) for t in lst):
             lst.append(bt.ESTIMATED)
         if not lst:
-            raise InputError.at(pointer("predictors", j), f"no requested transform applies to "
-                                f"predictor '{col}'")
+            raise InputError.at(
+                pointer("predictors", j), f"no requested transform applies to predictor '{col}'"
+            )
         per.append(lst)
     return per
 
@@ -179,19 +192,27 @@ class Space:
         return [f"{column}[{level}]" for level in lv if level != ref]
 
 
-def build_space(prep: Prepared, preds: list[list[tr.Transform]], index: FoldIndex,
-                intercept: bool, extra: dict | None = None) -> Space:
+def build_space(
+    prep: Prepared,
+    preds: list[list[tr.Transform]],
+    index: FoldIndex,
+    intercept: bool,
+    extra: dict | None = None,
+) -> Space:
     """Compute every option's column once; ``extra`` adds screening columns {key: values}."""
     bank = ColumnBank(prep.n, index)
     space = Space(prep, bank, intercept)
     if intercept:
         space.index[("", "intercept")] = (bank.add(("", "intercept"), np.ones(prep.n)),)
-    for col, opts in zip(prep.predictors, preds):
+    for col, opts in zip(prep.predictors, preds, strict=True):
         if col in prep.categorical:
             vals = prep.categorical[col]
             lv, ref = categorical_levels(vals, None, col, "")
-            idx = tuple(bank.add((col, "level", level), (vals == level).astype(float))
-                        for level in lv if level != ref)
+            idx = tuple(
+                bank.add((col, "level", level), (vals == level).astype(float))
+                for level in lv
+                if level != ref
+            )
             space.index[(col, tr.Transform("categorical"))] = idx
             continue
         x = prep.numeric[col]
@@ -214,8 +235,14 @@ def build_space(prep: Prepared, preds: list[list[tr.Transform]], index: FoldInde
     return space
 
 
-def screening_powers(prep: Prepared, preds, responses: list[tr.Transform], intercept: bool,
-                     seed: int, deadline: float | None = None) -> tuple[dict, dict]:
+def screening_powers(
+    prep: Prepared,
+    preds,
+    responses: list[tr.Transform],
+    intercept: bool,
+    seed: int,
+    deadline: float | None = None,
+) -> tuple[dict, dict]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
     For each fixed response scale and each predictor offering an estimated power, the
@@ -225,7 +252,7 @@ def screening_powers(prep: Prepared, preds, responses: list[tr.Transform], inter
     without the missing estimates' ladder rungs.  Returns
     ({(response, column): estimate summary}, {(response, column): power}).
     """
-    cols = [c for c, o in zip(prep.predictors, preds) if any(bt.is_open(t) for t in o)]
+    cols = [c for c, o in zip(prep.predictors, preds, strict=True) if any(bt.is_open(t) for t in o)]
     if not cols:
         return {}, {}
     n = prep.n
@@ -253,8 +280,9 @@ def screening_powers(prep: Prepared, preds, responses: list[tr.Transform], inter
         for c in cols:
             if deadline is not None and time.perf_counter() > deadline:
                 return info, powers
-            fixed = ([np.ones(rows.size)] if intercept else []) + \
-                [v for other in prep.predictors if other != c for v in base[other]]
+            fixed = ([np.ones(rows.size)] if intercept else []) + [
+                v for other in prep.predictors if other != c for v in base[other]
+            ]
             Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))
             try:
                 fit = bt.estimate_powers(z, Xf, prep.numeric[c][rows], boxcox_form=intercept)
@@ -276,7 +304,9 @@ def add_ladder_rungs(prep: Prepared, preds, info: dict) -> list[list[tr.Transfor
         if rung.name == "log":
             rung = tr.fit_transform(rung, prep.numeric[col])
         if rung.domain_problem(prep.numeric[col], col, "predictor") is None and rung not in out[j]:
-            out[j].insert(len(out[j]) - 1 if any(bt.is_open(t) for t in out[j]) else len(out[j]), rung)
+            out[j].insert(
+                len(out[j]) - 1 if any(bt.is_open(t) for t in out[j]) else len(out[j]), rung
+            )
     return out
 
 
@@ -302,5 +332,9 @@ def allowed(spec: Specification) -> bool:
 
 
 def make_spec(prep: Prepared, rt: tr.Transform, ts, intercept: bool) -> Specification:
-    return Specification(prep.response, rt,
-                         tuple(PredictorSpec(c, t) for c, t in zip(prep.predictors, ts)), intercept)
+    return Specification(
+        prep.response,
+        rt,
+        tuple(PredictorSpec(c, t) for c, t in zip(prep.predictors, ts, strict=True)),
+        intercept,
+    )

@@ -15,10 +15,15 @@ def selection_cautions(metric: str, any_transformed_response: bool) -> list[str]
         "this ranking is an aid to your own review, not a substitute for it.",
     ]
     if any_transformed_response:
-        out.insert(1, "On a transformed response the plain inverse gives a median; the mean "
-                      "(Duan smearing) relies on the residual distribution staying the same "
-                      "across predictor values.")
+        out.insert(
+            1,
+            "On a transformed response the plain inverse gives a median; the mean "
+            "(Duan smearing) relies on the residual distribution staying the same "
+            "across predictor values.",
+        )
     if metric == "rmse":
-        out.append("The cross-validated error scores the smeared mean on the original scale; "
-                   "use metric 'mae' to score medians instead.")
+        out.append(
+            "The cross-validated error scores the smeared mean on the original scale; "
+            "use metric 'mae' to score medians instead."
+        )
     return out

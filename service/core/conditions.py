@@ -120,7 +120,7 @@ def _curvatures(fit: ct.Fit, inp: ConditionInputs) -> list[tuple[TermInfo, dict 
         try:
             with np.errstate(all="ignore"):  # degenerate columns surface as NotApplicable
                 out.append((term, ct.curvature(fit, term.indices[0], raw)))
-        except Exception as exc:  # noqa: BLE001 - one unreadable term must not stop the rest
+        except Exception as exc:
             out.append((term, exc))
     return out
 
@@ -132,22 +132,33 @@ def _curvature_entries(curves: list[tuple[TermInfo, dict | Exception]]) -> list[
         def compute(c=c):
             if isinstance(c, Exception):
                 raise c
-            return {"statistic": c["t"], "p_value": c["p_value"], "df": float(c["df"]),
-                    "curvature_sign": int(np.sign(c["curvature"]))}
+            return {
+                "statistic": c["t"],
+                "p_value": c["p_value"],
+                "df": float(c["df"]),
+                "curvature_sign": int(np.sign(c["curvature"])),
+            }
 
-        out.append(ct.guarded(
-            f"Curvature of partial residuals: {term.label}", compute, column=term.column,
-            label=term.label, form="t-test of the squared (centred) predictor added to the model",
-            source="component-plus-residual curvature (Mallows 1986); Frisch-Waugh-Lovell t-test",
-        ))
+        out.append(
+            ct.guarded(
+                f"Curvature of partial residuals: {term.label}",
+                compute,
+                column=term.column,
+                label=term.label,
+                form="t-test of the squared (centred) predictor added to the model",
+                source="component-plus-residual curvature (Mallows 1986); Frisch-Waugh-Lovell t-test",
+            )
+        )
     return out
 
 
 def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list) -> dict:
     a = inp.alpha
-    rule = (f"holds = false when Ramsey's RESET (fitted^2 and fitted^3) rejects at alpha = {a}; "
-            "the rainbow test and the per-predictor curvature checks are reported but do not "
-            "decide, which keeps the false-alarm rate of the decision at alpha")
+    rule = (
+        f"holds = false when Ramsey's RESET (fitted^2 and fitted^3) rejects at alpha = {a}; "
+        "the rainbow test and the per-predictor curvature checks are reported but do not "
+        "decide, which keeps the false-alarm rate of the decision at alpha"
+    )
     reset = ct.reset_test(fit)
     curves = _curvature_entries(curvatures)
     tests = [reset, ct.rainbow_test(fit), *curves]
@@ -157,12 +168,16 @@ def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list) -> dict:
     if holds is None:
         note = f"Linearity could not be tested: {reset.get('reason', 'undefined')}."
     elif holds:
-        note = ("No sign of a wrong functional form (RESET on fitted^2 and fitted^3, "
-                f"p = {_p(reset['p_value'])})")
+        note = (
+            "No sign of a wrong functional form (RESET on fitted^2 and fitted^3, "
+            f"p = {_p(reset['p_value'])})"
+        )
         note += f", though the partial residuals of {bent_txt} show curvature." if bent else "."
     else:
-        note = ("The straight-line form looks wrong (RESET on fitted^2 and fitted^3, "
-                f"F = {_g(reset['statistic'])}, p = {_p(reset['p_value'])})")
+        note = (
+            "The straight-line form looks wrong (RESET on fitted^2 and fitted^3, "
+            f"F = {_g(reset['statistic'])}, p = {_p(reset['p_value'])})"
+        )
         note += f"; curvature shows in the partial residuals of {bent_txt}." if bent else "."
     return {"holds": holds, "tests": tests, "note": note, "rule": rule}
 
@@ -170,9 +185,11 @@ def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list) -> dict:
 # ---------------------------------------------------------------------------- normality
 def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict:
     a = inp.alpha
-    rule = (f"holds = false when the primary test rejects at alpha = {a}: Shapiro-Wilk for "
-            "3 <= n <= 5000, otherwise Jarque-Bera; Anderson-Darling is reported only. "
-            "Large samples flag departures too small to matter for OLS inference")
+    rule = (
+        f"holds = false when the primary test rejects at alpha = {a}: Shapiro-Wilk for "
+        "3 <= n <= 5000, otherwise Jarque-Bera; Anderson-Darling is reported only. "
+        "Large samples flag departures too small to matter for OLS inference"
+    )
     sw, jb, ad = ct.shapiro_test(fit), ct.jarque_bera_test(fit), ct.anderson_darling_test(fit)
     primary = sw if sw["p_value"] is not None else jb
     for entry in (sw, jb, ad):
@@ -182,17 +199,23 @@ def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict:
     if holds is None:
         note = f"Normality could not be tested: {primary.get('reason', 'undefined')}."
     elif holds:
-        note = ("Residuals are consistent with a normal distribution "
-                f"({name} p = {_p(primary['p_value'])}).")
+        note = (
+            "Residuals are consistent with a normal distribution "
+            f"({name} p = {_p(primary['p_value'])})."
+        )
     else:
         shape = ""
         if jb.get("skewness") is not None and jb.get("kurtosis") is not None:
             shape = f"; skewness {_g(jb['skewness'], 3)}, kurtosis {_g(jb['kurtosis'], 3)} vs 3"
-        note = ("Residuals depart from a normal distribution "
-                f"({name} p = {_p(primary['p_value'])}{shape})")
+        note = (
+            "Residuals depart from a normal distribution "
+            f"({name} p = {_p(primary['p_value'])}{shape})"
+        )
         if fit.n > LARGE_N:
-            note += (f", but with n = {fit.n} even a trivial departure is significant, so "
-                     "judge its size from the Q-Q plot.")
+            note += (
+                f", but with n = {fit.n} even a trivial departure is significant, so "
+                "judge its size from the Q-Q plot."
+            )
         else:
             note += "."
     return {"holds": holds, "tests": [sw, jb, ad], "note": note, "rule": rule}
@@ -201,8 +224,10 @@ def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict:
 # ----------------------------------------------------------------------- equal variance
 def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict:
     a = inp.alpha
-    rule = (f"holds = false when the Breusch-Pagan test in Koenker's studentised form rejects at "
-            f"alpha = {a}; White's test is reported only")
+    rule = (
+        f"holds = false when the Breusch-Pagan test in Koenker's studentised form rejects at "
+        f"alpha = {a}; White's test is reported only"
+    )
     Z = None if fit.residual_reason else ct.standardized_regressors(fit)
     bp, white = ct.breusch_pagan_test(fit, Z), ct.white_test(fit, Z)
     bp["primary"], white["primary"] = True, False
@@ -211,8 +236,10 @@ def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict:
     if holds is None:
         note = f"Equal variance could not be tested: {bp.get('reason', 'undefined')}."
     elif holds:
-        note = ("No evidence that the residual spread changes with the predictors "
-                f"(Breusch-Pagan, Koenker form, p = {p}).")
+        note = (
+            "No evidence that the residual spread changes with the predictors "
+            f"(Breusch-Pagan, Koenker form, p = {p})."
+        )
     elif not _numeric_terms(inp):
         note = f"Residual spread differs between groups (Breusch-Pagan, Koenker form, p = {p})."
     else:
@@ -227,13 +254,21 @@ def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict:
 # ------------------------------------------------------------------------- independence
 def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict:
     a = inp.alpha
-    rule = (f"with an order: holds = false when the Breusch-Godfrey test rejects at alpha = {a}; "
-            "Durbin-Watson (common-practice range 1.5-2.5) and Ljung-Box are reported only. "
-            "Without an order: holds = null")
+    rule = (
+        f"with an order: holds = false when the Breusch-Godfrey test rejects at alpha = {a}; "
+        "Durbin-Watson (common-practice range 1.5-2.5) and Ljung-Box are reported only. "
+        "Without an order: holds = null"
+    )
     if inp.order is None:
-        return {"holds": None, "tests": [], "rule": rule, "note": (
-            "Independence is a matter of how the data were collected, and no test on unordered "
-            "rows can settle it; send an order column (e.g. time) to test serial correlation.")}
+        return {
+            "holds": None,
+            "tests": [],
+            "rule": rule,
+            "note": (
+                "Independence is a matter of how the data were collected, and no test on unordered "
+                "rows can settle it; send an order column (e.g. time) to test serial correlation."
+            ),
+        }
     if fit.residual_reason:
         return _unavailable(fit.residual_reason, rule)
     order = np.asarray(inp.order, dtype=np.intp)
@@ -247,11 +282,15 @@ def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict:
     if holds is None:
         note = f"Independence could not be tested: {bg.get('reason', 'undefined')}."
     elif holds:
-        note = ("No serial correlation in the given order "
-                f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt}).")
+        note = (
+            "No serial correlation in the given order "
+            f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt})."
+        )
     else:
-        note = ("Residuals close together in the given order are correlated "
-                f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt}).")
+        note = (
+            "Residuals close together in the given order are correlated "
+            f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt})."
+        )
     return {"holds": holds, "tests": [dw, bg, lb], "note": note, "rule": rule}
 
 
@@ -273,64 +312,102 @@ def _vif_groups(X: np.ndarray, inp: ConditionInputs) -> list[tuple[str, str, lis
 
 
 def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict:
-    rule = (f"common practice: a VIF above {VIF_WARN:g} warns and above {VIF_FAIL:g} fails "
-            "(holds = false); for a predictor with several dummy columns GVIF^(1/df) is compared "
-            "(Fox & Monette 1992: GVIF^(1/(2 df)) against the square roots of the cut-offs). "
-            "Exactly collinear columns fail. The scaled condition number is reported (common "
-            f"practice: above {CONDITION_WARN:g} signals a near-dependence) but does not decide")
+    rule = (
+        f"common practice: a VIF above {VIF_WARN:g} warns and above {VIF_FAIL:g} fails "
+        "(holds = false); for a predictor with several dummy columns GVIF^(1/df) is compared "
+        "(Fox & Monette 1992: GVIF^(1/(2 df)) against the square roots of the cut-offs). "
+        "Exactly collinear columns fail. The scaled condition number is reported (common "
+        f"practice: above {CONDITION_WARN:g} signals a near-dependence) but does not decide"
+    )
     groups = _vif_groups(X, inp)
     gvifs = ct.generalized_vif(X, [g[2] for g in groups]) if groups else []
     vif_rows = []
-    for (label, column, cols), gvif in zip(groups, gvifs):
+    for (label, column, cols), gvif in zip(groups, gvifs, strict=True):
         df = len(cols)
         comparable = None if gvif is None else gvif ** (1.0 / df)
-        level = ("fail" if comparable is None or comparable > VIF_FAIL
-                 else "warn" if comparable > VIF_WARN else "ok")
-        vif_rows.append({
-            "term": label, "column": column, "df": df, "vif": comparable, "gvif": gvif,
-            "gvif_adjusted": None if gvif is None else gvif ** (1.0 / (2 * df)), "level": level,
-        })
+        level = (
+            "fail"
+            if comparable is None or comparable > VIF_FAIL
+            else "warn"
+            if comparable > VIF_WARN
+            else "ok"
+        )
+        vif_rows.append(
+            {
+                "term": label,
+                "column": column,
+                "df": df,
+                "vif": comparable,
+                "gvif": gvif,
+                "gvif_adjusted": None if gvif is None else gvif ** (1.0 / (2 * df)),
+                "level": level,
+            }
+        )
     cond, indices = ct.scaled_condition_number(X)
     finite = [r for r in vif_rows if r["vif"] is not None]
     worst = max(finite, key=lambda r: r["vif"], default=None)
     rank_deficient = fit.rank < X.shape[1] or any(r["gvif"] is None for r in vif_rows)
     tests = [
-        {"name": "Largest variance inflation factor",
-         "statistic": None if worst is None else worst["vif"], "p_value": None,
-         "term": None if worst is None else worst["term"],
-         "threshold": {"warn": VIF_WARN, "fail": VIF_FAIL}, "rule": "common practice",
-         "source": "Fox & Monette (1992) generalised VIF; equals "
-                   "statsmodels variance_inflation_factor for one column"},
-        {"name": "Condition number (unit-length columns, BKW)", "statistic": cond, "p_value": None,
-         "threshold": CONDITION_WARN, "rule": "common practice",
-         "condition_indices": indices, "source": "Belsley, Kuh & Welsch (1980); numpy SVD"},
+        {
+            "name": "Largest variance inflation factor",
+            "statistic": None if worst is None else worst["vif"],
+            "p_value": None,
+            "term": None if worst is None else worst["term"],
+            "threshold": {"warn": VIF_WARN, "fail": VIF_FAIL},
+            "rule": "common practice",
+            "source": "Fox & Monette (1992) generalised VIF; equals "
+            "statsmodels variance_inflation_factor for one column",
+        },
+        {
+            "name": "Condition number (unit-length columns, BKW)",
+            "statistic": cond,
+            "p_value": None,
+            "threshold": CONDITION_WARN,
+            "rule": "common practice",
+            "condition_indices": indices,
+            "source": "Belsley, Kuh & Welsch (1980); numpy SVD",
+        },
     ]
     levels = {r["level"] for r in vif_rows}
     holds = not (rank_deficient or "fail" in levels)
     cond_txt = f"; scaled condition number {_g(cond, 4)}" if cond is not None else ""
     if rank_deficient:
         names = ", ".join(r["term"] for r in vif_rows if r["gvif"] is None) or "some columns"
-        note = (f"Predictor columns are exactly collinear ({names}; design rank {fit.rank} of "
-                f"{X.shape[1]} columns), so their separate effects cannot be estimated.")
+        note = (
+            f"Predictor columns are exactly collinear ({names}; design rank {fit.rank} of "
+            f"{X.shape[1]} columns), so their separate effects cannot be estimated."
+        )
     elif not vif_rows:
         note = "The model has no predictors, so multicollinearity cannot arise."
     elif len(vif_rows) == 1:
         note = "Only one predictor, so multicollinearity cannot arise (VIF 1)."
     elif "fail" in levels:
-        bad = sorted((r for r in vif_rows if r["level"] == "fail"),
-                     key=lambda r: -(r["vif"] or math.inf))
+        bad = sorted(
+            (r for r in vif_rows if r["level"] == "fail"), key=lambda r: -(r["vif"] or math.inf)
+        )
         names = ", ".join(r["term"] for r in bad[:4])
-        note = (f"Predictors overlap strongly: {names} have VIF above {VIF_FAIL:g} (common "
-                f"practice), largest {_g(worst['vif'] if worst else None, 5)} for "
-                f"{worst['term'] if worst else 'n/a'}{cond_txt}.")
+        note = (
+            f"Predictors overlap strongly: {names} have VIF above {VIF_FAIL:g} (common "
+            f"practice), largest {_g(worst['vif'] if worst else None, 5)} for "
+            f"{worst['term'] if worst else 'n/a'}{cond_txt}."
+        )
     elif "warn" in levels:
-        note = (f"Moderate overlap between predictors: largest VIF {_g(worst['vif'], 3)} for "
-                f"{worst['term']}, above the common-practice warning level {VIF_WARN:g}{cond_txt}.")
+        note = (
+            f"Moderate overlap between predictors: largest VIF {_g(worst['vif'], 3)} for "
+            f"{worst['term']}, above the common-practice warning level {VIF_WARN:g}{cond_txt}."
+        )
     else:
         note = f"Predictors are not strongly related (largest VIF {_g(worst['vif'], 3)}{cond_txt})."
     level = "fail" if not holds else ("warn" if "warn" in levels else "ok")
-    return {"holds": holds, "tests": tests, "note": note, "rule": rule, "level": level,
-            "vif": vif_rows, "condition_number": cond}
+    return {
+        "holds": holds,
+        "tests": tests,
+        "note": note,
+        "rule": rule,
+        "level": level,
+        "vif": vif_rows,
+        "condition_number": cond,
+    }
 
 
 # ---------------------------------------------------------------------------- influence
@@ -338,8 +415,13 @@ def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict]:
     """Indices of flagged rows (largest Cook's distance first), reason masks and cut-offs."""
     inf = fit.influence
     n, p = fit.n, fit.rank
-    cut = {"cooks_flag": 4.0 / n, "cooks_fail": 1.0, "leverage": 2.0 * p / n,
-           "dffits": 2.0 * math.sqrt(p / n), "studentized": 3.0}
+    cut = {
+        "cooks_flag": 4.0 / n,
+        "cooks_fail": 1.0,
+        "leverage": 2.0 * p / n,
+        "dffits": 2.0 * math.sqrt(p / n),
+        "studentized": 3.0,
+    }
     with np.errstate(invalid="ignore"):
         masks = {
             "Cook's distance > 1": inf.cooks > cut["cooks_fail"],
@@ -347,8 +429,7 @@ def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict]:
             "leverage > 2p/n": inf.leverage > cut["leverage"],
             "|DFFITS| > 2 sqrt(p/n)": np.abs(inf.dffits) > cut["dffits"],
             "|studentised residual| > 3": np.abs(inf.studentized) > cut["studentized"],
-            "leverage 1 (the fit passes through this row)":
-                inf.leverage >= 1 - ct.LEVERAGE_ONE_TOL,
+            "leverage 1 (the fit passes through this row)": inf.leverage >= 1 - ct.LEVERAGE_ONE_TOL,
         }
     any_flag = np.zeros(n, dtype=bool)
     for m in masks.values():
@@ -359,40 +440,68 @@ def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict]:
 
 
 def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict:
-    rule = ("common practice: holds = false when any Cook's distance exceeds 1 (or a row has "
-            "leverage 1); rows are flagged for Cook's distance > 4/n, leverage > 2p/n, "
-            "|DFFITS| > 2 sqrt(p/n) or |externally studentised residual| > 3")
+    rule = (
+        "common practice: holds = false when any Cook's distance exceeds 1 (or a row has "
+        "leverage 1); rows are flagged for Cook's distance > 4/n, leverage > 2p/n, "
+        "|DFFITS| > 2 sqrt(p/n) or |externally studentised residual| > 3"
+    )
     if fit.influence is None:
-        return _unavailable(fit.residual_reason or "influence undefined", rule,
-                            flagged_rows=[], n_flagged=0)
+        return _unavailable(
+            fit.residual_reason or "influence undefined", rule, flagged_rows=[], n_flagged=0
+        )
     inf, n = fit.influence, fit.n
     ids = np.asarray(inp.row_ids)
     order, masks, cut = flag_rows(fit)
     listed = []
     for i in order[:MAX_FLAGGED_ROWS]:
-        listed.append({
-            "row": int(ids[i]), "reasons": [name for name, m in masks.items() if m[i]],
-            "cooks_distance": ct.num(inf.cooks[i]), "leverage": ct.num(inf.leverage[i]),
-            "dffits": ct.num(inf.dffits[i]), "studentized_residual": ct.num(inf.studentized[i]),
-        })
+        listed.append(
+            {
+                "row": int(ids[i]),
+                "reasons": [name for name, m in masks.items() if m[i]],
+                "cooks_distance": ct.num(inf.cooks[i]),
+                "leverage": ct.num(inf.leverage[i]),
+                "dffits": ct.num(inf.dffits[i]),
+                "studentized_residual": ct.num(inf.studentized[i]),
+            }
+        )
 
     def largest(name: str, values: np.ndarray, threshold, source: str) -> tuple[dict, int | None]:
         finite = np.isfinite(values)
         i = int(np.argmax(np.where(finite, values, -np.inf))) if finite.any() else None
-        return {"name": name, "statistic": None if i is None else ct.num(values[i]),
-                "p_value": None, "row": None if i is None else int(ids[i]),
-                "threshold": threshold, "rule": "common practice", "source": source}, i
+        return {
+            "name": name,
+            "statistic": None if i is None else ct.num(values[i]),
+            "p_value": None,
+            "row": None if i is None else int(ids[i]),
+            "threshold": threshold,
+            "rule": "common practice",
+            "source": source,
+        }, i
 
-    cook, i_d = largest("Cook's distance (largest)", inf.cooks,
-                        {"flag": cut["cooks_flag"], "fail": cut["cooks_fail"]},
-                        "Cook (1977); statsmodels OLSInfluence.cooks_distance")
-    lev, _ = largest("Leverage (largest hat value)", inf.leverage, cut["leverage"],
-                     "Hoaglin & Welsch (1978); statsmodels OLSInfluence.hat_matrix_diag")
-    dff, _ = largest("DFFITS (largest absolute value)", np.abs(inf.dffits), cut["dffits"],
-                     "Belsley, Kuh & Welsch (1980)")
-    out, i_t = largest("Outlier test (largest |externally studentised residual|, Bonferroni)",
-                       np.abs(inf.studentized), cut["studentized"],
-                       "Cook & Weisberg (1982) Bonferroni outlier test; scipy.stats.t")
+    cook, _i_d = largest(
+        "Cook's distance (largest)",
+        inf.cooks,
+        {"flag": cut["cooks_flag"], "fail": cut["cooks_fail"]},
+        "Cook (1977); statsmodels OLSInfluence.cooks_distance",
+    )
+    lev, _ = largest(
+        "Leverage (largest hat value)",
+        inf.leverage,
+        cut["leverage"],
+        "Hoaglin & Welsch (1978); statsmodels OLSInfluence.hat_matrix_diag",
+    )
+    dff, _ = largest(
+        "DFFITS (largest absolute value)",
+        np.abs(inf.dffits),
+        cut["dffits"],
+        "Belsley, Kuh & Welsch (1980)",
+    )
+    out, i_t = largest(
+        "Outlier test (largest |externally studentised residual|, Bonferroni)",
+        np.abs(inf.studentized),
+        cut["studentized"],
+        "Cook & Weisberg (1982) Bonferroni outlier test; scipy.stats.t",
+    )
     if i_t is not None and fit.df_resid >= 2:
         # Bonferroni: n times the two-sided t_{n-p-1} tail probability of the largest |t_i|
         out["p_value"] = min(1.0, n * 2 * float(stats.t.sf(out["statistic"], fit.df_resid - 1)))
@@ -400,25 +509,40 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict:
     tests = [cook, lev, dff, out]
     for entry in tests:
         if entry["statistic"] is None:
-            entry["reason"] = (f"undefined: {fit.df_resid} residual degree(s) of freedom, or "
-                               "every row has leverage 1")
+            entry["reason"] = (
+                f"undefined: {fit.df_resid} residual degree(s) of freedom, or "
+                "every row has leverage 1"
+            )
     n_fail = int(np.sum(masks["Cook's distance > 1"]))
     n_one = int(np.sum(masks["leverage 1 (the fit passes through this row)"]))
     holds = n_fail == 0 and n_one == 0
     d_max, d_row = cook["statistic"], cook["row"]
     if n_one:
-        note = (f"{n_one} row(s) have leverage 1, so the fit passes through them exactly and "
-                "their influence cannot be measured.")
+        note = (
+            f"{n_one} row(s) have leverage 1, so the fit passes through them exactly and "
+            "their influence cannot be measured."
+        )
     elif not holds:
-        note = (f"{n_fail} row(s) have Cook's distance above 1 (largest {_g(d_max, 4)} at row "
-                f"{d_row}); {order.size} row(s) flagged in all.")
+        note = (
+            f"{n_fail} row(s) have Cook's distance above 1 (largest {_g(d_max, 4)} at row "
+            f"{d_row}); {order.size} row(s) flagged in all."
+        )
     else:
-        note = (f"No single row dominates the fit (largest Cook's distance {_g(d_max, 3)} at "
-                f"row {d_row}, below 1); {order.size} row(s) exceed a common-practice "
-                "screening cut-off.")
-    return {"holds": holds, "tests": tests, "note": note, "rule": rule, "flagged_rows": listed,
-            "n_flagged": int(order.size), "flagged_rows_truncated": bool(order.size > len(listed)),
-            "thresholds": cut}
+        note = (
+            f"No single row dominates the fit (largest Cook's distance {_g(d_max, 3)} at "
+            f"row {d_row}, below 1); {order.size} row(s) exceed a common-practice "
+            "screening cut-off."
+        )
+    return {
+        "holds": holds,
+        "tests": tests,
+        "note": note,
+        "rule": rule,
+        "flagged_rows": listed,
+        "n_flagged": int(order.size),
+        "flagged_rows_truncated": bool(order.size > len(listed)),
+        "thresholds": cut,
+    }
 
 
 # --------------------------------------------------------------------------- public API
@@ -435,13 +559,24 @@ def assess_conditions(inp: ConditionInputs) -> dict:
     fit = ct.fit_model(z, X, inp.has_intercept)
     curvatures = _curvatures(fit, inp)
     out = {"linearity": _linearity(fit, inp, curvatures)}
-    for key, build in (("normality", _normality), ("equal_variance", _equal_variance),
-                       ("independence", _independence), ("influence", _influence)):
+    for key, build in (
+        ("normality", _normality),
+        ("equal_variance", _equal_variance),
+        ("independence", _independence),
+        ("influence", _influence),
+    ):
         out[key] = build(fit, inp)
     out["multicollinearity"] = _multicollinearity(fit, X, inp)
     out["hints"] = _hints(curvatures, inp.alpha)
-    keys = ("linearity", "normality", "equal_variance", "independence", "multicollinearity",
-            "influence", "hints")
+    keys = (
+        "linearity",
+        "normality",
+        "equal_variance",
+        "independence",
+        "multicollinearity",
+        "influence",
+        "hints",
+    )
     return {k: out[k] for k in keys}
 
 
@@ -458,9 +593,17 @@ def _hints(curvatures: list, alpha: float) -> list[dict]:
     hints = []
     for term, c in curvatures:
         raw = None if term.raw is None else np.asarray(term.raw, dtype=float)
-        hint = {"column": term.column, "label": term.label, "slope_sign": None,
-                "curvature_sign": None, "bulge": None, "x_direction": None,
-                "y_direction": None, "p_value": None, "monotone": None}
+        hint = {
+            "column": term.column,
+            "label": term.label,
+            "slope_sign": None,
+            "curvature_sign": None,
+            "bulge": None,
+            "x_direction": None,
+            "y_direction": None,
+            "p_value": None,
+            "monotone": None,
+        }
         if isinstance(c, Exception):
             reason = str(c) if isinstance(c, ct.NotApplicable) else type(c).__name__
             hint["sentence"] = f"No curvature reading for {term.label}: {reason}."
@@ -470,22 +613,30 @@ def _hints(curvatures: list, alpha: float) -> list[dict]:
         p = ct.num(c["p_value"])
         hint.update(slope_sign=slope, curvature_sign=curv, p_value=p, monotone=c["monotone"])
         if p is None or p >= alpha or curv == 0 or slope == 0:
-            hint["sentence"] = (f"The partial residuals of {term.label} show no significant "
-                                f"curvature (p = {_p(p)}); keep its current scale.")
+            hint["sentence"] = (
+                f"The partial residuals of {term.label} show no significant "
+                f"curvature (p = {_p(p)}); keep its current scale."
+            )
         elif not c["monotone"]:
-            hint["sentence"] = (f"The partial residuals of {term.label} bend but do not move in "
-                                f"one direction (p = {_p(p)}), so no power of {term.column} "
-                                "straightens them; consider a quadratic term instead.")
+            hint["sentence"] = (
+                f"The partial residuals of {term.label} bend but do not move in "
+                f"one direction (p = {_p(p)}), so no power of {term.column} "
+                "straightens them; consider a quadratic term instead."
+            )
         else:
             bulge, xd, yd = BULGING_RULE[(slope, curv)]
             hint.update(bulge=bulge, x_direction=xd, y_direction=yd)
-            sentence = (f"The partial residuals of {term.label} bulge {bulge} (curvature "
-                        f"p = {_p(p)}): by Tukey's bulging rule, move {term.column} one step "
-                        f"{xd} the ladder of powers from its current scale, or the response "
-                        f"one step {yd}")
+            sentence = (
+                f"The partial residuals of {term.label} bulge {bulge} (curvature "
+                f"p = {_p(p)}): by Tukey's bulging rule, move {term.column} one step "
+                f"{xd} the ladder of powers from its current scale, or the response "
+                f"one step {yd}"
+            )
             if xd == "down" and raw is not None and np.min(raw) <= 0:
-                sentence += (f" ({term.column} has values <= 0, so shift it before a log or a "
-                             "negative power)")
+                sentence += (
+                    f" ({term.column} has values <= 0, so shift it before a log or a "
+                    "negative power)"
+                )
             hint["sentence"] = sentence + "."
         hints.append(hint)
     return hints

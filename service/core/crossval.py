@@ -41,8 +41,9 @@ class CVPlan:
         return self.folds * self.repeats
 
 
-def make_plan(n: int, folds: int = 5, repeats: int = 1, seed: int = 0,
-              metric: str = "rmse") -> CVPlan:
+def make_plan(
+    n: int, folds: int = 5, repeats: int = 1, seed: int = 0, metric: str = "rmse"
+) -> CVPlan:
     rs = np.random.RandomState(seed)
     out = []
     sizes = np.full(folds, n // folds)
@@ -52,7 +53,7 @@ def make_plan(n: int, folds: int = 5, repeats: int = 1, seed: int = 0,
         perm = rs.permutation(n)
         a = np.empty(n, dtype=np.int32)
         for k in range(folds):
-            a[perm[bounds[k]:bounds[k + 1]]] = k
+            a[perm[bounds[k] : bounds[k + 1]]] = k
         out.append(a)
     return CVPlan(folds, repeats, seed, metric, tuple(out))
 
@@ -69,15 +70,29 @@ class CVResult:
     exact_refits: int = 0  # folds refitted by QR because their Gram matrix was ill-conditioned
 
     def to_dict(self, plan: CVPlan) -> dict:
-        return {"metric": self.metric, "value": self.value, "std_error": self.std_error,
-                "scale": "original", "folds": plan.folds, "repeats": plan.repeats,
-                "seed": plan.seed, "all_metrics": self.summary,
-                "back_transform": "smeared mean (Duan 1983)" if self.metric == "rmse"
-                else "median (naive inverse)"}
+        return {
+            "metric": self.metric,
+            "value": self.value,
+            "std_error": self.std_error,
+            "scale": "original",
+            "folds": plan.folds,
+            "repeats": plan.repeats,
+            "seed": plan.seed,
+            "all_metrics": self.summary,
+            "back_transform": "smeared mean (Duan 1983)"
+            if self.metric == "rmse"
+            else "median (naive inverse)",
+        }
 
 
-def cross_validate(X: np.ndarray, y: np.ndarray, response_transform: tr.Transform, plan: CVPlan,
-                   shift_needed: bool, names: list[str] | None = None) -> CVResult:
+def cross_validate(
+    X: np.ndarray,
+    y: np.ndarray,
+    response_transform: tr.Transform,
+    plan: CVPlan,
+    shift_needed: bool,
+    names: list[str] | None = None,
+) -> CVResult:
     """Score one candidate.  ``X``: (n, p) full design; ``y``: (n,) original response.
 
     Per-fold solutions come from downdated cross-product matrices with an exact
@@ -97,5 +112,13 @@ def cross_validate(X: np.ndarray, y: np.ndarray, response_transform: tr.Transfor
 
 def from_score(s) -> CVResult:
     """A :class:`fastcv.Score` as the public :class:`CVResult`."""
-    return CVResult(s.metric, s.value, s.std_error, s.fold_values, s.summary, s.fold_lambdas,
-                    s.fold_powers, s.exact_refits)
+    return CVResult(
+        s.metric,
+        s.value,
+        s.std_error,
+        s.fold_values,
+        s.summary,
+        s.fold_lambdas,
+        s.fold_powers,
+        s.exact_refits,
+    )

@@ -20,8 +20,17 @@ from .errors import FieldProblem, InputError, pointer
 
 DROPPED_LIST_CAP = 100
 _MISSING_KEY = object()
-_NON_FINITE_WORDS = {"nan", "+nan", "-nan", "inf", "+inf", "-inf", "infinity", "+infinity",
-                     "-infinity"}
+_NON_FINITE_WORDS = {
+    "nan",
+    "+nan",
+    "-nan",
+    "inf",
+    "+inf",
+    "-inf",
+    "infinity",
+    "+infinity",
+    "-infinity",
+}
 
 
 @dataclass
@@ -30,7 +39,7 @@ class RawColumn:
 
     name: str
     values: list
-    cell_pointer: "callable"  # row index -> JSON pointer (or a description for CSV)
+    cell_pointer: callable  # row index -> JSON pointer (or a description for CSV)
     from_csv: bool = False
 
 
@@ -38,7 +47,7 @@ class RawColumn:
 class RawTable:
     n_rows: int
     names: list[str]
-    get: "callable"  # name -> RawColumn
+    get: callable  # name -> RawColumn
     source: str
 
 
@@ -55,19 +64,28 @@ def read_table(data: dict) -> RawTable:
 
 def _from_columns(cols: dict) -> RawTable:
     if not cols:
-        raise InputError.at("/data/columns", "data.columns is empty; send at least the response "
-                            "and one predictor column")
+        raise InputError.at(
+            "/data/columns",
+            "data.columns is empty; send at least the response and one predictor column",
+        )
     lengths = {k: len(v) for k, v in cols.items()}
     n = max(lengths.values())
     bad = [k for k, ln in lengths.items() if ln != n]
     if bad:
         first = next(iter(lengths))
-        problems = [FieldProblem(pointer("data", "columns", k),
-                                 f"column '{k}' has {lengths[k]} values but column "
-                                 f"'{max(lengths, key=lengths.get)}' has {n}")
-                    for k in bad]
-        raise InputError(f"columns have unequal lengths ({', '.join(f'{k}: {v}' for k, v in lengths.items())}); "
-                         f"every column needs one value per row (first column '{first}')", problems)
+        problems = [
+            FieldProblem(
+                pointer("data", "columns", k),
+                f"column '{k}' has {lengths[k]} values but column "
+                f"'{max(lengths, key=lengths.get)}' has {n}",
+            )
+            for k in bad
+        ]
+        raise InputError(
+            f"columns have unequal lengths ({', '.join(f'{k}: {v}' for k, v in lengths.items())}); "
+            f"every column needs one value per row (first column '{first}')",
+            problems,
+        )
 
     def get(name: str) -> RawColumn:
         return RawColumn(name, cols[name], lambda i, _n=name: pointer("data", "columns", _n, i))
@@ -80,8 +98,9 @@ def _from_records(recs: list) -> RawTable:
     seen: set[str] = set()
     for i, r in enumerate(recs):
         if not isinstance(r, dict):
-            raise InputError.at(pointer("data", "records", i),
-                                f"record {i} is not an object of column: value pairs")
+            raise InputError.at(
+                pointer("data", "records", i), f"record {i} is not an object of column: value pairs"
+            )
         for k in r:
             if k not in seen:
                 seen.add(k)
@@ -91,8 +110,10 @@ def _from_records(recs: list) -> RawTable:
         vals = [r.get(name, _MISSING_KEY) for r in recs]
         for i, v in enumerate(vals):
             if v is _MISSING_KEY:
-                raise InputError.at(pointer("data", "records", i),
-                                    f"record {i} has no field '{name}'; send null for a missing value")
+                raise InputError.at(
+                    pointer("data", "records", i),
+                    f"record {i} has no field '{name}'; send null for a missing value",
+                )
         return RawColumn(name, vals, lambda i, _n=name: pointer("data", "records", i, _n))
 
     return RawTable(len(recs), names, get, "records")
@@ -109,14 +130,19 @@ def _from_csv(text: str) -> RawTable:
     header = [h.strip() for h in rows[0]]
     if len(set(header)) != len(header):
         dup = sorted({h for h in header if header.count(h) > 1})
-        raise InputError.at("/data/csv", f"data.csv header repeats column name(s) {dup}; names must be unique")
+        raise InputError.at(
+            "/data/csv", f"data.csv header repeats column name(s) {dup}; names must be unique"
+        )
     if any(h == "" for h in header):
         raise InputError.at("/data/csv", "data.csv header has an empty column name")
     body = rows[1:]
     for i, r in enumerate(body):
         if len(r) != len(header):
-            raise InputError.at("/data/csv", f"data.csv data row {i} (line {i + 2}) has {len(r)} "
-                                f"fields but the header has {len(header)}")
+            raise InputError.at(
+                "/data/csv",
+                f"data.csv data row {i} (line {i + 2}) has {len(r)} "
+                f"fields but the header has {len(header)}",
+            )
     idx = {h: j for j, h in enumerate(header)}
 
     def get(name: str) -> RawColumn:
@@ -145,8 +171,10 @@ def _bad_numeric(col: RawColumn, i: int, v, role: str) -> InputError:
     hint = "send null (or an empty CSV cell) for a missing value"
     if role == "predictor":
         hint += f", or list '{col.name}' in 'categorical' if it is a grouping"
-    return InputError.at(col.cell_pointer(i),
-                         f"{role} column '{col.name}' is numeric but {where} holds {v!r}; {hint}")
+    return InputError.at(
+        col.cell_pointer(i),
+        f"{role} column '{col.name}' is numeric but {where} holds {v!r}; {hint}",
+    )
 
 
 def _to_float(v) -> float | None:
@@ -223,8 +251,11 @@ def as_categorical(col: RawColumn) -> TypedColumn:
             missing[i] = True
             vals[i] = None
         elif isinstance(v, (dict, list)):
-            raise InputError.at(col.cell_pointer(i), f"column '{col.name}' row {i} holds a "
-                                "nested object; cells must be numbers, strings, booleans or null")
+            raise InputError.at(
+                col.cell_pointer(i),
+                f"column '{col.name}' row {i} holds a "
+                "nested object; cells must be numbers, strings, booleans or null",
+            )
         else:
             vals[i] = _level_text(v)
     return TypedColumn(col.name, "categorical", vals, missing)
@@ -249,10 +280,14 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
     if strings and numbers:
         i = first_string if strings <= numbers else first_number
         where = _csv_where(col, i) if col.from_csv else f"row {i}"
-        raise InputError.at(col.cell_pointer(i), (
-            f"predictor column '{col.name}' mixes numbers ({numbers}) and text ({strings}); "
-            f"{where} holds {col.values[i]!r}. Send null for a missing value, or list "
-            f"'{col.name}' in 'categorical' to treat every value as a level"))
+        raise InputError.at(
+            col.cell_pointer(i),
+            (
+                f"predictor column '{col.name}' mixes numbers ({numbers}) and text ({strings}); "
+                f"{where} holds {col.values[i]!r}. Send null for a missing value, or list "
+                f"'{col.name}' in 'categorical' to treat every value as a level"
+            ),
+        )
     if strings:
         return as_categorical(col)
     return as_numeric(col, "predictor")
@@ -292,13 +327,23 @@ class Prepared:
         return h.hexdigest()
 
     def data_summary(self) -> dict:
-        return {"rows_received": self.rows_received, "rows_used": self.n,
-                "rows_dropped": self.rows_dropped, "dropped": self.dropped,
-                "dropped_listed": len(self.dropped)}
+        return {
+            "rows_received": self.rows_received,
+            "rows_used": self.n,
+            "rows_dropped": self.rows_dropped,
+            "dropped": self.dropped,
+            "dropped_listed": len(self.dropped),
+        }
 
 
-def prepare(data: dict, response: str, predictors: list[str], categorical: list[str] | None = None,
-            order: str | None = None, group_by: str | None = None) -> Prepared:
+def prepare(
+    data: dict,
+    response: str,
+    predictors: list[str],
+    categorical: list[str] | None = None,
+    order: str | None = None,
+    group_by: str | None = None,
+) -> Prepared:
     """Parse, type and clean the columns a request uses.
 
     Raises :class:`InputError` with a JSON Pointer for every problem a caller
@@ -310,40 +355,74 @@ def prepare(data: dict, response: str, predictors: list[str], categorical: list[
     known = set(table.names)
     problems = []
     if response not in known:
-        problems.append(FieldProblem("/response", f"response column '{response}' is not in the "
-                                     f"data (columns: {_names(table.names)})"))
+        problems.append(
+            FieldProblem(
+                "/response",
+                f"response column '{response}' is not in the data (columns: {_names(table.names)})",
+            )
+        )
     if not predictors:
         problems.append(FieldProblem("/predictors", "predictors needs at least one column"))
     seen = set()
     for i, p in enumerate(predictors):
         if p not in known:
-            problems.append(FieldProblem(pointer("predictors", i), f"predictor column '{p}' is not "
-                                         f"in the data (columns: {_names(table.names)})"))
+            problems.append(
+                FieldProblem(
+                    pointer("predictors", i),
+                    f"predictor column '{p}' is not in the data (columns: {_names(table.names)})",
+                )
+            )
         if p == response:
-            problems.append(FieldProblem(pointer("predictors", i), f"'{p}' is the response; it "
-                                         "cannot also be a predictor"))
+            problems.append(
+                FieldProblem(
+                    pointer("predictors", i),
+                    f"'{p}' is the response; it cannot also be a predictor",
+                )
+            )
         if p in seen:
-            problems.append(FieldProblem(pointer("predictors", i), f"predictor '{p}' is listed twice"))
+            problems.append(
+                FieldProblem(pointer("predictors", i), f"predictor '{p}' is listed twice")
+            )
         seen.add(p)
     for i, c in enumerate(categorical):
         if c not in predictors:
-            problems.append(FieldProblem(pointer("categorical", i), f"categorical column '{c}' is "
-                                         "not one of the predictors"))
+            problems.append(
+                FieldProblem(
+                    pointer("categorical", i),
+                    f"categorical column '{c}' is not one of the predictors",
+                )
+            )
     if group_by is not None:
         if group_by not in known:
-            problems.append(FieldProblem("/group_by", f"group_by column '{group_by}' is not in the data"))
-        elif group_by == response or group_by in predictors or group_by == order:
-            problems.append(FieldProblem("/group_by", f"group_by column '{group_by}' is also used "
-                                         "in the model; give a separate segment column"))
+            problems.append(
+                FieldProblem("/group_by", f"group_by column '{group_by}' is not in the data")
+            )
+        elif group_by in (response, order) or group_by in predictors:
+            problems.append(
+                FieldProblem(
+                    "/group_by",
+                    f"group_by column '{group_by}' is also used "
+                    "in the model; give a separate segment column",
+                )
+            )
     if order is not None:
         if order not in known:
             problems.append(FieldProblem("/order", f"order column '{order}' is not in the data"))
         elif order == response or order in predictors:
-            problems.append(FieldProblem("/order", f"order column '{order}' is also used in the "
-                                         "model; give a separate time or sequence column"))
+            problems.append(
+                FieldProblem(
+                    "/order",
+                    f"order column '{order}' is also used in the "
+                    "model; give a separate time or sequence column",
+                )
+            )
     if problems:
-        raise InputError(problems[0].detail if len(problems) == 1 else
-                         f"{len(problems)} problems with the requested columns", problems)
+        raise InputError(
+            problems[0].detail
+            if len(problems) == 1
+            else f"{len(problems)} problems with the requested columns",
+            problems,
+        )
 
     ycol = as_numeric(table.get(response), "response")
     typed = [infer_predictor(table.get(p), p in categorical) for p in predictors]
@@ -370,17 +449,30 @@ def prepare(data: dict, response: str, predictors: list[str], categorical: list[
         cols = [ycol] + typed + [c for c in (ocol, gcol) if c is not None]
         for i in np.flatnonzero(missing)[:DROPPED_LIST_CAP]:
             which = [c.name for c in cols if c.missing[i]]
-            dropped.append({"row": int(i), "reason": "missing value in " +
-                            ", ".join(f"'{w}'" for w in which)})
+            dropped.append(
+                {"row": int(i), "reason": "missing value in " + ", ".join(f"'{w}'" for w in which)}
+            )
     keep = ~missing
     row_ids = np.flatnonzero(keep)
     y = ycol.values[keep]
     numeric = {t.name: t.values[keep] for t in typed if t.kind == "numeric"}
     cats = {t.name: t.values[keep] for t in typed if t.kind == "categorical"}
     ov = ocol.values[keep] if ocol is not None else None
-    prep = Prepared(response, y, list(predictors), numeric, cats, row_ids, _order_perm(ov), n,
-                    dropped, n_dropped, tuple(table.names), ov,
-                    gcol.values[keep] if gcol is not None else None)
+    prep = Prepared(
+        response,
+        y,
+        list(predictors),
+        numeric,
+        cats,
+        row_ids,
+        _order_perm(ov),
+        n,
+        dropped,
+        n_dropped,
+        tuple(table.names),
+        ov,
+        gcol.values[keep] if gcol is not None else None,
+    )
     if gcol is None:
         _check_content(prep)
     return prep
@@ -394,7 +486,7 @@ def _order_perm(ov: np.ndarray | None) -> np.ndarray | None:
     return np.array(sorted(range(ov.size), key=lambda i: ov[i]), dtype=int)
 
 
-def split_groups(prep: Prepared) -> dict[str, "Prepared | InputError"]:
+def split_groups(prep: Prepared) -> dict[str, Prepared | InputError]:
     """One Prepared per value of the group column, in sorted order of the values.
 
     A group whose rows cannot be modelled (constant response, too few rows)
@@ -403,11 +495,21 @@ def split_groups(prep: Prepared) -> dict[str, "Prepared | InputError"]:
     out: dict[str, Prepared | InputError] = {}
     for g in sorted(set(prep.groups.tolist())):
         mask = prep.groups == g
-        sub = Prepared(prep.response, prep.y[mask], list(prep.predictors),
-                       {k: v[mask] for k, v in prep.numeric.items()},
-                       {k: v[mask] for k, v in prep.categorical.items()},
-                       prep.row_ids[mask], None, int(mask.sum()), [], 0, prep.table_columns,
-                       prep.order_values[mask] if prep.order_values is not None else None, None)
+        sub = Prepared(
+            prep.response,
+            prep.y[mask],
+            list(prep.predictors),
+            {k: v[mask] for k, v in prep.numeric.items()},
+            {k: v[mask] for k, v in prep.categorical.items()},
+            prep.row_ids[mask],
+            None,
+            int(mask.sum()),
+            [],
+            0,
+            prep.table_columns,
+            prep.order_values[mask] if prep.order_values is not None else None,
+            None,
+        )
         sub.order = _order_perm(sub.order_values)
         try:
             _check_content(sub)
@@ -426,32 +528,45 @@ _MIN_SPREAD = 1e-150  # below this, squared deviations underflow double precisio
 
 
 def _tiny_spread(what: str, spread: float) -> str:
-    return (f"{what} varies by only {spread:.3g} on the used rows, too little for sums of "
-            "squares in double precision; rescale it (for example, change its unit)")
+    return (
+        f"{what} varies by only {spread:.3g} on the used rows, too little for sums of "
+        "squares in double precision; rescale it (for example, change its unit)"
+    )
 
 
 def _check_content(p: Prepared) -> None:
     if p.n == 0:
-        raise InputError.at("/data", f"no row is complete: all {p.rows_received} rows have a "
-                            "missing value in a used column")
+        raise InputError.at(
+            "/data",
+            f"no row is complete: all {p.rows_received} rows have a missing value in a used column",
+        )
     # relative to the values' size: data in small units (say 1e-13) still vary
     if np.ptp(p.y) <= 1e-12 * float(np.max(np.abs(p.y))):
-        raise InputError.at("/response", f"response '{p.response}' is constant ({p.y[0]:.6g}) on "
-                            "the used rows; there is nothing to model")
+        raise InputError.at(
+            "/response",
+            f"response '{p.response}' is constant ({p.y[0]:.6g}) on "
+            "the used rows; there is nothing to model",
+        )
     if np.ptp(p.y) < _MIN_SPREAD:
         raise InputError.at("/response", _tiny_spread(f"response '{p.response}'", np.ptp(p.y)))
     for i, name in enumerate(p.predictors):
         if name in p.numeric:
             x = p.numeric[name]
             if np.ptp(x) <= 1e-12 * float(np.max(np.abs(x))):
-                raise InputError.at(pointer("predictors", i), f"predictor '{name}' is constant "
-                                    f"({x[0]:.6g}) on the used rows; it cannot be estimated "
-                                    "beside the intercept")
+                raise InputError.at(
+                    pointer("predictors", i),
+                    f"predictor '{name}' is constant "
+                    f"({x[0]:.6g}) on the used rows; it cannot be estimated "
+                    "beside the intercept",
+                )
             if np.ptp(x) < _MIN_SPREAD:
-                raise InputError.at(pointer("predictors", i),
-                                    _tiny_spread(f"predictor '{name}'", np.ptp(x)))
+                raise InputError.at(
+                    pointer("predictors", i), _tiny_spread(f"predictor '{name}'", np.ptp(x))
+                )
         else:
             levels = set(p.categorical[name])
             if len(levels) < 2:
-                raise InputError.at(pointer("predictors", i), f"categorical predictor '{name}' "
-                                    "has a single level on the used rows")
+                raise InputError.at(
+                    pointer("predictors", i),
+                    f"categorical predictor '{name}' has a single level on the used rows",
+                )

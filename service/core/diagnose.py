@@ -19,20 +19,36 @@ from .data import Prepared
 from .fitting import OLSFit
 from .spec import Design
 
-CONDITION_NAMES = ("linearity", "normality", "equal_variance", "independence",
-                   "multicollinearity", "influence")
+CONDITION_NAMES = (
+    "linearity",
+    "normality",
+    "equal_variance",
+    "independence",
+    "multicollinearity",
+    "influence",
+)
 
 
-def condition_inputs(design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray,
-                     alpha: float) -> ConditionInputs:
-    terms = tuple(TermInfo(t.column, t.kind, tuple(t.indices), t.raw, t.label)
-                  for t in design.terms)
-    return ConditionInputs(z=z, X=design.X, has_intercept=fit.has_intercept, terms=terms,
-                           row_ids=prep.row_ids, order=prep.order, alpha=alpha)
+def condition_inputs(
+    design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray, alpha: float
+) -> ConditionInputs:
+    terms = tuple(
+        TermInfo(t.column, t.kind, tuple(t.indices), t.raw, t.label) for t in design.terms
+    )
+    return ConditionInputs(
+        z=z,
+        X=design.X,
+        has_intercept=fit.has_intercept,
+        terms=terms,
+        row_ids=prep.row_ids,
+        order=prep.order,
+        alpha=alpha,
+    )
 
 
-def conditions_for(design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray,
-                   alpha: float) -> tuple[dict, list[dict]]:
+def conditions_for(
+    design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray, alpha: float
+) -> tuple[dict, list[dict]]:
     """(conditions block of the contract, transform hints)."""
     out = assess_conditions(condition_inputs(design, fit, prep, z, alpha))
     hints = out.pop("hints", [])
@@ -45,8 +61,9 @@ def failed(conditions: dict | None) -> list[str]:
     return [c for c in CONDITION_NAMES if conditions.get(c, {}).get("holds") is False]
 
 
-def diagnose_specification(prep: Prepared, spec_dict: dict, opts, service_version: str,
-                           max_points: int = 2000) -> tuple[dict, dict]:
+def diagnose_specification(
+    prep: Prepared, spec_dict: dict, opts, service_version: str, max_points: int = 2000
+) -> tuple[dict, dict]:
     """One specification exactly as given: (ranking entry without rank, plot data).
 
     Domain problems are :class:`InputError` pointing into ``/specification``; a
@@ -67,12 +84,15 @@ def diagnose_specification(prep: Prepared, spec_dict: dict, opts, service_versio
     for i, p in enumerate(spec.predictors):
         if p.column in prep.numeric:
             if p.transform.name == "categorical":
-                raise InputError.at(pointer("specification", "predictors", i, "transform"),
-                                    f"'{p.column}' is numeric; list it in 'categorical' to treat "
-                                    "it as levels")
+                raise InputError.at(
+                    pointer("specification", "predictors", i, "transform"),
+                    f"'{p.column}' is numeric; list it in 'categorical' to treat it as levels",
+                )
             if p.transform.name in ("box_cox", "yeo_johnson") and p.transform.lam is None:
-                raise InputError.at(pointer("specification", "predictors", i, "transform", "lambda"),
-                                    f"{p.transform.name} of a predictor needs an explicit lambda")
+                raise InputError.at(
+                    pointer("specification", "predictors", i, "transform", "lambda"),
+                    f"{p.transform.name} of a predictor needs an explicit lambda",
+                )
             msg = p.transform.domain_problem(prep.numeric[p.column], p.column, "predictor")
             if msg:
                 raise InputError.at(pointer("specification", "predictors", i, "transform"), msg)
@@ -84,10 +104,15 @@ def diagnose_specification(prep: Prepared, spec_dict: dict, opts, service_versio
         _check_rows(prep, opts, design.X.shape[1])
         plan = make_plan(prep.n, opts.folds, opts.repeats, opts.seed, opts.metric)
         cv = cross_validate(design.X, prep.y, rt, plan, tr.needs_shift(prep.y), design.names)
-        parts = {"cv_value": cv.value, "cv_std_error": cv.std_error,
-                 "best_cv_value": cv.value, "one_se_threshold": cv.value + cv.std_error,
-                 "within_one_se": True, "simplicity": list(spec.simplicity()),
-                 "rule": "a single specification as sent; nothing was ranked"}
+        parts = {
+            "cv_value": cv.value,
+            "cv_std_error": cv.std_error,
+            "best_cv_value": cv.value,
+            "one_se_threshold": cv.value + cv.std_error,
+            "within_one_se": True,
+            "simplicity": list(spec.simplicity()),
+            "rule": "a single specification as sent; nothing was ranked",
+        }
         entry = entry_for(spec, cv, plan, prep, parts, opts, service_version)
         _, design, fit, _ = fitted_model(spec, prep)
     except CandidateFailure as exc:

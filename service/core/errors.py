@@ -44,7 +44,7 @@ class InputError(BestscaleError):
     kind = "invalid-input"
 
     @classmethod
-    def at(cls, ptr: str, detail: str) -> "InputError":
+    def at(cls, ptr: str, detail: str) -> InputError:
         return cls(detail, [FieldProblem(ptr, detail)])
 
 

@@ -69,8 +69,10 @@ def _exact_refit(X_tr, z_tr, names, k):
     except CandidateFailure as exc:
         raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
     except (np.linalg.LinAlgError, ValueError):
-        raise CandidateFailure(f"fold {k + 1}: the least-squares problem has no finite "
-                               "solution (values too large for floating point)") from None
+        raise CandidateFailure(
+            f"fold {k + 1}: the least-squares problem has no finite "
+            "solution (values too large for floating point)"
+        ) from None
     return coef / m
 
 
@@ -92,7 +94,8 @@ def _fold_metric_raw(kind: str, y, mean_pred, median_pred) -> float:
 def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
     return CandidateFailure(
         f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or overflows for "
-        f"{count} held-out row(s) (prediction outside the scale's range)")
+        f"{count} held-out row(s) (prediction outside the scale's range)"
+    )
 
 
 class Scorer:
@@ -121,15 +124,21 @@ class Scorer:
         return t.name == "log" and t.shift is None and self.shift_needed
 
     # ---------------------------------------------------------------- scoring
-    def score(self, t: tr.Transform, cols: list[int], names: list[str] | None = None,
-              dynamic: Dynamic | None = None) -> Score:
+    def score(
+        self,
+        t: tr.Transform,
+        cols: list[int],
+        names: list[str] | None = None,
+        dynamic: Dynamic | None = None,
+    ) -> Score:
         # Values near the float limits overflow in squares and products; every result is
         # checked for finiteness below and such a candidate fails with its reason.
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             return self._score(t, cols, names, dynamic)
 
-    def _score(self, t: tr.Transform, cols: list[int], names: list[str] | None,
-               dynamic: Dynamic | None) -> Score:
+    def _score(
+        self, t: tr.Transform, cols: list[int], names: list[str] | None, dynamic: Dynamic | None
+    ) -> Score:
         """Cross-validate the candidate (response scale ``t``, bank columns ``cols``).
 
         With ``dynamic`` the design has extra columns (at ``dynamic.positions``)
@@ -146,8 +155,9 @@ class Scorer:
         XS = bank.columns(S)
         near = None
         if dynamic is not None and estimate_lam:
-            raise CandidateFailure("an estimated predictor power is not combined with an "
-                                   "estimated response lambda")
+            raise CandidateFailure(
+                "an estimated predictor power is not combined with an estimated response lambda"
+            )
         if estimate_lam:
             try:
                 near = tr.fit_transform(t, y, XS).lam
@@ -173,8 +183,10 @@ class Scorer:
             designs: list[np.ndarray | None] = [None] * K
             for k in range(K):
                 if train[k].size <= p:
-                    raise CandidateFailure(f"fold {k + 1}: {train[k].size} training rows cannot "
-                                           f"estimate {p} coefficients")
+                    raise CandidateFailure(
+                        f"fold {k + 1}: {train[k].size} training rows cannot "
+                        f"estimate {p} coefficients"
+                    )
             if not per_fold:
                 ts = [t0] * K
                 zs = [z] * K
@@ -182,16 +194,18 @@ class Scorer:
                 for k in range(K):
                     ytr = y[train[k]]
                     try:
-                        tk = tr.fit_transform(t, ytr, XS[train[k]], shift_needed=self.shift_needed,
-                                              near=near)
+                        tk = tr.fit_transform(
+                            t, ytr, XS[train[k]], shift_needed=self.shift_needed, near=near
+                        )
                     except ValueError as exc:
                         raise CandidateFailure(f"fold {k + 1}: {exc}") from None
                     if estimate_lam:
                         lambdas.append(float(tk.lam))
                     zk = tk.forward(y)
                     if not np.all(np.isfinite(zk[train[k]])):
-                        raise CandidateFailure(f"fold {k + 1}: {tk.label('y')} overflows on the "
-                                               "training rows")
+                        raise CandidateFailure(
+                            f"fold {k + 1}: {tk.label('y')} overflows on the training rows"
+                        )
                     ts.append(tk)
                     zs.append(zk)
             if dynamic is None:
@@ -225,8 +239,11 @@ class Scorer:
                     ab[te] = np.abs(yt - med)
                     if self.want_mape:
                         pc[te] = np.abs((yt - med) / yt)
-                fold_vals[j] = (_fold_metric(plan.metric, yt, mean, med)
-                                if (plan.metric != "mape" or self.want_mape) else math.nan)
+                fold_vals[j] = (
+                    _fold_metric(plan.metric, yt, mean, med)
+                    if (plan.metric != "mape" or self.want_mape)
+                    else math.nan
+                )
                 j += 1
             with np.errstate(over="ignore", invalid="ignore"):
                 pooled["rmse"].append(math.sqrt(float(np.mean(sq))))
@@ -242,8 +259,9 @@ class Scorer:
         # SE over the R*K fold values, divided by sqrt(K): repeats do not add independent
         # information (Bengio & Grandvalet 2004: no unbiased estimator exists; this one is naive).
         se = float(np.std(fold_vals, ddof=1) / math.sqrt(K)) if fold_vals.size > 1 else 0.0
-        return Score(plan.metric, value, se, fold_vals, summary, lambdas or None, powers or None,
-                     refits)
+        return Score(
+            plan.metric, value, se, fold_vals, summary, lambdas or None, powers or None, refits
+        )
 
     # ------------------------------------------------------------- solutions
     def _solve_static(self, S, XS, r, zs, per_fold, t, names, B) -> int:
@@ -275,8 +293,14 @@ class Scorer:
             tr_rows = train[k]
             ztr = zs[k][tr_rows]
             try:
-                fit = estimate_powers(ztr, XS[tr_rows], dyn.x[tr_rows], start=dyn.start,
-                                      boxcox_form=dyn.boxcox_form, with_se=False)
+                fit = estimate_powers(
+                    ztr,
+                    XS[tr_rows],
+                    dyn.x[tr_rows],
+                    start=dyn.start,
+                    boxcox_form=dyn.boxcox_form,
+                    with_se=False,
+                )
             except CandidateFailure as exc:
                 raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
             powers.append([float(a) for a in fit.powers])

@@ -50,8 +50,17 @@ class OLSFit:
                 lo, hi = b - tq * s, b + tq * s
             else:
                 t = p = lo = hi = None
-            rows.append({"term": name, "estimate": b, "std_error": s if s > 0 else None,
-                         "t_statistic": t, "p_value": p, "ci_low": lo, "ci_high": hi})
+            rows.append(
+                {
+                    "term": name,
+                    "estimate": b,
+                    "std_error": s if s > 0 else None,
+                    "t_statistic": t,
+                    "p_value": p,
+                    "ci_low": lo,
+                    "ci_high": hi,
+                }
+            )
         return rows
 
 
@@ -89,8 +98,9 @@ def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return B, good
 
 
-def qr_solve(X: np.ndarray, z: np.ndarray, names: list[str] | None = None,
-             with_condition: bool = True):
+def qr_solve(
+    X: np.ndarray, z: np.ndarray, names: list[str] | None = None, with_condition: bool = True
+):
     """Least-squares coefficients and (X'X)^-1 via pivoted QR of the column-scaled X.
 
     Returns ``(coef, cov_unscaled, cond)``.  Raises :class:`CandidateFailure`
@@ -109,9 +119,12 @@ def qr_solve(X: np.ndarray, z: np.ndarray, names: list[str] | None = None,
     rank = int(np.sum(d > RANK_TOL * d[0]))
     if rank < p:
         bad = [names[k] if names else str(k) for k in piv[rank:]]
-        raise CandidateFailure("the design is rank-deficient: " + ", ".join(f"'{b}'" for b in bad) +
-                               " can be written from the other columns",
-                               {"dependent": bad})
+        raise CandidateFailure(
+            "the design is rank-deficient: "
+            + ", ".join(f"'{b}'" for b in bad)
+            + " can be written from the other columns",
+            {"dependent": bad},
+        )
     qtz = q.T @ z
     bs = linalg.solve_triangular(r, qtz)
     rinv = linalg.solve_triangular(r, np.eye(p))
@@ -151,5 +164,20 @@ def ols(X: np.ndarray, z: np.ndarray, names: list[str], has_intercept: bool) -> 
     r2 = 1.0 - rss / tss if tss > 0 else 0.0
     adj = 1.0 - (1.0 - r2) * df_tot / df
     llf = -0.5 * n * (math.log(2 * math.pi) + 1.0 + math.log(rss / n)) if rss > 0 else math.inf
-    return OLSFit(names, coef, se, cov, fitted, resid, rss, df, math.sqrt(s2), r2, adj, llf, n,
-                  has_intercept, cond)
+    return OLSFit(
+        names,
+        coef,
+        se,
+        cov,
+        fitted,
+        resid,
+        rss,
+        df,
+        math.sqrt(s2),
+        r2,
+        adj,
+        llf,
+        n,
+        has_intercept,
+        cond,
+    )

@@ -22,26 +22,37 @@ from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
 from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
 
-CONDITIONS = ("linearity", "normality", "equal_variance", "independence", "multicollinearity",
-              "influence")
+CONDITIONS = (
+    "linearity",
+    "normality",
+    "equal_variance",
+    "independence",
+    "multicollinearity",
+    "influence",
+)
 
 
-def incumbent_spec(d: dict, prep: Prepared, request_predictors: list[str],
-                   table_columns: set[str] | None = None) -> tuple[Specification | None, str | None]:
+def incumbent_spec(
+    d: dict, prep: Prepared, request_predictors: list[str], table_columns: set[str] | None = None
+) -> tuple[Specification | None, str | None]:
     """Build the incumbent on this run's rows: (spec, None) or (None, why it cannot be fitted)."""
     if d["response"]["column"] != prep.response:
-        raise InputError.at("/incumbent/response/column",
-                            f"the incumbent models '{d['response']['column']}' but this request's "
-                            f"response is '{prep.response}'")
+        raise InputError.at(
+            "/incumbent/response/column",
+            f"the incumbent models '{d['response']['column']}' but this request's "
+            f"response is '{prep.response}'",
+        )
     preds = []
     for i, p in enumerate(d["predictors"]):
         col = p["column"]
         if col not in request_predictors:
             if table_columns is not None and col not in table_columns:
                 return None, f"the incumbent uses '{col}', which is not in this data"
-            raise InputError.at(pointer("incumbent", "predictors", i, "column"),
-                                f"the incumbent uses '{col}'; add it to 'predictors' so both are "
-                                "scored on the same rows")
+            raise InputError.at(
+                pointer("incumbent", "predictors", i, "column"),
+                f"the incumbent uses '{col}'; add it to 'predictors' so both are "
+                "scored on the same rows",
+            )
         t = tr.from_dict(p.get("transform") or {"name": "identity"})
         if col in prep.categorical and t.name != "categorical":
             t = tr.Transform("categorical")
@@ -62,34 +73,56 @@ def incumbent_spec(d: dict, prep: Prepared, request_predictors: list[str],
 
 def score(spec: Specification, prep: Prepared, plan: CVPlan, shift_needed: bool):
     design = build_design(spec, prep, ptr_prefix="/incumbent")
-    return cross_validate(design.X, prep.y, spec.response_transform, plan, shift_needed,
-                          design.names)
+    return cross_validate(
+        design.X, prep.y, spec.response_transform, plan, shift_needed, design.names
+    )
 
 
 def _failed_conditions(conditions: dict | None) -> set[str]:
     if not conditions:
         return set()
-    return {c for c in CONDITIONS if isinstance(conditions.get(c), dict)
-            and conditions[c].get("holds") is False}
+    return {
+        c
+        for c in CONDITIONS
+        if isinstance(conditions.get(c), dict) and conditions[c].get("holds") is False
+    }
 
 
-def decide(inc_spec: Specification | None, inc_cv, reason: str | None, rank: int | None,
-           winner_entry: dict, winner_folds: np.ndarray, plan: CVPlan,
-           inc_conditions: dict | None = None, request_spec: dict | None = None) -> dict:
+def decide(
+    inc_spec: Specification | None,
+    inc_cv,
+    reason: str | None,
+    rank: int | None,
+    winner_entry: dict,
+    winner_folds: np.ndarray,
+    plan: CVPlan,
+    inc_conditions: dict | None = None,
+    request_spec: dict | None = None,
+) -> dict:
     """The contract's ``incumbent`` block."""
-    out = {"specification": inc_spec.to_dict() if inc_spec is not None else request_spec,
-           "rank": rank, "cv": None, "difference": None}
+    out = {
+        "specification": inc_spec.to_dict() if inc_spec is not None else request_spec,
+        "rank": rank,
+        "cv": None,
+        "difference": None,
+    }
     if inc_spec is None or inc_cv is None:
-        out.update(decision="switch", reason=f"The incumbent cannot be fitted on this data: "
-                   f"{reason}; switch to rank 1 ({winner_entry['equation']}).")
+        out.update(
+            decision="switch",
+            reason=f"The incumbent cannot be fitted on this data: "
+            f"{reason}; switch to rank 1 ({winner_entry['equation']}).",
+        )
         return out
     out["cv"] = inc_cv.to_dict(plan)
     d = winner_folds - inc_cv.fold_values
     se = float(np.std(d, ddof=1) / math.sqrt(plan.folds)) if d.size > 1 else 0.0
     diff = float(np.mean(d))
-    out["difference"] = {"value": diff, "std_error": se,
-                         "meaning": "winner minus incumbent, mean over the same folds; "
-                                    "negative means the winner predicts better"}
+    out["difference"] = {
+        "value": diff,
+        "std_error": se,
+        "meaning": "winner minus incumbent, mean over the same folds; "
+        "negative means the winner predicts better",
+    }
     metric = plan.metric
     same = winner_entry["specification"] == inc_spec.to_dict() or rank == 1
     inc_fail = _failed_conditions(inc_conditions)
@@ -98,16 +131,29 @@ def decide(inc_spec: Specification | None, inc_cv, reason: str | None, rank: int
     if same:
         out.update(decision="keep", reason="The incumbent is this run's rank-1 specification.")
     elif diff < -se:
-        out.update(decision="switch", reason=(
-            f"Rank 1 ({winner_entry['equation']}) has a lower cross-validated {metric} by "
-            f"{-diff:.4g} (paired standard error {se:.4g}), more than one standard error."))
+        out.update(
+            decision="switch",
+            reason=(
+                f"Rank 1 ({winner_entry['equation']}) has a lower cross-validated {metric} by "
+                f"{-diff:.4g} (paired standard error {se:.4g}), more than one standard error."
+            ),
+        )
     elif only_inc:
-        out.update(decision="switch", reason=(
-            "The incumbent fails " + ", ".join(c.replace('_', ' ') for c in only_inc) +
-            f", which rank 1 ({winner_entry['equation']}) passes; their {metric} differ by "
-            f"{diff:.4g} (paired standard error {se:.4g})."))
+        out.update(
+            decision="switch",
+            reason=(
+                "The incumbent fails "
+                + ", ".join(c.replace("_", " ") for c in only_inc)
+                + f", which rank 1 ({winner_entry['equation']}) passes; their {metric} differ by "
+                f"{diff:.4g} (paired standard error {se:.4g})."
+            ),
+        )
     else:
-        out.update(decision="keep", reason=(
-            f"Rank 1 differs from the incumbent by {diff:.4g} in cross-validated {metric} "
-            f"(paired standard error {se:.4g}), within one standard error; keep the incumbent."))
+        out.update(
+            decision="keep",
+            reason=(
+                f"Rank 1 differs from the incumbent by {diff:.4g} in cross-validated {metric} "
+                f"(paired standard error {se:.4g}), within one standard error; keep the incumbent."
+            ),
+        )
     return out

@@ -58,10 +58,7 @@ def fmt(v: float | None, sig: int = 4) -> str:
         r = round(v, digits)
         if r == 0:
             return "0"
-        if digits > 0:
-            s = f"{r:.{digits}f}".rstrip("0").rstrip(".")
-        else:
-            s = str(int(r))
+        s = f"{r:.{digits}f}".rstrip("0").rstrip(".") if digits > 0 else str(int(r))
         return "0" if s in ("-0", "") else s
     mant, exp = f"{v:.{sig - 1}e}".split("e")
     mant = mant.rstrip("0").rstrip(".") if "." in mant else mant
@@ -134,8 +131,7 @@ def _ci_text(lo, hi, level: float, suffix: str = "", what: str = "change", unit:
     if lo is None or hi is None:
         return ""
     u = f" {unit}" if unit else ""
-    return (f" ({fmt(100 * level, 3)}% CI for the {what}: {fmt(lo)}{suffix} to "
-            f"{fmt(hi)}{suffix}{u})")
+    return f" ({fmt(100 * level, 3)}% CI for the {what}: {fmt(lo)}{suffix} to {fmt(hi)}{suffix}{u})"
 
 
 # ----------------------------------------------------------------- scales
@@ -188,8 +184,9 @@ def _row(spec: Specification, design: Design, point: dict) -> np.ndarray:
     return np.array(x)
 
 
-def _predict_median(spec: Specification, design: Design, coef: np.ndarray,
-                    point: dict) -> float | None:
+def _predict_median(
+    spec: Specification, design: Design, coef: np.ndarray, point: dict
+) -> float | None:
     eta = float(_row(spec, design, point) @ coef)
     y = float(spec.response_transform.inverse(np.array([eta]))[0])
     return y if math.isfinite(y) else None
@@ -254,8 +251,10 @@ class _Context:
         if self.median_noted:
             return ""
         self.median_noted = True
-        return (f"; percent readings refer to the median (the geometric mean) of "
-                f"{_subject(self.response, self.rt)}")
+        return (
+            f"; percent readings refer to the median (the geometric mean) of "
+            f"{_subject(self.response, self.rt)}"
+        )
 
     def reverse_note(self, b: float, where: str) -> str:
         """For an order-reversing response scale (1/y, negative powers)."""
@@ -264,8 +263,10 @@ class _Context:
         lab, y = self.rt.label(self.response), self.response
         if b > 0:
             return f"; {lab} reverses order: a positive coefficient goes with lower {y} {where}"
-        return (f"; {lab} reverses order: a positive coefficient would go with lower {y}, so "
-                f"this negative one goes with higher {y} {where}")
+        return (
+            f"; {lab} reverses order: a positive coefficient would go with lower {y}, so "
+            f"this negative one goes with higher {y} {where}"
+        )
 
     def median_at(self, column: str, value) -> float | None:
         """Naive back-transform with ``column`` at ``value``, the others at the reference point."""
@@ -279,37 +280,53 @@ def _categorical_readings(ctx: _Context, column: str, indices: tuple[int, ...]) 
     rscale = _scale(ctx.rt)
     y, yu = ctx.response, ctx.y_unit
     out = []
-    for k, lv in zip(indices, others):
+    for k, lv in zip(indices, others, strict=True):
         name = ctx.design.names[k]
         row = ctx.table[name]
         b, lo, hi = row["estimate"], row["ci_low"], row["ci_high"]
-        item = {"term": name, "column": column, "level": lv, "reference": ref, "estimate": b,
-                "ci_low": lo, "ci_high": hi}
+        item = {
+            "term": name,
+            "column": column,
+            "level": lv,
+            "reference": ref,
+            "estimate": b,
+            "ci_low": lo,
+            "ci_high": hi,
+        }
         if rscale == "level":
             item.update(reading="categorical-level", difference=b)
             item["sentence"] = (
                 f"Rows with {column} = {lv} have {y} {_comparative(b, yu)} on average than rows "
-                f"with {column} = {ref}{ctx.ci(lo, hi, what='difference', unit=yu)}{ctx.hold}.")
+                f"with {column} = {ref}{ctx.ci(lo, hi, what='difference', unit=yu)}{ctx.hold}."
+            )
         elif rscale == "log":
             pct, plo, phi = exact_percent(b), exact_percent(lo), exact_percent(hi)
-            item.update(reading="categorical-log", percent=pct, percent_ci_low=plo,
-                        percent_ci_high=phi)
+            item.update(
+                reading="categorical-log", percent=pct, percent_ci_low=plo, percent_ci_high=phi
+            )
             item["sentence"] = (
                 f"Rows with {column} = {lv} have a median {_subject(y, ctx.rt)} "
                 f"{_comparative(pct, '%')} than rows with {column} = {ref}"
-                f"{ctx.ci(plo, phi, '%', 'difference')}{ctx.hold}{ctx.median_note()}.")
+                f"{ctx.ci(plo, phi, '%', 'difference')}{ctx.hold}{ctx.median_note()}."
+            )
         else:
             y_lv, y_ref = ctx.median_at(column, lv), ctx.median_at(column, ref)
             diff, ratio = _diff_ratio(y_ref, y_lv)
-            item.update(reading="categorical-two-point", predicted_level=y_lv,
-                        predicted_reference=y_ref, difference=diff, ratio=ratio)
+            item.update(
+                reading="categorical-two-point",
+                predicted_level=y_lv,
+                predicted_reference=y_ref,
+                difference=diff,
+                ratio=ratio,
+            )
             u = f" {yu}" if yu else ""
             item["sentence"] = (
                 f"On the {ctx.rt.label(y)} scale rows with {column} = {lv} differ from rows with "
                 f"{column} = {ref} by {fmt(b)}{ctx.ci(lo, hi, what='difference')}, which has no "
                 f"constant-rate reading for {y}; the predicted median {y} is {fmt(y_lv)}{u} for "
                 f"{lv} and {fmt(y_ref)}{u} for {ref}{_diff_text(diff, ratio, yu)}"
-                f"{ctx.hold_at_medians(column)}{ctx.reverse_note(b, f'for {column} = {lv}')}.")
+                f"{ctx.hold_at_medians(column)}{ctx.reverse_note(b, f'for {column} = {lv}')}."
+            )
         out.append(item)
     return out
 
@@ -319,7 +336,8 @@ def _level_level(ctx: _Context, item: dict, col: str, per: str) -> None:
     item.update(reading="level-level", change_per_unit=b)
     item["sentence"] = (
         f"Each {per} of {col} goes with {ctx.response} {_change(b, ctx.y_unit)} on average"
-        f"{ctx.ci(item['ci_low'], item['ci_high'], unit=ctx.y_unit)}{ctx.hold}.")
+        f"{ctx.ci(item['ci_low'], item['ci_high'], unit=ctx.y_unit)}{ctx.hold}."
+    )
 
 
 def _log_level(ctx: _Context, item: dict, col: str, per: str) -> None:
@@ -327,52 +345,76 @@ def _log_level(ctx: _Context, item: dict, col: str, per: str) -> None:
     pct = exact_percent(b)
     plo, phi = exact_percent(item["ci_low"]), exact_percent(item["ci_high"])
     short = shortcut_applies(b)
-    item.update(reading="log-level", percent=pct, percent_ci_low=plo, percent_ci_high=phi,
-                shortcut_percent=100.0 * b if short else None)
-    shortcut = (f"; the quick reading 100·b = {fmt(100 * b)}% is close only because |b| is small"
-                if short else "")
+    item.update(
+        reading="log-level",
+        percent=pct,
+        percent_ci_low=plo,
+        percent_ci_high=phi,
+        shortcut_percent=100.0 * b if short else None,
+    )
+    shortcut = (
+        f"; the quick reading 100·b = {fmt(100 * b)}% is close only because |b| is small"
+        if short
+        else ""
+    )
     item["sentence"] = (
         f"Each {per} of {col} goes with a median {_subject(ctx.response, ctx.rt)} "
-        f"{_change(pct, '%')}{ctx.ci(plo, phi, '%')}{ctx.hold}{shortcut}{ctx.median_note()}.")
+        f"{_change(pct, '%')}{ctx.ci(plo, phi, '%')}{ctx.hold}{shortcut}{ctx.median_note()}."
+    )
 
 
 def _level_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
     b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
     d1, d10 = b * LN_1_01, b * LN_1_1
-    item.update(reading="level-log", change_per_1pct=d1, change_per_10pct=d10,
-                change_per_1pct_ci_low=None if lo is None else lo * LN_1_01,
-                change_per_1pct_ci_high=None if hi is None else hi * LN_1_01,
-                change_per_10pct_ci_low=None if lo is None else lo * LN_1_1,
-                change_per_10pct_ci_high=None if hi is None else hi * LN_1_1)
+    item.update(
+        reading="level-log",
+        change_per_1pct=d1,
+        change_per_10pct=d10,
+        change_per_1pct_ci_low=None if lo is None else lo * LN_1_01,
+        change_per_1pct_ci_high=None if hi is None else hi * LN_1_01,
+        change_per_10pct_ci_low=None if lo is None else lo * LN_1_1,
+        change_per_10pct_ci_high=None if hi is None else hi * LN_1_1,
+    )
     xs, y, yu = _subject(col, pt), ctx.response, ctx.y_unit
     ci = ctx.ci(item["change_per_1pct_ci_low"], item["change_per_1pct_ci_high"], unit=yu)
     item["sentence"] = (
         f"A 1% higher {xs} goes with {y} {_change(d1, yu)} on average{ci}, and a 10% higher {xs} "
-        f"with {y} {_change(d10, yu)}{ctx.hold}.")
+        f"with {y} {_change(d10, yu)}{ctx.hold}."
+    )
 
 
 def _log_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
     b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
     p1, p10 = percent_for_ratio(1.01, b), percent_for_ratio(1.1, b)
-    item.update(reading="log-log", elasticity=b, percent_per_1pct=p1, percent_per_10pct=p10,
-                percent_per_1pct_ci_low=percent_for_ratio(1.01, lo),
-                percent_per_1pct_ci_high=percent_for_ratio(1.01, hi),
-                percent_per_10pct_ci_low=percent_for_ratio(1.1, lo),
-                percent_per_10pct_ci_high=percent_for_ratio(1.1, hi))
+    item.update(
+        reading="log-log",
+        elasticity=b,
+        percent_per_1pct=p1,
+        percent_per_10pct=p10,
+        percent_per_1pct_ci_low=percent_for_ratio(1.01, lo),
+        percent_per_1pct_ci_high=percent_for_ratio(1.01, hi),
+        percent_per_10pct_ci_low=percent_for_ratio(1.1, lo),
+        percent_per_10pct_ci_high=percent_for_ratio(1.1, hi),
+    )
     xs, ys = _subject(col, pt), _subject(ctx.response, ctx.rt)
     ci = "" if lo is None else f" ({fmt(100 * ctx.level, 3)}% CI {fmt(lo)} to {fmt(hi)})"
     prop = ""
-    if lo is not None and 0 < lo and hi < 1:
-        prop = (f"; the interval lies between 0 and 1, so {ys} is higher by a smaller percentage "
-                f"than {xs} (less than proportional)")
+    if lo is not None and lo > 0 and hi < 1:
+        prop = (
+            f"; the interval lies between 0 and 1, so {ys} is higher by a smaller percentage "
+            f"than {xs} (less than proportional)"
+        )
     elif lo is not None and lo > 1:
-        prop = (f"; the interval lies above 1, so {ys} is higher by a larger percentage than {xs} "
-                "(more than proportional)")
+        prop = (
+            f"; the interval lies above 1, so {ys} is higher by a larger percentage than {xs} "
+            "(more than proportional)"
+        )
     ci1 = ctx.ci(item["percent_per_1pct_ci_low"], item["percent_per_1pct_ci_high"], "%")
     item["sentence"] = (
         f"The elasticity of the median {ys} with respect to {xs} is {fmt(b)}{ci}: a 1% higher "
         f"{xs} goes with a median {ys} {_change(p1, '%')}{ci1}, and a 10% higher {xs} with a "
-        f"median {ys} {_change(p10, '%')}{ctx.hold}{prop}{ctx.median_note()}.")
+        f"median {ys} {_change(p10, '%')}{ctx.hold}{prop}{ctx.median_note()}."
+    )
 
 
 def _two_point(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
@@ -387,16 +429,25 @@ def _two_point(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
     stat = "mean" if _scale(ctx.rt) == "level" else "median"
     item.update({f"at_{k}": v for k, v in at.items()})
     item.update({f"predicted_{k}": v for k, v in pred.items()})
-    item.update(reading="two-point", statistic=stat, difference_plus_one=d1, difference_q1_q3=dq,
-                ratio_q1_q3=rq)
+    item.update(
+        reading="two-point",
+        statistic=stat,
+        difference_plus_one=d1,
+        difference_q1_q3=dq,
+        ratio_q1_q3=rq,
+    )
     y, yu = ctx.response, ctx.y_unit
     ci = ctx.ci(lo, hi, what="coefficient")
     if _scale(ctx.rt) == "other":
-        intro = (f"On the {ctx.rt.label(y)} scale {pt.label(col)} has coefficient {fmt(b)}{ci}, "
-                 f"which has no constant-rate reading for {y}")
+        intro = (
+            f"On the {ctx.rt.label(y)} scale {pt.label(col)} has coefficient {fmt(b)}{ci}, "
+            f"which has no constant-rate reading for {y}"
+        )
     else:
-        intro = (f"{col} enters as {pt.label(col)}, with coefficient {fmt(b)}{ci}, which has no "
-                 "constant-rate reading")
+        intro = (
+            f"{col} enters as {pt.label(col)}, with coefficient {fmt(b)}{ci}, which has no "
+            "constant-rate reading"
+        )
     x_unit = ctx.units.get(col, "")
     one = f"one {x_unit}" if x_unit else "one unit"
     beyond = f", beyond the largest observed {col}" if med + 1.0 > float(np.max(x)) else ""
@@ -407,11 +458,18 @@ def _two_point(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
         f"{beyond}){_diff_text(d1, None, yu)}, and {fmt(pred['q1'])}{u} at the first quartile "
         f"({fmt(q1)}) against {fmt(pred['q3'])}{u} at the third quartile ({fmt(q3)})"
         f"{_diff_text(dq, rq, yu)}{ctx.hold_at_medians(col)}"
-        f"{ctx.reverse_note(b, f'where {pt.label(col)} is higher')}.")
+        f"{ctx.reverse_note(b, f'where {pt.label(col)} is higher')}."
+    )
 
 
-def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prepared,
-                    units: dict[str, str] | None = None, level: float = 0.95) -> list[dict]:
+def interpret_terms(
+    spec: Specification,
+    design: Design,
+    fit: OLSFit,
+    prep: Prepared,
+    units: dict[str, str] | None = None,
+    level: float = 0.95,
+) -> list[dict]:
     """One reading per slope and per categorical level, with its numbers and ``sentence``.
 
     ``spec`` is the concrete fitted specification (estimated parameters
@@ -423,20 +481,32 @@ def interpret_terms(spec: Specification, design: Design, fit: OLSFit, prep: Prep
     categorical-two-point), ``estimate``, ``ci_low``/``ci_high`` (model scale),
     the derived numbers of that reading and ``sentence``.
     """
-    ctx = _Context(spec, design, prep, np.asarray(fit.coef, dtype=float),
-                   {row["term"]: row for row in fit.table(level)}, dict(units or {}), level,
-                   _reference_point(spec, design, prep))
+    ctx = _Context(
+        spec,
+        design,
+        prep,
+        np.asarray(fit.coef, dtype=float),
+        {row["term"]: row for row in fit.table(level)},
+        dict(units or {}),
+        level,
+        _reference_point(spec, design, prep),
+    )
     rscale = _scale(spec.response_transform)
     out: list[dict] = []
-    for p, term in zip(spec.predictors, design.terms):
+    for p, term in zip(spec.predictors, design.terms, strict=True):
         col = p.column
         if term.kind == "categorical":
             out.extend(_categorical_readings(ctx, col, term.indices))
             continue
         name = design.names[term.indices[0]]
         row = ctx.table[name]
-        item = {"term": name, "column": col, "estimate": row["estimate"],
-                "ci_low": row["ci_low"], "ci_high": row["ci_high"]}
+        item = {
+            "term": name,
+            "column": col,
+            "estimate": row["estimate"],
+            "ci_low": row["ci_low"],
+            "ci_high": row["ci_high"],
+        }
         x_unit = ctx.units.get(col, "")
         per = f"extra {x_unit}" if x_unit else "extra unit"
         kind = (rscale, _scale(p.transform))
@@ -462,7 +532,13 @@ def _diff_text(diff: float | None, ratio: float | None, unit: str) -> str:
     return f" (difference {fmt(diff)}{u}{r})"
 
 
-def interpret_fit(spec: Specification, design: Design, fit: OLSFit, prep: Prepared,
-                  units: dict[str, str] | None = None, level: float = 0.95) -> list[str]:
+def interpret_fit(
+    spec: Specification,
+    design: Design,
+    fit: OLSFit,
+    prep: Prepared,
+    units: dict[str, str] | None = None,
+    level: float = 0.95,
+) -> list[str]:
     """The sentences of :func:`interpret_terms`, one per slope and per categorical level."""
     return [item["sentence"] for item in interpret_terms(spec, design, fit, prep, units, level)]

@@ -45,9 +45,13 @@ class LambdaEstimate:
 
     def to_dict(self) -> dict:
         return {
-            "lambda": self.lam, "ci_low": self.ci_low, "ci_high": self.ci_high,
-            "level": self.level, "ladder": self.ladder,
-            "lr_p_value_identity": self.lr_p_identity, "lr_p_value_log": self.lr_p_log,
+            "lambda": self.lam,
+            "ci_low": self.ci_low,
+            "ci_high": self.ci_high,
+            "level": self.level,
+            "ladder": self.ladder,
+            "lr_p_value_identity": self.lr_p_identity,
+            "lr_p_value_log": self.lr_p_log,
             "at_search_bound": self.at_bound,
         }
 
@@ -112,7 +116,7 @@ class _Projector:
         return float(r @ r)
 
 
-def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> "callable":
+def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> callable:
     """Box-Cox profile llf (Jacobian included) in the geometric-mean form, from log y."""
     n = logy.size
     lgm = float(np.mean(logy))
@@ -137,7 +141,7 @@ def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> "callable":
     return llf
 
 
-def _profile(family: str, y: np.ndarray, proj: _Projector) -> "callable":
+def _profile(family: str, y: np.ndarray, proj: _Projector) -> callable:
     n = y.size
     if family == "box_cox":
         return _scaled_box_cox(np.log(y), proj)
@@ -171,9 +175,14 @@ def profile_loglik(family: str, y: np.ndarray, X: np.ndarray | None, lam: float)
     return _profile(family, np.asarray(y, float), _Projector(X, len(y)))(lam)
 
 
-def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
-                    level: float = 0.95, with_interval: bool = True,
-                    near: float | None = None) -> LambdaEstimate:
+def estimate_lambda(
+    family: str,
+    y: np.ndarray,
+    X: np.ndarray | None = None,
+    level: float = 0.95,
+    with_interval: bool = True,
+    near: float | None = None,
+) -> LambdaEstimate:
     """Maximum-likelihood lambda of a Box-Cox or Yeo-Johnson response in the model y(lambda) ~ X.
 
     ``y``: (n,) response (> 0 for Box-Cox); ``X``: (n, p) design or ``None`` for a
@@ -197,8 +206,9 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
         grid = np.clip(np.linspace(near - 1.0, near + 1.0, 9), *LAMBDA_BOUNDS)
         vals = np.array([f(g) for g in grid])
         i = int(np.argmax(np.where(np.isfinite(vals), vals, -np.inf)))
-        if not np.isfinite(vals[i]) or (i in (0, grid.size - 1) and
-                                        LAMBDA_BOUNDS[0] < grid[i] < LAMBDA_BOUNDS[1]):
+        if not np.isfinite(vals[i]) or (
+            i in (0, grid.size - 1) and LAMBDA_BOUNDS[0] < grid[i] < LAMBDA_BOUNDS[1]
+        ):
             grid = None
     if grid is None:
         grid = np.linspace(LAMBDA_BOUNDS[0], LAMBDA_BOUNDS[1], 25)
@@ -208,8 +218,9 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
     i = int(np.nanargmax(np.where(np.isfinite(vals), vals, -np.inf)))
     lo = grid[max(i - 1, 0)]
     hi = grid[min(i + 1, grid.size - 1)]
-    res = optimize.minimize_scalar(lambda t: -f(t), bounds=(lo, hi), method="bounded",
-                                   options={"xatol": 1e-9})
+    res = optimize.minimize_scalar(
+        lambda t: -f(t), bounds=(lo, hi), method="bounded", options={"xatol": 1e-9}
+    )
     lam = float(res.x)
     best = -float(res.fun)
     if vals[i] > best:
@@ -228,6 +239,7 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
             warnings.simplefilter("ignore", RuntimeWarning)
             ci_low = _endpoint(g, lam, -CI_SEARCH)
             ci_high = _endpoint(g, lam, CI_SEARCH)
+
     def lr_p(l0: float) -> float | None:
         if not with_interval:  # a fold's warm-started estimate: only lambda is used
             return None
@@ -242,8 +254,9 @@ def estimate_lambda(family: str, y: np.ndarray, X: np.ndarray | None = None,
     inside = [p for p in tr.LADDER if lo_b <= p <= hi_b]
     if inside:
         ladder = min(inside, key=lambda p: (abs(p - lam), abs(p)))
-    return LambdaEstimate(family, lam, best, ci_low, ci_high, level, ladder,
-                          lr_p(1.0), lr_p(0.0), at_bound)
+    return LambdaEstimate(
+        family, lam, best, ci_low, ci_high, level, ladder, lr_p(1.0), lr_p(0.0), at_bound
+    )
 
 
 def _chi2_1_ppf(level: float) -> float:

@@ -53,12 +53,21 @@ def library_versions() -> dict:
     import scipy
     import statsmodels
 
-    return {"numpy": np.__version__, "scipy": scipy.__version__,
-            "statsmodels": statsmodels.__version__}
+    return {
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "statsmodels": statsmodels.__version__,
+    }
 
 
-def build_model(spec: Specification, design: Design, fit: OLSFit, prep: Prepared,
-                service_version: str, options: dict | None = None) -> dict:
+def build_model(
+    spec: Specification,
+    design: Design,
+    fit: OLSFit,
+    prep: Prepared,
+    service_version: str,
+    options: dict | None = None,
+) -> dict:
     kind, res = stored_residuals(fit.resid)
     hat = np.einsum("ij,jk,ik->i", design.X, fit.cov_unscaled, design.X)
     ranges = {}
@@ -73,7 +82,7 @@ def build_model(spec: Specification, design: Design, fit: OLSFit, prep: Prepared
         "terms": list(design.names),
         "coefficients": [float(v) for v in fit.coef],
         "xtx_inverse": [[float(v) for v in row] for row in fit.cov_unscaled],
-        "residual_variance": float(fit.sigma ** 2),
+        "residual_variance": float(fit.sigma**2),
         "df_residual": int(fit.df_resid),
         "n": int(fit.n),
         "levels": design.levels,

@@ -68,8 +68,11 @@ def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict | 
     if curve.shape[0] < 2:
         return None
     curve = curve[_even(curve.shape[0], CURVE_POINTS)]
-    return {"x": _floats(curve[:, 0]), "y": _floats(curve[:, 1]),
-            "method": "LOWESS (Cleveland 1979), frac = 2/3, 3 robustness iterations"}
+    return {
+        "x": _floats(curve[:, 0]),
+        "y": _floats(curve[:, 1]),
+        "method": "LOWESS (Cleveland 1979), frac = 2/3, 3 robustness iterations",
+    }
 
 
 def _scatter(x, y, ids, keep, **extra) -> dict:
@@ -104,11 +107,14 @@ def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict:
     f, e = fit.fitted, fit.resid
     lo, hi = float(f.min()), float(f.max())
     return {
-        "title": "Residuals vs fitted", "x_label": "Fitted value (model scale)",
-        "y_label": "Residual", "points": _scatter(f, e, ids, keep),
+        "title": "Residuals vs fitted",
+        "x_label": "Fitted value (model scale)",
+        "y_label": "Residual",
+        "points": _scatter(f, e, ids, keep),
         "smoother": _smoother(f, e, rng),
         "reference_lines": [{"name": "zero", "x": [lo, hi], "y": [0.0, 0.0]}],
-        "labels": _labels(f, e, ids, flagged), "n_total": fit.n,
+        "labels": _labels(f, e, ids, flagged),
+        "n_total": fit.n,
     }
 
 
@@ -138,13 +144,22 @@ def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict:
 
 
 def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
-    panel = {"title": "Normal Q-Q", "x_label": "Normal quantile",
-             "y_label": "Standardised residual", "n_total": fit.n}
+    panel = {
+        "title": "Normal Q-Q",
+        "x_label": "Normal quantile",
+        "y_label": "Standardised residual",
+        "n_total": fit.n,
+    }
     r = None if fit.influence is None else fit.influence.standardized
     rows = np.flatnonzero(np.isfinite(r)) if r is not None else np.array([], dtype=int)
     if rows.size < 3:
-        panel.update(points={"x": [], "y": [], "row": []}, reference_line=None, envelope=None,
-                     labels=[], note=fit.residual_reason or "too few standardised residuals")
+        panel.update(
+            points={"x": [], "y": [], "row": []},
+            reference_line=None,
+            envelope=None,
+            labels=[],
+            note=fit.residual_reason or "too few standardised residuals",
+        )
         return panel
     m = rows.size
     order = rows[np.argsort(r[rows], kind="stable")]
@@ -156,8 +171,11 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
         rank_of = np.empty(fit.n, dtype=np.intp)
         rank_of[order] = np.arange(m)
         must = rank_of[np.intersect1d(flagged, rows)]
-        ranks = np.unique(np.concatenate([
-            np.arange(tail), np.arange(m - tail, m), _even(m, max_points - 2 * tail), must]))
+        ranks = np.unique(
+            np.concatenate(
+                [np.arange(tail), np.arange(m - tail, m), _even(m, max_points - 2 * tail), must]
+            )
+        )
     env = _envelope(fit, ranks, m, rng)
     y, theo = r[order[ranks]], theo_all[ranks]
     q1, q3 = np.percentile(r[rows], [25, 75])
@@ -167,40 +185,70 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
     ends = np.array([theo_all[0], theo_all[-1]])
     inside = float(np.mean((y >= env["lower"]) & (y <= env["upper"])))
     rank_at = {int(order[k]): int(k) for k in ranks}
-    labels = [{"row": int(ids[i]), "x": float(theo_all[rank_at[i]]), "y": float(r[i])}
-              for i in flagged[:MAX_LABELS].tolist() if i in rank_at]  # priority order
+    labels = [
+        {"row": int(ids[i]), "x": float(theo_all[rank_at[i]]), "y": float(r[i])}
+        for i in flagged[:MAX_LABELS].tolist()
+        if i in rank_at
+    ]  # priority order
     panel.update(
         points={"x": _floats(theo), "y": _floats(y), "row": _ints(ids[order[ranks]])},
-        reference_line={"x": _floats(ends), "y": _floats(intercept + slope * ends),
-                        "slope": float(slope), "intercept": float(intercept),
-                        "method": "line through the quartiles"},
-        envelope={"x": _floats(theo), "lower": _floats(env["lower"]),
-                  "upper": _floats(env["upper"]), "level": 0.95, "method": env["method"],
-                  "simulations": env["simulations"], "share_inside": inside},
-        labels=labels, plotting_positions="Blom (1958): (i - 0.375) / (n + 0.25)",
+        reference_line={
+            "x": _floats(ends),
+            "y": _floats(intercept + slope * ends),
+            "slope": float(slope),
+            "intercept": float(intercept),
+            "method": "line through the quartiles",
+        },
+        envelope={
+            "x": _floats(theo),
+            "lower": _floats(env["lower"]),
+            "upper": _floats(env["upper"]),
+            "level": 0.95,
+            "method": env["method"],
+            "simulations": env["simulations"],
+            "share_inside": inside,
+        },
+        labels=labels,
+        plotting_positions="Blom (1958): (i - 0.375) / (n + 0.25)",
     )
     return panel
 
 
 def _spread_fitted(fit, ids, keep, flagged, rng) -> dict:
-    panel = {"title": "Spread vs fitted", "x_label": "Fitted value (model scale)",
-             "y_label": "sqrt(|standardised residual|)", "n_total": fit.n}
+    panel = {
+        "title": "Spread vs fitted",
+        "x_label": "Fitted value (model scale)",
+        "y_label": "sqrt(|standardised residual|)",
+        "n_total": fit.n,
+    }
     if fit.influence is None:
-        panel.update(points={"x": [], "y": [], "row": []}, smoother=None, labels=[],
-                     note=fit.residual_reason)
+        panel.update(
+            points={"x": [], "y": [], "row": []}, smoother=None, labels=[], note=fit.residual_reason
+        )
         return panel
     f, s = fit.fitted, np.sqrt(np.abs(fit.influence.standardized))
-    panel.update(points=_scatter(f, s, ids, keep), smoother=_smoother(f, s, rng),
-                 labels=_labels(f, s, ids, flagged))
+    panel.update(
+        points=_scatter(f, s, ids, keep),
+        smoother=_smoother(f, s, rng),
+        labels=_labels(f, s, ids, flagged),
+    )
     return panel
 
 
 def _influence_panel(fit, ids, keep, flagged) -> dict:
-    panel = {"title": "Influence", "x_label": "Leverage (hat value)",
-             "y_label": "Externally studentised residual", "n_total": fit.n}
+    panel = {
+        "title": "Influence",
+        "x_label": "Leverage (hat value)",
+        "y_label": "Externally studentised residual",
+        "n_total": fit.n,
+    }
     if fit.influence is None:
-        panel.update(points={"x": [], "y": [], "row": [], "size": []}, reference_lines=[],
-                     labels=[], note=fit.residual_reason)
+        panel.update(
+            points={"x": [], "y": [], "row": [], "size": []},
+            reference_lines=[],
+            labels=[],
+            note=fit.residual_reason,
+        )
         return panel
     inf = fit.influence
     h, t = inf.leverage, inf.studentized
@@ -215,7 +263,8 @@ def _influence_panel(fit, ids, keep, flagged) -> dict:
             {"name": "+2 (common practice)", "x": [0.0, h_hi], "y": [2.0, 2.0]},
             {"name": "-2 (common practice)", "x": [0.0, h_hi], "y": [-2.0, -2.0]},
         ],
-        labels=_labels(h, t, ids, flagged), size_label="Cook's distance",
+        labels=_labels(h, t, ids, flagged),
+        size_label="Cook's distance",
     )
     return panel
 
@@ -235,16 +284,20 @@ def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict]:
         rows = np.union1d(keep, [int(np.argmin(x)), int(np.argmax(x))])
         rows = rows[np.argsort(x[rows], kind="stable")]
         srt = rows[_even(rows.size, CURVE_POINTS * 5)]
-        out.append({
-            "column": term.column, "label": term.label,
-            "title": f"Component + residual: {term.label}",
-            "x_label": f"{term.column} (raw value)",
-            "y_label": f"b * {term.label} + residual",
-            "points": _scatter(x, y, ids, keep),
-            "component": {"x": _floats(x[srt]), "y": _floats(comp[srt])},
-            "smoother": _smoother(x, y, rng), "coefficient": ct.num(params[j]),
-            "n_total": fit.n,
-        })
+        out.append(
+            {
+                "column": term.column,
+                "label": term.label,
+                "title": f"Component + residual: {term.label}",
+                "x_label": f"{term.column} (raw value)",
+                "y_label": f"b * {term.label} + residual",
+                "points": _scatter(x, y, ids, keep),
+                "component": {"x": _floats(x[srt]), "y": _floats(comp[srt])},
+                "smoother": _smoother(x, y, rng),
+                "coefficient": ct.num(params[j]),
+                "n_total": fit.n,
+            }
+        )
     return out
 
 
@@ -263,8 +316,11 @@ def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0
     z, X = validate(inp)
     fit = ct.fit_model(z, X, inp.has_intercept)
     ids = np.asarray(inp.row_ids)
-    flagged = (flag_rows(fit)[0][:MAX_FLAGGED_ROWS] if fit.influence is not None
-               else np.array([], dtype=np.intp))
+    flagged = (
+        flag_rows(fit)[0][:MAX_FLAGGED_ROWS]
+        if fit.influence is not None
+        else np.array([], dtype=np.intp)
+    )
     rng = np.random.default_rng(seed)
     keep = _thin(fit.n, max_points, flagged.astype(np.intp), rng)
     return {

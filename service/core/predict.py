@@ -79,9 +79,9 @@ def _first_non_finite(d) -> str | None:
     while stack:
         node, path = stack.pop()
         if isinstance(node, dict):
-            stack.extend((v, path + (k,)) for k, v in node.items())
+            stack.extend((v, (*path, k)) for k, v in node.items())
         elif isinstance(node, (list, tuple)):
-            stack.extend((v, path + (i,)) for i, v in enumerate(node))
+            stack.extend((v, (*path, i)) for i, v in enumerate(node))
         elif isinstance(node, float) and not math.isfinite(node):
             return pointer("model", *path)
     return None
@@ -89,8 +89,9 @@ def _first_non_finite(d) -> str | None:
 
 def _need(d: dict, key: str, ptr: str):
     if key not in d:
-        raise InputError.at(ptr, f"the model has no '{key}'; send the model object exactly as "
-                            "the service issued it")
+        raise InputError.at(
+            ptr, f"the model has no '{key}'; send the model object exactly as the service issued it"
+        )
     return d[key]
 
 
@@ -105,8 +106,10 @@ def _transform(d, ptr: str, role: str) -> tr.Transform:
         raise InputError.at(ptr, f"the {role} transform must be an object with a 'name'")
     name = d["name"]
     if name not in tr.ALL_NAMES or (role == "response" and name == "categorical"):
-        raise InputError.at(pointer(*ptr.strip("/").split("/"), "name"),
-                            f"'{name}' is not a {role} transform this service fits")
+        raise InputError.at(
+            pointer(*ptr.strip("/").split("/"), "name"),
+            f"'{name}' is not a {role} transform this service fits",
+        )
     if name == "power":
         q = d.get("exponent")
         if not _is_number(q) or q == 0:
@@ -114,8 +117,9 @@ def _transform(d, ptr: str, role: str) -> tr.Transform:
     if name in ("box_cox", "yeo_johnson") and not _is_number(d.get("lambda")):
         raise InputError.at(ptr, f"the model's {name} transform has no numeric 'lambda'")
     if name == "log" and "shift" in d and not _is_number(d["shift"]):
-        raise InputError.at(pointer(*ptr.strip("/").split("/"), "shift"),
-                            "the log 'shift' must be a number")
+        raise InputError.at(
+            pointer(*ptr.strip("/").split("/"), "shift"), "the log 'shift' must be a number"
+        )
     t = tr.from_dict(d)
     if t.name == "log" and t.shift is None:
         # issued artifacts omit a zero shift; a fitted log without one is log(x + 0)
@@ -130,8 +134,9 @@ def _specification(d) -> Specification:
     resp = _need(d, "response", ptr)
     if not isinstance(resp, dict) or not isinstance(resp.get("column"), str):
         raise InputError.at(ptr + "/response", "the response must be an object with a 'column'")
-    rt = _transform(resp.get("transform", {"name": "identity"}), ptr + "/response/transform",
-                    "response")
+    rt = _transform(
+        resp.get("transform", {"name": "identity"}), ptr + "/response/transform", "response"
+    )
     preds = _need(d, "predictors", ptr)
     if not isinstance(preds, list) or not preds:
         raise InputError.at(ptr + "/predictors", "the model needs a non-empty predictor list")
@@ -144,8 +149,14 @@ def _specification(d) -> Specification:
         if p["column"] in seen:
             raise InputError.at(pp, f"predictor '{p['column']}' appears twice")
         seen.add(p["column"])
-        out.append(PredictorSpec(p["column"], _transform(p.get("transform", {"name": "identity"}),
-                                                         pp + "/transform", "predictor")))
+        out.append(
+            PredictorSpec(
+                p["column"],
+                _transform(
+                    p.get("transform", {"name": "identity"}), pp + "/transform", "predictor"
+                ),
+            )
+        )
     intercept = d.get("intercept", True)
     if not isinstance(intercept, bool):
         raise InputError.at(ptr + "/intercept", "intercept must be true or false")
@@ -163,18 +174,25 @@ def _levels(d, spec: Specification) -> dict[str, dict]:
             raise InputError.at(ptr, f"levels are given for '{col}', which is not a predictor")
         lv = info.get("levels") if isinstance(info, dict) else None
         ref = info.get("reference") if isinstance(info, dict) else None
-        if not isinstance(lv, list) or len(lv) < 2 or not all(isinstance(v, str) for v in lv) \
-                or len(set(lv)) != len(lv):
-            raise InputError.at(ptr + "/levels", f"'{col}' needs a list of two or more distinct "
-                                "level names")
+        if (
+            not isinstance(lv, list)
+            or len(lv) < 2
+            or not all(isinstance(v, str) for v in lv)
+            or len(set(lv)) != len(lv)
+        ):
+            raise InputError.at(
+                ptr + "/levels", f"'{col}' needs a list of two or more distinct level names"
+            )
         if ref not in lv:
-            raise InputError.at(ptr + "/reference", f"the reference level of '{col}' is not one "
-                                "of its levels")
+            raise InputError.at(
+                ptr + "/reference", f"the reference level of '{col}' is not one of its levels"
+            )
         out[col] = {"levels": list(lv), "reference": ref}
     for p in spec.predictors:
         if p.transform.name == "categorical" and p.column not in out:
-            raise InputError.at("/model/levels", f"categorical predictor '{p.column}' has no "
-                                "level list")
+            raise InputError.at(
+                "/model/levels", f"categorical predictor '{p.column}' has no level list"
+            )
     return out
 
 
@@ -204,53 +222,76 @@ def load_model(d: dict) -> LoadedModel:
     fv = d.get("format_version")
     if not _is_number(fv) or fv not in KNOWN_FORMAT_VERSIONS:
         known = ", ".join(str(v) for v in KNOWN_FORMAT_VERSIONS)
-        raise InputError.at("/model/format_version", f"model format_version {fv!r} is not one "
-                            f"this service reads ({known}); refit the model with this service")
+        raise InputError.at(
+            "/model/format_version",
+            f"model format_version {fv!r} is not one "
+            f"this service reads ({known}); refit the model with this service",
+        )
     bad = _first_non_finite(d)
     if bad:
         raise InputError.at(bad, "the model holds a non-finite number")
     given = d.get("checksum")
     if not isinstance(given, str):
-        raise InputError.at("/model/checksum", "the model has no checksum; send the model "
-                            "object exactly as the service issued it")
+        raise InputError.at(
+            "/model/checksum",
+            "the model has no checksum; send the model object exactly as the service issued it",
+        )
     try:
         actual = checksum(d)
     except (TypeError, ValueError):
         raise InputError.at("/model", "the model holds values that are not plain JSON") from None
     if not hmac.compare_digest(given, actual):
-        raise InputError.at("/model/checksum", "the model was modified after it was issued "
-                            "(its checksum does not match its content); send it back unchanged")
+        raise InputError.at(
+            "/model/checksum",
+            "the model was modified after it was issued "
+            "(its checksum does not match its content); send it back unchanged",
+        )
 
     spec = _specification(_need(d, "specification", "/model"))
     levels = _levels(d.get("levels", {}), spec)
     terms = _need(d, "terms", "/model")
     want = expected_terms(spec, levels)
     if terms != want:
-        raise InputError.at("/model/terms", f"the model's terms {terms!r} do not match its "
-                            f"specification (expected {want!r})")
+        raise InputError.at(
+            "/model/terms",
+            f"the model's terms {terms!r} do not match its specification (expected {want!r})",
+        )
     p = len(want)
     coef = _need(d, "coefficients", "/model")
     if not isinstance(coef, list) or len(coef) != p or not all(map(_is_number, coef)):
-        raise InputError.at("/model/coefficients", f"coefficients must be {p} numbers, one per "
-                            "term")
+        raise InputError.at(
+            "/model/coefficients", f"coefficients must be {p} numbers, one per term"
+        )
     V = _need(d, "xtx_inverse", "/model")
-    if not isinstance(V, list) or len(V) != p or not all(
-            isinstance(r, list) and len(r) == p and all(map(_is_number, r)) for r in V):
-        raise InputError.at("/model/xtx_inverse", f"xtx_inverse must be a {p} x {p} matrix of "
-                            "numbers")
-    s2 = _number(_need(d, "residual_variance", "/model"), "/model/residual_variance",
-                 "residual_variance")
+    if (
+        not isinstance(V, list)
+        or len(V) != p
+        or not all(isinstance(r, list) and len(r) == p and all(map(_is_number, r)) for r in V)
+    ):
+        raise InputError.at(
+            "/model/xtx_inverse", f"xtx_inverse must be a {p} x {p} matrix of numbers"
+        )
+    s2 = _number(
+        _need(d, "residual_variance", "/model"), "/model/residual_variance", "residual_variance"
+    )
     if s2 < 0:
         raise InputError.at("/model/residual_variance", "residual_variance must not be negative")
     df = _need(d, "df_residual", "/model")
     if not isinstance(df, int) or isinstance(df, bool) or df < 1:
         raise InputError.at("/model/df_residual", "df_residual must be a positive integer")
     res = _need(d, "residuals", "/model")
-    if not isinstance(res, dict) or res.get("kind") not in ("all", "quantiles") or \
-            not isinstance(res.get("values"), list) or not res["values"] or \
-            not all(map(_is_number, res["values"])):
-        raise InputError.at("/model/residuals", "residuals must be {kind: 'all' | 'quantiles', "
-                            "values: [numbers]} with at least one value")
+    if (
+        not isinstance(res, dict)
+        or res.get("kind") not in ("all", "quantiles")
+        or not isinstance(res.get("values"), list)
+        or not res["values"]
+        or not all(map(_is_number, res["values"]))
+    ):
+        raise InputError.at(
+            "/model/residuals",
+            "residuals must be {kind: 'all' | 'quantiles', "
+            "values: [numbers]} with at least one value",
+        )
     rng_in = _need(d, "training_range", "/model")
     if not isinstance(rng_in, dict):
         raise InputError.at("/model/training_range", "training_range must be an object")
@@ -260,17 +301,34 @@ def load_model(d: dict) -> LoadedModel:
             continue
         r = rng_in.get(pr.column)
         ptr = pointer("model", "training_range", pr.column)
-        if not isinstance(r, dict) or not _is_number(r.get("min")) or not _is_number(r.get("max")) \
-                or r["min"] > r["max"]:
-            raise InputError.at(ptr, f"the training range of '{pr.column}' must be {{min, max}} "
-                                "numbers with min <= max")
+        if (
+            not isinstance(r, dict)
+            or not _is_number(r.get("min"))
+            or not _is_number(r.get("max"))
+            or r["min"] > r["max"]
+        ):
+            raise InputError.at(
+                ptr,
+                f"the training range of '{pr.column}' must be {{min, max}} numbers with min <= max",
+            )
         ranges[pr.column] = (float(r["min"]), float(r["max"]))
     hmax = _number(_need(d, "max_leverage", "/model"), "/model/max_leverage", "max_leverage")
     if not 0.0 <= hmax <= 1.0 + 1e-9:
         raise InputError.at("/model/max_leverage", "max_leverage must lie in [0, 1]")
-    return LoadedModel(spec, tuple(want), np.array(coef, dtype=float), np.array(V, dtype=float),
-                       s2, df, levels, np.array(res["values"], dtype=float), res["kind"], ranges,
-                       hmax, int(fv))
+    return LoadedModel(
+        spec,
+        tuple(want),
+        np.array(coef, dtype=float),
+        np.array(V, dtype=float),
+        s2,
+        df,
+        levels,
+        np.array(res["values"], dtype=float),
+        res["kind"],
+        ranges,
+        hmax,
+        int(fv),
+    )
 
 
 # -------------------------------------------------------------- new design
@@ -297,7 +355,7 @@ def _bad_domain(t: tr.Transform, x: np.ndarray, column: str) -> np.ndarray:
     lo, hi = 0, u.size - 1  # u[0] is bad; find the last bad index
     while lo < hi:
         mid = (lo + hi + 1) // 2
-        if t.domain_problem(u[mid:mid + 1], column, "predictor") is not None:
+        if t.domain_problem(u[mid : mid + 1], column, "predictor") is not None:
             lo = mid
         else:
             hi = mid - 1
@@ -334,13 +392,20 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
     known = set(table.names)
     for p in spec.predictors:
         if p.column not in known:
-            problems.append(FieldProblem(_missing_column(table.source, p.column),
-                                         f"predictor column '{p.column}' is missing from the data; "
-                                         "the model needs " +
-                                         ", ".join(f"'{q.column}'" for q in spec.predictors)))
+            problems.append(
+                FieldProblem(
+                    _missing_column(table.source, p.column),
+                    f"predictor column '{p.column}' is missing from the data; "
+                    "the model needs " + ", ".join(f"'{q.column}'" for q in spec.predictors),
+                )
+            )
     if problems:
-        raise InputError(problems[0].detail if len(problems) == 1 else
-                         f"{len(problems)} predictor columns are missing from the data", problems)
+        raise InputError(
+            problems[0].detail
+            if len(problems) == 1
+            else f"{len(problems)} predictor columns are missing from the data",
+            problems,
+        )
 
     cols: list[np.ndarray] = [np.ones(m)] if spec.intercept else []
     raw_numeric: dict[str, np.ndarray] = {}
@@ -355,8 +420,10 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
             raw: RawColumn = table.get(p.column)
         except InputError as exc:  # a record without the field
             ptr = exc.problems[0].pointer if exc.problems else "/data"
-            add(pointer(*ptr.strip("/").split("/"), p.column) if table.source == "records" else ptr,
-                f"a row has no value for predictor '{p.column}'; every row needs one")
+            add(
+                pointer(*ptr.strip("/").split("/"), p.column) if table.source == "records" else ptr,
+                f"a row has no value for predictor '{p.column}'; every row needs one",
+            )
             n_bad += 1
             continue
         if model.is_categorical(p.column):
@@ -365,14 +432,20 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
             allowed = set(info["levels"])
             for i in np.flatnonzero(typed.missing):
                 n_bad += 1
-                add(raw.cell_pointer(int(i)), f"predictor '{p.column}' is missing (null) in row "
-                    f"{int(i)}; a prediction needs every predictor value")
+                add(
+                    raw.cell_pointer(int(i)),
+                    f"predictor '{p.column}' is missing (null) in row "
+                    f"{int(i)}; a prediction needs every predictor value",
+                )
             for i, v in enumerate(typed.values):
                 if v is not None and v not in allowed:
                     n_bad += 1
-                    add(raw.cell_pointer(i), f"level '{v}' of '{p.column}' in row {i} did not "
+                    add(
+                        raw.cell_pointer(i),
+                        f"level '{v}' of '{p.column}' in row {i} did not "
                         f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
-                        "the model cannot predict for it")
+                        "the model cannot predict for it",
+                    )
             for lv in info["levels"]:
                 if lv != info["reference"]:
                     cols.append((typed.values == lv).astype(float))
@@ -388,8 +461,11 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
         x = typed.values
         for i in np.flatnonzero(typed.missing):
             n_bad += 1
-            add(raw.cell_pointer(int(i)), f"predictor '{p.column}' is missing (null) in row "
-                f"{int(i)}; a prediction needs every predictor value")
+            add(
+                raw.cell_pointer(int(i)),
+                f"predictor '{p.column}' is missing (null) in row "
+                f"{int(i)}; a prediction needs every predictor value",
+            )
         t = p.transform
         ok = ~typed.missing
         bad = np.zeros(m, dtype=bool)
@@ -398,16 +474,22 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
         label = t.label(p.column)
         for i in np.flatnonzero(bad):
             n_bad += 1
-            add(raw.cell_pointer(int(i)), f"predictor '{p.column}' is {x[i]:.6g} in row {int(i)}, "
+            add(
+                raw.cell_pointer(int(i)),
+                f"predictor '{p.column}' is {x[i]:.6g} in row {int(i)}, "
                 f"where {label} (the model's scale for '{p.column}') is not defined; it needs "
-                f"{_domain_text(t)}")
+                f"{_domain_text(t)}",
+            )
         raw_numeric[p.column] = x
         with np.errstate(all="ignore"):
             w = t.forward(np.where(ok & ~bad, x, 1.0))
         cols.append(w)
     if problems:
-        detail = problems[0].detail if n_bad == 1 else (
-            f"{n_bad} cells cannot be used for prediction; the first: {problems[0].detail}")
+        detail = (
+            problems[0].detail
+            if n_bad == 1
+            else (f"{n_bad} cells cannot be used for prediction; the first: {problems[0].detail}")
+        )
         raise InputError(detail, problems)
     X = np.column_stack(cols)
     return X, raw_numeric, m
@@ -463,8 +545,11 @@ def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
     overflows) is ``None`` and explained in ``warnings``, never NaN.
     """
     if not (_is_number(interval) and 0.0 < interval < 1.0):
-        raise InputError.at("/interval", f"interval must lie strictly between 0 and 1 (got "
-                            f"{interval!r}); 0.95 gives a 95% prediction interval")
+        raise InputError.at(
+            "/interval",
+            f"interval must lie strictly between 0 and 1 (got "
+            f"{interval!r}); 0.95 gives a 95% prediction interval",
+        )
     X, raw, m = new_design(model, data)
     t = model.response_transform
     zs = model_scale_interval(model, X, interval)
@@ -491,40 +576,67 @@ def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
         x = raw[col]
         for i in np.flatnonzero((x < a) | (x > b)).tolist():
             reasons.setdefault(i, []).append(
-                f"'{col}' = {_num(x[i])} is outside the training range [{_num(a)}, {_num(b)}]")
+                f"'{col}' = {_num(x[i])} is outside the training range [{_num(a)}, {_num(b)}]"
+            )
     h0 = zs["leverage"]
     over = h0 > model.max_leverage * (1.0 + LEVERAGE_RTOL) + 1e-12
     for i in np.flatnonzero(over).tolist():
-        reasons.setdefault(i, []).append(f"leverage {_num(h0[i])} exceeds the largest training "
-                                         f"leverage {_num(model.max_leverage)}")
+        reasons.setdefault(i, []).append(
+            f"leverage {_num(h0[i])} exceeds the largest training "
+            f"leverage {_num(model.max_leverage)}"
+        )
     extrap = np.zeros(m, dtype=bool)
     extrap[list(reasons)] = True
     if np.any(extrap):
-        warnings.append(f"{int(extrap.sum())} of {m} rows are extrapolations ("
-                        f"{_rows_text(np.flatnonzero(extrap))}): outside the training range of a "
-                        "predictor or beyond the largest training leverage; the fit does not "
-                        "support them and back-transforms magnify their error.")
+        warnings.append(
+            f"{int(extrap.sum())} of {m} rows are extrapolations ("
+            f"{_rows_text(np.flatnonzero(extrap))}): outside the training range of a "
+            "predictor or beyond the largest training leverage; the fit does not "
+            "support them and back-transforms magnify their error."
+        )
 
     def report(mask: np.ndarray, text: str) -> None:
         if np.any(mask):
             warnings.append(f"For {_rows_text(np.flatnonzero(mask))} {text}")
 
     report(~np.isfinite(eta), "the linear predictor overflows; every number is null.")
-    report(ok_eta & ~np.isfinite(median), f"the median is null: the inverse of {label} does not "
-           "exist at the fitted value or overflows.")
-    report(ok_eta & ~np.isfinite(mean), "the mean is null: the smearing terms have no finite "
-           "inverse or their average overflows.")
-    report(ok_eta & np.isfinite(mean) & partial,
-           "some smearing terms have no finite inverse (the response would be unbounded) and are "
-           "left out of the mean, which is therefore only indicative.")
-    report(ok_eta & ~np.isfinite(lo), f"the lower prediction limit is null: the interval on the "
-           f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).")
-    report(ok_eta & ~np.isfinite(hi), f"the upper prediction limit is null: the interval on the "
-           f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).")
+    report(
+        ok_eta & ~np.isfinite(median),
+        f"the median is null: the inverse of {label} does not "
+        "exist at the fitted value or overflows.",
+    )
+    report(
+        ok_eta & ~np.isfinite(mean),
+        "the mean is null: the smearing terms have no finite inverse or their average overflows.",
+    )
+    report(
+        ok_eta & np.isfinite(mean) & partial,
+        "some smearing terms have no finite inverse (the response would be unbounded) and are "
+        "left out of the mean, which is therefore only indicative.",
+    )
+    report(
+        ok_eta & ~np.isfinite(lo),
+        f"the lower prediction limit is null: the interval on the "
+        f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).",
+    )
+    report(
+        ok_eta & ~np.isfinite(hi),
+        f"the upper prediction limit is null: the interval on the "
+        f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).",
+    )
 
     cols = [_finite_list(a) for a in (mean, median, lo, hi, h0, eta, zs["lower"], zs["upper"])]
-    rows = [{"mean": c0, "median": c1, "lower": c2, "upper": c3, "extrapolation": i in reasons,
-             "extrapolation_reasons": reasons.get(i, []), "leverage": c4,
-             "model_scale": {"fit": c5, "lower": c6, "upper": c7}}
-            for i, (c0, c1, c2, c3, c4, c5, c6, c7) in enumerate(zip(*cols))]
+    rows = [
+        {
+            "mean": c0,
+            "median": c1,
+            "lower": c2,
+            "upper": c3,
+            "extrapolation": i in reasons,
+            "extrapolation_reasons": reasons.get(i, []),
+            "leverage": c4,
+            "model_scale": {"fit": c5, "lower": c6, "upper": c7},
+        }
+        for i, (c0, c1, c2, c3, c4, c5, c6, c7) in enumerate(zip(*cols, strict=True))
+    ]
     return {"predictions": rows, "interval": float(interval), "warnings": warnings}

@@ -10,9 +10,9 @@ from . import retransform
 from . import transforms as tr
 from .crossval import CVPlan, CVResult
 from .data import Prepared
+from .diagnose import conditions_for
 from .errors import CandidateFailure
 from .fitting import OLSFit, ols
-from .diagnose import conditions_for
 from .interpret import interpret_fit
 from .likelihood import estimate_lambda
 from .model import build_model
@@ -33,7 +33,7 @@ def _num(v: float) -> str:
 def equation(spec: Specification, design: Design, coef: np.ndarray) -> str:
     """Readable equation, e.g. ``log(cost) = 2.1 + 0.48·log(area) - 0.03·age``."""
     parts = []
-    for name, b in zip(design.names, coef):
+    for name, b in zip(design.names, coef, strict=True):
         if name == "intercept":
             parts.append(_num(b))
             continue
@@ -65,8 +65,10 @@ def fitted_model(spec: Specification, prep: Prepared):
         raise CandidateFailure(f"{t.label(prep.response)} overflows on the data")
     fit = ols(design.X, z, design.names, spec.intercept)
     if not (np.isfinite(fit.rss) and np.all(np.isfinite(fit.coef)) and np.all(np.isfinite(fit.se))):
-        raise CandidateFailure(f"the fit on the {t.label(prep.response)} scale overflows "
-                               "(values too large for floating point)")
+        raise CandidateFailure(
+            f"the fit on the {t.label(prep.response)} scale overflows "
+            "(values too large for floating point)"
+        )
     concrete = Specification(spec.response, t, spec.predictors, spec.intercept)
     return concrete, design, fit, lam_est
 
@@ -75,7 +77,12 @@ def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict:
     t = concrete.response_transform
     llf_y = fit.llf + t.log_jacobian(prep.y)
     # sigma, plus every parameter estimated from the response: a lambda, Box-Tidwell powers
-    k = fit.coef.size + 1 + t.n_estimated + sum(p.transform.n_estimated for p in concrete.predictors)
+    k = (
+        fit.coef.size
+        + 1
+        + t.n_estimated
+        + sum(p.transform.n_estimated for p in concrete.predictors)
+    )
     n = fit.n
     aic = -2.0 * llf_y + 2.0 * k
     bic = -2.0 * llf_y + k * math.log(n)
@@ -101,51 +108,83 @@ def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict:
     }
 
 
-def entry_for(spec: Specification, cv: CVResult, plan: CVPlan, prep: Prepared, parts: dict,
-              opts, service_version: str) -> dict:
+def entry_for(
+    spec: Specification,
+    cv: CVResult,
+    plan: CVPlan,
+    prep: Prepared,
+    parts: dict,
+    opts,
+    service_version: str,
+) -> dict:
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
     estimates = {}
     if lam_est is not None:
         estimates["response_lambda"] = lam_est.to_dict()
         if lam_est.at_bound:
-            warnings.append(f"The {concrete.response_transform.name} lambda sits at the search "
-                            "bound (-3 or 3); the scale is poorly determined.")
+            warnings.append(
+                f"The {concrete.response_transform.name} lambda sits at the search "
+                "bound (-3 or 3); the scale is poorly determined."
+            )
         if cv.fold_lambdas:
             estimates["response_lambda"]["per_fold"] = cv.fold_lambdas
     t = concrete.response_transform
     if t.name == "log" and t.shift:
-        warnings.append(f"'{prep.response}' has zeros, so the log uses a shift of {t.shift:.6g} "
-                        "(half the smallest positive value); the shift changes the results.")
+        warnings.append(
+            f"'{prep.response}' has zeros, so the log uses a shift of {t.shift:.6g} "
+            "(half the smallest positive value); the shift changes the results."
+        )
     for p in concrete.predictors:
         if p.transform.name == "log" and p.transform.shift:
-            warnings.append(f"'{p.column}' has zeros, so its log uses a shift of "
-                            f"{p.transform.shift:.6g} (half the smallest positive value).")
+            warnings.append(
+                f"'{p.column}' has zeros, so its log uses a shift of "
+                f"{p.transform.shift:.6g} (half the smallest positive value)."
+            )
     if fit.condition_number > 1e4 and len(design.names) > 2:
-        warnings.append(f"The design is ill-conditioned (condition number of the column-scaled "
-                        f"design {fit.condition_number:.3g}); coefficients are unstable.")
+        warnings.append(
+            f"The design is ill-conditioned (condition number of the column-scaled "
+            f"design {fit.condition_number:.3g}); coefficients are unstable."
+        )
     entry = {
         "specification": concrete.to_dict(),
         "equation": equation(concrete, design, fit.coef),
         "cv": cv.to_dict(plan),
         "fit": fit_block(concrete, fit, prep),
-        "coefficients": [{k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
-                         for row in fit.table()],
-        "score": {"value": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
-                  "parts": parts},
-        "model": build_model(concrete, design, fit, prep, service_version,
-                             {"folds": plan.folds, "repeats": plan.repeats, "seed": plan.seed,
-                              "metric": plan.metric}),
+        "coefficients": [
+            {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
+            for row in fit.table()
+        ],
+        "score": {
+            "value": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
+            "parts": parts,
+        },
+        "model": build_model(
+            concrete,
+            design,
+            fit,
+            prep,
+            service_version,
+            {
+                "folds": plan.folds,
+                "repeats": plan.repeats,
+                "seed": plan.seed,
+                "metric": plan.metric,
+            },
+        ),
         "warnings": warnings,
     }
-    conditions, hints = conditions_for(design, fit, prep, fit.fitted + fit.resid,
-                                       getattr(opts, "alpha", 0.05))
+    conditions, hints = conditions_for(
+        design, fit, prep, fit.fitted + fit.resid, getattr(opts, "alpha", 0.05)
+    )
     entry["conditions"] = conditions
     entry["transform_hints"] = hints
     for h in hints:
         if h.get("bulge") and h.get("sentence"):
             warnings.append(h["sentence"])
-    entry["interpretation"] = interpret_fit(concrete, design, fit, prep, getattr(opts, "units", None))
+    entry["interpretation"] = interpret_fit(
+        concrete, design, fit, prep, getattr(opts, "units", None)
+    )
     if estimates:
         entry["estimates"] = estimates
     entry["_design"] = design

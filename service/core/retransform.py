@@ -33,7 +33,7 @@ def _exact(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray:
     out = np.empty(eta.size)
     step = max(1, _CHUNK // max(e.size, 1))
     for s in range(0, eta.size, step):
-        block = t.inverse(eta[s:s + step, None] + e[None, :])
+        block = t.inverse(eta[s : s + step, None] + e[None, :])
         tot = block.sum(axis=1)
         bad = np.isnan(tot)
         if np.any(bad):  # leave undefined terms out of those rows' means
@@ -44,7 +44,7 @@ def _exact(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray:
             tot[~bad] /= e.size
         else:
             tot /= e.size
-        out[s:s + step] = tot
+        out[s : s + step] = tot
     return out
 
 
@@ -133,7 +133,11 @@ def gauss_rule(e: np.ndarray, q: int) -> tuple[np.ndarray, np.ndarray]:
             break
         betas.append(b_new)
         v_prev, v, b = v, w / b_new, b_new
-    J = np.diag(alphas) + np.diag(betas[: len(alphas) - 1], 1) + np.diag(betas[: len(alphas) - 1], -1)
+    J = (
+        np.diag(alphas)
+        + np.diag(betas[: len(alphas) - 1], 1)
+        + np.diag(betas[: len(alphas) - 1], -1)
+    )
     nodes, vecs = np.linalg.eigh(J)
     return mu + sd * nodes, vecs[0] ** 2
 
@@ -205,13 +209,17 @@ def _exact_pair(t: Transform, eta: np.ndarray, e: np.ndarray) -> tuple[np.ndarra
     D = np.empty(eta.size)
     step = max(1, _CHUNK // max(e.size, 1))
     for s in range(0, eta.size, step):
-        z = eta[s:s + step, None] + e[None, :]
+        z = eta[s : s + step, None] + e[None, :]
         v = t.inverse(z)
         d = t.inverse_derivative(z)
         ok = ~(np.isnan(v) | np.isnan(d))
         cnt = ok.sum(axis=1)
-        S[s:s + step] = np.where(cnt > 0, np.where(ok, v, 0.0).sum(axis=1) / np.maximum(cnt, 1), np.nan)
-        D[s:s + step] = np.where(cnt > 0, np.where(ok, d, 0.0).sum(axis=1) / np.maximum(cnt, 1), np.nan)
+        S[s : s + step] = np.where(
+            cnt > 0, np.where(ok, v, 0.0).sum(axis=1) / np.maximum(cnt, 1), np.nan
+        )
+        D[s : s + step] = np.where(
+            cnt > 0, np.where(ok, d, 0.0).sum(axis=1) / np.maximum(cnt, 1), np.nan
+        )
     return S, D
 
 
@@ -254,8 +262,13 @@ def _smear_interpolated(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndar
         tol = SMEAR_RTOL * np.maximum(np.abs(Sm), 1e-300)
         # the value at m and the slope there (times h/2, the error it implies half an
         # interval away): a kink in S can leave the value right while the cubic is wrong
-        good = np.isfinite(est) & np.isfinite(Sm) & np.isfinite(slope) & \
-            (np.abs(est - Sm) <= tol) & (np.abs(slope - Dm) * 0.5 * h <= tol)
+        good = (
+            np.isfinite(est)
+            & np.isfinite(Sm)
+            & np.isfinite(slope)
+            & (np.abs(est - Sm) <= tol)
+            & (np.abs(slope - Dm) * 0.5 * h <= tol)
+        )
         # An accepted interval keeps the cubic that was checked.  (Accepting the two halves
         # instead would use cubics nobody checked: with kinks in S they can be far worse.)
         ok_iv[a[good]] = True

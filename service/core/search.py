@@ -13,7 +13,7 @@ from __future__ import annotations
 import itertools
 import math
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -113,25 +113,37 @@ class _Evaluator:
             if not np.all(np.isfinite(z)):
                 raise CandidateFailure(f"{t0.label('y')} overflows on the data")
             x = np.column_stack([self.prep.numeric[c] for c in est_cols])
-            fit = bt.estimate_powers(z, self.space.bank.columns(cols), x,
-                                     boxcox_form=self.intercept)
+            fit = bt.estimate_powers(
+                z, self.space.bank.columns(cols), x, boxcox_form=self.intercept
+            )
             dynamic = Dynamic(dyn, x, fit.powers, self.intercept)
         res = from_score(self.scorer.score(t, cols, names, dynamic))
         if fit is None:
             return Scored(spec, res)
         a = iter(fit.powers)
-        concrete = Specification(spec.response, t, tuple(
-            PredictorSpec(p.column, bt.concrete_transform(next(a)) if bt.is_open(p.transform)
-                          else p.transform) for p in spec.predictors), spec.intercept)
+        concrete = Specification(
+            spec.response,
+            t,
+            tuple(
+                PredictorSpec(
+                    p.column,
+                    bt.concrete_transform(next(a)) if bt.is_open(p.transform) else p.transform,
+                )
+                for p in spec.predictors
+            ),
+            spec.intercept,
+        )
         per_fold = np.array(res.fold_powers)
         self.powers[concrete.key] = {
             c: {**fit.summary(j), "per_fold": per_fold[:, j].tolist()}
-            for j, c in enumerate(est_cols)}
+            for j, c in enumerate(est_cols)
+        }
         return Scored(concrete, res, spec)
 
 
-def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
-                  entry_hook=None) -> dict:
+def run_selection(
+    prep: Prepared, opts: SearchOptions, service_version: str, entry_hook=None
+) -> dict:
     """Search, score and rank; returns the contract's selection body (without service_version).
 
     ``entry_hook(entry, context)`` lets later stages (conditions, interpretation)
@@ -141,12 +153,14 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
     deadline = t0 + opts.time_limit_s
     resp = response_candidates(prep, opts)
     if not resp:
-        raise InputError.at("/transforms/response", "no response transform applies to "
-                            f"'{prep.response}'")
+        raise InputError.at(
+            "/transforms/response", f"no response transform applies to '{prep.response}'"
+        )
     preds = predictor_candidates(prep, opts)
-    n_params = 1 + sum(1 if p[0].name != "categorical" else
-                       len(set(prep.categorical[c].tolist())) - 1
-                       for p, c in zip(preds, prep.predictors))
+    n_params = 1 + sum(
+        1 if p[0].name != "categorical" else len(set(prep.categorical[c].tolist())) - 1
+        for p, c in zip(preds, prep.predictors, strict=True)
+    )
     _check_rows(prep, opts, n_params)
     plan = make_plan(prep.n, opts.folds, opts.repeats, opts.seed, opts.metric)
     _check_levels(prep, plan)
@@ -156,18 +170,23 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
     # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
     box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings)
     # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
-    bt_info, bt_powers = cand.screening_powers(prep, preds, resp, opts.intercept, opts.seed,
-                                               deadline)
+    bt_info, bt_powers = cand.screening_powers(
+        prep, preds, resp, opts.intercept, opts.seed, deadline
+    )
     preds = cand.add_ladder_rungs(prep, preds, bt_info)
     total = cand.grid_size(resp, preds)
-    strategy = opts.strategy if opts.strategy != "auto" else (
-        "exhaustive" if total <= EXHAUSTIVE_LIMIT else "screened")
+    strategy = (
+        opts.strategy
+        if opts.strategy != "auto"
+        else ("exhaustive" if total <= EXHAUSTIVE_LIMIT else "screened")
+    )
     screen_scales = _screen_scales(prep, resp, screen_lams)
     extra = {}
     if strategy == "screened":
         for (t, col), a in bt_powers.items():
             extra[("bt", screen_scales.get(t, t), col)] = bt.concrete_transform(a).forward(
-                prep.numeric[col])
+                prep.numeric[col]
+            )
     index = FoldIndex.of(plan, prep.n)
     space = cand.build_space(prep, preds, index, opts.intercept, extra)
     scorer = Scorer(space.bank, prep.y, plan, shift_needed)
@@ -177,20 +196,25 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
     if strategy == "exhaustive":
         complete = _exhaustive(prep, resp, preds, opts, ev, budget, total)
     else:
-        counts = screened_search(prep, resp, preds, space, ev, budget, screen_scales,
-                                 opts.intercept)
+        counts = screened_search(
+            prep, resp, preds, space, ev, budget, screen_scales, opts.intercept
+        )
         complete = False
     scored, failures, n_fail = ev.scored, ev.failures, ev.n_fail
     considered = len(scored) + n_fail
     if not scored:
         if considered == 0:
-            raise BudgetError(f"no candidate finished within the time limit of "
-                              f"{opts.time_limit_s:g} s; raise limits.time_limit_s or send fewer rows")
+            raise BudgetError(
+                f"no candidate finished within the time limit of "
+                f"{opts.time_limit_s:g} s; raise limits.time_limit_s or send fewer rows"
+            )
         reasons = sorted({f["reason"] for f in failures})
         raise ModelFailure("no candidate could be fitted: " + "; ".join(reasons[:3]))
     if n_fail:
-        warnings.append(f"{n_fail} candidate(s) could not be scored (see search.failures); "
-                        "they are left out of the ranking.")
+        warnings.append(
+            f"{n_fail} candidate(s) could not be scored (see search.failures); "
+            "they are left out of the ranking."
+        )
 
     ranked, _ = rank(scored, plan.folds)
     cache: dict = {}
@@ -212,8 +236,10 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
         try:
             entry = dict(full(s, parts))
         except CandidateFailure as exc:
-            warnings.append(f"A specification that scored in cross-validation could not be "
-                            f"fitted on all rows and is left out: {exc.reason}")
+            warnings.append(
+                f"A specification that scored in cross-validation could not be "
+                f"fitted on all rows and is left out: {exc.reason}"
+            )
             continue
         i = len(entries)
         entry["score"] = {"value": entry["score"]["value"], "parts": parts}
@@ -221,12 +247,15 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
             entry_hook(entry, {"spec": s.spec, "prep": prep, "opts": opts})
         entries.append({"rank": i + 1, **entry})
     if not entries:
-        raise ModelFailure("no scored specification could be fitted on all rows; "
-                           "see the warnings of a smaller search")
+        raise ModelFailure(
+            "no scored specification could be fitted on all rows; "
+            "see the warnings of a smaller search"
+        )
     incumbent_block = None
     if opts.incumbent is not None:
-        incumbent_block = _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries,
-                                     entry_hook)
+        incumbent_block = _incumbent(
+            opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook
+        )
     elapsed = time.perf_counter() - t0
     search = {
         "candidates_considered": int(total),
@@ -237,9 +266,14 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
         "elapsed_s": round(elapsed, 4),
         "strategy": _strategy_block(strategy, total, budget),
         "response_transforms": [t.to_dict() for t in resp],
-        "predictor_transforms": {c: [t.to_dict() for t in p] for c, p in zip(prep.predictors, preds)},
-        "best_cv": {"value": best.cv.value, "std_error": best.cv.std_error,
-                    "specification": best.spec.to_dict()},
+        "predictor_transforms": {
+            c: [t.to_dict() for t in p] for c, p in zip(prep.predictors, preds, strict=True)
+        },
+        "best_cv": {
+            "value": best.cv.value,
+            "std_error": best.cv.std_error,
+            "specification": best.spec.to_dict(),
+        },
         "failures": failures,
         "exact_refits": int(sum(s.cv.exact_refits for s in scored)),
     }
@@ -252,12 +286,15 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
             f"The candidate space holds {total} specifications, too many to score each; a "
             f"screened search scored {len(scored) + n_fail} of them on the original scale "
             f"(after screening {counts['screened']} on the model scale, see search.strategy). "
-            "A specification it did not score may predict better; review the ranking.")
+            "A specification it did not score may predict better; review the ranking."
+        )
         if budget.spent:
             warnings.append(f"The screened search stopped at limits.{budget.spent}.")
     elif not search["complete"]:
-        warnings.append(f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
-                        "scored within the limits); the ranking is the best found so far.")
+        warnings.append(
+            f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
+            "scored within the limits); the ranking is the best found so far."
+        )
     body = {"data": prep.data_summary(), "search": search, "ranking": entries}
     if incumbent_block is not None:
         body["incumbent"] = incumbent_block
@@ -266,8 +303,9 @@ def run_selection(prep: Prepared, opts: SearchOptions, service_version: str,
 
 
 def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook) -> dict:
-    spec, why = incumbent.incumbent_spec(opts.incumbent, prep, prep.predictors,
-                                         set(prep.table_columns))
+    spec, why = incumbent.incumbent_spec(
+        opts.incumbent, prep, prep.predictors, set(prep.table_columns)
+    )
     inc_cv = None
     conditions = None
     if spec is not None:
@@ -282,15 +320,24 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
                 position = i + 1
                 break
         if position is None:
-            again, _ = rank(scored + [Scored(spec, inc_cv)], plan.folds)
+            again, _ = rank([*scored, Scored(spec, inc_cv)], plan.folds)
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
         try:
             conditions = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "")["conditions"]
         except CandidateFailure:
             conditions = None
     winner = ranked[0][0]
-    return incumbent.decide(spec, inc_cv, why, position, entries[0], winner.cv.fold_values, plan,
-                            conditions, opts.incumbent)
+    return incumbent.decide(
+        spec,
+        inc_cv,
+        why,
+        position,
+        entries[0],
+        winner.cv.fold_values,
+        plan,
+        conditions,
+        opts.incumbent,
+    )
 
 
 def rank(scored: list[Scored], folds: int | None = None) -> tuple[list[tuple[Scored, dict]], float]:
@@ -333,11 +380,14 @@ def rank(scored: list[Scored], folds: int | None = None) -> tuple[list[tuple[Sco
             "one_se_threshold": best.cv.value + se,
             "within_one_se": within,
             "simplicity": list(s.spec.simplicity()),
-            "rule": ("within one paired standard error of the lowest CV error; ranked among "
-                     "those by simplicity (estimated parameters, transform readability, "
-                     "transformed columns)" if within else
-                     "more than one paired standard error above the lowest CV error; "
-                     "ranked by CV error"),
+            "rule": (
+                "within one paired standard error of the lowest CV error; ranked among "
+                "those by simplicity (estimated parameters, transform readability, "
+                "transformed columns)"
+                if within
+                else "more than one paired standard error above the lowest CV error; "
+                "ranked by CV error"
+            ),
         }
         out.append((s, parts))
     return out, best.cv.value
@@ -357,13 +407,19 @@ def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str])
             lead.append((len(CONDITION_NAMES) + 1, i, s, parts))
             continue
         bad = failed(entry.get("conditions"))
-        parts = {**parts, "conditions_failed": bad,
-                 "condition_rule": "within the one-standard-error band, fewer failed "
-                                   "conditions rank first; CV error decides outside it"}
+        parts = {
+            **parts,
+            "conditions_failed": bad,
+            "condition_rule": "within the one-standard-error band, fewer failed "
+            "conditions rank first; CV error decides outside it",
+        }
         lead.append((len(bad), i, s, parts))
     lead.sort(key=lambda t: (t[0], t[1]))
-    rest = [(s, {**p, "conditions_failed": None} if "conditions_failed" not in p else p)
-            for j, (s, p) in enumerate(ranked) if j not in set(band[:m])]
+    rest = [
+        (s, {**p, "conditions_failed": None} if "conditions_failed" not in p else p)
+        for j, (s, p) in enumerate(ranked)
+        if j not in set(band[:m])
+    ]
     out = [(s, p) for _, _, s, p in lead] + rest
     lowest = min(ranked, key=lambda t: t[0].cv.value)[0]
     if out and out[0][0] is not lowest:
@@ -376,7 +432,8 @@ def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str])
                 + f", {lowest.cv.metric} {lowest.cv.value:.4g}) fails "
                 + ", ".join(c.replace("_", " ") for c in low_parts["conditions_failed"])
                 + "; it ranks below specifications within one standard error that pass more "
-                  "conditions.")
+                "conditions."
+            )
     return out
 
 
@@ -403,10 +460,18 @@ def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int) -> bool
 
 def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings: list):
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
-    base = Specification(prep.response, tr.Transform("identity"),
-                         tuple(PredictorSpec(c, tr.Transform("categorical") if c in prep.categorical
-                                             else tr.Transform("identity")) for c in prep.predictors),
-                         opts.intercept)
+    base = Specification(
+        prep.response,
+        tr.Transform("identity"),
+        tuple(
+            PredictorSpec(
+                c,
+                tr.Transform("categorical") if c in prep.categorical else tr.Transform("identity"),
+            )
+            for c in prep.predictors
+        ),
+        opts.intercept,
+    )
     info = None
     lams: dict = {}
     families = [t for t in resp if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted]
@@ -430,9 +495,11 @@ def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings:
             if rung not in resp and rung.domain_problem(prep.y, prep.response, "response") is None:
                 resp.append(rung)
         if est.ci_low is None or est.ci_high is None or (est.ci_high - est.ci_low) > 2.0:
-            warnings.append("The data do not pin down a Box-Cox lambda for the response "
-                            f"(estimate {est.lam:.3g}, 95% interval "
-                            f"{_fmt_ci(est.ci_low, est.ci_high)}); prefer a simple scale.")
+            warnings.append(
+                "The data do not pin down a Box-Cox lambda for the response "
+                f"(estimate {est.lam:.3g}, 95% interval "
+                f"{_fmt_ci(est.ci_low, est.ci_high)}); prefer a simple scale."
+            )
     return info, lams
 
 
@@ -452,13 +519,19 @@ def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
     if strategy == "exhaustive":
         text = "every candidate scored, simplest first, until a limit"
     else:
-        text = ("screen predictor scales per response scale by coordinate descent on the "
-                "model-scale cross-validated error (from Gram matrices), score the baselines "
-                "(all untransformed, all logged, every response scale) and the best screened "
-                "combinations on the original scale, then coordinate descent on the "
-                "original-scale error")
-    return {"name": strategy, "exhaustive_limit": EXHAUSTIVE_LIMIT, "description": text,
-            "stopped_by": budget.spent}
+        text = (
+            "screen predictor scales per response scale by coordinate descent on the "
+            "model-scale cross-validated error (from Gram matrices), score the baselines "
+            "(all untransformed, all logged, every response scale) and the best screened "
+            "combinations on the original scale, then coordinate descent on the "
+            "original-scale error"
+        )
+    return {
+        "name": strategy,
+        "exhaustive_limit": EXHAUSTIVE_LIMIT,
+        "description": text,
+        "stopped_by": budget.spent,
+    }
 
 
 def _powers_block(info: dict) -> dict:
@@ -477,16 +550,23 @@ def _fmt_ci(lo, hi) -> str:
 def _check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
     n = prep.n
     if opts.folds > n:
-        raise InputError.at("/validation/folds", f"folds = {opts.folds} exceeds the {n} usable rows")
+        raise InputError.at(
+            "/validation/folds", f"folds = {opts.folds} exceeds the {n} usable rows"
+        )
     n_train = n - math.ceil(n / opts.folds)
     if n_train < p + 2:
         need = math.ceil((p + 2) * opts.folds / (opts.folds - 1))
-        raise InputError.at("/data", f"{n} usable rows are too few for {opts.folds}-fold "
-                            f"cross-validation of a model with {p} coefficients; it needs at "
-                            f"least {need} rows (or fewer folds/predictors)")
+        raise InputError.at(
+            "/data",
+            f"{n} usable rows are too few for {opts.folds}-fold "
+            f"cross-validation of a model with {p} coefficients; it needs at "
+            f"least {need} rows (or fewer folds/predictors)",
+        )
     if opts.metric == "mape" and np.any(prep.y == 0):
-        raise InputError.at("/validation/metric", f"mape divides by the response and "
-                            f"'{prep.response}' has zeros; use rmse or mae")
+        raise InputError.at(
+            "/validation/metric",
+            f"mape divides by the response and '{prep.response}' has zeros; use rmse or mae",
+        )
 
 
 def _check_levels(prep: Prepared, plan: CVPlan) -> None:
@@ -501,13 +581,23 @@ def _check_levels(prep: Prepared, plan: CVPlan) -> None:
                 if missing:
                     lv = sorted(missing)[0]
                     cnt = int(np.sum(vals == lv))
-                    raise InputError.at(pointer("predictors", j), (
-                        f"level '{lv}' of '{col}' has {cnt} row(s), so some cross-validation "
-                        "training fold never sees it; merge rare levels or use fewer folds"))
+                    raise InputError.at(
+                        pointer("predictors", j),
+                        (
+                            f"level '{lv}' of '{col}' has {cnt} row(s), so some cross-validation "
+                            "training fold never sees it; merge rare levels or use fewer folds"
+                        ),
+                    )
 
 
-def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry_hook=None,
-                finish=None, mapper=map) -> dict:
+def run_grouped(
+    prep: Prepared,
+    opts: SearchOptions,
+    service_version: str,
+    entry_hook=None,
+    finish=None,
+    mapper=map,
+) -> dict:
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
@@ -516,7 +606,6 @@ def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry
     """
     from .data import split_groups
     from .errors import BestscaleError
-
     from .workers import select_group
 
     t0 = time.perf_counter()
@@ -524,27 +613,46 @@ def run_grouped(prep: Prepared, opts: SearchOptions, service_version: str, entry
     deadline = time.time() + opts.time_limit_s
     parts = split_groups(prep)
     names = list(parts)
-    tasks = [({"problem": _problem_of(sub)} if isinstance(sub, BestscaleError) else sub,
-              opts, service_version, entry_hook, None, deadline) for sub in parts.values()]
-    bodies = [b if ("problem" in b or finish is None) else finish(b)
-              for b in mapper(select_group, tasks)]
+    tasks = [
+        (
+            {"problem": _problem_of(sub)} if isinstance(sub, BestscaleError) else sub,
+            opts,
+            service_version,
+            entry_hook,
+            None,
+            deadline,
+        )
+        for sub in parts.values()
+    ]
+    bodies = [
+        b if ("problem" in b or finish is None) else finish(b) for b in mapper(select_group, tasks)
+    ]
     failed = sum(1 for b in bodies if "problem" in b)
     return {
         "data": prep.data_summary(),
-        "search": {"groups": len(names), "groups_failed": failed,
-                   "elapsed_s": round(time.perf_counter() - t0, 4), "complete": all(
-                       "problem" not in b or b["problem"]["status"] != 503 for b in bodies) and all(
-                       b.get("search", {}).get("complete", True) for b in bodies)},
+        "search": {
+            "groups": len(names),
+            "groups_failed": failed,
+            "elapsed_s": round(time.perf_counter() - t0, 4),
+            "complete": all("problem" not in b or b["problem"]["status"] != 503 for b in bodies)
+            and all(b.get("search", {}).get("complete", True) for b in bodies),
+        },
         "ranking": [],
-        "groups": dict(zip(names, bodies)),
-        "warnings": [f"One selection per value of the group column ({len(names)} groups); each "
-                     "group's ranking is under 'groups'."] +
-                    ([f"{failed} group(s) could not be modelled; see their 'problem'."] if failed else []),
+        "groups": dict(zip(names, bodies, strict=True)),
+        "warnings": [
+            f"One selection per value of the group column ({len(names)} groups); each "
+            "group's ranking is under 'groups'."
+        ]
+        + ([f"{failed} group(s) could not be modelled; see their 'problem'."] if failed else []),
     }
 
 
 def _problem_of(exc) -> dict:
     status = 503 if isinstance(exc, BudgetError) else 422
-    return {"type": f"urn:bestscale:problem:{exc.kind}", "title": exc.title, "status": status,
-            "detail": exc.detail,
-            "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems]}
+    return {
+        "type": f"urn:bestscale:problem:{exc.kind}",
+        "title": exc.title,
+        "status": status,
+        "detail": exc.detail,
+        "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems],
+    }

@@ -27,24 +27,31 @@ class Specification:
     def to_dict(self) -> dict:
         return {
             "response": {"column": self.response, "transform": self.response_transform.to_dict()},
-            "predictors": [{"column": p.column, "transform": p.transform.to_dict()}
-                           for p in self.predictors],
+            "predictors": [
+                {"column": p.column, "transform": p.transform.to_dict()} for p in self.predictors
+            ],
             "intercept": self.intercept,
         }
 
     @classmethod
-    def from_dict(cls, d: dict) -> "Specification":
+    def from_dict(cls, d: dict) -> Specification:
         return cls(
             d["response"]["column"],
             tr.from_dict(d["response"].get("transform") or {"name": "identity"}),
-            tuple(PredictorSpec(p["column"], tr.from_dict(p.get("transform") or {"name": "identity"}))
-                  for p in d["predictors"]),
+            tuple(
+                PredictorSpec(p["column"], tr.from_dict(p.get("transform") or {"name": "identity"}))
+                for p in d["predictors"]
+            ),
             bool(d.get("intercept", True)),
         )
 
     @property
     def key(self) -> tuple:
-        return (self.response_transform, tuple(p.transform for p in self.predictors), self.intercept)
+        return (
+            self.response_transform,
+            tuple(p.transform for p in self.predictors),
+            self.intercept,
+        )
 
     def simplicity(self) -> tuple[int, int, int]:
         """Sort key, smaller = simpler (design choice documented in DEVELOPERS.md).
@@ -57,11 +64,13 @@ class Specification:
         parameter estimated from the response.
         """
         ts = [self.response_transform] + [p.transform for p in self.predictors]
-        n_est = sum(1 for t in ts if t.name in ("box_cox", "yeo_johnson") and
-                    (t.lam is None or t.estimated))
+        n_est = sum(
+            1 for t in ts if t.name in ("box_cox", "yeo_johnson") and (t.lam is None or t.estimated)
+        )
         n_est += sum(1 for p in self.predictors if _estimated_power(p.transform))
-        cost = sum(3 if _estimated_power(t) else t.simplicity
-                   for t in ts if t.name != "categorical")
+        cost = sum(
+            3 if _estimated_power(t) else t.simplicity for t in ts if t.name != "categorical"
+        )
         n_tr = sum(1 for t in ts if t.name not in ("identity", "categorical"))
         return (n_est, cost, n_tr)
 
@@ -91,19 +100,27 @@ class Design:
     levels: dict[str, dict] = field(default_factory=dict)  # column -> {levels, reference}
 
 
-def categorical_levels(values: np.ndarray, reference: str | None, column: str,
-                       where: str) -> tuple[list[str], str]:
+def categorical_levels(
+    values: np.ndarray, reference: str | None, column: str, where: str
+) -> tuple[list[str], str]:
     levels = sorted(set(values.tolist()))
     if reference is None:
         reference = levels[0]
     elif reference not in levels:
-        raise InputError.at(where, f"reference level '{reference}' of '{column}' does not occur "
-                            f"in the data (levels: {levels[:20]})")
+        raise InputError.at(
+            where,
+            f"reference level '{reference}' of '{column}' does not occur "
+            f"in the data (levels: {levels[:20]})",
+        )
     return levels, reference
 
 
-def build_design(spec: Specification, prep: Prepared, cache: dict | None = None,
-                 ptr_prefix: str = "/specification") -> Design:
+def build_design(
+    spec: Specification,
+    prep: Prepared,
+    cache: dict | None = None,
+    ptr_prefix: str = "/specification",
+) -> Design:
     """Design matrix (n, p) for ``spec`` on the prepared rows.
 
     Numeric predictors enter through their transform (domain checked: a
@@ -124,9 +141,16 @@ def build_design(spec: Specification, prep: Prepared, cache: dict | None = None,
         if p.column in prep.categorical:
             vals = prep.categorical[p.column]
             ref = t.reference if t.name == "categorical" else None
-            lv, ref = categorical_levels(vals, ref, p.column,
-                                         pointer(*ptr_prefix.strip("/").split("/"), "predictors", j,
-                                                 "transform", "reference") if ptr_prefix else "")
+            lv, ref = categorical_levels(
+                vals,
+                ref,
+                p.column,
+                pointer(
+                    *ptr_prefix.strip("/").split("/"), "predictors", j, "transform", "reference"
+                )
+                if ptr_prefix
+                else "",
+            )
             start = len(cols)
             for level in lv:
                 if level == ref:
@@ -134,8 +158,9 @@ def build_design(spec: Specification, prep: Prepared, cache: dict | None = None,
                 cols.append((vals == level).astype(float))
                 names.append(f"{p.column}[{level}]")
             levels[p.column] = {"levels": lv, "reference": ref}
-            terms.append(TermInfo(p.column, "categorical", tuple(range(start, len(cols))), None,
-                                  p.column))
+            terms.append(
+                TermInfo(p.column, "categorical", tuple(range(start, len(cols))), None, p.column)
+            )
             continue
         x = prep.numeric[p.column]
         key = (p.column, t)

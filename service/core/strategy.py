@@ -75,8 +75,13 @@ class ZScreen:
             z = z - float(np.mean(z))  # same errors, less cancellation in z'z - 2b'c + b'Gb
         self.cf, self.ctot = self.bank.cross(("screen", t), z) if self.finite else (None, None)
         idx = self.bank.index
-        self.zz = (np.array([[float(z[rows] @ z[rows]) for rows in idx.test[r]]
-                             for r in range(idx.repeats)]) if self.finite else None)
+        self.zz = (
+            np.array(
+                [[float(z[rows] @ z[rows]) for rows in idx.test[r]] for r in range(idx.repeats)]
+            )
+            if self.finite
+            else None
+        )
         self.count = 0
 
     def sse(self, cols: list[int]) -> float:
@@ -100,7 +105,7 @@ class ZScreen:
 
 def _screen_columns(space: Space, prep, options, choice, t_key) -> list[int] | None:
     cols = list(space.index[("", "intercept")]) if space.intercept else []
-    for col, opts, o in zip(prep.predictors, options, choice):
+    for col, opts, o in zip(prep.predictors, options, choice, strict=True):
         t = opts[o]
         key = ("bt", t_key, col) if bt.is_open(t) else (col, t)
         if key not in space.index:
@@ -148,8 +153,9 @@ def _start(options, name: str) -> list[int]:
     return out
 
 
-def screened_search(prep, resp, options, space: Space, evaluate, budget: Budget, screen_scales,
-                    intercept: bool) -> dict:
+def screened_search(
+    prep, resp, options, space: Space, evaluate, budget: Budget, screen_scales, intercept: bool
+) -> dict:
     """Run both stages; ``evaluate(spec)`` scores exactly (returns Scored or None on failure).
 
     ``screen_scales`` maps each response transform to the fixed transform used
@@ -159,8 +165,9 @@ def screened_search(prep, resp, options, space: Space, evaluate, budget: Budget,
     queue: list = []
     for t in resp:
         base = [_start(options, "identity"), _start(options, "log")]
-        queue += [make_spec(prep, t, [options[j][o] for j, o in enumerate(c)], intercept)
-                  for c in base]
+        queue += [
+            make_spec(prep, t, [options[j][o] for j, o in enumerate(c)], intercept) for c in base
+        ]
     for t in resp:
         if not budget.ok():
             break
@@ -169,11 +176,14 @@ def screened_search(prep, resp, options, space: Space, evaluate, budget: Budget,
             continue
         screen = ZScreen(space, ts, prep.y, intercept)
         t_key = ts
-        opts_t = options if not (t.name in ("box_cox", "yeo_johnson") and not t.is_fitted) else \
-            [[u for u in o if not bt.is_open(u)] for o in options]
+        opts_t = (
+            options
+            if not (t.name in ("box_cox", "yeo_johnson") and not t.is_fitted)
+            else [[u for u in o if not bt.is_open(u)] for o in options]
+        )
 
         def score(choice, opts_t=opts_t, screen=screen, t_key=t_key):
-            n_open = sum(1 for o, c in zip(opts_t, choice) if bt.is_open(o[c]))
+            n_open = sum(1 for o, c in zip(opts_t, choice, strict=True) if bt.is_open(o[c]))
             if n_open > MAX_ESTIMATED_POWERS:
                 return np.inf
             cols = _screen_columns(space, prep, opts_t, choice, t_key)
@@ -182,8 +192,9 @@ def screened_search(prep, resp, options, space: Space, evaluate, budget: Budget,
         memo = _descend(score, opts_t, [_start(opts_t, "identity"), _start(opts_t, "log")])
         screened += screen.count
         best = sorted((v, c) for c, v in memo.items() if np.isfinite(v))[:BEAM]
-        queue += [make_spec(prep, t, [opts_t[j][o] for j, o in enumerate(c)], intercept)
-                  for _, c in best]
+        queue += [
+            make_spec(prep, t, [opts_t[j][o] for j, o in enumerate(c)], intercept) for _, c in best
+        ]
     scored: dict = {}
 
     def run(spec):
@@ -206,7 +217,7 @@ def screened_search(prep, resp, options, space: Space, evaluate, budget: Budget,
         improved = False
         for j, opts in enumerate(options):
             for t in opts:
-                preds = list(p.transform for p in open_spec.predictors)
+                preds = [p.transform for p in open_spec.predictors]
                 if preds[j] == t:
                     continue
                 preds[j] = t
@@ -227,7 +238,7 @@ def screened_search(prep, resp, options, space: Space, evaluate, budget: Budget,
 def _best(scored: dict):
     """(open specification, Scored) with the lowest CV error, or None."""
     best = None
-    for spec_key, s in scored.items():
+    for s in scored.values():
         if s is None:
             continue
         if best is None or s.cv.value < best[1].cv.value:

@@ -129,30 +129,39 @@ class Transform:
         if n == "log":
             if self.shift is None:  # shift chosen from data when there are zeros
                 if lo < 0:
-                    return (f"{role} '{column}' has negative values (minimum {lo:.6g}); log needs "
-                            "values >= 0 (zeros get a shift); use yeo_johnson or give log an "
-                            "explicit 'shift'")
+                    return (
+                        f"{role} '{column}' has negative values (minimum {lo:.6g}); log needs "
+                        "values >= 0 (zeros get a shift); use yeo_johnson or give log an "
+                        "explicit 'shift'"
+                    )
                 return None
             if lo + self.shift <= 0:
-                return (f"{role} '{column}' plus shift {self.shift:.6g} is not positive "
-                        f"everywhere (minimum {lo:.6g}); log needs values > 0; use a larger "
-                        "shift or yeo_johnson")
+                return (
+                    f"{role} '{column}' plus shift {self.shift:.6g} is not positive "
+                    f"everywhere (minimum {lo:.6g}); log needs values > 0; use a larger "
+                    "shift or yeo_johnson"
+                )
             return None
         if n in ("sqrt", "square"):
             if lo < 0:
-                return (f"{role} '{column}' has negative values (minimum {lo:.6g}); {n} needs "
-                        "values >= 0; use yeo_johnson")
+                return (
+                    f"{role} '{column}' has negative values (minimum {lo:.6g}); {n} needs "
+                    "values >= 0; use yeo_johnson"
+                )
             return None
-        if n == "power":
-            if self.exponent is not None and self.exponent > 0:
-                if lo < 0:
-                    return (f"{role} '{column}' has negative values (minimum {lo:.6g}); power "
-                            "needs values >= 0; use yeo_johnson")
-                return None
+        if n == "power" and self.exponent is not None and self.exponent > 0:
+            if lo < 0:
+                return (
+                    f"{role} '{column}' has negative values (minimum {lo:.6g}); power "
+                    "needs values >= 0; use yeo_johnson"
+                )
+            return None
         if n in ("reciprocal", "power", "box_cox"):
             if lo <= 0:
-                return (f"{role} '{column}' has values <= 0 (minimum {lo:.6g}); {n} needs "
-                        "values > 0; use a shifted log or yeo_johnson")
+                return (
+                    f"{role} '{column}' has values <= 0 (minimum {lo:.6g}); {n} needs "
+                    "values > 0; use a shifted log or yeo_johnson"
+                )
             return None
         return None
 
@@ -273,16 +282,18 @@ class Transform:
                 else:
                     u = lam * zp
                     ok = u > -1.0
-                    out[pos] = np.where(ok, np.exp((1.0 / lam - 1.0) * np.log1p(np.where(ok, u, 0.0))),
-                                        np.nan)
+                    out[pos] = np.where(
+                        ok, np.exp((1.0 / lam - 1.0) * np.log1p(np.where(ok, u, 0.0))), np.nan
+                    )
                 if abs(lam - 2.0) < 1e-12:
                     out[~pos] = np.exp(-zn)
                 else:
                     c = 2.0 - lam
                     v = -c * zn
                     ok = v > -1.0
-                    out[~pos] = np.where(ok, np.exp((1.0 / c - 1.0) * np.log1p(np.where(ok, v, 0.0))),
-                                         np.nan)
+                    out[~pos] = np.where(
+                        ok, np.exp((1.0 / c - 1.0) * np.log1p(np.where(ok, v, 0.0))), np.nan
+                    )
             else:
                 raise ValueError(n)
         return np.where(np.isfinite(out), out, np.nan)
@@ -388,9 +399,17 @@ def _inv_yeo_johnson(z: np.ndarray, lam: float) -> np.ndarray:
 
 
 # ------------------------------------------------------------- constructors
-NUMERIC_NAMES = ("identity", "log", "sqrt", "reciprocal", "square", "power", "box_cox",
-                 "yeo_johnson")
-ALL_NAMES = NUMERIC_NAMES + ("categorical",)
+NUMERIC_NAMES = (
+    "identity",
+    "log",
+    "sqrt",
+    "reciprocal",
+    "square",
+    "power",
+    "box_cox",
+    "yeo_johnson",
+)
+ALL_NAMES = (*NUMERIC_NAMES, "categorical")
 
 
 def from_dict(d: dict) -> Transform:
@@ -400,12 +419,16 @@ def from_dict(d: dict) -> Transform:
         return Transform("power", exponent=float(d["exponent"]))
     if name in ("box_cox", "yeo_johnson"):
         lam = d.get("lambda")
-        return Transform(name, lam=None if lam is None else float(lam),
-                         estimated=bool(d.get("estimated", False)))
+        return Transform(
+            name, lam=None if lam is None else float(lam), estimated=bool(d.get("estimated", False))
+        )
     if name == "log":
         shift = d.get("shift")
-        return Transform("log", shift=None if shift is None else float(shift),
-                         estimated=bool(d.get("estimated", False)))
+        return Transform(
+            "log",
+            shift=None if shift is None else float(shift),
+            estimated=bool(d.get("estimated", False)),
+        )
     if name == "categorical":
         return Transform("categorical", reference=d.get("reference"))
     return Transform(name)
@@ -423,8 +446,13 @@ def needs_shift(x: np.ndarray) -> bool:
     return bool(np.min(x) <= 0)
 
 
-def fit_transform(t: Transform, y: np.ndarray, X: np.ndarray | None = None,
-                  shift_needed: bool | None = None, near: float | None = None) -> Transform:
+def fit_transform(
+    t: Transform,
+    y: np.ndarray,
+    X: np.ndarray | None = None,
+    shift_needed: bool | None = None,
+    near: float | None = None,
+) -> Transform:
     """Return a concrete transform, estimating what ``t`` leaves open from ``y`` (and design ``X``).
 
     ``shift_needed`` says whether a log needs a shift (decided on the whole
@@ -461,41 +489,95 @@ def ladder_transform(power: float) -> Transform:
 
 
 CATALOGUE = [
-    {"name": "identity", "parameters": [], "domain": "any real value",
-     "applies_to": ["response", "predictor"],
-     "reading": "a slope is the change in the response (or in the model scale) per unit of x"},
-    {"name": "log", "parameters": [{"name": "shift", "required": False,
-                                    "meaning": "added before the log; chosen as half the smallest "
-                                               "positive value when the column has zeros"}],
-     "domain": "x + shift > 0 (zeros get a data-chosen shift; negatives need an explicit shift)",
-     "applies_to": ["response", "predictor"],
-     "reading": "log response: one unit of x multiplies the median response by exp(b), i.e. "
-                "100(exp(b)-1)% ; log predictor: a 1% increase in x changes the model scale by "
-                "b·ln(1.01); log-log: b is an elasticity"},
-    {"name": "sqrt", "parameters": [], "domain": "x >= 0", "applies_to": ["response", "predictor"],
-     "reading": "no constant-rate reading; effects are reported as back-transformed predictions "
-                "at two values of x"},
-    {"name": "reciprocal", "parameters": [], "domain": "x > 0", "applies_to": ["response", "predictor"],
-     "reading": "1/x reverses order: a positive slope on 1/y means y falls as x rises"},
-    {"name": "square", "parameters": [], "domain": "x >= 0", "applies_to": ["response", "predictor"],
-     "reading": "no constant-rate reading; effects are reported at two values of x"},
-    {"name": "power", "parameters": [{"name": "exponent", "required": True,
-                                      "meaning": "non-zero exponent q in x^q"}],
-     "domain": "x >= 0 for q > 0, x > 0 for q < 0", "applies_to": ["response", "predictor"],
-     "reading": "no constant-rate reading; q < 0 reverses order"},
-    {"name": "box_cox", "parameters": [{"name": "lambda", "required": False,
-                                        "meaning": "omit on the response to estimate it by the "
-                                                   "profile likelihood of the whole model"}],
-     "domain": "x > 0", "applies_to": ["response", "predictor (with a fixed lambda)"],
-     "reading": "(x^λ - 1)/λ, log at λ = 0; no constant-rate reading"},
-    {"name": "yeo_johnson", "parameters": [{"name": "lambda", "required": False,
-                                            "meaning": "omit on the response to estimate it"}],
-     "domain": "any real value (not scale invariant)",
-     "applies_to": ["response", "predictor (with a fixed lambda)"],
-     "reading": "Box-Cox-like power of x + 1 (and of 1 - x for negatives); no constant-rate reading"},
-    {"name": "categorical", "parameters": [{"name": "reference", "required": False,
-                                            "meaning": "baseline level (default: first in sorted order)"}],
-     "domain": "any values, read as levels", "applies_to": ["predictor"],
-     "reading": "treatment dummies: each level's coefficient is its difference from the reference "
-                "level on the model scale (a percent difference under a log response)"},
+    {
+        "name": "identity",
+        "parameters": [],
+        "domain": "any real value",
+        "applies_to": ["response", "predictor"],
+        "reading": "a slope is the change in the response (or in the model scale) per unit of x",
+    },
+    {
+        "name": "log",
+        "parameters": [
+            {
+                "name": "shift",
+                "required": False,
+                "meaning": "added before the log; chosen as half the smallest "
+                "positive value when the column has zeros",
+            }
+        ],
+        "domain": "x + shift > 0 (zeros get a data-chosen shift; negatives need an explicit shift)",
+        "applies_to": ["response", "predictor"],
+        "reading": "log response: one unit of x multiplies the median response by exp(b), i.e. "
+        "100(exp(b)-1)% ; log predictor: a 1% increase in x changes the model scale by "
+        "b·ln(1.01); log-log: b is an elasticity",
+    },
+    {
+        "name": "sqrt",
+        "parameters": [],
+        "domain": "x >= 0",
+        "applies_to": ["response", "predictor"],
+        "reading": "no constant-rate reading; effects are reported as back-transformed predictions "
+        "at two values of x",
+    },
+    {
+        "name": "reciprocal",
+        "parameters": [],
+        "domain": "x > 0",
+        "applies_to": ["response", "predictor"],
+        "reading": "1/x reverses order: a positive slope on 1/y means y falls as x rises",
+    },
+    {
+        "name": "square",
+        "parameters": [],
+        "domain": "x >= 0",
+        "applies_to": ["response", "predictor"],
+        "reading": "no constant-rate reading; effects are reported at two values of x",
+    },
+    {
+        "name": "power",
+        "parameters": [
+            {"name": "exponent", "required": True, "meaning": "non-zero exponent q in x^q"}
+        ],
+        "domain": "x >= 0 for q > 0, x > 0 for q < 0",
+        "applies_to": ["response", "predictor"],
+        "reading": "no constant-rate reading; q < 0 reverses order",
+    },
+    {
+        "name": "box_cox",
+        "parameters": [
+            {
+                "name": "lambda",
+                "required": False,
+                "meaning": "omit on the response to estimate it by the "
+                "profile likelihood of the whole model",
+            }
+        ],
+        "domain": "x > 0",
+        "applies_to": ["response", "predictor (with a fixed lambda)"],
+        "reading": "(x^λ - 1)/λ, log at λ = 0; no constant-rate reading",
+    },
+    {
+        "name": "yeo_johnson",
+        "parameters": [
+            {"name": "lambda", "required": False, "meaning": "omit on the response to estimate it"}
+        ],
+        "domain": "any real value (not scale invariant)",
+        "applies_to": ["response", "predictor (with a fixed lambda)"],
+        "reading": "Box-Cox-like power of x + 1 (and of 1 - x for negatives); no constant-rate reading",
+    },
+    {
+        "name": "categorical",
+        "parameters": [
+            {
+                "name": "reference",
+                "required": False,
+                "meaning": "baseline level (default: first in sorted order)",
+            }
+        ],
+        "domain": "any values, read as levels",
+        "applies_to": ["predictor"],
+        "reading": "treatment dummies: each level's coefficient is its difference from the reference "
+        "level on the model scale (a percent difference under a log response)",
+    },
 ]

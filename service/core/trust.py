@@ -101,22 +101,30 @@ def scale_key(spec: dict) -> str:
     candidate it came from.
     """
     resp = _open(dict(spec["response"].get("transform") or {"name": "identity"}), "response")
-    preds = [[p["column"], _open(dict(p.get("transform") or {"name": "identity"}), "predictor")]
-             for p in spec["predictors"]]
-    return json.dumps([spec["response"]["column"], resp, preds, bool(spec.get("intercept", True))],
-                      sort_keys=True)
+    preds = [
+        [p["column"], _open(dict(p.get("transform") or {"name": "identity"}), "predictor")]
+        for p in spec["predictors"]
+    ]
+    return json.dumps(
+        [spec["response"]["column"], resp, preds, bool(spec.get("intercept", True))], sort_keys=True
+    )
 
 
 def has_estimated_power(spec: Specification) -> bool:
     """True when a predictor's power was estimated from the response (Box-Tidwell)."""
-    return any(_open(p["transform"], "predictor") == {"name": "power", "estimated": True}
-               for p in spec.to_dict()["predictors"])
+    return any(
+        _open(p["transform"], "predictor") == {"name": "power", "estimated": True}
+        for p in spec.to_dict()["predictors"]
+    )
 
 
 def label(spec: Specification) -> str:
     """``log(cost) on log(length), age, soil``."""
-    return (spec.response_label() + " on " +
-            ", ".join(p.transform.label(p.column) for p in spec.predictors))
+    return (
+        spec.response_label()
+        + " on "
+        + ", ".join(p.transform.label(p.column) for p in spec.predictors)
+    )
 
 
 def wilson_interval(wins: int, n: int, z: float = _WILSON_Z) -> list[float] | None:
@@ -141,12 +149,21 @@ def subset(prep: Prepared, rows: np.ndarray) -> Prepared:
         pos[rows] = np.arange(rows.size)
         ordered = prep.order[keep[prep.order]]
         order = pos[ordered]
-    return Prepared(prep.response, prep.y[rows], list(prep.predictors),
-                    {k: v[rows] for k, v in prep.numeric.items()},
-                    {k: v[rows] for k, v in prep.categorical.items()},
-                    prep.row_ids[rows], order, int(rows.size), [], 0, prep.table_columns,
-                    prep.order_values[rows] if prep.order_values is not None else None,
-                    prep.groups[rows] if prep.groups is not None else None)
+    return Prepared(
+        prep.response,
+        prep.y[rows],
+        list(prep.predictors),
+        {k: v[rows] for k, v in prep.numeric.items()},
+        {k: v[rows] for k, v in prep.categorical.items()},
+        prep.row_ids[rows],
+        order,
+        int(rows.size),
+        [],
+        0,
+        prep.table_columns,
+        prep.order_values[rows] if prep.order_values is not None else None,
+        prep.groups[rows] if prep.groups is not None else None,
+    )
 
 
 def _pooled(metric: str, values: np.ndarray, sizes: np.ndarray) -> float:
@@ -187,8 +204,9 @@ def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
     if distinct.size < 2 * job.folds:
         return f"only {distinct.size} distinct rows were drawn"
     # grouped folds over the distinct rows: every copy of a row is held out together
-    fold_of = make_plan(distinct.size, job.folds, 1, int(rng.integers(0, 2**32)),
-                        job.metric).assignments[0]
+    fold_of = make_plan(
+        distinct.size, job.folds, 1, int(rng.integers(0, 2**32)), job.metric
+    ).assignments[0]
     plan = CVPlan(job.folds, 1, job.seed, job.metric, (fold_of[np.searchsorted(distinct, idx)],))
     yb = job.y[idx]
     shift = tr.needs_shift(yb)
@@ -227,7 +245,7 @@ def _resample_chunk(task) -> list:
 def _chunks(items: list[int], parts: int) -> list[list[int]]:
     parts = max(1, min(parts, len(items)))
     size = math.ceil(len(items) / parts)
-    return [items[i:i + size] for i in range(0, len(items), size)]
+    return [items[i : i + size] for i in range(0, len(items), size)]
 
 
 def _verdicts(prep: Prepared, alpha: float):
@@ -253,8 +271,16 @@ def first_by_rule(band: list, n_failed) -> object:
     return min(band, key=lambda item: (n_failed(item[1]), item[0]))[1]
 
 
-def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner: Scored,
-               resamples: int, deadline: float, mapper, chunks: int) -> dict:
+def _stability(
+    prep: Prepared,
+    opts: SearchOptions,
+    scored: list[Scored],
+    winner: Scored,
+    resamples: int,
+    deadline: float,
+    mapper,
+    chunks: int,
+) -> dict:
     ranked, _ = rank(scored, opts.folds)
     lead = max(3 * opts.top, 15)
     n_failed = _verdicts(prep, opts.alpha)
@@ -264,15 +290,22 @@ def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner
     # A candidate with an estimated predictor power is re-scored with its all-rows power
     # (cross_validate takes a fixed design), which flatters it against its neighbours; it
     # stays out of the resamples unless it is rank 1 itself.
-    contenders = [s for s, p in ranked
-                  if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
-                  and (s is winner or not has_estimated_power(s.spec))]
-    left_out = sum(1 for s, p in ranked
-                   if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
-                   and s is not winner and has_estimated_power(s.spec))
+    contenders = [
+        s
+        for s, p in ranked
+        if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
+        and (s is winner or not has_estimated_power(s.spec))
+    ]
+    left_out = sum(
+        1
+        for s, p in ranked
+        if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
+        and s is not winner
+        and has_estimated_power(s.spec)
+    )
     contenders = contenders[:MAX_CONTENDERS]
     if winner not in contenders:
-        contenders = [winner] + contenders[: MAX_CONTENDERS - 1]
+        contenders = [winner, *contenders[: MAX_CONTENDERS - 1]]
     cache: dict = {}
     designs = []
     specs = [s.spec for s in contenders]
@@ -304,15 +337,24 @@ def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner
     others = [i for i in order if i != w]
     if others:
         ru = others[0]
-        runner = {"specification": specs[ru].to_dict(), "label": label(specs[ru]),
-                  "first_share": counts[ru] / usable,
-                  "basis": "first most often among the resamples where rank 1 was not"}
+        runner = {
+            "specification": specs[ru].to_dict(),
+            "label": label(specs[ru]),
+            "first_share": counts[ru] / usable,
+            "basis": "first most often among the resamples where rank 1 was not",
+        }
     else:
         second = next((s for s, _ in ranked if s is not winner), None)
-        runner = None if second is None else {
-            "specification": second.spec.to_dict(), "label": label(second.spec),
-            "first_share": 0.0,
-            "basis": "never first in a resample; next in the cross-validated ranking on all rows"}
+        runner = (
+            None
+            if second is None
+            else {
+                "specification": second.spec.to_dict(),
+                "label": label(second.spec),
+                "first_share": 0.0,
+                "basis": "never first in a resample; next in the cross-validated ranking on all rows",
+            }
+        )
     share = wins / usable if usable else None
     details = {
         "method": "bootstrap of rows (grouped folds: copies of a row are held out together)",
@@ -324,22 +366,35 @@ def _stability(prep: Prepared, opts: SearchOptions, scored: list[Scored], winner
         "wins": wins,
         "interval": wilson_interval(wins, usable),
         "interval_level": 0.95,
-        "first": [{"label": label(specs[i]), "specification": specs[i].to_dict(),
-                   "share": counts[i] / usable} for i in order],
+        "first": [
+            {
+                "label": label(specs[i]),
+                "specification": specs[i].to_dict(),
+                "share": counts[i] / usable,
+            }
+            for i in order
+        ],
         "contenders": len(contenders),
-        "contender_rule": (f"candidates within {CONTENDER_SE:g} paired standard errors of the "
-                           f"lowest cross-validated error on all rows (at most {MAX_CONTENDERS}); "
-                           "the others are taken never to be first"),
+        "contender_rule": (
+            f"candidates within {CONTENDER_SE:g} paired standard errors of the "
+            f"lowest cross-validated error on all rows (at most {MAX_CONTENDERS}); "
+            "the others are taken never to be first"
+        ),
         "folds": opts.folds,
         "seed": opts.seed,
         "conditions": "assessed once on all rows; resamples vary the cross-validated part",
         "estimated_powers_left_out": left_out,
-        "held_fixed": ("response lambdas and shifts are estimated again in every fold; "
-                       "candidates with an estimated predictor power are left out of the "
-                       "resamples (their power would be held at its all-rows value, which "
-                       "flatters them)" + (", except rank 1, whose power is held at its "
-                                           "all-rows value" if has_estimated_power(winner.spec)
-                                           else "")),
+        "held_fixed": (
+            "response lambdas and shifts are estimated again in every fold; "
+            "candidates with an estimated predictor power are left out of the "
+            "resamples (their power would be held at its all-rows value, which "
+            "flatters them)"
+            + (
+                ", except rank 1, whose power is held at its all-rows value"
+                if has_estimated_power(winner.spec)
+                else ""
+            )
+        ),
         "rule_reproduces_rank_1": matches,
         "problems": [{"reason": k, "resamples": v} for k, v in sorted(problems.items())],
     }
@@ -364,17 +419,36 @@ def _inner_search(task) -> dict:
     return {"spec": chosen.spec, "complete": bool(body["search"]["complete"])}
 
 
-def _optimism(prep: Prepared, opts: SearchOptions, winner: Scored, service_version: str,
-              outer_folds: int, inner_folds: int, deadline: float, mapper) -> dict:
+def _optimism(
+    prep: Prepared,
+    opts: SearchOptions,
+    winner: Scored,
+    service_version: str,
+    outer_folds: int,
+    inner_folds: int,
+    deadline: float,
+    mapper,
+) -> dict:
     inner_folds = min(inner_folds, opts.folds)
     outer = make_plan(prep.n, outer_folds, 1, opts.seed, opts.metric)
     assign = outer.assignments[0]
     sizes = np.bincount(assign, minlength=outer_folds).astype(float)
     metric = opts.metric
-    base = {"metric": metric, "scale": "original", "outer_folds": outer_folds,
-            "inner_folds": inner_folds, "seed": opts.seed}
-    empty = {"selected_cv": None, "nested_cv": None, "gap": None, "gap_std_error": None,
-             "ratio": None, "complete": False}
+    base = {
+        "metric": metric,
+        "scale": "original",
+        "outer_folds": outer_folds,
+        "inner_folds": inner_folds,
+        "seed": opts.seed,
+    }
+    empty = {
+        "selected_cv": None,
+        "nested_cv": None,
+        "gap": None,
+        "gap_std_error": None,
+        "ratio": None,
+        "complete": False,
+    }
     if outer_folds == opts.folds:
         # the search's own partition (repeat 0 of its plan): rank 1's fold errors as scored,
         # with everything estimated from the response re-estimated in each training fold
@@ -382,14 +456,20 @@ def _optimism(prep: Prepared, opts: SearchOptions, winner: Scored, service_versi
     else:
         try:
             d = build_design(winner.spec, prep)
-            win_folds = cross_validate(d.X, prep.y, winner.spec.response_transform, outer,
-                                       tr.needs_shift(prep.y), d.names).fold_values
+            win_folds = cross_validate(
+                d.X, prep.y, winner.spec.response_transform, outer, tr.needs_shift(prep.y), d.names
+            ).fold_values
         except CandidateFailure as exc:
-            return {**base, **empty,
-                    "problem": f"rank 1 cannot be scored on the outer folds: {exc.reason}"}
+            return {
+                **base,
+                **empty,
+                "problem": f"rank 1 cannot be scored on the outer folds: {exc.reason}",
+            }
     inner = replace(opts, folds=inner_folds, repeats=1, top=1, incumbent=None)
-    tasks = [(subset(prep, np.flatnonzero(assign != k)), inner, service_version, deadline)
-             for k in range(outer_folds)]
+    tasks = [
+        (subset(prep, np.flatnonzero(assign != k)), inner, service_version, deadline)
+        for k in range(outer_folds)
+    ]
     picks = list(mapper(_inner_search, tasks))
 
     evaluated: dict[tuple, np.ndarray | str] = {}
@@ -407,24 +487,41 @@ def _optimism(prep: Prepared, opts: SearchOptions, winner: Scored, service_versi
         if key not in evaluated:
             try:
                 ds = build_design(spec, prep)
-                evaluated[key] = cross_validate(ds.X, prep.y, spec.response_transform, outer,
-                                                shift, ds.names).fold_values
+                evaluated[key] = cross_validate(
+                    ds.X, prep.y, spec.response_transform, outer, shift, ds.names
+                ).fold_values
             except CandidateFailure as exc:
                 evaluated[key] = exc.reason
         res = evaluated[key]
         if isinstance(res, str):
-            rows.append({**entry, "selected": label(spec), "problem":
-                         f"the selected specification cannot predict the held-out fold: {res}"})
+            rows.append(
+                {
+                    **entry,
+                    "selected": label(spec),
+                    "problem": f"the selected specification cannot predict the held-out fold: {res}",
+                }
+            )
             continue
         nested[k] = res[k]
-        rows.append({**entry, "selected": label(spec), "selected_specification": spec.to_dict(),
-                     "same_as_winner": key[0] == winner_key, "inner_complete": pick["complete"],
-                     "nested_error": float(res[k]),
-                     "winner_error": float(win_folds[k])})
+        rows.append(
+            {
+                **entry,
+                "selected": label(spec),
+                "selected_specification": spec.to_dict(),
+                "same_as_winner": key[0] == winner_key,
+                "inner_complete": pick["complete"],
+                "nested_error": float(res[k]),
+                "winner_error": float(win_folds[k]),
+            }
+        )
     ok = np.isfinite(nested)
     if not np.any(ok):
-        return {**base, **empty, "folds": rows,
-                "problem": "the search could not be repeated inside any outer training part"}
+        return {
+            **base,
+            **empty,
+            "folds": rows,
+            "problem": "the search could not be repeated inside any outer training part",
+        }
     sel = _pooled(metric, win_folds[ok], sizes[ok])
     nest = _pooled(metric, nested[ok], sizes[ok])
     diff = nested[ok] - win_folds[ok]
@@ -440,19 +537,32 @@ def _optimism(prep: Prepared, opts: SearchOptions, winner: Scored, service_versi
         "winner_selected": sum(1 for r in rows if r.get("same_as_winner")),
         "complete": bool(np.all(ok)) and all(r.get("inner_complete", False) for r in rows),
         "folds": rows,
-        "meaning": ("selected_cv is rank 1's error on the outer folds; nested_cv repeats the "
-                    "whole search inside each outer training part and scores what it selects on "
-                    "the held-out fold; gap = nested_cv - selected_cv, positive when the search "
-                    "flatters rank 1"),
+        "meaning": (
+            "selected_cv is rank 1's error on the outer folds; nested_cv repeats the "
+            "whole search inside each outer training part and scores what it selects on "
+            "the held-out fold; gap = nested_cv - selected_cv, positive when the search "
+            "flatters rank 1"
+        ),
     }
 
 
 # --------------------------------------------------------------------------- entry point
-def assess_trust(prep: Prepared, opts: SearchOptions, winner_spec: dict, service_version: str,
-                 stability: bool, optimism: bool, resamples: int | None = None, *,
-                 selection: dict | None = None, outer_folds: int | None = None,
-                 inner_folds: int = DEFAULT_INNER_FOLDS, time_limit_s: float | None = None,
-                 mapper=map, chunks: int = 1) -> dict:
+def assess_trust(
+    prep: Prepared,
+    opts: SearchOptions,
+    winner_spec: dict,
+    service_version: str,
+    stability: bool,
+    optimism: bool,
+    resamples: int | None = None,
+    *,
+    selection: dict | None = None,
+    outer_folds: int | None = None,
+    inner_folds: int = DEFAULT_INNER_FOLDS,
+    time_limit_s: float | None = None,
+    mapper=map,
+    chunks: int = 1,
+) -> dict:
     """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
 
     ``selection`` is the body :func:`run_selection` returned for ``prep`` and
@@ -469,11 +579,14 @@ def assess_trust(prep: Prepared, opts: SearchOptions, winner_spec: dict, service
     if resamples is None:
         resamples = DEFAULT_RESAMPLES
     if not 1 <= resamples <= MAX_RESAMPLES:
-        raise InputError.at("/trust/resamples", f"resamples must be within [1, {MAX_RESAMPLES}], "
-                            f"got {resamples}")
+        raise InputError.at(
+            "/trust/resamples", f"resamples must be within [1, {MAX_RESAMPLES}], got {resamples}"
+        )
     if outer_folds is not None and not 2 <= outer_folds <= prep.n // 2:
-        raise InputError.at("/trust/outer_folds", f"outer_folds must be within [2, "
-                            f"{prep.n // 2}] for {prep.n} rows, got {outer_folds}")
+        raise InputError.at(
+            "/trust/outer_folds",
+            f"outer_folds must be within [2, {prep.n // 2}] for {prep.n} rows, got {outer_folds}",
+        )
     k_out = opts.folds if outer_folds is None else int(outer_folds)
     budget = opts.time_limit_s if time_limit_s is None else float(time_limit_s)
     scored = selection.get("_scored") if selection is not None else None
@@ -487,11 +600,14 @@ def assess_trust(prep: Prepared, opts: SearchOptions, winner_spec: dict, service
     warnings: list[str] = []
     name = label(winner.spec)
     if stability:
-        st = _stability(prep, opts, scored, winner, resamples, time.time() + budget, mapper,
-                        chunks)
+        st = _stability(prep, opts, scored, winner, resamples, time.time() + budget, mapper, chunks)
         det = st["details"]
-        out.update(stability=st["share"], resamples=det["usable"], runner_up=st["runner_up"],
-                   stability_details=det)
+        out.update(
+            stability=st["share"],
+            resamples=det["usable"],
+            runner_up=st["runner_up"],
+            stability_details=det,
+        )
         if st["share"] is None:
             warnings.append("Stability could not be measured: no resample could be ranked.")
         elif st["share"] < UNSTABLE_BELOW:
@@ -500,30 +616,42 @@ def assess_trust(prep: Prepared, opts: SearchOptions, winner_spec: dict, service
                 f"The choice is not settled: rank 1 ({name}) was first in {det['wins']} of "
                 f"{det['usable']} bootstrap resamples ({st['share']:.0%})"
                 + (f"; {ru['label']} was first in {ru['first_share']:.0%}" if ru else "")
-                + ". Weigh both before switching a production model.")
+                + ". Weigh both before switching a production model."
+            )
         if not det["rule_reproduces_rank_1"]:
-            warnings.append("On all rows the resampled rule does not pick the returned rank 1 "
-                            "(the condition ordering differs); read the stability with care.")
+            warnings.append(
+                "On all rows the resampled rule does not pick the returned rank 1 "
+                "(the condition ordering differs); read the stability with care."
+            )
         if not det["complete"]:
-            warnings.append(f"Stability used {det['usable']} of {resamples} resamples before the "
-                            "time limit; its interval is wider than asked for.")
+            warnings.append(
+                f"Stability used {det['usable']} of {resamples} resamples before the "
+                "time limit; its interval is wider than asked for."
+            )
     if optimism:
-        op = _optimism(prep, opts, winner, service_version, k_out, inner_folds,
-                      time.time() + budget, mapper)
+        op = _optimism(
+            prep, opts, winner, service_version, k_out, inner_folds, time.time() + budget, mapper
+        )
         out["optimism"] = op
         if op.get("gap") is None:
-            warnings.append("The optimism of the search could not be measured: "
-                            + op.get("problem", "no outer fold could be assessed") + ".")
+            warnings.append(
+                "The optimism of the search could not be measured: "
+                + op.get("problem", "no outer fold could be assessed")
+                + "."
+            )
         elif op["ratio"] is not None and op["ratio"] > OPTIMISM_WARN_RATIO:
             warnings.append(
                 f"The search flatters rank 1: its cross-validated {op['metric']} is "
                 f"{op['selected_cv']:.4g}, but repeating the whole search inside each of "
                 f"{op['outer_folds_used']} outer folds gives {op['nested_cv']:.4g} "
                 f"({op['ratio'] - 1:.0%} higher); expect errors nearer the second figure on "
-                "new data.")
+                "new data."
+            )
         if op.get("gap") is not None and not op["complete"]:
-            warnings.append("The nested cross-validation is incomplete (an inner search stopped "
-                            "early or an outer fold failed); see trust.optimism.folds.")
+            warnings.append(
+                "The nested cross-validation is incomplete (an inner search stopped "
+                "early or an outer fold failed); see trust.optimism.folds."
+            )
     out["time_limit_s"] = budget
     out["warnings"] = warnings
     out["elapsed_s"] = round(time.perf_counter() - t0, 4)

@@ -55,8 +55,12 @@ def iter_in_processes(fn, items, processes: int, blas_threads: int = 1) -> Itera
     workers = min(int(processes), len(items))
     # a few chunks per worker: fewer round trips for many small items, still balanced
     chunksize = max(1, len(items) // (workers * 4))
-    with ProcessPoolExecutor(max_workers=workers, mp_context=_context(),
-                             initializer=_init_worker, initargs=(blas_threads,)) as pool:
+    with ProcessPoolExecutor(
+        max_workers=workers,
+        mp_context=_context(),
+        initializer=_init_worker,
+        initargs=(blas_threads,),
+    ) as pool:
         yield from pool.map(fn, items, chunksize=chunksize)
 
 
@@ -116,9 +120,14 @@ def select_group(task) -> dict:
     if deadline is not None:
         remaining = deadline - time.time()
         if remaining <= 0:
-            return {"problem": _problem_of(BudgetError(
-                f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
-                "group was reached; send fewer groups per request or raise limits.time_limit_s"))}
+            return {
+                "problem": _problem_of(
+                    BudgetError(
+                        f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
+                        "group was reached; send fewer groups per request or raise limits.time_limit_s"
+                    )
+                )
+            }
         opts = replace(opts, time_limit_s=remaining)
     try:
         body = run_selection(sub, opts, service_version, entry_hook)
@@ -126,13 +135,22 @@ def select_group(task) -> dict:
             from .trust import assess_trust
 
             stability, optimism, resamples, outer_folds = trust
-            body["trust"] = assess_trust(sub, opts, body["ranking"][0]["specification"],
-                                         service_version, stability, optimism, resamples,
-                                         selection=body, outer_folds=outer_folds)
+            body["trust"] = assess_trust(
+                sub,
+                opts,
+                body["ranking"][0]["specification"],
+                service_version,
+                stability,
+                optimism,
+                resamples,
+                selection=body,
+                outer_folds=outer_folds,
+            )
     except BestscaleError as exc:
         return {"problem": _problem_of(exc)}
     body.pop("_scored", None)
     body.pop("_plan", None)
-    body["ranking"] = [{k: v for k, v in e.items() if not k.startswith("_")}
-                       for e in body["ranking"]]
+    body["ranking"] = [
+        {k: v for k, v in e.items() if not k.startswith("_")} for e in body["ranking"]
+    ]
     return body

@@ -8,12 +8,17 @@ import pytest
 import statsmodels.api as sm
 from fastapi.testclient import TestClient
 from matplotlib import image as mpimg
-
 from service.app import app
 
 URL = "/v1/diagnostics"
-CONDITIONS = ("linearity", "normality", "equal_variance", "independence", "multicollinearity",
-              "influence")
+CONDITIONS = (
+    "linearity",
+    "normality",
+    "equal_variance",
+    "independence",
+    "multicollinearity",
+    "influence",
+)
 
 
 @pytest.fixture(scope="module")
@@ -24,10 +29,13 @@ def client():
 def _engel(spec_resp="identity", spec_pred="identity", order=False):
     d = sm.datasets.engel.load_pandas().data
     cols = {"foodexp": d.foodexp.tolist(), "income": d.income.tolist()}
-    body = {"data": {"columns": cols},
-            "specification": {"response": {"column": "foodexp", "transform": {"name": spec_resp}},
-                              "predictors": [{"column": "income",
-                                              "transform": {"name": spec_pred}}]}}
+    body = {
+        "data": {"columns": cols},
+        "specification": {
+            "response": {"column": "foodexp", "transform": {"name": spec_resp}},
+            "predictors": [{"column": "income", "transform": {"name": spec_pred}}],
+        },
+    }
     if order:
         cols["t"] = list(range(len(d)))
         body["order"] = "t"
@@ -49,8 +57,13 @@ def test_engel_level_model_flags_unequal_variance_and_influence(client):
     assert inf["holds"] is False
     assert any(f["row"] == 137 for f in inf["flagged_rows"])
     assert j["conditions"]["independence"]["holds"] is None  # no order column
-    assert set(j["plots"]) == {"residuals_fitted", "normal_quantiles", "spread_fitted",
-                               "influence", "partial_residuals"}
+    assert set(j["plots"]) == {
+        "residuals_fitted",
+        "normal_quantiles",
+        "spread_fitted",
+        "influence",
+        "partial_residuals",
+    }
     assert len(j["plots"]["partial_residuals"]) == 1
     assert "rank" not in j
 
@@ -71,7 +84,9 @@ def test_svg_figure_has_every_panel(client):
     assert r.status_code == 200
     assert r.headers["content-type"].startswith("image/svg+xml")
     root = ET.fromstring(r.content)
-    text = " ".join(t.text or "" for t in root.iter() if t.tag.endswith("text") or t.tag.endswith("tspan"))
+    text = " ".join(
+        t.text or "" for t in root.iter() if t.tag.endswith("text") or t.tag.endswith("tspan")
+    )
     for title in ("Residuals vs fitted", "Normal Q-Q", "Spread vs fitted", "Influence"):
         assert title in text
     paths = [e for e in root.iter() if e.tag.endswith("path")]
@@ -108,8 +123,10 @@ def test_column_names_with_markup_characters_are_drawn_as_text(client):
     x = rng.uniform(1, 5, 40)
     y = 2 * x + rng.normal(0, 0.3, 40)
     name = "x $^{$ & y"
-    body = {"data": {"columns": {"y": y.tolist(), name: x.tolist()}},
-            "specification": {"response": {"column": "y"}, "predictors": [{"column": name}]}}
+    body = {
+        "data": {"columns": {"y": y.tolist(), name: x.tolist()}},
+        "specification": {"response": {"column": "y"}, "predictors": [{"column": name}]},
+    }
     r = client.post(URL, json=body, headers={"accept": "image/svg+xml"})
     assert r.status_code == 200
     ET.fromstring(r.content)

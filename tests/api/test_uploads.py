@@ -24,15 +24,23 @@ def _table(n: int = 60, seed: int = 4) -> dict:
     length = rng.uniform(20, 400, n).round(2)
     age = rng.integers(2, 60, n).astype(float)
     soil = np.where(rng.uniform(0, 1, n) < 0.5, "clay", "loam")
-    cost = np.exp(4.0 + 0.5 * np.log(length) + 0.01 * age + 0.2 * (soil == "clay")
-                  + rng.normal(0, 0.2, n)).round(2)
-    return {"repair_cost": cost.tolist(), "pipe_length_m": length.tolist(),
-            "pipe_age_years": age.tolist(), "soil": soil.tolist()}
+    cost = np.exp(
+        4.0 + 0.5 * np.log(length) + 0.01 * age + 0.2 * (soil == "clay") + rng.normal(0, 0.2, n)
+    ).round(2)
+    return {
+        "repair_cost": cost.tolist(),
+        "pipe_length_m": length.tolist(),
+        "pipe_age_years": age.tolist(),
+        "soil": soil.tolist(),
+    }
 
 
-OPTIONS = {"response": "repair_cost", "predictors": ["pipe_length_m", "pipe_age_years", "soil"],
-           "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
-           "top": 2}
+OPTIONS = {
+    "response": "repair_cost",
+    "predictors": ["pipe_length_m", "pipe_age_years", "soil"],
+    "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+    "top": 2,
+}
 
 
 def _csv_bytes(cols: dict) -> bytes:
@@ -40,7 +48,7 @@ def _csv_bytes(cols: dict) -> bytes:
     w = csv.writer(buf)
     names = list(cols)
     w.writerow(names)
-    for row in zip(*cols.values()):
+    for row in zip(*cols.values(), strict=True):
         w.writerow(["" if v is None else v for v in row])
     return buf.getvalue().encode()
 
@@ -51,8 +59,9 @@ def _parquet_bytes(cols: dict) -> bytes:
     return buf.getvalue()
 
 
-def _post_upload(client, raw: bytes, name: str, options: dict | str | None = OPTIONS,
-                 extra: dict | None = None):
+def _post_upload(
+    client, raw: bytes, name: str, options: dict | str | None = OPTIONS, extra: dict | None = None
+):
     files = {"file": (name, raw, "application/octet-stream")}
     data = {}
     if options is not None:
@@ -81,8 +90,9 @@ def test_parquet_upload_equals_the_json_request_and_reports_missing_rows(client)
     cols["pipe_age_years"][5] = None
     cols["repair_cost"][11] = float("nan")  # NaN in a Parquet float column: a missing value
     ref_cols = dict(cols)
-    ref_cols["repair_cost"] = [None if (isinstance(v, float) and v != v) else v
-                               for v in cols["repair_cost"]]
+    ref_cols["repair_cost"] = [
+        None if (isinstance(v, float) and v != v) else v for v in cols["repair_cost"]
+    ]
     ref = client.post(URL, json={**OPTIONS, "data": {"columns": ref_cols}})
     assert ref.status_code == 200, ref.text[:300]
     up = _post_upload(client, _parquet_bytes(cols), "repairs.parquet")
@@ -110,27 +120,39 @@ def _assert_problem(r, status: int, pointer: str):
 
 
 def test_missing_file_part(client):
-    r = client.post(URL, data={"options": json.dumps(OPTIONS)},
-                    files={"other": ("x.txt", b"abc", "text/plain")})
+    r = client.post(
+        URL, data={"options": json.dumps(OPTIONS)}, files={"other": ("x.txt", b"abc", "text/plain")}
+    )
     _assert_problem(r, 422, "/other")
-    r = client.post(URL, files={"options": ("o.json", json.dumps(OPTIONS).encode(),
-                                            "application/json")})
+    r = client.post(
+        URL, files={"options": ("o.json", json.dumps(OPTIONS).encode(), "application/json")}
+    )
     _assert_problem(r, 422, "/file")
 
 
 def test_options_that_are_not_json_are_400(client):
-    _assert_problem(_post_upload(client, _csv_bytes(_table()), "t.csv", options="{nope"), 400,
-                    "/options")
-    _assert_problem(_post_upload(client, _csv_bytes(_table()), "t.csv", options="[1, 2]"), 400,
-                    "/options")
-    _assert_problem(_post_upload(client, _csv_bytes(_table()), "t.csv",
-                                 options='{"response": "repair_cost", "alpha": NaN}'), 400,
-                    "/options")
+    _assert_problem(
+        _post_upload(client, _csv_bytes(_table()), "t.csv", options="{nope"), 400, "/options"
+    )
+    _assert_problem(
+        _post_upload(client, _csv_bytes(_table()), "t.csv", options="[1, 2]"), 400, "/options"
+    )
+    _assert_problem(
+        _post_upload(
+            client,
+            _csv_bytes(_table()),
+            "t.csv",
+            options='{"response": "repair_cost", "alpha": NaN}',
+        ),
+        400,
+        "/options",
+    )
 
 
 def test_data_in_the_options_conflicts_with_the_file(client):
-    r = _post_upload(client, _csv_bytes(_table()), "t.csv",
-                     options={**OPTIONS, "data": {"csv": "a\n1\n"}})
+    r = _post_upload(
+        client, _csv_bytes(_table()), "t.csv", options={**OPTIONS, "data": {"csv": "a\n1\n"}}
+    )
     _assert_problem(r, 422, "/options/data")
 
 

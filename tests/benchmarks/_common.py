@@ -10,8 +10,8 @@ import numpy as np
 
 def pin_blas(threads: int = 1) -> None:
     """Pin every loaded BLAS (numpy's and scipy's) to ``threads``, as the service does."""
-    import scipy.linalg  # noqa: F401  (load scipy's BLAS before limiting it)
-    import scipy.optimize  # noqa: F401
+    import scipy.linalg
+    import scipy.optimize  # noqa: F401  (loads scipy's BLAS so the limit reaches it)
     from threadpoolctl import threadpool_limits
 
     threadpool_limits(limits=threads)

@@ -25,13 +25,12 @@ import numpy as np
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
 
-from threadpoolctl import threadpool_limits  # noqa: E402
-
-from service.api.encode import to_jsonable  # noqa: E402
-from service.core.data import prepare, split_groups  # noqa: E402
-from service.core.errors import BestscaleError  # noqa: E402
-from service.core.search import SearchOptions, _problem_of, run_grouped  # noqa: E402
-from service.core.workers import map_in_processes, select_group  # noqa: E402
+from service.api.encode import to_jsonable
+from service.core.data import prepare, split_groups
+from service.core.errors import BestscaleError
+from service.core.search import SearchOptions, _problem_of, run_grouped
+from service.core.workers import map_in_processes, select_group
+from threadpoolctl import threadpool_limits
 
 
 def zones(segments: int, rows: int, seed: int = 2027) -> dict:
@@ -43,11 +42,20 @@ def zones(segments: int, rows: int, seed: int = 2027) -> dict:
     soil = rng.choice(["clay", "loam", "sand"], n, p=[0.35, 0.4, 0.25])
     slope = np.repeat(rng.uniform(0.6, 0.9, segments), rows)
     base = np.repeat(rng.uniform(4.8, 5.6, segments), rows)
-    log_cost = (base + slope * np.log(length) + 0.012 * age
-                + np.select([soil == "clay", soil == "sand"], [0.25, -0.15], 0.0)
-                + rng.normal(0.0, 0.25, n))
-    return {"repair_cost": np.round(np.exp(log_cost), 2).tolist(), "pipe_length_m": length.tolist(),
-            "pipe_age_years": [int(a) for a in age], "soil": soil.tolist(), "zone": zone.tolist()}
+    log_cost = (
+        base
+        + slope * np.log(length)
+        + 0.012 * age
+        + np.select([soil == "clay", soil == "sand"], [0.25, -0.15], 0.0)
+        + rng.normal(0.0, 0.25, n)
+    )
+    return {
+        "repair_cost": np.round(np.exp(log_cost), 2).tolist(),
+        "pipe_length_m": length.tolist(),
+        "pipe_age_years": [int(a) for a in age],
+        "soil": soil.tolist(),
+        "zone": zone.tolist(),
+    }
 
 
 def _without_timing(obj):
@@ -70,8 +78,12 @@ def main() -> int:
     args = ap.parse_args()
     threadpool_limits(limits=1)
 
-    prep = prepare({"columns": zones(args.segments, args.rows)}, "repair_cost",
-                   ["pipe_length_m", "pipe_age_years", "soil"], group_by="zone")
+    prep = prepare(
+        {"columns": zones(args.segments, args.rows)},
+        "repair_cost",
+        ["pipe_length_m", "pipe_age_years", "soil"],
+        group_by="zone",
+    )
     opts = SearchOptions(top=3)  # the service's defaults: every applicable transform
 
     t = time.perf_counter()
@@ -84,22 +96,29 @@ def main() -> int:
 
     t = time.perf_counter()
     parts = split_groups(prep)
-    tasks = [({"problem": _problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "bench")
-             for p in parts.values()]
-    pooled = dict(zip(parts, map_in_processes(select_group, tasks, args.processes)))
+    tasks = [
+        ({"problem": _problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "bench")
+        for p in parts.values()
+    ]
+    pooled = dict(zip(parts, map_in_processes(select_group, tasks, args.processes), strict=True))
     t_pool = time.perf_counter() - t
 
-    same = (json.dumps(_without_timing(to_jsonable(base)), sort_keys=True) ==
-            json.dumps(_without_timing(to_jsonable(pooled)), sort_keys=True))
+    same = json.dumps(_without_timing(to_jsonable(base)), sort_keys=True) == json.dumps(
+        _without_timing(to_jsonable(pooled)), sort_keys=True
+    )
     failed = sum(1 for b in base.values() if "problem" in b)
     print(f"segments x rows        : {args.segments} x {args.rows} ({failed} failed)")
     print(f"cores seen             : {os.cpu_count()}")
     print(f"in-process (baseline)  : {t_in:8.1f} s  ({t_in / args.segments:.2f} s per segment)")
     print(f"pool start-up (once)   : {t_start:8.1f} s")
-    print(f"pool, {args.processes} processes      : {t_pool:8.1f} s  "
-          f"({t_pool / args.segments:.2f} s per segment)")
-    print(f"ratio pool / baseline  : {t_pool / t_in:8.2f}  (with start-up "
-          f"{(t_pool + t_start) / t_in:.2f})")
+    print(
+        f"pool, {args.processes} processes      : {t_pool:8.1f} s  "
+        f"({t_pool / args.segments:.2f} s per segment)"
+    )
+    print(
+        f"ratio pool / baseline  : {t_pool / t_in:8.2f}  (with start-up "
+        f"{(t_pool + t_start) / t_in:.2f})"
+    )
     print(f"same JSON (no timings) : {same}")
     return 0 if same else 1
 

@@ -42,17 +42,34 @@ def percentile(values: list[float], q: float) -> float:
     if not values:
         return float("nan")
     v = sorted(values)
-    return v[min(len(v) - 1, int(round(q / 100 * (len(v) - 1))))]
+    return v[min(len(v) - 1, round(q / 100 * (len(v) - 1)))]
 
 
 class Server:
     def __init__(self, port: int, workers: int, pool_size: int):
-        env = {**os.environ, "BESTSCALE_POOL_SIZE": str(pool_size), "BESTSCALE_LOG_LEVEL": "warning"}
+        env = {
+            **os.environ,
+            "BESTSCALE_POOL_SIZE": str(pool_size),
+            "BESTSCALE_LOG_LEVEL": "warning",
+        }
         self.port = port
         self.proc = subprocess.Popen(
-            [sys.executable, "-m", "service", "--host", "127.0.0.1", "--port", str(port),
-             "--workers", str(workers)], cwd=ROOT, env=env,
-            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+            [
+                sys.executable,
+                "-m",
+                "service",
+                "--host",
+                "127.0.0.1",
+                "--port",
+                str(port),
+                "--workers",
+                str(workers),
+            ],
+            cwd=ROOT,
+            env=env,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.PIPE,
+        )
 
     def wait_ready(self, timeout: float = 180) -> float:
         t0 = time.monotonic()
@@ -81,13 +98,14 @@ def request_mix() -> list[tuple[str, str, bytes | None]]:
     sel = json.loads((EXAMPLES / "selections.request.json").read_text())
     sel["validation"] = {**sel.get("validation", {}), "repeats": 1}
     sel.pop("units", None)
-    sel["transforms"] = {"response": ["identity", "log", "sqrt"],
-                         "predictors": ["identity", "log"]}
+    sel["transforms"] = {"response": ["identity", "log", "sqrt"], "predictors": ["identity", "log"]}
     pred = json.loads((EXAMPLES / "predictions.request.json").read_text())
-    return [("POST", "/v1/selections", json.dumps(sel).encode()),
-            ("POST", "/v1/predictions", json.dumps(pred).encode()),
-            ("POST", "/v1/predictions", json.dumps(pred).encode()),
-            ("GET", "/v1/transforms", None)]
+    return [
+        ("POST", "/v1/selections", json.dumps(sel).encode()),
+        ("POST", "/v1/predictions", json.dumps(pred).encode()),
+        ("POST", "/v1/predictions", json.dumps(pred).encode()),
+        ("GET", "/v1/transforms", None),
+    ]
 
 
 class Tally:
@@ -156,8 +174,11 @@ def scrape_total(port: int) -> float:
     text = conn.getresponse().read().decode()
     total = 0.0
     for line in text.splitlines():
-        if line.startswith("bestscale_requests_total{") and 'route="/metrics"' not in line and \
-                'route="/healthz"' not in line:
+        if (
+            line.startswith("bestscale_requests_total{")
+            and 'route="/metrics"' not in line
+            and 'route="/healthz"' not in line
+        ):
             total += float(line.rsplit(" ", 1)[1])
     return total
 
@@ -182,8 +203,10 @@ def main() -> int:
         tally = Tally()
         health: list[float] = []
         stop = time.monotonic() + seconds
-        threads = [threading.Thread(target=client, args=(port, stop, mix, tally, k))
-                   for k in range(clients)]
+        threads = [
+            threading.Thread(target=client, args=(port, stop, mix, tally, k))
+            for k in range(clients)
+        ]
         threads.append(threading.Thread(target=probe_health, args=(port, stop, health)))
         t0 = time.monotonic()
         for t in threads:
@@ -199,28 +222,44 @@ def main() -> int:
     busy = sum(n for (p, s), n in tally.status.items() if s == 503)
     client_err = sum(n for (p, s), n in tally.status.items() if 400 <= s < 500)
     server_err = sum(n for (p, s), n in tally.status.items() if s >= 500 and s != 503)
-    print(f"machine: {os.cpu_count()} cores; server: {args.workers} worker(s), pool size "
-          f"{args.pool_size}, ready after {ready:.1f} s")
-    print(f"load: {clients} clients for {seconds:g} s (wall {wall:.1f} s), "
-          f"{tally.sent} requests answered")
+    print(
+        f"machine: {os.cpu_count()} cores; server: {args.workers} worker(s), pool size "
+        f"{args.pool_size}, ready after {ready:.1f} s"
+    )
+    print(
+        f"load: {clients} clients for {seconds:g} s (wall {wall:.1f} s), "
+        f"{tally.sent} requests answered"
+    )
     print(f"throughput: {ok / wall:.1f} successful requests/s ({tally.sent / wall:.1f} answered/s)")
     for path, lat in sorted(tally.latency.items()):
-        print(f"  {path:18s} n={len(lat):6d}  p50={percentile(lat, 50) * 1e3:8.1f} ms  "
-              f"p95={percentile(lat, 95) * 1e3:8.1f} ms  p99={percentile(lat, 99) * 1e3:8.1f} ms")
-    print(f"status: 200={ok}  503 busy={busy} (without Retry-After: {tally.retry_after_missing})  "
-          f"4xx={client_err}  5xx={server_err}  connection errors={sum(tally.errors.values())} "
-          f"{dict(tally.errors) if tally.errors else ''}")
+        print(
+            f"  {path:18s} n={len(lat):6d}  p50={percentile(lat, 50) * 1e3:8.1f} ms  "
+            f"p95={percentile(lat, 95) * 1e3:8.1f} ms  p99={percentile(lat, 99) * 1e3:8.1f} ms"
+        )
+    print(
+        f"status: 200={ok}  503 busy={busy} (without Retry-After: {tally.retry_after_missing})  "
+        f"4xx={client_err}  5xx={server_err}  connection errors={sum(tally.errors.values())} "
+        f"{dict(tally.errors) if tally.errors else ''}"
+    )
     h_ok = [h for h in health if h != float("inf")]
     base = statistics.median(idle) if idle else float("nan")
-    print(f"health idle:  n={len(idle)} p50={base * 1e3:.2f} ms  p99={percentile(idle, 99) * 1e3:.2f} ms")
-    print(f"health load:  n={len(health)} failed={len(health) - len(h_ok)} "
-          f"p50={percentile(h_ok, 50) * 1e3:.2f} ms  p95={percentile(h_ok, 95) * 1e3:.2f} ms  "
-          f"p99={percentile(h_ok, 99) * 1e3:.2f} ms  max={max(h_ok, default=float('nan')) * 1e3:.1f} ms")
+    print(
+        f"health idle:  n={len(idle)} p50={base * 1e3:.2f} ms  p99={percentile(idle, 99) * 1e3:.2f} ms"
+    )
+    print(
+        f"health load:  n={len(health)} failed={len(health) - len(h_ok)} "
+        f"p50={percentile(h_ok, 50) * 1e3:.2f} ms  p95={percentile(h_ok, 95) * 1e3:.2f} ms  "
+        f"p99={percentile(h_ok, 99) * 1e3:.2f} ms  max={max(h_ok, default=float('nan')) * 1e3:.1f} ms"
+    )
     if idle and h_ok:
-        print(f"health ratio loaded/idle: p50 x{percentile(h_ok, 50) / base:.1f}  "
-              f"p99 x{percentile(h_ok, 99) / percentile(idle, 99):.1f}")
-    print(f"metrics: /metrics counted {counted:.0f} of the {tally.sent} load requests "
-          f"({'consistent' if counted == tally.sent else 'MISMATCH'})")
+        print(
+            f"health ratio loaded/idle: p50 x{percentile(h_ok, 50) / base:.1f}  "
+            f"p99 x{percentile(h_ok, 99) / percentile(idle, 99):.1f}"
+        )
+    print(
+        f"metrics: /metrics counted {counted:.0f} of the {tally.sent} load requests "
+        f"({'consistent' if counted == tally.sent else 'MISMATCH'})"
+    )
     return 1 if server_err or tally.errors or counted != tally.sent else 0
 
 

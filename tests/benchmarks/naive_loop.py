@@ -27,25 +27,30 @@ import sys
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", ".."))
 
-from tests.benchmarks._common import Timer, machine, pin_blas, water_mains  # noqa: E402
+from tests.benchmarks._common import Timer, machine, pin_blas, water_mains
 
 pin_blas(1)
 
-import numpy as np  # noqa: E402
-import statsmodels.api as sm  # noqa: E402
-from scipy import optimize, stats  # noqa: E402
-from sklearn.model_selection import KFold  # noqa: E402
-from statsmodels.stats.diagnostic import het_breuschpagan, linear_reset  # noqa: E402
-from statsmodels.stats.outliers_influence import variance_inflation_factor  # noqa: E402
+import numpy as np
+import statsmodels.api as sm
+from scipy import optimize, stats
+from sklearn.model_selection import KFold
+from statsmodels.stats.diagnostic import het_breuschpagan, linear_reset
+from statsmodels.stats.outliers_influence import variance_inflation_factor
 
 RESP = ["identity", "log", "sqrt", "box_cox"]
 PRED = ["identity", "log", "sqrt", "reciprocal", "square"]
-FWD = {"identity": lambda v: v, "log": np.log, "sqrt": np.sqrt, "reciprocal": lambda v: 1 / v,
-       "square": np.square}
+FWD = {
+    "identity": lambda v: v,
+    "log": np.log,
+    "sqrt": np.sqrt,
+    "reciprocal": lambda v: 1 / v,
+    "square": np.square,
+}
 
 
 def _bc(y, lam):
-    return np.log(y) if abs(lam) < 1e-12 else (y ** lam - 1) / lam
+    return np.log(y) if abs(lam) < 1e-12 else (y**lam - 1) / lam
 
 
 def _bc_inv(z, lam):
@@ -61,24 +66,30 @@ def naive_candidate(X, y, resp, folds):
     for train, test in folds:
         ytr = y[train]
         if resp == "box_cox":
-            def nll(lam):
+
+            def nll(lam, ytr=ytr, train=train):
                 res = sm.OLS(_bc(ytr, lam), X[train]).fit()
                 return -(res.llf + (lam - 1) * np.sum(np.log(ytr)))
+
             lam = optimize.minimize_scalar(nll, bounds=(-3, 3), method="bounded").x
             z, inv = _bc(ytr, lam), (lambda v, lam=lam: _bc_inv(v, lam))
         else:
             z = {"identity": ytr, "log": np.log(ytr), "sqrt": np.sqrt(ytr)}[resp]
-            inv = {"identity": lambda v: v, "log": np.exp,
-                   "sqrt": lambda v: np.maximum(v, 0) ** 2}[resp]
+            inv = {"identity": lambda v: v, "log": np.exp, "sqrt": lambda v: np.maximum(v, 0) ** 2}[
+                resp
+            ]
         res = sm.OLS(z, X[train]).fit()
         e = res.resid
         pred = res.predict(X[test])
         mean = np.array([np.nanmean(inv(p + e)) for p in pred])  # smearing per test point
         errs.append(float(np.mean((y[test] - mean) ** 2)))
-    cv = math.sqrt(sum(e * len(t) for e, (_, t) in zip(errs, folds)) / len(y))
+    cv = math.sqrt(sum(e * len(t) for e, (_, t) in zip(errs, folds, strict=True)) / len(y))
     # per-candidate diagnostics on all rows (response scale of the candidate)
-    zfull = _bc(y, 0.5) if resp == "box_cox" else {"identity": y, "log": np.log(y),
-                                                   "sqrt": np.sqrt(y)}[resp]
+    zfull = (
+        _bc(y, 0.5)
+        if resp == "box_cox"
+        else {"identity": y, "log": np.log(y), "sqrt": np.sqrt(y)}[resp]
+    )
     full = sm.OLS(zfull, X).fit()
     het_breuschpagan(full.resid, X)
     stats.shapiro(full.resid)
@@ -104,7 +115,7 @@ def main():
     best = (math.inf, None)
     with Timer() as tn:
         for resp, pts in subset:
-            X = sm.add_constant(np.column_stack([FWD[p](x) for p, x in zip(pts, xs)]))
+            X = sm.add_constant(np.column_stack([FWD[p](x) for p, x in zip(pts, xs, strict=True)]))
             with np.errstate(all="ignore"):
                 try:
                     cv = naive_candidate(X, y, resp, folds)
@@ -113,44 +124,59 @@ def main():
             if math.isfinite(cv) and cv < best[0]:
                 best = (cv, (resp, pts))
     scale = len(grid) / len(subset)
-    naive_wall, naive_cpu = tn.wall * scale, tn.cpu * scale
-    print(f"naive loop: {len(subset)} of {len(grid)} candidates in {tn.wall:.1f} s wall "
-          f"({tn.cpu:.1f} s CPU); for all {len(grid)}: {naive_wall:.1f} s wall"
-          + (" (extrapolated)" if scale > 1 else ""))
+    naive_wall = tn.wall * scale
+    print(
+        f"naive loop: {len(subset)} of {len(grid)} candidates in {tn.wall:.1f} s wall "
+        f"({tn.cpu:.1f} s CPU); for all {len(grid)}: {naive_wall:.1f} s wall"
+        + (" (extrapolated)" if scale > 1 else "")
+    )
     print(f"naive best CV RMSE {best[0]:.6g} at {best[1]}")
 
     from fastapi.testclient import TestClient
     from service.app import app
 
-    body = {"data": {"columns": {k: v.tolist() for k, v in cols.items()}},
-            "response": "repair_cost", "predictors": ["x0", "x1", "x2"],
-            "transforms": {"response": RESP, "predictors": PRED},
-            "validation": {"folds": 5, "seed": 0}}
+    body = {
+        "data": {"columns": {k: v.tolist() for k, v in cols.items()}},
+        "response": "repair_cost",
+        "predictors": ["x0", "x1", "x2"],
+        "transforms": {"response": RESP, "predictors": PRED},
+        "validation": {"folds": 5, "seed": 0},
+    }
     with TestClient(app) as client:
-        client.post("/v1/selections", json={**body, "transforms": {"response": ["log"],
-                                                                    "predictors": ["log"]}})
+        client.post(
+            "/v1/selections",
+            json={**body, "transforms": {"response": ["log"], "predictors": ["log"]}},
+        )
         with Timer() as ts:
             r = client.post("/v1/selections", json=body)
     out = r.json()
     s = out["search"]
-    print(f"service over HTTP: {s['candidates_scored']} scored, {s['candidates_failed']} failed "
-          f"of {s['candidates_considered']} in {ts.wall:.2f} s wall ({ts.cpu:.2f} s CPU of this "
-          f"process); search {s['elapsed_s']:.2f} s")
+    print(
+        f"service over HTTP: {s['candidates_scored']} scored, {s['candidates_failed']} failed "
+        f"of {s['candidates_considered']} in {ts.wall:.2f} s wall ({ts.cpu:.2f} s CPU of this "
+        f"process); search {s['elapsed_s']:.2f} s"
+    )
     print(f"service best CV RMSE {s['best_cv']['value']:.6g}")
     print(f"ratio naive/service (wall): {naive_wall / ts.wall:.1f}x (target >= 100x)")
     spec = s["best_cv"]["specification"]
-    key = (spec["response"]["transform"]["name"],
-           tuple(p["transform"]["name"] for p in spec["predictors"]))
-    X = sm.add_constant(np.column_stack([FWD[p](x) for p, x in zip(key[1], xs)]))
+    key = (
+        spec["response"]["transform"]["name"],
+        tuple(p["transform"]["name"] for p in spec["predictors"]),
+    )
+    X = sm.add_constant(np.column_stack([FWD[p](x) for p, x in zip(key[1], xs, strict=True)]))
     with np.errstate(all="ignore"):
         naive_at_best = naive_candidate(X, y, key[0], folds)
-    print(f"the naive loop on the service's best candidate {key}: {naive_at_best:.6g}; "
-          f"relative difference {s['best_cv']['value'] / naive_at_best - 1:+.2e} (target within 1%)")
+    print(
+        f"the naive loop on the service's best candidate {key}: {naive_at_best:.6g}; "
+        f"relative difference {s['best_cv']['value'] / naive_at_best - 1:+.2e} (target within 1%)"
+    )
     if scale == 1:
         print(f"naive exhaustive optimum vs service: {s['best_cv']['value'] / best[0] - 1:+.2e}")
     else:
-        print(f"service best vs the naive subset's best: {s['best_cv']['value'] / best[0] - 1:+.2e} "
-              "(the subset need not hold the optimum)")
+        print(
+            f"service best vs the naive subset's best: {s['best_cv']['value'] / best[0] - 1:+.2e} "
+            "(the subset need not hold the optimum)"
+        )
 
 
 if __name__ == "__main__":

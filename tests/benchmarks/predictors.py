@@ -17,13 +17,12 @@ import sys
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", ".."))
 
-from tests.benchmarks._common import Timer, machine, pin_blas, water_mains  # noqa: E402
+from tests.benchmarks._common import Timer, machine, pin_blas, water_mains
 
 pin_blas(1)
 
-from service.core.data import prepare  # noqa: E402
-from service.core.search import SearchOptions, run_selection  # noqa: E402
-
+from service.core.data import prepare
+from service.core.search import SearchOptions, run_selection
 
 # spaces small enough for the exhaustive search: 3 x 3^5 = 729 and 2 x 2^10 = 2048 candidates
 REDUCED = {5: ("identity", "log", "sqrt"), 10: ("identity", "log")}
@@ -38,33 +37,45 @@ def main():
     print(machine())
     for p in [int(v) for v in args.counts.split(",")]:
         cols = water_mains(args.rows, p, seed=p)
-        prep = prepare({"columns": {k: v.tolist() for k, v in cols.items()}}, "repair_cost",
-                       [f"x{j}" for j in range(p)])
+        prep = prepare(
+            {"columns": {k: v.tolist() for k, v in cols.items()}},
+            "repair_cost",
+            [f"x{j}" for j in range(p)],
+        )
         with Timer() as t:
             out = run_selection(prep, SearchOptions(time_limit_s=args.time_limit, top=3), "b")
         s = out["search"]
         done = s["candidates_scored"] + s["candidates_failed"]
-        print(f"{p:>2} predictors: {t.wall:.1f} s wall ({t.cpu:.1f} s CPU), space "
-              f"{s['candidates_considered']:.3g}, screened {s['candidates_screened']}, scored "
-              f"{s['candidates_scored']} (+{s['candidates_failed']} failed), "
-              f"{t.wall / max(done, 1) * 1e3:.1f} ms per candidate scored, stopped by "
-              f"{s['strategy']['stopped_by']}; best CV {s['best_cv']['value']:.5g}")
+        print(
+            f"{p:>2} predictors: {t.wall:.1f} s wall ({t.cpu:.1f} s CPU), space "
+            f"{s['candidates_considered']:.3g}, screened {s['candidates_screened']}, scored "
+            f"{s['candidates_scored']} (+{s['candidates_failed']} failed), "
+            f"{t.wall / max(done, 1) * 1e3:.1f} ms per candidate scored, stopped by "
+            f"{s['strategy']['stopped_by']}; best CV {s['best_cv']['value']:.5g}"
+        )
         reduced = REDUCED.get(p)
         if reduced is not None:
             names = reduced
-            space = dict(response_transforms=list(names), predictor_transforms=list(names),
-                         top=1, time_limit_s=args.time_limit, max_candidates=20_000)
+            space = {
+                "response_transforms": list(names),
+                "predictor_transforms": list(names),
+                "top": 1,
+                "time_limit_s": args.time_limit,
+                "max_candidates": 20_000,
+            }
             with Timer() as te:
                 full = run_selection(prep, SearchOptions(strategy="exhaustive", **space), "b")
             with Timer() as tsm:
                 smart = run_selection(prep, SearchOptions(strategy="screened", **space), "b")
             a, b = full["search"]["best_cv"]["value"], smart["search"]["best_cv"]["value"]
-            print(f"   reduced space of {full['search']['candidates_considered']} "
-                  f"({'/'.join(names)} for the response and every predictor): exhaustive "
-                  f"{te.wall:.1f} s ({full['search']['candidates_scored']} scored, complete "
-                  f"{full['search']['complete']}), best {a:.6g}; screened {tsm.wall:.1f} s "
-                  f"({smart['search']['candidates_scored']} scored), best {b:.6g}; "
-                  f"relative gap {b / a - 1:+.2e}")
+            print(
+                f"   reduced space of {full['search']['candidates_considered']} "
+                f"({'/'.join(names)} for the response and every predictor): exhaustive "
+                f"{te.wall:.1f} s ({full['search']['candidates_scored']} scored, complete "
+                f"{full['search']['complete']}), best {a:.6g}; screened {tsm.wall:.1f} s "
+                f"({smart['search']['candidates_scored']} scored), best {b:.6g}; "
+                f"relative gap {b / a - 1:+.2e}"
+            )
 
 
 if __name__ == "__main__":

@@ -47,11 +47,20 @@ def one(n: int, time_limit: float, trace: bool = False) -> dict:
     traced = tracemalloc.get_traced_memory()[1] if trace else float("nan")
     rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     s = out["search"]
-    return {"rows": n, "wall_s": t.wall, "cpu_s": t.cpu, "scored": s["candidates_scored"],
-            "failed": s["candidates_failed"], "screened": s["candidates_screened"],
-            "strategy": s["strategy"]["name"], "stopped_by": s["strategy"]["stopped_by"],
-            "peak_rss_gb": rss_kb / 1024 ** 2, "peak_traced_gb": traced / 1024 ** 3,
-            "best_cv": s["best_cv"]["value"], "top": out["ranking"][0]["equation"]}
+    return {
+        "rows": n,
+        "wall_s": t.wall,
+        "cpu_s": t.cpu,
+        "scored": s["candidates_scored"],
+        "failed": s["candidates_failed"],
+        "screened": s["candidates_screened"],
+        "strategy": s["strategy"]["name"],
+        "stopped_by": s["strategy"]["stopped_by"],
+        "peak_rss_gb": rss_kb / 1024**2,
+        "peak_traced_gb": traced / 1024**3,
+        "best_cv": s["best_cv"]["value"],
+        "top": out["ranking"][0]["equation"],
+    }
 
 
 def main():
@@ -70,21 +79,29 @@ def main():
     print(machine())
     res = []
     for n in [int(v) for v in args.sizes.split(",")]:
-        p = subprocess.run([sys.executable, __file__, "--one", str(n), "--time-limit",
-                            str(args.time_limit)] + (["--trace"] if args.trace else []),
-                           capture_output=True, text=True, check=True)
+        p = subprocess.run(
+            [sys.executable, __file__, "--one", str(n), "--time-limit", str(args.time_limit)]
+            + (["--trace"] if args.trace else []),
+            capture_output=True,
+            text=True,
+            check=True,
+        )
         r = json.loads(p.stdout.strip().splitlines()[-1])
         res.append(r)
-        print(f"{n:>8} rows: {r['wall_s']:.1f} s wall, {r['cpu_s']:.1f} s CPU, {r['scored']} scored "
-              f"({r['failed']} failed, {r['screened']} screened, {r['strategy']}, stopped by "
-              f"{r['stopped_by']}), {r['wall_s'] / max(r['scored'] + r['failed'], 1) * 1e3:.0f} ms "
-              f"per candidate, peak RSS {r['peak_rss_gb']:.2f} GB, peak traced "
-              f"{r['peak_traced_gb']:.2f} GB; best CV {r['best_cv']:.5g}; top {r['top']}")
+        print(
+            f"{n:>8} rows: {r['wall_s']:.1f} s wall, {r['cpu_s']:.1f} s CPU, {r['scored']} scored "
+            f"({r['failed']} failed, {r['screened']} screened, {r['strategy']}, stopped by "
+            f"{r['stopped_by']}), {r['wall_s'] / max(r['scored'] + r['failed'], 1) * 1e3:.0f} ms "
+            f"per candidate, peak RSS {r['peak_rss_gb']:.2f} GB, peak traced "
+            f"{r['peak_traced_gb']:.2f} GB; best CV {r['best_cv']:.5g}; top {r['top']}"
+        )
     if len(res) == 2:
         a, b = res
-        print(f"time ratio {b['rows']}/{a['rows']} rows: {b['wall_s'] / a['wall_s']:.2f}x wall, "
-              f"{b['cpu_s'] / a['cpu_s']:.2f}x CPU (target <= 12x); peak at {b['rows']}: "
-              f"{b['peak_rss_gb']:.2f} GB (target <= 3 GB)")
+        print(
+            f"time ratio {b['rows']}/{a['rows']} rows: {b['wall_s'] / a['wall_s']:.2f}x wall, "
+            f"{b['cpu_s'] / a['cpu_s']:.2f}x CPU (target <= 12x); peak at {b['rows']}: "
+            f"{b['peak_rss_gb']:.2f} GB (target <= 3 GB)"
+        )
 
 
 if __name__ == "__main__":

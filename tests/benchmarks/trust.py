@@ -21,14 +21,13 @@ import time
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
 
-from threadpoolctl import threadpool_limits  # noqa: E402
-
-from service.api.encode import to_jsonable  # noqa: E402
-from service.core.data import prepare  # noqa: E402
-from service.core.search import SearchOptions, run_selection  # noqa: E402
-from service.core.trust import assess_trust  # noqa: E402
-from service.core.workers import process_mapper  # noqa: E402
-from service.demo import demo_columns  # noqa: E402
+from service.api.encode import to_jsonable
+from service.core.data import prepare
+from service.core.search import SearchOptions, run_selection
+from service.core.trust import assess_trust
+from service.core.workers import process_mapper
+from service.demo import demo_columns
+from threadpoolctl import threadpool_limits
 
 
 def _timed(fn):
@@ -45,15 +44,28 @@ def main() -> int:
     args = ap.parse_args()
     threadpool_limits(limits=1)
 
-    prep = prepare({"columns": demo_columns(args.rows)}, "repair_cost",
-                   ["pipe_length_m", "pipe_age_years", "soil"])
+    prep = prepare(
+        {"columns": demo_columns(args.rows)},
+        "repair_cost",
+        ["pipe_length_m", "pipe_age_years", "soil"],
+    )
     opts = SearchOptions(time_limit_s=600.0)
     body, t_search = _timed(lambda: run_selection(prep, opts, "bench"))
     winner = body["ranking"][0]["specification"]
 
     def trust(stability, optimism, mapper=map, chunks=1):
-        return assess_trust(prep, opts, winner, "bench", stability, optimism, args.resamples,
-                            selection=body, mapper=mapper, chunks=chunks)
+        return assess_trust(
+            prep,
+            opts,
+            winner,
+            "bench",
+            stability,
+            optimism,
+            args.resamples,
+            selection=body,
+            mapper=mapper,
+            chunks=chunks,
+        )
 
     st, t_st = _timed(lambda: trust(True, False))
     op, t_op = _timed(lambda: trust(False, True))
@@ -61,12 +73,16 @@ def main() -> int:
     o = op["optimism"]
     print(f"rows                  : {args.rows} ({body['search']['candidates_scored']} candidates)")
     print(f"search (baseline)     : {t_search:7.1f} s")
-    print(f"stability             : {t_st:7.1f} s  = {t_st / t_search:.2f} x search  "
-          f"({det['usable']} resamples x {det['contenders']} contenders; share "
-          f"{st['stability']:.2f})")
-    print(f"optimism              : {t_op:7.1f} s  = {t_op / t_search:.2f} x search  "
-          f"({o['outer_folds']} outer x {o['inner_folds']}-fold inner; ratio "
-          f"{o['ratio']:.4f})")
+    print(
+        f"stability             : {t_st:7.1f} s  = {t_st / t_search:.2f} x search  "
+        f"({det['usable']} resamples x {det['contenders']} contenders; share "
+        f"{st['stability']:.2f})"
+    )
+    print(
+        f"optimism              : {t_op:7.1f} s  = {t_op / t_search:.2f} x search  "
+        f"({o['outer_folds']} outer x {o['inner_folds']}-fold inner; ratio "
+        f"{o['ratio']:.4f})"
+    )
     if args.processes > 1:
         mapper = process_mapper(args.processes)
         both, t_both = _timed(lambda: trust(True, True, mapper, args.processes))
@@ -74,9 +90,11 @@ def main() -> int:
         for r in (both, ref):
             r.pop("elapsed_s")
         same = json.dumps(to_jsonable(both)) == json.dumps(to_jsonable(ref))
-        print(f"both, {args.processes} processes     : {t_both:7.1f} s  = "
-              f"{t_both / t_search:.2f} x search  (in one process {t_st + t_op:.1f} s); "
-              f"same result: {same}")
+        print(
+            f"both, {args.processes} processes     : {t_both:7.1f} s  = "
+            f"{t_both / t_search:.2f} x search  (in one process {t_st + t_op:.1f} s); "
+            f"same result: {same}"
+        )
         return 0 if same else 1
     return 0
 

@@ -12,16 +12,26 @@ from pathlib import Path
 import pytest
 
 CHROMIUM = os.environ.get("BESTSCALE_CHROMIUM", "/usr/bin/chromium")
-ARGS = ["--headless=new", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+ARGS = [
+    "--headless=new",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-quic",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+]
 
 
 def _unavailable(reason: str):
     if os.environ.get("BESTSCALE_SKIP_BROWSER") == "1":
         pytest.skip(f"{reason} (BESTSCALE_SKIP_BROWSER=1)")
-    pytest.fail(f"{reason}; install it (CI: apt-get install chromium; pip install -e '.[test]') "
-                "or set BESTSCALE_SKIP_BROWSER=1 to skip browser tests on this machine",
-                pytrace=False)
+    pytest.fail(
+        f"{reason}; install it (CI: apt-get install chromium; pip install -e '.[test]') "
+        "or set BESTSCALE_SKIP_BROWSER=1 to skip browser tests on this machine",
+        pytrace=False,
+    )
 
 
 @pytest.fixture(scope="session")

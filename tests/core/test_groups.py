@@ -12,7 +12,6 @@ import math
 import numpy as np
 import pytest
 from fastapi.testclient import TestClient
-
 from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare, split_groups
@@ -50,9 +49,14 @@ SEARCH = {"response": ["identity", "log"], "predictors": ["identity", "log"]}
 
 
 def _request(columns=COLUMNS, **over) -> dict:
-    body = {"data": {"columns": columns}, "response": "repair_cost",
-            "predictors": ["pipe_length_m"], "group_by": "district", "transforms": SEARCH,
-            "top": 2}
+    body = {
+        "data": {"columns": columns},
+        "response": "repair_cost",
+        "predictors": ["pipe_length_m"],
+        "group_by": "district",
+        "transforms": SEARCH,
+        "top": 2,
+    }
     body.update(over)
     return body
 
@@ -91,8 +95,10 @@ def test_a_group_body_equals_a_request_for_that_group_alone(client):
     # the same table with every other district's cost missing: those rows are dropped, the
     # south rows keep their row numbers, so everything but the data summary must agree
     alone = dict(COLUMNS)
-    alone["repair_cost"] = [c if d == "south" else None
-                            for c, d in zip(COLUMNS["repair_cost"], COLUMNS["district"])]
+    alone["repair_cost"] = [
+        c if d == "south" else None
+        for c, d in zip(COLUMNS["repair_cost"], COLUMNS["district"], strict=True)
+    ]
     req = _request(alone)
     req.pop("group_by")
     r = client.post(URL, json=req)
@@ -125,13 +131,16 @@ def test_group_column_missing_from_the_data_points_at_group_by(client):
 
 def test_groups_in_worker_processes_equal_the_in_process_run():
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
-    opts = SearchOptions(response_transforms=SEARCH["response"],
-                         predictor_transforms=SEARCH["predictors"], top=2)
+    opts = SearchOptions(
+        response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=2
+    )
     in_process = run_grouped(prep, opts, "test")["groups"]
     parts = split_groups(prep)
-    tasks = [({"problem": _problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "test")
-             for p in parts.values()]
-    pooled = dict(zip(parts, map_in_processes(select_group, tasks, processes=2)))
+    tasks = [
+        ({"problem": _problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "test")
+        for p in parts.values()
+    ]
+    pooled = dict(zip(parts, map_in_processes(select_group, tasks, processes=2), strict=True))
     assert list(pooled) == list(in_process)
     # bit-identical JSON apart from timing fields
     assert _without_timing(to_jsonable(pooled)) == _without_timing(to_jsonable(in_process))
@@ -139,8 +148,9 @@ def test_groups_in_worker_processes_equal_the_in_process_run():
 
 def test_a_group_worker_can_assess_trust_for_its_group():
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
-    opts = SearchOptions(response_transforms=SEARCH["response"],
-                         predictor_transforms=SEARCH["predictors"], top=1)
+    opts = SearchOptions(
+        response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
+    )
     north = split_groups(prep)["north"]
     body = select_group((north, opts, "test", None, (True, False, 10, None)))
     trust = body["trust"]
@@ -154,8 +164,9 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
     import time
 
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
-    opts = SearchOptions(response_transforms=SEARCH["response"],
-                         predictor_transforms=SEARCH["predictors"], top=1)
+    opts = SearchOptions(
+        response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
+    )
     north = split_groups(prep)["north"]
     late = select_group((north, opts, "test", None, None, time.time() - 1.0))
     assert late["problem"]["status"] == 503 and "ran out" in late["problem"]["detail"]

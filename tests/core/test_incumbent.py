@@ -12,10 +12,9 @@ import math
 import numpy as np
 import pytest
 from fastapi.testclient import TestClient
+from service.app import app
 from sklearn.linear_model import LinearRegression
 from sklearn.model_selection import KFold
-
-from service.app import app
 
 URL = "/v1/selections"
 N = 200
@@ -34,27 +33,40 @@ def _columns() -> dict:
     age = rng.integers(1, 81, N)
     age[:4] = 0  # four new mains
     cost = np.round(np.exp(4.0 + 0.7 * np.log(length) + 0.01 * age + rng.normal(0, 0.2, N)), 2)
-    return {"repair_cost": cost.tolist(), "pipe_length_m": length.tolist(),
-            "pipe_age_years": [int(a) for a in age]}
+    return {
+        "repair_cost": cost.tolist(),
+        "pipe_length_m": length.tolist(),
+        "pipe_age_years": [int(a) for a in age],
+    }
 
 
 COLUMNS = _columns()
 
 
 def _spec(resp="identity", length="identity", age="identity", extra=None) -> dict:
-    preds = [{"column": "pipe_length_m", "transform": {"name": length}},
-             {"column": "pipe_age_years", "transform": {"name": age}}]
+    preds = [
+        {"column": "pipe_length_m", "transform": {"name": length}},
+        {"column": "pipe_age_years", "transform": {"name": age}},
+    ]
     if extra:
         preds.append({"column": extra, "transform": {"name": "identity"}})
-    return {"response": {"column": "repair_cost", "transform": {"name": resp}},
-            "predictors": preds, "intercept": True}
+    return {
+        "response": {"column": "repair_cost", "transform": {"name": resp}},
+        "predictors": preds,
+        "intercept": True,
+    }
 
 
 def _request(incumbent: dict, **over) -> dict:
-    body = {"data": {"columns": COLUMNS}, "response": "repair_cost",
-            "predictors": ["pipe_length_m", "pipe_age_years"],
-            "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
-            "validation": {"folds": 5, "seed": 3}, "top": 2, "incumbent": incumbent}
+    body = {
+        "data": {"columns": COLUMNS},
+        "response": "repair_cost",
+        "predictors": ["pipe_length_m", "pipe_age_years"],
+        "transforms": {"response": ["identity", "log"], "predictors": ["identity", "log"]},
+        "validation": {"folds": 5, "seed": 3},
+        "top": 2,
+        "incumbent": incumbent,
+    }
     body.update(over)
     return body
 
@@ -75,10 +87,7 @@ def _fold_rmse(log_scale: bool) -> np.ndarray:
     for train, test in KFold(5, shuffle=True, random_state=3).split(X):
         m = LinearRegression().fit(X[train], z[train])
         eta = m.predict(X[test])
-        if log_scale:
-            mean = np.exp(eta) * np.mean(np.exp(z[train] - m.predict(X[train])))
-        else:
-            mean = eta
+        mean = np.exp(eta) * np.mean(np.exp(z[train] - m.predict(X[train]))) if log_scale else eta
         out.append(math.sqrt(np.mean((y[test] - mean) ** 2)))
     return np.array(out)
 
@@ -109,11 +118,12 @@ def test_incumbent_on_a_clearly_wrong_scale_is_switched(client):
     y = np.array(COLUMNS["repair_cost"])
     # pooled RMSE over all held-out rows = sqrt(sum n_k rmse_k^2 / n)
     sizes = np.array([len(t) for _, t in KFold(5, shuffle=True, random_state=3).split(y)])
-    pooled = math.sqrt(float(np.sum(sizes * inc_folds ** 2) / sizes.sum()))
+    pooled = math.sqrt(float(np.sum(sizes * inc_folds**2) / sizes.sum()))
     assert inc["cv"]["value"] == pytest.approx(pooled, rel=1e-9)
     assert inc["difference"]["value"] == pytest.approx(d.mean(), rel=1e-9)
-    assert inc["difference"]["std_error"] == pytest.approx(np.std(d, ddof=1) / math.sqrt(5),
-                                                           rel=1e-9)
+    assert inc["difference"]["std_error"] == pytest.approx(
+        np.std(d, ddof=1) / math.sqrt(5), rel=1e-9
+    )
     assert inc["difference"]["value"] < -inc["difference"]["std_error"]
     assert "lower cross-validated rmse" in inc["reason"]
     assert f"{-d.mean():.4g}" in inc["reason"]
@@ -139,11 +149,19 @@ def test_incumbent_outside_its_transform_domain_is_switched_with_reason(client):
     assert "cannot be fitted" in inc["reason"] and "pipe_age_years" in inc["reason"]
 
 
-@pytest.mark.parametrize("incumbent,pointer", [
-    pytest.param(_spec("log", "log", extra="pipe_age_years_copy"), None, id="unknown-but-absent"),
-    pytest.param({**_spec(), "response": {"column": "pipe_age_years"}},
-                 "/incumbent/response/column", id="other-response"),
-])
+@pytest.mark.parametrize(
+    "incumbent,pointer",
+    [
+        pytest.param(
+            _spec("log", "log", extra="pipe_age_years_copy"), None, id="unknown-but-absent"
+        ),
+        pytest.param(
+            {**_spec(), "response": {"column": "pipe_age_years"}},
+            "/incumbent/response/column",
+            id="other-response",
+        ),
+    ],
+)
 def test_incumbent_problems_the_caller_must_fix(client, incumbent, pointer):
     body = _request(incumbent)
     if pointer is None:

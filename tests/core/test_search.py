@@ -2,7 +2,6 @@
 
 import numpy as np
 import pytest
-
 from service.core import transforms as tr
 from service.core.crossval import CVResult
 from service.core.data import prepare
@@ -12,8 +11,9 @@ from service.core.spec import PredictorSpec, Specification
 
 
 def _scored(resp: str, pred: str, value: float, se: float, folds=None) -> Scored:
-    spec = Specification("y", tr.from_dict({"name": resp}),
-                         (PredictorSpec("x", tr.from_dict({"name": pred})),))
+    spec = Specification(
+        "y", tr.from_dict({"name": resp}), (PredictorSpec("x", tr.from_dict({"name": pred})),)
+    )
     fv = np.array([value]) if folds is None else np.asarray(folds, float)
     return Scored(spec, CVResult("rmse", value, se, fv, {"rmse": value}))
 
@@ -22,9 +22,9 @@ def test_one_se_rule_prefers_the_simplest_inside_the_band():
     # source: Breiman et al. (1984) p. 80; Hastie, Tibshirani & Friedman (2009) p. 61
     # (single fold values: the best candidate's own standard error sets the band)
     best = _scored("box_cox", "log", 10.0, 1.0)
-    simple = _scored("identity", "identity", 10.9, 1.0)   # inside best + 1 SE
-    middle = _scored("log", "log", 10.5, 1.0)              # inside, less simple
-    outside = _scored("identity", "sqrt", 11.5, 1.0)       # outside the band
+    simple = _scored("identity", "identity", 10.9, 1.0)  # inside best + 1 SE
+    middle = _scored("log", "log", 10.5, 1.0)  # inside, less simple
+    outside = _scored("identity", "sqrt", 11.5, 1.0)  # outside the band
     ranked, lowest = rank([best, simple, middle, outside])
     assert lowest == pytest.approx(10.0)
     order = [s for s, _ in ranked]
@@ -81,8 +81,13 @@ def test_failed_candidates_do_not_stop_the_search():
     x = rng.uniform(0, 5, 80)
     y = np.exp(0.3 * x + rng.normal(0, 1.0, 80))
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
-    out = run_selection(prep, SearchOptions(response_transforms=["identity", "reciprocal"],
-                                            predictor_transforms=["identity"]), "t")
+    out = run_selection(
+        prep,
+        SearchOptions(
+            response_transforms=["identity", "reciprocal"], predictor_transforms=["identity"]
+        ),
+        "t",
+    )
     assert out["search"]["candidates_scored"] >= 1
     for f in out["search"]["failures"]:
         assert f["reason"]
@@ -123,8 +128,9 @@ def test_grouped_selection_shares_one_time_budget():
     x = rng.uniform(1, 10, n)
     y = 2.0 + 0.5 * x + rng.normal(0, 0.3, n)
     g = [f"g{i % 8}" for i in range(n)]
-    prep = prep_fn({"columns": {"y": y.tolist(), "x": x.tolist(), "g": g}}, "y", ["x"],
-                   group_by="g")
+    prep = prep_fn(
+        {"columns": {"y": y.tolist(), "x": x.tolist(), "g": g}}, "y", ["x"], group_by="g"
+    )
     out = run_grouped(prep, SearchOptions(time_limit_s=1e-6), "t")
     assert out["search"]["groups"] == 8
     assert out["search"]["complete"] is False

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from service.core.data import prepare
 from service.core.search import SearchOptions, run_selection
 from service.core.strategy import EXHAUSTIVE_LIMIT
@@ -20,19 +19,30 @@ def _problem(seed: int, n: int = 220, p: int = 3):
     cols = {f"x{j}": rng.uniform(0.5, 6.0, n) for j in range(p)}
     kind = seed % 3
     eta = 0.4
-    for j, (name, x) in enumerate(cols.items()):
+    for j, (_name, x) in enumerate(cols.items()):
         g = [np.log, np.sqrt, lambda v: v, np.square][(seed + j) % 4](x)
         eta = eta + (0.5 - 0.2 * j) * g / np.std(g)
     noise = rng.normal(0, 0.25, n)
-    y = np.exp(0.3 * eta + noise) if kind == 0 else (np.maximum(2.0 + eta + noise, 0.05) if kind == 1
-                                                      else (1.5 + 0.3 * eta + 0.3 * noise) ** 2)
+    y = (
+        np.exp(0.3 * eta + noise)
+        if kind == 0
+        else (
+            np.maximum(2.0 + eta + noise, 0.05)
+            if kind == 1
+            else (1.5 + 0.3 * eta + 0.3 * noise) ** 2
+        )
+    )
     cols["y"] = y
-    return prepare({"columns": {k: v.tolist() for k, v in cols.items()}}, "y",
-                   [f"x{j}" for j in range(p)])
+    return prepare(
+        {"columns": {k: v.tolist() for k, v in cols.items()}}, "y", [f"x{j}" for j in range(p)]
+    )
 
 
-SPACE = dict(response_transforms=["identity", "log", "sqrt"],
-             predictor_transforms=["identity", "log", "sqrt", "square"], top=1)
+SPACE = {
+    "response_transforms": ["identity", "log", "sqrt"],
+    "predictor_transforms": ["identity", "log", "sqrt", "square"],
+    "top": 1,
+}
 
 
 @pytest.mark.parametrize("seed", range(6))
@@ -41,11 +51,12 @@ def test_screened_search_finds_the_exhaustive_optimum(seed):
     full = run_selection(prep, SearchOptions(strategy="exhaustive", **SPACE), "t")
     smart = run_selection(prep, SearchOptions(strategy="screened", **SPACE), "t")
     assert full["search"]["complete"] is True
-    assert full["search"]["candidates_scored"] + full["search"]["candidates_failed"] == 3 * 4 ** 3
+    assert full["search"]["candidates_scored"] + full["search"]["candidates_failed"] == 3 * 4**3
     # source: the exhaustive search over the same 192 candidates (same folds)
     assert smart["search"]["best_cv"]["specification"] == full["search"]["best_cv"]["specification"]
-    assert smart["search"]["best_cv"]["value"] == pytest.approx(full["search"]["best_cv"]["value"],
-                                                                rel=1e-12)
+    assert smart["search"]["best_cv"]["value"] == pytest.approx(
+        full["search"]["best_cv"]["value"], rel=1e-12
+    )
     assert smart["search"]["candidates_scored"] < full["search"]["candidates_scored"]
     assert smart["search"]["strategy"]["name"] == "screened"
 
@@ -53,8 +64,10 @@ def test_screened_search_finds_the_exhaustive_optimum(seed):
 def test_baselines_are_always_scored():
     prep = _problem(1, p=4)
     out = run_selection(prep, SearchOptions(strategy="screened", **SPACE), "t")
-    keys = {(s.spec.response_transform.name, tuple(p.transform.name for p in s.spec.predictors))
-            for s in out["_scored"]}
+    keys = {
+        (s.spec.response_transform.name, tuple(p.transform.name for p in s.spec.predictors))
+        for s in out["_scored"]
+    }
     for r in ("identity", "log", "sqrt"):
         assert (r, ("identity",) * 4) in keys
         assert (r, ("log",) * 4) in keys
@@ -64,7 +77,7 @@ def test_auto_switches_to_screened_past_the_limit_and_honours_max_candidates():
     prep = _problem(2, n=200, p=6)  # 3 x 4^6 = 12288 candidates
     out = run_selection(prep, SearchOptions(max_candidates=40, **SPACE), "t")
     s = out["search"]
-    assert s["candidates_considered"] == 3 * 4 ** 6 > EXHAUSTIVE_LIMIT
+    assert s["candidates_considered"] == 3 * 4**6 > EXHAUSTIVE_LIMIT
     assert s["strategy"]["name"] == "screened"
     assert s["candidates_scored"] + s["candidates_failed"] <= 40
     assert s["candidates_screened"] > 0

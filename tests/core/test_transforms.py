@@ -19,7 +19,6 @@ from hypothesis import strategies as st
 from hypothesis.configuration import set_hypothesis_home_dir
 from scipy import stats
 from scipy.differentiate import derivative
-
 from service.core import transforms as tr
 from service.core.fitting import ols
 from service.core.likelihood import profile_loglik
@@ -29,14 +28,16 @@ from service.core.likelihood import profile_loglik
 set_hypothesis_home_dir(os.path.join(tempfile.gettempdir(), "bestscale-hypothesis"))
 
 LAMBDAS = st.floats(min_value=-2.5, max_value=2.5, allow_nan=False, allow_infinity=False)
-EXPONENTS = st.one_of(st.floats(min_value=-3.0, max_value=-0.05),
-                      st.floats(min_value=0.05, max_value=3.0))
+EXPONENTS = st.one_of(
+    st.floats(min_value=-3.0, max_value=-0.05), st.floats(min_value=0.05, max_value=3.0)
+)
 SHIFTS = st.floats(min_value=0.0, max_value=100.0)
 POSITIVE = st.lists(st.floats(min_value=1e-2, max_value=1e2), min_size=1, max_size=25)
 REAL = st.lists(st.floats(min_value=-1e2, max_value=1e2), min_size=1, max_size=25)
 # zero, or large enough that x * x does not underflow
-NONNEG = st.lists(st.one_of(st.just(0.0), st.floats(min_value=1e-100, max_value=1e6)),
-                  min_size=1, max_size=25)
+NONNEG = st.lists(
+    st.one_of(st.just(0.0), st.floats(min_value=1e-100, max_value=1e6)), min_size=1, max_size=25
+)
 
 
 @st.composite
@@ -46,8 +47,11 @@ def family_and_data(draw, away_from_zero: float = 0.0):
     ``away_from_zero`` moves values closer to 0 than that out to +-away_from_zero (for
     numerical derivatives, whose stencils must not cross a branch point or domain edge).
     """
-    kind = draw(st.sampled_from(["identity", "log", "sqrt", "reciprocal", "square", "power",
-                                 "box_cox", "yeo_johnson"]))
+    kind = draw(
+        st.sampled_from(
+            ["identity", "log", "sqrt", "reciprocal", "square", "power", "box_cox", "yeo_johnson"]
+        )
+    )
     if kind == "identity":
         t, x = tr.Transform("identity"), np.array(draw(REAL))
     elif kind == "log":
@@ -55,8 +59,10 @@ def family_and_data(draw, away_from_zero: float = 0.0):
     elif kind in ("sqrt", "square"):
         t, x = tr.Transform(kind), np.array(draw(NONNEG))
     elif kind == "reciprocal":
-        t, x = tr.Transform(kind), np.array(draw(st.lists(st.floats(1e-6, 1e6), min_size=1,
-                                                          max_size=25)))
+        t, x = (
+            tr.Transform(kind),
+            np.array(draw(st.lists(st.floats(1e-6, 1e6), min_size=1, max_size=25))),
+        )
     elif kind == "power":
         t, x = tr.Transform("power", exponent=draw(EXPONENTS)), np.array(draw(POSITIVE))
     elif kind == "box_cox":
@@ -87,8 +93,12 @@ def test_inverse_undoes_forward_for_every_family(case):
 def test_box_cox_forward_equals_scipy(lam, xs):
     x = np.array(xs)
     # source: scipy.stats.boxcox(x, lmbda) = (x**lmbda - 1)/lmbda, log at 0 (reference library)
-    np.testing.assert_allclose(tr.Transform("box_cox", lam=lam).forward(x),
-                               stats.boxcox(x, lmbda=lam), rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(
+        tr.Transform("box_cox", lam=lam).forward(x),
+        stats.boxcox(x, lmbda=lam),
+        rtol=1e-9,
+        atol=1e-12,
+    )
 
 
 @settings(max_examples=60, deadline=None, derandomize=True)
@@ -96,8 +106,12 @@ def test_box_cox_forward_equals_scipy(lam, xs):
 def test_yeo_johnson_forward_equals_scipy(lam, xs):
     x = np.array(xs)
     # source: scipy.stats.yeojohnson(x, lmbda), Yeo & Johnson (2000) definition
-    np.testing.assert_allclose(tr.Transform("yeo_johnson", lam=lam).forward(x),
-                               stats.yeojohnson(x, lmbda=lam), rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(
+        tr.Transform("yeo_johnson", lam=lam).forward(x),
+        stats.yeojohnson(x, lmbda=lam),
+        rtol=1e-9,
+        atol=1e-12,
+    )
 
 
 @pytest.mark.parametrize("lam", [-0.5, 0.0, 0.7, 2.0, 2.5])
@@ -148,9 +162,14 @@ def _llf_y(z: np.ndarray, X: np.ndarray, jac: float) -> float:
     return float(sm.OLS(z, X).fit().llf) + jac
 
 
-RUNGS = [(-1.0, tr.Transform("reciprocal")), (-0.5, tr.Transform("power", exponent=-0.5)),
-         (0.0, tr.Transform("log", shift=0.0)), (0.5, tr.Transform("sqrt")),
-         (1.0, tr.Transform("identity")), (2.0, tr.Transform("square"))]
+RUNGS = [
+    (-1.0, tr.Transform("reciprocal")),
+    (-0.5, tr.Transform("power", exponent=-0.5)),
+    (0.0, tr.Transform("log", shift=0.0)),
+    (0.5, tr.Transform("sqrt")),
+    (1.0, tr.Transform("identity")),
+    (2.0, tr.Transform("square")),
+]
 
 
 @settings(max_examples=15, deadline=None, derandomize=True)
@@ -189,7 +208,8 @@ def test_standardised_log_with_n_log_a_equals_plain_log():
     # source: affine invariance of the y-scale likelihood: a standardised log (adding n log a)
     # equals the plain log
     assert fit_std.llf + t.log_jacobian(y) + n * math.log(a) == pytest.approx(
-        fit_plain.llf + t.log_jacobian(y), rel=1e-9)
+        fit_plain.llf + t.log_jacobian(y), rel=1e-9
+    )
     # and our z-scale llf is statsmodels' (tolerance: independent implementation, rel 1e-7)
     assert fit_plain.llf == pytest.approx(sm.OLS(z, X).fit().llf, rel=1e-7)
 
@@ -200,26 +220,48 @@ ZERO = np.array([3.0, 0.0, 2.0, 4.0])
 POS = np.array([3.0, 0.5, 2.0, 4.0])
 
 
-@pytest.mark.parametrize("t, x, minimum, fixes", [
-    pytest.param(tr.Transform("log"), NEG, "-1.5", ["yeo_johnson", "shift"], id="log-negative"),
-    pytest.param(tr.Transform("log", shift=0.0), ZERO, "0", ["yeo_johnson", "shift"],
-                 id="log-shift0-zero"),
-    pytest.param(tr.Transform("log", shift=1.0), np.array([3.0, -2.0]), "-2",
-                 ["yeo_johnson", "shift"], id="log-shift-too-small"),
-    pytest.param(tr.Transform("sqrt"), NEG, "-1.5", ["yeo_johnson"], id="sqrt-negative"),
-    pytest.param(tr.Transform("square"), NEG, "-1.5", ["yeo_johnson"], id="square-negative"),
-    pytest.param(tr.Transform("power", exponent=0.5), NEG, "-1.5", ["yeo_johnson"],
-                 id="power+-negative"),
-    pytest.param(tr.Transform("power", exponent=-0.5), ZERO, "0", ["yeo_johnson", "log"],
-                 id="power--zero"),
-    pytest.param(tr.Transform("reciprocal"), ZERO, "0", ["yeo_johnson", "log"],
-                 id="reciprocal-zero"),
-    pytest.param(tr.Transform("reciprocal"), NEG, "-1.5", ["yeo_johnson"],
-                 id="reciprocal-negative"),
-    pytest.param(tr.Transform("box_cox"), ZERO, "0", ["yeo_johnson", "log"], id="box_cox-zero"),
-    pytest.param(tr.Transform("box_cox", lam=0.5), NEG, "-1.5", ["yeo_johnson"],
-                 id="box_cox-negative"),
-])
+@pytest.mark.parametrize(
+    "t, x, minimum, fixes",
+    [
+        pytest.param(tr.Transform("log"), NEG, "-1.5", ["yeo_johnson", "shift"], id="log-negative"),
+        pytest.param(
+            tr.Transform("log", shift=0.0),
+            ZERO,
+            "0",
+            ["yeo_johnson", "shift"],
+            id="log-shift0-zero",
+        ),
+        pytest.param(
+            tr.Transform("log", shift=1.0),
+            np.array([3.0, -2.0]),
+            "-2",
+            ["yeo_johnson", "shift"],
+            id="log-shift-too-small",
+        ),
+        pytest.param(tr.Transform("sqrt"), NEG, "-1.5", ["yeo_johnson"], id="sqrt-negative"),
+        pytest.param(tr.Transform("square"), NEG, "-1.5", ["yeo_johnson"], id="square-negative"),
+        pytest.param(
+            tr.Transform("power", exponent=0.5), NEG, "-1.5", ["yeo_johnson"], id="power+-negative"
+        ),
+        pytest.param(
+            tr.Transform("power", exponent=-0.5),
+            ZERO,
+            "0",
+            ["yeo_johnson", "log"],
+            id="power--zero",
+        ),
+        pytest.param(
+            tr.Transform("reciprocal"), ZERO, "0", ["yeo_johnson", "log"], id="reciprocal-zero"
+        ),
+        pytest.param(
+            tr.Transform("reciprocal"), NEG, "-1.5", ["yeo_johnson"], id="reciprocal-negative"
+        ),
+        pytest.param(tr.Transform("box_cox"), ZERO, "0", ["yeo_johnson", "log"], id="box_cox-zero"),
+        pytest.param(
+            tr.Transform("box_cox", lam=0.5), NEG, "-1.5", ["yeo_johnson"], id="box_cox-negative"
+        ),
+    ],
+)
 def test_domain_message_names_column_value_and_fix(t, x, minimum, fixes):
     msg = t.domain_problem(x, "cost", "response")
     assert msg is not None
@@ -229,15 +271,27 @@ def test_domain_message_names_column_value_and_fix(t, x, minimum, fixes):
         assert word in msg
 
 
-@pytest.mark.parametrize("t, x", [
-    pytest.param(tr.Transform("yeo_johnson"), NEG, id="yeo_johnson-any"),
-    pytest.param(tr.Transform("identity"), NEG, id="identity-any"),
-    pytest.param(tr.Transform("log"), ZERO, id="log-zero-gets-shift"),
-    pytest.param(tr.Transform("sqrt"), ZERO, id="sqrt-zero"),
-    pytest.param(tr.Transform("power", exponent=0.5), ZERO, id="power+-zero"),
-] + [pytest.param(tr.Transform(n, **kw), POS, id=f"{n}-positive") for n, kw in [
-    ("log", {}), ("sqrt", {}), ("reciprocal", {}), ("square", {}), ("box_cox", {}),
-    ("power", {"exponent": -2.0})]])
+@pytest.mark.parametrize(
+    "t, x",
+    [
+        pytest.param(tr.Transform("yeo_johnson"), NEG, id="yeo_johnson-any"),
+        pytest.param(tr.Transform("identity"), NEG, id="identity-any"),
+        pytest.param(tr.Transform("log"), ZERO, id="log-zero-gets-shift"),
+        pytest.param(tr.Transform("sqrt"), ZERO, id="sqrt-zero"),
+        pytest.param(tr.Transform("power", exponent=0.5), ZERO, id="power+-zero"),
+    ]
+    + [
+        pytest.param(tr.Transform(n, **kw), POS, id=f"{n}-positive")
+        for n, kw in [
+            ("log", {}),
+            ("sqrt", {}),
+            ("reciprocal", {}),
+            ("square", {}),
+            ("box_cox", {}),
+            ("power", {"exponent": -2.0}),
+        ]
+    ],
+)
 def test_no_domain_problem_inside_the_domain(t, x):
     assert t.domain_problem(x, "cost", "response") is None
 

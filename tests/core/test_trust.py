@@ -10,13 +10,19 @@ import math
 
 import numpy as np
 import pytest
-from statsmodels.stats.proportion import proportion_confint
-
 from service.core.data import prepare
 from service.core.errors import InputError
 from service.core.search import SearchOptions, run_selection
-from service.core.trust import (OPTIMISM_WARN_RATIO, assess_trust, has_estimated_power, label,
-                                scale_key, subset, wilson_interval)
+from service.core.trust import (
+    OPTIMISM_WARN_RATIO,
+    assess_trust,
+    has_estimated_power,
+    label,
+    scale_key,
+    subset,
+    wilson_interval,
+)
+from statsmodels.stats.proportion import proportion_confint
 
 
 def _select(prep, opts):
@@ -32,8 +38,11 @@ def _clear_log_log(n=150, seed=11):
     return prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
 
 
-CLEAR_OPTS = SearchOptions(response_transforms=["identity", "log", "sqrt"],
-                           predictor_transforms=["identity", "log", "sqrt"], top=1)
+CLEAR_OPTS = SearchOptions(
+    response_transforms=["identity", "log", "sqrt"],
+    predictor_transforms=["identity", "log", "sqrt"],
+    top=1,
+)
 
 
 def _tied_scales(n=200, seed=5):
@@ -52,8 +61,9 @@ def _tied_scales(n=200, seed=5):
     return prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
 
 
-TIED_OPTS = SearchOptions(response_transforms=["identity"],
-                          predictor_transforms=["sqrt", "reciprocal"], top=1)
+TIED_OPTS = SearchOptions(
+    response_transforms=["identity"], predictor_transforms=["sqrt", "reciprocal"], top=1
+)
 
 
 @pytest.mark.parametrize("wins,n", [(0, 20), (19, 20), (20, 20), (7, 40), (1, 3)])
@@ -66,8 +76,11 @@ def test_wilson_interval_matches_statsmodels(wins, n):
 
 def test_subset_keeps_rows_and_their_order():
     rng = np.random.default_rng(0)
-    cols = {"y": rng.uniform(1, 2, 12).tolist(), "x": rng.uniform(1, 2, 12).tolist(),
-            "t": rng.permutation(12).tolist()}
+    cols = {
+        "y": rng.uniform(1, 2, 12).tolist(),
+        "x": rng.uniform(1, 2, 12).tolist(),
+        "t": rng.permutation(12).tolist(),
+    }
     prep = prepare({"columns": cols}, "y", ["x"], order="t")
     rows = np.array([0, 2, 3, 7, 8, 11])
     sub = subset(prep, rows)
@@ -81,8 +94,7 @@ def test_stability_near_one_when_one_scale_is_clearly_right():
     prep = _clear_log_log()
     body, winner = _select(prep, CLEAR_OPTS)
     assert label_of(winner) == "log(y) on log(x)"  # source: the simulation's construction
-    out = assess_trust(prep, CLEAR_OPTS, winner, "test", True, False, resamples=40,
-                       selection=body)
+    out = assess_trust(prep, CLEAR_OPTS, winner, "test", True, False, resamples=40, selection=body)
     # Tolerance: the other scales miss the curvature by many standard errors, so the true
     # share is ~1; at least 36 of 40 (0.9) allows for the bootstrap's sampling noise (a
     # true share of 0.99 gives fewer than 36 wins with probability 5e-5: binomial tail).
@@ -98,8 +110,7 @@ def test_stability_near_one_when_one_scale_is_clearly_right():
 def test_stability_clearly_below_one_when_two_scales_fit_equally_well():
     prep = _tied_scales()
     body, winner = _select(prep, TIED_OPTS)
-    out = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=60,
-                       selection=body)
+    out = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=60, selection=body)
     # The two candidates have the same simplicity and identical fits on all rows, so each
     # bootstrap resample is a near coin flip between them: the share is ~1/2.  Tolerance:
     # 0.8 is far above it (Bin(60, 1/2) exceeds 48 wins with probability 4e-7, and the
@@ -152,8 +163,11 @@ def test_optimism_positive_when_many_candidates_chase_noise():
     # Nine candidates of equal simplicity (sqrt, 1/x, x^2 of each predictor) and a response
     # unrelated to them: the winner is the luckiest of nine noisy CV estimates, so its error
     # understates that of the procedure (Varma & Simon 2006; Cawley & Talbot 2010).
-    opts = SearchOptions(response_transforms=["identity"],
-                         predictor_transforms=["sqrt", "reciprocal", "square"], top=1)
+    opts = SearchOptions(
+        response_transforms=["identity"],
+        predictor_transforms=["sqrt", "reciprocal", "square"],
+        top=1,
+    )
     gaps = []
     for seed in range(8):
         prep = _noise(seed)
@@ -188,8 +202,9 @@ def test_trust_without_a_selection_runs_the_search_itself():
 def test_time_limit_cuts_resamples_and_says_so():
     prep = _tied_scales(n=80)
     body, winner = _select(prep, TIED_OPTS)
-    out = assess_trust(prep, TIED_OPTS, winner, "test", True, True, resamples=10,
-                       selection=body, time_limit_s=1e-9)
+    out = assess_trust(
+        prep, TIED_OPTS, winner, "test", True, True, resamples=10, selection=body, time_limit_s=1e-9
+    )
     det = out["stability_details"]
     assert det["not_run"] == 10 and det["usable"] == 0 and det["complete"] is False
     assert out["stability"] is None
@@ -197,11 +212,14 @@ def test_time_limit_cuts_resamples_and_says_so():
     assert any("could not be measured" in w for w in out["warnings"])
 
 
-@pytest.mark.parametrize("kw,ptr", [
-    pytest.param({"resamples": 0}, "/trust/resamples", id="no-resamples"),
-    pytest.param({"resamples": 5000}, "/trust/resamples", id="too-many-resamples"),
-    pytest.param({"outer_folds": 1}, "/trust/outer_folds", id="one-outer-fold"),
-])
+@pytest.mark.parametrize(
+    "kw,ptr",
+    [
+        pytest.param({"resamples": 0}, "/trust/resamples", id="no-resamples"),
+        pytest.param({"resamples": 5000}, "/trust/resamples", id="too-many-resamples"),
+        pytest.param({"outer_folds": 1}, "/trust/outer_folds", id="one-outer-fold"),
+    ],
+)
 def test_bad_settings_point_at_the_field(kw, ptr):
     prep = _tied_scales(n=40)
     body, winner = _select(prep, TIED_OPTS)
@@ -211,13 +229,24 @@ def test_bad_settings_point_at_the_field(kw, ptr):
 
 
 def test_scale_key_ignores_values_estimated_from_the_response():
-    concrete = {"response": {"column": "y", "transform": {"name": "box_cox", "lambda": 0.31,
-                                                          "estimated": True}},
-                "predictors": [{"column": "x", "transform": {"name": "log"}}], "intercept": True}
-    open_ = {"response": {"column": "y", "transform": {"name": "box_cox"}},
-             "predictors": [{"column": "x", "transform": {"name": "log"}}], "intercept": True}
-    fixed = {"response": {"column": "y", "transform": {"name": "box_cox", "lambda": 0.31}},
-             "predictors": [{"column": "x", "transform": {"name": "log"}}], "intercept": True}
+    concrete = {
+        "response": {
+            "column": "y",
+            "transform": {"name": "box_cox", "lambda": 0.31, "estimated": True},
+        },
+        "predictors": [{"column": "x", "transform": {"name": "log"}}],
+        "intercept": True,
+    }
+    open_ = {
+        "response": {"column": "y", "transform": {"name": "box_cox"}},
+        "predictors": [{"column": "x", "transform": {"name": "log"}}],
+        "intercept": True,
+    }
+    fixed = {
+        "response": {"column": "y", "transform": {"name": "box_cox", "lambda": 0.31}},
+        "predictors": [{"column": "x", "transform": {"name": "log"}}],
+        "intercept": True,
+    }
     assert scale_key(concrete) == scale_key(open_) != scale_key(fixed)
 
 
@@ -240,5 +269,9 @@ def test_estimated_predictor_powers_match_their_open_candidate():
     shifted = spec(tr.Transform("log", shift=0.5, estimated=True))  # shift from the column
     keys = [scale_key(s.to_dict()) for s in (fitted, at_zero, fixed, shifted)]
     assert keys[0] == keys[1] and len(set(keys)) == 3
-    assert [has_estimated_power(s) for s in (fitted, at_zero, fixed, shifted)] == \
-        [True, True, False, False]
+    assert [has_estimated_power(s) for s in (fitted, at_zero, fixed, shifted)] == [
+        True,
+        True,
+        False,
+        False,
+    ]

@@ -7,7 +7,6 @@ import pickle
 
 import numpy as np
 import pytest
-
 from service.api.encode import to_jsonable
 from service.core.data import prepare
 from service.core.search import SearchOptions, run_selection
@@ -41,12 +40,15 @@ def test_results_keep_input_order_and_come_from_other_processes():
     assert all(b in ([], [1]) for _, _, b in out)
 
 
-@pytest.mark.parametrize("items,processes", [
-    pytest.param([1, 2, 3], 1, id="one-process"),
-    pytest.param([1, 2, 3], 0, id="zero-processes"),
-    pytest.param([5], 4, id="single-item"),
-    pytest.param([], 2, id="no-items"),
-])
+@pytest.mark.parametrize(
+    "items,processes",
+    [
+        pytest.param([1, 2, 3], 1, id="one-process"),
+        pytest.param([1, 2, 3], 0, id="zero-processes"),
+        pytest.param([5], 4, id="single-item"),
+        pytest.param([], 2, id="no-items"),
+    ],
+)
 def test_small_work_runs_in_this_process(items, processes):
     out = map_in_processes(_square_and_pid, items, processes)
     assert [v for v, _ in out] == [x * x for x in items]
@@ -61,12 +63,19 @@ def test_an_error_in_a_worker_is_raised_here():
 def test_prepared_and_options_pickle_to_the_same_selection():
     rng = np.random.default_rng(2)
     x = rng.uniform(1, 50, 60)
-    cols = {"y": np.exp(0.5 + 0.6 * np.log(x) + rng.normal(0, 0.1, 60)).tolist(),
-            "x": x.tolist(), "kind": rng.choice(["cast", "ductile"], 60).tolist(),
-            "t": list(range(60))}
+    cols = {
+        "y": np.exp(0.5 + 0.6 * np.log(x) + rng.normal(0, 0.1, 60)).tolist(),
+        "x": x.tolist(),
+        "kind": rng.choice(["cast", "ductile"], 60).tolist(),
+        "t": list(range(60)),
+    }
     prep = prepare({"columns": cols}, "y", ["x", "kind"], order="t")
-    opts = SearchOptions(response_transforms=["identity", "log"],
-                         predictor_transforms=["identity", "log"], top=1, units={"x": "m"})
+    opts = SearchOptions(
+        response_transforms=["identity", "log"],
+        predictor_transforms=["identity", "log"],
+        top=1,
+        units={"x": "m"},
+    )
     prep2, opts2 = pickle.loads(pickle.dumps((prep, opts)))
     assert prep2.fingerprint() == prep.fingerprint()
     assert opts2 == opts
