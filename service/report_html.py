@@ -443,9 +443,10 @@ def _why(entry: dict) -> str:
         out.append(f"It has the lowest cross-validated {metric} ({num(cv.get('value'))}).")
     elif parts.get("within_one_se"):
         out.append(
-            f"Its cross-validated {metric} ({num(cv.get('value'))}) is within one paired "
-            f"standard error ({num(parts.get('paired_std_error'))}) of the lowest "
-            f"({num(best)}); among such specifications the simpler one ranks first."
+            f"Its cross-validated {metric} ({num(cv.get('value'))}) is inside the band: at "
+            f"most {num(parts.get('one_se_threshold'))}, the lowest ({num(best)}) plus the "
+            "standard error of the lowest-error specification; inside the band the simpler "
+            "one ranks first."
         )
     else:
         out.append(

@@ -123,8 +123,18 @@ class ConditionsOut(_Open):
 
 
 class ScoreOut(_Open):
-    value: Num
-    parts: dict[str, Any] = Field(..., description="the numbers and the rule that placed it")
+    """How the rank was decided.  There is no single score value: the order is the band
+    rule (``search.band``), then simplicity, conditions and error, as ``parts`` states."""
+
+    cv_ratio: Num = Field(
+        ..., description="this entry's CV error divided by the lowest in the list (1 = lowest)"
+    )
+    parts: dict[str, Any] = Field(
+        ...,
+        description="the numbers and the rule that placed it: cv_value, best_cv_value, "
+        "one_se_threshold (the request's one band threshold), within_one_se, simplicity "
+        "{estimated, readability, transformed_columns}, conditions_failed, rule",
+    )
 
 
 class EntryOut(_Open):

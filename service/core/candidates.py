@@ -77,6 +77,9 @@ def response_candidates(prep: Prepared, response_transforms) -> list[tr.Transfor
                 continue
             if t not in out:
                 out.append(t)
+    if not explicit and np.min(y) > 0 and any(t.name == "box_cox" for t in out):
+        # on a strictly positive response Yeo-Johnson is Box-Cox of y + 1: one family suffices
+        out = [t for t in out if t.name != "yeo_johnson"]
     return out
 
 

@@ -110,7 +110,13 @@ def diagnose_specification(
             "best_cv_value": cv.value,
             "one_se_threshold": cv.value + cv.std_error,
             "within_one_se": True,
-            "simplicity": list(spec.simplicity()),
+            "simplicity": dict(
+                zip(
+                    ("estimated", "readability", "transformed_columns"),
+                    spec.simplicity(),
+                    strict=True,
+                )
+            ),
             "rule": "a single specification as sent; nothing was ranked",
         }
         entry = entry_for(spec, cv, plan, prep, parts, opts, service_version)

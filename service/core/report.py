@@ -156,7 +156,7 @@ def entry_for(
             for row in fit.table()
         ],
         "score": {
-            "value": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
+            "cv_ratio": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
             "parts": parts,
         },
         "model": build_model(

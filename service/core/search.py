@@ -216,7 +216,9 @@ def run_selection(
             "they are left out of the ranking."
         )
 
-    ranked, _ = rank(scored, plan.folds)
+    listable, read_notes, scales_info = distinct_scales(scored, ev, prep, plan, shift_needed)
+    band = Band.of(listable)
+    ranked, _ = rank(listable, plan.folds, band)
     cache: dict = {}
 
     def full(s: Scored, parts: dict) -> dict:
@@ -225,6 +227,8 @@ def run_selection(
             cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
             if key in ev.powers:
                 cache[key].setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
+            if key in read_notes:
+                cache[key].setdefault("estimates", {})["read_as_ladder"] = read_notes[key]
         return cache[key]
 
     ranked = _order_by_conditions(ranked, full, opts, warnings)
@@ -242,7 +246,9 @@ def run_selection(
             )
             continue
         i = len(entries)
-        entry["score"] = {"value": entry["score"]["value"], "parts": parts}
+        if "conditions_failed" not in parts:
+            parts = {**parts, "conditions_failed": failed(entry.get("conditions"))}
+        entry["score"] = {**entry["score"], "parts": parts}
         if entry_hook is not None:
             entry_hook(entry, {"spec": s.spec, "prep": prep, "opts": opts})
         entries.append({"rank": i + 1, **entry})
@@ -254,7 +260,7 @@ def run_selection(
     incumbent_block = None
     if opts.incumbent is not None:
         incumbent_block = _incumbent(
-            opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook
+            opts, prep, plan, shift_needed, listable, ranked, entries, entry_hook, band
         )
     elapsed = time.perf_counter() - t0
     search = {
@@ -274,6 +280,8 @@ def run_selection(
             "std_error": best.cv.std_error,
             "specification": best.spec.to_dict(),
         },
+        "band": band.to_dict(),
+        "distinct_scales": scales_info,
         "failures": failures,
         "exact_refits": int(sum(s.cv.exact_refits for s in scored)),
     }
@@ -298,11 +306,13 @@ def run_selection(
     body = {"data": prep.data_summary(), "search": search, "ranking": entries}
     if incumbent_block is not None:
         body["incumbent"] = incumbent_block
-    body.update(warnings=warnings, _scored=scored, _plan=plan)
+    body.update(warnings=warnings, _scored=listable, _plan=plan)
     return body
 
 
-def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook) -> dict:
+def _incumbent(
+    opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook, band=None
+) -> dict:
     spec, why = incumbent.incumbent_spec(
         opts.incumbent, prep, prep.predictors, set(prep.table_columns)
     )
@@ -320,7 +330,7 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
                 position = i + 1
                 break
         if position is None:
-            again, _ = rank([*scored, Scored(spec, inc_cv)], plan.folds)
+            again, _ = rank([*scored, Scored(spec, inc_cv)], plan.folds, band)
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
         try:
             conditions = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "")["conditions"]
@@ -340,87 +350,142 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
     )
 
 
-def rank(scored: list[Scored], folds: int | None = None) -> tuple[list[tuple[Scored, dict]], float]:
-    """Order by the one-standard-error rule with paired fold differences.
+BAND_SOURCE = (
+    "one-standard-error rule: Breiman, Friedman, Olshen & Stone (1984), Classification and "
+    "Regression Trees, sec. 3.4.3; Hastie, Tibshirani & Friedman (2009), The Elements of "
+    "Statistical Learning, 2nd ed., sec. 7.10"
+)
 
-    A candidate is inside the band when its CV error exceeds the lowest by no
-    more than the standard error of its paired fold differences from the best
-    (sd(d)/sqrt(K), the same convention as the CV standard error).  Pairing
-    uses the shared folds: a candidate that loses on every fold is outside the
-    band even if the fold errors themselves vary a lot.  With a single fold
-    value the best candidate's own standard error is used.  Returns the
+
+@dataclass(frozen=True)
+class Band:
+    """The one band of a request: lowest CV error plus the standard error of that candidate."""
+
+    lowest: float
+    std_error: float
+    threshold: float
+    metric: str = "rmse"
+
+    @classmethod
+    def of(cls, scored: list[Scored]) -> Band:
+        best = min(scored, key=lambda s: (s.cv.value, s.spec.simplicity()))
+        se = float(best.cv.std_error) if math.isfinite(best.cv.std_error) else 0.0
+        return cls(float(best.cv.value), se, float(best.cv.value) + se, best.cv.metric)
+
+    def to_dict(self) -> dict:
+        return {
+            "lowest_cv_value": self.lowest,
+            "std_error_of_lowest": self.std_error,
+            "threshold": self.threshold,
+            "rule": (
+                "candidates whose cross-validated error is at most the lowest error plus the "
+                "standard error of the lowest-error candidate form the band; inside it the "
+                "simplest ranks first (fewer parameters estimated from the response, then "
+                "the readability cost, then fewer transformed columns, then lower error), "
+                "then fewer failed regression conditions among the leading band members; "
+                "outside it candidates follow by error"
+            ),
+            "source": BAND_SOURCE,
+        }
+
+
+def band_order(cv: list[float], simplicity: list[tuple], threshold: float) -> list[int]:
+    """Positions in ranking order: band members by (simplicity, error), then the rest by error."""
+    idx = range(len(cv))
+    inside = sorted((i for i in idx if cv[i] <= threshold), key=lambda i: (simplicity[i], cv[i], i))
+    outside = sorted((i for i in idx if cv[i] > threshold), key=lambda i: (cv[i], simplicity[i], i))
+    return inside + outside
+
+
+def condition_order(order: list[int], inside: list[bool], n_failed: dict, lead: int) -> list[int]:
+    """Re-order the first ``lead`` band members of ``order`` by failed conditions, then by
+    their place in ``order``; everything else keeps its place after them."""
+    band = [i for i in order if inside[i]][:lead]
+    pos = {i: k for k, i in enumerate(order)}
+    head = sorted(band, key=lambda i: (n_failed[i], pos[i]))
+    chosen = set(band)
+    return head + [i for i in order if i not in chosen]
+
+
+def dominates(a: tuple, b: tuple) -> bool:
+    """``a`` = (cv, simplicity tuple, failed count) dominates ``b``: at least as simple on
+    every count, strictly lower error, no more failed conditions."""
+    return all(x <= y for x, y in zip(a[1], b[1], strict=True)) and a[0] < b[0] and a[2] <= b[2]
+
+
+def simplicity_parts(spec: Specification) -> dict:
+    n_est, cost, n_tr = spec.simplicity()
+    return {"estimated": n_est, "readability": cost, "transformed_columns": n_tr}
+
+
+def rank(
+    scored: list[Scored], folds: int | None = None, band: Band | None = None
+) -> tuple[list[tuple[Scored, dict]], float]:
+    """Order by one band (:class:`Band`): inside it by simplicity then error, outside by error.
+
+    Every entry's ``parts`` carries the same threshold.  ``paired_std_error`` (the
+    standard error of the fold-by-fold differences from the lowest-error candidate)
+    is reported for information only; it does not decide the band.  Returns the
     ordered (scored, score parts) pairs and the lowest CV error.
     """
-    best = min(scored, key=lambda s: s.cv.value)
+    band = band or Band.of(scored)
+    best = min(scored, key=lambda s: (s.cv.value, s.spec.simplicity()))
     k = folds or max(len(best.cv.fold_values), 1)
 
-    def paired(s: Scored) -> tuple[float, float]:
+    def paired(s: Scored) -> float:
         d = s.cv.fold_values - best.cv.fold_values
-        if s is best:
-            return 0.0, 0.0
-        if d.size < 2:
-            return s.cv.value - best.cv.value, best.cv.std_error
-        return s.cv.value - best.cv.value, float(np.std(d, ddof=1) / math.sqrt(k))
+        if s is best or d.size < 2:
+            return 0.0 if s is best else band.std_error
+        return float(np.std(d, ddof=1) / math.sqrt(k))
 
-    info = {id(s): paired(s) for s in scored}
-    inside = [s for s in scored if info[id(s)][0] <= info[id(s)][1]]
-    outside = [s for s in scored if info[id(s)][0] > info[id(s)][1]]
-    inside.sort(key=lambda s: (s.spec.simplicity(), s.cv.value))
-    outside.sort(key=lambda s: s.cv.value)
+    cvs = [s.cv.value for s in scored]
+    order = band_order(cvs, [s.spec.simplicity() for s in scored], band.threshold)
     out = []
-    for s in inside + outside:
-        diff, se = info[id(s)]
-        within = diff <= se
+    for i in order:
+        s = scored[i]
+        within = s.cv.value <= band.threshold
         parts = {
             "cv_value": s.cv.value,
             "cv_std_error": s.cv.std_error,
-            "best_cv_value": best.cv.value,
-            "difference_from_best": diff,
-            "paired_std_error": se,
-            "one_se_threshold": best.cv.value + se,
+            "best_cv_value": band.lowest,
+            "difference_from_best": s.cv.value - band.lowest,
+            "paired_std_error": paired(s),
+            "one_se_threshold": band.threshold,
             "within_one_se": within,
-            "simplicity": list(s.spec.simplicity()),
+            "simplicity": simplicity_parts(s.spec),
             "rule": (
-                "within one paired standard error of the lowest CV error; ranked among "
-                "those by simplicity (estimated parameters, transform readability, "
-                "transformed columns)"
+                "inside the band (CV error at most the lowest plus the standard error of "
+                "the lowest-error candidate); ranked there by simplicity, then error"
                 if within
-                else "more than one paired standard error above the lowest CV error; "
-                "ranked by CV error"
+                else "outside the band (CV error above the lowest plus the standard error of "
+                "the lowest-error candidate); ranked by CV error"
             ),
         }
         out.append((s, parts))
-    return out, best.cv.value
+    return out, band.lowest
 
 
 def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str]):
     """Re-order the leading band members by failed conditions (see diagnose.py)."""
-    band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]]
-    m = min(len(band), max(3 * opts.top, 15))
-    lead = []
-    for i in band[:m]:
+    lead_m = max(3 * opts.top, 15)
+    band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]][:lead_m]
+    n_failed: dict[int, int] = {}
+    parts_of = [p for _, p in ranked]
+    for i in band:
         s, parts = ranked[i]
         try:
             entry = full(s, parts)
         except CandidateFailure as exc:
-            parts = {**parts, "conditions_failed": None, "conditions_note": exc.reason}
-            lead.append((len(CONDITION_NAMES) + 1, i, s, parts))
+            parts_of[i] = {**parts, "conditions_failed": None, "conditions_note": exc.reason}
+            n_failed[i] = len(CONDITION_NAMES) + 1
             continue
         bad = failed(entry.get("conditions"))
-        parts = {
-            **parts,
-            "conditions_failed": bad,
-            "condition_rule": "within the one-standard-error band, fewer failed "
-            "conditions rank first; CV error decides outside it",
-        }
-        lead.append((len(bad), i, s, parts))
-    lead.sort(key=lambda t: (t[0], t[1]))
-    rest = [
-        (s, {**p, "conditions_failed": None} if "conditions_failed" not in p else p)
-        for j, (s, p) in enumerate(ranked)
-        if j not in set(band[:m])
-    ]
-    out = [(s, p) for _, _, s, p in lead] + rest
+        parts_of[i] = {**parts, "conditions_failed": bad}
+        n_failed[i] = len(bad)
+    order = condition_order(
+        list(range(len(ranked))), [p["within_one_se"] for _, p in ranked], n_failed, lead_m
+    )
+    out = [(ranked[i][0], parts_of[i]) for i in order]
     lowest = min(ranked, key=lambda t: t[0].cv.value)[0]
     if out and out[0][0] is not lowest:
         low_parts = next(p for s, p in out if s is lowest)
@@ -431,10 +496,15 @@ def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str])
                 + ", ".join(p.transform.label(p.column) for p in lowest.spec.predictors)
                 + f", {lowest.cv.metric} {lowest.cv.value:.4g}) fails "
                 + ", ".join(c.replace("_", " ") for c in low_parts["conditions_failed"])
-                + "; it ranks below specifications within one standard error that pass more "
-                "conditions."
+                + "; it ranks below specifications in the band that pass more conditions."
             )
     return out
+
+
+CONDITION_RULE = (
+    "within the band, the leading members (by simplicity) with fewer failed conditions "
+    "rank first; CV error decides outside it"
+)
 
 
 def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int) -> bool:
@@ -656,3 +726,157 @@ def _problem_of(exc) -> dict:
         "detail": exc.detail,
         "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems],
     }
+
+
+# ----------------------------------------------------------------- distinct scales
+MAX_EXAMINED = 60  # estimated candidates read against the ladder per request (design choice)
+
+
+def _has_estimate(spec: Specification) -> bool:
+    return spec.simplicity()[0] > 0
+
+
+def _ladder_reading(e: Scored, ev: _Evaluator, prep: Prepared, positive: bool):
+    """(open or fixed specification read on the ladder, notes) or (None, []) when no
+    estimate of ``e`` has a ladder value inside its 95% interval."""
+    spec = e.spec
+    t = spec.response_transform
+    notes: list[dict] = []
+    if t.name in ("box_cox", "yeo_johnson") and (t.lam is None or t.estimated):
+        try:
+            est = estimate_lambda(t.name, prep.y, build_design(spec, prep).X)
+        except (CandidateFailure, ValueError):
+            return None, []
+        if est.ladder is None:
+            return None, []
+        if t.name == "box_cox" or positive:
+            rung = tr.ladder_transform(est.ladder)
+        else:
+            rung = tr.Transform("yeo_johnson", lam=float(est.ladder))
+        notes.append(
+            {
+                "parameter": "response_lambda",
+                "family": t.name,
+                **est.to_dict(),
+                "read_as": rung.label(prep.response),
+                "cv_value_estimated": e.cv.value,
+            }
+        )
+        return Specification(spec.response, rung, spec.predictors, spec.intercept), notes
+    powers = ev.powers.get(spec.key)
+    if not powers:
+        return None, []
+    new = []
+    for p in e.open_spec.predictors:
+        summ = powers.get(p.column) if bt.is_open(p.transform) else None
+        if summ is None or summ.get("ladder") is None:
+            new.append(p)
+            continue
+        rung = tr.ladder_transform(summ["ladder"])
+        if rung.name == "log":
+            rung = tr.fit_transform(rung, prep.numeric[p.column])
+        notes.append(
+            {
+                "parameter": "predictor_power",
+                "column": p.column,
+                **{k: v for k, v in summ.items() if k != "per_fold"},
+                "read_as": rung.label(p.column),
+                "cv_value_estimated": e.cv.value,
+            }
+        )
+        new.append(PredictorSpec(p.column, rung))
+    if not notes:
+        return None, []
+    return Specification(spec.response, spec.response_transform, tuple(new), spec.intercept), notes
+
+
+def _score_fixed(spec: Specification, ev: _Evaluator, prep, plan, shift_needed) -> Scored | None:
+    try:
+        got = ev(spec)
+    except KeyError:  # a ladder column the bank does not hold: score it directly
+        try:
+            got = Scored(spec, incumbent.score(spec, prep, plan, shift_needed))
+        except (CandidateFailure, InputError):
+            return None
+        ev.scored.append(got)
+    return got
+
+
+def distinct_scales(
+    scored: list[Scored], ev: _Evaluator, prep: Prepared, plan, shift_needed: bool
+) -> tuple[list[Scored], dict, dict]:
+    """The candidates that may be listed: one per set of scales.
+
+    An estimate (response lambda, predictor power) whose 95% interval holds a ladder
+    value (-1, -0.5, 0, 0.5, 1, 2) is read as that ladder value: the estimated
+    candidate gives way to the ladder candidate (scored if the search had not), whose
+    entry keeps the estimate under ``estimates.read_as_ladder``.  An estimated scale
+    that is not a ladder value stays only when its CV error beats the best ladder
+    (fixed-scale) candidate by more than that candidate's standard error.  On a strictly
+    positive response only the better of Box-Cox and Yeo-Johnson with the same
+    predictors stays.  Returns (listable, {key: notes}, summary for ``search``).
+    """
+    by_key: dict = {}
+    for s in scored:
+        if s.spec.key not in by_key or s.cv.value < by_key[s.spec.key].cv.value:
+            by_key[s.spec.key] = s
+    positive = bool(np.min(prep.y) > 0)
+    fixed = {k: s for k, s in by_key.items() if not _has_estimate(s.spec)}
+    est = sorted((s for s in by_key.values() if _has_estimate(s.spec)), key=lambda s: s.cv.value)
+    ref = min(fixed.values(), key=lambda s: s.cv.value) if fixed else None
+    limit = ref.cv.value + ref.cv.std_error if ref is not None else math.inf
+    examined = [e for e in est if e.cv.value <= limit][:MAX_EXAMINED]
+    notes: dict = {}
+    still: list[Scored] = []
+    read = 0
+    for e in examined:
+        target, why = _ladder_reading(e, ev, prep, positive)
+        if target is None:
+            still.append(e)
+            continue
+        if _has_estimate(target):  # some powers read on the ladder, others still estimated
+            got = ev(target)
+            if got is None:
+                still.append(e)
+                continue
+            notes.setdefault(got.spec.key, []).extend(why)
+            still.append(got)
+            read += 1
+            continue
+        got = fixed.get(target.key) or _score_fixed(target, ev, prep, plan, shift_needed)
+        if got is None:
+            still.append(e)
+            continue
+        fixed[target.key] = got
+        notes.setdefault(target.key, []).extend(why)
+        read += 1
+    ref = min(fixed.values(), key=lambda s: s.cv.value) if fixed else None
+    kept = [e for e in still if ref is None or e.cv.value < ref.cv.value - ref.cv.std_error]
+    if positive:  # Box-Cox or Yeo-Johnson with the same predictors, not both
+        best_of: dict = {}
+        for e in kept:
+            if e.spec.response_transform.name in ("box_cox", "yeo_johnson"):
+                k = tuple(p.transform for p in e.spec.predictors)
+                if k not in best_of or e.cv.value < best_of[k].cv.value:
+                    best_of[k] = e
+        kept = [
+            e
+            for e in kept
+            if e.spec.response_transform.name not in ("box_cox", "yeo_johnson")
+            or best_of[tuple(p.transform for p in e.spec.predictors)] is e
+        ]
+    listable = list(fixed.values()) + kept
+    summary = {
+        "read_as_ladder": read,
+        "estimated_listed": len(kept),
+        "estimated_not_listed": len(est) - read - len(kept),
+        "rule": (
+            "an estimated response lambda or predictor power whose 95% interval holds a "
+            "ladder value (-1, -0.5, 0, 0.5, 1, 2) is listed as that ladder value (the "
+            "estimate stays in the entry's estimates.read_as_ladder); an estimated scale "
+            "that is not a ladder value is listed only when its CV error beats the best "
+            "fixed-scale candidate by more than that candidate's standard error; no two "
+            "listed entries share their scales"
+        ),
+    }
+    return listable, notes, summary

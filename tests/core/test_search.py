@@ -33,19 +33,24 @@ def test_one_se_rule_prefers_the_simplest_inside_the_band():
     assert [p["within_one_se"] for p in parts] == [True, True, True, False]
 
 
-def test_band_uses_paired_fold_differences():
-    # Fold errors vary a lot (unpaired SE 2.0), but the candidate loses on every fold by
-    # about 0.5: the paired SE is tiny, so it is outside the band.
-    best = _scored("log", "log", 10.0, 2.0, folds=[6, 8, 10, 12, 14])
-    worse = _scored("identity", "identity", 10.5, 2.0, folds=[6.5, 8.4, 10.6, 12.5, 14.5])
-    tie = _scored("identity", "log", 10.1, 2.0, folds=[8, 6, 12, 10, 14.5])
-    ranked, _ = rank([best, worse, tie], folds=5)
+def test_one_threshold_for_every_entry():
+    # source: Hastie, Tibshirani & Friedman (2009) sec. 7.10: the band is the lowest CV error
+    # plus the standard error of that lowest-error candidate, the same for every candidate.
+    # A noisy candidate (large fold-to-fold differences) does not widen it for itself.
+    best = _scored("log", "log", 10.0, 0.4, folds=[9.5, 10.5, 9.8, 10.2, 10.0])
+    noisy = _scored("identity", "identity", 10.6, 3.0, folds=[5, 16, 7, 14, 11])
+    steady = _scored("sqrt", "log", 10.3, 0.4, folds=[9.8, 10.8, 10.1, 10.5, 10.3])
+    ranked, _ = rank([best, noisy, steady], folds=5)
     parts = {id(s): p for s, p in ranked}
-    assert parts[id(worse)]["within_one_se"] is False
-    d = np.array([0.5, 0.4, 0.6, 0.5, 0.5])
-    assert parts[id(worse)]["paired_std_error"] == pytest.approx(np.std(d, ddof=1) / np.sqrt(5))
-    assert parts[id(tie)]["within_one_se"] is True
-    assert ranked[0][0] is tie  # simpler than the best, inside the band
+    assert [p["one_se_threshold"] for _, p in ranked] == [pytest.approx(10.4)] * 3
+    assert parts[id(noisy)]["within_one_se"] is False  # 10.6 > 10.0 + 0.4
+    assert parts[id(steady)]["within_one_se"] is True
+    assert [s for s, _ in ranked] == [best, steady, noisy]  # log/log is simpler than sqrt/log
+    assert parts[id(steady)]["simplicity"] == {
+        "estimated": 0,
+        "readability": 3,
+        "transformed_columns": 2,
+    }
 
 
 def test_outside_the_band_is_ordered_by_error():
