@@ -23,3 +23,33 @@ def test_demo_top_entry_is_the_generating_scale():
     assert spec["response"]["transform"]["name"] == "log"
     by_col = {p["column"]: p["transform"]["name"] for p in spec["predictors"]}
     assert by_col == {"pipe_length_m": "log", "pipe_age_years": "identity", "soil": "categorical"}
+
+
+def test_demo_with_default_options_ranks_the_generating_scale_first_with_distinct_scales():
+    # source: service/demo/__init__.py generates log(cost) linear in log(length), age and soil
+    body = {k: v for k, v in demo_request().items() if k != "validation"}
+    body["top"] = 10
+    r = TestClient(app).post("/v1/selections", json=body)
+    assert r.status_code == 200, r.text
+    out = r.json()
+    first = out["ranking"][0]
+    spec = first["specification"]
+    assert spec["response"]["transform"] == {"name": "log"}
+    by_col = {p["column"]: p["transform"]["name"] for p in spec["predictors"]}
+    assert by_col == {"pipe_length_m": "log", "pipe_age_years": "identity", "soil": "categorical"}
+    # the estimated powers of length (about 0.03) and age (about 0.8) are read as log and 1
+    read = first["estimates"]["read_as_ladder"]
+    assert {(n["parameter"], n.get("column")) for n in read} >= {
+        ("predictor_power", "pipe_length_m")
+    }
+    for n in read:
+        assert n["ci_low"] <= n["ladder"] <= n["ci_high"]
+    # one threshold, reported once, and no two entries on the same scales
+    thresholds = {e["score"]["parts"]["one_se_threshold"] for e in out["ranking"]}
+    assert thresholds == {out["search"]["band"]["threshold"]}
+    keys = [json.dumps(e["specification"], sort_keys=True) for e in out["ranking"]]
+    assert len(set(keys)) == len(keys)
+    assert all(e["score"]["parts"]["conditions_failed"] is not None for e in out["ranking"])
+    assert not any(
+        e["specification"]["response"]["transform"]["name"] == "yeo_johnson" for e in out["ranking"]
+    )

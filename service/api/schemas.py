@@ -91,14 +91,13 @@ class TransformIn(_Strict):
     name: TransformName = Field(
         ..., description="transform name (GET /v1/transforms lists them)", examples=["log"]
     )
-    shift: float | None = Field(
+    shift: Annotated[float, Field(ge=-1e15, le=1e15)] | Literal["auto"] | None = Field(
         None,
-        ge=-1e15,
-        le=1e15,
-        description="log only: a constant added before the log "
-        "(log(x + shift)); omit to let the service choose one when the "
-        "column has zeros",
-        examples=[0.5],
+        description="log only: a constant added before the log (log(x + shift)), or "
+        '"auto" to let the service choose one when the column has zeros (half the '
+        "smallest positive value). An explicitly requested log without a shift needs "
+        "values > 0; a column with zeros or negatives is then a 422 naming the first row",
+        examples=[0.5, "auto"],
     )
     exponent: float | None = Field(
         None,

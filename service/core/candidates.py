@@ -27,7 +27,7 @@ from . import boxtidwell as bt
 from . import transforms as tr
 from .bank import ColumnBank, FoldIndex
 from .data import Prepared
-from .errors import CandidateFailure, InputError, pointer
+from .errors import CandidateFailure, FieldProblem, InputError, pointer
 from .spec import PredictorSpec, Specification, categorical_levels
 
 DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
@@ -54,6 +54,49 @@ def _expand_name(item, role: str) -> list[tr.Transform]:
     return [_as_transform(item)]
 
 
+def _asks_auto_shift(item) -> bool:
+    return isinstance(item, dict) and item.get("shift") == "auto"
+
+
+def check_explicit(
+    prep: Prepared, t: tr.Transform, x: np.ndarray, column: str, role: str, where: str, item
+) -> None:
+    """An explicitly requested transform is applied as asked or refused (422), never changed.
+
+    The problem points first at the first row whose value the transform cannot take,
+    then at the transform; its detail lists the fixes.  A log with ``"shift": "auto"``
+    may add a shift chosen from the data (reported in the specification).
+    """
+    if t.name == "power" and t.exponent is None:
+        return
+    bad = np.flatnonzero(tr.outside_domain(t, x, strict_log=not _asks_auto_shift(item)))
+    if bad.size == 0:
+        return
+    i = int(bad[0])
+    lab = t.label(column)
+    need = (
+        "values > 0"
+        if t.name in ("log", "reciprocal", "box_cox")
+        or (t.name == "power" and (t.exponent or 0) < 0)
+        else "values >= 0"
+    )
+    if t.name == "log" and t.shift is not None:
+        need = f"values above {-t.shift:.6g}"
+    detail = (
+        f"{role} '{column}' is {float(x[i]):.6g} in row {int(prep.row_ids[i])} of the data "
+        f"({bad.size} row(s) in all), and {lab} was requested explicitly, which needs "
+        f"{need}; the service does not "
+        f"change a requested transform. Fixes: {tr.domain_fixes(t)}"
+    )
+    raise InputError(
+        detail,
+        [
+            FieldProblem(prep.cell_pointer(column, i), detail),
+            FieldProblem(where, f"{lab} cannot take every value of '{column}'"),
+        ],
+    )
+
+
 def response_candidates(prep: Prepared, response_transforms) -> list[tr.Transform]:
     y = prep.y
     explicit = response_transforms is not None
@@ -69,6 +112,16 @@ def response_candidates(prep: Prepared, response_transforms) -> list[tr.Transfor
                 raise InputError.at(
                     pointer("transforms", "response", i),
                     "a response power needs an 'exponent' (or use box_cox to estimate one)",
+                )
+            if explicit:
+                check_explicit(
+                    prep,
+                    t,
+                    y,
+                    prep.response,
+                    "response",
+                    pointer("transforms", "response", i),
+                    item,
                 )
             msg = t.domain_problem(y, prep.response, "response")
             if msg:
@@ -130,6 +183,8 @@ def predictor_candidates(prep: Prepared, predictor_transforms) -> list[list[tr.T
                         f"{base}/{i}",
                         f"'{col}' is numeric; list it in 'categorical' to treat it as levels",
                     )
+                if explicit:
+                    check_explicit(prep, t, x, col, "predictor", f"{base}/{i}", item)
                 msg = t.domain_problem(x, col, "predictor")
                 if msg:
                     if explicit:

@@ -311,6 +311,16 @@ class Prepared:
     table_columns: tuple[str, ...] = ()
     order_values: np.ndarray | None = None  # the order column on the used rows
     groups: np.ndarray | None = None  # group_by labels on the used rows
+    source: str = ""  # layout of the request's table: columns | records | csv
+
+    def cell_pointer(self, column: str, i: int) -> str:
+        """JSON Pointer to used row ``i`` of ``column`` in the request's data."""
+        row = int(self.row_ids[i])
+        if self.source == "columns":
+            return pointer("data", "columns", column, row)
+        if self.source == "records":
+            return pointer("data", "records", row, column)
+        return "/data/csv" if self.source == "csv" else "/data"
 
     @property
     def n(self) -> int:
@@ -473,6 +483,7 @@ def prepare(
         ov,
         gcol.values[keep] if gcol is not None else None,
     )
+    prep.source = table.source
     if gcol is None:
         _check_content(prep)
     return prep
@@ -511,6 +522,7 @@ def split_groups(prep: Prepared) -> dict[str, Prepared | InputError]:
             None,
         )
         sub.order = _order_perm(sub.order_values)
+        sub.source = prep.source
         try:
             _check_content(sub)
             out[g] = sub

@@ -70,6 +70,7 @@ def diagnose_specification(
     specification that cannot be fitted or cross-validated is a :class:`ModelFailure`.
     """
     from . import transforms as tr
+    from .candidates import check_explicit
     from .crossval import cross_validate, make_plan
     from .errors import CandidateFailure, InputError, ModelFailure, pointer
     from .plots import diagnostic_plots
@@ -78,6 +79,15 @@ def diagnose_specification(
 
     spec = Specification.from_dict(spec_dict)
     rt = spec.response_transform
+    check_explicit(
+        prep,
+        rt,
+        prep.y,
+        prep.response,
+        "response",
+        "/specification/response/transform",
+        spec_dict["response"].get("transform"),
+    )
     msg = rt.domain_problem(prep.y, prep.response, "response")
     if msg:
         raise InputError.at("/specification/response/transform", msg)
@@ -93,6 +103,15 @@ def diagnose_specification(
                     pointer("specification", "predictors", i, "transform", "lambda"),
                     f"{p.transform.name} of a predictor needs an explicit lambda",
                 )
+            check_explicit(
+                prep,
+                p.transform,
+                prep.numeric[p.column],
+                p.column,
+                "predictor",
+                pointer("specification", "predictors", i, "transform"),
+                spec_dict["predictors"][i].get("transform"),
+            )
             msg = p.transform.domain_problem(prep.numeric[p.column], p.column, "predictor")
             if msg:
                 raise InputError.at(pointer("specification", "predictors", i, "transform"), msg)

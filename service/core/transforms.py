@@ -426,12 +426,39 @@ def from_dict(d: dict) -> Transform:
         shift = d.get("shift")
         return Transform(
             "log",
-            shift=None if shift is None else float(shift),
+            shift=None if shift is None or shift == "auto" else float(shift),
             estimated=bool(d.get("estimated", False)),
         )
     if name == "categorical":
         return Transform("categorical", reference=d.get("reference"))
     return Transform(name)
+
+
+def outside_domain(t: Transform, x: np.ndarray, strict_log: bool) -> np.ndarray:
+    """Mask of the values ``t`` cannot take.  ``strict_log``: a log without a shift is
+    taken as asked, so zeros are outside its domain too (no shift is added)."""
+    n = t.name
+    with np.errstate(invalid="ignore"):
+        if n == "log":
+            if t.shift is None:
+                return x <= 0 if strict_log else x < 0
+            return x + t.shift <= 0
+        if n in ("sqrt", "square") or (n == "power" and (t.exponent or 0) > 0):
+            return x < 0
+        if n in ("reciprocal", "power", "box_cox"):
+            return x <= 0
+    return np.zeros(x.shape, bool)
+
+
+def domain_fixes(t: Transform) -> str:
+    """The fixes an explicit transform outside its domain can take, in one clause."""
+    if t.name == "log":
+        return (
+            "give log an explicit numeric 'shift' that makes every value positive, send "
+            '"shift": "auto" to let the service choose one (half the smallest positive '
+            "value), or use yeo_johnson"
+        )
+    return 'use yeo_johnson, or a log with an explicit numeric \'shift\' or "shift": "auto"'
 
 
 def chosen_shift(x: np.ndarray) -> float:

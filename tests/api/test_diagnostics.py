@@ -106,7 +106,9 @@ def test_out_of_domain_transform_points_into_the_specification(client):
     body["specification"]["predictors"][0]["transform"] = {"name": "log", "shift": -1000.0}
     r = client.post(URL, json=body)
     assert r.status_code == 422
-    assert r.json()["errors"][0]["pointer"] == "/specification/predictors/0/transform"
+    # the first pointer names the first row the transform cannot take, the second the transform
+    assert r.json()["errors"][0]["pointer"] == "/data/columns/income/0"
+    assert r.json()["errors"][1]["pointer"] == "/specification/predictors/0/transform"
 
 
 def test_unknown_column_in_specification(client):

@@ -58,8 +58,17 @@ def test_estimated_power_requested_by_name_is_reported_with_its_ladder_rung(clie
     assert rep["ci_low"] <= 0.5 <= rep["ci_high"] and rep["ladder"] == 0.5
     used = [e["specification"]["predictors"][0]["transform"] for e in body["ranking"]]
     assert {"name": "sqrt"} in used  # the ladder rung 1/2, searched as a fixed transform
-    estimated = [v for v in used if v.get("estimated")]
-    assert estimated and estimated[0]["exponent"] == pytest.approx(rep["power"], abs=1e-9)
+    # the estimate's interval holds 0.5, so it is listed as sqrt, the estimate kept beside it
+    assert not [v for v in used if v.get("estimated")]
+    sqrt_entry = next(
+        e
+        for e in body["ranking"]
+        if e["specification"]["predictors"][0]["transform"] == {"name": "sqrt"}
+        and e["specification"]["response"]["transform"] == {"name": "identity"}
+    )
+    note = sqrt_entry["estimates"]["read_as_ladder"][0]
+    assert note["column"] == "x" and note["ladder"] == 0.5
+    assert note["power"] == pytest.approx(rep["power"], abs=1e-9)
 
 
 def test_bare_power_in_a_predictor_list_is_estimated_too(client):

@@ -237,7 +237,9 @@ def test_explicit_log_of_negative_response_suggests_yeo_johnson(client):
     cols = _columns()
     cols["y"][0] = -1.5
     b = body(data={"columns": cols}, transforms={"response": ["log"]})
-    p = assert_problem(client.post(URL, json=b), 422, "/transforms/response/0")
+    # the first pointer names the offending row, the second the requested transform
+    p = assert_problem(client.post(URL, json=b), 422, "/data/columns/y/0")
+    assert p["errors"][1]["pointer"] == "/transforms/response/0"
     assert "yeo_johnson" in p["errors"][0]["detail"]
     assert "-1.5" in p["errors"][0]["detail"]
 
@@ -246,7 +248,8 @@ def test_explicit_predictor_transform_outside_its_domain(client):
     cols = _columns()
     cols["x"][2] = 0.0
     b = body(data={"columns": cols}, transforms={"predictors": {"x": ["identity", "reciprocal"]}})
-    p = assert_problem(client.post(URL, json=b), 422, "/transforms/predictors/x/1")
+    p = assert_problem(client.post(URL, json=b), 422, "/data/columns/x/2")
+    assert p["errors"][1]["pointer"] == "/transforms/predictors/x/1"
     assert "yeo_johnson" in p["errors"][0]["detail"]
 
 
@@ -449,3 +452,70 @@ def test_any_value_in_any_field_is_never_a_server_error(client, field, value):
         assert_problem(r, r.status_code)
     else:
         _strict_json(r.text)
+
+
+# ------------------------------------------------- explicit transforms are applied as asked
+def _zero_cost_body() -> dict:
+    from service.demo import demo_columns
+
+    cols = demo_columns(80)
+    cols["repair_cost"][17] = 0.0
+    return {
+        "data": {"columns": cols},
+        "response": "repair_cost",
+        "predictors": ["pipe_length_m", "pipe_age_years", "soil"],
+        "categorical": ["soil"],
+    }
+
+
+def test_explicit_log_of_a_response_with_a_zero_is_refused_at_the_row():
+    body = _zero_cost_body()
+    body["transforms"] = {"response": ["identity", "log"]}
+    r = TestClient(app).post(URL, json=body)
+    assert r.status_code == 422
+    out = r.json()
+    assert out["errors"][0]["pointer"] == "/data/columns/repair_cost/17"
+    assert out["errors"][1]["pointer"] == "/transforms/response/1"
+    for fix in ("'shift'", '"shift": "auto"', "yeo_johnson"):
+        assert fix in out["detail"]
+
+
+def test_auto_shift_is_the_callers_choice_and_is_labelled():
+    body = _zero_cost_body()
+    body["transforms"] = {"response": [{"name": "log", "shift": "auto"}]}
+    r = TestClient(app).post(URL, json=body)
+    assert r.status_code == 200, r.text
+    t = r.json()["ranking"][0]["specification"]["response"]["transform"]
+    # common practice: half the smallest positive value
+    positive = [v for v in body["data"]["columns"]["repair_cost"] if v > 0]
+    assert t == {"name": "log", "shift": pytest.approx(min(positive) / 2), "estimated": True}
+
+
+def test_explicit_reciprocal_of_a_predictor_with_a_zero_is_refused_at_the_row():
+    body = _zero_cost_body()
+    body["data"]["columns"]["pipe_age_years"][5] = 0
+    body["data"] = {
+        "records": [
+            dict(zip(body["data"]["columns"], v, strict=True))
+            for v in zip(*body["data"]["columns"].values(), strict=True)
+        ]
+    }
+    body["transforms"] = {"predictors": {"pipe_age_years": ["identity", "reciprocal"]}}
+    r = TestClient(app).post(URL, json=body)
+    assert r.status_code == 422
+    assert r.json()["errors"][0]["pointer"] == "/data/records/5/pipe_age_years"
+    assert r.json()["errors"][1]["pointer"] == "/transforms/predictors/pipe_age_years/1"
+
+
+def test_diagnostics_of_an_explicit_log_with_a_zero_is_refused_at_the_row():
+    body = _zero_cost_body()
+    spec = {
+        "response": {"column": "repair_cost", "transform": {"name": "log"}},
+        "predictors": [{"column": "pipe_length_m", "transform": {"name": "log"}}],
+    }
+    r = TestClient(app).post("/v1/diagnostics", json={"data": body["data"], "specification": spec})
+    assert r.status_code == 422
+    assert r.json()["errors"][0]["pointer"] == "/data/columns/repair_cost/17"
+    spec["response"]["transform"]["shift"] = "auto"
+    r = TestClient(app).post("/v1/diagnostics", json={"data": body["data"], "specification": spec})
+    assert r.status_code == 200, r.text

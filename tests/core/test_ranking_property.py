@@ -8,10 +8,13 @@ re-ordering of the leading band members by failed conditions.
 """
 
 import itertools
+import os
+import tempfile
 
 import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from hypothesis.configuration import set_hypothesis_home_dir
 from service.core import transforms as tr
 from service.core.crossval import CVResult
 from service.core.search import (
@@ -23,6 +26,9 @@ from service.core.search import (
     rank,
 )
 from service.core.spec import PredictorSpec, Specification
+
+# keep hypothesis' cache out of the repository (see tests/api/test_selection_errors.py)
+set_hypothesis_home_dir(os.path.join(tempfile.gettempdir(), "bestscale-hypothesis"))
 
 
 def _violations(order, cv, simp, nfail):
