@@ -385,7 +385,19 @@ def _summary(body: dict, context: dict) -> str:
                     if bc.get("ladder") is not None
                     else ""
                 )
-                + f"; {esc(bc.get('design', ''))})",
+                + f"; {esc(bc.get('design', ''))})"
+                + (f" {esc(bc['context'])}" if bc.get("context") else ""),
+            )
+        )
+    band = search.get("band")
+    if band:
+        rows.append(
+            (
+                "Ranking band",
+                f"CV error at most {num(band.get('threshold'))}: the lowest "
+                f"({num(band.get('lowest_cv_value'))}) plus its standard error "
+                f"({num(band.get('std_error_of_lowest'))}); inside it the simplest "
+                "specification ranks first",
             )
         )
     out = ['<section id="summary"><h2>Job summary</h2>', _facts(rows)]

@@ -286,7 +286,7 @@ def run_selection(
         "exact_refits": int(sum(s.cv.exact_refits for s in scored)),
     }
     if box_cox_info is not None:
-        search["box_cox"] = box_cox_info
+        search["box_cox"] = {**box_cox_info, **_box_cox_context(box_cox_info, entries[0], prep)}
     if bt_info:
         search["predictor_powers"] = _powers_block(bt_info)
     if strategy == "screened":
@@ -583,6 +583,45 @@ def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
             continue
         out[t] = tr.fit_transform(t, prep.y)
     return out
+
+
+def _box_cox_context(info: dict, first: dict, prep: Prepared) -> dict:
+    """When rank 1's response scale is not what the reported lambda suggests: lambda again
+    on rank 1's design, with one sentence saying that lambda depends on the predictor scales."""
+    t = tr.from_dict(first["specification"]["response"]["transform"])
+    lad = info.get("ladder")
+    suggested = tr.ladder_transform(lad) if lad is not None else None
+    same = (
+        t.name == "box_cox"
+        if suggested is None
+        else (t.name == suggested.name and t.exponent == suggested.exponent)
+    )
+    design = first.get("_design")
+    if same or design is None or not np.all(prep.y > 0):
+        return {}
+    try:
+        est = estimate_lambda("box_cox", prep.y, design.X)
+    except (CandidateFailure, ValueError):
+        return {}
+    preds = ", ".join(
+        tr.from_dict(p["transform"]).label(p["column"])
+        for p in first["specification"]["predictors"]
+    )
+    holds = (
+        f", which holds {est.ladder:g} ({tr.ladder_transform(est.ladder).label(prep.response)})"
+        if est.ladder is not None
+        else ""
+    )
+    lam = info["lambda"]
+    return {
+        "on_rank_1_design": {"design": preds, **est.to_dict()},
+        "context": (
+            f"The Box-Cox lambda {lam:.3g} (95% interval {_fmt_ci(info['ci_low'], info['ci_high'])}) "
+            f"was estimated with the predictors untransformed, and lambda depends on the "
+            f"predictor scales: on rank 1's predictors ({preds}) it is {est.lam:.3g} (95% "
+            f"interval {_fmt_ci(est.ci_low, est.ci_high)}){holds}."
+        ),
+    }
 
 
 def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
