@@ -36,6 +36,7 @@ DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
 DEFAULT_PREDICTOR = cand.DEFAULT_PREDICTOR
 
 MAX_FAILURES_LISTED = 10
+SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
 STRATEGIES = ("auto", "exhaustive", "screened")
 
 
@@ -166,6 +167,16 @@ def run_selection(
     _check_levels(prep, plan)
     shift_needed = tr.needs_shift(prep.y)
     warnings: list[str] = []
+    uniform = prep.n < SMALL_N and opts.predictor_transforms is None and opts.strategy != "screened"
+    if uniform:
+        preds = _uniform_options(prep, preds)
+        warnings.append(
+            f"With {prep.n} rows (fewer than {SMALL_N}) the cross-validated errors of many "
+            "candidates cannot be told apart, so the default search put every numeric "
+            "predictor on one scale (all untransformed, or all logged where a log applies) "
+            "for each response scale; send transforms.predictors to search other "
+            "combinations."
+        )
 
     # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
     box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings)
@@ -175,6 +186,8 @@ def run_selection(
     )
     preds = cand.add_ladder_rungs(prep, preds, bt_info)
     total = cand.grid_size(resp, preds)
+    if uniform:
+        total = len(resp) * len({tuple(t.name for t in c) for c in _uniform_combos(preds)})
     strategy = (
         opts.strategy
         if opts.strategy != "auto"
@@ -194,7 +207,7 @@ def run_selection(
     budget = Budget(opts.max_candidates, deadline)
     counts = {"screened": 0}
     if strategy == "exhaustive":
-        complete = _exhaustive(prep, resp, preds, opts, ev, budget, total)
+        complete = _exhaustive(prep, resp, preds, opts, ev, budget, total, uniform)
     else:
         counts = screened_search(
             prep, resp, preds, space, ev, budget, screen_scales, opts.intercept
@@ -507,10 +520,38 @@ CONDITION_RULE = (
 )
 
 
-def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int) -> bool:
+def _uniform_options(prep: Prepared, preds) -> list[list[tr.Transform]]:
+    """Small samples: each numeric predictor keeps identity and, where it applies, log."""
+    out = []
+    for c, o in zip(prep.predictors, preds, strict=True):
+        if c in prep.categorical:
+            out.append(o)
+            continue
+        x = prep.numeric[c]
+        keep = [tr.Transform("identity")]
+        lg = tr.Transform("log")
+        if lg.domain_problem(x, c, "predictor") is None:
+            keep.append(tr.fit_transform(lg, x))
+        out.append(keep)
+    return out
+
+
+def _uniform_combos(preds) -> list[tuple]:
+    """All predictors untransformed, and all logged where a log is an option."""
+    plain = tuple(o[0] for o in preds)
+    logged = tuple(next((t for t in o if t.name == "log"), o[0]) for o in preds)
+    return [plain] if logged == plain else [plain, logged]
+
+
+def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int, uniform=False) -> bool:
     """Score every candidate, simplest first, until a limit; True when nothing was left out."""
     cands = []
-    for combo in itertools.product(resp, *preds):
+    combos = (
+        ((r, *c) for r in resp for c in _uniform_combos(preds))
+        if uniform
+        else itertools.product(resp, *preds)
+    )
+    for combo in combos:
         spec = cand.make_spec(prep, combo[0], combo[1:], opts.intercept)
         if not cand.allowed(spec):
             continue
