@@ -53,3 +53,26 @@ def test_demo_with_default_options_ranks_the_generating_scale_first_with_distinc
     assert not any(
         e["specification"]["response"]["transform"]["name"] == "yeo_johnson" for e in out["ranking"]
     )
+
+
+def test_demo_rank_1_survives_single_row_drops():
+    # source: service/demo/__init__.py (generating scale); tests/benchmarks/stability.py
+    # measures the share over many drops, here two seeded drops must both keep rank 1
+    import numpy as np
+    from service.core.data import prepare
+    from service.core.search import SearchOptions, run_selection
+    from service.demo import demo_columns
+
+    cols = demo_columns()
+    for drop in np.random.default_rng(3).choice(len(cols["repair_cost"]), 2, replace=False):
+        sub = {k: v[:drop] + v[drop + 1 :] for k, v in cols.items()}
+        prep = prepare(
+            {"columns": sub}, "repair_cost", ["pipe_length_m", "pipe_age_years", "soil"], ["soil"]
+        )
+        spec = run_selection(prep, SearchOptions(), "t")["ranking"][0]["specification"]
+        assert spec["response"]["transform"] == {"name": "log"}
+        assert [p["transform"]["name"] for p in spec["predictors"]] == [
+            "log",
+            "identity",
+            "categorical",
+        ]

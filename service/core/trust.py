@@ -18,8 +18,8 @@ and shifts are estimated again inside every fold, as in the search; a candidate
 with an estimated predictor power is left out of the resamples unless it is
 rank 1 (the public cross-validation takes a fixed design, so its power would
 keep its all-rows value, which flatters it against its neighbours).  Each
-resample applies the search's rule: the paired one-standard-error band with the
-simplicity order (:func:`search.rank`), then the leading band members re-ordered
+resample applies the search's rule: the one band (lowest error plus its standard
+error) with the simplicity order (:func:`search.rank`), then the leading band members re-ordered
 by failed regression conditions (the rule of ``diagnose.py``), with the condition
 verdicts assessed once on all rows.
 
