@@ -69,6 +69,24 @@ class SearchSummary(_Open):
     elapsed_s: float = Field(..., ge=0)
     candidates_considered: int | None = Field(None, ge=0)
     candidates_scored: int | None = Field(None, ge=0)
+    band: dict[str, Any] | None = Field(
+        None,
+        description="the one band of the ranking: lowest_cv_value, std_error_of_lowest, "
+        "threshold (the lowest CV error plus the standard error of the lowest-error "
+        "candidate), rule and source",
+    )
+    distinct_scales: dict[str, Any] | None = Field(
+        None,
+        description="how estimated scales were listed: read_as_ladder (estimates whose 95% "
+        "interval holds a ladder value, listed as that value), estimated_listed, "
+        "estimated_not_listed, rule",
+    )
+    box_cox: dict[str, Any] | None = Field(
+        None,
+        description="the response's Box-Cox lambda on the untransformed predictors with its "
+        "95% interval; when rank 1's response scale differs, on_rank_1_design and a context "
+        "sentence (lambda depends on the predictor scales)",
+    )
 
 
 class CVOut(_Open):
