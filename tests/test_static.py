@@ -15,7 +15,12 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 def _run(*args: str) -> subprocess.CompletedProcess[str]:
-    env = {k: v for k, v in os.environ.items() if not k.startswith("BESTSCALE_")}
+    # the service's settings and a metrics directory another test may have left behind
+    env = {
+        k: v
+        for k, v in os.environ.items()
+        if not k.startswith("BESTSCALE_") and k != "PROMETHEUS_MULTIPROC_DIR"
+    }
     return subprocess.run(
         [sys.executable, "-m", *args], cwd=ROOT, capture_output=True, text=True, env=env
     )
