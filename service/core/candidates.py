@@ -82,11 +82,11 @@ def check_explicit(
     )
     if t.name == "log" and t.shift is not None:
         need = f"values above {-t.shift:.6g}"
+    rows = "row" if bad.size == 1 else "rows"
     detail = (
         f"{role} '{column}' is {float(x[i]):.6g} in row {int(prep.row_ids[i])} of the data "
-        f"({bad.size} row(s) in all), and {lab} was requested explicitly, which needs "
-        f"{need}; the service does not "
-        f"change a requested transform. Fixes: {tr.domain_fixes(t)}"
+        f"({bad.size} {rows} in all) and the requested {lab} needs {need}; a requested "
+        f"transform is used as sent, so {tr.domain_fixes(t)}"
     )
     raise InputError(
         detail,
