@@ -24,7 +24,7 @@ from . import transforms as tr
 from .bank import FoldIndex
 from .crossval import CVPlan, CVResult, from_score, make_plan
 from .data import Prepared
-from .diagnose import CONDITION_NAMES, failed
+from .diagnose import CONDITION_NAMES, failed, failed_for_ranking
 from .errors import BudgetError, CandidateFailure, InputError, ModelFailure, pointer
 from .fastcv import Dynamic, Scorer
 from .likelihood import estimate_lambda
@@ -229,6 +229,7 @@ def run_selection(
             "they are left out of the ranking."
         )
 
+    scored = list(scored)  # the search's own count; reading estimates may score ladder rungs
     listable, read_notes, scales_info = distinct_scales(scored, ev, prep, plan, shift_needed)
     band = Band.of(listable)
     ranked, _ = rank(listable, plan.folds, band)
@@ -260,7 +261,11 @@ def run_selection(
             continue
         i = len(entries)
         if "conditions_failed" not in parts:
-            parts = {**parts, "conditions_failed": failed(entry.get("conditions"))}
+            parts = {
+                **parts,
+                "conditions_failed": failed_for_ranking(entry.get("conditions"), opts.alpha),
+                "conditions_not_holding": failed(entry.get("conditions")),
+            }
         entry["score"] = {**entry["score"], "parts": parts}
         if entry_hook is not None:
             entry_hook(entry, {"spec": s.spec, "prep": prep, "opts": opts})
@@ -492,8 +497,12 @@ def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str])
             parts_of[i] = {**parts, "conditions_failed": None, "conditions_note": exc.reason}
             n_failed[i] = len(CONDITION_NAMES) + 1
             continue
-        bad = failed(entry.get("conditions"))
-        parts_of[i] = {**parts, "conditions_failed": bad}
+        bad = failed_for_ranking(entry.get("conditions"), opts.alpha)
+        parts_of[i] = {
+            **parts,
+            "conditions_failed": bad,
+            "conditions_not_holding": failed(entry.get("conditions")),
+        }
         n_failed[i] = len(bad)
     order = condition_order(
         list(range(len(ranked))), [p["within_one_se"] for _, p in ranked], n_failed, lead_m
@@ -829,8 +838,8 @@ def _ladder_reading(e: Scored, ev: _Evaluator, prep: Prepared, positive: bool):
             return None, []
         if est.ladder is None:
             return None, []
-        if t.name == "box_cox" or positive:
-            rung = tr.ladder_transform(est.ladder)
+        if t.name == "box_cox" or positive or est.ladder == 1.0:
+            rung = tr.ladder_transform(est.ladder)  # Yeo-Johnson with lambda 1 is the identity
         else:
             rung = tr.Transform("yeo_johnson", lam=float(est.ladder))
         notes.append(

@@ -63,7 +63,7 @@ import numpy as np
 from . import transforms as tr
 from .crossval import CVPlan, cross_validate, make_plan
 from .data import Prepared
-from .diagnose import CONDITION_NAMES, conditions_for, failed
+from .diagnose import CONDITION_NAMES, conditions_for, failed_for_ranking
 from .errors import BestscaleError, CandidateFailure, InputError
 from .report import fitted_model
 from .search import Scored, SearchOptions, rank, run_selection
@@ -257,7 +257,7 @@ def _verdicts(prep: Prepared, alpha: float):
             try:
                 _, design, fit, _ = fitted_model(spec, prep)
                 cond, _ = conditions_for(design, fit, prep, fit.fitted + fit.resid, alpha)
-                cache[spec.key] = len(failed(cond))
+                cache[spec.key] = len(failed_for_ranking(cond, alpha))
             except CandidateFailure:  # the search puts these last as well
                 cache[spec.key] = len(CONDITION_NAMES) + 1
         return cache[spec.key]
