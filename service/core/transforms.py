@@ -529,11 +529,13 @@ CATALOGUE = [
             {
                 "name": "shift",
                 "required": False,
-                "meaning": "added before the log; chosen as half the smallest "
-                "positive value when the column has zeros",
+                "meaning": 'a number added before the log, or "auto" to let the service '
+                "choose half the smallest positive value when the column has zeros; a log "
+                "asked for without a shift is used as sent (values must be > 0); the default "
+                "search adds a chosen shift on its own and labels it",
             }
         ],
-        "domain": "x + shift > 0 (zeros get a data-chosen shift; negatives need an explicit shift)",
+        "domain": 'x + shift > 0 (without a shift: x > 0; "auto": x >= 0)',
         "applies_to": ["response", "predictor"],
         "reading": "log response: one unit of x multiplies the median response by exp(b), i.e. "
         "100(exp(b)-1)% ; log predictor: a 1% increase in x changes the model scale by "

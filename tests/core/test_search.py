@@ -105,7 +105,9 @@ def test_explicit_inapplicable_transform_is_an_input_error():
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
     with pytest.raises(InputError) as exc:
         run_selection(prep, SearchOptions(response_transforms=["identity", "log"]), "t")
-    assert exc.value.problems[0].pointer == "/transforms/response/1"
+    # the first pointer is the first row the explicit log cannot take, then the transform
+    assert exc.value.problems[0].pointer == f"/data/columns/y/{int(np.argmax(y <= 0))}"
+    assert exc.value.problems[1].pointer == "/transforms/response/1"
     assert "yeo_johnson" in exc.value.problems[0].detail
 
 
