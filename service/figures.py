@@ -16,12 +16,14 @@ from __future__ import annotations
 import io
 import math
 import threading
+from typing import Any
 
 import matplotlib
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
+from matplotlib.typing import RcKeyType
 
 #: at most this many component-plus-residual panels are drawn
 MAX_PARTIAL_PANELS = 6
@@ -103,7 +105,7 @@ def _smoother(ax, smoother: dict | None, label: str = "LOWESS") -> None:
         ax.plot(smoother["x"], smoother["y"], color=SMOOTH, linewidth=1.8, label=label, zorder=3)
 
 
-def _reference_lines(ax, lines: list[dict]) -> None:
+def _reference_lines(ax, lines: list[dict] | None) -> None:
     for line in lines or []:
         ax.plot(line["x"], line["y"], color=REFERENCE, linestyle="--", linewidth=1.0, zorder=1)
 
@@ -283,7 +285,7 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
     else:
         canvas = FigureCanvasSVG(fig)
         # fixed hash salt: identical plots give byte-identical SVG (stable element ids)
-        rc = {"svg.fonttype": "none", "svg.hashsalt": "bestscale"}
+        rc: dict[RcKeyType, Any] = {"svg.fonttype": "none", "svg.hashsalt": "bestscale"}
         with _SVG_LOCK, matplotlib.rc_context(rc):
             canvas.print_svg(buf, metadata={"Date": None})
     return buf.getvalue()

@@ -27,6 +27,7 @@ import warnings
 from collections.abc import Callable
 from contextlib import contextmanager
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import stats
@@ -121,7 +122,7 @@ class Fit:
 
     z: np.ndarray
     X: np.ndarray
-    res: object  # statsmodels RegressionResultsWrapper
+    res: Any  # statsmodels RegressionResultsWrapper (the library has no type information)
     n: int
     rank: int
     df_resid: int
@@ -422,14 +423,15 @@ def anderson_darling_test(fit: Fit) -> dict:
 
 
 # ------------------------------------------------------------------------ equal variance
-def breusch_pagan_test(fit: Fit, Z: np.ndarray) -> dict:
+def breusch_pagan_test(fit: Fit, Z: np.ndarray | None) -> dict:
     """Breusch & Pagan (1979) LM test in Koenker's (1981) studentised form (robust=True).
 
-    ``Z`` is :func:`standardized_regressors` of the fit.
+    ``Z`` is :func:`standardized_regressors` of the fit (``None`` when it has no residuals).
     """
 
     def compute():
         _require_residuals(fit)
+        assert Z is not None  # absent only when the fit has no residuals
         if Z.shape[1] < 2:
             raise NotApplicable("the model has no predictors to relate the spread to")
         lm, p, fval, fp = smd.het_breuschpagan(fit.resid, Z, robust=True)
@@ -451,11 +453,12 @@ def breusch_pagan_test(fit: Fit, Z: np.ndarray) -> dict:
     )
 
 
-def white_test(fit: Fit, Z: np.ndarray) -> dict:
+def white_test(fit: Fit, Z: np.ndarray | None) -> dict:
     """White (1980) test: e^2 on the regressors, their squares and cross-products."""
 
     def compute():
         _require_residuals(fit)
+        assert Z is not None  # absent only when the fit has no residuals
         k = Z.shape[1]
         q = k * (k + 1) // 2
         if k < 2:

@@ -128,9 +128,9 @@ class _Tree:
         u = np.where(np.isnan(u), 0.0, u)
         member = (~np.isnan(block)).astype(float)
         M = np.empty((size, J))
-        for a in range(0, size, 2048):  # in chunks: the powers of 2048 leaves fit in cache
-            M[a : a + 2048] = np.einsum(
-                "blt,bl->bt", _powers(u[a : a + 2048], J), member[a : a + 2048]
+        for s0 in range(0, size, 2048):  # in chunks: the powers of 2048 leaves fit in cache
+            M[s0 : s0 + 2048] = np.einsum(
+                "blt,bl->bt", _powers(u[s0 : s0 + 2048], J), member[s0 : s0 + 2048]
             )
         self.cen, self.rad, self.cnt, self.mom = [c], [r], [cnt], [M]
         self.lo, self.hi = [lo], [hi]

@@ -104,13 +104,19 @@ class ColumnBank:
                     self.G_fold[r, k] = Xk.T @ Xk
             self.G_total = self.G_fold.sum(axis=1)
 
+    def _frozen(self) -> np.ndarray:
+        """The stacked columns; only a frozen bank has them."""
+        if self.X is None:
+            raise RuntimeError("the bank is not frozen yet; call freeze() first")
+        return self.X
+
     @property
     def has_grams(self) -> bool:
         """Whether candidates take their training matrices from stored sub-blocks."""
         return self.G_fold is not None
 
     def columns(self, S) -> np.ndarray:
-        return self.X[:, S]
+        return self._frozen()[:, S]
 
     def fold_grams(self, S: np.ndarray, r: int) -> np.ndarray:
         """(K, p, p) held-out cross-products X_k[:, S]'X_k[:, S] of repeat r."""
@@ -120,7 +126,7 @@ class ColumnBank:
         out = []
         with np.errstate(over="ignore", invalid="ignore"):
             for rows in self.index.test[r]:
-                Xk = self.X[np.ix_(rows, S)]
+                Xk = self._frozen()[np.ix_(rows, S)]
                 out.append(Xk.T @ Xk)
         return np.stack(out)
 
@@ -139,6 +145,6 @@ class ColumnBank:
                 for r in range(R):
                     for k in range(K):
                         rows = self.index.test[r][k]
-                        cf[r, k] = self.X[rows].T @ z[rows]
+                        cf[r, k] = self._frozen()[rows].T @ z[rows]
                 self._cross[key] = (cf, cf.sum(axis=1))
         return self._cross[key]

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import stats
@@ -298,7 +299,8 @@ def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict:
 def _vif_groups(X: np.ndarray, inp: ConditionInputs) -> list[tuple[str, str, list[int]]]:
     """(label, column, X-columns) per predictor; full dummy sets lose one column."""
     nonconst = set(np.flatnonzero(np.ptp(X, axis=0) > 0).tolist())
-    groups, seen = [], set()
+    groups: list[tuple[str, str, list[int]]] = []
+    seen: set[int] = set()
     for term in inp.terms:
         cols = [j for j in term.indices if j in nonconst]
         seen.update(term.indices)
@@ -321,7 +323,7 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
     )
     groups = _vif_groups(X, inp)
     gvifs = ct.generalized_vif(X, [g[2] for g in groups]) if groups else []
-    vif_rows = []
+    vif_rows: list[dict[str, Any]] = []
     for (label, column, cols), gvif in zip(groups, gvifs, strict=True):
         df = len(cols)
         comparable = None if gvif is None else gvif ** (1.0 / df)
@@ -392,11 +394,13 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
             f"{worst['term'] if worst else 'n/a'}{cond_txt}."
         )
     elif "warn" in levels:
+        assert worst is not None  # no "fail" level: every VIF is finite
         note = (
             f"Moderate overlap between predictors: largest VIF {_g(worst['vif'], 3)} for "
             f"{worst['term']}, above the common-practice warning level {VIF_WARN:g}{cond_txt}."
         )
     else:
+        assert worst is not None  # predictors present and every VIF finite
         note = f"Predictors are not strongly related (largest VIF {_g(worst['vif'], 3)}{cond_txt})."
     level = "fail" if not holds else ("warn" if "warn" in levels else "ok")
     return {
@@ -414,6 +418,8 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
 def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict]:
     """Indices of flagged rows (largest Cook's distance first), reason masks and cut-offs."""
     inf = fit.influence
+    if inf is None:
+        raise ValueError("flag_rows needs a fit with influence measures")
     n, p = fit.n, fit.rank
     cut = {
         "cooks_flag": 4.0 / n,
@@ -558,7 +564,7 @@ def assess_conditions(inp: ConditionInputs) -> dict:
     z, X = validate(inp)
     fit = ct.fit_model(z, X, inp.has_intercept)
     curvatures = _curvatures(fit, inp)
-    out = {"linearity": _linearity(fit, inp, curvatures)}
+    out: dict[str, Any] = {"linearity": _linearity(fit, inp, curvatures)}
     for key, build in (
         ("normality", _normality),
         ("equal_variance", _equal_variance),

@@ -12,7 +12,9 @@ import csv
 import hashlib
 import io
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import cast
 
 import numpy as np
 
@@ -39,7 +41,7 @@ class RawColumn:
 
     name: str
     values: list
-    cell_pointer: callable  # row index -> JSON pointer (or a description for CSV)
+    cell_pointer: Callable[[int], str]  # row index -> JSON pointer (or a description for CSV)
     from_csv: bool = False
 
 
@@ -47,7 +49,7 @@ class RawColumn:
 class RawTable:
     n_rows: int
     names: list[str]
-    get: callable  # name -> RawColumn
+    get: Callable[[str], RawColumn]  # name -> RawColumn
     source: str
 
 
@@ -77,7 +79,7 @@ def _from_columns(cols: dict) -> RawTable:
             FieldProblem(
                 pointer("data", "columns", k),
                 f"column '{k}' has {lengths[k]} values but column "
-                f"'{max(lengths, key=lengths.get)}' has {n}",
+                f"'{max(lengths, key=lengths.__getitem__)}' has {n}",
             )
             for k in bad
         ]
@@ -88,7 +90,7 @@ def _from_columns(cols: dict) -> RawTable:
         )
 
     def get(name: str) -> RawColumn:
-        return RawColumn(name, cols[name], lambda i, _n=name: pointer("data", "columns", _n, i))
+        return RawColumn(name, cols[name], lambda i: pointer("data", "columns", name, i))
 
     return RawTable(n, list(cols), get, "columns")
 
@@ -114,7 +116,7 @@ def _from_records(recs: list) -> RawTable:
                     pointer("data", "records", i),
                     f"record {i} has no field '{name}'; send null for a missing value",
                 )
-        return RawColumn(name, vals, lambda i, _n=name: pointer("data", "records", i, _n))
+        return RawColumn(name, vals, lambda i: pointer("data", "records", i, name))
 
     return RawTable(len(recs), names, get, "records")
 
@@ -148,7 +150,7 @@ def _from_csv(text: str) -> RawTable:
     def get(name: str) -> RawColumn:
         j = idx[name]
         vals = [(r[j].strip() or None) for r in body]
-        return RawColumn(name, vals, lambda i, _n=name: "/data/csv", from_csv=True)
+        return RawColumn(name, vals, lambda i: "/data/csv", from_csv=True)
 
     return RawTable(len(body), header, get, "csv")
 
@@ -278,7 +280,7 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
             if first_string is None:
                 first_string = i
     if strings and numbers:
-        i = first_string if strings <= numbers else first_number
+        i = cast(int, first_string if strings <= numbers else first_number)  # both were seen
         where = _csv_where(col, i) if col.from_csv else f"row {i}"
         raise InputError.at(
             col.cell_pointer(i),
@@ -493,6 +495,8 @@ def split_groups(prep: Prepared) -> dict[str, Prepared | InputError]:
     maps to the :class:`InputError` that says why, so the other groups go on.
     """
     out: dict[str, Prepared | InputError] = {}
+    if prep.groups is None:
+        raise ValueError("split_groups needs a table prepared with group_by")
     for g in sorted(set(prep.groups.tolist())):
         mask = prep.groups == g
         sub = Prepared(

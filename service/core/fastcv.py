@@ -168,7 +168,7 @@ class Scorer:
             if not finite:
                 raise CandidateFailure(f"fold 1: {t0.label('y')} overflows on the training rows")
         fold_vals = np.empty(plan.n_splits)
-        pooled = {"rmse": [], "mae": [], "mape": []}
+        pooled: dict[str, list[float]] = {"rmse": [], "mae": [], "mape": []}
         lambdas: list[float] = []
         powers: list[list[float]] = []
         refits = 0
@@ -200,6 +200,7 @@ class Scorer:
                     except ValueError as exc:
                         raise CandidateFailure(f"fold {k + 1}: {exc}") from None
                     if estimate_lam:
+                        assert tk.lam is not None  # fit_transform estimated it
                         lambdas.append(float(tk.lam))
                     zk = tk.forward(y)
                     if not np.all(np.isfinite(zk[train[k]])):

@@ -42,6 +42,10 @@ class OLSFit:
     def table(self, level: float = 0.95) -> list[dict]:
         tq = stats.t.ppf(0.5 + level / 2.0, self.df_resid) if self.df_resid > 0 else math.nan
         rows = []
+        t: float | None
+        p: float | None
+        lo: float | None
+        hi: float | None
         for i, name in enumerate(self.names):
             b, s = float(self.coef[i]), float(self.se[i])
             if self.df_resid > 0 and s > 0:

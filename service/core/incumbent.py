@@ -13,6 +13,7 @@ data; otherwise ``keep``, since replacing a production model has a cost.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 
@@ -100,7 +101,7 @@ def decide(
     request_spec: dict | None = None,
 ) -> dict:
     """The contract's ``incumbent`` block."""
-    out = {
+    out: dict[str, Any] = {
         "specification": inc_spec.to_dict() if inc_spec is not None else request_spec,
         "rank": rank,
         "cv": None,

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -74,8 +75,8 @@ class _Projector:
         scale[scale == 0] = 1.0
         self.X = X
         self.scale = scale
-        self.L = None
-        self.q = None
+        self.L: np.ndarray | None = None
+        self.q: np.ndarray | None = None
         G = (X.T @ X) / np.outer(scale, scale)
         ev = np.linalg.eigvalsh(G)
         if ev[0] > 1e-8 * ev[-1]:
@@ -89,8 +90,8 @@ class _Projector:
             res_ones = n - float(c @ c)
             self.has_const = bool(res_ones < 1e-12 * n)
         else:
-            self._qr()
-            res = ones - self.q @ (self.q.T @ ones)
+            q = self._qr()
+            res = ones - q @ (q.T @ ones)
             self.has_const = bool(np.linalg.norm(res) < 1e-8 * math.sqrt(n))
 
     def _qr(self):
@@ -102,6 +103,7 @@ class _Projector:
 
     def _coef_rhs(self, xz: np.ndarray) -> np.ndarray:
         """L^-1 (X'z scaled): its squared norm is the explained sum of squares."""
+        assert self.L is not None  # only called when the Cholesky factor exists
         return np.linalg.solve(self.L, xz / self.scale)
 
     def rss(self, z: np.ndarray) -> float:
@@ -116,7 +118,7 @@ class _Projector:
         return float(r @ r)
 
 
-def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> callable:
+def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> Callable[[float], float]:
     """Box-Cox profile llf (Jacobian included) in the geometric-mean form, from log y."""
     n = logy.size
     lgm = float(np.mean(logy))
@@ -141,7 +143,7 @@ def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> callable:
     return llf
 
 
-def _profile(family: str, y: np.ndarray, proj: _Projector) -> callable:
+def _profile(family: str, y: np.ndarray, proj: _Projector) -> Callable[[float], float]:
     n = y.size
     if family == "box_cox":
         return _scaled_box_cox(np.log(y), proj)
@@ -195,7 +197,8 @@ def estimate_lambda(
     y = np.asarray(y, dtype=float)
     proj = _Projector(X, y.size)
     f = _profile(family, y, proj)
-    grid = vals = None
+    grid: np.ndarray | None = None
+    vals: np.ndarray | None = None
     if near is not None and math.isfinite(near):
         # a bracket around the warm start first: three evaluations when it holds the maximum
         trio = np.clip(np.array([near - 0.25, near, near + 0.25]), *LAMBDA_BOUNDS)
@@ -213,6 +216,7 @@ def estimate_lambda(
     if grid is None:
         grid = np.linspace(LAMBDA_BOUNDS[0], LAMBDA_BOUNDS[1], 25)
         vals = np.array([f(g) for g in grid])
+    assert vals is not None  # set together with grid
     if not np.any(np.isfinite(vals)):
         raise ValueError("the profile likelihood is not finite anywhere on [-3, 3]")
     i = int(np.nanargmax(np.where(np.isfinite(vals), vals, -np.inf)))

@@ -72,7 +72,7 @@ def build_model(
     hat = np.einsum("ij,jk,ik->i", design.X, fit.cov_unscaled, design.X)
     ranges = {}
     for t in design.terms:
-        if t.kind == "numeric":
+        if t.kind == "numeric" and t.raw is not None:
             ranges[t.column] = {"min": float(np.min(t.raw)), "max": float(np.max(t.raw))}
     body = {
         "format_version": FORMAT_VERSION,

@@ -161,6 +161,7 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
             note=fit.residual_reason or "too few standardised residuals",
         )
         return panel
+    assert r is not None  # rows is empty without standardised residuals
     m = rows.size
     order = rows[np.argsort(r[rows], kind="stable")]
     theo_all = stats.norm.ppf((np.arange(1, m + 1) - 0.375) / (m + 0.25))  # Blom (1958)

@@ -437,12 +437,12 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
                     f"predictor '{p.column}' is missing (null) in row "
                     f"{int(i)}; a prediction needs every predictor value",
                 )
-            for i, v in enumerate(typed.values):
+            for row, v in enumerate(typed.values):
                 if v is not None and v not in allowed:
                     n_bad += 1
                     add(
-                        raw.cell_pointer(i),
-                        f"level '{v}' of '{p.column}' in row {i} did not "
+                        raw.cell_pointer(row),
+                        f"level '{v}' of '{p.column}' in row {row} did not "
                         f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
                         "the model cannot predict for it",
                     )

@@ -59,7 +59,7 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
     name = t.name
     if name == "identity":
         return eta + float(np.mean(e))
-    if name == "log" or (name == "box_cox" and abs(t.lam) < 1e-12):
+    if name == "log" or (name == "box_cox" and t.lam is not None and abs(t.lam) < 1e-12):
         shift = (t.shift or 0.0) if name == "log" else 0.0
         with np.errstate(over="ignore"):
             m = float(np.mean(np.exp(e - e.max()))) * np.exp(e.max())

@@ -14,6 +14,7 @@ import itertools
 import math
 import time
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -229,7 +230,7 @@ def run_selection(
 
     ranked = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
-    entries = []
+    entries: list[dict[str, Any]] = []
     for s, parts in ranked:
         if len(entries) >= opts.top:
             break
@@ -295,7 +296,7 @@ def run_selection(
             f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
             "scored within the limits); the ranking is the best found so far."
         )
-    body = {"data": prep.data_summary(), "search": search, "ranking": entries}
+    body: dict[str, Any] = {"data": prep.data_summary(), "search": search, "ranking": entries}
     if incumbent_block is not None:
         body["incumbent"] = incumbent_block
     body.update(warnings=warnings, _scored=scored, _plan=plan)
@@ -314,7 +315,7 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
         except CandidateFailure as exc:
             why = exc.reason
     position = None
-    if inc_cv is not None:
+    if spec is not None and inc_cv is not None:
         for i, (s, _) in enumerate(ranked):
             if s.spec.key == spec.key:
                 position = i + 1

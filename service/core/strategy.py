@@ -73,6 +73,8 @@ class ZScreen:
         self.finite = bool(np.all(np.isfinite(z)))
         if intercept and self.finite:
             z = z - float(np.mean(z))  # same errors, less cancellation in z'z - 2b'c + b'Gb
+        self.cf: np.ndarray | None
+        self.ctot: np.ndarray | None
         self.cf, self.ctot = self.bank.cross(("screen", t), z) if self.finite else (None, None)
         idx = self.bank.index
         self.zz = (
@@ -87,6 +89,7 @@ class ZScreen:
     def sse(self, cols: list[int]) -> float:
         if not self.finite:
             return np.inf
+        assert self.cf is not None and self.ctot is not None and self.zz is not None  # finite
         self.count += 1
         S = np.asarray(cols, dtype=int)
         total = 0.0

@@ -265,7 +265,7 @@ def _verdicts(prep: Prepared, alpha: float):
     return n_failed
 
 
-def first_by_rule(band: list, n_failed) -> object:
+def first_by_rule(band: list[tuple[int, Specification]], n_failed) -> Specification:
     """Rank 1 of ``band`` ((position, spec) pairs in ranking order): fewest failed
     conditions, then band order (the rule of diagnose.py)."""
     return min(band, key=lambda item: (n_failed(item[1]), item[0]))[1]
@@ -335,6 +335,7 @@ def _stability(
         counts[f] = counts.get(f, 0) + 1
     order = sorted(counts, key=lambda i: (-counts[i], i))
     others = [i for i in order if i != w]
+    runner: dict[str, object] | None
     if others:
         ru = others[0]
         runner = {

@@ -1,0 +1,14 @@
+"""Type aliases shared by the core modules (annotations only, no behaviour)."""
+
+from __future__ import annotations
+
+from typing import Any, TypeAlias
+
+import numpy as np
+from numpy.typing import NDArray
+
+FloatArray: TypeAlias = NDArray[np.float64]
+BoolArray: TypeAlias = NDArray[np.bool_]
+IntArray: TypeAlias = NDArray[np.intp]
+AnyArray: TypeAlias = NDArray[Any]
+JSONDict: TypeAlias = dict[str, Any]
