@@ -12,3 +12,4 @@ BoolArray: TypeAlias = NDArray[np.bool_]
 IntArray: TypeAlias = NDArray[np.intp]
 AnyArray: TypeAlias = NDArray[Any]
 JSONDict: TypeAlias = dict[str, Any]
+TransformItem: TypeAlias = str | dict[str, Any]  # a transform as the request names it

@@ -14,7 +14,7 @@ import io
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import cast
+from typing import Any, cast
 
 import numpy as np
 
@@ -40,7 +40,7 @@ class RawColumn:
     """One column as received: Python values with ``None`` for missing."""
 
     name: str
-    values: list
+    values: list[Any]
     cell_pointer: Callable[[int], str]  # row index -> JSON pointer (or a description for CSV)
     from_csv: bool = False
 
@@ -53,7 +53,7 @@ class RawTable:
     source: str
 
 
-def read_table(data: dict) -> RawTable:
+def read_table(data: dict[str, Any]) -> RawTable:
     """``data`` is the contract's Data object, already a dict with exactly one key."""
     if "columns" in data and data["columns"] is not None:
         return _from_columns(data["columns"])
@@ -64,7 +64,7 @@ def read_table(data: dict) -> RawTable:
     raise InputError.at("/data", "data needs exactly one of 'columns', 'records' or 'csv'")
 
 
-def _from_columns(cols: dict) -> RawTable:
+def _from_columns(cols: dict[str, Any]) -> RawTable:
     if not cols:
         raise InputError.at(
             "/data/columns",
@@ -95,7 +95,7 @@ def _from_columns(cols: dict) -> RawTable:
     return RawTable(n, list(cols), get, "columns")
 
 
-def _from_records(recs: list) -> RawTable:
+def _from_records(recs: list[Any]) -> RawTable:
     names: list[str] = []
     seen: set[str] = set()
     for i, r in enumerate(recs):
@@ -168,7 +168,7 @@ def _csv_where(col: RawColumn, i: int) -> str:
     return f"data row {i} (line {i + 2}), column '{col.name}'"
 
 
-def _bad_numeric(col: RawColumn, i: int, v, role: str) -> InputError:
+def _bad_numeric(col: RawColumn, i: int, v: object, role: str) -> InputError:
     where = _csv_where(col, i) if col.from_csv else f"row {i}"
     hint = "send null (or an empty CSV cell) for a missing value"
     if role == "predictor":
@@ -179,7 +179,7 @@ def _bad_numeric(col: RawColumn, i: int, v, role: str) -> InputError:
     )
 
 
-def _to_float(v) -> float | None:
+def _to_float(v: object) -> float | None:
     """A JSON or CSV value as a finite float, ``None`` when it is not one."""
     if isinstance(v, bool):
         return None
@@ -201,7 +201,7 @@ def _to_float(v) -> float | None:
     return None
 
 
-def _is_number_like(v, from_csv: bool) -> bool:
+def _is_number_like(v: object, from_csv: bool) -> bool:
     if v is None:
         return True
     if from_csv:
@@ -237,7 +237,7 @@ def as_numeric(col: RawColumn, role: str) -> TypedColumn:
     return TypedColumn(col.name, "numeric", out, missing)
 
 
-def _level_text(v) -> str:
+def _level_text(v: object) -> str:
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, float) and v.is_integer():
@@ -308,7 +308,7 @@ class Prepared:
     row_ids: np.ndarray  # caller's input row numbers of the used rows
     order: np.ndarray | None  # permutation putting used rows in the order column's order
     rows_received: int
-    dropped: list[dict] = field(default_factory=list)
+    dropped: list[dict[str, Any]] = field(default_factory=list)
     rows_dropped: int = 0
     table_columns: tuple[str, ...] = ()
     order_values: np.ndarray | None = None  # the order column on the used rows
@@ -328,7 +328,7 @@ class Prepared:
                 h.update(name.encode() + b"\0" + "\x1f".join(self.categorical[name]).encode())
         return h.hexdigest()
 
-    def data_summary(self) -> dict:
+    def data_summary(self) -> dict[str, Any]:
         return {
             "rows_received": self.rows_received,
             "rows_used": self.n,
@@ -339,7 +339,7 @@ class Prepared:
 
 
 def prepare(
-    data: dict,
+    data: dict[str, Any],
     response: str,
     predictors: list[str],
     categorical: list[str] | None = None,

@@ -21,6 +21,7 @@ import math
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import optimize, special
@@ -44,7 +45,7 @@ class LambdaEstimate:
     lr_p_log: float | None  # LR test of lambda = 0
     at_bound: bool
 
-    def to_dict(self) -> dict:
+    def to_dict(self) -> dict[str, Any]:
         return {
             "lambda": self.lam,
             "ci_low": self.ci_low,
@@ -94,7 +95,7 @@ class _Projector:
             res = ones - q @ (q.T @ ones)
             self.has_const = bool(np.linalg.norm(res) < 1e-8 * math.sqrt(n))
 
-    def _qr(self):
+    def _qr(self) -> np.ndarray:
         if self.q is None:
             q, r = np.linalg.qr(self.X / self.scale)
             keep = np.abs(np.diag(r)) > 1e-10 * max(1.0, float(np.max(np.abs(np.diag(r)))))
@@ -268,7 +269,7 @@ def _chi2_1_ppf(level: float) -> float:
     return float(special.ndtri(0.5 + level / 2.0) ** 2)
 
 
-def _endpoint(g, lam: float, limit: float) -> float | None:
+def _endpoint(g: Callable[[float], float], lam: float, limit: float) -> float | None:
     """Where g crosses zero between lam (g > 0) and limit; None if it never does."""
     if g(limit) > 0:
         return None

@@ -15,6 +15,8 @@ beyond that.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 from scipy import stats
 from statsmodels.nonparametric.smoothers_lowess import lowess
@@ -49,7 +51,7 @@ def _even(k_total: int, k: int) -> np.ndarray:
     return np.unique(np.linspace(0, k_total - 1, k).round().astype(int))
 
 
-def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict | None:
+def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict[str, Any] | None:
     """LOWESS curve of y on x (frac 2/3, 3 robustness steps), thinned to CURVE_POINTS."""
     ok = np.isfinite(x) & np.isfinite(y)
     x, y = x[ok], y[ok]
@@ -75,7 +77,7 @@ def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict | 
     }
 
 
-def _scatter(x, y, ids, keep, **extra) -> dict:
+def _scatter(x, y, ids, keep, **extra) -> dict[str, Any]:
     ok = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
     out = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
     for name, values in extra.items():
@@ -83,7 +85,7 @@ def _scatter(x, y, ids, keep, **extra) -> dict:
     return out
 
 
-def _labels(x, y, ids, flagged) -> list[dict]:
+def _labels(x, y, ids, flagged) -> list[dict[str, Any]]:
     out = []
     for i in flagged[:MAX_LABELS]:
         if np.isfinite(x[i]) and np.isfinite(y[i]):
@@ -103,7 +105,7 @@ def _thin(n: int, max_points: int, must: np.ndarray, rng: np.random.Generator) -
     return np.sort(np.concatenate([must, sample]).astype(np.intp))
 
 
-def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict:
+def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict[str, Any]:
     f, e = fit.fitted, fit.resid
     lo, hi = float(f.min()), float(f.max())
     return {
@@ -118,7 +120,7 @@ def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict:
     }
 
 
-def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict:
+def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict[str, Any]:
     """Pointwise 2.5%/97.5% envelope of the ordered standardised residuals at ``ranks``."""
     if fit.n <= ENVELOPE_SIMULATION_MAX_N:
         # Atkinson (1981): simulate N(0, 1) responses on the same design and standardise
@@ -143,7 +145,7 @@ def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict:
     return {"lower": lower, "upper": upper, "method": method, "simulations": sims}
 
 
-def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
+def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict[str, Any]:
     panel = {
         "title": "Normal Q-Q",
         "x_label": "Normal quantile",
@@ -215,7 +217,7 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
     return panel
 
 
-def _spread_fitted(fit, ids, keep, flagged, rng) -> dict:
+def _spread_fitted(fit, ids, keep, flagged, rng) -> dict[str, Any]:
     panel = {
         "title": "Spread vs fitted",
         "x_label": "Fitted value (model scale)",
@@ -236,7 +238,7 @@ def _spread_fitted(fit, ids, keep, flagged, rng) -> dict:
     return panel
 
 
-def _influence_panel(fit, ids, keep, flagged) -> dict:
+def _influence_panel(fit, ids, keep, flagged) -> dict[str, Any]:
     panel = {
         "title": "Influence",
         "x_label": "Leverage (hat value)",
@@ -270,7 +272,7 @@ def _influence_panel(fit, ids, keep, flagged) -> dict:
     return panel
 
 
-def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict]:
+def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict[str, Any]]:
     out = []
     params = np.asarray(fit.res.params, dtype=float)
     for term in inp.terms:
@@ -302,7 +304,7 @@ def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict]:
     return out
 
 
-def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0) -> dict:
+def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0) -> dict[str, Any]:
     """Plot-ready data for the five diagnostic panels.
 
     Returns ``{"residuals_fitted", "normal_quantiles", "spread_fitted", "influence",

@@ -26,6 +26,7 @@ from __future__ import annotations
 import hmac
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import stats
@@ -53,7 +54,7 @@ class LoadedModel:
     xtx_inverse: np.ndarray
     residual_variance: float
     df_residual: int
-    levels: dict[str, dict]
+    levels: dict[str, dict[str, Any]]
     residuals: np.ndarray
     residual_kind: str
     training_range: dict[str, tuple[float, float]]
@@ -87,7 +88,7 @@ def _first_non_finite(d) -> str | None:
     return None
 
 
-def _need(d: dict, key: str, ptr: str):
+def _need(d: dict[str, Any], key: str, ptr: str):
     if key not in d:
         raise InputError.at(
             ptr, f"the model has no '{key}'; send the model object exactly as the service issued it"
@@ -163,7 +164,7 @@ def _specification(d) -> Specification:
     return Specification(resp["column"], rt, tuple(out), intercept)
 
 
-def _levels(d, spec: Specification) -> dict[str, dict]:
+def _levels(d, spec: Specification) -> dict[str, dict[str, Any]]:
     if not isinstance(d, dict):
         raise InputError.at("/model/levels", "the model's levels must be an object")
     cols = {p.column for p in spec.predictors}
@@ -196,7 +197,7 @@ def _levels(d, spec: Specification) -> dict[str, dict]:
     return out
 
 
-def expected_terms(spec: Specification, levels: dict[str, dict]) -> list[str]:
+def expected_terms(spec: Specification, levels: dict[str, dict[str, Any]]) -> list[str]:
     """Design column names in the order :func:`service.core.spec.build_design` makes them."""
     names = ["intercept"] if spec.intercept else []
     for p in spec.predictors:
@@ -208,7 +209,7 @@ def expected_terms(spec: Specification, levels: dict[str, dict]) -> list[str]:
     return names
 
 
-def load_model(d: dict) -> LoadedModel:
+def load_model(d: dict[str, Any]) -> LoadedModel:
     """Validate an artifact and return it in array form.
 
     Checks, in order: ``format_version`` is one this service reads; every
@@ -374,7 +375,9 @@ def _domain_text(t: tr.Transform) -> str:
     return "values where it is finite"
 
 
-def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np.ndarray], int]:
+def new_design(
+    model: LoadedModel, data: dict[str, Any]
+) -> tuple[np.ndarray, dict[str, np.ndarray], int]:
     """Design matrix (m, p) for the rows of ``data`` in input order.
 
     Returns ``(X, numeric raw values by column, m)``.  Raises one
@@ -496,7 +499,9 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
 
 
 # ------------------------------------------------------------------ numbers
-def model_scale_interval(model: LoadedModel, X: np.ndarray, interval: float = 0.95) -> dict:
+def model_scale_interval(
+    model: LoadedModel, X: np.ndarray, interval: float = 0.95
+) -> dict[str, Any]:
     """Linear predictor and prediction interval on the model (z) scale.
 
     ``X``: (m, p).  Returns arrays ``fit`` = X b, ``leverage`` h0 =
@@ -523,7 +528,7 @@ def _num(v: float) -> str:
     return f"{v:.4g}"
 
 
-def _finite_list(a: np.ndarray) -> list:
+def _finite_list(a: np.ndarray) -> list[Any]:
     """Floats as a list, ``None`` where not finite."""
     a = np.asarray(a, dtype=float)
     bad = ~np.isfinite(a)
@@ -534,7 +539,7 @@ def _finite_list(a: np.ndarray) -> list:
     return out.tolist()
 
 
-def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
+def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) -> dict[str, Any]:
     """Predictions for every row of ``data`` (contract Data object), in input order.
 
     Returns ``{"predictions": [{mean, median, lower, upper, extrapolation,

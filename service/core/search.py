@@ -42,8 +42,8 @@ STRATEGIES = ("auto", "exhaustive", "screened")
 
 @dataclass
 class SearchOptions:
-    response_transforms: list | None = None  # names or contract Transform dicts
-    predictor_transforms: list | dict | None = None
+    response_transforms: list[Any] | None = None  # names or contract Transform dicts
+    predictor_transforms: list[Any] | dict[str, Any] | None = None
     folds: int = 5
     repeats: int = 1
     seed: int = 0
@@ -53,8 +53,8 @@ class SearchOptions:
     max_candidates: int = 5000
     time_limit_s: float = 60.0
     intercept: bool = True
-    units: dict = field(default_factory=dict)
-    incumbent: dict | None = None  # contract Specification in use
+    units: dict[str, Any] = field(default_factory=dict)
+    incumbent: dict[str, Any] | None = None  # contract Specification in use
     strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
 
 
@@ -87,9 +87,9 @@ class _Evaluator:
     def __init__(self, prep: Prepared, space: cand.Space, scorer: Scorer, intercept: bool):
         self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
         self.scored: list[Scored] = []
-        self.failures: list[dict] = []
+        self.failures: list[dict[str, Any]] = []
         self.n_fail = 0
-        self.powers: dict = {}  # concrete spec key -> {column: estimate summary}
+        self.powers: dict[str, Any] = {}  # concrete spec key -> {column: estimate summary}
 
     def __call__(self, spec: Specification) -> Scored | None:
         try:
@@ -144,7 +144,7 @@ class _Evaluator:
 
 def run_selection(
     prep: Prepared, opts: SearchOptions, service_version: str, entry_hook=None
-) -> dict:
+) -> dict[str, Any]:
     """Search, score and rank; returns the contract's selection body (without service_version).
 
     ``entry_hook(entry, context)`` lets later stages (conditions, interpretation)
@@ -218,9 +218,9 @@ def run_selection(
         )
 
     ranked, _ = rank(scored, plan.folds)
-    cache: dict = {}
+    cache: dict[str, Any] = {}
 
-    def full(s: Scored, parts: dict) -> dict:
+    def full(s: Scored, parts: dict[str, Any]) -> dict[str, Any]:
         key = s.spec.key
         if key not in cache:
             cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
@@ -303,7 +303,9 @@ def run_selection(
     return body
 
 
-def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook) -> dict:
+def _incumbent(
+    opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook
+) -> dict[str, Any]:
     spec, why = incumbent.incumbent_spec(
         opts.incumbent, prep, prep.predictors, set(prep.table_columns)
     )
@@ -341,7 +343,9 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
     )
 
 
-def rank(scored: list[Scored], folds: int | None = None) -> tuple[list[tuple[Scored, dict]], float]:
+def rank(
+    scored: list[Scored], folds: int | None = None
+) -> tuple[list[tuple[Scored, dict[str, Any]]], float]:
     """Order by the one-standard-error rule with paired fold differences.
 
     A candidate is inside the band when its CV error exceeds the lowest by no
@@ -459,7 +463,7 @@ def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int) -> bool
     return len(cands) == total
 
 
-def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings: list):
+def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list[Any], warnings: list[Any]):
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
         prep.response,
@@ -474,7 +478,7 @@ def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings:
         opts.intercept,
     )
     info = None
-    lams: dict = {}
+    lams: dict[str, Any] = {}
     families = [t for t in resp if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted]
     if not families:
         return None, lams
@@ -504,7 +508,7 @@ def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings:
     return info, lams
 
 
-def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
+def _screen_scales(prep: Prepared, resp: list[Any], lams: dict[str, Any]) -> dict[str, Any]:
     """The fixed model scale each response transform is screened on."""
     out = {}
     for t in resp:
@@ -516,7 +520,7 @@ def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
     return out
 
 
-def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
+def _strategy_block(strategy: str, total: int, budget: Budget) -> dict[str, Any]:
     if strategy == "exhaustive":
         text = "every candidate scored, simplest first, until a limit"
     else:
@@ -535,8 +539,8 @@ def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
     }
 
 
-def _powers_block(info: dict) -> dict:
-    out: dict = {}
+def _powers_block(info: dict[str, Any]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
     for (t, col), summ in info.items():
         out.setdefault(col, []).append({"response_transform": t.to_dict(), **summ})
     return out
@@ -598,7 +602,7 @@ def run_grouped(
     entry_hook=None,
     finish=None,
     mapper=map,
-) -> dict:
+) -> dict[str, Any]:
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
@@ -648,7 +652,7 @@ def run_grouped(
     }
 
 
-def _problem_of(exc) -> dict:
+def _problem_of(exc) -> dict[str, Any]:
     status = 503 if isinstance(exc, BudgetError) else 422
     return {
         "type": f"urn:bestscale:problem:{exc.kind}",

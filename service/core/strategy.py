@@ -35,6 +35,7 @@ were screened and scored.
 from __future__ import annotations
 
 import time
+from typing import Any
 
 import numpy as np
 
@@ -158,14 +159,14 @@ def _start(options, name: str) -> list[int]:
 
 def screened_search(
     prep, resp, options, space: Space, evaluate, budget: Budget, screen_scales, intercept: bool
-) -> dict:
+) -> dict[str, Any]:
     """Run both stages; ``evaluate(spec)`` scores exactly (returns Scored or None on failure).
 
     ``screen_scales`` maps each response transform to the fixed transform used
     in the screen.  Returns counts for the response's ``search`` block.
     """
     screened = 0
-    queue: list = []
+    queue: list[Any] = []
     for t in resp:
         base = [_start(options, "identity"), _start(options, "log")]
         queue += [
@@ -198,7 +199,7 @@ def screened_search(
         queue += [
             make_spec(prep, t, [opts_t[j][o] for j, o in enumerate(c)], intercept) for _, c in best
         ]
-    scored: dict = {}
+    scored: dict[str, Any] = {}
 
     def run(spec):
         if spec.key in scored or not allowed(spec):
@@ -238,7 +239,7 @@ def screened_search(
     return {"screened": screened, "exact": len(scored)}
 
 
-def _best(scored: dict):
+def _best(scored: dict[str, Any]):
     """(open specification, Scored) with the lowest CV error, or None."""
     best = None
     for s in scored.values():

@@ -20,8 +20,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
+
+from ._types import FloatArray
 
 LADDER = (-1.0, -0.5, 0.0, 0.5, 1.0, 2.0)
 _EPS = float(np.spacing(1.0)) * 64
@@ -117,8 +120,8 @@ class Transform:
             return f"yeojohnson({column}, {lam})"
         return f"{n}({column})"
 
-    def to_dict(self) -> dict:
-        d: dict = {"name": self.name}
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {"name": self.name}
         if self.name == "power":
             d["exponent"] = self.exponent
         if self.name in ("box_cox", "yeo_johnson") and self.lam is not None:
@@ -178,7 +181,7 @@ class Transform:
         return None
 
     # ---------------------------------------------------------- forward/back
-    def forward(self, x: np.ndarray) -> np.ndarray:
+    def forward(self, x: FloatArray) -> FloatArray:
         n = self.name
         x = np.asarray(x, dtype=float)
         if n == "identity":
@@ -310,7 +313,7 @@ class Transform:
                 raise ValueError(n)
         return np.where(np.isfinite(out), out, np.nan)
 
-    def derivative(self, y: np.ndarray) -> np.ndarray:
+    def derivative(self, y: FloatArray) -> FloatArray:
         """g'(y)."""
         n = self.name
         y = np.asarray(y, dtype=float)
@@ -357,7 +360,7 @@ class Transform:
 
 
 # ---------------------------------------------------------------- families
-def _box_cox(y: np.ndarray, lam: float) -> np.ndarray:
+def _box_cox(y: FloatArray, lam: float) -> FloatArray:
     ly = np.log(y)
     if abs(lam) < 1e-12:
         return ly
@@ -365,7 +368,7 @@ def _box_cox(y: np.ndarray, lam: float) -> np.ndarray:
         return np.expm1(lam * ly) / lam
 
 
-def _inv_box_cox(z: np.ndarray, lam: float) -> np.ndarray:
+def _inv_box_cox(z: FloatArray, lam: float) -> FloatArray:
     if abs(lam) < 1e-12:
         return np.exp(z)
     # (1 + lam z)^(1/lam) as exp(log1p(lam z)/lam): keeps full precision when lam z is small
@@ -375,7 +378,7 @@ def _inv_box_cox(z: np.ndarray, lam: float) -> np.ndarray:
     return np.where(ok, val, 0.0 if lam > 0 else np.nan)
 
 
-def _yeo_johnson(y: np.ndarray, lam: float) -> np.ndarray:
+def _yeo_johnson(y: FloatArray, lam: float) -> FloatArray:
     out = np.empty_like(y, dtype=float)
     pos = y >= 0
     yp, yn = y[pos], y[~pos]
@@ -391,7 +394,7 @@ def _yeo_johnson(y: np.ndarray, lam: float) -> np.ndarray:
     return out
 
 
-def _inv_yeo_johnson(z: np.ndarray, lam: float) -> np.ndarray:
+def _inv_yeo_johnson(z: FloatArray, lam: float) -> FloatArray:
     out = np.empty_like(z, dtype=float)
     pos = z >= 0
     zp, zn = z[pos], z[~pos]
@@ -424,7 +427,7 @@ NUMERIC_NAMES = (
 ALL_NAMES = (*NUMERIC_NAMES, "categorical")
 
 
-def from_dict(d: dict) -> Transform:
+def from_dict(d: dict[str, Any]) -> Transform:
     """Build from a contract Transform object (already type-checked by the caller)."""
     name = d["name"]
     if name == "power":

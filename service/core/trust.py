@@ -57,6 +57,7 @@ import json
 import math
 import time
 from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
 
@@ -81,7 +82,7 @@ _WILSON_Z = 1.959963984540054  # standard normal 0.975 quantile
 
 
 # --------------------------------------------------------------------------- helpers
-def _open(t: dict, role: str) -> dict:
+def _open(t: dict[str, Any], role: str) -> dict[str, Any]:
     """A transform with what the search estimates from the response left open."""
     if not t.get("estimated"):
         return t
@@ -92,7 +93,7 @@ def _open(t: dict, role: str) -> dict:
     return t  # a predictor's log shift comes from the column alone
 
 
-def scale_key(spec: dict) -> str:
+def scale_key(spec: dict[str, Any]) -> str:
     """A specification's scale with parameters estimated from the response left open.
 
     ``box_cox`` with an estimated lambda, a log whose shift was chosen from the
@@ -226,14 +227,14 @@ def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
     return [where[id(s)] for s, p in ranked if p["within_one_se"]][: job.lead]
 
 
-def _resample_chunk(task) -> list:
+def _resample_chunk(task) -> list[Any]:
     """Worker: ``(job, resample indices, wall-clock deadline)`` -> one result per index.
 
     ``None`` marks a resample not run because the deadline passed (``time.time``
     is shared by the processes of one machine).
     """
     job, indices, deadline = task
-    out: list = []
+    out: list[Any] = []
     for b in indices:
         if time.time() > deadline:
             out.append(None)
@@ -280,7 +281,7 @@ def _stability(
     deadline: float,
     mapper,
     chunks: int,
-) -> dict:
+) -> dict[str, Any]:
     ranked, _ = rank(scored, opts.folds)
     lead = max(3 * opts.top, 15)
     n_failed = _verdicts(prep, opts.alpha)
@@ -306,7 +307,7 @@ def _stability(
     contenders = contenders[:MAX_CONTENDERS]
     if winner not in contenders:
         contenders = [winner, *contenders[: MAX_CONTENDERS - 1]]
-    cache: dict = {}
+    cache: dict[str, Any] = {}
     designs = []
     specs = [s.spec for s in contenders]
     for spec in specs:
@@ -403,7 +404,7 @@ def _stability(
 
 
 # --------------------------------------------------------------------------- optimism
-def _inner_search(task) -> dict:
+def _inner_search(task) -> dict[str, Any]:
     """Worker: the whole search on one outer training part; the selected candidate or why not."""
     sub, opts, service_version, deadline = task
     left = deadline - time.time()
@@ -429,7 +430,7 @@ def _optimism(
     inner_folds: int,
     deadline: float,
     mapper,
-) -> dict:
+) -> dict[str, Any]:
     inner_folds = min(inner_folds, opts.folds)
     outer = make_plan(prep.n, outer_folds, 1, opts.seed, opts.metric)
     assign = outer.assignments[0]
@@ -551,19 +552,19 @@ def _optimism(
 def assess_trust(
     prep: Prepared,
     opts: SearchOptions,
-    winner_spec: dict,
+    winner_spec: dict[str, Any],
     service_version: str,
     stability: bool,
     optimism: bool,
     resamples: int | None = None,
     *,
-    selection: dict | None = None,
+    selection: dict[str, Any] | None = None,
     outer_folds: int | None = None,
     inner_folds: int = DEFAULT_INNER_FOLDS,
     time_limit_s: float | None = None,
     mapper=map,
     chunks: int = 1,
-) -> dict:
+) -> dict[str, Any]:
     """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
 
     ``selection`` is the body :func:`run_selection` returned for ``prep`` and
@@ -597,7 +598,12 @@ def assess_trust(
     winner = _find(scored, scale_key(winner_spec))
     if winner is None:
         raise ValueError("winner_spec is not one of the scored candidates")
-    out: dict = {"stability": None, "resamples": None, "runner_up": None, "optimism": None}
+    out: dict[str, Any] = {
+        "stability": None,
+        "resamples": None,
+        "runner_up": None,
+        "optimism": None,
+    }
     warnings: list[str] = []
     name = label(winner.spec)
     if stability:

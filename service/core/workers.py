@@ -22,6 +22,7 @@ from __future__ import annotations
 import multiprocessing
 from collections.abc import Iterator
 from concurrent.futures import ProcessPoolExecutor
+from typing import Any
 
 _PRELOAD = ["service.core.search", "service.core.trust"]
 
@@ -64,7 +65,7 @@ def iter_in_processes(fn, items, processes: int, blas_threads: int = 1) -> Itera
         yield from pool.map(fn, items, chunksize=chunksize)
 
 
-def map_in_processes(fn, items, processes: int, blas_threads: int = 1) -> list:
+def map_in_processes(fn, items, processes: int, blas_threads: int = 1) -> list[Any]:
     """``[fn(x) for x in items]``, computed by up to ``processes`` worker processes.
 
     Results keep the input order; in this process for ``processes <= 1`` or a
@@ -90,7 +91,7 @@ def process_mapper(processes: int, blas_threads: int = 1, on_result=None):
     return mapper
 
 
-def select_group(task) -> dict:
+def select_group(task) -> dict[str, Any]:
     """Worker for one group of :func:`search.run_grouped`.
 
     ``task`` is ``(prepared | problem, opts, version[, entry_hook[, trust[, deadline]]])``:
