@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable, Iterable
 from typing import Any, TypeAlias
 
 import numpy as np
@@ -13,3 +14,5 @@ IntArray: TypeAlias = NDArray[np.intp]
 AnyArray: TypeAlias = NDArray[Any]
 JSONDict: TypeAlias = dict[str, Any]
 TransformItem: TypeAlias = str | dict[str, Any]  # a transform as the request names it
+# mapper(fn, items): the results of fn over items in order (builtin map or a process pool)
+Mapper: TypeAlias = Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]]

@@ -18,6 +18,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import stats
 from statsmodels.nonparametric.smoothers_lowess import lowess
 
@@ -36,11 +37,11 @@ ENVELOPE_SIMULATIONS = 199
 ENVELOPE_SIMULATION_MAX_N = 10_000
 
 
-def _floats(values) -> list[float]:
+def _floats(values: ArrayLike) -> list[float]:
     return [float(v) for v in np.asarray(values, dtype=float)]
 
 
-def _ints(values) -> list[int]:
+def _ints(values: ArrayLike) -> list[int]:
     return [int(v) for v in np.asarray(values)]
 
 
@@ -77,7 +78,9 @@ def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict[st
     }
 
 
-def _scatter(x, y, ids, keep, **extra) -> dict[str, Any]:
+def _scatter(
+    x: np.ndarray, y: np.ndarray, ids: np.ndarray, keep: np.ndarray, **extra: np.ndarray
+) -> dict[str, Any]:
     ok = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
     out = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
     for name, values in extra.items():
@@ -85,7 +88,9 @@ def _scatter(x, y, ids, keep, **extra) -> dict[str, Any]:
     return out
 
 
-def _labels(x, y, ids, flagged) -> list[dict[str, Any]]:
+def _labels(
+    x: np.ndarray, y: np.ndarray, ids: np.ndarray, flagged: np.ndarray
+) -> list[dict[str, Any]]:
     out = []
     for i in flagged[:MAX_LABELS]:
         if np.isfinite(x[i]) and np.isfinite(y[i]):
@@ -105,7 +110,13 @@ def _thin(n: int, max_points: int, must: np.ndarray, rng: np.random.Generator) -
     return np.sort(np.concatenate([must, sample]).astype(np.intp))
 
 
-def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict[str, Any]:
+def _residuals_fitted(
+    fit: ct.Fit,
+    ids: np.ndarray,
+    keep: np.ndarray,
+    flagged: np.ndarray,
+    rng: np.random.Generator,
+) -> dict[str, Any]:
     f, e = fit.fitted, fit.resid
     lo, hi = float(f.min()), float(f.max())
     return {
@@ -120,11 +131,12 @@ def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict[str, Any]:
     }
 
 
-def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict[str, Any]:
+def _envelope(fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict[str, Any]:
     """Pointwise 2.5%/97.5% envelope of the ordered standardised residuals at ``ranks``."""
     if fit.n <= ENVELOPE_SIMULATION_MAX_N:
         # Atkinson (1981): simulate N(0, 1) responses on the same design and standardise
         # their residuals exactly as the observed ones.
+        assert fit.influence is not None  # the caller has standardised residuals
         h = fit.influence.leverage
         ok = h < 1 - ct.LEVERAGE_ONE_TOL
         Y = rng.standard_normal((fit.n, ENVELOPE_SIMULATIONS))
@@ -145,7 +157,13 @@ def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict[
     return {"lower": lower, "upper": upper, "method": method, "simulations": sims}
 
 
-def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict[str, Any]:
+def _normal_quantiles(
+    fit: ct.Fit,
+    ids: np.ndarray,
+    max_points: int,
+    flagged: np.ndarray,
+    rng: np.random.Generator,
+) -> dict[str, Any]:
     panel = {
         "title": "Normal Q-Q",
         "x_label": "Normal quantile",
@@ -217,7 +235,13 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict[str, Any]:
     return panel
 
 
-def _spread_fitted(fit, ids, keep, flagged, rng) -> dict[str, Any]:
+def _spread_fitted(
+    fit: ct.Fit,
+    ids: np.ndarray,
+    keep: np.ndarray,
+    flagged: np.ndarray,
+    rng: np.random.Generator,
+) -> dict[str, Any]:
     panel = {
         "title": "Spread vs fitted",
         "x_label": "Fitted value (model scale)",
@@ -238,7 +262,9 @@ def _spread_fitted(fit, ids, keep, flagged, rng) -> dict[str, Any]:
     return panel
 
 
-def _influence_panel(fit, ids, keep, flagged) -> dict[str, Any]:
+def _influence_panel(
+    fit: ct.Fit, ids: np.ndarray, keep: np.ndarray, flagged: np.ndarray
+) -> dict[str, Any]:
     panel = {
         "title": "Influence",
         "x_label": "Leverage (hat value)",
@@ -272,7 +298,13 @@ def _influence_panel(fit, ids, keep, flagged) -> dict[str, Any]:
     return panel
 
 
-def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict[str, Any]]:
+def _partial_residuals(
+    fit: ct.Fit,
+    inp: ConditionInputs,
+    ids: np.ndarray,
+    keep: np.ndarray,
+    rng: np.random.Generator,
+) -> list[dict[str, Any]]:
     out = []
     params = np.asarray(fit.res.params, dtype=float)
     for term in inp.terms:

@@ -3,13 +3,16 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, TypeAlias
 
 import numpy as np
 
 from . import transforms as tr
 from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
+
+# response transform, predictor transforms, intercept: identifies a specification
+SpecKey: TypeAlias = tuple[tr.Transform, tuple[tr.Transform, ...], bool]
 
 
 @dataclass(frozen=True)
@@ -47,7 +50,7 @@ class Specification:
         )
 
     @property
-    def key(self) -> tuple[tr.Transform, tuple[tr.Transform, ...], bool]:
+    def key(self) -> SpecKey:
         return (
             self.response_transform,
             tuple(p.transform for p in self.predictors),

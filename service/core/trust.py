@@ -56,19 +56,21 @@ from __future__ import annotations
 import json
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 
 from . import transforms as tr
+from ._types import Mapper
 from .crossval import CVPlan, cross_validate, make_plan
 from .data import Prepared
 from .diagnose import CONDITION_NAMES, conditions_for, failed
 from .errors import BestscaleError, CandidateFailure, InputError
 from .report import fitted_model
 from .search import Scored, SearchOptions, rank, run_selection
-from .spec import Specification, build_design
+from .spec import Specification, SpecKey, build_design
 
 DEFAULT_RESAMPLES = 20
 MAX_RESAMPLES = 1000
@@ -227,7 +229,7 @@ def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
     return [where[id(s)] for s, p in ranked if p["within_one_se"]][: job.lead]
 
 
-def _resample_chunk(task) -> list[Any]:
+def _resample_chunk(task: tuple[_StabilityJob, list[int], float]) -> list[Any]:
     """Worker: ``(job, resample indices, wall-clock deadline)`` -> one result per index.
 
     ``None`` marks a resample not run because the deadline passed (``time.time``
@@ -249,9 +251,9 @@ def _chunks(items: list[int], parts: int) -> list[list[int]]:
     return [items[i : i + size] for i in range(0, len(items), size)]
 
 
-def _verdicts(prep: Prepared, alpha: float):
+def _verdicts(prep: Prepared, alpha: float) -> Callable[[Specification], int]:
     """Failed-condition counts on all rows, computed once per specification."""
-    cache: dict[tuple, int] = {}
+    cache: dict[SpecKey, int] = {}
 
     def n_failed(spec: Specification) -> int:
         if spec.key not in cache:
@@ -266,7 +268,9 @@ def _verdicts(prep: Prepared, alpha: float):
     return n_failed
 
 
-def first_by_rule(band: list[tuple[int, Specification]], n_failed) -> Specification:
+def first_by_rule(
+    band: list[tuple[int, Specification]], n_failed: Callable[[Specification], int]
+) -> Specification:
     """Rank 1 of ``band`` ((position, spec) pairs in ranking order): fewest failed
     conditions, then band order (the rule of diagnose.py)."""
     return min(band, key=lambda item: (n_failed(item[1]), item[0]))[1]
@@ -279,7 +283,7 @@ def _stability(
     winner: Scored,
     resamples: int,
     deadline: float,
-    mapper,
+    mapper: Mapper,
     chunks: int,
 ) -> dict[str, Any]:
     ranked, _ = rank(scored, opts.folds)
@@ -307,8 +311,8 @@ def _stability(
     contenders = contenders[:MAX_CONTENDERS]
     if winner not in contenders:
         contenders = [winner, *contenders[: MAX_CONTENDERS - 1]]
-    cache: dict[str, Any] = {}
-    designs = []
+    cache: dict[tuple[str, tr.Transform], np.ndarray] = {}
+    designs: list[tuple[np.ndarray, list[str]]] = []
     specs = [s.spec for s in contenders]
     for spec in specs:
         d = build_design(spec, prep, cache)
@@ -404,7 +408,7 @@ def _stability(
 
 
 # --------------------------------------------------------------------------- optimism
-def _inner_search(task) -> dict[str, Any]:
+def _inner_search(task: tuple[Prepared, SearchOptions, str, float]) -> dict[str, Any]:
     """Worker: the whole search on one outer training part; the selected candidate or why not."""
     sub, opts, service_version, deadline = task
     left = deadline - time.time()
@@ -429,7 +433,7 @@ def _optimism(
     outer_folds: int,
     inner_folds: int,
     deadline: float,
-    mapper,
+    mapper: Mapper,
 ) -> dict[str, Any]:
     inner_folds = min(inner_folds, opts.folds)
     outer = make_plan(prep.n, outer_folds, 1, opts.seed, opts.metric)
@@ -474,7 +478,7 @@ def _optimism(
     ]
     picks = list(mapper(_inner_search, tasks))
 
-    evaluated: dict[tuple, np.ndarray | str] = {}
+    evaluated: dict[tuple[str, bool], np.ndarray | str] = {}
     rows = []
     nested = np.full(outer_folds, np.nan)
     winner_key = scale_key(winner.spec.to_dict())
@@ -562,7 +566,7 @@ def assess_trust(
     outer_folds: int | None = None,
     inner_folds: int = DEFAULT_INNER_FOLDS,
     time_limit_s: float | None = None,
-    mapper=map,
+    mapper: Mapper = map,
     chunks: int = 1,
 ) -> dict[str, Any]:
     """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
