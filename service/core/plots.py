@@ -90,9 +90,9 @@ def _scatter(
     x: np.ndarray, y: np.ndarray, ids: np.ndarray, keep: np.ndarray, **extra: np.ndarray
 ) -> dict[str, Any]:
     ok = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
-    out = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
+    out: dict[str, Any] = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
     for name, values in extra.items():
-        out[name] = _floats(values[ok])
+        out[name] = [ct.num(v) for v in values[ok]]  # None where undefined (leverage 1)
     return out
 
 
