@@ -74,7 +74,16 @@ def exposure_warning(host: str, token: str | None) -> str | None:
 
 def serve(argv: list[str]) -> int:
     s = _settings_or_exit()
-    ap = argparse.ArgumentParser(prog="python -m service", description="Run the Bestscale API.")
+    ap = argparse.ArgumentParser(
+        prog="python -m service",
+        description="Run the Bestscale API (HTTP, JSON).",
+        epilog=(
+            "commands: 'python -m service select --data FILE --response Y --predictors A,B' "
+            "runs one selection (or one per segment) in this process, without a server, and "
+            "writes the JSON the API returns; 'python -m service select --help' lists its flags. "
+            "Settings come from BESTSCALE_* environment variables (README: Settings)."
+        ),
+    )
     ap.add_argument("--host", default=s.host, help=f"address to listen on (default {s.host})")
     ap.add_argument("--port", type=int, default=s.port, help=f"port (default {s.port})")
     ap.add_argument(

@@ -198,6 +198,10 @@ def _place_labels(ax, labels: list[dict], transform=None) -> list[int]:
     ax.autoscale_view()
     frame = ax.get_window_extent()
     placed: list[tuple[float, float, float, float]] = []
+    legend = ax.get_legend()
+    if legend is not None:  # labels never sit under the legend either
+        box = legend.get_window_extent(ax.figure.canvas.get_renderer())
+        placed.append((box.x0, box.y0, box.x1, box.y1))
     skipped: list[int] = []
     for item in labels[:MAX_LABELS]:
         x, y = item["x"], transform(item) if transform else item["y"]
@@ -407,6 +411,7 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
     title_h = TITLE_H if title else 0.0
     height = title_h + HEAD_H + sum(h for _, h in rows) + GAP_H * (len(rows) - 1) + FOOT_H + 0.35
     fig = Figure(figsize=(width, height), dpi=DPI, facecolor="white")
+    FigureCanvasAgg(fig)  # a renderer to measure legends while labels are placed
     ratios = []
     for k, (_, h) in enumerate(rows):
         ratios.append(h)
