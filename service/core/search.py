@@ -13,7 +13,9 @@ from __future__ import annotations
 import itertools
 import math
 import time
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -25,11 +27,18 @@ from .bank import FoldIndex
 from .crossval import CVPlan, CVResult, from_score, make_plan
 from .data import Prepared
 from .diagnose import CONDITION_NAMES, failed, failed_for_ranking
-from .errors import BudgetError, CandidateFailure, InputError, ModelFailure, pointer
+from .errors import (
+    BestscaleError,
+    BudgetError,
+    CandidateFailure,
+    InputError,
+    ModelFailure,
+    pointer,
+)
 from .fastcv import Dynamic, Scorer
 from .likelihood import estimate_lambda
 from .report import entry_for
-from .spec import PredictorSpec, Specification, build_design
+from .spec import PredictorSpec, Specification, SpecKey, build_design
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
 DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
@@ -37,13 +46,16 @@ DEFAULT_PREDICTOR = cand.DEFAULT_PREDICTOR
 
 MAX_FAILURES_LISTED = 10
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
+
+# entry_hook(entry, {"spec", "prep", "opts"}) completes a ranking entry in place
+EntryHook = Callable[[dict[str, Any], dict[str, Any]], object]
 STRATEGIES = ("auto", "exhaustive", "screened")
 
 
 @dataclass
 class SearchOptions:
-    response_transforms: list | None = None  # names or contract Transform dicts
-    predictor_transforms: list | dict | None = None
+    response_transforms: list[Any] | None = None  # names or contract Transform dicts
+    predictor_transforms: list[Any] | dict[str, Any] | None = None
     folds: int = 5
     repeats: int = 1
     seed: int = 0
@@ -53,8 +65,8 @@ class SearchOptions:
     max_candidates: int = 5000
     time_limit_s: float = 60.0
     intercept: bool = True
-    units: dict = field(default_factory=dict)
-    incumbent: dict | None = None  # contract Specification in use
+    units: dict[str, Any] = field(default_factory=dict)
+    incumbent: dict[str, Any] | None = None  # contract Specification in use
     strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
 
 
@@ -64,7 +76,7 @@ class Scored:
     cv: CVResult
     open_spec: Specification | None = None  # as searched (estimated powers not yet fitted)
 
-    def __post_init__(self):
+    def __post_init__(self) -> None:
         if self.open_spec is None:
             self.open_spec = self.spec
 
@@ -87,9 +99,9 @@ class _Evaluator:
     def __init__(self, prep: Prepared, space: cand.Space, scorer: Scorer, intercept: bool):
         self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
         self.scored: list[Scored] = []
-        self.failures: list[dict] = []
+        self.failures: list[dict[str, Any]] = []
         self.n_fail = 0
-        self.powers: dict = {}  # concrete spec key -> {column: estimate summary}
+        self.powers: dict[SpecKey, dict[str, Any]] = {}  # concrete key -> {column: summary}
 
     def __call__(self, spec: Specification) -> Scored | None:
         try:
@@ -143,8 +155,11 @@ class _Evaluator:
 
 
 def run_selection(
-    prep: Prepared, opts: SearchOptions, service_version: str, entry_hook=None
-) -> dict:
+    prep: Prepared,
+    opts: SearchOptions,
+    service_version: str,
+    entry_hook: EntryHook | None = None,
+) -> dict[str, Any]:
     """Search, score and rank; returns the contract's selection body (without service_version).
 
     ``entry_hook(entry, context)`` lets later stages (conditions, interpretation)
@@ -194,7 +209,7 @@ def run_selection(
         else ("exhaustive" if total <= EXHAUSTIVE_LIMIT else "screened")
     )
     screen_scales = _screen_scales(prep, resp, screen_lams)
-    extra = {}
+    extra: dict[tuple[Any, ...], np.ndarray] = {}
     if strategy == "screened":
         for (t, col), a in bt_powers.items():
             extra[("bt", screen_scales.get(t, t), col)] = bt.concrete_transform(a).forward(
@@ -233,9 +248,9 @@ def run_selection(
     listable, read_notes, scales_info = distinct_scales(scored, ev, prep, plan, shift_needed)
     band = Band.of(listable)
     ranked, _ = rank(listable, plan.folds, band)
-    cache: dict = {}
+    cache: dict[SpecKey, dict[str, Any]] = {}
 
-    def full(s: Scored, parts: dict) -> dict:
+    def full(s: Scored, parts: dict[str, Any]) -> dict[str, Any]:
         key = s.spec.key
         if key not in cache:
             cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
@@ -247,7 +262,7 @@ def run_selection(
 
     ranked = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
-    entries = []
+    entries: list[dict[str, Any]] = []
     for s, parts in ranked:
         if len(entries) >= opts.top:
             break
@@ -321,7 +336,7 @@ def run_selection(
             f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
             "scored within the limits); the ranking is the best found so far."
         )
-    body = {"data": prep.data_summary(), "search": search, "ranking": entries}
+    body: dict[str, Any] = {"data": prep.data_summary(), "search": search, "ranking": entries}
     if incumbent_block is not None:
         body["incumbent"] = incumbent_block
     body.update(warnings=warnings, _scored=listable, _plan=plan)
@@ -329,8 +344,17 @@ def run_selection(
 
 
 def _incumbent(
-    opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook, band=None
-) -> dict:
+    opts: SearchOptions,
+    prep: Prepared,
+    plan: CVPlan,
+    shift_needed: bool,
+    scored: list[Scored],
+    ranked: list[tuple[Scored, dict[str, Any]]],
+    entries: list[dict[str, Any]],
+    entry_hook: EntryHook | None,
+    band: Band | None = None,
+) -> dict[str, Any]:
+    assert opts.incumbent is not None  # called only for a request with an incumbent
     spec, why = incumbent.incumbent_spec(
         opts.incumbent, prep, prep.predictors, set(prep.table_columns)
     )
@@ -342,7 +366,7 @@ def _incumbent(
         except CandidateFailure as exc:
             why = exc.reason
     position = None
-    if inc_cv is not None:
+    if spec is not None and inc_cv is not None:
         for i, (s, _) in enumerate(ranked):
             if s.spec.key == spec.key:
                 position = i + 1
@@ -390,7 +414,7 @@ class Band:
         se = float(best.cv.std_error) if math.isfinite(best.cv.std_error) else 0.0
         return cls(float(best.cv.value), se, float(best.cv.value) + se, best.cv.metric)
 
-    def to_dict(self) -> dict:
+    def to_dict(self) -> dict[str, Any]:
         return {
             "lowest_cv_value": self.lowest,
             "std_error_of_lowest": self.std_error,
@@ -407,7 +431,9 @@ class Band:
         }
 
 
-def band_order(cv: list[float], simplicity: list[tuple], threshold: float) -> list[int]:
+def band_order(
+    cv: list[float], simplicity: list[tuple[int, int, int]], threshold: float
+) -> list[int]:
     """Positions in ranking order: band members by (simplicity, error), then the rest by error."""
     idx = range(len(cv))
     inside = sorted((i for i in idx if cv[i] <= threshold), key=lambda i: (simplicity[i], cv[i], i))
@@ -415,7 +441,9 @@ def band_order(cv: list[float], simplicity: list[tuple], threshold: float) -> li
     return inside + outside
 
 
-def condition_order(order: list[int], inside: list[bool], n_failed: dict, lead: int) -> list[int]:
+def condition_order(
+    order: list[int], inside: list[bool], n_failed: dict[int, int], lead: int
+) -> list[int]:
     """Re-order the first ``lead`` band members of ``order`` by failed conditions, then by
     their place in ``order``; everything else keeps its place after them."""
     band = [i for i in order if inside[i]][:lead]
@@ -425,20 +453,20 @@ def condition_order(order: list[int], inside: list[bool], n_failed: dict, lead: 
     return head + [i for i in order if i not in chosen]
 
 
-def dominates(a: tuple, b: tuple) -> bool:
+def dominates(a: tuple[float, tuple[int, ...], int], b: tuple[float, tuple[int, ...], int]) -> bool:
     """``a`` = (cv, simplicity tuple, failed count) dominates ``b``: at least as simple on
     every count, strictly lower error, no more failed conditions."""
     return all(x <= y for x, y in zip(a[1], b[1], strict=True)) and a[0] < b[0] and a[2] <= b[2]
 
 
-def simplicity_parts(spec: Specification) -> dict:
+def simplicity_parts(spec: Specification) -> dict[str, int]:
     n_est, cost, n_tr = spec.simplicity()
     return {"estimated": n_est, "readability": cost, "transformed_columns": n_tr}
 
 
 def rank(
     scored: list[Scored], folds: int | None = None, band: Band | None = None
-) -> tuple[list[tuple[Scored, dict]], float]:
+) -> tuple[list[tuple[Scored, dict[str, Any]]], float]:
     """Order by one band (:class:`Band`): inside it by simplicity then error, outside by error.
 
     Every entry's ``parts`` carries the same threshold.  ``paired_std_error`` (the
@@ -483,7 +511,12 @@ def rank(
     return out, band.lowest
 
 
-def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str]):
+def _order_by_conditions(
+    ranked: list[tuple[Scored, dict[str, Any]]],
+    full: Callable[[Scored, dict[str, Any]], dict[str, Any]],
+    opts: SearchOptions,
+    warnings: list[str],
+) -> list[tuple[Scored, dict[str, Any]]]:
     """Re-order the leading band members by failed conditions (see diagnose.py)."""
     lead_m = max(3 * opts.top, 15)
     band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]][:lead_m]
@@ -529,9 +562,9 @@ CONDITION_RULE = (
 )
 
 
-def _uniform_options(prep: Prepared, preds) -> list[list[tr.Transform]]:
+def _uniform_options(prep: Prepared, preds: list[list[tr.Transform]]) -> list[list[tr.Transform]]:
     """Small samples: each numeric predictor keeps identity and, where it applies, log."""
-    out = []
+    out: list[list[tr.Transform]] = []
     for c, o in zip(prep.predictors, preds, strict=True):
         if c in prep.categorical:
             out.append(o)
@@ -545,17 +578,26 @@ def _uniform_options(prep: Prepared, preds) -> list[list[tr.Transform]]:
     return out
 
 
-def _uniform_combos(preds) -> list[tuple]:
+def _uniform_combos(preds: list[list[tr.Transform]]) -> list[tuple[tr.Transform, ...]]:
     """All predictors untransformed, and all logged where a log is an option."""
     plain = tuple(o[0] for o in preds)
     logged = tuple(next((t for t in o if t.name == "log"), o[0]) for o in preds)
     return [plain] if logged == plain else [plain, logged]
 
 
-def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int, uniform=False) -> bool:
+def _exhaustive(
+    prep: Prepared,
+    resp: list[tr.Transform],
+    preds: list[list[tr.Transform]],
+    opts: SearchOptions,
+    ev: _Evaluator,
+    budget: Budget,
+    total: int,
+    uniform: bool = False,
+) -> bool:
     """Score every candidate, simplest first, until a limit; True when nothing was left out."""
-    cands = []
-    combos = (
+    cands: list[Specification] = []
+    combos: Iterable[tuple[tr.Transform, ...]] = (
         ((r, *c) for r in resp for c in _uniform_combos(preds))
         if uniform
         else itertools.product(resp, *preds)
@@ -578,7 +620,9 @@ def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int, uniform
     return len(cands) == total
 
 
-def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings: list):
+def _response_lambdas(
+    prep: Prepared, opts: SearchOptions, resp: list[tr.Transform], warnings: list[str]
+) -> tuple[dict[str, Any] | None, dict[tr.Transform, float]]:
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
         prep.response,
@@ -592,8 +636,8 @@ def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings:
         ),
         opts.intercept,
     )
-    info = None
-    lams: dict = {}
+    info: dict[str, Any] | None = None
+    lams: dict[tr.Transform, float] = {}
     families = [t for t in resp if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted]
     if not families:
         return None, lams
@@ -623,9 +667,11 @@ def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings:
     return info, lams
 
 
-def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
+def _screen_scales(
+    prep: Prepared, resp: list[tr.Transform], lams: dict[tr.Transform, float]
+) -> dict[tr.Transform, tr.Transform]:
     """The fixed model scale each response transform is screened on."""
-    out = {}
+    out: dict[tr.Transform, tr.Transform] = {}
     for t in resp:
         if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
             if t in lams:
@@ -635,7 +681,7 @@ def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
     return out
 
 
-def _box_cox_context(info: dict, first: dict, prep: Prepared) -> dict:
+def _box_cox_context(info: dict[str, Any], first: dict[str, Any], prep: Prepared) -> dict[str, Any]:
     """When rank 1's response scale is not what the reported lambda suggests: lambda again
     on rank 1's design, with one sentence saying that lambda depends on the predictor scales."""
     t = tr.from_dict(first["specification"]["response"]["transform"])
@@ -674,7 +720,7 @@ def _box_cox_context(info: dict, first: dict, prep: Prepared) -> dict:
     }
 
 
-def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
+def _strategy_block(strategy: str, total: int, budget: Budget) -> dict[str, Any]:
     if strategy == "exhaustive":
         text = "every candidate scored, simplest first, until a limit"
     else:
@@ -693,14 +739,14 @@ def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
     }
 
 
-def _powers_block(info: dict) -> dict:
-    out: dict = {}
+def _powers_block(info: dict[tuple[tr.Transform, str], dict[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
     for (t, col), summ in info.items():
         out.setdefault(col, []).append({"response_transform": t.to_dict(), **summ})
     return out
 
 
-def _fmt_ci(lo, hi) -> str:
+def _fmt_ci(lo: float | None, hi: float | None) -> str:
     a = "below -5" if lo is None else f"{lo:.3g}"
     b = "above 5" if hi is None else f"{hi:.3g}"
     return f"[{a}, {b}]"
@@ -753,10 +799,10 @@ def run_grouped(
     prep: Prepared,
     opts: SearchOptions,
     service_version: str,
-    entry_hook=None,
-    finish=None,
-    mapper=map,
-) -> dict:
+    entry_hook: EntryHook | None = None,
+    finish: Callable[[dict[str, Any]], dict[str, Any]] | None = None,
+    mapper: Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]] = map,
+) -> dict[str, Any]:
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
@@ -806,7 +852,7 @@ def run_grouped(
     }
 
 
-def _problem_of(exc) -> dict:
+def _problem_of(exc: BestscaleError) -> dict[str, Any]:
     status = 503 if isinstance(exc, BudgetError) else 422
     return {
         "type": f"urn:bestscale:problem:{exc.kind}",
@@ -825,12 +871,14 @@ def _has_estimate(spec: Specification) -> bool:
     return spec.simplicity()[0] > 0
 
 
-def _ladder_reading(e: Scored, ev: _Evaluator, prep: Prepared, positive: bool):
+def _ladder_reading(
+    e: Scored, ev: _Evaluator, prep: Prepared, positive: bool
+) -> tuple[Specification | None, list[dict[str, Any]]]:
     """(open or fixed specification read on the ladder, notes) or (None, []) when no
     estimate of ``e`` has a ladder value inside its 95% interval."""
     spec = e.spec
     t = spec.response_transform
-    notes: list[dict] = []
+    notes: list[dict[str, Any]] = []
     if t.name in ("box_cox", "yeo_johnson") and (t.lam is None or t.estimated):
         try:
             est = estimate_lambda(t.name, prep.y, build_design(spec, prep).X)
@@ -855,8 +903,8 @@ def _ladder_reading(e: Scored, ev: _Evaluator, prep: Prepared, positive: bool):
     powers = ev.powers.get(spec.key)
     if not powers:
         return None, []
-    new = []
-    for p in e.open_spec.predictors:
+    new: list[PredictorSpec] = []
+    for p in (e.open_spec or e.spec).predictors:
         summ = powers.get(p.column) if bt.is_open(p.transform) else None
         if summ is None or summ.get("ladder") is None:
             new.append(p)
@@ -879,7 +927,9 @@ def _ladder_reading(e: Scored, ev: _Evaluator, prep: Prepared, positive: bool):
     return Specification(spec.response, spec.response_transform, tuple(new), spec.intercept), notes
 
 
-def _score_fixed(spec: Specification, ev: _Evaluator, prep, plan, shift_needed) -> Scored | None:
+def _score_fixed(
+    spec: Specification, ev: _Evaluator, prep: Prepared, plan: CVPlan, shift_needed: bool
+) -> Scored | None:
     try:
         got = ev(spec)
     except KeyError:  # a ladder column the bank does not hold: score it directly
@@ -892,8 +942,8 @@ def _score_fixed(spec: Specification, ev: _Evaluator, prep, plan, shift_needed) 
 
 
 def distinct_scales(
-    scored: list[Scored], ev: _Evaluator, prep: Prepared, plan, shift_needed: bool
-) -> tuple[list[Scored], dict, dict]:
+    scored: list[Scored], ev: _Evaluator, prep: Prepared, plan: CVPlan, shift_needed: bool
+) -> tuple[list[Scored], dict[SpecKey, list[dict[str, Any]]], dict[str, Any]]:
     """The candidates that may be listed: one per set of scales.
 
     An estimate (response lambda, predictor power) whose 95% interval holds a ladder
@@ -905,7 +955,7 @@ def distinct_scales(
     positive response only the better of Box-Cox and Yeo-Johnson with the same
     predictors stays.  Returns (listable, {key: notes}, summary for ``search``).
     """
-    by_key: dict = {}
+    by_key: dict[SpecKey, Scored] = {}
     for s in scored:
         if s.spec.key not in by_key or s.cv.value < by_key[s.spec.key].cv.value:
             by_key[s.spec.key] = s
@@ -915,7 +965,7 @@ def distinct_scales(
     ref = min(fixed.values(), key=lambda s: s.cv.value) if fixed else None
     limit = ref.cv.value + ref.cv.std_error if ref is not None else math.inf
     examined = [e for e in est if e.cv.value <= limit][:MAX_EXAMINED]
-    notes: dict = {}
+    notes: dict[SpecKey, list[dict[str, Any]]] = {}
     still: list[Scored] = []
     read = 0
     for e in examined:
@@ -942,7 +992,7 @@ def distinct_scales(
     ref = min(fixed.values(), key=lambda s: s.cv.value) if fixed else None
     kept = [e for e in still if ref is None or e.cv.value < ref.cv.value - ref.cv.std_error]
     if positive:  # Box-Cox or Yeo-Johnson with the same predictors, not both
-        best_of: dict = {}
+        best_of: dict[tuple[tr.Transform, ...], Scored] = {}
         for e in kept:
             if e.spec.response_transform.name in ("box_cox", "yeo_johnson"):
                 k = tuple(p.transform for p in e.spec.predictors)
