@@ -85,6 +85,12 @@ def create_app() -> FastAPI:
         )
     app.add_middleware(ServiceMiddleware, route_paths=lambda: route_paths(app.routes))
     openapi.install(app, s)
+    if s.model_key is None:
+        logging.getLogger("bestscale").warning(
+            "BESTSCALE_MODEL_KEY is not set: model artifacts are issued unsigned (marked "
+            "signature.algorithm 'none') and anyone can forge a model that /v1/predictions "
+            "accepts; set a key of 32 or more random characters in production"
+        )
     pool.capacity()  # publish the slot count before the first computation
     return app
 

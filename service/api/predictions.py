@@ -44,7 +44,7 @@ def run_prediction_request(req: PredictionRequest) -> dict:
             f"the table has {n_rows} rows; this service accepts at most "
             f"{limit} (setting BESTSCALE_MAX_ROWS)",
         )
-    model = load_model(req.model)
+    model = load_model(req.model, get_settings().model_keys())
     return predict(model, data, req.interval)
 
 

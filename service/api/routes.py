@@ -9,6 +9,7 @@ from ..core import transforms as tr
 from ..core.cautions import selection_cautions
 from ..core.data import prepare
 from ..core.errors import InputError
+from ..core.model import sign_all
 from ..core.search import SearchOptions, run_grouped, run_selection
 from ..middleware import note_result
 from ..settings import get_settings
@@ -146,6 +147,7 @@ def _finish(body: dict, opts: SearchOptions) -> dict:
         not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
         for e in body.get("ranking", [])
     )
+    sign_all(body, get_settings().model_keys())
     return {
         "service_version": __version__,
         **body,
