@@ -70,6 +70,8 @@ def create_app() -> FastAPI:
         max_body_bytes=s.max_body_bytes,
         api_token=s.token(),
         body_timeout_s=s.body_timeout_s,
+        metrics_public=s.metrics_public,
+        docs_public=s.docs_public,
     )
     if s.cors_origins:
         from .middleware import ProblemCORSMiddleware

@@ -58,6 +58,26 @@ class Settings(BaseSettings):
     )
     max_rows: int = Field(1_000_000, ge=10, description="table rows accepted (422 past it)")
     max_columns: int = Field(200, ge=2, description="columns a request may use (422 past it)")
+    max_table_columns: int = Field(
+        1000,
+        ge=2,
+        description="columns a table may hold, used or not (422 past it; checked before "
+        "any cell is parsed)",
+    )
+    max_uncompressed_bytes: int = Field(
+        256 * 1024 * 1024,
+        ge=1024,
+        le=2**36,
+        description="an uploaded Parquet file may expand to at most this many bytes "
+        "(413 past it, read from the file's metadata before decoding)",
+    )
+    max_response_bytes: int = Field(
+        64 * 1024 * 1024,
+        ge=64 * 1024,
+        le=2**34,
+        description="larger JSON responses are not sent; the caller gets a 422 naming "
+        "what to reduce",
+    )
     max_candidates: int = Field(20_000, ge=1, description="largest limits.max_candidates accepted")
     default_max_candidates: int = Field(
         5_000, ge=1, description="limits.max_candidates when omitted"
@@ -71,6 +91,16 @@ class Settings(BaseSettings):
     )
     api_token: SecretStr | None = Field(
         None, description="if set, /v1/* requires 'Authorization: Bearer <token>'"
+    )
+    metrics_public: bool = Field(
+        False,
+        description="with an API token set, /metrics needs the token too unless this is true "
+        "(then restrict it at the network level)",
+    )
+    docs_public: bool | None = Field(
+        None,
+        description="whether /docs, /redoc and /openapi.json answer without the token; "
+        "default: public only when no API token is set",
     )
     cors_origins: Annotated[list[str], NoDecode] = Field(
         default_factory=list,

@@ -15,6 +15,7 @@ from ..middleware import note_result
 from ..settings import get_settings
 from ..version import __version__
 from .encode import JSONBody
+from .intake import check_table
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import SelectionRequest, transform_items
@@ -22,14 +23,9 @@ from .schemas import SelectionRequest, transform_items
 router = APIRouter(route_class=StrictRoute)
 
 
-def _check_size(req_rows: int, n_columns: int) -> None:
+def _check_size(data: dict, n_columns: int) -> None:
     s = get_settings()
-    if req_rows > s.max_rows:
-        raise InputError.at(
-            "/data",
-            f"the table has {req_rows} rows; this service accepts at "
-            f"most {s.max_rows} (setting BESTSCALE_MAX_ROWS)",
-        )
+    check_table(data)
     if n_columns > s.max_columns:
         raise InputError.at(
             "/predictors",
@@ -72,16 +68,7 @@ def selection_options(req: SelectionRequest) -> SearchOptions:
 
 def run_selection_request(req: SelectionRequest, progress=None) -> dict:
     data = req.data.as_dict()
-    n_rows = (
-        len(data["records"])
-        if data["records"] is not None
-        else (
-            max((len(v) for v in data["columns"].values()), default=0)
-            if data["columns"] is not None
-            else data["csv"].count("\n")
-        )
-    )
-    _check_size(n_rows, 1 + len(req.predictors))
+    _check_size(data, 1 + len(req.predictors))
     if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
         for col in req.transforms.predictors:
             if col not in req.predictors:

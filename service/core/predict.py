@@ -32,7 +32,7 @@ from scipy import stats
 
 from . import retransform
 from . import transforms as tr
-from .data import RawColumn, as_categorical, as_numeric, read_table
+from .data import RawColumn, as_categorical, as_numeric, read_table, shown
 from .errors import FieldProblem, InputError, pointer
 from .model import (
     FORMAT_VERSION,
@@ -103,6 +103,11 @@ def _first_non_finite(d) -> str | None:
     return None
 
 
+def _cut(v, limit: int = 2000) -> str:
+    text = repr(v)
+    return text if len(text) <= limit else text[:limit] + f"... ({len(text)} characters)"
+
+
 def _is_name(v) -> bool:
     return isinstance(v, str) and 1 <= len(v) <= MAX_NAME_CHARS
 
@@ -126,7 +131,7 @@ def _check_signature(d: dict, keys: tuple[str, dict[str, bytes]] | None) -> None
     if algo != SIGNATURE_ALGORITHM:
         raise InputError.at(
             "/model/signature/algorithm",
-            f"signature algorithm {algo!r} is not one this service uses "
+            f"signature algorithm {shown(algo)} is not one this service uses "
             f"('{SIGNATURE_ALGORITHM}'); send the model exactly as the service issued it",
         )
     kid, value = sig.get("key_id"), sig.get("value")
@@ -324,7 +329,7 @@ def load_model(d: dict, keys: tuple[str, dict[str, bytes]] | None = None) -> Loa
         known = ", ".join(str(v) for v in KNOWN_FORMAT_VERSIONS)
         raise InputError.at(
             "/model/format_version",
-            f"model format_version {fv!r} is not one "
+            f"model format_version {shown(fv)} is not one "
             f"this service reads ({known}); refit the model with this service",
         )
     bad = _first_non_finite(d)
@@ -355,7 +360,8 @@ def load_model(d: dict, keys: tuple[str, dict[str, bytes]] | None = None) -> Loa
     if terms != want:
         raise InputError.at(
             "/model/terms",
-            f"the model's terms {terms!r} do not match its specification (expected {want!r})",
+            f"the model's terms {_cut(terms)} do not match its "
+            f"specification (expected {_cut(want)})",
         )
     p = len(want)
     coef = _need(d, "coefficients", "/model")
