@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import time
+
 from fastapi import APIRouter, Request
 from starlette.responses import PlainTextResponse
 
@@ -34,7 +36,25 @@ def _check_size(data: dict, n_columns: int) -> None:
         )
 
 
-def selection_options(req: SelectionRequest) -> SearchOptions:
+def disconnect_probe(request: Request):
+    """``() -> bool`` for a computing thread: True once the client has gone away.
+
+    Runs ``request.is_disconnected`` on the event loop from the route's worker thread; the
+    search asks it between candidates (at most a few times a second), so a caller that hung
+    up frees its compute slot instead of holding it to the time limit.
+    """
+    import anyio.from_thread
+
+    def gone() -> bool:
+        try:
+            return bool(anyio.from_thread.run(request.is_disconnected))
+        except RuntimeError:  # not in a worker thread of the event loop
+            return False
+
+    return gone
+
+
+def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
     s = get_settings()
     max_c = req.limits.max_candidates or s.default_max_candidates
     if max_c > s.max_candidates:
@@ -63,10 +83,12 @@ def selection_options(req: SelectionRequest) -> SearchOptions:
         units=dict(req.units),
         strategy=req.strategy,
         incumbent=req.incumbent.as_dict() if req.incumbent is not None else None,
+        deadline_at=time.time() + tl,  # one deadline: search, stability and optimism
+        stop=stop,
     )
 
 
-def run_selection_request(req: SelectionRequest, progress=None) -> dict:
+def run_selection_request(req: SelectionRequest, progress=None, stop=None) -> dict:
     data = req.data.as_dict()
     _check_size(data, 1 + len(req.predictors))
     if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
@@ -78,7 +100,7 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
     prep = prepare(
         data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
     )
-    opts = selection_options(req)
+    opts = selection_options(req, stop)
     if req.group_by is not None:
         if req.trust.stability or req.trust.optimism:
             raise InputError.at(
@@ -155,7 +177,7 @@ def post_selections(req: SelectionRequest, request: Request):
     if wants_html(request.headers.get("accept", "")):
         return report_response(req)  # the page of POST /v1/reports
     with compute_slot():
-        body = run_selection_request(req)
+        body = run_selection_request(req, stop=disconnect_probe(request))
     note_result(body)
     return JSONBody(body)
 
