@@ -78,6 +78,7 @@ def serve(argv: list[str]) -> int:
             access_log=False,
             server_header=False,
             timeout_graceful_shutdown=30,
+            http="service.server:GuardedH11",  # header-read timeout and connection cap
         )
     finally:
         if ours and directory:

@@ -23,6 +23,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
 
+from .safetext import visible, visible_all
+
 #: at most this many component-plus-residual panels are drawn
 MAX_PARTIAL_PANELS = 6
 #: flagged rows labelled per panel
@@ -258,6 +260,8 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
         raise ValueError(
             f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}"
         )
+    plots = visible_all(plots)  # caller names and levels: bidi controls shown as U+XXXX
+    title = visible(title) if title else title
     panels = _panels(plots)
     if not panels:
         raise ValueError("plots holds no panel to draw")

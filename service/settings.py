@@ -56,6 +56,19 @@ class Settings(BaseSettings):
         description="a request body must arrive whole within this many "
         "seconds of the request's start (408 otherwise)",
     )
+    header_timeout_s: float = Field(
+        10.0,
+        gt=0,
+        le=600,
+        description="a connection must send a complete request head within this many "
+        "seconds of opening (or of its previous response), else it is closed",
+    )
+    max_connections: int = Field(
+        200,
+        ge=1,
+        le=100_000,
+        description="open connections per server process; a connection past it is closed at once",
+    )
     max_rows: int = Field(1_000_000, ge=10, description="table rows accepted (422 past it)")
     max_columns: int = Field(200, ge=2, description="columns a request may use (422 past it)")
     max_table_columns: int = Field(

@@ -332,6 +332,15 @@ def load_model(d: dict, keys: tuple[str, dict[str, bytes]] | None = None) -> Loa
             f"model format_version {shown(fv)} is not one "
             f"this service reads ({known}); refit the model with this service",
         )
+    res = d.get("residuals")
+    values = res.get("values") if isinstance(res, dict) else None
+    if isinstance(values, list) and len(values) > MAX_STORED_RESIDUALS:
+        # before any walk over the content: an issued model never holds more
+        raise InputError.at(
+            "/model/residuals",
+            f"the model holds {len(values)} residuals; an issued model holds at most "
+            f"{MAX_STORED_RESIDUALS}; send the model exactly as the service issued it",
+        )
     bad = _first_non_finite(d)
     if bad:
         raise InputError.at(bad, "the model holds a non-finite number")
