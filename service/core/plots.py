@@ -88,7 +88,8 @@ def _scatter(x, y, ids, keep, **extra) -> dict:
     ok = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
     out = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
     for name, values in extra.items():
-        out[name] = _floats(values[ok])
+        # a row's extra value (e.g. the studentized residual at leverage 1) may be undefined
+        out[name] = [float(v) if np.isfinite(v) else None for v in np.asarray(values[ok], float)]
     return out
 
 
