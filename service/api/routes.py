@@ -175,7 +175,7 @@ def post_selections(req: SelectionRequest, request: Request):
     from .reports import report_response, wants_html  # reports imports this module
 
     if wants_html(request.headers.get("accept", "")):
-        return report_response(req)  # the page of POST /v1/reports
+        return report_response(req, request)  # the page of POST /v1/reports
     with compute_slot():
         body = run_selection_request(req, stop=disconnect_probe(request))
     note_result(body)

@@ -137,7 +137,8 @@ def test_connections_past_the_cap_are_closed(server):
     assert server.request("GET", "/healthz")[0] == 200
 
 
-def test_a_disconnected_client_frees_its_compute_slot(server):
+@pytest.mark.parametrize("path", ["/v1/selections", "/v1/reports"])
+def test_a_disconnected_client_frees_its_compute_slot(server, path):
     req = {
         "data": {"columns": h._table(120)},
         "response": "y",
@@ -148,7 +149,7 @@ def test_a_disconnected_client_frees_its_compute_slot(server):
     }
     body = json.dumps(req).encode()
     head = (
-        "POST /v1/selections HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
+        f"POST {path} HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
         f"Content-Length: {len(body)}\r\n\r\n"
     ).encode()
     socks = []
