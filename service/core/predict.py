@@ -399,7 +399,8 @@ def load_model(d: dict, keys: tuple[str, dict[str, bytes]] | None = None) -> Loa
             f"xtx_inverse must be a {p} x {p} matrix of numbers of magnitude at most {MAX_ABS:g}",
         )
     Va = np.array(V, dtype=float)
-    if np.any(np.diag(Va) < 0) or not np.allclose(Va, Va.T, rtol=1e-8, atol=0.0):
+    scale = float(np.max(np.abs(Va))) if Va.size else 0.0
+    if np.any(np.diag(Va) < 0) or not np.allclose(Va, Va.T, rtol=1e-8, atol=1e-10 * scale):
         raise InputError.at(
             "/model/xtx_inverse",
             "xtx_inverse must be symmetric with a non-negative diagonal, as (X'X)^-1 is",
@@ -437,6 +438,15 @@ def load_model(d: dict, keys: tuple[str, dict[str, bytes]] | None = None) -> Loa
             f"{MAX_STORED_RESIDUALS} values (the most an issued model holds)",
         )
     e = np.array(values, dtype=float)
+    if res["kind"] == "quantiles" and (
+        len(values) != MAX_STORED_RESIDUALS
+        or (n_train is not None and n_train <= MAX_STORED_RESIDUALS)
+    ):
+        raise InputError.at(
+            "/model/residuals",
+            f"a model keeps residual quantiles only past {MAX_STORED_RESIDUALS} rows, "
+            f"exactly {MAX_STORED_RESIDUALS} of them; the model was damaged or forged",
+        )
     if res["kind"] == "all":
         if n_train is not None and len(values) != n_train:
             raise InputError.at(

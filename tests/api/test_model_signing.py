@@ -182,6 +182,10 @@ def _damage_lambda(m):
     m["specification"]["response"]["transform"] = {"name": "box_cox", "lambda": 7.0}
 
 
+def _damage_kind(m):
+    m["residuals"]["kind"] = "quantiles"  # a small model keeps all its residuals
+
+
 def _damage_level(m):
     m["levels"]["district"]["levels"][0] = "x" * 300
 
@@ -195,8 +199,17 @@ def _damage_level(m):
         (_damage_coefficient, "/model/coefficients"),
         (_damage_lambda, "/model/specification/response/transform/lambda"),
         (_damage_level, "/model/levels/district/levels"),
+        (_damage_kind, "/model/residuals"),
     ],
-    ids=["variance", "exponent", "residual-count", "coefficient", "lambda", "level-length"],
+    ids=[
+        "variance",
+        "exponent",
+        "residual-count",
+        "coefficient",
+        "lambda",
+        "level-length",
+        "residual-kind",
+    ],
 )
 def test_signed_but_damaged_models_are_refused(client, env, damage, ptr):
     env(model_key=KEY_A)
