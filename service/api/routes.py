@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import time
+from collections.abc import Callable, Iterable
+from typing import Any
 
 from fastapi import APIRouter, Request
 from starlette.responses import PlainTextResponse
@@ -108,6 +110,7 @@ def run_selection_request(req: SelectionRequest, progress=None, stop=None) -> di
                 "trust measures are computed for one selection; send "
                 "each group as its own request to measure them",
             )
+        assert prep.groups is not None  # prepared with group_by
         n_groups = len(set(prep.groups.tolist()))
         limit = get_settings().max_groups
         if n_groups > limit:
@@ -117,18 +120,25 @@ def run_selection_request(req: SelectionRequest, progress=None, stop=None) -> di
                 f"{limit} groups are accepted per request (setting "
                 "BESTSCALE_MAX_GROUPS); split the job over several requests",
             )
-        mapper = map
+        mapper: Callable[..., Iterable[Any]] = map
+        if progress is not None:
+            progress.total = n_groups
         if get_settings().group_processes > 1:
             from ..core.workers import process_mapper
 
-            mapper = process_mapper(get_settings().group_processes, get_settings().blas_threads)
-        if progress is not None:
-            progress.total = n_groups
+            mapper = process_mapper(
+                get_settings().group_processes,
+                get_settings().blas_threads,
+                on_result=progress.step if progress is not None else None,
+            )
+        elif progress is not None:
 
-            def mapper(fn, items):
+            def serial_with_progress(fn, items):
                 for item in items:
                     yield fn(item)
                     progress.step()
+
+            mapper = serial_with_progress
 
         body = run_grouped(
             prep, opts, __version__, finish=lambda b: _finish(b, opts), mapper=mapper

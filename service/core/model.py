@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 import hmac
 import json
+from typing import Any
 
 import numpy as np
 
@@ -29,7 +30,7 @@ def stored_residuals(resid: np.ndarray) -> tuple[str, list[float]]:
     return "quantiles", [float(v) for v in np.interp(pos - 0.5, np.arange(s.size), s)]
 
 
-def _canon(v):
+def _canon(v: Any) -> Any:
     """Numbers as floats, so a client that rewrites 63.0 as 63 (JavaScript) keeps the checksum."""
     if isinstance(v, dict):
         return {k: _canon(x) for k, x in v.items()}
@@ -45,14 +46,14 @@ def _canon(v):
 UNSIGNED_FIELDS = ("checksum", "signature")
 
 
-def canonical_bytes(body: dict) -> bytes:
+def canonical_bytes(body: dict[str, Any]) -> bytes:
     """The canonical JSON of the artifact without its checksum and signature fields."""
     clean = _canon({k: v for k, v in body.items() if k not in UNSIGNED_FIELDS})
     text = json.dumps(clean, sort_keys=True, separators=(",", ":"), allow_nan=False)
     return text.encode()
 
 
-def checksum(body: dict) -> str:
+def checksum(body: dict[str, Any]) -> str:
     """SHA-256 over the canonical JSON: detects accidental changes, not forgery."""
     return hashlib.sha256(canonical_bytes(body)).hexdigest()
 
@@ -64,13 +65,13 @@ UNSIGNED_NOTE = (
 )
 
 
-def signature_value(body: dict, key_id: str, key: bytes) -> str:
+def signature_value(body: dict[str, Any], key_id: str, key: bytes) -> str:
     """HMAC-SHA-256 (RFC 2104) with ``key`` over the key id, a newline and the canonical JSON."""
     msg = key_id.encode() + b"\n" + canonical_bytes(body)
     return hmac.new(key, msg, hashlib.sha256).hexdigest()
 
 
-def sign(body: dict, keys: tuple[str, dict[str, bytes]] | None) -> dict:
+def sign(body: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None) -> dict[str, Any]:
     """Add the ``signature`` field in place: keyed with the current key, or marked unsigned."""
     if keys is None:
         body["signature"] = {"algorithm": "none", "key_id": None, "value": None}
@@ -85,7 +86,7 @@ def sign(body: dict, keys: tuple[str, dict[str, bytes]] | None) -> dict:
     return body
 
 
-def sign_all(node, keys: tuple[str, dict[str, bytes]] | None) -> None:
+def sign_all(node: object, keys: tuple[str, dict[str, bytes]] | None) -> None:
     """Sign every model artifact in a response body (``ranking[i].model``, grouped too)."""
     stack = [node]
     while stack:
@@ -100,7 +101,7 @@ def sign_all(node, keys: tuple[str, dict[str, bytes]] | None) -> None:
             stack.extend(x for x in cur if isinstance(x, (dict, list)))  # not number arrays
 
 
-def library_versions() -> dict:
+def library_versions() -> dict[str, Any]:
     """Versions of the numerical libraries that produced the artifact."""
     import scipy
     import statsmodels
@@ -118,13 +119,13 @@ def build_model(
     fit: OLSFit,
     prep: Prepared,
     service_version: str,
-    options: dict | None = None,
-) -> dict:
+    options: dict[str, Any] | None = None,
+) -> dict[str, Any]:
     kind, res = stored_residuals(fit.resid)
     hat = np.einsum("ij,jk,ik->i", design.X, fit.cov_unscaled, design.X)
     ranges = {}
     for t in design.terms:
-        if t.kind == "numeric":
+        if t.kind == "numeric" and t.raw is not None:
             ranges[t.column] = {"min": float(np.min(t.raw)), "max": float(np.max(t.raw))}
     body = {
         "format_version": FORMAT_VERSION,
