@@ -6,6 +6,7 @@ from fastapi import APIRouter, Request
 from starlette.responses import HTMLResponse
 
 from ..core.data import prepare
+from ..errors import ProblemError
 from ..middleware import note_result
 from ..report_html import CSP, render_report, report_plots
 from .encode import to_jsonable
@@ -25,7 +26,16 @@ def selection_report(req: SelectionRequest, stop=None) -> str:
     The page is drawn from the JSON-ready body (private keys dropped, non-finite numbers
     refused, exactly as the JSON response), so every number on it is the response's.
     """
-    body = to_jsonable(run_selection_request(req, stop=stop))
+    result = run_selection_request(req, stop=stop)
+    if stop is not None and stop():
+        # nobody will read the page: skip the figures and free the compute slot now
+        raise ProblemError(
+            400,
+            "client-disconnected",
+            "Client disconnected",
+            "the client closed the connection before the report was ready",
+        )
+    body = to_jsonable(result)
     note_result(body)
     # The rows the selection used, again: the plot data needs them and the selection body
     # does not carry them.  Every check already passed in the selection above.
