@@ -69,7 +69,9 @@ def selection_options(req: SelectionRequest) -> SearchOptions:
     )
 
 
-def run_selection_request(req: SelectionRequest, progress=None) -> dict:
+def run_selection_request(req: SelectionRequest, progress=None, group_mapper=None) -> dict:
+    """The selection body for a validated request.  ``group_mapper(fn, items)``, when given,
+    runs the groups of a ``group_by`` request (the command line's Dask cluster), in order."""
     data = req.data.as_dict()
     n_rows = (
         len(data["records"])
@@ -114,11 +116,14 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
             mapper = process_mapper(get_settings().group_processes, get_settings().blas_threads)
         if progress is not None:
             progress.total = n_groups
+            each = group_mapper or (lambda fn, items: (fn(item) for item in items))
 
             def mapper(fn, items):
-                for item in items:
-                    yield fn(item)
+                for result in each(fn, items):
+                    yield result
                     progress.step()
+        elif group_mapper is not None:
+            mapper = group_mapper
 
         body = run_grouped(
             prep, opts, __version__, finish=lambda b: _finish(b, opts), mapper=mapper
