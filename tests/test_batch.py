@@ -391,3 +391,30 @@ def test_segment_file_names_are_safe_and_distinct():
     assert len({f.lower() for f in files}) == len(names)
     for f in files:
         assert "/" not in f and not f.startswith(".") and len(f) < 90
+
+
+def test_scheduler_setting_and_argument_errors(monkeypatch, tmp_path, capsys):
+    from pydantic import ValidationError
+
+    try:
+        monkeypatch.setenv("BESTSCALE_DASK_SCHEDULER", "tcp://127.0.0.1:8786")
+        get_settings.cache_clear()
+        assert get_settings().dask_scheduler == "tcp://127.0.0.1:8786"
+        monkeypatch.setenv("BESTSCALE_DASK_SCHEDULER", "127.0.0.1:8786")  # no scheme
+        get_settings.cache_clear()
+        with pytest.raises(ValidationError, match="dask_scheduler"):
+            get_settings()
+    finally:
+        monkeypatch.delenv("BESTSCALE_DASK_SCHEDULER")
+        get_settings.cache_clear()
+    data = _write(tmp_path / "m.parquet", _table(2, 30))
+    base = ["--data", str(data), "--response", "repair_cost", "--predictors", PREDICTORS]
+    for extra, message in [
+        (["--out", str(tmp_path / "dir")], "needs --group-by"),
+        (["--resume"], "need --group-by and --out DIR"),
+        (["--group-by", "district", "--cluster", "somewhere"], "tcp://HOST:PORT"),
+    ]:
+        with pytest.raises(SystemExit) as exc:
+            select_main(base + extra)
+        assert exc.value.code == 2
+        assert message in capsys.readouterr().err
