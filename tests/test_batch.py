@@ -189,6 +189,9 @@ def test_scheduler_and_worker_started_with_dask_commands(job, tmp_path, monkeypa
         monkeypatch.setenv("BESTSCALE_DASK_SCHEDULER", address)
         get_settings.cache_clear()
         code = select_main(_args(job["data"], out, options=job["options"]))
+        # one file at the end, the segments still computed on the cluster
+        single = tmp_path / "remote.json"
+        code_single = select_main(_args(job["data"], single, options=job["options"]))
     finally:
         get_settings.cache_clear()
         for p in reversed(procs):
@@ -199,9 +202,11 @@ def test_scheduler_and_worker_started_with_dask_commands(job, tmp_path, monkeypa
             except subprocess.TimeoutExpired:
                 p.kill()
                 p.wait()
-    assert code == 0
-    assert f"running on {address}: 1 worker(s)" in capsys.readouterr().err
+    assert code == 0 and code_single == 0
+    assert capsys.readouterr().err.count(f"running on {address}: 1 worker(s)") == 2
     assert _results(out) == job["inline"]
+    groups = json.loads(single.read_text())["groups"]
+    assert {k: _canonical(v) for k, v in groups.items()} == job["inline"]
 
 
 def test_killed_job_resumes_without_redoing_finished_segments(job, tmp_path, capsys):
