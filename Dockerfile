@@ -1,7 +1,10 @@
-# Same install and run commands as the README: pip install . && python -m service
+# The README's install-and-run command, step for step (tests/test_readme_commands.py checks it):
+#   pip install --require-hashes -r locks/runtime.txt && pip install --no-deps . && python -m service
 FROM python:3.11-slim
 
 ENV PYTHONDONTWRITEBYTECODE=1 \
+    PIP_NO_CACHE_DIR=1 \
+    PIP_DISABLE_PIP_VERSION_CHECK=1 \
     PYTHONUNBUFFERED=1 \
     OPENBLAS_NUM_THREADS=1 \
     OMP_NUM_THREADS=1 \
@@ -11,9 +14,11 @@ ENV PYTHONDONTWRITEBYTECODE=1 \
     BESTSCALE_PORT=8000
 
 WORKDIR /app
+COPY locks ./locks
+RUN pip install --require-hashes -r locks/runtime.txt
 COPY pyproject.toml README.md ./
 COPY service ./service
-RUN pip install --no-cache-dir . \
+RUN pip install --no-deps . \
  && useradd --create-home --uid 10001 bestscale
 
 USER bestscale

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import glob
+import ipaddress
 import os
 import shutil
 import sys
@@ -50,9 +51,39 @@ def metrics_dir(workers: int) -> tuple[str | None, bool]:
     return path, True
 
 
+def is_loopback(host: str) -> bool:
+    """Whether ``host`` only accepts connections from this machine."""
+    if host.strip("[]").lower() in ("localhost", "localhost."):
+        return True
+    try:
+        return ipaddress.ip_address(host.strip("[]")).is_loopback
+    except ValueError:
+        return False  # a host name: it may resolve to any interface
+
+
+def exposure_warning(host: str, token: str | None) -> str | None:
+    """One warning line when the API is reachable from other machines without a token."""
+    if token or is_loopback(host):
+        return None
+    return (
+        f"bestscale: WARNING: listening on {host} without BESTSCALE_API_TOKEN: anyone who can "
+        "reach this address can use the API; set BESTSCALE_API_TOKEN (16 or more characters) "
+        "and, for browsers, BESTSCALE_CORS_ORIGINS (README: Deployment)"
+    )
+
+
 def serve(argv: list[str]) -> int:
     s = _settings_or_exit()
-    ap = argparse.ArgumentParser(prog="python -m service", description="Run the Bestscale API.")
+    ap = argparse.ArgumentParser(
+        prog="python -m service",
+        description="Run the Bestscale API (HTTP, JSON).",
+        epilog=(
+            "commands: 'python -m service select --data FILE --response Y --predictors A,B' "
+            "runs one selection (or one per segment) in this process, without a server, and "
+            "writes the JSON the API returns; 'python -m service select --help' lists its flags. "
+            "Settings come from BESTSCALE_* environment variables (README: Settings)."
+        ),
+    )
     ap.add_argument("--host", default=s.host, help=f"address to listen on (default {s.host})")
     ap.add_argument("--port", type=int, default=s.port, help=f"port (default {s.port})")
     ap.add_argument(
@@ -61,6 +92,9 @@ def serve(argv: list[str]) -> int:
     args = ap.parse_args(argv)
     if not 1 <= args.workers <= 64:
         ap.error("--workers must be between 1 and 64")
+    warning = exposure_warning(args.host, s.token())
+    if warning:
+        print(warning, file=sys.stderr, flush=True)
     _pin_blas(s.blas_threads)
     directory, ours = metrics_dir(args.workers)
     import uvicorn

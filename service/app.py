@@ -7,7 +7,7 @@ from contextlib import asynccontextmanager
 
 from fastapi import FastAPI
 
-from . import errors, openapi
+from . import docs_page, errors, openapi
 from .api import pool
 from .api.diagnostics import router as diagnostics_router
 from .api.predictions import router as predictions_router
@@ -56,6 +56,8 @@ def create_app() -> FastAPI:
         description=openapi.DESCRIPTION,
         openapi_tags=openapi.TAGS,
         lifespan=_lifespan,
+        docs_url=None,  # our own page, served offline (docs_page.py)
+        redoc_url=None,
     )
     errors.install(app)
     app.include_router(router)
@@ -85,6 +87,7 @@ def create_app() -> FastAPI:
         )
     app.add_middleware(ServiceMiddleware, route_paths=lambda: route_paths(app.routes))
     openapi.install(app, s)
+    docs_page.install(app)
     pool.capacity()  # publish the slot count before the first computation
     return app
 

@@ -8,6 +8,7 @@ problems whose ``errors[].pointer`` is a JSON Pointer (RFC 6901) into the reques
 
 from __future__ import annotations
 
+import json
 import logging
 
 import orjson
@@ -150,19 +151,83 @@ def _pointer_from_loc(loc: tuple, body) -> str:
     return "/" + "/".join(p.replace("~", "~0").replace("/", "~1") for p in parts) if parts else ""
 
 
+def _shown(value: object, limit: int = 60) -> str:
+    """The value the caller sent, as JSON, cut to ``limit`` characters."""
+    try:
+        text = json.dumps(value, ensure_ascii=False, allow_nan=False)
+    except (TypeError, ValueError):
+        text = repr(value)
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
+def _count(n: object, one: str, many: str) -> str:
+    return f"{n} {one if n == 1 else many}"
+
+
+def _choices(expected: str) -> str:
+    return expected.replace("'", '"')
+
+
 def _message(err: dict) -> str:
-    msg = err.get("msg", "invalid value")
-    if msg.startswith("Value error, "):
-        msg = msg[len("Value error, ") :]
-    if err.get("type") == "extra_forbidden":
-        return f"unknown field '{err['loc'][-1]}'"
-    if err.get("type") == "missing":
-        return f"field '{err['loc'][-1]}' is required"
-    if err.get("type") == "finite_number":
+    """One error of the request schema in our words: what was expected, what was sent, and
+    (where it is not obvious) how to fix it."""
+    kind = err.get("type", "")
+    ctx = err.get("ctx") or {}
+    got = _shown(err.get("input"))
+    field = err["loc"][-1] if err.get("loc") else "field"
+    if kind == "extra_forbidden":
+        return f"unknown field '{field}': remove it (every field is listed in the API reference)"
+    if kind == "missing":
+        return f"field '{field}' is required"
+    if kind == "finite_number":
         return (
             "must be a finite number (NaN and Infinity are not accepted; send null for a "
             "missing data value)"
         )
+    if kind in ("int_type", "int_parsing", "int_from_float"):
+        return f"expected a whole number such as 5, got {got}"
+    if kind in ("float_type", "float_parsing"):
+        return f"expected a number such as 0.05, got {got}"
+    if kind in ("bool_type", "bool_parsing"):
+        return f"expected true or false, got {got}"
+    if kind == "string_type":
+        return f"expected text (a JSON string), got {got}"
+    if kind == "list_type":
+        return f"expected a list such as [...], got {got}"
+    if kind in ("dict_type", "model_type", "model_attributes_type"):
+        return f"expected an object such as {{...}}, got {got}"
+    if kind == "greater_than_equal":
+        return f"must be at least {ctx.get('ge')}, got {got}"
+    if kind == "greater_than":
+        return f"must be greater than {ctx.get('gt')}, got {got}"
+    if kind == "less_than_equal":
+        return f"must be at most {ctx.get('le')}, got {got}"
+    if kind == "less_than":
+        return f"must be less than {ctx.get('lt')}, got {got}"
+    if kind in ("literal_error", "enum"):
+        return f"must be one of {_choices(str(ctx.get('expected', '')))}, got {got}"
+    if kind == "string_too_short":
+        least = ctx.get("min_length", 1)
+        if least == 1:
+            return "must not be empty"
+        return f"must have at least {_count(least, 'character', 'characters')}, got {got}"
+    if kind == "string_too_long":
+        most = ctx.get("max_length")
+        return (
+            f"must have at most {_count(most, 'character', 'characters')}; the value sent has "
+            f"{len(str(err.get('input', '')))}"
+        )
+    if kind == "too_short":
+        least = ctx.get("min_length", 1)
+        return f"must hold at least {_count(least, 'item', 'items')}, got {got}"
+    if kind == "too_long":
+        most = ctx.get("max_length")
+        actual = ctx.get("actual_length")
+        tail = f"; the value sent has {actual}" if actual is not None else ""
+        return f"must hold at most {_count(most, 'item', 'items')}{tail}"
+    msg = err.get("msg", "invalid value")
+    if msg.startswith("Value error, "):
+        msg = msg[len("Value error, ") :]
     return msg
 
 

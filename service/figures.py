@@ -1,8 +1,20 @@
-"""Render the diagnostic plot data of :func:`service.core.plots.diagnostic_plots` as a figure.
+"""Draw the plot data of :func:`service.core.plots.diagnostic_plots` as one figure.
 
-:func:`render_figure` draws one figure with a panel per plot (residuals vs fitted, normal
-Q-Q with its envelope, spread vs fitted, influence, and one component-plus-residual panel per
-numeric predictor) and returns SVG or PNG bytes.
+The figure is organised around the questions a reader asks of a fitted scale, one panel per
+question, each titled with the question and a one-line reading of what to look for:
+
+- top row: *Is the scale straight?* (residuals against fitted values), *Is the spread even?*
+  (|standardised residual| against fitted values, with the size expected under even normal
+  spread) and *Are the residuals close to normal?* (the departure of each ordered standardised
+  residual from its normal quantile, so a normal sample lies along 0 inside the 95% band);
+- a full-width strip: *Which rows pull the fit?* (Cook's distance by row, coloured by the
+  reason a row is flagged, with the flag and fail cut-offs the conditions use);
+- then one panel per numeric predictor: *Is the scale of X right?* (partial residuals against
+  the predictor as sent, with its fitted effect).
+
+Every panel states how many of the rows it shows, and a footer states how rows are numbered
+and the flag rule.  Labels of flagged rows are placed so they never overlap; a row whose label
+finds no free place is named in the panel's note instead.
 
 Thread safety: each call builds its own :class:`matplotlib.figure.Figure` and canvas (no
 pyplot, no global figure manager) and passes every style explicitly.  The one global setting
@@ -15,6 +27,7 @@ from __future__ import annotations
 
 import io
 import math
+import textwrap
 import threading
 
 import matplotlib
@@ -22,25 +35,49 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
 
-#: at most this many component-plus-residual panels are drawn
+#: at most this many predictor panels are drawn
 MAX_PARTIAL_PANELS = 6
 #: flagged rows labelled per panel
 MAX_LABELS = 5
+#: panels per row
+COLUMNS = 3
 
 _SVG_LOCK = threading.Lock()
+DPI = 100
 
-INK = "#1f2933"  # text and axes
-POINT = "#3b6ea8"  # observations
-SMOOTH = "#d9822b"  # LOWESS curves
-FIT = "#1f2933"  # fitted component line
-REFERENCE = "#7b8794"  # reference and cut-off lines
-FLAG = "#c23030"  # flagged rows
-BAND = "#c9d6e8"  # envelope
+INK = "#22303c"  # text and axes
+MUTED = "#6b7885"  # readings, captions, reference lines
+POINT = "#2c7a7b"  # observations (teal)
+SMOOTH = "#b5651d"  # smoothers (burnt orange)
+EFFECT = "#22303c"  # fitted effect of a predictor
+BAND = "#d7e6e5"  # 95% band
+FLAG_COOKS = "#a4262c"  # flagged for Cook's distance
+FLAG_OTHER = "#d69e2e"  # flagged for another reason only
+QUIET = "#a9b4be"  # rows not flagged
+GRID = "#edf0f2"
+
+# layout, in inches
+PANEL_W, PANEL_H, STRIP_H = 5.0, 3.5, 2.4
+HEAD_H, GAP_H, FOOT_H, TITLE_H = 0.75, 0.95, 0.45, 0.45
+LEFT, RIGHT = 0.75, 0.25
+LABEL_PT = 8
 
 
-def _style(ax, panel: dict) -> None:
-    # parse_math=False: caller-supplied column names are text, never mathtext markup
+def _rows_note(panel: dict, shown: int) -> str:
+    total = panel.get("n_total") or shown
+    if shown >= total:
+        return f"all {total:,} rows"
+    return f"showing {shown:,} of {total:,} rows (seeded sample; flagged rows always shown)"
+
+
+def _head(ax, panel: dict, width_in: float) -> None:
+    """Question as the title, the reading as a muted line below it."""
+    chars = max(int(width_in * DPI / 5.2), 30)
+    reading = textwrap.fill(panel.get("reading", ""), chars)
+    lines = reading.count("\n") + 1 if reading else 0
     ax.set_title(
         panel.get("title", ""),
         loc="left",
@@ -48,209 +85,299 @@ def _style(ax, panel: dict) -> None:
         fontweight="bold",
         color=INK,
         parse_math=False,
+        pad=6 + 10 * lines,
     )
-    ax.set_xlabel(panel.get("x_label", ""), fontsize=9, color=INK, parse_math=False)
-    ax.set_ylabel(panel.get("y_label", ""), fontsize=9, color=INK, parse_math=False)
-    ax.tick_params(labelsize=8, colors=INK)
-    ax.grid(True, color="#e4e7eb", linewidth=0.6)
+    if reading:
+        ax.text(
+            0.0,
+            1.02,
+            reading,
+            transform=ax.transAxes,
+            ha="left",
+            va="bottom",
+            fontsize=7.5,
+            color=MUTED,
+            parse_math=False,
+        )
+
+
+def _style(ax, panel: dict, x_label: str | None = None, y_label: str | None = None) -> None:
+    ax.set_xlabel(x_label or panel.get("x_label", ""), fontsize=8.5, color=INK, parse_math=False)
+    ax.set_ylabel(y_label or panel.get("y_label", ""), fontsize=8.5, color=INK, parse_math=False)
+    ax.tick_params(labelsize=7.5, colors=INK, length=3)
+    ax.grid(True, color=GRID, linewidth=0.8)
     ax.set_axisbelow(True)
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
+    for side in ("left", "bottom"):
+        ax.spines[side].set_color(MUTED)
 
 
-def _marker_size(count: int) -> tuple[float, float]:
+def _marker(count: int) -> tuple[float, float]:
     """(area, alpha) that keep a scatter of ``count`` points readable."""
     if count <= 200:
-        return 18.0, 0.8
+        return 16.0, 0.75
     if count <= 1000:
-        return 10.0, 0.55
-    return 5.0, 0.35
+        return 9.0, 0.5
+    return 4.0, 0.3
 
 
-def _points(ax, points: dict, sizes=None) -> None:
-    x, y = points.get("x", []), points.get("y", [])
-    if not x:
-        return
-    area, alpha = _marker_size(len(x))
-    s = area if sizes is None else sizes
-    ax.scatter(x, y, s=s, color=POINT, alpha=alpha, edgecolors="none", zorder=2)
+def _scatter(ax, x, y, label: str | None = None) -> None:
+    if len(x):
+        area, alpha = _marker(len(x))
+        ax.scatter(x, y, s=area, color=POINT, alpha=alpha, edgecolors="none", zorder=2, label=label)
 
 
-def _labels(ax, labels: list[dict]) -> None:
-    for item in labels[:MAX_LABELS]:
-        ax.scatter(
-            [item["x"]],
-            [item["y"]],
-            s=40,
-            facecolors="none",
-            edgecolors=FLAG,
-            linewidths=1.2,
-            zorder=4,
-        )
-        ax.annotate(
-            str(item["row"]),
-            (item["x"], item["y"]),
-            xytext=(4, 4),
-            textcoords="offset points",
-            fontsize=8,
-            color=FLAG,
-            zorder=5,
-        )
+def _curve(ax, curve: dict | None, label: str, color: str = SMOOTH, dy=None) -> None:
+    if curve and curve.get("x"):
+        y = np.asarray(curve["y"], dtype=float)
+        if dy is not None:
+            y = y - np.asarray(curve["x"], dtype=float)
+        ax.plot(curve["x"], y, color=color, linewidth=1.8, label=label, zorder=3)
 
 
-def _smoother(ax, smoother: dict | None, label: str = "LOWESS") -> None:
-    if smoother and smoother.get("x"):
-        ax.plot(smoother["x"], smoother["y"], color=SMOOTH, linewidth=1.8, label=label, zorder=3)
-
-
-def _reference_lines(ax, lines: list[dict]) -> None:
-    for line in lines or []:
-        ax.plot(line["x"], line["y"], color=REFERENCE, linestyle="--", linewidth=1.0, zorder=1)
-
-
-def _caption(ax, panel: dict, shown: int) -> None:
-    total = panel.get("n_total")
-    if total and shown < total:
-        ax.text(
-            0.99,
-            0.01,
-            f"showing {shown} of {total} rows",
-            transform=ax.transAxes,
-            ha="right",
-            va="bottom",
-            fontsize=7,
-            color=REFERENCE,
-        )
+def _note(ax, text: str) -> None:
+    ax.text(
+        0.99,
+        0.01,
+        text,
+        transform=ax.transAxes,
+        ha="right",
+        va="bottom",
+        fontsize=6.5,
+        color=MUTED,
+        zorder=6,
+        parse_math=False,
+        bbox={"boxstyle": "square,pad=0.15", "facecolor": "white", "edgecolor": "none"},
+    )
 
 
 def _empty(ax, panel: dict) -> None:
+    ax.set_xticks([])
+    ax.set_yticks([])
     ax.text(
         0.5,
         0.5,
-        panel.get("note") or "no data to show",
+        textwrap.fill(str(panel.get("note") or "nothing to show"), 50),
         transform=ax.transAxes,
         parse_math=False,
         ha="center",
         va="center",
         fontsize=9,
-        color=REFERENCE,
-        wrap=True,
+        color=MUTED,
     )
 
 
-def _draw_xy(ax, panel: dict, zero_line: bool = False) -> None:
-    points = panel.get("points") or {}
-    if not points.get("x"):
-        _empty(ax, panel)
-        return
-    _reference_lines(ax, panel.get("reference_lines"))
-    _points(ax, points)
-    _smoother(ax, panel.get("smoother"))
-    _labels(ax, panel.get("labels", []))
-    _caption(ax, panel, len(points["x"]))
-    if panel.get("smoother"):
-        ax.legend(loc="best", fontsize=7, frameon=False)
+def _legend(ax, handles=None, loc: str = "upper left") -> None:
+    kw = {"handles": handles} if handles else {}
+    if handles or ax.get_legend_handles_labels()[0]:
+        ax.legend(loc=loc, fontsize=6.8, frameon=True, framealpha=0.85, edgecolor="none", **kw)
 
 
-def _draw_qq(ax, panel: dict) -> None:
-    points = panel.get("points") or {}
-    if not points.get("x"):
+# ------------------------------------------------------------------ labels without overlap
+def _label_size(text: str) -> tuple[float, float]:
+    """Approximate extent of a label in display pixels (DejaVu Sans digits are ~0.64 em)."""
+    px = LABEL_PT * DPI / 72.0
+    return 0.64 * px * len(text) + 2.0, 1.25 * px
+
+
+_OFFSETS = [(dx, dy) for r in (5, 11, 18, 26) for dx, dy in ((r, r), (r, -r), (-r, r), (-r, -r))]
+_OFFSETS += [(0, r) for r in (9, 16, 24)] + [(0, -r) for r in (9, 16, 24)]
+
+
+def _overlaps(a, b) -> bool:
+    return not (a[2] <= b[0] or b[2] <= a[0] or a[3] <= b[1] or b[3] <= a[1])
+
+
+def _place_labels(ax, labels: list[dict], transform=None) -> list[int]:
+    """Circle each flagged row and write its number where no other label is; returns the rows
+    left unlabelled (no free place inside the panel)."""
+    ax.autoscale_view()
+    frame = ax.get_window_extent()
+    placed: list[tuple[float, float, float, float]] = []
+    legend = ax.get_legend()
+    if legend is not None:  # labels never sit under the legend either
+        box = legend.get_window_extent(ax.figure.canvas.get_renderer())
+        placed.append((box.x0, box.y0, box.x1, box.y1))
+    skipped: list[int] = []
+    for item in labels[:MAX_LABELS]:
+        x, y = item["x"], transform(item) if transform else item["y"]
+        ax.scatter(
+            [x], [y], s=46, facecolors="none", edgecolors=FLAG_COOKS, linewidths=1.1, zorder=4
+        )
+        text = str(item["row"])
+        w, h = _label_size(text)
+        px, py = ax.transData.transform((x, y))
+        for dx, dy in _OFFSETS:
+            x0 = px + dx if dx >= 0 else px + dx - w
+            y0 = py + dy if dy >= 0 else py + dy - h
+            box = (x0, y0, x0 + w, y0 + h)
+            inside = (
+                box[0] >= frame.x0
+                and box[2] <= frame.x1
+                and box[1] >= frame.y0
+                and box[3] <= frame.y1
+            )
+            if inside and not any(_overlaps(box, other) for other in placed):
+                placed.append(box)
+                ann = ax.annotate(
+                    text,
+                    (x, y),
+                    xytext=(x0 - px, y0 - py),
+                    textcoords="offset pixels",
+                    ha="left",
+                    va="bottom",
+                    fontsize=LABEL_PT,
+                    color=FLAG_COOKS,
+                    zorder=5,
+                    annotation_clip=False,
+                )
+                panel = (ax.get_gid() or "panel-plot").removeprefix("panel-")
+                ann.set_gid(f"row-label-{panel}-{text}")
+                break
+        else:
+            skipped.append(item["row"])
+    return skipped
+
+
+def _labels_note(skipped: list[int]) -> str:
+    return "" if not skipped else "; also flagged: rows " + ", ".join(map(str, skipped))
+
+
+# ------------------------------------------------------------------------------ panels
+def _draw_straight(ax, panel: dict) -> str:
+    pts = panel.get("points") or {}
+    if not pts.get("x"):
         _empty(ax, panel)
-        return
+        return ""
+    ax.axhline(0.0, color=MUTED, linestyle=(0, (4, 3)), linewidth=1.0, zorder=1, label="zero")
+    _scatter(ax, pts["x"], pts["y"])
+    _curve(ax, panel.get("smoother"), "LOWESS smoother")
+    _legend(ax)
+    return _labels_note(_place_labels(ax, panel.get("labels", [])))
+
+
+def _draw_spread(ax, panel: dict) -> str:
+    pts = panel.get("points") or {}
+    if not pts.get("x"):
+        _empty(ax, panel)
+        return ""
+    for line in panel.get("reference_lines") or []:
+        ax.axhline(
+            line["y"][0],
+            color=MUTED,
+            linestyle=(0, (1, 2)),
+            linewidth=1.3,
+            zorder=1,
+            label=f"expected under even spread ({line['y'][0]:.2f})",
+        )
+    _scatter(ax, pts["x"], pts["y"])
+    _curve(ax, panel.get("smoother"), "LOWESS smoother")
+    ax.set_ylim(bottom=0.0)
+    _legend(ax, loc="upper right")
+    return _labels_note(_place_labels(ax, panel.get("labels", [])))
+
+
+def _draw_normal(ax, panel: dict) -> str:
+    """Departures from the normal quantiles: a normal sample lies along 0 inside the band."""
+    pts = panel.get("points") or {}
+    if not pts.get("x"):
+        _empty(ax, panel)
+        return ""
+    x = np.asarray(pts["x"], dtype=float)
     env = panel.get("envelope")
     if env:
+        ex = np.asarray(env["x"], dtype=float)
         ax.fill_between(
-            env["x"],
-            env["lower"],
-            env["upper"],
+            ex,
+            np.asarray(env["lower"], dtype=float) - ex,
+            np.asarray(env["upper"], dtype=float) - ex,
             color=BAND,
-            alpha=0.7,
             linewidth=0,
-            label="95% envelope",
             zorder=1,
+            label=f"{round(100 * env.get('level', 0.95))}% band for a normal sample",
         )
+    ax.axhline(0.0, color=MUTED, linestyle=(0, (4, 3)), linewidth=1.0, zorder=1)
     line = panel.get("reference_line")
     if line:
+        lx = np.asarray(line["x"], dtype=float)
         ax.plot(
-            line["x"],
-            line["y"],
-            color=REFERENCE,
-            linestyle="--",
-            linewidth=1.0,
-            label="quartile line",
-            zorder=1,
+            lx,
+            np.asarray(line["y"], dtype=float) - lx,
+            color=SMOOTH,
+            linewidth=1.3,
+            zorder=3,
+            label="line through the quartiles",
         )
-    _points(ax, points)
-    _labels(ax, panel.get("labels", []))
-    _caption(ax, panel, len(points["x"]))
-    ax.legend(loc="upper left", fontsize=7, frameon=False)
-
-
-def _draw_influence(ax, panel: dict) -> None:
-    points = panel.get("points") or {}
-    if not points.get("x"):
-        _empty(ax, panel)
-        return
-    _reference_lines(ax, panel.get("reference_lines"))
-    size = np.asarray(points.get("size") or np.zeros(len(points["x"])), dtype=float)
-    top = float(size.max()) if size.size else 0.0
-    area, _ = _marker_size(len(points["x"]))
-    sizes = area + (120.0 * size / top if top > 0 else 0.0)
-    _points(ax, points, sizes=sizes)
-    _labels(ax, panel.get("labels", []))
-    _caption(ax, panel, len(points["x"]))
-    ax.text(
-        0.99,
-        0.99,
-        "marker area ~ Cook's distance",
-        transform=ax.transAxes,
-        ha="right",
-        va="top",
-        fontsize=7,
-        color=REFERENCE,
+    _scatter(ax, x, np.asarray(pts["y"], dtype=float) - x)
+    _legend(ax)
+    return _labels_note(
+        _place_labels(ax, panel.get("labels", []), transform=lambda it: it["y"] - it["x"])
     )
 
 
-def _draw_partial(ax, panel: dict) -> None:
-    points = panel.get("points") or {}
-    if not points.get("x"):
+def _draw_influence(ax, panel: dict) -> str:
+    pts = panel.get("points") or {}
+    if not pts.get("x"):
         _empty(ax, panel)
-        return
-    _points(ax, points)
-    comp = panel.get("component")
-    if comp and comp.get("x"):
-        ax.plot(comp["x"], comp["y"], color=FIT, linewidth=1.4, label="fitted component", zorder=3)
-    _smoother(ax, panel.get("smoother"))
-    _caption(ax, panel, len(points["x"]))
-    ax.legend(loc="upper left", fontsize=7, frameon=False)
-
-
-_DRAW = {
-    "residuals_fitted": lambda ax, p: _draw_xy(ax, p),
-    "normal_quantiles": _draw_qq,
-    "spread_fitted": lambda ax, p: _draw_xy(ax, p),
-    "influence": _draw_influence,
-    "partial_residuals": _draw_partial,
-}
-
-
-def _panels(plots: dict) -> list[tuple[str, dict]]:
-    out = [
-        (key, plots[key])
-        for key in ("residuals_fitted", "normal_quantiles", "spread_fitted", "influence")
-        if plots.get(key)
+        return ""
+    x = np.asarray(pts["x"], dtype=float)
+    y = np.asarray(pts["y"], dtype=float)
+    flag = np.asarray(pts.get("flag") or [""] * len(x))
+    colours = {"": QUIET, "other": FLAG_OTHER, "cooks": FLAG_COOKS}
+    for reason in ("", "other", "cooks"):
+        m = flag == reason
+        if m.any():
+            ax.vlines(x[m], 0.0, y[m], color=colours[reason], linewidth=1.1, zorder=2)
+            ax.scatter(x[m], y[m], s=10, color=colours[reason], zorder=3, edgecolors="none")
+    top = float(np.max(y)) if y.size else 0.0
+    handles = [
+        Line2D([], [], color=FLAG_COOKS, linewidth=2, label="flagged: Cook's distance"),
+        Line2D([], [], color=FLAG_OTHER, linewidth=2, label="flagged: leverage, DFFITS or |t|"),
+        Line2D([], [], color=QUIET, linewidth=2, label="not flagged"),
     ]
-    for panel in (plots.get("partial_residuals") or [])[:MAX_PARTIAL_PANELS]:
-        out.append(("partial_residuals", panel))
-    return out
+    for cut in panel.get("cutoffs") or []:
+        value = float(cut["value"])
+        fail = cut["name"].startswith("fail")
+        style = {"color": FLAG_COOKS if fail else MUTED, "linewidth": 1.0}
+        style["linestyle"] = "-" if fail else (0, (4, 3))
+        text = f"{'fail' if fail else 'flag'} line: Cook's distance {value:.3g}"
+        if value <= max(top * 1.15, 1e-12) or not fail:
+            ax.axhline(value, zorder=1, **style)
+            handles.append(Line2D([], [], label=text, **style))
+        else:
+            handles.append(Patch(color="white", label=f"{text} (above every row)"))
+    ax.set_ylim(bottom=0.0)
+    ax.set_xlim(float(np.min(x)) - 0.5, float(np.max(x)) + 0.5)
+    _legend(ax, handles=handles, loc="upper right")
+    return _labels_note(_place_labels(ax, panel.get("labels", [])))
+
+
+def _draw_predictor(ax, panel: dict) -> str:
+    pts = panel.get("points") or {}
+    if not pts.get("x"):
+        _empty(ax, panel)
+        return ""
+    _scatter(ax, pts["x"], pts["y"])
+    _curve(ax, panel.get("component"), "fitted effect", color=EFFECT)
+    _curve(ax, panel.get("smoother"), "LOWESS smoother")
+    _legend(ax)
+    return ""
+
+
+def _footer(plots: dict) -> str:
+    rule = (plots.get("influence") or {}).get("flag_rule")
+    text = "Row numbers count the request's data rows from 0. Circled points are flagged rows"
+    return text + (f"; {rule}." if rule else ".")
 
 
 def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> bytes:
-    """Draw the diagnostic panels of ``plots`` and return the figure as ``fmt`` bytes.
+    """Draw the panels of ``plots`` and return the figure as ``fmt`` bytes.
 
     ``plots`` is the dict returned by ``diagnostic_plots``; ``fmt`` is ``"svg"`` or
-    ``"png"``; ``title`` (optional) is drawn above the panels.  Flagged rows are circled and
-    labelled with the caller's row number.
+    ``"png"``; ``title`` (optional) is drawn above the panels.  In SVG, each panel is a group
+    whose id is ``panel-<question>`` (``panel-predictor_scale-<k>`` for the k-th predictor)
+    and each row label a group ``row-label-<question>-<row>``.
     """
     if fmt not in ("svg", "png"):
         raise ValueError(f"fmt must be 'svg' or 'png'; got {fmt!r}")
@@ -258,25 +385,86 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
         raise ValueError(
             f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}"
         )
-    panels = _panels(plots)
-    if not panels:
+    top = [
+        (key, draw)
+        for key, draw in (
+            ("residuals_fitted", _draw_straight),
+            ("spread_fitted", _draw_spread),
+            ("normal_quantiles", _draw_normal),
+        )
+        if plots.get(key)
+    ]
+    strip = plots.get("influence")
+    predictors = (plots.get("partial_residuals") or [])[:MAX_PARTIAL_PANELS]
+    if not top and not strip and not predictors:
         raise ValueError("plots holds no panel to draw")
-    ncols = 2 if len(panels) <= 4 else 3
-    nrows = math.ceil(len(panels) / ncols)
-    fig = Figure(
-        figsize=(5.0 * ncols, 3.9 * nrows + (0.4 if title else 0.0)),
-        dpi=100,
-        layout="constrained",
-        facecolor="white",
+    rows: list[tuple[str, float]] = []  # (kind, height in inches)
+    if top:
+        rows.append(("top", PANEL_H))
+    if strip:
+        rows.append(("strip", STRIP_H))
+    rows += [("predictors", PANEL_H)] * math.ceil(len(predictors) / COLUMNS)
+    width = LEFT + RIGHT + COLUMNS * PANEL_W
+    title_h = TITLE_H if title else 0.0
+    height = title_h + HEAD_H + sum(h for _, h in rows) + GAP_H * (len(rows) - 1) + FOOT_H + 0.35
+    fig = Figure(figsize=(width, height), dpi=DPI, facecolor="white")
+    FigureCanvasAgg(fig)  # a renderer to measure legends while labels are placed
+    ratios = []
+    for k, (_, h) in enumerate(rows):
+        ratios.append(h)
+        if k < len(rows) - 1:
+            ratios.append(GAP_H)
+    grid = fig.add_gridspec(
+        len(ratios),
+        COLUMNS,
+        height_ratios=ratios,
+        left=LEFT / width,
+        right=1 - RIGHT / width,
+        top=1 - (title_h + HEAD_H) / height,
+        bottom=(FOOT_H + 0.35) / height,
+        hspace=0.0,
+        wspace=0.3,
     )
-    axes = fig.subplots(nrows, ncols, squeeze=False).ravel()
-    for ax, (kind, panel) in zip(axes, panels, strict=False):  # spare axes stay empty
-        _style(ax, panel)
-        _DRAW[kind](ax, panel)
-    for ax in axes[len(panels) :]:
-        ax.set_visible(False)
+    col_w = PANEL_W * 0.77
+    pending = list(enumerate(predictors, start=1))
+    for k, (kind, _) in enumerate(rows):
+        g = 2 * k
+        if kind == "top":
+            for col, (key, draw) in enumerate(top):
+                ax = fig.add_subplot(grid[g, col])
+                _panel(ax, plots[key], draw, col_w)
+        elif kind == "strip":
+            ax = fig.add_subplot(grid[g, :])
+            _panel(ax, strip, _draw_influence, width - LEFT - RIGHT)
+        else:
+            for col in range(COLUMNS):
+                if not pending:
+                    break
+                ax = fig.add_subplot(grid[g, col])
+                number, panel = pending.pop(0)
+                _panel(ax, panel, _draw_predictor, col_w, number)
     if title:
-        fig.suptitle(title, fontsize=13, fontweight="bold", color=INK, parse_math=False)
+        fig.text(
+            LEFT / width,
+            1 - 0.15 / height,
+            title,
+            ha="left",
+            va="top",
+            fontsize=13,
+            fontweight="bold",
+            color=INK,
+            parse_math=False,
+        )
+    fig.text(
+        LEFT / width,
+        0.12 / height,
+        textwrap.fill(_footer(plots), int((width - LEFT) * DPI / 5.0)),
+        ha="left",
+        va="bottom",
+        fontsize=7.5,
+        color=MUTED,
+        parse_math=False,
+    )
     buf = io.BytesIO()
     if fmt == "png":
         FigureCanvasAgg(fig).print_png(buf)
@@ -287,3 +475,20 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
         with _SVG_LOCK, matplotlib.rc_context(rc):
             canvas.print_svg(buf, metadata={"Date": None})
     return buf.getvalue()
+
+
+def _panel(ax, panel: dict, draw, width_in: float, number: int | None = None) -> None:
+    suffix = "" if number is None else f"-{number}"
+    ax.set_gid(f"panel-{panel.get('question', 'plot')}{suffix}")
+    _head(ax, panel, width_in)
+    _style(ax, panel, *_axis_labels(panel))
+    extra = draw(ax, panel)
+    shown = len((panel.get("points") or {}).get("x") or [])
+    if shown:
+        _note(ax, _rows_note(panel, shown) + extra)
+
+
+def _axis_labels(panel: dict) -> tuple[str | None, str | None]:
+    if panel.get("question") == "normal":
+        return None, "standardised residual − normal quantile"
+    return None, None

@@ -192,7 +192,21 @@ def build(app: FastAPI, settings: Settings) -> dict:
     return doc
 
 
+#: operation ids a client generator turns into method names
+OPERATION_IDS = {
+    ("post", "/v1/selections"): "createSelection",
+    ("post", "/v1/reports"): "createReport",
+    ("post", "/v1/predictions"): "createPrediction",
+    ("post", "/v1/diagnostics"): "createDiagnosis",
+    ("get", "/v1/transforms"): "listTransforms",
+    ("get", "/healthz"): "checkHealth",
+    ("get", "/metrics"): "readMetrics",
+}
+
+
 def _complete_operation(path: str, method: str, op: dict, protected: bool) -> None:
+    if (method, path) in OPERATION_IDS:
+        op["operationId"] = OPERATION_IDS[(method, path)]
     responses = op["responses"]
     responses.pop("422", None)  # the framework's validation schema: we answer problems
     ok = _OK.get((method, path))

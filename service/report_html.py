@@ -258,15 +258,20 @@ def _figure(plots, entry: dict, prefix: str) -> str:
         return f'<p class="note">No figure: it could not be drawn ({esc(last)}).</p>'
     n_partial = len(plots.get("partial_residuals") or [])
     caption = (
-        "Residuals against fitted values, normal quantile plot with a 95% simulation "
-        "envelope, spread against fitted values and influence (studentised residuals "
-        "against leverage, marker area proportional to Cook's distance)"
+        "Four questions about the scale: is it straight (residuals against fitted values), is "
+        "the spread even (|standardised residual| against fitted values), are the residuals "
+        "close to normal (departures of the ordered residuals from their normal quantiles, "
+        "inside a 95% band for a normal sample) and which rows pull the fit (Cook's distance "
+        "by row, coloured by the reason a row is flagged)"
     )
     if n_partial:
-        caption += f", then {n_partial} component-plus-residual panel(s), one per numeric predictor"
+        caption += (
+            f"; then one panel per numeric predictor ({n_partial}) asking whether its scale is "
+            "right (partial residuals with the fitted effect)"
+        )
     caption += (
         ". Curves are LOWESS smoothers; circled points are flagged rows, labelled with "
-        "their row number in the request."
+        "their row number in the request (0 = first data row)."
     )
     return (
         f'<figure class="panels" id="{prefix}">{inline_svg(svg, prefix, label)}'

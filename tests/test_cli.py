@@ -187,3 +187,13 @@ def test_cli_rejects_an_invalid_option_file(tmp_path, capsys):
     )
     assert code == 2
     assert "invalid request" in capsys.readouterr().err
+
+
+def test_service_help_lists_the_select_command():
+    import subprocess
+    import sys
+
+    out = subprocess.run(
+        [sys.executable, "-m", "service", "--help"], capture_output=True, text=True, check=True
+    ).stdout
+    assert "select" in out and "--data" in out and "select --help" in out

@@ -64,14 +64,22 @@ def test_svg_holds_every_panel(mammal_svg):
     assert root.tag == f"{SVG}svg"
     text = _texts(root)
     for title in (
-        "Residuals vs fitted",
-        "Normal Q-Q",
-        "Spread vs fitted",
-        "Influence",
-        "Component + residual: body",
+        "Is the scale straight?",
+        "Is the spread even?",
+        "Are the residuals close to normal?",
+        "Which rows pull the fit?",
+        "Is the scale of body right?",
         "brain on body",
     ):
         assert title in text
+    panels = {g.get("id") for g in root.iter(f"{SVG}g") if (g.get("id") or "").startswith("panel-")}
+    assert panels == {
+        "panel-straight",
+        "panel-spread",
+        "panel-normal",
+        "panel-influence",
+        "panel-predictor_scale-1",
+    }
     assert "32" in text  # the flagged row (African elephant) is labelled by its row number
     assert len(list(root.iter(f"{SVG}path"))) > 40
 
@@ -90,7 +98,7 @@ def test_partial_panels_are_capped_and_unused_axes_hidden():
     plots = diagnostic_plots(_inputs(n_predictors=8))
     root = ET.fromstring(render_figure(plots, "svg"))
     text = _texts(root)
-    shown = [k for k in range(8) if f"Component + residual: x{k}" in text]
+    shown = [k for k in range(8) if f"Is the scale of x{k} right?" in text]
     assert shown == list(range(MAX_PARTIAL_PANELS))
 
 

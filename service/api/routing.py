@@ -254,8 +254,7 @@ class StrictRoute(APIRoute):
                         "unsupported-media-type",
                         "Unsupported media type",
                         f"send the body as application/json{also} (got "
-                        f"'{ctype or 'no content type'}')",
-                        [{"pointer": "", "detail": f"Content-Type must be application/json{also}"}],
+                        f"'{ctype or 'no content type'}' in the Content-Type header)",
                     )
                 strict_request = StrictJSONRequest(request.scope, request.receive)
                 await strict_request.parse_body()

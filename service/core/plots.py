@@ -1,19 +1,28 @@
 """Plot-ready data for the diagnostic panels of one OLS candidate.
 
 :func:`diagnostic_plots` returns named numeric series (lists of finite floats and row
-numbers) for five panels: residuals against fitted values, a normal quantile plot with a
-simulation envelope (Atkinson 1981), spread against fitted values (Cleveland's
-scale-location view), studentised residuals against leverage with Cook's distances
-(Cook 1977; Hoaglin & Welsch 1978), and one component-plus-residual series per numeric
-predictor (Ezekiel 1924; Larsen & McCleary 1972).  Smoothers are LOWESS (Cleveland 1979).
+numbers) for the questions a reader asks of a fitted scale:
 
-Large data sets are thinned for drawing only: a seeded random subset of the rows, always
-including the flagged rows that are labelled.  The statistics behind every series use all
-rows; the LOWESS curves use all rows up to :data:`SMOOTHER_MAX_ROWS` and a seeded sample
-beyond that.
+- ``residuals_fitted`` -- is the scale straight?  Residuals against fitted values with a
+  LOWESS smoother (Cleveland 1979).
+- ``spread_fitted`` -- is the spread even?  |standardised residual| against fitted values, with
+  its smoother and the size expected under even normal spread, E|Z| = sqrt(2/pi).
+- ``normal_quantiles`` -- are the residuals close to normal?  Ordered standardised residuals
+  against normal quantiles (Blom 1958) with a 95% envelope (Atkinson 1981).
+- ``influence`` -- which rows pull the fit?  Cook's distance (Cook 1977) by row, with the
+  service's flag and fail cut-offs and the reason each flagged row was flagged.
+- ``partial_residuals`` -- is each predictor's scale right?  One partial-residual series per
+  numeric predictor (Ezekiel 1924; Larsen & McCleary 1972).
+
+Row numbers are the caller's: 0 is the first data row of the request.  Large data sets are
+thinned for drawing only: a seeded random subset of the rows, always including the flagged
+rows that are labelled.  The statistics behind every series use all rows; the LOWESS curves
+use all rows up to :data:`SMOOTHER_MAX_ROWS` and a seeded sample beyond that.
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 from scipy import stats
@@ -107,9 +116,11 @@ def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict:
     f, e = fit.fitted, fit.resid
     lo, hi = float(f.min()), float(f.max())
     return {
-        "title": "Residuals vs fitted",
+        "title": "Is the scale straight?",
+        "question": "straight",
+        "reading": "residuals should scatter around 0 with no curve in the smoother",
         "x_label": "Fitted value (model scale)",
-        "y_label": "Residual",
+        "y_label": "Residual (model scale)",
         "points": _scatter(f, e, ids, keep),
         "smoother": _smoother(f, e, rng),
         "reference_lines": [{"name": "zero", "x": [lo, hi], "y": [0.0, 0.0]}],
@@ -145,7 +156,12 @@ def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict:
 
 def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
     panel = {
-        "title": "Normal Q-Q",
+        "title": "Are the residuals close to normal?",
+        "question": "normal",
+        "reading": (
+            "ordered standardised residuals should follow their normal quantiles, inside the "
+            "95% envelope"
+        ),
         "x_label": "Normal quantile",
         "y_label": "Standardised residual",
         "n_total": fit.n,
@@ -214,57 +230,98 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
     return panel
 
 
+#: E|Z| for Z ~ N(0, 1): the mean size of a standardised residual under even normal spread
+EXPECTED_ABS_NORMAL = math.sqrt(2.0 / math.pi)
+
+
 def _spread_fitted(fit, ids, keep, flagged, rng) -> dict:
     panel = {
-        "title": "Spread vs fitted",
+        "title": "Is the spread even?",
+        "question": "spread",
+        "reading": "the smoother should stay level; a rise or fall means uneven spread",
         "x_label": "Fitted value (model scale)",
-        "y_label": "sqrt(|standardised residual|)",
+        "y_label": "|standardised residual|",
         "n_total": fit.n,
     }
     if fit.influence is None:
         panel.update(
-            points={"x": [], "y": [], "row": []}, smoother=None, labels=[], note=fit.residual_reason
-        )
-        return panel
-    f, s = fit.fitted, np.sqrt(np.abs(fit.influence.standardized))
-    panel.update(
-        points=_scatter(f, s, ids, keep),
-        smoother=_smoother(f, s, rng),
-        labels=_labels(f, s, ids, flagged),
-    )
-    return panel
-
-
-def _influence_panel(fit, ids, keep, flagged) -> dict:
-    panel = {
-        "title": "Influence",
-        "x_label": "Leverage (hat value)",
-        "y_label": "Externally studentised residual",
-        "n_total": fit.n,
-    }
-    if fit.influence is None:
-        panel.update(
-            points={"x": [], "y": [], "row": [], "size": []},
+            points={"x": [], "y": [], "row": []},
+            smoother=None,
             reference_lines=[],
             labels=[],
             note=fit.residual_reason,
         )
         return panel
-    inf = fit.influence
-    h, t = inf.leverage, inf.studentized
-    cut = 2.0 * fit.rank / fit.n
-    finite_t = t[np.isfinite(t)]
-    span = max(3.0, float(np.max(np.abs(finite_t)))) if finite_t.size else 3.0
-    h_hi = max(float(np.max(h)), cut) * 1.05
+    f, s = fit.fitted, np.abs(fit.influence.standardized)
+    lo, hi = float(f.min()), float(f.max())
     panel.update(
-        points=_scatter(h, t, ids, keep, size=np.nan_to_num(inf.cooks, nan=0.0)),
+        points=_scatter(f, s, ids, keep),
+        smoother=_smoother(f, s, rng),
+        # source: E|Z| = sqrt(2/pi) for a standard normal Z (half-normal mean)
         reference_lines=[
-            {"name": "leverage 2p/n (common practice)", "x": [cut, cut], "y": [-span, span]},
-            {"name": "+2 (common practice)", "x": [0.0, h_hi], "y": [2.0, 2.0]},
-            {"name": "-2 (common practice)", "x": [0.0, h_hi], "y": [-2.0, -2.0]},
+            {
+                "name": "expected size under even normal spread, sqrt(2/pi) = 0.80",
+                "x": [lo, hi],
+                "y": [EXPECTED_ABS_NORMAL, EXPECTED_ABS_NORMAL],
+            }
         ],
-        labels=_labels(h, t, ids, flagged),
-        size_label="Cook's distance",
+        labels=_labels(f, s, ids, flagged),
+    )
+    return panel
+
+
+def _flag_reason(masks: dict[str, np.ndarray], n: int) -> np.ndarray:
+    """Per row: "cooks" when flagged for Cook's distance, "other" when flagged for another
+    reason only (leverage, DFFITS, studentised residual), "" when not flagged."""
+    by_cooks = np.zeros(n, dtype=bool)
+    other = np.zeros(n, dtype=bool)
+    for name, mask in masks.items():
+        if name.startswith("Cook's distance"):
+            by_cooks |= mask
+        else:
+            other |= mask
+    return np.where(by_cooks, "cooks", np.where(other, "other", ""))
+
+
+def _influence_panel(fit, ids, keep, flagged) -> dict:
+    panel = {
+        "title": "Which rows pull the fit?",
+        "question": "influence",
+        "reading": (
+            "Cook's distance of each row; rows above the flag line move the fit noticeably, "
+            "above the fail line they dominate it"
+        ),
+        "x_label": "Row (0 = first data row)",
+        "y_label": "Cook's distance",
+        "n_total": fit.n,
+    }
+    if fit.influence is None:
+        panel.update(
+            points={"x": [], "y": [], "row": [], "flag": []},
+            cutoffs=[],
+            labels=[],
+            note=fit.residual_reason,
+        )
+        return panel
+    inf = fit.influence
+    _, masks, cut = flag_rows(fit)
+    cooks = np.nan_to_num(inf.cooks, nan=0.0)
+    rows = np.asarray(ids, dtype=float)
+    reason = _flag_reason(masks, fit.n)
+    pts = _scatter(rows, cooks, ids, keep, leverage=inf.leverage, studentized=inf.studentized)
+    ok = keep[np.isfinite(rows[keep]) & np.isfinite(cooks[keep])]
+    pts["flag"] = [str(r) for r in reason[ok]]
+    panel.update(
+        points=pts,
+        cutoffs=[
+            {"name": "flag: Cook's distance > 4/n (common practice)", "value": cut["cooks_flag"]},
+            {"name": "fail: Cook's distance > 1 (common practice)", "value": cut["cooks_fail"]},
+        ],
+        flag_rule=(
+            "a row is flagged for Cook's distance > 4/n, leverage > 2p/n, |DFFITS| > 2 sqrt(p/n) "
+            "or |externally studentised residual| > 3 (common practice)"
+        ),
+        labels=_labels(rows, cooks, ids, flagged),
     )
     return panel
 
@@ -288,9 +345,14 @@ def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict]:
             {
                 "column": term.column,
                 "label": term.label,
-                "title": f"Component + residual: {term.label}",
-                "x_label": f"{term.column} (raw value)",
-                "y_label": f"b * {term.label} + residual",
+                "title": f"Is the scale of {term.column} right?",
+                "question": "predictor_scale",
+                "reading": (
+                    f"the smoother should follow the fitted effect of {term.label}; a "
+                    "systematic bend means another scale fits better"
+                ),
+                "x_label": f"{term.column} (as sent)",
+                "y_label": f"fitted effect of {term.label} + residual",
                 "points": _scatter(x, y, ids, keep),
                 "component": {"x": _floats(x[srt]), "y": _floats(comp[srt])},
                 "smoother": _smoother(x, y, rng),

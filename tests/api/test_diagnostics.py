@@ -87,7 +87,12 @@ def test_svg_figure_has_every_panel(client):
     text = " ".join(
         t.text or "" for t in root.iter() if t.tag.endswith("text") or t.tag.endswith("tspan")
     )
-    for title in ("Residuals vs fitted", "Normal Q-Q", "Spread vs fitted", "Influence"):
+    for title in (
+        "Is the scale straight?",
+        "Is the spread even?",
+        "Are the residuals close to normal?",
+        "Which rows pull the fit?",
+    ):
         assert title in text
     paths = [e for e in root.iter() if e.tag.endswith("path")]
     assert len(paths) > 50

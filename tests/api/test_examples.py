@@ -36,3 +36,16 @@ def test_example_request_answers_with_documented_fields(path):
         assert set(stored["ranking"][0]) == set(got["ranking"][0])
         # same data, same seed: the same specification ranks first
         assert stored["ranking"][0]["specification"] == got["ranking"][0]["specification"]
+
+
+def test_every_operation_has_a_named_id(client):
+    doc = client.get("/openapi.json").json()
+    ids = [
+        op["operationId"]
+        for item in doc["paths"].values()
+        for op in item.values()
+        if isinstance(op, dict) and "responses" in op
+    ]
+    assert len(ids) == len(set(ids))
+    assert all(i.isidentifier() and "_" not in i for i in ids), ids
+    assert doc["paths"]["/v1/selections"]["post"]["operationId"] == "createSelection"

@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 import os
 import tempfile
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -449,3 +450,43 @@ def test_any_value_in_any_field_is_never_a_server_error(client, field, value):
         assert_problem(r, r.status_code)
     else:
         _strict_json(r.text)
+
+
+EXAMPLE = Path(__file__).resolve().parents[2] / "openapi_examples" / "selections.request.json"
+
+
+@pytest.mark.parametrize(
+    ("field", "value", "pointer", "detail"),
+    [
+        ("top", "five", "/top", 'expected a whole number such as 5, got "five"'),
+        ("top", 0, "/top", "must be at least 1, got 0"),
+        ("alpha", 2, "/alpha", "must be less than 0.5, got 2"),
+        ("strategy", "fast", "/strategy", 'must be one of "auto", "exhaustive" or "screened"'),
+        ("intercept", "yes", "/intercept", 'expected true or false, got "yes"'),
+        ("predictors", [], "/predictors", "must hold at least 1 item, got []"),
+        ("bogus", 1, "/bogus", "unknown field 'bogus': remove it"),
+    ],
+)
+def test_schema_errors_name_the_value_sent_in_our_words(client, field, value, pointer, detail):
+    import json
+    from pathlib import Path
+
+    body = json.loads(
+        (
+            Path(__file__).resolve().parents[2] / "openapi_examples/selections.request.json"
+        ).read_text()
+    )
+    body[field] = value
+    r = client.post("/v1/selections", json=body)
+    assert r.status_code == 422
+    errors = r.json()["errors"]
+    assert errors[0]["pointer"] == pointer
+    assert errors[0]["detail"].startswith(detail)
+    assert "Input should" not in r.text and "(s)" not in r.text
+
+
+def test_unsupported_media_type_has_no_empty_pointer(client):
+    r = client.post("/v1/selections", content=b"x", headers={"content-type": "text/plain"})
+    assert r.status_code == 415
+    assert all(e.get("pointer") for e in r.json()["errors"])
+    assert "text/plain" in r.json()["detail"]

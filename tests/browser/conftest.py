@@ -1,7 +1,8 @@
 """A headless system Chromium driven by Playwright (never a downloaded browser).
 
-CI installs Debian's ``chromium`` (see .ci/run), so a missing browser or a missing
-``playwright`` package FAILS these tests.  On a developer machine without them, set
+The README's test command installs Debian's ``chromium`` when it is missing
+(scripts/ensure-chromium), so a missing browser or a missing ``playwright`` package FAILS
+these tests.  On a developer machine without them, set
 ``BESTSCALE_SKIP_BROWSER=1`` to skip instead; ``BESTSCALE_CHROMIUM`` names another
 Chromium executable.
 """
@@ -28,8 +29,8 @@ def _unavailable(reason: str):
     if os.environ.get("BESTSCALE_SKIP_BROWSER") == "1":
         pytest.skip(f"{reason} (BESTSCALE_SKIP_BROWSER=1)")
     pytest.fail(
-        f"{reason}; install it (CI: apt-get install chromium; pip install -e '.[test]') "
-        "or set BESTSCALE_SKIP_BROWSER=1 to skip browser tests on this machine",
+        f"{reason}; run 'sh scripts/ensure-chromium' (or 'sudo apt-get install chromium'), "
+        "or set BESTSCALE_SKIP_BROWSER=1 to skip the browser tests explicitly",
         pytrace=False,
     )
 

@@ -47,6 +47,9 @@ def series_ok(points: dict) -> None:
     lengths = {len(v) for v in points.values()}
     assert len(lengths) == 1, points.keys()
     for key, values in points.items():
+        if key == "flag":  # the influence panel's reason code per row
+            assert set(values) <= {"", "cooks", "other"}
+            continue
         assert all(np.isfinite(values)), key
 
 
@@ -75,13 +78,27 @@ def test_series_match_statsmodels():
     np.testing.assert_allclose(rf["x"], res.fittedvalues, rtol=1e-10)  # source: statsmodels
     np.testing.assert_allclose(rf["y"], res.resid, rtol=1e-8, atol=1e-12)
     sf = out["spread_fitted"]["points"]
-    np.testing.assert_allclose(sf["y"], np.sqrt(np.abs(infl.resid_studentized_internal)), rtol=1e-8)
+    np.testing.assert_allclose(sf["y"], np.abs(infl.resid_studentized_internal), rtol=1e-8)
+    # source: E|Z| = sqrt(2/pi) = 0.7979 for a standard normal Z
+    assert out["spread_fitted"]["reference_lines"][0]["y"][0] == pytest.approx(0.797885, abs=1e-6)
     inf = out["influence"]["points"]
-    np.testing.assert_allclose(inf["x"], infl.hat_matrix_diag, rtol=1e-10)
-    np.testing.assert_allclose(inf["y"], infl.resid_studentized_external, rtol=1e-8)
-    np.testing.assert_allclose(inf["size"], infl.cooks_distance[0], rtol=1e-8)
-    cut = out["influence"]["reference_lines"][0]
-    assert cut["x"][0] == pytest.approx(2 * 3 / 100)  # common practice: 2p/n
+    np.testing.assert_allclose(inf["x"], inp.row_ids)  # by row
+    np.testing.assert_allclose(inf["y"], infl.cooks_distance[0], rtol=1e-8)
+    np.testing.assert_allclose(inf["leverage"], infl.hat_matrix_diag, rtol=1e-10)
+    np.testing.assert_allclose(inf["studentized"], infl.resid_studentized_external, rtol=1e-8)
+    cuts = {c["name"].split(":")[0]: c["value"] for c in out["influence"]["cutoffs"]}
+    assert cuts == {"flag": pytest.approx(4 / 100), "fail": 1.0}  # common practice: 4/n and 1
+    # a row's colour code follows the flag rule of the influence condition
+    lev_cut, t_cut = 2 * 3 / 100, 3.0  # common practice: 2p/n and |t| > 3
+    dffits_cut = 2 * np.sqrt(3 / 100)
+    for k, flag in enumerate(inf["flag"]):
+        cooks = infl.cooks_distance[0][k] > 4 / 100
+        other = (
+            infl.hat_matrix_diag[k] > lev_cut
+            or abs(infl.resid_studentized_external[k]) > t_cut
+            or abs(infl.dffits[0][k]) > dffits_cut
+        )
+        assert flag == ("cooks" if cooks else "other" if other else "")
     pr = out["partial_residuals"][0]
     np.testing.assert_allclose(
         pr["points"]["y"], res.params[1] * inp.X[:, 1] + res.resid, rtol=1e-8
