@@ -23,7 +23,10 @@ or more.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
+from numpy.typing import ArrayLike
 
 from .data import Prepared
 
@@ -38,7 +41,7 @@ RULE = (
 )
 
 
-def numeric_profile(x: np.ndarray) -> dict:
+def numeric_profile(x: np.ndarray) -> dict[str, Any]:
     """Deciles of ``x`` and the share of rows in each bin between them (ties merge bins)."""
     x = np.asarray(x, dtype=float)
     q = np.quantile(x, DECILES)
@@ -52,28 +55,29 @@ def numeric_profile(x: np.ndarray) -> dict:
     }
 
 
-def categorical_profile(values: np.ndarray) -> dict:
+def categorical_profile(values: np.ndarray) -> dict[str, Any]:
     levels, counts = np.unique(np.asarray(values).astype(str), return_counts=True)
     return {
         "shares": {str(lv): float(c / counts.sum()) for lv, c in zip(levels, counts, strict=True)}
     }
 
 
-def profile(prep: Prepared, columns: list[str]) -> dict:
+def profile(prep: Prepared, columns: list[str]) -> dict[str, Any]:
     """The artifact's ``data_profile``: training rows, response and predictor profiles."""
-    out = {"rows": int(prep.n), "response": numeric_profile(prep.y), "predictors": {}}
+    preds: dict[str, Any] = {}
+    out = {"rows": int(prep.n), "response": numeric_profile(prep.y), "predictors": preds}
     for c in columns:
         if c in prep.numeric:
-            out["predictors"][c] = {"kind": "numeric", **numeric_profile(prep.numeric[c])}
+            preds[c] = {"kind": "numeric", **numeric_profile(prep.numeric[c])}
         elif c in prep.categorical:
-            out["predictors"][c] = {
+            preds[c] = {
                 "kind": "categorical",
                 **categorical_profile(prep.categorical[c]),
             }
     return out
 
 
-def psi(now: np.ndarray, then: np.ndarray) -> float:
+def psi(now: ArrayLike, then: ArrayLike) -> float:
     """Population stability index of two share vectors over the same bins."""
     a = np.maximum(np.asarray(now, dtype=float), EMPTY_SHARE)
     e = np.maximum(np.asarray(then, dtype=float), EMPTY_SHARE)
@@ -94,10 +98,12 @@ def _binned_shares(x: np.ndarray, edges: list[float]) -> np.ndarray:
     return counts / max(x.size, 1)
 
 
-def _numeric(x: np.ndarray, prof: dict | None, rng: dict | None) -> dict:
+def _numeric(
+    x: np.ndarray, prof: dict[str, Any] | None, rng: dict[str, Any] | None
+) -> dict[str, Any]:
     lo = prof["edges"][0] if prof else (rng or {}).get("min")
     hi = prof["edges"][-1] if prof else (rng or {}).get("max")
-    out: dict = {"kind": "numeric", "training_min": lo, "training_max": hi}
+    out: dict[str, Any] = {"kind": "numeric", "training_min": lo, "training_max": hi}
     if lo is not None and hi is not None:
         below, above = int(np.sum(x < lo)), int(np.sum(x > hi))
         out["outside_range"] = {
@@ -115,11 +121,15 @@ def _numeric(x: np.ndarray, prof: dict | None, rng: dict | None) -> dict:
     return out
 
 
-def _categorical(values: np.ndarray, prof: dict | None, levels: dict | None) -> dict:
+def _categorical(
+    values: np.ndarray, prof: dict[str, Any] | None, levels: dict[str, Any] | None
+) -> dict[str, Any]:
     now_lv, counts = np.unique(np.asarray(values).astype(str), return_counts=True)
     now = dict(zip(now_lv.tolist(), (counts / counts.sum()).tolist(), strict=True))
-    then = prof["shares"] if prof else dict.fromkeys((levels or {}).get("levels", []))
-    out: dict = {
+    then: dict[str, Any] = (
+        prof["shares"] if prof else dict.fromkeys((levels or {}).get("levels", []), 0.0)
+    )
+    out: dict[str, Any] = {
         "kind": "categorical",
         "new_levels": sorted(set(now) - set(then)),
         "vanished_levels": sorted(set(then) - set(now)),
@@ -136,7 +146,7 @@ def _names(xs: list[str]) -> str:
     return shown + (f" and {len(xs) - 10} more" if len(xs) > 10 else "")
 
 
-def compare(artifact: dict, prep: Prepared) -> dict:
+def compare(artifact: dict[str, Any], prep: Prepared) -> dict[str, Any]:
     """The ``drift`` block of one segment: this month's rows against the artifact's record."""
     prof = artifact.get("data_profile") or {}
     pprof = prof.get("predictors", {})
@@ -145,7 +155,7 @@ def compare(artifact: dict, prep: Prepared) -> dict:
     spec = artifact.get("specification", {})
     columns = [p["column"] for p in spec.get("predictors", [])]
     flags: list[str] = []
-    preds: dict = {}
+    preds: dict[str, Any] = {}
     for c in columns:
         if c in prep.numeric:
             d = _numeric(np.asarray(prep.numeric[c], dtype=float), pprof.get(c), ranges.get(c))
@@ -170,7 +180,7 @@ def compare(artifact: dict, prep: Prepared) -> dict:
         if d.get("shift") in ("moderate", "major"):
             flags.append(f"'{c}' shifted ({d['shift']}: PSI {d['psi']:.3g})")
         preds[c] = d
-    out: dict = {
+    out: dict[str, Any] = {
         "rows": {"then": prof.get("rows", artifact.get("n")), "now": int(prep.n)},
         "predictors": preds,
         "rule": RULE,
