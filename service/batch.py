@@ -29,6 +29,11 @@ import time
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field, replace
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from .core.data import Prepared
+    from .core.search import SearchOptions
 
 MANIFEST = "manifest.json"
 SUMMARY = "summary.json"
@@ -142,8 +147,8 @@ def unexpected_problem(exc: BaseException) -> dict:
 @dataclass
 class Task:
     name: str
-    sub: object  # Prepared | {"problem": ...}
-    opts: object
+    sub: Any  # Prepared | {"problem": ...}
+    opts: Any
     version: str
     incumbent_model: dict | None = None
 
@@ -399,8 +404,8 @@ def read_incumbents(path: str, validate_spec: Callable[[dict, str], dict]) -> di
 class Job:
     out: Path
     request: dict  # the request without its data
-    prep: object
-    opts: object
+    prep: Prepared
+    opts: SearchOptions
     version: str
     incumbents: dict = field(default_factory=dict)
     incumbents_digest: str | None = None

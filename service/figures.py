@@ -29,14 +29,17 @@ import io
 import math
 import textwrap
 import threading
+from typing import Any
 
 import matplotlib
 import numpy as np
+from matplotlib.artist import Artist
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
+from matplotlib.typing import RcKeyType
 
 #: at most this many predictor panels are drawn
 MAX_PARTIAL_PANELS = 6
@@ -331,7 +334,7 @@ def _draw_influence(ax, panel: dict) -> str:
             ax.vlines(x[m], 0.0, y[m], color=colours[reason], linewidth=1.1, zorder=2)
             ax.scatter(x[m], y[m], s=10, color=colours[reason], zorder=3, edgecolors="none")
     top = float(np.max(y)) if y.size else 0.0
-    handles = [
+    handles: list[Artist] = [
         Line2D([], [], color=FLAG_COOKS, linewidth=2, label="flagged: Cook's distance"),
         Line2D([], [], color=FLAG_OTHER, linewidth=2, label="flagged: leverage, DFFITS or |t|"),
         Line2D([], [], color=QUIET, linewidth=2, label="not flagged"),
@@ -339,7 +342,7 @@ def _draw_influence(ax, panel: dict) -> str:
     for cut in panel.get("cutoffs") or []:
         value = float(cut["value"])
         fail = cut["name"].startswith("fail")
-        style = {"color": FLAG_COOKS if fail else MUTED, "linewidth": 1.0}
+        style: dict[str, Any] = {"color": FLAG_COOKS if fail else MUTED, "linewidth": 1.0}
         style["linestyle"] = "-" if fail else (0, (4, 3))
         text = f"{'fail' if fail else 'flag'} line: Cook's distance {value:.3g}"
         if value <= max(top * 1.15, 1e-12) or not fail:
@@ -435,6 +438,7 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
                 _panel(ax, plots[key], draw, col_w)
         elif kind == "strip":
             ax = fig.add_subplot(grid[g, :])
+            assert strip  # the strip row exists only with an influence panel
             _panel(ax, strip, _draw_influence, width - LEFT - RIGHT)
         else:
             for col in range(COLUMNS):
@@ -471,7 +475,7 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
     else:
         canvas = FigureCanvasSVG(fig)
         # fixed hash salt: identical plots give byte-identical SVG (stable element ids)
-        rc = {"svg.fonttype": "none", "svg.hashsalt": "bestscale"}
+        rc: dict[RcKeyType, Any] = {"svg.fonttype": "none", "svg.hashsalt": "bestscale"}
         with _SVG_LOCK, matplotlib.rc_context(rc):
             canvas.print_svg(buf, metadata={"Date": None})
     return buf.getvalue()

@@ -56,11 +56,11 @@ def note_result(body: dict) -> None:
     selection, diagnostics or predictions) for the access log and the metrics."""
     if not isinstance(body, dict):
         return
-    data = body.get("data") if isinstance(body.get("data"), dict) else {}
+    data = body["data"] if isinstance(body.get("data"), dict) else {}
     rows = data.get("rows_used")
     if rows is None and isinstance(body.get("predictions"), list):
         rows = len(body["predictions"])
-    search = body.get("search") if isinstance(body.get("search"), dict) else {}
+    search = body["search"] if isinstance(body.get("search"), dict) else {}
     candidates = search.get("candidates_scored")
     if candidates is None and isinstance(body.get("groups"), dict):
         candidates = sum(
@@ -329,7 +329,7 @@ class ProblemCORSMiddleware(CORSMiddleware):
         response = super().preflight_response(request_headers)
         if response.status_code != 400:
             return response
-        refused = response.body.decode("utf-8", "replace").removeprefix("Disallowed CORS ")
+        refused = bytes(response.body).decode("utf-8", "replace").removeprefix("Disallowed CORS ")
         asked = {
             "origin": request_headers.get("origin"),
             "method": request_headers.get("access-control-request-method"),

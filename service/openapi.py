@@ -10,6 +10,7 @@ import copy
 import json
 import logging
 from pathlib import Path
+from typing import Any
 
 from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
@@ -105,7 +106,7 @@ def install(app: FastAPI, settings: Settings) -> None:
             app.openapi_schema = build(app, settings)
         return app.openapi_schema
 
-    app.openapi = openapi
+    app.openapi = openapi  # type: ignore[method-assign]  # FastAPI's documented override
 
 
 def _load(name: str):
@@ -154,7 +155,7 @@ def _schema_components(doc: dict) -> None:
 
 
 def _problem_response(code: str) -> dict:
-    out = {
+    out: dict[str, Any] = {
         "description": _PROBLEMS[code],
         "content": {
             "application/problem+json": {"schema": {"$ref": "#/components/schemas/Problem"}}

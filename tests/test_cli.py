@@ -151,6 +151,67 @@ def test_cli_output_equals_the_api_for_csv_and_parquet(tmp_path, client):
     assert "groups [" in err_pq and "3/3" in err_pq
 
 
+def test_cli_groups_use_the_worker_process_setting_while_showing_progress(tmp_path, monkeypatch):
+    # BESTSCALE_GROUP_PROCESSES applies on the command line too, where --group-by always
+    # shows a progress line (the progress once replaced the process mapper by a serial loop)
+    import service.core.workers as workers
+    from service.settings import get_settings
+
+    used: list[int] = []
+    steps: list[int] = []
+    real = workers.process_mapper
+
+    def recording(processes, blas_threads=1, on_result=None):
+        def step():
+            steps.append(1)
+            on_result()  # the progress line
+
+        inner = real(1, blas_threads, step)  # in this process: no start-up cost here
+
+        def mapper(fn, items):
+            used.append(processes)
+            return inner(fn, items)
+
+        return mapper
+
+    monkeypatch.setattr(workers, "process_mapper", recording)
+    monkeypatch.setenv("BESTSCALE_GROUP_PROCESSES", "2")
+    path = tmp_path / "repairs.csv"
+    with path.open("w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(list(TABLE))
+        w.writerows(zip(*TABLE.values(), strict=True))
+    (tmp_path / "options.json").write_text(json.dumps(OPTIONS))
+    get_settings.cache_clear()
+    try:
+        code = select_main(
+            [
+                "--data",
+                str(path),
+                "--response",
+                "repair_cost",
+                "--predictors",
+                ",".join(PREDICTORS),
+                "--group-by",
+                "district",
+                "--options",
+                str(tmp_path / "options.json"),
+                "--out",
+                str(tmp_path / "out.json"),
+            ]
+        )
+    finally:
+        get_settings.cache_clear()
+    assert code == 0
+    assert used == [2]
+    assert len(steps) == 3  # one progress step per group
+    assert sorted(json.loads((tmp_path / "out.json").read_text())["groups"]) == [
+        "coast",
+        "hills",
+        "valley",
+    ]
+
+
 def test_cli_reports_a_bad_column_with_its_pointer(tmp_path, capsys):
     path = tmp_path / "repairs.csv"
     path.write_text("repair_cost,pipe_length_m\n10,2\n12,3\n")

@@ -39,6 +39,12 @@ def test_ruff(args):
     assert done.returncode == 0, done.stdout + done.stderr
 
 
+def test_mypy():
+    # files and flags from pyproject.toml: every module, the strict flags on service.core
+    done = _run("mypy")
+    assert done.returncode == 0, done.stdout + done.stderr
+
+
 def test_api_reference_is_up_to_date():
     done = _run("scripts.api_reference", "--check")
     assert done.returncode == 0, done.stdout + done.stderr

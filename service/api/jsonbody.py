@@ -82,7 +82,7 @@ def _escape(token: str) -> str:
 
 
 def _find_repeated(value, path: str = "") -> tuple[str, str] | None:
-    if isinstance(value, _Repeated):
+    if isinstance(value, _Repeated) and value.key is not None:
         return path, value.key
     if isinstance(value, dict):
         for k, v in value.items():

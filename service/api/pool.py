@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import threading
 from contextlib import contextmanager
+from typing import TypedDict
 
 from ..errors import ProblemError
 from ..metrics import BUSY, CAPACITY
@@ -19,7 +20,14 @@ from ..settings import get_settings
 RETRY_AFTER_S = 2
 
 _lock = threading.Lock()
-_state = {"busy": 0, "capacity": None}
+
+
+class _State(TypedDict):
+    busy: int
+    capacity: int | None
+
+
+_state: _State = {"busy": 0, "capacity": None}
 
 
 def capacity() -> int:

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable, Iterable
+from typing import Any
+
 from fastapi import APIRouter, Request
 from starlette.responses import PlainTextResponse
 
@@ -100,6 +103,7 @@ def run_selection_request(req: SelectionRequest, progress=None, group_mapper=Non
                 "trust measures are computed for one selection; send "
                 "each group as its own request to measure them",
             )
+        assert prep.groups is not None  # prepared with group_by
         n_groups = len(set(prep.groups.tolist()))
         limit = get_settings().max_groups
         if n_groups > limit:
@@ -109,21 +113,35 @@ def run_selection_request(req: SelectionRequest, progress=None, group_mapper=Non
                 f"{limit} groups are accepted per request (setting "
                 "BESTSCALE_MAX_GROUPS); split the job over several requests",
             )
-        mapper = map
-        if get_settings().group_processes > 1:
-            from ..core.workers import process_mapper
-
-            mapper = process_mapper(get_settings().group_processes, get_settings().blas_threads)
+        mapper: Callable[..., Iterable[Any]] = map
         if progress is not None:
             progress.total = n_groups
-            each = group_mapper or (lambda fn, items: (fn(item) for item in items))
+        if group_mapper is not None:
+            each = group_mapper
 
-            def mapper(fn, items):
+            def mapped_with_progress(fn, items):
                 for result in each(fn, items):
                     yield result
+                    if progress is not None:
+                        progress.step()
+
+            mapper = mapped_with_progress
+        elif get_settings().group_processes > 1:
+            from ..core.workers import process_mapper
+
+            mapper = process_mapper(
+                get_settings().group_processes,
+                get_settings().blas_threads,
+                on_result=progress.step if progress is not None else None,
+            )
+        elif progress is not None:
+
+            def serial_with_progress(fn, items):
+                for item in items:
+                    yield fn(item)
                     progress.step()
-        elif group_mapper is not None:
-            mapper = group_mapper
+
+            mapper = serial_with_progress
 
         body = run_grouped(
             prep, opts, __version__, finish=lambda b: _finish(b, opts), mapper=mapper

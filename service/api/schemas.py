@@ -8,7 +8,7 @@ need the table (a column exists, a value is positive) are the core's.
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, Literal, overload
 
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
@@ -374,7 +374,13 @@ class SelectionRequest(_Strict):
     )
 
 
-def transform_items(items) -> list | dict | None:
+@overload
+def transform_items(items: None) -> None: ...
+@overload
+def transform_items(items: list[Any]) -> list[Any]: ...
+@overload
+def transform_items(items: dict[str, Any]) -> dict[str, Any]: ...
+def transform_items(items: list[Any] | dict[str, Any] | None) -> list | dict | None:
     """TransformsIn lists as plain names / dicts for the core."""
     if items is None:
         return None

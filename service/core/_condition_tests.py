@@ -24,9 +24,10 @@ from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import stats
@@ -55,7 +56,7 @@ class NotApplicable(Exception):
     """A test that cannot run on these data; the message is shown as the reason."""
 
 
-def num(value) -> float | None:
+def num(value: Any) -> float | None:
     """``float(value)`` when finite, else ``None`` (JSON has no NaN or infinity)."""
     try:
         out = float(value)
@@ -64,9 +65,9 @@ def num(value) -> float | None:
     return out if math.isfinite(out) else None
 
 
-def guarded(name: str, compute: Callable[[], dict], **meta) -> dict:
+def guarded(name: str, compute: Callable[[], dict[str, Any]], **meta: Any) -> dict[str, Any]:
     """Run one test; on failure return the entry with ``None`` numbers and a ``reason``."""
-    entry: dict = {"name": name, "statistic": None, "p_value": None, **meta}
+    entry: dict[str, Any] = {"name": name, "statistic": None, "p_value": None, **meta}
     try:
         # Degenerate inputs give 0/0 inside numpy; such values are reported as None below.
         with np.errstate(all="ignore"):
@@ -85,7 +86,7 @@ def guarded(name: str, compute: Callable[[], dict], **meta) -> dict:
 
 
 @contextmanager
-def _rank_quiet():
+def _rank_quiet() -> Iterator[None]:
     """Silence statsmodels' rank-deficiency warning around one fit.
 
     Used only where rank is handled explicitly: statsmodels counts degrees of freedom by
@@ -98,7 +99,7 @@ def _rank_quiet():
         yield
 
 
-def ols(z: np.ndarray, X: np.ndarray):
+def ols(z: np.ndarray, X: np.ndarray) -> Any:  # statsmodels results (no type information)
     """statsmodels OLS (pinv) fit; a rank-deficient design is accepted (see _rank_quiet)."""
     with _rank_quiet():
         return OLS(z, X).fit()
@@ -121,7 +122,7 @@ class Fit:
 
     z: np.ndarray
     X: np.ndarray
-    res: object  # statsmodels RegressionResultsWrapper
+    res: Any  # statsmodels RegressionResultsWrapper (the library has no type information)
     n: int
     rank: int
     df_resid: int
@@ -173,7 +174,7 @@ def fit_model(z: np.ndarray, X: np.ndarray, has_intercept: bool) -> Fit:
     )
 
 
-def _influence(res, df_resid: int) -> Influence:
+def _influence(res: Any, df_resid: int) -> Influence:
     # Rows with leverage 1 give 0/0 in statsmodels' formulas; they are set to NaN explicitly.
     with np.errstate(all="ignore"):
         infl = res.get_influence()
@@ -230,7 +231,7 @@ def standardized_regressors(fit: Fit) -> np.ndarray:
 
 
 # ----------------------------------------------------------------------------- linearity
-def reset_test(fit: Fit) -> dict:
+def reset_test(fit: Fit) -> dict[str, Any]:
     """Ramsey (1969) RESET: F test of adding fitted^2 and fitted^3.
 
     The powers are taken of the standardised fitted values (centred when the model spans a
@@ -238,7 +239,7 @@ def reset_test(fit: Fit) -> dict:
     conditioned (statsmodels' ``linear_reset`` loses the answer on Longley).
     """
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
         f = fit.fitted
         s = (f - f.mean()) if fit.spans_constant else f
@@ -275,10 +276,10 @@ def reset_test(fit: Fit) -> dict:
     )
 
 
-def rainbow_test(fit: Fit) -> dict:
+def rainbow_test(fit: Fit) -> dict[str, Any]:
     """Utts (1982) rainbow test, central half of the rows by Mahalanobis distance."""
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
         if fit.n_predictor_columns == 0:
             raise NotApplicable("the model has no predictors")
@@ -324,7 +325,7 @@ def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, float, 
     return coef, t, float(2 * stats.t.sf(abs(t), df)), df
 
 
-def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict:
+def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict[str, Any]:
     """Curvature of a predictor's partial residuals (component plus residual).
 
     The partial residual e + b_j w_j is regressed on the centred predictor u and u^2, where u
@@ -369,10 +370,10 @@ def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict:
 
 
 # ----------------------------------------------------------------------------- normality
-def shapiro_test(fit: Fit) -> dict:
+def shapiro_test(fit: Fit) -> dict[str, Any]:
     """Shapiro & Wilk (1965) W, scipy (Royston 1995 algorithm); 3 <= n <= 5000 only."""
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
         if fit.n < 3:
             raise NotApplicable("Shapiro-Wilk needs at least 3 rows")
@@ -387,10 +388,10 @@ def shapiro_test(fit: Fit) -> dict:
     return guarded("Shapiro-Wilk", compute, source="Shapiro & Wilk (1965); scipy.stats.shapiro")
 
 
-def jarque_bera_test(fit: Fit) -> dict:
+def jarque_bera_test(fit: Fit) -> dict[str, Any]:
     """Jarque & Bera (1980) skewness-kurtosis test, statsmodels."""
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
         jb, p, skew, kurt = smt.jarque_bera(fit.resid)
         return {"statistic": jb, "p_value": p, "df": 2.0, "skewness": skew, "kurtosis": kurt}
@@ -402,10 +403,10 @@ def jarque_bera_test(fit: Fit) -> dict:
     )
 
 
-def anderson_darling_test(fit: Fit) -> dict:
+def anderson_darling_test(fit: Fit) -> dict[str, Any]:
     """Anderson & Darling (1952) A^2 with estimated mean and sd (Stephens 1974), statsmodels."""
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
         if fit.n < 8:
             raise NotApplicable(
@@ -422,14 +423,15 @@ def anderson_darling_test(fit: Fit) -> dict:
 
 
 # ------------------------------------------------------------------------ equal variance
-def breusch_pagan_test(fit: Fit, Z: np.ndarray) -> dict:
+def breusch_pagan_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
     """Breusch & Pagan (1979) LM test in Koenker's (1981) studentised form (robust=True).
 
-    ``Z`` is :func:`standardized_regressors` of the fit.
+    ``Z`` is :func:`standardized_regressors` of the fit (``None`` when it has no residuals).
     """
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
+        assert Z is not None  # absent only when the fit has no residuals
         if Z.shape[1] < 2:
             raise NotApplicable("the model has no predictors to relate the spread to")
         lm, p, fval, fp = smd.het_breuschpagan(fit.resid, Z, robust=True)
@@ -451,11 +453,12 @@ def breusch_pagan_test(fit: Fit, Z: np.ndarray) -> dict:
     )
 
 
-def white_test(fit: Fit, Z: np.ndarray) -> dict:
+def white_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
     """White (1980) test: e^2 on the regressors, their squares and cross-products."""
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
+        assert Z is not None  # absent only when the fit has no residuals
         k = Z.shape[1]
         q = k * (k + 1) // 2
         if k < 2:
@@ -478,10 +481,10 @@ def white_test(fit: Fit, Z: np.ndarray) -> dict:
 
 
 # -------------------------------------------------------------------------- independence
-def durbin_watson_test(resid_ordered: np.ndarray) -> dict:
+def durbin_watson_test(resid_ordered: np.ndarray) -> dict[str, Any]:
     """Durbin & Watson (1950, 1951) d on the ordered residuals; statsmodels gives no p-value."""
 
-    def compute():
+    def compute() -> dict[str, Any]:
         d = smt.durbin_watson(resid_ordered)
         return {"statistic": d, "p_value": None}
 
@@ -499,11 +502,11 @@ def breusch_godfrey_lags(n: int) -> int:
     return min(4, max(1, n // 25))
 
 
-def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict:
+def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict[str, Any]:
     """Breusch (1978) / Godfrey (1978) LM test on an OLS refit with rows in ``order``."""
     nlags = breusch_godfrey_lags(fit.n)
 
-    def compute():
+    def compute() -> dict[str, Any]:
         _require_residuals(fit)
         extra = 0 if fit.spans_constant else 1  # statsmodels adds a constant if X lacks one
         if fit.df_resid - nlags - extra < 1:
@@ -533,12 +536,12 @@ def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict:
     )
 
 
-def ljung_box_test(resid_ordered: np.ndarray) -> dict:
+def ljung_box_test(resid_ordered: np.ndarray) -> dict[str, Any]:
     """Ljung & Box (1978) Q at lag min(10, n // 5) on the ordered residuals."""
     n = int(resid_ordered.shape[0])
     lags = min(10, n // 5)
 
-    def compute():
+    def compute() -> dict[str, Any]:
         if lags < 1:
             raise NotApplicable("Ljung-Box needs at least 5 rows")
         if np.ptp(resid_ordered) == 0:

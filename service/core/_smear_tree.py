@@ -28,8 +28,12 @@ from __future__ import annotations
 
 import math
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .transforms import Transform
 
 TREE_RTOL = 1e-12  # bound on the Taylor remainder of every block (relative)
 J = 30  # series terms per block
@@ -128,9 +132,9 @@ class _Tree:
         u = np.where(np.isnan(u), 0.0, u)
         member = (~np.isnan(block)).astype(float)
         M = np.empty((size, J))
-        for a in range(0, size, 2048):  # in chunks: the powers of 2048 leaves fit in cache
-            M[a : a + 2048] = np.einsum(
-                "blt,bl->bt", _powers(u[a : a + 2048], J), member[a : a + 2048]
+        for s0 in range(0, size, 2048):  # in chunks: the powers of 2048 leaves fit in cache
+            M[s0 : s0 + 2048] = np.einsum(
+                "blt,bl->bt", _powers(u[s0 : s0 + 2048], J), member[s0 : s0 + 2048]
             )
         self.cen, self.rad, self.cnt, self.mom = [c], [r], [cnt], [M]
         self.lo, self.hi = [lo], [hi]
@@ -155,7 +159,14 @@ class _Tree:
             self.hi.append(hi1)
 
     @staticmethod
-    def _shift(M, c, r, c1, r1s, cnt):
+    def _shift(
+        M: np.ndarray,
+        c: np.ndarray,
+        r: np.ndarray,
+        c1: np.ndarray,
+        r1s: np.ndarray,
+        cnt: np.ndarray,
+    ) -> np.ndarray:
         """Scaled moments about a child's centre moved to the parent's centre and scale.
 
         M1_t = sum_a C(t, a) d^(t-a) q^a M_a, computed as the truncated convolution
@@ -203,7 +214,7 @@ def smear_power(
     rho_ok = _rho_ok(float(p))
     cp = _binom_row(float(p))
 
-    def add_exact(eid, idx):
+    def add_exact(eid: np.ndarray, idx: np.ndarray) -> None:
         """Exact terms for (eta id, element index) pairs (idx >= i0 guaranteed)."""
         if eid.size == 0:
             return
@@ -284,7 +295,7 @@ def smear_power(
     return out
 
 
-def power_form(t) -> tuple[float, float, float, float, bool] | None:
+def power_form(t: Transform) -> tuple[float, float, float, float, bool] | None:
     """(beta, gamma, delta, p, outside_zero) when g^-1 is a power of an affine map, else None."""
     n = t.name
     if n == "square":
@@ -294,7 +305,7 @@ def power_form(t) -> tuple[float, float, float, float, bool] | None:
     if n == "power" and t.exponent:
         q = float(t.exponent)
         return 1.0, 0.0, 1.0, 1.0 / q, q > 0
-    if n == "box_cox" and abs(t.lam) >= 1e-12:
+    if n == "box_cox" and t.lam is not None and abs(t.lam) >= 1e-12:
         lam = float(t.lam)
         return 1.0, 1.0, lam, 1.0 / lam, lam > 0
     return None

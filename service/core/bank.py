@@ -15,10 +15,13 @@ compute their own per-fold matrices from their p columns (O(n p^2)).
 
 from __future__ import annotations
 
+from collections.abc import Hashable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
+
+from ._types import FloatArray
 
 if TYPE_CHECKING:  # pragma: no cover
     from .crossval import CVPlan
@@ -56,11 +59,11 @@ class ColumnBank:
         self.n = n
         self.index = index
         self._cols: list[np.ndarray] = []
-        self.keys: dict = {}
-        self.X: np.ndarray | None = None
-        self.G_fold: np.ndarray | None = None  # (R, K, m, m)
-        self.G_total: np.ndarray | None = None  # (R, m, m)
-        self._cross: dict = {}
+        self.keys: dict[Hashable, int] = {}
+        self.X: FloatArray | None = None
+        self.G_fold: FloatArray | None = None  # (R, K, m, m)
+        self.G_total: FloatArray | None = None  # (R, m, m)
+        self._cross: dict[Hashable, tuple[np.ndarray, np.ndarray]] = {}
 
     @classmethod
     def of_matrix(cls, X: np.ndarray, index: FoldIndex) -> ColumnBank:
@@ -74,7 +77,7 @@ class ColumnBank:
     def m(self) -> int:
         return len(self._cols) if self.X is None else self.X.shape[1]
 
-    def add(self, key, values: np.ndarray) -> int:
+    def add(self, key: Hashable, values: np.ndarray) -> int:
         if key in self.keys:
             return self.keys[key]
         if self.X is not None:
@@ -104,33 +107,42 @@ class ColumnBank:
                     self.G_fold[r, k] = Xk.T @ Xk
             self.G_total = self.G_fold.sum(axis=1)
 
+    def _frozen(self) -> FloatArray:
+        """The stacked columns; only a frozen bank has them."""
+        if self.X is None:
+            raise RuntimeError("the bank is not frozen yet; call freeze() first")
+        return self.X
+
     @property
     def has_grams(self) -> bool:
         """Whether candidates take their training matrices from stored sub-blocks."""
         return self.G_fold is not None
 
-    def columns(self, S) -> np.ndarray:
-        return self.X[:, S]
+    def columns(self, S: np.ndarray | list[int]) -> np.ndarray:
+        return self._frozen()[:, S]
 
     def fold_grams(self, S: np.ndarray, r: int) -> np.ndarray:
         """(K, p, p) held-out cross-products X_k[:, S]'X_k[:, S] of repeat r."""
         if self.G_fold is not None:
             ix = np.ix_(S, S)
-            return self.G_fold[r][:, ix[0], ix[1]]
+            G: np.ndarray = self.G_fold[r][:, ix[0], ix[1]]
+            return G
         out = []
         with np.errstate(over="ignore", invalid="ignore"):
             for rows in self.index.test[r]:
-                Xk = self.X[np.ix_(rows, S)]
+                Xk = self._frozen()[np.ix_(rows, S)]
                 out.append(Xk.T @ Xk)
         return np.stack(out)
 
     def train_grams(self, S: np.ndarray, r: int) -> np.ndarray:
         """(K, p, p) training cross-products of columns S in repeat r: G_r[S,S] - G_rk[S,S]."""
-        Gk = self.fold_grams(S, r)
-        tot = self.G_total[r][np.ix_(S, S)] if self.G_total is not None else Gk.sum(axis=0)
+        Gk: FloatArray = self.fold_grams(S, r)
+        tot: FloatArray = (
+            self.G_total[r][np.ix_(S, S)] if self.G_total is not None else Gk.sum(axis=0)
+        )
         return tot[None, :, :] - Gk
 
-    def cross(self, key, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def cross(self, key: Hashable, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Per split X_k'z (R, K, m) and its total (R, m), cached under ``key``."""
         if key not in self._cross:
             R, K = self.index.repeats, self.index.folds
@@ -139,6 +151,6 @@ class ColumnBank:
                 for r in range(R):
                     for k in range(K):
                         rows = self.index.test[r][k]
-                        cf[r, k] = self.X[rows].T @ z[rows]
+                        cf[r, k] = self._frozen()[rows].T @ z[rows]
                 self._cross[key] = (cf, cf.sum(axis=1))
         return self._cross[key]

@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import optimize, stats
@@ -63,7 +64,7 @@ class PowerFit:
     method: str  # "box_tidwell" | "profile"
     rss: float
 
-    def summary(self, j: int, level: float = 0.95) -> dict:
+    def summary(self, j: int, level: float = 0.95) -> dict[str, Any]:
         """Power j as reported: estimate, standard error, Wald interval, nearest ladder power."""
         a = float(self.powers[j])
         se = None if self.std_errors is None else float(self.std_errors[j])
@@ -133,7 +134,9 @@ def _normal_solve(G: np.ndarray, c: np.ndarray) -> np.ndarray | None:
     return B[0] if ok[0] else None
 
 
-def _fit(A: np.ndarray, z: np.ndarray, with_cov: bool = False):
+def _fit(
+    A: np.ndarray, z: np.ndarray, with_cov: bool = False
+) -> tuple[np.ndarray, np.ndarray | None, float]:
     """Least squares (coef, (A'A)^-1 or None, RSS): normal equations of the column-scaled
     matrix when its condition number is below 1e7, else pivoted QR."""
     cov = None
@@ -142,6 +145,10 @@ def _fit(A: np.ndarray, z: np.ndarray, with_cov: bool = False):
         coef, cov, _ = qr_solve(A, z, with_condition=False)
     r = z - A @ coef
     return coef, cov, float(r @ r)
+
+
+# W, D, X_f'[W D], [W D]'[W D], [W D]'z of one trial
+_Cache = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]
 
 
 class _Problem:
@@ -155,13 +162,13 @@ class _Problem:
     from the residuals themselves, never from the normal equations.
     """
 
-    def __init__(self, z, Xf, logx, boxcox_form):
+    def __init__(self, z: np.ndarray, Xf: np.ndarray, logx: np.ndarray, boxcox_form: bool):
         self.z, self.Xf, self.logx, self.bc = z, Xf, logx, boxcox_form
         self.pf, self.k = Xf.shape[1], logx.shape[1]
         self.Gff = Xf.T @ Xf
         self.cf = Xf.T @ z
 
-    def trial(self, a):
+    def trial(self, a: np.ndarray) -> tuple[float, np.ndarray | None, _Cache | None]:
         """State at powers ``a``: (rss, coef of [X_f, W]) plus the cross-products, or
         (inf, None, None) when a column or the fit is not finite.
 
@@ -196,7 +203,7 @@ class _Problem:
             rss += float(r @ r)
         return rss, coef, cache
 
-    def solve(self, cache, with_d: bool):
+    def solve(self, cache: _Cache, with_d: bool) -> np.ndarray | None:
         W, D, FWD, WDWD, wdz = cache
         if with_d and not np.all(np.isfinite(D)):
             return None
@@ -254,6 +261,7 @@ def estimate_powers(
     flat = 0  # consecutive steps that lowered the RSS by at most FTOL (relative)
     if math.isfinite(rss):
         for it in range(1, MAX_ITER + 1):  # noqa: B007  (the count is reported after the loop)
+            assert coef is not None and cache is not None  # they come with a finite RSS
             b = coef[prob.pf :]
             g = prob.solve(cache, with_d=True)
             if g is None:
@@ -305,7 +313,15 @@ def estimate_powers(
     return PowerFit(a, se, converged or method == "profile", it, method, rss)
 
 
-def _std_errors(z, Xf, logx, a, boxcox_form, n, p):
+def _std_errors(
+    z: np.ndarray,
+    Xf: np.ndarray,
+    logx: np.ndarray,
+    a: np.ndarray,
+    boxcox_form: bool,
+    n: int,
+    p: int,
+) -> np.ndarray | None:
     W, D = power_columns(logx, a, boxcox_form)
     k = logx.shape[1]
     try:
@@ -313,6 +329,7 @@ def _std_errors(z, Xf, logx, a, boxcox_form, n, p):
         _coef2, cov2, rss2 = _fit(np.hstack([Xf, W, D]), z, with_cov=True)
     except CandidateFailure:
         return None
+    assert cov2 is not None  # with_cov=True always returns it
     b = coef1[Xf.shape[1] :]
     s2 = rss2 / (n - p)
     var_g = np.diag(cov2)[Xf.shape[1] + k :] * s2
@@ -321,7 +338,9 @@ def _std_errors(z, Xf, logx, a, boxcox_form, n, p):
     return np.where(np.isfinite(se), se, np.nan)
 
 
-def _profile_search(prob: _Problem, a0, local: float | None = None):
+def _profile_search(
+    prob: _Problem, a0: np.ndarray, local: float | None = None
+) -> tuple[np.ndarray, float]:
     """Minimise RSS over the powers, cycling over the powers: a grid over the whole range then
     bounded Brent near its best point, or with ``local`` bounded Brent alone within
     ``a0 +- local`` (re-estimates in training folds, started from the all-rows estimate)."""
@@ -333,7 +352,7 @@ def _profile_search(prob: _Problem, a0, local: float | None = None):
         before = a.copy()
         for j in range(k):
 
-            def f(v, j=j):
+            def f(v: float, j: int = j) -> float:
                 trial = a.copy()
                 trial[j] = v
                 return prob.trial(trial)[0]

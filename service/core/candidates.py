@@ -19,12 +19,15 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Iterable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
 from . import boxtidwell as bt
 from . import transforms as tr
+from ._types import TransformItem
 from .bank import ColumnBank, FoldIndex
 from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
@@ -37,7 +40,7 @@ BT_SCREEN_ROWS = 50_000  # the screening power estimates use at most this many r
 MIN_DISTINCT_FOR_POWER = 5
 
 
-def _as_transform(item) -> tr.Transform:
+def _as_transform(item: TransformItem) -> tr.Transform:
     if isinstance(item, str):
         return tr.from_dict({"name": item})
     if isinstance(item, dict) and item.get("name") == "power" and item.get("exponent") is None:
@@ -45,7 +48,7 @@ def _as_transform(item) -> tr.Transform:
     return tr.from_dict(item)
 
 
-def _expand_name(item, role: str) -> list[tr.Transform]:
+def _expand_name(item: TransformItem, role: str) -> list[tr.Transform]:
     """A bare name 'power' means the ladder rungs not covered by other names (and, for a
     predictor, the power estimated from the data)."""
     if isinstance(item, str) and item == "power":
@@ -54,10 +57,12 @@ def _expand_name(item, role: str) -> list[tr.Transform]:
     return [_as_transform(item)]
 
 
-def response_candidates(prep: Prepared, response_transforms) -> list[tr.Transform]:
+def response_candidates(
+    prep: Prepared, response_transforms: list[TransformItem] | None
+) -> list[tr.Transform]:
     y = prep.y
     explicit = response_transforms is not None
-    items = response_transforms if explicit else list(DEFAULT_RESPONSE)
+    items = response_transforms if response_transforms is not None else list(DEFAULT_RESPONSE)
     out: list[tr.Transform] = []
     for i, item in enumerate(items):
         for t in _expand_name(item, "response"):
@@ -86,7 +91,10 @@ def _power_applies(x: np.ndarray) -> bool:
     )
 
 
-def predictor_candidates(prep: Prepared, predictor_transforms) -> list[list[tr.Transform]]:
+def predictor_candidates(
+    prep: Prepared,
+    predictor_transforms: list[TransformItem] | dict[str, list[TransformItem]] | None,
+) -> list[list[tr.Transform]]:
     spec = predictor_transforms
     per: list[list[tr.Transform]] = []
     for j, col in enumerate(prep.predictors):
@@ -154,11 +162,14 @@ class Space:
     prep: Prepared
     bank: ColumnBank
     intercept: bool
-    index: dict = field(default_factory=dict)  # (column, transform) -> bank indices (tuple)
-    bad: dict = field(default_factory=dict)  # (column, transform) -> reason it cannot be used
-    screen_powers: dict = field(default_factory=dict)  # (response key, column) -> power
+    # (column, transform) -> bank indices; ("", "intercept") for the constant column
+    index: dict[tuple[Any, ...], tuple[int, ...]] = field(default_factory=dict)
+    # (column, transform) -> reason it cannot be used
+    bad: dict[tuple[str, tr.Transform], str] = field(default_factory=dict)
+    # (response key, column) -> power
+    screen_powers: dict[tuple[tr.Transform, str], float] = field(default_factory=dict)
 
-    def design_of(self, spec: Specification):
+    def design_of(self, spec: Specification) -> tuple[list[int], list[str], list[int]]:
         """(bank columns, names, positions of estimated powers) for ``spec``."""
         cols: list[int] = []
         names: list[str] = []
@@ -197,7 +208,7 @@ def build_space(
     preds: list[list[tr.Transform]],
     index: FoldIndex,
     intercept: bool,
-    extra: dict | None = None,
+    extra: dict[tuple[Any, ...], np.ndarray] | None = None,
 ) -> Space:
     """Compute every option's column once; ``extra`` adds screening columns {key: values}."""
     bank = ColumnBank(prep.n, index)
@@ -237,12 +248,12 @@ def build_space(
 
 def screening_powers(
     prep: Prepared,
-    preds,
+    preds: list[list[tr.Transform]],
     responses: list[tr.Transform],
     intercept: bool,
     seed: int,
     deadline: float | None = None,
-) -> tuple[dict, dict]:
+) -> tuple[dict[tuple[tr.Transform, str], dict[str, Any]], dict[tuple[tr.Transform, str], float]]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
     For each fixed response scale and each predictor offering an estimated power, the
@@ -267,8 +278,8 @@ def screening_powers(
             base[c] = [(vals == level).astype(float) for level in lv if level != ref]
         else:
             base[c] = [prep.numeric[c][rows]]
-    info: dict = {}
-    powers: dict = {}
+    info: dict[tuple[tr.Transform, str], dict[str, Any]] = {}
+    powers: dict[tuple[tr.Transform, str], float] = {}
     for t in responses:
         if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
             continue
@@ -293,7 +304,11 @@ def screening_powers(
     return info, powers
 
 
-def add_ladder_rungs(prep: Prepared, preds, info: dict) -> list[list[tr.Transform]]:
+def add_ladder_rungs(
+    prep: Prepared,
+    preds: list[list[tr.Transform]],
+    info: dict[tuple[tr.Transform, str], dict[str, Any]],
+) -> list[list[tr.Transform]]:
     out = [list(o) for o in preds]
     for (t, col), summ in info.items():
         lad = summ.get("ladder")
@@ -310,7 +325,7 @@ def add_ladder_rungs(prep: Prepared, preds, info: dict) -> list[list[tr.Transfor
     return out
 
 
-def grid_size(resp: list[tr.Transform], preds) -> int:
+def grid_size(resp: list[tr.Transform], preds: list[list[tr.Transform]]) -> int:
     """Candidates in the space: estimated powers only with fixed response scales, at most
     MAX_ESTIMATED_POWERS of them per candidate."""
     fixed = [t for t in resp if not (t.name in ("box_cox", "yeo_johnson") and not t.is_fitted)]
@@ -331,7 +346,9 @@ def allowed(spec: Specification) -> bool:
     return n_open <= MAX_ESTIMATED_POWERS
 
 
-def make_spec(prep: Prepared, rt: tr.Transform, ts, intercept: bool) -> Specification:
+def make_spec(
+    prep: Prepared, rt: tr.Transform, ts: Iterable[tr.Transform], intercept: bool
+) -> Specification:
     return Specification(
         prep.response,
         rt,

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import stats
@@ -102,19 +103,21 @@ def _numeric_terms(inp: ConditionInputs) -> list[TermInfo]:
     return [t for t in inp.terms if t.kind == "numeric" and len(t.indices) == 1]
 
 
-def _unavailable(reason: str, rule: str, **extra) -> dict:
+def _unavailable(reason: str, rule: str, **extra: Any) -> dict[str, Any]:
     return {"holds": None, "tests": [], "note": f"Not assessed: {reason}.", "rule": rule, **extra}
 
 
-def _decide(entry: dict, alpha: float) -> bool | None:
+def _decide(entry: dict[str, Any], alpha: float) -> bool | None:
     p = entry.get("p_value")
     return None if p is None else bool(p >= alpha)
 
 
 # ---------------------------------------------------------------------------- linearity
-def _curvatures(fit: ct.Fit, inp: ConditionInputs) -> list[tuple[TermInfo, dict | Exception]]:
+def _curvatures(
+    fit: ct.Fit, inp: ConditionInputs
+) -> list[tuple[TermInfo, dict[str, Any] | Exception]]:
     """The partial-residual curvature reading of each numeric term (shared by checks and hints)."""
-    out: list[tuple[TermInfo, dict | Exception]] = []
+    out: list[tuple[TermInfo, dict[str, Any] | Exception]] = []
     for term in _numeric_terms(inp):
         raw = None if term.raw is None else np.asarray(term.raw, dtype=float)
         try:
@@ -125,11 +128,13 @@ def _curvatures(fit: ct.Fit, inp: ConditionInputs) -> list[tuple[TermInfo, dict 
     return out
 
 
-def _curvature_entries(curves: list[tuple[TermInfo, dict | Exception]]) -> list[dict]:
+def _curvature_entries(
+    curves: list[tuple[TermInfo, dict[str, Any] | Exception]],
+) -> list[dict[str, Any]]:
     out = []
     for term, c in curves:
 
-        def compute(c=c):
+        def compute(c: dict[str, Any] | Exception = c) -> dict[str, Any]:
             if isinstance(c, Exception):
                 raise c
             return {
@@ -152,7 +157,7 @@ def _curvature_entries(curves: list[tuple[TermInfo, dict | Exception]]) -> list[
     return out
 
 
-def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list) -> dict:
+def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list[Any]) -> dict[str, Any]:
     a = inp.alpha
     rule = (
         f"holds = false when Ramsey's RESET (fitted^2 and fitted^3) rejects at alpha = {a}; "
@@ -183,7 +188,7 @@ def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list) -> dict:
 
 
 # ---------------------------------------------------------------------------- normality
-def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict:
+def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     a = inp.alpha
     rule = (
         f"holds = false when the primary test rejects at alpha = {a}: Shapiro-Wilk for "
@@ -222,7 +227,7 @@ def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict:
 
 
 # ----------------------------------------------------------------------- equal variance
-def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict:
+def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     a = inp.alpha
     rule = (
         f"holds = false when the Breusch-Pagan test in Koenker's studentised form rejects at "
@@ -252,7 +257,7 @@ def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict:
 
 
 # ------------------------------------------------------------------------- independence
-def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict:
+def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     a = inp.alpha
     rule = (
         f"with an order: holds = false when the Breusch-Godfrey test rejects at alpha = {a}; "
@@ -298,7 +303,8 @@ def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict:
 def _vif_groups(X: np.ndarray, inp: ConditionInputs) -> list[tuple[str, str, list[int]]]:
     """(label, column, X-columns) per predictor; full dummy sets lose one column."""
     nonconst = set(np.flatnonzero(np.ptp(X, axis=0) > 0).tolist())
-    groups, seen = [], set()
+    groups: list[tuple[str, str, list[int]]] = []
+    seen: set[int] = set()
     for term in inp.terms:
         cols = [j for j in term.indices if j in nonconst]
         seen.update(term.indices)
@@ -311,7 +317,7 @@ def _vif_groups(X: np.ndarray, inp: ConditionInputs) -> list[tuple[str, str, lis
     return groups
 
 
-def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict:
+def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict[str, Any]:
     rule = (
         f"common practice: a VIF above {VIF_WARN:g} warns and above {VIF_FAIL:g} fails "
         "(holds = false); for a predictor with several dummy columns GVIF^(1/df) is compared "
@@ -321,7 +327,7 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
     )
     groups = _vif_groups(X, inp)
     gvifs = ct.generalized_vif(X, [g[2] for g in groups]) if groups else []
-    vif_rows = []
+    vif_rows: list[dict[str, Any]] = []
     for (label, column, cols), gvif in zip(groups, gvifs, strict=True):
         df = len(cols)
         comparable = None if gvif is None else gvif ** (1.0 / df)
@@ -392,11 +398,13 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
             f"{worst['term'] if worst else 'n/a'}{cond_txt}."
         )
     elif "warn" in levels:
+        assert worst is not None  # no "fail" level: every VIF is finite
         note = (
             f"Moderate overlap between predictors: largest VIF {_g(worst['vif'], 3)} for "
             f"{worst['term']}, above the common-practice warning level {VIF_WARN:g}{cond_txt}."
         )
     else:
+        assert worst is not None  # predictors present and every VIF finite
         note = f"Predictors are not strongly related (largest VIF {_g(worst['vif'], 3)}{cond_txt})."
     level = "fail" if not holds else ("warn" if "warn" in levels else "ok")
     return {
@@ -411,9 +419,11 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
 
 
 # ---------------------------------------------------------------------------- influence
-def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict]:
+def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict[str, Any]]:
     """Indices of flagged rows (largest Cook's distance first), reason masks and cut-offs."""
     inf = fit.influence
+    if inf is None:
+        raise ValueError("flag_rows needs a fit with influence measures")
     n, p = fit.n, fit.rank
     cut = {
         "cooks_flag": 4.0 / n,
@@ -439,7 +449,7 @@ def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict]:
     return idx[np.argsort(-key, kind="stable")], masks, cut
 
 
-def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict:
+def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     rule = (
         "common practice: holds = false when any Cook's distance exceeds 1 (or a row has "
         "leverage 1); rows are flagged for Cook's distance > 4/n, leverage > 2p/n, "
@@ -465,7 +475,9 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict:
             }
         )
 
-    def largest(name: str, values: np.ndarray, threshold, source: str) -> tuple[dict, int | None]:
+    def largest(
+        name: str, values: np.ndarray, threshold: float | dict[str, float], source: str
+    ) -> tuple[dict[str, Any], int | None]:
         finite = np.isfinite(values)
         i = int(np.argmax(np.where(finite, values, -np.inf))) if finite.any() else None
         return {
@@ -546,7 +558,7 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict:
 
 
 # --------------------------------------------------------------------------- public API
-def assess_conditions(inp: ConditionInputs) -> dict:
+def assess_conditions(inp: ConditionInputs) -> dict[str, Any]:
     """Assess the conditions of the OLS fit of ``inp.z`` on ``inp.X``.
 
     Returns ``{"linearity", "normality", "equal_variance", "independence",
@@ -558,7 +570,7 @@ def assess_conditions(inp: ConditionInputs) -> dict:
     z, X = validate(inp)
     fit = ct.fit_model(z, X, inp.has_intercept)
     curvatures = _curvatures(fit, inp)
-    out = {"linearity": _linearity(fit, inp, curvatures)}
+    out: dict[str, Any] = {"linearity": _linearity(fit, inp, curvatures)}
     for key, build in (
         ("normality", _normality),
         ("equal_variance", _equal_variance),
@@ -589,7 +601,7 @@ BULGING_RULE = {
 }
 
 
-def _hints(curvatures: list, alpha: float) -> list[dict]:
+def _hints(curvatures: list[Any], alpha: float) -> list[dict[str, Any]]:
     hints = []
     for term, c in curvatures:
         raw = None if term.raw is None else np.asarray(term.raw, dtype=float)
@@ -642,7 +654,7 @@ def _hints(curvatures: list, alpha: float) -> list[dict]:
     return hints
 
 
-def transform_hints(inp: ConditionInputs) -> list[dict]:
+def transform_hints(inp: ConditionInputs) -> list[dict[str, Any]]:
     """Tukey's bulging-rule hint for each numeric predictor (Mosteller & Tukey 1977).
 
     Each item is ``{"column", "label", "slope_sign", "curvature_sign", "bulge", "x_direction",

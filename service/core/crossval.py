@@ -20,10 +20,14 @@ shuffle=True, random_state=seed)``.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from . import transforms as tr
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .fastcv import Score
 
 METRICS = ("rmse", "mae", "mape")
 
@@ -64,12 +68,12 @@ class CVResult:
     value: float
     std_error: float
     fold_values: np.ndarray  # (repeats * folds,) metric per held-out fold
-    summary: dict  # all metrics: {"rmse": v, "mae": v, "mape": v | None}
+    summary: dict[str, Any]  # all metrics: {"rmse": v, "mae": v, "mape": v | None}
     fold_lambdas: list[float] | None = None
     fold_powers: list[list[float]] | None = None  # per fold: estimated predictor powers
     exact_refits: int = 0  # folds refitted by QR because their Gram matrix was ill-conditioned
 
-    def to_dict(self, plan: CVPlan) -> dict:
+    def to_dict(self, plan: CVPlan) -> dict[str, Any]:
         return {
             "metric": self.metric,
             "value": self.value,
@@ -110,7 +114,7 @@ def cross_validate(
     return from_score(scorer.score(response_transform, list(range(X.shape[1])), names))
 
 
-def from_score(s) -> CVResult:
+def from_score(s: Score) -> CVResult:
     """A :class:`fastcv.Score` as the public :class:`CVResult`."""
     return CVResult(
         s.metric,

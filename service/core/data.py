@@ -12,7 +12,9 @@ import csv
 import hashlib
 import io
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any, cast
 
 import numpy as np
 
@@ -38,8 +40,8 @@ class RawColumn:
     """One column as received: Python values with ``None`` for missing."""
 
     name: str
-    values: list
-    cell_pointer: callable  # row index -> JSON pointer (or a description for CSV)
+    values: list[Any]
+    cell_pointer: Callable[[int], str]  # row index -> JSON pointer (or a description for CSV)
     from_csv: bool = False
 
 
@@ -47,11 +49,11 @@ class RawColumn:
 class RawTable:
     n_rows: int
     names: list[str]
-    get: callable  # name -> RawColumn
+    get: Callable[[str], RawColumn]  # name -> RawColumn
     source: str
 
 
-def read_table(data: dict) -> RawTable:
+def read_table(data: dict[str, Any]) -> RawTable:
     """``data`` is the contract's Data object, already a dict with exactly one key."""
     if "columns" in data and data["columns"] is not None:
         return _from_columns(data["columns"])
@@ -62,7 +64,7 @@ def read_table(data: dict) -> RawTable:
     raise InputError.at("/data", "data needs exactly one of 'columns', 'records' or 'csv'")
 
 
-def _from_columns(cols: dict) -> RawTable:
+def _from_columns(cols: dict[str, Any]) -> RawTable:
     if not cols:
         raise InputError.at(
             "/data/columns",
@@ -77,7 +79,7 @@ def _from_columns(cols: dict) -> RawTable:
             FieldProblem(
                 pointer("data", "columns", k),
                 f"column '{k}' has {lengths[k]} values but column "
-                f"'{max(lengths, key=lengths.get)}' has {n}",
+                f"'{max(lengths, key=lengths.__getitem__)}' has {n}",
             )
             for k in bad
         ]
@@ -88,12 +90,12 @@ def _from_columns(cols: dict) -> RawTable:
         )
 
     def get(name: str) -> RawColumn:
-        return RawColumn(name, cols[name], lambda i, _n=name: pointer("data", "columns", _n, i))
+        return RawColumn(name, cols[name], lambda i: pointer("data", "columns", name, i))
 
     return RawTable(n, list(cols), get, "columns")
 
 
-def _from_records(recs: list) -> RawTable:
+def _from_records(recs: list[Any]) -> RawTable:
     names: list[str] = []
     seen: set[str] = set()
     for i, r in enumerate(recs):
@@ -114,7 +116,7 @@ def _from_records(recs: list) -> RawTable:
                     pointer("data", "records", i),
                     f"record {i} has no field '{name}'; send null for a missing value",
                 )
-        return RawColumn(name, vals, lambda i, _n=name: pointer("data", "records", i, _n))
+        return RawColumn(name, vals, lambda i: pointer("data", "records", i, name))
 
     return RawTable(len(recs), names, get, "records")
 
@@ -148,7 +150,7 @@ def _from_csv(text: str) -> RawTable:
     def get(name: str) -> RawColumn:
         j = idx[name]
         vals = [(r[j].strip() or None) for r in body]
-        return RawColumn(name, vals, lambda i, _n=name: "/data/csv", from_csv=True)
+        return RawColumn(name, vals, lambda i: "/data/csv", from_csv=True)
 
     return RawTable(len(body), header, get, "csv")
 
@@ -166,7 +168,7 @@ def _csv_where(col: RawColumn, i: int) -> str:
     return f"data row {i} (line {i + 2}), column '{col.name}'"
 
 
-def _bad_numeric(col: RawColumn, i: int, v, role: str) -> InputError:
+def _bad_numeric(col: RawColumn, i: int, v: object, role: str) -> InputError:
     where = _csv_where(col, i) if col.from_csv else f"row {i}"
     hint = "send null (or an empty CSV cell) for a missing value"
     if role == "predictor":
@@ -177,7 +179,7 @@ def _bad_numeric(col: RawColumn, i: int, v, role: str) -> InputError:
     )
 
 
-def _to_float(v) -> float | None:
+def _to_float(v: object) -> float | None:
     """A JSON or CSV value as a finite float, ``None`` when it is not one."""
     if isinstance(v, bool):
         return None
@@ -199,7 +201,7 @@ def _to_float(v) -> float | None:
     return None
 
 
-def _is_number_like(v, from_csv: bool) -> bool:
+def _is_number_like(v: object, from_csv: bool) -> bool:
     if v is None:
         return True
     if from_csv:
@@ -235,7 +237,7 @@ def as_numeric(col: RawColumn, role: str) -> TypedColumn:
     return TypedColumn(col.name, "numeric", out, missing)
 
 
-def _level_text(v) -> str:
+def _level_text(v: object) -> str:
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, float) and v.is_integer():
@@ -278,7 +280,7 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
             if first_string is None:
                 first_string = i
     if strings and numbers:
-        i = first_string if strings <= numbers else first_number
+        i = cast(int, first_string if strings <= numbers else first_number)  # both were seen
         where = _csv_where(col, i) if col.from_csv else f"row {i}"
         raise InputError.at(
             col.cell_pointer(i),
@@ -306,7 +308,7 @@ class Prepared:
     row_ids: np.ndarray  # caller's input row numbers of the used rows
     order: np.ndarray | None  # permutation putting used rows in the order column's order
     rows_received: int
-    dropped: list[dict] = field(default_factory=list)
+    dropped: list[dict[str, Any]] = field(default_factory=list)
     rows_dropped: int = 0
     table_columns: tuple[str, ...] = ()
     order_values: np.ndarray | None = None  # the order column on the used rows
@@ -326,7 +328,7 @@ class Prepared:
                 h.update(name.encode() + b"\0" + "\x1f".join(self.categorical[name]).encode())
         return h.hexdigest()
 
-    def data_summary(self) -> dict:
+    def data_summary(self) -> dict[str, Any]:
         return {
             "rows_received": self.rows_received,
             "rows_used": self.n,
@@ -337,7 +339,7 @@ class Prepared:
 
 
 def prepare(
-    data: dict,
+    data: dict[str, Any],
     response: str,
     predictors: list[str],
     categorical: list[str] | None = None,
@@ -493,6 +495,8 @@ def split_groups(prep: Prepared) -> dict[str, Prepared | InputError]:
     maps to the :class:`InputError` that says why, so the other groups go on.
     """
     out: dict[str, Prepared | InputError] = {}
+    if prep.groups is None:
+        raise ValueError("split_groups needs a table prepared with group_by")
     for g in sorted(set(prep.groups.tolist())):
         mask = prep.groups == g
         sub = Prepared(

@@ -12,12 +12,17 @@ fails a condition the response says so in a warning.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING, Any
+
 import numpy as np
 
 from .conditions import ConditionInputs, TermInfo, assess_conditions
 from .data import Prepared
 from .fitting import OLSFit
 from .spec import Design
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .search import SearchOptions
 
 CONDITION_NAMES = (
     "linearity",
@@ -48,22 +53,26 @@ def condition_inputs(
 
 def conditions_for(
     design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray, alpha: float
-) -> tuple[dict, list[dict]]:
+) -> tuple[dict[str, Any], list[dict[str, Any]]]:
     """(conditions block of the contract, transform hints)."""
     out = assess_conditions(condition_inputs(design, fit, prep, z, alpha))
     hints = out.pop("hints", [])
     return {k: out[k] for k in CONDITION_NAMES}, hints
 
 
-def failed(conditions: dict | None) -> list[str]:
+def failed(conditions: dict[str, Any] | None) -> list[str]:
     if not conditions:
         return []
     return [c for c in CONDITION_NAMES if conditions.get(c, {}).get("holds") is False]
 
 
 def diagnose_specification(
-    prep: Prepared, spec_dict: dict, opts, service_version: str, max_points: int = 2000
-) -> tuple[dict, dict]:
+    prep: Prepared,
+    spec_dict: dict[str, Any],
+    opts: SearchOptions,
+    service_version: str,
+    max_points: int = 2000,
+) -> tuple[dict[str, Any], dict[str, Any]]:
     """One specification exactly as given: (ranking entry without rank, plot data).
 
     Domain problems are :class:`InputError` pointing into ``/specification``; a

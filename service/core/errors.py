@@ -8,6 +8,7 @@ into the caller's request so a client can show which field is wrong.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 
 def pointer(*parts: object) -> str:
@@ -67,7 +68,7 @@ class CandidateFailure(Exception):
     """One candidate (or one fold of it) cannot be scored; the search goes on."""
 
     reason: str
-    details: dict = field(default_factory=dict)
+    details: dict[str, Any] = field(default_factory=dict)
 
     def __str__(self) -> str:  # pragma: no cover - trivial
         return self.reason

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -35,6 +36,9 @@ from .bank import ColumnBank
 from .boxtidwell import estimate_powers, power_columns
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .crossval import CVPlan
 
 
 @dataclass
@@ -53,13 +57,15 @@ class Score:
     value: float
     std_error: float
     fold_values: np.ndarray
-    summary: dict
+    summary: dict[str, Any]
     fold_lambdas: list[float] | None
     fold_powers: list[list[float]] | None
     exact_refits: int
 
 
-def _exact_refit(X_tr, z_tr, names, k):
+def _exact_refit(
+    X_tr: np.ndarray, z_tr: np.ndarray, names: list[str] | None, k: int | np.intp
+) -> np.ndarray:
     """Pivoted-QR refit of one fold (columns first divided by their largest magnitude, so
     their sums of squares stay finite for values near the float limits)."""
     m = np.max(np.abs(X_tr), axis=0)
@@ -76,13 +82,15 @@ def _exact_refit(X_tr, z_tr, names, k):
     return coef / m
 
 
-def _fold_metric(kind: str, y, mean_pred, median_pred) -> float:
+def _fold_metric(kind: str, y: np.ndarray, mean_pred: np.ndarray, median_pred: np.ndarray) -> float:
     """A fold's error; inf (a failed candidate) when it overflows double precision."""
     with np.errstate(over="ignore", invalid="ignore"):
         return _fold_metric_raw(kind, y, mean_pred, median_pred)
 
 
-def _fold_metric_raw(kind: str, y, mean_pred, median_pred) -> float:
+def _fold_metric_raw(
+    kind: str, y: np.ndarray, mean_pred: np.ndarray, median_pred: np.ndarray
+) -> float:
     if kind == "rmse":
         d = y - mean_pred
         return float(np.sqrt(np.mean(d * d)))
@@ -101,16 +109,16 @@ def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
 class Scorer:
     """Scores candidates that share one bank, one plan and one response column."""
 
-    def __init__(self, bank: ColumnBank, y: np.ndarray, plan, shift_needed: bool):
+    def __init__(self, bank: ColumnBank, y: np.ndarray, plan: CVPlan, shift_needed: bool):
         self.bank = bank
         self.y = np.asarray(y, dtype=float)
         self.plan = plan
         self.shift_needed = shift_needed
-        self._resp: dict = {}
+        self._resp: dict[tr.Transform, tuple[tr.Transform, np.ndarray, bool]] = {}
         self.want_mape = bool(np.all(self.y != 0))
 
     # ------------------------------------------------------------ response side
-    def _fixed_response(self, t: tr.Transform):
+    def _fixed_response(self, t: tr.Transform) -> tuple[tr.Transform, np.ndarray, bool]:
         """(concrete transform, z) for a response scale that does not change per fold."""
         if t not in self._resp:
             t0 = tr.fit_transform(t, self.y, shift_needed=self.shift_needed)
@@ -168,7 +176,7 @@ class Scorer:
             if not finite:
                 raise CandidateFailure(f"fold 1: {t0.label('y')} overflows on the training rows")
         fold_vals = np.empty(plan.n_splits)
-        pooled = {"rmse": [], "mae": [], "mape": []}
+        pooled: dict[str, list[float]] = {"rmse": [], "mae": [], "mape": []}
         lambdas: list[float] = []
         powers: list[list[float]] = []
         refits = 0
@@ -200,6 +208,7 @@ class Scorer:
                     except ValueError as exc:
                         raise CandidateFailure(f"fold {k + 1}: {exc}") from None
                     if estimate_lam:
+                        assert tk.lam is not None  # fit_transform estimated it
                         lambdas.append(float(tk.lam))
                     zk = tk.forward(y)
                     if not np.all(np.isfinite(zk[train[k]])):
@@ -264,7 +273,17 @@ class Scorer:
         )
 
     # ------------------------------------------------------------- solutions
-    def _solve_static(self, S, XS, r, zs, per_fold, t, names, B) -> int:
+    def _solve_static(
+        self,
+        S: np.ndarray,
+        XS: np.ndarray,
+        r: int,
+        zs: list[np.ndarray],
+        per_fold: bool,
+        t: tr.Transform,
+        names: list[str] | None,
+        B: np.ndarray,
+    ) -> int:
         bank = self.bank
         train = bank.index.train[r]
         K = len(train)
@@ -282,7 +301,17 @@ class Scorer:
             refits += 1
         return refits
 
-    def _solve_dynamic(self, XS, dyn: Dynamic, r, zs, names, B, designs, powers) -> int:
+    def _solve_dynamic(
+        self,
+        XS: np.ndarray,
+        dyn: Dynamic,
+        r: int,
+        zs: list[np.ndarray],
+        names: list[str] | None,
+        B: np.ndarray,
+        designs: list[np.ndarray | None],
+        powers: list[list[float]],
+    ) -> int:
         train = self.bank.index.train[r]
         K = len(train)
         p = B.shape[1]

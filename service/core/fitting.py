@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import linalg, stats
@@ -39,9 +40,13 @@ class OLSFit:
     has_intercept: bool
     condition_number: float
 
-    def table(self, level: float = 0.95) -> list[dict]:
+    def table(self, level: float = 0.95) -> list[dict[str, Any]]:
         tq = stats.t.ppf(0.5 + level / 2.0, self.df_resid) if self.df_resid > 0 else math.nan
         rows = []
+        t: float | None
+        p: float | None
+        lo: float | None
+        hi: float | None
         for i, name in enumerate(self.names):
             b, s = float(self.coef[i]), float(self.se[i])
             if self.df_resid > 0 and s > 0:
@@ -100,7 +105,7 @@ def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def qr_solve(
     X: np.ndarray, z: np.ndarray, names: list[str] | None = None, with_condition: bool = True
-):
+) -> tuple[np.ndarray, np.ndarray, float]:
     """Least-squares coefficients and (X'X)^-1 via pivoted QR of the column-scaled X.
 
     Returns ``(coef, cov_unscaled, cond)``.  Raises :class:`CandidateFailure`

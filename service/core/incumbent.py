@@ -13,11 +13,12 @@ data; otherwise ``keep``, since replacing a production model has a cost.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 
 from . import transforms as tr
-from .crossval import CVPlan, cross_validate
+from .crossval import CVPlan, CVResult, cross_validate
 from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
 from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
@@ -33,7 +34,10 @@ CONDITIONS = (
 
 
 def incumbent_spec(
-    d: dict, prep: Prepared, request_predictors: list[str], table_columns: set[str] | None = None
+    d: dict[str, Any],
+    prep: Prepared,
+    request_predictors: list[str],
+    table_columns: set[str] | None = None,
 ) -> tuple[Specification | None, str | None]:
     """Build the incumbent on this run's rows: (spec, None) or (None, why it cannot be fitted)."""
     if d["response"]["column"] != prep.response:
@@ -71,14 +75,14 @@ def incumbent_spec(
     return spec, None
 
 
-def score(spec: Specification, prep: Prepared, plan: CVPlan, shift_needed: bool):
+def score(spec: Specification, prep: Prepared, plan: CVPlan, shift_needed: bool) -> CVResult:
     design = build_design(spec, prep, ptr_prefix="/incumbent")
     return cross_validate(
         design.X, prep.y, spec.response_transform, plan, shift_needed, design.names
     )
 
 
-def _failed_conditions(conditions: dict | None) -> set[str]:
+def _failed_conditions(conditions: dict[str, Any] | None) -> set[str]:
     if not conditions:
         return set()
     return {
@@ -90,17 +94,17 @@ def _failed_conditions(conditions: dict | None) -> set[str]:
 
 def decide(
     inc_spec: Specification | None,
-    inc_cv,
+    inc_cv: CVResult | None,
     reason: str | None,
     rank: int | None,
-    winner_entry: dict,
+    winner_entry: dict[str, Any],
     winner_folds: np.ndarray,
     plan: CVPlan,
-    inc_conditions: dict | None = None,
-    request_spec: dict | None = None,
-) -> dict:
+    inc_conditions: dict[str, Any] | None = None,
+    request_spec: dict[str, Any] | None = None,
+) -> dict[str, Any]:
     """The contract's ``incumbent`` block."""
-    out = {
+    out: dict[str, Any] = {
         "specification": inc_spec.to_dict() if inc_spec is not None else request_spec,
         "rank": rank,
         "cv": None,

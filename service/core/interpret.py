@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -126,7 +127,14 @@ def _comparative(v: float | None, unit: str = "") -> str:
     return "no different"
 
 
-def _ci_text(lo, hi, level: float, suffix: str = "", what: str = "change", unit: str = "") -> str:
+def _ci_text(
+    lo: float | None,
+    hi: float | None,
+    level: float,
+    suffix: str = "",
+    what: str = "change",
+    unit: str = "",
+) -> str:
     """' (95% CI for the change: lo to hi unit)'; ``suffix`` follows each number (e.g. '%')."""
     if lo is None or hi is None:
         return ""
@@ -158,7 +166,7 @@ def _subject(column: str, t: Transform) -> str:
 
 
 # ----------------------------------------------------------------- helpers
-def _reference_point(spec: Specification, design: Design, prep: Prepared) -> dict:
+def _reference_point(spec: Specification, design: Design, prep: Prepared) -> dict[str, Any]:
     """Medians of numeric predictors and reference levels of categorical ones."""
     point = {}
     for p in spec.predictors:
@@ -169,7 +177,7 @@ def _reference_point(spec: Specification, design: Design, prep: Prepared) -> dic
     return point
 
 
-def _row(spec: Specification, design: Design, point: dict) -> np.ndarray:
+def _row(spec: Specification, design: Design, point: dict[str, Any]) -> np.ndarray:
     x = []
     if spec.intercept:
         x.append(1.0)
@@ -185,7 +193,7 @@ def _row(spec: Specification, design: Design, point: dict) -> np.ndarray:
 
 
 def _predict_median(
-    spec: Specification, design: Design, coef: np.ndarray, point: dict
+    spec: Specification, design: Design, coef: np.ndarray, point: dict[str, Any]
 ) -> float | None:
     eta = float(_row(spec, design, point) @ coef)
     y = float(spec.response_transform.inverse(np.array([eta]))[0])
@@ -206,10 +214,10 @@ class _Context:
     design: Design
     prep: Prepared
     coef: np.ndarray
-    table: dict[str, dict]
+    table: dict[str, dict[str, Any]]
     units: dict[str, str]
     level: float
-    point: dict  # medians of numeric predictors, reference levels of categorical ones
+    point: dict[str, Any]  # medians of numeric predictors, reference levels of categorical ones
     median_noted: bool = False
 
     @property
@@ -243,7 +251,14 @@ class _Context:
         tail = " (categorical ones at their reference levels)" if cats else ""
         return f", holding the other predictors fixed at their medians{tail}"
 
-    def ci(self, lo, hi, suffix: str = "", what: str = "change", unit: str = "") -> str:
+    def ci(
+        self,
+        lo: float | None,
+        hi: float | None,
+        suffix: str = "",
+        what: str = "change",
+        unit: str = "",
+    ) -> str:
         return _ci_text(lo, hi, self.level, suffix, what, unit)
 
     def median_note(self) -> str:
@@ -268,12 +283,14 @@ class _Context:
             f"this negative one goes with higher {y} {where}"
         )
 
-    def median_at(self, column: str, value) -> float | None:
+    def median_at(self, column: str, value: float) -> float | None:
         """Naive back-transform with ``column`` at ``value``, the others at the reference point."""
         return _predict_median(self.spec, self.design, self.coef, {**self.point, column: value})
 
 
-def _categorical_readings(ctx: _Context, column: str, indices: tuple[int, ...]) -> list[dict]:
+def _categorical_readings(
+    ctx: _Context, column: str, indices: tuple[int, ...]
+) -> list[dict[str, Any]]:
     info = ctx.design.levels[column]
     ref = info["reference"]
     others = [v for v in info["levels"] if v != ref]
@@ -331,7 +348,7 @@ def _categorical_readings(ctx: _Context, column: str, indices: tuple[int, ...]) 
     return out
 
 
-def _level_level(ctx: _Context, item: dict, col: str, per: str) -> None:
+def _level_level(ctx: _Context, item: dict[str, Any], col: str, per: str) -> None:
     b = item["estimate"]
     item.update(reading="level-level", change_per_unit=b)
     item["sentence"] = (
@@ -340,7 +357,7 @@ def _level_level(ctx: _Context, item: dict, col: str, per: str) -> None:
     )
 
 
-def _log_level(ctx: _Context, item: dict, col: str, per: str) -> None:
+def _log_level(ctx: _Context, item: dict[str, Any], col: str, per: str) -> None:
     b = item["estimate"]
     pct = exact_percent(b)
     plo, phi = exact_percent(item["ci_low"]), exact_percent(item["ci_high"])
@@ -363,7 +380,7 @@ def _log_level(ctx: _Context, item: dict, col: str, per: str) -> None:
     )
 
 
-def _level_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
+def _level_log(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> None:
     b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
     d1, d10 = b * LN_1_01, b * LN_1_1
     item.update(
@@ -383,7 +400,7 @@ def _level_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
     )
 
 
-def _log_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
+def _log_log(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> None:
     b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
     p1, p10 = percent_for_ratio(1.01, b), percent_for_ratio(1.1, b)
     item.update(
@@ -417,7 +434,7 @@ def _log_log(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
     )
 
 
-def _two_point(ctx: _Context, item: dict, col: str, pt: Transform) -> None:
+def _two_point(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> None:
     """No constant-rate reading: back-transformed predictions at chosen predictor values."""
     b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
     x = ctx.prep.numeric[col]
@@ -469,7 +486,7 @@ def interpret_terms(
     prep: Prepared,
     units: dict[str, str] | None = None,
     level: float = 0.95,
-) -> list[dict]:
+) -> list[dict[str, Any]]:
     """One reading per slope and per categorical level, with its numbers and ``sentence``.
 
     ``spec`` is the concrete fitted specification (estimated parameters
@@ -492,7 +509,7 @@ def interpret_terms(
         _reference_point(spec, design, prep),
     )
     rscale = _scale(spec.response_transform)
-    out: list[dict] = []
+    out: list[dict[str, Any]] = []
     for p, term in zip(spec.predictors, design.terms, strict=True):
         col = p.column
         if term.kind == "categorical":

@@ -19,7 +19,9 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import optimize, special
@@ -43,7 +45,7 @@ class LambdaEstimate:
     lr_p_log: float | None  # LR test of lambda = 0
     at_bound: bool
 
-    def to_dict(self) -> dict:
+    def to_dict(self) -> dict[str, Any]:
         return {
             "lambda": self.lam,
             "ci_low": self.ci_low,
@@ -74,8 +76,8 @@ class _Projector:
         scale[scale == 0] = 1.0
         self.X = X
         self.scale = scale
-        self.L = None
-        self.q = None
+        self.L: np.ndarray | None = None
+        self.q: np.ndarray | None = None
         G = (X.T @ X) / np.outer(scale, scale)
         ev = np.linalg.eigvalsh(G)
         if ev[0] > 1e-8 * ev[-1]:
@@ -89,11 +91,11 @@ class _Projector:
             res_ones = n - float(c @ c)
             self.has_const = bool(res_ones < 1e-12 * n)
         else:
-            self._qr()
-            res = ones - self.q @ (self.q.T @ ones)
+            q = self._qr()
+            res = ones - q @ (q.T @ ones)
             self.has_const = bool(np.linalg.norm(res) < 1e-8 * math.sqrt(n))
 
-    def _qr(self):
+    def _qr(self) -> np.ndarray:
         if self.q is None:
             q, r = np.linalg.qr(self.X / self.scale)
             keep = np.abs(np.diag(r)) > 1e-10 * max(1.0, float(np.max(np.abs(np.diag(r)))))
@@ -102,6 +104,7 @@ class _Projector:
 
     def _coef_rhs(self, xz: np.ndarray) -> np.ndarray:
         """L^-1 (X'z scaled): its squared norm is the explained sum of squares."""
+        assert self.L is not None  # only called when the Cholesky factor exists
         return np.linalg.solve(self.L, xz / self.scale)
 
     def rss(self, z: np.ndarray) -> float:
@@ -116,7 +119,7 @@ class _Projector:
         return float(r @ r)
 
 
-def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> callable:
+def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> Callable[[float], float]:
     """Box-Cox profile llf (Jacobian included) in the geometric-mean form, from log y."""
     n = logy.size
     lgm = float(np.mean(logy))
@@ -141,7 +144,7 @@ def _scaled_box_cox(logy: np.ndarray, proj: _Projector) -> callable:
     return llf
 
 
-def _profile(family: str, y: np.ndarray, proj: _Projector) -> callable:
+def _profile(family: str, y: np.ndarray, proj: _Projector) -> Callable[[float], float]:
     n = y.size
     if family == "box_cox":
         return _scaled_box_cox(np.log(y), proj)
@@ -195,7 +198,8 @@ def estimate_lambda(
     y = np.asarray(y, dtype=float)
     proj = _Projector(X, y.size)
     f = _profile(family, y, proj)
-    grid = vals = None
+    grid: np.ndarray | None = None
+    vals: np.ndarray | None = None
     if near is not None and math.isfinite(near):
         # a bracket around the warm start first: three evaluations when it holds the maximum
         trio = np.clip(np.array([near - 0.25, near, near + 0.25]), *LAMBDA_BOUNDS)
@@ -213,6 +217,7 @@ def estimate_lambda(
     if grid is None:
         grid = np.linspace(LAMBDA_BOUNDS[0], LAMBDA_BOUNDS[1], 25)
         vals = np.array([f(g) for g in grid])
+    assert vals is not None  # set together with grid
     if not np.any(np.isfinite(vals)):
         raise ValueError("the profile likelihood is not finite anywhere on [-3, 3]")
     i = int(np.nanargmax(np.where(np.isfinite(vals), vals, -np.inf)))
@@ -264,7 +269,7 @@ def _chi2_1_ppf(level: float) -> float:
     return float(special.ndtri(0.5 + level / 2.0) ** 2)
 
 
-def _endpoint(g, lam: float, limit: float) -> float | None:
+def _endpoint(g: Callable[[float], float], lam: float, limit: float) -> float | None:
     """Where g crosses zero between lam (g > 0) and limit; None if it never does."""
     if g(limit) > 0:
         return None

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+from typing import Any
 
 import numpy as np
 
@@ -29,7 +30,7 @@ def stored_residuals(resid: np.ndarray) -> tuple[str, list[float]]:
     return "quantiles", [float(v) for v in np.interp(pos - 0.5, np.arange(s.size), s)]
 
 
-def _canon(v):
+def _canon(v: Any) -> Any:
     """Numbers as floats, so a client that rewrites 63.0 as 63 (JavaScript) keeps the checksum."""
     if isinstance(v, dict):
         return {k: _canon(x) for k, x in v.items()}
@@ -42,14 +43,14 @@ def _canon(v):
     return v
 
 
-def checksum(body: dict) -> str:
+def checksum(body: dict[str, Any]) -> str:
     """SHA-256 over the canonical JSON of the artifact without its checksum field."""
     clean = _canon({k: v for k, v in body.items() if k != "checksum"})
     text = json.dumps(clean, sort_keys=True, separators=(",", ":"), allow_nan=False)
     return hashlib.sha256(text.encode()).hexdigest()
 
 
-def library_versions() -> dict:
+def library_versions() -> dict[str, Any]:
     """Versions of the numerical libraries that produced the artifact."""
     import scipy
     import statsmodels
@@ -67,13 +68,13 @@ def build_model(
     fit: OLSFit,
     prep: Prepared,
     service_version: str,
-    options: dict | None = None,
-) -> dict:
+    options: dict[str, Any] | None = None,
+) -> dict[str, Any]:
     kind, res = stored_residuals(fit.resid)
     hat = np.einsum("ij,jk,ik->i", design.X, fit.cov_unscaled, design.X)
     ranges = {}
     for t in design.terms:
-        if t.kind == "numeric":
+        if t.kind == "numeric" and t.raw is not None:
             ranges[t.column] = {"min": float(np.min(t.raw)), "max": float(np.max(t.raw))}
     body = {
         "format_version": FORMAT_VERSION,

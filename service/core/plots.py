@@ -23,8 +23,10 @@ use all rows up to :data:`SMOOTHER_MAX_ROWS` and a seeded sample beyond that.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import stats
 from statsmodels.nonparametric.smoothers_lowess import lowess
 
@@ -43,11 +45,11 @@ ENVELOPE_SIMULATIONS = 199
 ENVELOPE_SIMULATION_MAX_N = 10_000
 
 
-def _floats(values) -> list[float]:
+def _floats(values: ArrayLike) -> list[float]:
     return [float(v) for v in np.asarray(values, dtype=float)]
 
 
-def _ints(values) -> list[int]:
+def _ints(values: ArrayLike) -> list[int]:
     return [int(v) for v in np.asarray(values)]
 
 
@@ -58,7 +60,7 @@ def _even(k_total: int, k: int) -> np.ndarray:
     return np.unique(np.linspace(0, k_total - 1, k).round().astype(int))
 
 
-def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict | None:
+def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict[str, Any] | None:
     """LOWESS curve of y on x (frac 2/3, 3 robustness steps), thinned to CURVE_POINTS."""
     ok = np.isfinite(x) & np.isfinite(y)
     x, y = x[ok], y[ok]
@@ -84,15 +86,19 @@ def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict | 
     }
 
 
-def _scatter(x, y, ids, keep, **extra) -> dict:
+def _scatter(
+    x: np.ndarray, y: np.ndarray, ids: np.ndarray, keep: np.ndarray, **extra: np.ndarray
+) -> dict[str, Any]:
     ok = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
-    out = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
+    out: dict[str, Any] = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
     for name, values in extra.items():
-        out[name] = _floats(values[ok])
+        out[name] = [ct.num(v) for v in values[ok]]  # None where undefined (leverage 1)
     return out
 
 
-def _labels(x, y, ids, flagged) -> list[dict]:
+def _labels(
+    x: np.ndarray, y: np.ndarray, ids: np.ndarray, flagged: np.ndarray
+) -> list[dict[str, Any]]:
     out = []
     for i in flagged[:MAX_LABELS]:
         if np.isfinite(x[i]) and np.isfinite(y[i]):
@@ -112,7 +118,13 @@ def _thin(n: int, max_points: int, must: np.ndarray, rng: np.random.Generator) -
     return np.sort(np.concatenate([must, sample]).astype(np.intp))
 
 
-def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict:
+def _residuals_fitted(
+    fit: ct.Fit,
+    ids: np.ndarray,
+    keep: np.ndarray,
+    flagged: np.ndarray,
+    rng: np.random.Generator,
+) -> dict[str, Any]:
     f, e = fit.fitted, fit.resid
     lo, hi = float(f.min()), float(f.max())
     return {
@@ -129,11 +141,12 @@ def _residuals_fitted(fit, ids, keep, flagged, rng) -> dict:
     }
 
 
-def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict:
+def _envelope(fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict[str, Any]:
     """Pointwise 2.5%/97.5% envelope of the ordered standardised residuals at ``ranks``."""
     if fit.n <= ENVELOPE_SIMULATION_MAX_N:
         # Atkinson (1981): simulate N(0, 1) responses on the same design and standardise
         # their residuals exactly as the observed ones.
+        assert fit.influence is not None  # the caller has standardised residuals
         h = fit.influence.leverage
         ok = h < 1 - ct.LEVERAGE_ONE_TOL
         Y = rng.standard_normal((fit.n, ENVELOPE_SIMULATIONS))
@@ -154,7 +167,13 @@ def _envelope(fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict:
     return {"lower": lower, "upper": upper, "method": method, "simulations": sims}
 
 
-def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
+def _normal_quantiles(
+    fit: ct.Fit,
+    ids: np.ndarray,
+    max_points: int,
+    flagged: np.ndarray,
+    rng: np.random.Generator,
+) -> dict[str, Any]:
     panel = {
         "title": "Are the residuals close to normal?",
         "question": "normal",
@@ -177,6 +196,7 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
             note=fit.residual_reason or "too few standardised residuals",
         )
         return panel
+    assert r is not None  # rows is empty without standardised residuals
     m = rows.size
     order = rows[np.argsort(r[rows], kind="stable")]
     theo_all = stats.norm.ppf((np.arange(1, m + 1) - 0.375) / (m + 0.25))  # Blom (1958)
@@ -234,7 +254,13 @@ def _normal_quantiles(fit, ids, max_points, flagged, rng) -> dict:
 EXPECTED_ABS_NORMAL = math.sqrt(2.0 / math.pi)
 
 
-def _spread_fitted(fit, ids, keep, flagged, rng) -> dict:
+def _spread_fitted(
+    fit: ct.Fit,
+    ids: np.ndarray,
+    keep: np.ndarray,
+    flagged: np.ndarray,
+    rng: np.random.Generator,
+) -> dict[str, Any]:
     panel = {
         "title": "Is the spread even?",
         "question": "spread",
@@ -283,7 +309,9 @@ def _flag_reason(masks: dict[str, np.ndarray], n: int) -> np.ndarray:
     return np.where(by_cooks, "cooks", np.where(other, "other", ""))
 
 
-def _influence_panel(fit, ids, keep, flagged) -> dict:
+def _influence_panel(
+    fit: ct.Fit, ids: np.ndarray, keep: np.ndarray, flagged: np.ndarray
+) -> dict[str, Any]:
     panel = {
         "title": "Which rows pull the fit?",
         "question": "influence",
@@ -326,7 +354,13 @@ def _influence_panel(fit, ids, keep, flagged) -> dict:
     return panel
 
 
-def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict]:
+def _partial_residuals(
+    fit: ct.Fit,
+    inp: ConditionInputs,
+    ids: np.ndarray,
+    keep: np.ndarray,
+    rng: np.random.Generator,
+) -> list[dict[str, Any]]:
     out = []
     params = np.asarray(fit.res.params, dtype=float)
     for term in inp.terms:
@@ -363,7 +397,7 @@ def _partial_residuals(fit, inp, ids, keep, rng) -> list[dict]:
     return out
 
 
-def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0) -> dict:
+def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0) -> dict[str, Any]:
     """Plot-ready data for the five diagnostic panels.
 
     Returns ``{"residuals_fitted", "normal_quantiles", "spread_fitted", "influence",

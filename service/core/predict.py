@@ -26,12 +26,14 @@ from __future__ import annotations
 import hmac
 import math
 from dataclasses import dataclass
+from typing import Any, TypeGuard, cast
 
 import numpy as np
 from scipy import stats
 
 from . import retransform
 from . import transforms as tr
+from ._types import FloatArray
 from .data import RawColumn, as_categorical, as_numeric, read_table
 from .errors import FieldProblem, InputError, pointer
 from .model import FORMAT_VERSION, checksum
@@ -53,7 +55,7 @@ class LoadedModel:
     xtx_inverse: np.ndarray
     residual_variance: float
     df_residual: int
-    levels: dict[str, dict]
+    levels: dict[str, dict[str, Any]]
     residuals: np.ndarray
     residual_kind: str
     training_range: dict[str, tuple[float, float]]
@@ -69,13 +71,13 @@ class LoadedModel:
 
 
 # ------------------------------------------------------------------ loading
-def _is_number(v) -> bool:
+def _is_number(v: object) -> TypeGuard[int | float]:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
-def _first_non_finite(d) -> str | None:
+def _first_non_finite(d: object) -> str | None:
     """Pointer (inside the artifact) of the first NaN/Infinity, walking iteratively."""
-    stack: list[tuple[object, tuple]] = [(d, ())]
+    stack: list[tuple[object, tuple[str | int, ...]]] = [(d, ())]
     while stack:
         node, path = stack.pop()
         if isinstance(node, dict):
@@ -87,7 +89,7 @@ def _first_non_finite(d) -> str | None:
     return None
 
 
-def _need(d: dict, key: str, ptr: str):
+def _need(d: dict[str, Any], key: str, ptr: str) -> Any:
     if key not in d:
         raise InputError.at(
             ptr, f"the model has no '{key}'; send the model object exactly as the service issued it"
@@ -95,13 +97,13 @@ def _need(d: dict, key: str, ptr: str):
     return d[key]
 
 
-def _number(v, ptr: str, what: str) -> float:
+def _number(v: object, ptr: str, what: str) -> float:
     if not _is_number(v):
         raise InputError.at(ptr, f"{what} must be a number, not {type(v).__name__}")
     return float(v)
 
 
-def _transform(d, ptr: str, role: str) -> tr.Transform:
+def _transform(d: object, ptr: str, role: str) -> tr.Transform:
     if not isinstance(d, dict) or not isinstance(d.get("name"), str):
         raise InputError.at(ptr, f"the {role} transform must be an object with a 'name'")
     name = d["name"]
@@ -127,7 +129,7 @@ def _transform(d, ptr: str, role: str) -> tr.Transform:
     return t
 
 
-def _specification(d) -> Specification:
+def _specification(d: object) -> Specification:
     ptr = "/model/specification"
     if not isinstance(d, dict):
         raise InputError.at(ptr, "the model's specification must be an object")
@@ -163,7 +165,7 @@ def _specification(d) -> Specification:
     return Specification(resp["column"], rt, tuple(out), intercept)
 
 
-def _levels(d, spec: Specification) -> dict[str, dict]:
+def _levels(d: object, spec: Specification) -> dict[str, dict[str, Any]]:
     if not isinstance(d, dict):
         raise InputError.at("/model/levels", "the model's levels must be an object")
     cols = {p.column for p in spec.predictors}
@@ -196,7 +198,7 @@ def _levels(d, spec: Specification) -> dict[str, dict]:
     return out
 
 
-def expected_terms(spec: Specification, levels: dict[str, dict]) -> list[str]:
+def expected_terms(spec: Specification, levels: dict[str, dict[str, Any]]) -> list[str]:
     """Design column names in the order :func:`service.core.spec.build_design` makes them."""
     names = ["intercept"] if spec.intercept else []
     for p in spec.predictors:
@@ -208,7 +210,7 @@ def expected_terms(spec: Specification, levels: dict[str, dict]) -> list[str]:
     return names
 
 
-def load_model(d: dict) -> LoadedModel:
+def load_model(d: dict[str, Any]) -> LoadedModel:
     """Validate an artifact and return it in array form.
 
     Checks, in order: ``format_version`` is one this service reads; every
@@ -340,7 +342,7 @@ def _missing_column(source: str, col: str) -> str:
     return "/data/csv"
 
 
-def _bad_domain(t: tr.Transform, x: np.ndarray, column: str) -> np.ndarray:
+def _bad_domain(t: tr.Transform, x: FloatArray, column: str) -> np.ndarray:
     """Mask of values where the model's transform of a predictor is not defined.
 
     Every family's domain is an upper half-line (x >= a or x > a), so the bad
@@ -359,7 +361,7 @@ def _bad_domain(t: tr.Transform, x: np.ndarray, column: str) -> np.ndarray:
             lo = mid
         else:
             hi = mid - 1
-    return bad | (x <= u[lo])
+    return bad | (x <= float(u[lo]))
 
 
 def _domain_text(t: tr.Transform) -> str:
@@ -374,7 +376,9 @@ def _domain_text(t: tr.Transform) -> str:
     return "values where it is finite"
 
 
-def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np.ndarray], int]:
+def new_design(
+    model: LoadedModel, data: dict[str, Any]
+) -> tuple[np.ndarray, dict[str, np.ndarray], int]:
     """Design matrix (m, p) for the rows of ``data`` in input order.
 
     Returns ``(X, numeric raw values by column, m)``.  Raises one
@@ -437,12 +441,12 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
                     f"predictor '{p.column}' is missing (null) in row "
                     f"{int(i)}; a prediction needs every predictor value",
                 )
-            for i, v in enumerate(typed.values):
+            for row, v in enumerate(typed.values):
                 if v is not None and v not in allowed:
                     n_bad += 1
                     add(
-                        raw.cell_pointer(i),
-                        f"level '{v}' of '{p.column}' in row {i} did not "
+                        raw.cell_pointer(row),
+                        f"level '{v}' of '{p.column}' in row {row} did not "
                         f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
                         "the model cannot predict for it",
                     )
@@ -496,7 +500,9 @@ def new_design(model: LoadedModel, data: dict) -> tuple[np.ndarray, dict[str, np
 
 
 # ------------------------------------------------------------------ numbers
-def model_scale_interval(model: LoadedModel, X: np.ndarray, interval: float = 0.95) -> dict:
+def model_scale_interval(
+    model: LoadedModel, X: np.ndarray, interval: float = 0.95
+) -> dict[str, Any]:
     """Linear predictor and prediction interval on the model (z) scale.
 
     ``X``: (m, p).  Returns arrays ``fit`` = X b, ``leverage`` h0 =
@@ -523,18 +529,18 @@ def _num(v: float) -> str:
     return f"{v:.4g}"
 
 
-def _finite_list(a: np.ndarray) -> list:
+def _finite_list(a: np.ndarray) -> list[Any]:
     """Floats as a list, ``None`` where not finite."""
     a = np.asarray(a, dtype=float)
     bad = ~np.isfinite(a)
     if not bad.any():
-        return a.tolist()
+        return cast("list[Any]", a.tolist())
     out = a.astype(object)
     out[bad] = None
-    return out.tolist()
+    return cast("list[Any]", out.tolist())
 
 
-def predict(model: LoadedModel, data: dict, interval: float = 0.95) -> dict:
+def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) -> dict[str, Any]:
     """Predictions for every row of ``data`` (contract Data object), in input order.
 
     Returns ``{"predictions": [{mean, median, lower, upper, extrapolation,

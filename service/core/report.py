@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -14,12 +15,15 @@ from .diagnose import conditions_for
 from .errors import CandidateFailure
 from .fitting import OLSFit, ols
 from .interpret import interpret_fit
-from .likelihood import estimate_lambda
+from .likelihood import LambdaEstimate, estimate_lambda
 from .model import build_model
 from .spec import Design, Specification, build_design
 
+if TYPE_CHECKING:  # pragma: no cover
+    from .search import SearchOptions
 
-def finite_or_none(v) -> float | None:
+
+def finite_or_none(v: Any) -> float | None:
     if v is None:
         return None
     v = float(v)
@@ -47,7 +51,9 @@ def equation(spec: Specification, design: Design, coef: np.ndarray) -> str:
     return f"{spec.response_label()} = {rhs}"
 
 
-def fitted_model(spec: Specification, prep: Prepared):
+def fitted_model(
+    spec: Specification, prep: Prepared
+) -> tuple[Specification, Design, OLSFit, LambdaEstimate | None]:
     """Fit ``spec`` on all used rows: (concrete spec, design, fit, lambda estimate or None)."""
     design = build_design(spec, prep)
     t = spec.response_transform
@@ -73,7 +79,7 @@ def fitted_model(spec: Specification, prep: Prepared):
     return concrete, design, fit, lam_est
 
 
-def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict:
+def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict[str, Any]:
     t = concrete.response_transform
     llf_y = fit.llf + t.log_jacobian(prep.y)
     # sigma, plus every parameter estimated from the response: a lambda, Box-Tidwell powers
@@ -113,10 +119,10 @@ def entry_for(
     cv: CVResult,
     plan: CVPlan,
     prep: Prepared,
-    parts: dict,
-    opts,
+    parts: dict[str, Any],
+    opts: SearchOptions,
     service_version: str,
-) -> dict:
+) -> dict[str, Any]:
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
     estimates = {}
@@ -146,7 +152,7 @@ def entry_for(
             f"The design is ill-conditioned (condition number of the column-scaled "
             f"design {fit.condition_number:.3g}); coefficients are unstable."
         )
-    entry = {
+    entry: dict[str, Any] = {
         "specification": concrete.to_dict(),
         "equation": equation(concrete, design, fit.coef),
         "cv": cv.to_dict(plan),

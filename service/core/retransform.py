@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _smear_tree as _tree
+from ._types import FloatArray
 from .transforms import Transform
 
 SMEAR_RTOL = 1e-9
@@ -59,7 +60,7 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
     name = t.name
     if name == "identity":
         return eta + float(np.mean(e))
-    if name == "log" or (name == "box_cox" and abs(t.lam) < 1e-12):
+    if name == "log" or (name == "box_cox" and t.lam is not None and abs(t.lam) < 1e-12):
         shift = (t.shift or 0.0) if name == "log" else 0.0
         with np.errstate(over="ignore"):
             m = float(np.mean(np.exp(e - e.max()))) * np.exp(e.max())
@@ -83,7 +84,9 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
 TREE_MIN_WORK = 4_000_000  # below this m * n the exact double sum is cheaper than the tree
 
 
-def _smear_power(eta: np.ndarray, e: np.ndarray, form) -> np.ndarray:
+def _smear_power(
+    eta: np.ndarray, e: np.ndarray, form: tuple[float, float, float, float, bool]
+) -> np.ndarray:
     """Power-form inverses (square, reciprocal, power, Box-Cox): the root series where every
     term is defined and far enough from the singular point, the tree code (or, for small
     problems, the exact sum) elsewhere; relative error <= _tree.TREE_RTOL (plus rounding)."""
@@ -192,12 +195,12 @@ def _smear_gauss(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray | N
     return None
 
 
-def _smear_sqrt(eta: np.ndarray, e: np.ndarray) -> np.ndarray:
+def _smear_sqrt(eta: FloatArray, e: FloatArray) -> FloatArray:
     """mean_i max(eta + e_i, 0)^2 exactly, by sorted residuals and suffix sums."""
     es = np.sort(e)
     n = es.size
-    s1 = np.concatenate([np.cumsum(es[::-1])[::-1], [0.0]])
-    s2 = np.concatenate([np.cumsum((es * es)[::-1])[::-1], [0.0]])
+    s1: FloatArray = np.concatenate([np.cumsum(es[::-1])[::-1], [0.0]])
+    s2: FloatArray = np.concatenate([np.cumsum((es * es)[::-1])[::-1], [0.0]])
     k = np.searchsorted(es, -eta, side="right")  # terms with e_i > -eta contribute
     cnt = n - k
     return (cnt * eta * eta + 2.0 * eta * s1[k] + s2[k]) / n
@@ -223,7 +226,15 @@ def _exact_pair(t: Transform, eta: np.ndarray, e: np.ndarray) -> tuple[np.ndarra
     return S, D
 
 
-def _hermite(x0, x1, s0, s1, d0, d1, x):
+def _hermite(
+    x0: FloatArray,
+    x1: FloatArray,
+    s0: FloatArray,
+    s1: FloatArray,
+    d0: FloatArray,
+    d1: FloatArray,
+    x: FloatArray,
+) -> FloatArray:
     h = x1 - x0
     u = (x - x0) / h
     h00 = (1 + 2 * u) * (1 - u) ** 2

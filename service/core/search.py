@@ -13,7 +13,9 @@ from __future__ import annotations
 import itertools
 import math
 import time
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -25,24 +27,34 @@ from .bank import FoldIndex
 from .crossval import CVPlan, CVResult, from_score, make_plan
 from .data import Prepared
 from .diagnose import CONDITION_NAMES, failed
-from .errors import BudgetError, CandidateFailure, InputError, ModelFailure, pointer
+from .errors import (
+    BestscaleError,
+    BudgetError,
+    CandidateFailure,
+    InputError,
+    ModelFailure,
+    pointer,
+)
 from .fastcv import Dynamic, Scorer
 from .likelihood import estimate_lambda
 from .report import entry_for
-from .spec import PredictorSpec, Specification, build_design
+from .spec import PredictorSpec, Specification, SpecKey, build_design
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
 DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
 DEFAULT_PREDICTOR = cand.DEFAULT_PREDICTOR
 
 MAX_FAILURES_LISTED = 10
+
+# entry_hook(entry, {"spec", "prep", "opts"}) completes a ranking entry in place
+EntryHook = Callable[[dict[str, Any], dict[str, Any]], object]
 STRATEGIES = ("auto", "exhaustive", "screened")
 
 
 @dataclass
 class SearchOptions:
-    response_transforms: list | None = None  # names or contract Transform dicts
-    predictor_transforms: list | dict | None = None
+    response_transforms: list[Any] | None = None  # names or contract Transform dicts
+    predictor_transforms: list[Any] | dict[str, Any] | None = None
     folds: int = 5
     repeats: int = 1
     seed: int = 0
@@ -52,8 +64,8 @@ class SearchOptions:
     max_candidates: int = 5000
     time_limit_s: float = 60.0
     intercept: bool = True
-    units: dict = field(default_factory=dict)
-    incumbent: dict | None = None  # contract Specification in use
+    units: dict[str, Any] = field(default_factory=dict)
+    incumbent: dict[str, Any] | None = None  # contract Specification in use
     strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
 
 
@@ -63,7 +75,7 @@ class Scored:
     cv: CVResult
     open_spec: Specification | None = None  # as searched (estimated powers not yet fitted)
 
-    def __post_init__(self):
+    def __post_init__(self) -> None:
         if self.open_spec is None:
             self.open_spec = self.spec
 
@@ -86,9 +98,11 @@ class _Evaluator:
     def __init__(self, prep: Prepared, space: cand.Space, scorer: Scorer, intercept: bool):
         self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
         self.scored: list[Scored] = []
-        self.failures: list[dict] = []
+        self.failures: list[dict[str, Any]] = []
         self.n_fail = 0
-        self.powers: dict = {}  # concrete spec key -> {column: estimate summary}
+        self.powers: dict[
+            SpecKey, dict[str, Any]
+        ] = {}  # concrete spec key -> {column: estimate summary}
 
     def __call__(self, spec: Specification) -> Scored | None:
         try:
@@ -142,8 +156,11 @@ class _Evaluator:
 
 
 def run_selection(
-    prep: Prepared, opts: SearchOptions, service_version: str, entry_hook=None
-) -> dict:
+    prep: Prepared,
+    opts: SearchOptions,
+    service_version: str,
+    entry_hook: EntryHook | None = None,
+) -> dict[str, Any]:
     """Search, score and rank; returns the contract's selection body (without service_version).
 
     ``entry_hook(entry, context)`` lets later stages (conditions, interpretation)
@@ -181,7 +198,7 @@ def run_selection(
         else ("exhaustive" if total <= EXHAUSTIVE_LIMIT else "screened")
     )
     screen_scales = _screen_scales(prep, resp, screen_lams)
-    extra = {}
+    extra: dict[tuple[Any, ...], np.ndarray] = {}
     if strategy == "screened":
         for (t, col), a in bt_powers.items():
             extra[("bt", screen_scales.get(t, t), col)] = bt.concrete_transform(a).forward(
@@ -217,9 +234,9 @@ def run_selection(
         )
 
     ranked, _ = rank(scored, plan.folds)
-    cache: dict = {}
+    cache: dict[SpecKey, dict[str, Any]] = {}
 
-    def full(s: Scored, parts: dict) -> dict:
+    def full(s: Scored, parts: dict[str, Any]) -> dict[str, Any]:
         key = s.spec.key
         if key not in cache:
             cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
@@ -229,7 +246,7 @@ def run_selection(
 
     ranked = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
-    entries = []
+    entries: list[dict[str, Any]] = []
     for s, parts in ranked:
         if len(entries) >= opts.top:
             break
@@ -295,14 +312,24 @@ def run_selection(
             f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
             "scored within the limits); the ranking is the best found so far."
         )
-    body = {"data": prep.data_summary(), "search": search, "ranking": entries}
+    body: dict[str, Any] = {"data": prep.data_summary(), "search": search, "ranking": entries}
     if incumbent_block is not None:
         body["incumbent"] = incumbent_block
     body.update(warnings=warnings, _scored=scored, _plan=plan)
     return body
 
 
-def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_hook) -> dict:
+def _incumbent(
+    opts: SearchOptions,
+    prep: Prepared,
+    plan: CVPlan,
+    shift_needed: bool,
+    scored: list[Scored],
+    ranked: list[tuple[Scored, dict[str, Any]]],
+    entries: list[dict[str, Any]],
+    entry_hook: EntryHook | None,
+) -> dict[str, Any]:
+    assert opts.incumbent is not None  # called only for a request with an incumbent
     spec, why = incumbent.incumbent_spec(
         opts.incumbent, prep, prep.predictors, set(prep.table_columns)
     )
@@ -314,7 +341,7 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
         except CandidateFailure as exc:
             why = exc.reason
     position = None
-    if inc_cv is not None:
+    if spec is not None and inc_cv is not None:
         for i, (s, _) in enumerate(ranked):
             if s.spec.key == spec.key:
                 position = i + 1
@@ -340,7 +367,9 @@ def _incumbent(opts, prep, plan, shift_needed, scored, ranked, entries, entry_ho
     )
 
 
-def rank(scored: list[Scored], folds: int | None = None) -> tuple[list[tuple[Scored, dict]], float]:
+def rank(
+    scored: list[Scored], folds: int | None = None
+) -> tuple[list[tuple[Scored, dict[str, Any]]], float]:
     """Order by the one-standard-error rule with paired fold differences.
 
     A candidate is inside the band when its CV error exceeds the lowest by no
@@ -393,11 +422,16 @@ def rank(scored: list[Scored], folds: int | None = None) -> tuple[list[tuple[Sco
     return out, best.cv.value
 
 
-def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str]):
+def _order_by_conditions(
+    ranked: list[tuple[Scored, dict[str, Any]]],
+    full: Callable[[Scored, dict[str, Any]], dict[str, Any]],
+    opts: SearchOptions,
+    warnings: list[str],
+) -> list[tuple[Scored, dict[str, Any]]]:
     """Re-order the leading band members by failed conditions (see diagnose.py)."""
     band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]]
     m = min(len(band), max(3 * opts.top, 15))
-    lead = []
+    lead: list[tuple[int, int, Scored, dict[str, Any]]] = []
     for i in band[:m]:
         s, parts = ranked[i]
         try:
@@ -437,9 +471,17 @@ def _order_by_conditions(ranked, full, opts: SearchOptions, warnings: list[str])
     return out
 
 
-def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int) -> bool:
+def _exhaustive(
+    prep: Prepared,
+    resp: list[tr.Transform],
+    preds: list[list[tr.Transform]],
+    opts: SearchOptions,
+    ev: _Evaluator,
+    budget: Budget,
+    total: int,
+) -> bool:
     """Score every candidate, simplest first, until a limit; True when nothing was left out."""
-    cands = []
+    cands: list[Specification] = []
     for combo in itertools.product(resp, *preds):
         spec = cand.make_spec(prep, combo[0], combo[1:], opts.intercept)
         if not cand.allowed(spec):
@@ -458,7 +500,9 @@ def _exhaustive(prep, resp, preds, opts, ev, budget: Budget, total: int) -> bool
     return len(cands) == total
 
 
-def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings: list):
+def _response_lambdas(
+    prep: Prepared, opts: SearchOptions, resp: list[tr.Transform], warnings: list[str]
+) -> tuple[dict[str, Any] | None, dict[tr.Transform, float]]:
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
         prep.response,
@@ -472,8 +516,8 @@ def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings:
         ),
         opts.intercept,
     )
-    info = None
-    lams: dict = {}
+    info: dict[str, Any] | None = None
+    lams: dict[tr.Transform, float] = {}
     families = [t for t in resp if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted]
     if not families:
         return None, lams
@@ -503,9 +547,11 @@ def _response_lambdas(prep: Prepared, opts: SearchOptions, resp: list, warnings:
     return info, lams
 
 
-def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
+def _screen_scales(
+    prep: Prepared, resp: list[tr.Transform], lams: dict[tr.Transform, float]
+) -> dict[tr.Transform, tr.Transform]:
     """The fixed model scale each response transform is screened on."""
-    out = {}
+    out: dict[tr.Transform, tr.Transform] = {}
     for t in resp:
         if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
             if t in lams:
@@ -515,7 +561,7 @@ def _screen_scales(prep: Prepared, resp: list, lams: dict) -> dict:
     return out
 
 
-def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
+def _strategy_block(strategy: str, total: int, budget: Budget) -> dict[str, Any]:
     if strategy == "exhaustive":
         text = "every candidate scored, simplest first, until a limit"
     else:
@@ -534,14 +580,14 @@ def _strategy_block(strategy: str, total: int, budget: Budget) -> dict:
     }
 
 
-def _powers_block(info: dict) -> dict:
-    out: dict = {}
+def _powers_block(info: dict[tuple[tr.Transform, str], dict[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
     for (t, col), summ in info.items():
         out.setdefault(col, []).append({"response_transform": t.to_dict(), **summ})
     return out
 
 
-def _fmt_ci(lo, hi) -> str:
+def _fmt_ci(lo: float | None, hi: float | None) -> str:
     a = "below -5" if lo is None else f"{lo:.3g}"
     b = "above 5" if hi is None else f"{hi:.3g}"
     return f"[{a}, {b}]"
@@ -594,10 +640,10 @@ def run_grouped(
     prep: Prepared,
     opts: SearchOptions,
     service_version: str,
-    entry_hook=None,
-    finish=None,
-    mapper=map,
-) -> dict:
+    entry_hook: EntryHook | None = None,
+    finish: Callable[[dict[str, Any]], dict[str, Any]] | None = None,
+    mapper: Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]] = map,
+) -> dict[str, Any]:
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
@@ -647,7 +693,7 @@ def run_grouped(
     }
 
 
-def _problem_of(exc) -> dict:
+def _problem_of(exc: BestscaleError) -> dict[str, Any]:
     status = 503 if isinstance(exc, BudgetError) else 422
     return {
         "type": f"urn:bestscale:problem:{exc.kind}",

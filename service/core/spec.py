@@ -3,12 +3,16 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any, TypeAlias
 
 import numpy as np
 
 from . import transforms as tr
 from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
+
+# response transform, predictor transforms, intercept: identifies a specification
+SpecKey: TypeAlias = tuple[tr.Transform, tuple[tr.Transform, ...], bool]
 
 
 @dataclass(frozen=True)
@@ -24,7 +28,7 @@ class Specification:
     predictors: tuple[PredictorSpec, ...]
     intercept: bool = True
 
-    def to_dict(self) -> dict:
+    def to_dict(self) -> dict[str, Any]:
         return {
             "response": {"column": self.response, "transform": self.response_transform.to_dict()},
             "predictors": [
@@ -34,7 +38,7 @@ class Specification:
         }
 
     @classmethod
-    def from_dict(cls, d: dict) -> Specification:
+    def from_dict(cls, d: dict[str, Any]) -> Specification:
         return cls(
             d["response"]["column"],
             tr.from_dict(d["response"].get("transform") or {"name": "identity"}),
@@ -46,7 +50,7 @@ class Specification:
         )
 
     @property
-    def key(self) -> tuple:
+    def key(self) -> SpecKey:
         return (
             self.response_transform,
             tuple(p.transform for p in self.predictors),
@@ -97,7 +101,7 @@ class Design:
     X: np.ndarray
     names: list[str]
     terms: list[TermInfo]
-    levels: dict[str, dict] = field(default_factory=dict)  # column -> {levels, reference}
+    levels: dict[str, dict[str, Any]] = field(default_factory=dict)  # column -> {levels, reference}
 
 
 def categorical_levels(
@@ -118,7 +122,7 @@ def categorical_levels(
 def build_design(
     spec: Specification,
     prep: Prepared,
-    cache: dict | None = None,
+    cache: dict[tuple[str, tr.Transform], np.ndarray] | None = None,
     ptr_prefix: str = "/specification",
 ) -> Design:
     """Design matrix (n, p) for ``spec`` on the prepared rows.
@@ -131,7 +135,7 @@ def build_design(
     cols: list[np.ndarray] = []
     names: list[str] = []
     terms: list[TermInfo] = []
-    levels: dict[str, dict] = {}
+    levels: dict[str, dict[str, Any]] = {}
     n = prep.n
     if spec.intercept:
         cols.append(np.ones(n))

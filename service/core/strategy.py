@@ -35,6 +35,8 @@ were screened and scored.
 from __future__ import annotations
 
 import time
+from collections.abc import Callable, Sequence
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -42,6 +44,11 @@ from . import boxtidwell as bt
 from . import transforms as tr
 from .candidates import MAX_ESTIMATED_POWERS, Space, allowed, make_spec
 from .fitting import solve_batch
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .data import Prepared
+    from .search import Scored
+    from .spec import Specification, SpecKey
 
 EXHAUSTIVE_LIMIT = 1000
 BEAM = 3
@@ -73,6 +80,8 @@ class ZScreen:
         self.finite = bool(np.all(np.isfinite(z)))
         if intercept and self.finite:
             z = z - float(np.mean(z))  # same errors, less cancellation in z'z - 2b'c + b'Gb
+        self.cf: np.ndarray | None
+        self.ctot: np.ndarray | None
         self.cf, self.ctot = self.bank.cross(("screen", t), z) if self.finite else (None, None)
         idx = self.bank.index
         self.zz = (
@@ -87,6 +96,7 @@ class ZScreen:
     def sse(self, cols: list[int]) -> float:
         if not self.finite:
             return np.inf
+        assert self.cf is not None and self.ctot is not None and self.zz is not None  # finite
         self.count += 1
         S = np.asarray(cols, dtype=int)
         total = 0.0
@@ -103,7 +113,13 @@ class ZScreen:
         return max(total, 0.0) if np.isfinite(total) else np.inf
 
 
-def _screen_columns(space: Space, prep, options, choice, t_key) -> list[int] | None:
+def _screen_columns(
+    space: Space,
+    prep: Prepared,
+    options: list[list[tr.Transform]],
+    choice: Sequence[int],
+    t_key: tr.Transform,
+) -> list[int] | None:
     cols = list(space.index[("", "intercept")]) if space.intercept else []
     for col, opts, o in zip(prep.predictors, options, choice, strict=True):
         t = opts[o]
@@ -114,11 +130,15 @@ def _screen_columns(space: Space, prep, options, choice, t_key) -> list[int] | N
     return cols
 
 
-def _descend(score, options, starts) -> dict[tuple, float]:
+def _descend(
+    score: Callable[[tuple[int, ...]], float],
+    options: list[list[tr.Transform]],
+    starts: list[list[int]],
+) -> dict[tuple[int, ...], float]:
     """Coordinate descent from each start; returns every evaluated combination's score."""
-    memo: dict[tuple, float] = {}
+    memo: dict[tuple[int, ...], float] = {}
 
-    def f(choice):
+    def f(choice: Sequence[int]) -> float:
         key = tuple(choice)
         if key not in memo:
             memo[key] = score(key)
@@ -143,8 +163,8 @@ def _descend(score, options, starts) -> dict[tuple, float]:
     return memo
 
 
-def _start(options, name: str) -> list[int]:
-    out = []
+def _start(options: list[list[tr.Transform]], name: str) -> list[int]:
+    out: list[int] = []
     for opts in options:
         idx = next((i for i, t in enumerate(opts) if t.name == name), None)
         if idx is None:
@@ -154,15 +174,22 @@ def _start(options, name: str) -> list[int]:
 
 
 def screened_search(
-    prep, resp, options, space: Space, evaluate, budget: Budget, screen_scales, intercept: bool
-) -> dict:
+    prep: Prepared,
+    resp: list[tr.Transform],
+    options: list[list[tr.Transform]],
+    space: Space,
+    evaluate: Callable[[Specification], Scored | None],
+    budget: Budget,
+    screen_scales: dict[tr.Transform, tr.Transform],
+    intercept: bool,
+) -> dict[str, Any]:
     """Run both stages; ``evaluate(spec)`` scores exactly (returns Scored or None on failure).
 
     ``screen_scales`` maps each response transform to the fixed transform used
     in the screen.  Returns counts for the response's ``search`` block.
     """
     screened = 0
-    queue: list = []
+    queue: list[Specification] = []
     for t in resp:
         base = [_start(options, "identity"), _start(options, "log")]
         queue += [
@@ -182,7 +209,12 @@ def screened_search(
             else [[u for u in o if not bt.is_open(u)] for o in options]
         )
 
-        def score(choice, opts_t=opts_t, screen=screen, t_key=t_key):
+        def score(
+            choice: tuple[int, ...],
+            opts_t: list[list[tr.Transform]] = opts_t,
+            screen: ZScreen = screen,
+            t_key: tr.Transform = t_key,
+        ) -> float:
             n_open = sum(1 for o, c in zip(opts_t, choice, strict=True) if bt.is_open(o[c]))
             if n_open > MAX_ESTIMATED_POWERS:
                 return np.inf
@@ -195,9 +227,9 @@ def screened_search(
         queue += [
             make_spec(prep, t, [opts_t[j][o] for j, o in enumerate(c)], intercept) for _, c in best
         ]
-    scored: dict = {}
+    scored: dict[SpecKey, Scored | None] = {}
 
-    def run(spec):
+    def run(spec: Specification) -> Scored | None:
         if spec.key in scored or not allowed(spec):
             return scored.get(spec.key)
         if not budget.ok():
@@ -235,12 +267,13 @@ def screened_search(
     return {"screened": screened, "exact": len(scored)}
 
 
-def _best(scored: dict):
+def _best(scored: dict[SpecKey, Scored | None]) -> tuple[Specification, Scored] | None:
     """(open specification, Scored) with the lowest CV error, or None."""
     best = None
     for s in scored.values():
         if s is None:
             continue
+        assert s.open_spec is not None  # set by Scored.__post_init__
         if best is None or s.cv.value < best[1].cv.value:
             best = (s.open_spec, s)
     return best

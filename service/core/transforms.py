@@ -20,8 +20,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
+
+from ._types import FloatArray
 
 LADDER = (-1.0, -0.5, 0.0, 0.5, 1.0, 2.0)
 _EPS = float(np.spacing(1.0)) * 64
@@ -41,6 +44,18 @@ class Transform:
     shift: float | None = None
     estimated: bool = False  # True when lam/shift came from the data
     reference: str | None = None  # categorical only
+
+    def _lambda(self) -> float:
+        """The Box-Cox / Yeo-Johnson ``lambda``; an unfitted transform has none to use."""
+        if self.lam is None:
+            raise ValueError(f"transform {self.name!r} has no lambda yet; fit it first")
+        return self.lam
+
+    def _exponent(self) -> float:
+        """The exponent of a ``power`` transform; one without it cannot be applied."""
+        if self.exponent is None:
+            raise ValueError(f"transform {self.name!r} has no exponent")
+        return self.exponent
 
     # ------------------------------------------------------------------ facts
     @property
@@ -96,7 +111,7 @@ class Transform:
         if n == "square":
             return f"{column}^2"
         if n == "power":
-            return f"{column}^{_fmt_param(self.exponent)}"
+            return f"{column}^{_fmt_param(self._exponent())}"
         if n == "box_cox":
             lam = "λ" if self.lam is None else _fmt_param(self.lam)
             return f"boxcox({column}, {lam})"
@@ -105,8 +120,8 @@ class Transform:
             return f"yeojohnson({column}, {lam})"
         return f"{n}({column})"
 
-    def to_dict(self) -> dict:
-        d: dict = {"name": self.name}
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {"name": self.name}
         if self.name == "power":
             d["exponent"] = self.exponent
         if self.name in ("box_cox", "yeo_johnson") and self.lam is not None:
@@ -166,7 +181,7 @@ class Transform:
         return None
 
     # ---------------------------------------------------------- forward/back
-    def forward(self, x: np.ndarray) -> np.ndarray:
+    def forward(self, x: FloatArray) -> FloatArray:
         n = self.name
         x = np.asarray(x, dtype=float)
         if n == "identity":
@@ -180,11 +195,11 @@ class Transform:
         if n == "square":
             return x * x
         if n == "power":
-            return np.power(x, self.exponent)
+            return np.power(x, self._exponent())
         if n == "box_cox":
-            return _box_cox(x, self.lam)
+            return _box_cox(x, self._lambda())
         if n == "yeo_johnson":
-            return _yeo_johnson(x, self.lam)
+            return _yeo_johnson(x, self._lambda())
         raise ValueError(f"transform {n!r} has no numeric forward map")
 
     def inverse(self, z: np.ndarray) -> np.ndarray:
@@ -211,20 +226,20 @@ class Transform:
                 out = zc * zc
             elif n == "square":
                 out = np.sqrt(np.maximum(z, 0.0))
-            elif n == "power" and self.exponent > 0:
-                out = np.power(np.maximum(z, 0.0), 1.0 / self.exponent)
+            elif n == "power" and self._exponent() > 0:
+                out = np.power(np.maximum(z, 0.0), 1.0 / self._exponent())
             elif n == "reciprocal":
                 out = np.where(z > 0, 1.0 / np.where(z > 0, z, 1.0), np.nan)
             elif n == "power":
-                q = self.exponent
+                q = self._exponent()
                 if q > 0:
                     out = np.power(np.maximum(z, 0.0), 1.0 / q)
                 else:
                     out = np.where(z > 0, np.power(np.where(z > 0, z, 1.0), 1.0 / q), np.nan)
             elif n == "box_cox":
-                out = _inv_box_cox(z, self.lam)
+                out = _inv_box_cox(z, self._lambda())
             elif n == "yeo_johnson":
-                out = _inv_yeo_johnson(z, self.lam)
+                out = _inv_yeo_johnson(z, self._lambda())
             else:
                 raise ValueError(f"transform {n!r} has no inverse")
         out = np.where(np.isfinite(out), out, np.nan)
@@ -236,9 +251,9 @@ class Transform:
         if n in ("identity", "log"):
             return ()
         if n == "box_cox":
-            return () if abs(self.lam) < 1e-12 else (-1.0 / self.lam,)
+            return () if abs(self._lambda()) < 1e-12 else (-1.0 / self._lambda(),)
         if n == "yeo_johnson":
-            lam = self.lam
+            lam = self._lambda()
             pts = [] if abs(lam - 1.0) < 1e-12 else [0.0]
             if lam < -1e-12:
                 pts.append(-1.0 / lam)
@@ -254,7 +269,7 @@ class Transform:
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             if n == "identity":
                 out = np.ones_like(z)
-            elif n == "log" or (n == "box_cox" and abs(self.lam) < 1e-12):
+            elif n == "log" or (n == "box_cox" and abs(self._lambda()) < 1e-12):
                 out = np.exp(z)
             elif n == "sqrt":
                 out = 2.0 * np.maximum(z, 0.0)
@@ -264,16 +279,16 @@ class Transform:
                 out = np.where(z > 0, -1.0 / (z * z), np.nan)
             elif n in ("power", "box_cox"):
                 if n == "power":
-                    a = 1.0 / self.exponent
+                    a = 1.0 / self._exponent()
                     ok = z > 0
                     val = np.power(np.where(ok, z, 1.0), a - 1.0) * a
                 else:  # (1 + lam z)^(1/lam - 1) via log1p, accurate for small lam z
-                    a, u = 1.0 / self.lam, self.lam * z
+                    a, u = 1.0 / self._lambda(), self._lambda() * z
                     ok = u > -1.0
                     val = np.exp((a - 1.0) * np.log1p(np.where(ok, u, 0.0)))
                 out = np.where(ok, val, 0.0 if a > 0 else np.nan)
             elif n == "yeo_johnson":
-                lam = self.lam
+                lam = self._lambda()
                 out = np.empty_like(z)
                 pos = z >= 0
                 zp, zn = z[pos], z[~pos]
@@ -298,7 +313,7 @@ class Transform:
                 raise ValueError(n)
         return np.where(np.isfinite(out), out, np.nan)
 
-    def derivative(self, y: np.ndarray) -> np.ndarray:
+    def derivative(self, y: FloatArray) -> FloatArray:
         """g'(y)."""
         n = self.name
         y = np.asarray(y, dtype=float)
@@ -313,11 +328,11 @@ class Transform:
         if n == "square":
             return 2.0 * y
         if n == "power":
-            return self.exponent * np.power(y, self.exponent - 1.0)
+            return self._exponent() * np.power(y, self._exponent() - 1.0)
         if n == "box_cox":
-            return np.power(y, self.lam - 1.0)
+            return np.power(y, self._lambda() - 1.0)
         if n == "yeo_johnson":
-            return np.power(np.abs(y) + 1.0, np.sign(y) * (self.lam - 1.0))
+            return np.power(np.abs(y) + 1.0, np.sign(y) * (self._lambda() - 1.0))
         raise ValueError(n)
 
     def log_jacobian(self, y: np.ndarray) -> float:
@@ -335,17 +350,17 @@ class Transform:
         if n == "square":
             return float(y.size * math.log(2.0) + np.sum(np.log(y)))
         if n == "power":
-            q = self.exponent
+            q = self._exponent()
             return float(y.size * math.log(abs(q)) + (q - 1.0) * np.sum(np.log(y)))
         if n == "box_cox":
-            return float((self.lam - 1.0) * np.sum(np.log(y)))
+            return float((self._lambda() - 1.0) * np.sum(np.log(y)))
         if n == "yeo_johnson":
-            return float((self.lam - 1.0) * np.sum(np.sign(y) * np.log1p(np.abs(y))))
+            return float((self._lambda() - 1.0) * np.sum(np.sign(y) * np.log1p(np.abs(y))))
         raise ValueError(n)
 
 
 # ---------------------------------------------------------------- families
-def _box_cox(y: np.ndarray, lam: float) -> np.ndarray:
+def _box_cox(y: FloatArray, lam: float) -> FloatArray:
     ly = np.log(y)
     if abs(lam) < 1e-12:
         return ly
@@ -353,7 +368,7 @@ def _box_cox(y: np.ndarray, lam: float) -> np.ndarray:
         return np.expm1(lam * ly) / lam
 
 
-def _inv_box_cox(z: np.ndarray, lam: float) -> np.ndarray:
+def _inv_box_cox(z: FloatArray, lam: float) -> FloatArray:
     if abs(lam) < 1e-12:
         return np.exp(z)
     # (1 + lam z)^(1/lam) as exp(log1p(lam z)/lam): keeps full precision when lam z is small
@@ -363,7 +378,7 @@ def _inv_box_cox(z: np.ndarray, lam: float) -> np.ndarray:
     return np.where(ok, val, 0.0 if lam > 0 else np.nan)
 
 
-def _yeo_johnson(y: np.ndarray, lam: float) -> np.ndarray:
+def _yeo_johnson(y: FloatArray, lam: float) -> FloatArray:
     out = np.empty_like(y, dtype=float)
     pos = y >= 0
     yp, yn = y[pos], y[~pos]
@@ -379,7 +394,7 @@ def _yeo_johnson(y: np.ndarray, lam: float) -> np.ndarray:
     return out
 
 
-def _inv_yeo_johnson(z: np.ndarray, lam: float) -> np.ndarray:
+def _inv_yeo_johnson(z: FloatArray, lam: float) -> FloatArray:
     out = np.empty_like(z, dtype=float)
     pos = z >= 0
     zp, zn = z[pos], z[~pos]
@@ -412,7 +427,7 @@ NUMERIC_NAMES = (
 ALL_NAMES = (*NUMERIC_NAMES, "categorical")
 
 
-def from_dict(d: dict) -> Transform:
+def from_dict(d: dict[str, Any]) -> Transform:
     """Build from a contract Transform object (already type-checked by the caller)."""
     name = d["name"]
     if name == "power":

@@ -56,18 +56,21 @@ from __future__ import annotations
 import json
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
 
 from . import transforms as tr
+from ._types import Mapper
 from .crossval import CVPlan, cross_validate, make_plan
 from .data import Prepared
 from .diagnose import CONDITION_NAMES, conditions_for, failed
 from .errors import BestscaleError, CandidateFailure, InputError
 from .report import fitted_model
 from .search import Scored, SearchOptions, rank, run_selection
-from .spec import Specification, build_design
+from .spec import Specification, SpecKey, build_design
 
 DEFAULT_RESAMPLES = 20
 MAX_RESAMPLES = 1000
@@ -81,7 +84,7 @@ _WILSON_Z = 1.959963984540054  # standard normal 0.975 quantile
 
 
 # --------------------------------------------------------------------------- helpers
-def _open(t: dict, role: str) -> dict:
+def _open(t: dict[str, Any], role: str) -> dict[str, Any]:
     """A transform with what the search estimates from the response left open."""
     if not t.get("estimated"):
         return t
@@ -92,7 +95,7 @@ def _open(t: dict, role: str) -> dict:
     return t  # a predictor's log shift comes from the column alone
 
 
-def scale_key(spec: dict) -> str:
+def scale_key(spec: dict[str, Any]) -> str:
     """A specification's scale with parameters estimated from the response left open.
 
     ``box_cox`` with an estimated lambda, a log whose shift was chosen from the
@@ -226,14 +229,14 @@ def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
     return [where[id(s)] for s, p in ranked if p["within_one_se"]][: job.lead]
 
 
-def _resample_chunk(task) -> list:
+def _resample_chunk(task: tuple[_StabilityJob, list[int], float]) -> list[Any]:
     """Worker: ``(job, resample indices, wall-clock deadline)`` -> one result per index.
 
     ``None`` marks a resample not run because the deadline passed (``time.time``
     is shared by the processes of one machine).
     """
     job, indices, deadline = task
-    out: list = []
+    out: list[Any] = []
     for b in indices:
         if time.time() > deadline:
             out.append(None)
@@ -248,9 +251,9 @@ def _chunks(items: list[int], parts: int) -> list[list[int]]:
     return [items[i : i + size] for i in range(0, len(items), size)]
 
 
-def _verdicts(prep: Prepared, alpha: float):
+def _verdicts(prep: Prepared, alpha: float) -> Callable[[Specification], int]:
     """Failed-condition counts on all rows, computed once per specification."""
-    cache: dict[tuple, int] = {}
+    cache: dict[SpecKey, int] = {}
 
     def n_failed(spec: Specification) -> int:
         if spec.key not in cache:
@@ -265,7 +268,9 @@ def _verdicts(prep: Prepared, alpha: float):
     return n_failed
 
 
-def first_by_rule(band: list, n_failed) -> object:
+def first_by_rule(
+    band: list[tuple[int, Specification]], n_failed: Callable[[Specification], int]
+) -> Specification:
     """Rank 1 of ``band`` ((position, spec) pairs in ranking order): fewest failed
     conditions, then band order (the rule of diagnose.py)."""
     return min(band, key=lambda item: (n_failed(item[1]), item[0]))[1]
@@ -278,9 +283,9 @@ def _stability(
     winner: Scored,
     resamples: int,
     deadline: float,
-    mapper,
+    mapper: Mapper,
     chunks: int,
-) -> dict:
+) -> dict[str, Any]:
     ranked, _ = rank(scored, opts.folds)
     lead = max(3 * opts.top, 15)
     n_failed = _verdicts(prep, opts.alpha)
@@ -306,8 +311,8 @@ def _stability(
     contenders = contenders[:MAX_CONTENDERS]
     if winner not in contenders:
         contenders = [winner, *contenders[: MAX_CONTENDERS - 1]]
-    cache: dict = {}
-    designs = []
+    cache: dict[tuple[str, tr.Transform], np.ndarray] = {}
+    designs: list[tuple[np.ndarray, list[str]]] = []
     specs = [s.spec for s in contenders]
     for spec in specs:
         d = build_design(spec, prep, cache)
@@ -335,6 +340,7 @@ def _stability(
         counts[f] = counts.get(f, 0) + 1
     order = sorted(counts, key=lambda i: (-counts[i], i))
     others = [i for i in order if i != w]
+    runner: dict[str, object] | None
     if others:
         ru = others[0]
         runner = {
@@ -402,7 +408,7 @@ def _stability(
 
 
 # --------------------------------------------------------------------------- optimism
-def _inner_search(task) -> dict:
+def _inner_search(task: tuple[Prepared, SearchOptions, str, float]) -> dict[str, Any]:
     """Worker: the whole search on one outer training part; the selected candidate or why not."""
     sub, opts, service_version, deadline = task
     left = deadline - time.time()
@@ -427,8 +433,8 @@ def _optimism(
     outer_folds: int,
     inner_folds: int,
     deadline: float,
-    mapper,
-) -> dict:
+    mapper: Mapper,
+) -> dict[str, Any]:
     inner_folds = min(inner_folds, opts.folds)
     outer = make_plan(prep.n, outer_folds, 1, opts.seed, opts.metric)
     assign = outer.assignments[0]
@@ -472,7 +478,7 @@ def _optimism(
     ]
     picks = list(mapper(_inner_search, tasks))
 
-    evaluated: dict[tuple, np.ndarray | str] = {}
+    evaluated: dict[tuple[str, bool], np.ndarray | str] = {}
     rows = []
     nested = np.full(outer_folds, np.nan)
     winner_key = scale_key(winner.spec.to_dict())
@@ -550,19 +556,19 @@ def _optimism(
 def assess_trust(
     prep: Prepared,
     opts: SearchOptions,
-    winner_spec: dict,
+    winner_spec: dict[str, Any],
     service_version: str,
     stability: bool,
     optimism: bool,
     resamples: int | None = None,
     *,
-    selection: dict | None = None,
+    selection: dict[str, Any] | None = None,
     outer_folds: int | None = None,
     inner_folds: int = DEFAULT_INNER_FOLDS,
     time_limit_s: float | None = None,
-    mapper=map,
+    mapper: Mapper = map,
     chunks: int = 1,
-) -> dict:
+) -> dict[str, Any]:
     """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
 
     ``selection`` is the body :func:`run_selection` returned for ``prep`` and
@@ -596,7 +602,12 @@ def assess_trust(
     winner = _find(scored, scale_key(winner_spec))
     if winner is None:
         raise ValueError("winner_spec is not one of the scored candidates")
-    out: dict = {"stability": None, "resamples": None, "runner_up": None, "optimism": None}
+    out: dict[str, Any] = {
+        "stability": None,
+        "resamples": None,
+        "runner_up": None,
+        "optimism": None,
+    }
     warnings: list[str] = []
     name = label(winner.spec)
     if stability:

@@ -20,13 +20,18 @@ already busy a pool cannot help and adds pickling and start-up
 from __future__ import annotations
 
 import multiprocessing
-from collections.abc import Iterator
+from collections.abc import Callable, Iterable, Iterator
 from concurrent.futures import ProcessPoolExecutor
+from multiprocessing.context import BaseContext
+from typing import Any, TypeVar
+
+_T = TypeVar("_T")
+_R = TypeVar("_R")
 
 _PRELOAD = ["service.core.search", "service.core.trust"]
 
 
-def _context():
+def _context() -> BaseContext:
     methods = multiprocessing.get_all_start_methods()
     if "forkserver" in methods:
         ctx = multiprocessing.get_context("forkserver")
@@ -41,7 +46,9 @@ def _init_worker(blas_threads: int) -> None:
     threadpool_limits(limits=blas_threads)
 
 
-def iter_in_processes(fn, items, processes: int, blas_threads: int = 1) -> Iterator:
+def iter_in_processes(
+    fn: Callable[[_T], _R], items: Iterable[_T], processes: int, blas_threads: int = 1
+) -> Iterator[_R]:
     """``fn(x)`` for each of ``items``, in input order, as the results arrive.
 
     Runs in this process when ``processes <= 1`` or there is at most one item
@@ -64,7 +71,9 @@ def iter_in_processes(fn, items, processes: int, blas_threads: int = 1) -> Itera
         yield from pool.map(fn, items, chunksize=chunksize)
 
 
-def map_in_processes(fn, items, processes: int, blas_threads: int = 1) -> list:
+def map_in_processes(
+    fn: Callable[[_T], _R], items: Iterable[_T], processes: int, blas_threads: int = 1
+) -> list[_R]:
     """``[fn(x) for x in items]``, computed by up to ``processes`` worker processes.
 
     Results keep the input order; in this process for ``processes <= 1`` or a
@@ -73,13 +82,15 @@ def map_in_processes(fn, items, processes: int, blas_threads: int = 1) -> list:
     return list(iter_in_processes(fn, items, processes, blas_threads))
 
 
-def process_mapper(processes: int, blas_threads: int = 1, on_result=None):
+def process_mapper(
+    processes: int, blas_threads: int = 1, on_result: Callable[[], object] | None = None
+) -> Callable[[Callable[[Any], Any], Iterable[Any]], list[Any]]:
     """A ``mapper(fn, items)`` for ``run_grouped``/``assess_trust`` bound to a process count.
 
     ``on_result()`` is called after each result in input order (a progress bar).
     """
 
-    def mapper(fn, items):
+    def mapper(fn: Callable[[_T], _R], items: Iterable[_T]) -> list[_R]:
         out = []
         for r in iter_in_processes(fn, items, processes, blas_threads):
             out.append(r)
@@ -90,7 +101,7 @@ def process_mapper(processes: int, blas_threads: int = 1, on_result=None):
     return mapper
 
 
-def select_group(task) -> dict:
+def select_group(task: tuple[Any, ...]) -> dict[str, Any]:
     """Worker for one group of :func:`search.run_grouped`.
 
     ``task`` is ``(prepared | problem, opts, version[, entry_hook[, trust[, deadline]]])``:
