@@ -35,6 +35,12 @@ class Settings(BaseSettings):
         description="processes that share the groups of one group_by "
         "request (1: in the request's own process)",
     )
+    dask_scheduler: str | None = Field(
+        None,
+        pattern=r"^(local|(tcp|tls)://\S+)$",
+        description="Dask scheduler for `select --group-by` batch jobs without --cluster "
+        "(tcp://HOST:8786, or 'local' for a cluster on this machine)",
+    )
     pool_size: int = Field(
         2,
         ge=1,

@@ -90,7 +90,11 @@ def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
     )
 
 
-def run_selection_request(req: SelectionRequest, progress=None, stop=None) -> dict:
+def run_selection_request(
+    req: SelectionRequest, progress=None, stop=None, group_mapper=None
+) -> dict:
+    """The selection body for a validated request.  ``group_mapper(fn, items)``, when given,
+    runs the groups of a ``group_by`` request (the command line's Dask cluster), in order."""
     data = req.data.as_dict()
     _check_size(data, 1 + len(req.predictors))
     if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
@@ -123,7 +127,17 @@ def run_selection_request(req: SelectionRequest, progress=None, stop=None) -> di
         mapper: Callable[..., Iterable[Any]] = map
         if progress is not None:
             progress.total = n_groups
-        if get_settings().group_processes > 1:
+        if group_mapper is not None:
+            each = group_mapper
+
+            def mapped_with_progress(fn, items):
+                for result in each(fn, items):
+                    yield result
+                    if progress is not None:
+                        progress.step()
+
+            mapper = mapped_with_progress
+        elif get_settings().group_processes > 1:
             from ..core.workers import process_mapper
 
             mapper = process_mapper(

@@ -10,6 +10,7 @@ from typing import Any
 import numpy as np
 
 from .data import Prepared
+from .drift import profile
 from .fitting import OLSFit
 from .spec import Design, Specification
 
@@ -144,6 +145,8 @@ def build_model(
         "response_range": {"min": float(np.min(prep.y)), "max": float(np.max(prep.y))},
         "max_leverage": float(np.max(hat)),
         "data_fingerprint": prep.fingerprint(),
+        # what the training rows looked like, so a later run can measure drift (core/drift.py)
+        "data_profile": profile(prep, [p.column for p in spec.predictors]),
         "options": options or {},
     }
     body["checksum"] = checksum(body)
