@@ -79,7 +79,7 @@ def serve(argv: list[str]) -> int:
         description="Run the Bestscale API (HTTP, JSON).",
         epilog=(
             "commands: 'python -m service select --data FILE --response Y --predictors A,B' "
-            "runs one selection (or one per segment) in this process, without a server, and "
+            "runs one selection (or one per segment, on a Dask cluster with --cluster) without a server, and "
             "writes the JSON the API returns; 'python -m service select --help' lists its flags. "
             "Settings come from BESTSCALE_* environment variables (README: Settings)."
         ),
@@ -112,6 +112,7 @@ def serve(argv: list[str]) -> int:
             access_log=False,
             server_header=False,
             timeout_graceful_shutdown=30,
+            http="service.server:GuardedH11",  # header-read timeout and connection cap
         )
     finally:
         if ours and directory:

@@ -72,6 +72,8 @@ def create_app() -> FastAPI:
         max_body_bytes=s.max_body_bytes,
         api_token=s.token(),
         body_timeout_s=s.body_timeout_s,
+        metrics_public=s.metrics_public,
+        docs_public=s.docs_public,
     )
     if s.cors_origins:
         from .middleware import ProblemCORSMiddleware
@@ -88,6 +90,12 @@ def create_app() -> FastAPI:
     app.add_middleware(ServiceMiddleware, route_paths=lambda: route_paths(app.routes))
     openapi.install(app, s)
     docs_page.install(app)
+    if s.model_key is None:
+        logging.getLogger("bestscale").warning(
+            "BESTSCALE_MODEL_KEY is not set: model artifacts are issued unsigned (marked "
+            "signature.algorithm 'none') and anyone can forge a model that /v1/predictions "
+            "accepts; set a key of 32 or more random characters in production"
+        )
     pool.capacity()  # publish the slot count before the first computation
     return app
 

@@ -37,6 +37,14 @@ class _Progress:
         self.stream.flush()
 
 
+def _is_directory_out(out: str | None) -> bool:
+    """``--out DIR`` (one file per segment) versus ``--out FILE.json`` (one file)."""
+    if out is None:
+        return False
+    p = Path(out)
+    return p.is_dir() or p.suffix.lower() != ".json"
+
+
 def select_main(argv: list[str]) -> int:
     from .api.encode import to_jsonable
     from .api.routes import run_selection_request
@@ -45,22 +53,76 @@ def select_main(argv: list[str]) -> int:
 
     ap = argparse.ArgumentParser(
         prog="python -m service select",
-        description="Run a selection in-process and write the API's JSON.",
+        description="Run a selection in-process (or one per segment on a Dask cluster) and "
+        "write the API's JSON.",
     )
     ap.add_argument("--data", required=True, help="CSV (with header) or Parquet file")
     ap.add_argument("--response", required=True)
     ap.add_argument("--predictors", required=True, help="comma-separated column names")
     ap.add_argument("--categorical", default="", help="comma-separated columns to treat as levels")
     ap.add_argument("--order", default=None)
-    ap.add_argument("--group-by", default=None)
+    ap.add_argument("--group-by", default=None, help="one selection per value of this column")
     ap.add_argument("--incumbent", default=None, help="JSON file holding a Specification")
+    ap.add_argument(
+        "--incumbents",
+        default=None,
+        help="one incumbent per segment: an earlier run's --out directory or its summary.json, "
+        'or JSON Lines of {"segment": ..., "specification"|"model": {...}}',
+    )
     ap.add_argument(
         "--options",
         default=None,
         help="JSON file with further request fields (validation, limits, top, ...)",
     )
-    ap.add_argument("--out", default=None, help="output file (default: standard output)")
+    ap.add_argument(
+        "--out",
+        default=None,
+        help="FILE.json: one file (default: standard output); DIR: one file per segment "
+        "plus manifest.json and summary.json (needs --group-by)",
+    )
+    ap.add_argument(
+        "--cluster",
+        default=None,
+        help="run the segments on Dask: tcp://HOST:8786 (a running scheduler) or 'local' "
+        "(a cluster on this machine); default BESTSCALE_DASK_SCHEDULER, else this machine's "
+        "process pool",
+    )
+    ap.add_argument(
+        "--local-workers",
+        type=int,
+        default=None,
+        help="worker processes of --cluster local (default: cores, at most 4)",
+    )
+    ap.add_argument(
+        "--resume",
+        action="store_true",
+        help="finish an interrupted --out DIR run: keep its finished segments, run the rest",
+    )
+    ap.add_argument(
+        "--progress-every",
+        type=int,
+        default=None,
+        help="when not on a terminal, a progress line every N segments (default: 5%% of them)",
+    )
     args = ap.parse_args(argv)
+    to_dir = _is_directory_out(args.out)
+    if to_dir and not args.group_by:
+        ap.error("--out DIR writes one file per segment and needs --group-by")
+    if (args.resume or args.incumbents) and not to_dir:
+        ap.error("--resume and --incumbents need --group-by and --out DIR")
+    if args.incumbent and args.incumbents:
+        ap.error("give either --incumbent (one for all) or --incumbents (one per segment)")
+    if args.local_workers is not None and not 1 <= args.local_workers <= 256:
+        ap.error("--local-workers must be between 1 and 256")
+    if args.progress_every is not None and args.progress_every < 1:
+        ap.error("--progress-every must be 1 or more")
+    from .settings import get_settings
+
+    cluster = args.cluster or get_settings().dask_scheduler
+    if cluster is not None and not (cluster == "local" or "://" in cluster):
+        ap.error(f"--cluster {cluster!r}: give tcp://HOST:PORT of a scheduler, or 'local'")
+    if cluster is not None and not args.group_by:
+        ap.error("--cluster spreads the segments of --group-by; give --group-by")
 
     body = json.loads(Path(args.options).read_text()) if args.options else {}
     body.update(
@@ -76,12 +138,25 @@ def select_main(argv: list[str]) -> int:
         body["group_by"] = args.group_by
     if args.incumbent:
         body["incumbent"] = json.loads(Path(args.incumbent).read_text())
+    session = None
     try:
         req = SelectionRequest.model_validate(body)
+        if to_dir:
+            from .batch import BatchRefusal
+
+            try:
+                return _batch(req, body, args, cluster)
+            except BatchRefusal as exc:
+                sys.stderr.write(f"{exc}\n")
+                return 2
+        group_mapper = None
+        if cluster is not None:
+            session = _session(cluster, args.local_workers)
+            group_mapper = _dask_mapper(session.client)
         progress = None
         if args.group_by:
             progress = _Progress(0)
-        result = run_selection_request(req, progress=progress)
+        result = run_selection_request(req, progress=progress, group_mapper=group_mapper)
     except ValidationError as exc:
         sys.stderr.write(f"invalid request: {exc}\n")
         return 2
@@ -89,9 +164,125 @@ def select_main(argv: list[str]) -> int:
         problems = "; ".join(f"{p.pointer}: {p.detail}" for p in exc.problems) or exc.detail
         sys.stderr.write(f"{exc.title}: {problems}\n")
         return 2
+    finally:
+        if session is not None:
+            session.close()
     text = json.dumps(to_jsonable(result), ensure_ascii=False, allow_nan=False)
     if args.out:
-        Path(args.out).write_text(text + "\n")
+        from .batch import atomic_write
+
+        atomic_write(Path(args.out), text + "\n")
     else:
         sys.stdout.write(text + "\n")
     return 0
+
+
+def _session(cluster: str, local_workers: int | None):
+    from .batch import DaskSession
+
+    session = DaskSession(cluster, local_workers)
+    link = session.dashboard
+    where = "a local cluster" if cluster == "local" else cluster
+    sys.stderr.write(
+        f"running on {where}: {len(session.client.nthreads())} worker(s)"
+        + (f", dashboard {link}" if link else "")
+        + "\n"
+    )
+    return session
+
+
+def _dask_mapper(client):
+    """``mapper(fn, items)`` for run_grouped on a Dask cluster, results in input order."""
+
+    def mapper(fn, items):
+        futures = client.map(fn, list(items), pure=False)
+        for f in futures:
+            yield f.result()
+            f.release()
+
+    return mapper
+
+
+def _batch(req, body: dict, args, cluster: str | None) -> int:
+    """``--out DIR``: one file per segment, manifest, summary; exit 0 when every segment is
+    ok, 3 when some failed (their files and the summary say why)."""
+    from functools import partial
+
+    from .api.routes import selection_options
+    from .api.schemas import SpecificationIn
+    from .batch import (
+        BatchProgress,
+        BatchRefusal,
+        Job,
+        digest,
+        read_incumbents,
+        run_dask,
+        run_job,
+        run_pool,
+    )
+    from .core.data import prepare
+    from .core.errors import InputError
+    from .settings import get_settings
+    from .version import __version__
+
+    # the request checks of run_selection_request except the limits on rows and groups,
+    # which protect a shared server; a batch job is bounded by its cluster's memory
+    if req.trust.stability or req.trust.optimism:
+        raise InputError.at(
+            "/trust",
+            "trust measures are computed for one selection; run the segment on its own "
+            "(without --group-by) to measure them",
+        )
+    if isinstance(req.transforms.predictors, dict):
+        for col in req.transforms.predictors:
+            if col not in req.predictors:
+                raise InputError.at(
+                    f"/transforms/predictors/{col}", f"'{col}' is not one of the predictors"
+                )
+    data = req.data.as_dict()
+    prep = prepare(
+        data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
+    )
+    opts = selection_options(req)
+    incumbents, inc_digest = {}, None
+    if args.incumbents:
+
+        def validate(spec, where):
+            try:
+                return SpecificationIn.model_validate(spec).as_dict()
+            except ValidationError as exc:
+                first = exc.errors()[0]
+                loc = "/".join(str(x) for x in first["loc"])
+                raise BatchRefusal(
+                    f"--incumbents: {where}: the specification is not valid at '{loc}': "
+                    f"{first['msg']}"
+                ) from None
+
+        incumbents = read_incumbents(args.incumbents, validate)
+        inc_digest = digest(
+            {
+                k: [v.specification, v.model and v.model.get("checksum")]
+                for k, v in incumbents.items()
+            }
+        )
+    request = {k: v for k, v in body.items() if k != "data"}
+    job = Job(Path(args.out), request, prep, opts, __version__, incumbents, inc_digest)
+    progress = BatchProgress(0, every=args.progress_every)
+    session = None
+    try:
+        if cluster is not None:
+            session = _session(cluster, args.local_workers)
+            runner = partial(run_dask, client=session.client)
+        else:
+            runner = partial(run_pool, processes=get_settings().group_processes)
+        summary = run_job(job, runner, resume=args.resume, progress=progress)
+    finally:
+        if session is not None:
+            session.close()
+    c = summary["counts"]
+    sys.stderr.write(
+        f"{c['segments']} segments: {c['ok']} ok, {c['failed']} failed, {c['kept']} kept, "
+        f"{c['switched']} switched, {c['drifted']} with drift ({c['reused']} reused); "
+        f"see {Path(args.out) / 'summary.json'}\n"
+    )
+    return 3 if c["failed"] else 0

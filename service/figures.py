@@ -41,6 +41,8 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 from matplotlib.typing import RcKeyType
 
+from .safetext import visible, visible_all
+
 #: at most this many predictor panels are drawn
 MAX_PARTIAL_PANELS = 6
 #: flagged rows labelled per panel
@@ -388,6 +390,8 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
         raise ValueError(
             f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}"
         )
+    plots = visible_all(plots)  # caller names and levels: bidi controls shown as U+XXXX
+    title = visible(title) if title else title
     top = [
         (key, draw)
         for key, draw in (

@@ -6,9 +6,16 @@
                        (request id only, no traceback) while logging the traceback.
 (CORS, when origins are configured, sits between the two so that preflights and the
  problems below carry its headers.)
-``GuardMiddleware``    bearer token on ``/v1/*``, body-size limit (Content-Length checked
-                       before anything is read, streamed bytes counted as they arrive), and
-                       an early 503 for ``POST /v1/*`` while every compute slot is busy.
+``GuardMiddleware``    a request with both Content-Length and Transfer-Encoding (or two
+                       Content-Lengths) refused, bearer token on ``/v1/*`` (and on
+                       ``/metrics`` and the API documentation when they are not public),
+                       body-size limit (Content-Length checked before anything is read,
+                       streamed bytes counted as they arrive), and an early 503 for
+                       ``POST /v1/*`` while every compute slot is busy.
+
+Every response carries ``X-Content-Type-Options: nosniff``; every response that is neither
+JSON nor the documentation pages (SVG, PNG, HTML report, plain text) also carries a
+Content-Security-Policy that forbids scripts and fetches unless the route set its own.
 """
 
 from __future__ import annotations
@@ -35,6 +42,24 @@ log = logging.getLogger("bestscale.access")
 errlog = logging.getLogger("bestscale.error")
 
 _ID_OK = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
+DOC_PATHS = ("/docs", "/redoc", "/openapi.json", "/docs/oauth2-redirect")
+CSP_STATIC = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; frame-ancestors 'self'"
+
+
+def _security_headers(path: str, headers: list) -> list:
+    """nosniff on every response; a restrictive CSP on non-JSON responses without one."""
+    names = {k.lower() for k, _ in headers}
+    out = list(headers)
+    if b"x-content-type-options" not in names:
+        out.append((b"x-content-type-options", b"nosniff"))
+    ctype = next((v for k, v in headers if k.lower() == b"content-type"), b"").lower()
+    is_json = b"json" in ctype
+    is_doc = path in DOC_PATHS or path.startswith("/docs/")
+    if not is_json and not is_doc and b"content-security-policy" not in names:
+        out.append((b"content-security-policy", CSP_STATIC.encode()))
+    return out
+
+
 _RECORD: contextvars.ContextVar[dict | None] = contextvars.ContextVar(
     "bestscale_request_record", default=None
 )
@@ -152,6 +177,7 @@ class ServiceMiddleware:
                     if k.lower() not in (b"server", b"x-request-id")
                 ]
                 hdrs.append((b"x-request-id", rid_header))
+                hdrs = _security_headers(scope.get("path", ""), hdrs)
                 message = {**message, "headers": hdrs}
             await send(message)
 
@@ -237,8 +263,17 @@ class GuardMiddleware:
         api_token: str | None = None,
         protected_prefix: str = "/v1/",
         body_timeout_s: float = 60.0,
+        metrics_public: bool = False,
+        docs_public: bool | None = None,
     ):
         self.app = app
+        # with a token: /metrics and the documentation need it unless made public
+        self.open_paths: tuple[str, ...] = ()
+        if api_token:
+            if metrics_public:
+                self.open_paths += ("/metrics",)
+            if docs_public:
+                self.open_paths += DOC_PATHS
         self.max_body = max_body_bytes
         self.body_timeout = body_timeout_s
         self.token = api_token.encode() if api_token else None
@@ -249,8 +284,22 @@ class GuardMiddleware:
             return await self.app(scope, receive, send)
         path = scope.get("path", "")
         rid = scope.get("state", {}).get("request_id", "")
+        raw_headers = [k.lower() for k, _ in scope["headers"]]
+        if (b"transfer-encoding" in raw_headers and b"content-length" in raw_headers) or (
+            raw_headers.count(b"content-length") > 1
+        ):
+            return await _send_problem(
+                send,
+                400,
+                "malformed-request",
+                "Ambiguous message length",
+                "the request carries both Content-Length and Transfer-Encoding (or two "
+                "Content-Length headers); send exactly one of them",
+                rid,
+                path,
+            )
         headers = {k.lower(): v for k, v in scope["headers"]}
-        if self.token is not None and path.startswith(self.prefix):
+        if self.token is not None and self._protected(path):
             auth = headers.get(b"authorization", b"")
             given = auth[7:].strip() if auth[:7].lower() == b"bearer " else b""
             if not hmac.compare_digest(given, self.token):
@@ -319,6 +368,13 @@ class GuardMiddleware:
             return message
 
         await self.app(scope, receive_counted, send)
+
+    def _protected(self, path: str) -> bool:
+        if path.startswith(self.prefix):
+            return True
+        if path in self.open_paths or (path.startswith("/docs/") and "/docs" in self.open_paths):
+            return False
+        return path == "/metrics" or path in DOC_PATHS or path.startswith("/docs/")
 
 
 class ProblemCORSMiddleware(CORSMiddleware):

@@ -189,7 +189,10 @@ def build(app: FastAPI, settings: Settings) -> dict:
         for method, op in item.items():
             if not isinstance(op, dict) or "responses" not in op:
                 continue
-            _complete_operation(path, method, op, protected)
+            needs_token = protected and (
+                path.startswith("/v1/") or (path == "/metrics" and not settings.metrics_public)
+            )
+            _complete_operation(path, method, op, needs_token)
     return doc
 
 
@@ -229,7 +232,7 @@ def _complete_operation(path: str, method: str, op: dict, protected: bool) -> No
             "headers": dict(_REQUEST_ID),
         }
     codes = []
-    if path.startswith("/v1/") and protected:
+    if protected:
         codes.append("401")
         op["security"] = [{"bearer": []}]
     if method in ("post", "put", "patch"):

@@ -23,6 +23,7 @@ import math
 import re
 
 from .figures import render_figure
+from .safetext import visible
 
 #: ranked specifications shown in detail (figures, coefficients, interpretation)
 DETAIL_TOP = 3
@@ -53,8 +54,8 @@ _MARKS = {
 
 # ------------------------------------------------------------------ formatting
 def esc(value) -> str:
-    """Text safe inside an element or a quoted attribute."""
-    return html.escape(str(value), quote=True)
+    """Text safe inside an element or a quoted attribute; bidi controls shown as U+XXXX."""
+    return html.escape(visible(str(value)), quote=True)
 
 
 def num(value, sig: int = 4) -> str:

@@ -18,6 +18,8 @@ from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
 # trailing slash: CORS compares whole strings, so 'https://a.example/' would never match)
 _ORIGIN = re.compile(r"^https?://[A-Za-z0-9.\-\[\]:]+$")
 _TOKEN = re.compile(r"^[\x21-\x7e]+$")  # visible ASCII: it travels in an HTTP header
+_KEY_ID = re.compile(r"^[A-Za-z0-9._-]{1,64}$")
+MIN_MODEL_KEY_CHARS = 32
 
 
 class Settings(BaseSettings):
@@ -32,6 +34,12 @@ class Settings(BaseSettings):
         le=64,
         description="processes that share the groups of one group_by "
         "request (1: in the request's own process)",
+    )
+    dask_scheduler: str | None = Field(
+        None,
+        pattern=r"^(local|(tcp|tls)://\S+)$",
+        description="Dask scheduler for `select --group-by` batch jobs without --cluster "
+        "(tcp://HOST:8786, or 'local' for a cluster on this machine)",
     )
     pool_size: int = Field(
         2,
@@ -54,8 +62,41 @@ class Settings(BaseSettings):
         description="a request body must arrive whole within this many "
         "seconds of the request's start (408 otherwise)",
     )
+    header_timeout_s: float = Field(
+        10.0,
+        gt=0,
+        le=600,
+        description="a connection must send a complete request head within this many "
+        "seconds of opening (or of its previous response), else it is closed",
+    )
+    max_connections: int = Field(
+        200,
+        ge=1,
+        le=100_000,
+        description="open connections per server process; a connection past it is closed at once",
+    )
     max_rows: int = Field(1_000_000, ge=10, description="table rows accepted (422 past it)")
     max_columns: int = Field(200, ge=2, description="columns a request may use (422 past it)")
+    max_table_columns: int = Field(
+        1000,
+        ge=2,
+        description="columns a table may hold, used or not (422 past it; checked before "
+        "any cell is parsed)",
+    )
+    max_uncompressed_bytes: int = Field(
+        256 * 1024 * 1024,
+        ge=1024,
+        le=2**36,
+        description="an uploaded Parquet file may expand to at most this many bytes "
+        "(413 past it, read from the file's metadata before decoding)",
+    )
+    max_response_bytes: int = Field(
+        64 * 1024 * 1024,
+        ge=64 * 1024,
+        le=2**34,
+        description="larger JSON responses are not sent; the caller gets a 422 naming "
+        "what to reduce",
+    )
     max_candidates: int = Field(20_000, ge=1, description="largest limits.max_candidates accepted")
     default_max_candidates: int = Field(
         5_000, ge=1, description="limits.max_candidates when omitted"
@@ -70,10 +111,36 @@ class Settings(BaseSettings):
     api_token: SecretStr | None = Field(
         None, description="if set, /v1/* requires 'Authorization: Bearer <token>'"
     )
+    metrics_public: bool = Field(
+        False,
+        description="with an API token set, /metrics needs the token too unless this is true "
+        "(then restrict it at the network level)",
+    )
+    docs_public: bool | None = Field(
+        None,
+        description="whether /docs, /redoc and /openapi.json answer without the token; "
+        "default: public only when no API token is set",
+    )
     cors_origins: Annotated[list[str], NoDecode] = Field(
         default_factory=list,
         description="browser origins allowed to call the API: a JSON list "
         "or a comma-separated list of scheme://host[:port]; empty allows none",
+    )
+    model_key: SecretStr | None = Field(
+        None,
+        description="secret (32 or more visible ASCII characters) that signs model "
+        "artifacts with HMAC-SHA-256; unset: artifacts are marked unsigned and anyone "
+        "can forge one",
+    )
+    model_key_id: str = Field(
+        "k1",
+        description="name of the current model key, written into every signature so keys "
+        "can rotate (letters, digits, '.', '_', '-')",
+    )
+    model_previous_keys: Annotated[dict[str, SecretStr], NoDecode] = Field(
+        default_factory=dict,
+        description="earlier model keys still accepted by /v1/predictions: a JSON object "
+        "{key id: key} or a comma-separated list of id:key",
     )
     log_level: Literal["critical", "error", "warning", "info", "debug"] = Field(
         "info", description="level of the JSON log lines"
@@ -95,6 +162,54 @@ class Settings(BaseSettings):
                 raise ValueError(
                     "the API token must be at least 16 visible ASCII characters without spaces"
                 )
+        return v
+
+    @field_validator("model_key", mode="before")
+    @classmethod
+    def _model_key(cls, v):
+        if isinstance(v, str):
+            v = v.strip()
+            if not v:
+                return None
+            _check_model_key(v)
+        return v
+
+    @field_validator("model_key_id")
+    @classmethod
+    def _model_key_id(cls, v):
+        if not _KEY_ID.match(v):
+            raise ValueError(f"model key id {v!r} must be 1 to 64 letters, digits, '.', '_' or '-'")
+        return v
+
+    @field_validator("model_previous_keys", mode="before")
+    @classmethod
+    def _previous_keys(cls, v):
+        if isinstance(v, str):
+            text = v.strip()
+            if text.startswith("{"):
+                try:
+                    v = json.loads(text)
+                except ValueError:
+                    raise ValueError("previous model keys are not a JSON object") from None
+            else:
+                v = {}
+                for part in (p.strip() for p in text.split(",")):
+                    if not part:
+                        continue
+                    kid, sep, key = part.partition(":")
+                    if not sep:
+                        raise ValueError(
+                            "previous model keys must be written id:key (comma-separated)"
+                        )
+                    v[kid.strip()] = key.strip()
+        if isinstance(v, dict):
+            for kid, key in v.items():
+                if not isinstance(kid, str) or not _KEY_ID.match(kid):
+                    raise ValueError(
+                        f"model key id {kid!r} must be 1 to 64 letters, digits, '.', '_' or '-'"
+                    )
+                if isinstance(key, str):
+                    _check_model_key(key)
         return v
 
     @field_validator("cors_origins", mode="before")
@@ -130,11 +245,37 @@ class Settings(BaseSettings):
                 f"default_time_limit_s ({self.default_time_limit_s:g}) exceeds "
                 f"max_time_limit_s ({self.max_time_limit_s:g})"
             )
+        if self.model_key is None and self.model_previous_keys:
+            raise ValueError(
+                "previous model keys are set but BESTSCALE_MODEL_KEY is not; set the "
+                "current key too"
+            )
+        if self.model_key_id in self.model_previous_keys:
+            raise ValueError(
+                f"model key id {self.model_key_id!r} is both the current and a previous key"
+            )
         return self
+
+    def model_keys(self) -> tuple[str, dict[str, bytes]] | None:
+        """(current key id, {key id: key bytes} including the current one), or None
+        when artifacts are not signed."""
+        if self.model_key is None:
+            return None
+        keys = {k: v.get_secret_value().encode() for k, v in self.model_previous_keys.items()}
+        keys[self.model_key_id] = self.model_key.get_secret_value().encode()
+        return self.model_key_id, keys
 
     def token(self) -> str | None:
         """The API token in clear, or None when the API is open."""
         return self.api_token.get_secret_value() if self.api_token is not None else None
+
+
+def _check_model_key(v: str) -> None:
+    if len(v) < MIN_MODEL_KEY_CHARS or not _TOKEN.match(v):
+        raise ValueError(
+            f"a model key must be at least {MIN_MODEL_KEY_CHARS} visible ASCII characters "
+            "without spaces (for example 64 hex digits from a random source)"
+        )
 
 
 @lru_cache(maxsize=1)

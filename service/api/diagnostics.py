@@ -13,6 +13,7 @@ from ..core.search import SearchOptions
 from ..middleware import note_result
 from ..version import __version__
 from .encode import JSONBody
+from .intake import check_table
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn, SpecificationIn, ValidationIn, _Strict
@@ -73,6 +74,7 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
         alpha=req.alpha,
         units=dict(req.units),
     )
+    check_table(req.data.as_dict())
     with compute_slot():
         try:
             prep = prepare(

@@ -8,6 +8,9 @@ import numpy as np
 import orjson
 from starlette.responses import Response
 
+from ..core.errors import InputError
+from ..settings import get_settings
+
 
 def to_jsonable(obj):
     """Plain Python containers; raises ValueError on NaN/Infinity (a bug, never shipped)."""
@@ -33,4 +36,13 @@ class JSONBody(Response):
     media_type = "application/json"
 
     def render(self, content) -> bytes:
-        return orjson.dumps(to_jsonable(content))
+        out = orjson.dumps(to_jsonable(content))
+        limit = get_settings().max_response_bytes
+        if len(out) > limit:
+            raise InputError.at(
+                "",
+                f"the answer would be {len(out)} bytes, over the limit of {limit} "
+                "(setting BESTSCALE_MAX_RESPONSE_BYTES); ask for fewer ranking entries "
+                "('top'), fewer rows to predict or fewer plot points",
+            )
+        return out

@@ -31,6 +31,21 @@ from ..errors import ProblemError
 
 _KEY_END_SPACED = re.compile(rb'"[ \t\r\n]+:')
 _CONTAINERS = (dict, list)
+MAX_DEPTH = 64  # nesting of objects and arrays; a request needs fewer than 10 levels
+
+
+def too_deep() -> ProblemError:
+    detail = (
+        f"the JSON nests objects and arrays more than {MAX_DEPTH} levels deep; no request "
+        "field needs more than a few levels"
+    )
+    return ProblemError(
+        400,
+        "malformed-body",
+        "Malformed JSON body",
+        detail,
+        [{"pointer": "", "detail": detail}],
+    )
 
 
 def _key_ends(body: bytes) -> int:
@@ -41,22 +56,29 @@ def _key_ends(body: bytes) -> int:
 
 
 def _kept_keys(value) -> int:
+    """Keys kept in every object of the parsed value; refuses nesting past MAX_DEPTH."""
     total = 0
-    stack = [value]
+    stack = [(value, 1)]
     while stack:
-        v = stack.pop()
+        v, depth = stack.pop()
+        if depth > MAX_DEPTH:
+            raise too_deep()
         if type(v) is dict:
             total += len(v)
-            stack.extend(x for x in v.values() if type(x) in _CONTAINERS)
+            stack.extend((x, depth + 1) for x in v.values() if type(x) in _CONTAINERS)
         elif type(v) is list:
             kinds = set(map(type, v))
             if kinds == {dict}:  # records: count and look inside at C speed
                 total += sum(map(len, v))
                 inner = set(map(type, chain.from_iterable(map(dict.values, v))))
                 if dict in inner or list in inner:
-                    stack.extend(x for d in v for x in d.values() if type(x) in _CONTAINERS)
+                    if depth + 2 > MAX_DEPTH:
+                        raise too_deep()
+                    stack.extend(
+                        (x, depth + 2) for d in v for x in d.values() if type(x) in _CONTAINERS
+                    )
             elif dict in kinds or list in kinds:
-                stack.extend(x for x in v if type(x) in _CONTAINERS)
+                stack.extend((x, depth + 1) for x in v if type(x) in _CONTAINERS)
     return total
 
 
@@ -103,8 +125,11 @@ def duplicate_key(body: bytes, value) -> tuple[str, str] | None:
     """(pointer of the object, repeated key) of the first object repeating a key, or None."""
     if _key_ends(body) == _kept_keys(value):
         return None
-    exact = json.loads(body, object_pairs_hook=_pairs)  # orjson already refused NaN/Infinity
-    return _find_repeated(exact)
+    try:
+        exact = json.loads(body, object_pairs_hook=_pairs)  # orjson refused NaN/Infinity
+        return _find_repeated(exact)
+    except RecursionError:  # unreachable past the depth check above; kept as a guard
+        raise too_deep() from None
 
 
 def parse(body: bytes):

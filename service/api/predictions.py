@@ -7,11 +7,11 @@ from typing import Any
 from fastapi import APIRouter
 from pydantic import BaseModel, ConfigDict, Field
 
-from ..core.errors import InputError
 from ..core.predict import load_model, predict
 from ..middleware import note_result
 from ..settings import get_settings
 from .encode import JSONBody
+from .intake import check_table
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn
@@ -31,20 +31,8 @@ class PredictionRequest(BaseModel):
 
 def run_prediction_request(req: PredictionRequest) -> dict:
     data = req.data.as_dict()
-    if data["columns"] is not None:
-        n_rows = max((len(v) for v in data["columns"].values()), default=0)
-    elif data["records"] is not None:
-        n_rows = len(data["records"])
-    else:
-        n_rows = data["csv"].count("\n")
-    limit = get_settings().max_rows
-    if n_rows > limit:
-        raise InputError.at(
-            "/data",
-            f"the table has {n_rows} rows; this service accepts at most "
-            f"{limit} (setting BESTSCALE_MAX_ROWS)",
-        )
-    model = load_model(req.model)
+    check_table(data)
+    model = load_model(req.model, get_settings().model_keys())
     return predict(model, data, req.interval)
 
 

@@ -2,15 +2,16 @@
 
 from __future__ import annotations
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Request
 from starlette.responses import HTMLResponse
 
 from ..core.data import prepare
+from ..errors import ProblemError
 from ..middleware import note_result
 from ..report_html import CSP, render_report, report_plots
 from .encode import to_jsonable
 from .pool import compute_slot
-from .routes import run_selection_request
+from .routes import disconnect_probe, run_selection_request
 from .routing import StrictRoute
 from .schemas import SelectionRequest
 
@@ -19,13 +20,22 @@ router = APIRouter(route_class=StrictRoute)
 HTML_TYPE = "text/html"
 
 
-def selection_report(req: SelectionRequest) -> str:
+def selection_report(req: SelectionRequest, stop=None) -> str:
     """Run the selection of ``req`` and return the report page (call inside a compute slot).
 
     The page is drawn from the JSON-ready body (private keys dropped, non-finite numbers
     refused, exactly as the JSON response), so every number on it is the response's.
     """
-    body = to_jsonable(run_selection_request(req))
+    result = run_selection_request(req, stop=stop)
+    if stop is not None and stop():
+        # nobody will read the page: skip the figures and free the compute slot now
+        raise ProblemError(
+            400,
+            "client-disconnected",
+            "Client disconnected",
+            "the client closed the connection before the report was ready",
+        )
+    body = to_jsonable(result)
     note_result(body)
     # The rows the selection used, again: the plot data needs them and the selection body
     # does not carry them.  Every check already passed in the selection above.
@@ -48,10 +58,11 @@ def selection_report(req: SelectionRequest) -> str:
     return render_report(body, plots, context)
 
 
-def report_response(req: SelectionRequest) -> HTMLResponse:
+def report_response(req: SelectionRequest, request: Request | None = None) -> HTMLResponse:
     """The report as an HTTP response: text/html that forbids every fetch and script."""
+    stop = disconnect_probe(request) if request is not None else None
     with compute_slot():
-        page = selection_report(req)
+        page = selection_report(req, stop)
     return HTMLResponse(
         page, headers={"Content-Security-Policy": CSP, "X-Content-Type-Options": "nosniff"}
     )
@@ -92,5 +103,5 @@ def wants_html(accept: str) -> bool:
     ),
     responses={200: {"content": {HTML_TYPE: {}}}},
 )
-def post_reports(req: SelectionRequest):
-    return report_response(req)
+def post_reports(req: SelectionRequest, request: Request):
+    return report_response(req, request)

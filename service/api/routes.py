@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import time
 from collections.abc import Callable, Iterable
 from typing import Any
 
@@ -12,11 +13,13 @@ from ..core import transforms as tr
 from ..core.cautions import selection_cautions
 from ..core.data import prepare
 from ..core.errors import InputError
+from ..core.model import sign_all
 from ..core.search import SearchOptions, run_grouped, run_selection
 from ..middleware import note_result
 from ..settings import get_settings
 from ..version import __version__
 from .encode import JSONBody
+from .intake import check_table
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import SelectionRequest, transform_items
@@ -24,14 +27,9 @@ from .schemas import SelectionRequest, transform_items
 router = APIRouter(route_class=StrictRoute)
 
 
-def _check_size(req_rows: int, n_columns: int) -> None:
+def _check_size(data: dict, n_columns: int) -> None:
     s = get_settings()
-    if req_rows > s.max_rows:
-        raise InputError.at(
-            "/data",
-            f"the table has {req_rows} rows; this service accepts at "
-            f"most {s.max_rows} (setting BESTSCALE_MAX_ROWS)",
-        )
+    check_table(data)
     if n_columns > s.max_columns:
         raise InputError.at(
             "/predictors",
@@ -40,7 +38,25 @@ def _check_size(req_rows: int, n_columns: int) -> None:
         )
 
 
-def selection_options(req: SelectionRequest) -> SearchOptions:
+def disconnect_probe(request: Request):
+    """``() -> bool`` for a computing thread: True once the client has gone away.
+
+    Runs ``request.is_disconnected`` on the event loop from the route's worker thread; the
+    search asks it between candidates (at most a few times a second), so a caller that hung
+    up frees its compute slot instead of holding it to the time limit.
+    """
+    import anyio.from_thread
+
+    def gone() -> bool:
+        try:
+            return bool(anyio.from_thread.run(request.is_disconnected))
+        except RuntimeError:  # not in a worker thread of the event loop
+            return False
+
+    return gone
+
+
+def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
     s = get_settings()
     max_c = req.limits.max_candidates or s.default_max_candidates
     if max_c > s.max_candidates:
@@ -69,21 +85,18 @@ def selection_options(req: SelectionRequest) -> SearchOptions:
         units=dict(req.units),
         strategy=req.strategy,
         incumbent=req.incumbent.as_dict() if req.incumbent is not None else None,
+        deadline_at=time.time() + tl,  # one deadline: search, stability and optimism
+        stop=stop,
     )
 
 
-def run_selection_request(req: SelectionRequest, progress=None) -> dict:
+def run_selection_request(
+    req: SelectionRequest, progress=None, stop=None, group_mapper=None
+) -> dict:
+    """The selection body for a validated request.  ``group_mapper(fn, items)``, when given,
+    runs the groups of a ``group_by`` request (the command line's Dask cluster), in order."""
     data = req.data.as_dict()
-    n_rows = (
-        len(data["records"])
-        if data["records"] is not None
-        else (
-            max((len(v) for v in data["columns"].values()), default=0)
-            if data["columns"] is not None
-            else data["csv"].count("\n")
-        )
-    )
-    _check_size(n_rows, 1 + len(req.predictors))
+    _check_size(data, 1 + len(req.predictors))
     if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
         for col in req.transforms.predictors:
             if col not in req.predictors:
@@ -93,7 +106,7 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
     prep = prepare(
         data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
     )
-    opts = selection_options(req)
+    opts = selection_options(req, stop)
     if req.group_by is not None:
         if req.trust.stability or req.trust.optimism:
             raise InputError.at(
@@ -114,7 +127,17 @@ def run_selection_request(req: SelectionRequest, progress=None) -> dict:
         mapper: Callable[..., Iterable[Any]] = map
         if progress is not None:
             progress.total = n_groups
-        if get_settings().group_processes > 1:
+        if group_mapper is not None:
+            each = group_mapper
+
+            def mapped_with_progress(fn, items):
+                for result in each(fn, items):
+                    yield result
+                    if progress is not None:
+                        progress.step()
+
+            mapper = mapped_with_progress
+        elif get_settings().group_processes > 1:
             from ..core.workers import process_mapper
 
             mapper = process_mapper(
@@ -157,6 +180,7 @@ def _finish(body: dict, opts: SearchOptions) -> dict:
         not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
         for e in body.get("ranking", [])
     )
+    sign_all(body, get_settings().model_keys())
     return {
         "service_version": __version__,
         **body,
@@ -175,9 +199,9 @@ def post_selections(req: SelectionRequest, request: Request):
     from .reports import report_response, wants_html  # reports imports this module
 
     if wants_html(request.headers.get("accept", "")):
-        return report_response(req)  # the page of POST /v1/reports
+        return report_response(req, request)  # the page of POST /v1/reports
     with compute_slot():
-        body = run_selection_request(req)
+        body = run_selection_request(req, stop=disconnect_probe(request))
     note_result(body)
     return JSONBody(body)
 

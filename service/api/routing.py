@@ -97,15 +97,89 @@ def _problem(status: int, kind: str, title: str, pointer: str, detail: str) -> P
     return ProblemError(status, kind, title, detail, [{"pointer": pointer, "detail": detail}])
 
 
+def _parquet_limits(raw: bytes):
+    """Open a Parquet file and check rows, columns and decoded size from its footer alone,
+    before any page is decompressed; return the open file."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from ..settings import get_settings
+
+    try:
+        pf = pq.ParquetFile(io.BytesIO(raw))
+        meta = pf.metadata
+        rows, ncols = meta.num_rows, meta.num_columns
+        size = sum(meta.row_group(i).total_byte_size for i in range(meta.num_row_groups))
+    except (pa.ArrowException, OSError) as exc:
+        raise _problem(
+            422,
+            "invalid-input",
+            "Invalid request content",
+            "/file",
+            f"the uploaded file is not a readable Parquet file ({exc})",
+        ) from None
+    s = get_settings()
+    if rows > s.max_rows:
+        raise _problem(
+            422,
+            "invalid-input",
+            "Invalid request content",
+            "/file",
+            f"the Parquet file has {rows} rows; this service accepts at most {s.max_rows} "
+            "(setting BESTSCALE_MAX_ROWS)",
+        )
+    if ncols > s.max_table_columns:
+        raise _problem(
+            422,
+            "invalid-input",
+            "Invalid request content",
+            "/file",
+            f"the Parquet file has {ncols} columns; this service accepts at most "
+            f"{s.max_table_columns} in a table (setting BESTSCALE_MAX_TABLE_COLUMNS)",
+        )
+    if size > s.max_uncompressed_bytes:
+        raise _problem(
+            413,
+            "too-large",
+            "Uploaded table too large",
+            "/file",
+            f"the Parquet file decompresses to {size} bytes; the limit is "
+            f"{s.max_uncompressed_bytes} (setting BESTSCALE_MAX_UNCOMPRESSED_BYTES)",
+        )
+    return pf
+
+
+def _csv_limits(raw: bytes) -> None:
+    """Rows counted on the raw bytes before the text is decoded (the columns are counted
+    from the header with the JSON request's checks)."""
+    from ..settings import get_settings
+
+    s = get_settings()
+    rows = raw.count(b"\n") + (0 if raw.endswith(b"\n") else 1) - 1
+    if rows > s.max_rows:
+        raise _problem(
+            422,
+            "invalid-input",
+            "Invalid request content",
+            "/file",
+            f"the CSV file has {rows} rows; this service accepts at most {s.max_rows} "
+            "(setting BESTSCALE_MAX_ROWS)",
+        )
+
+
 def table_from_file(raw: bytes, filename: str | None) -> dict:
-    """The contract's Data object for an uploaded CSV or Parquet file."""
+    """The contract's Data object for an uploaded CSV or Parquet file.
+
+    Sizes are checked before anything is decoded: a Parquet file's rows, columns and
+    uncompressed bytes from its footer, a CSV file's rows from its line count.
+    """
     name = (filename or "").lower()
     if raw[:4] == PARQUET_MAGIC or name.endswith((".parquet", ".pq")):
         import pyarrow as pa
-        import pyarrow.parquet as pq
 
+        pf = _parquet_limits(raw)
         try:
-            table = pq.read_table(io.BytesIO(raw))
+            table = pf.read()
         except (pa.ArrowException, OSError) as exc:
             raise _problem(
                 422,
@@ -139,6 +213,7 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
                 )
             cols[str(col)] = arr.to_pylist()
         return {"columns": cols}
+    _csv_limits(raw)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -153,10 +228,51 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
     return {"csv": text}
 
 
+def _decode_in_slot(raw: bytes, filename: str | None) -> dict:
+    from .pool import compute_slot
+
+    with compute_slot():  # decoding a table is computation: it takes a slot (503 if none)
+        return table_from_file(raw, filename)
+
+
+def _closed(body: bytes, ctype: str) -> bool:
+    """True when the multipart body ends with its closing boundary ('--boundary--')."""
+    boundary = ""
+    for param in ctype.split(";")[1:]:
+        key, _, value = param.strip().partition("=")
+        if key.strip().lower() == "boundary":
+            boundary = value.strip().strip('"')
+    if not boundary:
+        return True  # the parser reports a missing boundary itself
+    return body.rstrip(b"\r\n\t ").endswith(b"--" + boundary.encode("latin-1") + b"--")
+
+
 async def assemble_upload(request: Request) -> dict:
-    """The JSON request body of a multipart upload: options plus ``data`` from the file."""
+    """The JSON request body of a multipart upload: options plus ``data`` from the file.
+
+    The body is read whole first (its size is already bounded): a body without its closing
+    boundary is refused rather than parsed into fewer parts, and a repeated part is refused
+    rather than letting one copy win.
+    """
     try:
-        form = await request.form(max_files=1, max_fields=4)
+        raw_body = await request.body()
+    except ClientDisconnect:
+        raise ProblemError(
+            400,
+            "malformed-body",
+            "Incomplete request body",
+            "the client disconnected before the body arrived whole",
+        ) from None
+    if not _closed(raw_body, request.headers.get("content-type", "")):
+        raise ProblemError(
+            400,
+            "malformed-body",
+            "Malformed multipart body",
+            "the multipart/form-data body ends without its closing boundary "
+            "('--<boundary>--'); it was cut off or built incorrectly, so parts may be missing",
+        )
+    try:
+        form = await request.form(max_files=2, max_fields=4)
     except Exception as exc:  # python-multipart's parse errors have no common public base
         raise ProblemError(
             400,
@@ -165,14 +281,23 @@ async def assemble_upload(request: Request) -> dict:
             f"the multipart/form-data body cannot be read ({exc})",
         ) from None
     try:
+        for part in (FILE_PART, OPTIONS_PART):
+            if len(form.getlist(part)) > 1:
+                raise _problem(
+                    422,
+                    "invalid-input",
+                    "Invalid request content",
+                    f"/{part}",
+                    f"the '{part}' part appears {len(form.getlist(part))} times; send it once",
+                )
         extra = [k for k in form if k not in (FILE_PART, OPTIONS_PART)]
         if extra:
             raise _problem(
                 422,
                 "invalid-input",
                 "Invalid request content",
-                f"/{extra[0]}",
-                f"unknown part '{extra[0]}'; send a '{FILE_PART}' part with the table "
+                f"/{extra[0][:64]}",
+                f"unknown part '{extra[0][:64]}'; send a '{FILE_PART}' part with the table "
                 f"and an '{OPTIONS_PART}' part with the other request fields as JSON",
             )
         upload = form.get(FILE_PART)
@@ -227,7 +352,10 @@ async def assemble_upload(request: Request) -> dict:
                 f"/{FILE_PART}",
                 "the uploaded file is empty",
             )
-        body["data"] = table_from_file(raw, getattr(upload, "filename", None))
+        # off the event loop (a large file decodes for seconds) and inside a compute slot
+        body["data"] = await anyio.to_thread.run_sync(
+            _decode_in_slot, raw, getattr(upload, "filename", None)
+        )
         return body
     finally:
         await form.close()

@@ -12,6 +12,7 @@ from typing import Annotated, Any, Literal, overload
 
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
+from ..core import transforms as tr
 from ..core.strategy import EXHAUSTIVE_LIMIT
 
 TransformName = Literal[
@@ -103,8 +104,8 @@ class TransformIn(_Strict):
         None,
         ge=-10,
         le=10,
-        description="power only: the exponent, non-zero, in "
-        "[-10, 10] (use log for 0); required in a specification, "
+        description="power only: the exponent, with 0.001 <= |exponent| <= 10 "
+        "(use log for 0); required in a specification, "
         "omitted in transforms.predictors to estimate the power",
         examples=[0.5],
     )
@@ -114,7 +115,8 @@ class TransformIn(_Strict):
         ge=-5,
         le=5,
         description="box_cox / yeo_johnson: a fixed lambda in [-5, 5]; "
-        "omit to estimate it from the data",
+        "|lambda| < 0.001 is treated as 0 (the log), and for yeo_johnson |lambda - 2| < "
+        "0.001 as 2, also for estimated lambdas; omit to estimate it from the data",
         examples=[0.25],
     )
     reference: str | None = Field(
@@ -138,9 +140,10 @@ class TransformIn(_Strict):
         if self.name == "power":
             if self.exponent is None:  # a search option: estimate the power (specifications
                 return self  # refuse it, see _FixedPower)
-            if abs(self.exponent) < 1e-12:
+            if abs(self.exponent) < tr.EXPONENT_FLOOR:
                 raise ValueError(
-                    "power 'exponent' must be non-zero and within [-10, 10] (use log for 0)"
+                    f"power 'exponent' {self.exponent:g} is too close to 0: it must satisfy "
+                    f"{tr.EXPONENT_FLOOR:g} <= |exponent| <= 10 (use log, the limit at 0)"
                 )
         elif self.exponent is not None:
             raise ValueError(f"'exponent' applies only to power, not {self.name}")

@@ -62,17 +62,23 @@ def _rho_ok_cached(p: float) -> float:
     acc = np.concatenate([[0.0], np.cumsum(np.log(np.maximum(np.abs(p - j), 1e-300) / (j + 1)))])
     logs = acc[J : t0 + 1]  # log |C(p, t)| for t = J .. t0
     q = max(1.0, (t0 - p) / (t0 + 1))
+    ok = np.empty(_RHO_GRID.size, dtype=bool)
+    # rows of the grid in blocks of at most _MAX_CELLS cells: memory stays bounded for any p
+    step = max(1, _MAX_CELLS // len(logs))
+    powers_t = (J + np.arange(len(logs)))[None, :]
+    for a in range(0, _RHO_GRID.size, step):
+        rho = _RHO_GRID[a : a + step]
+        expo = np.asarray(logs)[None, :] + powers_t * np.log(rho)[:, None]
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            terms = np.exp(np.minimum(expo, 700.0))
+            tail = terms[:, :-1].sum(axis=1)
+            last = terms[:, -1]
+            tail = tail + (last if poly else np.where(rho * q < 1, last / (1.0 - rho * q), np.inf))
+            tail = np.where(np.max(expo, axis=1) > 700, np.inf, tail)
+            m = (1.0 - rho) ** p if p > 0 else (1.0 + rho) ** p
+            ok[a : a + step] = tail / m <= TREE_RTOL
+        del expo, terms
     rho = _RHO_GRID
-    lr = np.log(rho)
-    expo = np.asarray(logs)[None, :] + (J + np.arange(len(logs)))[None, :] * lr[:, None]
-    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        terms = np.exp(np.minimum(expo, 700.0))
-        tail = terms[:, :-1].sum(axis=1)
-        last = terms[:, -1]
-        tail = tail + (last if poly else np.where(rho * q < 1, last / (1.0 - rho * q), np.inf))
-        tail = np.where(np.max(expo, axis=1) > 700, np.inf, tail)
-        m = (1.0 - rho) ** p if p > 0 else (1.0 + rho) ** p
-        ok = tail / m <= TREE_RTOL
     if not ok[0]:
         return 0.0
     bad = np.flatnonzero(~ok)
@@ -80,6 +86,7 @@ def _rho_ok_cached(p: float) -> float:
 
 
 _RHO_GRID = np.geomspace(1e-9, 0.9, 160)
+_MAX_CELLS = 1 << 18  # 2 MB per temporary array of the remainder bound
 
 
 @lru_cache(maxsize=256)

@@ -12,6 +12,7 @@ import csv
 import hashlib
 import io
 import math
+from collections import Counter
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any, cast
@@ -21,6 +22,19 @@ import numpy as np
 from .errors import FieldProblem, InputError, pointer
 
 DROPPED_LIST_CAP = 100
+PROBLEMS_LISTED = 20  # field problems listed in one error
+LENGTHS_LISTED = 10  # column lengths quoted in the unequal-lengths message
+MAX_LEVEL_CHARS = 256  # a categorical level or group value, like a column name
+SHOWN_CHARS = 60  # a caller's value quoted in a message is cut to this many characters
+
+
+def shown(v: object, limit: int = SHOWN_CHARS) -> str:
+    """``repr`` of a caller's value for a message, cut so an error never echoes megabytes."""
+    if isinstance(v, str) and len(v) > limit:
+        return repr(v[:limit]) + f"... ({len(v)} characters)"
+    return repr(v)
+
+
 _MISSING_KEY = object()
 _NON_FINITE_WORDS = {
     "nan",
@@ -71,20 +85,26 @@ def _from_columns(cols: dict[str, Any]) -> RawTable:
             "data.columns is empty; send at least the response and one predictor column",
         )
     lengths = {k: len(v) for k, v in cols.items()}
-    n = max(lengths.values())
+    longest = max(lengths, key=lengths.__getitem__)  # once: the check stays linear in the columns
+    n = lengths[longest]
     bad = [k for k, ln in lengths.items() if ln != n]
     if bad:
         first = next(iter(lengths))
         problems = [
             FieldProblem(
                 pointer("data", "columns", k),
-                f"column '{k}' has {lengths[k]} values but column "
-                f"'{max(lengths, key=lengths.__getitem__)}' has {n}",
+                f"column '{k}' has {lengths[k]} values but column '{longest}' has {n}",
             )
-            for k in bad
+            for k in bad[:PROBLEMS_LISTED]
         ]
+        shown = ", ".join(f"{k}: {v}" for k, v in list(lengths.items())[:LENGTHS_LISTED])
+        more = (
+            f" and {len(lengths) - LENGTHS_LISTED} more columns"
+            if len(lengths) > LENGTHS_LISTED
+            else ""
+        )
         raise InputError(
-            f"columns have unequal lengths ({', '.join(f'{k}: {v}' for k, v in lengths.items())}); "
+            f"columns have unequal lengths ({shown}{more}; {len(bad)} differ from the longest); "
             f"every column needs one value per row (first column '{first}')",
             problems,
         )
@@ -131,9 +151,13 @@ def _from_csv(text: str) -> RawTable:
     rows = [r for r in dialect_rows if r]  # blank lines carry no row
     header = [h.strip() for h in rows[0]]
     if len(set(header)) != len(header):
-        dup = sorted({h for h in header if header.count(h) > 1})
+        counts = Counter(header)  # linear: no count() per name
+        dup = sorted(h for h, c in counts.items() if c > 1)
+        shown = dup[:PROBLEMS_LISTED]
+        more = f" and {len(dup) - len(shown)} more" if len(dup) > len(shown) else ""
         raise InputError.at(
-            "/data/csv", f"data.csv header repeats column name(s) {dup}; names must be unique"
+            "/data/csv",
+            f"data.csv header repeats column name(s) {shown}{more}; names must be unique",
         )
     if any(h == "" for h in header):
         raise InputError.at("/data/csv", "data.csv header has an empty column name")
@@ -175,7 +199,7 @@ def _bad_numeric(col: RawColumn, i: int, v: object, role: str) -> InputError:
         hint += f", or list '{col.name}' in 'categorical' if it is a grouping"
     return InputError.at(
         col.cell_pointer(i),
-        f"{role} column '{col.name}' is numeric but {where} holds {v!r}; {hint}",
+        f"{role} column '{col.name}' is numeric but {where} holds {shown(v)}; {hint}",
     )
 
 
@@ -259,7 +283,16 @@ def as_categorical(col: RawColumn) -> TypedColumn:
                 "nested object; cells must be numbers, strings, booleans or null",
             )
         else:
-            vals[i] = _level_text(v)
+            text = _level_text(v)
+            if len(text) > MAX_LEVEL_CHARS:
+                where = _csv_where(col, i) if col.from_csv else f"row {i}"
+                raise InputError.at(
+                    col.cell_pointer(i),
+                    f"column '{col.name}' {where} holds a level of {len(text)} characters; "
+                    f"levels (and group values) may have at most {MAX_LEVEL_CHARS}; "
+                    "use a short code for each level",
+                )
+            vals[i] = text
     return TypedColumn(col.name, "categorical", vals, missing)
 
 
@@ -286,7 +319,7 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
             col.cell_pointer(i),
             (
                 f"predictor column '{col.name}' mixes numbers ({numbers}) and text ({strings}); "
-                f"{where} holds {col.values[i]!r}. Send null for a missing value, or list "
+                f"{where} holds {shown(col.values[i])}. Send null for a missing value, or list "
                 f"'{col.name}' in 'categorical' to treat every value as a level"
             ),
         )
@@ -376,6 +409,7 @@ def prepare(
     if not predictors:
         problems.append(FieldProblem("/predictors", "predictors needs at least one column"))
     seen = set()
+    predictor_set = set(predictors)  # membership tests stay linear in the request
     for i, p in enumerate(predictors):
         if p not in known:
             problems.append(
@@ -397,7 +431,7 @@ def prepare(
             )
         seen.add(p)
     for i, c in enumerate(categorical):
-        if c not in predictors:
+        if c not in predictor_set:
             problems.append(
                 FieldProblem(
                     pointer("categorical", i),
@@ -409,7 +443,7 @@ def prepare(
             problems.append(
                 FieldProblem("/group_by", f"group_by column '{group_by}' is not in the data")
             )
-        elif group_by in (response, order) or group_by in predictors:
+        elif group_by in (response, order) or group_by in predictor_set:
             problems.append(
                 FieldProblem(
                     "/group_by",
@@ -420,7 +454,7 @@ def prepare(
     if order is not None:
         if order not in known:
             problems.append(FieldProblem("/order", f"order column '{order}' is not in the data"))
-        elif order == response or order in predictors:
+        elif order == response or order in predictor_set:
             problems.append(
                 FieldProblem(
                     "/order",

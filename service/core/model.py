@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import hashlib
+import hmac
 import json
 from typing import Any
 
 import numpy as np
 
 from .data import Prepared
+from .drift import profile
 from .fitting import OLSFit
 from .spec import Design, Specification
 
@@ -42,11 +44,62 @@ def _canon(v: Any) -> Any:
     return v
 
 
-def checksum(body: dict[str, Any]) -> str:
-    """SHA-256 over the canonical JSON of the artifact without its checksum field."""
-    clean = _canon({k: v for k, v in body.items() if k != "checksum"})
+UNSIGNED_FIELDS = ("checksum", "signature")
+
+
+def canonical_bytes(body: dict[str, Any]) -> bytes:
+    """The canonical JSON of the artifact without its checksum and signature fields."""
+    clean = _canon({k: v for k, v in body.items() if k not in UNSIGNED_FIELDS})
     text = json.dumps(clean, sort_keys=True, separators=(",", ":"), allow_nan=False)
-    return hashlib.sha256(text.encode()).hexdigest()
+    return text.encode()
+
+
+def checksum(body: dict[str, Any]) -> str:
+    """SHA-256 over the canonical JSON: detects accidental changes, not forgery."""
+    return hashlib.sha256(canonical_bytes(body)).hexdigest()
+
+
+SIGNATURE_ALGORITHM = "HMAC-SHA-256"
+UNSIGNED_NOTE = (
+    "the service that issued this model holds no model key (BESTSCALE_MODEL_KEY), so the "
+    "model is not signed and anyone can forge one its checksum accepts"
+)
+
+
+def signature_value(body: dict[str, Any], key_id: str, key: bytes) -> str:
+    """HMAC-SHA-256 (RFC 2104) with ``key`` over the key id, a newline and the canonical JSON."""
+    msg = key_id.encode() + b"\n" + canonical_bytes(body)
+    return hmac.new(key, msg, hashlib.sha256).hexdigest()
+
+
+def sign(body: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None) -> dict[str, Any]:
+    """Add the ``signature`` field in place: keyed with the current key, or marked unsigned."""
+    if keys is None:
+        body["signature"] = {"algorithm": "none", "key_id": None, "value": None}
+        body["signature"]["note"] = UNSIGNED_NOTE
+        return body
+    kid, ring = keys
+    body["signature"] = {
+        "algorithm": SIGNATURE_ALGORITHM,
+        "key_id": kid,
+        "value": signature_value(body, kid, ring[kid]),
+    }
+    return body
+
+
+def sign_all(node: object, keys: tuple[str, dict[str, bytes]] | None) -> None:
+    """Sign every model artifact in a response body (``ranking[i].model``, grouped too)."""
+    stack = [node]
+    while stack:
+        cur = stack.pop()
+        if isinstance(cur, dict):
+            for k, v in cur.items():
+                if k == "model" and isinstance(v, dict) and "format_version" in v:
+                    sign(v, keys)
+                elif isinstance(v, (dict, list)) and not k.startswith("_"):
+                    stack.append(v)
+        elif isinstance(cur, list) and cur and isinstance(cur[0], (dict, list)):
+            stack.extend(x for x in cur if isinstance(x, (dict, list)))  # not number arrays
 
 
 def library_versions() -> dict[str, Any]:
@@ -92,6 +145,8 @@ def build_model(
         "response_range": {"min": float(np.min(prep.y)), "max": float(np.max(prep.y))},
         "max_leverage": float(np.max(hat)),
         "data_fingerprint": prep.fingerprint(),
+        # what the training rows looked like, so a later run can measure drift (core/drift.py)
+        "data_profile": profile(prep, [p.column for p in spec.predictors]),
         "options": options or {},
     }
     body["checksum"] = checksum(body)

@@ -34,15 +34,31 @@ from scipy import stats
 from . import retransform
 from . import transforms as tr
 from ._types import FloatArray
-from .data import RawColumn, as_categorical, as_numeric, read_table
+from .data import RawColumn, as_categorical, as_numeric, read_table, shown
 from .errors import FieldProblem, InputError, pointer
-from .model import FORMAT_VERSION, checksum
+from .model import (
+    FORMAT_VERSION,
+    MAX_STORED_RESIDUALS,
+    SIGNATURE_ALGORITHM,
+    checksum,
+    signature_value,
+)
 from .spec import PredictorSpec, Specification
 
 KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
 MAX_PROBLEMS = 20
 ROWS_LISTED = 5
 LEVERAGE_RTOL = 1e-9  # a training row recomputed may exceed the stored maximum by rounding
+# bounds an issued artifact always satisfies; the same as a request's where one exists
+MAX_NAME_CHARS = 256  # column names and level strings
+MAX_LEVELS = 10_000  # levels of one categorical predictor
+MAX_PREDICTORS = 1000
+MAX_TRAINING_ROWS = 2**40
+MAX_ABS = 1e300  # coefficients, variances, ranges: finite with room for arithmetic
+SHIFT_BOUND = 1e15
+EXPONENT_BOUND = 10.0
+LAMBDA_BOUND = 5.0
+VARIANCE_RTOL = 1e-6  # stored residual variance vs the stored residuals ('all')
 
 
 @dataclass(frozen=True)
@@ -89,6 +105,65 @@ def _first_non_finite(d: object) -> str | None:
     return None
 
 
+def _cut(v: object, limit: int = 2000) -> str:
+    text = repr(v)
+    return text if len(text) <= limit else text[:limit] + f"... ({len(text)} characters)"
+
+
+def _is_name(v: object) -> bool:
+    return isinstance(v, str) and 1 <= len(v) <= MAX_NAME_CHARS
+
+
+def _check_signature(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None) -> None:
+    """Refuse a model whose HMAC does not verify under a key this service holds.
+
+    With no key configured, unsigned models are accepted (the checksum alone guards
+    against accidents, not forgery) and a signed one cannot be verified, so it is refused.
+    """
+    sig = d.get("signature")
+    algo = sig.get("algorithm") if isinstance(sig, dict) else None
+    if sig is None or algo == "none":
+        if keys is not None:
+            raise InputError.at(
+                "/model/signature",
+                "the model is not signed, and this service accepts only models signed with "
+                "its key; refit it with this service to get a signed model",
+            )
+        return
+    if algo != SIGNATURE_ALGORITHM:
+        raise InputError.at(
+            "/model/signature/algorithm",
+            f"signature algorithm {shown(algo)} is not one this service uses "
+            f"('{SIGNATURE_ALGORITHM}'); send the model exactly as the service issued it",
+        )
+    kid, value = sig.get("key_id"), sig.get("value")
+    if not isinstance(kid, str) or not isinstance(value, str):
+        raise InputError.at(
+            "/model/signature",
+            "the signature needs a string 'key_id' and 'value'; send the model exactly as "
+            "the service issued it",
+        )
+    if keys is None:
+        raise InputError.at(
+            "/model/signature/key_id",
+            f"the model is signed with key '{kid[:64]}', but this service holds no model key "
+            "(setting BESTSCALE_MODEL_KEY), so it cannot verify it",
+        )
+    ring = keys[1]
+    if kid not in ring:
+        raise InputError.at(
+            "/model/signature/key_id",
+            f"the model is signed with key '{kid[:64]}', which this service does not hold "
+            "(retired or never issued); refit the model with this service",
+        )
+    if not hmac.compare_digest(value, signature_value(d, kid, ring[kid])):
+        raise InputError.at(
+            "/model/signature/value",
+            "the model's signature does not match its content: it was modified or forged "
+            "after it was issued; send it back unchanged or refit it",
+        )
+
+
 def _need(d: dict[str, Any], key: str, ptr: str) -> Any:
     if key not in d:
         raise InputError.at(
@@ -114,13 +189,28 @@ def _transform(d: object, ptr: str, role: str) -> tr.Transform:
         )
     if name == "power":
         q = d.get("exponent")
-        if not _is_number(q) or q == 0:
-            raise InputError.at(ptr, "a power transform needs a non-zero numeric 'exponent'")
-    if name in ("box_cox", "yeo_johnson") and not _is_number(d.get("lambda")):
-        raise InputError.at(ptr, f"the model's {name} transform has no numeric 'lambda'")
-    if name == "log" and "shift" in d and not _is_number(d["shift"]):
+        if not _is_number(q) or not tr.EXPONENT_FLOOR <= abs(q) <= EXPONENT_BOUND:
+            raise InputError.at(
+                pointer(*ptr.strip("/").split("/"), "exponent"),
+                f"a power transform needs a numeric 'exponent' with {tr.EXPONENT_FLOOR:g} <= "
+                f"|exponent| <= {EXPONENT_BOUND:g}; the model was damaged or forged",
+            )
+    if name in ("box_cox", "yeo_johnson"):
+        lam = d.get("lambda")
+        if not _is_number(lam) or abs(lam) > LAMBDA_BOUND:
+            raise InputError.at(
+                pointer(*ptr.strip("/").split("/"), "lambda"),
+                f"the model's {name} transform needs a numeric 'lambda' within "
+                f"[-{LAMBDA_BOUND:g}, {LAMBDA_BOUND:g}]",
+            )
+    if (
+        name == "log"
+        and "shift" in d
+        and (not _is_number(d["shift"]) or abs(d["shift"]) > SHIFT_BOUND)
+    ):
         raise InputError.at(
-            pointer(*ptr.strip("/").split("/"), "shift"), "the log 'shift' must be a number"
+            pointer(*ptr.strip("/").split("/"), "shift"),
+            f"the log 'shift' must be a number within [-{SHIFT_BOUND:g}, {SHIFT_BOUND:g}]",
         )
     t = tr.from_dict(d)
     if t.name == "log" and t.shift is None:
@@ -134,20 +224,30 @@ def _specification(d: object) -> Specification:
     if not isinstance(d, dict):
         raise InputError.at(ptr, "the model's specification must be an object")
     resp = _need(d, "response", ptr)
-    if not isinstance(resp, dict) or not isinstance(resp.get("column"), str):
-        raise InputError.at(ptr + "/response", "the response must be an object with a 'column'")
+    if not isinstance(resp, dict) or not _is_name(resp.get("column")):
+        raise InputError.at(
+            ptr + "/response",
+            f"the response must be an object with a 'column' of 1 to {MAX_NAME_CHARS} characters",
+        )
     rt = _transform(
         resp.get("transform", {"name": "identity"}), ptr + "/response/transform", "response"
     )
     preds = _need(d, "predictors", ptr)
-    if not isinstance(preds, list) or not preds:
-        raise InputError.at(ptr + "/predictors", "the model needs a non-empty predictor list")
+    if not isinstance(preds, list) or not preds or len(preds) > MAX_PREDICTORS:
+        raise InputError.at(
+            ptr + "/predictors",
+            f"the model needs a predictor list of 1 to {MAX_PREDICTORS} entries",
+        )
     out = []
     seen = set()
     for j, p in enumerate(preds):
         pp = pointer("model", "specification", "predictors", j)
-        if not isinstance(p, dict) or not isinstance(p.get("column"), str):
-            raise InputError.at(pp, "each predictor must be an object with a 'column'")
+        if not isinstance(p, dict) or not _is_name(p.get("column")):
+            raise InputError.at(
+                pp,
+                f"each predictor must be an object with a 'column' of 1 to {MAX_NAME_CHARS} "
+                "characters",
+            )
         if p["column"] in seen:
             raise InputError.at(pp, f"predictor '{p['column']}' appears twice")
         seen.add(p["column"])
@@ -178,12 +278,14 @@ def _levels(d: object, spec: Specification) -> dict[str, dict[str, Any]]:
         ref = info.get("reference") if isinstance(info, dict) else None
         if (
             not isinstance(lv, list)
-            or len(lv) < 2
-            or not all(isinstance(v, str) for v in lv)
+            or not 2 <= len(lv) <= MAX_LEVELS
+            or not all(isinstance(v, str) and len(v) <= MAX_NAME_CHARS for v in lv)
             or len(set(lv)) != len(lv)
         ):
             raise InputError.at(
-                ptr + "/levels", f"'{col}' needs a list of two or more distinct level names"
+                ptr + "/levels",
+                f"'{col}' needs a list of 2 to {MAX_LEVELS} distinct level names of at most "
+                f"{MAX_NAME_CHARS} characters",
             )
         if ref not in lv:
             raise InputError.at(
@@ -210,13 +312,16 @@ def expected_terms(spec: Specification, levels: dict[str, dict[str, Any]]) -> li
     return names
 
 
-def load_model(d: dict[str, Any]) -> LoadedModel:
+def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = None) -> LoadedModel:
     """Validate an artifact and return it in array form.
 
     Checks, in order: ``format_version`` is one this service reads; every
     number is finite; the SHA-256 checksum matches (a mismatch means the model
-    was modified after it was issued); the specification, levels, terms and
-    array shapes agree with each other.  Every failure is an
+    was modified after it was issued); the HMAC-SHA-256 signature verifies under
+    one of ``keys`` (``(current id, {id: key})``; None: unsigned models accepted);
+    the specification, levels, terms and array shapes agree with each other and
+    every value lies within the bounds an issued artifact satisfies, so even a
+    correctly signed but damaged model cannot overflow.  Every failure is an
     :class:`InputError` pointing into ``/model``.
     """
     if not isinstance(d, dict):
@@ -226,8 +331,17 @@ def load_model(d: dict[str, Any]) -> LoadedModel:
         known = ", ".join(str(v) for v in KNOWN_FORMAT_VERSIONS)
         raise InputError.at(
             "/model/format_version",
-            f"model format_version {fv!r} is not one "
+            f"model format_version {shown(fv)} is not one "
             f"this service reads ({known}); refit the model with this service",
+        )
+    res = d.get("residuals")
+    values = res.get("values") if isinstance(res, dict) else None
+    if isinstance(values, list) and len(values) > MAX_STORED_RESIDUALS:
+        # before any walk over the content: an issued model never holds more
+        raise InputError.at(
+            "/model/residuals",
+            f"the model holds {len(values)} residuals; an issued model holds at most "
+            f"{MAX_STORED_RESIDUALS}; send the model exactly as the service issued it",
         )
     bad = _first_non_finite(d)
     if bad:
@@ -248,6 +362,7 @@ def load_model(d: dict[str, Any]) -> LoadedModel:
             "the model was modified after it was issued "
             "(its checksum does not match its content); send it back unchanged",
         )
+    _check_signature(d, keys)
 
     spec = _specification(_need(d, "specification", "/model"))
     levels = _levels(d.get("levels", {}), spec)
@@ -256,44 +371,98 @@ def load_model(d: dict[str, Any]) -> LoadedModel:
     if terms != want:
         raise InputError.at(
             "/model/terms",
-            f"the model's terms {terms!r} do not match its specification (expected {want!r})",
+            f"the model's terms {_cut(terms)} do not match its "
+            f"specification (expected {_cut(want)})",
         )
     p = len(want)
     coef = _need(d, "coefficients", "/model")
-    if not isinstance(coef, list) or len(coef) != p or not all(map(_is_number, coef)):
+    if (
+        not isinstance(coef, list)
+        or len(coef) != p
+        or not all(_is_number(v) and abs(v) <= MAX_ABS for v in coef)
+    ):
         raise InputError.at(
-            "/model/coefficients", f"coefficients must be {p} numbers, one per term"
+            "/model/coefficients",
+            f"coefficients must be {p} numbers of magnitude at most {MAX_ABS:g}, one per term",
         )
     V = _need(d, "xtx_inverse", "/model")
     if (
         not isinstance(V, list)
         or len(V) != p
-        or not all(isinstance(r, list) and len(r) == p and all(map(_is_number, r)) for r in V)
+        or not all(
+            isinstance(r, list)
+            and len(r) == p
+            and all(_is_number(v) and abs(v) <= MAX_ABS for v in r)
+            for r in V
+        )
     ):
         raise InputError.at(
-            "/model/xtx_inverse", f"xtx_inverse must be a {p} x {p} matrix of numbers"
+            "/model/xtx_inverse",
+            f"xtx_inverse must be a {p} x {p} matrix of numbers of magnitude at most {MAX_ABS:g}",
+        )
+    Va = np.array(V, dtype=float)
+    scale = float(np.max(np.abs(Va))) if Va.size else 0.0
+    if np.any(np.diag(Va) < 0) or not np.allclose(Va, Va.T, rtol=1e-8, atol=1e-10 * scale):
+        raise InputError.at(
+            "/model/xtx_inverse",
+            "xtx_inverse must be symmetric with a non-negative diagonal, as (X'X)^-1 is",
         )
     s2 = _number(
         _need(d, "residual_variance", "/model"), "/model/residual_variance", "residual_variance"
     )
-    if s2 < 0:
-        raise InputError.at("/model/residual_variance", "residual_variance must not be negative")
+    if not 0 <= s2 <= MAX_ABS:
+        raise InputError.at(
+            "/model/residual_variance",
+            f"residual_variance must lie in [0, {MAX_ABS:g}]",
+        )
     df = _need(d, "df_residual", "/model")
-    if not isinstance(df, int) or isinstance(df, bool) or df < 1:
+    if not isinstance(df, int) or isinstance(df, bool) or not 1 <= df <= MAX_TRAINING_ROWS:
         raise InputError.at("/model/df_residual", "df_residual must be a positive integer")
+    n_train = d.get("n")
+    if n_train is not None and (
+        not isinstance(n_train, int)
+        or isinstance(n_train, bool)
+        or not df < n_train <= MAX_TRAINING_ROWS
+    ):
+        raise InputError.at("/model/n", f"n must be an integer larger than df_residual ({df})")
     res = _need(d, "residuals", "/model")
+    values = res.get("values") if isinstance(res, dict) else None
     if (
         not isinstance(res, dict)
         or res.get("kind") not in ("all", "quantiles")
-        or not isinstance(res.get("values"), list)
-        or not res["values"]
-        or not all(map(_is_number, res["values"]))
+        or not isinstance(values, list)
+        or not 1 <= len(values) <= MAX_STORED_RESIDUALS
+        or not all(_is_number(v) and abs(v) <= MAX_ABS for v in values)
     ):
         raise InputError.at(
             "/model/residuals",
-            "residuals must be {kind: 'all' | 'quantiles', "
-            "values: [numbers]} with at least one value",
+            "residuals must be {kind: 'all' | 'quantiles', values: [numbers]} with 1 to "
+            f"{MAX_STORED_RESIDUALS} values (the most an issued model holds)",
         )
+    e = np.array(values, dtype=float)
+    if res["kind"] == "quantiles" and (
+        len(values) != MAX_STORED_RESIDUALS
+        or (n_train is not None and n_train <= MAX_STORED_RESIDUALS)
+    ):
+        raise InputError.at(
+            "/model/residuals",
+            f"a model keeps residual quantiles only past {MAX_STORED_RESIDUALS} rows, "
+            f"exactly {MAX_STORED_RESIDUALS} of them; the model was damaged or forged",
+        )
+    if res["kind"] == "all":
+        if n_train is not None and len(values) != n_train:
+            raise InputError.at(
+                "/model/residuals/values",
+                f"an 'all' residual list must hold n = {n_train} values, not {len(values)}",
+            )
+        with np.errstate(all="ignore"):
+            s2_res = float(np.sum(e * e)) / df
+        if not abs(s2_res - s2) <= VARIANCE_RTOL * max(s2_res, s2) + 1e-300:
+            raise InputError.at(
+                "/model/residual_variance",
+                f"residual_variance {s2:.6g} does not agree with the stored residuals "
+                f"({s2_res:.6g}); the model was damaged or forged",
+            )
     rng_in = _need(d, "training_range", "/model")
     if not isinstance(rng_in, dict):
         raise InputError.at("/model/training_range", "training_range must be an object")
@@ -314,6 +483,13 @@ def load_model(d: dict[str, Any]) -> LoadedModel:
                 f"the training range of '{pr.column}' must be {{min, max}} numbers with min <= max",
             )
         ranges[pr.column] = (float(r["min"]), float(r["max"]))
+    for col in rng_in:
+        if col not in ranges:
+            raise InputError.at(
+                pointer("model", "training_range", col),
+                f"a training range is given for '{col[:MAX_NAME_CHARS]}', which is not a "
+                "numeric predictor",
+            )
     hmax = _number(_need(d, "max_leverage", "/model"), "/model/max_leverage", "max_leverage")
     if not 0.0 <= hmax <= 1.0 + 1e-9:
         raise InputError.at("/model/max_leverage", "max_leverage must lie in [0, 1]")
@@ -321,11 +497,11 @@ def load_model(d: dict[str, Any]) -> LoadedModel:
         spec,
         tuple(want),
         np.array(coef, dtype=float),
-        np.array(V, dtype=float),
+        Va,
         s2,
         df,
         levels,
-        np.array(res["values"], dtype=float),
+        e,
         res["kind"],
         ranges,
         hmax,

@@ -68,6 +68,24 @@ class SearchOptions:
     units: dict[str, Any] = field(default_factory=dict)
     incumbent: dict[str, Any] | None = None  # contract Specification in use
     strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
+    # the end of the whole request (time.time()): search, stability and optimism share it
+    deadline_at: float | None = None
+    # () -> bool, True once the caller has gone; checked between candidates (in-process only)
+    stop: Callable[[], bool] | None = None
+
+    def __getstate__(self) -> dict[str, Any]:
+        state = dict(self.__dict__)
+        state["stop"] = None  # a callable of the request's thread does not cross processes
+        return state
+
+    def seconds_left(self) -> float:
+        """The time limit, or less when the request's own deadline comes first."""
+        if self.deadline_at is None:
+            return self.time_limit_s
+        return min(self.time_limit_s, self.deadline_at - time.time())
+
+    def stopped(self) -> bool:
+        return self.stop is not None and bool(self.stop())
 
 
 @dataclass
@@ -166,7 +184,7 @@ def run_selection(
     enrich each returned ranking entry.
     """
     t0 = time.perf_counter()
-    deadline = t0 + opts.time_limit_s
+    deadline = t0 + opts.seconds_left()
     resp = response_candidates(prep, opts)
     if not resp:
         raise InputError.at(
@@ -219,7 +237,7 @@ def run_selection(
     space = cand.build_space(prep, preds, index, opts.intercept, extra)
     scorer = Scorer(space.bank, prep.y, plan, shift_needed)
     ev = _Evaluator(prep, space, scorer, opts.intercept)
-    budget = Budget(opts.max_candidates, deadline)
+    budget = Budget(opts.max_candidates, deadline, opts.stop)
     counts = {"screened": 0}
     if strategy == "exhaustive":
         complete = _exhaustive(prep, resp, preds, opts, ev, budget, total, uniform)
@@ -329,7 +347,7 @@ def run_selection(
             f"(after screening {counts['screened']} on the model scale, see search.strategy). "
             "A specification it did not score may predict better; review the ranking."
         )
-        if budget.spent:
+        if budget.spent in ("time_limit_s", "max_candidates"):
             warnings.append(f"The screened search stopped at limits.{budget.spent}.")
     elif not search["complete"]:
         warnings.append(
@@ -611,8 +629,7 @@ def _exhaustive(
             break
     cands = _simplicity_sorted(cands)[: opts.max_candidates]
     for spec in cands:
-        if time.perf_counter() > budget.deadline:
-            budget.spent = "time_limit_s"
+        if not budget.in_time():
             return False
         ev(spec)
     if len(cands) < total:
@@ -815,7 +832,7 @@ def run_grouped(
 
     t0 = time.perf_counter()
     # one budget for the whole request, not per group (wall clock: shared by worker processes)
-    deadline = time.time() + opts.time_limit_s
+    deadline = time.time() + opts.seconds_left()
     parts = split_groups(prep)
     names = list(parts)
     tasks = [

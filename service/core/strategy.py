@@ -55,19 +55,39 @@ BEAM = 3
 MAX_SWEEPS = 4
 
 
+STOP_EVERY_S = 0.25
+
+
 class Budget:
     """Exact scorings left and the deadline; ``spent`` says why the search stopped."""
 
-    def __init__(self, max_candidates: int, deadline: float):
+    def __init__(
+        self, max_candidates: int, deadline: float, stop: Callable[[], bool] | None = None
+    ):
         self.left = max_candidates
         self.deadline = deadline
         self.spent: str | None = None
+        self.stop = stop  # () -> bool: the caller went away (checked at most every STOP_EVERY_S)
+        self._next_stop_check = 0.0
+
+    def in_time(self) -> bool:
+        """False past the deadline or once ``stop()`` says the caller is gone."""
+        now = time.perf_counter()
+        if now > self.deadline:
+            self.spent = self.spent or "time_limit_s"
+            return False
+        if self.stop is not None and now >= self._next_stop_check:
+            self._next_stop_check = now + STOP_EVERY_S
+            if self.stop():
+                self.spent = self.spent or "client_disconnected"
+                return False
+        return self.spent != "client_disconnected"
 
     def ok(self) -> bool:
         if self.left <= 0:
             self.spent = self.spent or "max_candidates"
-        elif time.perf_counter() > self.deadline:
-            self.spent = self.spent or "time_limit_s"
+        else:
+            self.in_time()
         return self.spent is None
 
 

@@ -28,6 +28,12 @@ from ._types import FloatArray
 
 LADDER = (-1.0, -0.5, 0.0, 0.5, 1.0, 2.0)
 _EPS = float(np.spacing(1.0)) * 64
+# Box-Cox / Yeo-Johnson lambdas with |lambda| below this are the log (lambda 0), and a
+# Yeo-Johnson lambda this close to 2 is 2: the inverses raise to the power 1/lambda, whose
+# cost and range grow without bound as lambda -> 0, while the scale differs from the log's
+# by less than lambda (log y)^2 / 2.  A power exponent must be at least this far from 0.
+PARAM_FLOOR = 1e-3
+EXPONENT_FLOOR = PARAM_FLOOR
 
 
 def _fmt_param(v: float) -> str:
@@ -44,6 +50,19 @@ class Transform:
     shift: float | None = None
     estimated: bool = False  # True when lam/shift came from the data
     reference: str | None = None  # categorical only
+
+    def __post_init__(self) -> None:
+        lam = self.lam
+        if self.name in ("box_cox", "yeo_johnson") and lam is not None:
+            if lam != 0.0 and abs(lam) < PARAM_FLOOR:
+                object.__setattr__(self, "lam", 0.0)
+            elif self.name == "yeo_johnson" and lam != 2.0 and abs(lam - 2.0) < PARAM_FLOOR:
+                object.__setattr__(self, "lam", 2.0)
+        if self.name == "power" and self.exponent is not None and abs(self.exponent) < PARAM_FLOOR:
+            # an estimated power this close to 0 is the log (requests refuse such exponents)
+            object.__setattr__(self, "name", "log")
+            object.__setattr__(self, "exponent", None)
+            object.__setattr__(self, "shift", 0.0)
 
     def _lambda(self) -> float:
         """The Box-Cox / Yeo-Johnson ``lambda``; an unfitted transform has none to use."""

@@ -229,16 +229,20 @@ def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
     return [where[id(s)] for s, p in ranked if p["within_one_se"]][: job.lead]
 
 
-def _resample_chunk(task: tuple[_StabilityJob, list[int], float]) -> list[Any]:
-    """Worker: ``(job, resample indices, wall-clock deadline)`` -> one result per index.
+def _resample_chunk(
+    task: tuple[_StabilityJob, list[int], float, Callable[[], bool] | None],
+) -> list[Any]:
+    """Worker: ``(job, resample indices, wall-clock deadline, stop)`` -> one result per index.
 
     ``None`` marks a resample not run because the deadline passed (``time.time``
     is shared by the processes of one machine).
     """
-    job, indices, deadline = task
+    job, indices, deadline, stop = task
     out: list[Any] = []
+    gone = False
     for b in indices:
-        if time.time() > deadline:
+        gone = gone or (stop is not None and stop())
+        if gone or time.time() > deadline:
             out.append(None)
             continue
         out.append(_one_resample(job, b))
@@ -318,7 +322,8 @@ def _stability(
         d = build_design(spec, prep, cache)
         designs.append((d.X, d.names))
     job = _StabilityJob(prep.y, designs, specs, opts.folds, opts.metric, opts.seed, lead)
-    tasks = [(job, part, deadline) for part in _chunks(list(range(resamples)), chunks)]
+    stop = opts.stop if mapper is map else None  # a worker process cannot ask the caller
+    tasks = [(job, part, deadline, stop) for part in _chunks(list(range(resamples)), chunks)]
     results = [r for chunk in mapper(_resample_chunk, tasks) for r in chunk]
 
     firsts: list[int] = []
@@ -595,6 +600,10 @@ def assess_trust(
         )
     k_out = opts.folds if outer_folds is None else int(outer_folds)
     budget = opts.time_limit_s if time_limit_s is None else float(time_limit_s)
+    # one deadline for the whole request: the search already spent part of it
+    end = time.time() + budget
+    if opts.deadline_at is not None:
+        end = min(end, opts.deadline_at)
     scored = selection.get("_scored") if selection is not None else None
     if scored is None:
         selection = run_selection(prep, replace(opts, top=1, incumbent=None), service_version)
@@ -610,8 +619,8 @@ def assess_trust(
     }
     warnings: list[str] = []
     name = label(winner.spec)
-    if stability:
-        st = _stability(prep, opts, scored, winner, resamples, time.time() + budget, mapper, chunks)
+    if stability and not opts.stopped():
+        st = _stability(prep, opts, scored, winner, resamples, end, mapper, chunks)
         det = st["details"]
         out.update(
             stability=st["share"],
@@ -639,10 +648,8 @@ def assess_trust(
                 f"Stability used {det['usable']} of {resamples} resamples before the "
                 "time limit; its interval is wider than asked for."
             )
-    if optimism:
-        op = _optimism(
-            prep, opts, winner, service_version, k_out, inner_folds, time.time() + budget, mapper
-        )
+    if optimism and not opts.stopped():
+        op = _optimism(prep, opts, winner, service_version, k_out, inner_folds, end, mapper)
         out["optimism"] = op
         if op.get("gap") is None:
             warnings.append(

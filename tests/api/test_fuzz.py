@@ -45,6 +45,7 @@ ENV = {
     "BESTSCALE_DEFAULT_MAX_CANDIDATES": "8",
     "BESTSCALE_MAX_CANDIDATES": "16",
     "BESTSCALE_POOL_SIZE": "4",
+    "BESTSCALE_DOCS_PUBLIC": "true",  # the fuzzer reads the schema without the token
 }
 
 

@@ -297,13 +297,25 @@ def test_token_required_on_v1_when_configured(make_app):
         scheme = c.get("/v1/transforms", headers={"Authorization": "Basic " + TOKEN})
         right = c.get("/v1/transforms", headers={"Authorization": "Bearer " + TOKEN})
         post = c.post(SEL, json=_sel())
-        health, metrics = c.get("/healthz"), c.get("/metrics")
-    for r in (missing, wrong, scheme, post):
+        health = c.get("/healthz")
+        metrics, docs = c.get("/metrics"), c.get("/openapi.json")
+        auth = {"Authorization": "Bearer " + TOKEN}
+        metrics_ok, docs_ok = c.get("/metrics", headers=auth), c.get("/openapi.json", headers=auth)
+    for r in (missing, wrong, scheme, post, metrics, docs):
         # source: RFC 6750 section 3 (401 with a WWW-Authenticate: Bearer challenge)
         assert _problem(r, 401)["type"].endswith(":unauthorized")
         assert r.headers["WWW-Authenticate"].startswith("Bearer")
     assert right.status_code == 200
-    assert health.status_code == 200 and metrics.status_code == 200  # operations stay open
+    assert health.status_code == 200  # liveness stays open for the orchestrator
+    assert metrics_ok.status_code == 200 and docs_ok.status_code == 200
+
+
+def test_metrics_and_docs_can_be_made_public_with_a_token(make_app):
+    app = make_app(api_token=TOKEN, metrics_public="true", docs_public="true")
+    with TestClient(app) as c:
+        assert c.get("/metrics").status_code == 200
+        assert c.get("/openapi.json").status_code == 200
+        assert c.get("/v1/transforms").status_code == 401
 
 
 def test_no_token_configured_means_open_api(make_app):
