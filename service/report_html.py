@@ -22,6 +22,7 @@ import html
 import math
 import re
 
+from .core.numbers import fmt, fmt_p
 from .figures import render_figure
 from .safetext import visible
 
@@ -59,37 +60,17 @@ def esc(value) -> str:
 
 
 def num(value, sig: int = 4) -> str:
-    """``value`` to ``sig`` significant digits: positional with thousands separators from
-    1e-4 to 1e6, otherwise ``1.234e-05``; trailing zeros dropped; ``None`` is an en dash."""
-    if value is None:
+    """``value`` by the shared number rule (``service.core.numbers.fmt``); ``None`` is a dash."""
+    if value is None or not math.isfinite(float(value)):
         return "\u2013"
-    v = float(value)
-    if not math.isfinite(v):
-        return "\u2013"
-    if v == 0:
-        return "0"
-    v = float(f"{v:.{sig - 1}e}")  # rounded first, so 999999.7 counts as 1e6
-    a = abs(v)
-    if a >= 1e6 or a < 1e-4:
-        mant, exp = f"{v:.{sig - 1}e}".split("e")
-        if "." in mant:
-            mant = mant.rstrip("0").rstrip(".")
-        return f"{mant}e{int(exp)}"
-    digits = sig - 1 - math.floor(math.log10(a))
-    text = f"{v:,.{digits}f}" if digits >= 0 else f"{round(v, digits):,.0f}"
-    if "." in text:
-        text = text.rstrip("0").rstrip(".")
-    return "0" if text in ("-0", "") else text
+    return fmt(float(value), sig)
 
 
 def pval(p) -> str:
-    """A p-value as HTML text: three significant digits, ``< 0.0001`` below that."""
+    """A p-value as HTML text: ``&lt; 0.0001`` below 1e-4 (``service.core.numbers.fmt_p``)."""
     if p is None:
         return "\u2013"
-    p = float(p)
-    if p < 1e-4:
-        return "&lt; 0.0001"
-    return f"{p:.3g}"
+    return html.escape(fmt_p(float(p)))
 
 
 def _joined(items: list[str]) -> str:
@@ -602,8 +583,10 @@ def _coefficients(entry: dict) -> str:
         + (f" (<code>{scale}</code>)" if scale else "")
         + "</caption><thead><tr>"
         '<th scope="col">Term</th><th class="n" scope="col">Estimate</th>'
-        '<th class="n" scope="col">Std. error</th><th class="n" scope="col">t</th>'
-        '<th class="n" scope="col">p-value</th><th class="n" scope="col">95% CI</th>'
+        '<th class="n" scope="col">Give or take (SE)</th>'
+        '<th class="n" scope="col">Estimate / SE</th>'
+        '<th class="n" scope="col">p if the term adds nothing</th>'
+        '<th class="n" scope="col">95% range</th>'
         f"</tr></thead><tbody>{rows}</tbody></table>"
     )
 
@@ -659,7 +642,7 @@ def _detail(entry: dict, plots, anchor: str, heading: str, level: int = 2) -> st
                 else ""
             ),
         ),
-        ("Residual standard deviation", f"{num(fit.get('sigma'))} (model scale)"),
+        ("Residual standard deviation", f"{num(fit.get('residual_sd'))} (model scale)"),
         ("How it was ranked", esc(parts.get("rule", ""))),
     ]
     sub = level + 1

@@ -102,7 +102,9 @@ class FitOut(_Open):
     n: int
     r_squared: Num
     adj_r_squared: Num
-    sigma: Num
+    residual_sd: Num = Field(
+        ..., description="residual standard deviation on the model (response-transform) scale"
+    )
     df_residual: int | float
     log_likelihood_original_scale: Num
     aic_original_scale: Num
@@ -209,11 +211,20 @@ class SelectionResponse(_Open):
     warnings: list[str]
 
 
+class ModelScaleOut(_Open):
+    mean: Num = Field(..., description="fitted mean of the transformed response")
+    interval_low: Num = Field(..., description="low end of the prediction interval")
+    interval_high: Num = Field(..., description="high end of the prediction interval")
+
+
 class PredictionOut(_Open):
     mean: Num = Field(..., description="smeared mean on the original scale")
     median: Num = Field(..., description="median (plain inverse) on the original scale")
     lower: Num
     upper: Num
+    model_scale: ModelScaleOut = Field(
+        ..., description="the prediction on the model (response-transform) scale"
+    )
     extrapolation: bool = Field(
         ..., description="true when the row lies outside the training range or has high leverage"
     )

@@ -31,7 +31,7 @@ from ._types import FloatArray, TransformItem
 from .bank import ColumnBank, FoldIndex
 from .data import Prepared
 from .errors import CandidateFailure, FieldProblem, InputError, pointer
-from .spec import PredictorSpec, Specification, categorical_levels
+from .spec import PredictorSpec, Specification, categorical_levels, term_label
 
 DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
 DEFAULT_PREDICTOR = ("identity", "log", "sqrt", "reciprocal", "square")
@@ -247,7 +247,7 @@ class Space:
             t = p.transform
             if bt.is_open(t):
                 dyn.append(pos)
-                names.append(f"{p.column}^a")
+                names.append(tr.Transform("power").label(p.column))
                 pos += 1
                 continue
             key = (p.column, t)
@@ -264,7 +264,7 @@ class Space:
 
     def _dummy_names(self, column: str) -> list[str]:
         lv, ref = categorical_levels(self.prep.categorical[column], None, column, "")
-        return [f"{column}[{level}]" for level in lv if level != ref]
+        return [term_label(column, level) for level in lv if level != ref]
 
 
 def build_space(

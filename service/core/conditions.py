@@ -29,6 +29,7 @@ import numpy as np
 from scipy import stats
 
 from service.core import _condition_tests as ct
+from service.core.numbers import fmt, p_is
 
 #: common-practice VIF cut-offs (warn, fail)
 VIF_WARN, VIF_FAIL = 5.0, 10.0
@@ -66,11 +67,12 @@ class ConditionInputs:
 
 # ------------------------------------------------------------------------------ helpers
 def _g(x: float | None, digits: int = 4) -> str:
-    return "n/a" if x is None else f"{x:.{digits}g}"
+    return "n/a" if x is None else fmt(x, digits)
 
 
 def _p(p: float | None) -> str:
-    return "n/a" if p is None else f"{p:.2g}"
+    """``p = 0.032`` or ``p < 0.0001`` (the shared rule of :mod:`.numbers`)."""
+    return "p n/a" if p is None else p_is(p)
 
 
 def validate(inp: ConditionInputs) -> tuple[np.ndarray, np.ndarray]:
@@ -169,19 +171,19 @@ def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list[Any]) -> dict
     tests = [reset, ct.rainbow_test(fit), *curves]
     holds = _decide(reset, a)
     bent = [c for c in curves if c["p_value"] is not None and c["p_value"] < a]
-    bent_txt = ", ".join(f"{c['label']} (p = {_p(c['p_value'])})" for c in bent[:3])
+    bent_txt = ", ".join(f"{c['label']} ({_p(c['p_value'])})" for c in bent[:3])
     if holds is None:
         note = f"Linearity could not be tested: {reset.get('reason', 'undefined')}."
     elif holds:
         note = (
             "No sign of a wrong functional form (RESET on fitted^2 and fitted^3, "
-            f"p = {_p(reset['p_value'])})"
+            f"{_p(reset['p_value'])})"
         )
         note += f", though the partial residuals of {bent_txt} show curvature." if bent else "."
     else:
         note = (
             "The straight-line form looks wrong (RESET on fitted^2 and fitted^3, "
-            f"F = {_g(reset['statistic'])}, p = {_p(reset['p_value'])})"
+            f"F = {_g(reset['statistic'])}, {_p(reset['p_value'])})"
         )
         note += f"; curvature shows in the partial residuals of {bent_txt}." if bent else "."
     return {"holds": holds, "tests": tests, "note": note, "rule": rule}
@@ -206,15 +208,14 @@ def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     elif holds:
         note = (
             "Residuals are consistent with a normal distribution "
-            f"({name} p = {_p(primary['p_value'])})."
+            f"({name} {_p(primary['p_value'])})."
         )
     else:
         shape = ""
         if jb.get("skewness") is not None and jb.get("kurtosis") is not None:
             shape = f"; skewness {_g(jb['skewness'], 3)}, kurtosis {_g(jb['kurtosis'], 3)} vs 3"
         note = (
-            "Residuals depart from a normal distribution "
-            f"({name} p = {_p(primary['p_value'])}{shape})"
+            f"Residuals depart from a normal distribution ({name} {_p(primary['p_value'])}{shape})"
         )
         if fit.n > LARGE_N:
             note += (
@@ -243,16 +244,16 @@ def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     elif holds:
         note = (
             "No evidence that the residual spread changes with the predictors "
-            f"(Breusch-Pagan, Koenker form, p = {p})."
+            f"(Breusch-Pagan, Koenker form, {p})."
         )
     elif not _numeric_terms(inp):
-        note = f"Residual spread differs between groups (Breusch-Pagan, Koenker form, p = {p})."
+        note = f"Residual spread differs between groups (Breusch-Pagan, Koenker form, {p})."
     else:
         with np.errstate(all="ignore"):
             rho = np.corrcoef(np.abs(fit.resid), fit.fitted)[0, 1]
         trend = "grows with" if rho >= 0 else "shrinks as"
         tail = "the fitted values" if rho >= 0 else "the fitted values grow"
-        note = f"Residual spread {trend} {tail} (Breusch-Pagan, Koenker form, p = {p})."
+        note = f"Residual spread {trend} {tail} (Breusch-Pagan, Koenker form, {p})."
     return {"holds": holds, "tests": [bp, white], "note": note, "rule": rule}
 
 
@@ -289,12 +290,12 @@ def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     elif holds:
         note = (
             "No serial correlation in the given order "
-            f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt})."
+            f"(Breusch-Godfrey {_p(bg['p_value'])}{dw_txt})."
         )
     else:
         note = (
             "Residuals close together in the given order are correlated "
-            f"(Breusch-Godfrey p = {_p(bg['p_value'])}{dw_txt})."
+            f"(Breusch-Godfrey {_p(bg['p_value'])}{dw_txt})."
         )
     return {"holds": holds, "tests": [dw, bg, lb], "note": note, "rule": rule}
 
@@ -627,12 +628,12 @@ def _hints(curvatures: list[Any], alpha: float) -> list[dict[str, Any]]:
         if p is None or p >= alpha or curv == 0 or slope == 0:
             hint["sentence"] = (
                 f"The partial residuals of {term.label} show no significant "
-                f"curvature (p = {_p(p)}); keep its current scale."
+                f"curvature ({_p(p)}); keep its current scale."
             )
         elif not c["monotone"]:
             hint["sentence"] = (
                 f"The partial residuals of {term.label} bend but do not move in "
-                f"one direction (p = {_p(p)}), so no power of {term.column} "
+                f"one direction ({_p(p)}), so no power of {term.column} "
                 "straightens them; consider a quadratic term instead."
             )
         else:
@@ -640,7 +641,7 @@ def _hints(curvatures: list[Any], alpha: float) -> list[dict[str, Any]]:
             hint.update(bulge=bulge, x_direction=xd, y_direction=yd)
             sentence = (
                 f"The partial residuals of {term.label} bulge {bulge} (curvature "
-                f"p = {_p(p)}): by Tukey's bulging rule, move {term.column} one step "
+                f"{_p(p)}): by Tukey's bulging rule, move {term.column} one step "
                 f"{xd} the ladder of powers from its current scale, or the response "
                 f"one step {yd}"
             )

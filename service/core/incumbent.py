@@ -21,6 +21,7 @@ from . import transforms as tr
 from .crossval import CVPlan, CVResult, cross_validate
 from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
+from .numbers import fmt
 from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
 
 CONDITIONS = (
@@ -118,7 +119,10 @@ def decide(
         )
         return out
     out["cv"] = inc_cv.to_dict(plan)
-    d = winner_folds - inc_cv.fold_values
+    same = winner_entry["specification"] == inc_spec.to_dict() or rank == 1
+    # the same specification on the same folds differs by exactly 0; the two scoring paths
+    # (search and incumbent refit) agree only to rounding, so the rounding is not reported
+    d = np.zeros_like(inc_cv.fold_values) if same else winner_folds - inc_cv.fold_values
     se = float(np.std(d, ddof=1) / math.sqrt(plan.folds)) if d.size > 1 else 0.0
     diff = float(np.mean(d))
     out["difference"] = {
@@ -128,7 +132,6 @@ def decide(
         "negative means the winner predicts better",
     }
     metric = plan.metric
-    same = winner_entry["specification"] == inc_spec.to_dict() or rank == 1
     inc_fail = _failed_conditions(inc_conditions)
     win_fail = _failed_conditions(winner_entry.get("conditions"))
     only_inc = sorted(inc_fail - win_fail)
@@ -139,7 +142,7 @@ def decide(
             decision="switch",
             reason=(
                 f"Rank 1 ({winner_entry['equation']}) has a lower cross-validated {metric} by "
-                f"{-diff:.4g} (paired standard error {se:.4g}), more than one standard error."
+                f"{fmt(-diff)} (paired standard error {fmt(se)}), more than one standard error."
             ),
         )
     elif only_inc:
@@ -149,7 +152,7 @@ def decide(
                 "The incumbent fails "
                 + ", ".join(c.replace("_", " ") for c in only_inc)
                 + f", which rank 1 ({winner_entry['equation']}) passes; their {metric} differ by "
-                f"{diff:.4g} (paired standard error {se:.4g})."
+                f"{fmt(diff)} (paired standard error {fmt(se)})."
             ),
         )
     else:

@@ -36,6 +36,7 @@ from typing import Any
 
 import numpy as np
 
+from . import numbers
 from .data import Prepared
 from .fitting import OLSFit
 from .spec import Design, Specification
@@ -47,23 +48,9 @@ LN_1_1 = math.log(1.1)
 
 
 # ----------------------------------------------------------------- numbers
-def fmt(v: float | None, sig: int = 4) -> str:
-    """A number for a sentence: ``sig`` significant digits, plain notation from 1e-3 to 1e6."""
-    if v is None or not math.isfinite(v):
-        return "undefined"
-    if v == 0:
-        return "0"
-    a = abs(v)
-    if 1e-3 <= a < 1e6:
-        digits = sig - 1 - math.floor(math.log10(a))
-        r = round(v, digits)
-        if r == 0:
-            return "0"
-        s = f"{r:.{digits}f}".rstrip("0").rstrip(".") if digits > 0 else str(int(r))
-        return "0" if s in ("-0", "") else s
-    mant, exp = f"{v:.{sig - 1}e}".split("e")
-    mant = mant.rstrip("0").rstrip(".") if "." in mant else mant
-    return f"{mant}e{int(exp)}"
+def fmt(v: float | None, sig: int = 4, trailing_zeros: bool = True) -> str:
+    """A number for a sentence: the shared rule of :func:`service.core.numbers.fmt`."""
+    return numbers.fmt(v, sig, trailing_zeros)
 
 
 def exact_percent(b: float | None) -> float | None:
@@ -134,12 +121,32 @@ def _ci_text(
     suffix: str = "",
     what: str = "change",
     unit: str = "",
+    signed: bool = False,
 ) -> str:
-    """' (95% CI for the change: lo to hi unit)'; ``suffix`` follows each number (e.g. '%')."""
+    """' (95% CI for the change: lower by a% to b%)', in the words of the estimate.
+
+    Bounds are written unsigned with "higher"/"lower", the same words the estimate uses, never
+    an unsigned "lower" next to signed bounds: both above 0 read "higher by lo to hi" (a
+    difference between levels: "lo to hi higher", as its estimate reads), both below 0
+    "lower by |hi| to |lo|", an interval across 0 "from |lo| lower to hi higher".
+    An estimate given as a signed number (a coefficient, ``signed``) gets signed bounds,
+    "lo to hi".  ``suffix`` follows each number (e.g. '%').
+    """
     if lo is None or hi is None:
         return ""
     u = f" {unit}" if unit else ""
-    return f" ({fmt(100 * level, 3)}% CI for the {what}: {fmt(lo)}{suffix} to {fmt(hi)}{suffix}{u})"
+    a, b = min(lo, hi), max(lo, hi)
+    if signed or what == "coefficient":
+        body = f"{fmt(a)}{suffix} to {fmt(b)}{suffix}{u}"
+    elif a >= 0:
+        body = f"{fmt(a)}{suffix} to {fmt(b)}{suffix}{u}"
+        body = f"{body} higher" if what == "difference" else f"higher by {body}"
+    elif b <= 0:
+        body = f"{fmt(-b)}{suffix} to {fmt(-a)}{suffix}{u}"
+        body = f"{body} lower" if what == "difference" else f"lower by {body}"
+    else:
+        body = f"from {fmt(-a)}{suffix}{u} lower to {fmt(b)}{suffix}{u} higher"
+    return f" ({fmt(100 * level, 3, trailing_zeros=False)}% CI for the {what}: {body})"
 
 
 # ----------------------------------------------------------------- scales
@@ -258,8 +265,9 @@ class _Context:
         suffix: str = "",
         what: str = "change",
         unit: str = "",
+        signed: bool = False,
     ) -> str:
-        return _ci_text(lo, hi, self.level, suffix, what, unit)
+        return _ci_text(lo, hi, self.level, suffix, what, unit, signed)
 
     def median_note(self) -> str:
         """Said once per fit: percent readings under a log response are about the median."""
@@ -339,7 +347,7 @@ def _categorical_readings(
             u = f" {yu}" if yu else ""
             item["sentence"] = (
                 f"On the {ctx.rt.label(y)} scale rows with {column} = {lv} differ from rows with "
-                f"{column} = {ref} by {fmt(b)}{ctx.ci(lo, hi, what='difference')}, which has no "
+                f"{column} = {ref} by {fmt(b)}{ctx.ci(lo, hi, what='difference', signed=True)}, which has no "
                 f"constant-rate reading for {y}; the predicted median {y} is {fmt(y_lv)}{u} for "
                 f"{lv} and {fmt(y_ref)}{u} for {ref}{_diff_text(diff, ratio, yu)}"
                 f"{ctx.hold_at_medians(column)}{ctx.reverse_note(b, f'for {column} = {lv}')}."
@@ -414,7 +422,11 @@ def _log_log(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> No
         percent_per_10pct_ci_high=percent_for_ratio(1.1, hi),
     )
     xs, ys = _subject(col, pt), _subject(ctx.response, ctx.rt)
-    ci = "" if lo is None else f" ({fmt(100 * ctx.level, 3)}% CI {fmt(lo)} to {fmt(hi)})"
+    ci = (
+        ""
+        if lo is None
+        else f" ({fmt(100 * ctx.level, 3, trailing_zeros=False)}% CI {fmt(lo)} to {fmt(hi)})"
+    )
     prop = ""
     if lo is not None and lo > 0 and hi < 1:
         prop = (

@@ -43,7 +43,7 @@ from .model import (
     checksum,
     signature_value,
 )
-from .spec import PredictorSpec, Specification
+from .spec import PredictorSpec, Specification, term_label
 
 KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
 MAX_PROBLEMS = 20
@@ -306,7 +306,7 @@ def expected_terms(spec: Specification, levels: dict[str, dict[str, Any]]) -> li
     for p in spec.predictors:
         if p.column in levels:
             ref = levels[p.column]["reference"]
-            names.extend(f"{p.column}[{lv}]" for lv in levels[p.column]["levels"] if lv != ref)
+            names.extend(term_label(p.column, lv) for lv in levels[p.column]["levels"] if lv != ref)
         else:
             names.append(p.transform.label(p.column))
     return names
@@ -722,7 +722,7 @@ def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) ->
     Returns ``{"predictions": [{mean, median, lower, upper, extrapolation,
     extrapolation_reasons, leverage, model_scale}], "interval": level,
     "warnings": [...]}``; every number is on the ORIGINAL response scale except
-    ``model_scale`` (fit and interval on the model scale) and ``leverage``.  A
+    ``model_scale`` (``mean``, ``interval_low``, ``interval_high`` on the model scale) and ``leverage``.  A
     value that cannot be computed (an inverse that does not exist or
     overflows) is ``None`` and explained in ``warnings``, never NaN.
     """
@@ -817,7 +817,7 @@ def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) ->
             "extrapolation": i in reasons,
             "extrapolation_reasons": reasons.get(i, []),
             "leverage": c4,
-            "model_scale": {"fit": c5, "lower": c6, "upper": c7},
+            "model_scale": {"mean": c5, "interval_low": c6, "interval_high": c7},
         }
         for i, (c0, c1, c2, c3, c4, c5, c6, c7) in enumerate(zip(*cols, strict=True))
     ]

@@ -17,6 +17,7 @@ from .fitting import OLSFit, ols
 from .interpret import interpret_fit
 from .likelihood import LambdaEstimate, estimate_lambda
 from .model import build_model
+from .numbers import fmt
 from .spec import Design, Specification, build_design
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -31,17 +32,22 @@ def finite_or_none(v: Any) -> float | None:
 
 
 def _num(v: float) -> str:
-    return f"{v:.4g}"
+    return fmt(v)
 
 
 def equation(spec: Specification, design: Design, coef: np.ndarray) -> str:
-    """Readable equation, e.g. ``log(cost) = 2.1 + 0.48·log(area) - 0.03·age``."""
+    """Readable equation, e.g. ``log(cost) = 2.1 + 0.48·log(area) - 0.03·age``.
+
+    A dummy term ``soil=loam`` is written in parentheses, ``(soil=loam)``, so its ``=``
+    does not read as a second equals sign of the equation.
+    """
+    dummies = {i for t in design.terms if t.kind == "categorical" for i in t.indices}
     parts = []
-    for name, b in zip(design.names, coef, strict=True):
+    for i, (name, b) in enumerate(zip(design.names, coef, strict=True)):
         if name == "intercept":
             parts.append(_num(b))
             continue
-        term = name
+        term = f"({name})" if i in dummies else name
         if not parts:
             parts.append(f"{_num(b)}·{term}")
         else:
@@ -104,7 +110,7 @@ def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict[str,
         "adj_r_squared": finite_or_none(fit.adj_r_squared),
         "r_squared_scale": "model" if not t.is_identity else "original",
         "r_squared_original_scale": finite_or_none(r2o),
-        "sigma": finite_or_none(fit.sigma),
+        "residual_sd": finite_or_none(fit.sigma),
         "df_residual": fit.df_resid,
         "log_likelihood_original_scale": finite_or_none(llf_y),
         "aic_original_scale": finite_or_none(aic),

@@ -119,6 +119,15 @@ def categorical_levels(
     return levels, reference
 
 
+def term_label(column: str, level: str) -> str:
+    """The term name of the treatment dummy for ``level`` of a categorical ``column``.
+
+    Written ``column=level`` (e.g. ``soil=loam``); the one place these names are built,
+    shared by designs, the candidate space and model artifacts.
+    """
+    return f"{column}={level}"
+
+
 def build_design(
     spec: Specification,
     prep: Prepared,
@@ -160,7 +169,7 @@ def build_design(
                 if level == ref:
                     continue
                 cols.append((vals == level).astype(float))
-                names.append(f"{p.column}[{level}]")
+                names.append(term_label(p.column, level))
             levels[p.column] = {"levels": lv, "reference": ref}
             terms.append(
                 TermInfo(p.column, "categorical", tuple(range(start, len(cols))), None, p.column)

@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 
 from ._types import FloatArray
+from .numbers import fmt_param
 
 LADDER = (-1.0, -0.5, 0.0, 0.5, 1.0, 2.0)
 _EPS = float(np.spacing(1.0)) * 64
@@ -37,7 +38,7 @@ EXPONENT_FLOOR = PARAM_FLOOR
 
 
 def _fmt_param(v: float) -> str:
-    return f"{v:.4g}"
+    return fmt_param(v)
 
 
 @dataclass(frozen=True)
@@ -116,12 +117,21 @@ class Transform:
         return 2
 
     def label(self, column: str) -> str:
+        """How the transformed column is written in equations, tables and sentences.
+
+        One rule: a transform without a parameter in ordinary notation (``log(x)``,
+        ``sqrt(x)``, ``1/x``, ``x^2``); a transform with a parameter as its API name with the
+        parameter's API field, ``name(column, field=value)`` (``log(x, shift=3)``,
+        ``power(x, exponent=0.5)``, ``box_cox(y, lambda=-0.005061)``,
+        ``yeo_johnson(x, lambda=0.5)``); a parameter still to be estimated reads
+        ``field=estimated``.
+        """
         n = self.name
         if n == "identity" or n == "categorical":
             return column
         if n == "log":
             if self.shift:
-                return f"log({column} + {_fmt_param(self.shift)})"
+                return f"log({column}, shift={_fmt_param(self.shift)})"
             return f"log({column})"
         if n == "sqrt":
             return f"sqrt({column})"
@@ -130,13 +140,11 @@ class Transform:
         if n == "square":
             return f"{column}^2"
         if n == "power":
-            return f"{column}^{_fmt_param(self._exponent())}"
-        if n == "box_cox":
-            lam = "λ" if self.lam is None else _fmt_param(self.lam)
-            return f"boxcox({column}, {lam})"
-        if n == "yeo_johnson":
-            lam = "λ" if self.lam is None else _fmt_param(self.lam)
-            return f"yeojohnson({column}, {lam})"
+            e = "estimated" if self.exponent is None else _fmt_param(self.exponent)
+            return f"power({column}, exponent={e})"
+        if n in ("box_cox", "yeo_johnson"):
+            lam = "estimated" if self.lam is None else _fmt_param(self.lam)
+            return f"{n}({column}, lambda={lam})"
         return f"{n}({column})"
 
     def to_dict(self) -> dict[str, Any]:

@@ -122,8 +122,13 @@ def test_shortcut_where_quoted_is_within_a_tenth_of_exact():
 
 
 def test_fmt_rounds_to_four_significant_digits():
-    # source: product rule (3-4 significant digits, no 'nan'/'inf')
-    assert fmt(571.0205891735885) == "571"
+    # source: product rule (4 significant digits with trailing zeros kept, so figures line up;
+    # plain notation, never 'e+04'; no 'nan'/'inf')
+    assert fmt(571.0205891735885) == "571.0"
+    assert fmt(0.745) == "0.7450"
+    assert fmt(-15934.2) == "-15930"
+    assert fmt(300.0) == "300"
+    assert fmt(3.1e-5) == "3.1e-5"
     assert fmt(0.855896992) == "0.8559"
     assert fmt(-25.918177931) == "-25.92"
     assert fmt(float("nan")) == "undefined"
@@ -332,7 +337,7 @@ def test_categorical_in_log_model_is_exact_percent(rng):
     ci = ref.conf_int(0.05)
     items = by_term(interpret_terms(spec, design, f, prep))
     for k, lv in ((2, "south"), (3, "west")):
-        it = items[f"site[{lv}]"]
+        it = items[f"site={lv}"]
         assert it["reading"] == "categorical-log"
         # source: Halvorsen & Palmquist (1980): 100(e^c - 1)% versus the reference level
         assert it["percent"] == pytest.approx(100 * math.expm1(ref.params[k]), rel=1e-9)
@@ -340,8 +345,8 @@ def test_categorical_in_log_model_is_exact_percent(rng):
         assert it["percent_ci_high"] == pytest.approx(100 * math.expm1(ci[k, 1]), rel=1e-9)
         assert f"site = {lv}" in it["sentence"] and "site = north" in it["sentence"]
         assert "holding the other predictors fixed" in it["sentence"]
-    assert "higher" in items["site[south]"]["sentence"]
-    assert f"{fmt(-100 * math.expm1(ref.params[3]))}% lower" in items["site[west]"]["sentence"]
+    assert "higher" in items["site=south"]["sentence"]
+    assert f"{fmt(-100 * math.expm1(ref.params[3]))}% lower" in items["site=west"]["sentence"]
     check_sentence_hygiene([it["sentence"] for it in items.values()])
 
 
@@ -355,7 +360,7 @@ def test_categorical_in_level_model_is_units_difference(rng):
     )
     ref = sm_fit(z, [x, (site == "south").astype(float), (site == "west").astype(float)])
     items = by_term(interpret_terms(spec, design, f, prep, {"y": "kg"}))
-    it = items["site[south]"]
+    it = items["site=south"]
     assert it["reading"] == "categorical-level"
     assert it["difference"] == pytest.approx(ref.params[2], rel=1e-9)  # source: statsmodels
     want = f"{fmt(ref.params[2])} kg higher on average than rows with site = north"
@@ -453,7 +458,9 @@ def test_box_cox_response_two_point_medians():
         assert it[f"predicted_{key}"] == pytest.approx(
             float(special.inv_boxcox(eta, lam)), rel=1e-7
         )
-    assert "boxcox(Volume" in it["sentence"] and "no constant-rate reading" in it["sentence"]
+    assert (
+        "box_cox(Volume, lambda=" in it["sentence"] and "no constant-rate reading" in it["sentence"]
+    )
 
 
 def _yj_inverse(z, lam):

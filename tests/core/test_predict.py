@@ -134,9 +134,9 @@ def test_model_scale_interval_equals_statsmodels(rng, level):
     out = predict(load_model(art), {"columns": {"x1": new1.tolist(), "x2": new2.tolist()}}, level)
     zs = [p["model_scale"] for p in out["predictions"]]
     # source: statsmodels get_prediction(...).summary_frame obs_ci_lower / obs_ci_upper
-    np.testing.assert_allclose([z["fit"] for z in zs], frame["mean"], rtol=1e-10)
-    np.testing.assert_allclose([z["lower"] for z in zs], frame["obs_ci_lower"], rtol=1e-10)
-    np.testing.assert_allclose([z["upper"] for z in zs], frame["obs_ci_upper"], rtol=1e-10)
+    np.testing.assert_allclose([z["mean"] for z in zs], frame["mean"], rtol=1e-10)
+    np.testing.assert_allclose([z["interval_low"] for z in zs], frame["obs_ci_lower"], rtol=1e-10)
+    np.testing.assert_allclose([z["interval_high"] for z in zs], frame["obs_ci_upper"], rtol=1e-10)
     # back-transformed at the end points (exp is increasing)
     np.testing.assert_allclose(column(out, "lower"), np.exp(frame["obs_ci_lower"]), rtol=1e-10)
     np.testing.assert_allclose(column(out, "upper"), np.exp(frame["obs_ci_upper"]), rtol=1e-10)
@@ -238,7 +238,7 @@ def test_artifact_reproduces_in_process_fit(rng, rt):
     X = np.column_stack([np.ones(n), np.log(x), site == "b", site == "c"]).astype(float)
     ref = sm.OLS(z, X).fit()
     np.testing.assert_allclose(
-        [p["model_scale"]["fit"] for p in out["predictions"]],
+        [p["model_scale"]["mean"] for p in out["predictions"]],
         ref.fittedvalues,
         rtol=1e-8,
         atol=1e-10,

@@ -199,7 +199,7 @@ REFERENCE = {
                 "cv_pooled_smear": 124.75307102029589,
             },
             {
-                "label": "boxcox(foodexp, lam_hat) on income",
+                "label": "box_cox(foodexp, lambda=estimated) on income",
                 "ytr": "bc",
                 "terms": [("income", "id")],
                 "params": [47.62838520608533, 0.041542742668061586],
@@ -218,7 +218,7 @@ REFERENCE = {
                 "cv_fixed_lambda_pooled_smear": 176.6928921488185,
             },
             {
-                "label": "boxcox(foodexp, lam_hat) on log(income)",
+                "label": "box_cox(foodexp, lambda=estimated) on log(income)",
                 "ytr": "bc",
                 "terms": [("income", "log")],
                 "params": [0.07484305022954973, 1.0029542075176585],
@@ -353,7 +353,7 @@ REFERENCE = {
                 "cv_pooled_smear": 2.6683150205832167,
             },
             {
-                "label": "boxcox(Volume, lam_hat) on Girth + Height",
+                "label": "box_cox(Volume, lambda=estimated) on Girth + Height",
                 "ytr": "bc",
                 "terms": [("Girth", "id"), ("Height", "id")],
                 "params": [-2.7916728840720015, 0.4144946082563874, 0.04010484913859891],
@@ -372,7 +372,7 @@ REFERENCE = {
                 "cv_fixed_lambda_pooled_smear": 2.6843940610953805,
             },
             {
-                "label": "boxcox(Volume, lam_hat) on log(Girth) + log(Height)",
+                "label": "box_cox(Volume, lambda=estimated) on log(Girth) + log(Height)",
                 "ytr": "bc",
                 "terms": [("Girth", "log"), ("Height", "log")],
                 "params": [-5.091353198310703, 1.5842327849646418, 0.9174484840481789],
@@ -483,7 +483,7 @@ REFERENCE = {
                 "cv_pooled_smear": 654.3248057609653,
             },
             {
-                "label": "boxcox(brain, lam_hat) on log(body)",
+                "label": "box_cox(brain, lambda=estimated) on log(body)",
                 "ytr": "bc",
                 "terms": [("body", "log")],
                 "params": [2.169822681626425, 0.7700840341566051],
@@ -588,7 +588,7 @@ REFERENCE = {
                 "cv_pooled_smear": 544.6383590919602,
             },
             {
-                "label": "boxcox(TOTEMP, lam_hat) on GNPDEFL + GNP + UNEMP + ARMED + POP + YEAR",
+                "label": "box_cox(TOTEMP, lambda=estimated) on GNPDEFL + GNP + UNEMP + ARMED + POP + YEAR",
                 "ytr": "bc",
                 "terms": [
                     ("GNPDEFL", "id"),
