@@ -22,7 +22,8 @@ import html
 import math
 import re
 
-from .core.numbers import fmt, fmt_p
+from .core.numbers import count_of, fmt, fmt_p
+from .core.search import failure_text
 from .figures import render_figure
 from .safetext import visible
 
@@ -392,7 +393,8 @@ def _summary(body: dict, context: dict) -> str:
     if dropped:
         shown = dropped[:MAX_DROPPED_LISTED]
         out.append(
-            f"<h3>Dropped rows</h3><p>{num(data.get('rows_dropped'))} row(s) were left "
+            f"<h3>Dropped rows</h3><p>{count_of(int(data.get('rows_dropped') or 0), 'row')} "
+            "were left "
             f"out; the first {len(shown)} listed (row numbers count from 0 in the "
             "request).</p>"
         )
@@ -405,18 +407,13 @@ def _summary(body: dict, context: dict) -> str:
             )
             + "</tbody></table>"
         )
-    failures = search.get("failures") or []
-    if failures:
-        kinds: dict[str, list] = {}
-        for f in failures:  # reasons that differ only in their counts are one kind
-            reason = f.get("reason", "")
-            kinds.setdefault(re.sub(r"\d+", "#", reason), []).append(reason)
-        listed = sorted(kinds.values(), key=len, reverse=True)[:MAX_FAILURE_REASONS]
+    groups = search.get("failure_reasons") or []
+    if groups:
+        failed = int(search.get("candidates_failed") or sum(g["candidates"] for g in groups))
         out.append(
             f"<h3>Candidates that could not be scored</h3><p>"
-            f"{num(search.get('candidates_failed', len(failures)))} candidate(s) got no "
-            f"score. The most common reasons among the {len(failures)} listed in the "
-            "response:</p>" + _list(f"{len(r)} candidate(s), for example: {r[0]}" for r in listed)
+            f"{count_of(failed, 'candidate')} got no score, by reason:</p>"
+            + _list(failure_text(g) for g in groups[:MAX_FAILURE_REASONS])
         )
     out.append("</section>")
     return "".join(out)

@@ -7,6 +7,7 @@ from typing import Any
 from fastapi import APIRouter
 from pydantic import BaseModel, ConfigDict, Field
 
+from ..core.cautions import prediction_cautions
 from ..core.predict import load_model, predict
 from ..middleware import note_result
 from ..settings import get_settings
@@ -33,7 +34,12 @@ def run_prediction_request(req: PredictionRequest) -> dict:
     data = req.data.as_dict()
     check_table(data)
     model = load_model(req.model, get_settings().model_keys())
-    return predict(model, data, req.interval)
+    out = predict(model, data, req.interval)
+    out["cautions"] = prediction_cautions(
+        not model.spec.response_transform.is_identity,
+        any(p["extrapolation"] for p in out["predictions"]),
+    )
+    return out
 
 
 @router.post(

@@ -233,6 +233,11 @@ class PredictionOut(_Open):
 class PredictionsResponse(_Open):
     predictions: list[PredictionOut] = Field(..., description="one per input row, in order")
     warnings: list[str]
+    cautions: list[str] = Field(
+        ...,
+        description="only those that apply: extrapolation when a row is flagged, mean "
+        "versus median when the response is transformed",
+    )
 
 
 class PlotsOut(_Open):

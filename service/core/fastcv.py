@@ -36,6 +36,7 @@ from .bank import ColumnBank
 from .boxtidwell import estimate_powers, power_columns
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
+from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from .crossval import CVPlan
@@ -102,7 +103,7 @@ def _fold_metric_raw(
 def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
     return CandidateFailure(
         f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or overflows for "
-        f"{count} held-out row(s) (prediction outside the scale's range)"
+        f"{count_of(count, 'held-out row')} (prediction outside the scale's range)"
     )
 
 

@@ -72,3 +72,8 @@ def p_is(p: float) -> str:
     """``p = 0.032`` or ``p < 0.0001``, for sentences."""
     text = fmt_p(p)
     return f"p {text}" if text.startswith("<") else f"p = {text}"
+
+
+def count_of(n: int, noun: str, plural: str | None = None) -> str:
+    """``1 candidate`` / ``3 candidates``: a count with its noun in the right number."""
+    return f"{n} {noun if n == 1 else (plural or noun + 's')}"

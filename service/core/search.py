@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import itertools
 import math
+import re
 import time
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
@@ -37,6 +38,7 @@ from .errors import (
 )
 from .fastcv import Dynamic, Scorer
 from .likelihood import estimate_lambda
+from .numbers import count_of
 from .report import entry_for
 from .spec import PredictorSpec, Specification, SpecKey, build_design
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
@@ -45,6 +47,35 @@ DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
 DEFAULT_PREDICTOR = cand.DEFAULT_PREDICTOR
 
 MAX_FAILURES_LISTED = 10
+
+
+def failure_groups(reasons: dict[str, int]) -> list[dict[str, Any]]:
+    """Failed candidates grouped by reason, most frequent first (at most MAX_FAILURES_LISTED).
+
+    Reasons that differ only in their numbers (fold, row count) are one group, shown by its
+    most frequent wording: ``{"reason": ..., "candidates": n, "wordings": k}``.
+    """
+    groups: dict[str, list[Any]] = {}  # key -> [count, example, example's count, wordings]
+    for reason, n in reasons.items():
+        key = " ".join(w.rstrip("s") for w in re.sub(r"\d+(\.\d+)?", "#", reason).split())
+        g = groups.setdefault(key, [0, reason, n, 0])
+        g[0] += n
+        g[3] += 1
+        if n > g[2] or (n == g[2] and reason < g[1]):
+            g[1], g[2] = reason, n
+    ordered = sorted(groups.values(), key=lambda g: (-g[0], g[1]))
+    return [
+        {"reason": g[1], "candidates": g[0], "wordings": g[3]}
+        for g in ordered[:MAX_FAILURES_LISTED]
+    ]
+
+
+def failure_text(group: dict[str, Any]) -> str:
+    """``12 candidates: reason`` or ``30 candidates, for example: reason``."""
+    sep = ":" if group["wordings"] == 1 else ", for example:"
+    return f"{count_of(group['candidates'], 'candidate')}{sep} {group['reason']}"
+
+
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
 
 # entry_hook(entry, {"spec", "prep", "opts"}) completes a ranking entry in place
@@ -119,6 +150,7 @@ class _Evaluator:
         self.scored: list[Scored] = []
         self.failures: list[dict[str, Any]] = []
         self.n_fail = 0
+        self.reasons: dict[str, int] = {}  # every failure's reason -> candidates
         self.powers: dict[SpecKey, dict[str, Any]] = {}  # concrete key -> {column: summary}
 
     def __call__(self, spec: Specification) -> Scored | None:
@@ -126,6 +158,7 @@ class _Evaluator:
             s = self._score(spec)
         except CandidateFailure as exc:
             self.n_fail += 1
+            self.reasons[exc.reason] = self.reasons.get(exc.reason, 0) + 1
             if len(self.failures) < MAX_FAILURES_LISTED:
                 self.failures.append({"specification": spec.to_dict(), "reason": exc.reason})
             return None
@@ -257,9 +290,13 @@ def run_selection(
         reasons = sorted({f["reason"] for f in failures})
         raise ModelFailure("no candidate could be fitted: " + "; ".join(reasons[:3]))
     if n_fail:
+        grouped = failure_groups(ev.reasons)
+        shown = "; ".join(failure_text(g) for g in grouped[:3])
+        more = f"; {count_of(len(grouped) - 3, 'other reason')}" if len(grouped) > 3 else ""
         warnings.append(
-            f"{n_fail} candidate(s) could not be scored (see search.failures); "
-            "they are left out of the ranking."
+            f"{count_of(n_fail, 'candidate')} could not be scored and "
+            f"{'is' if n_fail == 1 else 'are'} left out of the ranking ({shown}{more}; "
+            "see search.failure_reasons)."
         )
 
     scored = list(scored)  # the search's own count; reading estimates may score ladder rungs
@@ -334,6 +371,7 @@ def run_selection(
         "band": band.to_dict(),
         "distinct_scales": scales_info,
         "failures": failures,
+        "failure_reasons": failure_groups(ev.reasons),
         "exact_refits": int(sum(s.cv.exact_refits for s in scored)),
     }
     if box_cox_info is not None:
@@ -806,7 +844,7 @@ def _check_levels(prep: Prepared, plan: CVPlan) -> None:
                     raise InputError.at(
                         pointer("predictors", j),
                         (
-                            f"level '{lv}' of '{col}' has {cnt} row(s), so some cross-validation "
+                            f"level '{lv}' of '{col}' has {count_of(cnt, 'row')}, so some cross-validation "
                             "training fold never sees it; merge rare levels or use fewer folds"
                         ),
                     )
@@ -865,7 +903,11 @@ def run_grouped(
             f"One selection per value of the group column ({len(names)} groups); each "
             "group's ranking is under 'groups'."
         ]
-        + ([f"{failed} group(s) could not be modelled; see their 'problem'."] if failed else []),
+        + (
+            [f"{count_of(failed, 'group')} could not be modelled; see their 'problem'."]
+            if failed
+            else []
+        ),
     }
 
 

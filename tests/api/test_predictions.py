@@ -88,7 +88,12 @@ def test_round_trip_every_ranked_model(client, trees, selection):
         assert len(rows) == len(trees["Volume"])
         for p in rows:
             assert set(p) >= {"mean", "median", "lower", "upper", "extrapolation"}
+            assert set(p["model_scale"]) == {"mean", "interval_low", "interval_high"}
             assert p["extrapolation"] is False  # the training rows themselves
+        # cautions only where they apply: no extrapolated row, so no extrapolation caution
+        assert not any("extrapolation" in c for c in body["cautions"])
+        transformed = entry["specification"]["response"]["transform"]["name"] != "identity"
+        assert any("median" in c for c in body["cautions"]) == transformed
         spec = Specification.from_dict(entry["specification"])
         concrete, _design, fit, _ = fitted_model(spec, prep)
         t = concrete.response_transform
@@ -162,6 +167,10 @@ def test_good_request(client, log_model):
     assert body["warnings"] == []
     p = body["predictions"][0]
     assert p["lower"] < p["median"] < p["mean"] < p["upper"]  # log model: median below mean
+    far = {"columns": {"income": [1e6], "site": ["north"]}}
+    body = _strict_loads(_post(client, log_model, far).text)
+    assert body["predictions"][0]["extrapolation"] is True
+    assert any("extrapolation" in c for c in body["cautions"])
 
 
 def test_wrong_format_version(client, log_model):

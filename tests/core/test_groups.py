@@ -76,7 +76,7 @@ def test_failing_groups_get_problems_while_the_others_succeed(client):
     groups = body["groups"]
     assert list(groups) == ["east", "hill", "north", "south"]  # sorted values
     assert body["search"]["groups"] == 4 and body["search"]["groups_failed"] == 2
-    assert any("2 group(s) could not be modelled" in w for w in body["warnings"])
+    assert any("2 groups could not be modelled" in w for w in body["warnings"])
     east, hill = groups["east"]["problem"], groups["hill"]["problem"]
     assert east["status"] == 422 and east["errors"][0]["pointer"] == "/validation/folds"
     assert "3 usable rows" in east["detail"]

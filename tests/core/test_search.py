@@ -96,6 +96,44 @@ def test_failed_candidates_do_not_stop_the_search():
     assert out["search"]["candidates_scored"] >= 1
     for f in out["search"]["failures"]:
         assert f["reason"]
+    # failures grouped by reason with counts that add up to the failed candidates
+    groups = out["search"]["failure_reasons"]
+    if out["search"]["candidates_failed"]:
+        assert sum(g["candidates"] for g in groups) == out["search"]["candidates_failed"]
+        assert [g["candidates"] for g in groups] == sorted(
+            (g["candidates"] for g in groups), reverse=True
+        )
+        (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
+        assert "(s)" not in warning and groups[0]["reason"] in warning
+
+
+def test_failures_are_grouped_by_reason_with_counts():
+    # reciprocal response of a widely spread y: some held-out back-transforms are undefined
+    rng = np.random.default_rng(1)
+    x, z = rng.uniform(0, 5, 80), rng.uniform(0, 5, 80)
+    y = np.exp(1.5 * x + rng.normal(0, 2.0, 80))
+    prep = prepare(
+        {"columns": {"y": y.tolist(), "x": x.tolist(), "z": z.tolist()}}, "y", ["x", "z"]
+    )
+    out = run_selection(
+        prep,
+        SearchOptions(
+            response_transforms=["identity", "reciprocal", "sqrt"],
+            predictor_transforms=["identity", "log", "square", "reciprocal"],
+        ),
+        "t",
+    )
+    failed = out["search"]["candidates_failed"]
+    groups = out["search"]["failure_reasons"]
+    assert failed > 0 and groups
+    counts = [g["candidates"] for g in groups]
+    assert counts == sorted(counts, reverse=True) and sum(counts) <= failed
+    # reasons that differ only in fold and row counts are one group
+    assert sum("back-transform of 1/y" in g["reason"] for g in groups) == 1
+    (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
+    assert warning.startswith(f"{failed} candidates could not be scored")
+    assert f"{counts[0]} candidate" in warning and groups[0]["reason"] in warning
+    assert "(s)" not in warning
 
 
 def test_explicit_inapplicable_transform_is_an_input_error():

@@ -91,3 +91,16 @@ def test_interval_words_match_the_estimate():
     assert _ci_text(-0.5, 0.25, 0.95, what="coefficient") == (
         " (95% CI for the coefficient: -0.5000 to 0.2500)"
     )
+
+
+def test_cautions_only_where_they_apply():
+    # source: product rule (cautions that apply to the request, naming the metric used)
+    from service.core.cautions import EXTRAPOLATION, prediction_cautions, selection_cautions
+
+    rmse = selection_cautions("rmse", True)
+    assert EXTRAPOLATION not in rmse  # a selection makes no predictions
+    assert any("RMSE scores the smeared mean" in c for c in rmse)
+    assert any("MAE scores the median" in c for c in selection_cautions("mae", True))
+    assert not any("median" in c for c in selection_cautions("rmse", False))
+    assert prediction_cautions(False, True) == [EXTRAPOLATION]
+    assert prediction_cautions(False, False) == []
