@@ -31,6 +31,8 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from .core.numbers import count_of
+
 if TYPE_CHECKING:
     from .core.data import Prepared
     from .core.search import SearchOptions
@@ -565,7 +567,9 @@ def run_job(
     if progress is not None:
         progress.start(len(tasks))
         if reused:
-            progress.note(f"resuming: {reused} segment(s) already finished, {len(tasks)} to run")
+            progress.note(
+                f"resuming: {count_of(reused, 'segment')} already finished, {len(tasks)} to run"
+            )
     t0 = time.perf_counter()
     for name, body in runner(tasks) if tasks else ():
         entry = files[name]
@@ -671,7 +675,8 @@ def build_summary(
     if unknown:
         shown = ", ".join(f"'{s}'" for s in unknown[:20])
         notes.append(
-            f"{len(unknown)} segment(s) with an incumbent have no rows in this data: {shown}"
+            f"{count_of(len(unknown), 'segment')} with an incumbent "
+            f"{'has' if len(unknown) == 1 else 'have'} no rows in this data: {shown}"
             + (" ..." if len(unknown) > 20 else "")
         )
     return {

@@ -9,6 +9,8 @@ from pathlib import Path
 
 from pydantic import ValidationError
 
+from .core.numbers import count_of
+
 
 def read_data_file(path: str) -> dict:
     """A CSV or Parquet file as the contract's Data object."""
@@ -184,7 +186,7 @@ def _session(cluster: str, local_workers: int | None):
     link = session.dashboard
     where = "a local cluster" if cluster == "local" else cluster
     sys.stderr.write(
-        f"running on {where}: {len(session.client.nthreads())} worker(s)"
+        f"running on {where}: {count_of(len(session.client.nthreads()), 'worker')}"
         + (f", dashboard {link}" if link else "")
         + "\n"
     )

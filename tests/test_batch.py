@@ -27,6 +27,7 @@ import pyarrow.parquet as pq
 import pytest
 from service.batch import BatchProgress, Task, run_dask, segment_file
 from service.cli import select_main
+from service.core.numbers import count_of
 from service.settings import get_settings
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -145,7 +146,7 @@ def test_local_cluster_with_two_workers_gives_the_same_files(job, tmp_path, caps
     assert select_main(argv) == 0
     err = capsys.readouterr().err
     assert _results(out) == job["inline"]
-    assert "running on a local cluster: 2 worker(s)" in err
+    assert "running on a local cluster: 2 workers" in err
     # not a terminal: a plain line every 4 segments
     assert "segments 4/12 done, 0 failed" in err and "segments 12/12 done" in err
 
@@ -207,7 +208,7 @@ def test_scheduler_and_worker_started_with_dask_commands(job, tmp_path, monkeypa
                 p.kill()
                 p.wait()
     assert code == 0 and code_single == 0
-    assert capsys.readouterr().err.count(f"running on {address}: 1 worker(s)") == 2
+    assert capsys.readouterr().err.count(f"running on {address}: 1 worker") == 2
     assert _results(out) == job["inline"]
     groups = json.loads(single.read_text())["groups"]
     assert {k: _canonical(v) for k, v in groups.items()} == job["inline"]
@@ -237,7 +238,7 @@ def test_killed_job_resumes_without_redoing_finished_segments(job, tmp_path, cap
     assert select_main(argv[4:]) == 2
     assert "--resume" in capsys.readouterr().err
     assert select_main([*argv[4:], "--resume"]) == 0
-    assert f"{len(finished)} segment(s) already finished" in capsys.readouterr().err
+    assert f"{count_of(len(finished), 'segment')} already finished" in capsys.readouterr().err
     for name, mtime in finished.items():
         assert (seg_dir / name).stat().st_mtime_ns == mtime  # not redone
     assert _results(out) == job["inline"]

@@ -29,7 +29,7 @@ import numpy as np
 from scipy import stats
 
 from service.core import _condition_tests as ct
-from service.core.numbers import fmt, p_is
+from service.core.numbers import count_of, fmt, p_is
 
 #: common-practice VIF cut-offs (warn, fail)
 VIF_WARN, VIF_FAIL = 5.0, 10.0
@@ -523,7 +523,7 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     for entry in tests:
         if entry["statistic"] is None:
             entry["reason"] = (
-                f"undefined: {fit.df_resid} residual degree(s) of freedom, or "
+                f"undefined: {count_of(int(fit.df_resid), 'residual degree')} of freedom, or "
                 "every row has leverage 1"
             )
     n_fail = int(np.sum(masks["Cook's distance > 1"]))
@@ -532,18 +532,19 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     d_max, d_row = cook["statistic"], cook["row"]
     if n_one:
         note = (
-            f"{n_one} row(s) have leverage 1, so the fit passes through them exactly and "
+            f"{count_of(n_one, 'row')} {'has' if n_one == 1 else 'have'} leverage 1, so the fit passes through them exactly and "
             "their influence cannot be measured."
         )
     elif not holds:
         note = (
-            f"{n_fail} row(s) have Cook's distance above 1 (largest {_g(d_max, 4)} at row "
-            f"{d_row}); {order.size} row(s) flagged in all."
+            f"{count_of(n_fail, 'row')} {'has' if n_fail == 1 else 'have'} Cook's distance above 1 (largest {_g(d_max, 4)} at row "
+            f"{d_row}); {count_of(int(order.size), 'row')} flagged in all."
         )
     else:
         note = (
             f"No single row dominates the fit (largest Cook's distance {_g(d_max, 3)} at "
-            f"row {d_row}, below 1); {order.size} row(s) exceed a common-practice "
+            f"row {d_row}, below 1); {count_of(int(order.size), 'row')} "
+            f"{'exceeds' if order.size == 1 else 'exceed'} a common-practice "
             "screening cut-off."
         )
     return {

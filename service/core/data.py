@@ -157,7 +157,8 @@ def _from_csv(text: str) -> RawTable:
         more = f" and {len(dup) - len(shown)} more" if len(dup) > len(shown) else ""
         raise InputError.at(
             "/data/csv",
-            f"data.csv header repeats column name(s) {shown}{more}; names must be unique",
+            f"data.csv header repeats column {'name' if len(dup) == 1 else 'names'} {shown}{more}; "
+            "names must be unique",
         )
     if any(h == "" for h in header):
         raise InputError.at("/data/csv", "data.csv header has an empty column name")

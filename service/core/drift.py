@@ -41,6 +41,10 @@ RULE = (
 )
 
 
+def _lv(names: list[str]) -> str:
+    return "level" if len(names) == 1 else "levels"
+
+
 def numeric_profile(x: np.ndarray) -> dict[str, Any]:
     """Deciles of ``x`` and the share of rows in each bin between them (ties merge bins)."""
     x = np.asarray(x, dtype=float)
@@ -170,9 +174,13 @@ def compare(artifact: dict[str, Any], prep: Prepared) -> dict[str, Any]:
         elif c in prep.categorical:
             d = _categorical(prep.categorical[c], pprof.get(c), levels.get(c))
             if d["new_levels"]:
-                flags.append(f"'{c}' has level(s) the model never saw: {_names(d['new_levels'])}")
+                flags.append(
+                    f"'{c}' has {_lv(d['new_levels'])} the model never saw: {_names(d['new_levels'])}"
+                )
             if d["vanished_levels"]:
-                flags.append(f"'{c}' no longer has level(s) {_names(d['vanished_levels'])}")
+                flags.append(
+                    f"'{c}' no longer has {_lv(d['vanished_levels'])} {_names(d['vanished_levels'])}"
+                )
         else:
             preds[c] = {"kind": "missing"}
             flags.append(f"'{c}' is not in this data")
