@@ -96,6 +96,9 @@ class CVOut(_Open):
     scale: Literal["original"]
     folds: int
     repeats: int
+    scheme: Literal["random", "blocked"] = Field(
+        "random", description="how the folds were formed (validation.scheme)"
+    )
 
 
 class FitOut(_Open):

@@ -145,7 +145,7 @@ def choose_inference(
             warnings.append(
                 "Residuals are serially correlated in the given order, but the "
                 "cross-validation folds were random, not blocked, so the CV error is "
-                "optimistic."
+                "optimistic; send validation.scheme 'blocked' to score on contiguous folds."
             )
     elif "equal_variance" in bad:
         kind = "hc3"
