@@ -566,12 +566,33 @@ def _ranking_table(entries: list[dict], detail_ids: dict) -> str:
     return legend + f'<table class="ranking">{head}<tbody>{"".join(rows)}</tbody></table>'
 
 
+_SE_WORDS = {
+    "classical": "classical",
+    "hc3": "HC3 (heteroscedasticity-consistent)",
+    "hac": "Newey-West (serial-correlation-consistent)",
+}
+
+
+def _se_kind(entry: dict) -> str:
+    kind = (entry.get("inference") or {}).get("standard_errors", "classical")
+    return kind if kind in _SE_WORDS else "classical"
+
+
+def _se_line(entry: dict) -> str:
+    inf = entry.get("inference") or {}
+    kind = _se_kind(entry)
+    lags = f", {inf['hac_lags']} lags" if kind == "hac" and inf.get("hac_lags") is not None else ""
+    return f"{_SE_WORDS[kind]}{lags}: {esc(inf.get('reason', ''))}"
+
+
 def _coefficients(entry: dict) -> str:
+    sfx = "" if _se_kind(entry) == "classical" else f"_{_se_kind(entry)}"
     rows = "".join(
         f'<tr><td><code>{esc(c["term"])}</code></td><td class="n est">{num(c.get("estimate"))}</td>'
-        f'<td class="n">{num(c.get("std_error"))}</td><td class="n">{num(c.get("t_statistic"))}</td>'
-        f'<td class="n">{pval(c.get("p_value"))}</td>'
-        f'<td class="n">{num(c.get("ci_low"))} to {num(c.get("ci_high"))}</td></tr>'
+        f'<td class="n">{num(c.get("std_error" + sfx))}</td>'
+        f'<td class="n">{num(c.get("t_statistic" + sfx))}</td>'
+        f'<td class="n">{pval(c.get("p_value" + sfx))}</td>'
+        f'<td class="n">{num(c.get("ci_low" + sfx))} to {num(c.get("ci_high" + sfx))}</td></tr>'
         for c in entry.get("coefficients", [])
     )
     scale = esc(entry["equation"].split(" = ")[0]) if " = " in entry.get("equation", "") else ""
@@ -640,6 +661,7 @@ def _detail(entry: dict, plots, anchor: str, heading: str, level: int = 2) -> st
             ),
         ),
         ("Residual standard deviation", f"{num(fit.get('residual_sd'))} (model scale)"),
+        ("Standard errors", _se_line(entry)),
         ("How it was ranked", esc(parts.get("rule", ""))),
     ]
     sub = level + 1

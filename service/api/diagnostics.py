@@ -66,11 +66,13 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
     categorical = list(req.categorical) + [
         p["column"] for p in spec["predictors"] if p["transform"]["name"] == "categorical"
     ]
+    req.validation.check_scheme()
     opts = SearchOptions(
         folds=req.validation.folds,
         repeats=req.validation.repeats,
         seed=req.validation.seed,
         metric=req.validation.metric,
+        scheme=req.validation.scheme,
         alpha=req.alpha,
         units=dict(req.units),
     )

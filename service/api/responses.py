@@ -96,6 +96,9 @@ class CVOut(_Open):
     scale: Literal["original"]
     folds: int
     repeats: int
+    scheme: Literal["random", "blocked"] = Field(
+        "random", description="how the folds were formed (validation.scheme)"
+    )
 
 
 class FitOut(_Open):
@@ -119,6 +122,37 @@ class CoefficientOut(_Open):
     p_value: Num
     ci_low: Num
     ci_high: Num
+    std_error_hc3: Num = Field(
+        None, description="HC3 heteroscedasticity-consistent standard error (every entry)"
+    )
+    t_statistic_hc3: Num = None
+    p_value_hc3: Num = Field(None, description="t with the residual degrees of freedom")
+    ci_low_hc3: Num = None
+    ci_high_hc3: Num = None
+    std_error_hac: Num = Field(
+        None,
+        description="Newey-West HAC standard error; only with an order column "
+        "(lags in inference.hac_lags)",
+    )
+    t_statistic_hac: Num = None
+    p_value_hac: Num = None
+    ci_low_hac: Num = None
+    ci_high_hac: Num = None
+
+
+class InferenceOut(_Open):
+    """Which standard errors the interpretation sentences and the report use."""
+
+    standard_errors: Literal["classical", "hc3", "hac"] = Field(
+        ...,
+        description="hac when independence fails in the order column's order, hc3 when "
+        "equal variance fails, otherwise classical",
+    )
+    reason: str
+    hac_lags: int | None = Field(
+        None, description="Newey-West lags, floor(4 (n/100)^(2/9)); only with an order column"
+    )
+    hac_lag_rule: str | None = None
 
 
 class ConditionTestOut(_Open):
@@ -167,6 +201,7 @@ class EntryOut(_Open):
     coefficients: list[CoefficientOut]
     conditions: ConditionsOut
     score: ScoreOut
+    inference: InferenceOut
     interpretation: list[str]
     model: dict[str, Any] = Field(
         ...,

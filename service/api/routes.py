@@ -64,6 +64,7 @@ def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
             "/limits/max_candidates",
             f"max_candidates {max_c} exceeds the service limit of {s.max_candidates}",
         )
+    req.validation.check_scheme()
     tl = req.limits.time_limit_s or s.default_time_limit_s
     if tl > s.max_time_limit_s:
         raise InputError.at(
@@ -77,6 +78,7 @@ def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
         repeats=req.validation.repeats,
         seed=req.validation.seed,
         metric=req.validation.metric,
+        scheme=req.validation.scheme,
         alpha=req.alpha,
         top=req.top,
         max_candidates=max_c,

@@ -258,6 +258,24 @@ class ValidationIn(_Strict):
         "mae and mape the median (naive inverse)",
         examples=["rmse"],
     )
+    scheme: Literal["random", "blocked"] = Field(
+        "random",
+        description="random: shuffled K-fold (seeded); blocked: K contiguous folds in the "
+        "order of the 'order' column (row order without one), for ordered data whose "
+        "neighbours are correlated; blocked has one partition, so repeats must be 1",
+        examples=["random"],
+    )
+
+    def check_scheme(self) -> None:
+        """Options that contradict the fold scheme: a 422 naming the field."""
+        from service.core.errors import InputError
+
+        if self.scheme == "blocked" and self.repeats != 1:
+            raise InputError.at(
+                "/validation/repeats",
+                f"repeats {self.repeats} cannot be used with validation.scheme 'blocked': "
+                "contiguous folds form a single partition; send repeats 1 or scheme 'random'",
+            )
 
 
 TransformChoice = TransformName | TransformIn

@@ -39,6 +39,7 @@ class CVPlan:
     seed: int
     metric: str
     assignments: tuple[np.ndarray, ...]  # per repeat: (n,) fold id of each row
+    scheme: str = "random"  # "random" K-fold or "blocked" (contiguous in the rows' order)
 
     @property
     def n_splits(self) -> int:
@@ -46,13 +47,30 @@ class CVPlan:
 
 
 def make_plan(
-    n: int, folds: int = 5, repeats: int = 1, seed: int = 0, metric: str = "rmse"
+    n: int,
+    folds: int = 5,
+    repeats: int = 1,
+    seed: int = 0,
+    metric: str = "rmse",
+    scheme: str = "random",
+    order: np.ndarray | None = None,
 ) -> CVPlan:
+    """Fold ids per repeat.  ``scheme="blocked"``: one partition into contiguous runs of
+    ``order`` (the permutation putting rows in the order column's order; None: row
+    order), the same fold sizes as random K-fold, no shuffling, so ``repeats`` must be 1."""
     rs = np.random.RandomState(seed)
     out = []
     sizes = np.full(folds, n // folds)
     sizes[: n % folds] += 1
     bounds = np.concatenate([[0], np.cumsum(sizes)])
+    if scheme == "blocked":
+        if repeats != 1:
+            raise ValueError("blocked folds have a single partition (repeats must be 1)")
+        perm = np.arange(n) if order is None else np.asarray(order, dtype=np.intp)
+        a = np.empty(n, dtype=np.int32)
+        for k in range(folds):
+            a[perm[bounds[k] : bounds[k + 1]]] = k
+        return CVPlan(folds, 1, seed, metric, (a,), "blocked")
     for _ in range(repeats):
         perm = rs.permutation(n)
         a = np.empty(n, dtype=np.int32)
@@ -82,6 +100,7 @@ class CVResult:
             "folds": plan.folds,
             "repeats": plan.repeats,
             "seed": plan.seed,
+            "scheme": plan.scheme,
             "all_metrics": self.summary,
             "back_transform": "smeared mean (Duan 1983)"
             if self.metric == "rmse"

@@ -157,7 +157,9 @@ def diagnose_specification(
         from .search import _check_rows
 
         _check_rows(prep, opts, design.X.shape[1])
-        plan = make_plan(prep.n, opts.folds, opts.repeats, opts.seed, opts.metric)
+        plan = make_plan(
+            prep.n, opts.folds, opts.repeats, opts.seed, opts.metric, opts.scheme, prep.order
+        )
         cv = cross_validate(design.X, prep.y, rt, plan, tr.needs_shift(prep.y), design.names)
         parts = {
             "cv_value": cv.value,

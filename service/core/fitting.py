@@ -40,33 +40,72 @@ class OLSFit:
     has_intercept: bool
     condition_number: float
 
-    def table(self, level: float = 0.95) -> list[dict[str, Any]]:
+    def table(
+        self, level: float = 0.95, robust: dict[str, np.ndarray] | None = None
+    ) -> list[dict[str, Any]]:
+        """Coefficient rows with classical standard errors, plus, for each ``robust``
+        covariance (key ``"hc3"``, ``"hac"``), ``std_error_<key>``, ``t_statistic_<key>``,
+        ``p_value_<key>``, ``ci_low_<key>`` and ``ci_high_<key>`` (t with the residual
+        degrees of freedom, as for the classical ones)."""
         tq = stats.t.ppf(0.5 + level / 2.0, self.df_resid) if self.df_resid > 0 else math.nan
         rows = []
         t: float | None
         p: float | None
         lo: float | None
         hi: float | None
+        extra = {k: np.sqrt(np.maximum(np.diag(v), 0.0)) for k, v in (robust or {}).items()}
         for i, name in enumerate(self.names):
-            b, s = float(self.coef[i]), float(self.se[i])
-            if self.df_resid > 0 and s > 0:
-                t = b / s
-                p = float(2.0 * stats.t.sf(abs(t), self.df_resid))
-                lo, hi = b - tq * s, b + tq * s
-            else:
-                t = p = lo = hi = None
-            rows.append(
-                {
-                    "term": name,
-                    "estimate": b,
-                    "std_error": s if s > 0 else None,
-                    "t_statistic": t,
-                    "p_value": p,
-                    "ci_low": lo,
-                    "ci_high": hi,
+            b = float(self.coef[i])
+            row: dict[str, Any] = {"term": name, "estimate": b}
+            for suffix, se in [("", self.se), *((f"_{k}", v) for k, v in extra.items())]:
+                s = float(se[i])
+                if self.df_resid > 0 and s > 0:
+                    t = b / s
+                    p = float(2.0 * stats.t.sf(abs(t), self.df_resid))
+                    lo, hi = b - tq * s, b + tq * s
+                else:
+                    t = p = lo = hi = None
+                row |= {
+                    f"std_error{suffix}": s if s > 0 else None,
+                    f"t_statistic{suffix}": t,
+                    f"p_value{suffix}": p,
+                    f"ci_low{suffix}": lo,
+                    f"ci_high{suffix}": hi,
                 }
-            )
+            rows.append(row)
         return rows
+
+
+def hc3_cov(fit: OLSFit, X: np.ndarray) -> np.ndarray:
+    """HC3 covariance of the coefficients (MacKinnon & White 1985; recommended for small
+    samples by Long & Ervin 2000): (X'X)^-1 X' diag(e_i^2 / (1 - h_i)^2) X (X'X)^-1.
+    Rows with leverage 1 (residual exactly 0) contribute nothing."""
+    A = fit.cov_unscaled
+    h = np.einsum("ij,jk,ik->i", X, A, X)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = np.where(h < 1.0, fit.resid / (1.0 - h), 0.0)
+    xw = X * w[:, None]
+    out: np.ndarray = A @ (xw.T @ xw) @ A
+    return out
+
+
+def newey_west_lags(n: int) -> int:
+    """Lag truncation floor(4 (n/100)^(2/9)) (common practice; Newey & West 1994)."""
+    lags: int = math.floor(4.0 * (n / 100.0) ** (2.0 / 9.0))
+    return lags
+
+
+def hac_cov(fit: OLSFit, X: np.ndarray, order: np.ndarray, lags: int) -> np.ndarray:
+    """Newey-West (1987) HAC covariance with Bartlett weights 1 - k/(lags+1), rows taken
+    in ``order`` (a permutation); no small-sample factor."""
+    u = (X * fit.resid[:, None])[np.asarray(order, dtype=np.intp)]
+    S = u.T @ u
+    for k in range(1, min(lags, u.shape[0] - 1) + 1):
+        g = u[k:].T @ u[:-k]
+        S += (1.0 - k / (lags + 1.0)) * (g + g.T)
+    A = fit.cov_unscaled
+    out: np.ndarray = A @ S @ A
+    return out
 
 
 def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

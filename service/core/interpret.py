@@ -498,13 +498,16 @@ def interpret_terms(
     prep: Prepared,
     units: dict[str, str] | None = None,
     level: float = 0.95,
+    table: list[dict[str, Any]] | None = None,
 ) -> list[dict[str, Any]]:
     """One reading per slope and per categorical level, with its numbers and ``sentence``.
 
     ``spec`` is the concrete fitted specification (estimated parameters
     filled in), ``design`` and ``fit`` its full-data design and OLS fit,
     ``prep`` the rows it was fitted on; ``units`` maps column names to unit
-    text ("metre"); ``level`` is the confidence level of the intervals.
+    text ("metre"); ``level`` is the confidence level of the intervals;
+    ``table`` replaces ``fit.table(level)`` (rows whose ``ci_low``/``ci_high``
+    come from robust standard errors).
     Each dict has ``term``, ``column``, ``reading`` (level-level, log-level,
     level-log, log-log, categorical-level, categorical-log, two-point,
     categorical-two-point), ``estimate``, ``ci_low``/``ci_high`` (model scale),
@@ -515,7 +518,7 @@ def interpret_terms(
         design,
         prep,
         np.asarray(fit.coef, dtype=float),
-        {row["term"]: row for row in fit.table(level)},
+        {row["term"]: row for row in (fit.table(level) if table is None else table)},
         dict(units or {}),
         level,
         _reference_point(spec, design, prep),
@@ -568,6 +571,12 @@ def interpret_fit(
     prep: Prepared,
     units: dict[str, str] | None = None,
     level: float = 0.95,
+    table: list[dict[str, Any]] | None = None,
+    clause: str = "",
 ) -> list[str]:
-    """The sentences of :func:`interpret_terms`, one per slope and per categorical level."""
-    return [item["sentence"] for item in interpret_terms(spec, design, fit, prep, units, level)]
+    """The sentences of :func:`interpret_terms`, one per slope and per categorical level;
+    a non-empty ``clause`` (how the intervals were computed) is added to each sentence."""
+    items = interpret_terms(spec, design, fit, prep, units, level, table)
+    if not clause:
+        return [item["sentence"] for item in items]
+    return [f"{item['sentence'].rstrip('.')}; {clause}." for item in items]

@@ -11,9 +11,9 @@ from . import retransform
 from . import transforms as tr
 from .crossval import CVPlan, CVResult
 from .data import Prepared
-from .diagnose import conditions_for
+from .diagnose import conditions_for, failed
 from .errors import CandidateFailure
-from .fitting import OLSFit, ols
+from .fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from .interpret import interpret_fit
 from .likelihood import LambdaEstimate, estimate_lambda
 from .model import build_model
@@ -120,6 +120,60 @@ def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict[str,
     }
 
 
+LAG_RULE = "floor(4 (n/100)^(2/9)), common practice"
+
+
+def robust_covariances(
+    fit: OLSFit, design: Design, prep: Prepared
+) -> tuple[dict[str, np.ndarray], int | None]:
+    """HC3 always; Newey-West HAC when the rows have an order: (covariances, HAC lags)."""
+    covs = {"hc3": hc3_cov(fit, design.X)}
+    lags = None
+    if prep.order is not None:
+        lags = newey_west_lags(fit.n)
+        covs["hac"] = hac_cov(fit, design.X, prep.order, lags)
+    return covs, lags
+
+
+def choose_inference(
+    conditions: dict[str, Any], lags: int | None, blocked: bool
+) -> tuple[dict[str, Any], str, list[str]]:
+    """Which standard errors the readings use: (inference block, clause for the
+    sentences, warnings).  Failing independence with an order -> Newey-West HAC (also
+    robust to unequal variance); failing equal variance -> HC3; otherwise classical."""
+    bad = failed(conditions)
+    warnings: list[str] = []
+    if "independence" in bad and lags is not None:
+        kind = "hac"
+        reason = "independence fails in the given order"
+        clause = f"the interval uses Newey-West standard errors ({lags} lags) because {reason}"
+        if not blocked:
+            warnings.append(
+                "Residuals are serially correlated in the given order, but the "
+                "cross-validation folds were random, not blocked, so the CV error is "
+                "optimistic; send validation.scheme 'blocked' to score on contiguous folds."
+            )
+    elif "equal_variance" in bad:
+        kind = "hc3"
+        reason = "equal variance fails"
+        clause = f"the interval uses HC3 standard errors because {reason}"
+    else:
+        kind, reason, clause = "classical", "the conditions they rest on are not rejected", ""
+    block: dict[str, Any] = {"standard_errors": kind, "reason": reason}
+    if lags is not None:
+        block["hac_lags"] = lags
+        block["hac_lag_rule"] = LAG_RULE
+    return block, clause, warnings
+
+
+def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
+    """Coefficient rows whose classical fields are replaced by those of ``kind``."""
+    if kind == "classical":
+        return rows
+    keys = ("std_error", "t_statistic", "p_value", "ci_low", "ci_high")
+    return [row | {k: row[f"{k}_{kind}"] for k in keys} for row in rows]
+
+
 def entry_for(
     spec: Specification,
     cv: CVResult,
@@ -158,6 +212,7 @@ def entry_for(
             f"The design is ill-conditioned (condition number of the column-scaled "
             f"design {fit.condition_number:.3g}); coefficients are unstable."
         )
+    covs, lags = robust_covariances(fit, design, prep)
     entry: dict[str, Any] = {
         "specification": concrete.to_dict(),
         "equation": equation(concrete, design, fit.coef),
@@ -165,7 +220,7 @@ def entry_for(
         "fit": fit_block(concrete, fit, prep),
         "coefficients": [
             {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
-            for row in fit.table()
+            for row in fit.table(robust=covs)
         ],
         "score": {
             "cv_ratio": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
@@ -194,8 +249,18 @@ def entry_for(
     for h in hints:
         if h.get("bulge") and h.get("sentence"):
             warnings.append(h["sentence"])
+    blocked = getattr(opts, "scheme", "random") == "blocked"
+    inference, clause, more = choose_inference(conditions, lags, blocked)
+    entry["inference"] = inference
+    warnings.extend(more)
     entry["interpretation"] = interpret_fit(
-        concrete, design, fit, prep, getattr(opts, "units", None)
+        concrete,
+        design,
+        fit,
+        prep,
+        getattr(opts, "units", None),
+        table=table_for(fit.table(robust=covs), inference["standard_errors"]),
+        clause=clause,
     )
     if estimates:
         entry["estimates"] = estimates

@@ -99,6 +99,7 @@ class SearchOptions:
     units: dict[str, Any] = field(default_factory=dict)
     incumbent: dict[str, Any] | None = None  # contract Specification in use
     strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
+    scheme: str = "random"  # CV folds: "random" K-fold or "blocked" (contiguous in order)
     # the end of the whole request (time.time()): search, stability and optimism share it
     deadline_at: float | None = None
     # () -> bool, True once the caller has gone; checked between candidates (in-process only)
@@ -229,7 +230,9 @@ def run_selection(
         for p, c in zip(preds, prep.predictors, strict=True)
     )
     _check_rows(prep, opts, n_params)
-    plan = make_plan(prep.n, opts.folds, opts.repeats, opts.seed, opts.metric)
+    plan = make_plan(
+        prep.n, opts.folds, opts.repeats, opts.seed, opts.metric, opts.scheme, prep.order
+    )
     _check_levels(prep, plan)
     shift_needed = tr.needs_shift(prep.y)
     warnings: list[str] = []

@@ -1,0 +1,117 @@
+"""validation.scheme 'blocked': contiguous folds in the order column's order."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from fastapi.testclient import TestClient
+from service.app import app
+from service.core import transforms as tr
+from service.core.crossval import cross_validate, make_plan
+from service.core.data import prepare
+from service.core.search import SearchOptions, run_selection
+from service.core.spec import build_design
+from sklearn.model_selection import KFold
+
+
+@pytest.mark.parametrize("n, folds", [(10, 5), (23, 5), (101, 10), (16, 2)])
+def test_blocked_folds_are_contiguous_and_cover_every_row_once(n, folds):
+    order = np.random.default_rng(n).permutation(n)  # rows arrive shuffled
+    plan = make_plan(n, folds, 1, 0, scheme="blocked", order=order)
+    (a,) = plan.assignments
+    assert plan.scheme == "blocked"
+    sizes = np.bincount(a, minlength=folds)
+    assert sizes.min() >= 1 and sizes.max() - sizes.min() <= 1
+    assert a.shape == (n,) and set(a.tolist()) == set(range(folds))  # every row one fold
+    in_order = a[order]
+    assert np.all(np.diff(in_order) >= 0)  # fold ids never go back: contiguous runs
+    # source: sklearn KFold(shuffle=False) on the rows sorted by the order column
+    for k, (_, test) in enumerate(KFold(folds).split(np.zeros(n))):
+        assert np.array_equal(np.sort(order[test]), np.flatnonzero(a == k))
+    # the same request gives the same folds whatever the seed (nothing is shuffled)
+    assert np.array_equal(
+        make_plan(n, folds, 1, 99, scheme="blocked", order=order).assignments[0], a
+    )
+
+
+def test_blocked_without_order_uses_row_order():
+    (a,) = make_plan(7, 3, 1, 0, scheme="blocked").assignments
+    assert a.tolist() == [0, 0, 0, 1, 1, 2, 2]
+
+
+def test_blocked_folds_refuse_repeats():
+    with pytest.raises(ValueError, match="repeats"):
+        make_plan(20, 4, 2, 0, scheme="blocked")
+
+
+def _ordered(n=41, seed=21):
+    rng = np.random.default_rng(seed)
+    t = rng.permutation(n).astype(float)
+    x = rng.uniform(1, 6, n)
+    e = np.cumsum(rng.normal(0, 0.1, n))[np.argsort(np.argsort(t))]  # serially correlated
+    y = np.exp(0.4 + 0.3 * x + e)
+    return {"y": y.tolist(), "x": x.tolist(), "t": t.tolist()}
+
+
+def test_every_candidate_is_scored_on_the_blocked_folds():
+    cols = _ordered()
+    prep = prepare({"columns": cols}, "y", ["x"], order="t")
+    opts = SearchOptions(
+        response_transforms=["identity", "log", "sqrt", "box_cox"],
+        predictor_transforms=["identity", "log"],
+        folds=4,
+        scheme="blocked",
+    )
+    out = run_selection(prep, opts, "test")
+    plan = make_plan(prep.n, 4, 1, 0, scheme="blocked", order=prep.order)
+    assert len(out["_scored"]) >= 6
+    for s in out["_scored"]:
+        d = build_design(s.spec, prep)
+        fresh = cross_validate(
+            d.X, prep.y, s.spec.response_transform, plan, tr.needs_shift(prep.y), d.names
+        )
+        # re-scoring on an independently built blocked plan reproduces every candidate's CV
+        np.testing.assert_allclose(s.cv.fold_values, fresh.fold_values, rtol=1e-12)
+    assert all(e["cv"]["scheme"] == "blocked" for e in out["ranking"])
+    random = run_selection(
+        prep,
+        SearchOptions(folds=4, response_transforms=["identity"], predictor_transforms=["identity"]),
+        "test",
+    )
+    assert random["ranking"][0]["cv"]["scheme"] == "random"
+
+
+@pytest.fixture(scope="module")
+def client():
+    return TestClient(app)
+
+
+def _request(**validation):
+    return {
+        "data": {"columns": _ordered()},
+        "response": "y",
+        "predictors": ["x"],
+        "order": "t",
+        "validation": validation,
+    }
+
+
+def test_blocked_over_http(client):
+    r = client.post("/v1/selections", json=_request(scheme="blocked", folds=4))
+    assert r.status_code == 200, r.text
+    assert {e["cv"]["scheme"] for e in r.json()["ranking"]} == {"blocked"}
+    assert not any("random, not blocked" in w for e in r.json()["ranking"] for w in e["warnings"])
+
+
+def test_blocked_with_repeats_is_a_clear_422(client):
+    r = client.post("/v1/selections", json=_request(scheme="blocked", repeats=3))
+    assert r.status_code == 422, r.text
+    p = r.json()
+    assert p["errors"][0]["pointer"] == "/validation/repeats"
+    assert "repeats 1" in p["errors"][0]["detail"] and "blocked" in p["errors"][0]["detail"]
+
+
+def test_unknown_scheme_is_rejected(client):
+    r = client.post("/v1/selections", json=_request(scheme="shuffled"))
+    assert r.status_code == 422, r.text
+    assert r.json()["errors"][0]["pointer"] == "/validation/scheme"
