@@ -35,7 +35,7 @@ from .core.numbers import count_of
 
 if TYPE_CHECKING:
     from .core.data import Prepared
-    from .core.search import SearchOptions
+    from .core.search_setup import SearchOptions
 
 MANIFEST = "manifest.json"
 SUMMARY = "summary.json"
@@ -116,13 +116,13 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     ``sub`` is the segment's Prepared or its ``{"problem": ...}`` when it was already known
     to be unusable.  An incumbent's model artifact adds the ``drift`` block.
     """
-    from .api.routes import _finish
-    from .core.workers import select_group
+    from .api.selection import finish_body
+    from .core.groups import select_group
 
     _pin_blas_once()
     body = select_group((sub, opts, service_version))
     if "problem" not in body:
-        body = _finish(body, opts)
+        body = finish_body(body, opts)
     if incumbent_model is not None and not isinstance(sub, dict):
         from .core.drift import compare
 
@@ -512,16 +512,11 @@ def run_job(
     progress: BatchProgress | None = None,
 ) -> dict:
     """Run every unfinished segment, write its file as it arrives, then the summary."""
-    from .core.data import split_groups
-    from .core.errors import BestscaleError
-    from .core.search import _problem_of
+    from .core.groups import group_parts
 
     out = job.out
     seg_dir = out / SEGMENTS
-    parts = {
-        name: ({"problem": _problem_of(sub)} if isinstance(sub, BestscaleError) else sub)
-        for name, sub in split_groups(job.prep).items()
-    }
+    parts = group_parts(job.prep)
     manifest = build_manifest(job, parts)
     mpath = out / MANIFEST
     if mpath.exists():

@@ -49,8 +49,8 @@ def _is_directory_out(out: str | None) -> bool:
 
 def select_main(argv: list[str]) -> int:
     from .api.encode import to_jsonable
-    from .api.routes import run_selection_request
     from .api.schemas import SelectionRequest
+    from .api.selection import run_selection_request
     from .core.errors import BestscaleError
 
     ap = argparse.ArgumentParser(
@@ -210,8 +210,8 @@ def _batch(req, body: dict, args, cluster: str | None) -> int:
     ok, 3 when some failed (their files and the summary say why)."""
     from functools import partial
 
-    from .api.routes import selection_options
     from .api.schemas import SpecificationIn
+    from .api.selection import selection_options
     from .batch import (
         BatchProgress,
         BatchRefusal,

@@ -8,7 +8,7 @@ inside a dashboard's iframe.  A Content-Security-Policy ``<meta>`` forbids every
 every script, so the saved file stays inert.
 
 :func:`report_plots` builds the plot data with the same functions as ``/v1/diagnostics``
-(:func:`service.core.report.fitted_model`, :func:`service.core.diagnose.condition_inputs`,
+(:func:`service.core.report.fitted_model`, :func:`service.core.condition_rules.condition_inputs`,
 :func:`service.core.plots.diagnostic_plots`), so a figure in the report is the figure that
 endpoint draws for the same specification.
 
@@ -214,7 +214,7 @@ def report_plots(
 
 
 def _plots_for(entry: dict, prep, alpha: float, seed: int, max_points: int):
-    from .core.diagnose import condition_inputs
+    from .core.condition_rules import condition_inputs
     from .core.errors import CandidateFailure
     from .core.plots import diagnostic_plots
     from .core.report import fitted_model

@@ -60,7 +60,8 @@ def test_demo_rank_1_survives_single_row_drops():
     # measures the share over many drops, here two seeded drops must both keep rank 1
     import numpy as np
     from service.core.data import prepare
-    from service.core.search import SearchOptions, run_selection
+    from service.core.search import run_selection
+    from service.core.search_setup import SearchOptions
     from service.demo import demo_columns
 
     cols = demo_columns()

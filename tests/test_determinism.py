@@ -12,7 +12,8 @@ from fastapi.testclient import TestClient
 from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare
-from service.core.search import SearchOptions, run_selection
+from service.core.search import run_selection
+from service.core.search_setup import SearchOptions
 from service.core.trust import assess_trust
 from service.core.workers import process_mapper
 from service.demo import demo_columns

@@ -9,7 +9,7 @@ from starlette.responses import Response
 from ..core.data import prepare
 from ..core.diagnose import diagnose_specification
 from ..core.errors import InputError
-from ..core.search import SearchOptions
+from ..core.search_setup import SearchOptions
 from ..middleware import note_result
 from ..version import __version__
 from .encode import JSONBody

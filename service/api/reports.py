@@ -11,9 +11,9 @@ from ..middleware import note_result
 from ..report_html import CSP, render_report, report_plots
 from .encode import to_jsonable
 from .pool import compute_slot
-from .routes import disconnect_probe, run_selection_request
 from .routing import StrictRoute
 from .schemas import SelectionRequest
+from .selection import disconnect_probe, run_selection_request
 
 router = APIRouter(route_class=StrictRoute)
 

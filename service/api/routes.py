@@ -2,192 +2,20 @@
 
 from __future__ import annotations
 
-import time
-from collections.abc import Callable, Iterable
-from typing import Any
-
 from fastapi import APIRouter, Request
 from starlette.responses import PlainTextResponse
 
 from ..core import transforms as tr
-from ..core.cautions import selection_cautions
-from ..core.data import prepare
-from ..core.errors import InputError
-from ..core.model import sign_all
-from ..core.search import SearchOptions, run_grouped, run_selection
 from ..middleware import note_result
-from ..settings import get_settings
 from ..version import __version__
 from .encode import JSONBody
-from .intake import check_table
 from .pool import compute_slot
+from .reports import report_response, wants_html
 from .routing import StrictRoute
-from .schemas import SelectionRequest, transform_items
+from .schemas import SelectionRequest
+from .selection import disconnect_probe, run_selection_request
 
 router = APIRouter(route_class=StrictRoute)
-
-
-def _check_size(data: dict, n_columns: int) -> None:
-    s = get_settings()
-    check_table(data)
-    if n_columns > s.max_columns:
-        raise InputError.at(
-            "/predictors",
-            f"{n_columns} columns requested; at most "
-            f"{s.max_columns} are accepted (setting BESTSCALE_MAX_COLUMNS)",
-        )
-
-
-def disconnect_probe(request: Request):
-    """``() -> bool`` for a computing thread: True once the client has gone away.
-
-    Runs ``request.is_disconnected`` on the event loop from the route's worker thread; the
-    search asks it between candidates (at most a few times a second), so a caller that hung
-    up frees its compute slot instead of holding it to the time limit.
-    """
-    import anyio.from_thread
-
-    def gone() -> bool:
-        try:
-            return bool(anyio.from_thread.run(request.is_disconnected))
-        except RuntimeError:  # not in a worker thread of the event loop
-            return False
-
-    return gone
-
-
-def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
-    s = get_settings()
-    max_c = req.limits.max_candidates or s.default_max_candidates
-    if max_c > s.max_candidates:
-        raise InputError.at(
-            "/limits/max_candidates",
-            f"max_candidates {max_c} exceeds the service limit of {s.max_candidates}",
-        )
-    req.validation.check_scheme()
-    tl = req.limits.time_limit_s or s.default_time_limit_s
-    if tl > s.max_time_limit_s:
-        raise InputError.at(
-            "/limits/time_limit_s",
-            f"time_limit_s {tl:g} exceeds the service limit of {s.max_time_limit_s:g} s",
-        )
-    return SearchOptions(
-        response_transforms=transform_items(req.transforms.response),
-        predictor_transforms=transform_items(req.transforms.predictors),
-        folds=req.validation.folds,
-        repeats=req.validation.repeats,
-        seed=req.validation.seed,
-        metric=req.validation.metric,
-        scheme=req.validation.scheme,
-        alpha=req.alpha,
-        top=req.top,
-        max_candidates=max_c,
-        time_limit_s=tl,
-        intercept=req.intercept,
-        units=dict(req.units),
-        strategy=req.strategy,
-        incumbent=req.incumbent.as_dict() if req.incumbent is not None else None,
-        deadline_at=time.time() + tl,  # one deadline: search, stability and optimism
-        stop=stop,
-    )
-
-
-def run_selection_request(
-    req: SelectionRequest, progress=None, stop=None, group_mapper=None
-) -> dict:
-    """The selection body for a validated request.  ``group_mapper(fn, items)``, when given,
-    runs the groups of a ``group_by`` request (the command line's Dask cluster), in order."""
-    data = req.data.as_dict()
-    _check_size(data, 1 + len(req.predictors))
-    if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
-        for col in req.transforms.predictors:
-            if col not in req.predictors:
-                raise InputError.at(
-                    f"/transforms/predictors/{col}", f"'{col}' is not one of the predictors"
-                )
-    prep = prepare(
-        data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
-    )
-    opts = selection_options(req, stop)
-    if req.group_by is not None:
-        if req.trust.stability or req.trust.optimism:
-            raise InputError.at(
-                "/trust",
-                "trust measures are computed for one selection; send "
-                "each group as its own request to measure them",
-            )
-        assert prep.groups is not None  # prepared with group_by
-        n_groups = len(set(prep.groups.tolist()))
-        limit = get_settings().max_groups
-        if n_groups > limit:
-            raise InputError.at(
-                "/group_by",
-                f"'{req.group_by}' has {n_groups} values; at most "
-                f"{limit} groups are accepted per request (setting "
-                "BESTSCALE_MAX_GROUPS); split the job over several requests",
-            )
-        mapper: Callable[..., Iterable[Any]] = map
-        if progress is not None:
-            progress.total = n_groups
-        if group_mapper is not None:
-            each = group_mapper
-
-            def mapped_with_progress(fn, items):
-                for result in each(fn, items):
-                    yield result
-                    if progress is not None:
-                        progress.step()
-
-            mapper = mapped_with_progress
-        elif get_settings().group_processes > 1:
-            from ..core.workers import process_mapper
-
-            mapper = process_mapper(
-                get_settings().group_processes,
-                get_settings().blas_threads,
-                on_result=progress.step if progress is not None else None,
-            )
-        elif progress is not None:
-
-            def serial_with_progress(fn, items):
-                for item in items:
-                    yield fn(item)
-                    progress.step()
-
-            mapper = serial_with_progress
-
-        body = run_grouped(
-            prep, opts, __version__, finish=lambda b: _finish(b, opts), mapper=mapper
-        )
-        return _finish(body, opts)
-    body = run_selection(prep, opts, __version__)
-    if req.trust.stability or req.trust.optimism:
-        from ..core.trust import assess_trust
-
-        body["trust"] = assess_trust(
-            prep,
-            opts,
-            body["ranking"][0]["specification"],
-            __version__,
-            req.trust.stability,
-            req.trust.optimism,
-            req.trust.resamples,
-            selection=body,
-        )
-    return _finish(body, opts)
-
-
-def _finish(body: dict, opts: SearchOptions) -> dict:
-    any_tr = any(
-        not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
-        for e in body.get("ranking", [])
-    )
-    sign_all(body, get_settings().model_keys())
-    return {
-        "service_version": __version__,
-        **body,
-        "cautions": selection_cautions(opts.metric, any_tr),
-    }
 
 
 @router.post(
@@ -198,8 +26,6 @@ def _finish(body: dict, opts: SearchOptions) -> dict:
     responses={200: {"content": {"application/json": {}, "text/html": {}}}},
 )
 def post_selections(req: SelectionRequest, request: Request):
-    from .reports import report_response, wants_html  # reports imports this module
-
     if wants_html(request.headers.get("accept", "")):
         return report_response(req, request)  # the page of POST /v1/reports
     with compute_slot():

@@ -24,7 +24,7 @@ import numpy as np
 from ._types import FloatArray
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .crossval import CVPlan
+    from .folds import CVPlan
 
 GRAM_BUDGET_BYTES = 256 * 1024 * 1024
 

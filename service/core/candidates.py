@@ -31,6 +31,7 @@ from ._types import FloatArray, TransformItem
 from .bank import ColumnBank, FoldIndex
 from .data import Prepared
 from .errors import CandidateFailure, FieldProblem, InputError, pointer
+from .likelihood import fit_transform
 from .spec import PredictorSpec, Specification, categorical_levels, term_label
 
 DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
@@ -205,7 +206,7 @@ def predictor_candidates(
                         raise InputError.at(f"{base}/{i}", msg)
                     continue
                 if t.name == "log" and t.shift is None:
-                    t = tr.fit_transform(t, x)
+                    t = fit_transform(t, x)
                 if t not in lst:
                     lst.append(t)
         if spec is None and _power_applies(x) and not any(bt.is_open(t) for t in lst):
@@ -347,7 +348,7 @@ def screening_powers(
     for t in responses:
         if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
             continue
-        t0 = tr.fit_transform(t, prep.y)
+        t0 = fit_transform(t, prep.y)
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             z = t0.forward(prep.y[rows])
         if not np.all(np.isfinite(z)):
@@ -381,7 +382,7 @@ def add_ladder_rungs(
         j = prep.predictors.index(col)
         rung = tr.ladder_transform(lad)
         if rung.name == "log":
-            rung = tr.fit_transform(rung, prep.numeric[col])
+            rung = fit_transform(rung, prep.numeric[col])
         if rung.domain_problem(prep.numeric[col], col, "predictor") is None and rung not in out[j]:
             out[j].insert(
                 len(out[j]) - 1 if any(bt.is_open(t) for t in out[j]) else len(out[j]), rung

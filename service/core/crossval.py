@@ -11,73 +11,22 @@ its own loss.
 The per-fold least squares come from downdated cross-product matrices
 (:mod:`bank`, :mod:`fastcv`); :func:`cross_validate` scores one design that way.
 
-Fold assignment: repeat r uses the r-th permutation drawn from
-``numpy.random.RandomState(seed)``; fold k takes the next ``n//K + (k < n%K)``
-entries.  Repeat 0 therefore equals ``sklearn.model_selection.KFold(K,
-shuffle=True, random_state=seed)``.
+Fold plans (:class:`folds.CVPlan`, :func:`folds.make_plan`) live in :mod:`folds`.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
 from . import transforms as tr
-
-if TYPE_CHECKING:  # pragma: no cover
-    from .fastcv import Score
+from .bank import ColumnBank, FoldIndex
+from .fastcv import Score, Scorer
+from .folds import CVPlan
 
 METRICS = ("rmse", "mae", "mape")
-
-
-@dataclass(frozen=True)
-class CVPlan:
-    folds: int
-    repeats: int
-    seed: int
-    metric: str
-    assignments: tuple[np.ndarray, ...]  # per repeat: (n,) fold id of each row
-    scheme: str = "random"  # "random" K-fold or "blocked" (contiguous in the rows' order)
-
-    @property
-    def n_splits(self) -> int:
-        return self.folds * self.repeats
-
-
-def make_plan(
-    n: int,
-    folds: int = 5,
-    repeats: int = 1,
-    seed: int = 0,
-    metric: str = "rmse",
-    scheme: str = "random",
-    order: np.ndarray | None = None,
-) -> CVPlan:
-    """Fold ids per repeat.  ``scheme="blocked"``: one partition into contiguous runs of
-    ``order`` (the permutation putting rows in the order column's order; None: row
-    order), the same fold sizes as random K-fold, no shuffling, so ``repeats`` must be 1."""
-    rs = np.random.RandomState(seed)
-    out = []
-    sizes = np.full(folds, n // folds)
-    sizes[: n % folds] += 1
-    bounds = np.concatenate([[0], np.cumsum(sizes)])
-    if scheme == "blocked":
-        if repeats != 1:
-            raise ValueError("blocked folds have a single partition (repeats must be 1)")
-        perm = np.arange(n) if order is None else np.asarray(order, dtype=np.intp)
-        a = np.empty(n, dtype=np.int32)
-        for k in range(folds):
-            a[perm[bounds[k] : bounds[k + 1]]] = k
-        return CVPlan(folds, 1, seed, metric, (a,), "blocked")
-    for _ in range(repeats):
-        perm = rs.permutation(n)
-        a = np.empty(n, dtype=np.int32)
-        for k in range(folds):
-            a[perm[bounds[k] : bounds[k + 1]]] = k
-        out.append(a)
-    return CVPlan(folds, repeats, seed, metric, tuple(out))
 
 
 @dataclass
@@ -124,9 +73,6 @@ def cross_validate(
     back-transform is undefined for a held-out row (e.g. a reciprocal model
     predicting a non-positive 1/y).
     """
-    from .bank import ColumnBank, FoldIndex
-    from .fastcv import Scorer
-
     X = np.asarray(X, dtype=float)
     bank = ColumnBank.of_matrix(X, FoldIndex.of(plan, X.shape[0]))
     scorer = Scorer(bank, y, plan, shift_needed)

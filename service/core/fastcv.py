@@ -36,10 +36,11 @@ from .bank import ColumnBank
 from .boxtidwell import estimate_powers, power_columns
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
+from .likelihood import fit_transform
 from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .crossval import CVPlan
+    from .folds import CVPlan
 
 
 @dataclass
@@ -122,7 +123,7 @@ class Scorer:
     def _fixed_response(self, t: tr.Transform) -> tuple[tr.Transform, np.ndarray, bool]:
         """(concrete transform, z) for a response scale that does not change per fold."""
         if t not in self._resp:
-            t0 = tr.fit_transform(t, self.y, shift_needed=self.shift_needed)
+            t0 = fit_transform(t, self.y, shift_needed=self.shift_needed)
             z = t0.forward(self.y)
             self._resp[t] = (t0, z, bool(np.all(np.isfinite(z))))
         return self._resp[t]
@@ -169,7 +170,7 @@ class Scorer:
             )
         if estimate_lam:
             try:
-                near = tr.fit_transform(t, y, XS).lam
+                near = fit_transform(t, y, XS).lam
             except ValueError as exc:
                 raise CandidateFailure(str(exc)) from None
         if not per_fold:
@@ -203,7 +204,7 @@ class Scorer:
                 for k in range(K):
                     ytr = y[train[k]]
                     try:
-                        tk = tr.fit_transform(
+                        tk = fit_transform(
                             t, ytr, XS[train[k]], shift_needed=self.shift_needed, near=near
                         )
                     except ValueError as exc:

@@ -18,9 +18,10 @@ from typing import Any
 import numpy as np
 
 from . import transforms as tr
-from .crossval import CVPlan, CVResult, cross_validate
+from .crossval import CVResult, cross_validate
 from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
+from .folds import CVPlan
 from .numbers import fmt
 from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
 

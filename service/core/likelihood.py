@@ -20,7 +20,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -283,3 +283,28 @@ def _endpoint(g: Callable[[float], float], lam: float, limit: float) -> float | 
     if (b - limit) * (1 if step > 0 else -1) >= 0:
         b = limit
     return float(optimize.brentq(g, min(a, b), max(a, b), xtol=1e-10))
+
+
+def fit_transform(
+    t: tr.Transform,
+    y: np.ndarray,
+    X: np.ndarray | None = None,
+    shift_needed: bool | None = None,
+    near: float | None = None,
+) -> tr.Transform:
+    """Return a concrete transform, estimating what ``t`` leaves open from ``y`` (and design ``X``).
+
+    ``shift_needed`` says whether a log needs a shift (decided on the whole
+    column, so every fold agrees on the family); the value comes from ``y``.
+    """
+    if t.is_fitted:
+        return t
+    if t.name == "log":
+        need = tr.needs_shift(y) if shift_needed is None else shift_needed
+        if not need:
+            return replace(t, shift=0.0)
+        return replace(t, shift=tr.chosen_shift(y), estimated=True)
+    if t.name in ("box_cox", "yeo_johnson"):
+        est = estimate_lambda(t.name, y, X, with_interval=False, near=near)
+        return replace(t, lam=est.lam, estimated=True)
+    return t

@@ -9,19 +9,20 @@ import numpy as np
 
 from . import retransform
 from . import transforms as tr
-from .crossval import CVPlan, CVResult
+from .condition_rules import conditions_for, failed
+from .crossval import CVResult
 from .data import Prepared
-from .diagnose import conditions_for, failed
 from .errors import CandidateFailure
 from .fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
+from .folds import CVPlan
 from .interpret import interpret_fit
-from .likelihood import LambdaEstimate, estimate_lambda
+from .likelihood import LambdaEstimate, estimate_lambda, fit_transform
 from .model import build_model
 from .numbers import fmt
 from .spec import Design, Specification, build_design
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .search import SearchOptions
+    from .search_setup import SearchOptions
 
 
 def finite_or_none(v: Any) -> float | None:
@@ -68,7 +69,7 @@ def fitted_model(
         lam_est = estimate_lambda(t.name, prep.y, design.X)
         t = tr.Transform(t.name, lam=lam_est.lam, estimated=True)
     else:
-        t = tr.fit_transform(t, prep.y)
+        t = fit_transform(t, prep.y)
     msg = t.domain_problem(prep.y, prep.response, "response")
     if msg:
         raise CandidateFailure(msg)

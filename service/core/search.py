@@ -15,7 +15,7 @@ import math
 import re
 import time
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -25,11 +25,10 @@ from . import candidates as cand
 from . import incumbent
 from . import transforms as tr
 from .bank import FoldIndex
-from .crossval import CVPlan, CVResult, from_score, make_plan
+from .condition_rules import CONDITION_NAMES, failed, failed_for_ranking
+from .crossval import from_score
 from .data import Prepared
-from .diagnose import CONDITION_NAMES, failed, failed_for_ranking
 from .errors import (
-    BestscaleError,
     BudgetError,
     CandidateFailure,
     InputError,
@@ -37,9 +36,11 @@ from .errors import (
     pointer,
 )
 from .fastcv import Dynamic, Scorer
-from .likelihood import estimate_lambda
+from .folds import CVPlan, make_plan
+from .likelihood import estimate_lambda, fit_transform
 from .numbers import count_of
 from .report import entry_for
+from .search_setup import Scored, SearchOptions, check_rows
 from .spec import PredictorSpec, Specification, SpecKey, build_design
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
@@ -81,54 +82,6 @@ SMALL_N = 50  # below this many rows the default search puts all predictors on o
 # entry_hook(entry, {"spec", "prep", "opts"}) completes a ranking entry in place
 EntryHook = Callable[[dict[str, Any], dict[str, Any]], object]
 STRATEGIES = ("auto", "exhaustive", "screened")
-
-
-@dataclass
-class SearchOptions:
-    response_transforms: list[Any] | None = None  # names or contract Transform dicts
-    predictor_transforms: list[Any] | dict[str, Any] | None = None
-    folds: int = 5
-    repeats: int = 1
-    seed: int = 0
-    metric: str = "rmse"
-    alpha: float = 0.05
-    top: int = 5
-    max_candidates: int = 5000
-    time_limit_s: float = 60.0
-    intercept: bool = True
-    units: dict[str, Any] = field(default_factory=dict)
-    incumbent: dict[str, Any] | None = None  # contract Specification in use
-    strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
-    scheme: str = "random"  # CV folds: "random" K-fold or "blocked" (contiguous in order)
-    # the end of the whole request (time.time()): search, stability and optimism share it
-    deadline_at: float | None = None
-    # () -> bool, True once the caller has gone; checked between candidates (in-process only)
-    stop: Callable[[], bool] | None = None
-
-    def __getstate__(self) -> dict[str, Any]:
-        state = dict(self.__dict__)
-        state["stop"] = None  # a callable of the request's thread does not cross processes
-        return state
-
-    def seconds_left(self) -> float:
-        """The time limit, or less when the request's own deadline comes first."""
-        if self.deadline_at is None:
-            return self.time_limit_s
-        return min(self.time_limit_s, self.deadline_at - time.time())
-
-    def stopped(self) -> bool:
-        return self.stop is not None and bool(self.stop())
-
-
-@dataclass
-class Scored:
-    spec: Specification
-    cv: CVResult
-    open_spec: Specification | None = None  # as searched (estimated powers not yet fitted)
-
-    def __post_init__(self) -> None:
-        if self.open_spec is None:
-            self.open_spec = self.spec
 
 
 def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
@@ -173,7 +126,7 @@ class _Evaluator:
         fit = None
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
         if dyn:
-            t0 = tr.fit_transform(t, self.prep.y, shift_needed=self.scorer.shift_needed)
+            t0 = fit_transform(t, self.prep.y, shift_needed=self.scorer.shift_needed)
             z = t0.forward(self.prep.y)
             if not np.all(np.isfinite(z)):
                 raise CandidateFailure(f"{t0.label('y')} overflows on the data")
@@ -229,7 +182,7 @@ def run_selection(
         1 if p[0].name != "categorical" else len(set(prep.categorical[c].tolist())) - 1
         for p, c in zip(preds, prep.predictors, strict=True)
     )
-    _check_rows(prep, opts, n_params)
+    check_rows(prep, opts, n_params)
     plan = make_plan(
         prep.n, opts.folds, opts.repeats, opts.seed, opts.metric, opts.scheme, prep.order
     )
@@ -576,7 +529,7 @@ def _order_by_conditions(
     opts: SearchOptions,
     warnings: list[str],
 ) -> list[tuple[Scored, dict[str, Any]]]:
-    """Re-order the leading band members by failed conditions (see diagnose.py)."""
+    """Re-order the leading band members by failed conditions (see condition_rules.py)."""
     lead_m = max(3 * opts.top, 15)
     band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]][:lead_m]
     n_failed: dict[int, int] = {}
@@ -632,7 +585,7 @@ def _uniform_options(prep: Prepared, preds: list[list[tr.Transform]]) -> list[li
         keep = [tr.Transform("identity")]
         lg = tr.Transform("log")
         if lg.domain_problem(x, c, "predictor") is None:
-            keep.append(tr.fit_transform(lg, x))
+            keep.append(fit_transform(lg, x))
         out.append(keep)
     return out
 
@@ -735,7 +688,7 @@ def _screen_scales(
             if t in lams:
                 out[t] = tr.Transform(t.name, lam=lams[t])
             continue
-        out[t] = tr.fit_transform(t, prep.y)
+        out[t] = fit_transform(t, prep.y)
     return out
 
 
@@ -810,28 +763,6 @@ def _fmt_ci(lo: float | None, hi: float | None) -> str:
     return f"[{a}, {b}]"
 
 
-def _check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
-    n = prep.n
-    if opts.folds > n:
-        raise InputError.at(
-            "/validation/folds", f"folds = {opts.folds} exceeds the {n} usable rows"
-        )
-    n_train = n - math.ceil(n / opts.folds)
-    if n_train < p + 2:
-        need = math.ceil((p + 2) * opts.folds / (opts.folds - 1))
-        raise InputError.at(
-            "/data",
-            f"{n} usable rows are too few for {opts.folds}-fold "
-            f"cross-validation of a model with {p} coefficients; it needs at "
-            f"least {need} rows (or fewer folds/predictors)",
-        )
-    if opts.metric == "mape" and np.any(prep.y == 0):
-        raise InputError.at(
-            "/validation/metric",
-            f"mape divides by the response and '{prep.response}' has zeros; use rmse or mae",
-        )
-
-
 def _check_levels(prep: Prepared, plan: CVPlan) -> None:
     for j, col in enumerate(prep.predictors):
         if col not in prep.categorical:
@@ -851,78 +782,6 @@ def _check_levels(prep: Prepared, plan: CVPlan) -> None:
                             "training fold never sees it; merge rare levels or use fewer folds"
                         ),
                     )
-
-
-def run_grouped(
-    prep: Prepared,
-    opts: SearchOptions,
-    service_version: str,
-    entry_hook: EntryHook | None = None,
-    finish: Callable[[dict[str, Any]], dict[str, Any]] | None = None,
-    mapper: Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]] = map,
-) -> dict[str, Any]:
-    """One selection per value of the group column.
-
-    ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
-    pool's map to spread the groups over workers.  A group that cannot be modelled
-    gets a ``problem`` entry with its reason while the others go on.
-    """
-    from .data import split_groups
-    from .errors import BestscaleError
-    from .workers import select_group
-
-    t0 = time.perf_counter()
-    # one budget for the whole request, not per group (wall clock: shared by worker processes)
-    deadline = time.time() + opts.seconds_left()
-    parts = split_groups(prep)
-    names = list(parts)
-    tasks = [
-        (
-            {"problem": _problem_of(sub)} if isinstance(sub, BestscaleError) else sub,
-            opts,
-            service_version,
-            entry_hook,
-            None,
-            deadline,
-        )
-        for sub in parts.values()
-    ]
-    bodies = [
-        b if ("problem" in b or finish is None) else finish(b) for b in mapper(select_group, tasks)
-    ]
-    failed = sum(1 for b in bodies if "problem" in b)
-    return {
-        "data": prep.data_summary(),
-        "search": {
-            "groups": len(names),
-            "groups_failed": failed,
-            "elapsed_s": round(time.perf_counter() - t0, 4),
-            "complete": all("problem" not in b or b["problem"]["status"] != 503 for b in bodies)
-            and all(b.get("search", {}).get("complete", True) for b in bodies),
-        },
-        "ranking": [],
-        "groups": dict(zip(names, bodies, strict=True)),
-        "warnings": [
-            f"One selection per value of the group column ({len(names)} groups); each "
-            "group's ranking is under 'groups'."
-        ]
-        + (
-            [f"{count_of(failed, 'group')} could not be modelled; see their 'problem'."]
-            if failed
-            else []
-        ),
-    }
-
-
-def _problem_of(exc: BestscaleError) -> dict[str, Any]:
-    status = 503 if isinstance(exc, BudgetError) else 422
-    return {
-        "type": f"urn:bestscale:problem:{exc.kind}",
-        "title": exc.title,
-        "status": status,
-        "detail": exc.detail,
-        "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems],
-    }
 
 
 # ----------------------------------------------------------------- distinct scales
@@ -973,7 +832,7 @@ def _ladder_reading(
             continue
         rung = tr.ladder_transform(summ["ladder"])
         if rung.name == "log":
-            rung = tr.fit_transform(rung, prep.numeric[p.column])
+            rung = fit_transform(rung, prep.numeric[p.column])
         notes.append(
             {
                 "parameter": "predictor_power",

@@ -10,6 +10,7 @@ import numpy as np
 from . import transforms as tr
 from .data import Prepared
 from .errors import CandidateFailure, InputError, pointer
+from .likelihood import fit_transform
 
 # response transform, predictor transforms, intercept: identifies a specification
 SpecKey: TypeAlias = tuple[tr.Transform, tuple[tr.Transform, ...], bool]
@@ -205,7 +206,7 @@ def resolve_predictor_transforms(spec: Specification, prep: Prepared) -> Specifi
     for p in spec.predictors:
         t = p.transform
         if p.column in prep.numeric and not t.is_fitted and t.name == "log":
-            t = tr.fit_transform(t, prep.numeric[p.column])
+            t = fit_transform(t, prep.numeric[p.column])
         elif p.column in prep.numeric and not t.is_fitted:
             raise CandidateFailure(f"{t.name} of a predictor needs an explicit lambda")
         new.append(PredictorSpec(p.column, t))

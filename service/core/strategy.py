@@ -47,7 +47,7 @@ from .fitting import solve_batch
 
 if TYPE_CHECKING:  # pragma: no cover
     from .data import Prepared
-    from .search import Scored
+    from .search_setup import Scored
     from .spec import Specification, SpecKey
 
 EXHAUSTIVE_LIMIT = 1000

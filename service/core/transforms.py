@@ -8,7 +8,7 @@ likelihoods of different response scales on the original scale, and a label.
 Families whose parameter is estimated from data (Box-Cox and Yeo-Johnson
 ``lambda`` of a response; the shift of a log when the column holds zeros) are
 first created *unfitted* and turned into a concrete transform by
-:func:`fit_transform` on the rows at hand, so that cross-validation can
+:func:`service.core.likelihood.fit_transform` on the rows at hand, so that cross-validation can
 re-estimate them inside every training fold.
 
 References: Box & Cox (1964) JRSS B 26:211-252; Yeo & Johnson (2000)
@@ -19,7 +19,7 @@ powers).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -513,33 +513,6 @@ def chosen_shift(x: np.ndarray) -> float:
 
 def needs_shift(x: np.ndarray) -> bool:
     return bool(np.min(x) <= 0)
-
-
-def fit_transform(
-    t: Transform,
-    y: np.ndarray,
-    X: np.ndarray | None = None,
-    shift_needed: bool | None = None,
-    near: float | None = None,
-) -> Transform:
-    """Return a concrete transform, estimating what ``t`` leaves open from ``y`` (and design ``X``).
-
-    ``shift_needed`` says whether a log needs a shift (decided on the whole
-    column, so every fold agrees on the family); the value comes from ``y``.
-    """
-    if t.is_fitted:
-        return t
-    if t.name == "log":
-        need = needs_shift(y) if shift_needed is None else shift_needed
-        if not need:
-            return replace(t, shift=0.0)
-        return replace(t, shift=chosen_shift(y), estimated=True)
-    if t.name in ("box_cox", "yeo_johnson"):
-        from .likelihood import estimate_lambda  # local import: avoids a cycle
-
-        est = estimate_lambda(t.name, y, X, with_interval=False, near=near)
-        return replace(t, lam=est.lam, estimated=True)
-    return t
 
 
 def ladder_transform(power: float) -> Transform:

@@ -20,7 +20,7 @@ rank 1 (the public cross-validation takes a fixed design, so its power would
 keep its all-rows value, which flatters it against its neighbours).  Each
 resample applies the search's rule: the one band (lowest error plus its standard
 error) with the simplicity order (:func:`search.rank`), then the leading band members re-ordered
-by failed regression conditions (the rule of ``diagnose.py``), with the condition
+by failed regression conditions (the rule of ``condition_rules.py``), with the condition
 verdicts assessed once on all rows.
 
 **Optimism.** Nested cross-validation (Stone 1974; Varma & Simon 2006, "Bias in
@@ -64,12 +64,14 @@ import numpy as np
 
 from . import transforms as tr
 from ._types import Mapper
-from .crossval import CVPlan, cross_validate, make_plan
+from .condition_rules import CONDITION_NAMES, conditions_for, failed_for_ranking
+from .crossval import cross_validate
 from .data import Prepared
-from .diagnose import CONDITION_NAMES, conditions_for, failed_for_ranking
 from .errors import BestscaleError, CandidateFailure, InputError
+from .folds import CVPlan, make_plan
 from .report import fitted_model
-from .search import Scored, SearchOptions, rank, run_selection
+from .search import rank, run_selection
+from .search_setup import Scored, SearchOptions
 from .spec import Specification, SpecKey, build_design
 
 DEFAULT_RESAMPLES = 20
@@ -276,7 +278,7 @@ def first_by_rule(
     band: list[tuple[int, Specification]], n_failed: Callable[[Specification], int]
 ) -> Specification:
     """Rank 1 of ``band`` ((position, spec) pairs in ranking order): fewest failed
-    conditions, then band order (the rule of diagnose.py)."""
+    conditions, then band order (the rule of condition_rules.py)."""
     return min(band, key=lambda item: (n_failed(item[1]), item[0]))[1]
 
 

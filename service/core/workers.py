@@ -1,7 +1,7 @@
 """Spread independent pieces of work (groups, resamples, outer folds) over worker processes.
 
 ``map_in_processes(fn, items, processes)`` has the shape of ``map`` and returns a
-list in input order, so it can be the ``mapper`` of :func:`search.run_grouped` or
+list in input order, so it can be the ``mapper`` of :func:`groups.run_grouped` or
 of :func:`trust.assess_trust`; the results are the same whatever ``processes``
 is, because every piece of work is seeded by its own inputs.
 
@@ -99,69 +99,3 @@ def process_mapper(
         return out
 
     return mapper
-
-
-def select_group(task: tuple[Any, ...]) -> dict[str, Any]:
-    """Worker for one group of :func:`search.run_grouped`.
-
-    ``task`` is ``(prepared | problem, opts, version[, entry_hook[, trust[, deadline]]])``:
-    the group's :class:`Prepared` (a group already known to be unusable arrives
-    as its ``{"problem": ...}`` entry and is passed through), the search
-    options, the service version, an optional module-level ``entry_hook``,
-    optional trust settings ``(stability, optimism, resamples, outer_folds)``
-    for :func:`trust.assess_trust`, and the request's wall-clock deadline
-    (``time.time()`` value, shared by the processes of one machine): a group
-    reached after it gets a 503 problem, one reached before it searches within
-    what is left.  Returns the group's selection body without private keys, or
-    a ``problem`` entry for an error the core raised on purpose.  Module-level,
-    so it pickles.
-    """
-    import time
-    from dataclasses import replace
-
-    from .errors import BestscaleError, BudgetError
-    from .search import _problem_of, run_selection
-
-    sub, opts, service_version = task[:3]
-    entry_hook = task[3] if len(task) > 3 else None
-    trust = task[4] if len(task) > 4 else None
-    deadline = task[5] if len(task) > 5 else None
-    if isinstance(sub, dict):
-        return sub
-    if deadline is not None:
-        remaining = deadline - time.time()
-        if remaining <= 0:
-            return {
-                "problem": _problem_of(
-                    BudgetError(
-                        f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
-                        "group was reached; send fewer groups per request or raise limits.time_limit_s"
-                    )
-                )
-            }
-        opts = replace(opts, time_limit_s=remaining)
-    try:
-        body = run_selection(sub, opts, service_version, entry_hook)
-        if trust is not None and (trust[0] or trust[1]):
-            from .trust import assess_trust
-
-            stability, optimism, resamples, outer_folds = trust
-            body["trust"] = assess_trust(
-                sub,
-                opts,
-                body["ranking"][0]["specification"],
-                service_version,
-                stability,
-                optimism,
-                resamples,
-                selection=body,
-                outer_folds=outer_folds,
-            )
-    except BestscaleError as exc:
-        return {"problem": _problem_of(exc)}
-    body.pop("_scored", None)
-    body.pop("_plan", None)
-    body["ranking"] = [
-        {k: v for k, v in e.items() if not k.startswith("_")} for e in body["ranking"]
-    ]
-    return body

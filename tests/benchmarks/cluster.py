@@ -34,8 +34,8 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 from _common import machine, pin_blas
 from groups import zones
-from service.api.routes import selection_options
 from service.api.schemas import SelectionRequest
+from service.api.selection import selection_options
 from service.batch import DaskSession, Job, run_dask, run_inline, run_job, run_pool
 from service.core.data import prepare
 

@@ -7,7 +7,7 @@ Run by hand from the repository root (never in CI):
 Invented data: repair costs of water mains in ``segments`` supply zones, ``rows`` repairs
 each, generated on the log scale with zone-specific coefficients.  The baseline is the
 in-process run measured in the same invocation; the pool run uses
-``workers.map_in_processes`` with the module-level ``workers.select_group`` (what
+``workers.map_in_processes`` with the module-level ``groups.select_group`` (what
 ``run_grouped`` does with a process mapper).  Prints wall times, their ratio, the pool's
 one-off start-up, and whether both runs give the same JSON apart from timing fields.
 """
@@ -28,8 +28,9 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 from service.api.encode import to_jsonable
 from service.core.data import prepare, split_groups
 from service.core.errors import BestscaleError
-from service.core.search import SearchOptions, _problem_of, run_grouped
-from service.core.workers import map_in_processes, select_group
+from service.core.groups import problem_of, run_grouped, select_group
+from service.core.search_setup import SearchOptions
+from service.core.workers import map_in_processes
 from threadpoolctl import threadpool_limits
 
 
@@ -97,7 +98,7 @@ def main() -> int:
     t = time.perf_counter()
     parts = split_groups(prep)
     tasks = [
-        ({"problem": _problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "bench")
+        ({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "bench")
         for p in parts.values()
     ]
     pooled = dict(zip(parts, map_in_processes(select_group, tasks, args.processes), strict=True))

@@ -12,9 +12,10 @@ import numpy as np
 import pytest
 from scipy.optimize import curve_fit
 from service.core import boxtidwell as bt
-from service.core.crossval import make_plan
 from service.core.data import prepare
-from service.core.search import SearchOptions, run_selection
+from service.core.folds import make_plan
+from service.core.search import run_selection
+from service.core.search_setup import SearchOptions
 
 
 def _data(a_true: float, seed: int, n: int = 400):

@@ -18,9 +18,11 @@ import statsmodels.api as sm
 from scipy import stats
 from service.core import retransform
 from service.core import transforms as tr
-from service.core.crossval import cross_validate, make_plan
+from service.core.crossval import cross_validate
 from service.core.data import prepare
-from service.core.search import SearchOptions, run_selection
+from service.core.folds import make_plan
+from service.core.search import run_selection
+from service.core.search_setup import SearchOptions
 from service.core.spec import build_design
 from sklearn.model_selection import KFold
 

@@ -18,8 +18,8 @@ import pytest
 from service.core import _smear_tree as st
 from service.core import transforms as tr
 from service.core.bank import ColumnBank, FoldIndex
-from service.core.crossval import make_plan
 from service.core.fastcv import Scorer, solve_batch
+from service.core.folds import make_plan
 
 
 def _designs(kind: str, rng, n: int) -> np.ndarray:

@@ -16,8 +16,9 @@ from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare, split_groups
 from service.core.errors import BestscaleError
-from service.core.search import SearchOptions, _problem_of, run_grouped
-from service.core.workers import map_in_processes, select_group
+from service.core.groups import problem_of, run_grouped, select_group
+from service.core.search_setup import SearchOptions
+from service.core.workers import map_in_processes
 from service.settings import get_settings
 
 URL = "/v1/selections"
@@ -137,7 +138,7 @@ def test_groups_in_worker_processes_equal_the_in_process_run():
     in_process = run_grouped(prep, opts, "test")["groups"]
     parts = split_groups(prep)
     tasks = [
-        ({"problem": _problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "test")
+        ({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "test")
         for p in parts.values()
     ]
     pooled = dict(zip(parts, map_in_processes(select_group, tasks, processes=2), strict=True))

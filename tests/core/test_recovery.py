@@ -11,7 +11,8 @@ import numpy as np
 import pytest
 from service.core.data import prepare
 from service.core.likelihood import estimate_lambda
-from service.core.search import SearchOptions, run_selection
+from service.core.search import run_selection
+from service.core.search_setup import SearchOptions
 
 SEEDS = [11, 12, 13]
 

@@ -25,8 +25,9 @@ import pytest
 import statsmodels.api as sm
 from scipy import optimize, stats
 from service.core import transforms as tr
-from service.core.crossval import cross_validate, make_plan
+from service.core.crossval import cross_validate
 from service.core.fitting import ols
+from service.core.folds import make_plan
 from service.core.likelihood import estimate_lambda, profile_loglik
 from sklearn.model_selection import KFold
 

@@ -10,7 +10,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from service.core.data import prepare
-from service.core.search import SearchOptions, run_selection
+from service.core.search import run_selection
+from service.core.search_setup import SearchOptions
 from service.core.strategy import EXHAUSTIVE_LIMIT
 
 

@@ -21,7 +21,7 @@ from scipy import stats
 from scipy.differentiate import derivative
 from service.core import transforms as tr
 from service.core.fitting import ols
-from service.core.likelihood import profile_loglik
+from service.core.likelihood import fit_transform, profile_loglik
 
 # Keep hypothesis' cache out of the repository: a '.hypothesis' directory at the root makes
 # collection warn (norecursedirs replaces pytest's defaults) and warnings are errors.
@@ -298,6 +298,6 @@ def test_no_domain_problem_inside_the_domain(t, x):
 
 def test_log_of_zeros_gets_half_the_smallest_positive_shift():
     # source: common practice for log(y + c) with zeros: c = half the smallest y > 0
-    t = tr.fit_transform(tr.Transform("log"), np.array([0.0, 0.4, 2.0, 0.0, 5.0]))
+    t = fit_transform(tr.Transform("log"), np.array([0.0, 0.4, 2.0, 0.0, 5.0]))
     assert t.shift == pytest.approx(0.2) and t.estimated
     assert np.all(np.isfinite(t.forward(np.array([0.0, 0.4]))))

@@ -12,7 +12,8 @@ import numpy as np
 import pytest
 from service.core.data import prepare
 from service.core.errors import InputError
-from service.core.search import SearchOptions, run_selection
+from service.core.search import run_selection
+from service.core.search_setup import SearchOptions
 from service.core.trust import (
     OPTIMISM_WARN_RATIO,
     assess_trust,

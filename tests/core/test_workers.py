@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 from service.api.encode import to_jsonable
 from service.core.data import prepare
-from service.core.search import SearchOptions, run_selection
+from service.core.search import run_selection
+from service.core.search_setup import SearchOptions
 from service.core.workers import map_in_processes, process_mapper
 
 

@@ -1,0 +1,152 @@
+"""One selection per value of a group column: :func:`run_grouped` splits the table and
+hands each group to :func:`select_group` through a ``mapper`` (in this process, a process
+pool of :mod:`workers`, or a Dask cluster), each group within the request's one deadline."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Iterable
+from dataclasses import replace
+from typing import Any
+
+from .data import Prepared, split_groups
+from .errors import BestscaleError, BudgetError
+from .numbers import count_of
+from .search import EntryHook, run_selection
+from .search_setup import SearchOptions
+from .trust import assess_trust
+
+
+def group_parts(prep: Prepared) -> dict[str, Prepared | dict[str, Any]]:
+    """The table split by the group column: each group's rows, or the ``{"problem": ...}``
+    entry of a group already known to be unusable (as :func:`select_group` passes it on)."""
+    return {
+        name: {"problem": problem_of(sub)} if isinstance(sub, BestscaleError) else sub
+        for name, sub in split_groups(prep).items()
+    }
+
+
+def run_grouped(
+    prep: Prepared,
+    opts: SearchOptions,
+    service_version: str,
+    entry_hook: EntryHook | None = None,
+    finish: Callable[[dict[str, Any]], dict[str, Any]] | None = None,
+    mapper: Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]] = map,
+) -> dict[str, Any]:
+    """One selection per value of the group column.
+
+    ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
+    pool's map to spread the groups over workers.  A group that cannot be modelled
+    gets a ``problem`` entry with its reason while the others go on.
+    """
+    t0 = time.perf_counter()
+    # one budget for the whole request, not per group (wall clock: shared by worker processes)
+    deadline = time.time() + opts.seconds_left()
+    parts = group_parts(prep)
+    names = list(parts)
+    tasks = [
+        (
+            sub,
+            opts,
+            service_version,
+            entry_hook,
+            None,
+            deadline,
+        )
+        for sub in parts.values()
+    ]
+    bodies = [
+        b if ("problem" in b or finish is None) else finish(b) for b in mapper(select_group, tasks)
+    ]
+    failed = sum(1 for b in bodies if "problem" in b)
+    return {
+        "data": prep.data_summary(),
+        "search": {
+            "groups": len(names),
+            "groups_failed": failed,
+            "elapsed_s": round(time.perf_counter() - t0, 4),
+            "complete": all("problem" not in b or b["problem"]["status"] != 503 for b in bodies)
+            and all(b.get("search", {}).get("complete", True) for b in bodies),
+        },
+        "ranking": [],
+        "groups": dict(zip(names, bodies, strict=True)),
+        "warnings": [
+            f"One selection per value of the group column ({len(names)} groups); each "
+            "group's ranking is under 'groups'."
+        ]
+        + (
+            [f"{count_of(failed, 'group')} could not be modelled; see their 'problem'."]
+            if failed
+            else []
+        ),
+    }
+
+
+def problem_of(exc: BestscaleError) -> dict[str, Any]:
+    status = 503 if isinstance(exc, BudgetError) else 422
+    return {
+        "type": f"urn:bestscale:problem:{exc.kind}",
+        "title": exc.title,
+        "status": status,
+        "detail": exc.detail,
+        "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems],
+    }
+
+
+def select_group(task: tuple[Any, ...]) -> dict[str, Any]:
+    """Worker for one group of :func:`run_grouped`.
+
+    ``task`` is ``(prepared | problem, opts, version[, entry_hook[, trust[, deadline]]])``:
+    the group's :class:`Prepared` (a group already known to be unusable arrives
+    as its ``{"problem": ...}`` entry and is passed through), the search
+    options, the service version, an optional module-level ``entry_hook``,
+    optional trust settings ``(stability, optimism, resamples, outer_folds)``
+    for :func:`trust.assess_trust`, and the request's wall-clock deadline
+    (``time.time()`` value, shared by the processes of one machine): a group
+    reached after it gets a 503 problem, one reached before it searches within
+    what is left.  Returns the group's selection body without private keys, or
+    a ``problem`` entry for an error the core raised on purpose.  Module-level,
+    so it pickles.
+    """
+    sub, opts, service_version = task[:3]
+    entry_hook = task[3] if len(task) > 3 else None
+    trust = task[4] if len(task) > 4 else None
+    deadline = task[5] if len(task) > 5 else None
+    if isinstance(sub, dict):
+        return sub
+    if deadline is not None:
+        remaining = deadline - time.time()
+        if remaining <= 0:
+            return {
+                "problem": problem_of(
+                    BudgetError(
+                        f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
+                        "group was reached; send fewer groups per request or raise limits.time_limit_s"
+                    )
+                )
+            }
+        opts = replace(opts, time_limit_s=remaining)
+    try:
+        body = run_selection(sub, opts, service_version, entry_hook)
+        if trust is not None and (trust[0] or trust[1]):
+            stability, optimism, resamples, outer_folds = trust
+            body["trust"] = assess_trust(
+                sub,
+                opts,
+                body["ranking"][0]["specification"],
+                service_version,
+                stability,
+                optimism,
+                resamples,
+                selection=body,
+                outer_folds=outer_folds,
+            )
+    except BestscaleError as exc:
+        return {"problem": problem_of(exc)}
+    body.pop("_scored", None)
+    body.pop("_plan", None)
+    body["ranking"] = [
+        {k: v for k, v in e.items() if not k.startswith("_")} for e in body["ranking"]
+    ]
+    return body

@@ -1,0 +1,88 @@
+"""What a search is given and what it keeps per candidate: the options of one request
+(:class:`SearchOptions`), a scored candidate (:class:`Scored`), and the check that the
+table can carry the requested cross-validation (:func:`check_rows`)."""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .crossval import CVResult
+from .data import Prepared
+from .errors import InputError
+from .spec import Specification
+
+
+@dataclass
+class SearchOptions:
+    response_transforms: list[Any] | None = None  # names or contract Transform dicts
+    predictor_transforms: list[Any] | dict[str, Any] | None = None
+    folds: int = 5
+    repeats: int = 1
+    seed: int = 0
+    metric: str = "rmse"
+    alpha: float = 0.05
+    top: int = 5
+    max_candidates: int = 5000
+    time_limit_s: float = 60.0
+    intercept: bool = True
+    units: dict[str, Any] = field(default_factory=dict)
+    incumbent: dict[str, Any] | None = None  # contract Specification in use
+    strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
+    scheme: str = "random"  # CV folds: "random" K-fold or "blocked" (contiguous in order)
+    # the end of the whole request (time.time()): search, stability and optimism share it
+    deadline_at: float | None = None
+    # () -> bool, True once the caller has gone; checked between candidates (in-process only)
+    stop: Callable[[], bool] | None = None
+
+    def __getstate__(self) -> dict[str, Any]:
+        state = dict(self.__dict__)
+        state["stop"] = None  # a callable of the request's thread does not cross processes
+        return state
+
+    def seconds_left(self) -> float:
+        """The time limit, or less when the request's own deadline comes first."""
+        if self.deadline_at is None:
+            return self.time_limit_s
+        return min(self.time_limit_s, self.deadline_at - time.time())
+
+    def stopped(self) -> bool:
+        return self.stop is not None and bool(self.stop())
+
+
+@dataclass
+class Scored:
+    spec: Specification
+    cv: CVResult
+    open_spec: Specification | None = None  # as searched (estimated powers not yet fitted)
+
+    def __post_init__(self) -> None:
+        if self.open_spec is None:
+            self.open_spec = self.spec
+
+
+def check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
+    n = prep.n
+    if opts.folds > n:
+        raise InputError.at(
+            "/validation/folds", f"folds = {opts.folds} exceeds the {n} usable rows"
+        )
+    n_train = n - math.ceil(n / opts.folds)
+    if n_train < p + 2:
+        need = math.ceil((p + 2) * opts.folds / (opts.folds - 1))
+        raise InputError.at(
+            "/data",
+            f"{n} usable rows are too few for {opts.folds}-fold "
+            f"cross-validation of a model with {p} coefficients; it needs at "
+            f"least {need} rows (or fewer folds/predictors)",
+        )
+    if opts.metric == "mape" and np.any(prep.y == 0):
+        raise InputError.at(
+            "/validation/metric",
+            f"mape divides by the response and '{prep.response}' has zeros; use rmse or mae",
+        )
