@@ -11,6 +11,7 @@ from . import retransform
 from . import transforms as tr
 from .condition_rules import conditions_for, failed
 from .crossval import CVResult
+from .cvplus import default_method, stored_block
 from .data import Prepared
 from .errors import CandidateFailure
 from .fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
@@ -214,6 +215,11 @@ def entry_for(
             f"design {fit.condition_number:.3g}); coefficients are unstable."
         )
     covs, lags = robust_covariances(fit, design, prep)
+    conditions, hints = conditions_for(
+        design, fit, prep, fit.fitted + fit.resid, getattr(opts, "alpha", 0.05)
+    )
+    bad = failed(conditions)
+    cv_plus = stored_block(cv.out_of_fold, design.X, prep.y, plan.scheme)
     entry: dict[str, Any] = {
         "specification": concrete.to_dict(),
         "equation": equation(concrete, design, fit.coef),
@@ -239,12 +245,11 @@ def entry_for(
                 "seed": plan.seed,
                 "metric": plan.metric,
             },
+            cv_plus=cv_plus,
+            conditions_failed=bad,
         ),
         "warnings": warnings,
     }
-    conditions, hints = conditions_for(
-        design, fit, prep, fit.fitted + fit.resid, getattr(opts, "alpha", 0.05)
-    )
     entry["conditions"] = conditions
     entry["transform_hints"] = hints
     for h in hints:
@@ -252,6 +257,9 @@ def entry_for(
             warnings.append(h["sentence"])
     blocked = getattr(opts, "scheme", "random") == "blocked"
     inference, clause, more = choose_inference(conditions, lags, blocked)
+    method, why = default_method(bad, cv_plus["available"], cv_plus.get("reason", ""))
+    inference["prediction_intervals"] = method
+    inference["prediction_interval_reason"] = why
     entry["inference"] = inference
     warnings.extend(more)
     entry["interpretation"] = interpret_fit(

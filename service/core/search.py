@@ -10,6 +10,7 @@ Friedman 2009, pp. 61 and 244) the simplest ranks first (simplicity order in
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 import math
 import re
@@ -26,7 +27,7 @@ from . import incumbent
 from . import transforms as tr
 from .bank import FoldIndex
 from .condition_rules import CONDITION_NAMES, failed, failed_for_ranking
-from .crossval import from_score
+from .crossval import CVResult, from_score
 from .data import Prepared
 from .errors import (
     BudgetError,
@@ -118,6 +119,20 @@ class _Evaluator:
             return None
         self.scored.append(s)
         return s
+
+    def with_out_of_fold(self, s: Scored) -> CVResult:
+        """``s.cv`` with the first repeat's fold fits and out-of-fold residuals (CV+ intervals):
+        the same folds scored again, so the numbers are the search's own.  Specifications
+        whose predictor powers are estimated inside every fold keep none."""
+        spec = s.open_spec or s.spec
+        if any(bt.is_open(p.transform) for p in spec.predictors):
+            return s.cv
+        try:
+            cols, names, _ = self.space.design_of(spec)
+            sc = self.scorer.score(spec.response_transform, cols, names, keep_out_of_fold=True)
+        except CandidateFailure:
+            return s.cv
+        return dataclasses.replace(s.cv, out_of_fold=sc.out_of_fold)
 
     def _score(self, spec: Specification) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
@@ -264,7 +279,8 @@ def run_selection(
     def full(s: Scored, parts: dict[str, Any]) -> dict[str, Any]:
         key = s.spec.key
         if key not in cache:
-            cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
+            cv = ev.with_out_of_fold(s)
+            cache[key] = entry_for(s.spec, cv, plan, prep, parts, opts, service_version)
             if key in ev.powers:
                 cache[key].setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
             if key in read_notes:
