@@ -291,3 +291,19 @@ def test_selection_entries_store_the_searchs_own_folds():
         got = out["predictions"]
         np.testing.assert_allclose([p["model_scale"]["interval_low"] for p in got], lo, rtol=1e-8)
         np.testing.assert_allclose([p["model_scale"]["interval_high"] for p in got], hi, rtol=1e-8)
+
+
+def test_report_names_each_entrys_interval_method():
+    body = {
+        "data": {"columns": _data(6, 200)},
+        "response": "y",
+        "predictors": ["x"],
+        "transforms": {"response": ["identity"], "predictors": ["identity", "log"]},
+    }
+    sel = client.post("/v1/selections", json=body).json()["ranking"]
+    page = client.post("/v1/reports", json=body).text
+    n_cv = sum(e["inference"]["prediction_intervals"] == "cv_plus" for e in sel)
+    assert n_cv >= 1
+    line = "CV+ (from the out-of-fold residuals; no normality needed): normality fails"
+    assert page.count(line) == n_cv
+    assert page.count("Prediction intervals") == len(sel)
