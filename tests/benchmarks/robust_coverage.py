@@ -30,10 +30,10 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from scipy import stats
 from service.core.data import prepare
-from service.core.diagnose import diagnose_specification
 from service.core.fitting import hac_cov, hc3_cov, newey_west_lags, ols
 from service.core.predict import load_model, predict
-from service.core.search_setup import SearchOptions
+from service.selection.diagnose import diagnose_specification
+from service.selection.search_setup import SearchOptions
 
 NAMES = ["intercept", "x"]
 
