@@ -75,20 +75,24 @@ def thinned(oof: OutOfFold, max_rows: int = MAX_ROWS) -> tuple[str, np.ndarray, 
     return "quantiles", np.concatenate(folds_out), np.concatenate(vals_out)
 
 
+POWERS_PER_FOLD = (
+    "the entry's predictor powers were estimated inside every fold, and CV+ fits are "
+    "stored only for predictor scales fixed across folds"
+)
+NOT_KEPT = "the out-of-fold fits were not kept for this entry"
+
+
 def stored_block(
-    oof: OutOfFold | None, X: np.ndarray, y: np.ndarray, scheme: str
+    oof: OutOfFold | None, X: np.ndarray, y: np.ndarray, scheme: str, why_none: str = NOT_KEPT
 ) -> dict[str, Any]:
-    """The artifact's ``cv_plus`` block: fold fits and residuals, or why there are none.
+    """The artifact's ``cv_plus`` block: fold fits and residuals, or why there are none
+    (``why_none`` when ``oof`` is None).
 
     ``X``: (n, p) the entry's full design; ``y``: (n,) original response.  The stored fold
     fits are checked to reproduce the out-of-fold residuals on ``X`` before they are kept.
     """
     if oof is None:
-        return {
-            "available": False,
-            "reason": "the scale of a predictor was estimated inside every fold, and CV+ "
-            "intervals are stored only for fixed predictor scales",
-        }
+        return {"available": False, "reason": why_none}
     K = oof.coefficients.shape[0]
     with np.errstate(all="ignore"):
         eta = np.einsum("ij,ij->i", X, oof.coefficients[oof.fold])

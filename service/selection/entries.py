@@ -14,11 +14,12 @@ from ..core.crossval import CVResult
 from ..core.cvplus import default_method, stored_block
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure
+from ..core.fastcv import OutOfFold
 from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
 from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
-from ..core.model import build_model
+from ..core.model import build_model, checksum
 from ..core.numbers import fmt
 from ..core.spec import Design, Specification, build_design
 
@@ -174,6 +175,25 @@ def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
         return rows
     keys = ("std_error", "t_statistic", "p_value", "ci_low", "ci_high")
     return [row | {k: row[f"{k}_{kind}"] for k in keys} for row in rows]
+
+
+def attach_cv_plus(
+    entry: dict[str, Any], oof: OutOfFold | None, why_none: str, prep: Prepared, plan: CVPlan
+) -> None:
+    """Store the CV+ block in ``entry``'s model (checksum renewed; signing comes later in the
+    web layer) and set the entry's default interval method from it."""
+    block = stored_block(oof, entry["_design"].X, prep.y, plan.scheme, why_none)
+    model = entry["model"]
+    model["cv_plus"] = block
+    model["checksum"] = checksum(model)
+    method, why = default_method(
+        model.get("conditions_failed"), block["available"], block.get("reason", "")
+    )
+    entry["inference"] = {
+        **entry["inference"],
+        "prediction_intervals": method,
+        "prediction_interval_reason": why,
+    }
 
 
 def entry_for(

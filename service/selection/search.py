@@ -10,7 +10,6 @@ Friedman 2009, pp. 61 and 244) the simplest ranks first (simplicity order in
 
 from __future__ import annotations
 
-import dataclasses
 import itertools
 import math
 import re
@@ -25,7 +24,8 @@ from ..core import boxtidwell as bt
 from ..core import transforms as tr
 from ..core.bank import FoldIndex
 from ..core.condition_rules import CONDITION_NAMES, failed, failed_for_ranking
-from ..core.crossval import CVResult, from_score
+from ..core.crossval import from_score
+from ..core.cvplus import NOT_KEPT, POWERS_PER_FOLD
 from ..core.data import Prepared
 from ..core.errors import (
     BudgetError,
@@ -34,14 +34,14 @@ from ..core.errors import (
     ModelFailure,
     pointer,
 )
-from ..core.fastcv import Dynamic, Scorer
+from ..core.fastcv import Dynamic, OutOfFold, Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
 from ..core.spec import PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
 from . import incumbent
-from .entries import entry_for
+from .entries import attach_cv_plus, entry_for
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
@@ -114,19 +114,19 @@ class _Evaluator:
         self.scored.append(s)
         return s
 
-    def with_out_of_fold(self, s: Scored) -> CVResult:
-        """``s.cv`` with the first repeat's fold fits and out-of-fold residuals (CV+ intervals):
-        the same folds scored again, so the numbers are the search's own.  Specifications
-        whose predictor powers are estimated inside every fold keep none."""
+    def out_of_fold(self, s: Scored) -> tuple[OutOfFold | None, str]:
+        """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
+        or None and why: the same folds scored again, so the numbers are the search's own.
+        Specifications whose predictor powers are estimated inside every fold keep none."""
         spec = s.open_spec or s.spec
         if any(bt.is_open(p.transform) for p in spec.predictors):
-            return s.cv
+            return None, POWERS_PER_FOLD
         try:
             cols, names, _ = self.space.design_of(spec)
             sc = self.scorer.score(spec.response_transform, cols, names, keep_out_of_fold=True)
-        except CandidateFailure:
-            return s.cv
-        return dataclasses.replace(s.cv, out_of_fold=sc.out_of_fold)
+        except CandidateFailure as exc:
+            return None, f"its folds could not be scored again ({exc.reason})"
+        return sc.out_of_fold, NOT_KEPT
 
     def _score(self, spec: Specification) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
@@ -273,8 +273,7 @@ def run_selection(
     def full(s: Scored, parts: dict[str, Any]) -> dict[str, Any]:
         key = s.spec.key
         if key not in cache:
-            cv = ev.with_out_of_fold(s)
-            cache[key] = entry_for(s.spec, cv, plan, prep, parts, opts, service_version)
+            cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
             if key in ev.powers:
                 cache[key].setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
             if key in read_notes:
@@ -296,6 +295,8 @@ def run_selection(
             )
             continue
         i = len(entries)
+        # CV+ fits only for the entries returned (the band's assessed members need none)
+        attach_cv_plus(entry, *ev.out_of_fold(s), prep, plan)
         if "conditions_failed" not in parts:
             parts = {
                 **parts,

@@ -307,3 +307,36 @@ def test_report_names_each_entrys_interval_method():
     line = "CV+ (from the out-of-fold residuals; no normality needed): normality fails"
     assert page.count(line) == n_cv
     assert page.count("Prediction intervals") == len(sel)
+
+
+def test_entries_with_per_fold_predictor_powers_say_why_they_stay_normal():
+    rng = np.random.default_rng(6)
+    x = rng.uniform(1, 10, 200)
+    y = 10 + 2 * x**1.7 + 3 * rng.standard_t(3, 200)
+    r = client.post(
+        "/v1/selections",
+        json={
+            "data": {"columns": {"x": x.tolist(), "y": y.tolist()}},
+            "response": "y",
+            "predictors": ["x"],
+            "transforms": {"response": ["identity"], "predictors": ["identity", {"name": "power"}]},
+        },
+    )
+    assert r.status_code == 200, r.text
+    est = [
+        e
+        for e in r.json()["ranking"]
+        if e["specification"]["predictors"][0]["transform"]["name"] == "power"
+    ]
+    assert est, "the estimated power is listed"
+    entry = est[0]
+    assert entry["conditions"]["normality"]["holds"] is False
+    assert entry["model"]["cv_plus"]["available"] is False
+    assert entry["inference"]["prediction_intervals"] == "normal"
+    assert "estimated inside every fold" in entry["inference"]["prediction_interval_reason"]
+    out = _predict(entry["model"], [2.0]).json()
+    assert out["interval_method"] == "normal"
+    assert "CV+ is not available" in out["interval_method_reason"]
+    r = _predict(entry["model"], [2.0], method="cv_plus")
+    assert r.status_code == 422
+    assert "estimated inside every fold" in r.json()["errors"][0]["detail"]
