@@ -340,3 +340,15 @@ def test_entries_with_per_fold_predictor_powers_say_why_they_stay_normal():
     r = _predict(entry["model"], [2.0], method="cv_plus")
     assert r.status_code == 422
     assert "estimated inside every fold" in r.json()["errors"][0]["detail"]
+
+
+def test_oversized_cv_plus_lists_are_refused_before_reading_them():
+    body = _diagnose(_data(7, 60), {"name": "identity"})
+
+    def grow(m):
+        m["cv_plus"]["residuals"]["values"] = [1.0] * (cvplus.MAX_ROWS + 1)
+
+    r = _predict(_resigned(body["model"], grow), [2.0])
+    assert r.status_code == 422
+    assert r.json()["errors"][0]["pointer"] == "/model/cv_plus/residuals/values"
+    assert str(cvplus.MAX_ROWS) in r.json()["errors"][0]["detail"]
