@@ -162,6 +162,70 @@ def _kth(v: np.ndarray, k: int) -> np.ndarray:
     return np.partition(v, k - 1, axis=1)[:, k - 1]
 
 
+BISECTIONS = 80  # halvings at most; a row stops when its bracket holds one candidate
+
+
+def _kth_shifted(mu: np.ndarray, sorted_r: list[np.ndarray], k: int, sign: int) -> np.ndarray:
+    """k-th smallest (1-based) of {mu[:, f] + sign * R : R in sorted_r[f]} for every row of
+    ``mu`` (c, K), without forming the c x n candidates: bisection on the value with counts
+    from the sorted residuals of each fold (O(K log n) per step), then the candidate at
+    the found value.  Equal to a full sort up to rounding in the last place."""
+    n = sum(r.size for r in sorted_r)
+    c = mu.shape[0]
+    if k < 1:
+        return np.full(c, -np.inf)
+    if k > n:
+        return np.full(c, np.inf)
+    rmax = max(float(r[-1]) for r in sorted_r if r.size)
+    rmin = min(float(r[0]) for r in sorted_r if r.size)
+    lo_c = np.min(mu, axis=1) + (-rmax if sign < 0 else rmin)
+    hi_c = np.max(mu, axis=1) + (-rmin if sign < 0 else rmax)
+    a = lo_c - (np.abs(lo_c) + 1.0) * 1e-6  # below every candidate: count(a) < k
+    b = hi_c + (np.abs(hi_c) + 1.0) * 1e-6  # above every candidate: count(b) = n >= k
+
+    def count(rows: np.ndarray, v: np.ndarray) -> np.ndarray:
+        total = np.zeros(rows.size, dtype=np.int64)
+        for f, r in enumerate(sorted_r):
+            m = mu[rows, f]
+            if sign < 0:  # mu - R <= v  <=>  R >= mu - v
+                total += r.size - np.searchsorted(r, m - v, side="left")
+            else:  # mu + R <= v  <=>  R <= v - mu
+                total += np.searchsorted(r, v - m, side="right")
+        return total
+
+    # bracket (a, b] with count(a) < k <= count(b); a row is done once its bracket holds
+    # exactly one candidate (count(b) - count(a) == 1) or is one float wide
+    ca = np.zeros(c, dtype=np.int64)
+    cb = np.full(c, n, dtype=np.int64)
+    active = np.arange(c)
+    for _ in range(BISECTIONS):
+        mid = a[active] + (b[active] - a[active]) / 2.0
+        open_ = (cb[active] - ca[active] > 1) & (mid > a[active]) & (mid < b[active])
+        active, mid = active[open_], mid[open_]
+        if not active.size:
+            break
+        cm = count(active, mid)
+        enough = cm >= k
+        up, down = active[enough], active[~enough]
+        b[up], cb[up] = mid[enough], cm[enough]
+        a[down], ca[down] = mid[~enough], cm[~enough]
+    # the largest candidate not above b is the k-th smallest
+    best = np.full(c, -np.inf)
+    for f, r in enumerate(sorted_r):
+        if not r.size:
+            continue
+        if sign < 0:
+            j = np.searchsorted(r, mu[:, f] - b, side="left")
+            ok = j < r.size
+            cand = mu[:, f] - r[np.minimum(j, r.size - 1)]
+        else:
+            j = np.searchsorted(r, b - mu[:, f], side="right") - 1
+            ok = j >= 0
+            cand = mu[:, f] + r[np.maximum(j, 0)]
+        best = np.where(ok & (cand > best), cand, best)
+    return best
+
+
 def intervals(
     coefficients: np.ndarray,
     transforms: list[tr.Transform],
@@ -187,15 +251,17 @@ def intervals(
     lo_z, hi_z = np.empty(m), np.empty(m)
     step = max(1, CHUNK_CELLS // max(n, 1))
     groups = [np.flatnonzero(fold == k) for k in range(len(transforms))]
+    sorted_r = [np.sort(abs_resid[g]) for g in groups]
+    if shared:
+        step = max(1, CHUNK_CELLS // 64)  # no c x n matrix on this path
     t0 = model_transform
     with np.errstate(all="ignore"):
         for a in range(0, m, step):
             b = min(m, a + step)
             mu = X0[a:b] @ coefficients.T  # (c, K)
-            centre = mu[:, fold]
-            lows, highs = centre - abs_resid, centre + abs_resid
             if shared:
-                zl, zh = _kth(lows, k_lo), _kth(highs, k_hi)
+                zl = _kth_shifted(mu, sorted_r, k_lo, -1)
+                zh = _kth_shifted(mu, sorted_r, k_hi, +1)
                 lo_z[a:b], hi_z[a:b] = zl, zh
                 yl = np.where(np.isfinite(zl), t0.inverse(zl), np.nan)
                 yh = np.where(np.isfinite(zh), t0.inverse(zh), np.nan)
@@ -204,6 +270,8 @@ def intervals(
                 lo_y[a:b], hi_y[a:b] = yl, yh
                 continue
             # one scale per fold: map every candidate through its own fold's inverse
+            centre = mu[:, fold]
+            lows, highs = centre - abs_resid, centre + abs_resid
             yl_all, yh_all = np.empty_like(lows), np.empty_like(highs)
             for k, cols in enumerate(groups):
                 tk = transforms[k]

@@ -352,3 +352,22 @@ def test_oversized_cv_plus_lists_are_refused_before_reading_them():
     assert r.status_code == 422
     assert r.json()["errors"][0]["pointer"] == "/model/cv_plus/residuals/values"
     assert str(cvplus.MAX_ROWS) in r.json()["errors"][0]["detail"]
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_fast_order_statistics_equal_a_full_sort(seed):
+    rng = np.random.default_rng(seed)
+    K, n = int(rng.integers(2, 11)), int(rng.integers(12, 400))
+    fold = rng.permutation(np.arange(n) % K)
+    R = np.abs(rng.standard_t(3, n)) * 10 ** rng.uniform(-3, 6)
+    if seed % 2:
+        R = np.round(R, 1)  # ties
+    B = rng.normal(size=(K, 3)) * 10 ** rng.uniform(-3, 6)
+    X0 = rng.normal(size=(40, 3))
+    ident = tr.Transform("identity")
+    _, _, lo, hi = cvplus.intervals(B, [ident] * K, fold, R, X0, 0.9, ident)
+    # source: the order statistics of the CV+ definition taken by sorting all n candidates
+    c = (X0 @ B.T)[:, fold]
+    k_lo, k_hi = cvplus.ranks(n, 0.9)
+    np.testing.assert_allclose(lo, np.sort(c - R, axis=1)[:, k_lo - 1], rtol=1e-12)
+    np.testing.assert_allclose(hi, np.sort(c + R, axis=1)[:, k_hi - 1], rtol=1e-12)
