@@ -242,9 +242,7 @@ def entry_for(
         ),
         "warnings": warnings,
     }
-    conditions, hints = conditions_for(
-        design, fit, prep, fit.fitted + fit.resid, getattr(opts, "alpha", 0.05)
-    )
+    conditions, hints = conditions_for(design, fit, prep, fit.fitted + fit.resid, opts.alpha)
     entry["conditions"] = conditions
     entry["transform_hints"] = hints
     for h in hints:
