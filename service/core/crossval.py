@@ -26,8 +26,6 @@ from .bank import ColumnBank, FoldIndex
 from .fastcv import OutOfFold, Score, Scorer
 from .folds import CVPlan
 
-METRICS = ("rmse", "mae", "mape")
-
 
 @dataclass
 class CVResult:

@@ -235,9 +235,7 @@ def entry_for(
             f"design {fit.condition_number:.3g}); coefficients are unstable."
         )
     covs, lags = robust_covariances(fit, design, prep)
-    conditions, hints = conditions_for(
-        design, fit, prep, fit.fitted + fit.resid, getattr(opts, "alpha", 0.05)
-    )
+    conditions, hints = conditions_for(design, fit, prep, fit.fitted + fit.resid, opts.alpha)
     bad = failed(conditions)
     cv_plus = stored_block(cv.out_of_fold, design.X, prep.y, plan.scheme)
     entry: dict[str, Any] = {

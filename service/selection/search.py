@@ -23,7 +23,8 @@ import numpy as np
 from ..core import boxtidwell as bt
 from ..core import transforms as tr
 from ..core.bank import FoldIndex
-from ..core.condition_rules import CONDITION_NAMES, failed, failed_for_ranking
+from ..core.condition_rules import failed, failed_for_ranking
+from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import from_score
 from ..core.cvplus import NOT_KEPT, POWERS_PER_FOLD
 from ..core.data import Prepared
@@ -44,9 +45,6 @@ from . import incumbent
 from .entries import attach_cv_plus, entry_for
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
-
-DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
-DEFAULT_PREDICTOR = cand.DEFAULT_PREDICTOR
 
 MAX_FAILURES_LISTED = 10
 
@@ -76,7 +74,6 @@ SMALL_N = 50  # below this many rows the default search puts all predictors on o
 
 # entry_hook(entry, {"spec", "prep", "opts"}) completes a ranking entry in place
 EntryHook = Callable[[dict[str, Any], dict[str, Any]], object]
-STRATEGIES = ("auto", "exhaustive", "screened")
 
 
 def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
