@@ -34,7 +34,7 @@ from scipy import stats
 from . import cvplus, retransform
 from . import transforms as tr
 from ._types import FloatArray
-from .condition_rules import CONDITION_NAMES
+from .conditions import CONDITION_NAMES
 from .data import RawColumn, as_categorical, as_numeric, read_table, shown
 from .errors import FieldProblem, InputError, pointer
 from .model import (
