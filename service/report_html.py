@@ -254,7 +254,7 @@ def _figure(plots, entry: dict, prefix: str) -> str:
         )
     caption += (
         ". Curves are LOWESS smoothers; circled points are flagged rows, labelled with "
-        "their row number in the request (0 = first data row)."
+        "their row number in the request (rows are numbered from 1: 1 = first data row)."
     )
     return (
         f'<figure class="panels" id="{prefix}">{inline_svg(svg, prefix, label)}'
@@ -395,8 +395,8 @@ def _summary(body: dict, context: dict) -> str:
         out.append(
             f"<h3>Dropped rows</h3><p>{count_of(int(data.get('rows_dropped') or 0), 'row')} "
             "were left "
-            f"out; the first {len(shown)} listed (row numbers count from 0 in the "
-            "request).</p>"
+            f"out; the first {len(shown)} listed (rows are numbered from 1: 1 = first data "
+            "row).</p>"
         )
         out.append(
             '<table class="compact"><thead><tr><th class="n">Row</th><th>Reason</th>'

@@ -12,7 +12,10 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from service.core.numbers import ROW_RULE
+
 Num = float | None  # a finite number, or null where it cannot be computed
+ROW = f"the row's number in the request's data; {ROW_RULE}"
 
 
 class _Open(BaseModel):
@@ -53,11 +56,18 @@ class SpecificationOut(_Open):
     intercept: bool
 
 
+class DroppedRowOut(_Open):
+    row: int = Field(..., ge=1, description=ROW)
+    reason: str = Field(..., description="the used columns with a missing value in that row")
+
+
 class DataSummary(_Open):
     rows_received: int = Field(..., ge=0)
     rows_used: int = Field(..., ge=0)
     rows_dropped: int = Field(..., ge=0)
-    dropped: list[dict[str, Any]] = Field(..., description="dropped rows and why (capped)")
+    dropped: list[DroppedRowOut] = Field(
+        ..., description=f"dropped rows and why (the first 100); {ROW_RULE}"
+    )
 
 
 class SearchSummary(_Open):
@@ -167,13 +177,29 @@ class ConditionOut(_Open):
     note: str
 
 
+class FlaggedRowOut(_Open):
+    row: int = Field(..., ge=1, description=ROW)
+    reasons: list[str] = Field(..., description="the screening cut-offs the row exceeds")
+    cooks_distance: Num
+    leverage: Num
+    dffits: Num
+    studentized_residual: Num = Field(..., description="externally studentised residual")
+
+
+class InfluenceOut(ConditionOut):
+    flagged_rows: list[FlaggedRowOut] = Field(
+        ..., description="flagged rows, largest Cook's distance first (at most 50)"
+    )
+    n_flagged: int = Field(..., ge=0)
+
+
 class ConditionsOut(_Open):
     linearity: ConditionOut
     normality: ConditionOut
     equal_variance: ConditionOut
     independence: ConditionOut
     multicollinearity: ConditionOut
-    influence: ConditionOut
+    influence: InfluenceOut
 
 
 class ScoreOut(_Open):
@@ -276,6 +302,9 @@ class PredictionsResponse(_Open):
 
 
 class PlotsOut(_Open):
+    """Plot-ready series; every ``row`` in ``points`` and ``labels`` is a row number
+    (1 = the first data row of the request)."""
+
     residuals_fitted: dict[str, Any]
     normal_quantiles: dict[str, Any]
     spread_fitted: dict[str, Any]

@@ -60,7 +60,7 @@ class ConditionInputs:
     X: np.ndarray  # (n, p) design as fitted, with the intercept column if has_intercept
     has_intercept: bool
     terms: tuple[TermInfo, ...]
-    row_ids: np.ndarray  # (n,) caller's input row number of each used row
+    row_numbers: np.ndarray  # (n,) each used row's number in the request (1 = first data row)
     order: np.ndarray | None  # (n,) rows sorted by the caller's order column, or None
     alpha: float = 0.05
 
@@ -87,8 +87,8 @@ def validate(inp: ConditionInputs) -> tuple[np.ndarray, np.ndarray]:
         raise ValueError("z and X must be finite; drop or impute missing values first")
     if not 0 < inp.alpha < 1:
         raise ValueError(f"alpha must lie strictly between 0 and 1; got {inp.alpha}")
-    if np.shape(inp.row_ids) != z.shape:
-        raise ValueError(f"row_ids must have shape {z.shape}; got {np.shape(inp.row_ids)}")
+    if np.shape(inp.row_numbers) != z.shape:
+        raise ValueError(f"row_numbers must have shape {z.shape}; got {np.shape(inp.row_numbers)}")
     if inp.order is not None:
         order = np.asarray(inp.order)
         if order.shape != z.shape or not np.array_equal(np.sort(order), np.arange(z.size)):
@@ -461,7 +461,7 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
             fit.residual_reason or "influence undefined", rule, flagged_rows=[], n_flagged=0
         )
     inf, n = fit.influence, fit.n
-    ids = np.asarray(inp.row_ids)
+    ids = np.asarray(inp.row_numbers)
     order, masks, cut = flag_rows(fit)
     listed = []
     for i in order[:MAX_FLAGGED_ROWS]:

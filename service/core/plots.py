@@ -14,7 +14,7 @@ numbers) for the questions a reader asks of a fitted scale:
 - ``partial_residuals`` -- is each predictor's scale right?  One partial-residual series per
   numeric predictor (Ezekiel 1924; Larsen & McCleary 1972).
 
-Row numbers are the caller's: 0 is the first data row of the request.  Large data sets are
+Row numbers are the request's, counted from 1 (``numbers.ROW_RULE``: 1 = first data row).  Large data sets are
 thinned for drawing only: a seeded random subset of the rows, always including the flagged
 rows that are labelled.  The statistics behind every series use all rows; the LOWESS curves
 use all rows up to :data:`SMOOTHER_MAX_ROWS` and a seeded sample beyond that.
@@ -319,7 +319,7 @@ def _influence_panel(
             "Cook's distance of each row; rows above the flag line move the fit noticeably, "
             "above the fail line they dominate it"
         ),
-        "x_label": "Row (0 = first data row)",
+        "x_label": "Row (1 = first data row)",
         "y_label": "Cook's distance",
         "n_total": fit.n,
     }
@@ -411,7 +411,7 @@ def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0
         raise ValueError(f"max_points must be at least 10; got {max_points}")
     z, X = validate(inp)
     fit = ct.fit_model(z, X, inp.has_intercept)
-    ids = np.asarray(inp.row_ids)
+    ids = np.asarray(inp.row_numbers)
     flagged = (
         flag_rows(fit)[0][:MAX_FLAGGED_ROWS]
         if fit.influence is not None

@@ -322,7 +322,7 @@ def test_ragged_csv(client):
     rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
     rows[3] = rows[3].split(",")[0]
     p = assert_problem(client.post(URL, json=_csv(rows)), 422, "/data/csv")
-    assert "line 4" in p["errors"][0]["detail"]
+    assert "data row 3 (line 4)" in p["errors"][0]["detail"]
 
 
 def test_duplicate_csv_header(client):
@@ -335,7 +335,7 @@ def test_non_numeric_csv_cell(client):
     rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
     rows[5] = "oops," + rows[5].split(",")[1]
     p = assert_problem(client.post(URL, json=_csv(rows)), 422, "/data/csv")
-    assert "line 6" in p["errors"][0]["detail"]
+    assert "data row 5 (line 6)" in p["errors"][0]["detail"]
 
 
 # ------------------------------------------------- successful requests
@@ -347,18 +347,18 @@ def test_rows_with_missing_values_are_dropped_and_listed(client):
     assert r.status_code == 200, r.text[:300]
     d = _strict_json(r.text)["data"]
     assert d["rows_received"] == 20 and d["rows_used"] == 18 and d["rows_dropped"] == 2
-    assert [e["row"] for e in d["dropped"]] == [2, 7]
+    assert [e["row"] for e in d["dropped"]] == [3, 8]  # positions 2 and 7, numbered from 1
     assert "'y'" in d["dropped"][0]["reason"] and "'x'" in d["dropped"][1]["reason"]
 
 
 def test_csv_empty_cells_are_dropped_and_listed(client):
     cols = _columns(n=20)
     rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
-    rows[4] = "," + rows[4].split(",")[1]  # data row 3 has an empty response cell
+    rows[4] = "," + rows[4].split(",")[1]  # line 5: data row 4 has an empty response cell
     r = client.post(URL, json=_csv(rows))
     assert r.status_code == 200, r.text[:300]
     d = _strict_json(r.text)["data"]
-    assert d["rows_dropped"] == 1 and d["dropped"][0]["row"] == 3
+    assert d["rows_dropped"] == 1 and d["dropped"][0]["row"] == 4
 
 
 def test_finite_request_returns_strict_json():
