@@ -287,7 +287,7 @@ def select_main(argv: list[str]) -> int:
             progress = _Progress(0)
         result = run_selection_request(req, progress=progress, group_mapper=group_mapper)
     except ValidationError as exc:
-        from .errors import validation_items
+        from .api.errors import validation_items
 
         items = validation_items(exc.errors(), body)
         lines = [f"{i['pointer'] or '(the request)'}: {i['detail']}" for i in items]

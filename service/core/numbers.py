@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
+from typing import Any
 
 P_FLOOR = 1e-4
 #: how rows are counted, stated once wherever rows are named
@@ -103,3 +104,9 @@ def rows_named(indexes: Iterable[int], listed: int | None = None) -> str:
     elif len(shown) > 1:
         text = ", ".join(str(n) for n in shown[:-1]) + f" and {shown[-1]}"
     return f"{'row' if len(numbers) == 1 else 'rows'} {text} (counting from 1)"
+
+
+def failure_text(group: dict[str, Any]) -> str:
+    """``12 candidates: reason`` or ``30 candidates, for example: reason``."""
+    sep = ":" if group["wordings"] == 1 else ", for example:"
+    return f"{count_of(group['candidates'], 'candidate')}{sep} {group['reason']}"
