@@ -318,10 +318,34 @@ class DiagnosticsResponse(EntryOut):
     plots: PlotsOut
 
 
+Omitted = Literal["required", "estimated", "default"]
+
+
+class TransformParameter(_Open):
+    """One parameter of a transform, as the request schema (TransformIn) accepts it."""
+
+    name: str = Field(..., description="the field of TransformIn")
+    type: str
+    minimum: float | None = Field(None, description="smallest accepted value (numbers)")
+    maximum: float | None = Field(None, description="largest accepted value (numbers)")
+    default: Any = Field(
+        ..., description="what is used when the field is omitted and not required or estimated"
+    )
+    when_omitted: dict[str, Omitted] = Field(
+        ...,
+        description="by place: response (specification.response, transforms.response), "
+        "predictor (a specification's predictor) and predictor_search "
+        "(transforms.predictors): required (a 422 without it), estimated (from the data) or "
+        "default; a place not listed does not take this transform",
+    )
+    meaning: str
+
+
 class TransformInfo(_Open):
     name: str
-    parameters: list[Any]
+    parameters: list[TransformParameter]
     domain: str
+    applies_to: list[Literal["response", "predictor"]]
     reading: str
 
 
