@@ -201,7 +201,8 @@ def test_huge_response_values_are_never_a_server_error(client):
 def test_too_few_rows_for_cross_validation(client):
     cols = {k: v[:4] for k, v in _columns().items()}
     b = body(data={"columns": cols}, validation={"folds": 2})
-    assert_problem(client.post(URL, json=b), 422, "/data")
+    p = assert_problem(client.post(URL, json=b), 422, "/data/columns")
+    assert "4 usable rows, too few for 2-fold" in p["detail"] and "at least" in p["detail"]
 
 
 def test_no_complete_row(client):
@@ -216,10 +217,28 @@ def test_folds_outside_the_schema_range(client, folds):
     assert_problem(client.post(URL, json=b), 422, "/validation/folds")
 
 
-def test_more_folds_than_rows(client):
+def test_more_folds_than_rows_points_at_the_data(client):
     b = body(validation={"folds": 20})
-    p = assert_problem(client.post(URL, json=b), 422, "/validation/folds")
-    assert "12" in p["errors"][0]["detail"]
+    p = assert_problem(client.post(URL, json=b), 422, "/data/columns")
+    detail = p["errors"][0]["detail"]
+    assert "12 usable rows, fewer than the 20 cross-validation folds" in detail
+    assert "send at least 20 complete rows, or set validation.folds to 12 or fewer" in detail
+
+
+def test_more_folds_than_rows_names_the_dropped_rows_and_the_default(client):
+    cols = {k: v[:6] for k, v in _columns().items()}
+    cols["y"][1] = None
+    cols["x"][3] = None
+    lines = ["y,x"] + [
+        f"{'' if a is None else a},{'' if b is None else b}"
+        for a, b in zip(cols["y"], cols["x"], strict=True)
+    ]
+    p = assert_problem(client.post(URL, json=_csv(lines)), 422, "/data/csv")
+    detail = p["errors"][0]["detail"]
+    # 4 usable of 6 rows and the default 5 folds, which the caller never sent
+    assert "4 usable rows (6 received, 2 dropped for a missing value" in detail
+    assert "fewer than the 5 cross-validation folds (validation.folds, default 5)" in detail
+    assert "set validation.folds to 4 or fewer" in detail
 
 
 def test_unknown_transform_name(client):
