@@ -159,6 +159,9 @@ class InferenceOut(_Open):
         "equal variance fails, otherwise classical",
     )
     reason: str
+    source: str = Field(
+        ..., description="method: published reference, of the chosen standard errors"
+    )
     hac_lags: int | None = Field(
         None, description="Newey-West lags, floor(4 (n/100)^(2/9)); only with an order column"
     )
@@ -293,6 +296,8 @@ class PredictionOut(_Open):
 
 class PredictionsResponse(_Open):
     predictions: list[PredictionOut] = Field(..., description="one per input row, in order")
+    interval: float = Field(..., description="coverage of the prediction intervals")
+    source: str = Field(..., description="method: published reference, of the intervals and means")
     warnings: list[str]
     cautions: list[str] = Field(
         ...,

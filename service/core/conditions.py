@@ -29,6 +29,7 @@ import numpy as np
 from scipy import stats
 
 from service.core import _condition_tests as ct
+from service.core import sources as src
 from service.core.numbers import count_of, fmt, p_is
 
 #: common-practice VIF cut-offs (warn, fail)
@@ -153,7 +154,7 @@ def _curvature_entries(
                 column=term.column,
                 label=term.label,
                 form="t-test of the squared (centred) predictor added to the model",
-                source="component-plus-residual curvature (Mallows 1986); Frisch-Waugh-Lovell t-test",
+                source=src.CURVATURE,
             )
         )
     return out
@@ -362,8 +363,7 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
             "term": None if worst is None else worst["term"],
             "threshold": {"warn": VIF_WARN, "fail": VIF_FAIL},
             "rule": "common practice",
-            "source": "Fox & Monette (1992) generalised VIF; equals "
-            "statsmodels variance_inflation_factor for one column",
+            "source": src.GVIF,
         },
         {
             "name": "Condition number (unit-length columns, BKW)",
@@ -372,7 +372,7 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
             "threshold": CONDITION_WARN,
             "rule": "common practice",
             "condition_indices": indices,
-            "source": "Belsley, Kuh & Welsch (1980); numpy SVD",
+            "source": src.CONDITION_NUMBER,
         },
     ]
     levels = {r["level"] for r in vif_rows}
@@ -495,25 +495,25 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
         "Cook's distance (largest)",
         inf.cooks,
         {"flag": cut["cooks_flag"], "fail": cut["cooks_fail"]},
-        "Cook (1977); statsmodels OLSInfluence.cooks_distance",
+        src.COOKS_DISTANCE,
     )
     lev, _ = largest(
         "Leverage (largest hat value)",
         inf.leverage,
         cut["leverage"],
-        "Hoaglin & Welsch (1978); statsmodels OLSInfluence.hat_matrix_diag",
+        src.LEVERAGE,
     )
     dff, _ = largest(
         "DFFITS (largest absolute value)",
         np.abs(inf.dffits),
         cut["dffits"],
-        "Belsley, Kuh & Welsch (1980)",
+        src.DFFITS,
     )
     out, i_t = largest(
         "Outlier test (largest |externally studentised residual|, Bonferroni)",
         np.abs(inf.studentized),
         cut["studentized"],
-        "Cook & Weisberg (1982) Bonferroni outlier test; scipy.stats.t",
+        src.OUTLIER_TEST,
     )
     if i_t is not None and fit.df_resid >= 2:
         # Bonferroni: n times the two-sided t_{n-p-1} tail probability of the largest |t_i|

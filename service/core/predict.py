@@ -32,6 +32,7 @@ import numpy as np
 from scipy import stats
 
 from . import retransform
+from . import sources as src
 from . import transforms as tr
 from ._types import FloatArray
 from .data import RawColumn, as_categorical, as_numeric, read_table, shown
@@ -821,4 +822,9 @@ def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) ->
         }
         for i, (c0, c1, c2, c3, c4, c5, c6, c7) in enumerate(zip(*cols, strict=True))
     ]
-    return {"predictions": rows, "interval": float(interval), "warnings": warnings}
+    return {
+        "predictions": rows,
+        "interval": float(interval),
+        "source": src.PREDICTION_INTERVAL,
+        "warnings": warnings,
+    }
