@@ -775,7 +775,11 @@ def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) ->
             f"{k} of {m} rows {'is an extrapolation' if k == 1 else 'are extrapolations'}: "
             f"{_rows_text(np.flatnonzero(extrap))}, outside the training range of a "
             "predictor or beyond the largest training leverage; the fit does not "
-            "support them and back-transforms magnify their error."
+            + (
+                "support it and back-transforms magnify its error."
+                if k == 1
+                else "support them and back-transforms magnify their error."
+            )
         )
 
     def report(mask: np.ndarray, text: str) -> None:
