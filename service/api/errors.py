@@ -11,6 +11,8 @@ from __future__ import annotations
 import json
 import logging
 import re
+from collections.abc import Sequence
+from typing import Any
 
 import orjson
 from fastapi import FastAPI, Request
@@ -244,7 +246,7 @@ def _message(err: dict) -> str:
     return msg
 
 
-def validation_items(errs: list, body: object) -> list[dict]:
+def validation_items(errs: Sequence[Any], body: object) -> list[dict]:
     """The schema errors of one request as ``[{pointer, detail}]`` in our words, repeats
     removed (shared by the HTTP handler and the command line)."""
     items = []
