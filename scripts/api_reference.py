@@ -43,6 +43,12 @@ with the code. The README explains what the service is for and how a ranking is 
 - **Request ids.** Every response carries `X-Request-ID` (the caller's, when it sent a valid
   one); log lines and problem documents repeat it.
 - **Numbers.** Every number in a response is finite; a value that does not exist is `null`.
+- **Row numbers.** Wherever a response, a message, a figure or the report names a row
+  (`data.dropped[].row`, `conditions.influence.flagged_rows[].row`, plot `row` series,
+  problem details), rows are numbered from 1: row 1 is the first data row of the request (a
+  CSV header line is not a row). JSON Pointers keep their own 0-based array positions, so the
+  cell of row 4 in `data.columns.x` is `/data/columns/x/3` and its message says "row 4
+  (counting from 1)".
 - **What the numbers support.** Selection makes the reported p-values and intervals of the
   chosen specification optimistic; predictions beyond the range of the data are flagged, not
   trusted; a back-transformed prediction is a mean (smeared) or a median as stated; and an

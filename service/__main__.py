@@ -72,26 +72,58 @@ def exposure_warning(host: str, token: str | None) -> str | None:
     )
 
 
-def serve(argv: list[str]) -> int:
-    s = _settings_or_exit()
+def serve_parser(host: str, port: int, workers: int) -> argparse.ArgumentParser:
+    """The flags of ``python -m service`` (defaults from the BESTSCALE_* settings)."""
+    from .cli import whole_number
+
     ap = argparse.ArgumentParser(
         prog="python -m service",
-        description="Run the Bestscale API (HTTP, JSON).",
+        usage="python -m service [--host H] [--port P] [--workers N]\n"
+        "       python -m service select --data FILE --response Y --predictors A,B [...]",
+        description="Run the Bestscale API (HTTP, JSON), or with the 'select' command one "
+        "selection without a server.",
         epilog=(
-            "commands: 'python -m service select --data FILE --response Y --predictors A,B' "
-            "runs one selection (or one per segment, on a Dask cluster with --cluster) without a server, and "
-            "writes the JSON the API returns; 'python -m service select --help' lists its flags. "
-            "Settings come from BESTSCALE_* environment variables (README: Settings)."
+            "commands:\n"
+            "  (none)  run the API server with the flags above\n"
+            "  select  run one selection (or one per segment, on a Dask cluster) in-process\n"
+            "          and write the JSON the API returns; 'python -m service select --help'\n"
+            "          lists its flags\n\n"
+            "Settings come from BESTSCALE_* environment variables (README: Settings); the\n"
+            "flags above override BESTSCALE_HOST, BESTSCALE_PORT and BESTSCALE_WORKERS."
         ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    ap.add_argument("--host", default=s.host, help=f"address to listen on (default {s.host})")
-    ap.add_argument("--port", type=int, default=s.port, help=f"port (default {s.port})")
     ap.add_argument(
-        "--workers", type=int, default=s.workers, help=f"server processes (default {s.workers})"
+        "--host",
+        default=host,
+        metavar="H",
+        help=f"IP address or host name to listen on (default {host}, this machine only)",
     )
+    ap.add_argument(
+        "--port",
+        type=whole_number,
+        default=port,
+        metavar="P",
+        help=f"TCP port, 1-65535 (default {port})",
+    )
+    ap.add_argument(
+        "--workers",
+        type=whole_number,
+        default=workers,
+        metavar="N",
+        help=f"server processes, 1-64 (default {workers})",
+    )
+    return ap
+
+
+def serve(argv: list[str]) -> int:
+    s = _settings_or_exit()
+    ap = serve_parser(s.host, s.port, s.workers)
     args = ap.parse_args(argv)
     if not 1 <= args.workers <= 64:
-        ap.error("--workers must be between 1 and 64")
+        ap.error(f"--workers {args.workers}: give a number of processes from 1 to 64")
+    if not 1 <= args.port <= 65535:
+        ap.error(f"--port {args.port}: give a TCP port from 1 to 65535")
     warning = exposure_warning(args.host, s.token())
     if warning:
         print(warning, file=sys.stderr, flush=True)

@@ -20,7 +20,7 @@ def read_data_file(path: str) -> dict:
 
         table = pq.read_table(p)
         return {"columns": {name: table.column(name).to_pylist() for name in table.column_names}}
-    return {"csv": p.read_text()}
+    return {"csv": p.read_text(encoding="utf-8")}
 
 
 class _Progress:
@@ -47,65 +47,201 @@ def _is_directory_out(out: str | None) -> bool:
     return p.is_dir() or p.suffix.lower() != ".json"
 
 
+def whole_number(text: str) -> int:
+    """An ``argparse`` type: a whole number, refused in our words otherwise."""
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"expected a whole number such as 5, got {text!r}"
+        ) from None
+
+
+class CommandRefusal(Exception):
+    """A flag's file cannot be used; the message names the flag, the file and the fix."""
+
+
+_FLAG_FIELDS = ("data", "response", "predictors", "categorical", "order", "group_by", "incumbent")
+
+
+def _json_file(flag: str, path: str) -> object:
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except OSError as exc:
+        raise CommandRefusal(f"{flag} {path}: cannot be read ({exc.strerror or exc})") from None
+    except UnicodeDecodeError:
+        raise CommandRefusal(f"{flag} {path}: is not UTF-8 text; save it as UTF-8 JSON") from None
+    try:
+        return json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise CommandRefusal(
+            f"{flag} {path}: is not JSON ({exc.msg} at line {exc.lineno}, column {exc.colno})"
+        ) from None
+
+
+def _request_body(args: argparse.Namespace) -> dict:
+    """The API body the flags describe; the flags' own fields may not also be in --options."""
+    body = _json_file("--options", args.options) if args.options else {}
+    if not isinstance(body, dict):
+        raise CommandRefusal(
+            f"--options {args.options}: holds {type(body).__name__}; it needs a JSON object of "
+            'request fields such as {"top": 5}'
+        )
+    twice = sorted(k for k in body if k in _FLAG_FIELDS)
+    if twice:
+        raise CommandRefusal(
+            f"--options {args.options}: sets {', '.join(twice)}, which the flags set; give "
+            "each field once (remove it from the file or drop the flag)"
+        )
+    try:
+        data = read_data_file(args.data)
+    except OSError as exc:
+        raise CommandRefusal(
+            f"--data {args.data}: cannot be read ({exc.strerror or exc})"
+        ) from None
+    except UnicodeDecodeError:
+        raise CommandRefusal(
+            f"--data {args.data}: is neither UTF-8 CSV text nor a .parquet/.pq file"
+        ) from None
+    except ValueError as exc:  # pyarrow's ArrowInvalid: a damaged or foreign Parquet file
+        raise CommandRefusal(f"--data {args.data}: cannot be read as Parquet ({exc})") from None
+    body.update(
+        data=data,
+        response=args.response,
+        predictors=[c for c in args.predictors.split(",") if c],
+    )
+    if args.categorical:
+        body["categorical"] = [c for c in args.categorical.split(",") if c]
+    if args.order:
+        body["order"] = args.order
+    if args.group_by:
+        body["group_by"] = args.group_by
+    if args.incumbent:
+        body["incumbent"] = _json_file("--incumbent", args.incumbent)
+    return body
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The flags of ``python -m service select``; each help text says what the flag does,
+    its default and its unit."""
+    ap = argparse.ArgumentParser(
+        prog="python -m service select",
+        description="Run a selection in-process (or one per segment, on a Dask cluster with "
+        "--cluster) and write the JSON that POST /v1/selections returns. Options not listed "
+        "here go in --options, as in the API body.",
+        epilog="Rows are numbered from 1 (1 = first data row) in every output. Exit status: 0 "
+        "done, 2 the request or a flag cannot be used (the message says which and how to fix "
+        "it).",
+    )
+    ap.add_argument(
+        "--data",
+        required=True,
+        metavar="FILE",
+        help="the table: a CSV file with a header row, or a Parquet file (.parquet or .pq); "
+        "required",
+    )
+    ap.add_argument(
+        "--response",
+        required=True,
+        metavar="COLUMN",
+        help="the numeric column to model; required",
+    )
+    ap.add_argument(
+        "--predictors",
+        required=True,
+        metavar="A,B,...",
+        help="comma-separated predictor column names; required",
+    )
+    ap.add_argument(
+        "--categorical",
+        default="",
+        metavar="A,B,...",
+        help="comma-separated predictors to treat as levels even when they hold numbers "
+        "(default: none; a column of text is treated as levels anyway)",
+    )
+    ap.add_argument(
+        "--order",
+        default=None,
+        metavar="COLUMN",
+        help="column giving the rows' time or sequence order, used by the independence tests "
+        "and blocked folds (default: none, so the rows are not taken as ordered)",
+    )
+    ap.add_argument(
+        "--group-by",
+        default=None,
+        metavar="COLUMN",
+        help="run one selection per value of this column (default: none, one selection on "
+        "all rows)",
+    )
+    ap.add_argument(
+        "--incumbent",
+        default=None,
+        metavar="FILE",
+        help="JSON file holding the specification in use now, scored beside rank 1 with a "
+        "keep/switch decision (default: none)",
+    )
+    ap.add_argument(
+        "--incumbents",
+        default=None,
+        metavar="PATH",
+        help="one incumbent per segment: an earlier run's --out directory or its "
+        'summary.json, or JSON Lines of {"segment": ..., "specification"|"model": {...}} '
+        "(default: none; needs --group-by and --out DIR)",
+    )
+    ap.add_argument(
+        "--options",
+        default=None,
+        metavar="FILE",
+        help="JSON file with further request fields (validation, limits, top, ...) as in the "
+        "API body (default: none, the API's defaults)",
+    )
+    ap.add_argument(
+        "--out",
+        default=None,
+        metavar="FILE.json|DIR",
+        help="FILE.json: one file; DIR: one file per segment plus manifest.json and "
+        "summary.json, needs --group-by (default: standard output)",
+    )
+    ap.add_argument(
+        "--cluster",
+        default=None,
+        metavar="ADDRESS",
+        help="run the segments on Dask: tcp://HOST:8786 (a running scheduler) or 'local' "
+        "(a cluster on this machine); needs --group-by (default: BESTSCALE_DASK_SCHEDULER, "
+        "else this machine's process pool)",
+    )
+    ap.add_argument(
+        "--local-workers",
+        type=whole_number,
+        default=None,
+        metavar="N",
+        help="worker processes of --cluster local, 1 to 256 (default: the machine's cores, at "
+        "most 4)",
+    )
+    ap.add_argument(
+        "--resume",
+        action="store_true",
+        help="finish an interrupted --out DIR run: keep its finished segments, run the rest "
+        "(default: off, every segment runs)",
+    )
+    ap.add_argument(
+        "--progress-every",
+        type=whole_number,
+        default=None,
+        metavar="N",
+        help="when standard error is not a terminal, one progress line every N segments "
+        "(default: every 5%% of the segments)",
+    )
+    return ap
+
+
 def select_main(argv: list[str]) -> int:
     from .api.encode import to_jsonable
     from .api.schemas import SelectionRequest
     from .api.selection import run_selection_request
     from .core.errors import BestscaleError
 
-    ap = argparse.ArgumentParser(
-        prog="python -m service select",
-        description="Run a selection in-process (or one per segment on a Dask cluster) and "
-        "write the API's JSON.",
-    )
-    ap.add_argument("--data", required=True, help="CSV (with header) or Parquet file")
-    ap.add_argument("--response", required=True)
-    ap.add_argument("--predictors", required=True, help="comma-separated column names")
-    ap.add_argument("--categorical", default="", help="comma-separated columns to treat as levels")
-    ap.add_argument("--order", default=None)
-    ap.add_argument("--group-by", default=None, help="one selection per value of this column")
-    ap.add_argument("--incumbent", default=None, help="JSON file holding a Specification")
-    ap.add_argument(
-        "--incumbents",
-        default=None,
-        help="one incumbent per segment: an earlier run's --out directory or its summary.json, "
-        'or JSON Lines of {"segment": ..., "specification"|"model": {...}}',
-    )
-    ap.add_argument(
-        "--options",
-        default=None,
-        help="JSON file with further request fields (validation, limits, top, ...)",
-    )
-    ap.add_argument(
-        "--out",
-        default=None,
-        help="FILE.json: one file (default: standard output); DIR: one file per segment "
-        "plus manifest.json and summary.json (needs --group-by)",
-    )
-    ap.add_argument(
-        "--cluster",
-        default=None,
-        help="run the segments on Dask: tcp://HOST:8786 (a running scheduler) or 'local' "
-        "(a cluster on this machine); default BESTSCALE_DASK_SCHEDULER, else this machine's "
-        "process pool",
-    )
-    ap.add_argument(
-        "--local-workers",
-        type=int,
-        default=None,
-        help="worker processes of --cluster local (default: cores, at most 4)",
-    )
-    ap.add_argument(
-        "--resume",
-        action="store_true",
-        help="finish an interrupted --out DIR run: keep its finished segments, run the rest",
-    )
-    ap.add_argument(
-        "--progress-every",
-        type=int,
-        default=None,
-        help="when not on a terminal, a progress line every N segments (default: 5%% of them)",
-    )
+    ap = build_parser()
     args = ap.parse_args(argv)
     to_dir = _is_directory_out(args.out)
     if to_dir and not args.group_by:
@@ -126,20 +262,11 @@ def select_main(argv: list[str]) -> int:
     if cluster is not None and not args.group_by:
         ap.error("--cluster spreads the segments of --group-by; give --group-by")
 
-    body = json.loads(Path(args.options).read_text()) if args.options else {}
-    body.update(
-        data=read_data_file(args.data),
-        response=args.response,
-        predictors=[c for c in args.predictors.split(",") if c],
-    )
-    if args.categorical:
-        body["categorical"] = [c for c in args.categorical.split(",") if c]
-    if args.order:
-        body["order"] = args.order
-    if args.group_by:
-        body["group_by"] = args.group_by
-    if args.incumbent:
-        body["incumbent"] = json.loads(Path(args.incumbent).read_text())
+    try:
+        body = _request_body(args)
+    except CommandRefusal as exc:
+        sys.stderr.write(f"python -m service select: {exc}\n")
+        return 2
     session = None
     try:
         req = SelectionRequest.model_validate(body)
@@ -160,7 +287,14 @@ def select_main(argv: list[str]) -> int:
             progress = _Progress(0)
         result = run_selection_request(req, progress=progress, group_mapper=group_mapper)
     except ValidationError as exc:
-        sys.stderr.write(f"invalid request: {exc}\n")
+        from .api.errors import validation_items
+
+        items = validation_items(exc.errors(), body)
+        lines = [f"{i['pointer'] or '(the request)'}: {i['detail']}" for i in items]
+        sys.stderr.write(
+            f"python -m service select: the request cannot be used "
+            f"({count_of(len(lines), 'problem')}):\n  " + "\n  ".join(lines) + "\n"
+        )
         return 2
     except BestscaleError as exc:
         problems = "; ".join(f"{p.pointer}: {p.detail}" for p in exc.problems) or exc.detail

@@ -247,7 +247,91 @@ def test_cli_rejects_an_invalid_option_file(tmp_path, capsys):
         ]
     )
     assert code == 2
-    assert "invalid request" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "/validation/folds: must be at least 2, got 1" in err
+    assert "pydantic" not in err.lower() and "validation error" not in err.lower()
+
+
+def _select(tmp_path, *extra: str) -> int:
+    path = tmp_path / "repairs.csv"
+    if not path.exists():
+        path.write_text("repair_cost,pipe_length_m\n10,2\n12,3\n")
+    return select_main(
+        ["--data", str(path), "--response", "repair_cost", "--predictors", "pipe_length_m", *extra]
+    )
+
+
+def test_cli_invalid_input_prints_our_words_not_a_library_dump(tmp_path, capsys):
+    opts = tmp_path / "o.json"
+    opts.write_text(json.dumps({"top": "five", "validation": {"folds": 3, "seed": "x"}}))
+    assert _select(tmp_path, "--options", str(opts)) == 2
+    err = capsys.readouterr().err
+    assert '/top: expected a whole number such as 5, got "five"' in err
+    assert '/validation/seed: expected a whole number such as 5, got "x"' in err
+    assert "2 problems" in err
+    assert "pydantic" not in err.lower() and "Traceback" not in err
+
+    opts.write_text("{not json")
+    assert _select(tmp_path, "--options", str(opts)) == 2
+    err = capsys.readouterr().err
+    assert f"--options {opts}: is not JSON" in err and "line 1" in err
+
+    opts.write_text("[1, 2]")
+    assert _select(tmp_path, "--options", str(opts)) == 2
+    assert "needs a JSON object" in capsys.readouterr().err
+
+    opts.write_text(json.dumps({"response": "other"}))
+    assert _select(tmp_path, "--options", str(opts)) == 2
+    assert "sets response, which the flags set" in capsys.readouterr().err
+
+    assert _select(tmp_path, "--incumbent", str(tmp_path / "absent.json")) == 2
+    err = capsys.readouterr().err
+    assert f"--incumbent {tmp_path / 'absent.json'}: cannot be read" in err
+
+    code = select_main(
+        ["--data", str(tmp_path / "absent.csv"), "--response", "y", "--predictors", "x"]
+    )
+    assert code == 2
+    assert "--data" in capsys.readouterr().err
+
+    with pytest.raises(SystemExit) as stop:
+        _select(tmp_path, "--local-workers", "two")
+    assert stop.value.code == 2
+    assert "expected a whole number such as 5, got 'two'" in capsys.readouterr().err
+
+
+def _flag_actions(parser):
+    return [a for a in parser._actions if a.option_strings and a.dest != "help"]
+
+
+def test_every_flag_has_help_with_its_default():
+    from service.__main__ import serve_parser
+    from service.cli import build_parser
+
+    parsers = {"select": build_parser(), "serve": serve_parser("127.0.0.1", 8000, 1)}
+    for name, parser in parsers.items():
+        actions = _flag_actions(parser)
+        assert actions, name
+        for action in actions:
+            text = action.help or ""
+            flag = action.option_strings[0]
+            assert len(text) >= 20, (name, flag)  # says what it does
+            # the default (or that there is none) is stated
+            assert "default" in text or "required" in text, (name, flag, text)
+            assert action.required == ("required" in text), (name, flag)
+
+
+def test_select_help_runs_and_lists_every_flag():
+    from service.cli import build_parser
+
+    out = subprocess.run(
+        [sys.executable, "-m", "service", "select", "--help"],
+        capture_output=True,
+        text=True,
+        check=True,
+    ).stdout
+    for action in _flag_actions(build_parser()):
+        assert action.option_strings[0] in out
 
 
 def test_service_help_lists_the_select_command():

@@ -10,6 +10,9 @@ from __future__ import annotations
 
 import json
 import logging
+import re
+from collections.abc import Sequence
+from typing import Any
 
 import orjson
 from fastapi import FastAPI, Request
@@ -18,6 +21,7 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.responses import Response
 
 from ..core.errors import BestscaleError, BudgetError, InputError, ModelFailure
+from ..core.numbers import row_number
 from .metrics import REJECTED
 
 log = logging.getLogger("bestscale")
@@ -168,6 +172,17 @@ def _choices(expected: str) -> str:
     return expected.replace("'", '"')
 
 
+_DATA_ROW = re.compile(r"^/data/(?:records/(\d+)|columns/[^/]+/(\d+))(?:/|$)")
+
+
+def _row_note(ptr: str) -> str:
+    """`` (row 4, counting from 1)`` for a pointer into a data row, else ``""``."""
+    m = _DATA_ROW.match(ptr)
+    if m is None:
+        return ""
+    return f" (row {row_number(int(m.group(1) or m.group(2)))}, counting from 1)"
+
+
 def _message(err: dict) -> str:
     """One error of the request schema in our words: what was expected, what was sent, and
     (where it is not obvious) how to fix it."""
@@ -231,6 +246,21 @@ def _message(err: dict) -> str:
     return msg
 
 
+def validation_items(errs: Sequence[Any], body: object) -> list[dict]:
+    """The schema errors of one request as ``[{pointer, detail}]`` in our words, repeats
+    removed (shared by the HTTP handler and the command line)."""
+    items = []
+    seen = set()
+    for e in errs:
+        ptr = _pointer_from_loc(tuple(e.get("loc", ())), body)
+        text = _message(e) + _row_note(ptr)
+        if (ptr, text) in seen:
+            continue
+        seen.add((ptr, text))
+        items.append({"pointer": ptr, "detail": text})
+    return items
+
+
 def install(app: FastAPI) -> None:
     @app.exception_handler(RequestValidationError)
     async def _validation(request: Request, exc: RequestValidationError):
@@ -246,15 +276,7 @@ def install(app: FastAPI) -> None:
                 request=request,
             )
         body = exc.body if hasattr(exc, "body") else None
-        items = []
-        seen = set()
-        for e in errs:
-            ptr = _pointer_from_loc(tuple(e.get("loc", ())), body)
-            text = _message(e)
-            if (ptr, text) in seen:
-                continue
-            seen.add((ptr, text))
-            items.append({"pointer": ptr, "detail": text})
+        items = validation_items(errs, body)
         if body is None or not isinstance(body, dict):
             return problem(
                 400,

@@ -15,6 +15,7 @@ from typing import Any
 from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 
+from ..core.numbers import ROW_RULE
 from ..settings import Settings
 from . import responses as rs
 
@@ -35,6 +36,8 @@ DESCRIPTION = (
     "content type, 422 content that cannot be used, 503 busy (all compute slots in use) or "
     "search budget exhausted, both with `Retry-After`. Every response carries `X-Request-ID` "
     "(the caller's, when it sent a valid one).\n\n"
+    "Row numbers: wherever a response, a message, a figure or the report names a row, "
+    f"{ROW_RULE}.\n\n"
     "Examples use invented data: repair costs of a regional water utility's mains."
 )
 

@@ -12,7 +12,10 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from service.core.numbers import ROW_RULE
+
 Num = float | None  # a finite number, or null where it cannot be computed
+ROW = f"the row's number in the request's data; {ROW_RULE}"
 
 
 class _Open(BaseModel):
@@ -53,11 +56,18 @@ class SpecificationOut(_Open):
     intercept: bool
 
 
+class DroppedRowOut(_Open):
+    row: int = Field(..., ge=1, description=ROW)
+    reason: str = Field(..., description="the used columns with a missing value in that row")
+
+
 class DataSummary(_Open):
     rows_received: int = Field(..., ge=0)
     rows_used: int = Field(..., ge=0)
     rows_dropped: int = Field(..., ge=0)
-    dropped: list[dict[str, Any]] = Field(..., description="dropped rows and why (capped)")
+    dropped: list[DroppedRowOut] = Field(
+        ..., description=f"dropped rows and why (the first 100); {ROW_RULE}"
+    )
 
 
 class SearchSummary(_Open):
@@ -149,6 +159,9 @@ class InferenceOut(_Open):
         "equal variance fails, otherwise classical",
     )
     reason: str
+    source: str = Field(
+        ..., description="method: published reference, of the chosen standard errors"
+    )
     hac_lags: int | None = Field(
         None, description="Newey-West lags, floor(4 (n/100)^(2/9)); only with an order column"
     )
@@ -173,13 +186,29 @@ class ConditionOut(_Open):
     note: str
 
 
+class FlaggedRowOut(_Open):
+    row: int = Field(..., ge=1, description=ROW)
+    reasons: list[str] = Field(..., description="the screening cut-offs the row exceeds")
+    cooks_distance: Num
+    leverage: Num
+    dffits: Num
+    studentized_residual: Num = Field(..., description="externally studentised residual")
+
+
+class InfluenceOut(ConditionOut):
+    flagged_rows: list[FlaggedRowOut] = Field(
+        ..., description="flagged rows, largest Cook's distance first (at most 50)"
+    )
+    n_flagged: int = Field(..., ge=0)
+
+
 class ConditionsOut(_Open):
     linearity: ConditionOut
     normality: ConditionOut
     equal_variance: ConditionOut
     independence: ConditionOut
     multicollinearity: ConditionOut
-    influence: ConditionOut
+    influence: InfluenceOut
 
 
 class ScoreOut(_Open):
@@ -284,6 +313,7 @@ class PredictionsResponse(_Open):
         description="why, in one clause: asked for in the request, or the model's condition "
         "results (cv_plus when normality fails)",
     )
+    source: str = Field(..., description="method: published reference, of the intervals and means")
     warnings: list[str]
     cautions: list[str] = Field(
         ...,
@@ -293,6 +323,9 @@ class PredictionsResponse(_Open):
 
 
 class PlotsOut(_Open):
+    """Plot-ready series; every ``row`` in ``points`` and ``labels`` is a row number
+    (1 = the first data row of the request)."""
+
     residuals_fitted: dict[str, Any]
     normal_quantiles: dict[str, Any]
     spread_fitted: dict[str, Any]
@@ -306,10 +339,34 @@ class DiagnosticsResponse(EntryOut):
     plots: PlotsOut
 
 
+Omitted = Literal["required", "estimated", "default"]
+
+
+class TransformParameter(_Open):
+    """One parameter of a transform, as the request schema (TransformIn) accepts it."""
+
+    name: str = Field(..., description="the field of TransformIn")
+    type: str
+    minimum: float | None = Field(None, description="smallest accepted value (numbers)")
+    maximum: float | None = Field(None, description="largest accepted value (numbers)")
+    default: Any = Field(
+        ..., description="what is used when the field is omitted and not required or estimated"
+    )
+    when_omitted: dict[str, Omitted] = Field(
+        ...,
+        description="by place: response (specification.response, transforms.response), "
+        "predictor (a specification's predictor) and predictor_search "
+        "(transforms.predictors): required (a 422 without it), estimated (from the data) or "
+        "default; a place not listed does not take this transform",
+    )
+    meaning: str
+
+
 class TransformInfo(_Open):
     name: str
-    parameters: list[Any]
+    parameters: list[TransformParameter]
     domain: str
+    applies_to: list[Literal["response", "predictor"]]
     reading: str
 
 

@@ -93,7 +93,9 @@ class TransformIn(_Strict):
     name: TransformName = Field(
         ..., description="transform name (GET /v1/transforms lists them)", examples=["log"]
     )
-    shift: Annotated[float, Field(ge=-1e15, le=1e15)] | Literal["auto"] | None = Field(
+    shift: (
+        Annotated[float, Field(ge=-tr.SHIFT_BOUND, le=tr.SHIFT_BOUND)] | Literal["auto"] | None
+    ) = Field(
         None,
         description="log only: a constant added before the log (log(x + shift)), or "
         '"auto" to let the service choose one when the column has zeros (half the '
@@ -103,8 +105,8 @@ class TransformIn(_Strict):
     )
     exponent: float | None = Field(
         None,
-        ge=-10,
-        le=10,
+        ge=-tr.EXPONENT_BOUND,
+        le=tr.EXPONENT_BOUND,
         description="power only: the exponent, with 0.001 <= |exponent| <= 10 "
         "(use log for 0); required in a specification, "
         "omitted in transforms.predictors to estimate the power",
@@ -113,8 +115,8 @@ class TransformIn(_Strict):
     lambda_: float | None = Field(
         None,
         alias="lambda",
-        ge=-5,
-        le=5,
+        ge=-tr.LAMBDA_BOUND,
+        le=tr.LAMBDA_BOUND,
         description="box_cox / yeo_johnson: a fixed lambda in [-5, 5]; "
         "|lambda| < 0.001 is treated as 0 (the log), and for yeo_johnson |lambda - 2| < "
         "0.001 as 2, also for estimated lambdas; omit to estimate it from the data",
@@ -123,7 +125,7 @@ class TransformIn(_Strict):
     reference: str | None = Field(
         None,
         min_length=1,
-        max_length=256,
+        max_length=tr.REFERENCE_MAX_CHARS,
         description="categorical only: the baseline level",
         examples=["clay"],
     )
@@ -187,8 +189,17 @@ class ResponseSpecIn(_FixedPower):
     column: ColumnName = Field(..., description="the response column", examples=["repair_cost"])
     transform: TransformIn = Field(
         default_factory=lambda: TransformIn(name="identity"),
-        description="its transform; default identity",
+        description="its transform; default identity (categorical is for predictors only)",
     )
+
+    @model_validator(mode="after")
+    def _numeric(self):
+        if self.transform.name == "categorical":
+            raise ValueError(
+                "the response cannot be categorical: it is modelled as a number; give it a "
+                "numeric transform such as identity or log"
+            )
+        return self
 
 
 class PredictorSpecIn(_FixedPower):

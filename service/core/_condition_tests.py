@@ -40,6 +40,8 @@ from statsmodels.stats import diagnostic as smd
 from statsmodels.stats import stattools as smt
 from statsmodels.tsa.stattools import acf
 
+from . import sources as src
+
 #: residual norm below this fraction of the response's spread counts as an exact fit
 PERFECT_FIT_RTOL = 1e-8
 #: leverage this close to 1 means the fit passes through the row
@@ -352,7 +354,7 @@ def reset_test(fit: Fit) -> dict[str, Any]:
         compute,
         powers=[2, 3],
         form="F test of fitted^2 and fitted^3 (standardised fitted values)",
-        source="Ramsey (1969); statsmodels OLS.compare_f_test",
+        source=src.RESET,
     )
 
 
@@ -390,7 +392,7 @@ def rainbow_test(fit: Fit) -> dict[str, Any]:
         "Rainbow (Utts)",
         compute,
         frac=0.5,
-        source="Utts (1982); statsmodels.stats.diagnostic.linear_rainbow(use_distance=True)",
+        source=src.RAINBOW,
     )
 
 
@@ -474,7 +476,7 @@ def shapiro_test(fit: Fit) -> dict[str, Any]:
         out = stats.shapiro(fit.resid)
         return {"statistic": out.statistic, "p_value": out.pvalue}
 
-    return guarded("Shapiro-Wilk", compute, source="Shapiro & Wilk (1965); scipy.stats.shapiro")
+    return guarded("Shapiro-Wilk", compute, source=src.SHAPIRO_WILK)
 
 
 def jarque_bera_test(fit: Fit) -> dict[str, Any]:
@@ -488,7 +490,7 @@ def jarque_bera_test(fit: Fit) -> dict[str, Any]:
     return guarded(
         "Jarque-Bera",
         compute,
-        source="Jarque & Bera (1980); statsmodels.stats.stattools.jarque_bera",
+        source=src.JARQUE_BERA,
     )
 
 
@@ -507,7 +509,7 @@ def anderson_darling_test(fit: Fit) -> dict[str, Any]:
     return guarded(
         "Anderson-Darling",
         compute,
-        source="Anderson & Darling (1952); statsmodels.stats.diagnostic.normal_ad",
+        source=src.ANDERSON_DARLING,
     )
 
 
@@ -538,8 +540,7 @@ def breusch_pagan_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
         compute,
         robust=True,
         form="Koenker (1981) studentised LM = n R^2 of e^2 on the model's regressors",
-        source="Breusch & Pagan (1979); Koenker (1981); "
-        "statsmodels.stats.diagnostic.het_breuschpagan(robust=True)",
+        source=src.BREUSCH_PAGAN,
     )
 
 
@@ -574,7 +575,7 @@ def white_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
             "f_p_value": aux["F_p"],
         }
 
-    return guarded("White", compute, source="White (1980); statsmodels.stats.diagnostic.het_white")
+    return guarded("White", compute, source=src.WHITE)
 
 
 # -------------------------------------------------------------------------- independence
@@ -590,7 +591,7 @@ def durbin_watson_test(resid_ordered: np.ndarray) -> dict[str, Any]:
         compute,
         common_practice_range=[1.5, 2.5],
         rule="common practice: 1.5 <= d <= 2.5 is unremarkable; no p-value is computed",
-        source="Durbin & Watson (1950, 1951); statsmodels.stats.stattools.durbin_watson",
+        source=src.DURBIN_WATSON,
     )
 
 
@@ -638,7 +639,7 @@ def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict[str, Any]:
         "Breusch-Godfrey",
         compute,
         lags=nlags,
-        source="Breusch (1978); Godfrey (1978); statsmodels.stats.diagnostic.acorr_breusch_godfrey",
+        source=src.BREUSCH_GODFREY,
     )
 
 
@@ -661,7 +662,7 @@ def ljung_box_test(resid_ordered: np.ndarray) -> dict[str, Any]:
         compute,
         lags=lags,
         df=float(max(lags, 0)),
-        source="Ljung & Box (1978); statsmodels.stats.diagnostic.acorr_ljungbox",
+        source=src.LJUNG_BOX,
     )
 
 

@@ -41,6 +41,7 @@ from typing import Any
 import numpy as np
 from scipy import optimize, stats
 
+from . import sources as src
 from . import transforms as tr
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
@@ -89,6 +90,7 @@ class PowerFit:
             "converged": self.converged,
             "iterations": self.iterations,
             "method": self.method,
+            "source": src.POWER[self.method],
             "at_search_bound": at_bound,
         }
 

@@ -35,7 +35,7 @@ def condition_inputs(
         X=design.X,
         has_intercept=fit.has_intercept,
         terms=terms,
-        row_ids=prep.row_ids,
+        row_numbers=prep.row_numbers,
         order=prep.order,
         alpha=alpha,
     )

@@ -29,6 +29,7 @@ import numpy as np
 from scipy import stats
 
 from service.core import _condition_tests as ct
+from service.core import sources as src
 from service.core.numbers import count_of, fmt, p_is
 
 #: common-practice VIF cut-offs (warn, fail)
@@ -71,7 +72,7 @@ class ConditionInputs:
     X: np.ndarray  # (n, p) design as fitted, with the intercept column if has_intercept
     has_intercept: bool
     terms: tuple[TermInfo, ...]
-    row_ids: np.ndarray  # (n,) caller's input row number of each used row
+    row_numbers: np.ndarray  # (n,) each used row's number in the request (1 = first data row)
     order: np.ndarray | None  # (n,) rows sorted by the caller's order column, or None
     alpha: float = DEFAULT_ALPHA
 
@@ -98,8 +99,8 @@ def validate(inp: ConditionInputs) -> tuple[np.ndarray, np.ndarray]:
         raise ValueError("z and X must be finite; drop or impute missing values first")
     if not 0 < inp.alpha < 1:
         raise ValueError(f"alpha must lie strictly between 0 and 1; got {inp.alpha}")
-    if np.shape(inp.row_ids) != z.shape:
-        raise ValueError(f"row_ids must have shape {z.shape}; got {np.shape(inp.row_ids)}")
+    if np.shape(inp.row_numbers) != z.shape:
+        raise ValueError(f"row_numbers must have shape {z.shape}; got {np.shape(inp.row_numbers)}")
     if inp.order is not None:
         order = np.asarray(inp.order)
         if order.shape != z.shape or not np.array_equal(np.sort(order), np.arange(z.size)):
@@ -164,7 +165,7 @@ def _curvature_entries(
                 column=term.column,
                 label=term.label,
                 form="t-test of the squared (centred) predictor added to the model",
-                source="component-plus-residual curvature (Mallows 1986); Frisch-Waugh-Lovell t-test",
+                source=src.CURVATURE,
             )
         )
     return out
@@ -373,8 +374,7 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
             "term": None if worst is None else worst["term"],
             "threshold": {"warn": VIF_WARN, "fail": VIF_FAIL},
             "rule": "common practice",
-            "source": "Fox & Monette (1992) generalised VIF; equals "
-            "statsmodels variance_inflation_factor for one column",
+            "source": src.GVIF,
         },
         {
             "name": "Condition number (unit-length columns, BKW)",
@@ -383,7 +383,7 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
             "threshold": CONDITION_WARN,
             "rule": "common practice",
             "condition_indices": indices,
-            "source": "Belsley, Kuh & Welsch (1980); numpy SVD",
+            "source": src.CONDITION_NUMBER,
         },
     ]
     levels = {r["level"] for r in vif_rows}
@@ -472,7 +472,7 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
             fit.residual_reason or "influence undefined", rule, flagged_rows=[], n_flagged=0
         )
     inf, n = fit.influence, fit.n
-    ids = np.asarray(inp.row_ids)
+    ids = np.asarray(inp.row_numbers)
     order, masks, cut = flag_rows(fit)
     listed = []
     for i in order[:MAX_FLAGGED_ROWS]:
@@ -506,25 +506,25 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
         "Cook's distance (largest)",
         inf.cooks,
         {"flag": cut["cooks_flag"], "fail": cut["cooks_fail"]},
-        "Cook (1977); statsmodels OLSInfluence.cooks_distance",
+        src.COOKS_DISTANCE,
     )
     lev, _ = largest(
         "Leverage (largest hat value)",
         inf.leverage,
         cut["leverage"],
-        "Hoaglin & Welsch (1978); statsmodels OLSInfluence.hat_matrix_diag",
+        src.LEVERAGE,
     )
     dff, _ = largest(
         "DFFITS (largest absolute value)",
         np.abs(inf.dffits),
         cut["dffits"],
-        "Belsley, Kuh & Welsch (1980)",
+        src.DFFITS,
     )
     out, i_t = largest(
         "Outlier test (largest |externally studentised residual|, Bonferroni)",
         np.abs(inf.studentized),
         cut["studentized"],
-        "Cook & Weisberg (1982) Bonferroni outlier test; scipy.stats.t",
+        src.OUTLIER_TEST,
     )
     if i_t is not None and fit.df_resid >= 2:
         # Bonferroni: n times the two-sided t_{n-p-1} tail probability of the largest |t_i|

@@ -20,6 +20,7 @@ from typing import Any, cast
 import numpy as np
 
 from .errors import FieldProblem, InputError, pointer
+from .numbers import row_number, rows_named
 
 DROPPED_LIST_CAP = 100
 PROBLEMS_LISTED = 20  # field problems listed in one error
@@ -121,7 +122,8 @@ def _from_records(recs: list[Any]) -> RawTable:
     for i, r in enumerate(recs):
         if not isinstance(r, dict):
             raise InputError.at(
-                pointer("data", "records", i), f"record {i} is not an object of column: value pairs"
+                pointer("data", "records", i),
+                f"{rows_named([i])} is not an object of column: value pairs",
             )
         for k in r:
             if k not in seen:
@@ -134,7 +136,7 @@ def _from_records(recs: list[Any]) -> RawTable:
             if v is _MISSING_KEY:
                 raise InputError.at(
                     pointer("data", "records", i),
-                    f"record {i} has no field '{name}'; send null for a missing value",
+                    f"{rows_named([i])} has no field '{name}'; send null for a missing value",
                 )
         return RawColumn(name, vals, lambda i: pointer("data", "records", i, name))
 
@@ -167,7 +169,7 @@ def _from_csv(text: str) -> RawTable:
         if len(r) != len(header):
             raise InputError.at(
                 "/data/csv",
-                f"data.csv data row {i} (line {i + 2}) has {len(r)} "
+                f"data.csv data row {row_number(i)} (line {i + 2}) has {len(r)} "
                 f"fields but the header has {len(header)}",
             )
     idx = {h: j for j, h in enumerate(header)}
@@ -190,11 +192,11 @@ class TypedColumn:
 
 
 def _csv_where(col: RawColumn, i: int) -> str:
-    return f"data row {i} (line {i + 2}), column '{col.name}'"
+    return f"data row {row_number(i)} (line {i + 2}), column '{col.name}'"
 
 
 def _bad_numeric(col: RawColumn, i: int, v: object, role: str) -> InputError:
-    where = _csv_where(col, i) if col.from_csv else f"row {i}"
+    where = _csv_where(col, i) if col.from_csv else rows_named([i])
     hint = "send null (or an empty CSV cell) for a missing value"
     if role == "predictor":
         hint += f", or list '{col.name}' in 'categorical' if it is a grouping"
@@ -282,13 +284,13 @@ def as_categorical(col: RawColumn) -> TypedColumn:
         elif isinstance(v, (dict, list)):
             raise InputError.at(
                 col.cell_pointer(i),
-                f"column '{col.name}' row {i} holds a "
+                f"column '{col.name}' {rows_named([i])} holds a "
                 "nested object; cells must be numbers, strings, booleans or null",
             )
         else:
             text = _level_text(v)
             if len(text) > MAX_LEVEL_CHARS:
-                where = _csv_where(col, i) if col.from_csv else f"row {i}"
+                where = _csv_where(col, i) if col.from_csv else rows_named([i])
                 raise InputError.at(
                     col.cell_pointer(i),
                     f"column '{col.name}' {where} holds a level of {len(text)} characters; "
@@ -317,7 +319,7 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
                 first_string = i
     if strings and numbers:
         i = cast(int, first_string if strings <= numbers else first_number)  # both were seen
-        where = _csv_where(col, i) if col.from_csv else f"row {i}"
+        where = _csv_where(col, i) if col.from_csv else rows_named([i])
         raise InputError.at(
             col.cell_pointer(i),
             (
@@ -341,7 +343,7 @@ class Prepared:
     predictors: list[str]
     numeric: dict[str, np.ndarray]
     categorical: dict[str, np.ndarray]  # object arrays of level strings
-    row_ids: np.ndarray  # caller's input row numbers of the used rows
+    row_ids: np.ndarray  # 0-based positions of the used rows in the request's data
     order: np.ndarray | None  # permutation putting used rows in the order column's order
     rows_received: int
     dropped: list[dict[str, Any]] = field(default_factory=list)
@@ -350,6 +352,11 @@ class Prepared:
     order_values: np.ndarray | None = None  # the order column on the used rows
     groups: np.ndarray | None = None  # group_by labels on the used rows
     source: str = ""  # layout of the request's table: columns | records | csv
+
+    @property
+    def row_numbers(self) -> np.ndarray:
+        """The used rows' numbers as people see them (1 = first data row, ``ROW_RULE``)."""
+        return np.asarray(self.row_ids, dtype=np.int64) + 1
 
     def cell_pointer(self, column: str, i: int) -> str:
         """JSON Pointer to used row ``i`` of ``column`` in the request's data."""
@@ -499,7 +506,10 @@ def prepare(
         for i in np.flatnonzero(missing)[:DROPPED_LIST_CAP]:
             which = [c.name for c in cols if c.missing[i]]
             dropped.append(
-                {"row": int(i), "reason": "missing value in " + ", ".join(f"'{w}'" for w in which)}
+                {
+                    "row": row_number(i),
+                    "reason": "missing value in " + ", ".join(f"'{w}'" for w in which),
+                }
             )
     keep = ~missing
     row_ids = np.flatnonzero(keep)

@@ -26,6 +26,7 @@ from typing import Any
 import numpy as np
 from scipy import optimize, special
 
+from . import sources as src
 from . import transforms as tr
 
 LAMBDA_BOUNDS = (-3.0, 3.0)
@@ -55,6 +56,7 @@ class LambdaEstimate:
             "lr_p_value_identity": self.lr_p_identity,
             "lr_p_value_log": self.lr_p_log,
             "at_search_bound": self.at_bound,
+            "source": src.LAMBDA.get(self.family, self.family),
         }
 
 

@@ -8,7 +8,9 @@ One rule everywhere (JSON keeps full numbers):
   ``-1.593e+04``); outside that range ``1.593e-05`` is written ``1.593e-5`` (``1e-12``, not ``1.000e-12``);
 * a whole number is written whole (``300``, not ``300.0``);
 * a value that rounds to zero at that precision, and an exact zero, is ``0``;
-* p-values below 1e-4 read ``< 0.0001``.
+* p-values below 1e-4 read ``< 0.0001``;
+* rows are numbered from 1 (:data:`ROW_RULE`): row 1 is the first data row of the request,
+  in every JSON field, message, figure and report that names a row (:func:`row_number`).
 
 Parameters of a transform (a lambda, an exponent, a shift) are written with the same digits
 but without trailing zeros (``exponent=0.5``): they are exact values, not estimates of a
@@ -18,9 +20,15 @@ table's precision.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from typing import Any
 
 P_FLOOR = 1e-4
+#: how rows are counted, stated once wherever rows are named
+ROW_RULE = (
+    "rows are numbered from 1: row 1 is the first data row of the request (a CSV header line "
+    "is not a row; JSON Pointers keep their 0-based array positions)"
+)
 _PLAIN_LOW = 1e-4
 _PLAIN_HIGH = 1e15
 
@@ -78,6 +86,24 @@ def p_is(p: float) -> str:
 def count_of(n: int, noun: str, plural: str | None = None) -> str:
     """``1 candidate`` / ``3 candidates``: a count with its noun in the right number."""
     return f"{n} {noun if n == 1 else (plural or noun + 's')}"
+
+
+def row_number(index: int) -> int:
+    """The number people see for the row at 0-based position ``index`` of the request's data."""
+    return int(index) + 1
+
+
+def rows_named(indexes: Iterable[int], listed: int | None = None) -> str:
+    """``row 4`` / ``rows 1, 4 and 9`` (numbered from 1) for 0-based positions, counting from 1
+    stated once; at most ``listed`` are named, the rest counted."""
+    numbers = [row_number(i) for i in indexes]
+    shown = numbers if listed is None else numbers[:listed]
+    text = ", ".join(str(n) for n in shown)
+    if len(numbers) > len(shown):
+        text += f" and {len(numbers) - len(shown)} more"
+    elif len(shown) > 1:
+        text = ", ".join(str(n) for n in shown[:-1]) + f" and {shown[-1]}"
+    return f"{'row' if len(numbers) == 1 else 'rows'} {text} (counting from 1)"
 
 
 def failure_text(group: dict[str, Any]) -> str:

@@ -14,7 +14,7 @@ numbers) for the questions a reader asks of a fitted scale:
 - ``partial_residuals`` -- is each predictor's scale right?  One partial-residual series per
   numeric predictor (Ezekiel 1924; Larsen & McCleary 1972).
 
-Row numbers are the caller's: 0 is the first data row of the request.  Large data sets are
+Row numbers are the request's, counted from 1 (``numbers.ROW_RULE``: 1 = first data row).  Large data sets are
 thinned for drawing only: a seeded random subset of the rows, always including the flagged
 rows that are labelled.  The statistics behind every series use all rows; the LOWESS curves
 use all rows up to :data:`SMOOTHER_MAX_ROWS` and a seeded sample beyond that.
@@ -31,6 +31,7 @@ from scipy import stats
 from statsmodels.nonparametric.smoothers_lowess import lowess
 
 from service.core import _condition_tests as ct
+from service.core import sources as src
 from service.core.conditions import MAX_FLAGGED_ROWS, ConditionInputs, flag_rows, validate
 
 #: LOWESS is fitted to at most this many rows (a seeded sample beyond it)
@@ -82,7 +83,8 @@ def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict[st
     return {
         "x": _floats(curve[:, 0]),
         "y": _floats(curve[:, 1]),
-        "method": "LOWESS (Cleveland 1979), frac = 2/3, 3 robustness iterations",
+        "method": "LOWESS, frac = 2/3, 3 robustness iterations",
+        "source": src.LOWESS,
     }
 
 
@@ -154,7 +156,8 @@ def _envelope(fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator) 
         s2 = np.sum(E**2, axis=0) / fit.df_resid
         R = np.sort(E[ok] / np.sqrt(np.outer(1 - h[ok], s2)), axis=0)
         lower, upper = np.percentile(R[ranks], [2.5, 97.5], axis=1)
-        method = f"simulation ({ENVELOPE_SIMULATIONS} samples, seeded; Atkinson 1981)"
+        method = f"simulation ({ENVELOPE_SIMULATIONS} samples, seeded)"
+        source = src.ENVELOPE_SIMULATED
         sims = ENVELOPE_SIMULATIONS
     else:
         # The k-th of m ordered uniforms is Beta(k, m + 1 - k): exact quantiles of normal
@@ -163,8 +166,9 @@ def _envelope(fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator) 
         lower = stats.norm.ppf(stats.beta.ppf(0.025, k, m + 1 - k))
         upper = stats.norm.ppf(stats.beta.ppf(0.975, k, m + 1 - k))
         method = "exact normal order-statistic quantiles (large n)"
+        source = src.ENVELOPE_EXACT
         sims = None
-    return {"lower": lower, "upper": upper, "method": method, "simulations": sims}
+    return {"lower": lower, "upper": upper, "method": method, "source": source, "simulations": sims}
 
 
 def _normal_quantiles(
@@ -234,6 +238,7 @@ def _normal_quantiles(
             "slope": float(slope),
             "intercept": float(intercept),
             "method": "line through the quartiles",
+            "source": src.QUARTILE_LINE,
         },
         envelope={
             "x": _floats(theo),
@@ -241,6 +246,7 @@ def _normal_quantiles(
             "upper": _floats(env["upper"]),
             "level": 0.95,
             "method": env["method"],
+            "source": env["source"],
             "simulations": env["simulations"],
             "share_inside": inside,
         },
@@ -319,7 +325,7 @@ def _influence_panel(
             "Cook's distance of each row; rows above the flag line move the fit noticeably, "
             "above the fail line they dominate it"
         ),
-        "x_label": "Row (0 = first data row)",
+        "x_label": "Row (1 = first data row)",
         "y_label": "Cook's distance",
         "n_total": fit.n,
     }
@@ -411,7 +417,7 @@ def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0
         raise ValueError(f"max_points must be at least 10; got {max_points}")
     z, X = validate(inp)
     fit = ct.fit_model(z, X, inp.has_intercept)
-    ids = np.asarray(inp.row_ids)
+    ids = np.asarray(inp.row_numbers)
     flagged = (
         flag_rows(fit)[0][:MAX_FLAGGED_ROWS]
         if fit.influence is not None

@@ -32,6 +32,7 @@ import numpy as np
 from scipy import stats
 
 from . import cvplus, retransform
+from . import sources as src
 from . import transforms as tr
 from ._types import FloatArray
 from .conditions import CONDITION_NAMES
@@ -44,6 +45,7 @@ from .model import (
     checksum,
     signature_value,
 )
+from .numbers import fmt, rows_named
 from .spec import PredictorSpec, Specification, term_label
 
 KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
@@ -777,15 +779,15 @@ def new_design(
                 n_bad += 1
                 add(
                     raw.cell_pointer(int(i)),
-                    f"predictor '{p.column}' is missing (null) in row "
-                    f"{int(i)}; a prediction needs every predictor value",
+                    f"predictor '{p.column}' is missing (null) in {rows_named([int(i)])}; "
+                    "a prediction needs every predictor value",
                 )
             for row, v in enumerate(typed.values):
                 if v is not None and v not in allowed:
                     n_bad += 1
                     add(
                         raw.cell_pointer(row),
-                        f"level '{v}' of '{p.column}' in row {row} did not "
+                        f"level '{v}' of '{p.column}' in {rows_named([row])} did not "
                         f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
                         "the model cannot predict for it",
                     )
@@ -806,8 +808,8 @@ def new_design(
             n_bad += 1
             add(
                 raw.cell_pointer(int(i)),
-                f"predictor '{p.column}' is missing (null) in row "
-                f"{int(i)}; a prediction needs every predictor value",
+                f"predictor '{p.column}' is missing (null) in {rows_named([int(i)])}; "
+                "a prediction needs every predictor value",
             )
         t = p.transform
         ok = ~typed.missing
@@ -819,7 +821,7 @@ def new_design(
             n_bad += 1
             add(
                 raw.cell_pointer(int(i)),
-                f"predictor '{p.column}' is {x[i]:.6g} in row {int(i)}, "
+                f"predictor '{p.column}' is {x[i]:.6g} in {rows_named([int(i)])}, "
                 f"where {label} (the model's scale for '{p.column}') is not defined; it needs "
                 f"{_domain_text(t)}",
             )
@@ -859,13 +861,11 @@ def model_scale_interval(
 
 
 def _rows_text(idx: np.ndarray) -> str:
-    shown = ", ".join(str(int(i)) for i in idx[:ROWS_LISTED])
-    more = f" and {idx.size - ROWS_LISTED} more" if idx.size > ROWS_LISTED else ""
-    return ("row " if idx.size == 1 else "rows ") + shown + more
+    return rows_named(idx.tolist(), ROWS_LISTED)
 
 
 def _num(v: float) -> str:
-    return f"{v:.4g}"
+    return fmt(v)
 
 
 def _finite_list(a: np.ndarray) -> list[Any]:
@@ -987,11 +987,16 @@ def predict(
     extrap = np.zeros(m, dtype=bool)
     extrap[list(reasons)] = True
     if np.any(extrap):
+        k = int(extrap.sum())
         warnings.append(
-            f"{int(extrap.sum())} of {m} rows are extrapolations ("
-            f"{_rows_text(np.flatnonzero(extrap))}): outside the training range of a "
+            f"{k} of {m} rows {'is an extrapolation' if k == 1 else 'are extrapolations'}: "
+            f"{_rows_text(np.flatnonzero(extrap))}, outside the training range of a "
             "predictor or beyond the largest training leverage; the fit does not "
-            "support them and back-transforms magnify their error."
+            + (
+                "support it and back-transforms magnify its error."
+                if k == 1
+                else "support them and back-transforms magnify their error."
+            )
         )
 
     def report(mask: np.ndarray, text: str) -> None:
@@ -1046,5 +1051,6 @@ def predict(
         "interval": float(interval),
         "interval_method": used,
         "interval_method_reason": why,
+        "source": src.PREDICTION_INTERVAL[used],
         "warnings": warnings,
     }

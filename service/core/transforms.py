@@ -530,6 +530,68 @@ def ladder_transform(power: float) -> Transform:
     return Transform("power", exponent=float(power))
 
 
+#: bounds of the parameters a request may send (the request schema uses the same numbers)
+SHIFT_BOUND = 1e15
+EXPONENT_BOUND = 10.0
+LAMBDA_BOUND = 5.0
+REFERENCE_MAX_CHARS = 256
+
+# What happens when a parameter is left out, by where the transform is named: "response"
+# (specification.response, transforms.response, an incumbent's response), "predictor" (a
+# predictor of a specification or an incumbent) and "predictor_search"
+# (transforms.predictors).  "required": a 422; "estimated": from the data; "default": the
+# parameter's default.
+_SHIFT = {
+    "name": "shift",
+    "type": 'number or "auto"',
+    "minimum": -SHIFT_BOUND,
+    "maximum": SHIFT_BOUND,
+    "default": None,
+    "when_omitted": {"response": "default", "predictor": "default", "predictor_search": "default"},
+    "example": 1.0,
+    "meaning": 'a constant added before the log (log(x + shift)), or "auto" to let the '
+    "service choose half the smallest positive value when the column has zeros; without a "
+    "shift (the default) a requested log is used as sent and needs values > 0; the default "
+    "search adds a chosen shift on its own and labels it",
+}
+_EXPONENT = {
+    "name": "exponent",
+    "type": "number",
+    "minimum": -EXPONENT_BOUND,
+    "maximum": EXPONENT_BOUND,
+    "default": None,
+    "when_omitted": {
+        "response": "required",
+        "predictor": "required",
+        "predictor_search": "estimated",
+    },
+    "example": 0.25,
+    "meaning": f"the exponent q in x^q, {PARAM_FLOOR:g} <= |q| <= {EXPONENT_BOUND:g} (use log for "
+    "0); in transforms.predictors omit it (or send estimated: true) to estimate the "
+    "predictor's power from the data (Box & Tidwell 1962)",
+}
+
+
+def _lam(family: str) -> dict[str, object]:
+    return {
+        "name": "lambda",
+        "type": "number",
+        "minimum": -LAMBDA_BOUND,
+        "maximum": LAMBDA_BOUND,
+        "default": None,
+        "when_omitted": {
+            "response": "estimated",
+            "predictor": "required",
+            "predictor_search": "required",
+        },
+        "example": 0.5,
+        "meaning": f"the {family} lambda; |lambda| < {PARAM_FLOOR:g} is read as 0 (the log)"
+        + (f" and |lambda - 2| < {PARAM_FLOOR:g} as 2" if family == "Yeo-Johnson" else "")
+        + "; omit it on the response to estimate it by the profile likelihood of the whole "
+        "model; a predictor needs a fixed lambda (for an estimated predictor power use power)",
+    }
+
+
 CATALOGUE = [
     {
         "name": "identity",
@@ -540,16 +602,7 @@ CATALOGUE = [
     },
     {
         "name": "log",
-        "parameters": [
-            {
-                "name": "shift",
-                "required": False,
-                "meaning": 'a number added before the log, or "auto" to let the service '
-                "choose half the smallest positive value when the column has zeros; a log "
-                "asked for without a shift is used as sent (values must be > 0); the default "
-                "search adds a chosen shift on its own and labels it",
-            }
-        ],
+        "parameters": [_SHIFT],
         "domain": 'x + shift > 0 (without a shift: x > 0; "auto": x >= 0)',
         "applies_to": ["response", "predictor"],
         "reading": "log response: one unit of x multiplies the median response by exp(b), i.e. "
@@ -580,34 +633,23 @@ CATALOGUE = [
     },
     {
         "name": "power",
-        "parameters": [
-            {"name": "exponent", "required": True, "meaning": "non-zero exponent q in x^q"}
-        ],
+        "parameters": [_EXPONENT],
         "domain": "x >= 0 for q > 0, x > 0 for q < 0",
         "applies_to": ["response", "predictor"],
         "reading": "no constant-rate reading; q < 0 reverses order",
     },
     {
         "name": "box_cox",
-        "parameters": [
-            {
-                "name": "lambda",
-                "required": False,
-                "meaning": "omit on the response to estimate it by the "
-                "profile likelihood of the whole model",
-            }
-        ],
+        "parameters": [_lam("Box-Cox")],
         "domain": "x > 0",
-        "applies_to": ["response", "predictor (with a fixed lambda)"],
+        "applies_to": ["response", "predictor"],
         "reading": "(x^λ - 1)/λ, log at λ = 0; no constant-rate reading",
     },
     {
         "name": "yeo_johnson",
-        "parameters": [
-            {"name": "lambda", "required": False, "meaning": "omit on the response to estimate it"}
-        ],
+        "parameters": [_lam("Yeo-Johnson")],
         "domain": "any real value (not scale invariant)",
-        "applies_to": ["response", "predictor (with a fixed lambda)"],
+        "applies_to": ["response", "predictor"],
         "reading": "Box-Cox-like power of x + 1 (and of 1 - x for negatives); no constant-rate reading",
     },
     {
@@ -615,8 +657,13 @@ CATALOGUE = [
         "parameters": [
             {
                 "name": "reference",
-                "required": False,
-                "meaning": "baseline level (default: first in sorted order)",
+                "type": "string",
+                "min_length": 1,
+                "max_length": REFERENCE_MAX_CHARS,
+                "default": "the first level in sorted order",
+                "when_omitted": {"predictor": "default", "predictor_search": "default"},
+                "example": None,
+                "meaning": "the baseline level the other levels are compared with",
             }
         ],
         "domain": "any values, read as levels",

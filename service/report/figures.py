@@ -74,8 +74,8 @@ LABEL_PT = 8
 def _rows_note(panel: dict, shown: int) -> str:
     total = panel.get("n_total") or shown
     if shown >= total:
-        return f"all {total:,} rows"
-    return f"showing {shown:,} of {total:,} rows (seeded sample; flagged rows always shown)"
+        return f"all {total} rows"
+    return f"showing {shown} of {total} rows (seeded sample; flagged rows always shown)"
 
 
 def _head(ax, panel: dict, width_in: float) -> None:
@@ -372,7 +372,7 @@ def _draw_predictor(ax, panel: dict) -> str:
 
 def _footer(plots: dict) -> str:
     rule = (plots.get("influence") or {}).get("flag_rule")
-    text = "Row numbers count the request's data rows from 0. Circled points are flagged rows"
+    text = "Rows are numbered from 1 (1 = first data row). Circled points are flagged rows"
     return text + (f"; {rule}." if rule else ".")
 
 

@@ -201,7 +201,7 @@ def _figure(plots, entry: dict, prefix: str) -> str:
         )
     caption += (
         ". Curves are LOWESS smoothers; circled points are flagged rows, labelled with "
-        "their row number in the request (0 = first data row)."
+        "their row number in the request (rows are numbered from 1: 1 = first data row)."
     )
     return (
         f'<figure class="panels" id="{prefix}">{inline_svg(svg, prefix, label)}'
@@ -342,8 +342,8 @@ def _summary(body: dict, context: dict) -> str:
         out.append(
             f"<h3>Dropped rows</h3><p>{count_of(int(data.get('rows_dropped') or 0), 'row')} "
             "were left "
-            f"out; the first {len(shown)} listed (row numbers count from 0 in the "
-            "request).</p>"
+            f"out; the first {len(shown)} listed (rows are numbered from 1: 1 = first data "
+            "row).</p>"
         )
         out.append(
             '<table class="compact"><thead><tr><th class="n">Row</th><th>Reason</th>'
@@ -638,7 +638,10 @@ def _detail(entry: dict, plots, anchor: str, heading: str, level: int = 2) -> st
         out.append(f"<h{sub}>What the coefficients say</h{sub}>" + _list(entry["interpretation"]))
     out.append(_conditions(entry))
     if entry.get("warnings"):
-        out.append(f"<h{sub}>Warnings</h{sub}>" + _list(entry["warnings"], "plain warn"))
+        out.append(
+            f'<h{sub} class="entry-notes">Points to check in this specification</h{sub}>'
+            + _list(entry["warnings"], "plain warn")
+        )
     out.append("</section>")
     return "".join(out)
 
@@ -697,7 +700,11 @@ def _groups(body: dict, plots: dict) -> str:
         out.append(_incumbent(gbody.get("incumbent"), f"{gid}incumbent", level=3))
         out.append(_selection(gbody, plots, name, gid, level=3))
         if gbody.get("warnings"):
-            out.append("<h3>Warnings for this group</h3>" + _list(gbody["warnings"], "plain warn"))
+            out.append(
+                f'<section class="search-notes" id="{gid}search-notes"><h3>About this group\'s '
+                "search as a whole</h3><p>These notes concern the search in this group, not "
+                "one specification.</p>" + _list(gbody["warnings"], "plain warn") + "</section>"
+            )
         out.append("</section>")
     return "".join(out)
 
@@ -739,6 +746,8 @@ def _scalar(value) -> str:
 
 def _contents(body: dict, plots: dict) -> str:
     links = [("summary", "Job summary")]
+    if body.get("warnings"):
+        links.append(("warnings", "About the search as a whole"))
     if body.get("incumbent"):
         links.append(("incumbent", "Incumbent specification"))
     if body.get("groups"):
@@ -753,8 +762,6 @@ def _contents(body: dict, plots: dict) -> str:
         ]
     if body.get("trust"):
         links.append(("trust", "How far to trust the choice"))
-    if body.get("warnings"):
-        links.append(("warnings", "Warnings"))
     links.append(("cautions", "Cautions"))
     return (
         '<nav aria-label="Contents"><ol>'
@@ -892,19 +899,22 @@ def render_report(body: dict, plots: dict | None = None, context: dict | None = 
         "</header>",
         _recommendation(body),
         _summary(body, context),
-        _incumbent(body.get("incumbent")),
     ]
+    if body.get("warnings"):
+        # before the ranking, so these notes on the whole search never read as the last
+        # specification's own
+        parts.append(
+            '<section class="search-notes" id="warnings"><h2>About the search as a whole</h2>'
+            "<p>These notes concern the whole search (its candidates, data and options), not "
+            "one specification; each specification's own points to check are listed with it."
+            "</p>" + _list(body["warnings"], "plain warn") + "</section>"
+        )
+    parts.append(_incumbent(body.get("incumbent")))
     if body.get("groups"):
         parts.append(_groups(body, plots))
     else:
         parts.append(_selection(body, plots, None, ""))
     parts.append(_trust(body.get("trust")))
-    if body.get("warnings"):
-        parts.append(
-            '<section id="warnings"><h2>Warnings</h2>'
-            + _list(body["warnings"], "plain warn")
-            + "</section>"
-        )
     parts.append(
         '<section id="cautions"><h2>Cautions</h2>'
         "<p>Read these before acting on the ranking; it supports your own review of "

@@ -32,6 +32,7 @@ from ..core.bank import ColumnBank, FoldIndex
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, FieldProblem, InputError, pointer
 from ..core.likelihood import fit_transform
+from ..core.numbers import count_of, rows_named
 from ..core.spec import PredictorSpec, Specification, categorical_levels, term_label
 
 DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
@@ -92,10 +93,9 @@ def check_explicit(
     )
     if t.name == "log" and t.shift is not None:
         need = f"values above {-t.shift:.6g}"
-    rows = "row" if bad.size == 1 else "rows"
     detail = (
-        f"{role} '{column}' is {float(x[i]):.6g} in row {int(prep.row_ids[i])} of the data "
-        f"({bad.size} {rows} in all) and the requested {lab} needs {need}; a requested "
+        f"{role} '{column}' is {float(x[i]):.6g} in {rows_named([int(prep.row_ids[i])])} of "
+        f"the data ({count_of(int(bad.size), 'row')} in all) and the requested {lab} needs {need}; a requested "
         f"transform is used as sent, so {tr.domain_fixes(t)}"
     )
     raise InputError(

@@ -8,6 +8,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ..core import retransform
+from ..core import sources as src
 from ..core import transforms as tr
 from ..core.condition_rules import conditions_for, failed
 from ..core.crossval import CVResult
@@ -162,7 +163,11 @@ def choose_inference(
         clause = f"the interval uses HC3 standard errors because {reason}"
     else:
         kind, reason, clause = "classical", "the conditions they rest on are not rejected", ""
-    block: dict[str, Any] = {"standard_errors": kind, "reason": reason}
+    block: dict[str, Any] = {
+        "standard_errors": kind,
+        "reason": reason,
+        "source": src.STANDARD_ERRORS[kind],
+    }
     if lags is not None:
         block["hac_lags"] = lags
         block["hac_lag_rule"] = LAG_RULE

@@ -21,6 +21,7 @@ from typing import Any
 import numpy as np
 
 from ..core import boxtidwell as bt
+from ..core import sources as src
 from ..core import transforms as tr
 from ..core.bank import FoldIndex
 from ..core.condition_rules import failed, failed_for_ranking
@@ -412,11 +413,7 @@ def _incumbent(
     )
 
 
-BAND_SOURCE = (
-    "one-standard-error rule: Breiman, Friedman, Olshen & Stone (1984), Classification and "
-    "Regression Trees, sec. 3.4.3; Hastie, Tibshirani & Friedman (2009), The Elements of "
-    "Statistical Learning, 2nd ed., sec. 7.10"
-)
+BAND_SOURCE = src.ONE_SE_BAND
 
 
 @dataclass(frozen=True)

@@ -16,6 +16,7 @@ from ..core.conditions import DEFAULT_ALPHA
 from ..core.crossval import CVResult
 from ..core.data import Prepared
 from ..core.errors import InputError
+from ..core.numbers import count_of
 from ..core.spec import Specification
 
 
@@ -67,20 +68,44 @@ class Scored:
             self.open_spec = self.spec
 
 
+def data_pointer(prep: Prepared) -> str:
+    """JSON Pointer to the table a request sent (``/data/columns``, ``/data/records`` or
+    ``/data/csv``)."""
+    return f"/data/{prep.source}" if prep.source in ("columns", "records", "csv") else "/data"
+
+
+def _usable(prep: Prepared) -> str:
+    n = prep.n
+    text = f"{count_of(n, 'usable row')}"
+    if prep.rows_dropped:
+        text += (
+            f" ({prep.rows_received} received, {prep.rows_dropped} dropped for a missing value, "
+            "listed in data.dropped of a successful answer)"
+        )
+    return text
+
+
 def check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
+    """Refuse a table too short for the requested folds or for ``p`` coefficients; the
+    problem points at the data, names both numbers and the fix."""
     n = prep.n
     if opts.folds > n:
+        fewer = f", or set validation.folds to {n} or fewer (at least 2)" if n >= 2 else ""
         raise InputError.at(
-            "/validation/folds", f"folds = {opts.folds} exceeds the {n} usable rows"
+            data_pointer(prep),
+            f"the data have {_usable(prep)}, fewer than the {opts.folds} cross-validation "
+            f"folds (validation.folds, default 5); send at least {opts.folds} complete "
+            f"rows{fewer}",
         )
     n_train = n - math.ceil(n / opts.folds)
     if n_train < p + 2:
         need = math.ceil((p + 2) * opts.folds / (opts.folds - 1))
         raise InputError.at(
-            "/data",
-            f"{n} usable rows are too few for {opts.folds}-fold "
-            f"cross-validation of a model with {p} coefficients; it needs at "
-            f"least {need} rows (or fewer folds/predictors)",
+            data_pointer(prep),
+            f"the data have {_usable(prep)}, too few for {opts.folds}-fold "
+            f"cross-validation of a model with {count_of(p, 'coefficient')}: it needs at "
+            f"least {need} rows; send more complete rows, or use fewer folds "
+            "(validation.folds) or fewer predictors",
         )
     if opts.metric == "mape" and np.any(prep.y == 0):
         raise InputError.at(

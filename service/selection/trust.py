@@ -62,6 +62,7 @@ from typing import Any
 
 import numpy as np
 
+from ..core import sources as src
 from ..core import transforms as tr
 from ..core._types import Mapper
 from ..core.condition_rules import conditions_for, failed_for_ranking
@@ -372,6 +373,7 @@ def _stability(
     share = wins / usable if usable else None
     details = {
         "method": "bootstrap of rows (grouped folds: copies of a row are held out together)",
+        "source": src.BOOTSTRAP,
         "requested": resamples,
         "usable": usable,
         "failed": sum(problems.values()),
@@ -551,6 +553,7 @@ def _optimism(
         "winner_selected": sum(1 for r in rows if r.get("same_as_winner")),
         "complete": bool(np.all(ok)) and all(r.get("inner_complete", False) for r in rows),
         "folds": rows,
+        "source": src.NESTED_CV,
         "meaning": (
             "selected_cv is rank 1's error on the outer folds; nested_cv repeats the "
             "whole search inside each outer training part and scores what it selects on "

@@ -52,10 +52,16 @@ def test_engel_level_model_flags_unequal_variance_and_influence(client):
     # source: CHECKS_PUBLIC engel `foodexp on income`: BP Koenker LM 109.263, p 1.421e-25
     assert bp["statistic"] == pytest.approx(109.263, rel=1e-5)
     assert ev["holds"] is False
-    # source: CHECKS_PUBLIC engel: max Cook's D 9.27649 at row 137 (0-based) must be flagged (> 1)
+    # source: CHECKS_PUBLIC engel: max Cook's D 9.27649 at 0-based label 137 must be flagged
+    # (> 1); rows are numbered from 1, so it is row 138 in every output
     inf = j["conditions"]["influence"]
     assert inf["holds"] is False
-    assert any(f["row"] == 137 for f in inf["flagged_rows"])
+    assert inf["flagged_rows"][0]["row"] == 138
+    cook = next(t for t in inf["tests"] if t["name"].startswith("Cook"))
+    assert cook["row"] == 138 and "row 138" in inf["note"]
+    assert {lab["row"] for lab in j["plots"]["influence"]["labels"]} >= {138}
+    assert 138 in j["plots"]["influence"]["points"]["row"]
+    assert j["plots"]["influence"]["x_label"] == "Row (1 = first data row)"
     assert j["conditions"]["independence"]["holds"] is None  # no order column
     assert set(j["plots"]) == {
         "residuals_fitted",

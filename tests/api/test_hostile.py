@@ -552,4 +552,4 @@ def test_diagnostics_with_more_folds_than_rows_is_422(client):
         DIAG,
         json={"data": {"columns": _table(12)}, "specification": spec, "validation": {"folds": 20}},
     )
-    check(r, pointer="/validation/folds", status=422)
+    check(r, pointer="/data/columns", status=422)

@@ -86,7 +86,11 @@ def test_counts_add_up_over_processes_and_dead_gauges_drop_out(tmp_path):
 def test_entry_point_prepares_a_fresh_directory_only_for_several_workers(monkeypatch, tmp_path):
     from service.__main__ import metrics_dir
 
-    monkeypatch.delenv("PROMETHEUS_MULTIPROC_DIR", raising=False)
+    # setenv first records the variable's state before the test, so the undo at teardown
+    # also removes what metrics_dir(2) sets (a later subprocess would inherit a removed
+    # directory otherwise)
+    monkeypatch.setenv("PROMETHEUS_MULTIPROC_DIR", "")
+    monkeypatch.delenv("PROMETHEUS_MULTIPROC_DIR")
     assert metrics_dir(1) == (None, False)
     made, ours = metrics_dir(2)
     try:

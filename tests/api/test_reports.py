@@ -206,6 +206,32 @@ def test_summary_interpretation_incumbent_and_cautions_are_shown(answers):
         assert 'id="warnings"' not in page.text
 
 
+def test_search_notes_and_entry_notes_have_distinct_headings(answers):
+    """Notes on the whole search stand apart from a specification's own points to check:
+    different headings in our words, and the search notes come before the ranking."""
+    import copy
+
+    from service.report.html import render_report
+
+    _, _, body = answers
+    body = copy.deepcopy(body)
+    body["warnings"] = ["a note on the whole search"]
+    for entry in body["ranking"]:
+        entry["warnings"] = [f"a point to check in rank {entry['rank']}"]
+    plots = {(None, e["rank"]): "not drawn in this test" for e in body["ranking"][:2]}
+    root = ET.fromstring(render_report(body, plots))
+    headings = [(_local(e.tag), _text(e)) for e in root.iter() if _local(e.tag) in ("h2", "h3")]
+    texts = [t for _, t in headings]
+    assert "Warnings" not in texts
+    assert texts.count("About the search as a whole") == 1
+    assert "Points to check in this specification" in texts
+    section = _by_id(root, "warnings")
+    assert [_text(li) for li in section.iter("li")] == body["warnings"]
+    assert texts.index("About the search as a whole") < texts.index("Ranking")
+    for li in section.iter("li"):
+        assert "rank" not in _text(li)  # no entry's point to check is listed with the search's
+
+
 def test_caller_strings_are_escaped(client):
     rng = np.random.default_rng(7)
     n = 60

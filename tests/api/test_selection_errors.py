@@ -201,7 +201,8 @@ def test_huge_response_values_are_never_a_server_error(client):
 def test_too_few_rows_for_cross_validation(client):
     cols = {k: v[:4] for k, v in _columns().items()}
     b = body(data={"columns": cols}, validation={"folds": 2})
-    assert_problem(client.post(URL, json=b), 422, "/data")
+    p = assert_problem(client.post(URL, json=b), 422, "/data/columns")
+    assert "4 usable rows, too few for 2-fold" in p["detail"] and "at least" in p["detail"]
 
 
 def test_no_complete_row(client):
@@ -216,10 +217,28 @@ def test_folds_outside_the_schema_range(client, folds):
     assert_problem(client.post(URL, json=b), 422, "/validation/folds")
 
 
-def test_more_folds_than_rows(client):
+def test_more_folds_than_rows_points_at_the_data(client):
     b = body(validation={"folds": 20})
-    p = assert_problem(client.post(URL, json=b), 422, "/validation/folds")
-    assert "12" in p["errors"][0]["detail"]
+    p = assert_problem(client.post(URL, json=b), 422, "/data/columns")
+    detail = p["errors"][0]["detail"]
+    assert "12 usable rows, fewer than the 20 cross-validation folds" in detail
+    assert "send at least 20 complete rows, or set validation.folds to 12 or fewer" in detail
+
+
+def test_more_folds_than_rows_names_the_dropped_rows_and_the_default(client):
+    cols = {k: v[:6] for k, v in _columns().items()}
+    cols["y"][1] = None
+    cols["x"][3] = None
+    lines = ["y,x"] + [
+        f"{'' if a is None else a},{'' if b is None else b}"
+        for a, b in zip(cols["y"], cols["x"], strict=True)
+    ]
+    p = assert_problem(client.post(URL, json=_csv(lines)), 422, "/data/csv")
+    detail = p["errors"][0]["detail"]
+    # 4 usable of 6 rows and the default 5 folds, which the caller never sent
+    assert "4 usable rows (6 received, 2 dropped for a missing value" in detail
+    assert "fewer than the 5 cross-validation folds (validation.folds, default 5)" in detail
+    assert "set validation.folds to 4 or fewer" in detail
 
 
 def test_unknown_transform_name(client):
@@ -322,7 +341,7 @@ def test_ragged_csv(client):
     rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
     rows[3] = rows[3].split(",")[0]
     p = assert_problem(client.post(URL, json=_csv(rows)), 422, "/data/csv")
-    assert "line 4" in p["errors"][0]["detail"]
+    assert "data row 3 (line 4)" in p["errors"][0]["detail"]
 
 
 def test_duplicate_csv_header(client):
@@ -335,7 +354,7 @@ def test_non_numeric_csv_cell(client):
     rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
     rows[5] = "oops," + rows[5].split(",")[1]
     p = assert_problem(client.post(URL, json=_csv(rows)), 422, "/data/csv")
-    assert "line 6" in p["errors"][0]["detail"]
+    assert "data row 5 (line 6)" in p["errors"][0]["detail"]
 
 
 # ------------------------------------------------- successful requests
@@ -347,18 +366,18 @@ def test_rows_with_missing_values_are_dropped_and_listed(client):
     assert r.status_code == 200, r.text[:300]
     d = _strict_json(r.text)["data"]
     assert d["rows_received"] == 20 and d["rows_used"] == 18 and d["rows_dropped"] == 2
-    assert [e["row"] for e in d["dropped"]] == [2, 7]
+    assert [e["row"] for e in d["dropped"]] == [3, 8]  # positions 2 and 7, numbered from 1
     assert "'y'" in d["dropped"][0]["reason"] and "'x'" in d["dropped"][1]["reason"]
 
 
 def test_csv_empty_cells_are_dropped_and_listed(client):
     cols = _columns(n=20)
     rows = ["y,x"] + [f"{a},{b}" for a, b in zip(cols["y"], cols["x"], strict=True)]
-    rows[4] = "," + rows[4].split(",")[1]  # data row 3 has an empty response cell
+    rows[4] = "," + rows[4].split(",")[1]  # line 5: data row 4 has an empty response cell
     r = client.post(URL, json=_csv(rows))
     assert r.status_code == 200, r.text[:300]
     d = _strict_json(r.text)["data"]
-    assert d["rows_dropped"] == 1 and d["dropped"][0]["row"] == 3
+    assert d["rows_dropped"] == 1 and d["dropped"][0]["row"] == 4
 
 
 def test_finite_request_returns_strict_json():

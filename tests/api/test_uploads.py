@@ -101,7 +101,8 @@ def test_parquet_upload_equals_the_json_request_and_reports_missing_rows(client)
     # source: the same request as JSON with nulls in place of the missing cells
     assert _key(body) == _key(ref.json())
     assert body["data"]["rows_dropped"] == 2
-    assert sorted(d["row"] for d in body["data"]["dropped"]) == [5, 11]
+    # positions 5 and 11 are rows 6 and 12: rows are numbered from 1
+    assert sorted(d["row"] for d in body["data"]["dropped"]) == [6, 12]
 
 
 def test_parquet_is_recognised_by_its_magic_bytes_whatever_the_name(client):

@@ -44,7 +44,7 @@ def design(
     categorical: dict[str, np.ndarray] | None = None,
     intercept=True,
     order=None,
-    row_ids=None,
+    row_numbers=None,
     alpha=0.05,
 ) -> ConditionInputs:
     """ConditionInputs from named numeric columns (already on the model scale)."""
@@ -74,7 +74,7 @@ def design(
         X=np.column_stack(cols),
         has_intercept=intercept,
         terms=tuple(terms),
-        row_ids=np.arange(n) if row_ids is None else np.asarray(row_ids),
+        row_numbers=np.arange(1, n + 1) if row_numbers is None else np.asarray(row_numbers),
         order=order,
         alpha=alpha,
     )
@@ -153,16 +153,17 @@ def test_engel_levels(engel):
     assert dw["statistic"] == pytest.approx(1.4107541586657861, rel=1e-6)
     assert dw["p_value"] is None
     cook = test_entry(out, "influence", "Cook's distance")
-    # source: CHECKS_PUBLIC engel, max Cook's D 9.27649 at row 137 (0-based label)
+    # source: CHECKS_PUBLIC engel, max Cook's D 9.27649 at 0-based label 137, which is row 138
+    # when rows are numbered from 1
     assert cook["statistic"] == pytest.approx(9.276492244088796, rel=1e-6)
-    assert cook["row"] == 137
+    assert cook["row"] == 138
     lev = test_entry(out, "influence", "Leverage")
     assert lev["statistic"] == pytest.approx(0.25475759251098423, rel=1e-6)  # source: CHECKS_PUBLIC
     outlier = test_entry(out, "influence", "Outlier test")
-    # source: CHECKS_PUBLIC engel, max |ext. stud. resid| 8.3935 at row 137
+    # source: CHECKS_PUBLIC engel, max |ext. stud. resid| 8.3935 at 0-based label 137 (row 138)
     assert outlier["statistic"] == pytest.approx(8.393460861311043, rel=1e-6)
-    assert outlier["row"] == 137
-    assert out["influence"]["flagged_rows"][0]["row"] == 137
+    assert outlier["row"] == 138
+    assert out["influence"]["flagged_rows"][0]["row"] == 138
     assert "Cook's distance > 1" in out["influence"]["flagged_rows"][0]["reasons"]
     # source: CHECKS_PUBLIC engel suggested checks: heteroscedasticity and D > 1 must be flagged
     assert out["equal_variance"]["holds"] is False
@@ -212,10 +213,10 @@ def _trees(df, log=False):
             labels={"Girth": "log(Girth)", "Height": "log(Height)"},
             raw={"Girth": ("Girth", g), "Height": ("Height", h)},
             order=np.arange(n),
-            row_ids=df["rownames"].to_numpy(int),
+            row_numbers=df["rownames"].to_numpy(int),
         )
     return design(
-        {"Girth": g, "Height": h}, v, order=np.arange(n), row_ids=df["rownames"].to_numpy(int)
+        {"Girth": g, "Height": h}, v, order=np.arange(n), row_numbers=df["rownames"].to_numpy(int)
     )
 
 
@@ -312,15 +313,15 @@ def test_mammals_levels_influence(mammals):
     cook = test_entry(out, "influence", "Cook's")
     # source: CHECKS_PUBLIC mammals `brain on body`, max Cook's D 130.618 at 'African elephant'
     assert cook["statistic"] == pytest.approx(130.6176033688332, rel=1e-6)
-    assert names[cook["row"]] == "African elephant"
+    assert names[cook["row"] - 1] == "African elephant"  # rows are numbered from 1
     assert out["influence"]["holds"] is False
     first = out["influence"]["flagged_rows"][0]
-    assert names[first["row"]] == "African elephant"
+    assert names[first["row"] - 1] == "African elephant"
     assert first["cooks_distance"] == pytest.approx(130.6176033688332, rel=1e-6)
     outlier = test_entry(out, "influence", "Outlier test")
     # source: CHECKS_PUBLIC, max |ext. stud. resid| 12.23 at 'Asian elephant'
     assert outlier["statistic"] == pytest.approx(12.229517956367516, rel=1e-6)
-    assert names[outlier["row"]] == "Asian elephant"
+    assert names[outlier["row"] - 1] == "Asian elephant"
     assert test_entry(out, "influence", "Leverage")["statistic"] == pytest.approx(
         0.8610554365305549, rel=1e-6
     )  # source: CHECKS_PUBLIC max leverage 0.86106
@@ -343,12 +344,12 @@ def test_mammals_log_log_passes(mammals):
     n = len(mammals)
     inp = _mammals(mammals, log=True)
     out = assess_conditions(
-        ConditionInputs(inp.z, inp.X, True, inp.terms, inp.row_ids, np.arange(n))
+        ConditionInputs(inp.z, inp.X, True, inp.terms, inp.row_numbers, np.arange(n))
     )
     cook = test_entry(out, "influence", "Cook's")
     # source: CHECKS_PUBLIC mammals log-log, max Cook's D 0.122022 at 'Human'
     assert cook["statistic"] == pytest.approx(0.1220221047322955, rel=1e-6)
-    assert names[cook["row"]] == "Human"
+    assert names[cook["row"] - 1] == "Human"
     bp = test_entry(out, "equal_variance", "Breusch-Pagan")
     assert bp["statistic"] == pytest.approx(0.27848717760793384, rel=1e-6)  # source: CHECKS_PUBLIC
     assert close_p(bp["p_value"], 0.5976944926618724)
@@ -399,13 +400,14 @@ def test_longley_stable_reset_vif_and_more(longley):
     assert sw["statistic"] == pytest.approx(0.9486017976858555, rel=1e-6)  # source: CHECKS_PUBLIC
     cook = test_entry(out, "influence", "Cook's")
     assert cook["statistic"] == pytest.approx(0.6139168382383029, rel=1e-6)  # source: CHECKS_PUBLIC
-    assert cook["row"] == 4  # source: CHECKS_PUBLIC row label `4` (1951)
+    # source: CHECKS_PUBLIC 0-based row label `4` (1951), row 5 when numbered from 1
+    assert cook["row"] == 5
     outlier = test_entry(out, "influence", "Outlier test")
     assert outlier["statistic"] == pytest.approx(2.1694481824844187, rel=1e-6)  # CHECKS_PUBLIC
-    assert outlier["row"] == 9
+    assert outlier["row"] == 10  # 0-based label 9
     lev = test_entry(out, "influence", "Leverage")
     assert lev["statistic"] == pytest.approx(0.6886146016911425, rel=1e-6)  # CHECKS_PUBLIC
-    assert lev["row"] == 15
+    assert lev["row"] == 16  # 0-based label 15
     white = test_entry(out, "equal_variance", "White")
     assert white["statistic"] is None and "omitted" in white["reason"]  # 28 columns, 16 rows
 
@@ -438,7 +440,7 @@ def test_secondary_tests_match_statsmodels(trees):
 def test_breusch_godfrey_uses_the_given_order(trees):
     inp = _trees(trees)
     perm = np.random.default_rng(3).permutation(len(inp.z))
-    out = assess_conditions(ConditionInputs(inp.z, inp.X, True, inp.terms, inp.row_ids, perm))
+    out = assess_conditions(ConditionInputs(inp.z, inp.X, True, inp.terms, inp.row_numbers, perm))
     res_o = sm.OLS(inp.z[perm], inp.X[perm]).fit()
     bg = test_entry(out, "independence", "Breusch-Godfrey")
     ref = smd.acorr_breusch_godfrey(res_o, nlags=bg["lags"], result_object=True)
@@ -773,7 +775,7 @@ def test_malformed_inputs_raise(bad, message):
         "X": np.column_stack([np.ones(5), np.arange(5.0) ** 2]),
         "has_intercept": True,
         "terms": (),
-        "row_ids": np.arange(5),
+        "row_numbers": np.arange(5),
         "order": None,
     }
     base.update(bad)

@@ -38,7 +38,7 @@ def make(n=100, seed=0, outliers=(), order=False, categorical=False) -> Conditio
         X=np.column_stack(cols),
         has_intercept=True,
         terms=tuple(terms),
-        row_ids=np.arange(n) + 1000,
+        row_numbers=np.arange(n) + 1000,
         order=np.arange(n) if order else None,
     )
 
@@ -82,7 +82,7 @@ def test_series_match_statsmodels():
     # source: E|Z| = sqrt(2/pi) = 0.7979 for a standard normal Z
     assert out["spread_fitted"]["reference_lines"][0]["y"][0] == pytest.approx(0.797885, abs=1e-6)
     inf = out["influence"]["points"]
-    np.testing.assert_allclose(inf["x"], inp.row_ids)  # by row
+    np.testing.assert_allclose(inf["x"], inp.row_numbers)  # by row
     np.testing.assert_allclose(inf["y"], infl.cooks_distance[0], rtol=1e-8)
     np.testing.assert_allclose(inf["leverage"], infl.hat_matrix_diag, rtol=1e-10)
     np.testing.assert_allclose(inf["studentized"], infl.resid_studentized_external, rtol=1e-8)
