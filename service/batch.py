@@ -35,7 +35,7 @@ from .core.numbers import count_of
 
 if TYPE_CHECKING:
     from .core.data import Prepared
-    from .core.search_setup import SearchOptions
+    from .selection.search_setup import SearchOptions
 
 MANIFEST = "manifest.json"
 SUMMARY = "summary.json"
@@ -117,7 +117,7 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     to be unusable.  An incumbent's model artifact adds the ``drift`` block.
     """
     from .api.selection import finish_body
-    from .core.groups import select_group
+    from .selection.groups import select_group
 
     _pin_blas_once()
     body = select_group((sub, opts, service_version))
@@ -179,10 +179,10 @@ def run_inline(tasks: list[Task], fn=run_segment) -> Iterator[tuple[str, dict]]:
 
 
 def run_pool(tasks: list[Task], processes: int, fn=run_segment) -> Iterator[tuple[str, dict]]:
-    """This machine's worker processes (the pool of service/core/workers.py)."""
+    """This machine's worker processes (the pool of service/selection/workers.py)."""
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
-    from .core.workers import _context, _init_worker
+    from .selection.workers import _context, _init_worker
 
     if processes <= 1 or len(tasks) <= 1:
         yield from run_inline(tasks, fn)
@@ -512,7 +512,7 @@ def run_job(
     progress: BatchProgress | None = None,
 ) -> dict:
     """Run every unfinished segment, write its file as it arrives, then the summary."""
-    from .core.groups import group_parts
+    from .selection.groups import group_parts
 
     out = job.out
     seg_dir = out / SEGMENTS
