@@ -83,7 +83,8 @@ class SearchSummary(_Open):
         None,
         description="the one band of the ranking: lowest_cv_value, std_error_of_lowest, "
         "threshold (the lowest CV error plus the standard error of the lowest-error "
-        "candidate), rule and source",
+        "candidate), rule and source; conditions: how failed regression conditions reorder "
+        "the band (members_compared, conditions_ordering, alpha, rule, source)",
     )
     distinct_scales: dict[str, Any] | None = Field(
         None,

@@ -4,9 +4,10 @@ Ranking rule for conditions (documented design choice): cross-validated error
 stays the primary criterion.  Within the one-standard-error band the leading
 candidates (the first ``max(3 * top, 15)`` by the band's simplicity order) are
 assessed and re-ordered by the number of conditions that fail
-(:func:`failed_for_ranking`: ``holds`` is false and, where the tests give p-values,
-the smallest is below alpha over the number of conditions tested), then by their
-previous order.  Candidates outside the band are never
+(:func:`failed_for_ranking`): a condition takes part when some assessed member fails
+it clearly (the deciding test's p-value below alpha over the number of deciding tests
+of all assessed members) and some member meets it; then every member that does not
+meet it at alpha counts it.  Ties keep their previous order.  Candidates outside the band are never
 moved above a band member, so a condition failure cannot promote a clearly
 worse predictor; and when the lowest-error candidate is displaced because it
 fails a condition the response says so in a warning.
@@ -56,26 +57,49 @@ def failed(conditions: dict[str, Any] | None) -> list[str]:
     return [c for c in CONDITION_NAMES if conditions.get(c, {}).get("holds") is False]
 
 
-def failed_for_ranking(conditions: dict[str, Any] | None, alpha: float) -> list[str]:
-    """Conditions that count against a candidate in the ranking.
+def clear_failures(conditions: dict[str, Any] | None, alpha: float, members: int = 1) -> list[str]:
+    """Conditions this member fails clearly: at the level of every test that can reorder
+    the band.
 
-    A condition counts when it does not hold and, where its tests give p-values, the
-    smallest is below ``alpha`` divided by the number of conditions tested (Bonferroni
-    over the conditions), so a specification that meets every condition is displaced by
-    a chance rejection with probability at most ``alpha``.  Conditions judged by
-    thresholds (no p-value) count when they do not hold.
+    The p-value of the test that decides the condition (the test marked ``primary``;
+    where none is marked, the smallest p-value given) is below ``alpha`` divided by the
+    conditions tested times ``members``, the number of band members compared (Bonferroni
+    over every such test; Dunn 1961).  Reported-only tests (White, Jarque-Bera,
+    Anderson-Darling, rainbow, curvature) never decide: the smallest of several p-values
+    is not a p-value at the level of one test.  Conditions judged by thresholds (no
+    p-value) fail clearly when they do not hold.
     """
     if not conditions:
         return []
     tested = [c for c in CONDITION_NAMES if conditions.get(c, {}).get("holds") is not None]
-    level = alpha / max(len(tested), 1)
+    level = alpha / (max(len(tested), 1) * max(members, 1))
     out = []
     for c in failed(conditions):
-        ps = [
-            t["p_value"]
-            for t in conditions[c].get("tests", [])
-            if isinstance(t.get("p_value"), float)
-        ]
+        tests = [t for t in conditions[c].get("tests", []) if isinstance(t.get("p_value"), float)]
+        deciding = [t for t in tests if t.get("primary")] or tests
+        ps = [t["p_value"] for t in deciding]
         if not ps or min(ps) < level:
             out.append(c)
     return out
+
+
+def ordering_conditions(members: list[dict[str, Any] | None], alpha: float) -> frozenset[str]:
+    """The conditions that reorder a band of compared ``members``.
+
+    A condition takes part when the band gives clear evidence about it: some member fails
+    it clearly (:func:`clear_failures`) and some member meets it.  So a band whose members
+    all meet every condition is reordered by a chance rejection with probability at most
+    ``alpha``, and a condition no member meets (heavy-tailed errors, say) describes the
+    data, not a scale, and reorders nothing.
+    """
+    m = len(members)
+    clear = {c for cond in members for c in clear_failures(cond, alpha, m)}
+    met = {c for cond in members if cond for c in CONDITION_NAMES if cond.get(c, {}).get("holds")}
+    return frozenset(clear & met)
+
+
+def failed_for_ranking(conditions: dict[str, Any] | None, ordering: frozenset[str]) -> list[str]:
+    """Conditions that count against a member: those of ``ordering``
+    (:func:`ordering_conditions`) that it does not meet at alpha, the same standard for
+    every member."""
+    return [c for c in failed(conditions) if c in ordering]

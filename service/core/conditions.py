@@ -181,6 +181,8 @@ def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list[Any]) -> dict
     reset = ct.reset_test(fit)
     curves = _curvature_entries(curvatures)
     tests = [reset, ct.rainbow_test(fit), *curves]
+    for entry in tests:
+        entry["primary"] = entry is reset
     holds = _decide(reset, a)
     bent = [c for c in curves if c["p_value"] is not None and c["p_value"] < a]
     bent_txt = ", ".join(f"{c['label']} ({_p(c['p_value'])})" for c in bent[:3])

@@ -88,6 +88,9 @@ PREDICTION_INTERVAL = {
         "Duan (1983)",
     ),
 }
+BAND_CONDITIONS = cite(
+    "Bonferroni inequality over every test that can reorder the band", "Dunn (1961)"
+)
 LOWESS = cite("LOWESS smoother", "Cleveland (1979)")
 ENVELOPE_SIMULATED = cite("simulated envelope of ordered normal residuals", "Atkinson (1981)")
 ENVELOPE_EXACT = cite(

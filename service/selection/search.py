@@ -24,7 +24,7 @@ from ..core import boxtidwell as bt
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.bank import FoldIndex
-from ..core.condition_rules import failed, failed_for_ranking
+from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import from_score
 from ..core.cvplus import NOT_KEPT, POWERS_PER_FOLD
@@ -278,7 +278,7 @@ def run_selection(
                 cache[key].setdefault("estimates", {})["read_as_ladder"] = read_notes[key]
         return cache[key]
 
-    ranked = _order_by_conditions(ranked, full, opts, warnings)
+    ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
     entries: list[dict[str, Any]] = []
     for s, parts in ranked:
@@ -298,7 +298,7 @@ def run_selection(
         if "conditions_failed" not in parts:
             parts = {
                 **parts,
-                "conditions_failed": failed_for_ranking(entry.get("conditions"), opts.alpha),
+                "conditions_failed": failed_for_ranking(entry.get("conditions"), met),
                 "conditions_not_holding": failed(entry.get("conditions")),
             }
         entry["score"] = {**entry["score"], "parts": parts}
@@ -333,7 +333,7 @@ def run_selection(
             "std_error": best.cv.std_error,
             "specification": best.spec.to_dict(),
         },
-        "band": band.to_dict(),
+        "band": {**band.to_dict(), "conditions": conditions_block(assessed, opts.alpha, met)},
         "distinct_scales": scales_info,
         "failures": failures,
         "failure_reasons": failure_groups(ev.reasons),
@@ -414,6 +414,7 @@ def _incumbent(
 
 
 BAND_SOURCE = src.ONE_SE_BAND
+CONDITIONS_SOURCE = src.BAND_CONDITIONS
 
 
 @dataclass(frozen=True)
@@ -446,6 +447,27 @@ class Band:
             ),
             "source": BAND_SOURCE,
         }
+
+
+def conditions_block(members: int, alpha: float, ordering: frozenset[str]) -> dict[str, Any]:
+    """How failed conditions reorder the band (reported once in ``search.band``)."""
+    return {
+        "members_compared": members,
+        "conditions_ordering": [c for c in CONDITION_NAMES if c in ordering],
+        "alpha": alpha,
+        "rule": (
+            "a condition reorders the compared band members when one of them fails it "
+            "clearly, its deciding test (RESET, Shapiro-Wilk or Jarque-Bera, "
+            "Breusch-Pagan, Breusch-Godfrey; threshold rules for multicollinearity and "
+            "influence) rejecting at alpha divided by the number of conditions tested "
+            "times the number of members compared, and another meets it; then it counts "
+            "against every member that does not meet it at alpha. So a band whose members "
+            "all meet every condition is reordered by chance with probability at most "
+            "alpha, tests reported only never decide, and a condition no member meets "
+            "describes the data, not a scale, and reorders nothing"
+        ),
+        "source": CONDITIONS_SOURCE,
+    }
 
 
 def band_order(
@@ -528,30 +550,38 @@ def rank(
     return out, band.lowest
 
 
+def lead_members(opts: SearchOptions) -> int:
+    """How many leading band members have their conditions compared."""
+    return max(3 * opts.top, 15)
+
+
 def _order_by_conditions(
     ranked: list[tuple[Scored, dict[str, Any]]],
     full: Callable[[Scored, dict[str, Any]], dict[str, Any]],
     opts: SearchOptions,
     warnings: list[str],
-) -> list[tuple[Scored, dict[str, Any]]]:
-    """Re-order the leading band members by failed conditions (see condition_rules.py)."""
-    lead_m = max(3 * opts.top, 15)
-    band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]][:lead_m]
+) -> tuple[list[tuple[Scored, dict[str, Any]]], frozenset[str], int]:
+    """Re-order the leading band members by failed conditions (see condition_rules.py);
+    also returns the conditions that took part and the number of members compared."""
+    band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]][: lead_members(opts)]
+    lead_m = len(band)
     n_failed: dict[int, int] = {}
     parts_of = [p for _, p in ranked]
+    conds: dict[int, dict[str, Any] | None] = {}
     for i in band:
         s, parts = ranked[i]
         try:
-            entry = full(s, parts)
+            conds[i] = full(s, parts).get("conditions")
         except CandidateFailure as exc:
             parts_of[i] = {**parts, "conditions_failed": None, "conditions_note": exc.reason}
             n_failed[i] = len(CONDITION_NAMES) + 1
-            continue
-        bad = failed_for_ranking(entry.get("conditions"), opts.alpha)
+    met = ordering_conditions(list(conds.values()), opts.alpha)
+    for i, cond in conds.items():
+        bad = failed_for_ranking(cond, met)
         parts_of[i] = {
-            **parts,
+            **parts_of[i],
             "conditions_failed": bad,
-            "conditions_not_holding": failed(entry.get("conditions")),
+            "conditions_not_holding": failed(cond),
         }
         n_failed[i] = len(bad)
     order = condition_order(
@@ -570,13 +600,7 @@ def _order_by_conditions(
                 + ", ".join(c.replace("_", " ") for c in low_parts["conditions_failed"])
                 + "; it ranks below specifications in the band that pass more conditions."
             )
-    return out
-
-
-CONDITION_RULE = (
-    "within the band, the leading members (by simplicity) with fewer failed conditions "
-    "rank first; CV error decides outside it"
-)
+    return out, met, len(conds)
 
 
 def _uniform_options(prep: Prepared, preds: list[list[tr.Transform]]) -> list[list[tr.Transform]]:

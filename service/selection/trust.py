@@ -65,7 +65,7 @@ import numpy as np
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core._types import Mapper
-from ..core.condition_rules import conditions_for, failed_for_ranking
+from ..core.condition_rules import conditions_for, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import cross_validate
 from ..core.data import Prepared
@@ -259,19 +259,31 @@ def _chunks(items: list[int], parts: int) -> list[list[int]]:
     return [items[i : i + size] for i in range(0, len(items), size)]
 
 
-def _verdicts(prep: Prepared, alpha: float) -> Callable[[Specification], int]:
-    """Failed-condition counts on all rows, computed once per specification."""
-    cache: dict[SpecKey, int] = {}
+def _verdicts(
+    prep: Prepared, alpha: float, band: list[Specification]
+) -> Callable[[Specification], int]:
+    """Failed-condition counts on all rows for the compared ``band`` members, by the rule
+    of condition_rules.py (level and the conditions some member meets from ``band``)."""
+    conds: dict[SpecKey, dict[str, Any] | None] = {}
 
-    def n_failed(spec: Specification) -> int:
-        if spec.key not in cache:
+    def conditions_of(spec: Specification) -> dict[str, Any] | None:
+        if spec.key not in conds:
             try:
                 _, design, fit, _ = fitted_model(spec, prep)
-                cond, _ = conditions_for(design, fit, prep, fit.fitted + fit.resid, alpha)
-                cache[spec.key] = len(failed_for_ranking(cond, alpha))
+                conds[spec.key], _ = conditions_for(
+                    design, fit, prep, fit.fitted + fit.resid, alpha
+                )
             except CandidateFailure:  # the search puts these last as well
-                cache[spec.key] = len(CONDITION_NAMES) + 1
-        return cache[spec.key]
+                conds[spec.key] = None
+        return conds[spec.key]
+
+    met = ordering_conditions([conditions_of(spec) for spec in band], alpha)
+
+    def n_failed(spec: Specification) -> int:
+        cond = conditions_of(spec)
+        if cond is None:
+            return len(CONDITION_NAMES) + 1
+        return len(failed_for_ranking(cond, met))
 
     return n_failed
 
@@ -296,8 +308,8 @@ def _stability(
 ) -> dict[str, Any]:
     ranked, _ = rank(scored, opts.folds)
     lead = max(3 * opts.top, 15)
-    n_failed = _verdicts(prep, opts.alpha)
     band_all = [s.spec for s, p in ranked if p["within_one_se"]][:lead]
+    n_failed = _verdicts(prep, opts.alpha, band_all)
     matches = first_by_rule(list(enumerate(band_all)), n_failed).key == winner.spec.key
 
     # A candidate with an estimated predictor power is re-scored with its all-rows power

@@ -1,7 +1,7 @@
 """Simulation study: how often the search ranks the generating scale first (run by hand).
 
     python tests/benchmarks/recovery.py [--seeds 20] [--n 100,300,1000] [--workers 2]
-                                         [--processes name,...]
+                                         [--processes name,...] [--log results.jsonl]
 
 Every process has a known right scale (the data are generated on it).  Each run is a
 default selection (5 folds, 1 repeat, default transforms) and counts as a hit when rank 1
@@ -17,6 +17,8 @@ untransformed in >= 95%.
 from __future__ import annotations
 
 import argparse
+import json
+import os
 import sys
 import time
 from multiprocessing import get_context
@@ -182,7 +184,35 @@ def matches(entry: dict, expected) -> bool:
     return ok and got == preds
 
 
-def one_run(task) -> tuple[str, int, int, bool, str]:
+def _label(entry: dict) -> str:
+    spec = entry["specification"]
+    return (
+        spec["response"]["transform"]["name"]
+        + " ~ "
+        + ", ".join(p["transform"]["name"] for p in spec["predictors"])
+    )
+
+
+def _why(out: dict, expected) -> str:
+    """Where the generating scale stands when it is not first (for the list of misses)."""
+    first = out["ranking"][0]["score"]["parts"]
+    lowest = out["search"]["band"]["lowest_cv_value"]
+    text = (
+        f"rank 1 cv/lowest {first['cv_value'] / lowest:.4f}, "
+        f"fails {first.get('conditions_failed')}; generating scale "
+    )
+    for e in out["ranking"]:
+        if matches(e, expected):
+            p = e["score"]["parts"]
+            return text + (
+                f"rank {e['rank']}, cv/lowest {p['cv_value'] / lowest:.4f}, "
+                f"{'in' if p['within_one_se'] else 'outside'} the band, "
+                f"fails {p.get('conditions_failed')}"
+            )
+    return text + "not listed"
+
+
+def one_run(task) -> tuple[str, int, int, bool, str, str]:
     name, n, seed = task
     prep = _data(name, n, seed)
     opts = SearchOptions(seed=seed)
@@ -190,26 +220,48 @@ def one_run(task) -> tuple[str, int, int, bool, str]:
         opts = SearchOptions(seed=seed, **OPTIONS[name])
     out = run_selection(prep, opts, "study")
     first = out["ranking"][0]
-    spec = first["specification"]
-    label = (
-        spec["response"]["transform"]["name"]
-        + " ~ "
-        + ", ".join(p["transform"]["name"] for p in spec["predictors"])
-    )
-    return name, n, seed, matches(first, PROCESSES[name][1]), label
+    hit = matches(first, PROCESSES[name][1])
+    return name, n, seed, hit, _label(first), "" if hit else _why(out, PROCESSES[name][1])
 
 
-def study(names, ns, seeds, workers=1, mapper=None) -> dict:
-    tasks = [(name, n, s) for name in names for n in ns for s in range(seeds)]
-    if mapper is None:
-        if workers > 1:
+def study(names, ns, seeds, workers=1, mapper=None, log: str | None = None) -> list:
+    """Run every (process, n, seed), seed by seed (a stopped run leaves whole seeds done).
+
+    With ``log`` each result is appended to that JSON-lines file as it arrives, and
+    results already in it are not run again (a long study can be resumed).
+    """
+    tasks = [(name, n, s) for s in range(seeds) for name in names for n in ns]
+    done: dict[tuple, tuple] = {}
+    if log and Path(log).exists():
+        for line in Path(log).read_text().splitlines():
+            r = tuple(json.loads(line))
+            done[tuple(r[:3])] = r
+    todo = [t for t in tasks if t not in done]
+    sink = open(log, "a") if log else None  # noqa: SIM115 (closed below)
+
+    def keep(r):
+        done[tuple(r[:3])] = r
+        if sink:
+            sink.write(json.dumps(list(r)) + "\n")
+            sink.flush()
+
+    try:
+        if mapper is not None:
+            for r in mapper(one_run, todo):
+                keep(r)
+        elif workers > 1:
+            for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+                os.environ.setdefault(var, "1")  # one thread per worker on a shared machine
             with get_context("forkserver").Pool(workers) as pool:
-                results = pool.map(one_run, tasks, chunksize=1)
+                for r in pool.imap(one_run, todo, chunksize=1):
+                    keep(r)
         else:
-            results = [one_run(t) for t in tasks]
-    else:
-        results = list(mapper(one_run, tasks))
-    return results
+            for t in todo:
+                keep(one_run(t))
+    finally:
+        if sink:
+            sink.close()
+    return [done[t] for t in tasks if t in done]
 
 
 def table(results, ns) -> str:
@@ -254,11 +306,12 @@ def main(argv=None) -> int:
     ap.add_argument("--n", default="100,300,1000")
     ap.add_argument("--workers", type=int, default=1)
     ap.add_argument("--processes", default="")
+    ap.add_argument("--log", default=None, help="JSON-lines file of results (resumable)")
     args = ap.parse_args(argv)
     ns = [int(v) for v in args.n.split(",")]
     names = [p for p in args.processes.split(",") if p] or list(PROCESSES)
     t0 = time.perf_counter()
-    results = study(names, ns, args.seeds, args.workers)
+    results = study(names, ns, args.seeds, args.workers, log=args.log)
     print(table(results, ns))
     print()
     for k, v in summary(results).items():
@@ -267,7 +320,7 @@ def main(argv=None) -> int:
     if misses:
         print("\nmisses (process, n, seed, rank 1):")
         for r in misses:
-            print(f"  {r[0]}, n={r[1]}, seed={r[2]}: {r[4]}")
+            print(f"  {r[0]}, n={r[1]}, seed={r[2]}: {r[4]} ({r[5]})")
     print(f"\n{len(results)} selections in {time.perf_counter() - t0:.0f} s")
     return 0
 

@@ -11,6 +11,7 @@ printed (target: at least 95%).
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from multiprocessing import get_context
 from pathlib import Path
@@ -87,11 +88,18 @@ def main(argv=None) -> int:
         n = fn().n
         full[which] = _scales(run_selection(fn(), SearchOptions(), "stability"))
         tasks += [(which, int(d)) for d in rng.choice(n, args.drops, replace=False)]
+    results = []
     if args.workers > 1:
+        for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+            os.environ.setdefault(var, "1")  # one thread per worker on a shared machine
         with get_context("forkserver").Pool(args.workers) as pool:
-            results = pool.map(_task, tasks, chunksize=1)
+            for r in pool.imap(_task, tasks, chunksize=1):
+                results.append(r)
+                print(*r, sep=" | ", file=sys.stderr, flush=True)  # progress
     else:
-        results = [_task(t) for t in tasks]
+        for t in tasks:
+            results.append(_task(t))
+            print(*results[-1], sep=" | ", file=sys.stderr, flush=True)
     for which in cases:
         got = [r[2] for r in results if r[0] == which]
         same = sum(g == full[which] for g in got)

@@ -172,5 +172,5 @@ def test_seeded_recovery_study(process):
     # whose table is in README.md); one seed per process at n = 300
     from tests.benchmarks.recovery import one_run
 
-    *_, hit, label = one_run((process, 300, 0))
-    assert hit, label
+    _, _, _, hit, label, why = one_run((process, 300, 0))
+    assert hit, (label, why)
