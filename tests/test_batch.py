@@ -147,6 +147,8 @@ def test_local_cluster_with_two_workers_gives_the_same_files(job, tmp_path, caps
     err = capsys.readouterr().err
     assert _results(out) == job["inline"]
     assert "running on a local cluster: 2 workers" in err
+    # small data: the rows travel with the tasks
+    assert "segment rows go with the tasks" in err and "within the 256 MiB threshold" in err
     # not a terminal: a plain line every 4 segments
     assert "segments 4/12 done, 0 failed" in err and "segments 12/12 done" in err
 
@@ -428,3 +430,178 @@ def test_scheduler_setting_and_argument_errors(monkeypatch, tmp_path, capsys):
             select_main(base + extra)
         assert exc.value.code == 2
         assert message in capsys.readouterr().err
+
+
+# ---------------------------------------------------------------- segment rows via Parquet
+
+
+def test_parquet_transport_gives_the_same_files(job, tmp_path, capsys):
+    """The same month on a LocalCluster with 2 workers, each task reading its segment from the
+    shared Parquet dataset: the same files as the inline run and as the rows sent with the
+    tasks (test_local_cluster_with_two_workers_gives_the_same_files)."""
+    shared = tmp_path / "shared"
+    shared.mkdir()
+    out = tmp_path / "parquet"
+    # auto with a threshold of 0 MiB: any data are 'large'
+    argv = _args(
+        job["data"],
+        out,
+        "--cluster",
+        "local",
+        "--local-workers",
+        "2",
+        "--parquet-above-mb",
+        "0",
+        "--shared-dir",
+        str(shared),
+        options=job["options"],
+    )
+    assert select_main(argv) == 0
+    err = capsys.readouterr().err
+    assert f"segment rows go a Parquet dataset under {shared.resolve()}" in err
+    assert "over the 0 MiB threshold" in err and "written for this run" in err
+    assert _results(out) == job["inline"]
+    assert list(shared.iterdir()) == []  # the finished job removed its dataset
+
+
+def test_each_parquet_task_carries_a_reference_and_reads_only_its_segment(job, tmp_path):
+    """What travels to a worker is a reference of a few hundred bytes; the worker's read
+    yields exactly the segment the in-process split gives (values, row numbers, order)."""
+    import pickle
+
+    from service.api.schemas import SelectionRequest
+    from service.api.selection import selection_options
+    from service.batch import Job, run_inline, run_job
+    from service.batch_parquet import SegmentRef, SharedParquet
+    from service.core.data import prepare
+    from service.core.groups import group_parts
+
+    table = _table(5, 30, seed=4)
+    table["day"] = [float(i % 17) for i in range(len(table["district"]))]  # an order column
+    table["pipe_age_years"][7] = None  # a dropped row: row numbers of later rows shift
+    body = {"response": "repair_cost", "predictors": PREDICTORS.split(","), **OPTIONS}
+    req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
+    prep = prepare(
+        {"columns": table}, "repair_cost", body["predictors"], ["soil"], "day", "district"
+    )
+    parts = group_parts(prep)
+    seen: list = []
+
+    def spy(tasks):
+        seen.extend(tasks)
+        return run_inline(tasks)
+
+    shared = SharedParquet(str(tmp_path))
+    job_ = Job(tmp_path / "out", body, prep, selection_options(req), "test")
+    run_job(job_, spy, shared=shared)
+    assert len(seen) == 5
+    for t in seen:
+        assert isinstance(t.sub, SegmentRef) and len(pickle.dumps(t.sub)) < 2000
+        assert Path(t.sub.directory).parent == shared.path
+        got, want = t.sub.load(), parts[t.name]
+        assert got.fingerprint() == want.fingerprint()
+        np.testing.assert_array_equal(got.row_ids, want.row_ids)
+        np.testing.assert_array_equal(got.order_values, want.order_values)
+        np.testing.assert_array_equal(got.order, want.order)
+        assert got.categorical["soil"].tolist() == want.categorical["soil"].tolist()
+        assert (got.table_columns, got.source) == (want.table_columns, want.source)
+    # hive partitions by segment index, one per segment, readable as a dataset by any tool
+    import pyarrow.dataset as ds
+
+    dirs = sorted(p.name for p in shared.path.iterdir() if p.is_dir())
+    assert dirs == [f"segment={i}" for i in range(5)]
+    whole = ds.dataset(shared.path, format="parquet", partitioning="hive").to_table()
+    assert whole.num_rows == prep.n
+    # a second publish of the same rows reuses the dataset; other rows get their own
+    again = SharedParquet(str(tmp_path))
+    again.publish(prep, parts, "same fingerprint as before")
+    assert not again.reused  # the key hashes the data fingerprint too
+    reused = SharedParquet(str(tmp_path))
+    reused.publish(
+        prep,
+        parts,
+        json.loads((tmp_path / "out" / "manifest.json").read_text())["data_fingerprint"],
+    )
+    assert reused.reused and reused.path == shared.path
+
+
+def test_a_changed_shared_file_fails_its_segment_with_the_reason(tmp_path):
+    from service.batch import run_segment
+    from service.batch_parquet import SharedParquet
+    from service.core.data import prepare
+    from service.core.groups import group_parts
+
+    table = _table(2, 30)
+    prep = prepare(
+        {"columns": table}, "repair_cost", PREDICTORS.split(","), ["soil"], None, "district"
+    )
+    parts = group_parts(prep)
+    shared = SharedParquet(str(tmp_path))
+    refs = shared.publish(prep, parts, "fp")
+    ref = refs["district 01"]
+    # another segment's rows put in its place
+    import shutil
+
+    target = Path(ref.directory) / "part-0.parquet"
+    shutil.copy(Path(refs["district 00"].directory) / "part-0.parquet", target)
+    body = run_segment(ref.name, ref, None, "test", None)
+    assert body["problem"]["type"] == "urn:bestscale:problem:segment-data"
+    assert "not the rows the job wrote" in body["problem"]["detail"]
+    shutil.rmtree(ref.directory)
+    body = run_segment(ref.name, ref, None, "test", None)
+    assert "cannot read" in body["problem"]["detail"]
+    assert "same path on every worker" in body["problem"]["detail"]
+
+
+def test_workers_that_cannot_see_the_shared_dir_are_named(tmp_path):
+    from distributed import Client, LocalCluster
+    from service.batch_parquet import SegmentRef, SharedDirError, SharedParquet
+
+    ref = SegmentRef(
+        str(tmp_path / "not-mounted"), 0, "a", "y", ("x",), (), ("x", "y"), "columns", False, 3, ""
+    )
+    with (
+        LocalCluster(n_workers=1, processes=False, dashboard_address=None) as cluster,
+        Client(cluster) as client,
+    ):
+        shared = SharedParquet(str(tmp_path), client=client)
+        with pytest.raises(SharedDirError, match="1 of 1 Dask workers cannot see"):
+            shared._check_workers(ref)
+
+
+def test_a_remote_cluster_without_a_shared_dir_is_refused_before_connecting(
+    job, tmp_path, capsys, monkeypatch
+):
+    monkeypatch.delenv("BESTSCALE_SHARED_DIR", raising=False)
+    get_settings.cache_clear()
+    # port 9 (discard) on loopback: nothing listens; a connection attempt would take 20 s
+    remote = ["--cluster", "tcp://127.0.0.1:9"]
+    for extra in (["--transport", "parquet"], ["--parquet-above-mb", "0"]):
+        t = time.perf_counter()
+        code = select_main(
+            _args(job["data"], tmp_path / "o", *remote, *extra, options=job["options"])
+        )
+        assert code == 2 and time.perf_counter() - t < 15
+        err = capsys.readouterr().err
+        assert "needs a directory every worker sees" in err and "--shared-dir" in err
+        assert "--transport scatter" in err
+    with pytest.raises(SystemExit):
+        select_main(
+            _args(
+                job["data"], tmp_path / "one.json", "--transport", "parquet", options=job["options"]
+            )
+        )
+    assert "need --group-by and --out DIR" in capsys.readouterr().err
+    missing = tmp_path / "nowhere"
+    code = select_main(
+        _args(
+            job["data"],
+            tmp_path / "o2",
+            "--transport",
+            "parquet",
+            "--shared-dir",
+            str(missing),
+            options=job["options"],
+        )
+    )
+    assert code == 2 and "no such directory" in capsys.readouterr().err
