@@ -605,3 +605,52 @@ def test_a_remote_cluster_without_a_shared_dir_is_refused_before_connecting(
         )
     )
     assert code == 2 and "no such directory" in capsys.readouterr().err
+
+
+def test_cluster_job_killed_with_its_workers_resumes_from_the_shared_dataset(job, tmp_path, capsys):
+    """The job and its LocalCluster's worker processes killed by a signal mid-run: the finished
+    segments and the shared dataset survive, and the resumed job (here in this process,
+    reading the same dataset) reuses both and ends with the inline run's results."""
+    import os
+
+    shared = tmp_path / "shared"
+    shared.mkdir()
+    out = tmp_path / "killed"
+    args = _args(
+        job["data"],
+        out,
+        "--transport",
+        "parquet",
+        "--shared-dir",
+        str(shared),
+        options=job["options"],
+    )
+    cmd = _command(*args, "--cluster", "local", "--local-workers", "2")
+    # its own process group, so the signal reaches the cluster's worker processes too
+    proc = subprocess.Popen(
+        cmd, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True
+    )
+    seg_dir = out / "segments"
+    deadline = time.monotonic() + 180
+    try:
+        while time.monotonic() < deadline and proc.poll() is None:
+            if seg_dir.is_dir() and len(list(seg_dir.glob("*.json"))) >= 2:
+                break
+            time.sleep(0.05)
+    finally:
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait()
+    assert proc.returncode == -signal.SIGKILL, "the job ended before it could be killed"
+    finished = {p.name: p.stat().st_mtime_ns for p in seg_dir.glob("*.json")}
+    assert 2 <= len(finished) < 12
+    datasets = [p for p in shared.iterdir() if p.name.startswith("bestscale-segments-")]
+    assert len(datasets) == 1  # kept for the resume
+
+    assert select_main([*args, "--resume"]) == 0
+    err = capsys.readouterr().err
+    assert f"{count_of(len(finished), 'segment')} already finished" in err
+    assert f"Parquet dataset {datasets[0]} (reused, written by an earlier run)" in err
+    for name, mtime in finished.items():
+        assert (seg_dir / name).stat().st_mtime_ns == mtime
+    assert _results(out) == job["inline"]
+    assert list(shared.iterdir()) == []
