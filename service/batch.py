@@ -576,7 +576,11 @@ def run_job(
             records[name] = rec
             continue
         inc = job.incumbents.get(name)
-        opts = replace(job.opts, incumbent=inc.specification) if inc else job.opts
+        # limits.time_limit_s bounds each segment from its own start: the request-wide
+        # deadline of one HTTP request would fail every segment reached after it
+        opts = replace(job.opts, deadline_at=None)
+        if inc:
+            opts = replace(opts, incumbent=inc.specification)
         tasks.append(Task(name, sub, opts, job.version, inc.model if inc else None))
     reused = len(records)
     if shared is not None and tasks:

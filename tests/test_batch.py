@@ -19,6 +19,7 @@ import signal
 import subprocess
 import sys
 import time
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -654,3 +655,25 @@ def test_cluster_job_killed_with_its_workers_resumes_from_the_shared_dataset(job
         assert (seg_dir / name).stat().st_mtime_ns == mtime
     assert _results(out) == job["inline"]
     assert list(shared.iterdir()) == []
+
+
+def test_the_time_limit_applies_to_each_segment_not_to_the_whole_job(tmp_path):
+    """An HTTP request's options carry one deadline for the whole request; a month of
+    segments runs far longer than one request, so each segment gets the time limit from its
+    own start (options made long ago, deadline passed: every segment still runs)."""
+    from service.api.schemas import SelectionRequest
+    from service.api.selection import selection_options
+    from service.batch import Job, run_inline, run_job
+    from service.core.data import prepare
+
+    table = _table(2, 30)
+    body = {"response": "repair_cost", "predictors": PREDICTORS.split(","), **OPTIONS}
+    req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
+    opts = selection_options(req)
+    assert opts.deadline_at is not None
+    stale = replace(opts, deadline_at=time.time() - 1.0)
+    prep = prepare(
+        {"columns": table}, "repair_cost", body["predictors"], ["soil"], None, "district"
+    )
+    summary = run_job(Job(tmp_path / "out", body, prep, stale, "test"), run_inline)
+    assert summary["counts"]["ok"] == 2 and summary["counts"]["failed"] == 0
