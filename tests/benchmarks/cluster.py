@@ -83,6 +83,17 @@ def _results(out: Path) -> dict:
     }
 
 
+def cpu_counted(name, sub, opts, version, model):
+    """``run_segment`` that also reports the CPU seconds its task took (removed again before
+    the file is written)."""
+    from service.batch import run_segment
+
+    c = time.process_time()
+    body = run_segment(name, sub, opts, version, model)
+    body["_task_cpu_s"] = time.process_time() - c
+    return body
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--segments", type=int, default=1000)
@@ -110,15 +121,35 @@ def main() -> int:
         f"{segment_bytes(prep) / 2**20:.1f} MiB of segment columns"
     )
 
-    def timed(name, runner, shared=None):
+    cpu: dict[str, tuple[float, float]] = {}
+
+    def timed(name, runner, shared=None, worker_cpu=None):
+        """Wall time, and CPU per segment, which the machine's load disturbs far less: of this
+        process (the client, and a LocalCluster's scheduler, which runs here), inside the
+        tasks, and (cluster) of the worker processes in all, so the rest is Dask's own work
+        in the workers."""
         job = Job(tmp / name, body, prep, opts, "bench")
-        t = time.perf_counter()
-        summary = run_job(job, runner, shared=shared)
+        in_tasks = [0.0]
+
+        def counted(tasks):
+            for seg, b in runner(tasks):
+                in_tasks[0] += b.pop("_task_cpu_s", 0.0)
+                yield seg, b
+
+        w0 = worker_cpu() if worker_cpu else 0.0
+        c0, t = time.process_time(), time.perf_counter()
+        summary = run_job(job, counted, shared=shared)
         dt = time.perf_counter() - t
+        here = time.process_time() - c0
+        work = (worker_cpu() - w0) if worker_cpu else float("nan")
+        cpu[name] = (here, in_tasks[0], work)
         c = summary["counts"]
+        ms = 1000 / args.segments
         print(
             f"{name:<23}: {dt:8.1f} s  {args.segments / dt:7.2f} segments/s  "
-            f"({dt / args.segments * 1000:.1f} ms per segment; {c['ok']} ok, {c['failed']} failed)"
+            f"({dt * ms:.1f} ms per segment; {c['ok']} ok, {c['failed']} failed)\n"
+            f"{'':<23}  CPU per segment: {here * ms:.1f} ms here, {in_tasks[0] * ms:.1f} ms in "
+            f"tasks" + (f", {work * ms:.1f} ms in worker processes" if worker_cpu else "")
         )
         return dt
 
@@ -126,22 +157,33 @@ def main() -> int:
     t_in = None
     if not args.skip_inline:
         runs.append("in-process (baseline)")
-        t_in = timed(runs[-1], run_inline)
+        t_in = timed(runs[-1], partial(run_inline, fn=cpu_counted))
     # the pool starts its processes inside the timing (it lives for one call)
     runs.append(f"pool, {args.workers} processes")
-    t_pool = timed(runs[-1], partial(run_pool, processes=args.workers))
+    t_pool = timed(runs[-1], partial(run_pool, processes=args.workers, fn=cpu_counted))
     t = time.perf_counter()
     session = DaskSession("local", args.workers)
     session.client.run(lambda: __import__("service.batch"))  # workers import the code once
     t_start = time.perf_counter() - t
     print(f"cluster start-up (once): {t_start:8.1f} s  dashboard {session.dashboard}")
+
+    def cluster_cpu() -> float:
+        return sum(session.client.run(time.process_time).values())
+
     try:
         runs.append("cluster, scatter")
-        t_scatter = timed(runs[-1], partial(run_dask, client=session.client))
+        t_scatter = timed(
+            runs[-1], partial(run_dask, client=session.client, fn=cpu_counted), None, cluster_cpu
+        )
         shared = SharedParquet(None, client=session.client)
         runs.append("cluster, parquet")
         try:
-            t_parquet = timed(runs[-1], partial(run_dask, client=session.client), shared)
+            t_parquet = timed(
+                runs[-1],
+                partial(run_dask, client=session.client, fn=cpu_counted),
+                shared,
+                cluster_cpu,
+            )
         finally:
             shared.close(finished=True)
     finally:
@@ -160,6 +202,14 @@ def main() -> int:
     if t_in is not None:
         ratio("pool / in-process", t_pool, t_in)
         ratio("scatter / in-process", t_scatter, t_in)
+    pool_here, pool_tasks, _ = cpu[runs[-3]]
+    for name in runs[-2:]:
+        here, tasks, work = cpu[name]
+        print(
+            f"CPU {name} / pool: in tasks {tasks / pool_tasks:.3f}, here "
+            f"{here / pool_here:.3f}; Dask's own work in the workers "
+            f"{(work - tasks) / args.segments * 1000:+.1f} ms per segment"
+        )
     results = [_results(tmp / r) for r in runs]
     same = all(r == results[0] for r in results[1:])
     print(f"same segment results   : {same}  (files under {tmp})")
