@@ -8,7 +8,8 @@ The segments are independent tasks; where they run is the runner's business:
 - ``dask``: a Dask distributed cluster, a running scheduler (``tcp://HOST:8786``) or a
   ``LocalCluster`` started for the job.  Tasks are submitted in a sliding window, so each
   segment's rows travel with its own task (scattered first when they are large) and the
-  scheduler never holds the whole table.
+  scheduler never holds the whole table; or, for large data, each task carries only a
+  reference to its partition of a shared Parquet dataset (:mod:`service.batch_parquet`).
 
 Every result goes to ``DIR/segments/<file>.json`` through a temporary name and a rename, so a
 killed job leaves only whole files.  ``DIR/manifest.json`` records the request, seed,

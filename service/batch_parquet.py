@@ -35,8 +35,6 @@ from typing import Any
 
 import numpy as np
 
-from .batch import BatchRefusal
-
 FORMAT = "bestscale-segments"
 MARKER = "_complete.json"
 PARTITION = "segment"
@@ -48,8 +46,9 @@ def _part_number(name: str) -> int:
     return int(_PART.fullmatch(name).group(1))
 
 
-class SharedDirError(BatchRefusal):
-    """The shared directory cannot serve the job (not writable, not seen by a worker)."""
+class SharedDirError(Exception):
+    """The shared directory cannot serve the job (not writable, not seen by a worker); the
+    command refuses with the message, as it does a ``batch.BatchRefusal``."""
 
 
 @dataclass(frozen=True)
@@ -232,8 +231,6 @@ class SharedParquet:
         import pyarrow as pa
         import pyarrow.dataset as ds
 
-        from .batch import atomic_write, dumps
-
         # rows of the usable segments, grouped by segment, each segment in its input order
         names = np.array(list(parts), dtype=object)
         labels, inverse = np.unique(prep.groups, return_inverse=True)
@@ -267,9 +264,9 @@ class SharedParquet:
                 max_open_files=1024,
                 existing_data_behavior="overwrite_or_ignore",
             )
-            atomic_write(
-                staging / MARKER,
-                dumps(
+            # written inside the staging directory, which appears whole under its final name
+            (staging / MARKER).write_text(
+                json.dumps(
                     {
                         "format": FORMAT,
                         "key": key,
@@ -281,8 +278,10 @@ class SharedParquet:
                             **({"order": "order column"} if prep.order_values is not None else {}),
                         },
                         "segment_names": {str(index[n]): n for n in names.tolist()},
-                    }
+                    },
+                    ensure_ascii=False,
                 ),
+                encoding="utf-8",
             )
             if final.exists():  # a dataset a killed run left half-written: ours replaces it
                 shutil.rmtree(final)

@@ -176,10 +176,11 @@ def select_main(argv: list[str]) -> int:
         req = SelectionRequest.model_validate(body)
         if to_dir:
             from .batch import BatchRefusal
+            from .batch_parquet import SharedDirError
 
             try:
                 return _batch(req, body, args, cluster)
-            except BatchRefusal as exc:
+            except (BatchRefusal, SharedDirError) as exc:
                 sys.stderr.write(f"{exc}\n")
                 return 2
         group_mapper = None
