@@ -99,7 +99,7 @@ def serve(argv: list[str]) -> int:
     directory, ours = metrics_dir(args.workers)
     import uvicorn
 
-    from .logs import logging_config
+    from .api.logs import logging_config
 
     try:
         uvicorn.run(

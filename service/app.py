@@ -7,13 +7,12 @@ from contextlib import asynccontextmanager
 
 from fastapi import FastAPI
 
-from . import docs_page, errors, openapi
-from .api import pool
+from .api import docs_page, errors, openapi, pool
 from .api.diagnostics import router as diagnostics_router
+from .api.metrics import mark_this_process_dead
+from .api.middleware import GuardMiddleware, ServiceMiddleware
 from .api.predictions import router as predictions_router
 from .api.routes import router
-from .metrics import mark_this_process_dead
-from .middleware import GuardMiddleware, ServiceMiddleware
 from .settings import get_settings
 from .version import __version__
 
@@ -76,7 +75,7 @@ def create_app() -> FastAPI:
         docs_public=s.docs_public,
     )
     if s.cors_origins:
-        from .middleware import ProblemCORSMiddleware
+        from .api.middleware import ProblemCORSMiddleware
 
         app.add_middleware(
             ProblemCORSMiddleware,

@@ -37,7 +37,7 @@ from .core.numbers import count_of
 if TYPE_CHECKING:
     from .batch_parquet import SharedParquet
     from .core.data import Prepared
-    from .core.search_setup import SearchOptions
+    from .selection.search_setup import SearchOptions
 
 MANIFEST = "manifest.json"
 SUMMARY = "summary.json"
@@ -121,7 +121,7 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     """
     from .api.selection import finish_body
     from .batch_parquet import SegmentRef, SharedDirError
-    from .core.groups import select_group
+    from .selection.groups import select_group
 
     _pin_blas_once()
     if isinstance(sub, SegmentRef):
@@ -196,10 +196,10 @@ def run_inline(tasks: list[Task], fn=run_segment) -> Iterator[tuple[str, dict]]:
 
 
 def run_pool(tasks: list[Task], processes: int, fn=run_segment) -> Iterator[tuple[str, dict]]:
-    """This machine's worker processes (the pool of service/core/workers.py)."""
+    """This machine's worker processes (the pool of service/selection/workers.py)."""
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
-    from .core.workers import _context, _init_worker
+    from .selection.workers import _context, _init_worker
 
     if processes <= 1 or len(tasks) <= 1:
         yield from run_inline(tasks, fn)
@@ -534,7 +534,7 @@ def run_job(
     With ``shared`` the segments' rows go to the shared Parquet dataset (written once, or
     reused when a finished one holds the same rows) and each task carries a reference to its
     own partition instead of the rows."""
-    from .core.groups import group_parts
+    from .selection.groups import group_parts
 
     out = job.out
     seg_dir = out / SEGMENTS

@@ -9,7 +9,7 @@ adds both checks at the connection level, per server process:
   opened or of its previous response (else it is closed);
 * past ``max_connections`` open connections a new one is closed at once.
 
-The body has its own deadline (setting BESTSCALE_BODY_TIMEOUT_S, service.middleware).
+The body has its own deadline (setting BESTSCALE_BODY_TIMEOUT_S, service.api.middleware).
 """
 
 from __future__ import annotations

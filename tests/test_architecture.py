@@ -1,4 +1,6 @@
-"""The numerical core stays free of web imports, so it can be used and tested without HTTP."""
+"""The floors of the package: imports point only downwards, the core and the selection layer
+stay free of web (and the core of plotting) imports, so they can be used and tested without
+HTTP."""
 
 import ast
 from pathlib import Path
@@ -7,10 +9,18 @@ import pytest
 
 CORE = Path(__file__).resolve().parents[1] / "service" / "core"
 WEB = {"fastapi", "starlette", "pydantic", "pydantic_settings", "uvicorn", "httpx", "httpx2"}
+PLOTTING = {"matplotlib"}
+#: packages a floor must not import
+FORBIDDEN = {"core": WEB | PLOTTING, "selection": WEB | PLOTTING, "report": WEB}
+FLOOR_FILES = [
+    (floor, p) for floor in FORBIDDEN for p in sorted((CORE.parent / floor).glob("*.py"))
+]
 
 
-@pytest.mark.parametrize("path", sorted(CORE.glob("*.py")), ids=lambda p: p.name)
-def test_core_module_has_no_web_import(path):
+@pytest.mark.parametrize(
+    ("floor", "path"), FLOOR_FILES, ids=[f"{f}/{p.name}" for f, p in FLOOR_FILES]
+)
+def test_lower_floors_import_no_web_or_plotting_package(floor, path):
     tree = ast.parse(path.read_text())
     for node in ast.walk(tree):
         if isinstance(node, ast.Import):
@@ -20,7 +30,7 @@ def test_core_module_has_no_web_import(path):
         else:
             continue
         for name in names:
-            assert name.split(".")[0] not in WEB, f"{path.name} imports {name}"
+            assert name.split(".")[0] not in FORBIDDEN[floor], f"{floor}/{path.name} imports {name}"
 
 
 def test_core_modules_exist():
@@ -79,3 +89,46 @@ def test_no_import_cycles_in_the_package():
     for m in sorted(modules):
         if m not in state:
             visit(m)
+
+
+#: floors of the package, top to bottom; a module may import its own floor and those below
+FLOORS = {
+    "api": ("api", "selection", "report", "core", "base"),
+    "selection": ("selection", "core"),
+    "report": ("report", "core"),
+    "core": ("core",),
+}
+#: top-level modules every floor above the core may read (configuration, version)
+BASE = {"service.settings", "service.version"}
+
+
+def _floor(module: str) -> str:
+    parts = module.split(".")
+    if len(parts) > 2 and parts[1] in FLOORS:
+        return parts[1]
+    return "base" if module in BASE else "top"
+
+
+def test_imports_point_only_downwards():
+    root = CORE.parent
+    modules = {
+        ".".join(p.relative_to(root.parent).with_suffix("").parts): p
+        for p in root.rglob("*.py")
+        if p.name != "__init__.py"
+    }
+    wrong = []
+    for m, p in sorted(modules.items()):
+        floor = _floor(m)
+        if floor not in FLOORS:
+            continue  # entry points (app, cli, batch, server) may import every floor
+        for n in sorted(_imports_of(p, root)):
+            target = next((t for t in (n, n.rsplit(".", 1)[0]) if t in modules), None)
+            if target is not None and _floor(target) not in FLOORS[floor]:
+                wrong.append(f"{m} ({floor}) imports {target} ({_floor(target)})")
+    assert not wrong, "\n".join(wrong)
+
+
+def test_the_floors_hold_modules():
+    root = CORE.parent
+    for floor in FLOORS:
+        assert len(list((root / floor).glob("*.py"))) >= 4, floor

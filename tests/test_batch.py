@@ -475,7 +475,7 @@ def test_each_parquet_task_carries_a_reference_and_reads_only_its_segment(job, t
     from service.batch import Job, run_inline, run_job
     from service.batch_parquet import SegmentRef, SharedParquet
     from service.core.data import prepare
-    from service.core.groups import group_parts
+    from service.selection.groups import group_parts
 
     table = _table(5, 30, seed=4)
     table["day"] = [float(i % 17) for i in range(len(table["district"]))]  # an order column
@@ -530,7 +530,7 @@ def test_a_changed_shared_file_fails_its_segment_with_the_reason(tmp_path):
     from service.batch import run_segment
     from service.batch_parquet import SharedParquet
     from service.core.data import prepare
-    from service.core.groups import group_parts
+    from service.selection.groups import group_parts
 
     table = _table(2, 30)
     prep = prepare(

@@ -154,7 +154,7 @@ def test_cli_output_equals_the_api_for_csv_and_parquet(tmp_path, client):
 def test_cli_groups_use_the_worker_process_setting_while_showing_progress(tmp_path, monkeypatch):
     # BESTSCALE_GROUP_PROCESSES applies on the command line too, where --group-by always
     # shows a progress line (the progress once replaced the process mapper by a serial loop)
-    import service.core.workers as workers
+    import service.selection.workers as workers
     from service.settings import get_settings
 
     used: list[int] = []

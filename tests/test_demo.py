@@ -60,9 +60,9 @@ def test_demo_rank_1_survives_single_row_drops():
     # measures the share over many drops, here two seeded drops must both keep rank 1
     import numpy as np
     from service.core.data import prepare
-    from service.core.search import run_selection
-    from service.core.search_setup import SearchOptions
     from service.demo import demo_columns
+    from service.selection.search import run_selection
+    from service.selection.search_setup import SearchOptions
 
     cols = demo_columns()
     for drop in np.random.default_rng(3).choice(len(cols["repair_cost"]), 2, replace=False):

@@ -12,11 +12,11 @@ from fastapi.testclient import TestClient
 from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
-from service.core.trust import assess_trust
-from service.core.workers import process_mapper
 from service.demo import demo_columns
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
+from service.selection.trust import assess_trust
+from service.selection.workers import process_mapper
 from service.settings import get_settings
 from threadpoolctl import threadpool_limits
 

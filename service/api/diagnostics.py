@@ -7,13 +7,13 @@ from pydantic import Field
 from starlette.responses import Response
 
 from ..core.data import prepare
-from ..core.diagnose import diagnose_specification
 from ..core.errors import InputError
-from ..core.search_setup import SearchOptions
-from ..middleware import note_result
+from ..selection.diagnose import diagnose_specification
+from ..selection.search_setup import SearchOptions
 from ..version import __version__
 from .encode import JSONBody
 from .intake import check_table
+from .middleware import note_result
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn, SpecificationIn, ValidationIn, _Strict
@@ -97,7 +97,7 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
         note_result({"data": prep.data_summary()})
         fmt = _wanted_image(request)
         if fmt is not None:
-            from ..figures import render_figure
+            from ..report.figures import render_figure
 
             image = render_figure(plots, fmt, title=entry["equation"])
             media = "image/svg+xml" if fmt == "svg" else "image/png"

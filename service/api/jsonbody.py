@@ -27,7 +27,7 @@ from itertools import chain
 
 import orjson
 
-from ..errors import ProblemError
+from .errors import ProblemError
 
 _KEY_END_SPACED = re.compile(rb'"[ \t\r\n]+:')
 _CONTAINERS = (dict, list)

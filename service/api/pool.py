@@ -13,9 +13,9 @@ import threading
 from contextlib import contextmanager
 from typing import TypedDict
 
-from ..errors import ProblemError
-from ..metrics import BUSY, CAPACITY
 from ..settings import get_settings
+from .errors import ProblemError
+from .metrics import BUSY, CAPACITY
 
 RETRY_AFTER_S = 2
 

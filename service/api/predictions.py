@@ -7,12 +7,12 @@ from typing import Any
 from fastapi import APIRouter
 from pydantic import BaseModel, ConfigDict, Field
 
-from ..core.cautions import prediction_cautions
 from ..core.predict import load_model, predict
-from ..middleware import note_result
+from ..selection.cautions import prediction_cautions
 from ..settings import get_settings
 from .encode import JSONBody
 from .intake import check_table
+from .middleware import note_result
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn

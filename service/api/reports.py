@@ -6,10 +6,11 @@ from fastapi import APIRouter, Request
 from starlette.responses import HTMLResponse
 
 from ..core.data import prepare
-from ..errors import ProblemError
-from ..middleware import note_result
-from ..report_html import CSP, render_report, report_plots
+from ..report.html import CSP, render_report
+from ..selection.plots import report_plots
 from .encode import to_jsonable
+from .errors import ProblemError
+from .middleware import note_result
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import SelectionRequest

@@ -1,6 +1,6 @@
 """Response bodies of the HTTP contract, as JSON Schema for the OpenAPI document.
 
-The core builds responses as plain dicts; these models only describe them (service/openapi.py
+The core builds responses as plain dicts; these models only describe them (service/api/openapi.py
 puts their schemas in the document, and the fuzz tests check every response against them).
 Every object admits more fields than listed: the contract only ever adds fields.  Numbers are
 finite or ``null``.

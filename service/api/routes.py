@@ -6,9 +6,9 @@ from fastapi import APIRouter, Request
 from starlette.responses import PlainTextResponse
 
 from ..core import transforms as tr
-from ..middleware import note_result
 from ..version import __version__
 from .encode import JSONBody
+from .middleware import note_result
 from .pool import compute_slot
 from .reports import report_response, wants_html
 from .routing import StrictRoute

@@ -18,8 +18,8 @@ from fastapi import Request
 from fastapi.routing import APIRoute
 from starlette.requests import ClientDisconnect
 
-from ..errors import ProblemError
 from . import jsonbody
+from .errors import ProblemError
 
 JSON_TYPES = ("application/json",)
 MULTIPART = "multipart/form-data"

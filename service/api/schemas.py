@@ -13,7 +13,7 @@ from typing import Annotated, Any, Literal, overload
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
 from ..core import transforms as tr
-from ..core.strategy import EXHAUSTIVE_LIMIT
+from ..selection.strategy import EXHAUSTIVE_LIMIT
 
 TransformName = Literal[
     "identity",

@@ -11,13 +11,13 @@ from typing import Any
 from fastapi import Request
 
 from ..core import transforms as tr
-from ..core.cautions import selection_cautions
 from ..core.data import prepare
 from ..core.errors import InputError
-from ..core.groups import run_grouped
 from ..core.model import sign_all
-from ..core.search import run_selection
-from ..core.search_setup import SearchOptions
+from ..selection.cautions import selection_cautions
+from ..selection.groups import run_grouped
+from ..selection.search import run_selection
+from ..selection.search_setup import SearchOptions
 from ..settings import get_settings
 from ..version import __version__
 from .intake import check_table
@@ -137,7 +137,7 @@ def run_selection_request(
 
             mapper = mapped_with_progress
         elif get_settings().group_processes > 1:
-            from ..core.workers import process_mapper
+            from ..selection.workers import process_mapper
 
             mapper = process_mapper(
                 get_settings().group_processes,
@@ -159,7 +159,7 @@ def run_selection_request(
         return finish_body(body, opts)
     body = run_selection(prep, opts, __version__)
     if req.trust.stability or req.trust.optimism:
-        from ..core.trust import assess_trust
+        from ..selection.trust import assess_trust
 
         body["trust"] = assess_trust(
             prep,

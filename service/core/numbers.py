@@ -18,6 +18,7 @@ table's precision.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 P_FLOOR = 1e-4
 _PLAIN_LOW = 1e-4
@@ -77,3 +78,9 @@ def p_is(p: float) -> str:
 def count_of(n: int, noun: str, plural: str | None = None) -> str:
     """``1 candidate`` / ``3 candidates``: a count with its noun in the right number."""
     return f"{n} {noun if n == 1 else (plural or noun + 's')}"
+
+
+def failure_text(group: dict[str, Any]) -> str:
+    """``12 candidates: reason`` or ``30 candidates, for example: reason``."""
+    sep = ":" if group["wordings"] == 1 else ", for example:"
+    return f"{count_of(group['candidates'], 'candidate')}{sep} {group['reason']}"

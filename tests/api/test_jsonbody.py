@@ -14,7 +14,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from service.api import jsonbody
-from service.errors import ProblemError
+from service.api.errors import ProblemError
 
 _keys = st.text(alphabet='ab":\\ {}', min_size=0, max_size=3)
 _scalars = st.none() | st.booleans() | st.integers(-10, 10) | st.floats(-1e6, 1e6) | _keys

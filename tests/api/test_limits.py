@@ -527,7 +527,7 @@ def test_one_access_line_per_request_with_id_route_status_duration(make_app, cap
             content=b"{",
             headers={"Content-Type": "application/json", "X-Request-ID": "line-2"},
         )
-    from service.logs import JsonFormatter
+    from service.api.logs import JsonFormatter
 
     fmt = JsonFormatter()
     lines = [
@@ -616,7 +616,7 @@ def test_real_routes_log_their_rows_and_candidates(make_app, caplog):
 
 
 def test_rows_and_candidates_reach_the_access_line_and_the_metrics(make_app, caplog):
-    from service.middleware import note_result
+    from service.api.middleware import note_result
 
     app = make_app()
 

@@ -15,8 +15,8 @@ from service.app import create_app
 from service.core import retransform
 from service.core.data import prepare
 from service.core.model import build_model, checksum
-from service.core.report import fitted_model
 from service.core.spec import Specification, build_design
+from service.selection.entries import fitted_model
 
 
 def _paths(app) -> set[str]:

@@ -12,7 +12,8 @@ from hypothesis import strategies as st
 from service.api.reports import wants_html
 from service.app import app
 from service.demo import demo_request
-from service.report_html import DETAIL_TOP, inline_svg, num
+from service.report.html import inline_svg, num
+from service.selection.plots import DETAIL_TOP
 
 from tests.browser.report_case import demo_report, report_request
 

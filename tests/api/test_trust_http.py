@@ -1,4 +1,4 @@
-"""The optional trust block over HTTP (the measures themselves: tests/core/test_trust.py)."""
+"""The optional trust block over HTTP (the measures themselves: tests/selection/test_trust.py)."""
 
 import numpy as np
 from fastapi.testclient import TestClient

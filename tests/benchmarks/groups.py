@@ -28,9 +28,9 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 from service.api.encode import to_jsonable
 from service.core.data import prepare, split_groups
 from service.core.errors import BestscaleError
-from service.core.groups import problem_of, run_grouped, select_group
-from service.core.search_setup import SearchOptions
-from service.core.workers import map_in_processes
+from service.selection.groups import problem_of, run_grouped, select_group
+from service.selection.search_setup import SearchOptions
+from service.selection.workers import map_in_processes
 from threadpoolctl import threadpool_limits
 
 

@@ -22,8 +22,8 @@ from tests.benchmarks._common import Timer, machine, pin_blas, water_mains
 pin_blas(1)
 
 from service.core.data import prepare
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
 
 # spaces small enough for the exhaustive search: 3 x 3^5 = 729 and 2 x 2^10 = 2048 candidates
 REDUCED = {5: ("identity", "log", "sqrt"), 10: ("identity", "log")}

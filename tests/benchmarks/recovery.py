@@ -27,8 +27,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from service.core.data import prepare
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
 
 ID = "identity"
 

@@ -33,8 +33,8 @@ def one(n: int, time_limit: float, trace: bool = False) -> dict:
     import tracemalloc
 
     from service.core.data import prepare
-    from service.core.search import run_selection
-    from service.core.search_setup import SearchOptions
+    from service.selection.search import run_selection
+    from service.selection.search_setup import SearchOptions
 
     cols = water_mains(n, 5, seed=1)
     lists = {k: v.tolist() for k, v in cols.items()}

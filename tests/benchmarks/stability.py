@@ -21,9 +21,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from recovery import _data
 from service.core.data import prepare
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
 from service.demo import demo_columns
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
 
 CLEAR = ("log-log power law", "sqrt predictor", "categorical, log response", "mixed")
 

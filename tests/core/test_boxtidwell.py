@@ -14,8 +14,8 @@ from scipy.optimize import curve_fit
 from service.core import boxtidwell as bt
 from service.core.data import prepare
 from service.core.folds import make_plan
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
 
 
 def _data(a_true: float, seed: int, n: int = 400):
@@ -135,8 +135,8 @@ def test_power_is_estimated_again_in_every_training_fold():
 def test_screening_powers_stop_at_the_deadline():
     import time
 
-    from service.core import candidates as cand
     from service.core import transforms as tr
+    from service.selection import candidates as cand
 
     rng = np.random.default_rng(9)
     n = 300

@@ -21,9 +21,9 @@ from service.core import transforms as tr
 from service.core.crossval import cross_validate
 from service.core.data import prepare
 from service.core.folds import make_plan
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
 from service.core.spec import build_design
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
 from sklearn.model_selection import KFold
 
 

@@ -24,8 +24,8 @@ from service.core.interpret import (
     interpret_terms,
     shortcut_applies,
 )
-from service.core.report import fitted_model
 from service.core.spec import Specification
+from service.selection.entries import fitted_model
 
 CAUSAL = re.compile(
     r"\b(increase[sd]?|increasing|cause[sd]?|causing|drives?|driving|"

@@ -22,8 +22,8 @@ from service.core.data import prepare
 from service.core.errors import InputError
 from service.core.model import build_model, checksum
 from service.core.predict import _bad_domain, load_model, predict
-from service.core.report import fitted_model
 from service.core.spec import Specification
+from service.selection.entries import fitted_model
 
 
 @pytest.fixture

@@ -137,7 +137,7 @@ def test_conditions_that_hold_keep_classical_readings(client):
 
 
 def test_report_uses_and_names_the_chosen_standard_errors(client):
-    from service.report_html import num
+    from service.report.html import num
 
     x, y = _engel()
     body = {

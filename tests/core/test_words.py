@@ -5,8 +5,8 @@ import pytest
 from service.core import transforms as tr
 from service.core.data import prepare
 from service.core.numbers import fmt, fmt_p, p_is
-from service.core.report import equation
 from service.core.spec import Specification, build_design, term_label
+from service.selection.entries import equation
 
 
 def test_numbers_rule():
@@ -95,7 +95,7 @@ def test_interval_words_match_the_estimate():
 
 def test_cautions_only_where_they_apply():
     # source: product rule (cautions that apply to the request, naming the metric used)
-    from service.core.cautions import EXTRAPOLATION, prediction_cautions, selection_cautions
+    from service.selection.cautions import EXTRAPOLATION, prediction_cautions, selection_cautions
 
     rmse = selection_cautions("rmse", True)
     assert EXTRAPOLATION not in rmse  # a selection makes no predictions

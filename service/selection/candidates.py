@@ -25,14 +25,14 @@ from typing import Any
 
 import numpy as np
 
-from . import boxtidwell as bt
-from . import transforms as tr
-from ._types import FloatArray, TransformItem
-from .bank import ColumnBank, FoldIndex
-from .data import Prepared
-from .errors import CandidateFailure, FieldProblem, InputError, pointer
-from .likelihood import fit_transform
-from .spec import PredictorSpec, Specification, categorical_levels, term_label
+from ..core import boxtidwell as bt
+from ..core import transforms as tr
+from ..core._types import FloatArray, TransformItem
+from ..core.bank import ColumnBank, FoldIndex
+from ..core.data import Prepared
+from ..core.errors import CandidateFailure, FieldProblem, InputError, pointer
+from ..core.likelihood import fit_transform
+from ..core.spec import PredictorSpec, Specification, categorical_levels, term_label
 
 DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
 DEFAULT_PREDICTOR = ("identity", "log", "sqrt", "reciprocal", "square")

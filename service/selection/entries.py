@@ -7,19 +7,19 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from . import retransform
-from . import transforms as tr
-from .condition_rules import conditions_for, failed
-from .crossval import CVResult
-from .data import Prepared
-from .errors import CandidateFailure
-from .fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
-from .folds import CVPlan
-from .interpret import interpret_fit
-from .likelihood import LambdaEstimate, estimate_lambda, fit_transform
-from .model import build_model
-from .numbers import fmt
-from .spec import Design, Specification, build_design
+from ..core import retransform
+from ..core import transforms as tr
+from ..core.condition_rules import conditions_for, failed
+from ..core.crossval import CVResult
+from ..core.data import Prepared
+from ..core.errors import CandidateFailure
+from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
+from ..core.folds import CVPlan
+from ..core.interpret import interpret_fit
+from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
+from ..core.model import build_model
+from ..core.numbers import fmt
+from ..core.spec import Design, Specification, build_design
 
 if TYPE_CHECKING:  # pragma: no cover
     from .search_setup import SearchOptions

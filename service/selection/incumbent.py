@@ -17,13 +17,13 @@ from typing import Any
 
 import numpy as np
 
-from . import transforms as tr
-from .crossval import CVResult, cross_validate
-from .data import Prepared
-from .errors import CandidateFailure, InputError, pointer
-from .folds import CVPlan
-from .numbers import fmt
-from .spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
+from ..core import transforms as tr
+from ..core.crossval import CVResult, cross_validate
+from ..core.data import Prepared
+from ..core.errors import CandidateFailure, InputError, pointer
+from ..core.folds import CVPlan
+from ..core.numbers import fmt
+from ..core.spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
 
 CONDITIONS = (
     "linearity",

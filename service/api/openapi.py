@@ -15,12 +15,12 @@ from typing import Any
 from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 
-from .api import responses as rs
-from .settings import Settings
+from ..settings import Settings
+from . import responses as rs
 
 log = logging.getLogger("bestscale")
 
-EXAMPLES_DIR = Path(__file__).resolve().parents[1] / "openapi_examples"
+EXAMPLES_DIR = Path(__file__).resolve().parents[2] / "openapi_examples"
 DATA_ROWS = 40  # rows kept of an example's table
 LIST_ITEMS = 3  # items kept of any other long list
 

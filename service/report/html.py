@@ -2,15 +2,15 @@
 
 :func:`render_report` turns a selection response body (exactly what ``/v1/selections``
 returns as JSON) and the diagnostic plot data of its leading specifications into one page:
-inline CSS, inline SVG figures drawn by :func:`service.figures.render_figure`, no scripts,
+inline CSS, inline SVG figures drawn by :func:`service.report.figures.render_figure`, no scripts,
 no fonts or images fetched from anywhere, so the page works offline, when saved to disk and
 inside a dashboard's iframe.  A Content-Security-Policy ``<meta>`` forbids every fetch and
 every script, so the saved file stays inert.
 
-:func:`report_plots` builds the plot data with the same functions as ``/v1/diagnostics``
-(:func:`service.core.report.fitted_model`, :func:`service.core.condition_rules.condition_inputs`,
-:func:`service.core.plots.diagnostic_plots`), so a figure in the report is the figure that
-endpoint draws for the same specification.
+The page draws what it is handed and refits nothing: the plot data come from
+:func:`service.selection.plots.report_plots`, built with the same functions as
+``/v1/diagnostics``, so a figure in the report is the figure that endpoint draws for the
+same specification.
 
 The markup is polyglot (well-formed XML as well as HTML), and every caller-supplied string
 (column names, levels, group values) passes through :func:`html.escape`.
@@ -22,17 +22,10 @@ import html
 import math
 import re
 
-from .core.numbers import count_of, fmt, fmt_p
-from .core.search import failure_text
+from ..core.numbers import count_of, failure_text, fmt, fmt_p
 from .figures import render_figure
 from .safetext import visible
 
-#: ranked specifications shown in detail (figures, coefficients, interpretation)
-DETAIL_TOP = 3
-#: with group_by: groups whose rank-1 specification is shown in detail
-GROUP_DETAIL_LIMIT = 10
-#: points per diagnostic panel (the /v1/diagnostics default)
-PLOT_MAX_POINTS = 2000
 #: dropped rows listed in the summary
 MAX_DROPPED_LISTED = 20
 #: distinct failure reasons listed in the summary
@@ -180,52 +173,6 @@ def inline_svg(svg: bytes | str, prefix: str, label: str) -> str:
         f'<title id="{prefix}-title">{esc(label)}</title>'
     )
     return head + body.strip()
-
-
-def report_plots(
-    body: dict, prep, alpha: float, seed: int, max_points: int = PLOT_MAX_POINTS
-) -> dict:
-    """Plot data of the specifications shown in detail, keyed by ``(group, rank)``.
-
-    ``body`` is a selection response; ``prep`` the :class:`~service.core.data.Prepared`
-    rows it was computed from.  Without groups the first :data:`DETAIL_TOP` ranks are
-    drawn (group ``None``); with groups, rank 1 of the first :data:`GROUP_DETAIL_LIMIT`
-    groups that have a ranking.  A value is the dict of ``diagnostic_plots`` or, when the
-    specification cannot be refitted, the reason as a string.
-    """
-    out: dict = {}
-    if body.get("groups"):
-        from .core.data import split_groups
-
-        parts = split_groups(prep)
-        shown = 0
-        for name, gbody in body["groups"].items():
-            if shown >= GROUP_DETAIL_LIMIT:
-                break
-            sub = parts.get(name)
-            if not gbody.get("ranking") or sub is None or isinstance(sub, Exception):
-                continue
-            out[(name, 1)] = _plots_for(gbody["ranking"][0], sub, alpha, seed, max_points)
-            shown += 1
-        return out
-    for entry in body.get("ranking", [])[:DETAIL_TOP]:
-        out[(None, entry["rank"])] = _plots_for(entry, prep, alpha, seed, max_points)
-    return out
-
-
-def _plots_for(entry: dict, prep, alpha: float, seed: int, max_points: int):
-    from .core.condition_rules import condition_inputs
-    from .core.errors import CandidateFailure
-    from .core.plots import diagnostic_plots
-    from .core.report import fitted_model
-    from .core.spec import Specification
-
-    try:
-        _, design, fit, _ = fitted_model(Specification.from_dict(entry["specification"]), prep)
-        inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, alpha)
-        return diagnostic_plots(inp, max_points=max_points, seed=seed)
-    except CandidateFailure as exc:
-        return f"the specification could not be refitted for plotting: {exc.reason}"
 
 
 def _figure(plots, entry: dict, prefix: str) -> str:

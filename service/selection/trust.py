@@ -62,17 +62,17 @@ from typing import Any
 
 import numpy as np
 
-from . import transforms as tr
-from ._types import Mapper
-from .condition_rules import CONDITION_NAMES, conditions_for, failed_for_ranking
-from .crossval import cross_validate
-from .data import Prepared
-from .errors import BestscaleError, CandidateFailure, InputError
-from .folds import CVPlan, make_plan
-from .report import fitted_model
+from ..core import transforms as tr
+from ..core._types import Mapper
+from ..core.condition_rules import CONDITION_NAMES, conditions_for, failed_for_ranking
+from ..core.crossval import cross_validate
+from ..core.data import Prepared
+from ..core.errors import BestscaleError, CandidateFailure, InputError
+from ..core.folds import CVPlan, make_plan
+from ..core.spec import Specification, SpecKey, build_design
+from .entries import fitted_model
 from .search import rank, run_selection
 from .search_setup import Scored, SearchOptions
-from .spec import Specification, SpecKey, build_design
 
 DEFAULT_RESAMPLES = 20
 MAX_RESAMPLES = 1000

@@ -12,9 +12,9 @@ import numpy as np
 import pytest
 from service.core.data import prepare
 from service.core.errors import InputError
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
-from service.core.trust import (
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
+from service.selection.trust import (
     OPTIMISM_WARN_RATIO,
     assess_trust,
     has_estimated_power,

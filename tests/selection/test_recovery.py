@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from service.core.data import prepare
 from service.core.likelihood import estimate_lambda
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
 
 SEEDS = [11, 12, 13]
 

@@ -1,7 +1,7 @@
 """Metrics with several worker processes: any process's scrape reports the sum over all of
 them, and the live gauges of a process that is gone no longer count.
 
-Each "worker" is a small Python process that imports only service.metrics, with
+Each "worker" is a small Python process that imports only service.api.metrics, with
 PROMETHEUS_MULTIPROC_DIR set as ``python -m service --workers N`` sets it.
 """
 
@@ -14,11 +14,11 @@ from pathlib import Path
 
 import pytest
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 WORKER = """
 import os, sys
-from service import metrics
+from service.api import metrics
 n, how = int(sys.argv[1]), sys.argv[2]
 metrics.REQUESTS.labels("/healthz", "200").inc(n)
 metrics.LATENCY.labels("/healthz", "200").observe(0.02 * n)
@@ -34,7 +34,7 @@ os._exit(0)  # "crash": no clean-up at all
 """
 
 SCRAPE = """
-from service import metrics
+from service.api import metrics
 print(metrics.exposition()[0].decode())
 """
 

@@ -12,10 +12,10 @@ from typing import Any
 
 import numpy as np
 
-from .crossval import CVResult
-from .data import Prepared
-from .errors import InputError
-from .spec import Specification
+from ..core.crossval import CVResult
+from ..core.data import Prepared
+from ..core.errors import InputError
+from ..core.spec import Specification
 
 
 @dataclass

@@ -10,9 +10,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from service.core.data import prepare
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
-from service.core.strategy import EXHAUSTIVE_LIMIT
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
+from service.selection.strategy import EXHAUSTIVE_LIMIT
 
 
 def _problem(seed: int, n: int = 220, p: int = 3):

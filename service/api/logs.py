@@ -59,7 +59,7 @@ def logging_config(level: str) -> dict:
             "bestscale": {"handlers": ["stdout"], "level": lvl, "propagate": False},
             "uvicorn": {"handlers": ["stdout"], "level": lvl, "propagate": False},
             "uvicorn.error": {"level": lvl},
-            # the service writes its own access line per request (service.middleware)
+            # the service writes its own access line per request (service.api.middleware)
             "uvicorn.access": {"handlers": [], "level": "WARNING", "propagate": False},
         },
     }

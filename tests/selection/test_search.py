@@ -6,9 +6,9 @@ from service.core import transforms as tr
 from service.core.crossval import CVResult
 from service.core.data import prepare
 from service.core.errors import BudgetError, InputError
-from service.core.search import rank, run_selection
-from service.core.search_setup import Scored, SearchOptions
 from service.core.spec import PredictorSpec, Specification
+from service.selection.search import rank, run_selection
+from service.selection.search_setup import Scored, SearchOptions
 
 
 def _scored(resp: str, pred: str, value: float, se: float, folds=None) -> Scored:
@@ -167,7 +167,7 @@ def test_linear_data_keep_the_identity_scale():
 
 def test_grouped_selection_shares_one_time_budget():
     from service.core.data import prepare as prep_fn
-    from service.core.groups import run_grouped
+    from service.selection.groups import run_grouped
 
     rng = np.random.default_rng(5)
     n = 240

@@ -9,9 +9,9 @@ from collections.abc import Callable, Iterable
 from dataclasses import replace
 from typing import Any
 
-from .data import Prepared, split_groups
-from .errors import BestscaleError, BudgetError
-from .numbers import count_of
+from ..core.data import Prepared, split_groups
+from ..core.errors import BestscaleError, BudgetError
+from ..core.numbers import count_of
 from .search import EntryHook, run_selection
 from .search_setup import SearchOptions
 from .trust import assess_trust

@@ -33,7 +33,7 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.middleware.cors import CORSMiddleware
 from starlette.responses import Response
 
-from .api import pool
+from . import pool
 from .errors import PROBLEM, internal_error_bytes, problem_bytes
 from .logs import REQUEST_ID
 from .metrics import CANDIDATES, ERRORS, IN_FLIGHT, LATENCY, REQUESTS, ROWS

@@ -1,6 +1,6 @@
 """RFC 9457 problem details: one place that maps every known error to a response.
 
-Layers: the outer middleware (service/middleware.py) turns anything unexpected into a bare
+Layers: the outer middleware (service/api/middleware.py) turns anything unexpected into a bare
 500 problem carrying only the request id; the handlers installed here map the known error
 classes (validation, domain errors, HTTP errors, the web layer's own problems) to 4xx/503
 problems whose ``errors[].pointer`` is a JSON Pointer (RFC 6901) into the request.
@@ -17,7 +17,7 @@ from fastapi.exceptions import RequestValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.responses import Response
 
-from .core.errors import BestscaleError, BudgetError, InputError, ModelFailure
+from ..core.errors import BestscaleError, BudgetError, InputError, ModelFailure
 from .metrics import REJECTED
 
 log = logging.getLogger("bestscale")
@@ -289,7 +289,7 @@ def install(app: FastAPI) -> None:
 
     @app.exception_handler(StarletteHTTPException)
     async def _http(request: Request, exc: StarletteHTTPException):
-        # the body problems of service.middleware carry their own kind and title
+        # the body problems of service.api.middleware carry their own kind and title
         titles = {404: "Not found", 405: "Method not allowed", 413: "Request body too large"}
         kinds = {404: "not-found", 405: "method-not-allowed", 413: "too-large"}
         return problem(
@@ -303,7 +303,7 @@ def install(app: FastAPI) -> None:
 
     @app.exception_handler(Exception)
     async def _unexpected(request: Request, exc: Exception):
-        # Last resort only: service.middleware.ServiceMiddleware answers unexpected errors of
+        # Last resort only: service.api.middleware.ServiceMiddleware answers unexpected errors of
         # the application; this catches a failure of the middleware itself.
         log.error(
             "unhandled error outside the service middleware",

@@ -20,28 +20,28 @@ from typing import Any
 
 import numpy as np
 
-from . import boxtidwell as bt
-from . import candidates as cand
-from . import incumbent
-from . import transforms as tr
-from .bank import FoldIndex
-from .condition_rules import CONDITION_NAMES, failed, failed_for_ranking
-from .crossval import from_score
-from .data import Prepared
-from .errors import (
+from ..core import boxtidwell as bt
+from ..core import transforms as tr
+from ..core.bank import FoldIndex
+from ..core.condition_rules import CONDITION_NAMES, failed, failed_for_ranking
+from ..core.crossval import from_score
+from ..core.data import Prepared
+from ..core.errors import (
     BudgetError,
     CandidateFailure,
     InputError,
     ModelFailure,
     pointer,
 )
-from .fastcv import Dynamic, Scorer
-from .folds import CVPlan, make_plan
-from .likelihood import estimate_lambda, fit_transform
-from .numbers import count_of
-from .report import entry_for
+from ..core.fastcv import Dynamic, Scorer
+from ..core.folds import CVPlan, make_plan
+from ..core.likelihood import estimate_lambda, fit_transform
+from ..core.numbers import count_of, failure_text
+from ..core.spec import PredictorSpec, Specification, SpecKey, build_design
+from . import candidates as cand
+from . import incumbent
+from .entries import entry_for
 from .search_setup import Scored, SearchOptions, check_rows
-from .spec import PredictorSpec, Specification, SpecKey, build_design
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
 DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
@@ -69,12 +69,6 @@ def failure_groups(reasons: dict[str, int]) -> list[dict[str, Any]]:
         {"reason": g[1], "candidates": g[0], "wordings": g[3]}
         for g in ordered[:MAX_FAILURES_LISTED]
     ]
-
-
-def failure_text(group: dict[str, Any]) -> str:
-    """``12 candidates: reason`` or ``30 candidates, for example: reason``."""
-    sep = ":" if group["wordings"] == 1 else ", for example:"
-    return f"{count_of(group['candidates'], 'candidate')}{sep} {group['reason']}"
 
 
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale

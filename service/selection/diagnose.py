@@ -5,17 +5,17 @@ from __future__ import annotations
 
 from typing import Any
 
-from . import transforms as tr
+from ..core import transforms as tr
+from ..core.condition_rules import condition_inputs, failed
+from ..core.crossval import cross_validate
+from ..core.data import Prepared
+from ..core.errors import CandidateFailure, InputError, ModelFailure, pointer
+from ..core.folds import make_plan
+from ..core.plots import diagnostic_plots
+from ..core.spec import Specification, build_design, resolve_predictor_transforms
 from .candidates import check_explicit
-from .condition_rules import condition_inputs, failed
-from .crossval import cross_validate
-from .data import Prepared
-from .errors import CandidateFailure, InputError, ModelFailure, pointer
-from .folds import make_plan
-from .plots import diagnostic_plots
-from .report import entry_for, fitted_model
+from .entries import entry_for, fitted_model
 from .search_setup import SearchOptions, check_rows
-from .spec import Specification, build_design, resolve_predictor_transforms
 
 
 def diagnose_specification(

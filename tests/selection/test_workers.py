@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from service.api.encode import to_jsonable
 from service.core.data import prepare
-from service.core.search import run_selection
-from service.core.search_setup import SearchOptions
-from service.core.workers import map_in_processes, process_mapper
+from service.selection.search import run_selection
+from service.selection.search_setup import SearchOptions
+from service.selection.workers import map_in_processes, process_mapper
 
 
 def _square_and_pid(x: int) -> tuple[int, int]:

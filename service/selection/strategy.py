@@ -40,15 +40,15 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from . import boxtidwell as bt
-from . import transforms as tr
+from ..core import boxtidwell as bt
+from ..core import transforms as tr
+from ..core.fitting import solve_batch
 from .candidates import MAX_ESTIMATED_POWERS, Space, allowed, make_spec
-from .fitting import solve_batch
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .data import Prepared
+    from ..core.data import Prepared
+    from ..core.spec import Specification, SpecKey
     from .search_setup import Scored
-    from .spec import Specification, SpecKey
 
 EXHAUSTIVE_LIMIT = 1000
 BEAM = 3

@@ -17,7 +17,8 @@ from hypothesis import strategies as st
 from hypothesis.configuration import set_hypothesis_home_dir
 from service.core import transforms as tr
 from service.core.crossval import CVResult
-from service.core.search import (
+from service.core.spec import PredictorSpec, Specification
+from service.selection.search import (
     Band,
     Scored,
     band_order,
@@ -25,7 +26,6 @@ from service.core.search import (
     dominates,
     rank,
 )
-from service.core.spec import PredictorSpec, Specification
 
 # keep hypothesis' cache out of the repository (see tests/api/test_selection_errors.py)
 set_hypothesis_home_dir(os.path.join(tempfile.gettempdir(), "bestscale-hypothesis"))

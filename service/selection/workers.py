@@ -28,7 +28,7 @@ from typing import Any, TypeVar
 _T = TypeVar("_T")
 _R = TypeVar("_R")
 
-_PRELOAD = ["service.core.search", "service.core.trust"]
+_PRELOAD = ["service.selection.search", "service.selection.trust"]
 
 
 def _context() -> BaseContext:

@@ -1,0 +1,72 @@
+"""Plot data of the specifications a report shows in detail.
+
+Built with the same functions as ``/v1/diagnostics`` (:func:`.entries.fitted_model`,
+:func:`service.core.condition_rules.condition_inputs`, :func:`service.core.plots.diagnostic_plots`),
+so a figure in the report is the figure that endpoint draws for the same specification.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from ..core.condition_rules import condition_inputs
+from ..core.data import Prepared, split_groups
+from ..core.errors import CandidateFailure
+from ..core.plots import diagnostic_plots
+from ..core.spec import Specification
+from .entries import fitted_model
+
+#: ranked specifications shown in detail (figures, coefficients, interpretation)
+DETAIL_TOP = 3
+#: with group_by: groups whose rank-1 specification is shown in detail
+GROUP_DETAIL_LIMIT = 10
+#: points per diagnostic panel (the /v1/diagnostics default)
+PLOT_MAX_POINTS = 2000
+
+
+#: plot data (or the reason there is none) keyed by ``(group, rank)``
+ReportPlots = dict[tuple[str | None, int], "dict[str, Any] | str"]
+
+
+def report_plots(
+    body: dict[str, Any],
+    prep: Prepared,
+    alpha: float,
+    seed: int,
+    max_points: int = PLOT_MAX_POINTS,
+) -> ReportPlots:
+    """Plot data of the specifications shown in detail, keyed by ``(group, rank)``.
+
+    ``body`` is a selection response; ``prep`` the :class:`~service.core.data.Prepared`
+    rows it was computed from.  Without groups the first :data:`DETAIL_TOP` ranks are
+    drawn (group ``None``); with groups, rank 1 of the first :data:`GROUP_DETAIL_LIMIT`
+    groups that have a ranking.  A value is the dict of ``diagnostic_plots`` or, when the
+    specification cannot be refitted, the reason as a string.
+    """
+    out: ReportPlots = {}
+    if body.get("groups"):
+        parts = split_groups(prep)
+        shown = 0
+        for name, gbody in body["groups"].items():
+            if shown >= GROUP_DETAIL_LIMIT:
+                break
+            sub = parts.get(name)
+            if not gbody.get("ranking") or sub is None or isinstance(sub, Exception):
+                continue
+            out[(name, 1)] = _plots_for(gbody["ranking"][0], sub, alpha, seed, max_points)
+            shown += 1
+        return out
+    for entry in body.get("ranking", [])[:DETAIL_TOP]:
+        out[(None, entry["rank"])] = _plots_for(entry, prep, alpha, seed, max_points)
+    return out
+
+
+def _plots_for(
+    entry: dict[str, Any], prep: Prepared, alpha: float, seed: int, max_points: int
+) -> dict[str, Any] | str:
+    try:
+        _, design, fit, _ = fitted_model(Specification.from_dict(entry["specification"]), prep)
+        inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, alpha)
+        return diagnostic_plots(inp, max_points=max_points, seed=seed)
+    except CandidateFailure as exc:
+        return f"the specification could not be refitted for plotting: {exc.reason}"
