@@ -86,7 +86,10 @@ def test_counts_add_up_over_processes_and_dead_gauges_drop_out(tmp_path):
 def test_entry_point_prepares_a_fresh_directory_only_for_several_workers(monkeypatch, tmp_path):
     from service.__main__ import metrics_dir
 
-    monkeypatch.delenv("PROMETHEUS_MULTIPROC_DIR", raising=False)
+    # set first, so that monkeypatch records the variable's state and restores it at the end
+    # (metrics_dir sets it; left behind, it sent later subprocesses to a removed directory)
+    monkeypatch.setenv("PROMETHEUS_MULTIPROC_DIR", "")
+    monkeypatch.delenv("PROMETHEUS_MULTIPROC_DIR")
     assert metrics_dir(1) == (None, False)
     made, ours = metrics_dir(2)
     try:
