@@ -43,7 +43,8 @@ _PART = re.compile(r"part-(\d+)\.parquet")
 
 
 def _part_number(name: str) -> int:
-    return int(_PART.fullmatch(name).group(1))
+    m = _PART.fullmatch(name)
+    return int(m.group(1)) if m else -1
 
 
 class SharedDirError(Exception):
