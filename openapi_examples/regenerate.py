@@ -38,7 +38,7 @@ def main() -> None:
                 {"pipe_length_m": 35.0, "pipe_age_years": 12, "soil": "loam"},
                 {"pipe_length_m": 220.0, "pipe_age_years": 55, "soil": "clay"},
                 {"pipe_length_m": 900.0, "pipe_age_years": 30, "soil": "sand"}]},
-            "interval": 0.9}
+            "interval": 0.9, "interval_method": "cv_plus"}
     diag = {"data": sel["data"],
             "specification": answers["selections"]["ranking"][0]["specification"],
             "alpha": 0.05, "units": sel["units"], "max_points": 200}

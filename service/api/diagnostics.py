@@ -6,6 +6,7 @@ from fastapi import APIRouter, Request
 from pydantic import Field
 from starlette.responses import Response
 
+from ..core.conditions import DEFAULT_ALPHA
 from ..core.data import prepare
 from ..core.errors import InputError
 from ..selection.diagnose import diagnose_specification
@@ -14,6 +15,7 @@ from ..version import __version__
 from .encode import JSONBody
 from .intake import check_table
 from .middleware import note_result
+from .negotiation import preferred
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import DataIn, SpecificationIn, ValidationIn, _Strict
@@ -26,7 +28,9 @@ IMAGE_TYPES = {"image/svg+xml": "svg", "image/png": "png"}
 class DiagnosticsRequest(_Strict):
     data: DataIn
     specification: SpecificationIn
-    alpha: float = Field(0.05, gt=0, lt=0.5, description="significance level of condition tests")
+    alpha: float = Field(
+        DEFAULT_ALPHA, gt=0, lt=0.5, description="significance level of condition tests"
+    )
     order: str | None = Field(
         None, description="column giving observation order; enables independence tests"
     )
@@ -44,14 +48,14 @@ class DiagnosticsRequest(_Strict):
 
 
 def _wanted_image(request: Request) -> str | None:
-    accept = request.headers.get("accept", "")
-    for part in accept.split(","):
-        kind = part.split(";")[0].strip().lower()
-        if kind in IMAGE_TYPES:
-            return IMAGE_TYPES[kind]
-        if kind in ("application/json", "*/*", ""):
-            return None
-    return None
+    """ "svg" or "png" when the Accept header prefers that image to JSON (the first listed
+    wins on equal q), else None."""
+    kind = preferred(
+        request.headers.get("accept", ""),
+        ("application/json", *IMAGE_TYPES),
+        tie_to_default=False,
+    )
+    return IMAGE_TYPES.get(kind)
 
 
 @router.post(

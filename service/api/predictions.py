@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Literal
 
 from fastapi import APIRouter
 from pydantic import BaseModel, ConfigDict, Field
@@ -28,13 +28,19 @@ class PredictionRequest(BaseModel):
     model: dict[str, Any] = Field(..., description="a ranking entry's 'model', sent back unchanged")
     data: DataIn = Field(..., description="rows to predict: every predictor column of the model")
     interval: float = Field(0.95, gt=0, lt=1, description="coverage of the prediction interval")
+    interval_method: Literal["normal", "cv_plus"] | None = Field(
+        None,
+        description="normal: t interval on the model scale (normal errors); cv_plus: CV+ "
+        "interval from the out-of-fold residuals stored in the model (no normality needed). "
+        "Left out: cv_plus when normality fails on the model's entry, else normal",
+    )
 
 
 def run_prediction_request(req: PredictionRequest) -> dict:
     data = req.data.as_dict()
     check_table(data)
     model = load_model(req.model, get_settings().model_keys())
-    out = predict(model, data, req.interval)
+    out = predict(model, data, req.interval, req.interval_method)
     out["cautions"] = prediction_cautions(
         not model.spec.response_transform.is_identity,
         any(p["extrapolation"] for p in out["predictions"]),

@@ -11,6 +11,7 @@ from ..selection.plots import report_plots
 from .encode import to_jsonable
 from .errors import ProblemError
 from .middleware import note_result
+from .negotiation import preferred
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import SelectionRequest
@@ -72,22 +73,7 @@ def report_response(req: SelectionRequest, request: Request | None = None) -> HT
 def wants_html(accept: str) -> bool:
     """True when an Accept header prefers ``text/html`` to JSON (q-values honoured; a tie,
     ``*/*`` alone or no header keeps JSON, the default)."""
-    best = {"html": 0.0, "json": 0.0}
-    for part in accept.split(","):
-        fields = [f.strip() for f in part.split(";")]
-        kind = fields[0].lower()
-        q = 1.0
-        for f in fields[1:]:
-            if f.lower().startswith("q="):
-                try:
-                    q = float(f[2:])
-                except ValueError:
-                    q = 0.0
-        if kind == HTML_TYPE:
-            best["html"] = max(best["html"], q)
-        elif kind in ("application/json", "application/*", "*/*") or kind.endswith("+json"):
-            best["json"] = max(best["json"], q)
-    return best["html"] > 0 and best["html"] > best["json"]
+    return preferred(accept, ("application/json", HTML_TYPE), tie_to_default=True) == HTML_TYPE
 
 
 @router.post(

@@ -153,6 +153,12 @@ class InferenceOut(_Open):
         None, description="Newey-West lags, floor(4 (n/100)^(2/9)); only with an order column"
     )
     hac_lag_rule: str | None = None
+    prediction_intervals: Literal["normal", "cv_plus"] = Field(
+        ...,
+        description="interval_method /v1/predictions uses for this entry's model when the "
+        "request leaves it out: cv_plus when normality fails, otherwise normal",
+    )
+    prediction_interval_reason: str = Field(..., description="why, in one clause")
 
 
 class ConditionTestOut(_Open):
@@ -267,6 +273,17 @@ class PredictionOut(_Open):
 
 class PredictionsResponse(_Open):
     predictions: list[PredictionOut] = Field(..., description="one per input row, in order")
+    interval: float = Field(..., description="coverage of the prediction intervals")
+    interval_method: Literal["normal", "cv_plus"] = Field(
+        ...,
+        description="normal: t interval on the model scale; cv_plus: CV+ (Barber, Candes, "
+        "Ramdas & Tibshirani 2021) from the model's out-of-fold residuals",
+    )
+    interval_method_reason: str = Field(
+        ...,
+        description="why, in one clause: asked for in the request, or the model's condition "
+        "results (cv_plus when normality fails)",
+    )
     warnings: list[str]
     cautions: list[str] = Field(
         ...,

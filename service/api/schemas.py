@@ -13,6 +13,7 @@ from typing import Annotated, Any, Literal, overload
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
 from ..core import transforms as tr
+from ..core.conditions import DEFAULT_ALPHA
 from ..selection.strategy import EXHAUSTIVE_LIMIT
 
 TransformName = Literal[
@@ -361,7 +362,11 @@ class SelectionRequest(_Strict):
         default_factory=ValidationIn, description="cross-validation settings"
     )
     alpha: float = Field(
-        0.05, gt=0, lt=0.5, description="significance level of condition tests", examples=[0.05]
+        DEFAULT_ALPHA,
+        gt=0,
+        lt=0.5,
+        description="significance level of condition tests",
+        examples=[0.05],
     )
     top: int = Field(5, ge=1, le=100, description="ranked specifications to return", examples=[5])
     limits: LimitsIn = Field(default_factory=LimitsIn, description="search budget")

@@ -6,36 +6,38 @@ test has one guarded runner that returns a JSON-friendly entry
 auxiliary regression, zero residuals) returns ``statistic``/``p_value`` ``None`` and a
 ``reason``; it never raises and never returns NaN or infinity.
 
-The statistics themselves come from statsmodels and scipy.  A few quantities use an exact
-closed form instead of a library call, because the library route refits the model once per
-row or costs O(n^2) and so cannot serve a million rows; each is checked against statsmodels
-in the tests:
+Every least-squares computation runs on one thin singular value decomposition of the
+design (:class:`LeastSquares`, the decomposition statsmodels' ``pinv`` fit makes): the fit,
+the hat values, the auxiliary regressions of RESET, the rainbow test, Breusch-Pagan, White and
+Breusch-Godfrey (each an added-variable or small auxiliary solve, O(n k^2), never a refit of
+the whole model).  The tests check every statistic against the statsmodels function named in
+its ``source`` to 1e-8.  Distribution functions come from scipy, the normality and
+Durbin-Watson statistics from statsmodels and scipy.  A few quantities use an exact closed
+form instead of a library call, because the library route refits the model once per row or
+costs O(n^2) and so cannot serve a million rows:
 
 * externally studentised residuals, t_i = r_i sqrt((n-p-1)/(n-p-r_i^2)), and
   DFFITS_i = t_i sqrt(h_ii/(1-h_ii)) (Belsley, Kuh & Welsch 1980, ch. 2), where
   ``OLSInfluence`` runs a leave-one-out loop;
 * the added-variable t-test of one extra regressor (Frisch & Waugh 1933; Lovell 1963),
   instead of one more full OLS fit per predictor;
-* the Ljung & Box (1978) Q statistic above :data:`LJUNG_BOX_DIRECT_MAX_N` rows, from the
-  FFT autocorrelations of ``statsmodels.tsa.stattools.acf``.
+* the Ljung & Box (1978) Q statistic from the FFT autocorrelations of
+  ``statsmodels.tsa.stattools.acf`` (``acorr_ljungbox`` takes O(n^2) time: 17 s at 20,000
+  rows).
 """
 
 from __future__ import annotations
 
 import math
-import warnings
-from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 from scipy import stats
 from scipy.linalg import qr
-from statsmodels.regression.linear_model import OLS, OLSResults
 from statsmodels.stats import diagnostic as smd
 from statsmodels.stats import stattools as smt
-from statsmodels.tools.sm_exceptions import SingularMatrixWarning
 from statsmodels.tsa.stattools import acf
 
 #: residual norm below this fraction of the response's spread counts as an exact fit
@@ -44,8 +46,6 @@ PERFECT_FIT_RTOL = 1e-8
 LEVERAGE_ONE_TOL = 1e-10
 #: scipy documents Shapiro-Wilk p-values as unreliable above 5000 rows
 SHAPIRO_MAX_N = 5000
-#: statsmodels' acorr_ljungbox computes autocorrelations in O(n^2); above this use the FFT form
-LJUNG_BOX_DIRECT_MAX_N = 20_000
 #: White's auxiliary design is n x q; skip it above this many cells (time and memory budget)
 WHITE_MAX_CELLS = 5_000_000
 #: the rainbow test sorts all rows by Mahalanobis distance; skip it above this many rows
@@ -85,24 +85,93 @@ def guarded(name: str, compute: Callable[[], dict[str, Any]], **meta: Any) -> di
     return entry
 
 
-@contextmanager
-def _rank_quiet() -> Iterator[None]:
-    """Silence statsmodels' rank-deficiency warning around one fit.
+@dataclass(frozen=True, eq=False)
+class LeastSquares:
+    """Least squares on the thin SVD X = U diag(s) V' (the decomposition of statsmodels'
+    ``pinv`` fit): minimum-norm coefficients, projections and the rank.
 
-    Used only where rank is handled explicitly: statsmodels counts degrees of freedom by
-    numerical rank, and rank deficiency itself is reported under multicollinearity.  (On
-    Python 3.11 ``catch_warnings`` edits the process-wide filter list; the worst a concurrent
-    thread can see is this one warning category silenced for a moment.)
+    Singular values at or below ``max(s) * max(n, p) * eps`` (numpy's ``matrix_rank`` rule)
+    count as zero, so a rank-deficient design (e.g. a dummy repeated by its square) is solved
+    on its column space.
     """
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", SingularMatrixWarning)
-        yield
+
+    U: np.ndarray  # n x rank, orthonormal basis of the column space
+    s: np.ndarray  # rank singular values
+    Vt: np.ndarray  # rank x p
+    n_columns: int
+
+    @classmethod
+    def of(cls, X: np.ndarray) -> LeastSquares:
+        U, s, Vt = np.linalg.svd(X, full_matrices=False)
+        keep = s > (s[0] if s.size else 0.0) * max(X.shape) * np.finfo(float).eps
+        return cls(U[:, keep], s[keep], Vt[keep], int(X.shape[1]))
+
+    @property
+    def rank(self) -> int:
+        return int(self.s.size)
+
+    def coef(self, y: np.ndarray) -> np.ndarray:
+        """Minimum-norm least-squares coefficients of ``y`` (vector or columns)."""
+        out: np.ndarray = self.Vt.T @ ((self.U.T @ y).T / self.s).T
+        return out
+
+    def fitted(self, y: np.ndarray) -> np.ndarray:
+        out: np.ndarray = self.U @ (self.U.T @ y)
+        return out
+
+    def residual(self, y: np.ndarray) -> np.ndarray:
+        out: np.ndarray = y - self.fitted(y)
+        return out
+
+    def hat(self) -> np.ndarray:
+        """Diagonal of the hat matrix, h_ii = ||U_i||^2."""
+        out: np.ndarray = np.einsum("ij,ij->i", self.U, self.U)
+        return out
 
 
-def ols(z: np.ndarray, X: np.ndarray) -> Any:  # statsmodels results (no type information)
-    """statsmodels OLS (pinv) fit; a rank-deficient design is accepted (see _rank_quiet)."""
-    with _rank_quiet():
-        return OLS(z, X).fit()
+#: scaled Gram matrices of auxiliary designs above this condition number are solved by SVD
+AUX_COND_LIMIT = 1e7
+
+
+def _residual_and_rank(y: np.ndarray, A: np.ndarray) -> tuple[np.ndarray, int]:
+    """Residual of ``y`` on ``A`` and the rank of ``A``.
+
+    A well-conditioned design (scaled Gram matrix below :data:`AUX_COND_LIMIT`) is solved by
+    Cholesky on its cross-products, one O(n q^2) product; the residual is then formed from
+    the rows, so its accuracy is that of the coefficients (about cond * eps, below 1e-9).
+    Any other design, rank-deficient ones included, goes to the SVD of :class:`LeastSquares`.
+    """
+    norms = np.sqrt(np.einsum("ij,ij->j", A, A))
+    if np.all(norms > 0):
+        As = A / norms
+        G = As.T @ As
+        w = np.linalg.eigvalsh(G)
+        if w[0] > 0 and w[-1] / w[0] < AUX_COND_LIMIT:
+            b = np.linalg.solve(G, As.T @ y)
+            return y - As @ b, int(A.shape[1])
+    ls = LeastSquares.of(A)
+    return ls.residual(y), ls.rank
+
+
+def _auxiliary(y: np.ndarray, A: np.ndarray) -> dict[str, float]:
+    """Auxiliary regression of ``y`` on ``A`` that contains a constant: R^2 (centred), the
+    overall F statistic and p-value, model and residual degrees of freedom (rank based, as
+    statsmodels' ``OLS(y, A).fit()`` reports them)."""
+    e, rank = _residual_and_rank(y, A)
+    ssr = float(e @ e)
+    d = y - y.mean()
+    tss = float(d @ d)
+    df_model = rank - 1
+    df_resid = y.shape[0] - rank
+    r2 = 1.0 - ssr / tss
+    F = ((tss - ssr) / df_model) / (ssr / df_resid)
+    return {
+        "r2": r2,
+        "F": F,
+        "F_p": float(stats.f.sf(F, df_model, df_resid)),
+        "df_model": float(df_model),
+        "df_resid": float(df_resid),
+    }
 
 
 @dataclass(frozen=True, eq=False)
@@ -122,7 +191,8 @@ class Fit:
 
     z: np.ndarray
     X: np.ndarray
-    res: Any  # statsmodels RegressionResultsWrapper (the library has no type information)
+    ls: LeastSquares
+    params: np.ndarray  # minimum-norm coefficients
     n: int
     rank: int
     df_resid: int
@@ -137,16 +207,17 @@ class Fit:
 
 def fit_model(z: np.ndarray, X: np.ndarray, has_intercept: bool) -> Fit:
     """Fit ``z`` on ``X`` by OLS and compute the influence measures once."""
-    res = ols(z, X)
+    ls = LeastSquares.of(X)
     n = int(z.shape[0])
-    rank = int(res.model.rank)
-    resid = np.asarray(res.resid, dtype=float)
-    fitted = np.asarray(res.fittedvalues, dtype=float)
+    rank = ls.rank
+    params = ls.coef(z)
+    fitted = X @ params
+    resid = z - fitted
     rss = float(resid @ resid)
     constant_cols = np.ptp(X, axis=0) == 0
     spans_constant = bool(has_intercept or np.any(constant_cols & (X[0] != 0)))
     if not spans_constant:
-        ones_hat = X @ res.model.pinv_wexog.sum(axis=1)
+        ones_hat = ls.fitted(np.ones(n))
         spans_constant = bool(np.linalg.norm(ones_hat - 1.0) < 1e-8 * math.sqrt(n))
     spread = float(np.linalg.norm(z - z.mean())) if spans_constant else float(np.linalg.norm(z))
     # the second term absorbs rounding when z itself is (nearly) constant
@@ -156,11 +227,12 @@ def fit_model(z: np.ndarray, X: np.ndarray, has_intercept: bool) -> Fit:
         reason = f"no residual degrees of freedom ({n} rows, {rank} estimated coefficients)"
     elif math.sqrt(rss) <= tol:
         reason = "the residuals are all zero (the model fits the data exactly)"
-    infl = None if reason else _influence(res, n - rank)
+    infl = None if reason else _influence(ls.hat(), resid, n - rank, int(X.shape[1]))
     return Fit(
         z=z,
         X=X,
-        res=res,
+        ls=ls,
+        params=params,
         n=n,
         rank=rank,
         df_resid=n - rank,
@@ -174,13 +246,14 @@ def fit_model(z: np.ndarray, X: np.ndarray, has_intercept: bool) -> Fit:
     )
 
 
-def _influence(res: Any, df_resid: int) -> Influence:
-    # Rows with leverage 1 give 0/0 in statsmodels' formulas; they are set to NaN explicitly.
+def _influence(h: np.ndarray, resid: np.ndarray, df_resid: int, k: int) -> Influence:
+    """Cook (1977) and Belsley, Kuh & Welsch (1980) measures from the hat values: those of
+    statsmodels' ``OLSInfluence`` (``k`` the number of design columns, as it counts them),
+    without its per-row loop.  Rows with leverage 1 give 0/0; they are set to NaN."""
     with np.errstate(all="ignore"):
-        infl = res.get_influence()
-        h = np.asarray(infl.hat_matrix_diag, dtype=float)
-        r = np.asarray(infl.resid_studentized_internal, dtype=float)
-        cooks = np.asarray(infl.cooks_distance[0], dtype=float)
+        scale = float(resid @ resid) / df_resid
+        r = resid / np.sqrt(scale * (1.0 - h))
+        cooks = r**2 / k * h / (1.0 - h)
         if df_resid >= 2:
             t = r * np.sqrt((df_resid - 1) / (df_resid - r**2))
         else:
@@ -248,7 +321,7 @@ def reset_test(fit: Fit) -> dict[str, Any]:
             raise NotApplicable("the model has no predictors, so the fitted values are constant")
         s = s / scale
         powers = np.column_stack([s**2, s**3])
-        resid_part = powers - fit.X @ (fit.res.model.pinv_wexog @ powers)
+        resid_part = fit.ls.residual(powers)
         rel = np.linalg.norm(resid_part, axis=0) / np.linalg.norm(powers, axis=0)
         use = [k for k in range(2) if rel[k] > 1e-7]
         if not use:
@@ -258,12 +331,19 @@ def reset_test(fit: Fit) -> dict[str, Any]:
             )
         if fit.df_resid - len(use) < 1:
             raise NotApplicable(f"too few rows ({fit.n}) for the RESET auxiliary regression")
-        res_u = ols(fit.z, np.column_stack([fit.X, powers[:, use]]))
-        F, p, df_num = res_u.compare_f_test(fit.res)
+        # the added columns' parts orthogonal to X explain what the larger model adds
+        # (Frisch-Waugh-Lovell): no refit of the model
+        added = LeastSquares.of(resid_part[:, use])
+        df_num = added.rank
+        df_u = fit.df_resid - df_num
+        if df_u < 1:
+            raise NotApplicable(f"too few rows ({fit.n}) for the RESET auxiliary regression")
+        rss_u = float(np.sum(added.residual(fit.resid) ** 2))
+        F = (fit.rss - rss_u) / df_num / rss_u * df_u
         return {
             "statistic": F,
-            "p_value": p,
-            "df": [float(df_num), float(res_u.df_resid)],
+            "p_value": float(stats.f.sf(F, df_num, df_u)),
+            "df": [float(df_num), float(df_u)],
             "powers": [k + 2 for k in use],
         }
 
@@ -293,9 +373,18 @@ def rainbow_test(fit: Fit) -> dict[str, Any]:
             raise NotApplicable(
                 f"too few rows ({fit.n}) for a central half larger than the number of coefficients"
             )
-        with _rank_quiet():  # a half-sample may lose a rare dummy level; df use its rank
-            F, p = smd.linear_rainbow(fit.res, frac=0.5, use_distance=True)
-        return {"statistic": F, "p_value": p}
+        # rows ordered by Mahalanobis distance from the centroid of the design, ties broken
+        # by the design's values (never the response), as statsmodels orders them
+        X = fit.X
+        err = X - X.mean(axis=0, keepdims=True)
+        vi = np.linalg.pinv(err.T @ err / fit.n)
+        dist2 = np.einsum("ij,ij->i", err @ vi, err)  # squared distance: the same order
+        idx = np.lexsort((*X.T[::-1], dist2))[low : math.floor(low + 0.5 * fit.n)]
+        mid = LeastSquares.of(X[idx])  # a half-sample may lose a rare dummy level: rank df
+        ss_mid = float(np.sum(mid.residual(fit.z[idx]) ** 2))
+        df_mid = idx.size - mid.rank
+        F = (fit.rss - ss_mid) / (fit.n - idx.size) / ss_mid * df_mid
+        return {"statistic": F, "p_value": float(stats.f.sf(F, fit.n - idx.size, df_mid))}
 
     return guarded(
         "Rainbow (Utts)",
@@ -310,7 +399,7 @@ def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, float, 
 
     Identical to refitting OLS with the extra column (Frisch-Waugh-Lovell theorem).
     """
-    v_perp = v - fit.X @ (fit.res.model.pinv_wexog @ v)
+    v_perp = fit.ls.residual(v)
     vv = float(v_perp @ v_perp)
     if vv <= 1e-20 * float(v @ v):
         raise NotApplicable("the squared term is already in the model's column space")
@@ -343,7 +432,7 @@ def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict[str, Any]:
     lo, hi = w.min(), w.max()
     if not np.any((w != lo) & (w != hi)):
         raise NotApplicable("the predictor takes fewer than three distinct values")
-    b = float(np.asarray(fit.res.params)[j])
+    b = float(fit.params[j])
     sign = 1.0
     if raw is not None and np.ptp(raw) > 0 and np.corrcoef(raw, w)[0, 1] < 0:
         sign = -1.0
@@ -434,13 +523,14 @@ def breusch_pagan_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
         assert Z is not None  # absent only when the fit has no residuals
         if Z.shape[1] < 2:
             raise NotApplicable("the model has no predictors to relate the spread to")
-        lm, p, fval, fp = smd.het_breuschpagan(fit.resid, Z, robust=True)
+        aux = _auxiliary(fit.resid**2, Z)
+        lm = fit.n * aux["r2"]
         return {
             "statistic": lm,
-            "p_value": p,
+            "p_value": float(stats.chi2.sf(lm, aux["df_model"])),
             "df": float(Z.shape[1] - 1),
-            "f_statistic": fval,
-            "f_p_value": fp,
+            "f_statistic": aux["F"],
+            "f_p_value": aux["F_p"],
         }
 
     return guarded(
@@ -473,9 +563,16 @@ def white_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
                 f"omitted: White's auxiliary design ({fit.n} x {q}) exceeds the computing "
                 "budget; the Breusch-Pagan test still uses every row"
             )
-        with _rank_quiet():  # squares of 0/1 dummies repeat them; statsmodels uses the rank
-            lm, p, fval, fp = smd.het_white(fit.resid, Z)
-        return {"statistic": lm, "p_value": p, "f_statistic": fval, "f_p_value": fp}
+        i0, i1 = np.triu_indices(k)
+        # squares of 0/1 dummies repeat them: degrees of freedom use the rank
+        aux = _auxiliary(fit.resid**2, Z[:, i0] * Z[:, i1])
+        lm = fit.n * aux["r2"]
+        return {
+            "statistic": lm,
+            "p_value": float(stats.chi2.sf(lm, aux["df_model"])),
+            "f_statistic": aux["F"],
+            "f_p_value": aux["F_p"],
+        }
 
     return guarded("White", compute, source="White (1980); statsmodels.stats.diagnostic.het_white")
 
@@ -508,24 +605,33 @@ def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict[str, Any]:
 
     def compute() -> dict[str, Any]:
         _require_residuals(fit)
-        extra = 0 if fit.spans_constant else 1  # statsmodels adds a constant if X lacks one
+        extra = 0 if fit.spans_constant else 1  # a constant is added if X lacks one
         if fit.df_resid - nlags - extra < 1:
             raise NotApplicable(f"too few rows ({fit.n}) for {nlags} lagged residuals")
-        # OLS is permutation-equivariant: the fit's coefficients are those of the reordered
-        # rows, so the reordered results object is built without refitting.
-        res_o = OLSResults(
-            OLS(fit.z[order], fit.X[order]),
-            np.asarray(fit.res.params),
-            normalized_cov_params=fit.res.normalized_cov_params,
-        )
-        with _rank_quiet():  # the lagged-residual design inherits any rank deficiency of X
-            out = smd.acorr_breusch_godfrey(res_o, nlags=nlags, result_object=True)
+        e = fit.resid[order]
+        lags = np.zeros((fit.n, nlags))
+        for j in range(1, nlags + 1):
+            lags[j:, j - 1] = e[:-j]  # residuals before the first row count as zero
+        X = fit.X[order]
+        if extra:
+            X = np.column_stack([X, np.ones(fit.n)])
+        base = LeastSquares.of(X)
+        # the lagged residuals' parts orthogonal to X explain what they add (Frisch-Waugh-
+        # Lovell); the design inherits any rank deficiency of X, so df use ranks
+        added = LeastSquares.of(base.residual(lags))
+        e_x = base.residual(e)
+        rss_r = float(e_x @ e_x)
+        rss_u = float(np.sum(added.residual(e_x) ** 2))
+        df_u = fit.n - base.rank - added.rank
+        d = e - e.mean()
+        lm = fit.n * (1.0 - rss_u / float(d @ d))
+        F = (rss_r - rss_u) / nlags / (rss_u / df_u)
         return {
-            "statistic": out.lm,
-            "p_value": out.lmpval,
+            "statistic": lm,
+            "p_value": float(stats.chi2.sf(lm, nlags)),
             "df": float(nlags),
-            "f_statistic": out.fval,
-            "f_p_value": out.fpval,
+            "f_statistic": F,
+            "f_p_value": float(stats.f.sf(F, nlags, df_u)),
         }
 
     return guarded(
@@ -546,9 +652,6 @@ def ljung_box_test(resid_ordered: np.ndarray) -> dict[str, Any]:
             raise NotApplicable("Ljung-Box needs at least 5 rows")
         if np.ptp(resid_ordered) == 0:
             raise NotApplicable("the residuals are constant")
-        if n <= LJUNG_BOX_DIRECT_MAX_N:
-            out = smd.acorr_ljungbox(resid_ordered, lags=lags)
-            return {"statistic": out["lb_stat"].iloc[-1], "p_value": out["lb_pvalue"].iloc[-1]}
         r = acf(resid_ordered, nlags=lags, fft=True)[1:]
         q = n * (n + 2) * float(np.sum(r**2 / (n - np.arange(1, lags + 1))))
         return {"statistic": q, "p_value": stats.chi2.sf(q, lags)}

@@ -113,11 +113,6 @@ class ColumnBank:
             raise RuntimeError("the bank is not frozen yet; call freeze() first")
         return self.X
 
-    @property
-    def has_grams(self) -> bool:
-        """Whether candidates take their training matrices from stored sub-blocks."""
-        return self.G_fold is not None
-
     def columns(self, S: np.ndarray | list[int]) -> np.ndarray:
         return self._frozen()[:, S]
 

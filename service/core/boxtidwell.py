@@ -392,8 +392,3 @@ ESTIMATED = tr.Transform("power", exponent=None, estimated=True)
 def is_open(t: tr.Transform) -> bool:
     """The search's 'estimate this power' option (no exponent yet)."""
     return t.name == "power" and t.exponent is None
-
-
-def is_estimated_power(t: tr.Transform) -> bool:
-    """True for the search's open 'estimate this power' option and its fitted values."""
-    return t.estimated and (t.name == "power" or (t.name == "log" and t.shift == 0.0))

@@ -18,19 +18,10 @@ from typing import Any
 
 import numpy as np
 
-from .conditions import ConditionInputs, TermInfo, assess_conditions
+from .conditions import CONDITION_NAMES, ConditionInputs, TermInfo, assess_conditions
 from .data import Prepared
 from .fitting import OLSFit
 from .spec import Design
-
-CONDITION_NAMES = (
-    "linearity",
-    "normality",
-    "equal_variance",
-    "independence",
-    "multicollinearity",
-    "influence",
-)
 
 
 def condition_inputs(

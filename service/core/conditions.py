@@ -37,6 +37,17 @@ VIF_WARN, VIF_FAIL = 5.0, 10.0
 CONDITION_WARN = 30.0
 #: at most this many flagged rows are listed
 MAX_FLAGGED_ROWS = 50
+#: significance level of the condition tests unless a request sets ``alpha``
+DEFAULT_ALPHA = 0.05
+#: the conditions, in the order every output lists them
+CONDITION_NAMES = (
+    "linearity",
+    "normality",
+    "equal_variance",
+    "independence",
+    "multicollinearity",
+    "influence",
+)
 #: above this many rows the normality note warns that trivial departures reach significance
 LARGE_N = 1000
 
@@ -62,7 +73,7 @@ class ConditionInputs:
     terms: tuple[TermInfo, ...]
     row_ids: np.ndarray  # (n,) caller's input row number of each used row
     order: np.ndarray | None  # (n,) rows sorted by the caller's order column, or None
-    alpha: float = 0.05
+    alpha: float = DEFAULT_ALPHA
 
 
 # ------------------------------------------------------------------------------ helpers
@@ -582,16 +593,7 @@ def assess_conditions(inp: ConditionInputs) -> dict[str, Any]:
         out[key] = build(fit, inp)
     out["multicollinearity"] = _multicollinearity(fit, X, inp)
     out["hints"] = _hints(curvatures, inp.alpha)
-    keys = (
-        "linearity",
-        "normality",
-        "equal_variance",
-        "independence",
-        "multicollinearity",
-        "influence",
-        "hints",
-    )
-    return {k: out[k] for k in keys}
+    return {k: out[k] for k in (*CONDITION_NAMES, "hints")}
 
 
 #: Tukey's bulging rule: (slope sign, curvature sign) -> (bulge, x move, y move)

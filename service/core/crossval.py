@@ -23,10 +23,8 @@ import numpy as np
 
 from . import transforms as tr
 from .bank import ColumnBank, FoldIndex
-from .fastcv import Score, Scorer
+from .fastcv import OutOfFold, Score, Scorer
 from .folds import CVPlan
-
-METRICS = ("rmse", "mae", "mape")
 
 
 @dataclass
@@ -39,6 +37,7 @@ class CVResult:
     fold_lambdas: list[float] | None = None
     fold_powers: list[list[float]] | None = None  # per fold: estimated predictor powers
     exact_refits: int = 0  # folds refitted by QR because their Gram matrix was ill-conditioned
+    out_of_fold: OutOfFold | None = None  # first repeat's fold fits (CV+ intervals), when asked
 
     def to_dict(self, plan: CVPlan) -> dict[str, Any]:
         return {
@@ -64,6 +63,7 @@ def cross_validate(
     plan: CVPlan,
     shift_needed: bool,
     names: list[str] | None = None,
+    keep_out_of_fold: bool = False,
 ) -> CVResult:
     """Score one candidate.  ``X``: (n, p) full design; ``y``: (n,) original response.
 
@@ -76,7 +76,10 @@ def cross_validate(
     X = np.asarray(X, dtype=float)
     bank = ColumnBank.of_matrix(X, FoldIndex.of(plan, X.shape[0]))
     scorer = Scorer(bank, y, plan, shift_needed)
-    return from_score(scorer.score(response_transform, list(range(X.shape[1])), names))
+    cols = list(range(X.shape[1]))
+    return from_score(
+        scorer.score(response_transform, cols, names, keep_out_of_fold=keep_out_of_fold)
+    )
 
 
 def from_score(s: Score) -> CVResult:
@@ -90,4 +93,5 @@ def from_score(s: Score) -> CVResult:
         s.fold_lambdas,
         s.fold_powers,
         s.exact_refits,
+        s.out_of_fold,
     )

@@ -216,7 +216,9 @@ def _to_float(v: object) -> float | None:
         return f if math.isfinite(f) else None
     if isinstance(v, str):
         s = v.strip()
-        if s.lower() in _NON_FINITE_WORDS:
+        # Python's float() also takes digit groupings ("1_000") and digits of other scripts;
+        # a CSV reader does not, and reading them as numbers would change the caller's value
+        if s.lower() in _NON_FINITE_WORDS or "_" in s or not s.isascii():
             return None
         try:
             f = float(s)

@@ -54,6 +54,22 @@ class Dynamic:
 
 
 @dataclass
+class OutOfFold:
+    """What the first repeat's K training fits leave behind, for CV+ prediction intervals.
+
+    ``fold``: (n,) fold id of every row; ``residual``: (n,) model-scale residual of every
+    row under the fit that did not see it, z_k(y_i) - x_i'b_k with k = fold[i] and z_k the
+    response scale fitted on that fold's training rows; ``coefficients``: (K, p) the
+    training fits b_k; ``transforms``: the K concrete response scales z_k.
+    """
+
+    fold: np.ndarray
+    residual: np.ndarray
+    coefficients: np.ndarray
+    transforms: list[tr.Transform]
+
+
+@dataclass
 class Score:
     metric: str
     value: float
@@ -63,6 +79,7 @@ class Score:
     fold_lambdas: list[float] | None
     fold_powers: list[list[float]] | None
     exact_refits: int
+    out_of_fold: OutOfFold | None = None
 
 
 def _exact_refit(
@@ -140,14 +157,22 @@ class Scorer:
         cols: list[int],
         names: list[str] | None = None,
         dynamic: Dynamic | None = None,
+        keep_out_of_fold: bool = False,
     ) -> Score:
+        """``keep_out_of_fold``: also return the first repeat's fold fits and out-of-fold
+        residuals (:class:`OutOfFold`; not with per-fold estimated predictor powers)."""
         # Values near the float limits overflow in squares and products; every result is
         # checked for finiteness below and such a candidate fails with its reason.
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            return self._score(t, cols, names, dynamic)
+            return self._score(t, cols, names, dynamic, keep_out_of_fold and dynamic is None)
 
     def _score(
-        self, t: tr.Transform, cols: list[int], names: list[str] | None, dynamic: Dynamic | None
+        self,
+        t: tr.Transform,
+        cols: list[int],
+        names: list[str] | None,
+        dynamic: Dynamic | None,
+        keep: bool = False,
     ) -> Score:
         """Cross-validate the candidate (response scale ``t``, bank columns ``cols``).
 
@@ -184,6 +209,7 @@ class Scorer:
         refits = 0
         j = 0
         K = plan.folds
+        oof: OutOfFold | None = None
         for r in range(plan.repeats):
             train, test = index.train[r], index.test[r]
             # ---- per-fold response scale and training solutions
@@ -231,6 +257,11 @@ class Scorer:
             sq = np.empty(n)
             ab = np.empty(n)
             pc = np.empty(n)
+            if keep and r == 0:
+                resid = np.empty(n)
+                for k in range(K):
+                    resid[test[k]] = zs[k][test[k]] - ETA[test[k], k]
+                oof = OutOfFold(plan.assignments[0].copy(), resid, B.copy(), list(ts))
             for k in range(K):
                 te = test[k]
                 tk = ts[k]
@@ -271,7 +302,15 @@ class Scorer:
         # information (Bengio & Grandvalet 2004: no unbiased estimator exists; this one is naive).
         se = float(np.std(fold_vals, ddof=1) / math.sqrt(K)) if fold_vals.size > 1 else 0.0
         return Score(
-            plan.metric, value, se, fold_vals, summary, lambdas or None, powers or None, refits
+            plan.metric,
+            value,
+            se,
+            fold_vals,
+            summary,
+            lambdas or None,
+            powers or None,
+            refits,
+            oof,
         )
 
     # ------------------------------------------------------------- solutions

@@ -121,7 +121,12 @@ def build_model(
     prep: Prepared,
     service_version: str,
     options: dict[str, Any] | None = None,
+    cv_plus: dict[str, Any] | None = None,
+    conditions_failed: list[str] | None = None,
 ) -> dict[str, Any]:
+    """The artifact.  ``cv_plus``: the block of :func:`cvplus.stored_block` (fold fits and
+    out-of-fold residuals, or why there are none); ``conditions_failed``: the entry's
+    conditions that do not hold, which decide the default prediction interval."""
     kind, res = stored_residuals(fit.resid)
     hat = np.einsum("ij,jk,ik->i", design.X, fit.cov_unscaled, design.X)
     ranges = {}
@@ -149,5 +154,9 @@ def build_model(
         "data_profile": profile(prep, [p.column for p in spec.predictors]),
         "options": options or {},
     }
+    if conditions_failed is not None:
+        body["conditions_failed"] = list(conditions_failed)
+    if cv_plus is not None:
+        body["cv_plus"] = cv_plus
     body["checksum"] = checksum(body)
     return body

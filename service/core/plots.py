@@ -150,7 +150,7 @@ def _envelope(fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator) 
         h = fit.influence.leverage
         ok = h < 1 - ct.LEVERAGE_ONE_TOL
         Y = rng.standard_normal((fit.n, ENVELOPE_SIMULATIONS))
-        E = Y - fit.X @ (fit.res.model.pinv_wexog @ Y)
+        E = fit.ls.residual(Y)
         s2 = np.sum(E**2, axis=0) / fit.df_resid
         R = np.sort(E[ok] / np.sqrt(np.outer(1 - h[ok], s2)), axis=0)
         lower, upper = np.percentile(R[ranks], [2.5, 97.5], axis=1)
@@ -362,7 +362,7 @@ def _partial_residuals(
     rng: np.random.Generator,
 ) -> list[dict[str, Any]]:
     out = []
-    params = np.asarray(fit.res.params, dtype=float)
+    params = fit.params
     for term in inp.terms:
         if term.kind != "numeric" or len(term.indices) != 1:
             continue

@@ -31,9 +31,10 @@ from typing import Any, TypeGuard, cast
 import numpy as np
 from scipy import stats
 
-from . import retransform
+from . import cvplus, retransform
 from . import transforms as tr
 from ._types import FloatArray
+from .conditions import CONDITION_NAMES
 from .data import RawColumn, as_categorical, as_numeric, read_table, shown
 from .errors import FieldProblem, InputError, pointer
 from .model import (
@@ -59,6 +60,22 @@ SHIFT_BOUND = 1e15
 EXPONENT_BOUND = 10.0
 LAMBDA_BOUND = 5.0
 VARIANCE_RTOL = 1e-6  # stored residual variance vs the stored residuals ('all')
+MAX_FOLDS = 50  # validation.folds allows at most this many
+MAX_REASON_CHARS = 1000
+INTERVAL_METHODS = ("normal", "cv_plus")
+NO_CV_PLUS = "the model was issued before CV+ intervals were stored; refit it to get them"
+
+
+@dataclass(frozen=True)
+class CVPlusFits:
+    """The artifact's ``cv_plus`` block in array form (see :mod:`cvplus`)."""
+
+    coefficients: np.ndarray  # (K, p)
+    transforms: list[tr.Transform]
+    fold: np.ndarray  # (n,) fold ids of the stored residuals
+    abs_resid: np.ndarray  # (n,)
+    kind: str  # "all" or "quantiles"
+    scheme: str
 
 
 @dataclass(frozen=True)
@@ -77,6 +94,9 @@ class LoadedModel:
     training_range: dict[str, tuple[float, float]]
     max_leverage: float
     format_version: int
+    cv_plus: CVPlusFits | None = None
+    cv_plus_missing: str = NO_CV_PLUS  # why cv_plus is None
+    conditions_failed: list[str] | None = None  # None: not recorded (older artifact)
 
     @property
     def response_transform(self) -> tr.Transform:
@@ -343,6 +363,7 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
             f"the model holds {len(values)} residuals; an issued model holds at most "
             f"{MAX_STORED_RESIDUALS}; send the model exactly as the service issued it",
         )
+    _cv_plus_sizes(d.get("cv_plus"))
     bad = _first_non_finite(d)
     if bad:
         raise InputError.at(bad, "the model holds a non-finite number")
@@ -493,6 +514,7 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     hmax = _number(_need(d, "max_leverage", "/model"), "/model/max_leverage", "max_leverage")
     if not 0.0 <= hmax <= 1.0 + 1e-9:
         raise InputError.at("/model/max_leverage", "max_leverage must lie in [0, 1]")
+    fits, missing = _cv_plus(d.get("cv_plus"), spec, p, n_train)
     return LoadedModel(
         spec,
         tuple(want),
@@ -506,6 +528,147 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
         ranges,
         hmax,
         int(fv),
+        fits,
+        missing,
+        _conditions_failed(d.get("conditions_failed")),
+    )
+
+
+def _cv_plus_sizes(block: object) -> None:
+    """Refuse oversized CV+ lists before any walk over the content."""
+    if not isinstance(block, dict):
+        return
+    res = block.get("residuals")
+    fits = block.get("fold_fits")
+    if isinstance(fits, list) and len(fits) > MAX_FOLDS:
+        raise InputError.at(
+            "/model/cv_plus/fold_fits",
+            f"the model holds {len(fits)} fold fits; an issued model holds at most {MAX_FOLDS}",
+        )
+    if isinstance(res, dict):
+        for key in ("fold", "values"):
+            v = res.get(key)
+            if isinstance(v, list) and len(v) > cvplus.MAX_ROWS:
+                raise InputError.at(
+                    f"/model/cv_plus/residuals/{key}",
+                    f"the model holds {len(v)} CV+ residuals; an issued model holds at most "
+                    f"{cvplus.MAX_ROWS}; send the model exactly as the service issued it",
+                )
+
+
+def _conditions_failed(v: object) -> list[str] | None:
+    if v is None:
+        return None
+    if not isinstance(v, list) or not all(isinstance(c, str) and c in CONDITION_NAMES for c in v):
+        raise InputError.at(
+            "/model/conditions_failed",
+            "conditions_failed must be a list of condition names ("
+            + ", ".join(CONDITION_NAMES)
+            + "); send the model exactly as the service issued it",
+        )
+    return list(v)
+
+
+def _cv_plus(
+    block: object, spec: Specification, p: int, n_train: object
+) -> tuple[CVPlusFits | None, str]:
+    """The ``cv_plus`` block checked against the model: (fits or None, why not)."""
+    ptr = "/model/cv_plus"
+    if block is None:
+        return None, NO_CV_PLUS
+    damaged = "; the model was damaged or forged"
+    if not isinstance(block, dict) or not isinstance(block.get("available"), bool):
+        raise InputError.at(ptr, "cv_plus must be an object with a boolean 'available'" + damaged)
+    if not block["available"]:
+        why = block.get("reason")
+        if not isinstance(why, str) or not 1 <= len(why) <= MAX_REASON_CHARS:
+            raise InputError.at(
+                ptr + "/reason", "an unavailable cv_plus needs its reason" + damaged
+            )
+        return None, why
+    K = block.get("folds")
+    fits = block.get("fold_fits")
+    if (
+        not isinstance(K, int)
+        or isinstance(K, bool)
+        or not 2 <= K <= MAX_FOLDS
+        or not isinstance(fits, list)
+        or len(fits) != K
+    ):
+        raise InputError.at(
+            ptr + "/fold_fits",
+            f"cv_plus needs 'folds' K (2 to {MAX_FOLDS}) and K fold fits" + damaged,
+        )
+    family = spec.response_transform.name
+    coefs, transforms = [], []
+    for k, f in enumerate(fits):
+        fp = pointer("model", "cv_plus", "fold_fits", k)
+        if not isinstance(f, dict):
+            raise InputError.at(fp, "a fold fit must be an object" + damaged)
+        t = _transform(f.get("response_transform"), fp + "/response_transform", "response")
+        if t.name != family:
+            raise InputError.at(
+                fp + "/response_transform",
+                f"fold {k + 1} is on the '{t.name}' scale, not the model's '{family}'" + damaged,
+            )
+        c = f.get("coefficients")
+        if (
+            not isinstance(c, list)
+            or len(c) != p
+            or not all(_is_number(v) and abs(v) <= MAX_ABS for v in c)
+        ):
+            raise InputError.at(
+                fp + "/coefficients",
+                f"a fold fit needs {p} coefficients of magnitude at most {MAX_ABS:g}" + damaged,
+            )
+        coefs.append(c)
+        transforms.append(t)
+    res = block.get("residuals")
+    rp = ptr + "/residuals"
+    fold = res.get("fold") if isinstance(res, dict) else None
+    vals = res.get("values") if isinstance(res, dict) else None
+    if (
+        not isinstance(res, dict)
+        or res.get("kind") not in ("all", "quantiles")
+        or not isinstance(fold, list)
+        or not isinstance(vals, list)
+        or not 1 <= len(vals) <= cvplus.MAX_ROWS
+        or len(fold) != len(vals)
+        or not all(isinstance(v, int) and not isinstance(v, bool) and 0 <= v < K for v in fold)
+        or not all(_is_number(v) and 0 <= v <= MAX_ABS for v in vals)
+    ):
+        raise InputError.at(
+            rp,
+            "cv_plus residuals must be {kind: 'all' | 'quantiles', fold: [fold ids], values: "
+            f"[non-negative numbers]}} of equal length, 1 to {cvplus.MAX_ROWS}" + damaged,
+        )
+    if isinstance(n_train, int) and (
+        (res["kind"] == "all" and len(vals) != n_train)
+        or (
+            res["kind"] == "quantiles"
+            and (n_train <= cvplus.MAX_ROWS or len(vals) != cvplus.MAX_ROWS)
+        )
+    ):
+        raise InputError.at(
+            rp,
+            f"the model keeps every CV+ residual up to {cvplus.MAX_ROWS} rows and exactly "
+            f"{cvplus.MAX_ROWS} quantiles past that" + damaged,
+        )
+    scheme = block.get("scheme")
+    if scheme not in ("random", "blocked"):
+        raise InputError.at(
+            ptr + "/scheme", "cv_plus scheme must be 'random' or 'blocked'" + damaged
+        )
+    return (
+        CVPlusFits(
+            np.array(coefs, dtype=float),
+            transforms,
+            np.array(fold, dtype=np.int64),
+            np.array(vals, dtype=float),
+            res["kind"],
+            scheme,
+        ),
+        "",
     )
 
 
@@ -716,12 +879,43 @@ def _finite_list(a: np.ndarray) -> list[Any]:
     return cast("list[Any]", out.tolist())
 
 
-def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) -> dict[str, Any]:
+def interval_method(model: LoadedModel, asked: object) -> tuple[str, str]:
+    """(method, clause): the caller's choice, checked, or the model's default
+    (:func:`cvplus.default_method`: CV+ when normality fails on the entry)."""
+    if asked is None:
+        return cvplus.default_method(
+            model.conditions_failed, model.cv_plus is not None, model.cv_plus_missing
+        )
+    if asked not in INTERVAL_METHODS:
+        raise InputError.at(
+            "/interval_method",
+            f"interval_method {shown(asked)} is not one this service computes; send 'normal' "
+            "(normal-theory interval) or 'cv_plus' (from the out-of-fold residuals), or leave "
+            "it out to let the model's condition results choose",
+        )
+    if asked == "cv_plus" and model.cv_plus is None:
+        raise InputError.at(
+            "/interval_method",
+            "interval_method 'cv_plus' needs the out-of-fold fits stored in the model, and "
+            f"this model has none ({model.cv_plus_missing}); send 'normal' or leave "
+            "interval_method out",
+        )
+    return str(asked), cvplus.REASON_ASKED
+
+
+def predict(
+    model: LoadedModel,
+    data: dict[str, Any],
+    interval: float = 0.95,
+    method: str | None = None,
+) -> dict[str, Any]:
     """Predictions for every row of ``data`` (contract Data object), in input order.
 
+    ``method``: "normal" (t interval on the model scale), "cv_plus" (CV+ from the stored
+    out-of-fold residuals, :mod:`cvplus`) or None (the model's default).
     Returns ``{"predictions": [{mean, median, lower, upper, extrapolation,
-    extrapolation_reasons, leverage, model_scale}], "interval": level,
-    "warnings": [...]}``; every number is on the ORIGINAL response scale except
+    extrapolation_reasons, leverage, model_scale}], "interval": level, "interval_method",
+    "interval_method_reason", "warnings": [...]}``; every number is on the ORIGINAL response scale except
     ``model_scale`` (``mean``, ``interval_low``, ``interval_high`` on the model scale) and ``leverage``.  A
     value that cannot be computed (an inverse that does not exist or
     overflows) is ``None`` and explained in ``warnings``, never NaN.
@@ -732,25 +926,48 @@ def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) ->
             f"interval must lie strictly between 0 and 1 (got "
             f"{interval!r}); 0.95 gives a 95% prediction interval",
         )
+    used, why = interval_method(model, method)
     X, raw, m = new_design(model, data)
     t = model.response_transform
     zs = model_scale_interval(model, X, interval)
+    cvp = model.cv_plus if used == "cv_plus" else None
     eta = zs["fit"]
     ok_eta = np.isfinite(eta)
     safe = np.where(ok_eta, eta, 0.0)
     with np.errstate(all="ignore"):
         median = np.where(ok_eta, retransform.naive(t, safe), np.nan)
         mean = np.where(ok_eta, retransform.smeared_mean(t, safe, model.residuals), np.nan)
-        lo = t.inverse(zs["lower"])
-        hi = t.inverse(zs["upper"])
+        if cvp is None:
+            lo = t.inverse(zs["lower"])
+            hi = t.inverse(zs["upper"])
+        else:
+            lo, hi, zs["lower"], zs["upper"] = cvplus.intervals(
+                cvp.coefficients, cvp.transforms, cvp.fold, cvp.abs_resid, X, interval, t
+            )
         # the undefined part of every inverse is a half-line, so the extreme residuals tell
         # whether any smearing term is undefined
         e_lo, e_hi = float(model.residuals.min()), float(model.residuals.max())
         partial = np.isnan(t.inverse(safe + e_lo)) | np.isnan(t.inverse(safe + e_hi))
-    if not t.increasing:
+    if cvp is None and not t.increasing:
         lo, hi = hi, lo
     label = t.label(model.spec.response)
     warnings: list[str] = []
+    unbounded = False
+    if cvp is not None:
+        n_res = cvp.abs_resid.size
+        k_lo, k_hi = cvplus.ranks(n_res, interval)
+        if k_lo < 1 or k_hi > n_res:
+            unbounded = True
+            warnings.append(
+                f"With {n_res} out-of-fold residuals a {interval:g} CV+ interval has no finite "
+                f"limits (it needs a level of at most {n_res / (n_res + 1):.4g}); the lower and "
+                "upper limits are null. Ask for a lower interval level."
+            )
+        if cvp.scheme == "blocked":
+            warnings.append(
+                "The CV+ intervals come from blocked folds of ordered rows; their coverage "
+                "rests on exchangeable rows, which serially correlated rows are not."
+            )
 
     # extrapolation
     reasons: dict[int, list[str]] = {}
@@ -796,13 +1013,16 @@ def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) ->
         "some smearing terms have no finite inverse (the response would be unbounded) and are "
         "left out of the mean, which is therefore only indicative.",
     )
+    if unbounded:
+        lo, hi = np.full(m, np.nan), np.full(m, np.nan)
+        zs["lower"], zs["upper"] = lo, hi
     report(
-        ok_eta & ~np.isfinite(lo),
+        ok_eta & ~np.isfinite(lo) & (not unbounded),
         f"the lower prediction limit is null: the interval on the "
         f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).",
     )
     report(
-        ok_eta & ~np.isfinite(hi),
+        ok_eta & ~np.isfinite(hi) & (not unbounded),
         f"the upper prediction limit is null: the interval on the "
         f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).",
     )
@@ -821,4 +1041,10 @@ def predict(model: LoadedModel, data: dict[str, Any], interval: float = 0.95) ->
         }
         for i, (c0, c1, c2, c3, c4, c5, c6, c7) in enumerate(zip(*cols, strict=True))
     ]
-    return {"predictions": rows, "interval": float(interval), "warnings": warnings}
+    return {
+        "predictions": rows,
+        "interval": float(interval),
+        "interval_method": used,
+        "interval_method_reason": why,
+        "warnings": warnings,
+    }

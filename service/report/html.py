@@ -532,6 +532,20 @@ def _se_line(entry: dict) -> str:
     return f"{_SE_WORDS[kind]}{lags}: {esc(inf.get('reason', ''))}"
 
 
+_PI_WORDS = {
+    "normal": "normal theory (t interval on the model scale)",
+    "cv_plus": "CV+ (from the out-of-fold residuals; no normality needed)",
+}
+
+
+def _pi_line(entry: dict) -> str:
+    inf = entry.get("inference") or {}
+    kind = inf.get("prediction_intervals", "normal")
+    words = _PI_WORDS.get(kind, _PI_WORDS["normal"])
+    reason = inf.get("prediction_interval_reason")
+    return f"{words}: {esc(reason)}" if reason else words
+
+
 def _coefficients(entry: dict) -> str:
     sfx = "" if _se_kind(entry) == "classical" else f"_{_se_kind(entry)}"
     rows = "".join(
@@ -609,6 +623,7 @@ def _detail(entry: dict, plots, anchor: str, heading: str, level: int = 2) -> st
         ),
         ("Residual standard deviation", f"{num(fit.get('residual_sd'))} (model scale)"),
         ("Standard errors", _se_line(entry)),
+        ("Prediction intervals", _pi_line(entry)),
         ("How it was ranked", esc(parts.get("rule", ""))),
     ]
     sub = level + 1

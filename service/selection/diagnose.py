@@ -75,7 +75,7 @@ def diagnose_specification(
         plan = make_plan(
             prep.n, opts.folds, opts.repeats, opts.seed, opts.metric, opts.scheme, prep.order
         )
-        cv = cross_validate(design.X, prep.y, rt, plan, tr.needs_shift(prep.y), design.names)
+        cv = cross_validate(design.X, prep.y, rt, plan, tr.needs_shift(prep.y), design.names, True)
         parts = {
             "cv_value": cv.value,
             "cv_std_error": cv.std_error,

@@ -11,13 +11,15 @@ from ..core import retransform
 from ..core import transforms as tr
 from ..core.condition_rules import conditions_for, failed
 from ..core.crossval import CVResult
+from ..core.cvplus import default_method, stored_block
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure
+from ..core.fastcv import OutOfFold
 from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
 from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
-from ..core.model import build_model
+from ..core.model import build_model, checksum
 from ..core.numbers import fmt
 from ..core.spec import Design, Specification, build_design
 
@@ -175,6 +177,25 @@ def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
     return [row | {k: row[f"{k}_{kind}"] for k in keys} for row in rows]
 
 
+def attach_cv_plus(
+    entry: dict[str, Any], oof: OutOfFold | None, why_none: str, prep: Prepared, plan: CVPlan
+) -> None:
+    """Store the CV+ block in ``entry``'s model (checksum renewed; signing comes later in the
+    web layer) and set the entry's default interval method from it."""
+    block = stored_block(oof, entry["_design"].X, prep.y, plan.scheme, why_none)
+    model = entry["model"]
+    model["cv_plus"] = block
+    model["checksum"] = checksum(model)
+    method, why = default_method(
+        model.get("conditions_failed"), block["available"], block.get("reason", "")
+    )
+    entry["inference"] = {
+        **entry["inference"],
+        "prediction_intervals": method,
+        "prediction_interval_reason": why,
+    }
+
+
 def entry_for(
     spec: Specification,
     cv: CVResult,
@@ -214,6 +235,9 @@ def entry_for(
             f"design {fit.condition_number:.3g}); coefficients are unstable."
         )
     covs, lags = robust_covariances(fit, design, prep)
+    conditions, hints = conditions_for(design, fit, prep, fit.fitted + fit.resid, opts.alpha)
+    bad = failed(conditions)
+    cv_plus = stored_block(cv.out_of_fold, design.X, prep.y, plan.scheme)
     entry: dict[str, Any] = {
         "specification": concrete.to_dict(),
         "equation": equation(concrete, design, fit.coef),
@@ -239,12 +263,11 @@ def entry_for(
                 "seed": plan.seed,
                 "metric": plan.metric,
             },
+            cv_plus=cv_plus,
+            conditions_failed=bad,
         ),
         "warnings": warnings,
     }
-    conditions, hints = conditions_for(
-        design, fit, prep, fit.fitted + fit.resid, getattr(opts, "alpha", 0.05)
-    )
     entry["conditions"] = conditions
     entry["transform_hints"] = hints
     for h in hints:
@@ -252,6 +275,9 @@ def entry_for(
             warnings.append(h["sentence"])
     blocked = getattr(opts, "scheme", "random") == "blocked"
     inference, clause, more = choose_inference(conditions, lags, blocked)
+    method, why = default_method(bad, cv_plus["available"], cv_plus.get("reason", ""))
+    inference["prediction_intervals"] = method
+    inference["prediction_interval_reason"] = why
     entry["inference"] = inference
     warnings.extend(more)
     entry["interpretation"] = interpret_fit(

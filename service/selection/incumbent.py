@@ -18,21 +18,13 @@ from typing import Any
 import numpy as np
 
 from ..core import transforms as tr
+from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import CVResult, cross_validate
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, pointer
 from ..core.folds import CVPlan
 from ..core.numbers import fmt
 from ..core.spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
-
-CONDITIONS = (
-    "linearity",
-    "normality",
-    "equal_variance",
-    "independence",
-    "multicollinearity",
-    "influence",
-)
 
 
 def incumbent_spec(
@@ -89,7 +81,7 @@ def _failed_conditions(conditions: dict[str, Any] | None) -> set[str]:
         return set()
     return {
         c
-        for c in CONDITIONS
+        for c in CONDITION_NAMES
         if isinstance(conditions.get(c), dict) and conditions[c].get("holds") is False
     }
 

@@ -23,8 +23,10 @@ import numpy as np
 from ..core import boxtidwell as bt
 from ..core import transforms as tr
 from ..core.bank import FoldIndex
-from ..core.condition_rules import CONDITION_NAMES, failed, failed_for_ranking
+from ..core.condition_rules import failed, failed_for_ranking
+from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import from_score
+from ..core.cvplus import NOT_KEPT, POWERS_PER_FOLD
 from ..core.data import Prepared
 from ..core.errors import (
     BudgetError,
@@ -33,19 +35,16 @@ from ..core.errors import (
     ModelFailure,
     pointer,
 )
-from ..core.fastcv import Dynamic, Scorer
+from ..core.fastcv import Dynamic, OutOfFold, Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
 from ..core.spec import PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
 from . import incumbent
-from .entries import entry_for
+from .entries import attach_cv_plus, entry_for
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
-
-DEFAULT_RESPONSE = cand.DEFAULT_RESPONSE
-DEFAULT_PREDICTOR = cand.DEFAULT_PREDICTOR
 
 MAX_FAILURES_LISTED = 10
 
@@ -75,7 +74,6 @@ SMALL_N = 50  # below this many rows the default search puts all predictors on o
 
 # entry_hook(entry, {"spec", "prep", "opts"}) completes a ranking entry in place
 EntryHook = Callable[[dict[str, Any], dict[str, Any]], object]
-STRATEGIES = ("auto", "exhaustive", "screened")
 
 
 def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
@@ -112,6 +110,20 @@ class _Evaluator:
             return None
         self.scored.append(s)
         return s
+
+    def out_of_fold(self, s: Scored) -> tuple[OutOfFold | None, str]:
+        """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
+        or None and why: the same folds scored again, so the numbers are the search's own.
+        Specifications whose predictor powers are estimated inside every fold keep none."""
+        spec = s.open_spec or s.spec
+        if any(bt.is_open(p.transform) for p in spec.predictors):
+            return None, POWERS_PER_FOLD
+        try:
+            cols, names, _ = self.space.design_of(spec)
+            sc = self.scorer.score(spec.response_transform, cols, names, keep_out_of_fold=True)
+        except CandidateFailure as exc:
+            return None, f"its folds could not be scored again ({exc.reason})"
+        return sc.out_of_fold, NOT_KEPT
 
     def _score(self, spec: Specification) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
@@ -280,6 +292,8 @@ def run_selection(
             )
             continue
         i = len(entries)
+        # CV+ fits only for the entries returned (the band's assessed members need none)
+        attach_cv_plus(entry, *ev.out_of_fold(s), prep, plan)
         if "conditions_failed" not in parts:
             parts = {
                 **parts,

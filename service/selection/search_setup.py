@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 
+from ..core.conditions import DEFAULT_ALPHA
 from ..core.crossval import CVResult
 from ..core.data import Prepared
 from ..core.errors import InputError
@@ -26,7 +27,7 @@ class SearchOptions:
     repeats: int = 1
     seed: int = 0
     metric: str = "rmse"
-    alpha: float = 0.05
+    alpha: float = DEFAULT_ALPHA
     top: int = 5
     max_candidates: int = 5000
     time_limit_s: float = 60.0

@@ -64,7 +64,8 @@ import numpy as np
 
 from ..core import transforms as tr
 from ..core._types import Mapper
-from ..core.condition_rules import CONDITION_NAMES, conditions_for, failed_for_ranking
+from ..core.condition_rules import conditions_for, failed_for_ranking
+from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import cross_validate
 from ..core.data import Prepared
 from ..core.errors import BestscaleError, CandidateFailure, InputError

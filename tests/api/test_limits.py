@@ -190,15 +190,6 @@ def test_saturated_pool_answers_503_with_retry_after_before_reading(make_app):
     assert pool.busy() == 0
 
 
-def test_the_slot_gate_itself_refuses_past_capacity(make_app):
-    make_app(pool_size=2)
-    with pool.compute_slot(), pool.compute_slot():
-        with pytest.raises(Exception) as info, pool.compute_slot():
-            pass
-        assert info.value.status == 503 and "Retry-After" in info.value.headers
-    assert pool.busy() == 0
-
-
 def test_health_answers_while_a_search_holds_the_only_slot(make_app):
     app = make_app(pool_size=1)
     body = _slow_search(3)

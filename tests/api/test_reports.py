@@ -7,8 +7,6 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from fastapi.testclient import TestClient
-from hypothesis import given
-from hypothesis import strategies as st
 from service.api.reports import wants_html
 from service.app import app
 from service.demo import demo_request
@@ -314,15 +312,6 @@ def test_wrong_content_type_is_415(client):
 def test_accept_negotiation(accept, html):
     # source: RFC 9110 section 12.5.1 (media ranges and q-values)
     assert wants_html(accept) is html
-
-
-@given(st.floats(min_value=-1e300, max_value=1e300, allow_nan=False).filter(lambda v: v != 0))
-def test_number_format_keeps_four_significant_digits(v):
-    # source: definition of rounding to 4 significant digits
-    text = num(v)
-    assert float(text.replace(",", "")) == pytest.approx(v, rel=FOUR_DIGITS)
-    digits = re.sub(r"e.*$", "", text).replace(",", "").replace("-", "").replace(".", "")
-    assert len(digits.strip("0")) <= 4
 
 
 def test_selections_answer_html_when_asked(client):

@@ -13,37 +13,6 @@ from service.core.folds import make_plan
 from service.core.spec import build_design
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
-from sklearn.model_selection import KFold
-
-
-@pytest.mark.parametrize("n, folds", [(10, 5), (23, 5), (101, 10), (16, 2)])
-def test_blocked_folds_are_contiguous_and_cover_every_row_once(n, folds):
-    order = np.random.default_rng(n).permutation(n)  # rows arrive shuffled
-    plan = make_plan(n, folds, 1, 0, scheme="blocked", order=order)
-    (a,) = plan.assignments
-    assert plan.scheme == "blocked"
-    sizes = np.bincount(a, minlength=folds)
-    assert sizes.min() >= 1 and sizes.max() - sizes.min() <= 1
-    assert a.shape == (n,) and set(a.tolist()) == set(range(folds))  # every row one fold
-    in_order = a[order]
-    assert np.all(np.diff(in_order) >= 0)  # fold ids never go back: contiguous runs
-    # source: sklearn KFold(shuffle=False) on the rows sorted by the order column
-    for k, (_, test) in enumerate(KFold(folds).split(np.zeros(n))):
-        assert np.array_equal(np.sort(order[test]), np.flatnonzero(a == k))
-    # the same request gives the same folds whatever the seed (nothing is shuffled)
-    assert np.array_equal(
-        make_plan(n, folds, 1, 99, scheme="blocked", order=order).assignments[0], a
-    )
-
-
-def test_blocked_without_order_uses_row_order():
-    (a,) = make_plan(7, 3, 1, 0, scheme="blocked").assignments
-    assert a.tolist() == [0, 0, 0, 1, 1, 2, 2]
-
-
-def test_blocked_folds_refuse_repeats():
-    with pytest.raises(ValueError, match="repeats"):
-        make_plan(20, 4, 2, 0, scheme="blocked")
 
 
 def _ordered(n=41, seed=21):

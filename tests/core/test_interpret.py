@@ -555,3 +555,21 @@ def test_sentences_across_every_reading_are_clean(rng):
             assert len(out) == 4  # two slopes and two non-reference levels
             sentences.extend(out)
     check_sentence_hygiene(sentences)
+
+
+def test_interval_words_match_the_estimate():
+    # source: product rule (unsigned bounds with the estimate's word, or signed throughout)
+    from service.core.interpret import _ci_text
+
+    assert _ci_text(-26.06, -15.1, 0.95, "%", "difference") == (
+        " (95% CI for the difference: 15.10% to 26.06% lower)"
+    )
+    assert (
+        _ci_text(-26.06, -15.1, 0.95, "%") == " (95% CI for the change: lower by 15.10% to 26.06%)"
+    )
+    assert _ci_text(-2.0, 3.0, 0.9, unit="dollars") == (
+        " (90% CI for the change: from 2 dollars lower to 3 dollars higher)"
+    )
+    assert _ci_text(-0.5, 0.25, 0.95, what="coefficient") == (
+        " (95% CI for the coefficient: -0.5000 to 0.2500)"
+    )

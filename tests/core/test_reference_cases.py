@@ -6,8 +6,7 @@ by a reference script with numpy 2.4.6 / scipy 1.17.1 / statsmodels 0.15.0 /
 scikit-learn 1.9.1 (definitions: OLS = statsmodels OLS; regression Box-Cox lambda = maximiser of
 the profile log-likelihood with Jacobian, 95% likelihood-ratio interval; CV = 5-fold
 KFold(shuffle=True, random_state=0), smeared (Duan 1983) back-transform, pooled RMSE on the
-original scale).  NIST StRD 'Longley' certified values are quoted from memory (statsmodels
-reproduces them to 11-13 significant digits, which rules out a copying slip).
+original scale).  The NIST StRD 'Longley' certified fit is checked in test_fitting.py.
 
 Tolerances (fixed in advance, from the table of suggested tolerances for an independent
 implementation unless the check says otherwise): OLS coefficients/SE/R^2/llf rel 1e-7;
@@ -623,30 +622,6 @@ REFERENCE = {
                 "cv_fixed_lambda_pooled_smear": 522.2725180886466,
             },
         ],
-        "certified": {
-            "params": {
-                "const": -3482258.63459582,
-                "GNPDEFL": 15.0618722713733,
-                "GNP": -0.035819179292591,
-                "UNEMP": -2.02022980381683,
-                "ARMED": -1.03322686717359,
-                "POP": -0.0511041056535807,
-                "YEAR": 1829.15146461355,
-            },
-            "bse": {
-                "const": 890420.383607373,
-                "GNPDEFL": 84.9149257747669,
-                "GNP": 0.0334910077722432,
-                "UNEMP": 0.488399681651699,
-                "ARMED": 0.214274163161675,
-                "POP": 0.22607320006937,
-                "YEAR": 455.478499142212,
-            },
-            "residual_sd": 304.854073561965,
-            "r_squared": 0.995479004577296,
-            "ssr": 836424.055505915,
-            "f_stat": 330.285339234588,
-        },
     },
 }
 
@@ -700,27 +675,6 @@ def test_fold_plan_matches_published_fold_string_and_sklearn(case):
         sk[test] = k
     # source: scikit-learn KFold (reference library)
     assert np.array_equal(ours, sk)
-
-
-# ------------------------------------------------------- NIST Longley (OLS)
-def test_longley_coefficients_match_nist_certified_values():
-    cert = REFERENCE["longley"]["certified"]
-    df = data("longley")
-    cols = REFERENCE["longley"]["x"]
-    X = np.column_stack([np.ones(len(df))] + [df[c].to_numpy(float) for c in cols])
-    fit = ols(X, _y("longley"), ["const", *cols], True)
-    for name, b in zip(["const", *cols], fit.coef, strict=True):
-        c = cert["params"][name]
-        lre = -math.log10(abs(b - c) / abs(c)) if b != c else 16.0
-        # source: NIST StRD Longley certified values (from memory); LRE >= 7 digits
-        assert lre >= 7.0, f"{name}: LRE {lre:.2f}"
-    for name, s in zip(["const", *cols], fit.se, strict=True):
-        # source: NIST certified standard deviations of the estimates (from memory); rel 1e-7
-        assert s == pytest.approx(cert["bse"][name], rel=1e-7), name
-    # source: NIST certified residual SD and R^2 (from memory); rel 1e-9 (suggested for Longley)
-    assert fit.sigma == pytest.approx(cert["residual_sd"], rel=1e-9)
-    assert fit.r_squared == pytest.approx(cert["r_squared"], rel=1e-9)
-    assert fit.rss == pytest.approx(cert["ssr"], rel=1e-9)
 
 
 # ------------------------------------------- every spec: OLS vs statsmodels

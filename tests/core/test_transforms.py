@@ -301,3 +301,27 @@ def test_log_of_zeros_gets_half_the_smallest_positive_shift():
     t = fit_transform(tr.Transform("log"), np.array([0.0, 0.4, 2.0, 0.0, 5.0]))
     assert t.shift == pytest.approx(0.2) and t.estimated
     assert np.all(np.isfinite(t.forward(np.array([0.0, 0.4]))))
+
+
+@pytest.mark.parametrize(
+    "t, label",
+    [
+        (tr.Transform("log"), "log(x)"),
+        (tr.Transform("sqrt"), "sqrt(x)"),
+        (tr.Transform("reciprocal"), "1/x"),
+        (tr.Transform("square"), "x^2"),
+        (tr.Transform("log", shift=3.0), "log(x, shift=3)"),
+        (tr.Transform("power", exponent=0.5), "power(x, exponent=0.5)"),
+        (tr.Transform("box_cox", lam=-0.0050614), "box_cox(x, lambda=-0.005061)"),
+        (tr.Transform("yeo_johnson", lam=0.5), "yeo_johnson(x, lambda=0.5)"),
+        (tr.Transform("box_cox"), "box_cox(x, lambda=estimated)"),
+    ],
+)
+def test_transform_labels_use_api_names_and_fields(t, label):
+    # source: product rule (parameter-free transforms in ordinary notation, the others as
+    # API name(column, field=value))
+    assert t.label("x") == label
+    if "=" in label and "estimated" not in label:
+        name = label.split("(")[0]
+        field = label.split(", ")[1].split("=")[0]
+        assert name == t.name and field in t.to_dict()

@@ -1,0 +1,78 @@
+"""Request models (service/api/schemas.py): what a request may say.
+
+References: the shipped example requests (openapi_examples/) must validate; RFC 8259 numbers
+(NaN and Infinity are not JSON); the HTTP contract's rules: exactly one data layout, no
+unknown field, a predictor power with an exponent, a Box-Cox lambda optional.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from pydantic import ValidationError
+from service.api.schemas import SelectionRequest, SpecificationIn, TransformIn, transform_items
+
+EXAMPLES = Path(__file__).resolve().parents[2] / "openapi_examples"
+BASE = {
+    "data": {"columns": {"y": [1.0, 2.0], "x": [3.0, 4.0]}},
+    "response": "y",
+    "predictors": ["x"],
+}
+
+
+def test_the_shipped_selection_example_validates():
+    req = json.loads((EXAMPLES / "selections.request.json").read_text())
+    model = SelectionRequest.model_validate(req)
+    assert model.response == req["response"]
+
+
+@pytest.mark.parametrize(
+    "data",
+    [
+        {},
+        {"columns": {"y": [1.0]}, "csv": "y\n1\n"},  # two layouts
+    ],
+)
+def test_data_needs_exactly_one_layout(data):
+    with pytest.raises(ValidationError):
+        SelectionRequest.model_validate({**BASE, "data": data})
+
+
+def test_defaults_and_strictness():
+    req = SelectionRequest.model_validate(BASE)
+    assert req.top == 5 and req.intercept is True and req.strategy == "auto"
+    with pytest.raises(ValidationError):
+        SelectionRequest.model_validate({**BASE, "unknown": 1})
+    with pytest.raises(ValidationError):
+        SelectionRequest.model_validate({**BASE, "alpha": float("nan")})
+
+
+def test_transform_parameters():
+    t = TransformIn.model_validate({"name": "box_cox", "lambda": 0.5})
+    assert t.as_dict() == {"name": "box_cox", "lambda": 0.5}
+    assert TransformIn.model_validate({"name": "box_cox"}).as_dict() == {"name": "box_cox"}
+    with pytest.raises(ValidationError):
+        TransformIn.model_validate({"name": "cube_root"})
+    with pytest.raises(ValidationError):  # a power in a specification needs its exponent
+        SpecificationIn.model_validate(
+            {
+                "response": {"column": "y"},
+                "predictors": [{"column": "x", "transform": {"name": "power"}}],
+            }
+        )
+    spec = SpecificationIn.model_validate(
+        {
+            "response": {"column": "y"},
+            "predictors": [{"column": "x", "transform": {"name": "power", "exponent": 0.5}}],
+        }
+    )
+    assert spec.as_dict()["predictors"][0]["transform"] == {"name": "power", "exponent": 0.5}
+
+
+def test_transform_items_turn_models_into_plain_values():
+    assert transform_items(None) is None
+    items = transform_items(["log", TransformIn.model_validate({"name": "box_cox", "lambda": 1.0})])
+    assert items == ["log", {"name": "box_cox", "lambda": 1.0}]
+    assert transform_items({"x": ["sqrt"]}) == {"x": ["sqrt"]}

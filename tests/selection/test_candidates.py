@@ -1,0 +1,140 @@
+"""The candidate space (service/selection/candidates.py): which scales are offered, how many
+candidates the space holds, the columns of the bank, and explicit requests refused rather
+than changed.
+
+References: a brute-force enumeration with itertools.product for the size of the space; numpy
+for the transformed columns; build_design (the design builder the fitting uses) for the
+columns and names a candidate maps onto.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import pytest
+from service.core import boxtidwell as bt
+from service.core import transforms as tr
+from service.core.bank import FoldIndex
+from service.core.data import prepare
+from service.core.errors import CandidateFailure, InputError
+from service.core.folds import make_plan
+from service.core.spec import build_design
+from service.selection import candidates as cand
+
+
+def _prep(y=None, x=None, seed=0):
+    rng = np.random.default_rng(seed)
+    n = 30
+    x = rng.uniform(1, 9, n) if x is None else np.asarray(x, float)
+    y = np.exp(0.5 + 0.2 * x + rng.normal(0, 0.1, n)) if y is None else np.asarray(y, float)
+    crew = rng.choice(["day", "night", "weekend"], n)
+    cols = {"y": y.tolist(), "x": x.tolist(), "crew": crew.tolist()}
+    return prepare({"columns": cols}, "y", ["x", "crew"], ["crew"])
+
+
+def test_default_response_scales_on_a_positive_response():
+    names = [t.name for t in cand.response_candidates(_prep(), None)]
+    # on y > 0 Yeo-Johnson is Box-Cox of y + 1, so only Box-Cox is offered
+    assert names == ["identity", "log", "sqrt", "reciprocal", "square", "box_cox"]
+
+
+def test_defaults_skip_scales_the_response_cannot_take_but_explicit_ones_are_refused():
+    y = np.linspace(-2, 5, 30)  # zeros and negatives
+    prep = _prep(y=y)
+    names = {t.name for t in cand.response_candidates(prep, None)}
+    assert names.isdisjoint({"log", "sqrt", "reciprocal", "box_cox"}) and "yeo_johnson" in names
+    with pytest.raises(InputError) as exc:
+        cand.response_candidates(prep, ["identity", "log"])
+    # first the cell of the first value log cannot take, then the transform asked for
+    assert [p.pointer for p in exc.value.problems] == [
+        "/data/columns/y/0",
+        "/transforms/response/1",
+    ]
+    assert "used as sent" in exc.value.detail
+
+
+def test_default_predictor_options_add_an_estimated_power():
+    per = cand.predictor_candidates(_prep(), None)
+    assert [t.name for t in per[0]] == ["identity", "log", "sqrt", "reciprocal", "square", "power"]
+    assert bt.is_open(per[0][-1])
+    assert per[1] == [tr.Transform("categorical")]
+
+
+def test_predictor_requests_that_cannot_apply():
+    prep = _prep()
+    with pytest.raises(InputError) as exc:
+        cand.predictor_candidates(prep, {"x": [{"name": "box_cox"}]})
+    assert exc.value.problems[0].pointer == "/transforms/predictors/x/0"
+    with pytest.raises(InputError, match="list it in 'categorical'"):
+        cand.predictor_candidates(prep, {"x": ["categorical"]})
+
+
+def _brute_force(resp, preds):
+    count = 0
+    for rt in resp:
+        for ts in itertools.product(*preds):
+            n_open = sum(bt.is_open(t) for t in ts)
+            if rt.name in ("box_cox", "yeo_johnson") and not rt.is_fitted:
+                count += n_open == 0
+            else:
+                count += n_open <= cand.MAX_ESTIMATED_POWERS
+    return count
+
+
+@pytest.mark.parametrize("n_pred", [1, 2, 3, 4])
+def test_grid_size_equals_a_brute_force_count(n_pred):
+    resp = [tr.Transform("identity"), tr.Transform("log", shift=0.0), tr.Transform("box_cox")]
+    opts = [tr.Transform("identity"), tr.Transform("sqrt"), bt.ESTIMATED]
+    preds = [opts[: 2 + (j % 2)] for j in range(n_pred)]
+    # source: enumeration of every combination with itertools.product and the stated rule
+    assert cand.grid_size(resp, preds) == _brute_force(resp, preds)
+
+
+def test_allowed_follows_the_estimated_power_rule():
+    prep = _prep()
+    bc = cand.make_spec(
+        prep, tr.Transform("box_cox"), [bt.ESTIMATED, tr.Transform("categorical")], True
+    )
+    log = cand.make_spec(
+        prep, tr.Transform("log", shift=0.0), [bt.ESTIMATED, tr.Transform("categorical")], True
+    )
+    assert not cand.allowed(bc)  # no joint estimate with a response lambda
+    assert cand.allowed(log)
+
+
+def test_bank_columns_equal_the_design_builder():
+    prep = _prep()
+    preds = cand.predictor_candidates(prep, None)
+    plan = make_plan(prep.n, 5, 1, 0)
+    space = cand.build_space(prep, preds, FoldIndex.of(plan, prep.n), True)
+    for t in preds[0]:
+        if bt.is_open(t):
+            continue
+        spec = cand.make_spec(
+            prep, tr.Transform("identity"), [t, tr.Transform("categorical")], True
+        )
+        cols, names, dyn = space.design_of(spec)
+        ref = build_design(spec, prep)
+        assert names == ref.names and dyn == []
+        # source: build_design, the builder every full-data fit uses
+        np.testing.assert_array_equal(space.bank.columns(cols), ref.X)
+
+
+def test_a_column_a_transform_cannot_take_fails_that_candidate_only():
+    x = np.linspace(-1, 4, 30)
+    prep = _prep(x=x)
+    preds = [[tr.Transform("identity"), tr.Transform("sqrt")], [tr.Transform("categorical")]]
+    space = cand.build_space(prep, preds, FoldIndex.of(make_plan(30, 5), 30), True)
+    good = cand.make_spec(
+        prep,
+        tr.Transform("identity"),
+        [tr.Transform("identity"), tr.Transform("categorical")],
+        True,
+    )
+    bad = cand.make_spec(
+        prep, tr.Transform("identity"), [tr.Transform("sqrt"), tr.Transform("categorical")], True
+    )
+    assert space.design_of(good)[1][:2] == ["intercept", "x"]
+    with pytest.raises(CandidateFailure):
+        space.design_of(bad)

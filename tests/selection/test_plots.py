@@ -1,0 +1,81 @@
+"""Plot data of the entries a report shows in detail (service/selection/plots.py).
+
+References: statsmodels OLS residuals and fitted values of each shown specification (the
+points a panel holds); the numbers of entries and groups shown in detail as the module
+states them.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+from service.core.data import prepare
+from service.selection.plots import DETAIL_TOP, report_plots
+
+
+def _spec(rt, pt):
+    return {
+        "response": {"column": "y", "transform": {"name": rt}},
+        "predictors": [{"column": "x", "transform": {"name": pt}}],
+    }
+
+
+@pytest.fixture(scope="module")
+def case():
+    """Invented: minutes a ferry needs to load, by vehicles waiting; one group per pier."""
+    rng = np.random.default_rng(4)
+    n = 72
+    x = rng.uniform(5, 60, n)
+    y = np.exp(0.5 + 0.7 * np.log(x) + rng.normal(0, 0.2, n))
+    pier = np.repeat(["north", "south", "west"], n // 3)
+    cols = {"y": y.tolist(), "x": x.tolist(), "pier": pier.tolist()}
+    return cols, x, y, pier
+
+
+def test_the_top_entries_get_the_residuals_of_their_own_fit(case):
+    cols, x, y, _ = case
+    prep = prepare({"columns": cols}, "y", ["x"])
+    scales = [("log", "log"), ("identity", "identity"), ("sqrt", "log"), ("log", "identity")]
+    body = {"ranking": [{"rank": i + 1, "specification": _spec(*s)} for i, s in enumerate(scales)]}
+    out = report_plots(body, prep, 0.05, seed=0)
+    assert sorted(out) == [(None, r) for r in range(1, DETAIL_TOP + 1)]
+    fwd = {"log": np.log, "identity": lambda v: v, "sqrt": np.sqrt}
+    for (_, rank), plots in out.items():
+        rt, pt = scales[rank - 1]
+        # source: statsmodels OLS of the same specification
+        ref = sm.OLS(fwd[rt](y), sm.add_constant(fwd[pt](x))).fit()
+        pts = plots["residuals_fitted"]["points"]
+        np.testing.assert_allclose(pts["x"], ref.fittedvalues[pts["row"]], rtol=1e-9)
+        np.testing.assert_allclose(pts["y"], ref.resid[pts["row"]], rtol=1e-9)
+
+
+def test_a_specification_that_cannot_be_refitted_gives_its_reason(case):
+    cols, *_ = case
+    cols = dict(cols, x=[-1.0, *cols["x"][1:]])  # log(x) no longer applies to row 0
+    prep = prepare({"columns": cols}, "y", ["x"])
+    out = report_plots(
+        {"ranking": [{"rank": 1, "specification": _spec("log", "log")}]}, prep, 0.05, 0
+    )
+    assert isinstance(out[(None, 1)], str) and "could not be refitted" in out[(None, 1)]
+
+
+def test_groups_show_rank_one_of_each_group_with_a_ranking(case):
+    cols, x, y, pier = case
+    prep = prepare({"columns": cols}, "y", ["x"], group_by="pier")
+    body = {
+        "groups": {
+            "north": {"ranking": [{"rank": 1, "specification": _spec("log", "log")}]},
+            "south": {"ranking": []},  # a group without a ranking is skipped
+            "west": {"ranking": [{"rank": 1, "specification": _spec("identity", "identity")}]},
+        }
+    }
+    out = report_plots(body, prep, 0.05, seed=1)
+    assert sorted(out) == [("north", 1), ("west", 1)]
+    west = pier == "west"
+    # source: statsmodels OLS on the west pier's rows only
+    ref = sm.OLS(y[west], sm.add_constant(x[west])).fit()
+    pts = out[("west", 1)]["residuals_fitted"]["points"]
+    rows = np.flatnonzero(west)
+    pos = np.searchsorted(rows, pts["row"])
+    np.testing.assert_allclose(pts["y"], ref.resid[pos], rtol=1e-9)
