@@ -8,7 +8,8 @@ The segments are independent tasks; where they run is the runner's business:
 - ``dask``: a Dask distributed cluster, a running scheduler (``tcp://HOST:8786``) or a
   ``LocalCluster`` started for the job.  Tasks are submitted in a sliding window, so each
   segment's rows travel with its own task (scattered first when they are large) and the
-  scheduler never holds the whole table.
+  scheduler never holds the whole table; or, for large data, each task carries only a
+  reference to its partition of a shared Parquet dataset (:mod:`service.batch_parquet`).
 
 Every result goes to ``DIR/segments/<file>.json`` through a temporary name and a rename, so a
 killed job leaves only whole files.  ``DIR/manifest.json`` records the request, seed,
@@ -34,6 +35,7 @@ from typing import TYPE_CHECKING, Any
 from .core.numbers import count_of
 
 if TYPE_CHECKING:
+    from .batch_parquet import SharedParquet
     from .core.data import Prepared
     from .selection.search_setup import SearchOptions
 
@@ -113,13 +115,28 @@ def _pin_blas_once() -> None:
 def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dict | None):
     """The finished selection body of one segment (module-level: it runs on any worker).
 
-    ``sub`` is the segment's Prepared or its ``{"problem": ...}`` when it was already known
-    to be unusable.  An incumbent's model artifact adds the ``drift`` block.
+    ``sub`` is the segment's Prepared, a :class:`batch_parquet.SegmentRef` to read it from
+    the shared Parquet dataset, or its ``{"problem": ...}`` when it was already known to be
+    unusable.  An incumbent's model artifact adds the ``drift`` block.
     """
     from .api.selection import finish_body
+    from .batch_parquet import SegmentRef, SharedDirError
     from .selection.groups import select_group
 
     _pin_blas_once()
+    if isinstance(sub, SegmentRef):
+        try:
+            sub = sub.load()
+        except (SharedDirError, OSError) as exc:
+            return {
+                "problem": {
+                    "type": "urn:bestscale:problem:segment-data",
+                    "title": "The segment's rows could not be read from the shared directory",
+                    "status": 500,
+                    "detail": str(exc)[:2000],
+                    "errors": [],
+                }
+            }
     body = select_group((sub, opts, service_version))
     if "problem" not in body:
         body = finish_body(body, opts)
@@ -149,7 +166,7 @@ def unexpected_problem(exc: BaseException) -> dict:
 @dataclass
 class Task:
     name: str
-    sub: Any  # Prepared | {"problem": ...}
+    sub: Any  # Prepared | SegmentRef | {"problem": ...}
     opts: Any
     version: str
     incumbent_model: dict | None = None
@@ -510,8 +527,13 @@ def run_job(
     runner: Callable[[list[Task]], Iterable[tuple[str, dict]]],
     resume: bool = False,
     progress: BatchProgress | None = None,
+    shared: SharedParquet | None = None,
 ) -> dict:
-    """Run every unfinished segment, write its file as it arrives, then the summary."""
+    """Run every unfinished segment, write its file as it arrives, then the summary.
+
+    With ``shared`` the segments' rows go to the shared Parquet dataset (written once, or
+    reused when a finished one holds the same rows) and each task carries a reference to its
+    own partition instead of the rows."""
     from .selection.groups import group_parts
 
     out = job.out
@@ -555,9 +577,20 @@ def run_job(
             records[name] = rec
             continue
         inc = job.incumbents.get(name)
-        opts = replace(job.opts, incumbent=inc.specification) if inc else job.opts
+        # limits.time_limit_s bounds each segment from its own start: the request-wide
+        # deadline of one HTTP request would fail every segment reached after it
+        opts = replace(job.opts, deadline_at=None)
+        if inc:
+            opts = replace(opts, incumbent=inc.specification)
         tasks.append(Task(name, sub, opts, job.version, inc.model if inc else None))
     reused = len(records)
+    if shared is not None and tasks:
+        refs = shared.publish(job.prep, parts, manifest["data_fingerprint"])
+        for t in tasks:
+            if t.name in refs:
+                t.sub = refs[t.name]
+        if progress is not None:
+            progress.note(shared.describe())
     files = {e["segment"]: e for e in manifest["segments"]}
     if progress is not None:
         progress.start(len(tasks))

@@ -41,6 +41,20 @@ class Settings(BaseSettings):
         description="Dask scheduler for `select --group-by` batch jobs without --cluster "
         "(tcp://HOST:8786, or 'local' for a cluster on this machine)",
     )
+    shared_dir: str | None = Field(
+        None,
+        min_length=1,
+        description="directory every Dask worker sees at the same path (a shared file system); "
+        "batch jobs whose data go the Parquet way write their segments there",
+    )
+    parquet_above_mb: float = Field(
+        256.0,
+        ge=0,
+        le=2**30,
+        description="batch jobs on a Dask cluster whose segment columns exceed this many MiB "
+        "hand them to the workers as a Parquet dataset under the shared directory instead of "
+        "with each task (0: always)",
+    )
     pool_size: int = Field(
         2,
         ge=1,

@@ -19,6 +19,7 @@ import signal
 import subprocess
 import sys
 import time
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -147,6 +148,8 @@ def test_local_cluster_with_two_workers_gives_the_same_files(job, tmp_path, caps
     err = capsys.readouterr().err
     assert _results(out) == job["inline"]
     assert "running on a local cluster: 2 workers" in err
+    # small data: the rows travel with the tasks
+    assert "segment rows go with the tasks" in err and "within the 256 MiB threshold" in err
     # not a terminal: a plain line every 4 segments
     assert "segments 4/12 done, 0 failed" in err and "segments 12/12 done" in err
 
@@ -428,3 +431,144 @@ def test_scheduler_setting_and_argument_errors(monkeypatch, tmp_path, capsys):
             select_main(base + extra)
         assert exc.value.code == 2
         assert message in capsys.readouterr().err
+
+
+# ---------------------------------------------------------------- segment rows via Parquet
+
+
+def test_parquet_transport_gives_the_same_files(job, tmp_path, capsys):
+    """The same month on a LocalCluster with 2 workers, each task reading its segment from the
+    shared Parquet dataset: the same files as the inline run and as the rows sent with the
+    tasks (test_local_cluster_with_two_workers_gives_the_same_files)."""
+    shared = tmp_path / "shared"
+    shared.mkdir()
+    out = tmp_path / "parquet"
+    # auto with a threshold of 0 MiB: any data are 'large'
+    argv = _args(
+        job["data"],
+        out,
+        "--cluster",
+        "local",
+        "--local-workers",
+        "2",
+        "--parquet-above-mb",
+        "0",
+        "--shared-dir",
+        str(shared),
+        options=job["options"],
+    )
+    assert select_main(argv) == 0
+    err = capsys.readouterr().err
+    assert f"segment rows go a Parquet dataset under {shared.resolve()}" in err
+    assert "over the 0 MiB threshold" in err and "written for this run" in err
+    assert _results(out) == job["inline"]
+    assert list(shared.iterdir()) == []  # the finished job removed its dataset
+
+
+def test_a_remote_cluster_without_a_shared_dir_is_refused_before_connecting(
+    job, tmp_path, capsys, monkeypatch
+):
+    monkeypatch.delenv("BESTSCALE_SHARED_DIR", raising=False)
+    get_settings.cache_clear()
+    # port 9 (discard) on loopback: nothing listens; a connection attempt would take 20 s
+    remote = ["--cluster", "tcp://127.0.0.1:9"]
+    for extra in (["--transport", "parquet"], ["--parquet-above-mb", "0"]):
+        t = time.perf_counter()
+        code = select_main(
+            _args(job["data"], tmp_path / "o", *remote, *extra, options=job["options"])
+        )
+        assert code == 2 and time.perf_counter() - t < 15
+        err = capsys.readouterr().err
+        assert "needs a directory every worker sees" in err and "--shared-dir" in err
+        assert "--transport scatter" in err
+    with pytest.raises(SystemExit):
+        select_main(
+            _args(
+                job["data"], tmp_path / "one.json", "--transport", "parquet", options=job["options"]
+            )
+        )
+    assert "need --group-by and --out DIR" in capsys.readouterr().err
+    missing = tmp_path / "nowhere"
+    code = select_main(
+        _args(
+            job["data"],
+            tmp_path / "o2",
+            "--transport",
+            "parquet",
+            "--shared-dir",
+            str(missing),
+            options=job["options"],
+        )
+    )
+    assert code == 2 and "no such directory" in capsys.readouterr().err
+
+
+def test_cluster_job_killed_with_its_workers_resumes_from_the_shared_dataset(job, tmp_path, capsys):
+    """The job and its LocalCluster's worker processes killed by a signal mid-run: the finished
+    segments and the shared dataset survive, and the resumed job (here in this process,
+    reading the same dataset) reuses both and ends with the inline run's results."""
+    import os
+
+    shared = tmp_path / "shared"
+    shared.mkdir()
+    out = tmp_path / "killed"
+    args = _args(
+        job["data"],
+        out,
+        "--transport",
+        "parquet",
+        "--shared-dir",
+        str(shared),
+        options=job["options"],
+    )
+    cmd = _command(*args, "--cluster", "local", "--local-workers", "2")
+    # its own process group, so the signal reaches the cluster's worker processes too
+    proc = subprocess.Popen(
+        cmd, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True
+    )
+    seg_dir = out / "segments"
+    deadline = time.monotonic() + 180
+    try:
+        while time.monotonic() < deadline and proc.poll() is None:
+            if seg_dir.is_dir() and len(list(seg_dir.glob("*.json"))) >= 2:
+                break
+            time.sleep(0.05)
+    finally:
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait()
+    assert proc.returncode == -signal.SIGKILL, "the job ended before it could be killed"
+    finished = {p.name: p.stat().st_mtime_ns for p in seg_dir.glob("*.json")}
+    assert 2 <= len(finished) < 12
+    datasets = [p for p in shared.iterdir() if p.name.startswith("bestscale-segments-")]
+    assert len(datasets) == 1  # kept for the resume
+
+    assert select_main([*args, "--resume"]) == 0
+    err = capsys.readouterr().err
+    assert f"{count_of(len(finished), 'segment')} already finished" in err
+    assert f"Parquet dataset {datasets[0]} (reused, written by an earlier run)" in err
+    for name, mtime in finished.items():
+        assert (seg_dir / name).stat().st_mtime_ns == mtime
+    assert _results(out) == job["inline"]
+    assert list(shared.iterdir()) == []
+
+
+def test_the_time_limit_applies_to_each_segment_not_to_the_whole_job(tmp_path):
+    """An HTTP request's options carry one deadline for the whole request; a month of
+    segments runs far longer than one request, so each segment gets the time limit from its
+    own start (options made long ago, deadline passed: every segment still runs)."""
+    from service.api.schemas import SelectionRequest
+    from service.api.selection import selection_options
+    from service.batch import Job, run_inline, run_job
+    from service.core.data import prepare
+
+    table = _table(2, 30)
+    body = {"response": "repair_cost", "predictors": PREDICTORS.split(","), **OPTIONS}
+    req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
+    opts = selection_options(req)
+    assert opts.deadline_at is not None
+    stale = replace(opts, deadline_at=time.time() - 1.0)
+    prep = prepare(
+        {"columns": table}, "repair_cost", body["predictors"], ["soil"], None, "district"
+    )
+    summary = run_job(Job(tmp_path / "out", body, prep, stale, "test"), run_inline)
+    assert summary["counts"]["ok"] == 2 and summary["counts"]["failed"] == 0

@@ -546,6 +546,39 @@ def _order_perm(ov: np.ndarray | None) -> np.ndarray | None:
     return np.array(sorted(range(ov.size), key=lambda i: ov[i]), dtype=int)
 
 
+def segment_of(
+    response: str,
+    predictors: list[str],
+    y: np.ndarray,
+    numeric: dict[str, np.ndarray],
+    categorical: dict[str, np.ndarray],
+    row_ids: np.ndarray,
+    order_values: np.ndarray | None,
+    table_columns: tuple[str, ...],
+    source: str,
+) -> Prepared:
+    """One segment's rows as a Prepared: what :func:`split_groups` hands each group, and
+    what a batch worker rebuilds from the segment's Parquet file (the same constructor, so
+    the two cannot drift apart)."""
+    sub = Prepared(
+        response,
+        y,
+        list(predictors),
+        numeric,
+        categorical,
+        row_ids,
+        _order_perm(order_values),
+        int(y.size),
+        [],
+        0,
+        tuple(table_columns),
+        order_values,
+        None,
+    )
+    sub.source = source
+    return sub
+
+
 def split_groups(prep: Prepared) -> dict[str, Prepared | InputError]:
     """One Prepared per value of the group column, in sorted order of the values.
 
@@ -557,23 +590,17 @@ def split_groups(prep: Prepared) -> dict[str, Prepared | InputError]:
         raise ValueError("split_groups needs a table prepared with group_by")
     for g in sorted(set(prep.groups.tolist())):
         mask = prep.groups == g
-        sub = Prepared(
+        sub = segment_of(
             prep.response,
-            prep.y[mask],
             list(prep.predictors),
+            prep.y[mask],
             {k: v[mask] for k, v in prep.numeric.items()},
             {k: v[mask] for k, v in prep.categorical.items()},
             prep.row_ids[mask],
-            None,
-            int(mask.sum()),
-            [],
-            0,
-            prep.table_columns,
             prep.order_values[mask] if prep.order_values is not None else None,
-            None,
+            prep.table_columns,
+            prep.source,
         )
-        sub.order = _order_perm(sub.order_values)
-        sub.source = prep.source
         try:
             _check_content(sub)
             out[g] = sub
