@@ -242,7 +242,7 @@ def build_parser() -> argparse.ArgumentParser:
         default=None,
         metavar="DIR",
         help="for the parquet transport: a directory every worker mounts at the same path "
-        "(default BESTSCALE_SHARED_DIR; required with a remote scheduler; with --cluster local "
+        "(default BESTSCALE_SHARED_DIR; needed with a remote scheduler; with --cluster local "
         "a temporary directory). The job's dataset is removed when the job ends and kept for "
         "--resume when it is interrupted",
     )
