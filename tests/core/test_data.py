@@ -89,13 +89,14 @@ def test_csv_cells_read_as_pandas_reads_them(cell):
 def test_rows_with_a_missing_used_value_are_dropped_and_listed():
     p = _prep({"columns": COLUMNS})
     assert p.rows_received == 8 and p.n == 5 and p.rows_dropped == 3
-    # row 2: missing cost; row 3: missing age; row 5: missing material (0-based input rows)
+    # rows counted from 1: row 3 misses cost, row 4 age, row 6 material
     assert p.dropped == [
-        {"row": 2, "reason": "missing value in 'cost'"},
-        {"row": 3, "reason": "missing value in 'age'"},
-        {"row": 5, "reason": "missing value in 'material'"},
+        {"row": 3, "reason": "missing value in 'cost'"},
+        {"row": 4, "reason": "missing value in 'age'"},
+        {"row": 6, "reason": "missing value in 'material'"},
     ]
-    assert p.row_ids.tolist() == [0, 1, 4, 6, 7]
+    assert p.row_ids.tolist() == [0, 1, 4, 6, 7]  # positions in the request's arrays
+    assert p.row_numbers.tolist() == [1, 2, 5, 7, 8]
     summary = p.data_summary()
     assert summary["rows_used"] + summary["rows_dropped"] == summary["rows_received"]
     # an unused column's gaps drop nothing

@@ -46,8 +46,9 @@ def test_the_top_entries_get_the_residuals_of_their_own_fit(case):
         # source: statsmodels OLS of the same specification
         ref = sm.OLS(fwd[rt](y), sm.add_constant(fwd[pt](x))).fit()
         pts = plots["residuals_fitted"]["points"]
-        np.testing.assert_allclose(pts["x"], ref.fittedvalues[pts["row"]], rtol=1e-9)
-        np.testing.assert_allclose(pts["y"], ref.resid[pts["row"]], rtol=1e-9)
+        at = np.asarray(pts["row"]) - 1  # rows are counted from 1
+        np.testing.assert_allclose(pts["x"], ref.fittedvalues[at], rtol=1e-9)
+        np.testing.assert_allclose(pts["y"], ref.resid[at], rtol=1e-9)
 
 
 def test_a_specification_that_cannot_be_refitted_gives_its_reason(case):
@@ -77,5 +78,5 @@ def test_groups_show_rank_one_of_each_group_with_a_ranking(case):
     ref = sm.OLS(y[west], sm.add_constant(x[west])).fit()
     pts = out[("west", 1)]["residuals_fitted"]["points"]
     rows = np.flatnonzero(west)
-    pos = np.searchsorted(rows, pts["row"])
+    pos = np.searchsorted(rows, np.asarray(pts["row"]) - 1)  # rows are counted from 1
     np.testing.assert_allclose(pts["y"], ref.resid[pos], rtol=1e-9)

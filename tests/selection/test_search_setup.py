@@ -42,7 +42,7 @@ def test_the_fewest_rows_accepted_leave_p_plus_2_training_rows(folds, p):
     check_rows(_prep(least), SearchOptions(folds=folds), p)
     with pytest.raises(InputError) as exc:
         check_rows(_prep(least - 1), SearchOptions(folds=folds), p)
-    assert exc.value.problems[0].pointer == "/data"
+    assert exc.value.problems[0].pointer == "/data/columns"  # the table that is short
     # the message names the number of rows needed, which is the least accepted count or fewer
     need = int(exc.value.detail.split("at least ")[1].split(" ")[0])
     assert need <= least and need == math.ceil((p + 2) * folds / (folds - 1))
@@ -51,7 +51,7 @@ def test_the_fewest_rows_accepted_leave_p_plus_2_training_rows(folds, p):
 def test_more_folds_than_rows_and_mape_with_zeros():
     with pytest.raises(InputError) as exc:
         check_rows(_prep(6), SearchOptions(folds=10), 2)
-    assert exc.value.problems[0].pointer == "/validation/folds"
+    assert exc.value.problems[0].pointer == "/data/columns"  # the data, not the folds field
     with pytest.raises(InputError) as exc:
         check_rows(_prep(40, zero=True), SearchOptions(metric="mape"), 2)
     assert exc.value.problems[0].pointer == "/validation/metric"
