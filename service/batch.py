@@ -121,7 +121,7 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     """
     from .api.selection import finish_body
     from .batch_parquet import SegmentRef, SharedDirError
-    from .selection.groups import select_group
+    from .selection.groups import GroupTask, select_group
 
     _pin_blas_once()
     if isinstance(sub, SegmentRef):
@@ -137,7 +137,7 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
                     "errors": [],
                 }
             }
-    body = select_group((sub, opts, service_version))
+    body = select_group(GroupTask(sub, opts, service_version))
     if "problem" not in body:
         body = finish_body(body, opts)
     if incumbent_model is not None and not isinstance(sub, dict):

@@ -6,13 +6,13 @@ from __future__ import annotations
 
 import time
 from collections.abc import Callable, Iterable
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 from ..core.data import Prepared, split_groups
 from ..core.errors import BestscaleError, BudgetError
 from ..core.numbers import count_of
-from .search import EntryHook, run_selection
+from .search import run_selection
 from .search_setup import SearchOptions
 from .trust import assess_trust
 
@@ -30,7 +30,6 @@ def run_grouped(
     prep: Prepared,
     opts: SearchOptions,
     service_version: str,
-    entry_hook: EntryHook | None = None,
     finish: Callable[[dict[str, Any]], dict[str, Any]] | None = None,
     mapper: Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]] = map,
 ) -> dict[str, Any]:
@@ -45,17 +44,7 @@ def run_grouped(
     deadline = time.time() + opts.seconds_left()
     parts = group_parts(prep)
     names = list(parts)
-    tasks = [
-        (
-            sub,
-            opts,
-            service_version,
-            entry_hook,
-            None,
-            deadline,
-        )
-        for sub in parts.values()
-    ]
+    tasks = [GroupTask(sub, opts, service_version, deadline=deadline) for sub in parts.values()]
     bodies = [
         b if ("problem" in b or finish is None) else finish(b) for b in mapper(select_group, tasks)
     ]
@@ -94,25 +83,40 @@ def problem_of(exc: BestscaleError) -> dict[str, Any]:
     }
 
 
-def select_group(task: tuple[Any, ...]) -> dict[str, Any]:
-    """Worker for one group of :func:`run_grouped`.
+@dataclass(frozen=True)
+class GroupTrust:
+    """Trust settings of a group's selection (see :func:`trust.assess_trust`)."""
 
-    ``task`` is ``(prepared | problem, opts, version[, entry_hook[, trust[, deadline]]])``:
-    the group's :class:`Prepared` (a group already known to be unusable arrives
-    as its ``{"problem": ...}`` entry and is passed through), the search
-    options, the service version, an optional module-level ``entry_hook``,
-    optional trust settings ``(stability, optimism, resamples, outer_folds)``
-    for :func:`trust.assess_trust`, and the request's wall-clock deadline
-    (``time.time()`` value, shared by the processes of one machine): a group
-    reached after it gets a 503 problem, one reached before it searches within
-    what is left.  Returns the group's selection body without private keys, or
-    a ``problem`` entry for an error the core raised on purpose.  Module-level,
-    so it pickles.
+    stability: bool
+    optimism: bool
+    resamples: int | None = None
+    outer_folds: int | None = None
+
+
+@dataclass(frozen=True)
+class GroupTask:
+    """One group for :func:`select_group`.
+
+    ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ...}`` entry of a
+    group already known to be unusable (passed through).  ``deadline`` is the request's
+    wall-clock deadline (a ``time.time()`` value, shared by the processes of one machine):
+    a group reached after it gets a 503 problem, one reached before it searches within what
+    is left.
     """
-    sub, opts, service_version = task[:3]
-    entry_hook = task[3] if len(task) > 3 else None
-    trust = task[4] if len(task) > 4 else None
-    deadline = task[5] if len(task) > 5 else None
+
+    rows: Prepared | dict[str, Any]
+    opts: SearchOptions
+    service_version: str
+    trust: GroupTrust | None = None
+    deadline: float | None = None
+
+
+def select_group(task: GroupTask) -> dict[str, Any]:
+    """Worker for one group of :func:`run_grouped`: the group's selection body without
+    private keys, or a ``problem`` entry for an error the core raised on purpose.
+    Module-level, and its task is a frozen dataclass, so both pickle."""
+    sub, opts, service_version = task.rows, task.opts, task.service_version
+    trust, deadline = task.trust, task.deadline
     if isinstance(sub, dict):
         return sub
     if deadline is not None:
@@ -128,9 +132,10 @@ def select_group(task: tuple[Any, ...]) -> dict[str, Any]:
             }
         opts = replace(opts, time_limit_s=remaining)
     try:
-        body = run_selection(sub, opts, service_version, entry_hook)
-        if trust is not None and (trust[0] or trust[1]):
-            stability, optimism, resamples, outer_folds = trust
+        body = run_selection(sub, opts, service_version)
+        if trust is not None and (trust.stability or trust.optimism):
+            stability, optimism = trust.stability, trust.optimism
+            resamples, outer_folds = trust.resamples, trust.outer_folds
             body["trust"] = assess_trust(
                 sub,
                 opts,

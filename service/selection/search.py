@@ -73,9 +73,6 @@ def failure_groups(reasons: dict[str, int]) -> list[dict[str, Any]]:
 
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
 
-# entry_hook(entry, {"spec", "prep", "opts"}) completes a ranking entry in place
-EntryHook = Callable[[dict[str, Any], dict[str, Any]], object]
-
 
 def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
     return cand.response_candidates(prep, opts.response_transforms)
@@ -170,13 +167,8 @@ def run_selection(
     prep: Prepared,
     opts: SearchOptions,
     service_version: str,
-    entry_hook: EntryHook | None = None,
 ) -> dict[str, Any]:
-    """Search, score and rank; returns the contract's selection body (without service_version).
-
-    ``entry_hook(entry, context)`` lets later stages (conditions, interpretation)
-    enrich each returned ranking entry.
-    """
+    """Search, score and rank; returns the contract's selection body (without service_version)."""
     t0 = time.perf_counter()
     deadline = t0 + opts.seconds_left()
     resp = response_candidates(prep, opts)
@@ -302,8 +294,6 @@ def run_selection(
                 "conditions_not_holding": failed(entry.get("conditions")),
             }
         entry["score"] = {**entry["score"], "parts": parts}
-        if entry_hook is not None:
-            entry_hook(entry, {"spec": s.spec, "prep": prep, "opts": opts})
         entries.append({"rank": i + 1, **entry})
     if not entries:
         raise ModelFailure(
@@ -313,7 +303,7 @@ def run_selection(
     incumbent_block = None
     if opts.incumbent is not None:
         incumbent_block = _incumbent(
-            opts, prep, plan, shift_needed, listable, ranked, entries, entry_hook, band
+            opts, prep, plan, shift_needed, listable, ranked, entries, band
         )
     elapsed = time.perf_counter() - t0
     search = {
@@ -372,7 +362,6 @@ def _incumbent(
     scored: list[Scored],
     ranked: list[tuple[Scored, dict[str, Any]]],
     entries: list[dict[str, Any]],
-    entry_hook: EntryHook | None,
     band: Band | None = None,
 ) -> dict[str, Any]:
     assert opts.incumbent is not None  # called only for a request with an incumbent

@@ -28,7 +28,7 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 from service.api.encode import to_jsonable
 from service.core.data import prepare, split_groups
 from service.core.errors import BestscaleError
-from service.selection.groups import problem_of, run_grouped, select_group
+from service.selection.groups import GroupTask, problem_of, run_grouped, select_group
 from service.selection.search_setup import SearchOptions
 from service.selection.workers import map_in_processes
 from threadpoolctl import threadpool_limits
@@ -98,7 +98,7 @@ def main() -> int:
     t = time.perf_counter()
     parts = split_groups(prep)
     tasks = [
-        ({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "bench")
+        GroupTask({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "bench")
         for p in parts.values()
     ]
     pooled = dict(zip(parts, map_in_processes(select_group, tasks, args.processes), strict=True))

@@ -16,7 +16,7 @@ from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare, split_groups
 from service.core.errors import BestscaleError
-from service.selection.groups import problem_of, run_grouped, select_group
+from service.selection.groups import GroupTask, GroupTrust, problem_of, run_grouped, select_group
 from service.selection.search_setup import SearchOptions
 from service.selection.workers import map_in_processes
 from service.settings import get_settings
@@ -139,7 +139,7 @@ def test_groups_in_worker_processes_equal_the_in_process_run():
     in_process = run_grouped(prep, opts, "test")["groups"]
     parts = split_groups(prep)
     tasks = [
-        ({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "test")
+        GroupTask({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "test")
         for p in parts.values()
     ]
     pooled = dict(zip(parts, map_in_processes(select_group, tasks, processes=2), strict=True))
@@ -154,7 +154,7 @@ def test_a_group_worker_can_assess_trust_for_its_group():
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
     )
     north = split_groups(prep)["north"]
-    body = select_group((north, opts, "test", None, (True, False, 10, None)))
+    body = select_group(GroupTask(north, opts, "test", trust=GroupTrust(True, False, 10)))
     trust = body["trust"]
     assert trust["resamples"] == 10 and trust["optimism"] is None
     # source: the simulation's construction: log-log is clearly right in this district
@@ -170,7 +170,7 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
     )
     north = split_groups(prep)["north"]
-    late = select_group((north, opts, "test", None, None, time.time() - 1.0))
+    late = select_group(GroupTask(north, opts, "test", deadline=time.time() - 1.0))
     assert late["problem"]["status"] == 503 and "ran out" in late["problem"]["detail"]
-    on_time = select_group((north, opts, "test", None, None, time.time() + 600.0))
+    on_time = select_group(GroupTask(north, opts, "test", deadline=time.time() + 600.0))
     assert on_time["ranking"][0]["rank"] == 1
