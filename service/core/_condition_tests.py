@@ -613,14 +613,19 @@ def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict[str, Any]:
         lags = np.zeros((fit.n, nlags))
         for j in range(1, nlags + 1):
             lags[j:, j - 1] = e[:-j]  # residuals before the first row count as zero
-        X = fit.X[order]
-        if extra:
-            X = np.column_stack([X, np.ones(fit.n)])
-        base = LeastSquares.of(X)
+        # least squares do not depend on the order of the rows: the model's own
+        # decomposition serves (rows taken back to the data's order and out again)
+        base = LeastSquares.of(np.column_stack([fit.X, np.ones(fit.n)])) if extra else fit.ls
+        back = np.argsort(order)
+
+        def on_x(V: np.ndarray) -> np.ndarray:
+            out: np.ndarray = base.residual(V[back])[order]
+            return out
+
         # the lagged residuals' parts orthogonal to X explain what they add (Frisch-Waugh-
         # Lovell); the design inherits any rank deficiency of X, so df use ranks
-        added = LeastSquares.of(base.residual(lags))
-        e_x = base.residual(e)
+        added = LeastSquares.of(on_x(lags))
+        e_x = on_x(e)
         rss_r = float(e_x @ e_x)
         rss_u = float(np.sum(added.residual(e_x) ** 2))
         df_u = fit.n - base.rank - added.rank

@@ -6,15 +6,15 @@ from __future__ import annotations
 from typing import Any
 
 from ..core import transforms as tr
-from ..core.condition_rules import condition_inputs, failed
+from ..core.condition_rules import failed
 from ..core.crossval import cross_validate
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, ModelFailure, pointer
 from ..core.folds import make_plan
-from ..core.plots import diagnostic_plots
 from ..core.spec import Specification, build_design, resolve_predictor_transforms
 from .candidates import check_explicit
-from .entries import entry_for, fitted_model
+from .entries import entry_for
+from .plots import specification_plots
 from .search_setup import SearchOptions, check_rows
 
 
@@ -92,10 +92,8 @@ def diagnose_specification(
             "rule": "a single specification as sent; nothing was ranked",
         }
         entry = entry_for(spec, cv, plan, prep, parts, opts, service_version)
-        _, design, fit, _ = fitted_model(spec, prep)
+        plots = specification_plots(spec, prep, opts.alpha, opts.seed, max_points)
     except CandidateFailure as exc:
         raise ModelFailure(f"the specification cannot be fitted: {exc.reason}") from None
     entry["score"]["parts"]["conditions_failed"] = failed(entry["conditions"])
-    inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, opts.alpha)
-    plots = diagnostic_plots(inp, max_points=max_points, seed=opts.seed)
     return entry, plots

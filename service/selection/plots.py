@@ -61,12 +61,21 @@ def report_plots(
     return out
 
 
+def specification_plots(
+    spec: Specification, prep: Prepared, alpha: float, seed: int, max_points: int
+) -> dict[str, Any]:
+    """Plot data of one specification fitted on all of ``prep``'s rows (what
+    ``/v1/diagnostics`` returns); raises :class:`CandidateFailure` when it cannot be fitted."""
+    _, design, fit, _ = fitted_model(spec, prep)
+    inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, alpha)
+    return diagnostic_plots(inp, max_points=max_points, seed=seed)
+
+
 def _plots_for(
     entry: dict[str, Any], prep: Prepared, alpha: float, seed: int, max_points: int
 ) -> dict[str, Any] | str:
     try:
-        _, design, fit, _ = fitted_model(Specification.from_dict(entry["specification"]), prep)
-        inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, alpha)
-        return diagnostic_plots(inp, max_points=max_points, seed=seed)
+        spec = Specification.from_dict(entry["specification"])
+        return specification_plots(spec, prep, alpha, seed, max_points)
     except CandidateFailure as exc:
         return f"the specification could not be refitted for plotting: {exc.reason}"

@@ -15,21 +15,6 @@ import orjson
 import pytest
 from service.api.encode import JSONBody, to_jsonable
 from service.core.errors import InputError
-from service.settings import get_settings
-
-
-@pytest.fixture
-def env(monkeypatch):
-    """Set BESTSCALE_* settings for one test (read through the cached settings)."""
-
-    def setenv(**values):
-        for k, v in values.items():
-            monkeypatch.setenv(f"BESTSCALE_{k.upper()}", str(v))
-        get_settings.cache_clear()
-
-    yield setenv
-    monkeypatch.undo()
-    get_settings.cache_clear()
 
 
 def test_numpy_values_become_plain_json_and_private_keys_are_dropped():

@@ -12,22 +12,6 @@ import io
 import pytest
 from service.api.intake import MAX_NAME_CHARS, check_table, table_shape
 from service.core.errors import InputError
-from service.settings import get_settings
-
-
-@pytest.fixture
-def env(monkeypatch):
-    """Set BESTSCALE_* settings for one test (read through the cached settings)."""
-
-    def setenv(**values):
-        for k, v in values.items():
-            monkeypatch.setenv(f"BESTSCALE_{k.upper()}", str(v))
-        get_settings.cache_clear()
-
-    yield setenv
-    monkeypatch.undo()
-    get_settings.cache_clear()
-
 
 COLS = {"cost": [1.0, 2.0, 3.0], "age": [4, 5, 6]}
 RECS = [{"cost": 1.0, "age": 4}, {"cost": 2.0, "age": 5}, {"cost": 3.0, "age": 6}]
