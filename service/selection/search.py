@@ -27,7 +27,7 @@ from ..core.bank import FoldIndex
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import from_score
-from ..core.cvplus import NOT_KEPT, POWERS_PER_FOLD
+from ..core.cvplus import NOT_KEPT
 from ..core.data import Prepared
 from ..core.errors import (
     BudgetError,
@@ -111,34 +111,43 @@ class _Evaluator:
 
     def out_of_fold(self, s: Scored) -> tuple[OutOfFold | None, str]:
         """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
-        or None and why: the same folds scored again, so the numbers are the search's own.
-        Specifications whose predictor powers are estimated inside every fold keep none."""
+        or None and why: the same folds scored again, so the numbers are the search's own
+        (predictor powers estimated inside every fold are estimated again from the same
+        all-rows start, so each fold's powers are the search's own too)."""
         spec = s.open_spec or s.spec
-        if any(bt.is_open(p.transform) for p in spec.predictors):
-            return None, POWERS_PER_FOLD
         try:
-            cols, names, _ = self.space.design_of(spec)
-            sc = self.scorer.score(spec.response_transform, cols, names, keep_out_of_fold=True)
+            cols, names, dyn = self.space.design_of(spec)
+            dynamic, _ = self._dynamic(spec, cols, dyn)
+            sc = self.scorer.score(
+                spec.response_transform, cols, names, dynamic, keep_out_of_fold=True
+            )
         except CandidateFailure as exc:
             return None, f"its folds could not be scored again ({exc.reason})"
         return sc.out_of_fold, NOT_KEPT
 
+    def _dynamic(
+        self, spec: Specification, cols: list[int], dyn: list[int]
+    ) -> tuple[Dynamic | None, bt.PowerFit | None]:
+        """The columns whose powers every training fold estimates, started at the all-rows
+        estimate (also returned), or (None, None) when ``spec`` estimates no power."""
+        if not dyn:
+            return None, None
+        est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
+        t0 = fit_transform(
+            spec.response_transform, self.prep.y, shift_needed=self.scorer.shift_needed
+        )
+        z = t0.forward(self.prep.y)
+        if not np.all(np.isfinite(z)):
+            raise CandidateFailure(f"{t0.label('y')} overflows on the data")
+        x = np.column_stack([self.prep.numeric[c] for c in est_cols])
+        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
+        return Dynamic(dyn, x, fit.powers, self.intercept, tuple(est_cols)), fit
+
     def _score(self, spec: Specification) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
         t = spec.response_transform
-        dynamic = None
-        fit = None
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
-        if dyn:
-            t0 = fit_transform(t, self.prep.y, shift_needed=self.scorer.shift_needed)
-            z = t0.forward(self.prep.y)
-            if not np.all(np.isfinite(z)):
-                raise CandidateFailure(f"{t0.label('y')} overflows on the data")
-            x = np.column_stack([self.prep.numeric[c] for c in est_cols])
-            fit = bt.estimate_powers(
-                z, self.space.bank.columns(cols), x, boxcox_form=self.intercept
-            )
-            dynamic = Dynamic(dyn, x, fit.powers, self.intercept)
+        dynamic, fit = self._dynamic(spec, cols, dyn)
         res = from_score(self.scorer.score(t, cols, names, dynamic))
         if fit is None:
             return Scored(spec, res)
