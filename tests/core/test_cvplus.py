@@ -238,7 +238,7 @@ def test_seeded_coverage_of_90_percent_intervals():
     from robust_coverage import pi_coverage
 
     # seeded: 4 training sets of 300 rows per case, 2,000 fresh rows each
-    for case in ("t3", "growing"):
+    for case in ("t3", "growing", "powers"):
         c = pi_coverage(case, 4, 300, fresh=2000, level=0.9, seed=3)
         mean = float(np.mean(c["cv_plus"]))
         # source: Barber et al. 2021 Theorem 4: coverage >= 1 - 2 alpha - min{2(1-1/K)/(n/K+1),
