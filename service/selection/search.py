@@ -43,6 +43,7 @@ from ..core.numbers import count_of, failure_text
 from ..core.spec import PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
 from . import incumbent
+from .deadline import Deadline
 from .entries import attach_cv_plus, entry_for
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
@@ -109,19 +110,25 @@ class _Evaluator:
         self.scored.append(s)
         return s
 
-    def out_of_fold(self, s: Scored) -> tuple[OutOfFold | None, str]:
+    def out_of_fold(self, s: Scored, deadline: Deadline) -> tuple[OutOfFold | None, str]:
         """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
         or None and why: the same folds scored again, so the numbers are the search's own.
-        Specifications whose predictor powers are estimated inside every fold keep none."""
+        Specifications whose predictor powers are estimated inside every fold keep none;
+        past the request's deadline none is computed."""
         spec = s.open_spec or s.spec
         if any(bt.is_open(p.transform) for p in spec.predictors):
             return None, POWERS_PER_FOLD
+        if deadline.passed():
+            return None, (
+                f"the request's time limit of {deadline.limit_s:g} s ran out before this "
+                "entry's out-of-fold fits were kept; raise limits.time_limit_s to get them"
+            )
         try:
             cols, names, _ = self.space.design_of(spec)
-            sc = self.scorer.score(spec.response_transform, cols, names, keep_out_of_fold=True)
+            oof = self.scorer.out_of_fold(spec.response_transform, cols, names)
         except CandidateFailure as exc:
             return None, f"its folds could not be scored again ({exc.reason})"
-        return sc.out_of_fold, NOT_KEPT
+        return oof, NOT_KEPT
 
     def _score(self, spec: Specification) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
@@ -170,7 +177,7 @@ def run_selection(
 ) -> dict[str, Any]:
     """Search, score and rank; returns the contract's selection body (without service_version)."""
     t0 = time.perf_counter()
-    deadline = t0 + opts.seconds_left()
+    deadline = opts.clock()
     resp = response_candidates(prep, opts)
     if not resp:
         raise InputError.at(
@@ -286,7 +293,7 @@ def run_selection(
             continue
         i = len(entries)
         # CV+ fits only for the entries returned (the band's assessed members need none)
-        attach_cv_plus(entry, *ev.out_of_fold(s), prep, plan)
+        attach_cv_plus(entry, *ev.out_of_fold(s, deadline), prep, plan)
         if "conditions_failed" not in parts:
             parts = {
                 **parts,
