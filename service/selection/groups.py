@@ -12,6 +12,7 @@ from typing import Any
 from ..core.data import Prepared, split_groups
 from ..core.errors import BestscaleError, BudgetError
 from ..core.numbers import count_of
+from .deadline import Deadline
 from .search import run_selection
 from .search_setup import SearchOptions
 from .trust import assess_trust
@@ -40,8 +41,8 @@ def run_grouped(
     gets a ``problem`` entry with its reason while the others go on.
     """
     t0 = time.perf_counter()
-    # one budget for the whole request, not per group (wall clock: shared by worker processes)
-    deadline = time.time() + opts.seconds_left()
+    # one deadline for the whole request, not one per group
+    deadline = opts.clock()
     parts = group_parts(prep)
     names = list(parts)
     tasks = [GroupTask(sub, opts, service_version, deadline=deadline) for sub in parts.values()]
@@ -99,16 +100,15 @@ class GroupTask:
 
     ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ...}`` entry of a
     group already known to be unusable (passed through).  ``deadline`` is the request's
-    wall-clock deadline (a ``time.time()`` value, shared by the processes of one machine):
-    a group reached after it gets a 503 problem, one reached before it searches within what
-    is left.
+    one deadline: a group reached after it gets a 503 problem, one reached before it
+    searches within what is left.
     """
 
     rows: Prepared | dict[str, Any]
     opts: SearchOptions
     service_version: str
     trust: GroupTrust | None = None
-    deadline: float | None = None
+    deadline: Deadline | None = None
 
 
 def select_group(task: GroupTask) -> dict[str, Any]:
@@ -116,21 +116,22 @@ def select_group(task: GroupTask) -> dict[str, Any]:
     private keys, or a ``problem`` entry for an error the core raised on purpose.
     Module-level, and its task is a frozen dataclass, so both pickle."""
     sub, opts, service_version = task.rows, task.opts, task.service_version
-    trust, deadline = task.trust, task.deadline
+    trust = task.trust
     if isinstance(sub, dict):
         return sub
-    if deadline is not None:
-        remaining = deadline - time.time()
-        if remaining <= 0:
-            return {
-                "problem": problem_of(
-                    BudgetError(
-                        f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
-                        "group was reached; send fewer groups per request or raise limits.time_limit_s"
-                    )
+    # the request's deadline, or (a batch segment) one started now for this group's search
+    # and trust together
+    deadline = task.deadline if task.deadline is not None else opts.clock()
+    if deadline.passed():
+        return {
+            "problem": problem_of(
+                BudgetError(
+                    f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
+                    "group was reached; send fewer groups per request or raise limits.time_limit_s"
                 )
-            }
-        opts = replace(opts, time_limit_s=remaining)
+            )
+        }
+    opts = replace(opts, deadline=deadline)
     try:
         body = run_selection(sub, opts, service_version)
         if trust is not None and (trust.stability or trust.optimism):

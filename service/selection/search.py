@@ -43,6 +43,7 @@ from ..core.numbers import count_of, failure_text
 from ..core.spec import PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
 from . import incumbent
+from .deadline import Deadline
 from .entries import attach_cv_plus, entry_for
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
@@ -109,21 +110,25 @@ class _Evaluator:
         self.scored.append(s)
         return s
 
-    def out_of_fold(self, s: Scored) -> tuple[OutOfFold | None, str]:
+    def out_of_fold(self, s: Scored, deadline: Deadline) -> tuple[OutOfFold | None, str]:
         """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
         or None and why: the same folds scored again, so the numbers are the search's own
         (predictor powers estimated inside every fold are estimated again from the same
-        all-rows start, so each fold's powers are the search's own too)."""
+        all-rows start, so each fold's powers are the search's own too); past the
+        request's deadline none is computed."""
         spec = s.open_spec or s.spec
+        if deadline.passed():
+            return None, (
+                f"the request's time limit of {deadline.limit_s:g} s ran out before this "
+                "entry's out-of-fold fits were kept; raise limits.time_limit_s to get them"
+            )
         try:
             cols, names, dyn = self.space.design_of(spec)
             dynamic, _ = self._dynamic(spec, cols, dyn)
-            sc = self.scorer.score(
-                spec.response_transform, cols, names, dynamic, keep_out_of_fold=True
-            )
+            oof = self.scorer.out_of_fold(spec.response_transform, cols, names, dynamic)
         except CandidateFailure as exc:
             return None, f"its folds could not be scored again ({exc.reason})"
-        return sc.out_of_fold, NOT_KEPT
+        return oof, NOT_KEPT
 
     def _dynamic(
         self, spec: Specification, cols: list[int], dyn: list[int]
@@ -179,7 +184,7 @@ def run_selection(
 ) -> dict[str, Any]:
     """Search, score and rank; returns the contract's selection body (without service_version)."""
     t0 = time.perf_counter()
-    deadline = t0 + opts.seconds_left()
+    deadline = opts.clock()
     resp = response_candidates(prep, opts)
     if not resp:
         raise InputError.at(
@@ -295,7 +300,7 @@ def run_selection(
             continue
         i = len(entries)
         # CV+ fits only for the entries returned (the band's assessed members need none)
-        attach_cv_plus(entry, *ev.out_of_fold(s), prep, plan)
+        attach_cv_plus(entry, *ev.out_of_fold(s, deadline), prep, plan)
         if "conditions_failed" not in parts:
             parts = {
                 **parts,
