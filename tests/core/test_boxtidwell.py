@@ -137,6 +137,7 @@ def test_screening_powers_stop_at_the_deadline():
 
     from service.core import transforms as tr
     from service.selection import candidates as cand
+    from service.selection.deadline import Deadline
 
     rng = np.random.default_rng(9)
     n = 300
@@ -150,7 +151,7 @@ def test_screening_powers_stop_at_the_deadline():
     info, powers = cand.screening_powers(prep, preds, resp, True, 0)
     assert len(powers) == 6  # 2 response scales x 3 predictors, without a deadline
     info, powers = cand.screening_powers(
-        prep, preds, resp, True, 0, deadline=time.perf_counter() - 1.0
+        prep, preds, resp, True, 0, deadline=Deadline(time.time() - 1.0, 1.0)
     )
     assert info == {} and powers == {}  # past the deadline nothing more is estimated
 
