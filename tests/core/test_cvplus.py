@@ -544,3 +544,27 @@ def test_per_fold_scales_reach_the_edges_of_their_inverses(family, lams):
         assert np.all(np.isfinite(inside)) and list(inside) == [ga, gb]
         assert a == -np.finfo(float).max or np.isnan(outside[0])
         assert b == np.finfo(float).max or np.isnan(outside[1])
+
+
+@pytest.mark.parametrize("boxcox_form", [True, False])
+def test_fold_powers_with_per_fold_log_shifts_equal_a_full_sort(boxcox_form):
+    rng = np.random.default_rng(41)
+    K, n, m = 4, 300, 50
+    fold = rng.permutation(np.arange(n) % K)
+    R = np.round(np.abs(rng.standard_t(3, n)) * 0.3, 2)  # ties
+    powers = rng.uniform(0.5, 2.0, (K, 1))
+    fp = cvplus.FoldPowers(("x",), (2,), powers, boxcox_form)
+    B = np.column_stack([rng.uniform(1, 2, K), rng.normal(0, 0.1, K), rng.uniform(0.1, 0.3, K)])
+    x = rng.uniform(0.5, 8.0, m)
+    X0 = np.column_stack([np.ones(m), rng.normal(size=m), x**1.3])  # entry's own column
+    # source: fold k's design written out: its own power of x, (x^a - 1)/a or x^a
+    for k in range(K):
+        a = powers[k, 0]
+        w = (x**a - 1) / a if boxcox_form else x**a
+        want = np.column_stack([X0[:, :2], w]) @ B[k]
+        np.testing.assert_allclose(fp.fold_means(X0, B, x[:, None])[:, k], want, rtol=1e-12)
+    ts = [tr.Transform("log", shift=float(s), estimated=True) for s in rng.uniform(0.1, 1, K)]
+    fast = cvplus.intervals(B, ts, fold, R, X0, 0.9, ts[0], fp, x[:, None])
+    full = cvplus.intervals(B, ts, fold, R, X0, 0.9, ts[0], fp, x[:, None], fast=False)
+    for got, want in zip(fast, full, strict=True):
+        np.testing.assert_allclose(got, want, rtol=1e-12)
