@@ -16,7 +16,7 @@ from ..core.model import sign_all
 from ..selection.cautions import selection_cautions
 from ..selection.deadline import Deadline
 from ..selection.groups import run_grouped
-from ..selection.search import run_selection
+from ..selection.search import select
 from ..selection.search_setup import SearchOptions
 from ..settings import get_settings
 from ..version import __version__
@@ -176,7 +176,8 @@ def run_selection_request(
             prep, opts, __version__, finish=lambda b: finish_body(b, opts), mapper=mapper
         )
         return finish_body(body, opts)
-    body = run_selection(prep, opts, __version__)
+    result = select(prep, opts, __version__)
+    body = result.body
     if req.trust.stability or req.trust.optimism:
         from ..selection.trust import assess_trust
 
@@ -188,7 +189,7 @@ def run_selection_request(
             req.trust.stability,
             req.trust.optimism,
             req.trust.resamples,
-            selection=body,
+            selection=result,
         )
     return finish_body(body, opts)
 

@@ -13,7 +13,7 @@ from ..core.data import Prepared, split_groups
 from ..core.errors import BestscaleError, BudgetError
 from ..core.numbers import count_of
 from .deadline import Deadline
-from .search import run_selection
+from .search import select
 from .search_setup import SearchOptions
 from .trust import assess_trust
 
@@ -133,7 +133,8 @@ def select_group(task: GroupTask) -> dict[str, Any]:
         }
     opts = replace(opts, deadline=deadline)
     try:
-        body = run_selection(sub, opts, service_version)
+        result = select(sub, opts, service_version)
+        body = result.body
         if trust is not None and (trust.stability or trust.optimism):
             stability, optimism = trust.stability, trust.optimism
             resamples, outer_folds = trust.resamples, trust.outer_folds
@@ -145,14 +146,9 @@ def select_group(task: GroupTask) -> dict[str, Any]:
                 stability,
                 optimism,
                 resamples,
-                selection=body,
+                selection=result,
                 outer_folds=outer_folds,
             )
     except BestscaleError as exc:
         return {"problem": problem_of(exc)}
-    body.pop("_scored", None)
-    body.pop("_plan", None)
-    body["ranking"] = [
-        {k: v for k, v in e.items() if not k.startswith("_")} for e in body["ranking"]
-    ]
     return body
