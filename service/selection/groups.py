@@ -37,12 +37,14 @@ def run_grouped(
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
-    pool's map to spread the groups over workers.  A group that cannot be modelled
+    pool's map to spread the groups over workers.  The groups share ``opts.deadline``
+    (an HTTP request's); when it is None each group's time limit counts from its own start.  A group that cannot be modelled
     gets a ``problem`` entry with its reason while the others go on.
     """
     t0 = time.perf_counter()
-    # one deadline for the whole request, not one per group
-    deadline = opts.clock()
+    # the request's one deadline, shared by its groups; without one (a batch of segments)
+    # every group starts its own from opts.time_limit_s
+    deadline = opts.deadline
     parts = group_parts(prep)
     names = list(parts)
     tasks = [GroupTask(sub, opts, service_version, deadline=deadline) for sub in parts.values()]
