@@ -24,6 +24,7 @@ from ..core import boxtidwell as bt
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.bank import FoldIndex
+from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import from_score
@@ -36,7 +37,7 @@ from ..core.errors import (
     ModelFailure,
     pointer,
 )
-from ..core.fastcv import Dynamic, OutOfFold, Scorer
+from ..core.fastcv import Dynamic, OutOfFold, Score, Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
@@ -102,13 +103,50 @@ class _Evaluator:
         try:
             s = self._score(spec)
         except CandidateFailure as exc:
-            self.n_fail += 1
-            self.reasons[exc.reason] = self.reasons.get(exc.reason, 0) + 1
-            if len(self.failures) < MAX_FAILURES_LISTED:
-                self.failures.append({"specification": spec.to_dict(), "reason": exc.reason})
+            self._failed(spec, exc)
             return None
         self.scored.append(s)
         return s
+
+    def many(self, specs: list[Specification]) -> None:
+        """Score ``specs`` as one call each would, in order: specifications on a response
+        scale fixed across folds, with no power estimated per fold, are scored together
+        (:func:`batchcv.score_many`, the same numbers); the others one at a time."""
+        designs: dict[int, tuple[list[int], list[str] | None]] = {}
+        groups: dict[tr.Transform, list[int]] = {}
+        for i, spec in enumerate(specs):
+            t = spec.response_transform
+            if not batchable(self.scorer, t):
+                continue
+            try:
+                cols, names, dyn = self.space.design_of(spec)
+            except CandidateFailure:
+                continue  # scored alone below, which records the reason
+            if dyn:
+                continue
+            designs[i] = (cols, names)
+            groups.setdefault(t, []).append(i)
+        done: dict[int, Score | CandidateFailure] = {}
+        for t, members in groups.items():
+            got = score_many(
+                self.scorer, t, [designs[i][0] for i in members], [designs[i][1] for i in members]
+            )
+            done.update(zip(members, got, strict=True))
+        for i, spec in enumerate(specs):
+            if i not in done:
+                self(spec)
+                continue
+            res = done[i]
+            if isinstance(res, CandidateFailure):
+                self._failed(spec, res)
+            else:
+                self.scored.append(Scored(spec, from_score(res)))
+
+    def _failed(self, spec: Specification, exc: CandidateFailure) -> None:
+        self.n_fail += 1
+        self.reasons[exc.reason] = self.reasons.get(exc.reason, 0) + 1
+        if len(self.failures) < MAX_FAILURES_LISTED:
+            self.failures.append({"specification": spec.to_dict(), "reason": exc.reason})
 
     def out_of_fold(self, s: Scored, deadline: Deadline) -> tuple[OutOfFold | None, str]:
         """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
@@ -659,6 +697,11 @@ def _uniform_combos(preds: list[list[tr.Transform]]) -> list[tuple[tr.Transform,
     return [plain] if logged == plain else [plain, logged]
 
 
+#: candidates scored in one batch at most, and rows x candidates per batch
+MAX_BATCH = 64
+BATCH_ROWS = 200_000
+
+
 def _exhaustive(
     prep: Prepared,
     resp: list[tr.Transform],
@@ -684,10 +727,13 @@ def _exhaustive(
         if len(cands) >= max(opts.max_candidates * 4, 20000):
             break
     cands = _simplicity_sorted(cands)[: opts.max_candidates]
-    for spec in cands:
+    # in batches (one batched scoring each) small enough that the deadline is still asked
+    # often: about BATCH_ROWS rows x candidates between two looks at the clock
+    step = max(1, min(MAX_BATCH, BATCH_ROWS // max(prep.n, 1)))
+    for start in range(0, len(cands), step):
         if not budget.in_time():
             return False
-        ev(spec)
+        ev.many(cands[start : start + step])
     if len(cands) < total:
         budget.spent = "max_candidates"
     return len(cands) == total
