@@ -309,7 +309,16 @@ def select(
         complete = _exhaustive(prep, resp, preds, opts, ev, budget, total, uniform)
     else:
         counts = screened_search(
-            prep, resp, preds, space, ev, budget, screen_scales, opts.intercept, ev.many
+            prep,
+            resp,
+            preds,
+            space,
+            ev,
+            budget,
+            screen_scales,
+            opts.intercept,
+            ev.many,
+            batch_size(prep.n, plan.n_splits),
         )
         complete = False
     scored, failures, n_fail = ev.scored, ev.failures, ev.n_fail
@@ -703,9 +712,16 @@ def _uniform_combos(preds: list[list[tr.Transform]]) -> list[tuple[tr.Transform,
     return [plain] if logged == plain else [plain, logged]
 
 
-#: candidates scored in one batch at most, and rows x candidates per batch
+#: candidates scored in one batch at most, and rows x splits x candidates per batch
 MAX_BATCH = 64
-BATCH_ROWS = 200_000
+BATCH_WORK = 1_000_000
+
+
+def batch_size(n: int, splits: int) -> int:
+    """Candidates per batched scoring: small enough that the deadline is still asked often
+    (about BATCH_WORK rows x splits x candidates between two looks at the clock; one at a
+    time for large tables or many folds)."""
+    return max(1, min(MAX_BATCH, BATCH_WORK // max(n * splits, 1)))
 
 
 def _exhaustive(
@@ -733,9 +749,7 @@ def _exhaustive(
         if len(cands) >= max(opts.max_candidates * 4, 20000):
             break
     cands = _simplicity_sorted(cands)[: opts.max_candidates]
-    # in batches (one batched scoring each) small enough that the deadline is still asked
-    # often: about BATCH_ROWS rows x candidates between two looks at the clock
-    step = max(1, min(MAX_BATCH, BATCH_ROWS // max(prep.n, 1)))
+    step = batch_size(prep.n, ev.scorer.plan.n_splits)
     for start in range(0, len(cands), step):
         if not budget.in_time():
             return False

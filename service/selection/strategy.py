@@ -204,10 +204,12 @@ def screened_search(
     screen_scales: dict[tr.Transform, tr.Transform],
     intercept: bool,
     evaluate_many: Callable[[list[Specification]], list[Scored | None]] | None = None,
+    batch: int = 1,
 ) -> dict[str, Any]:
     """Run both stages; ``evaluate(spec)`` scores exactly (returns Scored or None on failure);
     ``evaluate_many(specs)``, when given, scores a list the same way in one call (the
-    baselines, the screen's best and each predictor's alternatives in the descent).
+    baselines, the screen's best and each predictor's alternatives in the descent), at most
+    ``batch`` at a time with the budget asked between two calls.
 
     ``screen_scales`` maps each response transform to the fixed transform used
     in the screen.  Returns counts for the response's ``search`` block.
@@ -272,15 +274,18 @@ def screened_search(
         for spec in specs:
             if spec.key not in scored and allowed(spec) and all(s.key != spec.key for s in todo):
                 todo.append(spec)
-        if not todo or not budget.ok():
-            return
-        cut = len(todo) > budget.left
-        todo = todo[: max(budget.left, 0)]
-        budget.left -= len(todo)
-        for spec, res in zip(todo, evaluate_many(todo), strict=True):
-            scored[spec.key] = res
-        if cut:
-            budget.ok()  # says why the rest were not scored, as one at a time would
+        for start in range(0, len(todo), max(batch, 1)):
+            if not budget.ok():
+                return
+            part = todo[start : start + max(batch, 1)]
+            cut = len(part) > budget.left
+            part = part[: max(budget.left, 0)]
+            budget.left -= len(part)
+            for spec, res in zip(part, evaluate_many(part), strict=True):
+                scored[spec.key] = res
+            if cut:
+                budget.ok()  # says why the rest were not scored, as one at a time would
+                return
 
     run_all(queue)
     # exact coordinate descent from the lowest error found

@@ -210,3 +210,11 @@ def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
     coef = np.linalg.lstsq(d.X, z, rcond=None)[0]
     got = [row["estimate"] for row in result.body["ranking"][0]["coefficients"]]
     np.testing.assert_allclose(got, coef, rtol=1e-9, atol=1e-12)
+
+
+def test_batches_shrink_with_rows_and_splits_so_the_clock_is_asked_often():
+    from service.selection.search import MAX_BATCH, batch_size
+
+    assert batch_size(300, 5) == MAX_BATCH  # the demo: full batches
+    assert batch_size(120, 2500) == 3  # 50 folds x 50 repeats: a few candidates at a time
+    assert batch_size(1_000_000, 5) == 1  # large tables: one candidate between two looks
