@@ -245,7 +245,7 @@ def test_one_deadline_bounds_the_work_after_the_search_too(make_app):
     assert not got["trust"]["stability_details"]["complete"]
     kept = [e["model"]["cv_plus"] for e in got["ranking"]]
     assert all(not b["available"] and "time limit of 1 s ran out" in b["reason"] for b in kept)
-    assert took < 15  # generous: one candidate's scoring past the limit, not a second limit
+    assert took < 30  # generous (a loaded machine): one candidate past the limit, no second one
     assert page.status_code == 200
     assert page.text.count("ran out before this figure was drawn") == 2  # ranks 2 and 3
 
