@@ -33,7 +33,7 @@ import numpy as np
 from . import retransform
 from . import transforms as tr
 from .bank import ColumnBank
-from .boxtidwell import estimate_powers, power_columns
+from .boxtidwell import PowerFit, estimate_fold_powers, power_columns
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
 from .likelihood import fit_transform
@@ -210,45 +210,33 @@ class Scorer:
         j = 0
         K = plan.folds
         oof: OutOfFold | None = None
+        fixed = None if per_fold else (t0, z)
+        powers_of: list[list[PowerFit]] | None = None
+        if dynamic is not None and plan.repeats > 1:
+            powers_of = self._powers_all_repeats(t, S, XS, dynamic, per_fold, fixed)
         for r in range(plan.repeats):
             train, test = index.train[r], index.test[r]
             # ---- per-fold response scale and training solutions
-            ts: list[tr.Transform] = []
-            zs: list[np.ndarray] = []
             B = np.empty((K, p))
             designs: list[np.ndarray | None] = [None] * K
-            for k in range(K):
-                if train[k].size <= p:
-                    raise CandidateFailure(
-                        f"fold {k + 1}: {train[k].size} training rows cannot "
-                        f"estimate {p} coefficients"
-                    )
-            if not per_fold:
-                ts = [t0] * K
-                zs = [z] * K
-            else:
-                for k in range(K):
-                    ytr = y[train[k]]
-                    try:
-                        tk = fit_transform(
-                            t, ytr, XS[train[k]], shift_needed=self.shift_needed, near=near
-                        )
-                    except ValueError as exc:
-                        raise CandidateFailure(f"fold {k + 1}: {exc}") from None
-                    if estimate_lam:
-                        assert tk.lam is not None  # fit_transform estimated it
-                        lambdas.append(float(tk.lam))
-                    zk = tk.forward(y)
-                    if not np.all(np.isfinite(zk[train[k]])):
-                        raise CandidateFailure(
-                            f"fold {k + 1}: {tk.label('y')} overflows on the training rows"
-                        )
-                    ts.append(tk)
-                    zs.append(zk)
+            ts, zs = self._fold_scales(t, r, XS, p, fixed, near, lambdas)
             if dynamic is None:
                 refits += self._solve_static(S, XS, r, zs, per_fold, t, names, B)
             else:
-                refits += self._solve_dynamic(XS, dynamic, r, zs, names, B, designs, powers)
+                refits += self._solve_dynamic(
+                    S,
+                    XS,
+                    dynamic,
+                    r,
+                    zs,
+                    per_fold,
+                    t,
+                    names,
+                    B,
+                    designs,
+                    powers,
+                    None if powers_of is None else powers_of[r],
+                )
             # ---- fitted values of every row under every fold's solution
             if dynamic is None:
                 ETA = (B @ XS.T).T  # (n, K), each fold's column contiguous
@@ -313,6 +301,87 @@ class Scorer:
             oof,
         )
 
+    def _fold_scales(
+        self,
+        t: tr.Transform,
+        r: int,
+        XS: np.ndarray,
+        p: int,
+        fixed: tuple[tr.Transform, np.ndarray] | None,
+        near: float | None,
+        lambdas: list[float] | None,
+    ) -> tuple[list[tr.Transform], list[np.ndarray]]:
+        """Each training fold's concrete response scale and z on all rows (repeat r);
+        ``fixed``: the scale that does not change per fold.  Estimated lambdas are appended
+        to ``lambdas`` (when given)."""
+        train = self.bank.index.train[r]
+        K = len(train)
+        for k in range(K):
+            if train[k].size <= p:
+                raise CandidateFailure(
+                    f"fold {k + 1}: {train[k].size} training rows cannot estimate {p} coefficients"
+                )
+        if fixed is not None:
+            return [fixed[0]] * K, [fixed[1]] * K
+        estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+        ts: list[tr.Transform] = []
+        zs: list[np.ndarray] = []
+        y = self.y
+        for k in range(K):
+            try:
+                tk = fit_transform(
+                    t, y[train[k]], XS[train[k]], shift_needed=self.shift_needed, near=near
+                )
+            except ValueError as exc:
+                raise CandidateFailure(f"fold {k + 1}: {exc}") from None
+            if estimate_lam and lambdas is not None:
+                assert tk.lam is not None  # fit_transform estimated it
+                lambdas.append(float(tk.lam))
+            zk = tk.forward(y)
+            if not np.all(np.isfinite(zk[train[k]])):
+                raise CandidateFailure(
+                    f"fold {k + 1}: {tk.label('y')} overflows on the training rows"
+                )
+            ts.append(tk)
+            zs.append(zk)
+        return ts, zs
+
+    def _powers_all_repeats(
+        self,
+        t: tr.Transform,
+        S: np.ndarray,
+        XS: np.ndarray,
+        dyn: Dynamic,
+        per_fold: bool,
+        fixed: tuple[tr.Transform, np.ndarray] | None,
+    ) -> list[list[PowerFit]] | None:
+        """The estimated powers of every training fold of every repeat in one batch (fewer,
+        larger stacked steps than one batch per repeat), or None when a fold fails: the
+        repeat-by-repeat path then meets and reports the first failure in its own order."""
+        bank, R = self.bank, self.plan.repeats
+        train_all = [rows for r in range(R) for rows in bank.index.train[r]]
+        try:
+            zs_all = [
+                z for r in range(R) for z in self._fold_scales(t, r, XS, 0, fixed, None, None)[1]
+            ]
+            grams = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+            if not per_fold:
+                cf, ctot = bank.cross(t, zs_all[0])
+                crosses: np.ndarray | None = np.concatenate(
+                    [ctot[r][S][None, :] - cf[r][:, S] for r in range(R)]
+                )
+                Z = zs_all[0]
+            else:
+                crosses = None
+                Z = np.stack(zs_all)
+            fits = estimate_fold_powers(
+                Z, XS, dyn.x, train_all, dyn.start, dyn.boxcox_form, grams=grams, crosses=crosses
+            )
+        except CandidateFailure:
+            return None
+        K = self.plan.folds
+        return [fits[r * K : (r + 1) * K] for r in range(R)]
+
     # ------------------------------------------------------------- solutions
     def _solve_static(
         self,
@@ -344,48 +413,58 @@ class Scorer:
 
     def _solve_dynamic(
         self,
+        S: np.ndarray,
         XS: np.ndarray,
         dyn: Dynamic,
         r: int,
         zs: list[np.ndarray],
+        per_fold: bool,
+        t: tr.Transform,
         names: list[str] | None,
         B: np.ndarray,
         designs: list[np.ndarray | None],
         powers: list[list[float]],
+        fits: list[PowerFit] | None = None,
     ) -> int:
-        train = self.bank.index.train[r]
+        """Every training fold's powers at once (``boxtidwell.estimate_fold_powers``, from the
+        bank's downdated Gram matrices of the fixed columns), then every fold's solution in
+        one stacked solve with the exact refit fallback."""
+        bank = self.bank
+        train = bank.index.train[r]
         K = len(train)
         p = B.shape[1]
         fixed_pos = [i for i in range(p) if i not in dyn.positions]
+        if fits is None:
+            Gff = bank.train_grams(S, r)
+            if not per_fold:
+                cf, ctot = bank.cross(t, zs[0])
+                cff: np.ndarray | None = ctot[r][S][None, :] - cf[r][:, S]
+                Z = zs[0]
+            else:
+                Z = np.stack(zs)
+                cff = None
+            fits = estimate_fold_powers(
+                Z, XS, dyn.x, train, dyn.start, dyn.boxcox_form, grams=Gff, crosses=cff
+            )
         logx = np.log(dyn.x)
-        refits = 0
-        for k in range(K):
-            tr_rows = train[k]
-            ztr = zs[k][tr_rows]
-            try:
-                fit = estimate_powers(
-                    ztr,
-                    XS[tr_rows],
-                    dyn.x[tr_rows],
-                    start=dyn.start,
-                    boxcox_form=dyn.boxcox_form,
-                    with_se=False,
-                )
-            except CandidateFailure as exc:
-                raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
+        G = np.empty((K, p, p))
+        c = np.empty((K, p))
+        full: list[np.ndarray] = []
+        for k, fit in enumerate(fits):
             powers.append([float(a) for a in fit.powers])
             W, _ = power_columns(logx, fit.powers, dyn.boxcox_form)
             X = np.empty((XS.shape[0], p))
             X[:, fixed_pos] = XS
             X[:, dyn.positions] = W
             designs[k] = X
-            Xtr = X[tr_rows]
-            G = (Xtr.T @ Xtr)[None]
-            c = (Xtr.T @ ztr)[None]
-            b, ok = solve_batch(G, c)
-            if ok[0]:
-                B[k] = b[0]
-            else:
-                B[k] = _exact_refit(Xtr, ztr, names, k)
-                refits += 1
+            full.append(X)
+            Xtr = X[train[k]]
+            G[k] = Xtr.T @ Xtr
+            c[k] = Xtr.T @ zs[k][train[k]]
+        Bk, ok = solve_batch(G, c)
+        B[:] = Bk
+        refits = 0
+        for i in np.flatnonzero(~ok):
+            B[i] = _exact_refit(full[i][train[i]], zs[i][train[i]], names, i)
+            refits += 1
         return refits
