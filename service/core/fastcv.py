@@ -375,7 +375,15 @@ class Scorer:
                 crosses = None
                 Z = np.stack(zs_all)
             fits = estimate_fold_powers(
-                Z, XS, dyn.x, train_all, dyn.start, dyn.boxcox_form, grams=grams, crosses=crosses
+                Z,
+                XS,
+                dyn.x,
+                train_all,
+                dyn.start,
+                dyn.boxcox_form,
+                grams=grams,
+                crosses=crosses,
+                labels=[k + 1 for _r in range(R) for k in range(self.plan.folds)],
             )
         except CandidateFailure:
             return None
