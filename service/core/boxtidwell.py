@@ -422,10 +422,12 @@ def _power_columns_stacked(
     em1 = np.expm1(u)
     W = em1 / a3
     D = ((em1 + 1.0) * Lb - W) / a3
-    series = Lb * Lb * (0.5 + u / 3.0 + u * u / 8.0)
-    D = np.where(np.abs(u) < 1e-3, series, D)
-    W = np.where(zero, Lb, W)
-    D = np.where(zero, 0.5 * Lb * Lb, D)
+    small = np.abs(u) < 1e-3
+    if small.any():
+        D = np.where(small, Lb * Lb * (0.5 + u / 3.0 + u * u / 8.0), D)
+    if zero.any():
+        W = np.where(zero, Lb, W)
+        D = np.where(zero, 0.5 * Lb * Lb, D)
     return W, D
 
 

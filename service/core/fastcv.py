@@ -219,7 +219,7 @@ class Scorer:
             # ---- per-fold response scale and training solutions
             B = np.empty((K, p))
             designs: list[np.ndarray | None] = [None] * K
-            ts, zs = self._fold_scales(t, r, XS, p, fixed, near, lambdas)
+            ts, zs = self._fold_scales(t, r, XS, p, fixed, near, lambdas, S)
             if dynamic is None:
                 refits += self._solve_static(S, XS, r, zs, per_fold, t, names, B)
             else:
@@ -310,6 +310,7 @@ class Scorer:
         fixed: tuple[tr.Transform, np.ndarray] | None,
         near: float | None,
         lambdas: list[float] | None,
+        S: np.ndarray | None = None,
     ) -> tuple[list[tr.Transform], list[np.ndarray]]:
         """Each training fold's concrete response scale and z on all rows (repeat r);
         ``fixed``: the scale that does not change per fold.  Estimated lambdas are appended
@@ -327,10 +328,17 @@ class Scorer:
         ts: list[tr.Transform] = []
         zs: list[np.ndarray] = []
         y = self.y
+        # a lambda's profile likelihood needs each fold's X'X: the bank's downdated ones
+        grams = self.bank.train_grams(S, r) if estimate_lam and S is not None else None
         for k in range(K):
             try:
                 tk = fit_transform(
-                    t, y[train[k]], XS[train[k]], shift_needed=self.shift_needed, near=near
+                    t,
+                    y[train[k]],
+                    XS[train[k]],
+                    shift_needed=self.shift_needed,
+                    near=near,
+                    gram=None if grams is None else grams[k],
                 )
             except ValueError as exc:
                 raise CandidateFailure(f"fold {k + 1}: {exc}") from None

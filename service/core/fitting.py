@@ -115,19 +115,26 @@ def _factor_batch(
     check: (L (g, p, p) or None, scaled right-hand sides (g, p), scales (g, p), good (K,))."""
     K = G.shape[0]
     d2 = np.diagonal(G, axis1=1, axis2=2)
-    finite = np.all(np.isfinite(G), axis=(1, 2)) & np.all(np.isfinite(c), axis=1)
-    ok = np.all(d2 > 0, axis=1) & finite
+    finite = np.isfinite(G).all(axis=(1, 2)) & np.isfinite(c).all(axis=1)
+    ok = (d2 > 0).all(axis=1) & finite
     good = np.zeros(K, dtype=bool)
-    if not np.any(ok):
-        return None, c[good], c[good], good
-    G = np.where(finite[:, None, None], G, 1.0)
-    c = np.where(finite[:, None], c, 0.0)
-    d2 = np.where(finite[:, None], d2, 1.0)
-    d = np.sqrt(np.where(d2 > 0, d2, 1.0))
-    Gs = G / (d[:, :, None] * d[:, None, :])
-    cs = c / d
-    ev = np.linalg.eigvalsh(Gs[ok])
-    good[ok] = ev[:, 0] > ev[:, -1] / COND_LIMIT
+    if ok.all():  # the usual case: nothing to mask
+        d = np.sqrt(d2)
+        Gs = G / (d[:, :, None] * d[:, None, :])
+        cs = c / d
+        ev = np.linalg.eigvalsh(Gs)
+        good = ev[:, 0] > ev[:, -1] / COND_LIMIT
+    else:
+        if not ok.any():
+            return None, c[good], c[good], good
+        G = np.where(finite[:, None, None], G, 1.0)
+        c = np.where(finite[:, None], c, 0.0)
+        d2 = np.where(finite[:, None], d2, 1.0)
+        d = np.sqrt(np.where(d2 > 0, d2, 1.0))
+        Gs = G / (d[:, :, None] * d[:, None, :])
+        cs = c / d
+        ev = np.linalg.eigvalsh(Gs[ok])
+        good[ok] = ev[:, 0] > ev[:, -1] / COND_LIMIT
     if not np.any(good):
         return None, cs[good], d[good], good
     try:

@@ -70,21 +70,27 @@ class _Projector:
     QR of X instead, as it is for an ill-conditioned or rank-deficient X.
     """
 
-    def __init__(self, X: np.ndarray | None, n: int):
+    def __init__(self, X: np.ndarray | None, n: int, gram: np.ndarray | None = None):
         if X is None:
             X = np.ones((n, 1))
+            gram = None
+        if gram is not None and not np.all(np.isfinite(gram)):
+            gram = None  # sums that overflowed: form them from the rows
         # Scale columns: the column space is unchanged, this only helps accuracy.
-        scale = np.sqrt(np.sum(X * X, axis=0))
+        if gram is None:
+            scale = np.sqrt(np.sum(X * X, axis=0))
+        else:  # X'X given (a training fold's, downdated from all-rows sums)
+            scale = np.sqrt(np.maximum(np.diagonal(gram), 0.0))
         scale[scale == 0] = 1.0
         self.X = X
         self.scale = scale
         self.L: np.ndarray | None = None
         self.q: np.ndarray | None = None
-        G = (X.T @ X) / np.outer(scale, scale)
+        G = (X.T @ X if gram is None else gram) / np.outer(scale, scale)
         ev = np.linalg.eigvalsh(G)
         if ev[0] > 1e-8 * ev[-1]:
             try:
-                self.L = np.linalg.cholesky(G)
+                self.L = np.asfortranarray(np.linalg.cholesky(G))
             except np.linalg.LinAlgError:
                 self.L = None
         ones = np.ones(n)
@@ -187,6 +193,7 @@ def estimate_lambda(
     level: float = 0.95,
     with_interval: bool = True,
     near: float | None = None,
+    gram: np.ndarray | None = None,
 ) -> LambdaEstimate:
     """Maximum-likelihood lambda of a Box-Cox or Yeo-Johnson response in the model y(lambda) ~ X.
 
@@ -293,6 +300,7 @@ def fit_transform(
     X: np.ndarray | None = None,
     shift_needed: bool | None = None,
     near: float | None = None,
+    gram: np.ndarray | None = None,
 ) -> tr.Transform:
     """Return a concrete transform, estimating what ``t`` leaves open from ``y`` (and design ``X``).
 
@@ -307,6 +315,6 @@ def fit_transform(
             return replace(t, shift=0.0)
         return replace(t, shift=tr.chosen_shift(y), estimated=True)
     if t.name in ("box_cox", "yeo_johnson"):
-        est = estimate_lambda(t.name, y, X, with_interval=False, near=near)
+        est = estimate_lambda(t.name, y, X, with_interval=False, near=near, gram=gram)
         return replace(t, lam=est.lam, estimated=True)
     return t
