@@ -25,7 +25,7 @@ started at the all-rows estimate; the column then differs per fold).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -36,7 +36,7 @@ from .bank import ColumnBank
 from .boxtidwell import PowerFit, estimate_fold_powers, power_columns
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
-from .likelihood import fit_transform
+from .likelihood import fit_transform, fold_lambdas
 from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -214,12 +214,33 @@ class Scorer:
         powers_of: list[list[PowerFit]] | None = None
         if dynamic is not None and plan.repeats > 1:
             powers_of = self._powers_all_repeats(t, S, XS, dynamic, per_fold, fixed)
+        lams_of: list[float | None] | None = None
+        if estimate_lam and plan.repeats > 1:
+            # every repeat's folds in one batch (fewer, larger stacked steps)
+            lams_of = fold_lambdas(
+                t.name,
+                y,
+                XS,
+                [rows for r in range(plan.repeats) for rows in index.train[r]],
+                np.concatenate([bank.train_grams(S, r) for r in range(plan.repeats)]),
+                near,
+            )
         for r in range(plan.repeats):
             train, test = index.train[r], index.test[r]
             # ---- per-fold response scale and training solutions
             B = np.empty((K, p))
             designs: list[np.ndarray | None] = [None] * K
-            ts, zs = self._fold_scales(t, r, XS, p, fixed, near, lambdas, S)
+            ts, zs = self._fold_scales(
+                t,
+                r,
+                XS,
+                p,
+                fixed,
+                near,
+                lambdas,
+                S,
+                None if lams_of is None else lams_of[r * K : (r + 1) * K],
+            )
             if dynamic is None:
                 refits += self._solve_static(S, XS, r, zs, per_fold, t, names, B)
             else:
@@ -311,10 +332,12 @@ class Scorer:
         near: float | None,
         lambdas: list[float] | None,
         S: np.ndarray | None = None,
+        lams_found: list[float | None] | None = None,
     ) -> tuple[list[tr.Transform], list[np.ndarray]]:
         """Each training fold's concrete response scale and z on all rows (repeat r);
         ``fixed``: the scale that does not change per fold.  Estimated lambdas are appended
-        to ``lambdas`` (when given)."""
+        to ``lambdas`` (when given); ``lams_found``: the folds' lambdas when already found
+        (None for a fold the one-fold path answers)."""
         train = self.bank.index.train[r]
         K = len(train)
         for k in range(K):
@@ -328,17 +351,28 @@ class Scorer:
         ts: list[tr.Transform] = []
         zs: list[np.ndarray] = []
         y = self.y
-        # a lambda's profile likelihood needs each fold's X'X: the bank's downdated ones
+        # a lambda's profile likelihood needs each fold's X'X: the bank's downdated ones;
+        # every fold's lambda is found in one batch, a fold it does not take on its own
         grams = self.bank.train_grams(S, r) if estimate_lam and S is not None else None
+        lams: list[float | None] = [None] * K
+        if lams_found is not None:
+            lams = lams_found
+        elif grams is not None:
+            lams = fold_lambdas(t.name, y, XS, train, grams, near)
         for k in range(K):
+            lam_k = lams[k]
             try:
-                tk = fit_transform(
-                    t,
-                    y[train[k]],
-                    XS[train[k]],
-                    shift_needed=self.shift_needed,
-                    near=near,
-                    gram=None if grams is None else grams[k],
+                tk = (
+                    replace(t, lam=lam_k, estimated=True)
+                    if lam_k is not None
+                    else fit_transform(
+                        t,
+                        y[train[k]],
+                        XS[train[k]],
+                        shift_needed=self.shift_needed,
+                        near=near,
+                        gram=None if grams is None else grams[k],
+                    )
                 )
             except ValueError as exc:
                 raise CandidateFailure(f"fold {k + 1}: {exc}") from None

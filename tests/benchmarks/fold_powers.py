@@ -1,11 +1,16 @@
-"""Benchmark (run by hand): estimated predictor powers in every training fold, the per-fold
-loop (one ``estimate_powers`` per fold, each fold's cross-products from its rows, then one
-solve per fold) against the batched path (``estimate_fold_powers``: fixed cross-products
-downdated from the column bank, all folds' Gauss-Newton steps in one stacked solve).
+"""Benchmark (run by hand): estimated predictor powers and response lambdas in every training
+fold, the per-fold loops against the batched paths.
 
-Both run in the same process on the same problems: every per-fold power problem the demo
+Powers: one ``estimate_powers`` per fold (each fold's cross-products from its rows, then one
+solve per fold) against ``estimate_fold_powers`` (fixed cross-products downdated from the
+column bank, all folds' Gauss-Newton steps in one stacked solve).  Lambdas: one
+``estimate_lambda`` per fold against ``fold_lambdas`` (the folds' X'X from the bank, every
+fold's profile evaluations and Brent steps made together).
+
+Both run in the same process on the same problems: every per-fold problem the demo
 selection (service/demo, default options) poses is recorded, then solved by each path.
-The demo selection itself is also timed end to end with each path.  Prints the machine
+The demo selection itself is also timed end to end with the per-fold loops and with the
+batched paths.  Prints the machine
 load (``uptime``), wall and CPU seconds (time.process_time; the machine is shared, so CPU
 time is the steadier number), the ratios, and the largest difference between the powers.
 
@@ -28,6 +33,7 @@ pin_blas(1)
 import numpy as np
 from service.core import boxtidwell as bt
 from service.core import fastcv
+from service.core import likelihood as lk
 from service.core.errors import CandidateFailure
 from service.core.fitting import solve_batch
 
@@ -78,20 +84,42 @@ def demo_selection():
 
 
 def record_problems():
-    """Every call the demo selection makes to estimate_fold_powers (arguments kept)."""
-    calls = []
-    real = bt.estimate_fold_powers
+    """Every call the demo selection makes to estimate_fold_powers and fold_lambdas."""
+    calls, lam_calls = [], []
+    real, real_lam = bt.estimate_fold_powers, lk.fold_lambdas
 
     def spy(*args, **kw):
         calls.append((args, kw))
         return real(*args, **kw)
 
+    def spy_lam(*args, **kw):
+        lam_calls.append((args, kw))
+        return real_lam(*args, **kw)
+
     fastcv.estimate_fold_powers = spy
+    fastcv.fold_lambdas = spy_lam
     try:
         demo_selection()
     finally:
         fastcv.estimate_fold_powers = real
-    return calls
+        fastcv.fold_lambdas = real_lam
+    return calls, lam_calls
+
+
+def old_lambdas(lam_calls):
+    out = []
+    for (family, y, X, train, _grams, near), _kw in lam_calls:
+        for rows in train:
+            est = lk.estimate_lambda(family, y[rows], X[rows], with_interval=False, near=near)
+            out.append(est.lam)
+    return np.array(out)
+
+
+def new_lambdas(lam_calls):
+    out = []
+    for args, kw in lam_calls:
+        out.extend(lk.fold_lambdas(*args, **kw))
+    return np.array(out, dtype=float)
 
 
 def old_powers(calls):
@@ -113,11 +141,17 @@ def new_powers(calls):
     return out
 
 
-def ranking(body):
-    return [e["specification"] for e in body["ranking"]], [
-        e["cv"]["value"] if "cv" in e and isinstance(e["cv"], dict) and "value" in e["cv"] else None
-        for e in body["ranking"]
-    ]
+def largest_change(a, b, path=""):
+    """(largest relative difference, where) over the float fields of two answers."""
+    if isinstance(a, dict) and isinstance(b, dict):
+        items = [(k, a[k], b[k]) for k in a if k in b and k != "elapsed_s"]
+    elif isinstance(a, list) and isinstance(b, list) and len(a) == len(b):
+        items = list(zip(range(len(a)), a, b, strict=True))
+    elif isinstance(a, float) and isinstance(b, float) and b != 0:
+        return abs(a - b) / abs(b), path
+    else:
+        return 0.0, path
+    return max((largest_change(x, y, f"{path}/{k}") for k, x, y in items), default=(0.0, path))
 
 
 def main() -> None:
@@ -126,7 +160,7 @@ def main() -> None:
     args = ap.parse_args()
     print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
     print(machine())
-    calls = record_problems()
+    calls, lam_calls = record_problems()
     folds = sum(len(a[3]) for a, _ in calls)
     print(f"demo selection: {len(calls)} fold sets, {folds} per-fold power problems")
     best = {}
@@ -144,22 +178,44 @@ def main() -> None:
     print(f"ratio (loop / batched): wall {ow / nw:.1f}x  cpu {oc / nc:.1f}x")
     print(f"largest |power difference| over {folds} folds: {diff:.2e}")
 
+    lam_folds = sum(len(a[3]) for a, _ in lam_calls)
+    print(f"demo selection: {len(lam_calls)} fold sets, {lam_folds} per-fold lambda problems")
+    best = {}
+    for _ in range(args.repeat):
+        for name, fn in (("per-fold loop", old_lambdas), ("batched", new_lambdas)):
+            with Timer() as tm:
+                res = fn(lam_calls)
+            prev = best.get(name)
+            if prev is None or tm.cpu < prev[1]:
+                best[name] = (tm.wall, tm.cpu, res)
+    (ow, oc, old), (nw, nc, new) = best["per-fold loop"], best["batched"]
+    taken = np.isfinite(new)
+    print(f"lambdas, per-fold loop: wall {ow:.3f} s  cpu {oc:.3f} s")
+    print(
+        f"lambdas, batched:       wall {nw:.3f} s  cpu {nc:.3f} s  ({int(taken.sum())} folds taken)"
+    )
+    print(f"ratio (loop / batched): wall {ow / nw:.1f}x  cpu {oc / nc:.1f}x")
+    print(f"largest |lambda difference|: {float(np.max(np.abs(old[taken] - new[taken]))):.2e}")
+
     new_dyn = fastcv.Scorer._solve_dynamic
     new_all = fastcv.Scorer._powers_all_repeats
+    new_lam = fastcv.fold_lambdas
     sel = {}
     for _ in range(args.repeat):
-        for name, impl, pre in (
-            ("per-fold loop", per_fold_loop, lambda *a, **k: None),
-            ("batched", new_dyn, new_all),
+        for name, impl, pre, lam in (
+            ("per-fold loop", per_fold_loop, lambda *a, **k: None, lambda *a: [None] * len(a[3])),
+            ("batched", new_dyn, new_all, new_lam),
         ):
             fastcv.Scorer._solve_dynamic = impl
             fastcv.Scorer._powers_all_repeats = pre
+            fastcv.fold_lambdas = lam
             try:
                 with Timer() as tm:
                     body = demo_selection()
             finally:
                 fastcv.Scorer._solve_dynamic = new_dyn
                 fastcv.Scorer._powers_all_repeats = new_all
+                fastcv.fold_lambdas = new_lam
             prev = sel.get(name)
             if prev is None or tm.cpu < prev[1]:
                 sel[name] = (tm.wall, tm.cpu, body)
@@ -171,6 +227,8 @@ def main() -> None:
         e["specification"] for e in nb["ranking"]
     ]
     print(f"same ranking: {same}")
+    rel, where = largest_change(nb["ranking"], ob["ranking"], "/ranking")
+    print(f"largest relative change of a number in the ranking: {rel:.1e} ({where})")
     print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
 
 
