@@ -16,6 +16,7 @@ from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare, split_groups
 from service.core.errors import BestscaleError
+from service.selection.deadline import Deadline
 from service.selection.groups import GroupTask, GroupTrust, problem_of, run_grouped, select_group
 from service.selection.search_setup import SearchOptions
 from service.selection.workers import map_in_processes
@@ -170,7 +171,10 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
     )
     north = split_groups(prep)["north"]
-    late = select_group(GroupTask(north, opts, "test", deadline=time.time() - 1.0))
+    late = select_group(GroupTask(north, opts, "test", deadline=Deadline(time.time() - 1.0, 60)))
     assert late["problem"]["status"] == 503 and "ran out" in late["problem"]["detail"]
-    on_time = select_group(GroupTask(north, opts, "test", deadline=time.time() + 600.0))
+    assert (
+        "time limit of 60 s" in late["problem"]["detail"]
+    )  # the caller's number, not what was left
+    on_time = select_group(GroupTask(north, opts, "test", deadline=Deadline.after(600.0)))
     assert on_time["ranking"][0]["rank"] == 1
