@@ -290,3 +290,23 @@ def test_fold_failures_name_the_fold(monkeypatch):
     short = [np.arange(4), *train[1:]]
     with pytest.raises(CandidateFailure, match=r"^fold 1: 4 rows are too few"):
         bt.estimate_fold_powers(z, np.ones((n, 1)), x[:, 0], short, np.ones(1))
+
+
+def test_fold_powers_without_an_intercept_use_plain_powers_as_the_one_fold_path():
+    rng = np.random.default_rng(17)
+    n = 250
+    x = rng.uniform(1, 6, n)
+    w = rng.normal(size=n)
+    z = 2.0 * x**0.7 + 0.4 * w + rng.normal(0, 0.05, n)
+    Xf = w[:, None]  # no intercept: the column is x^a itself
+    train = _fold_rows(n, 5, 3)
+    start = bt.estimate_powers(z, Xf, x, boxcox_form=False).powers
+    fits = bt.estimate_fold_powers(z, Xf, x, train, start, boxcox_form=False)
+    for f, rows in enumerate(train):
+        one = bt.estimate_powers(
+            z[rows], Xf[rows], x[rows], start=start, boxcox_form=False, with_se=False
+        )
+        # source: the fold-by-fold estimate on the fold's rows (steps below 1e-6 at the end)
+        assert fits[f].powers[0] == pytest.approx(one.powers[0], abs=1e-5)
+        # source: simulation truth z = 2 x^0.7 + 0.4 w + N(0, 0.05^2)
+        assert fits[f].powers[0] == pytest.approx(0.7, abs=0.05)

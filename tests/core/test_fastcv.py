@@ -175,3 +175,31 @@ def test_out_of_fold_alone_equals_the_first_repeat_of_a_full_scoring(family):
     a = plan.assignments[0]
     expect = fwd(y) - np.einsum("ij,ij->i", X, sols[a])
     np.testing.assert_allclose(alone.residual, expect, rtol=1e-8, atol=1e-12)
+
+
+def test_estimated_powers_with_a_log_shift_fitted_in_every_fold():
+    from service.core import boxtidwell as bt
+    from service.core.fastcv import Dynamic
+
+    rng = np.random.default_rng(23)
+    n = 180
+    x = rng.uniform(1, 9, n)
+    y = np.round(np.exp(0.5 + 0.6 * np.sqrt(x) + rng.normal(0, 0.3, n)) - 2.0, 1)
+    y[y < 0] = 0.0  # zeros: the log needs a shift, chosen on each training fold
+    plan = make_plan(n, 4, 2, 1)
+    index = FoldIndex.of(plan, n)
+    bank = ColumnBank.of_matrix(np.ones((n, 1)), index)
+    t = tr.Transform("log")
+    z_all = tr.Transform("log", shift=tr.chosen_shift(y)).forward(y)
+    start = bt.estimate_powers(z_all, np.ones((n, 1)), x).powers
+    res = Scorer(bank, y, plan, True).score(t, [0], None, Dynamic([1], x[:, None], start))
+    j = 0
+    for r in range(plan.repeats):
+        for rows in index.train[r]:
+            zk = tr.Transform("log", shift=tr.chosen_shift(y[rows])).forward(y)
+            one = bt.estimate_powers(
+                zk[rows], np.ones((rows.size, 1)), x[rows], start=start, with_se=False
+            )
+            # source: the fold-by-fold estimate on the fold's own log shift and rows
+            assert res.fold_powers[j][0] == pytest.approx(one.powers[0], abs=1e-5)
+            j += 1
