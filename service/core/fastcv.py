@@ -33,7 +33,7 @@ import numpy as np
 from . import retransform
 from . import transforms as tr
 from .bank import ColumnBank
-from .boxtidwell import PowerFit, estimate_fold_powers, power_columns
+from .boxtidwell import PowerFit, estimate_fold_powers, estimate_powers, power_columns
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
 from .likelihood import fit_transform, fold_lambdas
@@ -41,6 +41,14 @@ from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from .folds import CVPlan
+
+# Folds x rows up to which the folds' powers / lambdas are estimated in one batch.  The
+# batched paths save Python-level calls and spend arithmetic on held-out rows (masked), so
+# they win on small tables and lose on large ones; crossovers measured with
+# tests/benchmarks/fold_powers.py --rows N (one thread, 10 folds): powers ~5,000 rows,
+# lambdas ~3,000 rows.  Above these the folds are taken one by one.
+POWER_BATCH_CELLS = 50_000
+LAMBDA_BATCH_CELLS = 25_000
 
 
 @dataclass
@@ -228,10 +236,10 @@ class Scorer:
         repeats = 1 if first_only else plan.repeats
         fixed = None if per_fold else (t0, z)
         powers_of: list[list[PowerFit]] | None = None
-        if dynamic is not None and repeats > 1:
+        if dynamic is not None and repeats > 1 and n * repeats * K <= POWER_BATCH_CELLS:
             powers_of = self._powers_all_repeats(t, S, XS, dynamic, per_fold, fixed)
         lams_of: list[float | None] | None = None
-        if estimate_lam and repeats > 1:
+        if estimate_lam and repeats > 1 and n * repeats * K <= LAMBDA_BATCH_CELLS:
             # every repeat's folds in one batch (fewer, larger stacked steps)
             lams_of = fold_lambdas(
                 t.name,
@@ -374,7 +382,7 @@ class Scorer:
         lams: list[float | None] = [None] * K
         if lams_found is not None:
             lams = lams_found
-        elif grams is not None:
+        elif grams is not None and y.size * K <= LAMBDA_BATCH_CELLS:
             lams = fold_lambdas(t.name, y, XS, train, grams, near)
         for k in range(K):
             lam_k = lams[k]
@@ -494,13 +502,31 @@ class Scorer:
         fits: list[PowerFit] | None = None,
     ) -> int:
         """Every training fold's powers at once (``boxtidwell.estimate_fold_powers``, from the
-        bank's downdated Gram matrices of the fixed columns), then every fold's solution in
-        one stacked solve with the exact refit fallback."""
+        bank's downdated Gram matrices of the fixed columns; fold by fold on a large table,
+        see POWER_BATCH_CELLS), then every fold's solution in one stacked solve with the
+        exact refit fallback."""
         bank = self.bank
         train = bank.index.train[r]
         K = len(train)
         p = B.shape[1]
         fixed_pos = [i for i in range(p) if i not in dyn.positions]
+        if fits is None and XS.shape[0] * K > POWER_BATCH_CELLS:
+            fits = []  # a large table: fold by fold, each fold's cross-products from its rows
+            for k in range(K):
+                rows = train[k]
+                try:
+                    fits.append(
+                        estimate_powers(
+                            zs[k][rows],
+                            XS[rows],
+                            dyn.x[rows],
+                            start=dyn.start,
+                            boxcox_form=dyn.boxcox_form,
+                            with_se=False,
+                        )
+                    )
+                except CandidateFailure as exc:
+                    raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
         if fits is None:
             Gff = bank.train_grams(S, r)
             if not per_fold:

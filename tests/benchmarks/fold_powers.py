@@ -14,7 +14,11 @@ batched paths.  Prints the machine
 load (``uptime``), wall and CPU seconds (time.process_time; the machine is shared, so CPU
 time is the steadier number), the ratios, and the largest difference between the powers.
 
-    python tests/benchmarks/fold_powers.py [--repeat 3]
+    python tests/benchmarks/fold_powers.py [--repeat 3] [--rows 1000 3000 10000 30000]
+
+``--rows`` also times both paths on invented tables of those sizes (5 folds x 2 repeats, one
+power beside two fixed columns; a Box-Cox lambda on three columns): the crossover where the
+scorer stops batching (fastcv.POWER_BATCH_CELLS, LAMBDA_BATCH_CELLS) is read from it.
 """
 
 from __future__ import annotations
@@ -154,9 +158,41 @@ def largest_change(a, b, path=""):
     return max((largest_change(x, y, f"{path}/{k}") for k, x, y in items), default=(0.0, path))
 
 
+def by_rows(n: int, repeat: int) -> None:
+    from service.core.folds import make_plan
+
+    rng = np.random.default_rng(0)
+    x = rng.uniform(1, 20, n)
+    w = rng.normal(size=n)
+    Xf = np.column_stack([np.ones(n), w, rng.uniform(0, 1, n)])
+    z = 1 + 0.8 * np.log(x) + 0.2 * w + rng.normal(0, 0.3, n)
+    plan = make_plan(n, 5, 2, 0)
+    train = [np.flatnonzero(a != k) for a in plan.assignments for k in range(5)]
+    start = bt.estimate_powers(z, Xf, x).powers
+    y = np.exp(z / 3)
+    grams = np.stack([Xf[r].T @ Xf[r] for r in train])
+    for what, calls, fns in (
+        ("powers", [((z, Xf, x[:, None], train, start, True), {})], (old_powers, new_powers)),
+        ("lambdas", [(("box_cox", y, Xf, train, grams, 0.2), {})], (old_lambdas, new_lambdas)),
+    ):
+        cpu = []
+        for fn in fns:
+            times = []
+            for _ in range(repeat):
+                with Timer() as tm:
+                    fn(calls)
+                times.append(tm.cpu)
+            cpu.append(min(times))  # best of ``repeat`` (CPU time: the machine is shared)
+        print(
+            f"{n:>8} rows, {what:<7}: loop cpu {cpu[0]:.3f} s, batched cpu {cpu[1]:.3f} s, "
+            f"ratio {cpu[0] / cpu[1]:.2f}x"
+        )
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--rows", type=int, nargs="*", default=[])
     args = ap.parse_args()
     print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
     print(machine())
@@ -229,6 +265,8 @@ def main() -> None:
     print(f"same ranking: {same}")
     rel, where = largest_change(nb["ranking"], ob["ranking"], "/ranking")
     print(f"largest relative change of a number in the ranking: {rel:.1e} ({where})")
+    for n in args.rows:
+        by_rows(n, args.repeat)
     print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
 
 

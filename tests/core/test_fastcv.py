@@ -203,3 +203,37 @@ def test_estimated_powers_with_a_log_shift_fitted_in_every_fold():
             # source: the fold-by-fold estimate on the fold's own log shift and rows
             assert res.fold_powers[j][0] == pytest.approx(one.powers[0], abs=1e-5)
             j += 1
+
+
+def test_large_tables_take_the_folds_one_by_one_with_the_same_results(monkeypatch):
+    from service.core import boxtidwell as bt
+    from service.core import fastcv
+    from service.core.fastcv import Dynamic
+
+    rng = np.random.default_rng(29)
+    n = 160
+    X = np.column_stack([np.ones(n), rng.normal(size=n)])
+    x = rng.uniform(1, 9, n)
+    y = np.exp(1.0 + 0.4 * np.sqrt(x) + 0.1 * X[:, 1] + rng.normal(0, 0.1, n))
+    plan = make_plan(n, 5, 2, 0)
+    bank = ColumnBank.of_matrix(np.column_stack([X, np.log(x)]), FoldIndex.of(plan, n))
+    start = bt.estimate_powers(np.log(y), X, x).powers
+
+    def run():
+        sc = Scorer(bank, y, plan, False)
+        powers = sc.score(
+            tr.Transform("log", shift=0.0), [0, 1], None, Dynamic([2], x[:, None], start)
+        )
+        lams = sc.score(tr.Transform("box_cox"), [0, 1, 2])
+        return powers, lams
+
+    batched = run()
+    monkeypatch.setattr(fastcv, "POWER_BATCH_CELLS", 0)
+    monkeypatch.setattr(fastcv, "LAMBDA_BATCH_CELLS", 0)
+    one_by_one = run()
+    # source: the fold-by-fold estimates (estimate_powers / estimate_lambda per fold); they
+    # stop within the iterations' tolerances of the same optima
+    np.testing.assert_allclose(batched[0].fold_powers, one_by_one[0].fold_powers, atol=1e-5)
+    np.testing.assert_allclose(batched[0].fold_values, one_by_one[0].fold_values, rtol=1e-6)
+    np.testing.assert_allclose(batched[1].fold_lambdas, one_by_one[1].fold_lambdas, atol=1e-6)
+    np.testing.assert_allclose(batched[1].fold_values, one_by_one[1].fold_values, rtol=1e-6)
