@@ -44,7 +44,7 @@ from scipy import optimize, stats
 from . import sources as src
 from . import transforms as tr
 from .errors import CandidateFailure
-from .fitting import qr_solve, solve_batch
+from .fitting import qr_solve, solve_batch, solve_batch_nested
 
 POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
@@ -294,25 +294,35 @@ def estimate_powers(
             if moved < TOL or flat >= 2:
                 converged = True
                 break
-    method = "box_tidwell"
-    if not converged and k > PROFILE_MAX_POWERS:
+    a, rss, method = _fallback(prob, a, rss, converged, it, start is not None)
+    se = _std_errors(z, Xf, logx, a, boxcox_form, n, p) if with_se else None
+    return PowerFit(a, se, converged or method == "profile", it, method, rss)
+
+
+def _fallback(
+    prob: _Problem, a: np.ndarray, rss: float, converged: bool, it: int, started: bool
+) -> tuple[np.ndarray, float, str]:
+    """(powers, rss, method) after the iteration: the iterate when it converged, else the
+    profile search (within ``start +- LOCAL_HALF_WIDTH`` for a started problem whose start
+    had a finite RSS, over the whole range otherwise)."""
+    k = prob.k
+    if converged:
+        return a, rss, "box_tidwell"
+    if k > PROFILE_MAX_POWERS:
         raise CandidateFailure(
             f"the Box-Tidwell iteration for {k} powers did not converge in "
             f"{it} steps; estimate fewer powers at once"
         )
-    if not converged:
-        if start is not None and math.isfinite(rss):
-            a, rss = _profile_search(prob, a, local=LOCAL_HALF_WIDTH)
-        else:
-            a, rss = _profile_search(prob, a if math.isfinite(rss) else np.ones(k))
-        method = "profile"
-        if not math.isfinite(rss):
-            raise CandidateFailure(
-                "the predictor power could not be estimated (the residual sum "
-                "of squares is not finite for any power in [-3, 3])"
-            )
-    se = _std_errors(z, Xf, logx, a, boxcox_form, n, p) if with_se else None
-    return PowerFit(a, se, converged or method == "profile", it, method, rss)
+    if started and math.isfinite(rss):
+        a, rss = _profile_search(prob, a, local=LOCAL_HALF_WIDTH)
+    else:
+        a, rss = _profile_search(prob, a if math.isfinite(rss) else np.ones(k))
+    if not math.isfinite(rss):
+        raise CandidateFailure(
+            "the predictor power could not be estimated (the residual sum "
+            "of squares is not finite for any power in [-3, 3])"
+        )
+    return a, rss, "profile"
 
 
 def _std_errors(
@@ -394,3 +404,248 @@ ESTIMATED = tr.Transform("power", exponent=None, estimated=True)
 def is_open(t: tr.Transform) -> bool:
     """The search's 'estimate this power' option (no exponent yet)."""
     return t.name == "power" and t.exponent is None
+
+
+# ------------------------------------------------------------ every training fold at once
+def _power_columns_stacked(
+    L: np.ndarray, A: np.ndarray, boxcox_form: bool
+) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`power_columns` for several power vectors at once: ``L`` (b, k) log x, ``A``
+    (F, k) powers; returns W, D (F, b, k), element for element the same arithmetic."""
+    Lb = L[None, :, :]
+    if not boxcox_form:
+        xa = np.exp(A[:, None, :] * Lb)
+        return xa, xa * Lb
+    zero = (np.abs(A) < 1e-12)[:, None, :]
+    a3 = np.where(zero, 1.0, A[:, None, :])
+    u = a3 * Lb
+    em1 = np.expm1(u)
+    W = em1 / a3
+    D = ((em1 + 1.0) * Lb - W) / a3
+    small = np.abs(u) < 1e-3
+    if small.any():
+        D = np.where(small, Lb * Lb * (0.5 + u / 3.0 + u * u / 8.0), D)
+    if zero.any():
+        W = np.where(zero, Lb, W)
+        D = np.where(zero, 0.5 * Lb * Lb, D)
+    return W, D
+
+
+class _Folds:
+    """The training problems of several folds, evaluated together.
+
+    Fold f uses the rows where ``M[f]`` is True (its training rows), its response row
+    ``Z[f]`` and its own powers.  The fixed cross-products X_f'X_f and X_f'z of every fold
+    are given (the column bank's fold Gram matrices: all rows minus the held-out rows) or
+    computed once.  The cross-products that involve the power columns are built per trial
+    for all folds at once: held-out rows are zeroed, so one stacked matrix product gives
+    every fold's exact training sums (after the first step each fold has its own powers, so
+    there is no shared all-rows product to downdate).  A trial's normal equations of
+    [X_f, W, D] are factored once for all folds (column-scaled Cholesky with the condition
+    check of ``fitting.solve_batch``); the leading block gives the fit on [X_f, W] (its RSS,
+    from the residuals) and the whole the next Gauss-Newton step.  A fold that fails the
+    check is solved by pivoted QR of its assembled training design, as in
+    :class:`_Problem`.
+    """
+
+    def __init__(
+        self,
+        Z: np.ndarray,
+        Xf: np.ndarray,
+        logx: np.ndarray,
+        train: list[np.ndarray],
+        boxcox_form: bool,
+        grams: np.ndarray | None,
+        crosses: np.ndarray | None,
+    ):
+        F, n = Z.shape
+        self.Xf, self.logx, self.train, self.bc = Xf, logx, train, boxcox_form
+        self.pf, self.k = Xf.shape[1], logx.shape[1]
+        M = np.zeros((F, n), dtype=bool)
+        for f, rows in enumerate(train):
+            M[f, rows] = True
+        self.M = M
+        self.Z = Z
+        self.Zm = np.where(M, Z, 0.0)
+        if grams is None:
+            grams = np.stack([Xf[rows].T @ Xf[rows] for rows in train])
+        if crosses is None:
+            crosses = np.matmul(self.Zm, Xf)
+        self.Gff, self.cf = grams, crosses
+
+    def trial(
+        self, idx: np.ndarray, A: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Folds ``idx`` at powers ``A`` (Fa, k): (rss (Fa,), coef of [X_f, W] (Fa, p_f + k),
+        coef of [X_f, W, D] (Fa, p_f + 2k), qr (Fa,)).  rss is inf where a column or the fit
+        is not finite; the last coefficients are NaN where there is no step (D not finite)
+        or, with ``qr`` True, where the QR path (:meth:`qr_full`) is still to be taken."""
+        n, k, pf = self.Z.shape[1], self.k, self.pf
+        Fa = idx.size
+        P, P1 = pf + 2 * k, pf + k
+        M, Zm = self.M[idx], self.Zm[idx]
+        G = np.empty((Fa, P, P))
+        G[:, :pf, :pf] = self.Gff[idx]
+        G[:, pf:, :] = 0.0
+        G[:, :pf, pf:] = 0.0
+        c = np.zeros((Fa, P))
+        c[:, :pf] = self.cf[idx]
+        wfin = np.ones(Fa, dtype=bool)
+        dfin = np.ones(Fa, dtype=bool)
+        Ws: list[np.ndarray] = []
+        coef = np.full((Fa, P1), np.nan)
+        g = np.full((Fa, P), np.nan)
+        qr = np.zeros(Fa, dtype=bool)
+        with np.errstate(over="ignore", invalid="ignore"):
+            for s in range(0, n, CHUNK_ROWS):
+                sl = slice(s, s + CHUNK_ROWS)
+                W, D = _power_columns_stacked(self.logx[sl], A, self.bc)
+                m = M[:, sl, None]
+                wfin &= np.all(np.isfinite(W) | ~m, axis=(1, 2))
+                dfin &= np.all(np.isfinite(D) | ~m, axis=(1, 2))
+                WD = np.where(m, np.concatenate([W, D], axis=2), 0.0)
+                Ws.append(WD[:, :, :k])
+                G[:, :pf, pf:] += np.matmul(self.Xf[sl].T, WD)
+                G[:, pf:, pf:] += np.matmul(WD.transpose(0, 2, 1), WD)
+                c[:, pf:] += np.matmul(Zm[:, None, sl], WD)[:, 0, :]
+            G[:, pf:, :pf] = G[:, :pf, pf:].transpose(0, 2, 1)
+            both = np.flatnonzero(wfin & dfin)
+            if both.size:
+                Bf, ok, B1 = solve_batch_nested(G[both], c[both], P1)
+                g[both[ok]], coef[both[ok]] = Bf[ok], B1[ok]
+                qr[both[~ok]] = True
+            rest = np.flatnonzero(wfin & np.isnan(coef[:, 0]))
+            if rest.size:
+                B, ok = solve_batch(G[rest][:, :P1, :P1], c[rest][:, :P1])
+                coef[rest[ok]] = B[ok]
+                for i in rest[~ok]:
+                    coef[i] = self._qr(int(idx[i]), A[i], with_d=False)
+            cf, cw = coef[:, :pf], coef[:, pf:]
+            rss = np.zeros(Fa)
+            for j, s in enumerate(range(0, n, CHUNK_ROWS)):
+                sl = slice(s, s + CHUNK_ROWS)
+                eta = cf @ self.Xf[sl].T + np.matmul(Ws[j], cw[:, :, None])[:, :, 0]
+                r = np.where(M[:, sl], Zm[:, sl] - eta, 0.0)
+                rss += np.einsum("fb,fb->f", r, r)
+        rss = np.where(wfin & np.isfinite(rss), rss, math.inf)
+        return rss, coef, g, qr
+
+    def _qr(self, f: int, a: np.ndarray, with_d: bool) -> np.ndarray:
+        """Pivoted-QR coefficients of fold f's training design at powers ``a`` (NaN when
+        it has no finite solution)."""
+        rows = self.train[f]
+        W, D = power_columns(self.logx[rows], a, self.bc)
+        design = np.hstack([self.Xf[rows], W, D] if with_d else [self.Xf[rows], W])
+        try:
+            coef, _, _ = qr_solve(design, self.Z[f, rows], with_condition=False)
+        except CandidateFailure:
+            return np.full(design.shape[1], np.nan)
+        return coef if np.all(np.isfinite(coef)) else np.full(design.shape[1], np.nan)
+
+    def qr_full(self, f: int, a: np.ndarray) -> np.ndarray:
+        """Coefficients of [X_f, W, D] of fold f by pivoted QR (the condition check failed)."""
+        with np.errstate(over="ignore", invalid="ignore"):
+            return self._qr(f, a, with_d=True)
+
+
+def estimate_fold_powers(
+    z: np.ndarray,
+    Xf: np.ndarray,
+    x: np.ndarray,
+    train: list[np.ndarray],
+    start: np.ndarray,
+    boxcox_form: bool = True,
+    grams: np.ndarray | None = None,
+    crosses: np.ndarray | None = None,
+    labels: list[int] | None = None,
+) -> list[PowerFit]:
+    """:func:`estimate_powers` (``start`` given, no standard errors) on the training rows of
+    every fold at once.
+
+    ``z``: (n,) response, or (F, n) one row per fold; ``Xf`` (n, p_f) and ``x`` (n, k) on
+    all rows; ``train[f]`` the training rows of fold f; ``grams`` (F, p_f, p_f) and
+    ``crosses`` (F, p_f), when given, the folds' training X_f'X_f and X_f'z (e.g. downdated
+    from all-rows sums).  Every fold starts from ``start`` (the all-rows estimate) and takes
+    the same damped Gauss-Newton steps, with the same convergence rule, as
+    :func:`estimate_powers`; the steps of all folds are taken together (one stacked
+    factorisation per step and per halving).  A fold that does not converge goes to the same
+    profile search.  Raises :class:`CandidateFailure` whose reason names the fold
+    (``labels[f]``, default f + 1).
+    """
+    z = np.asarray(z, dtype=float)
+    x = np.asarray(x, dtype=float)
+    Xf = np.asarray(Xf, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    F = len(train)
+    names = labels if labels is not None else list(range(1, F + 1))
+    if np.any(x <= 0):
+        raise CandidateFailure("an estimated power needs a predictor with values > 0")
+    logx = np.log(x)
+    n, k = logx.shape
+    pf = Xf.shape[1]
+    for f, rows in enumerate(train):
+        if rows.size <= pf + 2 * k + 1:
+            raise CandidateFailure(
+                f"fold {names[f]}: {rows.size} rows are too few to estimate {k} predictor power(s)"
+            )
+    Z = np.broadcast_to(z, (F, n)) if z.ndim == 1 else z
+    folds = _Folds(Z, Xf, logx, train, boxcox_form, grams, crosses)
+    a = np.tile(np.clip(np.asarray(start, float), *POWER_BOUNDS), (F, 1))
+    rss, coef, g, qr = folds.trial(np.arange(F), a)
+    converged = np.zeros(F, dtype=bool)
+    its = np.zeros(F, dtype=int)
+    flat = np.zeros(F, dtype=int)  # consecutive steps that lowered the RSS by <= FTOL
+    active = np.isfinite(rss)
+    for it in range(1, MAX_ITER + 1):
+        idx = np.flatnonzero(active)
+        if idx.size == 0:
+            break
+        its[idx] = it
+        for f in idx[qr[idx]]:
+            g[f], qr[f] = folds.qr_full(int(f), a[f]), False
+        b = coef[idx, pf:]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            step = g[idx, pf + k :] / b
+        bad = (
+            np.any(~np.isfinite(g[idx]), axis=1)
+            | np.any(np.abs(b) < 1e-300, axis=1)
+            | np.any(~np.isfinite(step), axis=1)
+        )
+        active[idx[bad]] = False  # no step: not converged, the profile search takes over
+        srch = idx[~bad]
+        st = np.clip(step[~bad], -1.0, 1.0)  # at most one rung of the ladder per step
+        while srch.size:
+            big = np.max(np.abs(st), axis=1) >= TOL
+            # no decrease within TOL of a: stationary to that accuracy (see estimate_powers)
+            converged[srch[~big]] = True
+            active[srch[~big]] = False
+            srch, st = srch[big], st[big]
+            if srch.size == 0:
+                break
+            a_new = np.clip(a[srch] + st, *POWER_BOUNDS)
+            rss_new, coef_new, g_new, qr_new = folds.trial(srch, a_new)
+            acc = rss_new <= rss[srch] * (1.0 + 1e-12)
+            if np.any(acc):
+                i = srch[acc]
+                moved = np.max(np.abs(a_new[acc] - a[i]), axis=1)
+                flat[i] = np.where(rss[i] - rss_new[acc] <= FTOL * rss[i], flat[i] + 1, 0)
+                a[i], rss[i], coef[i] = a_new[acc], rss_new[acc], coef_new[acc]
+                g[i], qr[i] = g_new[acc], qr_new[acc]
+                done = (moved < TOL) | (flat[i] >= 2)
+                converged[i[done]] = True
+                active[i[done]] = False
+            srch, st = srch[~acc], st[~acc] / 2.0
+    out: list[PowerFit] = []
+    for f in range(F):
+        if converged[f]:
+            out.append(PowerFit(a[f].copy(), None, True, int(its[f]), "box_tidwell", float(rss[f])))
+            continue
+        rows = train[f]
+        prob = _Problem(Z[f, rows], Xf[rows], logx[rows], boxcox_form)
+        try:
+            af, rf, method = _fallback(prob, a[f].copy(), float(rss[f]), False, int(its[f]), True)
+        except CandidateFailure as exc:
+            raise CandidateFailure(f"fold {names[f]}: {exc.reason}") from None
+        out.append(PowerFit(af, None, True, int(its[f]), method, rf))
+    return out

@@ -25,7 +25,7 @@ started at the all-rows estimate; the column then differs per fold).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -33,14 +33,22 @@ import numpy as np
 from . import retransform
 from . import transforms as tr
 from .bank import ColumnBank
-from .boxtidwell import estimate_powers, power_columns
+from .boxtidwell import PowerFit, estimate_fold_powers, estimate_powers, power_columns
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
-from .likelihood import fit_transform
+from .likelihood import fit_transform, fold_lambdas
 from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from .folds import CVPlan
+
+# Folds x rows up to which the folds' powers / lambdas are estimated in one batch.  The
+# batched paths save Python-level calls and spend arithmetic on held-out rows (masked), so
+# they win on small tables and lose on large ones; crossovers measured with
+# tests/benchmarks/fold_powers.py --rows N (one thread, 10 folds): powers ~5,000 rows,
+# lambdas ~3,000 rows.  Above these the folds are taken one by one.
+POWER_BATCH_CELLS = 50_000
+LAMBDA_BATCH_CELLS = 25_000
 
 
 @dataclass
@@ -232,45 +240,55 @@ class Scorer:
         j = 0
         K = plan.folds
         oof: OutOfFold | None = None
-        for r in range(1 if first_only else plan.repeats):
+        repeats = 1 if first_only else plan.repeats
+        fixed = None if per_fold else (t0, z)
+        powers_of: list[list[PowerFit]] | None = None
+        if dynamic is not None and repeats > 1 and n * repeats * K <= POWER_BATCH_CELLS:
+            powers_of = self._powers_all_repeats(t, S, XS, dynamic, per_fold, fixed)
+        lams_of: list[float | None] | None = None
+        if estimate_lam and repeats > 1 and n * repeats * K <= LAMBDA_BATCH_CELLS:
+            # every repeat's folds in one batch (fewer, larger stacked steps)
+            lams_of = fold_lambdas(
+                t.name,
+                y,
+                XS,
+                [rows for r in range(repeats) for rows in index.train[r]],
+                np.concatenate([bank.train_grams(S, r) for r in range(repeats)]),
+                near,
+            )
+        for r in range(repeats):
             train, test = index.train[r], index.test[r]
             # ---- per-fold response scale and training solutions
-            ts: list[tr.Transform] = []
-            zs: list[np.ndarray] = []
             B = np.empty((K, p))
             designs: list[np.ndarray | None] = [None] * K
-            for k in range(K):
-                if train[k].size <= p:
-                    raise CandidateFailure(
-                        f"fold {k + 1}: {train[k].size} training rows cannot "
-                        f"estimate {p} coefficients"
-                    )
-            if not per_fold:
-                ts = [t0] * K
-                zs = [z] * K
-            else:
-                for k in range(K):
-                    ytr = y[train[k]]
-                    try:
-                        tk = fit_transform(
-                            t, ytr, XS[train[k]], shift_needed=self.shift_needed, near=near
-                        )
-                    except ValueError as exc:
-                        raise CandidateFailure(f"fold {k + 1}: {exc}") from None
-                    if estimate_lam:
-                        assert tk.lam is not None  # fit_transform estimated it
-                        lambdas.append(float(tk.lam))
-                    zk = tk.forward(y)
-                    if not np.all(np.isfinite(zk[train[k]])):
-                        raise CandidateFailure(
-                            f"fold {k + 1}: {tk.label('y')} overflows on the training rows"
-                        )
-                    ts.append(tk)
-                    zs.append(zk)
+            ts, zs = self._fold_scales(
+                t,
+                r,
+                XS,
+                p,
+                fixed,
+                near,
+                lambdas,
+                S,
+                None if lams_of is None else lams_of[r * K : (r + 1) * K],
+            )
             if dynamic is None:
                 refits += self._solve_static(S, XS, r, zs, per_fold, t, names, B)
             else:
-                refits += self._solve_dynamic(XS, dynamic, r, zs, names, B, designs, powers)
+                refits += self._solve_dynamic(
+                    S,
+                    XS,
+                    dynamic,
+                    r,
+                    zs,
+                    per_fold,
+                    t,
+                    names,
+                    B,
+                    designs,
+                    powers,
+                    None if powers_of is None else powers_of[r],
+                )
             # ---- fitted values of every row under every fold's solution
             if dynamic is None:
                 ETA = (B @ XS.T).T  # (n, K), each fold's column contiguous
@@ -343,6 +361,116 @@ class Scorer:
             oof,
         )
 
+    def _fold_scales(
+        self,
+        t: tr.Transform,
+        r: int,
+        XS: np.ndarray,
+        p: int,
+        fixed: tuple[tr.Transform, np.ndarray] | None,
+        near: float | None,
+        lambdas: list[float] | None,
+        S: np.ndarray | None = None,
+        lams_found: list[float | None] | None = None,
+    ) -> tuple[list[tr.Transform], list[np.ndarray]]:
+        """Each training fold's concrete response scale and z on all rows (repeat r);
+        ``fixed``: the scale that does not change per fold.  Estimated lambdas are appended
+        to ``lambdas`` (when given); ``lams_found``: the folds' lambdas when already found
+        (None for a fold the one-fold path answers)."""
+        train = self.bank.index.train[r]
+        K = len(train)
+        for k in range(K):
+            if train[k].size <= p:
+                raise CandidateFailure(
+                    f"fold {k + 1}: {train[k].size} training rows cannot estimate {p} coefficients"
+                )
+        if fixed is not None:
+            return [fixed[0]] * K, [fixed[1]] * K
+        estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+        ts: list[tr.Transform] = []
+        zs: list[np.ndarray] = []
+        y = self.y
+        # a lambda's profile likelihood needs each fold's X'X: the bank's downdated ones;
+        # every fold's lambda is found in one batch, a fold it does not take on its own
+        grams = self.bank.train_grams(S, r) if estimate_lam and S is not None else None
+        lams: list[float | None] = [None] * K
+        if lams_found is not None:
+            lams = lams_found
+        elif grams is not None and y.size * K <= LAMBDA_BATCH_CELLS:
+            lams = fold_lambdas(t.name, y, XS, train, grams, near)
+        for k in range(K):
+            lam_k = lams[k]
+            try:
+                tk = (
+                    replace(t, lam=lam_k, estimated=True)
+                    if lam_k is not None
+                    else fit_transform(
+                        t,
+                        y[train[k]],
+                        XS[train[k]],
+                        shift_needed=self.shift_needed,
+                        near=near,
+                        gram=None if grams is None else grams[k],
+                    )
+                )
+            except ValueError as exc:
+                raise CandidateFailure(f"fold {k + 1}: {exc}") from None
+            if estimate_lam and lambdas is not None:
+                assert tk.lam is not None  # fit_transform estimated it
+                lambdas.append(float(tk.lam))
+            zk = tk.forward(y)
+            if not np.all(np.isfinite(zk[train[k]])):
+                raise CandidateFailure(
+                    f"fold {k + 1}: {tk.label('y')} overflows on the training rows"
+                )
+            ts.append(tk)
+            zs.append(zk)
+        return ts, zs
+
+    def _powers_all_repeats(
+        self,
+        t: tr.Transform,
+        S: np.ndarray,
+        XS: np.ndarray,
+        dyn: Dynamic,
+        per_fold: bool,
+        fixed: tuple[tr.Transform, np.ndarray] | None,
+    ) -> list[list[PowerFit]] | None:
+        """The estimated powers of every training fold of every repeat in one batch (fewer,
+        larger stacked steps than one batch per repeat), or None when a fold fails: the
+        repeat-by-repeat path then meets and reports the first failure in its own order."""
+        bank, R = self.bank, self.plan.repeats
+        train_all = [rows for r in range(R) for rows in bank.index.train[r]]
+        try:
+            zs_all = [
+                z for r in range(R) for z in self._fold_scales(t, r, XS, 0, fixed, None, None)[1]
+            ]
+            grams = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+            if not per_fold:
+                cf, ctot = bank.cross(t, zs_all[0])
+                crosses: np.ndarray | None = np.concatenate(
+                    [ctot[r][S][None, :] - cf[r][:, S] for r in range(R)]
+                )
+                Z = zs_all[0]
+            else:
+                crosses = None
+                Z = np.stack(zs_all)
+            fits = estimate_fold_powers(
+                Z,
+                XS,
+                dyn.x,
+                train_all,
+                dyn.start,
+                dyn.boxcox_form,
+                grams=grams,
+                crosses=crosses,
+                labels=[k + 1 for _r in range(R) for k in range(self.plan.folds)],
+            )
+        except CandidateFailure:
+            return None
+        K = self.plan.folds
+        return [fits[r * K : (r + 1) * K] for r in range(R)]
+
     # ------------------------------------------------------------- solutions
     def _solve_static(
         self,
@@ -374,48 +502,76 @@ class Scorer:
 
     def _solve_dynamic(
         self,
+        S: np.ndarray,
         XS: np.ndarray,
         dyn: Dynamic,
         r: int,
         zs: list[np.ndarray],
+        per_fold: bool,
+        t: tr.Transform,
         names: list[str] | None,
         B: np.ndarray,
         designs: list[np.ndarray | None],
         powers: list[list[float]],
+        fits: list[PowerFit] | None = None,
     ) -> int:
-        train = self.bank.index.train[r]
+        """Every training fold's powers at once (``boxtidwell.estimate_fold_powers``, from the
+        bank's downdated Gram matrices of the fixed columns; fold by fold on a large table,
+        see POWER_BATCH_CELLS), then every fold's solution in one stacked solve with the
+        exact refit fallback."""
+        bank = self.bank
+        train = bank.index.train[r]
         K = len(train)
         p = B.shape[1]
         fixed_pos = [i for i in range(p) if i not in dyn.positions]
+        if fits is None and XS.shape[0] * K > POWER_BATCH_CELLS:
+            fits = []  # a large table: fold by fold, each fold's cross-products from its rows
+            for k in range(K):
+                rows = train[k]
+                try:
+                    fits.append(
+                        estimate_powers(
+                            zs[k][rows],
+                            XS[rows],
+                            dyn.x[rows],
+                            start=dyn.start,
+                            boxcox_form=dyn.boxcox_form,
+                            with_se=False,
+                        )
+                    )
+                except CandidateFailure as exc:
+                    raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
+        if fits is None:
+            Gff = bank.train_grams(S, r)
+            if not per_fold:
+                cf, ctot = bank.cross(t, zs[0])
+                cff: np.ndarray | None = ctot[r][S][None, :] - cf[r][:, S]
+                Z = zs[0]
+            else:
+                Z = np.stack(zs)
+                cff = None
+            fits = estimate_fold_powers(
+                Z, XS, dyn.x, train, dyn.start, dyn.boxcox_form, grams=Gff, crosses=cff
+            )
         logx = np.log(dyn.x)
-        refits = 0
-        for k in range(K):
-            tr_rows = train[k]
-            ztr = zs[k][tr_rows]
-            try:
-                fit = estimate_powers(
-                    ztr,
-                    XS[tr_rows],
-                    dyn.x[tr_rows],
-                    start=dyn.start,
-                    boxcox_form=dyn.boxcox_form,
-                    with_se=False,
-                )
-            except CandidateFailure as exc:
-                raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
+        G = np.empty((K, p, p))
+        c = np.empty((K, p))
+        full: list[np.ndarray] = []
+        for k, fit in enumerate(fits):
             powers.append([float(a) for a in fit.powers])
             W, _ = power_columns(logx, fit.powers, dyn.boxcox_form)
             X = np.empty((XS.shape[0], p))
             X[:, fixed_pos] = XS
             X[:, dyn.positions] = W
             designs[k] = X
-            Xtr = X[tr_rows]
-            G = (Xtr.T @ Xtr)[None]
-            c = (Xtr.T @ ztr)[None]
-            b, ok = solve_batch(G, c)
-            if ok[0]:
-                B[k] = b[0]
-            else:
-                B[k] = _exact_refit(Xtr, ztr, names, k)
-                refits += 1
+            full.append(X)
+            Xtr = X[train[k]]
+            G[k] = Xtr.T @ Xtr
+            c[k] = Xtr.T @ zs[k][train[k]]
+        Bk, ok = solve_batch(G, c)
+        B[:] = Bk
+        refits = 0
+        for i in np.flatnonzero(~ok):
+            B[i] = _exact_refit(full[i][train[i]], zs[i][train[i]], names, i)
+            refits += 1
         return refits

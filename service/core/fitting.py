@@ -108,6 +108,43 @@ def hac_cov(fit: OLSFit, X: np.ndarray, order: np.ndarray, lags: int) -> np.ndar
     return out
 
 
+def _factor_batch(
+    G: np.ndarray, c: np.ndarray
+) -> tuple[np.ndarray | None, np.ndarray, np.ndarray, np.ndarray]:
+    """Cholesky factors of the column-scaled matrices of a stack that pass the condition
+    check: (L (g, p, p) or None, scaled right-hand sides (g, p), scales (g, p), good (K,))."""
+    K = G.shape[0]
+    d2 = np.diagonal(G, axis1=1, axis2=2)
+    finite = np.isfinite(G).all(axis=(1, 2)) & np.isfinite(c).all(axis=1)
+    ok = (d2 > 0).all(axis=1) & finite
+    good = np.zeros(K, dtype=bool)
+    if ok.all():  # the usual case: nothing to mask
+        d = np.sqrt(d2)
+        Gs = G / (d[:, :, None] * d[:, None, :])
+        cs = c / d
+        ev = np.linalg.eigvalsh(Gs)
+        good = ev[:, 0] > ev[:, -1] / COND_LIMIT
+    else:
+        if not ok.any():
+            return None, c[good], c[good], good
+        G = np.where(finite[:, None, None], G, 1.0)
+        c = np.where(finite[:, None], c, 0.0)
+        d2 = np.where(finite[:, None], d2, 1.0)
+        d = np.sqrt(np.where(d2 > 0, d2, 1.0))
+        Gs = G / (d[:, :, None] * d[:, None, :])
+        cs = c / d
+        ev = np.linalg.eigvalsh(Gs[ok])
+        good[ok] = ev[:, 0] > ev[:, -1] / COND_LIMIT
+    if not np.any(good):
+        return None, cs[good], d[good], good
+    try:
+        L = np.linalg.cholesky(Gs[good])
+    except np.linalg.LinAlgError:
+        good[:] = False
+        return None, cs[good], d[good], good
+    return L, cs[good], d[good], good
+
+
 def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Solve G_k b_k = c_k for a stack of SPD matrices (K, p, p), (K, p).
 
@@ -116,30 +153,37 @@ def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     are undefined and must be refitted exactly.
     """
     K, p, _ = G.shape
-    d2 = np.diagonal(G, axis1=1, axis2=2)
-    finite = np.all(np.isfinite(G), axis=(1, 2)) & np.all(np.isfinite(c), axis=1)
-    ok = np.all(d2 > 0, axis=1) & finite
-    G = np.where(finite[:, None, None], G, 1.0)
-    c = np.where(finite[:, None], c, 0.0)
-    d2 = np.where(finite[:, None], d2, 1.0)
-    d = np.sqrt(np.where(d2 > 0, d2, 1.0))
-    Gs = G / (d[:, :, None] * d[:, None, :])
-    cs = c / d
     B = np.full((K, p), np.nan)
-    if not np.any(ok):
-        return B, ok
-    ev = np.linalg.eigvalsh(Gs[ok])
-    good = np.zeros(K, dtype=bool)
-    good[ok] = ev[:, 0] > ev[:, -1] / COND_LIMIT
-    if np.any(good):
-        try:
-            L = np.linalg.cholesky(Gs[good])
-        except np.linalg.LinAlgError:
-            return B, np.zeros(K, dtype=bool)
-        w = np.linalg.solve(L, cs[good][:, :, None])
+    L, cs, d, good = _factor_batch(G, c)
+    if L is not None:
+        w = np.linalg.solve(L, cs[:, :, None])
         b = np.linalg.solve(np.swapaxes(L, 1, 2), w)[:, :, 0]
-        B[good] = b / d[good]
+        B[good] = b / d
     return B, good
+
+
+def solve_batch_nested(
+    G: np.ndarray, c: np.ndarray, lead: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`solve_batch`, plus the solutions of the leading ``lead`` x ``lead`` systems
+    G_k[:lead, :lead] b = c_k[:lead] from the same factors (the leading block of a Cholesky
+    factor is the factor of the leading block).  Returns (B (K, p), ok (K,), B_lead (K,
+    lead)).  Where ``ok`` the leading system passes the condition check too: a principal
+    submatrix of the scaled matrix has its eigenvalues inside the full one's range (Cauchy
+    interlacing), so its condition number is no larger.
+    """
+    K, p, _ = G.shape
+    B = np.full((K, p), np.nan)
+    B1 = np.full((K, lead), np.nan)
+    L, cs, d, good = _factor_batch(G, c)
+    if L is not None:
+        w = np.linalg.solve(L, cs[:, :, None])
+        b = np.linalg.solve(np.swapaxes(L, 1, 2), w)[:, :, 0]
+        B[good] = b / d
+        L1 = L[:, :lead, :lead]
+        b1 = np.linalg.solve(np.swapaxes(L1, 1, 2), w[:, :lead])[:, :, 0]
+        B1[good] = b1 / d[:, :lead]
+    return B, good, B1
 
 
 def qr_solve(

@@ -70,23 +70,32 @@ class _Projector:
     QR of X instead, as it is for an ill-conditioned or rank-deficient X.
     """
 
-    def __init__(self, X: np.ndarray | None, n: int):
+    def __init__(self, X: np.ndarray | None, n: int, gram: np.ndarray | None = None):
         if X is None:
             X = np.ones((n, 1))
+            gram = None
+        if gram is not None and not np.all(np.isfinite(gram)):
+            gram = None  # sums that overflowed: form them from the rows
         # Scale columns: the column space is unchanged, this only helps accuracy.
-        scale = np.sqrt(np.sum(X * X, axis=0))
+        if gram is None:
+            scale = np.sqrt(np.sum(X * X, axis=0))
+        else:  # X'X given (a training fold's, downdated from all-rows sums)
+            scale = np.sqrt(np.maximum(np.diagonal(gram), 0.0))
         scale[scale == 0] = 1.0
         self.X = X
         self.scale = scale
         self.L: np.ndarray | None = None
         self.q: np.ndarray | None = None
-        G = (X.T @ X) / np.outer(scale, scale)
+        G = (X.T @ X if gram is None else gram) / np.outer(scale, scale)
         ev = np.linalg.eigvalsh(G)
         if ev[0] > 1e-8 * ev[-1]:
             try:
-                self.L = np.linalg.cholesky(G)
+                self.L = np.asfortranarray(np.linalg.cholesky(G))
             except np.linalg.LinAlgError:
                 self.L = None
+        if self.L is None and gram is not None:  # the QR path scales by the rows, as without
+            self.scale = np.sqrt(np.sum(X * X, axis=0))
+            self.scale[self.scale == 0] = 1.0
         ones = np.ones(n)
         if self.L is not None:
             c = self._coef_rhs(X.sum(axis=0))
@@ -187,6 +196,7 @@ def estimate_lambda(
     level: float = 0.95,
     with_interval: bool = True,
     near: float | None = None,
+    gram: np.ndarray | None = None,
 ) -> LambdaEstimate:
     """Maximum-likelihood lambda of a Box-Cox or Yeo-Johnson response in the model y(lambda) ~ X.
 
@@ -195,10 +205,11 @@ def estimate_lambda(
     likelihood-ratio interval end points by ``brentq`` out to +-5.  ``near``
     (e.g. the estimate on all rows, when re-estimating inside a fold) starts
     with a finer grid of +-1 around it; if the best grid point falls on that
-    grid's edge the whole range is searched.
+    grid's edge the whole range is searched.  ``gram``: X'X when it is at hand (a training
+    fold's, all-rows sums minus the held-out rows), so it is not formed from the rows again.
     """
     y = np.asarray(y, dtype=float)
-    proj = _Projector(X, y.size)
+    proj = _Projector(X, y.size, gram)
     f = _profile(family, y, proj)
     grid: np.ndarray | None = None
     vals: np.ndarray | None = None
@@ -293,6 +304,7 @@ def fit_transform(
     X: np.ndarray | None = None,
     shift_needed: bool | None = None,
     near: float | None = None,
+    gram: np.ndarray | None = None,
 ) -> tr.Transform:
     """Return a concrete transform, estimating what ``t`` leaves open from ``y`` (and design ``X``).
 
@@ -307,6 +319,248 @@ def fit_transform(
             return replace(t, shift=0.0)
         return replace(t, shift=tr.chosen_shift(y), estimated=True)
     if t.name in ("box_cox", "yeo_johnson"):
-        est = estimate_lambda(t.name, y, X, with_interval=False, near=near)
+        est = estimate_lambda(t.name, y, X, with_interval=False, near=near, gram=gram)
         return replace(t, lam=est.lam, estimated=True)
     return t
+
+
+# ------------------------------------------------------------ every training fold at once
+_SQRT_EPS = math.sqrt(2.2e-16)
+_GOLDEN = 0.5 * (3.0 - math.sqrt(5.0))
+
+
+def _brent_max(
+    f: Callable[[np.ndarray, np.ndarray], np.ndarray],
+    lo: np.ndarray,
+    hi: np.ndarray,
+    xatol: float,
+    maxfun: int = 500,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Maximise f_i over [lo_i, hi_i] for every i at once: the bounded Brent method
+    (golden section with parabolic steps, Brent 1973, ch. 5) step for step as
+    ``scipy.optimize.minimize_scalar(method="bounded")`` takes it, on -f, with every
+    unfinished problem's evaluation of one step made in one call ``f(index, x)``.
+    Returns (argmax, max)."""
+    F = lo.size
+    a, b = lo.astype(float).copy(), hi.astype(float).copy()
+    fulc = a + _GOLDEN * (b - a)
+    nfc, xf = fulc.copy(), fulc.copy()
+    rat = np.zeros(F)
+    e = np.zeros(F)
+    fx = -f(np.arange(F), xf)
+    num = np.ones(F, dtype=int)
+    ffulc, fnfc = fx.copy(), fx.copy()
+    xm = 0.5 * (a + b)
+    tol1 = _SQRT_EPS * np.abs(xf) + xatol / 3.0
+    tol2 = 2.0 * tol1
+    fu = np.full(F, np.inf)
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        act = np.abs(xf - xm) > (tol2 - 0.5 * (b - a))
+        while act.any():
+            # a parabola through the three best points, where the last steps allow one
+            r = (xf - nfc) * (fx - ffulc)
+            q = (xf - fulc) * (fx - fnfc)
+            p = (xf - fulc) * q - (xf - nfc) * r
+            q = 2.0 * (q - r)
+            p = np.where(q > 0.0, -p, p)
+            q = np.abs(q)
+            ok = (
+                (np.abs(e) > tol1)
+                & (np.abs(p) < np.abs(0.5 * q * e))
+                & (p > q * (a - xf))
+                & (p < q * (b - xf))
+            )
+            ratp = p / np.where(ok, q, 1.0)
+            x = xf + ratp
+            si = np.sign(xm - xf) + ((xm - xf) == 0)
+            ratp = np.where(((x - a) < tol2) | ((b - x) < tol2), tol1 * si, ratp)
+            # else a golden-section step into the larger part
+            eg = np.where(xf >= xm, a - xf, b - xf)
+            e = np.where(act, np.where(ok, rat, eg), e)
+            rat = np.where(act, np.where(ok, ratp, _GOLDEN * eg), rat)
+            si = np.sign(rat) + (rat == 0)
+            x = xf + si * np.maximum(np.abs(rat), tol1)
+            i = np.flatnonzero(act)
+            fu[:] = np.inf
+            fu[i] = -f(i, x[i])
+            num += act
+            better = act & (fu <= fx)
+            worse = act & ~better
+            left = x < xf
+            a = np.where(better & ~left, xf, np.where(worse & left, x, a))
+            b = np.where(better & left, xf, np.where(worse & ~left, x, b))
+            c1 = worse & ((fu <= fnfc) | (nfc == xf))
+            c2 = worse & ~c1 & ((fu <= ffulc) | (fulc == xf) | (fulc == nfc))
+            moved = better | c1
+            fulc, ffulc = (
+                np.where(moved, nfc, np.where(c2, x, fulc)),
+                np.where(moved, fnfc, np.where(c2, fu, ffulc)),
+            )
+            nfc, fnfc = (
+                np.where(better, xf, np.where(c1, x, nfc)),
+                np.where(better, fx, np.where(c1, fu, fnfc)),
+            )
+            xf, fx = np.where(better, x, xf), np.where(better, fu, fx)
+            xm = 0.5 * (a + b)
+            tol1 = _SQRT_EPS * np.abs(xf) + xatol / 3.0
+            tol2 = 2.0 * tol1
+            act &= (np.abs(xf - xm) > (tol2 - 0.5 * (b - a))) & (num < maxfun)
+    return xf, -fx
+
+
+class _FoldProfiles:
+    """Box-Cox profile log-likelihoods (geometric-mean scaled form, as in
+    :func:`_scaled_box_cox`) of several training folds, evaluated together.
+
+    ``v`` (n,) is log y (or log(1 + y)), ``M`` (F, n) the training rows, ``grams`` the folds'
+    X'X.  Each fold's column-scaled X'X is checked and factored as in :class:`_Projector`
+    (all folds in one stacked call); a fold's RSS comes from its factor, rss = z'z - c'c,
+    unless the subtraction could lose accuracy (rss <= 1e-7 z'z), when that fold's own
+    :class:`_Projector` forms the residual from QR.
+    """
+
+    def __init__(self, v: np.ndarray, X: np.ndarray, M: np.ndarray, grams: np.ndarray):
+        F = M.shape[0]
+        self.X, self.M = X, M
+        self.nf = M.sum(axis=1).astype(float)
+        self.lgm = np.array([np.mean(v[row]) for row in M])  # as the one-fold path
+        self.gm = np.exp(self.lgm)
+        self.w = np.where(M, v - self.lgm[:, None], 0.0)
+        scale = np.sqrt(np.maximum(np.diagonal(grams, axis1=1, axis2=2), 0.0))
+        scale = np.where(scale == 0, 1.0, scale)
+        self.scale = scale
+        G = grams / (scale[:, :, None] * scale[:, None, :])
+        self.ok = np.all(np.isfinite(G), axis=(1, 2))
+        self.L = np.zeros_like(G)
+        if np.any(self.ok):
+            ev = np.linalg.eigvalsh(G[self.ok])
+            good = np.zeros(F, dtype=bool)
+            good[self.ok] = ev[:, 0] > 1e-8 * ev[:, -1]
+            self.ok = good
+        if np.any(self.ok):
+            try:
+                self.L[self.ok] = np.linalg.cholesky(G[self.ok])
+            except np.linalg.LinAlgError:
+                self.ok[:] = False
+        ones = np.matmul(M.astype(float), X)  # each fold's column sums
+        self.has_const = np.zeros(F, dtype=bool)
+        if np.any(self.ok):
+            c = self._coef_rhs(np.flatnonzero(self.ok), ones[self.ok])
+            self.has_const[self.ok] = (self.nf[self.ok] - np.sum(c * c, axis=1)) < (
+                1e-12 * self.nf[self.ok]
+            )
+        self._proj: dict[int, _Projector] = {}
+
+    def _coef_rhs(self, idx: np.ndarray, xz: np.ndarray) -> np.ndarray:
+        c: np.ndarray = np.linalg.solve(self.L[idx], (xz / self.scale[idx])[:, :, None])[:, :, 0]
+        return c
+
+    def llf(self, idx: np.ndarray, lam: np.ndarray) -> np.ndarray:
+        """Profile log-likelihood of folds ``idx`` at ``lam`` (one value per fold)."""
+        gm, lgm = self.gm[idx][:, None], self.lgm[idx]
+        lt = lam[:, None]
+        zero = np.abs(lt) < 1e-12
+        ls = np.where(zero, 1.0, lt)
+        with np.errstate(over="ignore", invalid="ignore"):
+            z = np.where(zero, gm * self.w[idx], gm * np.expm1(ls * self.w[idx]) / ls)
+            shift = gm[:, 0] * np.expm1(-ls[:, 0] * lgm) / ls[:, 0]
+            adjust = ~zero[:, 0] & ~self.has_const[idx]
+            z = np.where(adjust[:, None], z - shift[:, None], z)
+            M = self.M[idx]
+            finite = np.all(np.isfinite(z) | ~M, axis=1)
+            z = np.where(M & finite[:, None], z, 0.0)
+            zz = np.einsum("fb,fb->f", z, z)
+            c = self._coef_rhs(idx, np.matmul(z, self.X))
+            rss = zz - np.sum(c * c, axis=1)
+        for j in np.flatnonzero(finite & ~(rss > 1e-7 * zz)):
+            f = int(idx[j])
+            if f not in self._proj:
+                rows = np.flatnonzero(self.M[f])
+                self._proj[f] = _Projector(self.X[rows], rows.size)
+            rss[j] = self._proj[f].rss(z[j, self.M[f]])
+        n = self.nf[idx]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = -0.5 * n * (math.log(2 * math.pi) + 1 + np.log(rss / n))
+        return np.where(finite & (rss > 0), out, -math.inf)
+
+
+def fold_lambdas(
+    family: str,
+    y: np.ndarray,
+    X: np.ndarray,
+    train: list[np.ndarray],
+    grams: np.ndarray,
+    near: float | None,
+) -> list[float | None]:
+    """The lambda of every training fold at once: what
+    ``estimate_lambda(family, y[rows], X[rows], with_interval=False, near=near)`` finds on
+    each fold (the same bracket around ``near``, the same grids, the same bounded Brent
+    refinement), with every step's evaluations of all folds made together.  ``grams``
+    (F, p, p): the folds' X'X.  None for a fold this path does not take (its X'X fails the
+    condition check, the family is Yeo-Johnson with negative values, or no finite profile
+    value was found): the one-fold :func:`estimate_lambda` answers for it (and names the
+    problem).
+    """
+    F = len(train)
+    out: list[float | None] = [None] * F
+    y = np.asarray(y, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):  # a fold with y <= 0: not finite
+        if family == "box_cox":
+            v = np.log(y)
+        elif family == "yeo_johnson" and np.all(y >= 0):
+            v = np.log1p(y)  # Yeo-Johnson of y >= 0 is Box-Cox of 1 + y (see _profile)
+        else:
+            return out
+    M = np.zeros((F, y.size), dtype=bool)
+    for f, rows in enumerate(train):
+        M[f, rows] = True
+    prof = _FoldProfiles(v, X, M, grams)
+    todo = np.flatnonzero(prof.ok)
+    if todo.size == 0:
+        return out
+    T = todo.size
+    n_grid = 25
+    grid = np.full((T, n_grid), np.nan)
+    vals = np.full((T, n_grid), -math.inf)
+    width = np.zeros(T, dtype=int)  # grid points in use per fold
+    pending = np.ones(T, dtype=bool)
+    if near is not None and math.isfinite(near):
+        trio = np.clip(np.array([near - 0.25, near, near + 0.25]), *LAMBDA_BOUNDS)
+        tv = np.stack([prof.llf(todo, np.full(T, g)) for g in trio], axis=1)
+        hold = (
+            np.all(np.isfinite(tv), axis=1)
+            & (tv[:, 1] >= tv[:, 0])
+            & (tv[:, 1] >= tv[:, 2])
+            & (trio[0] < trio[2])
+        )
+        grid[hold, :3], vals[hold, :3], width[hold] = trio, tv[hold], 3
+        pending &= ~hold
+        if np.any(pending):
+            g9 = np.clip(np.linspace(near - 1.0, near + 1.0, 9), *LAMBDA_BOUNDS)
+            p = np.flatnonzero(pending)
+            v9 = np.stack([prof.llf(todo[p], np.full(p.size, g)) for g in g9], axis=1)
+            i9 = np.argmax(np.where(np.isfinite(v9), v9, -np.inf), axis=1)
+            edge = np.isin(i9, (0, 8)) & (LAMBDA_BOUNDS[0] < g9[i9]) & (g9[i9] < LAMBDA_BOUNDS[1])
+            keep = np.isfinite(v9[np.arange(p.size), i9]) & ~edge
+            grid[p[keep], :9], vals[p[keep], :9], width[p[keep]] = g9, v9[keep], 9
+            pending[p[keep]] = False
+    if np.any(pending):
+        g25 = np.linspace(LAMBDA_BOUNDS[0], LAMBDA_BOUNDS[1], n_grid)
+        p = np.flatnonzero(pending)
+        v25 = np.stack([prof.llf(todo[p], np.full(p.size, g)) for g in g25], axis=1)
+        grid[p], vals[p], width[p] = g25, v25, n_grid
+    found = np.any(np.isfinite(vals), axis=1)
+    rows = np.arange(T)
+    i = np.argmax(np.where(np.isfinite(vals), vals, -np.inf), axis=1)
+    lo = grid[rows, np.maximum(i - 1, 0)]
+    hi = grid[rows, np.minimum(i + 1, width - 1)]
+    use = np.flatnonzero(found)
+    if use.size == 0:
+        return out
+    lam, best = _brent_max(lambda j, x: prof.llf(todo[use[j]], x), lo[use], hi[use], xatol=1e-9)
+    gi = grid[use, i[use]]
+    gv = vals[use, i[use]]
+    lam = np.where(gv > best, gi, lam)
+    for j, u in enumerate(use):
+        out[int(todo[u])] = float(lam[j])
+    return out

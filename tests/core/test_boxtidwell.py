@@ -10,9 +10,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from scipy.optimize import curve_fit
+from scipy.optimize import curve_fit, minimize_scalar
 from service.core import boxtidwell as bt
 from service.core.data import prepare
+from service.core.errors import CandidateFailure
 from service.core.folds import make_plan
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
@@ -166,3 +167,146 @@ def test_started_profile_fallback_finds_the_brute_force_argmin_near_the_start(mo
     # source: brute-force profile of the residual sum of squares over the exponent, step 1e-3
     assert fit.powers[0] == pytest.approx(grid[int(np.argmin(rss))], abs=1e-3)
     assert fit.rss <= rss.min() * (1 + 1e-12)
+
+
+# ------------------------------------------------------------ every training fold at once
+def _fold_rows(n: int, folds: int, seed: int) -> list[np.ndarray]:
+    a = make_plan(n, folds, 1, seed).assignments[0]
+    return [np.flatnonzero(a != k) for k in range(folds)]
+
+
+def _lstsq_rss(z, Xf, x, a):
+    """RSS of z on [Xf, (x^a - 1)/a] by statsmodels OLS (QR), the reference fit."""
+    import statsmodels.api as sm
+
+    col = np.log(x) if abs(a) < 1e-12 else (x**a - 1.0) / a
+    return float(sm.OLS(z, np.column_stack([Xf, col])).fit(method="qr").ssr)
+
+
+@pytest.mark.parametrize("a_true", [-0.6, 0.0, 0.8])
+def test_fold_powers_equal_the_rss_minimum_on_each_training_fold(a_true):
+    x, w, z = _data(a_true, seed=31, n=300)
+    Xf = np.column_stack([np.ones(x.size), w])
+    train = _fold_rows(x.size, 5, 2)
+    start = bt.estimate_powers(z, Xf, x).powers
+    fits = bt.estimate_fold_powers(z, Xf, x, train, start)
+    for f, rows in enumerate(train):
+        ref = minimize_scalar(
+            lambda a, rows=rows: _lstsq_rss(z[rows], Xf[rows], x[rows], a),
+            bounds=(start[0] - 0.5, start[0] + 0.5),
+            method="bounded",
+            options={"xatol": 1e-10},
+        )
+        # source: statsmodels OLS residual sum of squares on the fold's training rows,
+        # minimised over the power by scipy.optimize.minimize_scalar (bounded Brent);
+        # tolerance abs 1e-5 (the iteration stops at steps below 1e-6)
+        assert fits[f].method == "box_tidwell" and fits[f].converged
+        assert fits[f].powers[0] == pytest.approx(ref.x, abs=1e-5)
+        assert fits[f].rss == pytest.approx(ref.fun, rel=1e-9)
+
+
+def test_fold_powers_from_downdated_grams_equal_the_fold_by_fold_estimates():
+    rng = np.random.default_rng(12)
+    n = 400
+    x1, x2 = rng.uniform(1, 8, n), rng.uniform(0.5, 4, n)
+    w = rng.normal(size=n)
+    z = 3.0 + 1.5 * np.sqrt(x1) - 2.0 / x2 + 0.3 * w + rng.normal(0, 0.05, n)
+    Xf = np.column_stack([np.ones(n), w])
+    x = np.column_stack([x1, x2])
+    train = _fold_rows(n, 5, 0) + _fold_rows(n, 5, 1)  # two repeats in one batch
+    test = [np.setdiff1d(np.arange(n), rows) for rows in train]
+    # fixed cross-products as the column bank gives them: all rows minus the held-out rows
+    grams = np.stack([Xf.T @ Xf - Xf[t].T @ Xf[t] for t in test])
+    crosses = np.stack([Xf.T @ z - Xf[t].T @ z[t] for t in test])
+    start = bt.estimate_powers(z, Xf, x).powers
+    fits = bt.estimate_fold_powers(z, Xf, x, train, start, grams=grams, crosses=crosses)
+    for f, rows in enumerate(train):
+        one = bt.estimate_powers(z[rows], Xf[rows], x[rows], start=start, with_se=False)
+        # source: the fold-by-fold estimate (each fold's cross-products from its own rows);
+        # both stop within the 1e-6 step tolerance of the same minimum
+        np.testing.assert_allclose(fits[f].powers, one.powers, atol=1e-5)
+        assert fits[f].rss == pytest.approx(one.rss, rel=1e-9)
+    # source: simulation truth (powers 0.5 and -1)
+    np.testing.assert_allclose(np.mean([f.powers for f in fits], axis=0), [0.5, -1.0], atol=0.06)
+
+
+def test_ill_conditioned_fold_is_solved_by_qr_and_matches_the_reference(monkeypatch):
+    x, w, z = _data(0.4, seed=41, n=300)
+    rng = np.random.default_rng(3)
+    # two fixed columns that differ by 1e-6 relative: the scaled Gram matrix's condition
+    # number (~1e12) is far above the 1e7 limit, so every fold takes the pivoted-QR path
+    Xf = np.column_stack([np.ones(x.size), w, w + 1e-6 * rng.normal(size=x.size)])
+    train = _fold_rows(x.size, 4, 5)
+    calls = []
+    real = bt.qr_solve
+
+    def spy(*a, **k):
+        calls.append(1)
+        return real(*a, **k)
+
+    monkeypatch.setattr(bt, "qr_solve", spy)
+    start = np.array([0.4])
+    fits = bt.estimate_fold_powers(z, Xf, x, train, start)
+    assert calls, "the QR fallback was not taken"
+    for f, rows in enumerate(train):
+        ref = minimize_scalar(
+            lambda a, rows=rows: _lstsq_rss(z[rows], Xf[rows], x[rows], a),
+            bounds=(-0.1, 0.9),
+            method="bounded",
+            options={"xatol": 1e-10},
+        )
+        # source: statsmodels OLS (QR) RSS minimised by scipy.optimize.minimize_scalar
+        assert fits[f].powers[0] == pytest.approx(ref.x, abs=1e-5)
+        assert fits[f].rss == pytest.approx(ref.fun, rel=1e-7)
+
+
+def test_fold_that_does_not_converge_takes_the_started_profile_search(monkeypatch):
+    x, w, z = _data(0.3, seed=21, n=300)
+    Xf = np.column_stack([np.ones(x.size), w])
+    train = _fold_rows(x.size, 3, 4)
+    monkeypatch.setattr(bt, "MAX_ITER", 0)  # force the fallback
+    start = np.array([0.1])
+    fits = bt.estimate_fold_powers(z, Xf, x, train, start)
+    for f, rows in enumerate(train):
+        one = bt.estimate_powers(z[rows], Xf[rows], x[rows], start=start, with_se=False)
+        assert fits[f].method == one.method == "profile"
+        # source: the fold-by-fold path (same profile search on the same rows): equal
+        assert fits[f].powers[0] == one.powers[0]
+        grid = np.round(np.arange(-0.4, 0.6 + 1e-9, 1e-3), 6)
+        rss = np.array([_rss(z[rows], Xf[rows], x[rows], a) for a in grid])
+        # source: brute-force profile of the residual sum of squares, step 1e-3
+        assert fits[f].powers[0] == pytest.approx(grid[int(np.argmin(rss))], abs=1e-3)
+
+
+def test_fold_failures_name_the_fold(monkeypatch):
+    rng = np.random.default_rng(6)
+    n = 120
+    x = rng.uniform(1, 5, (n, 3))
+    z = rng.normal(size=n)
+    train = _fold_rows(n, 4, 0)
+    monkeypatch.setattr(bt, "MAX_ITER", 0)
+    with pytest.raises(CandidateFailure, match=r"^fold 3: the Box-Tidwell iteration for 3"):
+        bt.estimate_fold_powers(z, np.ones((n, 1)), x, train, np.ones(3), labels=[3, 4, 1, 2])
+    short = [np.arange(4), *train[1:]]
+    with pytest.raises(CandidateFailure, match=r"^fold 1: 4 rows are too few"):
+        bt.estimate_fold_powers(z, np.ones((n, 1)), x[:, 0], short, np.ones(1))
+
+
+def test_fold_powers_without_an_intercept_use_plain_powers_as_the_one_fold_path():
+    rng = np.random.default_rng(17)
+    n = 250
+    x = rng.uniform(1, 6, n)
+    w = rng.normal(size=n)
+    z = 2.0 * x**0.7 + 0.4 * w + rng.normal(0, 0.05, n)
+    Xf = w[:, None]  # no intercept: the column is x^a itself
+    train = _fold_rows(n, 5, 3)
+    start = bt.estimate_powers(z, Xf, x, boxcox_form=False).powers
+    fits = bt.estimate_fold_powers(z, Xf, x, train, start, boxcox_form=False)
+    for f, rows in enumerate(train):
+        one = bt.estimate_powers(
+            z[rows], Xf[rows], x[rows], start=start, boxcox_form=False, with_se=False
+        )
+        # source: the fold-by-fold estimate on the fold's rows (steps below 1e-6 at the end)
+        assert fits[f].powers[0] == pytest.approx(one.powers[0], abs=1e-5)
+        # source: simulation truth z = 2 x^0.7 + 0.4 w + N(0, 0.05^2)
+        assert fits[f].powers[0] == pytest.approx(0.7, abs=0.05)

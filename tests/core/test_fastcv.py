@@ -79,6 +79,78 @@ def test_fold_errors_equal_exact_refits(kind, family):
         assert res.exact_refits == plan.n_splits  # every fold took the QR path
 
 
+def _bt_rss(z, Xf, x, a):
+    col = np.log(x) if abs(a) < 1e-12 else (x**a - 1.0) / a
+    A = np.column_stack([Xf, col])
+    # source: numpy.linalg.lstsq (SVD) least squares on the training rows
+    b = np.linalg.lstsq(A, z, rcond=None)[0]
+    r = z - A @ b
+    return float(r @ r), b
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear"])
+def test_estimated_power_folds_equal_refits_at_each_folds_own_minimum(kind):
+    from scipy.optimize import minimize_scalar
+    from service.core import boxtidwell as bt
+    from service.core.fastcv import Dynamic
+
+    rng = np.random.default_rng(zlib.crc32(kind.encode()))
+    n = 200
+    X = _designs(kind, rng, n)[:, :3]  # intercept and two fixed columns (collinear: cond ~1e10)
+    x = rng.uniform(1, 9, n)
+    y = np.exp(1.0 + 0.4 * np.sqrt(x) + 0.1 * X[:, 2] + rng.normal(0, 0.1, n))
+    z = np.log(y)
+    plan = make_plan(n, 5, 2, 3)
+    bank = ColumnBank.of_matrix(X, FoldIndex.of(plan, n))
+    start = bt.estimate_powers(z, X, x).powers
+    dyn = Dynamic([3], x[:, None], start)
+    res = Scorer(bank, y, plan, False).score(tr.Transform("log", shift=0.0), [0, 1, 2], None, dyn)
+    assert len(res.fold_powers) == plan.n_splits
+    j = 0
+    for a in plan.assignments:
+        for k in range(plan.folds):
+            te, trn = a == k, a != k
+            ref = minimize_scalar(
+                lambda v, trn=trn: _bt_rss(z[trn], X[trn], x[trn], v)[0],
+                bounds=(start[0] - 0.5, start[0] + 0.5),
+                method="bounded",
+                options={"xatol": 1e-10},
+            )
+            # source: lstsq RSS minimised over the power by scipy.optimize.minimize_scalar
+            # on the fold's training rows; abs 1e-5 (iteration stops at steps below 1e-6)
+            assert res.fold_powers[j][0] == pytest.approx(ref.x, abs=1e-5)
+            _, b = _bt_rss(z[trn], X[trn], x[trn], res.fold_powers[j][0])
+            ap = res.fold_powers[j][0]
+            col = (x**ap - 1.0) / ap
+            e = z[trn] - np.column_stack([X, col])[trn] @ b
+            eta = np.column_stack([X, col])[te] @ b
+            # source: Duan (1983) smearing, written out, at the fold's own power; rel 1e-8
+            mean = np.exp(eta[:, None] + e[None, :]).mean(axis=1)
+            err = math.sqrt(float(np.mean((y[te] - mean) ** 2)))
+            assert res.fold_values[j] == pytest.approx(err, rel=1e-8)
+            j += 1
+    if kind == "collinear":
+        assert res.exact_refits == plan.n_splits  # every fold's final fit took the QR path
+
+
+def test_estimated_powers_that_fail_in_a_fold_fail_the_candidate_naming_the_fold(monkeypatch):
+    from service.core import boxtidwell as bt
+    from service.core.errors import CandidateFailure
+    from service.core.fastcv import Dynamic
+
+    rng = np.random.default_rng(2)
+    n = 150
+    x = rng.uniform(1, 9, (n, 3))
+    y = np.exp(1.0 + 0.2 * np.sqrt(x).sum(axis=1) + rng.normal(0, 0.1, n))
+    plan = make_plan(n, 5, 2, 0)
+    bank = ColumnBank.of_matrix(np.ones((n, 1)), FoldIndex.of(plan, n))
+    monkeypatch.setattr(bt, "MAX_ITER", 0)  # no fold converges; 3 powers have no profile search
+    with pytest.raises(CandidateFailure, match=r"^fold 1: the Box-Tidwell iteration for 3 powers"):
+        Scorer(bank, y, plan, False).score(
+            tr.Transform("log", shift=0.0), [0], None, Dynamic([1, 2, 3], x, np.ones(3))
+        )
+
+
 @pytest.mark.parametrize("family", ["identity", "log"])
 def test_out_of_fold_alone_equals_the_first_repeat_of_a_full_scoring(family):
     """The CV+ block is the first repeat's fits and held-out residuals; computing it alone
@@ -103,3 +175,65 @@ def test_out_of_fold_alone_equals_the_first_repeat_of_a_full_scoring(family):
     a = plan.assignments[0]
     expect = fwd(y) - np.einsum("ij,ij->i", X, sols[a])
     np.testing.assert_allclose(alone.residual, expect, rtol=1e-8, atol=1e-12)
+
+
+def test_estimated_powers_with_a_log_shift_fitted_in_every_fold():
+    from service.core import boxtidwell as bt
+    from service.core.fastcv import Dynamic
+
+    rng = np.random.default_rng(23)
+    n = 180
+    x = rng.uniform(1, 9, n)
+    y = np.round(np.exp(0.5 + 0.6 * np.sqrt(x) + rng.normal(0, 0.3, n)) - 2.0, 1)
+    y[y < 0] = 0.0  # zeros: the log needs a shift, chosen on each training fold
+    plan = make_plan(n, 4, 2, 1)
+    index = FoldIndex.of(plan, n)
+    bank = ColumnBank.of_matrix(np.ones((n, 1)), index)
+    t = tr.Transform("log")
+    z_all = tr.Transform("log", shift=tr.chosen_shift(y)).forward(y)
+    start = bt.estimate_powers(z_all, np.ones((n, 1)), x).powers
+    res = Scorer(bank, y, plan, True).score(t, [0], None, Dynamic([1], x[:, None], start))
+    j = 0
+    for r in range(plan.repeats):
+        for rows in index.train[r]:
+            zk = tr.Transform("log", shift=tr.chosen_shift(y[rows])).forward(y)
+            one = bt.estimate_powers(
+                zk[rows], np.ones((rows.size, 1)), x[rows], start=start, with_se=False
+            )
+            # source: the fold-by-fold estimate on the fold's own log shift and rows
+            assert res.fold_powers[j][0] == pytest.approx(one.powers[0], abs=1e-5)
+            j += 1
+
+
+def test_large_tables_take_the_folds_one_by_one_with_the_same_results(monkeypatch):
+    from service.core import boxtidwell as bt
+    from service.core import fastcv
+    from service.core.fastcv import Dynamic
+
+    rng = np.random.default_rng(29)
+    n = 160
+    X = np.column_stack([np.ones(n), rng.normal(size=n)])
+    x = rng.uniform(1, 9, n)
+    y = np.exp(1.0 + 0.4 * np.sqrt(x) + 0.1 * X[:, 1] + rng.normal(0, 0.1, n))
+    plan = make_plan(n, 5, 2, 0)
+    bank = ColumnBank.of_matrix(np.column_stack([X, np.log(x)]), FoldIndex.of(plan, n))
+    start = bt.estimate_powers(np.log(y), X, x).powers
+
+    def run():
+        sc = Scorer(bank, y, plan, False)
+        powers = sc.score(
+            tr.Transform("log", shift=0.0), [0, 1], None, Dynamic([2], x[:, None], start)
+        )
+        lams = sc.score(tr.Transform("box_cox"), [0, 1, 2])
+        return powers, lams
+
+    batched = run()
+    monkeypatch.setattr(fastcv, "POWER_BATCH_CELLS", 0)
+    monkeypatch.setattr(fastcv, "LAMBDA_BATCH_CELLS", 0)
+    one_by_one = run()
+    # source: the fold-by-fold estimates (estimate_powers / estimate_lambda per fold); they
+    # stop within the iterations' tolerances of the same optima
+    np.testing.assert_allclose(batched[0].fold_powers, one_by_one[0].fold_powers, atol=1e-5)
+    np.testing.assert_allclose(batched[0].fold_values, one_by_one[0].fold_values, rtol=1e-6)
+    np.testing.assert_allclose(batched[1].fold_lambdas, one_by_one[1].fold_lambdas, atol=1e-6)
+    np.testing.assert_allclose(batched[1].fold_values, one_by_one[1].fold_values, rtol=1e-6)

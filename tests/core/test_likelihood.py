@@ -40,3 +40,112 @@ def test_constant_detected_through_either_path():
     x = rng.normal(size=n)
     assert _Projector(np.column_stack([np.ones(n), x]), n).has_const
     assert not _Projector(x[:, None], n).has_const
+
+
+# ------------------------------------------------------------ every training fold at once
+import math  # noqa: E402
+
+from scipy import optimize  # noqa: E402
+from service.core import likelihood as lk  # noqa: E402
+from service.core.folds import make_plan  # noqa: E402
+
+
+@pytest.mark.parametrize(
+    ("f", "lo", "hi"),
+    [
+        (lambda t: -((t - 0.3) ** 2), -1.0, 1.0),
+        (lambda t: math.sin(3 * t) + 0.1 * t, -2.0, 1.0),
+        (lambda t: -(abs(t - 1.1) ** 1.5), 0.0, 3.0),
+        (lambda t: -math.cosh(t - 2.9), 1.0, 3.0),
+        (lambda t: -abs(t), 0.5, 0.5),
+    ],
+)
+def test_stacked_brent_takes_scipys_bounded_steps(f, lo, hi):
+    # three copies of one problem beside two others, so the stacked steps run out of step
+    fs = [f, lambda t: -((t + 0.7) ** 2), f, lambda t: math.cos(t), f]
+    los = np.array([lo, -2.0, lo, -1.0, lo])
+    his = np.array([hi, 2.0, hi, 2.0, hi])
+    x, fx = lk._brent_max(
+        lambda j, v: np.array([fs[int(a)](float(b)) for a, b in zip(j, v, strict=True)]),
+        los,
+        his,
+        xatol=1e-9,
+    )
+    for k in range(5):
+        ref = optimize.minimize_scalar(
+            lambda t, k=k: -fs[k](t),
+            bounds=(los[k], his[k]),
+            method="bounded",
+            options={"xatol": 1e-9},
+        )
+        # source: scipy.optimize.minimize_scalar(method="bounded"): the same points, exactly
+        assert x[k] == ref.x and fx[k] == -ref.fun
+
+
+def _sm_box_cox_llf(y, X, lam):
+    """Profile log-likelihood with the Jacobian from statsmodels OLS of scipy's boxcox(y)."""
+    import statsmodels.api as sm
+    from scipy import stats
+
+    res = sm.OLS(stats.boxcox(y, lmbda=lam), X).fit(method="qr")
+    return float(res.llf + (lam - 1.0) * np.sum(np.log(y)))
+
+
+@pytest.mark.parametrize("near", [None, 0.45, 2.0])
+def test_fold_lambdas_equal_the_profile_maximum_on_each_training_fold(near):
+    rng = np.random.default_rng(9)
+    n = 240
+    X = np.column_stack([np.ones(n), rng.uniform(1, 10, n), rng.normal(size=n)])
+    y = (1 + 0.3 * X[:, 1] + 0.1 * X[:, 2] + rng.normal(0, 0.1, n)) ** 2
+    a = make_plan(n, 5, 1, 4).assignments[0]
+    train = [np.flatnonzero(a != k) for k in range(5)]
+    test = [np.flatnonzero(a == k) for k in range(5)]
+    # X'X of every fold as the column bank gives it: all rows minus the held-out rows
+    grams = np.stack([X.T @ X - X[t].T @ X[t] for t in test])
+    got = lk.fold_lambdas("box_cox", y, X, train, grams, near)
+    for k, rows in enumerate(train):
+        one = lk.estimate_lambda("box_cox", y[rows], X[rows], with_interval=False, near=near)
+        # source: the one-fold path (same grids and Brent steps; the profile's values differ
+        # in rounding only, which moves the argmax of a flat maximum by ~1e-7)
+        assert got[k] == pytest.approx(one.lam, abs=1e-6)
+        ref = optimize.minimize_scalar(
+            lambda t, rows=rows: -_sm_box_cox_llf(y[rows], X[rows], t),
+            bounds=(0.0, 1.0),
+            method="bounded",
+            options={"xatol": 1e-10},
+        )
+        # source: statsmodels OLS llf of scipy.stats.boxcox(y, lambda) plus the Jacobian,
+        # maximised by scipy.optimize.minimize_scalar; abs 1e-4 (the suggested tolerance
+        # for a regression Box-Cox lambda in the public checks)
+        assert got[k] == pytest.approx(ref.x, abs=1e-4)
+
+
+def test_fold_lambdas_leave_an_ill_conditioned_fold_to_the_one_fold_path():
+    import statsmodels.api as sm
+    from service.core import transforms as tr
+    from service.core.bank import ColumnBank, FoldIndex
+    from service.core.fastcv import Scorer
+
+    d = sm.datasets.longley.load_pandas().data
+    y = d["TOTEMP"].to_numpy(float)
+    X = np.column_stack(
+        [np.ones(16), d[["GNPDEFL", "GNP", "UNEMP", "ARMED", "POP", "YEAR"]].to_numpy(float)]
+    )
+    plan = make_plan(16, 5, 1, 0)
+    index = FoldIndex.of(plan, 16)
+    bank = ColumnBank.of_matrix(X, index)
+    S = np.arange(7)
+    grams = bank.train_grams(S, 0)
+    # the scaled X'X of every Longley fold is far above the 1e8 limit: no fold is taken here
+    assert lk.fold_lambdas("box_cox", y, X, index.train[0], grams, 1.47) == [None] * 5
+    res = Scorer(bank, y, plan, False).score(tr.Transform("box_cox"), list(S))
+    near = lk.fit_transform(tr.Transform("box_cox"), y, X).lam  # the scorer's warm start
+    for k, rows in enumerate(index.train[0]):
+        one = lk.estimate_lambda("box_cox", y[rows], X[rows], with_interval=False, near=near)
+        # the one-fold path itself (QR residuals): the same lambda
+        assert res.fold_lambdas[k] == pytest.approx(one.lam, abs=1e-12)
+    # source: /work/shared/CHECKS_PUBLIC.md, Longley: per-fold lambda with
+    # KFold(5, shuffle=True, random_state=0) = [2.7777, 2.0515, -0.73075, 1.2683, -0.34607]
+    np.testing.assert_allclose(
+        res.fold_lambdas, [2.7777, 2.0515, -0.73075, 1.2683, -0.34607], atol=2e-3
+    )
