@@ -140,7 +140,8 @@ def _shown(points: dict, cap: int, must: np.ndarray, tails: bool = False) -> np.
     n = len(points.get("x") or [])
     if n <= cap:
         return np.arange(n)
-    rows = np.asarray(points.get("row") or np.arange(1, n + 1), dtype=np.int64)
+    given = points.get("row")
+    rows = np.asarray(np.arange(1, n + 1) if given is None else given, dtype=np.int64)
     chosen = np.isin(rows, must)
     if tails:
         order = np.argsort(np.asarray(points["x"], dtype=float), kind="stable")
