@@ -5,6 +5,7 @@ limits, options, the search (one table or one per group), trust, and the finishi
 from __future__ import annotations
 
 from collections.abc import Callable, Iterable
+from dataclasses import replace
 from typing import Any
 
 from fastapi import Request
@@ -16,7 +17,7 @@ from ..core.model import sign_all
 from ..selection.cautions import selection_cautions
 from ..selection.deadline import Deadline
 from ..selection.groups import run_grouped
-from ..selection.search import run_selection
+from ..selection.search import select
 from ..selection.search_setup import SearchOptions
 from ..settings import get_settings
 from ..version import __version__
@@ -106,11 +107,14 @@ def run_selection_request(
     stop=None,
     group_mapper=None,
     deadline: Deadline | None = None,
+    per_group_time_limit: bool = False,
 ) -> dict:
     """The selection body for a validated request.  ``group_mapper(fn, items)``, when given,
     runs the groups of a ``group_by`` request (the command line's Dask cluster), in order.
     The request's time limit starts here (or at ``deadline``, a caller's clock started
-    earlier) and bounds every part of its work."""
+    earlier) and bounds every part of its work; with ``per_group_time_limit`` (the command
+    line's ``--group-by``: a month of segments, not one request) it counts for each group
+    from that group's start instead."""
     if deadline is None:
         deadline = Deadline.after(time_limit(req))
     data = req.data.as_dict()
@@ -172,11 +176,14 @@ def run_selection_request(
 
             mapper = serial_with_progress
 
+        if per_group_time_limit:
+            opts = replace(opts, deadline=None)
         body = run_grouped(
             prep, opts, __version__, finish=lambda b: finish_body(b, opts), mapper=mapper
         )
         return finish_body(body, opts)
-    body = run_selection(prep, opts, __version__)
+    result = select(prep, opts, __version__)
+    body = result.body
     if req.trust.stability or req.trust.optimism:
         from ..selection.trust import assess_trust
 
@@ -188,7 +195,7 @@ def run_selection_request(
             req.trust.stability,
             req.trust.optimism,
             req.trust.resamples,
-            selection=body,
+            selection=result,
         )
     return finish_body(body, opts)
 

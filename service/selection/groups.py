@@ -13,7 +13,7 @@ from ..core.data import Prepared, split_groups
 from ..core.errors import BestscaleError, BudgetError
 from ..core.numbers import count_of
 from .deadline import Deadline
-from .search import run_selection
+from .search import select
 from .search_setup import SearchOptions
 from .trust import assess_trust
 
@@ -37,12 +37,14 @@ def run_grouped(
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
-    pool's map to spread the groups over workers.  A group that cannot be modelled
+    pool's map to spread the groups over workers.  The groups share ``opts.deadline``
+    (an HTTP request's); when it is None each group's time limit counts from its own start.  A group that cannot be modelled
     gets a ``problem`` entry with its reason while the others go on.
     """
     t0 = time.perf_counter()
-    # one deadline for the whole request, not one per group
-    deadline = opts.clock()
+    # the request's one deadline, shared by its groups; without one (a batch of segments)
+    # every group starts its own from opts.time_limit_s
+    deadline = opts.deadline
     parts = group_parts(prep)
     names = list(parts)
     tasks = [GroupTask(sub, opts, service_version, deadline=deadline) for sub in parts.values()]
@@ -133,7 +135,8 @@ def select_group(task: GroupTask) -> dict[str, Any]:
         }
     opts = replace(opts, deadline=deadline)
     try:
-        body = run_selection(sub, opts, service_version)
+        result = select(sub, opts, service_version)
+        body = result.body
         if trust is not None and (trust.stability or trust.optimism):
             stability, optimism = trust.stability, trust.optimism
             resamples, outer_folds = trust.resamples, trust.outer_folds
@@ -145,14 +148,9 @@ def select_group(task: GroupTask) -> dict[str, Any]:
                 stability,
                 optimism,
                 resamples,
-                selection=body,
+                selection=result,
                 outer_folds=outer_folds,
             )
     except BestscaleError as exc:
         return {"problem": problem_of(exc)}
-    body.pop("_scored", None)
-    body.pop("_plan", None)
-    body["ranking"] = [
-        {k: v for k, v in e.items() if not k.startswith("_")} for e in body["ranking"]
-    ]
     return body

@@ -12,8 +12,9 @@ from typing import Any
 from ..core.condition_rules import condition_inputs
 from ..core.data import Prepared, split_groups
 from ..core.errors import CandidateFailure
+from ..core.fitting import OLSFit
 from ..core.plots import diagnostic_plots
-from ..core.spec import Specification
+from ..core.spec import Design, Specification
 from .deadline import Deadline
 from .entries import fitted_model
 
@@ -90,6 +91,14 @@ def specification_plots(
     """Plot data of one specification fitted on all of ``prep``'s rows (what
     ``/v1/diagnostics`` returns); raises :class:`CandidateFailure` when it cannot be fitted."""
     _, design, fit, _ = fitted_model(spec, prep)
+    return fit_plots(design, fit, prep, alpha, seed, max_points)
+
+
+def fit_plots(
+    design: Design, fit: OLSFit, prep: Prepared, alpha: float, seed: int, max_points: int
+) -> dict[str, Any]:
+    """Plot data of an all-rows fit already made (an :class:`.entries.Entry`'s design and
+    fit), so a caller that has the entry does not fit it again."""
     inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, alpha)
     return diagnostic_plots(inp, max_points=max_points, seed=seed)
 

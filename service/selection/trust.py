@@ -27,7 +27,7 @@ verdicts assessed once on all rows.
 error estimation when using cross-validation for model selection", BMC
 Bioinformatics 7:91): the outer folds are the search's own partition (repeat 0 of
 its plan when the outer fold count equals the search's); inside every outer training
-part the whole search (:func:`search.run_selection`, with its Box-Cox rung,
+part the whole search (:func:`search.select`, with its Box-Cox rung,
 one-standard-error band and condition re-ordering) is run again, and the
 specification it selects is refitted on that training part and scored on the
 held-out outer fold on the original response scale. The pooled held-out error
@@ -74,7 +74,7 @@ from ..core.folds import CVPlan, make_plan
 from ..core.spec import Specification, SpecKey, build_design
 from .deadline import Deadline
 from .entries import fitted_model
-from .search import rank, run_selection
+from .search import Selection, rank, select
 from .search_setup import Scored, SearchOptions
 
 DEFAULT_RESAMPLES = 20
@@ -436,11 +436,12 @@ def _inner_search(task: tuple[Prepared, SearchOptions, str, Deadline]) -> dict[s
     if deadline.passed():
         return {"problem": "not run: the time limit was reached", "not_run": True}
     try:
-        body = run_selection(sub, replace(opts, deadline=deadline), service_version)
+        result = select(sub, replace(opts, deadline=deadline), service_version)
     except BestscaleError as exc:
         return {"problem": exc.detail}
+    body = result.body
     key = scale_key(body["ranking"][0]["specification"])
-    chosen = _find(body["_scored"], key)
+    chosen = _find(result.scored, key)
     if chosen is None:  # the ranking entry always comes from the scored list
         return {"problem": "the selected specification was not among the scored candidates"}
     return {"spec": chosen.spec, "complete": bool(body["search"]["complete"])}
@@ -584,7 +585,7 @@ def assess_trust(
     optimism: bool,
     resamples: int | None = None,
     *,
-    selection: dict[str, Any] | None = None,
+    selection: Selection | None = None,
     outer_folds: int | None = None,
     inner_folds: int = DEFAULT_INNER_FOLDS,
     time_limit_s: float | None = None,
@@ -593,14 +594,13 @@ def assess_trust(
 ) -> dict[str, Any]:
     """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
 
-    ``selection`` is the body :func:`run_selection` returned for ``prep`` and
-    ``opts`` (its private ``_scored`` list is reused; without it the search is
-    run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
+    ``selection`` is what :func:`search.select` returned for ``prep`` and ``opts`` (its
+    scored candidates are re-ranked; without it the search is run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
     resamples measure stability; ``outer_folds`` (default: the search's folds)
     and ``inner_folds`` shape the nested cross-validation.  Every part ends by the
     request's deadline (``opts.deadline``; else ``opts.time_limit_s`` from this call),
-    or sooner with ``time_limit_s``; what the deadline cut short is stated (``complete``) and warned about.  ``mapper(fn, items)`` may
-    spread the resamples (in ``chunks`` parts) and the outer folds over worker
+    or sooner with ``time_limit_s``; what the deadline cut short is stated (``complete``)
+    and warned about.  ``mapper(fn, items)`` may spread the resamples (in ``chunks`` parts) and the outer folds over worker
     processes; results do not depend on it.
     """
     t0 = time.perf_counter()
@@ -620,10 +620,9 @@ def assess_trust(
     # the request's one deadline (the search already spent part of it), or sooner when
     # this call has a limit of its own
     end = opts.clock().sooner(time_limit_s)
-    scored = selection.get("_scored") if selection is not None else None
-    if scored is None:
-        selection = run_selection(prep, replace(opts, top=1, incumbent=None), service_version)
-        scored = selection["_scored"]
+    if selection is None:
+        selection = select(prep, replace(opts, top=1, incumbent=None), service_version)
+    scored = selection.scored
     winner = _find(scored, scale_key(winner_spec))
     if winner is None:
         raise ValueError("winner_spec is not one of the scored candidates")
