@@ -431,14 +431,6 @@ def _empty(ax: _Axes, panel: dict) -> None:
 
 
 # ---------------------------------------------------------------------------- panels
-@dataclass
-class _Drawn:
-    """What a panel's drawing function hands back: rows drawn and an extra note."""
-
-    drawn: int = 0
-    extra: str = ""
-
-
 def _xy(pts: dict, keep: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return (
         np.asarray(pts.get("x") or [], dtype=float)[keep],
@@ -446,7 +438,7 @@ def _xy(pts: dict, keep: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     )
 
 
-def _draw_straight(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn:
+def _draw_straight(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     pts = panel.get("points") or {}
     x, y = _xy(pts, keep)
     smooth = panel.get("smoother") or {}
@@ -458,10 +450,10 @@ def _draw_straight(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn
     if _curve(ax, smooth):
         entries.append(("line", SMOOTH, None, "LOWESS smoother"))
     _legend(ax, entries)
-    return _Drawn(drawn, _labels_note(_place_labels_after_note(ax, panel, drawn, gid)))
+    _labels_and_note(ax, panel, drawn, gid)
 
 
-def _draw_spread(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn:
+def _draw_spread(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     pts = panel.get("points") or {}
     x, y = _xy(pts, keep)
     smooth = panel.get("smoother") or {}
@@ -476,10 +468,10 @@ def _draw_spread(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn:
     if _curve(ax, smooth):
         entries.append(("line", SMOOTH, None, "LOWESS smoother"))
     _legend(ax, entries, "right")
-    return _Drawn(drawn, _labels_note(_place_labels_after_note(ax, panel, drawn, gid)))
+    _labels_and_note(ax, panel, drawn, gid)
 
 
-def _draw_normal(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn:
+def _draw_normal(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     """Departures from the normal quantiles: a normal sample lies along 0 inside the band."""
     pts = panel.get("points") or {}
     x, y = _xy(pts, keep)
@@ -514,11 +506,10 @@ def _draw_normal(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn:
         entries.append(("line", SMOOTH, None, "line through the quartiles"))
     drawn = _points(ax, x, y - x)
     _legend(ax, entries)
-    skipped = _place_labels_after_note(ax, panel, drawn, gid, minus_x=True)
-    return _Drawn(drawn, _labels_note(skipped))
+    _labels_and_note(ax, panel, drawn, gid, minus_x=True)
 
 
-def _draw_influence(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn:
+def _draw_influence(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     pts = panel.get("points") or {}
     x, y = _xy(pts, keep)
     flag = np.asarray(pts.get("flag") or [""] * len(pts.get("x") or []))[keep]
@@ -562,11 +553,10 @@ def _draw_influence(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Draw
             f' stroke-width="{num(10 * size)}" stroke-linecap="round" d="{dots(px, py)}"/>'
         )
     _legend(ax, entries, "right")
-    skipped = _place_labels_after_note(ax, panel, len(x), gid)
-    return _Drawn(len(x), _labels_note(skipped))
+    _labels_and_note(ax, panel, len(x), gid)
 
 
-def _draw_predictor(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Drawn:
+def _draw_predictor(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     pts = panel.get("points") or {}
     x, y = _xy(pts, keep)
     comp = panel.get("component") or {}
@@ -581,12 +571,9 @@ def _draw_predictor(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> _Draw
         entries.append(("line", SMOOTH, None, "LOWESS smoother"))
     _legend(ax, entries)
     _note(ax, _rows_note(panel, drawn))
-    return _Drawn(drawn, "")
 
 
-def _place_labels_after_note(
-    ax: _Axes, panel: dict, drawn: int, gid: str, minus_x: bool = False
-) -> list[int]:
+def _labels_and_note(ax: _Axes, panel: dict, drawn: int, gid: str, minus_x: bool = False) -> None:
     """Reserve the note's place first (its final text is known only after the labels, so the
     longest possible note is reserved), place the labels, then write the note."""
     labels = panel.get("labels") or []
@@ -597,7 +584,6 @@ def _place_labels_after_note(
     skipped = _place_labels(ax, labels, gid, minus_x)
     del ax.taken[mark]  # the reserved place; the real note follows
     _note(ax, rows_note + _labels_note(skipped))
-    return skipped
 
 
 def _note_box_only(ax: _Axes, note: str) -> None:
@@ -608,7 +594,7 @@ def _note_box_only(ax: _Axes, note: str) -> None:
     ax.taken.append((x1 - width, y1 - height, x1, y1))
 
 
-Draw = Callable[[_Axes, dict, np.ndarray, str], _Drawn]
+Draw = Callable[[_Axes, dict, np.ndarray, str], None]
 
 _TOP: tuple[tuple[str, Draw], ...] = (
     ("residuals_fitted", _draw_straight),

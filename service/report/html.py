@@ -185,7 +185,7 @@ def _figure(plots, entry: dict, prefix: str) -> str:
         return f'<p class="note">No figure: {esc(plots)}.</p>'
     try:
         svg = render_figure(plots, "svg", title=entry["equation"])
-    except ValueError as exc:  # e.g. nothing to draw, or text matplotlib cannot lay out
+    except ValueError as exc:  # e.g. nothing to draw
         last = (str(exc).strip().splitlines() or ["unknown reason"])[-1]
         return f'<p class="note">No figure: it could not be drawn ({esc(last)}).</p>'
     n_partial = len(plots.get("partial_residuals") or [])
