@@ -567,7 +567,7 @@ def test_the_time_limit_applies_to_each_segment_not_to_the_whole_job(tmp_path):
     req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
     opts = selection_options(req)
     assert opts.deadline is not None
-    stale = replace(opts, deadline=Deadline(time.time() - 1.0, opts.time_limit_s))
+    stale = replace(opts, deadline=Deadline(time.monotonic() - 1.0, opts.time_limit_s))
     prep = prepare(
         {"columns": table}, "repair_cost", body["predictors"], ["soil"], None, "district"
     )

@@ -171,7 +171,9 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
     )
     north = split_groups(prep)["north"]
-    late = select_group(GroupTask(north, opts, "test", deadline=Deadline(time.time() - 1.0, 60)))
+    late = select_group(
+        GroupTask(north, opts, "test", deadline=Deadline(time.monotonic() - 1.0, 60))
+    )
     assert late["problem"]["status"] == 503 and "ran out" in late["problem"]["detail"]
     assert (
         "time limit of 60 s" in late["problem"]["detail"]
