@@ -13,35 +13,55 @@ question, each titled with the question and a one-line reading of what to look f
   the predictor as sent, with its fitted effect).
 
 Every panel states how many of the rows it shows, and a footer states how rows are numbered
-and the flag rule.  Labels of flagged rows are placed so they never overlap; a row whose label
-finds no free place is named in the panel's note instead.
+and the flag rule.  Labels of flagged rows are placed so they never overlap each other, the
+legend or the note; a row whose label finds no free place is named in the panel's note.
 
-Thread safety: each call builds its own :class:`matplotlib.figure.Figure` and canvas (no
-pyplot, no global figure manager) and passes every style explicitly.  The one global setting
-used, ``svg.fonttype = "none"`` (keep text as searchable ``<text>`` elements instead of glyph
-outlines), can only be set through ``matplotlib.rcParams``; it is set inside ``rc_context``
-under a module lock so concurrent SVG renders do not interleave.
+The SVG is written directly (:mod:`.svg`): text stays ``<text>``, each layer of points is one
+``<path>``, and the same plot data give the same bytes.  The PNG is that SVG rasterised by
+resvg (``resvg_py``) with the DejaVu Sans files matplotlib ships, so both formats show one
+drawing and no system font is needed.
+
+**Thinning what is drawn.**  A panel draws every row it is handed up to
+:data:`PANEL_MAX_POINTS` (2000) points, and a figure at most :data:`FIGURE_MAX_POINTS` marks
+in all (the influence strip counts twice: stems and dots), so a figure stays near 150 KB
+whatever the number of rows.  Beyond its share a panel keeps, in this order: the flagged rows
+(every labelled row, then the rows flagged in the influence panel by decreasing Cook's
+distance, at most ``MAX_FLAGGED_ROWS`` in all), in the normal-quantile panel the tenth of its
+share at each end, and then the rows that come first in a fixed order of row numbers
+(``row * 2654435761 mod 2**32``, Knuth's multiplicative hash), so every panel keeps the same
+rows and the same data always give the same drawing.  The panel's note says how many rows
+it shows out of how many.
 """
 
 from __future__ import annotations
 
-import io
 import math
-import textwrap
-import threading
-from typing import Any
+import os
+from collections.abc import Callable
+from dataclasses import dataclass, field
 
-import matplotlib
 import numpy as np
-from matplotlib.artist import Artist
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.backends.backend_svg import FigureCanvasSVG
-from matplotlib.figure import Figure
-from matplotlib.lines import Line2D
-from matplotlib.patches import Patch
-from matplotlib.typing import RcKeyType
 
+from ..core.conditions import MAX_FLAGGED_ROWS
 from .safetext import visible, visible_all
+from .svg import (
+    ASCENT,
+    DESCENT,
+    FONT_FAMILY,
+    attrs,
+    dots,
+    esc,
+    fit_line,
+    lines_of_text,
+    num,
+    polyline,
+    stems,
+    text,
+    text_width,
+    tick_labels,
+    ticks,
+    wrap,
+)
 
 #: at most this many predictor panels are drawn
 MAX_PARTIAL_PANELS = 6
@@ -49,9 +69,10 @@ MAX_PARTIAL_PANELS = 6
 MAX_LABELS = 5
 #: panels per row
 COLUMNS = 3
-
-_SVG_LOCK = threading.Lock()
-DPI = 100
+#: points a panel draws before it thins (every row up to this many)
+PANEL_MAX_POINTS = 2000
+#: marks a figure draws in all (the influence strip counts twice: stems and dots)
+FIGURE_MAX_POINTS = 12000
 
 INK = "#22303c"  # text and axes
 MUTED = "#6b7885"  # readings, captions, reference lines
@@ -64,184 +85,330 @@ FLAG_OTHER = "#d69e2e"  # flagged for another reason only
 QUIET = "#a9b4be"  # rows not flagged
 GRID = "#edf0f2"
 
-# layout, in inches
-PANEL_W, PANEL_H, STRIP_H = 5.0, 3.5, 2.4
-HEAD_H, GAP_H, FOOT_H, TITLE_H = 0.75, 0.95, 0.45, 0.45
-LEFT, RIGHT = 0.75, 0.25
-LABEL_PT = 8
+# layout, in user units (pixels at the figure's own size, 100 per inch)
+WIDTH = 1600
+PLOT_W, COL_GAP, LEFT = 420.0, 120.0, 76.0
+PANEL_H, STRIP_H = 330.0, 220.0
+TOP, AXIS_H, ROW_GAP, BOTTOM = 14.0, 44.0, 24.0, 12.0
+# font sizes and line heights
+FIG_TITLE, FIG_LEAD = 18.0, 23.0
+TITLE, TITLE_LEAD = 15.0, 19.0
+READING, READING_LEAD = 10.5, 13.0
+AXIS, TICK, LEGEND, NOTE, LABEL, FOOT = 12.0, 10.5, 9.5, 9.0, 11.0, 10.5
+# strokes: widths and dashes in pixels
+THIN, REF_W, SMOOTH_W, STEM_W = 0.8, 1.4, 2.5, 1.5
+DASHED, DOTTED = "5.6 4.2", "1.8 3.6"
+CIRCLE_R, CIRCLE_W = 4.7, 1.5
 
 
-def _rows_note(panel: dict, shown: int) -> str:
-    total = panel.get("n_total") or shown
-    if shown >= total:
-        return f"all {total} rows"
-    return f"showing {shown} of {total} rows (seeded sample; flagged rows always shown)"
+def _marker(count: int) -> tuple[float, float, int]:
+    """(dot diameter in pixels, opacity, layers) that keep ``count`` points readable; points
+    are dealt round-robin to the layers so overlaps of different layers still darken."""
+    if count <= 200:
+        return 5.6, 0.75, 1
+    if count <= 1000:
+        return 4.2, 0.5, 2
+    return 2.8, 0.3, 4
 
 
-def _head(ax, panel: dict, width_in: float) -> None:
-    """Question as the title, the reading as a muted line below it."""
-    chars = max(int(width_in * DPI / 5.2), 30)
-    reading = textwrap.fill(panel.get("reading", ""), chars)
-    lines = reading.count("\n") + 1 if reading else 0
-    ax.set_title(
-        panel.get("title", ""),
-        loc="left",
-        fontsize=11,
-        fontweight="bold",
-        color=INK,
-        parse_math=False,
-        pad=6 + 10 * lines,
-    )
-    if reading:
-        ax.text(
-            0.0,
-            1.02,
-            reading,
-            transform=ax.transAxes,
-            ha="left",
-            va="bottom",
-            fontsize=7.5,
-            color=MUTED,
-            parse_math=False,
+# ------------------------------------------------------------------------ thinning
+def _hash_order(rows: np.ndarray) -> np.ndarray:
+    """Knuth's multiplicative hash of row numbers: a fixed order that looks random."""
+    return (rows.astype(np.uint64) * np.uint64(2654435761)) % np.uint64(2**32)
+
+
+def _must_keep(plots: dict, panels: list[dict]) -> np.ndarray:
+    """Rows every panel draws: labelled rows, then rows flagged in the influence panel by
+    decreasing Cook's distance; at most MAX_FLAGGED_ROWS."""
+    rows: list[int] = []
+    for panel in panels:
+        rows += [int(lab["row"]) for lab in panel.get("labels") or [] if "row" in lab]
+    pts = (plots.get("influence") or {}).get("points") or {}
+    flags = pts.get("flag") or []
+    if flags and len(flags) == len(pts.get("row") or []):
+        y = np.asarray(pts["y"], dtype=float)
+        r = np.asarray(pts["row"])
+        hit = np.flatnonzero(np.asarray(flags) != "")
+        hit = hit[np.lexsort((r[hit], -y[hit]))]
+        rows += [int(v) for v in r[hit]]
+    unique = list(dict.fromkeys(rows))[:MAX_FLAGGED_ROWS]
+    return np.asarray(unique, dtype=np.int64)
+
+
+def _shown(points: dict, cap: int, must: np.ndarray, tails: bool = False) -> np.ndarray:
+    """Indices of the points a panel draws (see the module's thinning rule)."""
+    n = len(points.get("x") or [])
+    if n <= cap:
+        return np.arange(n)
+    given = points.get("row")
+    rows = np.asarray(np.arange(1, n + 1) if given is None else given, dtype=np.int64)
+    chosen = np.isin(rows, must)
+    if tails:
+        order = np.argsort(np.asarray(points["x"], dtype=float), kind="stable")
+        t = max(cap // 10, 1)
+        chosen[order[:t]] = True
+        chosen[order[-t:]] = True
+    room = cap - int(chosen.sum())
+    if room > 0:
+        free = np.flatnonzero(~chosen)
+        chosen[free[np.argsort(_hash_order(rows[free]), kind="stable")[:room]]] = True
+    return np.flatnonzero(chosen)
+
+
+# ------------------------------------------------------------------------- one panel
+Box = tuple[float, float, float, float]  # x0, y0, x1, y1 (y grows downwards)
+
+
+def _overlaps(a: Box, b: Box) -> bool:
+    return not (a[2] <= b[0] or b[2] <= a[0] or a[3] <= b[1] or b[3] <= a[1])
+
+
+@dataclass
+class _Axes:
+    """The plot area of one panel: pixel frame, data limits and what is drawn in it."""
+
+    x0: float
+    y0: float
+    w: float
+    h: float
+    xlim: tuple[float, float] = (0.0, 1.0)
+    ylim: tuple[float, float] = (0.0, 1.0)
+    parts: list[str] = field(default_factory=list)
+    taken: list[Box] = field(default_factory=list)  # legend, note and labels placed so far
+
+    def px(self, x) -> np.ndarray:
+        lo, hi = self.xlim
+        return self.x0 + (np.asarray(x, dtype=float) - lo) * (self.w / (hi - lo))
+
+    def py(self, y) -> np.ndarray:
+        lo, hi = self.ylim
+        return self.y0 + self.h - (np.asarray(y, dtype=float) - lo) * (self.h / (hi - lo))
+
+    def limits(
+        self,
+        xs: list,
+        ys: list,
+        y_floor: float | None = None,
+        x_exact: bool = False,
+    ) -> None:
+        """Data limits over every series, widened by 5% (matplotlib's default margins)."""
+        self.xlim = _span(xs, exact=x_exact)
+        self.ylim = _span(ys, floor=y_floor)
+
+    def inside(self, box: Box) -> bool:
+        return (
+            box[0] >= self.x0
+            and box[2] <= self.x0 + self.w
+            and box[1] >= self.y0
+            and box[3] <= self.y0 + self.h
         )
 
 
-def _style(ax, panel: dict, x_label: str | None = None, y_label: str | None = None) -> None:
-    ax.set_xlabel(x_label or panel.get("x_label", ""), fontsize=8.5, color=INK, parse_math=False)
-    ax.set_ylabel(y_label or panel.get("y_label", ""), fontsize=8.5, color=INK, parse_math=False)
-    ax.tick_params(labelsize=7.5, colors=INK, length=3)
-    ax.grid(True, color=GRID, linewidth=0.8)
-    ax.set_axisbelow(True)
-    for side in ("top", "right"):
-        ax.spines[side].set_visible(False)
-    for side in ("left", "bottom"):
-        ax.spines[side].set_color(MUTED)
+def _span(series: list, floor: float | None = None, exact: bool = False) -> tuple[float, float]:
+    values = [np.asarray(s, dtype=float).ravel() for s in series if s is not None and len(s)]
+    data = np.concatenate(values) if values else np.array([0.0, 1.0])
+    data = data[np.isfinite(data)]
+    if data.size == 0:
+        data = np.array([0.0, 1.0])
+    lo, hi = float(data.min()), float(data.max())
+    if exact:
+        return lo, hi
+    if hi - lo <= 1e-12 * max(abs(lo), abs(hi), 1e-300):
+        pad = abs(lo) * 0.1 if lo else 1.0
+        lo, hi = lo - pad, hi + pad
+    else:
+        pad = 0.05 * (hi - lo)
+        lo, hi = lo - pad, hi + pad
+    if floor is not None:
+        lo = floor
+        hi = max(hi, floor + 1e-12)
+    return lo, hi
 
 
-def _marker(count: int) -> tuple[float, float]:
-    """(area, alpha) that keep a scatter of ``count`` points readable."""
-    if count <= 200:
-        return 16.0, 0.75
-    if count <= 1000:
-        return 9.0, 0.5
-    return 4.0, 0.3
+def _frame(ax: _Axes, panel: dict, integer_x: bool = False, empty: bool = False) -> None:
+    """Grid, left and bottom spines, ticks, tick labels and axis titles."""
+    x1, y1 = ax.x0 + ax.w, ax.y0 + ax.h
+    ylabel_x = ax.x0 - 10.0
+    if not empty:
+        xt = ticks(*ax.xlim, max(3, min(10, int(ax.w / 55))), integer=integer_x)
+        yt = ticks(*ax.ylim, max(3, min(8, int(ax.h / 45))))
+        gx, gy = ax.px(xt), ax.py(yt)
+        grid = "".join(f"M{num(v)} {num(ax.y0)}V{num(y1)}" for v in gx)
+        grid += "".join(f"M{num(ax.x0)} {num(v)}H{num(x1)}" for v in gy)
+        ax.parts.insert(0, f'<path fill="none" stroke="{GRID}" stroke-width="{THIN}" d="{grid}"/>')
+        marks = "".join(f"M{num(v)} {num(y1)}v3" for v in gx)
+        marks += "".join(f"M{num(ax.x0)} {num(v)}h-3" for v in gy)
+        ax.parts.append(f'<path fill="none" stroke="{INK}" stroke-width="{THIN}" d="{marks}"/>')
+        base = y1 + 4 + ASCENT * TICK
+        ax.parts += [
+            text(float(v), base, s, TICK, INK, "middle")
+            for v, s in zip(gx, tick_labels(xt), strict=True)
+        ]
+        ylabels = tick_labels(yt)
+        shift = (ASCENT - DESCENT) * TICK / 2
+        ax.parts += [
+            text(ax.x0 - 5, float(v) + shift, s, TICK, INK, "end")
+            for v, s in zip(gy, ylabels, strict=True)
+        ]
+        widest = max((text_width(s, TICK) for s in ylabels), default=0.0)
+        ylabel_x = ax.x0 - 5 - widest - 6
+    spine = f"M{num(ax.x0)} {num(ax.y0)}V{num(y1)}H{num(x1)}"
+    ax.parts.append(f'<path fill="none" stroke="{MUTED}" stroke-width="{THIN}" d="{spine}"/>')
+    xlabel, xsize = fit_line(str(panel.get("x_label", "")), ax.w, AXIS, 7.0)
+    ax.parts.append(text(ax.x0 + ax.w / 2, y1 + AXIS_H - 8, xlabel, xsize, INK, "middle"))
+    ylabel, ysize = fit_line(_y_label(panel), ax.h, AXIS, 7.0)
+    ax.parts.append(text(ylabel_x, ax.y0 + ax.h / 2, ylabel, ysize, INK, "middle", rotate=True))
 
 
-def _scatter(ax, x, y, label: str | None = None) -> None:
-    if len(x):
-        area, alpha = _marker(len(x))
-        ax.scatter(x, y, s=area, color=POINT, alpha=alpha, edgecolors="none", zorder=2, label=label)
+def _y_label(panel: dict) -> str:
+    if panel.get("question") == "normal":
+        return "standardised residual − normal quantile"
+    return str(panel.get("y_label", ""))
 
 
-def _curve(ax, curve: dict | None, label: str, color: str = SMOOTH, dy=None) -> None:
-    if curve and curve.get("x"):
-        y = np.asarray(curve["y"], dtype=float)
-        if dy is not None:
-            y = y - np.asarray(curve["x"], dtype=float)
-        ax.plot(curve["x"], y, color=color, linewidth=1.8, label=label, zorder=3)
+def _points(ax: _Axes, x, y) -> int:
+    """One path of dots per layer; returns the number of points drawn."""
+    if len(x) == 0:
+        return 0
+    size, alpha, layers = _marker(len(x))
+    px, py = ax.px(x), ax.py(y)
+    order = np.argsort(px, kind="stable")  # short relative moves
+    for k in range(layers):
+        sel = order[k::layers]
+        ax.parts.append(
+            f'<path class="pts" transform="scale(.1)" fill="none" stroke="{POINT}"'
+            f' stroke-opacity="{alpha}" stroke-width="{num(10 * size)}" stroke-linecap="round"'
+            f' d="{dots(px[sel], py[sel])}"/>'
+        )
+    return len(x)
 
 
-def _note(ax, text: str) -> None:
-    ax.text(
-        0.99,
-        0.01,
-        text,
-        transform=ax.transAxes,
-        ha="right",
-        va="bottom",
-        fontsize=6.5,
-        color=MUTED,
-        zorder=6,
-        parse_math=False,
-        bbox={"boxstyle": "square,pad=0.15", "facecolor": "white", "edgecolor": "none"},
+def _line(
+    ax: _Axes, x, y, colour: str, width: float, dash: str | None = None, close: bool = False
+) -> None:
+    d = polyline(ax.px(x), ax.py(y), close=close)
+    if not d:
+        return
+    if close:
+        ax.parts.append(f'<path transform="scale(.1)" fill="{colour}" stroke="none" d="{d}"/>')
+        return
+    dash10 = " ".join(num(10 * float(v)) for v in dash.split()) if dash else None
+    ax.parts.append(
+        f'<path transform="scale(.1)" fill="none" stroke="{colour}"'
+        f' stroke-width="{num(10 * width)}" stroke-linejoin="round"'
+        f'{attrs(stroke_dasharray=dash10)} d="{d}"/>'
     )
 
 
-def _empty(ax, panel: dict) -> None:
-    ax.set_xticks([])
-    ax.set_yticks([])
-    ax.text(
-        0.5,
-        0.5,
-        textwrap.fill(str(panel.get("note") or "nothing to show"), 50),
-        transform=ax.transAxes,
-        parse_math=False,
-        ha="center",
-        va="center",
-        fontsize=9,
-        color=MUTED,
+def _hline(ax: _Axes, y: float, colour: str, width: float, dash: str | None) -> None:
+    py = float(ax.py(y))
+    ax.parts.append(
+        f'<path fill="none" stroke="{colour}" stroke-width="{num(width)}"'
+        f'{attrs(stroke_dasharray=dash)} d="M{num(ax.x0)} {num(py)}H{num(ax.x0 + ax.w)}"/>'
     )
 
 
-def _legend(ax, handles=None, loc: str = "upper left") -> None:
-    kw = {"handles": handles} if handles else {}
-    if handles or ax.get_legend_handles_labels()[0]:
-        ax.legend(loc=loc, fontsize=6.8, frameon=True, framealpha=0.85, edgecolor="none", **kw)
+def _curve(ax: _Axes, curve: dict | None, colour: str = SMOOTH, minus_x: bool = False) -> bool:
+    if not curve or not curve.get("x"):
+        return False
+    x = np.asarray(curve["x"], dtype=float)
+    y = np.asarray(curve["y"], dtype=float)
+    _line(ax, x, y - x if minus_x else y, colour, SMOOTH_W)
+    return True
 
 
-# ------------------------------------------------------------------ labels without overlap
-def _label_size(text: str) -> tuple[float, float]:
-    """Approximate extent of a label in display pixels (DejaVu Sans digits are ~0.64 em)."""
-    px = LABEL_PT * DPI / 72.0
-    return 0.64 * px * len(text) + 2.0, 1.25 * px
+# legend entries: (swatch, colour, dash, label); swatch is "line", "band" or "none"
+Entry = tuple[str, str, str | None, str]
+
+
+def _legend(ax: _Axes, entries: list[Entry], where: str = "left") -> None:
+    if not entries:
+        return
+    lead, pad, swatch = LEGEND * 1.4, 5.0, 20.0
+    width = pad * 2 + swatch + 6 + max(text_width(e[3], LEGEND) for e in entries)
+    height = pad * 2 + lead * len(entries) - (lead - LEGEND * (ASCENT + DESCENT))
+    x0 = ax.x0 + 6 if where == "left" else ax.x0 + ax.w - 6 - width
+    y0 = ax.y0 + 6
+    ax.taken.append((x0, y0, x0 + width, y0 + height))
+    out = [
+        f'<rect x="{num(x0)}" y="{num(y0)}" width="{num(width)}" height="{num(height)}"'
+        ' fill="#fff" fill-opacity="0.85"/>'
+    ]
+    for k, (kind, colour, dash, label) in enumerate(entries):
+        base = y0 + pad + k * lead + ASCENT * LEGEND
+        mid = base - 0.35 * LEGEND
+        sx = x0 + pad
+        if kind == "line":
+            out.append(
+                f'<path fill="none" stroke="{colour}" stroke-width="2"{attrs(stroke_dasharray=dash)}'
+                f' d="M{num(sx)} {num(mid)}h{num(swatch)}"/>'
+            )
+        elif kind == "band":
+            out.append(
+                f'<rect x="{num(sx)}" y="{num(mid - 4)}" width="{num(swatch)}" height="8"'
+                f' fill="{colour}"/>'
+            )
+        out.append(text(sx + swatch + 6, base, label, LEGEND, INK))
+    ax.parts.append("".join(out))
+
+
+def _note(ax: _Axes, note: str) -> None:
+    """Muted note at the lower right inside the plot area, on a white ground."""
+    lines = wrap(note, ax.w - 12, NOTE)
+    if not lines:
+        return
+    lead = NOTE * 1.25
+    width = max(text_width(s, NOTE) for s in lines) + 4
+    height = lead * len(lines) + 2
+    x1, y1 = ax.x0 + ax.w - 2, ax.y0 + ax.h - 2
+    box = (x1 - width, y1 - height, x1, y1)
+    ax.taken.append(box)
+    first = box[1] + 1 + ASCENT * NOTE
+    ax.parts.append(
+        f'<rect x="{num(box[0])}" y="{num(box[1])}" width="{num(width)}" height="{num(height)}"'
+        ' fill="#fff"/>' + lines_of_text(x1 - 2, first, lines, NOTE, lead, MUTED, "end")
+    )
 
 
 _OFFSETS = [(dx, dy) for r in (5, 11, 18, 26) for dx, dy in ((r, r), (r, -r), (-r, r), (-r, -r))]
 _OFFSETS += [(0, r) for r in (9, 16, 24)] + [(0, -r) for r in (9, 16, 24)]
 
 
-def _overlaps(a, b) -> bool:
-    return not (a[2] <= b[0] or b[2] <= a[0] or a[3] <= b[1] or b[3] <= a[1])
-
-
-def _place_labels(ax, labels: list[dict], transform=None) -> list[int]:
-    """Circle each flagged row and write its number where no other label is; returns the rows
-    left unlabelled (no free place inside the panel)."""
-    ax.autoscale_view()
-    frame = ax.get_window_extent()
-    placed: list[tuple[float, float, float, float]] = []
-    legend = ax.get_legend()
-    if legend is not None:  # labels never sit under the legend either
-        box = legend.get_window_extent(ax.figure.canvas.get_renderer())
-        placed.append((box.x0, box.y0, box.x1, box.y1))
+def _place_labels(ax: _Axes, labels: list[dict], gid: str, minus_x: bool = False) -> list[int]:
+    """Circle each flagged row and write its number where no other label, the legend or the
+    note is; returns the rows left unlabelled (no free place inside the panel)."""
     skipped: list[int] = []
+    circles: list[str] = []
+    words: list[str] = []
+    h = 1.25 * LABEL
     for item in labels[:MAX_LABELS]:
-        x, y = item["x"], transform(item) if transform else item["y"]
-        ax.scatter(
-            [x], [y], s=46, facecolors="none", edgecolors=FLAG_COOKS, linewidths=1.1, zorder=4
+        x, y = float(item["x"]), float(item["y"])
+        if minus_x:
+            y -= x
+        if not (math.isfinite(x) and math.isfinite(y)):
+            continue
+        px, py = float(ax.px(x)), float(ax.py(y))
+        circles.append(
+            f'<circle cx="{num(px)}" cy="{num(py)}" r="{CIRCLE_R}" fill="none"'
+            f' stroke="{FLAG_COOKS}" stroke-width="{CIRCLE_W}"/>'
         )
-        text = str(item["row"])
-        w, h = _label_size(text)
-        px, py = ax.transData.transform((x, y))
+        word = str(item["row"])
+        w = text_width(word, LABEL) + 2
         for dx, dy in _OFFSETS:
-            x0 = px + dx if dx >= 0 else px + dx - w
-            y0 = py + dy if dy >= 0 else py + dy - h
-            box = (x0, y0, x0 + w, y0 + h)
-            inside = (
-                box[0] >= frame.x0
-                and box[2] <= frame.x1
-                and box[1] >= frame.y0
-                and box[3] <= frame.y1
-            )
-            if inside and not any(_overlaps(box, other) for other in placed):
-                placed.append(box)
-                ann = ax.annotate(
-                    text,
-                    (x, y),
-                    xytext=(x0 - px, y0 - py),
-                    textcoords="offset pixels",
-                    ha="left",
-                    va="bottom",
-                    fontsize=LABEL_PT,
-                    color=FLAG_COOKS,
-                    zorder=5,
-                    annotation_clip=False,
+            left = px + dx if dx >= 0 else px + dx - w
+            top = py - dy - h if dy >= 0 else py - dy
+            box = (left, top, left + w, top + h)
+            if ax.inside(box) and not any(_overlaps(box, other) for other in ax.taken):
+                ax.taken.append(box)
+                base = top + (h - (ASCENT + DESCENT) * LABEL) / 2 + ASCENT * LABEL
+                words.append(
+                    f'<g id="row-label-{gid}-{esc(word)}">'
+                    f"{text(left + 1, base, word, LABEL, FLAG_COOKS)}</g>"
                 )
-                panel = (ax.get_gid() or "panel-plot").removeprefix("panel-")
-                ann.set_gid(f"row-label-{panel}-{text}")
                 break
         else:
-            skipped.append(item["row"])
+            skipped.append(int(item["row"]))
+    ax.parts += circles + words
     return skipped
 
 
@@ -249,131 +416,337 @@ def _labels_note(skipped: list[int]) -> str:
     return "" if not skipped else "; also flagged: rows " + ", ".join(map(str, skipped))
 
 
-# ------------------------------------------------------------------------------ panels
-def _draw_straight(ax, panel: dict) -> str:
-    pts = panel.get("points") or {}
-    if not pts.get("x"):
-        _empty(ax, panel)
-        return ""
-    ax.axhline(0.0, color=MUTED, linestyle=(0, (4, 3)), linewidth=1.0, zorder=1, label="zero")
-    _scatter(ax, pts["x"], pts["y"])
-    _curve(ax, panel.get("smoother"), "LOWESS smoother")
-    _legend(ax)
-    return _labels_note(_place_labels(ax, panel.get("labels", [])))
+def _rows_note(panel: dict, drawn: int) -> str:
+    total = int(panel.get("n_total") or drawn)
+    if drawn >= total:
+        return f"all {total} rows"
+    return f"showing {drawn} of {total} rows (fixed sample; flagged rows always shown)"
 
 
-def _draw_spread(ax, panel: dict) -> str:
-    pts = panel.get("points") or {}
-    if not pts.get("x"):
-        _empty(ax, panel)
-        return ""
-    for line in panel.get("reference_lines") or []:
-        ax.axhline(
-            line["y"][0],
-            color=MUTED,
-            linestyle=(0, (1, 2)),
-            linewidth=1.3,
-            zorder=1,
-            label=f"expected under even spread ({line['y'][0]:.2f})",
-        )
-    _scatter(ax, pts["x"], pts["y"])
-    _curve(ax, panel.get("smoother"), "LOWESS smoother")
-    ax.set_ylim(bottom=0.0)
-    _legend(ax, loc="upper right")
-    return _labels_note(_place_labels(ax, panel.get("labels", [])))
+def _empty(ax: _Axes, panel: dict) -> None:
+    lines = wrap(str(panel.get("note") or "nothing to show"), min(ax.w - 20, 330), 12.5)
+    lead = 16.0
+    first = ax.y0 + ax.h / 2 - lead * (len(lines) - 1) / 2 + 0.35 * 12.5
+    ax.parts.append(lines_of_text(ax.x0 + ax.w / 2, first, lines, 12.5, lead, MUTED, "middle"))
 
 
-def _draw_normal(ax, panel: dict) -> str:
-    """Departures from the normal quantiles: a normal sample lies along 0 inside the band."""
-    pts = panel.get("points") or {}
-    if not pts.get("x"):
-        _empty(ax, panel)
-        return ""
-    x = np.asarray(pts["x"], dtype=float)
-    env = panel.get("envelope")
-    if env:
-        ex = np.asarray(env["x"], dtype=float)
-        ax.fill_between(
-            ex,
-            np.asarray(env["lower"], dtype=float) - ex,
-            np.asarray(env["upper"], dtype=float) - ex,
-            color=BAND,
-            linewidth=0,
-            zorder=1,
-            label=f"{round(100 * env.get('level', 0.95))}% band for a normal sample",
-        )
-    ax.axhline(0.0, color=MUTED, linestyle=(0, (4, 3)), linewidth=1.0, zorder=1)
-    line = panel.get("reference_line")
-    if line:
-        lx = np.asarray(line["x"], dtype=float)
-        ax.plot(
-            lx,
-            np.asarray(line["y"], dtype=float) - lx,
-            color=SMOOTH,
-            linewidth=1.3,
-            zorder=3,
-            label="line through the quartiles",
-        )
-    _scatter(ax, x, np.asarray(pts["y"], dtype=float) - x)
-    _legend(ax)
-    return _labels_note(
-        _place_labels(ax, panel.get("labels", []), transform=lambda it: it["y"] - it["x"])
+# ---------------------------------------------------------------------------- panels
+def _xy(pts: dict, keep: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    return (
+        np.asarray(pts.get("x") or [], dtype=float)[keep],
+        np.asarray(pts.get("y") or [], dtype=float)[keep],
     )
 
 
-def _draw_influence(ax, panel: dict) -> str:
+def _draw_straight(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     pts = panel.get("points") or {}
-    if not pts.get("x"):
-        _empty(ax, panel)
-        return ""
-    x = np.asarray(pts["x"], dtype=float)
-    y = np.asarray(pts["y"], dtype=float)
-    flag = np.asarray(pts.get("flag") or [""] * len(x))
-    colours = {"": QUIET, "other": FLAG_OTHER, "cooks": FLAG_COOKS}
-    for reason in ("", "other", "cooks"):
-        m = flag == reason
-        if m.any():
-            ax.vlines(x[m], 0.0, y[m], color=colours[reason], linewidth=1.1, zorder=2)
-            ax.scatter(x[m], y[m], s=10, color=colours[reason], zorder=3, edgecolors="none")
+    x, y = _xy(pts, keep)
+    smooth = panel.get("smoother") or {}
+    ax.limits([x, smooth.get("x")], [y, smooth.get("y"), [0.0]])
+    _frame(ax, panel)
+    _hline(ax, 0.0, MUTED, REF_W, DASHED)
+    drawn = _points(ax, x, y)
+    entries: list[Entry] = [("line", MUTED, "4 3", "zero")]
+    if _curve(ax, smooth):
+        entries.append(("line", SMOOTH, None, "LOWESS smoother"))
+    _legend(ax, entries)
+    _labels_and_note(ax, panel, drawn, gid)
+
+
+def _draw_spread(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
+    pts = panel.get("points") or {}
+    x, y = _xy(pts, keep)
+    smooth = panel.get("smoother") or {}
+    refs = [float(line["y"][0]) for line in panel.get("reference_lines") or []]
+    ax.limits([x, smooth.get("x")], [y, smooth.get("y"), refs], y_floor=0.0)
+    _frame(ax, panel)
+    entries: list[Entry] = []
+    for value in refs:
+        _hline(ax, value, MUTED, 1.8, DOTTED)
+        entries.append(("line", MUTED, "1.5 2", f"expected under even spread ({value:.2f})"))
+    drawn = _points(ax, x, y)
+    if _curve(ax, smooth):
+        entries.append(("line", SMOOTH, None, "LOWESS smoother"))
+    _legend(ax, entries, "right")
+    _labels_and_note(ax, panel, drawn, gid)
+
+
+def _draw_normal(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
+    """Departures from the normal quantiles: a normal sample lies along 0 inside the band."""
+    pts = panel.get("points") or {}
+    x, y = _xy(pts, keep)
+    env = panel.get("envelope")
+    line = panel.get("reference_line")
+    xs: list = [x]
+    ys: list = [y - x, [0.0]]
+    band = None
+    if env and env.get("x"):
+        ex = np.asarray(env["x"], dtype=float)
+        band = (ex, np.asarray(env["lower"], dtype=float) - ex, np.asarray(env["upper"]) - ex)
+        xs.append(ex)
+        ys += [band[1], band[2]]
+    ref = None
+    if line and line.get("x"):
+        lx = np.asarray(line["x"], dtype=float)
+        ref = (lx, np.asarray(line["y"], dtype=float) - lx)
+        xs.append(lx)
+        ys.append(ref[1])
+    ax.limits(xs, ys)
+    _frame(ax, panel)
+    entries: list[Entry] = []
+    if band is not None:
+        ring_x = np.concatenate([band[0], band[0][::-1]])
+        ring_y = np.concatenate([band[2], band[1][::-1]])
+        _line(ax, ring_x, ring_y, BAND, 0.0, close=True)
+        level = round(100 * float((env or {}).get("level", 0.95)))
+        entries.append(("band", BAND, None, f"{level}% band for a normal sample"))
+    _hline(ax, 0.0, MUTED, REF_W, DASHED)
+    if ref is not None:
+        _line(ax, ref[0], ref[1], SMOOTH, 1.8)
+        entries.append(("line", SMOOTH, None, "line through the quartiles"))
+    drawn = _points(ax, x, y - x)
+    _legend(ax, entries)
+    _labels_and_note(ax, panel, drawn, gid, minus_x=True)
+
+
+def _draw_influence(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
+    pts = panel.get("points") or {}
+    x, y = _xy(pts, keep)
+    flag = np.asarray(pts.get("flag") or [""] * len(pts.get("x") or []))[keep]
     top = float(np.max(y)) if y.size else 0.0
-    handles: list[Artist] = [
-        Line2D([], [], color=FLAG_COOKS, linewidth=2, label="flagged: Cook's distance"),
-        Line2D([], [], color=FLAG_OTHER, linewidth=2, label="flagged: leverage, DFFITS or |t|"),
-        Line2D([], [], color=QUIET, linewidth=2, label="not flagged"),
+    entries: list[Entry] = [
+        ("line", FLAG_COOKS, None, "flagged: Cook's distance"),
+        ("line", FLAG_OTHER, None, "flagged: leverage, DFFITS or |t|"),
+        ("line", QUIET, None, "not flagged"),
     ]
+    lines: list[tuple[float, str, str | None]] = []
     for cut in panel.get("cutoffs") or []:
         value = float(cut["value"])
-        fail = cut["name"].startswith("fail")
-        style: dict[str, Any] = {"color": FLAG_COOKS if fail else MUTED, "linewidth": 1.0}
-        style["linestyle"] = "-" if fail else (0, (4, 3))
-        text = f"{'fail' if fail else 'flag'} line: Cook's distance {value:.3g}"
+        fail = str(cut["name"]).startswith("fail")
+        colour, dash = (FLAG_COOKS, None) if fail else (MUTED, DASHED)
+        label = f"{'fail' if fail else 'flag'} line: Cook's distance {value:.3g}"
         if value <= max(top * 1.15, 1e-12) or not fail:
-            ax.axhline(value, zorder=1, **style)
-            handles.append(Line2D([], [], label=text, **style))
+            lines.append((value, colour, dash))
+            entries.append(("line", colour, "4 3" if dash else None, label))
         else:
-            handles.append(Patch(color="white", label=f"{text} (above every row)"))
-    ax.set_ylim(bottom=0.0)
-    ax.set_xlim(float(np.min(x)) - 0.5, float(np.max(x)) + 0.5)
-    _legend(ax, handles=handles, loc="upper right")
-    return _labels_note(_place_labels(ax, panel.get("labels", [])))
+            entries.append(("none", "#fff", None, f"{label} (above every row)"))
+    ax.limits(
+        [x - 0.5, x + 0.5],
+        [y, [v for v, _, _ in lines]],
+        y_floor=0.0,
+        x_exact=True,
+    )
+    _frame(ax, panel, integer_x=True)
+    for value, colour, dash in lines:
+        _hline(ax, value, colour, REF_W, dash)
+    base = float(ax.py(0.0))
+    size = 4.4
+    for reason, colour in (("", QUIET), ("other", FLAG_OTHER), ("cooks", FLAG_COOKS)):
+        m = flag == reason
+        if not m.any():
+            continue
+        px, py = ax.px(x[m]), ax.py(y[m])
+        ax.parts.append(
+            f'<path class="stems" transform="scale(.1)" fill="none" stroke="{colour}"'
+            f' stroke-width="{num(10 * STEM_W)}" d="{stems(px, py, base)}"/>'
+            f'<path class="pts" transform="scale(.1)" fill="none" stroke="{colour}"'
+            f' stroke-width="{num(10 * size)}" stroke-linecap="round" d="{dots(px, py)}"/>'
+        )
+    _legend(ax, entries, "right")
+    _labels_and_note(ax, panel, len(x), gid)
 
 
-def _draw_predictor(ax, panel: dict) -> str:
+def _draw_predictor(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     pts = panel.get("points") or {}
-    if not pts.get("x"):
-        _empty(ax, panel)
-        return ""
-    _scatter(ax, pts["x"], pts["y"])
-    _curve(ax, panel.get("component"), "fitted effect", color=EFFECT)
-    _curve(ax, panel.get("smoother"), "LOWESS smoother")
-    _legend(ax)
-    return ""
+    x, y = _xy(pts, keep)
+    comp = panel.get("component") or {}
+    smooth = panel.get("smoother") or {}
+    ax.limits([x, comp.get("x"), smooth.get("x")], [y, comp.get("y"), smooth.get("y")])
+    _frame(ax, panel)
+    drawn = _points(ax, x, y)
+    entries: list[Entry] = []
+    if _curve(ax, comp, EFFECT):
+        entries.append(("line", EFFECT, None, "fitted effect"))
+    if _curve(ax, smooth):
+        entries.append(("line", SMOOTH, None, "LOWESS smoother"))
+    _legend(ax, entries)
+    _note(ax, _rows_note(panel, drawn))
+
+
+def _labels_and_note(ax: _Axes, panel: dict, drawn: int, gid: str, minus_x: bool = False) -> None:
+    """Reserve the note's place first (its final text is known only after the labels, so the
+    longest possible note is reserved), place the labels, then write the note."""
+    labels = panel.get("labels") or []
+    rows_note = _rows_note(panel, drawn)
+    longest = rows_note + _labels_note([int(lab["row"]) for lab in labels[:MAX_LABELS]])
+    mark = len(ax.taken)
+    _note_box_only(ax, longest)
+    skipped = _place_labels(ax, labels, gid, minus_x)
+    del ax.taken[mark]  # the reserved place; the real note follows
+    _note(ax, rows_note + _labels_note(skipped))
+
+
+def _note_box_only(ax: _Axes, note: str) -> None:
+    lines = wrap(note, ax.w - 12, NOTE)
+    width = max((text_width(s, NOTE) for s in lines), default=0.0) + 4
+    height = NOTE * 1.25 * len(lines) + 2
+    x1, y1 = ax.x0 + ax.w - 2, ax.y0 + ax.h - 2
+    ax.taken.append((x1 - width, y1 - height, x1, y1))
+
+
+Draw = Callable[[_Axes, dict, np.ndarray, str], None]
+
+_TOP: tuple[tuple[str, Draw], ...] = (
+    ("residuals_fitted", _draw_straight),
+    ("spread_fitted", _draw_spread),
+    ("normal_quantiles", _draw_normal),
+)
+
+
+@dataclass
+class _Slot:
+    panel: dict
+    draw: Draw
+    x0: float
+    w: float
+    h: float
+    gid: str
 
 
 def _footer(plots: dict) -> str:
     rule = (plots.get("influence") or {}).get("flag_rule")
-    text = "Rows are numbered from 1 (1 = first data row). Circled points are flagged rows"
-    return text + (f"; {rule}." if rule else ".")
+    text_ = "Rows are numbered from 1 (1 = first data row). Circled points are flagged rows"
+    return text_ + (f"; {rule}." if rule else ".")
+
+
+def _head(slot: _Slot) -> tuple[list[str], list[str]]:
+    title = wrap(str(slot.panel.get("title", "")), slot.w, TITLE, bold=True)
+    reading = wrap(str(slot.panel.get("reading", "")), slot.w, READING)
+    return title, reading
+
+
+def _panel_svg(slot: _Slot, y_head: float, plot_y: float, keep: np.ndarray) -> str:
+    title, reading = _head(slot)
+    head = lines_of_text(slot.x0, y_head + ASCENT * TITLE, title, TITLE, TITLE_LEAD, INK, bold=True)
+    first = y_head + len(title) * TITLE_LEAD + ASCENT * READING
+    head += lines_of_text(slot.x0, first, reading, READING, READING_LEAD, MUTED)
+    ax = _Axes(slot.x0, plot_y, slot.w, slot.h)
+    pts = slot.panel.get("points") or {}
+    if not pts.get("x"):
+        ax.limits([], [])
+        _frame(ax, slot.panel, empty=True)
+        _empty(ax, slot.panel)
+    else:
+        slot.draw(ax, slot.panel, keep, slot.gid)
+    return f'<g id="panel-{esc(slot.gid)}">{head}{"".join(ax.parts)}</g>'
+
+
+def draw_svg(plots: dict, title: str | None = None) -> str:
+    """The figure as an SVG document (text); see :func:`render_figure`."""
+    if not isinstance(plots, dict):
+        raise ValueError(
+            f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}"
+        )
+    plots = visible_all(plots)  # caller names and levels: hidden characters shown as U+XXXX
+    title = visible(title) if title else title
+    top = [(plots[key], draw) for key, draw in _TOP if plots.get(key)]
+    strip = plots.get("influence")
+    predictors = (plots.get("partial_residuals") or [])[:MAX_PARTIAL_PANELS]
+    if not top and not strip and not predictors:
+        raise ValueError("plots holds no panel to draw")
+    rows: list[list[_Slot]] = []
+    if top:
+        rows.append(
+            [
+                _Slot(panel, draw, LEFT + c * (PLOT_W + COL_GAP), PLOT_W, PANEL_H, _gid(panel))
+                for c, (panel, draw) in enumerate(top)
+            ]
+        )
+    if strip:
+        full = COLUMNS * PLOT_W + (COLUMNS - 1) * COL_GAP
+        rows.append([_Slot(strip, _draw_influence, LEFT, full, STRIP_H, _gid(strip))])
+    for start in range(0, len(predictors), COLUMNS):
+        rows.append(
+            [
+                _Slot(
+                    panel,
+                    _draw_predictor,
+                    LEFT + c * (PLOT_W + COL_GAP),
+                    PLOT_W,
+                    PANEL_H,
+                    _gid(panel, start + c + 1),
+                )
+                for c, panel in enumerate(predictors[start : start + COLUMNS])
+            ]
+        )
+    slots = [s for row in rows for s in row]
+    # thinning: one cap per panel from the figure's budget, the same rows kept everywhere
+    with_points = [s for s in slots if (s.panel.get("points") or {}).get("x")]
+    units = len(with_points) + sum(s.draw is _draw_influence for s in with_points)
+    cap = min(PANEL_MAX_POINTS, FIGURE_MAX_POINTS // max(units, 1))
+    must = _must_keep(plots, [s.panel for s in slots])
+    body: list[str] = []
+    y = TOP
+    if title:
+        lines = wrap(title, WIDTH - LEFT - 24, FIG_TITLE, bold=True)
+        body.append(
+            lines_of_text(LEFT, y + ASCENT * FIG_TITLE, lines, FIG_TITLE, FIG_LEAD, INK, bold=True)
+        )
+        y += FIG_LEAD * len(lines) + 14
+    else:
+        y += 8
+    for row in rows:
+        heads = [_head(s) for s in row]
+        head_h = max(len(t) * TITLE_LEAD + len(r) * READING_LEAD for t, r in heads) + 6
+        plot_y = y + head_h
+        for slot in row:
+            keep = _shown(
+                slot.panel.get("points") or {},
+                cap,
+                must,
+                tails=slot.panel.get("question") == "normal",
+            )
+            body.append(_panel_svg(slot, y, plot_y, keep))
+        y = plot_y + row[0].h + AXIS_H + ROW_GAP
+    foot = wrap(_footer(plots), WIDTH - LEFT - 24, FOOT)
+    body.append(lines_of_text(LEFT, y + ASCENT * FOOT, foot, FOOT, FOOT * 1.3, MUTED))
+    height = math.ceil(y + FOOT * 1.3 * len(foot) + BOTTOM)
+    label = "Diagnostic panels" + (f" for {title}" if title else "")
+    return (
+        f'<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{height}"'
+        f' viewBox="0 0 {WIDTH} {height}" role="img" aria-labelledby="figure-title">'
+        f'<title id="figure-title">{esc(label)}</title>'
+        f'<g font-family="{FONT_FAMILY}">'
+        f'<rect width="{WIDTH}" height="{height}" fill="#fff"/>'
+        f"{''.join(body)}</g></svg>\n"
+    )
+
+
+def _gid(panel: dict, number: int | None = None) -> str:
+    suffix = "" if number is None else f"-{number}"
+    return f"{panel.get('question', 'plot')}{suffix}"
+
+
+# ------------------------------------------------------------------------------ PNG
+def _font_files() -> list[str]:
+    import matplotlib
+
+    folder = os.path.join(matplotlib.get_data_path(), "fonts", "ttf")
+    return [os.path.join(folder, f) for f in ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf")]
+
+
+def rasterise(svg: str) -> bytes:
+    """PNG of an SVG from :func:`draw_svg` at its own size, drawn by resvg with the DejaVu
+    Sans files matplotlib ships (no system font is looked up)."""
+    import resvg_py
+
+    png = resvg_py.svg_to_bytes(
+        svg_string=svg,
+        skip_system_fonts=True,
+        font_files=_font_files(),
+        background="#ffffff",
+    )
+    return bytes(png)
 
 
 def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> bytes:
@@ -381,122 +754,11 @@ def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> by
 
     ``plots`` is the dict returned by ``diagnostic_plots``; ``fmt`` is ``"svg"`` or
     ``"png"``; ``title`` (optional) is drawn above the panels.  In SVG, each panel is a group
-    whose id is ``panel-<question>`` (``panel-predictor_scale-<k>`` for the k-th predictor)
-    and each row label a group ``row-label-<question>-<row>``.
+    whose id is ``panel-<question>`` (``panel-predictor_scale-<k>`` for the k-th predictor),
+    each row label a group ``row-label-<question>-<row>``, and each layer of points a path
+    of class ``pts`` holding one sub-path per point.
     """
     if fmt not in ("svg", "png"):
         raise ValueError(f"fmt must be 'svg' or 'png'; got {fmt!r}")
-    if not isinstance(plots, dict):
-        raise ValueError(
-            f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}"
-        )
-    plots = visible_all(plots)  # caller names and levels: bidi controls shown as U+XXXX
-    title = visible(title) if title else title
-    top = [
-        (key, draw)
-        for key, draw in (
-            ("residuals_fitted", _draw_straight),
-            ("spread_fitted", _draw_spread),
-            ("normal_quantiles", _draw_normal),
-        )
-        if plots.get(key)
-    ]
-    strip = plots.get("influence")
-    predictors = (plots.get("partial_residuals") or [])[:MAX_PARTIAL_PANELS]
-    if not top and not strip and not predictors:
-        raise ValueError("plots holds no panel to draw")
-    rows: list[tuple[str, float]] = []  # (kind, height in inches)
-    if top:
-        rows.append(("top", PANEL_H))
-    if strip:
-        rows.append(("strip", STRIP_H))
-    rows += [("predictors", PANEL_H)] * math.ceil(len(predictors) / COLUMNS)
-    width = LEFT + RIGHT + COLUMNS * PANEL_W
-    title_h = TITLE_H if title else 0.0
-    height = title_h + HEAD_H + sum(h for _, h in rows) + GAP_H * (len(rows) - 1) + FOOT_H + 0.35
-    fig = Figure(figsize=(width, height), dpi=DPI, facecolor="white")
-    FigureCanvasAgg(fig)  # a renderer to measure legends while labels are placed
-    ratios = []
-    for k, (_, h) in enumerate(rows):
-        ratios.append(h)
-        if k < len(rows) - 1:
-            ratios.append(GAP_H)
-    grid = fig.add_gridspec(
-        len(ratios),
-        COLUMNS,
-        height_ratios=ratios,
-        left=LEFT / width,
-        right=1 - RIGHT / width,
-        top=1 - (title_h + HEAD_H) / height,
-        bottom=(FOOT_H + 0.35) / height,
-        hspace=0.0,
-        wspace=0.3,
-    )
-    col_w = PANEL_W * 0.77
-    pending = list(enumerate(predictors, start=1))
-    for k, (kind, _) in enumerate(rows):
-        g = 2 * k
-        if kind == "top":
-            for col, (key, draw) in enumerate(top):
-                ax = fig.add_subplot(grid[g, col])
-                _panel(ax, plots[key], draw, col_w)
-        elif kind == "strip":
-            ax = fig.add_subplot(grid[g, :])
-            assert strip  # the strip row exists only with an influence panel
-            _panel(ax, strip, _draw_influence, width - LEFT - RIGHT)
-        else:
-            for col in range(COLUMNS):
-                if not pending:
-                    break
-                ax = fig.add_subplot(grid[g, col])
-                number, panel = pending.pop(0)
-                _panel(ax, panel, _draw_predictor, col_w, number)
-    if title:
-        fig.text(
-            LEFT / width,
-            1 - 0.15 / height,
-            title,
-            ha="left",
-            va="top",
-            fontsize=13,
-            fontweight="bold",
-            color=INK,
-            parse_math=False,
-        )
-    fig.text(
-        LEFT / width,
-        0.12 / height,
-        textwrap.fill(_footer(plots), int((width - LEFT) * DPI / 5.0)),
-        ha="left",
-        va="bottom",
-        fontsize=7.5,
-        color=MUTED,
-        parse_math=False,
-    )
-    buf = io.BytesIO()
-    if fmt == "png":
-        FigureCanvasAgg(fig).print_png(buf)
-    else:
-        canvas = FigureCanvasSVG(fig)
-        # fixed hash salt: identical plots give byte-identical SVG (stable element ids)
-        rc: dict[RcKeyType, Any] = {"svg.fonttype": "none", "svg.hashsalt": "bestscale"}
-        with _SVG_LOCK, matplotlib.rc_context(rc):
-            canvas.print_svg(buf, metadata={"Date": None})
-    return buf.getvalue()
-
-
-def _panel(ax, panel: dict, draw, width_in: float, number: int | None = None) -> None:
-    suffix = "" if number is None else f"-{number}"
-    ax.set_gid(f"panel-{panel.get('question', 'plot')}{suffix}")
-    _head(ax, panel, width_in)
-    _style(ax, panel, *_axis_labels(panel))
-    extra = draw(ax, panel)
-    shown = len((panel.get("points") or {}).get("x") or [])
-    if shown:
-        _note(ax, _rows_note(panel, shown) + extra)
-
-
-def _axis_labels(panel: dict) -> tuple[str | None, str | None]:
-    if panel.get("question") == "normal":
-        return None, "standardised residual − normal quantile"
-    return None, None
+    svg = draw_svg(plots, title)
+    return svg.encode("utf-8") if fmt == "svg" else rasterise(svg)

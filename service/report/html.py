@@ -142,13 +142,15 @@ _METADATA = re.compile(r"<metadata>.*?</metadata>\s*", re.S)
 _STYLE = re.compile(r"<style[^>]*>.*?</style>\s*", re.S)
 _ROOT = re.compile(r"<svg\b[^>]*>")
 _VIEWBOX = re.compile(r"viewBox=\"([^\"]+)\"")
+_OWN_TITLE = re.compile(r"\A\s*<title\b[^>]*>.*?</title>", re.S)
 
 
 def inline_svg(svg: bytes | str, prefix: str, label: str) -> str:
-    """Matplotlib SVG made fit to sit inside an HTML page beside other figures.
+    """A standalone SVG (the figure of :func:`render_figure`, or any other) made fit to sit
+    inside an HTML page beside other figures.
 
-    Drops the XML prolog, the metadata block (its namespace URLs) and the document-wide
-    ``<style>`` (the same rules live in the page CSS); prefixes every id and reference
+    Drops the XML prolog, a metadata block (its namespace URLs), a document-wide
+    ``<style>`` and the document's own ``<title>`` (replaced by ``label``); prefixes every id and reference
     with ``prefix`` so several figures can share a page; replaces ``xlink:href`` by the
     plain ``href`` of SVG 2 (so the page holds no namespace URL); and gives the root a
     title for assistive technology and a width that follows the page.
@@ -162,7 +164,7 @@ def inline_svg(svg: bytes | str, prefix: str, label: str) -> str:
         raise ValueError("not an SVG document")
     box = _VIEWBOX.search(root.group(0))
     view = f' viewBox="{box.group(1)}"' if box else ""
-    body = text[root.end() :]
+    body = _OWN_TITLE.sub("", text[root.end() :], count=1)
     body = re.sub(r"(?<=\s)id=\"([^\"]+)\"", lambda m: f'id="{prefix}-{m.group(1)}"', body)
     body = re.sub(r"url\(#([^)]+)\)", lambda m: f"url(#{prefix}-{m.group(1)})", body)
     body = re.sub(r"xlink:href=\"#([^\"]+)\"", lambda m: f'href="#{prefix}-{m.group(1)}"', body)
@@ -183,7 +185,7 @@ def _figure(plots, entry: dict, prefix: str) -> str:
         return f'<p class="note">No figure: {esc(plots)}.</p>'
     try:
         svg = render_figure(plots, "svg", title=entry["equation"])
-    except ValueError as exc:  # e.g. nothing to draw, or text matplotlib cannot lay out
+    except ValueError as exc:  # e.g. nothing to draw
         last = (str(exc).strip().splitlines() or ["unknown reason"])[-1]
         return f'<p class="note">No figure: it could not be drawn ({esc(last)}).</p>'
     n_partial = len(plots.get("partial_residuals") or [])
@@ -829,7 +831,6 @@ dl.facts dt{color:var(--muted)}
 dl.facts dd{margin:0}
 figure{margin:1.2rem 0;padding:0;break-inside:avoid}
 figure svg{display:block;width:100%;height:auto;border:1px solid var(--rule)}
-figure svg *{stroke-linejoin:round;stroke-linecap:butt}
 figcaption{color:var(--muted);font-size:.84rem;margin-top:.35rem}
 ul.plain{padding-left:1.2rem;margin:.4rem 0 1rem}
 ul.plain li{margin:.3rem 0}

@@ -4,6 +4,11 @@ A column name or level holding RIGHT-TO-LEFT OVERRIDE (U+202E) or an isolate wou
 the text around it when a person reads the report or a figure, so a name could appear as
 another.  Unicode's list of bidirectional formatting characters (UAX #9, section 2) is
 replaced by its code point in text; the JSON responses keep the caller's strings unchanged.
+
+Characters that XML 1.0 cannot hold at all (C0 controls other than tab, line feed and carriage
+return, lone surrogates, U+FFFE and U+FFFF; section 2.2 of the XML specification) are shown the
+same way, and so is DELETE (U+007F), which draws nothing: a name holding one still gives a
+well-formed figure and page instead of a document a browser refuses to parse.
 """
 
 from __future__ import annotations
@@ -11,11 +16,14 @@ from __future__ import annotations
 import re
 
 BIDI_CONTROLS = "\u061c\u200e\u200f\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069"
-_BIDI = re.compile(f"[{BIDI_CONTROLS}]")
+#: characters XML 1.0 cannot hold (XML 1.0 section 2.2, production [2] Char) plus DELETE
+XML_INVALID = "\x00-\x08\x0b\x0c\x0e-\x1f\x7f\ud800-\udfff\ufffe\uffff"
+_BIDI = re.compile(f"[{BIDI_CONTROLS}{XML_INVALID}]")
 
 
 def visible(text: str) -> str:
-    """``text`` with every bidirectional control character written as ``U+XXXX``."""
+    """``text`` with every bidirectional control character (and every character XML cannot
+    hold) written as ``U+XXXX``."""
     if not _BIDI.search(text):
         return text
     return _BIDI.sub(lambda m: f"U+{ord(m.group()):04X}", text)

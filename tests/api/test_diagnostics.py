@@ -100,8 +100,12 @@ def test_svg_figure_has_every_panel(client):
         "Which rows pull the fit?",
     ):
         assert title in text
-    paths = [e for e in root.iter() if e.tag.endswith("path")]
-    assert len(paths) > 50
+    # source: statsmodels' engel data (235 households): every row is one dot of each panel
+    n = len(sm.datasets.engel.load_pandas().data)
+    for panel in root.iter():
+        if panel.get("id") in ("panel-straight", "panel-spread", "panel-predictor_scale-1"):
+            dots = [e.get("d") for e in panel.iter() if e.get("class") == "pts"]
+            assert sum(d.count("h0") for d in dots) == n == 235
 
 
 def test_png_figure_is_a_non_blank_picture(client):

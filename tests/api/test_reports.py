@@ -99,8 +99,13 @@ def test_every_figure_is_present_with_its_panels(answers):
             if p["transform"]["name"] != "categorical":
                 assert f"Is the scale of {p['column']} right?" in words
         assert entry["equation"] in words  # the figure is titled with its own equation
-        drawn = [e for e in svg.iter() if _local(e.tag) in ("path", "use")]
-        assert len(drawn) > body["data"]["rows_used"]  # every row is a marker, plus axes
+        # every row is a dot in each panel: one zero-length sub-path ("h0") per point
+        for panel in svg.iter():
+            if _local(panel.tag) == "g" and (panel.get("id") or "").endswith(
+                ("-panel-straight", "-panel-influence")
+            ):
+                dots = [e.get("d") for e in panel.iter() if e.get("class") == "pts"]
+                assert sum(d.count("h0") for d in dots) == body["data"]["rows_used"]
         assert _text(fig.find("figcaption"))
 
 

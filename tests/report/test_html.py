@@ -105,6 +105,26 @@ def test_inlined_matplotlib_svg_has_prefixed_ids_and_no_prolog():
         inline_svg("<html></html>", "p", "x")
 
 
+def test_inlined_figure_has_one_title_and_prefixed_ids():
+    from service.report.figures import render_figure
+
+    plots = {
+        "residuals_fitted": {
+            "title": "Is the scale straight?",
+            "question": "straight",
+            "points": {"x": [1.0, 2.0, 3.0], "y": [0.5, -0.2, 0.1], "row": [1, 2, 3]},
+            "labels": [{"row": 2, "x": 2.0, "y": -0.2}],
+        }
+    }
+    out = inline_svg(render_figure(plots, "svg", title="y on x"), "f1", "Panels for y on x")
+    root = ET.fromstring(out)  # source: Python's XML parser (well-formed)
+    titles = [e for e in root.iter() if e.tag == "title"]
+    assert [t.text for t in titles] == ["Panels for y on x"]  # the figure's own is replaced
+    ids = [e.get("id") for e in root.iter() if e.get("id")]
+    assert "f1-panel-straight" in ids and "f1-row-label-straight-2" in ids
+    assert all(i.startswith("f1-") for i in ids)
+
+
 def test_a_whole_page_from_a_selection_body_is_well_formed():
     _, body = demo_report()
     page = render_report(body, None, {"response": "repair_cost"})

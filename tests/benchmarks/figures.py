@@ -1,0 +1,163 @@
+"""Benchmark: the diagnostic figure and the HTML report, our SVG route against matplotlib's.
+
+Run by hand from the repository root (never in CI):
+
+    python tests/benchmarks/figures.py [--baseline REV] [--repeats 3]
+
+The baseline is the matplotlib renderer as it was at git revision ``REV`` (default
+``d7060f5``, the last one that drew figures with matplotlib), loaded from ``git show`` and
+timed in the same run on the same plot data.  Cases: the shipped demo's rank-1
+specification (300 rows, two numeric predictors) and 20,000 invented rows with two
+predictors handed to the figure whole (``max_points`` 20000, the largest a request may ask)
+and at the default 2000.  Printed per case and format: median wall and CPU seconds of
+``repeats`` draws and the size in KB; then the demo's ``/v1/reports`` answer (in-process)
+with each renderer, and the cost of building the report's plot data.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib.util
+import os
+import statistics
+import subprocess
+import sys
+import time
+import types
+
+ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..")
+sys.path.insert(0, ROOT)
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+
+import numpy as np
+from _common import machine, pin_blas
+from service.core.data import prepare
+from service.core.spec import Specification
+from service.demo import demo_request
+from service.report import figures as svg_route
+from service.selection.plots import report_plots, specification_plots
+
+
+def _baseline(rev: str) -> types.ModuleType:
+    """The renderer of ``rev`` as a module (its relative imports made absolute)."""
+    source = subprocess.run(
+        ["git", "show", f"{rev}:service/report/figures.py"],
+        cwd=ROOT,
+        check=True,
+        capture_output=True,
+        text=True,
+    ).stdout
+    source = source.replace("from .safetext import", "from service.report.safetext import")
+    spec = importlib.util.spec_from_loader("baseline_figures", loader=None)
+    assert spec is not None
+    module = importlib.util.module_from_spec(spec)
+    exec(compile(source, f"{rev}:service/report/figures.py", "exec"), module.__dict__)
+    return module
+
+
+def _measure(render, plots, fmt: str, title: str, repeats: int) -> tuple[float, float, int]:
+    walls, cpus = [], []
+    out = b""
+    for _ in range(repeats):
+        t, c = time.perf_counter(), time.process_time()
+        out = render(plots, fmt, title=title)
+        walls.append(time.perf_counter() - t)
+        cpus.append(time.process_time() - c)
+    return statistics.median(walls), statistics.median(cpus), len(out)
+
+
+def _demo_plots():
+    req = demo_request()
+    prep = prepare(
+        req["data"], req["response"], req["predictors"], req.get("categorical", []), None
+    )
+    from service.selection.search import run_selection
+    from service.selection.search_setup import SearchOptions
+
+    opts = SearchOptions(time_limit_s=600.0)
+    body = run_selection(prep, opts, "bench")
+    entry = body["ranking"][0]
+    spec = Specification.from_dict(entry["specification"])
+    plots = specification_plots(spec, prep, 0.05, 0, 2000)
+    return body, prep, plots, entry["equation"]
+
+
+def _large_plots(max_points: int):
+    rng = np.random.default_rng(1)
+    n = 20_000
+    x1, x2 = rng.uniform(1, 50, n), rng.uniform(0, 10, n)
+    y = np.exp(1 + 0.5 * np.log(x1) + 0.1 * x2 + rng.normal(0, 0.3, n))
+    prep = prepare(
+        {"columns": {"y": y.tolist(), "x1": x1.tolist(), "x2": x2.tolist()}}, "y", ["x1", "x2"]
+    )
+    spec = Specification.from_dict(
+        {
+            "response": {"column": "y", "transform": {"name": "log"}},
+            "predictors": [
+                {"column": "x1", "transform": {"name": "log"}},
+                {"column": "x2"},
+            ],
+        }
+    )
+    return specification_plots(spec, prep, 0.05, 0, max_points)
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--baseline", default="d7060f5", help="git revision of the matplotlib route")
+    ap.add_argument("--repeats", type=int, default=3, help="draws per measurement (median)")
+    args = ap.parse_args()
+    pin_blas(1)
+    old = _baseline(args.baseline)
+    print(machine())
+    body, prep, demo, title = _demo_plots()
+    cases = [
+        ("demo, 300 rows", demo, title),
+        ("20,000 rows, max_points 20000", _large_plots(20_000), "log(y) on log(x1) and x2"),
+        ("20,000 rows, max_points 2000", _large_plots(2_000), "log(y) on log(x1) and x2"),
+    ]
+    print(f"{'case':32} {'format':6} {'route':10} {'wall s':>8} {'CPU s':>8} {'KB':>8}")
+    for name, plots, ttl in cases:
+        for fmt in ("svg", "png"):
+            base = _measure(old.render_figure, plots, fmt, ttl, args.repeats)
+            new = _measure(svg_route.render_figure, plots, fmt, ttl, args.repeats)
+            for route, (wall, cpu, size) in (("matplotlib", base), ("svg", new)):
+                print(f"{name:32} {fmt:6} {route:10} {wall:8.3f} {cpu:8.3f} {size / 1024:8.0f}")
+            print(
+                f"{'':32} {fmt:6} {'ratio':10} {base[0] / new[0]:7.1f}x {base[1] / new[1]:7.1f}x"
+                f" {base[2] / new[2]:7.1f}x"
+            )
+    # the report: plot data of the three detailed entries, then the whole answer per renderer
+    t, c = time.perf_counter(), time.process_time()
+    report_plots(body, prep, 0.05, 0)
+    print(
+        f"report plot data (3 entries): {time.perf_counter() - t:.3f} s wall, "
+        f"{time.process_time() - c:.3f} s CPU"
+    )
+    from fastapi.testclient import TestClient
+    from service.app import app
+    from service.report import html
+
+    client = TestClient(app)
+    req = demo_request()
+    client.post("/v1/reports", json=req)  # warm: imports, first fits
+    for route, render in (("matplotlib", old.render_figure), ("svg", svg_route.render_figure)):
+        html.render_figure = render
+        walls, cpus, size = [], [], 0
+        for _ in range(args.repeats):
+            t, c = time.perf_counter(), time.process_time()
+            r = client.post("/v1/reports", json=req)
+            walls.append(time.perf_counter() - t)
+            cpus.append(time.process_time() - c)
+            assert r.status_code == 200, r.text
+            size = len(r.content)
+        print(
+            f"/v1/reports demo, {route:10}: {statistics.median(walls):.2f} s wall, "
+            f"{statistics.median(cpus):.2f} s CPU, {size / 1024:.0f} KB"
+        )
+    html.render_figure = svg_route.render_figure
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
