@@ -10,7 +10,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from ..core.data import Prepared, split_groups
-from ..core.errors import BestscaleError, BudgetError
+from ..core.errors import BestscaleError, BudgetError, ErrorRecord
 from ..core.numbers import count_of
 from .search import run_selection
 from .search_setup import SearchOptions
@@ -18,10 +18,11 @@ from .trust import assess_trust
 
 
 def group_parts(prep: Prepared) -> dict[str, Prepared | dict[str, Any]]:
-    """The table split by the group column: each group's rows, or the ``{"problem": ...}``
-    entry of a group already known to be unusable (as :func:`select_group` passes it on)."""
+    """The table split by the group column: each group's rows, or the ``{"problem":
+    ErrorRecord}`` entry of a group already known to be unusable (as :func:`select_group`
+    passes it on)."""
     return {
-        name: {"problem": problem_of(sub)} if isinstance(sub, BestscaleError) else sub
+        name: {"problem": ErrorRecord.of(sub)} if isinstance(sub, BestscaleError) else sub
         for name, sub in split_groups(prep).items()
     }
 
@@ -37,7 +38,8 @@ def run_grouped(
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
     pool's map to spread the groups over workers.  A group that cannot be modelled
-    gets a ``problem`` entry with its reason while the others go on.
+    gets a ``problem`` entry with its reason (an :class:`ErrorRecord`, which the caller
+    renders) while the others go on.
     """
     t0 = time.perf_counter()
     # one budget for the whole request, not per group (wall clock: shared by worker processes)
@@ -55,7 +57,7 @@ def run_grouped(
             "groups": len(names),
             "groups_failed": failed,
             "elapsed_s": round(time.perf_counter() - t0, 4),
-            "complete": all("problem" not in b or b["problem"]["status"] != 503 for b in bodies)
+            "complete": all("problem" not in b or not b["problem"].over_budget for b in bodies)
             and all(b.get("search", {}).get("complete", True) for b in bodies),
         },
         "ranking": [],
@@ -69,17 +71,6 @@ def run_grouped(
             if failed
             else []
         ),
-    }
-
-
-def problem_of(exc: BestscaleError) -> dict[str, Any]:
-    status = 503 if isinstance(exc, BudgetError) else 422
-    return {
-        "type": f"urn:bestscale:problem:{exc.kind}",
-        "title": exc.title,
-        "status": status,
-        "detail": exc.detail,
-        "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems],
     }
 
 
@@ -97,8 +88,8 @@ class GroupTrust:
 class GroupTask:
     """One group for :func:`select_group`.
 
-    ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ...}`` entry of a
-    group already known to be unusable (passed through).  ``deadline`` is the request's
+    ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ErrorRecord}`` entry
+    of a group already known to be unusable (passed through).  ``deadline`` is the request's
     wall-clock deadline (a ``time.time()`` value, shared by the processes of one machine):
     a group reached after it gets a 503 problem, one reached before it searches within what
     is left.
@@ -113,7 +104,8 @@ class GroupTask:
 
 def select_group(task: GroupTask) -> dict[str, Any]:
     """Worker for one group of :func:`run_grouped`: the group's selection body without
-    private keys, or a ``problem`` entry for an error the core raised on purpose.
+    private keys, or a ``problem`` entry (:class:`ErrorRecord`) for an error the core raised
+    on purpose.
     Module-level, and its task is a frozen dataclass, so both pickle."""
     sub, opts, service_version = task.rows, task.opts, task.service_version
     trust, deadline = task.trust, task.deadline
@@ -123,7 +115,7 @@ def select_group(task: GroupTask) -> dict[str, Any]:
         remaining = deadline - time.time()
         if remaining <= 0:
             return {
-                "problem": problem_of(
+                "problem": ErrorRecord.of(
                     BudgetError(
                         f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
                         "group was reached; send fewer groups per request or raise limits.time_limit_s"
@@ -148,7 +140,7 @@ def select_group(task: GroupTask) -> dict[str, Any]:
                 outer_folds=outer_folds,
             )
     except BestscaleError as exc:
-        return {"problem": problem_of(exc)}
+        return {"problem": ErrorRecord.of(exc)}
     body.pop("_scored", None)
     body.pop("_plan", None)
     body["ranking"] = [

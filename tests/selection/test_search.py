@@ -5,7 +5,7 @@ import pytest
 from service.core import transforms as tr
 from service.core.crossval import CVResult
 from service.core.data import prepare
-from service.core.errors import BudgetError, InputError
+from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification
 from service.selection.search import rank, run_selection
 from service.selection.search_setup import Scored, SearchOptions
@@ -144,9 +144,9 @@ def test_explicit_inapplicable_transform_is_an_input_error():
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
     with pytest.raises(InputError) as exc:
         run_selection(prep, SearchOptions(response_transforms=["identity", "log"]), "t")
-    # the first pointer is the first row the explicit log cannot take, then the transform
-    assert exc.value.problems[0].pointer == f"/data/columns/y/{int(np.argmax(y <= 0))}"
-    assert exc.value.problems[1].pointer == "/transforms/response/1"
+    # the first place is the first row the explicit log cannot take, then the transform
+    assert exc.value.problems[0].where == Cell("y", int(np.argmax(y <= 0)), "columns")
+    assert exc.value.problems[1].where == ResponseChoice(1)
     assert "yeo_johnson" in exc.value.problems[0].detail
 
 
@@ -180,4 +180,4 @@ def test_grouped_selection_shares_one_time_budget():
     out = run_grouped(prep, SearchOptions(time_limit_s=1e-6), "t")
     assert out["search"]["groups"] == 8
     assert out["search"]["complete"] is False
-    assert all(b["problem"]["status"] == 503 for b in out["groups"].values())
+    assert all(b["problem"].over_budget for b in out["groups"].values())  # rendered as 503
