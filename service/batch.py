@@ -582,7 +582,7 @@ def run_job(
         inc = job.incumbents.get(name)
         # limits.time_limit_s bounds each segment from its own start: the request-wide
         # deadline of one HTTP request would fail every segment reached after it
-        opts = replace(job.opts, deadline_at=None)
+        opts = replace(job.opts, deadline=None)
         if inc:
             opts = replace(opts, incumbent=inc.specification)
         tasks.append(Task(name, sub, opts, job.version, inc.model if inc else None))

@@ -319,7 +319,12 @@ def select_main(argv: list[str]) -> int:
         progress = None
         if args.group_by:
             progress = _Progress(0)
-        result = run_selection_request(req, progress=progress, group_mapper=group_mapper)
+        result = run_selection_request(
+            req,
+            progress=progress,
+            group_mapper=group_mapper,
+            per_group_time_limit=bool(args.group_by),
+        )
     except ValidationError as exc:
         from .api.errors import validation_items
 

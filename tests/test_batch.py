@@ -570,13 +570,14 @@ def test_the_time_limit_applies_to_each_segment_not_to_the_whole_job(tmp_path):
     from service.api.selection import selection_options
     from service.batch import Job, run_inline, run_job
     from service.core.data import prepare
+    from service.selection.deadline import Deadline
 
     table = _table(2, 30)
     body = {"response": "repair_cost", "predictors": PREDICTORS.split(","), **OPTIONS}
     req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
     opts = selection_options(req)
-    assert opts.deadline_at is not None
-    stale = replace(opts, deadline_at=time.time() - 1.0)
+    assert opts.deadline is not None
+    stale = replace(opts, deadline=Deadline(time.time() - 1.0, opts.time_limit_s))
     prep = prepare(
         {"columns": table}, "repair_cost", body["predictors"], ["soil"], None, "district"
     )

@@ -360,3 +360,58 @@ def test_service_help_lists_the_select_command():
         [sys.executable, "-m", "service", "--help"], capture_output=True, text=True, check=True
     ).stdout
     assert "select" in out and "--data" in out and "select --help" in out
+
+
+def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeypatch):
+    """A month of segments written to one file is not one request: even when the clock the
+    request would share has already run out, every group gets its own time limit (an HTTP
+    request with the same clock answers 503 for each group)."""
+    import time
+
+    import service.api.selection as api_selection
+    from service.api.schemas import SelectionRequest
+    from service.selection.deadline import Deadline
+
+    class Expired:
+        @staticmethod
+        def after(seconds: float) -> Deadline:
+            return Deadline(time.time() - 1.0, seconds)
+
+    monkeypatch.setattr(api_selection, "Deadline", Expired)
+    path = tmp_path / "repairs.csv"
+    with path.open("w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(list(TABLE))
+        w.writerows(zip(*TABLE.values(), strict=True))
+    (tmp_path / "options.json").write_text(json.dumps(OPTIONS))
+    code = select_main(
+        [
+            "--data",
+            str(path),
+            "--response",
+            "repair_cost",
+            "--predictors",
+            ",".join(PREDICTORS),
+            "--group-by",
+            "district",
+            "--options",
+            str(tmp_path / "options.json"),
+            "--out",
+            str(tmp_path / "out.json"),
+        ]
+    )
+    assert code == 0
+    groups = json.loads((tmp_path / "out.json").read_text())["groups"]
+    assert sorted(groups) == ["coast", "hills", "valley"]
+    assert not any("problem" in g for g in groups.values())
+    req = SelectionRequest.model_validate(
+        {
+            "data": {"columns": TABLE},
+            "response": "repair_cost",
+            "predictors": list(PREDICTORS),
+            "group_by": "district",
+            **OPTIONS,
+        }
+    )
+    body = api_selection.run_selection_request(req)
+    assert all(g["problem"]["status"] == 503 for g in body["groups"].values())

@@ -13,7 +13,7 @@ from service.api.encode import to_jsonable
 from service.app import app
 from service.core.data import prepare
 from service.demo import demo_columns
-from service.selection.search import run_selection
+from service.selection.search import run_selection, select
 from service.selection.search_setup import SearchOptions
 from service.selection.trust import assess_trust
 from service.selection.workers import process_mapper
@@ -143,10 +143,10 @@ def test_trust_is_the_same_in_one_process_and_in_two():
         top=1,
         seed=4,
     )
-    body = run_selection(prep, opts, "test")
-    winner = body["ranking"][0]["specification"]
+    result = select(prep, opts, "test")
+    winner = result.body["ranking"][0]["specification"]
     runs = [
-        assess_trust(prep, opts, winner, "test", True, True, resamples=12, selection=body),
+        assess_trust(prep, opts, winner, "test", True, True, resamples=12, selection=result),
         assess_trust(
             prep,
             opts,
@@ -155,7 +155,7 @@ def test_trust_is_the_same_in_one_process_and_in_two():
             True,
             True,
             resamples=12,
-            selection=body,
+            selection=result,
             mapper=process_mapper(2),
             chunks=2,
         ),

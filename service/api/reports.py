@@ -7,6 +7,7 @@ from starlette.responses import HTMLResponse
 
 from ..core.data import prepare
 from ..report.html import CSP, render_report
+from ..selection.deadline import Deadline
 from ..selection.plots import report_plots
 from .encode import to_jsonable
 from .errors import ProblemError
@@ -15,7 +16,7 @@ from .negotiation import preferred
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import SelectionRequest
-from .selection import disconnect_probe, run_selection_request
+from .selection import disconnect_probe, run_selection_request, time_limit
 
 router = APIRouter(route_class=StrictRoute)
 
@@ -28,7 +29,8 @@ def selection_report(req: SelectionRequest, stop=None) -> str:
     The page is drawn from the JSON-ready body (private keys dropped, non-finite numbers
     refused, exactly as the JSON response), so every number on it is the response's.
     """
-    result = run_selection_request(req, stop=stop)
+    deadline = Deadline.after(time_limit(req))  # the selection and the figures share it
+    result = run_selection_request(req, stop=stop, deadline=deadline)
     if stop is not None and stop():
         # nobody will read the page: skip the figures and free the compute slot now
         raise ProblemError(
@@ -49,7 +51,7 @@ def selection_report(req: SelectionRequest, stop=None) -> str:
         req.order,
         req.group_by,
     )
-    plots = report_plots(body, prep, req.alpha, req.validation.seed)
+    plots = report_plots(body, prep, req.alpha, req.validation.seed, deadline=deadline)
     context = {
         "response": req.response,
         "predictors": list(req.predictors),

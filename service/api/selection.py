@@ -4,8 +4,8 @@ limits, options, the search (one table or one per group), trust, and the finishi
 
 from __future__ import annotations
 
-import time
 from collections.abc import Callable, Iterable
+from dataclasses import replace
 from typing import Any
 
 from fastapi import Request
@@ -15,8 +15,9 @@ from ..core.data import prepare
 from ..core.errors import InputError, Option, PredictorChoice, Predictors
 from ..core.model import sign_all
 from ..selection.cautions import selection_cautions
+from ..selection.deadline import Deadline
 from ..selection.groups import run_grouped
-from ..selection.search import run_selection
+from ..selection.search import select
 from ..selection.search_setup import SearchOptions
 from ..settings import get_settings
 from ..version import __version__
@@ -54,7 +55,23 @@ def disconnect_probe(request: Request):
     return gone
 
 
-def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
+def time_limit(req: SelectionRequest) -> float:
+    """The request's time limit in seconds (the service default when omitted), checked."""
+    s = get_settings()
+    tl = req.limits.time_limit_s or s.default_time_limit_s
+    if tl > s.max_time_limit_s:
+        raise InputError.at(
+            Option("limits.time_limit_s"),
+            f"time_limit_s {tl:g} exceeds the service limit of {s.max_time_limit_s:g} s",
+        )
+    return float(tl)
+
+
+def selection_options(
+    req: SelectionRequest, stop=None, deadline: Deadline | None = None
+) -> SearchOptions:
+    """The request's search options; ``deadline`` (default: the time limit from now) is the
+    request's one deadline, shared by the search, the entries, trust and every group."""
     s = get_settings()
     max_c = req.limits.max_candidates or s.default_max_candidates
     if max_c > s.max_candidates:
@@ -63,12 +80,7 @@ def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
             f"max_candidates {max_c} exceeds the service limit of {s.max_candidates}",
         )
     req.validation.check_scheme()
-    tl = req.limits.time_limit_s or s.default_time_limit_s
-    if tl > s.max_time_limit_s:
-        raise InputError.at(
-            Option("limits.time_limit_s"),
-            f"time_limit_s {tl:g} exceeds the service limit of {s.max_time_limit_s:g} s",
-        )
+    tl = time_limit(req)
     return SearchOptions(
         response_transforms=transform_items(req.transforms.response),
         predictor_transforms=transform_items(req.transforms.predictors),
@@ -85,16 +97,27 @@ def selection_options(req: SelectionRequest, stop=None) -> SearchOptions:
         units=dict(req.units),
         strategy=req.strategy,
         incumbent=req.incumbent.as_dict() if req.incumbent is not None else None,
-        deadline_at=time.time() + tl,  # one deadline: search, stability and optimism
+        deadline=deadline if deadline is not None else Deadline.after(tl),
         stop=stop,
     )
 
 
 def run_selection_request(
-    req: SelectionRequest, progress=None, stop=None, group_mapper=None
+    req: SelectionRequest,
+    progress=None,
+    stop=None,
+    group_mapper=None,
+    deadline: Deadline | None = None,
+    per_group_time_limit: bool = False,
 ) -> dict:
     """The selection body for a validated request.  ``group_mapper(fn, items)``, when given,
-    runs the groups of a ``group_by`` request (the command line's Dask cluster), in order."""
+    runs the groups of a ``group_by`` request (the command line's Dask cluster), in order.
+    The request's time limit starts here (or at ``deadline``, a caller's clock started
+    earlier) and bounds every part of its work; with ``per_group_time_limit`` (the command
+    line's ``--group-by``: a month of segments, not one request) it counts for each group
+    from that group's start instead."""
+    if deadline is None:
+        deadline = Deadline.after(time_limit(req))
     data = req.data.as_dict()
     _check_size(data, 1 + len(req.predictors))
     if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
@@ -104,7 +127,7 @@ def run_selection_request(
     prep = prepare(
         data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
     )
-    opts = selection_options(req, stop)
+    opts = selection_options(req, stop, deadline)
     if req.group_by is not None:
         if req.trust.stability or req.trust.optimism:
             raise InputError.at(
@@ -152,11 +175,14 @@ def run_selection_request(
 
             mapper = serial_with_progress
 
+        if per_group_time_limit:
+            opts = replace(opts, deadline=None)
         body = run_grouped(
             prep, opts, __version__, finish=lambda b: finish_body(b, opts), mapper=mapper
         )
         return finish_body(with_group_problems(body), opts)
-    body = run_selection(prep, opts, __version__)
+    result = select(prep, opts, __version__)
+    body = result.body
     if req.trust.stability or req.trust.optimism:
         from ..selection.trust import assess_trust
 
@@ -168,7 +194,7 @@ def run_selection_request(
             req.trust.stability,
             req.trust.optimism,
             req.trust.resamples,
-            selection=body,
+            selection=result,
         )
     return finish_body(body, opts)
 

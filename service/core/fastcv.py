@@ -166,6 +166,19 @@ class Scorer:
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             return self._score(t, cols, names, dynamic, keep_out_of_fold and dynamic is None)
 
+    def out_of_fold(
+        self,
+        t: tr.Transform,
+        cols: list[int],
+        names: list[str] | None = None,
+    ) -> OutOfFold:
+        """The first repeat's fold fits and out-of-fold residuals alone (CV+ intervals): the
+        same folds as :meth:`score`, without scoring the other repeats again."""
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            sc = self._score(t, cols, names, None, keep=True, first_only=True)
+        assert sc.out_of_fold is not None  # kept for repeat 0
+        return sc.out_of_fold
+
     def _score(
         self,
         t: tr.Transform,
@@ -173,12 +186,14 @@ class Scorer:
         names: list[str] | None,
         dynamic: Dynamic | None,
         keep: bool = False,
+        first_only: bool = False,
     ) -> Score:
         """Cross-validate the candidate (response scale ``t``, bank columns ``cols``).
 
         With ``dynamic`` the design has extra columns (at ``dynamic.positions``)
-        whose powers are re-estimated on every training fold.  Raises
-        :class:`CandidateFailure` when a fold cannot be fitted or back-transformed.
+        whose powers are re-estimated on every training fold.  ``first_only``
+        scores the first repeat alone.  Raises :class:`CandidateFailure` when a fold
+        cannot be fitted or back-transformed.
         """
         bank, y, plan = self.bank, self.y, self.plan
         index = bank.index
@@ -210,7 +225,7 @@ class Scorer:
         j = 0
         K = plan.folds
         oof: OutOfFold | None = None
-        for r in range(plan.repeats):
+        for r in range(1 if first_only else plan.repeats):
             train, test = index.train[r], index.test[r]
             # ---- per-fold response scale and training solutions
             ts: list[tr.Transform] = []
@@ -292,6 +307,7 @@ class Scorer:
                 pooled["mae"].append(float(np.mean(ab)))
                 if self.want_mape:
                     pooled["mape"].append(100.0 * float(np.mean(pc)))
+        fold_vals = fold_vals[:j]
         summary = {k: (float(np.mean(v)) if v else None) for k, v in pooled.items()}
         value = summary[plan.metric]
         if value is None or not math.isfinite(value):

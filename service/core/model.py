@@ -36,6 +36,8 @@ def _canon(v: Any) -> Any:
     if isinstance(v, dict):
         return {k: _canon(x) for k, x in v.items()}
     if isinstance(v, (list, tuple)):
+        if all(type(x) is float for x in v):  # stored residuals and quantiles: thousands
+            return list(v)
         return [_canon(x) for x in v]
     if isinstance(v, bool) or v is None or isinstance(v, str):
         return v

@@ -18,7 +18,6 @@ Every transformed column is computed once into a :class:`bank.ColumnBank`.
 from __future__ import annotations
 
 import math
-import time
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any
@@ -42,6 +41,7 @@ from ..core.errors import (
 from ..core.likelihood import fit_transform
 from ..core.numbers import count_of, rows_named
 from ..core.spec import PredictorSpec, Specification, categorical_levels, term_label
+from .deadline import Deadline
 
 DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
 DEFAULT_PREDICTOR = ("identity", "log", "sqrt", "reciprocal", "square")
@@ -326,14 +326,14 @@ def screening_powers(
     responses: list[tr.Transform],
     intercept: bool,
     seed: int,
-    deadline: float | None = None,
+    deadline: Deadline | None = None,
 ) -> tuple[dict[tuple[tr.Transform, str], dict[str, Any]], dict[tuple[tr.Transform, str], float]]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
     For each fixed response scale and each predictor offering an estimated power, the
     power is estimated with the other predictors untransformed (one power at a time, so a
-    predictor without effect cannot stall the others).  Past ``deadline`` (a
-    ``time.perf_counter`` value) no further power is estimated: the search then runs
+    predictor without effect cannot stall the others).  Past the request's
+    ``deadline`` no further power is estimated: the search then runs
     without the missing estimates' ladder rungs.  Returns
     ({(response, column): estimate summary}, {(response, column): power}).
     """
@@ -363,7 +363,7 @@ def screening_powers(
         if not np.all(np.isfinite(z)):
             continue
         for c in cols:
-            if deadline is not None and time.perf_counter() > deadline:
+            if deadline is not None and deadline.passed():
                 return info, powers
             fixed = ([np.ones(rows.size)] if intercept else []) + [
                 v for other in prep.predictors if other != c for v in base[other]

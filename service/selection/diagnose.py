@@ -14,7 +14,7 @@ from ..core.folds import make_plan
 from ..core.spec import Specification, build_design, resolve_predictor_transforms
 from .candidates import check_explicit
 from .entries import entry_for
-from .plots import specification_plots
+from .plots import fit_plots
 from .search_setup import SearchOptions, check_rows
 
 
@@ -91,9 +91,10 @@ def diagnose_specification(
             ),
             "rule": "a single specification as sent; nothing was ranked",
         }
-        entry = entry_for(spec, cv, plan, prep, parts, opts, service_version)
-        plots = specification_plots(spec, prep, opts.alpha, opts.seed, max_points)
+        listed = entry_for(spec, cv, plan, prep, parts, opts, service_version)
+        plots = fit_plots(listed.design, listed.fit, prep, opts.alpha, opts.seed, max_points)
     except CandidateFailure as exc:
         raise ModelFailure(f"the specification cannot be fitted: {exc.reason}") from None
+    entry = listed.body
     entry["score"]["parts"]["conditions_failed"] = failed(entry["conditions"])
     return entry, plots

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -183,11 +184,17 @@ def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
 
 
 def attach_cv_plus(
-    entry: dict[str, Any], oof: OutOfFold | None, why_none: str, prep: Prepared, plan: CVPlan
+    entry: dict[str, Any],
+    design: Design,
+    oof: OutOfFold | None,
+    why_none: str,
+    prep: Prepared,
+    plan: CVPlan,
 ) -> None:
-    """Store the CV+ block in ``entry``'s model (checksum renewed; signing comes later in the
-    web layer) and set the entry's default interval method from it."""
-    block = stored_block(oof, entry["_design"].X, prep.y, plan.scheme, why_none)
+    """Store the CV+ block in the entry body's model (checksum renewed; signing comes later
+    in the web layer) and set the entry's default interval method from it.  ``design`` is
+    the entry's all-rows design (:attr:`Entry.design`)."""
+    block = stored_block(oof, design.X, prep.y, plan.scheme, why_none)
     model = entry["model"]
     model["cv_plus"] = block
     model["checksum"] = checksum(model)
@@ -201,6 +208,17 @@ def attach_cv_plus(
     }
 
 
+@dataclass(frozen=True)
+class Entry:
+    """One listed specification: its contract ``body`` and the all-rows ``design`` and
+    ``fit`` it was computed from (for the CV+ block, the lambda context and plot data,
+    which then need no second fit)."""
+
+    body: dict[str, Any]
+    design: Design
+    fit: OLSFit
+
+
 def entry_for(
     spec: Specification,
     cv: CVResult,
@@ -209,7 +227,7 @@ def entry_for(
     parts: dict[str, Any],
     opts: SearchOptions,
     service_version: str,
-) -> dict[str, Any]:
+) -> Entry:
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
     estimates = {}
@@ -296,6 +314,4 @@ def entry_for(
     )
     if estimates:
         entry["estimates"] = estimates
-    entry["_design"] = design
-    entry["_fit"] = fit
-    return entry
+    return Entry(entry, design, fit)

@@ -12,7 +12,8 @@ from typing import Any
 from ..core.data import Prepared, split_groups
 from ..core.errors import BestscaleError, BudgetError, ErrorRecord
 from ..core.numbers import count_of
-from .search import run_selection
+from .deadline import Deadline
+from .search import select
 from .search_setup import SearchOptions
 from .trust import assess_trust
 
@@ -37,13 +38,15 @@ def run_grouped(
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
-    pool's map to spread the groups over workers.  A group that cannot be modelled
+    pool's map to spread the groups over workers.  The groups share ``opts.deadline``
+    (an HTTP request's); when it is None each group's time limit counts from its own start.  A group that cannot be modelled
     gets a ``problem`` entry with its reason (an :class:`ErrorRecord`, which the caller
     renders) while the others go on.
     """
     t0 = time.perf_counter()
-    # one budget for the whole request, not per group (wall clock: shared by worker processes)
-    deadline = time.time() + opts.seconds_left()
+    # the request's one deadline, shared by its groups; without one (a batch of segments)
+    # every group starts its own from opts.time_limit_s
+    deadline = opts.deadline
     parts = group_parts(prep)
     names = list(parts)
     tasks = [GroupTask(sub, opts, service_version, deadline=deadline) for sub in parts.values()]
@@ -90,16 +93,15 @@ class GroupTask:
 
     ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ErrorRecord}`` entry
     of a group already known to be unusable (passed through).  ``deadline`` is the request's
-    wall-clock deadline (a ``time.time()`` value, shared by the processes of one machine):
-    a group reached after it gets a 503 problem, one reached before it searches within what
-    is left.
+    one deadline: a group reached after it gets a 503 problem, one reached before it
+    searches within what is left.
     """
 
     rows: Prepared | dict[str, Any]
     opts: SearchOptions
     service_version: str
     trust: GroupTrust | None = None
-    deadline: float | None = None
+    deadline: Deadline | None = None
 
 
 def select_group(task: GroupTask) -> dict[str, Any]:
@@ -108,23 +110,25 @@ def select_group(task: GroupTask) -> dict[str, Any]:
     on purpose.
     Module-level, and its task is a frozen dataclass, so both pickle."""
     sub, opts, service_version = task.rows, task.opts, task.service_version
-    trust, deadline = task.trust, task.deadline
+    trust = task.trust
     if isinstance(sub, dict):
         return sub
-    if deadline is not None:
-        remaining = deadline - time.time()
-        if remaining <= 0:
-            return {
-                "problem": ErrorRecord.of(
-                    BudgetError(
-                        f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
-                        "group was reached; send fewer groups per request or raise limits.time_limit_s"
-                    )
+    # the request's deadline, or (a batch segment) one started now for this group's search
+    # and trust together
+    deadline = task.deadline if task.deadline is not None else opts.clock()
+    if deadline.passed():
+        return {
+            "problem": ErrorRecord.of(
+                BudgetError(
+                    f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
+                    "group was reached; send fewer groups per request or raise limits.time_limit_s"
                 )
-            }
-        opts = replace(opts, time_limit_s=remaining)
+            )
+        }
+    opts = replace(opts, deadline=deadline)
     try:
-        body = run_selection(sub, opts, service_version)
+        result = select(sub, opts, service_version)
+        body = result.body
         if trust is not None and (trust.stability or trust.optimism):
             stability, optimism = trust.stability, trust.optimism
             resamples, outer_folds = trust.resamples, trust.outer_folds
@@ -136,14 +140,9 @@ def select_group(task: GroupTask) -> dict[str, Any]:
                 stability,
                 optimism,
                 resamples,
-                selection=body,
+                selection=result,
                 outer_folds=outer_folds,
             )
     except BestscaleError as exc:
         return {"problem": ErrorRecord.of(exc)}
-    body.pop("_scored", None)
-    body.pop("_plan", None)
-    body["ranking"] = [
-        {k: v for k, v in e.items() if not k.startswith("_")} for e in body["ranking"]
-    ]
     return body

@@ -12,8 +12,10 @@ from typing import Any
 from ..core.condition_rules import condition_inputs
 from ..core.data import Prepared, split_groups
 from ..core.errors import CandidateFailure
+from ..core.fitting import OLSFit
 from ..core.plots import diagnostic_plots
-from ..core.spec import Specification
+from ..core.spec import Design, Specification
+from .deadline import Deadline
 from .entries import fitted_model
 
 #: ranked specifications shown in detail (figures, coefficients, interpretation)
@@ -34,6 +36,7 @@ def report_plots(
     alpha: float,
     seed: int,
     max_points: int = PLOT_MAX_POINTS,
+    deadline: Deadline | None = None,
 ) -> ReportPlots:
     """Plot data of the specifications shown in detail, keyed by ``(group, rank)``.
 
@@ -41,7 +44,8 @@ def report_plots(
     rows it was computed from.  Without groups the first :data:`DETAIL_TOP` ranks are
     drawn (group ``None``); with groups, rank 1 of the first :data:`GROUP_DETAIL_LIMIT`
     groups that have a ranking.  A value is the dict of ``diagnostic_plots`` or, when the
-    specification cannot be refitted, the reason as a string.
+    specification cannot be refitted, the reason as a string.  Past the request's
+    ``deadline`` only the first specification is drawn; the others carry the reason.
     """
     out: ReportPlots = {}
     if body.get("groups"):
@@ -53,12 +57,32 @@ def report_plots(
             sub = parts.get(name)
             if not gbody.get("ranking") or sub is None or isinstance(sub, Exception):
                 continue
-            out[(name, 1)] = _plots_for(gbody["ranking"][0], sub, alpha, seed, max_points)
+            out[(name, 1)] = (
+                _out_of_time(deadline)
+                if shown and _passed(deadline)
+                else _plots_for(gbody["ranking"][0], sub, alpha, seed, max_points)
+            )
             shown += 1
         return out
-    for entry in body.get("ranking", [])[:DETAIL_TOP]:
-        out[(None, entry["rank"])] = _plots_for(entry, prep, alpha, seed, max_points)
+    for i, entry in enumerate(body.get("ranking", [])[:DETAIL_TOP]):
+        out[(None, entry["rank"])] = (
+            _out_of_time(deadline)
+            if i and _passed(deadline)
+            else _plots_for(entry, prep, alpha, seed, max_points)
+        )
     return out
+
+
+def _passed(deadline: Deadline | None) -> bool:
+    return deadline is not None and deadline.passed()
+
+
+def _out_of_time(deadline: Deadline | None) -> str:
+    assert deadline is not None  # only called once it has passed
+    return (
+        f"the request's time limit of {deadline.limit_s:g} s ran out before this figure "
+        "was drawn; raise limits.time_limit_s to see it"
+    )
 
 
 def specification_plots(
@@ -67,6 +91,14 @@ def specification_plots(
     """Plot data of one specification fitted on all of ``prep``'s rows (what
     ``/v1/diagnostics`` returns); raises :class:`CandidateFailure` when it cannot be fitted."""
     _, design, fit, _ = fitted_model(spec, prep)
+    return fit_plots(design, fit, prep, alpha, seed, max_points)
+
+
+def fit_plots(
+    design: Design, fit: OLSFit, prep: Prepared, alpha: float, seed: int, max_points: int
+) -> dict[str, Any]:
+    """Plot data of an all-rows fit already made (an :class:`.entries.Entry`'s design and
+    fit), so a caller that has the entry does not fit it again."""
     inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, alpha)
     return diagnostic_plots(inp, max_points=max_points, seed=seed)
 

@@ -41,10 +41,11 @@ from ..core.fastcv import Dynamic, OutOfFold, Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
-from ..core.spec import PredictorSpec, Specification, SpecKey, build_design
+from ..core.spec import Design, PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
 from . import incumbent
-from .entries import attach_cv_plus, entry_for
+from .deadline import Deadline
+from .entries import Entry, attach_cv_plus, entry_for
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
@@ -110,19 +111,25 @@ class _Evaluator:
         self.scored.append(s)
         return s
 
-    def out_of_fold(self, s: Scored) -> tuple[OutOfFold | None, str]:
+    def out_of_fold(self, s: Scored, deadline: Deadline) -> tuple[OutOfFold | None, str]:
         """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
         or None and why: the same folds scored again, so the numbers are the search's own.
-        Specifications whose predictor powers are estimated inside every fold keep none."""
+        Specifications whose predictor powers are estimated inside every fold keep none;
+        past the request's deadline none is computed."""
         spec = s.open_spec or s.spec
         if any(bt.is_open(p.transform) for p in spec.predictors):
             return None, POWERS_PER_FOLD
+        if deadline.passed():
+            return None, (
+                f"the request's time limit of {deadline.limit_s:g} s ran out before this "
+                "entry's out-of-fold fits were kept; raise limits.time_limit_s to get them"
+            )
         try:
             cols, names, _ = self.space.design_of(spec)
-            sc = self.scorer.score(spec.response_transform, cols, names, keep_out_of_fold=True)
+            oof = self.scorer.out_of_fold(spec.response_transform, cols, names)
         except CandidateFailure as exc:
             return None, f"its folds could not be scored again ({exc.reason})"
-        return sc.out_of_fold, NOT_KEPT
+        return oof, NOT_KEPT
 
     def _score(self, spec: Specification) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
@@ -164,14 +171,34 @@ class _Evaluator:
         return Scored(concrete, res, spec)
 
 
+@dataclass(frozen=True)
+class Selection:
+    """One search's result: the contract's selection ``body`` (without service_version),
+    the distinct-scale candidates it ranked (``scored``; trust re-ranks them) and its
+    fold ``plan``."""
+
+    body: dict[str, Any]
+    scored: list[Scored]
+    plan: CVPlan
+
+
 def run_selection(
     prep: Prepared,
     opts: SearchOptions,
     service_version: str,
 ) -> dict[str, Any]:
     """Search, score and rank; returns the contract's selection body (without service_version)."""
+    return select(prep, opts, service_version).body
+
+
+def select(
+    prep: Prepared,
+    opts: SearchOptions,
+    service_version: str,
+) -> Selection:
+    """Search, score and rank (:class:`Selection`)."""
     t0 = time.perf_counter()
-    deadline = t0 + opts.seconds_left()
+    deadline = opts.clock()
     resp = response_candidates(prep, opts)
     if not resp:
         raise InputError.at(ResponseChoice(), f"no response transform applies to '{prep.response}'")
@@ -257,26 +284,29 @@ def run_selection(
     listable, read_notes, scales_info = distinct_scales(scored, ev, prep, plan, shift_needed)
     band = Band.of(listable)
     ranked, _ = rank(listable, plan.folds, band)
-    cache: dict[SpecKey, dict[str, Any]] = {}
+    cache: dict[SpecKey, Entry] = {}
 
-    def full(s: Scored, parts: dict[str, Any]) -> dict[str, Any]:
+    def full(s: Scored, parts: dict[str, Any]) -> Entry:
         key = s.spec.key
         if key not in cache:
-            cache[key] = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
+            made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
             if key in ev.powers:
-                cache[key].setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
+                made.body.setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
             if key in read_notes:
-                cache[key].setdefault("estimates", {})["read_as_ladder"] = read_notes[key]
+                made.body.setdefault("estimates", {})["read_as_ladder"] = read_notes[key]
+            cache[key] = made
         return cache[key]
 
     ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
     entries: list[dict[str, Any]] = []
+    first: Entry | None = None
     for s, parts in ranked:
         if len(entries) >= opts.top:
             break
         try:
-            entry = dict(full(s, parts))
+            listed = full(s, parts)
+            entry = dict(listed.body)
         except CandidateFailure as exc:
             warnings.append(
                 f"A specification that scored in cross-validation could not be "
@@ -285,7 +315,8 @@ def run_selection(
             continue
         i = len(entries)
         # CV+ fits only for the entries returned (the band's assessed members need none)
-        attach_cv_plus(entry, *ev.out_of_fold(s), prep, plan)
+        attach_cv_plus(entry, listed.design, *ev.out_of_fold(s, deadline), prep, plan)
+        first = first or listed
         if "conditions_failed" not in parts:
             parts = {
                 **parts,
@@ -329,7 +360,11 @@ def run_selection(
         "exact_refits": int(sum(s.cv.exact_refits for s in scored)),
     }
     if box_cox_info is not None:
-        search["box_cox"] = {**box_cox_info, **_box_cox_context(box_cox_info, entries[0], prep)}
+        assert first is not None  # listed with entries[0]
+        search["box_cox"] = {
+            **box_cox_info,
+            **_box_cox_context(box_cox_info, entries[0], first.design, prep),
+        }
     if bt_info:
         search["predictor_powers"] = _powers_block(bt_info)
     if strategy == "screened":
@@ -349,8 +384,8 @@ def run_selection(
     body: dict[str, Any] = {"data": prep.data_summary(), "search": search, "ranking": entries}
     if incumbent_block is not None:
         body["incumbent"] = incumbent_block
-    body.update(warnings=warnings, _scored=listable, _plan=plan)
-    return body
+    body["warnings"] = warnings
+    return Selection(body, listable, plan)
 
 
 def _incumbent(
@@ -384,7 +419,9 @@ def _incumbent(
             again, _ = rank([*scored, Scored(spec, inc_cv)], plan.folds, band)
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
         try:
-            conditions = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "")["conditions"]
+            conditions = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "").body[
+                "conditions"
+            ]
         except CandidateFailure:
             conditions = None
     winner = ranked[0][0]
@@ -545,7 +582,7 @@ def lead_members(opts: SearchOptions) -> int:
 
 def _order_by_conditions(
     ranked: list[tuple[Scored, dict[str, Any]]],
-    full: Callable[[Scored, dict[str, Any]], dict[str, Any]],
+    full: Callable[[Scored, dict[str, Any]], Entry],
     opts: SearchOptions,
     warnings: list[str],
 ) -> tuple[list[tuple[Scored, dict[str, Any]]], frozenset[str], int]:
@@ -559,7 +596,7 @@ def _order_by_conditions(
     for i in band:
         s, parts = ranked[i]
         try:
-            conds[i] = full(s, parts).get("conditions")
+            conds[i] = full(s, parts).body.get("conditions")
         except CandidateFailure as exc:
             parts_of[i] = {**parts, "conditions_failed": None, "conditions_note": exc.reason}
             n_failed[i] = len(CONDITION_NAMES) + 1
@@ -709,7 +746,9 @@ def _screen_scales(
     return out
 
 
-def _box_cox_context(info: dict[str, Any], first: dict[str, Any], prep: Prepared) -> dict[str, Any]:
+def _box_cox_context(
+    info: dict[str, Any], first: dict[str, Any], design: Design, prep: Prepared
+) -> dict[str, Any]:
     """When rank 1's response scale is not what the reported lambda suggests: lambda again
     on rank 1's design, with one sentence saying that lambda depends on the predictor scales."""
     t = tr.from_dict(first["specification"]["response"]["transform"])
@@ -720,8 +759,7 @@ def _box_cox_context(info: dict[str, Any], first: dict[str, Any], prep: Prepared
         if suggested is None
         else (t.name == suggested.name and t.exponent == suggested.exponent)
     )
-    design = first.get("_design")
-    if same or design is None or not np.all(prep.y > 0):
+    if same or not np.all(prep.y > 0):
         return {}
     try:
         est = estimate_lambda("box_cox", prep.y, design.X)

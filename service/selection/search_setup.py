@@ -5,7 +5,6 @@ table can carry the requested cross-validation (:func:`check_rows`)."""
 from __future__ import annotations
 
 import math
-import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
@@ -18,6 +17,7 @@ from ..core.data import Prepared
 from ..core.errors import InputError, Option
 from ..core.numbers import count_of
 from ..core.spec import Specification
+from .deadline import Deadline
 
 
 @dataclass
@@ -37,8 +37,9 @@ class SearchOptions:
     incumbent: dict[str, Any] | None = None  # contract Specification in use
     strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
     scheme: str = "random"  # CV folds: "random" K-fold or "blocked" (contiguous in order)
-    # the end of the whole request (time.time()): search, stability and optimism share it
-    deadline_at: float | None = None
+    # the request's one deadline: search, entries, stability, optimism and groups share it;
+    # None: each call of run_selection / assess_trust starts its own from time_limit_s
+    deadline: Deadline | None = None
     # () -> bool, True once the caller has gone; checked between candidates (in-process only)
     stop: Callable[[], bool] | None = None
 
@@ -47,11 +48,9 @@ class SearchOptions:
         state["stop"] = None  # a callable of the request's thread does not cross processes
         return state
 
-    def seconds_left(self) -> float:
-        """The time limit, or less when the request's own deadline comes first."""
-        if self.deadline_at is None:
-            return self.time_limit_s
-        return min(self.time_limit_s, self.deadline_at - time.time())
+    def clock(self) -> Deadline:
+        """The request's deadline, or one ``time_limit_s`` from now when none was set."""
+        return self.deadline if self.deadline is not None else Deadline.after(self.time_limit_s)
 
     def stopped(self) -> bool:
         return self.stop is not None and bool(self.stop())

@@ -44,6 +44,7 @@ from ..core import boxtidwell as bt
 from ..core import transforms as tr
 from ..core.fitting import solve_batch
 from .candidates import MAX_ESTIMATED_POWERS, Space, allowed, make_spec
+from .deadline import Deadline
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..core.data import Prepared
@@ -62,7 +63,7 @@ class Budget:
     """Exact scorings left and the deadline; ``spent`` says why the search stopped."""
 
     def __init__(
-        self, max_candidates: int, deadline: float, stop: Callable[[], bool] | None = None
+        self, max_candidates: int, deadline: Deadline, stop: Callable[[], bool] | None = None
     ):
         self.left = max_candidates
         self.deadline = deadline
@@ -72,10 +73,10 @@ class Budget:
 
     def in_time(self) -> bool:
         """False past the deadline or once ``stop()`` says the caller is gone."""
-        now = time.perf_counter()
-        if now > self.deadline:
+        if self.deadline.passed():
             self.spent = self.spent or "time_limit_s"
             return False
+        now = time.perf_counter()
         if self.stop is not None and now >= self._next_stop_check:
             self._next_stop_check = now + STOP_EVERY_S
             if self.stop():

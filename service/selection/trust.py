@@ -27,7 +27,7 @@ verdicts assessed once on all rows.
 error estimation when using cross-validation for model selection", BMC
 Bioinformatics 7:91): the outer folds are the search's own partition (repeat 0 of
 its plan when the outer fold count equals the search's); inside every outer training
-part the whole search (:func:`search.run_selection`, with its Box-Cox rung,
+part the whole search (:func:`search.select`, with its Box-Cox rung,
 one-standard-error band and condition re-ordering) is run again, and the
 specification it selects is refitted on that training part and scored on the
 held-out outer fold on the original response scale. The pooled held-out error
@@ -72,8 +72,9 @@ from ..core.data import Prepared
 from ..core.errors import BestscaleError, CandidateFailure, InputError, Option
 from ..core.folds import CVPlan, make_plan
 from ..core.spec import Specification, SpecKey, build_design
+from .deadline import Deadline
 from .entries import fitted_model
-from .search import rank, run_selection
+from .search import Selection, rank, select
 from .search_setup import Scored, SearchOptions
 
 DEFAULT_RESAMPLES = 20
@@ -234,19 +235,17 @@ def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
 
 
 def _resample_chunk(
-    task: tuple[_StabilityJob, list[int], float, Callable[[], bool] | None],
+    task: tuple[_StabilityJob, list[int], Deadline, Callable[[], bool] | None],
 ) -> list[Any]:
-    """Worker: ``(job, resample indices, wall-clock deadline, stop)`` -> one result per index.
-
-    ``None`` marks a resample not run because the deadline passed (``time.time``
-    is shared by the processes of one machine).
+    """Worker: ``(job, resample indices, the request's deadline, stop)`` -> one result per
+    index.  ``None`` marks a resample not run because the deadline passed.
     """
     job, indices, deadline, stop = task
     out: list[Any] = []
     gone = False
     for b in indices:
         gone = gone or (stop is not None and stop())
-        if gone or time.time() > deadline:
+        if gone or deadline.passed():
             out.append(None)
             continue
         out.append(_one_resample(job, b))
@@ -302,7 +301,7 @@ def _stability(
     scored: list[Scored],
     winner: Scored,
     resamples: int,
-    deadline: float,
+    deadline: Deadline,
     mapper: Mapper,
     chunks: int,
 ) -> dict[str, Any]:
@@ -430,18 +429,19 @@ def _stability(
 
 
 # --------------------------------------------------------------------------- optimism
-def _inner_search(task: tuple[Prepared, SearchOptions, str, float]) -> dict[str, Any]:
-    """Worker: the whole search on one outer training part; the selected candidate or why not."""
+def _inner_search(task: tuple[Prepared, SearchOptions, str, Deadline]) -> dict[str, Any]:
+    """Worker: the whole search on one outer training part, within the request's deadline;
+    the selected candidate or why not."""
     sub, opts, service_version, deadline = task
-    left = deadline - time.time()
-    if left <= 0:
+    if deadline.passed():
         return {"problem": "not run: the time limit was reached", "not_run": True}
     try:
-        body = run_selection(sub, replace(opts, time_limit_s=left), service_version)
+        result = select(sub, replace(opts, deadline=deadline), service_version)
     except BestscaleError as exc:
         return {"problem": exc.detail}
+    body = result.body
     key = scale_key(body["ranking"][0]["specification"])
-    chosen = _find(body["_scored"], key)
+    chosen = _find(result.scored, key)
     if chosen is None:  # the ranking entry always comes from the scored list
         return {"problem": "the selected specification was not among the scored candidates"}
     return {"spec": chosen.spec, "complete": bool(body["search"]["complete"])}
@@ -454,7 +454,7 @@ def _optimism(
     service_version: str,
     outer_folds: int,
     inner_folds: int,
-    deadline: float,
+    deadline: Deadline,
     mapper: Mapper,
 ) -> dict[str, Any]:
     inner_folds = min(inner_folds, opts.folds)
@@ -585,7 +585,7 @@ def assess_trust(
     optimism: bool,
     resamples: int | None = None,
     *,
-    selection: dict[str, Any] | None = None,
+    selection: Selection | None = None,
     outer_folds: int | None = None,
     inner_folds: int = DEFAULT_INNER_FOLDS,
     time_limit_s: float | None = None,
@@ -594,14 +594,13 @@ def assess_trust(
 ) -> dict[str, Any]:
     """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
 
-    ``selection`` is the body :func:`run_selection` returned for ``prep`` and
-    ``opts`` (its private ``_scored`` list is reused; without it the search is
-    run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
+    ``selection`` is what :func:`search.select` returned for ``prep`` and ``opts`` (its
+    scored candidates are re-ranked; without it the search is run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
     resamples measure stability; ``outer_folds`` (default: the search's folds)
-    and ``inner_folds`` shape the nested cross-validation.  ``time_limit_s``
-    (default: the request's ``opts.time_limit_s``) bounds each part; what the
-    limit cut short is stated (``complete``) and warned about.  ``mapper(fn, items)`` may
-    spread the resamples (in ``chunks`` parts) and the outer folds over worker
+    and ``inner_folds`` shape the nested cross-validation.  Every part ends by the
+    request's deadline (``opts.deadline``; else ``opts.time_limit_s`` from this call),
+    or sooner with ``time_limit_s``; what the deadline cut short is stated (``complete``)
+    and warned about.  ``mapper(fn, items)`` may spread the resamples (in ``chunks`` parts) and the outer folds over worker
     processes; results do not depend on it.
     """
     t0 = time.perf_counter()
@@ -619,14 +618,12 @@ def assess_trust(
         )
     k_out = opts.folds if outer_folds is None else int(outer_folds)
     budget = opts.time_limit_s if time_limit_s is None else float(time_limit_s)
-    # one deadline for the whole request: the search already spent part of it
-    end = time.time() + budget
-    if opts.deadline_at is not None:
-        end = min(end, opts.deadline_at)
-    scored = selection.get("_scored") if selection is not None else None
-    if scored is None:
-        selection = run_selection(prep, replace(opts, top=1, incumbent=None), service_version)
-        scored = selection["_scored"]
+    # the request's one deadline (the search already spent part of it), or sooner when
+    # this call has a limit of its own
+    end = opts.clock().sooner(time_limit_s)
+    if selection is None:
+        selection = select(prep, replace(opts, top=1, incumbent=None), service_version)
+    scored = selection.scored
     winner = _find(scored, scale_key(winner_spec))
     if winner is None:
         raise ValueError("winner_spec is not one of the scored candidates")

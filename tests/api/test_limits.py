@@ -228,6 +228,28 @@ def test_time_limit_returns_the_best_so_far_and_frees_the_slot(make_app):
     assert pool.busy() == 0
 
 
+def test_one_deadline_bounds_the_work_after_the_search_too(make_app):
+    """The search stops at the time limit; the parts after it (CV+ fits of the entries,
+    stability resamples, the report's figures) ask the same deadline instead of each taking
+    a time limit of its own, and say what they left out."""
+    body = {**_slow_search(1.0), "top": 3, "trust": {"stability": True, "resamples": 50}}
+    with TestClient(make_app()) as c:
+        t0 = time.monotonic()
+        r = c.post(SEL, json=body)
+        took = time.monotonic() - t0
+        page = c.post("/v1/reports", json=body)
+    assert r.status_code == 200, r.text[:300]
+    got = r.json()
+    assert got["search"]["complete"] is False
+    assert got["trust"]["resamples"] == 0  # none started after the deadline
+    assert not got["trust"]["stability_details"]["complete"]
+    kept = [e["model"]["cv_plus"] for e in got["ranking"]]
+    assert all(not b["available"] and "time limit of 1 s ran out" in b["reason"] for b in kept)
+    assert took < 15  # generous: one candidate's scoring past the limit, not a second limit
+    assert page.status_code == 200
+    assert page.text.count("ran out before this figure was drawn") == 2  # ranks 2 and 3
+
+
 def test_time_limit_before_any_candidate_is_503_with_retry_after(make_app):
     app = make_app()
     with TestClient(app) as c:

@@ -52,7 +52,9 @@ def test_options_carry_the_request_and_one_deadline():
     opts = selection_options(req)
     assert (opts.folds, opts.seed, opts.alpha, opts.top) == (4, 3, 0.01, 2)
     assert opts.response_transforms == ["identity", "log"] and opts.time_limit_s == 20
-    assert before + 20 <= opts.deadline_at <= time.time() + 20
+    assert opts.deadline is not None and opts.deadline.limit_s == 20
+    assert before + 20 <= opts.deadline.at <= time.time() + 20
+    assert opts.clock() is opts.deadline  # every part of the request asks the same clock
 
 
 def test_limits_past_the_settings_point_at_the_field():

@@ -42,6 +42,7 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
+import dask
 from _common import machine, pin_blas
 from groups import zones
 from service.api.schemas import SelectionRequest
@@ -85,12 +86,15 @@ def _results(out: Path) -> dict:
 
 def cpu_counted(name, sub, opts, version, model):
     """``run_segment`` that also reports the CPU seconds its task took (removed again before
-    the file is written)."""
+    the file is written): of its process while it ran (``_task_cpu_s``: in a Dask worker
+    this includes the worker's own threads, its event loop, heartbeats and profiler) and of
+    the thread that ran it alone (``_task_thread_s``: the selection's own work)."""
     from service.batch import run_segment
 
-    c = time.process_time()
+    c, th = time.process_time(), time.thread_time()
     body = run_segment(name, sub, opts, version, model)
     body["_task_cpu_s"] = time.process_time() - c
+    body["_task_thread_s"] = time.thread_time() - th
     return body
 
 
@@ -101,6 +105,12 @@ def main() -> int:
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--search", choices=sorted(SEARCHES), default="reduced")
     ap.add_argument("--skip-inline", action="store_true", help="pool and cluster only")
+    ap.add_argument(
+        "--worker-profile",
+        choices=("on", "off"),
+        default="on",
+        help="Dask's statistical profiler in the workers (distributed.worker.profile.enabled)",
+    )
     args = ap.parse_args()
     pin_blas(1)
     print(machine())
@@ -129,11 +139,12 @@ def main() -> int:
         tasks, and (cluster) of the worker processes in all, so the rest is Dask's own work
         in the workers."""
         job = Job(tmp / name, body, prep, opts, "bench")
-        in_tasks = [0.0]
+        in_tasks = [0.0, 0.0]
 
         def counted(tasks):
             for seg, b in runner(tasks):
                 in_tasks[0] += b.pop("_task_cpu_s", 0.0)
+                in_tasks[1] += b.pop("_task_thread_s", 0.0)
                 yield seg, b
 
         w0 = worker_cpu() if worker_cpu else 0.0
@@ -142,14 +153,15 @@ def main() -> int:
         dt = time.perf_counter() - t
         here = time.process_time() - c0
         work = (worker_cpu() - w0) if worker_cpu else float("nan")
-        cpu[name] = (here, in_tasks[0], work)
+        cpu[name] = (here, in_tasks[0], work, in_tasks[1])
         c = summary["counts"]
         ms = 1000 / args.segments
         print(
             f"{name:<23}: {dt:8.1f} s  {args.segments / dt:7.2f} segments/s  "
             f"({dt * ms:.1f} ms per segment; {c['ok']} ok, {c['failed']} failed)\n"
             f"{'':<23}  CPU per segment: {here * ms:.1f} ms here, {in_tasks[0] * ms:.1f} ms in "
-            f"tasks" + (f", {work * ms:.1f} ms in worker processes" if worker_cpu else "")
+            f"tasks ({in_tasks[1] * ms:.1f} ms in the task's own thread)"
+            + (f", {work * ms:.1f} ms in worker processes" if worker_cpu else "")
         )
         return dt
 
@@ -162,10 +174,15 @@ def main() -> int:
     runs.append(f"pool, {args.workers} processes")
     t_pool = timed(runs[-1], partial(run_pool, processes=args.workers, fn=cpu_counted))
     t = time.perf_counter()
-    session = DaskSession("local", args.workers)
+    # the workers inherit this process's Dask configuration (the Nanny passes it on)
+    with dask.config.set({"distributed.worker.profile.enabled": args.worker_profile == "on"}):
+        session = DaskSession("local", args.workers)
     session.client.run(lambda: __import__("service.batch"))  # workers import the code once
     t_start = time.perf_counter() - t
-    print(f"cluster start-up (once): {t_start:8.1f} s  dashboard {session.dashboard}")
+    print(
+        f"cluster start-up (once): {t_start:8.1f} s  dashboard {session.dashboard}  "
+        f"(worker profiler {args.worker_profile})"
+    )
 
     def cluster_cpu() -> float:
         return sum(session.client.run(time.process_time).values())
@@ -202,13 +219,15 @@ def main() -> int:
     if t_in is not None:
         ratio("pool / in-process", t_pool, t_in)
         ratio("scatter / in-process", t_scatter, t_in)
-    pool_here, pool_tasks, _ = cpu[runs[-3]]
+    pool_here, pool_tasks, _, pool_thread = cpu[runs[-3]]
     for name in runs[-2:]:
-        here, tasks, work = cpu[name]
+        here, tasks, work, thread = cpu[name]
         print(
-            f"CPU {name} / pool: in tasks {tasks / pool_tasks:.3f}, here "
-            f"{here / pool_here:.3f}; Dask's own work in the workers "
-            f"{(work - tasks) / args.segments * 1000:+.1f} ms per segment"
+            f"CPU {name} / pool: in tasks {tasks / pool_tasks:.3f} (task thread alone "
+            f"{thread / pool_thread:.3f}), here {here / pool_here:.3f}; the worker's other "
+            f"threads while a task ran {(tasks - thread) / args.segments * 1000:+.1f} ms, "
+            f"Dask's own work between tasks {(work - tasks) / args.segments * 1000:+.1f} ms "
+            "per segment"
         )
     results = [_results(tmp / r) for r in runs]
     same = all(r == results[0] for r in results[1:])

@@ -5,7 +5,7 @@ Run by hand from the repository root (never in CI):
     python tests/benchmarks/trust.py [--rows 3000] [--resamples 20] [--processes 1]
 
 Invented data: the shipped demo scenario (water-main repair costs) at ``rows`` rows.  The
-baseline is ``run_selection`` with the service's default options, measured in the same
+baseline is ``select`` with the service's default options, measured in the same
 invocation; stability and optimism are timed separately with their defaults and printed
 as multiples of it.  With ``--processes 2`` the resamples and outer folds also run on a
 process pool (``workers.process_mapper``) and the results are checked to be identical.
@@ -24,7 +24,7 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 from service.api.encode import to_jsonable
 from service.core.data import prepare
 from service.demo import demo_columns
-from service.selection.search import run_selection
+from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from service.selection.trust import assess_trust
 from service.selection.workers import process_mapper
@@ -51,8 +51,8 @@ def main() -> int:
         ["pipe_length_m", "pipe_age_years", "soil"],
     )
     opts = SearchOptions(time_limit_s=600.0)
-    body, t_search = _timed(lambda: run_selection(prep, opts, "bench"))
-    winner = body["ranking"][0]["specification"]
+    result, t_search = _timed(lambda: select(prep, opts, "bench"))
+    winner = result.body["ranking"][0]["specification"]
 
     def trust(stability, optimism, mapper=map, chunks=1):
         return assess_trust(
@@ -63,7 +63,7 @@ def main() -> int:
             stability,
             optimism,
             args.resamples,
-            selection=body,
+            selection=result,
             mapper=mapper,
             chunks=chunks,
         )
@@ -72,7 +72,9 @@ def main() -> int:
     op, t_op = _timed(lambda: trust(False, True))
     det = st["stability_details"]
     o = op["optimism"]
-    print(f"rows                  : {args.rows} ({body['search']['candidates_scored']} candidates)")
+    print(
+        f"rows                  : {args.rows} ({result.body['search']['candidates_scored']} candidates)"
+    )
     print(f"search (baseline)     : {t_search:7.1f} s")
     print(
         f"stability             : {t_st:7.1f} s  = {t_st / t_search:.2f} x search  "

@@ -11,7 +11,7 @@ from service.core.crossval import cross_validate
 from service.core.data import prepare
 from service.core.folds import make_plan
 from service.core.spec import build_design
-from service.selection.search import run_selection
+from service.selection.search import run_selection, select
 from service.selection.search_setup import SearchOptions
 
 
@@ -33,10 +33,11 @@ def test_every_candidate_is_scored_on_the_blocked_folds():
         folds=4,
         scheme="blocked",
     )
-    out = run_selection(prep, opts, "test")
+    result = select(prep, opts, "test")
+    out = result.body
     plan = make_plan(prep.n, 4, 1, 0, scheme="blocked", order=prep.order)
-    assert len(out["_scored"]) >= 6
-    for s in out["_scored"]:
+    assert len(result.scored) >= 6
+    for s in result.scored:
         d = build_design(s.spec, prep)
         fresh = cross_validate(
             d.X, prep.y, s.spec.response_transform, plan, tr.needs_shift(prep.y), d.names

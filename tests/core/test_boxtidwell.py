@@ -14,7 +14,7 @@ from scipy.optimize import curve_fit
 from service.core import boxtidwell as bt
 from service.core.data import prepare
 from service.core.folds import make_plan
-from service.selection.search import run_selection
+from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 
 
@@ -115,8 +115,8 @@ def test_power_is_estimated_again_in_every_training_fold():
     y = 2.0 + 3.0 * x**-0.3 + rng.normal(0, 0.05, n)
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
     opts = SearchOptions(response_transforms=["identity"], predictor_transforms=["power"], folds=4)
-    out = run_selection(prep, opts, "t")
-    est = [s for s in out["_scored"] if s.cv.fold_powers]
+    out = select(prep, opts, "t")
+    est = [s for s in out.scored if s.cv.fold_powers]
     assert est, "the estimated power was not scored"
     s = est[0]
     plan = make_plan(n, 4, 1, 0)
@@ -128,7 +128,7 @@ def test_power_is_estimated_again_in_every_training_fold():
     full = bt.estimate_powers(y, np.ones((n, 1)), x).powers[0]
     assert s.spec.predictors[0].transform.exponent == pytest.approx(full, abs=1e-9)
     assert len({round(a[0], 8) for a in s.cv.fold_powers}) > 1
-    rep = out["search"]["predictor_powers"]["x"][0]
+    rep = out.body["search"]["predictor_powers"]["x"][0]
     assert rep["power"] == pytest.approx(-0.3, abs=0.05)  # source: simulation truth
 
 
@@ -137,6 +137,7 @@ def test_screening_powers_stop_at_the_deadline():
 
     from service.core import transforms as tr
     from service.selection import candidates as cand
+    from service.selection.deadline import Deadline
 
     rng = np.random.default_rng(9)
     n = 300
@@ -149,9 +150,8 @@ def test_screening_powers_stop_at_the_deadline():
     resp = [tr.Transform("identity"), tr.Transform("log")]
     info, powers = cand.screening_powers(prep, preds, resp, True, 0)
     assert len(powers) == 6  # 2 response scales x 3 predictors, without a deadline
-    info, powers = cand.screening_powers(
-        prep, preds, resp, True, 0, deadline=time.perf_counter() - 1.0
-    )
+    gone = Deadline(time.time() - 1.0, 60.0)
+    info, powers = cand.screening_powers(prep, preds, resp, True, 0, deadline=gone)
     assert info == {} and powers == {}  # past the deadline nothing more is estimated
 
 

@@ -21,7 +21,7 @@ from service.core.crossval import cross_validate
 from service.core.data import prepare
 from service.core.folds import make_plan
 from service.core.spec import build_design
-from service.selection.search import run_selection
+from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from sklearn.model_selection import KFold
 
@@ -198,9 +198,9 @@ def test_every_candidate_is_scored_on_the_same_folds():
         repeats=2,
         seed=17,
     )
-    out = run_selection(prep, opts, "test")
-    assert len(out["_scored"]) >= 8
-    for s in out["_scored"]:
+    out = select(prep, opts, "test")
+    assert len(out.scored) >= 8
+    for s in out.scored:
         d = build_design(s.spec, prep)
         fresh = cross_validate(
             d.X,

@@ -77,3 +77,29 @@ def test_fold_errors_equal_exact_refits(kind, family):
     np.testing.assert_allclose(res.fold_values, errs, rtol=1e-8)
     if kind == "collinear":
         assert res.exact_refits == plan.n_splits  # every fold took the QR path
+
+
+@pytest.mark.parametrize("family", ["identity", "log"])
+def test_out_of_fold_alone_equals_the_first_repeat_of_a_full_scoring(family):
+    """The CV+ block is the first repeat's fits and held-out residuals; computing it alone
+    must give exactly what a full scoring keeps, and the residuals must be the lstsq ones."""
+    rng = np.random.default_rng(11)
+    n = 90
+    X = _designs("random", rng, n)
+    y = np.exp(1.0 + 0.2 * X[:, 1] + rng.normal(0, 0.1, n))
+    plan = make_plan(n, 4, 3, 8)
+    t, fwd, inv = FAMILIES[family]
+    scorer = Scorer(ColumnBank.of_matrix(X, FoldIndex.of(plan, n)), y, plan, False)
+    cols = list(range(X.shape[1]))
+    full = scorer.score(t, cols, keep_out_of_fold=True).out_of_fold
+    alone = scorer.out_of_fold(t, cols)
+    assert full is not None
+    np.testing.assert_array_equal(alone.fold, full.fold)
+    np.testing.assert_array_equal(alone.residual, full.residual)
+    np.testing.assert_array_equal(alone.coefficients, full.coefficients)
+    sols, _ = _lstsq_cv(X, y, fwd, inv, plan)
+    # source: numpy lstsq refits of the first repeat's folds (rows of _lstsq_cv's output)
+    np.testing.assert_allclose(alone.coefficients, sols[: plan.folds], rtol=1e-8)
+    a = plan.assignments[0]
+    expect = fwd(y) - np.einsum("ij,ij->i", X, sols[a])
+    np.testing.assert_allclose(alone.residual, expect, rtol=1e-8, atol=1e-12)

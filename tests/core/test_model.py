@@ -173,3 +173,27 @@ def test_many_residuals_are_kept_as_evenly_spaced_quantiles():
     assert np.mean(np.exp(values)) == pytest.approx(np.mean(np.exp(e)), rel=1e-3)
     kind, values = model.stored_residuals(e[:7])
     assert kind == "all" and values == e[:7].tolist()
+
+
+def _reference_canon(v):
+    """Every number a float, written out recursively (the definition the fast path keeps)."""
+    if isinstance(v, dict):
+        return {k: _reference_canon(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_reference_canon(x) for x in v]
+    if isinstance(v, bool) or v is None or isinstance(v, str):
+        return v
+    return float(v) if isinstance(v, (int, float)) else v
+
+
+def test_canonical_bytes_keep_their_definition_on_long_number_lists(issued):
+    art, _, _ = issued
+    body = copy.deepcopy(art)
+    body["extra"] = {"ints": [1, 2, 3], "mixed": [1, 2.5, True, None], "floats": [0.1, 2.0]}
+    body["residuals"]["values"] = [
+        int(v) if i % 7 == 0 else v for i, v in enumerate(body["residuals"]["values"])
+    ]
+    clean = {k: v for k, v in body.items() if k not in model.UNSIGNED_FIELDS}
+    # source: json.dumps(sort_keys, compact) of the recursive all-floats form
+    ref = json.dumps(_reference_canon(clean), sort_keys=True, separators=(",", ":"))
+    assert model.canonical_bytes(body) == ref.encode()

@@ -17,6 +17,7 @@ from service.api.errors import record_problem, with_group_problems
 from service.app import app
 from service.core.data import prepare, split_groups
 from service.core.errors import ErrorRecord, Response
+from service.selection.deadline import Deadline
 from service.selection.groups import (
     GroupTask,
     GroupTrust,
@@ -184,9 +185,10 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
     )
     north = split_groups(prep)["north"]
-    late = select_group(GroupTask(north, opts, "test", deadline=time.time() - 1.0))
+    late = select_group(GroupTask(north, opts, "test", deadline=Deadline(time.time() - 1.0, 60)))
     record = late["problem"]  # a neutral record: the web layer or the command line renders it
     assert isinstance(record, ErrorRecord) and record.over_budget and "ran out" in record.detail
+    assert "time limit of 60 s" in record.detail  # the caller's number, not what was left
     assert record_problem(record)["status"] == 503
-    on_time = select_group(GroupTask(north, opts, "test", deadline=time.time() + 600.0))
+    on_time = select_group(GroupTask(north, opts, "test", deadline=Deadline.after(600.0)))
     assert on_time["ranking"][0]["rank"] == 1

@@ -7,10 +7,13 @@ states them.
 
 from __future__ import annotations
 
+import time
+
 import numpy as np
 import pytest
 import statsmodels.api as sm
 from service.core.data import prepare
+from service.selection.deadline import Deadline
 from service.selection.plots import DETAIL_TOP, report_plots
 
 
@@ -80,3 +83,30 @@ def test_groups_show_rank_one_of_each_group_with_a_ranking(case):
     rows = np.flatnonzero(west)
     pos = np.searchsorted(rows, np.asarray(pts["row"]) - 1)  # rows are counted from 1
     np.testing.assert_allclose(pts["y"], ref.resid[pos], rtol=1e-9)
+
+
+def test_past_the_deadline_only_the_first_figure_is_drawn(case):
+    """The request's one deadline also bounds the report's figures: once it has passed, the
+    first specification (or group) is still drawn and the others say why they are not."""
+    cols, *_ = case
+    prep = prepare({"columns": cols}, "y", ["x"])
+    scales = [("log", "log"), ("identity", "identity"), ("sqrt", "log")]
+    body = {"ranking": [{"rank": i + 1, "specification": _spec(*s)} for i, s in enumerate(scales)]}
+    gone = Deadline(time.time() - 1.0, 5.0)
+    out = report_plots(body, prep, 0.05, seed=0, deadline=gone)
+    assert isinstance(out[(None, 1)], dict)
+    for rank in (2, 3):
+        assert "time limit of 5 s ran out" in out[(None, rank)]
+    assert report_plots(body, prep, 0.05, seed=0, deadline=Deadline.after(60)) == report_plots(
+        body, prep, 0.05, seed=0
+    )
+    grouped = prepare({"columns": cols}, "y", ["x"], group_by="pier")
+    gbody = {
+        "groups": {
+            p: {"ranking": [{"rank": 1, "specification": _spec("log", "log")}]}
+            for p in ("north", "south", "west")
+        }
+    }
+    gout = report_plots(gbody, grouped, 0.05, seed=0, deadline=gone)
+    assert isinstance(gout[("north", 1)], dict)
+    assert all(isinstance(gout[(p, 1)], str) for p in ("south", "west"))

@@ -1,13 +1,16 @@
 """Search and ranking rules (the one-standard-error rule, budgets, failures)."""
 
+import time
+
 import numpy as np
 import pytest
 from service.core import transforms as tr
 from service.core.crossval import CVResult
 from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
-from service.core.spec import PredictorSpec, Specification
-from service.selection.search import rank, run_selection
+from service.core.spec import PredictorSpec, Specification, build_design
+from service.selection.deadline import Deadline
+from service.selection.search import rank, run_selection, select
 from service.selection.search_setup import Scored, SearchOptions
 
 
@@ -177,7 +180,33 @@ def test_grouped_selection_shares_one_time_budget():
     prep = prep_fn(
         {"columns": {"y": y.tolist(), "x": x.tolist(), "g": g}}, "y", ["x"], group_by="g"
     )
-    out = run_grouped(prep, SearchOptions(time_limit_s=1e-6), "t")
+    shared = Deadline.after(1e-6)  # the request's one deadline, spent by the first group
+    out = run_grouped(prep, SearchOptions(deadline=shared), "t")
     assert out["search"]["groups"] == 8
     assert out["search"]["complete"] is False
     assert all(b["problem"].over_budget for b in out["groups"].values())  # rendered as 503
+    # without a request deadline (a batch of segments) every group counts from its own start
+    gone = Deadline(time.time() - 1.0, 60.0)
+    each = run_grouped(prep, SearchOptions(time_limit_s=60.0), "t")
+    assert each["search"]["complete"] and not any("problem" in b for b in each["groups"].values())
+    late = run_grouped(prep, SearchOptions(time_limit_s=60.0, deadline=gone), "t")
+    assert all(b["problem"].over_budget for b in late["groups"].values())
+
+
+def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
+    """The ranked candidates and the fold plan travel beside the body, not inside it: the
+    body is exactly what the JSON response carries (no private keys to strip)."""
+    prep = _linear_prep()
+    result = select(prep, SearchOptions(top=2), "t")
+    assert not [k for k in result.body if k.startswith("_")]
+    assert not [k for e in result.body["ranking"] for k in e if k.startswith("_")]
+    first = result.body["ranking"][0]["specification"]
+    assert any(s.spec.to_dict() == first for s in result.scored)
+    assert result.plan.folds == 5 and result.plan.n_splits == 5
+    # source: numpy lstsq of rank 1's design on all rows equals the reported coefficients
+    winner = next(s for s in result.scored if s.spec.to_dict() == first)
+    d = build_design(winner.spec, prep)
+    z = winner.spec.response_transform.forward(prep.y)
+    coef = np.linalg.lstsq(d.X, z, rcond=None)[0]
+    got = [row["estimate"] for row in result.body["ranking"][0]["coefficients"]]
+    np.testing.assert_allclose(got, coef, rtol=1e-9, atol=1e-12)

@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 import pickle
 import time
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -18,6 +19,7 @@ from service.core import transforms as tr
 from service.core.data import prepare
 from service.core.errors import InputError, Option, Table
 from service.core.spec import PredictorSpec, Specification
+from service.selection.deadline import Deadline
 from service.selection.search_setup import Scored, SearchOptions, check_rows
 from sklearn.model_selection import KFold
 
@@ -58,12 +60,13 @@ def test_more_folds_than_rows_and_mape_with_zeros():
     check_rows(_prep(40, zero=True), SearchOptions(metric="mae"), 2)
 
 
-def test_seconds_left_takes_the_earlier_of_limit_and_deadline():
-    assert SearchOptions(time_limit_s=30).seconds_left() == 30
-    soon = SearchOptions(time_limit_s=30, deadline_at=time.time() + 5)
-    assert 4 < soon.seconds_left() <= 5
-    later = SearchOptions(time_limit_s=3, deadline_at=time.time() + 500)
-    assert later.seconds_left() == 3
+def test_the_clock_is_the_request_deadline_or_the_limit_from_now():
+    before = time.time()
+    own = SearchOptions(time_limit_s=30).clock()
+    assert before + 30 <= own.at <= time.time() + 30 and own.limit_s == 30
+    shared = Deadline.after(5)
+    opts = SearchOptions(time_limit_s=30, deadline=shared)
+    assert opts.clock() is shared and replace(opts, top=1).clock() is shared
 
 
 def test_options_cross_processes_without_the_stop_callback():

@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from service.core.data import prepare
-from service.selection.search import run_selection
+from service.selection.search import run_selection, select
 from service.selection.search_setup import SearchOptions
 from service.selection.strategy import EXHAUSTIVE_LIMIT
 
@@ -64,10 +64,10 @@ def test_screened_search_finds_the_exhaustive_optimum(seed):
 
 def test_baselines_are_always_scored():
     prep = _problem(1, p=4)
-    out = run_selection(prep, SearchOptions(strategy="screened", **SPACE), "t")
+    out = select(prep, SearchOptions(strategy="screened", **SPACE), "t")
     keys = {
         (s.spec.response_transform.name, tuple(p.transform.name for p in s.spec.predictors))
-        for s in out["_scored"]
+        for s in out.scored
     }
     for r in ("identity", "log", "sqrt"):
         assert (r, ("identity",) * 4) in keys

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from service.core.data import prepare
 from service.core.errors import InputError, Option
-from service.selection.search import run_selection
+from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from service.selection.trust import (
     OPTIMISM_WARN_RATIO,
@@ -27,8 +27,8 @@ from statsmodels.stats.proportion import proportion_confint
 
 
 def _select(prep, opts):
-    body = run_selection(prep, opts, "test")
-    return body, body["ranking"][0]["specification"]
+    result = select(prep, opts, "test")
+    return result, result.body["ranking"][0]["specification"]
 
 
 def _clear_log_log(n=150, seed=11):
@@ -139,7 +139,7 @@ def test_optimism_is_zero_when_the_search_space_holds_one_candidate():
     assert abs(op["gap"]) <= 1e-12 * op["selected_cv"]
     assert op["ratio"] == pytest.approx(1.0, abs=1e-12)
     # the outer folds are the search's own partition: rank 1's error there is its CV error
-    assert op["selected_cv"] == pytest.approx(body["ranking"][0]["cv"]["value"], rel=1e-12)
+    assert op["selected_cv"] == pytest.approx(body.body["ranking"][0]["cv"]["value"], rel=1e-12)
 
 
 def test_optimism_near_zero_when_the_right_scale_always_wins_inside():
