@@ -51,6 +51,7 @@ class Dynamic:
     x: np.ndarray  # (n, k) positive predictor values
     start: np.ndarray  # (k,) all-rows estimate (warm start)
     boxcox_form: bool = True
+    columns: tuple[str, ...] = ()  # the predictor columns, in design order
 
 
 @dataclass
@@ -60,13 +61,17 @@ class OutOfFold:
     ``fold``: (n,) fold id of every row; ``residual``: (n,) model-scale residual of every
     row under the fit that did not see it, z_k(y_i) - x_i'b_k with k = fold[i] and z_k the
     response scale fitted on that fold's training rows; ``coefficients``: (K, p) the
-    training fits b_k; ``transforms``: the K concrete response scales z_k.
+    training fits b_k; ``transforms``: the K concrete response scales z_k.  With predictor
+    powers estimated inside every fold, ``dynamic`` says where their columns sit and
+    ``powers`` (K, j) holds fold k's estimates (fold k's design has w(x; powers[k]) there).
     """
 
     fold: np.ndarray
     residual: np.ndarray
     coefficients: np.ndarray
     transforms: list[tr.Transform]
+    dynamic: Dynamic | None = None
+    powers: np.ndarray | None = None
 
 
 @dataclass
@@ -160,22 +165,24 @@ class Scorer:
         keep_out_of_fold: bool = False,
     ) -> Score:
         """``keep_out_of_fold``: also return the first repeat's fold fits and out-of-fold
-        residuals (:class:`OutOfFold`; not with per-fold estimated predictor powers)."""
+        residuals (:class:`OutOfFold`, with each fold's estimated predictor powers)."""
         # Values near the float limits overflow in squares and products; every result is
         # checked for finiteness below and such a candidate fails with its reason.
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            return self._score(t, cols, names, dynamic, keep_out_of_fold and dynamic is None)
+            return self._score(t, cols, names, dynamic, keep_out_of_fold)
 
     def out_of_fold(
         self,
         t: tr.Transform,
         cols: list[int],
         names: list[str] | None = None,
+        dynamic: Dynamic | None = None,
     ) -> OutOfFold:
         """The first repeat's fold fits and out-of-fold residuals alone (CV+ intervals): the
-        same folds as :meth:`score`, without scoring the other repeats again."""
+        same folds as :meth:`score`, without scoring the other repeats again (with
+        ``dynamic``, each fold's estimated predictor powers too)."""
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            sc = self._score(t, cols, names, None, keep=True, first_only=True)
+            sc = self._score(t, cols, names, dynamic, keep=True, first_only=True)
         assert sc.out_of_fold is not None  # kept for repeat 0
         return sc.out_of_fold
 
@@ -276,7 +283,14 @@ class Scorer:
                 resid = np.empty(n)
                 for k in range(K):
                     resid[test[k]] = zs[k][test[k]] - ETA[test[k], k]
-                oof = OutOfFold(plan.assignments[0].copy(), resid, B.copy(), list(ts))
+                oof = OutOfFold(
+                    plan.assignments[0].copy(),
+                    resid,
+                    B.copy(),
+                    list(ts),
+                    dynamic,
+                    np.array(powers[:K], dtype=float) if dynamic is not None else None,
+                )
             for k in range(K):
                 te = test[k]
                 tk = ts[k]

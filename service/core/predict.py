@@ -89,6 +89,7 @@ class CVPlusFits:
     abs_resid: np.ndarray  # (n,)
     kind: str  # "all" or "quantiles"
     scheme: str
+    fold_powers: cvplus.FoldPowers | None = None  # predictor powers estimated per fold
 
 
 @dataclass(frozen=True)
@@ -527,7 +528,7 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     hmax = _number(_need(d, "max_leverage", MODEL), MODEL.at("max_leverage"), "max_leverage")
     if not 0.0 <= hmax <= 1.0 + 1e-9:
         raise InputError.at(MODEL.at("max_leverage"), "max_leverage must lie in [0, 1]")
-    fits, missing = _cv_plus(d.get("cv_plus"), spec, p, n_train)
+    fits, missing = _cv_plus(d.get("cv_plus"), spec, p, n_train, levels)
     return LoadedModel(
         spec,
         tuple(want),
@@ -553,6 +554,16 @@ def _cv_plus_sizes(block: object) -> None:
         return
     res = block.get("residuals")
     fits = block.get("fold_fits")
+    powers = block.get("fold_powers")
+    if isinstance(powers, dict):
+        for key, most in (("columns", MAX_PREDICTORS), ("values", MAX_FOLDS)):
+            v = powers.get(key)
+            if isinstance(v, list) and len(v) > most:
+                raise InputError.at(
+                    MODEL.at("cv_plus", "fold_powers", key),
+                    f"the model holds {len(v)} entries in fold_powers/{key}; an issued model "
+                    f"holds at most {most}; send the model exactly as the service issued it",
+                )
     if isinstance(fits, list) and len(fits) > MAX_FOLDS:
         raise InputError.at(
             MODEL.at("cv_plus", "fold_fits"),
@@ -582,8 +593,68 @@ def _conditions_failed(v: object) -> list[str] | None:
     return list(v)
 
 
+def _fold_powers(
+    d: object, spec: Specification, levels: dict[str, dict[str, Any]], K: int
+) -> cvplus.FoldPowers:
+    """The ``fold_powers`` of a cv_plus block: each named column a numeric predictor on an
+    estimated-power scale (power, or log where the estimate was 0), in specification order,
+    the form the intercept implies, and K rows of powers within the estimation bounds."""
+    ptr = MODEL.at("cv_plus", "fold_powers")
+    damaged = "; the model was damaged or forged"
+    form = cvplus.POWER_FORMS[0] if spec.intercept else cvplus.POWER_FORMS[1]
+    if not isinstance(d, dict) or d.get("form") != form:
+        raise InputError.at(
+            ptr, f"fold_powers must be an object with form '{form}' for this model" + damaged
+        )
+    cols, vals = d.get("columns"), d.get("values")
+    positions: list[int] = []
+    order: list[str] = []
+    pos = 1 if spec.intercept else 0
+    for pr in spec.predictors:
+        if isinstance(cols, list) and pr.column in cols:
+            t = pr.transform
+            if pr.column in levels or not (t.name == "power" or (t.name == "log" and not t.shift)):
+                raise InputError.at(
+                    ptr.at("columns"),
+                    f"'{pr.column[:MAX_NAME_CHARS]}' is not on an estimated-power scale in "
+                    "the model's specification" + damaged,
+                )
+            positions.append(pos)
+            order.append(pr.column)
+        pos += len(levels[pr.column]["levels"]) - 1 if pr.column in levels else 1
+    j = len(order)
+    if not isinstance(cols, list) or not cols or cols != order:
+        raise InputError.at(
+            ptr.at("columns"),
+            "fold_powers columns must name the model's estimated-power predictors once each, "
+            "in the specification's order" + damaged,
+        )
+    if (
+        not isinstance(vals, list)
+        or len(vals) != K
+        or not all(
+            isinstance(row, list)
+            and len(row) == j
+            and all(_is_number(a) and abs(a) <= cvplus.MAX_ABS_POWER for a in row)
+            for row in vals
+        )
+    ):
+        raise InputError.at(
+            ptr.at("values"),
+            f"fold_powers values must be {K} rows (one per fold) of {j} powers within "
+            f"[-{cvplus.MAX_ABS_POWER:g}, {cvplus.MAX_ABS_POWER:g}]" + damaged,
+        )
+    return cvplus.FoldPowers(
+        tuple(order), tuple(positions), np.array(vals, dtype=float), spec.intercept
+    )
+
+
 def _cv_plus(
-    block: object, spec: Specification, p: int, n_train: object
+    block: object,
+    spec: Specification,
+    p: int,
+    n_train: object,
+    levels: dict[str, dict[str, Any]],
 ) -> tuple[CVPlusFits | None, str]:
     """The ``cv_plus`` block checked against the model: (fits or None, why not)."""
     ptr = MODEL.at("cv_plus")
@@ -672,6 +743,7 @@ def _cv_plus(
         raise InputError.at(
             ptr.at("scheme"), "cv_plus scheme must be 'random' or 'blocked'" + damaged
         )
+    powers = block.get("fold_powers")
     return (
         CVPlusFits(
             np.array(coefs, dtype=float),
@@ -680,6 +752,7 @@ def _cv_plus(
             np.array(vals, dtype=float),
             res["kind"],
             scheme,
+            None if powers is None else _fold_powers(powers, spec, levels, K),
         ),
         "",
     )
@@ -945,6 +1018,8 @@ def predict(
     t = model.response_transform
     zs = model_scale_interval(model, X, interval)
     cvp = model.cv_plus if used == "cv_plus" else None
+    fp = cvp.fold_powers if cvp is not None else None
+    x_pow = None if fp is None else np.column_stack([raw[c] for c in fp.columns])
     eta = zs["fit"]
     ok_eta = np.isfinite(eta)
     safe = np.where(ok_eta, eta, 0.0)
@@ -956,7 +1031,15 @@ def predict(
             hi = t.inverse(zs["upper"])
         else:
             lo, hi, zs["lower"], zs["upper"] = cvplus.intervals(
-                cvp.coefficients, cvp.transforms, cvp.fold, cvp.abs_resid, X, interval, t
+                cvp.coefficients,
+                cvp.transforms,
+                cvp.fold,
+                cvp.abs_resid,
+                X,
+                interval,
+                t,
+                fp,
+                x_pow,
             )
         # the undefined part of every inverse is a half-line, so the extreme residuals tell
         # whether any smearing term is undefined
@@ -967,6 +1050,9 @@ def predict(
     label = t.label(model.spec.response)
     warnings: list[str] = []
     unbounded = False
+    no_fold_power = np.zeros(m, dtype=bool)
+    if fp is not None and x_pow is not None:
+        no_fold_power = fp.undefined_rows(x_pow)
     if cvp is not None:
         n_res = cvp.abs_resid.size
         k_lo, k_hi = cvplus.ranks(n_res, interval)
@@ -1036,12 +1122,19 @@ def predict(
         lo, hi = np.full(m, np.nan), np.full(m, np.nan)
         zs["lower"], zs["upper"] = lo, hi
     report(
-        ok_eta & ~np.isfinite(lo) & (not unbounded),
+        ok_eta & no_fold_power & (not unbounded),
+        "the CV+ limits are null: the power of "
+        + ", ".join(f"'{c}'" for c in (fp.columns if fp is not None else ()))
+        + " estimated in some fold is not defined at the row's value (0 with a power at or "
+        "below 0); ask for interval_method 'normal' for these rows.",
+    )
+    report(
+        ok_eta & ~no_fold_power & ~np.isfinite(lo) & (not unbounded),
         f"the lower prediction limit is null: the interval on the "
         f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).",
     )
     report(
-        ok_eta & ~np.isfinite(hi) & (not unbounded),
+        ok_eta & ~no_fold_power & ~np.isfinite(hi) & (not unbounded),
         f"the upper prediction limit is null: the interval on the "
         f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).",
     )

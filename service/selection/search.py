@@ -24,10 +24,11 @@ from ..core import boxtidwell as bt
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.bank import FoldIndex
+from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import from_score
-from ..core.cvplus import NOT_KEPT, POWERS_PER_FOLD
+from ..core.cvplus import NOT_KEPT
 from ..core.data import Prepared
 from ..core.errors import (
     BudgetError,
@@ -37,7 +38,7 @@ from ..core.errors import (
     Predictor,
     ResponseChoice,
 )
-from ..core.fastcv import Dynamic, OutOfFold, Scorer
+from ..core.fastcv import Dynamic, OutOfFold, Score, Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
@@ -103,50 +104,94 @@ class _Evaluator:
         try:
             s = self._score(spec)
         except CandidateFailure as exc:
-            self.n_fail += 1
-            self.reasons[exc.reason] = self.reasons.get(exc.reason, 0) + 1
-            if len(self.failures) < MAX_FAILURES_LISTED:
-                self.failures.append({"specification": spec.to_dict(), "reason": exc.reason})
+            self._failed(spec, exc)
             return None
         self.scored.append(s)
         return s
 
+    def many(self, specs: list[Specification]) -> None:
+        """Score ``specs`` as one call each would, in order: specifications on a response
+        scale fixed across folds, with no power estimated per fold, are scored together
+        (:func:`batchcv.score_many`, the same numbers); the others one at a time."""
+        designs: dict[int, tuple[list[int], list[str] | None]] = {}
+        groups: dict[tr.Transform, list[int]] = {}
+        for i, spec in enumerate(specs):
+            t = spec.response_transform
+            if not batchable(self.scorer, t):
+                continue
+            try:
+                cols, names, dyn = self.space.design_of(spec)
+            except CandidateFailure:
+                continue  # scored alone below, which records the reason
+            if dyn:
+                continue
+            designs[i] = (cols, names)
+            groups.setdefault(t, []).append(i)
+        done: dict[int, Score | CandidateFailure] = {}
+        for t, members in groups.items():
+            got = score_many(
+                self.scorer, t, [designs[i][0] for i in members], [designs[i][1] for i in members]
+            )
+            done.update(zip(members, got, strict=True))
+        for i, spec in enumerate(specs):
+            if i not in done:
+                self(spec)
+                continue
+            res = done[i]
+            if isinstance(res, CandidateFailure):
+                self._failed(spec, res)
+            else:
+                self.scored.append(Scored(spec, from_score(res)))
+
+    def _failed(self, spec: Specification, exc: CandidateFailure) -> None:
+        self.n_fail += 1
+        self.reasons[exc.reason] = self.reasons.get(exc.reason, 0) + 1
+        if len(self.failures) < MAX_FAILURES_LISTED:
+            self.failures.append({"specification": spec.to_dict(), "reason": exc.reason})
+
     def out_of_fold(self, s: Scored, deadline: Deadline) -> tuple[OutOfFold | None, str]:
         """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
-        or None and why: the same folds scored again, so the numbers are the search's own.
-        Specifications whose predictor powers are estimated inside every fold keep none;
-        past the request's deadline none is computed."""
+        or None and why: the same folds scored again, so the numbers are the search's own
+        (predictor powers estimated inside every fold are estimated again from the same
+        all-rows start, so each fold's powers are the search's own too); past the
+        request's deadline none is computed."""
         spec = s.open_spec or s.spec
-        if any(bt.is_open(p.transform) for p in spec.predictors):
-            return None, POWERS_PER_FOLD
         if deadline.passed():
             return None, (
                 f"the request's time limit of {deadline.limit_s:g} s ran out before this "
                 "entry's out-of-fold fits were kept; raise limits.time_limit_s to get them"
             )
         try:
-            cols, names, _ = self.space.design_of(spec)
-            oof = self.scorer.out_of_fold(spec.response_transform, cols, names)
+            cols, names, dyn = self.space.design_of(spec)
+            dynamic, _ = self._dynamic(spec, cols, dyn)
+            oof = self.scorer.out_of_fold(spec.response_transform, cols, names, dynamic)
         except CandidateFailure as exc:
             return None, f"its folds could not be scored again ({exc.reason})"
         return oof, NOT_KEPT
 
+    def _dynamic(
+        self, spec: Specification, cols: list[int], dyn: list[int]
+    ) -> tuple[Dynamic | None, bt.PowerFit | None]:
+        """The columns whose powers every training fold estimates, started at the all-rows
+        estimate (also returned), or (None, None) when ``spec`` estimates no power."""
+        if not dyn:
+            return None, None
+        est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
+        t0 = fit_transform(
+            spec.response_transform, self.prep.y, shift_needed=self.scorer.shift_needed
+        )
+        z = t0.forward(self.prep.y)
+        if not np.all(np.isfinite(z)):
+            raise CandidateFailure(f"{t0.label('y')} overflows on the data")
+        x = np.column_stack([self.prep.numeric[c] for c in est_cols])
+        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
+        return Dynamic(dyn, x, fit.powers, self.intercept, tuple(est_cols)), fit
+
     def _score(self, spec: Specification) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
         t = spec.response_transform
-        dynamic = None
-        fit = None
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
-        if dyn:
-            t0 = fit_transform(t, self.prep.y, shift_needed=self.scorer.shift_needed)
-            z = t0.forward(self.prep.y)
-            if not np.all(np.isfinite(z)):
-                raise CandidateFailure(f"{t0.label('y')} overflows on the data")
-            x = np.column_stack([self.prep.numeric[c] for c in est_cols])
-            fit = bt.estimate_powers(
-                z, self.space.bank.columns(cols), x, boxcox_form=self.intercept
-            )
-            dynamic = Dynamic(dyn, x, fit.powers, self.intercept)
+        dynamic, fit = self._dynamic(spec, cols, dyn)
         res = from_score(self.scorer.score(t, cols, names, dynamic))
         if fit is None:
             return Scored(spec, res)
@@ -651,6 +696,11 @@ def _uniform_combos(preds: list[list[tr.Transform]]) -> list[tuple[tr.Transform,
     return [plain] if logged == plain else [plain, logged]
 
 
+#: candidates scored in one batch at most, and rows x candidates per batch
+MAX_BATCH = 64
+BATCH_ROWS = 200_000
+
+
 def _exhaustive(
     prep: Prepared,
     resp: list[tr.Transform],
@@ -676,10 +726,13 @@ def _exhaustive(
         if len(cands) >= max(opts.max_candidates * 4, 20000):
             break
     cands = _simplicity_sorted(cands)[: opts.max_candidates]
-    for spec in cands:
+    # in batches (one batched scoring each) small enough that the deadline is still asked
+    # often: about BATCH_ROWS rows x candidates between two looks at the clock
+    step = max(1, min(MAX_BATCH, BATCH_ROWS // max(prep.n, 1)))
+    for start in range(0, len(cands), step):
         if not budget.in_time():
             return False
-        ev(spec)
+        ev.many(cands[start : start + step])
     if len(cands) < total:
         budget.spent = "max_candidates"
     return len(cands) == total

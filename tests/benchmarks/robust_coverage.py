@@ -2,6 +2,7 @@
 of 90% prediction intervals from normal theory and CV+ (run by hand; about a minute).
 
     python tests/benchmarks/robust_coverage.py [--reps 2000] [--n 50] [--datasets 20]
+        [--skip-slopes] [--cases t3 growing boxcox powers] [--level 0.9]
 
 Heteroscedastic case: y = 1 + 2 x + e, x ~ uniform(1, 10), sd(e) = x^2 (variance growing
 with x).  Serial case (n = 200): x and e both AR(1) with coefficient 0.7 in
@@ -14,8 +15,11 @@ training sets of ``n_train`` rows; each model predicts 5,000 fresh rows from the
 distribution and counts how many its 90% interval holds.  Cases, on the identity scale
 unless named: t(3) errors (y = 10 + 2x + 3 t3); variance growing with the mean
 (sd = 0.3 * mean); log-normal errors on an estimated Box-Cox scale (lambda estimated
-inside every fold, so the folds' scales differ).  The baseline is the normal-theory
-interval of the same models on the same rows.
+inside every fold, so the folds' scales differ); t(3) errors around a power of x
+(y = 10 + 2 x^1.7 + 3 t3, x ~ uniform(1, 10)) whose power the search estimates
+(``/v1/selections``' core with the estimated power as the only predictor option, so the
+power is estimated again inside every fold and every fold has its own design).  The
+baseline is the normal-theory interval of the same models on the same rows.
 """
 
 from __future__ import annotations
@@ -33,6 +37,7 @@ from service.core.data import prepare
 from service.core.fitting import hac_cov, hc3_cov, newey_west_lags, ols
 from service.core.predict import load_model, predict
 from service.selection.diagnose import diagnose_specification
+from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
 
 NAMES = ["intercept", "x"]
@@ -76,15 +81,19 @@ def coverage(case: str, reps: int, n: int, seed: int = 0) -> dict[str, float]:
     return {k: v / reps for k, v in hits.items()}
 
 
-PI_CASES = ("t3", "growing", "boxcox")
+PI_CASES = ("t3", "growing", "boxcox", "powers")
 PI_LABELS = {
     "t3": "t(3) errors, identity scale",
     "growing": "sd growing with the mean (0.3 x mean), identity scale",
     "boxcox": "log-normal errors, Box-Cox scale estimated per fold",
+    "powers": "t(3) errors, power of x estimated per fold",
 }
 
 
 def pi_data(case: str, rng: np.random.Generator, n: int) -> tuple[np.ndarray, np.ndarray]:
+    if case == "powers":
+        x = rng.uniform(1.0, 10.0, n)
+        return x, 10.0 + 2.0 * x**1.7 + 3.0 * rng.standard_t(3, n)
     x = rng.uniform(0.0, 10.0, n)
     mean = 10.0 + 2.0 * x
     if case == "t3":
@@ -110,7 +119,12 @@ def pi_coverage(
     for _ in range(datasets):
         x, y = pi_data(case, rng, n_train)
         prep = prepare({"columns": {"x": x.tolist(), "y": y.tolist()}}, "y", ["x"])
-        entry, _ = diagnose_specification(prep, spec, SearchOptions(), "bench", max_points=10)
+        if case == "powers":
+            opts = SearchOptions(["identity"], [{"name": "power"}], top=1)
+            entry = run_selection(prep, opts, "bench")["ranking"][0]
+            assert entry["model"]["cv_plus"]["fold_powers"]["columns"] == ["x"]
+        else:
+            entry, _ = diagnose_specification(prep, spec, SearchOptions(), "bench", max_points=10)
         model = load_model(entry["model"])
         x0, y0 = pi_data(case, rng, fresh)
         for method in ("normal", "cv_plus"):
@@ -131,6 +145,9 @@ def main() -> None:
     ap.add_argument("--n-train", type=int, default=300, help="rows of each training set")
     ap.add_argument("--level", type=float, default=0.9, help="prediction interval level")
     ap.add_argument("--skip-slopes", action="store_true", help="prediction intervals only")
+    ap.add_argument(
+        "--cases", nargs="+", choices=PI_CASES, default=list(PI_CASES), help="interval cases"
+    )
     a = ap.parse_args()
     if not a.skip_slopes:
         print(f"95% slope intervals, {a.reps} replications each")
@@ -146,7 +163,7 @@ def main() -> None:
     )
     print("| case | CV+ | normal theory | CV+, x > 9 | normal, x > 9 |")
     print("|---|---|---|---|---|")
-    for case in PI_CASES:
+    for case in a.cases:
         c2 = pi_coverage(case, a.datasets, a.n_train, level=a.level)
         cells = [f"{np.mean(c2[k]):.3f} ({min(c2[k]):.3f} to {max(c2[k]):.3f})" for k in c2]
         tops = [f"{np.mean(c2[k]):.3f}" for k in ("cv_plus_top", "normal_top")]

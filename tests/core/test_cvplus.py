@@ -238,7 +238,7 @@ def test_seeded_coverage_of_90_percent_intervals():
     from robust_coverage import pi_coverage
 
     # seeded: 4 training sets of 300 rows per case, 2,000 fresh rows each
-    for case in ("t3", "growing"):
+    for case in ("t3", "growing", "powers"):
         c = pi_coverage(case, 4, 300, fresh=2000, level=0.9, seed=3)
         mean = float(np.mean(c["cv_plus"]))
         # source: Barber et al. 2021 Theorem 4: coverage >= 1 - 2 alpha - min{2(1-1/K)/(n/K+1),
@@ -309,10 +309,10 @@ def test_report_names_each_entrys_interval_method():
     assert page.count("Prediction intervals") == len(sel)
 
 
-def test_entries_with_per_fold_predictor_powers_say_why_they_stay_normal():
-    rng = np.random.default_rng(6)
-    x = rng.uniform(1, 10, 200)
-    y = 10 + 2 * x**1.7 + 3 * rng.standard_t(3, 200)
+def _power_entry(seed=6, n=200, folds=5, vseed=0):
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(1, 10, n)
+    y = 10 + 2 * x**1.7 + 3 * rng.standard_t(3, n)
     r = client.post(
         "/v1/selections",
         json={
@@ -320,6 +320,7 @@ def test_entries_with_per_fold_predictor_powers_say_why_they_stay_normal():
             "response": "y",
             "predictors": ["x"],
             "transforms": {"response": ["identity"], "predictors": ["identity", {"name": "power"}]},
+            "validation": {"folds": folds, "seed": vseed},
         },
     )
     assert r.status_code == 200, r.text
@@ -329,17 +330,119 @@ def test_entries_with_per_fold_predictor_powers_say_why_they_stay_normal():
         if e["specification"]["predictors"][0]["transform"]["name"] == "power"
     ]
     assert est, "the estimated power is listed"
-    entry = est[0]
+    return x, y, est[0]
+
+
+def _profile_power(x, z):
+    """Least-squares power of x for z = b0 + b1 (x^a - 1)/a, by a bounded scalar search of
+    the profile residual sum of squares (scipy), independent of the service's iteration."""
+    from scipy.optimize import minimize_scalar
+
+    def rss(a):
+        X = np.column_stack([np.ones_like(x), np.expm1(a * np.log(x)) / a])
+        return float(np.sum((z - X @ np.linalg.lstsq(X, z, rcond=None)[0]) ** 2))
+
+    return minimize_scalar(rss, bounds=(-3, 3), method="bounded", options={"xatol": 1e-10}).x
+
+
+def test_entries_with_per_fold_predictor_powers_get_cv_plus():
+    x, y, entry = _power_entry()
     assert entry["conditions"]["normality"]["holds"] is False
-    assert entry["model"]["cv_plus"]["available"] is False
-    assert entry["inference"]["prediction_intervals"] == "normal"
-    assert "estimated inside every fold" in entry["inference"]["prediction_interval_reason"]
-    out = _predict(entry["model"], [2.0]).json()
+    block = entry["model"]["cv_plus"]
+    assert block["available"] is True
+    fp = block["fold_powers"]
+    assert fp["columns"] == ["x"] and fp["form"] == "box_cox"
+    per_fold = entry["estimates"]["predictor_powers"]["x"]["per_fold"]
+    assert [v[0] for v in fp["values"]] == pytest.approx(per_fold, rel=1e-12)
+    assert len({v[0] for v in fp["values"]}) == 5  # estimated inside every training fold
+    assert entry["inference"]["prediction_intervals"] == "cv_plus"
+    x0 = np.array([1.5, 4.0, 9.5])
+    out = _predict(entry["model"], x0, 0.9).json()
+    assert out["interval_method"] == "cv_plus"
+    assert out["interval_method_reason"].startswith("normality fails on this entry")
+    # source: Barber et al. 2021 section 4 (CV+) for the algorithm "estimate the power of x,
+    # then fit", written out: scikit-learn KFold(shuffle=True) (the service's first repeat),
+    # in every training fold the profile least-squares power (scipy) and the linear fit
+    # (scikit-learn) on (x^a - 1)/a, R_i on the fold that held row i out
+    lows, highs, powers = [], [], []
+    for train, test in KFold(5, shuffle=True, random_state=0).split(x):
+        a = _profile_power(x[train], y[train])
+        powers.append(a)
+        w = np.expm1(a * np.log(x)) / a
+        m = LinearRegression().fit(w[train, None], y[train])
+        r = np.abs(y[test] - m.predict(w[test, None]))
+        mu = m.predict((np.expm1(a * np.log(x0)) / a)[:, None])
+        lows.append(mu[:, None] - r[None, :])
+        highs.append(mu[:, None] + r[None, :])
+    n = x.size
+    k_lo, k_hi = math.floor(0.1 * (n + 1)), math.ceil(0.9 * (n + 1))
+    lo = np.sort(np.hstack(lows), axis=1)[:, k_lo - 1]
+    hi = np.sort(np.hstack(highs), axis=1)[:, k_hi - 1]
+    # the service's Box-Tidwell steps stop below 1e-6, the scalar search at 1e-10
+    assert [v[0] for v in fp["values"]] == pytest.approx(powers, abs=1e-5)
+    got = out["predictions"]
+    np.testing.assert_allclose([p["lower"] for p in got], lo, rtol=1e-6)
+    np.testing.assert_allclose([p["upper"] for p in got], hi, rtol=1e-6)
+    normal = _predict(entry["model"], x0, 0.9, "normal").json()["predictions"]
+    assert [p["lower"] for p in normal] != [p["lower"] for p in got]
+
+
+def test_models_issued_before_fold_powers_were_stored_keep_their_reason():
+    _, _, entry = _power_entry()
+    why = (
+        "the entry's predictor powers were estimated inside every fold, and CV+ fits are "
+        "stored only for predictor scales fixed across folds"
+    )
+    old = _resigned(
+        entry["model"], lambda m: m.__setitem__("cv_plus", {"available": False, "reason": why})
+    )
+    out = _predict(old, [2.0]).json()
     assert out["interval_method"] == "normal"
-    assert "CV+ is not available" in out["interval_method_reason"]
-    r = _predict(entry["model"], [2.0], method="cv_plus")
+    assert out["interval_method_reason"] == (
+        f"normality fails on this entry, but CV+ is not available ({why})"
+    )
+    r = _predict(old, [2.0], method="cv_plus")
     assert r.status_code == 422
-    assert "estimated inside every fold" in r.json()["errors"][0]["detail"]
+    assert why in r.json()["errors"][0]["detail"]
+
+
+def test_damaged_fold_powers_point_into_the_model():
+    _, _, entry = _power_entry()
+    model = entry["model"]
+
+    def fp(m):
+        return m["cv_plus"]["fold_powers"]
+
+    for edit, ptr in [
+        (lambda m: fp(m).__setitem__("form", "plain"), "/model/cv_plus/fold_powers"),
+        (lambda m: fp(m).__setitem__("columns", ["y"]), "/model/cv_plus/fold_powers/columns"),
+        (lambda m: fp(m).__setitem__("columns", []), "/model/cv_plus/fold_powers/columns"),
+        (lambda m: fp(m)["values"].pop(), "/model/cv_plus/fold_powers/values"),
+        (lambda m: fp(m)["values"][0].__setitem__(0, 7.5), "/model/cv_plus/fold_powers/values"),
+        (lambda m: fp(m)["values"][1].append(1.0), "/model/cv_plus/fold_powers/values"),
+        (lambda m: fp(m).__setitem__("values", [[1.0]] * 51), "/model/cv_plus/fold_powers/values"),
+    ]:
+        r = _predict(_resigned(model, edit), [2.0], method="cv_plus")
+        assert r.status_code == 422, r.text
+        assert r.json()["errors"][0]["pointer"] == ptr, r.json()
+        assert (
+            "damaged or forged" in r.json()["errors"][0]["detail"]
+            or "at most" in (r.json()["errors"][0]["detail"])
+        )
+
+
+def test_a_fold_power_undefined_at_the_row_gives_null_limits_and_says_why():
+    _, _, entry = _power_entry()
+    # a fold whose power is at or below 0 cannot take x = 0, where the entry's own power
+    # (about 1.7) can; the other rows keep their limits
+    m = _resigned(
+        entry["model"], lambda m: m["cv_plus"]["fold_powers"]["values"][2].__setitem__(0, -0.4)
+    )
+    out = _predict(m, [0.0, 3.0], 0.9, "cv_plus").json()
+    first, second = out["predictions"]
+    assert first["lower"] is None and first["upper"] is None and first["median"] is not None
+    assert second["lower"] is not None and second["upper"] is not None
+    assert any("power of 'x' estimated in some fold is not defined" in w for w in out["warnings"])
 
 
 def test_oversized_cv_plus_lists_are_refused_before_reading_them():
@@ -371,3 +474,97 @@ def test_fast_order_statistics_equal_a_full_sort(seed):
     k_lo, k_hi = cvplus.ranks(n, 0.9)
     np.testing.assert_allclose(lo, np.sort(c - R, axis=1)[:, k_lo - 1], rtol=1e-12)
     np.testing.assert_allclose(hi, np.sort(c + R, axis=1)[:, k_hi - 1], rtol=1e-12)
+
+
+def _per_fold_scales(rng, family, K):
+    if family == "log":
+        return [tr.Transform("log", shift=float(s)) for s in rng.uniform(0.01, 3.0, K)]
+    lo, hi = {"box_cox": (-1.5, 1.5), "yeo_johnson": (-1.0, 3.0)}[family]
+    return [tr.Transform(family, lam=float(v), estimated=True) for v in rng.uniform(lo, hi, K)]
+
+
+@pytest.mark.parametrize("seed", range(9))
+def test_per_fold_scales_order_statistics_equal_a_full_sort(seed):
+    rng = np.random.default_rng(100 + seed)
+    family = ("box_cox", "log", "yeo_johnson")[seed % 3]
+    K, n = int(rng.integers(2, 11)), int(rng.integers(12, 500))
+    fold = rng.permutation(np.arange(n) % K)
+    R = np.abs(rng.standard_t(3, n)) * 10 ** rng.uniform(-2, 0.5)
+    if seed % 2:
+        R = np.round(R, 1)  # ties
+    ts = _per_fold_scales(rng, family, K)
+    B = rng.normal(size=(K, 3)) * 0.5
+    B[:, 0] += rng.uniform(-1, 3)
+    X0 = np.column_stack([np.ones(60), rng.normal(size=(60, 2))])
+    X0[:5] *= 40.0  # rows whose candidates reach past poles, clips and overflow
+    model_t = ts[0]
+    for level in (0.5, 0.8, 0.9):
+        fast = cvplus.intervals(B, ts, fold, R, X0, level, model_t)
+        # source: the order statistics of the CV+ definition, every candidate mapped through
+        # its own fold's inverse and all n sorted (the rows x residuals matrix)
+        full = cvplus.intervals(B, ts, fold, R, X0, level, model_t, fast=False)
+        for got, want in zip(fast, full, strict=True):
+            assert np.array_equal(np.isnan(got), np.isnan(want))
+            assert np.array_equal(np.isinf(got), np.isinf(want))
+            ok = np.isfinite(want)
+            np.testing.assert_allclose(got[ok], want[ok], rtol=1e-12, atol=0)
+
+
+@pytest.mark.parametrize(
+    ("family", "lams"),
+    [
+        ("box_cox", (-1.0, -0.8)),  # a pole: past it the response is unbounded
+        ("box_cox", (0.9, 1.3)),  # clipped at 0 below -1/lambda
+        ("yeo_johnson", (-0.7, -0.4)),  # a pole above
+        ("yeo_johnson", (2.6, 3.0)),  # a limit below
+    ],
+)
+def test_per_fold_scales_reach_the_edges_of_their_inverses(family, lams):
+    # candidates past a pole or a branch limit have no inverse and count as beyond every
+    # value (-inf for the lower end, +inf for the upper), clipped ones as the clip value
+    ts = [tr.Transform(family, lam=v, estimated=True) for v in lams]
+    fold = np.array([0, 1] * 50)
+    R = np.round(np.linspace(0.05, 4.0, 100), 1)  # ties
+    B = np.array([[0.3, 0.9], [0.2, 1.1]])
+    X0 = np.column_stack([np.ones(41), np.linspace(-4.0, 4.0, 41)])
+    edges = 0
+    for level in (0.5, 0.8, 0.95):
+        fast = cvplus.intervals(B, ts, fold, R, X0, level, ts[0])
+        full = cvplus.intervals(B, ts, fold, R, X0, level, ts[0], fast=False)
+        for got, want in zip(fast, full, strict=True):
+            np.testing.assert_allclose(got, want, rtol=1e-12, atol=0)  # nan / inf alike
+        edges += int(np.sum(~np.isfinite(fast[0]) | ~np.isfinite(fast[1])))
+        edges += int(np.sum(fast[0] == 0.0))
+    assert edges > 0, "some rows reach an edge of an inverse"
+    for t in ts:
+        a, b, ga, gb = cvplus.defined_interval(t)
+        inside = t.inverse(np.array([a, b]))
+        with np.errstate(over="ignore"):  # past the largest float: inf, no inverse either
+            outside = t.inverse(np.array([np.nextafter(a, -np.inf), np.nextafter(b, np.inf)]))
+        assert np.all(np.isfinite(inside)) and list(inside) == [ga, gb]
+        assert a == -np.finfo(float).max or np.isnan(outside[0])
+        assert b == np.finfo(float).max or np.isnan(outside[1])
+
+
+@pytest.mark.parametrize("boxcox_form", [True, False])
+def test_fold_powers_with_per_fold_log_shifts_equal_a_full_sort(boxcox_form):
+    rng = np.random.default_rng(41)
+    K, n, m = 4, 300, 50
+    fold = rng.permutation(np.arange(n) % K)
+    R = np.round(np.abs(rng.standard_t(3, n)) * 0.3, 2)  # ties
+    powers = rng.uniform(0.5, 2.0, (K, 1))
+    fp = cvplus.FoldPowers(("x",), (2,), powers, boxcox_form)
+    B = np.column_stack([rng.uniform(1, 2, K), rng.normal(0, 0.1, K), rng.uniform(0.1, 0.3, K)])
+    x = rng.uniform(0.5, 8.0, m)
+    X0 = np.column_stack([np.ones(m), rng.normal(size=m), x**1.3])  # entry's own column
+    # source: fold k's design written out: its own power of x, (x^a - 1)/a or x^a
+    for k in range(K):
+        a = powers[k, 0]
+        w = (x**a - 1) / a if boxcox_form else x**a
+        want = np.column_stack([X0[:, :2], w]) @ B[k]
+        np.testing.assert_allclose(fp.fold_means(X0, B, x[:, None])[:, k], want, rtol=1e-12)
+    ts = [tr.Transform("log", shift=float(s), estimated=True) for s in rng.uniform(0.1, 1, K)]
+    fast = cvplus.intervals(B, ts, fold, R, X0, 0.9, ts[0], fp, x[:, None])
+    full = cvplus.intervals(B, ts, fold, R, X0, 0.9, ts[0], fp, x[:, None], fast=False)
+    for got, want in zip(fast, full, strict=True):
+        np.testing.assert_allclose(got, want, rtol=1e-12)

@@ -1,0 +1,237 @@
+"""Score many candidates that share a response scale in one batch.
+
+:meth:`fastcv.Scorer.score` handles one candidate: per repeat a stacked solve of its K
+training systems, then a Python loop over the folds for the back-transform and the fold
+error.  A search scores hundreds of candidates that differ only in which bank columns they
+use, so most of that time is Python overhead per candidate and fold, not arithmetic.
+:func:`score_many` does the same computation for a whole group of candidates with the same
+number of columns and a response scale fixed across folds:
+
+- the C x K training systems (sub-blocks of the bank's downdated cross-products) are
+  solved in one call of :func:`fitting.solve_batch` (same column scaling, condition check
+  and Cholesky as the one-candidate path);
+- every row's held-out prediction and every row's residual under every fold's solution
+  come from a few einsum products over the (n, C, p) stacked designs;
+- the smeared mean (Duan 1983) uses the same closed forms as :mod:`retransform` for the
+  identity, the log and the square root (one or two means per candidate and fold; for the
+  square root, rows with terms cut off at zero use sorted residuals and suffix sums as
+  retransform does, sorted for all candidates at once); other inverses call
+  :func:`retransform.smeared_mean` per candidate and fold;
+- fold errors and pooled errors are reduced in numpy.
+
+Whatever the batch cannot settle exactly as the one-candidate path would (an
+ill-conditioned fold that needs the exact QR refit, any non-finite value, an undefined
+back-transform, a fold too small for its coefficients, an undefined MAPE) is handed to
+:meth:`Scorer.score` for that candidate alone, so results and failure reasons are the
+one-candidate path's.  Tests compare the two to 1e-10 relative.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import numpy as np
+
+from . import retransform
+from . import transforms as tr
+from .errors import CandidateFailure
+from .fastcv import Score, Scorer
+from .fitting import solve_batch
+
+#: at most this many floats in one (n, C, p) stack of designs (about 64 MB)
+STACK_FLOATS = 8_000_000
+
+
+def batchable(scorer: Scorer, t: tr.Transform) -> bool:
+    """True when candidates on response scale ``t`` can be scored together: the scale is
+    the same in every fold (nothing estimated per fold) and the bank keeps its per-fold
+    cross-products."""
+    estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+    return (
+        not estimate_lam
+        and not scorer.per_fold_response(t)
+        and scorer.bank.G_total is not None
+        and (scorer.plan.metric != "mape" or scorer.want_mape)
+    )
+
+
+def score_many(
+    scorer: Scorer,
+    t: tr.Transform,
+    col_sets: Sequence[Sequence[int]],
+    names: Sequence[list[str] | None],
+) -> list[Score | CandidateFailure]:
+    """:meth:`Scorer.score` for each candidate (bank columns ``col_sets[c]``, column names
+    ``names[c]``) on response scale ``t``; a :class:`CandidateFailure` in place of a
+    candidate that fails.  Candidates of different sizes are batched by size."""
+    out: list[Score | CandidateFailure | None] = [None] * len(col_sets)
+    if not batchable(scorer, t):
+        return [_alone(scorer, t, c, nm) for c, nm in zip(col_sets, names, strict=True)]
+    by_size: dict[int, list[int]] = {}
+    for i, cols in enumerate(col_sets):
+        by_size.setdefault(len(cols), []).append(i)
+    n, K = scorer.y.size, scorer.plan.folds
+    for p, members in by_size.items():
+        # floats held at once: designs (n C p), fitted values (K n C), a dozen (n, C) arrays
+        step = max(1, STACK_FLOATS // max(1, n * (p + K + 12)))
+        for s in range(0, len(members), step):
+            part = members[s : s + step]
+            got = _batch(scorer, t, [col_sets[i] for i in part])
+            for i, res in zip(part, got, strict=True):
+                out[i] = res if res is not None else _alone(scorer, t, col_sets[i], names[i])
+    return [r for r in out if r is not None]
+
+
+def _alone(
+    scorer: Scorer, t: tr.Transform, cols: Sequence[int], names: list[str] | None
+) -> Score | CandidateFailure:
+    try:
+        return scorer.score(t, list(cols), names)
+    except CandidateFailure as exc:
+        return exc
+
+
+def _batch(
+    scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
+) -> list[Score | None]:
+    """Scores of candidates with the same number of columns; None where the candidate must
+    be scored alone."""
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        return _batch_unguarded(scorer, t, col_sets)
+
+
+def _batch_unguarded(
+    scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
+) -> list[Score | None]:
+    bank, y, plan = scorer.bank, scorer.y, scorer.plan
+    assert bank.G_fold is not None and bank.G_total is not None  # checked by batchable()
+    index = bank.index
+    X = bank.X
+    assert X is not None  # a frozen bank
+    C = len(col_sets)
+    S = np.asarray(col_sets, dtype=np.intp)  # (C, p)
+    p = S.shape[1]
+    n, K, R = y.size, plan.folds, plan.repeats
+    t0, z, finite = scorer._fixed_response(t)
+    if not finite or any(rows.size <= p for tr_r in index.train for rows in tr_r):
+        return [None] * C  # the one-candidate path raises the right reason
+    alone = np.zeros(C, dtype=bool)
+    XS = X[:, S]  # (n, C, p)
+    cf, ctot = bank.cross(t, z)
+    fold_vals = np.empty((C, R * K))
+    pooled = {"rmse": np.empty((C, R)), "mae": np.empty((C, R)), "mape": np.empty((C, R))}
+    kind = _closed_form(t0)
+    for r in range(R):
+        a = np.asarray(plan.assignments[r], dtype=np.intp)
+        test = index.test[r]
+        Gtr = bank.G_total[r][None] - bank.G_fold[r]  # (K, m, m)
+        G = Gtr[:, S[:, :, None], S[:, None, :]]  # (K, C, p, p)
+        c = (ctot[r][None, :] - cf[r])[:, S]  # (K, C, p)
+        B, ok = solve_batch(
+            np.swapaxes(G, 0, 1).reshape(C * K, p, p), np.swapaxes(c, 0, 1).reshape(C * K, p)
+        )
+        B = B.reshape(C, K, p)
+        alone |= ~ok.reshape(C, K).all(axis=1)
+        B = np.where(np.isfinite(B), B, 0.0)
+        # fitted value of every row under every fold's solution, (K, n, C)
+        fitted = np.einsum("ncp,ckp->knc", XS, B)
+        eta = fitted[a, np.arange(n), :]  # (n, C): each row under its own fold's solution
+        med = t0.inverse(eta)
+        # an undefined median ends the candidate before its smearing (as one at a time)
+        alone |= ~np.all(np.isfinite(med), axis=0)
+        mean = np.empty((n, C))
+        for k in range(K):
+            te = test[k]
+            train_rows = a != k
+            e = z[train_rows, None] - fitted[k][train_rows]  # training residuals (n_tr, C)
+            if kind == "identity":
+                mean[te] = eta[te] + e.mean(axis=0)
+            elif kind == "log":
+                top = e.max(axis=0)
+                m = np.exp(e - top).mean(axis=0) * np.exp(top)
+                mean[te] = np.exp(eta[te]) * m - (t0.shift or 0.0)
+            elif kind == "sqrt":
+                # mean_i max(eta + e_i, 0)^2: where every term is positive the square
+                # expands (retransform's suffix sums with nothing cut off); elsewhere as one
+                m1, m2 = e.mean(axis=0), (e * e).mean(axis=0)
+                ev = eta[te]
+                part = ev * ev + 2.0 * ev * m1 + m2
+                cut = ~(ev + e.min(axis=0) > 0)  # rows with a term cut off at zero
+                if np.any(cut):
+                    part[cut] = _sqrt_cut(ev, e, cut)
+                mean[te] = part
+            else:
+                for j in range(C):
+                    if not alone[j]:
+                        mean[te, j] = retransform.smeared_mean(t0, eta[te, j], e[:, j])
+        alone |= ~np.all(np.isfinite(mean), axis=0)
+        d = y[:, None] - mean
+        sq = d * d
+        ab = np.abs(y[:, None] - med)
+        pc = np.abs((y[:, None] - med) / y[:, None]) if scorer.want_mape else None
+        for k in range(K):
+            te = test[k]
+            if plan.metric == "rmse":
+                fold_vals[:, r * K + k] = np.sqrt(sq[te].mean(axis=0))
+            elif plan.metric == "mae":
+                fold_vals[:, r * K + k] = ab[te].mean(axis=0)
+            else:
+                assert pc is not None  # batchable() requires a defined MAPE
+                fold_vals[:, r * K + k] = 100.0 * pc[te].mean(axis=0)
+        pooled["rmse"][:, r] = np.sqrt(sq.mean(axis=0))
+        pooled["mae"][:, r] = ab.mean(axis=0)
+        if pc is not None:
+            pooled["mape"][:, r] = 100.0 * pc.mean(axis=0)
+    alone |= ~np.all(np.isfinite(fold_vals), axis=1)
+    out: list[Score | None] = []
+    for j in range(C):
+        if alone[j]:
+            out.append(None)
+            continue
+        summary = {
+            "rmse": float(np.mean(pooled["rmse"][j])),
+            "mae": float(np.mean(pooled["mae"][j])),
+            "mape": float(np.mean(pooled["mape"][j])) if scorer.want_mape else None,
+        }
+        value = summary[plan.metric]
+        if value is None or not math.isfinite(value):
+            out.append(None)
+            continue
+        fv = fold_vals[j].copy()
+        # the standard error as Scorer.score states it (Bengio & Grandvalet 2004)
+        se = float(np.std(fv, ddof=1) / math.sqrt(K)) if fv.size > 1 else 0.0
+        out.append(Score(plan.metric, value, se, fv, summary, None, None, 0, None))
+    return out
+
+
+def _sqrt_cut(eta: np.ndarray, e: np.ndarray, cut: np.ndarray) -> np.ndarray:
+    """mean_i max(eta + e_i, 0)^2 at the ``cut`` entries of ``eta`` (n_te, C), residuals
+    ``e`` (n_tr, C): retransform's sorted residuals and suffix sums, sorted for all
+    candidates at once."""
+    es = np.sort(e, axis=0)
+    m = es.shape[0]
+    zero = np.zeros((1, es.shape[1]))
+    s1 = np.concatenate([np.cumsum(es[::-1], axis=0)[::-1], zero])
+    s2 = np.concatenate([np.cumsum((es * es)[::-1], axis=0)[::-1], zero])
+    rows, cols = np.nonzero(cut)
+    x = eta[rows, cols]
+    k = np.empty(rows.size, dtype=np.intp)
+    for j in np.unique(cols).tolist():  # terms with e_i > -eta contribute
+        at = cols == j
+        k[at] = np.searchsorted(es[:, j], -x[at], side="right")
+    cnt = m - k
+    out: np.ndarray = (cnt * x * x + 2.0 * x * s1[k, cols] + s2[k, cols]) / m
+    return out
+
+
+def _closed_form(t: tr.Transform) -> str | None:
+    """'identity', 'log' or 'sqrt' when the smeared mean has a closed form (as in
+    retransform)."""
+    if t.name == "identity":
+        return "identity"
+    if t.name == "sqrt":
+        return "sqrt"
+    if t.name == "log" or (t.name == "box_cox" and t.lam is not None and abs(t.lam) < 1e-12):
+        return "log" if t.name == "log" else None
+    return None
