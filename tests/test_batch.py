@@ -154,6 +154,29 @@ def test_local_cluster_with_two_workers_gives_the_same_files(job, tmp_path, caps
     assert "segments 4/12 done, 0 failed" in err and "segments 12/12 done" in err
 
 
+@pytest.mark.parametrize("profile", [None, "true"])
+def test_the_local_cluster_runs_without_the_worker_profiler_unless_asked(monkeypatch, profile):
+    """Dask's statistical profiler samples every worker thread every 10 ms (about 9 % of a
+    segment's CPU, tests/benchmarks/cluster.py --worker-profile): off in the workers of
+    the LocalCluster the command line starts, on with BESTSCALE_DASK_WORKER_PROFILE."""
+    import dask
+    from service.batch import DaskSession
+    from service.settings import get_settings
+
+    if profile is not None:
+        monkeypatch.setenv("BESTSCALE_DASK_WORKER_PROFILE", profile)
+    get_settings.cache_clear()
+    try:
+        session = DaskSession("local", 1)
+        try:
+            seen = session.client.run(lambda: dask.config.get("distributed.worker.profile.enabled"))
+        finally:
+            session.close()
+    finally:
+        get_settings.cache_clear()
+    assert list(seen.values()) == [profile is not None]
+
+
 def _free_port() -> int:
     import socket
 
@@ -577,7 +600,7 @@ def test_the_time_limit_applies_to_each_segment_not_to_the_whole_job(tmp_path):
     req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
     opts = selection_options(req)
     assert opts.deadline is not None
-    stale = replace(opts, deadline=Deadline(time.time() - 1.0, opts.time_limit_s))
+    stale = replace(opts, deadline=Deadline(time.monotonic() - 1.0, opts.time_limit_s))
     prep = prepare(
         {"columns": table}, "repair_cost", body["predictors"], ["soil"], None, "district"
     )

@@ -375,7 +375,7 @@ def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeyp
     class Expired:
         @staticmethod
         def after(seconds: float) -> Deadline:
-            return Deadline(time.time() - 1.0, seconds)
+            return Deadline(time.monotonic() - 1.0, seconds)
 
     monkeypatch.setattr(api_selection, "Deadline", Expired)
     path = tmp_path / "repairs.csv"

@@ -109,10 +109,11 @@ class _Evaluator:
         self.scored.append(s)
         return s
 
-    def many(self, specs: list[Specification]) -> None:
-        """Score ``specs`` as one call each would, in order: specifications on a response
-        scale fixed across folds, with no power estimated per fold, are scored together
-        (:func:`batchcv.score_many`, the same numbers); the others one at a time."""
+    def many(self, specs: list[Specification]) -> list[Scored | None]:
+        """Score ``specs`` as one call each would, in order (the Scored of each, or None where
+        it failed): specifications on a response scale fixed across folds, with no power
+        estimated per fold, are scored together (:func:`batchcv.score_many`, the same
+        numbers); the others one at a time."""
         designs: dict[int, tuple[list[int], list[str] | None]] = {}
         groups: dict[tr.Transform, list[int]] = {}
         for i, spec in enumerate(specs):
@@ -133,15 +134,20 @@ class _Evaluator:
                 self.scorer, t, [designs[i][0] for i in members], [designs[i][1] for i in members]
             )
             done.update(zip(members, got, strict=True))
+        out: list[Scored | None] = []
         for i, spec in enumerate(specs):
             if i not in done:
-                self(spec)
+                out.append(self(spec))
                 continue
             res = done[i]
             if isinstance(res, CandidateFailure):
                 self._failed(spec, res)
+                out.append(None)
             else:
-                self.scored.append(Scored(spec, from_score(res)))
+                made = Scored(spec, from_score(res))
+                self.scored.append(made)
+                out.append(made)
+        return out
 
     def _failed(self, spec: Specification, exc: CandidateFailure) -> None:
         self.n_fail += 1
@@ -302,7 +308,7 @@ def select(
         complete = _exhaustive(prep, resp, preds, opts, ev, budget, total, uniform)
     else:
         counts = screened_search(
-            prep, resp, preds, space, ev, budget, screen_scales, opts.intercept
+            prep, resp, preds, space, ev, budget, screen_scales, opts.intercept, ev.many
         )
         complete = False
     scored, failures, n_fail = ev.scored, ev.failures, ev.n_fail

@@ -203,8 +203,11 @@ def screened_search(
     budget: Budget,
     screen_scales: dict[tr.Transform, tr.Transform],
     intercept: bool,
+    evaluate_many: Callable[[list[Specification]], list[Scored | None]] | None = None,
 ) -> dict[str, Any]:
-    """Run both stages; ``evaluate(spec)`` scores exactly (returns Scored or None on failure).
+    """Run both stages; ``evaluate(spec)`` scores exactly (returns Scored or None on failure);
+    ``evaluate_many(specs)``, when given, scores a list the same way in one call (the
+    baselines, the screen's best and each predictor's alternatives in the descent).
 
     ``screen_scales`` maps each response transform to the fixed transform used
     in the screen.  Returns counts for the response's ``search`` block.
@@ -259,8 +262,27 @@ def screened_search(
         scored[spec.key] = evaluate(spec)
         return scored[spec.key]
 
-    for spec in queue:
-        run(spec)
+    def run_all(specs: list[Specification]) -> None:
+        """``run`` for each of ``specs`` in order, in one call of ``evaluate_many``."""
+        if evaluate_many is None:
+            for spec in specs:
+                run(spec)
+            return
+        todo: list[Specification] = []
+        for spec in specs:
+            if spec.key not in scored and allowed(spec) and all(s.key != spec.key for s in todo):
+                todo.append(spec)
+        if not todo or not budget.ok():
+            return
+        cut = len(todo) > budget.left
+        todo = todo[: max(budget.left, 0)]
+        budget.left -= len(todo)
+        for spec, res in zip(todo, evaluate_many(todo), strict=True):
+            scored[spec.key] = res
+        if cut:
+            budget.ok()  # says why the rest were not scored, as one at a time would
+
+    run_all(queue)
     # exact coordinate descent from the lowest error found
     current = _best(scored)
     for _ in range(MAX_SWEEPS):
@@ -269,17 +291,23 @@ def screened_search(
         open_spec = current[0]
         improved = False
         for j, opts in enumerate(options):
+            alternatives = []
             for t in opts:
                 preds = [p.transform for p in open_spec.predictors]
                 if preds[j] == t:
                     continue
                 preds[j] = t
-                run(make_spec(prep, open_spec.response_transform, preds, intercept))
+                alternatives.append(make_spec(prep, open_spec.response_transform, preds, intercept))
+            run_all(alternatives)
             new = _best(scored)
             if new is not None and new[1].cv.value < current[1].cv.value:
                 current, open_spec, improved = new, new[0], True
-        for t in resp:
-            run(make_spec(prep, t, [p.transform for p in open_spec.predictors], intercept))
+        run_all(
+            [
+                make_spec(prep, t, [p.transform for p in open_spec.predictors], intercept)
+                for t in resp
+            ]
+        )
         new = _best(scored)
         if new is not None and new[1].cv.value < current[1].cv.value:
             current, improved = new, True

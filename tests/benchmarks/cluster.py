@@ -42,7 +42,6 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-import dask
 from _common import machine, pin_blas
 from groups import zones
 from service.api.schemas import SelectionRequest
@@ -50,6 +49,7 @@ from service.api.selection import selection_options
 from service.batch import DaskSession, Job, run_dask, run_inline, run_job, run_pool
 from service.batch_parquet import SharedParquet, segment_bytes
 from service.core.data import prepare
+from service.settings import get_settings
 
 _ELAPSED = re.compile(r'"elapsed_s":\s*[-0-9.eE+]+')
 SEARCHES = {
@@ -108,8 +108,9 @@ def main() -> int:
     ap.add_argument(
         "--worker-profile",
         choices=("on", "off"),
-        default="on",
-        help="Dask's statistical profiler in the workers (distributed.worker.profile.enabled)",
+        default="off",
+        help="Dask's statistical profiler in the workers (setting BESTSCALE_DASK_WORKER_PROFILE; "
+        "off is the default of --cluster local)",
     )
     args = ap.parse_args()
     pin_blas(1)
@@ -174,9 +175,10 @@ def main() -> int:
     runs.append(f"pool, {args.workers} processes")
     t_pool = timed(runs[-1], partial(run_pool, processes=args.workers, fn=cpu_counted))
     t = time.perf_counter()
-    # the workers inherit this process's Dask configuration (the Nanny passes it on)
-    with dask.config.set({"distributed.worker.profile.enabled": args.worker_profile == "on"}):
-        session = DaskSession("local", args.workers)
+    # the product's setting, read when the LocalCluster starts (its workers inherit it)
+    os.environ["BESTSCALE_DASK_WORKER_PROFILE"] = "true" if args.worker_profile == "on" else "false"
+    get_settings.cache_clear()
+    session = DaskSession("local", args.workers)
     session.client.run(lambda: __import__("service.batch"))  # workers import the code once
     t_start = time.perf_counter() - t
     print(

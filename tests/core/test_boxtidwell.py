@@ -150,7 +150,7 @@ def test_screening_powers_stop_at_the_deadline():
     resp = [tr.Transform("identity"), tr.Transform("log")]
     info, powers = cand.screening_powers(prep, preds, resp, True, 0)
     assert len(powers) == 6  # 2 response scales x 3 predictors, without a deadline
-    gone = Deadline(time.time() - 1.0, 60.0)
+    gone = Deadline(time.monotonic() - 1.0, 60.0)
     info, powers = cand.screening_powers(prep, preds, resp, True, 0, deadline=gone)
     assert info == {} and powers == {}  # past the deadline nothing more is estimated
 

@@ -185,7 +185,9 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
     )
     north = split_groups(prep)["north"]
-    late = select_group(GroupTask(north, opts, "test", deadline=Deadline(time.time() - 1.0, 60)))
+    late = select_group(
+        GroupTask(north, opts, "test", deadline=Deadline(time.monotonic() - 1.0, 60))
+    )
     record = late["problem"]  # a neutral record: the web layer or the command line renders it
     assert isinstance(record, ErrorRecord) and record.over_budget and "ran out" in record.detail
     assert "time limit of 60 s" in record.detail  # the caller's number, not what was left

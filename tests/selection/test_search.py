@@ -186,7 +186,7 @@ def test_grouped_selection_shares_one_time_budget():
     assert out["search"]["complete"] is False
     assert all(b["problem"].over_budget for b in out["groups"].values())  # rendered as 503
     # without a request deadline (a batch of segments) every group counts from its own start
-    gone = Deadline(time.time() - 1.0, 60.0)
+    gone = Deadline(time.monotonic() - 1.0, 60.0)
     each = run_grouped(prep, SearchOptions(time_limit_s=60.0), "t")
     assert each["search"]["complete"] and not any("problem" in b for b in each["groups"].values())
     late = run_grouped(prep, SearchOptions(time_limit_s=60.0, deadline=gone), "t")

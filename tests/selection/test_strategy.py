@@ -93,3 +93,21 @@ def test_many_predictors_within_a_time_limit():
     assert s["strategy"]["name"] == "screened"
     assert s["elapsed_s"] < 60.0
     assert out["ranking"][0]["cv"]["value"] > 0
+
+
+def test_screened_search_in_batches_equals_one_candidate_at_a_time(monkeypatch):
+    from service.selection import search as search_mod
+
+    prep = _problem(1, p=4)
+    opts = SearchOptions(strategy="screened", **SPACE)
+    batched = run_selection(prep, opts, "t")
+    monkeypatch.setattr(search_mod._Evaluator, "many", lambda self, specs: [self(s) for s in specs])
+    alone = run_selection(prep, opts, "t")
+    a, b = batched["search"], alone["search"]
+    for key in ("candidates_scored", "candidates_failed", "candidates_screened", "complete"):
+        assert a[key] == b[key]
+    assert [e["equation"] for e in batched["ranking"]] == [e["equation"] for e in alone["ranking"]]
+    for x, y in zip(batched["ranking"], alone["ranking"], strict=True):
+        # source: the same search scoring one candidate at a time
+        assert x["cv"]["value"] == pytest.approx(y["cv"]["value"], rel=1e-10)
+    assert a["best_cv"]["value"] == pytest.approx(b["best_cv"]["value"], rel=1e-10)
