@@ -120,6 +120,7 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     the shared Parquet dataset, or its ``{"problem": ...}`` when it was already known to be
     unusable.  An incumbent's model artifact adds the ``drift`` block.
     """
+    from .api.errors import problem_object, record_problem
     from .api.selection import finish_body
     from .batch_parquet import SegmentRef, SharedDirError
     from .selection.groups import GroupTask, select_group
@@ -130,16 +131,17 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
             sub = sub.load()
         except (SharedDirError, OSError) as exc:
             return {
-                "problem": {
-                    "type": "urn:bestscale:problem:segment-data",
-                    "title": "The segment's rows could not be read from the shared directory",
-                    "status": 500,
-                    "detail": str(exc)[:2000],
-                    "errors": [],
-                }
+                "problem": problem_object(
+                    500,
+                    "segment-data",
+                    "The segment's rows could not be read from the shared directory",
+                    str(exc)[:2000],
+                )
             }
     body = select_group(GroupTask(sub, opts, service_version))
-    if "problem" not in body:
+    if "problem" in body:
+        body = {"problem": record_problem(body["problem"])}
+    else:
         body = finish_body(body, opts)
     if incumbent_model is not None and not isinstance(sub, dict):
         from .core.drift import compare
@@ -150,14 +152,15 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
 
 def unexpected_problem(exc: BaseException) -> dict:
     """A segment that raised something the core did not raise on purpose: its own failure."""
+    from .api.errors import problem_object
+
     return {
-        "problem": {
-            "type": "urn:bestscale:problem:segment-error",
-            "title": "The segment's task failed",
-            "status": 500,
-            "detail": f"{type(exc).__name__}: {exc}"[:2000],
-            "errors": [],
-        }
+        "problem": problem_object(
+            500,
+            "segment-error",
+            "The segment's task failed",
+            f"{type(exc).__name__}: {exc}"[:2000],
+        )
     }
 
 

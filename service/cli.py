@@ -336,7 +336,11 @@ def select_main(argv: list[str]) -> int:
         )
         return 2
     except BestscaleError as exc:
-        problems = "; ".join(f"{p.pointer}: {p.detail}" for p in exc.problems) or exc.detail
+        from .api.pointers import pointer_of
+
+        problems = (
+            "; ".join(f"{pointer_of(p.where)}: {p.detail}" for p in exc.problems) or exc.detail
+        )
         sys.stderr.write(f"{exc.title}: {problems}\n")
         return 2
     finally:
@@ -397,7 +401,7 @@ def _batch(req, body: dict, args, cluster: str | None) -> int:
     )
     from .batch_parquet import SharedParquet, choose_transport, segment_bytes
     from .core.data import prepare
-    from .core.errors import InputError
+    from .core.errors import InputError, Option, PredictorChoice
     from .settings import get_settings
     from .version import __version__
 
@@ -405,16 +409,14 @@ def _batch(req, body: dict, args, cluster: str | None) -> int:
     # which protect a shared server; a batch job is bounded by its cluster's memory
     if req.trust.stability or req.trust.optimism:
         raise InputError.at(
-            "/trust",
+            Option("trust"),
             "trust measures are computed for one selection; run the segment on its own "
             "(without --group-by) to measure them",
         )
     if isinstance(req.transforms.predictors, dict):
         for col in req.transforms.predictors:
             if col not in req.predictors:
-                raise InputError.at(
-                    f"/transforms/predictors/{col}", f"'{col}' is not one of the predictors"
-                )
+                raise InputError.at(PredictorChoice(col), f"'{col}' is not one of the predictors")
     data = req.data.as_dict()
     prep = prepare(
         data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by

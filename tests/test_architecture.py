@@ -3,6 +3,7 @@ stay free of web (and the core of plotting) imports, so they can be used and tes
 HTTP."""
 
 import ast
+import re
 from pathlib import Path
 
 import pytest
@@ -126,6 +127,60 @@ def test_imports_point_only_downwards():
             if target is not None and _floor(target) not in FLOORS[floor]:
                 wrong.append(f"{m} ({floor}) imports {target} ({_floor(target)})")
     assert not wrong, "\n".join(wrong)
+
+
+#: what only the web layer may write: a JSON Pointer into a request, an RFC 9457 problem
+_POINTER_TEXT = re.compile(r"^/[A-Za-z_~]")
+_PROBLEM_TEXT = ("urn:bestscale:problem", "problem+json")
+DOMAIN_FILES = [
+    (floor, p)
+    for floor in ("core", "selection")
+    for p in sorted((CORE.parent / floor).glob("*.py"))
+]
+
+
+@pytest.mark.parametrize(
+    ("floor", "path"), DOMAIN_FILES, ids=[f"{f}/{p.name}" for f, p in DOMAIN_FILES]
+)
+def test_core_and_selection_name_places_without_json_pointers_or_problem_bodies(floor, path):
+    """Errors below the web layer name domain locations (service/core/errors.py); only
+    service/api/pointers.py spells them as JSON Pointers and service/api/errors.py builds
+    problem bodies."""
+    found = []
+    for node in ast.walk(ast.parse(path.read_text())):
+        if isinstance(node, ast.Constant) and isinstance(node.value, str):
+            if _POINTER_TEXT.match(node.value) or any(t in node.value for t in _PROBLEM_TEXT):
+                found.append(f"line {node.lineno}: {node.value[:40]!r}")
+        elif isinstance(node, ast.JoinedStr) and node.values:
+            first = node.values[0]
+            if isinstance(first, ast.Constant) and _POINTER_TEXT.match(str(first.value)):
+                found.append(f"line {node.lineno}: an f-string starting {first.value!r}")
+        name = (
+            node.id
+            if isinstance(node, ast.Name)
+            else node.attr
+            if isinstance(node, ast.Attribute)
+            else node.name
+            if isinstance(node, (ast.FunctionDef, ast.ClassDef))
+            else node.arg
+            if isinstance(node, ast.arg)
+            else ""
+        )
+        if "pointer" in name.lower() or (isinstance(node, ast.Constant) and node.value == "status"):
+            found.append(f"line {node.lineno}: {name or node.value!r}")
+    assert not found, f"{floor}/{path.name} builds request pointers or problems: {found}"
+
+
+def test_the_pointer_check_sees_what_it_forbids(tmp_path):
+    bad = tmp_path / "bad.py"
+    bad.write_text(
+        'def f(i):\n    return ("/data/columns", f"/predictors/{i}", {"status": 422})\n'
+        "cell_pointer = 1\n"
+    )
+    with pytest.raises(AssertionError, match="builds request pointers") as exc:
+        test_core_and_selection_name_places_without_json_pointers_or_problem_bodies("core", bad)
+    for seen in ("/data/columns", "/predictors/", "status", "cell_pointer"):
+        assert seen in str(exc.value)
 
 
 def test_the_floors_hold_modules():

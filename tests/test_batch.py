@@ -308,6 +308,16 @@ def test_a_failing_segment_is_isolated(job, tmp_path, capsys):
     bad = next(s for s in summary["segments"] if s["status"] == "failed")
     assert bad["segment"] == "district 01" and "/response" in bad["reason"]
     assert "constant" in bad["reason"]
+    # the segment's file holds the same problem object as a group of an HTTP selection
+    problem = json.loads((out / bad["file"]).read_text())["result"]["problem"]
+    detail = "response 'repair_cost' is constant (100) on the used rows; there is nothing to model"
+    assert problem == {
+        "type": "urn:bestscale:problem:invalid-input",
+        "title": "Invalid request content",
+        "status": 422,
+        "detail": detail,
+        "errors": [{"pointer": "/response", "detail": detail}],
+    }
     assert "1 failed" in capsys.readouterr().err
 
 

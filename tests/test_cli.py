@@ -227,7 +227,25 @@ def test_cli_reports_a_bad_column_with_its_pointer(tmp_path, capsys):
     )
     assert code == 2
     err = capsys.readouterr().err
-    assert "/predictors/1" in err and "diameter_mm" in err
+    # the request's pointer, then our sentence: the same line as the HTTP 422 names
+    assert err == (
+        "Invalid request content: /predictors/1: predictor column 'diameter_mm' is not in the "
+        "data (columns: 'repair_cost', 'pipe_length_m')\n"
+    )
+
+
+def test_cli_reports_a_bad_csv_cell_in_words(tmp_path, capsys):
+    path = tmp_path / "repairs.csv"
+    path.write_text("repair_cost,pipe_length_m\n10,2\n12,3\n13,x\n")
+    code = select_main(
+        ["--data", str(path), "--response", "repair_cost", "--predictors", "pipe_length_m"]
+    )
+    assert code == 2
+    # CSV text has no pointer inside it: /data/csv, and the row, line and column in words
+    assert capsys.readouterr().err.startswith(
+        "Invalid request content: /data/csv: predictor column 'pipe_length_m' mixes numbers "
+        "(2) and text (1); data row 3 (line 4), column 'pipe_length_m' holds 'x'."
+    )
 
 
 def test_cli_rejects_an_invalid_option_file(tmp_path, capsys):

@@ -8,7 +8,6 @@ from starlette.responses import Response
 
 from ..core.conditions import DEFAULT_ALPHA
 from ..core.data import prepare
-from ..core.errors import InputError
 from ..selection.diagnose import diagnose_specification
 from ..selection.search_setup import SearchOptions
 from ..version import __version__
@@ -82,21 +81,13 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
     )
     check_table(req.data.as_dict())
     with compute_slot():
-        try:
-            prep = prepare(
-                req.data.as_dict(),
-                spec["response"]["column"],
-                predictors,
-                sorted(set(categorical)),
-                req.order,
-            )
-        except InputError as exc:
-            for p in exc.problems:  # columns are named inside the specification here
-                if p.pointer == "/response":
-                    p.pointer = "/specification/response/column"
-                elif p.pointer.startswith("/predictors/"):
-                    p.pointer = "/specification" + p.pointer + "/column"
-            raise
+        prep = prepare(
+            req.data.as_dict(),
+            spec["response"]["column"],
+            predictors,
+            sorted(set(categorical)),
+            req.order,
+        )
         entry, plots = diagnose_specification(prep, spec, opts, __version__, req.max_points)
         note_result({"data": prep.data_summary()})
         fmt = _wanted_image(request)

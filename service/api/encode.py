@@ -10,6 +10,7 @@ from starlette.responses import Response
 
 from ..core.errors import InputError
 from ..settings import get_settings
+from .pointers import RequestField
 
 
 def to_jsonable(obj):
@@ -40,7 +41,7 @@ class JSONBody(Response):
         limit = get_settings().max_response_bytes
         if len(out) > limit:
             raise InputError.at(
-                "",
+                RequestField(""),  # the answer as a whole
                 f"the answer would be {len(out)} bytes, over the limit of {limit} "
                 "(setting BESTSCALE_MAX_RESPONSE_BYTES); ask for fewer ranking entries "
                 "('top'), fewer rows to predict or fewer plot points",

@@ -3,7 +3,10 @@
 Layers: the outer middleware (service/api/middleware.py) turns anything unexpected into a bare
 500 problem carrying only the request id; the handlers installed here map the known error
 classes (validation, domain errors, HTTP errors, the web layer's own problems) to 4xx/503
-problems whose ``errors[].pointer`` is a JSON Pointer (RFC 6901) into the request.
+problems whose ``errors[].pointer`` is a JSON Pointer (RFC 6901) into the request.  Errors of
+the core name their places in domain terms; ``pointers.pointer_of`` spells them for the
+endpoint that was called.  Every RFC 9457 body is built here (``problem_body`` for HTTP
+answers, ``problem_object`` for the problems a group or a batch segment carries in its body).
 """
 
 from __future__ import annotations
@@ -20,9 +23,10 @@ from fastapi.exceptions import RequestValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.responses import Response
 
-from ..core.errors import BestscaleError, BudgetError, InputError, ModelFailure
+from ..core.errors import BestscaleError, BudgetError, ErrorRecord, InputError, ModelFailure
 from ..core.numbers import row_number
 from .metrics import REJECTED
+from .pointers import SELECTIONS, endpoint_of, error_items
 
 log = logging.getLogger("bestscale")
 PROBLEM = "application/problem+json"
@@ -81,6 +85,40 @@ def problem_body(
         body["instance"] = instance
     if 400 <= status < 500 or status == 503:
         REJECTED.labels(kind).inc()
+    return body
+
+
+def problem_object(
+    status: int, kind: str, title: str, detail: str, errors: list[dict] | None = None
+) -> dict:
+    """The problem a group or a batch segment carries in its body (no request id, no
+    metrics: the request that holds it answers 200)."""
+    return {
+        "type": TYPE_PREFIX + kind,
+        "title": title,
+        "status": status,
+        "detail": detail,
+        "errors": list(errors or []),
+    }
+
+
+def record_problem(rec: ErrorRecord, endpoint: str = SELECTIONS) -> dict:
+    """The problem object of an error the core raised on purpose and a group or segment
+    kept as an :class:`ErrorRecord` (503 when the time ran out, else 422)."""
+    status = 503 if rec.over_budget else 422
+    return problem_object(
+        status, rec.kind, rec.title, rec.detail, error_items(rec.problems, endpoint)
+    )
+
+
+def with_group_problems(body: dict, endpoint: str = SELECTIONS) -> dict:
+    """``body`` with the :class:`ErrorRecord` of every group that could not be modelled
+    written as its problem object."""
+    groups = body.get("groups")
+    if isinstance(groups, dict):
+        for gbody in groups.values():
+            if isinstance(gbody.get("problem"), ErrorRecord):
+                gbody["problem"] = record_problem(gbody["problem"], endpoint)
     return body
 
 
@@ -305,7 +343,7 @@ def install(app: FastAPI) -> None:
         headers = (
             {"Retry-After": str(BUDGET_RETRY_AFTER_S)} if isinstance(exc, BudgetError) else None
         )
-        errors = [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems]
+        errors = error_items(exc.problems, endpoint_of(request.url.path))
         kind = exc.kind if isinstance(exc, (InputError, ModelFailure, BudgetError)) else "error"
         return problem(status, kind, exc.title, exc.detail, errors, headers, request=request)
 

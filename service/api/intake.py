@@ -12,7 +12,7 @@ import csv
 import io
 
 from ..core.data import MAX_LEVEL_CHARS, shown
-from ..core.errors import InputError
+from ..core.errors import InputError, Table
 from ..settings import get_settings
 
 MAX_NAME_CHARS = MAX_LEVEL_CHARS  # a column name, like a level
@@ -23,7 +23,7 @@ def _csv_header(text: str) -> list[str]:
     try:
         return next(csv.reader(io.StringIO(text)), [])
     except csv.Error as exc:
-        raise InputError.at("/data/csv", f"data.csv cannot be read as CSV: {exc}") from None
+        raise InputError.at(Table("csv"), f"data.csv cannot be read as CSV: {exc}") from None
 
 
 def table_shape(data: dict) -> tuple[int, list[str]]:
@@ -52,21 +52,21 @@ def check_table(data: dict) -> int:
     return its row count."""
     s = get_settings()
     rows, names = table_shape(data)
-    where = (
-        "/data/columns"
+    where = Table(
+        "columns"
         if data.get("columns") is not None
-        else "/data/records"
+        else "records"
         if data.get("records") is not None
-        else "/data/csv"
+        else "csv"
     )
     if rows > s.max_rows:
         raise InputError.at(
-            "/data",
+            Table(),
             f"the table has {rows} rows; this service accepts at most "
             f"{s.max_rows} (setting BESTSCALE_MAX_ROWS)",
         )
     if len(names) > s.max_table_columns:
-        more = "more than " if where == "/data/records" else ""
+        more = "more than " if where.layout == "records" else ""
         raise InputError.at(
             where,
             f"the table has {more}{len(names)} columns; this service accepts at most "

@@ -280,11 +280,11 @@ class ValidationIn(_Strict):
 
     def check_scheme(self) -> None:
         """Options that contradict the fold scheme: a 422 naming the field."""
-        from service.core.errors import InputError
+        from service.core.errors import InputError, Option
 
         if self.scheme == "blocked" and self.repeats != 1:
             raise InputError.at(
-                "/validation/repeats",
+                Option("validation.repeats"),
                 f"repeats {self.repeats} cannot be used with validation.scheme 'blocked': "
                 "contiguous folds form a single partition; send repeats 1 or scheme 'random'",
             )

@@ -12,7 +12,7 @@ from fastapi import Request
 
 from ..core import transforms as tr
 from ..core.data import prepare
-from ..core.errors import InputError
+from ..core.errors import InputError, Option, PredictorChoice, Predictors
 from ..core.model import sign_all
 from ..selection.cautions import selection_cautions
 from ..selection.deadline import Deadline
@@ -21,6 +21,7 @@ from ..selection.search import select
 from ..selection.search_setup import SearchOptions
 from ..settings import get_settings
 from ..version import __version__
+from .errors import with_group_problems
 from .intake import check_table
 from .schemas import SelectionRequest, transform_items
 
@@ -30,7 +31,7 @@ def _check_size(data: dict, n_columns: int) -> None:
     check_table(data)
     if n_columns > s.max_columns:
         raise InputError.at(
-            "/predictors",
+            Predictors(),
             f"{n_columns} columns requested; at most "
             f"{s.max_columns} are accepted (setting BESTSCALE_MAX_COLUMNS)",
         )
@@ -60,7 +61,7 @@ def time_limit(req: SelectionRequest) -> float:
     tl = req.limits.time_limit_s or s.default_time_limit_s
     if tl > s.max_time_limit_s:
         raise InputError.at(
-            "/limits/time_limit_s",
+            Option("limits.time_limit_s"),
             f"time_limit_s {tl:g} exceeds the service limit of {s.max_time_limit_s:g} s",
         )
     return float(tl)
@@ -75,7 +76,7 @@ def selection_options(
     max_c = req.limits.max_candidates or s.default_max_candidates
     if max_c > s.max_candidates:
         raise InputError.at(
-            "/limits/max_candidates",
+            Option("limits.max_candidates"),
             f"max_candidates {max_c} exceeds the service limit of {s.max_candidates}",
         )
     req.validation.check_scheme()
@@ -122,9 +123,7 @@ def run_selection_request(
     if req.transforms.predictors is not None and isinstance(req.transforms.predictors, dict):
         for col in req.transforms.predictors:
             if col not in req.predictors:
-                raise InputError.at(
-                    f"/transforms/predictors/{col}", f"'{col}' is not one of the predictors"
-                )
+                raise InputError.at(PredictorChoice(col), f"'{col}' is not one of the predictors")
     prep = prepare(
         data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
     )
@@ -132,7 +131,7 @@ def run_selection_request(
     if req.group_by is not None:
         if req.trust.stability or req.trust.optimism:
             raise InputError.at(
-                "/trust",
+                Option("trust"),
                 "trust measures are computed for one selection; send "
                 "each group as its own request to measure them",
             )
@@ -141,7 +140,7 @@ def run_selection_request(
         limit = get_settings().max_groups
         if n_groups > limit:
             raise InputError.at(
-                "/group_by",
+                Option("group_by"),
                 f"'{req.group_by}' has {n_groups} values; at most "
                 f"{limit} groups are accepted per request (setting "
                 "BESTSCALE_MAX_GROUPS); split the job over several requests",
@@ -181,7 +180,7 @@ def run_selection_request(
         body = run_grouped(
             prep, opts, __version__, finish=lambda b: finish_body(b, opts), mapper=mapper
         )
-        return finish_body(body, opts)
+        return finish_body(with_group_problems(body), opts)
     result = select(prep, opts, __version__)
     body = result.body
     if req.trust.stability or req.trust.optimism:

@@ -19,7 +19,19 @@ from typing import Any, cast
 
 import numpy as np
 
-from .errors import FieldProblem, InputError, pointer
+from .errors import (
+    Categorical,
+    Cell,
+    DataColumn,
+    DataRow,
+    FieldProblem,
+    InputError,
+    Option,
+    Predictor,
+    Predictors,
+    Response,
+    Table,
+)
 from .numbers import row_number, rows_named
 
 DROPPED_LIST_CAP = 100
@@ -56,8 +68,15 @@ class RawColumn:
 
     name: str
     values: list[Any]
-    cell_pointer: Callable[[int], str]  # row index -> JSON pointer (or a description for CSV)
-    from_csv: bool = False
+    layout: str  # how the table was sent: columns | records | csv
+
+    @property
+    def from_csv(self) -> bool:
+        return self.layout == "csv"
+
+    def cell(self, i: int) -> Cell:
+        """The location of row ``i`` (0-based position in the request's data)."""
+        return Cell(self.name, i, self.layout)
 
 
 @dataclass
@@ -76,13 +95,13 @@ def read_table(data: dict[str, Any]) -> RawTable:
         return _from_records(data["records"])
     if "csv" in data and data["csv"] is not None:
         return _from_csv(data["csv"])
-    raise InputError.at("/data", "data needs exactly one of 'columns', 'records' or 'csv'")
+    raise InputError.at(Table(), "data needs exactly one of 'columns', 'records' or 'csv'")
 
 
 def _from_columns(cols: dict[str, Any]) -> RawTable:
     if not cols:
         raise InputError.at(
-            "/data/columns",
+            Table("columns"),
             "data.columns is empty; send at least the response and one predictor column",
         )
     lengths = {k: len(v) for k, v in cols.items()}
@@ -93,7 +112,7 @@ def _from_columns(cols: dict[str, Any]) -> RawTable:
         first = next(iter(lengths))
         problems = [
             FieldProblem(
-                pointer("data", "columns", k),
+                DataColumn(k, "columns"),
                 f"column '{k}' has {lengths[k]} values but column '{longest}' has {n}",
             )
             for k in bad[:PROBLEMS_LISTED]
@@ -111,7 +130,7 @@ def _from_columns(cols: dict[str, Any]) -> RawTable:
         )
 
     def get(name: str) -> RawColumn:
-        return RawColumn(name, cols[name], lambda i: pointer("data", "columns", name, i))
+        return RawColumn(name, cols[name], "columns")
 
     return RawTable(n, list(cols), get, "columns")
 
@@ -122,7 +141,7 @@ def _from_records(recs: list[Any]) -> RawTable:
     for i, r in enumerate(recs):
         if not isinstance(r, dict):
             raise InputError.at(
-                pointer("data", "records", i),
+                DataRow(i, "records"),
                 f"{rows_named([i])} is not an object of column: value pairs",
             )
         for k in r:
@@ -135,21 +154,21 @@ def _from_records(recs: list[Any]) -> RawTable:
         for i, v in enumerate(vals):
             if v is _MISSING_KEY:
                 raise InputError.at(
-                    pointer("data", "records", i),
+                    DataRow(i, "records"),
                     f"{rows_named([i])} has no field '{name}'; send null for a missing value",
                 )
-        return RawColumn(name, vals, lambda i: pointer("data", "records", i, name))
+        return RawColumn(name, vals, "records")
 
     return RawTable(len(recs), names, get, "records")
 
 
 def _from_csv(text: str) -> RawTable:
     if not text.strip():
-        raise InputError.at("/data/csv", "data.csv is empty; it needs a header row and data rows")
+        raise InputError.at(Table("csv"), "data.csv is empty; it needs a header row and data rows")
     try:
         dialect_rows = list(csv.reader(io.StringIO(text)))
     except csv.Error as exc:
-        raise InputError.at("/data/csv", f"data.csv cannot be read as CSV: {exc}") from None
+        raise InputError.at(Table("csv"), f"data.csv cannot be read as CSV: {exc}") from None
     rows = [r for r in dialect_rows if r]  # blank lines carry no row
     header = [h.strip() for h in rows[0]]
     if len(set(header)) != len(header):
@@ -158,17 +177,17 @@ def _from_csv(text: str) -> RawTable:
         shown = dup[:PROBLEMS_LISTED]
         more = f" and {len(dup) - len(shown)} more" if len(dup) > len(shown) else ""
         raise InputError.at(
-            "/data/csv",
+            Table("csv"),
             f"data.csv header repeats column {'name' if len(dup) == 1 else 'names'} {shown}{more}; "
             "names must be unique",
         )
     if any(h == "" for h in header):
-        raise InputError.at("/data/csv", "data.csv header has an empty column name")
+        raise InputError.at(Table("csv"), "data.csv header has an empty column name")
     body = rows[1:]
     for i, r in enumerate(body):
         if len(r) != len(header):
             raise InputError.at(
-                "/data/csv",
+                Table("csv"),
                 f"data.csv data row {row_number(i)} (line {i + 2}) has {len(r)} "
                 f"fields but the header has {len(header)}",
             )
@@ -177,7 +196,7 @@ def _from_csv(text: str) -> RawTable:
     def get(name: str) -> RawColumn:
         j = idx[name]
         vals = [(r[j].strip() or None) for r in body]
-        return RawColumn(name, vals, lambda i: "/data/csv", from_csv=True)
+        return RawColumn(name, vals, "csv")
 
     return RawTable(len(body), header, get, "csv")
 
@@ -201,7 +220,7 @@ def _bad_numeric(col: RawColumn, i: int, v: object, role: str) -> InputError:
     if role == "predictor":
         hint += f", or list '{col.name}' in 'categorical' if it is a grouping"
     return InputError.at(
-        col.cell_pointer(i),
+        col.cell(i),
         f"{role} column '{col.name}' is numeric but {where} holds {shown(v)}; {hint}",
     )
 
@@ -283,7 +302,7 @@ def as_categorical(col: RawColumn) -> TypedColumn:
             vals[i] = None
         elif isinstance(v, (dict, list)):
             raise InputError.at(
-                col.cell_pointer(i),
+                col.cell(i),
                 f"column '{col.name}' {rows_named([i])} holds a "
                 "nested object; cells must be numbers, strings, booleans or null",
             )
@@ -292,7 +311,7 @@ def as_categorical(col: RawColumn) -> TypedColumn:
             if len(text) > MAX_LEVEL_CHARS:
                 where = _csv_where(col, i) if col.from_csv else rows_named([i])
                 raise InputError.at(
-                    col.cell_pointer(i),
+                    col.cell(i),
                     f"column '{col.name}' {where} holds a level of {len(text)} characters; "
                     f"levels (and group values) may have at most {MAX_LEVEL_CHARS}; "
                     "use a short code for each level",
@@ -321,7 +340,7 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
         i = cast(int, first_string if strings <= numbers else first_number)  # both were seen
         where = _csv_where(col, i) if col.from_csv else rows_named([i])
         raise InputError.at(
-            col.cell_pointer(i),
+            col.cell(i),
             (
                 f"predictor column '{col.name}' mixes numbers ({numbers}) and text ({strings}); "
                 f"{where} holds {shown(col.values[i])}. Send null for a missing value, or list "
@@ -358,14 +377,13 @@ class Prepared:
         """The used rows' numbers as people see them (1 = first data row, ``ROW_RULE``)."""
         return np.asarray(self.row_ids, dtype=np.int64) + 1
 
-    def cell_pointer(self, column: str, i: int) -> str:
-        """JSON Pointer to used row ``i`` of ``column`` in the request's data."""
-        row = int(self.row_ids[i])
-        if self.source == "columns":
-            return pointer("data", "columns", column, row)
-        if self.source == "records":
-            return pointer("data", "records", row, column)
-        return "/data/csv" if self.source == "csv" else "/data"
+    def cell(self, column: str, i: int) -> Cell:
+        """The location of used row ``i`` of ``column`` in the request's data."""
+        return Cell(column, int(self.row_ids[i]), self.source)
+
+    def table(self) -> Table:
+        """The location of the table as the request sent it."""
+        return Table(self.source if self.source in ("columns", "records", "csv") else "")
 
     @property
     def n(self) -> int:
@@ -401,7 +419,7 @@ def prepare(
 ) -> Prepared:
     """Parse, type and clean the columns a request uses.
 
-    Raises :class:`InputError` with a JSON Pointer for every problem a caller
+    Raises :class:`InputError` naming the place (:mod:`errors` locations) of every problem a caller
     can fix: unknown or repeated columns, unequal lengths, non-numeric values in
     a numeric column, a constant response, too few rows.
     """
@@ -412,62 +430,62 @@ def prepare(
     if response not in known:
         problems.append(
             FieldProblem(
-                "/response",
+                Response(),
                 f"response column '{response}' is not in the data (columns: {_names(table.names)})",
             )
         )
     if not predictors:
-        problems.append(FieldProblem("/predictors", "predictors needs at least one column"))
+        problems.append(FieldProblem(Predictors(), "predictors needs at least one column"))
     seen = set()
     predictor_set = set(predictors)  # membership tests stay linear in the request
     for i, p in enumerate(predictors):
         if p not in known:
             problems.append(
                 FieldProblem(
-                    pointer("predictors", i),
+                    Predictor(i),
                     f"predictor column '{p}' is not in the data (columns: {_names(table.names)})",
                 )
             )
         if p == response:
             problems.append(
                 FieldProblem(
-                    pointer("predictors", i),
+                    Predictor(i),
                     f"'{p}' is the response; it cannot also be a predictor",
                 )
             )
         if p in seen:
-            problems.append(
-                FieldProblem(pointer("predictors", i), f"predictor '{p}' is listed twice")
-            )
+            problems.append(FieldProblem(Predictor(i), f"predictor '{p}' is listed twice"))
         seen.add(p)
     for i, c in enumerate(categorical):
         if c not in predictor_set:
             problems.append(
                 FieldProblem(
-                    pointer("categorical", i),
+                    Categorical(i),
                     f"categorical column '{c}' is not one of the predictors",
                 )
             )
     if group_by is not None:
         if group_by not in known:
             problems.append(
-                FieldProblem("/group_by", f"group_by column '{group_by}' is not in the data")
+                FieldProblem(Option("group_by"), f"group_by column '{group_by}' is not in the data")
             )
         elif group_by in (response, order) or group_by in predictor_set:
             problems.append(
                 FieldProblem(
-                    "/group_by",
+                    Option("group_by"),
                     f"group_by column '{group_by}' is also used "
                     "in the model; give a separate segment column",
                 )
             )
     if order is not None:
         if order not in known:
-            problems.append(FieldProblem("/order", f"order column '{order}' is not in the data"))
+            problems.append(
+                FieldProblem(Option("order"), f"order column '{order}' is not in the data")
+            )
         elif order == response or order in predictor_set:
             problems.append(
                 FieldProblem(
-                    "/order",
+                    Option("order"),
                     f"order column '{order}' is also used in the "
                     "model; give a separate time or sequence column",
                 )
@@ -627,36 +645,34 @@ def _tiny_spread(what: str, spread: float) -> str:
 def _check_content(p: Prepared) -> None:
     if p.n == 0:
         raise InputError.at(
-            "/data",
+            Table(),
             f"no row is complete: all {p.rows_received} rows have a missing value in a used column",
         )
     # relative to the values' size: data in small units (say 1e-13) still vary
     if np.ptp(p.y) <= 1e-12 * float(np.max(np.abs(p.y))):
         raise InputError.at(
-            "/response",
+            Response(),
             f"response '{p.response}' is constant ({p.y[0]:.6g}) on "
             "the used rows; there is nothing to model",
         )
     if np.ptp(p.y) < _MIN_SPREAD:
-        raise InputError.at("/response", _tiny_spread(f"response '{p.response}'", np.ptp(p.y)))
+        raise InputError.at(Response(), _tiny_spread(f"response '{p.response}'", np.ptp(p.y)))
     for i, name in enumerate(p.predictors):
         if name in p.numeric:
             x = p.numeric[name]
             if np.ptp(x) <= 1e-12 * float(np.max(np.abs(x))):
                 raise InputError.at(
-                    pointer("predictors", i),
+                    Predictor(i),
                     f"predictor '{name}' is constant "
                     f"({x[0]:.6g}) on the used rows; it cannot be estimated "
                     "beside the intercept",
                 )
             if np.ptp(x) < _MIN_SPREAD:
-                raise InputError.at(
-                    pointer("predictors", i), _tiny_spread(f"predictor '{name}'", np.ptp(x))
-                )
+                raise InputError.at(Predictor(i), _tiny_spread(f"predictor '{name}'", np.ptp(x)))
         else:
             levels = set(p.categorical[name])
             if len(levels) < 2:
                 raise InputError.at(
-                    pointer("predictors", i),
+                    Predictor(i),
                     f"categorical predictor '{name}' has a single level on the used rows",
                 )

@@ -1,8 +1,11 @@
-"""Domain errors raised by the numerical core.
+"""Domain errors raised by the numerical core, and where in a request they are.
 
-The web layer maps each class to one RFC 9457 problem type; the core never
-imports anything web-related.  Every error carries JSON Pointers (RFC 6901)
-into the caller's request so a client can show which field is wrong.
+The core names the place of a problem in its own terms -- a cell of the table, a predictor
+by position, the response, an option by name, a transform the caller asked for, a field of
+the specification under study or of a model artifact -- with the small vocabulary of
+:class:`Location` below.  It never builds a JSON Pointer and never speaks HTTP: the web
+layer (``service/api/pointers.py``) turns each location into the JSON Pointer (RFC 6901) of
+the endpoint's request body, and ``service/api/errors.py`` builds the RFC 9457 problem.
 """
 
 from __future__ import annotations
@@ -10,19 +13,133 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-
-def pointer(*parts: object) -> str:
-    """Build a JSON Pointer from path parts, escaping ``~`` and ``/`` (RFC 6901)."""
-    out = []
-    for part in parts:
-        text = str(part).replace("~", "~0").replace("/", "~1")
-        out.append(text)
-    return "/" + "/".join(out) if out else ""
+# ------------------------------------------------------------------ locations
 
 
-@dataclass
+@dataclass(frozen=True)
+class Location:
+    """Where a problem is, in the request's own terms (base class of the vocabulary)."""
+
+
+@dataclass(frozen=True)
+class Table(Location):
+    """The table as a whole; ``layout`` ("columns", "records", "csv") when the problem is
+    the way it was sent, "" when it is the rows themselves."""
+
+    layout: str = ""
+
+
+@dataclass(frozen=True)
+class DataColumn(Location):
+    """One column of the table as sent in ``layout``."""
+
+    column: str
+    layout: str
+
+
+@dataclass(frozen=True)
+class DataRow(Location):
+    """One row of the table (0-based position in the request's data) as sent in ``layout``."""
+
+    row: int
+    layout: str
+
+
+@dataclass(frozen=True)
+class Cell(Location):
+    """One cell: ``column`` at ``row`` (0-based position in the request's data)."""
+
+    column: str
+    row: int
+    layout: str
+
+
+@dataclass(frozen=True)
+class Response(Location):
+    """The column named as the response."""
+
+
+@dataclass(frozen=True)
+class Predictors(Location):
+    """The list of predictor columns."""
+
+
+@dataclass(frozen=True)
+class Predictor(Location):
+    """The predictor at ``index`` of the request's list."""
+
+    index: int
+
+
+@dataclass(frozen=True)
+class Categorical(Location):
+    """The entry at ``index`` of the list of columns to treat as categorical."""
+
+    index: int
+
+
+@dataclass(frozen=True)
+class Option(Location):
+    """An option by its dotted name, as messages and documents write it
+    (``"order"``, ``"validation.metric"``, ``"trust.resamples"``, ``"interval"``)."""
+
+    name: str
+
+
+@dataclass(frozen=True)
+class ResponseChoice(Location):
+    """The response transforms a search may use; ``index`` one of them."""
+
+    index: int | None = None
+
+
+@dataclass(frozen=True)
+class PredictorChoice(Location):
+    """The predictor transforms a search may use: those of ``column`` (None: the list
+    shared by every predictor); ``index`` one of them."""
+
+    column: str | None = None
+    index: int | None = None
+
+
+@dataclass(frozen=True)
+class SpecField(Location):
+    """A field of the specification under study (the one a diagnosis is asked for, the
+    incumbent of a selection): of the response (``predictor`` None) or of the predictor at
+    position ``predictor``; ``path`` names the field inside it (``("transform", "lambda")``)."""
+
+    predictor: int | None
+    path: tuple[str, ...] = ()
+
+    @classmethod
+    def response(cls, *path: str) -> SpecField:
+        return cls(None, path)
+
+    @classmethod
+    def of_predictor(cls, index: int, *path: str) -> SpecField:
+        return cls(index, path)
+
+    def at(self, *more: str) -> SpecField:
+        return SpecField(self.predictor, (*self.path, *more))
+
+
+@dataclass(frozen=True)
+class ModelField(Location):
+    """A field of a model artifact the service issued, by its path of keys and positions
+    (``()`` is the artifact itself)."""
+
+    path: tuple[str | int, ...] = ()
+
+    def at(self, *more: str | int) -> ModelField:
+        return ModelField((*self.path, *more))
+
+
+# ------------------------------------------------------------------ errors
+
+
+@dataclass(frozen=True)
 class FieldProblem:
-    pointer: str
+    where: Location
     detail: str
 
 
@@ -45,8 +162,8 @@ class InputError(BestscaleError):
     kind = "invalid-input"
 
     @classmethod
-    def at(cls, ptr: str, detail: str) -> InputError:
-        return cls(detail, [FieldProblem(ptr, detail)])
+    def at(cls, where: Location, detail: str) -> InputError:
+        return cls(detail, [FieldProblem(where, detail)])
 
 
 class BudgetError(BestscaleError):
@@ -61,6 +178,25 @@ class ModelFailure(BestscaleError):
 
     title = "No candidate could be fitted"
     kind = "no-candidate"
+
+
+@dataclass(frozen=True)
+class ErrorRecord:
+    """An error the core raised on purpose, kept as data: what a group or a batch segment
+    answers instead of a body (it crosses process boundaries; the web layer or the command
+    line renders it)."""
+
+    kind: str
+    title: str
+    detail: str
+    problems: tuple[FieldProblem, ...] = ()
+    over_budget: bool = False
+
+    @classmethod
+    def of(cls, exc: BestscaleError) -> ErrorRecord:
+        return cls(
+            exc.kind, exc.title, exc.detail, tuple(exc.problems), isinstance(exc, BudgetError)
+        )
 
 
 @dataclass

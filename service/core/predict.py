@@ -37,7 +37,17 @@ from . import transforms as tr
 from ._types import FloatArray
 from .conditions import CONDITION_NAMES
 from .data import RawColumn, as_categorical, as_numeric, read_table, shown
-from .errors import FieldProblem, InputError, pointer
+from .errors import (
+    Cell,
+    DataColumn,
+    DataRow,
+    FieldProblem,
+    InputError,
+    Location,
+    ModelField,
+    Option,
+    Table,
+)
 from .model import (
     FORMAT_VERSION,
     MAX_STORED_RESIDUALS,
@@ -50,6 +60,7 @@ from .spec import PredictorSpec, Specification, term_label
 
 KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
 MAX_PROBLEMS = 20
+MODEL = ModelField()  # the artifact itself: errors name its fields with MODEL.at(...)
 ROWS_LISTED = 5
 LEVERAGE_RTOL = 1e-9  # a training row recomputed may exceed the stored maximum by rounding
 # bounds an issued artifact always satisfies; the same as a request's where one exists
@@ -114,8 +125,8 @@ def _is_number(v: object) -> TypeGuard[int | float]:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
-def _first_non_finite(d: object) -> str | None:
-    """Pointer (inside the artifact) of the first NaN/Infinity, walking iteratively."""
+def _first_non_finite(d: object) -> ModelField | None:
+    """Field (of the artifact) of the first NaN/Infinity, walking iteratively."""
     stack: list[tuple[object, tuple[str | int, ...]]] = [(d, ())]
     while stack:
         node, path = stack.pop()
@@ -124,7 +135,7 @@ def _first_non_finite(d: object) -> str | None:
         elif isinstance(node, (list, tuple)):
             stack.extend((v, (*path, i)) for i, v in enumerate(node))
         elif isinstance(node, float) and not math.isfinite(node):
-            return pointer("model", *path)
+            return MODEL.at(*path)
     return None
 
 
@@ -148,46 +159,46 @@ def _check_signature(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | Non
     if sig is None or algo == "none":
         if keys is not None:
             raise InputError.at(
-                "/model/signature",
+                MODEL.at("signature"),
                 "the model is not signed, and this service accepts only models signed with "
                 "its key; refit it with this service to get a signed model",
             )
         return
     if algo != SIGNATURE_ALGORITHM:
         raise InputError.at(
-            "/model/signature/algorithm",
+            MODEL.at("signature", "algorithm"),
             f"signature algorithm {shown(algo)} is not one this service uses "
             f"('{SIGNATURE_ALGORITHM}'); send the model exactly as the service issued it",
         )
     kid, value = sig.get("key_id"), sig.get("value")
     if not isinstance(kid, str) or not isinstance(value, str):
         raise InputError.at(
-            "/model/signature",
+            MODEL.at("signature"),
             "the signature needs a string 'key_id' and 'value'; send the model exactly as "
             "the service issued it",
         )
     if keys is None:
         raise InputError.at(
-            "/model/signature/key_id",
+            MODEL.at("signature", "key_id"),
             f"the model is signed with key '{kid[:64]}', but this service holds no model key "
             "(setting BESTSCALE_MODEL_KEY), so it cannot verify it",
         )
     ring = keys[1]
     if kid not in ring:
         raise InputError.at(
-            "/model/signature/key_id",
+            MODEL.at("signature", "key_id"),
             f"the model is signed with key '{kid[:64]}', which this service does not hold "
             "(retired or never issued); refit the model with this service",
         )
     if not hmac.compare_digest(value, signature_value(d, kid, ring[kid])):
         raise InputError.at(
-            "/model/signature/value",
+            MODEL.at("signature", "value"),
             "the model's signature does not match its content: it was modified or forged "
             "after it was issued; send it back unchanged or refit it",
         )
 
 
-def _need(d: dict[str, Any], key: str, ptr: str) -> Any:
+def _need(d: dict[str, Any], key: str, ptr: ModelField) -> Any:
     if key not in d:
         raise InputError.at(
             ptr, f"the model has no '{key}'; send the model object exactly as the service issued it"
@@ -195,26 +206,26 @@ def _need(d: dict[str, Any], key: str, ptr: str) -> Any:
     return d[key]
 
 
-def _number(v: object, ptr: str, what: str) -> float:
+def _number(v: object, ptr: ModelField, what: str) -> float:
     if not _is_number(v):
         raise InputError.at(ptr, f"{what} must be a number, not {type(v).__name__}")
     return float(v)
 
 
-def _transform(d: object, ptr: str, role: str) -> tr.Transform:
+def _transform(d: object, ptr: ModelField, role: str) -> tr.Transform:
     if not isinstance(d, dict) or not isinstance(d.get("name"), str):
         raise InputError.at(ptr, f"the {role} transform must be an object with a 'name'")
     name = d["name"]
     if name not in tr.ALL_NAMES or (role == "response" and name == "categorical"):
         raise InputError.at(
-            pointer(*ptr.strip("/").split("/"), "name"),
+            ptr.at("name"),
             f"'{name}' is not a {role} transform this service fits",
         )
     if name == "power":
         q = d.get("exponent")
         if not _is_number(q) or not tr.EXPONENT_FLOOR <= abs(q) <= EXPONENT_BOUND:
             raise InputError.at(
-                pointer(*ptr.strip("/").split("/"), "exponent"),
+                ptr.at("exponent"),
                 f"a power transform needs a numeric 'exponent' with {tr.EXPONENT_FLOOR:g} <= "
                 f"|exponent| <= {EXPONENT_BOUND:g}; the model was damaged or forged",
             )
@@ -222,7 +233,7 @@ def _transform(d: object, ptr: str, role: str) -> tr.Transform:
         lam = d.get("lambda")
         if not _is_number(lam) or abs(lam) > LAMBDA_BOUND:
             raise InputError.at(
-                pointer(*ptr.strip("/").split("/"), "lambda"),
+                ptr.at("lambda"),
                 f"the model's {name} transform needs a numeric 'lambda' within "
                 f"[-{LAMBDA_BOUND:g}, {LAMBDA_BOUND:g}]",
             )
@@ -232,7 +243,7 @@ def _transform(d: object, ptr: str, role: str) -> tr.Transform:
         and (not _is_number(d["shift"]) or abs(d["shift"]) > SHIFT_BOUND)
     ):
         raise InputError.at(
-            pointer(*ptr.strip("/").split("/"), "shift"),
+            ptr.at("shift"),
             f"the log 'shift' must be a number within [-{SHIFT_BOUND:g}, {SHIFT_BOUND:g}]",
         )
     t = tr.from_dict(d)
@@ -243,28 +254,28 @@ def _transform(d: object, ptr: str, role: str) -> tr.Transform:
 
 
 def _specification(d: object) -> Specification:
-    ptr = "/model/specification"
+    ptr = MODEL.at("specification")
     if not isinstance(d, dict):
         raise InputError.at(ptr, "the model's specification must be an object")
     resp = _need(d, "response", ptr)
     if not isinstance(resp, dict) or not _is_name(resp.get("column")):
         raise InputError.at(
-            ptr + "/response",
+            ptr.at("response"),
             f"the response must be an object with a 'column' of 1 to {MAX_NAME_CHARS} characters",
         )
     rt = _transform(
-        resp.get("transform", {"name": "identity"}), ptr + "/response/transform", "response"
+        resp.get("transform", {"name": "identity"}), ptr.at("response", "transform"), "response"
     )
     preds = _need(d, "predictors", ptr)
     if not isinstance(preds, list) or not preds or len(preds) > MAX_PREDICTORS:
         raise InputError.at(
-            ptr + "/predictors",
+            ptr.at("predictors"),
             f"the model needs a predictor list of 1 to {MAX_PREDICTORS} entries",
         )
     out = []
     seen = set()
     for j, p in enumerate(preds):
-        pp = pointer("model", "specification", "predictors", j)
+        pp = MODEL.at("specification", "predictors", j)
         if not isinstance(p, dict) or not _is_name(p.get("column")):
             raise InputError.at(
                 pp,
@@ -278,23 +289,23 @@ def _specification(d: object) -> Specification:
             PredictorSpec(
                 p["column"],
                 _transform(
-                    p.get("transform", {"name": "identity"}), pp + "/transform", "predictor"
+                    p.get("transform", {"name": "identity"}), pp.at("transform"), "predictor"
                 ),
             )
         )
     intercept = d.get("intercept", True)
     if not isinstance(intercept, bool):
-        raise InputError.at(ptr + "/intercept", "intercept must be true or false")
+        raise InputError.at(ptr.at("intercept"), "intercept must be true or false")
     return Specification(resp["column"], rt, tuple(out), intercept)
 
 
 def _levels(d: object, spec: Specification) -> dict[str, dict[str, Any]]:
     if not isinstance(d, dict):
-        raise InputError.at("/model/levels", "the model's levels must be an object")
+        raise InputError.at(MODEL.at("levels"), "the model's levels must be an object")
     cols = {p.column for p in spec.predictors}
     out = {}
     for col, info in d.items():
-        ptr = pointer("model", "levels", col)
+        ptr = MODEL.at("levels", col)
         if col not in cols:
             raise InputError.at(ptr, f"levels are given for '{col}', which is not a predictor")
         lv = info.get("levels") if isinstance(info, dict) else None
@@ -306,19 +317,19 @@ def _levels(d: object, spec: Specification) -> dict[str, dict[str, Any]]:
             or len(set(lv)) != len(lv)
         ):
             raise InputError.at(
-                ptr + "/levels",
+                ptr.at("levels"),
                 f"'{col}' needs a list of 2 to {MAX_LEVELS} distinct level names of at most "
                 f"{MAX_NAME_CHARS} characters",
             )
         if ref not in lv:
             raise InputError.at(
-                ptr + "/reference", f"the reference level of '{col}' is not one of its levels"
+                ptr.at("reference"), f"the reference level of '{col}' is not one of its levels"
             )
         out[col] = {"levels": list(lv), "reference": ref}
     for p in spec.predictors:
         if p.transform.name == "categorical" and p.column not in out:
             raise InputError.at(
-                "/model/levels", f"categorical predictor '{p.column}' has no level list"
+                MODEL.at("levels"), f"categorical predictor '{p.column}' has no level list"
             )
     return out
 
@@ -345,15 +356,15 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     the specification, levels, terms and array shapes agree with each other and
     every value lies within the bounds an issued artifact satisfies, so even a
     correctly signed but damaged model cannot overflow.  Every failure is an
-    :class:`InputError` pointing into ``/model``.
+    :class:`InputError` naming a field of the artifact (:class:`ModelField`).
     """
     if not isinstance(d, dict):
-        raise InputError.at("/model", "the model must be a JSON object as issued by the service")
+        raise InputError.at(MODEL, "the model must be a JSON object as issued by the service")
     fv = d.get("format_version")
     if not _is_number(fv) or fv not in KNOWN_FORMAT_VERSIONS:
         known = ", ".join(str(v) for v in KNOWN_FORMAT_VERSIONS)
         raise InputError.at(
-            "/model/format_version",
+            MODEL.at("format_version"),
             f"model format_version {shown(fv)} is not one "
             f"this service reads ({known}); refit the model with this service",
         )
@@ -362,7 +373,7 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     if isinstance(values, list) and len(values) > MAX_STORED_RESIDUALS:
         # before any walk over the content: an issued model never holds more
         raise InputError.at(
-            "/model/residuals",
+            MODEL.at("residuals"),
             f"the model holds {len(values)} residuals; an issued model holds at most "
             f"{MAX_STORED_RESIDUALS}; send the model exactly as the service issued it",
         )
@@ -373,43 +384,43 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     given = d.get("checksum")
     if not isinstance(given, str):
         raise InputError.at(
-            "/model/checksum",
+            MODEL.at("checksum"),
             "the model has no checksum; send the model object exactly as the service issued it",
         )
     try:
         actual = checksum(d)
     except (TypeError, ValueError):
-        raise InputError.at("/model", "the model holds values that are not plain JSON") from None
+        raise InputError.at(MODEL, "the model holds values that are not plain JSON") from None
     if not hmac.compare_digest(given, actual):
         raise InputError.at(
-            "/model/checksum",
+            MODEL.at("checksum"),
             "the model was modified after it was issued "
             "(its checksum does not match its content); send it back unchanged",
         )
     _check_signature(d, keys)
 
-    spec = _specification(_need(d, "specification", "/model"))
+    spec = _specification(_need(d, "specification", MODEL))
     levels = _levels(d.get("levels", {}), spec)
-    terms = _need(d, "terms", "/model")
+    terms = _need(d, "terms", MODEL)
     want = expected_terms(spec, levels)
     if terms != want:
         raise InputError.at(
-            "/model/terms",
+            MODEL.at("terms"),
             f"the model's terms {_cut(terms)} do not match its "
             f"specification (expected {_cut(want)})",
         )
     p = len(want)
-    coef = _need(d, "coefficients", "/model")
+    coef = _need(d, "coefficients", MODEL)
     if (
         not isinstance(coef, list)
         or len(coef) != p
         or not all(_is_number(v) and abs(v) <= MAX_ABS for v in coef)
     ):
         raise InputError.at(
-            "/model/coefficients",
+            MODEL.at("coefficients"),
             f"coefficients must be {p} numbers of magnitude at most {MAX_ABS:g}, one per term",
         )
-    V = _need(d, "xtx_inverse", "/model")
+    V = _need(d, "xtx_inverse", MODEL)
     if (
         not isinstance(V, list)
         or len(V) != p
@@ -421,35 +432,35 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
         )
     ):
         raise InputError.at(
-            "/model/xtx_inverse",
+            MODEL.at("xtx_inverse"),
             f"xtx_inverse must be a {p} x {p} matrix of numbers of magnitude at most {MAX_ABS:g}",
         )
     Va = np.array(V, dtype=float)
     scale = float(np.max(np.abs(Va))) if Va.size else 0.0
     if np.any(np.diag(Va) < 0) or not np.allclose(Va, Va.T, rtol=1e-8, atol=1e-10 * scale):
         raise InputError.at(
-            "/model/xtx_inverse",
+            MODEL.at("xtx_inverse"),
             "xtx_inverse must be symmetric with a non-negative diagonal, as (X'X)^-1 is",
         )
     s2 = _number(
-        _need(d, "residual_variance", "/model"), "/model/residual_variance", "residual_variance"
+        _need(d, "residual_variance", MODEL), MODEL.at("residual_variance"), "residual_variance"
     )
     if not 0 <= s2 <= MAX_ABS:
         raise InputError.at(
-            "/model/residual_variance",
+            MODEL.at("residual_variance"),
             f"residual_variance must lie in [0, {MAX_ABS:g}]",
         )
-    df = _need(d, "df_residual", "/model")
+    df = _need(d, "df_residual", MODEL)
     if not isinstance(df, int) or isinstance(df, bool) or not 1 <= df <= MAX_TRAINING_ROWS:
-        raise InputError.at("/model/df_residual", "df_residual must be a positive integer")
+        raise InputError.at(MODEL.at("df_residual"), "df_residual must be a positive integer")
     n_train = d.get("n")
     if n_train is not None and (
         not isinstance(n_train, int)
         or isinstance(n_train, bool)
         or not df < n_train <= MAX_TRAINING_ROWS
     ):
-        raise InputError.at("/model/n", f"n must be an integer larger than df_residual ({df})")
-    res = _need(d, "residuals", "/model")
+        raise InputError.at(MODEL.at("n"), f"n must be an integer larger than df_residual ({df})")
+    res = _need(d, "residuals", MODEL)
     values = res.get("values") if isinstance(res, dict) else None
     if (
         not isinstance(res, dict)
@@ -459,7 +470,7 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
         or not all(_is_number(v) and abs(v) <= MAX_ABS for v in values)
     ):
         raise InputError.at(
-            "/model/residuals",
+            MODEL.at("residuals"),
             "residuals must be {kind: 'all' | 'quantiles', values: [numbers]} with 1 to "
             f"{MAX_STORED_RESIDUALS} values (the most an issued model holds)",
         )
@@ -469,33 +480,33 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
         or (n_train is not None and n_train <= MAX_STORED_RESIDUALS)
     ):
         raise InputError.at(
-            "/model/residuals",
+            MODEL.at("residuals"),
             f"a model keeps residual quantiles only past {MAX_STORED_RESIDUALS} rows, "
             f"exactly {MAX_STORED_RESIDUALS} of them; the model was damaged or forged",
         )
     if res["kind"] == "all":
         if n_train is not None and len(values) != n_train:
             raise InputError.at(
-                "/model/residuals/values",
+                MODEL.at("residuals", "values"),
                 f"an 'all' residual list must hold n = {n_train} values, not {len(values)}",
             )
         with np.errstate(all="ignore"):
             s2_res = float(np.sum(e * e)) / df
         if not abs(s2_res - s2) <= VARIANCE_RTOL * max(s2_res, s2) + 1e-300:
             raise InputError.at(
-                "/model/residual_variance",
+                MODEL.at("residual_variance"),
                 f"residual_variance {s2:.6g} does not agree with the stored residuals "
                 f"({s2_res:.6g}); the model was damaged or forged",
             )
-    rng_in = _need(d, "training_range", "/model")
+    rng_in = _need(d, "training_range", MODEL)
     if not isinstance(rng_in, dict):
-        raise InputError.at("/model/training_range", "training_range must be an object")
+        raise InputError.at(MODEL.at("training_range"), "training_range must be an object")
     ranges = {}
     for pr in spec.predictors:
         if pr.column in levels:
             continue
         r = rng_in.get(pr.column)
-        ptr = pointer("model", "training_range", pr.column)
+        ptr = MODEL.at("training_range", pr.column)
         if (
             not isinstance(r, dict)
             or not _is_number(r.get("min"))
@@ -510,13 +521,13 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     for col in rng_in:
         if col not in ranges:
             raise InputError.at(
-                pointer("model", "training_range", col),
+                MODEL.at("training_range", col),
                 f"a training range is given for '{col[:MAX_NAME_CHARS]}', which is not a "
                 "numeric predictor",
             )
-    hmax = _number(_need(d, "max_leverage", "/model"), "/model/max_leverage", "max_leverage")
+    hmax = _number(_need(d, "max_leverage", MODEL), MODEL.at("max_leverage"), "max_leverage")
     if not 0.0 <= hmax <= 1.0 + 1e-9:
-        raise InputError.at("/model/max_leverage", "max_leverage must lie in [0, 1]")
+        raise InputError.at(MODEL.at("max_leverage"), "max_leverage must lie in [0, 1]")
     fits, missing = _cv_plus(d.get("cv_plus"), spec, p, n_train, levels)
     return LoadedModel(
         spec,
@@ -549,13 +560,13 @@ def _cv_plus_sizes(block: object) -> None:
             v = powers.get(key)
             if isinstance(v, list) and len(v) > most:
                 raise InputError.at(
-                    f"/model/cv_plus/fold_powers/{key}",
+                    MODEL.at("cv_plus", "fold_powers", key),
                     f"the model holds {len(v)} entries in fold_powers/{key}; an issued model "
                     f"holds at most {most}; send the model exactly as the service issued it",
                 )
     if isinstance(fits, list) and len(fits) > MAX_FOLDS:
         raise InputError.at(
-            "/model/cv_plus/fold_fits",
+            MODEL.at("cv_plus", "fold_fits"),
             f"the model holds {len(fits)} fold fits; an issued model holds at most {MAX_FOLDS}",
         )
     if isinstance(res, dict):
@@ -563,7 +574,7 @@ def _cv_plus_sizes(block: object) -> None:
             v = res.get(key)
             if isinstance(v, list) and len(v) > cvplus.MAX_ROWS:
                 raise InputError.at(
-                    f"/model/cv_plus/residuals/{key}",
+                    MODEL.at("cv_plus", "residuals", key),
                     f"the model holds {len(v)} CV+ residuals; an issued model holds at most "
                     f"{cvplus.MAX_ROWS}; send the model exactly as the service issued it",
                 )
@@ -574,7 +585,7 @@ def _conditions_failed(v: object) -> list[str] | None:
         return None
     if not isinstance(v, list) or not all(isinstance(c, str) and c in CONDITION_NAMES for c in v):
         raise InputError.at(
-            "/model/conditions_failed",
+            MODEL.at("conditions_failed"),
             "conditions_failed must be a list of condition names ("
             + ", ".join(CONDITION_NAMES)
             + "); send the model exactly as the service issued it",
@@ -588,7 +599,7 @@ def _fold_powers(
     """The ``fold_powers`` of a cv_plus block: each named column a numeric predictor on an
     estimated-power scale (power, or log where the estimate was 0), in specification order,
     the form the intercept implies, and K rows of powers within the estimation bounds."""
-    ptr = "/model/cv_plus/fold_powers"
+    ptr = MODEL.at("cv_plus", "fold_powers")
     damaged = "; the model was damaged or forged"
     form = cvplus.POWER_FORMS[0] if spec.intercept else cvplus.POWER_FORMS[1]
     if not isinstance(d, dict) or d.get("form") != form:
@@ -604,7 +615,7 @@ def _fold_powers(
             t = pr.transform
             if pr.column in levels or not (t.name == "power" or (t.name == "log" and not t.shift)):
                 raise InputError.at(
-                    ptr + "/columns",
+                    ptr.at("columns"),
                     f"'{pr.column[:MAX_NAME_CHARS]}' is not on an estimated-power scale in "
                     "the model's specification" + damaged,
                 )
@@ -614,7 +625,7 @@ def _fold_powers(
     j = len(order)
     if not isinstance(cols, list) or not cols or cols != order:
         raise InputError.at(
-            ptr + "/columns",
+            ptr.at("columns"),
             "fold_powers columns must name the model's estimated-power predictors once each, "
             "in the specification's order" + damaged,
         )
@@ -629,7 +640,7 @@ def _fold_powers(
         )
     ):
         raise InputError.at(
-            ptr + "/values",
+            ptr.at("values"),
             f"fold_powers values must be {K} rows (one per fold) of {j} powers within "
             f"[-{cvplus.MAX_ABS_POWER:g}, {cvplus.MAX_ABS_POWER:g}]" + damaged,
         )
@@ -646,7 +657,7 @@ def _cv_plus(
     levels: dict[str, dict[str, Any]],
 ) -> tuple[CVPlusFits | None, str]:
     """The ``cv_plus`` block checked against the model: (fits or None, why not)."""
-    ptr = "/model/cv_plus"
+    ptr = MODEL.at("cv_plus")
     if block is None:
         return None, NO_CV_PLUS
     damaged = "; the model was damaged or forged"
@@ -656,7 +667,7 @@ def _cv_plus(
         why = block.get("reason")
         if not isinstance(why, str) or not 1 <= len(why) <= MAX_REASON_CHARS:
             raise InputError.at(
-                ptr + "/reason", "an unavailable cv_plus needs its reason" + damaged
+                ptr.at("reason"), "an unavailable cv_plus needs its reason" + damaged
             )
         return None, why
     K = block.get("folds")
@@ -669,19 +680,19 @@ def _cv_plus(
         or len(fits) != K
     ):
         raise InputError.at(
-            ptr + "/fold_fits",
+            ptr.at("fold_fits"),
             f"cv_plus needs 'folds' K (2 to {MAX_FOLDS}) and K fold fits" + damaged,
         )
     family = spec.response_transform.name
     coefs, transforms = [], []
     for k, f in enumerate(fits):
-        fp = pointer("model", "cv_plus", "fold_fits", k)
+        fp = MODEL.at("cv_plus", "fold_fits", k)
         if not isinstance(f, dict):
             raise InputError.at(fp, "a fold fit must be an object" + damaged)
-        t = _transform(f.get("response_transform"), fp + "/response_transform", "response")
+        t = _transform(f.get("response_transform"), fp.at("response_transform"), "response")
         if t.name != family:
             raise InputError.at(
-                fp + "/response_transform",
+                fp.at("response_transform"),
                 f"fold {k + 1} is on the '{t.name}' scale, not the model's '{family}'" + damaged,
             )
         c = f.get("coefficients")
@@ -691,13 +702,13 @@ def _cv_plus(
             or not all(_is_number(v) and abs(v) <= MAX_ABS for v in c)
         ):
             raise InputError.at(
-                fp + "/coefficients",
+                fp.at("coefficients"),
                 f"a fold fit needs {p} coefficients of magnitude at most {MAX_ABS:g}" + damaged,
             )
         coefs.append(c)
         transforms.append(t)
     res = block.get("residuals")
-    rp = ptr + "/residuals"
+    rp = ptr.at("residuals")
     fold = res.get("fold") if isinstance(res, dict) else None
     vals = res.get("values") if isinstance(res, dict) else None
     if (
@@ -730,7 +741,7 @@ def _cv_plus(
     scheme = block.get("scheme")
     if scheme not in ("random", "blocked"):
         raise InputError.at(
-            ptr + "/scheme", "cv_plus scheme must be 'random' or 'blocked'" + damaged
+            ptr.at("scheme"), "cv_plus scheme must be 'random' or 'blocked'" + damaged
         )
     powers = block.get("fold_powers")
     return (
@@ -748,12 +759,15 @@ def _cv_plus(
 
 
 # -------------------------------------------------------------- new design
-def _missing_column(source: str, col: str) -> str:
-    if source == "columns":
-        return pointer("data", "columns", col)
-    if source == "records":
-        return pointer("data", "records", 0, col)
-    return "/data/csv"
+def _missing_column(source: str, col: str) -> DataColumn:
+    return DataColumn(col, source)
+
+
+def _record_cell(where: Location, column: str) -> Location:
+    """Where a record lacks ``column``: that record's cell (other places stay as they are)."""
+    if isinstance(where, DataRow) and where.layout == "records":
+        return Cell(column, where.row, "records")
+    return where
 
 
 def _bad_domain(t: tr.Transform, x: FloatArray, column: str) -> np.ndarray:
@@ -804,7 +818,7 @@ def new_design(
     table = read_table(data)
     m = table.n_rows
     if m == 0:
-        raise InputError.at("/data", "the data have no rows to predict")
+        raise InputError.at(Table(), "the data have no rows to predict")
     spec = model.spec
     problems: list[FieldProblem] = []
     known = set(table.names)
@@ -828,18 +842,18 @@ def new_design(
     cols: list[np.ndarray] = [np.ones(m)] if spec.intercept else []
     raw_numeric: dict[str, np.ndarray] = {}
 
-    def add(ptr: str, detail: str) -> None:
+    def add(where: Location, detail: str) -> None:
         if len(problems) < MAX_PROBLEMS:
-            problems.append(FieldProblem(ptr, detail))
+            problems.append(FieldProblem(where, detail))
 
     n_bad = 0
     for p in spec.predictors:
         try:
             raw: RawColumn = table.get(p.column)
         except InputError as exc:  # a record without the field
-            ptr = exc.problems[0].pointer if exc.problems else "/data"
+            where = exc.problems[0].where if exc.problems else Table()
             add(
-                pointer(*ptr.strip("/").split("/"), p.column) if table.source == "records" else ptr,
+                _record_cell(where, p.column),
                 f"a row has no value for predictor '{p.column}'; every row needs one",
             )
             n_bad += 1
@@ -851,7 +865,7 @@ def new_design(
             for i in np.flatnonzero(typed.missing):
                 n_bad += 1
                 add(
-                    raw.cell_pointer(int(i)),
+                    raw.cell(int(i)),
                     f"predictor '{p.column}' is missing (null) in {rows_named([int(i)])}; "
                     "a prediction needs every predictor value",
                 )
@@ -859,7 +873,7 @@ def new_design(
                 if v is not None and v not in allowed:
                     n_bad += 1
                     add(
-                        raw.cell_pointer(row),
+                        raw.cell(row),
                         f"level '{v}' of '{p.column}' in {rows_named([row])} did not "
                         f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
                         "the model cannot predict for it",
@@ -872,7 +886,7 @@ def new_design(
             typed = as_numeric(raw, "predictor")
         except InputError as exc:
             for fp in exc.problems:
-                add(fp.pointer, fp.detail)
+                add(fp.where, fp.detail)
             n_bad += 1
             cols.append(np.zeros(m))
             continue
@@ -880,7 +894,7 @@ def new_design(
         for i in np.flatnonzero(typed.missing):
             n_bad += 1
             add(
-                raw.cell_pointer(int(i)),
+                raw.cell(int(i)),
                 f"predictor '{p.column}' is missing (null) in {rows_named([int(i)])}; "
                 "a prediction needs every predictor value",
             )
@@ -893,7 +907,7 @@ def new_design(
         for i in np.flatnonzero(bad):
             n_bad += 1
             add(
-                raw.cell_pointer(int(i)),
+                raw.cell(int(i)),
                 f"predictor '{p.column}' is {x[i]:.6g} in {rows_named([int(i)])}, "
                 f"where {label} (the model's scale for '{p.column}') is not defined; it needs "
                 f"{_domain_text(t)}",
@@ -961,14 +975,14 @@ def interval_method(model: LoadedModel, asked: object) -> tuple[str, str]:
         )
     if asked not in INTERVAL_METHODS:
         raise InputError.at(
-            "/interval_method",
+            Option("interval_method"),
             f"interval_method {shown(asked)} is not one this service computes; send 'normal' "
             "(normal-theory interval) or 'cv_plus' (from the out-of-fold residuals), or leave "
             "it out to let the model's condition results choose",
         )
     if asked == "cv_plus" and model.cv_plus is None:
         raise InputError.at(
-            "/interval_method",
+            Option("interval_method"),
             "interval_method 'cv_plus' needs the out-of-fold fits stored in the model, and "
             f"this model has none ({model.cv_plus_missing}); send 'normal' or leave "
             "interval_method out",
@@ -995,7 +1009,7 @@ def predict(
     """
     if not (_is_number(interval) and 0.0 < interval < 1.0):
         raise InputError.at(
-            "/interval",
+            Option("interval"),
             f"interval must lie strictly between 0 and 1 (got "
             f"{interval!r}); 0.95 gives a 95% prediction interval",
         )

@@ -9,7 +9,7 @@ import numpy as np
 
 from . import transforms as tr
 from .data import Prepared
-from .errors import CandidateFailure, InputError, pointer
+from .errors import CandidateFailure, InputError, Location, SpecField
 from .likelihood import fit_transform
 
 # response transform, predictor transforms, intercept: identifies a specification
@@ -106,17 +106,19 @@ class Design:
 
 
 def categorical_levels(
-    values: np.ndarray, reference: str | None, column: str, where: str
+    values: np.ndarray, reference: str | None, column: str, where: Location | None = None
 ) -> tuple[list[str], str]:
+    """Sorted levels and the reference (the first level unless ``reference`` names one);
+    a reference that does not occur is refused at ``where``."""
     levels = sorted(set(values.tolist()))
     if reference is None:
         reference = levels[0]
     elif reference not in levels:
-        raise InputError.at(
-            where,
+        detail = (
             f"reference level '{reference}' of '{column}' does not occur "
-            f"in the data (levels: {levels[:20]})",
+            f"in the data (levels: {levels[:20]})"
         )
+        raise InputError.at(where, detail) if where is not None else InputError(detail)
     return levels, reference
 
 
@@ -133,7 +135,6 @@ def build_design(
     spec: Specification,
     prep: Prepared,
     cache: dict[tuple[str, tr.Transform], np.ndarray] | None = None,
-    ptr_prefix: str = "/specification",
 ) -> Design:
     """Design matrix (n, p) for ``spec`` on the prepared rows.
 
@@ -159,11 +160,7 @@ def build_design(
                 vals,
                 ref,
                 p.column,
-                pointer(
-                    *ptr_prefix.strip("/").split("/"), "predictors", j, "transform", "reference"
-                )
-                if ptr_prefix
-                else "",
+                SpecField.of_predictor(j, "transform", "reference"),
             )
             start = len(cols)
             for level in lv:

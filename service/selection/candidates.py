@@ -29,7 +29,15 @@ from ..core import transforms as tr
 from ..core._types import FloatArray, TransformItem
 from ..core.bank import ColumnBank, FoldIndex
 from ..core.data import Prepared
-from ..core.errors import CandidateFailure, FieldProblem, InputError, pointer
+from ..core.errors import (
+    CandidateFailure,
+    FieldProblem,
+    InputError,
+    Location,
+    Predictor,
+    PredictorChoice,
+    ResponseChoice,
+)
 from ..core.likelihood import fit_transform
 from ..core.numbers import count_of, rows_named
 from ..core.spec import PredictorSpec, Specification, categorical_levels, term_label
@@ -69,7 +77,7 @@ def check_explicit(
     x: FloatArray,
     column: str,
     role: str,
-    where: str,
+    where: Location,
     item: object,
 ) -> None:
     """An explicitly requested transform is applied as asked or refused (422), never changed.
@@ -101,7 +109,7 @@ def check_explicit(
     raise InputError(
         detail,
         [
-            FieldProblem(prep.cell_pointer(column, i), detail),
+            FieldProblem(prep.cell(column, i), detail),
             FieldProblem(where, f"{lab} cannot take every value of '{column}'"),
         ],
     )
@@ -117,12 +125,10 @@ def response_candidates(
     for i, item in enumerate(items):
         for t in _expand_name(item, "response"):
             if t.name == "categorical":
-                raise InputError.at(
-                    pointer("transforms", "response", i), "the response cannot be categorical"
-                )
+                raise InputError.at(ResponseChoice(i), "the response cannot be categorical")
             if bt.is_open(t):
                 raise InputError.at(
-                    pointer("transforms", "response", i),
+                    ResponseChoice(i),
                     "a response power needs an 'exponent' (or use box_cox to estimate one)",
                 )
             if explicit:
@@ -132,13 +138,13 @@ def response_candidates(
                     y,
                     prep.response,
                     "response",
-                    pointer("transforms", "response", i),
+                    ResponseChoice(i),
                     item,
                 )
             msg = t.domain_problem(y, prep.response, "response")
             if msg:
                 if explicit:
-                    raise InputError.at(pointer("transforms", "response", i), msg)
+                    raise InputError.at(ResponseChoice(i), msg)
                 continue
             if t not in out:
                 out.append(t)
@@ -165,12 +171,13 @@ def predictor_candidates(
             per.append([tr.Transform("categorical")])
             continue
         x = prep.numeric[col]
+        listed_for: str | None  # whose list of transforms (None: the one shared by all)
         if isinstance(spec, dict) and col in spec:
-            items, explicit, base = spec[col], True, pointer("transforms", "predictors", col)
+            items, explicit, listed_for = spec[col], True, col
         elif isinstance(spec, list):
-            items, explicit, base = spec, False, "/transforms/predictors"
+            items, explicit, listed_for = spec, False, None
         else:
-            items, explicit, base = list(DEFAULT_PREDICTOR), False, ""
+            items, explicit, listed_for = list(DEFAULT_PREDICTOR), False, None
         lst: list[tr.Transform] = []
         for i, item in enumerate(items):
             for t in _expand_name(item, "predictor"):
@@ -180,7 +187,7 @@ def predictor_candidates(
                             lst.append(t)
                     elif explicit and isinstance(item, dict):
                         raise InputError.at(
-                            f"{base}/{i}",
+                            PredictorChoice(listed_for, i),
                             f"an estimated power of '{col}' needs "
                             "values > 0 with at least "
                             f"{MIN_DISTINCT_FOR_POWER} distinct values",
@@ -188,22 +195,24 @@ def predictor_candidates(
                     continue
                 if t.name in ("box_cox", "yeo_johnson") and t.lam is None:
                     raise InputError.at(
-                        f"{base}/{i}",
+                        PredictorChoice(listed_for, i),
                         f"{t.name} of a predictor needs an explicit "
                         "'lambda' (for an estimated predictor power use "
                         "'power')",
                     )
                 if t.name == "categorical":
                     raise InputError.at(
-                        f"{base}/{i}",
+                        PredictorChoice(listed_for, i),
                         f"'{col}' is numeric; list it in 'categorical' to treat it as levels",
                     )
                 if explicit:
-                    check_explicit(prep, t, x, col, "predictor", f"{base}/{i}", item)
+                    check_explicit(
+                        prep, t, x, col, "predictor", PredictorChoice(listed_for, i), item
+                    )
                 msg = t.domain_problem(x, col, "predictor")
                 if msg:
                     if explicit:
-                        raise InputError.at(f"{base}/{i}", msg)
+                        raise InputError.at(PredictorChoice(listed_for, i), msg)
                     continue
                 if t.name == "log" and t.shift is None:
                     t = fit_transform(t, x)
@@ -213,7 +222,7 @@ def predictor_candidates(
             lst.append(bt.ESTIMATED)
         if not lst:
             raise InputError.at(
-                pointer("predictors", j), f"no requested transform applies to predictor '{col}'"
+                Predictor(j), f"no requested transform applies to predictor '{col}'"
             )
         per.append(lst)
     return per
@@ -264,7 +273,7 @@ class Space:
         return cols, names, dyn
 
     def _dummy_names(self, column: str) -> list[str]:
-        lv, ref = categorical_levels(self.prep.categorical[column], None, column, "")
+        lv, ref = categorical_levels(self.prep.categorical[column], None, column)
         return [term_label(column, level) for level in lv if level != ref]
 
 
@@ -283,7 +292,7 @@ def build_space(
     for col, opts in zip(prep.predictors, preds, strict=True):
         if col in prep.categorical:
             vals = prep.categorical[col]
-            lv, ref = categorical_levels(vals, None, col, "")
+            lv, ref = categorical_levels(vals, None, col)
             idx = tuple(
                 bank.add((col, "level", level), (vals == level).astype(float))
                 for level in lv
@@ -339,7 +348,7 @@ def screening_powers(
     for c in prep.predictors:
         if c in prep.categorical:
             vals = prep.categorical[c][rows]
-            lv, ref = categorical_levels(prep.categorical[c], None, c, "")
+            lv, ref = categorical_levels(prep.categorical[c], None, c)
             base[c] = [(vals == level).astype(float) for level in lv if level != ref]
         else:
             base[c] = [prep.numeric[c][rows]]

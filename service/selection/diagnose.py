@@ -9,7 +9,7 @@ from ..core import transforms as tr
 from ..core.condition_rules import failed
 from ..core.crossval import cross_validate
 from ..core.data import Prepared
-from ..core.errors import CandidateFailure, InputError, ModelFailure, pointer
+from ..core.errors import CandidateFailure, InputError, ModelFailure, SpecField
 from ..core.folds import make_plan
 from ..core.spec import Specification, build_design, resolve_predictor_transforms
 from .candidates import check_explicit
@@ -27,7 +27,7 @@ def diagnose_specification(
 ) -> tuple[dict[str, Any], dict[str, Any]]:
     """One specification exactly as given: (ranking entry without rank, plot data).
 
-    Domain problems are :class:`InputError` pointing into ``/specification``; a
+    Domain problems are :class:`InputError` naming a field of the specification (:class:`SpecField`); a
     specification that cannot be fitted or cross-validated is a :class:`ModelFailure`.
     """
     spec = Specification.from_dict(spec_dict)
@@ -38,22 +38,22 @@ def diagnose_specification(
         prep.y,
         prep.response,
         "response",
-        "/specification/response/transform",
+        SpecField.response("transform"),
         spec_dict["response"].get("transform"),
     )
     msg = rt.domain_problem(prep.y, prep.response, "response")
     if msg:
-        raise InputError.at("/specification/response/transform", msg)
+        raise InputError.at(SpecField.response("transform"), msg)
     for i, p in enumerate(spec.predictors):
         if p.column in prep.numeric:
             if p.transform.name == "categorical":
                 raise InputError.at(
-                    pointer("specification", "predictors", i, "transform"),
+                    SpecField.of_predictor(i, "transform"),
                     f"'{p.column}' is numeric; list it in 'categorical' to treat it as levels",
                 )
             if p.transform.name in ("box_cox", "yeo_johnson") and p.transform.lam is None:
                 raise InputError.at(
-                    pointer("specification", "predictors", i, "transform", "lambda"),
+                    SpecField.of_predictor(i, "transform", "lambda"),
                     f"{p.transform.name} of a predictor needs an explicit lambda",
                 )
             check_explicit(
@@ -62,15 +62,15 @@ def diagnose_specification(
                 prep.numeric[p.column],
                 p.column,
                 "predictor",
-                pointer("specification", "predictors", i, "transform"),
+                SpecField.of_predictor(i, "transform"),
                 spec_dict["predictors"][i].get("transform"),
             )
             msg = p.transform.domain_problem(prep.numeric[p.column], p.column, "predictor")
             if msg:
-                raise InputError.at(pointer("specification", "predictors", i, "transform"), msg)
+                raise InputError.at(SpecField.of_predictor(i, "transform"), msg)
     spec = resolve_predictor_transforms(spec, prep)
     try:
-        design = build_design(spec, prep, ptr_prefix="/specification")
+        design = build_design(spec, prep)
         check_rows(prep, opts, design.X.shape[1])
         plan = make_plan(
             prep.n, opts.folds, opts.repeats, opts.seed, opts.metric, opts.scheme, prep.order

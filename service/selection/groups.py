@@ -10,7 +10,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from ..core.data import Prepared, split_groups
-from ..core.errors import BestscaleError, BudgetError
+from ..core.errors import BestscaleError, BudgetError, ErrorRecord
 from ..core.numbers import count_of
 from .deadline import Deadline
 from .search import select
@@ -19,10 +19,11 @@ from .trust import assess_trust
 
 
 def group_parts(prep: Prepared) -> dict[str, Prepared | dict[str, Any]]:
-    """The table split by the group column: each group's rows, or the ``{"problem": ...}``
-    entry of a group already known to be unusable (as :func:`select_group` passes it on)."""
+    """The table split by the group column: each group's rows, or the ``{"problem":
+    ErrorRecord}`` entry of a group already known to be unusable (as :func:`select_group`
+    passes it on)."""
     return {
-        name: {"problem": problem_of(sub)} if isinstance(sub, BestscaleError) else sub
+        name: {"problem": ErrorRecord.of(sub)} if isinstance(sub, BestscaleError) else sub
         for name, sub in split_groups(prep).items()
     }
 
@@ -39,7 +40,8 @@ def run_grouped(
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
     pool's map to spread the groups over workers.  The groups share ``opts.deadline``
     (an HTTP request's); when it is None each group's time limit counts from its own start.  A group that cannot be modelled
-    gets a ``problem`` entry with its reason while the others go on.
+    gets a ``problem`` entry with its reason (an :class:`ErrorRecord`, which the caller
+    renders) while the others go on.
     """
     t0 = time.perf_counter()
     # the request's one deadline, shared by its groups; without one (a batch of segments)
@@ -58,7 +60,7 @@ def run_grouped(
             "groups": len(names),
             "groups_failed": failed,
             "elapsed_s": round(time.perf_counter() - t0, 4),
-            "complete": all("problem" not in b or b["problem"]["status"] != 503 for b in bodies)
+            "complete": all("problem" not in b or not b["problem"].over_budget for b in bodies)
             and all(b.get("search", {}).get("complete", True) for b in bodies),
         },
         "ranking": [],
@@ -72,17 +74,6 @@ def run_grouped(
             if failed
             else []
         ),
-    }
-
-
-def problem_of(exc: BestscaleError) -> dict[str, Any]:
-    status = 503 if isinstance(exc, BudgetError) else 422
-    return {
-        "type": f"urn:bestscale:problem:{exc.kind}",
-        "title": exc.title,
-        "status": status,
-        "detail": exc.detail,
-        "errors": [{"pointer": p.pointer, "detail": p.detail} for p in exc.problems],
     }
 
 
@@ -100,8 +91,8 @@ class GroupTrust:
 class GroupTask:
     """One group for :func:`select_group`.
 
-    ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ...}`` entry of a
-    group already known to be unusable (passed through).  ``deadline`` is the request's
+    ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ErrorRecord}`` entry
+    of a group already known to be unusable (passed through).  ``deadline`` is the request's
     one deadline: a group reached after it gets a 503 problem, one reached before it
     searches within what is left.
     """
@@ -115,7 +106,8 @@ class GroupTask:
 
 def select_group(task: GroupTask) -> dict[str, Any]:
     """Worker for one group of :func:`run_grouped`: the group's selection body without
-    private keys, or a ``problem`` entry for an error the core raised on purpose.
+    private keys, or a ``problem`` entry (:class:`ErrorRecord`) for an error the core raised
+    on purpose.
     Module-level, and its task is a frozen dataclass, so both pickle."""
     sub, opts, service_version = task.rows, task.opts, task.service_version
     trust = task.trust
@@ -126,7 +118,7 @@ def select_group(task: GroupTask) -> dict[str, Any]:
     deadline = task.deadline if task.deadline is not None else opts.clock()
     if deadline.passed():
         return {
-            "problem": problem_of(
+            "problem": ErrorRecord.of(
                 BudgetError(
                     f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
                     "group was reached; send fewer groups per request or raise limits.time_limit_s"
@@ -152,5 +144,5 @@ def select_group(task: GroupTask) -> dict[str, Any]:
                 outer_folds=outer_folds,
             )
     except BestscaleError as exc:
-        return {"problem": problem_of(exc)}
+        return {"problem": ErrorRecord.of(exc)}
     return body

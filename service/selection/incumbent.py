@@ -21,7 +21,7 @@ from ..core import transforms as tr
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import CVResult, cross_validate
 from ..core.data import Prepared
-from ..core.errors import CandidateFailure, InputError, pointer
+from ..core.errors import CandidateFailure, InputError, SpecField
 from ..core.folds import CVPlan
 from ..core.numbers import fmt
 from ..core.spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
@@ -36,7 +36,7 @@ def incumbent_spec(
     """Build the incumbent on this run's rows: (spec, None) or (None, why it cannot be fitted)."""
     if d["response"]["column"] != prep.response:
         raise InputError.at(
-            "/incumbent/response/column",
+            SpecField.response("column"),
             f"the incumbent models '{d['response']['column']}' but this request's "
             f"response is '{prep.response}'",
         )
@@ -47,7 +47,7 @@ def incumbent_spec(
             if table_columns is not None and col not in table_columns:
                 return None, f"the incumbent uses '{col}', which is not in this data"
             raise InputError.at(
-                pointer("incumbent", "predictors", i, "column"),
+                SpecField.of_predictor(i, "column"),
                 f"the incumbent uses '{col}'; add it to 'predictors' so both are "
                 "scored on the same rows",
             )
@@ -70,7 +70,7 @@ def incumbent_spec(
 
 
 def score(spec: Specification, prep: Prepared, plan: CVPlan, shift_needed: bool) -> CVResult:
-    design = build_design(spec, prep, ptr_prefix="/incumbent")
+    design = build_design(spec, prep)
     return cross_validate(
         design.X, prep.y, spec.response_transform, plan, shift_needed, design.names
     )

@@ -35,7 +35,8 @@ from ..core.errors import (
     CandidateFailure,
     InputError,
     ModelFailure,
-    pointer,
+    Predictor,
+    ResponseChoice,
 )
 from ..core.fastcv import Dynamic, OutOfFold, Score, Scorer
 from ..core.folds import CVPlan, make_plan
@@ -251,9 +252,7 @@ def select(
     deadline = opts.clock()
     resp = response_candidates(prep, opts)
     if not resp:
-        raise InputError.at(
-            "/transforms/response", f"no response transform applies to '{prep.response}'"
-        )
+        raise InputError.at(ResponseChoice(), f"no response transform applies to '{prep.response}'")
     preds = predictor_candidates(prep, opts)
     n_params = 1 + sum(
         1 if p[0].name != "categorical" else len(set(prep.categorical[c].tolist())) - 1
@@ -905,7 +904,7 @@ def _check_levels(prep: Prepared, plan: CVPlan) -> None:
                     lv = sorted(missing)[0]
                     cnt = int(np.sum(vals == lv))
                     raise InputError.at(
-                        pointer("predictors", j),
+                        Predictor(j),
                         (
                             f"level '{lv}' of '{col}' has {count_of(cnt, 'row')}, so some cross-validation "
                             "training fold never sees it; merge rare levels or use fewer folds"

@@ -14,7 +14,7 @@ import numpy as np
 from ..core.conditions import DEFAULT_ALPHA
 from ..core.crossval import CVResult
 from ..core.data import Prepared
-from ..core.errors import InputError
+from ..core.errors import InputError, Option
 from ..core.numbers import count_of
 from ..core.spec import Specification
 from .deadline import Deadline
@@ -67,12 +67,6 @@ class Scored:
             self.open_spec = self.spec
 
 
-def data_pointer(prep: Prepared) -> str:
-    """JSON Pointer to the table a request sent (``/data/columns``, ``/data/records`` or
-    ``/data/csv``)."""
-    return f"/data/{prep.source}" if prep.source in ("columns", "records", "csv") else "/data"
-
-
 def _usable(prep: Prepared) -> str:
     n = prep.n
     text = f"{count_of(n, 'usable row')}"
@@ -91,7 +85,7 @@ def check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
     if opts.folds > n:
         fewer = f", or set validation.folds to {n} or fewer (at least 2)" if n >= 2 else ""
         raise InputError.at(
-            data_pointer(prep),
+            prep.table(),
             f"the data have {_usable(prep)}, fewer than the {opts.folds} cross-validation "
             f"folds (validation.folds, default 5); send at least {opts.folds} complete "
             f"rows{fewer}",
@@ -100,7 +94,7 @@ def check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
     if n_train < p + 2:
         need = math.ceil((p + 2) * opts.folds / (opts.folds - 1))
         raise InputError.at(
-            data_pointer(prep),
+            prep.table(),
             f"the data have {_usable(prep)}, too few for {opts.folds}-fold "
             f"cross-validation of a model with {count_of(p, 'coefficient')}: it needs at "
             f"least {need} rows; send more complete rows, or use fewer folds "
@@ -108,6 +102,6 @@ def check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
         )
     if opts.metric == "mape" and np.any(prep.y == 0):
         raise InputError.at(
-            "/validation/metric",
+            Option("validation.metric"),
             f"mape divides by the response and '{prep.response}' has zeros; use rmse or mae",
         )

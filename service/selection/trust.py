@@ -69,7 +69,7 @@ from ..core.condition_rules import conditions_for, failed_for_ranking, ordering_
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import cross_validate
 from ..core.data import Prepared
-from ..core.errors import BestscaleError, CandidateFailure, InputError
+from ..core.errors import BestscaleError, CandidateFailure, InputError, Option
 from ..core.folds import CVPlan, make_plan
 from ..core.spec import Specification, SpecKey, build_design
 from .deadline import Deadline
@@ -608,11 +608,12 @@ def assess_trust(
         resamples = DEFAULT_RESAMPLES
     if not 1 <= resamples <= MAX_RESAMPLES:
         raise InputError.at(
-            "/trust/resamples", f"resamples must be within [1, {MAX_RESAMPLES}], got {resamples}"
+            Option("trust.resamples"),
+            f"resamples must be within [1, {MAX_RESAMPLES}], got {resamples}",
         )
     if outer_folds is not None and not 2 <= outer_folds <= prep.n // 2:
         raise InputError.at(
-            "/trust/outer_folds",
+            Option("trust.outer_folds"),
             f"outer_folds must be within [2, {prep.n // 2}] for {prep.n} rows, got {outer_folds}",
         )
     k_out = opts.folds if outer_folds is None else int(outer_folds)

@@ -11,6 +11,7 @@ import io
 
 import pytest
 from service.api.intake import MAX_NAME_CHARS, check_table, table_shape
+from service.api.pointers import pointer_of
 from service.core.errors import InputError
 
 COLS = {"cost": [1.0, 2.0, 3.0], "age": [4, 5, 6]}
@@ -43,11 +44,14 @@ def test_limits_name_their_setting(env, data, where):
     env(max_rows=10)
     with pytest.raises(InputError) as exc:
         check_table(data)
-    assert exc.value.problems[0].pointer == "/data" and "BESTSCALE_MAX_ROWS" in exc.value.detail
+    assert (
+        pointer_of(exc.value.problems[0].where) == "/data"
+        and "BESTSCALE_MAX_ROWS" in exc.value.detail
+    )
     env(max_rows=100, max_table_columns=2)
     with pytest.raises(InputError) as exc:
         check_table(data)
-    assert exc.value.problems[0].pointer == where
+    assert pointer_of(exc.value.problems[0].where) == where
     assert "BESTSCALE_MAX_TABLE_COLUMNS" in exc.value.detail
 
 

@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 from service.api.encode import to_jsonable
+from service.api.pointers import pointer_of
 from service.api.schemas import SelectionRequest
 from service.api.selection import finish_body, run_selection_request, selection_options
 from service.app import app
@@ -61,11 +62,11 @@ def test_limits_past_the_settings_point_at_the_field():
     req = SelectionRequest.model_validate(_request(limits={"max_candidates": s.max_candidates + 1}))
     with pytest.raises(InputError) as exc:
         selection_options(req)
-    assert exc.value.problems[0].pointer == "/limits/max_candidates"
+    assert pointer_of(exc.value.problems[0].where) == "/limits/max_candidates"
     bad = SelectionRequest.model_validate(_request(transforms={"predictors": {"depth": ["log"]}}))
     with pytest.raises(InputError) as exc:
         run_selection_request(bad)
-    assert exc.value.problems[0].pointer == "/transforms/predictors/depth"
+    assert pointer_of(exc.value.problems[0].where) == "/transforms/predictors/depth"
 
 
 def test_in_process_answer_equals_the_http_answer():

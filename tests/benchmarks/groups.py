@@ -26,9 +26,9 @@ import numpy as np
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
 
 from service.api.encode import to_jsonable
-from service.core.data import prepare, split_groups
-from service.core.errors import BestscaleError
-from service.selection.groups import GroupTask, problem_of, run_grouped, select_group
+from service.api.errors import with_group_problems
+from service.core.data import prepare
+from service.selection.groups import GroupTask, group_parts, run_grouped, select_group
 from service.selection.search_setup import SearchOptions
 from service.selection.workers import map_in_processes
 from threadpoolctl import threadpool_limits
@@ -88,7 +88,7 @@ def main() -> int:
     opts = SearchOptions(top=3)  # the service's defaults: every applicable transform
 
     t = time.perf_counter()
-    base = run_grouped(prep, opts, "bench")["groups"]
+    base = with_group_problems(run_grouped(prep, opts, "bench"))["groups"]
     t_in = time.perf_counter() - t
 
     t = time.perf_counter()
@@ -96,12 +96,10 @@ def main() -> int:
     t_start = time.perf_counter() - t
 
     t = time.perf_counter()
-    parts = split_groups(prep)
-    tasks = [
-        GroupTask({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "bench")
-        for p in parts.values()
-    ]
+    parts = group_parts(prep)
+    tasks = [GroupTask(p, opts, "bench") for p in parts.values()]
     pooled = dict(zip(parts, map_in_processes(select_group, tasks, args.processes), strict=True))
+    pooled = with_group_problems({"groups": pooled})["groups"]
     t_pool = time.perf_counter() - t
 
     same = json.dumps(_without_timing(to_jsonable(base)), sort_keys=True) == json.dumps(

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from service.core.data import DROPPED_LIST_CAP, prepare, split_groups
-from service.core.errors import InputError
+from service.core.errors import Categorical, Cell, InputError, Predictor, Response
 
 # invented: repair cost of water mains by pipe age, material and district
 COLUMNS = {
@@ -116,26 +116,26 @@ def test_dropped_list_is_capped_but_counted():
 @pytest.mark.parametrize(
     "data, ptr",
     [
-        ({"columns": {"cost": [1.0, "12 dollars", 3.0], "age": [1, 2, 3]}}, "/data/columns/cost/1"),
-        ({"records": [{"cost": 1.0, "age": 1}, {"cost": True, "age": 2}]}, "/data/records/1/cost"),
+        ({"columns": {"cost": [1.0, "12 dollars", 3.0], "age": [1, 2, 3]}}, ("cost", 1, "columns")),
+        ({"records": [{"cost": 1.0, "age": 1}, {"cost": True, "age": 2}]}, ("cost", 1, "records")),
         (
             {"columns": {"cost": [1.0, 2.0, 3.0], "age": [1, "two", "three", 4][:3]}},
-            "/data/columns/age/0",
+            ("age", 0, "columns"),
         ),
-        ({"csv": "cost,age\n1,2\nNaN,3\n"}, "/data/csv"),
+        ({"csv": "cost,age\n1,2\nNaN,3\n"}, ("cost", 1, "csv")),
     ],
 )
 def test_a_stray_value_is_an_error_at_its_cell(data, ptr):
     with pytest.raises(InputError) as exc:
         prepare(data, "cost", ["age"])
-    assert exc.value.problems[0].pointer == ptr
+    assert exc.value.problems[0].where == Cell(*ptr)
 
 
 def test_request_column_problems_are_listed_together():
     with pytest.raises(InputError) as exc:
         prepare({"columns": COLUMNS}, "price", ["age", "age", "depth"], ["colour"])
-    pointers = [p.pointer for p in exc.value.problems]
-    assert pointers == ["/response", "/predictors/1", "/predictors/2", "/categorical/0"]
+    places = [p.where for p in exc.value.problems]
+    assert places == [Response(), Predictor(1), Predictor(2), Categorical(0)]
     assert exc.value.detail == "4 problems with the requested columns"
 
 
@@ -144,7 +144,7 @@ def test_unequal_lengths_and_constant_response_are_refused():
         prepare({"columns": {"y": [1.0, 2.0], "x": [1.0]}}, "y", ["x"])
     with pytest.raises(InputError, match="constant") as exc:
         prepare({"columns": {"y": [5.0, 5.0, 5.0], "x": [1.0, 2.0, 3.0]}}, "y", ["x"])
-    assert exc.value.problems[0].pointer == "/response"
+    assert exc.value.problems[0].where == Response()
 
 
 def test_order_column_gives_the_permutation_into_its_order():

@@ -19,7 +19,7 @@ import statsmodels.api as sm
 from service.core import model
 from service.core.data import prepare
 from service.core.errors import InputError
-from service.core.predict import load_model
+from service.core.predict import MODEL, load_model
 from service.core.spec import Specification
 from service.selection.entries import fitted_model
 
@@ -111,14 +111,14 @@ def test_signature_is_rfc2104_hmac_of_key_id_and_canonical_json(issued):
     [
         (
             lambda a: a["coefficients"].__setitem__(1, a["coefficients"][1] * 1.01),
-            "/model/signature/value",
+            MODEL.at("signature", "value"),
         ),
-        (lambda a: a["signature"].__setitem__("key_id", "k9"), "/model/signature/key_id"),
+        (lambda a: a["signature"].__setitem__("key_id", "k9"), MODEL.at("signature", "key_id")),
         (
             lambda a: a["signature"].__setitem__("algorithm", "HMAC-MD5"),
-            "/model/signature/algorithm",
+            MODEL.at("signature", "algorithm"),
         ),
-        (lambda a: a.__setitem__("signature", {"algorithm": "none"}), "/model/signature"),
+        (lambda a: a.__setitem__("signature", {"algorithm": "none"}), MODEL.at("signature")),
     ],
     ids=["forged-coefficient", "unknown-key", "other-algorithm", "signature-removed"],
 )
@@ -129,7 +129,7 @@ def test_tampered_signed_models_are_refused(issued, tamper, ptr):
     forged["checksum"] = model.checksum(forged)  # a forger can recompute the plain checksum
     with pytest.raises(InputError) as exc:
         load_model(forged, KEYS)
-    assert exc.value.problems[0].pointer == ptr
+    assert exc.value.problems[0].where == ptr
 
 
 def test_previous_key_still_verifies_and_unsigned_is_marked(issued):

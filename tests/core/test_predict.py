@@ -19,9 +19,9 @@ from scipy import stats
 from service.core import retransform
 from service.core import transforms as tr
 from service.core.data import prepare
-from service.core.errors import InputError
+from service.core.errors import Cell, DataColumn, InputError, Location, Option, Table
 from service.core.model import build_model, checksum
-from service.core.predict import _bad_domain, load_model, predict
+from service.core.predict import MODEL, _bad_domain, load_model, predict
 from service.core.spec import Specification
 from service.selection.entries import fitted_model
 
@@ -300,22 +300,23 @@ def artifact(rng):
     return art
 
 
-def pointer_of(exc: pytest.ExceptionInfo) -> list[str]:
-    return [p.pointer for p in exc.value.problems]
+def where_of(exc: pytest.ExceptionInfo) -> list[Location]:
+    """Where each problem is (the web layer spells these as JSON Pointers)."""
+    return [p.where for p in exc.value.problems]
 
 
 def test_wrong_format_version(artifact):
     artifact["format_version"] = 99
     with pytest.raises(InputError) as exc:
         load_model(artifact)
-    assert pointer_of(exc) == ["/model/format_version"]
+    assert where_of(exc) == [MODEL.at("format_version")]
 
 
 def test_tampered_coefficient_fails_checksum(artifact):
     artifact["coefficients"][1] += 1e-9
     with pytest.raises(InputError) as exc:
         load_model(artifact)
-    assert pointer_of(exc) == ["/model/checksum"]
+    assert where_of(exc) == [MODEL.at("checksum")]
     assert "modified after it was issued" in exc.value.detail
 
 
@@ -323,117 +324,121 @@ def test_missing_checksum(artifact):
     del artifact["checksum"]
     with pytest.raises(InputError) as exc:
         load_model(artifact)
-    assert pointer_of(exc) == ["/model/checksum"]
+    assert where_of(exc) == [MODEL.at("checksum")]
 
 
 def test_non_finite_number_points_at_it(artifact):
     artifact["xtx_inverse"][1][0] = float("nan")
     with pytest.raises(InputError) as exc:
         load_model(artifact)
-    assert pointer_of(exc) == ["/model/xtx_inverse/1/0"]
+    assert where_of(exc) == [MODEL.at("xtx_inverse", 1, 0)]
 
 
 @pytest.mark.parametrize(
     "edit, ptr",
     [
-        pytest.param(lambda a: a["xtx_inverse"].pop(), "/model/xtx_inverse", id="matrix rows"),
+        pytest.param(lambda a: a["xtx_inverse"].pop(), MODEL.at("xtx_inverse"), id="matrix rows"),
         pytest.param(
-            lambda a: a["coefficients"].append(1.0), "/model/coefficients", id="coef length"
+            lambda a: a["coefficients"].append(1.0), MODEL.at("coefficients"), id="coef length"
         ),
-        pytest.param(lambda a: a["terms"].reverse(), "/model/terms", id="terms order"),
-        pytest.param(lambda a: a.update(df_residual=0), "/model/df_residual", id="df"),
+        pytest.param(lambda a: a["terms"].reverse(), MODEL.at("terms"), id="terms order"),
+        pytest.param(lambda a: a.update(df_residual=0), MODEL.at("df_residual"), id="df"),
         pytest.param(
-            lambda a: a["residuals"].update(values=[]), "/model/residuals", id="no residuals"
+            lambda a: a["residuals"].update(values=[]), MODEL.at("residuals"), id="no residuals"
         ),
         pytest.param(
             lambda a: a["training_range"].pop("income"),
-            "/model/training_range/income",
+            MODEL.at("training_range", "income"),
             id="range missing",
         ),
         pytest.param(
             lambda a: a["levels"]["site"].update(reference="east"),
-            "/model/levels/site/reference",
+            MODEL.at("levels", "site", "reference"),
             id="bad reference",
         ),
         pytest.param(
             lambda a: a["specification"]["response"]["transform"].update(name="cube"),
-            "/model/specification/response/transform/name",
+            MODEL.at("specification", "response", "transform", "name"),
             id="unknown transform",
         ),
-        pytest.param(lambda a: a.update(max_leverage=3.0), "/model/max_leverage", id="leverage"),
+        pytest.param(lambda a: a.update(max_leverage=3.0), MODEL.at("max_leverage"), id="leverage"),
     ],
 )
 def test_inconsistent_artifact_even_with_valid_checksum(artifact, edit, ptr):
     edit(artifact)
     with pytest.raises(InputError) as exc:
         load_model(reseal(artifact))
-    assert pointer_of(exc) == [ptr]
+    assert where_of(exc) == [ptr]
 
 
 # ------------------------------------------------------------- new rows
 @pytest.mark.parametrize(
-    "data, ptr",
+    "data, where",
     [
-        pytest.param({"columns": {"site": ["north"]}}, "/data/columns/income", id="missing column"),
+        pytest.param(
+            {"columns": {"site": ["north"]}}, DataColumn("income", "columns"), id="missing column"
+        ),
         pytest.param(
             {"columns": {"income": [1.0, None], "site": ["north", "south"]}},
-            "/data/columns/income/1",
+            Cell("income", 1, "columns"),
             id="missing value",
         ),
         pytest.param(
             {"columns": {"income": [1.0, "x"], "site": ["north", "south"]}},
-            "/data/columns/income/1",
+            Cell("income", 1, "columns"),
             id="text in numeric",
         ),
         pytest.param(
             {"columns": {"income": [0.0, 2.0], "site": ["north", "south"]}},
-            "/data/columns/income/0",
+            Cell("income", 0, "columns"),
             id="log of zero",
         ),
         pytest.param(
             {"columns": {"income": [2.0, -1.0], "site": ["north", "south"]}},
-            "/data/columns/income/1",
+            Cell("income", 1, "columns"),
             id="log of negative",
         ),
         pytest.param(
             {"columns": {"income": [2.0, 3.0], "site": ["north", "east"]}},
-            "/data/columns/site/1",
+            Cell("site", 1, "columns"),
             id="unseen level",
         ),
         pytest.param(
             {"columns": {"income": [2.0], "site": [None]}},
-            "/data/columns/site/0",
+            Cell("site", 0, "columns"),
             id="missing level",
         ),
         pytest.param(
             {"records": [{"income": 2.0, "site": "north"}, {"site": "south"}]},
-            "/data/records/1/income",
+            Cell("income", 1, "records"),
             id="record without field",
         ),
         pytest.param(
             {"records": [{"income": 2.0, "site": "north"}, {"income": -2, "site": "south"}]},
-            "/data/records/1/income",
+            Cell("income", 1, "records"),
             id="record log of negative",
         ),
-        pytest.param({"csv": "income,site\n2,north\n-1,south\n"}, "/data/csv", id="csv"),
-        pytest.param({"columns": {"income": [], "site": []}}, "/data", id="no rows"),
+        pytest.param(
+            {"csv": "income,site\n2,north\n-1,south\n"}, Cell("income", 1, "csv"), id="csv"
+        ),
+        pytest.param({"columns": {"income": [], "site": []}}, Table(), id="no rows"),
     ],
 )
-def test_unusable_rows_point_at_the_cell(artifact, data, ptr):
+def test_unusable_rows_point_at_the_cell(artifact, data, where):
     m = load_model(artifact)
     with pytest.raises(InputError) as exc:
         predict(m, data)
-    assert pointer_of(exc)[0] == ptr
+    assert where_of(exc)[0] == where
 
 
 def test_every_bad_cell_is_listed(artifact):
     m = load_model(artifact)
     with pytest.raises(InputError) as exc:
         predict(m, {"columns": {"income": [0.0, 1.0, -3.0], "site": ["north", "west", "south"]}})
-    assert sorted(pointer_of(exc)) == [
-        "/data/columns/income/0",
-        "/data/columns/income/2",
-        "/data/columns/site/1",
+    assert sorted(where_of(exc), key=repr) == [
+        Cell("income", 0, "columns"),
+        Cell("income", 2, "columns"),
+        Cell("site", 1, "columns"),
     ]
 
 
@@ -441,7 +446,7 @@ def test_every_bad_cell_is_listed(artifact):
 def test_interval_outside_unit_interval(artifact, level):
     with pytest.raises(InputError) as exc:
         predict(load_model(artifact), {"columns": {"income": [2.0], "site": ["north"]}}, level)
-    assert pointer_of(exc) == ["/interval"]
+    assert where_of(exc) == [Option("interval")]
 
 
 @pytest.mark.parametrize(

@@ -12,7 +12,7 @@ import pandas as pd
 import pytest
 from service.core import transforms as tr
 from service.core.data import prepare
-from service.core.errors import CandidateFailure, InputError
+from service.core.errors import CandidateFailure, InputError, SpecField
 from service.core.spec import (
     PredictorSpec,
     Specification,
@@ -74,7 +74,7 @@ def test_unknown_reference_level_names_the_field():
     prep, _, _ = _prep()
     with pytest.raises(InputError) as exc:
         build_design(_spec(soil=tr.Transform("categorical", reference="chalk")), prep)
-    assert exc.value.problems[0].pointer == "/specification/predictors/1/transform/reference"
+    assert exc.value.problems[0].where == SpecField.of_predictor(1, "transform", "reference")
     assert "'chalk'" in exc.value.detail
 
 

@@ -17,7 +17,7 @@ from service.core import boxtidwell as bt
 from service.core import transforms as tr
 from service.core.bank import FoldIndex
 from service.core.data import prepare
-from service.core.errors import CandidateFailure, InputError
+from service.core.errors import CandidateFailure, Cell, InputError, PredictorChoice, ResponseChoice
 from service.core.folds import make_plan
 from service.core.spec import build_design
 from service.selection import candidates as cand
@@ -47,10 +47,7 @@ def test_defaults_skip_scales_the_response_cannot_take_but_explicit_ones_are_ref
     with pytest.raises(InputError) as exc:
         cand.response_candidates(prep, ["identity", "log"])
     # first the cell of the first value log cannot take, then the transform asked for
-    assert [p.pointer for p in exc.value.problems] == [
-        "/data/columns/y/0",
-        "/transforms/response/1",
-    ]
+    assert [p.where for p in exc.value.problems] == [Cell("y", 0, "columns"), ResponseChoice(1)]
     assert "used as sent" in exc.value.detail
 
 
@@ -65,7 +62,7 @@ def test_predictor_requests_that_cannot_apply():
     prep = _prep()
     with pytest.raises(InputError) as exc:
         cand.predictor_candidates(prep, {"x": [{"name": "box_cox"}]})
-    assert exc.value.problems[0].pointer == "/transforms/predictors/x/0"
+    assert exc.value.problems[0].where == PredictorChoice("x", 0)
     with pytest.raises(InputError, match="list it in 'categorical'"):
         cand.predictor_candidates(prep, {"x": ["categorical"]})
 

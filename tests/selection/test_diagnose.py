@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from service.core.data import prepare
-from service.core.errors import InputError, ModelFailure
+from service.core.errors import Cell, InputError, ModelFailure, SpecField
 from service.selection.diagnose import diagnose_specification
 from service.selection.search_setup import SearchOptions
 
@@ -63,15 +63,15 @@ def test_an_untransformed_spec_matches_its_reference_value(engel):
 @pytest.mark.parametrize(
     "spec, ptr",
     [
-        (_spec(pt="categorical"), "/specification/predictors/0/transform"),
-        (_spec(pt="box_cox"), "/specification/predictors/0/transform/lambda"),
+        (_spec(pt="categorical"), SpecField.of_predictor(0, "transform")),
+        (_spec(pt="box_cox"), SpecField.of_predictor(0, "transform", "lambda")),
     ],
 )
 def test_requests_the_columns_cannot_take_point_at_the_field(engel, spec, ptr):
     prep, _ = engel
     with pytest.raises(InputError) as exc:
         diagnose_specification(prep, spec, SearchOptions(), "t")
-    assert exc.value.problems[-1].pointer == ptr
+    assert exc.value.problems[-1].where == ptr
 
 
 def test_a_transform_outside_the_domain_points_at_the_cell_then_the_transform():
@@ -80,8 +80,8 @@ def test_a_transform_outside_the_domain_points_at_the_cell_then_the_transform():
     prep = prepare({"columns": {"foodexp": y, "income": x}}, "foodexp", ["income"])
     with pytest.raises(InputError) as exc:
         diagnose_specification(prep, _spec("log", "identity"), SearchOptions(), "t")
-    ptrs = [p.pointer for p in exc.value.problems]
-    assert ptrs == ["/data/columns/foodexp/1", "/specification/response/transform"]
+    places = [p.where for p in exc.value.problems]
+    assert places == [Cell("foodexp", 1, "columns"), SpecField.response("transform")]
 
 
 def test_a_design_that_cannot_be_fitted_is_a_model_failure():

@@ -13,11 +13,18 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 from service.api.encode import to_jsonable
+from service.api.errors import record_problem, with_group_problems
 from service.app import app
 from service.core.data import prepare, split_groups
-from service.core.errors import BestscaleError
+from service.core.errors import ErrorRecord, Response
 from service.selection.deadline import Deadline
-from service.selection.groups import GroupTask, GroupTrust, problem_of, run_grouped, select_group
+from service.selection.groups import (
+    GroupTask,
+    GroupTrust,
+    group_parts,
+    run_grouped,
+    select_group,
+)
 from service.selection.search_setup import SearchOptions
 from service.selection.workers import map_in_processes
 from service.settings import get_settings
@@ -132,18 +139,25 @@ def test_group_column_missing_from_the_data_points_at_group_by(client):
     assert "/group_by" in [e["pointer"] for e in r.json()["errors"]]
 
 
+def test_an_unusable_group_is_kept_as_a_record_naming_the_place():
+    prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
+    hill = group_parts(prep)["hill"]["problem"]  # flat-rate billing: a constant response
+    assert isinstance(hill, ErrorRecord) and not hill.over_budget
+    assert [p.where for p in hill.problems] == [Response()]
+    rendered = record_problem(hill)
+    assert rendered["status"] == 422 and rendered["errors"][0]["pointer"] == "/response"
+
+
 def test_groups_in_worker_processes_equal_the_in_process_run():
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
     opts = SearchOptions(
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=2
     )
-    in_process = run_grouped(prep, opts, "test")["groups"]
-    parts = split_groups(prep)
-    tasks = [
-        GroupTask({"problem": problem_of(p)} if isinstance(p, BestscaleError) else p, opts, "test")
-        for p in parts.values()
-    ]
+    in_process = with_group_problems(run_grouped(prep, opts, "test"))["groups"]
+    parts = group_parts(prep)
+    tasks = [GroupTask(p, opts, "test") for p in parts.values()]
     pooled = dict(zip(parts, map_in_processes(select_group, tasks, processes=2), strict=True))
+    pooled = with_group_problems({"groups": pooled})["groups"]
     assert list(pooled) == list(in_process)
     # bit-identical JSON apart from timing fields
     assert _without_timing(to_jsonable(pooled)) == _without_timing(to_jsonable(in_process))
@@ -174,9 +188,9 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
     late = select_group(
         GroupTask(north, opts, "test", deadline=Deadline(time.monotonic() - 1.0, 60))
     )
-    assert late["problem"]["status"] == 503 and "ran out" in late["problem"]["detail"]
-    assert (
-        "time limit of 60 s" in late["problem"]["detail"]
-    )  # the caller's number, not what was left
+    record = late["problem"]  # a neutral record: the web layer or the command line renders it
+    assert isinstance(record, ErrorRecord) and record.over_budget and "ran out" in record.detail
+    assert "time limit of 60 s" in record.detail  # the caller's number, not what was left
+    assert record_problem(record)["status"] == 503
     on_time = select_group(GroupTask(north, opts, "test", deadline=Deadline.after(600.0)))
     assert on_time["ranking"][0]["rank"] == 1

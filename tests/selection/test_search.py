@@ -7,7 +7,7 @@ import pytest
 from service.core import transforms as tr
 from service.core.crossval import CVResult
 from service.core.data import prepare
-from service.core.errors import BudgetError, InputError
+from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design
 from service.selection.deadline import Deadline
 from service.selection.search import rank, run_selection, select
@@ -147,9 +147,9 @@ def test_explicit_inapplicable_transform_is_an_input_error():
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
     with pytest.raises(InputError) as exc:
         run_selection(prep, SearchOptions(response_transforms=["identity", "log"]), "t")
-    # the first pointer is the first row the explicit log cannot take, then the transform
-    assert exc.value.problems[0].pointer == f"/data/columns/y/{int(np.argmax(y <= 0))}"
-    assert exc.value.problems[1].pointer == "/transforms/response/1"
+    # the first place is the first row the explicit log cannot take, then the transform
+    assert exc.value.problems[0].where == Cell("y", int(np.argmax(y <= 0)), "columns")
+    assert exc.value.problems[1].where == ResponseChoice(1)
     assert "yeo_johnson" in exc.value.problems[0].detail
 
 
@@ -184,13 +184,13 @@ def test_grouped_selection_shares_one_time_budget():
     out = run_grouped(prep, SearchOptions(deadline=shared), "t")
     assert out["search"]["groups"] == 8
     assert out["search"]["complete"] is False
-    assert all(b["problem"]["status"] == 503 for b in out["groups"].values())
+    assert all(b["problem"].over_budget for b in out["groups"].values())  # rendered as 503
     # without a request deadline (a batch of segments) every group counts from its own start
     gone = Deadline(time.monotonic() - 1.0, 60.0)
     each = run_grouped(prep, SearchOptions(time_limit_s=60.0), "t")
     assert each["search"]["complete"] and not any("problem" in b for b in each["groups"].values())
     late = run_grouped(prep, SearchOptions(time_limit_s=60.0, deadline=gone), "t")
-    assert all(b["problem"]["status"] == 503 for b in late["groups"].values())
+    assert all(b["problem"].over_budget for b in late["groups"].values())
 
 
 def test_the_result_is_typed_and_the_body_holds_only_contract_fields():

@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from service.core import transforms as tr
 from service.core.data import prepare
-from service.core.errors import InputError
+from service.core.errors import InputError, Option, Table
 from service.core.spec import PredictorSpec, Specification
 from service.selection.deadline import Deadline
 from service.selection.search_setup import Scored, SearchOptions, check_rows
@@ -44,7 +44,7 @@ def test_the_fewest_rows_accepted_leave_p_plus_2_training_rows(folds, p):
     check_rows(_prep(least), SearchOptions(folds=folds), p)
     with pytest.raises(InputError) as exc:
         check_rows(_prep(least - 1), SearchOptions(folds=folds), p)
-    assert exc.value.problems[0].pointer == "/data/columns"  # the table that is short
+    assert exc.value.problems[0].where == Table("columns")  # the table that is short
     # the message names the number of rows needed, which is the least accepted count or fewer
     need = int(exc.value.detail.split("at least ")[1].split(" ")[0])
     assert need <= least and need == math.ceil((p + 2) * folds / (folds - 1))
@@ -53,10 +53,10 @@ def test_the_fewest_rows_accepted_leave_p_plus_2_training_rows(folds, p):
 def test_more_folds_than_rows_and_mape_with_zeros():
     with pytest.raises(InputError) as exc:
         check_rows(_prep(6), SearchOptions(folds=10), 2)
-    assert exc.value.problems[0].pointer == "/data/columns"  # the data, not the folds field
+    assert exc.value.problems[0].where == Table("columns")  # the data, not the folds field
     with pytest.raises(InputError) as exc:
         check_rows(_prep(40, zero=True), SearchOptions(metric="mape"), 2)
-    assert exc.value.problems[0].pointer == "/validation/metric"
+    assert exc.value.problems[0].where == Option("validation.metric")
     check_rows(_prep(40, zero=True), SearchOptions(metric="mae"), 2)
 
 

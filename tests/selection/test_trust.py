@@ -11,7 +11,7 @@ import math
 import numpy as np
 import pytest
 from service.core.data import prepare
-from service.core.errors import InputError
+from service.core.errors import InputError, Option
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from service.selection.trust import (
@@ -216,9 +216,9 @@ def test_time_limit_cuts_resamples_and_says_so():
 @pytest.mark.parametrize(
     "kw,ptr",
     [
-        pytest.param({"resamples": 0}, "/trust/resamples", id="no-resamples"),
-        pytest.param({"resamples": 5000}, "/trust/resamples", id="too-many-resamples"),
-        pytest.param({"outer_folds": 1}, "/trust/outer_folds", id="one-outer-fold"),
+        pytest.param({"resamples": 0}, Option("trust.resamples"), id="no-resamples"),
+        pytest.param({"resamples": 5000}, Option("trust.resamples"), id="too-many-resamples"),
+        pytest.param({"outer_folds": 1}, Option("trust.outer_folds"), id="one-outer-fold"),
     ],
 )
 def test_bad_settings_point_at_the_field(kw, ptr):
@@ -226,7 +226,7 @@ def test_bad_settings_point_at_the_field(kw, ptr):
     body, winner = _select(prep, TIED_OPTS)
     with pytest.raises(InputError) as err:
         assess_trust(prep, TIED_OPTS, winner, "test", True, True, selection=body, **kw)
-    assert err.value.problems[0].pointer == ptr
+    assert err.value.problems[0].where == ptr
 
 
 def test_scale_key_ignores_values_estimated_from_the_response():
