@@ -152,16 +152,19 @@ def test_a_disconnected_client_frees_its_compute_slot(server, path):
         f"POST {path} HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
         f"Content-Length: {len(body)}\r\n\r\n"
     ).encode()
+    _wait_until_no_slot_is_busy(server)  # an earlier case's computation may still be finishing
     socks = []
-    for _ in range(2):  # both compute slots
-        s = socket.create_connection(("127.0.0.1", server.port), timeout=5)
-        s.sendall(head + body)
-        socks.append(s)
-    time.sleep(1.5)
-    busy = server.request("POST", "/v1/selections", body)[0]
-    assert busy == 503  # both slots taken
-    for s in socks:
-        s.close()  # the callers hang up
+    try:
+        for _ in range(2):  # both compute slots
+            s = socket.create_connection(("127.0.0.1", server.port), timeout=5)
+            s.sendall(head + body)
+            socks.append(s)
+        _wait_until_busy(server, 2)
+        busy = server.request("POST", "/v1/selections", body)[0]
+        assert busy == 503  # both slots taken
+    finally:
+        for s in socks:
+            s.close()  # the callers hang up
     small = json.dumps(
         {"data": {"columns": h._table(40)}, "response": "y", "predictors": ["x"]}
     ).encode()
@@ -174,18 +177,28 @@ def test_a_disconnected_client_frees_its_compute_slot(server, path):
     assert time.perf_counter() - t < 5  # not the 60 s time limit
 
 
-def _wait_until_idle(server, seconds: float = 30.0) -> None:
-    small = json.dumps(
-        {"data": {"columns": h._table(40)}, "response": "y", "predictors": ["x"]}
-    ).encode()
+def _busy_slots(server) -> float:
+    text = server.request("GET", "/metrics")[2].decode()
+    line = next(x for x in text.splitlines() if x.startswith("bestscale_pool_busy "))
+    return float(line.split()[1])
+
+
+def _wait_until_busy(server, slots: int, seconds: float = 30.0) -> None:
     t = time.perf_counter()
-    while server.request("POST", "/v1/selections", small)[0] == 503:
-        assert time.perf_counter() - t < seconds
+    while _busy_slots(server) < slots:
+        assert time.perf_counter() - t < seconds, f"{slots} slots never became busy"
+        time.sleep(0.1)
+
+
+def _wait_until_no_slot_is_busy(server, seconds: float = 60.0) -> None:
+    t = time.perf_counter()
+    while _busy_slots(server) > 0:
+        assert time.perf_counter() - t < seconds, "a compute slot stayed busy"
         time.sleep(0.25)
 
 
 def test_health_stays_fast_while_two_heavy_requests_run(server):
-    _wait_until_idle(server)  # an earlier case's computation may still be finishing
+    _wait_until_no_slot_is_busy(server)  # an earlier case's computation may still be finishing
     results = []
 
     def heavy():
