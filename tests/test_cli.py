@@ -151,6 +151,30 @@ def test_cli_output_equals_the_api_for_csv_and_parquet(tmp_path, client):
     assert "groups [" in err_pq and "3/3" in err_pq
 
 
+def _grouped_month(tmp_path) -> list[str]:
+    """The month as a CSV file and the options file; the arguments of a grouped run."""
+    path = tmp_path / "repairs.csv"
+    with path.open("w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(list(TABLE))
+        w.writerows(zip(*TABLE.values(), strict=True))
+    (tmp_path / "options.json").write_text(json.dumps(OPTIONS))
+    return [
+        "--data",
+        str(path),
+        "--response",
+        "repair_cost",
+        "--predictors",
+        ",".join(PREDICTORS),
+        "--group-by",
+        "district",
+        "--options",
+        str(tmp_path / "options.json"),
+        "--out",
+        str(tmp_path / "out.json"),
+    ]
+
+
 def test_cli_groups_use_the_worker_process_setting_while_showing_progress(tmp_path, monkeypatch):
     # BESTSCALE_GROUP_PROCESSES applies on the command line too, where --group-by always
     # shows a progress line (the progress once replaced the process mapper by a serial loop)
@@ -176,30 +200,9 @@ def test_cli_groups_use_the_worker_process_setting_while_showing_progress(tmp_pa
 
     monkeypatch.setattr(workers, "process_mapper", recording)
     monkeypatch.setenv("BESTSCALE_GROUP_PROCESSES", "2")
-    path = tmp_path / "repairs.csv"
-    with path.open("w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(list(TABLE))
-        w.writerows(zip(*TABLE.values(), strict=True))
-    (tmp_path / "options.json").write_text(json.dumps(OPTIONS))
     get_settings.cache_clear()
     try:
-        code = select_main(
-            [
-                "--data",
-                str(path),
-                "--response",
-                "repair_cost",
-                "--predictors",
-                ",".join(PREDICTORS),
-                "--group-by",
-                "district",
-                "--options",
-                str(tmp_path / "options.json"),
-                "--out",
-                str(tmp_path / "out.json"),
-            ]
-        )
+        code = select_main(_grouped_month(tmp_path))
     finally:
         get_settings.cache_clear()
     assert code == 0
@@ -378,28 +381,7 @@ def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeyp
             return Deadline(time.monotonic() - 1.0, seconds)
 
     monkeypatch.setattr(api_selection, "Deadline", Expired)
-    path = tmp_path / "repairs.csv"
-    with path.open("w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(list(TABLE))
-        w.writerows(zip(*TABLE.values(), strict=True))
-    (tmp_path / "options.json").write_text(json.dumps(OPTIONS))
-    code = select_main(
-        [
-            "--data",
-            str(path),
-            "--response",
-            "repair_cost",
-            "--predictors",
-            ",".join(PREDICTORS),
-            "--group-by",
-            "district",
-            "--options",
-            str(tmp_path / "options.json"),
-            "--out",
-            str(tmp_path / "out.json"),
-        ]
-    )
+    code = select_main(_grouped_month(tmp_path))
     assert code == 0
     groups = json.loads((tmp_path / "out.json").read_text())["groups"]
     assert sorted(groups) == ["coast", "hills", "valley"]

@@ -113,7 +113,7 @@ def _batch_unguarded(
     S = np.asarray(col_sets, dtype=np.intp)  # (C, p)
     p = S.shape[1]
     n, K, R = y.size, plan.folds, plan.repeats
-    t0, z, finite = scorer._fixed_response(t)
+    t0, z, finite = scorer.fixed_response(t)
     if not finite or any(rows.size <= p for tr_r in index.train for rows in tr_r):
         return [None] * C  # the one-candidate path raises the right reason
     alone = np.zeros(C, dtype=bool)
@@ -121,7 +121,7 @@ def _batch_unguarded(
     cf, ctot = bank.cross(t, z)
     fold_vals = np.empty((C, R * K))
     pooled = {"rmse": np.empty((C, R)), "mae": np.empty((C, R)), "mape": np.empty((C, R))}
-    kind = _closed_form(t0)
+    kind = retransform.closed_form(t0)
     for r in range(R):
         a = np.asarray(plan.assignments[r], dtype=np.intp)
         test = index.test[r]
@@ -148,9 +148,8 @@ def _batch_unguarded(
             if kind == "identity":
                 mean[te] = eta[te] + e.mean(axis=0)
             elif kind == "log":
-                top = e.max(axis=0)
-                m = np.exp(e - top).mean(axis=0) * np.exp(top)
-                mean[te] = np.exp(eta[te]) * m - (t0.shift or 0.0)
+                m = retransform.log_smear_factor(e)
+                mean[te] = np.exp(eta[te]) * m - retransform.log_shift(t0)
             elif kind == "sqrt":
                 # mean_i max(eta + e_i, 0)^2: where every term is positive the square
                 # expands (retransform's suffix sums with nothing cut off); elsewhere as one
@@ -223,15 +222,3 @@ def _sqrt_cut(eta: np.ndarray, e: np.ndarray, cut: np.ndarray) -> np.ndarray:
     cnt = m - k
     out: np.ndarray = (cnt * x * x + 2.0 * x * s1[k, cols] + s2[k, cols]) / m
     return out
-
-
-def _closed_form(t: tr.Transform) -> str | None:
-    """'identity', 'log' or 'sqrt' when the smeared mean has a closed form (as in
-    retransform)."""
-    if t.name == "identity":
-        return "identity"
-    if t.name == "sqrt":
-        return "sqrt"
-    if t.name == "log" or (t.name == "box_cox" and t.lam is not None and abs(t.lam) < 1e-12):
-        return "log" if t.name == "log" else None
-    return None

@@ -244,10 +244,8 @@ def _kth_shifted(mu: np.ndarray, sorted_r: list[np.ndarray], k: int, sign: int) 
     the found value.  Equal to a full sort up to rounding in the last place."""
     n = sum(r.size for r in sorted_r)
     c = mu.shape[0]
-    if k < 1:
-        return np.full(c, -np.inf)
-    if k > n:
-        return np.full(c, np.inf)
+    if not 1 <= k <= n:  # below every candidate, or above every one
+        return np.full(c, -np.inf if k < 1 else np.inf)
     rmax = max(float(r[-1]) for r in sorted_r if r.size)
     rmin = min(float(r[0]) for r in sorted_r if r.size)
     lo_c = np.min(mu, axis=1) + (-rmax if sign < 0 else rmin)
@@ -407,10 +405,8 @@ def _kth_mapped(
     """
     n = sum(r.size for r in sorted_r)
     c = mu.shape[0]
-    if k < 1:
-        return np.full(c, -np.inf)
-    if k > n:
-        return np.full(c, np.inf)
+    if not 1 <= k <= n:  # below every candidate, or above every one
+        return np.full(c, -np.inf if k < 1 else np.inf)
     K = len(sorted_r)
     below = np.zeros((c, K), dtype=np.int64)  # candidates with w < A_f
     above = np.zeros((c, K), dtype=np.int64)  # candidates with w > B_f

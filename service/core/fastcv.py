@@ -150,7 +150,7 @@ class Scorer:
         self.want_mape = bool(np.all(self.y != 0))
 
     # ------------------------------------------------------------ response side
-    def _fixed_response(self, t: tr.Transform) -> tuple[tr.Transform, np.ndarray, bool]:
+    def fixed_response(self, t: tr.Transform) -> tuple[tr.Transform, np.ndarray, bool]:
         """(concrete transform, z) for a response scale that does not change per fold."""
         if t not in self._resp:
             t0 = fit_transform(t, self.y, shift_needed=self.shift_needed)
@@ -229,7 +229,7 @@ class Scorer:
             except ValueError as exc:
                 raise CandidateFailure(str(exc)) from None
         if not per_fold:
-            t0, z, finite = self._fixed_response(t)
+            t0, z, finite = self.fixed_response(t)
             if not finite:
                 raise CandidateFailure(f"fold 1: {t0.label('y')} overflows on the training rows")
         fold_vals = np.empty(plan.n_splits)

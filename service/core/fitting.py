@@ -152,13 +152,7 @@ def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     has a condition number above COND_LIMIT (or a zero column): those rows of B
     are undefined and must be refitted exactly.
     """
-    K, p, _ = G.shape
-    B = np.full((K, p), np.nan)
-    L, cs, d, good = _factor_batch(G, c)
-    if L is not None:
-        w = np.linalg.solve(L, cs[:, :, None])
-        b = np.linalg.solve(np.swapaxes(L, 1, 2), w)[:, :, 0]
-        B[good] = b / d
+    B, good, _ = solve_batch_nested(G, c, 0)
     return B, good
 
 
@@ -180,6 +174,8 @@ def solve_batch_nested(
         w = np.linalg.solve(L, cs[:, :, None])
         b = np.linalg.solve(np.swapaxes(L, 1, 2), w)[:, :, 0]
         B[good] = b / d
+        if lead == 0:  # solve_batch: the full systems only
+            return B, good, B1
         L1 = L[:, :lead, :lead]
         b1 = np.linalg.solve(np.swapaxes(L1, 1, 2), w[:, :lead])[:, :, 0]
         B1[good] = b1 / d[:, :lead]

@@ -49,6 +49,29 @@ def _exact(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray:
     return out
 
 
+def closed_form(t: Transform) -> str | None:
+    """'identity', 'log' (also Box-Cox at lambda 0) or 'sqrt' where the smeared mean has a
+    closed form; None for the other families."""
+    if t.name in ("identity", "sqrt"):
+        return t.name
+    if t.name == "log" or (t.name == "box_cox" and t.lam is not None and abs(t.lam) < 1e-12):
+        return "log"
+    return None
+
+
+def log_shift(t: Transform) -> float:
+    """The shift a log-form scale adds before the log (0 for Box-Cox at lambda 0)."""
+    return (t.shift or 0.0) if t.name == "log" else 0.0
+
+
+def log_smear_factor(e: np.ndarray) -> np.ndarray:
+    """mean(exp(e)) along the first axis, without overflow for large residuals: the factor
+    of exp(eta) in the log scale's smeared mean (one per column of a 2-D ``e``)."""
+    top = np.max(e, axis=0)
+    out: np.ndarray = np.mean(np.exp(e - top), axis=0) * np.exp(top)
+    return out
+
+
 def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray:
     """Duan's smearing estimate of E[y | eta] for each eta (m,), residuals (n,).
 
@@ -57,16 +80,14 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
     """
     eta = np.asarray(eta, dtype=float)
     e = np.asarray(resid, dtype=float)
-    name = t.name
-    if name == "identity":
+    kind = closed_form(t)
+    if kind == "identity":
         return eta + float(np.mean(e))
-    if name == "log" or (name == "box_cox" and t.lam is not None and abs(t.lam) < 1e-12):
-        shift = (t.shift or 0.0) if name == "log" else 0.0
+    if kind == "log":
         with np.errstate(over="ignore"):
-            m = float(np.mean(np.exp(e - e.max()))) * np.exp(e.max())
-            out = np.exp(eta) * m - shift
+            out = np.exp(eta) * float(log_smear_factor(e)) - log_shift(t)
         return np.where(np.isfinite(out), out, np.nan)
-    if name == "sqrt":
+    if kind == "sqrt":
         return _smear_sqrt(eta, e)
     form = _tree.power_form(t)
     if form is not None:

@@ -57,7 +57,7 @@ def main() -> None:
     ]
     scorer = Scorer(bank, y, plan, False)
     for name in RESP:  # the response scales once (cached by both ways)
-        scorer._fixed_response(tr.Transform(name))
+        scorer.fixed_response(tr.Transform(name))
     one: list[float] = []
     with Timer() as t_one:
         for name in RESP:

@@ -144,7 +144,7 @@ def test_fold_lambdas_leave_an_ill_conditioned_fold_to_the_one_fold_path():
         one = lk.estimate_lambda("box_cox", y[rows], X[rows], with_interval=False, near=near)
         # the one-fold path itself (QR residuals): the same lambda
         assert res.fold_lambdas[k] == pytest.approx(one.lam, abs=1e-12)
-    # source: /work/shared/CHECKS_PUBLIC.md, Longley: per-fold lambda with
+    # source: CHECKS_PUBLIC longley (statsmodels.datasets.longley): per-fold lambda with
     # KFold(5, shuffle=True, random_state=0) = [2.7777, 2.0515, -0.73075, 1.2683, -0.34607]
     np.testing.assert_allclose(
         res.fold_lambdas, [2.7777, 2.0515, -0.73075, 1.2683, -0.34607], atol=2e-3
