@@ -121,9 +121,10 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     unusable.  An incumbent's model artifact adds the ``drift`` block.
     """
     from .api.errors import problem_object, record_problem
-    from .api.selection import finish_body
+    from .api.options import service
     from .batch_parquet import SegmentRef, SharedDirError
     from .selection.groups import GroupTask, select_group
+    from .selection.request import finish_body
 
     _pin_blas_once()
     if isinstance(sub, SegmentRef):
@@ -142,7 +143,7 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     if "problem" in body:
         body = {"problem": record_problem(body["problem"])}
     else:
-        body = finish_body(body, opts)
+        body = finish_body(body, opts, service())
     if incumbent_model is not None and not isinstance(sub, dict):
         from .core.drift import compare
 

@@ -265,9 +265,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 def select_main(argv: list[str]) -> int:
     from .api.encode import to_jsonable
+    from .api.errors import with_group_problems
+    from .api.options import selection_job, service
     from .api.schemas import SelectionRequest
-    from .api.selection import run_selection_request
     from .core.errors import BestscaleError
+    from .selection.request import run_selection
 
     ap = build_parser()
     args = ap.parse_args(argv)
@@ -319,12 +321,14 @@ def select_main(argv: list[str]) -> int:
         progress = None
         if args.group_by:
             progress = _Progress(0)
-        result = run_selection_request(
-            req,
+        result = run_selection(
+            selection_job(req),
+            service(),
             progress=progress,
             group_mapper=group_mapper,
             per_group_time_limit=bool(args.group_by),
         )
+        result = with_group_problems(result)
     except ValidationError as exc:
         from .api.errors import validation_items
 
@@ -387,8 +391,8 @@ def _batch(req, body: dict, args, cluster: str | None) -> int:
     ok, 3 when some failed (their files and the summary say why)."""
     from functools import partial
 
+    from .api.options import check_predictor_choices, search_options, table_columns
     from .api.schemas import SpecificationIn
-    from .api.selection import selection_options
     from .batch import (
         BatchProgress,
         BatchRefusal,
@@ -400,28 +404,22 @@ def _batch(req, body: dict, args, cluster: str | None) -> int:
         run_pool,
     )
     from .batch_parquet import SharedParquet, choose_transport, segment_bytes
-    from .core.data import prepare
-    from .core.errors import InputError, Option, PredictorChoice
+    from .core.errors import InputError, Option
     from .settings import get_settings
     from .version import __version__
 
-    # the request checks of run_selection_request except the limits on rows and groups,
-    # which protect a shared server; a batch job is bounded by its cluster's memory
+    # the request checks of options.selection_job except the limits on the table's size, the
+    # columns used and the groups, which protect a shared server; a batch job is bounded by
+    # its cluster's memory
     if req.trust.stability or req.trust.optimism:
         raise InputError.at(
             Option("trust"),
             "trust measures are computed for one selection; run the segment on its own "
             "(without --group-by) to measure them",
         )
-    if isinstance(req.transforms.predictors, dict):
-        for col in req.transforms.predictors:
-            if col not in req.predictors:
-                raise InputError.at(PredictorChoice(col), f"'{col}' is not one of the predictors")
-    data = req.data.as_dict()
-    prep = prepare(
-        data, req.response, list(req.predictors), list(req.categorical), req.order, req.group_by
-    )
-    opts = selection_options(req)
+    check_predictor_choices(req)
+    prep = table_columns(req).prepare()
+    opts = search_options(req)
     incumbents, inc_digest = {}, None
     if args.incumbents:
 

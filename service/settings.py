@@ -14,6 +14,8 @@ from typing import Annotated, Literal
 from pydantic import Field, SecretStr, field_validator, model_validator
 from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
 
+from .selection.search_setup import DEFAULT_MAX_CANDIDATES, DEFAULT_TIME_LIMIT_S
+
 # scheme://host[:port] exactly as a browser sends it in the Origin header (no path, no
 # trailing slash: CORS compares whole strings, so 'https://a.example/' would never match)
 _ORIGIN = re.compile(r"^https?://[A-Za-z0-9.\-\[\]:]+$")
@@ -119,11 +121,11 @@ class Settings(BaseSettings):
     )
     max_candidates: int = Field(20_000, ge=1, description="largest limits.max_candidates accepted")
     default_max_candidates: int = Field(
-        5_000, ge=1, description="limits.max_candidates when omitted"
+        DEFAULT_MAX_CANDIDATES, ge=1, description="limits.max_candidates when omitted"
     )
     max_groups: int = Field(1000, ge=1, description="group_by values per request (422 past it)")
     default_time_limit_s: float = Field(
-        60.0, gt=0, le=86400, description="limits.time_limit_s when omitted"
+        DEFAULT_TIME_LIMIT_S, gt=0, le=86400, description="limits.time_limit_s when omitted"
     )
     max_time_limit_s: float = Field(
         600.0, gt=0, le=86400, description="largest limits.time_limit_s accepted"

@@ -589,8 +589,8 @@ def test_the_time_limit_applies_to_each_segment_not_to_the_whole_job(tmp_path):
     """An HTTP request's options carry one deadline for the whole request; a month of
     segments runs far longer than one request, so each segment gets the time limit from its
     own start (options made long ago, deadline passed: every segment still runs)."""
+    from service.api.options import search_options
     from service.api.schemas import SelectionRequest
-    from service.api.selection import selection_options
     from service.batch import Job, run_inline, run_job
     from service.core.data import prepare
     from service.selection.deadline import Deadline
@@ -598,7 +598,7 @@ def test_the_time_limit_applies_to_each_segment_not_to_the_whole_job(tmp_path):
     table = _table(2, 30)
     body = {"response": "repair_cost", "predictors": PREDICTORS.split(","), **OPTIONS}
     req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
-    opts = selection_options(req)
+    opts = search_options(req)
     assert opts.deadline is not None
     stale = replace(opts, deadline=Deadline(time.monotonic() - 1.0, opts.time_limit_s))
     prep = prepare(

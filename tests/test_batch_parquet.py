@@ -21,8 +21,8 @@ def test_each_parquet_task_carries_a_reference_and_reads_only_its_segment(tmp_pa
     yields exactly the segment the in-process split gives (values, row numbers, order)."""
     import pickle
 
+    from service.api.options import search_options
     from service.api.schemas import SelectionRequest
-    from service.api.selection import selection_options
     from service.batch import Job, run_inline, run_job
     from service.batch_parquet import SegmentRef, SharedParquet
     from service.core.data import prepare
@@ -44,7 +44,7 @@ def test_each_parquet_task_carries_a_reference_and_reads_only_its_segment(tmp_pa
         return run_inline(tasks)
 
     shared = SharedParquet(str(tmp_path))
-    job_ = Job(tmp_path / "out", body, prep, selection_options(req), "test")
+    job_ = Job(tmp_path / "out", body, prep, search_options(req), "test")
     run_job(job_, spy, shared=shared)
     assert len(seen) == 5
     for t in seen:

@@ -371,7 +371,7 @@ def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeyp
     request with the same clock answers 503 for each group)."""
     import time
 
-    import service.api.selection as api_selection
+    import service.api.options as api_options
     from service.api.schemas import SelectionRequest
     from service.selection.deadline import Deadline
 
@@ -380,7 +380,7 @@ def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeyp
         def after(seconds: float) -> Deadline:
             return Deadline(time.monotonic() - 1.0, seconds)
 
-    monkeypatch.setattr(api_selection, "Deadline", Expired)
+    monkeypatch.setattr(api_options, "Deadline", Expired)
     code = select_main(_grouped_month(tmp_path))
     assert code == 0
     groups = json.loads((tmp_path / "out.json").read_text())["groups"]
@@ -395,5 +395,9 @@ def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeyp
             **OPTIONS,
         }
     )
-    body = api_selection.run_selection_request(req)
+    from service.api.errors import with_group_problems
+    from service.selection.request import run_selection
+
+    job = api_options.selection_job(req)
+    body = with_group_problems(run_selection(job, api_options.service()))
     assert all(g["problem"]["status"] == 503 for g in body["groups"].values())

@@ -1,17 +1,19 @@
-"""Table size checks that run before any cell is parsed, in time linear in the request.
+"""A table's shape read before any cell is parsed, in time linear in the request.
 
-Rows, total columns (used or not) and column-name lengths are read from the cheapest place
-each layout offers -- the keys and list lengths of ``columns``, the keys of ``records`` (with
-an early stop), the header line and the line count of ``csv`` -- so an oversized table is
-refused before it is typed, copied or decoded.
+Rows, total columns (used or not) and column names are read from the cheapest place each
+layout offers -- the keys and list lengths of ``columns``, the keys of ``records`` (with an
+early stop), the header line and the line count of ``csv`` -- so that ``options.check_table``
+refuses an oversized table before it is typed, copied or decoded.
 """
 
 from __future__ import annotations
 
 import csv
 import io
+from collections.abc import Mapping
+from typing import Any
 
-from ..core.data import MAX_LEVEL_CHARS, shown
+from ..core.data import MAX_LEVEL_CHARS
 from ..core.errors import InputError, Table
 from ..settings import get_settings
 
@@ -26,7 +28,7 @@ def _csv_header(text: str) -> list[str]:
         raise InputError.at(Table("csv"), f"data.csv cannot be read as CSV: {exc}") from None
 
 
-def table_shape(data: dict) -> tuple[int, list[str]]:
+def table_shape(data: Mapping[str, Any]) -> tuple[int, list[str]]:
     """(rows, column names) of the contract's Data object; records stop early past the cap."""
     cap = get_settings().max_table_columns
     if data.get("columns") is not None:
@@ -45,39 +47,3 @@ def table_shape(data: dict) -> tuple[int, list[str]]:
     rows = text.count("\n") + (0 if text.endswith("\n") else 1) - 1
     header = _csv_header(text)
     return max(rows, 0), header
-
-
-def check_table(data: dict) -> int:
-    """Refuse a table past the row or total-column limits or with an overlong column name;
-    return its row count."""
-    s = get_settings()
-    rows, names = table_shape(data)
-    where = Table(
-        "columns"
-        if data.get("columns") is not None
-        else "records"
-        if data.get("records") is not None
-        else "csv"
-    )
-    if rows > s.max_rows:
-        raise InputError.at(
-            Table(),
-            f"the table has {rows} rows; this service accepts at most "
-            f"{s.max_rows} (setting BESTSCALE_MAX_ROWS)",
-        )
-    if len(names) > s.max_table_columns:
-        more = "more than " if where.layout == "records" else ""
-        raise InputError.at(
-            where,
-            f"the table has {more}{len(names)} columns; this service accepts at most "
-            f"{s.max_table_columns} in a table, used or not (setting "
-            "BESTSCALE_MAX_TABLE_COLUMNS); send only the columns the request uses",
-        )
-    for name in names:
-        if len(name) > MAX_NAME_CHARS:
-            raise InputError.at(
-                where,
-                f"column name {shown(name)} has {len(name)} characters; at most "
-                f"{MAX_NAME_CHARS} are accepted",
-            )
-    return rows

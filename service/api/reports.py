@@ -5,32 +5,32 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from starlette.responses import HTMLResponse
 
-from ..core.data import prepare
 from ..report.html import CSP, render_report
-from ..selection.deadline import Deadline
 from ..selection.plots import report_plots
+from ..selection.request import run_selection
 from .encode import to_jsonable
-from .errors import ProblemError
+from .errors import ProblemError, with_group_problems
 from .middleware import note_result
 from .negotiation import preferred
+from .options import Stop, selection_job, service
 from .pool import compute_slot
 from .routing import StrictRoute
 from .schemas import SelectionRequest
-from .selection import disconnect_probe, run_selection_request, time_limit
+from .selection import disconnect_probe
 
 router = APIRouter(route_class=StrictRoute)
 
 HTML_TYPE = "text/html"
 
 
-def selection_report(req: SelectionRequest, stop=None) -> str:
+def selection_report(req: SelectionRequest, stop: Stop | None = None) -> str:
     """Run the selection of ``req`` and return the report page (call inside a compute slot).
 
     The page is drawn from the JSON-ready body (private keys dropped, non-finite numbers
     refused, exactly as the JSON response), so every number on it is the response's.
     """
-    deadline = Deadline.after(time_limit(req))  # the selection and the figures share it
-    result = run_selection_request(req, stop=stop, deadline=deadline)
+    job = selection_job(req, stop=stop)  # its one deadline: the selection and the figures
+    result = with_group_problems(run_selection(job, service()))
     if stop is not None and stop():
         # nobody will read the page: skip the figures and free the compute slot now
         raise ProblemError(
@@ -43,21 +43,15 @@ def selection_report(req: SelectionRequest, stop=None) -> str:
     note_result(body)
     # The rows the selection used, again: the plot data needs them and the selection body
     # does not carry them.  Every check already passed in the selection above.
-    prep = prepare(
-        req.data.as_dict(),
-        req.response,
-        list(req.predictors),
-        list(req.categorical),
-        req.order,
-        req.group_by,
-    )
-    plots = report_plots(body, prep, req.alpha, req.validation.seed, deadline=deadline)
+    table, opts = job.table, job.search
+    prep = table.prepare()
+    plots = report_plots(body, prep, opts.alpha, opts.seed, deadline=opts.deadline)
     context = {
-        "response": req.response,
-        "predictors": list(req.predictors),
-        "alpha": req.alpha,
-        "order": req.order,
-        "group_by": req.group_by,
+        "response": table.response,
+        "predictors": list(table.predictors),
+        "alpha": opts.alpha,
+        "order": table.order,
+        "group_by": table.group_by,
     }
     return render_report(body, plots, context)
 

@@ -6,14 +6,17 @@ from fastapi import APIRouter, Request
 from starlette.responses import PlainTextResponse
 
 from ..core import transforms as tr
+from ..selection.request import run_selection
 from ..version import __version__
 from .encode import JSONBody
+from .errors import with_group_problems
 from .middleware import note_result
+from .options import selection_job, service
 from .pool import compute_slot
 from .reports import report_response, wants_html
 from .routing import StrictRoute
 from .schemas import SelectionRequest
-from .selection import disconnect_probe, run_selection_request
+from .selection import disconnect_probe
 
 router = APIRouter(route_class=StrictRoute)
 
@@ -29,7 +32,8 @@ def post_selections(req: SelectionRequest, request: Request):
     if wants_html(request.headers.get("accept", "")):
         return report_response(req, request)  # the page of POST /v1/reports
     with compute_slot():
-        body = run_selection_request(req, stop=disconnect_probe(request))
+        job = selection_job(req, stop=disconnect_probe(request))
+        body = with_group_problems(run_selection(job, service()))
     note_result(body)
     return JSONBody(body)
 

@@ -20,6 +20,12 @@ from starlette.requests import ClientDisconnect
 
 from . import jsonbody
 from .errors import ProblemError
+from .options import (
+    UPLOADED_FILE,
+    check_rows,
+    check_table_columns,
+    check_uncompressed,
+)
 
 JSON_TYPES = ("application/json",)
 MULTIPART = "multipart/form-data"
@@ -103,8 +109,6 @@ def _parquet_limits(raw: bytes):
     import pyarrow as pa
     import pyarrow.parquet as pq
 
-    from ..settings import get_settings
-
     try:
         pf = pq.ParquetFile(io.BytesIO(raw))
         meta = pf.metadata
@@ -118,53 +122,17 @@ def _parquet_limits(raw: bytes):
             "/file",
             f"the uploaded file is not a readable Parquet file ({exc})",
         ) from None
-    s = get_settings()
-    if rows > s.max_rows:
-        raise _problem(
-            422,
-            "invalid-input",
-            "Invalid request content",
-            "/file",
-            f"the Parquet file has {rows} rows; this service accepts at most {s.max_rows} "
-            "(setting BESTSCALE_MAX_ROWS)",
-        )
-    if ncols > s.max_table_columns:
-        raise _problem(
-            422,
-            "invalid-input",
-            "Invalid request content",
-            "/file",
-            f"the Parquet file has {ncols} columns; this service accepts at most "
-            f"{s.max_table_columns} in a table (setting BESTSCALE_MAX_TABLE_COLUMNS)",
-        )
-    if size > s.max_uncompressed_bytes:
-        raise _problem(
-            413,
-            "too-large",
-            "Uploaded table too large",
-            "/file",
-            f"the Parquet file decompresses to {size} bytes; the limit is "
-            f"{s.max_uncompressed_bytes} (setting BESTSCALE_MAX_UNCOMPRESSED_BYTES)",
-        )
+    check_rows(rows, UPLOADED_FILE, "the Parquet file")
+    check_table_columns(ncols, UPLOADED_FILE, "the Parquet file", uploaded=True)
+    check_uncompressed(size)
     return pf
 
 
 def _csv_limits(raw: bytes) -> None:
     """Rows counted on the raw bytes before the text is decoded (the columns are counted
     from the header with the JSON request's checks)."""
-    from ..settings import get_settings
-
-    s = get_settings()
     rows = raw.count(b"\n") + (0 if raw.endswith(b"\n") else 1) - 1
-    if rows > s.max_rows:
-        raise _problem(
-            422,
-            "invalid-input",
-            "Invalid request content",
-            "/file",
-            f"the CSV file has {rows} rows; this service accepts at most {s.max_rows} "
-            "(setting BESTSCALE_MAX_ROWS)",
-        )
+    check_rows(rows, UPLOADED_FILE, "the CSV file")
 
 
 def table_from_file(raw: bytes, filename: str | None) -> dict:

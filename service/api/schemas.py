@@ -14,6 +14,16 @@ from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_vali
 
 from ..core import transforms as tr
 from ..core.conditions import DEFAULT_ALPHA
+from ..core.folds import DEFAULT_SEED
+from ..selection.plots import PLOT_MAX_POINTS
+from ..selection.search_setup import (
+    DEFAULT_FOLDS,
+    DEFAULT_METRIC,
+    DEFAULT_REPEATS,
+    DEFAULT_SCHEME,
+    DEFAULT_STRATEGY,
+    DEFAULT_TOP,
+)
 from ..selection.strategy import EXHAUSTIVE_LIMIT
 
 TransformName = Literal[
@@ -252,12 +262,18 @@ class SpecificationIn(_Strict):
 
 
 class ValidationIn(_Strict):
-    folds: int = Field(5, ge=2, le=50, description="K in K-fold cross-validation", examples=[5])
+    folds: int = Field(
+        DEFAULT_FOLDS, ge=2, le=50, description="K in K-fold cross-validation", examples=[5]
+    )
     repeats: int = Field(
-        1, ge=1, le=50, description="repeated K-fold: number of partitions", examples=[2]
+        DEFAULT_REPEATS,
+        ge=1,
+        le=50,
+        description="repeated K-fold: number of partitions",
+        examples=[2],
     )
     seed: int = Field(
-        0,
+        DEFAULT_SEED,
         ge=0,
         le=2**32 - 1,
         description="seed of the partitions (the same "
@@ -265,13 +281,13 @@ class ValidationIn(_Strict):
         examples=[0],
     )
     metric: Literal["rmse", "mae", "mape"] = Field(
-        "rmse",
+        DEFAULT_METRIC,
         description="error on the original response scale: rmse scores the smeared mean, "
         "mae and mape the median (naive inverse)",
         examples=["rmse"],
     )
     scheme: Literal["random", "blocked"] = Field(
-        "random",
+        DEFAULT_SCHEME,
         description="random: shuffled K-fold (seeded); blocked: K contiguous folds in the "
         "order of the 'order' column (row order without one), for ordered data whose "
         "neighbours are correlated; blocked has one partition, so repeats must be 1",
@@ -379,7 +395,9 @@ class SelectionRequest(_Strict):
         description="significance level of condition tests",
         examples=[0.05],
     )
-    top: int = Field(5, ge=1, le=100, description="ranked specifications to return", examples=[5])
+    top: int = Field(
+        DEFAULT_TOP, ge=1, le=100, description="ranked specifications to return", examples=[5]
+    )
     limits: LimitsIn = Field(default_factory=LimitsIn, description="search budget")
     trust: TrustIn = Field(
         default_factory=TrustIn,
@@ -396,7 +414,7 @@ class SelectionRequest(_Strict):
         examples=[{"pipe_length_m": "metre", "repair_cost": "currency units"}],
     )
     strategy: Literal["auto", "exhaustive", "screened"] = Field(
-        "auto",
+        DEFAULT_STRATEGY,
         description="how the candidate space is searched: 'exhaustive' scores every "
         "candidate, simplest first, until a limit; 'screened' screens each predictor's scale on "
         "the model scale and descends over combinations (see search.strategy in the response); "
@@ -407,6 +425,45 @@ class SelectionRequest(_Strict):
         None,
         description="the specification in use (e.g. last month's), scored on the same "
         "folds; the response tells whether to keep it",
+    )
+
+
+class DiagnosticsRequest(_Strict):
+    # POST /v1/diagnostics (no docstring: it would become the schema's description)
+    data: DataIn
+    specification: SpecificationIn
+    alpha: float = Field(
+        DEFAULT_ALPHA, gt=0, lt=0.5, description="significance level of condition tests"
+    )
+    order: str | None = Field(
+        None, description="column giving observation order; enables independence tests"
+    )
+    categorical: list[str] = Field(
+        default_factory=list, description="predictors to treat as categorical even if numeric"
+    )
+    validation: ValidationIn = Field(default_factory=ValidationIn)
+    units: dict[str, str] = Field(default_factory=dict)
+    max_points: int = Field(
+        PLOT_MAX_POINTS,
+        ge=50,
+        le=20000,
+        description="points per plot (thinned for plotting only; tests use every row)",
+    )
+
+
+class PredictionRequest(BaseModel):
+    """A model artifact exactly as issued (``ranking[i].model``), rows to predict, a level."""
+
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, strict=True)
+
+    model: dict[str, Any] = Field(..., description="a ranking entry's 'model', sent back unchanged")
+    data: DataIn = Field(..., description="rows to predict: every predictor column of the model")
+    interval: float = Field(0.95, gt=0, lt=1, description="coverage of the prediction interval")
+    interval_method: Literal["normal", "cv_plus"] | None = Field(
+        None,
+        description="normal: t interval on the model scale (normal errors); cv_plus: CV+ "
+        "interval from the out-of-fold residuals stored in the model (no normality needed). "
+        "Left out: cv_plus when normality fails on the model's entry, else normal",
     )
 
 

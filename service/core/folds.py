@@ -13,6 +13,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+#: the seed of the fold partitions (and of the figures' thinning) when a request gives none
+DEFAULT_SEED = 0
+
 
 @dataclass(frozen=True)
 class CVPlan:
@@ -32,7 +35,7 @@ def make_plan(
     n: int,
     folds: int = 5,
     repeats: int = 1,
-    seed: int = 0,
+    seed: int = DEFAULT_SEED,
     metric: str = "rmse",
     scheme: str = "random",
     order: np.ndarray | None = None,

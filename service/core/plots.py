@@ -33,6 +33,7 @@ from statsmodels.nonparametric.smoothers_lowess import lowess
 from service.core import _condition_tests as ct
 from service.core import sources as src
 from service.core.conditions import MAX_FLAGGED_ROWS, ConditionInputs, flag_rows, validate
+from service.core.folds import DEFAULT_SEED
 
 #: LOWESS is fitted to at most this many rows (a seeded sample beyond it)
 SMOOTHER_MAX_ROWS = 20_000
@@ -403,7 +404,9 @@ def _partial_residuals(
     return out
 
 
-def diagnostic_plots(inp: ConditionInputs, max_points: int = 2000, seed: int = 0) -> dict[str, Any]:
+def diagnostic_plots(
+    inp: ConditionInputs, max_points: int = 2000, seed: int = DEFAULT_SEED
+) -> dict[str, Any]:
     """Plot-ready data for the five diagnostic panels.
 
     Returns ``{"residuals_fitted", "normal_quantiles", "spread_fitted", "influence",

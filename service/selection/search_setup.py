@@ -7,7 +7,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Final
 
 import numpy as np
 
@@ -15,28 +15,44 @@ from ..core.conditions import DEFAULT_ALPHA
 from ..core.crossval import CVResult
 from ..core.data import Prepared
 from ..core.errors import InputError, Option
+from ..core.folds import DEFAULT_SEED
 from ..core.numbers import count_of
 from ..core.spec import Specification
 from .deadline import Deadline
 
+#: defaults of a request's options, written here once (the request schema, the service
+#: settings and the options below refer to them; the significance level is the core's
+#: ``conditions.DEFAULT_ALPHA``, the fold seed ``folds.DEFAULT_SEED``)
+DEFAULT_FOLDS: Final = 5
+DEFAULT_REPEATS: Final = 1
+DEFAULT_METRIC: Final = "rmse"
+DEFAULT_SCHEME: Final = "random"
+DEFAULT_TOP: Final = 5
+DEFAULT_MAX_CANDIDATES: Final = 5000
+DEFAULT_TIME_LIMIT_S: Final = 60.0
+DEFAULT_STRATEGY: Final = "auto"
 
-@dataclass
+
+@dataclass(frozen=True)
 class SearchOptions:
+    """What a search is given; frozen (``dataclasses.replace`` makes a changed copy)."""
+
     response_transforms: list[Any] | None = None  # names or contract Transform dicts
     predictor_transforms: list[Any] | dict[str, Any] | None = None
-    folds: int = 5
-    repeats: int = 1
-    seed: int = 0
-    metric: str = "rmse"
+    folds: int = DEFAULT_FOLDS
+    repeats: int = DEFAULT_REPEATS
+    seed: int = DEFAULT_SEED
+    metric: str = DEFAULT_METRIC
     alpha: float = DEFAULT_ALPHA
-    top: int = 5
-    max_candidates: int = 5000
-    time_limit_s: float = 60.0
+    top: int = DEFAULT_TOP
+    max_candidates: int = DEFAULT_MAX_CANDIDATES
+    time_limit_s: float = DEFAULT_TIME_LIMIT_S
     intercept: bool = True
     units: dict[str, Any] = field(default_factory=dict)
     incumbent: dict[str, Any] | None = None  # contract Specification in use
-    strategy: str = "auto"  # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
-    scheme: str = "random"  # CV folds: "random" K-fold or "blocked" (contiguous in order)
+    # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
+    strategy: str = DEFAULT_STRATEGY
+    scheme: str = DEFAULT_SCHEME  # CV folds: "random" K-fold or "blocked" (contiguous in order)
     # the request's one deadline: search, entries, stability, optimism and groups share it;
     # None: each call of run_selection / assess_trust starts its own from time_limit_s
     deadline: Deadline | None = None
@@ -87,7 +103,7 @@ def check_rows(prep: Prepared, opts: SearchOptions, p: int) -> None:
         raise InputError.at(
             prep.table(),
             f"the data have {_usable(prep)}, fewer than the {opts.folds} cross-validation "
-            f"folds (validation.folds, default 5); send at least {opts.folds} complete "
+            f"folds (validation.folds, default {DEFAULT_FOLDS}); send at least {opts.folds} complete "
             f"rows{fewer}",
         )
     n_train = n - math.ceil(n / opts.folds)

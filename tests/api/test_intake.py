@@ -1,4 +1,5 @@
-"""Table size checks before parsing (service/api/intake.py).
+"""A table's shape read before parsing (service/api/intake.py) and the size checks on it
+(service/api/options.check_table).
 
 Reference: Python's csv module for the rows and header of CSV text; the contract's three
 layouts of the same table must measure alike.
@@ -10,7 +11,8 @@ import csv
 import io
 
 import pytest
-from service.api.intake import MAX_NAME_CHARS, check_table, table_shape
+from service.api.intake import MAX_NAME_CHARS, table_shape
+from service.api.options import check_table
 from service.api.pointers import pointer_of
 from service.core.errors import InputError
 

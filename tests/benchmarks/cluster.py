@@ -44,8 +44,8 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 from _common import machine, pin_blas
 from groups import zones
+from service.api.options import search_options
 from service.api.schemas import SelectionRequest
-from service.api.selection import selection_options
 from service.batch import DaskSession, Job, run_dask, run_inline, run_job, run_pool
 from service.batch_parquet import SharedParquet, segment_bytes
 from service.core.data import prepare
@@ -125,7 +125,7 @@ def main() -> int:
     }
     req = SelectionRequest.model_validate({**body, "data": {"columns": table}})
     prep = prepare({"columns": table}, "repair_cost", body["predictors"], ["soil"], None, "zone")
-    opts = selection_options(req)
+    opts = search_options(req)
     tmp = Path(tempfile.mkdtemp(prefix="bestscale-bench-"))
     print(
         f"segments x rows        : {args.segments} x {args.rows}, {args.search} search, "

@@ -80,11 +80,13 @@ def per_fold_loop(self, S, XS, dyn, r, zs, per_fold, t, names, B, designs, power
 
 
 def demo_selection():
+    from service.api.options import selection_job, service
     from service.api.schemas import SelectionRequest
-    from service.api.selection import run_selection_request
     from service.demo import demo_request
+    from service.selection.request import run_selection
 
-    return run_selection_request(SelectionRequest.model_validate(demo_request()))
+    job = selection_job(SelectionRequest.model_validate(demo_request()))
+    return run_selection(job, service())
 
 
 def record_problems():
