@@ -14,7 +14,7 @@ from ..core.folds import make_plan
 from ..core.spec import Specification, build_design, resolve_predictor_transforms
 from .candidates import check_explicit
 from .entries import entry_for
-from .plots import fit_plots
+from .plots import PLOT_MAX_POINTS, fit_plots
 from .search_setup import SearchOptions, check_rows
 
 
@@ -23,7 +23,7 @@ def diagnose_specification(
     spec_dict: dict[str, Any],
     opts: SearchOptions,
     service_version: str,
-    max_points: int = 2000,
+    max_points: int = PLOT_MAX_POINTS,
 ) -> tuple[dict[str, Any], dict[str, Any]]:
     """One specification exactly as given: (ranking entry without rank, plot data).
 
