@@ -249,3 +249,72 @@ def test_the_mapping_of_modules_to_test_modules():
     assert (
         _test_module_for(root / "api" / "routes" / "x.py") == tests / "api" / "routes" / "test_x.py"
     )
+
+
+#: the settings that limit what a request may ask; only service/api/options.py reads them
+LIMIT_SETTINGS = frozenset(
+    {
+        "max_rows",
+        "max_columns",
+        "max_table_columns",
+        "max_uncompressed_bytes",
+        "max_candidates",
+        "default_max_candidates",
+        "max_time_limit_s",
+        "default_time_limit_s",
+        "max_groups",
+    }
+)
+LIMITS_READ_IN = ("service/settings.py", "service/api/options.py")
+
+
+def _settings_limits_read(path: Path) -> list[str]:
+    """Lines of ``path`` that read a limit setting: ``<...>settings()<...>.max_rows`` or an
+    attribute of a name bound from ``get_settings()`` (``s = get_settings(); s.max_rows``)."""
+    tree = ast.parse(path.read_text())
+    bound = {
+        t.id
+        for node in ast.walk(tree)
+        if isinstance(node, ast.Assign)
+        and isinstance(node.value, ast.Call)
+        and isinstance(node.value.func, ast.Name)
+        and node.value.func.id == "get_settings"
+        for t in node.targets
+        if isinstance(t, ast.Name)
+    }
+    found = []
+    for node in ast.walk(tree):
+        if not (isinstance(node, ast.Attribute) and node.attr in LIMIT_SETTINGS):
+            continue
+        base = node.value
+        via_call = (
+            isinstance(base, ast.Call)
+            and isinstance(base.func, ast.Name)
+            and base.func.id == "get_settings"
+        )
+        if via_call or (isinstance(base, ast.Name) and base.id in bound):
+            found.append(f"line {node.lineno}: .{node.attr}")
+    return found
+
+
+def test_request_limits_are_read_and_checked_in_one_module():
+    """Every service limit on a request is checked by one helper in api/options.py (which
+    hands the group limit to selection/request.py as a number); no other module reads the
+    limit settings, so no second copy of a check can drift from the first."""
+    root = CORE.parent
+    wrong = {
+        p.relative_to(root.parent).as_posix(): lines
+        for p in sorted(root.rglob("*.py"))
+        if p.relative_to(root.parent).as_posix() not in LIMITS_READ_IN
+        and (lines := _settings_limits_read(p))
+    }
+    assert not wrong, wrong
+
+
+def test_the_limit_check_sees_what_it_forbids(tmp_path):
+    bad = tmp_path / "bad.py"
+    bad.write_text(
+        "def f(rows):\n    s = get_settings()\n    if rows > s.max_rows:\n        raise X\n"
+        "    return get_settings().max_groups, opts.max_candidates\n"
+    )
+    assert _settings_limits_read(bad) == ["line 3: .max_rows", "line 5: .max_groups"]

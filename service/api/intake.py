@@ -15,7 +15,6 @@ from typing import Any
 
 from ..core.data import MAX_LEVEL_CHARS
 from ..core.errors import InputError, Table
-from ..settings import get_settings
 
 MAX_NAME_CHARS = MAX_LEVEL_CHARS  # a column name, like a level
 
@@ -28,9 +27,9 @@ def _csv_header(text: str) -> list[str]:
         raise InputError.at(Table("csv"), f"data.csv cannot be read as CSV: {exc}") from None
 
 
-def table_shape(data: Mapping[str, Any]) -> tuple[int, list[str]]:
-    """(rows, column names) of the contract's Data object; records stop early past the cap."""
-    cap = get_settings().max_table_columns
+def table_shape(data: Mapping[str, Any], cap: int | None = None) -> tuple[int, list[str]]:
+    """(rows, column names) of the contract's Data object; records stop reading names once
+    there are more than ``cap`` (the table-column limit; None: read them all)."""
     if data.get("columns") is not None:
         cols = data["columns"]
         return max((len(v) for v in cols.values()), default=0), list(cols)
@@ -40,7 +39,7 @@ def table_shape(data: Mapping[str, Any]) -> tuple[int, list[str]]:
         for r in recs:
             if isinstance(r, dict):
                 names.update(dict.fromkeys(r))
-                if len(names) > cap:
+                if cap is not None and len(names) > cap:
                     break
         return len(recs), list(names)
     text = data.get("csv") or ""

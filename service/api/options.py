@@ -190,7 +190,7 @@ def check_time_limit(asked: float | None) -> float:
 def check_table(data: Mapping[str, Any]) -> int:
     """The row, total-column and name-length limits of the contract's Data object, read
     from its shape before any cell is parsed; returns the row count."""
-    rows, names = table_shape(data)
+    rows, names = table_shape(data, service_limits().table_columns)
     layout = (
         "columns"
         if data.get("columns") is not None
