@@ -1,23 +1,21 @@
 """A validated request turned into typed, frozen options, and every service limit checked.
 
 Pydantic (``schemas.py``) has checked what a request may say on its own (types, bounds,
-unknown fields).  Here the service's limits, which its settings set, are applied -- each kind
-by one helper, whatever the endpoint or the way the table came (JSON, an uploaded CSV or
-Parquet file):
+unknown fields).  Here the service's limits, which its settings set (:class:`Limits`), are
+applied -- each kind by one helper, whatever the endpoint or the way the table came (JSON,
+an uploaded CSV or Parquet file):
 
-=====================  ==========================  ======================================
-limit                  helper                      setting
-=====================  ==========================  ======================================
-rows of a table        :func:`check_rows`          BESTSCALE_MAX_ROWS
-columns of a table     :func:`check_table_columns` BESTSCALE_MAX_TABLE_COLUMNS
-column-name length     :func:`check_column_names`  (``intake.MAX_NAME_CHARS``)
-decoded Parquet size   :func:`check_uncompressed`  BESTSCALE_MAX_UNCOMPRESSED_BYTES
-columns a request uses :func:`check_columns`       BESTSCALE_MAX_COLUMNS
-candidates             :func:`check_candidates`    BESTSCALE_MAX_CANDIDATES
-time limit             :func:`check_time_limit`    BESTSCALE_MAX_TIME_LIMIT_S
-group values           ``selection.request.check_groups`` (needs the rows; the limit from
-                       :func:`service_limits`)    BESTSCALE_MAX_GROUPS
-=====================  ==========================  ======================================
+- rows of a table: :func:`check_rows` (BESTSCALE_MAX_ROWS)
+- columns a table holds, used or not: :func:`check_table_columns`
+  (BESTSCALE_MAX_TABLE_COLUMNS)
+- length of a column name: :func:`check_column_names` (``intake.MAX_NAME_CHARS``)
+- bytes an uploaded Parquet file decodes to: :func:`check_uncompressed`
+  (BESTSCALE_MAX_UNCOMPRESSED_BYTES)
+- columns a request uses: :func:`check_columns` (BESTSCALE_MAX_COLUMNS)
+- candidates: :func:`check_candidates` (BESTSCALE_MAX_CANDIDATES)
+- time limit: :func:`check_time_limit` (BESTSCALE_MAX_TIME_LIMIT_S)
+- group values: ``selection.request.check_groups`` (it needs the prepared rows; the number
+  comes from here, BESTSCALE_MAX_GROUPS)
 
 and the request becomes the frozen options the floors below take:
 :func:`selection_job` (``selection.request.SelectionJob``, holding the
@@ -65,6 +63,8 @@ class Limits:
 
 
 def service_limits() -> Limits:
+    """The limits from the service settings (the one place outside settings.py that reads
+    them; tests/test_architecture.py checks it)."""
     s = get_settings()
     return Limits(
         rows=s.max_rows,
