@@ -172,7 +172,7 @@ def _profile(family: str, y: np.ndarray, proj: _Projector) -> Callable[[float], 
 
         def llf(lam: float) -> float:
             with np.errstate(over="ignore", invalid="ignore"):
-                z = tr._yeo_johnson(y, lam)
+                z = tr.yeo_johnson_map(y, lam)
             if not np.all(np.isfinite(z)):
                 return -math.inf
             rss = proj.rss(z)

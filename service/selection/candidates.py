@@ -88,23 +88,17 @@ def check_explicit(
     """
     if t.name == "power" and t.exponent is None:
         return
-    bad = np.flatnonzero(tr.outside_domain(t, x, strict_log=not _asks_auto_shift(item)))
+    as_sent = not _asks_auto_shift(item)
+    bad = np.flatnonzero(~t.domain_mask(x, as_sent=as_sent))
     if bad.size == 0:
         return
     i = int(bad[0])
     lab = t.label(column)
-    need = (
-        "values > 0"
-        if t.name in ("log", "reciprocal", "box_cox")
-        or (t.name == "power" and (t.exponent or 0) < 0)
-        else "values >= 0"
-    )
-    if t.name == "log" and t.shift is not None:
-        need = f"values above {-t.shift:.6g}"
     detail = (
         f"{role} '{column}' is {float(x[i]):.6g} in {rows_named([int(prep.row_ids[i])])} of "
-        f"the data ({count_of(int(bad.size), 'row')} in all) and the requested {lab} needs {need}; a requested "
-        f"transform is used as sent, so {tr.domain_fixes(t)}"
+        f"the data ({count_of(int(bad.size), 'row')} in all) and the requested {lab} needs "
+        f"{t.domain_text(as_sent=as_sent)}; a requested transform is used as sent, so "
+        f"{t.domain_fixes()}"
     )
     raise InputError(
         detail,
