@@ -318,7 +318,7 @@ def fit_transform(
         if not need:
             return replace(t, shift=0.0)
         return replace(t, shift=tr.chosen_shift(y), estimated=True)
-    if t.name in ("box_cox", "yeo_johnson"):
+    if t.name in tr.LAMBDA_NAMES:
         est = estimate_lambda(t.name, y, X, with_interval=False, near=near, gram=gram)
         return replace(t, lam=est.lam, estimated=True)
     return t

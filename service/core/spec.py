@@ -70,9 +70,7 @@ class Specification:
         parameter estimated from the response.
         """
         ts = [self.response_transform] + [p.transform for p in self.predictors]
-        n_est = sum(
-            1 for t in ts if t.name in ("box_cox", "yeo_johnson") and (t.lam is None or t.estimated)
-        )
+        n_est = sum(1 for t in ts if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated))
         n_est += sum(1 for p in self.predictors if _estimated_power(p.transform))
         cost = sum(
             3 if _estimated_power(t) else t.simplicity for t in ts if t.name != "categorical"
