@@ -793,7 +793,7 @@ def new_design(
         )
 
     raw_numeric: dict[str, np.ndarray] = {}
-    levels_of: dict[str, np.ndarray] = {}
+    categorical_values: dict[str, np.ndarray] = {}
 
     def add(where: Location, detail: str) -> None:
         if len(problems) < MAX_PROBLEMS:
@@ -831,7 +831,7 @@ def new_design(
                         f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
                         "the model cannot predict for it",
                     )
-            levels_of[p.column] = typed.values
+            categorical_values[p.column] = typed.values
             continue
         try:
             typed = as_numeric(raw, "predictor")
@@ -872,7 +872,7 @@ def new_design(
         )
         raise InputError(detail, problems)
     # every cell is usable now: the one design builder, with the model's stored levels
-    rows = Columns(m, raw_numeric, levels_of)
+    rows = Columns(m, raw_numeric, categorical_values)
     return build_design(spec, rows, levels=model.levels).X, raw_numeric, m
 
 
