@@ -41,7 +41,7 @@ LAMBDA_NAMES: tuple[str, ...] = tuple(n for n, f in FAMILIES.items() if f.has_la
 CATALOGUE: list[dict[str, Any]] = [f.catalogue_entry() for f in _ALL]
 
 
-def family(name: str) -> Family:
+def family_of(name: str) -> Family:
     """The family called ``name``; an unknown name is a programming error."""
     try:
         return FAMILIES[name]

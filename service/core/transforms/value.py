@@ -11,7 +11,7 @@ import numpy as np
 from .._types import BoolArray, FloatArray
 from .bounds import LADDER_EPS
 from .family import Domain, Family, exponent_of, lam_of
-from .registry import family
+from .registry import family_of
 
 
 @dataclass(frozen=True)
@@ -26,12 +26,12 @@ class Transform:
     reference: str | None = None  # categorical only
 
     def __post_init__(self) -> None:
-        for field, value in family(self.name).normalise(self).items():
+        for field, value in family_of(self.name).normalise(self).items():
             object.__setattr__(self, field, value)
 
     @property
     def family(self) -> Family:
-        return family(self.name)
+        return family_of(self.name)
 
     def _lambda(self) -> float:
         """The Box-Cox / Yeo-Johnson ``lambda``; an unfitted transform has none to use."""
@@ -152,7 +152,7 @@ class Transform:
 def from_dict(d: dict[str, Any]) -> Transform:
     """Build from a contract Transform object (already type-checked by the caller)."""
     name = d["name"]
-    return Transform(name, **family(name).fields(d))
+    return Transform(name, **family_of(name).fields(d))
 
 
 def ladder_transform(power: float) -> Transform:

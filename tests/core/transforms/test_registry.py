@@ -18,7 +18,7 @@ from service.core.transforms import (
     Transform,
     from_dict,
 )
-from service.core.transforms.registry import family
+from service.core.transforms.registry import family_of
 
 EXAMPLES = Path(__file__).resolve().parents[3] / "openapi_examples"
 
@@ -57,4 +57,4 @@ def test_an_unknown_name_is_refused_where_the_value_is_built():
     with pytest.raises(ValueError, match="no transform family is called 'cube'"):
         Transform("cube")
     with pytest.raises(ValueError, match="no transform family is called 'cube'"):
-        family("cube")
+        family_of("cube")
