@@ -12,11 +12,10 @@ from ..core import retransform
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.condition_rules import conditions_for, failed
-from ..core.crossval import CVResult
 from ..core.cvplus import default_method, stored_block
+from ..core.cvresult import CVResult, OutOfFold
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure
-from ..core.fastcv import OutOfFold
 from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit

@@ -19,7 +19,8 @@ import numpy as np
 
 from ..core import transforms as tr
 from ..core.conditions import CONDITION_NAMES
-from ..core.crossval import CVResult, cross_validate
+from ..core.crossval import cross_validate
+from ..core.cvresult import CVResult
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, SpecField
 from ..core.folds import CVPlan

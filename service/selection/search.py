@@ -27,8 +27,8 @@ from ..core.bank import FoldIndex
 from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
-from ..core.crossval import from_score
 from ..core.cvplus import NOT_KEPT
+from ..core.cvresult import CVResult, Dynamic, OutOfFold
 from ..core.data import Prepared
 from ..core.errors import (
     BudgetError,
@@ -38,7 +38,7 @@ from ..core.errors import (
     Predictor,
     ResponseChoice,
 )
-from ..core.fastcv import Dynamic, OutOfFold, Score, Scorer
+from ..core.fastcv import Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
@@ -128,7 +128,7 @@ class _Evaluator:
                 continue
             designs[i] = (cols, names)
             groups.setdefault(t, []).append(i)
-        done: dict[int, Score | CandidateFailure] = {}
+        done: dict[int, CVResult | CandidateFailure] = {}
         for t, members in groups.items():
             got = score_many(
                 self.scorer, t, [designs[i][0] for i in members], [designs[i][1] for i in members]
@@ -144,7 +144,7 @@ class _Evaluator:
                 self._failed(spec, res)
                 out.append(None)
             else:
-                made = Scored(spec, from_score(res))
+                made = Scored(spec, res)
                 self.scored.append(made)
                 out.append(made)
         return out
@@ -198,7 +198,7 @@ class _Evaluator:
         t = spec.response_transform
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
         dynamic, fit = self._dynamic(spec, cols, dyn)
-        res = from_score(self.scorer.score(t, cols, names, dynamic))
+        res = self.scorer.score(t, cols, names, dynamic)
         if fit is None:
             return Scored(spec, res)
         a = iter(fit.powers)
