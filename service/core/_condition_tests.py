@@ -100,13 +100,12 @@ class LeastSquares:
     U: np.ndarray  # n x rank, orthonormal basis of the column space
     s: np.ndarray  # rank singular values
     Vt: np.ndarray  # rank x p
-    n_columns: int
 
     @classmethod
     def of(cls, X: np.ndarray) -> LeastSquares:
         U, s, Vt = np.linalg.svd(X, full_matrices=False)
         keep = s > (s[0] if s.size else 0.0) * max(X.shape) * np.finfo(float).eps
-        return cls(U[:, keep], s[keep], Vt[keep], int(X.shape[1]))
+        return cls(U[:, keep], s[keep], Vt[keep])
 
     @property
     def rank(self) -> int:

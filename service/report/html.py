@@ -22,6 +22,7 @@ import html
 import math
 import re
 
+from ..core.conditions import CONDITION_NAMES
 from ..core.numbers import count_of, failure_text, fmt, fmt_p
 from .figures import render_figure
 from .safetext import visible
@@ -31,14 +32,17 @@ MAX_DROPPED_LISTED = 20
 #: distinct failure reasons listed in the summary
 MAX_FAILURE_REASONS = 5
 
-CONDITIONS = (
-    ("linearity", "Linearity", "Linear"),
-    ("normality", "Normal residuals", "Normal"),
-    ("equal_variance", "Equal variance", "Eq. var."),
-    ("independence", "Independence", "Indep."),
-    ("multicollinearity", "Collinearity", "Collin."),
-    ("influence", "Influence", "Infl."),
-)
+#: how the report names each condition (heading, short column title)
+CONDITION_LABELS = {
+    "linearity": ("Linearity", "Linear"),
+    "normality": ("Normal residuals", "Normal"),
+    "equal_variance": ("Equal variance", "Eq. var."),
+    "independence": ("Independence", "Indep."),
+    "multicollinearity": ("Collinearity", "Collin."),
+    "influence": ("Influence", "Infl."),
+}
+#: (key, heading, short title) in the order every output lists the conditions
+CONDITIONS = tuple((key, *CONDITION_LABELS[key]) for key in CONDITION_NAMES)
 
 _MARKS = {
     True: ("pass", "\u2713", "holds"),

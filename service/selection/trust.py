@@ -552,7 +552,6 @@ def assess_trust(
     *,
     selection: Selection | None = None,
     outer_folds: int | None = None,
-    inner_folds: int = DEFAULT_INNER_FOLDS,
     time_limit_s: float | None = None,
     mapper: Mapper = map,
     chunks: int = 1,
@@ -562,7 +561,7 @@ def assess_trust(
     ``selection`` is what :func:`search.select` returned for ``prep`` and ``opts`` (its
     scored candidates are re-ranked; without it the search is run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
     resamples measure stability; ``outer_folds`` (default: the search's folds)
-    and ``inner_folds`` shape the nested cross-validation.  Every part ends by the
+    and ``DEFAULT_INNER_FOLDS`` shape the nested cross-validation.  Every part ends by the
     request's deadline (``opts.deadline``; else ``opts.time_limit_s`` from this call),
     or sooner with ``time_limit_s``; what the deadline cut short is stated (``complete``)
     and warned about.  ``mapper(fn, items)`` may spread the resamples (in ``chunks`` parts) and the outer folds over worker
@@ -630,7 +629,7 @@ def assess_trust(
                 "time limit; its interval is wider than asked for."
             )
     if optimism and not opts.stopped():
-        op = _optimism(prep, opts, winner, service_version, k_out, inner_folds, end, mapper)
+        op = _optimism(prep, opts, winner, service_version, k_out, DEFAULT_INNER_FOLDS, end, mapper)
         out["optimism"] = op
         if op.get("gap") is None:
             warnings.append(
