@@ -126,9 +126,10 @@ def summary_of(rmse: np.ndarray, mae: np.ndarray, mape: np.ndarray | None) -> di
 
 
 def std_error_of(fold_values: np.ndarray, folds: int) -> float:
-    """The standard deviation of the R x K fold errors divided by sqrt(K): repeats do not add
-    independent information (Bengio & Grandvalet 2004: no unbiased estimator exists; this
-    one is naive).  0 with a single fold error."""
+    """The standard deviation of the R x K fold errors (or of two candidates' paired fold
+    differences) divided by sqrt(K): repeats do not add independent information (Bengio &
+    Grandvalet 2004: no unbiased estimator exists; this one is naive).  0 with a single
+    fold value."""
     if fold_values.size <= 1:
         return 0.0
     return float(np.std(fold_values, ddof=1) / math.sqrt(folds))

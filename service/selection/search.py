@@ -28,7 +28,7 @@ from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.cvplus import NOT_KEPT
-from ..core.cvresult import CVResult, Dynamic, OutOfFold
+from ..core.cvresult import CVResult, Dynamic, OutOfFold, std_error_of
 from ..core.data import Prepared
 from ..core.errors import (
     BudgetError,
@@ -606,7 +606,7 @@ def rank(
         d = s.cv.fold_values - best.cv.fold_values
         if s is best or d.size < 2:
             return 0.0 if s is best else band.std_error
-        return float(np.std(d, ddof=1) / math.sqrt(k))
+        return std_error_of(d, k)
 
     cvs = [s.cv.value for s in scored]
     order = band_order(cvs, [s.spec.simplicity() for s in scored], band.threshold)

@@ -68,7 +68,7 @@ from ..core._types import Mapper
 from ..core.condition_rules import conditions_for, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import cross_validate
-from ..core.cvresult import pooled_folds
+from ..core.cvresult import pooled_folds, std_error_of
 from ..core.data import Prepared
 from ..core.errors import BestscaleError, CandidateFailure, InputError, Option
 from ..core.folds import CVPlan, make_plan
@@ -518,7 +518,7 @@ def _optimism(
     sel = pooled_folds(metric, win_folds[ok], sizes[ok])
     nest = pooled_folds(metric, nested[ok], sizes[ok])
     diff = nested[ok] - win_folds[ok]
-    gap_se = float(np.std(diff, ddof=1) / math.sqrt(diff.size)) if diff.size > 1 else None
+    gap_se = std_error_of(diff, diff.size) if diff.size > 1 else None
     return {
         **base,
         "selected_cv": sel,

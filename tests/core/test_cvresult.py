@@ -109,3 +109,24 @@ def test_the_contract_block_names_plan_and_back_transform():
         .to_dict(plan)["back_transform"]
         .startswith("smeared mean")
     )
+
+
+def test_engel_fold_errors_pool_to_the_published_pooled_rmse():
+    from service.core import transforms as tr
+    from service.core.crossval import cross_validate
+    from statsmodels.datasets import engel
+
+    d = engel.load_pandas().data
+    y = d["foodexp"].to_numpy(float)
+    X = np.column_stack([np.ones(y.size), np.log(d["income"].to_numpy(float))])
+    plan = make_plan(y.size, 5, 1, 0)
+    res = cross_validate(X, y, tr.Transform("log"), plan, False)
+    sizes = np.bincount(plan.assignments[0], minlength=5)
+    # source: CHECKS_PUBLIC engel `log(foodexp) on log(income)`: pooled
+    # smeared 5-fold CV RMSE 118.99743365830672 (KFold(5, shuffle=True, random_state=0))
+    assert res.value == pytest.approx(118.99743365830672, rel=1e-8)
+    assert pooled_folds("rmse", res.fold_values, sizes) == pytest.approx(
+        118.99743365830672, rel=1e-8
+    )
+    # source: the same table's definitions: the fold-mean RMSE is not the pooled one
+    assert float(np.mean(res.fold_values)) != pytest.approx(118.99743365830672, rel=1e-8)
