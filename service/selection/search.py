@@ -77,14 +77,6 @@ def failure_groups(reasons: dict[str, int]) -> list[dict[str, Any]]:
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
 
 
-def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
-    return cand.response_candidates(prep, opts.response_transforms)
-
-
-def predictor_candidates(prep: Prepared, opts: SearchOptions) -> list[list[tr.Transform]]:
-    return cand.predictor_candidates(prep, opts.predictor_transforms)
-
-
 def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
     return sorted(cands, key=lambda s: s.simplicity())
 
@@ -250,10 +242,10 @@ def select(
     """Search, score and rank (:class:`Selection`)."""
     t0 = time.perf_counter()
     deadline = opts.clock()
-    resp = response_candidates(prep, opts)
+    resp = cand.response_candidates(prep, opts.response_transforms)
     if not resp:
         raise InputError.at(ResponseChoice(), f"no response transform applies to '{prep.response}'")
-    preds = predictor_candidates(prep, opts)
+    preds = cand.predictor_candidates(prep, opts.predictor_transforms)
     n_params = 1 + sum(
         1 if p[0].name != "categorical" else len(set(prep.categorical[c].tolist())) - 1
         for p, c in zip(preds, prep.predictors, strict=True)
