@@ -25,7 +25,7 @@ import re
 from ..core.conditions import CONDITION_NAMES
 from ..core.numbers import count_of, failure_text, fmt, fmt_p
 from .figures import render_figure
-from .safetext import visible
+from .svg import esc
 
 #: dropped rows listed in the summary
 MAX_DROPPED_LISTED = 20
@@ -52,11 +52,6 @@ _MARKS = {
 
 
 # ------------------------------------------------------------------ formatting
-def esc(value) -> str:
-    """Text safe inside an element or a quoted attribute; bidi controls shown as U+XXXX."""
-    return html.escape(visible(str(value)), quote=True)
-
-
 def num(value, sig: int = 4) -> str:
     """``value`` by the shared number rule (``service.core.numbers.fmt``); ``None`` is a dash."""
     if value is None or not math.isfinite(float(value)):
