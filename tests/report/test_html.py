@@ -9,8 +9,10 @@ significant digits.
 from __future__ import annotations
 
 import io
+import json
 import re
 import xml.etree.ElementTree as ET
+from pathlib import Path
 
 import matplotlib
 
@@ -23,6 +25,7 @@ from service.core.conditions import CONDITION_NAMES
 from service.report.html import (
     CONDITION_LABELS,
     CONDITIONS,
+    _box_cox_cell,
     inline_svg,
     num,
     pval,
@@ -142,3 +145,36 @@ def test_the_page_names_the_conditions_an_entry_carries_in_their_order():
     page = render_report(body, None, {"response": "repair_cost"})
     for _, heading, short in CONDITIONS:
         assert esc(heading) in page and esc(short) in page
+
+
+def _summary_cell(page: str, label: str) -> str:
+    m = re.search(rf"<dt>{re.escape(label)}</dt><dd>(.*?)</dd>", page, re.S)
+    assert m, label
+    return m.group(1)
+
+
+def test_box_cox_cell_states_each_estimate_once():
+    # The shipped selection example (demo data, Box-Cox lambda also on rank 1's design) is the
+    # body: the cell quotes each design's estimate and interval once, never the first twice.
+    example = Path(__file__).resolve().parents[2] / "openapi_examples" / "selections.response.json"
+    body = json.loads(example.read_text())
+    bc = body["search"]["box_cox"]
+    assert bc.get("context")  # the example exercises the two-estimate case
+    cell = _summary_cell(
+        render_report(body, None, {"response": "repair_cost"}), "Box-Cox λ of the response"
+    )
+    assert cell.startswith(esc(bc["context"]))
+    assert cell.count("95% interval") == 2  # once per design
+
+
+def test_box_cox_cell_without_context_names_the_design_and_ladder():
+    bc = {
+        "lambda": 0.02,
+        "ci_low": -0.1,
+        "ci_high": 0.15,
+        "ladder": 0.0,
+        "design": "untransformed predictors",
+    }
+    assert _box_cox_cell(bc) == (
+        "0.02000 (95% interval -0.1000 to 0.1500; nearest ladder power 0; untransformed predictors)"
+    )
