@@ -48,10 +48,8 @@ def batchable(scorer: Scorer, t: tr.Transform) -> bool:
     """True when candidates on response scale ``t`` can be scored together: the scale is
     the same in every fold (nothing estimated per fold) and the bank keeps its per-fold
     cross-products."""
-    estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
     return (
-        not estimate_lam
-        and not scorer.per_fold_response(t)
+        not scorer.per_fold_response(t)
         and scorer.bank.G_total is not None
         and (scorer.plan.metric != "mape" or scorer.want_mape)
     )

@@ -71,6 +71,11 @@ def _exact_refit(
     return coef / m
 
 
+def estimates_lambda(t: tr.Transform) -> bool:
+    """A Box-Cox or Yeo-Johnson scale whose lambda is left open (estimated in every fold)."""
+    return t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+
+
 def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
     return CandidateFailure(
         f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or overflows for "
@@ -99,7 +104,9 @@ class Scorer:
         return self._resp[t]
 
     def per_fold_response(self, t: tr.Transform) -> bool:
-        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+        """True when the response scale differs per training fold: a lambda estimated in
+        every fold, or a log whose shift each fold chooses (the response has zeros)."""
+        if estimates_lambda(t):
             return True
         return t.name == "log" and t.shift is None and self.shift_needed
 
@@ -155,7 +162,7 @@ class Scorer:
         S = np.asarray(cols, dtype=int)
         n = y.size
         p = S.size + (len(dynamic.positions) if dynamic is not None else 0)
-        estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+        estimate_lam = estimates_lambda(t)
         per_fold = self.per_fold_response(t)
         XS = bank.columns(S)
         near = None
@@ -325,7 +332,7 @@ class Scorer:
                 )
         if fixed is not None:
             return [fixed[0]] * K, [fixed[1]] * K
-        estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+        estimate_lam = estimates_lambda(t)
         ts: list[tr.Transform] = []
         zs: list[np.ndarray] = []
         y = self.y
