@@ -41,10 +41,10 @@ MAX_LEVEL_CHARS = 256  # a categorical level or group value, like a column name
 SHOWN_CHARS = 60  # a caller's value quoted in a message is cut to this many characters
 
 
-def shown(v: object, limit: int = SHOWN_CHARS) -> str:
+def shown(v: object) -> str:
     """``repr`` of a caller's value for a message, cut so an error never echoes megabytes."""
-    if isinstance(v, str) and len(v) > limit:
-        return repr(v[:limit]) + f"... ({len(v)} characters)"
+    if isinstance(v, str) and len(v) > SHOWN_CHARS:
+        return repr(v[:SHOWN_CHARS]) + f"... ({len(v)} characters)"
     return repr(v)
 
 
