@@ -71,11 +71,6 @@ def _exact_refit(
     return coef / m
 
 
-def estimates_lambda(t: tr.Transform) -> bool:
-    """A Box-Cox or Yeo-Johnson scale whose lambda is left open (estimated in every fold)."""
-    return t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
-
-
 def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
     return CandidateFailure(
         f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or overflows for "
@@ -106,7 +101,7 @@ class Scorer:
     def per_fold_response(self, t: tr.Transform) -> bool:
         """True when the response scale differs per training fold: a lambda estimated in
         every fold, or a log whose shift each fold chooses (the response has zeros)."""
-        if estimates_lambda(t):
+        if t.needs_lambda:
             return True
         return t.name == "log" and t.shift is None and self.shift_needed
 
@@ -162,7 +157,7 @@ class Scorer:
         S = np.asarray(cols, dtype=int)
         n = y.size
         p = S.size + (len(dynamic.positions) if dynamic is not None else 0)
-        estimate_lam = estimates_lambda(t)
+        estimate_lam = t.needs_lambda
         per_fold = self.per_fold_response(t)
         XS = bank.columns(S)
         near = None
@@ -332,7 +327,7 @@ class Scorer:
                 )
         if fixed is not None:
             return [fixed[0]] * K, [fixed[1]] * K
-        estimate_lam = estimates_lambda(t)
+        estimate_lam = t.needs_lambda
         ts: list[tr.Transform] = []
         zs: list[np.ndarray] = []
         y = self.y
