@@ -243,9 +243,47 @@ def _is_router(path: Path) -> bool:
     return "APIRouter(" in path.read_text()
 
 
+def _siblings_imported(module: Path) -> set[str]:
+    """Stems of the modules of its own package that ``module`` imports (``__init__`` for
+    the package itself)."""
+    out: set[str] = set()
+    for node in ast.walk(ast.parse(module.read_text())):
+        if isinstance(node, ast.ImportFrom) and node.level == 1:
+            if node.module:
+                out.add(node.module.split(".")[0])
+            else:
+                out |= {a.name for a in node.names}
+    return out
+
+
+def _reached_in_package(imported: set[str], path: Path) -> bool:
+    """True when ``path`` sits in a package below a floor (not in a floor itself) and a
+    module of that package the test imports (or the package itself) imports ``path``,
+    directly or through other modules of that package: a family module reached through its
+    package's registry, a module whose names the package re-exports."""
+    if path.parent.parent in (CORE.parent, CORE.parent.parent):
+        return False  # a floor's modules are each tested on their own
+    package = _module_name(path.parent / "__init__.py")
+    stems = {f.stem for f in path.parent.glob("*.py")}
+    todo = [
+        "__init__" if name == package else name.rsplit(".", 1)[1]
+        for name in imported
+        if name == package or name.rsplit(".", 1)[0] == package
+    ]
+    seen: set[str] = set()
+    while todo:
+        stem = todo.pop()
+        if stem in seen or stem not in stems:
+            continue
+        seen.add(stem)
+        todo.extend(_siblings_imported(path.parent / f"{stem}.py"))
+    return path.stem in seen
+
+
 def _exercises(test_path: Path, path: Path) -> bool:
-    """True when ``test_path`` imports the module at ``path`` (or, for a module of routes,
-    the app that serves them)."""
+    """True when ``test_path`` imports the module at ``path``, or a module of its package
+    that uses it (:func:`_reached_in_package`), or, for a module of routes, the app that
+    serves them."""
     wanted = {_module_name(path)} | ({"service.app"} if _is_router(path) else set())
     seen: set[str] = set()
     for node in ast.walk(ast.parse(test_path.read_text())):
@@ -253,7 +291,9 @@ def _exercises(test_path: Path, path: Path) -> bool:
             seen |= {node.module} | {f"{node.module}.{a.name}" for a in node.names}
         elif isinstance(node, ast.Import):
             seen |= {a.name for a in node.names}
-    return bool(seen & wanted)
+    if seen & wanted:
+        return True
+    return path.name != "__init__.py" and _reached_in_package(seen, path)
 
 
 def test_every_test_module_imports_the_module_it_is_named_after():
@@ -282,6 +322,12 @@ def test_the_import_check_sees_a_test_module_that_ignores_its_module(tmp_path):
     fake.write_text("def test_x():\n    from service.app import app\n")
     assert _exercises(fake, CORE.parent / "api" / "routes.py")
     assert not _exercises(fake, CORE.parent / "api" / "errors.py")
+    # a package below a floor: its modules may be reached through the package's own imports
+    fake.write_text("from service.core.transforms import Transform\n")
+    assert _exercises(fake, CORE / "transforms" / "categorical.py")
+    # ... but a floor's modules are not reached through one another
+    fake.write_text("from service.core.crossval import cross_validate\n")
+    assert not _exercises(fake, CORE / "fastcv.py")
 
 
 def test_the_exception_lists_name_real_modules_that_need_them():
