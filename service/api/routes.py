@@ -10,6 +10,7 @@ from ..selection.request import run_selection
 from ..version import __version__
 from .encode import JSONBody
 from .errors import with_group_problems
+from .metrics import exposition
 from .middleware import note_result
 from .options import selection_job, service
 from .pool import compute_slot
@@ -57,6 +58,5 @@ async def healthz():
     response_class=PlainTextResponse,
 )
 def metrics():
-    from prometheus_client import CONTENT_TYPE_LATEST, generate_latest
-
-    return PlainTextResponse(generate_latest(), media_type=CONTENT_TYPE_LATEST)
+    text, media_type = exposition()
+    return PlainTextResponse(text, media_type=media_type)
