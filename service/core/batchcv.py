@@ -13,9 +13,8 @@ number of columns and a response scale fixed across folds:
 - every row's held-out prediction and every row's residual under every fold's solution
   come from a few einsum products over the (n, C, p) stacked designs;
 - the smeared mean (Duan 1983) uses the same closed forms as :mod:`retransform` for the
-  identity, the log and the square root (one or two means per candidate and fold; for the
-  square root, rows with terms cut off at zero use sorted residuals and suffix sums as
-  retransform does, sorted for all candidates at once); other inverses call
+  identity, the log and the square root (one or two means per candidate and fold; the
+  square root by :func:`retransform.smear_sqrt` for all candidates at once); other inverses call
   :func:`retransform.smeared_mean` per candidate and fold;
 - fold errors and pooled errors are reduced in numpy.
 
@@ -150,16 +149,8 @@ def _batch_unguarded(
             elif kind == "log":
                 m = retransform.log_smear_factor(e)
                 mean[te] = np.exp(eta[te]) * m - retransform.log_shift(t0)
-            elif kind == "sqrt":
-                # mean_i max(eta + e_i, 0)^2: where every term is positive the square
-                # expands (retransform's suffix sums with nothing cut off); elsewhere as one
-                m1, m2 = e.mean(axis=0), (e * e).mean(axis=0)
-                ev = eta[te]
-                part = ev * ev + 2.0 * ev * m1 + m2
-                cut = ~(ev + e.min(axis=0) > 0)  # rows with a term cut off at zero
-                if np.any(cut):
-                    part[cut] = _sqrt_cut(ev, e, cut)
-                mean[te] = part
+            elif kind == "sqrt":  # mean_i max(eta + e_i, 0)^2, all candidates at once
+                mean[te] = retransform.smear_sqrt(eta[te], e)
             else:
                 for j in range(C):
                     if not alone[j]:
@@ -201,24 +192,4 @@ def _batch_unguarded(
         # the standard error as Scorer.score states it (Bengio & Grandvalet 2004)
         se = float(np.std(fv, ddof=1) / math.sqrt(K)) if fv.size > 1 else 0.0
         out.append(Score(plan.metric, value, se, fv, summary, None, None, 0, None))
-    return out
-
-
-def _sqrt_cut(eta: np.ndarray, e: np.ndarray, cut: np.ndarray) -> np.ndarray:
-    """mean_i max(eta + e_i, 0)^2 at the ``cut`` entries of ``eta`` (n_te, C), residuals
-    ``e`` (n_tr, C): retransform's sorted residuals and suffix sums, sorted for all
-    candidates at once."""
-    es = np.sort(e, axis=0)
-    m = es.shape[0]
-    zero = np.zeros((1, es.shape[1]))
-    s1 = np.concatenate([np.cumsum(es[::-1], axis=0)[::-1], zero])
-    s2 = np.concatenate([np.cumsum((es * es)[::-1], axis=0)[::-1], zero])
-    rows, cols = np.nonzero(cut)
-    x = eta[rows, cols]
-    k = np.empty(rows.size, dtype=np.intp)
-    for j in np.unique(cols).tolist():  # terms with e_i > -eta contribute
-        at = cols == j
-        k[at] = np.searchsorted(es[:, j], -x[at], side="right")
-    cnt = m - k
-    out: np.ndarray = (cnt * x * x + 2.0 * x * s1[k, cols] + s2[k, cols]) / m
     return out

@@ -88,7 +88,7 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
             out = np.exp(eta) * float(log_smear_factor(e)) - log_shift(t)
         return np.where(np.isfinite(out), out, np.nan)
     if kind == "sqrt":
-        return _smear_sqrt(eta, e)
+        return smear_sqrt(eta, e)
     form = _tree.power_form(t)
     if form is not None:
         return _smear_power(eta, e, form)
@@ -102,21 +102,24 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
     return _smear_interpolated(t, eta, e)
 
 
-TREE_MIN_WORK = 4_000_000  # below this m * n the exact double sum is cheaper than the tree
+BINNED_MIN_ETAS = 16  # below this many etas the exact sum costs less than building the bins
 
 
 def _smear_power(
     eta: np.ndarray, e: np.ndarray, form: tuple[float, float, float, float, bool]
 ) -> np.ndarray:
-    """Power-form inverses (square, reciprocal, power, Box-Cox): the root series where every
-    term is defined and far enough from the singular point, the tree code (or, for small
-    problems, the exact sum) elsewhere; relative error <= _tree.TREE_RTOL (plus rounding)."""
+    """Power-form inverses (square, reciprocal, power, Box-Cox): the one-block series of all
+    residuals where every term is defined and far enough from the singular point
+    (``_tree.smear_power_root``), the binned series with exact sums next to the singular
+    point elsewhere (``_tree.smear_power_binned``), the exact sum for a handful of etas.
+    Relative error at most ``_tree.TREE_RTOL`` / ``_tree.BIN_RTOL`` (both 1e-12) plus
+    rounding; see those functions for the bounds."""
     beta, gamma, delta, p, zero = form
     out, done = _tree.smear_power_root(eta, e, beta, gamma, delta, p)
     rest = ~done
     if np.any(rest):
-        if int(rest.sum()) * e.size > TREE_MIN_WORK:
-            out[rest] = _tree.smear_power(eta[rest], e, beta, gamma, delta, p, zero)
+        if int(rest.sum()) >= BINNED_MIN_ETAS:
+            out[rest] = _tree.smear_power_binned(eta[rest], e, beta, gamma, delta, p, zero)
         else:
             out[rest] = _tree.exact_power(eta[rest], e, beta, gamma, delta, p, zero)
     return np.where(np.isfinite(out), out, np.nan)
@@ -216,15 +219,33 @@ def _smear_gauss(t: Transform, eta: np.ndarray, e: np.ndarray) -> np.ndarray | N
     return None
 
 
-def _smear_sqrt(eta: FloatArray, e: FloatArray) -> FloatArray:
-    """mean_i max(eta + e_i, 0)^2 exactly, by sorted residuals and suffix sums."""
-    es = np.sort(e)
-    n = es.size
-    s1: FloatArray = np.concatenate([np.cumsum(es[::-1])[::-1], [0.0]])
-    s2: FloatArray = np.concatenate([np.cumsum((es * es)[::-1])[::-1], [0.0]])
-    k = np.searchsorted(es, -eta, side="right")  # terms with e_i > -eta contribute
-    cnt = n - k
-    return (cnt * eta * eta + 2.0 * eta * s1[k] + s2[k]) / n
+def smear_sqrt(eta: FloatArray, e: FloatArray) -> FloatArray:
+    """mean_i max(eta + e_i, 0)^2 exactly, for one candidate or many at once: ``eta`` (m,)
+    with residuals ``e`` (n,), or ``eta`` (m, C) with ``e`` (n, C), column j of ``eta`` smeared
+    over column j of ``e``.
+
+    Where no term is cut off at zero (eta + min e > 0) the square expands:
+    eta^2 + 2 eta mean(e) + mean(e^2).  Elsewhere the terms with e_i > -eta are summed from
+    sorted residuals and suffix sums (sorted once for all columns that need it).
+    """
+    one = e.ndim == 1
+    E = e[:, None] if one else e
+    H = eta[:, None] if one else eta
+    n = E.shape[0]
+    out: FloatArray = H * H + 2.0 * H * E.mean(axis=0) + (E * E).mean(axis=0)
+    cut = ~(H + E.min(axis=0) > 0)  # entries with a term cut off at zero
+    cols = np.flatnonzero(cut.any(axis=0))
+    if cols.size:
+        es = np.sort(E[:, cols], axis=0)
+        zero = np.zeros((1, cols.size))
+        s1 = np.concatenate([np.cumsum(es[::-1], axis=0)[::-1], zero])
+        s2 = np.concatenate([np.cumsum((es * es)[::-1], axis=0)[::-1], zero])
+        for i, j in enumerate(cols.tolist()):
+            rows = np.flatnonzero(cut[:, j])
+            x = H[rows, j]
+            k = np.searchsorted(es[:, i], -x, side="right")  # terms with e_i > -eta count
+            out[rows, j] = ((n - k) * x * x + 2.0 * x * s1[k, i] + s2[k, i]) / n
+    return out[:, 0] if one else out
 
 
 def _exact_pair(t: Transform, eta: np.ndarray, e: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

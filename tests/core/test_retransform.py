@@ -216,3 +216,19 @@ def test_closed_form_smearing_equals_exact_sum(t):
     e -= e.mean()
     eta = rng.uniform(-1.0, 3.0, 1500)
     _assert_fast_equals_exact(t, eta, e)
+
+
+def test_square_root_smearing_column_by_column_equals_one_candidate_at_a_time():
+    rng = np.random.default_rng(9)
+    n, m, C = 240, 70, 6
+    e = rng.normal(0, 0.5, (n, C)) * rng.uniform(0.2, 2.0, C)
+    e -= e.mean(axis=0)
+    eta = rng.uniform(-1.0, 2.0, (m, C))  # some terms cut off at zero, some columns not at all
+    eta[:, 0] += 10.0
+    got = retransform.smear_sqrt(eta, e)
+    for j in range(C):
+        one = retransform.smear_sqrt(eta[:, j], e[:, j])
+        np.testing.assert_allclose(got[:, j], one, rtol=1e-12)
+        # source: Duan (1983) double sum with g^-1(z) = max(z, 0)^2, written out
+        want = np.mean(np.maximum(eta[:, j, None] + e[None, :, j], 0.0) ** 2, axis=1)
+        np.testing.assert_allclose(got[:, j], want, rtol=1e-10)
