@@ -3,12 +3,15 @@
 Duan (1983) "Smearing estimate: a nonparametric retransformation method",
 JASA 78:605-610: E[y | x0] ~ (1/n) sum_i g^-1(x0'b + e_i) over the fitted
 residuals.  Closed forms are used where they exist (identity, log, square
-root); for the other families the smeared mean S(eta) is a smooth function of
-eta: it is computed exactly (with its slope) at adaptively chosen nodes
-across the requested etas and interpolated by piecewise-cubic Hermite
-polynomials, each interval checked at its midpoint against the exact value
-(relative error <= SMEAR_RTOL) before it is used; what cannot be resolved is
-computed exactly.
+root).  Power-form inverses (square, reciprocal, power, Box-Cox) are summed by
+binomial series over nested bins of the sorted residuals with a stated bound
+(relative error <= 1e-12 plus rounding; :mod:`._smear_tree`).  For Yeo-Johnson
+the smeared mean S(eta) is a smooth function of eta between singular points: a
+Gauss rule of the residual distribution checked against the exact mean, or S
+computed exactly (with its slope) at adaptively chosen nodes across the
+requested etas and interpolated by piecewise-cubic Hermite polynomials, each
+interval checked at its midpoint against the exact value (relative error <=
+SMEAR_RTOL) before it is used; what cannot be resolved is computed exactly.
 """
 
 from __future__ import annotations
