@@ -18,11 +18,15 @@ number of columns and a response scale fixed across folds:
   :func:`retransform.smeared_mean` per candidate and fold;
 - fold errors and pooled errors are reduced in numpy.
 
-Whatever the batch cannot settle exactly as the one-candidate path would (an
-ill-conditioned fold that needs the exact QR refit, any non-finite value, an undefined
-back-transform, a fold too small for its coefficients, an undefined MAPE) is handed to
-:meth:`Scorer.score` for that candidate alone, so results and failure reasons are the
-one-candidate path's.  Tests compare the two to 1e-10 relative.
+A back-transform that is undefined or overflows on held-out rows is a cheap check: the
+batch goes through the folds in the one-candidate path's order (per repeat the median
+check, then the mean, fold by fold) and fails the candidate with the same reason text
+(:func:`fastcv._undefined`: the first such fold and its number of rows).  Whatever else
+the batch cannot settle exactly as the one-candidate path would (an ill-conditioned fold
+that needs the exact QR refit, any other non-finite value, a fold too small for its
+coefficients, an undefined MAPE) is handed to :meth:`Scorer.score` for that candidate
+alone, so results and failure reasons are the one-candidate path's.  Tests compare the
+two to 1e-10 relative and the failure reasons as text.
 """
 
 from __future__ import annotations
@@ -35,7 +39,7 @@ import numpy as np
 from . import retransform
 from . import transforms as tr
 from .errors import CandidateFailure
-from .fastcv import Score, Scorer
+from .fastcv import Score, Scorer, _undefined
 from .fitting import solve_batch
 
 #: at most this many floats in one (n, C, p) stack of designs (about 64 MB)
@@ -93,16 +97,16 @@ def _alone(
 
 def _batch(
     scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
-) -> list[Score | None]:
-    """Scores of candidates with the same number of columns; None where the candidate must
-    be scored alone."""
+) -> list[Score | CandidateFailure | None]:
+    """Scores (or failures with their reason) of candidates with the same number of
+    columns; None where the candidate must be scored alone."""
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         return _batch_unguarded(scorer, t, col_sets)
 
 
 def _batch_unguarded(
     scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
-) -> list[Score | None]:
+) -> list[Score | CandidateFailure | None]:
     bank, y, plan = scorer.bank, scorer.y, scorer.plan
     assert bank.G_fold is not None and bank.G_total is not None  # checked by batchable()
     index = bank.index
@@ -116,6 +120,8 @@ def _batch_unguarded(
     if not finite or any(rows.size <= p for tr_r in index.train for rows in tr_r):
         return [None] * C  # the one-candidate path raises the right reason
     alone = np.zeros(C, dtype=bool)
+    failed: list[CandidateFailure | None] = [None] * C  # undefined back-transform, as alone
+    gone = np.zeros(C, dtype=bool)  # failed: nothing after that fold counts
     XS = X[:, S]  # (n, C, p)
     cf, ctot = bank.cross(t, z)
     fold_vals = np.empty((C, R * K))
@@ -131,17 +137,17 @@ def _batch_unguarded(
             np.swapaxes(G, 0, 1).reshape(C * K, p, p), np.swapaxes(c, 0, 1).reshape(C * K, p)
         )
         B = B.reshape(C, K, p)
-        alone |= ~ok.reshape(C, K).all(axis=1)
+        alone |= ~ok.reshape(C, K).all(axis=1) & ~gone  # the exact QR refit: alone
         B = np.where(np.isfinite(B), B, 0.0)
         # fitted value of every row under every fold's solution, (K, n, C)
         fitted = np.einsum("ncp,ckp->knc", XS, B)
         eta = fitted[a, np.arange(n), :]  # (n, C): each row under its own fold's solution
         med = t0.inverse(eta)
-        # an undefined median ends the candidate before its smearing (as one at a time)
-        alone |= ~np.all(np.isfinite(med), axis=0)
         mean = np.empty((n, C))
         for k in range(K):
             te = test[k]
+            # an undefined median ends the candidate before its smearing (as one at a time)
+            _fail_undefined(t0, k, med[te], alone | gone, gone, failed)
             train_rows = a != k
             e = z[train_rows, None] - fitted[k][train_rows]  # training residuals (n_tr, C)
             if kind == "identity":
@@ -153,9 +159,9 @@ def _batch_unguarded(
                 mean[te] = retransform.smear_sqrt(eta[te], e)
             else:
                 for j in range(C):
-                    if not alone[j]:
+                    if not (alone[j] or gone[j]):
                         mean[te, j] = retransform.smeared_mean(t0, eta[te, j], e[:, j])
-        alone |= ~np.all(np.isfinite(mean), axis=0)
+            _fail_undefined(t0, k, mean[te], alone | gone, gone, failed)
         d = y[:, None] - mean
         sq = d * d
         ab = np.abs(y[:, None] - med)
@@ -173,9 +179,13 @@ def _batch_unguarded(
         pooled["mae"][:, r] = ab.mean(axis=0)
         if pc is not None:
             pooled["mape"][:, r] = 100.0 * pc.mean(axis=0)
-    alone |= ~np.all(np.isfinite(fold_vals), axis=1)
-    out: list[Score | None] = []
+    alone |= ~np.all(np.isfinite(fold_vals), axis=1) & ~gone
+    out: list[Score | CandidateFailure | None] = []
     for j in range(C):
+        reason = failed[j]
+        if reason is not None:
+            out.append(reason)
+            continue
         if alone[j]:
             out.append(None)
             continue
@@ -193,3 +203,19 @@ def _batch_unguarded(
         se = float(np.std(fv, ddof=1) / math.sqrt(K)) if fv.size > 1 else 0.0
         out.append(Score(plan.metric, value, se, fv, summary, None, None, 0, None))
     return out
+
+
+def _fail_undefined(
+    t0: tr.Transform,
+    k: int,
+    values: np.ndarray,
+    settled: np.ndarray,
+    gone: np.ndarray,
+    failed: list[CandidateFailure | None],
+) -> None:
+    """Fail every candidate not yet settled with a non-finite back-transform among fold
+    k's held-out ``values`` (rows, C), with the one-candidate path's reason."""
+    bad = (~np.isfinite(values)).sum(axis=0)
+    for j in np.flatnonzero((bad > 0) & ~settled).tolist():
+        failed[j] = _undefined(t0, k, int(bad[j]))
+        gone[j] = True
