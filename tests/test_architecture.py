@@ -14,12 +14,16 @@ PLOTTING = {"matplotlib"}
 #: packages a floor must not import
 FORBIDDEN = {"core": WEB | PLOTTING, "selection": WEB | PLOTTING, "report": WEB}
 FLOOR_FILES = [
-    (floor, p) for floor in FORBIDDEN for p in sorted((CORE.parent / floor).glob("*.py"))
+    (floor, p) for floor in FORBIDDEN for p in sorted((CORE.parent / floor).rglob("*.py"))
 ]
 
 
+def _file_id(floor: str, p: Path) -> str:
+    return f"{floor}/{p.relative_to(CORE.parent / floor).as_posix()}"
+
+
 @pytest.mark.parametrize(
-    ("floor", "path"), FLOOR_FILES, ids=[f"{f}/{p.name}" for f, p in FLOOR_FILES]
+    ("floor", "path"), FLOOR_FILES, ids=[_file_id(f, p) for f, p in FLOOR_FILES]
 )
 def test_lower_floors_import_no_web_or_plotting_package(floor, path):
     tree = ast.parse(path.read_text())
@@ -135,12 +139,12 @@ _PROBLEM_TEXT = ("urn:bestscale:problem", "problem+json")
 DOMAIN_FILES = [
     (floor, p)
     for floor in ("core", "selection")
-    for p in sorted((CORE.parent / floor).glob("*.py"))
+    for p in sorted((CORE.parent / floor).rglob("*.py"))
 ]
 
 
 @pytest.mark.parametrize(
-    ("floor", "path"), DOMAIN_FILES, ids=[f"{f}/{p.name}" for f, p in DOMAIN_FILES]
+    ("floor", "path"), DOMAIN_FILES, ids=[_file_id(f, p) for f, p in DOMAIN_FILES]
 )
 def test_core_and_selection_name_places_without_json_pointers_or_problem_bodies(floor, path):
     """Errors below the web layer name domain locations (service/core/errors.py); only

@@ -172,7 +172,7 @@ def _profile(family: str, y: np.ndarray, proj: _Projector) -> Callable[[float], 
 
         def llf(lam: float) -> float:
             with np.errstate(over="ignore", invalid="ignore"):
-                z = tr._yeo_johnson(y, lam)
+                z = tr.yeo_johnson_map(y, lam)
             if not np.all(np.isfinite(z)):
                 return -math.inf
             rss = proj.rss(z)
@@ -318,7 +318,7 @@ def fit_transform(
         if not need:
             return replace(t, shift=0.0)
         return replace(t, shift=tr.chosen_shift(y), estimated=True)
-    if t.name in ("box_cox", "yeo_johnson"):
+    if t.name in tr.LAMBDA_NAMES:
         est = estimate_lambda(t.name, y, X, with_interval=False, near=near, gram=gram)
         return replace(t, lam=est.lam, estimated=True)
     return t

@@ -69,7 +69,7 @@ def fitted_model(
     design = build_design(spec, prep)
     t = spec.response_transform
     lam_est = None
-    if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+    if t.needs_lambda:
         lam_est = estimate_lambda(t.name, prep.y, design.X)
         t = tr.Transform(t.name, lam=lam_est.lam, estimated=True)
     else:

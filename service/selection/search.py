@@ -776,7 +776,7 @@ def _response_lambdas(
     )
     info: dict[str, Any] | None = None
     lams: dict[tr.Transform, float] = {}
-    families = [t for t in resp if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted]
+    families = [t for t in resp if t.needs_lambda]
     if not families:
         return None, lams
     try:
@@ -811,7 +811,7 @@ def _screen_scales(
     """The fixed model scale each response transform is screened on."""
     out: dict[tr.Transform, tr.Transform] = {}
     for t in resp:
-        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+        if t.needs_lambda:
             if t in lams:
                 out[t] = tr.Transform(t.name, lam=lams[t])
             continue
@@ -928,7 +928,7 @@ def _ladder_reading(
     spec = e.spec
     t = spec.response_transform
     notes: list[dict[str, Any]] = []
-    if t.name in ("box_cox", "yeo_johnson") and (t.lam is None or t.estimated):
+    if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated):
         try:
             est = estimate_lambda(t.name, prep.y, build_design(spec, prep).X)
         except (CandidateFailure, ValueError):
@@ -1043,14 +1043,14 @@ def distinct_scales(
     if positive:  # Box-Cox or Yeo-Johnson with the same predictors, not both
         best_of: dict[tuple[tr.Transform, ...], Scored] = {}
         for e in kept:
-            if e.spec.response_transform.name in ("box_cox", "yeo_johnson"):
+            if e.spec.response_transform.name in tr.LAMBDA_NAMES:
                 k = tuple(p.transform for p in e.spec.predictors)
                 if k not in best_of or e.cv.value < best_of[k].cv.value:
                     best_of[k] = e
         kept = [
             e
             for e in kept
-            if e.spec.response_transform.name not in ("box_cox", "yeo_johnson")
+            if e.spec.response_transform.name not in tr.LAMBDA_NAMES
             or best_of[tuple(p.transform for p in e.spec.predictors)] is e
         ]
     listable = list(fixed.values()) + kept
