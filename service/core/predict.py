@@ -35,7 +35,7 @@ from . import cvplus, retransform
 from . import sources as src
 from . import transforms as tr
 from .conditions import CONDITION_NAMES
-from .data import RawColumn, as_categorical, as_numeric, read_table, shown
+from .data import MAX_LEVEL_CHARS, RawColumn, as_categorical, as_numeric, read_table, shown
 from .errors import (
     Cell,
     DataColumn,
@@ -63,14 +63,12 @@ MODEL = ModelField()  # the artifact itself: errors name its fields with MODEL.a
 ROWS_LISTED = 5
 LEVERAGE_RTOL = 1e-9  # a training row recomputed may exceed the stored maximum by rounding
 # bounds an issued artifact always satisfies; the same as a request's where one exists
-MAX_NAME_CHARS = 256  # column names and level strings
+MAX_NAME_CHARS = MAX_LEVEL_CHARS  # column names and level strings, as a request's
 MAX_LEVELS = 10_000  # levels of one categorical predictor
 MAX_PREDICTORS = 1000
 MAX_TRAINING_ROWS = 2**40
 MAX_ABS = 1e300  # coefficients, variances, ranges: finite with room for arithmetic
-SHIFT_BOUND = 1e15
-EXPONENT_BOUND = 10.0
-LAMBDA_BOUND = 5.0
+SHIFT_BOUND, EXPONENT_BOUND, LAMBDA_BOUND = tr.SHIFT_BOUND, tr.EXPONENT_BOUND, tr.LAMBDA_BOUND
 VARIANCE_RTOL = 1e-6  # stored residual variance vs the stored residuals ('all')
 MAX_FOLDS = 50  # validation.folds allows at most this many
 MAX_REASON_CHARS = 1000
@@ -138,9 +136,14 @@ def _first_non_finite(d: object) -> ModelField | None:
     return None
 
 
-def _cut(v: object, limit: int = 2000) -> str:
+QUOTED_CHARS = 2000  # a damaged field quoted in a message is cut after this many characters
+
+
+def _cut(v: object) -> str:
     text = repr(v)
-    return text if len(text) <= limit else text[:limit] + f"... ({len(text)} characters)"
+    if len(text) <= QUOTED_CHARS:
+        return text
+    return text[:QUOTED_CHARS] + f"... ({len(text)} characters)"
 
 
 def _is_name(v: object) -> bool:

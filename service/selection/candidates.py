@@ -234,8 +234,6 @@ class Space:
     index: dict[tuple[Any, ...], tuple[int, ...]] = field(default_factory=dict)
     # (column, transform) -> reason it cannot be used
     bad: dict[tuple[str, tr.Transform], str] = field(default_factory=dict)
-    # (response key, column) -> power
-    screen_powers: dict[tuple[tr.Transform, str], float] = field(default_factory=dict)
 
     def design_of(self, spec: Specification) -> tuple[list[int], list[str], list[int]]:
         """(bank columns, names, positions of estimated powers) for ``spec``."""

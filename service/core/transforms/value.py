@@ -10,7 +10,7 @@ import numpy as np
 
 from .._types import BoolArray, FloatArray
 from .bounds import LADDER_EPS
-from .family import Domain, Family, exponent_of, lam_of
+from .family import Domain, Family
 from .registry import family_of
 
 
@@ -32,14 +32,6 @@ class Transform:
     @property
     def family(self) -> Family:
         return family_of(self.name)
-
-    def _lambda(self) -> float:
-        """The Box-Cox / Yeo-Johnson ``lambda``; an unfitted transform has none to use."""
-        return lam_of(self)
-
-    def _exponent(self) -> float:
-        """The exponent of a ``power`` transform; one without it cannot be applied."""
-        return exponent_of(self)
 
     # ------------------------------------------------------------------ facts
     @property
