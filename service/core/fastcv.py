@@ -33,7 +33,13 @@ import numpy as np
 from . import retransform
 from . import transforms as tr
 from .bank import ColumnBank
-from .boxtidwell import PowerFit, estimate_fold_powers, estimate_powers, power_columns
+from .boxtidwell import (
+    PowerFit,
+    estimate_fold_powers,
+    estimate_fold_powers_by_series,
+    estimate_powers,
+    power_columns,
+)
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
 from .likelihood import fit_transform, fold_lambdas
@@ -516,16 +522,22 @@ class Scorer:
         fits: list[PowerFit] | None = None,
     ) -> int:
         """Every training fold's powers at once (``boxtidwell.estimate_fold_powers``, from the
-        bank's downdated Gram matrices of the fixed columns; fold by fold on a large table,
-        see POWER_BATCH_CELLS), then every fold's solution in one stacked solve with the
+        bank's downdated Gram matrices of the fixed columns; on a large table, see
+        POWER_BATCH_CELLS, ``estimate_fold_powers_by_series``, or fold by fold when the
+        response differs between folds), then every fold's solution in one stacked solve with the
         exact refit fallback."""
         bank = self.bank
         train = bank.index.train[r]
         K = len(train)
         p = B.shape[1]
         fixed_pos = [i for i in range(p) if i not in dyn.positions]
+        if fits is None and XS.shape[0] * K > POWER_BATCH_CELLS and not per_fold:
+            # a large table: every fold's steps from series cross-products summed once
+            fits = estimate_fold_powers_by_series(
+                zs[0], XS, dyn.x, train, dyn.start, boxcox_form=dyn.boxcox_form
+            )
         if fits is None and XS.shape[0] * K > POWER_BATCH_CELLS:
-            fits = []  # a large table: fold by fold, each fold's cross-products from its rows
+            fits = []  # a large table with a response per fold: fold by fold
             for k in range(K):
                 rows = train[k]
                 try:
