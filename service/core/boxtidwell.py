@@ -614,7 +614,7 @@ _Trial = Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray, np.nda
 
 def _damped_steps(
     trial: _Trial,
-    full: Callable[[int, np.ndarray], np.ndarray | None],
+    full: Callable[[int, np.ndarray], np.ndarray] | None,
     F: int,
     pf: int,
     k: int,
@@ -624,30 +624,24 @@ def _damped_steps(
     (powers (F, k), rss (F,), converged, iterations, left).
 
     ``trial(idx, A)`` evaluates folds ``idx`` at powers ``A``; ``full(f, a)`` gives fold f's
-    coefficients of [X_f, W, D] where ``trial`` flagged it (``qr``), or None when the
-    caller leaves that fold to another path (it is then ``left``, neither converged nor
-    stepped further)."""
+    coefficients of [X_f, W, D] where ``trial`` flagged it (``qr``).  Without ``full`` a
+    flagged fold leaves at once: it is ``left`` (neither converged nor stepped further),
+    for the caller to settle by another path."""
     a = np.tile(np.clip(np.asarray(start, float), *POWER_BOUNDS), (F, 1))
     rss, coef, g, qr = trial(np.arange(F), a)
     converged = np.zeros(F, dtype=bool)
-    left = np.zeros(F, dtype=bool)
+    left = qr.copy() if full is None else np.zeros(F, dtype=bool)
     its = np.zeros(F, dtype=int)
     flat = np.zeros(F, dtype=int)  # consecutive steps that lowered the RSS by <= FTOL
-    active = np.isfinite(rss)
+    active = np.isfinite(rss) & ~left
     for it in range(1, MAX_ITER + 1):
         idx = np.flatnonzero(active)
         if idx.size == 0:
             break
         its[idx] = it
-        for f in idx[qr[idx]]:
-            gf = full(int(f), a[f])
-            if gf is None:
-                left[f], active[f] = True, False
-                g[f] = np.nan
-            else:
-                g[f] = gf
-            qr[f] = False
-        idx = idx[~left[idx]]
+        if full is not None:
+            for f in idx[qr[idx]]:
+                g[f], qr[f] = full(int(f), a[f]), False
         b = coef[idx, pf:]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             step = g[idx, pf + k :] / b
@@ -669,6 +663,13 @@ def _damped_steps(
                 break
             a_new = np.clip(a[srch] + st, *POWER_BOUNDS)
             rss_new, coef_new, g_new, qr_new = trial(srch, a_new)
+            if full is None and np.any(qr_new):  # these folds leave at once
+                left[srch[qr_new]] = True
+                active[srch[qr_new]] = False
+                keep = ~qr_new
+                srch, st, a_new = srch[keep], st[keep], a_new[keep]
+                rss_new, coef_new, g_new = rss_new[keep], coef_new[keep], g_new[keep]
+                qr_new = qr_new[keep]
             acc = rss_new <= rss[srch] * (1.0 + 1e-12)
             if np.any(acc):
                 i = srch[acc]
@@ -784,6 +785,14 @@ class _Series:
     w(a) = L int_0^1 exp(a L t) dt, or of exp(d L) in x^a, is at most (rt)^(M+1)/(M+1)!
     e^(rt) of the term kept, and the column at c is within e^r of the one at a);
     :func:`series_order` puts it below 2^-53, the rounding of the columns themselves.
+
+    The columns are those of x / s, s = exp(mid-range of log x_j), when that leaves the
+    problem unchanged: (x/s)^a = s^-a x^a spans the same columns beside X_f, and with Q =
+    x^a log x the pair [x^a, Q] becomes s^-a [x^a, Q - log(s) x^a], so the RSS at every a
+    and the Gauss-Newton step gamma / b of the plain form are the same; the Box-Cox form
+    spans the same columns as the plain one when X_f holds a constant column, and its step
+    is the plain one (w = (P - 1)/a, dw/da = Q/a - w/a give gamma = a gamma_Q and
+    b = a b_P).  Without a constant column the Box-Cox form keeps log x itself.
 
     The response enters centred on the all-rows fit at the start, zt = z - X_f beta0 -
     W(a0) b0 (W(a0) from the same series), so the fit of z on [X_f, W(a)] is
@@ -919,7 +928,11 @@ def estimate_fold_powers_by_series(
     left = np.ones(F, dtype=bool)
     fits: list[PowerFit | None] = [None] * F
     if np.all(held.sum(axis=0) <= 1) and np.all(np.isfinite(z)):
-        grouped = _Held(held, z, Xf, logx)
+        # log x about its mid-range: x scaled by a constant leaves the RSS and the steps
+        # unchanged (see _Series), and it shortens the series
+        constant = np.any((np.ptp(Xf, axis=0) == 0) & (Xf[0] != 0)) if n else False
+        mid = (logx.min(axis=0) + logx.max(axis=0)) / 2 if constant or not boxcox_form else 0.0
+        grouped = _Held(held, z, Xf, logx - mid)
         first = _first_steps(grouped, start, boxcox_form)
         if first is not None:
             beta, rho = first
@@ -927,10 +940,10 @@ def estimate_fold_powers_by_series(
                 rho = np.broadcast_to(np.asarray(radius, float), (k,))
             ser = _Series(grouped, start, beta, boxcox_form, rho)
             if ser.ok:
-                a, rss, conv, its, _ = _damped_steps(ser.trial, _leave, F, pf, k, start)
-                for f in np.flatnonzero(conv):
-                    fits[f] = PowerFit(
-                        a[f].copy(), None, True, int(its[f]), "box_tidwell", float(rss[f])
+                a, rss, conv, its, _ = _damped_steps(ser.trial, None, F, pf, k, start)
+                for i in np.flatnonzero(conv):
+                    fits[i] = PowerFit(
+                        a[i].copy(), None, True, int(its[i]), "box_tidwell", float(rss[i])
                     )
                 left = ~conv
     out: list[PowerFit] = []
@@ -947,11 +960,6 @@ def estimate_fold_powers_by_series(
         assert fit is not None
         out.append(fit)
     return out
-
-
-def _leave(f: int, a: np.ndarray) -> None:
-    """A fold whose step needs QR leaves the series path."""
-    return None
 
 
 def _first_steps(rows: _Held, start: np.ndarray, bc: bool) -> tuple[np.ndarray, np.ndarray] | None:
