@@ -745,29 +745,31 @@ class _Held:
     from them: all rows' sums minus each fold's held-out sums (O(n q^2) per call, whatever
     the number of folds)."""
 
-    def __init__(self, held: np.ndarray, z: np.ndarray, Xf: np.ndarray, logx: np.ndarray):
-        F, n = held.shape
-        lab = np.full(n, F)
-        for f in range(F):
-            lab[held[f]] = f
-        perm = np.argsort(lab, kind="stable")
-        self.bounds = np.concatenate([[0], np.cumsum(np.bincount(lab, minlength=F + 1))])
+    def __init__(self, held: list[np.ndarray], z: np.ndarray, Xf: np.ndarray, logx: np.ndarray):
+        n, F = z.size, len(held)
+        rest = np.ones(n, dtype=bool)
+        for rows in held:
+            rest[rows] = False
+        groups = [*held, np.flatnonzero(rest)]
+        perm = np.concatenate(groups)
+        self.bounds = np.concatenate([[0], np.cumsum([g.size for g in groups])])
         self.z, self.Xf, self.logx = z[perm], Xf[perm], logx[perm]
         self.F = F
 
     def grams(
-        self, columns: Callable[[slice], np.ndarray | None], q: int
+        self, columns: Callable[[slice], np.ndarray], q: int
     ) -> tuple[np.ndarray, np.ndarray] | None:
         """(all rows (q, q), training rows of every fold (F, q, q)) of ``columns(rows)``
-        ((q, b), one row per column), or None when a block is not finite."""
+        ((q, b), one row per column), or None when a value is not finite (its square on the
+        diagonal is then not finite either)."""
         held = np.zeros((self.F + 1, q, q))
         for f in range(self.F + 1):
             for s in range(int(self.bounds[f]), int(self.bounds[f + 1]), CHUNK_ROWS):
                 T = columns(slice(s, min(s + CHUNK_ROWS, int(self.bounds[f + 1]))))
-                if T is None or not np.all(np.isfinite(T)):
-                    return None
                 held[f] += T @ T.T
         total = held.sum(axis=0)
+        if not np.all(np.isfinite(np.diagonal(held, axis1=1, axis2=2))):
+            return None
         return total, total[None] - held[: self.F]
 
 
@@ -918,16 +920,19 @@ def estimate_fold_powers_by_series(
     n, k = logx.shape
     pf = Xf.shape[1]
     start = np.clip(np.asarray(start, float), *POWER_BOUNDS)
-    held = np.ones((F, n), dtype=bool)
+    held: list[np.ndarray] = []
     for f, rows in enumerate(train):
         if rows.size <= pf + 2 * k + 1:
             raise CandidateFailure(
                 f"fold {names[f]}: {rows.size} rows are too few to estimate {k} predictor power(s)"
             )
-        held[f, rows] = False
+        out_f = np.ones(n, dtype=bool)
+        out_f[rows] = False
+        held.append(np.flatnonzero(out_f))
     left = np.ones(F, dtype=bool)
     fits: list[PowerFit | None] = [None] * F
-    if np.all(held.sum(axis=0) <= 1) and np.all(np.isfinite(z)):
+    times_held = np.bincount(np.concatenate(held), minlength=n) if F else np.zeros(n)
+    if z.ndim == 1 and np.all(times_held <= 1) and np.all(np.isfinite(z)):
         # log x about its mid-range: x scaled by a constant leaves the RSS and the steps
         # unchanged (see _Series), and it shortens the series
         constant = np.any((np.ptp(Xf, axis=0) == 0) & (Xf[0] != 0)) if n else False
@@ -974,7 +979,9 @@ def _first_steps(rows: _Held, start: np.ndarray, bc: bool) -> tuple[np.ndarray, 
 
     def columns(sl: slice) -> np.ndarray:
         W, D = power_columns(rows.logx[sl], start, bc)
-        return np.vstack([rows.Xf[sl].T, W.T, D.T, rows.z[sl][None]])
+        T = np.empty((p + 1, W.shape[0]))
+        T[:pf], T[pf : pf + k], T[pf + k : p], T[p] = rows.Xf[sl].T, W.T, D.T, rows.z[sl]
+        return T
 
     with np.errstate(over="ignore", invalid="ignore"):
         sums = rows.grams(columns, p + 1)

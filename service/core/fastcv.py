@@ -52,7 +52,9 @@ if TYPE_CHECKING:  # pragma: no cover
 # batched paths save Python-level calls and spend arithmetic on held-out rows (masked), so
 # they win on small tables and lose on large ones; crossovers measured with
 # tests/benchmarks/fold_powers.py --rows N (one thread, 10 folds): powers ~5,000 rows,
-# lambdas ~3,000 rows.  Above these the folds are taken one by one.
+# lambdas ~3,000 rows.  Above these the folds are taken one by one (powers: every fold's
+# steps from series cross-products, boxtidwell.estimate_fold_powers_by_series, when the
+# response is the same in every fold).
 POWER_BATCH_CELLS = 50_000
 LAMBDA_BATCH_CELLS = 25_000
 

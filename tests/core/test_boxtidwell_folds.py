@@ -178,9 +178,7 @@ def test_series_columns_equal_the_closed_form_inside_the_radius(a0, bc):
     rng = np.random.default_rng(5)
     L = np.log(rng.uniform(0.05, 30.0, 4000))[:, None]
     rho = 0.05
-    rows = bt._Held(
-        np.zeros((1, L.shape[0]), dtype=bool), np.zeros(L.shape[0]), np.ones((L.shape[0], 1)), L
-    )
+    rows = bt._Held([], np.zeros(L.shape[0]), np.ones((L.shape[0], 1)), L)
     ser = bt._Series(rows, np.array([a0]), np.zeros(2), bc, np.array([rho]))
     assert ser.ok
     B = bt._series_basis(L, ser.c, ser.h, ser.origin, ser.m1, bc)
