@@ -754,6 +754,7 @@ class _Held:
         perm = np.concatenate(groups)
         self.bounds = np.concatenate([[0], np.cumsum([g.size for g in groups])])
         self.z, self.Xf, self.logx = z[perm], Xf[perm], logx[perm]
+        self.XfT = np.ascontiguousarray(self.Xf.T)  # (p_f, n): blocks of columns copied whole
         self.F = F
 
     def grams(
@@ -844,11 +845,16 @@ class _Series:
         rows, pf, k, m1 = self.rows, self.pf, self.k, self.m1
         L = rows.logx[sl]
         T = np.empty((self.q, L.shape[0]))
-        T[:pf] = rows.Xf[sl].T
+        T[:pf] = rows.XfT[:, sl]
         B = _series_basis(L, self.c, self.h, self.origin, m1, self.bc)
         T[pf + 1 :] = B
-        W0 = np.einsum("jmb,jm->bj", B.reshape(k, m1, -1), self.w0)
-        T[pf] = rows.z[sl] - rows.Xf[sl] @ self.beta[:pf] - W0 @ self.beta[pf:]
+        if self.origin.any():
+            W0 = np.zeros(L.shape[0])
+            for j in range(k):
+                W0 += self.beta[pf + j] * (self.w0[j] @ B[j * m1 : (j + 1) * m1])
+        else:  # about the start: W(a0) = B_0
+            W0 = self.beta[pf:] @ B[::m1]
+        T[pf] = rows.z[sl] - self.beta[:pf] @ T[:pf] - W0
         return T
 
     def trial(
