@@ -30,6 +30,13 @@ more fail cleanly); ``method`` says which path was used.  A search given a
 estimate) looks within ``start +- LOCAL_HALF_WIDTH`` only (design choice: the
 training rows are most of the rows, so their optimum is near the all-rows one,
 and a whole-range grid on every fold would cost ten times as much).
+
+Every training fold of a large table (``estimate_fold_powers_by_series``): the same
+steps and stopping rules, but each trial is assembled from cross-products summed once
+over the rows (Taylor series of the power columns about the start, within a radius set
+by the folds' first steps and the all-rows standard error; the response centred on the
+all-rows fit so the RSS keeps its digits; see :class:`_Series`).  A fold whose trial
+leaves the radius, needs QR or does not converge is estimated by the exact path.
 """
 
 from __future__ import annotations
@@ -901,7 +908,7 @@ def estimate_fold_powers_by_series(
 ) -> list[PowerFit]:
     """:func:`estimate_fold_powers` for folds whose held-out rows do not overlap (one
     repeat's folds) and one response ``z`` (n,), with steps whose cost does not grow with
-    the rows (:class:`_Series`).
+    the rows (:class:`_Series`); a response per fold (F, n) takes the exact path.
 
     Every fold takes the same damped Gauss-Newton steps, with the same stopping rules, as
     :func:`estimate_powers` started at ``start``; a fold that leaves the series path (a
@@ -962,9 +969,10 @@ def estimate_fold_powers_by_series(
         fit = fits[f]
         if left[f]:
             rows = train[f]
+            zf = z[rows] if z.ndim == 1 else z[f, rows]
             try:
                 fit = estimate_powers(
-                    z[rows], Xf[rows], x[rows], start=start, boxcox_form=boxcox_form, with_se=False
+                    zf, Xf[rows], x[rows], start=start, boxcox_form=boxcox_form, with_se=False
                 )
             except CandidateFailure as exc:
                 raise CandidateFailure(f"fold {names[f]}: {exc.reason}") from None
