@@ -104,6 +104,26 @@ def transform_words(t: dict | None, column: str, reference: str | None = None) -
     return f"{esc(name)} of {c}"
 
 
+def _box_cox_cell(bc: dict) -> str:
+    """The job summary's Box-Cox cell: the estimate once, with the design it was found on.
+
+    When the search also estimated lambda on rank 1's predictors, ``context`` already states
+    both estimates and their intervals, so the cell is that sentence alone (plus the nearest
+    ladder power) instead of the first estimate followed by the same numbers again.
+    """
+    ladder = f"; nearest ladder power {num(bc['ladder'])}" if bc.get("ladder") is not None else ""
+    if bc.get("context"):
+        return esc(bc["context"]) + (
+            f" (On the untransformed design the nearest ladder power is {num(bc['ladder'])}.)"
+            if ladder
+            else ""
+        )
+    return (
+        f"{num(bc.get('lambda'))} (95% interval {num(bc.get('ci_low'))} to "
+        f"{num(bc.get('ci_high'))}{ladder}; {esc(bc.get('design', ''))})"
+    )
+
+
 def spec_words(spec: dict, levels: dict | None = None) -> str:
     """A specification in words (escaped HTML): response scale, then the predictors."""
     levels = levels or {}
@@ -312,20 +332,7 @@ def _summary(body: dict, context: dict) -> str:
         rows.append(("Search time", f"{num(search['elapsed_s'])} s"))
     bc = search.get("box_cox")
     if bc:
-        rows.append(
-            (
-                "Box-Cox \u03bb of the response",
-                f"{num(bc.get('lambda'))} (95% interval "
-                f"{num(bc.get('ci_low'))} to {num(bc.get('ci_high'))}"
-                + (
-                    f"; nearest ladder power {num(bc['ladder'])}"
-                    if bc.get("ladder") is not None
-                    else ""
-                )
-                + f"; {esc(bc.get('design', ''))})"
-                + (f" {esc(bc['context'])}" if bc.get("context") else ""),
-            )
-        )
+        rows.append(("Box-Cox \u03bb of the response", _box_cox_cell(bc)))
     band = search.get("band")
     if band:
         rows.append(

@@ -1,8 +1,9 @@
 """Load test, run by hand: ``python tests/benchmarks/load.py [--clients 8] [--seconds 20]``.
 
 Starts ``python -m service`` on 127.0.0.1 at a free port in a subprocess, runs N concurrent
-clients for a fixed time against it (a mix of selections on the shipped demo data, predictions
-and transform look-ups), probes ``/healthz`` every 50 ms meanwhile, then stops the server.
+clients for a fixed time against it (``--mix service``: selections on the shipped demo data,
+predictions and transform look-ups; ``--mix selections``: only default-search selections of
+2,000 invented rows x 1 predictor, the issue's throughput case), probes ``/healthz`` every 50 ms meanwhile, then stops the server.
 
 Prints throughput, latency percentiles per endpoint, counts by status (503 with Retry-After
 is the documented back-pressure, counted apart from errors), connection errors, and the
@@ -92,6 +93,23 @@ class Server:
         except subprocess.TimeoutExpired:
             self.proc.kill()
             self.proc.wait(10)
+
+
+def selection_only_mix(rows: int) -> list[tuple[str, str, bytes | None]]:
+    """Default-search selections on ``rows`` invented rows x 1 predictor (nothing else)."""
+    sys.path.insert(0, str(ROOT))
+    from tests.benchmarks._common import water_mains
+
+    bodies = []
+    for seed in range(4):  # four tables, so no cache could serve a repeat
+        cols = water_mains(rows, 1, seed=seed)
+        req = {
+            "data": {"columns": {k: v.tolist() for k, v in cols.items()}},
+            "response": "repair_cost",
+            "predictors": ["x0"],
+        }
+        bodies.append(("POST", "/v1/selections", json.dumps(req).encode()))
+    return bodies
 
 
 def request_mix() -> list[tuple[str, str, bytes | None]]:
@@ -189,6 +207,8 @@ def main() -> int:
     ap.add_argument("--seconds", type=float, default=20)
     ap.add_argument("--workers", type=int, default=1)
     ap.add_argument("--pool-size", type=int, default=2)
+    ap.add_argument("--mix", choices=("service", "selections"), default="service")
+    ap.add_argument("--rows", type=int, default=2000, help="rows per selection (--mix selections)")
     args = ap.parse_args()
     clients = max(1, min(args.clients, MAX_CLIENTS))
     seconds = max(1.0, min(args.seconds, MAX_SECONDS))
@@ -199,7 +219,7 @@ def main() -> int:
         port = server.port
         idle: list[float] = []
         probe_health(port, time.monotonic() + 3, idle)  # baseline: the idle server
-        mix = request_mix()
+        mix = request_mix() if args.mix == "service" else selection_only_mix(args.rows)
         tally = Tally()
         health: list[float] = []
         stop = time.monotonic() + seconds

@@ -9,8 +9,10 @@ significant digits.
 from __future__ import annotations
 
 import io
+import json
 import re
 import xml.etree.ElementTree as ET
+from pathlib import Path
 
 import matplotlib
 
@@ -20,6 +22,7 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 from service.report.html import (
+    _box_cox_cell,
     esc,
     inline_svg,
     num,
@@ -135,3 +138,36 @@ def test_a_whole_page_from_a_selection_body_is_well_formed():
     assert num(first["cv"]["value"]) in text  # the page shows the response's numbers
     for caution in body["cautions"]:
         assert esc(caution) in page
+
+
+def _summary_cell(page: str, label: str) -> str:
+    m = re.search(rf"<dt>{re.escape(label)}</dt><dd>(.*?)</dd>", page, re.S)
+    assert m, label
+    return m.group(1)
+
+
+def test_box_cox_cell_states_each_estimate_once():
+    # The shipped selection example (demo data, Box-Cox lambda also on rank 1's design) is the
+    # body: the cell quotes each design's estimate and interval once, never the first twice.
+    example = Path(__file__).resolve().parents[2] / "openapi_examples" / "selections.response.json"
+    body = json.loads(example.read_text())
+    bc = body["search"]["box_cox"]
+    assert bc.get("context")  # the example exercises the two-estimate case
+    cell = _summary_cell(
+        render_report(body, None, {"response": "repair_cost"}), "Box-Cox λ of the response"
+    )
+    assert cell.startswith(esc(bc["context"]))
+    assert cell.count("95% interval") == 2  # once per design
+
+
+def test_box_cox_cell_without_context_names_the_design_and_ladder():
+    bc = {
+        "lambda": 0.02,
+        "ci_low": -0.1,
+        "ci_high": 0.15,
+        "ladder": 0.0,
+        "design": "untransformed predictors",
+    }
+    assert _box_cox_cell(bc) == (
+        "0.02000 (95% interval -0.1000 to 0.1500; nearest ladder power 0; untransformed predictors)"
+    )
