@@ -238,3 +238,31 @@ def test_scoring_a_large_table_gives_the_fold_by_fold_numbers(monkeypatch):
     np.testing.assert_allclose(fast.fold_powers, slow.fold_powers, rtol=0, atol=1e-6)
     np.testing.assert_allclose(fast.fold_values, slow.fold_values, rtol=1e-9)
     assert fast.value == pytest.approx(slow.value, rel=1e-9)
+
+
+def test_random_problems_give_the_exact_paths_powers():
+    """20 random problems: sizes, fold counts, forms, 1-3 powers, predictor ranges from
+    1e-3 to 1e5, noise from 1e-3 to 1 of the signal, starts on or near the estimate."""
+    real = bt.estimate_powers
+    for trial in range(20):
+        rng = np.random.default_rng(1000 + trial)
+        n = int(rng.integers(2000, 5000))
+        k = int(rng.integers(1, 4))
+        bc = bool(rng.integers(0, 2))
+        lo = 10 ** rng.uniform(-3, 2)
+        x = rng.uniform(lo, lo * 10 ** rng.uniform(0.3, 3), (n, k))
+        w = rng.normal(size=n) * 10 ** rng.uniform(-3, 3)
+        a_true = rng.uniform(-2, 2, k)
+        cols = [x[:, j] ** a_true[j] for j in range(k)]
+        z = sum(c / np.std(c) for c in cols) + 0.3 * w / np.std(w)
+        z = z + rng.normal(0, 10 ** rng.uniform(-3, 0), n) + 5.0 * bc
+        Xf = np.column_stack([np.ones(n), w]) if bc else w[:, None]
+        plan = make_plan(n, int(rng.integers(3, 11)), 1, trial)
+        train = [np.flatnonzero(plan.assignments[0] != f) for f in range(plan.folds)]
+        a0 = real(z, Xf, x, start=a_true, boxcox_form=bc).powers
+        start = a0 + rng.normal(0, 0.02, k) * rng.integers(0, 2)
+        exact = _exact(z, Xf, x, train, start, bc)
+        fast = bt.estimate_fold_powers_by_series(z, Xf, x, train, start, boxcox_form=bc)
+        for e, f in zip(exact, fast, strict=True):
+            # source: the exact path on each fold's rows, abs TOL = 1e-6
+            np.testing.assert_allclose(f.powers, e.powers, rtol=0, atol=1e-6, err_msg=str(trial))
