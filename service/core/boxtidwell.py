@@ -701,6 +701,8 @@ RADIUS_SE = 3.0  # ... plus this many all-rows standard errors of the power
 def series_order(r: float) -> int | None:
     """The smallest M with r^(M+1) / (M+1)! * e^(2r) <= SERIES_TOL, or None above
     ``SERIES_MAX_ORDER``: the truncation bound of :class:`_Series` at reach r = |a - c| max|log x|."""
+    if not r < 10.0:  # far beyond the longest series (also NaN): refused, no overflow
+        return None
     term = r * math.exp(2.0 * r)  # r^(M+1)/(M+1)! e^(2r) at M = 0
     for m in range(SERIES_MAX_ORDER + 1):
         if term <= SERIES_TOL:

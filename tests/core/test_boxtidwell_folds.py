@@ -167,8 +167,21 @@ def test_series_order_is_the_shortest_within_the_bound(r):
     assert m == 0 or bound(m - 1) > 2.0**-53
 
 
-def test_a_reach_beyond_the_longest_series_is_refused():
-    assert bt.series_order(5.0) is None
+@pytest.mark.parametrize("r", [5.0, 1e6, math.inf, math.nan])
+def test_a_reach_beyond_the_longest_series_is_refused(r):
+    assert bt.series_order(r) is None
+
+
+def test_a_huge_radius_sends_every_fold_to_the_exact_path(monkeypatch):
+    z, Xf, x = _problem("random", 1, True)
+    train = _folds(z.size)
+    start = bt.estimate_powers(z, Xf, x).powers
+    exact = _exact(z, Xf, x, train, start, True)
+    calls = _count_exact(monkeypatch)
+    fast = bt.estimate_fold_powers_by_series(z, Xf, x, train, start, radius=np.array([1e300]))
+    assert len(calls) == len(train)
+    for e, f in zip(exact, fast, strict=True):
+        np.testing.assert_array_equal(f.powers, e.powers)  # the exact path itself
 
 
 @pytest.mark.parametrize(
