@@ -14,12 +14,16 @@ PLOTTING = {"matplotlib"}
 #: packages a floor must not import
 FORBIDDEN = {"core": WEB | PLOTTING, "selection": WEB | PLOTTING, "report": WEB}
 FLOOR_FILES = [
-    (floor, p) for floor in FORBIDDEN for p in sorted((CORE.parent / floor).glob("*.py"))
+    (floor, p) for floor in FORBIDDEN for p in sorted((CORE.parent / floor).rglob("*.py"))
 ]
 
 
+def _file_id(floor: str, p: Path) -> str:
+    return f"{floor}/{p.relative_to(CORE.parent / floor).as_posix()}"
+
+
 @pytest.mark.parametrize(
-    ("floor", "path"), FLOOR_FILES, ids=[f"{f}/{p.name}" for f, p in FLOOR_FILES]
+    ("floor", "path"), FLOOR_FILES, ids=[_file_id(f, p) for f, p in FLOOR_FILES]
 )
 def test_lower_floors_import_no_web_or_plotting_package(floor, path):
     tree = ast.parse(path.read_text())
@@ -135,12 +139,12 @@ _PROBLEM_TEXT = ("urn:bestscale:problem", "problem+json")
 DOMAIN_FILES = [
     (floor, p)
     for floor in ("core", "selection")
-    for p in sorted((CORE.parent / floor).glob("*.py"))
+    for p in sorted((CORE.parent / floor).rglob("*.py"))
 ]
 
 
 @pytest.mark.parametrize(
-    ("floor", "path"), DOMAIN_FILES, ids=[f"{f}/{p.name}" for f, p in DOMAIN_FILES]
+    ("floor", "path"), DOMAIN_FILES, ids=[_file_id(f, p) for f, p in DOMAIN_FILES]
 )
 def test_core_and_selection_name_places_without_json_pointers_or_problem_bodies(floor, path):
     """Errors below the web layer name domain locations (service/core/errors.py); only
@@ -226,6 +230,104 @@ def test_every_module_with_logic_has_its_own_test_module():
         if not _test_module_for(path).is_file():
             missing.append(f"{rel} -> {_test_module_for(path).relative_to(root.parent)}")
     assert not missing, "modules without a test module of their own:\n" + "\n".join(missing)
+
+
+def _module_name(path: Path) -> str:
+    root = CORE.parent
+    parts = path.relative_to(root.parent).with_suffix("").parts
+    return ".".join(parts[:-1] if path.name == "__init__.py" else parts)
+
+
+def _is_router(path: Path) -> bool:
+    """True for a module of routes (an ``APIRouter``), which its tests reach over HTTP."""
+    return "APIRouter(" in path.read_text()
+
+
+def _siblings_imported(module: Path) -> set[str]:
+    """Stems of the modules of its own package that ``module`` imports (``__init__`` for
+    the package itself)."""
+    out: set[str] = set()
+    for node in ast.walk(ast.parse(module.read_text())):
+        if isinstance(node, ast.ImportFrom) and node.level == 1:
+            if node.module:
+                out.add(node.module.split(".")[0])
+            else:
+                out |= {a.name for a in node.names}
+    return out
+
+
+def _reached_in_package(imported: set[str], path: Path) -> bool:
+    """True when ``path`` sits in a package below a floor (not in a floor itself) and a
+    module of that package the test imports (or the package itself) imports ``path``,
+    directly or through other modules of that package: a family module reached through its
+    package's registry, a module whose names the package re-exports."""
+    if path.parent.parent in (CORE.parent, CORE.parent.parent):
+        return False  # a floor's modules are each tested on their own
+    package = _module_name(path.parent / "__init__.py")
+    stems = {f.stem for f in path.parent.glob("*.py")}
+    todo = [
+        "__init__" if name == package else name.rsplit(".", 1)[1]
+        for name in imported
+        if name == package or name.rsplit(".", 1)[0] == package
+    ]
+    seen: set[str] = set()
+    while todo:
+        stem = todo.pop()
+        if stem in seen or stem not in stems:
+            continue
+        seen.add(stem)
+        todo.extend(_siblings_imported(path.parent / f"{stem}.py"))
+    return path.stem in seen
+
+
+def _exercises(test_path: Path, path: Path) -> bool:
+    """True when ``test_path`` imports the module at ``path``, or a module of its package
+    that uses it (:func:`_reached_in_package`), or, for a module of routes, the app that
+    serves them."""
+    wanted = {_module_name(path)} | ({"service.app"} if _is_router(path) else set())
+    seen: set[str] = set()
+    for node in ast.walk(ast.parse(test_path.read_text())):
+        if isinstance(node, ast.ImportFrom) and node.level == 0 and node.module:
+            seen |= {node.module} | {f"{node.module}.{a.name}" for a in node.names}
+        elif isinstance(node, ast.Import):
+            seen |= {a.name for a in node.names}
+    if seen & wanted:
+        return True
+    return path.name != "__init__.py" and _reached_in_package(seen, path)
+
+
+def test_every_test_module_imports_the_module_it_is_named_after():
+    """A test module named after a module tests that module: it imports it (a module of
+    routes may be reached through service.app instead)."""
+    root = CORE.parent
+    missing = []
+    for path in sorted(root.rglob("*.py")):
+        rel = path.relative_to(root.parent).as_posix()
+        if not _has_logic(path) or rel in NO_LOGIC or rel in NOT_YET:
+            continue
+        test_path = _test_module_for(path)
+        if test_path.is_file() and not _exercises(test_path, path):
+            missing.append(f"{test_path.relative_to(root.parent)} never imports {rel}")
+    assert not missing, "\n".join(missing)
+
+
+def test_the_import_check_sees_a_test_module_that_ignores_its_module(tmp_path):
+    fake = tmp_path / "test_fitting.py"
+    fake.write_text("from service.core import folds\n\ndef test_x():\n    assert folds\n")
+    assert not _exercises(fake, CORE / "fitting.py")
+    fake.write_text("from service.core.fitting import ols\n")
+    assert _exercises(fake, CORE / "fitting.py")
+    fake.write_text("import service.core.fitting\n")
+    assert _exercises(fake, CORE / "fitting.py")
+    fake.write_text("def test_x():\n    from service.app import app\n")
+    assert _exercises(fake, CORE.parent / "api" / "routes.py")
+    assert not _exercises(fake, CORE.parent / "api" / "errors.py")
+    # a package below a floor: its modules may be reached through the package's own imports
+    fake.write_text("from service.core.transforms import Transform\n")
+    assert _exercises(fake, CORE / "transforms" / "categorical.py")
+    # ... but a floor's modules are not reached through one another
+    fake.write_text("from service.core.crossval import cross_validate\n")
+    assert not _exercises(fake, CORE / "fastcv.py")
 
 
 def test_the_exception_lists_name_real_modules_that_need_them():

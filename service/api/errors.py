@@ -111,14 +111,14 @@ def record_problem(rec: ErrorRecord, endpoint: str = SELECTIONS) -> dict:
     )
 
 
-def with_group_problems(body: dict, endpoint: str = SELECTIONS) -> dict:
-    """``body`` with the :class:`ErrorRecord` of every group that could not be modelled
-    written as its problem object."""
+def with_group_problems(body: dict) -> dict:
+    """A selections ``body`` with the :class:`ErrorRecord` of every group that could not be
+    modelled written as its problem object."""
     groups = body.get("groups")
     if isinstance(groups, dict):
         for gbody in groups.values():
             if isinstance(gbody.get("problem"), ErrorRecord):
-                gbody["problem"] = record_problem(gbody["problem"], endpoint)
+                gbody["problem"] = record_problem(gbody["problem"], SELECTIONS)
     return body
 
 

@@ -253,6 +253,10 @@ class ServiceMiddleware:
         return p if self._known and p in self._known else "unmatched"
 
 
+#: paths the token protects and back-pressure refuses early (the API's resources)
+PROTECTED_PREFIX = "/v1/"
+
+
 class GuardMiddleware:
     """Token, body size and early back-pressure, before any body byte is read."""
 
@@ -261,7 +265,6 @@ class GuardMiddleware:
         app,
         max_body_bytes: int,
         api_token: str | None = None,
-        protected_prefix: str = "/v1/",
         body_timeout_s: float = 60.0,
         metrics_public: bool = False,
         docs_public: bool | None = None,
@@ -277,7 +280,6 @@ class GuardMiddleware:
         self.max_body = max_body_bytes
         self.body_timeout = body_timeout_s
         self.token = api_token.encode() if api_token else None
-        self.prefix = protected_prefix
 
     async def __call__(self, scope, receive, send):
         if scope["type"] != "http":
@@ -326,7 +328,7 @@ class GuardMiddleware:
                 rid,
                 path,
             )
-        if scope.get("method") == "POST" and path.startswith(self.prefix) and pool.saturated():
+        if scope.get("method") == "POST" and path.startswith(PROTECTED_PREFIX) and pool.saturated():
             exc = pool.busy_problem(pool.capacity())
             return await _send_problem(
                 send,
@@ -370,7 +372,7 @@ class GuardMiddleware:
         await self.app(scope, receive_counted, send)
 
     def _protected(self, path: str) -> bool:
-        if path.startswith(self.prefix):
+        if path.startswith(PROTECTED_PREFIX):
             return True
         if path in self.open_paths or (path.startswith("/docs/") and "/docs" in self.open_paths):
             return False

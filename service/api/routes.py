@@ -8,6 +8,7 @@ from starlette.responses import PlainTextResponse
 from ..core import transforms as tr
 from ..version import __version__
 from .encode import JSONBody
+from .metrics import exposition
 from .middleware import note_result
 from .pool import compute_slot
 from .reports import report_response, wants_html
@@ -53,6 +54,5 @@ async def healthz():
     response_class=PlainTextResponse,
 )
 def metrics():
-    from prometheus_client import CONTENT_TYPE_LATEST, generate_latest
-
-    return PlainTextResponse(generate_latest(), media_type=CONTENT_TYPE_LATEST)
+    text, media_type = exposition()
+    return PlainTextResponse(text, media_type=media_type)

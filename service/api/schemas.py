@@ -8,7 +8,7 @@ need the table (a column exists, a value is positive) are the core's.
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Literal, overload
+from typing import TYPE_CHECKING, Annotated, Any, Literal, overload
 
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
@@ -16,17 +16,10 @@ from ..core import transforms as tr
 from ..core.conditions import DEFAULT_ALPHA
 from ..selection.strategy import EXHAUSTIVE_LIMIT
 
-TransformName = Literal[
-    "identity",
-    "log",
-    "sqrt",
-    "reciprocal",
-    "square",
-    "power",
-    "box_cox",
-    "yeo_johnson",
-    "categorical",
-]
+if TYPE_CHECKING:
+    TransformName = str
+else:  # the registry's names, in its order (the enum of the OpenAPI document)
+    TransformName = Literal[tr.ALL_NAMES]
 ColumnName = Annotated[str, StringConstraints(min_length=1, max_length=256)]
 
 
@@ -152,7 +145,7 @@ class TransformIn(_Strict):
             raise ValueError(f"'exponent' applies only to power, not {self.name}")
         if self.shift is not None and self.name != "log":
             raise ValueError(f"'shift' applies only to log, not {self.name}")
-        if self.lambda_ is not None and self.name not in ("box_cox", "yeo_johnson"):
+        if self.lambda_ is not None and self.name not in tr.LAMBDA_NAMES:
             raise ValueError(f"'lambda' applies only to box_cox and yeo_johnson, not {self.name}")
         if self.reference is not None and self.name != "categorical":
             raise ValueError(f"'reference' applies only to categorical, not {self.name}")

@@ -100,13 +100,12 @@ class LeastSquares:
     U: np.ndarray  # n x rank, orthonormal basis of the column space
     s: np.ndarray  # rank singular values
     Vt: np.ndarray  # rank x p
-    n_columns: int
 
     @classmethod
     def of(cls, X: np.ndarray) -> LeastSquares:
         U, s, Vt = np.linalg.svd(X, full_matrices=False)
         keep = s > (s[0] if s.size else 0.0) * max(X.shape) * np.finfo(float).eps
-        return cls(U[:, keep], s[keep], Vt[keep], int(X.shape[1]))
+        return cls(U[:, keep], s[keep], Vt[keep])
 
     @property
     def rank(self) -> int:
@@ -272,7 +271,11 @@ def _require_residuals(fit: Fit) -> None:
         raise NotApplicable(fit.residual_reason)
 
 
-def full_rank_columns(Z: np.ndarray, tol: float = 1e-6) -> np.ndarray:
+#: a pivot of the unit-column QR below this share of the largest counts as zero
+PIVOT_RTOL = 1e-6
+
+
+def full_rank_columns(Z: np.ndarray) -> np.ndarray:
     """Columns of ``Z`` chosen by pivoted QR (Businger & Golub 1965) to have full rank.
 
     The QR runs on a k x k square root of the unit-column Gram matrix, which has the same
@@ -285,7 +288,7 @@ def full_rank_columns(Z: np.ndarray, tol: float = 1e-6) -> np.ndarray:
     root = np.sqrt(np.clip(lam, 0.0, None))[:, None] * V.T  # root.T @ root == G
     _, R, piv = qr(root, mode="economic", pivoting=True)
     diag = np.abs(np.diag(R))
-    rank = int(np.sum(diag > tol * max(float(diag.max(initial=0.0)), 1e-300)))
+    rank = int(np.sum(diag > PIVOT_RTOL * max(float(diag.max(initial=0.0)), 1e-300)))
     return Z[:, np.sort(piv[:rank])]
 
 

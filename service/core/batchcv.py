@@ -35,8 +35,9 @@ import numpy as np
 
 from . import retransform
 from . import transforms as tr
+from .cvresult import CVResult, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
-from .fastcv import Score, Scorer
+from .fastcv import Scorer
 from .fitting import solve_batch
 
 #: at most this many floats in one (n, C, p) stack of designs (about 64 MB)
@@ -47,10 +48,8 @@ def batchable(scorer: Scorer, t: tr.Transform) -> bool:
     """True when candidates on response scale ``t`` can be scored together: the scale is
     the same in every fold (nothing estimated per fold) and the bank keeps its per-fold
     cross-products."""
-    estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
     return (
-        not estimate_lam
-        and not scorer.per_fold_response(t)
+        not scorer.per_fold_response(t)
         and scorer.bank.G_total is not None
         and (scorer.plan.metric != "mape" or scorer.want_mape)
     )
@@ -61,11 +60,11 @@ def score_many(
     t: tr.Transform,
     col_sets: Sequence[Sequence[int]],
     names: Sequence[list[str] | None],
-) -> list[Score | CandidateFailure]:
+) -> list[CVResult | CandidateFailure]:
     """:meth:`Scorer.score` for each candidate (bank columns ``col_sets[c]``, column names
     ``names[c]``) on response scale ``t``; a :class:`CandidateFailure` in place of a
     candidate that fails.  Candidates of different sizes are batched by size."""
-    out: list[Score | CandidateFailure | None] = [None] * len(col_sets)
+    out: list[CVResult | CandidateFailure | None] = [None] * len(col_sets)
     if not batchable(scorer, t):
         return [_alone(scorer, t, c, nm) for c, nm in zip(col_sets, names, strict=True)]
     by_size: dict[int, list[int]] = {}
@@ -85,7 +84,7 @@ def score_many(
 
 def _alone(
     scorer: Scorer, t: tr.Transform, cols: Sequence[int], names: list[str] | None
-) -> Score | CandidateFailure:
+) -> CVResult | CandidateFailure:
     try:
         return scorer.score(t, list(cols), names)
     except CandidateFailure as exc:
@@ -94,7 +93,7 @@ def _alone(
 
 def _batch(
     scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
-) -> list[Score | None]:
+) -> list[CVResult | None]:
     """Scores of candidates with the same number of columns; None where the candidate must
     be scored alone."""
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -103,7 +102,7 @@ def _batch(
 
 def _batch_unguarded(
     scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
-) -> list[Score | None]:
+) -> list[CVResult | None]:
     bank, y, plan = scorer.bank, scorer.y, scorer.plan
     assert bank.G_fold is not None and bank.G_total is not None  # checked by batchable()
     index = bank.index
@@ -171,36 +170,26 @@ def _batch_unguarded(
         pc = np.abs((y[:, None] - med) / y[:, None]) if scorer.want_mape else None
         for k in range(K):
             te = test[k]
-            if plan.metric == "rmse":
-                fold_vals[:, r * K + k] = np.sqrt(sq[te].mean(axis=0))
-            elif plan.metric == "mae":
-                fold_vals[:, r * K + k] = ab[te].mean(axis=0)
-            else:
-                assert pc is not None  # batchable() requires a defined MAPE
-                fold_vals[:, r * K + k] = 100.0 * pc[te].mean(axis=0)
-        pooled["rmse"][:, r] = np.sqrt(sq.mean(axis=0))
-        pooled["mae"][:, r] = ab.mean(axis=0)
-        if pc is not None:
-            pooled["mape"][:, r] = 100.0 * pc.mean(axis=0)
+            fold_vals[:, r * K + k] = error_of(
+                plan.metric, sq[te], ab[te], None if pc is None else pc[te]
+            )
+        for name in pooled:
+            pooled[name][:, r] = error_of(name, sq, ab, pc)
     alone |= ~np.all(np.isfinite(fold_vals), axis=1)
-    out: list[Score | None] = []
+    out: list[CVResult | None] = []
     for j in range(C):
         if alone[j]:
             out.append(None)
             continue
-        summary = {
-            "rmse": float(np.mean(pooled["rmse"][j])),
-            "mae": float(np.mean(pooled["mae"][j])),
-            "mape": float(np.mean(pooled["mape"][j])) if scorer.want_mape else None,
-        }
+        summary = summary_of(
+            pooled["rmse"][j], pooled["mae"][j], pooled["mape"][j] if scorer.want_mape else None
+        )
         value = summary[plan.metric]
         if value is None or not math.isfinite(value):
             out.append(None)
             continue
         fv = fold_vals[j].copy()
-        # the standard error as Scorer.score states it (Bengio & Grandvalet 2004)
-        se = float(np.std(fv, ddof=1) / math.sqrt(K)) if fv.size > 1 else 0.0
-        out.append(Score(plan.metric, value, se, fv, summary, None, None, 0, None))
+        out.append(CVResult(plan.metric, value, std_error_of(fv, K), fv, summary))
     return out
 
 

@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from .conditions import CONDITION_NAMES, ConditionInputs, TermInfo, assess_conditions
+from .conditions import CONDITION_NAMES, ConditionInputs, assess_conditions
 from .data import Prepared
 from .fitting import OLSFit
 from .spec import Design
@@ -28,9 +28,7 @@ from .spec import Design
 def condition_inputs(
     design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray, alpha: float
 ) -> ConditionInputs:
-    terms = tuple(
-        TermInfo(t.column, t.kind, tuple(t.indices), t.raw, t.label) for t in design.terms
-    )
+    terms = tuple(design.terms)
     return ConditionInputs(
         z=z,
         X=design.X,

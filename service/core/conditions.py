@@ -31,6 +31,7 @@ from scipy import stats
 from service.core import _condition_tests as ct
 from service.core import sources as src
 from service.core.numbers import count_of, fmt, p_is
+from service.core.spec import TermInfo
 
 #: common-practice VIF cut-offs (warn, fail)
 VIF_WARN, VIF_FAIL = 5.0, 10.0
@@ -51,17 +52,6 @@ CONDITION_NAMES = (
 )
 #: above this many rows the normality note warns that trivial departures reach significance
 LARGE_N = 1000
-
-
-@dataclass(frozen=True, eq=False)
-class TermInfo:
-    """One predictor of the model and the columns of ``X`` that carry it."""
-
-    column: str  # predictor column name as the caller sent it
-    kind: str  # "numeric" or "categorical"
-    indices: tuple[int, ...]  # columns of X for this predictor
-    raw: np.ndarray | None  # (n,) untransformed values for numeric predictors
-    label: str  # how the term reads, e.g. "log(area)"
 
 
 @dataclass(frozen=True, eq=False)

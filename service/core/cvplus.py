@@ -48,7 +48,7 @@ import numpy as np
 
 from . import transforms as tr
 from .boxtidwell import POWER_BOUNDS, power_columns
-from .fastcv import OutOfFold
+from .cvresult import OutOfFold
 
 MAX_ROWS = 2000
 CHUNK_CELLS = 4_000_000  # new rows x stored residuals handled at once (32 MB of float64)

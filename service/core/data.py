@@ -41,10 +41,10 @@ MAX_LEVEL_CHARS = 256  # a categorical level or group value, like a column name
 SHOWN_CHARS = 60  # a caller's value quoted in a message is cut to this many characters
 
 
-def shown(v: object, limit: int = SHOWN_CHARS) -> str:
+def shown(v: object) -> str:
     """``repr`` of a caller's value for a message, cut so an error never echoes megabytes."""
-    if isinstance(v, str) and len(v) > limit:
-        return repr(v[:limit]) + f"... ({len(v)} characters)"
+    if isinstance(v, str) and len(v) > SHOWN_CHARS:
+        return repr(v[:SHOWN_CHARS]) + f"... ({len(v)} characters)"
     return repr(v)
 
 
@@ -399,6 +399,23 @@ class Prepared:
                 h.update(name.encode() + b"\0" + "\x1f".join(self.categorical[name]).encode())
         return h.hexdigest()
 
+    def take(self, rows: np.ndarray) -> Prepared:
+        """The rows at positions ``rows`` (sorted, distinct) as a table of their own: a
+        group's segment (:func:`split_groups`) or a resampling's part (nested
+        cross-validation).  Built by :func:`segment_of`, so the order is the order
+        column's over these rows and the group labels are left behind."""
+        return segment_of(
+            self.response,
+            list(self.predictors),
+            self.y[rows],
+            {k: v[rows] for k, v in self.numeric.items()},
+            {k: v[rows] for k, v in self.categorical.items()},
+            self.row_ids[rows],
+            self.order_values[rows] if self.order_values is not None else None,
+            self.table_columns,
+            self.source,
+        )
+
     def data_summary(self) -> dict[str, Any]:
         return {
             "rows_received": self.rows_received,
@@ -575,9 +592,9 @@ def segment_of(
     table_columns: tuple[str, ...],
     source: str,
 ) -> Prepared:
-    """One segment's rows as a Prepared: what :func:`split_groups` hands each group, and
-    what a batch worker rebuilds from the segment's Parquet file (the same constructor, so
-    the two cannot drift apart)."""
+    """One segment's rows as a Prepared: what :meth:`Prepared.take` hands each group (and
+    each part of a resampling), and what a batch worker rebuilds from the segment's Parquet
+    file (the same constructor, so the two cannot drift apart)."""
     sub = Prepared(
         response,
         y,
@@ -607,18 +624,7 @@ def split_groups(prep: Prepared) -> dict[str, Prepared | InputError]:
     if prep.groups is None:
         raise ValueError("split_groups needs a table prepared with group_by")
     for g in sorted(set(prep.groups.tolist())):
-        mask = prep.groups == g
-        sub = segment_of(
-            prep.response,
-            list(prep.predictors),
-            prep.y[mask],
-            {k: v[mask] for k, v in prep.numeric.items()},
-            {k: v[mask] for k, v in prep.categorical.items()},
-            prep.row_ids[mask],
-            prep.order_values[mask] if prep.order_values is not None else None,
-            prep.table_columns,
-            prep.source,
-        )
+        sub = prep.take(np.flatnonzero(prep.groups == g))
         try:
             _check_content(sub)
             out[g] = sub

@@ -25,8 +25,8 @@ started at the all-rows estimate; the column then differs per fold).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
-from typing import TYPE_CHECKING, Any
+from dataclasses import replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -40,6 +40,7 @@ from .boxtidwell import (
     estimate_powers,
     power_columns,
 )
+from .cvresult import CVResult, Dynamic, OutOfFold, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
 from .likelihood import fit_transform, fold_lambdas
@@ -59,50 +60,6 @@ POWER_BATCH_CELLS = 50_000
 LAMBDA_BATCH_CELLS = 25_000
 
 
-@dataclass
-class Dynamic:
-    """Design columns whose power is estimated inside every training fold."""
-
-    positions: list[int]  # where they sit in the candidate's design
-    x: np.ndarray  # (n, k) positive predictor values
-    start: np.ndarray  # (k,) all-rows estimate (warm start)
-    boxcox_form: bool = True
-    columns: tuple[str, ...] = ()  # the predictor columns, in design order
-
-
-@dataclass
-class OutOfFold:
-    """What the first repeat's K training fits leave behind, for CV+ prediction intervals.
-
-    ``fold``: (n,) fold id of every row; ``residual``: (n,) model-scale residual of every
-    row under the fit that did not see it, z_k(y_i) - x_i'b_k with k = fold[i] and z_k the
-    response scale fitted on that fold's training rows; ``coefficients``: (K, p) the
-    training fits b_k; ``transforms``: the K concrete response scales z_k.  With predictor
-    powers estimated inside every fold, ``dynamic`` says where their columns sit and
-    ``powers`` (K, j) holds fold k's estimates (fold k's design has w(x; powers[k]) there).
-    """
-
-    fold: np.ndarray
-    residual: np.ndarray
-    coefficients: np.ndarray
-    transforms: list[tr.Transform]
-    dynamic: Dynamic | None = None
-    powers: np.ndarray | None = None
-
-
-@dataclass
-class Score:
-    metric: str
-    value: float
-    std_error: float
-    fold_values: np.ndarray
-    summary: dict[str, Any]
-    fold_lambdas: list[float] | None
-    fold_powers: list[list[float]] | None
-    exact_refits: int
-    out_of_fold: OutOfFold | None = None
-
-
 def _exact_refit(
     X_tr: np.ndarray, z_tr: np.ndarray, names: list[str] | None, k: int | np.intp
 ) -> np.ndarray:
@@ -120,23 +77,6 @@ def _exact_refit(
             "solution (values too large for floating point)"
         ) from None
     return coef / m
-
-
-def _fold_metric(kind: str, y: np.ndarray, mean_pred: np.ndarray, median_pred: np.ndarray) -> float:
-    """A fold's error; inf (a failed candidate) when it overflows double precision."""
-    with np.errstate(over="ignore", invalid="ignore"):
-        return _fold_metric_raw(kind, y, mean_pred, median_pred)
-
-
-def _fold_metric_raw(
-    kind: str, y: np.ndarray, mean_pred: np.ndarray, median_pred: np.ndarray
-) -> float:
-    if kind == "rmse":
-        d = y - mean_pred
-        return float(np.sqrt(np.mean(d * d)))
-    if kind == "mae":
-        return float(np.mean(np.abs(y - median_pred)))
-    return float(100.0 * np.mean(np.abs((y - median_pred) / y)))
 
 
 def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
@@ -167,7 +107,9 @@ class Scorer:
         return self._resp[t]
 
     def per_fold_response(self, t: tr.Transform) -> bool:
-        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+        """True when the response scale differs per training fold: a lambda estimated in
+        every fold, or a log whose shift each fold chooses (the response has zeros)."""
+        if t.needs_lambda:
             return True
         return t.name == "log" and t.shift is None and self.shift_needed
 
@@ -179,7 +121,7 @@ class Scorer:
         names: list[str] | None = None,
         dynamic: Dynamic | None = None,
         keep_out_of_fold: bool = False,
-    ) -> Score:
+    ) -> CVResult:
         """``keep_out_of_fold``: also return the first repeat's fold fits and out-of-fold
         residuals (:class:`OutOfFold`, with each fold's estimated predictor powers)."""
         # Values near the float limits overflow in squares and products; every result is
@@ -210,7 +152,7 @@ class Scorer:
         dynamic: Dynamic | None,
         keep: bool = False,
         first_only: bool = False,
-    ) -> Score:
+    ) -> CVResult:
         """Cross-validate the candidate (response scale ``t``, bank columns ``cols``).
 
         With ``dynamic`` the design has extra columns (at ``dynamic.positions``)
@@ -223,7 +165,7 @@ class Scorer:
         S = np.asarray(cols, dtype=int)
         n = y.size
         p = S.size + (len(dynamic.positions) if dynamic is not None else 0)
-        estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+        estimate_lam = t.needs_lambda
         per_fold = self.per_fold_response(t)
         XS = bank.columns(S)
         near = None
@@ -336,31 +278,30 @@ class Scorer:
                     ab[te] = np.abs(yt - med)
                     if self.want_mape:
                         pc[te] = np.abs((yt - med) / yt)
-                fold_vals[j] = (
-                    _fold_metric(plan.metric, yt, mean, med)
-                    if (plan.metric != "mape" or self.want_mape)
-                    else math.nan
-                )
+                    fold_vals[j] = error_of(
+                        plan.metric, sq[te], ab[te], pc[te] if self.want_mape else None
+                    )
                 j += 1
             with np.errstate(over="ignore", invalid="ignore"):
-                pooled["rmse"].append(math.sqrt(float(np.mean(sq))))
-                pooled["mae"].append(float(np.mean(ab)))
-                if self.want_mape:
-                    pooled["mape"].append(100.0 * float(np.mean(pc)))
+                for name in pooled:
+                    pooled[name].append(
+                        float(error_of(name, sq, ab, pc if self.want_mape else None))
+                    )
         fold_vals = fold_vals[:j]
-        summary = {k: (float(np.mean(v)) if v else None) for k, v in pooled.items()}
+        summary = summary_of(
+            np.array(pooled["rmse"]),
+            np.array(pooled["mae"]),
+            np.array(pooled["mape"]) if self.want_mape else None,
+        )
         value = summary[plan.metric]
         if value is None or not math.isfinite(value):
             raise CandidateFailure(f"the {plan.metric} is not defined for this response")
         if not all(math.isfinite(v) for v in fold_vals):
             raise CandidateFailure("a fold error is not finite")
-        # SE over the R*K fold values, divided by sqrt(K): repeats do not add independent
-        # information (Bengio & Grandvalet 2004: no unbiased estimator exists; this one is naive).
-        se = float(np.std(fold_vals, ddof=1) / math.sqrt(K)) if fold_vals.size > 1 else 0.0
-        return Score(
+        return CVResult(
             plan.metric,
             value,
-            se,
+            std_error_of(fold_vals, K),
             fold_vals,
             summary,
             lambdas or None,
@@ -394,7 +335,7 @@ class Scorer:
                 )
         if fixed is not None:
             return [fixed[0]] * K, [fixed[1]] * K
-        estimate_lam = t.name in ("box_cox", "yeo_johnson") and not t.is_fitted
+        estimate_lam = t.needs_lambda
         ts: list[tr.Transform] = []
         zs: list[np.ndarray] = []
         y = self.y

@@ -36,9 +36,9 @@ from typing import Any
 
 import numpy as np
 
-from . import numbers
 from .data import Prepared
 from .fitting import OLSFit
+from .numbers import fmt
 from .spec import Design, Specification
 from .transforms import Transform
 
@@ -48,11 +48,6 @@ LN_1_1 = math.log(1.1)
 
 
 # ----------------------------------------------------------------- numbers
-def fmt(v: float | None, sig: int = 4, trailing_zeros: bool = True) -> str:
-    """A number for a sentence: the shared rule of :func:`service.core.numbers.fmt`."""
-    return numbers.fmt(v, sig, trailing_zeros)
-
-
 def exact_percent(b: float | None) -> float | None:
     """Percent change of the median of y for one unit of x under a log response: 100(e^b - 1).
 

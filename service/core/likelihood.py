@@ -172,7 +172,7 @@ def _profile(family: str, y: np.ndarray, proj: _Projector) -> Callable[[float], 
 
         def llf(lam: float) -> float:
             with np.errstate(over="ignore", invalid="ignore"):
-                z = tr._yeo_johnson(y, lam)
+                z = tr.yeo_johnson_map(y, lam)
             if not np.all(np.isfinite(z)):
                 return -math.inf
             rss = proj.rss(z)
@@ -318,7 +318,7 @@ def fit_transform(
         if not need:
             return replace(t, shift=0.0)
         return replace(t, shift=tr.chosen_shift(y), estimated=True)
-    if t.name in ("box_cox", "yeo_johnson"):
+    if t.name in tr.LAMBDA_NAMES:
         est = estimate_lambda(t.name, y, X, with_interval=False, near=near, gram=gram)
         return replace(t, lam=est.lam, estimated=True)
     return t
@@ -326,6 +326,8 @@ def fit_transform(
 
 # ------------------------------------------------------------ every training fold at once
 _SQRT_EPS = math.sqrt(2.2e-16)
+#: evaluations per problem at most (scipy's minimize_scalar(method="bounded") default)
+BRENT_MAXFUN = 500
 _GOLDEN = 0.5 * (3.0 - math.sqrt(5.0))
 
 
@@ -334,7 +336,6 @@ def _brent_max(
     lo: np.ndarray,
     hi: np.ndarray,
     xatol: float,
-    maxfun: int = 500,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Maximise f_i over [lo_i, hi_i] for every i at once: the bounded Brent method
     (golden section with parabolic steps, Brent 1973, ch. 5) step for step as
@@ -404,7 +405,7 @@ def _brent_max(
             xm = 0.5 * (a + b)
             tol1 = _SQRT_EPS * np.abs(xf) + xatol / 3.0
             tol2 = 2.0 * tol1
-            act &= (np.abs(xf - xm) > (tol2 - 0.5 * (b - a))) & (num < maxfun)
+            act &= (np.abs(xf - xm) > (tol2 - 0.5 * (b - a))) & (num < BRENT_MAXFUN)
     return xf, -fx
 
 

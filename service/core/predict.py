@@ -34,9 +34,8 @@ from scipy import stats
 from . import cvplus, retransform
 from . import sources as src
 from . import transforms as tr
-from ._types import FloatArray
 from .conditions import CONDITION_NAMES
-from .data import RawColumn, as_categorical, as_numeric, read_table, shown
+from .data import MAX_LEVEL_CHARS, RawColumn, as_categorical, as_numeric, read_table, shown
 from .errors import (
     Cell,
     DataColumn,
@@ -56,7 +55,7 @@ from .model import (
     signature_value,
 )
 from .numbers import fmt, rows_named
-from .spec import PredictorSpec, Specification, term_label
+from .spec import Columns, PredictorSpec, Specification, build_design, term_names
 
 KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
 MAX_PROBLEMS = 20
@@ -64,14 +63,12 @@ MODEL = ModelField()  # the artifact itself: errors name its fields with MODEL.a
 ROWS_LISTED = 5
 LEVERAGE_RTOL = 1e-9  # a training row recomputed may exceed the stored maximum by rounding
 # bounds an issued artifact always satisfies; the same as a request's where one exists
-MAX_NAME_CHARS = 256  # column names and level strings
+MAX_NAME_CHARS = MAX_LEVEL_CHARS  # column names and level strings, as a request's
 MAX_LEVELS = 10_000  # levels of one categorical predictor
 MAX_PREDICTORS = 1000
 MAX_TRAINING_ROWS = 2**40
 MAX_ABS = 1e300  # coefficients, variances, ranges: finite with room for arithmetic
-SHIFT_BOUND = 1e15
-EXPONENT_BOUND = 10.0
-LAMBDA_BOUND = 5.0
+SHIFT_BOUND, EXPONENT_BOUND, LAMBDA_BOUND = tr.SHIFT_BOUND, tr.EXPONENT_BOUND, tr.LAMBDA_BOUND
 VARIANCE_RTOL = 1e-6  # stored residual variance vs the stored residuals ('all')
 MAX_FOLDS = 50  # validation.folds allows at most this many
 MAX_REASON_CHARS = 1000
@@ -139,9 +136,14 @@ def _first_non_finite(d: object) -> ModelField | None:
     return None
 
 
-def _cut(v: object, limit: int = 2000) -> str:
+QUOTED_CHARS = 2000  # a damaged field quoted in a message is cut after this many characters
+
+
+def _cut(v: object) -> str:
     text = repr(v)
-    return text if len(text) <= limit else text[:limit] + f"... ({len(text)} characters)"
+    if len(text) <= QUOTED_CHARS:
+        return text
+    return text[:QUOTED_CHARS] + f"... ({len(text)} characters)"
 
 
 def _is_name(v: object) -> bool:
@@ -216,7 +218,7 @@ def _transform(d: object, ptr: ModelField, role: str) -> tr.Transform:
     if not isinstance(d, dict) or not isinstance(d.get("name"), str):
         raise InputError.at(ptr, f"the {role} transform must be an object with a 'name'")
     name = d["name"]
-    if name not in tr.ALL_NAMES or (role == "response" and name == "categorical"):
+    if name not in (tr.ALL_NAMES if role == "predictor" else tr.NUMERIC_NAMES):
         raise InputError.at(
             ptr.at("name"),
             f"'{name}' is not a {role} transform this service fits",
@@ -229,7 +231,7 @@ def _transform(d: object, ptr: ModelField, role: str) -> tr.Transform:
                 f"a power transform needs a numeric 'exponent' with {tr.EXPONENT_FLOOR:g} <= "
                 f"|exponent| <= {EXPONENT_BOUND:g}; the model was damaged or forged",
             )
-    if name in ("box_cox", "yeo_johnson"):
+    if name in tr.LAMBDA_NAMES:
         lam = d.get("lambda")
         if not _is_number(lam) or abs(lam) > LAMBDA_BOUND:
             raise InputError.at(
@@ -334,18 +336,6 @@ def _levels(d: object, spec: Specification) -> dict[str, dict[str, Any]]:
     return out
 
 
-def expected_terms(spec: Specification, levels: dict[str, dict[str, Any]]) -> list[str]:
-    """Design column names in the order :func:`service.core.spec.build_design` makes them."""
-    names = ["intercept"] if spec.intercept else []
-    for p in spec.predictors:
-        if p.column in levels:
-            ref = levels[p.column]["reference"]
-            names.extend(term_label(p.column, lv) for lv in levels[p.column]["levels"] if lv != ref)
-        else:
-            names.append(p.transform.label(p.column))
-    return names
-
-
 def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = None) -> LoadedModel:
     """Validate an artifact and return it in array form.
 
@@ -402,7 +392,7 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     spec = _specification(_need(d, "specification", MODEL))
     levels = _levels(d.get("levels", {}), spec)
     terms = _need(d, "terms", MODEL)
-    want = expected_terms(spec, levels)
+    want = term_names(spec, levels)
     if terms != want:
         raise InputError.at(
             MODEL.at("terms"),
@@ -770,40 +760,6 @@ def _record_cell(where: Location, column: str) -> Location:
     return where
 
 
-def _bad_domain(t: tr.Transform, x: FloatArray, column: str) -> np.ndarray:
-    """Mask of values where the model's transform of a predictor is not defined.
-
-    Every family's domain is an upper half-line (x >= a or x > a), so the bad
-    values form a lower tail: the largest bad value is found by bisection over
-    the sorted distinct values with the transform's own domain check.
-    """
-    with np.errstate(all="ignore"):
-        bad = ~np.isfinite(t.forward(x))
-    if t.domain_problem(x, column, "predictor") is None:
-        return bad
-    u = np.unique(x)
-    lo, hi = 0, u.size - 1  # u[0] is bad; find the last bad index
-    while lo < hi:
-        mid = (lo + hi + 1) // 2
-        if t.domain_problem(u[mid : mid + 1], column, "predictor") is not None:
-            lo = mid
-        else:
-            hi = mid - 1
-    return bad | (x <= float(u[lo]))
-
-
-def _domain_text(t: tr.Transform) -> str:
-    n = t.name
-    if n == "log":
-        c = t.shift or 0.0
-        return "values > 0" if c == 0 else f"values > {-c:.6g}"
-    if n in ("sqrt", "square") or (n == "power" and (t.exponent or 0) > 0):
-        return "values >= 0"
-    if n in ("reciprocal", "power", "box_cox"):
-        return "values > 0"
-    return "values where it is finite"
-
-
 def new_design(
     model: LoadedModel, data: dict[str, Any]
 ) -> tuple[np.ndarray, dict[str, np.ndarray], int]:
@@ -839,8 +795,8 @@ def new_design(
             problems,
         )
 
-    cols: list[np.ndarray] = [np.ones(m)] if spec.intercept else []
     raw_numeric: dict[str, np.ndarray] = {}
+    categorical_values: dict[str, np.ndarray] = {}
 
     def add(where: Location, detail: str) -> None:
         if len(problems) < MAX_PROBLEMS:
@@ -878,9 +834,7 @@ def new_design(
                         f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
                         "the model cannot predict for it",
                     )
-            for lv in info["levels"]:
-                if lv != info["reference"]:
-                    cols.append((typed.values == lv).astype(float))
+            categorical_values[p.column] = typed.values
             continue
         try:
             typed = as_numeric(raw, "predictor")
@@ -888,7 +842,6 @@ def new_design(
             for fp in exc.problems:
                 add(fp.where, fp.detail)
             n_bad += 1
-            cols.append(np.zeros(m))
             continue
         x = typed.values
         for i in np.flatnonzero(typed.missing):
@@ -902,7 +855,8 @@ def new_design(
         ok = ~typed.missing
         bad = np.zeros(m, dtype=bool)
         if np.any(ok):
-            bad[ok] = _bad_domain(t, x[ok], p.column)
+            with np.errstate(all="ignore"):  # outside the domain, or where the map overflows
+                bad[ok] = ~t.domain_mask(x[ok]) | ~np.isfinite(t.forward(x[ok]))
         label = t.label(p.column)
         for i in np.flatnonzero(bad):
             n_bad += 1
@@ -910,12 +864,9 @@ def new_design(
                 raw.cell(int(i)),
                 f"predictor '{p.column}' is {x[i]:.6g} in {rows_named([int(i)])}, "
                 f"where {label} (the model's scale for '{p.column}') is not defined; it needs "
-                f"{_domain_text(t)}",
+                f"{t.domain_text()}",
             )
         raw_numeric[p.column] = x
-        with np.errstate(all="ignore"):
-            w = t.forward(np.where(ok & ~bad, x, 1.0))
-        cols.append(w)
     if problems:
         detail = (
             problems[0].detail
@@ -923,8 +874,9 @@ def new_design(
             else (f"{n_bad} cells cannot be used for prediction; the first: {problems[0].detail}")
         )
         raise InputError(detail, problems)
-    X = np.column_stack(cols)
-    return X, raw_numeric, m
+    # every cell is usable now: the one design builder, with the model's stored levels
+    rows = Columns(m, raw_numeric, categorical_values)
+    return build_design(spec, rows, levels=model.levels).X, raw_numeric, m
 
 
 # ------------------------------------------------------------------ numbers

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any, TypeAlias
 
@@ -69,9 +70,7 @@ class Specification:
         parameter estimated from the response.
         """
         ts = [self.response_transform] + [p.transform for p in self.predictors]
-        n_est = sum(
-            1 for t in ts if t.name in ("box_cox", "yeo_johnson") and (t.lam is None or t.estimated)
-        )
+        n_est = sum(1 for t in ts if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated))
         n_est += sum(1 for p in self.predictors if _estimated_power(p.transform))
         cost = sum(
             3 if _estimated_power(t) else t.simplicity for t in ts if t.name != "categorical"
@@ -131,10 +130,38 @@ def term_label(column: str, level: str) -> str:
     return f"{column}={level}"
 
 
+@dataclass(frozen=True)
+class Columns:
+    """Typed predictor columns of rows that are not a request's prepared table (the new
+    rows of a model): numeric columns as float arrays, categorical ones as object arrays
+    of level strings."""
+
+    n: int
+    numeric: dict[str, np.ndarray]
+    categorical: dict[str, np.ndarray]
+
+
+StoredLevels: TypeAlias = Mapping[str, Mapping[str, Any]]  # column -> {levels, reference}
+
+
+def term_names(spec: Specification, levels: StoredLevels) -> list[str]:
+    """The design's column names, in the order :func:`build_design` makes them: the
+    intercept, then per predictor its label or one treatment dummy per non-reference level."""
+    names = ["intercept"] if spec.intercept else []
+    for p in spec.predictors:
+        if p.column in levels:
+            ref = levels[p.column]["reference"]
+            names.extend(term_label(p.column, lv) for lv in levels[p.column]["levels"] if lv != ref)
+        else:
+            names.append(p.transform.label(p.column))
+    return names
+
+
 def build_design(
     spec: Specification,
-    prep: Prepared,
+    prep: Prepared | Columns,
     cache: dict[tuple[str, tr.Transform], np.ndarray] | None = None,
+    levels: StoredLevels | None = None,
 ) -> Design:
     """Design matrix (n, p) for ``spec`` on the prepared rows.
 
@@ -142,33 +169,34 @@ def build_design(
     violation is a :class:`CandidateFailure`); categorical ones as treatment
     dummies against the reference level.  ``cache`` maps (column, transform) to
     already transformed columns so a search computes each column once.
+
+    ``levels``: the levels and references a fitted model stored (new rows of that model:
+    one dummy per stored non-reference level, whatever levels the rows hold; the caller
+    has refused rows with a level the model never saw).  Without it the levels are the
+    rows' own, the reference the transform's or the first in sorted order.
     """
     cols: list[np.ndarray] = []
-    names: list[str] = []
     terms: list[TermInfo] = []
-    levels: dict[str, dict[str, Any]] = {}
+    used: dict[str, dict[str, Any]] = {}
     n = prep.n
     if spec.intercept:
         cols.append(np.ones(n))
-        names.append("intercept")
     for j, p in enumerate(spec.predictors):
         t = p.transform
         if p.column in prep.categorical:
             vals = prep.categorical[p.column]
-            ref = t.reference if t.name == "categorical" else None
-            lv, ref = categorical_levels(
-                vals,
-                ref,
-                p.column,
-                SpecField.of_predictor(j, "transform", "reference"),
-            )
+            if levels is not None:
+                lv, ref = list(levels[p.column]["levels"]), levels[p.column]["reference"]
+            else:
+                lv, ref = categorical_levels(
+                    vals,
+                    t.reference if t.name == "categorical" else None,
+                    p.column,
+                    SpecField.of_predictor(j, "transform", "reference"),
+                )
             start = len(cols)
-            for level in lv:
-                if level == ref:
-                    continue
-                cols.append((vals == level).astype(float))
-                names.append(term_label(p.column, level))
-            levels[p.column] = {"levels": lv, "reference": ref}
+            cols.extend((vals == level).astype(float) for level in lv if level != ref)
+            used[p.column] = {"levels": lv, "reference": ref}
             terms.append(
                 TermInfo(p.column, "categorical", tuple(range(start, len(cols))), None, p.column)
             )
@@ -188,9 +216,8 @@ def build_design(
                 cache[key] = w
         terms.append(TermInfo(p.column, "numeric", (len(cols),), x, t.label(p.column)))
         cols.append(w)
-        names.append(t.label(p.column))
     X = np.column_stack(cols) if cols else np.empty((n, 0))
-    return Design(X, names, terms, levels)
+    return Design(X, term_names(spec, used), terms, used)
 
 
 def resolve_predictor_transforms(spec: Specification, prep: Prepared) -> Specification:

@@ -283,20 +283,16 @@ def _points(ax: _Axes, x, y) -> int:
     return len(x)
 
 
-def _line(
-    ax: _Axes, x, y, colour: str, width: float, dash: str | None = None, close: bool = False
-) -> None:
+def _line(ax: _Axes, x, y, colour: str, width: float, close: bool = False) -> None:
     d = polyline(ax.px(x), ax.py(y), close=close)
     if not d:
         return
     if close:
         ax.parts.append(f'<path transform="scale(.1)" fill="{colour}" stroke="none" d="{d}"/>')
         return
-    dash10 = " ".join(num(10 * float(v)) for v in dash.split()) if dash else None
     ax.parts.append(
         f'<path transform="scale(.1)" fill="none" stroke="{colour}"'
-        f' stroke-width="{num(10 * width)}" stroke-linejoin="round"'
-        f'{attrs(stroke_dasharray=dash10)} d="{d}"/>'
+        f' stroke-width="{num(10 * width)}" stroke-linejoin="round" d="{d}"/>'
     )
 
 

@@ -22,23 +22,27 @@ import html
 import math
 import re
 
+from ..core.conditions import CONDITION_NAMES
 from ..core.numbers import count_of, failure_text, fmt, fmt_p
 from .figures import render_figure
-from .safetext import visible
+from .svg import esc
 
 #: dropped rows listed in the summary
 MAX_DROPPED_LISTED = 20
 #: distinct failure reasons listed in the summary
 MAX_FAILURE_REASONS = 5
 
-CONDITIONS = (
-    ("linearity", "Linearity", "Linear"),
-    ("normality", "Normal residuals", "Normal"),
-    ("equal_variance", "Equal variance", "Eq. var."),
-    ("independence", "Independence", "Indep."),
-    ("multicollinearity", "Collinearity", "Collin."),
-    ("influence", "Influence", "Infl."),
-)
+#: how the report names each condition (heading, short column title)
+CONDITION_LABELS = {
+    "linearity": ("Linearity", "Linear"),
+    "normality": ("Normal residuals", "Normal"),
+    "equal_variance": ("Equal variance", "Eq. var."),
+    "independence": ("Independence", "Indep."),
+    "multicollinearity": ("Collinearity", "Collin."),
+    "influence": ("Influence", "Infl."),
+}
+#: (key, heading, short title) in the order every output lists the conditions
+CONDITIONS = tuple((key, *CONDITION_LABELS[key]) for key in CONDITION_NAMES)
 
 _MARKS = {
     True: ("pass", "\u2713", "holds"),
@@ -48,11 +52,6 @@ _MARKS = {
 
 
 # ------------------------------------------------------------------ formatting
-def esc(value) -> str:
-    """Text safe inside an element or a quoted attribute; bidi controls shown as U+XXXX."""
-    return html.escape(visible(str(value)), quote=True)
-
-
 def num(value, sig: int = 4) -> str:
     """``value`` by the shared number rule (``service.core.numbers.fmt``); ``None`` is a dash."""
     if value is None or not math.isfinite(float(value)):

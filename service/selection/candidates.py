@@ -88,23 +88,17 @@ def check_explicit(
     """
     if t.name == "power" and t.exponent is None:
         return
-    bad = np.flatnonzero(tr.outside_domain(t, x, strict_log=not _asks_auto_shift(item)))
+    as_sent = not _asks_auto_shift(item)
+    bad = np.flatnonzero(~t.domain_mask(x, as_sent=as_sent))
     if bad.size == 0:
         return
     i = int(bad[0])
     lab = t.label(column)
-    need = (
-        "values > 0"
-        if t.name in ("log", "reciprocal", "box_cox")
-        or (t.name == "power" and (t.exponent or 0) < 0)
-        else "values >= 0"
-    )
-    if t.name == "log" and t.shift is not None:
-        need = f"values above {-t.shift:.6g}"
     detail = (
         f"{role} '{column}' is {float(x[i]):.6g} in {rows_named([int(prep.row_ids[i])])} of "
-        f"the data ({count_of(int(bad.size), 'row')} in all) and the requested {lab} needs {need}; a requested "
-        f"transform is used as sent, so {tr.domain_fixes(t)}"
+        f"the data ({count_of(int(bad.size), 'row')} in all) and the requested {lab} needs "
+        f"{t.domain_text(as_sent=as_sent)}; a requested transform is used as sent, so "
+        f"{t.domain_fixes()}"
     )
     raise InputError(
         detail,
@@ -193,7 +187,7 @@ def predictor_candidates(
                             f"{MIN_DISTINCT_FOR_POWER} distinct values",
                         )
                     continue
-                if t.name in ("box_cox", "yeo_johnson") and t.lam is None:
+                if t.needs_lambda:
                     raise InputError.at(
                         PredictorChoice(listed_for, i),
                         f"{t.name} of a predictor needs an explicit "
@@ -240,8 +234,6 @@ class Space:
     index: dict[tuple[Any, ...], tuple[int, ...]] = field(default_factory=dict)
     # (column, transform) -> reason it cannot be used
     bad: dict[tuple[str, tr.Transform], str] = field(default_factory=dict)
-    # (response key, column) -> power
-    screen_powers: dict[tuple[tr.Transform, str], float] = field(default_factory=dict)
 
     def design_of(self, spec: Specification) -> tuple[list[int], list[str], list[int]]:
         """(bank columns, names, positions of estimated powers) for ``spec``."""
@@ -355,7 +347,7 @@ def screening_powers(
     info: dict[tuple[tr.Transform, str], dict[str, Any]] = {}
     powers: dict[tuple[tr.Transform, str], float] = {}
     for t in responses:
-        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+        if t.needs_lambda:
             continue
         t0 = fit_transform(t, prep.y)
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -402,7 +394,7 @@ def add_ladder_rungs(
 def grid_size(resp: list[tr.Transform], preds: list[list[tr.Transform]]) -> int:
     """Candidates in the space: estimated powers only with fixed response scales, at most
     MAX_ESTIMATED_POWERS of them per candidate."""
-    fixed = [t for t in resp if not (t.name in ("box_cox", "yeo_johnson") and not t.is_fitted)]
+    fixed = [t for t in resp if not t.needs_lambda]
     ways = [1] + [0] * MAX_ESTIMATED_POWERS  # ways[c]: combinations with c estimated powers
     for o in preds:
         n_open = sum(1 for t in o if bt.is_open(t))
@@ -415,7 +407,7 @@ def grid_size(resp: list[tr.Transform], preds: list[list[tr.Transform]]) -> int:
 def allowed(spec: Specification) -> bool:
     t = spec.response_transform
     n_open = sum(1 for p in spec.predictors if bt.is_open(p.transform))
-    if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+    if t.needs_lambda:
         return n_open == 0
     return n_open <= MAX_ESTIMATED_POWERS
 

@@ -51,7 +51,7 @@ def diagnose_specification(
                     SpecField.of_predictor(i, "transform"),
                     f"'{p.column}' is numeric; list it in 'categorical' to treat it as levels",
                 )
-            if p.transform.name in ("box_cox", "yeo_johnson") and p.transform.lam is None:
+            if p.transform.needs_lambda:
                 raise InputError.at(
                     SpecField.of_predictor(i, "transform", "lambda"),
                     f"{p.transform.name} of a predictor needs an explicit lambda",

@@ -12,11 +12,10 @@ from ..core import retransform
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.condition_rules import conditions_for, failed
-from ..core.crossval import CVResult
 from ..core.cvplus import default_method, stored_block
+from ..core.cvresult import CVResult, OutOfFold
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure
-from ..core.fastcv import OutOfFold
 from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
@@ -36,10 +35,6 @@ def finite_or_none(v: Any) -> float | None:
     return v if math.isfinite(v) else None
 
 
-def _num(v: float) -> str:
-    return fmt(v)
-
-
 def equation(spec: Specification, design: Design, coef: np.ndarray) -> str:
     """Readable equation, e.g. ``log(cost) = 2.1 + 0.48·log(area) - 0.03·age``.
 
@@ -50,14 +45,14 @@ def equation(spec: Specification, design: Design, coef: np.ndarray) -> str:
     parts = []
     for i, (name, b) in enumerate(zip(design.names, coef, strict=True)):
         if name == "intercept":
-            parts.append(_num(b))
+            parts.append(fmt(b))
             continue
         term = f"({name})" if i in dummies else name
         if not parts:
-            parts.append(f"{_num(b)}·{term}")
+            parts.append(f"{fmt(b)}·{term}")
         else:
             sign = "-" if b < 0 else "+"
-            parts.append(f"{sign} {_num(abs(b))}·{term}")
+            parts.append(f"{sign} {fmt(abs(b))}·{term}")
     rhs = " ".join(parts) if parts else "0"
     return f"{spec.response_label()} = {rhs}"
 
@@ -69,7 +64,7 @@ def fitted_model(
     design = build_design(spec, prep)
     t = spec.response_transform
     lam_est = None
-    if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+    if t.needs_lambda:
         lam_est = estimate_lambda(t.name, prep.y, design.X)
         t = tr.Transform(t.name, lam=lam_est.lam, estimated=True)
     else:

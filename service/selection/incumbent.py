@@ -12,14 +12,14 @@ data; otherwise ``keep``, since replacing a production model has a cost.
 
 from __future__ import annotations
 
-import math
 from typing import Any
 
 import numpy as np
 
 from ..core import transforms as tr
 from ..core.conditions import CONDITION_NAMES
-from ..core.crossval import CVResult, cross_validate
+from ..core.crossval import cross_validate
+from ..core.cvresult import CVResult, std_error_of
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, SpecField
 from ..core.folds import CVPlan
@@ -116,7 +116,7 @@ def decide(
     # the same specification on the same folds differs by exactly 0; the two scoring paths
     # (search and incumbent refit) agree only to rounding, so the rounding is not reported
     d = np.zeros_like(inc_cv.fold_values) if same else winner_folds - inc_cv.fold_values
-    se = float(np.std(d, ddof=1) / math.sqrt(plan.folds)) if d.size > 1 else 0.0
+    se = std_error_of(d, plan.folds)
     diff = float(np.mean(d))
     out["difference"] = {
         "value": diff,

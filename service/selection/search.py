@@ -27,8 +27,8 @@ from ..core.bank import FoldIndex
 from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
-from ..core.crossval import from_score
 from ..core.cvplus import NOT_KEPT
+from ..core.cvresult import CVResult, Dynamic, OutOfFold, std_error_of
 from ..core.data import Prepared
 from ..core.errors import (
     BudgetError,
@@ -38,7 +38,7 @@ from ..core.errors import (
     Predictor,
     ResponseChoice,
 )
-from ..core.fastcv import Dynamic, OutOfFold, Score, Scorer
+from ..core.fastcv import Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
@@ -75,14 +75,6 @@ def failure_groups(reasons: dict[str, int]) -> list[dict[str, Any]]:
 
 
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
-
-
-def response_candidates(prep: Prepared, opts: SearchOptions) -> list[tr.Transform]:
-    return cand.response_candidates(prep, opts.response_transforms)
-
-
-def predictor_candidates(prep: Prepared, opts: SearchOptions) -> list[list[tr.Transform]]:
-    return cand.predictor_candidates(prep, opts.predictor_transforms)
 
 
 def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
@@ -128,7 +120,7 @@ class _Evaluator:
                 continue
             designs[i] = (cols, names)
             groups.setdefault(t, []).append(i)
-        done: dict[int, Score | CandidateFailure] = {}
+        done: dict[int, CVResult | CandidateFailure] = {}
         for t, members in groups.items():
             got = score_many(
                 self.scorer, t, [designs[i][0] for i in members], [designs[i][1] for i in members]
@@ -144,7 +136,7 @@ class _Evaluator:
                 self._failed(spec, res)
                 out.append(None)
             else:
-                made = Scored(spec, from_score(res))
+                made = Scored(spec, res)
                 self.scored.append(made)
                 out.append(made)
         return out
@@ -198,7 +190,7 @@ class _Evaluator:
         t = spec.response_transform
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
         dynamic, fit = self._dynamic(spec, cols, dyn)
-        res = from_score(self.scorer.score(t, cols, names, dynamic))
+        res = self.scorer.score(t, cols, names, dynamic)
         if fit is None:
             return Scored(spec, res)
         a = iter(fit.powers)
@@ -250,10 +242,10 @@ def select(
     """Search, score and rank (:class:`Selection`)."""
     t0 = time.perf_counter()
     deadline = opts.clock()
-    resp = response_candidates(prep, opts)
+    resp = cand.response_candidates(prep, opts.response_transforms)
     if not resp:
         raise InputError.at(ResponseChoice(), f"no response transform applies to '{prep.response}'")
-    preds = predictor_candidates(prep, opts)
+    preds = cand.predictor_candidates(prep, opts.predictor_transforms)
     n_params = 1 + sum(
         1 if p[0].name != "categorical" else len(set(prep.categorical[c].tolist())) - 1
         for p, c in zip(preds, prep.predictors, strict=True)
@@ -606,7 +598,7 @@ def rank(
         d = s.cv.fold_values - best.cv.fold_values
         if s is best or d.size < 2:
             return 0.0 if s is best else band.std_error
-        return float(np.std(d, ddof=1) / math.sqrt(k))
+        return std_error_of(d, k)
 
     cvs = [s.cv.value for s in scored]
     order = band_order(cvs, [s.spec.simplicity() for s in scored], band.threshold)
@@ -776,7 +768,7 @@ def _response_lambdas(
     )
     info: dict[str, Any] | None = None
     lams: dict[tr.Transform, float] = {}
-    families = [t for t in resp if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted]
+    families = [t for t in resp if t.needs_lambda]
     if not families:
         return None, lams
     try:
@@ -811,7 +803,7 @@ def _screen_scales(
     """The fixed model scale each response transform is screened on."""
     out: dict[tr.Transform, tr.Transform] = {}
     for t in resp:
-        if t.name in ("box_cox", "yeo_johnson") and not t.is_fitted:
+        if t.needs_lambda:
             if t in lams:
                 out[t] = tr.Transform(t.name, lam=lams[t])
             continue
@@ -928,7 +920,7 @@ def _ladder_reading(
     spec = e.spec
     t = spec.response_transform
     notes: list[dict[str, Any]] = []
-    if t.name in ("box_cox", "yeo_johnson") and (t.lam is None or t.estimated):
+    if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated):
         try:
             est = estimate_lambda(t.name, prep.y, build_design(spec, prep).X)
         except (CandidateFailure, ValueError):
@@ -1043,14 +1035,14 @@ def distinct_scales(
     if positive:  # Box-Cox or Yeo-Johnson with the same predictors, not both
         best_of: dict[tuple[tr.Transform, ...], Scored] = {}
         for e in kept:
-            if e.spec.response_transform.name in ("box_cox", "yeo_johnson"):
+            if e.spec.response_transform.name in tr.LAMBDA_NAMES:
                 k = tuple(p.transform for p in e.spec.predictors)
                 if k not in best_of or e.cv.value < best_of[k].cv.value:
                     best_of[k] = e
         kept = [
             e
             for e in kept
-            if e.spec.response_transform.name not in ("box_cox", "yeo_johnson")
+            if e.spec.response_transform.name not in tr.LAMBDA_NAMES
             or best_of[tuple(p.transform for p in e.spec.predictors)] is e
         ]
     listable = list(fixed.values()) + kept

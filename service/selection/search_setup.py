@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 
 from ..core.conditions import DEFAULT_ALPHA
-from ..core.crossval import CVResult
+from ..core.cvresult import CVResult
 from ..core.data import Prepared
 from ..core.errors import InputError, Option
 from ..core.numbers import count_of

@@ -231,7 +231,7 @@ def screened_search(
         t_key = ts
         opts_t = (
             options
-            if not (t.name in ("box_cox", "yeo_johnson") and not t.is_fitted)
+            if not t.needs_lambda
             else [[u for u in o if not bt.is_open(u)] for o in options]
         )
 

@@ -68,6 +68,7 @@ from ..core._types import Mapper
 from ..core.condition_rules import conditions_for, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import cross_validate
+from ..core.cvresult import pooled_folds, std_error_of
 from ..core.data import Prepared
 from ..core.errors import BestscaleError, CandidateFailure, InputError, Option
 from ..core.folds import CVPlan, make_plan
@@ -144,42 +145,6 @@ def wilson_interval(wins: int, n: int, z: float = _WILSON_Z) -> list[float] | No
     centre = (p + z * z / (2 * n)) / den
     half = z / den * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n))
     return [max(0.0, centre - half), min(1.0, centre + half)]
-
-
-def subset(prep: Prepared, rows: np.ndarray) -> Prepared:
-    """The prepared table restricted to ``rows`` (sorted distinct positions)."""
-    rows = np.asarray(rows)
-    order = None
-    if prep.order is not None:
-        keep = np.zeros(prep.n, dtype=bool)
-        keep[rows] = True
-        pos = np.full(prep.n, -1)
-        pos[rows] = np.arange(rows.size)
-        ordered = prep.order[keep[prep.order]]
-        order = pos[ordered]
-    return Prepared(
-        prep.response,
-        prep.y[rows],
-        list(prep.predictors),
-        {k: v[rows] for k, v in prep.numeric.items()},
-        {k: v[rows] for k, v in prep.categorical.items()},
-        prep.row_ids[rows],
-        order,
-        int(rows.size),
-        [],
-        0,
-        prep.table_columns,
-        prep.order_values[rows] if prep.order_values is not None else None,
-        prep.groups[rows] if prep.groups is not None else None,
-    )
-
-
-def _pooled(metric: str, values: np.ndarray, sizes: np.ndarray) -> float:
-    """Fold metrics pooled over rows the way :func:`cross_validate` pools them."""
-    w = sizes / sizes.sum()
-    if metric == "rmse":
-        return float(math.sqrt(float(np.sum(w * values * values))))
-    return float(np.sum(w * values))
 
 
 def _find(scored: list[Scored], key: str) -> Scored | None:
@@ -495,7 +460,7 @@ def _optimism(
             }
     inner = replace(opts, folds=inner_folds, repeats=1, top=1, incumbent=None)
     tasks = [
-        (subset(prep, np.flatnonzero(assign != k)), inner, service_version, deadline)
+        (prep.take(np.flatnonzero(assign != k)), inner, service_version, deadline)
         for k in range(outer_folds)
     ]
     picks = list(mapper(_inner_search, tasks))
@@ -550,10 +515,10 @@ def _optimism(
             "folds": rows,
             "problem": "the search could not be repeated inside any outer training part",
         }
-    sel = _pooled(metric, win_folds[ok], sizes[ok])
-    nest = _pooled(metric, nested[ok], sizes[ok])
+    sel = pooled_folds(metric, win_folds[ok], sizes[ok])
+    nest = pooled_folds(metric, nested[ok], sizes[ok])
     diff = nested[ok] - win_folds[ok]
-    gap_se = float(np.std(diff, ddof=1) / math.sqrt(diff.size)) if diff.size > 1 else None
+    gap_se = std_error_of(diff, diff.size) if diff.size > 1 else None
     return {
         **base,
         "selected_cv": sel,
@@ -587,7 +552,6 @@ def assess_trust(
     *,
     selection: Selection | None = None,
     outer_folds: int | None = None,
-    inner_folds: int = DEFAULT_INNER_FOLDS,
     time_limit_s: float | None = None,
     mapper: Mapper = map,
     chunks: int = 1,
@@ -597,7 +561,7 @@ def assess_trust(
     ``selection`` is what :func:`search.select` returned for ``prep`` and ``opts`` (its
     scored candidates are re-ranked; without it the search is run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
     resamples measure stability; ``outer_folds`` (default: the search's folds)
-    and ``inner_folds`` shape the nested cross-validation.  Every part ends by the
+    and ``DEFAULT_INNER_FOLDS`` shape the nested cross-validation.  Every part ends by the
     request's deadline (``opts.deadline``; else ``opts.time_limit_s`` from this call),
     or sooner with ``time_limit_s``; what the deadline cut short is stated (``complete``)
     and warned about.  ``mapper(fn, items)`` may spread the resamples (in ``chunks`` parts) and the outer folds over worker
@@ -665,7 +629,7 @@ def assess_trust(
                 "time limit; its interval is wider than asked for."
             )
     if optimism and not opts.stopped():
-        op = _optimism(prep, opts, winner, service_version, k_out, inner_folds, end, mapper)
+        op = _optimism(prep, opts, winner, service_version, k_out, DEFAULT_INNER_FOLDS, end, mapper)
         out["optimism"] = op
         if op.get("gap") is None:
             warnings.append(

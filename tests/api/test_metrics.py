@@ -104,3 +104,21 @@ def test_entry_point_prepares_a_fresh_directory_only_for_several_workers(monkeyp
     monkeypatch.setenv("PROMETHEUS_MULTIPROC_DIR", str(tmp_path))
     assert metrics_dir(3) == (str(tmp_path), False)
     assert not stale.exists() and keep.exists()  # earlier runs' values would be added
+
+
+def test_one_process_exposition_is_what_get_metrics_answers():
+    from fastapi.testclient import TestClient
+    from prometheus_client import CONTENT_TYPE_LATEST
+    from prometheus_client.parser import text_string_to_metric_families
+    from service.api import metrics
+    from service.app import app
+
+    text, media_type = metrics.exposition()
+    # source: prometheus_client's own parser of the text exposition format
+    names = {f.name for f in text_string_to_metric_families(text.decode())}
+    assert {"bestscale_pool_busy", "bestscale_pool_capacity"} <= names
+    # source: prometheus_client's CONTENT_TYPE_LATEST (the text format is text/plain)
+    assert media_type == CONTENT_TYPE_LATEST and media_type.startswith("text/plain")
+    r = TestClient(app).get("/metrics")
+    assert r.status_code == 200 and r.headers["content-type"] == media_type
+    assert names == {f.name for f in text_string_to_metric_families(r.text)}

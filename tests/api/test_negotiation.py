@@ -25,4 +25,33 @@ OFFER = ("application/json", "image/svg+xml", "image/png")
     ],
 )
 def test_preferred(accept, tie_to_default, want):
+    # source: RFC 9110, section 12.5.1 (q-values, wildcards, q=0 as not acceptable); the
+    # tie rules are this service's documented choice
     assert preferred(accept, OFFER, tie_to_default) == want
+
+
+@pytest.mark.parametrize(
+    "accept",
+    [
+        "image/png",
+        "image/png;q=0.5, image/svg+xml",
+        "application/json;q=0.9, image/png",
+        "image/*",
+        "image/*;q=0.8, application/json;q=0.5",
+        "*/*",
+        "text/html",
+        "image/svg+xml;q=0.2, image/png;q=0.3, application/json;q=0.1",
+        "image/png;q=0",
+        "application/*, image/png;q=0.5",
+        "image/png, image/svg+xml;q=0.9, */*;q=0.1",
+        "image/png, application/json",
+    ],
+)
+def test_the_choice_is_werkzeugs_where_q_values_or_the_default_decide(accept):
+    from werkzeug.datastructures import MIMEAccept
+    from werkzeug.http import parse_accept_header
+
+    # source: werkzeug's MIMEAccept.best_match, an independent RFC 9110 implementation
+    # (server preference on ties, as tie_to_default=True here: the offered order's first)
+    want = parse_accept_header(accept, MIMEAccept).best_match(OFFER, default=OFFER[0])
+    assert preferred(accept, OFFER, tie_to_default=True) == want

@@ -44,3 +44,10 @@ def test_problem_model_has_the_rfc_9457_members():
     props = rs.Problem.model_json_schema()["properties"]
     # source: RFC 9457 section 3.1
     assert {"type", "title", "status", "detail"} <= set(props)
+
+
+def test_the_conditions_model_lists_the_cores_conditions_in_order():
+    from service.core.conditions import CONDITION_NAMES
+
+    # the response model documents exactly what the core assesses (the contract's order)
+    assert tuple(rs.ConditionsOut.model_fields) == CONDITION_NAMES

@@ -22,7 +22,8 @@ import numpy as np
 import statsmodels.api as sm
 from _common import machine, pin_blas
 from service.core import _condition_tests as ct
-from service.core.conditions import ConditionInputs, TermInfo, assess_conditions
+from service.core.conditions import ConditionInputs, assess_conditions
+from service.core.spec import TermInfo
 from statsmodels.stats import diagnostic as smd
 
 

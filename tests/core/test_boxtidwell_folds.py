@@ -21,6 +21,7 @@ from service.core import boxtidwell as bt
 from service.core import fastcv
 from service.core import transforms as tr
 from service.core.bank import ColumnBank, FoldIndex
+from service.core.cvresult import Dynamic
 from service.core.folds import make_plan
 
 TRUE_POWERS = (0.5, -0.4, 0.0)  # the Box-Cox form; without an intercept the last is 1.3
@@ -235,7 +236,7 @@ def test_scoring_a_large_table_gives_the_fold_by_fold_numbers(monkeypatch):
     assert n * plan.folds > fastcv.POWER_BATCH_CELLS
     bank = ColumnBank.of_matrix(X, FoldIndex.of(plan, n))
     start = bt.estimate_powers(z, X, x).powers
-    dyn = fastcv.Dynamic([2], x[:, None], start)
+    dyn = Dynamic([2], x[:, None], start)
     t = tr.Transform("log", shift=0.0)
     calls = _count_exact(monkeypatch)
     fast = fastcv.Scorer(bank, y, plan, False).score(t, [0, 1], None, dyn)

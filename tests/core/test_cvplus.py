@@ -13,7 +13,7 @@ from fastapi.testclient import TestClient
 from service.app import app
 from service.core import cvplus
 from service.core import transforms as tr
-from service.core.fastcv import OutOfFold
+from service.core.cvresult import OutOfFold
 from service.core.model import checksum
 from sklearn.linear_model import LinearRegression
 from sklearn.model_selection import KFold

@@ -165,3 +165,38 @@ def test_split_groups_keeps_good_groups_and_explains_bad_ones():
     assert list(out) == ["a", "b"]
     assert out["a"].row_ids.tolist() == [0, 1, 2, 3]
     assert isinstance(out["b"], InputError) and "constant" in out["b"].detail
+
+
+def test_take_keeps_rows_their_cells_and_their_order():
+    rng = np.random.default_rng(0)
+    cols = {
+        "y": rng.uniform(1, 2, 12).tolist(),
+        "x": rng.uniform(1, 2, 12).tolist(),
+        "t": rng.permutation(12).tolist(),
+    }
+    prep = prepare({"csv": pd.DataFrame(cols).to_csv(index=False)}, "y", ["x"], order="t")
+    rows = np.array([0, 2, 3, 7, 8, 11])
+    sub = prep.take(rows)
+    # source: pandas .iloc of the same rows (a general-purpose table library)
+    assert sub.y.tolist() == pd.DataFrame(cols).iloc[rows]["y"].tolist()
+    assert sub.numeric["x"].tolist() == pd.DataFrame(cols).iloc[rows]["x"].tolist()
+    # source: definition of an ordering: the subset's rows sorted by the order column
+    # (numpy.argsort, stable)
+    expected = np.argsort([cols["t"][i] for i in rows], kind="stable")
+    assert sub.order.tolist() == expected.tolist()
+    # a cell of the subset still names the request's row and layout
+    assert sub.cell("x", 1) == Cell("x", 2, "csv")
+    assert sub.n == sub.rows_received == rows.size and sub.groups is None
+
+
+def test_take_of_a_group_is_the_segment_split_groups_gives():
+    cols = {
+        "y": [1.0, 2.0, 3.0, 4.0, 7.0, 5.0, 6.0],
+        "x": [1.0, 3.0, 2.0, 5.0, 1.0, 2.0, 3.0],
+        "g": ["a", "b", "a", "b", "a", "b", "a"],
+    }
+    p = prepare({"columns": cols}, "y", ["x"], group_by="g")
+    seg = split_groups(p)["a"]
+    # source: the rows whose group label is "a", read off the table above
+    assert seg.row_ids.tolist() == [0, 2, 4, 6]
+    assert seg.fingerprint() == p.take(np.array([0, 2, 4, 6])).fingerprint()

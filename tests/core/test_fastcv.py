@@ -92,7 +92,7 @@ def _bt_rss(z, Xf, x, a):
 def test_estimated_power_folds_equal_refits_at_each_folds_own_minimum(kind):
     from scipy.optimize import minimize_scalar
     from service.core import boxtidwell as bt
-    from service.core.fastcv import Dynamic
+    from service.core.cvresult import Dynamic
 
     rng = np.random.default_rng(zlib.crc32(kind.encode()))
     n = 200
@@ -135,8 +135,8 @@ def test_estimated_power_folds_equal_refits_at_each_folds_own_minimum(kind):
 
 def test_estimated_powers_that_fail_in_a_fold_fail_the_candidate_naming_the_fold(monkeypatch):
     from service.core import boxtidwell as bt
+    from service.core.cvresult import Dynamic
     from service.core.errors import CandidateFailure
-    from service.core.fastcv import Dynamic
 
     rng = np.random.default_rng(2)
     n = 150
@@ -179,7 +179,7 @@ def test_out_of_fold_alone_equals_the_first_repeat_of_a_full_scoring(family):
 
 def test_estimated_powers_with_a_log_shift_fitted_in_every_fold():
     from service.core import boxtidwell as bt
-    from service.core.fastcv import Dynamic
+    from service.core.cvresult import Dynamic
 
     rng = np.random.default_rng(23)
     n = 180
@@ -208,7 +208,7 @@ def test_estimated_powers_with_a_log_shift_fitted_in_every_fold():
 def test_large_tables_take_the_folds_one_by_one_with_the_same_results(monkeypatch):
     from service.core import boxtidwell as bt
     from service.core import fastcv
-    from service.core.fastcv import Dynamic
+    from service.core.cvresult import Dynamic
 
     rng = np.random.default_rng(29)
     n = 160

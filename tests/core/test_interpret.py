@@ -19,11 +19,11 @@ from scipy import special
 from service.core.data import prepare
 from service.core.interpret import (
     exact_percent,
-    fmt,
     interpret_fit,
     interpret_terms,
     shortcut_applies,
 )
+from service.core.numbers import fmt
 from service.core.spec import Specification
 from service.selection.entries import fitted_model
 

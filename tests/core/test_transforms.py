@@ -40,6 +40,23 @@ NONNEG = st.lists(
 )
 
 
+FAMILY_KINDS = [
+    "identity",
+    "log",
+    "sqrt",
+    "reciprocal",
+    "square",
+    "power",
+    "box_cox",
+    "yeo_johnson",
+]
+
+
+def test_the_property_tests_draw_every_numeric_family():
+    # a family added to the registry must be added to family_and_data below
+    assert sorted(FAMILY_KINDS) == sorted(tr.NUMERIC_NAMES)
+
+
 @st.composite
 def family_and_data(draw, away_from_zero: float = 0.0):
     """A concrete transform and values inside its domain (bounded so floats stay accurate).
@@ -47,11 +64,7 @@ def family_and_data(draw, away_from_zero: float = 0.0):
     ``away_from_zero`` moves values closer to 0 than that out to +-away_from_zero (for
     numerical derivatives, whose stencils must not cross a branch point or domain edge).
     """
-    kind = draw(
-        st.sampled_from(
-            ["identity", "log", "sqrt", "reciprocal", "square", "power", "box_cox", "yeo_johnson"]
-        )
-    )
+    kind = draw(st.sampled_from(FAMILY_KINDS))
     if kind == "identity":
         t, x = tr.Transform("identity"), np.array(draw(REAL))
     elif kind == "log":
@@ -325,3 +338,27 @@ def test_transform_labels_use_api_names_and_fields(t, label):
         name = label.split("(")[0]
         field = label.split(", ")[1].split("=")[0]
         assert name == t.name and field in t.to_dict()
+
+
+# ------------------------------------------------- domain masks and their wording
+def _stated(text: str, x: np.ndarray) -> np.ndarray:
+    """The inequality a domain phrase states (``values > -2.5``), evaluated on ``x``."""
+    if text == "values where it is finite":
+        return np.ones(x.shape, bool)
+    _, op, bound = text.split()
+    return x > float(bound) if op == ">" else x >= float(bound)
+
+
+@settings(max_examples=200, deadline=None, derandomize=True)
+@given(family_and_data(), st.lists(st.floats(-1e3, 1e3), min_size=1, max_size=20))
+def test_domain_mask_is_what_the_domain_text_states(case, extra):
+    t, inside = case
+    x = np.concatenate([inside, extra, [0.0, -0.0]])
+    mask = t.domain_mask(x)
+    # source: the phrase the messages use is the statement of the domain (one wording)
+    np.testing.assert_array_equal(mask, _stated(t.domain_text(), x))
+    # values drawn inside the family's domain are inside the mask
+    assert mask[: len(inside)].all()
+    # and inside the mask the forward map is finite (these values do not overflow)
+    with np.errstate(all="ignore"):
+        assert np.all(np.isfinite(t.forward(x[mask & (np.abs(x) > 1e-100)])))

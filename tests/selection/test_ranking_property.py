@@ -16,7 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.configuration import set_hypothesis_home_dir
 from service.core import transforms as tr
-from service.core.crossval import CVResult
+from service.core.cvresult import CVResult
 from service.core.spec import PredictorSpec, Specification
 from service.selection.search import (
     Band,

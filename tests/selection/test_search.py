@@ -5,7 +5,7 @@ import time
 import numpy as np
 import pytest
 from service.core import transforms as tr
-from service.core.crossval import CVResult
+from service.core.cvresult import CVResult
 from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design

@@ -20,7 +20,6 @@ from service.selection.trust import (
     has_estimated_power,
     label,
     scale_key,
-    subset,
     wilson_interval,
 )
 from statsmodels.stats.proportion import proportion_confint
@@ -73,22 +72,6 @@ def test_wilson_interval_matches_statsmodels(wins, n):
     # statsmodels.stats.proportion.proportion_confint(method="wilson")
     lo, hi = proportion_confint(wins, n, alpha=0.05, method="wilson")
     assert wilson_interval(wins, n) == pytest.approx([lo, hi], abs=1e-12)
-
-
-def test_subset_keeps_rows_and_their_order():
-    rng = np.random.default_rng(0)
-    cols = {
-        "y": rng.uniform(1, 2, 12).tolist(),
-        "x": rng.uniform(1, 2, 12).tolist(),
-        "t": rng.permutation(12).tolist(),
-    }
-    prep = prepare({"columns": cols}, "y", ["x"], order="t")
-    rows = np.array([0, 2, 3, 7, 8, 11])
-    sub = subset(prep, rows)
-    assert sub.y.tolist() == [cols["y"][i] for i in rows]
-    # source: definition of an ordering: the subset's rows sorted by the order column
-    expected = np.argsort([cols["t"][i] for i in rows], kind="stable")
-    assert sub.order.tolist() == expected.tolist()
 
 
 def test_stability_near_one_when_one_scale_is_clearly_right():

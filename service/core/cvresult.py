@@ -1,0 +1,135 @@
+"""What cross-validating one candidate gives back, and the one place its errors are formed.
+
+:class:`CVResult` is returned by every scoring path (:meth:`fastcv.Scorer.score`,
+:func:`batchcv.score_many`, :func:`crossval.cross_validate`) and kept by the search.
+:func:`error_of` turns every held-out row's error into RMSE, MAE or MAPE: a fold's error
+(its held-out rows), a repeat's pooled error (all rows once), for one candidate or for a
+batch of candidates side by side, and the pooled error of a set of folds from their fold
+errors (weighted by their row counts).  :func:`summary_of` and :func:`std_error_of` state
+how the repeats are combined and how uncertain the combined value is.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from . import transforms as tr
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .folds import CVPlan
+
+
+@dataclass
+class Dynamic:
+    """Design columns whose power is estimated inside every training fold."""
+
+    positions: list[int]  # where they sit in the candidate's design
+    x: np.ndarray  # (n, k) positive predictor values
+    start: np.ndarray  # (k,) all-rows estimate (warm start)
+    boxcox_form: bool = True
+    columns: tuple[str, ...] = ()  # the predictor columns, in design order
+
+
+@dataclass
+class OutOfFold:
+    """What the first repeat's K training fits leave behind, for CV+ prediction intervals.
+
+    ``fold``: (n,) fold id of every row; ``residual``: (n,) model-scale residual of every
+    row under the fit that did not see it, z_k(y_i) - x_i'b_k with k = fold[i] and z_k the
+    response scale fitted on that fold's training rows; ``coefficients``: (K, p) the
+    training fits b_k; ``transforms``: the K concrete response scales z_k.  With predictor
+    powers estimated inside every fold, ``dynamic`` says where their columns sit and
+    ``powers`` (K, j) holds fold k's estimates (fold k's design has w(x; powers[k]) there).
+    """
+
+    fold: np.ndarray
+    residual: np.ndarray
+    coefficients: np.ndarray
+    transforms: list[tr.Transform]
+    dynamic: Dynamic | None = None
+    powers: np.ndarray | None = None
+
+
+@dataclass
+class CVResult:
+    """One candidate's cross-validated errors on the original response scale."""
+
+    metric: str
+    value: float
+    std_error: float
+    fold_values: np.ndarray  # (repeats * folds,) metric per held-out fold
+    summary: dict[str, Any]  # all metrics: {"rmse": v, "mae": v, "mape": v | None}
+    fold_lambdas: list[float] | None = None
+    fold_powers: list[list[float]] | None = None  # per fold: estimated predictor powers
+    exact_refits: int = 0  # folds refitted by QR because their Gram matrix was ill-conditioned
+    out_of_fold: OutOfFold | None = None  # first repeat's fold fits (CV+ intervals), when asked
+
+    def to_dict(self, plan: CVPlan) -> dict[str, Any]:
+        return {
+            "metric": self.metric,
+            "value": self.value,
+            "std_error": self.std_error,
+            "scale": "original",
+            "folds": plan.folds,
+            "repeats": plan.repeats,
+            "seed": plan.seed,
+            "scheme": plan.scheme,
+            "all_metrics": self.summary,
+            "back_transform": "smeared mean (Duan 1983)"
+            if self.metric == "rmse"
+            else "median (naive inverse)",
+        }
+
+
+def error_of(
+    metric: str,
+    sq: np.ndarray,
+    ab: np.ndarray,
+    pc: np.ndarray | None,
+    weights: np.ndarray | None = None,
+) -> np.ndarray:
+    """``metric`` over axis 0 of every row's squared error ``sq`` (rmse), absolute error
+    ``ab`` (mae) and absolute relative error ``pc`` (mape; None where it is undefined,
+    which gives NaN): RMSE = sqrt(mean sq), MAE = mean ab, MAPE = 100 mean pc.  Columns
+    (axis 1) are candidates scored side by side.  ``weights``: the rows each entry stands
+    for (a fold's mean error in place of its rows), so fold errors pool to the error of
+    their rows together."""
+    if metric == "rmse":
+        return np.sqrt(np.average(sq, axis=0, weights=weights))
+    if metric == "mae":
+        return np.asarray(np.average(ab, axis=0, weights=weights))
+    if pc is None:
+        return np.full(np.shape(sq)[1:], math.nan)
+    return 100.0 * np.average(pc, axis=0, weights=weights)
+
+
+def pooled_folds(metric: str, values: np.ndarray, sizes: np.ndarray) -> float:
+    """The error of the rows of several folds together, from each fold's error ``values``
+    and row count ``sizes`` (a fold's RMSE squared is its mean squared error, its MAPE a
+    hundred times its mean relative error)."""
+    v = np.asarray(values, dtype=float)
+    return float(error_of(metric, v * v, v, v / 100.0, weights=np.asarray(sizes, dtype=float)))
+
+
+def summary_of(rmse: np.ndarray, mae: np.ndarray, mape: np.ndarray | None) -> dict[str, Any]:
+    """Every metric's cross-validated value: the mean over repeats of each repeat's pooled
+    error (``mape`` None when the response has a zero)."""
+    return {
+        "rmse": float(np.mean(rmse)),
+        "mae": float(np.mean(mae)),
+        "mape": float(np.mean(mape)) if mape is not None else None,
+    }
+
+
+def std_error_of(fold_values: np.ndarray, folds: int) -> float:
+    """The standard deviation of the R x K fold errors (or of two candidates' paired fold
+    differences) divided by sqrt(K): repeats do not add independent information (Bengio &
+    Grandvalet 2004: no unbiased estimator exists; this one is naive).  0 with a single
+    fold value."""
+    if fold_values.size <= 1:
+        return 0.0
+    return float(np.std(fold_values, ddof=1) / math.sqrt(folds))

@@ -1,0 +1,60 @@
+"""One list of families: the registry, the catalogue (GET /v1/transforms), the request
+schema's enum and the model loader agree."""
+
+from __future__ import annotations
+
+import json
+import typing
+from pathlib import Path
+
+import pytest
+from service.api.schemas import TransformIn, TransformName
+from service.core.transforms import (
+    ALL_NAMES,
+    CATALOGUE,
+    FAMILIES,
+    LAMBDA_NAMES,
+    NUMERIC_NAMES,
+    Transform,
+    from_dict,
+)
+from service.core.transforms.registry import family_of
+
+EXAMPLES = Path(__file__).resolve().parents[3] / "openapi_examples"
+
+
+def test_registry_catalogue_and_schema_name_the_same_families_in_one_order():
+    assert list(FAMILIES) == list(ALL_NAMES)
+    assert [e["name"] for e in CATALOGUE] == list(ALL_NAMES)
+    assert list(typing.get_args(TransformName)) == list(ALL_NAMES)
+    enum = TransformIn.model_json_schema()["properties"]["name"]["enum"]
+    assert enum == list(ALL_NAMES)
+    assert tuple(n for n in ALL_NAMES if n != "categorical") == NUMERIC_NAMES
+    assert LAMBDA_NAMES == ("box_cox", "yeo_johnson")
+
+
+def test_the_shipped_catalogue_example_is_the_registrys():
+    shipped = json.loads((EXAMPLES / "transforms.response.json").read_text())
+    assert shipped["transforms"] == CATALOGUE
+
+
+@pytest.mark.parametrize("name", ALL_NAMES)
+def test_each_catalogued_parameter_is_a_field_of_the_contract_form(name):
+    entry = next(e for e in CATALOGUE if e["name"] == name)
+    example = {
+        p["name"]: ("b" if p["name"] == "reference" else p["example"]) for p in entry["parameters"]
+    }
+    t = from_dict({"name": name, **example})
+    assert set(t.to_dict()) - {"name", "estimated"} == set(example)
+    assert from_dict(t.to_dict()) == t
+    # every place the catalogue names has a rule for each parameter it leaves out
+    for p in entry["parameters"]:
+        assert set(p["when_omitted"]) <= {"response", "predictor", "predictor_search"}
+        assert set(entry["applies_to"]) <= set(p["when_omitted"]) | {"predictor_search"}
+
+
+def test_an_unknown_name_is_refused_where_the_value_is_built():
+    with pytest.raises(ValueError, match="no transform family is called 'cube'"):
+        Transform("cube")
+    with pytest.raises(ValueError, match="no transform family is called 'cube'"):
+        family_of("cube")
