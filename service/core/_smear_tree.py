@@ -1,27 +1,29 @@
-"""Smeared means of power-type inverses in O((m + n) log n) with a stated error bound.
+"""Smeared means of power-type inverses with a stated error bound.
 
 For the families whose inverse is a power of an affine function on the region
 where it is defined, g^-1(u) = beta (gamma + delta u)^p where the base is
 positive, and 0 (a clip) or undefined (left out of the mean) elsewhere --
 square, reciprocal, power q, Box-Cox lambda != 0 -- the smeared mean
-S(eta) = mean_i g^-1(eta + e_i) is computed from a binary tree over the
-sorted residuals (a one-dimensional tree code):
+S(eta) = mean_i g^-1(eta + e_i) (Duan 1983) is a sum of powers of bases
+b_i = A + |delta| s_i (A = gamma + delta eta, s = sign(delta) e).  A group of
+terms around a centre c with half-width r sums to b_c^p sum_t C(p, t) M_t rho^t,
+rho = |delta| r / b_c, M_t the scaled central moments of the group: a binomial
+(Taylor) series whose remainder after J terms is bounded in closed form.
 
-* every block of the tree stores its centre c, half-width r and scaled central
-  moments sum_i ((s_i - c)/r)^t, t < J (s = sign(delta) e, so the defined terms
-  are a suffix of the sorted s);
-* for each eta the defined suffix is split into O(log n) aligned blocks; a
-  block whose relative distance rho = |delta| r / base(c) to the singular point
-  is at most ``rho_ok`` is summed by its J-term binomial (Taylor) series,
-  otherwise its two children are tried; leaves that still fail are summed
-  exactly.
+* :func:`smear_power_root`: all residuals as one group, for the etas far from
+  the singular point (J = 30);
+* :func:`smear_power_binned`: nested bins of the sorted residuals, each bin by
+  its series where the bound allows it (J = 16), the bins next to the pole,
+  clip or domain cut term by term;
+* :func:`exact_power`: the exact double sum (what the others are tested
+  against, and used for a handful of etas).
 
-Error bound: a Taylor-summed block's relative error is at most
-T_J(rho) / m_p(rho), where T_J(rho) = sum_{t >= J} |C(p, t)| rho^t bounds every
-term's remainder and m_p(rho) = min_{|s| <= rho} (1 + s)^p bounds the terms from
-below; ``rho_ok`` is the largest rho with that ratio <= ``TREE_RTOL`` (found
-once per exponent).  All terms have the sign of beta, so the mean has the same
-relative error bound (plus rounding).
+Error bound of a series: its relative error is at most T_J(rho) / m_p(rho),
+where T_J(rho) = sum_{t >= J} |C(p, t)| rho^t bounds every term's remainder and
+m_p(rho) = min_{|s| <= rho} (1 + s)^p bounds the terms from below; ``rho_ok``
+is the largest rho with that ratio <= the stated bound (TREE_RTOL, BIN_RTOL,
+both 1e-12; found once per exponent).  All terms have the sign of beta, so the
+mean has the same relative error bound (plus rounding).
 """
 
 from __future__ import annotations
@@ -32,27 +34,28 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ._types import FloatArray
+
 if TYPE_CHECKING:  # pragma: no cover
     from .transforms import Transform
 
 TREE_RTOL = 1e-12  # bound on the Taylor remainder of every block (relative)
 J = 30  # series terms per block
-LEAF = 16  # residuals per leaf
 
 
-def _rho_ok(p: float) -> float:
-    """Largest rho in (0, 0.9] with T_J(rho) / m_p(rho) <= TREE_RTOL.
+def _rho_ok(p: float, terms: int = J, rtol: float = TREE_RTOL) -> float:
+    """Largest rho in (0, 0.9] with T_J(rho) / m_p(rho) <= ``rtol`` (J = ``terms``).
 
     T_J(rho) = sum_{t >= J} |C(p, t)| rho^t: the terms up to t0 = max(J, |p| + 1)
     are summed, the rest bounded by a geometric series with ratio rho q, where
     q = max(1, (t0 - p) / (t0 + 1)) bounds |C(p, t+1) / C(p, t)| = |t - p| / (t + 1)
     for every t >= t0.
     """
-    return _rho_ok_cached(round(float(p), 12))
+    return _rho_ok_cached(round(float(p), 12), terms, rtol)
 
 
 @lru_cache(maxsize=4096)
-def _rho_ok_cached(p: float) -> float:
+def _rho_ok_cached(p: float, J: int, rtol: float) -> float:
     poly = p >= 0 and abs(p - round(p)) < 1e-12
     if poly and round(p) < J:
         return 0.9  # a polynomial of degree < J: the series is exact
@@ -76,7 +79,7 @@ def _rho_ok_cached(p: float) -> float:
             tail = tail + (last if poly else np.where(rho * q < 1, last / (1.0 - rho * q), np.inf))
             tail = np.where(np.max(expo, axis=1) > 700, np.inf, tail)
             m = (1.0 - rho) ** p if p > 0 else (1.0 + rho) ** p
-            ok[a : a + step] = tail / m <= TREE_RTOL
+            ok[a : a + step] = tail / m <= rtol
         del expo, terms
     rho = _RHO_GRID
     if not ok[0]:
@@ -90,17 +93,13 @@ _MAX_CELLS = 1 << 18  # 2 MB per temporary array of the remainder bound
 
 
 @lru_cache(maxsize=256)
-def _binom_row(p: float) -> np.ndarray:
-    """C(p, t) for t < J (signed)."""
-    out = np.empty(J)
+def _binom_row(p: float, terms: int = J) -> np.ndarray:
+    """C(p, t) for t < ``terms`` (signed)."""
+    out = np.empty(terms)
     out[0] = 1.0
-    for j in range(1, J):
+    for j in range(1, terms):
         out[j] = out[j - 1] * (p - (j - 1)) / j
     return out
-
-
-_FACT = np.array([float(math.factorial(t)) for t in range(J)])
-_INV_FACT = 1.0 / _FACT
 
 
 def _powers(x: np.ndarray, k: int) -> np.ndarray:
@@ -109,196 +108,6 @@ def _powers(x: np.ndarray, k: int) -> np.ndarray:
     out[..., 0] = 1.0
     out[..., 1:] = x[..., None]
     np.cumprod(out[..., 1:], axis=-1, out=out[..., 1:])
-    return out
-
-
-class _Tree:
-    """Blocks over sorted values s (n,): centre, half-width, count and scaled moments."""
-
-    def __init__(self, s: np.ndarray):
-        n = s.size
-        self.s = s
-        nl = max(1, -(-n // LEAF))
-        levels = max(1, math.ceil(math.log2(nl)) + 1)
-        size = 1 << (levels - 1)  # leaves, padded to a power of two
-        self.levels = levels
-        self.n = n
-        start = np.arange(size) * LEAF
-        end = np.minimum(start + LEAF, n)
-        cnt = np.maximum(end - start, 0)
-        lo = np.where(cnt > 0, s[np.minimum(start, n - 1)], 0.0)
-        hi = np.where(cnt > 0, s[np.maximum(end - 1, 0)], 0.0)
-        c = 0.5 * (lo + hi)
-        r = 0.5 * (hi - lo)
-        rs = np.where(r > 0, r, 1.0)
-        # leaf moments: sum ((s - c)/r)^t over members
-        pad = np.full(size * LEAF, np.nan)
-        pad[:n] = s
-        block = pad.reshape(size, LEAF)
-        u = (block - c[:, None]) / rs[:, None]
-        u = np.where(np.isnan(u), 0.0, u)
-        member = (~np.isnan(block)).astype(float)
-        M = np.empty((size, J))
-        for s0 in range(0, size, 2048):  # in chunks: the powers of 2048 leaves fit in cache
-            M[s0 : s0 + 2048] = np.einsum(
-                "blt,bl->bt", _powers(u[s0 : s0 + 2048], J), member[s0 : s0 + 2048]
-            )
-        self.cen, self.rad, self.cnt, self.mom = [c], [r], [cnt], [M]
-        self.lo, self.hi = [lo], [hi]
-        for _ in range(1, levels):
-            c0, r0, n0, M0 = self.cen[-1], self.rad[-1], self.cnt[-1], self.mom[-1]
-            lo0, hi0 = self.lo[-1], self.hi[-1]
-            a, b = slice(0, None, 2), slice(1, None, 2)
-            na, nb = n0[a], n0[b]
-            lo1 = np.where(na > 0, lo0[a], lo0[b])
-            hi1 = np.where(nb > 0, hi0[b], hi0[a])
-            c1 = 0.5 * (lo1 + hi1)
-            r1 = 0.5 * (hi1 - lo1)
-            r1s = np.where(r1 > 0, r1, 1.0)
-            M1 = self._shift(M0[a], c0[a], r0[a], c1, r1s, na) + self._shift(
-                M0[b], c0[b], r0[b], c1, r1s, nb
-            )
-            self.cen.append(c1)
-            self.rad.append(r1)
-            self.cnt.append(na + nb)
-            self.mom.append(M1)
-            self.lo.append(lo1)
-            self.hi.append(hi1)
-
-    @staticmethod
-    def _shift(
-        M: np.ndarray,
-        c: np.ndarray,
-        r: np.ndarray,
-        c1: np.ndarray,
-        r1s: np.ndarray,
-        cnt: np.ndarray,
-    ) -> np.ndarray:
-        """Scaled moments about a child's centre moved to the parent's centre and scale.
-
-        M1_t = sum_a C(t, a) d^(t-a) q^a M_a, computed as the truncated convolution
-        M1_t / t! = sum_k (d^k / k!) (q^(t-k) M_(t-k) / (t-k)!), one (blocks, J) update per
-        k, so no (blocks, J, J) array is formed.
-        """
-        d = (c - c1) / r1s  # |d| + r/r1 <= 1
-        q = np.where(r > 0, r / r1s, 0.0)
-        N = M * _powers(q, J) * _INV_FACT[None, :]
-        dk = _powers(d, J) * _INV_FACT[None, :]
-        out = N * dk[:, :1]
-        for k in range(1, J):
-            out[:, k:] += dk[:, k : k + 1] * N[:, : J - k]
-        out *= _FACT[None, :]
-        return np.where(cnt[:, None] > 0, out, 0.0)
-
-
-def smear_power(
-    eta: np.ndarray,
-    e: np.ndarray,
-    beta: float,
-    gamma: float,
-    delta: float,
-    p: float,
-    outside_zero: bool,
-) -> np.ndarray:
-    """mean_i of beta (gamma + delta (eta + e_i))^p over the defined terms (base > 0).
-
-    Terms with base <= 0 count as 0 when ``outside_zero`` (a clip) and are left
-    out of the mean otherwise; ``nan`` where no term is defined.  Relative error
-    at most TREE_RTOL plus rounding.
-    """
-    eta = np.asarray(eta, dtype=float)
-    sg = 1.0 if delta > 0 else -1.0
-    ad = abs(delta)
-    s = np.sort(sg * np.asarray(e, dtype=float))
-    n = s.size
-    A = gamma + delta * eta  # base = A + ad * s
-    with np.errstate(divide="ignore", invalid="ignore"):
-        sstar = -A / ad
-    i0 = np.searchsorted(s, sstar, side="right")  # first defined term
-    tree = _Tree(s)
-    total = np.zeros(eta.size)
-    m = eta.size
-    rho_ok = _rho_ok(float(p))
-    cp = _binom_row(float(p))
-
-    def add_exact(eid: np.ndarray, idx: np.ndarray) -> None:
-        """Exact terms for (eta id, element index) pairs (idx >= i0 guaranteed)."""
-        if eid.size == 0:
-            return
-        base = A[eid] + ad * s[idx]
-        v = beta * np.power(base, p)
-        total[:] += np.bincount(eid, weights=v, minlength=m)
-
-    # the partial first leaf: elements i0 .. end of its leaf
-    first_leaf = i0 // LEAF
-    full_from = np.where(i0 % LEAF == 0, first_leaf, first_leaf + 1)
-    off = np.arange(LEAF)
-    idx = (first_leaf * LEAF)[:, None] + off[None, :]
-    use = (idx >= i0[:, None]) & (idx < n) & (i0[:, None] < n) & (i0 % LEAF != 0)[:, None]
-    eid = np.broadcast_to(np.arange(m)[:, None], idx.shape)[use]
-    add_exact(eid, idx[use])
-    # aligned blocks covering leaves [full_from, size): canonical decomposition
-    size = 1 << (tree.levels - 1)
-    lidx = full_from.astype(np.int64)
-    ridx = np.full(m, size, dtype=np.int64)
-    items_e, items_l, items_b = [], [], []
-    for lev in range(tree.levels):
-        take = (lidx < ridx) & (lidx % 2 == 1)
-        items_e.append(np.flatnonzero(take))
-        items_l.append(np.full(int(take.sum()), lev))
-        items_b.append(lidx[take])
-        lidx = np.where(take, lidx + 1, lidx)
-        take_r = (lidx < ridx) & (ridx % 2 == 1)
-        ridx = np.where(take_r, ridx - 1, ridx)
-        items_e.append(np.flatnonzero(take_r))
-        items_l.append(np.full(int(take_r.sum()), lev))
-        items_b.append(ridx[take_r])
-        lidx //= 2
-        ridx //= 2
-    pe = np.concatenate(items_e)
-    pl = np.concatenate(items_l)
-    pb = np.concatenate(items_b)
-    while pe.size:
-        nxt_e, nxt_l, nxt_b = [], [], []
-        for lev in np.unique(pl):
-            sel = pl == lev
-            e_, b_ = pe[sel], pb[sel]
-            cnt = tree.cnt[lev][b_]
-            keep = cnt > 0
-            e_, b_, cnt = e_[keep], b_[keep], cnt[keep]
-            if e_.size == 0:
-                continue
-            c = tree.cen[lev][b_]
-            r = tree.rad[lev][b_]
-            base = A[e_] + ad * c
-            rho = ad * r / base
-            good = (base > 0) & (rho <= rho_ok)
-            if np.any(good):
-                g = good
-                series = np.einsum(
-                    "bt,bt->b", _powers(rho[g], J) * cp[None, :], tree.mom[lev][b_[g]]
-                )
-                val = beta * np.power(base[g], p) * series
-                total[:] += np.bincount(e_[g], weights=val, minlength=m)
-            bad = ~good
-            if lev == 0:
-                if np.any(bad):
-                    eb, bb = e_[bad], b_[bad]
-                    idx = bb[:, None] * LEAF + off[None, :]
-                    ok = idx < n
-                    eid = np.broadcast_to(eb[:, None], idx.shape)[ok]
-                    add_exact(eid, idx[ok])
-            elif np.any(bad):
-                eb, bb = e_[bad], b_[bad]
-                nxt_e += [eb, eb]
-                nxt_l += [np.full(eb.size, lev - 1)] * 2
-                nxt_b += [2 * bb, 2 * bb + 1]
-        if not nxt_e:
-            break
-        pe, pl, pb = np.concatenate(nxt_e), np.concatenate(nxt_l), np.concatenate(nxt_b)
-    count = np.full(m, float(n)) if outside_zero else (n - i0).astype(float)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out = np.where(count > 0, total / np.maximum(count, 1.0), np.nan)
     return out
 
 
@@ -387,3 +196,291 @@ def exact_power(
         with np.errstate(invalid="ignore", divide="ignore"):
             out[a : a + step] = np.where(np.asarray(cnt) > 0, tot / np.maximum(cnt, 1.0), np.nan)
     return out
+
+
+BIN_RTOL = 1e-12  # bound on the remainder of every binned series (relative)
+BIN_J = 16  # series terms per bin
+BIN_LEAF = 32  # residuals per finest bin (summed exactly where its series is not allowed)
+BIN_SPLIT = 8  # finer bins per bin
+BIN_TOP = 64  # at most this many bins at the coarsest level
+_BIN_ETAS = 1024  # etas per block of the binned path
+
+
+def bin_sizes(n: int) -> list[int]:
+    """Residuals per bin at each level of the binned path, coarsest first: BIN_LEAF times
+    powers of BIN_SPLIT, the coarsest with at most BIN_TOP bins."""
+    sizes = [BIN_LEAF]
+    while -(-n // sizes[0]) > BIN_TOP:
+        sizes.insert(0, sizes[0] * BIN_SPLIT)
+    return sizes
+
+
+class _Bins:
+    """Bins of sorted values at every level: bounds, counts and series coefficients."""
+
+    def __init__(self, s: np.ndarray, p: float, sizes: list[int]):
+        n = s.size
+        top = sizes[0]
+        size = -(-n // top) * top
+        pad = np.full(size, -np.inf)  # a padded slot has base -inf: never a defined term
+        pad[:n] = s
+        self.pad = pad
+        self.sizes = sizes
+        self.n = n
+        cp = _binom_row(float(p), BIN_J)
+        self.lo, self.hi, self.c, self.r, self.cnt, self.coef = [], [], [], [], [], []
+        for L in sizes:
+            S = pad.reshape(-1, L)
+            member = np.isfinite(S)
+            cnt = member.sum(axis=1)
+            last = np.maximum(cnt - 1, 0)
+            lo = np.where(cnt > 0, S[:, 0], 0.0)
+            hi = np.where(cnt > 0, S[np.arange(S.shape[0]), last], 0.0)
+            c = 0.5 * (lo + hi)
+            r = 0.5 * (hi - lo)
+            lo = np.where(cnt > 0, lo, -np.inf)  # an empty bin: no defined term, no series
+            hi = np.where(cnt > 0, hi, -np.inf)
+            rs = np.where(r > 0, r, 1.0)
+            u = np.where(member, (S - c[:, None]) / rs[:, None], 0.0)  # 0 in a padded slot
+            mom = np.empty((BIN_J, S.shape[0]))
+            mom[0] = cnt
+            acc = u.copy()
+            for t in range(1, BIN_J):  # scaled moments sum u^t, one power at a time
+                mom[t] = acc.sum(axis=1)
+                acc *= u
+            self.lo.append(lo)
+            self.hi.append(hi)
+            self.c.append(c)
+            self.r.append(r)
+            self.cnt.append(cnt)
+            self.coef.append(np.ascontiguousarray(mom * cp[:, None]))  # (J, bins): C(p,t) M
+
+
+def smear_power_binned(
+    eta: np.ndarray,
+    e: np.ndarray,
+    beta: float,
+    gamma: float,
+    delta: float,
+    p: float,
+    outside_zero: bool,
+) -> np.ndarray:
+    """mean_i of beta (gamma + delta (eta + e_i))^p over the defined terms (base > 0), from
+    nested bins of the sorted residuals (the semantics of :func:`smear_power` and
+    :func:`exact_power`).
+
+    The sorted values s = sign(delta) e are cut into bins of consecutive values at a few
+    levels (:func:`bin_sizes`: BIN_LEAF = 8 values per finest bin, BIN_SPLIT = 8 finer bins
+    per bin, at most BIN_TOP = 64 bins at the top).  Bin k has centre c_k, half-width r_k and
+    scaled moments M_kt = sum_{i in k} ((s_i - c_k)/r_k)^t, t < BIN_J, computed once.  For
+    an eta the base of a term is b_i = A + |delta| s_i with A = gamma + delta eta, and a
+    bin's terms sum to
+
+        beta b_c^p sum_i (1 + rho u_i)^p = beta b_c^p sum_t C(p, t) M_kt rho^t + remainder,
+
+    with b_c = A + |delta| c_k, rho = |delta| r_k / b_c and u_i in [-1, 1].  A bin whose lowest
+    base is positive and whose rho is at most ``rho_ok`` = :func:`_rho_ok` (p, BIN_J,
+    BIN_RTOL) is summed by that series (Horner in rho); its remainder is at most
+    T_J(rho) / m_p(rho) <= BIN_RTOL of the bin's sum, where T_J(rho) = sum_{t >= BIN_J}
+    |C(p, t)| rho^t bounds every term's remainder (|u_i| <= 1) and m_p(rho) = min over
+    |x| <= rho of (1 + x)^p bounds each term from below.  A bin that fails the test and
+    holds a defined term (next to the pole, the clip or the domain cut, or too wide for its
+    distance from it) is tried as its finer bins; a finest bin that fails is summed exactly,
+    term by term, as :func:`exact_power` does.  A bin whose highest base is <= 0 holds no
+    defined term (clipped to 0 or left out of the mean).  The rounded base of a term is
+    monotone in s, so the defined terms are the ones :func:`exact_power` counts.
+
+    Error bound: all terms have the sign of beta, so the mean's relative error is at most
+    BIN_RTOL (1e-12) plus rounding: the series adds a few units of 1e-16 relative, and
+    both this path and the exact sum round each base A + |delta| s_i, whose relative error
+    eps (|A| + |delta s_i|) / b_i is multiplied by |p| in the term.
+    """
+    eta = np.asarray(eta, dtype=float)
+    e = np.asarray(e, dtype=float)
+    n, m = e.size, eta.size
+    out = np.full(m, np.nan)
+    if n == 0 or m == 0:
+        return out
+    ad = abs(delta)
+    bins = _Bins(np.sort((1.0 if delta > 0 else -1.0) * e), p, bin_sizes(n))
+    rho_ok = _rho_ok(float(p), BIN_J, BIN_RTOL)
+    for a in range(0, m, _BIN_ETAS):
+        A = gamma + delta * eta[a : a + _BIN_ETAS]
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            total, count = _binned_block(A, ad, bins, rho_ok, beta, p)
+            if outside_zero:
+                count = np.full(A.size, float(n))
+            out[a : a + _BIN_ETAS] = np.where(count > 0, total / np.maximum(count, 1.0), np.nan)
+    return out
+
+
+def _binned_block(
+    A: np.ndarray,
+    ad: float,
+    bins: _Bins,
+    rho_ok: float,
+    beta: float,
+    p: float,
+    win: tuple[np.ndarray, np.ndarray] | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """(sum of the defined terms, their number) for each A of one block of etas: every
+    (eta, top bin) pair on a dense grid, the failed pairs' finer bins as lists of pairs.
+    ``win`` = (lo, hi): only the sorted positions lo <= i < hi of each eta take part."""
+    m = A.size
+    L0 = bins.sizes[0]
+    # the top level on the dense (etas, bins) grid: broadcasting, no gathers
+    bc = A[:, None] + ad * bins.c[0][None, :]
+    rho = (ad * bins.r[0])[None, :] / bc
+    series = (A[:, None] + ad * bins.lo[0][None, :] > 0) & (rho <= rho_ok)
+    rest = A[:, None] + ad * bins.hi[0][None, :] > 0
+    if win is not None:
+        first = np.arange(bins.lo[0].size) * L0
+        last = np.minimum(first + L0, bins.n)
+        series &= (first[None, :] >= win[0][:, None]) & (last[None, :] <= win[1][:, None])
+        rest &= (last[None, :] > win[0][:, None]) & (first[None, :] < win[1][:, None])
+    x = np.where(series, rho, 0.0)
+    coef = bins.coef[0]
+    acc = np.empty_like(x)
+    acc[:] = coef[-1][None, :]
+    for t in range(BIN_J - 2, -1, -1):  # Horner in rho
+        acc *= x
+        acc += coef[t][None, :]
+    acc *= _pow(np.where(series, bc, 1.0), p)
+    total = np.where(series, acc, 0.0).sum(axis=1)
+    count = (series * bins.cnt[0][None, :]).sum(axis=1).astype(float)
+    ei, bi = np.nonzero(~series & rest)
+    for lev in range(1, len(bins.sizes) + 1):
+        if ei.size == 0:
+            break
+        L = bins.sizes[lev - 1]
+        if lev == len(bins.sizes):  # the failed finest bins: term by term
+            base = A[ei][:, None] + ad * bins.pad.reshape(-1, L)[bi]
+            ok = base > 0
+            if win is not None:
+                pos = bi[:, None] * L + np.arange(L)[None, :]
+                ok &= (pos >= win[0][ei][:, None]) & (pos < win[1][ei][:, None])
+            v = np.where(ok, _pow(np.where(ok, base, 1.0), p), 0.0).sum(axis=1)
+            total += np.bincount(ei, weights=v, minlength=m)
+            count += np.bincount(ei, weights=ok.sum(axis=1), minlength=m)
+            break
+        g = L // bins.sizes[lev]
+        ei = np.repeat(ei, g)  # the finer bins of the failed ones
+        bi = (bi[:, None] * g + np.arange(g)[None, :]).ravel()
+        Ae = A[ei]
+        bc = Ae + ad * bins.c[lev][bi]
+        rho = ad * bins.r[lev][bi] / bc
+        series = (Ae + ad * bins.lo[lev][bi] > 0) & (rho <= rho_ok)
+        rest = Ae + ad * bins.hi[lev][bi] > 0
+        if win is not None:
+            first = bi * bins.sizes[lev]
+            last = np.minimum(first + bins.sizes[lev], bins.n)
+            wl, wh = win[0][ei], win[1][ei]
+            series &= (first >= wl) & (last <= wh)
+            rest &= (last > wl) & (first < wh)
+        if np.any(series):
+            es, bs, xs = ei[series], bi[series], rho[series]
+            coef = bins.coef[lev]
+            acc = coef[-1][bs]
+            for t in range(BIN_J - 2, -1, -1):
+                acc *= xs
+                acc += coef[t][bs]
+            acc *= _pow(bc[series], p)
+            total += np.bincount(es, weights=acc, minlength=m)
+            count += np.bincount(es, weights=bins.cnt[lev][bs], minlength=m)
+        rest &= ~series
+        ei, bi = ei[rest], bi[rest]
+    return total * beta, count
+
+
+def _pow(x: FloatArray, p: float) -> FloatArray:
+    """x ** p with the cheaper ufunc for the common exponents (as :func:`exact_power`)."""
+    out: FloatArray
+    if p == 0.5:
+        out = np.sqrt(x)
+    elif p == -1.0:
+        out = np.reciprocal(x)
+    elif p == 2.0:
+        out = x * x
+    else:
+        out = np.power(x, p)
+    return out
+
+
+def smear_yeo_johnson(eta: np.ndarray, e: np.ndarray, lam: float) -> FloatArray:
+    """mean_i of the Yeo-Johnson inverse at eta + e_i over the defined terms (Yeo & Johnson
+    2000), by the binned series of each branch (``nan`` where no term is defined).
+
+    The inverse is two power forms joined at z = 0: for z >= 0, (1 + lam z)^(1/lam) - 1
+    (expm1(z) at lam = 0; undefined past the pole z = -1/lam when lam < 0), for z < 0,
+    1 - (1 - (2 - lam) z)^(1/(2 - lam)) (-expm1(-z) at lam = 2; undefined below
+    z = -1/(lam - 2) when lam > 2).  With the residuals sorted, the terms with z >= 0 are
+    a suffix (e_i >= -eta), so each branch is :func:`smear_power_binned`'s sum restricted
+    to a window of sorted positions: bins inside the window by their series where the
+    bound allows it, bins cut by the window or next to a pole term by term.  An exp
+    branch is exp(eta) times prefix (or suffix) sums of exp(e_i), exactly.
+
+    Error bound: within a branch every term is +-(1 + |y_i|) -+ 1 with the power part
+    1 + |y_i| = base^p of one sign, so the series' error is at most BIN_RTOL (1e-12) of
+    the sum of 1 + |y_i|: |error of the mean| <= 1e-12 mean_i (1 + |y_i|) plus rounding
+    (each base's rounding times |p|, as for the other power forms).  The mean itself can be
+    near 0 (terms of both signs); the bound is absolute on that scale.
+    """
+    eta = np.asarray(eta, dtype=float)
+    e = np.asarray(e, dtype=float)
+    n, m = e.size, eta.size
+    out = np.full(m, np.nan)
+    if n == 0 or m == 0:
+        return out
+    es = np.sort(e)
+    total = np.zeros(m)
+    count = np.zeros(m)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        k0 = np.searchsorted(es, -eta, side="left")  # e_i >= -eta (z >= 0) from k0 on
+        # z >= 0
+        if abs(lam) < 1e-12:  # expm1(z): exp(eta) sum exp(e_i) over the suffix
+            top = es[-1]
+            suf = np.concatenate([np.cumsum(np.exp(es - top)[::-1])[::-1], [0.0]])
+            total += np.exp(eta + top) * suf[k0] - (n - k0)
+            count += n - k0
+        else:
+            win = (k0, np.full(m, n)) if lam > 0 else (np.zeros(m, np.intp), n - k0)
+            t, c = _windowed(eta, es, 1.0, 1.0, lam, 1.0 / lam, win)
+            total += t - c
+            count += c
+        # z < 0
+        if abs(lam - 2.0) < 1e-12:  # -expm1(-z): count - exp(-eta) sum exp(-e_i), prefix
+            bot = es[0]
+            pre = np.concatenate([[0.0], np.cumsum(np.exp(bot - es))])
+            total += k0 - np.exp(-eta - bot) * pre[k0]
+            count += k0
+        else:
+            win = (n - k0, np.full(m, n)) if lam < 2.0 else (np.zeros(m, np.intp), k0)
+            t, c = _windowed(eta, es, -1.0, 1.0, lam - 2.0, 1.0 / (2.0 - lam), win)
+            total += t + c
+            count += c
+        out = np.where(count > 0, total / np.maximum(count, 1.0), np.nan)
+    return out
+
+
+def _windowed(
+    eta: np.ndarray,
+    es: np.ndarray,
+    beta: float,
+    gamma: float,
+    delta: float,
+    p: float,
+    win: tuple[np.ndarray, np.ndarray],
+) -> tuple[np.ndarray, np.ndarray]:
+    """(sum, number) of the defined terms beta (gamma + delta (eta + e_i))^p over the
+    sorted positions of s = sign(delta) e in each eta's window (``es``: e sorted)."""
+    s = es if delta > 0 else -es[::-1]
+    ad = abs(delta)
+    bins = _Bins(s, p, bin_sizes(s.size))
+    rho_ok = _rho_ok(float(p), BIN_J, BIN_RTOL)
+    total = np.empty(eta.size)
+    count = np.empty(eta.size)
+    for a in range(0, eta.size, _BIN_ETAS):
+        sl = slice(a, a + _BIN_ETAS)
+        A = gamma + delta * eta[sl]
+        total[sl], count[sl] = _binned_block(A, ad, bins, rho_ok, beta, p, (win[0][sl], win[1][sl]))
+    return total, count

@@ -13,17 +13,20 @@ number of columns and a response scale fixed across folds:
 - every row's held-out prediction and every row's residual under every fold's solution
   come from a few einsum products over the (n, C, p) stacked designs;
 - the smeared mean (Duan 1983) uses the same closed forms as :mod:`retransform` for the
-  identity, the log and the square root (one or two means per candidate and fold; for the
-  square root, rows with terms cut off at zero use sorted residuals and suffix sums as
-  retransform does, sorted for all candidates at once); other inverses call
+  identity, the log and the square root (one or two means per candidate and fold; the
+  square root by :func:`retransform.smear_sqrt` for all candidates at once); other inverses call
   :func:`retransform.smeared_mean` per candidate and fold;
 - fold errors and pooled errors are reduced in numpy.
 
-Whatever the batch cannot settle exactly as the one-candidate path would (an
-ill-conditioned fold that needs the exact QR refit, any non-finite value, an undefined
-back-transform, a fold too small for its coefficients, an undefined MAPE) is handed to
-:meth:`Scorer.score` for that candidate alone, so results and failure reasons are the
-one-candidate path's.  Tests compare the two to 1e-10 relative.
+A back-transform that is undefined or overflows on held-out rows is a cheap check: the
+batch goes through the folds in the one-candidate path's order (per repeat the median
+check, then the mean, fold by fold) and fails the candidate with the same reason text
+(:func:`fastcv._undefined`: the first such fold and its number of rows).  Whatever else
+the batch cannot settle exactly as the one-candidate path would (an ill-conditioned fold
+that needs the exact QR refit, any other non-finite value, a fold too small for its
+coefficients, an undefined MAPE) is handed to :meth:`Scorer.score` for that candidate
+alone, so results and failure reasons are the one-candidate path's.  Tests compare the
+two to 1e-10 relative and the failure reasons as text.
 """
 
 from __future__ import annotations
@@ -37,7 +40,7 @@ from . import retransform
 from . import transforms as tr
 from .cvresult import CVResult, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
-from .fastcv import Scorer
+from .fastcv import Scorer, _undefined
 from .fitting import solve_batch
 
 #: at most this many floats in one (n, C, p) stack of designs (about 64 MB)
@@ -93,16 +96,16 @@ def _alone(
 
 def _batch(
     scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
-) -> list[CVResult | None]:
-    """Scores of candidates with the same number of columns; None where the candidate must
-    be scored alone."""
+) -> list[CVResult | CandidateFailure | None]:
+    """Scores (or failures with their reason) of candidates with the same number of
+    columns; None where the candidate must be scored alone."""
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         return _batch_unguarded(scorer, t, col_sets)
 
 
 def _batch_unguarded(
     scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
-) -> list[CVResult | None]:
+) -> list[CVResult | CandidateFailure | None]:
     bank, y, plan = scorer.bank, scorer.y, scorer.plan
     assert bank.G_fold is not None and bank.G_total is not None  # checked by batchable()
     index = bank.index
@@ -116,6 +119,8 @@ def _batch_unguarded(
     if not finite or any(rows.size <= p for tr_r in index.train for rows in tr_r):
         return [None] * C  # the one-candidate path raises the right reason
     alone = np.zeros(C, dtype=bool)
+    failed: list[CandidateFailure | None] = [None] * C  # undefined back-transform, as alone
+    gone = np.zeros(C, dtype=bool)  # failed: nothing after that fold counts
     XS = X[:, S]  # (n, C, p)
     cf, ctot = bank.cross(t, z)
     fold_vals = np.empty((C, R * K))
@@ -131,17 +136,17 @@ def _batch_unguarded(
             np.swapaxes(G, 0, 1).reshape(C * K, p, p), np.swapaxes(c, 0, 1).reshape(C * K, p)
         )
         B = B.reshape(C, K, p)
-        alone |= ~ok.reshape(C, K).all(axis=1)
+        alone |= ~ok.reshape(C, K).all(axis=1) & ~gone  # the exact QR refit: alone
         B = np.where(np.isfinite(B), B, 0.0)
         # fitted value of every row under every fold's solution, (K, n, C)
         fitted = np.einsum("ncp,ckp->knc", XS, B)
         eta = fitted[a, np.arange(n), :]  # (n, C): each row under its own fold's solution
         med = t0.inverse(eta)
-        # an undefined median ends the candidate before its smearing (as one at a time)
-        alone |= ~np.all(np.isfinite(med), axis=0)
         mean = np.empty((n, C))
         for k in range(K):
             te = test[k]
+            # an undefined median ends the candidate before its smearing (as one at a time)
+            _fail_undefined(t0, k, med[te], alone | gone, gone, failed)
             train_rows = a != k
             e = z[train_rows, None] - fitted[k][train_rows]  # training residuals (n_tr, C)
             if kind == "identity":
@@ -149,21 +154,13 @@ def _batch_unguarded(
             elif kind == "log":
                 m = retransform.log_smear_factor(e)
                 mean[te] = np.exp(eta[te]) * m - retransform.log_shift(t0)
-            elif kind == "sqrt":
-                # mean_i max(eta + e_i, 0)^2: where every term is positive the square
-                # expands (retransform's suffix sums with nothing cut off); elsewhere as one
-                m1, m2 = e.mean(axis=0), (e * e).mean(axis=0)
-                ev = eta[te]
-                part = ev * ev + 2.0 * ev * m1 + m2
-                cut = ~(ev + e.min(axis=0) > 0)  # rows with a term cut off at zero
-                if np.any(cut):
-                    part[cut] = _sqrt_cut(ev, e, cut)
-                mean[te] = part
+            elif kind == "sqrt":  # mean_i max(eta + e_i, 0)^2, all candidates at once
+                mean[te] = retransform.smear_sqrt(eta[te], e)
             else:
                 for j in range(C):
-                    if not alone[j]:
+                    if not (alone[j] or gone[j]):
                         mean[te, j] = retransform.smeared_mean(t0, eta[te, j], e[:, j])
-        alone |= ~np.all(np.isfinite(mean), axis=0)
+            _fail_undefined(t0, k, mean[te], alone | gone, gone, failed)
         d = y[:, None] - mean
         sq = d * d
         ab = np.abs(y[:, None] - med)
@@ -175,9 +172,13 @@ def _batch_unguarded(
             )
         for name in pooled:
             pooled[name][:, r] = error_of(name, sq, ab, pc)
-    alone |= ~np.all(np.isfinite(fold_vals), axis=1)
-    out: list[CVResult | None] = []
+    alone |= ~np.all(np.isfinite(fold_vals), axis=1) & ~gone
+    out: list[CVResult | CandidateFailure | None] = []
     for j in range(C):
+        reason = failed[j]
+        if reason is not None:
+            out.append(reason)
+            continue
         if alone[j]:
             out.append(None)
             continue
@@ -193,21 +194,17 @@ def _batch_unguarded(
     return out
 
 
-def _sqrt_cut(eta: np.ndarray, e: np.ndarray, cut: np.ndarray) -> np.ndarray:
-    """mean_i max(eta + e_i, 0)^2 at the ``cut`` entries of ``eta`` (n_te, C), residuals
-    ``e`` (n_tr, C): retransform's sorted residuals and suffix sums, sorted for all
-    candidates at once."""
-    es = np.sort(e, axis=0)
-    m = es.shape[0]
-    zero = np.zeros((1, es.shape[1]))
-    s1 = np.concatenate([np.cumsum(es[::-1], axis=0)[::-1], zero])
-    s2 = np.concatenate([np.cumsum((es * es)[::-1], axis=0)[::-1], zero])
-    rows, cols = np.nonzero(cut)
-    x = eta[rows, cols]
-    k = np.empty(rows.size, dtype=np.intp)
-    for j in np.unique(cols).tolist():  # terms with e_i > -eta contribute
-        at = cols == j
-        k[at] = np.searchsorted(es[:, j], -x[at], side="right")
-    cnt = m - k
-    out: np.ndarray = (cnt * x * x + 2.0 * x * s1[k, cols] + s2[k, cols]) / m
-    return out
+def _fail_undefined(
+    t0: tr.Transform,
+    k: int,
+    values: np.ndarray,
+    settled: np.ndarray,
+    gone: np.ndarray,
+    failed: list[CandidateFailure | None],
+) -> None:
+    """Fail every candidate not yet settled with a non-finite back-transform among fold
+    k's held-out ``values`` (rows, C), with the one-candidate path's reason."""
+    bad = (~np.isfinite(values)).sum(axis=0)
+    for j in np.flatnonzero((bad > 0) & ~settled).tolist():
+        failed[j] = _undefined(t0, k, int(bad[j]))
+        gone[j] = True

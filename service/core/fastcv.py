@@ -10,10 +10,9 @@ fitted values of all rows for all folds come from one matrix product.
 
 Back-transforms on the held-out rows: the smeared mean (Duan 1983) for rmse,
 the naive inverse (a median) for mae and mape, by :func:`retransform.smeared_mean`:
-closed forms in O(n) for identity, log and square root; a binomial series with a
-stated error bound, or a tree code over the sorted residuals, for the power-type
-inverses (square, reciprocal, power, Box-Cox); a verified quadrature rule or the
-exact sum for Yeo-Johnson.
+closed forms in O(n) for identity, log and square root; binomial series over bins
+of the sorted residuals with a stated error bound for the power-type inverses
+(square, reciprocal, power, Box-Cox) and both branches of Yeo-Johnson.
 
 Things estimated from the response are estimated inside every training fold:
 a Box-Cox / Yeo-Johnson lambda (profile likelihood on the fold's design,

@@ -13,6 +13,7 @@ import zlib
 
 import numpy as np
 import pytest
+from service.core import batchcv
 from service.core import transforms as tr
 from service.core.bank import ColumnBank, FoldIndex
 from service.core.batchcv import batchable, score_many
@@ -140,3 +141,52 @@ def test_square_root_with_terms_cut_off_at_zero_matches_one_at_a_time():
     for cols, g in zip(cands, got, strict=True):
         # source: Scorer.score, the one-candidate path
         assert g.value == pytest.approx(scorer.score(t, cols).value, rel=1e-10)
+
+
+def _grid(n: int, seed: int):
+    """Positive predictors on five scales each (a practitioner's grid); 1/y held-out
+    predictions reach 0 or below for some candidates."""
+    rng = np.random.default_rng(seed)
+    xs = [rng.uniform(0.5, 20.0, n) * (1 + j) for j in range(3)]
+    y = np.exp(4.0 + 0.5 * np.log(xs[0]) + 0.03 * xs[1] - 0.2 * np.sqrt(xs[2]))
+    y = y * np.exp(rng.normal(0, 0.3, n))
+    scales = [lambda v: v, np.log, np.sqrt, lambda v: 1 / v, np.square]
+    cols = [np.ones(n)] + [f(x) for x in xs for f in scales]
+    plan = make_plan(n, 5, 2, 0)
+    bank = ColumnBank.of_matrix(np.column_stack(cols), FoldIndex.of(plan, n))
+    sets = [
+        [0, *(1 + 5 * j + c for j, c in enumerate(combo))]
+        for combo in itertools.product(range(5), repeat=3)
+    ]
+    return bank, y, plan, sets
+
+
+@pytest.mark.parametrize(
+    "t",
+    [
+        RESPONSES["reciprocal"],
+        RESPONSES["square"],
+        RESPONSES["log"],
+        tr.Transform("box_cox", lam=-0.5),
+        tr.Transform("power", exponent=-2.0),
+    ],
+    ids=lambda t: t.label("y"),
+)
+def test_undefined_back_transforms_fail_in_the_batch_with_the_one_candidate_reason(t):
+    bank, y, plan, sets = _grid(400, 5)
+    scorer = Scorer(bank, y, plan, False)
+    batch = batchcv._batch(scorer, t, sets)
+    got = score_many(scorer, t, sets, [None] * len(sets))
+    reasons = 0
+    for cols, b, g in zip(sets, batch, got, strict=True):
+        try:
+            one = scorer.score(t, cols)
+        except CandidateFailure as exc:
+            # source: Scorer.score, the one-candidate path: the same reason, word for word
+            assert isinstance(g, CandidateFailure) and str(g) == str(exc)
+            reasons += isinstance(b, CandidateFailure)  # settled by the batch itself
+            continue
+        assert not isinstance(g, CandidateFailure)
+        assert g.value == pytest.approx(one.value, rel=1e-10)
+    if t.name == "reciprocal":
+        assert reasons >= 5
