@@ -30,11 +30,19 @@ more fail cleanly); ``method`` says which path was used.  A search given a
 estimate) looks within ``start +- LOCAL_HALF_WIDTH`` only (design choice: the
 training rows are most of the rows, so their optimum is near the all-rows one,
 and a whole-range grid on every fold would cost ten times as much).
+
+Every training fold of a large table (``estimate_fold_powers_by_series``): the same
+steps and stopping rules, but each trial is assembled from cross-products summed once
+over the rows (Taylor series of the power columns about the start, within a radius set
+by the folds' first steps and the all-rows standard error; the response centred on the
+all-rows fit so the RSS keeps its digits; see :class:`_Series`).  A fold whose trial
+leaves the radius, needs QR or does not converge is estimated by the exact path.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -591,19 +599,56 @@ def estimate_fold_powers(
             )
     Z = np.broadcast_to(z, (F, n)) if z.ndim == 1 else z
     folds = _Folds(Z, Xf, logx, train, boxcox_form, grams, crosses)
+    a, rss, converged, its, _left = _damped_steps(folds.trial, folds.qr_full, F, pf, k, start)
+    out: list[PowerFit] = []
+    for f in range(F):
+        if converged[f]:
+            out.append(PowerFit(a[f].copy(), None, True, int(its[f]), "box_tidwell", float(rss[f])))
+            continue
+        rows = train[f]
+        prob = _Problem(Z[f, rows], Xf[rows], logx[rows], boxcox_form)
+        try:
+            af, rf, method = _fallback(prob, a[f].copy(), float(rss[f]), False, int(its[f]), True)
+        except CandidateFailure as exc:
+            raise CandidateFailure(f"fold {names[f]}: {exc.reason}") from None
+        out.append(PowerFit(af, None, True, int(its[f]), method, rf))
+    return out
+
+
+# (rss, coef of [X_f, W], coef of [X_f, W, D], qr) of folds ``idx`` at powers (len(idx), k)
+_Trial = Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]]
+
+
+def _damped_steps(
+    trial: _Trial,
+    full: Callable[[int, np.ndarray], np.ndarray] | None,
+    F: int,
+    pf: int,
+    k: int,
+    start: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The damped Gauss-Newton iteration of :func:`estimate_powers` for F folds at once:
+    (powers (F, k), rss (F,), converged, iterations, left).
+
+    ``trial(idx, A)`` evaluates folds ``idx`` at powers ``A``; ``full(f, a)`` gives fold f's
+    coefficients of [X_f, W, D] where ``trial`` flagged it (``qr``).  Without ``full`` a
+    flagged fold leaves at once: it is ``left`` (neither converged nor stepped further),
+    for the caller to settle by another path."""
     a = np.tile(np.clip(np.asarray(start, float), *POWER_BOUNDS), (F, 1))
-    rss, coef, g, qr = folds.trial(np.arange(F), a)
+    rss, coef, g, qr = trial(np.arange(F), a)
     converged = np.zeros(F, dtype=bool)
+    left = qr.copy() if full is None else np.zeros(F, dtype=bool)
     its = np.zeros(F, dtype=int)
     flat = np.zeros(F, dtype=int)  # consecutive steps that lowered the RSS by <= FTOL
-    active = np.isfinite(rss)
+    active = np.isfinite(rss) & ~left
     for it in range(1, MAX_ITER + 1):
         idx = np.flatnonzero(active)
         if idx.size == 0:
             break
         its[idx] = it
-        for f in idx[qr[idx]]:
-            g[f], qr[f] = folds.qr_full(int(f), a[f]), False
+        if full is not None:
+            for f in idx[qr[idx]]:
+                g[f], qr[f] = full(int(f), a[f]), False
         b = coef[idx, pf:]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             step = g[idx, pf + k :] / b
@@ -624,7 +669,14 @@ def estimate_fold_powers(
             if srch.size == 0:
                 break
             a_new = np.clip(a[srch] + st, *POWER_BOUNDS)
-            rss_new, coef_new, g_new, qr_new = folds.trial(srch, a_new)
+            rss_new, coef_new, g_new, qr_new = trial(srch, a_new)
+            if full is None and np.any(qr_new):  # these folds leave at once
+                left[srch[qr_new]] = True
+                active[srch[qr_new]] = False
+                keep = ~qr_new
+                srch, st, a_new = srch[keep], st[keep], a_new[keep]
+                rss_new, coef_new, g_new = rss_new[keep], coef_new[keep], g_new[keep]
+                qr_new = qr_new[keep]
             acc = rss_new <= rss[srch] * (1.0 + 1e-12)
             if np.any(acc):
                 i = srch[acc]
@@ -636,16 +688,331 @@ def estimate_fold_powers(
                 converged[i[done]] = True
                 active[i[done]] = False
             srch, st = srch[~acc], st[~acc] / 2.0
+    return a, rss, converged, its, left
+
+
+# ------------------------------------------- every training fold from series cross-products
+SERIES_TOL = 2.0**-53  # truncation bound of the power columns' series, relative
+SERIES_MAX_ORDER = 24  # a radius needing a longer series goes to the exact path
+RADIUS_STEPS = 2.0  # radius: this many times the largest first step of a fold ...
+RADIUS_SE = 3.0  # ... plus this many all-rows standard errors of the power
+
+
+def series_order(r: float) -> int | None:
+    """The smallest M with r^(M+1) / (M+1)! * e^(2r) <= SERIES_TOL, or None above
+    ``SERIES_MAX_ORDER``: the truncation bound of :class:`_Series` at reach r = |a - c| max|log x|."""
+    if not r < 10.0:  # far beyond the longest series (also NaN): refused, no overflow
+        return None
+    term = r * math.exp(2.0 * r)  # r^(M+1)/(M+1)! e^(2r) at M = 0
+    for m in range(SERIES_MAX_ORDER + 1):
+        if term <= SERIES_TOL:
+            return m
+        term *= r / (m + 2)
+    return None
+
+
+def _series_basis(
+    L: np.ndarray, c: np.ndarray, h: np.ndarray, origin: np.ndarray, m1: int, bc: bool
+) -> np.ndarray:
+    """Scaled Taylor columns (k m1, b), one row per column: row j m1 + m holds
+    h_j^m / m! d^m w_j / da^m at a = c_j, for the rows' log x ``L`` (b, k); ``origin[j]``:
+    c_j = 0 in the Box-Cox form."""
+    b, k = L.shape
+    out = np.empty((k * m1, b))
+    for j in range(k):
+        Lj, cj, hj = L[:, j], float(c[j]), float(h[j])
+        hL = hj * Lj
+        rows = out[j * m1 : (j + 1) * m1]
+        if bc and origin[j]:  # w(a) = sum_m a^m L^(m+1) / (m+1)!
+            rows[0] = Lj
+            for m in range(1, m1):
+                np.multiply(rows[m - 1], hL, out=rows[m])
+                rows[m] *= 1.0 / (m + 1)
+            continue
+        p = np.exp(cj * Lj)  # x^c (hL)^m / m!
+        if not bc:
+            rows[0] = p
+            for m in range(1, m1):
+                np.multiply(rows[m - 1], hL, out=rows[m])
+                rows[m] *= 1.0 / m
+            continue
+        # (a w)^(m) = x^a L^m: B_m = (x^c (hL)^m/m! - h B_(m-1)) / c, scaled; the rounding
+        # of B_0 reaches w(a) times (-(a - c)/c)^m, harmless for |a - c| <= |c| / 2
+        np.divide(np.expm1(cj * Lj), cj, out=rows[0])
+        for m in range(1, m1):
+            p *= hL
+            p *= 1.0 / m
+            np.multiply(rows[m - 1], -hj, out=rows[m])
+            rows[m] += p
+            rows[m] *= 1.0 / cj
+    return out
+
+
+class _Held:
+    """The rows grouped by the fold that holds them out (folds whose held-out rows do not
+    overlap), copied once in that order, and the training cross-products of columns built
+    from them: all rows' sums minus each fold's held-out sums (O(n q^2) per call, whatever
+    the number of folds)."""
+
+    def __init__(self, held: list[np.ndarray], z: np.ndarray, Xf: np.ndarray, logx: np.ndarray):
+        n, F = z.size, len(held)
+        rest = np.ones(n, dtype=bool)
+        for rows in held:
+            rest[rows] = False
+        groups = [*held, np.flatnonzero(rest)]
+        perm = np.concatenate(groups)
+        self.bounds = np.concatenate([[0], np.cumsum([g.size for g in groups])])
+        self.z, self.Xf, self.logx = z[perm], Xf[perm], logx[perm]
+        self.XfT = np.ascontiguousarray(self.Xf.T)  # (p_f, n): blocks of columns copied whole
+        self.F = F
+
+    def grams(
+        self, columns: Callable[[slice], np.ndarray], q: int
+    ) -> tuple[np.ndarray, np.ndarray] | None:
+        """(all rows (q, q), training rows of every fold (F, q, q)) of ``columns(rows)``
+        ((q, b), one row per column), or None when a value is not finite (its square on the
+        diagonal is then not finite either)."""
+        held = np.zeros((self.F + 1, q, q))
+        for f in range(self.F + 1):
+            for s in range(int(self.bounds[f]), int(self.bounds[f + 1]), CHUNK_ROWS):
+                T = columns(slice(s, min(s + CHUNK_ROWS, int(self.bounds[f + 1]))))
+                held[f] += T @ T.T
+        total = held.sum(axis=0)
+        if not np.all(np.isfinite(np.diagonal(held, axis1=1, axis2=2))):
+            return None
+        return total, total[None] - held[: self.F]
+
+
+class _Series:
+    """The training problems of folds whose held-out rows do not overlap, evaluated from
+    cross-products computed once: no trial touches the rows.
+
+    Predictor j's column and its derivative at a are Taylor series about c_j (the start
+    a0_j, or 0 in the Box-Cox form when |a0_j| < 2 rho_j: the basis about c_j is built by a
+    recurrence in 1/c_j): w_j(a) = sum_m B_jm delta^m, dw_j/da = sum_m (m+1) B_j,m+1
+    delta^m / h_j, delta = (a - c_j)/h_j in [-1, 1], h_j the radius about c_j (rho_j, or
+    |a0_j| + rho_j about 0), B_jm = h_j^m/m! w_j^(m)(c_j), m = 0 .. M + 1.  With
+    r = max_j h_j max|log x_j| the remainder of each column is at most
+    r^(M+1)/(M+1)! e^(2r) of its value, row by row (the tail of exp(d L t) in
+    w(a) = L int_0^1 exp(a L t) dt, or of exp(d L) in x^a, is at most (rt)^(M+1)/(M+1)!
+    e^(rt) of the term kept, and the column at c is within e^r of the one at a);
+    :func:`series_order` puts it below 2^-53, the rounding of the columns themselves.
+
+    The columns are those of x / s, s = exp(mid-range of log x_j), when that leaves the
+    problem unchanged: (x/s)^a = s^-a x^a spans the same columns beside X_f, and with Q =
+    x^a log x the pair [x^a, Q] becomes s^-a [x^a, Q - log(s) x^a], so the RSS at every a
+    and the Gauss-Newton step gamma / b of the plain form are the same; the Box-Cox form
+    spans the same columns as the plain one when X_f holds a constant column, and its step
+    is the plain one (w = (P - 1)/a, dw/da = Q/a - w/a give gamma = a gamma_Q and
+    b = a b_P).  Without a constant column the Box-Cox form keeps log x itself.
+
+    The response enters centred on the all-rows fit at the start, zt = z - X_f beta0 -
+    W(a0) b0 (W(a0) from the same series), so the fit of z on [X_f, W(a)] is
+    (beta0, b0) plus that of e(a) = zt + (W(a0) - W(a)) b0, and the RSS is
+    e'e - e'A (A'A)^-1 A'e with every term of residual size: it keeps the digits that
+    z'z - c'b loses when R^2 is near 1, and the RSS comparisons of the iteration
+    (a decrease, the 1e-12 relative-decrease stop) see the same numbers as from residuals
+    to about 1e-14.  The cross-products of [X_f, zt, B] are summed once (``_Held.grams``,
+    q = p_f + 1 + k (M + 2)); a trial assembles G = U' C_f U, U the linear map from those
+    columns to [X_f, W, D, e], in O(q^2 (p_f + 2k)) for each fold.  A trial leaves the path
+    (``qr`` in its answer) when it lies outside the radius, its scaled normal equations fail
+    the condition check of ``fitting.solve_batch`` (QR would be needed) or its RSS is not
+    clearly above the rounding of e'e.
+    """
+
+    def __init__(
+        self,
+        rows: _Held,
+        start: np.ndarray,
+        beta: np.ndarray,
+        bc: bool,
+        rho: np.ndarray,
+    ):
+        k = rows.logx.shape[1]
+        pf = rows.Xf.shape[1]
+        self.pf, self.k, self.bc, self.beta = pf, k, bc, beta
+        self.origin = bc & (np.abs(start) < 2.0 * rho)
+        self.c = np.where(self.origin, 0.0, start)
+        self.h = np.where(self.origin, np.abs(start) + rho, rho)
+        r = float(np.max(self.h * np.max(np.abs(rows.logx), axis=0)))
+        order = series_order(r)
+        self.ok = order is not None
+        if order is None:
+            return
+        self.m1 = order + 2  # basis columns per predictor (orders 0 .. M + 1)
+        d0 = (start - self.c) / self.h
+        self.w0 = d0[:, None] ** np.arange(self.m1)  # W(a0) = sum_m B_m d0^m
+        self.q = pf + 1 + k * self.m1
+        self.rows = rows
+        sums = rows.grams(self._columns, self.q)
+        self.ok = sums is not None
+        if sums is not None:
+            self.C = sums[1]
+
+    def _columns(self, sl: slice) -> np.ndarray:
+        """[X_f, zt, B] of the rows ``sl`` (q, b)."""
+        rows, pf, k, m1 = self.rows, self.pf, self.k, self.m1
+        L = rows.logx[sl]
+        T = np.empty((self.q, L.shape[0]))
+        T[:pf] = rows.XfT[:, sl]
+        B = _series_basis(L, self.c, self.h, self.origin, m1, self.bc)
+        T[pf + 1 :] = B
+        if self.origin.any():
+            W0 = np.zeros(L.shape[0])
+            for j in range(k):
+                W0 += self.beta[pf + j] * (self.w0[j] @ B[j * m1 : (j + 1) * m1])
+        else:  # about the start: W(a0) = B_0
+            W0 = self.beta[pf:] @ B[::m1]
+        T[pf] = rows.z[sl] - self.beta[:pf] @ T[:pf] - W0
+        return T
+
+    def trial(
+        self, idx: np.ndarray, A: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Folds ``idx`` at powers ``A``, as :meth:`_Folds.trial`; ``qr`` marks the folds
+        that leave this path (their values are inf / NaN)."""
+        pf, k, m1 = self.pf, self.k, self.m1
+        Fa = idx.size
+        P1, P = pf + k, pf + 2 * k
+        delta = (A - self.c) / self.h  # (Fa, k)
+        inside = np.all(np.abs(delta) <= 1.0, axis=1)
+        pw = np.clip(delta, -1.0, 1.0)[:, :, None] ** np.arange(m1)  # (Fa, k, m1)
+        U = np.zeros((Fa, self.q, P + 1))
+        U[:, np.arange(pf), np.arange(pf)] = 1.0
+        U[:, pf, P] = 1.0
+        b0 = self.beta[pf:]
+        for j in range(k):
+            at = pf + 1 + j * m1 + np.arange(m1)
+            U[:, at, pf + j] = pw[:, j, :]
+            U[:, at[1:], pf + k + j] = pw[:, j, :-1] * (np.arange(1, m1) / self.h[j])
+            U[:, at, P] = b0[j] * (self.w0[j][None, :] - pw[:, j, :])
+        G = np.matmul(np.swapaxes(U, 1, 2), np.matmul(self.C[idx], U))
+        G = 0.5 * (G + np.swapaxes(G, 1, 2))
+        Bf, ok, B1 = solve_batch_nested(G[:, :P, :P], G[:, :P, P], P1)
+        ee = G[:, P, P]
+        rss = ee - np.einsum("fi,fi->f", B1, G[:, :P1, P])
+        good = inside & ok & (rss > 1e-3 * ee)
+        rss = np.where(good, rss, math.inf)
+        coef = np.where(good[:, None], B1 + self.beta, np.nan)
+        g = np.where(good[:, None], Bf + np.concatenate([self.beta, np.zeros(k)]), np.nan)
+        return rss, coef, g, ~good
+
+
+def estimate_fold_powers_by_series(
+    z: np.ndarray,
+    Xf: np.ndarray,
+    x: np.ndarray,
+    train: list[np.ndarray],
+    start: np.ndarray,
+    boxcox_form: bool = True,
+    labels: list[int] | None = None,
+    radius: np.ndarray | None = None,
+) -> list[PowerFit]:
+    """:func:`estimate_fold_powers` for folds whose held-out rows do not overlap (one
+    repeat's folds) and one response ``z`` (n,), with steps whose cost does not grow with
+    the rows (:class:`_Series`); a response per fold (F, n) takes the exact path.
+
+    Every fold takes the same damped Gauss-Newton steps, with the same stopping rules, as
+    :func:`estimate_powers` started at ``start``; a fold that leaves the series path (a
+    trial outside the radius, a step that needs QR, no convergence) is estimated by
+    :func:`estimate_powers` on its training rows, the exact path with its profile
+    fallback, as are all folds when held-out rows overlap, ``z`` is not finite or the
+    radius needs a series longer than ``SERIES_MAX_ORDER``.  The radius rho_j about the
+    start is ``RADIUS_STEPS`` times the largest first step of any fold plus ``RADIUS_SE``
+    all-rows standard errors of the power at the start, or ``radius`` when given.  The
+    RSS reported is the series path's (see :class:`_Series`).
+    """
+    z = np.asarray(z, dtype=float)
+    x = np.asarray(x, dtype=float)
+    Xf = np.asarray(Xf, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    F = len(train)
+    names = labels if labels is not None else list(range(1, F + 1))
+    if np.any(x <= 0):
+        raise CandidateFailure("an estimated power needs a predictor with values > 0")
+    logx = np.log(x)
+    n, k = logx.shape
+    pf = Xf.shape[1]
+    start = np.clip(np.asarray(start, float), *POWER_BOUNDS)
+    held: list[np.ndarray] = []
+    for f, rows in enumerate(train):
+        if rows.size <= pf + 2 * k + 1:
+            raise CandidateFailure(
+                f"fold {names[f]}: {rows.size} rows are too few to estimate {k} predictor power(s)"
+            )
+        out_f = np.ones(n, dtype=bool)
+        out_f[rows] = False
+        held.append(np.flatnonzero(out_f))
+    left = np.ones(F, dtype=bool)
+    fits: list[PowerFit | None] = [None] * F
+    times_held = np.bincount(np.concatenate(held), minlength=n) if F else np.zeros(n)
+    if z.ndim == 1 and np.all(times_held <= 1) and np.all(np.isfinite(z)):
+        # log x about its mid-range: x scaled by a constant leaves the RSS and the steps
+        # unchanged (see _Series), and it shortens the series
+        constant = np.any((np.ptp(Xf, axis=0) == 0) & (Xf[0] != 0)) if n else False
+        mid = (logx.min(axis=0) + logx.max(axis=0)) / 2 if constant or not boxcox_form else 0.0
+        grouped = _Held(held, z, Xf, logx - mid)
+        first = _first_steps(grouped, start, boxcox_form)
+        if first is not None:
+            beta, rho = first
+            if radius is not None:
+                rho = np.broadcast_to(np.asarray(radius, float), (k,))
+            ser = _Series(grouped, start, beta, boxcox_form, rho)
+            if ser.ok:
+                a, rss, conv, its, _ = _damped_steps(ser.trial, None, F, pf, k, start)
+                for i in np.flatnonzero(conv):
+                    fits[i] = PowerFit(
+                        a[i].copy(), None, True, int(its[i]), "box_tidwell", float(rss[i])
+                    )
+                left = ~conv
     out: list[PowerFit] = []
     for f in range(F):
-        if converged[f]:
-            out.append(PowerFit(a[f].copy(), None, True, int(its[f]), "box_tidwell", float(rss[f])))
-            continue
-        rows = train[f]
-        prob = _Problem(Z[f, rows], Xf[rows], logx[rows], boxcox_form)
-        try:
-            af, rf, method = _fallback(prob, a[f].copy(), float(rss[f]), False, int(its[f]), True)
-        except CandidateFailure as exc:
-            raise CandidateFailure(f"fold {names[f]}: {exc.reason}") from None
-        out.append(PowerFit(af, None, True, int(its[f]), method, rf))
+        fit = fits[f]
+        if left[f]:
+            rows = train[f]
+            zf = z[rows] if z.ndim == 1 else z[f, rows]
+            try:
+                fit = estimate_powers(
+                    zf, Xf[rows], x[rows], start=start, boxcox_form=boxcox_form, with_se=False
+                )
+            except CandidateFailure as exc:
+                raise CandidateFailure(f"fold {names[f]}: {exc.reason}") from None
+        assert fit is not None
+        out.append(fit)
     return out
+
+
+def _first_steps(rows: _Held, start: np.ndarray, bc: bool) -> tuple[np.ndarray, np.ndarray] | None:
+    """(beta0 (p_f + k,), rho (k,)) from the cross-products of [X_f, W, D, z] at the start
+    (one pass): beta0 the all-rows fit on [X_f, W]; rho = ``RADIUS_STEPS`` x the largest
+    first Gauss-Newton step of any fold + ``RADIUS_SE`` all-rows standard errors of the
+    power.  None when a fit, step or standard error is not finite or a scaled system fails
+    the condition check (the exact path then takes every fold)."""
+    n, k = rows.logx.shape
+    pf = rows.Xf.shape[1]
+    p = pf + 2 * k
+
+    def columns(sl: slice) -> np.ndarray:
+        W, D = power_columns(rows.logx[sl], start, bc)
+        T = np.empty((p + 1, W.shape[0]))
+        T[:pf], T[pf : pf + k], T[pf + k : p], T[p] = rows.Xf[sl].T, W.T, D.T, rows.z[sl]
+        return T
+
+    with np.errstate(over="ignore", invalid="ignore"):
+        sums = rows.grams(columns, p + 1)
+    if sums is None:
+        return None
+    G = np.concatenate([sums[0][None], sums[1]])  # all rows, then each fold
+    Bf, ok, B1 = solve_batch_nested(G[:, :p, :p], G[:, :p, p], pf + k)
+    if not np.all(ok):
+        return None
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        steps = Bf[:, pf + k :] / B1[:, pf:]
+        rss = G[0, p, p] - Bf[0] @ G[0, :p, p]
+        cov = np.linalg.inv(G[0, :p, :p])
+        se = np.sqrt(max(rss, 0.0) / (n - p) * np.diag(cov)[pf + k :]) / np.abs(B1[0, pf:])
+    rho = RADIUS_STEPS * np.max(np.abs(steps), axis=0) + RADIUS_SE * se
+    if not (np.all(np.isfinite(rho)) and np.all(rho > 0) and np.all(np.isfinite(B1[0]))):
+        return None
+    return B1[0], rho

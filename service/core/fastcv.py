@@ -32,7 +32,13 @@ import numpy as np
 from . import retransform
 from . import transforms as tr
 from .bank import ColumnBank
-from .boxtidwell import PowerFit, estimate_fold_powers, estimate_powers, power_columns
+from .boxtidwell import (
+    PowerFit,
+    estimate_fold_powers,
+    estimate_fold_powers_by_series,
+    estimate_powers,
+    power_columns,
+)
 from .cvresult import CVResult, Dynamic, OutOfFold, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
@@ -46,7 +52,9 @@ if TYPE_CHECKING:  # pragma: no cover
 # batched paths save Python-level calls and spend arithmetic on held-out rows (masked), so
 # they win on small tables and lose on large ones; crossovers measured with
 # tests/benchmarks/fold_powers.py --rows N (one thread, 10 folds): powers ~5,000 rows,
-# lambdas ~3,000 rows.  Above these the folds are taken one by one.
+# lambdas ~3,000 rows.  Above these the folds are taken one by one (powers: every fold's
+# steps from series cross-products, boxtidwell.estimate_fold_powers_by_series, when the
+# response is the same in every fold).
 POWER_BATCH_CELLS = 50_000
 LAMBDA_BATCH_CELLS = 25_000
 
@@ -456,16 +464,22 @@ class Scorer:
         fits: list[PowerFit] | None = None,
     ) -> int:
         """Every training fold's powers at once (``boxtidwell.estimate_fold_powers``, from the
-        bank's downdated Gram matrices of the fixed columns; fold by fold on a large table,
-        see POWER_BATCH_CELLS), then every fold's solution in one stacked solve with the
+        bank's downdated Gram matrices of the fixed columns; on a large table, see
+        POWER_BATCH_CELLS, ``estimate_fold_powers_by_series``, or fold by fold when the
+        response differs between folds), then every fold's solution in one stacked solve with the
         exact refit fallback."""
         bank = self.bank
         train = bank.index.train[r]
         K = len(train)
         p = B.shape[1]
         fixed_pos = [i for i in range(p) if i not in dyn.positions]
+        if fits is None and XS.shape[0] * K > POWER_BATCH_CELLS and not per_fold:
+            # a large table: every fold's steps from series cross-products summed once
+            fits = estimate_fold_powers_by_series(
+                zs[0], XS, dyn.x, train, dyn.start, boxcox_form=dyn.boxcox_form
+            )
         if fits is None and XS.shape[0] * K > POWER_BATCH_CELLS:
-            fits = []  # a large table: fold by fold, each fold's cross-products from its rows
+            fits = []  # a large table with a response per fold: fold by fold
             for k in range(K):
                 rows = train[k]
                 try:

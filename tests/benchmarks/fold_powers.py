@@ -15,6 +15,15 @@ load (``uptime``), wall and CPU seconds (time.process_time; the machine is share
 time is the steadier number), the ratios, and the largest difference between the powers.
 
     python tests/benchmarks/fold_powers.py [--repeat 3] [--rows 1000 3000 10000 30000]
+        [--series 10000 100000 1000000] [--series-k 1 2 3]
+
+``--series`` times the per-fold powers of large tables on invented tables of those sizes (5
+folds x 2 repeats, k powers beside an intercept and three fixed columns, started at the
+all-rows estimate): one exact ``estimate_powers`` per training fold (the path before),
+``estimate_fold_powers_by_series`` (one call per repeat, as the scorer makes it) and, up to
+100,000 rows, the batched ``estimate_fold_powers`` (all folds of all repeats); it prints wall
+and CPU seconds of each, the ratios, the largest |power difference| against the fold-by-fold
+path and how many folds the series path left to the exact one.
 
 ``--rows`` also times both paths on invented tables of those sizes (5 folds x 2 repeats, one
 power beside two fixed columns; a Box-Cox lambda on three columns): the crossover where the
@@ -191,11 +200,86 @@ def by_rows(n: int, repeat: int) -> None:
         )
 
 
+def series_rows(n: int, k: int, repeat: int) -> None:
+    """Fold by fold vs series cross-products (vs batched) on an invented table of n rows."""
+    from service.core.folds import make_plan
+
+    rng = np.random.default_rng(n + k)
+    x = rng.uniform(0.5, 40.0, (n, k))
+    Xf = np.column_stack([np.ones(n), rng.normal(size=n), rng.uniform(0, 1, n), rng.gamma(2, 1, n)])
+    z = 4.0 + 0.5 * np.log(x[:, 0]) + 0.1 * Xf[:, 1] + rng.normal(0, 0.3, n)
+    for j in range(1, k):
+        z += 0.2 * np.sqrt(x[:, j])
+    plan = make_plan(n, 5, 2, 0)
+    trains = [[np.flatnonzero(a != f) for f in range(5)] for a in plan.assignments]
+    start = bt.estimate_powers(z, Xf, x, with_se=False).powers
+    left = []
+    real = bt.estimate_powers
+
+    def counted(*a, **kw):
+        left.append(1)
+        return real(*a, **kw)
+
+    def loop():
+        return [
+            real(z[r], Xf[r], x[r], start=start, with_se=False).powers for t in trains for r in t
+        ]
+
+    def series():
+        bt.estimate_powers = counted
+        try:
+            return [
+                f.powers
+                for t in trains
+                for f in bt.estimate_fold_powers_by_series(z, Xf, x, t, start)
+            ]
+        finally:
+            bt.estimate_powers = real
+
+    def batched():
+        return [f.powers for f in bt.estimate_fold_powers(z, Xf, x, trains[0] + trains[1], start)]
+
+    paths = [("fold by fold", loop), ("series", series)]
+    if n <= 100_000:
+        paths.append(("batched", batched))
+    best = {}
+    for _ in range(repeat):
+        for name, fn in paths:
+            left.clear()
+            with Timer() as tm:
+                res = fn()
+            prev = best.get(name)
+            if prev is None or tm.cpu < prev[1]:
+                best[name] = (tm.wall, tm.cpu, res, len(left))
+    ow, oc, old, _ = best["fold by fold"]
+    line = [f"{n:>8} rows, k={k}: fold by fold wall {ow:.2f} s cpu {oc:.2f} s"]
+    for name, _fn in paths[1:]:
+        w, c, res, nleft = best[name]
+        diff = max(float(np.max(np.abs(a - b))) for a, b in zip(old, res, strict=True))
+        extra = f", {nleft} of 10 folds left to the exact path" if name == "series" else ""
+        line.append(
+            f"{name} wall {w:.2f} s cpu {c:.2f} s (ratio cpu {oc / c:.1f}x, wall {ow / w:.1f}x; "
+            f"max |power diff| {diff:.1e}{extra})"
+        )
+    print("; ".join(line))
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--rows", type=int, nargs="*", default=[])
+    ap.add_argument("--series", type=int, nargs="*", default=[])
+    ap.add_argument("--series-k", type=int, nargs="*", default=[1, 2, 3])
+    ap.add_argument("--series-only", action="store_true", help="skip the demo-selection parts")
     args = ap.parse_args()
+    if args.series_only:
+        print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
+        print(machine())
+        for n in args.series:
+            for k in args.series_k:
+                series_rows(n, k, args.repeat)
+        print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
+        return
     print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
     print(machine())
     calls, lam_calls = record_problems()
@@ -269,6 +353,9 @@ def main() -> None:
     print(f"largest relative change of a number in the ranking: {rel:.1e} ({where})")
     for n in args.rows:
         by_rows(n, args.repeat)
+    for n in args.series:
+        for k in args.series_k:
+            series_rows(n, k, args.repeat)
     print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
 
 

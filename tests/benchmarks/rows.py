@@ -10,6 +10,13 @@ leaves it off), and the 1M/100k time ratio (target <= 12) and the 1M
 peak (target <= 3 GB).
 
     python tests/benchmarks/rows.py [--sizes 100000,1000000] [--time-limit 600] [--trace]
+                                    [--compare]
+
+``--compare`` runs every size twice, each in a fresh process: first with the per-fold
+predictor powers of large tables estimated fold by fold on the rows (``estimate_powers`` per
+training fold, the path before series cross-products), then as shipped
+(``boxtidwell.estimate_fold_powers_by_series``), and prints the ratios and whether the
+ranking is the same.
 """
 
 from __future__ import annotations
@@ -24,11 +31,34 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.join(HERE, "..", "..")
 
 
-def one(n: int, time_limit: float, trace: bool = False) -> dict:
+def fold_by_fold(z, Xf, x, train, start, boxcox_form=True, labels=None):
+    """The per-fold powers of a large table as before the series path: one exact
+    ``estimate_powers`` per training fold."""
+    from service.core import boxtidwell as bt
+    from service.core.errors import CandidateFailure
+
+    out = []
+    for k, rows in enumerate(train):
+        try:
+            out.append(
+                bt.estimate_powers(
+                    z[rows], Xf[rows], x[rows], start=start, boxcox_form=boxcox_form, with_se=False
+                )
+            )
+        except CandidateFailure as exc:
+            raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
+    return out
+
+
+def one(n: int, time_limit: float, trace: bool = False, exact_folds: bool = False) -> dict:
     sys.path.insert(0, ROOT)
     from tests.benchmarks._common import Timer, pin_blas, water_mains
 
     pin_blas(1)
+    if exact_folds:
+        from service.core import fastcv
+
+        fastcv.estimate_fold_powers_by_series = fold_by_fold
     import resource
     import tracemalloc
 
@@ -61,6 +91,8 @@ def one(n: int, time_limit: float, trace: bool = False) -> dict:
         "peak_traced_gb": traced / 1024**3,
         "best_cv": s["best_cv"]["value"],
         "top": out["ranking"][0]["equation"],
+        "ranking": [e["equation"] for e in out["ranking"]],
+        "cv": [e["cv"]["value"] for e in out["ranking"]],
     }
 
 
@@ -70,33 +102,52 @@ def main():
     ap.add_argument("--time-limit", type=float, default=600.0)
     ap.add_argument("--one", type=int, default=None)
     ap.add_argument("--trace", action="store_true", help="also trace Python allocations")
+    ap.add_argument("--compare", action="store_true", help="fold by fold, then as shipped")
+    ap.add_argument("--exact-folds", action="store_true", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.one is not None:
-        print(json.dumps(one(args.one, args.time_limit, args.trace)))
+        print(json.dumps(one(args.one, args.time_limit, args.trace, args.exact_folds)))
         return
     sys.path.insert(0, ROOT)
     from tests.benchmarks._common import machine
 
     print(machine())
     res = []
-    for n in [int(v) for v in args.sizes.split(",")]:
+    runs = [
+        (int(v), e)
+        for v in args.sizes.split(",")
+        for e in ([True, False] if args.compare else [False])
+    ]
+    for n, exact in runs:
         p = subprocess.run(
             [sys.executable, __file__, "--one", str(n), "--time-limit", str(args.time_limit)]
-            + (["--trace"] if args.trace else []),
+            + (["--trace"] if args.trace else [])
+            + (["--exact-folds"] if exact else []),
             capture_output=True,
             text=True,
             check=True,
         )
         r = json.loads(p.stdout.strip().splitlines()[-1])
+        if args.compare and not exact:
+            b = res.pop()
+            same = b["ranking"] == r["ranking"]
+            dcv = max(abs(u - v) / abs(v) for u, v in zip(b["cv"], r["cv"], strict=False))
+            print(
+                f"{n:>8} rows: fold by fold {b['wall_s']:.1f} s wall / {b['cpu_s']:.1f} s CPU, "
+                f"series {r['wall_s']:.1f} s wall / {r['cpu_s']:.1f} s CPU: ratio "
+                f"{b['wall_s'] / r['wall_s']:.2f}x wall, {b['cpu_s'] / r['cpu_s']:.2f}x CPU; "
+                f"same ranking: {same}; largest relative CV change {dcv:.1e}"
+            )
         res.append(r)
+        label = " (fold by fold)" if exact else ""
         print(
-            f"{n:>8} rows: {r['wall_s']:.1f} s wall, {r['cpu_s']:.1f} s CPU, {r['scored']} scored "
+            f"{n:>8} rows{label}: {r['wall_s']:.1f} s wall, {r['cpu_s']:.1f} s CPU, {r['scored']} scored "
             f"({r['failed']} failed, {r['screened']} screened, {r['strategy']}, stopped by "
             f"{r['stopped_by']}), {r['wall_s'] / max(r['scored'] + r['failed'], 1) * 1e3:.0f} ms "
             f"per candidate, peak RSS {r['peak_rss_gb']:.2f} GB, peak traced "
             f"{r['peak_traced_gb']:.2f} GB; best CV {r['best_cv']:.5g}; top {r['top']}"
         )
-    if len(res) == 2:
+    if len(res) == 2 and not args.compare:
         a, b = res
         print(
             f"time ratio {b['rows']}/{a['rows']} rows: {b['wall_s'] / a['wall_s']:.2f}x wall, "
