@@ -556,6 +556,29 @@ class _Folds:
             return self._qr(f, a, with_d=True)
 
 
+def _fold_inputs(
+    z: np.ndarray, Xf: np.ndarray, x: np.ndarray, train: list[np.ndarray], labels: list[int] | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[int]]:
+    """(z, X_f, log x, fold names) as float arrays, x as (n, k), after the checks every per-fold
+    estimate makes: x > 0 and each fold's training rows more than its parameters + 1
+    (a :class:`CandidateFailure` naming the fold, ``labels[f]``, default f + 1)."""
+    z = np.asarray(z, dtype=float)
+    x = np.asarray(x, dtype=float)
+    Xf = np.asarray(Xf, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    names = labels if labels is not None else list(range(1, len(train) + 1))
+    if np.any(x <= 0):
+        raise CandidateFailure("an estimated power needs a predictor with values > 0")
+    k, pf = x.shape[1], Xf.shape[1]
+    for f, rows in enumerate(train):
+        if rows.size <= pf + 2 * k + 1:
+            raise CandidateFailure(
+                f"fold {names[f]}: {rows.size} rows are too few to estimate {k} predictor power(s)"
+            )
+    return z, Xf, np.log(x), names
+
+
 def estimate_fold_powers(
     z: np.ndarray,
     Xf: np.ndarray,
@@ -580,23 +603,8 @@ def estimate_fold_powers(
     profile search.  Raises :class:`CandidateFailure` whose reason names the fold
     (``labels[f]``, default f + 1).
     """
-    z = np.asarray(z, dtype=float)
-    x = np.asarray(x, dtype=float)
-    Xf = np.asarray(Xf, dtype=float)
-    if x.ndim == 1:
-        x = x[:, None]
-    F = len(train)
-    names = labels if labels is not None else list(range(1, F + 1))
-    if np.any(x <= 0):
-        raise CandidateFailure("an estimated power needs a predictor with values > 0")
-    logx = np.log(x)
-    n, k = logx.shape
-    pf = Xf.shape[1]
-    for f, rows in enumerate(train):
-        if rows.size <= pf + 2 * k + 1:
-            raise CandidateFailure(
-                f"fold {names[f]}: {rows.size} rows are too few to estimate {k} predictor power(s)"
-            )
+    z, Xf, logx, names = _fold_inputs(z, Xf, x, train, labels)
+    F, (n, k), pf = len(train), logx.shape, Xf.shape[1]
     Z = np.broadcast_to(z, (F, n)) if z.ndim == 1 else z
     folds = _Folds(Z, Xf, logx, train, boxcox_form, grams, crosses)
     a, rss, converged, its, _left = _damped_steps(folds.trial, folds.qr_full, F, pf, k, start)
@@ -922,25 +930,11 @@ def estimate_fold_powers_by_series(
     all-rows standard errors of the power at the start, or ``radius`` when given.  The
     RSS reported is the series path's (see :class:`_Series`).
     """
-    z = np.asarray(z, dtype=float)
-    x = np.asarray(x, dtype=float)
-    Xf = np.asarray(Xf, dtype=float)
-    if x.ndim == 1:
-        x = x[:, None]
-    F = len(train)
-    names = labels if labels is not None else list(range(1, F + 1))
-    if np.any(x <= 0):
-        raise CandidateFailure("an estimated power needs a predictor with values > 0")
-    logx = np.log(x)
-    n, k = logx.shape
-    pf = Xf.shape[1]
+    z, Xf, logx, names = _fold_inputs(z, Xf, x, train, labels)
+    F, (n, k), pf = len(train), logx.shape, Xf.shape[1]
     start = np.clip(np.asarray(start, float), *POWER_BOUNDS)
     held: list[np.ndarray] = []
-    for f, rows in enumerate(train):
-        if rows.size <= pf + 2 * k + 1:
-            raise CandidateFailure(
-                f"fold {names[f]}: {rows.size} rows are too few to estimate {k} predictor power(s)"
-            )
+    for rows in train:
         out_f = np.ones(n, dtype=bool)
         out_f[rows] = False
         held.append(np.flatnonzero(out_f))
