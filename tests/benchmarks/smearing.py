@@ -30,12 +30,13 @@ from tests.benchmarks._common import Timer, machine, pin_blas
 pin_blas(1)
 
 import numpy as np
+from service.api.options import selection_job, service
 from service.api.schemas import SelectionRequest
-from service.api.selection import run_selection_request
 from service.core import _smear_tree as st
 from service.core import retransform
 from service.core import transforms as tr
 from service.demo import demo_columns
+from service.selection.request import run_selection
 
 
 def exact_dispatch(eta, e, form):
@@ -46,6 +47,11 @@ def exact_dispatch(eta, e, form):
     if np.any(~done):
         out[~done] = st.exact_power(eta[~done], e, beta, gamma, delta, p, zero)
     return np.where(np.isfinite(out), out, np.nan)
+
+
+def run_selection_request(req: SelectionRequest) -> dict:
+    """One selection request end to end, as the route runs it (typed options, then the search)."""
+    return run_selection(selection_job(req), service())
 
 
 def request(rows: int) -> SelectionRequest:
