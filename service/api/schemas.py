@@ -149,16 +149,19 @@ class TransformIn(_Strict):
             if abs(self.exponent) < tr.EXPONENT_FLOOR:
                 raise ValueError(
                     f"power 'exponent' {self.exponent:g} is too close to 0: it must satisfy "
-                    f"{tr.EXPONENT_FLOOR:g} <= |exponent| <= 10 (use log, the limit at 0)"
+                    f"{tr.EXPONENT_FLOOR:g} <= |exponent| <= {tr.EXPONENT_BOUND:g} (use log, the limit at 0)"
                 )
-        elif self.exponent is not None:
-            raise ValueError(f"'exponent' applies only to power, not {self.name}")
-        if self.shift is not None and self.name != "log":
-            raise ValueError(f"'shift' applies only to log, not {self.name}")
-        if self.lambda_ is not None and self.name not in tr.LAMBDA_NAMES:
-            raise ValueError(f"'lambda' applies only to box_cox and yeo_johnson, not {self.name}")
-        if self.reference is not None and self.name != "categorical":
-            raise ValueError(f"'reference' applies only to categorical, not {self.name}")
+        for field, value in (  # the families that take each parameter, from the registry
+            ("exponent", self.exponent),
+            ("shift", self.shift),
+            ("lambda", self.lambda_),
+            ("reference", self.reference),
+        ):
+            owners = tr.families_with_parameter(field)
+            if value is not None and self.name not in owners:
+                raise ValueError(
+                    f"'{field}' applies only to {' and '.join(owners)}, not {self.name}"
+                )
         return self
 
     def as_dict(self) -> dict:

@@ -76,3 +76,35 @@ def test_transform_items_turn_models_into_plain_values():
     items = transform_items(["log", TransformIn.model_validate({"name": "box_cox", "lambda": 1.0})])
     assert items == ["log", {"name": "box_cox", "lambda": 1.0}]
     assert transform_items({"x": ["sqrt"]}) == {"x": ["sqrt"]}
+
+
+@pytest.mark.parametrize(
+    "sent, message",
+    [
+        # the refusals as worded before the owners came from the family registry
+        ({"name": "log", "exponent": 2.0}, "'exponent' applies only to power, not log"),
+        ({"name": "sqrt", "shift": 1.0}, "'shift' applies only to log, not sqrt"),
+        (
+            {"name": "power", "exponent": 2.0, "lambda": 0.5},
+            "'lambda' applies only to box_cox and yeo_johnson, not power",
+        ),
+        (
+            {"name": "identity", "reference": "a"},
+            "'reference' applies only to categorical, not identity",
+        ),
+    ],
+)
+def test_a_parameter_on_a_family_that_does_not_take_it_is_refused_by_name(sent, message):
+    with pytest.raises(ValidationError, match=message):
+        TransformIn.model_validate(sent)
+
+
+def test_each_family_accepts_its_own_parameters():
+    for sent in (
+        {"name": "power", "exponent": -0.5},
+        {"name": "log", "shift": 1.0},
+        {"name": "box_cox", "lambda": 0.5},
+        {"name": "yeo_johnson", "lambda": 0.5},
+        {"name": "categorical", "reference": "a"},
+    ):
+        assert TransformIn.model_validate(sent).as_dict() == sent

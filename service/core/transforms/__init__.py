@@ -33,6 +33,7 @@ from .registry import CATALOGUE as CATALOGUE
 from .registry import FAMILIES as FAMILIES
 from .registry import LAMBDA_NAMES as LAMBDA_NAMES
 from .registry import NUMERIC_NAMES as NUMERIC_NAMES
+from .registry import families_with_parameter as families_with_parameter
 from .value import Transform as Transform
 from .value import from_dict as from_dict
 from .value import ladder_transform as ladder_transform

@@ -41,6 +41,14 @@ LAMBDA_NAMES: tuple[str, ...] = tuple(n for n, f in FAMILIES.items() if f.has_la
 CATALOGUE: list[dict[str, Any]] = [f.catalogue_entry() for f in _ALL]
 
 
+def families_with_parameter(parameter: str) -> tuple[str, ...]:
+    """Names of the families that take ``parameter`` (a key of their contract form), in
+    registry order: the request schema refuses the parameter on any other family."""
+    return tuple(
+        n for n, f in FAMILIES.items() if any(p.get("name") == parameter for p in f.parameters)
+    )
+
+
 def family_of(name: str) -> Family:
     """The family called ``name``; an unknown name is a programming error."""
     try:

@@ -18,7 +18,7 @@ from service.core.transforms import (
     Transform,
     from_dict,
 )
-from service.core.transforms.registry import family_of
+from service.core.transforms.registry import families_with_parameter, family_of
 
 EXAMPLES = Path(__file__).resolve().parents[3] / "openapi_examples"
 
@@ -58,3 +58,14 @@ def test_an_unknown_name_is_refused_where_the_value_is_built():
         Transform("cube")
     with pytest.raises(ValueError, match="no transform family is called 'cube'"):
         family_of("cube")
+
+
+def test_families_with_parameter_follow_the_catalogue():
+    # the catalogue (GET /v1/transforms) lists each family's parameters: the owners of a
+    # parameter are exactly the families listing it
+    for pname in ("exponent", "shift", "lambda", "reference"):
+        listed = tuple(
+            e["name"] for e in CATALOGUE if any(p["name"] == pname for p in e["parameters"])
+        )
+        assert families_with_parameter(pname) == listed
+    assert families_with_parameter("lambda") == ("box_cox", "yeo_johnson")
