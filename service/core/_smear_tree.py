@@ -164,7 +164,7 @@ def exact_power(
     p: float,
     outside_zero: bool,
 ) -> np.ndarray:
-    """The exact double sum for a power-form inverse (same semantics as smear_power)."""
+    """The exact double sum for a power-form inverse (same semantics as smear_power_binned)."""
     eta = np.asarray(eta, dtype=float)
     e = np.asarray(e, dtype=float)
     n = e.size
@@ -266,11 +266,10 @@ def smear_power_binned(
     outside_zero: bool,
 ) -> np.ndarray:
     """mean_i of beta (gamma + delta (eta + e_i))^p over the defined terms (base > 0), from
-    nested bins of the sorted residuals (the semantics of :func:`smear_power` and
-    :func:`exact_power`).
+    nested bins of the sorted residuals (the semantics of :func:`exact_power`).
 
     The sorted values s = sign(delta) e are cut into bins of consecutive values at a few
-    levels (:func:`bin_sizes`: BIN_LEAF = 8 values per finest bin, BIN_SPLIT = 8 finer bins
+    levels (:func:`bin_sizes`: BIN_LEAF = 32 values per finest bin, BIN_SPLIT = 8 finer bins
     per bin, at most BIN_TOP = 64 bins at the top).  Bin k has centre c_k, half-width r_k and
     scaled moments M_kt = sum_{i in k} ((s_i - c_k)/r_k)^t, t < BIN_J, computed once.  For
     an eta the base of a term is b_i = A + |delta| s_i with A = gamma + delta eta, and a

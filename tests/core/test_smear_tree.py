@@ -27,32 +27,15 @@ from service.core import retransform
 from service.core import transforms as tr
 
 from tests.core.test_predict import column, issue
+from tests.core.written_out import inverse_written_out
 
 EPS = np.finfo(float).eps
-
-
-def _plain_terms(t: tr.Transform, z: np.ndarray) -> np.ndarray:
-    """g^-1(z) from the definition of each family; nan where the original value is unbounded."""
-    with np.errstate(all="ignore"):
-        if t.name == "square":
-            return np.sqrt(np.maximum(z, 0.0))
-        if t.name == "reciprocal":
-            return np.where(z > 0, 1.0 / z, np.nan)
-        if t.name == "power":
-            q = t.exponent
-            return np.maximum(z, 0.0) ** (1 / q) if q > 0 else np.where(z > 0, z ** (1 / q), np.nan)
-        if t.name == "box_cox":  # (1 + lam z)^(1/lam); base <= 0 clips to 0 (lam > 0) or is nan
-            lam = t.lam
-            base = 1 + lam * z
-            inside = np.where(base > 0, base, 1.0) ** (1 / lam)
-            return np.where(base > 0, inside, 0.0 if lam > 0 else np.nan)
-    raise AssertionError(t.name)
 
 
 def _plain_mean(t, eta, e):
     """(mean over the defined terms, allowed error) for every eta: the O(m n) double sum."""
     z = eta[:, None] + e[None, :]
-    terms = _plain_terms(t, z)
+    terms = inverse_written_out(t, z)
     defined = ~np.isnan(terms)
     count = defined.sum(axis=1)
     mean = np.where(defined, terms, 0.0).sum(axis=1) / np.maximum(count, 1)
