@@ -21,7 +21,7 @@ number of columns and a response scale fixed across folds:
 A back-transform that is undefined or overflows on held-out rows is a cheap check: the
 batch goes through the folds in the one-candidate path's order (per repeat the median
 check, then the mean, fold by fold) and fails the candidate with the same reason text
-(:func:`fastcv._undefined`: the first such fold and its number of rows).  Whatever else
+(:func:`fastcv.undefined_back_transform`: the first such fold and its number of rows).  Whatever else
 the batch cannot settle exactly as the one-candidate path would (an ill-conditioned fold
 that needs the exact QR refit, any other non-finite value, a fold too small for its
 coefficients, an undefined MAPE) is handed to :meth:`Scorer.score` for that candidate
@@ -40,7 +40,7 @@ from . import retransform
 from . import transforms as tr
 from .cvresult import CVResult, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
-from .fastcv import Scorer, _undefined
+from .fastcv import Scorer, undefined_back_transform
 from .fitting import solve_batch
 
 #: at most this many floats in one (n, C, p) stack of designs (about 64 MB)
@@ -206,5 +206,5 @@ def _fail_undefined(
     k's held-out ``values`` (rows, C), with the one-candidate path's reason."""
     bad = (~np.isfinite(values)).sum(axis=0)
     for j in np.flatnonzero((bad > 0) & ~settled).tolist():
-        failed[j] = _undefined(t0, k, int(bad[j]))
+        failed[j] = undefined_back_transform(t0, k, int(bad[j]))
         gone[j] = True

@@ -78,7 +78,9 @@ def _exact_refit(
     return coef / m
 
 
-def _undefined(t: tr.Transform, k: int, count: int) -> CandidateFailure:
+def undefined_back_transform(t: tr.Transform, k: int, count: int) -> CandidateFailure:
+    """The failure of a candidate whose back-transform is undefined for ``count`` held-out
+    rows of fold k (0-based); the batch fails candidates with the same words."""
     return CandidateFailure(
         f"fold {k + 1}: the back-transform of {t.label('y')} is undefined or overflows for "
         f"{count_of(count, 'held-out row')} (prediction outside the scale's range)"
@@ -265,12 +267,12 @@ class Scorer:
                 med = retransform.naive(tk, eta)
                 bad = ~np.isfinite(med)
                 if np.any(bad):
-                    raise _undefined(tk, k, int(bad.sum()))
+                    raise undefined_back_transform(tk, k, int(bad.sum()))
                 e = zs[k][train[k]] - ETA[train[k], k]
                 mean = retransform.smeared_mean(tk, eta, e)
                 bad = ~np.isfinite(mean)
                 if np.any(bad):
-                    raise _undefined(tk, k, int(bad.sum()))
+                    raise undefined_back_transform(tk, k, int(bad.sum()))
                 yt = y[te]
                 with np.errstate(over="ignore", invalid="ignore"):
                     sq[te] = (yt - mean) ** 2
