@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -11,10 +12,14 @@ from starlette.responses import Response
 from ..core.errors import InputError
 from ..settings import get_settings
 from .pointers import RequestField
+from .render import contract, renders
 
 
 def to_jsonable(obj):
-    """Plain Python containers; raises ValueError on NaN/Infinity (a bug, never shipped)."""
+    """Plain Python containers, typed results in their contract form (:mod:`.render`);
+    raises ValueError on NaN/Infinity (a bug, never shipped)."""
+    if renders(obj):
+        return to_jsonable(contract(obj))
     if isinstance(obj, dict):
         return {str(k): to_jsonable(v) for k, v in obj.items() if not str(k).startswith("_")}
     if isinstance(obj, (list, tuple)):
@@ -30,6 +35,8 @@ def to_jsonable(obj):
         if not math.isfinite(f):
             raise ValueError("non-finite number in a response body")
         return f
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        raise TypeError(f"{type(obj).__name__} has no contract form in service.api.render")
     return obj
 
 

@@ -405,7 +405,7 @@ def select(
             "std_error": best.cv.std_error,
             "specification": best.spec.to_dict(),
         },
-        "band": {**band.to_dict(), "conditions": conditions_block(assessed, opts.alpha, met)},
+        "band": BandReport.of(band, assessed, opts.alpha, met),
         "distinct_scales": scales_info,
         "failures": failures,
         "failure_reasons": failure_groups(ev.reasons),
@@ -509,42 +509,44 @@ class Band:
         se = float(best.cv.std_error) if math.isfinite(best.cv.std_error) else 0.0
         return cls(float(best.cv.value), se, float(best.cv.value) + se, best.cv.metric)
 
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "lowest_cv_value": self.lowest,
-            "std_error_of_lowest": self.std_error,
-            "threshold": self.threshold,
-            "rule": (
-                "candidates whose cross-validated error is at most the lowest error plus the "
-                "standard error of the lowest-error candidate form the band; inside it the "
-                "simplest ranks first (fewer parameters estimated from the response, then "
-                "the readability cost, then fewer transformed columns, then lower error), "
-                "then fewer failed regression conditions among the leading band members; "
-                "outside it candidates follow by error"
-            ),
-            "source": BAND_SOURCE,
-        }
+
+#: how the band orders candidates (stated with it in ``search.band``)
+BAND_RULE = (
+    "candidates whose cross-validated error is at most the lowest error plus the "
+    "standard error of the lowest-error candidate form the band; inside it the "
+    "simplest ranks first (fewer parameters estimated from the response, then "
+    "the readability cost, then fewer transformed columns, then lower error), "
+    "then fewer failed regression conditions among the leading band members; "
+    "outside it candidates follow by error"
+)
+#: how failed conditions reorder the band's leading members
+BAND_CONDITIONS_RULE = (
+    "a condition reorders the compared band members when one of them fails it "
+    "clearly, its deciding test (RESET, Shapiro-Wilk or Jarque-Bera, "
+    "Breusch-Pagan, Breusch-Godfrey; threshold rules for multicollinearity and "
+    "influence) rejecting at alpha divided by the number of conditions tested "
+    "times the number of members compared, and another meets it; then it counts "
+    "against every member that does not meet it at alpha. So a band whose members "
+    "all meet every condition is reordered by chance with probability at most "
+    "alpha, tests reported only never decide, and a condition no member meets "
+    "describes the data, not a scale, and reorders nothing"
+)
 
 
-def conditions_block(members: int, alpha: float, ordering: frozenset[str]) -> dict[str, Any]:
-    """How failed conditions reorder the band (reported once in ``search.band``)."""
-    return {
-        "members_compared": members,
-        "conditions_ordering": [c for c in CONDITION_NAMES if c in ordering],
-        "alpha": alpha,
-        "rule": (
-            "a condition reorders the compared band members when one of them fails it "
-            "clearly, its deciding test (RESET, Shapiro-Wilk or Jarque-Bera, "
-            "Breusch-Pagan, Breusch-Godfrey; threshold rules for multicollinearity and "
-            "influence) rejecting at alpha divided by the number of conditions tested "
-            "times the number of members compared, and another meets it; then it counts "
-            "against every member that does not meet it at alpha. So a band whose members "
-            "all meet every condition is reordered by chance with probability at most "
-            "alpha, tests reported only never decide, and a condition no member meets "
-            "describes the data, not a scale, and reorders nothing"
-        ),
-        "source": CONDITIONS_SOURCE,
-    }
+@dataclass(frozen=True)
+class BandReport:
+    """The band as reported once per request: its numbers and how failed conditions
+    reordered its first ``members_compared`` members (``ordering``: the conditions that
+    did, in the order of :data:`CONDITION_NAMES`)."""
+
+    band: Band
+    members_compared: int
+    ordering: tuple[str, ...]
+    alpha: float
+
+    @classmethod
+    def of(cls, band: Band, members: int, alpha: float, ordering: frozenset[str]) -> BandReport:
+        return cls(band, members, tuple(c for c in CONDITION_NAMES if c in ordering), alpha)
 
 
 def band_order(

@@ -1,0 +1,34 @@
+"""Contract form of the search summary's band, from a real selection."""
+
+import numpy as np
+import pytest
+from service.api.encode import to_jsonable
+from service.api.render import contract
+from service.core.conditions import CONDITION_NAMES
+from service.core.data import prepare
+from service.selection.search import BAND_RULE, Band, BandReport, select
+from service.selection.search_setup import SearchOptions
+
+
+def test_band_block_states_the_one_standard_error_threshold():
+    # source: Hastie, Tibshirani & Friedman (2009) sec. 7.10: the band is the lowest CV
+    # error plus the standard error of the lowest-error candidate
+    rng = np.random.default_rng(3)
+    x = rng.uniform(1, 10, 120)
+    y = np.exp(0.3 * x + rng.normal(0, 0.2, 120))
+    prep = prepare({"columns": {"x": x.tolist(), "y": y.tolist()}}, "y", ["x"])
+    result = select(prep, SearchOptions(), "test")
+    band = to_jsonable(result.body)["search"]["band"]
+    best = min(result.scored, key=lambda s: s.cv.value)
+    assert band["lowest_cv_value"] == pytest.approx(best.cv.value, rel=1e-15)
+    assert band["threshold"] == pytest.approx(best.cv.value + best.cv.std_error, rel=1e-15)
+    assert band["rule"] == BAND_RULE
+    assert set(band["conditions"]["conditions_ordering"]) <= set(CONDITION_NAMES)
+
+
+def test_conditions_ordering_follows_the_condition_list_order():
+    last, first = CONDITION_NAMES[-1], CONDITION_NAMES[0]
+    out = contract(BandReport.of(Band(1.0, 0.1, 1.1), 3, 0.01, frozenset({last, first})))
+    assert out["conditions"]["conditions_ordering"] == [first, last]
+    assert out["conditions"]["members_compared"] == 3
+    assert out["conditions"]["alpha"] == 0.01
