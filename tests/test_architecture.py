@@ -480,6 +480,8 @@ MORE_CONTRACT_NAMES = frozenset(
         "r2",
         "df_model",
         "df_resid",
+        "lags",
+        "common_practice_range",
     ]
 )
 #: files of the lower floors that still build contract dicts, and how many contract names
@@ -487,10 +489,8 @@ MORE_CONTRACT_NAMES = frozenset(
 #: count may only fall; the test fails when a file writes more, or fewer without this table
 #: saying so)
 NOT_YET_RENDERED = {
-    "core/_condition_tests.py": 43,
     "core/batchcv.py": 3,
     "core/boxtidwell.py": 11,
-    "core/conditions.py": 96,
     "core/cvplus.py": 17,
     "core/cvresult.py": 13,
     "core/data.py": 7,
