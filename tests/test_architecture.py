@@ -492,7 +492,6 @@ NOT_YET_RENDERED = {
     "core/conditions.py": 96,
     "core/cvplus.py": 17,
     "core/cvresult.py": 13,
-    "core/data.py": 7,
     "core/drift.py": 30,
     "core/fastcv.py": 3,
     "core/fitting.py": 2,

@@ -8,7 +8,7 @@ from starlette.responses import PlainTextResponse
 from ..core import transforms as tr
 from ..selection.request import run_selection
 from ..version import __version__
-from .encode import JSONBody, to_jsonable
+from .encode import JSONBody
 from .errors import with_group_problems
 from .metrics import exposition
 from .middleware import note_result
@@ -34,7 +34,7 @@ def post_selections(req: SelectionRequest, request: Request):
         return report_response(req, request)  # the page of POST /v1/reports
     with compute_slot():
         job = selection_job(req, stop=disconnect_probe(request))
-        body = to_jsonable(with_group_problems(run_selection(job, service())))
+        body = with_group_problems(run_selection(job, service()))
     note_result(body)
     return JSONBody(body)
 
