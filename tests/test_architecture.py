@@ -509,7 +509,6 @@ NOT_YET_RENDERED = {
     "core/transforms/value.py": 1,
     "report/html.py": 11,
     "selection/candidates.py": 1,
-    "selection/cautions.py": 6,
     "selection/diagnose.py": 7,
     "selection/entries.py": 32,
     "selection/groups.py": 12,
