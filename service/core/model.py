@@ -25,10 +25,10 @@ def stored_residuals(resid: np.ndarray) -> tuple[str, list[float]]:
     quantiles reproduces it to within the spacing of the empirical distribution.
     """
     if resid.size <= MAX_STORED_RESIDUALS:
-        return "all", [float(v) for v in resid]
+        return "all", np.asarray(resid, dtype=float).tolist()
     s = np.sort(resid)
     pos = (np.arange(MAX_STORED_RESIDUALS) + 0.5) * s.size / MAX_STORED_RESIDUALS
-    return "quantiles", [float(v) for v in np.interp(pos - 0.5, np.arange(s.size), s)]
+    return "quantiles", np.interp(pos - 0.5, np.arange(s.size), s).tolist()
 
 
 def _canon(v: Any) -> Any:
