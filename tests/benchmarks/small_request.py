@@ -10,6 +10,9 @@ artifacts unsigned and signed, "before" and "after" alternating in the same run.
 - power-form smearing with a clip tallying term counts and masking term by term in the
   finest failed bins (``_binned_block`` with ``clip=False``, the computation it did before).
 
+Two smaller changes are in both columns (not patched back): the root series forms its
+moments only when an eta takes it, and stored residuals leave numpy through ``tolist``.
+
 Prints best-of-``--runs`` CPU seconds (``time.process_time``) beside wall seconds (the machine
 is shared), the ratio, the canonical dumps per request, and the largest relative change of
 any number in the body (signatures and checksums aside, which must be equal too: the bodies
