@@ -500,7 +500,6 @@ NOT_YET_RENDERED = {
     "core/interpret.py": 13,
     "core/likelihood.py": 9,
     "core/model.py": 33,
-    "core/plots.py": 102,
     "core/predict.py": 25,
     "core/sources.py": 5,
     "core/spec.py": 11,
