@@ -74,8 +74,8 @@ def _linear_prep(n=120, seed=3):
 
 def test_max_candidates_stops_the_search_incomplete():
     out = run_selection(_linear_prep(), SearchOptions(max_candidates=3), "t")
-    assert out["search"]["candidates_scored"] + out["search"]["candidates_failed"] == 3
-    assert out["search"]["complete"] is False
+    assert out["search"].scored + out["search"].failed == 3
+    assert out["search"].complete is False
     assert any("stopped early" in w for w in out["warnings"])
 
 
@@ -97,18 +97,18 @@ def test_failed_candidates_do_not_stop_the_search():
         ),
         "t",
     )
-    assert out["search"]["candidates_scored"] >= 1
-    for f in out["search"]["failures"]:
-        assert f["reason"]
+    assert out["search"].scored >= 1
+    for f in out["search"].failures:
+        assert f.reason
     # failures grouped by reason with counts that add up to the failed candidates
-    groups = out["search"]["failure_reasons"]
-    if out["search"]["candidates_failed"]:
-        assert sum(g["candidates"] for g in groups) == out["search"]["candidates_failed"]
-        assert [g["candidates"] for g in groups] == sorted(
-            (g["candidates"] for g in groups), reverse=True
+    groups = out["search"].failure_reasons
+    if out["search"].failed:
+        assert sum(g.candidates for g in groups) == out["search"].failed
+        assert [g.candidates for g in groups] == sorted(
+            (g.candidates for g in groups), reverse=True
         )
         (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
-        assert "(s)" not in warning and groups[0]["reason"] in warning
+        assert "(s)" not in warning and groups[0].reason in warning
 
 
 def test_failures_are_grouped_by_reason_with_counts():
@@ -127,16 +127,16 @@ def test_failures_are_grouped_by_reason_with_counts():
         ),
         "t",
     )
-    failed = out["search"]["candidates_failed"]
-    groups = out["search"]["failure_reasons"]
+    failed = out["search"].failed
+    groups = out["search"].failure_reasons
     assert failed > 0 and groups
-    counts = [g["candidates"] for g in groups]
+    counts = [g.candidates for g in groups]
     assert counts == sorted(counts, reverse=True) and sum(counts) <= failed
     # reasons that differ only in fold and row counts are one group
-    assert sum("back-transform of 1/y" in g["reason"] for g in groups) == 1
+    assert sum("back-transform of 1/y" in g.reason for g in groups) == 1
     (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
     assert warning.startswith(f"{failed} candidates could not be scored")
-    assert f"{counts[0]} candidate" in warning and groups[0]["reason"] in warning
+    assert f"{counts[0]} candidate" in warning and groups[0].reason in warning
     assert "(s)" not in warning
 
 
