@@ -33,6 +33,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from scipy import stats
+from service.api.encode import to_jsonable
+from service.api.render import contract
 from service.core.data import prepare
 from service.core.fitting import hac_cov, hc3_cov, newey_west_lags, ols
 from service.core.predict import load_model, predict
@@ -121,14 +123,16 @@ def pi_coverage(
         prep = prepare({"columns": {"x": x.tolist(), "y": y.tolist()}}, "y", ["x"])
         if case == "powers":
             opts = SearchOptions(["identity"], [{"name": "power"}], top=1)
-            entry = run_selection(prep, opts, "bench")["ranking"][0]
+            entry = to_jsonable(run_selection(prep, opts, "bench"))["ranking"][0]
             assert entry["model"]["cv_plus"]["fold_powers"]["columns"] == ["x"]
         else:
             entry, _ = diagnose_specification(prep, spec, SearchOptions(), "bench", max_points=10)
         model = load_model(entry["model"])
         x0, y0 = pi_data(case, rng, fresh)
         for method in ("normal", "cv_plus"):
-            p = predict(model, {"columns": {"x": x0.tolist()}}, level, method)["predictions"]
+            p = contract(predict(model, {"columns": {"x": x0.tolist()}}, level, method))[
+                "predictions"
+            ]
             lo = np.array([r["lower"] if r["lower"] is not None else -np.inf for r in p])
             hi = np.array([r["upper"] if r["upper"] is not None else np.inf for r in p])
             inside = (lo <= y0) & (y0 <= hi)
