@@ -612,15 +612,19 @@ def run_job(
     t0 = time.perf_counter()
     for name, body in runner(tasks) if tasks else ():
         entry = files[name]
-        rec = {
-            "segment": name,
-            "status": "failed" if "problem" in body else "ok",
-            "request_digest": job.request_digest,
-            "fingerprint": entry["fingerprint"],
-            "rows": entry["rows"],
-            "result": body,
-        }
-        atomic_write(out / entry["file"], dumps(_jsonable(rec)))
+        # rendered once (typed results -> contract JSON): the file and the summary read the
+        # same record, as a resumed run reads it back from the file
+        rec = _jsonable(
+            {
+                "segment": name,
+                "status": "failed" if "problem" in body else "ok",
+                "request_digest": job.request_digest,
+                "fingerprint": entry["fingerprint"],
+                "rows": entry["rows"],
+                "result": body,
+            }
+        )
+        atomic_write(out / entry["file"], dumps(rec))
         records[name] = rec
         if progress is not None:
             progress.step("problem" in body)

@@ -14,6 +14,9 @@ share of rows between consecutive ones, for a categorical column the share of ea
   ``PSI = sum_i (now_i - then_i) * ln(now_i / then_i)`` over the bins, which is the
   Jeffreys divergence (KL both ways) between the two binned distributions.
 
+:func:`compare` returns a frozen :class:`DriftReport` (``service.api.render.drift`` writes
+it as the ``drift`` block); :func:`profile` writes the plain dict the artifact keeps.
+
 Rule (common practice, not a test with a known error rate): PSI below 0.1 is no material
 shift, 0.1 to 0.25 a moderate shift, 0.25 or more a major shift.  Empty bins count as a
 share of 0.0001 (common practice) so the logarithm stays finite.  A column is flagged when
@@ -23,6 +26,7 @@ or more.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -41,7 +45,96 @@ RULE = (
 )
 
 
-def _lv(names: list[str]) -> str:
+#: said when the artifact has no data profile
+NO_PROFILE_NOTE = (
+    "the model records no data profile (issued before profiles were kept); only "
+    "ranges and levels are compared"
+)
+
+
+@dataclass(frozen=True)
+class Shift:
+    """The population stability index of a column's binned shares, now against then, and
+    its grade ("none", "moderate" or "major")."""
+
+    psi: float
+    grade: str
+
+
+@dataclass(frozen=True)
+class OutsideRange:
+    """Rows of this month below the training minimum and above the training maximum, their
+    share of the rows, and this month's range."""
+
+    below: int
+    above: int
+    share: float
+    now_min: float
+    now_max: float
+
+
+@dataclass(frozen=True)
+class NumericDrift:
+    """One numeric predictor: its training range (None when the artifact records none),
+    the rows outside it, and, when the artifact has a profile, the shift and the medians."""
+
+    training_min: float | None
+    training_max: float | None
+    outside: OutsideRange | None
+    shift: Shift | None
+    median_then: float | None
+    median_now: float | None
+
+
+@dataclass(frozen=True)
+class CategoricalDrift:
+    """One categorical predictor: levels new this month, levels no longer present, and,
+    when the artifact has a profile, the shift of the level shares."""
+
+    new_levels: tuple[str, ...]
+    vanished_levels: tuple[str, ...]
+    shift: Shift | None
+
+
+@dataclass(frozen=True)
+class MissingColumn:
+    """A predictor of the specification that this month's data do not have."""
+
+
+ColumnDrift = NumericDrift | CategoricalDrift | MissingColumn
+
+
+@dataclass(frozen=True)
+class ResponseDrift:
+    """The response's shift and its median and mean, then and now."""
+
+    shift: Shift
+    median_then: float
+    median_now: float
+    mean_then: float
+    mean_now: float
+
+
+@dataclass(frozen=True)
+class DriftReport:
+    """This month's rows against what a model artifact recorded about its training rows:
+    the rows then (None when unknown) and now, one result per predictor of the
+    specification (in its order), the response (None without a data profile, when
+    ``note`` says so) and the sentences of what moved."""
+
+    rows_then: int | None
+    rows_now: int
+    predictors: tuple[tuple[str, ColumnDrift], ...]
+    response: ResponseDrift | None
+    note: str | None
+    flags: tuple[str, ...]
+
+    @property
+    def flagged(self) -> bool:
+        return bool(self.flags)
+
+
+def _lv(names: list[str] | tuple[str, ...]) -> str:
     return "level" if len(names) == 1 else "levels"
 
 
@@ -102,56 +195,58 @@ def _binned_shares(x: np.ndarray, edges: list[float]) -> np.ndarray:
     return counts / max(x.size, 1)
 
 
+def _shift(now: ArrayLike, then: ArrayLike) -> Shift:
+    v = psi(now, then)
+    return Shift(v, grade(v))
+
+
 def _numeric(
     x: np.ndarray, prof: dict[str, Any] | None, rng: dict[str, Any] | None
-) -> dict[str, Any]:
+) -> NumericDrift:
     lo = prof["edges"][0] if prof else (rng or {}).get("min")
     hi = prof["edges"][-1] if prof else (rng or {}).get("max")
-    out: dict[str, Any] = {"kind": "numeric", "training_min": lo, "training_max": hi}
+    outside = None
     if lo is not None and hi is not None:
         below, above = int(np.sum(x < lo)), int(np.sum(x > hi))
-        out["outside_range"] = {
-            "below": below,
-            "above": above,
-            "share": (below + above) / max(x.size, 1),
-            "now_min": float(np.min(x)),
-            "now_max": float(np.max(x)),
-        }
-    if prof:
-        v = psi(_binned_shares(x, prof["edges"]), prof["shares"])
-        out.update(
-            psi=v, shift=grade(v), median_then=prof["median"], median_now=float(np.median(x))
+        outside = OutsideRange(
+            below=below,
+            above=above,
+            share=(below + above) / max(x.size, 1),
+            now_min=float(np.min(x)),
+            now_max=float(np.max(x)),
         )
-    return out
+    if not prof:
+        return NumericDrift(lo, hi, outside, None, None, None)
+    shift = _shift(_binned_shares(x, prof["edges"]), prof["shares"])
+    return NumericDrift(lo, hi, outside, shift, prof["median"], float(np.median(x)))
 
 
 def _categorical(
     values: np.ndarray, prof: dict[str, Any] | None, levels: dict[str, Any] | None
-) -> dict[str, Any]:
+) -> CategoricalDrift:
     now_lv, counts = np.unique(np.asarray(values).astype(str), return_counts=True)
     now = dict(zip(now_lv.tolist(), (counts / counts.sum()).tolist(), strict=True))
     then: dict[str, Any] = (
         prof["shares"] if prof else dict.fromkeys((levels or {}).get("levels", []), 0.0)
     )
-    out: dict[str, Any] = {
-        "kind": "categorical",
-        "new_levels": sorted(set(now) - set(then)),
-        "vanished_levels": sorted(set(then) - set(now)),
-    }
+    shift = None
     if prof:
         keys = sorted(set(now) | set(then))
-        v = psi([now.get(k, 0.0) for k in keys], [then.get(k, 0.0) for k in keys])
-        out.update(psi=v, shift=grade(v))
-    return out
+        shift = _shift([now.get(k, 0.0) for k in keys], [then.get(k, 0.0) for k in keys])
+    return CategoricalDrift(
+        new_levels=tuple(sorted(set(now) - set(then))),
+        vanished_levels=tuple(sorted(set(then) - set(now))),
+        shift=shift,
+    )
 
 
-def _names(xs: list[str]) -> str:
+def _names(xs: tuple[str, ...]) -> str:
     shown = ", ".join(f"'{x}'" for x in xs[:10])
     return shown + (f" and {len(xs) - 10} more" if len(xs) > 10 else "")
 
 
-def compare(artifact: dict[str, Any], prep: Prepared) -> dict[str, Any]:
-    """The ``drift`` block of one segment: this month's rows against the artifact's record."""
+def compare(artifact: dict[str, Any], prep: Prepared) -> DriftReport:
+    """The drift of one segment: this month's rows against the artifact's record."""
     prof = artifact.get("data_profile") or {}
     pprof = prof.get("predictors", {})
     ranges = artifact.get("training_range", {})
@@ -159,62 +254,58 @@ def compare(artifact: dict[str, Any], prep: Prepared) -> dict[str, Any]:
     spec = artifact.get("specification", {})
     columns = [p["column"] for p in spec.get("predictors", [])]
     flags: list[str] = []
-    preds: dict[str, Any] = {}
+    preds: list[tuple[str, ColumnDrift]] = []
     for c in columns:
+        d: NumericDrift | CategoricalDrift
         if c in prep.numeric:
             d = _numeric(np.asarray(prep.numeric[c], dtype=float), pprof.get(c), ranges.get(c))
-            o = d.get("outside_range")
-            if o and o["below"] + o["above"]:
+            o = d.outside
+            if o and o.below + o.above:
                 flags.append(
-                    f"'{c}': {o['below'] + o['above']} of {prep.n} rows ({o['share']:.0%}) lie "
-                    f"outside the training range {d['training_min']:.6g} to "
-                    f"{d['training_max']:.6g} (now {o['now_min']:.6g} to {o['now_max']:.6g}); "
+                    f"'{c}': {o.below + o.above} of {prep.n} rows ({o.share:.0%}) lie "
+                    f"outside the training range {d.training_min:.6g} to "
+                    f"{d.training_max:.6g} (now {o.now_min:.6g} to {o.now_max:.6g}); "
                     "predictions there are extrapolations"
                 )
         elif c in prep.categorical:
             d = _categorical(prep.categorical[c], pprof.get(c), levels.get(c))
-            if d["new_levels"]:
+            if d.new_levels:
                 flags.append(
-                    f"'{c}' has {_lv(d['new_levels'])} the model never saw: {_names(d['new_levels'])}"
+                    f"'{c}' has {_lv(d.new_levels)} the model never saw: {_names(d.new_levels)}"
                 )
-            if d["vanished_levels"]:
+            if d.vanished_levels:
                 flags.append(
-                    f"'{c}' no longer has {_lv(d['vanished_levels'])} {_names(d['vanished_levels'])}"
+                    f"'{c}' no longer has {_lv(d.vanished_levels)} {_names(d.vanished_levels)}"
                 )
         else:
-            preds[c] = {"kind": "missing"}
+            preds.append((c, MissingColumn()))
             flags.append(f"'{c}' is not in this data")
             continue
-        if d.get("shift") in ("moderate", "major"):
-            flags.append(f"'{c}' shifted ({d['shift']}: PSI {d['psi']:.3g})")
-        preds[c] = d
-    out: dict[str, Any] = {
-        "rows": {"then": prof.get("rows", artifact.get("n")), "now": int(prep.n)},
-        "predictors": preds,
-        "rule": RULE,
-    }
+        if d.shift is not None and d.shift.grade in ("moderate", "major"):
+            flags.append(f"'{c}' shifted ({d.shift.grade}: PSI {d.shift.psi:.3g})")
+        preds.append((c, d))
     rprof = prof.get("response")
+    response = None
     if rprof:
-        v = psi(_binned_shares(np.asarray(prep.y, dtype=float), rprof["edges"]), rprof["shares"])
-        out["response"] = {
-            "psi": v,
-            "shift": grade(v),
-            "median_then": rprof["median"],
-            "median_now": float(np.median(prep.y)),
-            "mean_then": rprof["mean"],
-            "mean_now": float(np.mean(prep.y)),
-        }
-        if grade(v) != "none":
+        y = np.asarray(prep.y, dtype=float)
+        shift = _shift(_binned_shares(y, rprof["edges"]), rprof["shares"])
+        response = ResponseDrift(
+            shift=shift,
+            median_then=rprof["median"],
+            median_now=float(np.median(prep.y)),
+            mean_then=rprof["mean"],
+            mean_now=float(np.mean(prep.y)),
+        )
+        if shift.grade != "none":
             flags.append(
-                f"the response level moved ({grade(v)}: PSI {v:.3g}; median "
+                f"the response level moved ({shift.grade}: PSI {shift.psi:.3g}; median "
                 f"{rprof['median']:.6g} then, {float(np.median(prep.y)):.6g} now)"
             )
-    else:
-        out["response"] = None
-        out["note"] = (
-            "the model records no data profile (issued before profiles were kept); only "
-            "ranges and levels are compared"
-        )
-    out["flags"] = flags
-    out["flagged"] = bool(flags)
-    return out
+    return DriftReport(
+        rows_then=prof.get("rows", artifact.get("n")),
+        rows_now=int(prep.n),
+        predictors=tuple(preds),
+        response=response,
+        note=None if rprof else NO_PROFILE_NOTE,
+        flags=tuple(flags),
+    )

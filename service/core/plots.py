@@ -1,7 +1,9 @@
 """Plot-ready data for the diagnostic panels of one OLS candidate.
 
-:func:`diagnostic_plots` returns named numeric series (lists of finite floats and row
-numbers) for the questions a reader asks of a fitted scale:
+:func:`diagnostic_plots` returns a frozen :class:`DiagnosticPlots`: one typed panel per
+question a reader asks of a fitted scale, each holding named numeric series (tuples of
+finite floats and row numbers; ``service.api.render.plots`` writes them as the
+``plots`` JSON of ``/v1/diagnostics`` and ``service.report.figures`` draws them):
 
 - ``residuals_fitted`` -- is the scale straight?  Residuals against fitted values with a
   LOWESS smoother (Cleveland 1979).
@@ -23,7 +25,7 @@ use all rows up to :data:`SMOOTHER_MAX_ROWS` and a seeded sample beyond that.
 from __future__ import annotations
 
 import math
-from typing import Any
+from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -47,12 +49,220 @@ ENVELOPE_SIMULATIONS = 199
 ENVELOPE_SIMULATION_MAX_N = 10_000
 
 
-def _floats(values: ArrayLike) -> list[float]:
-    return [float(v) for v in np.asarray(values, dtype=float)]
+# ------------------------------------------------------------------------ typed results
+Floats = tuple[float, ...]
 
 
-def _ints(values: ArrayLike) -> list[int]:
-    return [int(v) for v in np.asarray(values)]
+@dataclass(frozen=True)
+class Heading:
+    """What a panel asks and how to read it: its title, the code of its question, a one-line
+    reading and the axis labels (prose for a person; every panel has one)."""
+
+    title: str
+    question: str
+    reading: str
+    x_label: str
+    y_label: str
+
+
+@dataclass(frozen=True)
+class Scatter:
+    """Points of a panel: x and y, and the request's row number of each point."""
+
+    x: Floats
+    y: Floats
+    row: tuple[int, ...]
+
+    @classmethod
+    def empty(cls) -> Scatter:
+        return cls((), (), ())
+
+
+@dataclass(frozen=True)
+class InfluencePoints:
+    """Cook's distance (``y``) by row number (``x``); the leverage and externally
+    studentised residual of each row (None where undefined: leverage 1), absent when the
+    fit has no influence measures; ``flag`` the reason a row is flagged ("cooks", "other"
+    or "")."""
+
+    x: Floats
+    y: Floats
+    row: tuple[int, ...]
+    leverage: tuple[float | None, ...] | None
+    studentized: tuple[float | None, ...] | None
+    flag: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class Curve:
+    """A line through the points (x, y) in order of x."""
+
+    x: Floats
+    y: Floats
+
+
+@dataclass(frozen=True)
+class Smoother:
+    """A smoothing curve and the method that drew it, with its published source."""
+
+    x: Floats
+    y: Floats
+    method: str
+    source: str
+
+
+@dataclass(frozen=True)
+class ReferenceLine:
+    """A named reference line from (x[0], y[0]) to (x[1], y[1])."""
+
+    name: str
+    x: Floats
+    y: Floats
+
+
+@dataclass(frozen=True)
+class Label:
+    """A flagged row to label at (x, y)."""
+
+    row: int
+    x: float
+    y: float
+
+
+@dataclass(frozen=True)
+class QuartileLine:
+    """The line through the quartiles of a normal-quantile panel, drawn between its ends."""
+
+    x: Floats
+    y: Floats
+    slope: float
+    intercept: float
+    method: str
+    source: str
+
+
+@dataclass(frozen=True)
+class Envelope:
+    """Pointwise band of the ordered standardised residuals at the normal quantiles ``x``
+    for a normal sample, and the share of the shown points inside it."""
+
+    x: Floats
+    lower: Floats
+    upper: Floats
+    level: float
+    method: str
+    source: str
+    simulations: int | None  # None for the exact order-statistic quantiles
+    share_inside: float
+
+
+@dataclass(frozen=True)
+class Cutoff:
+    """A named horizontal line of the influence panel (a flag or fail cut-off)."""
+
+    name: str
+    value: float
+
+
+@dataclass(frozen=True)
+class ResidualsPanel:
+    """Is the scale straight? Residuals against fitted values."""
+
+    heading: Heading
+    points: Scatter
+    smoother: Smoother | None
+    reference_lines: tuple[ReferenceLine, ...]
+    labels: tuple[Label, ...]
+    n_total: int
+
+
+@dataclass(frozen=True)
+class SpreadPanel:
+    """Is the spread even? |standardised residual| against fitted values; ``note`` says
+    why the panel is empty (no standardised residuals), else None."""
+
+    heading: Heading
+    n_total: int
+    points: Scatter
+    smoother: Smoother | None
+    reference_lines: tuple[ReferenceLine, ...]
+    labels: tuple[Label, ...]
+    note: str | None
+
+
+@dataclass(frozen=True)
+class NormalPanel:
+    """Are the residuals close to normal? Ordered standardised residuals against normal
+    quantiles; ``note`` says why the panel is empty, else None (and the panel has its
+    reference line, envelope and plotting positions)."""
+
+    heading: Heading
+    n_total: int
+    points: Scatter
+    reference_line: QuartileLine | None
+    envelope: Envelope | None
+    labels: tuple[Label, ...]
+    note: str | None
+    plotting_positions: str | None
+
+
+@dataclass(frozen=True)
+class InfluencePanel:
+    """Which rows pull the fit? Cook's distance by row; ``note`` says why the panel is
+    empty, else None (and the panel has its cut-offs and flag rule)."""
+
+    heading: Heading
+    n_total: int
+    points: InfluencePoints
+    cutoffs: tuple[Cutoff, ...]
+    flag_rule: str | None
+    labels: tuple[Label, ...]
+    note: str | None
+
+
+@dataclass(frozen=True)
+class PartialResidualsPanel:
+    """Is the scale of one numeric predictor right? Its partial residuals against the
+    predictor as sent, with its fitted effect (``component``) and a smoother."""
+
+    column: str
+    label: str
+    heading: Heading
+    points: Scatter
+    component: Curve
+    smoother: Smoother | None
+    coefficient: float | None
+    n_total: int
+
+
+@dataclass(frozen=True)
+class DiagnosticPlots:
+    """The five diagnostic panels of one fitted specification."""
+
+    residuals_fitted: ResidualsPanel
+    normal_quantiles: NormalPanel
+    spread_fitted: SpreadPanel
+    influence: InfluencePanel
+    partial_residuals: tuple[PartialResidualsPanel, ...]
+
+
+#: plotting positions of the normal-quantile panel
+PLOTTING_POSITIONS = "Blom (1958): (i - 0.375) / (n + 0.25)"
+#: the rule by which the influence panel flags a row
+FLAG_RULE = (
+    "a row is flagged for Cook's distance > 4/n, leverage > 2p/n, |DFFITS| > 2 sqrt(p/n) "
+    "or |externally studentised residual| > 3 (common practice)"
+)
+
+
+# ------------------------------------------------------------------------------ series
+def _floats(values: ArrayLike) -> Floats:
+    out: list[float] = np.asarray(values, dtype=float).tolist()
+    return tuple(out)
+
+
+def _ints(values: ArrayLike) -> tuple[int, ...]:
+    return tuple(int(v) for v in np.asarray(values).tolist())
 
 
 def _even(k_total: int, k: int) -> np.ndarray:
@@ -62,7 +272,7 @@ def _even(k_total: int, k: int) -> np.ndarray:
     return np.unique(np.linspace(0, k_total - 1, k).round().astype(int))
 
 
-def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict[str, Any] | None:
+def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> Smoother | None:
     """LOWESS curve of y on x (frac 2/3, 3 robustness steps), thinned to CURVE_POINTS."""
     ok = np.isfinite(x) & np.isfinite(y)
     x, y = x[ok], y[ok]
@@ -81,32 +291,33 @@ def _smoother(x: np.ndarray, y: np.ndarray, rng: np.random.Generator) -> dict[st
     if curve.shape[0] < 2:
         return None
     curve = curve[_even(curve.shape[0], CURVE_POINTS)]
-    return {
-        "x": _floats(curve[:, 0]),
-        "y": _floats(curve[:, 1]),
-        "method": "LOWESS, frac = 2/3, 3 robustness iterations",
-        "source": src.LOWESS,
-    }
+    return Smoother(
+        _floats(curve[:, 0]),
+        _floats(curve[:, 1]),
+        "LOWESS, frac = 2/3, 3 robustness iterations",
+        src.LOWESS,
+    )
 
 
-def _scatter(
-    x: np.ndarray, y: np.ndarray, ids: np.ndarray, keep: np.ndarray, **extra: np.ndarray
-) -> dict[str, Any]:
-    ok = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
-    out: dict[str, Any] = {"x": _floats(x[ok]), "y": _floats(y[ok]), "row": _ints(ids[ok])}
-    for name, values in extra.items():
-        out[name] = [ct.num(v) for v in values[ok]]  # None where undefined (leverage 1)
-    return out
+def _shown(x: np.ndarray, y: np.ndarray, keep: np.ndarray) -> np.ndarray:
+    """The rows of ``keep`` where both x and y are finite."""
+    ok: np.ndarray = keep[np.isfinite(x[keep]) & np.isfinite(y[keep])]
+    return ok
+
+
+def _scatter(x: np.ndarray, y: np.ndarray, ids: np.ndarray, keep: np.ndarray) -> Scatter:
+    ok = _shown(x, y, keep)
+    return Scatter(_floats(x[ok]), _floats(y[ok]), _ints(ids[ok]))
 
 
 def _labels(
     x: np.ndarray, y: np.ndarray, ids: np.ndarray, flagged: np.ndarray
-) -> list[dict[str, Any]]:
-    out = []
-    for i in flagged[:MAX_LABELS]:
-        if np.isfinite(x[i]) and np.isfinite(y[i]):
-            out.append({"row": int(ids[i]), "x": float(x[i]), "y": float(y[i])})
-    return out
+) -> tuple[Label, ...]:
+    return tuple(
+        Label(int(ids[i]), float(x[i]), float(y[i]))
+        for i in flagged[:MAX_LABELS]
+        if np.isfinite(x[i]) and np.isfinite(y[i])
+    )
 
 
 def _thin(n: int, max_points: int, must: np.ndarray, rng: np.random.Generator) -> np.ndarray:
@@ -127,25 +338,30 @@ def _residuals_fitted(
     keep: np.ndarray,
     flagged: np.ndarray,
     rng: np.random.Generator,
-) -> dict[str, Any]:
+) -> ResidualsPanel:
     f, e = fit.fitted, fit.resid
     lo, hi = float(f.min()), float(f.max())
-    return {
-        "title": "Is the scale straight?",
-        "question": "straight",
-        "reading": "residuals should scatter around 0 with no curve in the smoother",
-        "x_label": "Fitted value (model scale)",
-        "y_label": "Residual (model scale)",
-        "points": _scatter(f, e, ids, keep),
-        "smoother": _smoother(f, e, rng),
-        "reference_lines": [{"name": "zero", "x": [lo, hi], "y": [0.0, 0.0]}],
-        "labels": _labels(f, e, ids, flagged),
-        "n_total": fit.n,
-    }
+    return ResidualsPanel(
+        heading=Heading(
+            title="Is the scale straight?",
+            question="straight",
+            reading="residuals should scatter around 0 with no curve in the smoother",
+            x_label="Fitted value (model scale)",
+            y_label="Residual (model scale)",
+        ),
+        points=_scatter(f, e, ids, keep),
+        smoother=_smoother(f, e, rng),
+        reference_lines=(ReferenceLine("zero", (lo, hi), (0.0, 0.0)),),
+        labels=_labels(f, e, ids, flagged),
+        n_total=fit.n,
+    )
 
 
-def _envelope(fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator) -> dict[str, Any]:
-    """Pointwise 2.5%/97.5% envelope of the ordered standardised residuals at ``ranks``."""
+def _envelope(
+    fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator
+) -> tuple[np.ndarray, np.ndarray, str, str, int | None]:
+    """Pointwise 2.5%/97.5% envelope of the ordered standardised residuals at ``ranks``:
+    (lower, upper, method, source, simulations)."""
     if fit.n <= ENVELOPE_SIMULATION_MAX_N:
         # Atkinson (1981): simulate N(0, 1) responses on the same design and standardise
         # their residuals exactly as the observed ones.
@@ -157,19 +373,25 @@ def _envelope(fit: ct.Fit, ranks: np.ndarray, m: int, rng: np.random.Generator) 
         s2 = np.sum(E**2, axis=0) / fit.df_resid
         R = np.sort(E[ok] / np.sqrt(np.outer(1 - h[ok], s2)), axis=0)
         lower, upper = np.percentile(R[ranks], [2.5, 97.5], axis=1)
-        method = f"simulation ({ENVELOPE_SIMULATIONS} samples, seeded)"
-        source = src.ENVELOPE_SIMULATED
-        sims = ENVELOPE_SIMULATIONS
-    else:
-        # The k-th of m ordered uniforms is Beta(k, m + 1 - k): exact quantiles of normal
-        # order statistics, accurate for standardised residuals when n is this large.
-        k = ranks + 1
-        lower = stats.norm.ppf(stats.beta.ppf(0.025, k, m + 1 - k))
-        upper = stats.norm.ppf(stats.beta.ppf(0.975, k, m + 1 - k))
-        method = "exact normal order-statistic quantiles (large n)"
-        source = src.ENVELOPE_EXACT
-        sims = None
-    return {"lower": lower, "upper": upper, "method": method, "source": source, "simulations": sims}
+        return (
+            lower,
+            upper,
+            f"simulation ({ENVELOPE_SIMULATIONS} samples, seeded)",
+            src.ENVELOPE_SIMULATED,
+            ENVELOPE_SIMULATIONS,
+        )
+    # The k-th of m ordered uniforms is Beta(k, m + 1 - k): exact quantiles of normal
+    # order statistics, accurate for standardised residuals when n is this large.
+    k = ranks + 1
+    lower = stats.norm.ppf(stats.beta.ppf(0.025, k, m + 1 - k))
+    upper = stats.norm.ppf(stats.beta.ppf(0.975, k, m + 1 - k))
+    return (
+        lower,
+        upper,
+        "exact normal order-statistic quantiles (large n)",
+        src.ENVELOPE_EXACT,
+        None,
+    )
 
 
 def _normal_quantiles(
@@ -178,29 +400,30 @@ def _normal_quantiles(
     max_points: int,
     flagged: np.ndarray,
     rng: np.random.Generator,
-) -> dict[str, Any]:
-    panel = {
-        "title": "Are the residuals close to normal?",
-        "question": "normal",
-        "reading": (
+) -> NormalPanel:
+    heading = Heading(
+        title="Are the residuals close to normal?",
+        question="normal",
+        reading=(
             "ordered standardised residuals should follow their normal quantiles, inside the "
             "95% envelope"
         ),
-        "x_label": "Normal quantile",
-        "y_label": "Standardised residual",
-        "n_total": fit.n,
-    }
+        x_label="Normal quantile",
+        y_label="Standardised residual",
+    )
     r = None if fit.influence is None else fit.influence.standardized
     rows = np.flatnonzero(np.isfinite(r)) if r is not None else np.array([], dtype=int)
     if rows.size < 3:
-        panel.update(
-            points={"x": [], "y": [], "row": []},
+        return NormalPanel(
+            heading=heading,
+            n_total=fit.n,
+            points=Scatter.empty(),
             reference_line=None,
             envelope=None,
-            labels=[],
+            labels=(),
             note=fit.residual_reason or "too few standardised residuals",
+            plotting_positions=None,
         )
-        return panel
     assert r is not None  # rows is empty without standardised residuals
     m = rows.size
     order = rows[np.argsort(r[rows], kind="stable")]
@@ -217,44 +440,47 @@ def _normal_quantiles(
                 [np.arange(tail), np.arange(m - tail, m), _even(m, max_points - 2 * tail), must]
             )
         )
-    env = _envelope(fit, ranks, m, rng)
+    lower, upper, method, source, sims = _envelope(fit, ranks, m, rng)
     y, theo = r[order[ranks]], theo_all[ranks]
     q1, q3 = np.percentile(r[rows], [25, 75])
     t1, t3 = stats.norm.ppf([0.25, 0.75])
     slope = (q3 - q1) / (t3 - t1)
     intercept = q1 - slope * t1
     ends = np.array([theo_all[0], theo_all[-1]])
-    inside = float(np.mean((y >= env["lower"]) & (y <= env["upper"])))
+    inside = float(np.mean((y >= lower) & (y <= upper)))
     rank_at = {int(order[k]): int(k) for k in ranks}
-    labels = [
-        {"row": int(ids[i]), "x": float(theo_all[rank_at[i]]), "y": float(r[i])}
+    labels = tuple(
+        Label(int(ids[i]), float(theo_all[rank_at[i]]), float(r[i]))
         for i in flagged[:MAX_LABELS].tolist()
         if i in rank_at
-    ]  # priority order
-    panel.update(
-        points={"x": _floats(theo), "y": _floats(y), "row": _ints(ids[order[ranks]])},
-        reference_line={
-            "x": _floats(ends),
-            "y": _floats(intercept + slope * ends),
-            "slope": float(slope),
-            "intercept": float(intercept),
-            "method": "line through the quartiles",
-            "source": src.QUARTILE_LINE,
-        },
-        envelope={
-            "x": _floats(theo),
-            "lower": _floats(env["lower"]),
-            "upper": _floats(env["upper"]),
-            "level": 0.95,
-            "method": env["method"],
-            "source": env["source"],
-            "simulations": env["simulations"],
-            "share_inside": inside,
-        },
+    )  # priority order
+    theo_x = _floats(theo)
+    return NormalPanel(
+        heading=heading,
+        n_total=fit.n,
+        points=Scatter(theo_x, _floats(y), _ints(ids[order[ranks]])),
+        reference_line=QuartileLine(
+            x=_floats(ends),
+            y=_floats(intercept + slope * ends),
+            slope=float(slope),
+            intercept=float(intercept),
+            method="line through the quartiles",
+            source=src.QUARTILE_LINE,
+        ),
+        envelope=Envelope(
+            x=theo_x,
+            lower=_floats(lower),
+            upper=_floats(upper),
+            level=0.95,
+            method=method,
+            source=source,
+            simulations=sims,
+            share_inside=inside,
+        ),
         labels=labels,
-        plotting_positions="Blom (1958): (i - 0.375) / (n + 0.25)",
+        note=None,
+        plotting_positions=PLOTTING_POSITIONS,
     )
-    return panel
 
 
 #: E|Z| for Z ~ N(0, 1): the mean size of a standardised residual under even normal spread
@@ -267,40 +493,34 @@ def _spread_fitted(
     keep: np.ndarray,
     flagged: np.ndarray,
     rng: np.random.Generator,
-) -> dict[str, Any]:
-    panel = {
-        "title": "Is the spread even?",
-        "question": "spread",
-        "reading": "the smoother should stay level; a rise or fall means uneven spread",
-        "x_label": "Fitted value (model scale)",
-        "y_label": "|standardised residual|",
-        "n_total": fit.n,
-    }
+) -> SpreadPanel:
+    heading = Heading(
+        title="Is the spread even?",
+        question="spread",
+        reading="the smoother should stay level; a rise or fall means uneven spread",
+        x_label="Fitted value (model scale)",
+        y_label="|standardised residual|",
+    )
     if fit.influence is None:
-        panel.update(
-            points={"x": [], "y": [], "row": []},
-            smoother=None,
-            reference_lines=[],
-            labels=[],
-            note=fit.residual_reason,
-        )
-        return panel
+        return SpreadPanel(heading, fit.n, Scatter.empty(), None, (), (), fit.residual_reason)
     f, s = fit.fitted, np.abs(fit.influence.standardized)
     lo, hi = float(f.min()), float(f.max())
-    panel.update(
+    return SpreadPanel(
+        heading=heading,
+        n_total=fit.n,
         points=_scatter(f, s, ids, keep),
         smoother=_smoother(f, s, rng),
         # source: E|Z| = sqrt(2/pi) for a standard normal Z (half-normal mean)
-        reference_lines=[
-            {
-                "name": "expected size under even normal spread, sqrt(2/pi) = 0.80",
-                "x": [lo, hi],
-                "y": [EXPECTED_ABS_NORMAL, EXPECTED_ABS_NORMAL],
-            }
-        ],
+        reference_lines=(
+            ReferenceLine(
+                "expected size under even normal spread, sqrt(2/pi) = 0.80",
+                (lo, hi),
+                (EXPECTED_ABS_NORMAL, EXPECTED_ABS_NORMAL),
+            ),
+        ),
         labels=_labels(f, s, ids, flagged),
+        note=None,
     )
-    return panel
 
 
 def _flag_reason(masks: dict[str, np.ndarray], n: int) -> np.ndarray:
@@ -316,49 +536,52 @@ def _flag_reason(masks: dict[str, np.ndarray], n: int) -> np.ndarray:
     return np.where(by_cooks, "cooks", np.where(other, "other", ""))
 
 
+def _nums(values: np.ndarray) -> tuple[float | None, ...]:
+    return tuple(ct.num(v) for v in values)  # None where undefined (leverage 1)
+
+
 def _influence_panel(
     fit: ct.Fit, ids: np.ndarray, keep: np.ndarray, flagged: np.ndarray
-) -> dict[str, Any]:
-    panel = {
-        "title": "Which rows pull the fit?",
-        "question": "influence",
-        "reading": (
+) -> InfluencePanel:
+    heading = Heading(
+        title="Which rows pull the fit?",
+        question="influence",
+        reading=(
             "Cook's distance of each row; rows above the flag line move the fit noticeably, "
             "above the fail line they dominate it"
         ),
-        "x_label": "Row (1 = first data row)",
-        "y_label": "Cook's distance",
-        "n_total": fit.n,
-    }
+        x_label="Row (1 = first data row)",
+        y_label="Cook's distance",
+    )
     if fit.influence is None:
-        panel.update(
-            points={"x": [], "y": [], "row": [], "flag": []},
-            cutoffs=[],
-            labels=[],
-            note=fit.residual_reason,
-        )
-        return panel
+        nothing = InfluencePoints((), (), (), None, None, ())
+        return InfluencePanel(heading, fit.n, nothing, (), None, (), fit.residual_reason)
     inf = fit.influence
     _, masks, cut = flag_rows(fit)
     cooks = np.nan_to_num(inf.cooks, nan=0.0)
     rows = np.asarray(ids, dtype=float)
     reason = _flag_reason(masks, fit.n)
-    pts = _scatter(rows, cooks, ids, keep, leverage=inf.leverage, studentized=inf.studentized)
-    ok = keep[np.isfinite(rows[keep]) & np.isfinite(cooks[keep])]
-    pts["flag"] = [str(r) for r in reason[ok]]
-    panel.update(
-        points=pts,
-        cutoffs=[
-            {"name": "flag: Cook's distance > 4/n (common practice)", "value": cut.cooks_flag},
-            {"name": "fail: Cook's distance > 1 (common practice)", "value": cut.cooks_fail},
-        ],
-        flag_rule=(
-            "a row is flagged for Cook's distance > 4/n, leverage > 2p/n, |DFFITS| > 2 sqrt(p/n) "
-            "or |externally studentised residual| > 3 (common practice)"
-        ),
-        labels=_labels(rows, cooks, ids, flagged),
+    ok = _shown(rows, cooks, keep)
+    points = InfluencePoints(
+        x=_floats(rows[ok]),
+        y=_floats(cooks[ok]),
+        row=_ints(ids[ok]),
+        leverage=_nums(inf.leverage[ok]),
+        studentized=_nums(inf.studentized[ok]),
+        flag=tuple(str(r) for r in reason[ok]),
     )
-    return panel
+    return InfluencePanel(
+        heading=heading,
+        n_total=fit.n,
+        points=points,
+        cutoffs=(
+            Cutoff("flag: Cook's distance > 4/n (common practice)", cut.cooks_flag),
+            Cutoff("fail: Cook's distance > 1 (common practice)", cut.cooks_fail),
+        ),
+        flag_rule=FLAG_RULE,
+        labels=_labels(rows, cooks, ids, flagged),
+        note=None,
+    )
 
 
 def _partial_residuals(
@@ -367,7 +590,7 @@ def _partial_residuals(
     ids: np.ndarray,
     keep: np.ndarray,
     rng: np.random.Generator,
-) -> list[dict[str, Any]]:
+) -> tuple[PartialResidualsPanel, ...]:
     out = []
     params = fit.params
     for term in inp.terms:
@@ -383,38 +606,39 @@ def _partial_residuals(
         rows = rows[np.argsort(x[rows], kind="stable")]
         srt = rows[_even(rows.size, CURVE_POINTS * 5)]
         out.append(
-            {
-                "column": term.column,
-                "label": term.label,
-                "title": f"Is the scale of {term.column} right?",
-                "question": "predictor_scale",
-                "reading": (
-                    f"the smoother should follow the fitted effect of {term.label}; a "
-                    "systematic bend means another scale fits better"
+            PartialResidualsPanel(
+                column=term.column,
+                label=term.label,
+                heading=Heading(
+                    title=f"Is the scale of {term.column} right?",
+                    question="predictor_scale",
+                    reading=(
+                        f"the smoother should follow the fitted effect of {term.label}; a "
+                        "systematic bend means another scale fits better"
+                    ),
+                    x_label=f"{term.column} (as sent)",
+                    y_label=f"fitted effect of {term.label} + residual",
                 ),
-                "x_label": f"{term.column} (as sent)",
-                "y_label": f"fitted effect of {term.label} + residual",
-                "points": _scatter(x, y, ids, keep),
-                "component": {"x": _floats(x[srt]), "y": _floats(comp[srt])},
-                "smoother": _smoother(x, y, rng),
-                "coefficient": ct.num(params[j]),
-                "n_total": fit.n,
-            }
+                points=_scatter(x, y, ids, keep),
+                component=Curve(_floats(x[srt]), _floats(comp[srt])),
+                smoother=_smoother(x, y, rng),
+                coefficient=ct.num(params[j]),
+                n_total=fit.n,
+            )
         )
-    return out
+    return tuple(out)
 
 
 def diagnostic_plots(
     inp: ConditionInputs, max_points: int = 2000, seed: int = DEFAULT_SEED
-) -> dict[str, Any]:
+) -> DiagnosticPlots:
     """Plot-ready data for the five diagnostic panels.
 
-    Returns ``{"residuals_fitted", "normal_quantiles", "spread_fitted", "influence",
-    "partial_residuals"}``.  Each panel holds ``title``, axis labels, ``points``
-    (``{"x", "y", "row"}`` lists; ``row`` is the caller's row number) and its reference
-    lines, smoother or envelope; ``partial_residuals`` is a list with one such panel per
-    numeric predictor.  At most about ``max_points`` points per panel are returned (flagged
-    rows are always kept); randomness comes only from ``seed``.  No NaN or infinity.
+    Each panel holds its :class:`Heading` (title, axis labels), its ``points`` (x, y and the
+    caller's row number of each point) and its reference lines, smoother or envelope;
+    ``partial_residuals`` holds one panel per numeric predictor.  At most about
+    ``max_points`` points per panel are returned (flagged rows are always kept); randomness
+    comes only from ``seed``.  No NaN or infinity (None where a value is undefined).
     """
     if max_points < 10:
         raise ValueError(f"max_points must be at least 10; got {max_points}")
@@ -428,10 +652,10 @@ def diagnostic_plots(
     )
     rng = np.random.default_rng(seed)
     keep = _thin(fit.n, max_points, flagged.astype(np.intp), rng)
-    return {
-        "residuals_fitted": _residuals_fitted(fit, ids, keep, flagged, rng),
-        "normal_quantiles": _normal_quantiles(fit, ids, max_points, flagged, rng),
-        "spread_fitted": _spread_fitted(fit, ids, keep, flagged, rng),
-        "influence": _influence_panel(fit, ids, keep, flagged),
-        "partial_residuals": _partial_residuals(fit, inp, ids, keep, rng),
-    }
+    return DiagnosticPlots(
+        residuals_fitted=_residuals_fitted(fit, ids, keep, flagged, rng),
+        normal_quantiles=_normal_quantiles(fit, ids, max_points, flagged, rng),
+        spread_fitted=_spread_fitted(fit, ids, keep, flagged, rng),
+        influence=_influence_panel(fit, ids, keep, flagged),
+        partial_residuals=_partial_residuals(fit, inp, ids, keep, rng),
+    )

@@ -1,5 +1,8 @@
 """Draw the plot data of :func:`service.core.plots.diagnostic_plots` as one figure.
 
+The figure is drawn from the typed :class:`~service.core.plots.DiagnosticPlots` it is
+handed (never from the JSON form of the plot data).
+
 The figure is organised around the questions a reader asks of a fitted scale, one panel per
 question, each titled with the question and a one-line reading of what to look for:
 
@@ -39,10 +42,24 @@ import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
 from ..core.conditions import MAX_FLAGGED_ROWS
+from ..core.plots import (
+    Curve,
+    DiagnosticPlots,
+    InfluencePanel,
+    InfluencePoints,
+    Label,
+    NormalPanel,
+    PartialResidualsPanel,
+    ResidualsPanel,
+    Scatter,
+    Smoother,
+    SpreadPanel,
+)
 from .safetext import visible, visible_all
 from .svg import (
     ASCENT,
@@ -117,17 +134,25 @@ def _hash_order(rows: np.ndarray) -> np.ndarray:
     return (rows.astype(np.uint64) * np.uint64(2654435761)) % np.uint64(2**32)
 
 
-def _must_keep(plots: dict, panels: list[dict]) -> np.ndarray:
+#: a panel of the figure
+Panel = ResidualsPanel | SpreadPanel | NormalPanel | InfluencePanel | PartialResidualsPanel
+
+
+def _labels_of(panel: Panel) -> tuple[Label, ...]:
+    return () if isinstance(panel, PartialResidualsPanel) else panel.labels
+
+
+def _must_keep(plots: DiagnosticPlots, panels: list[Panel]) -> np.ndarray:
     """Rows every panel draws: labelled rows, then rows flagged in the influence panel by
     decreasing Cook's distance; at most MAX_FLAGGED_ROWS."""
     rows: list[int] = []
     for panel in panels:
-        rows += [int(lab["row"]) for lab in panel.get("labels") or [] if "row" in lab]
-    pts = (plots.get("influence") or {}).get("points") or {}
-    flags = pts.get("flag") or []
-    if flags and len(flags) == len(pts.get("row") or []):
-        y = np.asarray(pts["y"], dtype=float)
-        r = np.asarray(pts["row"])
+        rows += [int(lab.row) for lab in _labels_of(panel)]
+    pts = plots.influence.points
+    flags = pts.flag
+    if flags and len(flags) == len(pts.row):
+        y = np.asarray(pts.y, dtype=float)
+        r = np.asarray(pts.row)
         hit = np.flatnonzero(np.asarray(flags) != "")
         hit = hit[np.lexsort((r[hit], -y[hit]))]
         rows += [int(v) for v in r[hit]]
@@ -135,16 +160,17 @@ def _must_keep(plots: dict, panels: list[dict]) -> np.ndarray:
     return np.asarray(unique, dtype=np.int64)
 
 
-def _shown(points: dict, cap: int, must: np.ndarray, tails: bool = False) -> np.ndarray:
+def _shown(
+    points: Scatter | InfluencePoints, cap: int, must: np.ndarray, tails: bool = False
+) -> np.ndarray:
     """Indices of the points a panel draws (see the module's thinning rule)."""
-    n = len(points.get("x") or [])
+    n = len(points.x)
     if n <= cap:
         return np.arange(n)
-    given = points.get("row")
-    rows = np.asarray(np.arange(1, n + 1) if given is None else given, dtype=np.int64)
+    rows = np.asarray(points.row, dtype=np.int64)
     chosen = np.isin(rows, must)
     if tails:
-        order = np.argsort(np.asarray(points["x"], dtype=float), kind="stable")
+        order = np.argsort(np.asarray(points.x, dtype=float), kind="stable")
         t = max(cap // 10, 1)
         chosen[order[:t]] = True
         chosen[order[-t:]] = True
@@ -225,7 +251,7 @@ def _span(series: list, floor: float | None = None, exact: bool = False) -> tupl
     return lo, hi
 
 
-def _frame(ax: _Axes, panel: dict, integer_x: bool = False, empty: bool = False) -> None:
+def _frame(ax: _Axes, panel: Panel, integer_x: bool = False, empty: bool = False) -> None:
     """Grid, left and bottom spines, ticks, tick labels and axis titles."""
     x1, y1 = ax.x0 + ax.w, ax.y0 + ax.h
     ylabel_x = ax.x0 - 10.0
@@ -254,16 +280,16 @@ def _frame(ax: _Axes, panel: dict, integer_x: bool = False, empty: bool = False)
         ylabel_x = ax.x0 - 5 - widest - 6
     spine = f"M{num(ax.x0)} {num(ax.y0)}V{num(y1)}H{num(x1)}"
     ax.parts.append(f'<path fill="none" stroke="{MUTED}" stroke-width="{THIN}" d="{spine}"/>')
-    xlabel, xsize = fit_line(str(panel.get("x_label", "")), ax.w, AXIS, 7.0)
+    xlabel, xsize = fit_line(panel.heading.x_label, ax.w, AXIS, 7.0)
     ax.parts.append(text(ax.x0 + ax.w / 2, y1 + AXIS_H - 8, xlabel, xsize, INK, "middle"))
     ylabel, ysize = fit_line(_y_label(panel), ax.h, AXIS, 7.0)
     ax.parts.append(text(ylabel_x, ax.y0 + ax.h / 2, ylabel, ysize, INK, "middle", rotate=True))
 
 
-def _y_label(panel: dict) -> str:
-    if panel.get("question") == "normal":
+def _y_label(panel: Panel) -> str:
+    if panel.heading.question == "normal":
         return "standardised residual − normal quantile"
-    return str(panel.get("y_label", ""))
+    return panel.heading.y_label
 
 
 def _points(ax: _Axes, x, y) -> int:
@@ -304,11 +330,13 @@ def _hline(ax: _Axes, y: float, colour: str, width: float, dash: str | None) -> 
     )
 
 
-def _curve(ax: _Axes, curve: dict | None, colour: str = SMOOTH, minus_x: bool = False) -> bool:
-    if not curve or not curve.get("x"):
+def _curve(
+    ax: _Axes, curve: Smoother | Curve | None, colour: str = SMOOTH, minus_x: bool = False
+) -> bool:
+    if curve is None or not curve.x:
         return False
-    x = np.asarray(curve["x"], dtype=float)
-    y = np.asarray(curve["y"], dtype=float)
+    x = np.asarray(curve.x, dtype=float)
+    y = np.asarray(curve.y, dtype=float)
     _line(ax, x, y - x if minus_x else y, colour, SMOOTH_W)
     return True
 
@@ -370,7 +398,9 @@ _OFFSETS = [(dx, dy) for r in (5, 11, 18, 26) for dx, dy in ((r, r), (r, -r), (-
 _OFFSETS += [(0, r) for r in (9, 16, 24)] + [(0, -r) for r in (9, 16, 24)]
 
 
-def _place_labels(ax: _Axes, labels: list[dict], gid: str, minus_x: bool = False) -> list[int]:
+def _place_labels(
+    ax: _Axes, labels: tuple[Label, ...], gid: str, minus_x: bool = False
+) -> list[int]:
     """Circle each flagged row and write its number where no other label, the legend or the
     note is; returns the rows left unlabelled (no free place inside the panel)."""
     skipped: list[int] = []
@@ -378,7 +408,7 @@ def _place_labels(ax: _Axes, labels: list[dict], gid: str, minus_x: bool = False
     words: list[str] = []
     h = 1.25 * LABEL
     for item in labels[:MAX_LABELS]:
-        x, y = float(item["x"]), float(item["y"])
+        x, y = float(item.x), float(item.y)
         if minus_x:
             y -= x
         if not (math.isfinite(x) and math.isfinite(y)):
@@ -388,7 +418,7 @@ def _place_labels(ax: _Axes, labels: list[dict], gid: str, minus_x: bool = False
             f'<circle cx="{num(px)}" cy="{num(py)}" r="{CIRCLE_R}" fill="none"'
             f' stroke="{FLAG_COOKS}" stroke-width="{CIRCLE_W}"/>'
         )
-        word = str(item["row"])
+        word = str(item.row)
         w = text_width(word, LABEL) + 2
         for dx, dy in _OFFSETS:
             left = px + dx if dx >= 0 else px + dx - w
@@ -403,7 +433,7 @@ def _place_labels(ax: _Axes, labels: list[dict], gid: str, minus_x: bool = False
                 )
                 break
         else:
-            skipped.append(int(item["row"]))
+            skipped.append(int(item.row))
     ax.parts += circles + words
     return skipped
 
@@ -412,33 +442,38 @@ def _labels_note(skipped: list[int]) -> str:
     return "" if not skipped else "; also flagged: rows " + ", ".join(map(str, skipped))
 
 
-def _rows_note(panel: dict, drawn: int) -> str:
-    total = int(panel.get("n_total") or drawn)
+def _rows_note(panel: Panel, drawn: int) -> str:
+    total = int(panel.n_total or drawn)
     if drawn >= total:
         return f"all {total} rows"
     return f"showing {drawn} of {total} rows (fixed sample; flagged rows always shown)"
 
 
-def _empty(ax: _Axes, panel: dict) -> None:
-    lines = wrap(str(panel.get("note") or "nothing to show"), min(ax.w - 20, 330), 12.5)
+def _empty(ax: _Axes, panel: Panel) -> None:
+    note = None if isinstance(panel, (ResidualsPanel, PartialResidualsPanel)) else panel.note
+    lines = wrap(note or "nothing to show", min(ax.w - 20, 330), 12.5)
     lead = 16.0
     first = ax.y0 + ax.h / 2 - lead * (len(lines) - 1) / 2 + 0.35 * 12.5
     ax.parts.append(lines_of_text(ax.x0 + ax.w / 2, first, lines, 12.5, lead, MUTED, "middle"))
 
 
 # ---------------------------------------------------------------------------- panels
-def _xy(pts: dict, keep: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    return (
-        np.asarray(pts.get("x") or [], dtype=float)[keep],
-        np.asarray(pts.get("y") or [], dtype=float)[keep],
-    )
+def _xy(pts: Scatter | InfluencePoints, keep: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    return np.asarray(pts.x, dtype=float)[keep], np.asarray(pts.y, dtype=float)[keep]
 
 
-def _draw_straight(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
-    pts = panel.get("points") or {}
-    x, y = _xy(pts, keep)
-    smooth = panel.get("smoother") or {}
-    ax.limits([x, smooth.get("x")], [y, smooth.get("y"), [0.0]])
+def _xs(curve: Smoother | Curve | None) -> tuple[float, ...] | None:
+    return None if curve is None else curve.x
+
+
+def _ys(curve: Smoother | Curve | None) -> tuple[float, ...] | None:
+    return None if curve is None else curve.y
+
+
+def _draw_straight(ax: _Axes, panel: ResidualsPanel, keep: np.ndarray, gid: str) -> None:
+    x, y = _xy(panel.points, keep)
+    smooth = panel.smoother
+    ax.limits([x, _xs(smooth)], [y, _ys(smooth), [0.0]])
     _frame(ax, panel)
     _hline(ax, 0.0, MUTED, REF_W, DASHED)
     drawn = _points(ax, x, y)
@@ -449,12 +484,11 @@ def _draw_straight(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     _labels_and_note(ax, panel, drawn, gid)
 
 
-def _draw_spread(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
-    pts = panel.get("points") or {}
-    x, y = _xy(pts, keep)
-    smooth = panel.get("smoother") or {}
-    refs = [float(line["y"][0]) for line in panel.get("reference_lines") or []]
-    ax.limits([x, smooth.get("x")], [y, smooth.get("y"), refs], y_floor=0.0)
+def _draw_spread(ax: _Axes, panel: SpreadPanel, keep: np.ndarray, gid: str) -> None:
+    x, y = _xy(panel.points, keep)
+    smooth = panel.smoother
+    refs = [float(line.y[0]) for line in panel.reference_lines]
+    ax.limits([x, _xs(smooth)], [y, _ys(smooth), refs], y_floor=0.0)
     _frame(ax, panel)
     entries: list[Entry] = []
     for value in refs:
@@ -467,34 +501,33 @@ def _draw_spread(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     _labels_and_note(ax, panel, drawn, gid)
 
 
-def _draw_normal(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
+def _draw_normal(ax: _Axes, panel: NormalPanel, keep: np.ndarray, gid: str) -> None:
     """Departures from the normal quantiles: a normal sample lies along 0 inside the band."""
-    pts = panel.get("points") or {}
-    x, y = _xy(pts, keep)
-    env = panel.get("envelope")
-    line = panel.get("reference_line")
+    x, y = _xy(panel.points, keep)
+    env = panel.envelope
+    line = panel.reference_line
     xs: list = [x]
     ys: list = [y - x, [0.0]]
     band = None
-    if env and env.get("x"):
-        ex = np.asarray(env["x"], dtype=float)
-        band = (ex, np.asarray(env["lower"], dtype=float) - ex, np.asarray(env["upper"]) - ex)
+    if env is not None and env.x:
+        ex = np.asarray(env.x, dtype=float)
+        band = (ex, np.asarray(env.lower, dtype=float) - ex, np.asarray(env.upper) - ex)
         xs.append(ex)
         ys += [band[1], band[2]]
     ref = None
-    if line and line.get("x"):
-        lx = np.asarray(line["x"], dtype=float)
-        ref = (lx, np.asarray(line["y"], dtype=float) - lx)
+    if line is not None and line.x:
+        lx = np.asarray(line.x, dtype=float)
+        ref = (lx, np.asarray(line.y, dtype=float) - lx)
         xs.append(lx)
         ys.append(ref[1])
     ax.limits(xs, ys)
     _frame(ax, panel)
     entries: list[Entry] = []
-    if band is not None:
+    if band is not None and env is not None:
         ring_x = np.concatenate([band[0], band[0][::-1]])
         ring_y = np.concatenate([band[2], band[1][::-1]])
         _line(ax, ring_x, ring_y, BAND, 0.0, close=True)
-        level = round(100 * float((env or {}).get("level", 0.95)))
+        level = round(100 * float(env.level))
         entries.append(("band", BAND, None, f"{level}% band for a normal sample"))
     _hline(ax, 0.0, MUTED, REF_W, DASHED)
     if ref is not None:
@@ -505,10 +538,10 @@ def _draw_normal(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     _labels_and_note(ax, panel, drawn, gid, minus_x=True)
 
 
-def _draw_influence(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
-    pts = panel.get("points") or {}
+def _draw_influence(ax: _Axes, panel: InfluencePanel, keep: np.ndarray, gid: str) -> None:
+    pts = panel.points
     x, y = _xy(pts, keep)
-    flag = np.asarray(pts.get("flag") or [""] * len(pts.get("x") or []))[keep]
+    flag = np.asarray(pts.flag)[keep]
     top = float(np.max(y)) if y.size else 0.0
     entries: list[Entry] = [
         ("line", FLAG_COOKS, None, "flagged: Cook's distance"),
@@ -516,9 +549,9 @@ def _draw_influence(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
         ("line", QUIET, None, "not flagged"),
     ]
     lines: list[tuple[float, str, str | None]] = []
-    for cut in panel.get("cutoffs") or []:
-        value = float(cut["value"])
-        fail = str(cut["name"]).startswith("fail")
+    for cut in panel.cutoffs:
+        value = float(cut.value)
+        fail = cut.name.startswith("fail")
         colour, dash = (FLAG_COOKS, None) if fail else (MUTED, DASHED)
         label = f"{'fail' if fail else 'flag'} line: Cook's distance {value:.3g}"
         if value <= max(top * 1.15, 1e-12) or not fail:
@@ -552,12 +585,11 @@ def _draw_influence(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     _labels_and_note(ax, panel, len(x), gid)
 
 
-def _draw_predictor(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
-    pts = panel.get("points") or {}
-    x, y = _xy(pts, keep)
-    comp = panel.get("component") or {}
-    smooth = panel.get("smoother") or {}
-    ax.limits([x, comp.get("x"), smooth.get("x")], [y, comp.get("y"), smooth.get("y")])
+def _draw_predictor(ax: _Axes, panel: PartialResidualsPanel, keep: np.ndarray, gid: str) -> None:
+    x, y = _xy(panel.points, keep)
+    comp = panel.component
+    smooth = panel.smoother
+    ax.limits([x, comp.x, _xs(smooth)], [y, comp.y, _ys(smooth)])
     _frame(ax, panel)
     drawn = _points(ax, x, y)
     entries: list[Entry] = []
@@ -569,12 +601,12 @@ def _draw_predictor(ax: _Axes, panel: dict, keep: np.ndarray, gid: str) -> None:
     _note(ax, _rows_note(panel, drawn))
 
 
-def _labels_and_note(ax: _Axes, panel: dict, drawn: int, gid: str, minus_x: bool = False) -> None:
+def _labels_and_note(ax: _Axes, panel: Panel, drawn: int, gid: str, minus_x: bool = False) -> None:
     """Reserve the note's place first (its final text is known only after the labels, so the
     longest possible note is reserved), place the labels, then write the note."""
-    labels = panel.get("labels") or []
+    labels = _labels_of(panel)
     rows_note = _rows_note(panel, drawn)
-    longest = rows_note + _labels_note([int(lab["row"]) for lab in labels[:MAX_LABELS]])
+    longest = rows_note + _labels_note([int(lab.row) for lab in labels[:MAX_LABELS]])
     mark = len(ax.taken)
     _note_box_only(ax, longest)
     skipped = _place_labels(ax, labels, gid, minus_x)
@@ -590,18 +622,13 @@ def _note_box_only(ax: _Axes, note: str) -> None:
     ax.taken.append((x1 - width, y1 - height, x1, y1))
 
 
-Draw = Callable[[_Axes, dict, np.ndarray, str], None]
-
-_TOP: tuple[tuple[str, Draw], ...] = (
-    ("residuals_fitted", _draw_straight),
-    ("spread_fitted", _draw_spread),
-    ("normal_quantiles", _draw_normal),
-)
+#: draws one kind of panel (each function takes its own panel type)
+Draw = Callable[[_Axes, Any, np.ndarray, str], None]
 
 
 @dataclass
 class _Slot:
-    panel: dict
+    panel: Panel
     draw: Draw
     x0: float
     w: float
@@ -609,15 +636,15 @@ class _Slot:
     gid: str
 
 
-def _footer(plots: dict) -> str:
-    rule = (plots.get("influence") or {}).get("flag_rule")
+def _footer(plots: DiagnosticPlots) -> str:
+    rule = plots.influence.flag_rule
     text_ = "Rows are numbered from 1 (1 = first data row). Circled points are flagged rows"
     return text_ + (f"; {rule}." if rule else ".")
 
 
 def _head(slot: _Slot) -> tuple[list[str], list[str]]:
-    title = wrap(str(slot.panel.get("title", "")), slot.w, TITLE, bold=True)
-    reading = wrap(str(slot.panel.get("reading", "")), slot.w, READING)
+    title = wrap(slot.panel.heading.title, slot.w, TITLE, bold=True)
+    reading = wrap(slot.panel.heading.reading, slot.w, READING)
     return title, reading
 
 
@@ -627,8 +654,7 @@ def _panel_svg(slot: _Slot, y_head: float, plot_y: float, keep: np.ndarray) -> s
     first = y_head + len(title) * TITLE_LEAD + ASCENT * READING
     head += lines_of_text(slot.x0, first, reading, READING, READING_LEAD, MUTED)
     ax = _Axes(slot.x0, plot_y, slot.w, slot.h)
-    pts = slot.panel.get("points") or {}
-    if not pts.get("x"):
+    if not slot.panel.points.x:
         ax.limits([], [])
         _frame(ax, slot.panel, empty=True)
         _empty(ax, slot.panel)
@@ -637,30 +663,29 @@ def _panel_svg(slot: _Slot, y_head: float, plot_y: float, keep: np.ndarray) -> s
     return f'<g id="panel-{esc(slot.gid)}">{head}{"".join(ax.parts)}</g>'
 
 
-def draw_svg(plots: dict, title: str | None = None) -> str:
+def draw_svg(plots: DiagnosticPlots, title: str | None = None) -> str:
     """The figure as an SVG document (text); see :func:`render_figure`."""
-    if not isinstance(plots, dict):
+    if not isinstance(plots, DiagnosticPlots):
         raise ValueError(
-            f"plots must be the dict from diagnostic_plots; got {type(plots).__name__}"
+            f"plots must be the DiagnosticPlots of diagnostic_plots; got {type(plots).__name__}"
         )
     plots = visible_all(plots)  # caller names and levels: hidden characters shown as U+XXXX
     title = visible(title) if title else title
-    top = [(plots[key], draw) for key, draw in _TOP if plots.get(key)]
-    strip = plots.get("influence")
-    predictors = (plots.get("partial_residuals") or [])[:MAX_PARTIAL_PANELS]
-    if not top and not strip and not predictors:
-        raise ValueError("plots holds no panel to draw")
-    rows: list[list[_Slot]] = []
-    if top:
-        rows.append(
-            [
-                _Slot(panel, draw, LEFT + c * (PLOT_W + COL_GAP), PLOT_W, PANEL_H, _gid(panel))
-                for c, (panel, draw) in enumerate(top)
-            ]
-        )
-    if strip:
-        full = COLUMNS * PLOT_W + (COLUMNS - 1) * COL_GAP
-        rows.append([_Slot(strip, _draw_influence, LEFT, full, STRIP_H, _gid(strip))])
+    top: list[tuple[Panel, Draw]] = [
+        (plots.residuals_fitted, _draw_straight),
+        (plots.spread_fitted, _draw_spread),
+        (plots.normal_quantiles, _draw_normal),
+    ]
+    strip = plots.influence
+    predictors = plots.partial_residuals[:MAX_PARTIAL_PANELS]
+    full = COLUMNS * PLOT_W + (COLUMNS - 1) * COL_GAP
+    rows: list[list[_Slot]] = [
+        [
+            _Slot(panel, draw, LEFT + c * (PLOT_W + COL_GAP), PLOT_W, PANEL_H, _gid(panel))
+            for c, (panel, draw) in enumerate(top)
+        ],
+        [_Slot(strip, _draw_influence, LEFT, full, STRIP_H, _gid(strip))],
+    ]
     for start in range(0, len(predictors), COLUMNS):
         rows.append(
             [
@@ -677,7 +702,7 @@ def draw_svg(plots: dict, title: str | None = None) -> str:
         )
     slots = [s for row in rows for s in row]
     # thinning: one cap per panel from the figure's budget, the same rows kept everywhere
-    with_points = [s for s in slots if (s.panel.get("points") or {}).get("x")]
+    with_points = [s for s in slots if s.panel.points.x]
     units = len(with_points) + sum(s.draw is _draw_influence for s in with_points)
     cap = min(PANEL_MAX_POINTS, FIGURE_MAX_POINTS // max(units, 1))
     must = _must_keep(plots, [s.panel for s in slots])
@@ -697,10 +722,7 @@ def draw_svg(plots: dict, title: str | None = None) -> str:
         plot_y = y + head_h
         for slot in row:
             keep = _shown(
-                slot.panel.get("points") or {},
-                cap,
-                must,
-                tails=slot.panel.get("question") == "normal",
+                slot.panel.points, cap, must, tails=slot.panel.heading.question == "normal"
             )
             body.append(_panel_svg(slot, y, plot_y, keep))
         y = plot_y + row[0].h + AXIS_H + ROW_GAP
@@ -718,9 +740,9 @@ def draw_svg(plots: dict, title: str | None = None) -> str:
     )
 
 
-def _gid(panel: dict, number: int | None = None) -> str:
+def _gid(panel: Panel, number: int | None = None) -> str:
     suffix = "" if number is None else f"-{number}"
-    return f"{panel.get('question', 'plot')}{suffix}"
+    return f"{panel.heading.question}{suffix}"
 
 
 # ------------------------------------------------------------------------------ PNG
@@ -745,10 +767,10 @@ def rasterise(svg: str) -> bytes:
     return bytes(png)
 
 
-def render_figure(plots: dict, fmt: str = "svg", title: str | None = None) -> bytes:
+def render_figure(plots: DiagnosticPlots, fmt: str = "svg", title: str | None = None) -> bytes:
     """Draw the panels of ``plots`` and return the figure as ``fmt`` bytes.
 
-    ``plots`` is the dict returned by ``diagnostic_plots``; ``fmt`` is ``"svg"`` or
+    ``plots`` is the :class:`~service.core.plots.DiagnosticPlots` of ``diagnostic_plots``; ``fmt`` is ``"svg"`` or
     ``"png"``; ``title`` (optional) is drawn above the panels.  In SVG, each panel is a group
     whose id is ``panel-<question>`` (``panel-predictor_scale-<k>`` for the k-th predictor),
     each row label a group ``row-label-<question>-<row>``, and each layer of points a path

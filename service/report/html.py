@@ -207,7 +207,7 @@ def _figure(plots, entry: dict, prefix: str) -> str:
     except ValueError as exc:  # e.g. nothing to draw
         last = (str(exc).strip().splitlines() or ["unknown reason"])[-1]
         return f'<p class="note">No figure: it could not be drawn ({esc(last)}).</p>'
-    n_partial = len(plots.get("partial_residuals") or [])
+    n_partial = len(plots.partial_residuals)
     caption = (
         "Four questions about the scale: is it straight (residuals against fitted values), is "
         "the spread even (|standardised residual| against fitted values), are the residuals "

@@ -13,6 +13,7 @@ well-formed figure and page instead of a document a browser refuses to parse.
 
 from __future__ import annotations
 
+import dataclasses
 import re
 
 BIDI_CONTROLS = "\u061c\u200e\u200f\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069"
@@ -29,16 +30,25 @@ def visible(text: str) -> str:
     return _BIDI.sub(lambda m: f"U+{ord(m.group()):04X}", text)
 
 
+def _numbers(values: list | tuple) -> bool:
+    """True for a series of numbers (or None), judged by its first item."""
+    first = values[0]
+    return not isinstance(first, (str, dict, list, tuple)) and not dataclasses.is_dataclass(first)
+
+
 def visible_all(value):
-    """The same for every string inside nested dicts and lists (numbers pass through)."""
+    """The same for every string inside nested dicts, lists, tuples and frozen dataclasses
+    (a dataclass comes back as a copy; numbers pass through)."""
     if isinstance(value, str):
         return visible(value)
     if isinstance(value, dict):
         return {k: visible_all(v) for k, v in value.items()}
-    if isinstance(value, list):
-        if value and not isinstance(value[0], (str, dict, list)):
-            return value  # a number array
-        return [visible_all(v) for v in value]
-    if isinstance(value, tuple):
-        return tuple(visible_all(v) for v in value)
+    if isinstance(value, (list, tuple)):
+        if value and _numbers(value):
+            return value  # a number series
+        items = [visible_all(v) for v in value]
+        return items if isinstance(value, list) else tuple(items)
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        changes = {f.name: visible_all(getattr(value, f.name)) for f in dataclasses.fields(value)}
+        return dataclasses.replace(value, **changes)
     return value

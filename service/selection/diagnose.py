@@ -11,6 +11,7 @@ from ..core.crossval import cross_validate
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, ModelFailure, SpecField
 from ..core.folds import make_plan
+from ..core.plots import DiagnosticPlots
 from ..core.spec import (
     Specification,
     build_design,
@@ -29,7 +30,7 @@ def diagnose_specification(
     opts: SearchOptions,
     service_version: str,
     max_points: int = PLOT_MAX_POINTS,
-) -> tuple[dict[str, Any], dict[str, Any]]:
+) -> tuple[dict[str, Any], DiagnosticPlots]:
     """One specification exactly as given: (ranking entry without rank, plot data).
 
     Domain problems are :class:`InputError` naming a field of the specification (:class:`SpecField`); a

@@ -13,7 +13,7 @@ from ..core.condition_rules import condition_inputs
 from ..core.data import Prepared, split_groups
 from ..core.errors import CandidateFailure
 from ..core.fitting import OLSFit
-from ..core.plots import diagnostic_plots
+from ..core.plots import DiagnosticPlots, diagnostic_plots
 from ..core.spec import Design, Specification
 from .deadline import Deadline
 from .entries import fitted_model
@@ -27,7 +27,7 @@ PLOT_MAX_POINTS = 2000
 
 
 #: plot data (or the reason there is none) keyed by ``(group, rank)``
-ReportPlots = dict[tuple[str | None, int], "dict[str, Any] | str"]
+ReportPlots = dict[tuple[str | None, int], "DiagnosticPlots | str"]
 
 
 def report_plots(
@@ -43,7 +43,7 @@ def report_plots(
     ``body`` is a selection response; ``prep`` the :class:`~service.core.data.Prepared`
     rows it was computed from.  Without groups the first :data:`DETAIL_TOP` ranks are
     drawn (group ``None``); with groups, rank 1 of the first :data:`GROUP_DETAIL_LIMIT`
-    groups that have a ranking.  A value is the dict of ``diagnostic_plots`` or, when the
+    groups that have a ranking.  A value is the :class:`DiagnosticPlots` or, when the
     specification cannot be refitted, the reason as a string.  Past the request's
     ``deadline`` only the first specification is drawn; the others carry the reason.
     """
@@ -87,7 +87,7 @@ def _out_of_time(deadline: Deadline | None) -> str:
 
 def specification_plots(
     spec: Specification, prep: Prepared, alpha: float, seed: int, max_points: int
-) -> dict[str, Any]:
+) -> DiagnosticPlots:
     """Plot data of one specification fitted on all of ``prep``'s rows (what
     ``/v1/diagnostics`` returns); raises :class:`CandidateFailure` when it cannot be fitted."""
     _, design, fit, _ = fitted_model(spec, prep)
@@ -96,7 +96,7 @@ def specification_plots(
 
 def fit_plots(
     design: Design, fit: OLSFit, prep: Prepared, alpha: float, seed: int, max_points: int
-) -> dict[str, Any]:
+) -> DiagnosticPlots:
     """Plot data of an all-rows fit already made (an :class:`.entries.Entry`'s design and
     fit), so a caller that has the entry does not fit it again."""
     inp = condition_inputs(design, fit, prep, fit.fitted + fit.resid, alpha)
@@ -105,7 +105,7 @@ def fit_plots(
 
 def _plots_for(
     entry: dict[str, Any], prep: Prepared, alpha: float, seed: int, max_points: int
-) -> dict[str, Any] | str:
+) -> DiagnosticPlots | str:
     try:
         spec = Specification.from_dict(entry["specification"])
         return specification_plots(spec, prep, alpha, seed, max_points)

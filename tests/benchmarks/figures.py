@@ -31,6 +31,7 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 import numpy as np
 from _common import machine, pin_blas
+from service.api.render import contract
 from service.core.data import prepare
 from service.core.spec import Specification
 from service.demo import demo_request
@@ -53,6 +54,16 @@ def _baseline(rev: str) -> types.ModuleType:
     module = importlib.util.module_from_spec(spec)
     exec(compile(source, f"{rev}:service/report/figures.py", "exec"), module.__dict__)
     return module
+
+
+def _old_route(old: types.ModuleType):
+    """The baseline renderer, handed the plot data in the JSON form it was written for (the
+    figures of today draw the typed plot data)."""
+
+    def render(plots, fmt: str = "svg", title: str | None = None) -> bytes:
+        return old.render_figure(contract(plots), fmt, title=title)
+
+    return render
 
 
 def _measure(render, plots, fmt: str, title: str, repeats: int) -> tuple[float, float, int]:
@@ -110,6 +121,7 @@ def main() -> int:
     args = ap.parse_args()
     pin_blas(1)
     old = _baseline(args.baseline)
+    old_render = _old_route(old)
     print(machine())
     body, prep, demo, title = _demo_plots()
     cases = [
@@ -120,7 +132,7 @@ def main() -> int:
     print(f"{'case':32} {'format':6} {'route':10} {'wall s':>8} {'CPU s':>8} {'KB':>8}")
     for name, plots, ttl in cases:
         for fmt in ("svg", "png"):
-            base = _measure(old.render_figure, plots, fmt, ttl, args.repeats)
+            base = _measure(old_render, plots, fmt, ttl, args.repeats)
             new = _measure(svg_route.render_figure, plots, fmt, ttl, args.repeats)
             for route, (wall, cpu, size) in (("matplotlib", base), ("svg", new)):
                 print(f"{name:32} {fmt:6} {route:10} {wall:8.3f} {cpu:8.3f} {size / 1024:8.0f}")
@@ -142,7 +154,7 @@ def main() -> int:
     client = TestClient(app)
     req = demo_request()
     client.post("/v1/reports", json=req)  # warm: imports, first fits
-    for route, render in (("matplotlib", old.render_figure), ("svg", svg_route.render_figure)):
+    for route, render in (("matplotlib", old_render), ("svg", svg_route.render_figure)):
         html.render_figure = render
         walls, cpus, size = [], [], 0
         for _ in range(args.repeats):

@@ -87,7 +87,7 @@ def test_row_labels_never_overlap(drawn):
             })"""
     )
     assert labels, "no flagged row was labelled"
-    flagged = {lab["row"] for lab in plots["influence"]["labels"]}
+    flagged = {lab.row for lab in plots.influence.labels}
     assert {int(lab[0].rsplit("-", 1)[1]) for lab in labels} <= flagged
     for a, b in itertools.combinations(labels, 2):
         apart = a[3] <= b[1] or b[3] <= a[1] or a[4] <= b[2] or b[4] <= a[2]

@@ -710,6 +710,7 @@ def _random_design(rng):
 
 def test_random_degenerate_designs_never_crash():
     """Warnings are errors here, so any unexpected library warning would surface."""
+    from service.api.encode import to_jsonable
     from service.core.plots import diagnostic_plots
 
     rng = np.random.default_rng(99)
@@ -717,7 +718,7 @@ def test_random_degenerate_designs_never_crash():
         inp = _random_design(rng)
         out = assess_conditions(inp)
         assert_json_clean(out)
-        assert_json_clean(diagnostic_plots(inp))
+        assert_json_clean(to_jsonable(diagnostic_plots(inp)))
         for key in CONDITIONS:
             for entry in out.of(key).tests:
                 assert "could not be computed" not in (entry.reason or ""), entry

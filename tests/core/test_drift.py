@@ -10,7 +10,17 @@ import numpy as np
 import pytest
 from scipy.stats import entropy, norm
 from service.core.data import prepare
-from service.core.drift import compare, numeric_profile, profile, psi
+from service.core.drift import (
+    NO_PROFILE_NOTE,
+    CategoricalDrift,
+    DriftReport,
+    MissingColumn,
+    NumericDrift,
+    compare,
+    numeric_profile,
+    profile,
+    psi,
+)
 
 
 def _prep(rng, n, shift=0.0, soils=("clay", "loam", "sand"), age_offset=0):
@@ -67,12 +77,15 @@ def test_same_law_is_not_flagged():
     rng = np.random.default_rng(11)
     art = _artifact(_prep(rng, 3000))
     d = compare(art, _prep(rng, 3000))
-    assert not any("shifted" in f for f in d["flags"])
-    assert d["predictors"]["load"]["shift"] == "none"
-    assert d["response"]["shift"] == "none"
-    assert d["predictors"]["soil"]["new_levels"] == []
-    assert d["rows"] == {"then": 3000, "now": 3000}
-    assert "common-practice" in d["rule"]
+    assert isinstance(d, DriftReport)
+    assert not any("shifted" in f for f in d.flags)
+    preds = dict(d.predictors)
+    assert list(preds) == ["load", "age", "soil"]  # the specification's order
+    assert preds["load"].shift.grade == "none"
+    assert d.response.shift.grade == "none"
+    assert preds["soil"].new_levels == ()
+    assert (d.rows_then, d.rows_now) == (3000, 3000)
+    assert d.note is None
 
 
 def test_shifted_predictor_new_and_vanished_levels_are_flagged():
@@ -80,20 +93,23 @@ def test_shifted_predictor_new_and_vanished_levels_are_flagged():
     art = _artifact(_prep(rng, 2000))
     now = _prep(rng, 1500, shift=1.0, soils=("clay", "loam", "gravel"), age_offset=40)
     d = compare(art, now)
-    load = d["predictors"]["load"]
-    assert load["shift"] == "major" and load["psi"] >= 0.25  # one sd shift: about 1 (delta^2)
-    age = d["predictors"]["age"]
+    preds = dict(d.predictors)
+    load = preds["load"]
+    # one sd shift: about 1 (delta^2)
+    assert load.shift.grade == "major" and load.shift.psi >= 0.25
+    age = preds["age"]
     # ages 41..99 against a training range 1..59: every age above 59 is outside
-    assert age["outside_range"]["above"] == int(np.sum(now.numeric["age"] > 59))
-    assert age["outside_range"]["below"] == 0
-    soil = d["predictors"]["soil"]
-    assert soil["new_levels"] == ["gravel"] and soil["vanished_levels"] == ["sand"]
-    text = " ".join(d["flags"])
+    assert age.outside.above == int(np.sum(now.numeric["age"] > 59))
+    assert age.outside.below == 0
+    soil = preds["soil"]
+    assert isinstance(soil, CategoricalDrift)
+    assert soil.new_levels == ("gravel",) and soil.vanished_levels == ("sand",)
+    text = " ".join(d.flags)
     assert "'load' shifted (major" in text
     assert "'age'" in text and "outside the training range" in text
     assert "'gravel'" in text and "'sand'" in text
-    assert d["response"]["shift"] != "none"  # the response follows the load
-    assert d["flagged"]
+    assert d.response.shift.grade != "none"  # the response follows the load
+    assert d.flagged
 
 
 def test_an_artifact_without_a_profile_still_compares_ranges_and_levels():
@@ -101,7 +117,18 @@ def test_an_artifact_without_a_profile_still_compares_ranges_and_levels():
     art = _artifact(_prep(rng, 500))
     del art["data_profile"]
     d = compare(art, _prep(rng, 400, soils=("clay", "loam", "silt"), age_offset=30))
-    assert d["response"] is None and "no data profile" in d["note"]
-    assert "psi" not in d["predictors"]["load"]
-    assert d["predictors"]["soil"]["new_levels"] == ["silt"]
-    assert d["predictors"]["age"]["outside_range"]["above"] > 0
+    assert d.response is None and d.note == NO_PROFILE_NOTE and "no data profile" in d.note
+    preds = dict(d.predictors)
+    assert isinstance(preds["load"], NumericDrift) and preds["load"].shift is None
+    assert preds["soil"].new_levels == ("silt",) and preds["soil"].shift is None
+    assert preds["age"].outside.above > 0
+    assert d.rows_then == 500  # the artifact's row count stands in for the profile's
+
+
+def test_a_predictor_missing_from_this_month_is_named():
+    rng = np.random.default_rng(14)
+    art = _artifact(_prep(rng, 300))
+    art["specification"]["predictors"].append({"column": "depth"})
+    d = compare(art, _prep(rng, 300))
+    assert dict(d.predictors)["depth"] == MissingColumn()
+    assert "'depth' is not in this data" in d.flags and d.flagged

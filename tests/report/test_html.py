@@ -106,16 +106,19 @@ def test_inlined_matplotlib_svg_has_prefixed_ids_and_no_prolog():
 
 
 def test_inlined_figure_has_one_title_and_prefixed_ids():
+    import numpy as np
+    from service.core.conditions import ConditionInputs
+    from service.core.plots import diagnostic_plots
+    from service.core.spec import TermInfo
     from service.report.figures import render_figure
 
-    plots = {
-        "residuals_fitted": {
-            "title": "Is the scale straight?",
-            "question": "straight",
-            "points": {"x": [1.0, 2.0, 3.0], "y": [0.5, -0.2, 0.1], "row": [1, 2, 3]},
-            "labels": [{"row": 2, "x": 2.0, "y": -0.2}],
-        }
-    }
+    x = np.linspace(1.0, 10.0, 30)
+    z = 1.0 + x + np.random.default_rng(2).normal(0, 0.3, 30)
+    z[1] += 8.0  # row 2 (rows are numbered from 1) stands out and is labelled
+    X = np.column_stack([np.ones(30), x])
+    terms = (TermInfo("x", "numeric", (1,), x, "x"),)
+    plots = diagnostic_plots(ConditionInputs(z, X, True, terms, np.arange(1, 31), None))
+    assert plots.residuals_fitted.labels[0].row == 2
     out = inline_svg(render_figure(plots, "svg", title="y on x"), "f1", "Panels for y on x")
     root = ET.fromstring(out)  # source: Python's XML parser (well-formed)
     titles = [e for e in root.iter() if e.tag == "title"]

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import sys
 import unicodedata
+from dataclasses import dataclass
 
 from service.report.safetext import BIDI_CONTROLS, visible, visible_all
 
@@ -54,3 +55,18 @@ def test_controls_are_written_as_code_points_and_other_text_is_kept():
 def test_visible_all_walks_nested_values_and_keeps_numbers():
     value = {"a": ["x\u2066y", {"b": ("\u200f",)}], "n": [1.0, 2.0], "k": 3}
     assert visible_all(value) == {"a": ["xU+2066y", {"b": ("U+200F",)}], "n": [1.0, 2.0], "k": 3}
+
+
+@dataclass(frozen=True)
+class _Named:
+    name: str
+    values: tuple[float, ...]
+    inner: tuple[_Named, ...] = ()
+
+
+def test_visible_all_copies_frozen_dataclasses_with_their_strings_made_visible():
+    value = _Named("a\u202eb", (1.0, 2.0), (_Named("\u2067", ()),))
+    out = visible_all(value)
+    assert out == _Named("aU+202Eb", (1.0, 2.0), (_Named("U+2067", ()),))
+    assert value.name == "a\u202eb"  # the original is left as it was
+    assert out.values is value.values  # a number series is passed through, not copied

@@ -46,10 +46,8 @@ def test_engel_log_log_matches_the_reference_sheet(engel):
     assert entry["score"]["parts"]["within_one_se"] and entry["score"]["cv_ratio"] == 1.0
     # plot points are the residuals of the same fit
     ref = sm.OLS(np.log(d.foodexp), sm.add_constant(np.log(d.income))).fit()
-    pts = plots["residuals_fitted"]["points"]
-    np.testing.assert_allclose(
-        pts["y"], ref.resid.to_numpy()[np.asarray(pts["row"]) - 1], rtol=1e-9
-    )
+    pts = plots.residuals_fitted.points
+    np.testing.assert_allclose(pts.y, ref.resid.to_numpy()[np.asarray(pts.row) - 1], rtol=1e-9)
 
 
 def test_an_untransformed_spec_matches_its_reference_value(engel):

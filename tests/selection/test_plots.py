@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from service.core.data import prepare
+from service.core.plots import DiagnosticPlots
 from service.selection.deadline import Deadline
 from service.selection.plots import DETAIL_TOP, report_plots
 
@@ -48,10 +49,10 @@ def test_the_top_entries_get_the_residuals_of_their_own_fit(case):
         rt, pt = scales[rank - 1]
         # source: statsmodels OLS of the same specification
         ref = sm.OLS(fwd[rt](y), sm.add_constant(fwd[pt](x))).fit()
-        pts = plots["residuals_fitted"]["points"]
-        at = np.asarray(pts["row"]) - 1  # rows are counted from 1
-        np.testing.assert_allclose(pts["x"], ref.fittedvalues[at], rtol=1e-9)
-        np.testing.assert_allclose(pts["y"], ref.resid[at], rtol=1e-9)
+        pts = plots.residuals_fitted.points
+        at = np.asarray(pts.row) - 1  # rows are counted from 1
+        np.testing.assert_allclose(pts.x, ref.fittedvalues[at], rtol=1e-9)
+        np.testing.assert_allclose(pts.y, ref.resid[at], rtol=1e-9)
 
 
 def test_a_specification_that_cannot_be_refitted_gives_its_reason(case):
@@ -79,10 +80,10 @@ def test_groups_show_rank_one_of_each_group_with_a_ranking(case):
     west = pier == "west"
     # source: statsmodels OLS on the west pier's rows only
     ref = sm.OLS(y[west], sm.add_constant(x[west])).fit()
-    pts = out[("west", 1)]["residuals_fitted"]["points"]
+    pts = out[("west", 1)].residuals_fitted.points
     rows = np.flatnonzero(west)
-    pos = np.searchsorted(rows, np.asarray(pts["row"]) - 1)  # rows are counted from 1
-    np.testing.assert_allclose(pts["y"], ref.resid[pos], rtol=1e-9)
+    pos = np.searchsorted(rows, np.asarray(pts.row) - 1)  # rows are counted from 1
+    np.testing.assert_allclose(pts.y, ref.resid[pos], rtol=1e-9)
 
 
 def test_past_the_deadline_only_the_first_figure_is_drawn(case):
@@ -94,7 +95,7 @@ def test_past_the_deadline_only_the_first_figure_is_drawn(case):
     body = {"ranking": [{"rank": i + 1, "specification": _spec(*s)} for i, s in enumerate(scales)]}
     gone = Deadline(time.monotonic() - 1.0, 5.0)
     out = report_plots(body, prep, 0.05, seed=0, deadline=gone)
-    assert isinstance(out[(None, 1)], dict)
+    assert isinstance(out[(None, 1)], DiagnosticPlots)
     for rank in (2, 3):
         assert "time limit of 5 s ran out" in out[(None, rank)]
     assert report_plots(body, prep, 0.05, seed=0, deadline=Deadline.after(60)) == report_plots(
@@ -108,5 +109,5 @@ def test_past_the_deadline_only_the_first_figure_is_drawn(case):
         }
     }
     gout = report_plots(gbody, grouped, 0.05, seed=0, deadline=gone)
-    assert isinstance(gout[("north", 1)], dict)
+    assert isinstance(gout[("north", 1)], DiagnosticPlots)
     assert all(isinstance(gout[(p, 1)], str) for p in ("south", "west"))
