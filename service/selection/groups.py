@@ -135,7 +135,7 @@ def select_group(task: GroupTask) -> dict[str, Any]:
             body["trust"] = assess_trust(
                 sub,
                 opts,
-                body["ranking"][0]["specification"],
+                result.winner.spec,
                 service_version,
                 stability,
                 optimism,

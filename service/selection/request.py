@@ -155,7 +155,7 @@ def run_selection(
         body["trust"] = assess_trust(
             prep,
             opts,
-            body["ranking"][0]["specification"],
+            result.winner.spec,
             service.version,
             job.trust.stability,
             job.trust.optimism,

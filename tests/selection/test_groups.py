@@ -171,9 +171,10 @@ def test_a_group_worker_can_assess_trust_for_its_group():
     north = split_groups(prep)["north"]
     body = select_group(GroupTask(north, opts, "test", trust=GroupTrust(True, False, 10)))
     trust = body["trust"]
-    assert trust["resamples"] == 10 and trust["optimism"] is None
+    assert trust.stability.usable == 10 and trust.optimism is None
     # source: the simulation's construction: log-log is clearly right in this district
-    assert trust["stability"] >= 0.8
+    assert trust.stability.share >= 0.8
+    assert to_jsonable(trust)["resamples"] == 10
     assert "_scored" not in body and all(not k.startswith("_") for k in body["ranking"][0])
 
 

@@ -133,7 +133,8 @@ def test_trust_is_refused_for_a_grouped_job():
 def test_trust_is_measured_on_one_table():
     job = dataclasses.replace(_job(), trust=TrustOptions(stability=True, resamples=3))
     trust = run_selection(job, SERVICE)["trust"]
-    assert trust["resamples"] == 3 and 0.0 <= trust["stability"] <= 1.0
+    assert trust.stability.requested == trust.stability.usable == 3
+    assert 0.0 <= trust.stability.share <= 1.0
 
 
 def test_a_past_deadline_fails_every_group_unless_each_group_has_its_own():

@@ -4,13 +4,14 @@ import time
 
 import numpy as np
 import pytest
+from scipy import stats
 from service.core import transforms as tr
 from service.core.cvresult import CVResult
 from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design
 from service.selection.deadline import Deadline
-from service.selection.search import rank, run_selection, select
+from service.selection.search import places, rank, run_selection, select
 from service.selection.search_setup import Scored, SearchOptions
 
 
@@ -55,6 +56,31 @@ def test_one_threshold_for_every_entry():
         "readability": 3,
         "transformed_columns": 2,
     }
+
+
+def test_places_carry_the_paired_standard_error_of_the_fold_differences():
+    best = _scored("log", "log", 10.0, 0.4, folds=[9.5, 10.5, 9.8, 10.2, 10.0])
+    noisy = _scored("identity", "identity", 10.6, 3.0, folds=[5, 16, 7, 14, 11])
+    steady = _scored("sqrt", "log", 10.3, 0.4, folds=[9.8, 10.8, 10.1, 10.5, 10.3])
+    got = places([best, noisy, steady], folds=5)
+    assert [p.scored for p in got] == [s for s, _ in rank([best, noisy, steady], folds=5)[0]]
+    by = {id(p.scored): p for p in got}
+    # source: the standard error of a mean of K paired differences, sd(ddof=1) / sqrt(K)
+    # (scipy.stats.sem)
+    diff = noisy.cv.fold_values - best.cv.fold_values
+    assert by[id(noisy)].paired_std_error == pytest.approx(stats.sem(diff), rel=1e-12)
+    assert by[id(noisy)].difference_from_best == pytest.approx(0.6)
+    assert by[id(best)].paired_std_error == 0.0 and by[id(best)].within_band
+    assert not by[id(noisy)].within_band and by[id(steady)].within_band
+
+
+def test_select_names_its_rank_1_as_scored():
+    result = select(_linear_prep(), SearchOptions(top=2), "test")
+    assert result.winner in result.scored
+    listed = Specification.from_dict(result.body["ranking"][0]["specification"])
+    assert listed.predictors[0].column == result.winner.spec.predictors[0].column
+    assert listed.response_label() == result.winner.spec.response_label()
+    assert result.complete is result.body["search"]["complete"]
 
 
 def test_outside_the_band_is_ordered_by_error():
