@@ -148,7 +148,7 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
         from .core.drift import compare
 
         body["drift"] = compare(incumbent_model, sub)
-    return body
+    return _jsonable(body)  # in contract form: the summary reads it as the files hold it
 
 
 def unexpected_problem(exc: BaseException) -> dict:

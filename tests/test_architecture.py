@@ -479,6 +479,8 @@ MORE_CONTRACT_NAMES = frozenset(
         "r2",
         "df_model",
         "df_resid",
+        # the incumbent decision (service/api/render/incumbent.py)
+        "decision",
         # the trust block (service/api/render/trust.py)
         "stability",
         "optimism",
@@ -526,7 +528,6 @@ NOT_YET_RENDERED = {
     "selection/diagnose.py": 7,
     "selection/entries.py": 32,
     "selection/groups.py": 12,
-    "selection/incumbent.py": 9,
     "selection/request.py": 2,
     "selection/search.py": 61,
 }

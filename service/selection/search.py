@@ -466,7 +466,7 @@ def _incumbent(
     ranked: list[tuple[Scored, dict[str, Any]]],
     entries: list[dict[str, Any]],
     band: Band | None = None,
-) -> dict[str, Any]:
+) -> incumbent.IncumbentDecision:
     assert opts.incumbent is not None  # called only for a request with an incumbent
     spec, why = incumbent.incumbent_spec(
         opts.incumbent, prep, prep.predictors, set(prep.table_columns)
