@@ -18,6 +18,7 @@ import pytest
 from service.core.errors import ErrorRecord, InputError, Option
 from service.core.model import canonical_bytes
 from service.selection.deadline import Deadline
+from service.selection.groups import GroupFailure
 from service.selection.request import (
     SelectionJob,
     Service,
@@ -141,10 +142,11 @@ def test_a_past_deadline_fails_every_group_unless_each_group_has_its_own():
     expired = Deadline(time.monotonic() - 1.0, 5.0)
     job = _job("depot", deadline=expired, time_limit_s=5.0)
     shared = run_selection(job, SERVICE)["groups"]
-    assert all(isinstance(g["problem"], ErrorRecord) for g in shared.values())
-    assert all(g["problem"].over_budget for g in shared.values())  # the caller renders them
+    assert all(isinstance(g, GroupFailure) for g in shared.values())
+    assert all(isinstance(g.record, ErrorRecord) for g in shared.values())
+    assert all(g.record.over_budget for g in shared.values())  # the caller renders them
     own = run_selection(job, SERVICE, per_group_time_limit=True)["groups"]
-    assert not any("problem" in g for g in own.values())
+    assert not any(isinstance(g, GroupFailure) for g in own.values())
 
 
 def test_options_are_frozen():
