@@ -506,7 +506,6 @@ NOT_YET_RENDERED = {
     "core/conditions.py": 96,
     "core/cvplus.py": 17,
     "core/cvresult.py": 13,
-    "core/data.py": 7,
     "core/drift.py": 30,
     "core/fastcv.py": 3,
     "core/fitting.py": 2,
@@ -529,7 +528,7 @@ NOT_YET_RENDERED = {
     "selection/entries.py": 32,
     "selection/groups.py": 5,
     "selection/request.py": 2,
-    "selection/search.py": 61,
+    "selection/search.py": 37,
 }
 
 

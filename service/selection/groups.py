@@ -85,7 +85,7 @@ def run_grouped(
         failed,
         round(time.perf_counter() - t0, 4),
         all(not f.record.over_budget for f in failures)
-        and all(b.get("search", {}).get("complete", True) for b in searched),
+        and all(b["search"].complete for b in searched),
     )
     return {
         "data": prep.data_summary(),

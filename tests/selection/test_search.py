@@ -80,7 +80,7 @@ def test_select_names_its_rank_1_as_scored():
     listed = Specification.from_dict(result.body["ranking"][0]["specification"])
     assert listed.predictors[0].column == result.winner.spec.predictors[0].column
     assert listed.response_label() == result.winner.spec.response_label()
-    assert result.complete is result.body["search"]["complete"]
+    assert result.complete is result.body["search"].complete
 
 
 def test_outside_the_band_is_ordered_by_error():
@@ -100,8 +100,8 @@ def _linear_prep(n=120, seed=3):
 
 def test_max_candidates_stops_the_search_incomplete():
     out = run_selection(_linear_prep(), SearchOptions(max_candidates=3), "t")
-    assert out["search"]["candidates_scored"] + out["search"]["candidates_failed"] == 3
-    assert out["search"]["complete"] is False
+    assert out["search"].scored + out["search"].failed == 3
+    assert out["search"].complete is False
     assert any("stopped early" in w for w in out["warnings"])
 
 
@@ -123,13 +123,13 @@ def test_failed_candidates_do_not_stop_the_search():
         ),
         "t",
     )
-    assert out["search"]["candidates_scored"] >= 1
-    for f in out["search"]["failures"]:
-        assert f["reason"]
+    assert out["search"].scored >= 1
+    for f in out["search"].failures:
+        assert f.reason
     # failures grouped by reason with counts that add up to the failed candidates
-    groups = out["search"]["failure_reasons"]
-    if out["search"]["candidates_failed"]:
-        assert sum(g.candidates for g in groups) == out["search"]["candidates_failed"]
+    groups = out["search"].failure_reasons
+    if out["search"].failed:
+        assert sum(g.candidates for g in groups) == out["search"].failed
         assert [g.candidates for g in groups] == sorted(
             (g.candidates for g in groups), reverse=True
         )
@@ -153,8 +153,8 @@ def test_failures_are_grouped_by_reason_with_counts():
         ),
         "t",
     )
-    failed = out["search"]["candidates_failed"]
-    groups = out["search"]["failure_reasons"]
+    failed = out["search"].failed
+    groups = out["search"].failure_reasons
     assert failed > 0 and groups
     counts = [g.candidates for g in groups]
     assert counts == sorted(counts, reverse=True) and sum(counts) <= failed
@@ -196,7 +196,7 @@ def test_linear_data_keep_the_identity_scale():
 
 def test_grouped_selection_shares_one_time_budget():
     from service.core.data import prepare as prep_fn
-    from service.selection.groups import run_grouped
+    from service.selection.groups import GroupFailure, run_grouped
 
     rng = np.random.default_rng(5)
     n = 240
@@ -208,15 +208,16 @@ def test_grouped_selection_shares_one_time_budget():
     )
     shared = Deadline.after(1e-6)  # the request's one deadline, spent by the first group
     out = run_grouped(prep, SearchOptions(deadline=shared), "t")
-    assert out["search"]["groups"] == 8
-    assert out["search"]["complete"] is False
-    assert all(b["problem"].over_budget for b in out["groups"].values())  # rendered as 503
+    assert out["search"].groups == 8
+    assert out["search"].complete is False
+    assert all(b.record.over_budget for b in out["groups"].values())  # rendered as 503
     # without a request deadline (a batch of segments) every group counts from its own start
     gone = Deadline(time.monotonic() - 1.0, 60.0)
     each = run_grouped(prep, SearchOptions(time_limit_s=60.0), "t")
-    assert each["search"]["complete"] and not any("problem" in b for b in each["groups"].values())
+    assert each["search"].complete
+    assert not any(isinstance(b, GroupFailure) for b in each["groups"].values())
     late = run_grouped(prep, SearchOptions(time_limit_s=60.0, deadline=gone), "t")
-    assert all(b["problem"].over_budget for b in late["groups"].values())
+    assert all(b.record.over_budget for b in late["groups"].values())
 
 
 def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
