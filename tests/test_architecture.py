@@ -513,7 +513,7 @@ NOT_YET_RENDERED = {
     "core/likelihood.py": 9,
     "core/model.py": 33,
     "core/plots.py": 102,
-    "core/predict.py": 25,
+    "core/predict.py": 4,
     "core/sources.py": 5,
     "core/spec.py": 11,
     "core/transforms/categorical.py": 12,
