@@ -505,7 +505,7 @@ NOT_YET_RENDERED = {
     "core/boxtidwell.py": 11,
     "core/conditions.py": 96,
     "core/cvplus.py": 17,
-    "core/cvresult.py": 13,
+    "core/cvresult.py": 3,
     "core/drift.py": 30,
     "core/fastcv.py": 3,
     "core/fitting.py": 2,

@@ -23,7 +23,7 @@ import numpy as np
 from ..core import transforms as tr
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import cross_validate
-from ..core.cvresult import CVResult, std_error_of
+from ..core.cvresult import CVReport, CVResult, std_error_of
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, SpecField
 from ..core.folds import CVPlan
@@ -111,13 +111,12 @@ class IncumbentDecision:
     """Keep or switch, with the sentence that says why.  ``spec`` is the incumbent as built
     on this run's rows (None when it could not be; then ``as_sent`` is the request's own
     specification); ``rank`` its place in this run's ranking; ``cv`` its cross-validated
-    error in the contract form of :meth:`CVResult.to_dict`; ``difference`` None when it
-    could not be scored."""
+    error (None, like ``difference``, when it could not be scored)."""
 
     spec: Specification | None
     as_sent: dict[str, Any] | None
     rank: int | None
-    cv: dict[str, Any] | None
+    cv: CVReport | None
     difference: PairedDifference | None
     decision: Literal["keep", "switch"]
     reason: str
@@ -184,7 +183,7 @@ def decide(
         inc_spec,
         request_spec,
         rank,
-        inc_cv.to_dict(plan),
+        CVReport.of(inc_cv, plan),
         PairedDifference(diff, se),
         decision,
         why,

@@ -13,7 +13,7 @@ def incumbent(d: inc.IncumbentDecision) -> dict[str, Any]:
     return {
         "specification": d.spec.to_dict() if d.spec is not None else d.as_sent,
         "rank": d.rank,
-        "cv": d.cv,
+        "cv": None if d.cv is None else contract(d.cv),
         "difference": None
         if d.difference is None
         else {
