@@ -117,13 +117,13 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
     """The finished selection body of one segment (module-level: it runs on any worker).
 
     ``sub`` is the segment's Prepared, a :class:`batch_parquet.SegmentRef` to read it from
-    the shared Parquet dataset, or its ``{"problem": ...}`` when it was already known to be
+    the shared Parquet dataset, or its ``GroupFailure`` when it was already known to be
     unusable.  An incumbent's model artifact adds the ``drift`` block.
     """
-    from .api.errors import problem_object, record_problem
+    from .api.errors import group_problem, problem_object
     from .api.options import service
     from .batch_parquet import SegmentRef, SharedDirError
-    from .selection.groups import GroupTask, select_group
+    from .selection.groups import GroupFailure, GroupTask, select_group
     from .selection.request import finish_body
 
     _pin_blas_once()
@@ -140,15 +140,15 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
                 )
             }
     body = select_group(GroupTask(sub, opts, service_version))
-    if "problem" in body:
-        body = {"problem": record_problem(body["problem"])}
+    if isinstance(body, GroupFailure):
+        body = group_problem(body)
     else:
         body = finish_body(body, opts, service())
-    if incumbent_model is not None and not isinstance(sub, dict):
+    if incumbent_model is not None and not isinstance(sub, GroupFailure):
         from .core.drift import compare
 
         body["drift"] = compare(incumbent_model, sub)
-    return body
+    return _jsonable(body)  # in contract form: the summary reads it as the files hold it
 
 
 def unexpected_problem(exc: BaseException) -> dict:
@@ -171,7 +171,7 @@ def unexpected_problem(exc: BaseException) -> dict:
 @dataclass
 class Task:
     name: str
-    sub: Any  # Prepared | SegmentRef | {"problem": ...}
+    sub: Any  # Prepared | SegmentRef | GroupFailure
     opts: Any
     version: str
     incumbent_model: dict | None = None
@@ -461,8 +461,15 @@ def versions() -> dict:
     }
 
 
+def is_failed_segment(sub) -> bool:
+    """True for a segment already known to be unusable (a ``GroupFailure`` of the split)."""
+    from .selection.groups import GroupFailure
+
+    return isinstance(sub, GroupFailure)
+
+
 def _segment_fingerprint(sub) -> str | None:
-    return None if isinstance(sub, dict) else sub.fingerprint()
+    return None if is_failed_segment(sub) else sub.fingerprint()
 
 
 def build_manifest(job: Job, parts: dict) -> dict:
@@ -482,7 +489,7 @@ def build_manifest(job: Job, parts: dict) -> dict:
             {
                 "segment": name,
                 "file": f"{SEGMENTS}/{segment_file(name)}",
-                "rows": None if isinstance(sub, dict) else int(sub.n),
+                "rows": None if is_failed_segment(sub) else int(sub.n),
                 "fingerprint": _segment_fingerprint(sub),
             }
             for name, sub in parts.items()

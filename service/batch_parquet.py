@@ -191,10 +191,12 @@ class SharedParquet:
     def publish(self, prep, parts: dict, data_fingerprint: str) -> dict[str, SegmentRef]:
         """Write the usable segments (or reuse a finished dataset of the same rows) and return
         one reference per segment name."""
+        from .selection.groups import GroupFailure
+
         key = dataset_key(prep, data_fingerprint)
         final = self.root / f"{FORMAT}-{key}"
         index = {name: i for i, name in enumerate(parts)}
-        usable = [name for name, sub in parts.items() if not isinstance(sub, dict)]
+        usable = [name for name, sub in parts.items() if not isinstance(sub, GroupFailure)]
         if not self._finished(final, key, len(usable)):
             self._write(final, key, prep, parts, index, usable)
         else:

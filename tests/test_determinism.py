@@ -6,6 +6,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import re
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -145,7 +146,7 @@ def test_trust_is_the_same_in_one_process_and_in_two():
         seed=4,
     )
     result = select(prep, opts, "test")
-    winner = result.body["ranking"][0]["specification"]
+    winner = result.winner.spec
     runs = [
         assess_trust(prep, opts, winner, "test", True, True, resamples=12, selection=result),
         assess_trust(
@@ -161,7 +162,6 @@ def test_trust_is_the_same_in_one_process_and_in_two():
             chunks=2,
         ),
     ]
-    for r in runs:
-        r.pop("elapsed_s")
-    assert runs[0]["stability_details"]["usable"] == 12
+    runs = [replace(r, elapsed_s=0.0) for r in runs]
+    assert runs[0].stability.usable == 12
     assert json.dumps(to_jsonable(runs[0])) == json.dumps(to_jsonable(runs[1]))

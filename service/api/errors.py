@@ -25,6 +25,7 @@ from starlette.responses import Response
 
 from ..core.errors import BestscaleError, BudgetError, ErrorRecord, InputError, ModelFailure
 from ..core.numbers import row_number
+from ..selection.groups import GroupFailure
 from .metrics import REJECTED
 from .pointers import SELECTIONS, endpoint_of, error_items
 
@@ -111,14 +112,19 @@ def record_problem(rec: ErrorRecord, endpoint: str = SELECTIONS) -> dict:
     )
 
 
+def group_problem(failure: GroupFailure, endpoint: str = SELECTIONS) -> dict:
+    """The entry of a group (or batch segment) that could not be modelled: its problem."""
+    return {"problem": record_problem(failure.record, endpoint)}
+
+
 def with_group_problems(body: dict) -> dict:
-    """A selections ``body`` with the :class:`ErrorRecord` of every group that could not be
-    modelled written as its problem object."""
+    """A selections ``body`` with every group that could not be modelled (a
+    :class:`GroupFailure`) written as its problem entry."""
     groups = body.get("groups")
     if isinstance(groups, dict):
-        for gbody in groups.values():
-            if isinstance(gbody.get("problem"), ErrorRecord):
-                gbody["problem"] = record_problem(gbody["problem"], SELECTIONS)
+        for name, gbody in groups.items():
+            if isinstance(gbody, GroupFailure):
+                groups[name] = group_problem(gbody, SELECTIONS)
     return body
 
 

@@ -1,6 +1,9 @@
 """One selection per value of a group column: :func:`run_grouped` splits the table and
 hands each group to :func:`select_group` through a ``mapper`` (in this process, a process
-pool of :mod:`workers`, or a Dask cluster), each group within the request's one deadline."""
+pool of :mod:`workers`, or a Dask cluster), each group within the request's one deadline.
+
+A group that cannot be modelled is a :class:`GroupFailure`; the grouped search's summary a
+:class:`GroupsSummary` (``service/api/render/groups.py`` writes both)."""
 
 from __future__ import annotations
 
@@ -18,12 +21,32 @@ from .search_setup import SearchOptions
 from .trust import assess_trust
 
 
-def group_parts(prep: Prepared) -> dict[str, Prepared | dict[str, Any]]:
-    """The table split by the group column: each group's rows, or the ``{"problem":
-    ErrorRecord}`` entry of a group already known to be unusable (as :func:`select_group`
+@dataclass(frozen=True)
+class GroupFailure:
+    """A group that could not be modelled: the error the core raised on purpose, kept as
+    data (``record``); the caller writes it as the group's problem object."""
+
+    record: ErrorRecord
+
+
+@dataclass(frozen=True)
+class GroupsSummary:
+    """The search of a grouped selection: how many ``groups``, how many ``failed``, the
+    time it took and whether every group's search was ``complete`` (no group ran out of
+    time, none stopped early)."""
+
+    groups: int
+    failed: int
+    elapsed_s: float
+    complete: bool
+
+
+def group_parts(prep: Prepared) -> dict[str, Prepared | GroupFailure]:
+    """The table split by the group column: each group's rows, or the
+    :class:`GroupFailure` of a group already known to be unusable (as :func:`select_group`
     passes it on)."""
     return {
-        name: {"problem": ErrorRecord.of(sub)} if isinstance(sub, BestscaleError) else sub
+        name: GroupFailure(ErrorRecord.of(sub)) if isinstance(sub, BestscaleError) else sub
         for name, sub in split_groups(prep).items()
     }
 
@@ -39,9 +62,9 @@ def run_grouped(
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
     pool's map to spread the groups over workers.  The groups share ``opts.deadline``
-    (an HTTP request's); when it is None each group's time limit counts from its own start.  A group that cannot be modelled
-    gets a ``problem`` entry with its reason (an :class:`ErrorRecord`, which the caller
-    renders) while the others go on.
+    (an HTTP request's); when it is None each group's time limit counts from its own start.
+    A group that cannot be modelled is a :class:`GroupFailure` (which the caller renders)
+    while the others go on.
     """
     t0 = time.perf_counter()
     # the request's one deadline, shared by its groups; without one (a batch of segments)
@@ -51,18 +74,22 @@ def run_grouped(
     names = list(parts)
     tasks = [GroupTask(sub, opts, service_version, deadline=deadline) for sub in parts.values()]
     bodies = [
-        b if ("problem" in b or finish is None) else finish(b) for b in mapper(select_group, tasks)
+        b if (isinstance(b, GroupFailure) or finish is None) else finish(b)
+        for b in mapper(select_group, tasks)
     ]
-    failed = sum(1 for b in bodies if "problem" in b)
+    failures = [b for b in bodies if isinstance(b, GroupFailure)]
+    failed = len(failures)
+    searched = [b for b in bodies if not isinstance(b, GroupFailure)]
+    summary = GroupsSummary(
+        len(names),
+        failed,
+        round(time.perf_counter() - t0, 4),
+        all(not f.record.over_budget for f in failures)
+        and all(b["search"].complete for b in searched),
+    )
     return {
         "data": prep.data_summary(),
-        "search": {
-            "groups": len(names),
-            "groups_failed": failed,
-            "elapsed_s": round(time.perf_counter() - t0, 4),
-            "complete": all("problem" not in b or not b["problem"].over_budget for b in bodies)
-            and all(b["search"].complete for b in bodies if "problem" not in b),
-        },
+        "search": summary,
         "ranking": [],
         "groups": dict(zip(names, bodies, strict=True)),
         "warnings": [
@@ -91,40 +118,39 @@ class GroupTrust:
 class GroupTask:
     """One group for :func:`select_group`.
 
-    ``rows`` is the group's :class:`Prepared` rows, or the ``{"problem": ErrorRecord}`` entry
-    of a group already known to be unusable (passed through).  ``deadline`` is the request's
+    ``rows`` is the group's :class:`Prepared` rows, or the :class:`GroupFailure` of a group
+    already known to be unusable (passed through).  ``deadline`` is the request's
     one deadline: a group reached after it gets a 503 problem, one reached before it
     searches within what is left.
     """
 
-    rows: Prepared | dict[str, Any]
+    rows: Prepared | GroupFailure
     opts: SearchOptions
     service_version: str
     trust: GroupTrust | None = None
     deadline: Deadline | None = None
 
 
-def select_group(task: GroupTask) -> dict[str, Any]:
+def select_group(task: GroupTask) -> dict[str, Any] | GroupFailure:
     """Worker for one group of :func:`run_grouped`: the group's selection body without
-    private keys, or a ``problem`` entry (:class:`ErrorRecord`) for an error the core raised
-    on purpose.
+    private keys, or a :class:`GroupFailure` for an error the core raised on purpose.
     Module-level, and its task is a frozen dataclass, so both pickle."""
     sub, opts, service_version = task.rows, task.opts, task.service_version
     trust = task.trust
-    if isinstance(sub, dict):
+    if isinstance(sub, GroupFailure):
         return sub
     # the request's deadline, or (a batch segment) one started now for this group's search
     # and trust together
     deadline = task.deadline if task.deadline is not None else opts.clock()
     if deadline.passed():
-        return {
-            "problem": ErrorRecord.of(
+        return GroupFailure(
+            ErrorRecord.of(
                 BudgetError(
                     f"the request's time limit of {opts.time_limit_s:g} s ran out before this "
                     "group was reached; send fewer groups per request or raise limits.time_limit_s"
                 )
             )
-        }
+        )
     opts = replace(opts, deadline=deadline)
     try:
         result = select(sub, opts, service_version)
@@ -135,7 +161,7 @@ def select_group(task: GroupTask) -> dict[str, Any]:
             body["trust"] = assess_trust(
                 sub,
                 opts,
-                body["ranking"][0]["specification"],
+                result.winner.spec,
                 service_version,
                 stability,
                 optimism,
@@ -144,5 +170,5 @@ def select_group(task: GroupTask) -> dict[str, Any]:
                 outer_folds=outer_folds,
             )
     except BestscaleError as exc:
-        return {"problem": ErrorRecord.of(exc)}
+        return GroupFailure(ErrorRecord.of(exc))
     return body

@@ -8,11 +8,15 @@ choice): ``switch`` when the winner's error is lower by more than one paired
 standard error (d < -SE), or when the incumbent fails a regression condition
 that the winner passes, or when the incumbent cannot be fitted on the new
 data; otherwise ``keep``, since replacing a production model has a cost.
+
+:func:`decide` returns a frozen :class:`IncumbentDecision`; ``service/api/render/incumbent.py``
+writes its contract form.
 """
 
 from __future__ import annotations
 
-from typing import Any
+from dataclasses import dataclass
+from typing import Any, Literal
 
 import numpy as np
 
@@ -52,13 +56,14 @@ def incumbent_spec(
                 f"the incumbent uses '{col}'; add it to 'predictors' so both are "
                 "scored on the same rows",
             )
-        t = tr.from_dict(p.get("transform") or {"name": "identity"})
+        t = tr.from_dict(p["transform"]) if p.get("transform") else tr.Transform("identity")
         if col in prep.categorical and t.name != "categorical":
             t = tr.Transform("categorical")
         elif col in prep.numeric and t.name == "categorical":
             return None, f"the incumbent treats '{col}' as categorical but it is numeric here"
         preds.append(PredictorSpec(col, t))
-    rt = tr.from_dict(d["response"].get("transform") or {"name": "identity"})
+    sent = d["response"].get("transform")
+    rt = tr.from_dict(sent) if sent else tr.Transform("identity")
     spec = Specification(prep.response, rt, tuple(preds), bool(d.get("intercept", True)))
     msg = rt.domain_problem(prep.y, prep.response, "response")
     if msg:
@@ -81,6 +86,37 @@ def _failed_conditions(conditions: ConditionReport | None) -> set[str]:
     return set(failed(conditions))
 
 
+#: what the paired difference means (stated with it)
+DIFFERENCE_MEANING = (
+    "winner minus incumbent, mean over the same folds; negative means the winner predicts better"
+)
+
+
+@dataclass(frozen=True)
+class PairedDifference:
+    """Winner minus incumbent: the mean of the fold-by-fold differences and its standard
+    error (:data:`DIFFERENCE_MEANING`)."""
+
+    value: float
+    std_error: float
+
+
+@dataclass(frozen=True)
+class IncumbentDecision:
+    """Keep or switch, with the sentence that says why.  ``spec`` is the incumbent as built
+    on this run's rows (None when it could not be; then ``as_sent`` is the request's own
+    specification); ``rank`` its place in this run's ranking; ``cv`` its cross-validated
+    error (None, like ``difference``, when it could not be scored)."""
+
+    spec: Specification | None
+    as_sent: dict[str, Any] | None
+    rank: int | None
+    cv: CVReport | None
+    difference: PairedDifference | None
+    decision: Literal["keep", "switch"]
+    reason: str
+
+
 def decide(
     inc_spec: Specification | None,
     inc_cv: CVResult | None,
@@ -91,64 +127,59 @@ def decide(
     plan: CVPlan,
     inc_conditions: ConditionReport | None = None,
     request_spec: dict[str, Any] | None = None,
-) -> dict[str, Any]:
-    """The contract's ``incumbent`` block."""
-    out: dict[str, Any] = {
-        "specification": inc_spec.to_dict() if inc_spec is not None else request_spec,
-        "rank": rank,
-        "cv": None,
-        "difference": None,
-    }
+) -> IncumbentDecision:
+    """Keep the incumbent or switch to rank 1 (``winner_entry``, whose fold errors are
+    ``winner_folds``), by the rule of this module."""
     if inc_spec is None or inc_cv is None:
-        out.update(
-            decision="switch",
-            reason=f"The incumbent cannot be fitted on this data: "
+        return IncumbentDecision(
+            inc_spec,
+            request_spec,
+            rank,
+            None,
+            None,
+            "switch",
+            f"The incumbent cannot be fitted on this data: "
             f"{reason}; switch to rank 1 ({winner_entry['equation']}).",
         )
-        return out
-    out["cv"] = CVReport.of(inc_cv, plan)
     same = winner_entry["specification"] == inc_spec.to_dict() or rank == 1
     # the same specification on the same folds differs by exactly 0; the two scoring paths
     # (search and incumbent refit) agree only to rounding, so the rounding is not reported
     d = np.zeros_like(inc_cv.fold_values) if same else winner_folds - inc_cv.fold_values
     se = std_error_of(d, plan.folds)
     diff = float(np.mean(d))
-    out["difference"] = {
-        "value": diff,
-        "std_error": se,
-        "meaning": "winner minus incumbent, mean over the same folds; "
-        "negative means the winner predicts better",
-    }
     metric = plan.metric
     inc_fail = _failed_conditions(inc_conditions)
     win_fail = _failed_conditions(winner_entry.get("conditions"))
     only_inc = sorted(inc_fail - win_fail)
+    decision: Literal["keep", "switch"]
     if same:
-        out.update(decision="keep", reason="The incumbent is this run's rank-1 specification.")
+        decision, why = "keep", "The incumbent is this run's rank-1 specification."
     elif diff < -se:
-        out.update(
-            decision="switch",
-            reason=(
-                f"Rank 1 ({winner_entry['equation']}) has a lower cross-validated {metric} by "
-                f"{fmt(-diff)} (paired standard error {fmt(se)}), more than one standard error."
-            ),
+        decision = "switch"
+        why = (
+            f"Rank 1 ({winner_entry['equation']}) has a lower cross-validated {metric} by "
+            f"{fmt(-diff)} (paired standard error {fmt(se)}), more than one standard error."
         )
     elif only_inc:
-        out.update(
-            decision="switch",
-            reason=(
-                "The incumbent fails "
-                + ", ".join(c.replace("_", " ") for c in only_inc)
-                + f", which rank 1 ({winner_entry['equation']}) passes; their {metric} differ by "
-                f"{fmt(diff)} (paired standard error {fmt(se)})."
-            ),
+        decision = "switch"
+        why = (
+            "The incumbent fails "
+            + ", ".join(c.replace("_", " ") for c in only_inc)
+            + f", which rank 1 ({winner_entry['equation']}) passes; their {metric} differ by "
+            f"{fmt(diff)} (paired standard error {fmt(se)})."
         )
     else:
-        out.update(
-            decision="keep",
-            reason=(
-                f"Rank 1 differs from the incumbent by {diff:.4g} in cross-validated {metric} "
-                f"(paired standard error {se:.4g}), within one standard error; keep the incumbent."
-            ),
+        decision = "keep"
+        why = (
+            f"Rank 1 differs from the incumbent by {diff:.4g} in cross-validated {metric} "
+            f"(paired standard error {se:.4g}), within one standard error; keep the incumbent."
         )
-    return out
+    return IncumbentDecision(
+        inc_spec,
+        request_spec,
+        rank,
+        CVReport.of(inc_cv, plan),
+        PairedDifference(diff, se),
+        decision,
+        why,
+    )

@@ -6,8 +6,8 @@ What it is given is typed and frozen (:class:`SelectionJob`: the table and its c
 :class:`SearchOptions`, the trust measures, the group limit; :class:`Service`: what the
 running service adds), built from a request by ``service/api/options.py``, which has
 already checked every limit it can see in the request.  Nothing here knows HTTP: a group
-that cannot be modelled keeps its :class:`~service.core.errors.ErrorRecord`, which the
-caller renders.
+that cannot be modelled is a :class:`~service.selection.groups.GroupFailure` (its
+:class:`~service.core.errors.ErrorRecord`), which the caller renders.
 """
 
 from __future__ import annotations
@@ -122,7 +122,7 @@ def run_selection(
     of the work asks ``job.search.clock()``: the request's one deadline when it has one;
     with ``per_group_time_limit`` (the command line's ``--group-by``: a month of segments,
     not one request) the time limit counts for each group from that group's start instead.
-    Groups that cannot be modelled keep their ``ErrorRecord`` under ``problem``."""
+    Groups that cannot be modelled are a ``GroupFailure`` holding their ``ErrorRecord``."""
     opts = job.search
     prep = job.table.prepare()
     if job.table.group_by is not None:
@@ -155,7 +155,7 @@ def run_selection(
         body["trust"] = assess_trust(
             prep,
             opts,
-            body["ranking"][0]["specification"],
+            result.winner.spec,
             service.version,
             job.trust.stability,
             job.trust.optimism,

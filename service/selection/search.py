@@ -291,12 +291,15 @@ class SearchSummary:
 @dataclass(frozen=True)
 class Selection:
     """One search's result: the contract's selection ``body`` (without service_version),
-    the distinct-scale candidates it ranked (``scored``; trust re-ranks them) and its
-    fold ``plan``."""
+    the distinct-scale candidates it ranked (``scored``; trust re-ranks them), its fold
+    ``plan``, the candidate listed at rank 1 (``winner``, one of ``scored``) and whether
+    every candidate of the space was scored (``complete``)."""
 
     body: dict[str, Any]
     scored: list[Scored]
     plan: CVPlan
+    winner: Scored
+    complete: bool
 
 
 def run_selection(
@@ -428,6 +431,7 @@ def select(
     best = min(scored, key=lambda s: s.cv.value)
     entries: list[dict[str, Any]] = []
     first: Entry | None = None
+    winner: Scored | None = None
     for s, parts in ranked:
         if len(entries) >= opts.top:
             break
@@ -444,6 +448,7 @@ def select(
         # CV+ fits only for the entries returned (the band's assessed members need none)
         attach_cv_plus(entry, listed.design, *ev.out_of_fold(s, deadline), prep, plan)
         first = first or listed
+        winner = winner or s
         if "conditions_failed" not in parts:
             parts = {
                 **parts,
@@ -508,7 +513,8 @@ def select(
     if incumbent_block is not None:
         body["incumbent"] = incumbent_block
     body["warnings"] = warnings
-    return Selection(body, listable, plan)
+    assert winner is not None  # listed with entries[0]
+    return Selection(body, listable, plan, winner, complete)
 
 
 def _incumbent(
@@ -520,7 +526,7 @@ def _incumbent(
     ranked: list[tuple[Scored, dict[str, Any]]],
     entries: list[dict[str, Any]],
     band: Band | None = None,
-) -> dict[str, Any]:
+) -> incumbent.IncumbentDecision:
     assert opts.incumbent is not None  # called only for a request with an incumbent
     spec, why = incumbent.incumbent_spec(
         opts.incumbent, prep, prep.predictors, set(prep.table_columns)
@@ -653,16 +659,22 @@ def simplicity_parts(spec: Specification) -> dict[str, int]:
     return {"estimated": n_est, "readability": cost, "transformed_columns": n_tr}
 
 
-def rank(
-    scored: list[Scored], folds: int | None = None, band: Band | None = None
-) -> tuple[list[tuple[Scored, dict[str, Any]]], float]:
-    """Order by one band (:class:`Band`): inside it by simplicity then error, outside by error.
+@dataclass(frozen=True)
+class Place:
+    """A candidate's place in the one-band ranking: whether it is inside the band, how far
+    its CV error is from the lowest and the paired standard error of that difference."""
 
-    Every entry's ``parts`` carries the same threshold.  ``paired_std_error`` (the
-    standard error of the fold-by-fold differences from the lowest-error candidate)
-    is reported for information only; it does not decide the band.  Returns the
-    ordered (scored, score parts) pairs and the lowest CV error.
-    """
+    scored: Scored
+    within_band: bool
+    difference_from_best: float
+    paired_std_error: float
+
+
+def places(scored: list[Scored], folds: int | None = None, band: Band | None = None) -> list[Place]:
+    """``scored`` in the one band's order (:class:`Band`): inside it by simplicity then
+    error, outside by error.  ``paired_std_error`` (the standard error of the fold-by-fold
+    differences from the lowest-error candidate) is for information only; it does not
+    decide the band."""
     band = band or Band.of(scored)
     best = min(scored, key=lambda s: (s.cv.value, s.spec.simplicity()))
     k = folds or max(len(best.cv.fold_values), 1)
@@ -675,16 +687,35 @@ def rank(
 
     cvs = [s.cv.value for s in scored]
     order = band_order(cvs, [s.spec.simplicity() for s in scored], band.threshold)
+    return [
+        Place(
+            scored[i],
+            scored[i].cv.value <= band.threshold,
+            scored[i].cv.value - band.lowest,
+            paired(scored[i]),
+        )
+        for i in order
+    ]
+
+
+def rank(
+    scored: list[Scored], folds: int | None = None, band: Band | None = None
+) -> tuple[list[tuple[Scored, dict[str, Any]]], float]:
+    """Order by one band (:func:`places`), each candidate with its score parts.
+
+    Every entry's ``parts`` carries the same threshold.  Returns the ordered (scored,
+    score parts) pairs and the lowest CV error.
+    """
+    band = band or Band.of(scored)
     out = []
-    for i in order:
-        s = scored[i]
-        within = s.cv.value <= band.threshold
+    for pl in places(scored, folds, band):
+        s, within = pl.scored, pl.within_band
         parts = {
             "cv_value": s.cv.value,
             "cv_std_error": s.cv.std_error,
             "best_cv_value": band.lowest,
-            "difference_from_best": s.cv.value - band.lowest,
-            "paired_std_error": paired(s),
+            "difference_from_best": pl.difference_from_best,
+            "paired_std_error": pl.paired_std_error,
             "one_se_threshold": band.threshold,
             "within_one_se": within,
             "simplicity": simplicity_parts(s.spec),

@@ -49,16 +49,19 @@ Each part stops at its time limit and then says so (``complete``).
 
 Everything is seeded from the request's seed; the same request gives the same
 numbers whatever the number of worker processes (``mapper``).
+
+:func:`assess_trust` returns a :class:`Trust` (with :class:`Stability` and
+:class:`Optimism`), frozen and picklable (groups run in worker processes);
+``service/api/render/trust.py`` writes its contract form.
 """
 
 from __future__ import annotations
 
-import json
 import math
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, replace
-from typing import Any
+from typing import Any, TypeAlias
 
 import numpy as np
 
@@ -75,7 +78,7 @@ from ..core.folds import CVPlan, make_plan
 from ..core.spec import Specification, SpecKey, build_design
 from .deadline import Deadline
 from .entries import fitted_model
-from .search import Selection, rank, select
+from .search import Selection, places, select
 from .search_setup import Scored, SearchOptions
 
 DEFAULT_RESAMPLES = 20
@@ -85,23 +88,192 @@ MAX_CONTENDERS = 8
 DEFAULT_INNER_FOLDS = 3
 UNSTABLE_BELOW = 0.8  # design choice: below this share the warning says the choice is not settled
 OPTIMISM_WARN_RATIO = 1.05  # design choice: nested error 5% above the winner's gets a warning
+INTERVAL_LEVEL = 0.95  # of the Wilson interval of the stability share
 _STABILITY_STREAM = 1  # separates the bootstrap stream from any other use of the seed
 _WILSON_Z = 1.959963984540054  # standard normal 0.975 quantile
 
+#: what the stability block states about its method (stated with it)
+STABILITY_METHOD = "bootstrap of rows (grouped folds: copies of a row are held out together)"
+STABILITY_SOURCE = src.BOOTSTRAP
+CONTENDER_RULE = (
+    f"candidates within {CONTENDER_SE:g} paired standard errors of the "
+    f"lowest cross-validated error on all rows (at most {MAX_CONTENDERS}); "
+    "the others are taken never to be first"
+)
+CONDITIONS_HELD = "assessed once on all rows; resamples vary the cross-validated part"
+HELD_FIXED = (
+    "response lambdas and shifts are estimated again in every fold; "
+    "candidates with an estimated predictor power are left out of the "
+    "resamples (their power would be held at its all-rows value, which "
+    "flatters them)"
+)
+HELD_FIXED_RANK_1 = ", except rank 1, whose power is held at its all-rows value"
+RUNNER_UP_FIRST = "first most often among the resamples where rank 1 was not"
+RUNNER_UP_NEXT = "never first in a resample; next in the cross-validated ranking on all rows"
+#: what the optimism block states about its method
+OPTIMISM_SOURCE = src.NESTED_CV
+OPTIMISM_MEANING = (
+    "selected_cv is rank 1's error on the outer folds; nested_cv repeats the "
+    "whole search inside each outer training part and scores what it selects on "
+    "the held-out fold; gap = nested_cv - selected_cv, positive when the search "
+    "flatters rank 1"
+)
+
+
+# --------------------------------------------------------------------------- results
+@dataclass(frozen=True)
+class RunnerUp:
+    """The specification that would most often be first instead of rank 1: ``first_share``
+    of the usable resamples, and on what ``basis`` it was chosen (a sentence)."""
+
+    spec: Specification
+    first_share: float
+    basis: str
+
+
+@dataclass(frozen=True)
+class FirstShare:
+    """A contender that was first in some resamples, with its share of the usable ones."""
+
+    spec: Specification
+    share: float
+
+
+@dataclass(frozen=True)
+class ResampleProblem:
+    """Why ``resamples`` resamples could not be ranked (one ``reason``)."""
+
+    reason: str
+    resamples: int
+
+
+@dataclass(frozen=True)
+class Stability:
+    """The bootstrap measure: rank 1 was first in ``wins`` of ``usable`` resamples
+    (``share``; None when none was usable) out of ``requested``; ``not_run`` were cut by
+    the time limit.  ``first`` lists every contender that was first, most often first;
+    ``contenders`` were re-scored (``estimated_powers_left_out`` near candidates with an
+    estimated predictor power were not; ``rank_1_power_held``: rank 1 has one, held at
+    its all-rows value); ``rule_reproduces_rank_1``: the resampled rule picks rank 1 on
+    all rows."""
+
+    share: float | None
+    runner_up: RunnerUp | None
+    requested: int
+    usable: int
+    not_run: int
+    wins: int
+    first: tuple[FirstShare, ...]
+    contenders: int
+    folds: int
+    seed: int
+    estimated_powers_left_out: int
+    rank_1_power_held: bool
+    rule_reproduces_rank_1: bool
+    problems: tuple[ResampleProblem, ...]
+
+    @property
+    def failed(self) -> int:
+        return sum(p.resamples for p in self.problems)
+
+    @property
+    def complete(self) -> bool:
+        return self.not_run == 0
+
+    @property
+    def interval(self) -> tuple[float, float] | None:
+        """Wilson score interval of ``share`` at :data:`INTERVAL_LEVEL`."""
+        return wilson_interval(self.wins, self.usable)
+
+
+@dataclass(frozen=True)
+class OuterFold:
+    """One outer fold of the nested cross-validation: ``rows_held_out``, the specification
+    the inner search ``selected`` and the held-out errors of it and of rank 1, or the
+    ``problem`` that stopped it (``selected`` may still be known)."""
+
+    fold: int
+    rows_held_out: int
+    selected: Specification | None = None
+    problem: str | None = None
+    same_as_winner: bool = False
+    inner_complete: bool = False
+    nested_error: float | None = None
+    winner_error: float | None = None
+
+
+@dataclass(frozen=True)
+class Optimism:
+    """The nested cross-validation: rank 1's pooled error on the outer folds
+    (``selected_cv``) and that of the whole search repeated inside them (``nested_cv``),
+    both None when no outer fold could be assessed (then ``problem`` says why).  ``folds``
+    is None when the outer folds were never reached."""
+
+    metric: str
+    outer_folds: int
+    inner_folds: int
+    seed: int
+    selected_cv: float | None = None
+    nested_cv: float | None = None
+    gap_std_error: float | None = None
+    outer_folds_used: int = 0
+    winner_selected: int = 0
+    complete: bool = False
+    folds: tuple[OuterFold, ...] | None = None
+    problem: str | None = None
+
+    @property
+    def gap(self) -> float | None:
+        """``nested_cv - selected_cv``: positive when the search flatters rank 1."""
+        if self.nested_cv is None or self.selected_cv is None:
+            return None
+        return self.nested_cv - self.selected_cv
+
+    @property
+    def ratio(self) -> float | None:
+        if self.nested_cv is None or self.selected_cv is None or not self.selected_cv > 0:
+            return None
+        return self.nested_cv / self.selected_cv
+
+
+@dataclass(frozen=True)
+class Trust:
+    """How far to trust the returned rank 1: the measures asked for (None when not asked or
+    the request was stopped), the time limit they ran under, warnings and elapsed time."""
+
+    stability: Stability | None
+    optimism: Optimism | None
+    time_limit_s: float
+    warnings: tuple[str, ...]
+    elapsed_s: float
+
 
 # --------------------------------------------------------------------------- helpers
-def _open(t: dict[str, Any], role: str) -> dict[str, Any]:
-    """A transform with what the search estimates from the response left open."""
-    if not t.get("estimated"):
-        return t
-    if role == "response":
-        return {k: v for k, v in t.items() if k not in ("lambda", "shift", "estimated")}
-    if t["name"] == "power" or (t["name"] == "log" and not t.get("shift")):
-        return {"name": "power", "estimated": True}  # an estimated predictor power
-    return t  # a predictor's log shift comes from the column alone
+#: an estimated predictor power, whatever value a fit gave it
+_ESTIMATED_POWER = "estimated power"
+ScaleKey: TypeAlias = tuple[str, tr.Transform, tuple[tuple[str, tr.Transform | str], ...], bool]
 
 
-def scale_key(spec: dict[str, Any]) -> str:
+def _as_written(t: tr.Transform) -> tr.Transform:
+    """``t`` as its contract form reads it back (a log's shift of 0 and an unset shift are
+    both written as a plain log): transforms that are written alike are one candidate."""
+    return tr.from_dict(t.to_dict())
+
+
+def _open_response(t: tr.Transform) -> tr.Transform:
+    """A response transform with what the search estimates from the response left open."""
+    return _as_written(replace(t, lam=None, shift=None, estimated=False) if t.estimated else t)
+
+
+def _open_predictor(t: tr.Transform) -> tr.Transform | str:
+    """A predictor transform with an estimated power left open (a log's shift comes from
+    the column alone)."""
+    if t.estimated and (t.name == "power" or (t.name == "log" and not t.shift)):
+        return _ESTIMATED_POWER
+    return _as_written(t)
+
+
+def scale_key(spec: Specification) -> ScaleKey:
     """A specification's scale with parameters estimated from the response left open.
 
     ``box_cox`` with an estimated lambda, a log whose shift was chosen from the
@@ -109,22 +281,17 @@ def scale_key(spec: dict[str, Any]) -> str:
     values a fit produced, so a ranking entry (concrete values) matches the
     candidate it came from.
     """
-    resp = _open(dict(spec["response"].get("transform") or {"name": "identity"}), "response")
-    preds = [
-        [p["column"], _open(dict(p.get("transform") or {"name": "identity"}), "predictor")]
-        for p in spec["predictors"]
-    ]
-    return json.dumps(
-        [spec["response"]["column"], resp, preds, bool(spec.get("intercept", True))], sort_keys=True
+    return (
+        spec.response,
+        _open_response(spec.response_transform),
+        tuple((p.column, _open_predictor(p.transform)) for p in spec.predictors),
+        spec.intercept,
     )
 
 
 def has_estimated_power(spec: Specification) -> bool:
     """True when a predictor's power was estimated from the response (Box-Tidwell)."""
-    return any(
-        _open(p["transform"], "predictor") == {"name": "power", "estimated": True}
-        for p in spec.to_dict()["predictors"]
-    )
+    return any(_open_predictor(p.transform) == _ESTIMATED_POWER for p in spec.predictors)
 
 
 def label(spec: Specification) -> str:
@@ -136,7 +303,7 @@ def label(spec: Specification) -> str:
     )
 
 
-def wilson_interval(wins: int, n: int, z: float = _WILSON_Z) -> list[float] | None:
+def wilson_interval(wins: int, n: int, z: float = _WILSON_Z) -> tuple[float, float] | None:
     """Wilson (1927, JASA 22:209-212) score interval for a binomial share."""
     if n <= 0:
         return None
@@ -144,12 +311,12 @@ def wilson_interval(wins: int, n: int, z: float = _WILSON_Z) -> list[float] | No
     den = 1.0 + z * z / n
     centre = (p + z * z / (2 * n)) / den
     half = z / den * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n))
-    return [max(0.0, centre - half), min(1.0, centre + half)]
+    return (max(0.0, centre - half), min(1.0, centre + half))
 
 
-def _find(scored: list[Scored], key: str) -> Scored | None:
+def _find(scored: list[Scored], key: ScaleKey) -> Scored | None:
     for s in scored:
-        if scale_key(s.spec.to_dict()) == key:
+        if scale_key(s.spec) == key:
             return s
     return None
 
@@ -195,8 +362,7 @@ def _one_resample(job: _StabilityJob, b: int) -> list[int] | str:
         scored.append(s)
     if not scored:
         return "no contender could be fitted on the resample"
-    ranked, _ = rank(scored, job.folds)
-    return [where[id(s)] for s, p in ranked if p["within_one_se"]][: job.lead]
+    return [where[id(pl.scored)] for pl in places(scored, job.folds) if pl.within_band][: job.lead]
 
 
 def _resample_chunk(
@@ -269,29 +435,21 @@ def _stability(
     deadline: Deadline,
     mapper: Mapper,
     chunks: int,
-) -> dict[str, Any]:
-    ranked, _ = rank(scored, opts.folds)
+) -> Stability:
+    ranked = places(scored, opts.folds)
     lead = max(3 * opts.top, 15)
-    band_all = [s.spec for s, p in ranked if p["within_one_se"]][:lead]
+    band_all = [pl.scored.spec for pl in ranked if pl.within_band][:lead]
     n_failed = _verdicts(prep, opts.alpha, band_all)
     matches = first_by_rule(list(enumerate(band_all)), n_failed).key == winner.spec.key
 
     # A candidate with an estimated predictor power is re-scored with its all-rows power
     # (cross_validate takes a fixed design), which flatters it against its neighbours; it
     # stays out of the resamples unless it is rank 1 itself.
-    contenders = [
-        s
-        for s, p in ranked
-        if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
-        and (s is winner or not has_estimated_power(s.spec))
+    near = [
+        pl.scored for pl in ranked if pl.difference_from_best <= CONTENDER_SE * pl.paired_std_error
     ]
-    left_out = sum(
-        1
-        for s, p in ranked
-        if p["difference_from_best"] <= CONTENDER_SE * p["paired_std_error"]
-        and s is not winner
-        and has_estimated_power(s.spec)
-    )
+    contenders = [s for s in near if s is winner or not has_estimated_power(s.spec)]
+    left_out = sum(1 for s in near if s is not winner and has_estimated_power(s.spec))
     contenders = contenders[:MAX_CONTENDERS]
     if winner not in contenders:
         contenders = [winner, *contenders[: MAX_CONTENDERS - 1]]
@@ -325,91 +483,53 @@ def _stability(
         counts[f] = counts.get(f, 0) + 1
     order = sorted(counts, key=lambda i: (-counts[i], i))
     others = [i for i in order if i != w]
-    runner: dict[str, object] | None
+    runner: RunnerUp | None
     if others:
         ru = others[0]
-        runner = {
-            "specification": specs[ru].to_dict(),
-            "label": label(specs[ru]),
-            "first_share": counts[ru] / usable,
-            "basis": "first most often among the resamples where rank 1 was not",
-        }
+        runner = RunnerUp(specs[ru], counts[ru] / usable, RUNNER_UP_FIRST)
     else:
-        second = next((s for s, _ in ranked if s is not winner), None)
-        runner = (
-            None
-            if second is None
-            else {
-                "specification": second.spec.to_dict(),
-                "label": label(second.spec),
-                "first_share": 0.0,
-                "basis": "never first in a resample; next in the cross-validated ranking on all rows",
-            }
-        )
-    share = wins / usable if usable else None
-    details = {
-        "method": "bootstrap of rows (grouped folds: copies of a row are held out together)",
-        "source": src.BOOTSTRAP,
-        "requested": resamples,
-        "usable": usable,
-        "failed": sum(problems.values()),
-        "not_run": not_run,
-        "complete": not_run == 0,
-        "wins": wins,
-        "interval": wilson_interval(wins, usable),
-        "interval_level": 0.95,
-        "first": [
-            {
-                "label": label(specs[i]),
-                "specification": specs[i].to_dict(),
-                "share": counts[i] / usable,
-            }
-            for i in order
-        ],
-        "contenders": len(contenders),
-        "contender_rule": (
-            f"candidates within {CONTENDER_SE:g} paired standard errors of the "
-            f"lowest cross-validated error on all rows (at most {MAX_CONTENDERS}); "
-            "the others are taken never to be first"
-        ),
-        "folds": opts.folds,
-        "seed": opts.seed,
-        "conditions": "assessed once on all rows; resamples vary the cross-validated part",
-        "estimated_powers_left_out": left_out,
-        "held_fixed": (
-            "response lambdas and shifts are estimated again in every fold; "
-            "candidates with an estimated predictor power are left out of the "
-            "resamples (their power would be held at its all-rows value, which "
-            "flatters them)"
-            + (
-                ", except rank 1, whose power is held at its all-rows value"
-                if has_estimated_power(winner.spec)
-                else ""
-            )
-        ),
-        "rule_reproduces_rank_1": matches,
-        "problems": [{"reason": k, "resamples": v} for k, v in sorted(problems.items())],
-    }
-    return {"share": share, "runner_up": runner, "details": details}
+        second = next((pl.scored for pl in ranked if pl.scored is not winner), None)
+        runner = None if second is None else RunnerUp(second.spec, 0.0, RUNNER_UP_NEXT)
+    return Stability(
+        share=wins / usable if usable else None,
+        runner_up=runner,
+        requested=resamples,
+        usable=usable,
+        not_run=not_run,
+        wins=wins,
+        first=tuple(FirstShare(specs[i], counts[i] / usable) for i in order),
+        contenders=len(contenders),
+        folds=opts.folds,
+        seed=opts.seed,
+        estimated_powers_left_out=left_out,
+        rank_1_power_held=has_estimated_power(winner.spec),
+        rule_reproduces_rank_1=matches,
+        problems=tuple(ResampleProblem(k, v) for k, v in sorted(problems.items())),
+    )
 
 
 # --------------------------------------------------------------------------- optimism
-def _inner_search(task: tuple[Prepared, SearchOptions, str, Deadline]) -> dict[str, Any]:
+@dataclass(frozen=True)
+class _InnerPick:
+    """What the search inside one outer training part selected (``spec``, and whether that
+    search was ``complete``), or why it did not (``problem``)."""
+
+    spec: Specification | None = None
+    complete: bool = False
+    problem: str | None = None
+
+
+def _inner_search(task: tuple[Prepared, SearchOptions, str, Deadline]) -> _InnerPick:
     """Worker: the whole search on one outer training part, within the request's deadline;
     the selected candidate or why not."""
     sub, opts, service_version, deadline = task
     if deadline.passed():
-        return {"problem": "not run: the time limit was reached", "not_run": True}
+        return _InnerPick(problem="not run: the time limit was reached")
     try:
         result = select(sub, replace(opts, deadline=deadline), service_version)
     except BestscaleError as exc:
-        return {"problem": exc.detail}
-    body = result.body
-    key = scale_key(body["ranking"][0]["specification"])
-    chosen = _find(result.scored, key)
-    if chosen is None:  # the ranking entry always comes from the scored list
-        return {"problem": "the selected specification was not among the scored candidates"}
-    return {"spec": chosen.spec, "complete": bool(body["search"].complete)}
+        return _InnerPick(problem=exc.detail)
+    return _InnerPick(result.winner.spec, result.complete)
 
 
 def _optimism(
@@ -421,27 +541,13 @@ def _optimism(
     inner_folds: int,
     deadline: Deadline,
     mapper: Mapper,
-) -> dict[str, Any]:
+) -> Optimism:
     inner_folds = min(inner_folds, opts.folds)
     outer = make_plan(prep.n, outer_folds, 1, opts.seed, opts.metric)
     assign = outer.assignments[0]
     sizes = np.bincount(assign, minlength=outer_folds).astype(float)
     metric = opts.metric
-    base = {
-        "metric": metric,
-        "scale": "original",
-        "outer_folds": outer_folds,
-        "inner_folds": inner_folds,
-        "seed": opts.seed,
-    }
-    empty = {
-        "selected_cv": None,
-        "nested_cv": None,
-        "gap": None,
-        "gap_std_error": None,
-        "ratio": None,
-        "complete": False,
-    }
+    base = Optimism(metric, outer_folds, inner_folds, opts.seed)
     if outer_folds == opts.folds:
         # the search's own partition (repeat 0 of its plan): rank 1's fold errors as scored,
         # with everything estimated from the response re-estimated in each training fold
@@ -453,30 +559,28 @@ def _optimism(
                 d.X, prep.y, winner.spec.response_transform, outer, tr.needs_shift(prep.y), d.names
             ).fold_values
         except CandidateFailure as exc:
-            return {
-                **base,
-                **empty,
-                "problem": f"rank 1 cannot be scored on the outer folds: {exc.reason}",
-            }
+            return replace(
+                base, problem=f"rank 1 cannot be scored on the outer folds: {exc.reason}"
+            )
     inner = replace(opts, folds=inner_folds, repeats=1, top=1, incumbent=None)
     tasks = [
         (prep.take(np.flatnonzero(assign != k)), inner, service_version, deadline)
         for k in range(outer_folds)
     ]
-    picks = list(mapper(_inner_search, tasks))
+    picks: list[_InnerPick] = list(mapper(_inner_search, tasks))
 
-    evaluated: dict[tuple[str, bool], np.ndarray | str] = {}
-    rows = []
+    evaluated: dict[tuple[ScaleKey, bool], np.ndarray | str] = {}
+    rows: list[OuterFold] = []
     nested = np.full(outer_folds, np.nan)
-    winner_key = scale_key(winner.spec.to_dict())
+    winner_key = scale_key(winner.spec)
     for k, pick in enumerate(picks):
-        entry = {"fold": k + 1, "rows_held_out": int(sizes[k])}
-        if "problem" in pick:
-            rows.append({**entry, "problem": pick["problem"]})
+        held_out = OuterFold(k + 1, int(sizes[k]))
+        if pick.spec is None:
+            rows.append(replace(held_out, problem=pick.problem))
             continue
-        spec = pick["spec"]
+        spec = pick.spec
         shift = tr.needs_shift(prep.y[assign != k])  # the family the inner search used
-        key = (scale_key(spec.to_dict()), shift)
+        key = (scale_key(spec), shift)
         if key not in evaluated:
             try:
                 ds = build_design(spec, prep)
@@ -488,63 +592,49 @@ def _optimism(
         res = evaluated[key]
         if isinstance(res, str):
             rows.append(
-                {
-                    **entry,
-                    "selected": label(spec),
-                    "problem": f"the selected specification cannot predict the held-out fold: {res}",
-                }
+                replace(
+                    held_out,
+                    selected=spec,
+                    problem=f"the selected specification cannot predict the held-out fold: {res}",
+                )
             )
             continue
         nested[k] = res[k]
         rows.append(
-            {
-                **entry,
-                "selected": label(spec),
-                "selected_specification": spec.to_dict(),
-                "same_as_winner": key[0] == winner_key,
-                "inner_complete": pick["complete"],
-                "nested_error": float(res[k]),
-                "winner_error": float(win_folds[k]),
-            }
+            replace(
+                held_out,
+                selected=spec,
+                same_as_winner=key[0] == winner_key,
+                inner_complete=pick.complete,
+                nested_error=float(res[k]),
+                winner_error=float(win_folds[k]),
+            )
         )
     ok = np.isfinite(nested)
     if not np.any(ok):
-        return {
-            **base,
-            **empty,
-            "folds": rows,
-            "problem": "the search could not be repeated inside any outer training part",
-        }
-    sel = pooled_folds(metric, win_folds[ok], sizes[ok])
-    nest = pooled_folds(metric, nested[ok], sizes[ok])
+        return replace(
+            base,
+            folds=tuple(rows),
+            problem="the search could not be repeated inside any outer training part",
+        )
     diff = nested[ok] - win_folds[ok]
-    gap_se = std_error_of(diff, diff.size) if diff.size > 1 else None
-    return {
-        **base,
-        "selected_cv": sel,
-        "nested_cv": nest,
-        "gap": nest - sel,
-        "gap_std_error": gap_se,
-        "ratio": nest / sel if sel > 0 else None,
-        "outer_folds_used": int(ok.sum()),
-        "winner_selected": sum(1 for r in rows if r.get("same_as_winner")),
-        "complete": bool(np.all(ok)) and all(r.get("inner_complete", False) for r in rows),
-        "folds": rows,
-        "source": src.NESTED_CV,
-        "meaning": (
-            "selected_cv is rank 1's error on the outer folds; nested_cv repeats the "
-            "whole search inside each outer training part and scores what it selects on "
-            "the held-out fold; gap = nested_cv - selected_cv, positive when the search "
-            "flatters rank 1"
-        ),
-    }
+    return replace(
+        base,
+        selected_cv=pooled_folds(metric, win_folds[ok], sizes[ok]),
+        nested_cv=pooled_folds(metric, nested[ok], sizes[ok]),
+        gap_std_error=std_error_of(diff, diff.size) if diff.size > 1 else None,
+        outer_folds_used=int(ok.sum()),
+        winner_selected=sum(1 for r in rows if r.same_as_winner),
+        complete=bool(np.all(ok)) and all(r.inner_complete for r in rows),
+        folds=tuple(rows),
+    )
 
 
 # --------------------------------------------------------------------------- entry point
 def assess_trust(
     prep: Prepared,
     opts: SearchOptions,
-    winner_spec: dict[str, Any],
+    winner_spec: Specification,
     service_version: str,
     stability: bool,
     optimism: bool,
@@ -555,16 +645,18 @@ def assess_trust(
     time_limit_s: float | None = None,
     mapper: Mapper = map,
     chunks: int = 1,
-) -> dict[str, Any]:
-    """The contract's ``trust`` block for the returned rank-1 specification ``winner_spec``.
+) -> Trust:
+    """How far to trust the returned rank-1 specification ``winner_spec`` (as listed, or as
+    scored: values estimated from the response do not matter).
 
     ``selection`` is what :func:`search.select` returned for ``prep`` and ``opts`` (its
-    scored candidates are re-ranked; without it the search is run again).  ``resamples`` (default ``DEFAULT_RESAMPLES``) bootstrap
-    resamples measure stability; ``outer_folds`` (default: the search's folds)
-    and ``DEFAULT_INNER_FOLDS`` shape the nested cross-validation.  Every part ends by the
-    request's deadline (``opts.deadline``; else ``opts.time_limit_s`` from this call),
-    or sooner with ``time_limit_s``; what the deadline cut short is stated (``complete``)
-    and warned about.  ``mapper(fn, items)`` may spread the resamples (in ``chunks`` parts) and the outer folds over worker
+    scored candidates are re-ranked; without it the search is run again).  ``resamples``
+    (default ``DEFAULT_RESAMPLES``) bootstrap resamples measure stability; ``outer_folds``
+    (default: the search's folds) and ``DEFAULT_INNER_FOLDS`` shape the nested
+    cross-validation.  Every part ends by the request's deadline (``opts.deadline``; else
+    ``opts.time_limit_s`` from this call), or sooner with ``time_limit_s``; what the
+    deadline cut short is stated (``complete``) and warned about.  ``mapper(fn, items)``
+    may spread the resamples (in ``chunks`` parts) and the outer folds over worker
     processes; results do not depend on it.
     """
     t0 = time.perf_counter()
@@ -591,66 +683,51 @@ def assess_trust(
     winner = _find(scored, scale_key(winner_spec))
     if winner is None:
         raise ValueError("winner_spec is not one of the scored candidates")
-    out: dict[str, Any] = {
-        "stability": None,
-        "resamples": None,
-        "runner_up": None,
-        "optimism": None,
-    }
+    st: Stability | None = None
+    op: Optimism | None = None
     warnings: list[str] = []
     name = label(winner.spec)
     if stability and not opts.stopped():
         st = _stability(prep, opts, scored, winner, resamples, end, mapper, chunks)
-        det = st["details"]
-        out.update(
-            stability=st["share"],
-            resamples=det["usable"],
-            runner_up=st["runner_up"],
-            stability_details=det,
-        )
-        if st["share"] is None:
+        if st.share is None:
             warnings.append("Stability could not be measured: no resample could be ranked.")
-        elif st["share"] < UNSTABLE_BELOW:
-            ru = st["runner_up"]
+        elif st.share < UNSTABLE_BELOW:
+            ru = st.runner_up
             warnings.append(
-                f"The choice is not settled: rank 1 ({name}) was first in {det['wins']} of "
-                f"{det['usable']} bootstrap resamples ({st['share']:.0%})"
-                + (f"; {ru['label']} was first in {ru['first_share']:.0%}" if ru else "")
+                f"The choice is not settled: rank 1 ({name}) was first in {st.wins} of "
+                f"{st.usable} bootstrap resamples ({st.share:.0%})"
+                + (f"; {label(ru.spec)} was first in {ru.first_share:.0%}" if ru else "")
                 + ". Weigh both before switching a production model."
             )
-        if not det["rule_reproduces_rank_1"]:
+        if not st.rule_reproduces_rank_1:
             warnings.append(
                 "On all rows the resampled rule does not pick the returned rank 1 "
                 "(the condition ordering differs); read the stability with care."
             )
-        if not det["complete"]:
+        if not st.complete:
             warnings.append(
-                f"Stability used {det['usable']} of {resamples} resamples before the "
+                f"Stability used {st.usable} of {resamples} resamples before the "
                 "time limit; its interval is wider than asked for."
             )
     if optimism and not opts.stopped():
         op = _optimism(prep, opts, winner, service_version, k_out, DEFAULT_INNER_FOLDS, end, mapper)
-        out["optimism"] = op
-        if op.get("gap") is None:
+        if op.gap is None:
             warnings.append(
                 "The optimism of the search could not be measured: "
-                + op.get("problem", "no outer fold could be assessed")
+                + (op.problem or "no outer fold could be assessed")
                 + "."
             )
-        elif op["ratio"] is not None and op["ratio"] > OPTIMISM_WARN_RATIO:
+        elif op.ratio is not None and op.ratio > OPTIMISM_WARN_RATIO:
             warnings.append(
-                f"The search flatters rank 1: its cross-validated {op['metric']} is "
-                f"{op['selected_cv']:.4g}, but repeating the whole search inside each of "
-                f"{op['outer_folds_used']} outer folds gives {op['nested_cv']:.4g} "
-                f"({op['ratio'] - 1:.0%} higher); expect errors nearer the second figure on "
+                f"The search flatters rank 1: its cross-validated {op.metric} is "
+                f"{op.selected_cv:.4g}, but repeating the whole search inside each of "
+                f"{op.outer_folds_used} outer folds gives {op.nested_cv:.4g} "
+                f"({op.ratio - 1:.0%} higher); expect errors nearer the second figure on "
                 "new data."
             )
-        if op.get("gap") is not None and not op["complete"]:
+        if op.gap is not None and not op.complete:
             warnings.append(
                 "The nested cross-validation is incomplete (an inner search stopped "
                 "early or an outer fold failed); see trust.optimism.folds."
             )
-    out["time_limit_s"] = budget
-    out["warnings"] = warnings
-    out["elapsed_s"] = round(time.perf_counter() - t0, 4)
-    return out
+    return Trust(st, op, budget, tuple(warnings), round(time.perf_counter() - t0, 4))

@@ -18,6 +18,7 @@ import json
 import os
 import sys
 import time
+from dataclasses import replace
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
 
@@ -52,7 +53,7 @@ def main() -> int:
     )
     opts = SearchOptions(time_limit_s=600.0)
     result, t_search = _timed(lambda: select(prep, opts, "bench"))
-    winner = result.body["ranking"][0]["specification"]
+    winner = result.winner.spec
 
     def trust(stability, optimism, mapper=map, chunks=1):
         return assess_trust(
@@ -70,28 +71,25 @@ def main() -> int:
 
     st, t_st = _timed(lambda: trust(True, False))
     op, t_op = _timed(lambda: trust(False, True))
-    det = st["stability_details"]
-    o = op["optimism"]
-    print(
-        f"rows                  : {args.rows} ({result.body['search']['candidates_scored']} candidates)"
-    )
+    det = st.stability
+    o = op.optimism
+    print(f"rows                  : {args.rows} ({result.body['search'].scored} candidates)")
     print(f"search (baseline)     : {t_search:7.1f} s")
     print(
         f"stability             : {t_st:7.1f} s  = {t_st / t_search:.2f} x search  "
-        f"({det['usable']} resamples x {det['contenders']} contenders; share "
-        f"{st['stability']:.2f})"
+        f"({det.usable} resamples x {det.contenders} contenders; share "
+        f"{det.share:.2f})"
     )
     print(
         f"optimism              : {t_op:7.1f} s  = {t_op / t_search:.2f} x search  "
-        f"({o['outer_folds']} outer x {o['inner_folds']}-fold inner; ratio "
-        f"{o['ratio']:.4f})"
+        f"({o.outer_folds} outer x {o.inner_folds}-fold inner; ratio "
+        f"{o.ratio:.4f})"
     )
     if args.processes > 1:
         mapper = process_mapper(args.processes)
         both, t_both = _timed(lambda: trust(True, True, mapper, args.processes))
         ref = trust(True, True)
-        for r in (both, ref):
-            r.pop("elapsed_s")
+        both, ref = (replace(r, elapsed_s=0.0) for r in (both, ref))
         same = json.dumps(to_jsonable(both)) == json.dumps(to_jsonable(ref))
         print(
             f"both, {args.processes} processes     : {t_both:7.1f} s  = "

@@ -19,6 +19,7 @@ from service.core.data import prepare, split_groups
 from service.core.errors import ErrorRecord, Response
 from service.selection.deadline import Deadline
 from service.selection.groups import (
+    GroupFailure,
     GroupTask,
     GroupTrust,
     group_parts,
@@ -141,11 +142,15 @@ def test_group_column_missing_from_the_data_points_at_group_by(client):
 
 def test_an_unusable_group_is_kept_as_a_record_naming_the_place():
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
-    hill = group_parts(prep)["hill"]["problem"]  # flat-rate billing: a constant response
+    failure = group_parts(prep)["hill"]  # flat-rate billing: a constant response
+    assert isinstance(failure, GroupFailure)
+    hill = failure.record
     assert isinstance(hill, ErrorRecord) and not hill.over_budget
     assert [p.where for p in hill.problems] == [Response()]
     rendered = record_problem(hill)
     assert rendered["status"] == 422 and rendered["errors"][0]["pointer"] == "/response"
+    # written wherever it sits in a body as the selections endpoint writes a group's problem
+    assert to_jsonable({"groups": {"hill": failure}})["groups"]["hill"] == {"problem": rendered}
 
 
 def test_groups_in_worker_processes_equal_the_in_process_run():
@@ -171,9 +176,10 @@ def test_a_group_worker_can_assess_trust_for_its_group():
     north = split_groups(prep)["north"]
     body = select_group(GroupTask(north, opts, "test", trust=GroupTrust(True, False, 10)))
     trust = body["trust"]
-    assert trust["resamples"] == 10 and trust["optimism"] is None
+    assert trust.stability.usable == 10 and trust.optimism is None
     # source: the simulation's construction: log-log is clearly right in this district
-    assert trust["stability"] >= 0.8
+    assert trust.stability.share >= 0.8
+    assert to_jsonable(trust)["resamples"] == 10
     assert "_scored" not in body and all(not k.startswith("_") for k in body["ranking"][0])
 
 
@@ -188,7 +194,8 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
     late = select_group(
         GroupTask(north, opts, "test", deadline=Deadline(time.monotonic() - 1.0, 60))
     )
-    record = late["problem"]  # a neutral record: the web layer or the command line renders it
+    assert isinstance(late, GroupFailure)
+    record = late.record  # a neutral record: the web layer or the command line renders it
     assert isinstance(record, ErrorRecord) and record.over_budget and "ran out" in record.detail
     assert "time limit of 60 s" in record.detail  # the caller's number, not what was left
     assert record_problem(record)["status"] == 503

@@ -198,8 +198,8 @@ def test_score_and_decide_in_process_follow_the_paired_rule():
     out = decide(spec, cv, None, 2, entry, winner, plan)
     d = winner - raw
     # source: Python's statistics.mean / statistics.stdev of the paired fold differences
-    assert out["difference"]["value"] == pytest.approx(statistics.mean(d.tolist()), rel=1e-12)
+    assert out.difference.value == pytest.approx(statistics.mean(d.tolist()), rel=1e-12)
     se = statistics.stdev(d.tolist()) / math.sqrt(5)
-    assert out["difference"]["std_error"] == pytest.approx(se, rel=1e-12)
+    assert out.difference.std_error == pytest.approx(se, rel=1e-12)
     # source: the simulation's construction (the data are generated on the log scale)
-    assert out["decision"] == "switch" and "lower cross-validated rmse" in out["reason"]
+    assert out.decision == "switch" and "lower cross-validated rmse" in out.reason

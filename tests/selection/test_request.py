@@ -18,6 +18,7 @@ import pytest
 from service.core.errors import ErrorRecord, InputError, Option
 from service.core.model import canonical_bytes
 from service.selection.deadline import Deadline
+from service.selection.groups import GroupFailure
 from service.selection.request import (
     SelectionJob,
     Service,
@@ -131,17 +132,19 @@ def test_trust_is_refused_for_a_grouped_job():
 def test_trust_is_measured_on_one_table():
     job = dataclasses.replace(_job(), trust=TrustOptions(stability=True, resamples=3))
     trust = run_selection(job, SERVICE)["trust"]
-    assert trust["resamples"] == 3 and 0.0 <= trust["stability"] <= 1.0
+    assert trust.stability.requested == trust.stability.usable == 3
+    assert 0.0 <= trust.stability.share <= 1.0
 
 
 def test_a_past_deadline_fails_every_group_unless_each_group_has_its_own():
     expired = Deadline(time.monotonic() - 1.0, 5.0)
     job = _job("depot", deadline=expired, time_limit_s=5.0)
     shared = run_selection(job, SERVICE)["groups"]
-    assert all(isinstance(g["problem"], ErrorRecord) for g in shared.values())
-    assert all(g["problem"].over_budget for g in shared.values())  # the caller renders them
+    assert all(isinstance(g, GroupFailure) for g in shared.values())
+    assert all(isinstance(g.record, ErrorRecord) for g in shared.values())
+    assert all(g.record.over_budget for g in shared.values())  # the caller renders them
     own = run_selection(job, SERVICE, per_group_time_limit=True)["groups"]
-    assert not any("problem" in g for g in own.values())
+    assert not any(isinstance(g, GroupFailure) for g in own.values())
 
 
 def test_options_are_frozen():

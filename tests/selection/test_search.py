@@ -4,13 +4,14 @@ import time
 
 import numpy as np
 import pytest
+from scipy import stats
 from service.core import transforms as tr
 from service.core.cvresult import CVResult
 from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design
 from service.selection.deadline import Deadline
-from service.selection.search import rank, run_selection, select
+from service.selection.search import places, rank, run_selection, select
 from service.selection.search_setup import Scored, SearchOptions
 
 
@@ -55,6 +56,31 @@ def test_one_threshold_for_every_entry():
         "readability": 3,
         "transformed_columns": 2,
     }
+
+
+def test_places_carry_the_paired_standard_error_of_the_fold_differences():
+    best = _scored("log", "log", 10.0, 0.4, folds=[9.5, 10.5, 9.8, 10.2, 10.0])
+    noisy = _scored("identity", "identity", 10.6, 3.0, folds=[5, 16, 7, 14, 11])
+    steady = _scored("sqrt", "log", 10.3, 0.4, folds=[9.8, 10.8, 10.1, 10.5, 10.3])
+    got = places([best, noisy, steady], folds=5)
+    assert [p.scored for p in got] == [s for s, _ in rank([best, noisy, steady], folds=5)[0]]
+    by = {id(p.scored): p for p in got}
+    # source: the standard error of a mean of K paired differences, sd(ddof=1) / sqrt(K)
+    # (scipy.stats.sem)
+    diff = noisy.cv.fold_values - best.cv.fold_values
+    assert by[id(noisy)].paired_std_error == pytest.approx(stats.sem(diff), rel=1e-12)
+    assert by[id(noisy)].difference_from_best == pytest.approx(0.6)
+    assert by[id(best)].paired_std_error == 0.0 and by[id(best)].within_band
+    assert not by[id(noisy)].within_band and by[id(steady)].within_band
+
+
+def test_select_names_its_rank_1_as_scored():
+    result = select(_linear_prep(), SearchOptions(top=2), "test")
+    assert result.winner in result.scored
+    listed = Specification.from_dict(result.body["ranking"][0]["specification"])
+    assert listed.predictors[0].column == result.winner.spec.predictors[0].column
+    assert listed.response_label() == result.winner.spec.response_label()
+    assert result.complete is result.body["search"].complete
 
 
 def test_outside_the_band_is_ordered_by_error():
@@ -170,7 +196,7 @@ def test_linear_data_keep_the_identity_scale():
 
 def test_grouped_selection_shares_one_time_budget():
     from service.core.data import prepare as prep_fn
-    from service.selection.groups import run_grouped
+    from service.selection.groups import GroupFailure, run_grouped
 
     rng = np.random.default_rng(5)
     n = 240
@@ -182,15 +208,16 @@ def test_grouped_selection_shares_one_time_budget():
     )
     shared = Deadline.after(1e-6)  # the request's one deadline, spent by the first group
     out = run_grouped(prep, SearchOptions(deadline=shared), "t")
-    assert out["search"]["groups"] == 8
-    assert out["search"]["complete"] is False
-    assert all(b["problem"].over_budget for b in out["groups"].values())  # rendered as 503
+    assert out["search"].groups == 8
+    assert out["search"].complete is False
+    assert all(b.record.over_budget for b in out["groups"].values())  # rendered as 503
     # without a request deadline (a batch of segments) every group counts from its own start
     gone = Deadline(time.monotonic() - 1.0, 60.0)
     each = run_grouped(prep, SearchOptions(time_limit_s=60.0), "t")
-    assert each["search"]["complete"] and not any("problem" in b for b in each["groups"].values())
+    assert each["search"].complete
+    assert not any(isinstance(b, GroupFailure) for b in each["groups"].values())
     late = run_grouped(prep, SearchOptions(time_limit_s=60.0, deadline=gone), "t")
-    assert all(b["problem"].over_budget for b in late["groups"].values())
+    assert all(b.record.over_budget for b in late["groups"].values())
 
 
 def test_the_result_is_typed_and_the_body_holds_only_contract_fields():

@@ -7,15 +7,18 @@ the tolerances are derived from binomial or sign-test arguments stated beside th
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
 from service.core.data import prepare
 from service.core.errors import InputError, Option
+from service.core.spec import Specification
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from service.selection.trust import (
     OPTIMISM_WARN_RATIO,
+    RUNNER_UP_FIRST,
     assess_trust,
     has_estimated_power,
     label,
@@ -27,7 +30,7 @@ from statsmodels.stats.proportion import proportion_confint
 
 def _select(prep, opts):
     result = select(prep, opts, "test")
-    return result, result.body["ranking"][0]["specification"]
+    return result, result.winner.spec
 
 
 def _clear_log_log(n=150, seed=11):
@@ -71,24 +74,24 @@ def test_wilson_interval_matches_statsmodels(wins, n):
     # source: Wilson (1927) JASA 22:209-212, as computed by
     # statsmodels.stats.proportion.proportion_confint(method="wilson")
     lo, hi = proportion_confint(wins, n, alpha=0.05, method="wilson")
-    assert wilson_interval(wins, n) == pytest.approx([lo, hi], abs=1e-12)
+    assert wilson_interval(wins, n) == pytest.approx((lo, hi), abs=1e-12)
 
 
 def test_stability_near_one_when_one_scale_is_clearly_right():
     prep = _clear_log_log()
     body, winner = _select(prep, CLEAR_OPTS)
-    assert label_of(winner) == "log(y) on log(x)"  # source: the simulation's construction
+    assert label(winner) == "log(y) on log(x)"  # source: the simulation's construction
     out = assess_trust(prep, CLEAR_OPTS, winner, "test", True, False, resamples=40, selection=body)
     # Tolerance: the other scales miss the curvature by many standard errors, so the true
     # share is ~1; at least 36 of 40 (0.9) allows for the bootstrap's sampling noise (a
     # true share of 0.99 gives fewer than 36 wins with probability 5e-5: binomial tail).
-    assert out["resamples"] == 40
-    assert out["stability"] >= 0.9
-    det = out["stability_details"]
-    assert det["rule_reproduces_rank_1"] is True
-    assert det["interval"][0] <= out["stability"] <= det["interval"][1]
-    assert out["runner_up"] is not None and out["runner_up"]["first_share"] <= 0.1
-    assert not any("not settled" in w for w in out["warnings"])
+    st = out.stability
+    assert st.usable == 40 and st.complete
+    assert st.share >= 0.9
+    assert st.rule_reproduces_rank_1 is True
+    assert st.interval[0] <= st.share <= st.interval[1]
+    assert st.runner_up is not None and st.runner_up.first_share <= 0.1
+    assert not any("not settled" in w for w in out.warnings)
 
 
 def test_stability_clearly_below_one_when_two_scales_fit_equally_well():
@@ -99,13 +102,16 @@ def test_stability_clearly_below_one_when_two_scales_fit_equally_well():
     # bootstrap resample is a near coin flip between them: the share is ~1/2.  Tolerance:
     # 0.8 is far above it (Bin(60, 1/2) exceeds 48 wins with probability 4e-7, and the
     # runner-up's 0.2 below 12 wins with the same probability).
-    assert out["stability"] <= 0.8
-    names = {label_of(winner), out["runner_up"]["label"]}
+    st = out.stability
+    assert st.share <= 0.8
+    names = {label(winner), label(st.runner_up.spec)}
     assert names == {"y on sqrt(x)", "y on 1/x"}
-    assert out["runner_up"]["first_share"] >= 0.2
-    assert out["runner_up"]["basis"].startswith("first most often")
-    assert math.isclose(out["stability"] + out["runner_up"]["first_share"], 1.0)
-    assert any("not settled" in w for w in out["warnings"])
+    assert st.runner_up.first_share >= 0.2
+    assert st.runner_up.basis == RUNNER_UP_FIRST
+    assert math.isclose(st.share + st.runner_up.first_share, 1.0)
+    # every usable resample has one first: the shares of the listed firsts add to one
+    assert math.isclose(sum(f.share for f in st.first), 1.0)
+    assert any("not settled" in w for w in out.warnings)
 
 
 def test_optimism_is_zero_when_the_search_space_holds_one_candidate():
@@ -113,26 +119,28 @@ def test_optimism_is_zero_when_the_search_space_holds_one_candidate():
     opts = SearchOptions(response_transforms=["log"], predictor_transforms=["log"], top=1)
     body, winner = _select(prep, opts)
     out = assess_trust(prep, opts, winner, "test", False, True, selection=body)
-    op = out["optimism"]
+    op = out.optimism
     # With one candidate every inner search selects it, so the nested estimate refits the
     # same model on the same outer folds: the gap is zero up to rounding (source: the
     # definition of nested cross-validation, Stone 1974).
-    assert op["outer_folds_used"] == op["outer_folds"] == opts.folds
-    assert op["winner_selected"] == opts.folds
-    assert abs(op["gap"]) <= 1e-12 * op["selected_cv"]
-    assert op["ratio"] == pytest.approx(1.0, abs=1e-12)
+    assert op.outer_folds_used == op.outer_folds == opts.folds
+    assert op.winner_selected == opts.folds
+    assert abs(op.gap) <= 1e-12 * op.selected_cv
+    assert op.ratio == pytest.approx(1.0, abs=1e-12)
     # the outer folds are the search's own partition: rank 1's error there is its CV error
-    assert op["selected_cv"] == pytest.approx(body.body["ranking"][0]["cv"].value, rel=1e-12)
+    assert op.selected_cv == pytest.approx(body.winner.cv.value, rel=1e-12)
+    assert op.selected_cv == pytest.approx(body.body["ranking"][0]["cv"].value, rel=1e-12)
 
 
 def test_optimism_near_zero_when_the_right_scale_always_wins_inside():
     prep = _clear_log_log(seed=4)
     body, winner = _select(prep, CLEAR_OPTS)
-    op = assess_trust(prep, CLEAR_OPTS, winner, "test", False, True, selection=body)["optimism"]
+    op = assess_trust(prep, CLEAR_OPTS, winner, "test", False, True, selection=body).optimism
     # source: the simulation's construction: the right scale is clear on 4/5 of the rows too,
     # so every inner search picks it and nothing is flattered
-    assert op["winner_selected"] == op["outer_folds"]
-    assert abs(op["ratio"] - 1.0) <= 1e-12
+    assert op.winner_selected == op.outer_folds
+    assert all(f.same_as_winner and f.selected == winner for f in op.folds)
+    assert abs(op.ratio - 1.0) <= 1e-12
 
 
 def _noise(seed, n=60):
@@ -157,15 +165,15 @@ def test_optimism_positive_when_many_candidates_chase_noise():
         prep = _noise(seed)
         body, winner = _select(prep, opts)
         out = assess_trust(prep, opts, winner, "test", False, True, selection=body)
-        op = out["optimism"]
-        assert op["complete"] is True
-        gaps.append(op["gap"])
+        op = out.optimism
+        assert op.complete is True
+        gaps.append(op.gap)
         # the warning appears exactly when the nested error is 5% above the winner's
-        flattered = [w for w in out["warnings"] if w.startswith("The search flatters rank 1")]
-        assert len(flattered) == (1 if op["ratio"] > OPTIMISM_WARN_RATIO else 0)
+        flattered = [w for w in out.warnings if w.startswith("The search flatters rank 1")]
+        assert len(flattered) == (1 if op.ratio > OPTIMISM_WARN_RATIO else 0)
         if flattered:
-            assert f"{op['nested_cv']:.4g}" in flattered[0]
-            assert f"{op['selected_cv']:.4g}" in flattered[0]
+            assert f"{op.nested_cv:.4g}" in flattered[0]
+            assert f"{op.selected_cv:.4g}" in flattered[0]
     gaps = np.array(gaps)
     # Tolerance: without optimism a gap is as likely negative as positive.  At least 7 of 8
     # positive has probability 9/256 = 0.035 under that null (one-sided sign test), and the
@@ -179,8 +187,11 @@ def test_trust_without_a_selection_runs_the_search_itself():
     body, winner = _select(prep, TIED_OPTS)
     a = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=10, selection=body)
     b = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=10)
-    a.pop("elapsed_s"), b.pop("elapsed_s")
-    assert a == b
+    assert replace(a, elapsed_s=0.0) == replace(b, elapsed_s=0.0)
+    # rank 1 as listed (values estimated on all rows) names the same candidate
+    listed = Specification.from_dict(body.body["ranking"][0]["specification"])
+    c = assess_trust(prep, TIED_OPTS, listed, "test", True, False, resamples=10, selection=body)
+    assert replace(c, elapsed_s=0.0) == replace(a, elapsed_s=0.0)
 
 
 def test_time_limit_cuts_resamples_and_says_so():
@@ -189,11 +200,12 @@ def test_time_limit_cuts_resamples_and_says_so():
     out = assess_trust(
         prep, TIED_OPTS, winner, "test", True, True, resamples=10, selection=body, time_limit_s=1e-9
     )
-    det = out["stability_details"]
-    assert det["not_run"] == 10 and det["usable"] == 0 and det["complete"] is False
-    assert out["stability"] is None
-    assert out["optimism"]["gap"] is None
-    assert any("could not be measured" in w for w in out["warnings"])
+    st = out.stability
+    assert st.not_run == 10 and st.usable == 0 and st.complete is False
+    assert st.share is None and st.interval is None
+    assert out.optimism.gap is None and out.optimism.problem is not None
+    assert all(f.problem is not None for f in out.optimism.folds)
+    assert any("could not be measured" in w for w in out.warnings)
 
 
 @pytest.mark.parametrize(
@@ -213,6 +225,23 @@ def test_bad_settings_point_at_the_field(kw, ptr):
 
 
 def test_scale_key_ignores_values_estimated_from_the_response():
+    concrete, open_, fixed = (Specification.from_dict(d) for d in _box_cox_dicts())
+    assert scale_key(concrete) == scale_key(open_) != scale_key(fixed)
+
+
+def test_scale_key_reads_transforms_as_written():
+    # a log with a shift of 0 is written as a plain log, so it is the same candidate
+    from service.core import transforms as tr
+    from service.core.spec import PredictorSpec
+
+    def spec(t: tr.Transform) -> Specification:
+        return Specification("y", tr.Transform("identity"), (PredictorSpec("x", t),))
+
+    assert scale_key(spec(tr.Transform("log", shift=0.0))) == scale_key(spec(tr.Transform("log")))
+    assert scale_key(spec(tr.Transform("log", shift=1.0))) != scale_key(spec(tr.Transform("log")))
+
+
+def _box_cox_dicts():
     concrete = {
         "response": {
             "column": "y",
@@ -231,18 +260,12 @@ def test_scale_key_ignores_values_estimated_from_the_response():
         "predictors": [{"column": "x", "transform": {"name": "log"}}],
         "intercept": True,
     }
-    assert scale_key(concrete) == scale_key(open_) != scale_key(fixed)
-
-
-def label_of(spec: dict) -> str:
-    from service.core.spec import Specification
-
-    return label(Specification.from_dict(spec))
+    return concrete, open_, fixed
 
 
 def test_estimated_predictor_powers_match_their_open_candidate():
     from service.core import transforms as tr
-    from service.core.spec import PredictorSpec, Specification
+    from service.core.spec import PredictorSpec
 
     def spec(t: tr.Transform) -> Specification:
         return Specification("y", tr.Transform("log"), (PredictorSpec("x", t),))
@@ -251,7 +274,7 @@ def test_estimated_predictor_powers_match_their_open_candidate():
     at_zero = spec(tr.Transform("log", shift=0.0, estimated=True))  # an estimated power of 0
     fixed = spec(tr.Transform("power", exponent=0.37))
     shifted = spec(tr.Transform("log", shift=0.5, estimated=True))  # shift from the column
-    keys = [scale_key(s.to_dict()) for s in (fitted, at_zero, fixed, shifted)]
+    keys = [scale_key(s) for s in (fitted, at_zero, fixed, shifted)]
     assert keys[0] == keys[1] and len(set(keys)) == 3
     assert [has_estimated_power(s) for s in (fitted, at_zero, fixed, shifted)] == [
         True,

@@ -31,6 +31,17 @@ def renders(result: Any) -> bool:
 
 
 # the areas register their renderers on import
-from . import conditions, cv, data, drift, plots, predictions, search  # noqa: E402,F401
+from . import (  # noqa: E402,F401
+    conditions,
+    cv,
+    data,
+    drift,
+    groups,
+    incumbent,
+    plots,
+    predictions,
+    search,
+    trust,
+)
 
 __all__ = ["contract", "renders"]
