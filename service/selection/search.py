@@ -15,7 +15,7 @@ import math
 import re
 import time
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -38,7 +38,7 @@ from ..core.errors import (
     Predictor,
     ResponseChoice,
 )
-from ..core.fastcv import Scorer
+from ..core.fastcv import Found, Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
@@ -81,6 +81,17 @@ def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
     return sorted(cands, key=lambda s: s.simplicity())
 
 
+@dataclass(frozen=True)
+class _Pre:
+    """What :meth:`_Evaluator._found` prepared for one specification: the columns whose
+    powers every fold estimates and their all-rows fit, and what the batch found for its
+    folds (None: the scorer finds it alone)."""
+
+    dynamic: Dynamic | None
+    fit: bt.PowerFit | None
+    found: Found | None
+
+
 class _Evaluator:
     """Exact original-scale scoring of specifications over one column bank."""
 
@@ -92,9 +103,9 @@ class _Evaluator:
         self.reasons: dict[str, int] = {}  # every failure's reason -> candidates
         self.powers: dict[SpecKey, dict[str, Any]] = {}  # concrete key -> {column: summary}
 
-    def __call__(self, spec: Specification) -> Scored | None:
+    def __call__(self, spec: Specification, pre: _Pre | None = None) -> Scored | None:
         try:
-            s = self._score(spec)
+            s = self._score(spec, pre)
         except CandidateFailure as exc:
             self._failed(spec, exc)
             return None
@@ -105,21 +116,23 @@ class _Evaluator:
         """Score ``specs`` as one call each would, in order (the Scored of each, or None where
         it failed): specifications on a response scale fixed across folds, with no power
         estimated per fold, are scored together (:func:`batchcv.score_many`, the same
-        numbers); the others one at a time."""
+        numbers); the others one at a time, with the powers or lambdas of their training
+        folds found for all of them together first (:meth:`_found`)."""
         designs: dict[int, tuple[list[int], list[str] | None]] = {}
         groups: dict[tr.Transform, list[int]] = {}
+        rest: dict[int, tuple[list[int], list[str] | None, list[int]]] = {}
         for i, spec in enumerate(specs):
             t = spec.response_transform
-            if not batchable(self.scorer, t):
-                continue
             try:
                 cols, names, dyn = self.space.design_of(spec)
             except CandidateFailure:
                 continue  # scored alone below, which records the reason
-            if dyn:
+            if dyn or not batchable(self.scorer, t):
+                rest[i] = (cols, names, dyn)
                 continue
             designs[i] = (cols, names)
             groups.setdefault(t, []).append(i)
+        pre = self._found(specs, rest)
         done: dict[int, CVResult | CandidateFailure] = {}
         for t, members in groups.items():
             got = score_many(
@@ -129,7 +142,7 @@ class _Evaluator:
         out: list[Scored | None] = []
         for i, spec in enumerate(specs):
             if i not in done:
-                out.append(self(spec))
+                out.append(self(spec, pre.get(i)))
                 continue
             res = done[i]
             if isinstance(res, CandidateFailure):
@@ -185,12 +198,50 @@ class _Evaluator:
         fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
         return Dynamic(dyn, x, fit.powers, self.intercept, tuple(est_cols)), fit
 
-    def _score(self, spec: Specification) -> Scored:
+    def _found(
+        self,
+        specs: list[Specification],
+        rest: dict[int, tuple[list[int], list[str] | None, list[int]]],
+    ) -> dict[int, _Pre]:
+        """For the specifications scored one at a time (``rest``: index -> design): each
+        one's all-rows power estimate (the start of its folds') and the powers or lambdas
+        of its training folds, found for all of them together (:meth:`Scorer.powers_many`,
+        :meth:`Scorer.lambdas_many`).  A specification whose all-rows estimate fails is
+        left out: scoring it alone records the failure in its place."""
+        pre: dict[int, _Pre] = {}
+        power_items: list[tuple[int, tr.Transform, list[int], Dynamic]] = []
+        lambda_items: list[tuple[int, tr.Transform, list[int]]] = []
+        for i, (cols, _names, dyn) in rest.items():
+            spec = specs[i]
+            t = spec.response_transform
+            if dyn:
+                try:
+                    dynamic, fit = self._dynamic(spec, cols, dyn)
+                except CandidateFailure:
+                    continue
+                assert dynamic is not None  # dyn is not empty
+                pre[i] = _Pre(dynamic, fit, None)
+                power_items.append((i, t, cols, dynamic))
+            elif t.needs_lambda:
+                lambda_items.append((i, t, cols))
+        got = self.scorer.powers_many([(t, c, d) for _i, t, c, d in power_items])
+        for (i, *_r), found in zip(power_items, got, strict=True):
+            pre[i] = replace(pre[i], found=found)
+        got = self.scorer.lambdas_many([(t, c) for _i, t, c in lambda_items])
+        for (i, *_r), found in zip(lambda_items, got, strict=True):
+            pre[i] = _Pre(None, None, found)
+        return pre
+
+    def _score(self, spec: Specification, pre: _Pre | None = None) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
         t = spec.response_transform
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
-        dynamic, fit = self._dynamic(spec, cols, dyn)
-        res = self.scorer.score(t, cols, names, dynamic)
+        dynamic: Dynamic | None
+        if pre is not None and pre.dynamic is not None:
+            dynamic, fit = pre.dynamic, pre.fit
+        else:
+            dynamic, fit = self._dynamic(spec, cols, dyn)
+        res = self.scorer.score(t, cols, names, dynamic, found=None if pre is None else pre.found)
         if fit is None:
             return Scored(spec, res)
         a = iter(fit.powers)
