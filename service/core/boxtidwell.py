@@ -666,6 +666,72 @@ def _settled(folds: _Folds, steps: _Steps, f: int, name: int) -> PowerFit:
     return PowerFit(af, None, True, int(its[f]), method, rf)
 
 
+def estimate_many_powers(
+    problems: list[tuple[np.ndarray, np.ndarray, np.ndarray]], boxcox_form: bool = True
+) -> list[PowerFit | CandidateFailure]:
+    """:func:`estimate_powers` (started at 1, with standard errors) for many candidates
+    ``(z, X_f, x)`` on all their rows at once: per candidate its fit, or the
+    :class:`CandidateFailure` that call would raise.
+
+    Candidates with the same numbers of fixed columns and powers take their damped
+    Gauss-Newton steps together (:class:`_Folds`, one problem per candidate with all rows
+    as its training rows; the fit on [X_f, W] read from the leading block of the factor of
+    [X_f, W, D], as the per-fold estimates do), each with the stopping rules of
+    :func:`estimate_powers`; one that does not converge takes its whole-range profile
+    search, and the standard errors are :func:`estimate_powers`' own.
+    """
+    out: list[PowerFit | CandidateFailure | None] = [None] * len(problems)
+    groups: dict[tuple[int, int, int], list[int]] = {}
+    inputs: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
+    for i, (z, Xf, x) in enumerate(problems):
+        z = np.asarray(z, dtype=float)
+        Xf = np.asarray(Xf, dtype=float)
+        x = np.asarray(x, dtype=float)
+        if x.ndim == 1:
+            x = x[:, None]
+        n, k = z.size, x.shape[1]
+        if np.any(x <= 0):
+            out[i] = CandidateFailure("an estimated power needs a predictor with values > 0")
+            continue
+        if n <= Xf.shape[1] + 2 * k + 1:
+            out[i] = CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
+            continue
+        inputs[i] = (z, Xf, x, np.log(x))
+        groups.setdefault((n, Xf.shape[1], k), []).append(i)
+    for (n, pf, k), members in groups.items():
+        every = np.arange(n)
+        for s in range(0, len(members), max(1, STACK_CELLS // n)):
+            part = members[s : s + max(1, STACK_CELLS // n)]
+            folds = _Folds(
+                np.stack([inputs[i][0] for i in part]),
+                np.stack([inputs[i][1] for i in part]),
+                np.stack([inputs[i][3] for i in part]),
+                [every] * len(part),
+                boxcox_form,
+                None,
+                None,
+                np.arange(len(part)),
+            )
+            a, rss, conv, its, _left = _damped_steps(
+                folds.trial, folds.qr_full, len(part), pf, k, np.ones(k)
+            )
+            for f, i in enumerate(part):
+                z, Xf, x, logx = inputs[i]
+                prob = _Problem(z, Xf, logx, boxcox_form)
+                try:
+                    af, rf, method = _fallback(
+                        prob, a[f].copy(), float(rss[f]), bool(conv[f]), int(its[f]), False
+                    )
+                except CandidateFailure as exc:
+                    out[i] = exc
+                    continue
+                se = _std_errors(z, Xf, logx, af, boxcox_form, n, pf + 2 * k)
+                out[i] = PowerFit(
+                    af, se, bool(conv[f]) or method == "profile", int(its[f]), method, rf
+                )
+    return [r for r in out if r is not None]
+
+
 @dataclass(frozen=True)
 class FoldPowerProblem:
     """One candidate's per-fold power estimates, as :func:`estimate_fold_powers` takes them:

@@ -187,6 +187,13 @@ class _Evaluator:
         estimate (also returned), or (None, None) when ``spec`` estimates no power."""
         if not dyn:
             return None, None
+        z, x = self._power_inputs(spec)
+        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
+        return self._started(spec, dyn, x, fit), fit
+
+    def _power_inputs(self, spec: Specification) -> tuple[np.ndarray, np.ndarray]:
+        """(z, x): the response on the specification's scale fitted on all rows, and the
+        predictors whose powers it estimates (n, k)."""
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
         t0 = fit_transform(
             spec.response_transform, self.prep.y, shift_needed=self.scorer.shift_needed
@@ -194,9 +201,13 @@ class _Evaluator:
         z = t0.forward(self.prep.y)
         if not np.all(np.isfinite(z)):
             raise CandidateFailure(f"{t0.label('y')} overflows on the data")
-        x = np.column_stack([self.prep.numeric[c] for c in est_cols])
-        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
-        return Dynamic(dyn, x, fit.powers, self.intercept, tuple(est_cols)), fit
+        return z, np.column_stack([self.prep.numeric[c] for c in est_cols])
+
+    def _started(
+        self, spec: Specification, dyn: list[int], x: np.ndarray, fit: bt.PowerFit
+    ) -> Dynamic:
+        est_cols = tuple(p.column for p in spec.predictors if bt.is_open(p.transform))
+        return Dynamic(dyn, x, fit.powers, self.intercept, est_cols)
 
     def _found(
         self,
@@ -204,26 +215,38 @@ class _Evaluator:
         rest: dict[int, tuple[list[int], list[str] | None, list[int]]],
     ) -> dict[int, _Pre]:
         """For the specifications scored one at a time (``rest``: index -> design): each
-        one's all-rows power estimate (the start of its folds') and the powers or lambdas
-        of its training folds, found for all of them together (:meth:`Scorer.powers_many`,
+        one's all-rows power estimate (the start of its folds', all of them at once:
+        :func:`boxtidwell.estimate_many_powers`) and the powers or lambdas of its training
+        folds, found for all of them together (:meth:`Scorer.powers_many`,
         :meth:`Scorer.lambdas_many`).  A specification whose all-rows estimate fails is
         left out: scoring it alone records the failure in its place."""
         pre: dict[int, _Pre] = {}
         power_items: list[tuple[int, tr.Transform, list[int], Dynamic]] = []
         lambda_items: list[tuple[int, tr.Transform, list[int]]] = []
+        starts: list[tuple[int, np.ndarray, np.ndarray]] = []
         for i, (cols, _names, dyn) in rest.items():
             spec = specs[i]
             t = spec.response_transform
             if dyn:
                 try:
-                    dynamic, fit = self._dynamic(spec, cols, dyn)
+                    z, x = self._power_inputs(spec)
                 except CandidateFailure:
                     continue
-                assert dynamic is not None  # dyn is not empty
-                pre[i] = _Pre(dynamic, fit, None)
-                power_items.append((i, t, cols, dynamic))
+                starts.append((i, z, x))
             elif t.needs_lambda:
                 lambda_items.append((i, t, cols))
+        # every all-rows start in one batch (boxtidwell.estimate_many_powers)
+        fits = bt.estimate_many_powers(
+            [(z, self.space.bank.columns(rest[i][0]), x) for i, z, x in starts],
+            boxcox_form=self.intercept,
+        )
+        for (i, _z, x), fit in zip(starts, fits, strict=True):
+            if isinstance(fit, CandidateFailure):
+                continue
+            cols, _names, dyn = rest[i]
+            dynamic = self._started(specs[i], dyn, x, fit)
+            pre[i] = _Pre(dynamic, fit, None)
+            power_items.append((i, specs[i].response_transform, cols, dynamic))
         got = self.scorer.powers_many([(t, c, d) for _i, t, c, d in power_items])
         for (i, *_r), found in zip(power_items, got, strict=True):
             pre[i] = replace(pre[i], found=found)
