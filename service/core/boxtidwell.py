@@ -236,6 +236,24 @@ class _Problem:
         return coef if np.all(np.isfinite(coef)) else None
 
 
+def _inputs(
+    z: np.ndarray, Xf: np.ndarray, x: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(z, X_f, x (n, k), log x) as float arrays after the checks of an all-rows estimate:
+    x > 0 and more rows than the parameters + 1 (else :class:`CandidateFailure`)."""
+    z = np.asarray(z, dtype=float)
+    Xf = np.asarray(Xf, dtype=float)
+    x = np.asarray(x, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    if np.any(x <= 0):
+        raise CandidateFailure("an estimated power needs a predictor with values > 0")
+    n, k = z.size, x.shape[1]
+    if n <= Xf.shape[1] + 2 * k + 1:
+        raise CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
+    return z, Xf, x, np.log(x)
+
+
 def estimate_powers(
     z: np.ndarray,
     Xf: np.ndarray,
@@ -252,19 +270,11 @@ def estimate_powers(
     :class:`CandidateFailure` when neither the iteration nor the profile search
     gives finite powers.
     """
-    z = np.asarray(z, dtype=float)
-    x = np.asarray(x, dtype=float)
-    if x.ndim == 1:
-        x = x[:, None]
-    if np.any(x <= 0):
-        raise CandidateFailure("an estimated power needs a predictor with values > 0")
-    logx = np.log(x)
+    z, Xf, x, logx = _inputs(z, Xf, x)
     k = logx.shape[1]
     n = z.size
     p = Xf.shape[1] + 2 * k
-    if n <= p + 1:
-        raise CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
-    prob = _Problem(z, np.asarray(Xf, dtype=float), logx, boxcox_form)
+    prob = _Problem(z, Xf, logx, boxcox_form)
     a = np.ones(k) if start is None else np.clip(np.asarray(start, float).copy(), *POWER_BOUNDS)
     rss, coef, cache = prob.trial(a)
     converged = False
@@ -683,21 +693,14 @@ def estimate_many_powers(
     out: list[PowerFit | CandidateFailure | None] = [None] * len(problems)
     groups: dict[tuple[int, int, int], list[int]] = {}
     inputs: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
-    for i, (z, Xf, x) in enumerate(problems):
-        z = np.asarray(z, dtype=float)
-        Xf = np.asarray(Xf, dtype=float)
-        x = np.asarray(x, dtype=float)
-        if x.ndim == 1:
-            x = x[:, None]
-        n, k = z.size, x.shape[1]
-        if np.any(x <= 0):
-            out[i] = CandidateFailure("an estimated power needs a predictor with values > 0")
+    for i, problem in enumerate(problems):
+        try:
+            inputs[i] = _inputs(*problem)
+        except CandidateFailure as exc:
+            out[i] = exc
             continue
-        if n <= Xf.shape[1] + 2 * k + 1:
-            out[i] = CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
-            continue
-        inputs[i] = (z, Xf, x, np.log(x))
-        groups.setdefault((n, Xf.shape[1], k), []).append(i)
+        z, Xf, x, _logx = inputs[i]
+        groups.setdefault((z.size, Xf.shape[1], x.shape[1]), []).append(i)
     for (n, pf, k), members in groups.items():
         every = np.arange(n)
         for s in range(0, len(members), max(1, STACK_CELLS // n)):
@@ -762,7 +765,9 @@ def estimate_many_fold_powers(
     takes them.
     """
     out: list[list[PowerFit] | CandidateFailure | None] = [None] * len(problems)
-    ready: dict[tuple[int, int], list[tuple[int, np.ndarray, np.ndarray, np.ndarray, list[int]]]]
+    ready: dict[
+        tuple[int, int, int], list[tuple[int, np.ndarray, np.ndarray, np.ndarray, list[int]]]
+    ]
     ready = {}
     for i, pr in enumerate(problems):
         try:
@@ -770,20 +775,21 @@ def estimate_many_fold_powers(
         except CandidateFailure as exc:
             out[i] = exc
             continue
-        ready.setdefault((Xf.shape[1], logx.shape[1]), []).append((i, z, Xf, logx, names))
+        size = (Xf.shape[1], logx.shape[1], Xf.shape[0])
+        ready.setdefault(size, []).append((i, z, Xf, logx, names))
     chunks: list[tuple[int, int, list[tuple[int, np.ndarray, np.ndarray, np.ndarray, list[int]]]]]
     chunks = []
-    for (pf, k), group in ready.items():
-        cells = 0
+    for (pf, k, n), group in ready.items():
+        cells = STACK_CELLS + 1  # a new stack for every size
         for m in group:  # at most STACK_CELLS fold rows in one stack (and one candidate at least)
-            add = len(problems[m[0]].train) * m[1].shape[-1]
-            if not chunks or chunks[-1][:2] != (pf, k) or cells + add > STACK_CELLS:
+            add = len(problems[m[0]].train) * n
+            if cells + add > STACK_CELLS:
                 chunks.append((pf, k, []))
                 cells = 0
             chunks[-1][2].append(m)
             cells += add
     for pf, k, members in chunks:
-        n = members[0][1].shape[-1]
+        n = members[0][2].shape[0]
         F = [len(problems[i].train) for i, *_ in members]
         owner = np.repeat(np.arange(len(members)), F)
         Z = np.concatenate(
