@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
-from typing import Any
 
 P_FLOOR = 1e-4
 #: how rows are counted, stated once wherever rows are named
@@ -106,7 +105,8 @@ def rows_named(indexes: Iterable[int], listed: int | None = None) -> str:
     return f"{'row' if len(numbers) == 1 else 'rows'} {text} (counting from 1)"
 
 
-def failure_text(group: dict[str, Any]) -> str:
-    """``12 candidates: reason`` or ``30 candidates, for example: reason``."""
-    sep = ":" if group["wordings"] == 1 else ", for example:"
-    return f"{count_of(group['candidates'], 'candidate')}{sep} {group['reason']}"
+def failure_text(reason: str, candidates: int, wordings: int) -> str:
+    """``12 candidates: reason`` or ``30 candidates, for example: reason`` (one reason in
+    ``wordings`` that differ only in their numbers)."""
+    sep = ":" if wordings == 1 else ", for example:"
+    return f"{count_of(candidates, 'candidate')}{sep} {reason}"

@@ -220,6 +220,12 @@ def build_design(
     return Design(X, term_names(spec, used), terms, used)
 
 
+def needs_explicit_lambda(t: tr.Transform) -> str:
+    """Why a predictor's transform with its parameter left to estimate cannot be used where
+    only given parameters are (a model sent by the caller, a diagnosis)."""
+    return f"{t.name} of a predictor needs an explicit lambda"
+
+
 def resolve_predictor_transforms(spec: Specification, prep: Prepared) -> Specification:
     """Fix data-chosen predictor parameters (the shift of a log of a column with zeros).
 
@@ -232,6 +238,6 @@ def resolve_predictor_transforms(spec: Specification, prep: Prepared) -> Specifi
         if p.column in prep.numeric and not t.is_fitted and t.name == "log":
             t = fit_transform(t, prep.numeric[p.column])
         elif p.column in prep.numeric and not t.is_fitted:
-            raise CandidateFailure(f"{t.name} of a predictor needs an explicit lambda")
+            raise CandidateFailure(needs_explicit_lambda(t))
         new.append(PredictorSpec(p.column, t))
     return Specification(spec.response, spec.response_transform, tuple(new), spec.intercept)

@@ -368,7 +368,10 @@ def _summary(body: dict, context: dict) -> str:
         out.append(
             f"<h3>Candidates that could not be scored</h3><p>"
             f"{count_of(failed, 'candidate')} got no score, by reason:</p>"
-            + _list(failure_text(g) for g in groups[:MAX_FAILURE_REASONS])
+            + _list(
+                failure_text(g["reason"], g["candidates"], g["wordings"])
+                for g in groups[:MAX_FAILURE_REASONS]
+            )
         )
     out.append("</section>")
     return "".join(out)

@@ -11,7 +11,12 @@ from ..core.crossval import cross_validate
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, ModelFailure, SpecField
 from ..core.folds import make_plan
-from ..core.spec import Specification, build_design, resolve_predictor_transforms
+from ..core.spec import (
+    Specification,
+    build_design,
+    needs_explicit_lambda,
+    resolve_predictor_transforms,
+)
 from .candidates import check_explicit
 from .entries import entry_for
 from .plots import PLOT_MAX_POINTS, fit_plots
@@ -54,7 +59,7 @@ def diagnose_specification(
             if p.transform.needs_lambda:
                 raise InputError.at(
                     SpecField.of_predictor(i, "transform", "lambda"),
-                    f"{p.transform.name} of a predictor needs an explicit lambda",
+                    needs_explicit_lambda(p.transform),
                 )
             check_explicit(
                 prep,

@@ -53,11 +53,24 @@ from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 MAX_FAILURES_LISTED = 10
 
 
-def failure_groups(reasons: dict[str, int]) -> list[dict[str, Any]]:
+@dataclass(frozen=True)
+class FailureGroup:
+    """Failed candidates whose reasons differ only in their numbers: the most frequent
+    ``reason`` wording, how many ``candidates`` failed so and in how many ``wordings``."""
+
+    reason: str
+    candidates: int
+    wordings: int
+
+    def text(self) -> str:
+        return failure_text(self.reason, self.candidates, self.wordings)
+
+
+def failure_groups(reasons: dict[str, int]) -> list[FailureGroup]:
     """Failed candidates grouped by reason, most frequent first (at most MAX_FAILURES_LISTED).
 
     Reasons that differ only in their numbers (fold, row count) are one group, shown by its
-    most frequent wording: ``{"reason": ..., "candidates": n, "wordings": k}``.
+    most frequent wording.
     """
     groups: dict[str, list[Any]] = {}  # key -> [count, example, example's count, wordings]
     for reason, n in reasons.items():
@@ -68,10 +81,7 @@ def failure_groups(reasons: dict[str, int]) -> list[dict[str, Any]]:
         if n > g[2] or (n == g[2] and reason < g[1]):
             g[1], g[2] = reason, n
     ordered = sorted(groups.values(), key=lambda g: (-g[0], g[1]))
-    return [
-        {"reason": g[1], "candidates": g[0], "wordings": g[3]}
-        for g in ordered[:MAX_FAILURES_LISTED]
-    ]
+    return [FailureGroup(g[1], g[0], g[3]) for g in ordered[:MAX_FAILURES_LISTED]]
 
 
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
@@ -398,7 +408,7 @@ def select(
         raise ModelFailure("no candidate could be fitted: " + "; ".join(reasons[:3]))
     if n_fail:
         grouped = failure_groups(ev.reasons)
-        shown = "; ".join(failure_text(g) for g in grouped[:3])
+        shown = "; ".join(g.text() for g in grouped[:3])
         more = f"; {count_of(len(grouped) - 3, 'other reason')}" if len(grouped) > 3 else ""
         warnings.append(
             f"{count_of(n_fail, 'candidate')} could not be scored and "
@@ -469,7 +479,7 @@ def select(
         "candidates_screened": int(counts["screened"]),
         "complete": bool(complete and len(scored) + n_fail == total),
         "elapsed_s": round(elapsed, 4),
-        "strategy": _strategy_block(strategy, total, budget),
+        "strategy": StrategyReport(strategy, budget.spent),
         "response_transforms": [t.to_dict() for t in resp],
         "predictor_transforms": {
             c: [t.to_dict() for t in p] for c, p in zip(prep.predictors, preds, strict=True)
@@ -927,23 +937,32 @@ def _box_cox_context(
     }
 
 
-def _strategy_block(strategy: str, total: int, budget: Budget) -> dict[str, Any]:
-    if strategy == "exhaustive":
-        text = "every candidate scored, simplest first, until a limit"
-    else:
-        text = (
-            "screen predictor scales per response scale by coordinate descent on the "
-            "model-scale cross-validated error (from Gram matrices), score the baselines "
-            "(all untransformed, all logged, every response scale) and the best screened "
-            "combinations on the original scale, then coordinate descent on the "
-            "original-scale error"
-        )
-    return {
-        "name": strategy,
-        "exhaustive_limit": EXHAUSTIVE_LIMIT,
-        "description": text,
-        "stopped_by": budget.spent,
-    }
+#: how each search strategy goes (stated in ``search.strategy``)
+STRATEGY_TEXT = {
+    "exhaustive": "every candidate scored, simplest first, until a limit",
+    "screened": (
+        "screen predictor scales per response scale by coordinate descent on the "
+        "model-scale cross-validated error (from Gram matrices), score the baselines "
+        "(all untransformed, all logged, every response scale) and the best screened "
+        "combinations on the original scale, then coordinate descent on the "
+        "original-scale error"
+    ),
+}
+
+
+@dataclass(frozen=True)
+class StrategyReport:
+    """The strategy a search used, the grid size up to which it scores every candidate and
+    the limit that stopped it, if one did (``stopped_by``: ``time_limit_s``,
+    ``max_candidates`` or None)."""
+
+    name: str
+    stopped_by: str | None
+    exhaustive_limit: int = EXHAUSTIVE_LIMIT
+
+    @property
+    def description(self) -> str:
+        return STRATEGY_TEXT[self.name]
 
 
 def _powers_block(info: dict[tuple[tr.Transform, str], dict[str, Any]]) -> dict[str, Any]:

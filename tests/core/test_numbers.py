@@ -86,7 +86,10 @@ def test_counts_and_failure_groups():
     assert count_of(1, "candidate") == "1 candidate"
     assert count_of(0, "candidate") == "0 candidates"
     assert count_of(2, "family", "families") == "2 families"
-    one = {"candidates": 3, "wordings": 1, "reason": "log needs positive values"}
-    many = {"candidates": 30, "wordings": 4, "reason": "the design is rank-deficient"}
-    assert failure_text(one) == "3 candidates: log needs positive values"
-    assert failure_text(many) == "30 candidates, for example: the design is rank-deficient"
+    assert (
+        failure_text("log needs positive values", 3, 1) == "3 candidates: log needs positive values"
+    )
+    assert (
+        failure_text("the design is rank-deficient", 30, 4)
+        == "30 candidates, for example: the design is rank-deficient"
+    )

@@ -13,7 +13,8 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from service.core.data import prepare
-from service.core.errors import Cell, InputError, ModelFailure, SpecField
+from service.core.errors import CandidateFailure, Cell, InputError, ModelFailure, SpecField
+from service.core.spec import Specification, resolve_predictor_transforms
 from service.selection.diagnose import diagnose_specification
 from service.selection.search_setup import SearchOptions
 
@@ -72,6 +73,17 @@ def test_requests_the_columns_cannot_take_point_at_the_field(engel, spec, ptr):
     with pytest.raises(InputError) as exc:
         diagnose_specification(prep, spec, SearchOptions(), "t")
     assert exc.value.problems[-1].where == ptr
+
+
+def test_an_unestimated_predictor_lambda_is_refused_in_the_search_s_words(engel):
+    prep, _ = engel
+    spec = _spec(pt="box_cox")
+    with pytest.raises(InputError) as exc:
+        diagnose_specification(prep, spec, SearchOptions(), "t")
+    with pytest.raises(CandidateFailure) as failure:
+        resolve_predictor_transforms(Specification.from_dict(spec), prep)
+    assert exc.value.problems[-1].detail == failure.value.reason
+    assert failure.value.reason == "box_cox of a predictor needs an explicit lambda"
 
 
 def test_a_transform_outside_the_domain_points_at_the_cell_then_the_transform():

@@ -103,12 +103,12 @@ def test_failed_candidates_do_not_stop_the_search():
     # failures grouped by reason with counts that add up to the failed candidates
     groups = out["search"]["failure_reasons"]
     if out["search"]["candidates_failed"]:
-        assert sum(g["candidates"] for g in groups) == out["search"]["candidates_failed"]
-        assert [g["candidates"] for g in groups] == sorted(
-            (g["candidates"] for g in groups), reverse=True
+        assert sum(g.candidates for g in groups) == out["search"]["candidates_failed"]
+        assert [g.candidates for g in groups] == sorted(
+            (g.candidates for g in groups), reverse=True
         )
         (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
-        assert "(s)" not in warning and groups[0]["reason"] in warning
+        assert "(s)" not in warning and groups[0].reason in warning
 
 
 def test_failures_are_grouped_by_reason_with_counts():
@@ -130,13 +130,13 @@ def test_failures_are_grouped_by_reason_with_counts():
     failed = out["search"]["candidates_failed"]
     groups = out["search"]["failure_reasons"]
     assert failed > 0 and groups
-    counts = [g["candidates"] for g in groups]
+    counts = [g.candidates for g in groups]
     assert counts == sorted(counts, reverse=True) and sum(counts) <= failed
     # reasons that differ only in fold and row counts are one group
-    assert sum("back-transform of 1/y" in g["reason"] for g in groups) == 1
+    assert sum("back-transform of 1/y" in g.reason for g in groups) == 1
     (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
     assert warning.startswith(f"{failed} candidates could not be scored")
-    assert f"{counts[0]} candidate" in warning and groups[0]["reason"] in warning
+    assert f"{counts[0]} candidate" in warning and groups[0].reason in warning
     assert "(s)" not in warning
 
 

@@ -59,7 +59,7 @@ def test_screened_search_finds_the_exhaustive_optimum(seed):
         full["search"]["best_cv"]["value"], rel=1e-12
     )
     assert smart["search"]["candidates_scored"] < full["search"]["candidates_scored"]
-    assert smart["search"]["strategy"]["name"] == "screened"
+    assert smart["search"]["strategy"].name == "screened"
 
 
 def test_baselines_are_always_scored():
@@ -79,7 +79,7 @@ def test_auto_switches_to_screened_past_the_limit_and_honours_max_candidates():
     out = run_selection(prep, SearchOptions(max_candidates=40, **SPACE), "t")
     s = out["search"]
     assert s["candidates_considered"] == 3 * 4**6 > EXHAUSTIVE_LIMIT
-    assert s["strategy"]["name"] == "screened"
+    assert s["strategy"].name == "screened"
     assert s["candidates_scored"] + s["candidates_failed"] <= 40
     assert s["candidates_screened"] > 0
     assert s["complete"] is False
@@ -90,7 +90,7 @@ def test_many_predictors_within_a_time_limit():
     prep = _problem(3, n=240, p=12)
     out = run_selection(prep, SearchOptions(time_limit_s=20.0, **SPACE), "t")
     s = out["search"]
-    assert s["strategy"]["name"] == "screened"
+    assert s["strategy"].name == "screened"
     assert s["elapsed_s"] < 60.0
     assert out["ranking"][0]["cv"]["value"] > 0
 

@@ -24,3 +24,18 @@ def band(b: s.BandReport) -> dict[str, Any]:
             "source": s.CONDITIONS_SOURCE,
         },
     }
+
+
+@contract.register
+def strategy(r: s.StrategyReport) -> dict[str, Any]:
+    return {
+        "name": r.name,
+        "exhaustive_limit": r.exhaustive_limit,
+        "description": r.description,
+        "stopped_by": r.stopped_by,
+    }
+
+
+@contract.register
+def failure_group(g: s.FailureGroup) -> dict[str, Any]:
+    return {"reason": g.reason, "candidates": g.candidates, "wordings": g.wordings}

@@ -6,8 +6,10 @@ from service.api.encode import to_jsonable
 from service.api.render import contract
 from service.core.conditions import CONDITION_NAMES
 from service.core.data import prepare
+from service.core.numbers import failure_text
 from service.selection.search import BAND_RULE, Band, BandReport, select
 from service.selection.search_setup import SearchOptions
+from service.selection.strategy import EXHAUSTIVE_LIMIT
 
 
 def test_band_block_states_the_one_standard_error_threshold():
@@ -32,3 +34,33 @@ def test_conditions_ordering_follows_the_condition_list_order():
     assert out["conditions"]["conditions_ordering"] == [first, last]
     assert out["conditions"]["members_compared"] == 3
     assert out["conditions"]["alpha"] == 0.01
+
+
+def test_failure_reasons_and_strategy_render_as_the_contract_states():
+    # the failures of a reciprocal response whose held-out back-transforms are undefined
+    rng = np.random.default_rng(1)
+    x, z = rng.uniform(0, 5, 80), rng.uniform(0, 5, 80)
+    y = np.exp(1.5 * x + rng.normal(0, 2.0, 80))
+    prep = prepare(
+        {"columns": {"y": y.tolist(), "x": x.tolist(), "z": z.tolist()}}, "y", ["x", "z"]
+    )
+    opts = SearchOptions(
+        response_transforms=["identity", "reciprocal", "sqrt"],
+        predictor_transforms=["identity", "log", "square", "reciprocal"],
+    )
+    body = to_jsonable(select(prep, opts, "t").body)
+    search = body["search"]
+    groups = search["failure_reasons"]
+    assert groups and all(set(g) == {"reason", "candidates", "wordings"} for g in groups)
+    assert sum(g["candidates"] for g in groups) <= search["candidates_failed"]
+    assert search["strategy"] == {
+        "name": "exhaustive",
+        "exhaustive_limit": EXHAUSTIVE_LIMIT,
+        "description": "every candidate scored, simplest first, until a limit",
+        "stopped_by": None,
+    }
+    # the warning counts the first group in the words the rendered group gives
+    first = groups[0]
+    assert failure_text(first["reason"], first["candidates"], first["wordings"]) in " ".join(
+        body["warnings"]
+    )
