@@ -34,6 +34,7 @@ from starlette.middleware.cors import CORSMiddleware
 from starlette.responses import Response
 
 from . import pool
+from .encode import to_jsonable
 from .errors import PROBLEM, internal_error_bytes, problem_bytes
 from .logs import REQUEST_ID
 from .metrics import CANDIDATES, ERRORS, IN_FLIGHT, LATENCY, REQUESTS, ROWS
@@ -78,21 +79,23 @@ def note(**fields) -> None:
 
 def note_result(body: dict) -> None:
     """Record the rows used and candidates scored of a response body (selection, grouped
-    selection, diagnostics or predictions) for the access log and the metrics."""
+    selection, diagnostics or predictions; typed parts read in their contract form) for
+    the access log and the metrics."""
     if not isinstance(body, dict):
         return
-    data = body["data"] if isinstance(body.get("data"), dict) else {}
+    data = to_jsonable(body.get("data"))
+    data = data if isinstance(data, dict) else {}
     rows = data.get("rows_used")
     if rows is None and isinstance(body.get("predictions"), list):
         rows = len(body["predictions"])
-    search = body["search"] if isinstance(body.get("search"), dict) else {}
+    search = to_jsonable(body.get("search"))
+    search = search if isinstance(search, dict) else {}
     candidates = search.get("candidates_scored")
     if candidates is None and isinstance(body.get("groups"), dict):
-        candidates = sum(
-            int((g.get("search") or {}).get("candidates_scored") or 0)
-            for g in body["groups"].values()
-            if isinstance(g, dict)
-        )
+        candidates = 0
+        for g in body["groups"].values():
+            part = to_jsonable(g.get("search")) if isinstance(g, dict) else None
+            candidates += int((part or {}).get("candidates_scored") or 0)
     note(rows=rows, candidates=candidates)
 
 

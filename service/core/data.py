@@ -353,6 +353,26 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
 
 
 # ------------------------------------------------------------------ prepare
+@dataclass(frozen=True)
+class DroppedRow:
+    """A row left out for a missing value: its number as the caller counts rows (from 1)
+    and which used columns were missing."""
+
+    row: int
+    reason: str
+
+
+@dataclass(frozen=True)
+class DataSummary:
+    """Rows received, used and dropped, and the first dropped rows (at most
+    ``DROPPED_LIST_CAP``)."""
+
+    rows_received: int
+    rows_used: int
+    rows_dropped: int
+    dropped: tuple[DroppedRow, ...]
+
+
 @dataclass
 class Prepared:
     """The rows a request uses, after missing values are dropped."""
@@ -365,7 +385,7 @@ class Prepared:
     row_ids: np.ndarray  # 0-based positions of the used rows in the request's data
     order: np.ndarray | None  # permutation putting used rows in the order column's order
     rows_received: int
-    dropped: list[dict[str, Any]] = field(default_factory=list)
+    dropped: list[DroppedRow] = field(default_factory=list)
     rows_dropped: int = 0
     table_columns: tuple[str, ...] = ()
     order_values: np.ndarray | None = None  # the order column on the used rows
@@ -416,14 +436,8 @@ class Prepared:
             self.source,
         )
 
-    def data_summary(self) -> dict[str, Any]:
-        return {
-            "rows_received": self.rows_received,
-            "rows_used": self.n,
-            "rows_dropped": self.rows_dropped,
-            "dropped": self.dropped,
-            "dropped_listed": len(self.dropped),
-        }
+    def data_summary(self) -> DataSummary:
+        return DataSummary(self.rows_received, self.n, self.rows_dropped, tuple(self.dropped))
 
 
 def prepare(
@@ -534,17 +548,14 @@ def prepare(
         missing |= ocol.missing
     if gcol is not None:
         missing |= gcol.missing
-    dropped = []
+    dropped: list[DroppedRow] = []
     n_dropped = int(missing.sum())
     if n_dropped:
         cols = [ycol] + typed + [c for c in (ocol, gcol) if c is not None]
         for i in np.flatnonzero(missing)[:DROPPED_LIST_CAP]:
             which = [c.name for c in cols if c.missing[i]]
             dropped.append(
-                {
-                    "row": row_number(i),
-                    "reason": "missing value in " + ", ".join(f"'{w}'" for w in which),
-                }
+                DroppedRow(row_number(i), "missing value in " + ", ".join(f"'{w}'" for w in which))
             )
     keep = ~missing
     row_ids = np.flatnonzero(keep)

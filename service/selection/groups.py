@@ -61,7 +61,7 @@ def run_grouped(
             "groups_failed": failed,
             "elapsed_s": round(time.perf_counter() - t0, 4),
             "complete": all("problem" not in b or not b["problem"].over_budget for b in bodies)
-            and all(b.get("search", {}).get("complete", True) for b in bodies),
+            and all(b["search"].complete for b in bodies if "problem" not in b),
         },
         "ranking": [],
         "groups": dict(zip(names, bodies, strict=True)),

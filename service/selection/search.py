@@ -108,7 +108,7 @@ class _Evaluator:
     def __init__(self, prep: Prepared, space: cand.Space, scorer: Scorer, intercept: bool):
         self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
         self.scored: list[Scored] = []
-        self.failures: list[dict[str, Any]] = []
+        self.failures: list[Failure] = []
         self.n_fail = 0
         self.reasons: dict[str, int] = {}  # every failure's reason -> candidates
         self.powers: dict[SpecKey, dict[str, Any]] = {}  # concrete key -> {column: summary}
@@ -168,7 +168,7 @@ class _Evaluator:
         self.n_fail += 1
         self.reasons[exc.reason] = self.reasons.get(exc.reason, 0) + 1
         if len(self.failures) < MAX_FAILURES_LISTED:
-            self.failures.append({"specification": spec.to_dict(), "reason": exc.reason})
+            self.failures.append(Failure(spec, exc.reason))
 
     def out_of_fold(self, s: Scored, deadline: Deadline) -> tuple[OutOfFold | None, str]:
         """The first repeat's fold fits and out-of-fold residuals of ``s`` (CV+ intervals),
@@ -299,6 +299,70 @@ class _Evaluator:
 
 
 @dataclass(frozen=True)
+class Failure:
+    """A candidate that could not be scored, and why (the first MAX_FAILURES_LISTED)."""
+
+    spec: Specification
+    reason: str
+
+
+@dataclass(frozen=True)
+class BestCV:
+    """The lowest cross-validated error of the search and the candidate that had it."""
+
+    value: float
+    std_error: float
+    spec: Specification
+
+
+#: how estimated scales are read against the ladder before listing (``search.distinct_scales``)
+SCALES_RULE = (
+    "an estimated response lambda or predictor power whose 95% interval holds a "
+    "ladder value (-1, -0.5, 0, 0.5, 1, 2) is listed as that ladder value (the "
+    "estimate stays in the entry's estimates.read_as_ladder); an estimated scale "
+    "that is not a ladder value is listed only when its CV error beats the best "
+    "fixed-scale candidate by more than that candidate's standard error; no two "
+    "listed entries share their scales"
+)
+
+
+@dataclass(frozen=True)
+class ScalesSummary:
+    """Estimated candidates read as ladder values, listed with their estimate, or left out
+    (see :func:`distinct_scales`)."""
+
+    read_as_ladder: int
+    estimated_listed: int
+    estimated_not_listed: int
+
+
+@dataclass(frozen=True)
+class SearchSummary:
+    """What one search did: candidates considered / scored / failed / screened, whether it
+    finished, how long it took, the strategy, the scales searched, the lowest error, the
+    band, how estimated scales were listed, the failures and their reasons, exact refits,
+    and (when estimated) the response's Box-Cox lambda and the predictors' powers."""
+
+    considered: int
+    scored: int
+    failed: int
+    screened: int
+    complete: bool
+    elapsed_s: float
+    strategy: StrategyReport
+    response_transforms: tuple[tr.Transform, ...]
+    predictor_transforms: tuple[tuple[str, tuple[tr.Transform, ...]], ...]
+    best_cv: BestCV
+    band: BandReport
+    distinct_scales: ScalesSummary
+    failures: tuple[Failure, ...]
+    failure_reasons: tuple[FailureGroup, ...]
+    exact_refits: int
+    box_cox: dict[str, Any] | None
+    predictor_powers: dict[str, Any] | None
+
+
+@dataclass(frozen=True)
 class Selection:
     """One search's result: the contract's selection ``body`` (without service_version),
     the distinct-scale candidates it ranked (``scored``; trust re-ranks them) and its
@@ -404,7 +468,7 @@ def select(
                 f"no candidate finished within the time limit of "
                 f"{opts.time_limit_s:g} s; raise limits.time_limit_s or send fewer rows"
             )
-        reasons = sorted({f["reason"] for f in failures})
+        reasons = sorted({f.reason for f in failures})
         raise ModelFailure("no candidate could be fitted: " + "; ".join(reasons[:3]))
     if n_fail:
         grouped = failure_groups(ev.reasons)
@@ -472,37 +536,33 @@ def select(
             opts, prep, plan, shift_needed, listable, ranked, entries, band
         )
     elapsed = time.perf_counter() - t0
-    search = {
-        "candidates_considered": int(total),
-        "candidates_scored": len(scored),
-        "candidates_failed": n_fail,
-        "candidates_screened": int(counts["screened"]),
-        "complete": bool(complete and len(scored) + n_fail == total),
-        "elapsed_s": round(elapsed, 4),
-        "strategy": StrategyReport(strategy, budget.spent),
-        "response_transforms": [t.to_dict() for t in resp],
-        "predictor_transforms": {
-            c: [t.to_dict() for t in p] for c, p in zip(prep.predictors, preds, strict=True)
-        },
-        "best_cv": {
-            "value": best.cv.value,
-            "std_error": best.cv.std_error,
-            "specification": best.spec.to_dict(),
-        },
-        "band": BandReport.of(band, assessed, opts.alpha, met),
-        "distinct_scales": scales_info,
-        "failures": failures,
-        "failure_reasons": failure_groups(ev.reasons),
-        "exact_refits": int(sum(s.cv.exact_refits for s in scored)),
-    }
+    complete = bool(complete and len(scored) + n_fail == total)
+    box_cox = None
     if box_cox_info is not None:
         assert first is not None  # listed with entries[0]
-        search["box_cox"] = {
+        box_cox = {
             **box_cox_info,
             **_box_cox_context(box_cox_info, entries[0], first.design, prep),
         }
-    if bt_info:
-        search["predictor_powers"] = _powers_block(bt_info)
+    search = SearchSummary(
+        considered=int(total),
+        scored=len(scored),
+        failed=n_fail,
+        screened=int(counts["screened"]),
+        complete=complete,
+        elapsed_s=round(elapsed, 4),
+        strategy=StrategyReport(strategy, budget.spent),
+        response_transforms=tuple(resp),
+        predictor_transforms=tuple(zip(prep.predictors, map(tuple, preds), strict=True)),
+        best_cv=BestCV(best.cv.value, best.cv.std_error, best.spec),
+        band=BandReport.of(band, assessed, opts.alpha, met),
+        distinct_scales=scales_info,
+        failures=tuple(failures),
+        failure_reasons=tuple(failure_groups(ev.reasons)),
+        exact_refits=int(sum(s.cv.exact_refits for s in scored)),
+        box_cox=box_cox,
+        predictor_powers=_powers_block(bt_info) if bt_info else None,
+    )
     if strategy == "screened":
         warnings.append(
             f"The candidate space holds {total} specifications, too many to score each; a "
@@ -512,7 +572,7 @@ def select(
         )
         if budget.spent in ("time_limit_s", "max_candidates"):
             warnings.append(f"The screened search stopped at limits.{budget.spent}.")
-    elif not search["complete"]:
+    elif not complete:
         warnings.append(
             f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
             "scored within the limits); the ranking is the best found so far."
@@ -1079,7 +1139,7 @@ def _score_fixed(
 
 def distinct_scales(
     scored: list[Scored], ev: _Evaluator, prep: Prepared, plan: CVPlan, shift_needed: bool
-) -> tuple[list[Scored], dict[SpecKey, list[dict[str, Any]]], dict[str, Any]]:
+) -> tuple[list[Scored], dict[SpecKey, list[dict[str, Any]]], ScalesSummary]:
     """The candidates that may be listed: one per set of scales.
 
     An estimate (response lambda, predictor power) whose 95% interval holds a ladder
@@ -1141,17 +1201,5 @@ def distinct_scales(
             or best_of[tuple(p.transform for p in e.spec.predictors)] is e
         ]
     listable = list(fixed.values()) + kept
-    summary = {
-        "read_as_ladder": read,
-        "estimated_listed": len(kept),
-        "estimated_not_listed": len(est) - read - len(kept),
-        "rule": (
-            "an estimated response lambda or predictor power whose 95% interval holds a "
-            "ladder value (-1, -0.5, 0, 0.5, 1, 2) is listed as that ladder value (the "
-            "estimate stays in the entry's estimates.read_as_ladder); an estimated scale "
-            "that is not a ladder value is listed only when its CV error beats the best "
-            "fixed-scale candidate by more than that candidate's standard error; no two "
-            "listed entries share their scales"
-        ),
-    }
+    summary = ScalesSummary(read, len(kept), len(est) - read - len(kept))
     return listable, notes, summary

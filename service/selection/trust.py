@@ -409,7 +409,7 @@ def _inner_search(task: tuple[Prepared, SearchOptions, str, Deadline]) -> dict[s
     chosen = _find(result.scored, key)
     if chosen is None:  # the ranking entry always comes from the scored list
         return {"problem": "the selected specification was not among the scored candidates"}
-    return {"spec": chosen.spec, "complete": bool(body["search"]["complete"])}
+    return {"spec": chosen.spec, "complete": bool(body["search"].complete)}
 
 
 def _optimism(

@@ -21,6 +21,7 @@ from tests.benchmarks._common import Timer, machine, pin_blas, water_mains
 
 pin_blas(1)
 
+from service.api.encode import to_jsonable
 from service.core.data import prepare
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
@@ -44,7 +45,9 @@ def main():
             [f"x{j}" for j in range(p)],
         )
         with Timer() as t:
-            out = run_selection(prep, SearchOptions(time_limit_s=args.time_limit, top=3), "b")
+            out = to_jsonable(
+                run_selection(prep, SearchOptions(time_limit_s=args.time_limit, top=3), "b")
+            )
         s = out["search"]
         done = s["candidates_scored"] + s["candidates_failed"]
         print(
@@ -65,9 +68,13 @@ def main():
                 "max_candidates": 20_000,
             }
             with Timer() as te:
-                full = run_selection(prep, SearchOptions(strategy="exhaustive", **space), "b")
+                full = to_jsonable(
+                    run_selection(prep, SearchOptions(strategy="exhaustive", **space), "b")
+                )
             with Timer() as tsm:
-                smart = run_selection(prep, SearchOptions(strategy="screened", **space), "b")
+                smart = to_jsonable(
+                    run_selection(prep, SearchOptions(strategy="screened", **space), "b")
+                )
             a, b = full["search"]["best_cv"]["value"], smart["search"]["best_cv"]["value"]
             print(
                 f"   reduced space of {full['search']['candidates_considered']} "

@@ -28,6 +28,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
+from service.api.encode import to_jsonable
 from service.core.data import prepare
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
@@ -218,7 +219,7 @@ def one_run(task) -> tuple[str, int, int, bool, str, str]:
     opts = SearchOptions(seed=seed)
     if name in OPTIONS:
         opts = SearchOptions(seed=seed, **OPTIONS[name])
-    out = run_selection(prep, opts, "study")
+    out = to_jsonable(run_selection(prep, opts, "study"))
     first = out["ranking"][0]
     hit = matches(first, PROCESSES[name][1])
     return name, n, seed, hit, _label(first), "" if hit else _why(out, PROCESSES[name][1])

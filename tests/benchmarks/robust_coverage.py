@@ -33,6 +33,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from scipy import stats
+from service.api.encode import to_jsonable
 from service.core.data import prepare
 from service.core.fitting import hac_cov, hc3_cov, newey_west_lags, ols
 from service.core.predict import load_model, predict
@@ -121,7 +122,7 @@ def pi_coverage(
         prep = prepare({"columns": {"x": x.tolist(), "y": y.tolist()}}, "y", ["x"])
         if case == "powers":
             opts = SearchOptions(["identity"], [{"name": "power"}], top=1)
-            entry = run_selection(prep, opts, "bench")["ranking"][0]
+            entry = to_jsonable(run_selection(prep, opts, "bench"))["ranking"][0]
             assert entry["model"]["cv_plus"]["fold_powers"]["columns"] == ["x"]
         else:
             entry, _ = diagnose_specification(prep, spec, SearchOptions(), "bench", max_points=10)

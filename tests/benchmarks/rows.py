@@ -62,6 +62,7 @@ def one(n: int, time_limit: float, trace: bool = False, exact_folds: bool = Fals
     import resource
     import tracemalloc
 
+    from service.api.encode import to_jsonable
     from service.core.data import prepare
     from service.selection.search import run_selection
     from service.selection.search_setup import SearchOptions
@@ -74,7 +75,9 @@ def one(n: int, time_limit: float, trace: bool = False, exact_folds: bool = Fals
     with Timer() as t:
         prep = prepare({"columns": lists}, "repair_cost", [f"x{j}" for j in range(5)])
         del lists
-        out = run_selection(prep, SearchOptions(time_limit_s=time_limit, top=3), "bench")
+        out = to_jsonable(
+            run_selection(prep, SearchOptions(time_limit_s=time_limit, top=3), "bench")
+        )
     traced = tracemalloc.get_traced_memory()[1] if trace else float("nan")
     rss_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     s = out["search"]

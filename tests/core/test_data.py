@@ -12,7 +12,7 @@ import io
 import numpy as np
 import pandas as pd
 import pytest
-from service.core.data import DROPPED_LIST_CAP, prepare, split_groups
+from service.core.data import DROPPED_LIST_CAP, DroppedRow, prepare, split_groups
 from service.core.errors import Categorical, Cell, InputError, Predictor, Response
 
 # invented: repair cost of water mains by pipe age, material and district
@@ -91,14 +91,14 @@ def test_rows_with_a_missing_used_value_are_dropped_and_listed():
     assert p.rows_received == 8 and p.n == 5 and p.rows_dropped == 3
     # rows counted from 1: row 3 misses cost, row 4 age, row 6 material
     assert p.dropped == [
-        {"row": 3, "reason": "missing value in 'cost'"},
-        {"row": 4, "reason": "missing value in 'age'"},
-        {"row": 6, "reason": "missing value in 'material'"},
+        DroppedRow(3, "missing value in 'cost'"),
+        DroppedRow(4, "missing value in 'age'"),
+        DroppedRow(6, "missing value in 'material'"),
     ]
     assert p.row_ids.tolist() == [0, 1, 4, 6, 7]  # positions in the request's arrays
     assert p.row_numbers.tolist() == [1, 2, 5, 7, 8]
     summary = p.data_summary()
-    assert summary["rows_used"] + summary["rows_dropped"] == summary["rows_received"]
+    assert summary.rows_used + summary.rows_dropped == summary.rows_received
     # an unused column's gaps drop nothing
     q = prepare({"columns": {**COLUMNS, "note": [None] * 8}}, "cost", ["age", "material"])
     assert q.rows_dropped == 3
@@ -110,7 +110,7 @@ def test_dropped_list_is_capped_but_counted():
     x = [float(i % 7) for i in range(2 * n)]
     p = prepare({"columns": {"y": y, "x": x}}, "y", ["x"])
     assert p.rows_dropped == n and len(p.dropped) == DROPPED_LIST_CAP
-    assert p.data_summary()["dropped_listed"] == DROPPED_LIST_CAP
+    assert len(p.data_summary().dropped) == DROPPED_LIST_CAP
 
 
 @pytest.mark.parametrize(

@@ -101,7 +101,7 @@ def test_cube_root_law_recovers_box_cox_one_third(seed):
     assert est.ci_low < 1.0 / 3.0 < est.ci_high
     assert est.ci_low > 0.0 and est.ci_high < 1.0  # excludes log and no transform
     out = _select({"v": v, "d": d, "h": h}, "v", ["d", "h"], predictor_transforms=["identity"])
-    info = out["search"]["box_cox"]
+    info = out["search"].box_cox
     # the search reports the same regression lambda on the untransformed design
     assert info["lambda"] == pytest.approx(est.lam, abs=1e-4)
     assert info["ci_low"] < 1.0 / 3.0 < info["ci_high"]
@@ -146,7 +146,7 @@ def test_small_designed_experiments_let_the_simple_scale_win(kind):
     for seed in range(6):
         cols, expected = _factorial(seed, kind)
         out = _select(cols, "y", ["a", "b", "c"], seed=seed)
-        assert out["search"]["candidates_considered"] <= 14
+        assert out["search"].considered <= 14
         assert any("fewer than 50" in w for w in out["warnings"])
         spec = out["ranking"][0]["specification"]
         got = (

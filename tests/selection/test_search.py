@@ -74,8 +74,8 @@ def _linear_prep(n=120, seed=3):
 
 def test_max_candidates_stops_the_search_incomplete():
     out = run_selection(_linear_prep(), SearchOptions(max_candidates=3), "t")
-    assert out["search"]["candidates_scored"] + out["search"]["candidates_failed"] == 3
-    assert out["search"]["complete"] is False
+    assert out["search"].scored + out["search"].failed == 3
+    assert out["search"].complete is False
     assert any("stopped early" in w for w in out["warnings"])
 
 
@@ -97,13 +97,13 @@ def test_failed_candidates_do_not_stop_the_search():
         ),
         "t",
     )
-    assert out["search"]["candidates_scored"] >= 1
-    for f in out["search"]["failures"]:
-        assert f["reason"]
+    assert out["search"].scored >= 1
+    for f in out["search"].failures:
+        assert f.reason
     # failures grouped by reason with counts that add up to the failed candidates
-    groups = out["search"]["failure_reasons"]
-    if out["search"]["candidates_failed"]:
-        assert sum(g.candidates for g in groups) == out["search"]["candidates_failed"]
+    groups = out["search"].failure_reasons
+    if out["search"].failed:
+        assert sum(g.candidates for g in groups) == out["search"].failed
         assert [g.candidates for g in groups] == sorted(
             (g.candidates for g in groups), reverse=True
         )
@@ -127,8 +127,8 @@ def test_failures_are_grouped_by_reason_with_counts():
         ),
         "t",
     )
-    failed = out["search"]["candidates_failed"]
-    groups = out["search"]["failure_reasons"]
+    failed = out["search"].failed
+    groups = out["search"].failure_reasons
     assert failed > 0 and groups
     counts = [g.candidates for g in groups]
     assert counts == sorted(counts, reverse=True) and sum(counts) <= failed

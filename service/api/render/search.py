@@ -39,3 +39,49 @@ def strategy(r: s.StrategyReport) -> dict[str, Any]:
 @contract.register
 def failure_group(g: s.FailureGroup) -> dict[str, Any]:
     return {"reason": g.reason, "candidates": g.candidates, "wordings": g.wordings}
+
+
+@contract.register
+def failure(f: s.Failure) -> dict[str, Any]:
+    return {"specification": f.spec.to_dict(), "reason": f.reason}
+
+
+@contract.register
+def best_cv(b: s.BestCV) -> dict[str, Any]:
+    return {"value": b.value, "std_error": b.std_error, "specification": b.spec.to_dict()}
+
+
+@contract.register
+def scales(d: s.ScalesSummary) -> dict[str, Any]:
+    return {
+        "read_as_ladder": d.read_as_ladder,
+        "estimated_listed": d.estimated_listed,
+        "estimated_not_listed": d.estimated_not_listed,
+        "rule": s.SCALES_RULE,
+    }
+
+
+@contract.register
+def search(r: s.SearchSummary) -> dict[str, Any]:
+    out: dict[str, Any] = {
+        "candidates_considered": r.considered,
+        "candidates_scored": r.scored,
+        "candidates_failed": r.failed,
+        "candidates_screened": r.screened,
+        "complete": r.complete,
+        "elapsed_s": r.elapsed_s,
+        "strategy": r.strategy,
+        "response_transforms": [t.to_dict() for t in r.response_transforms],
+        "predictor_transforms": {c: [t.to_dict() for t in ts] for c, ts in r.predictor_transforms},
+        "best_cv": r.best_cv,
+        "band": r.band,
+        "distinct_scales": r.distinct_scales,
+        "failures": list(r.failures),
+        "failure_reasons": list(r.failure_reasons),
+        "exact_refits": r.exact_refits,
+    }
+    if r.box_cox is not None:
+        out["box_cox"] = r.box_cox
+    if r.predictor_powers is not None:
+        out["predictor_powers"] = r.predictor_powers
+    return out
