@@ -93,13 +93,14 @@ def per_fold_loop(self, S, XS, dyn, r, zs, per_fold, t, names, B, designs, power
 
 
 def demo_selection():
+    from service.api.encode import to_jsonable
     from service.api.options import selection_job, service
     from service.api.schemas import SelectionRequest
     from service.demo import demo_request
     from service.selection.request import run_selection
 
     job = selection_job(SelectionRequest.model_validate(demo_request()))
-    return run_selection(job, service())
+    return to_jsonable(run_selection(job, service()))  # the contract form, as every exit
 
 
 def record_problems():
