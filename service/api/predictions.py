@@ -11,6 +11,7 @@ from .encode import JSONBody
 from .middleware import note_result
 from .options import prediction_job
 from .pool import compute_slot
+from .render import contract
 from .routing import StrictRoute
 from .schemas import PredictionRequest
 
@@ -20,10 +21,10 @@ router = APIRouter(route_class=StrictRoute)
 def run_prediction_request(req: PredictionRequest) -> dict:
     job = prediction_job(req)
     model = load_model(job.model, get_settings().model_keys())
-    out = predict(model, job.data, job.interval, job.interval_method)
+    result = predict(model, job.data, job.interval, job.interval_method)
+    out: dict = contract(result)
     out["cautions"] = prediction_cautions(
-        not model.spec.response_transform.is_identity,
-        any(p["extrapolation"] for p in out["predictions"]),
+        not model.spec.response_transform.is_identity, bool(result.extrapolation.any())
     )
     return out
 

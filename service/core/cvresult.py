@@ -68,21 +68,39 @@ class CVResult:
     exact_refits: int = 0  # folds refitted by QR because their Gram matrix was ill-conditioned
     out_of_fold: OutOfFold | None = None  # first repeat's fold fits (CV+ intervals), when asked
 
-    def to_dict(self, plan: CVPlan) -> dict[str, Any]:
-        return {
-            "metric": self.metric,
-            "value": self.value,
-            "std_error": self.std_error,
-            "scale": "original",
-            "folds": plan.folds,
-            "repeats": plan.repeats,
-            "seed": plan.seed,
-            "scheme": plan.scheme,
-            "all_metrics": self.summary,
-            "back_transform": "smeared mean (Duan 1983)"
-            if self.metric == "rmse"
-            else "median (naive inverse)",
-        }
+
+@dataclass(frozen=True)
+class CVReport:
+    """A candidate's cross-validated error as reported: the metric, its value and standard
+    error on the original response scale, every metric's value (``all_metrics``), and the
+    fold scheme that produced them."""
+
+    metric: str
+    value: float
+    std_error: float
+    all_metrics: dict[str, Any]
+    folds: int
+    repeats: int
+    seed: int
+    scheme: str
+
+    @classmethod
+    def of(cls, cv: CVResult, plan: CVPlan) -> CVReport:
+        return cls(
+            cv.metric,
+            cv.value,
+            cv.std_error,
+            cv.summary,
+            plan.folds,
+            plan.repeats,
+            plan.seed,
+            plan.scheme,
+        )
+
+    @property
+    def back_transform(self) -> str:
+        """How a prediction on the original scale was formed for this metric."""
+        return "smeared mean (Duan 1983)" if self.metric == "rmse" else "median (naive inverse)"
 
 
 def error_of(

@@ -26,7 +26,7 @@ from __future__ import annotations
 import hmac
 import math
 from dataclasses import dataclass
-from typing import Any, TypeGuard, cast
+from typing import Any, TypeGuard
 
 import numpy as np
 from scipy import stats
@@ -880,9 +880,19 @@ def new_design(
 
 
 # ------------------------------------------------------------------ numbers
+@dataclass(frozen=True, eq=False)
+class ModelScaleInterval:
+    """Linear predictor ``fit``, ``leverage`` and prediction limits on the model scale."""
+
+    fit: np.ndarray
+    leverage: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+
+
 def model_scale_interval(
     model: LoadedModel, X: np.ndarray, interval: float = 0.95
-) -> dict[str, Any]:
+) -> ModelScaleInterval:
     """Linear predictor and prediction interval on the model (z) scale.
 
     ``X``: (m, p).  Returns arrays ``fit`` = X b, ``leverage`` h0 =
@@ -896,7 +906,7 @@ def model_scale_interval(
         h0 = np.einsum("ij,jk,ik->i", X, model.xtx_inverse, X)
         tq = float(stats.t.ppf(0.5 + interval / 2.0, model.df_residual))
         half = tq * np.sqrt(model.residual_variance * (1.0 + np.maximum(h0, 0.0)))
-    return {"fit": fit, "leverage": h0, "lower": fit - half, "upper": fit + half}
+    return ModelScaleInterval(fit, h0, fit - half, fit + half)
 
 
 def _rows_text(idx: np.ndarray) -> str:
@@ -907,15 +917,36 @@ def _num(v: float) -> str:
     return fmt(v)
 
 
-def _finite_list(a: np.ndarray) -> list[Any]:
-    """Floats as a list, ``None`` where not finite."""
-    a = np.asarray(a, dtype=float)
-    bad = ~np.isfinite(a)
-    if not bad.any():
-        return cast("list[Any]", a.tolist())
-    out = a.astype(object)
-    out[bad] = None
-    return cast("list[Any]", out.tolist())
+@dataclass(frozen=True, eq=False)
+class Predictions:
+    """Predictions for the rows of a table, in input order: ``mean`` (smeared), ``median``
+    (naive back-transform) and the prediction limits ``lower`` / ``upper`` on the original
+    scale, ``leverage``, the linear predictor ``eta`` and its limits on the model scale
+    (NaN where a value cannot be computed: ``warnings`` says why); each row's
+    ``extrapolation_reasons``; the ``interval`` level and the ``method`` used, with the
+    ``method_reason`` it was chosen for."""
+
+    mean: np.ndarray
+    median: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+    leverage: np.ndarray
+    eta: np.ndarray
+    eta_lower: np.ndarray
+    eta_upper: np.ndarray
+    extrapolation_reasons: tuple[tuple[str, ...], ...]
+    interval: float
+    method: str
+    method_reason: str
+    warnings: tuple[str, ...]
+
+    @property
+    def extrapolation(self) -> np.ndarray:
+        return np.array([bool(r) for r in self.extrapolation_reasons], dtype=bool)
+
+    @property
+    def source(self) -> str:
+        return src.PREDICTION_INTERVAL[self.method]
 
 
 def interval_method(model: LoadedModel, asked: object) -> tuple[str, str]:
@@ -947,17 +978,15 @@ def predict(
     data: dict[str, Any],
     interval: float = 0.95,
     method: str | None = None,
-) -> dict[str, Any]:
+) -> Predictions:
     """Predictions for every row of ``data`` (contract Data object), in input order.
 
     ``method``: "normal" (t interval on the model scale), "cv_plus" (CV+ from the stored
     out-of-fold residuals, :mod:`cvplus`) or None (the model's default).
-    Returns ``{"predictions": [{mean, median, lower, upper, extrapolation,
-    extrapolation_reasons, leverage, model_scale}], "interval": level, "interval_method",
-    "interval_method_reason", "warnings": [...]}``; every number is on the ORIGINAL response scale except
-    ``model_scale`` (``mean``, ``interval_low``, ``interval_high`` on the model scale) and ``leverage``.  A
-    value that cannot be computed (an inverse that does not exist or
-    overflows) is ``None`` and explained in ``warnings``, never NaN.
+    Returns :class:`Predictions`: every number on the ORIGINAL response scale except
+    ``leverage`` and the model-scale ``eta`` and its limits.  A value that cannot be
+    computed (an inverse that does not exist or overflows) is NaN there, rendered as null,
+    and explained in ``warnings``.
     """
     if not (_is_number(interval) and 0.0 < interval < 1.0):
         raise InputError.at(
@@ -969,20 +998,21 @@ def predict(
     X, raw, m = new_design(model, data)
     t = model.response_transform
     zs = model_scale_interval(model, X, interval)
+    z_lower, z_upper = zs.lower, zs.upper
     cvp = model.cv_plus if used == "cv_plus" else None
     fp = cvp.fold_powers if cvp is not None else None
     x_pow = None if fp is None else np.column_stack([raw[c] for c in fp.columns])
-    eta = zs["fit"]
+    eta = zs.fit
     ok_eta = np.isfinite(eta)
     safe = np.where(ok_eta, eta, 0.0)
     with np.errstate(all="ignore"):
         median = np.where(ok_eta, retransform.naive(t, safe), np.nan)
         mean = np.where(ok_eta, retransform.smeared_mean(t, safe, model.residuals), np.nan)
         if cvp is None:
-            lo = t.inverse(zs["lower"])
-            hi = t.inverse(zs["upper"])
+            lo = t.inverse(z_lower)
+            hi = t.inverse(z_upper)
         else:
-            lo, hi, zs["lower"], zs["upper"] = cvplus.intervals(
+            lo, hi, z_lower, z_upper = cvplus.intervals(
                 cvp.coefficients,
                 cvp.transforms,
                 cvp.fold,
@@ -1029,7 +1059,7 @@ def predict(
             reasons.setdefault(i, []).append(
                 f"'{col}' = {_num(x[i])} is outside the training range [{_num(a)}, {_num(b)}]"
             )
-    h0 = zs["leverage"]
+    h0 = zs.leverage
     over = h0 > model.max_leverage * (1.0 + LEVERAGE_RTOL) + 1e-12
     for i in np.flatnonzero(over).tolist():
         reasons.setdefault(i, []).append(
@@ -1072,7 +1102,7 @@ def predict(
     )
     if unbounded:
         lo, hi = np.full(m, np.nan), np.full(m, np.nan)
-        zs["lower"], zs["upper"] = lo, hi
+        z_lower, z_upper = lo, hi
     report(
         ok_eta & no_fold_power & (not unbounded),
         "the CV+ limits are null: the power of "
@@ -1091,25 +1121,18 @@ def predict(
         f"{label} scale reaches beyond the range of its inverse (unbounded or overflowing).",
     )
 
-    cols = [_finite_list(a) for a in (mean, median, lo, hi, h0, eta, zs["lower"], zs["upper"])]
-    rows = [
-        {
-            "mean": c0,
-            "median": c1,
-            "lower": c2,
-            "upper": c3,
-            "extrapolation": i in reasons,
-            "extrapolation_reasons": reasons.get(i, []),
-            "leverage": c4,
-            "model_scale": {"mean": c5, "interval_low": c6, "interval_high": c7},
-        }
-        for i, (c0, c1, c2, c3, c4, c5, c6, c7) in enumerate(zip(*cols, strict=True))
-    ]
-    return {
-        "predictions": rows,
-        "interval": float(interval),
-        "interval_method": used,
-        "interval_method_reason": why,
-        "source": src.PREDICTION_INTERVAL[used],
-        "warnings": warnings,
-    }
+    return Predictions(
+        mean,
+        median,
+        lo,
+        hi,
+        h0,
+        eta,
+        z_lower,
+        z_upper,
+        tuple(tuple(reasons.get(i, ())) for i in range(m)),
+        float(interval),
+        used,
+        why,
+        tuple(warnings),
+    )

@@ -13,7 +13,7 @@ from ..core import sources as src
 from ..core import transforms as tr
 from ..core.condition_rules import conditions_for, failed
 from ..core.cvplus import default_method, stored_block
-from ..core.cvresult import CVResult, OutOfFold
+from ..core.cvresult import CVReport, CVResult, OutOfFold
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure
 from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
@@ -259,7 +259,7 @@ def entry_for(
     entry: dict[str, Any] = {
         "specification": concrete.to_dict(),
         "equation": equation(concrete, design, fit.coef),
-        "cv": cv.to_dict(plan),
+        "cv": CVReport.of(cv, plan),
         "fit": fit_block(concrete, fit, prep),
         "coefficients": [
             {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}

@@ -19,7 +19,7 @@ import numpy as np
 from ..core import transforms as tr
 from ..core.conditions import CONDITION_NAMES
 from ..core.crossval import cross_validate
-from ..core.cvresult import CVResult, std_error_of
+from ..core.cvresult import CVReport, CVResult, std_error_of
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, SpecField
 from ..core.folds import CVPlan
@@ -111,7 +111,7 @@ def decide(
             f"{reason}; switch to rank 1 ({winner_entry['equation']}).",
         )
         return out
-    out["cv"] = inc_cv.to_dict(plan)
+    out["cv"] = CVReport.of(inc_cv, plan)
     same = winner_entry["specification"] == inc_spec.to_dict() or rank == 1
     # the same specification on the same folds differs by exactly 0; the two scoring paths
     # (search and incumbent refit) agree only to rounding, so the rounding is not reported

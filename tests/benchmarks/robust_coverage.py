@@ -34,6 +34,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from scipy import stats
 from service.api.encode import to_jsonable
+from service.api.render import contract
 from service.core.data import prepare
 from service.core.fitting import hac_cov, hc3_cov, newey_west_lags, ols
 from service.core.predict import load_model, predict
@@ -129,7 +130,9 @@ def pi_coverage(
         model = load_model(entry["model"])
         x0, y0 = pi_data(case, rng, fresh)
         for method in ("normal", "cv_plus"):
-            p = predict(model, {"columns": {"x": x0.tolist()}}, level, method)["predictions"]
+            p = contract(predict(model, {"columns": {"x": x0.tolist()}}, level, method))[
+                "predictions"
+            ]
             lo = np.array([r["lower"] if r["lower"] is not None else -np.inf for r in p])
             hi = np.array([r["upper"] if r["upper"] is not None else np.inf for r in p])
             inside = (lo <= y0) & (y0 <= hi)

@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from scipy import stats
+from service.api.render import contract
 from service.core import retransform
 from service.core import transforms as tr
 from service.core.data import prepare
@@ -79,7 +80,7 @@ def test_smearing_mean_matches_lognormal_mean_on_large_sample(rng):
     )
     assert art["residuals"]["kind"] == "quantiles"  # stored as 2000 quantiles for large n
     x0 = np.array([0.25, 1.0, 1.75])
-    out = predict(load_model(art), {"columns": {"x": x0.tolist()}})
+    out = contract(predict(load_model(art), {"columns": {"x": x0.tolist()}}))
     mean = column(out, "mean")
     # source: standard lognormal moments E y = exp(mu + sigma^2/2); Duan (1983) smearing
     # estimates it.  Tolerance 2%: about 4 standard errors of mean(exp(e)) at n = 20000.
@@ -94,7 +95,7 @@ def test_quantile_residuals_reproduce_full_smearing(rng):
     art, _spec, fit, _ = issue(
         {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
     )
-    out = predict(load_model(art), {"columns": {"x": [0.5, 1.5]}})
+    out = contract(predict(load_model(art), {"columns": {"x": [0.5, 1.5]}}))
     eta = fit.coef[0] + fit.coef[1] * np.array([0.5, 1.5])
     full = np.exp(eta) * np.mean(np.exp(fit.resid))  # Duan (1983) over all residuals
     np.testing.assert_allclose(column(out, "mean"), full, rtol=1e-3)
@@ -106,7 +107,7 @@ def test_prediction_interval_coverage_on_fresh_data(rng):
         {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
     )
     xf, yf = log_data(rng, 2000)
-    out = predict(load_model(art), {"columns": {"x": xf.tolist()}}, 0.95)
+    out = contract(predict(load_model(art), {"columns": {"x": xf.tolist()}}, 0.95))
     lo, hi, med = column(out, "lower"), column(out, "upper"), column(out, "median")
     cover = float(np.mean((yf >= lo) & (yf <= hi)))
     # source: binomial sd of a coverage proportion; nominal 0.95, 2000 fresh points
@@ -131,7 +132,9 @@ def test_model_scale_interval_equals_statsmodels(rng, level):
     new1, new2 = np.array([0.1, 1.5, 2.9, 4.0]), np.array([1.2, 3.0, 4.9, 0.5])
     X0 = sm.add_constant(np.column_stack([new1, np.log(new2)]), has_constant="add")
     frame = ref.get_prediction(X0).summary_frame(alpha=1 - level)
-    out = predict(load_model(art), {"columns": {"x1": new1.tolist(), "x2": new2.tolist()}}, level)
+    out = contract(
+        predict(load_model(art), {"columns": {"x1": new1.tolist(), "x2": new2.tolist()}}, level)
+    )
     zs = [p["model_scale"] for p in out["predictions"]]
     # source: statsmodels get_prediction(...).summary_frame obs_ci_lower / obs_ci_upper
     np.testing.assert_allclose([z["mean"] for z in zs], frame["mean"], rtol=1e-10)
@@ -148,7 +151,7 @@ def test_median_not_above_mean_for_log_models(rng):
     art, *_ = issue(
         {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "log"}
     )
-    out = predict(load_model(art), {"columns": {"x": np.linspace(-1, 3, 50).tolist()}})
+    out = contract(predict(load_model(art), {"columns": {"x": np.linspace(-1, 3, 50).tolist()}}))
     # source: Jensen's inequality: mean(exp(e)) >= exp(mean(e)) = 1 with an intercept
     assert np.all(column(out, "median") <= column(out, "mean"))
     assert np.all(column(out, "lower") < column(out, "median"))
@@ -167,7 +170,7 @@ def test_reciprocal_response_swaps_end_points(rng):
     ref = sm.OLS(1 / y, sm.add_constant(x)).fit()
     x0 = np.array([1.5, 3.0])
     frame = ref.get_prediction(sm.add_constant(x0, has_constant="add")).summary_frame(alpha=0.05)
-    out = predict(load_model(art), {"columns": {"x": x0.tolist()}})
+    out = contract(predict(load_model(art), {"columns": {"x": x0.tolist()}}))
     # source: METHODS.md section 4: swap the end points when g decreases
     np.testing.assert_allclose(column(out, "lower"), 1 / frame["obs_ci_upper"], rtol=1e-10)
     np.testing.assert_allclose(column(out, "upper"), 1 / frame["obs_ci_lower"], rtol=1e-10)
@@ -184,7 +187,7 @@ def test_unbounded_end_point_is_null_with_warning(rng):
         [("x", {"name": "identity"})],
         {"name": "reciprocal"},
     )
-    out = predict(load_model(art), {"columns": {"x": [1.0, 4.0]}})
+    out = contract(predict(load_model(art), {"columns": {"x": [1.0, 4.0]}}))
     strict_json(out)
     ups = [p["upper"] for p in out["predictions"]]
     assert None in ups  # the 1/y interval reaches 0: y unbounded above
@@ -198,7 +201,7 @@ def test_sqrt_model_mean_is_smearing_written_out(rng):
         {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "sqrt"}
     )
     x0 = np.array([0.0, 2.5, 5.0])
-    out = predict(load_model(art), {"columns": {"x": x0.tolist()}})
+    out = contract(predict(load_model(art), {"columns": {"x": x0.tolist()}}))
     eta = fit.coef[0] + fit.coef[1] * x0
     # source: Duan (1983): mean_i g^-1(eta + e_i), with g^-1(z) = max(z, 0)^2
     want = [np.mean(np.maximum(e0 + fit.resid, 0) ** 2) for e0 in eta]
@@ -226,7 +229,7 @@ def test_artifact_reproduces_in_process_fit(rng, rt):
     art, spec, fit, _prep = issue(
         data, "y", [("x", {"name": "log"}), ("site", {"name": "categorical"})], rt
     )
-    out = predict(load_model(art), {"columns": {"x": x.tolist(), "site": site.tolist()}})
+    out = contract(predict(load_model(art), {"columns": {"x": x.tolist(), "site": site.tolist()}}))
     t = spec.response_transform
     np.testing.assert_allclose(column(out, "median"), t.inverse(fit.fitted), rtol=1e-12)
     np.testing.assert_allclose(
@@ -252,11 +255,13 @@ def test_rows_come_back_in_input_order(rng):
     )
     m = load_model(art)
     x0 = np.array([0.3, 1.9, 0.7, 1.1])
-    a = column(predict(m, {"columns": {"x": x0.tolist()}}), "median")
+    a = column(contract(predict(m, {"columns": {"x": x0.tolist()}})), "median")
     perm = [2, 0, 3, 1]
-    b = column(predict(m, {"records": [{"x": float(x0[i])} for i in perm]}), "median")
+    b = column(contract(predict(m, {"records": [{"x": float(x0[i])} for i in perm]})), "median")
     np.testing.assert_allclose(b, a[perm], rtol=0)
-    c = column(predict(m, {"csv": "x\n" + "\n".join(str(v) for v in x0) + "\n"}), "median")
+    c = column(
+        contract(predict(m, {"csv": "x\n" + "\n".join(str(v) for v in x0) + "\n"})), "median"
+    )
     np.testing.assert_allclose(c, a, rtol=1e-15)
 
 
@@ -273,8 +278,11 @@ def test_extrapolation_by_range_and_by_leverage(rng):
         {"name": "identity"},
     )
     corner = (float(x1.min()) + 0.1, float(x2.max()) - 0.1)  # inside both ranges
-    out = predict(
-        load_model(art), {"columns": {"x1": [5.0, 20.0, corner[0]], "x2": [5.0, 5.0, corner[1]]}}
+    out = contract(
+        predict(
+            load_model(art),
+            {"columns": {"x1": [5.0, 20.0, corner[0]], "x2": [5.0, 5.0, corner[1]]}},
+        )
     )
     p = out["predictions"]
     assert p[0]["extrapolation"] is False
@@ -427,14 +435,18 @@ def test_inconsistent_artifact_even_with_valid_checksum(artifact, edit, ptr):
 def test_unusable_rows_point_at_the_cell(artifact, data, where):
     m = load_model(artifact)
     with pytest.raises(InputError) as exc:
-        predict(m, data)
+        contract(predict(m, data))
     assert where_of(exc)[0] == where
 
 
 def test_every_bad_cell_is_listed(artifact):
     m = load_model(artifact)
     with pytest.raises(InputError) as exc:
-        predict(m, {"columns": {"income": [0.0, 1.0, -3.0], "site": ["north", "west", "south"]}})
+        contract(
+            predict(
+                m, {"columns": {"income": [0.0, 1.0, -3.0], "site": ["north", "west", "south"]}}
+            )
+        )
     assert sorted(where_of(exc), key=repr) == [
         Cell("income", 0, "columns"),
         Cell("income", 2, "columns"),
@@ -445,7 +457,9 @@ def test_every_bad_cell_is_listed(artifact):
 @pytest.mark.parametrize("level", [0.0, 1.0, -0.5, 1.5])
 def test_interval_outside_unit_interval(artifact, level):
     with pytest.raises(InputError) as exc:
-        predict(load_model(artifact), {"columns": {"income": [2.0], "site": ["north"]}}, level)
+        contract(
+            predict(load_model(artifact), {"columns": {"income": [2.0], "site": ["north"]}}, level)
+        )
     assert where_of(exc) == [Option("interval")]
 
 
@@ -486,7 +500,7 @@ def test_unbounded_box_cox_mean_and_limits_never_nan(rng):
         {"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "identity"})], {"name": "box_cox"}
     )
     m = load_model(art)
-    out = predict(m, {"columns": {"x": np.linspace(-5, 5, 11).tolist()}})
+    out = contract(predict(m, {"columns": {"x": np.linspace(-5, 5, 11).tolist()}}))
     strict_json(out)
     assert out["warnings"]  # extrapolations and, far out, null end points are explained
     for p in out["predictions"]:

@@ -209,10 +209,11 @@ def test_predictions_use_the_same_bounded_smearing(rt):
     x = rng.uniform(1, 6, n)
     y = np.exp(0.5 + 0.3 * x + rng.standard_t(3, n) * 0.15)
     art, spec, fit, _ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "log"})], rt)
+    from service.api.render import contract
     from service.core.predict import load_model, predict
 
     x0 = np.linspace(1, 6, 200)
-    out = predict(load_model(art), {"columns": {"x": x0.tolist()}})
+    out = contract(predict(load_model(art), {"columns": {"x": x0.tolist()}}))
     t = spec.response_transform
     eta = fit.coef[0] + fit.coef[1] * np.log(x0)
     want, allowed = _plain_mean(t, eta, fit.resid)

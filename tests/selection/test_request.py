@@ -75,9 +75,7 @@ def test_the_ranking_is_the_search_s_own_with_version_and_cautions_added():
     assert [e["specification"] for e in body["ranking"]] == [
         e["specification"] for e in alone["ranking"]
     ]
-    assert [e["cv"]["value"] for e in body["ranking"]] == [
-        e["cv"]["value"] for e in alone["ranking"]
-    ]
+    assert [e["cv"].value for e in body["ranking"]] == [e["cv"].value for e in alone["ranking"]]
     assert next(iter(body)) == "service_version" and body["service_version"] == "test-version"
     assert body["cautions"] and list(body)[-1] == "cautions"
 

@@ -156,8 +156,8 @@ def test_explicit_inapplicable_transform_is_an_input_error():
 def test_same_request_gives_identical_numbers():
     a = run_selection(_linear_prep(), SearchOptions(), "t")
     b = run_selection(_linear_prep(), SearchOptions(), "t")
-    ka = [(e["equation"], e["cv"]["value"]) for e in a["ranking"]]
-    kb = [(e["equation"], e["cv"]["value"]) for e in b["ranking"]]
+    ka = [(e["equation"], e["cv"].value) for e in a["ranking"]]
+    kb = [(e["equation"], e["cv"].value) for e in b["ranking"]]
     assert ka == kb
 
 

@@ -122,7 +122,7 @@ def test_optimism_is_zero_when_the_search_space_holds_one_candidate():
     assert abs(op["gap"]) <= 1e-12 * op["selected_cv"]
     assert op["ratio"] == pytest.approx(1.0, abs=1e-12)
     # the outer folds are the search's own partition: rank 1's error there is its CV error
-    assert op["selected_cv"] == pytest.approx(body.body["ranking"][0]["cv"]["value"], rel=1e-12)
+    assert op["selected_cv"] == pytest.approx(body.body["ranking"][0]["cv"].value, rel=1e-12)
 
 
 def test_optimism_near_zero_when_the_right_scale_always_wins_inside():
