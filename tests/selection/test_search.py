@@ -255,5 +255,5 @@ def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monk
         e["specification"] for e in alone["ranking"]
     ]
     for a, b in zip(together["ranking"], alone["ranking"], strict=True):
-        assert a["cv"]["value"] == pytest.approx(b["cv"]["value"], rel=1e-9)
+        assert a["cv"].value == pytest.approx(b["cv"].value, rel=1e-9)
     assert together["search"].scored == alone["search"].scored
