@@ -97,18 +97,18 @@ def test_repeats_are_averaged_and_the_standard_error_divides_by_root_k():
 
 
 def test_the_contract_block_names_plan_and_back_transform():
+    from service.api.render.cv import cv
+    from service.core.cvresult import CVReport
+
     plan = make_plan(30, 5, 2, seed=7, metric="mae")
     res = CVResult("mae", 1.5, 0.2, np.ones(10), {"rmse": 2.0, "mae": 1.5, "mape": None})
-    d = res.to_dict(plan)
+    d = cv(CVReport.of(res, plan))
     assert (d["folds"], d["repeats"], d["seed"], d["scheme"]) == (5, 2, 7, "random")
     assert d["scale"] == "original" and d["all_metrics"]["mape"] is None
     # source: the median minimises expected absolute error, the mean squared error
     assert d["back_transform"] == "median (naive inverse)"
-    assert (
-        CVResult("rmse", 1, 0, np.ones(2), {})
-        .to_dict(plan)["back_transform"]
-        .startswith("smeared mean")
-    )
+    rmse = CVResult("rmse", 1, 0, np.ones(2), {})
+    assert cv(CVReport.of(rmse, plan))["back_transform"].startswith("smeared mean")
 
 
 def test_engel_fold_errors_pool_to_the_published_pooled_rmse():
