@@ -18,14 +18,22 @@ from .render import contract, renders
 def to_jsonable(obj):
     """Plain Python containers, typed results in their contract form (:mod:`.render`);
     raises ValueError on NaN/Infinity (a bug, never shipped)."""
+    kind = type(obj)
+    if kind is str or kind is int or kind is bool or obj is None:  # leaves: nothing to render
+        return obj
+    if kind is float:
+        if not math.isfinite(obj):
+            raise ValueError("non-finite number in a response body")
+        return obj
     if renders(obj):
         return to_jsonable(contract(obj))
     if isinstance(obj, dict):
         return {str(k): to_jsonable(v) for k, v in obj.items() if not str(k).startswith("_")}
     if isinstance(obj, (list, tuple)):
-        return [to_jsonable(v) for v in obj]
+        plain = _plain_numbers(obj)
+        return plain if plain is not None else [to_jsonable(v) for v in obj]
     if isinstance(obj, np.ndarray):
-        return [to_jsonable(v) for v in obj.tolist()]
+        return to_jsonable(obj.tolist())
     if isinstance(obj, (bool, np.bool_)):
         return bool(obj)
     if isinstance(obj, (int, np.integer)):
@@ -38,6 +46,20 @@ def to_jsonable(obj):
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         raise TypeError(f"{type(obj).__name__} has no contract form in service.api.render")
     return obj
+
+
+def _plain_numbers(seq: list | tuple) -> list | None:
+    """A copy of ``seq`` when every item is a Python float (all finite, else ValueError) or
+    every item is a Python int, which need no conversion; None otherwise.  Number lists
+    (residuals, plot points) are most of a large body: one pass each instead of a call per
+    item."""
+    if all(type(v) is float for v in seq):
+        if not all(map(math.isfinite, seq)):
+            raise ValueError("non-finite number in a response body")
+        return list(seq)
+    if all(type(v) is int for v in seq):
+        return list(seq)
+    return None
 
 
 class JSONBody(Response):

@@ -137,14 +137,14 @@ def smear_power_root(
     lo, hi = float(e.min()), float(e.max())
     c, r = 0.5 * (lo + hi), 0.5 * (hi - lo)
     rs = r if r > 0 else 1.0
-    M = _powers((e - c) / rs, J).sum(axis=0)
     ad = abs(delta)
     base = gamma + delta * (eta + c)  # base at the centre, for delta of either sign
     with np.errstate(divide="ignore", invalid="ignore"):
         rho = ad * r / base
     done = (base > 0) & (rho <= _rho_ok(float(p)))
     out = np.full(eta.size, np.nan)
-    if np.any(done):
+    if np.any(done):  # the moments only when some eta takes the series
+        M = _powers((e - c) / rs, J).sum(axis=0)
         sgn = np.sign(delta)
         cp = _binom_row(float(p)) * sgn ** np.arange(J)  # (1 + x u)^p with x = delta r / base
         series = _powers(rho[done], J) @ (cp * M)
@@ -306,7 +306,7 @@ def smear_power_binned(
     for a in range(0, m, _BIN_ETAS):
         A = gamma + delta * eta[a : a + _BIN_ETAS]
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            total, count = _binned_block(A, ad, bins, rho_ok, beta, p)
+            total, count = _binned_block(A, ad, bins, rho_ok, beta, p, clip=outside_zero)
             if outside_zero:
                 count = np.full(A.size, float(n))
             out[a : a + _BIN_ETAS] = np.where(count > 0, total / np.maximum(count, 1.0), np.nan)
@@ -321,10 +321,14 @@ def _binned_block(
     beta: float,
     p: float,
     win: tuple[np.ndarray, np.ndarray] | None = None,
+    clip: bool = False,
 ) -> tuple[np.ndarray, np.ndarray]:
     """(sum of the defined terms, their number) for each A of one block of etas: every
     (eta, top bin) pair on a dense grid, the failed pairs' finer bins as lists of pairs.
-    ``win`` = (lo, hi): only the sorted positions lo <= i < hi of each eta take part."""
+    ``win`` = (lo, hi): only the sorted positions lo <= i < hi of each eta take part.
+    ``clip`` (p > 0, no window): a term whose base is <= 0 is 0 and every term counts, so
+    the number is not tallied (zeros are returned in its place)."""
+    assert not (clip and (win is not None or p <= 0))
     m = A.size
     L0 = bins.sizes[0]
     # the top level on the dense (etas, bins) grid: broadcasting, no gathers
@@ -346,7 +350,7 @@ def _binned_block(
         acc += coef[t][None, :]
     acc *= _pow(np.where(series, bc, 1.0), p)
     total = np.where(series, acc, 0.0).sum(axis=1)
-    count = (series * bins.cnt[0][None, :]).sum(axis=1).astype(float)
+    count = np.zeros(m) if clip else (series * bins.cnt[0][None, :]).sum(axis=1).astype(float)
     ei, bi = np.nonzero(~series & rest)
     for lev in range(1, len(bins.sizes) + 1):
         if ei.size == 0:
@@ -354,6 +358,10 @@ def _binned_block(
         L = bins.sizes[lev - 1]
         if lev == len(bins.sizes):  # the failed finest bins: term by term
             base = A[ei][:, None] + ad * bins.pad.reshape(-1, L)[bi]
+            if clip:  # max(base, 0)^p: 0 for a clipped term and for a padded slot
+                v = _pow(np.maximum(base, 0.0, out=base), p).sum(axis=1)
+                total += np.bincount(ei, weights=v, minlength=m)
+                break
             ok = base > 0
             if win is not None:
                 pos = bi[:, None] * L + np.arange(L)[None, :]
@@ -385,7 +393,8 @@ def _binned_block(
                 acc += coef[t][bs]
             acc *= _pow(bc[series], p)
             total += np.bincount(es, weights=acc, minlength=m)
-            count += np.bincount(es, weights=bins.cnt[lev][bs], minlength=m)
+            if not clip:
+                count += np.bincount(es, weights=bins.cnt[lev][bs], minlength=m)
         rest &= ~series
         ei, bi = ei[rest], bi[rest]
     return total * beta, count

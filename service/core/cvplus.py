@@ -195,8 +195,8 @@ def stored_block(
         ],
         "residuals": {
             "kind": kind,
-            "fold": [int(v) for v in fold],
-            "values": [float(v) for v in values],
+            "fold": np.asarray(fold, dtype=np.int64).tolist(),  # Python ints, one C loop
+            "values": np.asarray(values, dtype=float).tolist(),
         },
     }
     if fp is not None:

@@ -25,10 +25,10 @@ def stored_residuals(resid: np.ndarray) -> tuple[str, list[float]]:
     quantiles reproduces it to within the spacing of the empirical distribution.
     """
     if resid.size <= MAX_STORED_RESIDUALS:
-        return "all", [float(v) for v in resid]
+        return "all", np.asarray(resid, dtype=float).tolist()
     s = np.sort(resid)
     pos = (np.arange(MAX_STORED_RESIDUALS) + 0.5) * s.size / MAX_STORED_RESIDUALS
-    return "quantiles", [float(v) for v in np.interp(pos - 0.5, np.arange(s.size), s)]
+    return "quantiles", np.interp(pos - 0.5, np.arange(s.size), s).tolist()
 
 
 def _canon(v: Any) -> Any:
@@ -38,6 +38,8 @@ def _canon(v: Any) -> Any:
     if isinstance(v, (list, tuple)):
         if all(type(x) is float for x in v):  # stored residuals and quantiles: thousands
             return list(v)
+        if all(type(x) is int for x in v):  # fold numbers of out-of-fold residuals: thousands
+            return [float(x) for x in v]
         return [_canon(x) for x in v]
     if isinstance(v, bool) or v is None or isinstance(v, str):
         return v
@@ -47,11 +49,21 @@ def _canon(v: Any) -> Any:
 
 
 UNSIGNED_FIELDS = ("checksum", "signature")
+#: private key of an issued artifact: the canonical bytes its checksum was computed from, so
+#: signing needs no second dump (bytes, which JSON cannot hold; never written out, as
+#: ``to_jsonable`` drops private keys)
+CANONICAL = "_canonical"
 
 
 def canonical_bytes(body: dict[str, Any]) -> bytes:
     """The canonical JSON of the artifact without its checksum and signature fields."""
-    clean = _canon({k: v for k, v in body.items() if k not in UNSIGNED_FIELDS})
+    clean = _canon(
+        {
+            k: v
+            for k, v in body.items()
+            if k not in UNSIGNED_FIELDS and not (k == CANONICAL and isinstance(v, bytes))
+        }
+    )
     text = json.dumps(clean, sort_keys=True, separators=(",", ":"), allow_nan=False)
     return text.encode()
 
@@ -61,6 +73,27 @@ def checksum(body: dict[str, Any]) -> str:
     return hashlib.sha256(canonical_bytes(body)).hexdigest()
 
 
+def seal(body: dict[str, Any], keep: bool = False) -> dict[str, Any]:
+    """Set the artifact's ``checksum`` in place from one canonical dump; ``keep``: also keep
+    those bytes (private key :data:`CANONICAL`) for :func:`sign`, which drops them (for a
+    body that is signed before it leaves).  Call it once the artifact is complete; whatever
+    changes it afterwards must seal it again."""
+    raw = canonical_bytes(body)
+    body["checksum"] = hashlib.sha256(raw).hexdigest()
+    if keep:
+        body[CANONICAL] = raw
+    return body
+
+
+def _sealed_bytes(body: dict[str, Any]) -> bytes:
+    """The canonical bytes :func:`seal` kept (removed from the body) when they still match
+    the body's checksum, else a fresh dump."""
+    raw = body.pop(CANONICAL, None)
+    if isinstance(raw, bytes) and hashlib.sha256(raw).hexdigest() == body.get("checksum"):
+        return raw
+    return canonical_bytes(body)
+
+
 SIGNATURE_ALGORITHM = "HMAC-SHA-256"
 UNSIGNED_NOTE = (
     "the service that issued this model holds no model key (BESTSCALE_MODEL_KEY), so the "
@@ -68,23 +101,27 @@ UNSIGNED_NOTE = (
 )
 
 
-def signature_value(body: dict[str, Any], key_id: str, key: bytes) -> str:
-    """HMAC-SHA-256 (RFC 2104) with ``key`` over the key id, a newline and the canonical JSON."""
-    msg = key_id.encode() + b"\n" + canonical_bytes(body)
+def signature_value(body: dict[str, Any], key_id: str, key: bytes, raw: bytes | None = None) -> str:
+    """HMAC-SHA-256 (RFC 2104) with ``key`` over the key id, a newline and the canonical JSON
+    (``raw``: those bytes when the caller has them)."""
+    msg = key_id.encode() + b"\n" + (canonical_bytes(body) if raw is None else raw)
     return hmac.new(key, msg, hashlib.sha256).hexdigest()
 
 
 def sign(body: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None) -> dict[str, Any]:
-    """Add the ``signature`` field in place: keyed with the current key, or marked unsigned."""
+    """Add the ``signature`` field in place: keyed with the current key, or marked unsigned
+    (the canonical bytes of :func:`seal` are used and dropped)."""
     if keys is None:
+        body.pop(CANONICAL, None)
         body["signature"] = {"algorithm": "none", "key_id": None, "value": None}
         body["signature"]["note"] = UNSIGNED_NOTE
         return body
     kid, ring = keys
+    raw = _sealed_bytes(body)
     body["signature"] = {
         "algorithm": SIGNATURE_ALGORITHM,
         "key_id": kid,
-        "value": signature_value(body, kid, ring[kid]),
+        "value": signature_value(body, kid, ring[kid], raw),
     }
     return body
 
@@ -125,10 +162,12 @@ def build_model(
     options: dict[str, Any] | None = None,
     cv_plus: dict[str, Any] | None = None,
     conditions_failed: list[str] | None = None,
+    sealed: bool = True,
 ) -> dict[str, Any]:
     """The artifact.  ``cv_plus``: the block of :func:`cvplus.stored_block` (fold fits and
     out-of-fold residuals, or why there are none); ``conditions_failed``: the entry's
-    conditions that do not hold, which decide the default prediction interval."""
+    conditions that do not hold, which decide the default prediction interval; ``sealed``:
+    with its checksum (:func:`seal`; False when the caller completes it and seals it)."""
     kind, res = stored_residuals(fit.resid)
     hat = np.einsum("ij,jk,ik->i", design.X, fit.cov_unscaled, design.X)
     ranges = {}
@@ -160,5 +199,4 @@ def build_model(
         body["conditions_failed"] = list(conditions_failed)
     if cv_plus is not None:
         body["cv_plus"] = cv_plus
-    body["checksum"] = checksum(body)
-    return body
+    return seal(body) if sealed else body

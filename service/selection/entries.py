@@ -20,7 +20,7 @@ from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
 from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
-from ..core.model import build_model, checksum
+from ..core.model import build_model, seal
 from ..core.numbers import fmt
 from ..core.spec import Design, Specification, build_design
 
@@ -186,13 +186,13 @@ def attach_cv_plus(
     prep: Prepared,
     plan: CVPlan,
 ) -> None:
-    """Store the CV+ block in the entry body's model (checksum renewed; signing comes later
-    in the web layer) and set the entry's default interval method from it.  ``design`` is
+    """Store the CV+ block in the entry body's model (sealed: checksum renewed, its canonical
+    bytes kept for the signature, which ``request.finish_body`` adds) and set the entry's default interval method from it.  ``design`` is
     the entry's all-rows design (:attr:`Entry.design`)."""
     block = stored_block(oof, design.X, prep.y, plan.scheme, why_none)
     model = entry["model"]
     model["cv_plus"] = block
-    model["checksum"] = checksum(model)
+    seal(model, keep=True)  # the bytes are signed in finish_body without a second dump
     method, why = default_method(
         model.get("conditions_failed"), block["available"], block.get("reason", "")
     )
@@ -222,7 +222,10 @@ def entry_for(
     parts: dict[str, Any],
     opts: SearchOptions,
     service_version: str,
+    sealed: bool = True,
 ) -> Entry:
+    """``sealed``: the model with its checksum; False when the caller attaches its CV+ block
+    (:func:`attach_cv_plus`, which seals it) or does not return the model."""
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
     estimates = {}
@@ -283,6 +286,7 @@ def entry_for(
             },
             cv_plus=cv_plus,
             conditions_failed=bad,
+            sealed=sealed,
         ),
         "warnings": warnings,
     }

@@ -47,3 +47,60 @@ def test_the_response_cap_is_a_problem_naming_the_setting(env):
     with pytest.raises(InputError) as exc:
         JSONBody({"x": list(range(20000))})
     assert "BESTSCALE_MAX_RESPONSE_BYTES" in exc.value.detail
+
+
+def _reference_jsonable(obj):
+    """The straightforward walk, one call per item (what the number-list fast path must
+    reproduce)."""
+    if isinstance(obj, dict):
+        return {
+            str(k): _reference_jsonable(v) for k, v in obj.items() if not str(k).startswith("_")
+        }
+    if isinstance(obj, (list, tuple)):
+        return [_reference_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [_reference_jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        assert math.isfinite(float(obj))
+        return float(obj)
+    return obj
+
+
+def test_number_lists_take_one_pass_and_give_what_the_item_walk_gives():
+    rng = np.random.default_rng(5)
+    body = {
+        "residuals": rng.normal(size=3000).tolist(),
+        "folds": rng.integers(1, 6, 3000).tolist(),
+        "flags": [True, False, True],
+        "ints_and_flags": [1, True, 0, False],
+        "ints_and_floats": [1, 2.5, 3],
+        "tuple": (0.5, 1.5),
+        "empty": [],
+        "matrix": rng.normal(size=(3, 4)),
+        "counts": np.arange(4, dtype=np.int64),
+        "numpy_items": [np.float64(0.25), np.int32(2), 1.0],
+        "nested": [{"x": [0.1, 0.2], "_private": [1.0]}, [[1.0, 2.0], [3, 4]]],
+        "_kept": b"private bytes",
+    }
+    got = to_jsonable(body)
+    # source: the item-by-item walk written out above
+    assert got == _reference_jsonable(body)
+    # same types as well as values (a bool stays a bool, an int an int)
+    assert json.dumps(got) == json.dumps(_reference_jsonable(body))
+    assert [type(v) for v in got["ints_and_flags"]] == [int, bool, int, bool]
+    assert got["tuple"] == [0.5, 1.5] and type(got["tuple"]) is list
+
+
+@pytest.mark.parametrize("bad", [math.nan, math.inf, -math.inf])
+def test_a_non_finite_number_deep_in_a_long_list_is_refused(bad):
+    values = np.linspace(0.0, 1.0, 5000).tolist()
+    values[4321] = bad
+    # source: RFC 8259 section 6 (no NaN or Infinity in JSON)
+    with pytest.raises(ValueError, match="non-finite"):
+        to_jsonable({"values": values})
+    with pytest.raises(ValueError, match="non-finite"):
+        to_jsonable({"values": np.array(values)})

@@ -91,6 +91,8 @@ def test_signature_is_hmac_sha256_of_the_canonical_form(client, env):
     model = _select(client)
     sig = model["signature"]
     assert sig["algorithm"] == "HMAC-SHA-256" and sig["key_id"] == "k1"
+    # the canonical bytes kept for signing never reach the answer
+    assert not any(k.startswith("_") for k in model)
     # source: RFC 2104 HMAC with SHA-256 as Python's standard hmac module computes it, over
     # the key id, a newline and the sorted compact JSON of the model without checksum and
     # signature (numbers as floats)

@@ -12,7 +12,14 @@ import statistics
 
 import numpy as np
 import pytest
-from service.core.cvresult import CVResult, error_of, pooled_folds, std_error_of, summary_of
+from service.core.cvresult import (
+    CVReport,
+    CVResult,
+    error_of,
+    pooled_folds,
+    std_error_of,
+    summary_of,
+)
 from service.core.folds import make_plan
 from sklearn.metrics import (
     mean_absolute_error,
@@ -96,19 +103,17 @@ def test_repeats_are_averaged_and_the_standard_error_divides_by_root_k():
     assert std_error_of(np.array([1.0]), 1) == 0.0
 
 
-def test_the_contract_block_names_plan_and_back_transform():
-    from service.api.render.cv import cv
-    from service.core.cvresult import CVReport
-
+def test_the_report_names_plan_and_back_transform():
     plan = make_plan(30, 5, 2, seed=7, metric="mae")
     res = CVResult("mae", 1.5, 0.2, np.ones(10), {"rmse": 2.0, "mae": 1.5, "mape": None})
-    d = cv(CVReport.of(res, plan))
-    assert (d["folds"], d["repeats"], d["seed"], d["scheme"]) == (5, 2, 7, "random")
-    assert d["scale"] == "original" and d["all_metrics"]["mape"] is None
+    r = CVReport.of(res, plan)
+    assert (r.folds, r.repeats, r.seed, r.scheme) == (5, 2, 7, "random")
+    assert (r.metric, r.value, r.std_error) == ("mae", 1.5, 0.2)
+    assert r.all_metrics["mape"] is None
     # source: the median minimises expected absolute error, the mean squared error
-    assert d["back_transform"] == "median (naive inverse)"
-    rmse = CVResult("rmse", 1, 0, np.ones(2), {})
-    assert cv(CVReport.of(rmse, plan))["back_transform"].startswith("smeared mean")
+    assert r.back_transform == "median (naive inverse)"
+    rmse = CVReport.of(CVResult("rmse", 1, 0, np.ones(2), {}), plan)
+    assert rmse.back_transform.startswith("smeared mean")
 
 
 def test_engel_fold_errors_pool_to_the_published_pooled_rmse():

@@ -189,7 +189,13 @@ def _reference_canon(v):
 def test_canonical_bytes_keep_their_definition_on_long_number_lists(issued):
     art, _, _ = issued
     body = copy.deepcopy(art)
-    body["extra"] = {"ints": [1, 2, 3], "mixed": [1, 2.5, True, None], "floats": [0.1, 2.0]}
+    body["extra"] = {
+        "ints": [1, 2, 3],
+        "flags": [True, False],
+        "mixed": [1, 2.5, True, None],
+        "floats": [0.1, 2.0],
+        "folds": list(range(1, 6)) * 400,
+    }
     body["residuals"]["values"] = [
         int(v) if i % 7 == 0 else v for i, v in enumerate(body["residuals"]["values"])
     ]
@@ -197,3 +203,50 @@ def test_canonical_bytes_keep_their_definition_on_long_number_lists(issued):
     # source: json.dumps(sort_keys, compact) of the recursive all-floats form
     ref = json.dumps(_reference_canon(clean), sort_keys=True, separators=(",", ":"))
     assert model.canonical_bytes(body) == ref.encode()
+
+
+def _hmac_reference(body: dict, kid: str) -> str:
+    """RFC 2104 HMAC-SHA-256 over the key id, a newline and the canonical JSON written out
+    (json.dumps of the all-floats form, private bytes and unsigned fields left out)."""
+    clean = {
+        k: v for k, v in body.items() if k not in model.UNSIGNED_FIELDS and not isinstance(v, bytes)
+    }
+    text = json.dumps(_reference_canon(clean), sort_keys=True, separators=(",", ":"))
+    return hmac.new(KEYS[1][kid], kid.encode() + b"\n" + text.encode(), hashlib.sha256).hexdigest()
+
+
+def test_seal_keeps_the_bytes_it_checksummed_and_sign_uses_them_once(issued):
+    art, _, _ = issued
+    body = model.seal(copy.deepcopy(art), keep=True)
+    # source: hashlib.sha256 over the written-out canonical JSON (test above)
+    assert body["checksum"] == art["checksum"]
+    assert body[model.CANONICAL] == model.canonical_bytes(art)
+    # the kept bytes are no part of the canonical form
+    assert model.checksum(body) == art["checksum"]
+    model.sign(body, KEYS)
+    assert model.CANONICAL not in body
+    # source: RFC 2104 HMAC-SHA-256 via Python's hmac module over the written-out form
+    assert body["signature"]["value"] == _hmac_reference(body, "k2")
+    assert load_model(json.loads(json.dumps(body)), KEYS).coef.size == len(art["coefficients"])
+    unsigned = model.sign(model.seal(copy.deepcopy(art), keep=True), None)
+    assert model.CANONICAL not in unsigned and unsigned["signature"]["algorithm"] == "none"
+
+
+def test_kept_bytes_that_no_longer_match_the_checksum_are_not_signed(issued):
+    art, _, _ = issued
+    body = model.seal(copy.deepcopy(art), keep=True)
+    body["coefficients"][0] += 1.0
+    body["checksum"] = model.checksum(body)  # changed and checksummed again, not resealed
+    model.sign(body, KEYS)
+    # source: RFC 2104 HMAC over the body as it is now, not the stale bytes
+    assert body["signature"]["value"] == _hmac_reference(body, "k2")
+    assert load_model(body, KEYS).coef[0] == pytest.approx(art["coefficients"][0] + 1.0)
+
+
+def test_only_bytes_under_the_private_key_are_left_out_of_the_checksum(issued):
+    art, _, _ = issued
+    sent = copy.deepcopy(art)
+    sent[model.CANONICAL] = "a string a client added"  # JSON: part of what is checked
+    assert model.checksum(sent) != art["checksum"]
+    with pytest.raises(InputError):
+        load_model(sent, None)

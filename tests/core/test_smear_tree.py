@@ -107,6 +107,34 @@ def test_binned_smearing_within_its_stated_bound(t, centre, kind):
     assert np.all(np.abs(via[ok] - want[ok]) <= allowed[ok])
 
 
+@pytest.mark.parametrize(
+    "t, centre",
+    [
+        pytest.param(tr.Transform("square"), 0.6, id="square"),
+        pytest.param(tr.Transform("box_cox", lam=0.4), -1.0, id="box_cox 0.4 clip"),
+        pytest.param(tr.Transform("reciprocal"), 1.2, id="reciprocal"),
+    ],
+)
+def test_nested_levels_within_the_bound_with_and_without_a_clip(t, centre):
+    """5,000 residuals: two levels of bins (256 and 32 values), so failed coarse bins are
+    tried as finer ones; a clip (terms past it are 0 and all count) and a pole (terms past
+    it left out of the count) take different tallies."""
+    rng = np.random.default_rng(41)
+    e = _residuals("heavy", 5000, rng)
+    assert st.bin_sizes(e.size) == [256, 32]
+    singular = st.power_form(t)
+    _beta, gamma, delta, _p, _zero = singular
+    near = -gamma / delta - rng.choice(e, 40) + rng.choice([-1, 1], 40) * 10.0**-6
+    eta = np.concatenate([rng.uniform(centre - 1.5, centre + 1.5, 160), near])
+    want, allowed = _plain_mean(t, eta, e)
+    got = st.smear_power_binned(eta, e, *singular)
+    # source: Duan (1983) double sum written out; bound BIN_RTOL plus rounding (module doc)
+    assert np.array_equal(np.isnan(got), np.isnan(want))
+    ok = np.isfinite(want)
+    assert ok.sum() >= 150
+    assert np.all(np.abs(got[ok] - want[ok]) <= allowed[ok])
+
+
 def _mp_smear(eta, e, beta, gamma, delta, p, zero):
     mpmath.mp.dps = 40
     out = []

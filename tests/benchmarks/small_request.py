@@ -1,0 +1,180 @@
+"""Benchmark (run by hand): the 2,000-row x 1-predictor default selection as the route answers
+it in process (typed options, ``run_selection``, ``to_jsonable``, orjson), with the model
+artifacts unsigned and signed, "before" and "after" alternating in the same run.
+
+"before" puts back, by patching, what the request did before the small-request work:
+
+- every listed model dumped to canonical JSON three times when signed, twice unsigned
+  (checksum in ``build_model``, again after the CV+ block, again for the signature);
+- ``to_jsonable`` walking every number of the body one call at a time;
+- power-form smearing with a clip tallying term counts and masking term by term in the
+  finest failed bins (``_binned_block`` with ``clip=False``, the computation it did before).
+
+Two smaller changes are in both columns (not patched back): the root series forms its
+moments only when an eta takes it, and stored residuals leave numpy through ``tolist``.
+
+Prints best-of-``--runs`` CPU seconds (``time.process_time``) beside wall seconds (the machine
+is shared), the ratio, the canonical dumps per request, and the largest relative change of
+any number in the body (signatures and checksums aside, which must be equal too: the bodies
+are compared as JSON).  ``--profile`` adds the after path's cProfile (tottime, top 25).
+
+    python tests/benchmarks/small_request.py [--runs 5] [--rows 2000] [--profile]
+"""
+
+from __future__ import annotations
+
+import argparse
+import cProfile
+import math
+import os
+import pstats
+import sys
+
+sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", ".."))
+
+from tests.benchmarks._common import Timer, machine, pin_blas
+
+pin_blas(1)
+
+import numpy as np
+import orjson
+from service.api import encode
+from service.api.options import selection_job
+from service.api.schemas import SelectionRequest
+from service.core import _smear_tree as st
+from service.core import model
+from service.selection import entries, search
+from service.selection.request import Service, run_selection
+from service.version import __version__
+from tests.benchmarks.smearing import largest_change, request
+
+KEYS = ("bench", {"bench": b"a key of this benchmark, 32+ characters long"})
+
+
+def item_walk(obj):
+    """``to_jsonable`` as it was: one call per item of every list."""
+    if isinstance(obj, dict):
+        return {str(k): item_walk(v) for k, v in obj.items() if not str(k).startswith("_")}
+    if isinstance(obj, (list, tuple)):
+        return [item_walk(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [item_walk(v) for v in obj.tolist()]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        f = float(obj)
+        if not math.isfinite(f):
+            raise ValueError("non-finite number in a response body")
+        return f
+    return encode.to_jsonable(obj)  # typed results: rendered as the service does
+
+
+class Before:
+    """Patches that restore the earlier paths while the block runs."""
+
+    def __enter__(self):
+        self.saved = (model.seal, entries.seal, search.entry_for, st._binned_block)
+        seal, entry_for, block = model.seal, search.entry_for, st._binned_block
+
+        def seal_no_keep(body, keep=False):
+            return seal(body)
+
+        def entry_sealed(*a, **k):
+            return entry_for(*a, **{**k, "sealed": True})
+
+        def block_counting(*a, **k):
+            return block(*a, **{**k, "clip": False})
+
+        model.seal = entries.seal = seal_no_keep
+        search.entry_for = entry_sealed
+        st._binned_block = block_counting
+        return self
+
+    def __exit__(self, *exc):
+        model.seal, entries.seal, search.entry_for, st._binned_block = self.saved
+
+
+def answer(req: SelectionRequest, keys, walk) -> bytes:
+    """What the route writes: the selection body, rendered and encoded."""
+    body = run_selection(selection_job(req), Service(__version__, keys))
+    return orjson.dumps(walk(body))
+
+
+def count_dumps(fn) -> int:
+    calls = [0]
+    real = model.canonical_bytes
+
+    def counted(body):
+        calls[0] += 1
+        return real(body)
+
+    model.canonical_bytes = counted
+    try:
+        fn()
+    finally:
+        model.canonical_bytes = real
+    return calls[0]
+
+
+def compare(req: SelectionRequest, runs: int) -> None:
+    for label, keys in (("unsigned", None), ("signed", KEYS)):
+        best = {"before": [math.inf, math.inf], "after": [math.inf, math.inf]}
+        out = {}
+        dumps = {}
+        for _ in range(runs):
+            for mode in ("before", "after"):
+                if mode == "before":
+                    with Before(), Timer() as t:
+                        out[mode] = answer(req, keys, item_walk)
+                else:
+                    with Timer() as t:
+                        out[mode] = answer(req, keys, encode.to_jsonable)
+                best[mode][0] = min(best[mode][0], t.cpu)
+                best[mode][1] = min(best[mode][1], t.wall)
+        with Before():
+            dumps["before"] = count_dumps(lambda k=keys: answer(req, k, item_walk))
+        dumps["after"] = count_dumps(lambda k=keys: answer(req, k, encode.to_jsonable))
+        print(f"- {label} artifacts")
+        for mode, (cpu, wall) in best.items():
+            print(
+                f"  {mode:6s} {cpu:6.3f} s CPU {wall:6.3f} s wall (best of {runs}); "
+                f"{dumps[mode]} canonical dumps"
+            )
+        a, b = orjson.loads(out["before"]), orjson.loads(out["after"])
+        sigs = [(e["model"]["checksum"], e["model"]["signature"]) for e in a["ranking"]] == [
+            (e["model"]["checksum"], e["model"]["signature"]) for e in b["ranking"]
+        ]
+        print(
+            f"  ratio (CPU) {best['before'][0] / best['after'][0]:.2f}x; same checksums and "
+            f"signatures: {sigs}; largest relative change of any number "
+            f"{largest_change(a, b):.1e}"
+        )
+
+
+def profile(req: SelectionRequest) -> None:
+    prof = cProfile.Profile()
+    prof.enable()
+    answer(req, KEYS, encode.to_jsonable)
+    prof.disable()
+    pstats.Stats(prof).sort_stats("tottime").print_stats(25)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--runs", type=int, default=5)
+    ap.add_argument("--rows", type=int, default=2000)
+    ap.add_argument("--profile", action="store_true")
+    args = ap.parse_args()
+    print(machine())
+    req = request(args.rows)
+    answer(req, None, encode.to_jsonable)  # imports and caches
+    print(f"the {args.rows} x 1 default request, answered in process")
+    compare(req, args.runs)
+    if args.profile:
+        profile(req)
+
+
+if __name__ == "__main__":
+    main()
