@@ -479,6 +479,8 @@ MORE_CONTRACT_NAMES = frozenset(
         "r2",
         "df_model",
         "df_resid",
+        "lags",
+        "common_practice_range",
     ]
 )
 #: files of the lower floors that still build contract dicts, and how many contract names
@@ -486,10 +488,8 @@ MORE_CONTRACT_NAMES = frozenset(
 #: count may only fall; the test fails when a file writes more, or fewer without this table
 #: saying so)
 NOT_YET_RENDERED = {
-    "core/_condition_tests.py": 43,
     "core/batchcv.py": 3,
     "core/boxtidwell.py": 11,
-    "core/conditions.py": 96,
     "core/cvplus.py": 17,
     "core/cvresult.py": 3,
     "core/drift.py": 30,
@@ -509,7 +509,6 @@ NOT_YET_RENDERED = {
     "core/transforms/value.py": 1,
     "report/html.py": 11,
     "selection/candidates.py": 1,
-    "selection/cautions.py": 6,
     "selection/diagnose.py": 7,
     "selection/entries.py": 32,
     "selection/groups.py": 12,

@@ -1,10 +1,11 @@
 """Private helpers for :mod:`service.core.conditions` and :mod:`service.core.plots`.
 
 One ordinary-least-squares fit (:class:`Fit`) is shared by every check, and each published
-test has one guarded runner that returns a JSON-friendly entry
-``{"name", "statistic", "p_value", ...}``.  A test that cannot run (too few rows, a singular
+test has one guarded runner (:func:`guarded`) that returns a frozen, typed result: a
+:class:`Check` subclass named for the test (its contract form is written in
+``service/api/render/conditions.py``).  A test that cannot run (too few rows, a singular
 auxiliary regression, zero residuals) returns ``statistic``/``p_value`` ``None`` and a
-``reason``; it never raises and never returns NaN or infinity.
+``reason``; it never raises and never holds NaN or infinity.
 
 Every least-squares computation runs on one thin singular value decomposition of the
 design (:class:`LeastSquares`, the decomposition statsmodels' ``pinv`` fit makes): the fit,
@@ -30,8 +31,8 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
-from typing import Any
+from dataclasses import dataclass, fields, replace
+from typing import Any, ClassVar, TypeVar
 
 import numpy as np
 from scipy import stats
@@ -67,24 +68,171 @@ def num(value: Any) -> float | None:
     return out if math.isfinite(out) else None
 
 
-def guarded(name: str, compute: Callable[[], dict[str, Any]], **meta: Any) -> dict[str, Any]:
-    """Run one test; on failure return the entry with ``None`` numbers and a ``reason``."""
-    entry: dict[str, Any] = {"name": name, "statistic": None, "p_value": None, **meta}
+# ------------------------------------------------------------------------- typed results
+#: what a curvature check fits
+CURVATURE_FORM = "t-test of the squared (centred) predictor added to the model"
+#: the share of rows in the rainbow test's central part
+RAINBOW_FRAC = 0.5
+#: what RESET adds to the model
+RESET_FORM = "F test of fitted^2 and fitted^3 (standardised fitted values)"
+#: the form of the Breusch-Pagan statistic
+BREUSCH_PAGAN_FORM = "Koenker (1981) studentised LM = n R^2 of e^2 on the model's regressors"
+#: common-practice range of an unremarkable Durbin-Watson d, and the rule that reads it
+DURBIN_WATSON_RANGE = (1.5, 2.5)
+DURBIN_WATSON_RULE = "common practice: 1.5 <= d <= 2.5 is unremarkable; no p-value is computed"
+
+
+@dataclass(frozen=True, kw_only=True)
+class Check:
+    """One test of a condition.
+
+    ``statistic`` and ``p_value`` are finite floats or ``None``; ``reason`` says why the
+    statistic is missing.  ``ran`` is true when the computation finished, so the test's
+    by-products (degrees of freedom, F form, ...) are reported; ``primary`` says whether the
+    test decides its condition (``None`` for tests outside the decision, e.g. thresholds).
+    """
+
+    name: str
+    statistic: float | None = None
+    p_value: float | None = None
+    reason: str | None = None
+    ran: bool = False
+    primary: bool | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class ResetCheck(Check):
+    """Ramsey's RESET; ``powers`` of the fitted values added, ``df`` (numerator, denominator)."""
+
+    form: ClassVar[str] = RESET_FORM
+    source: ClassVar[str] = src.RESET
+    powers: tuple[int, ...] = (2, 3)
+    df: tuple[float, float] | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class RainbowCheck(Check):
+    """Utts' rainbow test on the central :data:`RAINBOW_FRAC` of the rows."""
+
+    frac: ClassVar[float] = RAINBOW_FRAC
+    source: ClassVar[str] = src.RAINBOW
+
+
+@dataclass(frozen=True, kw_only=True)
+class CurvatureCheck(Check):
+    """t-test of the squared (centred) predictor added to the model, for one numeric term."""
+
+    form: ClassVar[str] = CURVATURE_FORM
+    source: ClassVar[str] = src.CURVATURE
+    column: str
+    label: str
+    df: float | None = None
+    curvature_sign: int | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class ShapiroCheck(Check):
+    """Shapiro-Wilk W."""
+
+    source: ClassVar[str] = src.SHAPIRO_WILK
+
+
+@dataclass(frozen=True, kw_only=True)
+class JarqueBeraCheck(Check):
+    """Jarque-Bera with the residuals' skewness and kurtosis."""
+
+    source: ClassVar[str] = src.JARQUE_BERA
+    df: float | None = None
+    skewness: float | None = None
+    kurtosis: float | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class AndersonDarlingCheck(Check):
+    """Anderson-Darling A^2 with estimated mean and standard deviation."""
+
+    source: ClassVar[str] = src.ANDERSON_DARLING
+
+
+@dataclass(frozen=True, kw_only=True)
+class BreuschPaganCheck(Check):
+    """Breusch-Pagan in Koenker's studentised form, with its F form."""
+
+    robust: ClassVar[bool] = True
+    form: ClassVar[str] = BREUSCH_PAGAN_FORM
+    source: ClassVar[str] = src.BREUSCH_PAGAN
+    df: float | None = None
+    f_statistic: float | None = None
+    f_p_value: float | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class WhiteCheck(Check):
+    """White's test, with its F form."""
+
+    source: ClassVar[str] = src.WHITE
+    f_statistic: float | None = None
+    f_p_value: float | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class DurbinWatsonCheck(Check):
+    """Durbin-Watson d (no p-value); read against :data:`DURBIN_WATSON_RANGE`."""
+
+    common_practice_range: ClassVar[tuple[float, float]] = DURBIN_WATSON_RANGE
+    rule: ClassVar[str] = DURBIN_WATSON_RULE
+    source: ClassVar[str] = src.DURBIN_WATSON
+
+
+@dataclass(frozen=True, kw_only=True)
+class BreuschGodfreyCheck(Check):
+    """Breusch-Godfrey LM at ``lags`` lags, with its F form."""
+
+    source: ClassVar[str] = src.BREUSCH_GODFREY
+    lags: int
+    df: float | None = None
+    f_statistic: float | None = None
+    f_p_value: float | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class LjungBoxCheck(Check):
+    """Ljung-Box Q at ``lags`` lags on ``df`` degrees of freedom."""
+
+    source: ClassVar[str] = src.LJUNG_BOX
+    lags: int
+    df: float
+
+
+C = TypeVar("C", bound=Check)
+
+
+def finished(check: C, **more: Any) -> C:
+    """``check`` (with the fields ``more``) with every non-finite number as ``None`` (JSON
+    has no NaN or infinity) and a ``reason`` when the statistic is missing."""
+    changes: dict[str, Any] = {
+        f.name: num(v)
+        for f in fields(check)
+        if isinstance(v := getattr(check, f.name), (float, np.floating, np.integer))
+    }
+    changes.update(more)
+    if changes.get("statistic", check.statistic) is None and check.reason is None:
+        changes["reason"] = "undefined for these data"
+    return replace(check, **changes)
+
+
+def guarded(failed: C, compute: Callable[[], C]) -> C:
+    """Run one test: ``compute()``'s result (:func:`finished`, marked ``ran``), or ``failed``
+    (the test's fixed description) with ``None`` numbers and a ``reason``."""
     try:
         # Degenerate inputs give 0/0 inside numpy; such values are reported as None below.
         with np.errstate(all="ignore"):
             out = compute()
     except NotApplicable as exc:
-        entry["reason"] = str(exc)
-        return entry
+        return replace(failed, reason=str(exc))
     except Exception as exc:
-        entry["reason"] = f"could not be computed ({type(exc).__name__}: {exc})"
-        return entry
-    for key, value in out.items():
-        entry[key] = num(value) if isinstance(value, (float, np.floating, np.integer)) else value
-    if entry["statistic"] is None and "reason" not in entry:
-        entry["reason"] = "undefined for these data"
-    return entry
+        return replace(failed, reason=f"could not be computed ({type(exc).__name__}: {exc})")
+    return finished(out, ran=True)
 
 
 @dataclass(frozen=True, eq=False)
@@ -154,10 +302,20 @@ def _residual_and_rank(y: np.ndarray, A: np.ndarray) -> tuple[np.ndarray, int]:
     return ls.residual(y), ls.rank
 
 
-def _auxiliary(y: np.ndarray, A: np.ndarray) -> dict[str, float]:
-    """Auxiliary regression of ``y`` on ``A`` that contains a constant: R^2 (centred), the
-    overall F statistic and p-value, model and residual degrees of freedom (rank based, as
-    statsmodels' ``OLS(y, A).fit()`` reports them)."""
+@dataclass(frozen=True)
+class Auxiliary:
+    """An auxiliary regression: R^2 (centred), the overall F statistic and its p-value, model
+    and residual degrees of freedom (rank based, as statsmodels' ``OLS(y, A).fit()``)."""
+
+    r2: float
+    f: float
+    f_p: float
+    df_model: float
+    df_resid: float
+
+
+def _auxiliary(y: np.ndarray, A: np.ndarray) -> Auxiliary:
+    """Auxiliary regression of ``y`` on ``A`` that contains a constant (:class:`Auxiliary`)."""
     e, rank = _residual_and_rank(y, A)
     ssr = float(e @ e)
     d = y - y.mean()
@@ -166,13 +324,9 @@ def _auxiliary(y: np.ndarray, A: np.ndarray) -> dict[str, float]:
     df_resid = y.shape[0] - rank
     r2 = 1.0 - ssr / tss
     F = ((tss - ssr) / df_model) / (ssr / df_resid)
-    return {
-        "r2": r2,
-        "F": F,
-        "F_p": float(stats.f.sf(F, df_model, df_resid)),
-        "df_model": float(df_model),
-        "df_resid": float(df_resid),
-    }
+    return Auxiliary(
+        r2, F, float(stats.f.sf(F, df_model, df_resid)), float(df_model), float(df_resid)
+    )
 
 
 @dataclass(frozen=True, eq=False)
@@ -309,7 +463,7 @@ def standardized_regressors(fit: Fit) -> np.ndarray:
 
 
 # ----------------------------------------------------------------------------- linearity
-def reset_test(fit: Fit) -> dict[str, Any]:
+def reset_test(fit: Fit) -> ResetCheck:
     """Ramsey (1969) RESET: F test of adding fitted^2 and fitted^3.
 
     The powers are taken of the standardised fitted values (centred when the model spans a
@@ -317,7 +471,7 @@ def reset_test(fit: Fit) -> dict[str, Any]:
     conditioned (statsmodels' ``linear_reset`` loses the answer on Longley).
     """
 
-    def compute() -> dict[str, Any]:
+    def compute() -> ResetCheck:
         _require_residuals(fit)
         f = fit.fitted
         s = (f - f.mean()) if fit.spans_constant else f
@@ -345,26 +499,22 @@ def reset_test(fit: Fit) -> dict[str, Any]:
             raise NotApplicable(f"too few rows ({fit.n}) for the RESET auxiliary regression")
         rss_u = float(np.sum(added.residual(fit.resid) ** 2))
         F = (fit.rss - rss_u) / df_num / rss_u * df_u
-        return {
-            "statistic": F,
-            "p_value": float(stats.f.sf(F, df_num, df_u)),
-            "df": [float(df_num), float(df_u)],
-            "powers": [k + 2 for k in use],
-        }
+        return replace(
+            failed,
+            statistic=F,
+            p_value=float(stats.f.sf(F, df_num, df_u)),
+            df=(float(df_num), float(df_u)),
+            powers=tuple(k + 2 for k in use),
+        )
 
-    return guarded(
-        "Ramsey RESET",
-        compute,
-        powers=[2, 3],
-        form="F test of fitted^2 and fitted^3 (standardised fitted values)",
-        source=src.RESET,
-    )
+    failed = ResetCheck(name="Ramsey RESET")
+    return guarded(failed, compute)
 
 
-def rainbow_test(fit: Fit) -> dict[str, Any]:
+def rainbow_test(fit: Fit) -> RainbowCheck:
     """Utts (1982) rainbow test, central half of the rows by Mahalanobis distance."""
 
-    def compute() -> dict[str, Any]:
+    def compute() -> RainbowCheck:
         _require_residuals(fit)
         if fit.n_predictor_columns == 0:
             raise NotApplicable("the model has no predictors")
@@ -373,8 +523,8 @@ def rainbow_test(fit: Fit) -> dict[str, Any]:
                 f"omitted above {RAINBOW_MAX_N} rows to keep within the computing budget "
                 f"(n = {fit.n}); RESET and the curvature checks still use every row"
             )
-        low = math.ceil(0.25 * fit.n)
-        if math.floor(low + 0.5 * fit.n) - low <= fit.X.shape[1]:
+        low = math.ceil((1 - RAINBOW_FRAC) / 2 * fit.n)
+        if math.floor(low + RAINBOW_FRAC * fit.n) - low <= fit.X.shape[1]:
             raise NotApplicable(
                 f"too few rows ({fit.n}) for a central half larger than the number of coefficients"
             )
@@ -384,19 +534,15 @@ def rainbow_test(fit: Fit) -> dict[str, Any]:
         err = X - X.mean(axis=0, keepdims=True)
         vi = np.linalg.pinv(err.T @ err / fit.n)
         dist2 = np.einsum("ij,ij->i", err @ vi, err)  # squared distance: the same order
-        idx = np.lexsort((*X.T[::-1], dist2))[low : math.floor(low + 0.5 * fit.n)]
+        idx = np.lexsort((*X.T[::-1], dist2))[low : math.floor(low + RAINBOW_FRAC * fit.n)]
         mid = LeastSquares.of(X[idx])  # a half-sample may lose a rare dummy level: rank df
         ss_mid = float(np.sum(mid.residual(fit.z[idx]) ** 2))
         df_mid = idx.size - mid.rank
         F = (fit.rss - ss_mid) / (fit.n - idx.size) / ss_mid * df_mid
-        return {"statistic": F, "p_value": float(stats.f.sf(F, fit.n - idx.size, df_mid))}
+        return replace(failed, statistic=F, p_value=float(stats.f.sf(F, fit.n - idx.size, df_mid)))
 
-    return guarded(
-        "Rainbow (Utts)",
-        compute,
-        frac=0.5,
-        source=src.RAINBOW,
-    )
+    failed = RainbowCheck(name="Rainbow (Utts)")
+    return guarded(failed, compute)
 
 
 def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, float, int]:
@@ -419,7 +565,22 @@ def added_variable_ttest(fit: Fit, v: np.ndarray) -> tuple[float, float, float, 
     return coef, t, float(2 * stats.t.sf(abs(t), df)), df
 
 
-def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict[str, Any]:
+@dataclass(frozen=True)
+class Curvature:
+    """A predictor's partial-residual curve (:func:`curvature`): the linear and quadratic
+    coefficients, the t-test of the square added to the model, and whether the curve is
+    monotone and read against the flipped scale."""
+
+    slope: float
+    curvature: float
+    t: float
+    p_value: float
+    df: int
+    monotone: bool
+    flipped: bool
+
+
+def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> Curvature:
     """Curvature of a predictor's partial residuals (component plus residual).
 
     The partial residual e + b_j w_j is regressed on the centred predictor u and u^2, where u
@@ -452,22 +613,22 @@ def curvature(fit: Fit, j: int, raw: np.ndarray | None) -> dict[str, Any]:
     means = [float(partial[g].mean()) for g in groups if g.any()]  # ties can empty the middle
     steps = np.sign(np.diff(means))
     monotone = bool(steps.size and np.all(steps == np.sign(coefs[1])) and coefs[1] != 0)
-    return {
-        "slope": float(coefs[1]),
-        "curvature": float(coefs[2]),
-        "t": t_value,
-        "p_value": p_value,
-        "df": df,
-        "monotone": monotone,
-        "flipped": sign < 0,
-    }
+    return Curvature(
+        slope=float(coefs[1]),
+        curvature=float(coefs[2]),
+        t=t_value,
+        p_value=p_value,
+        df=df,
+        monotone=monotone,
+        flipped=sign < 0,
+    )
 
 
 # ----------------------------------------------------------------------------- normality
-def shapiro_test(fit: Fit) -> dict[str, Any]:
+def shapiro_test(fit: Fit) -> ShapiroCheck:
     """Shapiro & Wilk (1965) W, scipy (Royston 1995 algorithm); 3 <= n <= 5000 only."""
 
-    def compute() -> dict[str, Any]:
+    def compute() -> ShapiroCheck:
         _require_residuals(fit)
         if fit.n < 3:
             raise NotApplicable("Shapiro-Wilk needs at least 3 rows")
@@ -477,80 +638,71 @@ def shapiro_test(fit: Fit) -> dict[str, Any]:
                 f"(n = {fit.n})"
             )
         out = stats.shapiro(fit.resid)
-        return {"statistic": out.statistic, "p_value": out.pvalue}
+        return replace(failed, statistic=out.statistic, p_value=out.pvalue)
 
-    return guarded("Shapiro-Wilk", compute, source=src.SHAPIRO_WILK)
+    failed = ShapiroCheck(name="Shapiro-Wilk")
+    return guarded(failed, compute)
 
 
-def jarque_bera_test(fit: Fit) -> dict[str, Any]:
+def jarque_bera_test(fit: Fit) -> JarqueBeraCheck:
     """Jarque & Bera (1980) skewness-kurtosis test, statsmodels."""
 
-    def compute() -> dict[str, Any]:
+    def compute() -> JarqueBeraCheck:
         _require_residuals(fit)
         jb, p, skew, kurt = smt.jarque_bera(fit.resid)
-        return {"statistic": jb, "p_value": p, "df": 2.0, "skewness": skew, "kurtosis": kurt}
+        return replace(failed, statistic=jb, p_value=p, df=2.0, skewness=skew, kurtosis=kurt)
 
-    return guarded(
-        "Jarque-Bera",
-        compute,
-        source=src.JARQUE_BERA,
-    )
+    failed = JarqueBeraCheck(name="Jarque-Bera")
+    return guarded(failed, compute)
 
 
-def anderson_darling_test(fit: Fit) -> dict[str, Any]:
+def anderson_darling_test(fit: Fit) -> AndersonDarlingCheck:
     """Anderson & Darling (1952) A^2 with estimated mean and sd (Stephens 1974), statsmodels."""
 
-    def compute() -> dict[str, Any]:
+    def compute() -> AndersonDarlingCheck:
         _require_residuals(fit)
         if fit.n < 8:
             raise NotApplicable(
                 "Anderson-Darling p-values use an approximation meant for at least 8 rows"
             )
         a2, p = smd.normal_ad(fit.resid)
-        return {"statistic": a2, "p_value": p}
+        return replace(failed, statistic=a2, p_value=p)
 
-    return guarded(
-        "Anderson-Darling",
-        compute,
-        source=src.ANDERSON_DARLING,
-    )
+    failed = AndersonDarlingCheck(name="Anderson-Darling")
+    return guarded(failed, compute)
 
 
 # ------------------------------------------------------------------------ equal variance
-def breusch_pagan_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
+def breusch_pagan_test(fit: Fit, Z: np.ndarray | None) -> BreuschPaganCheck:
     """Breusch & Pagan (1979) LM test in Koenker's (1981) studentised form (robust=True).
 
     ``Z`` is :func:`standardized_regressors` of the fit (``None`` when it has no residuals).
     """
 
-    def compute() -> dict[str, Any]:
+    def compute() -> BreuschPaganCheck:
         _require_residuals(fit)
         assert Z is not None  # absent only when the fit has no residuals
         if Z.shape[1] < 2:
             raise NotApplicable("the model has no predictors to relate the spread to")
         aux = _auxiliary(fit.resid**2, Z)
-        lm = fit.n * aux["r2"]
-        return {
-            "statistic": lm,
-            "p_value": float(stats.chi2.sf(lm, aux["df_model"])),
-            "df": float(Z.shape[1] - 1),
-            "f_statistic": aux["F"],
-            "f_p_value": aux["F_p"],
-        }
+        lm = fit.n * aux.r2
+        return replace(
+            failed,
+            statistic=lm,
+            p_value=float(stats.chi2.sf(lm, aux.df_model)),
+            df=float(Z.shape[1] - 1),
+            f_statistic=aux.f,
+            f_p_value=aux.f_p,
+        )
 
-    return guarded(
-        "Breusch-Pagan (Koenker studentised)",
-        compute,
-        robust=True,
-        form="Koenker (1981) studentised LM = n R^2 of e^2 on the model's regressors",
-        source=src.BREUSCH_PAGAN,
-    )
+    failed = BreuschPaganCheck(name="Breusch-Pagan (Koenker studentised)")
+    return guarded(failed, compute)
 
 
-def white_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
+def white_test(fit: Fit, Z: np.ndarray | None) -> WhiteCheck:
     """White (1980) test: e^2 on the regressors, their squares and cross-products."""
 
-    def compute() -> dict[str, Any]:
+    def compute() -> WhiteCheck:
         _require_residuals(fit)
         assert Z is not None  # absent only when the fit has no residuals
         k = Z.shape[1]
@@ -570,32 +722,28 @@ def white_test(fit: Fit, Z: np.ndarray | None) -> dict[str, Any]:
         i0, i1 = np.triu_indices(k)
         # squares of 0/1 dummies repeat them: degrees of freedom use the rank
         aux = _auxiliary(fit.resid**2, Z[:, i0] * Z[:, i1])
-        lm = fit.n * aux["r2"]
-        return {
-            "statistic": lm,
-            "p_value": float(stats.chi2.sf(lm, aux["df_model"])),
-            "f_statistic": aux["F"],
-            "f_p_value": aux["F_p"],
-        }
+        lm = fit.n * aux.r2
+        return replace(
+            failed,
+            statistic=lm,
+            p_value=float(stats.chi2.sf(lm, aux.df_model)),
+            f_statistic=aux.f,
+            f_p_value=aux.f_p,
+        )
 
-    return guarded("White", compute, source=src.WHITE)
+    failed = WhiteCheck(name="White")
+    return guarded(failed, compute)
 
 
 # -------------------------------------------------------------------------- independence
-def durbin_watson_test(resid_ordered: np.ndarray) -> dict[str, Any]:
+def durbin_watson_test(resid_ordered: np.ndarray) -> DurbinWatsonCheck:
     """Durbin & Watson (1950, 1951) d on the ordered residuals; statsmodels gives no p-value."""
 
-    def compute() -> dict[str, Any]:
-        d = smt.durbin_watson(resid_ordered)
-        return {"statistic": d, "p_value": None}
+    def compute() -> DurbinWatsonCheck:
+        return replace(failed, statistic=smt.durbin_watson(resid_ordered))
 
-    return guarded(
-        "Durbin-Watson",
-        compute,
-        common_practice_range=[1.5, 2.5],
-        rule="common practice: 1.5 <= d <= 2.5 is unremarkable; no p-value is computed",
-        source=src.DURBIN_WATSON,
-    )
+    failed = DurbinWatsonCheck(name="Durbin-Watson")
+    return guarded(failed, compute)
 
 
 def breusch_godfrey_lags(n: int) -> int:
@@ -603,11 +751,11 @@ def breusch_godfrey_lags(n: int) -> int:
     return min(4, max(1, n // 25))
 
 
-def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict[str, Any]:
+def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> BreuschGodfreyCheck:
     """Breusch (1978) / Godfrey (1978) LM test on an OLS refit with rows in ``order``."""
     nlags = breusch_godfrey_lags(fit.n)
 
-    def compute() -> dict[str, Any]:
+    def compute() -> BreuschGodfreyCheck:
         _require_residuals(fit)
         extra = 0 if fit.spans_constant else 1  # a constant is added if X lacks one
         if fit.df_resid - nlags - extra < 1:
@@ -635,43 +783,35 @@ def breusch_godfrey_test(fit: Fit, order: np.ndarray) -> dict[str, Any]:
         d = e - e.mean()
         lm = fit.n * (1.0 - rss_u / float(d @ d))
         F = (rss_r - rss_u) / nlags / (rss_u / df_u)
-        return {
-            "statistic": lm,
-            "p_value": float(stats.chi2.sf(lm, nlags)),
-            "df": float(nlags),
-            "f_statistic": F,
-            "f_p_value": float(stats.f.sf(F, nlags, df_u)),
-        }
+        return replace(
+            failed,
+            statistic=lm,
+            p_value=float(stats.chi2.sf(lm, nlags)),
+            df=float(nlags),
+            f_statistic=F,
+            f_p_value=float(stats.f.sf(F, nlags, df_u)),
+        )
 
-    return guarded(
-        "Breusch-Godfrey",
-        compute,
-        lags=nlags,
-        source=src.BREUSCH_GODFREY,
-    )
+    failed = BreuschGodfreyCheck(name="Breusch-Godfrey", lags=nlags)
+    return guarded(failed, compute)
 
 
-def ljung_box_test(resid_ordered: np.ndarray) -> dict[str, Any]:
+def ljung_box_test(resid_ordered: np.ndarray) -> LjungBoxCheck:
     """Ljung & Box (1978) Q at lag min(10, n // 5) on the ordered residuals."""
     n = int(resid_ordered.shape[0])
     lags = min(10, n // 5)
 
-    def compute() -> dict[str, Any]:
+    def compute() -> LjungBoxCheck:
         if lags < 1:
             raise NotApplicable("Ljung-Box needs at least 5 rows")
         if np.ptp(resid_ordered) == 0:
             raise NotApplicable("the residuals are constant")
         r = acf(resid_ordered, nlags=lags, fft=True)[1:]
         q = n * (n + 2) * float(np.sum(r**2 / (n - np.arange(1, lags + 1))))
-        return {"statistic": q, "p_value": stats.chi2.sf(q, lags)}
+        return replace(failed, statistic=q, p_value=stats.chi2.sf(q, lags))
 
-    return guarded(
-        "Ljung-Box",
-        compute,
-        lags=lags,
-        df=float(max(lags, 0)),
-        source=src.LJUNG_BOX,
-    )
+    failed = LjungBoxCheck(name="Ljung-Box", lags=lags, df=float(max(lags, 0)))
+    return guarded(failed, compute)
 
 
 # --------------------------------------------------------------------- multicollinearity

@@ -15,11 +15,14 @@ fails a condition the response says so in a warning.
 
 from __future__ import annotations
 
-from typing import Any
-
 import numpy as np
 
-from .conditions import CONDITION_NAMES, ConditionInputs, assess_conditions
+from .conditions import (
+    ConditionInputs,
+    ConditionReport,
+    TransformHint,
+    assess_conditions,
+)
 from .data import Prepared
 from .fitting import OLSFit
 from .spec import Design
@@ -42,20 +45,20 @@ def condition_inputs(
 
 def conditions_for(
     design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray, alpha: float
-) -> tuple[dict[str, Any], list[dict[str, Any]]]:
-    """(conditions block of the contract, transform hints)."""
+) -> tuple[ConditionReport, tuple[TransformHint, ...]]:
+    """(the conditions, the transform hints) of one fitted specification."""
     out = assess_conditions(condition_inputs(design, fit, prep, z, alpha))
-    hints = out.pop("hints", [])
-    return {k: out[k] for k in CONDITION_NAMES}, hints
+    return out, out.hints
 
 
-def failed(conditions: dict[str, Any] | None) -> list[str]:
-    if not conditions:
+def failed(conditions: ConditionReport | None) -> list[str]:
+    """The conditions that do not hold, in the order of :data:`CONDITION_NAMES`."""
+    if conditions is None:
         return []
-    return [c for c in CONDITION_NAMES if conditions.get(c, {}).get("holds") is False]
+    return [name for name, c in conditions.named() if c.holds is False]
 
 
-def clear_failures(conditions: dict[str, Any] | None, alpha: float, members: int = 1) -> list[str]:
+def clear_failures(conditions: ConditionReport | None, alpha: float, members: int = 1) -> list[str]:
     """Conditions this member fails clearly: at the level of every test that can reorder
     the band.
 
@@ -67,21 +70,21 @@ def clear_failures(conditions: dict[str, Any] | None, alpha: float, members: int
     is not a p-value at the level of one test.  Conditions judged by thresholds (no
     p-value) fail clearly when they do not hold.
     """
-    if not conditions:
+    if conditions is None:
         return []
-    tested = [c for c in CONDITION_NAMES if conditions.get(c, {}).get("holds") is not None]
+    tested = [name for name, c in conditions.named() if c.holds is not None]
     level = alpha / (max(len(tested), 1) * max(members, 1))
     out = []
-    for c in failed(conditions):
-        tests = [t for t in conditions[c].get("tests", []) if isinstance(t.get("p_value"), float)]
-        deciding = [t for t in tests if t.get("primary")] or tests
-        ps = [t["p_value"] for t in deciding]
+    for name in failed(conditions):
+        tests = [t for t in conditions.of(name).tests if t.p_value is not None]
+        deciding = [t for t in tests if t.primary] or tests
+        ps = [t.p_value for t in deciding if t.p_value is not None]
         if not ps or min(ps) < level:
-            out.append(c)
+            out.append(name)
     return out
 
 
-def ordering_conditions(members: list[dict[str, Any] | None], alpha: float) -> frozenset[str]:
+def ordering_conditions(members: list[ConditionReport | None], alpha: float) -> frozenset[str]:
     """The conditions that reorder a band of compared ``members``.
 
     A condition takes part when the band gives clear evidence about it: some member fails
@@ -92,11 +95,11 @@ def ordering_conditions(members: list[dict[str, Any] | None], alpha: float) -> f
     """
     m = len(members)
     clear = {c for cond in members for c in clear_failures(cond, alpha, m)}
-    met = {c for cond in members if cond for c in CONDITION_NAMES if cond.get(c, {}).get("holds")}
+    met = {name for cond in members if cond for name, c in cond.named() if c.holds}
     return frozenset(clear & met)
 
 
-def failed_for_ranking(conditions: dict[str, Any] | None, ordering: frozenset[str]) -> list[str]:
+def failed_for_ranking(conditions: ConditionReport | None, ordering: frozenset[str]) -> list[str]:
     """Conditions that count against a member: those of ``ordering``
     (:func:`ordering_conditions`) that it does not meet at alpha, the same standard for
     every member."""

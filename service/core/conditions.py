@@ -3,8 +3,11 @@
 :func:`assess_conditions` tests linearity, normality, equal variance, independence,
 multicollinearity and influence on one candidate's model-scale residuals;
 :func:`transform_hints` reads Tukey's bulging rule from each numeric predictor's partial
-residuals.  Every condition reports ``holds`` (``True``/``False``/``None``), its ``tests``, a
-one-sentence ``note`` and the ``rule`` that decided ``holds``.
+residuals.  The results are frozen and typed (:class:`ConditionReport`, one
+:class:`Condition` per condition, :class:`TransformHint`); their contract form is written in
+``service/api/render/conditions.py``.  Every condition reports ``holds``
+(``True``/``False``/``None``), its ``tests``, a one-sentence ``note`` and the ``rule`` that
+decided ``holds``.
 
 Multiplicity: each condition reports several tests, but ``holds`` is decided by one primary
 test per condition (RESET, Shapiro-Wilk or Jarque-Bera, Breusch-Pagan in Koenker's form,
@@ -22,8 +25,8 @@ Mosteller & Tukey (1977).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Any
+from dataclasses import dataclass, replace
+from typing import ClassVar
 
 import numpy as np
 from scipy import stats
@@ -103,25 +106,182 @@ def validate(inp: ConditionInputs) -> tuple[np.ndarray, np.ndarray]:
     return z, X
 
 
+# --------------------------------------------------------------------------- typed results
+@dataclass(frozen=True)
+class Condition:
+    """One condition: whether it ``holds`` (``None``: not assessed), the ``tests`` read
+    (the deciding one marked ``primary``), a one-sentence ``note`` and the ``rule`` that
+    decided ``holds``."""
+
+    holds: bool | None
+    tests: tuple[ct.Check, ...]
+    note: str
+    rule: str
+
+
+@dataclass(frozen=True)
+class UnorderedIndependence(Condition):
+    """Independence of rows sent without an order: ``holds`` is ``None`` and no test is run,
+    since no test on unordered rows can settle it."""
+
+
+@dataclass(frozen=True, kw_only=True)
+class LargestVifCheck(ct.Check):
+    """The largest variance inflation factor (GVIF^(1/df) for a dummy set) and its term."""
+
+    threshold: ClassVar[tuple[float, float]] = (VIF_WARN, VIF_FAIL)  # (warn, fail)
+    rule: ClassVar[str] = "common practice"
+    source: ClassVar[str] = src.GVIF
+    term: str | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class ConditionNumberCheck(ct.Check):
+    """Belsley, Kuh & Welsch's scaled condition number and the condition indices."""
+
+    threshold: ClassVar[float] = CONDITION_WARN
+    rule: ClassVar[str] = "common practice"
+    source: ClassVar[str] = src.CONDITION_NUMBER
+    condition_indices: tuple[float, ...] = ()
+
+
+@dataclass(frozen=True, kw_only=True)
+class ExtremeRowCheck(ct.Check):
+    """The most extreme row by one influence measure, against its common-practice cut-off
+    (``fail_threshold`` for Cook's distance); ``df`` for the outlier test's t."""
+
+    rule: ClassVar[str] = "common practice"
+    row: int | None = None
+    threshold: float
+    fail_threshold: float | None = None
+    source: str
+    df: float | None = None
+
+
+@dataclass(frozen=True)
+class VifRow:
+    """One predictor's (generalised) variance inflation factor and its common-practice level."""
+
+    term: str
+    column: str
+    df: int
+    vif: float | None  # GVIF^(1/df), compared with the cut-offs
+    gvif: float | None
+    gvif_adjusted: float | None  # GVIF^(1/(2 df)) (Fox & Monette 1992)
+    level: str  # "ok", "warn" or "fail"
+
+
+@dataclass(frozen=True)
+class MulticollinearityCondition(Condition):
+    level: str
+    vif: tuple[VifRow, ...]
+    condition_number: float | None
+
+
+@dataclass(frozen=True)
+class Cutoffs:
+    """The common-practice influence cut-offs for ``n`` rows and ``p`` coefficients."""
+
+    cooks_flag: float  # 4/n
+    cooks_fail: float  # 1
+    leverage: float  # 2p/n
+    dffits: float  # 2 sqrt(p/n)
+    studentized: float  # 3
+
+
+@dataclass(frozen=True)
+class FlaggedRow:
+    """A row over some screening cut-off, with its measures and the cut-offs it exceeds."""
+
+    row: int
+    reasons: tuple[str, ...]
+    cooks_distance: float | None
+    leverage: float | None
+    dffits: float | None
+    studentized_residual: float | None
+
+
+@dataclass(frozen=True)
+class InfluenceCondition(Condition):
+    """``flagged_rows`` lists at most :data:`MAX_FLAGGED_ROWS` of the ``n_flagged`` rows;
+    ``cutoffs`` is ``None`` when influence could not be measured."""
+
+    flagged_rows: tuple[FlaggedRow, ...]
+    n_flagged: int
+    cutoffs: Cutoffs | None = None
+
+    @property
+    def flagged_rows_truncated(self) -> bool:
+        return self.n_flagged > len(self.flagged_rows)
+
+
+@dataclass(frozen=True, kw_only=True)
+class TransformHint:
+    """Tukey's bulging-rule reading of one numeric predictor (:func:`transform_hints`); the
+    readings are ``None`` where the curve could not be read, the bulge and directions
+    ``None`` unless the rule applies."""
+
+    column: str
+    label: str
+    slope_sign: int | None = None
+    curvature_sign: int | None = None
+    bulge: str | None = None
+    x_direction: str | None = None
+    y_direction: str | None = None
+    p_value: float | None = None
+    monotone: bool | None = None
+    sentence: str
+
+
+@dataclass(frozen=True)
+class ConditionReport:
+    """The six conditions of one fit and its transform hints.  The contract's ``conditions``
+    block holds the six conditions; the hints are the entry's ``transform_hints``."""
+
+    linearity: Condition
+    normality: Condition
+    equal_variance: Condition
+    independence: Condition
+    multicollinearity: MulticollinearityCondition
+    influence: InfluenceCondition
+    hints: tuple[TransformHint, ...] = ()
+
+    def named(self) -> tuple[tuple[str, Condition], ...]:
+        """(name, condition) pairs in the order of :data:`CONDITION_NAMES`."""
+        return tuple((c, self.of(c)) for c in CONDITION_NAMES)
+
+    def of(self, name: str) -> Condition:
+        """The condition called ``name`` (one of :data:`CONDITION_NAMES`)."""
+        if name not in CONDITION_NAMES:
+            raise KeyError(name)
+        out: Condition = getattr(self, name)
+        return out
+
+
 def _numeric_terms(inp: ConditionInputs) -> list[TermInfo]:
     return [t for t in inp.terms if t.kind == "numeric" and len(t.indices) == 1]
 
 
-def _unavailable(reason: str, rule: str, **extra: Any) -> dict[str, Any]:
-    return {"holds": None, "tests": [], "note": f"Not assessed: {reason}.", "rule": rule, **extra}
+def _not_assessed(reason: str) -> str:
+    return f"Not assessed: {reason}."
 
 
-def _decide(entry: dict[str, Any], alpha: float) -> bool | None:
-    p = entry.get("p_value")
+def _decide(check: ct.Check, alpha: float) -> bool | None:
+    p = check.p_value
     return None if p is None else bool(p >= alpha)
+
+
+def _marked(tests: tuple[ct.Check, ...], primary: ct.Check) -> tuple[ct.Check, ...]:
+    """``tests`` with the deciding one marked ``primary``."""
+    return tuple(replace(t, primary=t is primary) for t in tests)
 
 
 # ---------------------------------------------------------------------------- linearity
 def _curvatures(
     fit: ct.Fit, inp: ConditionInputs
-) -> list[tuple[TermInfo, dict[str, Any] | Exception]]:
+) -> list[tuple[TermInfo, ct.Curvature | Exception]]:
     """The partial-residual curvature reading of each numeric term (shared by checks and hints)."""
-    out: list[tuple[TermInfo, dict[str, Any] | Exception]] = []
+    out: list[tuple[TermInfo, ct.Curvature | Exception]] = []
     for term in _numeric_terms(inp):
         raw = None if term.raw is None else np.asarray(term.raw, dtype=float)
         try:
@@ -132,36 +292,37 @@ def _curvatures(
     return out
 
 
-def _curvature_entries(
-    curves: list[tuple[TermInfo, dict[str, Any] | Exception]],
-) -> list[dict[str, Any]]:
+def _curvature_checks(
+    curves: list[tuple[TermInfo, ct.Curvature | Exception]],
+) -> list[ct.CurvatureCheck]:
     out = []
     for term, c in curves:
+        failed = ct.CurvatureCheck(
+            name=f"Curvature of partial residuals: {term.label}",
+            column=term.column,
+            label=term.label,
+        )
 
-        def compute(c: dict[str, Any] | Exception = c) -> dict[str, Any]:
+        def compute(
+            c: ct.Curvature | Exception = c, failed: ct.CurvatureCheck = failed
+        ) -> ct.CurvatureCheck:
             if isinstance(c, Exception):
                 raise c
-            return {
-                "statistic": c["t"],
-                "p_value": c["p_value"],
-                "df": float(c["df"]),
-                "curvature_sign": int(np.sign(c["curvature"])),
-            }
-
-        out.append(
-            ct.guarded(
-                f"Curvature of partial residuals: {term.label}",
-                compute,
-                column=term.column,
-                label=term.label,
-                form="t-test of the squared (centred) predictor added to the model",
-                source=src.CURVATURE,
+            return replace(
+                failed,
+                statistic=c.t,
+                p_value=c.p_value,
+                df=float(c.df),
+                curvature_sign=int(np.sign(c.curvature)),
             )
-        )
+
+        out.append(ct.guarded(failed, compute))
     return out
 
 
-def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list[Any]) -> dict[str, Any]:
+def _linearity(
+    fit: ct.Fit, inp: ConditionInputs, curvatures: list[tuple[TermInfo, ct.Curvature | Exception]]
+) -> Condition:
     a = inp.alpha
     rule = (
         f"holds = false when Ramsey's RESET (fitted^2 and fitted^3) rejects at alpha = {a}; "
@@ -169,32 +330,30 @@ def _linearity(fit: ct.Fit, inp: ConditionInputs, curvatures: list[Any]) -> dict
         "decide, which keeps the false-alarm rate of the decision at alpha"
     )
     reset = ct.reset_test(fit)
-    curves = _curvature_entries(curvatures)
-    tests = [reset, ct.rainbow_test(fit), *curves]
-    for entry in tests:
-        entry["primary"] = entry is reset
+    curves = _curvature_checks(curvatures)
+    tests = _marked((reset, ct.rainbow_test(fit), *curves), reset)
     holds = _decide(reset, a)
-    bent = [c for c in curves if c["p_value"] is not None and c["p_value"] < a]
-    bent_txt = ", ".join(f"{c['label']} ({_p(c['p_value'])})" for c in bent[:3])
+    bent = [c for c in curves if c.p_value is not None and c.p_value < a]
+    bent_txt = ", ".join(f"{c.label} ({_p(c.p_value)})" for c in bent[:3])
     if holds is None:
-        note = f"Linearity could not be tested: {reset.get('reason', 'undefined')}."
+        note = f"Linearity could not be tested: {reset.reason or 'undefined'}."
     elif holds:
         note = (
             "No sign of a wrong functional form (RESET on fitted^2 and fitted^3, "
-            f"{_p(reset['p_value'])})"
+            f"{_p(reset.p_value)})"
         )
         note += f", though the partial residuals of {bent_txt} show curvature." if bent else "."
     else:
         note = (
             "The straight-line form looks wrong (RESET on fitted^2 and fitted^3, "
-            f"F = {_g(reset['statistic'])}, {_p(reset['p_value'])})"
+            f"F = {_g(reset.statistic)}, {_p(reset.p_value)})"
         )
         note += f"; curvature shows in the partial residuals of {bent_txt}." if bent else "."
-    return {"holds": holds, "tests": tests, "note": note, "rule": rule}
+    return Condition(holds, tests, note, rule)
 
 
 # ---------------------------------------------------------------------------- normality
-def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
+def _normality(fit: ct.Fit, inp: ConditionInputs) -> Condition:
     a = inp.alpha
     rule = (
         f"holds = false when the primary test rejects at alpha = {a}: Shapiro-Wilk for "
@@ -202,25 +361,21 @@ def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
         "Large samples flag departures too small to matter for OLS inference"
     )
     sw, jb, ad = ct.shapiro_test(fit), ct.jarque_bera_test(fit), ct.anderson_darling_test(fit)
-    primary = sw if sw["p_value"] is not None else jb
-    for entry in (sw, jb, ad):
-        entry["primary"] = entry is primary
+    primary: ct.Check = sw if sw.p_value is not None else jb
+    tests = _marked((sw, jb, ad), primary)
     holds = _decide(primary, a)
-    name = primary["name"]
+    name = primary.name
     if holds is None:
-        note = f"Normality could not be tested: {primary.get('reason', 'undefined')}."
+        note = f"Normality could not be tested: {primary.reason or 'undefined'}."
     elif holds:
         note = (
-            "Residuals are consistent with a normal distribution "
-            f"({name} {_p(primary['p_value'])})."
+            f"Residuals are consistent with a normal distribution ({name} {_p(primary.p_value)})."
         )
     else:
         shape = ""
-        if jb.get("skewness") is not None and jb.get("kurtosis") is not None:
-            shape = f"; skewness {_g(jb['skewness'], 3)}, kurtosis {_g(jb['kurtosis'], 3)} vs 3"
-        note = (
-            f"Residuals depart from a normal distribution ({name} {_p(primary['p_value'])}{shape})"
-        )
+        if jb.skewness is not None and jb.kurtosis is not None:
+            shape = f"; skewness {_g(jb.skewness, 3)}, kurtosis {_g(jb.kurtosis, 3)} vs 3"
+        note = f"Residuals depart from a normal distribution ({name} {_p(primary.p_value)}{shape})"
         if fit.n > LARGE_N:
             note += (
                 f", but with n = {fit.n} even a trivial departure is significant, so "
@@ -228,11 +383,11 @@ def _normality(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
             )
         else:
             note += "."
-    return {"holds": holds, "tests": [sw, jb, ad], "note": note, "rule": rule}
+    return Condition(holds, tests, note, rule)
 
 
 # ----------------------------------------------------------------------- equal variance
-def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
+def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> Condition:
     a = inp.alpha
     rule = (
         f"holds = false when the Breusch-Pagan test in Koenker's studentised form rejects at "
@@ -240,11 +395,11 @@ def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
     )
     Z = None if fit.residual_reason else ct.standardized_regressors(fit)
     bp, white = ct.breusch_pagan_test(fit, Z), ct.white_test(fit, Z)
-    bp["primary"], white["primary"] = True, False
+    tests = _marked((bp, white), bp)
     holds = _decide(bp, a)
-    p = _p(bp["p_value"])
+    p = _p(bp.p_value)
     if holds is None:
-        note = f"Equal variance could not be tested: {bp.get('reason', 'undefined')}."
+        note = f"Equal variance could not be tested: {bp.reason or 'undefined'}."
     elif holds:
         note = (
             "No evidence that the residual spread changes with the predictors "
@@ -258,11 +413,11 @@ def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
         trend = "grows with" if rho >= 0 else "shrinks as"
         tail = "the fitted values" if rho >= 0 else "the fitted values grow"
         note = f"Residual spread {trend} {tail} (Breusch-Pagan, Koenker form, {p})."
-    return {"holds": holds, "tests": [bp, white], "note": note, "rule": rule}
+    return Condition(holds, tests, note, rule)
 
 
 # ------------------------------------------------------------------------- independence
-def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
+def _independence(fit: ct.Fit, inp: ConditionInputs) -> Condition:
     a = inp.alpha
     rule = (
         f"with an order: holds = false when the Breusch-Godfrey test rejects at alpha = {a}; "
@@ -270,38 +425,34 @@ def _independence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
         "Without an order: holds = null"
     )
     if inp.order is None:
-        return {
-            "holds": None,
-            "tests": [],
-            "rule": rule,
-            "note": (
-                "Independence is a matter of how the data were collected, and no test on unordered "
-                "rows can settle it; send an order column (e.g. time) to test serial correlation."
-            ),
-        }
+        return UnorderedIndependence(
+            None,
+            (),
+            "Independence is a matter of how the data were collected, and no test on unordered "
+            "rows can settle it; send an order column (e.g. time) to test serial correlation.",
+            rule,
+        )
     if fit.residual_reason:
-        return _unavailable(fit.residual_reason, rule)
+        return Condition(None, (), _not_assessed(fit.residual_reason), rule)
     order = np.asarray(inp.order, dtype=np.intp)
     e = fit.resid[order]
     dw, bg = ct.durbin_watson_test(e), ct.breusch_godfrey_test(fit, order)
     lb = ct.ljung_box_test(e)
-    for entry in (dw, bg, lb):
-        entry["primary"] = entry is bg
+    tests = _marked((dw, bg, lb), bg)
     holds = _decide(bg, a)
-    dw_txt = f", Durbin-Watson {_g(dw['statistic'], 3)}" if dw["statistic"] is not None else ""
+    dw_txt = f", Durbin-Watson {_g(dw.statistic, 3)}" if dw.statistic is not None else ""
     if holds is None:
-        note = f"Independence could not be tested: {bg.get('reason', 'undefined')}."
+        note = f"Independence could not be tested: {bg.reason or 'undefined'}."
     elif holds:
         note = (
-            "No serial correlation in the given order "
-            f"(Breusch-Godfrey {_p(bg['p_value'])}{dw_txt})."
+            f"No serial correlation in the given order (Breusch-Godfrey {_p(bg.p_value)}{dw_txt})."
         )
     else:
         note = (
             "Residuals close together in the given order are correlated "
-            f"(Breusch-Godfrey {_p(bg['p_value'])}{dw_txt})."
+            f"(Breusch-Godfrey {_p(bg.p_value)}{dw_txt})."
         )
-    return {"holds": holds, "tests": [dw, bg, lb], "note": note, "rule": rule}
+    return Condition(holds, tests, note, rule)
 
 
 # -------------------------------------------------------------------- multicollinearity
@@ -322,7 +473,9 @@ def _vif_groups(X: np.ndarray, inp: ConditionInputs) -> list[tuple[str, str, lis
     return groups
 
 
-def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict[str, Any]:
+def _multicollinearity(
+    fit: ct.Fit, X: np.ndarray, inp: ConditionInputs
+) -> MulticollinearityCondition:
     rule = (
         f"common practice: a VIF above {VIF_WARN:g} warns and above {VIF_FAIL:g} fails "
         "(holds = false); for a predictor with several dummy columns GVIF^(1/df) is compared "
@@ -332,7 +485,7 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
     )
     groups = _vif_groups(X, inp)
     gvifs = ct.generalized_vif(X, [g[2] for g in groups]) if groups else []
-    vif_rows: list[dict[str, Any]] = []
+    vif_rows: list[VifRow] = []
     for (label, column, cols), gvif in zip(groups, gvifs, strict=True):
         df = len(cols)
         comparable = None if gvif is None else gvif ** (1.0 / df)
@@ -344,45 +497,37 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
             else "ok"
         )
         vif_rows.append(
-            {
-                "term": label,
-                "column": column,
-                "df": df,
-                "vif": comparable,
-                "gvif": gvif,
-                "gvif_adjusted": None if gvif is None else gvif ** (1.0 / (2 * df)),
-                "level": level,
-            }
+            VifRow(
+                term=label,
+                column=column,
+                df=df,
+                vif=comparable,
+                gvif=gvif,
+                gvif_adjusted=None if gvif is None else gvif ** (1.0 / (2 * df)),
+                level=level,
+            )
         )
     cond, indices = ct.scaled_condition_number(X)
-    finite = [r for r in vif_rows if r["vif"] is not None]
-    worst = max(finite, key=lambda r: r["vif"], default=None)
-    rank_deficient = fit.rank < X.shape[1] or any(r["gvif"] is None for r in vif_rows)
-    tests = [
-        {
-            "name": "Largest variance inflation factor",
-            "statistic": None if worst is None else worst["vif"],
-            "p_value": None,
-            "term": None if worst is None else worst["term"],
-            "threshold": {"warn": VIF_WARN, "fail": VIF_FAIL},
-            "rule": "common practice",
-            "source": src.GVIF,
-        },
-        {
-            "name": "Condition number (unit-length columns, BKW)",
-            "statistic": cond,
-            "p_value": None,
-            "threshold": CONDITION_WARN,
-            "rule": "common practice",
-            "condition_indices": indices,
-            "source": src.CONDITION_NUMBER,
-        },
-    ]
-    levels = {r["level"] for r in vif_rows}
+    finite = [(r.vif, r) for r in vif_rows if r.vif is not None]
+    worst = max(finite, key=lambda t: t[0], default=(None, None))[1]
+    rank_deficient = fit.rank < X.shape[1] or any(r.gvif is None for r in vif_rows)
+    tests: tuple[ct.Check, ...] = (
+        LargestVifCheck(
+            name="Largest variance inflation factor",
+            statistic=None if worst is None else worst.vif,
+            term=None if worst is None else worst.term,
+        ),
+        ConditionNumberCheck(
+            name="Condition number (unit-length columns, BKW)",
+            statistic=cond,
+            condition_indices=tuple(indices),
+        ),
+    )
+    levels = {r.level for r in vif_rows}
     holds = not (rank_deficient or "fail" in levels)
     cond_txt = f"; scaled condition number {_g(cond, 4)}" if cond is not None else ""
     if rank_deficient:
-        names = ", ".join(r["term"] for r in vif_rows if r["gvif"] is None) or "some columns"
+        names = ", ".join(r.term for r in vif_rows if r.gvif is None) or "some columns"
         note = (
             f"Predictor columns are exactly collinear ({names}; design rank {fit.rank} of "
             f"{X.shape[1]} columns), so their separate effects cannot be estimated."
@@ -392,57 +537,47 @@ def _multicollinearity(fit: ct.Fit, X: np.ndarray, inp: ConditionInputs) -> dict
     elif len(vif_rows) == 1:
         note = "Only one predictor, so multicollinearity cannot arise (VIF 1)."
     elif "fail" in levels:
-        bad = sorted(
-            (r for r in vif_rows if r["level"] == "fail"), key=lambda r: -(r["vif"] or math.inf)
-        )
-        names = ", ".join(r["term"] for r in bad[:4])
+        bad = sorted((r for r in vif_rows if r.level == "fail"), key=lambda r: -(r.vif or math.inf))
+        names = ", ".join(r.term for r in bad[:4])
         note = (
             f"Predictors overlap strongly: {names} have VIF above {VIF_FAIL:g} (common "
-            f"practice), largest {_g(worst['vif'] if worst else None, 5)} for "
-            f"{worst['term'] if worst else 'n/a'}{cond_txt}."
+            f"practice), largest {_g(worst.vif if worst else None, 5)} for "
+            f"{worst.term if worst else 'n/a'}{cond_txt}."
         )
     elif "warn" in levels:
         assert worst is not None  # no "fail" level: every VIF is finite
         note = (
-            f"Moderate overlap between predictors: largest VIF {_g(worst['vif'], 3)} for "
-            f"{worst['term']}, above the common-practice warning level {VIF_WARN:g}{cond_txt}."
+            f"Moderate overlap between predictors: largest VIF {_g(worst.vif, 3)} for "
+            f"{worst.term}, above the common-practice warning level {VIF_WARN:g}{cond_txt}."
         )
     else:
         assert worst is not None  # predictors present and every VIF finite
-        note = f"Predictors are not strongly related (largest VIF {_g(worst['vif'], 3)}{cond_txt})."
+        note = f"Predictors are not strongly related (largest VIF {_g(worst.vif, 3)}{cond_txt})."
     level = "fail" if not holds else ("warn" if "warn" in levels else "ok")
-    return {
-        "holds": holds,
-        "tests": tests,
-        "note": note,
-        "rule": rule,
-        "level": level,
-        "vif": vif_rows,
-        "condition_number": cond,
-    }
+    return MulticollinearityCondition(holds, tests, note, rule, level, tuple(vif_rows), cond)
 
 
 # ---------------------------------------------------------------------------- influence
-def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict[str, Any]]:
+def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], Cutoffs]:
     """Indices of flagged rows (largest Cook's distance first), reason masks and cut-offs."""
     inf = fit.influence
     if inf is None:
         raise ValueError("flag_rows needs a fit with influence measures")
     n, p = fit.n, fit.rank
-    cut = {
-        "cooks_flag": 4.0 / n,
-        "cooks_fail": 1.0,
-        "leverage": 2.0 * p / n,
-        "dffits": 2.0 * math.sqrt(p / n),
-        "studentized": 3.0,
-    }
+    cut = Cutoffs(
+        cooks_flag=4.0 / n,
+        cooks_fail=1.0,
+        leverage=2.0 * p / n,
+        dffits=2.0 * math.sqrt(p / n),
+        studentized=3.0,
+    )
     with np.errstate(invalid="ignore"):
         masks = {
-            "Cook's distance > 1": inf.cooks > cut["cooks_fail"],
-            "Cook's distance > 4/n": inf.cooks > cut["cooks_flag"],
-            "leverage > 2p/n": inf.leverage > cut["leverage"],
-            "|DFFITS| > 2 sqrt(p/n)": np.abs(inf.dffits) > cut["dffits"],
-            "|studentised residual| > 3": np.abs(inf.studentized) > cut["studentized"],
+            "Cook's distance > 1": inf.cooks > cut.cooks_fail,
+            "Cook's distance > 4/n": inf.cooks > cut.cooks_flag,
+            "leverage > 2p/n": inf.leverage > cut.leverage,
+            "|DFFITS| > 2 sqrt(p/n)": np.abs(inf.dffits) > cut.dffits,
+            "|studentised residual| > 3": np.abs(inf.studentized) > cut.studentized,
             "leverage 1 (the fit passes through this row)": inf.leverage >= 1 - ct.LEVERAGE_ONE_TOL,
         }
     any_flag = np.zeros(n, dtype=bool)
@@ -453,86 +588,82 @@ def flag_rows(fit: ct.Fit) -> tuple[np.ndarray, dict[str, np.ndarray], dict[str,
     return idx[np.argsort(-key, kind="stable")], masks, cut
 
 
-def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
+def _influence(fit: ct.Fit, inp: ConditionInputs) -> InfluenceCondition:
     rule = (
         "common practice: holds = false when any Cook's distance exceeds 1 (or a row has "
         "leverage 1); rows are flagged for Cook's distance > 4/n, leverage > 2p/n, "
         "|DFFITS| > 2 sqrt(p/n) or |externally studentised residual| > 3"
     )
     if fit.influence is None:
-        return _unavailable(
-            fit.residual_reason or "influence undefined", rule, flagged_rows=[], n_flagged=0
-        )
+        reason = fit.residual_reason or "influence undefined"
+        return InfluenceCondition(None, (), _not_assessed(reason), rule, (), 0)
     inf, n = fit.influence, fit.n
     ids = np.asarray(inp.row_numbers)
     order, masks, cut = flag_rows(fit)
-    listed = []
-    for i in order[:MAX_FLAGGED_ROWS]:
-        listed.append(
-            {
-                "row": int(ids[i]),
-                "reasons": [name for name, m in masks.items() if m[i]],
-                "cooks_distance": ct.num(inf.cooks[i]),
-                "leverage": ct.num(inf.leverage[i]),
-                "dffits": ct.num(inf.dffits[i]),
-                "studentized_residual": ct.num(inf.studentized[i]),
-            }
+    listed = tuple(
+        FlaggedRow(
+            row=int(ids[i]),
+            reasons=tuple(name for name, m in masks.items() if m[i]),
+            cooks_distance=ct.num(inf.cooks[i]),
+            leverage=ct.num(inf.leverage[i]),
+            dffits=ct.num(inf.dffits[i]),
+            studentized_residual=ct.num(inf.studentized[i]),
         )
+        for i in order[:MAX_FLAGGED_ROWS]
+    )
+    undefined = (
+        f"undefined: {count_of(int(fit.df_resid), 'residual degree')} of freedom, or "
+        "every row has leverage 1"
+    )
 
     def largest(
-        name: str, values: np.ndarray, threshold: float | dict[str, float], source: str
-    ) -> tuple[dict[str, Any], int | None]:
+        name: str,
+        values: np.ndarray,
+        threshold: float,
+        source: str,
+        fail_threshold: float | None = None,
+        df: float | None = None,
+    ) -> ExtremeRowCheck:
         finite = np.isfinite(values)
         i = int(np.argmax(np.where(finite, values, -np.inf))) if finite.any() else None
-        return {
-            "name": name,
-            "statistic": None if i is None else ct.num(values[i]),
-            "p_value": None,
-            "row": None if i is None else int(ids[i]),
-            "threshold": threshold,
-            "rule": "common practice",
-            "source": source,
-        }, i
+        statistic = None if i is None else ct.num(values[i])
+        p_value = None
+        if df is not None and statistic is not None and fit.df_resid >= 2:
+            # Bonferroni: n times the two-sided t_{n-p-1} tail probability of the largest |t_i|
+            p_value = min(1.0, n * 2 * float(stats.t.sf(statistic, df)))
+        return ExtremeRowCheck(
+            name=name,
+            statistic=statistic,
+            p_value=p_value,
+            row=None if i is None else int(ids[i]),
+            threshold=threshold,
+            fail_threshold=fail_threshold,
+            source=source,
+            df=df,
+            reason=undefined if statistic is None else None,
+        )
 
-    cook, _i_d = largest(
+    cook = largest(
         "Cook's distance (largest)",
         inf.cooks,
-        {"flag": cut["cooks_flag"], "fail": cut["cooks_fail"]},
+        cut.cooks_flag,
         src.COOKS_DISTANCE,
+        fail_threshold=cut.cooks_fail,
     )
-    lev, _ = largest(
-        "Leverage (largest hat value)",
-        inf.leverage,
-        cut["leverage"],
-        src.LEVERAGE,
-    )
-    dff, _ = largest(
-        "DFFITS (largest absolute value)",
-        np.abs(inf.dffits),
-        cut["dffits"],
-        src.DFFITS,
-    )
-    out, i_t = largest(
+    lev = largest("Leverage (largest hat value)", inf.leverage, cut.leverage, src.LEVERAGE)
+    dff = largest("DFFITS (largest absolute value)", np.abs(inf.dffits), cut.dffits, src.DFFITS)
+    out = largest(
         "Outlier test (largest |externally studentised residual|, Bonferroni)",
         np.abs(inf.studentized),
-        cut["studentized"],
+        cut.studentized,
         src.OUTLIER_TEST,
+        df=float(fit.df_resid - 1),
     )
-    if i_t is not None and fit.df_resid >= 2:
-        # Bonferroni: n times the two-sided t_{n-p-1} tail probability of the largest |t_i|
-        out["p_value"] = min(1.0, n * 2 * float(stats.t.sf(out["statistic"], fit.df_resid - 1)))
-    out["df"] = float(fit.df_resid - 1)
-    tests = [cook, lev, dff, out]
-    for entry in tests:
-        if entry["statistic"] is None:
-            entry["reason"] = (
-                f"undefined: {count_of(int(fit.df_resid), 'residual degree')} of freedom, or "
-                "every row has leverage 1"
-            )
+    tests: tuple[ct.Check, ...] = (cook, lev, dff, out)
     n_fail = int(np.sum(masks["Cook's distance > 1"]))
     n_one = int(np.sum(masks["leverage 1 (the fit passes through this row)"]))
     holds = n_fail == 0 and n_one == 0
-    d_max, d_row = cook["statistic"], cook["row"]
+    d_max, d_row = cook.statistic, cook.row
     if n_one:
         note = (
             f"{count_of(n_one, 'row')} {'has' if n_one == 1 else 'have'} leverage 1, so the fit passes through them exactly and "
@@ -550,42 +681,34 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> dict[str, Any]:
             f"{'exceeds' if order.size == 1 else 'exceed'} a common-practice "
             "screening cut-off."
         )
-    return {
-        "holds": holds,
-        "tests": tests,
-        "note": note,
-        "rule": rule,
-        "flagged_rows": listed,
-        "n_flagged": int(order.size),
-        "flagged_rows_truncated": bool(order.size > len(listed)),
-        "thresholds": cut,
-    }
+    return InfluenceCondition(holds, tests, note, rule, listed, int(order.size), cut)
 
 
 # --------------------------------------------------------------------------- public API
-def assess_conditions(inp: ConditionInputs) -> dict[str, Any]:
+def assess_conditions(inp: ConditionInputs) -> ConditionReport:
     """Assess the conditions of the OLS fit of ``inp.z`` on ``inp.X``.
 
-    Returns ``{"linearity", "normality", "equal_variance", "independence",
-    "multicollinearity", "influence", "hints"}``; each condition is
-    ``{"holds": bool | None, "tests": [{"name", "statistic", "p_value", ...}], "note": str,
-    "rule": str, ...}`` and ``hints`` is :func:`transform_hints`' list.  Every number is a
-    finite float or ``None``.  Raises ``ValueError`` only for malformed inputs.
+    Returns the six conditions (each ``holds``: bool or ``None``, its ``tests``, a ``note``
+    and the ``rule``) and :func:`transform_hints`' hints.  Every number is a finite float or
+    ``None``.  Raises ``ValueError`` only for malformed inputs.
     """
     z, X = validate(inp)
     fit = ct.fit_model(z, X, inp.has_intercept)
     curvatures = _curvatures(fit, inp)
-    out: dict[str, Any] = {"linearity": _linearity(fit, inp, curvatures)}
-    for key, build in (
-        ("normality", _normality),
-        ("equal_variance", _equal_variance),
-        ("independence", _independence),
-        ("influence", _influence),
-    ):
-        out[key] = build(fit, inp)
-    out["multicollinearity"] = _multicollinearity(fit, X, inp)
-    out["hints"] = _hints(curvatures, inp.alpha)
-    return {k: out[k] for k in (*CONDITION_NAMES, "hints")}
+    linearity = _linearity(fit, inp, curvatures)
+    normality = _normality(fit, inp)
+    equal_variance = _equal_variance(fit, inp)
+    independence = _independence(fit, inp)
+    influence = _influence(fit, inp)
+    return ConditionReport(
+        linearity=linearity,
+        normality=normality,
+        equal_variance=equal_variance,
+        independence=independence,
+        multicollinearity=_multicollinearity(fit, X, inp),
+        influence=influence,
+        hints=_hints(curvatures, inp.alpha),
+    )
 
 
 #: Tukey's bulging rule: (slope sign, curvature sign) -> (bulge, x move, y move)
@@ -597,43 +720,33 @@ BULGING_RULE = {
 }
 
 
-def _hints(curvatures: list[Any], alpha: float) -> list[dict[str, Any]]:
+def _hints(
+    curvatures: list[tuple[TermInfo, ct.Curvature | Exception]], alpha: float
+) -> tuple[TransformHint, ...]:
     hints = []
     for term, c in curvatures:
         raw = None if term.raw is None else np.asarray(term.raw, dtype=float)
-        hint = {
-            "column": term.column,
-            "label": term.label,
-            "slope_sign": None,
-            "curvature_sign": None,
-            "bulge": None,
-            "x_direction": None,
-            "y_direction": None,
-            "p_value": None,
-            "monotone": None,
-        }
         if isinstance(c, Exception):
             reason = str(c) if isinstance(c, ct.NotApplicable) else type(c).__name__
-            hint["sentence"] = f"No curvature reading for {term.label}: {reason}."
-            hints.append(hint)
+            sentence = f"No curvature reading for {term.label}: {reason}."
+            hints.append(TransformHint(column=term.column, label=term.label, sentence=sentence))
             continue
-        slope, curv = int(np.sign(c["slope"])), int(np.sign(c["curvature"]))
-        p = ct.num(c["p_value"])
-        hint.update(slope_sign=slope, curvature_sign=curv, p_value=p, monotone=c["monotone"])
+        slope, curv = int(np.sign(c.slope)), int(np.sign(c.curvature))
+        p = ct.num(c.p_value)
+        bulge = xd = yd = None
         if p is None or p >= alpha or curv == 0 or slope == 0:
-            hint["sentence"] = (
+            sentence = (
                 f"The partial residuals of {term.label} show no significant "
                 f"curvature ({_p(p)}); keep its current scale."
             )
-        elif not c["monotone"]:
-            hint["sentence"] = (
+        elif not c.monotone:
+            sentence = (
                 f"The partial residuals of {term.label} bend but do not move in "
                 f"one direction ({_p(p)}), so no power of {term.column} "
                 "straightens them; consider a quadratic term instead."
             )
         else:
             bulge, xd, yd = BULGING_RULE[(slope, curv)]
-            hint.update(bulge=bulge, x_direction=xd, y_direction=yd)
             sentence = (
                 f"The partial residuals of {term.label} bulge {bulge} (curvature "
                 f"{_p(p)}): by Tukey's bulging rule, move {term.column} one step "
@@ -645,16 +758,28 @@ def _hints(curvatures: list[Any], alpha: float) -> list[dict[str, Any]]:
                     f" ({term.column} has values <= 0, so shift it before a log or a "
                     "negative power)"
                 )
-            hint["sentence"] = sentence + "."
-        hints.append(hint)
-    return hints
+            sentence += "."
+        hints.append(
+            TransformHint(
+                column=term.column,
+                label=term.label,
+                slope_sign=slope,
+                curvature_sign=curv,
+                bulge=bulge,
+                x_direction=xd,
+                y_direction=yd,
+                p_value=p,
+                monotone=c.monotone,
+                sentence=sentence,
+            )
+        )
+    return tuple(hints)
 
 
-def transform_hints(inp: ConditionInputs) -> list[dict[str, Any]]:
+def transform_hints(inp: ConditionInputs) -> tuple[TransformHint, ...]:
     """Tukey's bulging-rule hint for each numeric predictor (Mosteller & Tukey 1977).
 
-    Each item is ``{"column", "label", "slope_sign", "curvature_sign", "bulge", "x_direction",
-    "y_direction", "p_value", "monotone", "sentence"}``.  The partial residual
+    Each is a :class:`TransformHint` ending in a plain-language ``sentence``.  The partial residual
     e + b_j w_j is regressed on the centred predictor and its square, on the model's current
     scale of the predictor (so an already-right log term gives no hint); directions are
     ladder moves from that current scale.  ``bulge`` and the directions are ``None`` unless

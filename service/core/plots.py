@@ -349,8 +349,8 @@ def _influence_panel(
     panel.update(
         points=pts,
         cutoffs=[
-            {"name": "flag: Cook's distance > 4/n (common practice)", "value": cut["cooks_flag"]},
-            {"name": "fail: Cook's distance > 1 (common practice)", "value": cut["cooks_fail"]},
+            {"name": "flag: Cook's distance > 4/n (common practice)", "value": cut.cooks_flag},
+            {"name": "fail: Cook's distance > 1 (common practice)", "value": cut.cooks_fail},
         ],
         flag_rule=(
             "a row is flagged for Cook's distance > 4/n, leverage > 2p/n, |DFFITS| > 2 sqrt(p/n) "

@@ -2,21 +2,41 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 EXTRAPOLATION = (
     "Predictions outside the range of the data are extrapolations that the fit does not "
     "support; back-transforms (exp, powers) magnify their error."
 )
 
-_SCORED = {
-    "rmse": "RMSE scores the smeared mean (Duan 1983)",
-    "mae": "MAE scores the median (the plain inverse)",
-    "mape": "MAPE scores the median (the plain inverse)",
-}
-_OTHER = {
-    "rmse": "metric 'mae' or 'mape' scores medians instead",
-    "mae": "metric 'rmse' scores the smeared mean instead",
-    "mape": "metric 'rmse' scores the smeared mean instead",
-}
+
+@dataclass(frozen=True)
+class MetricReading:
+    """What a cross-validation ``metric`` scores on the original scale, and the metric that
+    scores the other prediction."""
+
+    metric: str
+    scores: str
+    instead: str
+
+
+READINGS = (
+    MetricReading(
+        "rmse",
+        "RMSE scores the smeared mean (Duan 1983)",
+        "metric 'mae' or 'mape' scores medians instead",
+    ),
+    MetricReading(
+        "mae",
+        "MAE scores the median (the plain inverse)",
+        "metric 'rmse' scores the smeared mean instead",
+    ),
+    MetricReading(
+        "mape",
+        "MAPE scores the median (the plain inverse)",
+        "metric 'rmse' scores the smeared mean instead",
+    ),
+)
 
 
 def selection_cautions(metric: str, any_transformed_response: bool) -> list[str]:
@@ -38,9 +58,10 @@ def selection_cautions(metric: str, any_transformed_response: bool) -> list[str]
             "(Duan smearing) relies on the residual distribution staying the same "
             "across predictor values.",
         )
-        if metric in _SCORED:
+        reading = next((r for r in READINGS if r.metric == metric), None)
+        if reading is not None:
             out.append(
-                f"The cross-validated {_SCORED[metric]} on the original scale; {_OTHER[metric]}."
+                f"The cross-validated {reading.scores} on the original scale; {reading.instead}."
             )
     return out
 

@@ -12,6 +12,7 @@ from ..core import retransform
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.condition_rules import conditions_for, failed
+from ..core.conditions import ConditionReport
 from ..core.cvplus import default_method, stored_block
 from ..core.cvresult import CVReport, CVResult, OutOfFold
 from ..core.data import Prepared
@@ -136,7 +137,7 @@ def robust_covariances(
 
 
 def choose_inference(
-    conditions: dict[str, Any], lags: int | None, blocked: bool
+    conditions: ConditionReport, lags: int | None, blocked: bool
 ) -> tuple[dict[str, Any], str, list[str]]:
     """Which standard errors the readings use: (inference block, clause for the
     sentences, warnings).  Failing independence with an order -> Newey-West HAC (also
@@ -291,10 +292,10 @@ def entry_for(
         "warnings": warnings,
     }
     entry["conditions"] = conditions
-    entry["transform_hints"] = hints
+    entry["transform_hints"] = list(hints)
     for h in hints:
-        if h.get("bulge") and h.get("sentence"):
-            warnings.append(h["sentence"])
+        if h.bulge and h.sentence:
+            warnings.append(h.sentence)
     blocked = getattr(opts, "scheme", "random") == "blocked"
     inference, clause, more = choose_inference(conditions, lags, blocked)
     method, why = default_method(bad, cv_plus["available"], cv_plus.get("reason", ""))

@@ -17,7 +17,8 @@ from typing import Any
 import numpy as np
 
 from ..core import transforms as tr
-from ..core.conditions import CONDITION_NAMES
+from ..core.condition_rules import failed
+from ..core.conditions import ConditionReport
 from ..core.crossval import cross_validate
 from ..core.cvresult import CVReport, CVResult, std_error_of
 from ..core.data import Prepared
@@ -76,14 +77,8 @@ def score(spec: Specification, prep: Prepared, plan: CVPlan, shift_needed: bool)
     )
 
 
-def _failed_conditions(conditions: dict[str, Any] | None) -> set[str]:
-    if not conditions:
-        return set()
-    return {
-        c
-        for c in CONDITION_NAMES
-        if isinstance(conditions.get(c), dict) and conditions[c].get("holds") is False
-    }
+def _failed_conditions(conditions: ConditionReport | None) -> set[str]:
+    return set(failed(conditions))
 
 
 def decide(
@@ -94,7 +89,7 @@ def decide(
     winner_entry: dict[str, Any],
     winner_folds: np.ndarray,
     plan: CVPlan,
-    inc_conditions: dict[str, Any] | None = None,
+    inc_conditions: ConditionReport | None = None,
     request_spec: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
     """The contract's ``incumbent`` block."""

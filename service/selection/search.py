@@ -26,7 +26,7 @@ from ..core import transforms as tr
 from ..core.bank import FoldIndex
 from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
-from ..core.conditions import CONDITION_NAMES
+from ..core.conditions import CONDITION_NAMES, ConditionReport
 from ..core.cvplus import NOT_KEPT
 from ..core.cvresult import CVResult, Dynamic, OutOfFold, std_error_of
 from ..core.data import Prepared
@@ -791,7 +791,7 @@ def _order_by_conditions(
     lead_m = len(band)
     n_failed: dict[int, int] = {}
     parts_of = [p for _, p in ranked]
-    conds: dict[int, dict[str, Any] | None] = {}
+    conds: dict[int, ConditionReport | None] = {}
     for i in band:
         s, parts = ranked[i]
         try:

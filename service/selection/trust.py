@@ -66,7 +66,7 @@ from ..core import sources as src
 from ..core import transforms as tr
 from ..core._types import Mapper
 from ..core.condition_rules import conditions_for, failed_for_ranking, ordering_conditions
-from ..core.conditions import CONDITION_NAMES
+from ..core.conditions import CONDITION_NAMES, ConditionReport
 from ..core.crossval import cross_validate
 from ..core.cvresult import pooled_folds, std_error_of
 from ..core.data import Prepared
@@ -228,9 +228,9 @@ def _verdicts(
 ) -> Callable[[Specification], int]:
     """Failed-condition counts on all rows for the compared ``band`` members, by the rule
     of condition_rules.py (level and the conditions some member meets from ``band``)."""
-    conds: dict[SpecKey, dict[str, Any] | None] = {}
+    conds: dict[SpecKey, ConditionReport | None] = {}
 
-    def conditions_of(spec: Specification) -> dict[str, Any] | None:
+    def conditions_of(spec: Specification) -> ConditionReport | None:
         if spec.key not in conds:
             try:
                 _, design, fit, _ = fitted_model(spec, prep)

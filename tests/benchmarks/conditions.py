@@ -22,7 +22,7 @@ import numpy as np
 import statsmodels.api as sm
 from _common import machine, pin_blas
 from service.core import _condition_tests as ct
-from service.core.conditions import ConditionInputs, assess_conditions
+from service.core.conditions import ConditionInputs, ConditionReport, assess_conditions
 from service.core.spec import TermInfo
 from statsmodels.stats import diagnostic as smd
 
@@ -70,11 +70,11 @@ def statsmodels_route(z: np.ndarray, X: np.ndarray) -> dict:
     }
 
 
-def statistic(out: dict, prefix: str) -> float | None:
-    for cond in out.values():
-        for t in cond.get("tests", []) if isinstance(cond, dict) else []:
-            if t["name"].startswith(prefix) or prefix in t["name"]:
-                return t["statistic"]
+def statistic(out: ConditionReport, prefix: str) -> float | None:
+    for _, cond in out.named():
+        for t in cond.tests:
+            if t.name.startswith(prefix) or prefix in t.name:
+                return t.statistic
     return None
 
 

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 from service.core import transforms as tr
+from service.core._condition_tests import BreuschPaganCheck, ShapiroCheck, WhiteCheck
 from service.core.condition_rules import (
-    CONDITION_NAMES,
     clear_failures,
     condition_inputs,
     conditions_for,
@@ -20,39 +20,46 @@ from service.core.condition_rules import (
     failed_for_ranking,
     ordering_conditions,
 )
-from service.core.conditions import ConditionInputs, assess_conditions
+from service.core.conditions import (
+    CONDITION_NAMES,
+    ConditionInputs,
+    ConditionReport,
+    LargestVifCheck,
+    assess_conditions,
+)
 from service.core.data import prepare
 from service.core.fitting import ols
 from service.core.spec import PredictorSpec, Specification, TermInfo, build_design
 from statsmodels.stats import diagnostic as smd
 
+from tests.core.condition_reports import cond, report
 
-def _block(**conds):
-    out = {c: {"holds": True, "tests": []} for c in CONDITION_NAMES}
-    out.update(conds)
-    return out
+
+def _shapiro(p):
+    return cond(False, ShapiroCheck(name="Shapiro-Wilk", statistic=0.9, p_value=p))
+
+
+def _vif_fails():
+    return cond(False, LargestVifCheck(name="Largest variance inflation factor", statistic=12.0))
 
 
 def test_a_failure_counts_only_below_the_bonferroni_level():
     # six conditions tested, alpha 0.05: the level is 0.05 / 6 = 0.00833
-    weak = _block(normality={"holds": False, "tests": [{"p_value": 0.02}]})
-    strong = _block(normality={"holds": False, "tests": [{"p_value": 0.008}]})
+    weak = report(normality=_shapiro(0.02))
+    strong = report(normality=_shapiro(0.008))
     assert failed(weak) == ["normality"]
     # source: Bonferroni over the conditions tested (0.02 > 0.05/6 > 0.008)
     assert clear_failures(weak, 0.05) == []
     assert clear_failures(strong, 0.05) == ["normality"]
     # fewer conditions tested: a higher level, so 0.02 counts when only two were tested
-    two = {
-        "normality": {"holds": False, "tests": [{"p_value": 0.02}]},
-        "linearity": {"holds": True, "tests": []},
-    }
+    two = report(None, normality=_shapiro(0.02), linearity=cond(True))
     assert clear_failures(two, 0.05) == ["normality"]
 
 
 def test_threshold_conditions_count_whenever_they_fail():
-    block = _block(multicollinearity={"holds": False, "tests": [{"p_value": None}]})
+    block = report(multicollinearity=_vif_fails())
     assert clear_failures(block, 0.05) == ["multicollinearity"]
-    assert failed(None) == [] and clear_failures({}, 0.05) == []
+    assert failed(None) == [] and clear_failures(None, 0.05) == []
 
 
 def test_conditions_for_a_real_fit():
@@ -66,35 +73,28 @@ def test_conditions_for_a_real_fit():
     design = build_design(spec, prep)
     fit = ols(design.X, prep.y, design.names, True)
     block, hints = conditions_for(design, fit, prep, prep.y, 0.05)
-    assert tuple(block) == CONDITION_NAMES and isinstance(hints, list)
-    bp = next(t for t in block["equal_variance"]["tests"] if t["name"].startswith("Breusch-Pagan"))
+    assert tuple(name for name, _ in block.named()) == CONDITION_NAMES and hints == block.hints
+    bp = next(t for t in block.equal_variance.tests if t.name.startswith("Breusch-Pagan"))
     # source: statsmodels het_breuschpagan (Koenker's studentised form) on the same fit;
     # CHECKS_PUBLIC engel `foodexp on income`: LM 109.263
     lm = smd.het_breuschpagan(fit.resid, design.X, robust=True)[0]
-    assert bp["statistic"] == pytest.approx(lm, rel=1e-8)
-    assert bp["statistic"] == pytest.approx(109.263, rel=1e-5)
+    assert bp.statistic == pytest.approx(lm, rel=1e-8)
+    assert bp.statistic == pytest.approx(109.263, rel=1e-5)
     assert "equal_variance" in clear_failures(block, 0.05)
     inp = condition_inputs(design, fit, prep, prep.y, 0.01)
     assert inp.alpha == 0.01 and np.array_equal(inp.X, design.X)
 
 
-def _conditions(ev_p: float, white_p: float = 0.5) -> dict:
+def _conditions(ev_p: float, white_p: float = 0.5, **more) -> ConditionReport:
     """Five tested conditions; equal variance decided by the Breusch-Pagan p-value."""
-    ok = {"holds": True, "tests": []}
-    return {
-        "linearity": ok,
-        "normality": ok,
-        "equal_variance": {
-            "holds": ev_p >= 0.05,
-            "tests": [
-                {"name": "Breusch-Pagan", "p_value": ev_p, "primary": True},
-                {"name": "White", "p_value": white_p, "primary": False},
-            ],
-        },
-        "independence": {"holds": None, "tests": []},
-        "multicollinearity": {"holds": True, "tests": [{"p_value": None}]},
-        "influence": ok,
+    bp = BreuschPaganCheck(name="Breusch-Pagan", statistic=1.0, p_value=ev_p, primary=True)
+    white = WhiteCheck(name="White", statistic=1.0, p_value=white_p, primary=False)
+    given = {
+        "equal_variance": cond(ev_p >= 0.05, bp, white),
+        "independence": cond(None),
+        "multicollinearity": cond(True, LargestVifCheck(name="Largest VIF", statistic=1.2)),
     }
+    return report(**(given | more))
 
 
 def test_a_reported_only_test_never_decides():
@@ -125,8 +125,7 @@ def test_a_condition_orders_only_with_clear_evidence_and_a_member_that_meets_it(
 
 
 def test_threshold_conditions_order_without_a_p_value():
-    bad = _conditions(0.5)
-    bad["multicollinearity"] = {"holds": False, "tests": [{"p_value": None}]}
+    bad = _conditions(0.5, multicollinearity=_vif_fails())
     band = ordering_conditions([bad, _conditions(0.5)], 0.05)
     assert band == {"multicollinearity"}
     assert failed_for_ranking(bad, band) == ["multicollinearity"]

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -101,9 +102,9 @@ def test_reset(case):
         warnings.simplefilter("ignore")
         big = sm.OLS(fit.z, np.column_stack([fit.X, f**2, f**3])).fit()
     F, p, df = big.compare_f_test(ref)
-    assert _rel(out["statistic"], F) < TOL
-    assert _rel(out["p_value"], p) < TOL
-    assert out["df"] == [float(df), float(big.df_resid)]
+    assert _rel(out.statistic, F) < TOL
+    assert _rel(out.p_value, p) < TOL
+    assert out.df == (float(df), float(big.df_resid))
 
 
 def test_rainbow(case):
@@ -111,8 +112,8 @@ def test_rainbow(case):
     out = ct.rainbow_test(fit)
     # source: statsmodels.stats.diagnostic.linear_rainbow(use_distance=True)
     F, p = smd.linear_rainbow(ref, frac=0.5, use_distance=True)
-    assert _rel(out["statistic"], F) < TOL
-    assert _rel(out["p_value"], p) < TOL
+    assert _rel(out.statistic, F) < TOL
+    assert _rel(out.p_value, p) < TOL
 
 
 def test_breusch_pagan(case):
@@ -121,17 +122,17 @@ def test_breusch_pagan(case):
     out = ct.breusch_pagan_test(fit, Z)
     # source: statsmodels.stats.diagnostic.het_breuschpagan(robust=True)
     lm, p, F, Fp = smd.het_breuschpagan(fit.resid, Z, robust=True)
-    for got, want in [(out["statistic"], lm), (out["p_value"], p), (out["f_statistic"], F)]:
+    for got, want in [(out.statistic, lm), (out.p_value, p), (out.f_statistic, F)]:
         assert _rel(got, want) < TOL
-    assert _rel(out["f_p_value"], Fp) < TOL
+    assert _rel(out.f_p_value, Fp) < TOL
 
 
 def test_white(case):
     fit, _ = case
     Z = ct.standardized_regressors(fit)
     out = ct.white_test(fit, Z)
-    if out["statistic"] is None:
-        pytest.skip(out["reason"])  # e.g. Longley: 28 auxiliary columns for 16 rows
+    if out.statistic is None:
+        pytest.skip(out.reason)  # e.g. Longley: 28 auxiliary columns for 16 rows
     i0, i1 = np.triu_indices(Z.shape[1])
     aux = Z[:, i0] * Z[:, i1]
     if np.linalg.matrix_rank(aux) < aux.shape[1]:
@@ -141,9 +142,9 @@ def test_white(case):
     # source: statsmodels.stats.diagnostic.het_white (same auxiliary regression)
     res = sm.OLS(fit.resid**2, aux).fit()
     lm = fit.n * res.rsquared
-    assert _rel(out["statistic"], lm) < TOL
-    assert _rel(out["f_statistic"], res.fvalue) < TOL
-    assert _rel(out["p_value"], float(smd.stats.chi2.sf(lm, res.df_model))) < 1e-6
+    assert _rel(out.statistic, lm) < TOL
+    assert _rel(out.f_statistic, res.fvalue) < TOL
+    assert _rel(out.p_value, float(smd.stats.chi2.sf(lm, res.df_model))) < 1e-6
 
 
 def test_white_equals_het_white_on_a_full_rank_design():
@@ -153,9 +154,9 @@ def test_white_equals_het_white_on_a_full_rank_design():
     Z = ct.standardized_regressors(fit)
     out = ct.white_test(fit, Z)
     lm, p, F, _ = smd.het_white(fit.resid, Z)  # source: statsmodels het_white
-    assert _rel(out["statistic"], lm) < TOL
-    assert _rel(out["p_value"], p) < TOL
-    assert _rel(out["f_statistic"], F) < TOL
+    assert _rel(out.statistic, lm) < TOL
+    assert _rel(out.p_value, p) < TOL
+    assert _rel(out.f_statistic, F) < TOL
 
 
 def test_breusch_godfrey(case):
@@ -166,18 +167,18 @@ def test_breusch_godfrey(case):
         warnings.simplefilter("ignore")
         ro = sm.OLS(fit.z[order], fit.X[order]).fit()
         # source: statsmodels.stats.diagnostic.acorr_breusch_godfrey on the rows in order
-        ref = smd.acorr_breusch_godfrey(ro, nlags=out["lags"], result_object=True)
-    assert _rel(out["statistic"], ref.lm) < TOL
-    assert _rel(out["f_statistic"], ref.fval) < TOL
-    assert _rel(out["p_value"], ref.lmpval) < 1e-6
+        ref = smd.acorr_breusch_godfrey(ro, nlags=out.lags, result_object=True)
+    assert _rel(out.statistic, ref.lm) < TOL
+    assert _rel(out.f_statistic, ref.fval) < TOL
+    assert _rel(out.p_value, ref.lmpval) < 1e-6
 
 
 def test_ljung_box(case):
     fit, _ = case
     e = fit.resid[np.random.default_rng(2).permutation(fit.n)]
     out = ct.ljung_box_test(e)
-    ref = smd.acorr_ljungbox(e, lags=out["lags"])  # source: statsmodels acorr_ljungbox
-    assert _rel(out["statistic"], ref["lb_stat"].iloc[-1]) < TOL
+    ref = smd.acorr_ljungbox(e, lags=out.lags)  # source: statsmodels acorr_ljungbox
+    assert _rel(out.statistic, ref["lb_stat"].iloc[-1]) < TOL
 
 
 def test_least_squares_rank_and_minimum_norm_solution():
@@ -212,8 +213,8 @@ def test_ljung_box_fft_form_matches_statsmodels():
     e = np.random.default_rng(5).standard_normal(3000)
     fft = ct.ljung_box_test(e)
     ref = smd.acorr_ljungbox(e, lags=10)  # source: statsmodels acorr_ljungbox (direct O(n^2))
-    assert fft["statistic"] == pytest.approx(ref["lb_stat"].iloc[-1], rel=1e-9)
-    assert fft["p_value"] == pytest.approx(ref["lb_pvalue"].iloc[-1], rel=1e-8)
+    assert fft.statistic == pytest.approx(ref["lb_stat"].iloc[-1], rel=1e-9)
+    assert fft.p_value == pytest.approx(ref["lb_pvalue"].iloc[-1], rel=1e-8)
 
 
 def test_closed_form_influence_matches_statsmodels_loop(mammals):
@@ -233,14 +234,14 @@ def test_residual_tests_match_the_reference_libraries():
     # source: scipy.stats.shapiro; statsmodels jarque_bera and durbin_watson on the residuals
     w, p = stats.shapiro(ref.resid)
     sw = ct.shapiro_test(fit)
-    assert sw["statistic"] == pytest.approx(w, rel=1e-8) and sw["p_value"] == pytest.approx(p)
+    assert sw.statistic == pytest.approx(w, rel=1e-8) and sw.p_value == pytest.approx(p)
     jb = ct.jarque_bera_test(fit)
     jb_ref = jarque_bera(ref.resid)
-    assert jb["statistic"] == pytest.approx(jb_ref[0], rel=1e-8)
-    assert jb["p_value"] == pytest.approx(jb_ref[1], rel=1e-8)
+    assert jb.statistic == pytest.approx(jb_ref[0], rel=1e-8)
+    assert jb.p_value == pytest.approx(jb_ref[1], rel=1e-8)
     dw = ct.durbin_watson_test(fit.resid)
-    assert dw["statistic"] == pytest.approx(sm.stats.durbin_watson(ref.resid), rel=1e-10)
-    assert dw["p_value"] is None  # statsmodels gives none, neither do we
+    assert dw.statistic == pytest.approx(sm.stats.durbin_watson(ref.resid), rel=1e-10)
+    assert dw.p_value is None  # statsmodels gives none, neither do we
 
 
 def test_generalized_vif_of_single_columns_is_the_ordinary_vif():
@@ -284,22 +285,19 @@ def test_breusch_godfrey_lag_rule():
 
 def test_guarded_entries_never_hold_non_finite_numbers():
     assert ct.num(float("nan")) is None and ct.num("x") is None and ct.num(np.float32(2)) == 2.0
-    ok = ct.guarded("T", lambda: {"statistic": np.float64(math.inf), "p_value": 0.5})
-    assert ok["statistic"] is None and ok["reason"] == "undefined for these data"
+    failed = ct.LjungBoxCheck(name="T", lags=3, df=3.0)
+    ok = ct.guarded(failed, lambda: replace(failed, statistic=np.float64(math.inf), p_value=0.5))
+    assert ok.statistic is None and ok.reason == "undefined for these data"
+    assert ok.ran and ok.p_value == 0.5 and type(ok.p_value) is float
 
     def not_here():
         raise ct.NotApplicable("needs 5 rows")
 
-    entry = ct.guarded("T", not_here, lags=3)
-    assert entry == {
-        "name": "T",
-        "statistic": None,
-        "p_value": None,
-        "lags": 3,
-        "reason": "needs 5 rows",
-    }
-    broken = ct.guarded("T", lambda: 1 / 0)
-    assert broken["reason"].startswith("could not be computed (ZeroDivisionError")
+    entry = ct.guarded(failed, not_here)
+    assert entry == ct.LjungBoxCheck(name="T", lags=3, df=3.0, reason="needs 5 rows")
+    assert not entry.ran and entry.statistic is None and entry.p_value is None
+    broken = ct.guarded(failed, lambda: 1 / 0)
+    assert broken.reason.startswith("could not be computed (ZeroDivisionError")
 
 
 def test_exact_fit_has_no_residual_tests():
@@ -307,4 +305,4 @@ def test_exact_fit_has_no_residual_tests():
     fit = ct.fit_model(3 + 2 * np.arange(8.0), X, True)
     assert fit.residual_reason and "exactly" in fit.residual_reason
     assert fit.influence is None
-    assert ct.shapiro_test(fit)["statistic"] is None
+    assert ct.shapiro_test(fit).statistic is None

@@ -7,7 +7,15 @@ response, no extrapolation) and Duan (1983) for what the smeared mean rests on.
 
 from __future__ import annotations
 
-from service.selection.cautions import EXTRAPOLATION, prediction_cautions, selection_cautions
+from typing import get_args
+
+from service.api.schemas import ValidationIn
+from service.selection.cautions import (
+    EXTRAPOLATION,
+    READINGS,
+    prediction_cautions,
+    selection_cautions,
+)
 
 
 def test_cautions_only_where_they_apply():
@@ -38,3 +46,13 @@ def test_prediction_cautions_in_their_order():
     both = prediction_cautions(True, True)
     assert both[0] == EXTRAPOLATION and "Duan 1983" in both[1] and len(both) == 2
     assert prediction_cautions(True, False) == both[1:]
+
+
+def test_every_metric_a_request_may_name_has_its_reading():
+    allowed = set(get_args(ValidationIn.model_fields["metric"].annotation))
+    assert {r.metric for r in READINGS} == allowed
+    for r in READINGS:
+        # the scored prediction: RMSE the mean, MAE and MAPE the median (Duan 1983; common
+        # practice for absolute errors)
+        (line,) = [c for c in selection_cautions(r.metric, True) if "cross-validated" in c]
+        assert r.metric.upper() in line and r.instead in line

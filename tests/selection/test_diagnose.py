@@ -40,10 +40,8 @@ def test_engel_log_log_matches_the_reference_sheet(engel):
     # smearing 118.9974 (rel 1e-6, same folds), Breusch-Pagan Koenker p 1.769e-4
     assert entry["coefficients"][1]["estimate"] == pytest.approx(0.85589699, rel=1e-7)
     assert entry["cv"].value == pytest.approx(118.9974, rel=1e-6)
-    bp = next(
-        t for t in entry["conditions"]["equal_variance"]["tests"] if t["name"].startswith("Breusch")
-    )
-    assert bp["p_value"] == pytest.approx(1.769e-4, rel=1e-3)
+    bp = next(t for t in entry["conditions"].equal_variance.tests if t.name.startswith("Breusch"))
+    assert bp.p_value == pytest.approx(1.769e-4, rel=1e-3)
     assert "equal_variance" in entry["score"]["parts"]["conditions_failed"]
     assert entry["score"]["parts"]["within_one_se"] and entry["score"]["cv_ratio"] == 1.0
     # plot points are the residuals of the same fit

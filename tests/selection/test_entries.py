@@ -28,6 +28,8 @@ from service.selection.entries import (
     table_for,
 )
 
+from tests.core.condition_reports import cond, report
+
 
 def test_dummy_terms_and_equation():
     rng = np.random.default_rng(3)
@@ -132,9 +134,9 @@ def test_equation_signs_and_response_label():
     ],
 )
 def test_choose_inference(failed, lags, blocked, kind, n_warnings):
-    conditions = {
-        c: {"holds": c not in failed} for c in ("independence", "equal_variance", "normality")
-    }
+    conditions = report(
+        **{c: cond(c not in failed) for c in ("independence", "equal_variance", "normality")}
+    )
     block, clause, warnings = choose_inference(conditions, lags, blocked)
     assert block["standard_errors"] == kind and len(warnings) == n_warnings
     assert (clause == "") == (kind == "classical")

@@ -31,6 +31,6 @@ def renders(result: Any) -> bool:
 
 
 # the areas register their renderers on import
-from . import cv, data, predictions, search  # noqa: E402,F401
+from . import conditions, cv, data, predictions, search  # noqa: E402,F401
 
 __all__ = ["contract", "renders"]
