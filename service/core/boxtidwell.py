@@ -60,6 +60,7 @@ FTOL = 1e-12  # relative RSS decrease below which two steps in a row count as co
 MAX_ITER = 30
 PROFILE_MAX_POWERS = 2  # the profile fallback searches at most this many powers at once
 CHUNK_ROWS = 32_768  # rows per block of a trial's passes (cache-sized)
+STACK_CELLS = 400_000  # folds x rows stepped in one stack (several candidates' folds)
 LOCAL_HALF_WIDTH = 0.5  # a started (per-fold) profile fallback searches start +- this
 _Z975 = 1.959963984540054  # standard normal 0.975 quantile
 
@@ -235,6 +236,24 @@ class _Problem:
         return coef if np.all(np.isfinite(coef)) else None
 
 
+def _inputs(
+    z: np.ndarray, Xf: np.ndarray, x: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(z, X_f, x (n, k), log x) as float arrays after the checks of an all-rows estimate:
+    x > 0 and more rows than the parameters + 1 (else :class:`CandidateFailure`)."""
+    z = np.asarray(z, dtype=float)
+    Xf = np.asarray(Xf, dtype=float)
+    x = np.asarray(x, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    if np.any(x <= 0):
+        raise CandidateFailure("an estimated power needs a predictor with values > 0")
+    n, k = z.size, x.shape[1]
+    if n <= Xf.shape[1] + 2 * k + 1:
+        raise CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
+    return z, Xf, x, np.log(x)
+
+
 def estimate_powers(
     z: np.ndarray,
     Xf: np.ndarray,
@@ -251,19 +270,11 @@ def estimate_powers(
     :class:`CandidateFailure` when neither the iteration nor the profile search
     gives finite powers.
     """
-    z = np.asarray(z, dtype=float)
-    x = np.asarray(x, dtype=float)
-    if x.ndim == 1:
-        x = x[:, None]
-    if np.any(x <= 0):
-        raise CandidateFailure("an estimated power needs a predictor with values > 0")
-    logx = np.log(x)
+    z, Xf, x, logx = _inputs(z, Xf, x)
     k = logx.shape[1]
     n = z.size
     p = Xf.shape[1] + 2 * k
-    if n <= p + 1:
-        raise CandidateFailure(f"{n} rows are too few to estimate {k} predictor power(s)")
-    prob = _Problem(z, np.asarray(Xf, dtype=float), logx, boxcox_form)
+    prob = _Problem(z, Xf, logx, boxcox_form)
     a = np.ones(k) if start is None else np.clip(np.asarray(start, float).copy(), *POWER_BOUNDS)
     rss, coef, cache = prob.trial(a)
     converged = False
@@ -418,9 +429,10 @@ def is_open(t: tr.Transform) -> bool:
 def _power_columns_stacked(
     L: np.ndarray, A: np.ndarray, boxcox_form: bool
 ) -> tuple[np.ndarray, np.ndarray]:
-    """:func:`power_columns` for several power vectors at once: ``L`` (b, k) log x, ``A``
-    (F, k) powers; returns W, D (F, b, k), element for element the same arithmetic."""
-    Lb = L[None, :, :]
+    """:func:`power_columns` for several power vectors at once: ``L`` (b, k) log x, or
+    (F, b, k) one per power vector, ``A`` (F, k) powers; returns W, D (F, b, k), element for
+    element the same arithmetic."""
+    Lb = L[None, :, :] if L.ndim == 2 else L
     if not boxcox_form:
         xa = np.exp(A[:, None, :] * Lb)
         return xa, xa * Lb
@@ -454,6 +466,11 @@ class _Folds:
     from the residuals) and the whole the next Gauss-Newton step.  A fold that fails the
     check is solved by pivoted QR of its assembled training design, as in
     :class:`_Problem`.
+
+    The folds of several candidates (each with its own fixed columns and powered
+    predictors, all of the same sizes) are stacked the same way: ``Xf`` (C, n, p_f) and
+    ``logx`` (C, n, k) hold every candidate's columns and ``owner[f]`` the candidate whose
+    fold f is; without ``owner`` there is one candidate, ``Xf`` (n, p_f), ``logx`` (n, k).
     """
 
     def __init__(
@@ -465,10 +482,14 @@ class _Folds:
         boxcox_form: bool,
         grams: np.ndarray | None,
         crosses: np.ndarray | None,
+        owner: np.ndarray | None = None,
     ):
         F, n = Z.shape
-        self.Xf, self.logx, self.train, self.bc = Xf, logx, train, boxcox_form
-        self.pf, self.k = Xf.shape[1], logx.shape[1]
+        if owner is None:
+            Xf, logx, owner = Xf[None], logx[None], np.zeros(F, dtype=np.intp)
+        self.Xf, self.logx, self.owner, self.train, self.bc = Xf, logx, owner, train, boxcox_form
+        self.shared = Xf.shape[0] == 1  # one candidate: its columns broadcast to every fold
+        self.pf, self.k = Xf.shape[2], logx.shape[2]
         M = np.zeros((F, n), dtype=bool)
         for f, rows in enumerate(train):
             M[f, rows] = True
@@ -476,10 +497,20 @@ class _Folds:
         self.Z = Z
         self.Zm = np.where(M, Z, 0.0)
         if grams is None:
-            grams = np.stack([Xf[rows].T @ Xf[rows] for rows in train])
+            grams = np.stack(
+                [self._xf(f)[rows].T @ self._xf(f)[rows] for f, rows in enumerate(train)]
+            )
         if crosses is None:
-            crosses = np.matmul(self.Zm, Xf)
+            crosses = np.empty((F, self.pf))
+            for o in np.unique(owner):  # per candidate, the one-candidate path's product
+                at = owner == o
+                crosses[at] = np.matmul(self.Zm[at], Xf[o])
         self.Gff, self.cf = grams, crosses
+
+    def _xf(self, f: int) -> np.ndarray:
+        """Fold f's fixed columns on all rows (n, p_f)."""
+        out: np.ndarray = self.Xf[self.owner[f]]
+        return out
 
     def trial(
         self, idx: np.ndarray, A: np.ndarray
@@ -492,6 +523,11 @@ class _Folds:
         Fa = idx.size
         P, P1 = pf + 2 * k, pf + k
         M, Zm = self.M[idx], self.Zm[idx]
+        if self.shared:
+            Xo, Lo = self.Xf[0], self.logx[0]  # (n, p_f), (n, k)
+        else:
+            own = self.owner[idx]
+            Xo, Lo = self.Xf[own], self.logx[own]  # (Fa, n, p_f), (Fa, n, k)
         G = np.empty((Fa, P, P))
         G[:, :pf, :pf] = self.Gff[idx]
         G[:, pf:, :] = 0.0
@@ -507,13 +543,13 @@ class _Folds:
         with np.errstate(over="ignore", invalid="ignore"):
             for s in range(0, n, CHUNK_ROWS):
                 sl = slice(s, s + CHUNK_ROWS)
-                W, D = _power_columns_stacked(self.logx[sl], A, self.bc)
+                W, D = _power_columns_stacked(Lo[..., sl, :], A, self.bc)
                 m = M[:, sl, None]
                 wfin &= np.all(np.isfinite(W) | ~m, axis=(1, 2))
                 dfin &= np.all(np.isfinite(D) | ~m, axis=(1, 2))
                 WD = np.where(m, np.concatenate([W, D], axis=2), 0.0)
                 Ws.append(WD[:, :, :k])
-                G[:, :pf, pf:] += np.matmul(self.Xf[sl].T, WD)
+                G[:, :pf, pf:] += np.matmul(np.swapaxes(Xo[..., sl, :], -1, -2), WD)
                 G[:, pf:, pf:] += np.matmul(WD.transpose(0, 2, 1), WD)
                 c[:, pf:] += np.matmul(Zm[:, None, sl], WD)[:, 0, :]
             G[:, pf:, :pf] = G[:, :pf, pf:].transpose(0, 2, 1)
@@ -532,7 +568,14 @@ class _Folds:
             rss = np.zeros(Fa)
             for j, s in enumerate(range(0, n, CHUNK_ROWS)):
                 sl = slice(s, s + CHUNK_ROWS)
-                eta = cf @ self.Xf[sl].T + np.matmul(Ws[j], cw[:, :, None])[:, :, 0]
+                if self.shared:
+                    fixed = cf @ Xo[sl].T
+                else:  # per candidate, the one-candidate path's product
+                    fixed = np.empty((Fa, min(n, s + CHUNK_ROWS) - s))
+                    for o in np.unique(own):
+                        at = own == o
+                        fixed[at] = cf[at] @ self.Xf[o][sl].T
+                eta = fixed + np.matmul(Ws[j], cw[:, :, None])[:, :, 0]
                 r = np.where(M[:, sl], Zm[:, sl] - eta, 0.0)
                 rss += np.einsum("fb,fb->f", r, r)
         rss = np.where(wfin & np.isfinite(rss), rss, math.inf)
@@ -542,8 +585,9 @@ class _Folds:
         """Pivoted-QR coefficients of fold f's training design at powers ``a`` (NaN when
         it has no finite solution)."""
         rows = self.train[f]
-        W, D = power_columns(self.logx[rows], a, self.bc)
-        design = np.hstack([self.Xf[rows], W, D] if with_d else [self.Xf[rows], W])
+        W, D = power_columns(self.logx[self.owner[f]][rows], a, self.bc)
+        Xf = self._xf(f)[rows]
+        design = np.hstack([Xf, W, D] if with_d else [Xf, W])
         try:
             coef, _, _ = qr_solve(design, self.Z[f, rows], with_condition=False)
         except CandidateFailure:
@@ -607,20 +651,181 @@ def estimate_fold_powers(
     F, (n, k), pf = len(train), logx.shape, Xf.shape[1]
     Z = np.broadcast_to(z, (F, n)) if z.ndim == 1 else z
     folds = _Folds(Z, Xf, logx, train, boxcox_form, grams, crosses)
-    a, rss, converged, its, _left = _damped_steps(folds.trial, folds.qr_full, F, pf, k, start)
-    out: list[PowerFit] = []
-    for f in range(F):
-        if converged[f]:
-            out.append(PowerFit(a[f].copy(), None, True, int(its[f]), "box_tidwell", float(rss[f])))
-            continue
-        rows = train[f]
-        prob = _Problem(Z[f, rows], Xf[rows], logx[rows], boxcox_form)
+    steps = _damped_steps(folds.trial, folds.qr_full, F, pf, k, start)
+    return [_settled(folds, steps, f, names[f]) for f in range(F)]
+
+
+_Steps = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+
+
+def _settled(folds: _Folds, steps: _Steps, f: int, name: int) -> PowerFit:
+    """Fold f's fit after the stacked steps: the iterate where it converged, else the
+    started profile search on its training rows (:func:`_fallback`).  Raises
+    :class:`CandidateFailure` naming the fold (``name``)."""
+    a, rss, converged, its, _left = steps
+    if converged[f]:
+        return PowerFit(a[f].copy(), None, True, int(its[f]), "box_tidwell", float(rss[f]))
+    rows = folds.train[f]
+    prob = _Problem(
+        folds.Z[f, rows], folds._xf(f)[rows], folds.logx[folds.owner[f]][rows], folds.bc
+    )
+    try:
+        af, rf, method = _fallback(prob, a[f].copy(), float(rss[f]), False, int(its[f]), True)
+    except CandidateFailure as exc:
+        raise CandidateFailure(f"fold {name}: {exc.reason}") from None
+    return PowerFit(af, None, True, int(its[f]), method, rf)
+
+
+def estimate_many_powers(
+    problems: list[tuple[np.ndarray, np.ndarray, np.ndarray]], boxcox_form: bool = True
+) -> list[PowerFit | CandidateFailure]:
+    """:func:`estimate_powers` (started at 1, with standard errors) for many candidates
+    ``(z, X_f, x)`` on all their rows at once: per candidate its fit, or the
+    :class:`CandidateFailure` that call would raise.
+
+    Candidates with the same numbers of fixed columns and powers take their damped
+    Gauss-Newton steps together (:class:`_Folds`, one problem per candidate with all rows
+    as its training rows; the fit on [X_f, W] read from the leading block of the factor of
+    [X_f, W, D], as the per-fold estimates do), each with the stopping rules of
+    :func:`estimate_powers`; one that does not converge takes its whole-range profile
+    search, and the standard errors are :func:`estimate_powers`' own.
+    """
+    out: list[PowerFit | CandidateFailure | None] = [None] * len(problems)
+    groups: dict[tuple[int, int, int], list[int]] = {}
+    inputs: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
+    for i, problem in enumerate(problems):
         try:
-            af, rf, method = _fallback(prob, a[f].copy(), float(rss[f]), False, int(its[f]), True)
+            inputs[i] = _inputs(*problem)
         except CandidateFailure as exc:
-            raise CandidateFailure(f"fold {names[f]}: {exc.reason}") from None
-        out.append(PowerFit(af, None, True, int(its[f]), method, rf))
-    return out
+            out[i] = exc
+            continue
+        z, Xf, x, _logx = inputs[i]
+        groups.setdefault((z.size, Xf.shape[1], x.shape[1]), []).append(i)
+    for (n, pf, k), members in groups.items():
+        every = np.arange(n)
+        for s in range(0, len(members), max(1, STACK_CELLS // n)):
+            part = members[s : s + max(1, STACK_CELLS // n)]
+            folds = _Folds(
+                np.stack([inputs[i][0] for i in part]),
+                np.stack([inputs[i][1] for i in part]),
+                np.stack([inputs[i][3] for i in part]),
+                [every] * len(part),
+                boxcox_form,
+                None,
+                None,
+                np.arange(len(part)),
+            )
+            a, rss, conv, its, _left = _damped_steps(
+                folds.trial, folds.qr_full, len(part), pf, k, np.ones(k)
+            )
+            for f, i in enumerate(part):
+                z, Xf, x, logx = inputs[i]
+                prob = _Problem(z, Xf, logx, boxcox_form)
+                try:
+                    af, rf, method = _fallback(
+                        prob, a[f].copy(), float(rss[f]), bool(conv[f]), int(its[f]), False
+                    )
+                except CandidateFailure as exc:
+                    out[i] = exc
+                    continue
+                se = _std_errors(z, Xf, logx, af, boxcox_form, n, pf + 2 * k)
+                out[i] = PowerFit(
+                    af, se, bool(conv[f]) or method == "profile", int(its[f]), method, rf
+                )
+    return [r for r in out if r is not None]
+
+
+@dataclass(frozen=True)
+class FoldPowerProblem:
+    """One candidate's per-fold power estimates, as :func:`estimate_fold_powers` takes them:
+    ``z`` (n,) or (F, n), ``Xf`` (n, p_f), ``x`` (n, k), ``train``, ``start`` (k,), and the
+    folds' fixed cross-products ``grams`` (F, p_f, p_f) / ``crosses`` (F, p_f) when known."""
+
+    z: np.ndarray
+    Xf: np.ndarray
+    x: np.ndarray
+    train: list[np.ndarray]
+    start: np.ndarray
+    grams: np.ndarray | None = None
+    crosses: np.ndarray | None = None
+    labels: list[int] | None = None
+
+
+def estimate_many_fold_powers(
+    problems: list[FoldPowerProblem], boxcox_form: bool = True
+) -> list[list[PowerFit] | CandidateFailure]:
+    """:func:`estimate_fold_powers` for many candidates at once: per candidate its folds'
+    fits, or the :class:`CandidateFailure` that call would raise.
+
+    Candidates with the same numbers of fixed columns and powers are stepped together: the
+    folds of all of them form one stack (:class:`_Folds` with an owner per fold), so every
+    Gauss-Newton step and every halving is one stacked factorisation for all candidates x
+    folds still moving, each (candidate, fold) with its own powers, damping, halving and
+    stopping rules, and its own QR and profile fallbacks, exactly as one call per candidate
+    takes them.
+    """
+    out: list[list[PowerFit] | CandidateFailure | None] = [None] * len(problems)
+    ready: dict[
+        tuple[int, int, int], list[tuple[int, np.ndarray, np.ndarray, np.ndarray, list[int]]]
+    ]
+    ready = {}
+    for i, pr in enumerate(problems):
+        try:
+            z, Xf, logx, names = _fold_inputs(pr.z, pr.Xf, pr.x, pr.train, pr.labels)
+        except CandidateFailure as exc:
+            out[i] = exc
+            continue
+        size = (Xf.shape[1], logx.shape[1], Xf.shape[0])
+        ready.setdefault(size, []).append((i, z, Xf, logx, names))
+    chunks: list[tuple[int, int, list[tuple[int, np.ndarray, np.ndarray, np.ndarray, list[int]]]]]
+    chunks = []
+    for (pf, k, n), group in ready.items():
+        cells = STACK_CELLS + 1  # a new stack for every size
+        for m in group:  # at most STACK_CELLS fold rows in one stack (and one candidate at least)
+            add = len(problems[m[0]].train) * n
+            if cells + add > STACK_CELLS:
+                chunks.append((pf, k, []))
+                cells = 0
+            chunks[-1][2].append(m)
+            cells += add
+    for pf, k, members in chunks:
+        n = members[0][2].shape[0]
+        F = [len(problems[i].train) for i, *_ in members]
+        owner = np.repeat(np.arange(len(members)), F)
+        Z = np.concatenate(
+            [np.broadcast_to(z, (f, n)) for (_, z, *_r), f in zip(members, F, strict=True)]
+        )
+        train = [rows for i, *_ in members for rows in problems[i].train]
+        grams = crosses = None
+        if all(problems[i].grams is not None for i, *_ in members):
+            grams = np.concatenate([problems[i].grams for i, *_ in members])
+        if all(problems[i].crosses is not None for i, *_ in members):
+            crosses = np.concatenate([problems[i].crosses for i, *_ in members])
+        starts = np.concatenate(
+            [
+                np.broadcast_to(np.asarray(problems[i].start, float), (f, k))
+                for (i, *_r), f in zip(members, F, strict=True)
+            ]
+        )
+        folds = _Folds(
+            Z,
+            np.stack([m[2] for m in members]),
+            np.stack([m[3] for m in members]),
+            train,
+            boxcox_form,
+            grams,
+            crosses,
+            owner,
+        )
+        steps = _damped_steps(folds.trial, folds.qr_full, owner.size, pf, k, starts)
+        first = 0
+        for (i, _z, _Xf, _L, names), f_count in zip(members, F, strict=True):
+            try:
+                out[i] = [_settled(folds, steps, first + f, names[f]) for f in range(f_count)]
+            except CandidateFailure as exc:
+                out[i] = exc
+            first += f_count
+    return [r for r in out if r is not None]
 
 
 # (rss, coef of [X_f, W], coef of [X_f, W, D], qr) of folds ``idx`` at powers (len(idx), k)
@@ -638,11 +843,12 @@ def _damped_steps(
     """The damped Gauss-Newton iteration of :func:`estimate_powers` for F folds at once:
     (powers (F, k), rss (F,), converged, iterations, left).
 
-    ``trial(idx, A)`` evaluates folds ``idx`` at powers ``A``; ``full(f, a)`` gives fold f's
+    ``start``: (k,) for every fold, or (F, k) one row per fold.  ``trial(idx, A)``
+    evaluates folds ``idx`` at powers ``A``; ``full(f, a)`` gives fold f's
     coefficients of [X_f, W, D] where ``trial`` flagged it (``qr``).  Without ``full`` a
     flagged fold leaves at once: it is ``left`` (neither converged nor stepped further),
     for the caller to settle by another path."""
-    a = np.tile(np.clip(np.asarray(start, float), *POWER_BOUNDS), (F, 1))
+    a = np.broadcast_to(np.clip(np.asarray(start, float), *POWER_BOUNDS), (F, k)).copy()
     rss, coef, g, qr = trial(np.arange(F), a)
     converged = np.zeros(F, dtype=bool)
     left = qr.copy() if full is None else np.zeros(F, dtype=bool)

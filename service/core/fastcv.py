@@ -24,7 +24,8 @@ started at the all-rows estimate; the column then differs per fold).
 from __future__ import annotations
 
 import math
-from dataclasses import replace
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -33,16 +34,18 @@ from . import retransform
 from . import transforms as tr
 from .bank import ColumnBank
 from .boxtidwell import (
+    FoldPowerProblem,
     PowerFit,
     estimate_fold_powers,
     estimate_fold_powers_by_series,
+    estimate_many_fold_powers,
     estimate_powers,
     power_columns,
 )
 from .cvresult import CVResult, Dynamic, OutOfFold, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
-from .likelihood import fit_transform, fold_lambdas
+from .likelihood import FoldLambdaProblem, fit_transform, fold_lambdas, many_fold_lambdas
 from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -87,6 +90,18 @@ def undefined_back_transform(t: tr.Transform, k: int, count: int) -> CandidateFa
     )
 
 
+@dataclass(frozen=True)
+class Found:
+    """What a batch over many candidates found for one candidate's training folds, for
+    :meth:`Scorer.score` to use instead of finding it again: every repeat's fold powers
+    (``powers[r][k]``), or the all-rows lambda ``near`` and the folds' lambdas of all
+    repeats (``lambdas[r K + k]``, None where the one-fold path answers)."""
+
+    powers: list[list[PowerFit]] | None = None
+    near: float | None = None
+    lambdas: list[float | None] | None = None
+
+
 class Scorer:
     """Scores candidates that share one bank, one plan and one response column."""
 
@@ -122,13 +137,16 @@ class Scorer:
         names: list[str] | None = None,
         dynamic: Dynamic | None = None,
         keep_out_of_fold: bool = False,
+        found: Found | None = None,
     ) -> CVResult:
         """``keep_out_of_fold``: also return the first repeat's fold fits and out-of-fold
-        residuals (:class:`OutOfFold`, with each fold's estimated predictor powers)."""
+        residuals (:class:`OutOfFold`, with each fold's estimated predictor powers);
+        ``found``: the folds' powers or lambdas from :meth:`powers_many` /
+        :meth:`lambdas_many`."""
         # Values near the float limits overflow in squares and products; every result is
         # checked for finiteness below and such a candidate fails with its reason.
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            return self._score(t, cols, names, dynamic, keep_out_of_fold)
+            return self._score(t, cols, names, dynamic, keep_out_of_fold, found=found)
 
     def out_of_fold(
         self,
@@ -153,6 +171,7 @@ class Scorer:
         dynamic: Dynamic | None,
         keep: bool = False,
         first_only: bool = False,
+        found: Found | None = None,
     ) -> CVResult:
         """Cross-validate the candidate (response scale ``t``, bank columns ``cols``).
 
@@ -174,7 +193,9 @@ class Scorer:
             raise CandidateFailure(
                 "an estimated predictor power is not combined with an estimated response lambda"
             )
-        if estimate_lam:
+        if estimate_lam and found is not None and found.lambdas is not None:
+            near = found.near
+        elif estimate_lam:
             try:
                 near = fit_transform(t, y, XS).lam
             except ValueError as exc:
@@ -194,10 +215,15 @@ class Scorer:
         repeats = 1 if first_only else plan.repeats
         fixed = None if per_fold else (t0, z)
         powers_of: list[list[PowerFit]] | None = None
-        if dynamic is not None and repeats > 1 and n * repeats * K <= POWER_BATCH_CELLS:
-            powers_of = self._powers_all_repeats(t, S, XS, dynamic, per_fold, fixed)
         lams_of: list[float | None] | None = None
-        if estimate_lam and repeats > 1 and n * repeats * K <= LAMBDA_BATCH_CELLS:
+        if found is not None and not first_only:
+            powers_of = found.powers if dynamic is not None else None
+            lams_of = found.lambdas if estimate_lam else None
+        if powers_of is not None or lams_of is not None:
+            pass  # found together with other candidates' (powers_many, lambdas_many)
+        elif dynamic is not None and repeats > 1 and n * repeats * K <= POWER_BATCH_CELLS:
+            powers_of = self._powers_all_repeats(t, S, XS, dynamic, per_fold, fixed)
+        elif estimate_lam and repeats > 1 and n * repeats * K <= LAMBDA_BATCH_CELLS:
             # every repeat's folds in one batch (fewer, larger stacked steps)
             lams_of = fold_lambdas(
                 t.name,
@@ -377,6 +403,43 @@ class Scorer:
             zs.append(zk)
         return ts, zs
 
+    def _power_problem(
+        self,
+        t: tr.Transform,
+        S: np.ndarray,
+        XS: np.ndarray,
+        dyn: Dynamic,
+        per_fold: bool,
+        fixed: tuple[tr.Transform, np.ndarray] | None,
+    ) -> FoldPowerProblem:
+        """The per-fold power estimates of every training fold of every repeat, as
+        :func:`boxtidwell.estimate_fold_powers` takes them (fixed cross-products downdated
+        from the bank).  Raises :class:`CandidateFailure` when a fold's response scale
+        cannot be formed."""
+        bank, R = self.bank, self.plan.repeats
+        train_all = [rows for r in range(R) for rows in bank.index.train[r]]
+        zs_all = [z for r in range(R) for z in self._fold_scales(t, r, XS, 0, fixed, None, None)[1]]
+        grams = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+        if not per_fold:
+            cf, ctot = bank.cross(t, zs_all[0])
+            crosses: np.ndarray | None = np.concatenate(
+                [ctot[r][S][None, :] - cf[r][:, S] for r in range(R)]
+            )
+            Z = zs_all[0]
+        else:
+            crosses = None
+            Z = np.stack(zs_all)
+        return FoldPowerProblem(
+            Z,
+            XS,
+            dyn.x,
+            train_all,
+            dyn.start,
+            grams,
+            crosses,
+            [k + 1 for _r in range(R) for k in range(self.plan.folds)],
+        )
+
     def _powers_all_repeats(
         self,
         t: tr.Transform,
@@ -389,37 +452,95 @@ class Scorer:
         """The estimated powers of every training fold of every repeat in one batch (fewer,
         larger stacked steps than one batch per repeat), or None when a fold fails: the
         repeat-by-repeat path then meets and reports the first failure in its own order."""
-        bank, R = self.bank, self.plan.repeats
-        train_all = [rows for r in range(R) for rows in bank.index.train[r]]
         try:
-            zs_all = [
-                z for r in range(R) for z in self._fold_scales(t, r, XS, 0, fixed, None, None)[1]
-            ]
-            grams = np.concatenate([bank.train_grams(S, r) for r in range(R)])
-            if not per_fold:
-                cf, ctot = bank.cross(t, zs_all[0])
-                crosses: np.ndarray | None = np.concatenate(
-                    [ctot[r][S][None, :] - cf[r][:, S] for r in range(R)]
-                )
-                Z = zs_all[0]
-            else:
-                crosses = None
-                Z = np.stack(zs_all)
+            pr = self._power_problem(t, S, XS, dyn, per_fold, fixed)
             fits = estimate_fold_powers(
-                Z,
-                XS,
-                dyn.x,
-                train_all,
-                dyn.start,
+                pr.z,
+                pr.Xf,
+                pr.x,
+                pr.train,
+                pr.start,
                 dyn.boxcox_form,
-                grams=grams,
-                crosses=crosses,
-                labels=[k + 1 for _r in range(R) for k in range(self.plan.folds)],
+                grams=pr.grams,
+                crosses=pr.crosses,
+                labels=pr.labels,
             )
         except CandidateFailure:
             return None
         K = self.plan.folds
-        return [fits[r * K : (r + 1) * K] for r in range(R)]
+        return [fits[r * K : (r + 1) * K] for r in range(self.plan.repeats)]
+
+    def powers_many(
+        self, items: Sequence[tuple[tr.Transform, Sequence[int], Dynamic]]
+    ) -> list[Found | None]:
+        """The fold powers of many candidates (response scale, bank columns, the columns
+        whose powers every fold estimates), all repeats' folds of all of them stepped
+        together (:func:`boxtidwell.estimate_many_fold_powers`): what :meth:`score` finds
+        for each alone.  None for a candidate :meth:`score` must settle alone: a fold that
+        fails (it reports the first failure in its own order), a response lambda, a table
+        above ``POWER_BATCH_CELLS`` for all repeats at once."""
+        R, K = self.plan.repeats, self.plan.folds
+        out: list[Found | None] = [None] * len(items)
+        if self.y.size * R * K > POWER_BATCH_CELLS:
+            return out
+        forms: dict[bool, tuple[list[int], list[FoldPowerProblem]]] = {}
+        for i, (t, cols, dyn) in enumerate(items):
+            if t.needs_lambda:
+                continue
+            S = np.asarray(cols, dtype=int)
+            XS = self.bank.columns(S)
+            per_fold = self.per_fold_response(t)
+            fixed = None
+            if not per_fold:
+                t0, z, finite = self.fixed_response(t)
+                if not finite:
+                    continue
+                fixed = (t0, z)
+            try:
+                pr = self._power_problem(t, S, XS, dyn, per_fold, fixed)
+            except CandidateFailure:
+                continue
+            where, probs = forms.setdefault(dyn.boxcox_form, ([], []))
+            where.append(i)
+            probs.append(pr)
+        for form, (where, probs) in forms.items():
+            for i, fits in zip(where, estimate_many_fold_powers(probs, form), strict=True):
+                if not isinstance(fits, CandidateFailure):
+                    out[i] = Found(powers=[fits[r * K : (r + 1) * K] for r in range(R)])
+        return out
+
+    def lambdas_many(
+        self, items: Sequence[tuple[tr.Transform, Sequence[int]]]
+    ) -> list[Found | None]:
+        """The all-rows lambda and the fold lambdas of many candidates (response scale with
+        a lambda to estimate, bank columns), all repeats' folds of all of them found
+        together (:func:`likelihood.many_fold_lambdas`): what :meth:`score` finds for each
+        alone.  None for a candidate :meth:`score` settles alone (no all-rows lambda, a
+        table above ``LAMBDA_BATCH_CELLS`` for all repeats at once)."""
+        R, K = self.plan.repeats, self.plan.folds
+        out: list[Found | None] = [None] * len(items)
+        if self.y.size * R * K > LAMBDA_BATCH_CELLS:
+            return out
+        train_all = [rows for r in range(R) for rows in self.bank.index.train[r]]
+        fams: dict[str, tuple[list[int], list[FoldLambdaProblem]]] = {}
+        for i, (t, cols) in enumerate(items):
+            if not t.needs_lambda:
+                continue
+            S = np.asarray(cols, dtype=int)
+            XS = self.bank.columns(S)
+            try:
+                near = fit_transform(t, self.y, XS).lam
+            except ValueError:
+                continue
+            grams = np.concatenate([self.bank.train_grams(S, r) for r in range(R)])
+            where, probs = fams.setdefault(t.name, ([], []))
+            where.append(i)
+            probs.append(FoldLambdaProblem(XS, train_all, grams, near))
+        for family, (where, probs) in fams.items():
+            got = many_fold_lambdas(family, self.y, probs)
+            for i, pr, lams in zip(where, probs, got, strict=True):
+                out[i] = Found(near=pr.near, lambdas=lams)
+        return out
 
     # ------------------------------------------------------------- solutions
     def _solve_static(

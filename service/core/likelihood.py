@@ -414,15 +414,25 @@ class _FoldProfiles:
     :func:`_scaled_box_cox`) of several training folds, evaluated together.
 
     ``v`` (n,) is log y (or log(1 + y)), ``M`` (F, n) the training rows, ``grams`` the folds'
-    X'X.  Each fold's column-scaled X'X is checked and factored as in :class:`_Projector`
-    (all folds in one stacked call); a fold's RSS comes from its factor, rss = z'z - c'c,
-    unless the subtraction could lose accuracy (rss <= 1e-7 z'z), when that fold's own
-    :class:`_Projector` forms the residual from QR.
+    X'X.  ``X`` is the design on all rows (n, p), or with ``owner`` one design per candidate
+    (C, n, p) and ``owner[f]`` the candidate whose fold f is (the folds of several
+    candidates with designs of one width, evaluated together).  Each fold's column-scaled
+    X'X is checked and factored as in :class:`_Projector` (all folds in one stacked call); a
+    fold's RSS comes from its factor, rss = z'z - c'c, unless the subtraction could lose
+    accuracy (rss <= 1e-7 z'z), when that fold's own :class:`_Projector` forms the residual
+    from QR.
     """
 
-    def __init__(self, v: np.ndarray, X: np.ndarray, M: np.ndarray, grams: np.ndarray):
+    def __init__(
+        self,
+        v: np.ndarray,
+        X: np.ndarray,
+        M: np.ndarray,
+        grams: np.ndarray,
+        owner: np.ndarray | None = None,
+    ):
         F = M.shape[0]
-        self.X, self.M = X, M
+        self.X, self.M, self.owner = X, M, owner
         self.nf = M.sum(axis=1).astype(float)
         self.lgm = np.array([np.mean(v[row]) for row in M])  # as the one-fold path
         self.gm = np.exp(self.lgm)
@@ -443,7 +453,7 @@ class _FoldProfiles:
                 self.L[self.ok] = np.linalg.cholesky(G[self.ok])
             except np.linalg.LinAlgError:
                 self.ok[:] = False
-        ones = np.matmul(M.astype(float), X)  # each fold's column sums
+        ones = self._cross(np.arange(F), M.astype(float))  # each fold's column sums
         self.has_const = np.zeros(F, dtype=bool)
         if np.any(self.ok):
             c = self._coef_rhs(np.flatnonzero(self.ok), ones[self.ok])
@@ -451,6 +461,21 @@ class _FoldProfiles:
                 1e-12 * self.nf[self.ok]
             )
         self._proj: dict[int, _Projector] = {}
+
+    def _cross(self, idx: np.ndarray, z: np.ndarray) -> np.ndarray:
+        """X'z of folds ``idx`` for their rows ``z`` (len(idx), n), each on its own design."""
+        if self.owner is None:
+            out: np.ndarray = np.matmul(z, self.X)
+            return out
+        own = self.owner[idx]
+        out = np.empty((idx.size, self.X.shape[2]))
+        for o in np.unique(own):  # per candidate, the one-candidate path's product
+            at = own == o
+            out[at] = np.matmul(z[at], self.X[o])
+        return out
+
+    def _design(self, f: int) -> np.ndarray:
+        return self.X if self.owner is None else self.X[self.owner[f]]
 
     def _coef_rhs(self, idx: np.ndarray, xz: np.ndarray) -> np.ndarray:
         c: np.ndarray = np.linalg.solve(self.L[idx], (xz / self.scale[idx])[:, :, None])[:, :, 0]
@@ -471,13 +496,13 @@ class _FoldProfiles:
             finite = np.all(np.isfinite(z) | ~M, axis=1)
             z = np.where(M & finite[:, None], z, 0.0)
             zz = np.einsum("fb,fb->f", z, z)
-            c = self._coef_rhs(idx, np.matmul(z, self.X))
+            c = self._coef_rhs(idx, self._cross(idx, z))
             rss = zz - np.sum(c * c, axis=1)
         for j in np.flatnonzero(finite & ~(rss > 1e-7 * zz)):
             f = int(idx[j])
             if f not in self._proj:
                 rows = np.flatnonzero(self.M[f])
-                self._proj[f] = _Projector(self.X[rows], rows.size)
+                self._proj[f] = _Projector(self._design(f)[rows], rows.size)
             rss[j] = self._proj[f].rss(z[j, self.M[f]])
         n = self.nf[idx]
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -502,6 +527,64 @@ def fold_lambdas(
     value was found): the one-fold :func:`estimate_lambda` answers for it (and names the
     problem).
     """
+    return _lambdas(family, y, X, None, train, grams, np.full(len(train), _no_near(near)))
+
+
+@dataclass(frozen=True)
+class FoldLambdaProblem:
+    """One candidate's per-fold lambdas, as :func:`fold_lambdas` takes them: its design
+    ``X`` (n, p) on all rows, the folds' training rows and X'X (F, p, p), the warm start."""
+
+    X: np.ndarray
+    train: list[np.ndarray]
+    grams: np.ndarray
+    near: float | None
+
+
+def many_fold_lambdas(
+    family: str, y: np.ndarray, problems: list[FoldLambdaProblem]
+) -> list[list[float | None]]:
+    """:func:`fold_lambdas` of many candidates (one response ``y``, each candidate its own
+    design and warm start): the folds of all candidates whose designs have the same width
+    take every grid evaluation and every Brent step together, each fold exactly the steps
+    it takes alone."""
+    out: list[list[float | None]] = [[None] * len(pr.train) for pr in problems]
+    widths: dict[int, list[int]] = {}
+    for i, pr in enumerate(problems):
+        widths.setdefault(pr.X.shape[1], []).append(i)
+    for members in widths.values():
+        sizes = [len(problems[i].train) for i in members]
+        got = _lambdas(
+            family,
+            y,
+            np.stack([problems[i].X for i in members]),
+            np.repeat(np.arange(len(members)), sizes),
+            [rows for i in members for rows in problems[i].train],
+            np.concatenate([problems[i].grams for i in members]),
+            np.repeat([_no_near(problems[i].near) for i in members], sizes),
+        )
+        first = 0
+        for i, size in zip(members, sizes, strict=True):
+            out[i] = got[first : first + size]
+            first += size
+    return out
+
+
+def _no_near(near: float | None) -> float:
+    return math.nan if near is None else float(near)
+
+
+def _lambdas(
+    family: str,
+    y: np.ndarray,
+    X: np.ndarray,
+    owner: np.ndarray | None,
+    train: list[np.ndarray],
+    grams: np.ndarray,
+    near: np.ndarray,
+) -> list[float | None]:
+    """:func:`fold_lambdas` with a warm start per fold (``near`` (F,), NaN for none) and,
+    with ``owner``, a design per candidate (``X`` (C, n, p), see :class:`_FoldProfiles`)."""
     F = len(train)
     out: list[float | None] = [None] * F
     y = np.asarray(y, dtype=float)
@@ -515,7 +598,7 @@ def fold_lambdas(
     M = np.zeros((F, y.size), dtype=bool)
     for f, rows in enumerate(train):
         M[f, rows] = True
-    prof = _FoldProfiles(v, X, M, grams)
+    prof = _FoldProfiles(v, X, M, grams, owner)
     todo = np.flatnonzero(prof.ok)
     if todo.size == 0:
         return out
@@ -524,26 +607,32 @@ def fold_lambdas(
     grid = np.full((T, n_grid), np.nan)
     vals = np.full((T, n_grid), -math.inf)
     width = np.zeros(T, dtype=int)  # grid points in use per fold
+    nr = near[todo]
     pending = np.ones(T, dtype=bool)
-    if near is not None and math.isfinite(near):
-        trio = np.clip(np.array([near - 0.25, near, near + 0.25]), *LAMBDA_BOUNDS)
-        tv = np.stack([prof.llf(todo, np.full(T, g)) for g in trio], axis=1)
+    started = np.isfinite(nr)
+    if np.any(started):
+        s = np.flatnonzero(started)
+        ns = nr[s][:, None]
+        trio = np.clip(ns + np.array([-0.25, 0.0, 0.25]), *LAMBDA_BOUNDS)  # (S, 3)
+        tv = np.stack([prof.llf(todo[s], trio[:, g]) for g in range(3)], axis=1)
         hold = (
             np.all(np.isfinite(tv), axis=1)
             & (tv[:, 1] >= tv[:, 0])
             & (tv[:, 1] >= tv[:, 2])
-            & (trio[0] < trio[2])
+            & (trio[:, 0] < trio[:, 2])
         )
-        grid[hold, :3], vals[hold, :3], width[hold] = trio, tv[hold], 3
-        pending &= ~hold
-        if np.any(pending):
-            g9 = np.clip(np.linspace(near - 1.0, near + 1.0, 9), *LAMBDA_BOUNDS)
-            p = np.flatnonzero(pending)
-            v9 = np.stack([prof.llf(todo[p], np.full(p.size, g)) for g in g9], axis=1)
+        h = s[hold]
+        grid[h, :3], vals[h, :3], width[h] = trio[hold], tv[hold], 3
+        pending[h] = False
+        p = s[~hold]
+        if p.size:
+            g9 = np.clip(nr[p][:, None] + np.linspace(-1.0, 1.0, 9), *LAMBDA_BOUNDS)  # (P, 9)
+            v9 = np.stack([prof.llf(todo[p], g9[:, g]) for g in range(9)], axis=1)
             i9 = np.argmax(np.where(np.isfinite(v9), v9, -np.inf), axis=1)
-            edge = np.isin(i9, (0, 8)) & (LAMBDA_BOUNDS[0] < g9[i9]) & (g9[i9] < LAMBDA_BOUNDS[1])
+            at = g9[np.arange(p.size), i9]
+            edge = np.isin(i9, (0, 8)) & (LAMBDA_BOUNDS[0] < at) & (at < LAMBDA_BOUNDS[1])
             keep = np.isfinite(v9[np.arange(p.size), i9]) & ~edge
-            grid[p[keep], :9], vals[p[keep], :9], width[p[keep]] = g9, v9[keep], 9
+            grid[p[keep], :9], vals[p[keep], :9], width[p[keep]] = g9[keep], v9[keep], 9
             pending[p[keep]] = False
     if np.any(pending):
         g25 = np.linspace(LAMBDA_BOUNDS[0], LAMBDA_BOUNDS[1], n_grid)

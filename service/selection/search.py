@@ -15,7 +15,7 @@ import math
 import re
 import time
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -38,7 +38,7 @@ from ..core.errors import (
     Predictor,
     ResponseChoice,
 )
-from ..core.fastcv import Scorer
+from ..core.fastcv import Found, Scorer
 from ..core.folds import CVPlan, make_plan
 from ..core.likelihood import estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
@@ -91,6 +91,17 @@ def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
     return sorted(cands, key=lambda s: s.simplicity())
 
 
+@dataclass(frozen=True)
+class _Pre:
+    """What :meth:`_Evaluator._found` prepared for one specification: the columns whose
+    powers every fold estimates and their all-rows fit, and what the batch found for its
+    folds (None: the scorer finds it alone)."""
+
+    dynamic: Dynamic | None
+    fit: bt.PowerFit | None
+    found: Found | None
+
+
 class _Evaluator:
     """Exact original-scale scoring of specifications over one column bank."""
 
@@ -102,9 +113,9 @@ class _Evaluator:
         self.reasons: dict[str, int] = {}  # every failure's reason -> candidates
         self.powers: dict[SpecKey, dict[str, Any]] = {}  # concrete key -> {column: summary}
 
-    def __call__(self, spec: Specification) -> Scored | None:
+    def __call__(self, spec: Specification, pre: _Pre | None = None) -> Scored | None:
         try:
-            s = self._score(spec)
+            s = self._score(spec, pre)
         except CandidateFailure as exc:
             self._failed(spec, exc)
             return None
@@ -115,21 +126,23 @@ class _Evaluator:
         """Score ``specs`` as one call each would, in order (the Scored of each, or None where
         it failed): specifications on a response scale fixed across folds, with no power
         estimated per fold, are scored together (:func:`batchcv.score_many`, the same
-        numbers); the others one at a time."""
+        numbers); the others one at a time, with the powers or lambdas of their training
+        folds found for all of them together first (:meth:`_found`)."""
         designs: dict[int, tuple[list[int], list[str] | None]] = {}
         groups: dict[tr.Transform, list[int]] = {}
+        rest: dict[int, tuple[list[int], list[str] | None, list[int]]] = {}
         for i, spec in enumerate(specs):
             t = spec.response_transform
-            if not batchable(self.scorer, t):
-                continue
             try:
                 cols, names, dyn = self.space.design_of(spec)
             except CandidateFailure:
                 continue  # scored alone below, which records the reason
-            if dyn:
+            if dyn or not batchable(self.scorer, t):
+                rest[i] = (cols, names, dyn)
                 continue
             designs[i] = (cols, names)
             groups.setdefault(t, []).append(i)
+        pre = self._found(specs, rest)
         done: dict[int, CVResult | CandidateFailure] = {}
         for t, members in groups.items():
             got = score_many(
@@ -139,7 +152,7 @@ class _Evaluator:
         out: list[Scored | None] = []
         for i, spec in enumerate(specs):
             if i not in done:
-                out.append(self(spec))
+                out.append(self(spec, pre.get(i)))
                 continue
             res = done[i]
             if isinstance(res, CandidateFailure):
@@ -184,6 +197,13 @@ class _Evaluator:
         estimate (also returned), or (None, None) when ``spec`` estimates no power."""
         if not dyn:
             return None, None
+        z, x = self._power_inputs(spec)
+        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
+        return self._started(spec, dyn, x, fit), fit
+
+    def _power_inputs(self, spec: Specification) -> tuple[np.ndarray, np.ndarray]:
+        """(z, x): the response on the specification's scale fitted on all rows, and the
+        predictors whose powers it estimates (n, k)."""
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
         t0 = fit_transform(
             spec.response_transform, self.prep.y, shift_needed=self.scorer.shift_needed
@@ -191,16 +211,70 @@ class _Evaluator:
         z = t0.forward(self.prep.y)
         if not np.all(np.isfinite(z)):
             raise CandidateFailure(f"{t0.label('y')} overflows on the data")
-        x = np.column_stack([self.prep.numeric[c] for c in est_cols])
-        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
-        return Dynamic(dyn, x, fit.powers, self.intercept, tuple(est_cols)), fit
+        return z, np.column_stack([self.prep.numeric[c] for c in est_cols])
 
-    def _score(self, spec: Specification) -> Scored:
+    def _started(
+        self, spec: Specification, dyn: list[int], x: np.ndarray, fit: bt.PowerFit
+    ) -> Dynamic:
+        est_cols = tuple(p.column for p in spec.predictors if bt.is_open(p.transform))
+        return Dynamic(dyn, x, fit.powers, self.intercept, est_cols)
+
+    def _found(
+        self,
+        specs: list[Specification],
+        rest: dict[int, tuple[list[int], list[str] | None, list[int]]],
+    ) -> dict[int, _Pre]:
+        """For the specifications scored one at a time (``rest``: index -> design): each
+        one's all-rows power estimate (the start of its folds', all of them at once:
+        :func:`boxtidwell.estimate_many_powers`) and the powers or lambdas of its training
+        folds, found for all of them together (:meth:`Scorer.powers_many`,
+        :meth:`Scorer.lambdas_many`).  A specification whose all-rows estimate fails is
+        left out: scoring it alone records the failure in its place."""
+        pre: dict[int, _Pre] = {}
+        power_items: list[tuple[int, tr.Transform, list[int], Dynamic]] = []
+        lambda_items: list[tuple[int, tr.Transform, list[int]]] = []
+        starts: list[tuple[int, np.ndarray, np.ndarray]] = []
+        for i, (cols, _names, dyn) in rest.items():
+            spec = specs[i]
+            t = spec.response_transform
+            if dyn:
+                try:
+                    z, x = self._power_inputs(spec)
+                except CandidateFailure:
+                    continue
+                starts.append((i, z, x))
+            elif t.needs_lambda:
+                lambda_items.append((i, t, cols))
+        # every all-rows start in one batch (boxtidwell.estimate_many_powers)
+        fits = bt.estimate_many_powers(
+            [(z, self.space.bank.columns(rest[i][0]), x) for i, z, x in starts],
+            boxcox_form=self.intercept,
+        )
+        for (i, _z, x), fit in zip(starts, fits, strict=True):
+            if isinstance(fit, CandidateFailure):
+                continue
+            cols, _names, dyn = rest[i]
+            dynamic = self._started(specs[i], dyn, x, fit)
+            pre[i] = _Pre(dynamic, fit, None)
+            power_items.append((i, specs[i].response_transform, cols, dynamic))
+        got = self.scorer.powers_many([(t, c, d) for _i, t, c, d in power_items])
+        for (i, *_r), found in zip(power_items, got, strict=True):
+            pre[i] = replace(pre[i], found=found)
+        got = self.scorer.lambdas_many([(t, c) for _i, t, c in lambda_items])
+        for (i, *_r), found in zip(lambda_items, got, strict=True):
+            pre[i] = _Pre(None, None, found)
+        return pre
+
+    def _score(self, spec: Specification, pre: _Pre | None = None) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
         t = spec.response_transform
         est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
-        dynamic, fit = self._dynamic(spec, cols, dyn)
-        res = self.scorer.score(t, cols, names, dynamic)
+        dynamic: Dynamic | None
+        if pre is not None and pre.dynamic is not None:
+            dynamic, fit = pre.dynamic, pre.fit
+        else:
+            dynamic, fit = self._dynamic(spec, cols, dyn)
+        res = self.scorer.score(t, cols, names, dynamic, found=None if pre is None else pre.found)
         if fit is None:
             return Scored(spec, res)
         a = iter(fit.powers)

@@ -10,12 +10,16 @@ fold's profile evaluations and Brent steps made together).
 Both run in the same process on the same problems: every per-fold problem the demo
 selection (service/demo, default options) poses is recorded, then solved by each path.
 The demo selection itself is also timed end to end with the per-fold loops and with the
-batched paths.  Prints the machine
+batched paths (both finding each candidate's folds alone), and then with each candidate's
+all-rows powers, fold powers and fold lambdas found one candidate at a time against found
+for all candidates together (``estimate_many_powers``, ``Scorer.powers_many``,
+``Scorer.lambdas_many``: one stack across candidates x folds); ``--stacked-only`` runs that
+last comparison alone.  Prints the machine
 load (``uptime``), wall and CPU seconds (time.process_time; the machine is shared, so CPU
 time is the steadier number), the ratios, and the largest difference between the powers.
 
     python tests/benchmarks/fold_powers.py [--repeat 3] [--rows 1000 3000 10000 30000]
-        [--series 10000 100000 1000000] [--series-k 1 2 3]
+        [--series 10000 100000 1000000] [--series-k 1 2 3] [--stacked-only]
 
 ``--series`` times the per-fold powers of large tables on invented tables of those sizes (5
 folds x 2 repeats, k powers beside an intercept and three fixed columns, started at the
@@ -89,13 +93,14 @@ def per_fold_loop(self, S, XS, dyn, r, zs, per_fold, t, names, B, designs, power
 
 
 def demo_selection():
+    from service.api.encode import to_jsonable
     from service.api.options import selection_job, service
     from service.api.schemas import SelectionRequest
     from service.demo import demo_request
     from service.selection.request import run_selection
 
     job = selection_job(SelectionRequest.model_validate(demo_request()))
-    return run_selection(job, service())
+    return to_jsonable(run_selection(job, service()))  # the contract form, as every exit
 
 
 def record_problems():
@@ -264,6 +269,59 @@ def series_rows(n: int, k: int, repeat: int) -> None:
     print("; ".join(line))
 
 
+def one_at_a_time():
+    """Patches that make the search find every candidate's all-rows powers, fold powers and
+    fold lambdas one candidate at a time (Scorer.score's own path); returns an undo."""
+    from service.core.fastcv import Scorer
+
+    saved = (Scorer.powers_many, Scorer.lambdas_many, bt.estimate_many_powers)
+
+    def each(problems, boxcox_form=True):
+        out = []
+        for z, Xf, x in problems:
+            try:
+                out.append(bt.estimate_powers(z, Xf, x, boxcox_form=boxcox_form))
+            except CandidateFailure as exc:
+                out.append(exc)
+        return out
+
+    Scorer.powers_many = lambda self, items: [None] * len(items)
+    Scorer.lambdas_many = lambda self, items: [None] * len(items)
+    bt.estimate_many_powers = each
+
+    def undo():
+        Scorer.powers_many, Scorer.lambdas_many, bt.estimate_many_powers = saved
+
+    return undo
+
+
+def stacked_selection(repeat: int) -> None:
+    """The demo's default selection with the candidates' powers and lambdas found one
+    candidate at a time, then stacked across candidates, in the same run."""
+    best = {}
+    for _ in range(repeat):
+        for name in ("one candidate at a time", "stacked across candidates"):
+            undo = one_at_a_time() if name.startswith("one") else (lambda: None)
+            try:
+                with Timer() as tm:
+                    body = demo_selection()
+            finally:
+                undo()
+            prev = best.get(name)
+            if prev is None or tm.cpu < prev[1]:
+                best[name] = (tm.wall, tm.cpu, body)
+    (ow, oc, ob), (nw, nc, nb) = best["one candidate at a time"], best["stacked across candidates"]
+    print(f"demo selection, one candidate at a time:   wall {ow:.2f} s  cpu {oc:.2f} s")
+    print(f"demo selection, stacked across candidates: wall {nw:.2f} s  cpu {nc:.2f} s")
+    print(f"ratio (one at a time / stacked): wall {ow / nw:.2f}x  cpu {oc / nc:.2f}x")
+    same = [e["specification"] for e in ob["ranking"]] == [
+        e["specification"] for e in nb["ranking"]
+    ]
+    print(f"same ranking: {same}")
+    rel, where = largest_change(nb, ob)
+    print(f"largest relative change of a number in the answer: {rel:.1e} ({where})")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--repeat", type=int, default=3)
@@ -271,7 +329,18 @@ def main() -> None:
     ap.add_argument("--series", type=int, nargs="*", default=[])
     ap.add_argument("--series-k", type=int, nargs="*", default=[1, 2, 3])
     ap.add_argument("--series-only", action="store_true", help="skip the demo-selection parts")
+    ap.add_argument(
+        "--stacked-only",
+        action="store_true",
+        help="only the demo selection, one candidate at a time vs stacked across candidates",
+    )
     args = ap.parse_args()
+    if args.stacked_only:
+        print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
+        print(machine())
+        stacked_selection(args.repeat)
+        print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
+        return
     if args.series_only:
         print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
         print(machine())
@@ -282,6 +351,8 @@ def main() -> None:
         return
     print("uptime:", subprocess.run(["uptime"], capture_output=True, text=True).stdout.strip())
     print(machine())
+    # the per-candidate sections below: every candidate's folds found by its own call
+    undo = one_at_a_time()
     calls, lam_calls = record_problems()
     folds = sum(len(a[3]) for a, _ in calls)
     print(f"demo selection: {len(calls)} fold sets, {folds} per-fold power problems")
@@ -351,6 +422,8 @@ def main() -> None:
     print(f"same ranking: {same}")
     rel, where = largest_change(nb["ranking"], ob["ranking"], "/ranking")
     print(f"largest relative change of a number in the ranking: {rel:.1e} ({where})")
+    undo()
+    stacked_selection(args.repeat)
     for n in args.rows:
         by_rows(n, args.repeat)
     for n in args.series:

@@ -310,3 +310,134 @@ def test_fold_powers_without_an_intercept_use_plain_powers_as_the_one_fold_path(
         assert fits[f].powers[0] == pytest.approx(one.powers[0], abs=1e-5)
         # source: simulation truth z = 2 x^0.7 + 0.4 w + N(0, 0.05^2)
         assert fits[f].powers[0] == pytest.approx(0.7, abs=0.05)
+
+
+def _candidate(kind: str, rng, n: int, k: int):
+    """One candidate's (z, X_f, x): random, collinear (scaled Gram condition ~1e12, the QR
+    path) or badly scaled fixed columns (1e6 and 1e-6 beside a calendar year)."""
+    x = rng.uniform(0.5, 12.0, (n, k))
+    w = rng.normal(size=n)
+    if kind == "random":
+        Xf = np.column_stack([np.ones(n), w])
+    elif kind == "collinear":
+        Xf = np.column_stack([np.ones(n), w, w + 1e-6 * rng.normal(size=n)])
+    else:
+        Xf = np.column_stack([np.ones(n), 1e6 * w, 1990.0 + rng.uniform(0, 30, n)])
+    z = 1.0 + 0.8 * np.log(x[:, 0]) + 0.3 * w + rng.normal(0, 0.2, n)
+    if k == 2:
+        z += 0.5 * np.sqrt(x[:, 1])
+    return z, Xf, x
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_many_candidates_stepped_together_equal_one_call_per_candidate(kind):
+    rng = np.random.default_rng(len(kind))
+    n = 240
+    train = _fold_rows(n, 5, 0) + _fold_rows(n, 5, 1)
+    problems = []
+    for c in range(6):
+        z, Xf, x = _candidate(kind, rng, n, 1 + c % 2)
+        if c == 4:  # an overlapping set of fits: a response per fold
+            z = np.stack([z + 0.01 * f for f in range(len(train))])
+        start = bt.estimate_powers(z if z.ndim == 1 else z[0], Xf, x).powers
+        problems.append(bt.FoldPowerProblem(z, Xf, x, train, start))
+    got = bt.estimate_many_fold_powers(problems)
+    for pr, fits in zip(problems, got, strict=True):
+        one = bt.estimate_fold_powers(pr.z, pr.Xf, pr.x, pr.train, pr.start)
+        for f, ref in zip(fits, one, strict=True):
+            # source: the one-candidate path (estimate_fold_powers per candidate): the same
+            # steps, halvings and stops, so the same iterations and powers to 1e-9
+            assert (f.iterations, f.method) == (ref.iterations, ref.method)
+            np.testing.assert_allclose(f.powers, ref.powers, rtol=1e-9, atol=1e-12)
+            assert f.rss == pytest.approx(ref.rss, rel=1e-9)
+    # one fold checked against a reference outside the package for the one-power candidates
+    pr, fits = problems[0], got[0]
+    rows = train[3]
+    ref = minimize_scalar(
+        lambda a: _lstsq_rss(pr.z[rows], pr.Xf[rows], pr.x[rows, 0], a),
+        bounds=(pr.start[0] - 0.5, pr.start[0] + 0.5),
+        method="bounded",
+        options={"xatol": 1e-10},
+    )
+    # source: statsmodels OLS (QR) RSS minimised by scipy.optimize.minimize_scalar;
+    # abs 1e-5 (the iteration stops at steps below 1e-6)
+    assert fits[3].powers[0] == pytest.approx(ref.x, abs=1e-5)
+
+
+def test_a_failing_candidate_in_a_stack_fails_alone_with_the_one_candidate_reason(monkeypatch):
+    rng = np.random.default_rng(8)
+    n = 120
+    train = _fold_rows(n, 4, 0)
+    good = _candidate("random", rng, n, 1)
+    three = (rng.normal(size=n), np.ones((n, 1)), rng.uniform(1, 5, (n, 3)))
+    negative = (good[0], good[1], -good[2])
+    problems = [
+        bt.FoldPowerProblem(good[0], good[1], good[2], train, np.array([0.2])),
+        bt.FoldPowerProblem(*three, train, np.ones(3), labels=[3, 4, 1, 2]),
+        bt.FoldPowerProblem(*negative, train, np.array([0.2])),
+    ]
+    monkeypatch.setattr(bt, "MAX_ITER", 0)  # no steps: three powers cannot be profiled
+    got = bt.estimate_many_fold_powers(problems)
+    for pr, res in zip(problems, got, strict=True):
+        try:
+            one = bt.estimate_fold_powers(pr.z, pr.Xf, pr.x, pr.train, pr.start, labels=pr.labels)
+        except CandidateFailure as exc:
+            # source: the one-candidate path's failure, word for word
+            assert isinstance(res, CandidateFailure) and res.reason == exc.reason
+            continue
+        assert not isinstance(res, CandidateFailure)
+        assert [f.powers[0] for f in res] == [f.powers[0] for f in one]
+    assert isinstance(got[1], CandidateFailure) and got[1].reason.startswith("fold 3: ")
+
+
+def test_stacks_are_cut_at_the_cell_limit_without_changing_a_power(monkeypatch):
+    rng = np.random.default_rng(4)
+    n = 150
+    train = _fold_rows(n, 5, 2)
+    problems = []
+    for _ in range(5):
+        z, Xf, x = _candidate("random", rng, n, 1)
+        problems.append(bt.FoldPowerProblem(z, Xf, x, train, bt.estimate_powers(z, Xf, x).powers))
+    whole = bt.estimate_many_fold_powers(problems)
+    monkeypatch.setattr(bt, "STACK_CELLS", 2 * len(train) * n)  # two candidates a stack
+    cut = bt.estimate_many_fold_powers(problems)
+    for a, b in zip(whole, cut, strict=True):
+        # source: the same problems stepped in one stack (the uncut run above)
+        assert [f.powers[0] for f in a] == pytest.approx([f.powers[0] for f in b], rel=1e-12)
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_all_rows_powers_of_many_candidates_equal_one_call_each(kind):
+    rng = np.random.default_rng(len(kind) + 7)
+    n = 220
+    problems = [_candidate(kind, rng, n, 1 + c % 2) for c in range(6)]
+    problems.append((problems[0][0], problems[0][1], -problems[0][2]))  # x <= 0: fails
+    got = bt.estimate_many_powers(problems)
+    for (z, Xf, x), fit in zip(problems, got, strict=True):
+        try:
+            one = bt.estimate_powers(z, Xf, x)
+        except CandidateFailure as exc:
+            # source: the one-candidate path's failure, word for word
+            assert isinstance(fit, CandidateFailure) and fit.reason == exc.reason
+            continue
+        assert not isinstance(fit, CandidateFailure)
+        # source: the one-candidate path (estimate_powers): the same steps and stops; the fit
+        # on [X_f, W] comes from the leading block of a larger factor, so the RSS
+        # comparisons see rounding-level differences only
+        assert (fit.iterations, fit.method) == (one.iterations, one.method)
+        np.testing.assert_allclose(fit.powers, one.powers, rtol=1e-9, atol=1e-11)
+        np.testing.assert_allclose(fit.std_errors, one.std_errors, rtol=1e-7)
+    z, Xf, x = problems[0]
+    fit = got[0]
+
+    if kind == "random":
+
+        def f(_i, b0, b1, b2, a):
+            col = np.log(x[:, 0]) if abs(a) < 1e-12 else (x[:, 0] ** a - 1.0) / a
+            return b0 * Xf[:, 0] + b1 * Xf[:, 1] + b2 * col
+
+        p0 = [0.0, 0.0, 1.0, float(fit.powers[0])]
+        popt, pcov = curve_fit(f, np.arange(n), z, p0=p0)
+        # source: scipy.optimize.curve_fit (nonlinear least squares); abs 1e-5 / rel 1e-3
+        assert fit.powers[0] == pytest.approx(popt[3], abs=1e-5)
+        assert fit.std_errors[0] == pytest.approx(np.sqrt(pcov[3, 3]), rel=1e-3)

@@ -237,3 +237,84 @@ def test_large_tables_take_the_folds_one_by_one_with_the_same_results(monkeypatc
     np.testing.assert_allclose(batched[0].fold_values, one_by_one[0].fold_values, rtol=1e-6)
     np.testing.assert_allclose(batched[1].fold_lambdas, one_by_one[1].fold_lambdas, atol=1e-6)
     np.testing.assert_allclose(batched[1].fold_values, one_by_one[1].fold_values, rtol=1e-6)
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_powers_and_lambdas_found_for_many_candidates_score_as_each_alone(kind):
+    from service.core import boxtidwell as bt
+    from service.core.cvresult import Dynamic
+
+    rng = np.random.default_rng(zlib.crc32(f"many/{kind}".encode()))
+    n = 180
+    X = _designs(kind, rng, n)
+    x = rng.uniform(1, 9, (n, 2))
+    y = np.round(
+        np.exp(0.5 + 0.3 * np.sqrt(x[:, 0]) + 0.2 * np.log(x[:, 1])) + rng.normal(0, 0.3, n), 1
+    )
+    y[:3] = 0.0  # zeros: a log's shift is chosen in every fold (a response per fold)
+    plan = make_plan(n, 5, 2, 6)
+    bank = ColumnBank.of_matrix(X, FoldIndex.of(plan, n))
+    scorer = Scorer(bank, y, plan, True)
+    sqrt, log = tr.Transform("sqrt"), tr.Transform("log")
+    items = []
+    for t, cols, k in ((sqrt, [0, 1], 1), (sqrt, [0, 1, 3], 2), (log, [0, 2], 1), (sqrt, [0], 2)):
+        z = scorer.fixed_response(t)[1] if t is sqrt else np.log(y + tr.chosen_shift(y))
+        start = bt.estimate_powers(z, X[:, cols], x[:, :k]).powers
+        items.append((t, cols, Dynamic(list(range(len(cols), len(cols) + k)), x[:, :k], start)))
+    found = scorer.powers_many(items)
+    assert all(f is not None for f in found)
+    for (t, cols, dyn), f in zip(items, found, strict=True):
+        alone = scorer.score(t, cols, None, dyn)
+        got = scorer.score(t, cols, None, dyn, found=f)
+        # source: the one-candidate path (Scorer.score finding its own fold powers)
+        np.testing.assert_allclose(got.fold_powers, alone.fold_powers, rtol=1e-9, atol=1e-12)
+        np.testing.assert_allclose(got.fold_values, alone.fold_values, rtol=1e-9)
+        assert got.value == pytest.approx(alone.value, rel=1e-9)
+        assert got.exact_refits == alone.exact_refits
+    pos = y > 0
+    scorer = Scorer(
+        ColumnBank.of_matrix(
+            X[pos], FoldIndex.of(make_plan(int(pos.sum()), 5, 2, 6), int(pos.sum()))
+        ),
+        y[pos],
+        make_plan(int(pos.sum()), 5, 2, 6),
+        False,
+    )
+    lam_items = [
+        (tr.Transform("box_cox"), [0, 1]),
+        (tr.Transform("box_cox"), [0, 1, 3]),
+        (tr.Transform("yeo_johnson"), [0, 2]),
+        (sqrt, [0]),
+    ]
+    found = scorer.lambdas_many(lam_items)
+    assert found[-1] is None  # nothing to estimate: scored as before
+    for (t, cols), f in zip(lam_items[:3], found[:3], strict=True):
+        alone = scorer.score(t, cols)
+        got = scorer.score(t, cols, found=f)
+        # source: the one-candidate path (Scorer.score finding its own fold lambdas)
+        np.testing.assert_allclose(got.fold_lambdas, alone.fold_lambdas, rtol=1e-9)
+        np.testing.assert_allclose(got.fold_values, alone.fold_values, rtol=1e-9)
+
+
+def test_candidates_the_batch_cannot_settle_are_left_to_score_alone(monkeypatch):
+    from service.core import boxtidwell as bt
+    from service.core import fastcv
+    from service.core.cvresult import Dynamic
+    from service.core.errors import CandidateFailure
+
+    rng = np.random.default_rng(2)
+    n = 150
+    x = rng.uniform(1, 9, (n, 3))
+    y = np.exp(1.0 + 0.2 * np.sqrt(x).sum(axis=1) + rng.normal(0, 0.1, n))
+    plan = make_plan(n, 5, 2, 0)
+    scorer = Scorer(ColumnBank.of_matrix(np.ones((n, 1)), FoldIndex.of(plan, n)), y, plan, False)
+    log = tr.Transform("log", shift=0.0)
+    three = Dynamic([1, 2, 3], x, np.ones(3))
+    one = Dynamic([1], x[:, :1], np.ones(1))
+    monkeypatch.setattr(bt, "MAX_ITER", 0)  # 3 powers without steps: every fold fails
+    found = scorer.powers_many([(log, [0], three), (log, [0], one)])
+    assert found[0] is None and found[1] is not None
+    with pytest.raises(CandidateFailure, match=r"^fold 1: the Box-Tidwell iteration for 3"):
+        scorer.score(log, [0], None, three, found=found[0])  # alone: its own first failure
+    monkeypatch.setattr(fastcv, "POWER_BATCH_CELLS", n * 5)  # one repeat's folds at most
+    assert scorer.powers_many([(log, [0], one)]) == [None]

@@ -149,3 +149,64 @@ def test_fold_lambdas_leave_an_ill_conditioned_fold_to_the_one_fold_path():
     np.testing.assert_allclose(
         res.fold_lambdas, [2.7777, 2.0515, -0.73075, 1.2683, -0.34607], atol=2e-3
     )
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_many_candidates_lambdas_equal_one_call_per_candidate(kind):
+    rng = np.random.default_rng(len(kind) + 1)
+    n = 200
+    w = rng.uniform(1, 10, n)
+    y = (1 + 0.3 * w + rng.normal(0, 0.15, n)) ** 2
+    plan = make_plan(n, 5, 2, 1)
+    train = [np.flatnonzero(a != k) for a in plan.assignments for k in range(5)]
+    problems = []
+    for c in range(5):
+        cols = [np.ones(n), w, rng.normal(size=n)]
+        if kind == "collinear":  # a fold's scaled X'X fails the check: the one-fold path
+            cols.append(cols[2] + 1e-7 * rng.normal(size=n))
+        elif kind == "badly_scaled":
+            cols.append(1e6 * rng.uniform(0, 1, n) + 1990.0)
+        else:
+            cols.append(rng.uniform(0, 1, n))
+        X = np.column_stack(cols[: 3 + (c % 2)])  # two design widths
+        grams = np.stack([X[rows].T @ X[rows] for rows in train])
+        near = None if c == 0 else lk.estimate_lambda("box_cox", y, X, with_interval=False).lam
+        problems.append(lk.FoldLambdaProblem(X, train, grams, near))
+    got = lk.many_fold_lambdas("box_cox", y, problems)
+    for pr, lams in zip(problems, got, strict=True):
+        # source: the one-candidate path (fold_lambdas per candidate), the same steps
+        assert lams == lk.fold_lambdas("box_cox", y, pr.X, pr.train, pr.grams, pr.near)
+    pr = problems[1]
+    rows = train[2]
+    if got[1][2] is not None:
+        ref = optimize.minimize_scalar(
+            lambda t: -_sm_box_cox_llf(y[rows], pr.X[rows], t),
+            bounds=(-1.0, 2.0),
+            method="bounded",
+            options={"xatol": 1e-10},
+        )
+        # source: statsmodels OLS llf of scipy.stats.boxcox(y, lambda) plus the Jacobian,
+        # maximised by scipy.optimize.minimize_scalar; abs 1e-4 (the suggested tolerance
+        # for a regression Box-Cox lambda in the public checks)
+        assert got[1][2] == pytest.approx(ref.x, abs=1e-4)
+    if kind == "collinear":
+        assert any(v is None for v in got[1])  # left to the one-fold path, as alone
+
+
+def test_many_candidates_lambdas_of_a_constant_design_are_scipys_boxcox_mle():
+    from scipy import stats
+
+    rng = np.random.default_rng(5)
+    n = 150
+    y = rng.lognormal(1.0, 0.4, n) + 0.5
+    X = np.ones((n, 1))
+    plan = make_plan(n, 3, 1, 2)
+    train = [np.flatnonzero(plan.assignments[0] != k) for k in range(3)]
+    grams = np.stack([X[rows].T @ X[rows] for rows in train])
+    got = lk.many_fold_lambdas("box_cox", y, [lk.FoldLambdaProblem(X, train, grams, None)] * 2)
+    for lams in got:
+        for rows, lam in zip(train, lams, strict=True):
+            # source: scipy.stats.boxcox_normmax(method="mle") on the fold's rows (a design
+            # of a constant alone is scipy's model); abs 1e-5 (its optimiser's tolerance)
+            ref = stats.boxcox_normmax(y[rows], method="mle")
+            assert lam == pytest.approx(ref, abs=1e-5)

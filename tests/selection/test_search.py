@@ -245,3 +245,42 @@ def test_batches_shrink_with_rows_and_splits_so_the_clock_is_asked_often():
     assert batch_size(300, 5) == MAX_BATCH  # the demo: full batches
     assert batch_size(120, 2500) == 3  # 50 folds x 50 repeats: a few candidates at a time
     assert batch_size(1_000_000, 5) == 1  # large tables: one candidate between two looks
+
+
+def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monkeypatch):
+    from service.core.fastcv import Scorer
+
+    rng = np.random.default_rng(14)
+    n = 150
+    x1, x2 = rng.uniform(1, 12, n), rng.uniform(0.5, 6, n)
+    y = np.exp(1.0 + 0.5 * np.sqrt(x1) - 0.3 * np.log(x2) + rng.normal(0, 0.2, n))
+    columns = {"y": y.tolist(), "a": x1.tolist(), "b": x2.tolist()}
+    prep = prepare({"columns": columns}, "y", ["a", "b"])
+    # "power": estimated in every fold; box_cox / yeo_johnson: a lambda in every fold
+    opts = SearchOptions(folds=5, repeats=2, predictor_transforms=["identity", "log", "power"])
+    found = {"powers": 0, "lambdas": 0}
+    real = {"powers": Scorer.powers_many, "lambdas": Scorer.lambdas_many}
+
+    def counted(what):
+        def call(self, items):
+            got = real[what](self, items)
+            found[what] += sum(f is not None for f in got)
+            return got
+
+        return call
+
+    monkeypatch.setattr(Scorer, "powers_many", counted("powers"))
+    monkeypatch.setattr(Scorer, "lambdas_many", counted("lambdas"))
+    together = run_selection(prep, opts, "t")
+    assert found["powers"] >= 10 and found["lambdas"] >= 5
+    monkeypatch.setattr(Scorer, "powers_many", lambda self, items: [None] * len(items))
+    monkeypatch.setattr(Scorer, "lambdas_many", lambda self, items: [None] * len(items))
+    alone = run_selection(prep, opts, "t")
+    # source: the same search with every candidate's fold powers and lambdas found alone
+    # (Scorer.score's own path): the same ranking and the same numbers
+    assert [e["specification"] for e in together["ranking"]] == [
+        e["specification"] for e in alone["ranking"]
+    ]
+    for a, b in zip(together["ranking"], alone["ranking"], strict=True):
+        assert a["cv"].value == pytest.approx(b["cv"].value, rel=1e-9)
+    assert together["search"].scored == alone["search"].scored
