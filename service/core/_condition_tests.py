@@ -215,10 +215,10 @@ def finished(check: C, **more: Any) -> C:
         for f in fields(check)
         if isinstance(v := getattr(check, f.name), (float, np.floating, np.integer))
     }
-    changes.update(more)
-    if changes.get("statistic", check.statistic) is None and check.reason is None:
-        changes["reason"] = "undefined for these data"
-    return replace(check, **changes)
+    out = replace(check, **{**changes, **more})
+    if out.statistic is None and out.reason is None:
+        out = replace(out, reason="undefined for these data")
+    return out
 
 
 def guarded(failed: C, compute: Callable[[], C]) -> C:
