@@ -21,6 +21,7 @@ from ..core.spec import (
 from .candidates import check_explicit
 from .entries import entry_for
 from .plots import PLOT_MAX_POINTS, fit_plots
+from .search import simplicity_parts
 from .search_setup import SearchOptions, check_rows
 
 
@@ -88,13 +89,7 @@ def diagnose_specification(
             "best_cv_value": cv.value,
             "one_se_threshold": cv.value + cv.std_error,
             "within_one_se": True,
-            "simplicity": dict(
-                zip(
-                    ("estimated", "readability", "transformed_columns"),
-                    spec.simplicity(),
-                    strict=True,
-                )
-            ),
+            "simplicity": simplicity_parts(spec),
             "rule": "a single specification as sent; nothing was ranked",
         }
         listed = entry_for(spec, cv, plan, prep, parts, opts, service_version)
