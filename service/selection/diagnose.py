@@ -3,6 +3,7 @@ entry (conditions, interpretation, model) and plot data, without any search."""
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import Any
 
 from ..core import transforms as tr
@@ -19,10 +20,13 @@ from ..core.spec import (
     resolve_predictor_transforms,
 )
 from .candidates import check_explicit
-from .entries import entry_for
+from .entries import ConditionCount, ScoreParts, entry_for
 from .plots import PLOT_MAX_POINTS, fit_plots
 from .search import simplicity_parts
 from .search_setup import SearchOptions, check_rows
+
+#: the score parts' rule of a specification diagnosed alone
+SINGLE_RULE = "a single specification as sent; nothing was ranked"
 
 
 def diagnose_specification(
@@ -83,19 +87,21 @@ def diagnose_specification(
             prep.n, opts.folds, opts.repeats, opts.seed, opts.metric, opts.scheme, prep.order
         )
         cv = cross_validate(design.X, prep.y, rt, plan, tr.needs_shift(prep.y), design.names, True)
-        parts = {
-            "cv_value": cv.value,
-            "cv_std_error": cv.std_error,
-            "best_cv_value": cv.value,
-            "one_se_threshold": cv.value + cv.std_error,
-            "within_one_se": True,
-            "simplicity": simplicity_parts(spec),
-            "rule": "a single specification as sent; nothing was ranked",
-        }
+        parts = ScoreParts(
+            cv_value=cv.value,
+            cv_std_error=cv.std_error,
+            best_cv_value=cv.value,
+            one_se_threshold=cv.value + cv.std_error,
+            within_one_se=True,
+            simplicity=simplicity_parts(spec),
+            rule=SINGLE_RULE,
+        )
         listed = entry_for(spec, cv, plan, prep, parts, opts, service_version)
         plots = fit_plots(listed.design, listed.fit, prep, opts.alpha, opts.seed, max_points)
     except CandidateFailure as exc:
         raise ModelFailure(f"the specification cannot be fitted: {exc.reason}") from None
     entry = listed.body
-    entry["score"]["parts"]["conditions_failed"] = failed(entry["conditions"])
+    score = entry["score"]
+    count = ConditionCount(tuple(failed(entry["conditions"])))
+    entry["score"] = replace(score, parts=replace(score.parts, conditions=count))
     return entry, plots

@@ -29,6 +29,64 @@ if TYPE_CHECKING:  # pragma: no cover
     from .search_setup import SearchOptions
 
 
+@dataclass(frozen=True)
+class Simplicity:
+    """How simple a specification reads (:meth:`Specification.simplicity`): parameters
+    estimated from the response, the readability cost, the transformed columns."""
+
+    estimated: int
+    readability: int
+    transformed_columns: int
+
+    @classmethod
+    def of(cls, spec: Specification) -> Simplicity:
+        n_est, cost, n_tr = spec.simplicity()
+        return cls(n_est, cost, n_tr)
+
+
+@dataclass(frozen=True)
+class ConditionCount:
+    """The regression conditions in a candidate's score: those that count against it in
+    the ranking (``failed``; None when its conditions could not be computed, ``note`` then
+    says why) and every one that does not hold (``not_holding``; None where not reported)."""
+
+    failed: tuple[str, ...] | None
+    not_holding: tuple[str, ...] | None = None
+    note: str | None = None
+
+
+@dataclass(frozen=True)
+class ScoreParts:
+    """Why a candidate ranks where it does: its CV error and standard error, the band's
+    lowest error and threshold, whether it is inside the band, its simplicity, the rule
+    that placed it; ranked among others also its distance from the lowest error and the
+    paired standard error of that distance (None for a single specification); its failed
+    conditions once compared (None before)."""
+
+    cv_value: float
+    cv_std_error: float
+    best_cv_value: float
+    one_se_threshold: float
+    within_one_se: bool
+    simplicity: Simplicity
+    rule: str
+    difference_from_best: float | None = None
+    paired_std_error: float | None = None
+    conditions: ConditionCount | None = None
+
+    @property
+    def conditions_failed(self) -> tuple[str, ...] | None:
+        return None if self.conditions is None else self.conditions.failed
+
+
+@dataclass(frozen=True)
+class Score:
+    """An entry's score: its CV error relative to the lowest (``cv_ratio``) and the parts."""
+
+    cv_ratio: float
+    parts: ScoreParts
+
+
 def finite_or_none(v: Any) -> float | None:
     if v is None:
         return None
@@ -220,7 +278,7 @@ def entry_for(
     cv: CVResult,
     plan: CVPlan,
     prep: Prepared,
-    parts: dict[str, Any],
+    parts: ScoreParts,
     opts: SearchOptions,
     service_version: str,
     sealed: bool = True,
@@ -269,10 +327,7 @@ def entry_for(
             {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
             for row in fit.table(robust=covs)
         ],
-        "score": {
-            "cv_ratio": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
-            "parts": parts,
-        },
+        "score": Score(cv.value / parts.best_cv_value if parts.best_cv_value > 0 else 1.0, parts),
         "model": build_model(
             concrete,
             design,

@@ -46,7 +46,7 @@ from ..core.spec import Design, PredictorSpec, Specification, SpecKey, build_des
 from . import candidates as cand
 from . import incumbent
 from .deadline import Deadline
-from .entries import Entry, attach_cv_plus, entry_for
+from .entries import ConditionCount, Entry, ScoreParts, Simplicity, attach_cv_plus, entry_for
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
@@ -489,7 +489,7 @@ def select(
     ranked, _ = rank(listable, plan.folds, band)
     cache: dict[SpecKey, Entry] = {}
 
-    def full(s: Scored, parts: dict[str, Any]) -> Entry:
+    def full(s: Scored, parts: ScoreParts) -> Entry:
         key = s.spec.key
         if key not in cache:
             # sealed by attach_cv_plus when listed; an assessed member is not returned
@@ -523,13 +523,13 @@ def select(
         attach_cv_plus(entry, listed.design, *ev.out_of_fold(s, deadline), prep, plan)
         first = first or listed
         winner = winner or s
-        if "conditions_failed" not in parts:
-            parts = {
-                **parts,
-                "conditions_failed": failed_for_ranking(entry.get("conditions"), met),
-                "conditions_not_holding": failed(entry.get("conditions")),
-            }
-        entry["score"] = {**entry["score"], "parts": parts}
+        if parts.conditions is None:
+            conditions = entry.get("conditions")
+            count = ConditionCount(
+                tuple(failed_for_ranking(conditions, met)), tuple(failed(conditions))
+            )
+            parts = replace(parts, conditions=count)
+        entry["score"] = replace(entry["score"], parts=parts)
         entries.append({"rank": i + 1, **entry})
     if not entries:
         raise ModelFailure(
@@ -597,7 +597,7 @@ def _incumbent(
     plan: CVPlan,
     shift_needed: bool,
     scored: list[Scored],
-    ranked: list[tuple[Scored, dict[str, Any]]],
+    ranked: list[tuple[Scored, ScoreParts]],
     entries: list[dict[str, Any]],
     band: Band | None = None,
 ) -> incumbent.IncumbentDecision:
@@ -728,9 +728,8 @@ def dominates(a: tuple[float, tuple[int, ...], int], b: tuple[float, tuple[int, 
     return all(x <= y for x, y in zip(a[1], b[1], strict=True)) and a[0] < b[0] and a[2] <= b[2]
 
 
-def simplicity_parts(spec: Specification) -> dict[str, int]:
-    n_est, cost, n_tr = spec.simplicity()
-    return {"estimated": n_est, "readability": cost, "transformed_columns": n_tr}
+def simplicity_parts(spec: Specification) -> Simplicity:
+    return Simplicity.of(spec)
 
 
 @dataclass(frozen=True)
@@ -772,9 +771,20 @@ def places(scored: list[Scored], folds: int | None = None, band: Band | None = N
     ]
 
 
+#: the rule that placed a candidate inside / outside the band (its score parts' ``rule``)
+IN_BAND_RULE = (
+    "inside the band (CV error at most the lowest plus the standard error of "
+    "the lowest-error candidate); ranked there by simplicity, then error"
+)
+OUT_OF_BAND_RULE = (
+    "outside the band (CV error above the lowest plus the standard error of "
+    "the lowest-error candidate); ranked by CV error"
+)
+
+
 def rank(
     scored: list[Scored], folds: int | None = None, band: Band | None = None
-) -> tuple[list[tuple[Scored, dict[str, Any]]], float]:
+) -> tuple[list[tuple[Scored, ScoreParts]], float]:
     """Order by one band (:func:`places`), each candidate with its score parts.
 
     Every entry's ``parts`` carries the same threshold.  Returns the ordered (scored,
@@ -784,23 +794,17 @@ def rank(
     out = []
     for pl in places(scored, folds, band):
         s, within = pl.scored, pl.within_band
-        parts = {
-            "cv_value": s.cv.value,
-            "cv_std_error": s.cv.std_error,
-            "best_cv_value": band.lowest,
-            "difference_from_best": pl.difference_from_best,
-            "paired_std_error": pl.paired_std_error,
-            "one_se_threshold": band.threshold,
-            "within_one_se": within,
-            "simplicity": simplicity_parts(s.spec),
-            "rule": (
-                "inside the band (CV error at most the lowest plus the standard error of "
-                "the lowest-error candidate); ranked there by simplicity, then error"
-                if within
-                else "outside the band (CV error above the lowest plus the standard error of "
-                "the lowest-error candidate); ranked by CV error"
-            ),
-        }
+        parts = ScoreParts(
+            cv_value=s.cv.value,
+            cv_std_error=s.cv.std_error,
+            best_cv_value=band.lowest,
+            difference_from_best=pl.difference_from_best,
+            paired_std_error=pl.paired_std_error,
+            one_se_threshold=band.threshold,
+            within_one_se=within,
+            simplicity=simplicity_parts(s.spec),
+            rule=IN_BAND_RULE if within else OUT_OF_BAND_RULE,
+        )
         out.append((s, parts))
     return out, band.lowest
 
@@ -811,14 +815,14 @@ def lead_members(opts: SearchOptions) -> int:
 
 
 def _order_by_conditions(
-    ranked: list[tuple[Scored, dict[str, Any]]],
-    full: Callable[[Scored, dict[str, Any]], Entry],
+    ranked: list[tuple[Scored, ScoreParts]],
+    full: Callable[[Scored, ScoreParts], Entry],
     opts: SearchOptions,
     warnings: list[str],
-) -> tuple[list[tuple[Scored, dict[str, Any]]], frozenset[str], int]:
+) -> tuple[list[tuple[Scored, ScoreParts]], frozenset[str], int]:
     """Re-order the leading band members by failed conditions (see condition_rules.py);
     also returns the conditions that took part and the number of members compared."""
-    band = [i for i, (_, p) in enumerate(ranked) if p["within_one_se"]][: lead_members(opts)]
+    band = [i for i, (_, p) in enumerate(ranked) if p.within_one_se][: lead_members(opts)]
     lead_m = len(band)
     n_failed: dict[int, int] = {}
     parts_of = [p for _, p in ranked]
@@ -828,31 +832,29 @@ def _order_by_conditions(
         try:
             conds[i] = full(s, parts).body.get("conditions")
         except CandidateFailure as exc:
-            parts_of[i] = {**parts, "conditions_failed": None, "conditions_note": exc.reason}
+            parts_of[i] = replace(parts, conditions=ConditionCount(None, note=exc.reason))
             n_failed[i] = len(CONDITION_NAMES) + 1
     met = ordering_conditions(list(conds.values()), opts.alpha)
     for i, cond in conds.items():
         bad = failed_for_ranking(cond, met)
-        parts_of[i] = {
-            **parts_of[i],
-            "conditions_failed": bad,
-            "conditions_not_holding": failed(cond),
-        }
+        parts_of[i] = replace(
+            parts_of[i], conditions=ConditionCount(tuple(bad), tuple(failed(cond)))
+        )
         n_failed[i] = len(bad)
     order = condition_order(
-        list(range(len(ranked))), [p["within_one_se"] for _, p in ranked], n_failed, lead_m
+        list(range(len(ranked))), [p.within_one_se for _, p in ranked], n_failed, lead_m
     )
     out = [(ranked[i][0], parts_of[i]) for i in order]
     lowest = min(ranked, key=lambda t: t[0].cv.value)[0]
     if out and out[0][0] is not lowest:
         low_parts = next(p for s, p in out if s is lowest)
-        if low_parts.get("conditions_failed"):
+        if low_parts.conditions_failed:
             warnings.append(
                 "The specification with the lowest cross-validated error "
                 f"({lowest.spec.response_label()} on "
                 + ", ".join(p.transform.label(p.column) for p in lowest.spec.predictors)
                 + f", {lowest.cv.metric} {lowest.cv.value:.4g}) fails "
-                + ", ".join(c.replace("_", " ") for c in low_parts["conditions_failed"])
+                + ", ".join(c.replace("_", " ") for c in low_parts.conditions_failed)
                 + "; it ranks below specifications in the band that pass more conditions."
             )
     return out, met, len(conds)

@@ -42,8 +42,8 @@ def test_engel_log_log_matches_the_reference_sheet(engel):
     assert entry["cv"].value == pytest.approx(118.9974, rel=1e-6)
     bp = next(t for t in entry["conditions"].equal_variance.tests if t.name.startswith("Breusch"))
     assert bp.p_value == pytest.approx(1.769e-4, rel=1e-3)
-    assert "equal_variance" in entry["score"]["parts"]["conditions_failed"]
-    assert entry["score"]["parts"]["within_one_se"] and entry["score"]["cv_ratio"] == 1.0
+    assert "equal_variance" in entry["score"].parts.conditions_failed
+    assert entry["score"].parts.within_one_se and entry["score"].cv_ratio == 1.0
     # plot points are the residuals of the same fit
     ref = sm.OLS(np.log(d.foodexp), sm.add_constant(np.log(d.income))).fit()
     pts = plots.residuals_fitted.points

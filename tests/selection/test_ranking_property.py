@@ -107,10 +107,10 @@ def test_rank_of_real_specifications_has_one_threshold_and_no_dominated_entry(ro
     ]
     ranked, lowest = rank(scored)
     band = Band.of(scored)
-    assert {p["one_se_threshold"] for _, p in ranked} == {band.threshold}
+    assert {p.one_se_threshold for _, p in ranked} == {band.threshold}
     assert lowest == min(v for _, v, _ in rows)
     cv = [s.cv.value for s, _ in ranked]
     simp = [s.spec.simplicity() for s, _ in ranked]
     assert _violations(list(range(len(ranked))), cv, simp, dict.fromkeys(range(len(cv)), 0)) == []
     for s, p in ranked:
-        assert p["within_one_se"] == (s.cv.value <= band.threshold)
+        assert p.within_one_se == (s.cv.value <= band.threshold)

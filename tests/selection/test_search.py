@@ -11,6 +11,7 @@ from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design
 from service.selection.deadline import Deadline
+from service.selection.entries import Simplicity
 from service.selection.search import places, rank, run_selection, select
 from service.selection.search_setup import Scored, SearchOptions
 
@@ -35,7 +36,7 @@ def test_one_se_rule_prefers_the_simplest_inside_the_band():
     order = [s for s, _ in ranked]
     assert order[0] is simple and order[1] is middle and order[2] is best and order[3] is outside
     parts = [p for _, p in ranked]
-    assert [p["within_one_se"] for p in parts] == [True, True, True, False]
+    assert [p.within_one_se for p in parts] == [True, True, True, False]
 
 
 def test_one_threshold_for_every_entry():
@@ -47,15 +48,13 @@ def test_one_threshold_for_every_entry():
     steady = _scored("sqrt", "log", 10.3, 0.4, folds=[9.8, 10.8, 10.1, 10.5, 10.3])
     ranked, _ = rank([best, noisy, steady], folds=5)
     parts = {id(s): p for s, p in ranked}
-    assert [p["one_se_threshold"] for _, p in ranked] == [pytest.approx(10.4)] * 3
-    assert parts[id(noisy)]["within_one_se"] is False  # 10.6 > 10.0 + 0.4
-    assert parts[id(steady)]["within_one_se"] is True
+    assert [p.one_se_threshold for _, p in ranked] == [pytest.approx(10.4)] * 3
+    assert parts[id(noisy)].within_one_se is False  # 10.6 > 10.0 + 0.4
+    assert parts[id(steady)].within_one_se is True
     assert [s for s, _ in ranked] == [best, steady, noisy]  # log/log is simpler than sqrt/log
-    assert parts[id(steady)]["simplicity"] == {
-        "estimated": 0,
-        "readability": 3,
-        "transformed_columns": 2,
-    }
+    assert parts[id(steady)].simplicity == Simplicity(
+        estimated=0, readability=3, transformed_columns=2
+    )
 
 
 def test_places_carry_the_paired_standard_error_of_the_fold_differences():
