@@ -12,6 +12,7 @@ from .middleware import note_result
 from .negotiation import preferred
 from .options import diagnostics_job
 from .pool import compute_slot
+from .render import contract
 from .routing import StrictRoute
 from .schemas import DiagnosticsRequest
 
@@ -49,9 +50,14 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
         if fmt is not None:
             from ..report.figures import render_figure
 
-            image = render_figure(plots, fmt, title=entry["equation"])
+            image = render_figure(plots, fmt, title=entry.equation)
             media = "image/svg+xml" if fmt == "svg" else "image/png"
             return Response(image, media_type=media)
     return JSONBody(
-        {"service_version": __version__, "data": prep.data_summary(), **entry, "plots": plots}
+        {
+            "service_version": __version__,
+            "data": prep.data_summary(),
+            **contract(entry),
+            "plots": plots,
+        }
     )

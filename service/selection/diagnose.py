@@ -20,7 +20,7 @@ from ..core.spec import (
     resolve_predictor_transforms,
 )
 from .candidates import check_explicit
-from .entries import ConditionCount, ScoreParts, entry_for
+from .entries import ConditionCount, EntryReport, ScoreParts, entry_for
 from .plots import PLOT_MAX_POINTS, fit_plots
 from .search import simplicity_parts
 from .search_setup import SearchOptions, check_rows
@@ -35,7 +35,7 @@ def diagnose_specification(
     opts: SearchOptions,
     service_version: str,
     max_points: int = PLOT_MAX_POINTS,
-) -> tuple[dict[str, Any], DiagnosticPlots]:
+) -> tuple[EntryReport, DiagnosticPlots]:
     """One specification exactly as given: (ranking entry without rank, plot data).
 
     Domain problems are :class:`InputError` naming a field of the specification (:class:`SpecField`); a
@@ -100,8 +100,6 @@ def diagnose_specification(
         plots = fit_plots(listed.design, listed.fit, prep, opts.alpha, opts.seed, max_points)
     except CandidateFailure as exc:
         raise ModelFailure(f"the specification cannot be fitted: {exc.reason}") from None
-    entry = listed.body
-    score = entry["score"]
-    count = ConditionCount(tuple(failed(entry["conditions"])))
-    entry["score"] = replace(score, parts=replace(score.parts, conditions=count))
-    return entry, plots
+    entry = listed.report
+    count = ConditionCount(tuple(failed(entry.conditions)))
+    return replace(entry, score=replace(entry.score, parts=replace(parts, conditions=count))), plots

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -12,7 +12,7 @@ from ..core import retransform
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.condition_rules import conditions_for, failed
-from ..core.conditions import ConditionReport
+from ..core.conditions import ConditionReport, TransformHint
 from ..core.cvplus import default_method, stored_block
 from ..core.cvresult import CVReport, CVResult, OutOfFold
 from ..core.data import Prepared
@@ -144,7 +144,28 @@ def fitted_model(
     return concrete, design, fit, lam_est
 
 
-def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict[str, Any]:
+@dataclass(frozen=True)
+class FitSummary:
+    """An entry's all-rows fit: R^2 on the model scale (``r_squared_scale`` says which
+    scale that is) and on the original scale, residual SD, residual degrees of freedom,
+    log-likelihood, AIC and BIC of the response on its original scale (change-of-variables
+    Jacobian), the parameters counted for them and the design's condition number."""
+
+    n: int
+    r_squared: float | None
+    adj_r_squared: float | None
+    r_squared_scale: str
+    r_squared_original_scale: float | None
+    residual_sd: float | None
+    df_residual: int
+    log_likelihood_original_scale: float | None
+    aic_original_scale: float | None
+    bic_original_scale: float | None
+    parameters_counted: int
+    condition_number: float | None
+
+
+def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> FitSummary:
     t = concrete.response_transform
     llf_y = fit.llf + t.log_jacobian(prep.y)
     # sigma, plus every parameter estimated from the response: a lambda, Box-Tidwell powers
@@ -163,20 +184,20 @@ def fit_block(concrete: Specification, fit: OLSFit, prep: Prepared) -> dict[str,
     if np.all(ok):
         tss = float(np.sum((prep.y - prep.y.mean()) ** 2))
         r2o = 1.0 - float(np.sum((prep.y - mean_fit) ** 2)) / tss
-    return {
-        "n": n,
-        "r_squared": finite_or_none(fit.r_squared),
-        "adj_r_squared": finite_or_none(fit.adj_r_squared),
-        "r_squared_scale": "model" if not t.is_identity else "original",
-        "r_squared_original_scale": finite_or_none(r2o),
-        "residual_sd": finite_or_none(fit.sigma),
-        "df_residual": fit.df_resid,
-        "log_likelihood_original_scale": finite_or_none(llf_y),
-        "aic_original_scale": finite_or_none(aic),
-        "bic_original_scale": finite_or_none(bic),
-        "parameters_counted": k,
-        "condition_number": finite_or_none(fit.condition_number),
-    }
+    return FitSummary(
+        n=n,
+        r_squared=finite_or_none(fit.r_squared),
+        adj_r_squared=finite_or_none(fit.adj_r_squared),
+        r_squared_scale="model" if not t.is_identity else "original",
+        r_squared_original_scale=finite_or_none(r2o),
+        residual_sd=finite_or_none(fit.sigma),
+        df_residual=fit.df_resid,
+        log_likelihood_original_scale=finite_or_none(llf_y),
+        aic_original_scale=finite_or_none(aic),
+        bic_original_scale=finite_or_none(bic),
+        parameters_counted=k,
+        condition_number=finite_or_none(fit.condition_number),
+    )
 
 
 LAG_RULE = "floor(4 (n/100)^(2/9)), common practice"
@@ -194,12 +215,33 @@ def robust_covariances(
     return covs, lags
 
 
+@dataclass(frozen=True)
+class Inference:
+    """Which standard errors an entry's readings use (``standard_errors``: classical, hc3
+    or hac) and why, with its source; the Newey-West lags and their rule when the rows have
+    an order; the default prediction interval method and why (None until it is chosen)."""
+
+    standard_errors: str
+    reason: str
+    source: str
+    hac_lags: int | None = None
+    prediction_intervals: str | None = None
+    prediction_interval_reason: str | None = None
+
+    @property
+    def hac_lag_rule(self) -> str:
+        return LAG_RULE
+
+    def with_intervals(self, method: str, why: str) -> Inference:
+        return replace(self, prediction_intervals=method, prediction_interval_reason=why)
+
+
 def choose_inference(
     conditions: ConditionReport, lags: int | None, blocked: bool
-) -> tuple[dict[str, Any], str, list[str]]:
-    """Which standard errors the readings use: (inference block, clause for the
-    sentences, warnings).  Failing independence with an order -> Newey-West HAC (also
-    robust to unequal variance); failing equal variance -> HC3; otherwise classical."""
+) -> tuple[Inference, str, list[str]]:
+    """Which standard errors the readings use: (inference, clause for the sentences,
+    warnings).  Failing independence with an order -> Newey-West HAC (also robust to
+    unequal variance); failing equal variance -> HC3; otherwise classical."""
     bad = failed(conditions)
     warnings: list[str] = []
     if "independence" in bad and lags is not None:
@@ -218,15 +260,7 @@ def choose_inference(
         clause = f"the interval uses HC3 standard errors because {reason}"
     else:
         kind, reason, clause = "classical", "the conditions they rest on are not rejected", ""
-    block: dict[str, Any] = {
-        "standard_errors": kind,
-        "reason": reason,
-        "source": src.STANDARD_ERRORS[kind],
-    }
-    if lags is not None:
-        block["hac_lags"] = lags
-        block["hac_lag_rule"] = LAG_RULE
-    return block, clause, warnings
+    return Inference(kind, reason, src.STANDARD_ERRORS[kind], lags), clause, warnings
 
 
 def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
@@ -238,37 +272,86 @@ def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
 
 
 def attach_cv_plus(
-    entry: dict[str, Any],
+    entry: EntryReport,
     design: Design,
     oof: OutOfFold | None,
     why_none: str,
     prep: Prepared,
     plan: CVPlan,
-) -> None:
-    """Store the CV+ block in the entry body's model (sealed: checksum renewed, its canonical
-    bytes kept for the signature, which ``request.finish_body`` adds) and set the entry's default interval method from it.  ``design`` is
-    the entry's all-rows design (:attr:`Entry.design`)."""
+) -> EntryReport:
+    """Store the CV+ block in the entry's model (sealed: checksum renewed, its canonical
+    bytes kept for the signature, which ``request.finish_body`` adds) and return the entry
+    with its default interval method taken from it.  ``design`` is the entry's all-rows
+    design (:attr:`Entry.design`)."""
     block = stored_block(oof, design.X, prep.y, plan.scheme, why_none)
-    model = entry["model"]
+    model = entry.model
     model["cv_plus"] = block
     seal(model, keep=True)  # the bytes are signed in finish_body without a second dump
     method, why = default_method(
         model.get("conditions_failed"), block["available"], block.get("reason", "")
     )
-    entry["inference"] = {
-        **entry["inference"],
-        "prediction_intervals": method,
-        "prediction_interval_reason": why,
-    }
+    return replace(entry, inference=entry.inference.with_intervals(method, why))
+
+
+@dataclass(frozen=True)
+class LadderReading:
+    """An estimate read as a ladder value before listing (``search.distinct_scales``): which
+    ``parameter`` (``response_lambda`` of a ``family``, or ``predictor_power`` of a
+    ``column``), the ``estimate`` as summarised where it was made, the ladder scale it is
+    read as and the CV error of the estimated candidate."""
+
+    parameter: str
+    estimate: dict[str, Any]
+    read_as: str
+    cv_value_estimated: float
+    family: str | None = None
+    column: str | None = None
+
+
+@dataclass(frozen=True)
+class Estimates:
+    """What an entry's scales estimated from the response: the response lambda (with the
+    lambda of each training fold, when the folds estimated it), the predictors' powers
+    (column -> summary) and the estimates read as the ladder values it lists."""
+
+    response_lambda: LambdaEstimate | None = None
+    lambda_per_fold: tuple[float, ...] = ()
+    predictor_powers: dict[str, Any] | None = None
+    read_as_ladder: tuple[LadderReading, ...] = ()
+
+
+@dataclass(frozen=True)
+class EntryReport:
+    """One listed specification as the contract lists it: its place (``rank``; None for a
+    specification diagnosed alone), the concrete specification and its equation, the
+    cross-validated error, the all-rows fit, the coefficient rows, the score, the model
+    artifact (a dict, sealed), the warnings, the regression conditions and transform hints,
+    the inference, the readings (``interpretation``) and the estimates (None: nothing
+    estimated)."""
+
+    specification: Specification
+    equation: str
+    cv: CVReport
+    fit: FitSummary
+    coefficients: tuple[dict[str, Any], ...]
+    score: Score
+    model: dict[str, Any]
+    warnings: tuple[str, ...]
+    conditions: ConditionReport
+    transform_hints: tuple[TransformHint, ...]
+    inference: Inference
+    interpretation: Any
+    estimates: Estimates | None = None
+    rank: int | None = None
 
 
 @dataclass(frozen=True)
 class Entry:
-    """One listed specification: its contract ``body`` and the all-rows ``design`` and
-    ``fit`` it was computed from (for the CV+ block, the lambda context and plot data,
-    which then need no second fit)."""
+    """One listed specification: its ``report`` (the contract entry) and the all-rows
+    ``design`` and ``fit`` it was computed from (for the CV+ block, the lambda context and
+    plot data, which then need no second fit)."""
 
-    body: dict[str, Any]
+    report: EntryReport
     design: Design
     fit: OLSFit
 
@@ -287,16 +370,11 @@ def entry_for(
     (:func:`attach_cv_plus`, which seals it) or does not return the model."""
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
-    estimates = {}
-    if lam_est is not None:
-        estimates["response_lambda"] = lam_est.to_dict()
-        if lam_est.at_bound:
-            warnings.append(
-                f"The {concrete.response_transform.name} lambda sits at the search "
-                "bound (-3 or 3); the scale is poorly determined."
-            )
-        if cv.fold_lambdas:
-            estimates["response_lambda"]["per_fold"] = cv.fold_lambdas
+    if lam_est is not None and lam_est.at_bound:
+        warnings.append(
+            f"The {concrete.response_transform.name} lambda sits at the search "
+            "bound (-3 or 3); the scale is poorly determined."
+        )
     t = concrete.response_transform
     if t.name == "log" and t.shift:
         warnings.append(
@@ -318,55 +396,57 @@ def entry_for(
     conditions, hints = conditions_for(design, fit, prep, fit.fitted + fit.resid, opts.alpha)
     bad = failed(conditions)
     cv_plus = stored_block(cv.out_of_fold, design.X, prep.y, plan.scheme)
-    entry: dict[str, Any] = {
-        "specification": concrete.to_dict(),
-        "equation": equation(concrete, design, fit.coef),
-        "cv": CVReport.of(cv, plan),
-        "fit": fit_block(concrete, fit, prep),
-        "coefficients": [
-            {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
-            for row in fit.table(robust=covs)
-        ],
-        "score": Score(cv.value / parts.best_cv_value if parts.best_cv_value > 0 else 1.0, parts),
-        "model": build_model(
-            concrete,
-            design,
-            fit,
-            prep,
-            service_version,
-            {
-                "folds": plan.folds,
-                "repeats": plan.repeats,
-                "seed": plan.seed,
-                "metric": plan.metric,
-            },
-            cv_plus=cv_plus,
-            conditions_failed=bad,
-            sealed=sealed,
-        ),
-        "warnings": warnings,
-    }
-    entry["conditions"] = conditions
-    entry["transform_hints"] = list(hints)
+    model = build_model(
+        concrete,
+        design,
+        fit,
+        prep,
+        service_version,
+        {
+            "folds": plan.folds,
+            "repeats": plan.repeats,
+            "seed": plan.seed,
+            "metric": plan.metric,
+        },
+        cv_plus=cv_plus,
+        conditions_failed=bad,
+        sealed=sealed,
+    )
     for h in hints:
         if h.bulge and h.sentence:
             warnings.append(h.sentence)
     blocked = getattr(opts, "scheme", "random") == "blocked"
     inference, clause, more = choose_inference(conditions, lags, blocked)
     method, why = default_method(bad, cv_plus["available"], cv_plus.get("reason", ""))
-    inference["prediction_intervals"] = method
-    inference["prediction_interval_reason"] = why
-    entry["inference"] = inference
     warnings.extend(more)
-    entry["interpretation"] = interpret_fit(
+    interpretation = interpret_fit(
         concrete,
         design,
         fit,
         prep,
         getattr(opts, "units", None),
-        table=table_for(fit.table(robust=covs), inference["standard_errors"]),
+        table=table_for(fit.table(robust=covs), inference.standard_errors),
         clause=clause,
     )
-    if estimates:
-        entry["estimates"] = estimates
-    return Entry(entry, design, fit)
+    estimates = None
+    if lam_est is not None:
+        estimates = Estimates(lam_est, tuple(cv.fold_lambdas or ()))
+    report = EntryReport(
+        specification=concrete,
+        equation=equation(concrete, design, fit.coef),
+        cv=CVReport.of(cv, plan),
+        fit=fit_block(concrete, fit, prep),
+        coefficients=tuple(
+            {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
+            for row in fit.table(robust=covs)
+        ),
+        score=Score(cv.value / parts.best_cv_value if parts.best_cv_value > 0 else 1.0, parts),
+        model=model,
+        warnings=tuple(warnings),
+        conditions=conditions,
+        transform_hints=tuple(hints),
+        inference=inference.with_intervals(method, why),
+        interpretation=interpretation,
+        estimates=estimates,
+    )
+    return Entry(report, design, fit)

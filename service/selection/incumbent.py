@@ -30,6 +30,7 @@ from ..core.errors import CandidateFailure, InputError, SpecField
 from ..core.folds import CVPlan
 from ..core.numbers import fmt
 from ..core.spec import PredictorSpec, Specification, build_design, resolve_predictor_transforms
+from .entries import EntryReport
 
 
 def incumbent_spec(
@@ -122,7 +123,7 @@ def decide(
     inc_cv: CVResult | None,
     reason: str | None,
     rank: int | None,
-    winner_entry: dict[str, Any],
+    winner_entry: EntryReport,
     winner_folds: np.ndarray,
     plan: CVPlan,
     inc_conditions: ConditionReport | None = None,
@@ -139,9 +140,9 @@ def decide(
             None,
             "switch",
             f"The incumbent cannot be fitted on this data: "
-            f"{reason}; switch to rank 1 ({winner_entry['equation']}).",
+            f"{reason}; switch to rank 1 ({winner_entry.equation}).",
         )
-    same = winner_entry["specification"] == inc_spec.to_dict() or rank == 1
+    same = winner_entry.specification.to_dict() == inc_spec.to_dict() or rank == 1
     # the same specification on the same folds differs by exactly 0; the two scoring paths
     # (search and incumbent refit) agree only to rounding, so the rounding is not reported
     d = np.zeros_like(inc_cv.fold_values) if same else winner_folds - inc_cv.fold_values
@@ -149,7 +150,7 @@ def decide(
     diff = float(np.mean(d))
     metric = plan.metric
     inc_fail = _failed_conditions(inc_conditions)
-    win_fail = _failed_conditions(winner_entry.get("conditions"))
+    win_fail = _failed_conditions(winner_entry.conditions)
     only_inc = sorted(inc_fail - win_fail)
     decision: Literal["keep", "switch"]
     if same:
@@ -157,7 +158,7 @@ def decide(
     elif diff < -se:
         decision = "switch"
         why = (
-            f"Rank 1 ({winner_entry['equation']}) has a lower cross-validated {metric} by "
+            f"Rank 1 ({winner_entry.equation}) has a lower cross-validated {metric} by "
             f"{fmt(-diff)} (paired standard error {fmt(se)}), more than one standard error."
         )
     elif only_inc:
@@ -165,7 +166,7 @@ def decide(
         why = (
             "The incumbent fails "
             + ", ".join(c.replace("_", " ") for c in only_inc)
-            + f", which rank 1 ({winner_entry['equation']}) passes; their {metric} differ by "
+            + f", which rank 1 ({winner_entry.equation}) passes; their {metric} differ by "
             f"{fmt(diff)} (paired standard error {fmt(se)})."
         )
     else:

@@ -16,10 +16,9 @@ from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field, replace
 from typing import Any, Protocol
 
-from ..core import transforms as tr
 from ..core.data import Prepared, prepare
 from ..core.errors import InputError, Option
-from ..core.model import sign_all
+from ..core.model import sign
 from .cautions import selection_cautions
 from .groups import run_grouped
 from .search import select
@@ -205,11 +204,10 @@ def _group_mapper(
 def finish_body(body: dict[str, Any], opts: SearchOptions, service: Service) -> dict[str, Any]:
     """``body`` with its model artifacts signed, the service version first and the cautions
     that apply last."""
-    any_tr = any(
-        not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
-        for e in body.get("ranking", [])
-    )
-    sign_all(body, service.model_keys)
+    ranking = body.get("ranking", [])
+    any_tr = any(not e.specification.response_transform.is_identity for e in ranking)
+    for e in ranking:
+        sign(e.model, service.model_keys)
     return {
         "service_version": service.version,
         **body,

@@ -40,13 +40,23 @@ from ..core.errors import (
 )
 from ..core.fastcv import Found, Scorer
 from ..core.folds import CVPlan, make_plan
-from ..core.likelihood import estimate_lambda, fit_transform
+from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
 from ..core.spec import Design, PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
 from . import incumbent
 from .deadline import Deadline
-from .entries import ConditionCount, Entry, ScoreParts, Simplicity, attach_cv_plus, entry_for
+from .entries import (
+    ConditionCount,
+    Entry,
+    EntryReport,
+    Estimates,
+    LadderReading,
+    ScoreParts,
+    Simplicity,
+    attach_cv_plus,
+    entry_for,
+)
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
 
@@ -358,8 +368,8 @@ class SearchSummary:
     failures: tuple[Failure, ...]
     failure_reasons: tuple[FailureGroup, ...]
     exact_refits: int
-    box_cox: dict[str, Any] | None
-    predictor_powers: dict[str, Any] | None
+    box_cox: BoxCoxReport | None
+    predictor_powers: tuple[tuple[str, tuple[PowerEstimate, ...]], ...] | None
 
 
 @dataclass(frozen=True)
@@ -494,16 +504,20 @@ def select(
         if key not in cache:
             # sealed by attach_cv_plus when listed; an assessed member is not returned
             made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version, sealed=False)
-            if key in ev.powers:
-                made.body.setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
-            if key in read_notes:
-                made.body.setdefault("estimates", {})["read_as_ladder"] = read_notes[key]
+            if key in ev.powers or key in read_notes:
+                est = made.report.estimates or Estimates()
+                est = replace(
+                    est,
+                    predictor_powers=ev.powers.get(key),
+                    read_as_ladder=tuple(read_notes.get(key, ())),
+                )
+                made = replace(made, report=replace(made.report, estimates=est))
             cache[key] = made
         return cache[key]
 
     ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
-    entries: list[dict[str, Any]] = []
+    entries: list[EntryReport] = []
     first: Entry | None = None
     winner: Scored | None = None
     for s, parts in ranked:
@@ -511,7 +525,6 @@ def select(
             break
         try:
             listed = full(s, parts)
-            entry = dict(listed.body)
         except CandidateFailure as exc:
             warnings.append(
                 f"A specification that scored in cross-validation could not be "
@@ -520,17 +533,18 @@ def select(
             continue
         i = len(entries)
         # CV+ fits only for the entries returned (the band's assessed members need none)
-        attach_cv_plus(entry, listed.design, *ev.out_of_fold(s, deadline), prep, plan)
+        entry = attach_cv_plus(
+            listed.report, listed.design, *ev.out_of_fold(s, deadline), prep, plan
+        )
         first = first or listed
         winner = winner or s
         if parts.conditions is None:
-            conditions = entry.get("conditions")
+            conditions = entry.conditions
             count = ConditionCount(
                 tuple(failed_for_ranking(conditions, met)), tuple(failed(conditions))
             )
             parts = replace(parts, conditions=count)
-        entry["score"] = replace(entry["score"], parts=parts)
-        entries.append({"rank": i + 1, **entry})
+        entries.append(replace(entry, score=replace(entry.score, parts=parts), rank=i + 1))
     if not entries:
         raise ModelFailure(
             "no scored specification could be fitted on all rows; "
@@ -546,10 +560,7 @@ def select(
     box_cox = None
     if box_cox_info is not None:
         assert first is not None  # listed with entries[0]
-        box_cox = {
-            **box_cox_info,
-            **_box_cox_context(box_cox_info, entries[0], first.design, prep),
-        }
+        box_cox = _box_cox_context(box_cox_info, entries[0], first.design, prep)
     search = SearchSummary(
         considered=int(total),
         scored=len(scored),
@@ -598,7 +609,7 @@ def _incumbent(
     shift_needed: bool,
     scored: list[Scored],
     ranked: list[tuple[Scored, ScoreParts]],
-    entries: list[dict[str, Any]],
+    entries: list[EntryReport],
     band: Band | None = None,
 ) -> incumbent.IncumbentDecision:
     assert opts.incumbent is not None  # called only for a request with an incumbent
@@ -622,9 +633,9 @@ def _incumbent(
             again, _ = rank([*scored, Scored(spec, inc_cv)], plan.folds, band)
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
         try:
-            conditions = entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "").body[
-                "conditions"
-            ]
+            conditions = entry_for(
+                spec, inc_cv, plan, prep, ranked[0][1], opts, ""
+            ).report.conditions
         except CandidateFailure:
             conditions = None
     winner = ranked[0][0]
@@ -830,7 +841,7 @@ def _order_by_conditions(
     for i in band:
         s, parts = ranked[i]
         try:
-            conds[i] = full(s, parts).body.get("conditions")
+            conds[i] = full(s, parts).report.conditions
         except CandidateFailure as exc:
             parts_of[i] = replace(parts, conditions=ConditionCount(None, note=exc.reason))
             n_failed[i] = len(CONDITION_NAMES) + 1
@@ -932,7 +943,7 @@ def _exhaustive(
 
 def _response_lambdas(
     prep: Prepared, opts: SearchOptions, resp: list[tr.Transform], warnings: list[str]
-) -> tuple[dict[str, Any] | None, dict[tr.Transform, float]]:
+) -> tuple[LambdaEstimate | None, dict[tr.Transform, float]]:
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
         prep.response,
@@ -946,7 +957,7 @@ def _response_lambdas(
         ),
         opts.intercept,
     )
-    info: dict[str, Any] | None = None
+    info: LambdaEstimate | None = None
     lams: dict[tr.Transform, float] = {}
     families = [t for t in resp if t.needs_lambda]
     if not families:
@@ -963,7 +974,7 @@ def _response_lambdas(
         lams[t] = est.lam
         if t.name != "box_cox":
             continue
-        info = {"design": "untransformed predictors", **est.to_dict()}
+        info = est
         if est.ladder is not None:
             rung = tr.ladder_transform(est.ladder)
             if rung not in resp and rung.domain_problem(prep.y, prep.response, "response") is None:
@@ -991,13 +1002,40 @@ def _screen_scales(
     return out
 
 
+@dataclass(frozen=True)
+class BoxCoxReport:
+    """The response's Box-Cox lambda estimated with the predictors untransformed; when rank
+    1's response scale is not what it suggests, the lambda again on rank 1's predictors
+    (``on_rank_1``; ``rank_1_design`` labels them) and the sentence that says lambda
+    depends on the predictor scales (``context``)."""
+
+    estimate: LambdaEstimate
+    on_rank_1: LambdaEstimate | None = None
+    rank_1_design: str | None = None
+    context: str | None = None
+
+    #: the design the reported lambda was estimated on
+    design = "untransformed predictors"
+
+
+@dataclass(frozen=True)
+class PowerEstimate:
+    """A predictor's Box-Tidwell power estimated on one fixed response scale, summarised as
+    :meth:`boxtidwell.PowerFit.summary` gives it."""
+
+    response_transform: tr.Transform
+    summary: dict[str, Any]
+
+
 def _box_cox_context(
-    info: dict[str, Any], first: dict[str, Any], design: Design, prep: Prepared
-) -> dict[str, Any]:
-    """When rank 1's response scale is not what the reported lambda suggests: lambda again
-    on rank 1's design, with one sentence saying that lambda depends on the predictor scales."""
-    t = tr.from_dict(first["specification"]["response"]["transform"])
-    lad = info.get("ladder")
+    info: LambdaEstimate, first: EntryReport, design: Design, prep: Prepared
+) -> BoxCoxReport:
+    """The reported lambda; when rank 1's response scale is not what it suggests, also the
+    lambda again on rank 1's design, with one sentence saying that lambda depends on the
+    predictor scales."""
+    alone = BoxCoxReport(info)
+    t = first.specification.response_transform
+    lad = info.ladder
     suggested = tr.ladder_transform(lad) if lad is not None else None
     same = (
         t.name == "box_cox"
@@ -1005,30 +1043,24 @@ def _box_cox_context(
         else (t.name == suggested.name and t.exponent == suggested.exponent)
     )
     if same or not np.all(prep.y > 0):
-        return {}
+        return alone
     try:
         est = estimate_lambda("box_cox", prep.y, design.X)
     except (CandidateFailure, ValueError):
-        return {}
-    preds = ", ".join(
-        tr.from_dict(p["transform"]).label(p["column"])
-        for p in first["specification"]["predictors"]
-    )
+        return alone
+    preds = ", ".join(p.transform.label(p.column) for p in first.specification.predictors)
     holds = (
         f", which holds {est.ladder:g} ({tr.ladder_transform(est.ladder).label(prep.response)})"
         if est.ladder is not None
         else ""
     )
-    lam = info["lambda"]
-    return {
-        "on_rank_1_design": {"design": preds, **est.to_dict()},
-        "context": (
-            f"The Box-Cox lambda {lam:.3g} (95% interval {_fmt_ci(info['ci_low'], info['ci_high'])}) "
-            f"was estimated with the predictors untransformed, and lambda depends on the "
-            f"predictor scales: on rank 1's predictors ({preds}) it is {est.lam:.3g} (95% "
-            f"interval {_fmt_ci(est.ci_low, est.ci_high)}){holds}."
-        ),
-    }
+    context = (
+        f"The Box-Cox lambda {info.lam:.3g} (95% interval {_fmt_ci(info.ci_low, info.ci_high)}) "
+        f"was estimated with the predictors untransformed, and lambda depends on the "
+        f"predictor scales: on rank 1's predictors ({preds}) it is {est.lam:.3g} (95% "
+        f"interval {_fmt_ci(est.ci_low, est.ci_high)}){holds}."
+    )
+    return BoxCoxReport(info, est, preds, context)
 
 
 #: how each search strategy goes (stated in ``search.strategy``)
@@ -1059,11 +1091,15 @@ class StrategyReport:
         return STRATEGY_TEXT[self.name]
 
 
-def _powers_block(info: dict[tuple[tr.Transform, str], dict[str, Any]]) -> dict[str, Any]:
-    out: dict[str, Any] = {}
+def _powers_block(
+    info: dict[tuple[tr.Transform, str], dict[str, Any]],
+) -> tuple[tuple[str, tuple[PowerEstimate, ...]], ...]:
+    """The screening powers by column (in the order first met), each column's by response
+    scale."""
+    out: dict[str, list[PowerEstimate]] = {}
     for (t, col), summ in info.items():
-        out.setdefault(col, []).append({"response_transform": t.to_dict(), **summ})
-    return out
+        out.setdefault(col, []).append(PowerEstimate(t, summ))
+    return tuple((col, tuple(each)) for col, each in out.items())
 
 
 def _fmt_ci(lo: float | None, hi: float | None) -> str:
@@ -1103,12 +1139,12 @@ def _has_estimate(spec: Specification) -> bool:
 
 def _ladder_reading(
     e: Scored, ev: _Evaluator, prep: Prepared, positive: bool
-) -> tuple[Specification | None, list[dict[str, Any]]]:
+) -> tuple[Specification | None, list[LadderReading]]:
     """(open or fixed specification read on the ladder, notes) or (None, []) when no
     estimate of ``e`` has a ladder value inside its 95% interval."""
     spec = e.spec
     t = spec.response_transform
-    notes: list[dict[str, Any]] = []
+    notes: list[LadderReading] = []
     if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated):
         try:
             est = estimate_lambda(t.name, prep.y, build_design(spec, prep).X)
@@ -1121,13 +1157,13 @@ def _ladder_reading(
         else:
             rung = tr.Transform("yeo_johnson", lam=float(est.ladder))
         notes.append(
-            {
-                "parameter": "response_lambda",
-                "family": t.name,
-                **est.to_dict(),
-                "read_as": rung.label(prep.response),
-                "cv_value_estimated": e.cv.value,
-            }
+            LadderReading(
+                "response_lambda",
+                est.to_dict(),
+                rung.label(prep.response),
+                e.cv.value,
+                family=t.name,
+            )
         )
         return Specification(spec.response, rung, spec.predictors, spec.intercept), notes
     powers = ev.powers.get(spec.key)
@@ -1143,13 +1179,13 @@ def _ladder_reading(
         if rung.name == "log":
             rung = fit_transform(rung, prep.numeric[p.column])
         notes.append(
-            {
-                "parameter": "predictor_power",
-                "column": p.column,
-                **{k: v for k, v in summ.items() if k != "per_fold"},
-                "read_as": rung.label(p.column),
-                "cv_value_estimated": e.cv.value,
-            }
+            LadderReading(
+                "predictor_power",
+                {k: v for k, v in summ.items() if k != "per_fold"},
+                rung.label(p.column),
+                e.cv.value,
+                column=p.column,
+            )
         )
         new.append(PredictorSpec(p.column, rung))
     if not notes:
@@ -1173,7 +1209,7 @@ def _score_fixed(
 
 def distinct_scales(
     scored: list[Scored], ev: _Evaluator, prep: Prepared, plan: CVPlan, shift_needed: bool
-) -> tuple[list[Scored], dict[SpecKey, list[dict[str, Any]]], ScalesSummary]:
+) -> tuple[list[Scored], dict[SpecKey, list[LadderReading]], ScalesSummary]:
     """The candidates that may be listed: one per set of scales.
 
     An estimate (response lambda, predictor power) whose 95% interval holds a ladder
@@ -1195,7 +1231,7 @@ def distinct_scales(
     ref = min(fixed.values(), key=lambda s: s.cv.value) if fixed else None
     limit = ref.cv.value + ref.cv.std_error if ref is not None else math.inf
     examined = [e for e in est if e.cv.value <= limit][:MAX_EXAMINED]
-    notes: dict[SpecKey, list[dict[str, Any]]] = {}
+    notes: dict[SpecKey, list[LadderReading]] = {}
     still: list[Scored] = []
     read = 0
     for e in examined:

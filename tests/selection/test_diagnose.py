@@ -38,12 +38,12 @@ def test_engel_log_log_matches_the_reference_sheet(engel):
     entry, plots = diagnose_specification(prep, _spec(), SearchOptions(), "test")
     # source: CHECKS_PUBLIC engel log-log: slope 0.85589699 (rel 1e-9), CV RMSE pooled
     # smearing 118.9974 (rel 1e-6, same folds), Breusch-Pagan Koenker p 1.769e-4
-    assert entry["coefficients"][1]["estimate"] == pytest.approx(0.85589699, rel=1e-7)
-    assert entry["cv"].value == pytest.approx(118.9974, rel=1e-6)
-    bp = next(t for t in entry["conditions"].equal_variance.tests if t.name.startswith("Breusch"))
+    assert entry.coefficients[1]["estimate"] == pytest.approx(0.85589699, rel=1e-7)
+    assert entry.cv.value == pytest.approx(118.9974, rel=1e-6)
+    bp = next(t for t in entry.conditions.equal_variance.tests if t.name.startswith("Breusch"))
     assert bp.p_value == pytest.approx(1.769e-4, rel=1e-3)
-    assert "equal_variance" in entry["score"].parts.conditions_failed
-    assert entry["score"].parts.within_one_se and entry["score"].cv_ratio == 1.0
+    assert "equal_variance" in entry.score.parts.conditions_failed
+    assert entry.score.parts.within_one_se and entry.score.cv_ratio == 1.0
     # plot points are the residuals of the same fit
     ref = sm.OLS(np.log(d.foodexp), sm.add_constant(np.log(d.income))).fit()
     pts = plots.residuals_fitted.points
@@ -54,7 +54,7 @@ def test_an_untransformed_spec_matches_its_reference_value(engel):
     prep, _ = engel
     entry, _ = diagnose_specification(prep, _spec("identity", "identity"), SearchOptions(), "t")
     # source: CHECKS_PUBLIC engel `foodexp on income`: CV RMSE pooled 132.7541
-    assert entry["cv"].value == pytest.approx(132.7541, rel=1e-6)
+    assert entry.cv.value == pytest.approx(132.7541, rel=1e-6)
 
 
 @pytest.mark.parametrize(

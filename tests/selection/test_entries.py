@@ -84,17 +84,17 @@ def test_fit_block_on_the_original_scale():
     ref = sm.OLS(np.log(y), sm.add_constant(np.log(x))).fit()
     # source: statsmodels llf on log(y) plus the Jacobian of the log, -sum(log y)
     llf_y = ref.llf - np.sum(np.log(y))
-    assert block["log_likelihood_original_scale"] == pytest.approx(llf_y, rel=1e-9)
+    assert block.log_likelihood_original_scale == pytest.approx(llf_y, rel=1e-9)
     k = 3  # two coefficients and sigma
-    assert block["parameters_counted"] == k
-    assert block["aic_original_scale"] == pytest.approx(-2 * llf_y + 2 * k, rel=1e-9)
-    assert block["bic_original_scale"] == pytest.approx(-2 * llf_y + k * math.log(y.size), rel=1e-9)
+    assert block.parameters_counted == k
+    assert block.aic_original_scale == pytest.approx(-2 * llf_y + 2 * k, rel=1e-9)
+    assert block.bic_original_scale == pytest.approx(-2 * llf_y + k * math.log(y.size), rel=1e-9)
     # source: Duan (1983) smearing of the full-data fit written out, then 1 - SSE/TSS
     mean = np.exp(ref.fittedvalues) * np.mean(np.exp(ref.resid))
     r2o = 1 - np.sum((y - mean) ** 2) / np.sum((y - y.mean()) ** 2)
-    assert block["r_squared_original_scale"] == pytest.approx(r2o, rel=1e-9)
-    assert block["r_squared"] == pytest.approx(ref.rsquared, rel=1e-9)
-    assert block["r_squared_scale"] == "model"
+    assert block.r_squared_original_scale == pytest.approx(r2o, rel=1e-9)
+    assert block.r_squared == pytest.approx(ref.rsquared, rel=1e-9)
+    assert block.r_squared_scale == "model"
 
 
 def test_box_cox_lambda_of_the_trees_reference_case():
@@ -138,11 +138,11 @@ def test_choose_inference(failed, lags, blocked, kind, n_warnings):
         **{c: cond(c not in failed) for c in ("independence", "equal_variance", "normality")}
     )
     block, clause, warnings = choose_inference(conditions, lags, blocked)
-    assert block["standard_errors"] == kind and len(warnings) == n_warnings
+    assert block.standard_errors == kind and len(warnings) == n_warnings
     assert (clause == "") == (kind == "classical")
     if lags is not None:
         # common practice: floor(4 (n/100)^(2/9)) lags, named in the block
-        assert block["hac_lags"] == lags and "common practice" in block["hac_lag_rule"]
+        assert block.hac_lags == lags and "common practice" in block.hac_lag_rule
 
 
 def test_table_for_swaps_in_the_chosen_standard_errors():

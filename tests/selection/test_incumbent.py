@@ -8,6 +8,7 @@ log(cost) on log(length) and age, and one on the raw scale is clearly wrong.
 from __future__ import annotations
 
 import math
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -183,6 +184,7 @@ def test_score_and_decide_in_process_follow_the_paired_rule():
     from service.core import transforms as tr
     from service.core.data import prepare
     from service.core.folds import make_plan
+    from service.core.spec import Specification
     from service.selection.incumbent import decide, incumbent_spec, score
 
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m", "pipe_age_years"])
@@ -194,7 +196,8 @@ def test_score_and_decide_in_process_follow_the_paired_rule():
     # source: scikit-learn LinearRegression refits on KFold(5, shuffle=True, random_state=3)
     assert cv.fold_values == pytest.approx(raw, rel=1e-9)
     winner = _fold_rmse(log_scale=True)
-    entry = {"specification": {}, "equation": "log model", "conditions": None}
+    logged = Specification(spec.response, tr.Transform("log"), spec.predictors, spec.intercept)
+    entry = SimpleNamespace(specification=logged, equation="log model", conditions=None)
     out = decide(spec, cv, None, 2, entry, winner, plan)
     d = winner - raw
     # source: Python's statistics.mean / statistics.stdev of the paired fold differences

@@ -12,11 +12,14 @@ import dataclasses
 import hashlib
 import hmac
 import time
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
+from service.core import transforms as tr
 from service.core.errors import ErrorRecord, InputError, Option
 from service.core.model import canonical_bytes
+from service.core.spec import PredictorSpec, Specification
 from service.selection.deadline import Deadline
 from service.selection.groups import GroupFailure
 from service.selection.request import (
@@ -73,10 +76,8 @@ def test_the_ranking_is_the_search_s_own_with_version_and_cautions_added():
     body = run_selection(job, SERVICE)
     # source: search.select on the same rows and options (the use case only finishes it)
     alone = select(job.table.prepare(), job.search, "test-version").body
-    assert [e["specification"] for e in body["ranking"]] == [
-        e["specification"] for e in alone["ranking"]
-    ]
-    assert [e["cv"].value for e in body["ranking"]] == [e["cv"].value for e in alone["ranking"]]
+    assert [e.specification for e in body["ranking"]] == [e.specification for e in alone["ranking"]]
+    assert [e.cv.value for e in body["ranking"]] == [e.cv.value for e in alone["ranking"]]
     assert next(iter(body)) == "service_version" and body["service_version"] == "test-version"
     assert body["cautions"] and list(body)[-1] == "cautions"
 
@@ -84,11 +85,11 @@ def test_the_ranking_is_the_search_s_own_with_version_and_cautions_added():
 def test_models_are_signed_with_the_service_s_key():
     key = b"k" * 32
     body = run_selection(_job(), Service("v", ("current", {"current": key})))
-    model = body["ranking"][0]["model"]
+    model = body["ranking"][0].model
     # source: RFC 2104 HMAC-SHA-256 computed with Python's hmac over key id, newline, body
     want = hmac.new(key, b"current\n" + canonical_bytes(model), hashlib.sha256).hexdigest()
     assert model["signature"] == {"algorithm": "HMAC-SHA-256", "key_id": "current", "value": want}
-    unsigned = run_selection(_job(), SERVICE)["ranking"][0]["model"]["signature"]
+    unsigned = run_selection(_job(), SERVICE)["ranking"][0].model["signature"]
     assert unsigned["algorithm"] == "none"
 
 
@@ -156,8 +157,13 @@ def test_options_are_frozen():
 
 
 def test_finish_body_adds_cautions_for_transformed_responses_only():
-    ident = {"ranking": [{"specification": {"response": {"transform": {"name": "identity"}}}}]}
-    logged = {"ranking": [{"specification": {"response": {"transform": {"name": "log"}}}}]}
+    # an entry as finish_body reads it: its specification and its model artifact
+    def listed(name: str) -> SimpleNamespace:
+        spec = Specification("y", tr.Transform(name), (PredictorSpec("x", tr.Transform("log")),))
+        return SimpleNamespace(specification=spec, model={})
+
+    ident = {"ranking": [listed("identity")]}
+    logged = {"ranking": [listed("log")]}
     plain = finish_body(ident, SearchOptions(), SERVICE)["cautions"]
     more = finish_body(logged, SearchOptions(), SERVICE)["cautions"]
     assert len(more) == len(plain) + 2 and not any("median" in c for c in plain)

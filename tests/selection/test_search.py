@@ -11,7 +11,7 @@ from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design
 from service.selection.deadline import Deadline
-from service.selection.entries import Simplicity
+from service.selection.entries import EntryReport, Simplicity
 from service.selection.search import places, rank, run_selection, select
 from service.selection.search_setup import Scored, SearchOptions
 
@@ -76,7 +76,7 @@ def test_places_carry_the_paired_standard_error_of_the_fold_differences():
 def test_select_names_its_rank_1_as_scored():
     result = select(_linear_prep(), SearchOptions(top=2), "test")
     assert result.winner in result.scored
-    listed = Specification.from_dict(result.body["ranking"][0]["specification"])
+    listed = result.body["ranking"][0].specification
     assert listed.predictors[0].column == result.winner.spec.predictors[0].column
     assert listed.response_label() == result.winner.spec.response_label()
     assert result.complete is result.body["search"].complete
@@ -181,14 +181,14 @@ def test_explicit_inapplicable_transform_is_an_input_error():
 def test_same_request_gives_identical_numbers():
     a = run_selection(_linear_prep(), SearchOptions(), "t")
     b = run_selection(_linear_prep(), SearchOptions(), "t")
-    ka = [(e["equation"], e["cv"].value) for e in a["ranking"]]
-    kb = [(e["equation"], e["cv"].value) for e in b["ranking"]]
+    ka = [(e.equation, e.cv.value) for e in a["ranking"]]
+    kb = [(e.equation, e.cv.value) for e in b["ranking"]]
     assert ka == kb
 
 
 def test_linear_data_keep_the_identity_scale():
     out = run_selection(_linear_prep(n=400), SearchOptions(), "t")
-    spec = out["ranking"][0]["specification"]
+    spec = out["ranking"][0].specification.to_dict()
     assert spec["response"]["transform"]["name"] == "identity"
     assert spec["predictors"][0]["transform"]["name"] == "identity"
 
@@ -225,8 +225,8 @@ def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
     prep = _linear_prep()
     result = select(prep, SearchOptions(top=2), "t")
     assert not [k for k in result.body if k.startswith("_")]
-    assert not [k for e in result.body["ranking"] for k in e if k.startswith("_")]
-    first = result.body["ranking"][0]["specification"]
+    assert all(isinstance(e, EntryReport) for e in result.body["ranking"])
+    first = result.body["ranking"][0].specification.to_dict()
     assert any(s.spec.to_dict() == first for s in result.scored)
     assert result.plan.folds == 5 and result.plan.n_splits == 5
     # source: numpy lstsq of rank 1's design on all rows equals the reported coefficients
@@ -234,7 +234,7 @@ def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
     d = build_design(winner.spec, prep)
     z = winner.spec.response_transform.forward(prep.y)
     coef = np.linalg.lstsq(d.X, z, rcond=None)[0]
-    got = [row["estimate"] for row in result.body["ranking"][0]["coefficients"]]
+    got = [row["estimate"] for row in result.body["ranking"][0].coefficients]
     np.testing.assert_allclose(got, coef, rtol=1e-9, atol=1e-12)
 
 
@@ -277,9 +277,9 @@ def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monk
     alone = run_selection(prep, opts, "t")
     # source: the same search with every candidate's fold powers and lambdas found alone
     # (Scorer.score's own path): the same ranking and the same numbers
-    assert [e["specification"] for e in together["ranking"]] == [
-        e["specification"] for e in alone["ranking"]
+    assert [e.specification.to_dict() for e in together["ranking"]] == [
+        e.specification.to_dict() for e in alone["ranking"]
     ]
     for a, b in zip(together["ranking"], alone["ranking"], strict=True):
-        assert a["cv"].value == pytest.approx(b["cv"].value, rel=1e-9)
+        assert a.cv.value == pytest.approx(b.cv.value, rel=1e-9)
     assert together["search"].scored == alone["search"].scored

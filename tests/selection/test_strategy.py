@@ -90,7 +90,7 @@ def test_many_predictors_within_a_time_limit():
     s = out["search"]
     assert s.strategy.name == "screened"
     assert s.elapsed_s < 60.0
-    assert out["ranking"][0]["cv"].value > 0
+    assert out["ranking"][0].cv.value > 0
 
 
 def test_screened_search_in_batches_equals_one_candidate_at_a_time(monkeypatch):
@@ -104,8 +104,8 @@ def test_screened_search_in_batches_equals_one_candidate_at_a_time(monkeypatch):
     a, b = batched["search"], alone["search"]
     for key in ("scored", "failed", "screened", "complete"):
         assert getattr(a, key) == getattr(b, key)
-    assert [e["equation"] for e in batched["ranking"]] == [e["equation"] for e in alone["ranking"]]
+    assert [e.equation for e in batched["ranking"]] == [e.equation for e in alone["ranking"]]
     for x, y in zip(batched["ranking"], alone["ranking"], strict=True):
         # source: the same search scoring one candidate at a time
-        assert x["cv"].value == pytest.approx(y["cv"].value, rel=1e-10)
+        assert x.cv.value == pytest.approx(y.cv.value, rel=1e-10)
     assert a.best_cv.value == pytest.approx(b.best_cv.value, rel=1e-10)

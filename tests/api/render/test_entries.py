@@ -1,17 +1,32 @@
-"""Contract form of a ranking entry's parts (service/api/render/entries.py): the score block,
-its parts in the documented order, and the conditions once compared."""
+"""Contract form of a ranking entry (service/api/render/entries.py): the entry in the
+documented order, its fit block and inference (against statsmodels on the engel data), the
+score parts and the estimates."""
+
+from dataclasses import replace
 
 import numpy as np
 import pytest
+import statsmodels.api as sm
 from scipy import stats
 from service.api.encode import to_jsonable
 from service.api.render import contract
 from service.core import transforms as tr
 from service.core.cvresult import CVResult
+from service.core.data import prepare
+from service.core.likelihood import estimate_lambda
 from service.core.spec import PredictorSpec, Specification
-from service.selection.entries import ConditionCount, Score, ScoreParts, Simplicity
+from service.selection.diagnose import diagnose_specification
+from service.selection.entries import (
+    ConditionCount,
+    Estimates,
+    Inference,
+    LadderReading,
+    Score,
+    ScoreParts,
+    Simplicity,
+)
 from service.selection.search import IN_BAND_RULE, OUT_OF_BAND_RULE, rank
-from service.selection.search_setup import Scored
+from service.selection.search_setup import Scored, SearchOptions
 
 RANKED_KEYS = [
     "cv_value",
@@ -97,3 +112,110 @@ def test_a_single_specifications_score_has_no_distance_from_a_best():
         "conditions_failed",
     ]
     assert out["parts"]["conditions_failed"] == []
+
+
+ENTRY_KEYS = [
+    "specification",
+    "equation",
+    "cv",
+    "fit",
+    "coefficients",
+    "score",
+    "model",
+    "warnings",
+    "conditions",
+    "transform_hints",
+    "inference",
+    "interpretation",
+]
+
+
+@pytest.fixture(scope="module")
+def engel_entry():
+    d = sm.datasets.engel.load_pandas().data  # source: statsmodels.datasets.engel
+    prep = prepare(
+        {"columns": {"foodexp": d.foodexp.tolist(), "income": d.income.tolist()}},
+        "foodexp",
+        ["income"],
+    )
+    spec = {
+        "response": {"column": "foodexp", "transform": {"name": "log"}},
+        "predictors": [{"column": "income", "transform": {"name": "log"}}],
+    }
+    entry, _ = diagnose_specification(prep, spec, SearchOptions(), "test")
+    return entry, d
+
+
+def test_an_entry_renders_in_the_documented_order_with_statsmodels_numbers(engel_entry):
+    entry, d = engel_entry
+    out = to_jsonable(entry)
+    assert list(out) == ENTRY_KEYS  # diagnosed alone: no rank, nothing estimated
+    y = d.foodexp.to_numpy()
+    ref = sm.OLS(np.log(y), sm.add_constant(np.log(d.income.to_numpy()))).fit()
+    fit = out["fit"]
+    # source: statsmodels OLS on log(foodexp) ~ log(income); the log-likelihood of y adds
+    # the Jacobian of the log, -sum(log y); AIC/BIC count two coefficients and sigma
+    llf_y = ref.llf - np.sum(np.log(y))
+    assert fit["n"] == 235 and fit["df_residual"] == ref.df_resid
+    assert fit["r_squared"] == pytest.approx(ref.rsquared, rel=1e-9)
+    assert fit["adj_r_squared"] == pytest.approx(ref.rsquared_adj, rel=1e-9)
+    assert fit["log_likelihood_original_scale"] == pytest.approx(llf_y, rel=1e-9)
+    assert fit["aic_original_scale"] == pytest.approx(-2 * llf_y + 2 * 3, rel=1e-9)
+    assert fit["bic_original_scale"] == pytest.approx(-2 * llf_y + 3 * np.log(235), rel=1e-9)
+    assert fit["parameters_counted"] == 3 and fit["r_squared_scale"] == "model"
+    assert fit["residual_sd"] == pytest.approx(np.sqrt(ref.scale), rel=1e-9)
+    # source: CHECKS_PUBLIC engel log-log, Breusch-Pagan Koenker p 1.769e-4: equal variance
+    # fails, so the readings use HC3 standard errors (statsmodels cov_type HC3)
+    inference = out["inference"]
+    assert inference["standard_errors"] == "hc3" and "hac_lags" not in inference
+    assert list(inference)[-2:] == ["prediction_intervals", "prediction_interval_reason"]
+    hc3 = ref.get_robustcov_results(cov_type="HC3")
+    assert out["coefficients"][1]["std_error_hc3"] == pytest.approx(hc3.bse[1], rel=1e-9)
+    assert "equal_variance" in out["score"]["parts"]["conditions_failed"]
+    assert out["specification"]["response"]["transform"] == {"name": "log"}
+    ranked = to_jsonable(replace(entry, rank=2))
+    assert list(ranked) == ["rank", *ENTRY_KEYS] and ranked["rank"] == 2
+
+
+def test_inference_with_an_order_names_its_lags_and_their_rule():
+    out = contract(Inference("hac", "why", "src", 4).with_intervals("normal", "because"))
+    assert list(out) == [
+        "standard_errors",
+        "reason",
+        "source",
+        "hac_lags",
+        "hac_lag_rule",
+        "prediction_intervals",
+        "prediction_interval_reason",
+    ]
+    # common practice: floor(4 (n/100)^(2/9)) lags
+    assert out["hac_lags"] == 4 and "common practice" in out["hac_lag_rule"]
+
+
+def test_estimates_render_the_lambda_its_folds_and_the_ladder_readings():
+    rng = np.random.default_rng(4)
+    y = rng.lognormal(2.0, 0.4, 200)
+    lam = estimate_lambda("box_cox", y, np.ones((y.size, 1)))
+    # source: scipy.stats.boxcox, the maximum-likelihood lambda of y alone
+    assert lam.lam == pytest.approx(stats.boxcox(y)[1], abs=1e-4)
+    reading = LadderReading(
+        "predictor_power", {"power": 0.04, "ladder": 0.0}, "log(x)", 3.5, column="x"
+    )
+    est = Estimates(lam, (0.1, 0.2), {"x": [{"power": 0.04}]}, (reading,))
+    out = to_jsonable(est)
+    assert list(out) == ["response_lambda", "predictor_powers", "read_as_ladder"]
+    assert out["response_lambda"]["lambda"] == lam.lam
+    assert list(out["response_lambda"])[-1] == "per_fold"
+    assert out["response_lambda"]["per_fold"] == [0.1, 0.2]
+    assert out["read_as_ladder"] == [
+        {
+            "parameter": "predictor_power",
+            "column": "x",
+            "power": 0.04,
+            "ladder": 0.0,
+            "read_as": "log(x)",
+            "cv_value_estimated": 3.5,
+        }
+    ]
+    # no folds estimated the lambda: no per_fold list
+    assert "per_fold" not in to_jsonable(Estimates(lam))["response_lambda"]
