@@ -45,7 +45,7 @@ def selection_report(req: SelectionRequest, stop: Stop | None = None) -> str:
     # does not carry them.  Every check already passed in the selection above.
     table, opts = job.table, job.search
     prep = table.prepare()
-    plots = report_plots(body, prep, opts.alpha, opts.seed, deadline=opts.deadline)
+    plots = report_plots(result, prep, opts.alpha, opts.seed, deadline=opts.deadline)
     context = {
         "response": table.response,
         "predictors": list(table.predictors),

@@ -7,6 +7,7 @@ so a figure in the report is the figure that endpoint draws for the same specifi
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 from ..core.condition_rules import condition_inputs
@@ -16,7 +17,7 @@ from ..core.fitting import OLSFit
 from ..core.plots import DiagnosticPlots, diagnostic_plots
 from ..core.spec import Design, Specification
 from .deadline import Deadline
-from .entries import fitted_model
+from .entries import EntryReport, fitted_model
 
 #: ranked specifications shown in detail (figures, coefficients, interpretation)
 DETAIL_TOP = 3
@@ -31,7 +32,7 @@ ReportPlots = dict[tuple[str | None, int], "DiagnosticPlots | str"]
 
 
 def report_plots(
-    body: dict[str, Any],
+    body: Mapping[str, Any],
     prep: Prepared,
     alpha: float,
     seed: int,
@@ -40,8 +41,10 @@ def report_plots(
 ) -> ReportPlots:
     """Plot data of the specifications shown in detail, keyed by ``(group, rank)``.
 
-    ``body`` is a selection response; ``prep`` the :class:`~service.core.data.Prepared`
-    rows it was computed from.  Without groups the first :data:`DETAIL_TOP` ranks are
+    ``body`` is a selection body as :func:`.request.run_selection` returns it (its ranking
+    entries typed :class:`.entries.EntryReport`; a group that could not be modelled has
+    no ranking); ``prep`` the :class:`~service.core.data.Prepared` rows it was computed
+    from.  Without groups the first :data:`DETAIL_TOP` ranks are
     drawn (group ``None``); with groups, rank 1 of the first :data:`GROUP_DETAIL_LIMIT`
     groups that have a ranking.  A value is the :class:`DiagnosticPlots` or, when the
     specification cannot be refitted, the reason as a string.  Past the request's
@@ -55,17 +58,19 @@ def report_plots(
             if shown >= GROUP_DETAIL_LIMIT:
                 break
             sub = parts.get(name)
-            if not gbody.get("ranking") or sub is None or isinstance(sub, Exception):
+            ranking = gbody.get("ranking") if isinstance(gbody, Mapping) else None
+            if not ranking or sub is None or isinstance(sub, Exception):
                 continue
             out[(name, 1)] = (
                 _out_of_time(deadline)
                 if shown and _passed(deadline)
-                else _plots_for(gbody["ranking"][0], sub, alpha, seed, max_points)
+                else _plots_for(ranking[0], sub, alpha, seed, max_points)
             )
             shown += 1
         return out
     for i, entry in enumerate(body.get("ranking", [])[:DETAIL_TOP]):
-        out[(None, entry["rank"])] = (
+        assert entry.rank is not None  # a listed entry
+        out[(None, entry.rank)] = (
             _out_of_time(deadline)
             if i and _passed(deadline)
             else _plots_for(entry, prep, alpha, seed, max_points)
@@ -104,10 +109,9 @@ def fit_plots(
 
 
 def _plots_for(
-    entry: dict[str, Any], prep: Prepared, alpha: float, seed: int, max_points: int
+    entry: EntryReport, prep: Prepared, alpha: float, seed: int, max_points: int
 ) -> DiagnosticPlots | str:
     try:
-        spec = Specification.from_dict(entry["specification"])
-        return specification_plots(spec, prep, alpha, seed, max_points)
+        return specification_plots(entry.specification, prep, alpha, seed, max_points)
     except CandidateFailure as exc:
         return f"the specification could not be refitted for plotting: {exc.reason}"

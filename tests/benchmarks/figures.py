@@ -82,16 +82,14 @@ def _demo_plots():
     prep = prepare(
         req["data"], req["response"], req["predictors"], req.get("categorical", []), None
     )
-    from service.api.encode import to_jsonable
     from service.selection.search import run_selection
     from service.selection.search_setup import SearchOptions
 
     opts = SearchOptions(time_limit_s=600.0)
-    body = to_jsonable(run_selection(prep, opts, "bench"))
-    entry = body["ranking"][0]
-    spec = Specification.from_dict(entry["specification"])
-    plots = specification_plots(spec, prep, 0.05, 0, 2000)
-    return body, prep, plots, entry["equation"]
+    selection = run_selection(prep, opts, "bench")  # its ranking entries typed
+    entry = selection["ranking"][0]
+    plots = specification_plots(entry.specification, prep, 0.05, 0, 2000)
+    return selection, prep, plots, entry.equation
 
 
 def _large_plots(max_points: int):
