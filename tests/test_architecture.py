@@ -430,6 +430,7 @@ MORE_CONTRACT_NAMES = frozenset(
         "conditions_note",
         "hac_lags",
         "hac_lag_rule",
+        "response_lambda",
         "share",
         "runner_up",
         "selected_cv",
