@@ -139,16 +139,17 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dic
                     str(exc)[:2000],
                 )
             }
-    body = select_group(GroupTask(sub, opts, service_version))
-    if isinstance(body, GroupFailure):
-        body = group_problem(body)
+    selected = select_group(GroupTask(sub, opts, service_version))
+    if isinstance(selected, GroupFailure):
+        body = group_problem(selected)
     else:
-        body = finish_body(body, opts, service())
+        # in contract form: the summary reads it as the files hold it
+        body = _jsonable(finish_body(selected, opts, service()))
     if incumbent_model is not None and not isinstance(sub, GroupFailure):
         from .core.drift import compare
 
         body["drift"] = compare(incumbent_model, sub)
-    return _jsonable(body)  # in contract form: the summary reads it as the files hold it
+    return _jsonable(body)
 
 
 def unexpected_problem(exc: BaseException) -> dict:

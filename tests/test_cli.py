@@ -400,4 +400,4 @@ def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeyp
 
     job = api_options.selection_job(req)
     body = with_group_problems(run_selection(job, api_options.service()))
-    assert all(g["problem"]["status"] == 503 for g in body["groups"].values())
+    assert all(g["problem"]["status"] == 503 for g in body.groups.values())

@@ -70,7 +70,7 @@ def test_demo_rank_1_survives_single_row_drops():
         prep = prepare(
             {"columns": sub}, "repair_cost", ["pipe_length_m", "pipe_age_years", "soil"], ["soil"]
         )
-        spec = run_selection(prep, SearchOptions(), "t")["ranking"][0].specification.to_dict()
+        spec = run_selection(prep, SearchOptions(), "t").ranking[0].specification.to_dict()
         assert spec["response"]["transform"] == {"name": "log"}
         assert [p["transform"]["name"] for p in spec["predictors"]] == [
             "log",

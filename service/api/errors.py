@@ -117,10 +117,10 @@ def group_problem(failure: GroupFailure, endpoint: str = SELECTIONS) -> dict:
     return {"problem": record_problem(failure.record, endpoint)}
 
 
-def with_group_problems(body: dict) -> dict:
+def with_group_problems(body: Any) -> Any:
     """A selections ``body`` with every group that could not be modelled (a
     :class:`GroupFailure`) written as its problem entry."""
-    groups = body.get("groups")
+    groups = body.get("groups") if isinstance(body, dict) else getattr(body, "groups", None)
     if isinstance(groups, dict):
         for name, gbody in groups.items():
             if isinstance(gbody, GroupFailure):

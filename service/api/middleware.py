@@ -82,7 +82,10 @@ def note_result(body: dict) -> None:
     selection, diagnostics or predictions; typed parts read in their contract form) for
     the access log and the metrics."""
     if not isinstance(body, dict):
-        return
+        if not hasattr(body, "search"):
+            return
+        # a typed selection body: its parts as the dict reads below take them
+        body = {"data": body.data, "search": body.search, "groups": getattr(body, "groups", None)}
     data = to_jsonable(body.get("data"))
     data = data if isinstance(data, dict) else {}
     rows = data.get("rows_used")
@@ -94,7 +97,9 @@ def note_result(body: dict) -> None:
     if candidates is None and isinstance(body.get("groups"), dict):
         candidates = 0
         for g in body["groups"].values():
-            part = to_jsonable(g.get("search")) if isinstance(g, dict) else None
+            part = to_jsonable(
+                g.get("search") if isinstance(g, dict) else getattr(g, "search", None)
+            )
             candidates += int((part or {}).get("candidates_scored") or 0)
     note(rows=rows, candidates=candidates)
 

@@ -12,11 +12,12 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass, replace
 from typing import Any
 
-from ..core.data import Prepared, split_groups
+from ..core.data import DataSummary, Prepared, split_groups
 from ..core.errors import BestscaleError, BudgetError, ErrorRecord
 from ..core.numbers import count_of
 from .deadline import Deadline
-from .search import select
+from .entries import EntryReport
+from .search import SelectionReport, select
 from .search_setup import SearchOptions
 from .trust import assess_trust
 
@@ -55,9 +56,9 @@ def run_grouped(
     prep: Prepared,
     opts: SearchOptions,
     service_version: str,
-    finish: Callable[[dict[str, Any]], dict[str, Any]] | None = None,
+    finish: Callable[[SelectionReport], SelectionReport] | None = None,
     mapper: Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]] = map,
-) -> dict[str, Any]:
+) -> GroupedReport:
     """One selection per value of the group column.
 
     ``finish(body)`` completes each group's body (cautions etc.); ``mapper`` may be a
@@ -85,23 +86,35 @@ def run_grouped(
         failed,
         round(time.perf_counter() - t0, 4),
         all(not f.record.over_budget for f in failures)
-        and all(b["search"].complete for b in searched),
+        and all(b.search.complete for b in searched),
     )
-    return {
-        "data": prep.data_summary(),
-        "search": summary,
-        "ranking": [],
-        "groups": dict(zip(names, bodies, strict=True)),
-        "warnings": [
-            f"One selection per value of the group column ({len(names)} groups); each "
-            "group's ranking is under 'groups'."
-        ]
-        + (
-            [f"{count_of(failed, 'group')} could not be modelled; see their 'problem'."]
-            if failed
-            else []
-        ),
-    }
+    warnings = [
+        f"One selection per value of the group column ({len(names)} groups); each "
+        "group's ranking is under 'groups'."
+    ]
+    if failed:
+        warnings.append(f"{count_of(failed, 'group')} could not be modelled; see their 'problem'.")
+    groups: dict[str, SelectionReport | GroupFailure | dict[str, Any]] = dict(
+        zip(names, bodies, strict=True)
+    )
+    return GroupedReport(prep.data_summary(), summary, groups, tuple(warnings))
+
+
+@dataclass(frozen=True)
+class GroupedReport:
+    """The body of a grouped selection: the rows used (``data``), the grouped search's
+    summary, each group's selection body (or :class:`GroupFailure`; a caller may put its
+    problem object in its place) by group value, the warnings and, once finished, the
+    service version and the cautions.  Its own ranking is empty: each group has one."""
+
+    data: DataSummary
+    search: GroupsSummary
+    groups: dict[str, SelectionReport | GroupFailure | dict[str, Any]]
+    warnings: tuple[str, ...]
+    service_version: str | None = None
+    cautions: tuple[str, ...] | None = None
+
+    ranking: tuple[EntryReport, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -131,7 +144,7 @@ class GroupTask:
     deadline: Deadline | None = None
 
 
-def select_group(task: GroupTask) -> dict[str, Any] | GroupFailure:
+def select_group(task: GroupTask) -> SelectionReport | GroupFailure:
     """Worker for one group of :func:`run_grouped`: the group's selection body without
     private keys, or a :class:`GroupFailure` for an error the core raised on purpose.
     Module-level, and its task is a frozen dataclass, so both pickle."""
@@ -158,7 +171,7 @@ def select_group(task: GroupTask) -> dict[str, Any] | GroupFailure:
         if trust is not None and (trust.stability or trust.optimism):
             stability, optimism = trust.stability, trust.optimism
             resamples, outer_folds = trust.resamples, trust.outer_folds
-            body["trust"] = assess_trust(
+            measured = assess_trust(
                 sub,
                 opts,
                 result.winner.spec,
@@ -169,6 +182,7 @@ def select_group(task: GroupTask) -> dict[str, Any] | GroupFailure:
                 selection=result,
                 outer_folds=outer_folds,
             )
+            body = replace(body, trust=measured)
     except BestscaleError as exc:
         return GroupFailure(ErrorRecord.of(exc))
     return body

@@ -7,9 +7,6 @@ so a figure in the report is the figure that endpoint draws for the same specifi
 
 from __future__ import annotations
 
-from collections.abc import Mapping
-from typing import Any
-
 from ..core.condition_rules import condition_inputs
 from ..core.data import Prepared, split_groups
 from ..core.errors import CandidateFailure
@@ -18,6 +15,8 @@ from ..core.plots import DiagnosticPlots, diagnostic_plots
 from ..core.spec import Design, Specification
 from .deadline import Deadline
 from .entries import EntryReport, fitted_model
+from .groups import GroupedReport
+from .search import SelectionReport
 
 #: ranked specifications shown in detail (figures, coefficients, interpretation)
 DETAIL_TOP = 3
@@ -32,7 +31,7 @@ ReportPlots = dict[tuple[str | None, int], "DiagnosticPlots | str"]
 
 
 def report_plots(
-    body: Mapping[str, Any],
+    body: SelectionReport | GroupedReport,
     prep: Prepared,
     alpha: float,
     seed: int,
@@ -41,9 +40,8 @@ def report_plots(
 ) -> ReportPlots:
     """Plot data of the specifications shown in detail, keyed by ``(group, rank)``.
 
-    ``body`` is a selection body as :func:`.request.run_selection` returns it (its ranking
-    entries typed :class:`.entries.EntryReport`; a group that could not be modelled has
-    no ranking); ``prep`` the :class:`~service.core.data.Prepared` rows it was computed
+    ``body`` is a selection body as :func:`.request.run_selection` returns it (a group
+    that could not be modelled has no ranking); ``prep`` the :class:`~service.core.data.Prepared` rows it was computed
     from.  Without groups the first :data:`DETAIL_TOP` ranks are
     drawn (group ``None``); with groups, rank 1 of the first :data:`GROUP_DETAIL_LIMIT`
     groups that have a ranking.  A value is the :class:`DiagnosticPlots` or, when the
@@ -51,14 +49,14 @@ def report_plots(
     ``deadline`` only the first specification is drawn; the others carry the reason.
     """
     out: ReportPlots = {}
-    if body.get("groups"):
+    if isinstance(body, GroupedReport):
         parts = split_groups(prep)
         shown = 0
-        for name, gbody in body["groups"].items():
+        for name, gbody in body.groups.items():
             if shown >= GROUP_DETAIL_LIMIT:
                 break
             sub = parts.get(name)
-            ranking = gbody.get("ranking") if isinstance(gbody, Mapping) else None
+            ranking = gbody.ranking if isinstance(gbody, SelectionReport) else ()
             if not ranking or sub is None or isinstance(sub, Exception):
                 continue
             out[(name, 1)] = (
@@ -68,7 +66,7 @@ def report_plots(
             )
             shown += 1
         return out
-    for i, entry in enumerate(body.get("ranking", [])[:DETAIL_TOP]):
+    for i, entry in enumerate(body.ranking[:DETAIL_TOP]):
         assert entry.rank is not None  # a listed entry
         out[(None, entry.rank)] = (
             _out_of_time(deadline)

@@ -14,15 +14,18 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field, replace
-from typing import Any, Protocol
+from typing import Any, Protocol, TypeVar
 
 from ..core.data import Prepared, prepare
 from ..core.errors import InputError, Option
 from ..core.model import sign
 from .cautions import selection_cautions
-from .groups import run_grouped
-from .search import select
+from .groups import GroupedReport, run_grouped
+from .search import SelectionReport, select
 from .search_setup import SearchOptions
+
+#: a finished selection body: one table's, or one per group
+Body = TypeVar("Body", SelectionReport, GroupedReport)
 
 #: ``mapper(fn, items)``: the results of ``fn`` over ``items``, in order
 Mapper = Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]]
@@ -115,7 +118,7 @@ def run_selection(
     progress: Progress | None = None,
     group_mapper: Mapper | None = None,
     per_group_time_limit: bool = False,
-) -> dict[str, Any]:
+) -> SelectionReport | GroupedReport:
     """The selection body of ``job``.  ``group_mapper(fn, items)``, when given, runs the
     groups of a ``group_by`` request (the command line's Dask cluster), in order.  Every part
     of the work asks ``job.search.clock()``: the request's one deadline when it has one;
@@ -138,20 +141,20 @@ def run_selection(
         if per_group_time_limit:
             opts = replace(opts, deadline=None)
         grouped = opts
-        body = run_grouped(
+        per_group = run_grouped(
             prep,
             grouped,
             service.version,
             finish=lambda b: finish_body(b, grouped, service),
             mapper=mapper,
         )
-        return finish_body(body, grouped, service)
+        return finish_body(per_group, grouped, service)
     result = select(prep, opts, service.version)
     body = result.body
     if job.trust.wanted:
         from .trust import assess_trust
 
-        body["trust"] = assess_trust(
+        trust = assess_trust(
             prep,
             opts,
             result.winner.spec,
@@ -161,6 +164,7 @@ def run_selection(
             job.trust.resamples,
             selection=result,
         )
+        body = replace(body, trust=trust)
     return finish_body(body, opts, service)
 
 
@@ -201,15 +205,12 @@ def _group_mapper(
     return map
 
 
-def finish_body(body: dict[str, Any], opts: SearchOptions, service: Service) -> dict[str, Any]:
-    """``body`` with its model artifacts signed, the service version first and the cautions
-    that apply last."""
-    ranking = body.get("ranking", [])
+def finish_body(body: Body, opts: SearchOptions, service: Service) -> Body:
+    """``body`` with its model artifacts signed, the service version and the cautions that
+    apply."""
+    ranking = body.ranking
     any_tr = any(not e.specification.response_transform.is_identity for e in ranking)
     for e in ranking:
         sign(e.model, service.model_keys)
-    return {
-        "service_version": service.version,
-        **body,
-        "cautions": selection_cautions(opts.metric, any_tr),
-    }
+    cautions = tuple(selection_cautions(opts.metric, any_tr))
+    return replace(body, service_version=service.version, cautions=cautions)

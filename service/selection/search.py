@@ -29,7 +29,7 @@ from ..core.condition_rules import failed, failed_for_ranking, ordering_conditio
 from ..core.conditions import CONDITION_NAMES, ConditionReport
 from ..core.cvplus import NOT_KEPT
 from ..core.cvresult import CVResult, Dynamic, OutOfFold, std_error_of
-from ..core.data import Prepared
+from ..core.data import DataSummary, Prepared
 from ..core.errors import (
     BudgetError,
     CandidateFailure,
@@ -373,13 +373,30 @@ class SearchSummary:
 
 
 @dataclass(frozen=True)
+class SelectionReport:
+    """The selection body of the contract: the rows used (``data``), the search summary,
+    the ranking entries, the incumbent decision (when one was sent), the warnings, the
+    trust measures (when asked for) and, once :func:`.request.finish_body` finished it,
+    the service version and the cautions."""
+
+    data: DataSummary
+    search: SearchSummary
+    ranking: tuple[EntryReport, ...]
+    warnings: tuple[str, ...]
+    incumbent: incumbent.IncumbentDecision | None = None
+    trust: Any = None  # a trust.Trust (which imports this module) when measured
+    service_version: str | None = None
+    cautions: tuple[str, ...] | None = None
+
+
+@dataclass(frozen=True)
 class Selection:
-    """One search's result: the contract's selection ``body`` (without service_version),
+    """One search's result: the contract's selection ``body`` (unfinished: no version,
     the distinct-scale candidates it ranked (``scored``; trust re-ranks them), its fold
     ``plan``, the candidate listed at rank 1 (``winner``, one of ``scored``) and whether
     every candidate of the space was scored (``complete``)."""
 
-    body: dict[str, Any]
+    body: SelectionReport
     scored: list[Scored]
     plan: CVPlan
     winner: Scored
@@ -390,7 +407,7 @@ def run_selection(
     prep: Prepared,
     opts: SearchOptions,
     service_version: str,
-) -> dict[str, Any]:
+) -> SelectionReport:
     """Search, score and rank; returns the contract's selection body (without service_version)."""
     return select(prep, opts, service_version).body
 
@@ -594,10 +611,9 @@ def select(
             f"The search stopped early ({len(scored) + n_fail} of {total} candidates "
             "scored within the limits); the ranking is the best found so far."
         )
-    body: dict[str, Any] = {"data": prep.data_summary(), "search": search, "ranking": entries}
-    if incumbent_block is not None:
-        body["incumbent"] = incumbent_block
-    body["warnings"] = warnings
+    body = SelectionReport(
+        prep.data_summary(), search, tuple(entries), tuple(warnings), incumbent_block
+    )
     assert winner is not None  # listed with entries[0]
     return Selection(body, listable, plan, winner, complete)
 

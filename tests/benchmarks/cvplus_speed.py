@@ -43,7 +43,7 @@ def model_for(response: dict, n: int, folds: int):
     }
     opts = SearchOptions(folds=folds)
     entry, _ = diagnose_specification(prep, spec, opts, "bench", max_points=10)
-    return load_model(entry["model"])
+    return load_model(entry.model)
 
 
 def main() -> None:

@@ -127,7 +127,7 @@ def pi_coverage(
             assert entry["model"]["cv_plus"]["fold_powers"]["columns"] == ["x"]
         else:
             entry, _ = diagnose_specification(prep, spec, SearchOptions(), "bench", max_points=10)
-        model = load_model(entry["model"])
+        model = load_model(entry["model"] if isinstance(entry, dict) else entry.model)
         x0, y0 = pi_data(case, rng, fresh)
         for method in ("normal", "cv_plus"):
             p = contract(predict(model, {"columns": {"x": x0.tolist()}}, level, method))[

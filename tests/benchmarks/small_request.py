@@ -38,7 +38,7 @@ pin_blas(1)
 
 import numpy as np
 import orjson
-from service.api import encode
+from service.api import encode, render
 from service.api.options import selection_job
 from service.api.schemas import SelectionRequest
 from service.core import _smear_tree as st
@@ -68,7 +68,9 @@ def item_walk(obj):
         if not math.isfinite(f):
             raise ValueError("non-finite number in a response body")
         return f
-    return encode.to_jsonable(obj)  # typed results: rendered as the service does
+    if render.renders(obj):  # typed results: their contract form, walked the same way
+        return item_walk(render.contract(obj))
+    return encode.to_jsonable(obj)
 
 
 class Before:

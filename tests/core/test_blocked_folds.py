@@ -44,13 +44,13 @@ def test_every_candidate_is_scored_on_the_blocked_folds():
         )
         # re-scoring on an independently built blocked plan reproduces every candidate's CV
         np.testing.assert_allclose(s.cv.fold_values, fresh.fold_values, rtol=1e-12)
-    assert all(e.cv.scheme == "blocked" for e in out["ranking"])
+    assert all(e.cv.scheme == "blocked" for e in out.ranking)
     random = run_selection(
         prep,
         SearchOptions(folds=4, response_transforms=["identity"], predictor_transforms=["identity"]),
         "test",
     )
-    assert random["ranking"][0].cv.scheme == "random"
+    assert random.ranking[0].cv.scheme == "random"
 
 
 @pytest.fixture(scope="module")

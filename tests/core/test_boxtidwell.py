@@ -129,7 +129,7 @@ def test_power_is_estimated_again_in_every_training_fold():
     full = bt.estimate_powers(y, np.ones((n, 1)), x).powers[0]
     assert s.spec.predictors[0].transform.exponent == pytest.approx(full, abs=1e-9)
     assert len({round(a[0], 8) for a in s.cv.fold_powers}) > 1
-    (column, (rep, *_)), *_ = out.body["search"].predictor_powers
+    (column, (rep, *_)), *_ = out.body.search.predictor_powers
     assert column == "x" and rep.summary["power"] == pytest.approx(
         -0.3, abs=0.05
     )  # source: simulation truth

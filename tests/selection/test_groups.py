@@ -159,7 +159,7 @@ def test_groups_in_worker_processes_equal_the_in_process_run():
     opts = SearchOptions(
         response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=2
     )
-    in_process = with_group_problems(run_grouped(prep, opts, "test"))["groups"]
+    in_process = with_group_problems(run_grouped(prep, opts, "test")).groups
     parts = group_parts(prep)
     tasks = [GroupTask(p, opts, "test") for p in parts.values()]
     pooled = dict(zip(parts, map_in_processes(select_group, tasks, processes=2), strict=True))
@@ -176,12 +176,12 @@ def test_a_group_worker_can_assess_trust_for_its_group():
     )
     north = split_groups(prep)["north"]
     body = select_group(GroupTask(north, opts, "test", trust=GroupTrust(True, False, 10)))
-    trust = body["trust"]
+    trust = body.trust
     assert trust.stability.usable == 10 and trust.optimism is None
     # source: the simulation's construction: log-log is clearly right in this district
     assert trust.stability.share >= 0.8
     assert to_jsonable(trust)["resamples"] == 10
-    assert "_scored" not in body and isinstance(body["ranking"][0], EntryReport)
+    assert isinstance(body.ranking[0], EntryReport)
 
 
 def test_a_group_reached_after_the_deadline_gets_a_503_problem():
@@ -201,4 +201,4 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
     assert "time limit of 60 s" in record.detail  # the caller's number, not what was left
     assert record_problem(record)["status"] == 503
     on_time = select_group(GroupTask(north, opts, "test", deadline=Deadline.after(600.0)))
-    assert on_time["ranking"][0].rank == 1
+    assert on_time.ranking[0].rank == 1

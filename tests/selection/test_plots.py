@@ -17,7 +17,9 @@ from service.core.data import prepare
 from service.core.plots import DiagnosticPlots
 from service.core.spec import Specification
 from service.selection.deadline import Deadline
+from service.selection.groups import GroupedReport
 from service.selection.plots import DETAIL_TOP, report_plots
+from service.selection.search import SelectionReport
 
 
 def _spec(rt, pt):
@@ -30,6 +32,15 @@ def _spec(rt, pt):
 def _listed(rank: int, rt: str, pt: str) -> SimpleNamespace:
     """A ranking entry as report_plots reads it: its rank and specification."""
     return SimpleNamespace(rank=rank, specification=Specification.from_dict(_spec(rt, pt)))
+
+
+def _body(entries) -> SelectionReport:
+    """A selection body holding only what report_plots reads: its ranking."""
+    return SelectionReport(None, None, tuple(entries), ())
+
+
+def _grouped(groups) -> GroupedReport:
+    return GroupedReport(None, None, groups, ())
 
 
 @pytest.fixture(scope="module")
@@ -48,7 +59,7 @@ def test_the_top_entries_get_the_residuals_of_their_own_fit(case):
     cols, x, y, _ = case
     prep = prepare({"columns": cols}, "y", ["x"])
     scales = [("log", "log"), ("identity", "identity"), ("sqrt", "log"), ("log", "identity")]
-    body = {"ranking": [_listed(i + 1, *s) for i, s in enumerate(scales)]}
+    body = _body([_listed(i + 1, *s) for i, s in enumerate(scales)])
     out = report_plots(body, prep, 0.05, seed=0)
     assert sorted(out) == [(None, r) for r in range(1, DETAIL_TOP + 1)]
     fwd = {"log": np.log, "identity": lambda v: v, "sqrt": np.sqrt}
@@ -66,20 +77,20 @@ def test_a_specification_that_cannot_be_refitted_gives_its_reason(case):
     cols, *_ = case
     cols = dict(cols, x=[-1.0, *cols["x"][1:]])  # log(x) no longer applies to row 0
     prep = prepare({"columns": cols}, "y", ["x"])
-    out = report_plots({"ranking": [_listed(1, "log", "log")]}, prep, 0.05, 0)
+    out = report_plots(_body([_listed(1, "log", "log")]), prep, 0.05, 0)
     assert isinstance(out[(None, 1)], str) and "could not be refitted" in out[(None, 1)]
 
 
 def test_groups_show_rank_one_of_each_group_with_a_ranking(case):
     cols, x, y, pier = case
     prep = prepare({"columns": cols}, "y", ["x"], group_by="pier")
-    body = {
-        "groups": {
-            "north": {"ranking": [_listed(1, "log", "log")]},
-            "south": {"ranking": []},  # a group without a ranking is skipped
-            "west": {"ranking": [_listed(1, "identity", "identity")]},
+    body = _grouped(
+        {
+            "north": _body([_listed(1, "log", "log")]),
+            "south": _body([]),  # a group without a ranking is skipped
+            "west": _body([_listed(1, "identity", "identity")]),
         }
-    }
+    )
     out = report_plots(body, prep, 0.05, seed=1)
     assert sorted(out) == [("north", 1), ("west", 1)]
     west = pier == "west"
@@ -97,7 +108,7 @@ def test_past_the_deadline_only_the_first_figure_is_drawn(case):
     cols, *_ = case
     prep = prepare({"columns": cols}, "y", ["x"])
     scales = [("log", "log"), ("identity", "identity"), ("sqrt", "log")]
-    body = {"ranking": [_listed(i + 1, *s) for i, s in enumerate(scales)]}
+    body = _body([_listed(i + 1, *s) for i, s in enumerate(scales)])
     gone = Deadline(time.monotonic() - 1.0, 5.0)
     out = report_plots(body, prep, 0.05, seed=0, deadline=gone)
     assert isinstance(out[(None, 1)], DiagnosticPlots)
@@ -107,9 +118,7 @@ def test_past_the_deadline_only_the_first_figure_is_drawn(case):
         body, prep, 0.05, seed=0
     )
     grouped = prepare({"columns": cols}, "y", ["x"], group_by="pier")
-    gbody = {
-        "groups": {p: {"ranking": [_listed(1, "log", "log")]} for p in ("north", "south", "west")}
-    }
+    gbody = _grouped({p: _body([_listed(1, "log", "log")]) for p in ("north", "south", "west")})
     gout = report_plots(gbody, grouped, 0.05, seed=0, deadline=gone)
     assert isinstance(gout[("north", 1)], DiagnosticPlots)
     assert all(isinstance(gout[(p, 1)], str) for p in ("south", "west"))

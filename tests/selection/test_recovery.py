@@ -27,7 +27,7 @@ def _select(columns: dict, response: str, predictors: list[str], **opts) -> dict
 
 
 def _top(out: dict) -> tuple[dict, list[dict]]:
-    spec = out["ranking"][0].specification.to_dict()
+    spec = out.ranking[0].specification.to_dict()
     return spec["response"]["transform"], [p["transform"] for p in spec["predictors"]]
 
 
@@ -53,7 +53,7 @@ def test_multiplicative_errors_pick_a_log_response(seed):
     out = _select({"y": y, "x": x}, "y", ["x"])
     resp, preds = _top(out)
     X = np.column_stack([np.ones(n), x])
-    assert _is_log_scale(resp, y, X), out["ranking"][0].specification.to_dict()
+    assert _is_log_scale(resp, y, X), out.ranking[0].specification.to_dict()
     assert preds[0]["name"] == "identity"
 
 
@@ -69,7 +69,7 @@ def test_power_law_picks_log_log(seed):
     out = _select({"y": y, "x": x}, "y", ["x"])
     resp, preds = _top(out)
     X = np.column_stack([np.ones(n), np.log(x)])
-    assert _is_log_scale(resp, y, X), out["ranking"][0].specification.to_dict()
+    assert _is_log_scale(resp, y, X), out.ranking[0].specification.to_dict()
     assert preds[0]["name"] == "log" and not preds[0].get("shift")
 
 
@@ -83,7 +83,7 @@ def test_additive_linear_relation_is_not_transformed(seed):
     y = 30.0 + 2.0 * x1 - 1.5 * x2 + rng.normal(0, 1.0, n)
     out = _select({"y": y, "x1": x1, "x2": x2}, "y", ["x1", "x2"])
     resp, preds = _top(out)
-    assert resp["name"] == "identity", out["ranking"][0].specification.to_dict()
+    assert resp["name"] == "identity", out.ranking[0].specification.to_dict()
     assert [p["name"] for p in preds] == ["identity", "identity"]
 
 
@@ -101,11 +101,11 @@ def test_cube_root_law_recovers_box_cox_one_third(seed):
     assert est.ci_low < 1.0 / 3.0 < est.ci_high
     assert est.ci_low > 0.0 and est.ci_high < 1.0  # excludes log and no transform
     out = _select({"v": v, "d": d, "h": h}, "v", ["d", "h"], predictor_transforms=["identity"])
-    info = out["search"].box_cox.estimate
+    info = out.search.box_cox.estimate
     # the search reports the same regression lambda on the untransformed design
     assert info.lam == pytest.approx(est.lam, abs=1e-4)
     assert info.ci_low < 1.0 / 3.0 < info.ci_high
-    assert out["ranking"][0].specification.to_dict()["response"]["transform"]["name"] != "identity"
+    assert out.ranking[0].specification.to_dict()["response"]["transform"]["name"] != "identity"
 
 
 def test_ranking_lists_each_specification_once():
@@ -114,7 +114,7 @@ def test_ranking_lists_each_specification_once():
     x = rng.uniform(0, 5, n)
     y = np.exp(1.0 + 0.8 * x + rng.normal(0, 0.25, n))  # Box-Cox interval holds 0: rung = log
     out = _select({"y": y, "x": x}, "y", ["x"], predictor_transforms=["identity", "log"], top=20)
-    specs = [repr(e.specification.to_dict()) for e in out["ranking"]]
+    specs = [repr(e.specification.to_dict()) for e in out.ranking]
     assert len(specs) == len(set(specs)), specs
 
 
@@ -146,9 +146,9 @@ def test_small_designed_experiments_let_the_simple_scale_win(kind):
     for seed in range(6):
         cols, expected = _factorial(seed, kind)
         out = _select(cols, "y", ["a", "b", "c"], seed=seed)
-        assert out["search"].considered <= 14
-        assert any("fewer than 50" in w for w in out["warnings"])
-        spec = out["ranking"][0].specification.to_dict()
+        assert out.search.considered <= 14
+        assert any("fewer than 50" in w for w in out.warnings)
+        spec = out.ranking[0].specification.to_dict()
         got = (
             spec["response"]["transform"]["name"],
             [p["transform"]["name"] for p in spec["predictors"]],

@@ -76,20 +76,20 @@ def test_the_ranking_is_the_search_s_own_with_version_and_cautions_added():
     body = run_selection(job, SERVICE)
     # source: search.select on the same rows and options (the use case only finishes it)
     alone = select(job.table.prepare(), job.search, "test-version").body
-    assert [e.specification for e in body["ranking"]] == [e.specification for e in alone["ranking"]]
-    assert [e.cv.value for e in body["ranking"]] == [e.cv.value for e in alone["ranking"]]
-    assert next(iter(body)) == "service_version" and body["service_version"] == "test-version"
-    assert body["cautions"] and list(body)[-1] == "cautions"
+    assert [e.specification for e in body.ranking] == [e.specification for e in alone.ranking]
+    assert [e.cv.value for e in body.ranking] == [e.cv.value for e in alone.ranking]
+    assert body.service_version == "test-version" and body.cautions
+    assert alone.service_version is None and alone.cautions is None
 
 
 def test_models_are_signed_with_the_service_s_key():
     key = b"k" * 32
     body = run_selection(_job(), Service("v", ("current", {"current": key})))
-    model = body["ranking"][0].model
+    model = body.ranking[0].model
     # source: RFC 2104 HMAC-SHA-256 computed with Python's hmac over key id, newline, body
     want = hmac.new(key, b"current\n" + canonical_bytes(model), hashlib.sha256).hexdigest()
     assert model["signature"] == {"algorithm": "HMAC-SHA-256", "key_id": "current", "value": want}
-    unsigned = run_selection(_job(), SERVICE)["ranking"][0].model["signature"]
+    unsigned = run_selection(_job(), SERVICE).ranking[0].model["signature"]
     assert unsigned["algorithm"] == "none"
 
 
@@ -115,8 +115,8 @@ def test_a_grouped_job_runs_every_group_and_counts_them_against_the_limit():
 
     body = run_selection(_job("depot"), SERVICE, progress=Bar())
     # source: the invented table has three depots
-    assert sorted(body["groups"]) == ["east", "north", "west"] and steps == [3, 3, 3]
-    assert all(g["service_version"] == "test-version" for g in body["groups"].values())
+    assert sorted(body.groups) == ["east", "north", "west"] and steps == [3, 3, 3]
+    assert all(g.service_version == "test-version" for g in body.groups.values())
     tight = dataclasses.replace(_job("depot"), max_groups=2)
     with pytest.raises(InputError) as exc:
         run_selection(tight, SERVICE)
@@ -132,7 +132,7 @@ def test_trust_is_refused_for_a_grouped_job():
 
 def test_trust_is_measured_on_one_table():
     job = dataclasses.replace(_job(), trust=TrustOptions(stability=True, resamples=3))
-    trust = run_selection(job, SERVICE)["trust"]
+    trust = run_selection(job, SERVICE).trust
     assert trust.stability.requested == trust.stability.usable == 3
     assert 0.0 <= trust.stability.share <= 1.0
 
@@ -140,11 +140,11 @@ def test_trust_is_measured_on_one_table():
 def test_a_past_deadline_fails_every_group_unless_each_group_has_its_own():
     expired = Deadline(time.monotonic() - 1.0, 5.0)
     job = _job("depot", deadline=expired, time_limit_s=5.0)
-    shared = run_selection(job, SERVICE)["groups"]
+    shared = run_selection(job, SERVICE).groups
     assert all(isinstance(g, GroupFailure) for g in shared.values())
     assert all(isinstance(g.record, ErrorRecord) for g in shared.values())
     assert all(g.record.over_budget for g in shared.values())  # the caller renders them
-    own = run_selection(job, SERVICE, per_group_time_limit=True)["groups"]
+    own = run_selection(job, SERVICE, per_group_time_limit=True).groups
     assert not any(isinstance(g, GroupFailure) for g in own.values())
 
 
@@ -162,8 +162,10 @@ def test_finish_body_adds_cautions_for_transformed_responses_only():
         spec = Specification("y", tr.Transform(name), (PredictorSpec("x", tr.Transform("log")),))
         return SimpleNamespace(specification=spec, model={})
 
-    ident = {"ranking": [listed("identity")]}
-    logged = {"ranking": [listed("log")]}
-    plain = finish_body(ident, SearchOptions(), SERVICE)["cautions"]
-    more = finish_body(logged, SearchOptions(), SERVICE)["cautions"]
+    job = _job()
+    body = select(job.table.prepare(), job.search, "test-version").body
+    ident = dataclasses.replace(body, ranking=(listed("identity"),))
+    logged = dataclasses.replace(body, ranking=(listed("log"),))
+    plain = finish_body(ident, SearchOptions(), SERVICE).cautions
+    more = finish_body(logged, SearchOptions(), SERVICE).cautions
     assert len(more) == len(plain) + 2 and not any("median" in c for c in plain)

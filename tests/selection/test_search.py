@@ -12,7 +12,7 @@ from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design
 from service.selection.deadline import Deadline
 from service.selection.entries import EntryReport, Simplicity
-from service.selection.search import places, rank, run_selection, select
+from service.selection.search import SelectionReport, places, rank, run_selection, select
 from service.selection.search_setup import Scored, SearchOptions
 
 
@@ -76,10 +76,10 @@ def test_places_carry_the_paired_standard_error_of_the_fold_differences():
 def test_select_names_its_rank_1_as_scored():
     result = select(_linear_prep(), SearchOptions(top=2), "test")
     assert result.winner in result.scored
-    listed = result.body["ranking"][0].specification
+    listed = result.body.ranking[0].specification
     assert listed.predictors[0].column == result.winner.spec.predictors[0].column
     assert listed.response_label() == result.winner.spec.response_label()
-    assert result.complete is result.body["search"].complete
+    assert result.complete is result.body.search.complete
 
 
 def test_outside_the_band_is_ordered_by_error():
@@ -99,9 +99,9 @@ def _linear_prep(n=120, seed=3):
 
 def test_max_candidates_stops_the_search_incomplete():
     out = run_selection(_linear_prep(), SearchOptions(max_candidates=3), "t")
-    assert out["search"].scored + out["search"].failed == 3
-    assert out["search"].complete is False
-    assert any("stopped early" in w for w in out["warnings"])
+    assert out.search.scored + out.search.failed == 3
+    assert out.search.complete is False
+    assert any("stopped early" in w for w in out.warnings)
 
 
 def test_time_limit_with_nothing_done_is_a_budget_error():
@@ -122,17 +122,17 @@ def test_failed_candidates_do_not_stop_the_search():
         ),
         "t",
     )
-    assert out["search"].scored >= 1
-    for f in out["search"].failures:
+    assert out.search.scored >= 1
+    for f in out.search.failures:
         assert f.reason
     # failures grouped by reason with counts that add up to the failed candidates
-    groups = out["search"].failure_reasons
-    if out["search"].failed:
-        assert sum(g.candidates for g in groups) == out["search"].failed
+    groups = out.search.failure_reasons
+    if out.search.failed:
+        assert sum(g.candidates for g in groups) == out.search.failed
         assert [g.candidates for g in groups] == sorted(
             (g.candidates for g in groups), reverse=True
         )
-        (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
+        (warning,) = [w for w in out.warnings if "could not be scored" in w]
         assert "(s)" not in warning and groups[0].reason in warning
 
 
@@ -152,14 +152,14 @@ def test_failures_are_grouped_by_reason_with_counts():
         ),
         "t",
     )
-    failed = out["search"].failed
-    groups = out["search"].failure_reasons
+    failed = out.search.failed
+    groups = out.search.failure_reasons
     assert failed > 0 and groups
     counts = [g.candidates for g in groups]
     assert counts == sorted(counts, reverse=True) and sum(counts) <= failed
     # reasons that differ only in fold and row counts are one group
     assert sum("back-transform of 1/y" in g.reason for g in groups) == 1
-    (warning,) = [w for w in out["warnings"] if "could not be scored" in w]
+    (warning,) = [w for w in out.warnings if "could not be scored" in w]
     assert warning.startswith(f"{failed} candidates could not be scored")
     assert f"{counts[0]} candidate" in warning and groups[0].reason in warning
     assert "(s)" not in warning
@@ -181,14 +181,14 @@ def test_explicit_inapplicable_transform_is_an_input_error():
 def test_same_request_gives_identical_numbers():
     a = run_selection(_linear_prep(), SearchOptions(), "t")
     b = run_selection(_linear_prep(), SearchOptions(), "t")
-    ka = [(e.equation, e.cv.value) for e in a["ranking"]]
-    kb = [(e.equation, e.cv.value) for e in b["ranking"]]
+    ka = [(e.equation, e.cv.value) for e in a.ranking]
+    kb = [(e.equation, e.cv.value) for e in b.ranking]
     assert ka == kb
 
 
 def test_linear_data_keep_the_identity_scale():
     out = run_selection(_linear_prep(n=400), SearchOptions(), "t")
-    spec = out["ranking"][0].specification.to_dict()
+    spec = out.ranking[0].specification.to_dict()
     assert spec["response"]["transform"]["name"] == "identity"
     assert spec["predictors"][0]["transform"]["name"] == "identity"
 
@@ -207,16 +207,16 @@ def test_grouped_selection_shares_one_time_budget():
     )
     shared = Deadline.after(1e-6)  # the request's one deadline, spent by the first group
     out = run_grouped(prep, SearchOptions(deadline=shared), "t")
-    assert out["search"].groups == 8
-    assert out["search"].complete is False
-    assert all(b.record.over_budget for b in out["groups"].values())  # rendered as 503
+    assert out.search.groups == 8
+    assert out.search.complete is False
+    assert all(b.record.over_budget for b in out.groups.values())  # rendered as 503
     # without a request deadline (a batch of segments) every group counts from its own start
     gone = Deadline(time.monotonic() - 1.0, 60.0)
     each = run_grouped(prep, SearchOptions(time_limit_s=60.0), "t")
-    assert each["search"].complete
-    assert not any(isinstance(b, GroupFailure) for b in each["groups"].values())
+    assert each.search.complete
+    assert not any(isinstance(b, GroupFailure) for b in each.groups.values())
     late = run_grouped(prep, SearchOptions(time_limit_s=60.0, deadline=gone), "t")
-    assert all(b.record.over_budget for b in late["groups"].values())
+    assert all(b.record.over_budget for b in late.groups.values())
 
 
 def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
@@ -224,9 +224,9 @@ def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
     body is exactly what the JSON response carries (no private keys to strip)."""
     prep = _linear_prep()
     result = select(prep, SearchOptions(top=2), "t")
-    assert not [k for k in result.body if k.startswith("_")]
-    assert all(isinstance(e, EntryReport) for e in result.body["ranking"])
-    first = result.body["ranking"][0].specification.to_dict()
+    assert isinstance(result.body, SelectionReport)
+    assert all(isinstance(e, EntryReport) for e in result.body.ranking)
+    first = result.body.ranking[0].specification.to_dict()
     assert any(s.spec.to_dict() == first for s in result.scored)
     assert result.plan.folds == 5 and result.plan.n_splits == 5
     # source: numpy lstsq of rank 1's design on all rows equals the reported coefficients
@@ -234,7 +234,7 @@ def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
     d = build_design(winner.spec, prep)
     z = winner.spec.response_transform.forward(prep.y)
     coef = np.linalg.lstsq(d.X, z, rcond=None)[0]
-    got = [row["estimate"] for row in result.body["ranking"][0].coefficients]
+    got = [row["estimate"] for row in result.body.ranking[0].coefficients]
     np.testing.assert_allclose(got, coef, rtol=1e-9, atol=1e-12)
 
 
@@ -277,9 +277,9 @@ def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monk
     alone = run_selection(prep, opts, "t")
     # source: the same search with every candidate's fold powers and lambdas found alone
     # (Scorer.score's own path): the same ranking and the same numbers
-    assert [e.specification.to_dict() for e in together["ranking"]] == [
-        e.specification.to_dict() for e in alone["ranking"]
+    assert [e.specification.to_dict() for e in together.ranking] == [
+        e.specification.to_dict() for e in alone.ranking
     ]
-    for a, b in zip(together["ranking"], alone["ranking"], strict=True):
+    for a, b in zip(together.ranking, alone.ranking, strict=True):
         assert a.cv.value == pytest.approx(b.cv.value, rel=1e-9)
-    assert together["search"].scored == alone["search"].scored
+    assert together.search.scored == alone.search.scored

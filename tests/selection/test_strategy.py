@@ -51,13 +51,13 @@ def test_screened_search_finds_the_exhaustive_optimum(seed):
     prep = _problem(seed)
     full = run_selection(prep, SearchOptions(strategy="exhaustive", **SPACE), "t")
     smart = run_selection(prep, SearchOptions(strategy="screened", **SPACE), "t")
-    assert full["search"].complete is True
-    assert full["search"].scored + full["search"].failed == 3 * 4**3
+    assert full.search.complete is True
+    assert full.search.scored + full.search.failed == 3 * 4**3
     # source: the exhaustive search over the same 192 candidates (same folds)
-    assert smart["search"].best_cv.spec == full["search"].best_cv.spec
-    assert smart["search"].best_cv.value == pytest.approx(full["search"].best_cv.value, rel=1e-12)
-    assert smart["search"].scored < full["search"].scored
-    assert smart["search"].strategy.name == "screened"
+    assert smart.search.best_cv.spec == full.search.best_cv.spec
+    assert smart.search.best_cv.value == pytest.approx(full.search.best_cv.value, rel=1e-12)
+    assert smart.search.scored < full.search.scored
+    assert smart.search.strategy.name == "screened"
 
 
 def test_baselines_are_always_scored():
@@ -75,22 +75,22 @@ def test_baselines_are_always_scored():
 def test_auto_switches_to_screened_past_the_limit_and_honours_max_candidates():
     prep = _problem(2, n=200, p=6)  # 3 x 4^6 = 12288 candidates
     out = run_selection(prep, SearchOptions(max_candidates=40, **SPACE), "t")
-    s = out["search"]
+    s = out.search
     assert s.considered == 3 * 4**6 > EXHAUSTIVE_LIMIT
     assert s.strategy.name == "screened"
     assert s.scored + s.failed <= 40
     assert s.screened > 0
     assert s.complete is False
-    assert any("screened search" in w for w in out["warnings"])
+    assert any("screened search" in w for w in out.warnings)
 
 
 def test_many_predictors_within_a_time_limit():
     prep = _problem(3, n=240, p=12)
     out = run_selection(prep, SearchOptions(time_limit_s=20.0, **SPACE), "t")
-    s = out["search"]
+    s = out.search
     assert s.strategy.name == "screened"
     assert s.elapsed_s < 60.0
-    assert out["ranking"][0].cv.value > 0
+    assert out.ranking[0].cv.value > 0
 
 
 def test_screened_search_in_batches_equals_one_candidate_at_a_time(monkeypatch):
@@ -101,11 +101,11 @@ def test_screened_search_in_batches_equals_one_candidate_at_a_time(monkeypatch):
     batched = run_selection(prep, opts, "t")
     monkeypatch.setattr(search_mod._Evaluator, "many", lambda self, specs: [self(s) for s in specs])
     alone = run_selection(prep, opts, "t")
-    a, b = batched["search"], alone["search"]
+    a, b = batched.search, alone.search
     for key in ("scored", "failed", "screened", "complete"):
         assert getattr(a, key) == getattr(b, key)
-    assert [e.equation for e in batched["ranking"]] == [e.equation for e in alone["ranking"]]
-    for x, y in zip(batched["ranking"], alone["ranking"], strict=True):
+    assert [e.equation for e in batched.ranking] == [e.equation for e in alone.ranking]
+    for x, y in zip(batched.ranking, alone.ranking, strict=True):
         # source: the same search scoring one candidate at a time
         assert x.cv.value == pytest.approx(y.cv.value, rel=1e-10)
     assert a.best_cv.value == pytest.approx(b.best_cv.value, rel=1e-10)

@@ -129,7 +129,7 @@ def test_optimism_is_zero_when_the_search_space_holds_one_candidate():
     assert op.ratio == pytest.approx(1.0, abs=1e-12)
     # the outer folds are the search's own partition: rank 1's error there is its CV error
     assert op.selected_cv == pytest.approx(body.winner.cv.value, rel=1e-12)
-    assert op.selected_cv == pytest.approx(body.body["ranking"][0].cv.value, rel=1e-12)
+    assert op.selected_cv == pytest.approx(body.body.ranking[0].cv.value, rel=1e-12)
 
 
 def test_optimism_near_zero_when_the_right_scale_always_wins_inside():
@@ -189,7 +189,7 @@ def test_trust_without_a_selection_runs_the_search_itself():
     b = assess_trust(prep, TIED_OPTS, winner, "test", True, False, resamples=10)
     assert replace(a, elapsed_s=0.0) == replace(b, elapsed_s=0.0)
     # rank 1 as listed (values estimated on all rows) names the same candidate
-    listed = body.body["ranking"][0].specification
+    listed = body.body.ranking[0].specification
     c = assess_trust(prep, TIED_OPTS, listed, "test", True, False, resamples=10, selection=body)
     assert replace(c, elapsed_s=0.0) == replace(a, elapsed_s=0.0)
 

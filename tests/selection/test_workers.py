@@ -83,6 +83,7 @@ def test_prepared_and_options_pickle_to_the_same_selection():
     assert opts2 == opts
     a = run_selection(prep, opts, "t")
     b = run_selection(prep2, opts2, "t")
-    for body in (a, b):
-        body["search"] = dataclasses.replace(body["search"], elapsed_s=0.0)
+    a, b = (
+        dataclasses.replace(x, search=dataclasses.replace(x.search, elapsed_s=0.0)) for x in (a, b)
+    )
     assert to_jsonable(a) == to_jsonable(b)

@@ -24,11 +24,11 @@ def test_the_grouped_search_summary_counts_groups_and_failures():
     prep = prepare({"columns": _columns()}, "cost", ["km"], group_by="depot")
     opts = SearchOptions(response_transforms=["identity"], predictor_transforms=["identity"])
     body = run_grouped(prep, opts, "test")
-    summary = body["search"]
+    summary = body.search
     assert isinstance(summary, GroupsSummary)
     # source: the data's construction: three depots, one with a constant response
     assert (summary.groups, summary.failed, summary.complete) == (3, 1, True)
-    assert isinstance(body["groups"]["flat"], GroupFailure)
+    assert isinstance(body.groups["flat"], GroupFailure)
     out = to_jsonable(body)
     assert out["search"] == {
         "groups": 3,
@@ -39,7 +39,7 @@ def test_the_grouped_search_summary_counts_groups_and_failures():
     problem = out["groups"]["flat"]["problem"]
     assert problem["status"] == 422 and problem["errors"][0]["pointer"] == "/response"
     # the same entry as the selections endpoint writes through with_group_problems
-    again = with_group_problems(run_grouped(prep, opts, "test"))["groups"]["flat"]
+    again = with_group_problems(run_grouped(prep, opts, "test")).groups["flat"]
     assert again == out["groups"]["flat"]
 
 

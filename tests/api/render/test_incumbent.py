@@ -45,7 +45,7 @@ def switched():
         incumbent=RAW,
     )
     result = select(prep, opts, "test")
-    return cols, result, result.body["incumbent"], to_jsonable(result.body)["incumbent"]
+    return cols, result, result.body.incumbent, to_jsonable(result.body)["incumbent"]
 
 
 def test_the_block_has_the_contract_fields_in_order(switched):

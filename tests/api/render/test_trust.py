@@ -165,7 +165,7 @@ def _held_out_rmse(spec: dict, cols: dict, train: np.ndarray, test: np.ndarray) 
 def test_the_nested_cv_gap_recomputed_with_kfold_and_statsmodels(noise_trust):
     cols, result, _, body = noise_trust
     op = body["optimism"]
-    winner = to_jsonable(result.body["ranking"][0])["specification"]
+    winner = to_jsonable(result.body.ranking[0])["specification"]
     n = len(cols["y"])
     # source: scikit-learn KFold(shuffle=True, random_state=seed) gives the outer folds
     # (the search's own partition); statsmodels OLS refits each selected specification on
