@@ -17,6 +17,7 @@ Every transformed column is computed once into a :class:`bank.ColumnBank`.
 
 from __future__ import annotations
 
+import hashlib
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass, field
@@ -312,6 +313,65 @@ def build_space(
     return space
 
 
+class PowerFits:
+    """All-rows power estimates of one request by their inputs: the screening step's
+    estimates are kept here, and a candidate whose all-rows estimate has the very same
+    inputs (the response on the same scale, the same fixed columns, the same predictor
+    values, the same form) takes the kept fit instead of estimating it again.  Inputs are
+    matched by a digest of their shapes and bytes, so only identical arrays share a fit;
+    a failure is kept too and raised again."""
+
+    def __init__(self) -> None:
+        self._fits: dict[bytes, bt.PowerFit | CandidateFailure] = {}
+        self.hits = 0
+
+    @staticmethod
+    def key(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool) -> bytes:
+        h = hashlib.blake2b(digest_size=20)
+        h.update(b"boxcox" if boxcox_form else b"plain")
+        x = np.asarray(x, dtype=float)
+        for a in (z, Xf, x[:, None] if x.ndim == 1 else x):  # one power: (n,) as (n, 1)
+            arr = np.ascontiguousarray(a, dtype=float)
+            h.update(repr(arr.shape).encode())
+            h.update(arr.tobytes())
+        return h.digest()
+
+    def get(
+        self, z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool
+    ) -> bt.PowerFit | CandidateFailure | None:
+        """The kept fit (or failure) of these inputs, or None when none is kept."""
+        got = self._fits.get(self.key(z, Xf, x, boxcox_form))
+        if got is not None:
+            self.hits += 1
+        return got
+
+    def put(
+        self,
+        z: np.ndarray,
+        Xf: np.ndarray,
+        x: np.ndarray,
+        boxcox_form: bool,
+        fit: bt.PowerFit | CandidateFailure,
+    ) -> None:
+        self._fits[self.key(z, Xf, x, boxcox_form)] = fit
+
+    def estimate(
+        self, z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool
+    ) -> bt.PowerFit:
+        """:func:`boxtidwell.estimate_powers` (started at 1, with standard errors) of these
+        inputs: the kept fit, or estimated now and kept."""
+        got = self.get(z, Xf, x, boxcox_form)
+        if got is None:
+            try:
+                got = bt.estimate_powers(z, Xf, x, boxcox_form=boxcox_form)
+            except CandidateFailure as exc:
+                got = exc
+            self.put(z, Xf, x, boxcox_form, got)
+        if isinstance(got, CandidateFailure):
+            raise got
+        return got
+
+
 def screening_powers(
     prep: Prepared,
     preds: list[list[tr.Transform]],
@@ -319,6 +379,7 @@ def screening_powers(
     intercept: bool,
     seed: int,
     deadline: Deadline | None = None,
+    fits: PowerFits | None = None,
 ) -> tuple[dict[tuple[tr.Transform, str], dict[str, Any]], dict[tuple[tr.Transform, str], float]]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
@@ -326,7 +387,8 @@ def screening_powers(
     power is estimated with the other predictors untransformed (one power at a time, so a
     predictor without effect cannot stall the others).  Past the request's
     ``deadline`` no further power is estimated: the search then runs
-    without the missing estimates' ladder rungs.  Returns
+    without the missing estimates' ladder rungs.  Each estimate is kept in ``fits`` (when
+    given), where a candidate with the same inputs finds it.  Returns
     ({(response, column): estimate summary}, {(response, column): power}).
     """
     cols = [c for c, o in zip(prep.predictors, preds, strict=True) if any(bt.is_open(t) for t in o)]
@@ -362,7 +424,7 @@ def screening_powers(
             ]
             Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))
             try:
-                fit = bt.estimate_powers(z, Xf, prep.numeric[c][rows], boxcox_form=intercept)
+                fit = (fits or PowerFits()).estimate(z, Xf, prep.numeric[c][rows], intercept)
             except CandidateFailure:
                 continue
             info[(t, c)] = fit.summary(0)

@@ -105,8 +105,16 @@ class _Pre:
 class _Evaluator:
     """Exact original-scale scoring of specifications over one column bank."""
 
-    def __init__(self, prep: Prepared, space: cand.Space, scorer: Scorer, intercept: bool):
+    def __init__(
+        self,
+        prep: Prepared,
+        space: cand.Space,
+        scorer: Scorer,
+        intercept: bool,
+        fits: cand.PowerFits | None = None,
+    ):
         self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
+        self.fits = fits if fits is not None else cand.PowerFits()  # all-rows power fits
         self.scored: list[Scored] = []
         self.failures: list[Failure] = []
         self.n_fail = 0
@@ -198,7 +206,7 @@ class _Evaluator:
         if not dyn:
             return None, None
         z, x = self._power_inputs(spec)
-        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
+        fit = self.fits.estimate(z, self.space.bank.columns(cols), x, self.intercept)
         return self._started(spec, dyn, x, fit), fit
 
     def _power_inputs(self, spec: Specification) -> tuple[np.ndarray, np.ndarray]:
@@ -226,14 +234,15 @@ class _Evaluator:
     ) -> dict[int, _Pre]:
         """For the specifications scored one at a time (``rest``: index -> design): each
         one's all-rows power estimate (the start of its folds', all of them at once:
-        :func:`boxtidwell.estimate_many_powers`) and the powers or lambdas of its training
-        folds, found for all of them together (:meth:`Scorer.powers_many`,
+        :func:`boxtidwell.estimate_many_powers`; one whose inputs the screening step
+        already estimated takes that fit from ``self.fits``) and the powers or lambdas of
+        its training folds, found for all of them together (:meth:`Scorer.powers_many`,
         :meth:`Scorer.lambdas_many`).  A specification whose all-rows estimate fails is
         left out: scoring it alone records the failure in its place."""
         pre: dict[int, _Pre] = {}
         power_items: list[tuple[int, tr.Transform, list[int], Dynamic]] = []
         lambda_items: list[tuple[int, tr.Transform, list[int]]] = []
-        starts: list[tuple[int, np.ndarray, np.ndarray]] = []
+        starts: list[tuple[int, np.ndarray, np.ndarray, np.ndarray]] = []
         for i, (cols, _names, dyn) in rest.items():
             spec = specs[i]
             t = spec.response_transform
@@ -242,16 +251,24 @@ class _Evaluator:
                     z, x = self._power_inputs(spec)
                 except CandidateFailure:
                     continue
-                starts.append((i, z, x))
+                starts.append((i, z, self.space.bank.columns(cols), x))
             elif t.needs_lambda:
                 lambda_items.append((i, t, cols))
-        # every all-rows start in one batch (boxtidwell.estimate_many_powers)
-        fits = bt.estimate_many_powers(
-            [(z, self.space.bank.columns(rest[i][0]), x) for i, z, x in starts],
-            boxcox_form=self.intercept,
+        # every all-rows start not kept from the screening step in one batch
+        fits: list[bt.PowerFit | CandidateFailure | None] = [
+            self.fits.get(z, Xf, x, self.intercept) for _i, z, Xf, x in starts
+        ]
+        missing = [j for j, fit in enumerate(fits) if fit is None]
+        batch = (
+            bt.estimate_many_powers([starts[j][1:] for j in missing], boxcox_form=self.intercept)
+            if missing
+            else []
         )
-        for (i, _z, x), fit in zip(starts, fits, strict=True):
-            if isinstance(fit, CandidateFailure):
+        for j, made in zip(missing, batch, strict=True):
+            fits[j] = made
+            self.fits.put(*starts[j][1:], self.intercept, made)
+        for (i, _z, _Xf, x), fit in zip(starts, fits, strict=True):
+            if fit is None or isinstance(fit, CandidateFailure):
                 continue
             cols, _names, dyn = rest[i]
             dynamic = self._started(specs[i], dyn, x, fit)
@@ -422,8 +439,9 @@ def select(
     # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
     box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings)
     # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
+    power_fits = cand.PowerFits()  # the screening step's fits, reused by equal candidates
     bt_info, bt_powers = cand.screening_powers(
-        prep, preds, resp, opts.intercept, opts.seed, deadline
+        prep, preds, resp, opts.intercept, opts.seed, deadline, power_fits
     )
     preds = cand.add_ladder_rungs(prep, preds, bt_info)
     total = cand.grid_size(resp, preds)
@@ -444,7 +462,7 @@ def select(
     index = FoldIndex.of(plan, prep.n)
     space = cand.build_space(prep, preds, index, opts.intercept, extra)
     scorer = Scorer(space.bank, prep.y, plan, shift_needed)
-    ev = _Evaluator(prep, space, scorer, opts.intercept)
+    ev = _Evaluator(prep, space, scorer, opts.intercept, power_fits)
     budget = Budget(opts.max_candidates, deadline, opts.stop)
     counts = {"screened": 0}
     if strategy == "exhaustive":

@@ -19,6 +19,7 @@ from service.core.bank import FoldIndex
 from service.core.data import prepare
 from service.core.errors import CandidateFailure, Cell, InputError, PredictorChoice, ResponseChoice
 from service.core.folds import make_plan
+from service.core.likelihood import fit_transform
 from service.core.spec import build_design
 from service.selection import candidates as cand
 
@@ -135,3 +136,63 @@ def test_a_column_a_transform_cannot_take_fails_that_candidate_only():
     assert space.design_of(good)[1][:2] == ["intercept", "x"]
     with pytest.raises(CandidateFailure):
         space.design_of(bad)
+
+
+def test_kept_power_fits_are_the_estimate_of_the_same_inputs_and_only_of_those():
+    rng = np.random.default_rng(21)
+    n = 200
+    x = rng.uniform(1, 10, n)
+    z = 2.0 + 3.0 * np.sqrt(x) + rng.normal(0, 0.2, n)
+    Xf = np.ones((n, 1))
+    fits = cand.PowerFits()
+    kept = fits.estimate(z, Xf, x, True)
+    one = bt.estimate_powers(z, Xf, x, boxcox_form=True)
+    # source: boxtidwell.estimate_powers called on the same arrays (the straightforward path)
+    np.testing.assert_array_equal(kept.powers, one.powers)
+    np.testing.assert_array_equal(kept.std_errors, one.std_errors)
+    # a predictor given as (n, 1) is the same input as (n,); the kept fit itself comes back
+    assert fits.get(z, Xf, x[:, None], True) is kept and fits.hits == 1
+    # any other input is a miss: one value changed by one unit in the last place, the
+    # other form, another shape of the fixed columns
+    nudged = x.copy()
+    nudged[7] = np.nextafter(nudged[7], np.inf)
+    assert fits.get(z, Xf, nudged, True) is None
+    assert fits.get(z, Xf, x, False) is None
+    assert fits.get(z, np.ones((n, 2)) / 2**0.5, x, True) is None
+    assert fits.get(z[::-1].copy(), Xf, x, True) is None
+    assert fits.hits == 1
+
+
+def test_a_kept_power_failure_is_raised_again_with_its_reason():
+    n = 40
+    z = np.linspace(1, 5, n)
+    x = np.linspace(-1, 3, n)  # values <= 0: no power can be estimated
+    fits = cand.PowerFits()
+    with pytest.raises(CandidateFailure) as first:
+        fits.estimate(z, np.ones((n, 1)), x, True)
+    with pytest.raises(CandidateFailure) as direct:
+        bt.estimate_powers(z, np.ones((n, 1)), x)
+    with pytest.raises(CandidateFailure) as again:
+        fits.estimate(z, np.ones((n, 1)), x, True)
+    # source: the reason estimate_powers itself gives
+    assert first.value.reason == direct.value.reason == again.value.reason
+    assert fits.hits == 1
+
+
+def test_screening_powers_keep_their_fits_for_the_search():
+    prep = _prep(seed=4)
+    preds = cand.predictor_candidates(prep, None)
+    resp = cand.response_candidates(prep, None)
+    fits = cand.PowerFits()
+    info, powers = cand.screening_powers(prep, preds, resp, True, 0, None, fits)
+    alone, _ = cand.screening_powers(prep, preds, resp, True, 0)
+    assert info == alone and len(powers) == 5  # five fixed response scales, one open column
+    # the inputs screening used: the intercept and the other predictors as sent
+    lv, ref = cand.categorical_levels(prep.categorical["crew"], None, "crew")
+    Xf = np.column_stack(
+        [np.ones(prep.n)] + [(prep.categorical["crew"] == v) * 1.0 for v in lv if v != ref]
+    )
+    for t in (t for t in resp if not t.needs_lambda):
+        z = fit_transform(t, prep.y).forward(prep.y)
+        got = fits.get(z, Xf, prep.numeric["x"], True)
+        assert got is not None and float(got.powers[0]) == powers[(t, "x")]
