@@ -313,6 +313,17 @@ def build_space(
     return space
 
 
+def inputs_key(tag: bytes, *arrays: np.ndarray) -> bytes:
+    """A digest of ``tag`` and the shapes and float64 bytes of ``arrays``: equal only for
+    identical inputs (a kept estimate is reused for nothing else)."""
+    h = hashlib.blake2b(tag, digest_size=20)
+    for a in arrays:
+        arr = np.ascontiguousarray(a, dtype=float)
+        h.update(repr(arr.shape).encode())
+        h.update(arr.tobytes())
+    return h.digest()
+
+
 class PowerFits:
     """All-rows power estimates of one request by their inputs: the screening step's
     estimates are kept here, and a candidate whose all-rows estimate has the very same
@@ -327,14 +338,9 @@ class PowerFits:
 
     @staticmethod
     def key(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool) -> bytes:
-        h = hashlib.blake2b(digest_size=20)
-        h.update(b"boxcox" if boxcox_form else b"plain")
         x = np.asarray(x, dtype=float)
-        for a in (z, Xf, x[:, None] if x.ndim == 1 else x):  # one power: (n,) as (n, 1)
-            arr = np.ascontiguousarray(a, dtype=float)
-            h.update(repr(arr.shape).encode())
-            h.update(arr.tobytes())
-        return h.digest()
+        one = x[:, None] if x.ndim == 1 else x  # one power: (n,) as (n, 1)
+        return inputs_key(b"boxcox" if boxcox_form else b"plain", z, Xf, one)
 
     def get(
         self, z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool

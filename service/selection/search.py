@@ -40,7 +40,7 @@ from ..core.errors import (
 )
 from ..core.fastcv import Found, Scorer
 from ..core.folds import CVPlan, make_plan
-from ..core.likelihood import estimate_lambda, fit_transform
+from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
 from ..core.spec import Design, PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
@@ -91,6 +91,33 @@ def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
     return sorted(cands, key=lambda s: s.simplicity())
 
 
+class KeptLambdas:
+    """Response lambdas estimated on all rows with their interval
+    (:func:`likelihood.estimate_lambda`), kept by their inputs (family, response, design)
+    for the rest of the request: the reported Box-Cox lambda, the ladder readings of
+    estimated candidates and the lambda on rank 1's design ask for the same estimate on
+    the same design more than once.  A failure is kept too and raised again."""
+
+    def __init__(self) -> None:
+        self._got: dict[bytes, LambdaEstimate | CandidateFailure | ValueError] = {}
+        self.hits = 0
+
+    def estimate(self, family: str, y: np.ndarray, X: np.ndarray) -> LambdaEstimate:
+        key = cand.inputs_key(family.encode(), y, X)
+        got = self._got.get(key)
+        if got is None:
+            try:
+                got = estimate_lambda(family, y, X)
+            except (CandidateFailure, ValueError) as exc:
+                got = exc
+            self._got[key] = got
+        else:
+            self.hits += 1
+        if isinstance(got, Exception):
+            raise got
+        return got
+
+
 @dataclass(frozen=True)
 class _Pre:
     """What :meth:`_Evaluator._found` prepared for one specification: the columns whose
@@ -112,9 +139,11 @@ class _Evaluator:
         scorer: Scorer,
         intercept: bool,
         fits: cand.PowerFits | None = None,
+        lambdas: KeptLambdas | None = None,
     ):
         self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
         self.fits = fits if fits is not None else cand.PowerFits()  # all-rows power fits
+        self.lambdas = lambdas if lambdas is not None else KeptLambdas()  # all-rows lambdas
         self.scored: list[Scored] = []
         self.failures: list[Failure] = []
         self.n_fail = 0
@@ -437,7 +466,8 @@ def select(
         )
 
     # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
-    box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings)
+    lambdas = KeptLambdas()  # all-rows lambdas with intervals, asked for more than once
+    box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings, lambdas)
     # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
     power_fits = cand.PowerFits()  # the screening step's fits, reused by equal candidates
     bt_info, bt_powers = cand.screening_powers(
@@ -462,7 +492,7 @@ def select(
     index = FoldIndex.of(plan, prep.n)
     space = cand.build_space(prep, preds, index, opts.intercept, extra)
     scorer = Scorer(space.bank, prep.y, plan, shift_needed)
-    ev = _Evaluator(prep, space, scorer, opts.intercept, power_fits)
+    ev = _Evaluator(prep, space, scorer, opts.intercept, power_fits, lambdas)
     budget = Budget(opts.max_candidates, deadline, opts.stop)
     counts = {"screened": 0}
     if strategy == "exhaustive":
@@ -566,7 +596,7 @@ def select(
         assert first is not None  # listed with entries[0]
         box_cox = {
             **box_cox_info,
-            **_box_cox_context(box_cox_info, entries[0], first.design, prep),
+            **_box_cox_context(box_cox_info, entries[0], first.design, prep, lambdas),
         }
     search = SearchSummary(
         considered=int(total),
@@ -947,7 +977,11 @@ def _exhaustive(
 
 
 def _response_lambdas(
-    prep: Prepared, opts: SearchOptions, resp: list[tr.Transform], warnings: list[str]
+    prep: Prepared,
+    opts: SearchOptions,
+    resp: list[tr.Transform],
+    warnings: list[str],
+    lambdas: KeptLambdas,
 ) -> tuple[dict[str, Any] | None, dict[tr.Transform, float]]:
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
@@ -973,7 +1007,7 @@ def _response_lambdas(
         return None, lams
     for t in families:
         try:
-            est = estimate_lambda(t.name, prep.y, X0)
+            est = lambdas.estimate(t.name, prep.y, X0)
         except (CandidateFailure, ValueError):
             continue
         lams[t] = est.lam
@@ -1008,7 +1042,11 @@ def _screen_scales(
 
 
 def _box_cox_context(
-    info: dict[str, Any], first: dict[str, Any], design: Design, prep: Prepared
+    info: dict[str, Any],
+    first: dict[str, Any],
+    design: Design,
+    prep: Prepared,
+    lambdas: KeptLambdas,
 ) -> dict[str, Any]:
     """When rank 1's response scale is not what the reported lambda suggests: lambda again
     on rank 1's design, with one sentence saying that lambda depends on the predictor scales."""
@@ -1023,7 +1061,7 @@ def _box_cox_context(
     if same or not np.all(prep.y > 0):
         return {}
     try:
-        est = estimate_lambda("box_cox", prep.y, design.X)
+        est = lambdas.estimate("box_cox", prep.y, design.X)
     except (CandidateFailure, ValueError):
         return {}
     preds = ", ".join(
@@ -1127,7 +1165,7 @@ def _ladder_reading(
     notes: list[dict[str, Any]] = []
     if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated):
         try:
-            est = estimate_lambda(t.name, prep.y, build_design(spec, prep).X)
+            est = ev.lambdas.estimate(t.name, prep.y, build_design(spec, prep).X)
         except (CandidateFailure, ValueError):
             return None, []
         if est.ladder is None:

@@ -333,3 +333,69 @@ def test_all_rows_powers_kept_from_screening_give_the_same_selection(monkeypatch
     assert [e["specification"] for e in reused["ranking"]] == [
         e["specification"] for e in fresh["ranking"]
     ]
+
+
+def test_kept_lambdas_are_the_estimate_of_the_same_inputs_and_only_of_those(monkeypatch):
+    from service.core.errors import CandidateFailure
+    from service.core.likelihood import estimate_lambda
+    from service.selection import search as search_mod
+    from service.selection.search import KeptLambdas
+
+    rng = np.random.default_rng(8)
+    n = 120
+    x = rng.uniform(1, 10, n)
+    y = np.exp(0.3 + 0.2 * x + rng.normal(0, 0.2, n))
+    X = np.column_stack([np.ones(n), x])
+    kept = KeptLambdas()
+    got = kept.estimate("box_cox", y, X)
+    # source: likelihood.estimate_lambda on the same arrays (the straightforward call)
+    assert got == estimate_lambda("box_cox", y, X)
+    assert kept.estimate("box_cox", y, X.copy()) is got and kept.hits == 1
+    other = kept.estimate("box_cox", y, np.column_stack([np.ones(n), np.log(x)]))
+    assert other == estimate_lambda("box_cox", y, np.column_stack([np.ones(n), np.log(x)]))
+    assert kept.estimate("yeo_johnson", y, X) == estimate_lambda("yeo_johnson", y, X)
+    assert kept.hits == 1  # another design or family is a miss
+    calls = []
+
+    def failing(family, y, X):
+        calls.append(family)
+        raise CandidateFailure("no lambda for these rows")
+
+    monkeypatch.setattr(search_mod, "estimate_lambda", failing)
+    for _ in range(2):
+        with pytest.raises(CandidateFailure) as again:
+            kept.estimate("box_cox", y[::-1].copy(), X)
+        assert again.value.reason == "no lambda for these rows"
+    assert calls == ["box_cox"] and kept.hits == 2  # a failure is kept and raised again
+
+
+def test_lambdas_kept_within_a_request_give_the_same_selection(monkeypatch):
+    from service.core.likelihood import estimate_lambda
+    from service.demo import demo_columns
+    from service.selection import search as search_mod
+
+    cols = demo_columns(300)
+    columns = {k: cols[k] for k in ("repair_cost", "pipe_length_m")}
+    prep = prepare({"columns": columns}, "repair_cost", ["pipe_length_m"])
+    made: list[search_mod.KeptLambdas] = []
+    real_init = search_mod.KeptLambdas.__init__
+
+    def kept(self):
+        real_init(self)
+        made.append(self)
+
+    monkeypatch.setattr(search_mod.KeptLambdas, "__init__", kept)
+    reused = run_selection(prep, SearchOptions(), "t")
+    assert made[0].hits >= 1  # the same estimate was asked for twice
+    monkeypatch.setattr(
+        search_mod.KeptLambdas, "estimate", lambda self, f, y, X: estimate_lambda(f, y, X)
+    )
+    fresh = run_selection(prep, SearchOptions(), "t")
+    # source: the same search with every lambda estimated again (estimate_lambda each time):
+    # the reported Box-Cox block, its context on rank 1's design and the entries' ladder
+    # readings are identical
+    assert reused["search"].box_cox == fresh["search"].box_cox
+    assert "context" in reused["search"].box_cox
+    for a, b in zip(reused["ranking"], fresh["ranking"], strict=True):
+        assert a["specification"] == b["specification"]
+        assert a.get("estimates") == b.get("estimates")
