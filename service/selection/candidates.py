@@ -361,6 +361,21 @@ class PowerFits:
     ) -> None:
         self._fits[self.key(z, Xf, x, boxcox_form)] = fit
 
+    def estimate_many(
+        self, problems: list[tuple[np.ndarray, np.ndarray, np.ndarray]], boxcox_form: bool
+    ) -> list[bt.PowerFit | CandidateFailure]:
+        """:func:`boxtidwell.estimate_many_powers` of ``problems`` ``(z, X_f, x)``: the kept
+        fit (or failure) of each whose inputs were estimated before, the others in one
+        batch, kept for later."""
+        out = [self.get(z, Xf, x, boxcox_form) for z, Xf, x in problems]
+        missing = [i for i, fit in enumerate(out) if fit is None]
+        if missing:
+            made = bt.estimate_many_powers([problems[i] for i in missing], boxcox_form)
+            for i, fit in zip(missing, made, strict=True):
+                out[i] = fit
+                self.put(*problems[i], boxcox_form, fit)
+        return [fit for fit in out if fit is not None]
+
     def estimate(
         self, z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool
     ) -> bt.PowerFit:
@@ -391,8 +406,9 @@ def screening_powers(
 
     For each fixed response scale and each predictor offering an estimated power, the
     power is estimated with the other predictors untransformed (one power at a time, so a
-    predictor without effect cannot stall the others).  Past the request's
-    ``deadline`` no further power is estimated: the search then runs
+    predictor without effect cannot stall the others); one predictor's powers on every
+    response scale take their steps together (:meth:`PowerFits.estimate_many`).  Past the
+    request's ``deadline`` no further predictor is estimated: the search then runs
     without the missing estimates' ladder rungs.  Each estimate is kept in ``fits`` (when
     given), where a candidate with the same inputs finds it.  Returns
     ({(response, column): estimate summary}, {(response, column): power}).
@@ -412,29 +428,35 @@ def screening_powers(
             base[c] = [(vals == level).astype(float) for level in lv if level != ref]
         else:
             base[c] = [prep.numeric[c][rows]]
-    info: dict[tuple[tr.Transform, str], dict[str, Any]] = {}
-    powers: dict[tuple[tr.Transform, str], float] = {}
+    scales: list[tuple[tr.Transform, np.ndarray]] = []  # (response scale, z on its rows)
     for t in responses:
         if t.needs_lambda:
             continue
         t0 = fit_transform(t, prep.y)
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             z = t0.forward(prep.y[rows])
-        if not np.all(np.isfinite(z)):
-            continue
-        for c in cols:
-            if deadline is not None and deadline.passed():
-                return info, powers
-            fixed = ([np.ones(rows.size)] if intercept else []) + [
-                v for other in prep.predictors if other != c for v in base[other]
-            ]
-            Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))
-            try:
-                fit = (fits or PowerFits()).estimate(z, Xf, prep.numeric[c][rows], intercept)
-            except CandidateFailure:
-                continue
-            info[(t, c)] = fit.summary(0)
-            powers[(t, c)] = float(fit.powers[0])
+        if np.all(np.isfinite(z)):
+            scales.append((t, z))
+    kept = fits if fits is not None else PowerFits()
+    got: dict[tuple[tr.Transform, str], bt.PowerFit] = {}
+    for c in cols:
+        if deadline is not None and deadline.passed():
+            break
+        fixed = ([np.ones(rows.size)] if intercept else []) + [
+            v for other in prep.predictors if other != c for v in base[other]
+        ]
+        Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))
+        x = prep.numeric[c][rows]
+        # this predictor's power on every response scale: one batch of steps
+        for (t, _z), fit in zip(
+            scales, kept.estimate_many([(z, Xf, x) for _t, z in scales], intercept), strict=True
+        ):
+            if not isinstance(fit, CandidateFailure):
+                got[(t, c)] = fit
+    # in the order of the response scales, then the predictors (as the ladder rungs are added)
+    order = sorted(got, key=lambda k: (responses.index(k[0]), cols.index(k[1])))
+    info = {k: got[k].summary(0) for k in order}
+    powers = {k: float(got[k].powers[0]) for k in order}
     return info, powers
 
 

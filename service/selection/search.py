@@ -284,20 +284,9 @@ class _Evaluator:
             elif t.needs_lambda:
                 lambda_items.append((i, t, cols))
         # every all-rows start not kept from the screening step in one batch
-        fits: list[bt.PowerFit | CandidateFailure | None] = [
-            self.fits.get(z, Xf, x, self.intercept) for _i, z, Xf, x in starts
-        ]
-        missing = [j for j, fit in enumerate(fits) if fit is None]
-        batch = (
-            bt.estimate_many_powers([starts[j][1:] for j in missing], boxcox_form=self.intercept)
-            if missing
-            else []
-        )
-        for j, made in zip(missing, batch, strict=True):
-            fits[j] = made
-            self.fits.put(*starts[j][1:], self.intercept, made)
+        fits = self.fits.estimate_many([(z, Xf, x) for _i, z, Xf, x in starts], self.intercept)
         for (i, _z, _Xf, x), fit in zip(starts, fits, strict=True):
-            if fit is None or isinstance(fit, CandidateFailure):
+            if isinstance(fit, CandidateFailure):
                 continue
             cols, _names, dyn = rest[i]
             dynamic = self._started(specs[i], dyn, x, fit)

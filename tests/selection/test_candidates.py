@@ -196,3 +196,30 @@ def test_screening_powers_keep_their_fits_for_the_search():
         z = fit_transform(t, prep.y).forward(prep.y)
         got = fits.get(z, Xf, prep.numeric["x"], True)
         assert got is not None and float(got.powers[0]) == powers[(t, "x")]
+        one = bt.estimate_powers(z, Xf, prep.numeric["x"])
+        # source: boxtidwell.estimate_powers, one call per response scale (the response
+        # scales' steps are taken together; rounding-level differences only)
+        assert powers[(t, "x")] == pytest.approx(float(one.powers[0]), rel=1e-9, abs=1e-11)
+        assert info[(t, "x")]["std_error"] == pytest.approx(float(one.std_errors[0]), rel=1e-7)
+
+
+def test_many_kept_power_fits_keep_their_order_with_hits_misses_and_failures():
+    rng = np.random.default_rng(5)
+    n = 150
+    x = rng.uniform(1, 10, n)
+    Xf = np.ones((n, 1))
+    zs = [2.0 + c * np.sqrt(x) + rng.normal(0, 0.3, n) for c in (1.0, 2.0, 3.0)]
+    fits = cand.PowerFits()
+    first = fits.estimate(zs[1], Xf, x, True)  # kept before the batch
+    problems = [(zs[0], Xf, x), (zs[1], Xf, x), (zs[2], Xf, -x), (zs[2], Xf, x)]
+    got = fits.estimate_many(problems, True)
+    assert got[1] is first and fits.hits == 1
+    assert isinstance(got[2], CandidateFailure)  # x <= 0
+    for (z, F, xx), fit in zip(problems, got, strict=True):
+        if isinstance(fit, CandidateFailure):
+            continue
+        # source: boxtidwell.estimate_powers on the same inputs
+        want = bt.estimate_powers(z, F, xx).powers
+        np.testing.assert_allclose(fit.powers, want, rtol=1e-9, atol=1e-11)
+    again = fits.estimate_many(problems, True)
+    assert all(a is b for a, b in zip(again, got, strict=True)) and fits.hits == 5
