@@ -397,4 +397,4 @@ def test_lambdas_kept_within_a_request_give_the_same_selection(monkeypatch):
     assert reused.search.box_cox.context is not None
     for a, b in zip(reused.ranking, fresh.ranking, strict=True):
         assert a.specification == b.specification
-        assert a.get("estimates") == b.get("estimates")
+        assert a.estimates == b.estimates
