@@ -40,10 +40,9 @@ import numpy as np
 import orjson
 from service.api import encode
 from service.api.options import selection_job
+from service.api.render import model as rm
 from service.api.schemas import SelectionRequest
 from service.core import _smear_tree as st
-from service.core import model
-from service.selection import entries, search
 from service.selection.request import Service, run_selection
 from service.version import __version__
 from tests.benchmarks.smearing import largest_change, request
@@ -75,25 +74,25 @@ class Before:
     """Patches that restore the earlier paths while the block runs."""
 
     def __enter__(self):
-        self.saved = (model.seal, entries.seal, search.entry_for, st._binned_block)
-        seal, entry_for, block = model.seal, search.entry_for, st._binned_block
+        self.saved = (rm.sealed, rm.sign, st._binned_block)
+        sealed, sign, block = self.saved
 
-        def seal_no_keep(body, keep=False):
-            return seal(body)
+        def sealed_twice(m):  # the checksum of the model as built, again after its CV+ block
+            rm.canonical_bytes(rm.artifact(m))
+            return sealed(m)
 
-        def entry_sealed(*a, **k):
-            return entry_for(*a, **{**k, "sealed": True})
+        def sign_dumping(body, keys, raw=None):  # the signature over a fresh dump
+            return sign(body, keys)
 
         def block_counting(*a, **k):
             return block(*a, **{**k, "clip": False})
 
-        model.seal = entries.seal = seal_no_keep
-        search.entry_for = entry_sealed
+        rm.sealed, rm.sign = sealed_twice, sign_dumping
         st._binned_block = block_counting
         return self
 
     def __exit__(self, *exc):
-        model.seal, entries.seal, search.entry_for, st._binned_block = self.saved
+        rm.sealed, rm.sign, st._binned_block = self.saved
 
 
 def answer(req: SelectionRequest, keys, walk) -> bytes:
@@ -104,17 +103,17 @@ def answer(req: SelectionRequest, keys, walk) -> bytes:
 
 def count_dumps(fn) -> int:
     calls = [0]
-    real = model.canonical_bytes
+    real = rm.canonical_bytes
 
     def counted(body):
         calls[0] += 1
         return real(body)
 
-    model.canonical_bytes = counted
+    rm.canonical_bytes = counted
     try:
         fn()
     finally:
-        model.canonical_bytes = real
+        rm.canonical_bytes = real
     return calls[0]
 
 

@@ -38,6 +38,7 @@ from . import (  # noqa: E402,F401
     drift,
     groups,
     incumbent,
+    model,
     plots,
     predictions,
     search,
