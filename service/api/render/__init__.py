@@ -42,6 +42,7 @@ from . import (  # noqa: E402,F401
     plots,
     predictions,
     search,
+    transforms,
     trust,
 )
 
