@@ -23,7 +23,7 @@ from ..core.data import MAX_LEVEL_CHARS, shown
 from ..core.drift import CategoricalProfile, DataProfile, NumericProfile
 from ..core.errors import InputError, ModelField
 from ..core.model import FORMAT_VERSION, MAX_STORED_RESIDUALS, Model
-from ..core.spec import PredictorSpec, Specification, term_names
+from ..core.spec import Levels, PredictorSpec, Specification, term_names
 from .render.model import SIGNATURE_ALGORITHM, checksum, signature_value
 
 KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
@@ -223,7 +223,7 @@ def _specification(d: object) -> Specification:
     return Specification(resp["column"], rt, tuple(out), intercept)
 
 
-def _levels(d: object, spec: Specification) -> dict[str, dict[str, Any]]:
+def _levels(d: object, spec: Specification) -> dict[str, Levels]:
     if not isinstance(d, dict):
         raise InputError.at(MODEL.at("levels"), "the model's levels must be an object")
     cols = {p.column for p in spec.predictors}
@@ -249,7 +249,7 @@ def _levels(d: object, spec: Specification) -> dict[str, dict[str, Any]]:
             raise InputError.at(
                 ptr.at("reference"), f"the reference level of '{col}' is not one of its levels"
             )
-        out[col] = {"levels": list(lv), "reference": ref}
+        out[col] = Levels(tuple(lv), str(ref))
     for p in spec.predictors:
         if p.transform.name == "categorical" and p.column not in out:
             raise InputError.at(
@@ -506,7 +506,7 @@ def _conditions_failed(v: object) -> tuple[str, ...] | None:
 
 
 def _fold_powers(
-    d: object, spec: Specification, levels: dict[str, dict[str, Any]], K: int
+    d: object, spec: Specification, levels: dict[str, Levels], K: int
 ) -> cvplus.FoldPowers:
     """The ``fold_powers`` of a cv_plus block: each named column a numeric predictor on an
     estimated-power scale (power, or log where the estimate was 0), in specification order,
@@ -533,7 +533,7 @@ def _fold_powers(
                 )
             positions.append(pos)
             order.append(pr.column)
-        pos += len(levels[pr.column]["levels"]) - 1 if pr.column in levels else 1
+        pos += len(levels[pr.column].others) if pr.column in levels else 1
     j = len(order)
     if not isinstance(cols, list) or not cols or cols != order:
         raise InputError.at(
@@ -566,7 +566,7 @@ def _cv_plus(
     spec: Specification,
     p: int,
     n_train: object,
-    levels: dict[str, dict[str, Any]],
+    levels: dict[str, Levels],
 ) -> cvplus.StoredFits | cvplus.NoStoredFits | None:
     """The ``cv_plus`` block checked against the model: the fits, or why there are none
     (None: the model records nothing about them)."""
@@ -701,9 +701,7 @@ def _numeric_profile(d: object, ptr: ModelField) -> NumericProfile:
     )
 
 
-def _data_profile(
-    d: object, spec: Specification, levels: dict[str, dict[str, Any]]
-) -> DataProfile | None:
+def _data_profile(d: object, spec: Specification, levels: dict[str, Levels]) -> DataProfile | None:
     """The training rows' profile (None when the model records none)."""
     if not d:
         return None

@@ -29,13 +29,13 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any, Protocol
+from typing import Protocol
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from .data import Prepared
-from .spec import Specification
+from .spec import Levels, Specification
 
 PSI_MODERATE = 0.1  # common practice cut-offs
 PSI_MAJOR = 0.25
@@ -284,7 +284,7 @@ class Recorded(Protocol):
     @property
     def training_range(self) -> Mapping[str, tuple[float, float]]: ...
     @property
-    def levels(self) -> Mapping[str, Mapping[str, Any]]: ...
+    def levels(self) -> Mapping[str, Levels]: ...
     @property
     def profile(self) -> DataProfile | None: ...
 
@@ -316,7 +316,7 @@ def compare(model: Recorded, prep: Prepared) -> DriftReport:
             d = _categorical(
                 prep.categorical[c],
                 pprof if isinstance(pprof, CategoricalProfile) else None,
-                tuple(info["levels"]) if info else (),
+                info.levels if info else (),
             )
             if d.new_levels:
                 flags.append(

@@ -10,7 +10,6 @@ sent back both live in the web floor (``service.api.render.model``,
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 
@@ -20,7 +19,7 @@ from .data import Prepared
 from .drift import DataProfile, profile
 from .fitting import OLSFit
 from .folds import CVPlan
-from .spec import Design, Specification
+from .spec import Design, Levels, Specification
 
 FORMAT_VERSION = 1
 MAX_STORED_RESIDUALS = 2000
@@ -103,7 +102,7 @@ class Model:
     xtx_inverse: np.ndarray
     residual_variance: float
     df_residual: int
-    levels: dict[str, dict[str, Any]]
+    levels: dict[str, Levels]
     residuals: np.ndarray
     residual_kind: str
     training_range: dict[str, tuple[float, float]]

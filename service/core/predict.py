@@ -120,7 +120,7 @@ def new_design(model: Model, data: dict[str, Any]) -> tuple[np.ndarray, dict[str
         if model.is_categorical(p.column):
             typed = as_categorical(raw)
             info = model.levels[p.column]
-            allowed = set(info["levels"])
+            allowed = set(info.levels)
             for i in np.flatnonzero(typed.missing):
                 n_bad += 1
                 add(
@@ -134,7 +134,7 @@ def new_design(model: Model, data: dict[str, Any]) -> tuple[np.ndarray, dict[str
                     add(
                         raw.cell(row),
                         f"level '{v}' of '{p.column}' in {rows_named([row])} did not "
-                        f"occur in the training data (levels: {', '.join(info['levels'][:20])}); "
+                        f"occur in the training data (levels: {', '.join(info.levels[:20])}); "
                         "the model cannot predict for it",
                     )
             categorical_values[p.column] = typed.values

@@ -96,12 +96,26 @@ class TermInfo:
     label: str
 
 
+@dataclass(frozen=True)
+class Levels:
+    """A categorical predictor's levels (sorted, as the design holds them) and its
+    reference level, the one without a dummy."""
+
+    levels: tuple[str, ...]
+    reference: str
+
+    @property
+    def others(self) -> tuple[str, ...]:
+        """The levels with a dummy each, in order."""
+        return tuple(lv for lv in self.levels if lv != self.reference)
+
+
 @dataclass
 class Design:
     X: np.ndarray
     names: list[str]
     terms: list[TermInfo]
-    levels: dict[str, dict[str, Any]] = field(default_factory=dict)  # column -> {levels, reference}
+    levels: dict[str, Levels] = field(default_factory=dict)  # categorical column -> its levels
 
 
 def categorical_levels(
@@ -141,7 +155,7 @@ class Columns:
     categorical: dict[str, np.ndarray]
 
 
-StoredLevels: TypeAlias = Mapping[str, Mapping[str, Any]]  # column -> {levels, reference}
+StoredLevels: TypeAlias = Mapping[str, Levels]  # categorical column -> its levels
 
 
 def term_names(spec: Specification, levels: StoredLevels) -> list[str]:
@@ -150,8 +164,7 @@ def term_names(spec: Specification, levels: StoredLevels) -> list[str]:
     names = ["intercept"] if spec.intercept else []
     for p in spec.predictors:
         if p.column in levels:
-            ref = levels[p.column]["reference"]
-            names.extend(term_label(p.column, lv) for lv in levels[p.column]["levels"] if lv != ref)
+            names.extend(term_label(p.column, lv) for lv in levels[p.column].others)
         else:
             names.append(p.transform.label(p.column))
     return names
@@ -177,7 +190,7 @@ def build_design(
     """
     cols: list[np.ndarray] = []
     terms: list[TermInfo] = []
-    used: dict[str, dict[str, Any]] = {}
+    used: dict[str, Levels] = {}
     n = prep.n
     if spec.intercept:
         cols.append(np.ones(n))
@@ -186,7 +199,7 @@ def build_design(
         if p.column in prep.categorical:
             vals = prep.categorical[p.column]
             if levels is not None:
-                lv, ref = list(levels[p.column]["levels"]), levels[p.column]["reference"]
+                lv, ref = list(levels[p.column].levels), levels[p.column].reference
             else:
                 lv, ref = categorical_levels(
                     vals,
@@ -196,7 +209,7 @@ def build_design(
                 )
             start = len(cols)
             cols.extend((vals == level).astype(float) for level in lv if level != ref)
-            used[p.column] = {"levels": lv, "reference": ref}
+            used[p.column] = Levels(tuple(lv), ref)
             terms.append(
                 TermInfo(p.column, "categorical", tuple(range(start, len(cols))), None, p.column)
             )

@@ -13,7 +13,7 @@ import statsmodels.api as sm
 from service.core import model
 from service.core.cvplus import NoStoredFits
 from service.core.data import prepare
-from service.core.spec import Specification
+from service.core.spec import Levels, Specification
 from service.selection.entries import fitted_model
 
 
@@ -58,7 +58,7 @@ def test_the_model_keeps_the_fit_statsmodels_computes(built):
     assert m.terms == tuple(design.names) and m.residual_kind == "all"
     x = prep.numeric["pallets"]
     assert m.training_range == {"pallets": (float(x.min()), float(x.max()))}
-    assert m.levels["bay"]["reference"] == "east"
+    assert m.levels["bay"] == Levels(("east", "north", "west"), "east")
     assert m.conditions_failed == () and m.cv_plus is None and m.cv_plus_missing == "none kept"
     assert m.issued is not None and m.issued.response_range == (prep.y.min(), prep.y.max())
     assert m.profile is not None and m.profile.rows == prep.n

@@ -144,7 +144,10 @@ def artifact(model: m.Model) -> dict[str, Any]:
         "residual_variance": model.residual_variance,
         "df_residual": model.df_residual,
         "n": model.n,
-        "levels": model.levels,
+        "levels": {
+            c: {"levels": list(lv.levels), "reference": lv.reference}
+            for c, lv in model.levels.items()
+        },
         "residuals": {"kind": model.residual_kind, "values": model.residuals.tolist()},
         "training_range": {c: {"min": a, "max": b} for c, (a, b) in model.training_range.items()},
         "response_range": {"min": lo, "max": hi},

@@ -18,7 +18,7 @@ from service.core import transforms as tr
 from service.core.data import prepare
 from service.core.drift import RULE, compare, profile
 from service.core.model import Model
-from service.core.spec import PredictorSpec, Specification
+from service.core.spec import Levels, PredictorSpec, Specification
 
 
 def _prep(rng, n, shift=0.0, soils=("clay", "loam", "sand"), age_offset=0):
@@ -46,7 +46,7 @@ def _artifact(prep, with_profile=True, columns=("load", "age", "soil", "depth"))
         xtx_inverse=np.zeros((0, 0)),
         residual_variance=1.0,
         df_residual=1,
-        levels={"soil": {"levels": sorted(set(prep.categorical["soil"])), "reference": "clay"}},
+        levels={"soil": Levels(tuple(sorted(set(prep.categorical["soil"]))), "clay")},
         residuals=np.zeros(1),
         residual_kind="all",
         training_range={
