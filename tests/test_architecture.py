@@ -519,7 +519,7 @@ NOT_YET_RENDERED = {
     "core/interpret.py": 33,
     "core/likelihood.py": 9,
     "core/sources.py": 5,
-    "core/spec.py": 9,
+    "core/spec.py": 7,
     "core/transforms/categorical.py": 2,
     "core/transforms/family.py": 2,
     "core/transforms/log.py": 3,

@@ -259,7 +259,7 @@ def _levels(d: object, spec: Specification) -> dict[str, Levels]:
 
 
 def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = None) -> Model:
-    """Validate an artifact and return it in array form.
+    """Validate an artifact and return the typed :class:`Model` it holds.
 
     Checks, in order: ``format_version`` is one this service reads; every
     number is finite; the SHA-256 checksum matches (a mismatch means the model
@@ -267,7 +267,8 @@ def load_model(d: dict[str, Any], keys: tuple[str, dict[str, bytes]] | None = No
     one of ``keys`` (``(current id, {id: key})``; None: unsigned models accepted);
     the specification, levels, terms and array shapes agree with each other and
     every value lies within the bounds an issued artifact satisfies, so even a
-    correctly signed but damaged model cannot overflow.  Every failure is an
+    correctly signed but damaged model cannot overflow; the training rows' profile
+    (for drift) has the shape an issued one has.  Every failure is an
     :class:`InputError` naming a field of the artifact (:class:`ModelField`).
     """
     if not isinstance(d, dict):

@@ -43,11 +43,8 @@ class Specification:
     def from_dict(cls, d: dict[str, Any]) -> Specification:
         return cls(
             d["response"]["column"],
-            tr.from_dict(d["response"].get("transform") or {"name": "identity"}),
-            tuple(
-                PredictorSpec(p["column"], tr.from_dict(p.get("transform") or {"name": "identity"}))
-                for p in d["predictors"]
-            ),
+            _transform_of(d["response"]),
+            tuple(PredictorSpec(p["column"], _transform_of(p)) for p in d["predictors"]),
             bool(d.get("intercept", True)),
         )
 
@@ -85,6 +82,13 @@ class Specification:
 def _estimated_power(t: tr.Transform) -> bool:
     """A predictor power estimated from the data (open, or fitted and marked estimated)."""
     return t.estimated and (t.name == "power" or (t.name == "log" and t.shift == 0.0))
+
+
+def _transform_of(part: dict[str, Any]) -> tr.Transform:
+    """The transform of a specification's response or predictor object (identity when it
+    names none)."""
+    sent = part.get("transform")
+    return tr.from_dict(sent) if sent else tr.Transform("identity")
 
 
 @dataclass
