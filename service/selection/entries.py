@@ -21,7 +21,7 @@ from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
 from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
-from ..core.model import build_model, seal
+from ..core.model import FitOptions, Model, Signing, build_model
 from ..core.numbers import fmt
 from ..core.spec import Design, Specification, build_design
 
@@ -279,18 +279,13 @@ def attach_cv_plus(
     prep: Prepared,
     plan: CVPlan,
 ) -> EntryReport:
-    """Store the CV+ block in the entry's model (sealed: checksum renewed, its canonical
-    bytes kept for the signature, which ``request.finish_body`` adds) and return the entry
-    with its default interval method taken from it.  ``design`` is the entry's all-rows
-    design (:attr:`Entry.design`)."""
+    """The entry with the CV+ fits stored in its model and its default interval method
+    taken from them.  ``design`` is the entry's all-rows design (:attr:`Entry.design`)."""
     block = stored_block(oof, design.X, prep.y, plan.scheme, why_none)
-    model = entry.model
-    model["cv_plus"] = block
-    seal(model, keep=True)  # the bytes are signed in finish_body without a second dump
-    method, why = default_method(
-        model.get("conditions_failed"), block["available"], block.get("reason", "")
-    )
-    return replace(entry, inference=entry.inference.with_intervals(method, why))
+    assert isinstance(entry.model, Model)  # not yet marked for signing
+    model = replace(entry.model, cv_store=block)
+    method, why = default_method(model.conditions_failed, block.available, block.reason)
+    return replace(entry, model=model, inference=entry.inference.with_intervals(method, why))
 
 
 @dataclass(frozen=True)
@@ -325,7 +320,8 @@ class EntryReport:
     """One listed specification as the contract lists it: its place (``rank``; None for a
     specification diagnosed alone), the concrete specification and its equation, the
     cross-validated error, the all-rows fit, the coefficient rows, the score, the model
-    artifact (a dict, sealed), the warnings, the regression conditions and transform hints,
+    artifact (a typed :class:`Model`; marked :class:`Signing` once the body is finished),
+    the warnings, the regression conditions and transform hints,
     the inference, the readings (``interpretation``) and the estimates (None: nothing
     estimated)."""
 
@@ -335,7 +331,7 @@ class EntryReport:
     fit: FitSummary
     coefficients: tuple[dict[str, Any], ...]
     score: Score
-    model: dict[str, Any]
+    model: Model | Signing
     warnings: tuple[str, ...]
     conditions: ConditionReport
     transform_hints: tuple[TransformHint, ...]
@@ -364,10 +360,9 @@ def entry_for(
     parts: ScoreParts,
     opts: SearchOptions,
     service_version: str,
-    sealed: bool = True,
 ) -> Entry:
-    """``sealed``: the model with its checksum; False when the caller attaches its CV+ block
-    (:func:`attach_cv_plus`, which seals it) or does not return the model."""
+    """The entry of ``spec``: its full-data fit, conditions, readings and typed model (whose
+    artifact the web floor writes and signs when the body leaves)."""
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
     if lam_est is not None and lam_est.at_bound:
@@ -402,22 +397,16 @@ def entry_for(
         fit,
         prep,
         service_version,
-        {
-            "folds": plan.folds,
-            "repeats": plan.repeats,
-            "seed": plan.seed,
-            "metric": plan.metric,
-        },
+        FitOptions.of(plan),
         cv_plus=cv_plus,
         conditions_failed=bad,
-        sealed=sealed,
     )
     for h in hints:
         if h.bulge and h.sentence:
             warnings.append(h.sentence)
     blocked = getattr(opts, "scheme", "random") == "blocked"
     inference, clause, more = choose_inference(conditions, lags, blocked)
-    method, why = default_method(bad, cv_plus["available"], cv_plus.get("reason", ""))
+    method, why = default_method(bad, cv_plus.available, cv_plus.reason)
     warnings.extend(more)
     interpretation = interpret_fit(
         concrete,

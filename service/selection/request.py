@@ -18,7 +18,7 @@ from typing import Any, Protocol, TypeVar
 
 from ..core.data import Prepared, prepare
 from ..core.errors import InputError, Option
-from ..core.model import sign
+from ..core.model import Signing
 from .cautions import selection_cautions
 from .groups import GroupedReport, run_grouped
 from .search import SelectionReport, select
@@ -206,11 +206,14 @@ def _group_mapper(
 
 
 def finish_body(body: Body, opts: SearchOptions, service: Service) -> Body:
-    """``body`` with its model artifacts signed, the service version and the cautions that
-    apply."""
+    """``body`` with its models marked to be signed with the service's keys (the web floor
+    writes and signs each artifact), the service version and the cautions that apply."""
     ranking = body.ranking
     any_tr = any(not e.specification.response_transform.is_identity for e in ranking)
-    for e in ranking:
-        sign(e.model, service.model_keys)
+    keys = service.model_keys
+    signed = tuple(
+        e if isinstance(e.model, Signing) else replace(e, model=Signing(e.model, keys))
+        for e in ranking
+    )
     cautions = tuple(selection_cautions(opts.metric, any_tr))
-    return replace(body, service_version=service.version, cautions=cautions)
+    return replace(body, ranking=signed, service_version=service.version, cautions=cautions)

@@ -556,8 +556,7 @@ def select(
     def full(s: Scored, parts: ScoreParts) -> Entry:
         key = s.spec.key
         if key not in cache:
-            # sealed by attach_cv_plus when listed; an assessed member is not returned
-            made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version, sealed=False)
+            made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
             if key in ev.powers or key in read_notes:
                 est = made.report.estimates or Estimates()
                 est = replace(

@@ -12,13 +12,13 @@ import dataclasses
 import hashlib
 import hmac
 import time
-from types import SimpleNamespace
 
 import numpy as np
 import pytest
+from service.api.encode import to_jsonable
+from service.api.render.model import canonical_bytes
 from service.core import transforms as tr
 from service.core.errors import ErrorRecord, InputError, Option
-from service.core.model import canonical_bytes
 from service.core.spec import PredictorSpec, Specification
 from service.selection.deadline import Deadline
 from service.selection.groups import GroupFailure
@@ -84,12 +84,12 @@ def test_the_ranking_is_the_search_s_own_with_version_and_cautions_added():
 
 def test_models_are_signed_with_the_service_s_key():
     key = b"k" * 32
-    body = run_selection(_job(), Service("v", ("current", {"current": key})))
-    model = body.ranking[0].model
+    body = to_jsonable(run_selection(_job(), Service("v", ("current", {"current": key}))))
+    model = body["ranking"][0]["model"]
     # source: RFC 2104 HMAC-SHA-256 computed with Python's hmac over key id, newline, body
     want = hmac.new(key, b"current\n" + canonical_bytes(model), hashlib.sha256).hexdigest()
     assert model["signature"] == {"algorithm": "HMAC-SHA-256", "key_id": "current", "value": want}
-    unsigned = run_selection(_job(), SERVICE).ranking[0].model["signature"]
+    unsigned = to_jsonable(run_selection(_job(), SERVICE))["ranking"][0]["model"]["signature"]
     assert unsigned["algorithm"] == "none"
 
 
@@ -157,13 +157,13 @@ def test_options_are_frozen():
 
 
 def test_finish_body_adds_cautions_for_transformed_responses_only():
-    # an entry as finish_body reads it: its specification and its model artifact
-    def listed(name: str) -> SimpleNamespace:
-        spec = Specification("y", tr.Transform(name), (PredictorSpec("x", tr.Transform("log")),))
-        return SimpleNamespace(specification=spec, model={})
-
     job = _job()
     body = select(job.table.prepare(), job.search, "test-version").body
+
+    def listed(name: str):
+        spec = Specification("y", tr.Transform(name), (PredictorSpec("x", tr.Transform("log")),))
+        return dataclasses.replace(body.ranking[0], specification=spec)
+
     ident = dataclasses.replace(body, ranking=(listed("identity"),))
     logged = dataclasses.replace(body, ranking=(listed("log"),))
     plain = finish_body(ident, SearchOptions(), SERVICE).cautions

@@ -39,10 +39,12 @@ from . import (  # noqa: E402,F401
     entries,
     groups,
     incumbent,
+    model,
     plots,
     predictions,
     search,
     selection,
+    transforms,
     trust,
 )
 
