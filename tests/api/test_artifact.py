@@ -128,7 +128,7 @@ def selected():
     opts = SearchOptions(
         response_transforms=["identity", "log"], predictor_transforms=["identity", "log"], top=1
     )
-    typed = select(prep, opts, "test").body["ranking"][0]["model"]
+    typed = select(prep, opts, "test").body.ranking[0].model
     assert isinstance(typed, m.Model)
     return typed
 
