@@ -519,7 +519,6 @@ NOT_YET_RENDERED = {
     "core/likelihood.py": 9,
     "core/model.py": 39,
     "core/predict.py": 4,
-    "core/sources.py": 5,
     "core/spec.py": 11,
     "core/transforms/categorical.py": 12,
     "core/transforms/family.py": 18,
