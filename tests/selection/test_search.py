@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy import stats
 from service.core import transforms as tr
-from service.core.cvresult import CVResult
+from service.core.cvresult import CVResult, Metrics
 from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
 from service.core.spec import PredictorSpec, Specification, build_design
@@ -20,7 +20,7 @@ def _scored(resp: str, pred: str, value: float, se: float, folds=None) -> Scored
         "y", tr.from_dict({"name": resp}), (PredictorSpec("x", tr.from_dict({"name": pred})),)
     )
     fv = np.array([value]) if folds is None else np.asarray(folds, float)
-    return Scored(spec, CVResult("rmse", value, se, fv, {"rmse": value}))
+    return Scored(spec, CVResult("rmse", value, se, fv, Metrics(value, value, None)))
 
 
 def test_one_se_rule_prefers_the_simplest_inside_the_band():
