@@ -511,8 +511,6 @@ NOT_YET_RENDERED = {
     "core/boxtidwell.py": 11,
     "core/cvplus.py": 17,
     "core/drift.py": 10,
-    "core/fitting.py": 7,
-    "core/interpret.py": 33,
     "core/likelihood.py": 9,
     "core/model.py": 39,
     "core/predict.py": 4,

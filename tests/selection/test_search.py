@@ -235,7 +235,7 @@ def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
     d = build_design(winner.spec, prep)
     z = winner.spec.response_transform.forward(prep.y)
     coef = np.linalg.lstsq(d.X, z, rcond=None)[0]
-    got = [row["estimate"] for row in result.body["ranking"][0]["coefficients"]]
+    got = [row.estimate for row in result.body["ranking"][0]["coefficients"]]
     np.testing.assert_allclose(got, coef, rtol=1e-9, atol=1e-12)
 
 
