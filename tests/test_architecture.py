@@ -501,6 +501,12 @@ MORE_CONTRACT_NAMES = frozenset(
         "inner_complete",
         "nested_error",
         "winner_error",
+        # the coefficient table under Newey-West standard errors (service/api/render/estimates.py)
+        "std_error_hac",
+        "t_statistic_hac",
+        "p_value_hac",
+        "ci_low_hac",
+        "ci_high_hac",
     ]
 )
 #: files of the lower floors that still build contract dicts, and how many contract names
@@ -508,10 +514,8 @@ MORE_CONTRACT_NAMES = frozenset(
 #: count may only fall; the test fails when a file writes more, or fewer without this table
 #: saying so)
 NOT_YET_RENDERED = {
-    "core/boxtidwell.py": 11,
     "core/cvplus.py": 17,
     "core/drift.py": 10,
-    "core/likelihood.py": 9,
     "core/model.py": 39,
     "core/predict.py": 4,
     "core/spec.py": 11,
@@ -523,10 +527,10 @@ NOT_YET_RENDERED = {
     "report/html.py": 11,
     "selection/candidates.py": 1,
     "selection/diagnose.py": 8,
-    "selection/entries.py": 43,
+    "selection/entries.py": 42,
     "selection/groups.py": 5,
     "selection/request.py": 2,
-    "selection/search.py": 43,
+    "selection/search.py": 29,
 }
 
 

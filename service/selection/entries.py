@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -223,14 +223,14 @@ def entry_for(
     warnings: list[str] = []
     estimates = {}
     if lam_est is not None:
-        estimates["response_lambda"] = lam_est.to_dict()
+        if cv.fold_lambdas:
+            lam_est = replace(lam_est, per_fold=tuple(cv.fold_lambdas))
+        estimates["response_lambda"] = lam_est
         if lam_est.at_bound:
             warnings.append(
                 f"The {concrete.response_transform.name} lambda sits at the search "
                 "bound (-3 or 3); the scale is poorly determined."
             )
-        if cv.fold_lambdas:
-            estimates["response_lambda"]["per_fold"] = cv.fold_lambdas
     t = concrete.response_transform
     if t.name == "log" and t.shift:
         warnings.append(
