@@ -8,6 +8,8 @@ import json
 from typing import Any
 
 import numpy as np
+import scipy
+import statsmodels
 
 from .data import Prepared
 from .drift import profile
@@ -143,9 +145,6 @@ def sign_all(node: object, keys: tuple[str, dict[str, bytes]] | None) -> None:
 
 def library_versions() -> dict[str, Any]:
     """Versions of the numerical libraries that produced the artifact."""
-    import scipy
-    import statsmodels
-
     return {
         "numpy": np.__version__,
         "scipy": scipy.__version__,
