@@ -1231,7 +1231,10 @@ def distinct_scales(
             still.append(e)
             continue
         if _has_estimate(target):  # some powers read on the ladder, others still estimated
-            got = ev(target)
+            try:
+                got = ev(target)
+            except KeyError:  # a ladder column the bank does not hold: the estimate stays
+                got = None
             if got is None:
                 still.append(e)
                 continue

@@ -284,3 +284,25 @@ def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monk
     for a, b in zip(together["ranking"], alone["ranking"], strict=True):
         assert a["cv"].value == pytest.approx(b["cv"].value, rel=1e-9)
     assert together["search"].scored == alone["search"].scored
+
+
+def test_a_ladder_reading_the_bank_lacks_leaves_the_other_powers_estimated():
+    # two estimated powers, one read as a ladder rung (x2^-0.5) that the screening did not
+    # add to the bank, the other still estimated: the reading keeps its estimate, no error
+    rng = np.random.default_rng(7)
+    n = 160
+    x1, x2 = rng.uniform(1, 30, n), rng.uniform(0.5, 9, n)
+    site = rng.choice(["n", "s", "w"], n)
+    rng.normal(0, 0.08, n)  # the draws of the table this case was found on, in order
+    rng.choice(["p", "q"], n)
+    y = 3 + 2 * x1**0.5 + rng.normal(0, 0.3 * (1 + x2 / 3), n)
+    cols = {"y": y.tolist(), "x1": x1.tolist(), "x2": x2.tolist(), "site": site.tolist()}
+    prep = prepare({"columns": cols}, "y", ["x1", "x2", "site"], ["site"])
+    result = select(prep, SearchOptions(metric="mape"), "test")
+    first = result.body["ranking"][0]
+    winner = next(s for s in result.scored if s.spec.to_dict() == first["specification"])
+    d = build_design(winner.spec, prep)
+    coef = np.linalg.lstsq(d.X, winner.spec.response_transform.forward(prep.y), rcond=None)[0]
+    # source: numpy lstsq of rank 1's design on all rows equals the reported coefficients
+    got = [row.estimate for row in first["coefficients"]]
+    np.testing.assert_allclose(got, coef, rtol=1e-9, atol=1e-12)
