@@ -37,16 +37,17 @@ from typing import Any
 
 from threadpoolctl import threadpool_limits
 
+from .api.artifact import load_model
 from .api.encode import to_jsonable
 from .api.errors import group_problem, problem_object
 from .api.options import service
+from .api.render import contract
 from .batch_parquet import SegmentRef, SharedDirError, SharedParquet
 from .core.data import Prepared
 from .core.drift import compare
 from .core.errors import InputError
-from .core.model import library_versions
+from .core.model import Model, library_versions
 from .core.numbers import count_of
-from .core.predict import load_model
 from .selection.groups import GroupFailure, GroupTask, group_parts, select_group
 from .selection.request import finish_body
 from .selection.search_setup import SearchOptions
@@ -124,7 +125,7 @@ def _pin_blas_once() -> None:
         _blas_pinned = True
 
 
-def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dict | None):
+def run_segment(name: str, sub, opts, service_version: str, incumbent_model: Model | None):
     """The finished selection body of one segment (module-level: it runs on any worker).
 
     ``sub`` is the segment's Prepared, a :class:`batch_parquet.SegmentRef` to read it from
@@ -175,7 +176,7 @@ class Task:
     sub: Any  # Prepared | SegmentRef | GroupFailure
     opts: Any
     version: str
-    incumbent_model: dict | None = None
+    incumbent_model: Model | None = None  # typed: drift is measured against it
 
     def nbytes(self) -> int:
         p = self.sub
@@ -363,7 +364,8 @@ def _duration(s: float) -> str:
 @dataclass
 class Incumbent:
     specification: dict
-    model: dict | None = None  # the artifact, when known: drift is measured against it
+    model: dict | None = None  # the artifact as read, when known (written back as in use)
+    loaded: Model | None = None  # the same, checked and typed: drift is measured against it
 
 
 def read_incumbents(path: str, validate_spec: Callable[[dict, str], dict]) -> dict:
@@ -412,15 +414,16 @@ def read_incumbents(path: str, validate_spec: Callable[[dict, str], dict]) -> di
             raise BatchRefusal(f"--incumbents: segment '{seg}' appears twice ({where})")
         model = obj.get("model")
         spec = obj.get("specification")
+        loaded = None
         if model is not None:
             try:
-                load_model(model)
+                loaded = load_model(model)
             except InputError as exc:
                 raise BatchRefusal(f"--incumbents: {where}: the model {exc.detail}") from None
             spec = spec or model.get("specification")
         if spec is None:
             raise BatchRefusal(f"--incumbents: {where} has neither 'specification' nor 'model'")
-        out[seg] = Incumbent(validate_spec(spec, where), model)
+        out[seg] = Incumbent(validate_spec(spec, where), model, loaded)
     return out
 
 
@@ -448,7 +451,7 @@ def versions() -> dict:
 
     return {
         "python": platform.python_version(),
-        **library_versions(),
+        **contract(library_versions()),
         "dask": dask.__version__,
         "distributed": distributed.__version__,
     }
@@ -589,7 +592,7 @@ def run_job(
         opts = replace(job.opts, deadline=None)
         if inc:
             opts = replace(opts, incumbent=inc.specification)
-        tasks.append(Task(name, sub, opts, job.version, inc.model if inc else None))
+        tasks.append(Task(name, sub, opts, job.version, inc.loaded if inc else None))
     reused = len(records)
     if shared is not None and tasks:
         refs = shared.publish(job.prep, parts, manifest["data_fingerprint"])

@@ -507,6 +507,9 @@ MORE_CONTRACT_NAMES = frozenset(
         "p_value_hac",
         "ci_low_hac",
         "ci_high_hac",
+        # the model artifact's CV+ powers estimated per fold (service/api/render/model.py)
+        "fold_powers",
+        "columns",
     ]
 )
 #: files of the lower floors that still build contract dicts, and how many contract names
@@ -514,20 +517,16 @@ MORE_CONTRACT_NAMES = frozenset(
 #: count may only fall; the test fails when a file writes more, or fewer without this table
 #: saying so)
 NOT_YET_RENDERED = {
-    "core/cvplus.py": 17,
-    "core/drift.py": 10,
-    "core/model.py": 39,
-    "core/predict.py": 4,
-    "core/spec.py": 11,
-    "core/transforms/categorical.py": 12,
-    "core/transforms/family.py": 18,
-    "core/transforms/log.py": 14,
-    "core/transforms/powers.py": 16,
+    "core/spec.py": 7,
+    "core/transforms/categorical.py": 2,
+    "core/transforms/family.py": 2,
+    "core/transforms/log.py": 3,
+    "core/transforms/powers.py": 5,
     "core/transforms/value.py": 2,
     "report/html.py": 11,
     "selection/candidates.py": 1,
     "selection/diagnose.py": 8,
-    "selection/entries.py": 42,
+    "selection/entries.py": 38,
     "selection/groups.py": 5,
     "selection/request.py": 2,
     "selection/search.py": 29,

@@ -39,9 +39,11 @@ from . import (  # noqa: E402,F401
     estimates,
     groups,
     incumbent,
+    model,
     plots,
     predictions,
     search,
+    transforms,
     trust,
 )
 
