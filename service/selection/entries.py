@@ -11,13 +11,14 @@ import numpy as np
 from ..core import retransform
 from ..core import sources as src
 from ..core import transforms as tr
+from ..core.boxtidwell import PowerSummary
 from ..core.condition_rules import conditions_for, failed
 from ..core.conditions import ConditionReport, TransformHint
 from ..core.cvplus import default_method, stored_block
 from ..core.cvresult import CVReport, CVResult, OutOfFold
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure
-from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
+from ..core.fitting import CoefficientRow, OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
 from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
@@ -263,14 +264,6 @@ def choose_inference(
     return Inference(kind, reason, src.STANDARD_ERRORS[kind], lags), clause, warnings
 
 
-def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
-    """Coefficient rows whose classical fields are replaced by those of ``kind``."""
-    if kind == "classical":
-        return rows
-    keys = ("std_error", "t_statistic", "p_value", "ci_low", "ci_high")
-    return [row | {k: row[f"{k}_{kind}"] for k in keys} for row in rows]
-
-
 def attach_cv_plus(
     entry: EntryReport,
     design: Design,
@@ -290,16 +283,13 @@ def attach_cv_plus(
 
 @dataclass(frozen=True)
 class LadderReading:
-    """An estimate read as a ladder value before listing (``search.distinct_scales``): which
-    ``parameter`` (``response_lambda`` of a ``family``, or ``predictor_power`` of a
-    ``column``), the ``estimate`` as summarised where it was made, the ladder scale it is
-    read as and the CV error of the estimated candidate."""
+    """An estimate read as a ladder value (an entry's ``estimates.read_as_ladder``): the
+    response lambda (``column`` None) or the power of predictor ``column``, the ladder scale
+    it is read as, and the CV error of the candidate with the estimate."""
 
-    parameter: str
-    estimate: dict[str, Any]
+    estimate: LambdaEstimate | PowerSummary
     read_as: str
     cv_value_estimated: float
-    family: str | None = None
     column: str | None = None
 
 
@@ -307,11 +297,11 @@ class LadderReading:
 class Estimates:
     """What an entry's scales estimated from the response: the response lambda (with the
     lambda of each training fold, when the folds estimated it), the predictors' powers
-    (column -> summary) and the estimates read as the ladder values it lists."""
+    (column -> summary, with each fold's power) and the estimates read as the ladder values
+    it lists."""
 
     response_lambda: LambdaEstimate | None = None
-    lambda_per_fold: tuple[float, ...] = ()
-    predictor_powers: dict[str, Any] | None = None
+    predictor_powers: dict[str, PowerSummary] | None = None
     read_as_ladder: tuple[LadderReading, ...] = ()
 
 
@@ -329,7 +319,7 @@ class EntryReport:
     equation: str
     cv: CVReport
     fit: FitSummary
-    coefficients: tuple[dict[str, Any], ...]
+    coefficients: tuple[CoefficientRow, ...]
     score: Score
     model: Model | Signing
     warnings: tuple[str, ...]
@@ -365,11 +355,14 @@ def entry_for(
     artifact the web floor writes and signs when the body leaves)."""
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
-    if lam_est is not None and lam_est.at_bound:
-        warnings.append(
-            f"The {concrete.response_transform.name} lambda sits at the search "
-            "bound (-3 or 3); the scale is poorly determined."
-        )
+    if lam_est is not None:
+        if cv.fold_lambdas:
+            lam_est = replace(lam_est, per_fold=tuple(cv.fold_lambdas))
+        if lam_est.at_bound:
+            warnings.append(
+                f"The {concrete.response_transform.name} lambda sits at the search "
+                "bound (-3 or 3); the scale is poorly determined."
+            )
     t = concrete.response_transform
     if t.name == "log" and t.shift:
         warnings.append(
@@ -401,6 +394,7 @@ def entry_for(
         cv_plus=cv_plus,
         conditions_failed=bad,
     )
+    table = fit.table(robust=covs)
     for h in hints:
         if h.bulge and h.sentence:
             warnings.append(h.sentence)
@@ -414,21 +408,19 @@ def entry_for(
         fit,
         prep,
         getattr(opts, "units", None),
-        table=table_for(fit.table(robust=covs), inference.standard_errors),
+        table=table,
         clause=clause,
+        standard_errors=inference.standard_errors,
     )
     estimates = None
     if lam_est is not None:
-        estimates = Estimates(lam_est, tuple(cv.fold_lambdas or ()))
+        estimates = Estimates(response_lambda=lam_est)
     report = EntryReport(
         specification=concrete,
         equation=equation(concrete, design, fit.coef),
         cv=CVReport.of(cv, plan),
         fit=fit_block(concrete, fit, prep),
-        coefficients=tuple(
-            {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
-            for row in fit.table(robust=covs)
-        ),
+        coefficients=tuple(table),
         score=Score(cv.value / parts.best_cv_value if parts.best_cv_value > 0 else 1.0, parts),
         model=model,
         warnings=tuple(warnings),

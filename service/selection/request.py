@@ -19,10 +19,12 @@ from typing import Any, Protocol, TypeVar
 from ..core.data import Prepared, prepare
 from ..core.errors import InputError, Option
 from ..core.model import Signing
+from . import workers
 from .cautions import selection_cautions
 from .groups import GroupedReport, run_grouped
 from .search import SelectionReport, select
 from .search_setup import SearchOptions
+from .trust import assess_trust
 
 #: a finished selection body: one table's, or one per group
 Body = TypeVar("Body", SelectionReport, GroupedReport)
@@ -152,8 +154,6 @@ def run_selection(
     result = select(prep, opts, service.version)
     body = result.body
     if job.trust.wanted:
-        from .trust import assess_trust
-
         trust = assess_trust(
             prep,
             opts,
@@ -186,9 +186,7 @@ def _group_mapper(
 
         return mapped_with_progress
     if service.group_processes > 1:
-        from .workers import process_mapper
-
-        return process_mapper(
+        return workers.process_mapper(
             service.group_processes,
             service.blas_threads,
             on_result=progress.step if progress is not None else None,

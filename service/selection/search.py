@@ -158,7 +158,9 @@ class _Evaluator:
         self.failures: list[Failure] = []
         self.n_fail = 0
         self.reasons: dict[str, int] = {}  # every failure's reason -> candidates
-        self.powers: dict[SpecKey, dict[str, Any]] = {}  # concrete key -> {column: summary}
+        self.powers: dict[
+            SpecKey, dict[str, bt.PowerSummary]
+        ] = {}  # concrete key -> {column: summary}
 
     def __call__(self, spec: Specification, pre: _Pre | None = None) -> Scored | None:
         try:
@@ -337,7 +339,7 @@ class _Evaluator:
         )
         per_fold = np.array(res.fold_powers)
         self.powers[concrete.key] = {
-            c: {**fit.summary(j), "per_fold": per_fold[:, j].tolist()}
+            c: replace(fit.summary(j), per_fold=tuple(per_fold[:, j].tolist()))
             for j, c in enumerate(est_cols)
         }
         return Scored(concrete, res, spec)
@@ -382,6 +384,33 @@ class ScalesSummary:
 
 
 @dataclass(frozen=True)
+class LambdaOnDesign:
+    """A Box-Cox lambda estimated with the predictors on the scales ``design`` names."""
+
+    design: str
+    estimate: LambdaEstimate
+
+
+@dataclass(frozen=True)
+class BoxCoxReport:
+    """The search's Box-Cox lambda (untransformed predictors) and, when rank 1's response
+    scale is not what it suggests, lambda on rank 1's design with a sentence on why they
+    differ."""
+
+    reported: LambdaOnDesign
+    on_rank_1_design: LambdaOnDesign | None = None
+    context: str | None = None
+
+
+@dataclass(frozen=True)
+class ScreenedPower:
+    """A predictor power estimated while screening, under one response scale."""
+
+    response_transform: tr.Transform
+    estimate: bt.PowerSummary
+
+
+@dataclass(frozen=True)
 class SearchSummary:
     """What one search did: candidates considered / scored / failed / screened, whether it
     finished, how long it took, the strategy, the scales searched, the lowest error, the
@@ -404,7 +433,7 @@ class SearchSummary:
     failure_reasons: tuple[FailureGroup, ...]
     exact_refits: int
     box_cox: BoxCoxReport | None
-    predictor_powers: tuple[tuple[str, tuple[PowerEstimate, ...]], ...] | None
+    predictor_powers: dict[str, list[ScreenedPower]] | None
 
 
 @dataclass(frozen=True)
@@ -999,7 +1028,7 @@ def _response_lambdas(
     resp: list[tr.Transform],
     warnings: list[str],
     lambdas: KeptLambdas,
-) -> tuple[LambdaEstimate | None, dict[tr.Transform, float]]:
+) -> tuple[LambdaOnDesign | None, dict[tr.Transform, float]]:
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
         prep.response,
@@ -1013,7 +1042,7 @@ def _response_lambdas(
         ),
         opts.intercept,
     )
-    info: LambdaEstimate | None = None
+    info: LambdaOnDesign | None = None
     lams: dict[tr.Transform, float] = {}
     families = [t for t in resp if t.needs_lambda]
     if not families:
@@ -1030,7 +1059,7 @@ def _response_lambdas(
         lams[t] = est.lam
         if t.name != "box_cox":
             continue
-        info = est
+        info = LambdaOnDesign("untransformed predictors", est)
         if est.ladder is not None:
             rung = tr.ladder_transform(est.ladder)
             if rung not in resp and rung.domain_problem(prep.y, prep.response, "response") is None:
@@ -1058,44 +1087,18 @@ def _screen_scales(
     return out
 
 
-@dataclass(frozen=True)
-class BoxCoxReport:
-    """The response's Box-Cox lambda estimated with the predictors untransformed; when rank
-    1's response scale is not what it suggests, the lambda again on rank 1's predictors
-    (``on_rank_1``; ``rank_1_design`` labels them) and the sentence that says lambda
-    depends on the predictor scales (``context``)."""
-
-    estimate: LambdaEstimate
-    on_rank_1: LambdaEstimate | None = None
-    rank_1_design: str | None = None
-    context: str | None = None
-
-    #: the design the reported lambda was estimated on
-    design = "untransformed predictors"
-
-
-@dataclass(frozen=True)
-class PowerEstimate:
-    """A predictor's Box-Tidwell power estimated on one fixed response scale, summarised as
-    :meth:`boxtidwell.PowerFit.summary` gives it."""
-
-    response_transform: tr.Transform
-    summary: dict[str, Any]
-
-
 def _box_cox_context(
-    info: LambdaEstimate,
+    info: LambdaOnDesign,
     first: EntryReport,
     design: Design,
     prep: Prepared,
     lambdas: KeptLambdas,
 ) -> BoxCoxReport:
-    """The reported lambda; when rank 1's response scale is not what it suggests, also the
-    lambda again on rank 1's design, with one sentence saying that lambda depends on the
-    predictor scales."""
-    alone = BoxCoxReport(info)
+    """The reported Box-Cox lambda and, when rank 1's response scale is not what it
+    suggests, lambda again on rank 1's design, with one sentence saying that lambda depends
+    on the predictor scales."""
     t = first.specification.response_transform
-    lad = info.ladder
+    lad = info.estimate.ladder
     suggested = tr.ladder_transform(lad) if lad is not None else None
     same = (
         t.name == "box_cox"
@@ -1103,24 +1106,29 @@ def _box_cox_context(
         else (t.name == suggested.name and t.exponent == suggested.exponent)
     )
     if same or not np.all(prep.y > 0):
-        return alone
+        return BoxCoxReport(info)
     try:
         est = lambdas.estimate("box_cox", prep.y, design.X)
     except (CandidateFailure, ValueError):
-        return alone
+        return BoxCoxReport(info)
     preds = ", ".join(p.transform.label(p.column) for p in first.specification.predictors)
     holds = (
         f", which holds {est.ladder:g} ({tr.ladder_transform(est.ladder).label(prep.response)})"
         if est.ladder is not None
         else ""
     )
-    context = (
-        f"The Box-Cox lambda {info.lam:.3g} (95% interval {_fmt_ci(info.ci_low, info.ci_high)}) "
-        f"was estimated with the predictors untransformed, and lambda depends on the "
-        f"predictor scales: on rank 1's predictors ({preds}) it is {est.lam:.3g} (95% "
-        f"interval {_fmt_ci(est.ci_low, est.ci_high)}){holds}."
+    reported = info.estimate
+    return BoxCoxReport(
+        info,
+        LambdaOnDesign(preds, est),
+        (
+            f"The Box-Cox lambda {reported.lam:.3g} (95% interval "
+            f"{_fmt_ci(reported.ci_low, reported.ci_high)}) "
+            f"was estimated with the predictors untransformed, and lambda depends on the "
+            f"predictor scales: on rank 1's predictors ({preds}) it is {est.lam:.3g} (95% "
+            f"interval {_fmt_ci(est.ci_low, est.ci_high)}){holds}."
+        ),
     )
-    return BoxCoxReport(info, est, preds, context)
 
 
 #: how each search strategy goes (stated in ``search.strategy``)
@@ -1152,14 +1160,12 @@ class StrategyReport:
 
 
 def _powers_block(
-    info: dict[tuple[tr.Transform, str], dict[str, Any]],
-) -> tuple[tuple[str, tuple[PowerEstimate, ...]], ...]:
-    """The screening powers by column (in the order first met), each column's by response
-    scale."""
-    out: dict[str, list[PowerEstimate]] = {}
+    info: dict[tuple[tr.Transform, str], bt.PowerSummary],
+) -> dict[str, list[ScreenedPower]]:
+    out: dict[str, list[ScreenedPower]] = {}
     for (t, col), summ in info.items():
-        out.setdefault(col, []).append(PowerEstimate(t, summ))
-    return tuple((col, tuple(each)) for col, each in out.items())
+        out.setdefault(col, []).append(ScreenedPower(t, summ))
+    return out
 
 
 def _fmt_ci(lo: float | None, hi: float | None) -> str:
@@ -1216,15 +1222,7 @@ def _ladder_reading(
             rung = tr.ladder_transform(est.ladder)  # Yeo-Johnson with lambda 1 is the identity
         else:
             rung = tr.Transform("yeo_johnson", lam=float(est.ladder))
-        notes.append(
-            LadderReading(
-                "response_lambda",
-                est.to_dict(),
-                rung.label(prep.response),
-                e.cv.value,
-                family=t.name,
-            )
-        )
+        notes.append(LadderReading(est, rung.label(prep.response), e.cv.value))
         return Specification(spec.response, rung, spec.predictors, spec.intercept), notes
     powers = ev.powers.get(spec.key)
     if not powers:
@@ -1232,20 +1230,14 @@ def _ladder_reading(
     new: list[PredictorSpec] = []
     for p in (e.open_spec or e.spec).predictors:
         summ = powers.get(p.column) if bt.is_open(p.transform) else None
-        if summ is None or summ.get("ladder") is None:
+        if summ is None or summ.ladder is None:
             new.append(p)
             continue
-        rung = tr.ladder_transform(summ["ladder"])
+        rung = tr.ladder_transform(summ.ladder)
         if rung.name == "log":
             rung = fit_transform(rung, prep.numeric[p.column])
         notes.append(
-            LadderReading(
-                "predictor_power",
-                {k: v for k, v in summ.items() if k != "per_fold"},
-                rung.label(p.column),
-                e.cv.value,
-                column=p.column,
-            )
+            LadderReading(replace(summ, per_fold=None), rung.label(p.column), e.cv.value, p.column)
         )
         new.append(PredictorSpec(p.column, rung))
     if not notes:
@@ -1300,7 +1292,10 @@ def distinct_scales(
             still.append(e)
             continue
         if _has_estimate(target):  # some powers read on the ladder, others still estimated
-            got = ev(target)
+            try:
+                got = ev(target)
+            except KeyError:  # a ladder column the bank does not hold: the estimate stays
+                got = None
             if got is None:
                 still.append(e)
                 continue

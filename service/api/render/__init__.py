@@ -37,6 +37,7 @@ from . import (  # noqa: E402,F401
     data,
     drift,
     entries,
+    estimates,
     groups,
     incumbent,
     model,

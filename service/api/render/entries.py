@@ -10,6 +10,7 @@ from typing import Any
 
 from ...selection import entries as e
 from . import contract
+from .estimates import coefficient, ladder_reading, predictor_power, response_lambda
 
 
 @contract.register
@@ -89,24 +90,12 @@ def inference(i: e.Inference) -> dict[str, Any]:
 
 
 @contract.register
-def ladder_reading(r: e.LadderReading) -> dict[str, Any]:
-    out: dict[str, Any] = {"parameter": r.parameter}
-    if r.family is not None:
-        out["family"] = r.family
-    if r.column is not None:
-        out["column"] = r.column
-    return out | r.estimate | {"read_as": r.read_as, "cv_value_estimated": r.cv_value_estimated}
-
-
-@contract.register
 def estimates(est: e.Estimates) -> dict[str, Any]:
     out: dict[str, Any] = {}
     if est.response_lambda is not None:
-        out["response_lambda"] = est.response_lambda.to_dict()
-        if est.lambda_per_fold:
-            out["response_lambda"]["per_fold"] = list(est.lambda_per_fold)
+        out["response_lambda"] = response_lambda(est.response_lambda)
     if est.predictor_powers is not None:
-        out["predictor_powers"] = est.predictor_powers
+        out["predictor_powers"] = {c: predictor_power(p) for c, p in est.predictor_powers.items()}
     if est.read_as_ladder:
         out["read_as_ladder"] = [ladder_reading(r) for r in est.read_as_ladder]
     return out
@@ -120,7 +109,7 @@ def entry(r: e.EntryReport) -> dict[str, Any]:
         "equation": r.equation,
         "cv": r.cv,
         "fit": fit_summary(r.fit),
-        "coefficients": list(r.coefficients),
+        "coefficients": [coefficient(row) for row in r.coefficients],
         "score": score(r.score),
         "model": r.model,
         "warnings": list(r.warnings),

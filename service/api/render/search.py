@@ -81,23 +81,7 @@ def search(r: s.SearchSummary) -> dict[str, Any]:
         "exact_refits": r.exact_refits,
     }
     if r.box_cox is not None:
-        out["box_cox"] = box_cox(r.box_cox)
+        out["box_cox"] = r.box_cox
     if r.predictor_powers is not None:
-        out["predictor_powers"] = {
-            col: [power_estimate(p) for p in each] for col, each in r.predictor_powers
-        }
+        out["predictor_powers"] = r.predictor_powers
     return out
-
-
-@contract.register
-def box_cox(b: s.BoxCoxReport) -> dict[str, Any]:
-    out: dict[str, Any] = {"design": b.design, **b.estimate.to_dict()}
-    if b.on_rank_1 is not None:
-        out["on_rank_1_design"] = {"design": b.rank_1_design, **b.on_rank_1.to_dict()}
-        out["context"] = b.context
-    return out
-
-
-@contract.register
-def power_estimate(p: s.PowerEstimate) -> dict[str, Any]:
-    return {"response_transform": p.response_transform.to_dict(), **p.summary}

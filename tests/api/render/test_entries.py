@@ -10,6 +10,7 @@ import statsmodels.api as sm
 from scipy import stats
 from service.api.encode import to_jsonable
 from service.api.render import contract
+from service.core import boxtidwell as bt
 from service.core import transforms as tr
 from service.core.cvresult import CVResult
 from service.core.data import prepare
@@ -198,24 +199,21 @@ def test_estimates_render_the_lambda_its_folds_and_the_ladder_readings():
     lam = estimate_lambda("box_cox", y, np.ones((y.size, 1)))
     # source: scipy.stats.boxcox, the maximum-likelihood lambda of y alone
     assert lam.lam == pytest.approx(stats.boxcox(y)[1], abs=1e-4)
-    reading = LadderReading(
-        "predictor_power", {"power": 0.04, "ladder": 0.0}, "log(x)", 3.5, column="x"
-    )
-    est = Estimates(lam, (0.1, 0.2), {"x": [{"power": 0.04}]}, (reading,))
+    x = rng.uniform(1, 10, 200)
+    z = 1 + 2 * np.sqrt(x) + rng.normal(0, 0.05, 200)
+    power = bt.estimate_powers(z, np.ones((x.size, 1)), x).summary(0)
+    reading = LadderReading(power, "sqrt(x)", 3.5, "x")
+    est = Estimates(replace(lam, per_fold=(0.1, 0.2)), {"x": power}, (reading,))
     out = to_jsonable(est)
     assert list(out) == ["response_lambda", "predictor_powers", "read_as_ladder"]
     assert out["response_lambda"]["lambda"] == lam.lam
     assert list(out["response_lambda"])[-1] == "per_fold"
     assert out["response_lambda"]["per_fold"] == [0.1, 0.2]
-    assert out["read_as_ladder"] == [
-        {
-            "parameter": "predictor_power",
-            "column": "x",
-            "power": 0.04,
-            "ladder": 0.0,
-            "read_as": "log(x)",
-            "cv_value_estimated": 3.5,
-        }
-    ]
+    # source: simulation truth, z linear in x^0.5
+    assert out["predictor_powers"]["x"]["power"] == pytest.approx(0.5, abs=0.05)
+    (read,) = out["read_as_ladder"]
+    assert list(read)[:2] == ["parameter", "column"] and read["column"] == "x"
+    assert read["power"] == power.power and read["read_as"] == "sqrt(x)"
+    assert read["cv_value_estimated"] == 3.5
     # no folds estimated the lambda: no per_fold list
     assert "per_fold" not in to_jsonable(Estimates(lam))["response_lambda"]

@@ -2,20 +2,15 @@
 
 import numpy as np
 import pytest
-from scipy import stats
 from service.api.encode import to_jsonable
 from service.api.render import contract
-from service.core import transforms as tr
 from service.core.conditions import CONDITION_NAMES
 from service.core.data import prepare
-from service.core.likelihood import estimate_lambda
 from service.core.numbers import failure_text
 from service.selection.search import (
     BAND_RULE,
     Band,
     BandReport,
-    BoxCoxReport,
-    PowerEstimate,
     select,
 )
 from service.selection.search_setup import SearchOptions
@@ -74,24 +69,3 @@ def test_failure_reasons_and_strategy_render_as_the_contract_states():
     assert failure_text(first["reason"], first["candidates"], first["wordings"]) in " ".join(
         body["warnings"]
     )
-
-
-def test_box_cox_block_states_its_design_and_the_rank_1_context():
-    rng = np.random.default_rng(8)
-    y = rng.lognormal(1.0, 0.3, 150)
-    X = np.ones((y.size, 1))
-    est = estimate_lambda("box_cox", y, X)
-    # source: scipy.stats.boxcox, the maximum-likelihood lambda with no predictor
-    assert est.lam == pytest.approx(stats.boxcox(y)[1], abs=1e-4)
-    alone = contract(BoxCoxReport(est))
-    assert list(alone)[:2] == ["design", "lambda"] and alone["design"] == BoxCoxReport.design
-    assert "on_rank_1_design" not in alone and "context" not in alone
-    both = contract(BoxCoxReport(est, est, "log(x)", "lambda depends on the predictors"))
-    assert list(both)[-2:] == ["on_rank_1_design", "context"]
-    assert both["on_rank_1_design"]["design"] == "log(x)"
-    assert both["on_rank_1_design"]["lambda"] == est.lam
-
-
-def test_predictor_powers_are_listed_by_column_then_response_scale():
-    out = contract(PowerEstimate(tr.Transform("log"), {"power": 0.5, "ladder": 0.5}))
-    assert out == {"response_transform": {"name": "log"}, "power": 0.5, "ladder": 0.5}
