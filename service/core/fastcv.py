@@ -36,11 +36,11 @@ from .bank import ColumnBank
 from .boxtidwell import (
     FoldPowerProblem,
     PowerFit,
+    _power_columns_stacked,
     estimate_fold_powers,
     estimate_fold_powers_by_series,
     estimate_many_fold_powers,
     estimate_powers,
-    power_columns,
 )
 from .cvresult import CVResult, Dynamic, OutOfFold, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
@@ -100,6 +100,14 @@ class Found:
     powers: list[list[PowerFit]] | None = None
     near: float | None = None
     lambdas: list[float | None] | None = None
+
+
+def _fitted(designs: list[np.ndarray | None], B: np.ndarray) -> np.ndarray:
+    """(n, K): every row's fitted value under every fold's solution, fold k on its own
+    design ``designs[k]`` (n, p)."""
+    X = np.stack([d for d in designs if d is not None])
+    out: np.ndarray = np.einsum("knp,kp->nk", X, B)
+    return out
 
 
 @dataclass
@@ -366,10 +374,8 @@ class Scorer:
                     None if powers_of is None else powers_of[r],
                 )
             # ---- fitted values of every row under every fold's solution
-            if dynamic is None:
-                ETA = (B @ XS.T).T  # (n, K), each fold's column contiguous
-            else:
-                ETA = np.stack([designs[k] @ B[k] for k in range(K)], axis=1)
+            # (n, K), each fold's column contiguous; with estimated powers each fold's own design
+            ETA = (B @ XS.T).T if dynamic is None else _fitted(designs, B)
             if keep and r == 0:
                 resid = np.empty(n)
                 for k in range(K):
@@ -748,25 +754,27 @@ class Scorer:
             fits = estimate_fold_powers(
                 Z, XS, dyn.x, train, dyn.start, dyn.boxcox_form, grams=Gff, crosses=cff
             )
-        logx = np.log(dyn.x)
-        G = np.empty((K, p, p))
-        c = np.empty((K, p))
-        full: list[np.ndarray] = []
-        for k, fit in enumerate(fits):
-            powers.append([float(a) for a in fit.powers])
-            W, _ = power_columns(logx, fit.powers, dyn.boxcox_form)
-            X = np.empty((XS.shape[0], p))
-            X[:, fixed_pos] = XS
-            X[:, dyn.positions] = W
-            designs[k] = X
-            full.append(X)
-            Xtr = X[train[k]]
-            G[k] = Xtr.T @ Xtr
-            c[k] = Xtr.T @ zs[k][train[k]]
+        # every fold's design at its own powers, all folds at once (the same columns as
+        # power_columns fold by fold), then the training sums as masked products
+        A = np.array([fit.powers for fit in fits], dtype=float)
+        powers.extend(A.tolist())
+        W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+        n = XS.shape[0]
+        X = np.empty((K, n, p))
+        X[:, :, fixed_pos] = XS
+        X[:, :, dyn.positions] = W
+        M = np.zeros((K, n))
+        for k in range(K):
+            M[k, train[k]] = 1.0
+        Xm = X * M[:, :, None]
+        G = np.matmul(Xm.transpose(0, 2, 1), X)
+        c = np.einsum("knp,kn->kp", Xm, np.stack(zs))
         Bk, ok = solve_batch(G, c)
         B[:] = Bk
+        for k in range(K):
+            designs[k] = X[k]
         refits = 0
         for i in np.flatnonzero(~ok):
-            B[i] = _exact_refit(full[i][train[i]], zs[i][train[i]], names, i)
+            B[i] = _exact_refit(X[i][train[i]], zs[i][train[i]], names, i)
             refits += 1
         return refits
