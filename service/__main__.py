@@ -111,14 +111,15 @@ def serve_parser(host: str, port: int, workers: int) -> argparse.ArgumentParser:
         type=whole_number,
         default=workers,
         metavar="N",
-        help=f"server processes, 1-64 (default {workers})",
+        help=f"server processes, 1-64 (default {workers}: BESTSCALE_WORKERS, else one per "
+        "core this process may use)",
     )
     return ap
 
 
 def serve(argv: list[str]) -> int:
     s = _settings_or_exit()
-    ap = serve_parser(s.host, s.port, s.workers)
+    ap = serve_parser(s.host, s.port, s.server_processes())
     args = ap.parse_args(argv)
     if not 1 <= args.workers <= 64:
         ap.error(f"--workers {args.workers}: give a number of processes from 1 to 64")

@@ -7,6 +7,8 @@ one message per variable (see ``python -m service``), never at the first request
 from __future__ import annotations
 
 import json
+import math
+import os
 import re
 from functools import lru_cache
 from typing import Annotated, Literal
@@ -24,12 +26,38 @@ _KEY_ID = re.compile(r"^[A-Za-z0-9._-]{1,64}$")
 MIN_MODEL_KEY_CHARS = 32
 
 
+#: the cgroup v2 CPU limit of this process's group ("$MAX $PERIOD", or "max $PERIOD")
+CGROUP_CPU_MAX = "/sys/fs/cgroup/cpu.max"
+
+
+def usable_cores() -> int:
+    """Cores this process may run on: its CPU affinity, lowered to the cgroup v2 CPU quota
+    rounded up (what a container's CPU limit sets) when one is set."""
+    try:
+        n = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # no affinity call on this platform
+        n = os.cpu_count() or 1
+    try:
+        with open(CGROUP_CPU_MAX, encoding="ascii") as f:
+            quota, period = f.read().split()[:2]
+        if quota != "max" and int(period) > 0:
+            n = min(n, math.ceil(int(quota) / int(period)))
+    except (OSError, ValueError):
+        pass  # no cgroup v2 limit readable: the affinity alone
+    return max(1, n)
+
+
 class Settings(BaseSettings):
     model_config = SettingsConfigDict(env_prefix="BESTSCALE_", extra="ignore", frozen=True)
 
     host: str = Field("127.0.0.1", min_length=1, description="address to listen on")
     port: int = Field(8000, ge=1, le=65535, description="port to listen on")
-    workers: int = Field(1, ge=1, le=64, description="server processes")
+    workers: int | None = Field(
+        None,
+        ge=1,
+        le=64,
+        description="server processes (unset: one per core this process may use, at most 64)",
+    )
     group_processes: int = Field(
         1,
         ge=1,
@@ -167,6 +195,11 @@ class Settings(BaseSettings):
     log_level: Literal["critical", "error", "warning", "info", "debug"] = Field(
         "info", description="level of the JSON log lines"
     )
+
+    def server_processes(self) -> int:
+        """Server processes to start: ``workers`` when set, else one per usable core (at most
+        64)."""
+        return self.workers if self.workers is not None else min(usable_cores(), 64)
 
     @field_validator("log_level", mode="before")
     @classmethod

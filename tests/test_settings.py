@@ -10,6 +10,7 @@ from pathlib import Path
 
 import pytest
 from pydantic import ValidationError
+from service import settings as settings_mod
 from service.settings import Settings, describe_error, get_settings
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -49,7 +50,14 @@ def env(monkeypatch):
 def test_defaults_are_the_documented_ones(env):
     s = env()
     # source: the settings table of README.md
-    assert (s.host, s.port, s.workers, s.pool_size, s.blas_threads) == ("127.0.0.1", 8000, 1, 2, 1)
+    assert (s.host, s.port, s.workers, s.pool_size, s.blas_threads) == (
+        "127.0.0.1",
+        8000,
+        None,
+        2,
+        1,
+    )
+    assert s.server_processes() == min(settings_mod.usable_cores(), 64)  # one per core
     assert s.max_body_bytes == 64 * 1024 * 1024
     assert (
         s.max_rows,
@@ -184,3 +192,34 @@ def test_service_refuses_to_start_with_bad_settings():
     )
     assert r.returncode == 2
     assert "BESTSCALE_PORT" in r.stderr and "Traceback" not in r.stderr
+
+
+@pytest.mark.parametrize(
+    "cpu_max, affinity, want",
+    [
+        (None, 8, 8),  # no cgroup file: the affinity
+        ("max 100000\n", 8, 8),  # no quota
+        ("150000 100000\n", 8, 2),  # 1.5 CPUs: two processes
+        ("200000 100000\n", 8, 2),
+        ("50000 100000\n", 8, 1),  # half a CPU: still one
+        ("800000 100000\n", 2, 2),  # a quota above the affinity: the affinity
+        ("garbled\n", 4, 4),
+    ],
+)
+def test_usable_cores_follow_affinity_and_the_cgroup_quota(
+    monkeypatch, tmp_path, cpu_max, affinity, want
+):
+    path = tmp_path / "cpu.max"
+    if cpu_max is not None:
+        path.write_text(cpu_max)
+    monkeypatch.setattr(settings_mod, "CGROUP_CPU_MAX", str(path))
+    monkeypatch.setattr(settings_mod.os, "sched_getaffinity", lambda pid: set(range(affinity)))
+    # source: Linux cgroup v2 documentation, cpu.max: "$MAX $PERIOD" ("max" for no limit),
+    # the group may use MAX microseconds of CPU every PERIOD microseconds
+    assert settings_mod.usable_cores() == want
+
+
+def test_workers_setting_overrides_the_core_count(env, monkeypatch):
+    monkeypatch.setattr(settings_mod, "usable_cores", lambda: 100)
+    assert env().server_processes() == 64  # capped at the largest accepted value
+    assert env(workers="3").server_processes() == 3

@@ -4,7 +4,9 @@ Routes that compute are plain ``def`` functions run in the framework's thread po
 event loop (and ``/healthz``) stays responsive; this gate keeps the number of computations
 running at once at ``pool_size`` (setting BESTSCALE_POOL_SIZE) instead of queueing without
 bound.  ``saturated()`` lets the outer middleware refuse a request before its body is read
-when every slot is already taken; ``compute_slot()`` is the authoritative gate.
+when every slot is already taken; ``compute_slot()`` is the authoritative gate.  The slots
+are this process's: the server runs one process per core by default (BESTSCALE_WORKERS), each
+with its own slots and its own 503 answers.
 """
 
 from __future__ import annotations

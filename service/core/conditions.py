@@ -29,7 +29,6 @@ from dataclasses import dataclass, replace
 from typing import ClassVar
 
 import numpy as np
-from scipy import stats
 
 from service.core import _condition_tests as ct
 from service.core import sources as src
@@ -630,7 +629,7 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> InfluenceCondition:
         p_value = None
         if df is not None and statistic is not None and fit.df_resid >= 2:
             # Bonferroni: n times the two-sided t_{n-p-1} tail probability of the largest |t_i|
-            p_value = min(1.0, n * 2 * float(stats.t.sf(statistic, df)))
+            p_value = min(1.0, n * 2 * ct.t_sf(statistic, df))
         return ExtremeRowCheck(
             name=name,
             statistic=statistic,

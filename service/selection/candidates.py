@@ -17,6 +17,7 @@ Every transformed column is computed once into a :class:`bank.ColumnBank`.
 
 from __future__ import annotations
 
+import hashlib
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass, field
@@ -312,6 +313,86 @@ def build_space(
     return space
 
 
+def inputs_key(tag: bytes, *arrays: np.ndarray) -> bytes:
+    """A digest of ``tag`` and the shapes and float64 bytes of ``arrays``: equal only for
+    identical inputs (a kept estimate is reused for nothing else)."""
+    h = hashlib.blake2b(tag, digest_size=20)
+    for a in arrays:
+        arr = np.ascontiguousarray(a, dtype=float)
+        h.update(repr(arr.shape).encode())
+        h.update(arr.tobytes())
+    return h.digest()
+
+
+class PowerFits:
+    """All-rows power estimates of one request by their inputs: the screening step's
+    estimates are kept here, and a candidate whose all-rows estimate has the very same
+    inputs (the response on the same scale, the same fixed columns, the same predictor
+    values, the same form) takes the kept fit instead of estimating it again.  Inputs are
+    matched by a digest of their shapes and bytes, so only identical arrays share a fit;
+    a failure is kept too and raised again."""
+
+    def __init__(self) -> None:
+        self._fits: dict[bytes, bt.PowerFit | CandidateFailure] = {}
+        self.hits = 0
+
+    @staticmethod
+    def key(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool) -> bytes:
+        x = np.asarray(x, dtype=float)
+        one = x[:, None] if x.ndim == 1 else x  # one power: (n,) as (n, 1)
+        return inputs_key(b"boxcox" if boxcox_form else b"plain", z, Xf, one)
+
+    def get(
+        self, z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool
+    ) -> bt.PowerFit | CandidateFailure | None:
+        """The kept fit (or failure) of these inputs, or None when none is kept."""
+        got = self._fits.get(self.key(z, Xf, x, boxcox_form))
+        if got is not None:
+            self.hits += 1
+        return got
+
+    def put(
+        self,
+        z: np.ndarray,
+        Xf: np.ndarray,
+        x: np.ndarray,
+        boxcox_form: bool,
+        fit: bt.PowerFit | CandidateFailure,
+    ) -> None:
+        self._fits[self.key(z, Xf, x, boxcox_form)] = fit
+
+    def estimate_many(
+        self, problems: list[tuple[np.ndarray, np.ndarray, np.ndarray]], boxcox_form: bool
+    ) -> list[bt.PowerFit | CandidateFailure]:
+        """:func:`boxtidwell.estimate_many_powers` of ``problems`` ``(z, X_f, x)``: the kept
+        fit (or failure) of each whose inputs were estimated before, the others in one
+        batch, kept for later."""
+        out = [self.get(z, Xf, x, boxcox_form) for z, Xf, x in problems]
+        missing = [i for i, fit in enumerate(out) if fit is None]
+        if missing:
+            made = bt.estimate_many_powers([problems[i] for i in missing], boxcox_form)
+            for i, fit in zip(missing, made, strict=True):
+                out[i] = fit
+                self.put(*problems[i], boxcox_form, fit)
+        return [fit for fit in out if fit is not None]
+
+    def estimate(
+        self, z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool
+    ) -> bt.PowerFit:
+        """:func:`boxtidwell.estimate_powers` (started at 1, with standard errors) of these
+        inputs: the kept fit, or estimated now and kept."""
+        got = self.get(z, Xf, x, boxcox_form)
+        if got is None:
+            try:
+                got = bt.estimate_powers(z, Xf, x, boxcox_form=boxcox_form)
+            except CandidateFailure as exc:
+                got = exc
+            self.put(z, Xf, x, boxcox_form, got)
+        if isinstance(got, CandidateFailure):
+            raise got
+        return got
+
+
 def screening_powers(
     prep: Prepared,
     preds: list[list[tr.Transform]],
@@ -319,14 +400,17 @@ def screening_powers(
     intercept: bool,
     seed: int,
     deadline: Deadline | None = None,
+    fits: PowerFits | None = None,
 ) -> tuple[dict[tuple[tr.Transform, str], dict[str, Any]], dict[tuple[tr.Transform, str], float]]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
     For each fixed response scale and each predictor offering an estimated power, the
     power is estimated with the other predictors untransformed (one power at a time, so a
-    predictor without effect cannot stall the others).  Past the request's
-    ``deadline`` no further power is estimated: the search then runs
-    without the missing estimates' ladder rungs.  Returns
+    predictor without effect cannot stall the others); one predictor's powers on every
+    response scale take their steps together (:meth:`PowerFits.estimate_many`).  Past the
+    request's ``deadline`` no further predictor is estimated: the search then runs
+    without the missing estimates' ladder rungs.  Each estimate is kept in ``fits`` (when
+    given), where a candidate with the same inputs finds it.  Returns
     ({(response, column): estimate summary}, {(response, column): power}).
     """
     cols = [c for c, o in zip(prep.predictors, preds, strict=True) if any(bt.is_open(t) for t in o)]
@@ -344,29 +428,35 @@ def screening_powers(
             base[c] = [(vals == level).astype(float) for level in lv if level != ref]
         else:
             base[c] = [prep.numeric[c][rows]]
-    info: dict[tuple[tr.Transform, str], dict[str, Any]] = {}
-    powers: dict[tuple[tr.Transform, str], float] = {}
+    scales: list[tuple[tr.Transform, np.ndarray]] = []  # (response scale, z on its rows)
     for t in responses:
         if t.needs_lambda:
             continue
         t0 = fit_transform(t, prep.y)
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             z = t0.forward(prep.y[rows])
-        if not np.all(np.isfinite(z)):
-            continue
-        for c in cols:
-            if deadline is not None and deadline.passed():
-                return info, powers
-            fixed = ([np.ones(rows.size)] if intercept else []) + [
-                v for other in prep.predictors if other != c for v in base[other]
-            ]
-            Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))
-            try:
-                fit = bt.estimate_powers(z, Xf, prep.numeric[c][rows], boxcox_form=intercept)
-            except CandidateFailure:
-                continue
-            info[(t, c)] = fit.summary(0)
-            powers[(t, c)] = float(fit.powers[0])
+        if np.all(np.isfinite(z)):
+            scales.append((t, z))
+    kept = fits if fits is not None else PowerFits()
+    got: dict[tuple[tr.Transform, str], bt.PowerFit] = {}
+    for c in cols:
+        if deadline is not None and deadline.passed():
+            break
+        fixed = ([np.ones(rows.size)] if intercept else []) + [
+            v for other in prep.predictors if other != c for v in base[other]
+        ]
+        Xf = np.column_stack(fixed) if fixed else np.empty((rows.size, 0))
+        x = prep.numeric[c][rows]
+        # this predictor's power on every response scale: one batch of steps
+        for (t, _z), fit in zip(
+            scales, kept.estimate_many([(z, Xf, x) for _t, z in scales], intercept), strict=True
+        ):
+            if not isinstance(fit, CandidateFailure):
+                got[(t, c)] = fit
+    # in the order of the response scales, then the predictors (as the ladder rungs are added)
+    order = sorted(got, key=lambda k: (responses.index(k[0]), cols.index(k[1])))
+    info = {k: got[k].summary(0) for k in order}
+    powers = {k: float(got[k].powers[0]) for k in order}
     return info, powers
 
 

@@ -40,7 +40,7 @@ from ..core.errors import (
 )
 from ..core.fastcv import Found, Scorer
 from ..core.folds import CVPlan, make_plan
-from ..core.likelihood import estimate_lambda, fit_transform
+from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
 from ..core.numbers import count_of, failure_text
 from ..core.spec import Design, PredictorSpec, Specification, SpecKey, build_design
 from . import candidates as cand
@@ -91,6 +91,33 @@ def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
     return sorted(cands, key=lambda s: s.simplicity())
 
 
+class KeptLambdas:
+    """Response lambdas estimated on all rows with their interval
+    (:func:`likelihood.estimate_lambda`), kept by their inputs (family, response, design)
+    for the rest of the request: the reported Box-Cox lambda, the ladder readings of
+    estimated candidates and the lambda on rank 1's design ask for the same estimate on
+    the same design more than once.  A failure is kept too and raised again."""
+
+    def __init__(self) -> None:
+        self._got: dict[bytes, LambdaEstimate | CandidateFailure | ValueError] = {}
+        self.hits = 0
+
+    def estimate(self, family: str, y: np.ndarray, X: np.ndarray) -> LambdaEstimate:
+        key = cand.inputs_key(family.encode(), y, X)
+        got = self._got.get(key)
+        if got is None:
+            try:
+                got = estimate_lambda(family, y, X)
+            except (CandidateFailure, ValueError) as exc:
+                got = exc
+            self._got[key] = got
+        else:
+            self.hits += 1
+        if isinstance(got, Exception):
+            raise got
+        return got
+
+
 @dataclass(frozen=True)
 class _Pre:
     """What :meth:`_Evaluator._found` prepared for one specification: the columns whose
@@ -105,8 +132,18 @@ class _Pre:
 class _Evaluator:
     """Exact original-scale scoring of specifications over one column bank."""
 
-    def __init__(self, prep: Prepared, space: cand.Space, scorer: Scorer, intercept: bool):
+    def __init__(
+        self,
+        prep: Prepared,
+        space: cand.Space,
+        scorer: Scorer,
+        intercept: bool,
+        fits: cand.PowerFits | None = None,
+        lambdas: KeptLambdas | None = None,
+    ):
         self.prep, self.space, self.scorer, self.intercept = prep, space, scorer, intercept
+        self.fits = fits if fits is not None else cand.PowerFits()  # all-rows power fits
+        self.lambdas = lambdas if lambdas is not None else KeptLambdas()  # all-rows lambdas
         self.scored: list[Scored] = []
         self.failures: list[Failure] = []
         self.n_fail = 0
@@ -227,7 +264,7 @@ class _Evaluator:
         if not dyn:
             return None, None
         z, x = self._power_inputs(spec)
-        fit = bt.estimate_powers(z, self.space.bank.columns(cols), x, boxcox_form=self.intercept)
+        fit = self.fits.estimate(z, self.space.bank.columns(cols), x, self.intercept)
         return self._started(spec, dyn, x, fit), fit
 
     def _power_inputs(self, spec: Specification) -> tuple[np.ndarray, np.ndarray]:
@@ -255,14 +292,15 @@ class _Evaluator:
     ) -> dict[int, _Pre]:
         """For the specifications scored one at a time (``rest``: index -> design): each
         one's all-rows power estimate (the start of its folds', all of them at once:
-        :func:`boxtidwell.estimate_many_powers`) and the powers or lambdas of its training
-        folds, found for all of them together (:meth:`Scorer.powers_many`,
+        :func:`boxtidwell.estimate_many_powers`; one whose inputs the screening step
+        already estimated takes that fit from ``self.fits``) and the powers or lambdas of
+        its training folds, found for all of them together (:meth:`Scorer.powers_many`,
         :meth:`Scorer.lambdas_many`).  A specification whose all-rows estimate fails is
         left out: scoring it alone records the failure in its place."""
         pre: dict[int, _Pre] = {}
         power_items: list[tuple[int, tr.Transform, list[int], Dynamic]] = []
         lambda_items: list[tuple[int, tr.Transform, list[int]]] = []
-        starts: list[tuple[int, np.ndarray, np.ndarray]] = []
+        starts: list[tuple[int, np.ndarray, np.ndarray, np.ndarray]] = []
         for i, (cols, _names, dyn) in rest.items():
             spec = specs[i]
             t = spec.response_transform
@@ -271,15 +309,12 @@ class _Evaluator:
                     z, x = self._power_inputs(spec)
                 except CandidateFailure:
                     continue
-                starts.append((i, z, x))
+                starts.append((i, z, self.space.bank.columns(cols), x))
             elif t.needs_lambda:
                 lambda_items.append((i, t, cols))
-        # every all-rows start in one batch (boxtidwell.estimate_many_powers)
-        fits = bt.estimate_many_powers(
-            [(z, self.space.bank.columns(rest[i][0]), x) for i, z, x in starts],
-            boxcox_form=self.intercept,
-        )
-        for (i, _z, x), fit in zip(starts, fits, strict=True):
+        # every all-rows start not kept from the screening step in one batch
+        fits = self.fits.estimate_many([(z, Xf, x) for _i, z, Xf, x in starts], self.intercept)
+        for (i, _z, _Xf, x), fit in zip(starts, fits, strict=True):
             if isinstance(fit, CandidateFailure):
                 continue
             cols, _names, dyn = rest[i]
@@ -456,10 +491,12 @@ def select(
         )
 
     # Box-Cox lambda on the untransformed design: reported, and its ladder rung tried.
-    box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings)
+    lambdas = KeptLambdas()  # all-rows lambdas with intervals, asked for more than once
+    box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings, lambdas)
     # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
+    power_fits = cand.PowerFits()  # the screening step's fits, reused by equal candidates
     bt_info, bt_powers = cand.screening_powers(
-        prep, preds, resp, opts.intercept, opts.seed, deadline
+        prep, preds, resp, opts.intercept, opts.seed, deadline, power_fits
     )
     preds = cand.add_ladder_rungs(prep, preds, bt_info)
     total = cand.grid_size(resp, preds)
@@ -480,7 +517,7 @@ def select(
     index = FoldIndex.of(plan, prep.n)
     space = cand.build_space(prep, preds, index, opts.intercept, extra)
     scorer = Scorer(space.bank, prep.y, plan, shift_needed)
-    ev = _Evaluator(prep, space, scorer, opts.intercept)
+    ev = _Evaluator(prep, space, scorer, opts.intercept, power_fits, lambdas)
     budget = Budget(opts.max_candidates, deadline, opts.stop)
     counts = {"screened": 0}
     if strategy == "exhaustive":
@@ -584,7 +621,7 @@ def select(
         assert first is not None  # listed with entries[0]
         box_cox = {
             **box_cox_info,
-            **_box_cox_context(box_cox_info, entries[0], first.design, prep),
+            **_box_cox_context(box_cox_info, entries[0], first.design, prep, lambdas),
         }
     search = SearchSummary(
         considered=int(total),
@@ -965,7 +1002,11 @@ def _exhaustive(
 
 
 def _response_lambdas(
-    prep: Prepared, opts: SearchOptions, resp: list[tr.Transform], warnings: list[str]
+    prep: Prepared,
+    opts: SearchOptions,
+    resp: list[tr.Transform],
+    warnings: list[str],
+    lambdas: KeptLambdas,
 ) -> tuple[dict[str, Any] | None, dict[tr.Transform, float]]:
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
@@ -991,7 +1032,7 @@ def _response_lambdas(
         return None, lams
     for t in families:
         try:
-            est = estimate_lambda(t.name, prep.y, X0)
+            est = lambdas.estimate(t.name, prep.y, X0)
         except (CandidateFailure, ValueError):
             continue
         lams[t] = est.lam
@@ -1026,7 +1067,11 @@ def _screen_scales(
 
 
 def _box_cox_context(
-    info: dict[str, Any], first: dict[str, Any], design: Design, prep: Prepared
+    info: dict[str, Any],
+    first: dict[str, Any],
+    design: Design,
+    prep: Prepared,
+    lambdas: KeptLambdas,
 ) -> dict[str, Any]:
     """When rank 1's response scale is not what the reported lambda suggests: lambda again
     on rank 1's design, with one sentence saying that lambda depends on the predictor scales."""
@@ -1041,7 +1086,7 @@ def _box_cox_context(
     if same or not np.all(prep.y > 0):
         return {}
     try:
-        est = estimate_lambda("box_cox", prep.y, design.X)
+        est = lambdas.estimate("box_cox", prep.y, design.X)
     except (CandidateFailure, ValueError):
         return {}
     preds = ", ".join(
@@ -1145,7 +1190,7 @@ def _ladder_reading(
     notes: list[dict[str, Any]] = []
     if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated):
         try:
-            est = estimate_lambda(t.name, prep.y, build_design(spec, prep).X)
+            est = ev.lambdas.estimate(t.name, prep.y, build_design(spec, prep).X)
         except (CandidateFailure, ValueError):
             return None, []
         if est.ladder is None:

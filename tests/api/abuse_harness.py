@@ -46,6 +46,9 @@ class Server:
         full = {**os.environ, **(env or {})}
         full["BESTSCALE_PORT"] = str(self.port)
         full["BESTSCALE_LOG_LEVEL"] = "warning"
+        # one server process unless asked otherwise: the measures read the memory of the
+        # process started here, which then is the one answering
+        full["BESTSCALE_WORKERS"] = (env or {}).get("BESTSCALE_WORKERS", "1")
         if source:
             full["PYTHONPATH"] = source
         self.proc = subprocess.Popen(

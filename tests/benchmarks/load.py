@@ -1,6 +1,9 @@
 """Load test, run by hand: ``python tests/benchmarks/load.py [--clients 8] [--seconds 20]``.
 
-Starts ``python -m service`` on 127.0.0.1 at a free port in a subprocess, runs N concurrent
+Starts ``python -m service`` on 127.0.0.1 at a free port in a subprocess (as the README runs
+it: its default processes and compute slots unless ``--workers`` / ``--pool-size`` are given;
+``--baseline`` first runs one process with 2 compute slots, the earlier default, and prints
+the throughput ratio of the two measured in the same run), runs N concurrent
 clients for a fixed time against it (``--mix service``: selections on the shipped demo data,
 predictions and transform look-ups; ``--mix selections``: only default-search selections of
 2,000 invented rows x 1 predictor, the issue's throughput case), probes ``/healthz`` every 50 ms meanwhile, then stops the server.
@@ -47,25 +50,18 @@ def percentile(values: list[float], q: float) -> float:
 
 
 class Server:
-    def __init__(self, port: int, workers: int, pool_size: int):
-        env = {
-            **os.environ,
-            "BESTSCALE_POOL_SIZE": str(pool_size),
-            "BESTSCALE_LOG_LEVEL": "warning",
-        }
+    """``python -m service`` on 127.0.0.1; ``workers`` / ``pool_size`` None: its defaults."""
+
+    def __init__(self, port: int, workers: int | None, pool_size: int | None):
+        env = {**os.environ, "BESTSCALE_LOG_LEVEL": "warning"}
+        for var in ("BESTSCALE_WORKERS", "BESTSCALE_POOL_SIZE"):
+            env.pop(var, None)  # the defaults unless given below
+        if pool_size is not None:
+            env["BESTSCALE_POOL_SIZE"] = str(pool_size)
+        flags = [] if workers is None else ["--workers", str(workers)]
         self.port = port
         self.proc = subprocess.Popen(
-            [
-                sys.executable,
-                "-m",
-                "service",
-                "--host",
-                "127.0.0.1",
-                "--port",
-                str(port),
-                "--workers",
-                str(workers),
-            ],
+            [sys.executable, "-m", "service", "--host", "127.0.0.1", "--port", str(port), *flags],
             cwd=ROOT,
             env=env,
             stdout=subprocess.DEVNULL,
@@ -85,6 +81,32 @@ class Server:
             except OSError:
                 time.sleep(0.25)
         raise SystemExit("server did not become ready")
+
+    def processes(self) -> tuple[int, float]:
+        """(server processes, their resident memory in MiB): the supervisor and its workers
+        (uvicorn's own children; the multiprocessing helper counted in the memory)."""
+        import psutil
+
+        top = psutil.Process(self.proc.pid)
+        procs = [top, *top.children(recursive=True)]
+        workers = [
+            p for p in procs if "multiprocessing.resource_tracker" not in " ".join(p.cmdline())
+        ]
+        return max(1, len(workers) - 1), sum(p.memory_info().rss for p in procs) / 2**20
+
+    def cpu_seconds(self) -> float:
+        """User + system CPU seconds of the server's processes so far."""
+        import psutil
+
+        top = psutil.Process(self.proc.pid)
+        total = 0.0
+        for p in [top, *top.children(recursive=True)]:
+            try:
+                t = p.cpu_times()
+            except psutil.Error:
+                continue
+            total += t.user + t.system
+        return total
 
     def stop(self) -> None:
         self.proc.terminate()
@@ -201,22 +223,14 @@ def scrape_total(port: int) -> float:
     return total
 
 
-def main() -> int:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    ap.add_argument("--clients", type=int, default=8)
-    ap.add_argument("--seconds", type=float, default=20)
-    ap.add_argument("--workers", type=int, default=1)
-    ap.add_argument("--pool-size", type=int, default=2)
-    ap.add_argument("--mix", choices=("service", "selections"), default="service")
-    ap.add_argument("--rows", type=int, default=2000, help="rows per selection (--mix selections)")
-    args = ap.parse_args()
-    clients = max(1, min(args.clients, MAX_CLIENTS))
-    seconds = max(1.0, min(args.seconds, MAX_SECONDS))
-
-    server = Server(free_port(), args.workers, args.pool_size)
+def run(args, workers: int | None, pool_size: int | None, clients: int, seconds: float) -> float:
+    """One server, one load; prints its figures and returns the successful selections a
+    second (all successful requests with ``--mix service``)."""
+    server = Server(free_port(), workers, pool_size)
     try:
         ready = server.wait_ready()
         port = server.port
+        n_procs, rss = server.processes()
         idle: list[float] = []
         probe_health(port, time.monotonic() + 3, idle)  # baseline: the idle server
         mix = request_mix() if args.mix == "service" else selection_only_mix(args.rows)
@@ -229,11 +243,13 @@ def main() -> int:
         ]
         threads.append(threading.Thread(target=probe_health, args=(port, stop, health)))
         t0 = time.monotonic()
+        cpu0 = server.cpu_seconds()
         for t in threads:
             t.start()
         for t in threads:
             t.join(seconds + 150)
         wall = time.monotonic() - t0
+        cpu = server.cpu_seconds() - cpu0
         counted = scrape_total(port)
     finally:
         server.stop()
@@ -242,15 +258,23 @@ def main() -> int:
     busy = sum(n for (p, s), n in tally.status.items() if s == 503)
     client_err = sum(n for (p, s), n in tally.status.items() if 400 <= s < 500)
     server_err = sum(n for (p, s), n in tally.status.items() if s >= 500 and s != 503)
+    described = (
+        f"{'default ' if workers is None else ''}{n_procs} worker process(es), "
+        f"{pool_size if pool_size is not None else 'default'} compute slots per process"
+    )
     print(
-        f"machine: {os.cpu_count()} cores; server: {args.workers} worker(s), pool size "
-        f"{args.pool_size}, ready after {ready:.1f} s"
+        f"server: {described}, ready after {ready:.1f} s, resident memory {rss:.0f} MiB "
+        "(all its processes, before the load)"
     )
     print(
         f"load: {clients} clients for {seconds:g} s (wall {wall:.1f} s), "
         f"{tally.sent} requests answered"
     )
     print(f"throughput: {ok / wall:.1f} successful requests/s ({tally.sent / wall:.1f} answered/s)")
+    print(
+        f"server CPU: {cpu:.1f} s in {wall:.1f} s ({cpu / wall:.2f} cores busy on average), "
+        f"{cpu / max(ok, 1):.3f} s per successful request (503 answers included)"
+    )
     for path, lat in sorted(tally.latency.items()):
         print(
             f"  {path:18s} n={len(lat):6d}  p50={percentile(lat, 50) * 1e3:8.1f} ms  "
@@ -280,7 +304,42 @@ def main() -> int:
         f"metrics: /metrics counted {counted:.0f} of the {tally.sent} load requests "
         f"({'consistent' if counted == tally.sent else 'MISMATCH'})"
     )
-    return 1 if server_err or tally.errors or counted != tally.sent else 0
+    if server_err or tally.errors or counted != tally.sent:
+        raise SystemExit(1)
+    return ok / wall
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--clients", type=int, default=8)
+    ap.add_argument("--seconds", type=float, default=20)
+    ap.add_argument("--workers", type=int, default=None, help="default: the server's own")
+    ap.add_argument("--pool-size", type=int, default=None, help="default: the server's own")
+    ap.add_argument(
+        "--baseline",
+        action="store_true",
+        help="first run 1 worker process with 2 compute slots (the earlier default) and print "
+        "the ratio",
+    )
+    ap.add_argument("--mix", choices=("service", "selections"), default="service")
+    ap.add_argument("--rows", type=int, default=2000, help="rows per selection (--mix selections)")
+    args = ap.parse_args()
+    clients = max(1, min(args.clients, MAX_CLIENTS))
+    seconds = max(1.0, min(args.seconds, MAX_SECONDS))
+    print(f"machine: {os.cpu_count()} cores, load average {os.getloadavg()[0]:.2f} at start")
+    base = None
+    if args.baseline:
+        print("-- baseline: 1 worker process, 2 compute slots")
+        base = run(args, 1, 2, clients, seconds)
+        print("-- as configured")
+    rate = run(args, args.workers, args.pool_size, clients, seconds)
+    if base is not None:
+        print(
+            f"ratio: {rate / base:.2f}x the baseline's successful requests a second"
+            if base
+            else "ratio: baseline had none"
+        )
+    return 0
 
 
 if __name__ == "__main__":

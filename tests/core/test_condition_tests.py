@@ -306,3 +306,51 @@ def test_exact_fit_has_no_residual_tests():
     assert fit.residual_reason and "exactly" in fit.residual_reason
     assert fit.influence is None
     assert ct.shapiro_test(fit).statistic is None
+
+
+@pytest.mark.parametrize(
+    "x", [-2.5, -1e-12, 0.0, 1e-9, 0.3, 1.0, 3.7, 25.0, 400.0, math.inf, math.nan]
+)
+@pytest.mark.parametrize("df", [(1, 1), (2, 10), (3, 1995), (0.5, 7.5), (0, 5), (4, 0), (-1, 3)])
+def test_tail_probabilities_are_scipy_stats_own(x, df):
+    a, b = df
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        # source: scipy.stats' distributions, support rules included (nan for a degree of
+        # freedom <= 0, 1 below the support); the same special functions underneath
+        want = (stats.f.sf(x, a, b), stats.chi2.sf(x, a), stats.t.sf(x, a), stats.t.sf(-x, b))
+    got = (ct.f_sf(x, a, b), ct.chi2_sf(x, a), ct.t_sf(x, a), ct.t_sf(-x, b))
+    for g, w in zip(got, want, strict=True):
+        assert isinstance(g, float)
+        assert (math.isnan(g) and math.isnan(w)) or g == w
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_jarque_bera_is_statsmodels_own(seed):
+    rng = np.random.default_rng(seed)
+    n = [7, 40, 500, 2000][seed]
+    noise = [rng.normal, rng.standard_t, rng.exponential, rng.lognormal][seed]
+    X = np.column_stack([np.ones(n), rng.uniform(0, 5, n)])
+    z = X @ [1e3 * seed, 0.5] + noise(*([5] if seed == 1 else []), size=n)
+    jb = ct.jarque_bera_test(ct.fit_model(z, X, True))
+    want = jarque_bera(sm.OLS(z, X).fit().resid)
+    # source: statsmodels.stats.stattools.jarque_bera (scipy skew, 3 + kurtosis, chi2(2))
+    # on statsmodels' own residuals of the same fit
+    assert jb.statistic == pytest.approx(want[0], rel=1e-8)
+    assert jb.p_value == pytest.approx(want[1], rel=1e-8, abs=1e-300)
+    assert jb.skewness == pytest.approx(want[2], rel=1e-8, abs=1e-12)
+    assert jb.kurtosis == pytest.approx(want[3], rel=1e-10)
+    e = rng.normal(7.0, 2.0, 300)
+    skew, kurt = ct.skew_kurtosis(e)
+    # source: scipy.stats.skew and 3 + scipy.stats.kurtosis (biased moments)
+    assert skew == pytest.approx(stats.skew(e), rel=1e-10)
+    assert kurt == pytest.approx(3 + stats.kurtosis(e), rel=1e-12)
+
+
+def test_jarque_bera_of_a_constant_sample_is_undefined_as_in_scipy():
+    e = np.full(30, 4.25)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        # source: scipy.stats.skew / kurtosis: nan for a sample without spread
+        assert math.isnan(stats.skew(e)) and math.isnan(stats.kurtosis(e))
+    assert all(math.isnan(v) for v in ct.skew_kurtosis(e))

@@ -19,6 +19,7 @@ from service.core.bank import FoldIndex
 from service.core.data import prepare
 from service.core.errors import CandidateFailure, Cell, InputError, PredictorChoice, ResponseChoice
 from service.core.folds import make_plan
+from service.core.likelihood import fit_transform
 from service.core.spec import build_design
 from service.selection import candidates as cand
 
@@ -135,3 +136,90 @@ def test_a_column_a_transform_cannot_take_fails_that_candidate_only():
     assert space.design_of(good)[1][:2] == ["intercept", "x"]
     with pytest.raises(CandidateFailure):
         space.design_of(bad)
+
+
+def test_kept_power_fits_are_the_estimate_of_the_same_inputs_and_only_of_those():
+    rng = np.random.default_rng(21)
+    n = 200
+    x = rng.uniform(1, 10, n)
+    z = 2.0 + 3.0 * np.sqrt(x) + rng.normal(0, 0.2, n)
+    Xf = np.ones((n, 1))
+    fits = cand.PowerFits()
+    kept = fits.estimate(z, Xf, x, True)
+    one = bt.estimate_powers(z, Xf, x, boxcox_form=True)
+    # source: boxtidwell.estimate_powers called on the same arrays (the straightforward path)
+    np.testing.assert_array_equal(kept.powers, one.powers)
+    np.testing.assert_array_equal(kept.std_errors, one.std_errors)
+    # a predictor given as (n, 1) is the same input as (n,); the kept fit itself comes back
+    assert fits.get(z, Xf, x[:, None], True) is kept and fits.hits == 1
+    # any other input is a miss: one value changed by one unit in the last place, the
+    # other form, another shape of the fixed columns
+    nudged = x.copy()
+    nudged[7] = np.nextafter(nudged[7], np.inf)
+    assert fits.get(z, Xf, nudged, True) is None
+    assert fits.get(z, Xf, x, False) is None
+    assert fits.get(z, np.ones((n, 2)) / 2**0.5, x, True) is None
+    assert fits.get(z[::-1].copy(), Xf, x, True) is None
+    assert fits.hits == 1
+
+
+def test_a_kept_power_failure_is_raised_again_with_its_reason():
+    n = 40
+    z = np.linspace(1, 5, n)
+    x = np.linspace(-1, 3, n)  # values <= 0: no power can be estimated
+    fits = cand.PowerFits()
+    with pytest.raises(CandidateFailure) as first:
+        fits.estimate(z, np.ones((n, 1)), x, True)
+    with pytest.raises(CandidateFailure) as direct:
+        bt.estimate_powers(z, np.ones((n, 1)), x)
+    with pytest.raises(CandidateFailure) as again:
+        fits.estimate(z, np.ones((n, 1)), x, True)
+    # source: the reason estimate_powers itself gives
+    assert first.value.reason == direct.value.reason == again.value.reason
+    assert fits.hits == 1
+
+
+def test_screening_powers_keep_their_fits_for_the_search():
+    prep = _prep(seed=4)
+    preds = cand.predictor_candidates(prep, None)
+    resp = cand.response_candidates(prep, None)
+    fits = cand.PowerFits()
+    info, powers = cand.screening_powers(prep, preds, resp, True, 0, None, fits)
+    alone, _ = cand.screening_powers(prep, preds, resp, True, 0)
+    assert info == alone and len(powers) == 5  # five fixed response scales, one open column
+    # the inputs screening used: the intercept and the other predictors as sent
+    lv, ref = cand.categorical_levels(prep.categorical["crew"], None, "crew")
+    Xf = np.column_stack(
+        [np.ones(prep.n)] + [(prep.categorical["crew"] == v) * 1.0 for v in lv if v != ref]
+    )
+    for t in (t for t in resp if not t.needs_lambda):
+        z = fit_transform(t, prep.y).forward(prep.y)
+        got = fits.get(z, Xf, prep.numeric["x"], True)
+        assert got is not None and float(got.powers[0]) == powers[(t, "x")]
+        one = bt.estimate_powers(z, Xf, prep.numeric["x"])
+        # source: boxtidwell.estimate_powers, one call per response scale (the response
+        # scales' steps are taken together; rounding-level differences only)
+        assert powers[(t, "x")] == pytest.approx(float(one.powers[0]), rel=1e-9, abs=1e-11)
+        assert info[(t, "x")]["std_error"] == pytest.approx(float(one.std_errors[0]), rel=1e-7)
+
+
+def test_many_kept_power_fits_keep_their_order_with_hits_misses_and_failures():
+    rng = np.random.default_rng(5)
+    n = 150
+    x = rng.uniform(1, 10, n)
+    Xf = np.ones((n, 1))
+    zs = [2.0 + c * np.sqrt(x) + rng.normal(0, 0.3, n) for c in (1.0, 2.0, 3.0)]
+    fits = cand.PowerFits()
+    first = fits.estimate(zs[1], Xf, x, True)  # kept before the batch
+    problems = [(zs[0], Xf, x), (zs[1], Xf, x), (zs[2], Xf, -x), (zs[2], Xf, x)]
+    got = fits.estimate_many(problems, True)
+    assert got[1] is first and fits.hits == 1
+    assert isinstance(got[2], CandidateFailure)  # x <= 0
+    for (z, F, xx), fit in zip(problems, got, strict=True):
+        if isinstance(fit, CandidateFailure):
+            continue
+        # source: boxtidwell.estimate_powers on the same inputs
+        want = bt.estimate_powers(z, F, xx).powers
+        np.testing.assert_allclose(fit.powers, want, rtol=1e-9, atol=1e-11)
+    again = fits.estimate_many(problems, True)
+    assert all(a is b for a, b in zip(again, got, strict=True)) and fits.hits == 5

@@ -284,3 +284,118 @@ def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monk
     for a, b in zip(together["ranking"], alone["ranking"], strict=True):
         assert a["cv"].value == pytest.approx(b["cv"].value, rel=1e-9)
     assert together["search"].scored == alone["search"].scored
+
+
+def test_all_rows_powers_kept_from_screening_give_the_same_selection(monkeypatch):
+    from service.selection import candidates as cand
+    from service.selection import search as search_mod
+
+    rng = np.random.default_rng(15)
+    n = 160
+    x1, x2 = rng.uniform(1, 12, n), rng.uniform(0.5, 6, n)
+    y = np.exp(1.0 + 0.4 * np.sqrt(x1) - 0.3 * np.log(x2) + rng.normal(0, 0.2, n))
+    columns = {"y": y.tolist(), "a": x1.tolist(), "b": x2.tolist()}
+    prep = prepare({"columns": columns}, "y", ["a", "b"])
+    opts = SearchOptions(folds=5, repeats=1, predictor_transforms=["identity", "log", "power"])
+    evaluators: list[search_mod._Evaluator] = []
+    real_init = search_mod._Evaluator.__init__
+
+    def kept(self, *a, **k):
+        real_init(self, *a, **k)
+        evaluators.append(self)
+
+    monkeypatch.setattr(search_mod._Evaluator, "__init__", kept)
+    reused = run_selection(prep, opts, "t")
+    assert evaluators[0].fits.hits >= 4  # identical inputs were met and reused
+    monkeypatch.setattr(cand.PowerFits, "get", lambda self, *a: None)
+    fresh = run_selection(prep, opts, "t")
+    a_ev, b_ev = evaluators
+    # source: the same search with every candidate's all-rows powers estimated again
+    # (boxtidwell.estimate_many_powers, the batch the kept fits replace): the same
+    # candidates, errors and powers (all rows and per fold) to that batch's stated
+    # agreement with one estimate_powers call each, and the same ranking
+    opened = [(s.open_spec or s.spec).key for s in a_ev.scored]
+    assert opened == [(s.open_spec or s.spec).key for s in b_ev.scored]
+    compared = 0
+    for a, b in zip(a_ev.scored, b_ev.scored, strict=True):
+        assert a.cv.value == pytest.approx(b.cv.value, rel=1e-9)
+        if a.open_spec is None:
+            continue
+        # (a power that reads as a plain column is kept under that column's key)
+        mine, theirs = a_ev.powers.get(a.spec.key, {}), b_ev.powers.get(b.spec.key, {})
+        assert mine.keys() == theirs.keys()
+        for col, got in mine.items():
+            want = theirs[col]
+            assert got["power"] == pytest.approx(want["power"], rel=1e-9, abs=1e-11)
+            assert got["per_fold"] == pytest.approx(want["per_fold"], rel=1e-8, abs=1e-10)
+            compared += 1
+    assert compared >= 4
+    assert [e["specification"] for e in reused["ranking"]] == [
+        e["specification"] for e in fresh["ranking"]
+    ]
+
+
+def test_kept_lambdas_are_the_estimate_of_the_same_inputs_and_only_of_those(monkeypatch):
+    from service.core.errors import CandidateFailure
+    from service.core.likelihood import estimate_lambda
+    from service.selection import search as search_mod
+    from service.selection.search import KeptLambdas
+
+    rng = np.random.default_rng(8)
+    n = 120
+    x = rng.uniform(1, 10, n)
+    y = np.exp(0.3 + 0.2 * x + rng.normal(0, 0.2, n))
+    X = np.column_stack([np.ones(n), x])
+    kept = KeptLambdas()
+    got = kept.estimate("box_cox", y, X)
+    # source: likelihood.estimate_lambda on the same arrays (the straightforward call)
+    assert got == estimate_lambda("box_cox", y, X)
+    assert kept.estimate("box_cox", y, X.copy()) is got and kept.hits == 1
+    other = kept.estimate("box_cox", y, np.column_stack([np.ones(n), np.log(x)]))
+    assert other == estimate_lambda("box_cox", y, np.column_stack([np.ones(n), np.log(x)]))
+    assert kept.estimate("yeo_johnson", y, X) == estimate_lambda("yeo_johnson", y, X)
+    assert kept.hits == 1  # another design or family is a miss
+    calls = []
+
+    def failing(family, y, X):
+        calls.append(family)
+        raise CandidateFailure("no lambda for these rows")
+
+    monkeypatch.setattr(search_mod, "estimate_lambda", failing)
+    for _ in range(2):
+        with pytest.raises(CandidateFailure) as again:
+            kept.estimate("box_cox", y[::-1].copy(), X)
+        assert again.value.reason == "no lambda for these rows"
+    assert calls == ["box_cox"] and kept.hits == 2  # a failure is kept and raised again
+
+
+def test_lambdas_kept_within_a_request_give_the_same_selection(monkeypatch):
+    from service.core.likelihood import estimate_lambda
+    from service.demo import demo_columns
+    from service.selection import search as search_mod
+
+    cols = demo_columns(300)
+    columns = {k: cols[k] for k in ("repair_cost", "pipe_length_m")}
+    prep = prepare({"columns": columns}, "repair_cost", ["pipe_length_m"])
+    made: list[search_mod.KeptLambdas] = []
+    real_init = search_mod.KeptLambdas.__init__
+
+    def kept(self):
+        real_init(self)
+        made.append(self)
+
+    monkeypatch.setattr(search_mod.KeptLambdas, "__init__", kept)
+    reused = run_selection(prep, SearchOptions(), "t")
+    assert made[0].hits >= 1  # the same estimate was asked for twice
+    monkeypatch.setattr(
+        search_mod.KeptLambdas, "estimate", lambda self, f, y, X: estimate_lambda(f, y, X)
+    )
+    fresh = run_selection(prep, SearchOptions(), "t")
+    # source: the same search with every lambda estimated again (estimate_lambda each time):
+    # the reported Box-Cox block, its context on rank 1's design and the entries' ladder
+    # readings are identical
+    assert reused["search"].box_cox == fresh["search"].box_cox
+    assert "context" in reused["search"].box_cox
+    for a, b in zip(reused["ranking"], fresh["ranking"], strict=True):
+        assert a["specification"] == b["specification"]
+        assert a.get("estimates") == b.get("estimates")
