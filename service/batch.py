@@ -38,6 +38,7 @@ from .settings import get_settings
 if TYPE_CHECKING:
     from .batch_parquet import SharedParquet
     from .core.data import Prepared
+    from .core.model import Model
     from .selection.search_setup import SearchOptions
 
 MANIFEST = "manifest.json"
@@ -113,7 +114,7 @@ def _pin_blas_once() -> None:
         _blas_pinned = True
 
 
-def run_segment(name: str, sub, opts, service_version: str, incumbent_model: dict | None):
+def run_segment(name: str, sub, opts, service_version: str, incumbent_model: Model | None):
     """The finished selection body of one segment (module-level: it runs on any worker).
 
     ``sub`` is the segment's Prepared, a :class:`batch_parquet.SegmentRef` to read it from
@@ -174,7 +175,7 @@ class Task:
     sub: Any  # Prepared | SegmentRef | GroupFailure
     opts: Any
     version: str
-    incumbent_model: dict | None = None
+    incumbent_model: Model | None = None  # typed: drift is measured against it
 
     def nbytes(self) -> int:
         p = self.sub
@@ -363,7 +364,8 @@ def _duration(s: float) -> str:
 @dataclass
 class Incumbent:
     specification: dict
-    model: dict | None = None  # the artifact, when known: drift is measured against it
+    model: dict | None = None  # the artifact as read, when known (written back as in use)
+    loaded: Model | None = None  # the same, checked and typed: drift is measured against it
 
 
 def read_incumbents(path: str, validate_spec: Callable[[dict, str], dict]) -> dict:
@@ -412,18 +414,19 @@ def read_incumbents(path: str, validate_spec: Callable[[dict, str], dict]) -> di
             raise BatchRefusal(f"--incumbents: segment '{seg}' appears twice ({where})")
         model = obj.get("model")
         spec = obj.get("specification")
+        loaded = None
         if model is not None:
+            from .api.artifact import load_model
             from .core.errors import InputError
-            from .core.predict import load_model
 
             try:
-                load_model(model)
+                loaded = load_model(model)
             except InputError as exc:
                 raise BatchRefusal(f"--incumbents: {where}: the model {exc.detail}") from None
             spec = spec or model.get("specification")
         if spec is None:
             raise BatchRefusal(f"--incumbents: {where} has neither 'specification' nor 'model'")
-        out[seg] = Incumbent(validate_spec(spec, where), model)
+        out[seg] = Incumbent(validate_spec(spec, where), model, loaded)
     return out
 
 
@@ -451,11 +454,12 @@ def versions() -> dict:
     import dask
     import distributed
 
+    from .api.render import contract
     from .core.model import library_versions
 
     return {
         "python": platform.python_version(),
-        **library_versions(),
+        **contract(library_versions()),
         "dask": dask.__version__,
         "distributed": distributed.__version__,
     }
@@ -600,7 +604,7 @@ def run_job(
         opts = replace(job.opts, deadline=None)
         if inc:
             opts = replace(opts, incumbent=inc.specification)
-        tasks.append(Task(name, sub, opts, job.version, inc.model if inc else None))
+        tasks.append(Task(name, sub, opts, job.version, inc.loaded if inc else None))
     reused = len(records)
     if shared is not None and tasks:
         refs = shared.publish(job.prep, parts, manifest["data_fingerprint"])

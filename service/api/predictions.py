@@ -4,9 +4,10 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from ..core.predict import load_model, predict
+from ..core.predict import predict
 from ..selection.cautions import prediction_cautions
 from ..settings import get_settings
+from .artifact import load_model
 from .encode import JSONBody
 from .middleware import note_result
 from .options import prediction_job

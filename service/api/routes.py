@@ -14,6 +14,7 @@ from .metrics import exposition
 from .middleware import note_result
 from .options import selection_job, service
 from .pool import compute_slot
+from .render.transforms import catalogue
 from .reports import report_response, wants_html
 from .routing import StrictRoute
 from .schemas import SelectionRequest
@@ -43,7 +44,7 @@ def post_selections(req: SelectionRequest, request: Request):
     "/v1/transforms", response_class=JSONBody, tags=["reference"], summary="The transform catalogue"
 )
 def get_transforms():
-    return JSONBody({"transforms": tr.CATALOGUE, "ladder": list(tr.LADDER)})
+    return JSONBody({"transforms": catalogue(), "ladder": list(tr.LADDER)})
 
 
 @router.get("/healthz", response_class=JSONBody, tags=["operations"], summary="Liveness")

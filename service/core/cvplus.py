@@ -41,8 +41,8 @@ from __future__ import annotations
 
 import functools
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 
@@ -126,13 +126,6 @@ class FoldPowers:
                 bad |= ~np.all(np.isfinite(W), axis=1)
         return bad
 
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "columns": list(self.columns),
-            "form": POWER_FORMS[0] if self.boxcox_form else POWER_FORMS[1],
-            "values": [[float(a) for a in row] for row in self.powers],
-        }
-
 
 def fold_powers_of(oof: OutOfFold) -> FoldPowers | None:
     """The fold powers ``oof`` carries, or None when its predictor scales are fixed."""
@@ -142,17 +135,50 @@ def fold_powers_of(oof: OutOfFold) -> FoldPowers | None:
     return FoldPowers(tuple(d.columns), tuple(d.positions), oof.powers, d.boxcox_form)
 
 
+@dataclass(frozen=True, eq=False)
+class StoredFits:
+    """What CV+ needs of an entry: fold k's fit ``coefficients[k]`` on the scale
+    ``transforms[k]``, and the stored out-of-fold residuals (``fold`` ids and
+    ``abs_resid``, every row or per-fold quantiles: ``kind`` "all" or "quantiles") of
+    ``rows`` training rows split by ``scheme``; ``fold_powers``: the predictor powers each
+    fold estimated (None when the predictor scales are fixed)."""
+
+    coefficients: np.ndarray  # (K, p)
+    transforms: tuple[tr.Transform, ...]
+    fold: np.ndarray  # (n,) fold ids of the stored residuals
+    abs_resid: np.ndarray  # (n,)
+    kind: str
+    scheme: str
+    rows: int
+    fold_powers: FoldPowers | None = None
+
+    available = True
+    reason = ""
+
+    @property
+    def folds(self) -> int:
+        return int(self.coefficients.shape[0])
+
+
+@dataclass(frozen=True)
+class NoStoredFits:
+    """Why an entry has no CV+ fits."""
+
+    reason: str
+    available = False
+
+
 def stored_block(
     oof: OutOfFold | None, X: np.ndarray, y: np.ndarray, scheme: str, why_none: str = NOT_KEPT
-) -> dict[str, Any]:
-    """The artifact's ``cv_plus`` block: fold fits and residuals, or why there are none
+) -> StoredFits | NoStoredFits:
+    """What the model keeps for CV+: fold fits and residuals, or why there are none
     (``why_none`` when ``oof`` is None).
 
     ``X``: (n, p) the entry's full design; ``y``: (n,) original response.  The stored fold
     fits are checked to reproduce the out-of-fold residuals on ``X`` before they are kept.
     """
     if oof is None:
-        return {"available": False, "reason": why_none}
+        return NoStoredFits(why_none)
     K = oof.coefficients.shape[0]
     fp = fold_powers_of(oof)
     with np.errstate(all="ignore"):
@@ -176,35 +202,21 @@ def stored_block(
         and np.all(np.isfinite(oof.coefficients))
         and np.allclose(again, oof.residual, rtol=AGREEMENT_RTOL, atol=AGREEMENT_RTOL * scale)
     ):
-        return {
-            "available": False,
-            "reason": "the out-of-fold residuals are not finite on the model scale",
-        }
+        return NoStoredFits("the out-of-fold residuals are not finite on the model scale")
     kind, fold, values = thinned(oof)
-    block: dict[str, Any] = {
-        "available": True,
-        "folds": K,
-        "scheme": scheme,
-        "rows": int(oof.fold.size),
-        "fold_fits": [
-            {
-                "response_transform": oof.transforms[k].to_dict(),
-                "coefficients": [float(v) for v in oof.coefficients[k]],
-            }
-            for k in range(K)
-        ],
-        "residuals": {
-            "kind": kind,
-            "fold": np.asarray(fold, dtype=np.int64).tolist(),  # Python ints, one C loop
-            "values": np.asarray(values, dtype=float).tolist(),
-        },
-    }
-    if fp is not None:
-        block["fold_powers"] = fp.to_dict()
-    return block
+    return StoredFits(
+        coefficients=np.array(oof.coefficients[:K], dtype=float),
+        transforms=tuple(oof.transforms[:K]),
+        fold=np.asarray(fold, dtype=np.int64),
+        abs_resid=np.asarray(values, dtype=float),
+        kind=kind,
+        scheme=scheme,
+        rows=int(oof.fold.size),
+        fold_powers=fp,
+    )
 
 
-def default_method(failed: list[str] | None, available: bool, why_not: str) -> tuple[str, str]:
+def default_method(failed: Sequence[str] | None, available: bool, why_not: str) -> tuple[str, str]:
     """(interval method, clause) when the caller does not choose: CV+ when normality fails
     on the entry and its artifact holds what CV+ needs, otherwise normal theory."""
     if failed is None:
@@ -381,7 +393,7 @@ def _kth_mapped(
     sorted_r: list[np.ndarray],
     k: int,
     sign: int,
-    transforms: list[tr.Transform],
+    transforms: Sequence[tr.Transform],
     bounds: list[tuple[float, float, float, float]],
 ) -> np.ndarray:
     """k-th smallest (1-based) of {G_f(mu[:, f] + sign * R) : R in sorted_r[f]} per row,
@@ -510,7 +522,7 @@ def _kth_matrix(
     fold: np.ndarray,
     abs_resid: np.ndarray,
     groups: list[np.ndarray],
-    transforms: list[tr.Transform],
+    transforms: Sequence[tr.Transform],
     k_lo: int,
     k_hi: int,
 ) -> tuple[np.ndarray, np.ndarray]:
@@ -532,7 +544,7 @@ def _kth_matrix(
 
 def intervals(
     coefficients: np.ndarray,
-    transforms: list[tr.Transform],
+    transforms: Sequence[tr.Transform],
     fold: np.ndarray,
     abs_resid: np.ndarray,
     X0: np.ndarray,

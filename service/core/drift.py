@@ -15,7 +15,8 @@ share of rows between consecutive ones, for a categorical column the share of ea
   Jeffreys divergence (KL both ways) between the two binned distributions.
 
 :func:`compare` returns a frozen :class:`DriftReport` (``service.api.render.drift`` writes
-it as the ``drift`` block); :func:`profile` writes the plain dict the artifact keeps.
+it as the ``drift`` block); :func:`profile` returns the frozen :class:`DataProfile` a model
+keeps (``service.api.render.model`` writes it into the artifact).
 
 Rule (common practice, not a test with a known error rate): PSI below 0.1 is no material
 shift, 0.1 to 0.25 a moderate shift, 0.25 or more a major shift.  Empty bins count as a
@@ -26,13 +27,15 @@ or more.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any
+from typing import Protocol
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from .data import Prepared
+from .spec import Levels, Specification
 
 PSI_MODERATE = 0.1  # common practice cut-offs
 PSI_MAJOR = 0.25
@@ -138,40 +141,68 @@ def _lv(names: list[str] | tuple[str, ...]) -> str:
     return "level" if len(names) == 1 else "levels"
 
 
-def numeric_profile(x: np.ndarray) -> dict[str, Any]:
+@dataclass(frozen=True)
+class NumericProfile:
+    """A numeric column of the training rows: its deciles (``edges``, ties merged), the share
+    of rows between consecutive edges, its mean and median."""
+
+    edges: tuple[float, ...]
+    shares: tuple[float, ...]
+    mean: float
+    median: float
+
+
+@dataclass(frozen=True)
+class CategoricalProfile:
+    """A categorical column of the training rows: the share of each level, in sorted order."""
+
+    shares: tuple[tuple[str, float], ...]
+
+
+@dataclass(frozen=True)
+class DataProfile:
+    """What a model records of its training rows: how many, the response's profile and one
+    profile per predictor of the specification (in its order)."""
+
+    rows: int
+    response: NumericProfile
+    predictors: tuple[tuple[str, NumericProfile | CategoricalProfile], ...]
+
+    def predictor(self, column: str) -> NumericProfile | CategoricalProfile | None:
+        return next((p for c, p in self.predictors if c == column), None)
+
+
+def numeric_profile(x: np.ndarray) -> NumericProfile:
     """Deciles of ``x`` and the share of rows in each bin between them (ties merge bins)."""
     x = np.asarray(x, dtype=float)
     q = np.quantile(x, DECILES)
     inner = np.unique(q[1:-1])
     shares = np.bincount(np.searchsorted(inner, x, side="right"), minlength=inner.size + 1)
-    return {
-        "edges": [float(q[0]), *(float(v) for v in inner), float(q[-1])],
-        "shares": [float(v) for v in shares / x.size],
-        "mean": float(np.mean(x)),
-        "median": float(np.median(x)),
-    }
+    return NumericProfile(
+        edges=(float(q[0]), *(float(v) for v in inner), float(q[-1])),
+        shares=tuple(float(v) for v in shares / x.size),
+        mean=float(np.mean(x)),
+        median=float(np.median(x)),
+    )
 
 
-def categorical_profile(values: np.ndarray) -> dict[str, Any]:
+def categorical_profile(values: np.ndarray) -> CategoricalProfile:
     levels, counts = np.unique(np.asarray(values).astype(str), return_counts=True)
-    return {
-        "shares": {str(lv): float(c / counts.sum()) for lv, c in zip(levels, counts, strict=True)}
-    }
+    return CategoricalProfile(
+        tuple((str(lv), float(c / counts.sum())) for lv, c in zip(levels, counts, strict=True))
+    )
 
 
-def profile(prep: Prepared, columns: list[str]) -> dict[str, Any]:
-    """The artifact's ``data_profile``: training rows, response and predictor profiles."""
-    preds: dict[str, Any] = {}
-    out = {"rows": int(prep.n), "response": numeric_profile(prep.y), "predictors": preds}
+def profile(prep: Prepared, columns: list[str]) -> DataProfile:
+    """What a model records of its training rows: their number, the response's and every
+    predictor's profile."""
+    preds: list[tuple[str, NumericProfile | CategoricalProfile]] = []
     for c in columns:
         if c in prep.numeric:
-            preds[c] = {"kind": "numeric", **numeric_profile(prep.numeric[c])}
+            preds.append((c, numeric_profile(prep.numeric[c])))
         elif c in prep.categorical:
-            preds[c] = {
-                "kind": "categorical",
-                **categorical_profile(prep.categorical[c]),
-            }
-    return out
+            preds.append((c, categorical_profile(prep.categorical[c])))
+    return DataProfile(int(prep.n), numeric_profile(prep.y), tuple(preds))
 
 
 def psi(now: ArrayLike, then: ArrayLike) -> float:
@@ -189,7 +220,7 @@ def grade(value: float) -> str:
     return "none"
 
 
-def _binned_shares(x: np.ndarray, edges: list[float]) -> np.ndarray:
+def _binned_shares(x: np.ndarray, edges: tuple[float, ...]) -> np.ndarray:
     inner = np.asarray(edges[1:-1], dtype=float)
     counts = np.bincount(np.searchsorted(inner, x, side="right"), minlength=inner.size + 1)
     return counts / max(x.size, 1)
@@ -201,10 +232,10 @@ def _shift(now: ArrayLike, then: ArrayLike) -> Shift:
 
 
 def _numeric(
-    x: np.ndarray, prof: dict[str, Any] | None, rng: dict[str, Any] | None
+    x: np.ndarray, prof: NumericProfile | None, rng: tuple[float, float] | None
 ) -> NumericDrift:
-    lo = prof["edges"][0] if prof else (rng or {}).get("min")
-    hi = prof["edges"][-1] if prof else (rng or {}).get("max")
+    lo = prof.edges[0] if prof else (rng[0] if rng else None)
+    hi = prof.edges[-1] if prof else (rng[1] if rng else None)
     outside = None
     if lo is not None and hi is not None:
         below, above = int(np.sum(x < lo)), int(np.sum(x > hi))
@@ -217,18 +248,16 @@ def _numeric(
         )
     if not prof:
         return NumericDrift(lo, hi, outside, None, None, None)
-    shift = _shift(_binned_shares(x, prof["edges"]), prof["shares"])
-    return NumericDrift(lo, hi, outside, shift, prof["median"], float(np.median(x)))
+    shift = _shift(_binned_shares(x, prof.edges), prof.shares)
+    return NumericDrift(lo, hi, outside, shift, prof.median, float(np.median(x)))
 
 
 def _categorical(
-    values: np.ndarray, prof: dict[str, Any] | None, levels: dict[str, Any] | None
+    values: np.ndarray, prof: CategoricalProfile | None, levels: tuple[str, ...]
 ) -> CategoricalDrift:
     now_lv, counts = np.unique(np.asarray(values).astype(str), return_counts=True)
     now = dict(zip(now_lv.tolist(), (counts / counts.sum()).tolist(), strict=True))
-    then: dict[str, Any] = (
-        prof["shares"] if prof else dict.fromkeys((levels or {}).get("levels", []), 0.0)
-    )
+    then: dict[str, float] = dict(prof.shares) if prof else dict.fromkeys(levels, 0.0)
     shift = None
     if prof:
         keys = sorted(set(now) | set(then))
@@ -245,20 +274,35 @@ def _names(xs: tuple[str, ...]) -> str:
     return shown + (f" and {len(xs) - 10} more" if len(xs) > 10 else "")
 
 
-def compare(artifact: dict[str, Any], prep: Prepared) -> DriftReport:
-    """The drift of one segment: this month's rows against the artifact's record."""
-    prof = artifact.get("data_profile") or {}
-    pprof = prof.get("predictors", {})
-    ranges = artifact.get("training_range", {})
-    levels = artifact.get("levels", {})
-    spec = artifact.get("specification", {})
-    columns = [p["column"] for p in spec.get("predictors", [])]
+class Recorded(Protocol):
+    """What a model (:class:`service.core.model.Model`) records of its training rows."""
+
+    @property
+    def spec(self) -> Specification: ...
+    @property
+    def n(self) -> int | None: ...
+    @property
+    def training_range(self) -> Mapping[str, tuple[float, float]]: ...
+    @property
+    def levels(self) -> Mapping[str, Levels]: ...
+    @property
+    def profile(self) -> DataProfile | None: ...
+
+
+def compare(model: Recorded, prep: Prepared) -> DriftReport:
+    """The drift of one segment: this month's rows against what ``model`` records."""
+    prof = model.profile
     flags: list[str] = []
     preds: list[tuple[str, ColumnDrift]] = []
-    for c in columns:
+    for c in (p.column for p in model.spec.predictors):
         d: NumericDrift | CategoricalDrift
+        pprof = prof.predictor(c) if prof is not None else None
         if c in prep.numeric:
-            d = _numeric(np.asarray(prep.numeric[c], dtype=float), pprof.get(c), ranges.get(c))
+            d = _numeric(
+                np.asarray(prep.numeric[c], dtype=float),
+                pprof if isinstance(pprof, NumericProfile) else None,
+                model.training_range.get(c),
+            )
             o = d.outside
             if o and o.below + o.above:
                 flags.append(
@@ -268,7 +312,12 @@ def compare(artifact: dict[str, Any], prep: Prepared) -> DriftReport:
                     "predictions there are extrapolations"
                 )
         elif c in prep.categorical:
-            d = _categorical(prep.categorical[c], pprof.get(c), levels.get(c))
+            info = model.levels.get(c)
+            d = _categorical(
+                prep.categorical[c],
+                pprof if isinstance(pprof, CategoricalProfile) else None,
+                info.levels if info else (),
+            )
             if d.new_levels:
                 flags.append(
                     f"'{c}' has {_lv(d.new_levels)} the model never saw: {_names(d.new_levels)}"
@@ -284,28 +333,28 @@ def compare(artifact: dict[str, Any], prep: Prepared) -> DriftReport:
         if d.shift is not None and d.shift.grade in ("moderate", "major"):
             flags.append(f"'{c}' shifted ({d.shift.grade}: PSI {d.shift.psi:.3g})")
         preds.append((c, d))
-    rprof = prof.get("response")
     response = None
-    if rprof:
+    if prof is not None:
+        rprof = prof.response
         y = np.asarray(prep.y, dtype=float)
-        shift = _shift(_binned_shares(y, rprof["edges"]), rprof["shares"])
+        shift = _shift(_binned_shares(y, rprof.edges), rprof.shares)
         response = ResponseDrift(
             shift=shift,
-            median_then=rprof["median"],
+            median_then=rprof.median,
             median_now=float(np.median(prep.y)),
-            mean_then=rprof["mean"],
+            mean_then=rprof.mean,
             mean_now=float(np.mean(prep.y)),
         )
         if shift.grade != "none":
             flags.append(
                 f"the response level moved ({shift.grade}: PSI {shift.psi:.3g}; median "
-                f"{rprof['median']:.6g} then, {float(np.median(prep.y)):.6g} now)"
+                f"{rprof.median:.6g} then, {float(np.median(prep.y)):.6g} now)"
             )
     return DriftReport(
-        rows_then=prof.get("rows", artifact.get("n")),
+        rows_then=prof.rows if prof is not None else model.n,
         rows_now=int(prep.n),
         predictors=tuple(preds),
         response=response,
-        note=None if rprof else NO_PROFILE_NOTE,
+        note=None if prof is not None else NO_PROFILE_NOTE,
         flags=tuple(flags),
     )

@@ -170,10 +170,10 @@ def _subject(column: str, t: Transform) -> str:
 # ----------------------------------------------------------------- helpers
 def _reference_point(spec: Specification, design: Design, prep: Prepared) -> dict[str, Any]:
     """Medians of numeric predictors and reference levels of categorical ones."""
-    point = {}
+    point: dict[str, Any] = {}
     for p in spec.predictors:
         if p.column in design.levels:
-            point[p.column] = design.levels[p.column]["reference"]
+            point[p.column] = design.levels[p.column].reference
         else:
             point[p.column] = float(np.median(prep.numeric[p.column]))
     return point
@@ -186,8 +186,7 @@ def _row(spec: Specification, design: Design, point: dict[str, Any]) -> np.ndarr
     for p in spec.predictors:
         v = point[p.column]
         if p.column in design.levels:
-            info = design.levels[p.column]
-            x.extend(1.0 if lv == v else 0.0 for lv in info["levels"] if lv != info["reference"])
+            x.extend(1.0 if lv == v else 0.0 for lv in design.levels[p.column].others)
         else:
             with np.errstate(all="ignore"):
                 x.append(float(p.transform.forward(np.array([v]))[0]))
@@ -295,8 +294,8 @@ def _categorical_readings(
     ctx: _Context, column: str, indices: tuple[int, ...]
 ) -> list[dict[str, Any]]:
     info = ctx.design.levels[column]
-    ref = info["reference"]
-    others = [v for v in info["levels"] if v != ref]
+    ref: Any = info.reference  # a level, read where the other readings take a value
+    others: list[Any] = list(info.others)
     rscale = _scale(ctx.rt)
     y, yu = ctx.response, ctx.y_unit
     out = []

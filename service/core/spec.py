@@ -44,11 +44,8 @@ class Specification:
     def from_dict(cls, d: dict[str, Any]) -> Specification:
         return cls(
             d["response"]["column"],
-            tr.from_dict(d["response"].get("transform") or {"name": "identity"}),
-            tuple(
-                PredictorSpec(p["column"], tr.from_dict(p.get("transform") or {"name": "identity"}))
-                for p in d["predictors"]
-            ),
+            _transform_of(d["response"]),
+            tuple(PredictorSpec(p["column"], _transform_of(p)) for p in d["predictors"]),
             bool(d.get("intercept", True)),
         )
 
@@ -95,6 +92,13 @@ def _estimated_power(t: tr.Transform) -> bool:
     return t.estimated and (t.name == "power" or (t.name == "log" and t.shift == 0.0))
 
 
+def _transform_of(part: dict[str, Any]) -> tr.Transform:
+    """The transform of a specification's response or predictor object (identity when it
+    names none)."""
+    sent = part.get("transform")
+    return tr.from_dict(sent) if sent else tr.Transform("identity")
+
+
 @dataclass
 class TermInfo:
     column: str
@@ -104,12 +108,26 @@ class TermInfo:
     label: str
 
 
+@dataclass(frozen=True)
+class Levels:
+    """A categorical predictor's levels (sorted, as the design holds them) and its
+    reference level, the one without a dummy."""
+
+    levels: tuple[str, ...]
+    reference: str
+
+    @property
+    def others(self) -> tuple[str, ...]:
+        """The levels with a dummy each, in order."""
+        return tuple(lv for lv in self.levels if lv != self.reference)
+
+
 @dataclass
 class Design:
     X: np.ndarray
     names: list[str]
     terms: list[TermInfo]
-    levels: dict[str, dict[str, Any]] = field(default_factory=dict)  # column -> {levels, reference}
+    levels: dict[str, Levels] = field(default_factory=dict)  # categorical column -> its levels
 
 
 def categorical_levels(
@@ -149,7 +167,7 @@ class Columns:
     categorical: dict[str, np.ndarray]
 
 
-StoredLevels: TypeAlias = Mapping[str, Mapping[str, Any]]  # column -> {levels, reference}
+StoredLevels: TypeAlias = Mapping[str, Levels]  # categorical column -> its levels
 
 
 def term_names(spec: Specification, levels: StoredLevels) -> list[str]:
@@ -158,8 +176,7 @@ def term_names(spec: Specification, levels: StoredLevels) -> list[str]:
     names = ["intercept"] if spec.intercept else []
     for p in spec.predictors:
         if p.column in levels:
-            ref = levels[p.column]["reference"]
-            names.extend(term_label(p.column, lv) for lv in levels[p.column]["levels"] if lv != ref)
+            names.extend(term_label(p.column, lv) for lv in levels[p.column].others)
         else:
             names.append(p.transform.label(p.column))
     return names
@@ -185,7 +202,7 @@ def build_design(
     """
     cols: list[np.ndarray] = []
     terms: list[TermInfo] = []
-    used: dict[str, dict[str, Any]] = {}
+    used: dict[str, Levels] = {}
     n = prep.n
     if spec.intercept:
         cols.append(np.ones(n))
@@ -194,7 +211,7 @@ def build_design(
         if p.column in prep.categorical:
             vals = prep.categorical[p.column]
             if levels is not None:
-                lv, ref = list(levels[p.column]["levels"]), levels[p.column]["reference"]
+                lv, ref = list(levels[p.column].levels), levels[p.column].reference
             else:
                 lv, ref = categorical_levels(
                     vals,
@@ -204,7 +221,7 @@ def build_design(
                 )
             start = len(cols)
             cols.extend((vals == level).astype(float) for level in lv if level != ref)
-            used[p.column] = {"levels": lv, "reference": ref}
+            used[p.column] = Levels(tuple(lv), ref)
             terms.append(
                 TermInfo(p.column, "categorical", tuple(range(start, len(cols))), None, p.column)
             )

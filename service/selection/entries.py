@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -21,7 +21,7 @@ from ..core.fitting import OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
 from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
-from ..core.model import build_model, seal
+from ..core.model import FitOptions, build_model
 from ..core.numbers import fmt
 from ..core.spec import Design, Specification, build_design
 
@@ -187,16 +187,12 @@ def attach_cv_plus(
     prep: Prepared,
     plan: CVPlan,
 ) -> None:
-    """Store the CV+ block in the entry body's model (sealed: checksum renewed, its canonical
-    bytes kept for the signature, which ``request.finish_body`` adds) and set the entry's default interval method from it.  ``design`` is
-    the entry's all-rows design (:attr:`Entry.design`)."""
+    """Store the CV+ fits in the entry body's model and set the entry's default interval
+    method from them.  ``design`` is the entry's all-rows design (:attr:`Entry.design`)."""
     block = stored_block(oof, design.X, prep.y, plan.scheme, why_none)
-    model = entry["model"]
-    model["cv_plus"] = block
-    seal(model, keep=True)  # the bytes are signed in finish_body without a second dump
-    method, why = default_method(
-        model.get("conditions_failed"), block["available"], block.get("reason", "")
-    )
+    model = replace(entry["model"], cv_store=block)
+    entry["model"] = model
+    method, why = default_method(model.conditions_failed, block.available, block.reason)
     entry["inference"] = {
         **entry["inference"],
         "prediction_intervals": method,
@@ -223,10 +219,9 @@ def entry_for(
     parts: dict[str, Any],
     opts: SearchOptions,
     service_version: str,
-    sealed: bool = True,
 ) -> Entry:
-    """``sealed``: the model with its checksum; False when the caller attaches its CV+ block
-    (:func:`attach_cv_plus`, which seals it) or does not return the model."""
+    """The entry of ``spec``: its full-data fit, conditions, readings and typed model (whose
+    artifact the web floor writes and signs when the body leaves)."""
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
     estimates = {}
@@ -279,15 +274,9 @@ def entry_for(
             fit,
             prep,
             service_version,
-            {
-                "folds": plan.folds,
-                "repeats": plan.repeats,
-                "seed": plan.seed,
-                "metric": plan.metric,
-            },
+            FitOptions.of(plan),
             cv_plus=cv_plus,
             conditions_failed=bad,
-            sealed=sealed,
         ),
         "warnings": warnings,
     }
@@ -298,7 +287,7 @@ def entry_for(
             warnings.append(h.sentence)
     blocked = getattr(opts, "scheme", "random") == "blocked"
     inference, clause, more = choose_inference(conditions, lags, blocked)
-    method, why = default_method(bad, cv_plus["available"], cv_plus.get("reason", ""))
+    method, why = default_method(bad, cv_plus.available, cv_plus.reason)
     inference["prediction_intervals"] = method
     inference["prediction_interval_reason"] = why
     entry["inference"] = inference

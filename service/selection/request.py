@@ -19,7 +19,7 @@ from typing import Any, Protocol
 from ..core import transforms as tr
 from ..core.data import Prepared, prepare
 from ..core.errors import InputError, Option
-from ..core.model import sign_all
+from ..core.model import signing_all
 from .cautions import selection_cautions
 from .groups import run_grouped
 from .search import select
@@ -203,13 +203,14 @@ def _group_mapper(
 
 
 def finish_body(body: dict[str, Any], opts: SearchOptions, service: Service) -> dict[str, Any]:
-    """``body`` with its model artifacts signed, the service version first and the cautions
-    that apply last."""
+    """``body`` with its models marked to be signed with the service's keys (the web floor
+    writes and signs each artifact), the service version first and the cautions that apply
+    last."""
     any_tr = any(
         not tr.from_dict(e["specification"]["response"]["transform"]).is_identity
         for e in body.get("ranking", [])
     )
-    sign_all(body, service.model_keys)
+    signing_all(body, service.model_keys)
     return {
         "service_version": service.version,
         **body,

@@ -565,8 +565,7 @@ def select(
     def full(s: Scored, parts: dict[str, Any]) -> Entry:
         key = s.spec.key
         if key not in cache:
-            # sealed by attach_cv_plus when listed; an assessed member is not returned
-            made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version, sealed=False)
+            made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
             if key in ev.powers:
                 made.body.setdefault("estimates", {})["predictor_powers"] = ev.powers[key]
             if key in read_notes:

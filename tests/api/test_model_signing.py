@@ -15,7 +15,7 @@ import json
 import numpy as np
 import pytest
 from fastapi.testclient import TestClient
-from service.core.model import checksum, sign
+from service.api.render.model import checksum, sign
 from service.settings import Settings, get_settings
 
 KEY_A = "a" * 16 + "0123456789abcdef0123"

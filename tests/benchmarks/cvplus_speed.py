@@ -25,9 +25,11 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from _common import Timer, machine, pin_blas, water_mains
+from service.api.artifact import load_model
+from service.api.encode import to_jsonable
 from service.core import cvplus
 from service.core.data import prepare
-from service.core.predict import load_model, new_design
+from service.core.predict import new_design
 from service.selection.diagnose import diagnose_specification
 from service.selection.search_setup import SearchOptions
 
@@ -43,7 +45,7 @@ def model_for(response: dict, n: int, folds: int):
     }
     opts = SearchOptions(folds=folds)
     entry, _ = diagnose_specification(prep, spec, opts, "bench", max_points=10)
-    return load_model(entry["model"])
+    return load_model(to_jsonable(entry["model"]))  # the artifact as issued, read back
 
 
 def main() -> None:

@@ -33,11 +33,12 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from scipy import stats
+from service.api.artifact import load_model
 from service.api.encode import to_jsonable
 from service.api.render import contract
 from service.core.data import prepare
 from service.core.fitting import hac_cov, hc3_cov, newey_west_lags, ols
-from service.core.predict import load_model, predict
+from service.core.predict import predict
 from service.selection.diagnose import diagnose_specification
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
@@ -127,7 +128,7 @@ def pi_coverage(
             assert entry["model"]["cv_plus"]["fold_powers"]["columns"] == ["x"]
         else:
             entry, _ = diagnose_specification(prep, spec, SearchOptions(), "bench", max_points=10)
-        model = load_model(entry["model"])
+        model = load_model(to_jsonable(entry["model"]))  # the artifact as issued, read back
         x0, y0 = pi_data(case, rng, fresh)
         for method in ("normal", "cv_plus"):
             p = contract(predict(model, {"columns": {"x": x0.tolist()}}, level, method))[

@@ -47,13 +47,13 @@ import orjson
 from scipy import stats
 from service.api import encode
 from service.api.options import selection_job
+from service.api.render import model as rm
 from service.api.schemas import SelectionRequest
 from service.core import _condition_tests as ct
 from service.core import _smear_tree as st
-from service.core import model
 from service.core.likelihood import estimate_lambda
 from service.selection import candidates as cand
-from service.selection import entries, search
+from service.selection import search
 from service.selection.request import Service, run_selection
 from service.version import __version__
 from tests.benchmarks.smearing import largest_change, request
@@ -85,7 +85,8 @@ class Before:
     """Patches that restore the earlier paths while the block runs."""
 
     def __enter__(self):
-        self.saved = (model.seal, entries.seal, search.entry_for, st._binned_block)
+        self.saved = (rm.sealed, rm.sign, st._binned_block)
+        sealed, sign, block = self.saved
         self.saved_more = (
             cand.PowerFits.get,
             search.KeptLambdas.estimate,
@@ -94,7 +95,6 @@ class Before:
             ct.t_sf,
             ct.skew_kurtosis,
         )
-        seal, entry_for, block = model.seal, search.entry_for, st._binned_block
         cand.PowerFits.get = lambda self, *a: None
         search.KeptLambdas.estimate = lambda self, f, y, X: estimate_lambda(f, y, X)
         ct.f_sf = lambda x, a, b: float(stats.f.sf(x, a, b))
@@ -102,22 +102,22 @@ class Before:
         ct.t_sf = lambda x, a: float(stats.t.sf(x, a))
         ct.skew_kurtosis = lambda e: (stats.skew(e), 3 + stats.kurtosis(e))
 
-        def seal_no_keep(body, keep=False):
-            return seal(body)
+        def sealed_twice(m):  # the checksum of the model as built, again after its CV+ block
+            rm.canonical_bytes(rm.artifact(m))
+            return sealed(m)
 
-        def entry_sealed(*a, **k):
-            return entry_for(*a, **{**k, "sealed": True})
+        def sign_dumping(body, keys, raw=None):  # the signature over a fresh dump
+            return sign(body, keys)
 
         def block_counting(*a, **k):
             return block(*a, **{**k, "clip": False})
 
-        model.seal = entries.seal = seal_no_keep
-        search.entry_for = entry_sealed
+        rm.sealed, rm.sign = sealed_twice, sign_dumping
         st._binned_block = block_counting
         return self
 
     def __exit__(self, *exc):
-        model.seal, entries.seal, search.entry_for, st._binned_block = self.saved
+        rm.sealed, rm.sign, st._binned_block = self.saved
         (
             cand.PowerFits.get,
             search.KeptLambdas.estimate,
@@ -136,17 +136,17 @@ def answer(req: SelectionRequest, keys, walk) -> bytes:
 
 def count_dumps(fn) -> int:
     calls = [0]
-    real = model.canonical_bytes
+    real = rm.canonical_bytes
 
     def counted(body):
         calls[0] += 1
         return real(body)
 
-    model.canonical_bytes = counted
+    rm.canonical_bytes = counted
     try:
         fn()
     finally:
-        model.canonical_bytes = real
+        rm.canonical_bytes = real
     return calls[0]
 
 

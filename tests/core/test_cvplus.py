@@ -10,11 +10,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 from fastapi.testclient import TestClient
+from service.api.render.model import checksum
 from service.app import app
 from service.core import cvplus
 from service.core import transforms as tr
 from service.core.cvresult import OutOfFold
-from service.core.model import checksum
 from sklearn.linear_model import LinearRegression
 from sklearn.model_selection import KFold
 

@@ -1,4 +1,4 @@
-"""Drift of this month's rows against what a model artifact recorded (service/core/drift.py).
+"""Drift of this month's rows against what a model recorded (service/core/drift.py).
 
 Simulated data with known truth: predictors drawn from the same law (no drift), shifted by
 half a standard deviation, moved past the training range, with a level added and one removed.
@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy.stats import entropy, norm
+from service.core import transforms as tr
 from service.core.data import prepare
 from service.core.drift import (
     NO_PROFILE_NOTE,
@@ -21,6 +22,8 @@ from service.core.drift import (
     profile,
     psi,
 )
+from service.core.model import Model
+from service.core.spec import Levels, PredictorSpec, Specification
 
 
 def _prep(rng, n, shift=0.0, soils=("clay", "loam", "sand"), age_offset=0):
@@ -32,21 +35,31 @@ def _prep(rng, n, shift=0.0, soils=("clay", "loam", "sand"), age_offset=0):
     return prepare({"columns": cols}, "cost", ["load", "age", "soil"], ["soil"])
 
 
-def _artifact(prep):
-    spec = {
-        "response": {"column": "cost", "transform": {"name": "log"}},
-        "predictors": [{"column": c} for c in ("load", "age", "soil")],
-    }
-    return {
-        "specification": spec,
-        "n": prep.n,
-        "training_range": {
-            c: {"min": float(prep.numeric[c].min()), "max": float(prep.numeric[c].max())}
-            for c in ("load", "age")
+def _artifact(prep, with_profile=True, columns=("load", "age", "soil")):
+    """A model recording what drift reads: its specification, training rows, ranges, levels
+    and (``with_profile``) the training rows' profile."""
+    spec = Specification(
+        "cost",
+        tr.Transform("log"),
+        tuple(PredictorSpec(c, tr.Transform("identity")) for c in columns),
+    )
+    return Model(
+        spec=spec,
+        terms=(),
+        coef=np.zeros(0),
+        xtx_inverse=np.zeros((0, 0)),
+        residual_variance=1.0,
+        df_residual=1,
+        levels={"soil": Levels(tuple(sorted(set(prep.categorical["soil"]))), "clay")},
+        residuals=np.zeros(1),
+        residual_kind="all",
+        training_range={
+            c: (float(prep.numeric[c].min()), float(prep.numeric[c].max())) for c in ("load", "age")
         },
-        "levels": {"soil": {"levels": sorted(set(prep.categorical["soil"])), "reference": "clay"}},
-        "data_profile": profile(prep, ["load", "age", "soil"]),
-    }
+        max_leverage=0.0,
+        n=prep.n,
+        profile=profile(prep, ["load", "age", "soil"]) if with_profile else None,
+    )
 
 
 def test_psi_is_the_jeffreys_divergence_of_the_binned_shares():
@@ -62,7 +75,7 @@ def test_psi_of_a_half_sd_normal_shift_matches_the_exact_binned_value():
     rng = np.random.default_rng(5)
     then = numeric_profile(rng.normal(0.0, 1.0, 40_000))
     now = rng.normal(0.5, 1.0, 40_000)
-    inner = np.asarray(then["edges"][1:-1])
+    inner = np.asarray(then.edges[1:-1])
     shares = np.bincount(np.searchsorted(inner, now, side="right"), minlength=10) / now.size
     # source: exact decile-binned PSI of N(0.5,1) against N(0,1) from scipy.stats.norm;
     # the unbinned Jeffreys divergence of two unit normals is delta^2 = 0.25 (closed form),
@@ -70,7 +83,7 @@ def test_psi_of_a_half_sd_normal_shift_matches_the_exact_binned_value():
     edges = np.r_[-np.inf, norm.ppf(np.linspace(0, 1, 11)[1:-1]), np.inf]
     exact = psi(np.diff(norm.cdf(edges - 0.5)), np.full(10, 0.1))
     assert exact < 0.25
-    assert psi(shares, then["shares"]) == pytest.approx(exact, abs=0.02)
+    assert psi(shares, then.shares) == pytest.approx(exact, abs=0.02)
 
 
 def test_same_law_is_not_flagged():
@@ -114,8 +127,7 @@ def test_shifted_predictor_new_and_vanished_levels_are_flagged():
 
 def test_an_artifact_without_a_profile_still_compares_ranges_and_levels():
     rng = np.random.default_rng(13)
-    art = _artifact(_prep(rng, 500))
-    del art["data_profile"]
+    art = _artifact(_prep(rng, 500), with_profile=False)
     d = compare(art, _prep(rng, 400, soils=("clay", "loam", "silt"), age_offset=30))
     assert d.response is None and d.note == NO_PROFILE_NOTE and "no data profile" in d.note
     preds = dict(d.predictors)
@@ -127,8 +139,7 @@ def test_an_artifact_without_a_profile_still_compares_ranges_and_levels():
 
 def test_a_predictor_missing_from_this_month_is_named():
     rng = np.random.default_rng(14)
-    art = _artifact(_prep(rng, 300))
-    art["specification"]["predictors"].append({"column": "depth"})
+    art = _artifact(_prep(rng, 300), columns=("load", "age", "soil", "depth"))
     d = compare(art, _prep(rng, 300))
     assert dict(d.predictors)["depth"] == MissingColumn()
     assert "'depth' is not in this data" in d.flags and d.flagged

@@ -1,33 +1,24 @@
-"""The model artifact (service/core/model.py): what it stores, its canonical form, checksum and
-HMAC signature, and the round trip through JSON back into a loaded model.
+"""The typed fitted model (service/core/model.py): what it keeps of a fit, the stored
+residual summary and the marking of a body's models for signing.
 
-References: hashlib.sha256 over JSON with sorted keys and no spaces (the canonical form the
-module documents); RFC 2104 HMAC-SHA-256 via Python's hmac module; statsmodels OLS for the
-stored coefficients and (X'X)^-1; numpy quantiles for the stored residual summary.
+References: statsmodels OLS for the coefficients, (X'X)^-1 and the leverages; numpy
+quantiles for the stored residual summary.
 """
 
 from __future__ import annotations
-
-import copy
-import hashlib
-import hmac
-import json
 
 import numpy as np
 import pytest
 import statsmodels.api as sm
 from service.core import model
+from service.core.cvplus import NoStoredFits
 from service.core.data import prepare
-from service.core.errors import InputError
-from service.core.predict import MODEL, load_model
-from service.core.spec import Specification
+from service.core.spec import Levels, Specification
 from service.selection.entries import fitted_model
-
-KEYS = ("k2", {"k1": b"first key, retired soon", "k2": b"current key of this service"})
 
 
 @pytest.fixture(scope="module")
-def issued():
+def built():
     """Invented: minutes a depot needs to load a truck, by pallets and loading bay."""
     rng = np.random.default_rng(3)
     n = 50
@@ -46,118 +37,49 @@ def issued():
         }
     )
     concrete, design, fit, _ = fitted_model(spec, prep)
-    art = model.build_model(concrete, design, fit, prep, "test-version")
-    return art, design, prep
+    m = model.build_model(
+        concrete, design, fit, prep, "test-version", None, NoStoredFits("none kept"), []
+    )
+    return m, design, prep
 
 
-def test_stored_fit_equals_statsmodels(issued):
-    art, design, prep = issued
+def test_the_model_keeps_the_fit_statsmodels_computes(built):
+    m, design, prep = built
     # source: statsmodels OLS on the same design (reference library); rel 1e-9
     ref = sm.OLS(np.log(prep.y), design.X).fit()
-    np.testing.assert_allclose(art["coefficients"], ref.params, rtol=1e-9)
-    np.testing.assert_allclose(art["xtx_inverse"], ref.normalized_cov_params, rtol=1e-8)
-    assert art["residual_variance"] == pytest.approx(ref.scale, rel=1e-9)
-    assert art["df_residual"] == ref.df_resid and art["n"] == prep.n
-    assert art["terms"] == design.names
-    # source: numpy hat-matrix diagonal X (X'X)^-1 X'
-    H = design.X @ np.linalg.solve(design.X.T @ design.X, design.X.T)
-    assert art["max_leverage"] == pytest.approx(float(np.max(np.diag(H))), rel=1e-9)
-    assert art["training_range"]["pallets"] == {
-        "min": float(prep.numeric["pallets"].min()),
-        "max": float(prep.numeric["pallets"].max()),
-    }
-    assert art["residuals"]["kind"] == "all" and len(art["residuals"]["values"]) == prep.n
+    np.testing.assert_allclose(m.coef, ref.params, rtol=1e-9)
+    np.testing.assert_allclose(m.xtx_inverse, ref.normalized_cov_params, rtol=1e-8)
+    assert m.residual_variance == pytest.approx(ref.scale, rel=1e-9)
+    assert m.df_residual == ref.df_resid and m.n == prep.n
+    np.testing.assert_allclose(m.residuals, ref.resid, rtol=1e-9, atol=1e-12)
+    # source: statsmodels OLSInfluence hat-matrix diagonal
+    lev = ref.get_influence().hat_matrix_diag
+    assert m.max_leverage == pytest.approx(float(np.max(lev)), rel=1e-9)
+    assert m.terms == tuple(design.names) and m.residual_kind == "all"
+    x = prep.numeric["pallets"]
+    assert m.training_range == {"pallets": (float(x.min()), float(x.max()))}
+    assert m.levels["bay"] == Levels(("east", "north", "west"), "east")
+    assert m.conditions_failed == () and m.cv_plus is None and m.cv_plus_missing == "none kept"
+    assert m.issued is not None and m.issued.response_range == (prep.y.min(), prep.y.max())
+    assert m.profile is not None and m.profile.rows == prep.n
 
 
-def test_checksum_is_sha256_of_the_sorted_compact_json(issued):
-    art, _, _ = issued
-    body = {k: v for k, v in art.items() if k not in ("checksum", "signature")}
-    # source: hashlib.sha256 over json.dumps(sort_keys=True, separators=(",", ":")) with
-    # every number as a float (so 63 and 63.0 give the same checksum)
-    text = json.dumps(model._canon(body), sort_keys=True, separators=(",", ":"))
-    assert art["checksum"] == hashlib.sha256(text.encode()).hexdigest()
-    again = copy.deepcopy(art)
-    again["n"] = float(again["n"])  # a client that writes numbers its own way
-    assert model.checksum(again) == art["checksum"]
-    again["n"] += 1
-    assert model.checksum(again) != art["checksum"]
-
-
-def test_json_round_trip_loads_the_same_model(issued):
-    art, design, _ = issued
-    signed = model.sign(copy.deepcopy(art), KEYS)
-    wire = json.loads(json.dumps(signed, allow_nan=False))
-    loaded = load_model(wire, KEYS)
-    np.testing.assert_array_equal(loaded.coef, art["coefficients"])
-    np.testing.assert_array_equal(loaded.xtx_inverse, np.array(art["xtx_inverse"]))
-    assert list(loaded.terms) == design.names and loaded.residual_kind == "all"
-    assert loaded.spec.to_dict() == art["specification"]
-
-
-def test_signature_is_rfc2104_hmac_of_key_id_and_canonical_json(issued):
-    art, _, _ = issued
-    signed = model.sign(copy.deepcopy(art), KEYS)
-    sig = signed["signature"]
-    assert sig["algorithm"] == "HMAC-SHA-256" and sig["key_id"] == "k2"
-    # source: RFC 2104 HMAC with SHA-256 (Python's hmac module) over "k2\n" + canonical JSON
-    msg = b"k2\n" + model.canonical_bytes(signed)
-    assert sig["value"] == hmac.new(KEYS[1]["k2"], msg, hashlib.sha256).hexdigest()
-    # the signature field is not part of what is signed or checksummed
-    assert model.checksum(signed) == art["checksum"]
-
-
-@pytest.mark.parametrize(
-    "tamper, ptr",
-    [
-        (
-            lambda a: a["coefficients"].__setitem__(1, a["coefficients"][1] * 1.01),
-            MODEL.at("signature", "value"),
-        ),
-        (lambda a: a["signature"].__setitem__("key_id", "k9"), MODEL.at("signature", "key_id")),
-        (
-            lambda a: a["signature"].__setitem__("algorithm", "HMAC-MD5"),
-            MODEL.at("signature", "algorithm"),
-        ),
-        (lambda a: a.__setitem__("signature", {"algorithm": "none"}), MODEL.at("signature")),
-    ],
-    ids=["forged-coefficient", "unknown-key", "other-algorithm", "signature-removed"],
-)
-def test_tampered_signed_models_are_refused(issued, tamper, ptr):
-    art, _, _ = issued
-    forged = model.sign(copy.deepcopy(art), KEYS)
-    tamper(forged)
-    forged["checksum"] = model.checksum(forged)  # a forger can recompute the plain checksum
-    with pytest.raises(InputError) as exc:
-        load_model(forged, KEYS)
-    assert exc.value.problems[0].where == ptr
-
-
-def test_previous_key_still_verifies_and_unsigned_is_marked(issued):
-    art, _, _ = issued
-    old = model.sign(copy.deepcopy(art), ("k1", KEYS[1]))
-    assert load_model(old, KEYS).coef.size == len(art["coefficients"])
-    unsigned = model.sign(copy.deepcopy(art), None)
-    assert (
-        unsigned["signature"]["algorithm"] == "none"
-        and "not signed" in unsigned["signature"]["note"]
+def test_a_model_that_records_nothing_of_cv_plus_says_why():
+    m = model.Model(
+        Specification.from_dict({"response": {"column": "y"}, "predictors": [{"column": "x"}]}),
+        ("intercept", "x"),
+        np.zeros(2),
+        np.eye(2),
+        1.0,
+        3,
+        {},
+        np.zeros(5),
+        "all",
+        {"x": (0.0, 1.0)},
+        0.5,
     )
-    load_model(unsigned, None)  # accepted where the service holds no key
-
-
-def test_sign_all_reaches_every_model_in_a_response(issued):
-    art, _, _ = issued
-    body = {
-        "ranking": [{"model": copy.deepcopy(art)}, {"model": copy.deepcopy(art)}],
-        "groups": [{"ranking": [{"model": copy.deepcopy(art)}]}],
-        "values": [1.0, 2.0],
-    }
-    model.sign_all(body, KEYS)
-    models = [
-        body["ranking"][0]["model"],
-        body["ranking"][1]["model"],
-        body["groups"][0]["ranking"][0]["model"],
-    ]
-    assert all(m["signature"]["key_id"] == "k2" for m in models)
+    assert m.cv_plus is None and m.cv_plus_missing == model.NO_CV_PLUS
+    assert m.conditions_failed is None and m.issued is None
 
 
 def test_many_residuals_are_kept_as_evenly_spaced_quantiles():
@@ -172,81 +94,36 @@ def test_many_residuals_are_kept_as_evenly_spaced_quantiles():
     # the smearing factor of a log model barely moves (rel 1e-3, the spacing of the quantiles)
     assert np.mean(np.exp(values)) == pytest.approx(np.mean(np.exp(e)), rel=1e-3)
     kind, values = model.stored_residuals(e[:7])
-    assert kind == "all" and values == e[:7].tolist()
+    assert kind == "all" and values.tolist() == e[:7].tolist()
 
 
-def _reference_canon(v):
-    """Every number a float, written out recursively (the definition the fast path keeps)."""
-    if isinstance(v, dict):
-        return {k: _reference_canon(x) for k, x in v.items()}
-    if isinstance(v, (list, tuple)):
-        return [_reference_canon(x) for x in v]
-    if isinstance(v, bool) or v is None or isinstance(v, str):
-        return v
-    return float(v) if isinstance(v, (int, float)) else v
-
-
-def test_canonical_bytes_keep_their_definition_on_long_number_lists(issued):
-    art, _, _ = issued
-    body = copy.deepcopy(art)
-    body["extra"] = {
-        "ints": [1, 2, 3],
-        "flags": [True, False],
-        "mixed": [1, 2.5, True, None],
-        "floats": [0.1, 2.0],
-        "folds": list(range(1, 6)) * 400,
+def test_signing_all_marks_every_model_of_a_body_and_nothing_else(built):
+    m, _, _ = built
+    keys = ("k", {"k": b"key"})
+    body = {
+        "ranking": [{"model": m, "rank": 1}, {"model": m}],
+        "groups": {"north": {"ranking": [{"model": m}]}},
+        "values": [1.0, 2.0],
     }
-    body["residuals"]["values"] = [
-        int(v) if i % 7 == 0 else v for i, v in enumerate(body["residuals"]["values"])
+    model.signing_all(body, keys)
+    marked = [
+        body["ranking"][0]["model"],
+        body["ranking"][1]["model"],
+        body["groups"]["north"]["ranking"][0]["model"],
     ]
-    clean = {k: v for k, v in body.items() if k not in model.UNSIGNED_FIELDS}
-    # source: json.dumps(sort_keys, compact) of the recursive all-floats form
-    ref = json.dumps(_reference_canon(clean), sort_keys=True, separators=(",", ":"))
-    assert model.canonical_bytes(body) == ref.encode()
+    assert all(isinstance(x, model.Signing) and x.model is m and x.keys == keys for x in marked)
+    assert body["ranking"][0]["rank"] == 1 and body["values"] == [1.0, 2.0]
+    model.signing_all(body, None)  # already marked: left as they are
+    assert body["ranking"][0]["model"].keys == keys
 
 
-def _hmac_reference(body: dict, kid: str) -> str:
-    """RFC 2104 HMAC-SHA-256 over the key id, a newline and the canonical JSON written out
-    (json.dumps of the all-floats form, private bytes and unsigned fields left out)."""
-    clean = {
-        k: v for k, v in body.items() if k not in model.UNSIGNED_FIELDS and not isinstance(v, bytes)
-    }
-    text = json.dumps(_reference_canon(clean), sort_keys=True, separators=(",", ":"))
-    return hmac.new(KEYS[1][kid], kid.encode() + b"\n" + text.encode(), hashlib.sha256).hexdigest()
+def test_library_versions_are_this_process_s():
+    import scipy
+    import statsmodels
 
-
-def test_seal_keeps_the_bytes_it_checksummed_and_sign_uses_them_once(issued):
-    art, _, _ = issued
-    body = model.seal(copy.deepcopy(art), keep=True)
-    # source: hashlib.sha256 over the written-out canonical JSON (test above)
-    assert body["checksum"] == art["checksum"]
-    assert body[model.CANONICAL] == model.canonical_bytes(art)
-    # the kept bytes are no part of the canonical form
-    assert model.checksum(body) == art["checksum"]
-    model.sign(body, KEYS)
-    assert model.CANONICAL not in body
-    # source: RFC 2104 HMAC-SHA-256 via Python's hmac module over the written-out form
-    assert body["signature"]["value"] == _hmac_reference(body, "k2")
-    assert load_model(json.loads(json.dumps(body)), KEYS).coef.size == len(art["coefficients"])
-    unsigned = model.sign(model.seal(copy.deepcopy(art), keep=True), None)
-    assert model.CANONICAL not in unsigned and unsigned["signature"]["algorithm"] == "none"
-
-
-def test_kept_bytes_that_no_longer_match_the_checksum_are_not_signed(issued):
-    art, _, _ = issued
-    body = model.seal(copy.deepcopy(art), keep=True)
-    body["coefficients"][0] += 1.0
-    body["checksum"] = model.checksum(body)  # changed and checksummed again, not resealed
-    model.sign(body, KEYS)
-    # source: RFC 2104 HMAC over the body as it is now, not the stale bytes
-    assert body["signature"]["value"] == _hmac_reference(body, "k2")
-    assert load_model(body, KEYS).coef[0] == pytest.approx(art["coefficients"][0] + 1.0)
-
-
-def test_only_bytes_under_the_private_key_are_left_out_of_the_checksum(issued):
-    art, _, _ = issued
-    sent = copy.deepcopy(art)
-    sent[model.CANONICAL] = "a string a client added"  # JSON: part of what is checked
-    assert model.checksum(sent) != art["checksum"]
-    with pytest.raises(InputError):
-        load_model(sent, None)
+    v = model.library_versions()
+    assert (v.numpy, v.scipy, v.statsmodels) == (
+        np.__version__,
+        scipy.__version__,
+        statsmodels.__version__,
+    )

@@ -237,8 +237,9 @@ def test_predictions_use_the_same_bounded_smearing(rt):
     x = rng.uniform(1, 6, n)
     y = np.exp(0.5 + 0.3 * x + rng.standard_t(3, n) * 0.15)
     art, spec, fit, _ = issue({"y": y.tolist(), "x": x.tolist()}, "y", [("x", {"name": "log"})], rt)
+    from service.api.artifact import load_model
     from service.api.render import contract
-    from service.core.predict import load_model, predict
+    from service.core.predict import predict
 
     x0 = np.linspace(1, 6, 200)
     out = contract(predict(load_model(art), {"columns": {"x": x0.tolist()}}))

@@ -15,6 +15,7 @@ from service.core.data import prepare
 from service.core.errors import CandidateFailure, InputError, SpecField
 from service.core.spec import (
     Columns,
+    Levels,
     PredictorSpec,
     Specification,
     build_design,
@@ -58,7 +59,7 @@ def test_treatment_dummies_equal_pandas_get_dummies():
     np.testing.assert_array_equal(d.X[:, 2:], ref.to_numpy(float))
     np.testing.assert_array_equal(d.X[:, 0], np.ones(40))
     np.testing.assert_array_equal(d.X[:, 1], x)
-    assert d.levels["soil"] == {"levels": ["clay", "loam", "peat", "sand"], "reference": "clay"}
+    assert d.levels["soil"] == Levels(("clay", "loam", "peat", "sand"), "clay")
     assert [t.kind for t in d.terms] == ["numeric", "categorical"]
     assert d.terms[1].indices == (2, 3, 4)
 
@@ -153,3 +154,12 @@ def test_log_of_a_column_with_zeros_gets_a_shift_from_the_column_alone():
 
 def test_term_label_is_column_equals_level():
     assert term_label("soil", "loam") == "soil=loam"
+
+
+def test_levels_name_the_dummies_of_every_level_but_the_reference():
+    lv = Levels(("clay", "loam", "sand"), "loam")
+    # source: pandas.get_dummies with the reference column dropped (treatment coding)
+    import pandas as pd
+
+    dummies = pd.get_dummies(pd.Categorical(["clay", "loam", "sand"])).drop(columns="loam")
+    assert lv.others == tuple(dummies.columns)

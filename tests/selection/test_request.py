@@ -15,8 +15,9 @@ import time
 
 import numpy as np
 import pytest
+from service.api.encode import to_jsonable
+from service.api.render.model import canonical_bytes
 from service.core.errors import ErrorRecord, InputError, Option
-from service.core.model import canonical_bytes
 from service.selection.deadline import Deadline
 from service.selection.groups import GroupFailure
 from service.selection.request import (
@@ -83,12 +84,12 @@ def test_the_ranking_is_the_search_s_own_with_version_and_cautions_added():
 
 def test_models_are_signed_with_the_service_s_key():
     key = b"k" * 32
-    body = run_selection(_job(), Service("v", ("current", {"current": key})))
+    body = to_jsonable(run_selection(_job(), Service("v", ("current", {"current": key}))))
     model = body["ranking"][0]["model"]
     # source: RFC 2104 HMAC-SHA-256 computed with Python's hmac over key id, newline, body
     want = hmac.new(key, b"current\n" + canonical_bytes(model), hashlib.sha256).hexdigest()
     assert model["signature"] == {"algorithm": "HMAC-SHA-256", "key_id": "current", "value": want}
-    unsigned = run_selection(_job(), SERVICE)["ranking"][0]["model"]["signature"]
+    unsigned = to_jsonable(run_selection(_job(), SERVICE))["ranking"][0]["model"]["signature"]
     assert unsigned["algorithm"] == "none"
 
 

@@ -38,9 +38,11 @@ from . import (  # noqa: E402,F401
     drift,
     groups,
     incumbent,
+    model,
     plots,
     predictions,
     search,
+    transforms,
     trust,
 )
 

@@ -7,18 +7,17 @@ from typing import Any, NoReturn
 
 from .._types import FloatArray
 from .bounds import REFERENCE_MAX_CHARS
-from .family import EVERYWHERE, Domain, Family, Params
+from .family import EVERYWHERE, Domain, Family, Parameter, Params, WhenOmitted
 
-REFERENCE_PARAMETER: dict[str, Any] = {
-    "name": "reference",
-    "type": "string",
-    "min_length": 1,
-    "max_length": REFERENCE_MAX_CHARS,
-    "default": "the first level in sorted order",
-    "when_omitted": {"predictor": "default", "predictor_search": "default"},
-    "example": None,
-    "meaning": "the baseline level the other levels are compared with",
-}
+REFERENCE_PARAMETER = Parameter(
+    field="reference",
+    kind="string",
+    length=(1, REFERENCE_MAX_CHARS),
+    default="the first level in sorted order",
+    when_omitted=WhenOmitted(None, "default", "default"),
+    example=None,
+    meaning="the baseline level the other levels are compared with",
+)
 
 
 class Categorical(Family):

@@ -100,6 +100,33 @@ class Domain:
         return f"has values < {_bound_text(self.bound)}"
 
 
+@dataclass(frozen=True)
+class WhenOmitted:
+    """What an omitted parameter means in each place a transform may be named (None: the
+    family is not named there): "required", "default" or "estimated"."""
+
+    response: str | None = None
+    predictor: str | None = None
+    predictor_search: str | None = None
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """A family's parameter as the catalogue (GET /v1/transforms) describes it: ``field``,
+    its name in a transform object, ``kind`` its type in words, its ``bounds`` (numbers) or
+    ``length`` (strings), ``default``, what omitting it means, an ``example`` and its
+    ``meaning``."""
+
+    field: str
+    kind: str
+    when_omitted: WhenOmitted
+    example: float | None
+    meaning: str
+    default: str | None = None
+    bounds: tuple[float, float] | None = None
+    length: tuple[int, int] | None = None
+
+
 EVERYWHERE = Domain()
 NON_NEGATIVE = Domain(0.0, strict=False)
 POSITIVE = Domain(0.0, strict=True)
@@ -116,8 +143,8 @@ class Family(ABC):
     domain_statement: ClassVar[str]
     #: the catalogue's reading of a coefficient on this scale
     reading: ClassVar[str]
-    #: the catalogue's parameter entries (type, bounds, default, when_omitted, meaning)
-    parameters: ClassVar[tuple[dict[str, Any], ...]] = ()
+    #: the catalogue's parameter entries (type, bounds, default, when omitted, meaning)
+    parameters: ClassVar[tuple[Parameter, ...]] = ()
     #: where the family may be named
     applies_to: ClassVar[tuple[str, ...]] = ("response", "predictor")
     #: False for a family with no numeric map (categorical columns)
@@ -158,16 +185,6 @@ class Family(ABC):
     @abstractmethod
     def label(self, t: Params, column: str) -> str:
         """The transformed column in equations (rule: :meth:`Transform.label`)."""
-
-    def catalogue_entry(self) -> dict[str, Any]:
-        """This family's entry of GET /v1/transforms."""
-        return {
-            "name": self.name,
-            "parameters": [dict(p) for p in self.parameters],
-            "domain": self.domain_statement,
-            "applies_to": list(self.applies_to),
-            "reading": self.reading,
-        }
 
     # ------------------------------------------------------------ the domain
     @abstractmethod
@@ -220,25 +237,19 @@ class Family(ABC):
         """sum_i log|g'(y_i)|."""
 
 
-def lambda_parameter(family: str) -> dict[str, Any]:
+def lambda_parameter(family: str) -> Parameter:
     """The catalogue entry of a Box-Cox / Yeo-Johnson lambda."""
-    return {
-        "name": "lambda",
-        "type": "number",
-        "minimum": -LAMBDA_BOUND,
-        "maximum": LAMBDA_BOUND,
-        "default": None,
-        "when_omitted": {
-            "response": "estimated",
-            "predictor": "required",
-            "predictor_search": "required",
-        },
-        "example": 0.5,
-        "meaning": f"the {family} lambda; |lambda| < {PARAM_FLOOR:g} is read as 0 (the log)"
+    return Parameter(
+        field="lambda",
+        kind="number",
+        bounds=(-LAMBDA_BOUND, LAMBDA_BOUND),
+        when_omitted=WhenOmitted("estimated", "required", "required"),
+        example=0.5,
+        meaning=f"the {family} lambda; |lambda| < {PARAM_FLOOR:g} is read as 0 (the log)"
         + (f" and |lambda - 2| < {PARAM_FLOOR:g} as 2" if family == "Yeo-Johnson" else "")
         + "; omit it on the response to estimate it by the profile likelihood of the whole "
         "model; a predictor needs a fixed lambda (for an estimated predictor power use power)",
-    }
+    )
 
 
 class LambdaFamily(Family):

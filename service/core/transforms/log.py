@@ -9,21 +9,19 @@ import numpy as np
 from .._types import FloatArray
 from ..numbers import fmt_param
 from .bounds import SHIFT_BOUND
-from .family import POSITIVE, Domain, Family, Params
+from .family import POSITIVE, Domain, Family, Parameter, Params, WhenOmitted
 
-SHIFT_PARAMETER: dict[str, Any] = {
-    "name": "shift",
-    "type": 'number or "auto"',
-    "minimum": -SHIFT_BOUND,
-    "maximum": SHIFT_BOUND,
-    "default": None,
-    "when_omitted": {"response": "default", "predictor": "default", "predictor_search": "default"},
-    "example": 1.0,
-    "meaning": 'a constant added before the log (log(x + shift)), or "auto" to let the '
+SHIFT_PARAMETER = Parameter(
+    field="shift",
+    kind='number or "auto"',
+    bounds=(-SHIFT_BOUND, SHIFT_BOUND),
+    when_omitted=WhenOmitted("default", "default", "default"),
+    example=1.0,
+    meaning='a constant added before the log (log(x + shift)), or "auto" to let the '
     "service choose half the smallest positive value when the column has zeros; without a "
     "shift (the default) a requested log is used as sent and needs values > 0; the default "
     "search adds a chosen shift on its own and labels it",
-}
+)
 
 
 def chosen_shift(x: np.ndarray) -> float:

@@ -17,24 +17,27 @@ import numpy as np
 from .._types import FloatArray
 from ..numbers import fmt_param
 from .bounds import EXPONENT_BOUND, PARAM_FLOOR
-from .family import NON_NEGATIVE, POSITIVE, Domain, Family, Params, exponent_of
+from .family import (
+    NON_NEGATIVE,
+    POSITIVE,
+    Domain,
+    Family,
+    Parameter,
+    Params,
+    WhenOmitted,
+    exponent_of,
+)
 
-EXPONENT_PARAMETER: dict[str, Any] = {
-    "name": "exponent",
-    "type": "number",
-    "minimum": -EXPONENT_BOUND,
-    "maximum": EXPONENT_BOUND,
-    "default": None,
-    "when_omitted": {
-        "response": "required",
-        "predictor": "required",
-        "predictor_search": "estimated",
-    },
-    "example": 0.25,
-    "meaning": f"the exponent q in x^q, {PARAM_FLOOR:g} <= |q| <= {EXPONENT_BOUND:g} (use log for "
+EXPONENT_PARAMETER = Parameter(
+    field="exponent",
+    kind="number",
+    bounds=(-EXPONENT_BOUND, EXPONENT_BOUND),
+    when_omitted=WhenOmitted("required", "required", "estimated"),
+    example=0.25,
+    meaning=f"the exponent q in x^q, {PARAM_FLOOR:g} <= |q| <= {EXPONENT_BOUND:g} (use log for "
     "0); in transforms.predictors omit it (or send estimated: true) to estimate the "
     "predictor's power from the data (Box & Tidwell 1962)",
-}
+)
 
 
 class Sqrt(Family):

@@ -7,8 +7,6 @@ catalogue's and the schema's); see DEVELOPERS.md "How to add a transform family"
 
 from __future__ import annotations
 
-from typing import Any
-
 from .box_cox import BoxCox
 from .categorical import Categorical
 from .family import Family
@@ -37,16 +35,15 @@ ALL_NAMES: tuple[str, ...] = tuple(FAMILIES)
 NUMERIC_NAMES: tuple[str, ...] = tuple(n for n, f in FAMILIES.items() if f.numeric)
 #: the families whose lambda the response's rows estimate when it is omitted
 LAMBDA_NAMES: tuple[str, ...] = tuple(n for n, f in FAMILIES.items() if f.has_lambda)
-#: GET /v1/transforms: each family's parameters, domain, places and reading
-CATALOGUE: list[dict[str, Any]] = [f.catalogue_entry() for f in _ALL]
+#: GET /v1/transforms: each family's parameters, domain, places and reading, in order
+#: (``service.api.render.transforms`` writes the entries)
+CATALOGUE: tuple[Family, ...] = _ALL
 
 
 def families_with_parameter(parameter: str) -> tuple[str, ...]:
-    """Names of the families that take ``parameter`` (a key of their contract form), in
+    """Names of the families that take ``parameter`` (a field of their contract form), in
     registry order: the request schema refuses the parameter on any other family."""
-    return tuple(
-        n for n, f in FAMILIES.items() if any(p.get("name") == parameter for p in f.parameters)
-    )
+    return tuple(n for n, f in FAMILIES.items() if any(p.field == parameter for p in f.parameters))
 
 
 def family_of(name: str) -> Family:

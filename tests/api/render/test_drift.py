@@ -14,8 +14,11 @@ import pytest
 from scipy.stats import entropy
 from service.api.encode import to_jsonable
 from service.api.render import contract
+from service.core import transforms as tr
 from service.core.data import prepare
 from service.core.drift import RULE, compare, profile
+from service.core.model import Model
+from service.core.spec import Levels, PredictorSpec, Specification
 
 
 def _prep(rng, n, shift=0.0, soils=("clay", "loam", "sand"), age_offset=0):
@@ -28,22 +31,31 @@ def _prep(rng, n, shift=0.0, soils=("clay", "loam", "sand"), age_offset=0):
     return prepare({"columns": cols}, "cost", ["load", "age", "soil"], ["soil"])
 
 
-def _artifact(prep, with_profile=True):
-    art = {
-        "specification": {
-            "response": {"column": "cost", "transform": {"name": "log"}},
-            "predictors": [{"column": c} for c in ("load", "age", "soil", "depth")],
+def _artifact(prep, with_profile=True, columns=("load", "age", "soil", "depth")):
+    """A model recording what drift reads: its specification, training rows, ranges, levels
+    and (``with_profile``) the training rows' profile."""
+    spec = Specification(
+        "cost",
+        tr.Transform("log"),
+        tuple(PredictorSpec(c, tr.Transform("identity")) for c in columns),
+    )
+    return Model(
+        spec=spec,
+        terms=(),
+        coef=np.zeros(0),
+        xtx_inverse=np.zeros((0, 0)),
+        residual_variance=1.0,
+        df_residual=1,
+        levels={"soil": Levels(tuple(sorted(set(prep.categorical["soil"]))), "clay")},
+        residuals=np.zeros(1),
+        residual_kind="all",
+        training_range={
+            c: (float(prep.numeric[c].min()), float(prep.numeric[c].max())) for c in ("load", "age")
         },
-        "n": prep.n,
-        "training_range": {
-            c: {"min": float(prep.numeric[c].min()), "max": float(prep.numeric[c].max())}
-            for c in ("load", "age")
-        },
-        "levels": {"soil": {"levels": sorted(set(prep.categorical["soil"]))}},
-    }
-    if with_profile:
-        art["data_profile"] = profile(prep, ["load", "age", "soil"])
-    return art
+        max_leverage=0.0,
+        n=prep.n,
+        profile=profile(prep, ["load", "age", "soil"]) if with_profile else None,
+    )
 
 
 @pytest.fixture(scope="module")
@@ -96,7 +108,7 @@ def test_rendered_numbers_match_numpy_and_scipy(case):
     then, now, art, out = case
     assert out["rows"] == {"then": 2000, "now": 1500}
     age = now.numeric["age"]
-    lo, hi = art["data_profile"]["predictors"]["age"]["edges"][::10]
+    lo, hi = art.profile.predictor("age").edges[::10]
     rng_out = out["predictors"]["age"]["outside_range"]
     # source: numpy counts of this month's ages outside the training range
     assert rng_out["below"] == int(np.sum(age < lo)) and rng_out["above"] == int(np.sum(age > hi))
@@ -106,13 +118,13 @@ def test_rendered_numbers_match_numpy_and_scipy(case):
     assert load["median_now"] == pytest.approx(np.median(now.numeric["load"]), rel=1e-12)
     assert load["median_then"] == pytest.approx(np.median(then.numeric["load"]), rel=1e-12)
     # source: scipy.stats.entropy (KL); PSI = KL(now||then) + KL(then||now) over the bins
-    edges = np.asarray(art["data_profile"]["predictors"]["load"]["edges"])
+    edges = np.asarray(art.profile.predictor("load").edges)
     counts = np.bincount(
         np.searchsorted(edges[1:-1], now.numeric["load"], side="right"),
         minlength=edges.size - 1,
     )
     a = np.maximum(counts / counts.sum(), 1e-4)  # common practice: empty bins as 0.0001
-    e = np.maximum(art["data_profile"]["predictors"]["load"]["shares"], 1e-4)
+    e = np.maximum(art.profile.predictor("load").shares, 1e-4)
     assert load["psi"] == pytest.approx(entropy(a, e) + entropy(e, a), rel=1e-9)
     assert load["shift"] == "major"  # common practice: PSI 0.25 or more
     soil = out["predictors"]["soil"]

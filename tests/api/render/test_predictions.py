@@ -5,10 +5,12 @@ import json
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from service.api.artifact import load_model
+from service.api.render import contract
 from service.api.render.predictions import finite_list, predictions
 from service.core.data import prepare
 from service.core.model import build_model
-from service.core.predict import load_model, predict
+from service.core.predict import predict
 from service.core.spec import Specification
 from service.selection.entries import fitted_model
 
@@ -22,7 +24,7 @@ def _model(y, x, rt):
         }
     )
     concrete, design, fit, _ = fitted_model(spec, prep)
-    art = build_model(concrete, design, fit, prep, "test")
+    art = contract(build_model(concrete, design, fit, prep, "test"))
     return load_model(json.loads(json.dumps(art, allow_nan=False)))
 
 

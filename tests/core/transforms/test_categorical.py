@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from service.core.transforms import CATALOGUE, NUMERIC_NAMES, Transform, from_dict
+from service.api.render.transforms import catalogue
+from service.core.transforms import NUMERIC_NAMES, Transform, from_dict
 
 
 def test_categorical_has_no_numeric_map():
@@ -31,6 +32,6 @@ def test_categorical_round_trips_its_reference_and_reads_as_the_column():
 
 
 def test_categorical_applies_to_predictors_only():
-    entry = next(e for e in CATALOGUE if e["name"] == "categorical")
+    entry = next(e for e in catalogue() if e["name"] == "categorical")
     assert entry["applies_to"] == ["predictor"]
     assert "categorical" not in NUMERIC_NAMES
