@@ -6,12 +6,14 @@ import logging
 from contextlib import asynccontextmanager
 
 from fastapi import FastAPI
+from threadpoolctl import threadpool_limits
 
 from .api import docs_page, errors, openapi, pool
 from .api.diagnostics import router as diagnostics_router
 from .api.metrics import mark_this_process_dead
-from .api.middleware import GuardMiddleware, ServiceMiddleware
+from .api.middleware import GuardMiddleware, ProblemCORSMiddleware, ServiceMiddleware
 from .api.predictions import router as predictions_router
+from .api.reports import router as reports_router
 from .api.routes import router
 from .settings import get_settings
 from .version import __version__
@@ -20,8 +22,6 @@ from .version import __version__
 def limit_blas_threads(n: int) -> None:
     """Small dense problems run fastest single-threaded; request-level parallelism comes
     from the worker pool, so BLAS threads are pinned process-wide (setting blas_threads)."""
-    from threadpoolctl import threadpool_limits
-
     threadpool_limits(limits=n)
 
 
@@ -62,8 +62,6 @@ def create_app() -> FastAPI:
     app.include_router(router)
     app.include_router(predictions_router)
     app.include_router(diagnostics_router)
-    from .api.reports import router as reports_router
-
     app.include_router(reports_router)
     # middleware: the last added is the outermost
     app.add_middleware(
@@ -75,8 +73,6 @@ def create_app() -> FastAPI:
         docs_public=s.docs_public,
     )
     if s.cors_origins:
-        from .api.middleware import ProblemCORSMiddleware
-
         app.add_middleware(
             ProblemCORSMiddleware,
             allow_origins=s.cors_origins,

@@ -24,22 +24,35 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import platform
 import re
 import sys
 import time
 from collections.abc import Callable, Iterable, Iterator
+from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures import as_completed as finished_futures
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
+from threadpoolctl import threadpool_limits
+
+from .api.artifact import load_model
+from .api.encode import to_jsonable
+from .api.errors import group_problem, problem_object
+from .api.options import service
+from .api.render import contract
+from .batch_parquet import SegmentRef, SharedDirError, SharedParquet
+from .core.data import Prepared
+from .core.drift import compare
+from .core.errors import InputError
+from .core.model import Model, library_versions
 from .core.numbers import count_of
+from .selection.groups import GroupFailure, GroupTask, group_parts, select_group
+from .selection.request import finish_body
+from .selection.search_setup import SearchOptions
+from .selection.workers import _context, _init_worker
 from .settings import get_settings
-
-if TYPE_CHECKING:
-    from .batch_parquet import SharedParquet
-    from .core.data import Prepared
-    from .core.model import Model
-    from .selection.search_setup import SearchOptions
 
 MANIFEST = "manifest.json"
 SUMMARY = "summary.json"
@@ -107,8 +120,6 @@ def _pin_blas_once() -> None:
     """Pin this process's BLAS threads once (a `dask worker` started by hand did not)."""
     global _blas_pinned
     if not _blas_pinned:
-        from threadpoolctl import threadpool_limits
-
         n = int(os.environ.get("BESTSCALE_BLAS_THREADS", "1") or 1)
         threadpool_limits(limits=max(1, n))
         _blas_pinned = True
@@ -121,12 +132,6 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: Mod
     the shared Parquet dataset, or its ``GroupFailure`` when it was already known to be
     unusable.  An incumbent's model artifact adds the ``drift`` block.
     """
-    from .api.errors import group_problem, problem_object
-    from .api.options import service
-    from .batch_parquet import SegmentRef, SharedDirError
-    from .selection.groups import GroupFailure, GroupTask, select_group
-    from .selection.request import finish_body
-
     _pin_blas_once()
     if isinstance(sub, SegmentRef):
         try:
@@ -146,16 +151,12 @@ def run_segment(name: str, sub, opts, service_version: str, incumbent_model: Mod
     else:
         body = finish_body(body, opts, service())
     if incumbent_model is not None and not isinstance(sub, GroupFailure):
-        from .core.drift import compare
-
         body["drift"] = compare(incumbent_model, sub)
     return _jsonable(body)  # in contract form: the summary reads it as the files hold it
 
 
 def unexpected_problem(exc: BaseException) -> dict:
     """A segment that raised something the core did not raise on purpose: its own failure."""
-    from .api.errors import problem_object
-
     return {
         "problem": problem_object(
             500,
@@ -203,10 +204,6 @@ def run_inline(tasks: list[Task], fn=run_segment) -> Iterator[tuple[str, dict]]:
 
 def run_pool(tasks: list[Task], processes: int, fn=run_segment) -> Iterator[tuple[str, dict]]:
     """This machine's worker processes (the pool of service/selection/workers.py)."""
-    from concurrent.futures import ProcessPoolExecutor, as_completed
-
-    from .selection.workers import _context, _init_worker
-
     if processes <= 1 or len(tasks) <= 1:
         yield from run_inline(tasks, fn)
         return
@@ -218,7 +215,7 @@ def run_pool(tasks: list[Task], processes: int, fn=run_segment) -> Iterator[tupl
         initargs=(blas,),
     ) as pool:
         futures = {pool.submit(_call_guarded, fn, t): t.name for t in tasks}
-        for fut in as_completed(futures):
+        for fut in finished_futures(futures):
             try:
                 yield futures[fut], fut.result()
             except Exception as exc:  # a worker process died (killed, out of memory)
@@ -273,6 +270,9 @@ class DaskSession:
     """A client on a running scheduler (an address) or on a LocalCluster started here."""
 
     def __init__(self, where: str, workers: int | None = None):
+        # dask and distributed are imported where a job uses them (a cluster, the manifest's
+        # versions): about 1 s of CPU that every other importer of this module (the worker
+        # processes of the pool, the command line) would pay for nothing
         from distributed import Client, LocalCluster
 
         self.cluster = None
@@ -416,9 +416,6 @@ def read_incumbents(path: str, validate_spec: Callable[[dict, str], dict]) -> di
         spec = obj.get("specification")
         loaded = None
         if model is not None:
-            from .api.artifact import load_model
-            from .core.errors import InputError
-
             try:
                 loaded = load_model(model)
             except InputError as exc:
@@ -449,13 +446,8 @@ class Job:
 
 
 def versions() -> dict:
-    import platform
-
-    import dask
+    import dask  # deferred: see DaskSession
     import distributed
-
-    from .api.render import contract
-    from .core.model import library_versions
 
     return {
         "python": platform.python_version(),
@@ -467,8 +459,6 @@ def versions() -> dict:
 
 def is_failed_segment(sub) -> bool:
     """True for a segment already known to be unusable (a ``GroupFailure`` of the split)."""
-    from .selection.groups import GroupFailure
-
     return isinstance(sub, GroupFailure)
 
 
@@ -556,8 +546,6 @@ def run_job(
     With ``shared`` the segments' rows go to the shared Parquet dataset (written once, or
     reused when a finished one holds the same rows) and each task carries a reference to its
     own partition instead of the rows."""
-    from .selection.groups import group_parts
-
     out = job.out
     seg_dir = out / SEGMENTS
     parts = group_parts(job.prep)
@@ -645,8 +633,6 @@ def run_job(
 
 
 def _jsonable(obj):
-    from .api.encode import to_jsonable
-
     return to_jsonable(obj)
 
 

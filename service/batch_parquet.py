@@ -34,6 +34,10 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pyarrow as pa
+
+from .core.data import segment_of
+from .selection.groups import GroupFailure
 
 FORMAT = "bestscale-segments"
 MARKER = "_complete.json"
@@ -75,10 +79,7 @@ class SegmentRef:
 
     def load(self):
         """The segment's Prepared, read from its own partition only and checked."""
-        import pyarrow as pa
-        import pyarrow.dataset as ds
-
-        from .core.data import segment_of
+        import pyarrow.dataset as ds  # deferred: see _write
 
         part = self.directory
         try:
@@ -191,8 +192,6 @@ class SharedParquet:
     def publish(self, prep, parts: dict, data_fingerprint: str) -> dict[str, SegmentRef]:
         """Write the usable segments (or reuse a finished dataset of the same rows) and return
         one reference per segment name."""
-        from .selection.groups import GroupFailure
-
         key = dataset_key(prep, data_fingerprint)
         final = self.root / f"{FORMAT}-{key}"
         index = {name: i for i, name in enumerate(parts)}
@@ -231,7 +230,8 @@ class SharedParquet:
         return marker.get("key") == key and marker.get("segments") == segments
 
     def _write(self, final: Path, key: str, prep, parts, index, usable) -> None:
-        import pyarrow as pa
+        # pyarrow.dataset costs about 0.5 s of CPU to import, paid only by the shared-Parquet
+        # transport (not by every importer of this module, the worker processes among them)
         import pyarrow.dataset as ds
 
         # rows of the usable segments, grouped by segment, each segment in its input order

@@ -1,4 +1,9 @@
-"""``python -m service select ...``: the selection in-process, writing the API's JSON."""
+"""``python -m service select ...``: the selection in-process, writing the API's JSON.
+
+The service's modules are imported inside the functions that use them, not here:
+``python -m service`` imports this module (``whole_number``) before it sets the BLAS thread
+variables, which numpy reads once, when it is first imported (see ``__main__._pin_blas``).
+"""
 
 from __future__ import annotations
 

@@ -17,6 +17,8 @@ from __future__ import annotations
 import h11
 from uvicorn.protocols.http.h11_impl import H11Protocol
 
+from .settings import get_settings
+
 
 class GuardedH11(H11Protocol):
     """The server's h11 protocol with the two limits (settings BESTSCALE_HEADER_TIMEOUT_S and
@@ -25,8 +27,6 @@ class GuardedH11(H11Protocol):
     _header_timer = None
 
     def connection_made(self, transport) -> None:
-        from .settings import get_settings
-
         s = get_settings()
         self.header_timeout_s, self.max_connections = s.header_timeout_s, s.max_connections
         super().connection_made(transport)

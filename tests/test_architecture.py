@@ -501,6 +501,12 @@ MORE_CONTRACT_NAMES = frozenset(
         "inner_complete",
         "nested_error",
         "winner_error",
+        # the coefficient table under Newey-West standard errors (service/api/render/estimates.py)
+        "std_error_hac",
+        "t_statistic_hac",
+        "p_value_hac",
+        "ci_low_hac",
+        "ci_high_hac",
         # the model artifact's CV+ powers estimated per fold (service/api/render/model.py)
         "fold_powers",
         "columns",
@@ -511,14 +517,6 @@ MORE_CONTRACT_NAMES = frozenset(
 #: count may only fall; the test fails when a file writes more, or fewer without this table
 #: saying so)
 NOT_YET_RENDERED = {
-    "core/batchcv.py": 3,
-    "core/boxtidwell.py": 11,
-    "core/cvresult.py": 3,
-    "core/fastcv.py": 3,
-    "core/fitting.py": 7,
-    "core/interpret.py": 33,
-    "core/likelihood.py": 9,
-    "core/sources.py": 5,
     "core/spec.py": 7,
     "core/transforms/categorical.py": 2,
     "core/transforms/family.py": 2,
@@ -528,10 +526,10 @@ NOT_YET_RENDERED = {
     "report/html.py": 11,
     "selection/candidates.py": 1,
     "selection/diagnose.py": 8,
-    "selection/entries.py": 39,
+    "selection/entries.py": 38,
     "selection/groups.py": 5,
     "selection/request.py": 2,
-    "selection/search.py": 43,
+    "selection/search.py": 29,
 }
 
 

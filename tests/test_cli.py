@@ -401,3 +401,12 @@ def test_cli_groups_count_the_time_limit_from_each_group_start(tmp_path, monkeyp
     job = api_options.selection_job(req)
     body = with_group_problems(run_selection(job, api_options.service()))
     assert all(g["problem"]["status"] == 503 for g in body["groups"].values())
+
+
+def test_importing_the_command_line_loads_no_numerical_library():
+    # source: OpenBLAS reads OPENBLAS_NUM_THREADS once, when the library loads (its README;
+    # from memory), so __main__ must set it before anything imports numpy
+    code = "import sys, service.__main__ as m, service.cli; m.serve_parser('127.0.0.1', 8000, 1); "
+    code += "print(sorted({'numpy', 'scipy', 'pyarrow'} & set(sys.modules)))"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"

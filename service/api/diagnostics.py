@@ -5,6 +5,7 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from ..report.figures import render_figure
 from ..selection.diagnose import diagnose_specification
 from ..version import __version__
 from .encode import JSONBody
@@ -47,8 +48,6 @@ def post_diagnostics(req: DiagnosticsRequest, request: Request):
         note_result({"data": prep.data_summary()})
         fmt = _wanted_image(request)
         if fmt is not None:
-            from ..report.figures import render_figure
-
             image = render_figure(plots, fmt, title=entry["equation"])
             media = "image/svg+xml" if fmt == "svg" else "image/png"
             return Response(image, media_type=media)

@@ -15,7 +15,18 @@ import glob
 import os
 import re
 
-from prometheus_client import REGISTRY, Counter, Gauge, Histogram
+from prometheus_client import (
+    CONTENT_TYPE_LATEST,
+    GC_COLLECTOR,
+    PLATFORM_COLLECTOR,
+    PROCESS_COLLECTOR,
+    REGISTRY,
+    Counter,
+    Gauge,
+    Histogram,
+    generate_latest,
+    multiprocess,
+)
 
 MULTIPROCESS_DIR = os.environ.get("PROMETHEUS_MULTIPROC_DIR") or None
 
@@ -87,8 +98,6 @@ def _alive(pid: int) -> bool:
 
 
 def _install_multiprocess_collector() -> None:
-    from prometheus_client import GC_COLLECTOR, PLATFORM_COLLECTOR, PROCESS_COLLECTOR, multiprocess
-
     class _Collector(multiprocess.MultiProcessCollector):
         def collect(self):
             # a worker that died without clean-up leaves its live gauges behind
@@ -108,15 +117,11 @@ def _install_multiprocess_collector() -> None:
 def mark_this_process_dead() -> None:
     """At a worker's clean shutdown: its live gauges stop counting."""
     if MULTIPROCESS_DIR:
-        from prometheus_client import multiprocess
-
         multiprocess.mark_process_dead(os.getpid(), MULTIPROCESS_DIR)
 
 
 def exposition() -> tuple[bytes, str]:
     """The text format of every metric (summed over processes) and its media type."""
-    from prometheus_client import CONTENT_TYPE_LATEST, generate_latest
-
     return generate_latest(REGISTRY), CONTENT_TYPE_LATEST
 
 

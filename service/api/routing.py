@@ -14,6 +14,9 @@ import io
 
 import anyio
 import orjson
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.parquet as pq
 from fastapi import Request
 from fastapi.routing import APIRoute
 from starlette.requests import ClientDisconnect
@@ -26,6 +29,7 @@ from .options import (
     check_table_columns,
     check_uncompressed,
 )
+from .pool import compute_slot
 
 JSON_TYPES = ("application/json",)
 MULTIPART = "multipart/form-data"
@@ -106,9 +110,6 @@ def _problem(status: int, kind: str, title: str, pointer: str, detail: str) -> P
 def _parquet_limits(raw: bytes):
     """Open a Parquet file and check rows, columns and decoded size from its footer alone,
     before any page is decompressed; return the open file."""
-    import pyarrow as pa
-    import pyarrow.parquet as pq
-
     try:
         pf = pq.ParquetFile(io.BytesIO(raw))
         meta = pf.metadata
@@ -143,8 +144,6 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
     """
     name = (filename or "").lower()
     if raw[:4] == PARQUET_MAGIC or name.endswith((".parquet", ".pq")):
-        import pyarrow as pa
-
         pf = _parquet_limits(raw)
         try:
             table = pf.read()
@@ -160,8 +159,6 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
         for col in table.column_names:
             arr = table.column(col)
             if pa.types.is_floating(arr.type):
-                import pyarrow.compute as pc
-
                 # NaN in a Parquet float column is a missing value (the row is dropped, listed)
                 arr = pc.if_else(pc.is_nan(arr), pa.scalar(None, arr.type), arr)
             elif not (
@@ -197,8 +194,6 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
 
 
 def _decode_in_slot(raw: bytes, filename: str | None) -> dict:
-    from .pool import compute_slot
-
     with compute_slot():  # decoding a table is computation: it takes a slot (503 if none)
         return table_from_file(raw, filename)
 

@@ -14,6 +14,7 @@ from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_vali
 
 from ..core import transforms as tr
 from ..core.conditions import DEFAULT_ALPHA
+from ..core.errors import InputError, Option
 from ..core.folds import DEFAULT_SEED
 from ..selection.plots import PLOT_MAX_POINTS
 from ..selection.search_setup import (
@@ -292,8 +293,6 @@ class ValidationIn(_Strict):
 
     def check_scheme(self) -> None:
         """Options that contradict the fold scheme: a 422 naming the field."""
-        from service.core.errors import InputError, Option
-
         if self.scheme == "blocked" and self.repeats != 1:
             raise InputError.at(
                 Option("validation.repeats"),

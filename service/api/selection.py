@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
+import anyio.from_thread
 from fastapi import Request
 
 
@@ -18,7 +19,6 @@ def disconnect_probe(request: Request) -> Callable[[], bool]:
     search asks it between candidates (at most a few times a second), so a caller that hung
     up frees its compute slot instead of holding it to the time limit.
     """
-    import anyio.from_thread
 
     def gone() -> bool:
         try:

@@ -38,7 +38,7 @@ import numpy as np
 
 from . import retransform
 from . import transforms as tr
-from .cvresult import CVResult, error_of, std_error_of, summary_of
+from .cvresult import METRICS, CVResult, error_of, std_error_of, summary_of
 from .errors import CandidateFailure
 from .fastcv import Scorer, undefined_back_transform
 from .fitting import solve_batch
@@ -124,7 +124,7 @@ def _batch_unguarded(
     XS = X[:, S]  # (n, C, p)
     cf, ctot = bank.cross(t, z)
     fold_vals = np.empty((C, R * K))
-    pooled = {"rmse": np.empty((C, R)), "mae": np.empty((C, R)), "mape": np.empty((C, R))}
+    pooled = {name: np.empty((C, R)) for name in METRICS}
     kind = retransform.closed_form(t0)
     for r in range(R):
         a = np.asarray(plan.assignments[r], dtype=np.intp)
@@ -187,7 +187,7 @@ def _batch_unguarded(
         summary = summary_of(
             pooled["rmse"][j], pooled["mae"][j], pooled["mape"][j] if scorer.want_mape else None
         )
-        value = summary[plan.metric]
+        value = summary.of(plan.metric)
         if value is None or not math.isfinite(value):
             out.append(None)
             continue

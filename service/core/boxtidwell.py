@@ -44,7 +44,6 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 from scipy import optimize, stats
@@ -74,7 +73,7 @@ class PowerFit:
     method: str  # "box_tidwell" | "profile"
     rss: float
 
-    def summary(self, j: int, level: float = 0.95) -> dict[str, Any]:
+    def summary(self, j: int, level: float = 0.95) -> PowerSummary:
         """Power j as reported: estimate, standard error, Wald interval, nearest ladder power."""
         a = float(self.powers[j])
         se = None if self.std_errors is None else float(self.std_errors[j])
@@ -89,19 +88,35 @@ class PowerFit:
             if inside:
                 ladder = min(inside, key=lambda p: (abs(p - a), abs(p)))
         at_bound = bool(a <= POWER_BOUNDS[0] + 1e-6 or a >= POWER_BOUNDS[1] - 1e-6)
-        return {
-            "power": a,
-            "std_error": se,
-            "ci_low": lo,
-            "ci_high": hi,
-            "level": level,
-            "ladder": ladder,
-            "converged": self.converged,
-            "iterations": self.iterations,
-            "method": self.method,
-            "source": src.POWER[self.method],
-            "at_search_bound": at_bound,
-        }
+        return PowerSummary(
+            a, se, lo, hi, level, ladder, self.converged, self.iterations, self.method, at_bound
+        )
+
+
+@dataclass(frozen=True)
+class PowerSummary:
+    """One estimated predictor power as reported: the estimate, its standard error and Wald
+    interval at ``level`` (None when the standard error is undefined), the nearest ladder
+    power inside the interval (None if none is), how the estimate was found (``method``:
+    "box_tidwell" or "profile"), whether it sits at the search bound, and the
+    re-estimates in the training folds when the search made them."""
+
+    power: float
+    std_error: float | None
+    ci_low: float | None
+    ci_high: float | None
+    level: float
+    ladder: float | None
+    converged: bool
+    iterations: int
+    method: str
+    at_bound: bool
+    per_fold: tuple[float, ...] | None = None
+
+    @property
+    def source(self) -> str:
+        """The method's published reference."""
+        return src.POWER[self.method]
 
 
 def power_columns(

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -54,6 +54,27 @@ class OutOfFold:
     powers: np.ndarray | None = None
 
 
+#: the error metrics every scoring path computes, in the order they are reported
+METRICS = ("rmse", "mae", "mape")
+
+
+@dataclass(frozen=True)
+class Metrics:
+    """Every metric's cross-validated value: RMSE, MAE and MAPE (``mape`` None when the
+    response has a zero)."""
+
+    rmse: float
+    mae: float
+    mape: float | None
+
+    def of(self, metric: str) -> float | None:
+        """The value of ``metric`` (one of :data:`METRICS`)."""
+        if metric not in METRICS:
+            raise KeyError(metric)
+        value: float | None = getattr(self, metric)
+        return value
+
+
 @dataclass
 class CVResult:
     """One candidate's cross-validated errors on the original response scale."""
@@ -62,7 +83,7 @@ class CVResult:
     value: float
     std_error: float
     fold_values: np.ndarray  # (repeats * folds,) metric per held-out fold
-    summary: dict[str, Any]  # all metrics: {"rmse": v, "mae": v, "mape": v | None}
+    summary: Metrics  # every metric's value
     fold_lambdas: list[float] | None = None
     fold_powers: list[list[float]] | None = None  # per fold: estimated predictor powers
     exact_refits: int = 0  # folds refitted by QR because their Gram matrix was ill-conditioned
@@ -78,7 +99,7 @@ class CVReport:
     metric: str
     value: float
     std_error: float
-    all_metrics: dict[str, Any]
+    all_metrics: Metrics
     folds: int
     repeats: int
     seed: int
@@ -133,14 +154,14 @@ def pooled_folds(metric: str, values: np.ndarray, sizes: np.ndarray) -> float:
     return float(error_of(metric, v * v, v, v / 100.0, weights=np.asarray(sizes, dtype=float)))
 
 
-def summary_of(rmse: np.ndarray, mae: np.ndarray, mape: np.ndarray | None) -> dict[str, Any]:
+def summary_of(rmse: np.ndarray, mae: np.ndarray, mape: np.ndarray | None) -> Metrics:
     """Every metric's cross-validated value: the mean over repeats of each repeat's pooled
     error (``mape`` None when the response has a zero)."""
-    return {
-        "rmse": float(np.mean(rmse)),
-        "mae": float(np.mean(mae)),
-        "mape": float(np.mean(mape)) if mape is not None else None,
-    }
+    return Metrics(
+        float(np.mean(rmse)),
+        float(np.mean(mae)),
+        float(np.mean(mape)) if mape is not None else None,
+    )
 
 
 def std_error_of(fold_values: np.ndarray, folds: int) -> float:

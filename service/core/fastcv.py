@@ -42,7 +42,15 @@ from .boxtidwell import (
     estimate_many_fold_powers,
     estimate_powers,
 )
-from .cvresult import CVResult, Dynamic, OutOfFold, error_of, std_error_of, summary_of
+from .cvresult import (
+    METRICS,
+    CVResult,
+    Dynamic,
+    OutOfFold,
+    error_of,
+    std_error_of,
+    summary_of,
+)
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
 from .likelihood import FoldLambdaProblem, fit_transform, fold_lambdas, many_fold_lambdas
@@ -412,7 +420,7 @@ class Scorer:
         mean (``means``, in the order of ``pend.folds``)."""
         y, plan, n, K = self.y, self.plan, self.y.size, self.plan.folds
         fold_vals = np.empty(plan.n_splits)
-        pooled: dict[str, list[float]] = {"rmse": [], "mae": [], "mape": []}
+        pooled: dict[str, list[float]] = {name: [] for name in METRICS}
         j = 0
         for r in range(pend.repeats):
             sq = np.empty(n)
@@ -444,7 +452,7 @@ class Scorer:
             np.array(pooled["mae"]),
             np.array(pooled["mape"]) if self.want_mape else None,
         )
-        value = summary[plan.metric]
+        value = summary.of(plan.metric)
         if value is None or not math.isfinite(value):
             raise CandidateFailure(f"the {plan.metric} is not defined for this response")
         if not all(math.isfinite(v) for v in fold_vals):

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 from scipy import linalg, stats
@@ -42,38 +41,65 @@ class OLSFit:
 
     def table(
         self, level: float = 0.95, robust: dict[str, np.ndarray] | None = None
-    ) -> list[dict[str, Any]]:
-        """Coefficient rows with classical standard errors, plus, for each ``robust``
-        covariance (key ``"hc3"``, ``"hac"``), ``std_error_<key>``, ``t_statistic_<key>``,
-        ``p_value_<key>``, ``ci_low_<key>`` and ``ci_high_<key>`` (t with the residual
-        degrees of freedom, as for the classical ones)."""
+    ) -> list[CoefficientRow]:
+        """One row per coefficient with its classical inference and, for each ``robust``
+        covariance (kind ``"hc3"``, ``"hac"``), the inference under it (t with the residual
+        degrees of freedom, as for the classical one)."""
         tq = stats.t.ppf(0.5 + level / 2.0, self.df_resid) if self.df_resid > 0 else math.nan
-        rows = []
-        t: float | None
-        p: float | None
-        lo: float | None
-        hi: float | None
         extra = {k: np.sqrt(np.maximum(np.diag(v), 0.0)) for k, v in (robust or {}).items()}
+        rows = []
         for i, name in enumerate(self.names):
             b = float(self.coef[i])
-            row: dict[str, Any] = {"term": name, "estimate": b}
-            for suffix, se in [("", self.se), *((f"_{k}", v) for k, v in extra.items())]:
-                s = float(se[i])
-                if self.df_resid > 0 and s > 0:
-                    t = b / s
-                    p = float(2.0 * stats.t.sf(abs(t), self.df_resid))
-                    lo, hi = b - tq * s, b + tq * s
-                else:
-                    t = p = lo = hi = None
-                row |= {
-                    f"std_error{suffix}": s if s > 0 else None,
-                    f"t_statistic{suffix}": t,
-                    f"p_value{suffix}": p,
-                    f"ci_low{suffix}": lo,
-                    f"ci_high{suffix}": hi,
-                }
-            rows.append(row)
+            rows.append(
+                CoefficientRow(
+                    name,
+                    b,
+                    self._inference(b, float(self.se[i]), tq),
+                    tuple((k, self._inference(b, float(se[i]), tq)) for k, se in extra.items()),
+                )
+            )
         return rows
+
+    def _inference(self, b: float, s: float, tq: float) -> Inference:
+        """A coefficient's inference from its standard error ``s`` (t quantile ``tq``)."""
+        if self.df_resid > 0 and s > 0:
+            t = b / s
+            p = float(2.0 * stats.t.sf(abs(t), self.df_resid))
+            return Inference(s, t, p, b - tq * s, b + tq * s)
+        return Inference(s if s > 0 else None, None, None, None, None)
+
+
+@dataclass(frozen=True)
+class Inference:
+    """A coefficient's standard error, t statistic, two-sided p-value and confidence
+    interval under one kind of standard errors; None where undefined (no residual degrees
+    of freedom, a zero standard error)."""
+
+    std_error: float | None
+    t_statistic: float | None
+    p_value: float | None
+    ci_low: float | None
+    ci_high: float | None
+
+
+@dataclass(frozen=True)
+class CoefficientRow:
+    """One row of the coefficient table: the term, its estimate on the model scale, the
+    classical inference and the inference under each robust covariance (kind, inference)."""
+
+    term: str
+    estimate: float
+    classical: Inference
+    robust: tuple[tuple[str, Inference], ...] = ()
+
+    def under(self, kind: str) -> Inference:
+        """The inference under standard errors ``kind`` ("classical" or a robust kind)."""
+        if kind == "classical":
+            return self.classical
+        for k, inference in self.robust:
+            if k == kind:
+                return inference
+        raise KeyError(kind)
 
 
 def hc3_cov(fit: OLSFit, X: np.ndarray) -> np.ndarray:

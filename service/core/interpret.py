@@ -32,12 +32,12 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, ClassVar, NamedTuple
 
 import numpy as np
 
 from .data import Prepared
-from .fitting import OLSFit
+from .fitting import CoefficientRow, Inference, OLSFit
 from .numbers import fmt
 from .spec import Design, Specification
 from .transforms import Transform
@@ -209,13 +209,149 @@ def _diff_ratio(a: float | None, b: float | None) -> tuple[float | None, float |
 
 
 # --------------------------------------------------------------- readings
+@dataclass(frozen=True)
+class Reading:
+    """One slope's or one categorical level's reading: the term, its column, the
+    coefficient on the model scale with its interval (``ci_low``/``ci_high``, under the
+    standard errors the readings use) and the ``sentence``; the kinds below add the numbers
+    the sentence states.  ``kind`` names the reading (level-level, log-level, level-log,
+    log-log, two-point, categorical-level, categorical-log, categorical-two-point)."""
+
+    kind: ClassVar[str]
+    term: str
+    column: str
+    estimate: float
+    ci_low: float | None
+    ci_high: float | None
+    sentence: str
+
+
+@dataclass(frozen=True)
+class LevelLevel(Reading):
+    """y is higher by ``change_per_unit`` units per extra unit of x."""
+
+    kind: ClassVar[str] = "level-level"
+    change_per_unit: float
+
+
+@dataclass(frozen=True)
+class LogLevel(Reading):
+    """The median of y is higher by ``percent`` per unit of x (with its interval); the
+    100b shortcut where it may be quoted, else None."""
+
+    kind: ClassVar[str] = "log-level"
+    percent: float | None
+    percent_ci_low: float | None
+    percent_ci_high: float | None
+    shortcut_percent: float | None
+
+
+@dataclass(frozen=True)
+class LevelLog(Reading):
+    """Units of y per 1% and per 10% higher x, with their intervals."""
+
+    kind: ClassVar[str] = "level-log"
+    change_per_1pct: float
+    change_per_10pct: float
+    change_per_1pct_ci_low: float | None
+    change_per_1pct_ci_high: float | None
+    change_per_10pct_ci_low: float | None
+    change_per_10pct_ci_high: float | None
+
+
+@dataclass(frozen=True)
+class LogLog(Reading):
+    """The elasticity and the percent change of the median of y per 1% and 10% higher x."""
+
+    kind: ClassVar[str] = "log-log"
+    elasticity: float
+    percent_per_1pct: float | None
+    percent_per_10pct: float | None
+    percent_per_1pct_ci_low: float | None
+    percent_per_1pct_ci_high: float | None
+    percent_per_10pct_ci_low: float | None
+    percent_per_10pct_ci_high: float | None
+
+
+class Points(NamedTuple):
+    """A numeric predictor's reading points: its median, median + 1 and its quartiles (or
+    the predictions there)."""
+
+    median: float
+    median_plus_one: float
+    q1: float
+    q3: float
+
+
+class Predicted(NamedTuple):
+    """Back-transformed predictions at the reading points (None where undefined)."""
+
+    median: float | None
+    median_plus_one: float | None
+    q1: float | None
+    q3: float | None
+
+
+@dataclass(frozen=True)
+class TwoPoint(Reading):
+    """No constant-rate reading: predictions (``statistic``: mean under a level response,
+    median otherwise) at the predictor's reading points, and their differences."""
+
+    kind: ClassVar[str] = "two-point"
+    at: Points
+    predicted: Predicted
+    statistic: str
+    difference_plus_one: float | None
+    difference_q1_q3: float | None
+    ratio_q1_q3: float | None
+
+
+@dataclass(frozen=True)
+class CategoricalReading(Reading):
+    """A level of a categorical predictor read against its reference level."""
+
+    kind: ClassVar[str] = "categorical"
+    level: Any
+    reference: Any
+
+
+@dataclass(frozen=True)
+class CategoricalLevel(CategoricalReading):
+    """Rows at the level differ by ``difference`` units of y from the reference."""
+
+    kind: ClassVar[str] = "categorical-level"
+    difference: float
+
+
+@dataclass(frozen=True)
+class CategoricalLog(CategoricalReading):
+    """The median of y at the level differs by ``percent`` from the reference."""
+
+    kind: ClassVar[str] = "categorical-log"
+    percent: float | None
+    percent_ci_low: float | None
+    percent_ci_high: float | None
+
+
+@dataclass(frozen=True)
+class CategoricalTwoPoint(CategoricalReading):
+    """No constant-rate reading: the predicted median at the level and at the reference."""
+
+    kind: ClassVar[str] = "categorical-two-point"
+    predicted_level: float | None
+    predicted_reference: float | None
+    difference: float | None
+    ratio: float | None
+
+
 @dataclass
 class _Context:
     spec: Specification
     design: Design
     prep: Prepared
     coef: np.ndarray
-    table: dict[str, dict[str, Any]]
+    table: dict[str, Inference]  # by term: the inference the readings use
+    estimates: dict[str, float]  # by term
     units: dict[str, str]
     level: float
     point: dict[str, Any]  # medians of numeric predictors, reference levels of categorical ones
@@ -289,132 +425,150 @@ class _Context:
         """Naive back-transform with ``column`` at ``value``, the others at the reference point."""
         return _predict_median(self.spec, self.design, self.coef, {**self.point, column: value})
 
+    def term(self, name: str) -> tuple[float, float | None, float | None]:
+        """(estimate, ci_low, ci_high) of the term ``name``."""
+        inf = self.table[name]
+        return self.estimates[name], inf.ci_low, inf.ci_high
+
 
 def _categorical_readings(
     ctx: _Context, column: str, indices: tuple[int, ...]
-) -> list[dict[str, Any]]:
+) -> list[CategoricalReading]:
     info = ctx.design.levels[column]
     ref: Any = info.reference  # a level, read where the other readings take a value
     others: list[Any] = list(info.others)
     rscale = _scale(ctx.rt)
     y, yu = ctx.response, ctx.y_unit
-    out = []
+    out: list[CategoricalReading] = []
     for k, lv in zip(indices, others, strict=True):
         name = ctx.design.names[k]
-        row = ctx.table[name]
-        b, lo, hi = row["estimate"], row["ci_low"], row["ci_high"]
-        item = {
-            "term": name,
-            "column": column,
-            "level": lv,
-            "reference": ref,
-            "estimate": b,
-            "ci_low": lo,
-            "ci_high": hi,
-        }
+        b, lo, hi = ctx.term(name)
         if rscale == "level":
-            item.update(reading="categorical-level", difference=b)
-            item["sentence"] = (
+            sentence = (
                 f"Rows with {column} = {lv} have {y} {_comparative(b, yu)} on average than rows "
                 f"with {column} = {ref}{ctx.ci(lo, hi, what='difference', unit=yu)}{ctx.hold}."
             )
+            out.append(CategoricalLevel(name, column, b, lo, hi, sentence, lv, ref, difference=b))
         elif rscale == "log":
             pct, plo, phi = exact_percent(b), exact_percent(lo), exact_percent(hi)
-            item.update(
-                reading="categorical-log", percent=pct, percent_ci_low=plo, percent_ci_high=phi
-            )
-            item["sentence"] = (
+            sentence = (
                 f"Rows with {column} = {lv} have a median {_subject(y, ctx.rt)} "
                 f"{_comparative(pct, '%')} than rows with {column} = {ref}"
                 f"{ctx.ci(plo, phi, '%', 'difference')}{ctx.hold}{ctx.median_note()}."
             )
+            out.append(
+                CategoricalLog(
+                    name,
+                    column,
+                    b,
+                    lo,
+                    hi,
+                    sentence,
+                    lv,
+                    ref,
+                    percent=pct,
+                    percent_ci_low=plo,
+                    percent_ci_high=phi,
+                )
+            )
         else:
             y_lv, y_ref = ctx.median_at(column, lv), ctx.median_at(column, ref)
             diff, ratio = _diff_ratio(y_ref, y_lv)
-            item.update(
-                reading="categorical-two-point",
-                predicted_level=y_lv,
-                predicted_reference=y_ref,
-                difference=diff,
-                ratio=ratio,
-            )
             u = f" {yu}" if yu else ""
-            item["sentence"] = (
+            sentence = (
                 f"On the {ctx.rt.label(y)} scale rows with {column} = {lv} differ from rows with "
                 f"{column} = {ref} by {fmt(b)}{ctx.ci(lo, hi, what='difference', signed=True)}, which has no "
                 f"constant-rate reading for {y}; the predicted median {y} is {fmt(y_lv)}{u} for "
                 f"{lv} and {fmt(y_ref)}{u} for {ref}{_diff_text(diff, ratio, yu)}"
                 f"{ctx.hold_at_medians(column)}{ctx.reverse_note(b, f'for {column} = {lv}')}."
             )
-        out.append(item)
+            out.append(
+                CategoricalTwoPoint(
+                    name,
+                    column,
+                    b,
+                    lo,
+                    hi,
+                    sentence,
+                    lv,
+                    ref,
+                    predicted_level=y_lv,
+                    predicted_reference=y_ref,
+                    difference=diff,
+                    ratio=ratio,
+                )
+            )
     return out
 
 
-def _level_level(ctx: _Context, item: dict[str, Any], col: str, per: str) -> None:
-    b = item["estimate"]
-    item.update(reading="level-level", change_per_unit=b)
-    item["sentence"] = (
+def _level_level(ctx: _Context, name: str, col: str, per: str) -> LevelLevel:
+    b, lo, hi = ctx.term(name)
+    sentence = (
         f"Each {per} of {col} goes with {ctx.response} {_change(b, ctx.y_unit)} on average"
-        f"{ctx.ci(item['ci_low'], item['ci_high'], unit=ctx.y_unit)}{ctx.hold}."
+        f"{ctx.ci(lo, hi, unit=ctx.y_unit)}{ctx.hold}."
     )
+    return LevelLevel(name, col, b, lo, hi, sentence, change_per_unit=b)
 
 
-def _log_level(ctx: _Context, item: dict[str, Any], col: str, per: str) -> None:
-    b = item["estimate"]
+def _log_level(ctx: _Context, name: str, col: str, per: str) -> LogLevel:
+    b, lo, hi = ctx.term(name)
     pct = exact_percent(b)
-    plo, phi = exact_percent(item["ci_low"]), exact_percent(item["ci_high"])
+    plo, phi = exact_percent(lo), exact_percent(hi)
     short = shortcut_applies(b)
-    item.update(
-        reading="log-level",
-        percent=pct,
-        percent_ci_low=plo,
-        percent_ci_high=phi,
-        shortcut_percent=100.0 * b if short else None,
-    )
     shortcut = (
         f"; the quick reading 100·b = {fmt(100 * b)}% is close only because |b| is small"
         if short
         else ""
     )
-    item["sentence"] = (
+    sentence = (
         f"Each {per} of {col} goes with a median {_subject(ctx.response, ctx.rt)} "
         f"{_change(pct, '%')}{ctx.ci(plo, phi, '%')}{ctx.hold}{shortcut}{ctx.median_note()}."
     )
-
-
-def _level_log(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> None:
-    b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
-    d1, d10 = b * LN_1_01, b * LN_1_1
-    item.update(
-        reading="level-log",
-        change_per_1pct=d1,
-        change_per_10pct=d10,
-        change_per_1pct_ci_low=None if lo is None else lo * LN_1_01,
-        change_per_1pct_ci_high=None if hi is None else hi * LN_1_01,
-        change_per_10pct_ci_low=None if lo is None else lo * LN_1_1,
-        change_per_10pct_ci_high=None if hi is None else hi * LN_1_1,
+    return LogLevel(
+        name,
+        col,
+        b,
+        lo,
+        hi,
+        sentence,
+        percent=pct,
+        percent_ci_low=plo,
+        percent_ci_high=phi,
+        shortcut_percent=100.0 * b if short else None,
     )
+
+
+def _level_log(ctx: _Context, name: str, col: str, pt: Transform) -> LevelLog:
+    b, lo, hi = ctx.term(name)
+    d1, d10 = b * LN_1_01, b * LN_1_1
+    lo1 = None if lo is None else lo * LN_1_01
+    hi1 = None if hi is None else hi * LN_1_01
     xs, y, yu = _subject(col, pt), ctx.response, ctx.y_unit
-    ci = ctx.ci(item["change_per_1pct_ci_low"], item["change_per_1pct_ci_high"], unit=yu)
-    item["sentence"] = (
+    ci = ctx.ci(lo1, hi1, unit=yu)
+    sentence = (
         f"A 1% higher {xs} goes with {y} {_change(d1, yu)} on average{ci}, and a 10% higher {xs} "
         f"with {y} {_change(d10, yu)}{ctx.hold}."
     )
-
-
-def _log_log(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> None:
-    b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
-    p1, p10 = percent_for_ratio(1.01, b), percent_for_ratio(1.1, b)
-    item.update(
-        reading="log-log",
-        elasticity=b,
-        percent_per_1pct=p1,
-        percent_per_10pct=p10,
-        percent_per_1pct_ci_low=percent_for_ratio(1.01, lo),
-        percent_per_1pct_ci_high=percent_for_ratio(1.01, hi),
-        percent_per_10pct_ci_low=percent_for_ratio(1.1, lo),
-        percent_per_10pct_ci_high=percent_for_ratio(1.1, hi),
+    return LevelLog(
+        name,
+        col,
+        b,
+        lo,
+        hi,
+        sentence,
+        change_per_1pct=d1,
+        change_per_10pct=d10,
+        change_per_1pct_ci_low=lo1,
+        change_per_1pct_ci_high=hi1,
+        change_per_10pct_ci_low=None if lo is None else lo * LN_1_1,
+        change_per_10pct_ci_high=None if hi is None else hi * LN_1_1,
     )
+
+
+def _log_log(ctx: _Context, name: str, col: str, pt: Transform) -> LogLog:
+    b, lo, hi = ctx.term(name)
+    p1, p10 = percent_for_ratio(1.01, b), percent_for_ratio(1.1, b)
+    p1_lo, p1_hi = percent_for_ratio(1.01, lo), percent_for_ratio(1.01, hi)
     xs, ys = _subject(col, pt), _subject(ctx.response, ctx.rt)
     ci = (
         ""
@@ -422,7 +576,7 @@ def _log_log(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> No
         else f" ({fmt(100 * ctx.level, 3, trailing_zeros=False)}% CI {fmt(lo)} to {fmt(hi)})"
     )
     prop = ""
-    if lo is not None and lo > 0 and hi < 1:
+    if lo is not None and hi is not None and lo > 0 and hi < 1:
         prop = (
             f"; the interval lies between 0 and 1, so {ys} is higher by a smaller percentage "
             f"than {xs} (less than proportional)"
@@ -432,33 +586,39 @@ def _log_log(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> No
             f"; the interval lies above 1, so {ys} is higher by a larger percentage than {xs} "
             "(more than proportional)"
         )
-    ci1 = ctx.ci(item["percent_per_1pct_ci_low"], item["percent_per_1pct_ci_high"], "%")
-    item["sentence"] = (
+    ci1 = ctx.ci(p1_lo, p1_hi, "%")
+    sentence = (
         f"The elasticity of the median {ys} with respect to {xs} is {fmt(b)}{ci}: a 1% higher "
         f"{xs} goes with a median {ys} {_change(p1, '%')}{ci1}, and a 10% higher {xs} with a "
         f"median {ys} {_change(p10, '%')}{ctx.hold}{prop}{ctx.median_note()}."
     )
+    return LogLog(
+        name,
+        col,
+        b,
+        lo,
+        hi,
+        sentence,
+        elasticity=b,
+        percent_per_1pct=p1,
+        percent_per_10pct=p10,
+        percent_per_1pct_ci_low=p1_lo,
+        percent_per_1pct_ci_high=p1_hi,
+        percent_per_10pct_ci_low=percent_for_ratio(1.1, lo),
+        percent_per_10pct_ci_high=percent_for_ratio(1.1, hi),
+    )
 
 
-def _two_point(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> None:
+def _two_point(ctx: _Context, name: str, col: str, pt: Transform) -> TwoPoint:
     """No constant-rate reading: back-transformed predictions at chosen predictor values."""
-    b, lo, hi = item["estimate"], item["ci_low"], item["ci_high"]
+    b, lo, hi = ctx.term(name)
     x = ctx.prep.numeric[col]
     q1, med, q3 = (float(v) for v in np.percentile(x, [25, 50, 75]))
-    at = {"median": med, "median_plus_one": med + 1.0, "q1": q1, "q3": q3}
-    pred = {k: ctx.median_at(col, v) for k, v in at.items()}
-    d1, _ = _diff_ratio(pred["median"], pred["median_plus_one"])
-    dq, rq = _diff_ratio(pred["q1"], pred["q3"])
+    at = Points(med, med + 1.0, q1, q3)
+    pred = Predicted(*(ctx.median_at(col, v) for v in at))
+    d1, _ = _diff_ratio(pred.median, pred.median_plus_one)
+    dq, rq = _diff_ratio(pred.q1, pred.q3)
     stat = "mean" if _scale(ctx.rt) == "level" else "median"
-    item.update({f"at_{k}": v for k, v in at.items()})
-    item.update({f"predicted_{k}": v for k, v in pred.items()})
-    item.update(
-        reading="two-point",
-        statistic=stat,
-        difference_plus_one=d1,
-        difference_q1_q3=dq,
-        ratio_q1_q3=rq,
-    )
     y, yu = ctx.response, ctx.y_unit
     ci = ctx.ci(lo, hi, what="coefficient")
     if _scale(ctx.rt) == "other":
@@ -475,13 +635,27 @@ def _two_point(ctx: _Context, item: dict[str, Any], col: str, pt: Transform) -> 
     one = f"one {x_unit}" if x_unit else "one unit"
     beyond = f", beyond the largest observed {col}" if med + 1.0 > float(np.max(x)) else ""
     u = f" {yu}" if yu else ""
-    item["sentence"] = (
-        f"{intro}; the predicted {stat} {y} is {fmt(pred['median'])}{u} at the median {col} "
-        f"({fmt(med)}) and {fmt(pred['median_plus_one'])}{u} at {one} more ({fmt(med + 1.0)}"
-        f"{beyond}){_diff_text(d1, None, yu)}, and {fmt(pred['q1'])}{u} at the first quartile "
-        f"({fmt(q1)}) against {fmt(pred['q3'])}{u} at the third quartile ({fmt(q3)})"
+    sentence = (
+        f"{intro}; the predicted {stat} {y} is {fmt(pred.median)}{u} at the median {col} "
+        f"({fmt(med)}) and {fmt(pred.median_plus_one)}{u} at {one} more ({fmt(med + 1.0)}"
+        f"{beyond}){_diff_text(d1, None, yu)}, and {fmt(pred.q1)}{u} at the first quartile "
+        f"({fmt(q1)}) against {fmt(pred.q3)}{u} at the third quartile ({fmt(q3)})"
         f"{_diff_text(dq, rq, yu)}{ctx.hold_at_medians(col)}"
         f"{ctx.reverse_note(b, f'where {pt.label(col)} is higher')}."
+    )
+    return TwoPoint(
+        name,
+        col,
+        b,
+        lo,
+        hi,
+        sentence,
+        at=at,
+        predicted=pred,
+        statistic=stat,
+        difference_plus_one=d1,
+        difference_q1_q3=dq,
+        ratio_q1_q3=rq,
     )
 
 
@@ -492,61 +666,52 @@ def interpret_terms(
     prep: Prepared,
     units: dict[str, str] | None = None,
     level: float = 0.95,
-    table: list[dict[str, Any]] | None = None,
-) -> list[dict[str, Any]]:
+    table: list[CoefficientRow] | None = None,
+    standard_errors: str = "classical",
+) -> list[Reading]:
     """One reading per slope and per categorical level, with its numbers and ``sentence``.
 
     ``spec`` is the concrete fitted specification (estimated parameters
     filled in), ``design`` and ``fit`` its full-data design and OLS fit,
     ``prep`` the rows it was fitted on; ``units`` maps column names to unit
     text ("metre"); ``level`` is the confidence level of the intervals;
-    ``table`` replaces ``fit.table(level)`` (rows whose ``ci_low``/``ci_high``
-    come from robust standard errors).
-    Each dict has ``term``, ``column``, ``reading`` (level-level, log-level,
-    level-log, log-log, categorical-level, categorical-log, two-point,
-    categorical-two-point), ``estimate``, ``ci_low``/``ci_high`` (model scale),
-    the derived numbers of that reading and ``sentence``.
+    ``table`` replaces ``fit.table(level)`` (rows with robust inference too) and
+    ``standard_errors`` says whose intervals the readings use ("classical", or a robust
+    kind the table holds).
     """
+    rows = fit.table(level) if table is None else table
     ctx = _Context(
         spec,
         design,
         prep,
         np.asarray(fit.coef, dtype=float),
-        {row["term"]: row for row in (fit.table(level) if table is None else table)},
+        {row.term: row.under(standard_errors) for row in rows},
+        {row.term: row.estimate for row in rows},
         dict(units or {}),
         level,
         _reference_point(spec, design, prep),
     )
     rscale = _scale(spec.response_transform)
-    out: list[dict[str, Any]] = []
+    out: list[Reading] = []
     for p, term in zip(spec.predictors, design.terms, strict=True):
         col = p.column
         if term.kind == "categorical":
             out.extend(_categorical_readings(ctx, col, term.indices))
             continue
         name = design.names[term.indices[0]]
-        row = ctx.table[name]
-        item = {
-            "term": name,
-            "column": col,
-            "estimate": row["estimate"],
-            "ci_low": row["ci_low"],
-            "ci_high": row["ci_high"],
-        }
         x_unit = ctx.units.get(col, "")
         per = f"extra {x_unit}" if x_unit else "extra unit"
         kind = (rscale, _scale(p.transform))
         if kind == ("level", "level"):
-            _level_level(ctx, item, col, per)
+            out.append(_level_level(ctx, name, col, per))
         elif kind == ("log", "level"):
-            _log_level(ctx, item, col, per)
+            out.append(_log_level(ctx, name, col, per))
         elif kind == ("level", "log"):
-            _level_log(ctx, item, col, p.transform)
+            out.append(_level_log(ctx, name, col, p.transform))
         elif kind == ("log", "log"):
-            _log_log(ctx, item, col, p.transform)
+            out.append(_log_log(ctx, name, col, p.transform))
         else:
-            _two_point(ctx, item, col, p.transform)
-        out.append(item)
+            out.append(_two_point(ctx, name, col, p.transform))
     return out
 
 
@@ -565,12 +730,13 @@ def interpret_fit(
     prep: Prepared,
     units: dict[str, str] | None = None,
     level: float = 0.95,
-    table: list[dict[str, Any]] | None = None,
+    table: list[CoefficientRow] | None = None,
     clause: str = "",
+    standard_errors: str = "classical",
 ) -> list[str]:
     """The sentences of :func:`interpret_terms`, one per slope and per categorical level;
     a non-empty ``clause`` (how the intervals were computed) is added to each sentence."""
-    items = interpret_terms(spec, design, fit, prep, units, level, table)
+    items = interpret_terms(spec, design, fit, prep, units, level, table, standard_errors)
     if not clause:
-        return [item["sentence"] for item in items]
-    return [f"{item['sentence'].rstrip('.')}; {clause}." for item in items]
+        return [item.sentence for item in items]
+    return [f"{item.sentence.rstrip('.')}; {clause}." for item in items]

@@ -21,7 +21,6 @@ import math
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, replace
-from typing import Any
 
 import numpy as np
 from scipy import optimize, special
@@ -45,19 +44,12 @@ class LambdaEstimate:
     lr_p_identity: float | None  # LR test of lambda = 1
     lr_p_log: float | None  # LR test of lambda = 0
     at_bound: bool
+    per_fold: tuple[float, ...] | None = None  # the re-estimates in the training folds, if made
 
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "lambda": self.lam,
-            "ci_low": self.ci_low,
-            "ci_high": self.ci_high,
-            "level": self.level,
-            "ladder": self.ladder,
-            "lr_p_value_identity": self.lr_p_identity,
-            "lr_p_value_log": self.lr_p_log,
-            "at_search_bound": self.at_bound,
-            "source": src.LAMBDA.get(self.family, self.family),
-        }
+    @property
+    def source(self) -> str:
+        """How the estimate and its interval were found (the family's method)."""
+        return src.LAMBDA.get(self.family, self.family)
 
 
 class _Projector:

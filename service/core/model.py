@@ -12,6 +12,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import scipy
+import statsmodels
 
 from . import transforms as tr
 from .cvplus import NoStoredFits, StoredFits
@@ -52,9 +54,6 @@ class LibraryVersions:
 
 def library_versions() -> LibraryVersions:
     """Versions of the numerical libraries in this process."""
-    import scipy
-    import statsmodels
-
     return LibraryVersions(np.__version__, scipy.__version__, statsmodels.__version__)
 
 

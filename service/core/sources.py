@@ -7,6 +7,8 @@ and never name the library call that computes them.
 
 from __future__ import annotations
 
+from dataclasses import dataclass, fields
+
 
 def cite(method: str, *references: str) -> str:
     """``method: ref1; ref2``."""
@@ -49,45 +51,97 @@ ONE_SE_BAND = cite(
     "Hastie, Tibshirani & Friedman (2009), The Elements of Statistical Learning, 2nd ed., "
     "sec. 7.10",
 )
-LAMBDA = {
-    "box_cox": cite(
+
+
+@dataclass(frozen=True)
+class _ByMethod:
+    """A table of sources, one field per method name: ``TABLE[name]`` is the source of the
+    method ``name`` (KeyError for a name the table does not hold)."""
+
+    def __getitem__(self, name: str) -> str:
+        if name not in {f.name for f in fields(self)}:
+            raise KeyError(name)
+        text: str = getattr(self, name)
+        return text
+
+    def get(self, name: str, default: str) -> str:
+        """The source of ``name``, or ``default`` when the table does not hold it."""
+        try:
+            return self[name]
+        except KeyError:
+            return default
+
+
+@dataclass(frozen=True)
+class LambdaSources(_ByMethod):
+    """How a response lambda is estimated, per transform family."""
+
+    box_cox: str
+    yeo_johnson: str
+
+
+@dataclass(frozen=True)
+class PowerSources(_ByMethod):
+    """How a predictor power is estimated, per path of the estimate."""
+
+    box_tidwell: str
+    profile: str
+
+
+@dataclass(frozen=True)
+class StandardErrorSources(_ByMethod):
+    """Where each kind of coefficient standard error comes from."""
+
+    classical: str
+    hc3: str
+    hac: str
+
+
+@dataclass(frozen=True)
+class PredictionIntervalSources(_ByMethod):
+    """Where each prediction-interval method comes from."""
+
+    normal: str
+    cv_plus: str
+
+
+LAMBDA = LambdaSources(
+    box_cox=cite(
         "profile likelihood of the Box-Cox lambda, likelihood-ratio interval", "Box & Cox (1964)"
     ),
-    "yeo_johnson": cite(
+    yeo_johnson=cite(
         "profile likelihood of the Yeo-Johnson lambda, likelihood-ratio interval",
         "Yeo & Johnson (2000)",
     ),
-}
-POWER = {
-    "box_tidwell": cite(
+)
+POWER = PowerSources(
+    box_tidwell=cite(
         "Box-Tidwell iteration for a predictor power, Wald interval", "Box & Tidwell (1962)"
     ),
-    "profile": cite(
+    profile=cite(
         "profile residual sum of squares over a predictor power, Wald interval",
         "Box & Tidwell (1962)",
     ),
-}
-STANDARD_ERRORS = {
-    "classical": cite(
-        "least-squares standard errors, t intervals", "Student (1908)", "Fisher (1925)"
-    ),
-    "hc3": cite("HC3 heteroscedasticity-consistent standard errors", "MacKinnon & White (1985)"),
-    "hac": cite("Newey-West HAC standard errors", "Newey & West (1987)"),
-}
-PREDICTION_INTERVAL = {
-    "normal": cite(
+)
+STANDARD_ERRORS = StandardErrorSources(
+    classical=cite("least-squares standard errors, t intervals", "Student (1908)", "Fisher (1925)"),
+    hc3=cite("HC3 heteroscedasticity-consistent standard errors", "MacKinnon & White (1985)"),
+    hac=cite("Newey-West HAC standard errors", "Newey & West (1987)"),
+)
+PREDICTION_INTERVAL = PredictionIntervalSources(
+    normal=cite(
         "least-squares prediction interval on the model scale (Student t) mapped through the "
         "inverse transform, with the smeared mean",
         "Student (1908)",
         "Duan (1983)",
     ),
-    "cv_plus": cite(
+    cv_plus=cite(
         "CV+ interval from the out-of-fold residuals, end points mapped through each fold's "
         "inverse transform, with the smeared mean",
         "Barber, Candes, Ramdas & Tibshirani (2021)",
         "Duan (1983)",
     ),
-}
+)
 BAND_CONDITIONS = cite(
     "Bonferroni inequality over every test that can reorder the band", "Dunn (1961)"
 )

@@ -44,7 +44,9 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
+import matplotlib
 import numpy as np
+import resvg_py
 
 from ..core.conditions import MAX_FLAGGED_ROWS
 from ..core.plots import (
@@ -747,8 +749,6 @@ def _gid(panel: Panel, number: int | None = None) -> str:
 
 # ------------------------------------------------------------------------------ PNG
 def _font_files() -> list[str]:
-    import matplotlib
-
     folder = os.path.join(matplotlib.get_data_path(), "fonts", "ttf")
     return [os.path.join(folder, f) for f in ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf")]
 
@@ -756,8 +756,6 @@ def _font_files() -> list[str]:
 def rasterise(svg: str) -> bytes:
     """PNG of an SVG from :func:`draw_svg` at its own size, drawn by resvg with the DejaVu
     Sans files matplotlib ships (no system font is looked up)."""
-    import resvg_py
-
     png = resvg_py.svg_to_bytes(
         svg_string=svg,
         skip_system_fonts=True,

@@ -401,7 +401,7 @@ def screening_powers(
     seed: int,
     deadline: Deadline | None = None,
     fits: PowerFits | None = None,
-) -> tuple[dict[tuple[tr.Transform, str], dict[str, Any]], dict[tuple[tr.Transform, str], float]]:
+) -> tuple[dict[tuple[tr.Transform, str], bt.PowerSummary], dict[tuple[tr.Transform, str], float]]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
     For each fixed response scale and each predictor offering an estimated power, the
@@ -463,11 +463,11 @@ def screening_powers(
 def add_ladder_rungs(
     prep: Prepared,
     preds: list[list[tr.Transform]],
-    info: dict[tuple[tr.Transform, str], dict[str, Any]],
+    info: dict[tuple[tr.Transform, str], bt.PowerSummary],
 ) -> list[list[tr.Transform]]:
     out = [list(o) for o in preds]
     for (t, col), summ in info.items():
-        lad = summ.get("ladder")
+        lad = summ.ladder
         if lad is None:
             continue
         j = prep.predictors.index(col)

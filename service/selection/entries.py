@@ -171,14 +171,6 @@ def choose_inference(
     return block, clause, warnings
 
 
-def table_for(rows: list[dict[str, Any]], kind: str) -> list[dict[str, Any]]:
-    """Coefficient rows whose classical fields are replaced by those of ``kind``."""
-    if kind == "classical":
-        return rows
-    keys = ("std_error", "t_statistic", "p_value", "ci_low", "ci_high")
-    return [row | {k: row[f"{k}_{kind}"] for k in keys} for row in rows]
-
-
 def attach_cv_plus(
     entry: dict[str, Any],
     design: Design,
@@ -226,14 +218,14 @@ def entry_for(
     warnings: list[str] = []
     estimates = {}
     if lam_est is not None:
-        estimates["response_lambda"] = lam_est.to_dict()
+        if cv.fold_lambdas:
+            lam_est = replace(lam_est, per_fold=tuple(cv.fold_lambdas))
+        estimates["response_lambda"] = lam_est
         if lam_est.at_bound:
             warnings.append(
                 f"The {concrete.response_transform.name} lambda sits at the search "
                 "bound (-3 or 3); the scale is poorly determined."
             )
-        if cv.fold_lambdas:
-            estimates["response_lambda"]["per_fold"] = cv.fold_lambdas
     t = concrete.response_transform
     if t.name == "log" and t.shift:
         warnings.append(
@@ -260,10 +252,7 @@ def entry_for(
         "equation": equation(concrete, design, fit.coef),
         "cv": CVReport.of(cv, plan),
         "fit": fit_block(concrete, fit, prep),
-        "coefficients": [
-            {k: (finite_or_none(v) if k != "term" else v) for k, v in row.items()}
-            for row in fit.table(robust=covs)
-        ],
+        "coefficients": fit.table(robust=covs),
         "score": {
             "cv_ratio": cv.value / parts["best_cv_value"] if parts["best_cv_value"] > 0 else 1.0,
             "parts": parts,
@@ -298,8 +287,9 @@ def entry_for(
         fit,
         prep,
         getattr(opts, "units", None),
-        table=table_for(fit.table(robust=covs), inference["standard_errors"]),
+        table=entry["coefficients"],
         clause=clause,
+        standard_errors=inference["standard_errors"],
     )
     if estimates:
         entry["estimates"] = estimates

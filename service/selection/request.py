@@ -20,10 +20,12 @@ from ..core import transforms as tr
 from ..core.data import Prepared, prepare
 from ..core.errors import InputError, Option
 from ..core.model import signing_all
+from . import workers
 from .cautions import selection_cautions
 from .groups import run_grouped
 from .search import select
 from .search_setup import SearchOptions
+from .trust import assess_trust
 
 #: ``mapper(fn, items)``: the results of ``fn`` over ``items``, in order
 Mapper = Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]]
@@ -150,8 +152,6 @@ def run_selection(
     result = select(prep, opts, service.version)
     body = result.body
     if job.trust.wanted:
-        from .trust import assess_trust
-
         body["trust"] = assess_trust(
             prep,
             opts,
@@ -183,9 +183,7 @@ def _group_mapper(
 
         return mapped_with_progress
     if service.group_processes > 1:
-        from .workers import process_mapper
-
-        return process_mapper(
+        return workers.process_mapper(
             service.group_processes,
             service.blas_threads,
             on_result=progress.step if progress is not None else None,

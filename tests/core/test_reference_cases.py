@@ -687,13 +687,13 @@ def test_spec_ols_matches_statsmodels_and_reference(case, i):
     np.testing.assert_allclose(fit.coef, res.params, rtol=1e-7)
     np.testing.assert_allclose(fit.se, res.bse, rtol=1e-7)
     rows = fit.table()
-    np.testing.assert_allclose([r["t_statistic"] for r in rows], res.tvalues, rtol=1e-7)
-    for r, p in zip(rows, res.pvalues, strict=True):
+    np.testing.assert_allclose([r.classical.t_statistic for r in rows], res.tvalues, rtol=1e-7)
+    for r, p in zip((row.classical for row in rows), res.pvalues, strict=True):
         # source: statsmodels p-values; rel 1e-4, or abs 1e-12 when below 1e-10
         if p < 1e-10:
-            assert abs(r["p_value"] - p) <= 1e-12
+            assert abs(r.p_value - p) <= 1e-12
         else:
-            assert r["p_value"] == pytest.approx(p, rel=1e-4)
+            assert r.p_value == pytest.approx(p, rel=1e-4)
     assert fit.r_squared == pytest.approx(res.rsquared, rel=1e-7)
     assert fit.llf == pytest.approx(res.llf, rel=1e-7)
     # source: reference coefficients / R^2 / sigma; rel 1e-7 (rel 1e-3 when lambda is estimated)

@@ -56,6 +56,22 @@ def test_cite_form():
     assert src.cite("m", "A (1990)", "B (2000)") == "m: A (1990); B (2000)"
 
 
+def test_tables_look_up_by_method_name():
+    # source: the method names of the HTTP contract (inference.standard_errors,
+    # prediction_intervals, a power's method, a lambda's family)
+    assert src.STANDARD_ERRORS["hc3"] == src.STANDARD_ERRORS.hc3
+    assert "Newey & West (1987)" in src.STANDARD_ERRORS["hac"]
+    assert "MacKinnon & White (1985)" in src.STANDARD_ERRORS["hc3"]
+    assert "Barber, Candes, Ramdas & Tibshirani (2021)" in src.PREDICTION_INTERVAL["cv_plus"]
+    assert "Box & Tidwell (1962)" in src.POWER["profile"]
+    assert "Yeo & Johnson (2000)" in src.LAMBDA["yeo_johnson"]
+    for name in ("robust", "get", "__class__", ""):
+        with pytest.raises(KeyError):
+            src.STANDARD_ERRORS[name]
+    assert src.LAMBDA.get("log", "none") == "none"
+    assert src.LAMBDA.get("box_cox", "none") == src.LAMBDA.box_cox
+
+
 def test_every_source_is_method_and_reference(bodies):
     seen = set()
     for name, body in bodies.items():

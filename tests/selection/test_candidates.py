@@ -200,7 +200,7 @@ def test_screening_powers_keep_their_fits_for_the_search():
         # source: boxtidwell.estimate_powers, one call per response scale (the response
         # scales' steps are taken together; rounding-level differences only)
         assert powers[(t, "x")] == pytest.approx(float(one.powers[0]), rel=1e-9, abs=1e-11)
-        assert info[(t, "x")]["std_error"] == pytest.approx(float(one.std_errors[0]), rel=1e-7)
+        assert info[(t, "x")].std_error == pytest.approx(float(one.std_errors[0]), rel=1e-7)
 
 
 def test_many_kept_power_fits_keep_their_order_with_hits_misses_and_failures():

@@ -38,7 +38,7 @@ def test_engel_log_log_matches_the_reference_sheet(engel):
     entry, plots = diagnose_specification(prep, _spec(), SearchOptions(), "test")
     # source: CHECKS_PUBLIC engel log-log: slope 0.85589699 (rel 1e-9), CV RMSE pooled
     # smearing 118.9974 (rel 1e-6, same folds), Breusch-Pagan Koenker p 1.769e-4
-    assert entry["coefficients"][1]["estimate"] == pytest.approx(0.85589699, rel=1e-7)
+    assert entry["coefficients"][1].estimate == pytest.approx(0.85589699, rel=1e-7)
     assert entry["cv"].value == pytest.approx(118.9974, rel=1e-6)
     bp = next(t for t in entry["conditions"].equal_variance.tests if t.name.startswith("Breusch"))
     assert bp.p_value == pytest.approx(1.769e-4, rel=1e-3)

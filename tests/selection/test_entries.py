@@ -25,7 +25,6 @@ from service.selection.entries import (
     finite_or_none,
     fit_block,
     fitted_model,
-    table_for,
 )
 
 from tests.core.condition_reports import cond, report
@@ -143,15 +142,6 @@ def test_choose_inference(failed, lags, blocked, kind, n_warnings):
     if lags is not None:
         # common practice: floor(4 (n/100)^(2/9)) lags, named in the block
         assert block["hac_lags"] == lags and "common practice" in block["hac_lag_rule"]
-
-
-def test_table_for_swaps_in_the_chosen_standard_errors():
-    row = {"term": "x", "estimate": 2.0, "std_error": 1.0, "std_error_hc3": 1.5}
-    row |= {f"{k}_hc3": i for i, k in enumerate(("t_statistic", "p_value", "ci_low", "ci_high"))}
-    row |= dict.fromkeys(("t_statistic", "p_value", "ci_low", "ci_high"))
-    out = table_for([row], "hc3")[0]
-    assert out["std_error"] == 1.5 and out["ci_high"] == 3 and out["estimate"] == 2.0
-    assert table_for([row], "classical") == [row]
 
 
 def test_finite_or_none():

@@ -16,7 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.configuration import set_hypothesis_home_dir
 from service.core import transforms as tr
-from service.core.cvresult import CVResult
+from service.core.cvresult import CVResult, Metrics
 from service.core.spec import PredictorSpec, Specification
 from service.selection.search import (
     Band,
@@ -103,7 +103,8 @@ _SPECS = [
 )
 def test_rank_of_real_specifications_has_one_threshold_and_no_dominated_entry(rows):
     scored = [
-        Scored(_SPECS[i], CVResult("rmse", v, se, np.array([v]), {"rmse": v})) for i, v, se in rows
+        Scored(_SPECS[i], CVResult("rmse", v, se, np.array([v]), Metrics(v, v, None)))
+        for i, v, se in rows
     ]
     ranked, lowest = rank(scored)
     band = Band.of(scored)

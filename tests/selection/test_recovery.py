@@ -101,10 +101,11 @@ def test_cube_root_law_recovers_box_cox_one_third(seed):
     assert est.ci_low < 1.0 / 3.0 < est.ci_high
     assert est.ci_low > 0.0 and est.ci_high < 1.0  # excludes log and no transform
     out = _select({"v": v, "d": d, "h": h}, "v", ["d", "h"], predictor_transforms=["identity"])
-    info = out["search"].box_cox
+    info = out["search"].box_cox.reported
     # the search reports the same regression lambda on the untransformed design
-    assert info["lambda"] == pytest.approx(est.lam, abs=1e-4)
-    assert info["ci_low"] < 1.0 / 3.0 < info["ci_high"]
+    assert info.design == "untransformed predictors"
+    assert info.estimate.lam == pytest.approx(est.lam, abs=1e-4)
+    assert info.estimate.ci_low < 1.0 / 3.0 < info.estimate.ci_high
     assert out["ranking"][0]["specification"]["response"]["transform"]["name"] != "identity"
 
 

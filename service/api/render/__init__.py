@@ -36,6 +36,7 @@ from . import (  # noqa: E402,F401
     cv,
     data,
     drift,
+    estimates,
     groups,
     incumbent,
     model,

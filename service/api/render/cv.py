@@ -4,8 +4,13 @@ from __future__ import annotations
 
 from typing import Any
 
-from ...core.cvresult import CVReport
+from ...core.cvresult import CVReport, Metrics
 from . import contract
+
+
+@contract.register
+def metrics(m: Metrics) -> dict[str, Any]:
+    return {"rmse": m.rmse, "mae": m.mae, "mape": m.mape}
 
 
 @contract.register
@@ -19,6 +24,6 @@ def cv(r: CVReport) -> dict[str, Any]:
         "repeats": r.repeats,
         "seed": r.seed,
         "scheme": r.scheme,
-        "all_metrics": r.all_metrics,
+        "all_metrics": metrics(r.all_metrics),
         "back_transform": r.back_transform,
     }

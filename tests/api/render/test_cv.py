@@ -27,13 +27,21 @@ def test_cv_block_states_the_error_its_scheme_and_the_back_transform():
     out = cv(CVReport.of(res, plan))
     # source: scikit-learn LinearRegression refitted on the same five training folds;
     # the pooled RMSE of every held-out row
-    sq = []
+    sq, ab, pc = [], [], []
     for k in range(5):
         test = plan.assignments[0] == k
         m = LinearRegression().fit(x[~test, None], y[~test])
-        sq.append((y[test] - m.predict(x[test, None])) ** 2)
+        e = y[test] - m.predict(x[test, None])
+        sq.append(e**2)
+        ab.append(np.abs(e))
+        pc.append(np.abs(e / y[test]))
     assert out["value"] == pytest.approx(float(np.sqrt(np.mean(np.concatenate(sq)))), rel=1e-10)
+    assert list(out["all_metrics"]) == ["rmse", "mae", "mape"]
     assert out["all_metrics"]["rmse"] == out["value"]
+    # source: the same scikit-learn fits; identity response, so median = mean prediction
+    assert out["all_metrics"]["mae"] == pytest.approx(float(np.mean(np.concatenate(ab))), rel=1e-10)
+    want_mape = 100.0 * float(np.mean(np.concatenate(pc)))
+    assert out["all_metrics"]["mape"] == pytest.approx(want_mape, rel=1e-10)
     assert (out["folds"], out["repeats"], out["seed"], out["scheme"]) == (5, 1, 0, "random")
     assert out["scale"] == "original" and out["metric"] == "rmse"
     assert out["back_transform"] == "smeared mean (Duan 1983)"
