@@ -152,6 +152,126 @@ def smear_power_root(
     return out, done
 
 
+#: a group's etas left by the root series are summed exactly (one double sum for all such
+#: groups at once) up to this many terms, and by the binned series above it
+GROUP_EXACT_CELLS = 1 << 16
+_MANY_CELLS = 1 << 20  # terms per block of the many-group double sum (8 MB of floats)
+
+
+def smear_power_many(
+    eta: np.ndarray,
+    e: np.ndarray,
+    beta: np.ndarray,
+    gamma: np.ndarray,
+    delta: np.ndarray,
+    p: np.ndarray,
+    outside_zero: np.ndarray,
+) -> FloatArray:
+    """Smeared means of G groups at once: row g is mean_i beta_g (gamma_g + delta_g (eta[g, j]
+    + e[g, i]))^p_g over the defined terms, for etas ``eta`` (G, m) and residuals ``e`` (G, n),
+    each group with its own power form (arrays of G; :func:`power_form`), with the semantics
+    of :func:`exact_power`.
+
+    Per group the same sums as one call per group: the root series where
+    :func:`smear_power_root` takes an eta (same arithmetic, every group's moments in one
+    array); the other etas exactly, term by term, in one double sum over all groups
+    (:func:`exact_power`'s clip and count rules) while a group's part has at most
+    ``GROUP_EXACT_CELLS`` terms, else by :func:`smear_power_binned` (at least
+    ``BINNED_MIN_ETAS`` etas) or :func:`exact_power` for that group alone.  The error bound
+    is theirs: at most 1e-12 relative plus rounding where a series is used, rounding alone
+    where the terms are summed.
+    """
+    eta = np.asarray(eta, dtype=float)
+    e = np.asarray(e, dtype=float)
+    G, m = eta.shape
+    n = e.shape[1]
+    out = np.full((G, m), np.nan)
+    if G == 0 or m == 0 or n == 0:
+        return out
+    beta, gamma, delta, p = (np.asarray(v, dtype=float) for v in (beta, gamma, delta, p))
+    zero = np.asarray(outside_zero, dtype=bool)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        lo, hi = e.min(axis=1), e.max(axis=1)
+        c, r = 0.5 * (lo + hi), 0.5 * (hi - lo)
+        rs = np.where(r > 0, r, 1.0)
+        ad = np.abs(delta)
+        base = gamma[:, None] + delta[:, None] * (eta + c[:, None])
+        rho = (ad * r)[:, None] / base
+        ok = _rho_ok_many(p)
+        done = (base > 0) & (rho <= ok[:, None])
+        gs = np.flatnonzero(done.any(axis=1))
+        if gs.size:
+            M = _powers((e[gs] - c[gs, None]) / rs[gs, None], J).sum(axis=1)  # (Gd, J)
+            cp = _binom_rows(p[gs], J) * np.sign(delta[gs])[:, None] ** np.arange(J)
+            coef = cp * M
+            where = np.full(G, -1, dtype=np.intp)
+            where[gs] = np.arange(gs.size)
+            gi, ji = np.nonzero(done)
+            series = np.einsum("pj,pj->p", _powers(rho[gi, ji], J), coef[where[gi]])
+            out[gi, ji] = beta[gi] * np.power(base[gi, ji], p[gi]) * series / n
+        rest = ~done
+        left = rest.sum(axis=1)
+        pairs = (left > 0) & (left * n <= GROUP_EXACT_CELLS)
+        for g in np.flatnonzero((left > 0) & ~pairs).tolist():
+            er = eta[g, rest[g]]
+            form = (float(beta[g]), float(gamma[g]), float(delta[g]), float(p[g]), bool(zero[g]))
+            if er.size >= BINNED_MIN_ETAS:
+                out[g, rest[g]] = smear_power_binned(er, e[g], *form)
+            else:
+                out[g, rest[g]] = exact_power(er, e[g], *form)
+        gi, ji = np.nonzero(rest & pairs[:, None])
+        step = max(1, _MANY_CELLS // n)
+        for a in range(0, gi.size, step):
+            gg, jj = gi[a : a + step], ji[a : a + step]
+            out[gg, jj] = _exact_pairs(
+                gamma[gg] + delta[gg] * eta[gg, jj],
+                delta[gg, None] * e[gg],
+                beta[gg],
+                p[gg],
+                zero[gg],
+            )
+    return out
+
+
+BINNED_MIN_ETAS = 16  # below this many etas the exact sum costs less than building the bins
+
+
+def _exact_pairs(
+    A: np.ndarray, de: np.ndarray, beta: np.ndarray, p: np.ndarray, zero: np.ndarray
+) -> FloatArray:
+    """Row q: mean of beta_q (A_q + de[q, i])^p_q over its defined terms (the rules of
+    :func:`exact_power`: a clipped term is 0 and counts, an undefined one is left out)."""
+    buf = A[:, None] + de
+    ok = buf > 0
+    np.maximum(buf, 0.0, out=buf)
+    n = de.shape[1]
+    cnt = np.where(zero, float(n), ok.sum(axis=1).astype(float))
+    buf[~ok & ~zero[:, None]] = 1.0
+    u = np.unique(p)
+    if u.size == 1:
+        buf = _pow(buf, float(u[0]))
+    else:
+        np.power(buf, p[:, None], out=buf)
+    buf[~ok & ~zero[:, None]] = 0.0
+    tot = buf.sum(axis=1) * beta
+    return np.where(cnt > 0, tot / np.maximum(cnt, 1.0), np.nan)
+
+
+def _rho_ok_many(p: np.ndarray) -> np.ndarray:
+    """:func:`_rho_ok` (J terms, TREE_RTOL) of every exponent in ``p``, once per distinct one."""
+    u, inv = np.unique(p, return_inverse=True)
+    return np.array([_rho_ok(float(v)) for v in u])[inv]
+
+
+def _binom_rows(p: np.ndarray, terms: int) -> np.ndarray:
+    """C(p_g, t) for t < ``terms``, one row per exponent (:func:`_binom_row`'s recurrence)."""
+    out = np.empty((p.size, terms))
+    out[:, 0] = 1.0
+    for j in range(1, terms):
+        out[:, j] = out[:, j - 1] * (p - (j - 1)) / j
+    return out
+
+
 _CHUNK = 1 << 15  # elements per block of the double sum (fits in cache)
 
 

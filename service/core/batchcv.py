@@ -14,8 +14,8 @@ number of columns and a response scale fixed across folds:
   come from a few einsum products over the (n, C, p) stacked designs;
 - the smeared mean (Duan 1983) uses the same closed forms as :mod:`retransform` for the
   identity, the log and the square root (one or two means per candidate and fold; the
-  square root by :func:`retransform.smear_sqrt` for all candidates at once); other inverses call
-  :func:`retransform.smeared_mean` per candidate and fold;
+  square root by :func:`retransform.smear_sqrt` for all candidates at once); other inverses by
+  :func:`retransform.smeared_means`, all candidates of a fold in one call;
 - fold errors and pooled errors are reduced in numpy.
 
 A back-transform that is undefined or overflows on held-out rows is a cheap check: the
@@ -156,10 +156,12 @@ def _batch_unguarded(
                 mean[te] = np.exp(eta[te]) * m - retransform.log_shift(t0)
             elif kind == "sqrt":  # mean_i max(eta + e_i, 0)^2, all candidates at once
                 mean[te] = retransform.smear_sqrt(eta[te], e)
-            else:
-                for j in range(C):
-                    if not (alone[j] or gone[j]):
-                        mean[te, j] = retransform.smeared_mean(t0, eta[te, j], e[:, j])
+            else:  # every candidate still in the batch in one call (power forms together)
+                js = np.flatnonzero(~(alone | gone))
+                if js.size:
+                    mean[np.ix_(te, js)] = retransform.smeared_means(
+                        [t0] * js.size, eta[te][:, js].T, e[:, js].T
+                    ).T
             _fail_undefined(t0, k, mean[te], alone | gone, gone, failed)
         d = y[:, None] - mean
         sq = d * d

@@ -36,11 +36,11 @@ from .bank import ColumnBank
 from .boxtidwell import (
     FoldPowerProblem,
     PowerFit,
+    _power_columns_stacked,
     estimate_fold_powers,
     estimate_fold_powers_by_series,
     estimate_many_fold_powers,
     estimate_powers,
-    power_columns,
 )
 from .cvresult import (
     METRICS,
@@ -108,6 +108,42 @@ class Found:
     powers: list[list[PowerFit]] | None = None
     near: float | None = None
     lambdas: list[float | None] | None = None
+
+
+def _fitted(designs: list[np.ndarray | None], B: np.ndarray) -> np.ndarray:
+    """(n, K): every row's fitted value under every fold's solution, fold k on its own
+    design ``designs[k]`` (n, p)."""
+    X = np.stack([d for d in designs if d is not None])
+    out: np.ndarray = np.einsum("knp,kp->nk", X, B)
+    return out
+
+
+@dataclass
+class _HeldOut:
+    """One fold's held-out side: repeat ``r``, held-out rows ``test``, the fold's concrete
+    scale ``t``, predictions ``eta`` on the model scale, training residuals ``e``, the naive
+    inverse ``median`` and (once smeared) the smeared ``mean``."""
+
+    r: int
+    test: np.ndarray
+    t: tr.Transform
+    eta: np.ndarray
+    e: np.ndarray
+    median: np.ndarray
+    mean: np.ndarray | None = None
+
+
+@dataclass
+class _Pending:
+    """A candidate's folds up to the back-transform (:meth:`Scorer._held_out`), with what
+    its CVResult carries besides the errors."""
+
+    folds: list[_HeldOut]
+    repeats: int
+    lambdas: list[float]
+    powers: list[list[float]]
+    refits: int
+    oof: OutOfFold | None
 
 
 class Scorer:
@@ -188,6 +224,79 @@ class Scorer:
         scores the first repeat alone.  Raises :class:`CandidateFailure` when a fold
         cannot be fitted or back-transformed.
         """
+        pend = self._held_out(t, cols, names, dynamic, keep, first_only, found, smear=True)
+        return self._errors(pend, [f.mean for f in pend.folds])
+
+    def score_many(
+        self,
+        items: Sequence[
+            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
+        ],
+    ) -> list[CVResult | CandidateFailure]:
+        """:meth:`score` for many candidates ``(t, cols, names, dynamic, found)``: each one's
+        held-out predictions as :meth:`score` forms them, then the smeared means of every
+        fold of every candidate in one call (:func:`retransform.smeared_means`, power forms
+        of all folds together) and the errors.  A candidate with a failure or a non-finite
+        back-transform anywhere is scored again alone, so its result or failure reason is
+        :meth:`score`'s own."""
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            pends: list[_Pending | None] = []
+            for t, cols, names, dyn, found in items:
+                try:
+                    pends.append(self._held_out(t, cols, names, dyn, False, False, found))
+                except CandidateFailure:
+                    pends.append(None)
+            shapes: dict[tuple[int, int], list[_HeldOut]] = {}
+            for pend in pends:
+                if pend is None:
+                    continue
+                if any(not np.all(np.isfinite(f.median)) for f in pend.folds):
+                    pend.folds.clear()  # scored alone: its first failure in its own order
+                    continue
+                for f in pend.folds:
+                    shapes.setdefault((f.eta.size, f.e.size), []).append(f)
+            for group in shapes.values():
+                got = retransform.smeared_means(
+                    [f.t for f in group],
+                    np.stack([f.eta for f in group]),
+                    np.stack([f.e for f in group]),
+                )
+                for f, mean in zip(group, got, strict=True):
+                    f.mean = mean
+            out: list[CVResult | CandidateFailure] = []
+            for item, pend in zip(items, pends, strict=True):
+                means = [] if pend is None else [f.mean for f in pend.folds]
+                if (
+                    pend is not None
+                    and means
+                    and all(m is not None and np.all(np.isfinite(m)) for m in means)
+                ):
+                    try:
+                        out.append(self._errors(pend, means))
+                        continue
+                    except CandidateFailure:
+                        pass
+                t, cols, names, dyn, found = item
+                try:
+                    out.append(self._score(t, cols, names, dyn, found=found))
+                except CandidateFailure as exc:
+                    out.append(exc)
+            return out
+
+    def _held_out(
+        self,
+        t: tr.Transform,
+        cols: list[int],
+        names: list[str] | None,
+        dynamic: Dynamic | None,
+        keep: bool,
+        first_only: bool,
+        found: Found | None,
+        smear: bool = False,
+    ) -> _Pending:
+        """Every fold's concrete scale, held-out predictions, medians and training residuals
+        (:meth:`_score` up to the back-transform); with ``smear`` each fold's smeared mean
+        too, a fold whose median or mean is not finite raising its failure in order."""
         bank, y, plan = self.bank, self.y, self.plan
         index = bank.index
         S = np.asarray(cols, dtype=int)
@@ -212,13 +321,11 @@ class Scorer:
             t0, z, finite = self.fixed_response(t)
             if not finite:
                 raise CandidateFailure(f"fold 1: {t0.label('y')} overflows on the training rows")
-        fold_vals = np.empty(plan.n_splits)
-        pooled: dict[str, list[float]] = {name: [] for name in METRICS}
         lambdas: list[float] = []
         powers: list[list[float]] = []
         refits = 0
-        j = 0
         K = plan.folds
+        held: list[_HeldOut] = []
         oof: OutOfFold | None = None
         repeats = 1 if first_only else plan.repeats
         fixed = None if per_fold else (t0, z)
@@ -275,13 +382,8 @@ class Scorer:
                     None if powers_of is None else powers_of[r],
                 )
             # ---- fitted values of every row under every fold's solution
-            if dynamic is None:
-                ETA = (B @ XS.T).T  # (n, K), each fold's column contiguous
-            else:
-                ETA = np.stack([designs[k] @ B[k] for k in range(K)], axis=1)
-            sq = np.empty(n)
-            ab = np.empty(n)
-            pc = np.empty(n)
+            # (n, K), each fold's column contiguous; with estimated powers each fold's own design
+            ETA = (B @ XS.T).T if dynamic is None else _fitted(designs, B)
             if keep and r == 0:
                 resid = np.empty(n)
                 for k in range(K):
@@ -299,14 +401,36 @@ class Scorer:
                 tk = ts[k]
                 eta = ETA[te, k]
                 med = retransform.naive(tk, eta)
+                e = zs[k][train[k]] - ETA[train[k], k]
+                f = _HeldOut(r, te, tk, eta, e, med)
+                held.append(f)
+                if not smear:
+                    continue
                 bad = ~np.isfinite(med)
                 if np.any(bad):
                     raise undefined_back_transform(tk, k, int(bad.sum()))
-                e = zs[k][train[k]] - ETA[train[k], k]
-                mean = retransform.smeared_mean(tk, eta, e)
-                bad = ~np.isfinite(mean)
+                f.mean = retransform.smeared_mean(tk, eta, e)
+                bad = ~np.isfinite(f.mean)
                 if np.any(bad):
                     raise undefined_back_transform(tk, k, int(bad.sum()))
+        return _Pending(held, repeats, lambdas, powers, refits, oof)
+
+    def _errors(self, pend: _Pending, means: Sequence[np.ndarray | None]) -> CVResult:
+        """Fold errors, pooled errors and their summary from every fold's median and smeared
+        mean (``means``, in the order of ``pend.folds``)."""
+        y, plan, n, K = self.y, self.plan, self.y.size, self.plan.folds
+        fold_vals = np.empty(plan.n_splits)
+        pooled: dict[str, list[float]] = {name: [] for name in METRICS}
+        j = 0
+        for r in range(pend.repeats):
+            sq = np.empty(n)
+            ab = np.empty(n)
+            pc = np.empty(n)
+            for f, mean in zip(pend.folds, means, strict=True):
+                if f.r != r:
+                    continue
+                assert mean is not None  # smeared
+                te, med = f.test, f.median
                 yt = y[te]
                 with np.errstate(over="ignore", invalid="ignore"):
                     sq[te] = (yt - mean) ** 2
@@ -339,10 +463,10 @@ class Scorer:
             std_error_of(fold_vals, K),
             fold_vals,
             summary,
-            lambdas or None,
-            powers or None,
-            refits,
-            oof,
+            pend.lambdas or None,
+            pend.powers or None,
+            pend.refits,
+            pend.oof,
         )
 
     def _fold_scales(
@@ -638,25 +762,27 @@ class Scorer:
             fits = estimate_fold_powers(
                 Z, XS, dyn.x, train, dyn.start, dyn.boxcox_form, grams=Gff, crosses=cff
             )
-        logx = np.log(dyn.x)
-        G = np.empty((K, p, p))
-        c = np.empty((K, p))
-        full: list[np.ndarray] = []
-        for k, fit in enumerate(fits):
-            powers.append([float(a) for a in fit.powers])
-            W, _ = power_columns(logx, fit.powers, dyn.boxcox_form)
-            X = np.empty((XS.shape[0], p))
-            X[:, fixed_pos] = XS
-            X[:, dyn.positions] = W
-            designs[k] = X
-            full.append(X)
-            Xtr = X[train[k]]
-            G[k] = Xtr.T @ Xtr
-            c[k] = Xtr.T @ zs[k][train[k]]
+        # every fold's design at its own powers, all folds at once (the same columns as
+        # power_columns fold by fold), then the training sums as masked products
+        A = np.array([fit.powers for fit in fits], dtype=float)
+        powers.extend(A.tolist())
+        W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+        n = XS.shape[0]
+        X = np.empty((K, n, p))
+        X[:, :, fixed_pos] = XS
+        X[:, :, dyn.positions] = W
+        M = np.zeros((K, n))
+        for k in range(K):
+            M[k, train[k]] = 1.0
+        Xm = X * M[:, :, None]
+        G = np.matmul(Xm.transpose(0, 2, 1), X)
+        c = np.einsum("knp,kn->kp", Xm, np.stack(zs))
         Bk, ok = solve_batch(G, c)
         B[:] = Bk
+        for k in range(K):
+            designs[k] = X[k]
         refits = 0
         for i in np.flatnonzero(~ok):
-            B[i] = _exact_refit(full[i][train[i]], zs[i][train[i]], names, i)
+            B[i] = _exact_refit(X[i][train[i]], zs[i][train[i]], names, i)
             refits += 1
         return refits

@@ -148,6 +148,12 @@ def _factor_batch(
         d = np.sqrt(d2)
         Gs = G / (d[:, :, None] * d[:, None, :])
         cs = c / d
+        checked = _checked_factors(Gs, COND_LIMIT)
+        if checked is not None:
+            good, L_all = checked
+            if not np.any(good):
+                return None, cs[good], d[good], good
+            return L_all[good], cs[good], d[good], good
         ev = np.linalg.eigvalsh(Gs)
         good = ev[:, 0] > ev[:, -1] / COND_LIMIT
     else:
@@ -169,6 +175,40 @@ def _factor_batch(
         good[:] = False
         return None, cs[good], d[good], good
     return L, cs[good], d[good], good
+
+
+def _checked_factors(Gs: np.ndarray, limit: float) -> tuple[np.ndarray, np.ndarray] | None:
+    """(good, L): which column-scaled matrices of a stack (unit diagonal, finite) pass the
+    condition check ``lambda_min > lambda_max / limit`` and the Cholesky factors of all of
+    them; None when some matrix has no Cholesky factor (the caller checks by eigenvalues).
+
+    The same decision as the eigenvalues give, without them for most matrices: with s =
+    trace(Gs^-1) = ||L^-1||_F^2 and a unit diagonal, lambda_max lies in [1, p] (at least
+    the largest diagonal entry, at most the trace) and 1 / lambda_min = ||Gs^-1||_2 in
+    [s / p, s], so the condition number lies in [s / p, p s].  A matrix with p s below
+    limit / 2 passes, one with s / p above 2 limit fails (a margin of 2 on both sides for
+    the rounding of L^-1, relative about cond x 1e-16); the eigenvalues
+    (``numpy.linalg.eigvalsh``, as before) decide the matrices in between.  Each matrix's
+    factor is LAPACK's for that matrix alone, so the solutions are the same."""
+    try:
+        L = np.linalg.cholesky(Gs)
+    except np.linalg.LinAlgError:
+        return None
+    K, p, _ = L.shape
+    inv = np.zeros((K, p, p))  # L^-1 row by row (forward substitution, all matrices at once)
+    for i in range(p):
+        row = -np.einsum("kj,kjm->km", L[:, i, :i], inv[:, :i, :])
+        row[:, i] += 1.0
+        inv[:, i, :] = row / L[:, i, i][:, None]
+    with np.errstate(over="ignore", invalid="ignore"):
+        s = np.einsum("kij,kij->k", inv, inv)
+        good = p * s < 0.5 * limit
+        bad = ~(s / p <= 2.0 * limit)  # NaN or inf: failed
+    between = ~good & ~bad
+    if np.any(between):
+        ev = np.linalg.eigvalsh(Gs[between])
+        good[between] = ev[:, 0] > ev[:, -1] / limit
+    return good, L
 
 
 def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -197,15 +237,35 @@ def solve_batch_nested(
     B1 = np.full((K, lead), np.nan)
     L, cs, d, good = _factor_batch(G, c)
     if L is not None:
-        w = np.linalg.solve(L, cs[:, :, None])
-        b = np.linalg.solve(np.swapaxes(L, 1, 2), w)[:, :, 0]
-        B[good] = b / d
+        w = _forward(L, cs)
+        B[good] = _backward(L, w) / d
         if lead == 0:  # solve_batch: the full systems only
             return B, good, B1
-        L1 = L[:, :lead, :lead]
-        b1 = np.linalg.solve(np.swapaxes(L1, 1, 2), w[:, :lead])[:, :, 0]
-        B1[good] = b1 / d[:, :lead]
+        B1[good] = _backward(L[:, :lead, :lead], w[:, :lead]) / d[:, :lead]
     return B, good, B1
+
+
+def _forward(L: np.ndarray, c: np.ndarray) -> np.ndarray:
+    """w with L_k w_k = c_k for a stack of lower-triangular L (K, p, p): forward
+    substitution, one row of every system per step (p steps instead of one LAPACK call per
+    matrix)."""
+    K, p = c.shape
+    w = np.empty((K, p))
+    for i in range(p):
+        acc = c[:, i] - np.einsum("kj,kj->k", L[:, i, :i], w[:, :i])
+        w[:, i] = acc / L[:, i, i]
+    return w
+
+
+def _backward(L: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """b with L_k' b_k = w_k for a stack of lower-triangular L (K, p, p): back substitution
+    on the transposed factors, one row of every system per step."""
+    K, p = w.shape
+    b = np.empty((K, p))
+    for i in range(p - 1, -1, -1):
+        acc = w[:, i] - np.einsum("kj,kj->k", L[:, i + 1 :, i], b[:, i + 1 :])
+        b[:, i] = acc / L[:, i, i]
+    return b
 
 
 def qr_solve(

@@ -94,27 +94,71 @@ def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray
     return _exact(t, eta, e)
 
 
-BINNED_MIN_ETAS = 16  # below this many etas the exact sum costs less than building the bins
+BINNED_MIN_ETAS = _tree.BINNED_MIN_ETAS  # below this many etas the exact sum is cheaper
 
 
 def _smear_power(
     eta: np.ndarray, e: np.ndarray, form: tuple[float, float, float, float, bool]
 ) -> np.ndarray:
-    """Power-form inverses (square, reciprocal, power, Box-Cox): the one-block series of all
-    residuals where every term is defined and far enough from the singular point
-    (``_tree.smear_power_root``), the binned series with exact sums next to the singular
-    point elsewhere (``_tree.smear_power_binned``), the exact sum for a handful of etas.
-    Relative error at most ``_tree.TREE_RTOL`` / ``_tree.BIN_RTOL`` (both 1e-12) plus
-    rounding; see those functions for the bounds."""
+    """Power-form inverses (square, reciprocal, power, Box-Cox): :func:`smeared_means` for
+    one group (``_tree.smear_power_many``: the root series where its bound allows, the
+    other etas exactly or by the binned series).  Relative error at most
+    ``_tree.TREE_RTOL`` / ``_tree.BIN_RTOL`` (both 1e-12) plus rounding."""
     beta, gamma, delta, p, zero = form
-    out, done = _tree.smear_power_root(eta, e, beta, gamma, delta, p)
-    rest = ~done
-    if np.any(rest):
-        if int(rest.sum()) >= BINNED_MIN_ETAS:
-            out[rest] = _tree.smear_power_binned(eta[rest], e, beta, gamma, delta, p, zero)
-        else:
-            out[rest] = _tree.exact_power(eta[rest], e, beta, gamma, delta, p, zero)
+    out = _tree.smear_power_many(
+        eta[None, :],
+        e[None, :],
+        np.array([beta]),
+        np.array([gamma]),
+        np.array([delta]),
+        np.array([p]),
+        np.array([zero]),
+    )[0]
     return np.where(np.isfinite(out), out, np.nan)
+
+
+def smeared_means(ts: list[Transform], eta: np.ndarray, e: np.ndarray) -> np.ndarray:
+    """:func:`smeared_mean` of G groups at once: row g of ``eta`` (G, m) smeared over row g
+    of ``e`` (G, n) on scale ``ts[g]``, the same sums as one call per group.  Closed forms
+    and power forms are each done for all their groups together (power forms by
+    ``_tree.smear_power_many``); any other scale one group at a time."""
+    eta = np.asarray(eta, dtype=float)
+    e = np.asarray(e, dtype=float)
+    out = np.full(eta.shape, np.nan)
+    kinds: dict[str, list[int]] = {}
+    forms: list[tuple[float, float, float, float, bool]] = []
+    for g, t in enumerate(ts):
+        kind = closed_form(t)
+        if kind is None:
+            form = _tree.power_form(t)
+            if form is not None:
+                forms.append(form)
+                kind = "power"
+            else:
+                kind = "other"
+        kinds.setdefault(kind, []).append(g)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        for kind, idx in kinds.items():
+            gs = np.asarray(idx, dtype=np.intp)
+            if kind == "identity":
+                out[gs] = eta[gs] + e[gs].mean(axis=1)[:, None]
+            elif kind == "log":
+                shift = np.array([log_shift(ts[g]) for g in idx])
+                fac = log_smear_factor(e[gs].T)
+                v = np.exp(eta[gs]) * fac[:, None] - shift[:, None]
+                out[gs] = np.where(np.isfinite(v), v, np.nan)
+            elif kind == "sqrt":
+                out[gs] = smear_sqrt(eta[gs].T, e[gs].T).T
+            elif kind == "power":
+                f = np.array(forms, dtype=float)
+                v = _tree.smear_power_many(
+                    eta[gs], e[gs], f[:, 0], f[:, 1], f[:, 2], f[:, 3], f[:, 4] > 0
+                )
+                out[gs] = np.where(np.isfinite(v), v, np.nan)
+            else:
+                for g in idx:
+                    out[g] = smeared_mean(ts[g], eta[g], e[g])
+    return out
 
 
 def smear_sqrt(eta: FloatArray, e: FloatArray) -> FloatArray:

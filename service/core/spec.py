@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Any, TypeAlias
 
 import numpy as np
@@ -66,17 +67,24 @@ class Specification:
         (Box-Tidwell, fitted by least squares on the response) counts as a
         parameter estimated from the response.
         """
-        ts = [self.response_transform] + [p.transform for p in self.predictors]
-        n_est = sum(1 for t in ts if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated))
-        n_est += sum(1 for p in self.predictors if _estimated_power(p.transform))
-        cost = sum(
-            3 if _estimated_power(t) else t.simplicity for t in ts if t.name != "categorical"
-        )
-        n_tr = sum(1 for t in ts if t.name not in ("identity", "categorical"))
-        return (n_est, cost, n_tr)
+        return _simplicity(self.key)
 
     def response_label(self) -> str:
         return self.response_transform.label(self.response)
+
+
+@lru_cache(maxsize=1 << 14)
+def _simplicity(key: SpecKey) -> tuple[int, int, int]:
+    """:meth:`Specification.simplicity` of the transforms in ``key`` (response, predictors,
+    intercept), kept for the specifications met again (a search sorts and ranks the same
+    ones many times)."""
+    response, predictors, _intercept = key
+    ts = [response, *predictors]
+    n_est = sum(1 for t in ts if t.name in tr.LAMBDA_NAMES and (t.lam is None or t.estimated))
+    n_est += sum(1 for t in predictors if _estimated_power(t))
+    cost = sum(3 if _estimated_power(t) else t.simplicity for t in ts if t.name != "categorical")
+    n_tr = sum(1 for t in ts if t.name not in ("identity", "categorical"))
+    return (n_est, cost, n_tr)
 
 
 def _estimated_power(t: tr.Transform) -> bool:

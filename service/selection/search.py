@@ -198,8 +198,37 @@ class _Evaluator:
                 self.scorer, t, [designs[i][0] for i in members], [designs[i][1] for i in members]
             )
             done.update(zip(members, got, strict=True))
+        # the others' held-out predictions one candidate at a time, their smeared means and
+        # errors together (Scorer.score_many: the same numbers as one call each)
+        together = [i for i, (_c, _n, dyn) in rest.items() if i in pre or not dyn]
+        got = self.scorer.score_many(
+            [
+                (
+                    specs[i].response_transform,
+                    rest[i][0],
+                    rest[i][1],
+                    pre[i].dynamic if i in pre else None,
+                    pre[i].found if i in pre else None,
+                )
+                for i in together
+            ]
+        )
+        ready = dict(zip(together, got, strict=True))
         out: list[Scored | None] = []
         for i, spec in enumerate(specs):
+            if i in ready:
+                try:
+                    res = ready[i]
+                    if isinstance(res, CandidateFailure):
+                        raise res
+                    made = self._concrete(spec, res, pre.get(i))
+                except CandidateFailure as exc:
+                    self._failed(spec, exc)
+                    out.append(None)
+                    continue
+                self.scored.append(made)
+                out.append(made)
+                continue
             if i not in done:
                 out.append(self(spec, pre.get(i)))
                 continue
@@ -315,15 +344,22 @@ class _Evaluator:
     def _score(self, spec: Specification, pre: _Pre | None = None) -> Scored:
         cols, names, dyn = self.space.design_of(spec)
         t = spec.response_transform
-        est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
         dynamic: Dynamic | None
         if pre is not None and pre.dynamic is not None:
             dynamic, fit = pre.dynamic, pre.fit
         else:
             dynamic, fit = self._dynamic(spec, cols, dyn)
         res = self.scorer.score(t, cols, names, dynamic, found=None if pre is None else pre.found)
+        return self._concrete(spec, res, _Pre(dynamic, fit, None))
+
+    def _concrete(self, spec: Specification, res: CVResult, pre: _Pre | None) -> Scored:
+        """``spec`` scored as ``res``: with estimated powers (``pre.fit``, the all-rows
+        estimate) the concrete specification, its powers' summary kept in ``self.powers``."""
+        fit = None if pre is None else pre.fit
         if fit is None:
             return Scored(spec, res)
+        t = spec.response_transform
+        est_cols = [p.column for p in spec.predictors if bt.is_open(p.transform)]
         a = iter(fit.powers)
         concrete = Specification(
             spec.response,

@@ -187,6 +187,10 @@ def test_undefined_back_transforms_fail_in_the_batch_with_the_one_candidate_reas
             reasons += isinstance(b, CandidateFailure)  # settled by the batch itself
             continue
         assert not isinstance(g, CandidateFailure)
-        assert g.value == pytest.approx(one.value, rel=1e-10)
+        # rel 1e-9 here, not 1e-10: next to the pole a held-out mean is tens of millions
+        # and amplifies the last-bit difference between the two paths' fitted values (an
+        # einsum against a matrix product) by |p| |delta eta| / base; measured 8e-11 to
+        # 2e-10 relative depending on the solver's rounding
+        assert g.value == pytest.approx(one.value, rel=1e-9)
     if t.name == "reciprocal":
         assert reasons >= 5

@@ -318,3 +318,92 @@ def test_candidates_the_batch_cannot_settle_are_left_to_score_alone(monkeypatch)
         scorer.score(log, [0], None, three, found=found[0])  # alone: its own first failure
     monkeypatch.setattr(fastcv, "POWER_BATCH_CELLS", n * 5)  # one repeat's folds at most
     assert scorer.powers_many([(log, [0], one)]) == [None]
+
+
+def _many_items(scorer, X, x, kinds):
+    """(t, cols, names, dynamic, found) of candidates of every kind the search scores with
+    Scorer.score_many: fixed scales, per-fold lambdas and per-fold powers (found together)."""
+    from service.core import boxtidwell as bt
+    from service.core.cvresult import Dynamic
+
+    items = []
+    for t, cols in kinds["fixed"]:
+        items.append((t, cols, None, None, None))
+    lam = kinds["lambda"]
+    for (t, cols), f in zip(lam, scorer.lambdas_many(lam), strict=True):
+        items.append((t, cols, None, None, f))
+    dyn = []
+    for t, cols, k in kinds["powers"]:
+        z = scorer.fixed_response(t)[1]
+        start = bt.estimate_powers(z, X[:, cols], x[:, :k]).powers
+        dyn.append((t, cols, Dynamic(list(range(len(cols), len(cols) + k)), x[:, :k], start)))
+    for (t, cols, d), f in zip(dyn, scorer.powers_many(dyn), strict=True):
+        items.append((t, cols, None, d, f))
+    return items
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_many_candidates_scored_together_equal_each_scored_alone(kind):
+    from service.core.errors import CandidateFailure
+
+    rng = np.random.default_rng(zlib.crc32(f"score_many/{kind}".encode()))
+    n = 203  # folds of unequal sizes: more than one shape of held-out block
+    X = _designs(kind, rng, n)
+    x = rng.uniform(1, 9, (n, 2))
+    y = np.exp(0.5 + 0.3 * np.sqrt(x[:, 0]) + 0.2 * np.log(x[:, 1]) + rng.normal(0, 0.2, n))
+    plan = make_plan(n, 5, 2, 4)
+    scorer = Scorer(ColumnBank.of_matrix(X, FoldIndex.of(plan, n)), y, plan, False)
+    log, sqrt = tr.Transform("log", shift=0.0), tr.Transform("sqrt")
+    recip, square = tr.Transform("reciprocal"), tr.Transform("square")
+    kinds = {
+        "fixed": [(recip, [0, 1]), (square, [0, 1, 3]), (log, [0, 2]), (sqrt, [0, 3])],
+        "lambda": [
+            (tr.Transform("box_cox"), [0, 1]),
+            (tr.Transform("box_cox"), [0, 1, 3]),
+            (tr.Transform("yeo_johnson"), [0, 2]),
+        ],
+        "powers": [(sqrt, [0, 1], 1), (recip, [0, 3], 2), (square, [0], 1), (log, [0, 2], 2)],
+    }
+    items = _many_items(scorer, X, x, kinds)
+    got = scorer.score_many(items)
+    assert len(got) == len(items)
+    for (t, cols, names, dyn, f), g in zip(items, got, strict=True):
+        try:
+            alone = scorer.score(t, cols, names, dyn, found=f)
+        except CandidateFailure as exc:
+            # source: Scorer.score, the one-candidate path: the same reason, word for word
+            assert isinstance(g, CandidateFailure) and str(g) == str(exc)
+            continue
+        assert not isinstance(g, CandidateFailure), (t, cols, g)
+        # source: Scorer.score, the one-candidate path (checked against lstsq refits above);
+        # the smeared means agree to the smearing's stated bound (1e-12 relative)
+        np.testing.assert_allclose(g.fold_values, alone.fold_values, rtol=1e-10)
+        assert g.value == pytest.approx(alone.value, rel=1e-10)
+        assert g.std_error == pytest.approx(alone.std_error, rel=1e-8, abs=1e-300)
+        assert g.exact_refits == alone.exact_refits
+        assert g.fold_lambdas == alone.fold_lambdas and g.fold_powers == alone.fold_powers
+
+
+def test_many_candidates_with_undefined_back_transforms_fail_with_the_one_candidate_reason():
+    from service.core.errors import CandidateFailure
+
+    from tests.core.test_batchcv import _grid
+
+    bank, y, plan, sets = _grid(400, 5)
+    scorer = Scorer(bank, y, plan, False)
+    recip = tr.Transform("reciprocal")
+    items = [(recip, cols, None, None, None) for cols in sets[:60]]
+    items += [(tr.Transform("box_cox"), cols, None, None, None) for cols in sets[60:70]]
+    got = scorer.score_many(items)
+    failures = 0
+    for (t, cols, *_r), g in zip(items, got, strict=True):
+        try:
+            one = scorer.score(t, cols)
+        except CandidateFailure as exc:
+            # source: Scorer.score, the one-candidate path: the same reason, word for word
+            assert isinstance(g, CandidateFailure) and str(g) == str(exc)
+            failures += 1
+            continue
+        assert not isinstance(g, CandidateFailure)
+        assert g.value == pytest.approx(one.value, rel=1e-10)
+    assert failures >= 5  # 1/y predictions at or below 0 (see _grid)

@@ -28,6 +28,7 @@ from service.core.fitting import (
     ols,
     qr_solve,
     solve_batch,
+    solve_batch_nested,
 )
 
 # ---------------------------------------------------------------- NIST StRD
@@ -297,3 +298,60 @@ def test_non_finite_and_zero_column_grams_are_flagged_not_solved():
     # scaled, so it is solved (exactly: b_j = c_j / G_jj), not flagged
     B2, ok2 = solve_batch(np.diag([1.0, 1e-20])[None], np.array([[2.0, 3e-20]]))
     assert ok2[0] and B2[0] == pytest.approx([2.0, 3.0], rel=1e-12)
+
+
+def _stack_with_conditions(conds, p, rng):
+    """Column-scaled SPD matrices (unit diagonal) with the given condition numbers: a random
+    orthogonal basis, eigenvalues spread geometrically from 1 to 1/cond, then scaled to a
+    unit diagonal (which moves the condition number a little; it is measured again)."""
+    out = []
+    for cond in conds:
+        Q, _ = np.linalg.qr(rng.normal(size=(p, p)))
+        ev = np.geomspace(1.0, 1.0 / cond, p)
+        A = (Q * ev) @ Q.T
+        d = np.sqrt(np.diag(A))
+        out.append(A / np.outer(d, d))
+    return np.stack(out)
+
+
+@pytest.mark.parametrize("p", [2, 4, 7])
+def test_condition_check_decides_as_the_eigenvalues_do(p):
+    from service.core import fitting
+
+    rng = np.random.default_rng(p)
+    conds = np.geomspace(1.0, 1e12, 400)  # through the 1e7 limit and the band around it
+    Gs = _stack_with_conditions(conds, p, rng)
+    got = fitting._checked_factors(Gs, fitting.COND_LIMIT)
+    assert got is not None
+    good, L = got
+    ev = np.linalg.eigvalsh(Gs)
+    # source: numpy.linalg.eigvalsh, the condition check as written before (lambda_min >
+    # lambda_max / 1e7), matrix by matrix
+    assert good.tolist() == (ev[:, 0] > ev[:, -1] / fitting.COND_LIMIT).tolist()
+    # source: numpy.linalg.cholesky of each matrix alone
+    np.testing.assert_array_equal(L[7], np.linalg.cholesky(Gs[7]))
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_stacked_substitution_matches_lapack_solves(kind):
+    rng = np.random.default_rng(len(kind))
+    K, n, p, lead = 300, 40, 6, 4
+    X = rng.normal(0, 1, (K, n, p))
+    if kind == "collinear":
+        X[:, :, 2] = X[:, :, 1] + 1e-2 * rng.normal(0, 1, (K, n))
+    elif kind == "badly_scaled":
+        X *= np.array([1.0, 1e6, 1e-6, 2000.0, 1.0, 1e3])
+    G = np.einsum("kni,knj->kij", X, X)
+    c = np.einsum("kni,kn->ki", X, rng.normal(0, 1, (K, n)))
+    B, ok, B1 = solve_batch_nested(G, c, lead)
+    assert ok.all()
+    for k in range(0, K, 37):
+        d = np.sqrt(np.diag(G[k]))
+        cond = np.linalg.cond(G[k] / np.outer(d, d))
+        # source: numpy.linalg.solve (LAPACK gesv) of the same systems; the two agree in
+        # norm (column-scaled coordinates) to the condition number times a few roundings
+        want = np.linalg.solve(G[k], c[k])
+        assert np.linalg.norm((B[k] - want) * d) <= cond * 1e-14 * np.linalg.norm(want * d)
+        want1 = np.linalg.solve(G[k][:lead, :lead], c[k][:lead])
+        d1 = d[:lead]
+        assert np.linalg.norm((B1[k] - want1) * d1) <= cond * 1e-14 * np.linalg.norm(want1 * d1)

@@ -311,3 +311,55 @@ def test_yeo_johnson_smearing_within_its_stated_bound(lam, kind):
     assert np.all(np.abs(got[ok] - want[ok]) <= allowed[ok])
     via = retransform.smeared_mean(t, eta, e)
     assert np.all(np.abs(via[ok] - want[ok]) <= allowed[ok])
+
+
+@pytest.mark.parametrize("exact_cells", [st.GROUP_EXACT_CELLS, 0])
+def test_many_groups_at_once_within_the_bound_and_equal_to_one_group_at_a_time(
+    exact_cells, monkeypatch
+):
+    """Groups of every power form side by side (as the scorer smears all folds of all
+    candidates at once), some next to a pole or a clip: each row within the bound of the
+    mean written out, and equal to the one-group call; ``exact_cells`` 0 sends every group's
+    etas left by the root series to the binned series instead of the double sum."""
+    monkeypatch.setattr(st, "GROUP_EXACT_CELLS", exact_cells)
+    rng = np.random.default_rng(11)
+    forms = [t for t, _c in (p.values for p in FAMILIES)]
+    centres = [c for _t, c in (p.values for p in FAMILIES)]
+    m, n = 40, 97
+    ts, etas, es = [], [], []
+    for t, centre in zip(forms * 2, centres * 2, strict=True):
+        ts.append(t)
+        etas.append(centre + rng.normal(0, 0.5, m))
+        es.append(_residuals(["normal", "skewed", "heavy"][len(ts) % 3], n, rng))
+    eta, e = np.stack(etas), np.stack(es)
+    f = np.array([st.power_form(t) for t in ts], dtype=float)
+    got = st.smear_power_many(eta, e, f[:, 0], f[:, 1], f[:, 2], f[:, 3], f[:, 4] > 0)
+    for g, t in enumerate(ts):
+        want, tol = _plain_mean(t, eta[g], e[g])
+        # source: Duan (1983) smearing written out (the double sum), within BIN_RTOL + rounding
+        assert np.array_equal(np.isnan(got[g]), np.isnan(want)), t
+        ok = ~np.isnan(want)
+        assert np.all(np.abs(got[g][ok] - want[ok]) <= tol[ok]), t
+        one = retransform.smeared_mean(t, eta[g], e[g])
+        np.testing.assert_allclose(got[g][ok], one[ok], rtol=1e-13)
+
+
+def test_smeared_means_of_mixed_scales_equal_one_call_each():
+    rng = np.random.default_rng(12)
+    ts = [
+        tr.Transform("identity"),
+        tr.Transform("log", shift=2.0),
+        tr.Transform("sqrt"),
+        tr.Transform("square"),
+        tr.Transform("box_cox", lam=0.3),
+        tr.Transform("box_cox", lam=0.0),
+        tr.Transform("yeo_johnson", lam=0.4),
+        tr.Transform("reciprocal"),
+    ]
+    eta = np.stack([rng.normal(2.0, 0.5, 30) for _ in ts])
+    e = np.stack([_residuals("skewed", 80, rng) for _ in ts])
+    got = retransform.smeared_means(ts, eta, e)
+    for g, t in enumerate(ts):
+        # source: retransform.smeared_mean one group at a time (checked against the
+        # double sum written out above and in test_retransform)
+        np.testing.assert_allclose(got[g], retransform.smeared_mean(t, eta[g], e[g]), rtol=1e-13)
