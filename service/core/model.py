@@ -142,22 +142,6 @@ class Signing:
     keys: tuple[str, dict[str, bytes]] | None
 
 
-def signing_all(node: object, keys: tuple[str, dict[str, bytes]] | None) -> None:
-    """Mark every :class:`Model` in a body (``ranking[i].model``, grouped too) to be issued
-    signed with ``keys``, in place."""
-    stack = [node]
-    while stack:
-        cur = stack.pop()
-        if isinstance(cur, dict):
-            for k, v in cur.items():
-                if isinstance(v, Model):
-                    cur[k] = Signing(v, keys)
-                elif isinstance(v, (dict, list)):
-                    stack.append(v)
-        elif isinstance(cur, list) and cur and isinstance(cur[0], (dict, list)):
-            stack.extend(x for x in cur if isinstance(x, (dict, list)))  # not number arrays
-
-
 def build_model(
     spec: Specification,
     design: Design,

@@ -97,26 +97,6 @@ def test_many_residuals_are_kept_as_evenly_spaced_quantiles():
     assert kind == "all" and values.tolist() == e[:7].tolist()
 
 
-def test_signing_all_marks_every_model_of_a_body_and_nothing_else(built):
-    m, _, _ = built
-    keys = ("k", {"k": b"key"})
-    body = {
-        "ranking": [{"model": m, "rank": 1}, {"model": m}],
-        "groups": {"north": {"ranking": [{"model": m}]}},
-        "values": [1.0, 2.0],
-    }
-    model.signing_all(body, keys)
-    marked = [
-        body["ranking"][0]["model"],
-        body["ranking"][1]["model"],
-        body["groups"]["north"]["ranking"][0]["model"],
-    ]
-    assert all(isinstance(x, model.Signing) and x.model is m and x.keys == keys for x in marked)
-    assert body["ranking"][0]["rank"] == 1 and body["values"] == [1.0, 2.0]
-    model.signing_all(body, None)  # already marked: left as they are
-    assert body["ranking"][0]["model"].keys == keys
-
-
 def test_library_versions_are_this_process_s():
     import scipy
     import statsmodels

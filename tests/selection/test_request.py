@@ -89,6 +89,8 @@ def test_models_are_signed_with_the_service_s_key():
     # source: RFC 2104 HMAC-SHA-256 computed with Python's hmac over key id, newline, body
     want = hmac.new(key, b"current\n" + canonical_bytes(model), hashlib.sha256).hexdigest()
     assert model["signature"] == {"algorithm": "HMAC-SHA-256", "key_id": "current", "value": want}
+    assert len(body["ranking"]) > 1  # every listed model is marked, not only rank 1's
+    assert all(e["model"]["signature"]["key_id"] == "current" for e in body["ranking"])
     unsigned = to_jsonable(run_selection(_job(), SERVICE))["ranking"][0]["model"]["signature"]
     assert unsigned["algorithm"] == "none"
 

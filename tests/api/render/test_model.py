@@ -156,12 +156,12 @@ def test_previous_key_still_verifies_and_unsigned_is_marked(issued):
 
 def test_every_model_marked_in_a_response_is_signed_once_rendered(issued):
     _, _, _, typed = issued
+    marked = model.Signing(typed, KEYS)
     body = {
-        "ranking": [{"model": typed}, {"model": typed}],
-        "groups": [{"ranking": [{"model": typed}]}],
+        "ranking": [{"model": marked}, {"model": marked}],
+        "groups": [{"ranking": [{"model": marked}]}],
         "values": [1.0, 2.0],
     }
-    model.signing_all(body, KEYS)
     out = to_jsonable(body)
     models = [
         out["ranking"][0]["model"],
