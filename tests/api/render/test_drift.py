@@ -7,6 +7,7 @@ binned shares), numpy counts and medians of the rows, and the layout the README 
 
 from __future__ import annotations
 
+import functools
 import json
 
 import numpy as np
@@ -14,48 +15,13 @@ import pytest
 from scipy.stats import entropy
 from service.api.encode import to_jsonable
 from service.api.render import contract
-from service.core import transforms as tr
-from service.core.data import prepare
-from service.core.drift import RULE, compare, profile
-from service.core.model import Model
-from service.core.spec import Levels, PredictorSpec, Specification
+from service.core.drift import RULE, compare
 
+from tests.core import test_drift as core_drift_cases
 
-def _prep(rng, n, shift=0.0, soils=("clay", "loam", "sand"), age_offset=0):
-    """Invented: repair costs of water mains by load, age and soil."""
-    x = rng.normal(50.0 + shift * 10.0, 10.0, n)
-    age = rng.integers(1, 60, n) + age_offset
-    soil = rng.choice(list(soils), n)
-    y = np.exp(1.0 + 0.02 * x + rng.normal(0, 0.1, n))
-    cols = {"cost": y.tolist(), "load": x.tolist(), "age": age.tolist(), "soil": soil.tolist()}
-    return prepare({"columns": cols}, "cost", ["load", "age", "soil"], ["soil"])
-
-
-def _artifact(prep, with_profile=True, columns=("load", "age", "soil", "depth")):
-    """A model recording what drift reads: its specification, training rows, ranges, levels
-    and (``with_profile``) the training rows' profile."""
-    spec = Specification(
-        "cost",
-        tr.Transform("log"),
-        tuple(PredictorSpec(c, tr.Transform("identity")) for c in columns),
-    )
-    return Model(
-        spec=spec,
-        terms=(),
-        coef=np.zeros(0),
-        xtx_inverse=np.zeros((0, 0)),
-        residual_variance=1.0,
-        df_residual=1,
-        levels={"soil": Levels(tuple(sorted(set(prep.categorical["soil"]))), "clay")},
-        residuals=np.zeros(1),
-        residual_kind="all",
-        training_range={
-            c: (float(prep.numeric[c].min()), float(prep.numeric[c].max())) for c in ("load", "age")
-        },
-        max_leverage=0.0,
-        n=prep.n,
-        profile=profile(prep, ["load", "age", "soil"]) if with_profile else None,
-    )
+# the same invented rows and model as the core's drift tests (one place that builds them)
+_artifact = functools.partial(core_drift_cases._artifact, columns=("load", "age", "soil", "depth"))
+_prep = core_drift_cases._prep
 
 
 @pytest.fixture(scope="module")
