@@ -87,7 +87,7 @@ def _demo_plots():
 
     opts = SearchOptions(time_limit_s=600.0)
     selection = run_selection(prep, opts, "bench")  # its ranking entries typed
-    entry = selection["ranking"][0]
+    entry = selection.ranking[0]
     plots = specification_plots(entry.specification, prep, 0.05, 0, 2000)
     return selection, prep, plots, entry.equation
 

@@ -30,6 +30,7 @@ from tests.benchmarks._common import Timer, machine, pin_blas
 pin_blas(1)
 
 import numpy as np
+from service.api.encode import to_jsonable
 from service.api.options import selection_job, service
 from service.api.schemas import SelectionRequest
 from service.core import _smear_tree as st
@@ -51,7 +52,7 @@ def exact_dispatch(eta, e, form):
 
 def run_selection_request(req: SelectionRequest) -> dict:
     """One selection request end to end, as the route runs it (typed options, then the search)."""
-    return run_selection(selection_job(req), service())
+    return to_jsonable(run_selection(selection_job(req), service()))
 
 
 def request(rows: int) -> SelectionRequest:

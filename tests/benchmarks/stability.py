@@ -29,12 +29,9 @@ from service.selection.search_setup import SearchOptions
 CLEAR = ("log-log power law", "sqrt predictor", "categorical, log response", "mixed")
 
 
-def _scales(out: dict) -> tuple:
-    spec = out["ranking"][0]["specification"]
-    return (
-        spec["response"]["transform"]["name"],
-        tuple(p["transform"]["name"] for p in spec["predictors"]),
-    )
+def _scales(out) -> tuple:
+    spec = out.ranking[0].specification
+    return (spec.response_transform.name, tuple(p.transform.name for p in spec.predictors))
 
 
 def demo_prep(drop: int | None = None):

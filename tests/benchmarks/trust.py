@@ -73,7 +73,7 @@ def main() -> int:
     op, t_op = _timed(lambda: trust(False, True))
     det = st.stability
     o = op.optimism
-    print(f"rows                  : {args.rows} ({result.body['search'].scored} candidates)")
+    print(f"rows                  : {args.rows} ({result.body.search.scored} candidates)")
     print(f"search (baseline)     : {t_search:7.1f} s")
     print(
         f"stability             : {t_st:7.1f} s  = {t_st / t_search:.2f} x search  "
