@@ -17,9 +17,10 @@ from service.core.spec import Levels, Specification
 from service.selection.entries import fitted_model
 
 
-@pytest.fixture(scope="module")
-def built():
-    """Invented: minutes a depot needs to load a truck, by pallets and loading bay."""
+def depot_fit():
+    """Invented: minutes a depot needs to load a truck, by pallets and loading bay; the
+    log-log model with the bay as a categorical fitted on all rows: (specification, design,
+    fit, rows)."""
     rng = np.random.default_rng(3)
     n = 50
     pallets = rng.uniform(2, 30, n)
@@ -37,6 +38,12 @@ def built():
         }
     )
     concrete, design, fit, _ = fitted_model(spec, prep)
+    return concrete, design, fit, prep
+
+
+@pytest.fixture(scope="module")
+def built():
+    concrete, design, fit, prep = depot_fit()
     m = model.build_model(
         concrete, design, fit, prep, "test-version", None, NoStoredFits("none kept"), []
     )

@@ -22,34 +22,16 @@ from service.api.encode import to_jsonable
 from service.api.render import contract
 from service.api.render import model as render
 from service.core import model
-from service.core.data import prepare
 from service.core.errors import InputError
-from service.core.spec import Specification
-from service.selection.entries import fitted_model
+
+from tests.core.test_model import depot_fit
 
 KEYS = ("k2", {"k1": b"first key, retired soon", "k2": b"current key of this service"})
 
 
 @pytest.fixture(scope="module")
 def issued():
-    """Invented: minutes a depot needs to load a truck, by pallets and loading bay."""
-    rng = np.random.default_rng(3)
-    n = 50
-    pallets = rng.uniform(2, 30, n)
-    bay = rng.choice(["east", "north", "west"], n)
-    minutes = np.exp(1.0 + 0.6 * np.log(pallets) + 0.1 * (bay == "west") + rng.normal(0, 0.1, n))
-    cols = {"minutes": minutes.tolist(), "pallets": pallets.tolist(), "bay": bay.tolist()}
-    prep = prepare({"columns": cols}, "minutes", ["pallets", "bay"], ["bay"])
-    spec = Specification.from_dict(
-        {
-            "response": {"column": "minutes", "transform": {"name": "log"}},
-            "predictors": [
-                {"column": "pallets", "transform": {"name": "log"}},
-                {"column": "bay", "transform": {"name": "categorical"}},
-            ],
-        }
-    )
-    concrete, design, fit, _ = fitted_model(spec, prep)
+    concrete, design, fit, prep = depot_fit()
     typed = model.build_model(concrete, design, fit, prep, "test-version")
     art = contract(typed)  # sealed, not signed: as a diagnosed specification's model
     return art, design, prep, typed
