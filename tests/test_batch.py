@@ -215,6 +215,12 @@ def test_scheduler_and_worker_started_with_dask_commands(job, tmp_path, monkeypa
                 stderr=subprocess.DEVNULL,
             )
         )
+        # a site starts its workers before its jobs: wait until this one has joined, or the
+        # first run may find the scheduler still without workers (its tasks would wait for one)
+        from distributed import Client
+
+        with Client(address, timeout="20s") as probe:
+            probe.wait_for_workers(1, timeout=60)
         out = tmp_path / "remote"
         monkeypatch.setenv("BESTSCALE_DASK_SCHEDULER", address)
         get_settings.cache_clear()
