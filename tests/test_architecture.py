@@ -529,7 +529,6 @@ NOT_YET_RENDERED = {
     "core/transforms/value.py": 2,
     "report/html.py": 11,
     "selection/candidates.py": 1,
-    "selection/entries.py": 2,
 }
 
 
