@@ -527,7 +527,6 @@ NOT_YET_RENDERED = {
     "core/transforms/log.py": 3,
     "core/transforms/powers.py": 5,
     "core/transforms/value.py": 2,
-    "report/html.py": 11,
     "selection/candidates.py": 1,
 }
 
