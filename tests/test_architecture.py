@@ -656,3 +656,43 @@ def test_the_contract_name_check_sees_what_it_forbids(tmp_path):
 def test_the_allowances_name_files_that_exist():
     for rel in NOT_YET_RENDERED:
         assert (CORE.parent / rel).is_file(), rel
+
+
+#: floors whose modules import only at module level (the entry points above them may defer
+#: an import into a function, saying why: see DEVELOPERS.md, "Imports point downwards")
+IMPORT_AT_TOP_FILES = [
+    (floor, p)
+    for floor in ("api", "selection", "report", "core")
+    for p in sorted((CORE.parent / floor).rglob("*.py"))
+]
+
+
+def imports_in_functions(path: Path) -> list[str]:
+    """``import`` statements inside the function bodies of ``path``, by line."""
+    found = []
+    for fn in ast.walk(ast.parse(path.read_text())):
+        if isinstance(fn, (ast.FunctionDef, ast.AsyncFunctionDef)):
+            found += [
+                f"line {node.lineno}: {ast.unparse(node)}"
+                for node in ast.walk(fn)
+                if isinstance(node, (ast.Import, ast.ImportFrom))
+            ]
+    return found
+
+
+@pytest.mark.parametrize(
+    ("floor", "path"), IMPORT_AT_TOP_FILES, ids=[_file_id(f, p) for f, p in IMPORT_AT_TOP_FILES]
+)
+def test_the_floors_import_at_module_level_only(floor, path):
+    """An import inside a function hides a dependency (often one that would be a cycle);
+    the floors import everything at the top."""
+    assert not imports_in_functions(path), f"{_file_id(floor, path)} imports inside functions"
+
+
+def test_the_import_position_check_sees_what_it_forbids(tmp_path):
+    bad = tmp_path / "bad.py"
+    bad.write_text(
+        "import math\n\ndef f():\n    from .x import y\n    return y\n\n"
+        "class C:\n    async def g(self):\n        import json\n"
+    )
+    assert imports_in_functions(bad) == ["line 4: from .x import y", "line 9: import json"]
