@@ -30,12 +30,12 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy import stats
-from statsmodels.nonparametric.smoothers_lowess import lowess
 
 from service.core import _condition_tests as ct
 from service.core import sources as src
 from service.core.conditions import MAX_FLAGGED_ROWS, ConditionInputs, flag_rows, validate
 from service.core.folds import DEFAULT_SEED
+from service.core.lowess import lowess
 
 #: LOWESS is fitted to at most this many rows (a seeded sample beyond it)
 SMOOTHER_MAX_ROWS = 20_000
