@@ -57,9 +57,10 @@ def _canon(v: Any, fast: dict[str, bytes] | None = None, tag: str = "") -> Any:
         return {k: _canon(x, fast, tag) for k, x in v.items()}
     if isinstance(v, (list, tuple)):
         out: list[Any] | None = None
-        if all(type(x) is float for x in v):  # stored residuals and quantiles: thousands
+        kinds = set(map(type, v))  # one C-level pass over thousands of numbers
+        if kinds <= {float}:  # stored residuals and quantiles: thousands
             out = list(v)
-        elif all(type(x) is int for x in v):  # fold numbers of out-of-fold residuals: thousands
+        elif kinds == {int}:  # fold numbers of out-of-fold residuals: thousands
             out = [float(x) for x in v]
         if out is None:
             return [_canon(x, fast, tag) for x in v]
