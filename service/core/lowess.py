@@ -10,9 +10,9 @@ interpolation weights depend on x alone, so they are worked out once; each pass 
 handful of array operations over (fitted points x neighbourhood) blocks.  The sums of a
 local fit run in row order, as statsmodels' loops do, and the weights' total pairwise, as
 its ``np.sum`` does, so the curves are statsmodels' to rounding (bit for bit on x86-64;
-``tests/core/test_lowess.py`` compares them).  Past :data:`MAX_CELLS` (long
-neighbourhoods, about 1,500 rows and more) the blocks cost more than statsmodels' loops,
-and statsmodels' ``lowess`` itself is called.
+``tests/core/test_lowess.py`` compares them).  With long neighbourhoods
+(:data:`MAX_NEIGHBOURS`, about 1,200 rows at frac 2/3) the blocks cost as much as
+statsmodels' loops, and statsmodels' ``lowess`` itself is called.
 """
 
 from __future__ import annotations
@@ -24,9 +24,11 @@ from statsmodels.nonparametric.smoothers_lowess import lowess as sm_lowess
 
 from ._types import FloatArray
 
-#: fitted points x neighbourhood size up to which the fits run as blocks here; above it
-#: (about 1,500 rows at the plots' settings) statsmodels' own loops are faster
-MAX_CELLS = 120_000
+#: neighbourhoods longer than this (about 1,200 rows at the plots' frac of 2/3) go to
+#: statsmodels' own loops, which are as fast there
+MAX_NEIGHBOURS = 800
+#: and so do more fitted points x neighbourhood cells than this (delta 0 on many rows)
+MAX_CELLS = 400_000
 
 
 @dataclass(frozen=True)
@@ -138,16 +140,23 @@ def lowess(
     n = x.size
     if n == 0:
         return np.empty((0, 2))
-    order = np.argsort(x)  # statsmodels' own sort, so tied rows sit in the same order
-    xs, ys = np.ascontiguousarray(x[order]), np.ascontiguousarray(y[order])
     k = min(max(int(frac * n + 1e-10), 2), n)
-    at, tie_end = _fitted_points(xs, float(delta))
-    if at.size * k > MAX_CELLS:
-        # long neighbourhoods: statsmodels' loops over them beat these blocks
-        with np.errstate(all="ignore"):
-            out: FloatArray = sm_lowess(y, x, frac=frac, it=it, delta=delta)
-        return out
-    x, y = xs, ys
+    if k <= MAX_NEIGHBOURS:
+        order = np.argsort(x)  # statsmodels' own sort, so tied rows sit in the same order
+        xs, ys = np.ascontiguousarray(x[order]), np.ascontiguousarray(y[order])
+        at, tie_end = _fitted_points(xs, float(delta))
+        if at.size * k <= MAX_CELLS:
+            return _blocks(xs, ys, k, it, at, tie_end)
+    with np.errstate(all="ignore"):  # statsmodels' own 0/0 on heavily tied x
+        out: FloatArray = sm_lowess(y, x, frac=frac, it=it, delta=delta)
+    return out
+
+
+def _blocks(
+    x: FloatArray, y: FloatArray, k: int, it: int, at: np.ndarray, tie_end: np.ndarray
+) -> FloatArray:
+    """The passes on sorted x and y, each local fit of a pass in one block."""
+    n = x.size
     rw = np.ones(n)
     fitted = rw
     with np.errstate(all="ignore"):  # heavily tied x: 0/0 in a local fit, as in statsmodels

@@ -85,6 +85,10 @@ def test_long_neighbourhoods_go_to_statsmodels(monkeypatch):
     monkeypatch.setattr(lw, "MAX_CELLS", 10**9)
     lw.lowess(y, x, 2 / 3, 3, 0.01 * float(np.ptp(x)))
     assert calls == [1]  # the block path
+    monkeypatch.setattr(lw, "MAX_NEIGHBOURS", 100)  # 333 rows a neighbourhood: too long
+    ours = lw.lowess(y, x, 2 / 3, 3, 0.01 * float(np.ptp(x)))
+    assert calls == [1, 1]
+    _same(ours, _reference(y, x, 2 / 3, 3, 0.01 * float(np.ptp(x))))
 
 
 def test_the_fitted_points_are_statsmodels_rule():
