@@ -53,7 +53,13 @@ from .cvresult import (
 )
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
-from .likelihood import FoldLambdaProblem, fit_transform, fold_lambdas, many_fold_lambdas
+from .likelihood import (
+    FoldLambdaProblem,
+    fit_transform,
+    fold_lambdas,
+    many_fold_lambdas,
+    many_lambdas,
+)
 from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -156,6 +162,38 @@ class Scorer:
         self.shift_needed = shift_needed
         self._resp: dict[tr.Transform, tuple[tr.Transform, np.ndarray, bool]] = {}
         self.want_mape = bool(np.all(self.y != 0))
+        # all-rows lambdas (family, bank columns) -> lambda or why it has none: the warm
+        # start of the folds' estimates, asked for again by out_of_fold and a second search
+        self._near: dict[tuple[str, tuple[int, ...]], float | ValueError] = {}
+
+    def all_rows_lambdas(
+        self, items: Sequence[tuple[tr.Transform, Sequence[int]]]
+    ) -> list[float | ValueError]:
+        """The all-rows lambda of each ``(t, cols)`` (a response scale with a lambda to
+        estimate, bank columns), or the ValueError the estimate raised: what
+        ``fit_transform(t, y, bank.columns(cols)).lam`` gives, every one not already known
+        found together (:func:`likelihood.many_lambdas`; the one-design path for those it
+        does not take) and kept for the rest of the request."""
+        keys = [(t.name, tuple(int(c) for c in cols)) for t, cols in items]
+        todo: dict[tuple[str, tuple[int, ...]], tr.Transform] = {}
+        for (t, _cols), key in zip(items, keys, strict=True):
+            if key not in self._near:
+                todo.setdefault(key, t)
+        by_family: dict[str, list[tuple[str, tuple[int, ...]]]] = {}
+        for key in todo:
+            by_family.setdefault(key[0], []).append(key)
+        for family, ks in by_family.items():
+            designs = [self.bank.columns(np.asarray(k[1], dtype=int)) for k in ks]
+            for key, X, lam in zip(ks, designs, many_lambdas(family, self.y, designs), strict=True):
+                if lam is None:  # the one-design path (and its reason when it fails)
+                    try:
+                        lam = fit_transform(todo[key], self.y, X).lam
+                    except ValueError as exc:
+                        self._near[key] = exc
+                        continue
+                    assert lam is not None  # fit_transform estimated it
+                self._near[key] = float(lam)
+        return [self._near[key] for key in keys]
 
     # ------------------------------------------------------------ response side
     def fixed_response(self, t: tr.Transform) -> tuple[tr.Transform, np.ndarray, bool]:
@@ -313,10 +351,10 @@ class Scorer:
         if estimate_lam and found is not None and found.lambdas is not None:
             near = found.near
         elif estimate_lam:
-            try:
-                near = fit_transform(t, y, XS).lam
-            except ValueError as exc:
-                raise CandidateFailure(str(exc)) from None
+            got = self.all_rows_lambdas([(t, cols)])[0]
+            if isinstance(got, ValueError):
+                raise CandidateFailure(str(got)) from None
+            near = got
         if not per_fold:
             t0, z, finite = self.fixed_response(t)
             if not finite:
@@ -655,15 +693,14 @@ class Scorer:
             return out
         train_all = [rows for r in range(R) for rows in self.bank.index.train[r]]
         fams: dict[str, tuple[list[int], list[FoldLambdaProblem]]] = {}
-        for i, (t, cols) in enumerate(items):
-            if not t.needs_lambda:
+        want = [i for i, (t, _cols) in enumerate(items) if t.needs_lambda]
+        nears = self.all_rows_lambdas([items[i] for i in want])
+        for i, near in zip(want, nears, strict=True):
+            if isinstance(near, ValueError):
                 continue
+            t, cols = items[i]
             S = np.asarray(cols, dtype=int)
             XS = self.bank.columns(S)
-            try:
-                near = fit_transform(t, self.y, XS).lam
-            except ValueError:
-                continue
             grams = np.concatenate([self.bank.train_grams(S, r) for r in range(R)])
             where, probs = fams.setdefault(t.name, ([], []))
             where.append(i)

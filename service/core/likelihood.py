@@ -562,6 +562,27 @@ def many_fold_lambdas(
     return out
 
 
+def many_lambdas(family: str, y: np.ndarray, designs: list[np.ndarray]) -> list[float | None]:
+    """The all-rows lambda of many designs (one response ``y``, designs (n, p_c)): what
+    ``estimate_lambda(family, y, X, with_interval=False)`` finds for each (the same grid of
+    25 points over [-3, 3], the same bounded Brent refinement with xatol 1e-9), with every
+    step's evaluations of all designs of one width made together (:func:`many_fold_lambdas`
+    with all rows as the one fold).  The profile's values differ from the one-design path's
+    in rounding only (X'X formed once for the stack, products in another order), which can
+    move the argmax of a flat maximum within Brent's tolerance: tests compare the two to
+    1e-6.  None for a design this path does not take (its scaled X'X fails the condition
+    check, Yeo-Johnson with negative values, no finite profile value): the one-design path
+    answers for it (and names the problem)."""
+    n = np.asarray(y).size
+    rows = [np.arange(n)]
+    problems = []
+    for X in designs:
+        with np.errstate(over="ignore", invalid="ignore"):
+            gram = (X.T @ X)[None]
+        problems.append(FoldLambdaProblem(X, rows, gram, None))
+    return [lams[0] for lams in many_fold_lambdas(family, y, problems)]
+
+
 def _no_near(near: float | None) -> float:
     return math.nan if near is None else float(near)
 

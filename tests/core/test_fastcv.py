@@ -407,3 +407,36 @@ def test_many_candidates_with_undefined_back_transforms_fail_with_the_one_candid
         assert not isinstance(g, CandidateFailure)
         assert g.value == pytest.approx(one.value, rel=1e-10)
     assert failures >= 5  # 1/y predictions at or below 0 (see _grid)
+
+
+def test_all_rows_lambdas_are_found_together_once_and_kept(monkeypatch):
+    from service.core import fastcv
+    from service.core import likelihood as lk
+
+    rng = np.random.default_rng(12)
+    n = 160
+    X = np.column_stack([np.ones(n), rng.uniform(1, 10, n), rng.normal(size=n), np.zeros(n)])
+    X[:, 3] = X[:, 2] + 1e-9 * rng.normal(size=n)  # collinear with column 2
+    y = (1 + 0.3 * X[:, 1] + rng.normal(0, 0.15, n)) ** 2
+    plan = make_plan(n, 5, 2, 3)
+    scorer = Scorer(ColumnBank.of_matrix(X, FoldIndex.of(plan, n)), y, plan, False)
+    calls = []
+    real = lk.many_lambdas
+
+    def counted(family, yy, designs):
+        calls.append(len(designs))
+        return real(family, yy, designs)
+
+    monkeypatch.setattr(fastcv, "many_lambdas", counted)
+    bc, yj = tr.Transform("box_cox"), tr.Transform("yeo_johnson")
+    items = [(bc, [0, 1]), (bc, [0, 1, 2]), (yj, [0, 1]), (bc, [0, 2, 3]), (bc, [0, 1])]
+    got = scorer.all_rows_lambdas(items)
+    assert sorted(calls) == [1, 3]  # one stack per family; the repeated design once
+    for (t, cols), lam in zip(items, got, strict=True):
+        # source: the one-design path (grid, then scipy.optimize.minimize_scalar bounded);
+        # the collinear design is that path's own answer (QR residuals)
+        ref = lk.fit_transform(t, y, X[:, cols]).lam
+        assert lam == pytest.approx(ref, abs=1e-6)
+    assert scorer.all_rows_lambdas(items[:2]) == got[:2] and sorted(calls) == [1, 3]
+    scorer.score(bc, [0, 1])  # the scorer's warm start is the kept estimate
+    assert sorted(calls) == [1, 3]
