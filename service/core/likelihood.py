@@ -461,9 +461,15 @@ class _FoldProfiles:
             return out
         own = self.owner[idx]
         out = np.empty((idx.size, self.X.shape[2]))
-        for o in np.unique(own):  # per candidate, the one-candidate path's product
-            at = own == o
-            out[at] = np.matmul(z[at], self.X[o])
+        # runs of folds of one candidate (a candidate's folds sit side by side): per run the
+        # one-candidate path's product, on a slice of z
+        if idx.size == 0:
+            return out
+        cut = np.flatnonzero(own[1:] != own[:-1]) + 1
+        starts = np.concatenate([[0], cut]).tolist()
+        ends = np.concatenate([cut, [idx.size]]).tolist()
+        for a, b in zip(starts, ends, strict=True):
+            out[a:b] = np.matmul(z[a:b], self.X[own[a]])
         return out
 
     def _design(self, f: int) -> np.ndarray:
@@ -475,18 +481,23 @@ class _FoldProfiles:
 
     def llf(self, idx: np.ndarray, lam: np.ndarray) -> np.ndarray:
         """Profile log-likelihood of folds ``idx`` at ``lam`` (one value per fold)."""
-        gm, lgm = self.gm[idx][:, None], self.lgm[idx]
-        lt = lam[:, None]
-        zero = np.abs(lt) < 1e-12
-        ls = np.where(zero, 1.0, lt)
+        gm, lgm = self.gm[idx], self.lgm[idx]
+        zero = np.abs(lam) < 1e-12
+        ls = np.where(zero, 1.0, lam)
+        w = self.w[idx]  # 0 off the training rows, so z is 0 there too
         with np.errstate(over="ignore", invalid="ignore"):
-            z = np.where(zero, gm * self.w[idx], gm * np.expm1(ls * self.w[idx]) / ls)
-            shift = gm[:, 0] * np.expm1(-ls[:, 0] * lgm) / ls[:, 0]
-            adjust = ~zero[:, 0] & ~self.has_const[idx]
-            z = np.where(adjust[:, None], z - shift[:, None], z)
-            M = self.M[idx]
-            finite = np.all(np.isfinite(z) | ~M, axis=1)
-            z = np.where(M & finite[:, None], z, 0.0)
+            z = np.expm1(ls[:, None] * w)
+            z *= gm[:, None]
+            z /= ls[:, None]
+            if np.any(zero):
+                z[zero] = gm[zero][:, None] * w[zero]
+            shift = gm * np.expm1(-ls * lgm) / ls
+            adjust = np.flatnonzero(~zero & ~self.has_const[idx])
+            if adjust.size:  # z - shift on the training rows, 0 elsewhere
+                z[adjust] = (z[adjust] - shift[adjust][:, None]) * self.M[idx[adjust]]
+            finite = np.all(np.isfinite(z), axis=1)
+            if not np.all(finite):
+                z[~finite] = 0.0
             zz = np.einsum("fb,fb->f", z, z)
             c = self._coef_rhs(idx, self._cross(idx, z))
             rss = zz - np.sum(c * c, axis=1)
