@@ -433,7 +433,12 @@ def test_all_rows_lambdas_are_found_together_once_and_kept(monkeypatch):
     monkeypatch.setattr(fastcv, "many_lambdas", counted)
     bc, yj = tr.Transform("box_cox"), tr.Transform("yeo_johnson")
     items = [(bc, [0, 1]), (bc, [0, 1, 2]), (yj, [0, 1]), (bc, [0, 2, 3]), (bc, [0, 1])]
+    few = Scorer(scorer.bank, y, plan, False).all_rows_lambdas(items)
+    assert calls == []  # fewer designs than STACKED_LAMBDAS_MIN: one by one
+    monkeypatch.setattr(fastcv, "STACKED_LAMBDAS_MIN", 1)
     got = scorer.all_rows_lambdas(items)
+    # source: the one-design path (grid, then scipy.optimize.minimize_scalar bounded)
+    assert got == [pytest.approx(v, abs=1e-6) for v in few]
     assert sorted(calls) == [1, 3]  # one stack per family; the repeated design once
     for (t, cols), lam in zip(items, got, strict=True):
         # source: the one-design path (grid, then scipy.optimize.minimize_scalar bounded);
