@@ -215,7 +215,8 @@ def smear_power_many(
             else:
                 out[g, rest[g]] = exact_power(er, e[g], *form)
         gi, ji = np.nonzero(rest & pairs[:, None])
-        if gi.size and n >= 2 * PAIR_BIN:  # every group's etas left, by the binned series
+        if gi.size and n >= 2 * PAIR_BIN and gi.size * n >= BINNED_PAIRS_MIN_CELLS:
+            # every group's etas left, by the binned series (past its fixed cost)
             out[gi, ji] = _binned_pairs(gi, eta[gi, ji], e, beta, gamma, delta, p, zero)
             return out
         step = max(1, _MANY_CELLS // n)
@@ -232,6 +233,9 @@ def smear_power_many(
 
 
 PAIR_BIN = 16  # residuals per bin of the many-group binned path
+#: fewer (eta, residual) terms than this are summed exactly: the binned path's fixed cost
+#: (sorting, bins, moments) is then larger than the double sum
+BINNED_PAIRS_MIN_CELLS = 1 << 15  # break-even measured about 29,000 terms
 _PAIR_CELLS = 1 << 18  # (eta, bin, term) cells per block of that path (2 MB of floats)
 
 

@@ -414,3 +414,26 @@ def test_many_groups_binned_pairs_within_the_bound_of_the_double_sum(t, centre):
         ex = st.exact_power(eta[g], e[g], *st.power_form(tg))
         # source: the exact O(m n) sum of the module (same clip and count rules)
         np.testing.assert_allclose(got[g][ok], ex[ok], rtol=1e-11)
+
+
+@pytest.mark.parametrize("threshold", [0, 1 << 60], ids=["binned", "summed"])
+def test_many_groups_take_the_binned_or_summed_path_by_size_with_the_same_means(
+    monkeypatch, threshold
+):
+    """Whichever path ``smear_power_many`` takes for the etas the root series leaves (the
+    binned series past BINNED_PAIRS_MIN_CELLS terms, the double sum below), each mean is
+    within the stated bound of the mean written out."""
+    monkeypatch.setattr(st, "BINNED_PAIRS_MIN_CELLS", threshold)
+    rng = np.random.default_rng(zlib.crc32(b"pairs-by-size"))
+    ts = [tr.Transform("reciprocal"), tr.Transform("box_cox", lam=-0.3), tr.Transform("square")]
+    n, m = 118, 4
+    e = np.stack([_residuals(k, n, rng) for k in ("normal", "skewed", "heavy")])
+    eta = np.stack([c + rng.normal(0, 0.3, m) for c in (1.2, 0.6, 0.6)])
+    f = np.array([st.power_form(t) for t in ts], dtype=float)
+    got = st.smear_power_many(eta, e, f[:, 0], f[:, 1], f[:, 2], f[:, 3], f[:, 4] > 0)
+    for g, t in enumerate(ts):
+        want, tol = _plain_mean(t, eta[g], e[g])
+        ok = np.isfinite(want)
+        # source: Duan (1983) smearing written out (the double sum), within BIN_RTOL + rounding
+        assert np.array_equal(np.isnan(got[g]), np.isnan(want)), t
+        assert np.all(np.abs(got[g][ok] - want[ok]) <= tol[ok]), t
