@@ -45,6 +45,7 @@ from . import (  # noqa: E402,F401
     predictions,
     search,
     selection,
+    specs,
     transforms,
     trust,
 )

@@ -15,6 +15,8 @@ from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from sklearn.model_selection import KFold
 
+from tests.typed import predictors, responses, sent
+
 SEED = 3
 
 
@@ -38,11 +40,11 @@ def switched():
     cols = _columns()
     prep = prepare({"columns": cols}, "kwh", ["flow"])
     opts = SearchOptions(
-        response_transforms=["identity", "log"],
-        predictor_transforms=["identity", "log"],
+        response_transforms=responses(["identity", "log"]),
+        predictor_transforms=predictors(["identity", "log"]),
         top=1,
         seed=SEED,
-        incumbent=RAW,
+        incumbent=sent(RAW),
     )
     result = select(prep, opts, "test")
     return cols, result, result.body.incumbent, to_jsonable(result.body)["incumbent"]
