@@ -3,7 +3,7 @@ that depends on the family goes to ``FAMILIES[name]``."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, fields
 
 import numpy as np
 
@@ -136,23 +136,27 @@ class Transform:
         return self.family.log_jacobian(self, np.asarray(y, dtype=float))
 
 
+def _as_written(t: Transform, estimated: bool) -> Transform:
+    family = t.family
+    shown = {
+        p.held_in: getattr(t, p.held_in)
+        for p in family.parameters
+        if p.written(getattr(t, p.held_in))
+    }
+    return Transform(t.name, estimated=estimated, **shown)
+
+
 def written_alike(t: Transform) -> Transform:
     """``t`` as its object form shows it: each parameter the form leaves out (a log's shift
     of 0, an unset lambda) unset, and every field its family does not take unset.  Two
     transforms are written alike exactly when these are equal."""
-    shown = {
-        p.held_in: getattr(t, p.held_in)
-        for p in t.family.parameters
-        if p.written(getattr(t, p.held_in))
-    }
-    return Transform(t.name, estimated=t.estimated, **shown)
+    return _as_written(t, t.estimated)
 
 
 def read_back(t: Transform) -> Transform:
     """``t`` as its object form reads back: :func:`written_alike`, keeping the ``estimated``
     mark only where the family keeps it (a lambda or a log shift chosen from the data)."""
-    w = written_alike(t)
-    return w if w.family.keeps_estimated or not w.estimated else replace(w, estimated=False)
+    return _as_written(t, t.estimated and t.family.keeps_estimated)
 
 
 def ladder_transform(power: float) -> Transform:
