@@ -18,7 +18,7 @@ from ...core import transforms as tr
 from ...core.spec import PredictorSpec, Specification
 from ...core.transforms.family import Parameter
 from ..schemas import SpecificationIn
-from . import contract
+from .registry import contract
 
 
 @contract.register
