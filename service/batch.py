@@ -40,8 +40,9 @@ from threadpoolctl import threadpool_limits
 from .api.artifact import load_model
 from .api.encode import to_jsonable
 from .api.errors import group_problem, problem_object
-from .api.options import service
+from .api.options import sent_specification, service
 from .api.render import contract
+from .api.schemas import SpecificationIn
 from .batch_parquet import SegmentRef, SharedDirError, SharedParquet
 from .core.data import Prepared
 from .core.drift import compare
@@ -592,7 +593,8 @@ def run_job(
         # deadline of one HTTP request would fail every segment reached after it
         opts = replace(job.opts, deadline=None)
         if inc:
-            opts = replace(opts, incumbent=inc.specification)
+            sent = SpecificationIn.model_validate(inc.specification)
+            opts = replace(opts, incumbent=sent_specification(sent))
         tasks.append(Task(name, sub, opts, job.version, inc.loaded if inc else None))
     reused = len(records)
     if shared is not None and tasks:

@@ -7,6 +7,8 @@ from fastapi.testclient import TestClient
 from service.app import app
 from service.demo import demo_request
 
+from tests.typed import spec_dict
+
 EXAMPLES = Path(__file__).resolve().parents[1] / "openapi_examples"
 
 
@@ -70,7 +72,7 @@ def test_demo_rank_1_survives_single_row_drops():
         prep = prepare(
             {"columns": sub}, "repair_cost", ["pipe_length_m", "pipe_age_years", "soil"], ["soil"]
         )
-        spec = run_selection(prep, SearchOptions(), "t").ranking[0].specification.to_dict()
+        spec = spec_dict(run_selection(prep, SearchOptions(), "t").ranking[0].specification)
         assert spec["response"]["transform"] == {"name": "log"}
         assert [p["transform"]["name"] for p in spec["predictors"]] == [
             "log",

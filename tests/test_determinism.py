@@ -22,6 +22,8 @@ from service.selection.workers import process_mapper
 from service.settings import get_settings
 from threadpoolctl import threadpool_limits
 
+from tests.typed import predictors, responses
+
 ROOT = Path(__file__).resolve().parents[1]
 URL = "/v1/selections"
 _ELAPSED = re.compile(rb'"elapsed_s":[-0-9.eE+]+')
@@ -110,7 +112,9 @@ def test_result_does_not_depend_on_blas_threads():
         {"columns": demo_columns(3000)}, "repair_cost", ["pipe_length_m", "pipe_age_years", "soil"]
     )
     opts = SearchOptions(
-        response_transforms=["log", "box_cox"], predictor_transforms=["log"], top=2
+        response_transforms=responses(["log", "box_cox"]),
+        predictor_transforms=predictors(["log"]),
+        top=2,
     )
     out = []
     for threads in (1, 2):
@@ -140,8 +144,8 @@ def test_trust_is_the_same_in_one_process_and_in_two():
         ["pipe_length_m", "pipe_age_years", "soil"],
     )
     opts = SearchOptions(
-        response_transforms=["identity", "log", "sqrt"],
-        predictor_transforms=["identity", "log"],
+        response_transforms=responses(["identity", "log", "sqrt"]),
+        predictor_transforms=predictors(["identity", "log"]),
         top=1,
         seed=4,
     )

@@ -25,6 +25,7 @@ from ..core.errors import InputError, ModelField
 from ..core.model import FORMAT_VERSION, MAX_STORED_RESIDUALS, Model
 from ..core.spec import Levels, PredictorSpec, Specification, term_names
 from .render.model import SIGNATURE_ALGORITHM, checksum, signature_value
+from .render.specs import transform_of
 
 KNOWN_FORMAT_VERSIONS = (FORMAT_VERSION,)
 MODEL = ModelField()  # the artifact itself: errors name its fields with MODEL.at(...)
@@ -170,7 +171,7 @@ def _transform(d: object, ptr: ModelField, role: str) -> tr.Transform:
             ptr.at("shift"),
             f"the log 'shift' must be a number within [-{SHIFT_BOUND:g}, {SHIFT_BOUND:g}]",
         )
-    t = tr.from_dict(d)
+    t = transform_of(d)
     if t.name == "log" and t.shift is None:
         # issued artifacts omit a zero shift; a fitted log without one is log(x + 0)
         t = tr.Transform("log", shift=0.0, estimated=t.estimated)

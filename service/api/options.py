@@ -31,17 +31,33 @@ from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
+from ..core import transforms as tr
 from ..core.data import shown
 from ..core.errors import InputError, Location, Option, PredictorChoice, Predictors, Table
 from ..selection.deadline import Deadline
 from ..selection.request import SelectionJob, Service, TableColumns, TrustOptions
-from ..selection.search_setup import SearchOptions
+from ..selection.search_setup import (
+    PredictorChoices,
+    SearchOptions,
+    SentSpecification,
+    TransformChoice,
+)
 from ..settings import get_settings
 from ..version import __version__
 from .errors import ProblemError
 from .intake import MAX_NAME_CHARS, table_shape
 from .pointers import RequestField
-from .schemas import DiagnosticsRequest, PredictionRequest, SelectionRequest, transform_items
+from .render.specs import specification_of, transform_of
+from .schemas import (
+    DiagnosticsRequest,
+    PredictionRequest,
+    SelectionRequest,
+    SpecificationIn,
+    TransformIn,
+)
+from .schemas import (
+    TransformChoice as TransformSent,
+)
 
 #: where an uploaded file's problems point
 UPLOADED_FILE = RequestField("/file")
@@ -220,6 +236,46 @@ def check_predictor_choices(req: SelectionRequest) -> None:
                 raise InputError.at(PredictorChoice(col), f"'{col}' is not one of the predictors")
 
 
+# ---------------------------------------------------------------- sent transforms, typed
+
+
+def transform_choice(item: TransformSent) -> TransformChoice:
+    """One transform a request lists for the search: a name or a transform object."""
+    if isinstance(item, TransformIn):
+        return TransformChoice(transform_of(item.as_dict()), auto_shift=item.shift == "auto")
+    if item == "power":
+        return TransformChoice(tr.Transform("power"), ladder=True)
+    return TransformChoice(tr.Transform(item))
+
+
+def response_choices(items: list[TransformSent] | None) -> tuple[TransformChoice, ...] | None:
+    """``transforms.response``, typed (None: the default list)."""
+    return None if items is None else tuple(map(transform_choice, items))
+
+
+def predictor_choices(
+    items: list[TransformSent] | dict[str, list[TransformSent]] | None,
+) -> PredictorChoices | None:
+    """``transforms.predictors``, typed: one list for all, or a list per column."""
+    if isinstance(items, dict):
+        return {col: tuple(map(transform_choice, its)) for col, its in items.items()}
+    return response_choices(items)
+
+
+def sent_specification(s: SpecificationIn) -> SentSpecification:
+    """A specification a request sends (an incumbent, one to diagnose), typed; the logs
+    sent with ``"shift": "auto"`` are marked, and the request's own form is kept to be
+    shown back."""
+    return SentSpecification(
+        specification_of(s.as_dict()),
+        response_auto_shift=s.response.transform.shift == "auto",
+        predictors_auto_shift=frozenset(
+            i for i, p in enumerate(s.predictors) if p.transform.shift == "auto"
+        ),
+        as_sent=s,
+    )
+
+
 Stop = Callable[[], bool]
 
 
@@ -238,8 +294,8 @@ def _search_options(
     max_candidates = check_candidates(req.limits.max_candidates)
     req.validation.check_scheme()
     return SearchOptions(
-        response_transforms=transform_items(req.transforms.response),
-        predictor_transforms=transform_items(req.transforms.predictors),
+        response_transforms=response_choices(req.transforms.response),
+        predictor_transforms=predictor_choices(req.transforms.predictors),
         folds=req.validation.folds,
         repeats=req.validation.repeats,
         seed=req.validation.seed,
@@ -252,7 +308,7 @@ def _search_options(
         intercept=req.intercept,
         units=dict(req.units),
         strategy=req.strategy,
-        incumbent=req.incumbent.as_dict() if req.incumbent is not None else None,
+        incumbent=sent_specification(req.incumbent) if req.incumbent is not None else None,
         deadline=deadline if deadline is not None else Deadline.after(tl),
         stop=stop,
     )
@@ -296,7 +352,7 @@ class DiagnosticsJob:
     """One specification to diagnose (POST /v1/diagnostics)."""
 
     table: TableColumns
-    specification: dict[str, Any]
+    specification: SentSpecification
     search: SearchOptions
     max_points: int
 
@@ -304,15 +360,16 @@ class DiagnosticsJob:
 def diagnostics_job(req: DiagnosticsRequest) -> DiagnosticsJob:
     """The diagnostics request as options, with the limits every table endpoint applies
     (rows, columns of the table and names, columns used)."""
-    spec = req.specification.as_dict()
-    predictors = tuple(p["column"] for p in spec["predictors"])
+    sent = sent_specification(req.specification)
+    spec = sent.spec
+    predictors = tuple(p.column for p in spec.predictors)
     categorical = list(req.categorical) + [
-        p["column"] for p in spec["predictors"] if p["transform"]["name"] == "categorical"
+        p.column for p in spec.predictors if p.transform.name == "categorical"
     ]
     req.validation.check_scheme()
     table = TableColumns(
         req.data.as_dict(),
-        spec["response"]["column"],
+        spec.response,
         predictors,
         tuple(sorted(set(categorical))),
         req.order,
@@ -328,7 +385,7 @@ def diagnostics_job(req: DiagnosticsRequest) -> DiagnosticsJob:
         alpha=req.alpha,
         units=dict(req.units),
     )
-    return DiagnosticsJob(table, spec, opts, req.max_points)
+    return DiagnosticsJob(table, sent, opts, req.max_points)
 
 
 @dataclass(frozen=True, slots=True)

@@ -8,7 +8,7 @@ need the table (a column exists, a value is positive) are the core's.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Annotated, Any, Literal, overload
+from typing import TYPE_CHECKING, Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
@@ -460,18 +460,3 @@ class PredictionRequest(BaseModel):
         "interval from the out-of-fold residuals stored in the model (no normality needed). "
         "Left out: cv_plus when normality fails on the model's entry, else normal",
     )
-
-
-@overload
-def transform_items(items: None) -> None: ...
-@overload
-def transform_items(items: list[Any]) -> list[Any]: ...
-@overload
-def transform_items(items: dict[str, Any]) -> dict[str, Any]: ...
-def transform_items(items: list[Any] | dict[str, Any] | None) -> list | dict | None:
-    """TransformsIn lists as plain names / dicts for the core."""
-    if items is None:
-        return None
-    if isinstance(items, dict):
-        return {k: transform_items(v) for k, v in items.items()}
-    return [i if isinstance(i, str) else i.as_dict() for i in items]

@@ -11,6 +11,5 @@ from numpy.typing import NDArray
 FloatArray: TypeAlias = NDArray[np.float64]
 BoolArray: TypeAlias = NDArray[np.bool_]
 AnyArray: TypeAlias = NDArray[Any]
-TransformItem: TypeAlias = str | dict[str, Any]  # a transform as the request names it
 # mapper(fn, items): the results of fn over items in order (builtin map or a process pool)
 Mapper: TypeAlias = Callable[[Callable[[Any], Any], Iterable[Any]], Iterable[Any]]

@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from functools import lru_cache
-from typing import Any, TypeAlias
+from typing import TypeAlias
 
 import numpy as np
 
@@ -31,24 +31,6 @@ class Specification:
     predictors: tuple[PredictorSpec, ...]
     intercept: bool = True
 
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "response": {"column": self.response, "transform": self.response_transform.to_dict()},
-            "predictors": [
-                {"column": p.column, "transform": p.transform.to_dict()} for p in self.predictors
-            ],
-            "intercept": self.intercept,
-        }
-
-    @classmethod
-    def from_dict(cls, d: dict[str, Any]) -> Specification:
-        return cls(
-            d["response"]["column"],
-            _transform_of(d["response"]),
-            tuple(PredictorSpec(p["column"], _transform_of(p)) for p in d["predictors"]),
-            bool(d.get("intercept", True)),
-        )
-
     @property
     def key(self) -> SpecKey:
         return (
@@ -72,6 +54,17 @@ class Specification:
     def response_label(self) -> str:
         return self.response_transform.label(self.response)
 
+    def written_alike(self) -> Specification:
+        """The specification as its object form shows it (each transform
+        :func:`~.transforms.written_alike`): two specifications are written alike exactly
+        when these are equal."""
+        return Specification(
+            self.response,
+            tr.written_alike(self.response_transform),
+            tuple(PredictorSpec(p.column, tr.written_alike(p.transform)) for p in self.predictors),
+            self.intercept,
+        )
+
 
 @lru_cache(maxsize=1 << 14)
 def _simplicity(key: SpecKey) -> tuple[int, int, int]:
@@ -90,13 +83,6 @@ def _simplicity(key: SpecKey) -> tuple[int, int, int]:
 def _estimated_power(t: tr.Transform) -> bool:
     """A predictor power estimated from the data (open, or fitted and marked estimated)."""
     return t.estimated and (t.name == "power" or (t.name == "log" and t.shift == 0.0))
-
-
-def _transform_of(part: dict[str, Any]) -> tr.Transform:
-    """The transform of a specification's response or predictor object (identity when it
-    names none)."""
-    sent = part.get("transform")
-    return tr.from_dict(sent) if sent else tr.Transform("identity")
 
 
 @dataclass

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import hashlib
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -27,7 +27,7 @@ import numpy as np
 
 from ..core import boxtidwell as bt
 from ..core import transforms as tr
-from ..core._types import FloatArray, TransformItem
+from ..core._types import FloatArray
 from ..core.bank import ColumnBank, FoldIndex
 from ..core.data import Prepared
 from ..core.errors import (
@@ -43,6 +43,7 @@ from ..core.likelihood import fit_transform
 from ..core.numbers import count_of, rows_named
 from ..core.spec import PredictorSpec, Specification, categorical_levels, term_label
 from .deadline import Deadline
+from .search_setup import PredictorChoices, TransformChoice
 
 DEFAULT_RESPONSE = ("identity", "log", "sqrt", "reciprocal", "square", "box_cox", "yeo_johnson")
 DEFAULT_PREDICTOR = ("identity", "log", "sqrt", "reciprocal", "square")
@@ -51,25 +52,16 @@ BT_SCREEN_ROWS = 50_000  # the screening power estimates use at most this many r
 MIN_DISTINCT_FOR_POWER = 5
 
 
-def _as_transform(item: TransformItem) -> tr.Transform:
-    if isinstance(item, str):
-        return tr.from_dict({"name": item})
-    if isinstance(item, dict) and item.get("name") == "power" and item.get("exponent") is None:
-        return bt.ESTIMATED
-    return tr.from_dict(item)
-
-
-def _expand_name(item: TransformItem, role: str) -> list[tr.Transform]:
-    """A bare name 'power' means the ladder rungs not covered by other names (and, for a
-    predictor, the power estimated from the data)."""
-    if isinstance(item, str) and item == "power":
+def _expand(choice: TransformChoice, role: str) -> list[tr.Transform]:
+    """The transforms a listed choice stands for: the bare name power means the ladder rungs
+    not covered by other names (and, for a predictor, the power estimated from the data); a
+    power without an exponent the estimated power."""
+    if choice.ladder:
         rungs = [tr.Transform("power", exponent=-0.5), tr.Transform("power", exponent=1.0 / 3.0)]
         return rungs + ([bt.ESTIMATED] if role == "predictor" else [])
-    return [_as_transform(item)]
-
-
-def _asks_auto_shift(item: object) -> bool:
-    return isinstance(item, dict) and item.get("shift") == "auto"
+    if bt.is_open(choice.transform):
+        return [bt.ESTIMATED]
+    return [choice.transform]
 
 
 def check_explicit(
@@ -79,17 +71,18 @@ def check_explicit(
     column: str,
     role: str,
     where: Location,
-    item: object,
+    auto_shift: bool = False,
 ) -> None:
     """An explicitly requested transform is applied as asked or refused (422), never changed.
 
     The problem points first at the first row whose value the transform cannot take,
-    then at the transform; its detail lists the fixes.  A log with ``"shift": "auto"``
-    may add a shift chosen from the data (reported in the specification).
+    then at the transform; its detail lists the fixes.  A log whose shift was left to the
+    service (``auto_shift``) may add a shift chosen from the data (reported in the
+    specification).
     """
     if t.name == "power" and t.exponent is None:
         return
-    as_sent = not _asks_auto_shift(item)
+    as_sent = not auto_shift
     bad = np.flatnonzero(~t.domain_mask(x, as_sent=as_sent))
     if bad.size == 0:
         return
@@ -110,15 +103,19 @@ def check_explicit(
     )
 
 
+def _defaults(names: tuple[str, ...]) -> tuple[TransformChoice, ...]:
+    return tuple(TransformChoice(tr.Transform(name)) for name in names)
+
+
 def response_candidates(
-    prep: Prepared, response_transforms: list[TransformItem] | None
+    prep: Prepared, response_transforms: tuple[TransformChoice, ...] | None
 ) -> list[tr.Transform]:
     y = prep.y
     explicit = response_transforms is not None
-    items = response_transforms if response_transforms is not None else list(DEFAULT_RESPONSE)
+    items = response_transforms if response_transforms is not None else _defaults(DEFAULT_RESPONSE)
     out: list[tr.Transform] = []
     for i, item in enumerate(items):
-        for t in _expand_name(item, "response"):
+        for t in _expand(item, "response"):
             if t.name == "categorical":
                 raise InputError.at(ResponseChoice(i), "the response cannot be categorical")
             if bt.is_open(t):
@@ -134,7 +131,7 @@ def response_candidates(
                     prep.response,
                     "response",
                     ResponseChoice(i),
-                    item,
+                    item.auto_shift,
                 )
             msg = t.domain_problem(y, prep.response, "response")
             if msg:
@@ -157,7 +154,7 @@ def _power_applies(x: np.ndarray) -> bool:
 
 def predictor_candidates(
     prep: Prepared,
-    predictor_transforms: list[TransformItem] | dict[str, list[TransformItem]] | None,
+    predictor_transforms: PredictorChoices | None,
 ) -> list[list[tr.Transform]]:
     spec = predictor_transforms
     per: list[list[tr.Transform]] = []
@@ -167,20 +164,24 @@ def predictor_candidates(
             continue
         x = prep.numeric[col]
         listed_for: str | None  # whose list of transforms (None: the one shared by all)
-        if isinstance(spec, dict) and col in spec:
-            items, explicit, listed_for = spec[col], True, col
-        elif isinstance(spec, list):
+        items: tuple[TransformChoice, ...]
+        if isinstance(spec, Mapping):
+            if col in spec:
+                items, explicit, listed_for = spec[col], True, col
+            else:
+                items, explicit, listed_for = _defaults(DEFAULT_PREDICTOR), False, None
+        elif spec is not None:
             items, explicit, listed_for = spec, False, None
         else:
-            items, explicit, listed_for = list(DEFAULT_PREDICTOR), False, None
+            items, explicit, listed_for = _defaults(DEFAULT_PREDICTOR), False, None
         lst: list[tr.Transform] = []
         for i, item in enumerate(items):
-            for t in _expand_name(item, "predictor"):
+            for t in _expand(item, "predictor"):
                 if bt.is_open(t):
                     if _power_applies(x):
                         if not any(bt.is_open(u) for u in lst):
                             lst.append(t)
-                    elif explicit and isinstance(item, dict):
+                    elif explicit and not item.ladder:
                         raise InputError.at(
                             PredictorChoice(listed_for, i),
                             f"an estimated power of '{col}' needs "
@@ -202,7 +203,13 @@ def predictor_candidates(
                     )
                 if explicit:
                     check_explicit(
-                        prep, t, x, col, "predictor", PredictorChoice(listed_for, i), item
+                        prep,
+                        t,
+                        x,
+                        col,
+                        "predictor",
+                        PredictorChoice(listed_for, i),
+                        item.auto_shift,
                     )
                 msg = t.domain_problem(x, col, "predictor")
                 if msg:

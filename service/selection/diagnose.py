@@ -4,7 +4,6 @@ entry (conditions, interpretation, model) and plot data, without any search."""
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Any
 
 from ..core import transforms as tr
 from ..core.condition_rules import failed
@@ -14,7 +13,6 @@ from ..core.errors import CandidateFailure, InputError, ModelFailure, SpecField
 from ..core.folds import make_plan
 from ..core.plots import DiagnosticPlots
 from ..core.spec import (
-    Specification,
     build_design,
     needs_explicit_lambda,
     resolve_predictor_transforms,
@@ -23,7 +21,7 @@ from .candidates import check_explicit
 from .entries import ConditionCount, EntryReport, ScoreParts, entry_for
 from .plots import PLOT_MAX_POINTS, fit_plots
 from .search import simplicity_parts
-from .search_setup import SearchOptions, check_rows
+from .search_setup import SearchOptions, SentSpecification, check_rows
 
 #: the score parts' rule of a specification diagnosed alone
 SINGLE_RULE = "a single specification as sent; nothing was ranked"
@@ -31,7 +29,7 @@ SINGLE_RULE = "a single specification as sent; nothing was ranked"
 
 def diagnose_specification(
     prep: Prepared,
-    spec_dict: dict[str, Any],
+    sent: SentSpecification,
     opts: SearchOptions,
     service_version: str,
     max_points: int = PLOT_MAX_POINTS,
@@ -41,7 +39,7 @@ def diagnose_specification(
     Domain problems are :class:`InputError` naming a field of the specification (:class:`SpecField`); a
     specification that cannot be fitted or cross-validated is a :class:`ModelFailure`.
     """
-    spec = Specification.from_dict(spec_dict)
+    spec = sent.spec
     rt = spec.response_transform
     check_explicit(
         prep,
@@ -50,7 +48,7 @@ def diagnose_specification(
         prep.response,
         "response",
         SpecField.response("transform"),
-        spec_dict["response"].get("transform"),
+        sent.response_auto_shift,
     )
     msg = rt.domain_problem(prep.y, prep.response, "response")
     if msg:
@@ -74,7 +72,7 @@ def diagnose_specification(
                 p.column,
                 "predictor",
                 SpecField.of_predictor(i, "transform"),
-                spec_dict["predictors"][i].get("transform"),
+                i in sent.predictors_auto_shift,
             )
             msg = p.transform.domain_problem(prep.numeric[p.column], p.column, "predictor")
             if msg:

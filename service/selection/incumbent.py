@@ -16,7 +16,7 @@ writes its contract form.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Literal
+from typing import Literal
 
 import numpy as np
 
@@ -34,21 +34,22 @@ from .entries import EntryReport
 
 
 def incumbent_spec(
-    d: dict[str, Any],
+    sent: Specification,
     prep: Prepared,
     request_predictors: list[str],
     table_columns: set[str] | None = None,
 ) -> tuple[Specification | None, str | None]:
-    """Build the incumbent on this run's rows: (spec, None) or (None, why it cannot be fitted)."""
-    if d["response"]["column"] != prep.response:
+    """Build the incumbent ``sent`` by the request on this run's rows: (spec, None) or
+    (None, why it cannot be fitted)."""
+    if sent.response != prep.response:
         raise InputError.at(
             SpecField.response("column"),
-            f"the incumbent models '{d['response']['column']}' but this request's "
+            f"the incumbent models '{sent.response}' but this request's "
             f"response is '{prep.response}'",
         )
     preds = []
-    for i, p in enumerate(d["predictors"]):
-        col = p["column"]
+    for i, p in enumerate(sent.predictors):
+        col = p.column
         if col not in request_predictors:
             if table_columns is not None and col not in table_columns:
                 return None, f"the incumbent uses '{col}', which is not in this data"
@@ -57,15 +58,14 @@ def incumbent_spec(
                 f"the incumbent uses '{col}'; add it to 'predictors' so both are "
                 "scored on the same rows",
             )
-        t = tr.from_dict(p["transform"]) if p.get("transform") else tr.Transform("identity")
+        t = p.transform
         if col in prep.categorical and t.name != "categorical":
             t = tr.Transform("categorical")
         elif col in prep.numeric and t.name == "categorical":
             return None, f"the incumbent treats '{col}' as categorical but it is numeric here"
         preds.append(PredictorSpec(col, t))
-    sent = d["response"].get("transform")
-    rt = tr.from_dict(sent) if sent else tr.Transform("identity")
-    spec = Specification(prep.response, rt, tuple(preds), bool(d.get("intercept", True)))
+    rt = sent.response_transform
+    spec = Specification(prep.response, rt, tuple(preds), sent.intercept)
     msg = rt.domain_problem(prep.y, prep.response, "response")
     if msg:
         return None, msg
@@ -105,12 +105,12 @@ class PairedDifference:
 @dataclass(frozen=True)
 class IncumbentDecision:
     """Keep or switch, with the sentence that says why.  ``spec`` is the incumbent as built
-    on this run's rows (None when it could not be; then ``as_sent`` is the request's own
-    specification); ``rank`` its place in this run's ranking; ``cv`` its cross-validated
+    on this run's rows (None when it could not be; then ``as_sent``, the request's own
+    specification in the form the web layer shows back, stands for it); ``rank`` its place in this run's ranking; ``cv`` its cross-validated
     error (None, like ``difference``, when it could not be scored)."""
 
     spec: Specification | None
-    as_sent: dict[str, Any] | None
+    as_sent: object
     rank: int | None
     cv: CVReport | None
     difference: PairedDifference | None
@@ -127,7 +127,7 @@ def decide(
     winner_folds: np.ndarray,
     plan: CVPlan,
     inc_conditions: ConditionReport | None = None,
-    request_spec: dict[str, Any] | None = None,
+    request_spec: object = None,
 ) -> IncumbentDecision:
     """Keep the incumbent or switch to rank 1 (``winner_entry``, whose fold errors are
     ``winner_folds``), by the rule of this module."""
@@ -142,7 +142,7 @@ def decide(
             f"The incumbent cannot be fitted on this data: "
             f"{reason}; switch to rank 1 ({winner_entry.equation}).",
         )
-    same = winner_entry.specification.to_dict() == inc_spec.to_dict() or rank == 1
+    same = winner_entry.specification.written_alike() == inc_spec.written_alike() or rank == 1
     # the same specification on the same folds differs by exactly 0; the two scoring paths
     # (search and incumbent refit) agree only to rounding, so the rounding is not reported
     d = np.zeros_like(inc_cv.fold_values) if same else winner_folds - inc_cv.fold_values

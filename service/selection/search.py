@@ -746,7 +746,7 @@ def _incumbent(
 ) -> incumbent.IncumbentDecision:
     assert opts.incumbent is not None  # called only for a request with an incumbent
     spec, why = incumbent.incumbent_spec(
-        opts.incumbent, prep, prep.predictors, set(prep.table_columns)
+        opts.incumbent.spec, prep, prep.predictors, set(prep.table_columns)
     )
     inc_cv = None
     conditions = None
@@ -780,7 +780,7 @@ def _incumbent(
         winner.cv.fold_values,
         plan,
         conditions,
-        opts.incumbent,
+        opts.incumbent.as_sent,
     )
 
 

@@ -5,12 +5,13 @@ table can carry the requested cross-validation (:func:`check_rows`)."""
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, TypeAlias
 
 import numpy as np
 
+from ..core import transforms as tr
 from ..core.conditions import DEFAULT_ALPHA
 from ..core.cvresult import CVResult
 from ..core.data import Prepared
@@ -32,11 +33,47 @@ from .defaults import (
 
 
 @dataclass(frozen=True)
+class TransformChoice:
+    """A transform a request lists for the search (the web layer types it).
+
+    ``transform``: the transform (a power without an exponent asks for the power estimated
+    from the data); ``auto_shift``: a log sent with a shift left to the service, which may
+    then add one for zeros (any other listed transform is used exactly as sent);
+    ``ladder``: the bare name power, the ladder rungs -1/2 and 1/3 (and for a predictor the
+    estimated power, left out quietly where it does not apply).
+    """
+
+    transform: tr.Transform
+    auto_shift: bool = False
+    ladder: bool = False
+
+
+#: the transforms listed for the predictors: one list for all, or a list per column
+PredictorChoices: TypeAlias = (
+    tuple[TransformChoice, ...] | Mapping[str, tuple[TransformChoice, ...]]
+)
+
+
+@dataclass(frozen=True)
+class SentSpecification:
+    """A specification a request sends (an incumbent, one to diagnose), typed by the web
+    layer: ``spec`` as sent (identity where it names no transform);
+    ``response_auto_shift`` / ``predictors_auto_shift`` (predictor positions): the logs
+    sent with a shift left to the service; ``as_sent``: the request's own form, shown back
+    where the specification cannot be built (the web layer renders it)."""
+
+    spec: Specification
+    response_auto_shift: bool = False
+    predictors_auto_shift: frozenset[int] = frozenset()
+    as_sent: object = None
+
+
+@dataclass(frozen=True)
 class SearchOptions:
     """What a search is given; frozen (``dataclasses.replace`` makes a changed copy)."""
 
-    response_transforms: list[Any] | None = None  # names or contract Transform dicts
-    predictor_transforms: list[Any] | dict[str, Any] | None = None
+    response_transforms: tuple[TransformChoice, ...] | None = None  # None: the default list
+    predictor_transforms: PredictorChoices | None = None
     folds: int = DEFAULT_FOLDS
     repeats: int = DEFAULT_REPEATS
     seed: int = DEFAULT_SEED
@@ -47,7 +84,7 @@ class SearchOptions:
     time_limit_s: float = DEFAULT_TIME_LIMIT_S
     intercept: bool = True
     units: dict[str, Any] = field(default_factory=dict)
-    incumbent: dict[str, Any] | None = None  # contract Specification in use
+    incumbent: SentSpecification | None = None  # the specification in use
     # auto: exhaustive up to EXHAUSTIVE_LIMIT candidates, else screened
     strategy: str = DEFAULT_STRATEGY
     scheme: str = DEFAULT_SCHEME  # CV folds: "random" K-fold or "blocked" (contiguous in order)

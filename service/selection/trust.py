@@ -255,9 +255,9 @@ ScaleKey: TypeAlias = tuple[str, tr.Transform, tuple[tuple[str, tr.Transform | s
 
 
 def _as_written(t: tr.Transform) -> tr.Transform:
-    """``t`` as its contract form reads it back (a log's shift of 0 and an unset shift are
+    """``t`` as its object form reads it back (a log's shift of 0 and an unset shift are
     both written as a plain log): transforms that are written alike are one candidate."""
-    return tr.from_dict(t.to_dict())
+    return tr.read_back(t)
 
 
 def _open_response(t: tr.Transform) -> tr.Transform:

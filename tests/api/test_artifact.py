@@ -16,6 +16,7 @@ from service.core import model as m
 from service.core.errors import InputError, Location
 
 from tests.core.test_predict import issue
+from tests.typed import predictors, responses
 
 
 @pytest.fixture
@@ -126,7 +127,9 @@ def selected():
     cols = {"minutes": minutes.tolist(), "pallets": pallets.tolist(), "dock": dock.tolist()}
     prep = prepare({"columns": cols}, "minutes", ["pallets", "dock"], ["dock"])
     opts = SearchOptions(
-        response_transforms=["identity", "log"], predictor_transforms=["identity", "log"], top=1
+        response_transforms=responses(["identity", "log"]),
+        predictor_transforms=predictors(["identity", "log"]),
+        top=1,
     )
     typed = select(prep, opts, "test").body.ranking[0].model
     assert isinstance(typed, m.Model)

@@ -29,11 +29,15 @@ from service.api.schemas import (
     DiagnosticsRequest,
     PredictionRequest,
     SelectionRequest,
+    SpecificationIn,
+    TransformsIn,
     ValidationIn,
 )
+from service.core import transforms as tr
 from service.core.conditions import DEFAULT_ALPHA
 from service.core.errors import InputError, Predictors, Table
 from service.core.folds import DEFAULT_SEED
+from service.core.spec import PredictorSpec, Specification
 from service.selection import search_setup as ss
 from service.selection.request import run_selection
 from service.settings import Settings, get_settings
@@ -246,7 +250,11 @@ def test_a_selection_job_is_frozen_and_carries_the_request_and_one_deadline():
     job = o.selection_job(req)
     opts = job.search
     assert (opts.folds, opts.seed, opts.alpha, opts.top) == (4, 3, 0.01, 2)
-    assert opts.response_transforms == ["identity", "log"] and opts.time_limit_s == 20
+    assert opts.response_transforms == (
+        ss.TransformChoice(tr.Transform("identity")),
+        ss.TransformChoice(tr.Transform("log")),
+    )
+    assert opts.time_limit_s == 20
     assert opts.deadline is not None and opts.deadline.limit_s == 20
     assert opts.clock() is opts.deadline  # every part of the request asks the same clock
     assert job.table.predictors == ("length_km", "traffic") and job.table.categorical == (
@@ -291,6 +299,14 @@ def test_diagnostics_and_predictions_become_options_with_the_table_limits(limits
         ("b",),
     )
     assert job.max_points == 2000 and job.search.alpha == DEFAULT_ALPHA
+    assert job.specification.spec == Specification(
+        "y",
+        tr.Transform("identity"),
+        (
+            PredictorSpec("a", tr.Transform("identity")),
+            PredictorSpec("b", tr.Transform("categorical")),
+        ),
+    )
     three = {**spec, "predictors": [*spec["predictors"], {"column": "c"}]}
     wide = DiagnosticsRequest.model_validate(
         {"data": {"columns": {**cols, "c": [1.0] * 12}}, "specification": three}
@@ -300,6 +316,64 @@ def test_diagnostics_and_predictions_become_options_with_the_table_limits(limits
     assert o.prediction_job(pred).data["columns"] == cols
     long = PredictionRequest.model_validate({"model": {}, "data": {"columns": {"a": [1.0] * 13}}})
     assert _refused(o.prediction_job, long)[0] == "/data"
+
+
+def test_listed_transforms_arrive_typed_with_how_they_were_named():
+    req = TransformsIn.model_validate(
+        {
+            "response": ["log", "power", {"name": "box_cox", "lambda": 0.25}],
+            "predictors": {
+                "x": [{"name": "log", "shift": "auto"}, {"name": "log", "shift": 2}, "power"],
+                "z": [{"name": "power"}, {"name": "power", "exponent": 0.5}],
+            },
+        }
+    )
+    assert o.response_choices(req.response) == (
+        ss.TransformChoice(tr.Transform("log")),
+        ss.TransformChoice(tr.Transform("power"), ladder=True),
+        ss.TransformChoice(tr.Transform("box_cox", lam=0.25)),
+    )
+    assert o.predictor_choices(req.predictors) == {
+        "x": (
+            ss.TransformChoice(tr.Transform("log"), auto_shift=True),
+            ss.TransformChoice(tr.Transform("log", shift=2.0)),
+            ss.TransformChoice(tr.Transform("power"), ladder=True),
+        ),
+        # an object without an exponent asks for the estimated power (not the ladder)
+        "z": (
+            ss.TransformChoice(tr.Transform("power")),
+            ss.TransformChoice(tr.Transform("power", exponent=0.5)),
+        ),
+    }
+    assert o.response_choices(None) is None and o.predictor_choices(None) is None
+    assert o.predictor_choices(["sqrt"]) == (ss.TransformChoice(tr.Transform("sqrt")),)
+
+
+def test_a_sent_specification_is_typed_and_keeps_the_request_s_own_form():
+    sent = SpecificationIn.model_validate(
+        {
+            "response": {"column": "y", "transform": {"name": "log", "shift": "auto"}},
+            "predictors": [
+                {"column": "a", "transform": {"name": "box_cox", "lambda": 0.0004}},
+                {"column": "b", "transform": {"name": "log", "shift": "auto"}},
+                {"column": "c"},
+            ],
+            "intercept": False,
+        }
+    )
+    typed = o.sent_specification(sent)
+    assert typed.spec == Specification(
+        "y",
+        tr.Transform("log"),
+        (
+            PredictorSpec("a", tr.Transform("box_cox", lam=0.0)),  # read as the log's limit
+            PredictorSpec("b", tr.Transform("log")),
+            PredictorSpec("c", tr.Transform("identity")),
+        ),
+        False,
+    )
+    assert typed.response_auto_shift and typed.predictors_auto_shift == frozenset({1})
+    assert typed.as_sent is sent  # shown back as sent where it cannot be built
 
 
 def test_in_process_answer_equals_the_http_answer():

@@ -17,8 +17,10 @@ from service.app import create_app
 from service.core import retransform
 from service.core.data import prepare
 from service.core.model import build_model
-from service.core.spec import Specification, build_design
+from service.core.spec import build_design
 from service.selection.entries import fitted_model
+
+from tests.typed import spec_of
 
 
 def _paths(app) -> set[str]:
@@ -96,7 +98,7 @@ def test_round_trip_every_ranked_model(client, trees, selection):
         assert not any("extrapolation" in c for c in body["cautions"])
         transformed = entry["specification"]["response"]["transform"]["name"] != "identity"
         assert any("median" in c for c in body["cautions"]) == transformed
-        spec = Specification.from_dict(entry["specification"])
+        spec = spec_of(entry["specification"])
         concrete, _design, fit, _ = fitted_model(spec, prep)
         t = concrete.response_transform
         # independent model-scale fit: statsmodels OLS on the service's design columns
@@ -133,7 +135,7 @@ def log_model():
     food = np.exp(0.5 + 0.85 * np.log(income) + (site == "south") * 0.1 + rng.normal(0, 0.1, 80))
     data = {"food": food.tolist(), "income": income.tolist(), "site": site.tolist()}
     prep = prepare({"columns": data}, "food", ["income", "site"])
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "food", "transform": {"name": "log"}},
             "predictors": [

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 from pydantic import ValidationError
-from service.api.schemas import SelectionRequest, SpecificationIn, TransformIn, transform_items
+from service.api.schemas import SelectionRequest, SpecificationIn, TransformIn
 
 EXAMPLES = Path(__file__).resolve().parents[2] / "openapi_examples"
 BASE = {
@@ -69,13 +69,6 @@ def test_transform_parameters():
         }
     )
     assert spec.as_dict()["predictors"][0]["transform"] == {"name": "power", "exponent": 0.5}
-
-
-def test_transform_items_turn_models_into_plain_values():
-    assert transform_items(None) is None
-    items = transform_items(["log", TransformIn.model_validate({"name": "box_cox", "lambda": 1.0})])
-    assert items == ["log", {"name": "box_cox", "lambda": 1.0}]
-    assert transform_items({"x": ["sqrt"]}) == {"x": ["sqrt"]}
 
 
 @pytest.mark.parametrize(

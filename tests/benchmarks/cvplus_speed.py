@@ -32,6 +32,7 @@ from service.core.data import prepare
 from service.core.predict import new_design
 from service.selection.diagnose import diagnose_specification
 from service.selection.search_setup import SearchOptions
+from tests.typed import sent
 
 PREDICTORS = ["x0", "x1", "x2"]
 
@@ -44,7 +45,7 @@ def model_for(response: dict, n: int, folds: int):
         "predictors": [{"column": c, "transform": {"name": "log"}} for c in PREDICTORS],
     }
     opts = SearchOptions(folds=folds)
-    entry, _ = diagnose_specification(prep, spec, opts, "bench", max_points=10)
+    entry, _ = diagnose_specification(prep, sent(spec), opts, "bench", max_points=10)
     return load_model(to_jsonable(entry.model))  # the artifact as issued, read back
 
 

@@ -40,10 +40,10 @@ import numpy as np
 from _common import machine, pin_blas
 from service.api.render import contract
 from service.core.data import prepare
-from service.core.spec import Specification
 from service.demo import demo_request
 from service.report import figures as svg_route
 from service.selection.plots import report_plots, specification_plots
+from tests.typed import spec_of
 
 
 def _baseline(rev: str) -> types.ModuleType:
@@ -107,7 +107,7 @@ def _large_plots(max_points: int):
     prep = prepare(
         {"columns": {"y": y.tolist(), "x1": x1.tolist(), "x2": x2.tolist()}}, "y", ["x1", "x2"]
     )
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "y", "transform": {"name": "log"}},
             "predictors": [

@@ -25,6 +25,7 @@ from service.api.encode import to_jsonable
 from service.core.data import prepare
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
+from tests.typed import predictors, responses
 
 # spaces small enough for the exhaustive search: 3 x 3^5 = 729 and 2 x 2^10 = 2048 candidates
 REDUCED = {5: ("identity", "log", "sqrt"), 10: ("identity", "log")}
@@ -61,8 +62,8 @@ def main():
         if reduced is not None:
             names = reduced
             space = {
-                "response_transforms": list(names),
-                "predictor_transforms": list(names),
+                "response_transforms": responses(list(names)),
+                "predictor_transforms": predictors(list(names)),
                 "top": 1,
                 "time_limit_s": args.time_limit,
                 "max_candidates": 20_000,

@@ -32,6 +32,7 @@ from service.api.encode import to_jsonable
 from service.core.data import prepare
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
+from tests.typed import responses
 
 ID = "identity"
 
@@ -149,15 +150,9 @@ PROCESSES = {
 }
 OPTIONS = {
     "cube-root law": {
-        "response_transforms": [
-            "identity",
-            "log",
-            "sqrt",
-            "reciprocal",
-            "square",
-            "box_cox",
-            "power",
-        ]
+        "response_transforms": responses(
+            ["identity", "log", "sqrt", "reciprocal", "square", "box_cox", "power"]
+        )
     }
 }
 IDENTITY_PROCESSES = ("identity, 3 predictors", "negative responses", "identity, heavy tails")

@@ -42,6 +42,7 @@ from service.core.predict import predict
 from service.selection.diagnose import diagnose_specification
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
+from tests.typed import predictors, responses, sent
 
 NAMES = ["intercept", "x"]
 
@@ -123,11 +124,13 @@ def pi_coverage(
         x, y = pi_data(case, rng, n_train)
         prep = prepare({"columns": {"x": x.tolist(), "y": y.tolist()}}, "y", ["x"])
         if case == "powers":
-            opts = SearchOptions(["identity"], [{"name": "power"}], top=1)
+            opts = SearchOptions(responses(["identity"]), predictors([{"name": "power"}]), top=1)
             entry = to_jsonable(run_selection(prep, opts, "bench"))["ranking"][0]
             assert entry["model"]["cv_plus"]["fold_powers"]["columns"] == ["x"]
         else:
-            entry, _ = diagnose_specification(prep, spec, SearchOptions(), "bench", max_points=10)
+            entry, _ = diagnose_specification(
+                prep, sent(spec), SearchOptions(), "bench", max_points=10
+            )
         model = load_model(to_jsonable(entry["model"] if isinstance(entry, dict) else entry.model))
         x0, y0 = pi_data(case, rng, fresh)
         for method in ("normal", "cv_plus"):

@@ -14,6 +14,8 @@ from service.core.spec import build_design
 from service.selection.search import run_selection, select
 from service.selection.search_setup import SearchOptions
 
+from tests.typed import predictors, responses
+
 
 def _ordered(n=41, seed=21):
     rng = np.random.default_rng(seed)
@@ -28,8 +30,8 @@ def test_every_candidate_is_scored_on_the_blocked_folds():
     cols = _ordered()
     prep = prepare({"columns": cols}, "y", ["x"], order="t")
     opts = SearchOptions(
-        response_transforms=["identity", "log", "sqrt", "box_cox"],
-        predictor_transforms=["identity", "log"],
+        response_transforms=responses(["identity", "log", "sqrt", "box_cox"]),
+        predictor_transforms=predictors(["identity", "log"]),
         folds=4,
         scheme="blocked",
     )
@@ -47,7 +49,11 @@ def test_every_candidate_is_scored_on_the_blocked_folds():
     assert all(e.cv.scheme == "blocked" for e in out.ranking)
     random = run_selection(
         prep,
-        SearchOptions(folds=4, response_transforms=["identity"], predictor_transforms=["identity"]),
+        SearchOptions(
+            folds=4,
+            response_transforms=responses(["identity"]),
+            predictor_transforms=predictors(["identity"]),
+        ),
         "test",
     )
     assert random.ranking[0].cv.scheme == "random"

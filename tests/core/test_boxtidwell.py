@@ -18,6 +18,8 @@ from service.core.folds import make_plan
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 
+from tests.typed import predictors, responses
+
 
 def _data(a_true: float, seed: int, n: int = 400):
     rng = np.random.default_rng(seed)
@@ -116,7 +118,11 @@ def test_power_is_estimated_again_in_every_training_fold():
     x = rng.uniform(1, 9, n)
     y = 2.0 + 3.0 * x**-0.3 + rng.normal(0, 0.05, n)
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
-    opts = SearchOptions(response_transforms=["identity"], predictor_transforms=["power"], folds=4)
+    opts = SearchOptions(
+        response_transforms=responses(["identity"]),
+        predictor_transforms=predictors(["power"]),
+        folds=4,
+    )
     out = select(prep, opts, "t")
     est = [s for s in out.scored if s.cv.fold_powers]
     assert est, "the estimated power was not scored"

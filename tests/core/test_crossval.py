@@ -25,6 +25,8 @@ from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from sklearn.model_selection import KFold
 
+from tests.typed import predictors, responses
+
 
 # ------------------------------------------------ transforms written out
 def _yj_inverse(z: np.ndarray, lam: float) -> np.ndarray:
@@ -192,8 +194,8 @@ def test_every_candidate_is_scored_on_the_same_folds():
         {"columns": {"y": y.tolist(), "x": x.tolist(), "w": w.tolist()}}, "y", ["x", "w"]
     )
     opts = SearchOptions(
-        response_transforms=["identity", "log", "sqrt", "box_cox"],
-        predictor_transforms=["identity", "log"],
+        response_transforms=responses(["identity", "log", "sqrt", "box_cox"]),
+        predictor_transforms=predictors(["identity", "log"]),
         folds=4,
         repeats=2,
         seed=17,

@@ -18,6 +18,8 @@ from service.core.cvresult import OutOfFold
 from sklearn.linear_model import LinearRegression
 from sklearn.model_selection import KFold
 
+from tests.typed import tf
+
 client = TestClient(app, raise_server_exceptions=False)
 
 
@@ -114,7 +116,7 @@ def test_per_fold_box_cox_scales_are_stored_and_each_fold_back_transforms_its_ow
     lows, highs = [], []
     for i in range(vals.size):
         f = block["fold_fits"][fold[i]]
-        t = tr.from_dict(f["response_transform"])
+        t = tf(f["response_transform"])
         mu = f["coefficients"][0] + f["coefficients"][1] * x0
         lows.append(t.inverse(mu - vals[i]))
         highs.append(t.inverse(mu + vals[i]))
@@ -266,13 +268,10 @@ def test_selection_entries_store_the_searchs_own_folds():
     assert r.status_code == 200, r.text
     for entry in r.json()["ranking"]:
         spec = entry["specification"]
-        rt = tr.from_dict(spec["response"]["transform"])
+        rt = tf(spec["response"]["transform"])
         z = rt.forward(np.array(cols["y"]))
         X = np.column_stack(
-            [
-                tr.from_dict(p["transform"]).forward(np.array(cols[p["column"]]))
-                for p in spec["predictors"]
-            ]
+            [tf(p["transform"]).forward(np.array(cols[p["column"]])) for p in spec["predictors"]]
         )
         x0 = X[:4]
         # the service's first repeat on its seed equals KFold(shuffle=True, random_state=seed)

@@ -26,8 +26,9 @@ from service.core.interpret import (
     shortcut_applies,
 )
 from service.core.numbers import fmt
-from service.core.spec import Specification
 from service.selection.entries import fitted_model
+
+from tests.typed import spec_of
 
 CAUSAL = re.compile(
     r"\b(increase[sd]?|increasing|cause[sd]?|causing|drives?|driving|"
@@ -49,7 +50,7 @@ def fit(
     categorical: list[str] | None = None,
 ):
     prep = prepare({"columns": data}, response, [c for c, _ in preds], categorical)
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": response, "transform": rt},
             "predictors": [{"column": c, "transform": t} for c, t in preds],

@@ -13,8 +13,10 @@ import statsmodels.api as sm
 from service.core import model
 from service.core.cvplus import NoStoredFits
 from service.core.data import prepare
-from service.core.spec import Levels, Specification
+from service.core.spec import Levels
 from service.selection.entries import fitted_model
+
+from tests.typed import spec_of
 
 
 def depot_fit():
@@ -28,7 +30,7 @@ def depot_fit():
     minutes = np.exp(1.0 + 0.6 * np.log(pallets) + 0.1 * (bay == "west") + rng.normal(0, 0.1, n))
     cols = {"minutes": minutes.tolist(), "pallets": pallets.tolist(), "bay": bay.tolist()}
     prep = prepare({"columns": cols}, "minutes", ["pallets", "bay"], ["bay"])
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "minutes", "transform": {"name": "log"}},
             "predictors": [
@@ -73,7 +75,7 @@ def test_the_model_keeps_the_fit_statsmodels_computes(built):
 
 def test_a_model_that_records_nothing_of_cv_plus_says_why():
     m = model.Model(
-        Specification.from_dict({"response": {"column": "y"}, "predictors": [{"column": "x"}]}),
+        spec_of({"response": {"column": "y"}, "predictors": [{"column": "x"}]}),
         ("intercept", "x"),
         np.zeros(2),
         np.eye(2),

@@ -24,8 +24,9 @@ from service.core.data import prepare
 from service.core.errors import Cell, DataColumn, InputError, Location, Option, Table
 from service.core.model import build_model
 from service.core.predict import predict
-from service.core.spec import Specification
 from service.selection.entries import fitted_model
+
+from tests.typed import spec_of
 
 
 @pytest.fixture
@@ -42,7 +43,7 @@ def issue(
 ):
     """Fit in process and return (artifact after a JSON round trip, concrete spec, fit, prep)."""
     prep = prepare({"columns": data}, response, [c for c, _ in preds], categorical)
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": response, "transform": rt},
             "predictors": [{"column": c, "transform": t} for c, t in preds],

@@ -337,7 +337,7 @@ def test_transform_labels_use_api_names_and_fields(t, label):
     if "=" in label and "estimated" not in label:
         name = label.split("(")[0]
         field = label.split(", ")[1].split("=")[0]
-        assert name == t.name and field in t.to_dict()
+        assert name == t.name and field in [p.field for p in t.family.parameters]
 
 
 # ------------------------------------------------- domain masks and their wording

@@ -23,6 +23,8 @@ from service.core.likelihood import fit_transform
 from service.core.spec import build_design
 from service.selection import candidates as cand
 
+from tests.typed import predictors, responses
+
 
 def _prep(y=None, x=None, seed=0):
     rng = np.random.default_rng(seed)
@@ -46,10 +48,40 @@ def test_defaults_skip_scales_the_response_cannot_take_but_explicit_ones_are_ref
     names = {t.name for t in cand.response_candidates(prep, None)}
     assert names.isdisjoint({"log", "sqrt", "reciprocal", "box_cox"}) and "yeo_johnson" in names
     with pytest.raises(InputError) as exc:
-        cand.response_candidates(prep, ["identity", "log"])
+        cand.response_candidates(prep, responses(["identity", "log"]))
     # first the cell of the first value log cannot take, then the transform asked for
     assert [p.where for p in exc.value.problems] == [Cell("y", 0, "columns"), ResponseChoice(1)]
     assert "used as sent" in exc.value.detail
+
+
+def test_a_log_whose_shift_is_left_to_the_service_takes_zeros_and_one_sent_plainly_does_not():
+    x = np.r_[0.0, np.linspace(1.0, 9.0, 29)]
+    prep = _prep(x=x)
+    with pytest.raises(InputError, match="used as sent"):
+        cand.predictor_candidates(prep, predictors({"x": [{"name": "log"}]}))
+    per = cand.predictor_candidates(prep, predictors({"x": [{"name": "log", "shift": "auto"}]}))
+    # source: common practice, half the smallest positive value (log.chosen_shift)
+    assert per[0] == [tr.Transform("log", shift=0.5, estimated=True)]
+
+
+def test_the_bare_name_power_adds_rungs_and_an_object_asks_for_the_estimated_power():
+    prep = _prep()
+    per = cand.predictor_candidates(prep, predictors({"x": ["power"]}))
+    assert per[0] == [
+        tr.Transform("power", exponent=-0.5),
+        tr.Transform("power", exponent=1.0 / 3.0),
+        bt.ESTIMATED,
+    ]
+    assert cand.predictor_candidates(prep, predictors({"x": [{"name": "power"}]}))[0] == [
+        bt.ESTIMATED
+    ]
+    # where a power cannot be estimated the name leaves it out, the object is refused
+    few = _prep(x=[1.0, 2.0] * 15)
+    assert bt.ESTIMATED not in cand.predictor_candidates(few, predictors({"x": ["power"]}))[0]
+    with pytest.raises(InputError, match="estimated power of 'x' needs"):
+        cand.predictor_candidates(few, predictors({"x": [{"name": "power"}]}))
+    resp = cand.response_candidates(prep, responses(["power"]))
+    assert resp == [tr.Transform("power", exponent=-0.5), tr.Transform("power", exponent=1.0 / 3.0)]
 
 
 def test_default_predictor_options_add_an_estimated_power():
@@ -62,10 +94,10 @@ def test_default_predictor_options_add_an_estimated_power():
 def test_predictor_requests_that_cannot_apply():
     prep = _prep()
     with pytest.raises(InputError) as exc:
-        cand.predictor_candidates(prep, {"x": [{"name": "box_cox"}]})
+        cand.predictor_candidates(prep, predictors({"x": [{"name": "box_cox"}]}))
     assert exc.value.problems[0].where == PredictorChoice("x", 0)
     with pytest.raises(InputError, match="list it in 'categorical'"):
-        cand.predictor_candidates(prep, {"x": ["categorical"]})
+        cand.predictor_candidates(prep, predictors({"x": ["categorical"]}))
 
 
 def _brute_force(resp, preds):

@@ -14,9 +14,11 @@ import pytest
 import statsmodels.api as sm
 from service.core.data import prepare
 from service.core.errors import CandidateFailure, Cell, InputError, ModelFailure, SpecField
-from service.core.spec import Specification, resolve_predictor_transforms
+from service.core.spec import resolve_predictor_transforms
 from service.selection.diagnose import diagnose_specification
 from service.selection.search_setup import SearchOptions
+
+from tests.typed import sent, spec_of
 
 
 @pytest.fixture(scope="module")
@@ -35,7 +37,7 @@ def _spec(rt="log", pt="log"):
 
 def test_engel_log_log_matches_the_reference_sheet(engel):
     prep, d = engel
-    entry, plots = diagnose_specification(prep, _spec(), SearchOptions(), "test")
+    entry, plots = diagnose_specification(prep, sent(_spec()), SearchOptions(), "test")
     # source: CHECKS_PUBLIC engel log-log: slope 0.85589699 (rel 1e-9), CV RMSE pooled
     # smearing 118.9974 (rel 1e-6, same folds), Breusch-Pagan Koenker p 1.769e-4
     assert entry.coefficients[1].estimate == pytest.approx(0.85589699, rel=1e-7)
@@ -52,7 +54,9 @@ def test_engel_log_log_matches_the_reference_sheet(engel):
 
 def test_an_untransformed_spec_matches_its_reference_value(engel):
     prep, _ = engel
-    entry, _ = diagnose_specification(prep, _spec("identity", "identity"), SearchOptions(), "t")
+    entry, _ = diagnose_specification(
+        prep, sent(_spec("identity", "identity")), SearchOptions(), "t"
+    )
     # source: CHECKS_PUBLIC engel `foodexp on income`: CV RMSE pooled 132.7541
     assert entry.cv.value == pytest.approx(132.7541, rel=1e-6)
 
@@ -67,7 +71,7 @@ def test_an_untransformed_spec_matches_its_reference_value(engel):
 def test_requests_the_columns_cannot_take_point_at_the_field(engel, spec, ptr):
     prep, _ = engel
     with pytest.raises(InputError) as exc:
-        diagnose_specification(prep, spec, SearchOptions(), "t")
+        diagnose_specification(prep, sent(spec), SearchOptions(), "t")
     assert exc.value.problems[-1].where == ptr
 
 
@@ -75,9 +79,9 @@ def test_an_unestimated_predictor_lambda_is_refused_in_the_search_s_words(engel)
     prep, _ = engel
     spec = _spec(pt="box_cox")
     with pytest.raises(InputError) as exc:
-        diagnose_specification(prep, spec, SearchOptions(), "t")
+        diagnose_specification(prep, sent(spec), SearchOptions(), "t")
     with pytest.raises(CandidateFailure) as failure:
-        resolve_predictor_transforms(Specification.from_dict(spec), prep)
+        resolve_predictor_transforms(spec_of(spec), prep)
     assert exc.value.problems[-1].detail == failure.value.reason
     assert failure.value.reason == "box_cox of a predictor needs an explicit lambda"
 
@@ -87,7 +91,7 @@ def test_a_transform_outside_the_domain_points_at_the_cell_then_the_transform():
     x = [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0, 10.0]
     prep = prepare({"columns": {"foodexp": y, "income": x}}, "foodexp", ["income"])
     with pytest.raises(InputError) as exc:
-        diagnose_specification(prep, _spec("log", "identity"), SearchOptions(), "t")
+        diagnose_specification(prep, sent(_spec("log", "identity")), SearchOptions(), "t")
     places = [p.where for p in exc.value.problems]
     assert places == [Cell("foodexp", 1, "columns"), SpecField.response("transform")]
 
@@ -101,4 +105,4 @@ def test_a_design_that_cannot_be_fitted_is_a_model_failure():
         "predictors": [{"column": "income"}, {"column": "twice"}],
     }
     with pytest.raises(ModelFailure, match="rank-deficient"):
-        diagnose_specification(prep, spec, SearchOptions(), "t")
+        diagnose_specification(prep, sent(spec), SearchOptions(), "t")

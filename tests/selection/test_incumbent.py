@@ -17,6 +17,8 @@ from service.app import app
 from sklearn.linear_model import LinearRegression
 from sklearn.model_selection import KFold
 
+from tests.typed import spec_of
+
 URL = "/v1/selections"
 N = 200
 SEED = 7
@@ -189,7 +191,7 @@ def test_score_and_decide_in_process_follow_the_paired_rule():
 
     prep = prepare({"columns": COLUMNS}, "repair_cost", ["pipe_length_m", "pipe_age_years"])
     plan = make_plan(prep.n, 5, 1, seed=3)
-    spec, why = incumbent_spec(_spec(), prep, list(prep.predictors))
+    spec, why = incumbent_spec(spec_of(_spec()), prep, list(prep.predictors))
     assert why is None
     cv = score(spec, prep, plan, tr.needs_shift(prep.y))
     raw = _fold_rmse(log_scale=False)

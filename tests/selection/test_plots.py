@@ -15,11 +15,12 @@ import pytest
 import statsmodels.api as sm
 from service.core.data import prepare
 from service.core.plots import DiagnosticPlots
-from service.core.spec import Specification
 from service.selection.deadline import Deadline
 from service.selection.groups import GroupedReport
 from service.selection.plots import DETAIL_TOP, report_plots
 from service.selection.search import SelectionReport
+
+from tests.typed import spec_of
 
 
 def _spec(rt, pt):
@@ -31,7 +32,7 @@ def _spec(rt, pt):
 
 def _listed(rank: int, rt: str, pt: str) -> SimpleNamespace:
     """A ranking entry as report_plots reads it: its rank and specification."""
-    return SimpleNamespace(rank=rank, specification=Specification.from_dict(_spec(rt, pt)))
+    return SimpleNamespace(rank=rank, specification=spec_of(_spec(rt, pt)))
 
 
 def _body(entries) -> SelectionReport:

@@ -14,6 +14,9 @@ from service.core.likelihood import estimate_lambda
 from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
 
+from tests.typed import predictors as choices
+from tests.typed import spec_dict
+
 SEEDS = [11, 12, 13]
 
 
@@ -27,7 +30,7 @@ def _select(columns: dict, response: str, predictors: list[str], **opts) -> dict
 
 
 def _top(out: dict) -> tuple[dict, list[dict]]:
-    spec = out.ranking[0].specification.to_dict()
+    spec = spec_dict(out.ranking[0].specification)
     return spec["response"]["transform"], [p["transform"] for p in spec["predictors"]]
 
 
@@ -53,7 +56,7 @@ def test_multiplicative_errors_pick_a_log_response(seed):
     out = _select({"y": y, "x": x}, "y", ["x"])
     resp, preds = _top(out)
     X = np.column_stack([np.ones(n), x])
-    assert _is_log_scale(resp, y, X), out.ranking[0].specification.to_dict()
+    assert _is_log_scale(resp, y, X), spec_dict(out.ranking[0].specification)
     assert preds[0]["name"] == "identity"
 
 
@@ -69,7 +72,7 @@ def test_power_law_picks_log_log(seed):
     out = _select({"y": y, "x": x}, "y", ["x"])
     resp, preds = _top(out)
     X = np.column_stack([np.ones(n), np.log(x)])
-    assert _is_log_scale(resp, y, X), out.ranking[0].specification.to_dict()
+    assert _is_log_scale(resp, y, X), spec_dict(out.ranking[0].specification)
     assert preds[0]["name"] == "log" and not preds[0].get("shift")
 
 
@@ -83,7 +86,7 @@ def test_additive_linear_relation_is_not_transformed(seed):
     y = 30.0 + 2.0 * x1 - 1.5 * x2 + rng.normal(0, 1.0, n)
     out = _select({"y": y, "x1": x1, "x2": x2}, "y", ["x1", "x2"])
     resp, preds = _top(out)
-    assert resp["name"] == "identity", out.ranking[0].specification.to_dict()
+    assert resp["name"] == "identity", spec_dict(out.ranking[0].specification)
     assert [p["name"] for p in preds] == ["identity", "identity"]
 
 
@@ -100,7 +103,9 @@ def test_cube_root_law_recovers_box_cox_one_third(seed):
     est = estimate_lambda("box_cox", v, X)
     assert est.ci_low < 1.0 / 3.0 < est.ci_high
     assert est.ci_low > 0.0 and est.ci_high < 1.0  # excludes log and no transform
-    out = _select({"v": v, "d": d, "h": h}, "v", ["d", "h"], predictor_transforms=["identity"])
+    out = _select(
+        {"v": v, "d": d, "h": h}, "v", ["d", "h"], predictor_transforms=choices(["identity"])
+    )
     info = out.search.box_cox.reported
     # the search reports the same regression lambda on the untransformed design
     assert info.design == "untransformed predictors"
@@ -114,8 +119,10 @@ def test_ranking_lists_each_specification_once():
     n = 200
     x = rng.uniform(0, 5, n)
     y = np.exp(1.0 + 0.8 * x + rng.normal(0, 0.25, n))  # Box-Cox interval holds 0: rung = log
-    out = _select({"y": y, "x": x}, "y", ["x"], predictor_transforms=["identity", "log"], top=20)
-    specs = [repr(e.specification.to_dict()) for e in out.ranking]
+    out = _select(
+        {"y": y, "x": x}, "y", ["x"], predictor_transforms=choices(["identity", "log"]), top=20
+    )
+    specs = [repr(spec_dict(e.specification)) for e in out.ranking]
     assert len(specs) == len(set(specs)), specs
 
 
@@ -149,7 +156,7 @@ def test_small_designed_experiments_let_the_simple_scale_win(kind):
         out = _select(cols, "y", ["a", "b", "c"], seed=seed)
         assert out.search.considered <= 14
         assert any("fewer than 50" in w for w in out.warnings)
-        spec = out.ranking[0].specification.to_dict()
+        spec = spec_dict(out.ranking[0].specification)
         got = (
             spec["response"]["transform"]["name"],
             [p["transform"]["name"] for p in spec["predictors"]],

@@ -34,6 +34,8 @@ from service.selection.request import (
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 
+from tests.typed import predictors, responses
+
 SERVICE = Service("test-version")
 
 
@@ -61,8 +63,8 @@ def _job(group_by: str | None = None, **search) -> SelectionJob:
         group_by=group_by,
     )
     opts = SearchOptions(
-        response_transforms=["identity", "log"],
-        predictor_transforms=["identity", "log"],
+        response_transforms=responses(["identity", "log"]),
+        predictor_transforms=predictors(["identity", "log"]),
         folds=4,
         seed=3,
         top=2,

@@ -5,7 +5,6 @@ import time
 import numpy as np
 import pytest
 from scipy import stats
-from service.core import transforms as tr
 from service.core.cvresult import CVResult, Metrics
 from service.core.data import prepare
 from service.core.errors import BudgetError, Cell, InputError, ResponseChoice
@@ -15,11 +14,11 @@ from service.selection.entries import EntryReport, Simplicity
 from service.selection.search import SelectionReport, places, rank, run_selection, select
 from service.selection.search_setup import Scored, SearchOptions
 
+from tests.typed import predictors, responses, spec_dict, tf
+
 
 def _scored(resp: str, pred: str, value: float, se: float, folds=None) -> Scored:
-    spec = Specification(
-        "y", tr.from_dict({"name": resp}), (PredictorSpec("x", tr.from_dict({"name": pred})),)
-    )
+    spec = Specification("y", tf({"name": resp}), (PredictorSpec("x", tf({"name": pred})),))
     fv = np.array([value]) if folds is None else np.asarray(folds, float)
     return Scored(spec, CVResult("rmse", value, se, fv, Metrics(value, value, None)))
 
@@ -118,7 +117,8 @@ def test_failed_candidates_do_not_stop_the_search():
     out = run_selection(
         prep,
         SearchOptions(
-            response_transforms=["identity", "reciprocal"], predictor_transforms=["identity"]
+            response_transforms=responses(["identity", "reciprocal"]),
+            predictor_transforms=predictors(["identity"]),
         ),
         "t",
     )
@@ -147,8 +147,8 @@ def test_failures_are_grouped_by_reason_with_counts():
     out = run_selection(
         prep,
         SearchOptions(
-            response_transforms=["identity", "reciprocal", "sqrt"],
-            predictor_transforms=["identity", "log", "square", "reciprocal"],
+            response_transforms=responses(["identity", "reciprocal", "sqrt"]),
+            predictor_transforms=predictors(["identity", "log", "square", "reciprocal"]),
         ),
         "t",
     )
@@ -171,7 +171,7 @@ def test_explicit_inapplicable_transform_is_an_input_error():
     y = x - 2 + rng.normal(0, 0.1, 50)  # has negatives
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
     with pytest.raises(InputError) as exc:
-        run_selection(prep, SearchOptions(response_transforms=["identity", "log"]), "t")
+        run_selection(prep, SearchOptions(response_transforms=responses(["identity", "log"])), "t")
     # the first place is the first row the explicit log cannot take, then the transform
     assert exc.value.problems[0].where == Cell("y", int(np.argmax(y <= 0)), "columns")
     assert exc.value.problems[1].where == ResponseChoice(1)
@@ -188,7 +188,7 @@ def test_same_request_gives_identical_numbers():
 
 def test_linear_data_keep_the_identity_scale():
     out = run_selection(_linear_prep(n=400), SearchOptions(), "t")
-    spec = out.ranking[0].specification.to_dict()
+    spec = spec_dict(out.ranking[0].specification)
     assert spec["response"]["transform"]["name"] == "identity"
     assert spec["predictors"][0]["transform"]["name"] == "identity"
 
@@ -226,11 +226,11 @@ def test_the_result_is_typed_and_the_body_holds_only_contract_fields():
     result = select(prep, SearchOptions(top=2), "t")
     assert isinstance(result.body, SelectionReport)
     assert all(isinstance(e, EntryReport) for e in result.body.ranking)
-    first = result.body.ranking[0].specification.to_dict()
-    assert any(s.spec.to_dict() == first for s in result.scored)
+    first = spec_dict(result.body.ranking[0].specification)
+    assert any(spec_dict(s.spec) == first for s in result.scored)
     assert result.plan.folds == 5 and result.plan.n_splits == 5
     # source: numpy lstsq of rank 1's design on all rows equals the reported coefficients
-    winner = next(s for s in result.scored if s.spec.to_dict() == first)
+    winner = next(s for s in result.scored if spec_dict(s.spec) == first)
     d = build_design(winner.spec, prep)
     z = winner.spec.response_transform.forward(prep.y)
     coef = np.linalg.lstsq(d.X, z, rcond=None)[0]
@@ -256,7 +256,9 @@ def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monk
     columns = {"y": y.tolist(), "a": x1.tolist(), "b": x2.tolist()}
     prep = prepare({"columns": columns}, "y", ["a", "b"])
     # "power": estimated in every fold; box_cox / yeo_johnson: a lambda in every fold
-    opts = SearchOptions(folds=5, repeats=2, predictor_transforms=["identity", "log", "power"])
+    opts = SearchOptions(
+        folds=5, repeats=2, predictor_transforms=predictors(["identity", "log", "power"])
+    )
     found = {"powers": 0, "lambdas": 0}
     real = {"powers": Scorer.powers_many, "lambdas": Scorer.lambdas_many}
 
@@ -277,8 +279,8 @@ def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monk
     alone = run_selection(prep, opts, "t")
     # source: the same search with every candidate's fold powers and lambdas found alone
     # (Scorer.score's own path): the same ranking and the same numbers
-    assert [e.specification.to_dict() for e in together.ranking] == [
-        e.specification.to_dict() for e in alone.ranking
+    assert [spec_dict(e.specification) for e in together.ranking] == [
+        spec_dict(e.specification) for e in alone.ranking
     ]
     for a, b in zip(together.ranking, alone.ranking, strict=True):
         assert a.cv.value == pytest.approx(b.cv.value, rel=1e-9)
@@ -299,7 +301,7 @@ def test_a_ladder_reading_the_bank_lacks_leaves_the_other_powers_estimated():
     prep = prepare({"columns": cols}, "y", ["x1", "x2", "site"], ["site"])
     result = select(prep, SearchOptions(metric="mape"), "test")
     first = result.body.ranking[0]
-    winner = next(s for s in result.scored if s.spec.to_dict() == first.specification.to_dict())
+    winner = next(s for s in result.scored if spec_dict(s.spec) == spec_dict(first.specification))
     d = build_design(winner.spec, prep)
     coef = np.linalg.lstsq(d.X, winner.spec.response_transform.forward(prep.y), rcond=None)[0]
     # source: numpy lstsq of rank 1's design on all rows equals the reported coefficients
@@ -317,7 +319,9 @@ def test_all_rows_powers_kept_from_screening_give_the_same_selection(monkeypatch
     y = np.exp(1.0 + 0.4 * np.sqrt(x1) - 0.3 * np.log(x2) + rng.normal(0, 0.2, n))
     columns = {"y": y.tolist(), "a": x1.tolist(), "b": x2.tolist()}
     prep = prepare({"columns": columns}, "y", ["a", "b"])
-    opts = SearchOptions(folds=5, repeats=1, predictor_transforms=["identity", "log", "power"])
+    opts = SearchOptions(
+        folds=5, repeats=1, predictor_transforms=predictors(["identity", "log", "power"])
+    )
     evaluators: list[search_mod._Evaluator] = []
     real_init = search_mod._Evaluator.__init__
 
@@ -351,8 +355,8 @@ def test_all_rows_powers_kept_from_screening_give_the_same_selection(monkeypatch
             assert got.per_fold == pytest.approx(want.per_fold, rel=1e-8, abs=1e-10)
             compared += 1
     assert compared >= 4
-    assert [e.specification.to_dict() for e in reused.ranking] == [
-        e.specification.to_dict() for e in fresh.ranking
+    assert [spec_dict(e.specification) for e in reused.ranking] == [
+        spec_dict(e.specification) for e in fresh.ranking
     ]
 
 
@@ -432,7 +436,9 @@ def test_screening_powers_stop_at_their_share_of_the_time_left_and_say_so(monkey
     prep = prepare(
         {"columns": {"y": y.tolist(), "a": x1.tolist(), "b": x2.tolist()}}, "y", ["a", "b"]
     )
-    opts = SearchOptions(folds=5, repeats=1, predictor_transforms=["identity", "log", "power"])
+    opts = SearchOptions(
+        folds=5, repeats=1, predictor_transforms=predictors(["identity", "log", "power"])
+    )
     full = select(prep, opts, "t").body
     assert full.search.predictor_powers  # estimated with the default share
     assert not any("screening step's share" in w for w in full.warnings)

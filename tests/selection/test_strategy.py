@@ -14,6 +14,8 @@ from service.selection.search import run_selection, select
 from service.selection.search_setup import SearchOptions
 from service.selection.strategy import EXHAUSTIVE_LIMIT
 
+from tests.typed import predictors, responses
+
 
 def _problem(seed: int, n: int = 220, p: int = 3):
     rng = np.random.default_rng(seed)
@@ -40,8 +42,8 @@ def _problem(seed: int, n: int = 220, p: int = 3):
 
 
 SPACE = {
-    "response_transforms": ["identity", "log", "sqrt"],
-    "predictor_transforms": ["identity", "log", "sqrt", "square"],
+    "response_transforms": responses(["identity", "log", "sqrt"]),
+    "predictor_transforms": predictors(["identity", "log", "sqrt", "square"]),
     "top": 1,
 }
 

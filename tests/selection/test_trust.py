@@ -28,6 +28,8 @@ from service.selection.trust import (
 )
 from statsmodels.stats.proportion import proportion_confint
 
+from tests.typed import predictors, responses, spec_of
+
 
 def _select(prep, opts):
     result = select(prep, opts, "test")
@@ -43,8 +45,8 @@ def _clear_log_log(n=150, seed=11):
 
 
 CLEAR_OPTS = SearchOptions(
-    response_transforms=["identity", "log", "sqrt"],
-    predictor_transforms=["identity", "log", "sqrt"],
+    response_transforms=responses(["identity", "log", "sqrt"]),
+    predictor_transforms=predictors(["identity", "log", "sqrt"]),
     top=1,
 )
 
@@ -66,7 +68,9 @@ def _tied_scales(n=200, seed=5):
 
 
 TIED_OPTS = SearchOptions(
-    response_transforms=["identity"], predictor_transforms=["sqrt", "reciprocal"], top=1
+    response_transforms=responses(["identity"]),
+    predictor_transforms=predictors(["sqrt", "reciprocal"]),
+    top=1,
 )
 
 
@@ -117,7 +121,9 @@ def test_stability_clearly_below_one_when_two_scales_fit_equally_well():
 
 def test_optimism_is_zero_when_the_search_space_holds_one_candidate():
     prep = _clear_log_log(seed=3)
-    opts = SearchOptions(response_transforms=["log"], predictor_transforms=["log"], top=1)
+    opts = SearchOptions(
+        response_transforms=responses(["log"]), predictor_transforms=predictors(["log"]), top=1
+    )
     body, winner = _select(prep, opts)
     out = assess_trust(prep, opts, winner, "test", False, True, selection=body)
     op = out.optimism
@@ -157,8 +163,8 @@ def test_optimism_positive_when_many_candidates_chase_noise():
     # unrelated to them: the winner is the luckiest of nine noisy CV estimates, so its error
     # understates that of the procedure (Varma & Simon 2006; Cawley & Talbot 2010).
     opts = SearchOptions(
-        response_transforms=["identity"],
-        predictor_transforms=["sqrt", "reciprocal", "square"],
+        response_transforms=responses(["identity"]),
+        predictor_transforms=predictors(["sqrt", "reciprocal", "square"]),
         top=1,
     )
     gaps = []
@@ -226,7 +232,7 @@ def test_bad_settings_point_at_the_field(kw, ptr):
 
 
 def test_scale_key_ignores_values_estimated_from_the_response():
-    concrete, open_, fixed = (Specification.from_dict(d) for d in _box_cox_dicts())
+    concrete, open_, fixed = (spec_of(d) for d in _box_cox_dicts())
     assert scale_key(concrete) == scale_key(open_) != scale_key(fixed)
 
 

@@ -14,6 +14,8 @@ from service.selection.search import run_selection
 from service.selection.search_setup import SearchOptions
 from service.selection.workers import map_in_processes, process_mapper
 
+from tests.typed import predictors, responses
+
 
 def _square_and_pid(x: int) -> tuple[int, int]:
     return x * x, os.getpid()
@@ -73,8 +75,8 @@ def test_prepared_and_options_pickle_to_the_same_selection():
     }
     prep = prepare({"columns": cols}, "y", ["x", "kind"], order="t")
     opts = SearchOptions(
-        response_transforms=["identity", "log"],
-        predictor_transforms=["identity", "log"],
+        response_transforms=responses(["identity", "log"]),
+        predictor_transforms=predictors(["identity", "log"]),
         top=1,
         units={"x": "m"},
     )

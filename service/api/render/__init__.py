@@ -31,6 +31,7 @@ from . import (  # noqa: F401
     predictions,
     search,
     selection,
+    specs,
     transforms,
     trust,
 )

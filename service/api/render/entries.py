@@ -11,6 +11,7 @@ from typing import Any
 from ...selection import entries as e
 from .estimates import coefficient, ladder_reading, predictor_power, response_lambda
 from .registry import contract
+from .specs import specification
 
 
 @contract.register
@@ -105,7 +106,7 @@ def estimates(est: e.Estimates) -> dict[str, Any]:
 def entry(r: e.EntryReport) -> dict[str, Any]:
     out: dict[str, Any] = {} if r.rank is None else {"rank": r.rank}
     out |= {
-        "specification": r.specification.to_dict(),
+        "specification": specification(r.specification),
         "equation": r.equation,
         "cv": r.cv,
         "fit": fit_summary(r.fit),

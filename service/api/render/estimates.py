@@ -19,6 +19,7 @@ from ...core.likelihood import LambdaEstimate
 from ...selection.entries import LadderReading
 from ...selection.search import BoxCoxReport, LambdaOnDesign, ScreenedPower
 from .registry import contract
+from .specs import transform
 
 
 def _finite(v: float | None) -> float | None:
@@ -110,4 +111,4 @@ def box_cox(r: BoxCoxReport) -> dict[str, Any]:
 
 @contract.register
 def screened_power(s: ScreenedPower) -> dict[str, Any]:
-    return {"response_transform": s.response_transform.to_dict()} | predictor_power(s.estimate)
+    return {"response_transform": transform(s.response_transform)} | predictor_power(s.estimate)

@@ -6,12 +6,13 @@ from typing import Any
 
 from ...selection import incumbent as inc
 from .registry import contract
+from .specs import specification
 
 
 @contract.register
 def incumbent(d: inc.IncumbentDecision) -> dict[str, Any]:
     return {
-        "specification": d.spec.to_dict() if d.spec is not None else d.as_sent,
+        "specification": specification(d.spec) if d.spec is not None else d.as_sent,
         "rank": d.rank,
         "cv": None if d.cv is None else contract(d.cv),
         "difference": None

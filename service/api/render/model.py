@@ -22,6 +22,7 @@ from ...core import cvplus
 from ...core import drift as d
 from ...core import model as m
 from .registry import contract
+from .specs import specification, transform
 
 UNSIGNED_FIELDS = ("checksum", "signature")
 SIGNATURE_ALGORITHM = "HMAC-SHA-256"
@@ -166,7 +167,7 @@ def stored_fits(s: cvplus.StoredFits) -> dict[str, Any]:
         "scheme": s.scheme,
         "rows": s.rows,
         "fold_fits": [
-            {"response_transform": t.to_dict(), "coefficients": c}
+            {"response_transform": transform(t), "coefficients": c}
             for t, c in zip(s.transforms, s.coefficients.tolist(), strict=True)
         ],
         "residuals": {"kind": s.kind, "fold": s.fold.tolist(), "values": s.abs_resid.tolist()},
@@ -187,7 +188,7 @@ def artifact(model: m.Model) -> dict[str, Any]:
         "format_version": model.format_version,
         "service_version": issued.service_version,
         "library_versions": library_versions(issued.library_versions),
-        "specification": model.spec.to_dict(),
+        "specification": specification(model.spec),
         "terms": list(model.terms),
         "coefficients": model.coef.tolist(),
         "xtx_inverse": model.xtx_inverse.tolist(),

@@ -6,6 +6,7 @@ from typing import Any
 
 from ...selection import search as s
 from .registry import contract
+from .specs import specification, transform
 
 
 @contract.register
@@ -43,12 +44,12 @@ def failure_group(g: s.FailureGroup) -> dict[str, Any]:
 
 @contract.register
 def failure(f: s.Failure) -> dict[str, Any]:
-    return {"specification": f.spec.to_dict(), "reason": f.reason}
+    return {"specification": specification(f.spec), "reason": f.reason}
 
 
 @contract.register
 def best_cv(b: s.BestCV) -> dict[str, Any]:
-    return {"value": b.value, "std_error": b.std_error, "specification": b.spec.to_dict()}
+    return {"value": b.value, "std_error": b.std_error, "specification": specification(b.spec)}
 
 
 @contract.register
@@ -71,8 +72,8 @@ def search(r: s.SearchSummary) -> dict[str, Any]:
         "complete": r.complete,
         "elapsed_s": r.elapsed_s,
         "strategy": r.strategy,
-        "response_transforms": [t.to_dict() for t in r.response_transforms],
-        "predictor_transforms": {c: [t.to_dict() for t in ts] for c, ts in r.predictor_transforms},
+        "response_transforms": [transform(t) for t in r.response_transforms],
+        "predictor_transforms": {c: [transform(t) for t in ts] for c, ts in r.predictor_transforms},
         "best_cv": r.best_cv,
         "band": r.band,
         "distinct_scales": r.distinct_scales,

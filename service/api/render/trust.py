@@ -6,6 +6,7 @@ from typing import Any
 
 from ...selection import trust as t
 from .registry import contract
+from .specs import specification
 
 
 @contract.register
@@ -28,7 +29,7 @@ def trust(r: t.Trust) -> dict[str, Any]:
 @contract.register
 def runner_up(r: t.RunnerUp) -> dict[str, Any]:
     return {
-        "specification": r.spec.to_dict(),
+        "specification": specification(r.spec),
         "label": t.label(r.spec),
         "first_share": r.first_share,
         "basis": r.basis,
@@ -51,7 +52,7 @@ def stability_details(s: t.Stability) -> dict[str, Any]:
         "interval": None if interval is None else list(interval),
         "interval_level": t.INTERVAL_LEVEL,
         "first": [
-            {"label": t.label(f.spec), "specification": f.spec.to_dict(), "share": f.share}
+            {"label": t.label(f.spec), "specification": specification(f.spec), "share": f.share}
             for f in s.first
         ],
         "contenders": s.contenders,
@@ -115,7 +116,7 @@ def outer_fold(f: t.OuterFold) -> dict[str, Any]:
     assert f.selected is not None  # an assessed fold names what its inner search selected
     out.update(
         selected=t.label(f.selected),
-        selected_specification=f.selected.to_dict(),
+        selected_specification=specification(f.selected),
         same_as_winner=f.same_as_winner,
         inner_complete=f.inner_complete,
         nested_error=f.nested_error,

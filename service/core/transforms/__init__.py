@@ -35,6 +35,7 @@ from .registry import LAMBDA_NAMES as LAMBDA_NAMES
 from .registry import NUMERIC_NAMES as NUMERIC_NAMES
 from .registry import families_with_parameter as families_with_parameter
 from .value import Transform as Transform
-from .value import from_dict as from_dict
 from .value import ladder_transform as ladder_transform
+from .value import read_back as read_back
+from .value import written_alike as written_alike
 from .yeo_johnson import yeo_johnson_map as yeo_johnson_map

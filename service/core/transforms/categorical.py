@@ -3,7 +3,7 @@ the family has no numeric map."""
 
 from __future__ import annotations
 
-from typing import Any, NoReturn
+from typing import NoReturn
 
 from .._types import FloatArray
 from .bounds import REFERENCE_MAX_CHARS
@@ -31,12 +31,6 @@ class Categorical(Family):
         "treatment dummies: each level's coefficient is its difference from the reference "
         "level on the model scale (a percent difference under a log response)"
     )
-
-    def fields(self, d: dict[str, Any]) -> dict[str, Any]:
-        return {"reference": d.get("reference")}
-
-    def to_fields(self, t: Params) -> dict[str, Any]:
-        return {} if t.reference is None else {"reference": t.reference}
 
     def label(self, t: Params, column: str) -> str:
         return column

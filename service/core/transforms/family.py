@@ -13,8 +13,8 @@ families at once.
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from dataclasses import dataclass
-from typing import Any, ClassVar, Protocol
+from dataclasses import dataclass, replace
+from typing import ClassVar, Protocol
 
 import numpy as np
 
@@ -38,6 +38,22 @@ class Params(Protocol):
     def estimated(self) -> bool: ...
     @property
     def reference(self) -> str | None: ...
+
+
+@dataclass(frozen=True)
+class Values:
+    """A transform's name and parameters, as :meth:`Family.normalise` hands them back."""
+
+    name: str
+    exponent: float | None = None
+    lam: float | None = None
+    shift: float | None = None
+    estimated: bool = False
+    reference: str | None = None
+
+    @classmethod
+    def of(cls, t: Params) -> Values:
+        return cls(t.name, t.exponent, t.lam, t.shift, t.estimated, t.reference)
 
 
 def lam_of(t: Params) -> float:
@@ -115,7 +131,13 @@ class Parameter:
     """A family's parameter as the catalogue (GET /v1/transforms) describes it: ``field``,
     its name in a transform object, ``kind`` its type in words, its ``bounds`` (numbers) or
     ``length`` (strings), ``default``, what omitting it means, an ``example`` and its
-    ``meaning``."""
+    ``meaning``.
+
+    How a transform object carries it (``service/api/render/specs.py`` writes and reads the
+    object from these): ``attribute``, the :class:`~.value.Transform` attribute that holds
+    it (default: ``field``); ``unwritten``, the values the object leaves out (they read back
+    as unset); ``open_word``, a word a request may send instead of a value to leave it to
+    the data (read as unset)."""
 
     field: str
     kind: str
@@ -125,6 +147,18 @@ class Parameter:
     default: str | None = None
     bounds: tuple[float, float] | None = None
     length: tuple[int, int] | None = None
+    attribute: str | None = None
+    unwritten: tuple[object, ...] = (None,)
+    open_word: str | None = None
+
+    @property
+    def held_in(self) -> str:
+        """The :class:`~.value.Transform` attribute holding the parameter."""
+        return self.field if self.attribute is None else self.attribute
+
+    def written(self, value: object) -> bool:
+        """Whether a transform object shows ``value`` (else it leaves the field out)."""
+        return value not in self.unwritten
 
 
 EVERYWHERE = Domain()
@@ -154,20 +188,15 @@ class Family(ABC):
     #: True when an estimated parameter of the family is fitted on the response (it then
     #: counts in AIC/BIC)
     fits_on_response: ClassVar[bool] = False
+    #: True when a transform read back from its object form keeps the ``estimated`` mark (a
+    #: lambda or a log shift chosen from the data); otherwise only the parameters are read
+    keeps_estimated: ClassVar[bool] = False
 
     # ------------------------------------------------------------ the value
-    def normalise(self, t: Params) -> dict[str, Any]:
-        """Fields to replace when a transform is built (a parameter read as a limit)."""
-        return {}
-
-    def fields(self, d: dict[str, Any]) -> dict[str, Any]:
-        """The parameters of a contract Transform object (already type-checked)."""
-        return {}
-
-    def to_fields(self, t: Params) -> dict[str, Any]:
-        """The parameters of the contract Transform object (``to_dict`` adds name and
-        ``estimated``)."""
-        return {}
+    def normalise(self, t: Params) -> Values | None:
+        """The values a transform is built with when they differ from those given (a
+        parameter read as a limit); None: as given."""
+        return None
 
     def is_fitted(self, t: Params) -> bool:
         """False while a parameter waits to be estimated from the rows at hand."""
@@ -241,6 +270,7 @@ def lambda_parameter(family: str) -> Parameter:
     """The catalogue entry of a Box-Cox / Yeo-Johnson lambda."""
     return Parameter(
         field="lambda",
+        attribute="lam",
         kind="number",
         bounds=(-LAMBDA_BOUND, LAMBDA_BOUND),
         when_omitted=WhenOmitted("estimated", "required", "required"),
@@ -258,22 +288,13 @@ class LambdaFamily(Family):
     cost = 3
     has_lambda = True
     fits_on_response = True
+    keeps_estimated = True
 
-    def normalise(self, t: Params) -> dict[str, Any]:
+    def normalise(self, t: Params) -> Values | None:
         lam = t.lam
         if lam is not None and lam != 0.0 and abs(lam) < PARAM_FLOOR:
-            return {"lam": 0.0}
-        return {}
-
-    def fields(self, d: dict[str, Any]) -> dict[str, Any]:
-        lam = d.get("lambda")
-        return {
-            "lam": None if lam is None else float(lam),
-            "estimated": bool(d.get("estimated", False)),
-        }
-
-    def to_fields(self, t: Params) -> dict[str, Any]:
-        return {} if t.lam is None else {"lambda": t.lam}
+            return replace(Values.of(t), lam=0.0)
+        return None
 
     def is_fitted(self, t: Params) -> bool:
         return t.lam is not None

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from typing import Any
-
 import numpy as np
 
 from .._types import FloatArray
@@ -15,6 +13,8 @@ SHIFT_PARAMETER = Parameter(
     field="shift",
     kind='number or "auto"',
     bounds=(-SHIFT_BOUND, SHIFT_BOUND),
+    unwritten=(None, 0.0),  # log(x + 0) is written as a plain log
+    open_word="auto",
     when_omitted=WhenOmitted("default", "default", "default"),
     example=1.0,
     meaning='a constant added before the log (log(x + shift)), or "auto" to let the '
@@ -41,6 +41,7 @@ class Log(Family):
 
     name = "log"
     cost = 1
+    keeps_estimated = True
     parameters = (SHIFT_PARAMETER,)
     domain_statement = 'x + shift > 0 (without a shift: x > 0; "auto": x >= 0)'
     reading = (
@@ -48,16 +49,6 @@ class Log(Family):
         "100(exp(b)-1)% ; log predictor: a 1% increase in x changes the model scale by "
         "b·ln(1.01); log-log: b is an elasticity"
     )
-
-    def fields(self, d: dict[str, Any]) -> dict[str, Any]:
-        shift = d.get("shift")
-        return {
-            "shift": None if shift is None or shift == "auto" else float(shift),
-            "estimated": bool(d.get("estimated", False)),
-        }
-
-    def to_fields(self, t: Params) -> dict[str, Any]:
-        return {"shift": t.shift} if t.shift else {}
 
     def is_fitted(self, t: Params) -> bool:
         return t.shift is not None

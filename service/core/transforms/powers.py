@@ -10,7 +10,7 @@ has no original value (``nan``).
 from __future__ import annotations
 
 import math
-from typing import Any
+from dataclasses import replace
 
 import numpy as np
 
@@ -24,6 +24,7 @@ from .family import (
     Family,
     Parameter,
     Params,
+    Values,
     WhenOmitted,
     exponent_of,
 )
@@ -32,6 +33,7 @@ EXPONENT_PARAMETER = Parameter(
     field="exponent",
     kind="number",
     bounds=(-EXPONENT_BOUND, EXPONENT_BOUND),
+    unwritten=(),  # a power still to be estimated shows its open exponent
     when_omitted=WhenOmitted("required", "required", "estimated"),
     example=0.25,
     meaning=f"the exponent q in x^q, {PARAM_FLOOR:g} <= |q| <= {EXPONENT_BOUND:g} (use log for "
@@ -150,17 +152,11 @@ class Power(Family):
     domain_statement = "x >= 0 for q > 0, x > 0 for q < 0"
     reading = "no constant-rate reading; q < 0 reverses order"
 
-    def normalise(self, t: Params) -> dict[str, Any]:
+    def normalise(self, t: Params) -> Values | None:
         if t.exponent is not None and abs(t.exponent) < PARAM_FLOOR:
             # an estimated power this close to 0 is the log (requests refuse such exponents)
-            return {"name": "log", "exponent": None, "shift": 0.0}
-        return {}
-
-    def fields(self, d: dict[str, Any]) -> dict[str, Any]:
-        return {"exponent": float(d["exponent"])}
-
-    def to_fields(self, t: Params) -> dict[str, Any]:
-        return {"exponent": t.exponent}
+            return replace(Values.of(t), name="log", exponent=None, shift=0.0)
+        return None
 
     def is_identity(self, t: Params) -> bool:
         return t.exponent == 1.0

@@ -3,8 +3,7 @@ that depends on the family goes to ``FAMILIES[name]``."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any
+from dataclasses import dataclass, fields
 
 import numpy as np
 
@@ -26,8 +25,10 @@ class Transform:
     reference: str | None = None  # categorical only
 
     def __post_init__(self) -> None:
-        for field, value in family_of(self.name).normalise(self).items():
-            object.__setattr__(self, field, value)
+        values = family_of(self.name).normalise(self)
+        if values is not None:
+            for f in fields(values):
+                object.__setattr__(self, f.name, getattr(values, f.name))
 
     @property
     def family(self) -> Family:
@@ -72,12 +73,6 @@ class Transform:
         ``field=estimated``.
         """
         return self.family.label(self, column)
-
-    def to_dict(self) -> dict[str, Any]:
-        d: dict[str, Any] = {"name": self.name, **self.family.to_fields(self)}
-        if self.estimated:
-            d["estimated"] = True
-        return d
 
     # --------------------------------------------------------------- domains
     def domain(self, as_sent: bool = False) -> Domain:
@@ -141,10 +136,27 @@ class Transform:
         return self.family.log_jacobian(self, np.asarray(y, dtype=float))
 
 
-def from_dict(d: dict[str, Any]) -> Transform:
-    """Build from a contract Transform object (already type-checked by the caller)."""
-    name = d["name"]
-    return Transform(name, **family_of(name).fields(d))
+def _as_written(t: Transform, estimated: bool) -> Transform:
+    family = t.family
+    shown = {
+        p.held_in: getattr(t, p.held_in)
+        for p in family.parameters
+        if p.written(getattr(t, p.held_in))
+    }
+    return Transform(t.name, estimated=estimated, **shown)
+
+
+def written_alike(t: Transform) -> Transform:
+    """``t`` as its object form shows it: each parameter the form leaves out (a log's shift
+    of 0, an unset lambda) unset, and every field its family does not take unset.  Two
+    transforms are written alike exactly when these are equal."""
+    return _as_written(t, t.estimated)
+
+
+def read_back(t: Transform) -> Transform:
+    """``t`` as its object form reads back: :func:`written_alike`, keeping the ``estimated``
+    mark only where the family keeps it (a lambda or a log shift chosen from the data)."""
+    return _as_written(t, t.estimated and t.family.keeps_estimated)
 
 
 def ladder_transform(power: float) -> Transform:

@@ -3,13 +3,13 @@ for x < 0, defined for every real x (Yeo & Johnson 2000)."""
 
 from __future__ import annotations
 
-from typing import Any
+from dataclasses import replace
 
 import numpy as np
 
 from .._types import FloatArray
 from .bounds import PARAM_FLOOR
-from .family import EVERYWHERE, Domain, LambdaFamily, Params, lam_of, lambda_parameter
+from .family import EVERYWHERE, Domain, LambdaFamily, Params, Values, lam_of, lambda_parameter
 
 
 def yeo_johnson_map(y: FloatArray, lam: float) -> FloatArray:
@@ -53,10 +53,10 @@ class YeoJohnson(LambdaFamily):
     domain_statement = "any real value (not scale invariant)"
     reading = "Box-Cox-like power of x + 1 (and of 1 - x for negatives); no constant-rate reading"
 
-    def normalise(self, t: Params) -> dict[str, Any]:
+    def normalise(self, t: Params) -> Values | None:
         lam = t.lam
         if lam is not None and lam != 2.0 and abs(lam - 2.0) < PARAM_FLOOR:
-            return {"lam": 2.0}
+            return replace(Values.of(t), lam=2.0)
         return super().normalise(t)
 
     def domain(self, t: Params, as_sent: bool = False) -> Domain:

@@ -7,8 +7,10 @@ from service.core.crossval import cross_validate
 from service.core.cvresult import CVReport
 from service.core.data import prepare
 from service.core.folds import make_plan
-from service.core.spec import Specification, build_design
+from service.core.spec import build_design
 from sklearn.linear_model import LinearRegression
+
+from tests.typed import spec_of
 
 
 def test_cv_block_states_the_error_its_scheme_and_the_back_transform():
@@ -16,7 +18,7 @@ def test_cv_block_states_the_error_its_scheme_and_the_back_transform():
     x = rng.uniform(0, 10, 50)
     y = 1.0 + 0.5 * x + rng.normal(0, 1.0, 50)
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "y", "transform": {"name": "identity"}},
             "predictors": [{"column": "x", "transform": {"name": "identity"}}],

@@ -11,7 +11,6 @@ from scipy import stats
 from service.api.encode import to_jsonable
 from service.api.render import contract
 from service.core import boxtidwell as bt
-from service.core import transforms as tr
 from service.core.cvresult import CVResult
 from service.core.data import prepare
 from service.core.likelihood import estimate_lambda
@@ -29,6 +28,8 @@ from service.selection.entries import (
 from service.selection.search import IN_BAND_RULE, OUT_OF_BAND_RULE, rank
 from service.selection.search_setup import Scored, SearchOptions
 
+from tests.typed import sent, tf
+
 RANKED_KEYS = [
     "cv_value",
     "cv_std_error",
@@ -43,9 +44,7 @@ RANKED_KEYS = [
 
 
 def _scored(resp: str, pred: str, folds: list[float]) -> Scored:
-    spec = Specification(
-        "y", tr.from_dict({"name": resp}), (PredictorSpec("x", tr.from_dict({"name": pred})),)
-    )
+    spec = Specification("y", tf({"name": resp}), (PredictorSpec("x", tf({"name": pred})),))
     fv = np.asarray(folds, float)
     # source: scipy.stats.sem for the standard error of the K fold errors
     value, se = float(fv.mean()), float(stats.sem(fv))
@@ -143,7 +142,7 @@ def engel_entry():
         "response": {"column": "foodexp", "transform": {"name": "log"}},
         "predictors": [{"column": "income", "transform": {"name": "log"}}],
     }
-    entry, _ = diagnose_specification(prep, spec, SearchOptions(), "test")
+    entry, _ = diagnose_specification(prep, sent(spec), SearchOptions(), "test")
     return entry, d
 
 

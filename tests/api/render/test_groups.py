@@ -9,6 +9,8 @@ from service.core.errors import BudgetError, ErrorRecord
 from service.selection.groups import GroupFailure, GroupsSummary, run_grouped
 from service.selection.search_setup import SearchOptions
 
+from tests.typed import predictors, responses
+
 
 def _columns():
     """Invented: two depots with a linear cost each, one with a constant (flat-rate) cost."""
@@ -22,7 +24,9 @@ def _columns():
 
 def test_the_grouped_search_summary_counts_groups_and_failures():
     prep = prepare({"columns": _columns()}, "cost", ["km"], group_by="depot")
-    opts = SearchOptions(response_transforms=["identity"], predictor_transforms=["identity"])
+    opts = SearchOptions(
+        response_transforms=responses(["identity"]), predictor_transforms=predictors(["identity"])
+    )
     body = run_grouped(prep, opts, "test")
     summary = body.search
     assert isinstance(summary, GroupsSummary)

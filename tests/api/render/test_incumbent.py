@@ -8,12 +8,15 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 from service.api.encode import to_jsonable
-from service.api.render import contract, renders
+from service.api.render import renders
+from service.core import transforms as tr
 from service.core.data import prepare
 from service.selection import incumbent as inc
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from sklearn.model_selection import KFold
+
+from tests.typed import predictors, responses, sent
 
 SEED = 3
 
@@ -38,11 +41,11 @@ def switched():
     cols = _columns()
     prep = prepare({"columns": cols}, "kwh", ["flow"])
     opts = SearchOptions(
-        response_transforms=["identity", "log"],
-        predictor_transforms=["identity", "log"],
+        response_transforms=responses(["identity", "log"]),
+        predictor_transforms=predictors(["identity", "log"]),
         top=1,
         seed=SEED,
-        incumbent=RAW,
+        incumbent=sent(RAW),
     )
     result = select(prep, opts, "test")
     return cols, result, result.body.incumbent, to_jsonable(result.body)["incumbent"]
@@ -84,9 +87,20 @@ def test_the_paired_difference_recomputed_with_kfold_and_statsmodels(switched):
 
 
 def test_an_incumbent_that_cannot_be_fitted_is_written_as_sent():
-    why = inc.IncumbentDecision(None, RAW, None, None, None, "switch", "cannot be fitted")
-    assert contract(why) == {
-        "specification": RAW,
+    raw = {
+        "response": {"column": "kwh", "transform": {"name": "box_cox", "lambda": 0.0005}},
+        "predictors": [{"column": "flow", "transform": {"name": "log", "shift": "auto"}}],
+        "intercept": True,
+    }
+    as_sent = sent(raw)
+    # the typed value reads the small lambda as the log's and leaves the shift to the data
+    assert as_sent.spec.response_transform == tr.Transform("box_cox", lam=0.0)
+    assert as_sent.spec.predictors[0].transform == tr.Transform("log")
+    why = inc.IncumbentDecision(
+        None, as_sent.as_sent, None, None, None, "switch", "cannot be fitted"
+    )
+    assert to_jsonable(why) == {
+        "specification": raw,  # shown back exactly as sent
         "rank": None,
         "cv": None,
         "difference": None,

@@ -11,13 +11,14 @@ from service.api.render.predictions import finite_list, predictions
 from service.core.data import prepare
 from service.core.model import build_model
 from service.core.predict import predict
-from service.core.spec import Specification
 from service.selection.entries import fitted_model
+
+from tests.typed import spec_of
 
 
 def _model(y, x, rt):
     prep = prepare({"columns": {"y": y.tolist(), "x": x.tolist()}}, "y", ["x"])
-    spec = Specification.from_dict(
+    spec = spec_of(
         {
             "response": {"column": "y", "transform": rt},
             "predictors": [{"column": "x", "transform": {"name": "identity"}}],

@@ -16,6 +16,8 @@ from service.selection.search import (
 from service.selection.search_setup import SearchOptions
 from service.selection.strategy import EXHAUSTIVE_LIMIT
 
+from tests.typed import predictors, responses
+
 
 def test_band_block_states_the_one_standard_error_threshold():
     # source: Hastie, Tibshirani & Friedman (2009) sec. 7.10: the band is the lowest CV
@@ -50,8 +52,8 @@ def test_failure_reasons_and_strategy_render_as_the_contract_states():
         {"columns": {"y": y.tolist(), "x": x.tolist(), "z": z.tolist()}}, "y", ["x", "z"]
     )
     opts = SearchOptions(
-        response_transforms=["identity", "reciprocal", "sqrt"],
-        predictor_transforms=["identity", "log", "square", "reciprocal"],
+        response_transforms=responses(["identity", "reciprocal", "sqrt"]),
+        predictor_transforms=predictors(["identity", "log", "square", "reciprocal"]),
     )
     body = to_jsonable(select(prep, opts, "t").body)
     search = body["search"]

@@ -13,7 +13,12 @@ from service.selection.request import Service, finish_body
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 
-OPTS = SearchOptions(response_transforms=["identity", "log"], predictor_transforms=["identity"])
+from tests.typed import predictors, responses, sent
+
+OPTS = SearchOptions(
+    response_transforms=responses(["identity", "log"]),
+    predictor_transforms=predictors(["identity"]),
+)
 
 
 def _columns(n=60, seed=2):
@@ -46,7 +51,7 @@ def test_trust_follows_the_warnings_and_an_incumbent_precedes_them():
     keys = list(to_jsonable(replace(body, incumbent=None, trust=None)))
     assert keys == ["data", "search", "ranking", "warnings"]
     inc = {"response": {"column": "y"}, "predictors": [{"column": "x"}]}
-    with_inc = select(prep, replace(OPTS, incumbent=inc), "t").body
+    with_inc = select(prep, replace(OPTS, incumbent=sent(inc)), "t").body
     assert list(to_jsonable(with_inc)) == ["data", "search", "ranking", "incumbent", "warnings"]
 
 

@@ -19,6 +19,8 @@ from service.selection.search_setup import SearchOptions
 from sklearn.model_selection import KFold
 from statsmodels.stats.proportion import proportion_confint
 
+from tests.typed import predictors, responses, spec_dict, spec_of
+
 TRUST_KEYS = [
     "stability",
     "resamples",
@@ -93,8 +95,8 @@ def _noise(seed=4, n=60):
 
 
 OPTS = SearchOptions(
-    response_transforms=["identity"],
-    predictor_transforms=["sqrt", "reciprocal", "square"],
+    response_transforms=responses(["identity"]),
+    predictor_transforms=predictors(["sqrt", "reciprocal", "square"]),
     top=1,
 )
 
@@ -125,13 +127,13 @@ def test_the_block_has_the_contract_fields_in_order_and_is_plain_json(noise_trus
     assert body["stability_details"]["contender_rule"] == t.CONTENDER_RULE
     # specifications are written as requests write them, labels as the ranking does
     firsts = body["stability_details"]["first"]
-    assert [t.scale_key(Specification.from_dict(f["specification"])) for f in firsts] == [
+    assert [t.scale_key(spec_of(f["specification"])) for f in firsts] == [
         t.scale_key(f.spec) for f in typed.stability.first
     ]
     assert [f["label"] for f in firsts] == [t.label(f.spec) for f in typed.stability.first]
     assert math.isclose(sum(f["share"] for f in firsts), 1.0)
     for fold, typed_fold in zip(body["optimism"]["folds"], typed.optimism.folds, strict=True):
-        assert fold["selected_specification"] == typed_fold.selected.to_dict()
+        assert fold["selected_specification"] == spec_dict(typed_fold.selected)
         assert fold["selected"] == t.label(typed_fold.selected)
 
 

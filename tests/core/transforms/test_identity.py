@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
-from service.core.transforms import Transform
+from service.core.transforms import Transform, read_back
 
 X = np.array([-1e6, -2.5, 0.0, 3.0, 7e8])
 
@@ -24,6 +24,6 @@ def test_identity_changes_nothing_and_returns_a_copy():
 def test_identity_facts():
     t = Transform("identity")
     assert t.is_identity and t.increasing and t.is_fitted and not t.needs_lambda
-    assert t.label("cost") == "cost" and t.to_dict() == {"name": "identity"}
+    assert t.label("cost") == "cost" and read_back(t) == t
     assert t.domain_mask(X).all() and t.domain_problem(X, "cost", "response") is None
     assert t.simplicity == 0

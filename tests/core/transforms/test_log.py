@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 import pytest
-from service.core.transforms import Transform, chosen_shift, from_dict, needs_shift
+from service.core.transforms import Transform, chosen_shift, needs_shift, read_back, written_alike
 
 ZEROS = np.array([0.0, 0.4, 2.0, 0.0, 5.0])
 
@@ -71,14 +71,16 @@ def test_chosen_shift_is_half_the_smallest_positive_value():
     assert needs_shift(ZEROS) and not needs_shift(np.array([0.1, 3.0]))
 
 
-def test_shift_in_labels_cost_and_contract_form():
+def test_shift_in_labels_cost_and_object_form():
     assert Transform("log").label("x") == "log(x)"
     assert Transform("log", shift=3.0).label("x") == "log(x, shift=3)"
     assert Transform("log", shift=0.0).simplicity == 1
     assert Transform("log", shift=0.5).simplicity == 4
     t = Transform("log", shift=0.2, estimated=True)
-    assert t.to_dict() == {"name": "log", "shift": 0.2, "estimated": True}
-    assert from_dict(t.to_dict()) == t
-    assert from_dict({"name": "log", "shift": "auto"}) == Transform("log")
+    # a chosen shift keeps its estimated mark when read back; a zero shift is written as a
+    # plain log (shift unset)
+    assert read_back(t) == t
+    assert written_alike(Transform("log", shift=0.0)) == Transform("log")
+    assert written_alike(Transform("log", shift=-0.0)) == Transform("log")
     assert not Transform("log").is_fitted and Transform("log", shift=0.0).is_fitted
     assert Transform("log", shift=0.0).log_jacobian(np.array([math.e])) == pytest.approx(-1.0)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from service.core.transforms import LADDER, Transform, from_dict, ladder_transform
+from service.core.transforms import LADDER, Transform, ladder_transform, read_back
 
 X = np.array([0.05, 0.3, 1.0, 2.5, 40.0])
 NAMED = [("sqrt", 0.5), ("reciprocal", -1.0), ("square", 2.0)]
@@ -78,9 +78,13 @@ def test_ladder_rungs_get_their_names():
     assert ladder_transform(-0.5) == Transform("power", exponent=-0.5)
 
 
-def test_power_labels_and_contract_form():
+def test_power_labels_and_object_form():
     t = Transform("power", exponent=0.25)
     assert t.label("x") == "power(x, exponent=0.25)"
     assert Transform("power").label("x") == "power(x, exponent=estimated)"
-    assert from_dict(t.to_dict()) == t
+    assert read_back(t) == t
+    # an exponent this close to 0 is the log (the family's normalise)
+    assert Transform("power", exponent=1e-4, estimated=True) == Transform(
+        "log", shift=0.0, estimated=True
+    )
     assert Transform("reciprocal").label("x") == "1/x" and Transform("square").label("x") == "x^2"

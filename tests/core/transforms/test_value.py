@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from service.core.transforms import FAMILIES, NUMERIC_NAMES, Transform, from_dict
+from service.core.transforms import FAMILIES, NUMERIC_NAMES, Transform, read_back, written_alike
 
 CONCRETE = [
     Transform("identity"),
@@ -42,14 +42,25 @@ def test_domain_mask_agrees_with_the_column_check(t):
 
 
 @pytest.mark.parametrize("t", CONCRETE, ids=lambda t: t.label("x"))
-def test_contract_form_round_trips(t):
-    back = from_dict(t.to_dict())
+def test_object_form_round_trips(t):
+    back = read_back(t)
     if t.name == "log" and t.shift == 0.0:
-        # the contract form leaves a zero shift out; it reads back as a log whose shift the
+        # the object form leaves a zero shift out; it reads back as a log whose shift the
         # rows decide (a model loader restores the zero, predict._transform)
-        assert back == Transform("log") and "shift" not in t.to_dict()
+        assert back == Transform("log") == written_alike(t)
     else:
-        assert back == t
+        assert back == t == written_alike(t)
+
+
+def test_the_estimated_mark_is_read_back_only_where_the_family_keeps_it():
+    fitted = Transform("box_cox", lam=0.3, estimated=True)
+    assert read_back(fitted) == fitted and written_alike(fitted) == fitted
+    power = Transform("power", exponent=0.4, estimated=True)
+    # the mark is written (written_alike keeps it) but a power reads back its exponent only
+    assert written_alike(power) == power
+    assert read_back(power) == Transform("power", exponent=0.4)
+    # a field the family does not take is not written
+    assert written_alike(Transform("sqrt", lam=0.5)) == Transform("sqrt")
 
 
 def test_inverses_give_nan_for_every_non_finite_result():
