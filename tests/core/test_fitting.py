@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+import scipy.linalg
 import scipy.stats
 import statsmodels.api as sm
 from service.core.errors import CandidateFailure
@@ -323,13 +324,35 @@ def test_condition_check_decides_as_the_eigenvalues_do(p):
     Gs = _stack_with_conditions(conds, p, rng)
     got = fitting._checked_factors(Gs, fitting.COND_LIMIT)
     assert got is not None
-    good, L = got
+    good, L, inv = got
     ev = np.linalg.eigvalsh(Gs)
     # source: numpy.linalg.eigvalsh, the condition check as written before (lambda_min >
     # lambda_max / 1e7), matrix by matrix
     assert good.tolist() == (ev[:, 0] > ev[:, -1] / fitting.COND_LIMIT).tolist()
     # source: numpy.linalg.cholesky of each matrix alone
     np.testing.assert_array_equal(L[7], np.linalg.cholesky(Gs[7]))
+    for k in np.flatnonzero(good)[::40]:
+        # source: scipy.linalg.solve_triangular (LAPACK trtrs) of L against the identity: the
+        # inverse factor, lower triangular with exact zeros above the diagonal
+        want = scipy.linalg.solve_triangular(L[k], np.eye(p), lower=True)
+        assert np.all(np.triu(inv[k], 1) == 0.0)
+        scale = np.linalg.norm(want) * np.linalg.cond(L[k]) * 1e-14
+        assert np.max(np.abs(inv[k] - want)) <= scale
+
+
+def test_a_matrix_is_solved_alike_in_any_stack():
+    rng = np.random.default_rng(11)
+    K, n, p = 40, 30, 6
+    X = rng.normal(0, 1, (K, n, p)) * np.array([1.0, 1e4, 1e-3, 1.0, 50.0, 1.0])
+    G = np.einsum("kni,knj->kij", X, X)
+    c = np.einsum("kni,kn->ki", X, rng.normal(0, 1, (K, n)))
+    B, ok, B1 = solve_batch_nested(G, c, 4)
+    for k in (0, 17, 39):
+        one, ok1, one1 = solve_batch_nested(G[k : k + 1], c[k : k + 1], 4)
+        # source: the definition (each matrix factored, inverted and solved alone)
+        assert ok1[0] == ok[k]
+        np.testing.assert_array_equal(one[0], B[k])
+        np.testing.assert_array_equal(one1[0], B1[k])
 
 
 @pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
