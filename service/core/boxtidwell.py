@@ -466,14 +466,46 @@ def _power_columns_stacked(
     return W, D
 
 
+def _power_columns_into(
+    L: np.ndarray, A: np.ndarray, boxcox_form: bool, W: np.ndarray, D: np.ndarray
+) -> None:
+    """:func:`_power_columns_stacked` of ``L`` (F, b, k) and ``A`` (F, k), written into ``W``
+    and ``D`` (F, b, k views of a larger buffer): element for element the same arithmetic."""
+    a3 = A[:, None, :]
+    if not boxcox_form:
+        np.multiply(a3, L, out=W)
+        np.exp(W, out=W)
+        np.multiply(W, L, out=D)
+        return
+    zero = np.abs(A) < 1e-12
+    if zero.any():
+        a3 = np.where(zero, 1.0, A)[:, None, :]
+    u = a3 * L
+    em1 = np.expm1(u)
+    np.divide(em1, a3, out=W)
+    em1 += 1.0
+    em1 *= L
+    em1 -= W
+    np.divide(em1, a3, out=D)
+    small = np.abs(u) < 1e-3
+    if small.any():
+        Ls, us = L[small], u[small]
+        D[small] = Ls * Ls * (0.5 + us / 3.0 + us * us / 8.0)
+    if zero.any():
+        z3 = np.broadcast_to(zero[:, None, :], L.shape)
+        np.copyto(W, L, where=z3)
+        np.copyto(D, 0.5 * L * L, where=z3)
+
+
 class _Folds:
     """The training problems of several folds, evaluated together.
 
-    Fold f uses the rows where ``M[f]`` is True (its training rows), its response row
-    ``Z[f]`` and its own powers.  The fixed cross-products X_f'X_f and X_f'z of every fold
-    are given (the column bank's fold Gram matrices: all rows minus the held-out rows) or
-    computed once.  The cross-products that involve the power columns are built per trial
-    for all folds at once: held-out rows are zeroed, so one stacked matrix product gives
+    Fold f uses its training rows ``train[f]``, its response row ``Z[f]`` and its own powers.
+    The fixed cross-products X_f'X_f and X_f'z of every fold are given (the column bank's
+    fold Gram matrices: all rows minus the held-out rows) or computed once.  Each fold's
+    training rows of X_f, log x and z are gathered once (folds with fewer training rows than
+    the largest padded with rows of zeros, whose power columns are zeroed), so a trial forms
+    the power columns on training rows only and one stacked product [W D]'[X_f W D z] gives
     every fold's exact training sums (after the first step each fold has its own powers, so
     there is no shared all-rows product to downdate).  A trial's normal equations of
     [X_f, W, D] are factored once for all folds (column-scaled Cholesky with the condition
@@ -486,6 +518,7 @@ class _Folds:
     predictors, all of the same sizes) are stacked the same way: ``Xf`` (C, n, p_f) and
     ``logx`` (C, n, k) hold every candidate's columns and ``owner[f]`` the candidate whose
     fold f is; without ``owner`` there is one candidate, ``Xf`` (n, p_f), ``logx`` (n, k).
+    When every fold trains on all rows (one problem per candidate) nothing is gathered.
     """
 
     def __init__(
@@ -503,23 +536,37 @@ class _Folds:
         if owner is None:
             Xf, logx, owner = Xf[None], logx[None], np.zeros(F, dtype=np.intp)
         self.Xf, self.logx, self.owner, self.train, self.bc = Xf, logx, owner, train, boxcox_form
-        self.shared = Xf.shape[0] == 1  # one candidate: its columns broadcast to every fold
         self.pf, self.k = Xf.shape[2], logx.shape[2]
-        M = np.zeros((F, n), dtype=bool)
-        for f, rows in enumerate(train):
-            M[f, rows] = True
-        self.M = M
         self.Z = Z
-        self.Zm = np.where(M, Z, 0.0)
+        sizes = np.array([rows.size for rows in train], dtype=np.intp)
+        m = int(sizes.max()) if F else 0
+        every = np.arange(n)
+        self.pad: np.ndarray | None = None  # (F, m) True on padding rows, when there are any
+        if (
+            Xf.shape[0] == F
+            and np.array_equal(owner, np.arange(F))
+            and np.all(sizes == n)
+            and all(np.array_equal(rows, every) for rows in train)
+        ):
+            self.Xt, self.Lt, self.Zt = Xf, logx, np.asarray(Z, dtype=float)
+        else:
+            rows_at = np.zeros((F, m), dtype=np.intp)
+            pad = np.zeros((F, m), dtype=bool)
+            for f, rows in enumerate(train):
+                rows_at[f, : rows.size] = rows
+                pad[f, rows.size :] = True
+            self.Xt = Xf[owner[:, None], rows_at]
+            self.Lt = logx[owner[:, None], rows_at]
+            self.Zt = Z[np.arange(F)[:, None], rows_at]
+            if pad.any():
+                self.pad = pad
+                self.Xt[pad] = 0.0
+                self.Lt[pad] = 0.0
+                self.Zt[pad] = 0.0
         if grams is None:
-            grams = np.stack(
-                [self._xf(f)[rows].T @ self._xf(f)[rows] for f, rows in enumerate(train)]
-            )
+            grams = np.matmul(np.swapaxes(self.Xt, 1, 2), self.Xt)
         if crosses is None:
-            crosses = np.empty((F, self.pf))
-            for o in np.unique(owner):  # per candidate, the one-candidate path's product
-                at = owner == o
-                crosses[at] = np.matmul(self.Zm[at], Xf[o])
+            crosses = np.matmul(self.Zt[:, None, :], self.Xt)[:, 0, :]
         self.Gff, self.cf = grams, crosses
 
     def _xf(self, f: int) -> np.ndarray:
@@ -533,41 +580,51 @@ class _Folds:
         """Folds ``idx`` at powers ``A`` (Fa, k): (rss (Fa,), coef of [X_f, W] (Fa, p_f + k),
         coef of [X_f, W, D] (Fa, p_f + 2k), qr (Fa,)).  rss is inf where a column or the fit
         is not finite; the last coefficients are NaN where there is no step (D not finite)
-        or, with ``qr`` True, where the QR path (:meth:`qr_full`) is still to be taken."""
-        n, k, pf = self.Z.shape[1], self.k, self.pf
+        or, with ``qr`` True, where the QR path (:meth:`qr_full`) is still to be taken.
+
+        Rows are taken in blocks of ``CHUNK_ROWS``: a block's columns and cross-products
+        are formed while it is in cache, its power columns kept for the residuals."""
+        F, m = self.Zt.shape
+        k, pf = self.k, self.pf
         Fa = idx.size
         P, P1 = pf + 2 * k, pf + k
-        M, Zm = self.M[idx], self.Zm[idx]
-        if self.shared:
-            Xo, Lo = self.Xf[0], self.logx[0]  # (n, p_f), (n, k)
-        else:
-            own = self.owner[idx]
-            Xo, Lo = self.Xf[own], self.logx[own]  # (Fa, n, p_f), (Fa, n, k)
-        G = np.empty((Fa, P, P))
-        G[:, :pf, :pf] = self.Gff[idx]
-        G[:, pf:, :] = 0.0
-        G[:, :pf, pf:] = 0.0
-        c = np.zeros((Fa, P))
-        c[:, :pf] = self.cf[idx]
-        wfin = np.ones(Fa, dtype=bool)
-        dfin = np.ones(Fa, dtype=bool)
+        every = Fa == F  # idx is sorted and distinct: all folds, no copy
+        S = np.zeros((Fa, 2 * k, P + 1))
         Ws: list[np.ndarray] = []
-        coef = np.full((Fa, P1), np.nan)
-        g = np.full((Fa, P), np.nan)
-        qr = np.zeros(Fa, dtype=bool)
         with np.errstate(over="ignore", invalid="ignore"):
-            for s in range(0, n, CHUNK_ROWS):
+            for s in range(0, m, CHUNK_ROWS):
                 sl = slice(s, s + CHUNK_ROWS)
-                W, D = _power_columns_stacked(Lo[..., sl, :], A, self.bc)
-                m = M[:, sl, None]
-                wfin &= np.all(np.isfinite(W) | ~m, axis=(1, 2))
-                dfin &= np.all(np.isfinite(D) | ~m, axis=(1, 2))
-                WD = np.where(m, np.concatenate([W, D], axis=2), 0.0)
-                Ws.append(WD[:, :, :k])
-                G[:, :pf, pf:] += np.matmul(np.swapaxes(Xo[..., sl, :], -1, -2), WD)
-                G[:, pf:, pf:] += np.matmul(WD.transpose(0, 2, 1), WD)
-                c[:, pf:] += np.matmul(Zm[:, None, sl], WD)[:, 0, :]
-            G[:, pf:, :pf] = G[:, :pf, pf:].transpose(0, 2, 1)
+                Xc = self.Xt[:, sl] if every else self.Xt[idx, sl]
+                Lc = self.Lt[:, sl] if every else self.Lt[idx, sl]
+                buf = np.empty((Fa, Lc.shape[1], P + 1))
+                buf[:, :, :pf] = Xc
+                buf[:, :, P] = self.Zt[:, sl] if every else self.Zt[idx, sl]
+                _power_columns_into(Lc, A, self.bc, buf[:, :, pf:P1], buf[:, :, P1:P])
+                if self.pad is not None:
+                    keep = ~(self.pad[:, sl] if every else self.pad[idx, sl])
+                    buf[:, :, pf:P] *= keep[:, :, None]
+                WD = buf[:, :, pf:P]
+                S += np.matmul(np.swapaxes(WD, 1, 2), buf)
+                Ws.append(buf)
+            # a column that is not finite makes its sum of squares not finite; a finite
+            # sum of squares leaves no doubt (the elements are checked where it is not)
+            diag = np.diagonal(S[:, :, pf:P], axis1=1, axis2=2)
+            wfin = np.all(np.isfinite(diag[:, :k]), axis=1)
+            dfin = np.all(np.isfinite(diag[:, k:]), axis=1)
+            for f in np.flatnonzero(~(wfin & dfin)):
+                wfin[f] = all(np.all(np.isfinite(b[f, :, pf:P1])) for b in Ws)
+                dfin[f] = all(np.all(np.isfinite(b[f, :, P1:P])) for b in Ws)
+            G = np.empty((Fa, P, P))
+            G[:, :pf, :pf] = self.Gff[idx]
+            G[:, pf:, :pf] = S[:, :, :pf]
+            G[:, :pf, pf:] = np.swapaxes(S[:, :, :pf], 1, 2)
+            G[:, pf:, pf:] = S[:, :, pf:P]
+            c = np.empty((Fa, P))
+            c[:, :pf] = self.cf[idx]
+            c[:, pf:] = S[:, :, P]
+            coef = np.full((Fa, P1), np.nan)
+            g = np.full((Fa, P), np.nan)
+            qr = np.zeros(Fa, dtype=bool)
             both = np.flatnonzero(wfin & dfin)
             if both.size:
                 Bf, ok, B1 = solve_batch_nested(G[both], c[both], P1)
@@ -579,19 +636,9 @@ class _Folds:
                 coef[rest[ok]] = B[ok]
                 for i in rest[~ok]:
                     coef[i] = self._qr(int(idx[i]), A[i], with_d=False)
-            cf, cw = coef[:, :pf], coef[:, pf:]
             rss = np.zeros(Fa)
-            for j, s in enumerate(range(0, n, CHUNK_ROWS)):
-                sl = slice(s, s + CHUNK_ROWS)
-                if self.shared:
-                    fixed = cf @ Xo[sl].T
-                else:  # per candidate, the one-candidate path's product
-                    fixed = np.empty((Fa, min(n, s + CHUNK_ROWS) - s))
-                    for o in np.unique(own):
-                        at = own == o
-                        fixed[at] = cf[at] @ self.Xf[o][sl].T
-                eta = fixed + np.matmul(Ws[j], cw[:, :, None])[:, :, 0]
-                r = np.where(M[:, sl], Zm[:, sl] - eta, 0.0)
+            for buf in Ws:
+                r = buf[:, :, P] - np.matmul(buf[:, :, :P1], coef[:, :, None])[:, :, 0]
                 rss += np.einsum("fb,fb->f", r, r)
         rss = np.where(wfin & np.isfinite(rss), rss, math.inf)
         return rss, coef, g, qr
