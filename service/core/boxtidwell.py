@@ -51,7 +51,12 @@ from scipy import optimize, stats
 from . import sources as src
 from . import transforms as tr
 from .errors import CandidateFailure
-from .fitting import qr_solve, solve_batch, solve_batch_nested
+from .fitting import (
+    qr_solve,
+    solve_batch,
+    solve_batch_nested,
+    solve_batch_with_inverse_diagonal,
+)
 
 POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
@@ -368,6 +373,61 @@ def _std_errors(
     n: int,
     p: int,
 ) -> np.ndarray | None:
+    """The standard errors of the powers ``a`` of one all-rows problem
+    (:func:`_std_errors_many` of a stack of one)."""
+    folds = _Folds(
+        z[None], Xf[None], logx[None], [np.arange(n)], boxcox_form, None, None, np.zeros(1, int)
+    )
+    return _std_errors_many(folds, np.asarray(a, float)[None], p)[0]
+
+
+def _std_errors_many(folds: _Folds, A: np.ndarray, p: int) -> list[np.ndarray | None]:
+    """Standard errors of the powers ``A`` (C, k) of all-rows problems stacked in ``folds``
+    (one per candidate, all rows): se_j = sqrt(s^2 [(A'A)^-1]_jj) / |b_j| for the column
+    dw_j/da of A = [X_f, W, D] at the estimate, s^2 = RSS(A) / (n - p) from the residuals,
+    b_j the coefficient of w_j in the fit on [X_f, W] (see the module docstring).  The
+    inverse diagonal and both fits come from the column-scaled normal equations of A, one
+    stacked factorisation, where they pass the condition check of ``fitting.solve_batch``;
+    the others are computed by pivoted QR (:func:`_std_errors_exact`).  None where the
+    augmented design is singular."""
+    C = A.shape[0]
+    pf, k = folds.pf, folds.k
+    P1 = pf + k
+    n = folds.Zt.shape[1]
+    idx = np.arange(C)
+    G, c, blocks, wfin, dfin = folds.assemble(idx, A)
+    out: list[np.ndarray | None] = [None] * C
+    exact = np.ones(C, dtype=bool)
+    both = np.flatnonzero(wfin & dfin)
+    if both.size:
+        Bf, ok, B1, dinv = solve_batch_with_inverse_diagonal(G[both], c[both], P1)
+        good = both[ok]
+        sub = [b[good] for b in blocks] if good.size < C else blocks
+        rss2 = _Folds.residual_sums(sub, Bf[ok])
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            var_g = dinv[ok][:, P1:] * (rss2 / (n - p))[:, None]
+            se = np.sqrt(np.maximum(var_g, 0.0)) / np.abs(B1[ok][:, pf:])
+        se = np.where(np.isfinite(se), se, np.nan)
+        for j, f in enumerate(good):
+            out[f] = se[j]
+        exact[good] = False
+    for f in np.flatnonzero(exact):
+        o = int(folds.owner[f])
+        out[f] = _std_errors_exact(folds.Z[f], folds.Xf[o], folds.logx[o], A[f], folds.bc, n, p)
+    return out
+
+
+def _std_errors_exact(
+    z: np.ndarray,
+    Xf: np.ndarray,
+    logx: np.ndarray,
+    a: np.ndarray,
+    boxcox_form: bool,
+    n: int,
+    p: int,
+) -> np.ndarray | None:
+    """:func:`_std_errors_many` of one problem by pivoted QR of the designs (the fit on [X_f,
+    W] by normal equations where they pass the condition check)."""
     W, D = power_columns(logx, a, boxcox_form)
     k = logx.shape[1]
     try:
@@ -574,23 +634,22 @@ class _Folds:
         out: np.ndarray = self.Xf[self.owner[f]]
         return out
 
-    def trial(
+    def assemble(
         self, idx: np.ndarray, A: np.ndarray
-    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """Folds ``idx`` at powers ``A`` (Fa, k): (rss (Fa,), coef of [X_f, W] (Fa, p_f + k),
-        coef of [X_f, W, D] (Fa, p_f + 2k), qr (Fa,)).  rss is inf where a column or the fit
-        is not finite; the last coefficients are NaN where there is no step (D not finite)
-        or, with ``qr`` True, where the QR path (:meth:`qr_full`) is still to be taken.
+    ) -> tuple[np.ndarray, np.ndarray, list[np.ndarray], np.ndarray, np.ndarray]:
+        """Folds ``idx`` at powers ``A`` (Fa, k): the normal equations of [X_f, W, D] (G (Fa,
+        P, P), c (Fa, P)), the blocks of training rows [X_f, W, D, z] (Fa, b, P + 1) they were
+        summed from, and whether W and D are finite (Fa,) each.
 
         Rows are taken in blocks of ``CHUNK_ROWS``: a block's columns and cross-products
-        are formed while it is in cache, its power columns kept for the residuals."""
+        are formed while it is in cache."""
         F, m = self.Zt.shape
         k, pf = self.k, self.pf
         Fa = idx.size
         P, P1 = pf + 2 * k, pf + k
         every = Fa == F  # idx is sorted and distinct: all folds, no copy
         S = np.zeros((Fa, 2 * k, P + 1))
-        Ws: list[np.ndarray] = []
+        blocks: list[np.ndarray] = []
         with np.errstate(over="ignore", invalid="ignore"):
             for s in range(0, m, CHUNK_ROWS):
                 sl = slice(s, s + CHUNK_ROWS)
@@ -603,43 +662,65 @@ class _Folds:
                 if self.pad is not None:
                     keep = ~(self.pad[:, sl] if every else self.pad[idx, sl])
                     buf[:, :, pf:P] *= keep[:, :, None]
-                WD = buf[:, :, pf:P]
-                S += np.matmul(np.swapaxes(WD, 1, 2), buf)
-                Ws.append(buf)
-            # a column that is not finite makes its sum of squares not finite; a finite
-            # sum of squares leaves no doubt (the elements are checked where it is not)
-            diag = np.diagonal(S[:, :, pf:P], axis1=1, axis2=2)
-            wfin = np.all(np.isfinite(diag[:, :k]), axis=1)
-            dfin = np.all(np.isfinite(diag[:, k:]), axis=1)
-            for f in np.flatnonzero(~(wfin & dfin)):
-                wfin[f] = all(np.all(np.isfinite(b[f, :, pf:P1])) for b in Ws)
-                dfin[f] = all(np.all(np.isfinite(b[f, :, P1:P])) for b in Ws)
-            G = np.empty((Fa, P, P))
-            G[:, :pf, :pf] = self.Gff[idx]
-            G[:, pf:, :pf] = S[:, :, :pf]
-            G[:, :pf, pf:] = np.swapaxes(S[:, :, :pf], 1, 2)
-            G[:, pf:, pf:] = S[:, :, pf:P]
-            c = np.empty((Fa, P))
-            c[:, :pf] = self.cf[idx]
-            c[:, pf:] = S[:, :, P]
-            coef = np.full((Fa, P1), np.nan)
-            g = np.full((Fa, P), np.nan)
-            qr = np.zeros(Fa, dtype=bool)
-            both = np.flatnonzero(wfin & dfin)
-            if both.size:
-                Bf, ok, B1 = solve_batch_nested(G[both], c[both], P1)
-                g[both[ok]], coef[both[ok]] = Bf[ok], B1[ok]
-                qr[both[~ok]] = True
-            rest = np.flatnonzero(wfin & np.isnan(coef[:, 0]))
-            if rest.size:
+                S += np.matmul(np.swapaxes(buf[:, :, pf:P], 1, 2), buf)
+                blocks.append(buf)
+        # a column that is not finite makes its sum of squares not finite; a finite sum of
+        # squares leaves no doubt (the elements are checked only where it is not)
+        diag = np.diagonal(S[:, :, pf:P], axis1=1, axis2=2)
+        wfin = np.all(np.isfinite(diag[:, :k]), axis=1)
+        dfin = np.all(np.isfinite(diag[:, k:]), axis=1)
+        for f in np.flatnonzero(~(wfin & dfin)):
+            wfin[f] = all(np.all(np.isfinite(b[f, :, pf:P1])) for b in blocks)
+            dfin[f] = all(np.all(np.isfinite(b[f, :, P1:P])) for b in blocks)
+        G = np.empty((Fa, P, P))
+        G[:, :pf, :pf] = self.Gff[idx]
+        G[:, pf:, :pf] = S[:, :, :pf]
+        G[:, :pf, pf:] = np.swapaxes(S[:, :, :pf], 1, 2)
+        G[:, pf:, pf:] = S[:, :, pf:P]
+        c = np.empty((Fa, P))
+        c[:, :pf] = self.cf[idx]
+        c[:, pf:] = S[:, :, P]
+        return G, c, blocks, wfin, dfin
+
+    @staticmethod
+    def residual_sums(blocks: list[np.ndarray], coef: np.ndarray) -> np.ndarray:
+        """Sum of squared residuals (Fa,) of z on the first ``coef.shape[1]`` columns of the
+        blocks [X_f, W, D, z] with coefficients ``coef`` (Fa, q), from the residuals."""
+        q = coef.shape[1]
+        rss = np.zeros(coef.shape[0])
+        with np.errstate(over="ignore", invalid="ignore"):
+            for buf in blocks:
+                r = buf[:, :, -1] - np.matmul(buf[:, :, :q], coef[:, :, None])[:, :, 0]
+                rss += np.einsum("fb,fb->f", r, r)
+        return rss
+
+    def trial(
+        self, idx: np.ndarray, A: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Folds ``idx`` at powers ``A`` (Fa, k): (rss (Fa,), coef of [X_f, W] (Fa, p_f + k),
+        coef of [X_f, W, D] (Fa, p_f + 2k), qr (Fa,)).  rss is inf where a column or the fit
+        is not finite; the last coefficients are NaN where there is no step (D not finite)
+        or, with ``qr`` True, where the QR path (:meth:`qr_full`) is still to be taken."""
+        k, pf = self.k, self.pf
+        Fa = idx.size
+        P, P1 = pf + 2 * k, pf + k
+        G, c, blocks, wfin, dfin = self.assemble(idx, A)
+        coef = np.full((Fa, P1), np.nan)
+        g = np.full((Fa, P), np.nan)
+        qr = np.zeros(Fa, dtype=bool)
+        both = np.flatnonzero(wfin & dfin)
+        if both.size:
+            Bf, ok, B1 = solve_batch_nested(G[both], c[both], P1)
+            g[both[ok]], coef[both[ok]] = Bf[ok], B1[ok]
+            qr[both[~ok]] = True
+        rest = np.flatnonzero(wfin & np.isnan(coef[:, 0]))
+        if rest.size:
+            with np.errstate(over="ignore", invalid="ignore"):
                 B, ok = solve_batch(G[rest][:, :P1, :P1], c[rest][:, :P1])
                 coef[rest[ok]] = B[ok]
                 for i in rest[~ok]:
                     coef[i] = self._qr(int(idx[i]), A[i], with_d=False)
-            rss = np.zeros(Fa)
-            for buf in Ws:
-                r = buf[:, :, P] - np.matmul(buf[:, :, :P1], coef[:, :, None])[:, :, 0]
-                rss += np.einsum("fb,fb->f", r, r)
+        rss = self.residual_sums(blocks, coef)
         rss = np.where(wfin & np.isfinite(rss), rss, math.inf)
         return rss, coef, g, qr
 
@@ -780,6 +861,7 @@ def estimate_many_powers(
             a, rss, conv, its, _left = _damped_steps(
                 folds.trial, folds.qr_full, len(part), pf, k, np.ones(k)
             )
+            settled: list[tuple[int, int, np.ndarray, float, str]] = []
             for f, i in enumerate(part):
                 z, Xf, x, logx = inputs[i]
                 prob = _Problem(z, Xf, logx, boxcox_form)
@@ -790,7 +872,23 @@ def estimate_many_powers(
                 except CandidateFailure as exc:
                     out[i] = exc
                     continue
-                se = _std_errors(z, Xf, logx, af, boxcox_form, n, pf + 2 * k)
+                settled.append((f, i, af, rf, method))
+            if not settled:
+                continue
+            at = np.array([f for f, *_r in settled])
+            if at.size < len(part):  # the candidates that failed are left out of the stack
+                folds = _Folds(
+                    folds.Z[at],
+                    folds.Xf[at],
+                    folds.logx[at],
+                    [every] * at.size,
+                    boxcox_form,
+                    None,
+                    None,
+                    np.arange(at.size),
+                )
+            ses = _std_errors_many(folds, np.stack([af for _f, _i, af, *_r in settled]), pf + 2 * k)
+            for (f, i, af, rf, method), se in zip(settled, ses, strict=True):
                 out[i] = PowerFit(
                     af, se, bool(conv[f]) or method == "profile", int(its[f]), method, rf
                 )

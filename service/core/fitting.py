@@ -250,9 +250,27 @@ def solve_batch_nested(
     submatrix of the scaled matrix has its eigenvalues inside the full one's range (Cauchy
     interlacing), so its condition number is no larger.
     """
+    B, good, B1, _ = _solve_nested(G, c, lead, False)
+    return B, good, B1
+
+
+def solve_batch_with_inverse_diagonal(
+    G: np.ndarray, c: np.ndarray, lead: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`solve_batch_nested` plus the diagonal of every G_k^-1 (K, p) (NaN where not
+    ``ok``), from the same inverse factors: G^-1 = D^-1 L^-T L^-1 D^-1 with D the column
+    scales, so (G^-1)_jj = sum_i (L^-1)_ij^2 / d_j^2 (the unscaled covariance diagonal of
+    least squares)."""
+    return _solve_nested(G, c, lead, True)
+
+
+def _solve_nested(
+    G: np.ndarray, c: np.ndarray, lead: int, with_diagonal: bool
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     K, p, _ = G.shape
     B = np.full((K, p), np.nan)
     B1 = np.full((K, lead), np.nan)
+    diag = np.full((K, p) if with_diagonal else (0, p), np.nan)
     _L, cs, d, good, inv = _factor_batch(G, c)
     if inv is not None:  # L^-T (L^-1 c) with the inverse factors of the condition check
         w = np.matmul(inv, cs[:, :, None])
@@ -262,7 +280,9 @@ def solve_batch_nested(
                 np.matmul(np.swapaxes(inv[:, :lead, :lead], 1, 2), w[:, :lead])[:, :, 0]
                 / d[:, :lead]
             )
-    return B, good, B1
+        if with_diagonal:
+            diag[good] = np.einsum("kij,kij->kj", inv, inv) / (d * d)
+    return B, good, B1, diag
 
 
 def qr_solve(
