@@ -403,7 +403,7 @@ def _std_errors_many(folds: _Folds, A: np.ndarray, p: int) -> list[np.ndarray | 
         Bf, ok, B1, dinv = solve_batch_with_inverse_diagonal(G[both], c[both], P1)
         good = both[ok]
         sub = [b[good] for b in blocks] if good.size < C else blocks
-        rss2 = _Folds.residual_sums(sub, Bf[ok])
+        rss2 = folds.residual_sums(good, sub, Bf[ok])
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             var_g = dinv[ok][:, P1:] * (rss2 / (n - p))[:, None]
             se = np.sqrt(np.maximum(var_g, 0.0)) / np.abs(B1[ok][:, pf:])
@@ -529,9 +529,11 @@ def _power_columns_stacked(
 def _power_columns_into(
     L: np.ndarray, A: np.ndarray, boxcox_form: bool, W: np.ndarray, D: np.ndarray
 ) -> None:
-    """:func:`_power_columns_stacked` of ``L`` (F, b, k) and ``A`` (F, k), written into ``W``
-    and ``D`` (F, b, k views of a larger buffer): element for element the same arithmetic."""
-    a3 = A[:, None, :]
+    """:func:`power_columns` for several power vectors at once, written into ``W`` and ``D``
+    (F, k, b): ``L`` (F, k, b) log x, one column per row of it (rows of the table along the
+    last axis, so every pass runs over contiguous memory), ``A`` (F, k) powers; element for
+    element the arithmetic of :func:`_power_columns_stacked`."""
+    a3 = A[:, :, None]
     if not boxcox_form:
         np.multiply(a3, L, out=W)
         np.exp(W, out=W)
@@ -539,7 +541,7 @@ def _power_columns_into(
         return
     zero = np.abs(A) < 1e-12
     if zero.any():
-        a3 = np.where(zero, 1.0, A)[:, None, :]
+        a3 = np.where(zero, 1.0, A)[:, :, None]
     u = a3 * L
     em1 = np.expm1(u)
     np.divide(em1, a3, out=W)
@@ -552,7 +554,7 @@ def _power_columns_into(
         Ls, us = L[small], u[small]
         D[small] = Ls * Ls * (0.5 + us / 3.0 + us * us / 8.0)
     if zero.any():
-        z3 = np.broadcast_to(zero[:, None, :], L.shape)
+        z3 = np.broadcast_to(zero[:, :, None], L.shape)
         np.copyto(W, L, where=z3)
         np.copyto(D, 0.5 * L * L, where=z3)
 
@@ -563,22 +565,21 @@ class _Folds:
     Fold f uses its training rows ``train[f]``, its response row ``Z[f]`` and its own powers.
     The fixed cross-products X_f'X_f and X_f'z of every fold are given (the column bank's
     fold Gram matrices: all rows minus the held-out rows) or computed once.  Each fold's
-    training rows of X_f, log x and z are gathered once (folds with fewer training rows than
-    the largest padded with rows of zeros, whose power columns are zeroed), so a trial forms
-    the power columns on training rows only and one stacked product [W D]'[X_f W D z] gives
-    every fold's exact training sums (after the first step each fold has its own powers, so
-    there is no shared all-rows product to downdate).  A trial's normal equations of
-    [X_f, W, D] are factored once for all folds (column-scaled Cholesky with the condition
-    check of ``fitting.solve_batch``); the leading block gives the fit on [X_f, W] (its RSS,
-    from the residuals) and the whole the next Gauss-Newton step.  A fold that fails the
-    check is solved by pivoted QR of its assembled training design, as in
-    :class:`_Problem`.
+    training rows of X_f, log x and z are gathered once, column by column (folds with fewer
+    training rows than the largest padded with rows of zeros, whose power columns are
+    zeroed), so a trial forms the power columns on training rows only and three stacked
+    products [W D]'[X_f], [W D]'[W D], [W D]'z give every fold's exact training sums (after
+    the first step each fold has its own powers, so there is no shared all-rows product to
+    downdate).  A trial's normal equations of [X_f, W, D] are factored once for all folds
+    (column-scaled Cholesky with the condition check of ``fitting.solve_batch``); the
+    leading block gives the fit on [X_f, W] (its RSS, from the residuals) and the whole the
+    next Gauss-Newton step.  A fold that fails the check is solved by pivoted QR of its
+    assembled training design, as in :class:`_Problem`.
 
     The folds of several candidates (each with its own fixed columns and powered
     predictors, all of the same sizes) are stacked the same way: ``Xf`` (C, n, p_f) and
     ``logx`` (C, n, k) hold every candidate's columns and ``owner[f]`` the candidate whose
     fold f is; without ``owner`` there is one candidate, ``Xf`` (n, p_f), ``logx`` (n, k).
-    When every fold trains on all rows (one problem per candidate) nothing is gathered.
     """
 
     def __init__(
@@ -600,33 +601,31 @@ class _Folds:
         self.Z = Z
         sizes = np.array([rows.size for rows in train], dtype=np.intp)
         m = int(sizes.max()) if F else 0
-        every = np.arange(n)
         self.pad: np.ndarray | None = None  # (F, m) True on padding rows, when there are any
-        if (
-            Xf.shape[0] == F
-            and np.array_equal(owner, np.arange(F))
-            and np.all(sizes == n)
-            and all(np.array_equal(rows, every) for rows in train)
-        ):
-            self.Xt, self.Lt, self.Zt = Xf, logx, np.asarray(Z, dtype=float)
+        # (F, p_f, m), (F, k, m), (F, m): every fold's training rows, a column a row
+        if np.all(sizes == n) and all(np.array_equal(rows, np.arange(n)) for rows in train):
+            self.XT = np.ascontiguousarray(np.swapaxes(Xf, 1, 2)[owner])
+            self.LT = np.ascontiguousarray(np.swapaxes(logx, 1, 2)[owner])
+            self.Zt = np.ascontiguousarray(Z, dtype=float)
         else:
             rows_at = np.zeros((F, m), dtype=np.intp)
             pad = np.zeros((F, m), dtype=bool)
             for f, rows in enumerate(train):
                 rows_at[f, : rows.size] = rows
                 pad[f, rows.size :] = True
-            self.Xt = Xf[owner[:, None], rows_at]
-            self.Lt = logx[owner[:, None], rows_at]
+            at = (owner[:, None], rows_at)
+            self.XT = np.ascontiguousarray(np.swapaxes(Xf[at], 1, 2))
+            self.LT = np.ascontiguousarray(np.swapaxes(logx[at], 1, 2))
             self.Zt = Z[np.arange(F)[:, None], rows_at]
             if pad.any():
                 self.pad = pad
-                self.Xt[pad] = 0.0
-                self.Lt[pad] = 0.0
+                self.XT *= ~pad[:, None, :]
+                self.LT *= ~pad[:, None, :]
                 self.Zt[pad] = 0.0
         if grams is None:
-            grams = np.matmul(np.swapaxes(self.Xt, 1, 2), self.Xt)
+            grams = np.matmul(self.XT, np.swapaxes(self.XT, 1, 2))
         if crosses is None:
-            crosses = np.matmul(self.Zt[:, None, :], self.Xt)[:, 0, :]
+            crosses = np.matmul(self.XT, self.Zt[:, :, None])[:, :, 0]
         self.Gff, self.cf = grams, crosses
 
     def _xf(self, f: int) -> np.ndarray:
@@ -638,59 +637,69 @@ class _Folds:
         self, idx: np.ndarray, A: np.ndarray
     ) -> tuple[np.ndarray, np.ndarray, list[np.ndarray], np.ndarray, np.ndarray]:
         """Folds ``idx`` at powers ``A`` (Fa, k): the normal equations of [X_f, W, D] (G (Fa,
-        P, P), c (Fa, P)), the blocks of training rows [X_f, W, D, z] (Fa, b, P + 1) they were
-        summed from, and whether W and D are finite (Fa,) each.
+        P, P), c (Fa, P)), the blocks of power columns [W D] (Fa, 2k, b) of the training rows
+        they were summed from, and whether W and D are finite (Fa,) each.
 
         Rows are taken in blocks of ``CHUNK_ROWS``: a block's columns and cross-products
         are formed while it is in cache."""
         F, m = self.Zt.shape
         k, pf = self.k, self.pf
         Fa = idx.size
-        P, P1 = pf + 2 * k, pf + k
+        P = pf + 2 * k
         every = Fa == F  # idx is sorted and distinct: all folds, no copy
-        S = np.zeros((Fa, 2 * k, P + 1))
+        SX = np.zeros((Fa, 2 * k, pf))
+        SW = np.zeros((Fa, 2 * k, 2 * k))
+        Sz = np.zeros((Fa, 2 * k, 1))
         blocks: list[np.ndarray] = []
         with np.errstate(over="ignore", invalid="ignore"):
             for s in range(0, m, CHUNK_ROWS):
                 sl = slice(s, s + CHUNK_ROWS)
-                Xc = self.Xt[:, sl] if every else self.Xt[idx, sl]
-                Lc = self.Lt[:, sl] if every else self.Lt[idx, sl]
-                buf = np.empty((Fa, Lc.shape[1], P + 1))
-                buf[:, :, :pf] = Xc
-                buf[:, :, P] = self.Zt[:, sl] if every else self.Zt[idx, sl]
-                _power_columns_into(Lc, A, self.bc, buf[:, :, pf:P1], buf[:, :, P1:P])
+                Lc = self.LT[:, :, sl] if every else self.LT[idx, :, sl]
+                WD = np.empty((Fa, 2 * k, Lc.shape[2]))
+                _power_columns_into(Lc, A, self.bc, WD[:, :k], WD[:, k:])
                 if self.pad is not None:
-                    keep = ~(self.pad[:, sl] if every else self.pad[idx, sl])
-                    buf[:, :, pf:P] *= keep[:, :, None]
-                S += np.matmul(np.swapaxes(buf[:, :, pf:P], 1, 2), buf)
-                blocks.append(buf)
+                    WD *= ~(self.pad[:, None, sl] if every else self.pad[idx, None, sl])
+                Xc = self.XT[:, :, sl] if every else self.XT[idx, :, sl]
+                zc = self.Zt[:, sl] if every else self.Zt[idx, sl]
+                SX += np.matmul(WD, np.swapaxes(Xc, 1, 2))
+                SW += np.matmul(WD, np.swapaxes(WD, 1, 2))
+                Sz += np.matmul(WD, zc[:, :, None])
+                blocks.append(WD)
         # a column that is not finite makes its sum of squares not finite; a finite sum of
         # squares leaves no doubt (the elements are checked only where it is not)
-        diag = np.diagonal(S[:, :, pf:P], axis1=1, axis2=2)
+        diag = np.diagonal(SW, axis1=1, axis2=2)
         wfin = np.all(np.isfinite(diag[:, :k]), axis=1)
         dfin = np.all(np.isfinite(diag[:, k:]), axis=1)
         for f in np.flatnonzero(~(wfin & dfin)):
-            wfin[f] = all(np.all(np.isfinite(b[f, :, pf:P1])) for b in blocks)
-            dfin[f] = all(np.all(np.isfinite(b[f, :, P1:P])) for b in blocks)
+            wfin[f] = all(np.all(np.isfinite(b[f, :k])) for b in blocks)
+            dfin[f] = all(np.all(np.isfinite(b[f, k:])) for b in blocks)
         G = np.empty((Fa, P, P))
         G[:, :pf, :pf] = self.Gff[idx]
-        G[:, pf:, :pf] = S[:, :, :pf]
-        G[:, :pf, pf:] = np.swapaxes(S[:, :, :pf], 1, 2)
-        G[:, pf:, pf:] = S[:, :, pf:P]
+        G[:, pf:, :pf] = SX
+        G[:, :pf, pf:] = np.swapaxes(SX, 1, 2)
+        G[:, pf:, pf:] = SW
         c = np.empty((Fa, P))
         c[:, :pf] = self.cf[idx]
-        c[:, pf:] = S[:, :, P]
+        c[:, pf:] = Sz[:, :, 0]
         return G, c, blocks, wfin, dfin
 
-    @staticmethod
-    def residual_sums(blocks: list[np.ndarray], coef: np.ndarray) -> np.ndarray:
-        """Sum of squared residuals (Fa,) of z on the first ``coef.shape[1]`` columns of the
-        blocks [X_f, W, D, z] with coefficients ``coef`` (Fa, q), from the residuals."""
+    def residual_sums(
+        self, idx: np.ndarray, blocks: list[np.ndarray], coef: np.ndarray
+    ) -> np.ndarray:
+        """Sum of squared residuals (Fa,) of folds ``idx`` on the first ``coef.shape[1]``
+        columns of [X_f, W, D] (``blocks``: [W D] from :meth:`assemble` for these folds) with
+        coefficients ``coef`` (Fa, q), from the residuals themselves."""
+        pf = self.pf
         q = coef.shape[1]
-        rss = np.zeros(coef.shape[0])
+        every = idx.size == self.Zt.shape[0]
+        cf, cw = coef[:, None, :pf], coef[:, None, pf:]
+        rss = np.zeros(idx.size)
         with np.errstate(over="ignore", invalid="ignore"):
-            for buf in blocks:
-                r = buf[:, :, -1] - np.matmul(buf[:, :, :q], coef[:, :, None])[:, :, 0]
+            for j, s in enumerate(range(0, self.Zt.shape[1], CHUNK_ROWS)):
+                sl = slice(s, s + CHUNK_ROWS)
+                Xc = self.XT[:, :, sl] if every else self.XT[idx, :, sl]
+                r = self.Zt[:, sl] if every else self.Zt[idx, sl]
+                r = r - np.matmul(cf, Xc)[:, 0] - np.matmul(cw, blocks[j][:, : q - pf])[:, 0]
                 rss += np.einsum("fb,fb->f", r, r)
         return rss
 
@@ -720,7 +729,7 @@ class _Folds:
                 coef[rest[ok]] = B[ok]
                 for i in rest[~ok]:
                     coef[i] = self._qr(int(idx[i]), A[i], with_d=False)
-        rss = self.residual_sums(blocks, coef)
+        rss = self.residual_sums(idx, blocks, coef)
         rss = np.where(wfin & np.isfinite(rss), rss, math.inf)
         return rss, coef, g, qr
 

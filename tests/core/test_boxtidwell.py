@@ -471,3 +471,62 @@ def test_stacked_standard_errors_equal_statsmodels_ols(kind, monkeypatch):
         np.testing.assert_allclose(fit.std_errors, _ols_std_errors(z, Xf, x, fit.powers), rtol=1e-7)
     # the collinear fixed columns (scaled condition ~1e12) fail the check: QR for each
     assert len(exact) == (len(problems) if kind == "collinear" else 0)
+
+
+@pytest.mark.parametrize("bc", [True, False])
+def test_stacked_power_columns_equal_the_closed_form(bc):
+    rng = np.random.default_rng(31)
+    F, k, b = 6, 2, 500
+    x = rng.uniform(0.2, 40.0, (F, k, b))
+    x[:, :, :5] = 1.0 + 1e-5 * rng.normal(size=(F, k, 5))  # u = a log x near 0: the series
+    A = np.array([[0.7, -1.3], [0.0, 2.0], [1e-13, -0.4], [3.0, -3.0], [1e-4, 0.5], [1, 1]])
+    L = np.log(x)
+    WD = np.empty((F, 2 * k, b))
+    bt._power_columns_into(L, A, bc, WD[:, :k], WD[:, k:])
+    for f in range(F):
+        W1, D1 = bt.power_columns(L[f].T, A[f], bc)
+        # source: power_columns, one problem's columns: the same arithmetic element for element
+        np.testing.assert_array_equal(WD[f, :k], W1.T)
+        np.testing.assert_array_equal(WD[f, k:], D1.T)
+        for j in range(k):
+            a, xj, Lj = A[f, j], x[f, j], L[f, j]
+            if bc and abs(a) < 1e-12:
+                w, dw = Lj, 0.5 * Lj**2
+            elif bc:
+                # source: the Box-Cox column (x^a - 1) / a and its derivative in a,
+                # (x^a log x - w) / a (closed forms; near a log x = 0 the difference cancels,
+                # so those rows are compared with an absolute tolerance)
+                w = (xj**a - 1.0) / a
+                dw = (xj**a * Lj - w) / a
+            else:
+                w, dw = xj**a, xj**a * Lj  # source: x^a and its derivative x^a log x
+            np.testing.assert_allclose(WD[f, j], w, rtol=1e-12, atol=1e-9)
+            np.testing.assert_allclose(WD[f, k + j], dw, rtol=1e-9, atol=1e-6)
+
+
+@pytest.mark.parametrize("bc", [True, False])
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_folds_of_unequal_sizes_equal_the_fold_by_fold_fits(kind, bc):
+    rng = np.random.default_rng(len(kind) + 3 * bc)
+    n = 203  # 5 folds of 40 or 41 held-out rows: training sets of 162 and 163 rows
+    train = _fold_rows(n, 5, 4) + _fold_rows(n, 5, 5)
+    assert len({rows.size for rows in train}) == 2
+    problems = []
+    for c in range(3):
+        z, Xf, x = _candidate(kind, rng, n, 1 + c % 2)
+        if not bc:  # plain powers x^a beside the fixed columns: no constant column
+            Xf = Xf[:, 1:]
+        start = bt.estimate_powers(z, Xf, x, boxcox_form=bc).powers
+        problems.append(bt.FoldPowerProblem(z, Xf, x, train, start))
+    got = bt.estimate_many_fold_powers(problems, boxcox_form=bc)
+    for pr, fits in zip(problems, got, strict=True):
+        assert not isinstance(fits, CandidateFailure)
+        for rows, fit in zip(pr.train, fits, strict=True):
+            one = bt.estimate_powers(
+                pr.z[rows], pr.Xf[rows], pr.x[rows], start=pr.start, boxcox_form=bc, with_se=False
+            )
+            # source: estimate_powers on the fold's training rows alone (its own
+            # cross-products, no padding); abs 1e-6 (the iteration stops at steps below
+            # 1e-6), RSS rel 1e-9
+            np.testing.assert_allclose(fit.powers, one.powers, rtol=0, atol=1e-6)
+            assert fit.rss == pytest.approx(one.rss, rel=1e-9)
