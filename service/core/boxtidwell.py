@@ -198,6 +198,7 @@ class _Problem:
         self.pf, self.k = Xf.shape[1], logx.shape[1]
         self.Gff = Xf.T @ Xf
         self.cf = Xf.T @ z
+        self.logxT = np.ascontiguousarray(logx.T)  # (k, n): rows along the last axis
 
     def trial(self, a: np.ndarray) -> tuple[float, np.ndarray | None, _Cache | None]:
         """State at powers ``a``: (rss, coef of [X_f, W]) plus the cross-products, or
@@ -233,6 +234,69 @@ class _Problem:
             r = self.z[sl] - self.Xf[sl] @ cf - W[sl] @ cw
             rss += float(r @ r)
         return rss, coef, cache
+
+    def rss_many(self, A: np.ndarray) -> np.ndarray:
+        """RSS (Q,) of the fits of z on [X_f, W(a)] at the powers ``A`` (Q, k), inf where a
+        column or the fit is not finite: the RSS :meth:`trial` gives, without the derivative
+        columns (a profile search needs no step) and with the fits of several powers solved
+        as one stack (``fitting.solve_batch``, pivoted QR where the condition check fails),
+        at most ``STACK_CELLS`` power-vector x rows at a time."""
+        n = self.z.size
+        step = max(1, STACK_CELLS // max(n, 1))
+        return np.concatenate(
+            [self._rss_group(A[s : s + step]) for s in range(0, A.shape[0], step)]
+        )
+
+    def _rss_group(self, A: np.ndarray) -> np.ndarray:
+        n, k, pf = self.z.size, self.k, self.pf
+        Q = A.shape[0]
+        P1 = pf + k
+        G = np.empty((Q, P1, P1))
+        G[:, :pf, :pf] = self.Gff
+        c = np.empty((Q, P1))
+        c[:, :pf] = self.cf
+        SX = np.zeros((Q, k, pf))
+        SW = np.zeros((Q, k, k))
+        Sz = np.zeros((Q, k, 1))
+        blocks: list[np.ndarray] = []
+        with np.errstate(over="ignore", invalid="ignore"):
+            for s in range(0, n, CHUNK_ROWS):
+                sl = slice(s, s + CHUNK_ROWS)
+                L = self.logxT[None, :, sl]  # (1, k, b)
+                W = np.empty((Q, k, L.shape[2]))
+                _power_w_into(L, A, self.bc, W)
+                SX += np.matmul(W, self.Xf[sl])
+                SW += np.matmul(W, np.swapaxes(W, 1, 2))
+                Sz += np.matmul(W, self.z[sl, None])
+                blocks.append(W)
+            fin = np.all(np.isfinite(np.diagonal(SW, axis1=1, axis2=2)), axis=1)
+            for q in np.flatnonzero(~fin):  # a sum of squares can overflow: check the elements
+                fin[q] = all(np.all(np.isfinite(b[q])) for b in blocks)
+            G[:, pf:, :pf] = SX
+            G[:, :pf, pf:] = np.swapaxes(SX, 1, 2)
+            G[:, pf:, pf:] = SW
+            c[:, pf:] = Sz[:, :, 0]
+            coef = np.full((Q, P1), np.nan)
+            at = np.flatnonzero(fin)
+            if at.size:
+                B, ok = solve_batch(G[at], c[at])
+                coef[at[ok]] = B[ok]
+                for q in at[~ok]:
+                    W = np.concatenate([b[q] for b in blocks], axis=1).T
+                    try:
+                        coef[q], _, _ = qr_solve(
+                            np.hstack([self.Xf, W]), self.z, with_condition=False
+                        )
+                    except CandidateFailure:  # rank-deficient: no fit, the RSS is inf
+                        coef[q] = np.nan
+            rss = np.zeros(Q)
+            for j, s in enumerate(range(0, n, CHUNK_ROWS)):
+                sl = slice(s, s + CHUNK_ROWS)
+                r = self.z[sl] - coef[:, :pf] @ self.Xf[sl].T
+                r -= np.matmul(coef[:, None, pf:], blocks[j])[:, 0]
+                rss += np.einsum("qb,qb->q", r, r)
+        good = fin & np.all(np.isfinite(coef), axis=1) & np.isfinite(rss)
+        return np.where(good, rss, math.inf)
 
     def solve(self, cache: _Cache, with_d: bool) -> np.ndarray | None:
         W, D, FWD, WDWD, wdz = cache
@@ -449,10 +513,11 @@ def _profile_search(
 ) -> tuple[np.ndarray, float]:
     """Minimise RSS over the powers, cycling over the powers: a grid over the whole range then
     bounded Brent near its best point, or with ``local`` bounded Brent alone within
-    ``a0 +- local`` (re-estimates in training folds, started from the all-rows estimate)."""
+    ``a0 +- local`` (re-estimates in training folds, started from the all-rows estimate).
+    The RSS at each point is :meth:`_Problem.rss_many`'s (the grid's points in one stack)."""
     a = np.asarray(a0, float).copy()
     k = a.size
-    best = prob.trial(a)[0]
+    best = float(prob.rss_many(a[None])[0])
     grid = np.linspace(POWER_BOUNDS[0], POWER_BOUNDS[1], 25)
     for _sweep in range(4):
         before = a.copy()
@@ -461,13 +526,15 @@ def _profile_search(
             def f(v: float, j: int = j) -> float:
                 trial = a.copy()
                 trial[j] = v
-                return prob.trial(trial)[0]
+                return float(prob.rss_many(trial[None])[0])
 
             if local is not None:
                 lo, hi = max(POWER_BOUNDS[0], a[j] - local), min(POWER_BOUNDS[1], a[j] + local)
                 vals, i = None, None
             else:
-                vals = np.array([f(g) for g in grid])
+                points = np.repeat(a[None], grid.size, axis=0)
+                points[:, j] = grid
+                vals = prob.rss_many(points)  # the whole grid in one stack
                 if not np.any(np.isfinite(vals)):
                     continue
                 i = int(np.argmin(np.where(np.isfinite(vals), vals, np.inf)))
@@ -557,6 +624,25 @@ def _power_columns_into(
         z3 = np.broadcast_to(zero[:, :, None], L.shape)
         np.copyto(W, L, where=z3)
         np.copyto(D, 0.5 * L * L, where=z3)
+
+
+def _power_w_into(L: np.ndarray, A: np.ndarray, boxcox_form: bool, W: np.ndarray) -> None:
+    """The power columns alone of :func:`_power_columns_into` (``L`` (1 or F, k, b), ``A``
+    (F, k), into ``W`` (F, k, b)): element for element the arithmetic of :func:`power_columns`'
+    w(a)."""
+    a3 = A[:, :, None]
+    if not boxcox_form:
+        np.multiply(a3, L, out=W)
+        np.exp(W, out=W)
+        return
+    zero = np.abs(A) < 1e-12
+    if zero.any():
+        a3 = np.where(zero, 1.0, A)[:, :, None]
+    np.multiply(a3, L, out=W)
+    np.expm1(W, out=W)
+    W /= a3
+    if zero.any():
+        np.copyto(W, L, where=np.broadcast_to(zero[:, :, None], W.shape))
 
 
 class _Folds:

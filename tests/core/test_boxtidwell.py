@@ -530,3 +530,28 @@ def test_folds_of_unequal_sizes_equal_the_fold_by_fold_fits(kind, bc):
             # 1e-6), RSS rel 1e-9
             np.testing.assert_allclose(fit.powers, one.powers, rtol=0, atol=1e-6)
             assert fit.rss == pytest.approx(one.rss, rel=1e-9)
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_rss_of_many_powers_equals_statsmodels_ols(kind):
+    rng = np.random.default_rng(len(kind) + 40)
+    n = 150
+    z, Xf, x = _candidate(kind, rng, n, 2)
+    prob = bt._Problem(z, Xf, np.log(x), True)
+    A = np.array([[1.0, 1.0], [0.0, 0.5], [-2.5, 3.0], [0.3, -1e-13], [2.9, -0.7]])
+    got = prob.rss_many(A)
+    for a, rss in zip(A, got, strict=True):
+        cols = [
+            np.log(x[:, j]) if abs(a[j]) < 1e-12 else (x[:, j] ** a[j] - 1) / a[j] for j in (0, 1)
+        ]
+        ref = sm.OLS(z, np.column_stack([Xf, *cols])).fit(method="qr").ssr
+        # source: statsmodels OLS (QR) on [X_f, (x^a - 1)/a]; rel 1e-8 (normal equations below
+        # condition 1e7 keep about nine digits of the coefficients, the RSS is second order)
+        assert rss == pytest.approx(ref, rel=1e-8)
+        # source: the one-point trial of the Gauss-Newton path, the same fit
+        assert rss == pytest.approx(prob.trial(a)[0], rel=1e-10)
+    x_big = x.copy()
+    x_big[0, 0] = 1e120  # x^3 overflows: the column is not finite, the RSS is inf
+    big = bt._Problem(z, Xf, np.log(x_big), True)
+    assert big.rss_many(np.array([[3.0, 1.0], [1.0, 1.0]]))[0] == np.inf
+    assert np.isfinite(big.rss_many(np.array([[1.0, 1.0]]))[0])
