@@ -337,19 +337,41 @@ class PowerFits:
         self.hits = 0
 
     @staticmethod
-    def key(z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool) -> bytes:
-        x = np.asarray(x, dtype=float)
-        one = x[:, None] if x.ndim == 1 else x  # one power: (n,) as (n, 1)
-        return inputs_key(b"boxcox" if boxcox_form else b"plain", z, Xf, one)
+    def key(
+        z: np.ndarray,
+        Xf: np.ndarray,
+        x: np.ndarray,
+        boxcox_form: bool,
+        seen: dict[int, bytes] | None = None,
+    ) -> bytes:
+        """The digest of one problem's inputs: the digest of the form and of each array's
+        own digest.  ``seen`` (array id -> digest, for arrays alive while it is used) lets
+        problems that share an array (the screening step's fixed columns on every response
+        scale) hash it once."""
+        parts = []
+        for a in (z, Xf, x):  # memoised by the id of the object passed in (kept alive)
+            d = seen.get(id(a)) if seen is not None else None
+            if d is None:
+                arr = np.asarray(a, dtype=float)
+                d = inputs_key(b"", arr[:, None] if a is x and arr.ndim == 1 else arr)
+                if seen is not None:
+                    seen[id(a)] = d
+            parts.append(d)
+        return inputs_key(
+            b"boxcox" if boxcox_form else b"plain", *(np.frombuffer(d, np.uint8) for d in parts)
+        )
+
+    def _take(self, key: bytes) -> bt.PowerFit | CandidateFailure | None:
+        got = self._fits.get(key)
+        if got is not None:
+            self.hits += 1
+        return got
 
     def get(
         self, z: np.ndarray, Xf: np.ndarray, x: np.ndarray, boxcox_form: bool
     ) -> bt.PowerFit | CandidateFailure | None:
         """The kept fit (or failure) of these inputs, or None when none is kept."""
-        got = self._fits.get(self.key(z, Xf, x, boxcox_form))
-        if got is not None:
-            self.hits += 1
-        return got
+        return self._take(self.key(z, Xf, x, boxcox_form))
 
     def put(
         self,
@@ -366,14 +388,17 @@ class PowerFits:
     ) -> list[bt.PowerFit | CandidateFailure]:
         """:func:`boxtidwell.estimate_many_powers` of ``problems`` ``(z, X_f, x)``: the kept
         fit (or failure) of each whose inputs were estimated before, the others in one
-        batch, kept for later."""
-        out = [self.get(z, Xf, x, boxcox_form) for z, Xf, x in problems]
+        batch, kept for later.  Each problem's inputs are hashed once, an array shared by
+        several problems once in all."""
+        seen: dict[int, bytes] = {}  # ids stay valid: ``problems`` holds every array
+        keys = [self.key(z, Xf, x, boxcox_form, seen) for z, Xf, x in problems]
+        out = [self._take(k) for k in keys]
         missing = [i for i, fit in enumerate(out) if fit is None]
         if missing:
             made = bt.estimate_many_powers([problems[i] for i in missing], boxcox_form)
             for i, fit in zip(missing, made, strict=True):
                 out[i] = fit
-                self.put(*problems[i], boxcox_form, fit)
+                self._fits[keys[i]] = fit
         return [fit for fit in out if fit is not None]
 
     def estimate(
@@ -381,13 +406,14 @@ class PowerFits:
     ) -> bt.PowerFit:
         """:func:`boxtidwell.estimate_powers` (started at 1, with standard errors) of these
         inputs: the kept fit, or estimated now and kept."""
-        got = self.get(z, Xf, x, boxcox_form)
+        key = self.key(z, Xf, x, boxcox_form)
+        got = self._take(key)
         if got is None:
             try:
                 got = bt.estimate_powers(z, Xf, x, boxcox_form=boxcox_form)
             except CandidateFailure as exc:
                 got = exc
-            self.put(z, Xf, x, boxcox_form, got)
+            self._fits[key] = got
         if isinstance(got, CandidateFailure):
             raise got
         return got
@@ -401,6 +427,7 @@ def screening_powers(
     seed: int,
     deadline: Deadline | None = None,
     fits: PowerFits | None = None,
+    skipped: list[str] | None = None,
 ) -> tuple[dict[tuple[tr.Transform, str], bt.PowerSummary], dict[tuple[tr.Transform, str], float]]:
     """All-rows (or seeded-subsample) Box-Tidwell power of each predictor per fixed response.
 
@@ -409,7 +436,8 @@ def screening_powers(
     predictor without effect cannot stall the others); one predictor's powers on every
     response scale take their steps together (:meth:`PowerFits.estimate_many`).  Past the
     request's ``deadline`` no further predictor is estimated: the search then runs
-    without the missing estimates' ladder rungs.  Each estimate is kept in ``fits`` (when
+    without the missing estimates' ladder rungs, and the predictors not reached are added
+    to ``skipped`` (when given).  Each estimate is kept in ``fits`` (when
     given), where a candidate with the same inputs finds it.  Returns
     ({(response, column): estimate summary}, {(response, column): power}).
     """
@@ -439,8 +467,10 @@ def screening_powers(
             scales.append((t, z))
     kept = fits if fits is not None else PowerFits()
     got: dict[tuple[tr.Transform, str], bt.PowerFit] = {}
-    for c in cols:
+    for i, c in enumerate(cols):
         if deadline is not None and deadline.passed():
+            if skipped is not None:
+                skipped.extend(cols[i:])
             break
         fixed = ([np.ones(rows.size)] if intercept else []) + [
             v for other in prep.predictors if other != c for v in base[other]

@@ -95,6 +95,8 @@ def failure_groups(reasons: dict[str, int]) -> list[FailureGroup]:
 
 
 SMALL_N = 50  # below this many rows the default search puts all predictors on one scale
+# the screening step's power estimates stop once this share of the time left has passed
+SCREEN_SHARE = 0.5
 
 
 def _simplicity_sorted(cands: list[Specification]) -> list[Specification]:
@@ -551,9 +553,22 @@ def select(
     box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings, lambdas)
     # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
     power_fits = cand.PowerFits()  # the screening step's fits, reused by equal candidates
+    # the screening estimates may use at most a share of the time left, so that candidates
+    # are still scored when there are many predictors and rows
+    screen_by = deadline.sooner(max(deadline.left(), 0.0) * SCREEN_SHARE)
+    unscreened: list[str] = []
     bt_info, bt_powers = cand.screening_powers(
-        prep, preds, resp, opts.intercept, opts.seed, deadline, power_fits
+        prep, preds, resp, opts.intercept, opts.seed, screen_by, power_fits, unscreened
     )
+    if unscreened:
+        n_open = sum(any(map(bt.is_open, o)) for o in preds)
+        warnings.append(
+            f"The power of {count_of(len(unscreened), 'predictor')} of {n_open} "
+            f"({', '.join(unscreened[:5])}{', ...' if len(unscreened) > 5 else ''}) was not "
+            f"estimated before the screening step's share of the time limit of "
+            f"{deadline.limit_s:g} s ran out, so the ladder rungs "
+            "next to those powers were not tried; raise limits.time_limit_s to try them."
+        )
     preds = cand.add_ladder_rungs(prep, preds, bt_info)
     total = cand.grid_size(resp, preds)
     if uniform:

@@ -155,8 +155,10 @@ def _descend(
     score: Callable[[tuple[int, ...]], float],
     options: list[list[tr.Transform]],
     starts: list[list[int]],
+    keep_going: Callable[[], bool] = lambda: True,
 ) -> dict[tuple[int, ...], float]:
-    """Coordinate descent from each start; returns every evaluated combination's score."""
+    """Coordinate descent from each start; returns every evaluated combination's score
+    (those evaluated so far once ``keep_going()``, asked before each coordinate, says no)."""
     memo: dict[tuple[int, ...], float] = {}
 
     def f(choice: Sequence[int]) -> float:
@@ -171,6 +173,8 @@ def _descend(
         for _ in range(MAX_SWEEPS):
             changed = False
             for j, opts in enumerate(options):
+                if not keep_going():
+                    return memo
                 for o in range(len(opts)):
                     if o == choice[j]:
                         continue
@@ -221,38 +225,6 @@ def screened_search(
         queue += [
             make_spec(prep, t, [options[j][o] for j, o in enumerate(c)], intercept) for c in base
         ]
-    for t in resp:
-        if not budget.ok():
-            break
-        ts = screen_scales.get(t)
-        if ts is None:
-            continue
-        screen = ZScreen(space, ts, prep.y, intercept)
-        t_key = ts
-        opts_t = (
-            options
-            if not t.needs_lambda
-            else [[u for u in o if not bt.is_open(u)] for o in options]
-        )
-
-        def score(
-            choice: tuple[int, ...],
-            opts_t: list[list[tr.Transform]] = opts_t,
-            screen: ZScreen = screen,
-            t_key: tr.Transform = t_key,
-        ) -> float:
-            n_open = sum(1 for o, c in zip(opts_t, choice, strict=True) if bt.is_open(o[c]))
-            if n_open > MAX_ESTIMATED_POWERS:
-                return np.inf
-            cols = _screen_columns(space, prep, opts_t, choice, t_key)
-            return np.inf if cols is None else screen.sse(cols)
-
-        memo = _descend(score, opts_t, [_start(opts_t, "identity"), _start(opts_t, "log")])
-        screened += screen.count
-        best = sorted((v, c) for c, v in memo.items() if np.isfinite(v))[:BEAM]
-        queue += [
-            make_spec(prep, t, [opts_t[j][o] for j, o in enumerate(c)], intercept) for _, c in best
-        ]
     scored: dict[SpecKey, Scored | None] = {}
 
     def run(spec: Specification) -> Scored | None:
@@ -287,6 +259,42 @@ def screened_search(
                 budget.ok()  # says why the rest were not scored, as one at a time would
                 return
 
+    # the baselines first: a search whose time runs out while screening still ranks them
+    run_all(list(queue))
+    for t in resp:
+        if not budget.ok():
+            break
+        ts = screen_scales.get(t)
+        if ts is None:
+            continue
+        screen = ZScreen(space, ts, prep.y, intercept)
+        t_key = ts
+        opts_t = (
+            options
+            if not t.needs_lambda
+            else [[u for u in o if not bt.is_open(u)] for o in options]
+        )
+
+        def score(
+            choice: tuple[int, ...],
+            opts_t: list[list[tr.Transform]] = opts_t,
+            screen: ZScreen = screen,
+            t_key: tr.Transform = t_key,
+        ) -> float:
+            n_open = sum(1 for o, c in zip(opts_t, choice, strict=True) if bt.is_open(o[c]))
+            if n_open > MAX_ESTIMATED_POWERS:
+                return np.inf
+            cols = _screen_columns(space, prep, opts_t, choice, t_key)
+            return np.inf if cols is None else screen.sse(cols)
+
+        memo = _descend(
+            score, opts_t, [_start(opts_t, "identity"), _start(opts_t, "log")], budget.in_time
+        )
+        screened += screen.count
+        best = sorted((v, c) for c, v in memo.items() if np.isfinite(v))[:BEAM]
+        queue += [
+            make_spec(prep, t, [opts_t[j][o] for j, o in enumerate(c)], intercept) for _, c in best
+        ]
     run_all(queue)
     # exact coordinate descent from the lowest error found
     current = _best(scored)

@@ -420,3 +420,27 @@ def test_lambdas_kept_within_a_request_give_the_same_selection(monkeypatch):
     for a, b in zip(reused.ranking, fresh.ranking, strict=True):
         assert a.specification == b.specification
         assert a.estimates == b.estimates
+
+
+def test_screening_powers_stop_at_their_share_of_the_time_left_and_say_so(monkeypatch):
+    from service.selection import search as search_mod
+
+    rng = np.random.default_rng(41)
+    n = 120
+    x1, x2 = rng.uniform(1, 12, n), rng.uniform(0.5, 6, n)
+    y = np.exp(0.5 + 0.3 * np.log(x1) + 0.2 * np.sqrt(x2) + rng.normal(0, 0.2, n))
+    prep = prepare(
+        {"columns": {"y": y.tolist(), "a": x1.tolist(), "b": x2.tolist()}}, "y", ["a", "b"]
+    )
+    opts = SearchOptions(folds=5, repeats=1, predictor_transforms=["identity", "log", "power"])
+    full = select(prep, opts, "t").body
+    assert full.search.predictor_powers  # estimated with the default share
+    assert not any("screening step's share" in w for w in full.warnings)
+    # a share of nothing: the screening step ends before its first predictor, the search
+    # still scores candidates (without the estimated powers' ladder rungs) and says which
+    monkeypatch.setattr(search_mod, "SCREEN_SHARE", 0.0)
+    cut = select(prep, opts, "t").body
+    said = [w for w in cut.warnings if "screening step's share" in w]
+    assert len(said) == 1 and "2 predictors of 2 (a, b)" in said[0]
+    assert not cut.search.predictor_powers and cut.ranking
+    assert cut.search.scored > 0

@@ -109,3 +109,35 @@ def test_screened_search_in_batches_equals_one_candidate_at_a_time(monkeypatch):
         # source: the same search scoring one candidate at a time
         assert x.cv.value == pytest.approx(y.cv.value, rel=1e-10)
     assert a.best_cv.value == pytest.approx(b.best_cv.value, rel=1e-10)
+
+
+def test_a_search_whose_time_runs_out_while_screening_still_ranks_its_baselines(monkeypatch):
+    from service.selection import strategy as st
+
+    prep = _problem(2, p=4)
+    real_init = st.ZScreen.__init__
+    late = {"now": False}
+
+    def screen_then_late(self, *a, **k):
+        real_init(self, *a, **k)
+        late["now"] = True  # the time limit passes as soon as the screening starts
+
+    def in_time(self):
+        if late["now"]:
+            self.spent = self.spent or "time_limit_s"
+            return False
+        return True
+
+    monkeypatch.setattr(st.ZScreen, "__init__", screen_then_late)
+    monkeypatch.setattr(st.Budget, "in_time", in_time)
+    got = run_selection(prep, SearchOptions(strategy="screened", **SPACE), "t")
+    # the baselines (every predictor untransformed, every predictor logged, for each of the
+    # three response scales) were scored before the screening and are ranked
+    assert got.search.scored + got.search.failed == 6
+    assert got.ranking and got.search.complete is False
+    assert got.search.strategy.stopped_by == "time_limit_s"
+    names = {
+        (e.specification.response_transform.name, e.specification.predictors[0].transform.name)
+        for e in got.ranking
+    }
+    assert names <= {(r, p) for r in ("identity", "log", "sqrt") for p in ("identity", "log")}
