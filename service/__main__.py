@@ -4,6 +4,11 @@
 Settings come from ``BESTSCALE_*`` variables (service/settings.py); the flags override the
 three listed.  With several workers, Prometheus metrics are shared through a fresh directory
 (``PROMETHEUS_MULTIPROC_DIR``) created here before the workers start and removed at exit.
+
+The service's own modules, pydantic and uvicorn are imported inside the functions that use
+them: numpy reads the BLAS thread variables once, when it is first imported, so
+:func:`_pin_blas` must run before anything loads it (the settings module loads no numpy for
+this reason; tests/test_main.py checks it).
 """
 
 from __future__ import annotations

@@ -233,7 +233,7 @@ def run_dask(
     the segments being worked on.  A segment larger than SCATTER_BYTES is scattered to a
     worker first and its task refers to it.
     """
-    from distributed import as_completed
+    from distributed import as_completed  # deferred: see DaskSession
 
     if window is None:
         threads = sum(client.nthreads().values()) or 1

@@ -16,7 +16,7 @@ from typing import Annotated, Literal
 from pydantic import Field, SecretStr, field_validator, model_validator
 from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
 
-from .selection.search_setup import DEFAULT_MAX_CANDIDATES, DEFAULT_TIME_LIMIT_S
+from .selection.defaults import DEFAULT_MAX_CANDIDATES, DEFAULT_TIME_LIMIT_S
 
 # scheme://host[:port] exactly as a browser sends it in the Origin header (no path, no
 # trailing slash: CORS compares whole strings, so 'https://a.example/' would never match)

@@ -64,3 +64,33 @@ def test_flag_host_counts_too(monkeypatch, capsys):
 )
 def test_no_warning_when_private_or_protected(monkeypatch, capsys, env, argv):
     assert "WARNING" not in _start(monkeypatch, capsys, env, argv)
+
+
+def test_the_settings_are_read_before_numpy_loads_so_the_blas_threads_can_be_pinned():
+    """``python -m service`` reads the settings, then sets the BLAS thread variables, which
+    numpy reads once, when it is first imported: reading the settings must not load it."""
+    import json
+    import os
+    import subprocess
+    import sys
+
+    code = (
+        "import json, os, sys\n"
+        "from service.__main__ import _pin_blas, _settings_or_exit\n"
+        "s = _settings_or_exit()\n"
+        "assert 'numpy' not in sys.modules, 'the settings loaded numpy'\n"
+        "_pin_blas(s.blas_threads)\n"
+        "import threadpoolctl\n"
+        "import numpy\n"
+        "numpy.ones(2) @ numpy.ones(2)\n"
+        "blas = [i for i in threadpoolctl.threadpool_info() if i['user_api'] == 'blas']\n"
+        "print(json.dumps([os.environ['OPENBLAS_NUM_THREADS'], [i['num_threads'] for i in blas]]))\n"
+    )
+    env = {k: v for k, v in os.environ.items() if not k.endswith("NUM_THREADS")}
+    env["BESTSCALE_BLAS_THREADS"] = "1"
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env)
+    assert r.returncode == 0, r.stderr
+    pinned, loaded = json.loads(r.stdout)
+    # source: OpenBLAS reads OPENBLAS_NUM_THREADS at load time; threadpoolctl reports the
+    # threads of the BLAS numpy loaded
+    assert pinned == "1" and set(loaded) == {1}

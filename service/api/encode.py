@@ -1,4 +1,7 @@
-"""JSON encoding that refuses non-finite numbers and drops private (``_``) keys."""
+"""JSON encoding that refuses non-finite numbers.
+
+Every key is kept as it is: keys are contract names or the caller's own names (columns,
+levels, units), and a column may well be called ``_id``."""
 
 from __future__ import annotations
 
@@ -28,7 +31,7 @@ def to_jsonable(obj):
     if renders(obj):
         return to_jsonable(contract(obj))
     if isinstance(obj, dict):
-        return {str(k): to_jsonable(v) for k, v in obj.items() if not str(k).startswith("_")}
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
         plain = _plain_numbers(obj)
         return plain if plain is not None else [to_jsonable(v) for v in obj]

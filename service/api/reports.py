@@ -26,7 +26,7 @@ HTML_TYPE = "text/html"
 def selection_report(req: SelectionRequest, stop: Stop | None = None) -> str:
     """Run the selection of ``req`` and return the report page (call inside a compute slot).
 
-    The page is drawn from the JSON-ready body (private keys dropped, non-finite numbers
+    The page is drawn from the JSON-ready body (typed results rendered, non-finite numbers
     refused, exactly as the JSON response), so every number on it is the response's.
     """
     job = selection_job(req, stop=stop)  # its one deadline: the selection and the figures

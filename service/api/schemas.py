@@ -16,8 +16,7 @@ from ..core import transforms as tr
 from ..core.conditions import DEFAULT_ALPHA
 from ..core.errors import InputError, Option
 from ..core.folds import DEFAULT_SEED
-from ..selection.plots import PLOT_MAX_POINTS
-from ..selection.search_setup import (
+from ..selection.defaults import (
     DEFAULT_FOLDS,
     DEFAULT_METRIC,
     DEFAULT_REPEATS,
@@ -25,6 +24,7 @@ from ..selection.search_setup import (
     DEFAULT_STRATEGY,
     DEFAULT_TOP,
 )
+from ..selection.plots import PLOT_MAX_POINTS
 from ..selection.strategy import EXHAUSTIVE_LIMIT
 
 if TYPE_CHECKING:

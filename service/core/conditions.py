@@ -25,7 +25,7 @@ Mosteller & Tukey (1977).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 from typing import ClassVar
 
 import numpy as np
@@ -43,15 +43,6 @@ CONDITION_WARN = 30.0
 MAX_FLAGGED_ROWS = 50
 #: significance level of the condition tests unless a request sets ``alpha``
 DEFAULT_ALPHA = 0.05
-#: the conditions, in the order every output lists them
-CONDITION_NAMES = (
-    "linearity",
-    "normality",
-    "equal_variance",
-    "independence",
-    "multicollinearity",
-    "influence",
-)
 #: above this many rows the normality note warns that trivial departures reach significance
 LARGE_N = 1000
 
@@ -255,6 +246,13 @@ class ConditionReport:
             raise KeyError(name)
         out: Condition = getattr(self, name)
         return out
+
+
+#: the conditions, in the order every output lists them: the condition fields of
+#: :class:`ConditionReport`, where they are written once
+CONDITION_NAMES: tuple[str, ...] = tuple(
+    f.name for f in fields(ConditionReport) if f.name != "hints"
+)
 
 
 def _numeric_terms(inp: ConditionInputs) -> list[TermInfo]:

@@ -43,6 +43,7 @@ import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from enum import StrEnum
 
 import numpy as np
 
@@ -216,16 +217,30 @@ def stored_block(
     )
 
 
-def default_method(failed: Sequence[str] | None, available: bool, why_not: str) -> tuple[str, str]:
+class IntervalMethod(StrEnum):
+    """The prediction-interval methods: normal theory on the model scale, or CV+ from the
+    stored out-of-fold residuals."""
+
+    NORMAL = "normal"
+    CV_PLUS = "cv_plus"
+
+
+def default_method(
+    failed: Sequence[str] | None, available: bool, why_not: str
+) -> tuple[IntervalMethod, str]:
     """(interval method, clause) when the caller does not choose: CV+ when normality fails
     on the entry and its artifact holds what CV+ needs, otherwise normal theory."""
+    normal = IntervalMethod.NORMAL
     if failed is None:
-        return "normal", "the model does not record its condition results, so normal theory"
+        return normal, "the model does not record its condition results, so normal theory"
     if "normality" not in failed:
-        return "normal", "normality of the residuals is not rejected on this entry"
+        return normal, "normality of the residuals is not rejected on this entry"
     if not available:
-        return "normal", f"normality fails on this entry, but CV+ is not available ({why_not})"
-    return "cv_plus", "normality fails on this entry, so CV+ from its out-of-fold residuals"
+        return normal, f"normality fails on this entry, but CV+ is not available ({why_not})"
+    return (
+        IntervalMethod.CV_PLUS,
+        "normality fails on this entry, so CV+ from its out-of-fold residuals",
+    )
 
 
 def ranks(n: int, level: float) -> tuple[int, int]:

@@ -10,7 +10,10 @@ pseudo-inverted.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
+from enum import StrEnum
+from typing import NamedTuple
 
 import numpy as np
 from scipy import linalg, stats
@@ -19,6 +22,22 @@ from .errors import CandidateFailure
 
 RANK_TOL = 1e-10
 COND_LIMIT = 1e7  # scaled Gram matrices above this are refitted exactly (QR)
+
+
+class StandardErrors(StrEnum):
+    """The kinds of coefficient standard errors: classical least squares, or one of the
+    robust covariances (:func:`hc3_cov`, :func:`hac_cov`)."""
+
+    CLASSICAL = "classical"
+    HC3 = "hc3"
+    HAC = "hac"
+
+
+class RobustCovariance(NamedTuple):
+    """A robust covariance of the coefficients and its kind, for :meth:`OLSFit.table`."""
+
+    kind: StandardErrors
+    cov: np.ndarray
 
 
 @dataclass
@@ -40,13 +59,13 @@ class OLSFit:
     condition_number: float
 
     def table(
-        self, level: float = 0.95, robust: dict[str, np.ndarray] | None = None
+        self, level: float = 0.95, robust: Sequence[RobustCovariance] = ()
     ) -> list[CoefficientRow]:
         """One row per coefficient with its classical inference and, for each ``robust``
-        covariance (kind ``"hc3"``, ``"hac"``), the inference under it (t with the residual
-        degrees of freedom, as for the classical one)."""
+        covariance, the inference under it, in the order given (t with the residual degrees
+        of freedom, as for the classical one)."""
         tq = stats.t.ppf(0.5 + level / 2.0, self.df_resid) if self.df_resid > 0 else math.nan
-        extra = {k: np.sqrt(np.maximum(np.diag(v), 0.0)) for k, v in (robust or {}).items()}
+        extra = [(r.kind, np.sqrt(np.maximum(np.diag(r.cov), 0.0))) for r in robust]
         rows = []
         for i, name in enumerate(self.names):
             b = float(self.coef[i])
@@ -55,7 +74,7 @@ class OLSFit:
                     name,
                     b,
                     self._inference(b, float(self.se[i]), tq),
-                    tuple((k, self._inference(b, float(se[i]), tq)) for k, se in extra.items()),
+                    tuple((k, self._inference(b, float(se[i]), tq)) for k, se in extra),
                 )
             )
         return rows
@@ -90,11 +109,12 @@ class CoefficientRow:
     term: str
     estimate: float
     classical: Inference
-    robust: tuple[tuple[str, Inference], ...] = ()
+    robust: tuple[tuple[StandardErrors, Inference], ...] = ()
 
     def under(self, kind: str) -> Inference:
-        """The inference under standard errors ``kind`` ("classical" or a robust kind)."""
-        if kind == "classical":
+        """The inference under standard errors ``kind`` (a :class:`StandardErrors`, or its
+        value: classical or a robust kind the row holds; KeyError for another)."""
+        if kind == StandardErrors.CLASSICAL:
             return self.classical
         for k, inference in self.robust:
             if k == kind:

@@ -50,7 +50,7 @@ from .spec import Columns, build_design
 MAX_PROBLEMS = 20
 ROWS_LISTED = 5
 LEVERAGE_RTOL = 1e-9  # a training row recomputed may exceed the stored maximum by rounding
-INTERVAL_METHODS = ("normal", "cv_plus")
+INTERVAL_METHODS = tuple(cvplus.IntervalMethod)
 
 
 # -------------------------------------------------------------- new design
@@ -250,7 +250,7 @@ class Predictions:
         return src.PREDICTION_INTERVAL[self.method]
 
 
-def interval_method(model: Model, asked: object) -> tuple[str, str]:
+def interval_method(model: Model, asked: object) -> tuple[cvplus.IntervalMethod, str]:
     """(method, clause): the caller's choice, checked, or the model's default
     (:func:`cvplus.default_method`: CV+ when normality fails on the entry)."""
     if asked is None:
@@ -271,7 +271,7 @@ def interval_method(model: Model, asked: object) -> tuple[str, str]:
             f"this model has none ({model.cv_plus_missing}); send 'normal' or leave "
             "interval_method out",
         )
-    return str(asked), cvplus.REASON_ASKED
+    return cvplus.IntervalMethod(str(asked)), cvplus.REASON_ASKED
 
 
 def predict(

@@ -21,8 +21,11 @@ from __future__ import annotations
 import html
 import math
 import re
+from enum import Enum
 
 from ..core.conditions import CONDITION_NAMES
+from ..core.cvplus import IntervalMethod
+from ..core.fitting import StandardErrors
 from ..core.numbers import count_of, failure_text, fmt, fmt_p
 from .figures import render_figure
 from .svg import esc
@@ -32,17 +35,21 @@ MAX_DROPPED_LISTED = 20
 #: distinct failure reasons listed in the summary
 MAX_FAILURE_REASONS = 5
 
-#: how the report names each condition (heading, short column title)
-CONDITION_LABELS = {
-    "linearity": ("Linearity", "Linear"),
-    "normality": ("Normal residuals", "Normal"),
-    "equal_variance": ("Equal variance", "Eq. var."),
-    "independence": ("Independence", "Indep."),
-    "multicollinearity": ("Collinearity", "Collin."),
-    "influence": ("Influence", "Infl."),
-}
+
+class ConditionWords(Enum):
+    """How the report names each condition: (heading, short column title), one member per
+    condition, named as :data:`~service.core.conditions.CONDITION_NAMES` names it."""
+
+    linearity = ("Linearity", "Linear")
+    normality = ("Normal residuals", "Normal")
+    equal_variance = ("Equal variance", "Eq. var.")
+    independence = ("Independence", "Indep.")
+    multicollinearity = ("Collinearity", "Collin.")
+    influence = ("Influence", "Infl.")
+
+
 #: (key, heading, short title) in the order every output lists the conditions
-CONDITIONS = tuple((key, *CONDITION_LABELS[key]) for key in CONDITION_NAMES)
+CONDITIONS = tuple((key, *ConditionWords[key].value) for key in CONDITION_NAMES)
 
 _MARKS = {
     True: ("pass", "\u2713", "holds"),
@@ -74,7 +81,7 @@ def _joined(items: list[str]) -> str:
 
 def transform_words(t: dict | None, column: str, reference: str | None = None) -> str:
     """One column on its scale in words, e.g. ``log of pipe_length_m`` (escaped HTML)."""
-    t = t or {"name": "identity"}
+    t = t or {}
     name = t.get("name", "identity")
     c = f'<span class="col">{esc(column)}</span>'
     if name == "identity":
@@ -525,40 +532,42 @@ def _ranking_table(entries: list[dict], detail_ids: dict) -> str:
 
 
 _SE_WORDS = {
-    "classical": "classical",
-    "hc3": "HC3 (heteroscedasticity-consistent)",
-    "hac": "Newey-West (serial-correlation-consistent)",
+    StandardErrors.CLASSICAL: "classical",
+    StandardErrors.HC3: "HC3 (heteroscedasticity-consistent)",
+    StandardErrors.HAC: "Newey-West (serial-correlation-consistent)",
 }
 
 
-def _se_kind(entry: dict) -> str:
-    kind = (entry.get("inference") or {}).get("standard_errors", "classical")
-    return kind if kind in _SE_WORDS else "classical"
+def _se_kind(entry: dict) -> StandardErrors:
+    kind = (entry.get("inference") or {}).get("standard_errors")
+    return StandardErrors(kind) if kind in _SE_WORDS else StandardErrors.CLASSICAL
 
 
 def _se_line(entry: dict) -> str:
     inf = entry.get("inference") or {}
     kind = _se_kind(entry)
-    lags = f", {inf['hac_lags']} lags" if kind == "hac" and inf.get("hac_lags") is not None else ""
+    hac = kind is StandardErrors.HAC and inf.get("hac_lags") is not None
+    lags = f", {inf['hac_lags']} lags" if hac else ""
     return f"{_SE_WORDS[kind]}{lags}: {esc(inf.get('reason', ''))}"
 
 
 _PI_WORDS = {
-    "normal": "normal theory (t interval on the model scale)",
-    "cv_plus": "CV+ (from the out-of-fold residuals; no normality needed)",
+    IntervalMethod.NORMAL: "normal theory (t interval on the model scale)",
+    IntervalMethod.CV_PLUS: "CV+ (from the out-of-fold residuals; no normality needed)",
 }
 
 
 def _pi_line(entry: dict) -> str:
     inf = entry.get("inference") or {}
     kind = inf.get("prediction_intervals", "normal")
-    words = _PI_WORDS.get(kind, _PI_WORDS["normal"])
+    words = _PI_WORDS.get(kind, _PI_WORDS[IntervalMethod.NORMAL])
     reason = inf.get("prediction_interval_reason")
     return f"{words}: {esc(reason)}" if reason else words
 
 
 def _coefficients(entry: dict) -> str:
-    sfx = "" if _se_kind(entry) == "classical" else f"_{_se_kind(entry)}"
+    kind = _se_kind(entry)
+    sfx = "" if kind is StandardErrors.CLASSICAL else f"_{kind}"
     rows = "".join(
         f'<tr><td><code>{esc(c["term"])}</code></td><td class="n est">{num(c.get("estimate"))}</td>'
         f'<td class="n">{num(c.get("std_error" + sfx))}</td>'

@@ -14,11 +14,20 @@ from ..core import transforms as tr
 from ..core.boxtidwell import PowerSummary
 from ..core.condition_rules import conditions_for, failed
 from ..core.conditions import ConditionReport, TransformHint
-from ..core.cvplus import default_method, stored_block
+from ..core.cvplus import IntervalMethod, default_method, stored_block
 from ..core.cvresult import CVReport, CVResult, OutOfFold
 from ..core.data import Prepared
 from ..core.errors import CandidateFailure
-from ..core.fitting import CoefficientRow, OLSFit, hac_cov, hc3_cov, newey_west_lags, ols
+from ..core.fitting import (
+    CoefficientRow,
+    OLSFit,
+    RobustCovariance,
+    StandardErrors,
+    hac_cov,
+    hc3_cov,
+    newey_west_lags,
+    ols,
+)
 from ..core.folds import CVPlan
 from ..core.interpret import interpret_fit
 from ..core.likelihood import LambdaEstimate, estimate_lambda, fit_transform
@@ -206,34 +215,35 @@ LAG_RULE = "floor(4 (n/100)^(2/9)), common practice"
 
 def robust_covariances(
     fit: OLSFit, design: Design, prep: Prepared
-) -> tuple[dict[str, np.ndarray], int | None]:
+) -> tuple[tuple[RobustCovariance, ...], int | None]:
     """HC3 always; Newey-West HAC when the rows have an order: (covariances, HAC lags)."""
-    covs = {"hc3": hc3_cov(fit, design.X)}
-    lags = None
-    if prep.order is not None:
-        lags = newey_west_lags(fit.n)
-        covs["hac"] = hac_cov(fit, design.X, prep.order, lags)
-    return covs, lags
+    hc3 = RobustCovariance(StandardErrors.HC3, hc3_cov(fit, design.X))
+    if prep.order is None:
+        return (hc3,), None
+    lags = newey_west_lags(fit.n)
+    return (
+        hc3,
+        RobustCovariance(StandardErrors.HAC, hac_cov(fit, design.X, prep.order, lags)),
+    ), lags
 
 
 @dataclass(frozen=True)
 class Inference:
-    """Which standard errors an entry's readings use (``standard_errors``: classical, hc3
-    or hac) and why, with its source; the Newey-West lags and their rule when the rows have
+    """Which standard errors an entry's readings use (``standard_errors``) and why, with its source; the Newey-West lags and their rule when the rows have
     an order; the default prediction interval method and why (None until it is chosen)."""
 
-    standard_errors: str
+    standard_errors: StandardErrors
     reason: str
     source: str
     hac_lags: int | None = None
-    prediction_intervals: str | None = None
+    prediction_intervals: IntervalMethod | None = None
     prediction_interval_reason: str | None = None
 
     @property
     def hac_lag_rule(self) -> str:
         return LAG_RULE
 
-    def with_intervals(self, method: str, why: str) -> Inference:
+    def with_intervals(self, method: IntervalMethod, why: str) -> Inference:
         return replace(self, prediction_intervals=method, prediction_interval_reason=why)
 
 
@@ -246,7 +256,7 @@ def choose_inference(
     bad = failed(conditions)
     warnings: list[str] = []
     if "independence" in bad and lags is not None:
-        kind = "hac"
+        kind = StandardErrors.HAC
         reason = "independence fails in the given order"
         clause = f"the interval uses Newey-West standard errors ({lags} lags) because {reason}"
         if not blocked:
@@ -256,11 +266,12 @@ def choose_inference(
                 "optimistic; send validation.scheme 'blocked' to score on contiguous folds."
             )
     elif "equal_variance" in bad:
-        kind = "hc3"
+        kind = StandardErrors.HC3
         reason = "equal variance fails"
         clause = f"the interval uses HC3 standard errors because {reason}"
     else:
-        kind, reason, clause = "classical", "the conditions they rest on are not rejected", ""
+        kind = StandardErrors.CLASSICAL
+        reason, clause = "the conditions they rest on are not rejected", ""
     return Inference(kind, reason, src.STANDARD_ERRORS[kind], lags), clause, warnings
 
 

@@ -7,7 +7,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any, Final
+from typing import Any
 
 import numpy as np
 
@@ -19,18 +19,16 @@ from ..core.folds import DEFAULT_SEED
 from ..core.numbers import count_of
 from ..core.spec import Specification
 from .deadline import Deadline
-
-#: defaults of a request's options, written here once (the request schema, the service
-#: settings and the options below refer to them; the significance level is the core's
-#: ``conditions.DEFAULT_ALPHA``, the fold seed ``folds.DEFAULT_SEED``)
-DEFAULT_FOLDS: Final = 5
-DEFAULT_REPEATS: Final = 1
-DEFAULT_METRIC: Final = "rmse"
-DEFAULT_SCHEME: Final = "random"
-DEFAULT_TOP: Final = 5
-DEFAULT_MAX_CANDIDATES: Final = 5000
-DEFAULT_TIME_LIMIT_S: Final = 60.0
-DEFAULT_STRATEGY: Final = "auto"
+from .defaults import (
+    DEFAULT_FOLDS,
+    DEFAULT_MAX_CANDIDATES,
+    DEFAULT_METRIC,
+    DEFAULT_REPEATS,
+    DEFAULT_SCHEME,
+    DEFAULT_STRATEGY,
+    DEFAULT_TIME_LIMIT_S,
+    DEFAULT_TOP,
+)
 
 
 @dataclass(frozen=True)

@@ -642,7 +642,6 @@ def assess_trust(
     *,
     selection: Selection | None = None,
     outer_folds: int | None = None,
-    time_limit_s: float | None = None,
     mapper: Mapper = map,
     chunks: int = 1,
 ) -> Trust:
@@ -654,8 +653,8 @@ def assess_trust(
     (default ``DEFAULT_RESAMPLES``) bootstrap resamples measure stability; ``outer_folds``
     (default: the search's folds) and ``DEFAULT_INNER_FOLDS`` shape the nested
     cross-validation.  Every part ends by the request's deadline (``opts.deadline``; else
-    ``opts.time_limit_s`` from this call), or sooner with ``time_limit_s``; what the
-    deadline cut short is stated (``complete``) and warned about.  ``mapper(fn, items)``
+    ``opts.time_limit_s`` from this call); what the deadline cut short is stated
+    (``complete``) and warned about.  ``mapper(fn, items)``
     may spread the resamples (in ``chunks`` parts) and the outer folds over worker
     processes; results do not depend on it.
     """
@@ -673,10 +672,8 @@ def assess_trust(
             f"outer_folds must be within [2, {prep.n // 2}] for {prep.n} rows, got {outer_folds}",
         )
     k_out = opts.folds if outer_folds is None else int(outer_folds)
-    budget = opts.time_limit_s if time_limit_s is None else float(time_limit_s)
-    # the request's one deadline (the search already spent part of it), or sooner when
-    # this call has a limit of its own
-    end = opts.clock().sooner(time_limit_s)
+    # the request's one deadline (the search already spent part of it)
+    end = opts.clock()
     if selection is None:
         selection = select(prep, replace(opts, top=1, incumbent=None), service_version)
     scored = selection.scored
@@ -730,4 +727,4 @@ def assess_trust(
                 "The nested cross-validation is incomplete (an inner search stopped "
                 "early or an outer fold failed); see trust.optimism.folds."
             )
-    return Trust(st, op, budget, tuple(warnings), round(time.perf_counter() - t0, 4))
+    return Trust(st, op, opts.time_limit_s, tuple(warnings), round(time.perf_counter() - t0, 4))

@@ -23,6 +23,8 @@ import scipy.stats
 import statsmodels.api as sm
 from service.core.errors import CandidateFailure
 from service.core.fitting import (
+    RobustCovariance,
+    StandardErrors,
     hac_cov,
     hc3_cov,
     newey_west_lags,
@@ -213,11 +215,13 @@ def _macro():
     return d.realgdp.to_numpy(), d.realcons.to_numpy()
 
 
-def _compare(fit, cov, ref):
-    rows = fit.table(robust={"r": cov})
+def _compare(fit, kind, cov, ref):
+    rows = fit.table(robust=[RobustCovariance(kind, cov)])
+    other = next(k for k in (StandardErrors.HC3, StandardErrors.HAC) if k != kind)
     ci = ref.conf_int(0.05)
     for i, row in enumerate(rows):
-        r = row.under("r")
+        r = row.under(kind)
+        assert row.under(kind.value) is r and row.robust == ((kind, r),)
         assert r.std_error == pytest.approx(ref.bse[i], rel=1e-8)
         assert r.p_value == pytest.approx(ref.pvalues[i], rel=1e-8, abs=1e-300)
         assert r.ci_low == pytest.approx(ci[i, 0], rel=1e-8)
@@ -226,7 +230,7 @@ def _compare(fit, cov, ref):
         se = float(np.sqrt(fit.cov_unscaled[i, i])) * fit.sigma
         assert row.classical.std_error == pytest.approx(se)
         with pytest.raises(KeyError):
-            row.under("hac")
+            row.under(other)
 
 
 @pytest.mark.parametrize("log", [False, True])
@@ -238,7 +242,7 @@ def test_hc3_matches_statsmodels_on_engel(log):
     fit = ols(X, y, ["intercept", "income"], True)
     # source: statsmodels OLS(...).fit(cov_type="HC3", use_t=True) (t with n - p df)
     ref = sm.OLS(y, X).fit(cov_type="HC3", use_t=True)
-    _compare(fit, hc3_cov(fit, X), ref)
+    _compare(fit, StandardErrors.HC3, hc3_cov(fit, X), ref)
     assert not np.allclose(fit.se, ref.bse, rtol=1e-3)  # the two really differ here
 
 
@@ -255,7 +259,7 @@ def test_hac_matches_statsmodels_on_macrodata_in_shuffled_rows():
     order = np.argsort(perm)  # row positions of the shuffled data, in time order
     # source: statsmodels OLS(...).fit(cov_type="HAC", cov_kwds={"maxlags": 4}) in time order
     ref = sm.OLS(y, X).fit(cov_type="HAC", cov_kwds={"maxlags": lags}, use_t=True)
-    _compare(fit, hac_cov(fit, X[perm], order, lags), ref)
+    _compare(fit, StandardErrors.HAC, hac_cov(fit, X[perm], order, lags), ref)
 
 
 def test_hac_lag_rule_values():

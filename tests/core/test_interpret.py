@@ -17,7 +17,7 @@ import statsmodels.api as sm
 import statsmodels.datasets
 from scipy import special, stats
 from service.core.data import prepare
-from service.core.fitting import hc3_cov
+from service.core.fitting import RobustCovariance, StandardErrors, hc3_cov
 from service.core.interpret import (
     _ci_text,
     exact_percent,
@@ -198,7 +198,7 @@ def test_readings_use_the_chosen_standard_errors():
         [("income", {"name": "identity"})],
         {"name": "identity"},
     )
-    table = f.table(robust={"hc3": hc3_cov(f, design.X)})
+    table = f.table(robust=[RobustCovariance(StandardErrors.HC3, hc3_cov(f, design.X))])
     (it,) = interpret_terms(spec, design, f, prep, table=table, standard_errors="hc3")
     ref = sm.OLS(e.foodexp.values, sm.add_constant(e.income.values)).fit(cov_type="HC3", use_t=True)
     lo, hi = ref.conf_int(0.05)[1]

@@ -23,8 +23,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 from service.core.conditions import CONDITION_NAMES
 from service.report.html import (
-    CONDITION_LABELS,
     CONDITIONS,
+    ConditionWords,
     _box_cox_cell,
     inline_svg,
     num,
@@ -143,7 +143,7 @@ def test_a_whole_page_from_a_selection_body_is_well_formed():
 def test_the_page_names_the_conditions_an_entry_carries_in_their_order():
     _, body = demo_report()
     # the conditions a ranking entry carries, in the order the contract lists them
-    assert list(CONDITION_LABELS) == list(body["ranking"][0]["conditions"])
+    assert [w.name for w in ConditionWords] == list(body["ranking"][0]["conditions"])
     assert [c[0] for c in CONDITIONS] == list(CONDITION_NAMES)
     page = render_report(body, None, {"response": "repair_cost"})
     for _, heading, short in CONDITIONS:

@@ -14,6 +14,7 @@ import pytest
 from service.core.data import prepare
 from service.core.errors import InputError, Option
 from service.core.spec import Specification
+from service.selection.deadline import Deadline
 from service.selection.search import select
 from service.selection.search_setup import SearchOptions
 from service.selection.trust import (
@@ -197,9 +198,9 @@ def test_trust_without_a_selection_runs_the_search_itself():
 def test_time_limit_cuts_resamples_and_says_so():
     prep = _tied_scales(n=80)
     body, winner = _select(prep, TIED_OPTS)
-    out = assess_trust(
-        prep, TIED_OPTS, winner, "test", True, True, resamples=10, selection=body, time_limit_s=1e-9
-    )
+    # the request's deadline has passed by the time trust starts
+    spent = replace(TIED_OPTS, deadline=Deadline.after(1e-9))
+    out = assess_trust(prep, spent, winner, "test", True, True, resamples=10, selection=body)
     st = out.stability
     assert st.not_run == 10 and st.usable == 0 and st.complete is False
     assert st.share is None and st.interval is None

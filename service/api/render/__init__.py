@@ -8,30 +8,16 @@ through :func:`service.api.encode.to_jsonable`, which renders any typed result i
 wherever it sits in a body.
 
 To move an area here: give its producer a frozen dataclass result, register a renderer for
-it in the area's module below (``@contract.register``), have the readers in the lower floors
-use attributes, and drop the area's files from the allowance list in
-``tests/test_architecture.py`` (the shipped examples' responses must stay identical).
+it in the area's module below (``@contract.register``, with ``contract`` imported from
+:mod:`.registry`), have the readers in the lower floors use attributes, and drop the area's
+files from the allowance list in ``tests/test_architecture.py`` (the shipped examples'
+responses must stay identical).
 """
 
 from __future__ import annotations
 
-from functools import singledispatch
-from typing import Any
-
-
-@singledispatch
-def contract(result: Any) -> Any:
-    """The contract JSON of ``result`` (a typed result of a lower floor)."""
-    raise TypeError(f"no contract form is registered for {type(result).__name__}")
-
-
-def renders(result: Any) -> bool:
-    """Whether ``result`` is a typed result with a registered contract form."""
-    return contract.dispatch(type(result)) is not contract.dispatch(object)
-
-
-# the areas register their renderers on import
-from . import (  # noqa: E402,F401
+# the areas register their renderers on :func:`contract` when imported
+from . import (  # noqa: F401
     conditions,
     cv,
     data,
@@ -48,5 +34,6 @@ from . import (  # noqa: E402,F401
     transforms,
     trust,
 )
+from .registry import contract, renders
 
 __all__ = ["contract", "renders"]

@@ -14,7 +14,7 @@ from typing import Any
 
 from ...core import _condition_tests as ct
 from ...core import conditions as c
-from . import contract
+from .registry import contract
 
 
 def _head(t: ct.Check) -> dict[str, Any]:

@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from ...core.cvresult import CVReport, Metrics
-from . import contract
+from .registry import contract
 
 
 @contract.register

@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from ...core import drift as d
-from . import contract
+from .registry import contract
 
 
 def _shift(shift: d.Shift | None) -> dict[str, Any]:

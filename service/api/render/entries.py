@@ -9,8 +9,8 @@ from __future__ import annotations
 from typing import Any
 
 from ...selection import entries as e
-from . import contract
 from .estimates import coefficient, ladder_reading, predictor_power, response_lambda
+from .registry import contract
 
 
 @contract.register

@@ -18,7 +18,7 @@ from ...core.fitting import CoefficientRow, Inference
 from ...core.likelihood import LambdaEstimate
 from ...selection.entries import LadderReading
 from ...selection.search import BoxCoxReport, LambdaOnDesign, ScreenedPower
-from . import contract
+from .registry import contract
 
 
 def _finite(v: float | None) -> float | None:

@@ -6,7 +6,7 @@ from typing import Any
 
 from ...selection import groups as g
 from ..errors import group_problem
-from . import contract
+from .registry import contract
 
 
 @contract.register

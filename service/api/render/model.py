@@ -17,7 +17,7 @@ from typing import Any
 from ...core import cvplus
 from ...core import drift as d
 from ...core import model as m
-from . import contract
+from .registry import contract
 
 UNSIGNED_FIELDS = ("checksum", "signature")
 SIGNATURE_ALGORITHM = "HMAC-SHA-256"

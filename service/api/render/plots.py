@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from ...core import plots as p
-from . import contract
+from .registry import contract
 
 
 def _heading(h: p.Heading) -> dict[str, Any]:

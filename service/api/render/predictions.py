@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 
 from ...core.predict import Predictions
-from . import contract
+from .registry import contract
 
 
 def finite_list(a: np.ndarray) -> list[Any]:

@@ -9,7 +9,7 @@ from typing import Any
 
 from ...selection import groups as g
 from ...selection import search as s
-from . import contract
+from .registry import contract
 
 
 @contract.register

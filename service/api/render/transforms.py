@@ -8,7 +8,7 @@ from typing import Any
 
 from ...core import transforms as tr
 from ...core.transforms.family import Parameter, WhenOmitted
-from . import contract
+from .registry import contract
 
 
 def when_omitted(w: WhenOmitted) -> dict[str, str]:

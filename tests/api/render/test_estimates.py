@@ -14,7 +14,14 @@ from service.api.render import contract, renders
 from service.core import boxtidwell as bt
 from service.core import sources as src
 from service.core import transforms as tr
-from service.core.fitting import CoefficientRow, Inference, hc3_cov, ols
+from service.core.fitting import (
+    CoefficientRow,
+    Inference,
+    RobustCovariance,
+    StandardErrors,
+    hc3_cov,
+    ols,
+)
 from service.core.likelihood import estimate_lambda
 from service.selection.entries import LadderReading
 from service.selection.search import BoxCoxReport, LambdaOnDesign, ScreenedPower
@@ -32,7 +39,10 @@ def test_coefficient_rows_carry_classical_then_suffixed_robust_inference():
     x, y = _engel()
     X = sm.add_constant(x)
     fit = ols(X, y, ["intercept", "income"], True)
-    rows = [contract(r) for r in fit.table(robust={"hc3": hc3_cov(fit, X)})]
+    rows = [
+        contract(r)
+        for r in fit.table(robust=[RobustCovariance(StandardErrors.HC3, hc3_cov(fit, X))])
+    ]
     assert list(rows[1]) == ["term", "estimate", *_FIELDS, *(f"{k}_hc3" for k in _FIELDS)]
     classical = sm.OLS(y, X).fit()
     hc3 = sm.OLS(y, X).fit(cov_type="HC3", use_t=True)
@@ -56,7 +66,7 @@ def test_numbers_that_are_not_finite_are_written_as_null():
         "x",
         math.nan,
         Inference(math.inf, None, 0.5, -math.inf, 1.0),
-        (("hac", Inference(*[math.nan] * 5)),),
+        ((StandardErrors.HAC, Inference(*[math.nan] * 5)),),
     )
     assert renders(row)
     out = to_jsonable({"coefficients": [row]})["coefficients"][0]
