@@ -56,11 +56,12 @@ def _plain_numbers(seq: list | tuple) -> list | None:
     every item is a Python int, which need no conversion; None otherwise.  Number lists
     (residuals, plot points) are most of a large body: one pass each instead of a call per
     item."""
-    if all(type(v) is float for v in seq):
+    kinds = set(map(type, seq))  # one C-level pass instead of a generator per item
+    if kinds <= {float}:
         if not all(map(math.isfinite, seq)):
             raise ValueError("non-finite number in a response body")
         return list(seq)
-    if all(type(v) is int for v in seq):
+    if kinds == {int}:
         return list(seq)
     return None
 

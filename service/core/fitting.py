@@ -16,7 +16,7 @@ from enum import StrEnum
 from typing import NamedTuple
 
 import numpy as np
-from scipy import linalg, stats
+from scipy import linalg, special
 
 from .errors import CandidateFailure
 
@@ -64,7 +64,9 @@ class OLSFit:
         """One row per coefficient with its classical inference and, for each ``robust``
         covariance, the inference under it, in the order given (t with the residual degrees
         of freedom, as for the classical one)."""
-        tq = stats.t.ppf(0.5 + level / 2.0, self.df_resid) if self.df_resid > 0 else math.nan
+        # scipy.special's functions behind stats.t.ppf / stats.t.sf (the same numbers,
+        # without a distribution object's checks: about 0.2 ms a call)
+        tq = special.stdtrit(self.df_resid, 0.5 + level / 2.0) if self.df_resid > 0 else math.nan
         extra = [(r.kind, np.sqrt(np.maximum(np.diag(r.cov), 0.0))) for r in robust]
         rows = []
         for i, name in enumerate(self.names):
@@ -83,7 +85,7 @@ class OLSFit:
         """A coefficient's inference from its standard error ``s`` (t quantile ``tq``)."""
         if self.df_resid > 0 and s > 0:
             t = b / s
-            p = float(2.0 * stats.t.sf(abs(t), self.df_resid))
+            p = float(2.0 * special.stdtr(self.df_resid, -abs(t)))
             return Inference(s, t, p, b - tq * s, b + tq * s)
         return Inference(s if s > 0 else None, None, None, None, None)
 

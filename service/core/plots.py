@@ -30,12 +30,12 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy import stats
-from statsmodels.nonparametric.smoothers_lowess import lowess
 
 from service.core import _condition_tests as ct
 from service.core import sources as src
 from service.core.conditions import MAX_FLAGGED_ROWS, ConditionInputs, flag_rows, validate
 from service.core.folds import DEFAULT_SEED
+from service.core.lowess import lowess
 
 #: LOWESS is fitted to at most this many rows (a seeded sample beyond it)
 SMOOTHER_MAX_ROWS = 20_000
@@ -434,7 +434,8 @@ def _normal_quantiles(
         tail = max(max_points // 10, 1)
         rank_of = np.empty(fit.n, dtype=np.intp)
         rank_of[order] = np.arange(m)
-        must = rank_of[np.intersect1d(flagged, rows)]
+        flagged_rows = np.unique(flagged)  # intersect1d(flagged, rows) without sorting all rows
+        must = rank_of[flagged_rows[np.isfinite(r[flagged_rows])]]
         ranks = np.unique(
             np.concatenate(
                 [np.arange(tail), np.arange(m - tail, m), _even(m, max_points - 2 * tail), must]

@@ -176,9 +176,19 @@ def _tenths(values: np.ndarray) -> list[int]:
     return out
 
 
+def _tenths_array(values: np.ndarray) -> np.ndarray:
+    out: np.ndarray = np.round(np.asarray(values, dtype=float) * 10.0).astype(np.int64)
+    return out
+
+
 def _join(values: Iterable[int]) -> str:
     """Integers as path numbers: a space before each one unless its minus sign separates it."""
     return "".join(f" {v}" if v >= 0 else str(v) for v in values).lstrip()
+
+
+def _moves(dx: list[int], dy: list[int], sep: str) -> list[str]:
+    """``{sep}dx dy`` per pair as :func:`_join` writes it, one f-string a pair."""
+    return [f"{sep}{u}{' ' if v >= 0 else ''}{v}" for u, v in zip(dx, dy, strict=True)]
 
 
 def dots(px: np.ndarray, py: np.ndarray) -> str:
@@ -186,44 +196,66 @@ def dots(px: np.ndarray, py: np.ndarray) -> str:
     h0 ...``; stroked with round caps, each is a dot.  Points keep their order."""
     if len(px) == 0:
         return ""
-    x, y = _tenths(px), _tenths(py)
-    parts = [f"M{_join((x[0], y[0]))}h0"]
-    parts += [f"m{_join((x[k] - x[k - 1], y[k] - y[k - 1]))}h0" for k in range(1, len(x))]
-    return "".join(parts)
+    x, y = _tenths_array(px), _tenths_array(py)
+    head = f"M{_join((int(x[0]), int(y[0])))}h0"
+    moves = _moves(np.diff(x).tolist(), np.diff(y).tolist(), "m")
+    return head + "h0".join(moves) + ("h0" if moves else "")
 
 
 def stems(px: np.ndarray, top: np.ndarray, base: float) -> str:
     """Path data (tenths of a pixel) of vertical segments from ``base`` up to each ``top``."""
     if len(px) == 0:
         return ""
-    x, t = _tenths(px), _tenths(top)
+    x, t = _tenths_array(px), _tenths_array(top)
     b = _tenths(np.array([base]))[0]
-    parts = [f"M{_join((x[0], b))}V{t[0]}"]
-    parts += [f"m{_join((x[k] - x[k - 1], b - t[k - 1]))}V{t[k]}" for k in range(1, len(x))]
+    parts = [f"M{_join((int(x[0]), b))}V{int(t[0])}"]
+    back = (b - t[:-1]).tolist()
+    parts += [
+        f"{m}V{v}"
+        for m, v in zip(_moves(np.diff(x).tolist(), back, "m"), t[1:].tolist(), strict=True)
+    ]
     return "".join(parts)
 
 
 def simplify(px: np.ndarray, py: np.ndarray, tolerance: float = 0.25) -> np.ndarray:
-    """Indices of the vertices Ramer-Douglas-Peucker keeps at ``tolerance`` pixels."""
+    """Indices of the vertices Ramer-Douglas-Peucker keeps at ``tolerance`` pixels.
+
+    The segments still to split are handled together, one level of the recursion at a
+    time (the rule splits each segment independently of the others, so the kept vertices
+    are those of the one-segment-at-a-time recursion; the tests compare both)."""
     n = len(px)
     if n <= 2:
         return np.arange(n)
+    px, py = np.asarray(px, dtype=float), np.asarray(py, dtype=float)
     keep = np.zeros(n, dtype=bool)
     keep[0] = keep[-1] = True
-    stack = [(0, n - 1)]
-    while stack:
-        a, b = stack.pop()
-        if b - a < 2:
-            continue
-        sx, sy = px[a + 1 : b] - px[a], py[a + 1 : b] - py[a]
+    a = np.array([0])
+    b = np.array([n - 1])
+    while a.size:
+        inner = b - a - 1
+        a, b, inner = a[inner > 0], b[inner > 0], inner[inner > 0]
+        if not a.size:
+            break
+        seg = np.repeat(np.arange(a.size), inner)
+        starts = np.concatenate([[0], np.cumsum(inner)[:-1]])
+        at = np.arange(seg.size) - starts[seg] + a[seg] + 1  # the inner vertices
+        sx, sy = px[at] - px[a][seg], py[at] - py[a][seg]
         dx, dy = px[b] - px[a], py[b] - py[a]
-        norm = math.hypot(dx, dy)
-        dist = np.hypot(sx, sy) if norm == 0 else np.abs(dx * sy - dy * sx) / norm
-        i = int(np.argmax(dist))
-        if dist[i] > tolerance:
-            k = a + 1 + i
-            keep[k] = True
-            stack += [(a, k), (k, b)]
+        norm = np.array([math.hypot(u, v) for u, v in zip(dx.tolist(), dy.tolist(), strict=True)])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            dist = np.where(
+                norm[seg] == 0,
+                np.hypot(sx, sy),
+                np.abs(dx[seg] * sy - dy[seg] * sx) / norm[seg],
+            )
+        top = np.maximum.reduceat(dist, starts)
+        # the first vertex of each segment at its largest distance (np.argmax's choice)
+        hit = np.flatnonzero(dist == top[seg])
+        first_seg, first = np.unique(seg[hit], return_index=True)
+        split = first_seg[top[first_seg] > tolerance]
+        k = at[hit[first]][top[first_seg] > tolerance]
+        keep[k] = True
+        a, b = np.concatenate([a[split], k]), np.concatenate([k, b[split]])
     return np.flatnonzero(keep)
 
 
@@ -233,9 +265,12 @@ def polyline(px: np.ndarray, py: np.ndarray, close: bool = False) -> str:
     if len(px) < 2:
         return ""
     at = simplify(px, py)
-    x, y = _tenths(px[at]), _tenths(py[at])
-    steps = [v for k in range(1, len(x)) for v in (x[k] - x[k - 1], y[k] - y[k - 1])]
-    return f"M{_join((x[0], y[0]))}l{_join(steps)}" + ("z" if close else "")
+    x, y = _tenths_array(px[at]), _tenths_array(py[at])
+    steps = "".join(
+        f"{' ' if u >= 0 else ''}{u}{' ' if v >= 0 else ''}{v}"
+        for u, v in zip(np.diff(x).tolist(), np.diff(y).tolist(), strict=True)
+    ).lstrip()
+    return f"M{_join((int(x[0]), int(y[0])))}l{steps}" + ("z" if close else "")
 
 
 def attrs(**values: object) -> str:

@@ -12,12 +12,19 @@ predictors handed to the figure whole (``max_points`` 20000, the largest a reque
 and at the default 2000.  Printed per case and format: median wall and CPU seconds of
 ``repeats`` draws and the size in KB; then the demo's ``/v1/reports`` answer (in-process)
 with each renderer, and the cost of building the report's plot data.
+
+``--paths`` then times what the report's plot data and drawing cost with the smoother and
+line simplification of before, patched back in the same run: statsmodels' ``lowess`` for
+every curve (one local fit per call; now ``core/lowess.py`` fits all of a pass at once)
+and Ramer-Douglas-Peucker one segment per step (now one recursion level per step), per
+curve size and for the demo's three detailed entries (plot data, then the three figures).
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib.util
+import math
 import os
 import statistics
 import subprocess
@@ -112,16 +119,109 @@ def _large_plots(max_points: int):
     return specification_plots(spec, prep, 0.05, 0, max_points)
 
 
+def _simplify_one_at_a_time(px, py, tolerance=0.25):
+    """The line simplification as it was: one segment per numpy round trip."""
+    n = len(px)
+    if n <= 2:
+        return np.arange(n)
+    keep = np.zeros(n, dtype=bool)
+    keep[0] = keep[-1] = True
+    stack = [(0, n - 1)]
+    while stack:
+        a, b = stack.pop()
+        if b - a < 2:
+            continue
+        sx, sy = px[a + 1 : b] - px[a], py[a + 1 : b] - py[a]
+        dx, dy = px[b] - px[a], py[b] - py[a]
+        norm = math.hypot(dx, dy)
+        dist = np.hypot(sx, sy) if norm == 0 else np.abs(dx * sy - dy * sx) / norm
+        i = int(np.argmax(dist))
+        if dist[i] > tolerance:
+            k = a + 1 + i
+            keep[k] = True
+            stack += [(a, k), (k, b)]
+    return np.flatnonzero(keep)
+
+
+def _best(fn, repeats: int) -> tuple[float, float]:
+    """Best-of-``repeats`` (CPU, wall) seconds."""
+    best = (math.inf, math.inf)
+    for _ in range(repeats):
+        t, c = time.perf_counter(), time.process_time()
+        fn()
+        best = min(best, (time.process_time() - c, time.perf_counter() - t))
+    return best
+
+
+def _paths(body, prep, repeats: int) -> None:
+    from service.core import lowess as ours
+    from service.core import plots as core_plots
+    from service.report import svg
+    from statsmodels.nonparametric.smoothers_lowess import lowess as sm_lowess
+
+    rng = np.random.default_rng(0)
+    print("LOWESS per curve (frac 2/3, 3 robustness passes, delta 1% of the range), CPU ms:")
+    for n in (300, 1000, 2000, 20000):
+        x = rng.uniform(0, 10, n)
+        y = np.sin(x) + rng.standard_t(3, n)
+        d = 0.01 * float(np.ptp(x))
+        a = _best(lambda x=x, y=y, d=d: sm_lowess(y, x, frac=2 / 3, it=3, delta=d), repeats)
+        b = _best(lambda x=x, y=y, d=d: ours.lowess(y, x, 2 / 3, 3, d), repeats)
+        same = np.array_equal(
+            sm_lowess(y, x, frac=2 / 3, it=3, delta=d), ours.lowess(y, x, 2 / 3, 3, d)
+        )
+        print(
+            f"  {n:6d} rows: statsmodels {1e3 * a[0]:7.1f}, ours {1e3 * b[0]:7.1f}, "
+            f"ratio {a[0] / b[0]:5.2f}x, identical: {same}"
+        )
+
+    def plots_and_figures():
+        for value in report_plots(body, prep, 0.05, 0).values():
+            if not isinstance(value, str):
+                svg_route.render_figure(value)
+
+    saved = (core_plots.lowess, svg.simplify)
+    out = {}
+    for label in ("before", "after"):
+        if label == "before":
+            core_plots.lowess = lambda y, x, frac, it, delta: sm_lowess(
+                y, x, frac=frac, it=it, delta=delta
+            )
+            svg.simplify = _simplify_one_at_a_time
+        try:
+            out[label] = (
+                _best(lambda: report_plots(body, prep, 0.05, 0), repeats),
+                _best(plots_and_figures, repeats),
+                [
+                    svg_route.render_figure(v)
+                    for v in report_plots(body, prep, 0.05, 0).values()
+                    if not isinstance(v, str)
+                ],
+            )
+        finally:
+            core_plots.lowess, svg.simplify = saved
+    (pa, fa, sa), (pb, fb, sb) = out["before"], out["after"]
+    print(
+        f"demo report, 3 entries, CPU s (best of {repeats}): plot data {pa[0]:.3f} -> "
+        f"{pb[0]:.3f} ({pa[0] / pb[0]:.2f}x); plot data and figures {fa[0]:.3f} -> "
+        f"{fb[0]:.3f} ({fa[0] / fb[0]:.2f}x); same SVG bytes: {sa == sb}"
+    )
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--baseline", default="d7060f5", help="git revision of the matplotlib route")
     ap.add_argument("--repeats", type=int, default=3, help="draws per measurement (median)")
+    ap.add_argument("--paths", action="store_true", help="only the smoother and path timings")
     args = ap.parse_args()
     pin_blas(1)
     old = _baseline(args.baseline)
     old_render = _old_route(old)
     print(machine())
     body, prep, demo, title = _demo_plots()
+    if args.paths:
+        _paths(body, prep, max(args.repeats, 3))
+        return 0
     cases = [
         ("demo, 300 rows", demo, title),
         ("20,000 rows, max_points 20000", _large_plots(20_000), "log(y) on log(x1) and x2"),

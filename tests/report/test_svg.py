@@ -8,6 +8,7 @@ SVG 1.1 path grammar (section 8.3: relative moveto/lineto, ``h``/``V``).
 
 from __future__ import annotations
 
+import math
 import re
 import xml.etree.ElementTree as ET
 
@@ -160,6 +161,74 @@ def test_simplified_line_stays_within_the_tolerance():
     cmds = _decode(d)
     assert cmds[0][0] == "M" and cmds[1][0] == "l" and len(cmds[1][1]) == 2 * (keep.size - 1)
     assert svg.polyline(x[:1], y[:1]) == ""
+
+
+def _rdp_one_at_a_time(px, py, tolerance):
+    """Ramer (1972) / Douglas & Peucker (1973) as the recursion is usually written: split a
+    segment at its farthest vertex (the first of equals) while that is beyond the tolerance."""
+    keep = {0, len(px) - 1}
+
+    def split(a, b):
+        if b - a < 2:
+            return
+        dx, dy = px[b] - px[a], py[b] - py[a]
+        norm = math.hypot(dx, dy)
+        best, at = -1.0, None
+        for k in range(a + 1, b):
+            sx, sy = px[k] - px[a], py[k] - py[a]
+            dist = math.hypot(sx, sy) if norm == 0 else abs(dx * sy - dy * sx) / norm
+            if dist > best:
+                best, at = dist, k
+        if best > tolerance:
+            keep.add(at)
+            split(a, at)
+            split(at, b)
+
+    split(0, len(px) - 1)
+    return sorted(keep)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_simplify_keeps_the_vertices_of_the_recursion(seed):
+    rng = np.random.default_rng(seed)
+    n = [3, 40, 200, 600, 601, 1000][seed]
+    x = np.sort(rng.uniform(0, 400, n))
+    y = [
+        np.cumsum(rng.normal(0, 1, n)),  # a rough walk: most vertices kept
+        np.round(100 * np.sin(x / 30), 1),  # a smooth curve with equal distances
+    ][seed % 2]
+    if seed >= 4:  # a closed band: there and back, and a repeated end (zero-length chord)
+        x, y = np.concatenate([x, x[::-1]]), np.concatenate([y, y[::-1] + 5])
+        x[-1], y[-1] = x[0], y[0]
+    expected = _rdp_one_at_a_time(x.tolist(), y.tolist(), 0.25)
+    assert svg.simplify(x, y, 0.25).tolist() == expected
+
+
+def test_paths_write_each_point_as_the_path_grammar_reads_it():
+    rng = np.random.default_rng(5)
+    px, py = rng.uniform(-40, 1600, 300), rng.uniform(-40, 1300, 300)
+    x, y = np.round(px * 10).astype(int).tolist(), np.round(py * 10).astype(int).tolist()
+
+    def pair(u, v):  # a space before a number unless its minus sign separates it
+        return f"{u}{' ' if v >= 0 else ''}{v}"
+
+    expected = f"M{pair(x[0], y[0])}h0" + "".join(
+        f"m{pair(x[k] - x[k - 1], y[k] - y[k - 1])}h0" for k in range(1, len(x))
+    )
+    assert svg.dots(px, py) == expected
+    b = 5000
+    expected = f"M{pair(x[0], b)}V{y[0]}" + "".join(
+        f"m{pair(x[k] - x[k - 1], b - y[k - 1])}V{y[k]}" for k in range(1, len(x))
+    )
+    assert svg.stems(px, py, 500.0) == expected
+    order = np.argsort(px)
+    keep = svg.simplify(px[order], py[order])
+    xs, ys = [x[i] for i in order[keep]], [y[i] for i in order[keep]]
+    steps = "".join(
+        f"{' ' if u >= 0 else ''}{pair(u, v)}"
+        for u, v in ((xs[k] - xs[k - 1], ys[k] - ys[k - 1]) for k in range(1, len(xs)))
+    )
+    assert svg.polyline(px[order], py[order]) == f"M{pair(xs[0], ys[0])}l{steps.lstrip()}"
 
 
 def test_text_elements_are_escaped_and_placed():

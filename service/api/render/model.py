@@ -12,7 +12,11 @@ from __future__ import annotations
 import hashlib
 import hmac
 import json
+import secrets
 from typing import Any
+
+import numpy as np
+import orjson
 
 from ...core import cvplus
 from ...core import drift as d
@@ -27,16 +31,46 @@ UNSIGNED_NOTE = (
 )
 
 
-def _canon(v: Any) -> Any:
-    """Numbers as floats, so a client that rewrites 63.0 as 63 (JavaScript) keeps the checksum."""
+#: number lists at least this long are written by orjson (the rest of the artifact by json)
+FAST_LIST = 32
+
+
+def _positional(values: list[float]) -> bytes | None:
+    """``values`` as ``json.dumps`` writes them, by orjson: both write the shortest digits
+    that read back to each float, and the same text wherever Python's ``repr`` writes no
+    exponent (0, or 1e-4 <= |x| < 1e16).  None for any other list (an exponent, which the
+    two write differently, or a non-finite number, which json refuses)."""
+    size = np.abs(np.asarray(values, dtype=float))
+    if not np.all((size == 0.0) | ((size >= 1e-4) & (size < 1e16))):  # NaN: False
+        return None
+    out = orjson.dumps(values)
+    return None if b"e" in out else out
+
+
+def _canon(v: Any, fast: dict[str, bytes] | None = None, tag: str = "") -> Any:
+    """Numbers as floats, so a client that rewrites 63.0 as 63 (JavaScript) keeps the checksum.
+
+    With ``fast``, a long list of numbers that orjson writes as json would is left out: a
+    placeholder string (``tag`` and a counter) stands in its place and ``fast`` keeps its
+    text under that placeholder."""
     if isinstance(v, dict):
-        return {k: _canon(x) for k, x in v.items()}
+        return {k: _canon(x, fast, tag) for k, x in v.items()}
     if isinstance(v, (list, tuple)):
-        if all(type(x) is float for x in v):  # stored residuals and quantiles: thousands
-            return list(v)
-        if all(type(x) is int for x in v):  # fold numbers of out-of-fold residuals: thousands
-            return [float(x) for x in v]
-        return [_canon(x) for x in v]
+        out: list[Any] | None = None
+        kinds = set(map(type, v))  # one C-level pass over thousands of numbers
+        if kinds <= {float}:  # stored residuals and quantiles: thousands
+            out = list(v)
+        elif kinds == {int}:  # fold numbers of out-of-fold residuals: thousands
+            out = [float(x) for x in v]
+        if out is None:
+            return [_canon(x, fast, tag) for x in v]
+        if fast is not None and len(out) >= FAST_LIST:
+            text = _positional(out)
+            if text is not None:
+                token = f"{tag}:{len(fast)}"
+                fast[token] = text
+                return token
+        return out
     if isinstance(v, bool) or v is None or isinstance(v, str):
         return v
     if isinstance(v, (int, float)):
@@ -44,11 +78,27 @@ def _canon(v: Any) -> Any:
     return v
 
 
+def _dumps(clean: Any) -> bytes:
+    return json.dumps(clean, sort_keys=True, separators=(",", ":"), allow_nan=False).encode()
+
+
 def canonical_bytes(body: dict[str, Any]) -> bytes:
-    """The canonical JSON of an artifact without its checksum and signature fields."""
-    clean = _canon({k: v for k, v in body.items() if k not in UNSIGNED_FIELDS})
-    text = json.dumps(clean, sort_keys=True, separators=(",", ":"), allow_nan=False)
-    return text.encode()
+    """The canonical JSON of an artifact without its checksum and signature fields: the
+    all-floats form written by ``json.dumps`` with sorted keys and no spaces.
+
+    Long number lists (stored residuals, fold numbers) are written by orjson where its text
+    is json's (:func:`_positional`) and put in place of a placeholder that holds a random
+    tag; a placeholder found other than exactly once (a caller string equal to it) sends
+    the whole body through ``json.dumps``."""
+    kept = {k: v for k, v in body.items() if k not in UNSIGNED_FIELDS}
+    fast: dict[str, bytes] = {}
+    text = _dumps(_canon(kept, fast, "\x00" + secrets.token_hex(16)))
+    for token, numbers in fast.items():
+        quoted = _dumps(token)
+        if text.count(quoted) != 1:
+            return _dumps(_canon(kept))
+        text = text.replace(quoted, numbers)
+    return text
 
 
 def checksum(body: dict[str, Any]) -> str:

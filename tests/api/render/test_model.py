@@ -184,6 +184,52 @@ def test_canonical_bytes_keep_their_definition_on_long_number_lists(issued):
     assert render.canonical_bytes(body) == ref.encode()
 
 
+def _written_by_json(body: dict) -> bytes:
+    clean = {k: v for k, v in body.items() if k not in render.UNSIGNED_FIELDS}
+    # source: json.dumps(sort_keys, compact) of the recursive all-floats form
+    return json.dumps(_reference_canon(clean), sort_keys=True, separators=(",", ":")).encode()
+
+
+@pytest.mark.parametrize("scale", [1e-9, 1e-4, 0.05, 1.0, 3e3, 1e12, 1e15, 1e17, 1e300])
+def test_long_number_lists_are_written_as_json_writes_them(issued, scale, monkeypatch):
+    art, _, _, _ = issued
+    body = copy.deepcopy(art)
+    rng = np.random.default_rng(int(np.log10(scale)) + 400)
+    plain = (rng.uniform(1, 9, 2000) * scale).tolist()  # no exponent from 1e-4 to 1e15
+    plain[::50] = [0.0, -0.0, 9999999999999998.0 * min(scale, 1.0), 0.5] * 10
+    body["residuals"]["values"] = plain
+    body["extra"] = {
+        "heavy": (rng.standard_t(3, 3000) * scale).tolist(),  # some below 1e-4 at most scales
+        "rounded": np.round(rng.normal(0, 1e6, 500)).tolist(),
+        "short": [0.5] * 40,
+        "folds": list(range(1, 6)) * 400,
+    }
+    fast = []
+    monkeypatch.setattr(
+        render, "_positional", lambda v, f=render._positional: fast.append(f(v)) or fast[-1]
+    )
+    assert render.canonical_bytes(body) == _written_by_json(body)
+    written = [t for t in fast if t is not None]
+    assert len(written) >= (3 if 1e-4 <= scale <= 1e15 else 2)  # plain, rounded, short, folds
+
+
+def test_a_non_finite_number_in_a_long_list_is_still_refused(issued):
+    art, _, _, _ = issued
+    body = copy.deepcopy(art)
+    body["residuals"]["values"] = [0.5] * 100 + [float("nan")]
+    with pytest.raises(ValueError):  # json.dumps(allow_nan=False), as before
+        render.canonical_bytes(body)
+
+
+def test_a_string_equal_to_a_placeholder_sends_the_body_through_json(issued, monkeypatch):
+    art, _, _, _ = issued
+    monkeypatch.setattr(render.secrets, "token_hex", lambda n: "f" * (2 * n))
+    body = copy.deepcopy(art)
+    body["extra"] = {"caller": "\x00" + "f" * 32 + ":0"}  # the first list's placeholder
+    assert render.canonical_bytes(body) == _written_by_json(body)
+    assert '"\\u0000' + "f" * 32 + ':0"' in _written_by_json(body).decode()
+
+
 def _hmac_reference(body: dict, kid: str) -> str:
     """RFC 2104 HMAC-SHA-256 over the key id, a newline and the canonical JSON written out
     (json.dumps of the all-floats form, unsigned fields left out)."""
