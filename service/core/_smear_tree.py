@@ -44,52 +44,47 @@ J = 30  # series terms per block
 
 
 def _rho_ok(p: float, terms: int = J, rtol: float = TREE_RTOL) -> float:
-    """Largest rho in (0, 0.9] with T_J(rho) / m_p(rho) <= ``rtol`` (J = ``terms``).
+    """Largest rho on a fixed grid in (0, 0.9] with T_J(rho) / m_p(rho) <= ``rtol``
+    (J = ``terms``); 0 when no grid point meets it.  See :func:`rho_ok_many`."""
+    return float(rho_ok_many(np.array([float(p)]), terms, rtol)[0])
 
-    T_J(rho) = sum_{t >= J} |C(p, t)| rho^t: the terms up to t0 = max(J, |p| + 1)
-    are summed, the rest bounded by a geometric series with ratio rho q, where
-    q = max(1, (t0 - p) / (t0 + 1)) bounds |C(p, t+1) / C(p, t)| = |t - p| / (t + 1)
-    for every t >= t0.
+
+def rho_ok_many(p: np.ndarray, terms: int = J, rtol: float = TREE_RTOL) -> FloatArray:
+    """:func:`_rho_ok` of every exponent in ``p`` at once, in closed form.
+
+    T_J(rho) = sum_{t >= J} |C(p, t)| rho^t.  For t >= J the ratio of consecutive
+    coefficients |C(p, t+1) / C(p, t)| = |t - p| / (t + 1) is at most (t + |p|) / (t + 1)
+    <= q = max(1, (J + |p|) / (J + 1)), so T_J(rho) <= |C(p, J)| rho^J / (1 - q rho) when
+    q rho < 1 (a geometric series; for a polynomial of degree >= J the terms past the
+    degree are 0, so the bound still holds).  m_p(rho) = min_{|s| <= rho} (1 + s)^p is
+    (1 - rho)^p for p > 0 and (1 + rho)^p for p < 0.  Every factor grows with rho, so the
+    condition holds on a prefix of the grid; the answer is the last grid point of that
+    prefix.  A polynomial of degree < J (p a whole number below J) has no remainder: 0.9.
     """
-    return _rho_ok_cached(round(float(p), 12), terms, rtol)
-
-
-@lru_cache(maxsize=4096)
-def _rho_ok_cached(p: float, J: int, rtol: float) -> float:
-    poly = p >= 0 and abs(p - round(p)) < 1e-12
-    if poly and round(p) < J:
-        return 0.9  # a polynomial of degree < J: the series is exact
-    # a polynomial of degree >= J: terms J..p, nothing after
-    t0 = round(p) if poly else max(J, math.ceil(abs(p)) + 1)
-    j = np.arange(t0)
-    acc = np.concatenate([[0.0], np.cumsum(np.log(np.maximum(np.abs(p - j), 1e-300) / (j + 1)))])
-    logs = acc[J : t0 + 1]  # log |C(p, t)| for t = J .. t0
-    q = max(1.0, (t0 - p) / (t0 + 1))
-    ok = np.empty(_RHO_GRID.size, dtype=bool)
-    # rows of the grid in blocks of at most _MAX_CELLS cells: memory stays bounded for any p
-    step = max(1, _MAX_CELLS // len(logs))
-    powers_t = (J + np.arange(len(logs)))[None, :]
-    for a in range(0, _RHO_GRID.size, step):
-        rho = _RHO_GRID[a : a + step]
-        expo = np.asarray(logs)[None, :] + powers_t * np.log(rho)[:, None]
-        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            terms = np.exp(np.minimum(expo, 700.0))
-            tail = terms[:, :-1].sum(axis=1)
-            last = terms[:, -1]
-            tail = tail + (last if poly else np.where(rho * q < 1, last / (1.0 - rho * q), np.inf))
-            tail = np.where(np.max(expo, axis=1) > 700, np.inf, tail)
-            m = (1.0 - rho) ** p if p > 0 else (1.0 + rho) ** p
-            ok[a : a + step] = tail / m <= rtol
-        del expo, terms
-    rho = _RHO_GRID
-    if not ok[0]:
-        return 0.0
-    bad = np.flatnonzero(~ok)
-    return float(rho[bad[0] - 1] if bad.size else rho[-1])
+    p = np.asarray(p, dtype=float)
+    poly = (p >= 0) & (np.abs(p - np.round(p)) < 1e-12)
+    j = np.arange(terms)
+    ap = np.abs(p)
+    # log |C(p, J)| = sum_{j < J} log |p - j| - log J!
+    logc = np.sum(np.log(np.maximum(np.abs(p[:, None] - j), 1e-300)), axis=1) - math.lgamma(
+        terms + 1
+    )
+    q = np.maximum(1.0, (terms + ap) / (terms + 1))
+    rho = _RHO_GRID[None, :]
+    qr = q[:, None] * rho
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        log_m = np.where(p[:, None] > 0, p[:, None] * np.log1p(-rho), p[:, None] * np.log1p(rho))
+        # log(1 - q rho) where the geometric bound converges, -inf (bound infinite) elsewhere
+        geo = np.where(qr < 1.0, np.log1p(-np.where(qr < 1.0, qr, 0.0)), -np.inf)
+        lhs = logc[:, None] + terms * np.log(rho) - geo - log_m
+    ok = (qr < 1.0) & (lhs <= math.log(rtol))
+    first_bad = np.where(ok.all(axis=1), _RHO_GRID.size, np.argmin(ok, axis=1))
+    out = np.where(first_bad == 0, 0.0, _RHO_GRID[np.maximum(first_bad - 1, 0)])
+    out = np.where(poly & (np.round(p) < terms), 0.9, out)
+    return np.asarray(out, dtype=float)
 
 
 _RHO_GRID = np.geomspace(1e-9, 0.9, 160)
-_MAX_CELLS = 1 << 18  # 2 MB per temporary array of the remainder bound
 
 
 @lru_cache(maxsize=256)
@@ -220,6 +215,9 @@ def smear_power_many(
             else:
                 out[g, rest[g]] = exact_power(er, e[g], *form)
         gi, ji = np.nonzero(rest & pairs[:, None])
+        if gi.size and n >= 2 * PAIR_BIN:  # every group's etas left, by the binned series
+            out[gi, ji] = _binned_pairs(gi, eta[gi, ji], e, beta, gamma, delta, p, zero)
+            return out
         step = max(1, _MANY_CELLS // n)
         for a in range(0, gi.size, step):
             gg, jj = gi[a : a + step], ji[a : a + step]
@@ -230,6 +228,118 @@ def smear_power_many(
                 p[gg],
                 zero[gg],
             )
+    return out
+
+
+PAIR_BIN = 16  # residuals per bin of the many-group binned path
+_PAIR_CELLS = 1 << 18  # (eta, bin, term) cells per block of that path (2 MB of floats)
+
+
+def _binned_pairs(
+    gi: np.ndarray,
+    eta: np.ndarray,
+    e: np.ndarray,
+    beta: np.ndarray,
+    gamma: np.ndarray,
+    delta: np.ndarray,
+    p: np.ndarray,
+    zero: np.ndarray,
+) -> FloatArray:
+    """Smeared means of single etas of many groups (``eta[q]`` of group ``gi[q]``, residuals
+    ``e`` (G, n), the power forms of :func:`smear_power_many`), by one level of bins of
+    PAIR_BIN consecutive sorted residuals per group, every group at once: the bins'
+    scaled moments once per group, each (eta, bin) by its series (BIN_J terms) where the
+    bound allows it, term by term where it does not (next to a pole, a clip or a domain
+    cut), nothing where no term of the bin is defined.
+
+    The arithmetic and bound are :func:`smear_power_binned`'s one level: bin k of sorted
+    s = sign(delta) e has centre c_k, half-width r_k and moments M_kt = sum ((s_i - c_k) /
+    r_k)^t; its terms sum to b_c^p sum_t C(p, t) M_kt rho^t with b_c = A + |delta| c_k and
+    rho = |delta| r_k / b_c, taken where the bin's lowest base is positive and rho is at
+    most :func:`_rho_ok` (p, BIN_J, BIN_RTOL): the remainder is at most BIN_RTOL (1e-12) of
+    the bin's sum, all terms of one sign, so the mean's relative error is at most 1e-12
+    plus rounding.  A term's base is A + |delta| s_i, the same floating-point value as the
+    exact sum's A + delta e_i, so the defined terms are the ones :func:`exact_power`
+    counts.  Overflow gives inf, as in the exact sum (callers treat it as undefined)."""
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        return _binned_pairs_unguarded(gi, eta, e, beta, gamma, delta, p, zero)
+
+
+def _binned_pairs_unguarded(
+    gi: np.ndarray,
+    eta: np.ndarray,
+    e: np.ndarray,
+    beta: np.ndarray,
+    gamma: np.ndarray,
+    delta: np.ndarray,
+    p: np.ndarray,
+    zero: np.ndarray,
+) -> FloatArray:
+    n = e.shape[1]
+    L = PAIR_BIN
+    used, inv = np.unique(gi, return_inverse=True)
+    nb = -(-n // L)
+    pad = np.full((used.size, nb * L), -np.inf)  # a padded slot: never a defined term
+    sgn = np.where(delta[used] > 0, 1.0, -1.0)
+    pad[:, :n] = np.sort(sgn[:, None] * e[used], axis=1)
+    S = pad.reshape(used.size, nb, L)
+    member = np.isfinite(S)
+    cnt = member.sum(axis=2)
+    last = np.maximum(cnt - 1, 0)
+    lo = S[:, :, 0]
+    hi = np.take_along_axis(S, last[:, :, None], axis=2)[:, :, 0]
+    c = 0.5 * (lo + hi)
+    r = 0.5 * (hi - lo)
+    rs = np.where(r > 0, r, 1.0)
+    u = np.where(member, (S - c[:, :, None]) / rs[:, :, None], 0.0)  # 0 in a padded slot
+    mom = np.empty((BIN_J, used.size, nb))
+    mom[0] = cnt
+    ut = np.ascontiguousarray(u.transpose(2, 0, 1))  # (L, groups, bins): sums over axis 0
+    acc = ut.copy()
+    for t in range(1, BIN_J):  # scaled moments sum u^t, one power at a time
+        mom[t] = acc.sum(axis=0)
+        acc *= ut
+    # (BIN_J, groups x bins): C(p, t) M_kt, each power's table contiguous for the gathers
+    coef = (mom * _binom_rows(p[used], BIN_J).T[:, :, None]).reshape(BIN_J, -1)
+    pu, pinv = np.unique(p[used], return_inverse=True)
+    rho_ok = rho_ok_many(pu, BIN_J, BIN_RTOL)[pinv]
+    one_p = float(pu[0]) if pu.size == 1 else None  # one exponent: the cheaper ufunc
+    ad = np.abs(delta[used])
+    P = eta.size
+    total = np.zeros(P)
+    count = np.zeros(P)
+    step = max(1, _PAIR_CELLS // (nb * 8))  # a few (etas, bins) arrays at once
+    for a in range(0, P, step):
+        q = np.arange(a, min(P, a + step))
+        g = inv[q]
+        A = (gamma[gi[q]] + delta[gi[q]] * eta[q])[:, None]
+        d = ad[g][:, None]
+        bc = A + d * c[g]
+        rho = d * r[g] / bc
+        series = (A + d * lo[g] > 0) & (rho <= rho_ok[g][:, None])
+        si, sb = np.nonzero(series)  # the (eta, bin) cells the series takes
+        cell = g[si] * nb + sb
+        x = rho[si, sb]
+        acc = coef[BIN_J - 1][cell]
+        for t in range(BIN_J - 2, -1, -1):  # Horner in rho
+            acc *= x
+            acc += coef[t][cell]
+        pg = p[gi[q]][:, None]
+        bcs = bc[si, sb]
+        acc *= _pow(bcs, one_p) if one_p is not None else np.power(bcs, pg[si, 0])
+        total[q] = np.bincount(si, weights=acc, minlength=q.size)
+        count[q] = np.bincount(si, weights=cnt[g[si], sb], minlength=q.size)
+        # bins the series cannot take that hold a defined term: term by term
+        ei, bi = np.nonzero(~series & (A + d * hi[g] > 0))
+        if ei.size:
+            base = A[ei] + d[ei] * S[g[ei], bi]  # (pairs, L)
+            ok = base > 0
+            bs = np.where(ok, base, 1.0)
+            v = _pow(bs, one_p) if one_p is not None else np.power(bs, pg[ei])
+            total[q] += np.bincount(ei, weights=np.where(ok, v, 0.0).sum(axis=1), minlength=q.size)
+            count[q] += np.bincount(ei, weights=ok.sum(axis=1), minlength=q.size)
+    cnt_all = np.where(zero[gi], float(n), count)
+    out: FloatArray = np.where(cnt_all > 0, beta[gi] * total / np.maximum(cnt_all, 1.0), np.nan)
     return out
 
 
@@ -258,9 +368,8 @@ def _exact_pairs(
 
 
 def _rho_ok_many(p: np.ndarray) -> np.ndarray:
-    """:func:`_rho_ok` (J terms, TREE_RTOL) of every exponent in ``p``, once per distinct one."""
-    u, inv = np.unique(p, return_inverse=True)
-    return np.array([_rho_ok(float(v)) for v in u])[inv]
+    """:func:`_rho_ok` (J terms, TREE_RTOL) of every exponent in ``p``."""
+    return rho_ok_many(p, J, TREE_RTOL)
 
 
 def _binom_rows(p: np.ndarray, terms: int) -> np.ndarray:

@@ -53,7 +53,13 @@ from .cvresult import (
 )
 from .errors import CandidateFailure
 from .fitting import qr_solve, solve_batch
-from .likelihood import FoldLambdaProblem, fit_transform, fold_lambdas, many_fold_lambdas
+from .likelihood import (
+    FoldLambdaProblem,
+    fit_transform,
+    fold_lambdas,
+    many_fold_lambdas,
+    many_lambdas,
+)
 from .numbers import count_of
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -68,6 +74,12 @@ if TYPE_CHECKING:  # pragma: no cover
 # response is the same in every fold).
 POWER_BATCH_CELLS = 50_000
 LAMBDA_BATCH_CELLS = 25_000
+#: all-rows lambdas of at least this many designs are found in one stacked search; fewer
+#: one by one (the stacked bounded Brent costs ~17 ms of numpy calls whatever the number
+#: of designs, the one-design search 4-6 ms each at 300-2,000 rows: measured by hand)
+STACKED_LAMBDAS_MIN = 6
+#: at most this many floats of stacked fold designs at once in Scorer.score_many (64 MB)
+_STACK_FLOATS = 8_000_000
 
 
 def _exact_refit(
@@ -156,6 +168,43 @@ class Scorer:
         self.shift_needed = shift_needed
         self._resp: dict[tr.Transform, tuple[tr.Transform, np.ndarray, bool]] = {}
         self.want_mape = bool(np.all(self.y != 0))
+        # all-rows lambdas (family, bank columns) -> lambda or why it has none: the warm
+        # start of the folds' estimates, asked for again by out_of_fold and a second search
+        self._near: dict[tuple[str, tuple[int, ...]], float | ValueError] = {}
+
+    def all_rows_lambdas(
+        self, items: Sequence[tuple[tr.Transform, Sequence[int]]]
+    ) -> list[float | ValueError]:
+        """The all-rows lambda of each ``(t, cols)`` (a response scale with a lambda to
+        estimate, bank columns), or the ValueError the estimate raised: what
+        ``fit_transform(t, y, bank.columns(cols)).lam`` gives, every one not already known
+        found together (:func:`likelihood.many_lambdas`; the one-design path for those it
+        does not take) and kept for the rest of the request."""
+        keys = [(t.name, tuple(int(c) for c in cols)) for t, cols in items]
+        todo: dict[tuple[str, tuple[int, ...]], tr.Transform] = {}
+        for (t, _cols), key in zip(items, keys, strict=True):
+            if key not in self._near:
+                todo.setdefault(key, t)
+        by_family: dict[str, list[tuple[str, tuple[int, ...]]]] = {}
+        for key in todo:
+            by_family.setdefault(key[0], []).append(key)
+        for family, ks in by_family.items():
+            designs = [self.bank.columns(np.asarray(k[1], dtype=int)) for k in ks]
+            stacked: list[float | None] = (
+                many_lambdas(family, self.y, designs)
+                if len(designs) >= STACKED_LAMBDAS_MIN
+                else [None] * len(designs)
+            )
+            for key, X, lam in zip(ks, designs, stacked, strict=True):
+                if lam is None:  # the one-design path (and its reason when it fails)
+                    try:
+                        lam = fit_transform(todo[key], self.y, X).lam
+                    except ValueError as exc:
+                        self._near[key] = exc
+                        continue
+                    assert lam is not None  # fit_transform estimated it
+                self._near[key] = float(lam)
+        return [self._near[key] for key in keys]
 
     # ------------------------------------------------------------ response side
     def fixed_response(self, t: tr.Transform) -> tuple[tr.Transform, np.ndarray, bool]:
@@ -240,8 +289,12 @@ class Scorer:
         back-transform anywhere is scored again alone, so its result or failure reason is
         :meth:`score`'s own."""
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            ready = self._estimated_many(items)
             pends: list[_Pending | None] = []
-            for t, cols, names, dyn, found in items:
+            for j, (t, cols, names, dyn, found) in enumerate(items):
+                if j in ready:
+                    pends.append(None)
+                    continue
                 try:
                     pends.append(self._held_out(t, cols, names, dyn, False, False, found))
                 except CandidateFailure:
@@ -264,7 +317,11 @@ class Scorer:
                 for f, mean in zip(group, got, strict=True):
                     f.mean = mean
             out: list[CVResult | CandidateFailure] = []
-            for item, pend in zip(items, pends, strict=True):
+            for j, (item, pend) in enumerate(zip(items, pends, strict=True)):
+                done = ready.get(j)
+                if done is not None:
+                    out.append(done)
+                    continue
                 means = [] if pend is None else [f.mean for f in pend.folds]
                 if (
                     pend is not None
@@ -282,6 +339,215 @@ class Scorer:
                 except CandidateFailure as exc:
                     out.append(exc)
             return out
+
+    def _estimated_many(
+        self,
+        items: Sequence[
+            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
+        ],
+    ) -> dict[int, CVResult]:
+        """The results of the candidates among ``items`` whose folds' lambdas or powers were
+        found together (:meth:`lambdas_many`, :meth:`powers_many`), scored as a batch: every
+        fold's response scale and design with its own lambda or powers, the training
+        systems of all of them in one stacked solve (:func:`fitting.solve_batch`, the same
+        column scaling, condition check and Cholesky), the held-out predictions and
+        training residuals gathered for all folds of all candidates at once, the smeared
+        means of every fold in one call per fold shape (:func:`retransform.smeared_means`)
+        and the fold and pooled errors reduced in numpy.  A candidate the batch cannot
+        settle as :meth:`score` would (a fold needing the exact refit, a training fold too
+        small, a response scale or back-transform that is not finite anywhere, an error
+        that is not finite) is left out: :meth:`score_many` scores it alone, so its result
+        or failure is the one-candidate path's.  Index in ``items`` -> result."""
+        K, R, n = self.plan.folds, self.plan.repeats, self.y.size
+        take: list[int] = []
+        for j, (t, _cols, _names, dyn, found) in enumerate(items):
+            if found is None:
+                continue
+            if dyn is None and t.needs_lambda and found.lambdas is not None:
+                if len(found.lambdas) == R * K and all(v is not None for v in found.lambdas):
+                    take.append(j)
+            elif (
+                dyn is not None
+                and found.powers is not None
+                and not t.needs_lambda
+                and not self.per_fold_response(t)
+            ):
+                take.append(j)
+        out: dict[int, CVResult] = {}
+        if not take:
+            return out
+        # floats held per candidate: designs (R K n p), scales and predictions (a few R K n)
+        widest = max(
+            len(cols) + (0 if dyn is None else len(dyn.positions))
+            for _t, cols, _n, dyn, _f in (items[j] for j in take)
+        )
+        step = max(1, _STACK_FLOATS // max(1, R * K * n * (widest + 6)))
+        for a in range(0, len(take), step):
+            part = take[a : a + step]
+            got = self._estimated_batch([items[j] for j in part])
+            for j, res in zip(part, got, strict=True):
+                if res is not None:
+                    out[j] = res
+        return out
+
+    def _estimated_batch(
+        self,
+        items: Sequence[
+            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
+        ],
+    ) -> list[CVResult | None]:
+        bank, y, plan = self.bank, self.y, self.plan
+        index = bank.index
+        K, R, n = plan.folds, plan.repeats, y.size
+        F = R * K
+        train = [rows for r in range(R) for rows in index.train[r]]
+        test = [rows for r in range(R) for rows in index.test[r]]
+        Mtr = np.zeros((F, n), dtype=bool)
+        for f, rows in enumerate(train):
+            Mtr[f, rows] = True
+        smallest = min(rows.size for rows in train)
+        C = len(items)
+        alive = np.ones(C, dtype=bool)
+        scales: list[list[tr.Transform]] = []
+        Z = np.empty((C, F, n))
+        ETA = np.empty((C, F, n))
+        lambdas: list[list[float]] = []
+        powers: list[list[list[float]]] = []
+        # ---- each candidate's fold scales and training systems, then one stacked solve
+        systems: dict[int, list[tuple[int, np.ndarray, np.ndarray, np.ndarray]]] = {}
+        for c, (t, cols, _names, dyn, found) in enumerate(items):
+            assert found is not None  # chosen by _estimated_many
+            S = np.asarray(cols, dtype=int)
+            XS = bank.columns(S)
+            p = S.size + (0 if dyn is None else len(dyn.positions))
+            lambdas.append([])
+            powers.append([])
+            if smallest <= p:
+                alive[c] = False
+                scales.append([])
+                continue
+            if dyn is None:
+                assert found.lambdas is not None  # all found (_estimated_many)
+                ts = [replace(t, lam=lam, estimated=True) for lam in found.lambdas]
+                Z[c] = np.stack([tk.forward(y) for tk in ts])
+                lambdas[c] = [float(tk.lam) for tk in ts if tk.lam is not None]  # as set
+                G = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+                rhs = np.stack([XS[rows].T @ Z[c, f, rows] for f, rows in enumerate(train)])
+                X = np.broadcast_to(XS, (F, n, p))
+            else:
+                assert found.powers is not None  # found (_estimated_many)
+                t0, z, finite = self.fixed_response(t)
+                if not finite:  # alone: the one-candidate path's reason
+                    alive[c] = False
+                    scales.append([])
+                    continue
+                ts = [t0] * F
+                Z[c] = z
+                A = np.array([fit.powers for fits in found.powers for fit in fits], dtype=float)
+                powers[c] = A.tolist()
+                W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+                fixed_pos = [i for i in range(p) if i not in dyn.positions]
+                X = np.empty((F, n, p))
+                X[:, :, fixed_pos] = XS
+                X[:, :, dyn.positions] = W
+                Xm = X * Mtr[:, :, None]
+                G = np.matmul(Xm.transpose(0, 2, 1), X)
+                rhs = np.einsum("knp,kn->kp", Xm, Z[c])
+            scales.append(ts)
+            if not np.all(np.isfinite(Z[c]) | ~Mtr):
+                alive[c] = False  # a scale that overflows on training rows: alone
+                continue
+            systems.setdefault(p, []).append((c, G, rhs, X))
+        for group in systems.values():
+            B, ok = solve_batch(
+                np.concatenate([g[1] for g in group]), np.concatenate([g[2] for g in group])
+            )
+            for i, (c, _G, _rhs, X) in enumerate(group):
+                Bc = B[i * F : (i + 1) * F]
+                if not np.all(ok[i * F : (i + 1) * F]):
+                    alive[c] = False  # the exact refit: alone
+                    continue
+                ETA[c] = np.einsum("knp,kp->kn", X, Bc)
+        # ---- held-out predictions, medians and smeared means, all folds of one shape at once
+        MEAN = np.full((C, R, n), np.nan)
+        MED = np.full((C, R, n), np.nan)
+        shapes: dict[tuple[int, int], list[int]] = {}
+        for f in range(F):
+            shapes.setdefault((test[f].size, train[f].size), []).append(f)
+        for fs in shapes.values():
+            live = np.flatnonzero(alive)
+            if live.size == 0:
+                break
+            TE = np.stack([test[f] for f in fs])  # (Fg, m)
+            TR = np.stack([train[f] for f in fs])  # (Fg, ntr)
+            fa = np.asarray(fs, dtype=np.intp)
+            rr = fa // K
+            E = ETA[live][:, fa]
+            eta = np.take_along_axis(E, TE[None], axis=2)  # (L, Fg, m)
+            e = np.take_along_axis(Z[live][:, fa], TR[None], axis=2) - np.take_along_axis(
+                E, TR[None], axis=2
+            )
+            med = np.empty_like(eta)
+            for i, c in enumerate(live.tolist()):
+                ts = scales[c]
+                if all(ts[f] is ts[fs[0]] for f in fs):
+                    med[i] = retransform.naive(ts[fs[0]], eta[i])
+                else:
+                    for g, f in enumerate(fs):
+                        med[i, g] = retransform.naive(ts[f], eta[i, g])
+            good = np.all(np.isfinite(med), axis=(1, 2))
+            alive[live[~good]] = False
+            keep = np.flatnonzero(good)
+            if keep.size == 0:
+                continue
+            m, ntr = TE.shape[1], TR.shape[1]
+            mean = retransform.smeared_means(
+                [scales[int(live[i])][f] for i in keep.tolist() for f in fs],
+                eta[keep].reshape(-1, m),
+                e[keep].reshape(-1, ntr),
+            ).reshape(keep.size, len(fs), m)
+            cs = live[keep]
+            MEAN[cs[:, None, None], rr[None, :, None], TE[None]] = mean
+            MED[cs[:, None, None], rr[None, :, None], TE[None]] = med[keep]
+        # ---- fold errors and pooled errors of every candidate at once
+        live = np.flatnonzero(alive)
+        out: list[CVResult | None] = [None] * C
+        if live.size == 0:
+            return out
+        mean_l, med_l = MEAN[live], MED[live]  # (L, R, n)
+        alive[live[~np.all(np.isfinite(mean_l), axis=(1, 2))]] = False
+        sq = ((y - mean_l) ** 2).transpose(2, 0, 1)  # (n, L, R)
+        ab = np.abs(y - med_l).transpose(2, 0, 1)
+        pc = np.abs((y - med_l) / y).transpose(2, 0, 1) if self.want_mape else None
+        fold_vals = np.empty((live.size, F))
+        for f in range(F):
+            r, te = f // K, test[f]
+            fold_vals[:, f] = error_of(
+                plan.metric, sq[te, :, r], ab[te, :, r], None if pc is None else pc[te, :, r]
+            )
+        pooled = {name: error_of(name, sq, ab, pc) for name in METRICS}  # (L, R) each
+        for i, c in enumerate(live.tolist()):
+            if not alive[c]:
+                continue
+            summary = summary_of(
+                pooled["rmse"][i], pooled["mae"][i], pooled["mape"][i] if self.want_mape else None
+            )
+            value = summary.of(plan.metric)
+            fv = fold_vals[i].copy()
+            if value is None or not math.isfinite(value) or not np.all(np.isfinite(fv)):
+                continue  # alone: the one-candidate path's reason
+            out[c] = CVResult(
+                plan.metric,
+                value,
+                std_error_of(fv, K),
+                fv,
+                summary,
+                lambdas[c] or None,
+                powers[c] or None,
+                0,
+                None,
+            )
+        return out
 
     def _held_out(
         self,
@@ -313,10 +579,10 @@ class Scorer:
         if estimate_lam and found is not None and found.lambdas is not None:
             near = found.near
         elif estimate_lam:
-            try:
-                near = fit_transform(t, y, XS).lam
-            except ValueError as exc:
-                raise CandidateFailure(str(exc)) from None
+            got = self.all_rows_lambdas([(t, cols)])[0]
+            if isinstance(got, ValueError):
+                raise CandidateFailure(str(got)) from None
+            near = got
         if not per_fold:
             t0, z, finite = self.fixed_response(t)
             if not finite:
@@ -655,15 +921,14 @@ class Scorer:
             return out
         train_all = [rows for r in range(R) for rows in self.bank.index.train[r]]
         fams: dict[str, tuple[list[int], list[FoldLambdaProblem]]] = {}
-        for i, (t, cols) in enumerate(items):
-            if not t.needs_lambda:
+        want = [i for i, (t, _cols) in enumerate(items) if t.needs_lambda]
+        nears = self.all_rows_lambdas([items[i] for i in want])
+        for i, near in zip(want, nears, strict=True):
+            if isinstance(near, ValueError):
                 continue
+            t, cols = items[i]
             S = np.asarray(cols, dtype=int)
             XS = self.bank.columns(S)
-            try:
-                near = fit_transform(t, self.y, XS).lam
-            except ValueError:
-                continue
             grams = np.concatenate([self.bank.train_grams(S, r) for r in range(R)])
             where, probs = fams.setdefault(t.name, ([], []))
             where.append(i)

@@ -461,9 +461,15 @@ class _FoldProfiles:
             return out
         own = self.owner[idx]
         out = np.empty((idx.size, self.X.shape[2]))
-        for o in np.unique(own):  # per candidate, the one-candidate path's product
-            at = own == o
-            out[at] = np.matmul(z[at], self.X[o])
+        # runs of folds of one candidate (a candidate's folds sit side by side): per run the
+        # one-candidate path's product, on a slice of z
+        if idx.size == 0:
+            return out
+        cut = np.flatnonzero(own[1:] != own[:-1]) + 1
+        starts = np.concatenate([[0], cut]).tolist()
+        ends = np.concatenate([cut, [idx.size]]).tolist()
+        for a, b in zip(starts, ends, strict=True):
+            out[a:b] = np.matmul(z[a:b], self.X[own[a]])
         return out
 
     def _design(self, f: int) -> np.ndarray:
@@ -475,18 +481,23 @@ class _FoldProfiles:
 
     def llf(self, idx: np.ndarray, lam: np.ndarray) -> np.ndarray:
         """Profile log-likelihood of folds ``idx`` at ``lam`` (one value per fold)."""
-        gm, lgm = self.gm[idx][:, None], self.lgm[idx]
-        lt = lam[:, None]
-        zero = np.abs(lt) < 1e-12
-        ls = np.where(zero, 1.0, lt)
+        gm, lgm = self.gm[idx], self.lgm[idx]
+        zero = np.abs(lam) < 1e-12
+        ls = np.where(zero, 1.0, lam)
+        w = self.w[idx]  # 0 off the training rows, so z is 0 there too
         with np.errstate(over="ignore", invalid="ignore"):
-            z = np.where(zero, gm * self.w[idx], gm * np.expm1(ls * self.w[idx]) / ls)
-            shift = gm[:, 0] * np.expm1(-ls[:, 0] * lgm) / ls[:, 0]
-            adjust = ~zero[:, 0] & ~self.has_const[idx]
-            z = np.where(adjust[:, None], z - shift[:, None], z)
-            M = self.M[idx]
-            finite = np.all(np.isfinite(z) | ~M, axis=1)
-            z = np.where(M & finite[:, None], z, 0.0)
+            z = np.expm1(ls[:, None] * w)
+            z *= gm[:, None]
+            z /= ls[:, None]
+            if np.any(zero):
+                z[zero] = gm[zero][:, None] * w[zero]
+            shift = gm * np.expm1(-ls * lgm) / ls
+            adjust = np.flatnonzero(~zero & ~self.has_const[idx])
+            if adjust.size:  # z - shift on the training rows, 0 elsewhere
+                z[adjust] = (z[adjust] - shift[adjust][:, None]) * self.M[idx[adjust]]
+            finite = np.all(np.isfinite(z), axis=1)
+            if not np.all(finite):
+                z[~finite] = 0.0
             zz = np.einsum("fb,fb->f", z, z)
             c = self._coef_rhs(idx, self._cross(idx, z))
             rss = zz - np.sum(c * c, axis=1)
@@ -560,6 +571,27 @@ def many_fold_lambdas(
             out[i] = got[first : first + size]
             first += size
     return out
+
+
+def many_lambdas(family: str, y: np.ndarray, designs: list[np.ndarray]) -> list[float | None]:
+    """The all-rows lambda of many designs (one response ``y``, designs (n, p_c)): what
+    ``estimate_lambda(family, y, X, with_interval=False)`` finds for each (the same grid of
+    25 points over [-3, 3], the same bounded Brent refinement with xatol 1e-9), with every
+    step's evaluations of all designs of one width made together (:func:`many_fold_lambdas`
+    with all rows as the one fold).  The profile's values differ from the one-design path's
+    in rounding only (X'X formed once for the stack, products in another order), which can
+    move the argmax of a flat maximum within Brent's tolerance: tests compare the two to
+    1e-6.  None for a design this path does not take (its scaled X'X fails the condition
+    check, Yeo-Johnson with negative values, no finite profile value): the one-design path
+    answers for it (and names the problem)."""
+    n = np.asarray(y).size
+    rows = [np.arange(n)]
+    problems = []
+    for X in designs:
+        with np.errstate(over="ignore", invalid="ignore"):
+            gram = (X.T @ X)[None]
+        problems.append(FoldLambdaProblem(X, rows, gram, None))
+    return [lams[0] for lams in many_fold_lambdas(family, y, problems)]
 
 
 def _no_near(near: float | None) -> float:

@@ -65,23 +65,17 @@ def test_remainder_bound_holds_near_the_floor(p):
 
 
 def test_remainder_bound_memory_is_bounded_for_any_exponent():
-    st._rho_ok_cached.cache_clear()
     tracemalloc.start()
     try:
-        st._rho_ok(1e6)  # lambda 1e-6 before the floor: arrays of 160 x 1e6 doubles (1.3 GB)
+        st._rho_ok(1e6)  # lambda 1e-6 before the floor: the bound is in closed form
         _, peak = tracemalloc.get_traced_memory()
     finally:
         tracemalloc.stop()
-        st._rho_ok_cached.cache_clear()
     assert peak < 100 * 2**20
 
 
-def test_blocked_remainder_bound_equals_the_unblocked_one(monkeypatch):
-    ps = (0.5, -2.0, 45.5, 1 / 0.0011)
-    st._rho_ok_cached.cache_clear()
-    blocked = [st._rho_ok(p) for p in ps]
-    st._rho_ok_cached.cache_clear()
-    monkeypatch.setattr(st, "_MAX_CELLS", 1 << 40)  # one block
-    whole = [st._rho_ok(p) for p in ps]
-    st._rho_ok_cached.cache_clear()
-    assert blocked == whole
+def test_remainder_bounds_of_many_exponents_equal_one_at_a_time():
+    ps = np.array([0.5, -2.0, 45.5, 1 / 0.0011, -1 / 0.0011, 3.0, 40.0, 1e6])
+    for terms, rtol in ((st.J, st.TREE_RTOL), (st.BIN_J, st.BIN_RTOL)):
+        many = st.rho_ok_many(ps, terms, rtol)
+        assert many.tolist() == [st._rho_ok(float(p), terms, rtol) for p in ps]

@@ -367,6 +367,9 @@ def test_many_candidates_scored_together_equal_each_scored_alone(kind):
     items = _many_items(scorer, X, x, kinds)
     got = scorer.score_many(items)
     assert len(got) == len(items)
+    # the lambda and power candidates' folds are scored as one batch (not one at a time)
+    batched = scorer._estimated_many(items)
+    assert sorted(batched) == [4, 5, 6, 7, 8, 9, 10]
     for (t, cols, names, dyn, f), g in zip(items, got, strict=True):
         try:
             alone = scorer.score(t, cols, names, dyn, found=f)
@@ -407,3 +410,72 @@ def test_many_candidates_with_undefined_back_transforms_fail_with_the_one_candid
         assert not isinstance(g, CandidateFailure)
         assert g.value == pytest.approx(one.value, rel=1e-10)
     assert failures >= 5  # 1/y predictions at or below 0 (see _grid)
+
+
+def test_all_rows_lambdas_are_found_together_once_and_kept(monkeypatch):
+    from service.core import fastcv
+    from service.core import likelihood as lk
+
+    rng = np.random.default_rng(12)
+    n = 160
+    X = np.column_stack([np.ones(n), rng.uniform(1, 10, n), rng.normal(size=n), np.zeros(n)])
+    X[:, 3] = X[:, 2] + 1e-9 * rng.normal(size=n)  # collinear with column 2
+    y = (1 + 0.3 * X[:, 1] + rng.normal(0, 0.15, n)) ** 2
+    plan = make_plan(n, 5, 2, 3)
+    scorer = Scorer(ColumnBank.of_matrix(X, FoldIndex.of(plan, n)), y, plan, False)
+    calls = []
+    real = lk.many_lambdas
+
+    def counted(family, yy, designs):
+        calls.append(len(designs))
+        return real(family, yy, designs)
+
+    monkeypatch.setattr(fastcv, "many_lambdas", counted)
+    bc, yj = tr.Transform("box_cox"), tr.Transform("yeo_johnson")
+    items = [(bc, [0, 1]), (bc, [0, 1, 2]), (yj, [0, 1]), (bc, [0, 2, 3]), (bc, [0, 1])]
+    few = Scorer(scorer.bank, y, plan, False).all_rows_lambdas(items)
+    assert calls == []  # fewer designs than STACKED_LAMBDAS_MIN: one by one
+    monkeypatch.setattr(fastcv, "STACKED_LAMBDAS_MIN", 1)
+    got = scorer.all_rows_lambdas(items)
+    # source: the one-design path (grid, then scipy.optimize.minimize_scalar bounded)
+    assert got == [pytest.approx(v, abs=1e-6) for v in few]
+    assert sorted(calls) == [1, 3]  # one stack per family; the repeated design once
+    for (t, cols), lam in zip(items, got, strict=True):
+        # source: the one-design path (grid, then scipy.optimize.minimize_scalar bounded);
+        # the collinear design is that path's own answer (QR residuals)
+        ref = lk.fit_transform(t, y, X[:, cols]).lam
+        assert lam == pytest.approx(ref, abs=1e-6)
+    assert scorer.all_rows_lambdas(items[:2]) == got[:2] and sorted(calls) == [1, 3]
+    scorer.score(bc, [0, 1])  # the scorer's warm start is the kept estimate
+    assert sorted(calls) == [1, 3]
+
+
+def test_batched_estimated_candidates_in_small_stacks_and_their_failures_equal_alone(
+    monkeypatch,
+):
+    from service.core import fastcv
+    from service.core.errors import CandidateFailure
+
+    from tests.core.test_batchcv import _grid
+
+    bank, y, plan, sets = _grid(400, 5)
+    scorer = Scorer(bank, y, plan, False)
+    lam = [(tr.Transform("box_cox"), cols) for cols in sets[60:72]]
+    lam += [(tr.Transform("yeo_johnson"), cols) for cols in sets[72:76]]
+    found = scorer.lambdas_many(lam)
+    items = [(t, cols, None, None, f) for (t, cols), f in zip(lam, found, strict=True)]
+    whole = scorer.score_many(items)
+    monkeypatch.setattr(fastcv, "_STACK_FLOATS", 1)  # one candidate per stack
+    assert len(scorer._estimated_many(items)) >= 8
+    for (t, cols, *_r), g, h in zip(items, scorer.score_many(items), whole, strict=True):
+        try:
+            one = scorer.score(t, cols)
+        except CandidateFailure as exc:
+            # source: Scorer.score, the one-candidate path: the same reason, word for word
+            assert str(g) == str(exc) and str(h) == str(exc)
+            continue
+        # source: Scorer.score, the one-candidate path (checked against lstsq refits above)
+        assert g.value == pytest.approx(one.value, rel=1e-10)
+        assert h.value == pytest.approx(one.value, rel=1e-10)
+        np.testing.assert_allclose(h.fold_values, one.fold_values, rtol=1e-10)
+        assert h.fold_lambdas == one.fold_lambdas

@@ -210,3 +210,71 @@ def test_many_candidates_lambdas_of_a_constant_design_are_scipys_boxcox_mle():
             # of a constant alone is scipy's model); abs 1e-5 (its optimiser's tolerance)
             ref = stats.boxcox_normmax(y[rows], method="mle")
             assert lam == pytest.approx(ref, abs=1e-5)
+
+
+# ------------------------------------------------------------ all rows, many designs at once
+def _designs(kind, rng, n, w):
+    out = []
+    for c in range(6):
+        cols = [np.ones(n), w, rng.normal(size=n)]
+        if kind == "collinear":  # X'X fails the condition check: the one-design path
+            cols.append(cols[2] + 1e-7 * rng.normal(size=n))
+        elif kind == "badly_scaled":
+            cols.append(1e6 * rng.uniform(0, 1, n) + 1990.0)
+        else:
+            cols.append(rng.uniform(0, 1, n))
+        out.append(np.column_stack(cols[: 3 + (c % 2)]))  # two design widths
+    return out
+
+
+@pytest.mark.parametrize(
+    ("kind", "family"),
+    [
+        ("random", "box_cox"),
+        ("collinear", "box_cox"),
+        ("badly_scaled", "box_cox"),
+        ("random", "yeo_johnson"),
+    ],
+)
+def test_many_lambdas_equal_scipys_bounded_search_on_each_design(kind, family):
+    rng = np.random.default_rng(len(kind) + len(family))
+    n = 300
+    w = rng.uniform(1, 10, n)
+    y = (1 + 0.3 * w + rng.normal(0, 0.15, n)) ** 2
+    designs = _designs(kind, rng, n, w)
+    got = lk.many_lambdas(family, y, designs)
+    for X, lam in zip(designs, got, strict=True):
+        if lam is None:
+            continue
+        one = lk.estimate_lambda(family, y, X, with_interval=False)
+        # source: the one-design path (grid, then scipy.optimize.minimize_scalar bounded,
+        # xatol 1e-9); the profile's values differ in rounding only, which moves the argmax
+        # of a flat maximum by ~1e-7 at most
+        assert lam == pytest.approx(one.lam, abs=1e-6)
+    if family == "box_cox":
+        X = designs[2]
+        ref = optimize.minimize_scalar(
+            lambda t: -_sm_box_cox_llf(y, X, t),
+            bounds=(-1.0, 2.0),
+            method="bounded",
+            options={"xatol": 1e-10},
+        )
+        # source: statsmodels OLS llf of scipy.stats.boxcox(y, lambda) plus the Jacobian,
+        # maximised by scipy.optimize.minimize_scalar; abs 1e-4 (the suggested tolerance
+        # for a regression Box-Cox lambda in the public checks)
+        assert got[2] == pytest.approx(ref.x, abs=1e-4)
+    if kind == "collinear":
+        assert got[1] is None and got[3] is None  # left to the one-design path
+        assert got[0] is not None
+
+
+def test_many_lambdas_of_a_constant_design_are_scipys_boxcox_mle():
+    from scipy import stats
+
+    rng = np.random.default_rng(8)
+    y = rng.lognormal(1.0, 0.4, 180) + 0.5
+    got = lk.many_lambdas("box_cox", y, [np.ones((180, 1))] * 3)
+    # source: scipy.stats.boxcox_normmax(method="mle") (a design of a constant alone is
+    # scipy's model); abs 1e-5 (its optimiser's tolerance)
+    ref = stats.boxcox_normmax(y, method="mle")
+    assert got == [pytest.approx(ref, abs=1e-5)] * 3

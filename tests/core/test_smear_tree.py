@@ -363,3 +363,54 @@ def test_smeared_means_of_mixed_scales_equal_one_call_each():
         # source: retransform.smeared_mean one group at a time (checked against the
         # double sum written out above and in test_retransform)
         np.testing.assert_allclose(got[g], retransform.smeared_mean(t, eta[g], e[g]), rtol=1e-13)
+
+
+@pytest.mark.parametrize(
+    "t, centre",
+    [
+        pytest.param(tr.Transform("square"), 0.6, id="square (one exponent, clip)"),
+        pytest.param(tr.Transform("reciprocal"), 1.2, id="reciprocal (one exponent, pole)"),
+        pytest.param(None, None, id="mixed Box-Cox lambdas"),
+    ],
+)
+def test_many_groups_binned_pairs_within_the_bound_of_the_double_sum(t, centre):
+    """The etas the root series leaves, of many groups at once, by one level of bins
+    (``_binned_pairs``): each within the stated bound of the mean written out, with etas
+    right at and across the clip or pole, n not a multiple of the bin size."""
+    rng = np.random.default_rng(zlib.crc32(f"pairs/{t}".encode()))
+    n, m = 203, 25
+    if t is None:  # lambdas as estimated per fold: near 0 (huge |p|), moderate, negative
+        ts = [
+            tr.Transform("box_cox", lam=v)
+            for v in (0.0014, -0.0023, 0.3, -0.3, 0.41, -0.7, 1.5, 0.02)
+        ]
+        centres = [0.5, 0.5, -1.0, 0.6, -1.0, 0.6, -0.5, 0.5]
+    else:
+        ts, centres = [t] * 6, [centre] * 6
+    etas, es = [], []
+    for g, (tg, c) in enumerate(zip(ts, centres, strict=True)):
+        e = _residuals(["normal", "skewed", "heavy"][g % 3], n, rng)
+        sing = tg.inverse_singularities()
+        eta = c + rng.normal(0, 1.0, m)
+        if sing:  # a few etas that put the singular point among the residuals, just off a term
+            eta[:5] = (
+                sing[0] - rng.choice(e, 5) + rng.choice([-1, 1], 5) * 10 ** rng.uniform(-9, -3, 5)
+            )
+        etas.append(eta)
+        es.append(e)
+    eta, e = np.stack(etas), np.stack(es)
+    f = np.array([st.power_form(tg) for tg in ts], dtype=float)
+    gi, ji = np.nonzero(np.ones_like(eta, dtype=bool))
+    got = st._binned_pairs(gi, eta[gi, ji], e, f[:, 0], f[:, 1], f[:, 2], f[:, 3], f[:, 4] > 0)
+    got = got.reshape(eta.shape)
+    for g, tg in enumerate(ts):
+        want, tol = _plain_mean(tg, eta[g], e[g])
+        # source: Duan (1983) smearing written out (the double sum), within BIN_RTOL + rounding
+        assert np.array_equal(np.isnan(got[g]), np.isnan(want)), tg
+        assert np.array_equal(np.isinf(got[g]), np.isinf(want)), tg  # overflow in both
+        ok = np.isfinite(want)
+        assert ok.sum() >= m - 5, tg
+        assert np.all(np.abs(got[g][ok] - want[ok]) <= tol[ok]), tg
+        ex = st.exact_power(eta[g], e[g], *st.power_form(tg))
+        # source: the exact O(m n) sum of the module (same clip and count rules)
+        np.testing.assert_allclose(got[g][ok], ex[ok], rtol=1e-11)
