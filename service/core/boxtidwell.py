@@ -51,7 +51,12 @@ from scipy import optimize, stats
 from . import sources as src
 from . import transforms as tr
 from .errors import CandidateFailure
-from .fitting import qr_solve, solve_batch, solve_batch_nested
+from .fitting import (
+    qr_solve,
+    solve_batch,
+    solve_batch_nested,
+    solve_batch_with_inverse_diagonal,
+)
 
 POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
@@ -193,6 +198,7 @@ class _Problem:
         self.pf, self.k = Xf.shape[1], logx.shape[1]
         self.Gff = Xf.T @ Xf
         self.cf = Xf.T @ z
+        self.logxT = np.ascontiguousarray(logx.T)  # (k, n): rows along the last axis
 
     def trial(self, a: np.ndarray) -> tuple[float, np.ndarray | None, _Cache | None]:
         """State at powers ``a``: (rss, coef of [X_f, W]) plus the cross-products, or
@@ -228,6 +234,69 @@ class _Problem:
             r = self.z[sl] - self.Xf[sl] @ cf - W[sl] @ cw
             rss += float(r @ r)
         return rss, coef, cache
+
+    def rss_many(self, A: np.ndarray) -> np.ndarray:
+        """RSS (Q,) of the fits of z on [X_f, W(a)] at the powers ``A`` (Q, k), inf where a
+        column or the fit is not finite: the RSS :meth:`trial` gives, without the derivative
+        columns (a profile search needs no step) and with the fits of several powers solved
+        as one stack (``fitting.solve_batch``, pivoted QR where the condition check fails),
+        at most ``STACK_CELLS`` power-vector x rows at a time."""
+        n = self.z.size
+        step = max(1, STACK_CELLS // max(n, 1))
+        return np.concatenate(
+            [self._rss_group(A[s : s + step]) for s in range(0, A.shape[0], step)]
+        )
+
+    def _rss_group(self, A: np.ndarray) -> np.ndarray:
+        n, k, pf = self.z.size, self.k, self.pf
+        Q = A.shape[0]
+        P1 = pf + k
+        G = np.empty((Q, P1, P1))
+        G[:, :pf, :pf] = self.Gff
+        c = np.empty((Q, P1))
+        c[:, :pf] = self.cf
+        SX = np.zeros((Q, k, pf))
+        SW = np.zeros((Q, k, k))
+        Sz = np.zeros((Q, k, 1))
+        blocks: list[np.ndarray] = []
+        with np.errstate(over="ignore", invalid="ignore"):
+            for s in range(0, n, CHUNK_ROWS):
+                sl = slice(s, s + CHUNK_ROWS)
+                L = self.logxT[None, :, sl]  # (1, k, b)
+                W = np.empty((Q, k, L.shape[2]))
+                _power_w_into(L, A, self.bc, W)
+                SX += np.matmul(W, self.Xf[sl])
+                SW += np.matmul(W, np.swapaxes(W, 1, 2))
+                Sz += np.matmul(W, self.z[sl, None])
+                blocks.append(W)
+            fin = np.all(np.isfinite(np.diagonal(SW, axis1=1, axis2=2)), axis=1)
+            for q in np.flatnonzero(~fin):  # a sum of squares can overflow: check the elements
+                fin[q] = all(np.all(np.isfinite(b[q])) for b in blocks)
+            G[:, pf:, :pf] = SX
+            G[:, :pf, pf:] = np.swapaxes(SX, 1, 2)
+            G[:, pf:, pf:] = SW
+            c[:, pf:] = Sz[:, :, 0]
+            coef = np.full((Q, P1), np.nan)
+            at = np.flatnonzero(fin)
+            if at.size:
+                B, ok = solve_batch(G[at], c[at])
+                coef[at[ok]] = B[ok]
+                for q in at[~ok]:
+                    W = np.concatenate([b[q] for b in blocks], axis=1).T
+                    try:
+                        coef[q], _, _ = qr_solve(
+                            np.hstack([self.Xf, W]), self.z, with_condition=False
+                        )
+                    except CandidateFailure:  # rank-deficient: no fit, the RSS is inf
+                        coef[q] = np.nan
+            rss = np.zeros(Q)
+            for j, s in enumerate(range(0, n, CHUNK_ROWS)):
+                sl = slice(s, s + CHUNK_ROWS)
+                r = self.z[sl] - coef[:, :pf] @ self.Xf[sl].T
+                r -= np.matmul(coef[:, None, pf:], blocks[j])[:, 0]
+                rss += np.einsum("qb,qb->q", r, r)
+        good = fin & np.all(np.isfinite(coef), axis=1) & np.isfinite(rss)
+        return np.where(good, rss, math.inf)
 
     def solve(self, cache: _Cache, with_d: bool) -> np.ndarray | None:
         W, D, FWD, WDWD, wdz = cache
@@ -368,6 +437,61 @@ def _std_errors(
     n: int,
     p: int,
 ) -> np.ndarray | None:
+    """The standard errors of the powers ``a`` of one all-rows problem
+    (:func:`_std_errors_many` of a stack of one)."""
+    folds = _Folds(
+        z[None], Xf[None], logx[None], [np.arange(n)], boxcox_form, None, None, np.zeros(1, int)
+    )
+    return _std_errors_many(folds, np.asarray(a, float)[None], p)[0]
+
+
+def _std_errors_many(folds: _Folds, A: np.ndarray, p: int) -> list[np.ndarray | None]:
+    """Standard errors of the powers ``A`` (C, k) of all-rows problems stacked in ``folds``
+    (one per candidate, all rows): se_j = sqrt(s^2 [(A'A)^-1]_jj) / |b_j| for the column
+    dw_j/da of A = [X_f, W, D] at the estimate, s^2 = RSS(A) / (n - p) from the residuals,
+    b_j the coefficient of w_j in the fit on [X_f, W] (see the module docstring).  The
+    inverse diagonal and both fits come from the column-scaled normal equations of A, one
+    stacked factorisation, where they pass the condition check of ``fitting.solve_batch``;
+    the others are computed by pivoted QR (:func:`_std_errors_exact`).  None where the
+    augmented design is singular."""
+    C = A.shape[0]
+    pf, k = folds.pf, folds.k
+    P1 = pf + k
+    n = folds.Zt.shape[1]
+    idx = np.arange(C)
+    G, c, blocks, wfin, dfin = folds.assemble(idx, A)
+    out: list[np.ndarray | None] = [None] * C
+    exact = np.ones(C, dtype=bool)
+    both = np.flatnonzero(wfin & dfin)
+    if both.size:
+        Bf, ok, B1, dinv = solve_batch_with_inverse_diagonal(G[both], c[both], P1)
+        good = both[ok]
+        sub = [b[good] for b in blocks] if good.size < C else blocks
+        rss2 = folds.residual_sums(good, sub, Bf[ok])
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            var_g = dinv[ok][:, P1:] * (rss2 / (n - p))[:, None]
+            se = np.sqrt(np.maximum(var_g, 0.0)) / np.abs(B1[ok][:, pf:])
+        se = np.where(np.isfinite(se), se, np.nan)
+        for j, f in enumerate(good):
+            out[f] = se[j]
+        exact[good] = False
+    for f in np.flatnonzero(exact):
+        o = int(folds.owner[f])
+        out[f] = _std_errors_exact(folds.Z[f], folds.Xf[o], folds.logx[o], A[f], folds.bc, n, p)
+    return out
+
+
+def _std_errors_exact(
+    z: np.ndarray,
+    Xf: np.ndarray,
+    logx: np.ndarray,
+    a: np.ndarray,
+    boxcox_form: bool,
+    n: int,
+    p: int,
+) -> np.ndarray | None:
+    """:func:`_std_errors_many` of one problem by pivoted QR of the designs (the fit on [X_f,
+    W] by normal equations where they pass the condition check)."""
     W, D = power_columns(logx, a, boxcox_form)
     k = logx.shape[1]
     try:
@@ -389,10 +513,11 @@ def _profile_search(
 ) -> tuple[np.ndarray, float]:
     """Minimise RSS over the powers, cycling over the powers: a grid over the whole range then
     bounded Brent near its best point, or with ``local`` bounded Brent alone within
-    ``a0 +- local`` (re-estimates in training folds, started from the all-rows estimate)."""
+    ``a0 +- local`` (re-estimates in training folds, started from the all-rows estimate).
+    The RSS at each point is :meth:`_Problem.rss_many`'s (the grid's points in one stack)."""
     a = np.asarray(a0, float).copy()
     k = a.size
-    best = prob.trial(a)[0]
+    best = float(prob.rss_many(a[None])[0])
     grid = np.linspace(POWER_BOUNDS[0], POWER_BOUNDS[1], 25)
     for _sweep in range(4):
         before = a.copy()
@@ -401,13 +526,15 @@ def _profile_search(
             def f(v: float, j: int = j) -> float:
                 trial = a.copy()
                 trial[j] = v
-                return prob.trial(trial)[0]
+                return float(prob.rss_many(trial[None])[0])
 
             if local is not None:
                 lo, hi = max(POWER_BOUNDS[0], a[j] - local), min(POWER_BOUNDS[1], a[j] + local)
                 vals, i = None, None
             else:
-                vals = np.array([f(g) for g in grid])
+                points = np.repeat(a[None], grid.size, axis=0)
+                points[:, j] = grid
+                vals = prob.rss_many(points)  # the whole grid in one stack
                 if not np.any(np.isfinite(vals)):
                     continue
                 i = int(np.argmin(np.where(np.isfinite(vals), vals, np.inf)))
@@ -466,21 +593,74 @@ def _power_columns_stacked(
     return W, D
 
 
+def _power_columns_into(
+    L: np.ndarray, A: np.ndarray, boxcox_form: bool, W: np.ndarray, D: np.ndarray
+) -> None:
+    """:func:`power_columns` for several power vectors at once, written into ``W`` and ``D``
+    (F, k, b): ``L`` (F, k, b) log x, one column per row of it (rows of the table along the
+    last axis, so every pass runs over contiguous memory), ``A`` (F, k) powers; element for
+    element the arithmetic of :func:`_power_columns_stacked`."""
+    a3 = A[:, :, None]
+    if not boxcox_form:
+        np.multiply(a3, L, out=W)
+        np.exp(W, out=W)
+        np.multiply(W, L, out=D)
+        return
+    zero = np.abs(A) < 1e-12
+    if zero.any():
+        a3 = np.where(zero, 1.0, A)[:, :, None]
+    u = a3 * L
+    em1 = np.expm1(u)
+    np.divide(em1, a3, out=W)
+    em1 += 1.0
+    em1 *= L
+    em1 -= W
+    np.divide(em1, a3, out=D)
+    small = np.abs(u) < 1e-3
+    if small.any():
+        Ls, us = L[small], u[small]
+        D[small] = Ls * Ls * (0.5 + us / 3.0 + us * us / 8.0)
+    if zero.any():
+        z3 = np.broadcast_to(zero[:, :, None], L.shape)
+        np.copyto(W, L, where=z3)
+        np.copyto(D, 0.5 * L * L, where=z3)
+
+
+def _power_w_into(L: np.ndarray, A: np.ndarray, boxcox_form: bool, W: np.ndarray) -> None:
+    """The power columns alone of :func:`_power_columns_into` (``L`` (1 or F, k, b), ``A``
+    (F, k), into ``W`` (F, k, b)): element for element the arithmetic of :func:`power_columns`'
+    w(a)."""
+    a3 = A[:, :, None]
+    if not boxcox_form:
+        np.multiply(a3, L, out=W)
+        np.exp(W, out=W)
+        return
+    zero = np.abs(A) < 1e-12
+    if zero.any():
+        a3 = np.where(zero, 1.0, A)[:, :, None]
+    np.multiply(a3, L, out=W)
+    np.expm1(W, out=W)
+    W /= a3
+    if zero.any():
+        np.copyto(W, L, where=np.broadcast_to(zero[:, :, None], W.shape))
+
+
 class _Folds:
     """The training problems of several folds, evaluated together.
 
-    Fold f uses the rows where ``M[f]`` is True (its training rows), its response row
-    ``Z[f]`` and its own powers.  The fixed cross-products X_f'X_f and X_f'z of every fold
-    are given (the column bank's fold Gram matrices: all rows minus the held-out rows) or
-    computed once.  The cross-products that involve the power columns are built per trial
-    for all folds at once: held-out rows are zeroed, so one stacked matrix product gives
-    every fold's exact training sums (after the first step each fold has its own powers, so
-    there is no shared all-rows product to downdate).  A trial's normal equations of
-    [X_f, W, D] are factored once for all folds (column-scaled Cholesky with the condition
-    check of ``fitting.solve_batch``); the leading block gives the fit on [X_f, W] (its RSS,
-    from the residuals) and the whole the next Gauss-Newton step.  A fold that fails the
-    check is solved by pivoted QR of its assembled training design, as in
-    :class:`_Problem`.
+    Fold f uses its training rows ``train[f]``, its response row ``Z[f]`` and its own powers.
+    The fixed cross-products X_f'X_f and X_f'z of every fold are given (the column bank's
+    fold Gram matrices: all rows minus the held-out rows) or computed once.  Each fold's
+    training rows of X_f, log x and z are gathered once, column by column (folds with fewer
+    training rows than the largest padded with rows of zeros, whose power columns are
+    zeroed), so a trial forms the power columns on training rows only and three stacked
+    products [W D]'[X_f], [W D]'[W D], [W D]'z give every fold's exact training sums (after
+    the first step each fold has its own powers, so there is no shared all-rows product to
+    downdate).  A trial's normal equations of [X_f, W, D] are factored once for all folds
+    (column-scaled Cholesky with the condition check of ``fitting.solve_batch``); the
+    leading block gives the fit on [X_f, W] (its RSS, from the residuals) and the whole the
+    next Gauss-Newton step.  A fold that fails the check is solved by pivoted QR of its
+    assembled training design, as in :class:`_Problem`.
 
     The folds of several candidates (each with its own fixed columns and powered
     predictors, all of the same sizes) are stacked the same way: ``Xf`` (C, n, p_f) and
@@ -503,29 +683,111 @@ class _Folds:
         if owner is None:
             Xf, logx, owner = Xf[None], logx[None], np.zeros(F, dtype=np.intp)
         self.Xf, self.logx, self.owner, self.train, self.bc = Xf, logx, owner, train, boxcox_form
-        self.shared = Xf.shape[0] == 1  # one candidate: its columns broadcast to every fold
         self.pf, self.k = Xf.shape[2], logx.shape[2]
-        M = np.zeros((F, n), dtype=bool)
-        for f, rows in enumerate(train):
-            M[f, rows] = True
-        self.M = M
         self.Z = Z
-        self.Zm = np.where(M, Z, 0.0)
+        sizes = np.array([rows.size for rows in train], dtype=np.intp)
+        m = int(sizes.max()) if F else 0
+        self.pad: np.ndarray | None = None  # (F, m) True on padding rows, when there are any
+        # (F, p_f, m), (F, k, m), (F, m): every fold's training rows, a column a row
+        if np.all(sizes == n) and all(np.array_equal(rows, np.arange(n)) for rows in train):
+            self.XT = np.ascontiguousarray(np.swapaxes(Xf, 1, 2)[owner])
+            self.LT = np.ascontiguousarray(np.swapaxes(logx, 1, 2)[owner])
+            self.Zt = np.ascontiguousarray(Z, dtype=float)
+        else:
+            rows_at = np.zeros((F, m), dtype=np.intp)
+            pad = np.zeros((F, m), dtype=bool)
+            for f, rows in enumerate(train):
+                rows_at[f, : rows.size] = rows
+                pad[f, rows.size :] = True
+            at = (owner[:, None], rows_at)
+            self.XT = np.ascontiguousarray(np.swapaxes(Xf[at], 1, 2))
+            self.LT = np.ascontiguousarray(np.swapaxes(logx[at], 1, 2))
+            self.Zt = Z[np.arange(F)[:, None], rows_at]
+            if pad.any():
+                self.pad = pad
+                self.XT *= ~pad[:, None, :]
+                self.LT *= ~pad[:, None, :]
+                self.Zt[pad] = 0.0
         if grams is None:
-            grams = np.stack(
-                [self._xf(f)[rows].T @ self._xf(f)[rows] for f, rows in enumerate(train)]
-            )
+            grams = np.matmul(self.XT, np.swapaxes(self.XT, 1, 2))
         if crosses is None:
-            crosses = np.empty((F, self.pf))
-            for o in np.unique(owner):  # per candidate, the one-candidate path's product
-                at = owner == o
-                crosses[at] = np.matmul(self.Zm[at], Xf[o])
+            crosses = np.matmul(self.XT, self.Zt[:, :, None])[:, :, 0]
         self.Gff, self.cf = grams, crosses
 
     def _xf(self, f: int) -> np.ndarray:
         """Fold f's fixed columns on all rows (n, p_f)."""
         out: np.ndarray = self.Xf[self.owner[f]]
         return out
+
+    def assemble(
+        self, idx: np.ndarray, A: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray, list[np.ndarray], np.ndarray, np.ndarray]:
+        """Folds ``idx`` at powers ``A`` (Fa, k): the normal equations of [X_f, W, D] (G (Fa,
+        P, P), c (Fa, P)), the blocks of power columns [W D] (Fa, 2k, b) of the training rows
+        they were summed from, and whether W and D are finite (Fa,) each.
+
+        Rows are taken in blocks of ``CHUNK_ROWS``: a block's columns and cross-products
+        are formed while it is in cache."""
+        F, m = self.Zt.shape
+        k, pf = self.k, self.pf
+        Fa = idx.size
+        P = pf + 2 * k
+        every = Fa == F  # idx is sorted and distinct: all folds, no copy
+        SX = np.zeros((Fa, 2 * k, pf))
+        SW = np.zeros((Fa, 2 * k, 2 * k))
+        Sz = np.zeros((Fa, 2 * k, 1))
+        blocks: list[np.ndarray] = []
+        with np.errstate(over="ignore", invalid="ignore"):
+            for s in range(0, m, CHUNK_ROWS):
+                sl = slice(s, s + CHUNK_ROWS)
+                Lc = self.LT[:, :, sl] if every else self.LT[idx, :, sl]
+                WD = np.empty((Fa, 2 * k, Lc.shape[2]))
+                _power_columns_into(Lc, A, self.bc, WD[:, :k], WD[:, k:])
+                if self.pad is not None:
+                    WD *= ~(self.pad[:, None, sl] if every else self.pad[idx, None, sl])
+                Xc = self.XT[:, :, sl] if every else self.XT[idx, :, sl]
+                zc = self.Zt[:, sl] if every else self.Zt[idx, sl]
+                SX += np.matmul(WD, np.swapaxes(Xc, 1, 2))
+                SW += np.matmul(WD, np.swapaxes(WD, 1, 2))
+                Sz += np.matmul(WD, zc[:, :, None])
+                blocks.append(WD)
+        # a column that is not finite makes its sum of squares not finite; a finite sum of
+        # squares leaves no doubt (the elements are checked only where it is not)
+        diag = np.diagonal(SW, axis1=1, axis2=2)
+        wfin = np.all(np.isfinite(diag[:, :k]), axis=1)
+        dfin = np.all(np.isfinite(diag[:, k:]), axis=1)
+        for f in np.flatnonzero(~(wfin & dfin)):
+            wfin[f] = all(np.all(np.isfinite(b[f, :k])) for b in blocks)
+            dfin[f] = all(np.all(np.isfinite(b[f, k:])) for b in blocks)
+        G = np.empty((Fa, P, P))
+        G[:, :pf, :pf] = self.Gff[idx]
+        G[:, pf:, :pf] = SX
+        G[:, :pf, pf:] = np.swapaxes(SX, 1, 2)
+        G[:, pf:, pf:] = SW
+        c = np.empty((Fa, P))
+        c[:, :pf] = self.cf[idx]
+        c[:, pf:] = Sz[:, :, 0]
+        return G, c, blocks, wfin, dfin
+
+    def residual_sums(
+        self, idx: np.ndarray, blocks: list[np.ndarray], coef: np.ndarray
+    ) -> np.ndarray:
+        """Sum of squared residuals (Fa,) of folds ``idx`` on the first ``coef.shape[1]``
+        columns of [X_f, W, D] (``blocks``: [W D] from :meth:`assemble` for these folds) with
+        coefficients ``coef`` (Fa, q), from the residuals themselves."""
+        pf = self.pf
+        q = coef.shape[1]
+        every = idx.size == self.Zt.shape[0]
+        cf, cw = coef[:, None, :pf], coef[:, None, pf:]
+        rss = np.zeros(idx.size)
+        with np.errstate(over="ignore", invalid="ignore"):
+            for j, s in enumerate(range(0, self.Zt.shape[1], CHUNK_ROWS)):
+                sl = slice(s, s + CHUNK_ROWS)
+                Xc = self.XT[:, :, sl] if every else self.XT[idx, :, sl]
+                r = self.Zt[:, sl] if every else self.Zt[idx, sl]
+                r = r - np.matmul(cf, Xc)[:, 0] - np.matmul(cw, blocks[j][:, : q - pf])[:, 0]
+                rss += np.einsum("fb,fb->f", r, r)
+        return rss
 
     def trial(
         self, idx: np.ndarray, A: np.ndarray
@@ -534,65 +796,26 @@ class _Folds:
         coef of [X_f, W, D] (Fa, p_f + 2k), qr (Fa,)).  rss is inf where a column or the fit
         is not finite; the last coefficients are NaN where there is no step (D not finite)
         or, with ``qr`` True, where the QR path (:meth:`qr_full`) is still to be taken."""
-        n, k, pf = self.Z.shape[1], self.k, self.pf
+        k, pf = self.k, self.pf
         Fa = idx.size
         P, P1 = pf + 2 * k, pf + k
-        M, Zm = self.M[idx], self.Zm[idx]
-        if self.shared:
-            Xo, Lo = self.Xf[0], self.logx[0]  # (n, p_f), (n, k)
-        else:
-            own = self.owner[idx]
-            Xo, Lo = self.Xf[own], self.logx[own]  # (Fa, n, p_f), (Fa, n, k)
-        G = np.empty((Fa, P, P))
-        G[:, :pf, :pf] = self.Gff[idx]
-        G[:, pf:, :] = 0.0
-        G[:, :pf, pf:] = 0.0
-        c = np.zeros((Fa, P))
-        c[:, :pf] = self.cf[idx]
-        wfin = np.ones(Fa, dtype=bool)
-        dfin = np.ones(Fa, dtype=bool)
-        Ws: list[np.ndarray] = []
+        G, c, blocks, wfin, dfin = self.assemble(idx, A)
         coef = np.full((Fa, P1), np.nan)
         g = np.full((Fa, P), np.nan)
         qr = np.zeros(Fa, dtype=bool)
-        with np.errstate(over="ignore", invalid="ignore"):
-            for s in range(0, n, CHUNK_ROWS):
-                sl = slice(s, s + CHUNK_ROWS)
-                W, D = _power_columns_stacked(Lo[..., sl, :], A, self.bc)
-                m = M[:, sl, None]
-                wfin &= np.all(np.isfinite(W) | ~m, axis=(1, 2))
-                dfin &= np.all(np.isfinite(D) | ~m, axis=(1, 2))
-                WD = np.where(m, np.concatenate([W, D], axis=2), 0.0)
-                Ws.append(WD[:, :, :k])
-                G[:, :pf, pf:] += np.matmul(np.swapaxes(Xo[..., sl, :], -1, -2), WD)
-                G[:, pf:, pf:] += np.matmul(WD.transpose(0, 2, 1), WD)
-                c[:, pf:] += np.matmul(Zm[:, None, sl], WD)[:, 0, :]
-            G[:, pf:, :pf] = G[:, :pf, pf:].transpose(0, 2, 1)
-            both = np.flatnonzero(wfin & dfin)
-            if both.size:
-                Bf, ok, B1 = solve_batch_nested(G[both], c[both], P1)
-                g[both[ok]], coef[both[ok]] = Bf[ok], B1[ok]
-                qr[both[~ok]] = True
-            rest = np.flatnonzero(wfin & np.isnan(coef[:, 0]))
-            if rest.size:
+        both = np.flatnonzero(wfin & dfin)
+        if both.size:
+            Bf, ok, B1 = solve_batch_nested(G[both], c[both], P1)
+            g[both[ok]], coef[both[ok]] = Bf[ok], B1[ok]
+            qr[both[~ok]] = True
+        rest = np.flatnonzero(wfin & np.isnan(coef[:, 0]))
+        if rest.size:
+            with np.errstate(over="ignore", invalid="ignore"):
                 B, ok = solve_batch(G[rest][:, :P1, :P1], c[rest][:, :P1])
                 coef[rest[ok]] = B[ok]
                 for i in rest[~ok]:
                     coef[i] = self._qr(int(idx[i]), A[i], with_d=False)
-            cf, cw = coef[:, :pf], coef[:, pf:]
-            rss = np.zeros(Fa)
-            for j, s in enumerate(range(0, n, CHUNK_ROWS)):
-                sl = slice(s, s + CHUNK_ROWS)
-                if self.shared:
-                    fixed = cf @ Xo[sl].T
-                else:  # per candidate, the one-candidate path's product
-                    fixed = np.empty((Fa, min(n, s + CHUNK_ROWS) - s))
-                    for o in np.unique(own):
-                        at = own == o
-                        fixed[at] = cf[at] @ self.Xf[o][sl].T
-                eta = fixed + np.matmul(Ws[j], cw[:, :, None])[:, :, 0]
-                r = np.where(M[:, sl], Zm[:, sl] - eta, 0.0)
-                rss += np.einsum("fb,fb->f", r, r)
+        rss = self.residual_sums(idx, blocks, coef)
         rss = np.where(wfin & np.isfinite(rss), rss, math.inf)
         return rss, coef, g, qr
 
@@ -733,6 +956,7 @@ def estimate_many_powers(
             a, rss, conv, its, _left = _damped_steps(
                 folds.trial, folds.qr_full, len(part), pf, k, np.ones(k)
             )
+            settled: list[tuple[int, int, np.ndarray, float, str]] = []
             for f, i in enumerate(part):
                 z, Xf, x, logx = inputs[i]
                 prob = _Problem(z, Xf, logx, boxcox_form)
@@ -743,7 +967,23 @@ def estimate_many_powers(
                 except CandidateFailure as exc:
                     out[i] = exc
                     continue
-                se = _std_errors(z, Xf, logx, af, boxcox_form, n, pf + 2 * k)
+                settled.append((f, i, af, rf, method))
+            if not settled:
+                continue
+            at = np.array([f for f, *_r in settled])
+            if at.size < len(part):  # the candidates that failed are left out of the stack
+                folds = _Folds(
+                    folds.Z[at],
+                    folds.Xf[at],
+                    folds.logx[at],
+                    [every] * at.size,
+                    boxcox_form,
+                    None,
+                    None,
+                    np.arange(at.size),
+                )
+            ses = _std_errors_many(folds, np.stack([af for _f, _i, af, *_r in settled]), pf + 2 * k)
+            for (f, i, af, rf, method), se in zip(settled, ses, strict=True):
                 out[i] = PowerFit(
                     af, se, bool(conv[f]) or method == "profile", int(its[f]), method, rf
                 )

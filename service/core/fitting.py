@@ -158,9 +158,10 @@ def hac_cov(fit: OLSFit, X: np.ndarray, order: np.ndarray, lags: int) -> np.ndar
 
 def _factor_batch(
     G: np.ndarray, c: np.ndarray
-) -> tuple[np.ndarray | None, np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray | None, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
     """Cholesky factors of the column-scaled matrices of a stack that pass the condition
-    check: (L (g, p, p) or None, scaled right-hand sides (g, p), scales (g, p), good (K,))."""
+    check and their inverses: (L (g, p, p), scaled right-hand sides (g, p), scales (g, p),
+    good (K,), L^-1 (g, p, p)); L and L^-1 are None when no matrix passes."""
     K = G.shape[0]
     d2 = np.diagonal(G, axis1=1, axis2=2)
     finite = np.isfinite(G).all(axis=(1, 2)) & np.isfinite(c).all(axis=1)
@@ -172,15 +173,17 @@ def _factor_batch(
         cs = c / d
         checked = _checked_factors(Gs, COND_LIMIT)
         if checked is not None:
-            good, L_all = checked
+            good, L_all, inv_all = checked
             if not np.any(good):
-                return None, cs[good], d[good], good
-            return L_all[good], cs[good], d[good], good
+                return None, cs[good], d[good], good, None
+            if good.all():
+                return L_all, cs, d, good, inv_all
+            return L_all[good], cs[good], d[good], good, inv_all[good]
         ev = np.linalg.eigvalsh(Gs)
         good = ev[:, 0] > ev[:, -1] / COND_LIMIT
     else:
         if not ok.any():
-            return None, c[good], c[good], good
+            return None, c[good], c[good], good, None
         G = np.where(finite[:, None, None], G, 1.0)
         c = np.where(finite[:, None], c, 0.0)
         d2 = np.where(finite[:, None], d2, 1.0)
@@ -190,19 +193,24 @@ def _factor_batch(
         ev = np.linalg.eigvalsh(Gs[ok])
         good[ok] = ev[:, 0] > ev[:, -1] / COND_LIMIT
     if not np.any(good):
-        return None, cs[good], d[good], good
+        return None, cs[good], d[good], good, None
     try:
         L = np.linalg.cholesky(Gs[good])
     except np.linalg.LinAlgError:
         good[:] = False
-        return None, cs[good], d[good], good
-    return L, cs[good], d[good], good
+        return None, cs[good], d[good], good, None
+    with np.errstate(over="ignore", invalid="ignore"):
+        inv = _tri_inverse(L)
+    return L, cs[good], d[good], good, inv
 
 
-def _checked_factors(Gs: np.ndarray, limit: float) -> tuple[np.ndarray, np.ndarray] | None:
-    """(good, L): which column-scaled matrices of a stack (unit diagonal, finite) pass the
-    condition check ``lambda_min > lambda_max / limit`` and the Cholesky factors of all of
-    them; None when some matrix has no Cholesky factor (the caller checks by eigenvalues).
+def _checked_factors(
+    Gs: np.ndarray, limit: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """(good, L, L^-1): which column-scaled matrices of a stack (unit diagonal, finite) pass
+    the condition check ``lambda_min > lambda_max / limit``, the Cholesky factors of all of
+    them and the factors' inverses; None when some matrix has no Cholesky factor (the caller
+    checks by eigenvalues).
 
     The same decision as the eigenvalues give, without them for most matrices: with s =
     trace(Gs^-1) = ||L^-1||_F^2 and a unit diagonal, lambda_max lies in [1, p] (at least
@@ -211,18 +219,15 @@ def _checked_factors(Gs: np.ndarray, limit: float) -> tuple[np.ndarray, np.ndarr
     limit / 2 passes, one with s / p above 2 limit fails (a margin of 2 on both sides for
     the rounding of L^-1, relative about cond x 1e-16); the eigenvalues
     (``numpy.linalg.eigvalsh``, as before) decide the matrices in between.  Each matrix's
-    factor is LAPACK's for that matrix alone, so the solutions are the same."""
+    factor and inverse are LAPACK's for that matrix alone (``_tri_inverse``), so a
+    matrix's solution does not depend on the stack it is in."""
     try:
         L = np.linalg.cholesky(Gs)
     except np.linalg.LinAlgError:
         return None
-    K, p, _ = L.shape
-    inv = np.zeros((K, p, p))  # L^-1 row by row (forward substitution, all matrices at once)
-    for i in range(p):
-        row = -np.einsum("kj,kjm->km", L[:, i, :i], inv[:, :i, :])
-        row[:, i] += 1.0
-        inv[:, i, :] = row / L[:, i, i][:, None]
+    p = L.shape[1]
     with np.errstate(over="ignore", invalid="ignore"):
+        inv = _tri_inverse(L)
         s = np.einsum("kij,kij->k", inv, inv)
         good = p * s < 0.5 * limit
         bad = ~(s / p <= 2.0 * limit)  # NaN or inf: failed
@@ -230,7 +235,16 @@ def _checked_factors(Gs: np.ndarray, limit: float) -> tuple[np.ndarray, np.ndarr
     if np.any(between):
         ev = np.linalg.eigvalsh(Gs[between])
         good[between] = ev[:, 0] > ev[:, -1] / limit
-    return good, L
+    return good, L, inv
+
+
+def _tri_inverse(L: np.ndarray) -> np.ndarray:
+    """L^-1 of a stack of lower-triangular factors with a positive diagonal: one LAPACK
+    inverse per matrix (``numpy.linalg.inv``, one call for the stack), its upper triangle
+    set to the exact zeros of the inverse of a lower-triangular matrix (LU pivoting leaves
+    rounding there)."""
+    out: np.ndarray = np.tril(np.linalg.inv(L))
+    return out
 
 
 def solve_batch(G: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -249,45 +263,48 @@ def solve_batch_nested(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """:func:`solve_batch`, plus the solutions of the leading ``lead`` x ``lead`` systems
     G_k[:lead, :lead] b = c_k[:lead] from the same factors (the leading block of a Cholesky
-    factor is the factor of the leading block).  Returns (B (K, p), ok (K,), B_lead (K,
-    lead)).  Where ``ok`` the leading system passes the condition check too: a principal
+    factor is the factor of the leading block, and the leading block of its inverse the
+    inverse of that).  The solutions are L^-T (L^-1 c) from the inverse factors L^-1 the
+    condition check computes: three stacked products, as accurate as forward and back
+    substitution (both within half of cond x 1e-16 of the exact solution on test stacks up
+    to cond 4e6) in a few numpy calls instead of 3p.  Returns (B (K, p), ok (K,), B_lead
+    (K, lead)).  Where ``ok`` the leading system passes the condition check too: a principal
     submatrix of the scaled matrix has its eigenvalues inside the full one's range (Cauchy
     interlacing), so its condition number is no larger.
     """
-    K, p, _ = G.shape
-    B = np.full((K, p), np.nan)
-    B1 = np.full((K, lead), np.nan)
-    L, cs, d, good = _factor_batch(G, c)
-    if L is not None:
-        w = _forward(L, cs)
-        B[good] = _backward(L, w) / d
-        if lead == 0:  # solve_batch: the full systems only
-            return B, good, B1
-        B1[good] = _backward(L[:, :lead, :lead], w[:, :lead]) / d[:, :lead]
+    B, good, B1, _ = _solve_nested(G, c, lead, False)
     return B, good, B1
 
 
-def _forward(L: np.ndarray, c: np.ndarray) -> np.ndarray:
-    """w with L_k w_k = c_k for a stack of lower-triangular L (K, p, p): forward
-    substitution, one row of every system per step (p steps instead of one LAPACK call per
-    matrix)."""
-    K, p = c.shape
-    w = np.empty((K, p))
-    for i in range(p):
-        acc = c[:, i] - np.einsum("kj,kj->k", L[:, i, :i], w[:, :i])
-        w[:, i] = acc / L[:, i, i]
-    return w
+def solve_batch_with_inverse_diagonal(
+    G: np.ndarray, c: np.ndarray, lead: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`solve_batch_nested` plus the diagonal of every G_k^-1 (K, p) (NaN where not
+    ``ok``), from the same inverse factors: G^-1 = D^-1 L^-T L^-1 D^-1 with D the column
+    scales, so (G^-1)_jj = sum_i (L^-1)_ij^2 / d_j^2 (the unscaled covariance diagonal of
+    least squares)."""
+    return _solve_nested(G, c, lead, True)
 
 
-def _backward(L: np.ndarray, w: np.ndarray) -> np.ndarray:
-    """b with L_k' b_k = w_k for a stack of lower-triangular L (K, p, p): back substitution
-    on the transposed factors, one row of every system per step."""
-    K, p = w.shape
-    b = np.empty((K, p))
-    for i in range(p - 1, -1, -1):
-        acc = w[:, i] - np.einsum("kj,kj->k", L[:, i + 1 :, i], b[:, i + 1 :])
-        b[:, i] = acc / L[:, i, i]
-    return b
+def _solve_nested(
+    G: np.ndarray, c: np.ndarray, lead: int, with_diagonal: bool
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    K, p, _ = G.shape
+    B = np.full((K, p), np.nan)
+    B1 = np.full((K, lead), np.nan)
+    diag = np.full((K, p) if with_diagonal else (0, p), np.nan)
+    _L, cs, d, good, inv = _factor_batch(G, c)
+    if inv is not None:  # L^-T (L^-1 c) with the inverse factors of the condition check
+        w = np.matmul(inv, cs[:, :, None])
+        B[good] = np.matmul(np.swapaxes(inv, 1, 2), w)[:, :, 0] / d
+        if lead:
+            B1[good] = (
+                np.matmul(np.swapaxes(inv[:, :lead, :lead], 1, 2), w[:, :lead])[:, :, 0]
+                / d[:, :lead]
+            )
+        if with_diagonal:
+            diag[good] = np.einsum("kij,kij->kj", inv, inv) / (d * d)
+    return B, good, B1, diag
 
 
 def qr_solve(

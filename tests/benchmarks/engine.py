@@ -5,7 +5,8 @@
 
 - the condition check of stacked Gram matrices by their eigenvalues (``numpy.linalg.eigvalsh``
   for every matrix) and the triangular solves by one LAPACK ``gesv`` per matrix
-  (``fitting._checked_factors``, ``fitting._forward`` / ``_backward``);
+  (``fitting._checked_factors``; ``fitting._tri_inverse`` replaced by ``gesv`` against the
+  identity, so the solutions go through one LAPACK solve per matrix and factor);
 - power-form smeared means one group per call (``retransform.smeared_means`` calling
   ``smeared_mean`` per group; batchcv calls it with every candidate of a fold);
 - candidates with per-fold lambdas or powers scored one at a time (``Scorer.score_many``
@@ -50,12 +51,8 @@ from service.demo import demo_request
 from service.selection.request import run_selection
 
 
-def _lapack_forward(L, c):
-    return np.linalg.solve(L, c[:, :, None])[:, :, 0]
-
-
-def _lapack_backward(L, w):
-    return np.linalg.solve(np.swapaxes(L, 1, 2), w[:, :, None])[:, :, 0]
+def _lapack_inverse(L):
+    return np.linalg.solve(L, np.broadcast_to(np.eye(L.shape[1]), L.shape))
 
 
 def _means_one_group_at_a_time(ts, eta, e):
@@ -76,13 +73,12 @@ def _score_one_at_a_time(self, items):
 def before():
     saved = (
         fitting._checked_factors,
-        fitting._forward,
-        fitting._backward,
+        fitting._tri_inverse,
         retransform.smeared_means,
         fastcv.Scorer.score_many,
     )
     fitting._checked_factors = lambda Gs, limit: None
-    fitting._forward, fitting._backward = _lapack_forward, _lapack_backward
+    fitting._tri_inverse = _lapack_inverse
     retransform.smeared_means = _means_one_group_at_a_time
     fastcv.Scorer.score_many = _score_one_at_a_time
     try:
@@ -90,8 +86,7 @@ def before():
     finally:
         (
             fitting._checked_factors,
-            fitting._forward,
-            fitting._backward,
+            fitting._tri_inverse,
             retransform.smeared_means,
             fastcv.Scorer.score_many,
         ) = saved

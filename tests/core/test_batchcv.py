@@ -187,10 +187,12 @@ def test_undefined_back_transforms_fail_in_the_batch_with_the_one_candidate_reas
             reasons += isinstance(b, CandidateFailure)  # settled by the batch itself
             continue
         assert not isinstance(g, CandidateFailure)
-        # rel 1e-9 here, not 1e-10: next to the pole a held-out mean is tens of millions
+        # rel 1e-8 here, not 1e-10: next to the pole a held-out mean is tens of millions
         # and amplifies the last-bit difference between the two paths' fitted values (an
         # einsum against a matrix product) by |p| |delta eta| / base; measured 8e-11 to
-        # 2e-10 relative depending on the solver's rounding
-        assert g.value == pytest.approx(one.value, rel=1e-9)
+        # 3.3e-9 relative depending on the solver's rounding (for box_cox(y, -0.5) on
+        # columns [0, 2, 8, 11] one ulp more or less in a fold's solution moves the value
+        # by 3.3e-9 whichever path computes it)
+        assert g.value == pytest.approx(one.value, rel=1e-8)
     if t.name == "reciprocal":
         assert reasons >= 5

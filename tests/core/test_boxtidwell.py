@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import statsmodels.api as sm
 from scipy.optimize import curve_fit, minimize_scalar
 from service.core import boxtidwell as bt
 from service.core.data import prepare
@@ -448,3 +449,115 @@ def test_all_rows_powers_of_many_candidates_equal_one_call_each(kind):
         # source: scipy.optimize.curve_fit (nonlinear least squares); abs 1e-5 / rel 1e-3
         assert fit.powers[0] == pytest.approx(popt[3], abs=1e-5)
         assert fit.std_errors[0] == pytest.approx(np.sqrt(pcov[3, 3]), rel=1e-3)
+
+
+def _ols_std_errors(z, Xf, x, a):
+    """The standard errors of the powers ``a`` from statsmodels OLS fits of the two designs
+    at the estimate: se_j = bse(dw_j/da) / |b_j|, b_j from the fit on [X_f, W]."""
+    W, D = bt.power_columns(np.log(x), a, True)
+    b = sm.OLS(z, np.column_stack([Xf, W])).fit().params[Xf.shape[1] :]
+    bse = sm.OLS(z, np.column_stack([Xf, W, D])).fit().bse[Xf.shape[1] + W.shape[1] :]
+    return bse / np.abs(b)
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_stacked_standard_errors_equal_statsmodels_ols(kind, monkeypatch):
+    rng = np.random.default_rng(len(kind) + 21)
+    n = 200
+    problems = [_candidate(kind, rng, n, 1 + c % 2) for c in range(5)]
+    exact = []
+    real = bt._std_errors_exact
+    monkeypatch.setattr(bt, "_std_errors_exact", lambda *a: exact.append(1) or real(*a))
+    got = bt.estimate_many_powers(problems)
+    for (z, Xf, x), fit in zip(problems, got, strict=True):
+        assert not isinstance(fit, CandidateFailure)
+        # source: statsmodels OLS (pinv) standard errors of the two designs at the estimate;
+        # rel 1e-7 (the column-scaled normal equations keep about nine digits below
+        # condition 1e7, the QR path more)
+        np.testing.assert_allclose(fit.std_errors, _ols_std_errors(z, Xf, x, fit.powers), rtol=1e-7)
+    # the collinear fixed columns (scaled condition ~1e12) fail the check: QR for each
+    assert len(exact) == (len(problems) if kind == "collinear" else 0)
+
+
+@pytest.mark.parametrize("bc", [True, False])
+def test_stacked_power_columns_equal_the_closed_form(bc):
+    rng = np.random.default_rng(31)
+    F, k, b = 6, 2, 500
+    x = rng.uniform(0.2, 40.0, (F, k, b))
+    x[:, :, :5] = 1.0 + 1e-5 * rng.normal(size=(F, k, 5))  # u = a log x near 0: the series
+    A = np.array([[0.7, -1.3], [0.0, 2.0], [1e-13, -0.4], [3.0, -3.0], [1e-4, 0.5], [1, 1]])
+    L = np.log(x)
+    WD = np.empty((F, 2 * k, b))
+    bt._power_columns_into(L, A, bc, WD[:, :k], WD[:, k:])
+    for f in range(F):
+        W1, D1 = bt.power_columns(L[f].T, A[f], bc)
+        # source: power_columns, one problem's columns: the same arithmetic element for element
+        np.testing.assert_array_equal(WD[f, :k], W1.T)
+        np.testing.assert_array_equal(WD[f, k:], D1.T)
+        for j in range(k):
+            a, xj, Lj = A[f, j], x[f, j], L[f, j]
+            if bc and abs(a) < 1e-12:
+                w, dw = Lj, 0.5 * Lj**2
+            elif bc:
+                # source: the Box-Cox column (x^a - 1) / a and its derivative in a,
+                # (x^a log x - w) / a (closed forms; near a log x = 0 the difference cancels,
+                # so those rows are compared with an absolute tolerance)
+                w = (xj**a - 1.0) / a
+                dw = (xj**a * Lj - w) / a
+            else:
+                w, dw = xj**a, xj**a * Lj  # source: x^a and its derivative x^a log x
+            np.testing.assert_allclose(WD[f, j], w, rtol=1e-12, atol=1e-9)
+            np.testing.assert_allclose(WD[f, k + j], dw, rtol=1e-9, atol=1e-6)
+
+
+@pytest.mark.parametrize("bc", [True, False])
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_folds_of_unequal_sizes_equal_the_fold_by_fold_fits(kind, bc):
+    rng = np.random.default_rng(len(kind) + 3 * bc)
+    n = 203  # 5 folds of 40 or 41 held-out rows: training sets of 162 and 163 rows
+    train = _fold_rows(n, 5, 4) + _fold_rows(n, 5, 5)
+    assert len({rows.size for rows in train}) == 2
+    problems = []
+    for c in range(3):
+        z, Xf, x = _candidate(kind, rng, n, 1 + c % 2)
+        if not bc:  # plain powers x^a beside the fixed columns: no constant column
+            Xf = Xf[:, 1:]
+        start = bt.estimate_powers(z, Xf, x, boxcox_form=bc).powers
+        problems.append(bt.FoldPowerProblem(z, Xf, x, train, start))
+    got = bt.estimate_many_fold_powers(problems, boxcox_form=bc)
+    for pr, fits in zip(problems, got, strict=True):
+        assert not isinstance(fits, CandidateFailure)
+        for rows, fit in zip(pr.train, fits, strict=True):
+            one = bt.estimate_powers(
+                pr.z[rows], pr.Xf[rows], pr.x[rows], start=pr.start, boxcox_form=bc, with_se=False
+            )
+            # source: estimate_powers on the fold's training rows alone (its own
+            # cross-products, no padding); abs 1e-6 (the iteration stops at steps below
+            # 1e-6), RSS rel 1e-9
+            np.testing.assert_allclose(fit.powers, one.powers, rtol=0, atol=1e-6)
+            assert fit.rss == pytest.approx(one.rss, rel=1e-9)
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_rss_of_many_powers_equals_statsmodels_ols(kind):
+    rng = np.random.default_rng(len(kind) + 40)
+    n = 150
+    z, Xf, x = _candidate(kind, rng, n, 2)
+    prob = bt._Problem(z, Xf, np.log(x), True)
+    A = np.array([[1.0, 1.0], [0.0, 0.5], [-2.5, 3.0], [0.3, -1e-13], [2.9, -0.7]])
+    got = prob.rss_many(A)
+    for a, rss in zip(A, got, strict=True):
+        cols = [
+            np.log(x[:, j]) if abs(a[j]) < 1e-12 else (x[:, j] ** a[j] - 1) / a[j] for j in (0, 1)
+        ]
+        ref = sm.OLS(z, np.column_stack([Xf, *cols])).fit(method="qr").ssr
+        # source: statsmodels OLS (QR) on [X_f, (x^a - 1)/a]; rel 1e-8 (normal equations below
+        # condition 1e7 keep about nine digits of the coefficients, the RSS is second order)
+        assert rss == pytest.approx(ref, rel=1e-8)
+        # source: the one-point trial of the Gauss-Newton path, the same fit
+        assert rss == pytest.approx(prob.trial(a)[0], rel=1e-10)
+    x_big = x.copy()
+    x_big[0, 0] = 1e120  # x^3 overflows: the column is not finite, the RSS is inf
+    big = bt._Problem(z, Xf, np.log(x_big), True)
+    assert big.rss_many(np.array([[3.0, 1.0], [1.0, 1.0]]))[0] == np.inf
+    assert np.isfinite(big.rss_many(np.array([[1.0, 1.0]]))[0])

@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+import scipy.linalg
 import scipy.stats
 import statsmodels.api as sm
 from service.core.errors import CandidateFailure
@@ -31,6 +32,7 @@ from service.core.fitting import (
     qr_solve,
     solve_batch,
     solve_batch_nested,
+    solve_batch_with_inverse_diagonal,
 )
 
 # ---------------------------------------------------------------- NIST StRD
@@ -327,13 +329,35 @@ def test_condition_check_decides_as_the_eigenvalues_do(p):
     Gs = _stack_with_conditions(conds, p, rng)
     got = fitting._checked_factors(Gs, fitting.COND_LIMIT)
     assert got is not None
-    good, L = got
+    good, L, inv = got
     ev = np.linalg.eigvalsh(Gs)
     # source: numpy.linalg.eigvalsh, the condition check as written before (lambda_min >
     # lambda_max / 1e7), matrix by matrix
     assert good.tolist() == (ev[:, 0] > ev[:, -1] / fitting.COND_LIMIT).tolist()
     # source: numpy.linalg.cholesky of each matrix alone
     np.testing.assert_array_equal(L[7], np.linalg.cholesky(Gs[7]))
+    for k in np.flatnonzero(good)[::40]:
+        # source: scipy.linalg.solve_triangular (LAPACK trtrs) of L against the identity: the
+        # inverse factor, lower triangular with exact zeros above the diagonal
+        want = scipy.linalg.solve_triangular(L[k], np.eye(p), lower=True)
+        assert np.all(np.triu(inv[k], 1) == 0.0)
+        scale = np.linalg.norm(want) * np.linalg.cond(L[k]) * 1e-14
+        assert np.max(np.abs(inv[k] - want)) <= scale
+
+
+def test_a_matrix_is_solved_alike_in_any_stack():
+    rng = np.random.default_rng(11)
+    K, n, p = 40, 30, 6
+    X = rng.normal(0, 1, (K, n, p)) * np.array([1.0, 1e4, 1e-3, 1.0, 50.0, 1.0])
+    G = np.einsum("kni,knj->kij", X, X)
+    c = np.einsum("kni,kn->ki", X, rng.normal(0, 1, (K, n)))
+    B, ok, B1 = solve_batch_nested(G, c, 4)
+    for k in (0, 17, 39):
+        one, ok1, one1 = solve_batch_nested(G[k : k + 1], c[k : k + 1], 4)
+        # source: the definition (each matrix factored, inverted and solved alone)
+        assert ok1[0] == ok[k]
+        np.testing.assert_array_equal(one[0], B[k])
+        np.testing.assert_array_equal(one1[0], B1[k])
 
 
 @pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
@@ -359,3 +383,28 @@ def test_stacked_substitution_matches_lapack_solves(kind):
         want1 = np.linalg.solve(G[k][:lead, :lead], c[k][:lead])
         d1 = d[:lead]
         assert np.linalg.norm((B1[k] - want1) * d1) <= cond * 1e-14 * np.linalg.norm(want1 * d1)
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_inverse_diagonal_matches_numpy_inverse(kind):
+    rng = np.random.default_rng(len(kind) + 3)
+    K, n, p, lead = 50, 40, 6, 4
+    X = rng.normal(0, 1, (K, n, p))
+    if kind == "collinear":
+        X[:, :, 2] = X[:, :, 1] + 1e-2 * rng.normal(0, 1, (K, n))
+    elif kind == "badly_scaled":
+        X *= np.array([1.0, 1e6, 1e-6, 2000.0, 1.0, 1e3])
+    G = np.einsum("kni,knj->kij", X, X)
+    c = np.einsum("kni,kn->ki", X, rng.normal(0, 1, (K, n)))
+    B, ok, B1, diag = solve_batch_with_inverse_diagonal(G, c, lead)
+    B0, ok0, B10 = solve_batch_nested(G, c, lead)
+    assert ok.all() and ok.tolist() == ok0.tolist()
+    # source: solve_batch_nested, the same solutions bit for bit
+    np.testing.assert_array_equal(B, B0)
+    np.testing.assert_array_equal(B1, B10)
+    for k in range(K):
+        d = np.sqrt(np.diag(G[k]))
+        # source: numpy.linalg.inv (LAPACK gesv) of the column-scaled matrix, scaled back;
+        # rel 1e-9 (condition numbers here below 1e5)
+        want = np.diag(np.linalg.inv(G[k] / np.outer(d, d))) / d**2
+        np.testing.assert_allclose(diag[k], want, rtol=1e-9)
