@@ -41,7 +41,13 @@ from ..core.errors import (
 )
 from ..core.likelihood import fit_transform
 from ..core.numbers import count_of, rows_named
-from ..core.spec import PredictorSpec, Specification, categorical_levels, term_label
+from ..core.spec import (
+    PredictorSpec,
+    Specification,
+    categorical_levels,
+    needs_explicit_lambda,
+    term_label,
+)
 from .deadline import Deadline
 from .search_setup import PredictorChoices, TransformChoice
 
@@ -62,6 +68,34 @@ def _expand(choice: TransformChoice, role: str) -> list[tr.Transform]:
     if bt.is_open(choice.transform):
         return [bt.ESTIMATED]
     return [choice.transform]
+
+
+def check_predictor_transform(
+    prep: Prepared,
+    t: tr.Transform,
+    column: str,
+    where: Location,
+    auto_shift: bool = False,
+    lambda_at: Location | None = None,
+    hint: str = "",
+) -> None:
+    """The rules a transform the caller named for a numeric predictor must meet, for a
+    search's list and a diagnosed specification alike (one place, one set of messages):
+    a parameter left to estimate is refused (at ``lambda_at`` when given; ``hint`` says
+    what to send instead where there is such an option), a categorical coding of a numeric
+    column is refused, and every row must be in the transform's domain
+    (:func:`check_explicit`, then the family's own domain rule)."""
+    if t.needs_lambda:
+        raise InputError.at(lambda_at or where, needs_explicit_lambda(t) + hint)
+    if t.name == "categorical":
+        raise InputError.at(
+            where, f"'{column}' is numeric; list it in 'categorical' to treat it as levels"
+        )
+    x = prep.numeric[column]
+    check_explicit(prep, t, x, column, "predictor", where, auto_shift)
+    msg = t.domain_problem(x, column, "predictor")
+    if msg:
+        raise InputError.at(where, msg)
 
 
 def check_explicit(
@@ -189,33 +223,17 @@ def predictor_candidates(
                             f"{MIN_DISTINCT_FOR_POWER} distinct values",
                         )
                     continue
-                if t.needs_lambda:
-                    raise InputError.at(
-                        PredictorChoice(listed_for, i),
-                        f"{t.name} of a predictor needs an explicit "
-                        "'lambda' (for an estimated predictor power use "
-                        "'power')",
-                    )
-                if t.name == "categorical":
-                    raise InputError.at(
-                        PredictorChoice(listed_for, i),
-                        f"'{col}' is numeric; list it in 'categorical' to treat it as levels",
-                    )
-                if explicit:
-                    check_explicit(
+                if explicit or t.needs_lambda or t.name == "categorical":
+                    check_predictor_transform(
                         prep,
                         t,
-                        x,
                         col,
-                        "predictor",
                         PredictorChoice(listed_for, i),
                         item.auto_shift,
+                        hint=" (for an estimated predictor power use 'power')",
                     )
-                msg = t.domain_problem(x, col, "predictor")
-                if msg:
-                    if explicit:
-                        raise InputError.at(PredictorChoice(listed_for, i), msg)
-                    continue
+                elif t.domain_problem(x, col, "predictor"):
+                    continue  # a default that does not apply to this column
                 if t.name == "log" and t.shift is None:
                     t = fit_transform(t, x)
                 if t not in lst:

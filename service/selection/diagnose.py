@@ -12,12 +12,8 @@ from ..core.data import Prepared
 from ..core.errors import CandidateFailure, InputError, ModelFailure, SpecField
 from ..core.folds import make_plan
 from ..core.plots import DiagnosticPlots
-from ..core.spec import (
-    build_design,
-    needs_explicit_lambda,
-    resolve_predictor_transforms,
-)
-from .candidates import check_explicit
+from ..core.spec import build_design, resolve_predictor_transforms
+from .candidates import check_explicit, check_predictor_transform
 from .entries import ConditionCount, EntryReport, ScoreParts, entry_for
 from .plots import PLOT_MAX_POINTS, fit_plots
 from .search import simplicity_parts
@@ -55,28 +51,14 @@ def diagnose_specification(
         raise InputError.at(SpecField.response("transform"), msg)
     for i, p in enumerate(spec.predictors):
         if p.column in prep.numeric:
-            if p.transform.name == "categorical":
-                raise InputError.at(
-                    SpecField.of_predictor(i, "transform"),
-                    f"'{p.column}' is numeric; list it in 'categorical' to treat it as levels",
-                )
-            if p.transform.needs_lambda:
-                raise InputError.at(
-                    SpecField.of_predictor(i, "transform", "lambda"),
-                    needs_explicit_lambda(p.transform),
-                )
-            check_explicit(
+            check_predictor_transform(
                 prep,
                 p.transform,
-                prep.numeric[p.column],
                 p.column,
-                "predictor",
                 SpecField.of_predictor(i, "transform"),
                 i in sent.predictors_auto_shift,
+                lambda_at=SpecField.of_predictor(i, "transform", "lambda"),
             )
-            msg = p.transform.domain_problem(prep.numeric[p.column], p.column, "predictor")
-            if msg:
-                raise InputError.at(SpecField.of_predictor(i, "transform"), msg)
     spec = resolve_predictor_transforms(spec, prep)
     try:
         design = build_design(spec, prep)

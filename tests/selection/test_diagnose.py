@@ -106,3 +106,37 @@ def test_a_design_that_cannot_be_fitted_is_a_model_failure():
     }
     with pytest.raises(ModelFailure, match="rank-deficient"):
         diagnose_specification(prep, sent(spec), SearchOptions(), "t")
+
+
+@pytest.mark.parametrize(
+    "name, fragment",
+    [
+        ("categorical", "is numeric; list it in 'categorical'"),
+        ("box_cox", "needs an explicit lambda"),
+        ("reciprocal", None),  # income has no zeros: accepted by both
+    ],
+)
+def test_a_predictor_transform_is_judged_alike_by_the_search_and_the_diagnosis(
+    engel, name, fragment
+):
+    from service.selection.candidates import predictor_candidates
+
+    from tests.typed import predictors
+
+    prep, _ = engel
+    errors = []
+    for run in (
+        lambda: diagnose_specification(prep, sent(_spec(pt=name)), SearchOptions(), "t"),
+        lambda: predictor_candidates(prep, predictors([name])),
+    ):
+        try:
+            run()
+            errors.append(None)
+        except InputError as exc:
+            errors.append(exc.problems[-1].detail)
+    if fragment is None:
+        assert errors == [None, None]
+        return
+    # the same rule and words (the search adds what to send instead of a lambda)
+    assert all(e is not None and fragment in e for e in errors)
+    assert errors[1].startswith(errors[0])
