@@ -7,7 +7,7 @@ from starlette.responses import HTMLResponse
 
 from ..report.html import CSP, render_report
 from ..selection.plots import report_plots
-from ..selection.request import run_selection
+from ..selection.request import work_selection
 from .encode import to_jsonable
 from .errors import ProblemError, with_group_problems
 from .middleware import note_result
@@ -30,7 +30,8 @@ def selection_report(req: SelectionRequest, stop: Stop | None = None) -> str:
     refused, exactly as the JSON response), so every number on it is the response's.
     """
     job = selection_job(req, stop=stop)  # its one deadline: the selection and the figures
-    result = with_group_problems(run_selection(job, service()))
+    worked = work_selection(job, service())
+    result = with_group_problems(worked.body)
     if stop is not None and stop():
         # nobody will read the page: skip the figures and free the compute slot now
         raise ProblemError(
@@ -41,11 +42,11 @@ def selection_report(req: SelectionRequest, stop: Stop | None = None) -> str:
         )
     body = to_jsonable(result)
     note_result(body)
-    # The rows the selection used, again: the plot data needs them and the selection body
-    # does not carry them.  Every check already passed in the selection above.
+    # the plot data from the rows the selection used and its listed entries' fits
     table, opts = job.table, job.search
-    prep = table.prepare()
-    plots = report_plots(result, prep, opts.alpha, opts.seed, deadline=opts.deadline)
+    plots = report_plots(
+        result, worked.prep, opts.alpha, opts.seed, deadline=opts.deadline, fits=worked.fits
+    )
     context = {
         "response": table.response,
         "predictors": list(table.predictors),

@@ -7,6 +7,8 @@ so a figure in the report is the figure that endpoint draws for the same specifi
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 from ..core.condition_rules import condition_inputs
 from ..core.data import Prepared, split_groups
 from ..core.errors import CandidateFailure
@@ -14,7 +16,7 @@ from ..core.fitting import OLSFit
 from ..core.plots import DiagnosticPlots, diagnostic_plots
 from ..core.spec import Design, Specification
 from .deadline import Deadline
-from .entries import EntryReport, fitted_model
+from .entries import Entry, EntryReport, fitted_model
 from .groups import GroupedReport
 from .search import SelectionReport
 
@@ -37,6 +39,7 @@ def report_plots(
     seed: int,
     max_points: int = PLOT_MAX_POINTS,
     deadline: Deadline | None = None,
+    fits: Sequence[Entry] = (),
 ) -> ReportPlots:
     """Plot data of the specifications shown in detail, keyed by ``(group, rank)``.
 
@@ -47,6 +50,8 @@ def report_plots(
     groups that have a ranking.  A value is the :class:`DiagnosticPlots` or, when the
     specification cannot be refitted, the reason as a string.  Past the request's
     ``deadline`` only the first specification is drawn; the others carry the reason.
+    ``fits`` (a selection without groups: the listed entries' all-rows fits, rank 1 first)
+    are drawn as they are; an entry without one is fitted again.
     """
     out: ReportPlots = {}
     if isinstance(body, GroupedReport):
@@ -71,7 +76,9 @@ def report_plots(
         out[(None, entry.rank)] = (
             _out_of_time(deadline)
             if i and _passed(deadline)
-            else _plots_for(entry, prep, alpha, seed, max_points)
+            else _plots_for(
+                entry, prep, alpha, seed, max_points, fits[i] if i < len(fits) else None
+            )
         )
     return out
 
@@ -107,8 +114,15 @@ def fit_plots(
 
 
 def _plots_for(
-    entry: EntryReport, prep: Prepared, alpha: float, seed: int, max_points: int
+    entry: EntryReport,
+    prep: Prepared,
+    alpha: float,
+    seed: int,
+    max_points: int,
+    fitted: Entry | None = None,
 ) -> DiagnosticPlots | str:
+    if fitted is not None and fitted.report.specification == entry.specification:
+        return fit_plots(fitted.design, fitted.fit, prep, alpha, seed, max_points)
     try:
         return specification_plots(entry.specification, prep, alpha, seed, max_points)
     except CandidateFailure as exc:

@@ -21,6 +21,7 @@ from ..core.errors import InputError, Option
 from ..core.model import Signing
 from . import workers
 from .cautions import selection_cautions
+from .entries import Entry
 from .groups import GroupedReport, run_grouped
 from .search import SelectionReport, select
 from .search_setup import SearchOptions
@@ -113,6 +114,17 @@ def check_groups(n_groups: int, column: str, limit: int | None) -> None:
         )
 
 
+@dataclass(frozen=True, eq=False)
+class Worked:
+    """A selection ``body`` with what it was computed from: the prepared rows (``prep``)
+    and, for a selection without groups, the listed entries' all-rows fits (``fits``, rank 1
+    first), so that plot data needs neither a second preparation nor a refit."""
+
+    body: SelectionReport | GroupedReport
+    prep: Prepared
+    fits: tuple[Entry, ...] = ()
+
+
 def run_selection(
     job: SelectionJob,
     service: Service,
@@ -121,7 +133,25 @@ def run_selection(
     group_mapper: Mapper | None = None,
     per_group_time_limit: bool = False,
 ) -> SelectionReport | GroupedReport:
-    """The selection body of ``job``.  ``group_mapper(fn, items)``, when given, runs the
+    """The selection body of ``job`` (:func:`work_selection`'s body)."""
+    return work_selection(
+        job,
+        service,
+        progress=progress,
+        group_mapper=group_mapper,
+        per_group_time_limit=per_group_time_limit,
+    ).body
+
+
+def work_selection(
+    job: SelectionJob,
+    service: Service,
+    *,
+    progress: Progress | None = None,
+    group_mapper: Mapper | None = None,
+    per_group_time_limit: bool = False,
+) -> Worked:
+    """The selection of ``job``, with its rows and listed fits (:class:`Worked`).  ``group_mapper(fn, items)``, when given, runs the
     groups of a ``group_by`` request (the command line's Dask cluster), in order.  Every part
     of the work asks ``job.search.clock()``: the request's one deadline when it has one;
     with ``per_group_time_limit`` (the command line's ``--group-by``: a month of segments,
@@ -150,7 +180,7 @@ def run_selection(
             finish=lambda b: finish_body(b, grouped, service),
             mapper=mapper,
         )
-        return finish_body(per_group, grouped, service)
+        return Worked(finish_body(per_group, grouped, service), prep)
     result = select(prep, opts, service.version)
     body = result.body
     if job.trust.wanted:
@@ -165,7 +195,7 @@ def run_selection(
             selection=result,
         )
         body = replace(body, trust=trust)
-    return finish_body(body, opts, service)
+    return Worked(finish_body(body, opts, service), prep, result.fits)
 
 
 def _group_mapper(

@@ -495,14 +495,17 @@ class SelectionReport:
 class Selection:
     """One search's result: the contract's selection ``body`` (unfinished: no version,
     the distinct-scale candidates it ranked (``scored``; trust re-ranks them), its fold
-    ``plan``, the candidate listed at rank 1 (``winner``, one of ``scored``) and whether
-    every candidate of the space was scored (``complete``)."""
+    ``plan``, the candidate listed at rank 1 (``winner``, one of ``scored``), whether
+    every candidate of the space was scored (``complete``) and the listed entries' all-rows
+    fits (``fits``, rank 1 first)."""
 
     body: SelectionReport
     scored: list[Scored]
     plan: CVPlan
     winner: Scored
     complete: bool
+    # the listed entries' all-rows design and fit, in rank order (plot data needs no refit)
+    fits: tuple[Entry, ...] = ()
 
 
 def run_selection(
@@ -651,6 +654,7 @@ def select(
     ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings)
     best = min(scored, key=lambda s: s.cv.value)
     entries: list[EntryReport] = []
+    fits: list[Entry] = []
     first: Entry | None = None
     winner: Scored | None = None
     for s, parts in ranked:
@@ -678,6 +682,7 @@ def select(
             )
             parts = replace(parts, conditions=count)
         entries.append(replace(entry, score=replace(entry.score, parts=parts), rank=i + 1))
+        fits.append(listed)
     if not entries:
         raise ModelFailure(
             "no scored specification could be fitted on all rows; "
@@ -731,7 +736,7 @@ def select(
         prep.data_summary(), search, tuple(entries), tuple(warnings), incumbent_block
     )
     assert winner is not None  # listed with entries[0]
-    return Selection(body, listable, plan, winner, complete)
+    return Selection(body, listable, plan, winner, complete, tuple(fits))
 
 
 def _incumbent(

@@ -123,3 +123,27 @@ def test_past_the_deadline_only_the_first_figure_is_drawn(case):
     gout = report_plots(gbody, grouped, 0.05, seed=0, deadline=gone)
     assert isinstance(gout[("north", 1)], DiagnosticPlots)
     assert all(isinstance(gout[(p, 1)], str) for p in ("south", "west"))
+
+
+def test_plot_data_from_the_listed_fits_equals_a_refit_and_needs_none(monkeypatch):
+    from service.api.options import selection_job, service
+    from service.api.schemas import SelectionRequest
+    from service.demo import demo_request
+    from service.selection import plots as plots_mod
+    from service.selection.request import work_selection
+
+    job = selection_job(SelectionRequest.model_validate(demo_request()))
+    worked = work_selection(job, service())
+    opts = job.search
+    assert len(worked.fits) == len(worked.body.ranking)
+    refitted = report_plots(worked.body, worked.prep, opts.alpha, opts.seed)
+
+    def no_refit(*a, **k):
+        raise AssertionError("plot data refitted a listed entry")
+
+    monkeypatch.setattr(plots_mod, "fitted_model", no_refit)
+    kept = report_plots(worked.body, worked.prep, opts.alpha, opts.seed, fits=worked.fits)
+    assert kept.keys() == refitted.keys()
+    for key, got in kept.items():
+        # source: the same specification fitted again on all rows (specification_plots)
+        assert got == refitted[key], key
