@@ -382,9 +382,10 @@ class PowerFits:
                 if seen is not None:
                     seen[id(a)] = d
             parts.append(d)
-        return inputs_key(
-            b"boxcox" if boxcox_form else b"plain", *(np.frombuffer(d, np.uint8) for d in parts)
-        )
+        h = hashlib.blake2b(b"boxcox" if boxcox_form else b"plain", digest_size=20)
+        for d in parts:
+            h.update(d)
+        return h.digest()
 
     def _take(self, key: bytes) -> bt.PowerFit | CandidateFailure | None:
         got = self._fits.get(key)

@@ -15,25 +15,13 @@ from service.api.render.model import checksum
 from service.core import model as m
 from service.core.errors import InputError, Location
 
-from tests.core.test_predict import issue
+from tests.core.test_predict import income_site_artifact
 from tests.typed import predictors, responses
 
 
 @pytest.fixture
 def artifact():
-    """Invented: a log model of a cost on income (log) and site, as issued."""
-    rng = np.random.default_rng(7)
-    n = 60
-    x = rng.uniform(1, 5, n)
-    site = rng.choice(["north", "south"], n)
-    y = np.exp(0.2 + 0.5 * np.log(x) + (site == "south") * 0.3 + rng.normal(0, 0.2, n))
-    art, *_ = issue(
-        {"y": y.tolist(), "income": x.tolist(), "site": site.tolist()},
-        "y",
-        [("income", {"name": "log"}), ("site", {"name": "categorical"})],
-        {"name": "log"},
-    )
-    return art
+    return income_site_artifact(np.random.default_rng(7))
 
 
 def reseal(art: dict) -> dict:

@@ -127,11 +127,16 @@ def timed(fn, runs):
     return best, out
 
 
-def compare(label, fn, runs):
-    fn()  # warm: imports, caches
+def compare(label, fn, runs, earlier=None):
+    """``fn`` with the earlier paths (``earlier()``, a context manager; this module's
+    :func:`before` unless given) and as shipped, alternating, best of ``runs`` each."""
+    earlier = earlier or before
+    with earlier():
+        fn()  # warm: imports, caches
+    fn()
     rounds = []
     for _ in range(runs):  # alternate, so both columns see the same load
-        with before():
+        with earlier():
             b, body_b = timed(fn, 1)
         a, body_a = timed(fn, 1)
         rounds.append((b, a))

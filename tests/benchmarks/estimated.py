@@ -47,7 +47,7 @@ from service.core import _smear_tree as st
 from service.core import fastcv
 from service.demo import demo_request
 from service.selection.request import run_selection
-from tests.benchmarks.engine import largest_change, timed
+from tests.benchmarks.engine import compare as engine_compare
 from tests.benchmarks.smearing import request
 
 
@@ -118,22 +118,7 @@ def before():
 
 
 def compare(label, fn, runs):
-    with before():
-        fn()  # warm: imports, caches
-    fn()
-    rounds = []
-    for _ in range(runs):  # alternate, so both columns see the same load
-        with before():
-            b, body_b = timed(fn, 1)
-        a, body_a = timed(fn, 1)
-        rounds.append((b, a))
-    b = min(r[0] for r in rounds)
-    a = min(r[1] for r in rounds)
-    print(
-        f"{label}: before cpu {b[0]:.3f} s (wall {b[1]:.3f}), after cpu {a[0]:.3f} s "
-        f"(wall {a[1]:.3f}); ratio {b[0] / a[0]:.2f}x CPU; largest relative change "
-        f"{largest_change(body_b, body_a):.1e}"
-    )
+    engine_compare(label, fn, runs, before)
 
 
 def main() -> None:

@@ -360,17 +360,22 @@ def test_a_matrix_is_solved_alike_in_any_stack():
         np.testing.assert_array_equal(one1[0], B1[k])
 
 
-@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
-def test_stacked_substitution_matches_lapack_solves(kind):
-    rng = np.random.default_rng(len(kind))
-    K, n, p, lead = 300, 40, 6, 4
-    X = rng.normal(0, 1, (K, n, p))
+def _normal_stack(kind: str, K: int, seed: int, n: int = 40) -> tuple[np.ndarray, np.ndarray]:
+    """K normal equations (G, c) of random 6-column designs: random, with two nearly
+    collinear columns, or with columns scaled from 1e-6 to 1e6."""
+    rng = np.random.default_rng(seed)
+    X = rng.normal(0, 1, (K, n, 6))
     if kind == "collinear":
         X[:, :, 2] = X[:, :, 1] + 1e-2 * rng.normal(0, 1, (K, n))
     elif kind == "badly_scaled":
         X *= np.array([1.0, 1e6, 1e-6, 2000.0, 1.0, 1e3])
-    G = np.einsum("kni,knj->kij", X, X)
-    c = np.einsum("kni,kn->ki", X, rng.normal(0, 1, (K, n)))
+    return np.einsum("kni,knj->kij", X, X), np.einsum("kni,kn->ki", X, rng.normal(0, 1, (K, n)))
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+def test_stacked_substitution_matches_lapack_solves(kind):
+    K, lead = 300, 4
+    G, c = _normal_stack(kind, K, len(kind))
     B, ok, B1 = solve_batch_nested(G, c, lead)
     assert ok.all()
     for k in range(0, K, 37):
@@ -387,15 +392,8 @@ def test_stacked_substitution_matches_lapack_solves(kind):
 
 @pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
 def test_inverse_diagonal_matches_numpy_inverse(kind):
-    rng = np.random.default_rng(len(kind) + 3)
-    K, n, p, lead = 50, 40, 6, 4
-    X = rng.normal(0, 1, (K, n, p))
-    if kind == "collinear":
-        X[:, :, 2] = X[:, :, 1] + 1e-2 * rng.normal(0, 1, (K, n))
-    elif kind == "badly_scaled":
-        X *= np.array([1.0, 1e6, 1e-6, 2000.0, 1.0, 1e3])
-    G = np.einsum("kni,knj->kij", X, X)
-    c = np.einsum("kni,kn->ki", X, rng.normal(0, 1, (K, n)))
+    K, lead = 50, 4
+    G, c = _normal_stack(kind, K, len(kind) + 3)
     B, ok, B1, diag = solve_batch_with_inverse_diagonal(G, c, lead)
     B0, ok0, B10 = solve_batch_nested(G, c, lead)
     assert ok.all() and ok.tolist() == ok0.tolist()

@@ -292,6 +292,11 @@ def test_extrapolation_by_range_and_by_leverage(rng):
 # ---------------------------------------------------------------- loading
 @pytest.fixture
 def artifact(rng):
+    return income_site_artifact(rng)
+
+
+def income_site_artifact(rng: np.random.Generator) -> dict:
+    """Invented: a log model of a cost on income (log) and site, as issued."""
     n = 60
     x = rng.uniform(1, 5, n)
     site = rng.choice(["north", "south"], n)
