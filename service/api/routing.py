@@ -11,8 +11,10 @@ validation, error pointers and results are those of the JSON request.
 from __future__ import annotations
 
 import io
+import math
 
 import anyio
+import numpy as np
 import orjson
 import pyarrow as pa
 import pyarrow.compute as pc
@@ -21,6 +23,7 @@ from fastapi import Request
 from fastapi.routing import APIRoute
 from starlette.requests import ClientDisconnect
 
+from ..core.data import DecodedColumns, NumberColumn
 from . import jsonbody
 from .errors import ProblemError
 from .options import (
@@ -129,6 +132,21 @@ def _parquet_limits(raw: bytes):
     return pf
 
 
+def _number_column(arr: pa.ChunkedArray) -> NumberColumn:
+    """A numeric Parquet column as float64 with NaN for a missing value (a null cell, or NaN
+    in a float column: the row is dropped and listed), without a Python object per cell;
+    the cells as Python values (NaN as None) only when a path asks for them."""
+    values = np.array(arr.cast(pa.float64(), safe=False).fill_null(math.nan), dtype=float)
+
+    def cells() -> list:
+        held = arr
+        if pa.types.is_floating(held.type):
+            held = pc.if_else(pc.is_nan(held), pa.scalar(None, held.type), held)
+        return held.to_pylist()
+
+    return NumberColumn(values, cells)
+
+
 def _csv_limits(raw: bytes) -> None:
     """Rows counted on the raw bytes before the text is decoded (the columns are counted
     from the header with the JSON request's checks)."""
@@ -155,15 +173,14 @@ def table_from_file(raw: bytes, filename: str | None) -> dict:
                 "/file",
                 f"the uploaded file is not a readable Parquet file ({exc})",
             ) from None
-        cols = {}
+        cols = DecodedColumns()
         for col in table.column_names:
             arr = table.column(col)
-            if pa.types.is_floating(arr.type):
-                # NaN in a Parquet float column is a missing value (the row is dropped, listed)
-                arr = pc.if_else(pc.is_nan(arr), pa.scalar(None, arr.type), arr)
-            elif not (
-                pa.types.is_integer(arr.type)
-                or pa.types.is_string(arr.type)
+            if pa.types.is_floating(arr.type) or pa.types.is_integer(arr.type):
+                cols[str(col)] = _number_column(arr)
+                continue
+            if not (
+                pa.types.is_string(arr.type)
                 or pa.types.is_large_string(arr.type)
                 or pa.types.is_boolean(arr.type)
                 or pa.types.is_dictionary(arr.type)

@@ -10,10 +10,18 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StringConstraints,
+    field_validator,
+    model_validator,
+)
 
 from ..core import transforms as tr
 from ..core.conditions import DEFAULT_ALPHA
+from ..core.data import DecodedColumns
 from ..core.errors import InputError, Option
 from ..core.folds import DEFAULT_SEED
 from ..selection.defaults import (
@@ -74,6 +82,16 @@ class DataIn(_Strict):
         "quoting); empty cells are missing",
         examples=["repair_cost,pipe_length_m,soil\n1520.5,40,clay\n980.0,25,loam\n"],
     )
+
+    @field_validator("columns", mode="wrap")
+    @classmethod
+    def _decoded(cls, value: Any, handler: Any) -> Any:
+        """Columns decoded from an uploaded typed file are already typed (numeric columns
+        as float64 arrays, no Python object per cell): kept as they are.  A JSON body
+        cannot produce them, so what a caller sends is validated as declared."""
+        if isinstance(value, DecodedColumns):
+            return value
+        return handler(value)
 
     @model_validator(mode="after")
     def _exactly_one(self):

@@ -49,6 +49,7 @@ def shown(v: object) -> str:
 
 
 _MISSING_KEY = object()
+_NUMBER_TYPES = frozenset({int, float, type(None)})  # exact types: bool is not a number here
 _NON_FINITE_WORDS = {
     "nan",
     "+nan",
@@ -62,12 +63,40 @@ _NON_FINITE_WORDS = {
 }
 
 
+class NumberColumn:
+    """A numeric column decoded from a typed file (an uploaded Parquet file): its values
+    as float64 with NaN for a missing value, read without a Python object per cell, and
+    ``cells()``, the values as the file holds them (``None`` for a missing value), for
+    the paths that need each one (levels of a categorical predictor, group values, the
+    cell an error names)."""
+
+    __slots__ = ("cells", "values")
+
+    def __init__(self, values: np.ndarray, cells: Callable[[], list[Any]]):
+        self.values = values
+        self.cells = cells
+
+    def __len__(self) -> int:
+        return int(self.values.size)
+
+
+class DecodedColumns(dict[str, "list[Any] | NumberColumn"]):
+    """The ``columns`` of a table decoded from a typed file: numeric columns as
+    :class:`NumberColumn`, the others as lists of Python values."""
+
+
+def cell_values(values: list[Any] | NumberColumn) -> list[Any]:
+    """A column's values one Python object per cell."""
+    return values.cells() if isinstance(values, NumberColumn) else values
+
+
 @dataclass
 class RawColumn:
-    """One column as received: Python values with ``None`` for missing."""
+    """One column as received: Python values with ``None`` for missing (or, from a typed
+    file, a :class:`NumberColumn`)."""
 
     name: str
-    values: list[Any]
+    values: list[Any] | NumberColumn
     layout: str  # how the table was sent: columns | records | csv
 
     @property
@@ -258,17 +287,19 @@ def _is_number_like(v: object, from_csv: bool) -> bool:
 
 
 def as_numeric(col: RawColumn, role: str) -> TypedColumn:
-    vals = col.values
-    if not col.from_csv:
-        kinds = set(map(type, vals))
-        if kinds <= {int, float, type(None)}:
-            try:
-                arr = np.array(vals, dtype=float)
-            except OverflowError:
-                arr = None
-            if arr is not None and not np.any(np.isinf(arr)):
-                missing = np.isnan(arr)
-                return TypedColumn(col.name, "numeric", arr, missing)
+    if isinstance(col.values, NumberColumn):
+        decoded = col.values.values
+        if not np.any(np.isinf(decoded)):
+            return TypedColumn(col.name, "numeric", decoded, np.isnan(decoded))
+    vals = cell_values(col.values)  # an infinite value: the cell-by-cell path names it
+    if not col.from_csv and set(map(type, vals)) <= _NUMBER_TYPES:
+        try:
+            arr = np.array(vals, dtype=float)
+        except OverflowError:
+            arr = None
+        if arr is not None and not np.any(np.isinf(arr)):
+            missing = np.isnan(arr)
+            return TypedColumn(col.name, "numeric", arr, missing)
     out = np.empty(len(vals))
     missing = np.zeros(len(vals), dtype=bool)
     for i, v in enumerate(vals):
@@ -294,9 +325,10 @@ def _level_text(v: object) -> str:
 
 
 def as_categorical(col: RawColumn) -> TypedColumn:
-    vals = np.empty(len(col.values), dtype=object)
-    missing = np.zeros(len(col.values), dtype=bool)
-    for i, v in enumerate(col.values):
+    cells = cell_values(col.values)
+    vals = np.empty(len(cells), dtype=object)
+    missing = np.zeros(len(cells), dtype=bool)
+    for i, v in enumerate(cells):
         if v is None:
             missing[i] = True
             vals[i] = None
@@ -323,9 +355,15 @@ def as_categorical(col: RawColumn) -> TypedColumn:
 def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
     if forced_categorical:
         return as_categorical(col)
+    if isinstance(col.values, NumberColumn) or (
+        not col.from_csv and set(map(type, col.values)) <= _NUMBER_TYPES
+    ):
+        # numbers and nulls only (the common case): numeric without a Python-level pass
+        return as_numeric(col, "predictor")
+    cells = cell_values(col.values)
     numbers = strings = 0
     first_string = first_number = None
-    for i, v in enumerate(col.values):
+    for i, v in enumerate(cells):
         if v is None:
             continue
         if _is_number_like(v, col.from_csv):
@@ -343,7 +381,7 @@ def infer_predictor(col: RawColumn, forced_categorical: bool) -> TypedColumn:
             col.cell(i),
             (
                 f"predictor column '{col.name}' mixes numbers ({numbers}) and text ({strings}); "
-                f"{where} holds {shown(col.values[i])}. Send null for a missing value, or list "
+                f"{where} holds {shown(cells[i])}. Send null for a missing value, or list "
                 f"'{col.name}' in 'categorical' to treat every value as a level"
             ),
         )
