@@ -37,6 +37,7 @@ from .boxtidwell import (
     FoldPowerProblem,
     PowerFit,
     _power_columns_stacked,
+    _power_w_into,
     estimate_fold_powers,
     estimate_fold_powers_by_series,
     estimate_many_fold_powers,
@@ -74,6 +75,13 @@ if TYPE_CHECKING:  # pragma: no cover
 # response is the same in every fold).
 POWER_BATCH_CELLS = 50_000
 LAMBDA_BATCH_CELLS = 25_000
+#: folds x rows above which a candidate with estimated powers builds, sums and applies one
+#: fold's training sums without any fold's whole design (Scorer._solve_dynamic_by_fold)
+#: instead of all folds' designs as masked (K, n, p) products, which pass over held-out
+#: rows and hold four K n p arrays (about 1 GB at a million rows): measured by hand, one
+#: thread, 5 folds, 4 fixed columns and 2 powers: 0.12 -> 0.047 s CPU at 100,000 rows,
+#: 1.47 -> 0.42 s at a million (tests/benchmarks/rows.py --compare-designs for the search)
+BY_FOLD_DESIGN_CELLS = POWER_BATCH_CELLS
 #: all-rows lambdas of at least this many designs are found in one stacked search; fewer
 #: one by one (the stacked bounded Brent costs ~17 ms of numpy calls whatever the number
 #: of designs, the one-design search 4-6 ms each at 300-2,000 rows: measured by hand)
@@ -122,10 +130,10 @@ class Found:
     lambdas: list[float | None] | None = None
 
 
-def _fitted(designs: list[np.ndarray | None], B: np.ndarray) -> np.ndarray:
+def _fitted(designs: list[np.ndarray], B: np.ndarray) -> np.ndarray:
     """(n, K): every row's fitted value under every fold's solution, fold k on its own
     design ``designs[k]`` (n, p)."""
-    X = np.stack([d for d in designs if d is not None])
+    X = np.stack(designs)
     out: np.ndarray = np.einsum("knp,kp->nk", X, B)
     return out
 
@@ -618,7 +626,7 @@ class Scorer:
             train, test = index.train[r], index.test[r]
             # ---- per-fold response scale and training solutions
             B = np.empty((K, p))
-            designs: list[np.ndarray | None] = [None] * K
+            ETA = np.empty((n, K))  # fitted values of every row under every fold's solution
             ts, zs = self._fold_scales(
                 t,
                 r,
@@ -643,13 +651,15 @@ class Scorer:
                     t,
                     names,
                     B,
-                    designs,
+                    ETA,
                     powers,
                     None if powers_of is None else powers_of[r],
                 )
             # ---- fitted values of every row under every fold's solution
-            # (n, K), each fold's column contiguous; with estimated powers each fold's own design
-            ETA = (B @ XS.T).T if dynamic is None else _fitted(designs, B)
+            # (n, K), each fold's column contiguous; with estimated powers each fold's own
+            # design (written by _solve_dynamic)
+            if dynamic is None:
+                ETA = (B @ XS.T).T
             if keep and r == 0:
                 resid = np.empty(n)
                 for k in range(K):
@@ -979,7 +989,7 @@ class Scorer:
         t: tr.Transform,
         names: list[str] | None,
         B: np.ndarray,
-        designs: list[np.ndarray | None],
+        ETA: np.ndarray,
         powers: list[list[float]],
         fits: list[PowerFit] | None = None,
     ) -> int:
@@ -1027,10 +1037,12 @@ class Scorer:
             fits = estimate_fold_powers(
                 Z, XS, dyn.x, train, dyn.start, dyn.boxcox_form, grams=Gff, crosses=cff
             )
-        # every fold's design at its own powers, all folds at once (the same columns as
-        # power_columns fold by fold), then the training sums as masked products
         A = np.array([fit.powers for fit in fits], dtype=float)
         powers.extend(A.tolist())
+        if XS.shape[0] * K > BY_FOLD_DESIGN_CELLS:
+            return self._solve_dynamic_by_fold(S, XS, dyn, r, zs, names, A, B, ETA)
+        # every fold's design at its own powers, all folds at once (the same columns as
+        # power_columns fold by fold), then the training sums as masked products
         W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
         n = XS.shape[0]
         X = np.empty((K, n, p))
@@ -1044,10 +1056,71 @@ class Scorer:
         c = np.einsum("knp,kn->kp", Xm, np.stack(zs))
         Bk, ok = solve_batch(G, c)
         B[:] = Bk
-        for k in range(K):
-            designs[k] = X[k]
         refits = 0
         for i in np.flatnonzero(~ok):
             B[i] = _exact_refit(X[i][train[i]], zs[i][train[i]], names, i)
             refits += 1
+        ETA[:] = np.einsum("knp,kp->nk", X, B)  # the same product as _fitted's
+        return refits
+
+    def _solve_dynamic_by_fold(
+        self,
+        S: np.ndarray,
+        XS: np.ndarray,
+        dyn: Dynamic,
+        r: int,
+        zs: list[np.ndarray],
+        names: list[str] | None,
+        A: np.ndarray,
+        B: np.ndarray,
+        ETA: np.ndarray,
+    ) -> int:
+        """:meth:`_solve_dynamic`'s solutions and fitted values on a large table without
+        any fold's whole design: the power columns of every fold (``boxtidwell.
+        _power_w_into``, element for element the arithmetic of the all-folds path), the
+        training sums as all rows' sums minus the held-out rows' (the fixed columns' from
+        the bank, as the static path takes them; the rest from one product over all rows
+        and one over each fold's held-out rows), and every row's fitted value from the
+        fixed columns' product plus the power columns', written into ``ETA`` (n, K).  It
+        holds the power columns (K k n floats, k <= 2) where the all-folds path holds four
+        arrays of K n p floats (0.96 GB at a million rows, 5 folds, 6 columns) and passes
+        over every row of every fold's design twice."""
+        test = self.bank.index.test[r]
+        K, n, p = len(test), XS.shape[0], B.shape[1]
+        kd = len(dyn.positions)
+        dpos = np.asarray(dyn.positions, dtype=int)
+        fpos = np.array([i for i in range(p) if i not in dyn.positions], dtype=int)
+        L = np.ascontiguousarray(np.log(dyn.x).T)[None]  # (1, k, n): passes over rows
+        W = np.empty((K, kd, n))
+        _power_w_into(L, A, dyn.boxcox_form, W)
+        XT = np.ascontiguousarray(XS.T)  # (p_f, n)
+        G = np.empty((K, p, p))
+        c = np.empty((K, p))
+        G[:, fpos[:, None], fpos[None, :]] = self.bank.train_grams(S, r)
+        FW = (XT @ W.reshape(K * kd, n).T).reshape(-1, K, kd)  # all rows, every fold
+        same = all(zk is zs[0] for zk in zs)
+        Xz = XT @ zs[0]
+        for k, te in enumerate(test):
+            zk = zs[k]
+            Xte, Wte, zte = XT[:, te], W[k][:, te], zk[te]
+            fw = FW[:, k, :] - Xte @ Wte.T
+            G[k, fpos[:, None], dpos[None, :]] = fw
+            G[k, dpos[:, None], fpos[None, :]] = fw.T
+            G[k, dpos[:, None], dpos[None, :]] = W[k] @ W[k].T - Wte @ Wte.T
+            c[k, fpos] = (Xz if same else XT @ zk) - Xte @ zte
+            c[k, dpos] = W[k] @ zk - Wte @ zte
+        Bk, ok = solve_batch(G, c)
+        B[:] = Bk
+        refits = 0
+        train = self.bank.index.train[r]
+        for f in np.flatnonzero(~ok).tolist():
+            rows = train[f]
+            X = np.empty((rows.size, p))
+            X[:, fpos] = XS[rows]
+            X[:, dpos] = W[f][:, rows].T
+            B[f] = _exact_refit(X, zs[f][rows], names, f)
+            refits += 1
+        ETA[:] = XS @ B[:, fpos].T
+        for k in range(K):
+            ETA[:, k] += W[k].T @ B[k, dpos]
         return refits

@@ -55,7 +55,7 @@ from service.core.errors import CandidateFailure
 from service.core.fitting import solve_batch
 
 
-def per_fold_loop(self, S, XS, dyn, r, zs, per_fold, t, names, B, designs, powers, fits=None):
+def per_fold_loop(self, S, XS, dyn, r, zs, per_fold, t, names, B, ETA, powers, fits=None):
     """The per-fold loop the batched path replaced: one estimate_powers and one solve per fold."""
     train = self.bank.index.train[r]
     p = B.shape[1]
@@ -81,7 +81,6 @@ def per_fold_loop(self, S, XS, dyn, r, zs, per_fold, t, names, B, designs, power
         X = np.empty((XS.shape[0], p))
         X[:, fixed_pos] = XS
         X[:, dyn.positions] = W
-        designs[k] = X
         Xtr = X[rows]
         b, ok = solve_batch((Xtr.T @ Xtr)[None], (Xtr.T @ ztr)[None])
         if ok[0]:
@@ -89,6 +88,7 @@ def per_fold_loop(self, S, XS, dyn, r, zs, per_fold, t, names, B, designs, power
         else:
             B[k] = fastcv._exact_refit(Xtr, ztr, names, k)
             refits += 1
+        ETA[:, k] = X @ B[k]
     return refits
 
 

@@ -479,3 +479,57 @@ def test_batched_estimated_candidates_in_small_stacks_and_their_failures_equal_a
         assert h.value == pytest.approx(one.value, rel=1e-10)
         np.testing.assert_allclose(h.fold_values, one.fold_values, rtol=1e-10)
         assert h.fold_lambdas == one.fold_lambdas
+
+
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+@pytest.mark.parametrize("bc", [True, False])
+def test_large_table_designs_one_fold_at_a_time_match_the_all_folds_path(monkeypatch, kind, bc):
+    """Above BY_FOLD_DESIGN_CELLS a fold's design at its own powers is built, summed over its
+    training rows and applied to every row one fold at a time; the solutions, fitted values
+    and refits are those of the all-folds masked products (same fold powers given)."""
+    from service.core import boxtidwell as bt
+    from service.core import fastcv
+    from service.core.cvresult import Dynamic
+
+    rng = np.random.default_rng(zlib.crc32(f"lean/{kind}/{bc}".encode()))
+    n = 400
+    X = _designs(kind, rng, n)
+    x = rng.uniform(0.5, 20, (n, 2))
+    z = 1.0 + 0.3 * np.sqrt(x[:, 0]) + 0.2 * np.log(x[:, 1]) + rng.normal(0, 0.1, n)
+    plan = make_plan(n, 5, 1, 4)
+    bank = ColumnBank.of_matrix(X, FoldIndex.of(plan, n))
+    train = bank.index.train[0]
+    dyn = Dynamic([4, 5], x, np.array([0.5, 0.0]), boxcox_form=bc)
+    fits = [
+        bt.PowerFit(
+            np.array([0.5, 0.0]) + rng.normal(0, 0.05, 2), None, True, 3, "box_tidwell", 0.0
+        )
+        for _ in train
+    ]
+    S = np.arange(4)
+    sc = Scorer(bank, np.exp(z), plan, False)
+
+    def solve(cells):
+        monkeypatch.setattr(fastcv, "BY_FOLD_DESIGN_CELLS", cells)
+        B, ETA, powers = np.empty((5, 6)), np.empty((n, 5)), []
+        refits = sc._solve_dynamic(
+            S, X, dyn, 0, [z] * 5, False, tr.Transform("log"), None, B, ETA, powers, fits
+        )
+        return B, ETA, refits, powers
+
+    lean = solve(0)
+    masked = solve(10**9)
+    # source: the all-folds path (masked products over every row), the same arithmetic up
+    # to the order of the sums
+    assert lean[2] == masked[2]
+    assert (lean[2] > 0) == (kind == "collinear")  # the exact refit taken where it must
+    assert lean[3] == masked[3]
+    np.testing.assert_allclose(lean[1], masked[1], rtol=1e-9, atol=1e-9 * np.abs(z).max())
+    for k, rows in enumerate(train):
+        W, _ = bt.power_columns(np.log(x), fits[k].powers, bc)
+        Xk = np.column_stack([X, W])[rows]
+        s = np.sqrt(np.sum(Xk**2, axis=0))
+        # source: numpy.linalg.lstsq (SVD) on the fold's column-scaled training rows
+        ref = np.linalg.lstsq(Xk / s, z[rows], rcond=None)[0] / s
+        fit_lean = Xk @ lean[0][k]
+        np.testing.assert_allclose(fit_lean, Xk @ ref, rtol=1e-7, atol=1e-7 * np.abs(z).max())
