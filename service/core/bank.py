@@ -92,8 +92,9 @@ class ColumnBank:
             return
         m = len(self._cols)
         X = np.empty((self.n, m), order="F")
-        for j, c in enumerate(self._cols):
-            X[:, j] = c
+        for j in range(m):
+            X[:, j] = self._cols[j]
+            self._cols[j] = X[:, j]  # the column's own array goes now: one copy at a time
         self._cols = []
         self.X = X
         R, K = self.index.repeats, self.index.folds

@@ -88,6 +88,10 @@ BY_FOLD_DESIGN_CELLS = POWER_BATCH_CELLS
 STACKED_LAMBDAS_MIN = 6
 #: at most this many floats of stacked fold designs at once in Scorer.score_many (64 MB)
 _STACK_FLOATS = 8_000_000
+#: at most this many floats of candidates' held-out predictions and training residuals
+#: at once in Scorer.score_many (64 MB; every candidate at 300 or 2,000 rows, 13 at 100,000,
+#: one at a time at a million)
+_HELD_FLOATS = 8_000_000
 
 
 def _exact_refit(
@@ -295,7 +299,25 @@ class Scorer:
         fold of every candidate in one call (:func:`retransform.smeared_means`, power forms
         of all folds together) and the errors.  A candidate with a failure or a non-finite
         back-transform anywhere is scored again alone, so its result or failure reason is
-        :meth:`score`'s own."""
+        :meth:`score`'s own.  On a large table the candidates go in parts of at most
+        ``_HELD_FLOATS`` floats of held-out predictions and training residuals (each
+        candidate's are R (K + 1) n floats, 48 MB at a million rows): every fold's smeared
+        mean is its own sum whatever else is in the call, so the numbers are the same up
+        to the rounding of reductions over arrays of another width (a few 1e-16 relative)."""
+        per = self.plan.repeats * (self.plan.folds + 1) * self.y.size
+        step = max(1, _HELD_FLOATS // max(per, 1))
+        out: list[CVResult | CandidateFailure] = []
+        for a in range(0, len(items), step):
+            out += self._score_many_part(items[a : a + step])
+        return out
+
+    def _score_many_part(
+        self,
+        items: Sequence[
+            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
+        ],
+    ) -> list[CVResult | CandidateFailure]:
+        """:meth:`score_many` for one part of its candidates."""
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             ready = self._estimated_many(items)
             pends: list[_Pending | None] = []

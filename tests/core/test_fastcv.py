@@ -387,6 +387,45 @@ def test_many_candidates_scored_together_equal_each_scored_alone(kind):
         assert g.fold_lambdas == alone.fold_lambdas and g.fold_powers == alone.fold_powers
 
 
+@pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
+@pytest.mark.parametrize("cap", [1, 3000])
+def test_many_candidates_in_parts_give_the_numbers_of_one_call(monkeypatch, kind, cap):
+    """A large table's candidates go through Scorer.score_many in parts (one candidate at
+    a time, or a few); every number is the one call's up to rounding, every failure its
+    own."""
+    from service.core import fastcv
+
+    rng = np.random.default_rng(zlib.crc32(f"parts/{kind}".encode()))
+    n = 203
+    X = _designs(kind, rng, n)
+    x = rng.uniform(1, 9, (n, 2))
+    y = np.exp(0.5 + 0.3 * np.sqrt(x[:, 0]) + 0.2 * np.log(x[:, 1]) + rng.normal(0, 0.2, n))
+    plan = make_plan(n, 5, 2, 4)
+    scorer = Scorer(ColumnBank.of_matrix(X, FoldIndex.of(plan, n)), y, plan, False)
+    log, recip = tr.Transform("log", shift=0.0), tr.Transform("reciprocal")
+    kinds = {
+        "fixed": [(recip, [0, 1]), (log, [0, 2]), (tr.Transform("sqrt"), [0, 3])],
+        "lambda": [(tr.Transform("box_cox"), [0, 1]), (tr.Transform("yeo_johnson"), [0, 2])],
+        "powers": [(recip, [0, 3], 2), (log, [0, 2], 1)],
+    }
+    items = _many_items(scorer, X, x, kinds)
+    whole = scorer.score_many(items)
+    per = plan.repeats * (plan.folds + 1) * n
+    monkeypatch.setattr(fastcv, "_HELD_FLOATS", cap)
+    assert max(1, cap // per) < len(items)  # really in parts
+    parts = scorer.score_many(items)
+    # source: the same candidates in one call of Scorer.score_many
+    for a, b in zip(whole, parts, strict=True):
+        assert type(a) is type(b)
+        if isinstance(a, Exception):
+            assert str(a) == str(b)
+            continue
+        # the smeared means' sums are reduced over arrays of another width: rounding alone
+        np.testing.assert_allclose(a.fold_values, b.fold_values, rtol=1e-13)
+        assert a.value == pytest.approx(b.value, rel=1e-13)
+        assert a.fold_powers == b.fold_powers and a.fold_lambdas == b.fold_lambdas
+
+
 def test_many_candidates_with_undefined_back_transforms_fail_with_the_one_candidate_reason():
     from service.core.errors import CandidateFailure
 
