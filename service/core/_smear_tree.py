@@ -49,7 +49,31 @@ def _rho_ok(p: float, terms: int = J, rtol: float = TREE_RTOL) -> float:
     return float(rho_ok_many(np.array([float(p)]), terms, rtol)[0])
 
 
+#: rho_ok of (p, terms, rtol) found so far in this process (a pure function of them): the
+#: binned paths ask for the same few exponents for every group and fold (square 0.5,
+#: reciprocal -1, ladder powers); at most _KEPT_MAX values, then it starts again
+_KEPT: dict[tuple[float, int, float], float] = {}
+_KEPT_MAX = 4096
+
+
 def rho_ok_many(p: np.ndarray, terms: int = J, rtol: float = TREE_RTOL) -> FloatArray:
+    """:func:`_rho_ok` of every exponent in ``p`` at once: :func:`rho_ok_closed_form`, each
+    distinct exponent found once per process (kept in ``_KEPT``)."""
+    p = np.asarray(p, dtype=float)
+    u, inv = np.unique(p, return_inverse=True)
+    vals = np.array([_KEPT.get((x, terms, rtol), math.nan) for x in u.tolist()])
+    miss = np.isnan(vals)
+    if np.any(miss):
+        vals[miss] = rho_ok_closed_form(u[miss], terms, rtol)
+        if len(_KEPT) + int(miss.sum()) > _KEPT_MAX:
+            _KEPT.clear()
+        for x, v in zip(u[miss].tolist(), vals[miss].tolist(), strict=True):
+            _KEPT[(x, terms, rtol)] = v
+    out: FloatArray = vals[inv].reshape(p.shape)
+    return out
+
+
+def rho_ok_closed_form(p: np.ndarray, terms: int = J, rtol: float = TREE_RTOL) -> FloatArray:
     """:func:`_rho_ok` of every exponent in ``p`` at once, in closed form.
 
     T_J(rho) = sum_{t >= J} |C(p, t)| rho^t.  For t >= J the ratio of consecutive
