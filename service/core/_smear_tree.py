@@ -130,6 +130,19 @@ def _powers(x: np.ndarray, k: int) -> np.ndarray:
     return out
 
 
+def _moment_sums(u: np.ndarray, k: int) -> np.ndarray:
+    """sum_i u[g, i]^t for t < k, one row per g: the powers one at a time (each a pass over
+    u), not all k of them held at once."""
+    out = np.empty((u.shape[0], k))
+    out[:, 0] = u.shape[1]
+    acc = u.copy()
+    for t in range(1, k):
+        out[:, t] = acc.sum(axis=1)
+        if t + 1 < k:
+            acc *= u
+    return out
+
+
 def power_form(t: Transform) -> tuple[float, float, float, float, bool] | None:
     """(beta, gamma, delta, p, outside_zero) when g^-1 is a power of an affine map, else None."""
     n = t.name
@@ -220,7 +233,7 @@ def smear_power_many(
         done = (base > 0) & (rho <= ok[:, None])
         gs = np.flatnonzero(done.any(axis=1))
         if gs.size:
-            M = _powers((e[gs] - c[gs, None]) / rs[gs, None], J).sum(axis=1)  # (Gd, J)
+            M = _moment_sums((e[gs] - c[gs, None]) / rs[gs, None], J)  # (Gd, J)
             cp = _binom_rows(p[gs], J) * np.sign(delta[gs])[:, None] ** np.arange(J)
             coef = cp * M
             where = np.full(G, -1, dtype=np.intp)

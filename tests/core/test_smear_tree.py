@@ -216,6 +216,16 @@ def test_kept_rho_limits_are_the_closed_form_of_each_exponent(monkeypatch):
             assert len(st._KEPT) <= 40
 
 
+def test_root_moments_are_the_power_sums_written_out():
+    rng = np.random.default_rng(22)
+    u = rng.uniform(-1, 1, (5, 301))
+    got = st._moment_sums(u, st.J)
+    # source: sum_i u_i^t written out with numpy's power, t < J (|u| <= 1: sums of size <= n)
+    want = np.stack([np.sum(u**t, axis=1) for t in range(st.J)], axis=1)
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-12 * u.shape[1])
+    assert np.array_equal(got[:, 0], np.full(5, 301.0))
+
+
 def test_bins_cover_every_residual_once_and_levels_nest():
     for n in (1, 7, 32, 33, 1600, 2049, 70_000):
         sizes = st.bin_sizes(n)
