@@ -522,7 +522,10 @@ def test_batched_estimated_candidates_in_small_stacks_and_their_failures_equal_a
 
 @pytest.mark.parametrize("kind", ["random", "collinear", "badly_scaled"])
 @pytest.mark.parametrize("bc", [True, False])
-def test_large_table_designs_one_fold_at_a_time_match_the_all_folds_path(monkeypatch, kind, bc):
+@pytest.mark.parametrize("per_fold", [False, True])
+def test_large_table_designs_one_fold_at_a_time_match_the_all_folds_path(
+    monkeypatch, kind, bc, per_fold
+):
     """Above BY_FOLD_DESIGN_CELLS a fold's design at its own powers is built, summed over its
     training rows and applied to every row one fold at a time; the solutions, fitted values
     and refits are those of the all-folds masked products (same fold powers given)."""
@@ -547,12 +550,14 @@ def test_large_table_designs_one_fold_at_a_time_match_the_all_folds_path(monkeyp
     ]
     S = np.arange(4)
     sc = Scorer(bank, np.exp(z), plan, False)
+    # a response per fold (a log's shift chosen in every fold) or the same one
+    zs = [z + 0.01 * k for k in range(5)] if per_fold else [z] * 5
 
     def solve(cells):
         monkeypatch.setattr(fastcv, "BY_FOLD_DESIGN_CELLS", cells)
         B, ETA, powers = np.empty((5, 6)), np.empty((n, 5)), []
         refits = sc._solve_dynamic(
-            S, X, dyn, 0, [z] * 5, False, tr.Transform("log"), None, B, ETA, powers, fits
+            S, X, dyn, 0, zs, per_fold, tr.Transform("log"), None, B, ETA, powers, fits
         )
         return B, ETA, refits, powers
 
@@ -569,6 +574,6 @@ def test_large_table_designs_one_fold_at_a_time_match_the_all_folds_path(monkeyp
         Xk = np.column_stack([X, W])[rows]
         s = np.sqrt(np.sum(Xk**2, axis=0))
         # source: numpy.linalg.lstsq (SVD) on the fold's column-scaled training rows
-        ref = np.linalg.lstsq(Xk / s, z[rows], rcond=None)[0] / s
+        ref = np.linalg.lstsq(Xk / s, zs[k][rows], rcond=None)[0] / s
         fit_lean = Xk @ lean[0][k]
         np.testing.assert_allclose(fit_lean, Xk @ ref, rtol=1e-7, atol=1e-7 * np.abs(z).max())
