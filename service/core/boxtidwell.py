@@ -15,7 +15,11 @@ powers stay in [-3, 3], and the iteration stops when every step is below 1e-6 (a
 when halving the step below 1e-6 gives no decrease: the point is then stationary to
 that accuracy), or when two steps in a row lower the RSS by at most 1e-12 of itself (the
 relative-reduction test of nonlinear least squares, e.g. MINPACK's ftol, here far
-stricter; it ends the drift of a power the data barely determine).
+stricter; it ends the drift of a power the data barely determine).  From the second
+step on, each iteration first tries the step extrapolated from the last two iterates
+(Anderson mixing of depth one, for one power the secant step on the Gauss-Newton step;
+:func:`_extrapolated`), where the plain steps contract only linearly, and takes the
+damped Gauss-Newton step when that does not lower the RSS.
 
 Standard error: at the estimate the coefficient on dw/da estimates b (a - a_hat),
 so se(a_hat) = se(gamma) / |b|, the usual nonlinear least-squares standard
@@ -62,6 +66,7 @@ POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
 FTOL = 1e-12  # relative RSS decrease below which two steps in a row count as converged
 MAX_ITER = 30
+EXTRAPOLATION_MAX = 10.0  # an extrapolated step is at most this many Gauss-Newton steps long
 PROFILE_MAX_POWERS = 2  # the profile fallback searches at most this many powers at once
 CHUNK_ROWS = 32_768  # rows per block of a trial's passes (cache-sized)
 STACK_CELLS = 400_000  # folds x rows stepped in one stack (several candidates' folds)
@@ -364,6 +369,7 @@ def estimate_powers(
     converged = False
     it = 0
     flat = 0  # consecutive steps that lowered the RSS by at most FTOL (relative)
+    prev: tuple[np.ndarray, np.ndarray] | None = None  # the last iterate and its step
     if math.isfinite(rss):
         for it in range(1, MAX_ITER + 1):  # noqa: B007  (the count is reported after the loop)
             assert coef is not None and cache is not None  # they come with a finite RSS
@@ -377,9 +383,15 @@ def estimate_powers(
             step = gamma / b
             if not np.all(np.isfinite(step)):
                 break
+            ext = np.full(k, np.nan) if prev is None else _extrapolated(a, step, *prev)
+            prev = (a, step)
             step = np.clip(step, -1.0, 1.0)  # at most one rung of the ladder per step
             accepted = False
-            while float(np.max(np.abs(step))) >= TOL:
+            if float(np.max(np.abs(step))) >= TOL and np.all(np.isfinite(ext)):
+                a_new = np.clip(a + np.clip(ext, -1.0, 1.0), *POWER_BOUNDS)
+                rss_new, coef_new, cache_new = prob.trial(a_new)
+                accepted = rss_new <= rss * (1.0 + 1e-12)
+            while not accepted and float(np.max(np.abs(step))) >= TOL:
                 a_new = np.clip(a + step, *POWER_BOUNDS)
                 rss_new, coef_new, cache_new = prob.trial(a_new)
                 if rss_new <= rss * (1.0 + 1e-12):
@@ -400,6 +412,37 @@ def estimate_powers(
     a, rss, method = _fallback(prob, a, rss, converged, it, start is not None)
     se = _std_errors(z, Xf, logx, a, boxcox_form, n, p) if with_se else None
     return PowerFit(a, se, converged or method == "profile", it, method, rss)
+
+
+def _extrapolated(
+    a: np.ndarray, s: np.ndarray, a_prev: np.ndarray, s_prev: np.ndarray
+) -> np.ndarray:
+    """The step to the point where the Gauss-Newton step would vanish, extrapolated from
+    two iterates: powers ``a`` with step ``s`` and the previous ``a_prev``, ``s_prev``
+    (each (k,), or (F, k) one row per fold); NaN (all of a row) where it is not taken.
+
+    Near the optimum the Gauss-Newton map a -> a + s(a) contracts linearly, at a rate
+    that grows with the residuals' size times the curvature of the power columns (slow,
+    often alternating, convergence for a power the data determine poorly).  With
+    da = a - a_prev and ds = s - s_prev the step is s - gamma (da + ds), gamma = ds's /
+    ds'ds: Anderson mixing of depth one, which for one power is the secant step
+    -s da / ds on s(a) = 0 (superlinear, Walker & Ni 2011).  It is taken only when it is
+    finite, points the way of s (s'step > 0) and is at most ``EXTRAPOLATION_MAX`` times
+    as long as s; the iteration tries it first and takes the damped Gauss-Newton step as
+    before when it does not lower the RSS, so every accepted step still lowers the RSS
+    and the stopping rules are those of the plain iteration."""
+    da, ds = a - a_prev, s - s_prev
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        gamma = np.sum(ds * s, axis=-1, keepdims=True) / np.sum(ds * ds, axis=-1, keepdims=True)
+        step = s - gamma * (da + ds)
+        size = np.max(np.abs(step), axis=-1, keepdims=True)
+        ok = (
+            np.all(np.isfinite(step), axis=-1, keepdims=True)
+            & (np.sum(step * s, axis=-1, keepdims=True) > 0)
+            & (size <= EXTRAPOLATION_MAX * np.max(np.abs(s), axis=-1, keepdims=True))
+        )
+    out: np.ndarray = np.where(ok, step, np.nan)
+    return out
 
 
 def _fallback(
@@ -1109,6 +1152,8 @@ def _damped_steps(
     left = qr.copy() if full is None else np.zeros(F, dtype=bool)
     its = np.zeros(F, dtype=int)
     flat = np.zeros(F, dtype=int)  # consecutive steps that lowered the RSS by <= FTOL
+    a_prev = np.full((F, k), np.nan)  # every fold's last iterate and its step
+    s_prev = np.full((F, k), np.nan)
     active = np.isfinite(rss) & ~left
     for it in range(1, MAX_ITER + 1):
         idx = np.flatnonzero(active)
@@ -1128,22 +1173,27 @@ def _damped_steps(
         )
         active[idx[bad]] = False  # no step: not converged, the profile search takes over
         srch = idx[~bad]
+        ext = _extrapolated(a[srch], step[~bad], a_prev[srch], s_prev[srch])
+        a_prev[srch], s_prev[srch] = a[srch], step[~bad]
         st = np.clip(step[~bad], -1.0, 1.0)  # at most one rung of the ladder per step
+        first = np.isfinite(ext[:, 0])  # the extrapolated step is tried first
         while srch.size:
             big = np.max(np.abs(st), axis=1) >= TOL
             # no decrease within TOL of a: stationary to that accuracy (see estimate_powers)
             converged[srch[~big]] = True
             active[srch[~big]] = False
-            srch, st = srch[big], st[big]
+            srch, st, first, ext = srch[big], st[big], first[big], ext[big]
             if srch.size == 0:
                 break
-            a_new = np.clip(a[srch] + st, *POWER_BOUNDS)
+            move = np.where(first[:, None], np.clip(ext, -1.0, 1.0), st)
+            a_new = np.clip(a[srch] + move, *POWER_BOUNDS)
             rss_new, coef_new, g_new, qr_new = trial(srch, a_new)
             if full is None and np.any(qr_new):  # these folds leave at once
                 left[srch[qr_new]] = True
                 active[srch[qr_new]] = False
                 keep = ~qr_new
                 srch, st, a_new = srch[keep], st[keep], a_new[keep]
+                first, ext = first[keep], ext[keep]
                 rss_new, coef_new, g_new = rss_new[keep], coef_new[keep], g_new[keep]
                 qr_new = qr_new[keep]
             acc = rss_new <= rss[srch] * (1.0 + 1e-12)
@@ -1156,7 +1206,10 @@ def _damped_steps(
                 done = (moved < TOL) | (flat[i] >= 2)
                 converged[i[done]] = True
                 active[i[done]] = False
-            srch, st = srch[~acc], st[~acc] / 2.0
+            # a rejected extrapolation is followed by the whole Gauss-Newton step, a
+            # rejected Gauss-Newton step by its half
+            srch, st = srch[~acc], np.where(first[~acc, None], st[~acc], st[~acc] / 2.0)
+            first, ext = np.zeros(srch.size, dtype=bool), ext[~acc]
     return a, rss, converged, its, left
 
 
