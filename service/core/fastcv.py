@@ -36,11 +36,11 @@ from .bank import ColumnBank
 from .boxtidwell import (
     FoldPowerProblem,
     PowerFit,
-    _power_columns_stacked,
     estimate_fold_powers,
     estimate_fold_powers_by_series,
     estimate_many_fold_powers,
     estimate_powers,
+    power_w_stacked,
 )
 from .cvresult import (
     METRICS,
@@ -445,7 +445,7 @@ class Scorer:
                 Z[c] = z
                 A = np.array([fit.powers for fits in found.powers for fit in fits], dtype=float)
                 powers[c] = A.tolist()
-                W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+                W = power_w_stacked(np.log(dyn.x), A, dyn.boxcox_form)
                 fixed_pos = [i for i in range(p) if i not in dyn.positions]
                 X = np.empty((F, n, p))
                 X[:, :, fixed_pos] = XS
@@ -1031,7 +1031,7 @@ class Scorer:
         # power_columns fold by fold), then the training sums as masked products
         A = np.array([fit.powers for fit in fits], dtype=float)
         powers.extend(A.tolist())
-        W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+        W = power_w_stacked(np.log(dyn.x), A, dyn.boxcox_form)
         n = XS.shape[0]
         X = np.empty((K, n, p))
         X[:, :, fixed_pos] = XS

@@ -494,6 +494,10 @@ def test_stacked_power_columns_equal_the_closed_form(bc):
         # source: power_columns, one problem's columns: the same arithmetic element for element
         np.testing.assert_array_equal(WD[f, :k], W1.T)
         np.testing.assert_array_equal(WD[f, k:], D1.T)
+        # source: as above, the power columns alone of one table at every power vector
+        np.testing.assert_array_equal(
+            bt.power_w_stacked(L[0].T, A, bc)[f], bt.power_columns(L[0].T, A[f], bc)[0]
+        )
         for j in range(k):
             a, xj, Lj = A[f, j], x[f, j], L[f, j]
             if bc and abs(a) < 1e-12:
@@ -507,6 +511,10 @@ def test_stacked_power_columns_equal_the_closed_form(bc):
             else:
                 w, dw = xj**a, xj**a * Lj  # source: x^a and its derivative x^a log x
             np.testing.assert_allclose(WD[f, j], w, rtol=1e-12, atol=1e-9)
+            if bc and abs(a) >= 1e-12:
+                # source: numpy.expm1 (x^a - 1 without cancellation); exp(u) - 1 above
+                # EXPM1_BELOW is within a few units in the last place of it
+                np.testing.assert_allclose(WD[f, j], np.expm1(a * Lj) / a, rtol=1e-14, atol=0)
             np.testing.assert_allclose(WD[f, k + j], dw, rtol=1e-9, atol=1e-6)
 
 
