@@ -1034,13 +1034,18 @@ def _uniform_combos(preds: list[list[tr.Transform]]) -> list[tuple[tr.Transform,
 #: candidates scored in one batch at most, and rows x splits x candidates per batch
 MAX_BATCH = 64
 BATCH_WORK = 1_000_000
+#: the same for the exhaustive search's fixed list: its candidates on one response scale are
+#: scored together (batchcv), so a larger batch spares calls at about the same time between
+#: two looks at the clock (3,000 rows x 5 folds: 266 candidates, about 0.15 s)
+GRID_BATCH = 512
+GRID_WORK = 4_000_000
 
 
-def batch_size(n: int, splits: int) -> int:
+def batch_size(n: int, splits: int, most: int = MAX_BATCH, work: int = BATCH_WORK) -> int:
     """Candidates per batched scoring: small enough that the deadline is still asked often
-    (about BATCH_WORK rows x splits x candidates between two looks at the clock; one at a
+    (about ``work`` rows x splits x candidates between two looks at the clock; one at a
     time for large tables or many folds)."""
-    return max(1, min(MAX_BATCH, BATCH_WORK // max(n * splits, 1)))
+    return max(1, min(most, work // max(n * splits, 1)))
 
 
 def _exhaustive(
@@ -1068,7 +1073,7 @@ def _exhaustive(
         if len(cands) >= max(opts.max_candidates * 4, 20000):
             break
     cands = _simplicity_sorted(cands)[: opts.max_candidates]
-    step = batch_size(prep.n, ev.scorer.plan.n_splits)
+    step = batch_size(prep.n, ev.scorer.plan.n_splits, GRID_BATCH, GRID_WORK)
     for start in range(0, len(cands), step):
         if not budget.in_time():
             return False
