@@ -64,8 +64,15 @@ def log_smear_factor(e: np.ndarray) -> np.ndarray:
     """mean(exp(e)) along the first axis, without overflow for large residuals: the factor
     of exp(eta) in the log scale's smeared mean (one per column of a 2-D ``e``)."""
     top = np.max(e, axis=0)
+    if np.all(top < _EXP_SAFE):  # no term overflows, nor their sum: no shift needed
+        safe: np.ndarray = np.mean(np.exp(e), axis=0)
+        return safe
     out: np.ndarray = np.mean(np.exp(e - top), axis=0) * np.exp(top)
     return out
+
+
+#: exp(e) of residuals below this is at most 1e304, and a mean of such terms stays finite
+_EXP_SAFE = 700.0
 
 
 def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray:

@@ -28,7 +28,7 @@ from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
 from ..core.conditions import CONDITION_NAMES, ConditionReport
 from ..core.cvplus import NOT_KEPT
-from ..core.cvresult import CVResult, Dynamic, OutOfFold, std_error_of
+from ..core.cvresult import CVResult, Dynamic, OutOfFold, std_errors_of
 from ..core.data import DataSummary, Prepared
 from ..core.errors import (
     BudgetError,
@@ -900,12 +900,12 @@ def places(scored: list[Scored], folds: int | None = None, band: Band | None = N
     best = min(scored, key=lambda s: (s.cv.value, s.spec.simplicity()))
     k = folds or max(len(best.cv.fold_values), 1)
 
-    def paired(s: Scored) -> float:
-        d = s.cv.fold_values - best.cv.fold_values
-        if s is best or d.size < 2:
-            return 0.0 if s is best else band.std_error
-        return std_error_of(d, k)
-
+    # every candidate's fold-by-fold differences from the lowest at once (std_error_of each)
+    diffs = np.array([s.cv.fold_values for s in scored], dtype=float) - best.cv.fold_values
+    if diffs.shape[1] < 2:
+        paired = [band.std_error] * len(scored)
+    else:
+        paired = std_errors_of(diffs, k).tolist()
     cvs = [s.cv.value for s in scored]
     order = band_order(cvs, [s.spec.simplicity() for s in scored], band.threshold)
     return [
@@ -913,7 +913,7 @@ def places(scored: list[Scored], folds: int | None = None, band: Band | None = N
             scored[i],
             scored[i].cv.value <= band.threshold,
             scored[i].cv.value - band.lowest,
-            paired(scored[i]),
+            0.0 if scored[i] is best else paired[i],
         )
         for i in order
     ]

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from scipy.special import logsumexp
 from service.core import retransform
 from service.core import transforms as tr
 
@@ -213,3 +214,16 @@ def test_square_root_smearing_with_most_terms_cut_off_equals_the_double_sum():
     # source: Duan (1983) double sum with g^-1(z) = max(z, 0)^2, written out
     want = np.mean(np.maximum(eta[:, None, :] + e[None, :, :], 0.0) ** 2, axis=1)
     np.testing.assert_allclose(got, want, rtol=1e-9, atol=1e-15)
+
+
+def test_log_smear_factor_of_huge_residuals_is_finite_and_equals_the_log_sum_exp():
+    rng = np.random.default_rng(23)
+    e = rng.normal(0, 1.0, (400, 3))
+    e[5, 1] = 705.0  # exp(705) overflows a float: that column needs the shift
+    got = retransform.log_smear_factor(e)
+    # source: scipy.special.logsumexp, log mean exp(e) = logsumexp(e) - log(n)
+    want = np.exp(logsumexp(e[:, [0, 2]], axis=0) - np.log(400))
+    np.testing.assert_allclose(got[[0, 2]], want, rtol=1e-13)
+    assert np.log(got[1]) == pytest.approx(logsumexp(e[:, 1]) - np.log(400), rel=1e-14)
+    small = retransform.log_smear_factor(e[:, [0, 2]])  # no shift needed: the plain mean
+    np.testing.assert_allclose(small, want, rtol=1e-13)
