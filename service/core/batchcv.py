@@ -167,21 +167,24 @@ def _batch_unguarded(
         med_failed = np.zeros(C, dtype=bool)
         for k in range(K):
             te, trn = test[k], train[k]
+            Bk = B[:, k, :]
+            W = None
             if XS is None:  # every candidate's solution as a column over the bank: one product
                 W = np.zeros((bank.m, C))
-                W[S, cand[:, None]] = B[:, k, :]
-                eta = X[te] @ W  # (held-out rows, C)
-                fit_tr = X[trn] @ W
-            else:
-                eta = np.einsum("ncp,cp->nc", XS[te], B[:, k, :])
-                fit_tr = np.einsum("ncp,cp->nc", XS[trn], B[:, k, :])
-            e = z[trn, None] - fit_tr  # training residuals (n_tr, C)
+                W[S, cand[:, None]] = Bk
+            eta = _fitted(X, W, XS, Bk, te)  # (held-out rows, C)
             med = t0.inverse(eta)
-            bad_med[k] = np.count_nonzero(~np.isfinite(med), axis=0)
+            bad_med[k] = _not_finite(med)
             med_failed |= bad_med[k] > 0
-            if kind == "identity":
-                mean = eta + e.mean(axis=0)
-            elif kind == "log":
+            if kind == "identity":  # mean(e) = (sum z - sum of fitted values) / n_tr
+                fitted_sum = _fitted(X, W, XS, Bk, trn, summed=True)
+                mean = eta + (z[trn].sum() - fitted_sum) / trn.size
+                bad_mean[k] = _not_finite(mean)
+                _add_errors(means, k, y[te], med, mean)
+                continue
+            e = _fitted(X, W, XS, Bk, trn)  # training residuals (n_tr, C)
+            np.subtract(z[trn, None], e, out=e)
+            if kind == "log":
                 mean = np.exp(eta) * retransform.log_smear_factor(e) - shift
             elif kind == "sqrt":  # mean_i max(eta + e_i, 0)^2, all candidates at once
                 mean = retransform.smear_sqrt(eta, e)
@@ -192,13 +195,8 @@ def _batch_unguarded(
                     mean[:, js] = retransform.smeared_means(
                         [t0] * js.size, eta[:, js].T, e[:, js].T
                     ).T
-            bad_mean[k] = np.count_nonzero(~np.isfinite(mean), axis=0)
-            yt = y[te, None]
-            d = yt - mean
-            means[0, k] = np.einsum("ij,ij->j", d, d) / te.size
-            dm = np.abs(yt - med)
-            means[1, k] = dm.sum(axis=0) / te.size
-            means[2, k] = (dm / np.abs(yt)).sum(axis=0) / te.size
+            bad_mean[k] = _not_finite(mean)
+            _add_errors(means, k, y[te], med, mean)
         _fail_undefined(t0, bad_med, bad_mean, settled, gone, failed)
         pc = means[2] if scorer.want_mape else None
         fold_vals[:, r * K : (r + 1) * K] = error_of(
@@ -224,6 +222,48 @@ def _batch_unguarded(
             continue
         out.append(CVResult(plan.metric, value, std_errors[j], fold_vals[j].copy(), summary))
     return out
+
+
+def _fitted(
+    X: np.ndarray,
+    W: np.ndarray | None,
+    XS: np.ndarray | None,
+    Bk: np.ndarray,
+    rows: np.ndarray,
+    summed: bool = False,
+) -> np.ndarray:
+    """Every candidate's fitted values on ``rows`` (rows, C), or their sums over the rows
+    (C,): from the solutions scattered over the bank's columns (``W``) or, for a wide bank,
+    from the candidates' own columns (``XS`` (n, C, p), solutions ``Bk`` (C, p))."""
+    out: np.ndarray
+    if W is not None:
+        out = X[rows].sum(axis=0) @ W if summed else X[rows] @ W
+    else:
+        assert XS is not None
+        out = np.einsum("ncp,cp->c" if summed else "ncp,cp->nc", XS[rows], Bk)
+    return out
+
+
+def _not_finite(v: np.ndarray) -> np.ndarray:
+    """Non-finite entries of every column of ``v`` (rows, C); a column sum is finite
+    exactly when the column is (short of overflow, which the count settles)."""
+    out = np.zeros(v.shape[1], dtype=np.intp)
+    bad = np.flatnonzero(~np.isfinite(v.sum(axis=0)))
+    if bad.size:
+        out[bad] = np.count_nonzero(~np.isfinite(v[:, bad]), axis=0)
+    return out
+
+
+def _add_errors(
+    means: np.ndarray, k: int, yt: np.ndarray, med: np.ndarray, mean: np.ndarray
+) -> None:
+    """Fold k's mean squared error of the smeared means and mean absolute and absolute
+    relative errors of the medians, every candidate (column) at once, into means[:, k]."""
+    d = yt[:, None] - mean
+    means[0, k] = np.einsum("ij,ij->j", d, d) / yt.size
+    dm = np.abs(yt[:, None] - med)
+    means[1, k] = dm.sum(axis=0) / yt.size
+    means[2, k] = (1.0 / np.abs(yt)) @ dm / yt.size
 
 
 def _fail_undefined(

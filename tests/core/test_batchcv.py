@@ -198,7 +198,7 @@ def test_undefined_back_transforms_fail_in_the_batch_with_the_one_candidate_reas
         assert reasons >= 5
 
 
-@pytest.mark.parametrize("family", ["log", "sqrt", "reciprocal"])
+@pytest.mark.parametrize("family", ["identity", "log", "sqrt", "reciprocal"])
 def test_a_wide_bank_takes_each_candidates_own_columns_with_the_same_numbers(monkeypatch, family):
     """Fitted values from the candidates' own columns (the path for banks with many columns
     per candidate column) equal those of the one product over the bank's columns."""
