@@ -184,8 +184,9 @@ def _batch_unguarded(
                 continue
             e = _fitted(X, W, XS, Bk, trn)  # training residuals (n_tr, C)
             np.subtract(z[trn, None], e, out=e)
-            if kind == "log":
-                mean = np.exp(eta) * retransform.log_smear_factor(e) - shift
+            if kind == "log":  # exp(eta) is the median itself when nothing is shifted
+                grow = med if shift == 0.0 else np.exp(eta)
+                mean = grow * retransform.log_smear_factor(e) - shift
             elif kind == "sqrt":  # mean_i max(eta + e_i, 0)^2, all candidates at once
                 mean = retransform.smear_sqrt(eta, e)
             else:  # every candidate still in play in one call (power forms together)

@@ -183,7 +183,7 @@ def smear_sqrt(eta: FloatArray, e: FloatArray) -> FloatArray:
     E = e[:, None] if one else e
     H = eta[:, None] if one else eta
     n = E.shape[0]
-    out: FloatArray = H * H + 2.0 * H * E.mean(axis=0) + (E * E).mean(axis=0)
+    out: FloatArray = H * H + 2.0 * H * E.mean(axis=0) + np.einsum("ij,ij->j", E, E) / n
     cut = ~(H + E.min(axis=0) > 0)  # entries with a term cut off at zero
     cols = np.flatnonzero(cut.any(axis=0))
     if cols.size:
