@@ -1034,11 +1034,14 @@ def _uniform_combos(preds: list[list[tr.Transform]]) -> list[tuple[tr.Transform,
 #: candidates scored in one batch at most, and rows x splits x candidates per batch
 MAX_BATCH = 64
 BATCH_WORK = 1_000_000
-#: the same for the exhaustive search's fixed list: its candidates on one response scale are
-#: scored together (batchcv), so a larger batch spares calls at about the same time between
-#: two looks at the clock (3,000 rows x 5 folds: 266 candidates, about 0.15 s)
+#: the same for the exhaustive search's fixed list with few splits: its candidates on one
+#: response scale are scored together (batchcv), so a larger batch spares calls at about the
+#: same time between two looks at the clock (3,000 rows x 5 folds: 266 candidates, about
+#: 0.15 s).  With many splits a batch's time is the folds' own overhead, whatever its
+#: rows: there the batches stay as small as :func:`batch_size` makes them
 GRID_BATCH = 512
 GRID_WORK = 4_000_000
+GRID_MAX_SPLITS = 20
 
 
 def batch_size(n: int, splits: int, most: int = MAX_BATCH, work: int = BATCH_WORK) -> int:
@@ -1046,6 +1049,14 @@ def batch_size(n: int, splits: int, most: int = MAX_BATCH, work: int = BATCH_WOR
     (about ``work`` rows x splits x candidates between two looks at the clock; one at a
     time for large tables or many folds)."""
     return max(1, min(most, work // max(n * splits, 1)))
+
+
+def grid_batch_size(n: int, splits: int) -> int:
+    """Candidates per batch of the exhaustive search (GRID_BATCH / GRID_WORK up to
+    GRID_MAX_SPLITS splits, else :func:`batch_size`'s)."""
+    if splits > GRID_MAX_SPLITS:
+        return batch_size(n, splits)
+    return batch_size(n, splits, GRID_BATCH, GRID_WORK)
 
 
 def _exhaustive(
@@ -1073,7 +1084,7 @@ def _exhaustive(
         if len(cands) >= max(opts.max_candidates * 4, 20000):
             break
     cands = _simplicity_sorted(cands)[: opts.max_candidates]
-    step = batch_size(prep.n, ev.scorer.plan.n_splits, GRID_BATCH, GRID_WORK)
+    step = grid_batch_size(prep.n, ev.scorer.plan.n_splits)
     for start in range(0, len(cands), step):
         if not budget.in_time():
             return False
