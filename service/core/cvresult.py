@@ -157,11 +157,19 @@ def pooled_folds(metric: str, values: np.ndarray, sizes: np.ndarray) -> float:
 def summary_of(rmse: np.ndarray, mae: np.ndarray, mape: np.ndarray | None) -> Metrics:
     """Every metric's cross-validated value: the mean over repeats of each repeat's pooled
     error (``mape`` None when the response has a zero)."""
-    return Metrics(
-        float(np.mean(rmse)),
-        float(np.mean(mae)),
-        float(np.mean(mape)) if mape is not None else None,
-    )
+    return summaries_of(
+        np.reshape(rmse, (1, -1)),
+        np.reshape(mae, (1, -1)),
+        None if mape is None else np.reshape(mape, (1, -1)),
+    )[0]
+
+
+def summaries_of(rmse: np.ndarray, mae: np.ndarray, mape: np.ndarray | None) -> list[Metrics]:
+    """:func:`summary_of` of many candidates: row c of each (C, R) array holds candidate c's
+    pooled error in every repeat."""
+    means = [np.mean(v, axis=1).tolist() for v in (rmse, mae)]
+    mapes = np.mean(mape, axis=1).tolist() if mape is not None else [None] * len(means[0])
+    return [Metrics(a, b, c) for a, b, c in zip(means[0], means[1], mapes, strict=True)]
 
 
 def std_error_of(fold_values: np.ndarray, folds: int) -> float:
@@ -169,6 +177,12 @@ def std_error_of(fold_values: np.ndarray, folds: int) -> float:
     differences) divided by sqrt(K): repeats do not add independent information (Bengio &
     Grandvalet 2004: no unbiased estimator exists; this one is naive).  0 with a single
     fold value."""
-    if fold_values.size <= 1:
-        return 0.0
-    return float(np.std(fold_values, ddof=1) / math.sqrt(folds))
+    return float(std_errors_of(np.reshape(fold_values, (1, -1)), folds)[0])
+
+
+def std_errors_of(fold_values: np.ndarray, folds: int) -> np.ndarray:
+    """:func:`std_error_of` of every row of ``fold_values`` (C, R x K): many candidates."""
+    if fold_values.shape[1] <= 1:
+        return np.zeros(fold_values.shape[0])
+    out: np.ndarray = np.std(fold_values, axis=1, ddof=1) / math.sqrt(folds)
+    return out

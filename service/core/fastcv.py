@@ -36,12 +36,12 @@ from .bank import ColumnBank
 from .boxtidwell import (
     FoldPowerProblem,
     PowerFit,
-    _power_columns_stacked,
     _power_w_into,
     estimate_fold_powers,
     estimate_fold_powers_by_series,
     estimate_many_fold_powers,
     estimate_powers,
+    power_w_stacked,
 )
 from .cvresult import (
     METRICS,
@@ -183,6 +183,19 @@ class Scorer:
         # all-rows lambdas (family, bank columns) -> lambda or why it has none: the warm
         # start of the folds' estimates, asked for again by out_of_fold and a second search
         self._near: dict[tuple[str, tuple[int, ...]], float | ValueError] = {}
+        # the training folds' X'X of bank columns S in repeat r, asked for by every
+        # candidate with those columns (read-only: callers share them)
+        self._grams: dict[tuple[bytes, int], np.ndarray] = {}
+
+    def train_grams(self, S: np.ndarray, r: int) -> np.ndarray:
+        """:meth:`ColumnBank.train_grams` (K, p, p), formed once per (columns, repeat)."""
+        key = (np.asarray(S, dtype=np.intp).tobytes(), r)
+        got = self._grams.get(key)
+        if got is None:
+            got = self.bank.train_grams(S, r)
+            got.setflags(write=False)
+            self._grams[key] = got
+        return got
 
     def all_rows_lambdas(
         self, items: Sequence[tuple[tr.Transform, Sequence[int]]]
@@ -461,7 +474,7 @@ class Scorer:
                 ts = [replace(t, lam=lam, estimated=True) for lam in found.lambdas]
                 Z[c] = np.stack([tk.forward(y) for tk in ts])
                 lambdas[c] = [float(tk.lam) for tk in ts if tk.lam is not None]  # as set
-                G = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+                G = np.concatenate([self.train_grams(S, r) for r in range(R)])
                 rhs = np.stack([XS[rows].T @ Z[c, f, rows] for f, rows in enumerate(train)])
                 X = np.broadcast_to(XS, (F, n, p))
             else:
@@ -475,7 +488,7 @@ class Scorer:
                 Z[c] = z
                 A = np.array([fit.powers for fits in found.powers for fit in fits], dtype=float)
                 powers[c] = A.tolist()
-                W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+                W = power_w_stacked(np.log(dyn.x), A, dyn.boxcox_form)
                 fixed_pos = [i for i in range(p) if i not in dyn.positions]
                 X = np.empty((F, n, p))
                 X[:, :, fixed_pos] = XS
@@ -641,7 +654,7 @@ class Scorer:
                 y,
                 XS,
                 [rows for r in range(repeats) for rows in index.train[r]],
-                np.concatenate([bank.train_grams(S, r) for r in range(repeats)]),
+                np.concatenate([self.train_grams(S, r) for r in range(repeats)]),
                 near,
             )
         for r in range(repeats):
@@ -798,7 +811,7 @@ class Scorer:
         y = self.y
         # a lambda's profile likelihood needs each fold's X'X: the bank's downdated ones;
         # every fold's lambda is found in one batch, a fold it does not take on its own
-        grams = self.bank.train_grams(S, r) if estimate_lam and S is not None else None
+        grams = self.train_grams(S, r) if estimate_lam and S is not None else None
         lams: list[float | None] = [None] * K
         if lams_found is not None:
             lams = lams_found
@@ -849,7 +862,7 @@ class Scorer:
         bank, R = self.bank, self.plan.repeats
         train_all = [rows for r in range(R) for rows in bank.index.train[r]]
         zs_all = [z for r in range(R) for z in self._fold_scales(t, r, XS, 0, fixed, None, None)[1]]
-        grams = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+        grams = np.concatenate([self.train_grams(S, r) for r in range(R)])
         if not per_fold:
             cf, ctot = bank.cross(t, zs_all[0])
             crosses: np.ndarray | None = np.concatenate(
@@ -961,7 +974,7 @@ class Scorer:
             t, cols = items[i]
             S = np.asarray(cols, dtype=int)
             XS = self.bank.columns(S)
-            grams = np.concatenate([self.bank.train_grams(S, r) for r in range(R)])
+            grams = np.concatenate([self.train_grams(S, r) for r in range(R)])
             where, probs = fams.setdefault(t.name, ([], []))
             where.append(i)
             probs.append(FoldLambdaProblem(XS, train_all, grams, near))
@@ -986,7 +999,7 @@ class Scorer:
         bank = self.bank
         train = bank.index.train[r]
         K = len(train)
-        G = bank.train_grams(S, r)
+        G = self.train_grams(S, r)
         if not per_fold:
             cf, ctot = bank.cross(t, zs[0])
             c = ctot[r][S][None, :] - cf[r][:, S]
@@ -1048,7 +1061,7 @@ class Scorer:
                 except CandidateFailure as exc:
                     raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
         if fits is None:
-            Gff = bank.train_grams(S, r)
+            Gff = self.train_grams(S, r)
             if not per_fold:
                 cf, ctot = bank.cross(t, zs[0])
                 cff: np.ndarray | None = ctot[r][S][None, :] - cf[r][:, S]
@@ -1065,7 +1078,7 @@ class Scorer:
             return self._solve_dynamic_by_fold(S, XS, dyn, r, zs, names, A, B, ETA)
         # every fold's design at its own powers, all folds at once (the same columns as
         # power_columns fold by fold), then the training sums as masked products
-        W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+        W = power_w_stacked(np.log(dyn.x), A, dyn.boxcox_form)
         n = XS.shape[0]
         X = np.empty((K, n, p))
         X[:, :, fixed_pos] = XS
@@ -1099,7 +1112,8 @@ class Scorer:
     ) -> int:
         """:meth:`_solve_dynamic`'s solutions and fitted values on a large table without
         any fold's whole design: the power columns of every fold (``boxtidwell.
-        _power_w_into``, element for element the arithmetic of the all-folds path), the
+        _power_w_into``, element for element the arithmetic of the all-folds path's
+        ``power_w_stacked``), the
         training sums as all rows' sums minus the held-out rows' (the fixed columns' from
         the bank, as the static path takes them; the rest from one product over all rows
         and one over each fold's held-out rows), and every row's fitted value from the
@@ -1114,11 +1128,12 @@ class Scorer:
         fpos = np.array([i for i in range(p) if i not in dyn.positions], dtype=int)
         L = np.ascontiguousarray(np.log(dyn.x).T)[None]  # (1, k, n): passes over rows
         W = np.empty((K, kd, n))
-        _power_w_into(L, A, dyn.boxcox_form, W)
+        with np.errstate(over="ignore", invalid="ignore"):  # as power_w_stacked
+            _power_w_into(L, A, dyn.boxcox_form, W)
         XT = np.ascontiguousarray(XS.T)  # (p_f, n)
         G = np.empty((K, p, p))
         c = np.empty((K, p))
-        G[:, fpos[:, None], fpos[None, :]] = self.bank.train_grams(S, r)
+        G[:, fpos[:, None], fpos[None, :]] = self.train_grams(S, r)
         FW = (XT @ W.reshape(K * kd, n).T).reshape(-1, K, kd)  # all rows, every fold
         same = all(zk is zs[0] for zk in zs)
         Xz = XT @ zs[0]

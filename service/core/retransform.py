@@ -64,8 +64,15 @@ def log_smear_factor(e: np.ndarray) -> np.ndarray:
     """mean(exp(e)) along the first axis, without overflow for large residuals: the factor
     of exp(eta) in the log scale's smeared mean (one per column of a 2-D ``e``)."""
     top = np.max(e, axis=0)
+    if np.all(top < _EXP_SAFE):  # no term overflows, nor their sum: no shift needed
+        safe: np.ndarray = np.mean(np.exp(e), axis=0)
+        return safe
     out: np.ndarray = np.mean(np.exp(e - top), axis=0) * np.exp(top)
     return out
+
+
+#: exp(e) of residuals below this is at most 1e304, and a mean of such terms stays finite
+_EXP_SAFE = 700.0
 
 
 def smeared_mean(t: Transform, eta: np.ndarray, resid: np.ndarray) -> np.ndarray:
@@ -168,23 +175,44 @@ def smear_sqrt(eta: FloatArray, e: FloatArray) -> FloatArray:
 
     Where no term is cut off at zero (eta + min e > 0) the square expands:
     eta^2 + 2 eta mean(e) + mean(e^2).  Elsewhere the terms with e_i > -eta are summed from
-    sorted residuals and suffix sums (sorted once for all columns that need it).
+    sorted residuals and suffix sums: every column that needs it sorted in one call, and the
+    number of terms cut off found for every such entry at once by a bisection over the sorted
+    rows (the count ``numpy.searchsorted(..., side="right")`` gives, exactly).
     """
     one = e.ndim == 1
     E = e[:, None] if one else e
     H = eta[:, None] if one else eta
     n = E.shape[0]
-    out: FloatArray = H * H + 2.0 * H * E.mean(axis=0) + (E * E).mean(axis=0)
+    out: FloatArray = H * H + 2.0 * H * E.mean(axis=0) + np.einsum("ij,ij->j", E, E) / n
     cut = ~(H + E.min(axis=0) > 0)  # entries with a term cut off at zero
     cols = np.flatnonzero(cut.any(axis=0))
     if cols.size:
-        es = np.sort(E[:, cols], axis=0)
-        zero = np.zeros((1, cols.size))
-        s1 = np.concatenate([np.cumsum(es[::-1], axis=0)[::-1], zero])
-        s2 = np.concatenate([np.cumsum((es * es)[::-1], axis=0)[::-1], zero])
-        for i, j in enumerate(cols.tolist()):
-            rows = np.flatnonzero(cut[:, j])
-            x = H[rows, j]
-            k = np.searchsorted(es[:, i], -x, side="right")  # terms with e_i > -eta count
-            out[rows, j] = ((n - k) * x * x + 2.0 * x * s1[k, i] + s2[k, i]) / n
+        # each such column's residuals sorted (columns, n), and their suffix sums
+        es = np.sort((E if cols.size == E.shape[1] else E[:, cols]).T, axis=1)
+        s1 = np.cumsum(es[:, ::-1], axis=1)[:, ::-1]  # s1[:, j] = sum of es[:, j:]
+        sq = np.square(es)
+        s2 = np.cumsum(sq[:, ::-1], axis=1)[:, ::-1]
+        rows, at = np.nonzero(cut[:, cols])  # entries (row, position in cols)
+        x = H[rows, cols[at]]
+        k = _count_at_most(es, at, -x)  # terms with e_i <= -eta are cut off
+        kk = np.minimum(k, n - 1)
+        keep = k < n  # all n terms cut off: the mean is 0
+        out[rows, cols[at]] = np.where(
+            keep, ((n - k) * x * x + 2.0 * x * s1[at, kk] + s2[at, kk]) / n, 0.0
+        )
     return out[:, 0] if one else out
+
+
+def _count_at_most(rows_sorted: FloatArray, row: np.ndarray, q: FloatArray) -> np.ndarray:
+    """For every query q[i]: how many values of the sorted row ``rows_sorted[row[i]]`` are
+    <= q[i] (``searchsorted(side="right")`` of each row), by one bisection for all queries."""
+    n = rows_sorted.shape[1]
+    lo = np.zeros(q.size, dtype=np.intp)
+    hi = np.full(q.size, n, dtype=np.intp)
+    for _ in range(max(1, int(n).bit_length())):  # ceil(log2(n + 1)) halvings suffice
+        active = lo < hi  # the count lies in [lo, hi]
+        mid = (lo + hi) // 2
+        at_most = rows_sorted[row, np.minimum(mid, n - 1)] <= q
+        lo = np.where(active & at_most, mid + 1, lo)
+        hi = np.where(active & ~at_most, mid, hi)
+    return lo

@@ -49,7 +49,11 @@ class Specification:
         (Box-Tidwell, fitted by least squares on the response) counts as a
         parameter estimated from the response.
         """
-        return _simplicity(self.key)
+        kept: tuple[int, int, int] | None = self.__dict__.get("_kept_simplicity")
+        if kept is None:  # the instance keeps it: a search sorts and ranks the same ones
+            kept = _simplicity(self.key)
+            object.__setattr__(self, "_kept_simplicity", kept)
+        return kept
 
     def response_label(self) -> str:
         return self.response_transform.label(self.response)

@@ -196,3 +196,31 @@ def test_undefined_back_transforms_fail_in_the_batch_with_the_one_candidate_reas
         assert g.value == pytest.approx(one.value, rel=1e-8)
     if t.name == "reciprocal":
         assert reasons >= 5
+
+
+@pytest.mark.parametrize("family", ["identity", "log", "sqrt", "reciprocal"])
+def test_a_wide_bank_takes_each_candidates_own_columns_with_the_same_numbers(monkeypatch, family):
+    """Fitted values from the candidates' own columns (the path for banks with many columns
+    per candidate column) equal those of the one product over the bank's columns."""
+    bank, y, plan = _bank("badly_scaled", 150, 31)
+    scorer = Scorer(bank, y, plan, False)
+    t = RESPONSES[family]
+    cands = _candidates(bank.m, 3)
+    dense = score_many(scorer, t, cands, [None] * len(cands))
+    monkeypatch.setattr(batchcv, "DENSE_COLUMNS", 0)
+    wide = score_many(scorer, t, cands, [None] * len(cands))
+    for cols, d, w in zip(cands, dense, wide, strict=True):
+        one = _alone_or_reason(scorer, t, cols)
+        if isinstance(one, str):
+            assert isinstance(w, CandidateFailure) and w.reason == one
+            continue
+        # source: Scorer.score, the one-candidate path
+        assert w.value == pytest.approx(one.value, rel=1e-10)
+        assert d.value == pytest.approx(w.value, rel=1e-10)
+
+
+def _alone_or_reason(scorer, t, cols):
+    try:
+        return scorer.score(t, cols)
+    except CandidateFailure as exc:
+        return exc.reason

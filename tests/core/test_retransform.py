@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from scipy.special import logsumexp
 from service.core import retransform
 from service.core import transforms as tr
 
@@ -186,3 +187,43 @@ def test_square_root_smearing_column_by_column_equals_one_candidate_at_a_time():
         # source: Duan (1983) double sum with g^-1(z) = max(z, 0)^2, written out
         want = np.mean(np.maximum(eta[:, j, None] + e[None, :, j], 0.0) ** 2, axis=1)
         np.testing.assert_allclose(got[:, j], want, rtol=1e-10)
+
+
+def test_counts_of_terms_cut_off_equal_searchsorted_with_ties_and_ends():
+    rng = np.random.default_rng(21)
+    for n in (1, 2, 7, 64, 1000):
+        rows = np.sort(np.round(rng.normal(0, 1, (5, n)), 1), axis=1)  # many ties
+        row = rng.integers(0, 5, 400)
+        q = np.concatenate(
+            [rows[row[:200], rng.integers(0, n, 200)], rng.normal(0, 2, 200)]
+        )  # values equal to a residual, and between, below and above them all
+        got = retransform._count_at_most(rows, row, q)
+        # source: numpy.searchsorted(side="right") row by row
+        want = [np.searchsorted(rows[r], v, side="right") for r, v in zip(row, q, strict=True)]
+        np.testing.assert_array_equal(got, want)
+
+
+def test_square_root_smearing_with_most_terms_cut_off_equals_the_double_sum():
+    rng = np.random.default_rng(22)
+    n, m, C = 300, 90, 5
+    e = rng.standard_t(4, (n, C))
+    e -= e.mean(axis=0)
+    eta = rng.uniform(-6.0, 1.0, (m, C))  # from nearly every term cut off to a few
+    eta[0] = -e.max(axis=0)  # every term cut off but one exactly at zero
+    got = retransform.smear_sqrt(eta, e)
+    # source: Duan (1983) double sum with g^-1(z) = max(z, 0)^2, written out
+    want = np.mean(np.maximum(eta[:, None, :] + e[None, :, :], 0.0) ** 2, axis=1)
+    np.testing.assert_allclose(got, want, rtol=1e-9, atol=1e-15)
+
+
+def test_log_smear_factor_of_huge_residuals_is_finite_and_equals_the_log_sum_exp():
+    rng = np.random.default_rng(23)
+    e = rng.normal(0, 1.0, (400, 3))
+    e[5, 1] = 705.0  # exp(705) overflows a float: that column needs the shift
+    got = retransform.log_smear_factor(e)
+    # source: scipy.special.logsumexp, log mean exp(e) = logsumexp(e) - log(n)
+    want = np.exp(logsumexp(e[:, [0, 2]], axis=0) - np.log(400))
+    np.testing.assert_allclose(got[[0, 2]], want, rtol=1e-13)
+    assert np.log(got[1]) == pytest.approx(logsumexp(e[:, 1]) - np.log(400), rel=1e-14)
+    small = retransform.log_smear_factor(e[:, [0, 2]])  # no shift needed: the plain mean
+    np.testing.assert_allclose(small, want, rtol=1e-13)

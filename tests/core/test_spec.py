@@ -142,6 +142,10 @@ def test_simpler_specifications_sort_first():
     # documented order: fewer estimated parameters, then cheaper transforms, then fewer of them
     assert ident.simplicity() < logx.simplicity() < est.simplicity()
     assert est.simplicity()[0] == 1  # one lambda estimated from the response
+    # kept by the instance: asked again, the same answer; equality and hashing unchanged
+    again = Specification("y", tr.Transform("box_cox"), ident.predictors)
+    assert est.simplicity() == again.simplicity() and est == again
+    assert hash(est) == hash(Specification("y", tr.Transform("box_cox"), ident.predictors))
 
 
 def test_log_of_a_column_with_zeros_gets_a_shift_from_the_column_alone():

@@ -244,6 +244,14 @@ def test_batches_shrink_with_rows_and_splits_so_the_clock_is_asked_often():
     assert batch_size(300, 5) == MAX_BATCH  # the demo: full batches
     assert batch_size(120, 2500) == 3  # 50 folds x 50 repeats: a few candidates at a time
     assert batch_size(1_000_000, 5) == 1  # large tables: one candidate between two looks
+    # the exhaustive search's fixed list: larger batches, the same work between two looks,
+    # unless there are many splits (then each fold's own overhead makes a batch's time)
+    from service.selection.search import GRID_BATCH, grid_batch_size
+
+    assert grid_batch_size(3000, 5) == 266
+    assert grid_batch_size(300, 5) == GRID_BATCH
+    assert grid_batch_size(1_000_000, 5) == 1
+    assert grid_batch_size(120, 2500) == batch_size(120, 2500) == 3
 
 
 def test_powers_and_lambdas_found_together_give_the_one_at_a_time_selection(monkeypatch):
