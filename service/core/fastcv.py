@@ -78,9 +78,10 @@ LAMBDA_BATCH_CELLS = 25_000
 #: folds x rows above which a candidate with estimated powers builds, sums and applies one
 #: fold's training sums without any fold's whole design (Scorer._solve_dynamic_by_fold)
 #: instead of all folds' designs as masked (K, n, p) products, which pass over held-out
-#: rows and hold four K n p arrays (about 1 GB at a million rows): measured by hand, one
-#: thread, 5 folds, 4 fixed columns and 2 powers: 0.12 -> 0.047 s CPU at 100,000 rows,
-#: 1.47 -> 0.42 s at a million (tests/benchmarks/rows.py --compare-designs for the search)
+#: rows and hold K n p arrays several times: measured by hand, one thread, 5 folds, 4 fixed
+#: columns and 2 powers, a million rows: 0.86-1.09 -> 0.46-0.50 s CPU and 649 -> 216 MB of
+#: peak traced allocations per candidate (tests/benchmarks/rows.py --compare-designs for
+#: the whole search)
 BY_FOLD_DESIGN_CELLS = POWER_BATCH_CELLS
 #: all-rows lambdas of at least this many designs are found in one stacked search; fewer
 #: one by one (the stacked bounded Brent costs ~17 ms of numpy calls whatever the number
