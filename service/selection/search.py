@@ -698,7 +698,7 @@ def select(
     incumbent_block = None
     if opts.incumbent is not None:
         incumbent_block = _incumbent(
-            opts, prep, plan, shift_needed, listable, ranked, entries, band
+            opts, prep, plan, shift_needed, listable, ranked, entries, band, cache
         )
     elapsed = time.perf_counter() - t0
     complete = bool(complete and len(scored) + n_fail == total)
@@ -755,7 +755,11 @@ def _incumbent(
     ranked: list[tuple[Scored, ScoreParts]],
     entries: list[EntryReport],
     band: Band | None = None,
+    made: dict[SpecKey, Entry] | None = None,
 ) -> incumbent.IncumbentDecision:
+    """The keep/switch decision; the incumbent's conditions are those of its entry when
+    the search made one (``made``), else of one made here (without White's test, which
+    the decision does not read)."""
     assert opts.incumbent is not None  # called only for a request with an incumbent
     spec, why = incumbent.incumbent_spec(
         opts.incumbent.spec, prep, prep.predictors, set(prep.table_columns)
@@ -777,8 +781,9 @@ def _incumbent(
             again, _ = rank([*scored, Scored(spec, inc_cv)], plan.folds, band)
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
         try:
-            conditions = entry_for(
-                spec, inc_cv, plan, prep, ranked[0][1], opts, ""
+            kept = (made or {}).get(spec.key)
+            conditions = (
+                kept or entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "", white=False)
             ).report.conditions
         except CandidateFailure:
             conditions = None

@@ -521,3 +521,25 @@ def test_the_work_after_the_search_is_estimated_from_rows_and_columns():
     assert got == pytest.approx(want)
     assert 5.0 < got < 15.0  # measured: about 0.35 s an entry and 0.2 s a White test
     assert listing_seconds(300, 6, 15, 5) < 1.0  # the demo's size costs next to nothing
+
+
+def test_an_incumbent_the_search_listed_is_not_fitted_and_assessed_again(monkeypatch):
+    from service.core import transforms as tr
+    from service.selection import search as search_mod
+    from service.selection.search_setup import SentSpecification
+
+    prep = _wide_prep(p=2)
+    made: list = []
+    real = search_mod.entry_for
+
+    def counted(spec, *a, **k):
+        made.append(spec.key)
+        return real(spec, *a, **k)
+
+    monkeypatch.setattr(search_mod, "entry_for", counted)
+    plain = Specification(
+        "y", tr.Transform("identity"), tuple(PredictorSpec(c, tf("identity")) for c in ("x0", "x1"))
+    )
+    out = run_selection(prep, SearchOptions(incumbent=SentSpecification(plain)), "t")
+    assert out.incumbent is not None and out.incumbent.rank is not None
+    assert plain.key in made and len(made) == len(set(made))  # one entry per specification
