@@ -521,14 +521,19 @@ def standardized_regressors(fit: Fit) -> np.ndarray:
     Breusch-Pagan and White statistics are invariant to affine rescaling of the regressors, so
     this changes nothing but the numerical accuracy (e.g. Longley's columns span 1e1..1e6).
     """
-    X = fit.X
+    return standardized_columns(fit.X)
+
+
+def standardized_columns(X: np.ndarray) -> np.ndarray:
+    """:func:`standardized_regressors` of the design ``X``."""
+    n = X.shape[0]
     keep = np.ptp(X, axis=0) > 0
     if not keep.any():
-        return np.ones((fit.n, 1))
+        return np.ones((n, 1))
     cols = X[:, keep]
     cols = (cols - cols.mean(axis=0)) / cols.std(axis=0)
     # drop collinear columns (e.g. a full dummy set, whose centred columns sum to zero)
-    return np.column_stack([np.ones(fit.n), full_rank_columns(cols)])
+    return np.column_stack([np.ones(n), full_rank_columns(cols)])
 
 
 # ----------------------------------------------------------------------------- linearity
@@ -809,42 +814,57 @@ def white_test(fit: Fit, Z: np.ndarray | None, seconds: float | None = None) -> 
     def compute() -> WhiteCheck:
         _require_residuals(fit)
         assert Z is not None  # absent only when the fit has no residuals
-        k = Z.shape[1]
-        q = k * (k + 1) // 2
-        if k < 2:
-            raise NotApplicable("the model has no predictors to relate the spread to")
-        if q > fit.n / 2:
-            raise NotApplicable(
-                f"omitted: White's auxiliary regression has {q} columns, too many for {fit.n} "
-                "rows (needs at most n/2)"
-            )
-        if q * fit.n > WHITE_MAX_CELLS:
-            raise NotApplicable(
-                f"omitted: White's auxiliary design ({fit.n} x {q}) exceeds the computing "
-                "budget; the Breusch-Pagan test still uses every row"
-            )
-        cost = white_seconds(fit.n, k)
-        if seconds is not None and cost > max(seconds, WHITE_ALWAYS_S):
-            raise NotApplicable(
-                f"not run: its auxiliary regression on {q} squares and cross-products of "
-                f"{fit.n} rows would take about {cost:.2g} s, more than the "
-                f"{max(seconds, 0.0):.2g} s left of the request's time limit; the "
-                "Breusch-Pagan test still decides equal variance"
-            )
-        i0, i1 = np.triu_indices(k)
-        # squares of 0/1 dummies repeat them: degrees of freedom use the rank
-        aux = _auxiliary(fit.resid**2, Z[:, i0] * Z[:, i1])
-        lm = fit.n * aux.r2
-        return replace(
-            failed,
-            statistic=lm,
-            p_value=chi2_sf(lm, aux.df_model),
-            f_statistic=aux.f,
-            f_p_value=aux.f_p,
-        )
+        return _white(fit.resid, Z, seconds, failed)
 
     failed = WhiteCheck(name="White")
     return guarded(failed, compute)
+
+
+def white_test_of(resid: np.ndarray, Z: np.ndarray, seconds: float | None = None) -> WhiteCheck:
+    """:func:`white_test` of the residuals ``resid`` of a fit that has residuals (the
+    least-squares residuals of the model on the design whose :func:`standardized_columns`
+    are ``Z``)."""
+    failed = WhiteCheck(name="White")
+    return guarded(failed, lambda: _white(resid, Z, seconds, failed))
+
+
+def _white(
+    resid: np.ndarray, Z: np.ndarray, seconds: float | None, failed: WhiteCheck
+) -> WhiteCheck:
+    n = int(resid.shape[0])
+    k = Z.shape[1]
+    q = k * (k + 1) // 2
+    if k < 2:
+        raise NotApplicable("the model has no predictors to relate the spread to")
+    if q > n / 2:
+        raise NotApplicable(
+            f"omitted: White's auxiliary regression has {q} columns, too many for {n} "
+            "rows (needs at most n/2)"
+        )
+    if q * n > WHITE_MAX_CELLS:
+        raise NotApplicable(
+            f"omitted: White's auxiliary design ({n} x {q}) exceeds the computing "
+            "budget; the Breusch-Pagan test still uses every row"
+        )
+    cost = white_seconds(n, k)
+    if seconds is not None and cost > max(seconds, WHITE_ALWAYS_S):
+        raise NotApplicable(
+            f"not run: its auxiliary regression on {q} squares and cross-products of "
+            f"{n} rows would take about {cost:.2g} s, more than the "
+            f"{max(seconds, 0.0):.2g} s left of the request's time limit; the "
+            "Breusch-Pagan test still decides equal variance"
+        )
+    i0, i1 = np.triu_indices(k)
+    # squares of 0/1 dummies repeat them: degrees of freedom use the rank
+    aux = _auxiliary(resid**2, Z[:, i0] * Z[:, i1])
+    lm = n * aux.r2
+    return replace(
+        failed,
+        statistic=lm,
+        p_value=chi2_sf(lm, aux.df_model),
+        f_statistic=aux.f,
+        f_p_value=aux.f_p,
+    )
 
 
 # -------------------------------------------------------------------------- independence

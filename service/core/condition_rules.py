@@ -70,7 +70,11 @@ def white_for(
     """``conditions`` of one fitted specification (from :func:`conditions_for` with
     ``white=False``) with White's test added, within ``seconds`` (:func:`with_white`)."""
     z = fit.fitted + fit.resid
-    return with_white(conditions, condition_inputs(design, fit, prep, z, alpha), seconds)
+    inp = condition_inputs(design, fit, prep, z, alpha)
+    # the fit's own residuals where it has full rank (a rank-deficient design is fitted
+    # again, so White's residuals are those of the conditions' rank decision)
+    full_rank = fit.df_resid == fit.n - design.X.shape[1]
+    return with_white(conditions, inp, seconds, fit.resid if full_rank else None)
 
 
 def failed(conditions: ConditionReport | None) -> list[str]:

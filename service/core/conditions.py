@@ -395,7 +395,8 @@ def _equal_variance(fit: ct.Fit, inp: ConditionInputs, white: bool) -> Condition
     )
     Z = None if fit.residual_reason else ct.standardized_regressors(fit)
     bp = ct.breusch_pagan_test(fit, Z)
-    tests = _marked((bp, ct.white_test(fit, Z) if white else WHITE_DEFERRED), bp)
+    later = not white and fit.residual_reason is None  # without residuals: a reason at once
+    tests = _marked((bp, WHITE_DEFERRED if later else ct.white_test(fit, Z)), bp)
     holds = _decide(bp, a)
     p = _p(bp.p_value)
     if holds is None:
@@ -726,21 +727,27 @@ def assess_conditions(inp: ConditionInputs, *, white: bool = True) -> ConditionR
 
 
 def with_white(
-    report: ConditionReport, inp: ConditionInputs, seconds: float | None = None
+    report: ConditionReport,
+    inp: ConditionInputs,
+    seconds: float | None = None,
+    resid: np.ndarray | None = None,
 ) -> ConditionReport:
     """``report`` (of ``inp``, assessed with ``white=False``) with White's test computed in
     the place :data:`WHITE_DEFERRED` held; the other tests are kept as they are, so none is
     computed twice.  ``seconds`` is the time the test may take: when its estimated cost
     (:func:`~service.core._condition_tests.white_seconds`) is larger, the check says so
-    instead of running.  A report whose White test is not deferred comes back unchanged.
+    instead of running.  ``resid``: the least-squares residuals of ``inp.z`` on ``inp.X``
+    where the caller has them (the entry's own fit), else they are fitted again; the two
+    agree to rounding (about 1e-13 relative), as every least-squares route does.  A report
+    whose White test is not deferred comes back unchanged.
     """
     ev = report.equal_variance
     if WHITE_DEFERRED not in ev.tests:
         return report
     z, X = validate(inp)
-    fit = ct.fit_model(z, X, inp.has_intercept)
-    Z = None if fit.residual_reason else ct.standardized_regressors(fit)
-    white = replace(ct.white_test(fit, Z, seconds), primary=False)
+    if resid is None:
+        resid = ct.fit_model(z, X, inp.has_intercept).resid
+    white = replace(ct.white_test_of(resid, ct.standardized_columns(X), seconds), primary=False)
     tests = tuple(white if t == WHITE_DEFERRED else t for t in ev.tests)
     return replace(report, equal_variance=replace(ev, tests=tests))
 

@@ -734,8 +734,11 @@ def test_white_added_later_equals_the_report_assessed_in_one_go():
         inp = _random_design(rng)
         whole = assess_conditions(inp)
         deferred = assess_conditions(inp, white=False)
-        assert WHITE_DEFERRED in deferred.equal_variance.tests
+        waiting = WHITE_DEFERRED in deferred.equal_variance.tests
         assert WHITE_DEFERRED.reason.startswith("not computed")
+        if not waiting:  # a fit without residuals gives White's reason at once
+            assert deferred == whole and whole.equal_variance.tests[1].reason
+            continue
         for name in CONDITIONS:
             if name != "equal_variance":
                 assert deferred.of(name) == whole.of(name)
@@ -745,6 +748,15 @@ def test_white_added_later_equals_the_report_assessed_in_one_go():
         later = with_white(deferred, inp)
         assert later.named() == whole.named() and later.hints == whole.hints
         assert with_white(whole, inp) is whole  # nothing deferred: unchanged
+        # the caller's own least-squares residuals (numpy's lstsq here): equal to rounding
+        X = np.asarray(inp.X, dtype=float)
+        resid = inp.z - X @ np.linalg.lstsq(X, inp.z, rcond=None)[0]
+        given = with_white(deferred, inp, resid=resid).equal_variance.tests[1]
+        want = whole.equal_variance.tests[1]
+        assert (given.statistic is None) == (want.statistic is None), (given, want)
+        if want.statistic is not None:
+            assert given.statistic == pytest.approx(want.statistic, rel=1e-8, abs=1e-9)
+            assert given.p_value == pytest.approx(want.p_value, rel=1e-6, abs=1e-12)
 
 
 def test_saturated_and_perfect_fits_report_none():

@@ -464,7 +464,7 @@ def test_white_runs_for_the_listed_entries_only_and_no_test_twice(monkeypatch):
     from service.core import _condition_tests as ct
 
     calls = {"white": 0, "bp": 0}
-    real_white, real_bp = ct.white_test, ct.breusch_pagan_test
+    real_white, real_bp = ct.white_test_of, ct.breusch_pagan_test
 
     def white(*a, **k):
         calls["white"] += 1
@@ -474,7 +474,8 @@ def test_white_runs_for_the_listed_entries_only_and_no_test_twice(monkeypatch):
         calls["bp"] += 1
         return real_bp(*a, **k)
 
-    monkeypatch.setattr(ct, "white_test", white)
+    monkeypatch.setattr(ct, "white_test_of", white)  # the listed entries' White
+    monkeypatch.setattr(ct, "white_test", lambda *a, **k: pytest.fail("White for a member"))
     monkeypatch.setattr(ct, "breusch_pagan_test", bp)
     out = run_selection(_wide_prep(), SearchOptions(top=3), "t")
     compared = out.search.band.members_compared
