@@ -598,7 +598,7 @@ def select(
     space = cand.build_space(prep, preds, index, opts.intercept, extra)
     scorer = Scorer(space.bank, prep.y, plan, shift_needed)
     ev = _Evaluator(prep, space, scorer, opts.intercept, power_fits, lambdas)
-    budget = Budget(opts.max_candidates, deadline, opts.stop, reserve, reserve_cap)
+    budget = Budget(opts.max_candidates, deadline, opts.stop, reserve, reserve_cap, opts.top)
     counts = {"screened": 0}
     if strategy == "exhaustive":
         complete = _exhaustive(prep, resp, preds, opts, ev, budget, total, uniform)
@@ -657,7 +657,9 @@ def select(
             cache[key] = made
         return cache[key]
 
-    ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings, deadline)
+    # the listed entries' folds are scored again after the members (CV+): their time is kept
+    keep = budget.rescore_seconds()
+    ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings, deadline, keep)
     best = min(scored, key=lambda s: s.cv.value)
     entries: list[EntryReport] = []
     fits: list[Entry] = []
@@ -668,7 +670,7 @@ def select(
             break
         try:
             # White's test only for the entries listed, in the time left
-            listed = with_white(full(s, parts), prep, opts.alpha, deadline.left())
+            listed = with_white(full(s, parts), prep, opts.alpha, deadline.left() - keep)
         except CandidateFailure as exc:
             warnings.append(
                 f"A specification that scored in cross-validation could not be "
@@ -998,20 +1000,22 @@ def _order_by_conditions(
     opts: SearchOptions,
     warnings: list[str],
     deadline: Deadline | None = None,
+    keep_s: float = 0.0,
 ) -> tuple[list[tuple[Scored, ScoreParts]], frozenset[str], int]:
     """Re-order the leading band members by failed conditions (see condition_rules.py);
     also returns the conditions that took part and the number of members compared.
 
     Past the first ``top`` members, a member is assessed only while ``deadline`` leaves
-    time for one more entry as slow as the slowest so far; the ones left out keep their
-    place after the compared members and a warning says so."""
+    time for one more entry as slow as the slowest so far besides ``keep_s`` (kept for the
+    work after it); the ones left out keep their place after the compared members and a
+    warning says so."""
     band = [i for i, (_, p) in enumerate(ranked) if p.within_one_se][: lead_members(opts)]
     n_failed: dict[int, int] = {}
     parts_of = [p for _, p in ranked]
     conds: dict[int, ConditionReport | None] = {}
     slowest = 0.0
     for m, i in enumerate(band):
-        if deadline is not None and m >= opts.top and deadline.left() < slowest:
+        if deadline is not None and m >= opts.top and deadline.left() - keep_s < slowest:
             warnings.append(
                 f"The regression conditions of {m} of the band's {len(band)} leading "
                 f"members were compared before the time limit of {deadline.limit_s:g} s "

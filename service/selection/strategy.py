@@ -68,9 +68,11 @@ class Budget:
     """Exact scorings left and the deadline; ``spent`` says why the search stopped.
 
     ``reserve_s`` is the time the work after the search is estimated to take on a quiet
-    machine (at most ``reserve_cap_s``): the search stops that long before ``deadline``,
-    stretched by the slowdown this thread sees (:meth:`slowdown`), so that on a busy
-    machine the work after it still ends within the limit.
+    machine: the search stops that long before ``deadline``, stretched by the slowdown this
+    thread sees (:meth:`slowdown`), so that on a busy machine the work after it still ends
+    within the limit; plus, for the ``rescored`` candidates whose folds are scored again
+    after the search (the listed entries' CV+ fits), the slowest time a candidate of a
+    batch took.  The whole is at most ``reserve_cap_s``.
     """
 
     def __init__(
@@ -80,6 +82,7 @@ class Budget:
         stop: Callable[[], bool] | None = None,
         reserve_s: float = 0.0,
         reserve_cap_s: float = math.inf,
+        rescored: int = 0,
     ):
         self.left = max_candidates
         self.deadline = deadline
@@ -89,6 +92,7 @@ class Budget:
         self._per_candidate = 0.0  # the slowest mean seconds a candidate of a batch took
         self.reserve_s = reserve_s
         self.reserve_cap_s = reserve_cap_s
+        self.rescored = rescored
         self._started = (time.perf_counter(), time.thread_time())
 
     def slowdown(self) -> float:
@@ -101,11 +105,16 @@ class Budget:
             return 1.0
         return min(max(wall / cpu, 1.0), MAX_SLOWDOWN)
 
+    def rescore_seconds(self) -> float:
+        """The time kept for the ``rescored`` candidates after the search."""
+        return self.rescored * self._per_candidate
+
     def time_left(self) -> float:
         """Seconds the search may still use (negative once it should stop)."""
-        if self.reserve_s <= 0:
+        if self.reserve_s <= 0 and self.rescored <= 0:
             return self.deadline.left()
-        return self.deadline.left() - min(self.reserve_s * self.slowdown(), self.reserve_cap_s)
+        after = self.reserve_s * self.slowdown() + self.rescore_seconds()
+        return self.deadline.left() - min(after, self.reserve_cap_s)
 
     def batch(self, wanted: int) -> int:
         """How many of ``wanted`` candidates the next batch may score: as many as fit in

@@ -160,6 +160,10 @@ def test_a_budget_stops_its_reserve_before_the_deadline_stretched_by_the_slowdow
     assert capped.time_left() == pytest.approx(50.0, abs=0.5)  # 80 s capped at 50
     late = st.Budget(10, d, reserve_s=120.0)
     assert not late.in_time() and late.spent == "time_limit_s"
+    # the listed entries' folds scored again: as long as the slowest candidate so far each
+    again = st.Budget(10, d, reserve_s=20.0, reserve_cap_s=50.0, rescored=3)
+    again.took(2, 4.0)  # 2 s a candidate
+    assert again.time_left() == pytest.approx(100.0 - 2 * 20.0 - 3 * 2.0, abs=0.5)
 
 
 def test_the_slowdown_is_wall_time_per_cpu_second_of_the_thread_within_bounds():
