@@ -658,7 +658,7 @@ def select(
         return cache[key]
 
     # the listed entries' folds are scored again after the members (CV+): their time is kept
-    keep = budget.rescore_seconds()
+    keep = min(budget.rescore_seconds(), reserve_cap)
     ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings, deadline, keep)
     best = min(scored, key=lambda s: s.cv.value)
     entries: list[EntryReport] = []
