@@ -28,6 +28,11 @@ def to_jsonable(obj):
         if not math.isfinite(obj):
             raise ValueError("non-finite number in a response body")
         return obj
+    if kind is dict:  # plain containers first: no typed result is one
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if kind is list:
+        plain = _plain_numbers(obj)
+        return plain if plain is not None else [to_jsonable(v) for v in obj]
     if renders(obj):
         return to_jsonable(contract(obj))
     if isinstance(obj, dict):

@@ -49,7 +49,31 @@ def _rho_ok(p: float, terms: int = J, rtol: float = TREE_RTOL) -> float:
     return float(rho_ok_many(np.array([float(p)]), terms, rtol)[0])
 
 
+#: rho_ok of (p, terms, rtol) found so far in this process (a pure function of them): the
+#: binned paths ask for the same few exponents for every group and fold (square 0.5,
+#: reciprocal -1, ladder powers); at most _KEPT_MAX values, then it starts again
+_KEPT: dict[tuple[float, int, float], float] = {}
+_KEPT_MAX = 4096
+
+
 def rho_ok_many(p: np.ndarray, terms: int = J, rtol: float = TREE_RTOL) -> FloatArray:
+    """:func:`_rho_ok` of every exponent in ``p`` at once: :func:`rho_ok_closed_form`, each
+    distinct exponent found once per process (kept in ``_KEPT``)."""
+    p = np.asarray(p, dtype=float)
+    u, inv = np.unique(p, return_inverse=True)
+    vals = np.array([_KEPT.get((x, terms, rtol), math.nan) for x in u.tolist()])
+    miss = np.isnan(vals)
+    if np.any(miss):
+        vals[miss] = rho_ok_closed_form(u[miss], terms, rtol)
+        if len(_KEPT) + int(miss.sum()) > _KEPT_MAX:
+            _KEPT.clear()
+        for x, v in zip(u[miss].tolist(), vals[miss].tolist(), strict=True):
+            _KEPT[(x, terms, rtol)] = v
+    out: FloatArray = vals[inv].reshape(p.shape)
+    return out
+
+
+def rho_ok_closed_form(p: np.ndarray, terms: int = J, rtol: float = TREE_RTOL) -> FloatArray:
     """:func:`_rho_ok` of every exponent in ``p`` at once, in closed form.
 
     T_J(rho) = sum_{t >= J} |C(p, t)| rho^t.  For t >= J the ratio of consecutive
@@ -103,6 +127,19 @@ def _powers(x: np.ndarray, k: int) -> np.ndarray:
     out[..., 0] = 1.0
     out[..., 1:] = x[..., None]
     np.cumprod(out[..., 1:], axis=-1, out=out[..., 1:])
+    return out
+
+
+def _moment_sums(u: np.ndarray, k: int) -> np.ndarray:
+    """sum_i u[g, i]^t for t < k, one row per g: the powers one at a time (each a pass over
+    u), not all k of them held at once."""
+    out = np.empty((u.shape[0], k))
+    out[:, 0] = u.shape[1]
+    acc = u.copy()
+    for t in range(1, k):
+        out[:, t] = acc.sum(axis=1)
+        if t + 1 < k:
+            acc *= u
     return out
 
 
@@ -196,7 +233,7 @@ def smear_power_many(
         done = (base > 0) & (rho <= ok[:, None])
         gs = np.flatnonzero(done.any(axis=1))
         if gs.size:
-            M = _powers((e[gs] - c[gs, None]) / rs[gs, None], J).sum(axis=1)  # (Gd, J)
+            M = _moment_sums((e[gs] - c[gs, None]) / rs[gs, None], J)  # (Gd, J)
             cp = _binom_rows(p[gs], J) * np.sign(delta[gs])[:, None] ** np.arange(J)
             coef = cp * M
             where = np.full(G, -1, dtype=np.intp)

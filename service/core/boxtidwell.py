@@ -15,7 +15,11 @@ powers stay in [-3, 3], and the iteration stops when every step is below 1e-6 (a
 when halving the step below 1e-6 gives no decrease: the point is then stationary to
 that accuracy), or when two steps in a row lower the RSS by at most 1e-12 of itself (the
 relative-reduction test of nonlinear least squares, e.g. MINPACK's ftol, here far
-stricter; it ends the drift of a power the data barely determine).
+stricter; it ends the drift of a power the data barely determine).  From the second
+step on, each iteration first tries the step extrapolated from the last two iterates
+(Anderson mixing of depth one, for one power the secant step on the Gauss-Newton step;
+:func:`_extrapolated`), where the plain steps contract only linearly, and takes the
+damped Gauss-Newton step when that does not lower the RSS.
 
 Standard error: at the estimate the coefficient on dw/da estimates b (a - a_hat),
 so se(a_hat) = se(gamma) / |b|, the usual nonlinear least-squares standard
@@ -62,6 +66,11 @@ POWER_BOUNDS = (-3.0, 3.0)
 TOL = 1e-6
 FTOL = 1e-12  # relative RSS decrease below which two steps in a row count as converged
 MAX_ITER = 30
+#: x^a - 1 by expm1 where |a log x| is below this, else as exp(a log x) - 1 (exp costs half
+#: of expm1; there the subtraction loses at most a factor 1 + e^u / |e^u - 1| <= 3.6 of
+#: relative accuracy, a few units in the last place)
+EXPM1_BELOW = 0.5
+EXTRAPOLATION_MAX = 10.0  # an extrapolated step is at most this many Gauss-Newton steps long
 PROFILE_MAX_POWERS = 2  # the profile fallback searches at most this many powers at once
 CHUNK_ROWS = 32_768  # rows per block of a trial's passes (cache-sized)
 STACK_CELLS = 400_000  # folds x rows stepped in one stack (several candidates' folds)
@@ -139,15 +148,19 @@ def power_columns(
                 D[:, j] = 0.5 * L * L
                 continue
             u = aj * L
-            em1 = np.expm1(u)
-            small = np.abs(u) < 1e-3
+            absu = np.abs(u)
+            small = absu < 1e-3
             # (x^a log x - w)/a, by its series where the difference cancels
             with np.errstate(over="ignore", invalid="ignore"):
+                xa = np.exp(u)
+                em1 = xa - 1.0
+                near = absu < EXPM1_BELOW
+                if near.any():
+                    np.expm1(u, out=em1, where=near)
                 np.divide(em1, aj, out=W[:, j])
-                em1 += 1.0  # x^a
-                em1 *= L
-                em1 -= W[:, j]
-                np.divide(em1, aj, out=D[:, j])
+                xa *= L
+                xa -= W[:, j]
+                np.divide(xa, aj, out=D[:, j])
             if small.any():
                 us, Ls = u[small], L[small]
                 D[small, j] = Ls * Ls * (0.5 + us / 3.0 + us * us / 8.0)
@@ -364,6 +377,7 @@ def estimate_powers(
     converged = False
     it = 0
     flat = 0  # consecutive steps that lowered the RSS by at most FTOL (relative)
+    prev: tuple[np.ndarray, np.ndarray] | None = None  # the last iterate and its step
     if math.isfinite(rss):
         for it in range(1, MAX_ITER + 1):  # noqa: B007  (the count is reported after the loop)
             assert coef is not None and cache is not None  # they come with a finite RSS
@@ -377,9 +391,15 @@ def estimate_powers(
             step = gamma / b
             if not np.all(np.isfinite(step)):
                 break
+            ext = np.full(k, np.nan) if prev is None else _extrapolated(a, step, *prev)
+            prev = (a, step)
             step = np.clip(step, -1.0, 1.0)  # at most one rung of the ladder per step
             accepted = False
-            while float(np.max(np.abs(step))) >= TOL:
+            if float(np.max(np.abs(step))) >= TOL and np.all(np.isfinite(ext)):
+                a_new = np.clip(a + np.clip(ext, -1.0, 1.0), *POWER_BOUNDS)
+                rss_new, coef_new, cache_new = prob.trial(a_new)
+                accepted = rss_new <= rss * (1.0 + 1e-12)
+            while not accepted and float(np.max(np.abs(step))) >= TOL:
                 a_new = np.clip(a + step, *POWER_BOUNDS)
                 rss_new, coef_new, cache_new = prob.trial(a_new)
                 if rss_new <= rss * (1.0 + 1e-12):
@@ -400,6 +420,37 @@ def estimate_powers(
     a, rss, method = _fallback(prob, a, rss, converged, it, start is not None)
     se = _std_errors(z, Xf, logx, a, boxcox_form, n, p) if with_se else None
     return PowerFit(a, se, converged or method == "profile", it, method, rss)
+
+
+def _extrapolated(
+    a: np.ndarray, s: np.ndarray, a_prev: np.ndarray, s_prev: np.ndarray
+) -> np.ndarray:
+    """The step to the point where the Gauss-Newton step would vanish, extrapolated from
+    two iterates: powers ``a`` with step ``s`` and the previous ``a_prev``, ``s_prev``
+    (each (k,), or (F, k) one row per fold); NaN (all of a row) where it is not taken.
+
+    Near the optimum the Gauss-Newton map a -> a + s(a) contracts linearly, at a rate
+    that grows with the residuals' size times the curvature of the power columns (slow,
+    often alternating, convergence for a power the data determine poorly).  With
+    da = a - a_prev and ds = s - s_prev the step is s - gamma (da + ds), gamma = ds's /
+    ds'ds: Anderson mixing of depth one, which for one power is the secant step
+    -s da / ds on s(a) = 0 (superlinear, Walker & Ni 2011).  It is taken only when it is
+    finite, points the way of s (s'step > 0) and is at most ``EXTRAPOLATION_MAX`` times
+    as long as s; the iteration tries it first and takes the damped Gauss-Newton step as
+    before when it does not lower the RSS, so every accepted step still lowers the RSS
+    and the stopping rules are those of the plain iteration."""
+    da, ds = a - a_prev, s - s_prev
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        gamma = np.sum(ds * s, axis=-1, keepdims=True) / np.sum(ds * ds, axis=-1, keepdims=True)
+        step = s - gamma * (da + ds)
+        size = np.max(np.abs(step), axis=-1, keepdims=True)
+        ok = (
+            np.all(np.isfinite(step), axis=-1, keepdims=True)
+            & (np.sum(step * s, axis=-1, keepdims=True) > 0)
+            & (size <= EXTRAPOLATION_MAX * np.max(np.abs(s), axis=-1, keepdims=True))
+        )
+    out: np.ndarray = np.where(ok, step, np.nan)
+    return out
 
 
 def _fallback(
@@ -568,38 +619,13 @@ def is_open(t: tr.Transform) -> bool:
 
 
 # ------------------------------------------------------------ every training fold at once
-def _power_columns_stacked(
-    L: np.ndarray, A: np.ndarray, boxcox_form: bool
-) -> tuple[np.ndarray, np.ndarray]:
-    """:func:`power_columns` for several power vectors at once: ``L`` (b, k) log x, or
-    (F, b, k) one per power vector, ``A`` (F, k) powers; returns W, D (F, b, k), element for
-    element the same arithmetic."""
-    Lb = L[None, :, :] if L.ndim == 2 else L
-    if not boxcox_form:
-        xa = np.exp(A[:, None, :] * Lb)
-        return xa, xa * Lb
-    zero = (np.abs(A) < 1e-12)[:, None, :]
-    a3 = np.where(zero, 1.0, A[:, None, :])
-    u = a3 * Lb
-    em1 = np.expm1(u)
-    W = em1 / a3
-    D = ((em1 + 1.0) * Lb - W) / a3
-    small = np.abs(u) < 1e-3
-    if small.any():
-        D = np.where(small, Lb * Lb * (0.5 + u / 3.0 + u * u / 8.0), D)
-    if zero.any():
-        W = np.where(zero, Lb, W)
-        D = np.where(zero, 0.5 * Lb * Lb, D)
-    return W, D
-
-
 def _power_columns_into(
     L: np.ndarray, A: np.ndarray, boxcox_form: bool, W: np.ndarray, D: np.ndarray
 ) -> None:
     """:func:`power_columns` for several power vectors at once, written into ``W`` and ``D``
     (F, k, b): ``L`` (F, k, b) log x, one column per row of it (rows of the table along the
     last axis, so every pass runs over contiguous memory), ``A`` (F, k) powers; element for
-    element the arithmetic of :func:`_power_columns_stacked`."""
+    element the arithmetic of :func:`power_columns`."""
     a3 = A[:, :, None]
     if not boxcox_form:
         np.multiply(a3, L, out=W)
@@ -610,13 +636,17 @@ def _power_columns_into(
     if zero.any():
         a3 = np.where(zero, 1.0, A)[:, :, None]
     u = a3 * L
-    em1 = np.expm1(u)
+    absu = np.abs(u)
+    xa = np.exp(u)
+    em1 = xa - 1.0
+    near = absu < EXPM1_BELOW
+    if near.any():
+        np.expm1(u, out=em1, where=near)
     np.divide(em1, a3, out=W)
-    em1 += 1.0
-    em1 *= L
-    em1 -= W
-    np.divide(em1, a3, out=D)
-    small = np.abs(u) < 1e-3
+    xa *= L
+    xa -= W
+    np.divide(xa, a3, out=D)
+    small = absu < 1e-3
     if small.any():
         Ls, us = L[small], u[small]
         D[small] = Ls * Ls * (0.5 + us / 3.0 + us * us / 8.0)
@@ -638,11 +668,26 @@ def _power_w_into(L: np.ndarray, A: np.ndarray, boxcox_form: bool, W: np.ndarray
     zero = np.abs(A) < 1e-12
     if zero.any():
         a3 = np.where(zero, 1.0, A)[:, :, None]
-    np.multiply(a3, L, out=W)
-    np.expm1(W, out=W)
+    np.multiply(a3, L, out=W)  # u = a log x
+    near = np.abs(W) < EXPM1_BELOW
+    em1 = np.expm1(W, out=np.empty_like(W), where=near) if near.any() else None
+    np.exp(W, out=W)
+    W -= 1.0
+    if em1 is not None:
+        np.copyto(W, em1, where=near)
     W /= a3
     if zero.any():
         np.copyto(W, L, where=np.broadcast_to(zero[:, :, None], W.shape))
+
+
+def power_w_stacked(logx: np.ndarray, A: np.ndarray, boxcox_form: bool) -> np.ndarray:
+    """The power columns alone, W (F, n, k), of ``logx`` (n, k) at every row of powers
+    ``A`` (F, k): element for element :func:`power_columns`' w(a) (:func:`_power_w_into`),
+    without the derivative columns."""
+    W = np.empty((A.shape[0], logx.shape[1], logx.shape[0]))
+    with np.errstate(over="ignore", invalid="ignore"):
+        _power_w_into(np.ascontiguousarray(logx.T)[None], A, boxcox_form, W)
+    return np.swapaxes(W, 1, 2)
 
 
 class _Folds:
@@ -708,6 +753,10 @@ class _Folds:
                 self.XT *= ~pad[:, None, :]
                 self.LT *= ~pad[:, None, :]
                 self.Zt[pad] = 0.0
+        # [X_f z] of every fold's training rows side by side (F, p_f + 1, m): a trial's
+        # cross-products of [W D] with both in one product
+        self.XZ = np.concatenate([self.XT, self.Zt[:, None, :]], axis=1)
+        self.XT, self.Zt = self.XZ[:, : self.pf], self.XZ[:, self.pf]
         if grams is None:
             grams = np.matmul(self.XT, np.swapaxes(self.XT, 1, 2))
         if crosses is None:
@@ -733,9 +782,8 @@ class _Folds:
         Fa = idx.size
         P = pf + 2 * k
         every = Fa == F  # idx is sorted and distinct: all folds, no copy
-        SX = np.zeros((Fa, 2 * k, pf))
+        SXz = np.zeros((Fa, 2 * k, pf + 1))
         SW = np.zeros((Fa, 2 * k, 2 * k))
-        Sz = np.zeros((Fa, 2 * k, 1))
         blocks: list[np.ndarray] = []
         with np.errstate(over="ignore", invalid="ignore"):
             for s in range(0, m, CHUNK_ROWS):
@@ -745,11 +793,11 @@ class _Folds:
                 _power_columns_into(Lc, A, self.bc, WD[:, :k], WD[:, k:])
                 if self.pad is not None:
                     WD *= ~(self.pad[:, None, sl] if every else self.pad[idx, None, sl])
-                Xc = self.XT[:, :, sl] if every else self.XT[idx, :, sl]
-                zc = self.Zt[:, sl] if every else self.Zt[idx, sl]
-                SX += np.matmul(WD, np.swapaxes(Xc, 1, 2))
-                SW += np.matmul(WD, np.swapaxes(WD, 1, 2))
-                Sz += np.matmul(WD, zc[:, :, None])
+                XZc = self.XZ[:, :, sl] if every else self.XZ[idx, :, sl]
+                # einsum's own loops: for these small matrices faster than a stacked
+                # matmul's call per matrix
+                SXz += np.einsum("fib,fjb->fij", WD, XZc)
+                SW += np.einsum("fib,fjb->fij", WD, WD)
                 blocks.append(WD)
         # a column that is not finite makes its sum of squares not finite; a finite sum of
         # squares leaves no doubt (the elements are checked only where it is not)
@@ -761,12 +809,12 @@ class _Folds:
             dfin[f] = all(np.all(np.isfinite(b[f, k:])) for b in blocks)
         G = np.empty((Fa, P, P))
         G[:, :pf, :pf] = self.Gff[idx]
-        G[:, pf:, :pf] = SX
-        G[:, :pf, pf:] = np.swapaxes(SX, 1, 2)
+        G[:, pf:, :pf] = SXz[:, :, :pf]
+        G[:, :pf, pf:] = np.swapaxes(SXz[:, :, :pf], 1, 2)
         G[:, pf:, pf:] = SW
         c = np.empty((Fa, P))
         c[:, :pf] = self.cf[idx]
-        c[:, pf:] = Sz[:, :, 0]
+        c[:, pf:] = SXz[:, :, pf]
         return G, c, blocks, wfin, dfin
 
     def residual_sums(
@@ -778,14 +826,15 @@ class _Folds:
         pf = self.pf
         q = coef.shape[1]
         every = idx.size == self.Zt.shape[0]
-        cf, cw = coef[:, None, :pf], coef[:, None, pf:]
+        cf, cw = coef[:, :pf], coef[:, pf:]
         rss = np.zeros(idx.size)
         with np.errstate(over="ignore", invalid="ignore"):
             for j, s in enumerate(range(0, self.Zt.shape[1], CHUNK_ROWS)):
                 sl = slice(s, s + CHUNK_ROWS)
                 Xc = self.XT[:, :, sl] if every else self.XT[idx, :, sl]
                 r = self.Zt[:, sl] if every else self.Zt[idx, sl]
-                r = r - np.matmul(cf, Xc)[:, 0] - np.matmul(cw, blocks[j][:, : q - pf])[:, 0]
+                r = r - np.einsum("fi,fib->fb", cf, Xc)
+                r -= np.einsum("fi,fib->fb", cw, blocks[j][:, : q - pf])
                 rss += np.einsum("fb,fb->f", r, r)
         return rss
 
@@ -1109,6 +1158,8 @@ def _damped_steps(
     left = qr.copy() if full is None else np.zeros(F, dtype=bool)
     its = np.zeros(F, dtype=int)
     flat = np.zeros(F, dtype=int)  # consecutive steps that lowered the RSS by <= FTOL
+    a_prev = np.full((F, k), np.nan)  # every fold's last iterate and its step
+    s_prev = np.full((F, k), np.nan)
     active = np.isfinite(rss) & ~left
     for it in range(1, MAX_ITER + 1):
         idx = np.flatnonzero(active)
@@ -1128,22 +1179,27 @@ def _damped_steps(
         )
         active[idx[bad]] = False  # no step: not converged, the profile search takes over
         srch = idx[~bad]
+        ext = _extrapolated(a[srch], step[~bad], a_prev[srch], s_prev[srch])
+        a_prev[srch], s_prev[srch] = a[srch], step[~bad]
         st = np.clip(step[~bad], -1.0, 1.0)  # at most one rung of the ladder per step
+        first = np.isfinite(ext[:, 0])  # the extrapolated step is tried first
         while srch.size:
             big = np.max(np.abs(st), axis=1) >= TOL
             # no decrease within TOL of a: stationary to that accuracy (see estimate_powers)
             converged[srch[~big]] = True
             active[srch[~big]] = False
-            srch, st = srch[big], st[big]
+            srch, st, first, ext = srch[big], st[big], first[big], ext[big]
             if srch.size == 0:
                 break
-            a_new = np.clip(a[srch] + st, *POWER_BOUNDS)
+            move = np.where(first[:, None], np.clip(ext, -1.0, 1.0), st)
+            a_new = np.clip(a[srch] + move, *POWER_BOUNDS)
             rss_new, coef_new, g_new, qr_new = trial(srch, a_new)
             if full is None and np.any(qr_new):  # these folds leave at once
                 left[srch[qr_new]] = True
                 active[srch[qr_new]] = False
                 keep = ~qr_new
                 srch, st, a_new = srch[keep], st[keep], a_new[keep]
+                first, ext = first[keep], ext[keep]
                 rss_new, coef_new, g_new = rss_new[keep], coef_new[keep], g_new[keep]
                 qr_new = qr_new[keep]
             acc = rss_new <= rss[srch] * (1.0 + 1e-12)
@@ -1156,7 +1212,10 @@ def _damped_steps(
                 done = (moved < TOL) | (flat[i] >= 2)
                 converged[i[done]] = True
                 active[i[done]] = False
-            srch, st = srch[~acc], st[~acc] / 2.0
+            # a rejected extrapolation is followed by the whole Gauss-Newton step, a
+            # rejected Gauss-Newton step by its half
+            srch, st = srch[~acc], np.where(first[~acc, None], st[~acc], st[~acc] / 2.0)
+            first, ext = np.zeros(srch.size, dtype=bool), ext[~acc]
     return a, rss, converged, its, left
 
 

@@ -36,11 +36,11 @@ from .bank import ColumnBank
 from .boxtidwell import (
     FoldPowerProblem,
     PowerFit,
-    _power_columns_stacked,
     estimate_fold_powers,
     estimate_fold_powers_by_series,
     estimate_many_fold_powers,
     estimate_powers,
+    power_w_stacked,
 )
 from .cvresult import (
     METRICS,
@@ -171,6 +171,19 @@ class Scorer:
         # all-rows lambdas (family, bank columns) -> lambda or why it has none: the warm
         # start of the folds' estimates, asked for again by out_of_fold and a second search
         self._near: dict[tuple[str, tuple[int, ...]], float | ValueError] = {}
+        # the training folds' X'X of bank columns S in repeat r, asked for by every
+        # candidate with those columns (read-only: callers share them)
+        self._grams: dict[tuple[bytes, int], np.ndarray] = {}
+
+    def train_grams(self, S: np.ndarray, r: int) -> np.ndarray:
+        """:meth:`ColumnBank.train_grams` (K, p, p), formed once per (columns, repeat)."""
+        key = (np.asarray(S, dtype=np.intp).tobytes(), r)
+        got = self._grams.get(key)
+        if got is None:
+            got = self.bank.train_grams(S, r)
+            got.setflags(write=False)
+            self._grams[key] = got
+        return got
 
     def all_rows_lambdas(
         self, items: Sequence[tuple[tr.Transform, Sequence[int]]]
@@ -431,7 +444,7 @@ class Scorer:
                 ts = [replace(t, lam=lam, estimated=True) for lam in found.lambdas]
                 Z[c] = np.stack([tk.forward(y) for tk in ts])
                 lambdas[c] = [float(tk.lam) for tk in ts if tk.lam is not None]  # as set
-                G = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+                G = np.concatenate([self.train_grams(S, r) for r in range(R)])
                 rhs = np.stack([XS[rows].T @ Z[c, f, rows] for f, rows in enumerate(train)])
                 X = np.broadcast_to(XS, (F, n, p))
             else:
@@ -445,7 +458,7 @@ class Scorer:
                 Z[c] = z
                 A = np.array([fit.powers for fits in found.powers for fit in fits], dtype=float)
                 powers[c] = A.tolist()
-                W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+                W = power_w_stacked(np.log(dyn.x), A, dyn.boxcox_form)
                 fixed_pos = [i for i in range(p) if i not in dyn.positions]
                 X = np.empty((F, n, p))
                 X[:, :, fixed_pos] = XS
@@ -611,7 +624,7 @@ class Scorer:
                 y,
                 XS,
                 [rows for r in range(repeats) for rows in index.train[r]],
-                np.concatenate([bank.train_grams(S, r) for r in range(repeats)]),
+                np.concatenate([self.train_grams(S, r) for r in range(repeats)]),
                 near,
             )
         for r in range(repeats):
@@ -766,7 +779,7 @@ class Scorer:
         y = self.y
         # a lambda's profile likelihood needs each fold's X'X: the bank's downdated ones;
         # every fold's lambda is found in one batch, a fold it does not take on its own
-        grams = self.bank.train_grams(S, r) if estimate_lam and S is not None else None
+        grams = self.train_grams(S, r) if estimate_lam and S is not None else None
         lams: list[float | None] = [None] * K
         if lams_found is not None:
             lams = lams_found
@@ -817,7 +830,7 @@ class Scorer:
         bank, R = self.bank, self.plan.repeats
         train_all = [rows for r in range(R) for rows in bank.index.train[r]]
         zs_all = [z for r in range(R) for z in self._fold_scales(t, r, XS, 0, fixed, None, None)[1]]
-        grams = np.concatenate([bank.train_grams(S, r) for r in range(R)])
+        grams = np.concatenate([self.train_grams(S, r) for r in range(R)])
         if not per_fold:
             cf, ctot = bank.cross(t, zs_all[0])
             crosses: np.ndarray | None = np.concatenate(
@@ -929,7 +942,7 @@ class Scorer:
             t, cols = items[i]
             S = np.asarray(cols, dtype=int)
             XS = self.bank.columns(S)
-            grams = np.concatenate([self.bank.train_grams(S, r) for r in range(R)])
+            grams = np.concatenate([self.train_grams(S, r) for r in range(R)])
             where, probs = fams.setdefault(t.name, ([], []))
             where.append(i)
             probs.append(FoldLambdaProblem(XS, train_all, grams, near))
@@ -954,7 +967,7 @@ class Scorer:
         bank = self.bank
         train = bank.index.train[r]
         K = len(train)
-        G = bank.train_grams(S, r)
+        G = self.train_grams(S, r)
         if not per_fold:
             cf, ctot = bank.cross(t, zs[0])
             c = ctot[r][S][None, :] - cf[r][:, S]
@@ -1016,7 +1029,7 @@ class Scorer:
                 except CandidateFailure as exc:
                     raise CandidateFailure(f"fold {k + 1}: {exc.reason}") from None
         if fits is None:
-            Gff = bank.train_grams(S, r)
+            Gff = self.train_grams(S, r)
             if not per_fold:
                 cf, ctot = bank.cross(t, zs[0])
                 cff: np.ndarray | None = ctot[r][S][None, :] - cf[r][:, S]
@@ -1031,7 +1044,7 @@ class Scorer:
         # power_columns fold by fold), then the training sums as masked products
         A = np.array([fit.powers for fit in fits], dtype=float)
         powers.extend(A.tolist())
-        W, _ = _power_columns_stacked(np.log(dyn.x), A, dyn.boxcox_form)
+        W = power_w_stacked(np.log(dyn.x), A, dyn.boxcox_form)
         n = XS.shape[0]
         X = np.empty((K, n, p))
         X[:, :, fixed_pos] = XS

@@ -2,7 +2,8 @@
 earlier revision of ``service`` against the working tree, alternating in the same run.
 
 The earlier revision (``--before``, a git revision; default 29c3e3b, the engine before the
-power steps formed their columns on training rows only) is exported with ``git archive`` into
+power steps formed their columns on training rows only; 71c0cd9: before the steps
+extrapolated from the last two iterates and the trials' cross-products by einsum) is exported with ``git archive`` into
 a temporary directory; every part runs in a fresh process for each side, the sides
 alternating ``--runs`` times, and the best CPU seconds (``time.process_time``; the machine is
 shared) are compared.  Parts:
@@ -15,8 +16,9 @@ shared) are compared.  Parts:
   two powers beside an intercept and four fixed columns);
 - ``solves K``: ``fitting.solve_batch_nested`` of K 6 x 6 systems (K = 1, 5, 50, 550), 50 times.
 
-Prints each part's CPU (and wall) seconds per side, the ratio, and the largest |power
-difference| between the sides (the demo's and the 100k candidates' powers).
+Prints each part's CPU (and wall) seconds per side, the ratio, the largest |power
+difference| between the sides (the demo's and the 100k candidates' powers) and, for the
+power parts, the iterations all their fits took on each side.
 
     python tests/benchmarks/power_steps.py [--before REV] [--runs 3] [--skip-100k]
 """
@@ -45,6 +47,16 @@ def _timed(fn, repeat: int = 3):
         out = fn()
         best = min(best, (time.process_time() - c0, time.perf_counter() - w0))
     return best, out
+
+
+def _iterations(results) -> int:
+    out = 0
+    for r in results:
+        if isinstance(r, list):
+            out += sum(int(f.iterations) for f in r)
+        elif hasattr(r, "iterations"):
+            out += int(r.iterations)
+    return out
 
 
 def _powers(results) -> list[float]:
@@ -84,7 +96,7 @@ def worker(part: str) -> dict:
             z = 1.0 + 0.8 * np.log(x[:, 0]) + w @ [0.3, 0.1, -0.2, 0.05] + rng.normal(0, 0.3, n)
             problems.append((z, np.column_stack([np.ones(n), w]), x))
         (cpu, wall), got = _timed(lambda: bt.estimate_many_powers(problems), 2)
-        return {"cpu": cpu, "wall": wall, "powers": _powers(got)}
+        return {"cpu": cpu, "wall": wall, "powers": _powers(got), "iterations": _iterations(got)}
     from service.api.options import selection_job, service
     from service.api.schemas import SelectionRequest
     from service.core import fastcv
@@ -116,7 +128,7 @@ def worker(part: str) -> dict:
     fn = many_folds if kind == "folds" else many_rows
     mine = [(p, form) for k, p, form in calls if k == kind]
     (cpu, wall), got = _timed(lambda: [r for p, form in mine for r in fn(p, form)], 5)
-    return {"cpu": cpu, "wall": wall, "powers": _powers(got)}
+    return {"cpu": cpu, "wall": wall, "powers": _powers(got), "iterations": _iterations(got)}
 
 
 def run(side: str, path: str, part: str) -> dict:
@@ -176,6 +188,11 @@ def main() -> None:
                 f"{part:>15}: before cpu {b['cpu']:.3f} s (wall {b['wall']:.3f}), after cpu "
                 f"{a['cpu']:.3f} s (wall {a['wall']:.3f}); ratio {b['cpu'] / a['cpu']:.2f}x CPU; "
                 f"largest |power difference| {diff:.1e}"
+                + (
+                    f"; iterations {b['iterations']} -> {a['iterations']}"
+                    if "iterations" in b and "iterations" in a
+                    else ""
+                )
             )
 
 

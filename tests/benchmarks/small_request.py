@@ -6,9 +6,12 @@ artifacts unsigned and signed, "before" and "after" alternating in the same run.
 
 - every listed model dumped to canonical JSON three times when signed, twice unsigned
   (checksum in ``build_model``, again after the CV+ block, again for the signature);
-- ``to_jsonable`` walking every number of the body one call at a time;
+- ``to_jsonable`` walking every number of the body one call at a time, asking the
+  renderers' dispatcher about every item (no answer kept per type);
 - power-form smearing with a clip tallying term counts and masking term by term in the
-  finest failed bins (``_binned_block`` with ``clip=False``, the computation it did before);
+  finest failed bins (``_binned_block`` with ``clip=False``, the computation it did before),
+  and the series' remainder limit found again for every group (``rho_ok_many`` as its
+  closed form, nothing kept per exponent);
 - every all-rows predictor power estimated again where the screening step had estimated
   the same inputs (``PowerFits.get`` finding nothing), and every all-rows lambda with its
   interval estimated each time it is asked for (``KeptLambdas``);
@@ -83,6 +86,11 @@ def item_walk(obj):
     return encode.to_jsonable(obj)
 
 
+def dispatch_renders(result) -> bool:
+    """``render.renders`` as it was: the dispatcher asked for every item."""
+    return render.contract.dispatch(type(result)) is not render.contract.dispatch(object)
+
+
 class Before:
     """Patches that restore the earlier paths while the block runs."""
 
@@ -96,8 +104,13 @@ class Before:
             ct.chi2_sf,
             ct.t_sf,
             ct.skew_kurtosis,
+            render.renders,
+            encode.renders,
+            st.rho_ok_many,
         )
+        st.rho_ok_many = st.rho_ok_closed_form
         cand.PowerFits.get = lambda self, *a: None
+        render.renders = encode.renders = dispatch_renders
         search.KeptLambdas.estimate = lambda self, f, y, X: estimate_lambda(f, y, X)
         ct.f_sf = lambda x, a, b: float(stats.f.sf(x, a, b))
         ct.chi2_sf = lambda x, a: float(stats.chi2.sf(x, a))
@@ -127,6 +140,9 @@ class Before:
             ct.chi2_sf,
             ct.t_sf,
             ct.skew_kurtosis,
+            render.renders,
+            encode.renders,
+            st.rho_ok_many,
         ) = self.saved_more
 
 

@@ -494,6 +494,10 @@ def test_stacked_power_columns_equal_the_closed_form(bc):
         # source: power_columns, one problem's columns: the same arithmetic element for element
         np.testing.assert_array_equal(WD[f, :k], W1.T)
         np.testing.assert_array_equal(WD[f, k:], D1.T)
+        # source: as above, the power columns alone of one table at every power vector
+        np.testing.assert_array_equal(
+            bt.power_w_stacked(L[0].T, A, bc)[f], bt.power_columns(L[0].T, A[f], bc)[0]
+        )
         for j in range(k):
             a, xj, Lj = A[f, j], x[f, j], L[f, j]
             if bc and abs(a) < 1e-12:
@@ -507,6 +511,10 @@ def test_stacked_power_columns_equal_the_closed_form(bc):
             else:
                 w, dw = xj**a, xj**a * Lj  # source: x^a and its derivative x^a log x
             np.testing.assert_allclose(WD[f, j], w, rtol=1e-12, atol=1e-9)
+            if bc and abs(a) >= 1e-12:
+                # source: numpy.expm1 (x^a - 1 without cancellation); exp(u) - 1 above
+                # EXPM1_BELOW is within a few units in the last place of it
+                np.testing.assert_allclose(WD[f, j], np.expm1(a * Lj) / a, rtol=1e-14, atol=0)
             np.testing.assert_allclose(WD[f, k + j], dw, rtol=1e-9, atol=1e-6)
 
 
@@ -561,3 +569,53 @@ def test_rss_of_many_powers_equals_statsmodels_ols(kind):
     big = bt._Problem(z, Xf, np.log(x_big), True)
     assert big.rss_many(np.array([[3.0, 1.0], [1.0, 1.0]]))[0] == np.inf
     assert np.isfinite(big.rss_many(np.array([[1.0, 1.0]]))[0])
+
+
+def test_extrapolated_step_of_one_power_is_the_secant_step():
+    # an affine step function s(a) = m (a - a*) with m in (-2, 0): a contracting
+    # Gauss-Newton map (rate 1 + m, alternating for m < -1)
+    a_star = 0.37
+    for m in (-1.7, -0.9, -0.45, -0.1):
+        a0, a1 = np.array([0.9]), np.array([0.6])
+        s0, s1 = m * (a0 - a_star), m * (a1 - a_star)
+        step = bt._extrapolated(a1, s1, a0, s0)
+        # source: the secant method is exact on an affine function (any numerical-analysis
+        # text, e.g. Burden & Faires, "Numerical Analysis", section 2.3; from memory)
+        assert a1[0] + step[0] == pytest.approx(a_star, abs=1e-14)
+    a0, a1 = np.array([0.9]), np.array([0.6])
+    # a growing step (rate above 1) or one more than EXTRAPOLATION_MAX steps long: refused
+    assert np.isnan(bt._extrapolated(a1, 0.5 * (a1 - a_star), a0, 0.5 * (a0 - a_star))).all()
+    m = -1.0 / (2.0 * bt.EXTRAPOLATION_MAX)
+    assert np.isnan(bt._extrapolated(a1, m * (a1 - a_star), a0, m * (a0 - a_star))).all()
+    # a stack of folds: row by row the same step as one fold at a time
+    rng = np.random.default_rng(3)
+    A, S, Ap, Sp = (rng.normal(size=(6, 2)) for _ in range(4))
+    stacked = bt._extrapolated(A, S, Ap, Sp)
+    for f in range(6):
+        np.testing.assert_array_equal(stacked[f], bt._extrapolated(A[f], S[f], Ap[f], Sp[f]))
+
+
+def test_extrapolation_reaches_the_rss_minimum_in_fewer_steps(monkeypatch):
+    # a power the data barely determine (weak linear signal, noise sd 0.5): the plain
+    # Gauss-Newton steps contract slowly
+    rng = np.random.default_rng(0)
+    n = 240
+    x, w = rng.uniform(1, 80, n), rng.normal(size=n)
+    z = 1 + 0.012 * x + 0.3 * w + rng.normal(0, 0.5, n)
+    Xf = np.column_stack([np.ones(n), w])
+    fit = bt.estimate_powers(z, Xf, x)
+    ref = minimize_scalar(
+        lambda a: _lstsq_rss(z, Xf, x, a),
+        bounds=(fit.powers[0] - 0.5, fit.powers[0] + 0.5),
+        method="bounded",
+        options={"xatol": 1e-10},
+    )
+    # source: statsmodels OLS residual sum of squares minimised over the power by
+    # scipy.optimize.minimize_scalar (bounded Brent); abs 1e-5 as for every estimate
+    assert fit.method == "box_tidwell" and fit.converged
+    assert fit.powers[0] == pytest.approx(ref.x, abs=1e-5)
+    assert fit.rss == pytest.approx(ref.fun, rel=1e-9)
+    monkeypatch.setattr(bt, "_extrapolated", lambda a, s, a_prev, s_prev: np.full(s.shape, np.nan))
+    plain = bt.estimate_powers(z, Xf, x)
+    assert plain.powers[0] == pytest.approx(ref.x, abs=1e-5)  # source: as above
+    assert fit.iterations * 2 <= plain.iterations

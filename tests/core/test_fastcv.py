@@ -479,3 +479,25 @@ def test_batched_estimated_candidates_in_small_stacks_and_their_failures_equal_a
         assert h.value == pytest.approx(one.value, rel=1e-10)
         np.testing.assert_allclose(h.fold_values, one.fold_values, rtol=1e-10)
         assert h.fold_lambdas == one.fold_lambdas
+
+
+def test_training_grams_are_formed_once_per_columns_and_repeat():
+    rng = np.random.default_rng(5)
+    n = 90
+    X = _designs("badly_scaled", rng, n)
+    y = rng.uniform(1, 2, n)
+    plan = make_plan(n, 5, 2, 0)
+    scorer = Scorer(ColumnBank.of_matrix(X, FoldIndex.of(plan, n)), y, plan, False)
+    for r in range(plan.repeats):
+        for S in ([0, 1, 3], [2, 0]):
+            got = scorer.train_grams(np.array(S), r)
+            for k in range(plan.folds):
+                rows = plan.assignments[r] != k
+                Xk = X[rows][:, S]
+                # source: numpy, X'X of the fold's training rows formed directly
+                np.testing.assert_allclose(
+                    got[k], Xk.T @ Xk, rtol=1e-9, atol=1e-9 * np.abs(Xk.T @ Xk).max()
+                )
+            # the same array again (read-only, as every candidate with these columns shares it)
+            assert scorer.train_grams(np.array(S), r) is got and not got.flags.writeable
+    assert scorer.train_grams(np.array([0, 1]), 0) is not scorer.train_grams(np.array([0, 1]), 1)

@@ -197,6 +197,35 @@ def test_rho_limit_meets_the_bound(J, rtol):
         assert tail / m <= rtol * (1 + 1e-9)
 
 
+def test_kept_rho_limits_are_the_closed_form_of_each_exponent(monkeypatch):
+    """The limits kept per exponent are the closed form's, whether found now, kept from an
+    earlier call (in any order and shape, repeated exponents) or found again after the kept
+    values were dropped at the size limit."""
+    monkeypatch.setattr(st, "_KEPT", {})
+    monkeypatch.setattr(st, "_KEPT_MAX", 40)
+    rng = np.random.default_rng(21)
+    for J, rtol in ((st.J, st.TREE_RTOL), (st.BIN_J, st.BIN_RTOL)):
+        for _ in range(6):
+            p = np.concatenate([rng.choice([0.5, -1.0, 2.0, 3.0], 5), 1 / rng.uniform(-3, 3, 9)])
+            p = rng.permutation(np.concatenate([p, p[:4]]))
+            # source: the closed form of the bound (checked by direct summation above)
+            want = st.rho_ok_closed_form(p, J, rtol)
+            np.testing.assert_array_equal(st.rho_ok_many(p, J, rtol), want)
+            np.testing.assert_array_equal(st.rho_ok_many(p[::-1], J, rtol), want[::-1])
+            assert st._rho_ok(float(p[0]), J, rtol) == want[0]
+            assert len(st._KEPT) <= 40
+
+
+def test_root_moments_are_the_power_sums_written_out():
+    rng = np.random.default_rng(22)
+    u = rng.uniform(-1, 1, (5, 301))
+    got = st._moment_sums(u, st.J)
+    # source: sum_i u_i^t written out with numpy's power, t < J (|u| <= 1: sums of size <= n)
+    want = np.stack([np.sum(u**t, axis=1) for t in range(st.J)], axis=1)
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-12 * u.shape[1])
+    assert np.array_equal(got[:, 0], np.full(5, 301.0))
+
+
 def test_bins_cover_every_residual_once_and_levels_nest():
     for n in (1, 7, 32, 33, 1600, 2049, 70_000):
         sizes = st.bin_sizes(n)

@@ -18,5 +18,17 @@ def contract(result: Any) -> Any:
 
 
 def renders(result: Any) -> bool:
-    """Whether ``result`` is a typed result with a registered contract form."""
-    return contract.dispatch(type(result)) is not contract.dispatch(object)
+    """Whether ``result`` is a typed result with a registered contract form (the answer kept
+    per type while the registrations stay as they are: a body asks for thousands of items)."""
+    kind = type(result)
+    if len(contract.registry) != _known[0]:  # a renderer registered since: ask again
+        _answers.clear()
+        _known[0] = len(contract.registry)
+    got = _answers.get(kind)
+    if got is None:
+        got = _answers[kind] = contract.dispatch(kind) is not contract.dispatch(object)
+    return got
+
+
+_answers: dict[type, bool] = {}  # type -> whether it renders, for the registrations counted
+_known = [0]  # how many registrations _answers was found with

@@ -33,3 +33,22 @@ def test_plain_values_and_unregistered_types_do_not_render(value):
         TypeError, match=f"no contract form is registered for {type(value).__name__}"
     ):
         registry.contract(value)
+
+
+@dataclass(frozen=True)
+class _RegisteredLate:
+    value: float
+
+
+def test_a_renderer_registered_after_a_question_is_seen_and_plain_types_still_do_not_render():
+    """``renders`` keeps its answer per type; a registration made after the question (the
+    dispatcher's registry grows) is seen at the next one, as the dispatcher itself sees it."""
+    late = _RegisteredLate(2.0)
+    assert not registry.renders(late)
+    registry.contract.register(_RegisteredLate)(lambda r: {"value": r.value})
+    assert registry.renders(late)
+    assert registry.contract(late) == {"value": 2.0}
+    # source: functools.singledispatch's own dispatch, asked directly
+    for value in (1.0, {"a": 1}, [1], _Unregistered(1.0), late):
+        expected = registry.contract.dispatch(type(value)) is not registry.contract.dispatch(object)
+        assert registry.renders(value) is expected
