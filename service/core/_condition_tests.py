@@ -36,7 +36,7 @@ from typing import Any, ClassVar, TypeVar
 
 import numpy as np
 from scipy import special, stats
-from scipy.linalg import qr
+from scipy.linalg import cho_factor, cho_solve, qr
 from statsmodels.stats import diagnostic as smd
 from statsmodels.stats import stattools as smt
 from statsmodels.tsa.stattools import acf
@@ -320,26 +320,47 @@ class LeastSquares:
         return out
 
 
-#: scaled Gram matrices of auxiliary designs above this condition number are solved by SVD
+#: scaled Gram matrices of auxiliary designs above this condition number are not solved
+#: by Cholesky (their columns are first reduced to an independent set by pivoted QR)
 AUX_COND_LIMIT = 1e7
+
+
+def _cholesky_residual(
+    y: np.ndarray, A: np.ndarray, G: np.ndarray, norms: np.ndarray
+) -> np.ndarray | None:
+    """Residual of ``y`` on ``A`` from the unit-column Gram matrix ``G`` (``A``'s columns
+    have lengths ``norms``) by Cholesky, or None when ``G`` is singular or its condition
+    number reaches :data:`AUX_COND_LIMIT`.  The residual is formed from the rows, so its
+    accuracy is that of the coefficients (about cond * eps, below 1e-9)."""
+    w = np.linalg.eigvalsh(G)
+    if not (w[0] > 0 and w[-1] / w[0] < AUX_COND_LIMIT):
+        return None
+    b = cho_solve(cho_factor(G), (A.T @ y) / norms) / norms
+    out: np.ndarray = y - A @ b
+    return out
 
 
 def _residual_and_rank(y: np.ndarray, A: np.ndarray) -> tuple[np.ndarray, int]:
     """Residual of ``y`` on ``A`` and the rank of ``A``.
 
-    A well-conditioned design (scaled Gram matrix below :data:`AUX_COND_LIMIT`) is solved by
-    Cholesky on its cross-products, one O(n q^2) product; the residual is then formed from
-    the rows, so its accuracy is that of the coefficients (about cond * eps, below 1e-9).
-    Any other design, rank-deficient ones included, goes to the SVD of :class:`LeastSquares`.
+    One O(n q^2) product forms the Gram matrix of ``A``'s unit-length columns.  A
+    well-conditioned one (below :data:`AUX_COND_LIMIT`) is solved by Cholesky.  Otherwise
+    (a rank-deficient design: squares of 0/1 dummies repeat them) pivoted QR of a square
+    root of that Gram matrix (:func:`independent_columns`) keeps a full-rank set of
+    columns, solved by Cholesky in turn; only a design still ill-conditioned after that
+    goes to the SVD of :class:`LeastSquares` (O(n q^2) with a far larger constant).
     """
     norms = np.sqrt(np.einsum("ij,ij->j", A, A))
     if np.all(norms > 0):
-        As = A / norms
-        G = As.T @ As
-        w = np.linalg.eigvalsh(G)
-        if w[0] > 0 and w[-1] / w[0] < AUX_COND_LIMIT:
-            b = np.linalg.solve(G, As.T @ y)
-            return y - As @ b, int(A.shape[1])
+        G = (A.T @ A) / np.outer(norms, norms)
+        e = _cholesky_residual(y, A, G, norms)
+        if e is not None:
+            return e, int(A.shape[1])
+        keep = independent_columns(G)
+        Ak = A[:, keep]
+        e = _cholesky_residual(y, Ak, G[np.ix_(keep, keep)], norms[keep])
+        if e is not None:
+            return e, int(keep.size)
     ls = LeastSquares.of(A)
     return ls.residual(y), ls.rank
 
@@ -469,21 +490,29 @@ def _require_residuals(fit: Fit) -> None:
 PIVOT_RTOL = 1e-6
 
 
-def full_rank_columns(Z: np.ndarray) -> np.ndarray:
-    """Columns of ``Z`` chosen by pivoted QR (Businger & Golub 1965) to have full rank.
+def independent_columns(G: np.ndarray) -> np.ndarray:
+    """Indices (ascending) of a full-rank set of columns of a design whose unit-column Gram
+    matrix is ``G``, chosen by pivoted QR (Businger & Golub 1965).
 
-    The QR runs on a k x k square root of the unit-column Gram matrix, which has the same
-    column norms and inner products as ``Z``, so the cost is one O(n k^2) product.
+    The QR runs on a q x q square root of ``G``, which has the same column norms and inner
+    products as the design, so the rows are never touched again; a pivot below
+    :data:`PIVOT_RTOL` of the largest counts as zero.
     """
-    norms = np.linalg.norm(Z, axis=0)
-    norms[norms == 0] = 1.0
-    G = (Z.T @ Z) / np.outer(norms, norms)
     lam, V = np.linalg.eigh(G)
     root = np.sqrt(np.clip(lam, 0.0, None))[:, None] * V.T  # root.T @ root == G
     _, R, piv = qr(root, mode="economic", pivoting=True)
     diag = np.abs(np.diag(R))
     rank = int(np.sum(diag > PIVOT_RTOL * max(float(diag.max(initial=0.0)), 1e-300)))
-    return Z[:, np.sort(piv[:rank])]
+    out: np.ndarray = np.sort(piv[:rank])
+    return out
+
+
+def full_rank_columns(Z: np.ndarray) -> np.ndarray:
+    """Columns of ``Z`` chosen by pivoted QR (:func:`independent_columns`) to have full
+    rank; the cost is one O(n k^2) product."""
+    norms = np.linalg.norm(Z, axis=0)
+    norms[norms == 0] = 1.0
+    return Z[:, independent_columns((Z.T @ Z) / np.outer(norms, norms))]
 
 
 def standardized_regressors(fit: Fit) -> np.ndarray:
@@ -492,14 +521,19 @@ def standardized_regressors(fit: Fit) -> np.ndarray:
     Breusch-Pagan and White statistics are invariant to affine rescaling of the regressors, so
     this changes nothing but the numerical accuracy (e.g. Longley's columns span 1e1..1e6).
     """
-    X = fit.X
+    return standardized_columns(fit.X)
+
+
+def standardized_columns(X: np.ndarray) -> np.ndarray:
+    """:func:`standardized_regressors` of the design ``X``."""
+    n = X.shape[0]
     keep = np.ptp(X, axis=0) > 0
     if not keep.any():
-        return np.ones((fit.n, 1))
+        return np.ones((n, 1))
     cols = X[:, keep]
     cols = (cols - cols.mean(axis=0)) / cols.std(axis=0)
     # drop collinear columns (e.g. a full dummy set, whose centred columns sum to zero)
-    return np.column_stack([np.ones(fit.n), full_rank_columns(cols)])
+    return np.column_stack([np.ones(n), full_rank_columns(cols)])
 
 
 # ----------------------------------------------------------------------------- linearity
@@ -574,7 +608,11 @@ def rainbow_test(fit: Fit) -> RainbowCheck:
         err = X - X.mean(axis=0, keepdims=True)
         vi = np.linalg.pinv(err.T @ err / fit.n)
         dist2 = np.einsum("ij,ij->i", err @ vi, err)  # squared distance: the same order
-        idx = np.lexsort((*X.T[::-1], dist2))[low : math.floor(low + RAINBOW_FRAC * fit.n)]
+        by_distance = np.argsort(dist2, kind="stable")
+        ordered = dist2[by_distance]
+        if np.any(ordered[1:] == ordered[:-1]):  # ties: the design's values break them
+            by_distance = np.lexsort((*X.T[::-1], dist2))
+        idx = by_distance[low : math.floor(low + RAINBOW_FRAC * fit.n)]
         mid = LeastSquares.of(X[idx])  # a half-sample may lose a rare dummy level: rank df
         ss_mid = float(np.sum(mid.residual(fit.z[idx]) ** 2))
         df_mid = idx.size - mid.rank
@@ -746,40 +784,87 @@ def breusch_pagan_test(fit: Fit, Z: np.ndarray | None) -> BreuschPaganCheck:
     return guarded(failed, compute)
 
 
-def white_test(fit: Fit, Z: np.ndarray | None) -> WhiteCheck:
-    """White (1980) test: e^2 on the regressors, their squares and cross-products."""
+#: products of n rows by q columns by q columns a second that :func:`white_seconds` assumes:
+#: a quarter of what one BLAS thread of the 2-core development machine managed for the
+#: auxiliary Gram matrix (1.6e10 at 10,000 rows x 496 columns), to allow for a busy machine
+WHITE_RATE = 4e9
+#: White's test always runs when its estimated cost is below this many seconds
+WHITE_ALWAYS_S = 0.1
+
+
+def white_seconds(n: int, k: int) -> float:
+    """Estimated seconds of White's test for ``n`` rows and ``k`` standardised regressors
+    (constant included): the auxiliary Gram matrix of its q = k(k+1)/2 columns, n q^2
+    products at :data:`WHITE_RATE`; 0 where the test is omitted for its size (more than
+    n/2 columns, more than :data:`WHITE_MAX_CELLS` cells)."""
+    q = k * (k + 1) // 2
+    if q > n / 2 or q * n > WHITE_MAX_CELLS:
+        return 0.0
+    return n * q * q / WHITE_RATE
+
+
+def white_test(fit: Fit, Z: np.ndarray | None, seconds: float | None = None) -> WhiteCheck:
+    """White (1980) test: e^2 on the regressors, their squares and cross-products.
+
+    ``seconds``: the time the test may take (None: no limit); when its estimated cost
+    (:func:`white_seconds`) is above both that and :data:`WHITE_ALWAYS_S`, it is not run and
+    the reason says so.
+    """
 
     def compute() -> WhiteCheck:
         _require_residuals(fit)
         assert Z is not None  # absent only when the fit has no residuals
-        k = Z.shape[1]
-        q = k * (k + 1) // 2
-        if k < 2:
-            raise NotApplicable("the model has no predictors to relate the spread to")
-        if q > fit.n / 2:
-            raise NotApplicable(
-                f"omitted: White's auxiliary regression has {q} columns, too many for {fit.n} "
-                "rows (needs at most n/2)"
-            )
-        if q * fit.n > WHITE_MAX_CELLS:
-            raise NotApplicable(
-                f"omitted: White's auxiliary design ({fit.n} x {q}) exceeds the computing "
-                "budget; the Breusch-Pagan test still uses every row"
-            )
-        i0, i1 = np.triu_indices(k)
-        # squares of 0/1 dummies repeat them: degrees of freedom use the rank
-        aux = _auxiliary(fit.resid**2, Z[:, i0] * Z[:, i1])
-        lm = fit.n * aux.r2
-        return replace(
-            failed,
-            statistic=lm,
-            p_value=chi2_sf(lm, aux.df_model),
-            f_statistic=aux.f,
-            f_p_value=aux.f_p,
-        )
+        return _white(fit.resid, Z, seconds, failed)
 
     failed = WhiteCheck(name="White")
     return guarded(failed, compute)
+
+
+def white_test_of(resid: np.ndarray, Z: np.ndarray, seconds: float | None = None) -> WhiteCheck:
+    """:func:`white_test` of the residuals ``resid`` of a fit that has residuals (the
+    least-squares residuals of the model on the design whose :func:`standardized_columns`
+    are ``Z``)."""
+    failed = WhiteCheck(name="White")
+    return guarded(failed, lambda: _white(resid, Z, seconds, failed))
+
+
+def _white(
+    resid: np.ndarray, Z: np.ndarray, seconds: float | None, failed: WhiteCheck
+) -> WhiteCheck:
+    n = int(resid.shape[0])
+    k = Z.shape[1]
+    q = k * (k + 1) // 2
+    if k < 2:
+        raise NotApplicable("the model has no predictors to relate the spread to")
+    if q > n / 2:
+        raise NotApplicable(
+            f"omitted: White's auxiliary regression has {q} columns, too many for {n} "
+            "rows (needs at most n/2)"
+        )
+    if q * n > WHITE_MAX_CELLS:
+        raise NotApplicable(
+            f"omitted: White's auxiliary design ({n} x {q}) exceeds the computing "
+            "budget; the Breusch-Pagan test still uses every row"
+        )
+    cost = white_seconds(n, k)
+    if seconds is not None and cost > max(seconds, WHITE_ALWAYS_S):
+        raise NotApplicable(
+            f"not run: its auxiliary regression on {q} squares and cross-products of "
+            f"{n} rows would take about {cost:.2g} s, more than the "
+            f"{max(seconds, 0.0):.2g} s left of the request's time limit; the "
+            "Breusch-Pagan test still decides equal variance"
+        )
+    i0, i1 = np.triu_indices(k)
+    # squares of 0/1 dummies repeat them: degrees of freedom use the rank
+    aux = _auxiliary(resid**2, Z[:, i0] * Z[:, i1])
+    lm = n * aux.r2
+    return replace(
+        failed,
+        statistic=lm,
+        p_value=chi2_sf(lm, aux.df_model),
+        f_statistic=aux.f,
+        f_p_value=aux.f_p,
+    )
 
 
 # -------------------------------------------------------------------------- independence

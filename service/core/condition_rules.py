@@ -22,6 +22,7 @@ from .conditions import (
     ConditionReport,
     TransformHint,
     assess_conditions,
+    with_white,
 )
 from .data import Prepared
 from .fitting import OLSFit
@@ -44,11 +45,36 @@ def condition_inputs(
 
 
 def conditions_for(
-    design: Design, fit: OLSFit, prep: Prepared, z: np.ndarray, alpha: float
+    design: Design,
+    fit: OLSFit,
+    prep: Prepared,
+    z: np.ndarray,
+    alpha: float,
+    *,
+    white: bool = True,
 ) -> tuple[ConditionReport, tuple[TransformHint, ...]]:
-    """(the conditions, the transform hints) of one fitted specification."""
-    out = assess_conditions(condition_inputs(design, fit, prep, z, alpha))
+    """(the conditions, the transform hints) of one fitted specification; ``white=False``
+    leaves White's test for :func:`white_for` (see :func:`assess_conditions`)."""
+    out = assess_conditions(condition_inputs(design, fit, prep, z, alpha), white=white)
     return out, out.hints
+
+
+def white_for(
+    design: Design,
+    fit: OLSFit,
+    prep: Prepared,
+    conditions: ConditionReport,
+    alpha: float,
+    seconds: float | None,
+) -> ConditionReport:
+    """``conditions`` of one fitted specification (from :func:`conditions_for` with
+    ``white=False``) with White's test added, within ``seconds`` (:func:`with_white`)."""
+    z = fit.fitted + fit.resid
+    inp = condition_inputs(design, fit, prep, z, alpha)
+    # the fit's own residuals where it has full rank (a rank-deficient design is fitted
+    # again, so White's residuals are those of the conditions' rank decision)
+    full_rank = fit.df_resid == fit.n - design.X.shape[1]
+    return with_white(conditions, inp, seconds, fit.resid if full_rank else None)
 
 
 def failed(conditions: ConditionReport | None) -> list[str]:

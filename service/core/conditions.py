@@ -35,6 +35,9 @@ from service.core import sources as src
 from service.core.numbers import count_of, fmt, p_is
 from service.core.spec import TermInfo
 
+#: estimated seconds of White's test for n rows and k regressors (selection plans with it)
+white_seconds = ct.white_seconds
+
 #: common-practice VIF cut-offs (warn, fail)
 VIF_WARN, VIF_FAIL = 5.0, 10.0
 #: common-practice cut-off for the scaled condition number (Belsley, Kuh & Welsch 1980)
@@ -384,15 +387,16 @@ def _normality(fit: ct.Fit, inp: ConditionInputs) -> Condition:
 
 
 # ----------------------------------------------------------------------- equal variance
-def _equal_variance(fit: ct.Fit, inp: ConditionInputs) -> Condition:
+def _equal_variance(fit: ct.Fit, inp: ConditionInputs, white: bool) -> Condition:
     a = inp.alpha
     rule = (
         f"holds = false when the Breusch-Pagan test in Koenker's studentised form rejects at "
         f"alpha = {a}; White's test is reported only"
     )
     Z = None if fit.residual_reason else ct.standardized_regressors(fit)
-    bp, white = ct.breusch_pagan_test(fit, Z), ct.white_test(fit, Z)
-    tests = _marked((bp, white), bp)
+    bp = ct.breusch_pagan_test(fit, Z)
+    later = not white and fit.residual_reason is None  # without residuals: a reason at once
+    tests = _marked((bp, WHITE_DEFERRED if later else ct.white_test(fit, Z)), bp)
     holds = _decide(bp, a)
     p = _p(bp.p_value)
     if holds is None:
@@ -682,19 +686,33 @@ def _influence(fit: ct.Fit, inp: ConditionInputs) -> InfluenceCondition:
 
 
 # --------------------------------------------------------------------------- public API
-def assess_conditions(inp: ConditionInputs) -> ConditionReport:
+#: White's test of a report assessed with ``white=False``, until :func:`with_white` runs it
+WHITE_DEFERRED = ct.WhiteCheck(
+    name="White",
+    reason="not computed: White's test is computed for listed entries only",
+    primary=False,
+)
+
+
+def assess_conditions(inp: ConditionInputs, *, white: bool = True) -> ConditionReport:
     """Assess the conditions of the OLS fit of ``inp.z`` on ``inp.X``.
 
     Returns the six conditions (each ``holds``: bool or ``None``, its ``tests``, a ``note``
     and the ``rule``) and :func:`transform_hints`' hints.  Every number is a finite float or
     ``None``.  Raises ``ValueError`` only for malformed inputs.
+
+    ``white=False`` leaves out White's test (:data:`WHITE_DEFERRED` stands in its place):
+    it decides nothing (Breusch-Pagan decides equal variance), and its auxiliary regression
+    on every square and cross-product is by far the dearest test of a wide design (O(n q^2)
+    for q = k(k+1)/2 columns), so a search assesses the band's members without it and adds
+    it to the entries it lists (:func:`with_white`).
     """
     z, X = validate(inp)
     fit = ct.fit_model(z, X, inp.has_intercept)
     curvatures = _curvatures(fit, inp)
     linearity = _linearity(fit, inp, curvatures)
     normality = _normality(fit, inp)
-    equal_variance = _equal_variance(fit, inp)
+    equal_variance = _equal_variance(fit, inp, white)
     independence = _independence(fit, inp)
     influence = _influence(fit, inp)
     return ConditionReport(
@@ -706,6 +724,32 @@ def assess_conditions(inp: ConditionInputs) -> ConditionReport:
         influence=influence,
         hints=_hints(curvatures, inp.alpha),
     )
+
+
+def with_white(
+    report: ConditionReport,
+    inp: ConditionInputs,
+    seconds: float | None = None,
+    resid: np.ndarray | None = None,
+) -> ConditionReport:
+    """``report`` (of ``inp``, assessed with ``white=False``) with White's test computed in
+    the place :data:`WHITE_DEFERRED` held; the other tests are kept as they are, so none is
+    computed twice.  ``seconds`` is the time the test may take: when its estimated cost
+    (:func:`~service.core._condition_tests.white_seconds`) is larger, the check says so
+    instead of running.  ``resid``: the least-squares residuals of ``inp.z`` on ``inp.X``
+    where the caller has them (the entry's own fit), else they are fitted again; the two
+    agree to rounding (about 1e-13 relative), as every least-squares route does.  A report
+    whose White test is not deferred comes back unchanged.
+    """
+    ev = report.equal_variance
+    if WHITE_DEFERRED not in ev.tests:
+        return report
+    z, X = validate(inp)
+    if resid is None:
+        resid = ct.fit_model(z, X, inp.has_intercept).resid
+    white = replace(ct.white_test_of(resid, ct.standardized_columns(X), seconds), primary=False)
+    tests = tuple(white if t == WHITE_DEFERRED else t for t in ev.tests)
+    return replace(report, equal_variance=replace(ev, tests=tests))
 
 
 #: Tukey's bulging rule: (slope sign, curvature sign) -> (bulge, x move, y move)

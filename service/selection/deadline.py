@@ -45,3 +45,9 @@ class Deadline:
         if seconds is None:
             return self
         return Deadline(min(self.at, time.monotonic() + float(seconds)), self.limit_s)
+
+    def reserving(self, seconds: float) -> Deadline:
+        """An earlier deadline that leaves ``seconds`` before this one's end for the work
+        that follows (the listed entries after a search); the caller's ``limit_s`` is
+        kept."""
+        return Deadline(self.at - max(float(seconds), 0.0), self.limit_s)

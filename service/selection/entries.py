@@ -12,7 +12,7 @@ from ..core import retransform
 from ..core import sources as src
 from ..core import transforms as tr
 from ..core.boxtidwell import PowerSummary
-from ..core.condition_rules import conditions_for, failed
+from ..core.condition_rules import conditions_for, failed, white_for
 from ..core.conditions import ConditionReport, TransformHint
 from ..core.cvplus import IntervalMethod, default_method, stored_block
 from ..core.cvresult import CVReport, CVResult, OutOfFold
@@ -361,9 +361,12 @@ def entry_for(
     parts: ScoreParts,
     opts: SearchOptions,
     service_version: str,
+    *,
+    white: bool = True,
 ) -> Entry:
     """The entry of ``spec``: its full-data fit, conditions, readings and typed model (whose
-    artifact the web floor writes and signs when the body leaves)."""
+    artifact the web floor writes and signs when the body leaves); ``white=False`` leaves
+    White's test to :func:`with_white` (a search lists only some of the entries it makes)."""
     concrete, design, fit, lam_est = fitted_model(spec, prep)
     warnings: list[str] = []
     if lam_est is not None:
@@ -392,7 +395,9 @@ def entry_for(
             f"design {fit.condition_number:.3g}); coefficients are unstable."
         )
     covs, lags = robust_covariances(fit, design, prep)
-    conditions, hints = conditions_for(design, fit, prep, fit.fitted + fit.resid, opts.alpha)
+    conditions, hints = conditions_for(
+        design, fit, prep, fit.fitted + fit.resid, opts.alpha, white=white
+    )
     bad = failed(conditions)
     cv_plus = stored_block(cv.out_of_fold, design.X, prep.y, plan.scheme)
     model = build_model(
@@ -442,3 +447,12 @@ def entry_for(
         estimates=estimates,
     )
     return Entry(report, design, fit)
+
+
+def with_white(entry: Entry, prep: Prepared, alpha: float, seconds: float | None) -> Entry:
+    """``entry`` (made with ``white=False``) with White's test in its conditions, run when
+    its estimated cost fits in ``seconds`` (else the check says why it did not run); White's
+    test decides nothing, so the rest of the entry stands as it is."""
+    report = entry.report
+    conditions = white_for(entry.design, entry.fit, prep, report.conditions, alpha, seconds)
+    return replace(entry, report=replace(report, conditions=conditions))

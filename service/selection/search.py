@@ -26,7 +26,7 @@ from ..core import transforms as tr
 from ..core.bank import FoldIndex
 from ..core.batchcv import batchable, score_many
 from ..core.condition_rules import failed, failed_for_ranking, ordering_conditions
-from ..core.conditions import CONDITION_NAMES, ConditionReport
+from ..core.conditions import CONDITION_NAMES, ConditionReport, white_seconds
 from ..core.cvplus import NOT_KEPT
 from ..core.cvresult import CVResult, Dynamic, OutOfFold, std_errors_of
 from ..core.data import DataSummary, Prepared
@@ -56,6 +56,7 @@ from .entries import (
     Simplicity,
     attach_cv_plus,
     entry_for,
+    with_white,
 )
 from .search_setup import Scored, SearchOptions, check_rows
 from .strategy import EXHAUSTIVE_LIMIT, Budget, screened_search
@@ -556,9 +557,14 @@ def select(
     box_cox_info, screen_lams = _response_lambdas(prep, opts, resp, warnings, lambdas)
     # Box-Tidwell powers per fixed response scale: reported, their ladder rungs tried.
     power_fits = cand.PowerFits()  # the screening step's fits, reused by equal candidates
-    # the screening estimates may use at most a share of the time left, so that candidates
-    # are still scored when there are many predictors and rows
-    screen_by = deadline.sooner(max(deadline.left(), 0.0) * SCREEN_SHARE)
+    # the search leaves the band members' entries and the listed entries' White tests
+    # their estimated time (at most a share of the time left), so the answer arrives
+    # within the limit; the screening estimates may use at most a share of what remains,
+    # so that candidates are still scored when there are many predictors and rows
+    reserve = listing_seconds(prep.n, n_params, lead_members(opts), opts.top)
+    reserve_cap = max(deadline.left(), 0.0) * LISTING_SHARE
+    search_by = deadline.reserving(min(reserve, reserve_cap))
+    screen_by = search_by.sooner(max(search_by.left(), 0.0) * SCREEN_SHARE)
     unscreened: list[str] = []
     bt_info, bt_powers = cand.screening_powers(
         prep, preds, resp, opts.intercept, opts.seed, screen_by, power_fits, unscreened
@@ -592,7 +598,7 @@ def select(
     space = cand.build_space(prep, preds, index, opts.intercept, extra)
     scorer = Scorer(space.bank, prep.y, plan, shift_needed)
     ev = _Evaluator(prep, space, scorer, opts.intercept, power_fits, lambdas)
-    budget = Budget(opts.max_candidates, deadline, opts.stop)
+    budget = Budget(opts.max_candidates, deadline, opts.stop, reserve, reserve_cap, opts.top)
     counts = {"screened": 0}
     if strategy == "exhaustive":
         complete = _exhaustive(prep, resp, preds, opts, ev, budget, total, uniform)
@@ -639,7 +645,7 @@ def select(
     def full(s: Scored, parts: ScoreParts) -> Entry:
         key = s.spec.key
         if key not in cache:
-            made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version)
+            made = entry_for(s.spec, s.cv, plan, prep, parts, opts, service_version, white=False)
             if key in ev.powers or key in read_notes:
                 est = made.report.estimates or Estimates()
                 est = replace(
@@ -651,7 +657,9 @@ def select(
             cache[key] = made
         return cache[key]
 
-    ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings)
+    # the listed entries' folds are scored again after the members (CV+): their time is kept
+    keep = min(budget.rescore_seconds(), reserve_cap)
+    ranked, met, assessed = _order_by_conditions(ranked, full, opts, warnings, deadline, keep)
     best = min(scored, key=lambda s: s.cv.value)
     entries: list[EntryReport] = []
     fits: list[Entry] = []
@@ -661,7 +669,8 @@ def select(
         if len(entries) >= opts.top:
             break
         try:
-            listed = full(s, parts)
+            # White's test only for the entries listed, in the time left
+            listed = with_white(full(s, parts), prep, opts.alpha, deadline.left() - keep)
         except CandidateFailure as exc:
             warnings.append(
                 f"A specification that scored in cross-validation could not be "
@@ -691,7 +700,7 @@ def select(
     incumbent_block = None
     if opts.incumbent is not None:
         incumbent_block = _incumbent(
-            opts, prep, plan, shift_needed, listable, ranked, entries, band
+            opts, prep, plan, shift_needed, listable, ranked, entries, band, cache
         )
     elapsed = time.perf_counter() - t0
     complete = bool(complete and len(scored) + n_fail == total)
@@ -748,7 +757,11 @@ def _incumbent(
     ranked: list[tuple[Scored, ScoreParts]],
     entries: list[EntryReport],
     band: Band | None = None,
+    made: dict[SpecKey, Entry] | None = None,
 ) -> incumbent.IncumbentDecision:
+    """The keep/switch decision; the incumbent's conditions are those of its entry when
+    the search made one (``made``), else of one made here (without White's test, which
+    the decision does not read)."""
     assert opts.incumbent is not None  # called only for a request with an incumbent
     spec, why = incumbent.incumbent_spec(
         opts.incumbent.spec, prep, prep.predictors, set(prep.table_columns)
@@ -770,8 +783,9 @@ def _incumbent(
             again, _ = rank([*scored, Scored(spec, inc_cv)], plan.folds, band)
             position = next(i + 1 for i, (s, _) in enumerate(again) if s.spec is spec)
         try:
-            conditions = entry_for(
-                spec, inc_cv, plan, prep, ranked[0][1], opts, ""
+            kept = (made or {}).get(spec.key)
+            conditions = (
+                kept or entry_for(spec, inc_cv, plan, prep, ranked[0][1], opts, "", white=False)
             ).report.conditions
         except CandidateFailure:
             conditions = None
@@ -962,26 +976,63 @@ def lead_members(opts: SearchOptions) -> int:
     return max(3 * opts.top, 15)
 
 
+#: seconds of one band member's all-rows entry without White's test (fit, conditions,
+#: readings, model) per row and design column, and a fixed part: 1.5 times what the 2-core
+#: development machine took (1.0e-6 s per row and column at 10,000 rows x 31 columns,
+#: 30,000 x 21 and 100,000 x 6; 0.02 s at 300 x 6)
+ENTRY_S_PER_CELL = 1.5e-6
+ENTRY_FIXED_S = 0.03
+#: the listed entries may take at most this share of the time left from the search
+LISTING_SHARE = 0.25
+
+
+def listing_seconds(n: int, k: int, members: int, listed: int) -> float:
+    """Estimated seconds of the work after the search on ``n`` rows and ``k`` design
+    columns: the all-rows entries of ``members`` band members and White's test of the
+    ``listed`` ones (:func:`~service.core.conditions.white_seconds`)."""
+    entry = ENTRY_FIXED_S + ENTRY_S_PER_CELL * n * k
+    return members * entry + listed * white_seconds(n, k)
+
+
 def _order_by_conditions(
     ranked: list[tuple[Scored, ScoreParts]],
     full: Callable[[Scored, ScoreParts], Entry],
     opts: SearchOptions,
     warnings: list[str],
+    deadline: Deadline | None = None,
+    keep_s: float = 0.0,
 ) -> tuple[list[tuple[Scored, ScoreParts]], frozenset[str], int]:
     """Re-order the leading band members by failed conditions (see condition_rules.py);
-    also returns the conditions that took part and the number of members compared."""
+    also returns the conditions that took part and the number of members compared.
+
+    Past the first ``top`` members, a member is assessed only while ``deadline`` leaves
+    time for one more entry as slow as the slowest so far besides ``keep_s`` (kept for the
+    work after it); the ones left out keep their place after the compared members and a
+    warning says so."""
     band = [i for i, (_, p) in enumerate(ranked) if p.within_one_se][: lead_members(opts)]
-    lead_m = len(band)
     n_failed: dict[int, int] = {}
     parts_of = [p for _, p in ranked]
     conds: dict[int, ConditionReport | None] = {}
-    for i in band:
+    slowest = 0.0
+    for m, i in enumerate(band):
+        if deadline is not None and m >= opts.top and deadline.left() - keep_s < slowest:
+            warnings.append(
+                f"The regression conditions of {m} of the band's {len(band)} leading "
+                f"members were compared before the time limit of {deadline.limit_s:g} s "
+                "ran out; the others keep their order by simplicity after them. Raise "
+                "limits.time_limit_s to compare them all."
+            )
+            band = band[:m]
+            break
         s, parts = ranked[i]
+        t0 = time.perf_counter()
         try:
             conds[i] = full(s, parts).report.conditions
         except CandidateFailure as exc:
             parts_of[i] = replace(parts, conditions=ConditionCount(None, note=exc.reason))
             n_failed[i] = len(CONDITION_NAMES) + 1
+        slowest = max(slowest, time.perf_counter() - t0)
+    lead_m = len(band)
     met = ordering_conditions(list(conds.values()), opts.alpha)
     for i, cond in conds.items():
         bad = failed_for_ranking(cond, met)
@@ -1085,10 +1136,15 @@ def _exhaustive(
             break
     cands = _simplicity_sorted(cands)[: opts.max_candidates]
     step = grid_batch_size(prep.n, ev.scorer.plan.n_splits)
-    for start in range(0, len(cands), step):
+    start = 0
+    while start < len(cands):
         if not budget.in_time():
             return False
-        ev.many(cands[start : start + step])
+        part = cands[start : start + budget.batch(step)]  # what fits in the time left
+        start += len(part)
+        t0 = time.perf_counter()
+        ev.many(part)
+        budget.took(len(part), time.perf_counter() - t0)
     if len(cands) < total:
         budget.spent = "max_candidates"
     return len(cands) == total

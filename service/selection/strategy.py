@@ -34,6 +34,7 @@ were screened and scored.
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any
@@ -59,21 +60,79 @@ MAX_SWEEPS = 4
 STOP_EVERY_S = 0.25
 
 
+#: the most a busy machine is taken to stretch the work reserved after a search
+MAX_SLOWDOWN = 4.0
+
+
 class Budget:
-    """Exact scorings left and the deadline; ``spent`` says why the search stopped."""
+    """Exact scorings left and the deadline; ``spent`` says why the search stopped.
+
+    ``reserve_s`` is the time the work after the search is estimated to take on a quiet
+    machine: the search stops that long before ``deadline``, stretched by the slowdown this
+    thread sees (:meth:`slowdown`), so that on a busy machine the work after it still ends
+    within the limit; plus, for the ``rescored`` candidates whose folds are scored again
+    after the search (the listed entries' CV+ fits), the slowest time a candidate of a
+    batch took.  The whole is at most ``reserve_cap_s``.
+    """
 
     def __init__(
-        self, max_candidates: int, deadline: Deadline, stop: Callable[[], bool] | None = None
+        self,
+        max_candidates: int,
+        deadline: Deadline,
+        stop: Callable[[], bool] | None = None,
+        reserve_s: float = 0.0,
+        reserve_cap_s: float = math.inf,
+        rescored: int = 0,
     ):
         self.left = max_candidates
         self.deadline = deadline
         self.spent: str | None = None
         self.stop = stop  # () -> bool: the caller went away (checked at most every STOP_EVERY_S)
         self._next_stop_check = 0.0
+        self._per_candidate = 0.0  # the slowest mean seconds a candidate of a batch took
+        self.reserve_s = reserve_s
+        self.reserve_cap_s = reserve_cap_s
+        self.rescored = rescored
+        self._started = (time.perf_counter(), time.thread_time())
+
+    def slowdown(self) -> float:
+        """Wall-clock seconds per CPU second of this thread since the budget was made (1 to
+        :data:`MAX_SLOWDOWN`; 1 in the first second): how much other work on the machine
+        stretches this request's."""
+        wall = time.perf_counter() - self._started[0]
+        cpu = time.thread_time() - self._started[1]
+        if wall < 1.0 or cpu <= 0:
+            return 1.0
+        return min(max(wall / cpu, 1.0), MAX_SLOWDOWN)
+
+    def rescore_seconds(self) -> float:
+        """The time kept for the ``rescored`` candidates after the search."""
+        return self.rescored * self._per_candidate
+
+    def time_left(self) -> float:
+        """Seconds the search may still use (negative once it should stop)."""
+        if self.reserve_s <= 0 and self.rescored <= 0:
+            return self.deadline.left()
+        after = self.reserve_s * self.slowdown() + self.rescore_seconds()
+        return self.deadline.left() - min(after, self.reserve_cap_s)
+
+    def batch(self, wanted: int) -> int:
+        """How many of ``wanted`` candidates the next batch may score: as many as fit in
+        the time left at the slowest rate a batch has shown so far (at least one), so a
+        batch started just before the deadline does not run far past it."""
+        if self._per_candidate > 0:
+            fit = int(max(self.time_left(), 0.0) / self._per_candidate)
+            wanted = min(wanted, max(fit, 1))
+        return wanted
+
+    def took(self, count: int, seconds: float) -> None:
+        """A batch of ``count`` candidates took ``seconds`` (see :meth:`batch`)."""
+        if count > 0:
+            self._per_candidate = max(self._per_candidate, seconds / count)
 
     def in_time(self) -> bool:
         """False past the deadline or once ``stop()`` says the caller is gone."""
-        if self.deadline.passed():
+        if self.time_left() < 0:
             self.spent = self.spent or "time_limit_s"
             return False
         now = time.perf_counter()
@@ -246,14 +305,19 @@ def screened_search(
         for spec in specs:
             if spec.key not in scored and allowed(spec) and all(s.key != spec.key for s in todo):
                 todo.append(spec)
-        for start in range(0, len(todo), max(batch, 1)):
+        start = 0
+        while start < len(todo):
             if not budget.ok():
                 return
-            part = todo[start : start + max(batch, 1)]
+            part = todo[start : start + budget.batch(max(batch, 1))]
+            start += len(part)
             cut = len(part) > budget.left
             part = part[: max(budget.left, 0)]
             budget.left -= len(part)
-            for spec, res in zip(part, evaluate_many(part), strict=True):
+            t0 = time.perf_counter()
+            results = evaluate_many(part)
+            budget.took(len(part), time.perf_counter() - t0)
+            for spec, res in zip(part, results, strict=True):
                 scored[spec.key] = res
             if cut:
                 budget.ok()  # says why the rest were not scored, as one at a time would

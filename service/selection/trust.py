@@ -400,8 +400,8 @@ def _verdicts(
         if spec.key not in conds:
             try:
                 _, design, fit, _ = fitted_model(spec, prep)
-                conds[spec.key], _ = conditions_for(
-                    design, fit, prep, fit.fitted + fit.resid, alpha
+                conds[spec.key], _ = conditions_for(  # the ordering reads no White test
+                    design, fit, prep, fit.fitted + fit.resid, alpha, white=False
                 )
             except CandidateFailure:  # the search puts these last as well
                 conds[spec.key] = None

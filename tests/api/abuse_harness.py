@@ -261,6 +261,24 @@ def _table(n: int = 60, seed: int = 1) -> dict:
     return {"y": y.round(4).tolist(), "x": x.round(4).tolist()}
 
 
+def case_wide(rows: int, predictors: int, time_limit: float):
+    """Invented: delivery minutes against many route measurements (a wide design, whose
+    listed entries' condition tests cost far more than a narrow one's)."""
+    rng = np.random.default_rng(7)
+    X = rng.uniform(1, 30, (rows, predictors))
+    y = np.exp(2 + 0.4 * np.log(X).mean(axis=1) + rng.normal(0, 0.15, rows))
+    cols = {"y": y.round(4).tolist()} | {
+        f"m{j}": X[:, j].round(4).tolist() for j in range(predictors)
+    }
+    req = {
+        "data": {"columns": cols},
+        "response": "y",
+        "predictors": [f"m{j}" for j in range(predictors)],
+        "limits": {"time_limit_s": time_limit},
+    }
+    return (lambda server: _json(server, "/v1/selections", req, timeout=600)), len(json.dumps(req))
+
+
 def case_many_columns(extra: int):
     cols = _table()
     for j in range(extra):

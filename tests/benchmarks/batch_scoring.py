@@ -35,16 +35,13 @@ PRED = ["identity", "log", "sqrt", "reciprocal", "square"]
 RESP = ["identity", "log", "sqrt", "reciprocal"]
 
 
-def main() -> None:
-    ap = argparse.ArgumentParser()
-    ap.add_argument("--rows", type=int, default=3000)
-    ap.add_argument("--folds", type=int, default=5)
-    ap.add_argument("--repeats", type=int, default=1)
-    args = ap.parse_args()
-    print(machine())
-    cols = water_mains(args.rows, 3, seed=0)
+def grid_scorer(rows: int, folds: int = 5, repeats: int = 1):
+    """The practitioner grid's set-up: 3 predictors of invented water-main data, their 5
+    scales in one column bank, the 125 predictor sets and a scorer over ``folds`` x
+    ``repeats`` splits."""
+    cols = water_mains(rows, 3, seed=0)
     y = cols["repair_cost"]
-    plan = make_plan(y.size, args.folds, args.repeats, 0)
+    plan = make_plan(y.size, folds, repeats, 0)
     bank = ColumnBank(y.size, FoldIndex.of(plan, y.size))
     bank.add("one", np.ones(y.size))
     for j in range(3):
@@ -55,7 +52,17 @@ def main() -> None:
         [0, *(bank.keys[(j, name)] for j, name in enumerate(combo))]
         for combo in itertools.product(PRED, repeat=3)
     ]
-    scorer = Scorer(bank, y, plan, False)
+    return plan, sets, Scorer(bank, y, plan, False)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--rows", type=int, default=3000)
+    ap.add_argument("--folds", type=int, default=5)
+    ap.add_argument("--repeats", type=int, default=1)
+    args = ap.parse_args()
+    print(machine())
+    plan, sets, scorer = grid_scorer(args.rows, args.folds, args.repeats)
     for name in RESP:  # the response scales once (cached by both ways)
         scorer.fixed_response(tr.Transform(name))
     one: list[float] = []

@@ -142,7 +142,13 @@ def compare(label, fn, runs, earlier=None):
         rounds.append((b, a))
     b = min(r[0] for r in rounds)
     a = min(r[1] for r in rounds)
-    change = largest_change(body_b, body_a) if isinstance(body_a, dict) else float("nan")
+    if isinstance(body_a, dict):
+        change = largest_change(body_b, body_a)
+    elif isinstance(body_a, np.ndarray):  # values of many candidates, NaN where one failed
+        ok = np.isfinite(body_a) & np.isfinite(body_b)
+        change = float(np.max(np.abs(body_a[ok] / body_b[ok] - 1), initial=0.0))
+    else:
+        change = float("nan")
     print(
         f"{label}: before cpu {b[0]:.3f} s (wall {b[1]:.3f}), after cpu {a[0]:.3f} s "
         f"(wall {a[1]:.3f}); ratio {b[0] / a[0]:.2f}x CPU; largest relative change {change:.1e}"

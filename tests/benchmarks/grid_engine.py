@@ -28,7 +28,6 @@ selection bodies (checksums aside).
 from __future__ import annotations
 
 import argparse
-import itertools
 import math
 import os
 import sys
@@ -36,7 +35,7 @@ from contextlib import contextmanager
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", ".."))
 
-from tests.benchmarks._common import machine, pin_blas, water_mains
+from tests.benchmarks._common import machine, pin_blas
 
 pin_blas(1)
 
@@ -46,18 +45,14 @@ from service.api.options import selection_job, service
 from service.api.schemas import SelectionRequest
 from service.core import batchcv, retransform, spec
 from service.core import transforms as tr
-from service.core.bank import ColumnBank, FoldIndex
 from service.core.cvresult import METRICS, CVResult, error_of, std_error_of, summary_of
 from service.core.errors import CandidateFailure
-from service.core.fastcv import Scorer, undefined_back_transform
+from service.core.fastcv import undefined_back_transform
 from service.core.fitting import solve_batch
-from service.core.folds import make_plan
 from service.selection import search
 from service.selection.request import run_selection
+from tests.benchmarks.batch_scoring import RESP, grid_scorer
 from tests.benchmarks.engine import compare, grid_body
-
-PRED = ["identity", "log", "sqrt", "reciprocal", "square"]
-RESP = ["identity", "log", "sqrt", "reciprocal"]
 
 
 def _batch_before(scorer, t, col_sets):
@@ -215,20 +210,7 @@ def main() -> None:
     ap.add_argument("--runs", type=int, default=5)
     args = ap.parse_args()
     print(machine())
-    cols = water_mains(3000, 3, seed=0)
-    y = cols["repair_cost"]
-    plan = make_plan(y.size, 5, 1, 0)
-    bank = ColumnBank(y.size, FoldIndex.of(plan, y.size))
-    bank.add("one", np.ones(y.size))
-    for j in range(3):
-        for name in PRED:
-            bank.add((j, name), tr.Transform(name).forward(cols[f"x{j}"]))
-    bank.freeze()
-    sets = [
-        [0, *(bank.keys[(j, name)] for j, name in enumerate(combo))]
-        for combo in itertools.product(PRED, repeat=3)
-    ]
-    scorer = Scorer(bank, y, plan, False)
+    _, sets, scorer = grid_scorer(3000)
 
     def scoring():
         values = []

@@ -19,6 +19,7 @@ from service.core.condition_rules import (
     failed,
     failed_for_ranking,
     ordering_conditions,
+    white_for,
 )
 from service.core.conditions import (
     CONDITION_NAMES,
@@ -83,6 +84,17 @@ def test_conditions_for_a_real_fit():
     assert "equal_variance" in clear_failures(block, 0.05)
     inp = condition_inputs(design, fit, prep, prep.y, 0.01)
     assert inp.alpha == 0.01 and np.array_equal(inp.X, design.X)
+    # White's test left for later and added by white_for: the same block
+    deferred, _ = conditions_for(design, fit, prep, prep.y, 0.05, white=False)
+    assert deferred.equal_variance.tests[1].statistic is None
+    later = white_for(design, fit, prep, deferred, 0.05, None)
+    for name in CONDITION_NAMES:
+        if name != "equal_variance":
+            assert later.of(name) == block.of(name)
+    white, ref = later.equal_variance.tests[1], block.equal_variance.tests[1]
+    assert white.statistic == pytest.approx(ref.statistic, rel=1e-10)  # the fit's residuals
+    # source: statsmodels het_white on the same fit (constant, income, income^2)
+    assert white.statistic == pytest.approx(smd.het_white(fit.resid, design.X)[0], rel=1e-8)
 
 
 def _conditions(ev_p: float, white_p: float = 0.5, **more) -> ConditionReport:

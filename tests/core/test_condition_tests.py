@@ -54,11 +54,20 @@ def _dummies_without_intercept() -> tuple[np.ndarray, np.ndarray, bool]:
     return X @ [1.0, 2.0, 3.0, 1.0] + rng.normal(size=100), X, False
 
 
+def _collinear() -> tuple[np.ndarray, np.ndarray, bool]:
+    # two predictors nearly equal (correlation about 0.99995) beside an independent one
+    rng = np.random.default_rng(9)
+    a = rng.normal(size=400)
+    X = np.column_stack([np.ones(400), a, a + 0.01 * rng.normal(size=400), rng.normal(size=400)])
+    return X @ [1.0, 1.0, 1.0, -0.5] + rng.normal(size=400) * (1 + 0.5 * np.abs(a)), X, True
+
+
 CASES = {
     "random-40": _random(40, 0),
     "random-300": _random(300, 1),
     "random-3000": _random(3000, 2),
     "badly-scaled": _badly_scaled(),
+    "collinear": _collinear(),
     "longley": _longley(),
     "dummies-implicit-constant": _dummies_without_intercept(),
 }
@@ -354,3 +363,103 @@ def test_jarque_bera_of_a_constant_sample_is_undefined_as_in_scipy():
         # source: scipy.stats.skew / kurtosis: nan for a sample without spread
         assert math.isnan(stats.skew(e)) and math.isnan(stats.kurtosis(e))
     assert all(math.isnan(v) for v in ct.skew_kurtosis(e))
+
+
+# ------------------------------------------- the remaining statistics, on every design
+def test_influence_jarque_bera_durbin_watson_and_vif_on_every_design(case):
+    fit, ref = case
+    # source: statsmodels OLSInfluence (leave-one-out loop), jarque_bera, durbin_watson and
+    # variance_inflation_factor on the same design
+    infl = ref.get_influence()
+    ok = fit.influence.leverage < 1 - ct.LEVERAGE_ONE_TOL
+    np.testing.assert_allclose(
+        fit.influence.studentized[ok], infl.resid_studentized_external[ok], rtol=TOL
+    )
+    np.testing.assert_allclose(fit.influence.dffits[ok], infl.dffits[0][ok], rtol=1e-7, atol=1e-12)
+    jb, jb_ref = ct.jarque_bera_test(fit), jarque_bera(ref.resid)
+    assert _rel(jb.statistic, jb_ref[0]) < TOL and _rel(jb.p_value, jb_ref[1]) < TOL
+    dw = ct.durbin_watson_test(fit.resid)
+    assert _rel(dw.statistic, sm.stats.durbin_watson(ref.resid)) < TOL
+    if fit.rank == fit.X.shape[1] and fit.X.shape[1] > 2 and np.all(fit.X[:, 0] == 1):
+        cols = list(range(1, fit.X.shape[1]))
+        got = ct.generalized_vif(fit.X, [[j] for j in cols])
+        want = [variance_inflation_factor(fit.X, j) for j in cols]
+        # the Longley design's VIFs reach 1.8e3: its conditioning costs digits in both
+        assert max(_rel(g, w) for g, w in zip(got, want, strict=True)) < 1e-6
+        if fit.n > 100:
+            assert max(_rel(g, w) for g, w in zip(got, want, strict=True)) < TOL
+
+
+def test_reset_equals_linear_reset_where_the_raw_powers_are_well_conditioned():
+    for name in ("random-300", "random-3000", "collinear"):
+        z, X, _ = CASES[name]
+        fit = ct.fit_model(z, X, True)
+        ref = sm.OLS(z, X).fit()
+        out = ct.reset_test(fit)
+        # source: statsmodels.stats.diagnostic.linear_reset (fitted^2 and fitted^3, F form)
+        ref_test = smd.linear_reset(ref, power=3, test_type="fitted", use_f=True)
+        assert _rel(out.statistic, float(ref_test.fvalue)) < TOL
+        assert _rel(out.p_value, float(ref_test.pvalue)) < TOL
+
+
+def test_white_on_a_rank_deficient_auxiliary_design_keeps_a_basis_by_pivoted_qr():
+    # 0/1 columns: their squares repeat them, so the auxiliary design loses rank
+    rng = np.random.default_rng(12)
+    n = 600
+    X = np.column_stack(
+        [np.ones(n), rng.normal(size=(n, 3)), rng.integers(0, 2, size=(n, 2))]
+    ).astype(float)
+    z = X @ [1.0, 0.5, -0.5, 0.2, 1.0, -1.0] + rng.normal(size=n) * (1 + np.abs(X[:, 1]))
+    fit = ct.fit_model(z, X, True)
+    Z = ct.standardized_regressors(fit)
+    i0, i1 = np.triu_indices(Z.shape[1])
+    aux = Z[:, i0] * Z[:, i1]
+    e, rank = ct._residual_and_rank(fit.resid**2, aux)
+    # source: numpy.linalg.matrix_rank and lstsq (SVD) of the whole auxiliary design
+    assert rank == np.linalg.matrix_rank(aux) < aux.shape[1]
+    ref_e = fit.resid**2 - aux @ np.linalg.lstsq(aux, fit.resid**2, rcond=None)[0]
+    assert _rel(float(e @ e), float(ref_e @ ref_e)) < TOL
+    out = ct.white_test(fit, Z)
+    ref = sm.OLS(fit.resid**2, ct.full_rank_columns(aux)).fit()  # source: statsmodels OLS
+    assert _rel(out.statistic, fit.n * ref.rsquared) < TOL
+    assert _rel(out.f_statistic, ref.fvalue) < TOL
+
+
+def test_rainbow_breaks_distance_ties_by_the_design_as_statsmodels_does():
+    # integer-valued predictors: many rows share a Mahalanobis distance
+    rng = np.random.default_rng(13)
+    n = 300
+    X = np.column_stack([np.ones(n), rng.integers(0, 4, n), rng.integers(0, 3, n)]).astype(float)
+    z = X @ [1.0, 0.5, -0.3] + rng.normal(size=n)
+    fit = ct.fit_model(z, X, True)
+    out = ct.rainbow_test(fit)
+    # source: statsmodels.stats.diagnostic.linear_rainbow(use_distance=True)
+    F, p = smd.linear_rainbow(sm.OLS(z, X).fit(), frac=0.5, use_distance=True)
+    assert _rel(out.statistic, F) < TOL and _rel(out.p_value, p) < TOL
+
+
+def test_white_is_left_out_with_a_reason_when_it_would_not_fit_in_the_time_given():
+    rng = np.random.default_rng(14)
+    n, k = 4000, 12
+    X = np.column_stack([np.ones(n), rng.normal(size=(n, k))])
+    z = X @ rng.normal(size=k + 1) + rng.normal(size=n)
+    fit = ct.fit_model(z, X, True)
+    Z = ct.standardized_regressors(fit)
+    q = (k + 1) * (k + 2) // 2
+    assert ct.white_seconds(n, k + 1) == pytest.approx(n * q * q / ct.WHITE_RATE)
+    ran = ct.white_test(fit, Z, seconds=None)
+    assert ran.statistic is not None and ran.reason is None
+    assert ct.white_test(fit, Z, seconds=60.0) == ran
+    # a cheap test always runs, even with no time left
+    assert ct.white_seconds(n, k + 1) < ct.WHITE_ALWAYS_S
+    assert ct.white_test(fit, Z, seconds=0.0) == ran
+    # a dear one does not, and says so
+    many = np.column_stack([np.ones(n), rng.normal(size=(n, 40))])
+    fit2 = ct.fit_model(many @ rng.normal(size=41) + rng.normal(size=n), many, True)
+    Z2 = ct.standardized_regressors(fit2)
+    assert ct.white_seconds(n, Z2.shape[1]) > ct.WHITE_ALWAYS_S
+    out = ct.white_test(fit2, Z2, seconds=0.0)
+    assert out.statistic is None and out.p_value is None and not out.ran
+    assert out.reason.startswith("not run:") and "time limit" in out.reason
+    # a size at which the test is omitted anyway costs nothing to plan for
+    assert ct.white_seconds(100, 20) == 0.0 and ct.white_seconds(100_000, 40) == 0.0

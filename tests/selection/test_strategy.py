@@ -143,3 +143,54 @@ def test_a_search_whose_time_runs_out_while_screening_still_ranks_its_baselines(
         for e in got.ranking
     }
     assert names <= {(r, p) for r in ("identity", "log", "sqrt") for p in ("identity", "log")}
+
+
+def test_a_budget_stops_its_reserve_before_the_deadline_stretched_by_the_slowdown(monkeypatch):
+    from service.selection import strategy as st
+    from service.selection.deadline import Deadline
+
+    d = Deadline.after(100.0)
+    plain = st.Budget(10, d)
+    assert plain.time_left() == pytest.approx(d.left(), abs=0.05) and plain.in_time()
+    reserved = st.Budget(10, d, reserve_s=20.0, reserve_cap_s=50.0)
+    assert reserved.time_left() == pytest.approx(80.0, abs=0.5)
+    monkeypatch.setattr(st.Budget, "slowdown", lambda self: 2.0)
+    assert reserved.time_left() == pytest.approx(60.0, abs=0.5)  # 20 s stretched twice
+    capped = st.Budget(10, d, reserve_s=40.0, reserve_cap_s=50.0)
+    assert capped.time_left() == pytest.approx(50.0, abs=0.5)  # 80 s capped at 50
+    late = st.Budget(10, d, reserve_s=120.0)
+    assert not late.in_time() and late.spent == "time_limit_s"
+    # the listed entries' folds scored again: as long as the slowest candidate so far each
+    again = st.Budget(10, d, reserve_s=20.0, reserve_cap_s=50.0, rescored=3)
+    again.took(2, 4.0)  # 2 s a candidate
+    assert again.time_left() == pytest.approx(100.0 - 2 * 20.0 - 3 * 2.0, abs=0.5)
+
+
+def test_the_slowdown_is_wall_time_per_cpu_second_of_the_thread_within_bounds():
+    import time
+
+    from service.selection import strategy as st
+    from service.selection.deadline import Deadline
+
+    b = st.Budget(10, Deadline.after(100.0))
+    assert b.slowdown() == 1.0  # within its first second
+    b._started = (time.perf_counter() - 10.0, time.thread_time())  # 10 s waited, no CPU
+    assert b.slowdown() == st.MAX_SLOWDOWN
+    b._started = (time.perf_counter() - 2.0, time.thread_time() - 1.0)
+    assert b.slowdown() == pytest.approx(2.0, rel=0.05)
+
+
+def test_a_batch_holds_what_fits_in_the_time_left_at_the_slowest_rate_seen():
+    from service.selection import strategy as st
+    from service.selection.deadline import Deadline
+
+    b = st.Budget(100, Deadline.after(10.0))
+    assert b.batch(64) == 64  # nothing measured yet
+    b.took(4, 2.0)  # 0.5 s a candidate: about 20 fit in the 10 s left
+    assert 18 <= b.batch(64) <= 20 and b.batch(8) == 8
+    b.took(10, 1.0)  # faster batches do not lower the rate
+    assert 18 <= b.batch(64) <= 20
+    b.took(1, 30.0)  # slower than the time left: still one at a time, never none
+    assert b.batch(64) == 1
+    b.took(0, 5.0)  # an empty batch says nothing
+    assert b.batch(64) == 1

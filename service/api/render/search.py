@@ -62,10 +62,22 @@ def scales(d: s.ScalesSummary) -> dict[str, Any]:
     }
 
 
+#: integers above this are written as the nearest float: about 27 predictors give a
+#: candidate space past 2^63, which the JSON writer refuses, and no JSON reader keeps an
+#: integer past 2^53 exact anyway
+EXACT_INT = 2**53
+
+
+def count(n: int) -> int | float:
+    """A count as JSON carries it: exact up to :data:`EXACT_INT`, else the nearest float
+    (still an integral number)."""
+    return n if n <= EXACT_INT else float(n)
+
+
 @contract.register
 def search(r: s.SearchSummary) -> dict[str, Any]:
     out: dict[str, Any] = {
-        "candidates_considered": r.considered,
+        "candidates_considered": count(r.considered),
         "candidates_scored": r.scored,
         "candidates_failed": r.failed,
         "candidates_screened": r.screened,

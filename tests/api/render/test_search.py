@@ -71,3 +71,15 @@ def test_failure_reasons_and_strategy_render_as_the_contract_states():
     assert failure_text(first["reason"], first["candidates"], first["wordings"]) in " ".join(
         body["warnings"]
     )
+
+
+def test_a_candidate_space_past_64_bits_is_written_as_a_json_number():
+    import orjson
+    from service.api.render.search import EXACT_INT, count
+
+    # 30 predictors with 6 scales each and 5 response scales: 5 * 6**30, past 2**63
+    space = 5 * 6**30
+    assert space > 2**63
+    assert orjson.loads(orjson.dumps(count(space))) == pytest.approx(space, rel=1e-15)
+    assert count(EXACT_INT) == EXACT_INT and type(count(EXACT_INT)) is int
+    assert type(count(EXACT_INT + 1)) is float and count(12) == 12
