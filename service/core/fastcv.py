@@ -135,6 +135,11 @@ class Found:
     lambdas: list[float | None] | None = None
 
 
+#: one candidate for the scorer: (response transform, bank columns, column names, estimated
+#: predictor powers or None, all-rows estimates found or None)
+Item = tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
+
+
 def _fitted(designs: list[np.ndarray], B: np.ndarray) -> np.ndarray:
     """(n, K): every row's fitted value under every fold's solution, fold k on its own
     design ``designs[k]`` (n, p)."""
@@ -304,9 +309,7 @@ class Scorer:
 
     def score_many(
         self,
-        items: Sequence[
-            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
-        ],
+        items: Sequence[Item],
     ) -> list[CVResult | CandidateFailure]:
         """:meth:`score` for many candidates ``(t, cols, names, dynamic, found)``: each one's
         held-out predictions as :meth:`score` forms them, then the smeared means of every
@@ -327,9 +330,7 @@ class Scorer:
 
     def _score_many_part(
         self,
-        items: Sequence[
-            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
-        ],
+        items: Sequence[Item],
     ) -> list[CVResult | CandidateFailure]:
         """:meth:`score_many` for one part of its candidates."""
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -386,9 +387,7 @@ class Scorer:
 
     def _estimated_many(
         self,
-        items: Sequence[
-            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
-        ],
+        items: Sequence[Item],
     ) -> dict[int, CVResult]:
         """The results of the candidates among ``items`` whose folds' lambdas or powers were
         found together (:meth:`lambdas_many`, :meth:`powers_many`), scored as a batch: every
@@ -436,9 +435,7 @@ class Scorer:
 
     def _estimated_batch(
         self,
-        items: Sequence[
-            tuple[tr.Transform, list[int], list[str] | None, Dynamic | None, Found | None]
-        ],
+        items: Sequence[Item],
     ) -> list[CVResult | None]:
         bank, y, plan = self.bank, self.y, self.plan
         index = bank.index
