@@ -276,6 +276,7 @@ BINNED_PAIRS_MIN_CELLS = 1 << 15  # break-even measured about 29,000 terms
 _PAIR_CELLS = 1 << 18  # (eta, bin, term) cells per block of that path (2 MB of floats)
 
 
+@np.errstate(over="ignore", invalid="ignore", divide="ignore")
 def _binned_pairs(
     gi: np.ndarray,
     eta: np.ndarray,
@@ -302,20 +303,6 @@ def _binned_pairs(
     plus rounding.  A term's base is A + |delta| s_i, the same floating-point value as the
     exact sum's A + delta e_i, so the defined terms are the ones :func:`exact_power`
     counts.  Overflow gives inf, as in the exact sum (callers treat it as undefined)."""
-    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        return _binned_pairs_unguarded(gi, eta, e, beta, gamma, delta, p, zero)
-
-
-def _binned_pairs_unguarded(
-    gi: np.ndarray,
-    eta: np.ndarray,
-    e: np.ndarray,
-    beta: np.ndarray,
-    gamma: np.ndarray,
-    delta: np.ndarray,
-    p: np.ndarray,
-    zero: np.ndarray,
-) -> FloatArray:
     n = e.shape[1]
     L = PAIR_BIN
     used, inv = np.unique(gi, return_inverse=True)

@@ -111,18 +111,12 @@ def _alone(
         return exc
 
 
+@np.errstate(over="ignore", invalid="ignore", divide="ignore")
 def _batch(
     scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
 ) -> list[CVResult | CandidateFailure | None]:
     """Scores (or failures with their reason) of candidates with the same number of
     columns; None where the candidate must be scored alone."""
-    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        return _batch_unguarded(scorer, t, col_sets)
-
-
-def _batch_unguarded(
-    scorer: Scorer, t: tr.Transform, col_sets: Sequence[Sequence[int]]
-) -> list[CVResult | CandidateFailure | None]:
     bank, y, plan = scorer.bank, scorer.y, scorer.plan
     assert bank.G_fold is not None and bank.G_total is not None  # checked by batchable()
     index = bank.index

@@ -24,7 +24,7 @@ started at the all-rows estimate; the column then differs per fold).
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
@@ -112,6 +112,24 @@ def _exact_refit(
             "solution (values too large for floating point)"
         ) from None
     return coef / m
+
+
+def _solve_or_refit(
+    G: np.ndarray,
+    c: np.ndarray,
+    B: np.ndarray,
+    fold: Callable[[int], tuple[np.ndarray, np.ndarray]],
+    names: list[str] | None,
+) -> int:
+    """B[k] = the solution of the stacked normal equations G[k] b = c[k], or where the
+    stack's condition check refuses fold k, its pivoted-QR refit (:func:`_exact_refit` of
+    ``fold(k)``: that fold's training design and response); returns how many were refit."""
+    Bk, ok = solve_batch(G, c)
+    B[:] = Bk
+    refit = np.flatnonzero(~ok).tolist()
+    for k in refit:
+        B[k] = _exact_refit(*fold(k), names, k)
+    return len(refit)
 
 
 def undefined_back_transform(t: tr.Transform, k: int, count: int) -> CandidateFailure:
@@ -1003,13 +1021,7 @@ class Scorer:
             c = ctot[r][S][None, :] - cf[r][:, S]
         else:
             c = np.stack([XS[train[k]].T @ zs[k][train[k]] for k in range(K)])
-        Bk, ok = solve_batch(G, c)
-        B[:] = Bk
-        refits = 0
-        for k in np.flatnonzero(~ok):
-            B[k] = _exact_refit(XS[train[k]], zs[k][train[k]], names, k)
-            refits += 1
-        return refits
+        return _solve_or_refit(G, c, B, lambda k: (XS[train[k]], zs[k][train[k]]), names)
 
     def _solve_dynamic(
         self,
@@ -1087,12 +1099,7 @@ class Scorer:
         Xm = X * M[:, :, None]
         G = np.matmul(Xm.transpose(0, 2, 1), X)
         c = np.einsum("knp,kn->kp", Xm, np.stack(zs))
-        Bk, ok = solve_batch(G, c)
-        B[:] = Bk
-        refits = 0
-        for i in np.flatnonzero(~ok):
-            B[i] = _exact_refit(X[i][train[i]], zs[i][train[i]], names, i)
-            refits += 1
+        refits = _solve_or_refit(G, c, B, lambda k: (X[k][train[k]], zs[k][train[k]]), names)
         ETA[:] = np.einsum("knp,kp->nk", X, B)  # the same product as _fitted's
         return refits
 
@@ -1144,17 +1151,16 @@ class Scorer:
             G[k, dpos[:, None], dpos[None, :]] = W[k] @ W[k].T - Wte @ Wte.T
             c[k, fpos] = (Xz if same else XT @ zk) - Xte @ zte
             c[k, dpos] = W[k] @ zk - Wte @ zte
-        Bk, ok = solve_batch(G, c)
-        B[:] = Bk
-        refits = 0
         train = self.bank.index.train[r]
-        for f in np.flatnonzero(~ok).tolist():
+
+        def fold(f: int) -> tuple[np.ndarray, np.ndarray]:  # fold f's training design
             rows = train[f]
             X = np.empty((rows.size, p))
             X[:, fpos] = XS[rows]
             X[:, dpos] = W[f][:, rows].T
-            B[f] = _exact_refit(X, zs[f][rows], names, f)
-            refits += 1
+            return X, zs[f][rows]
+
+        refits = _solve_or_refit(G, c, B, fold, names)
         ETA[:] = XS @ B[:, fpos].T
         for k in range(K):
             ETA[:, k] += W[k].T @ B[k, dpos]

@@ -3,7 +3,7 @@ per-fold products, patched back in, against the engine as shipped, alternating i
 
 "before" puts back, by patching:
 
-- ``batchcv._batch_unguarded`` forming every row's fitted value under every fold's
+- ``batchcv._batch`` forming every row's fitted value under every fold's
   solution from an (n, C, p) stack of designs (einsum), the training residuals by boolean
   masks, fold errors row by row and each candidate's summary and standard error alone;
 - ``retransform.smear_sqrt`` counting the cut-off terms column by column (one
@@ -55,6 +55,7 @@ from tests.benchmarks.batch_scoring import RESP, grid_scorer
 from tests.benchmarks.engine import compare, grid_body
 
 
+@np.errstate(over="ignore", invalid="ignore", divide="ignore")  # as batchcv._batch
 def _batch_before(scorer, t, col_sets):
     bank, y, plan = scorer.bank, scorer.y, scorer.plan
     index, X = bank.index, bank.X
@@ -180,14 +181,14 @@ def _simplicity_before(self):
 @contextmanager
 def before():
     saved = (
-        batchcv._batch_unguarded,
+        batchcv._batch,
         retransform.smear_sqrt,
         retransform.log_smear_factor,
         search.GRID_BATCH,
         search.GRID_WORK,
         spec.Specification.simplicity,
     )
-    batchcv._batch_unguarded = _batch_before
+    batchcv._batch = _batch_before
     retransform.smear_sqrt = _smear_sqrt_before
     retransform.log_smear_factor = _log_smear_factor_before
     search.GRID_BATCH, search.GRID_WORK = 64, 1_000_000
@@ -196,7 +197,7 @@ def before():
         yield
     finally:
         (
-            batchcv._batch_unguarded,
+            batchcv._batch,
             retransform.smear_sqrt,
             retransform.log_smear_factor,
             search.GRID_BATCH,
